@@ -1,0 +1,228 @@
+/**
+ * Reading archives: {@link open} a byte source, then read fields or check
+ * them. Only the payloads a call needs are fetched from the source.
+ */
+import { Cell, classify, fillWords } from './codec/mask.js';
+import { isPointwise } from './codec/bound.js';
+import { decodeTile } from './codec/tile-decode.js';
+import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
+import { readContainer, type Container } from './format/container.js';
+import { crc32 } from './format/crc32.js';
+import { DEFAULT_LIMITS, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Limits } from './format/schema.js';
+import { MemorySource, type ByteSource } from './format/source.js';
+import type { Dtype, FloatArray } from './types.js';
+
+/** A decoded field. */
+export interface FieldValues {
+  name: string;
+  dtype: Dtype;
+  shape: number[];
+  values: FloatArray;
+}
+
+/** One failed check. */
+export interface CheckFailure {
+  field: string;
+  /** Tile index, or -1 for the field as a whole. */
+  tile: number;
+  what: string;
+}
+
+/** Result of {@link Archive.check}. */
+export interface CheckReport {
+  ok: boolean;
+  fields: {
+    name: string;
+    tiles: number;
+    /** Bound mode and resolved tolerance. */
+    mode: string;
+    tolerance: number;
+    /** Recorded at encode time (from the index). */
+    recorded: { maxErr: number; rmse: number };
+    /** Measured against the original, when one was given. */
+    measured?: { maxErr: number; rmse: number; specialMismatches: number };
+  }[];
+  failures: CheckFailure[];
+}
+
+/** Options of {@link open}. */
+export interface OpenOptions {
+  /** Reader limits; defaults to {@link DEFAULT_LIMITS}. */
+  limits?: Partial<Limits>;
+}
+
+/** An opened archive. */
+export class Archive {
+  readonly header: ArchiveHeader;
+  readonly index: ArchiveIndex;
+  /** Size of the archive in bytes. */
+  readonly size: number;
+
+  constructor(
+    private readonly source: ByteSource,
+    container: Container,
+  ) {
+    this.header = container.header;
+    this.index = container.index;
+    this.size = container.size;
+  }
+
+  /** Names of the fields, in archive order. */
+  get names(): string[] {
+    return this.header.fields.map((f) => f.name);
+  }
+
+  /** Header and index entries of a field (the first when `name` is omitted). */
+  field(name?: string): { header: FieldHeader; index: FieldIndex; position: number } {
+    const position = name === undefined ? 0 : this.header.fields.findIndex((f) => f.name === name);
+    if (position < 0 || position >= this.header.fields.length) {
+      throw new InputError(InputCode.Missing, `no field '${name}' in ${this.source.label} (fields: ${this.names.join(', ') || 'none'})`);
+    }
+    return { header: this.header.fields[position], index: this.index.fields[position], position };
+  }
+
+  /** Fetch, check and decode one tile. */
+  async tile(name: string | undefined, t: number, verifyValues = false): Promise<FloatArray> {
+    const { header: h, index: ix } = this.field(name);
+    const where = `${this.source.label} field '${h.name}' tile ${t}`;
+    const payload = await this.source.read(ix.offset[t], ix.length[t]);
+    if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${ix.offset[t]})`);
+    const [m, n] = tileDims(h, t);
+    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where });
+    if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== ix.value_crc[t]) {
+      throw new FormatError(FormatCode.Checksum, `${where}: decoded values differ from those verified at encode time (value CRC-32 mismatch)`);
+    }
+    return out;
+  }
+
+  /** Decode a whole field. */
+  async read(name?: string): Promise<FieldValues> {
+    const { header: h, index: ix } = this.field(name);
+    const [rows, cols] = h.shape;
+    const values = h.dtype === 'f32' ? new Float32Array(rows * cols) : new Float64Array(rows * cols);
+    for (let t = 0; t < ix.offset.length; t++) {
+      const tile = await this.tile(h.name, t);
+      place(values, cols, h, t, tile);
+    }
+    return { name: h.name, dtype: h.dtype, shape: [rows, cols], values };
+  }
+
+  /**
+   * Check every tile: payload CRC, decoding, decoded-value CRC, and the
+   * recorded error against the bound. With `against` (original values per
+   * field name, or one array for a one-field archive), also measure the
+   * actual error and compare special cells bit for bit.
+   */
+  async check(against?: FloatArray | Record<string, FloatArray>): Promise<CheckReport> {
+    const report: CheckReport = { ok: true, fields: [], failures: [] };
+    for (const h of this.header.fields) {
+      const { index: ix } = this.field(h.name);
+      const given = against === undefined ? undefined : ArrayBuffer.isView(against) ? against : against[h.name];
+      const want = h.dtype === 'f32' ? Float32Array : Float64Array;
+      const orig = given === undefined || given instanceof want ? given : want.from(given);
+      const fail = (tile: number, what: string) => report.failures.push({ field: h.name, tile, what });
+      const tol = h.bound.tolerance;
+      const pointwise = isPointwise(h.bound.mode);
+      const [rows, cols] = h.shape;
+      if (orig !== undefined && orig.length !== rows * cols) {
+        throw new InputError(InputCode.Shape, `original for field '${h.name}' has ${orig.length} values, the archive ${rows}x${cols}`);
+      }
+      let maxErr = 0;
+      let sse = 0;
+      let valid = 0;
+      let specials = 0;
+      const fw = fillWords(h.fill, h.dtype);
+      for (let t = 0; t < ix.offset.length; t++) {
+        let tile: FloatArray;
+        try {
+          tile = await this.tile(h.name, t, true);
+        } catch (e) {
+          if (!(e instanceof FormatError)) throw e;
+          fail(t, e.message);
+          continue;
+        }
+        if (pointwise && !(ix.max_err[t] <= tol)) fail(t, `recorded max error ${ix.max_err[t]} exceeds the bound ${tol}`);
+        if (orig) {
+          const [m, n] = tileDims(h, t);
+          const part = extract(orig, cols, h, t);
+          const cls = classify(part, fw);
+          const got = classify(tile, fw);
+          const ow = new Uint32Array(part.buffer);
+          const dw = new Uint32Array(tile.buffer);
+          const wpv = h.dtype === 'f32' ? 1 : 2;
+          let tileMax = 0;
+          for (let c = 0; c < m * n; c++) {
+            if (cls.codes[c] !== Cell.Valid) {
+              let same = got.codes[c] === cls.codes[c];
+              for (let k = 0; k < wpv; k++) same = same && ow[c * wpv + k] === dw[c * wpv + k];
+              if (!same) specials++;
+              continue;
+            }
+            const d = Math.abs(part[c] - tile[c]);
+            if (!(d <= tileMax)) tileMax = d;
+            sse += d * d;
+            valid++;
+          }
+          if (!(tileMax <= maxErr)) maxErr = tileMax;
+          if (pointwise && !(tileMax <= tol)) fail(t, `measured max error ${tileMax} exceeds the bound ${tol}`);
+        }
+      }
+      if (!pointwise && !(ix.summary.rmse <= tol)) fail(-1, `recorded RMSE ${ix.summary.rmse} exceeds the bound ${tol}`);
+      const entry: CheckReport['fields'][number] = {
+        name: h.name,
+        tiles: ix.offset.length,
+        mode: h.bound.mode,
+        tolerance: tol,
+        recorded: { maxErr: ix.summary.max_err, rmse: ix.summary.rmse },
+      };
+      if (orig) {
+        const rmse = valid > 0 ? Math.sqrt(sse / valid) : 0;
+        entry.measured = { maxErr, rmse, specialMismatches: specials };
+        if (specials > 0) fail(-1, `${specials} missing or special cells differ from the original`);
+        if (!pointwise && !(rmse <= tol)) fail(-1, `measured RMSE ${rmse} exceeds the bound ${tol}`);
+      }
+      report.fields.push(entry);
+    }
+    report.ok = report.failures.length === 0;
+    return report;
+  }
+
+  /** Release the source. */
+  async close(): Promise<void> {
+    await this.source.close?.();
+  }
+}
+
+/** Rows and columns of tile t of a field. */
+export function tileDims(h: FieldHeader, t: number): [number, number] {
+  const gc = Math.ceil(h.shape[1] / h.tile[1]);
+  const ti = Math.floor(t / gc);
+  const tj = t % gc;
+  return [Math.min(h.tile[0], h.shape[0] - ti * h.tile[0]), Math.min(h.tile[1], h.shape[1] - tj * h.tile[1])];
+}
+
+function place(values: FloatArray, cols: number, h: FieldHeader, t: number, tile: FloatArray): void {
+  const gc = Math.ceil(h.shape[1] / h.tile[1]);
+  const i0 = Math.floor(t / gc) * h.tile[0];
+  const j0 = (t % gc) * h.tile[1];
+  const [m, n] = tileDims(h, t);
+  for (let i = 0; i < m; i++) values.set(tile.subarray(i * n, i * n + n), (i0 + i) * cols + j0);
+}
+
+function extract(values: FloatArray, cols: number, h: FieldHeader, t: number): FloatArray {
+  const gc = Math.ceil(h.shape[1] / h.tile[1]);
+  const i0 = Math.floor(t / gc) * h.tile[0];
+  const j0 = (t % gc) * h.tile[1];
+  const [m, n] = tileDims(h, t);
+  const out = h.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+  for (let i = 0; i < m; i++) out.set(values.subarray((i0 + i) * cols + j0, (i0 + i) * cols + j0 + n), i * n);
+  return out;
+}
+
+/** Open an archive from bytes in memory or any {@link ByteSource}. */
+export async function open(source: Uint8Array | ByteSource, options: OpenOptions = {}): Promise<Archive> {
+  const src = source instanceof Uint8Array ? new MemorySource(source) : source;
+  const limits = { ...DEFAULT_LIMITS, ...options.limits };
+  const container = await readContainer(src, limits);
+  return new Archive(src, container);
+}

@@ -1,0 +1,46 @@
+/**
+ * Quantization steps are stored as a signed 16-bit code c and mean
+ * (8 + (c & 7)) * 2^((c >> 3) - 3): a 4-bit mantissa and a power of two, so a
+ * step is exact in float64 and an integer times a step is exact too.
+ */
+import { FormatCode, FormatError } from '../errors.js';
+
+/** Smallest and largest allowed exponent field (c >> 3). */
+const MIN_EXP = -1000;
+const MAX_EXP = 1000;
+
+/** 2^e, exactly, for integer e in [-1074, 1023]. */
+export function pow2(e: number): number {
+  // Built from the bit pattern so no Math.pow rounding can differ between engines.
+  const view = new DataView(new ArrayBuffer(8));
+  if (e >= -1022) {
+    view.setUint32(0, (e + 1023) << 20, false);
+    view.setUint32(4, 0, false);
+    return view.getFloat64(0, false);
+  }
+  // Subnormal range: 2^e = 2^(e + 600) * 2^-600, both exact.
+  return pow2(e + 600) * pow2(-600);
+}
+
+/** The step a code stands for; refuses codes outside the allowed range. */
+export function stepValue(code: number, where = 'step'): number {
+  const exp = code >> 3;
+  if (exp < MIN_EXP || exp > MAX_EXP) {
+    throw new FormatError(FormatCode.Malformed, `${where}: step code ${code} is out of range`);
+  }
+  return (8 + (code & 7)) * pow2(exp - 3);
+}
+
+/** The code of the largest representable step not above `target` (> 0). */
+export function stepCode(target: number): number {
+  if (!(target > 0)) throw new RangeError('step target must be positive');
+  let exp = Math.floor(Math.log2(target));
+  exp = Math.max(MIN_EXP, Math.min(MAX_EXP, exp));
+  // target / 2^exp is in [1, 2): mantissa index f = floor(8 * (ratio - 1)).
+  let f = Math.floor(8 * (target / pow2(exp) - 1));
+  f = Math.max(0, Math.min(7, f));
+  let code = exp * 8 + f;
+  // Guard against log2 rounding: step down until the step is not above target.
+  while (stepValue(code) > target && code > MIN_EXP * 8) code--;
+  return code;
+}

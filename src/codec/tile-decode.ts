@@ -1,0 +1,168 @@
+/**
+ * Decode one tile payload into values of the field's dtype. This is the only
+ * decoder; the encoder runs it on every payload it writes.
+ */
+import { FormatCode, FormatError } from '../errors.js';
+import { ByteReader } from '../format/bytes.js';
+import type { Dtype, FloatArray } from '../types.js';
+import { applyClasses, Cell } from './mask.js';
+import { Flag, KNOWN_FLAGS, Method } from './payload.js';
+import { addResidual, lowRank, roundTo, unpredict } from './reconstruct.js';
+import { MAX_INT, readSection, unpackInts } from './section.js';
+import { stepValue } from './steps.js';
+
+/** What a decoder needs to know about a tile besides its payload. */
+export interface TileContext {
+  /** Rows and columns of this tile (edge tiles are smaller). */
+  m: number;
+  n: number;
+  dtype: Dtype;
+  /** The field's fill value as words of its dtype, or null. */
+  fill: Uint32Array | null;
+  /** For messages: e.g. "field 'sst' tile 12". */
+  where: string;
+}
+
+function malformed(where: string, what: string): FormatError {
+  return new FormatError(FormatCode.Malformed, `${where}: ${what}`);
+}
+
+/** Decode a payload; throws {@link FormatError} on anything malformed. */
+export function decodeTile(payload: Uint8Array, ctx: TileContext): FloatArray {
+  const r = new ByteReader(payload, ctx.where);
+  const method = r.u8('method');
+  let out: FloatArray;
+  if (method === Method.Exact) out = decodeExact(r, ctx);
+  else if (method === Method.LowRank) out = decodeLowRank(r, ctx);
+  else throw new FormatError(FormatCode.Unsupported, `${ctx.where}: unknown payload method ${method} (this reader knows 0 and 1)`);
+  if (r.remaining !== 0) throw malformed(ctx.where, `${r.remaining} unexpected bytes after the payload`);
+  return out;
+}
+
+function decodeExact(r: ByteReader, ctx: TileContext): FloatArray {
+  const flags = r.u8('flags');
+  if (flags !== 0) throw malformed(ctx.where, `exact payload has unknown flags 0x${flags.toString(16)}`);
+  const width = ctx.dtype === 'f32' ? 4 : 8;
+  const cells = ctx.m * ctx.n;
+  const planes = readSection(r, 'exact values', cells * width);
+  const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
+  const bytes = new Uint8Array(out.buffer);
+  // Byte planes back to interleaved little-endian values.
+  for (let b = 0; b < width; b++) {
+    const plane = b * cells;
+    for (let c = 0; c < cells; c++) bytes[c * width + b] = planes[plane + c];
+  }
+  return out;
+}
+
+function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
+  const { m, n, where } = ctx;
+  const cells = m * n;
+  const width = ctx.dtype === 'f32' ? 4 : 8;
+  const flags = r.u8('flags');
+  if (flags & ~KNOWN_FLAGS) throw malformed(where, `unknown flags 0x${flags.toString(16)}`);
+  const rank = r.u16('rank');
+  if (rank > Math.min(m, n)) throw malformed(where, `rank ${rank} exceeds the tile's ${m}x${n}`);
+  const center = r.f64('center');
+  if (!Number.isFinite(center)) throw malformed(where, 'centre is not finite');
+
+  let codes: Uint8Array = new Uint8Array(cells);
+  let rawNaN: Uint8Array = new Uint8Array(0);
+  if (flags & Flag.Mask) {
+    const mask = readSection(r, 'mask', cells * (1 + width), false);
+    if (mask.length < cells) throw malformed(where, 'mask is shorter than the tile');
+    codes = mask.slice(0, cells);
+    let raws = 0;
+    for (let c = 0; c < cells; c++) {
+      if (codes[c] > Cell.RawNaN) throw malformed(where, `mask cell ${c} has unknown class ${codes[c]}`);
+      if (codes[c] === Cell.RawNaN) raws++;
+    }
+    if (mask.length !== cells + raws * width) throw malformed(where, 'mask raw NaN bytes do not match its codes');
+    rawNaN = mask.subarray(cells);
+  }
+
+  const l = new Float64Array(m * rank);
+  const w = new Float64Array(rank * n);
+  if (rank > 0) readFactors(r, ctx, rank, l, w);
+  else if (r.u8('group count') !== 0) throw malformed(where, 'rank 0 with factor groups');
+
+  const acc = new Float64Array(cells);
+  lowRank(l, w, m, n, rank, center, acc);
+
+  if (flags & Flag.Residual) {
+    const sec = readSection(r, 'residual', 8 + 1 + 4 * cells, false);
+    const sr = new ByteReader(sec, `${where} residual`);
+    const step = sr.f64('step');
+    if (!(step > 0 && Number.isFinite(step))) throw malformed(where, 'residual step is not a positive finite number');
+    const q = new Int32Array(cells);
+    unpackInts(sr, q, 'residual');
+    if (sr.remaining !== 0) throw malformed(where, 'residual section has trailing bytes');
+    if (flags & Flag.Lorenzo && !unpredict(q, m, n, MAX_INT)) throw malformed(where, 'residual exceeds 2^30 after prediction');
+    addResidual(acc, q, step);
+  } else if (flags & Flag.Lorenzo) throw malformed(where, 'prediction flag without a residual');
+
+  const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
+  roundTo(acc, out);
+
+  if (flags & Flag.Exceptions) {
+    const sec = readSection(r, 'exceptions', 4 + cells * (4 + width), false);
+    const er = new ByteReader(sec, `${where} exceptions`);
+    const count = er.u32('exception count');
+    if (count > cells) throw malformed(where, `${count} exceptions in a tile of ${cells} cells`);
+    const bytes = new Uint8Array(out.buffer);
+    const cellsAt = new Uint32Array(count);
+    let prev = -1;
+    for (let e = 0; e < count; e++) {
+      const c = er.u32('exception cell');
+      if (c <= prev || c >= cells) throw malformed(where, `exception cell ${c} is out of order or outside the tile`);
+      if (codes[c] !== Cell.Valid) throw malformed(where, `exception at missing cell ${c}`);
+      cellsAt[e] = c;
+      prev = c;
+    }
+    const vals = er.bytesView(count * width, 'exception values');
+    for (let e = 0; e < count; e++) bytes.set(vals.subarray(e * width, e * width + width), cellsAt[e] * width);
+    if (er.remaining !== 0) throw malformed(where, 'exception section has trailing bytes');
+  }
+
+  applyClasses(out, codes, rawNaN, ctx.fill);
+  return out;
+}
+
+/** Read the factor groups into l (m x r) and w (r x n). */
+function readFactors(r: ByteReader, ctx: TileContext, rank: number, l: Float64Array, w: Float64Array): void {
+  const { m, n, where } = ctx;
+  const groups = r.u8('group count');
+  if (groups === 0) throw malformed(where, `rank ${rank} but no factor groups`);
+  const sizes: number[] = [];
+  let total = 0;
+  for (let g = 0; g < groups; g++) {
+    const s = r.u16('group size');
+    if (s === 0) throw malformed(where, `factor group ${g} is empty`);
+    sizes.push(s);
+    total += s;
+  }
+  if (total !== rank) throw malformed(where, `factor groups hold ${total} ranks, the payload declares ${rank}`);
+  const qu = new Int32Array(m);
+  const qw = new Int32Array(n);
+  let k0 = 0;
+  for (let g = 0; g < groups; g++) {
+    const size = sizes[g];
+    const sec = readSection(r, `factor group ${g}`, 4 * size + size * (2 + 4 * m + 4 * n), false);
+    const gr = new ByteReader(sec, `${where} factor group ${g}`);
+    const du: number[] = [];
+    const dw: number[] = [];
+    for (let k = 0; k < size; k++) {
+      du.push(stepValue(gr.i16('left step'), gr.where));
+      dw.push(stepValue(gr.i16('right step'), gr.where));
+    }
+    for (let k = 0; k < size; k++) {
+      const rk = k0 + k;
+      unpackInts(gr, qu, `left factor ${rk}`);
+      for (let i = 0; i < m; i++) l[i * rank + rk] = qu[i] * du[k];
+      unpackInts(gr, qw, `right factor ${rk}`);
+      for (let j = 0; j < n; j++) w[rk * n + j] = qw[j] * dw[k];
+    }
+    if (gr.remaining !== 0) throw malformed(where, `factor group ${g} has trailing bytes`);
+    k0 += size;
+  }
+}

@@ -1,0 +1,324 @@
+/**
+ * Encode one tile: prepare (classify, fill, centre, SVD), then build
+ * candidate payloads and keep the smallest that the decoder reproduces
+ * within the bound.
+ */
+import { ByteWriter } from '../format/bytes.js';
+import { solveSpd, svd, type Svd } from '../linalg/svd.js';
+import type { Dtype, FloatArray } from '../types.js';
+import { fillMissing } from './fill.js';
+import { Cell, classify, type Classes } from './mask.js';
+import { Flag, Method } from './payload.js';
+import { addResidual, lowRank, predict, roundTo } from './reconstruct.js';
+import { MAX_INT, packInts, writeSection } from './section.js';
+import { stepCode, stepValue } from './steps.js';
+
+/** A tile made ready for encoding. */
+export interface PreparedTile {
+  m: number;
+  n: number;
+  dtype: Dtype;
+  /** The original values in the field's dtype. */
+  orig: FloatArray;
+  /** Values as binary64, missing cells filled smoothly, then centred. */
+  centred: Float64Array;
+  center: number;
+  classes: Classes;
+  valid: number;
+  /** Stored mask section bytes (empty when the tile has no missing cell). */
+  maskSection: Uint8Array;
+  /** False when centring overflowed (values near the float64 maximum). */
+  finite: boolean;
+  svd: Svd | null;
+}
+
+/** Classify, fill and centre a tile; the SVD is computed by {@link ensureSvd}. */
+export function prepareTile(orig: FloatArray, m: number, n: number, dtype: Dtype, fill: Uint32Array | null): PreparedTile {
+  const cells = m * n;
+  const classes = classify(orig, fill);
+  const valid = cells - classes.special;
+  const x = new Float64Array(cells);
+  let sum = 0;
+  let first = NaN;
+  let constant = true;
+  for (let c = 0; c < cells; c++) {
+    if (classes.codes[c] !== Cell.Valid) continue;
+    const v = orig[c];
+    x[c] = v;
+    sum += v;
+    if (first !== first) first = v;
+    else if (v !== first) constant = false;
+  }
+  // A constant tile keeps its value exactly as centre; otherwise the mean.
+  let center = valid === 0 ? 0 : constant ? first : sum / valid;
+  if (!Number.isFinite(center)) center = 0;
+  fillMissing(x, classes.codes, m, n, center);
+  let finite = true;
+  for (let c = 0; c < cells; c++) {
+    x[c] -= center;
+    if (!Number.isFinite(x[c])) finite = false;
+  }
+  let maskSection: Uint8Array = new Uint8Array(0);
+  if (classes.special > 0) {
+    const raw = new Uint8Array(cells + classes.rawNaN.length);
+    raw.set(classes.codes);
+    raw.set(classes.rawNaN, cells);
+    const w = new ByteWriter(raw.length + 16);
+    writeSection(w, raw);
+    maskSection = w.finish();
+  }
+  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null };
+}
+
+/** The tile's SVD (computed once). */
+export function ensureSvd(t: PreparedTile): Svd {
+  if (!t.svd) t.svd = svd(t.centred, t.m, t.n);
+  return t.svd;
+}
+
+/** The exact payload: byte-shuffled values, DEFLATE. */
+export function exactPayload(t: PreparedTile): Uint8Array {
+  const width = t.dtype === 'f32' ? 4 : 8;
+  const cells = t.m * t.n;
+  const src = new Uint8Array(t.orig.buffer, t.orig.byteOffset, t.orig.byteLength);
+  const planes = new Uint8Array(cells * width);
+  for (let b = 0; b < width; b++) {
+    for (let c = 0; c < cells; c++) planes[b * cells + c] = src[c * width + b];
+  }
+  const w = new ByteWriter(planes.length / 2 + 64);
+  w.u8(Method.Exact);
+  w.u8(0);
+  writeSection(w, planes);
+  return w.finish();
+}
+
+/** Quantized factors of one candidate rank. */
+export interface Factors {
+  rank: number;
+  codeU: Int16Array;
+  codeW: Int16Array;
+  /** Column k of the left factor: qu[k*m + i]. */
+  qu: Int32Array;
+  /** Row k of the right factor: qw[k*n + j]. */
+  qw: Int32Array;
+  /** Dequantized factors in the layout {@link lowRank} takes. */
+  l: Float64Array;
+  w: Float64Array;
+}
+
+/**
+ * Quantize the first r left singular vectors with step du, refit the right
+ * factor by least squares against the tile (W = (Lq^T Lq)^-1 Lq^T A, the
+ * pseudo-inverse solution), then quantize it with step dw.
+ */
+export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dwTarget: number): Factors | null {
+  const { m, n } = t;
+  const s = ensureSvd(t);
+  const cu = stepCode(duTarget);
+  const cw = stepCode(dwTarget);
+  const du = stepValue(cu);
+  const dw = stepValue(cw);
+  const qu = new Int32Array(r * m);
+  const l = new Float64Array(m * r);
+  for (let k = 0; k < r; k++) {
+    for (let i = 0; i < m; i++) {
+      const q = Math.round(s.u[i * s.k + k] / du);
+      if (Math.abs(q) > MAX_INT) return null;
+      qu[k * m + i] = q;
+      l[i * r + k] = q * du;
+    }
+  }
+  // Normal equations of the refit: G = Lq^T Lq (r x r), B = Lq^T A (r x n).
+  const g = new Float64Array(r * r);
+  const b = new Float64Array(r * n);
+  const a = t.centred;
+  for (let i = 0; i < m; i++) {
+    for (let k = 0; k < r; k++) {
+      const lik = l[i * r + k];
+      if (lik === 0) continue;
+      for (let k2 = 0; k2 < r; k2++) g[k * r + k2] += lik * l[i * r + k2];
+      const row = i * n;
+      const bk = k * n;
+      for (let j = 0; j < n; j++) b[bk + j] += lik * a[row + j];
+    }
+  }
+  solveSpd(g, r, b, n);
+  const qw = new Int32Array(r * n);
+  const w = new Float64Array(r * n);
+  for (let c = 0; c < r * n; c++) {
+    const q = Math.round(b[c] / dw);
+    if (!(Math.abs(q) <= MAX_INT)) return null;
+    qw[c] = q;
+    w[c] = q * dw;
+  }
+  return { rank: r, codeU: new Int16Array(r).fill(cu), codeW: new Int16Array(r).fill(cw), qu, qw, l, w };
+}
+
+/** Residual and exceptions of a pointwise candidate. */
+interface Correction {
+  step: number;
+  q: Int32Array | null;
+  lorenzo: boolean;
+  exceptions: number[];
+}
+
+/** Write a LowRank payload. */
+export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correction | null): Uint8Array {
+  const { m, n } = t;
+  const rank = f ? f.rank : 0;
+  let flags = 0;
+  if (t.maskSection.length > 0) flags |= Flag.Mask;
+  const hasResidual = corr !== null && corr.q !== null;
+  if (hasResidual) flags |= Flag.Residual;
+  if (hasResidual && corr.lorenzo) flags |= Flag.Lorenzo;
+  if (corr !== null && corr.exceptions.length > 0) flags |= Flag.Exceptions;
+  const w = new ByteWriter(1024);
+  w.u8(Method.LowRank);
+  w.u8(flags);
+  w.u16(rank);
+  w.f64(t.center);
+  if (flags & Flag.Mask) w.bytes(t.maskSection);
+  if (f && rank > 0) {
+    w.u8(1);
+    w.u16(rank);
+    const g = new ByteWriter(4 * rank + rank * (m + n) + 64);
+    for (let k = 0; k < rank; k++) {
+      g.i16(f.codeU[k]);
+      g.i16(f.codeW[k]);
+    }
+    for (let k = 0; k < rank; k++) {
+      packInts(f.qu.subarray(k * m, k * m + m), g);
+      packInts(f.qw.subarray(k * n, k * n + n), g);
+    }
+    writeSection(w, g.view8());
+  } else w.u8(0);
+  if (hasResidual && corr.q) {
+    const sec = new ByteWriter(m * n + 16);
+    sec.f64(corr.step);
+    packInts(corr.q, sec);
+    writeSection(w, sec.view8());
+  }
+  if (corr !== null && corr.exceptions.length > 0) {
+    const width = t.dtype === 'f32' ? 4 : 8;
+    const src = new Uint8Array(t.orig.buffer, t.orig.byteOffset, t.orig.byteLength);
+    const sec = new ByteWriter(4 + corr.exceptions.length * (4 + width));
+    sec.u32(corr.exceptions.length);
+    for (const c of corr.exceptions) sec.u32(c);
+    for (const c of corr.exceptions) sec.bytes(src.subarray(c * width, c * width + width));
+    writeSection(w, sec.view8());
+  }
+  return w.finish();
+}
+
+/** Sum of log2(1 + |v|): a cheap stand-in for coded size, to pick a predictor. */
+function roughBits(v: Int32Array): number {
+  let s = 0;
+  for (let i = 0; i < v.length; i++) s += Math.log2(1 + Math.abs(v[i]));
+  return s;
+}
+
+/**
+ * The residual of a candidate against the pointwise bound e, computed with the
+ * decoder's own arithmetic, and the cells that still fail (stored exactly).
+ */
+export function correct(t: PreparedTile, f: Factors | null, e: number): Correction {
+  const { m, n } = t;
+  const cells = m * n;
+  const base = new Float64Array(cells);
+  if (f) lowRank(f.l, f.w, m, n, f.rank, t.center, base);
+  else base.fill(t.center);
+  const codes = t.classes.codes;
+  const step = 2 * e;
+  let q: Int32Array | null = null;
+  let lorenzo = false;
+  const acc = base.slice();
+  if (e > 0 && Number.isFinite(step)) {
+    q = new Int32Array(cells);
+    let any = false;
+    for (let c = 0; c < cells; c++) {
+      if (codes[c] !== Cell.Valid) continue;
+      const v = Math.round((t.orig[c] - base[c]) / step);
+      if (v !== 0 && Math.abs(v) <= MAX_INT) {
+        q[c] = v;
+        any = true;
+      }
+    }
+    if (!any) q = null;
+    else {
+      const d = predict(q, m, n, MAX_INT);
+      if (d && roughBits(d) < roughBits(q)) {
+        addResidual(acc, q, step);
+        q = d;
+        lorenzo = true;
+      } else addResidual(acc, q, step);
+    }
+  }
+  const out = t.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
+  roundTo(acc, out);
+  const exceptions: number[] = [];
+  for (let c = 0; c < cells; c++) {
+    if (codes[c] !== Cell.Valid) continue;
+    if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
+  }
+  return { step, q, lorenzo, exceptions };
+}
+
+/** Candidate ranks tried by the pointwise search. */
+const RANKS = [0, 1, 2, 3, 4, 5, 6, 8, 10, 12, 14, 16, 20, 24, 28, 32, 40, 48, 56, 64, 80, 96, 112, 128, 160, 192, 224, 256];
+
+/** Share of the bound given to factor quantization noise (tuned in bench/). */
+export const FACTOR_NOISE = 0.5;
+
+/**
+ * The smallest payload meeting the pointwise bound e (absolute), over ranks
+ * 0.. and the exact method.
+ */
+export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
+  let best = exactPayload(t);
+  if (t.valid === 0) {
+    const p = lowRankPayload(t, null, null);
+    return p.length < best.length ? p : best;
+  }
+  if (!t.finite) return best;
+  const p0 = lowRankPayload(t, null, correct(t, null, e));
+  if (p0.length < best.length) best = p0;
+  if (!(e > 0)) return best;
+  const s = ensureSvd(t);
+  const { m, n } = t;
+  const tol = s.s[0] * 1e-13;
+  let numRank = 0;
+  while (numRank < s.k && s.s[numRank] > tol) numRank++;
+  let worse = 0;
+  let prev = p0.length;
+  let energy = 0;
+  let done = 0;
+  for (const r of RANKS) {
+    if (r === 0) continue;
+    if (r > numRank) break;
+    for (; done < r; done++) energy += s.s[done] * s.s[done];
+    const dw = FACTOR_NOISE * e * Math.sqrt((12 * m) / r);
+    const du = FACTOR_NOISE * e * Math.sqrt((12 * n) / energy);
+    const f = quantizeFactors(t, r, du, dw);
+    if (!f) break;
+    const p = lowRankPayload(t, f, correct(t, f, e));
+    if (p.length < best.length) best = p;
+    worse = p.length >= prev ? worse + 1 : 0;
+    prev = p.length;
+    if (worse >= 2) break;
+  }
+  return best;
+}
+
+/** A rank-r payload with no residual (L2 modes), or the exact one if smaller. */
+export function encodeL2(t: PreparedTile, r: number, du: number, dw: number): Uint8Array {
+  const exact = exactPayload(t);
+  if (!t.finite) return exact;
+  let f: Factors | null = null;
+  if (r > 0 && t.valid > 0) {
+    const s = ensureSvd(t);
+    f = quantizeFactors(t, Math.min(r, s.k), du, dw);
+    if (!f) return exact;
+  }
+  const p = lowRankPayload(t, f, null);
+  return p.length < exact.length ? p : exact;
+}

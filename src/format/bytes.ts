@@ -1,0 +1,149 @@
+/**
+ * Little-endian byte writing and bounds-checked reading. Every read past the
+ * end raises a {@link FormatError} naming `where`, never a RangeError.
+ */
+import { FormatCode, FormatError } from '../errors.js';
+
+/** Appends little-endian values to a buffer grown by doubling. */
+export class ByteWriter {
+  private buf: Uint8Array;
+  private view: DataView;
+  /** Bytes written so far. */
+  length = 0;
+
+  constructor(initial = 256) {
+    this.buf = new Uint8Array(Math.max(16, initial));
+    this.view = new DataView(this.buf.buffer);
+  }
+
+  private reserve(extra: number): void {
+    const need = this.length + extra;
+    if (need <= this.buf.length) return;
+    let size = this.buf.length * 2;
+    while (size < need) size *= 2;
+    const next = new Uint8Array(size);
+    next.set(this.buf.subarray(0, this.length));
+    this.buf = next;
+    this.view = new DataView(next.buffer);
+  }
+
+  u8(v: number): void {
+    this.reserve(1);
+    this.buf[this.length++] = v;
+  }
+  u16(v: number): void {
+    this.reserve(2);
+    this.view.setUint16(this.length, v, true);
+    this.length += 2;
+  }
+  i16(v: number): void {
+    this.reserve(2);
+    this.view.setInt16(this.length, v, true);
+    this.length += 2;
+  }
+  u32(v: number): void {
+    this.reserve(4);
+    this.view.setUint32(this.length, v, true);
+    this.length += 4;
+  }
+  /** An unsigned integer below 2^53, written as 8 bytes. */
+  u64(v: number): void {
+    this.reserve(8);
+    this.view.setUint32(this.length, v % 0x100000000, true);
+    this.view.setUint32(this.length + 4, Math.floor(v / 0x100000000), true);
+    this.length += 8;
+  }
+  f64(v: number): void {
+    this.reserve(8);
+    this.view.setFloat64(this.length, v, true);
+    this.length += 8;
+  }
+  bytes(b: Uint8Array): void {
+    this.reserve(b.length);
+    this.buf.set(b, this.length);
+    this.length += b.length;
+  }
+  /** The bytes written, as a view (valid until the next write). */
+  view8(): Uint8Array {
+    return this.buf.subarray(0, this.length);
+  }
+  /** A copy of the bytes written. */
+  finish(): Uint8Array {
+    return this.buf.slice(0, this.length);
+  }
+}
+
+/** Reads little-endian values from a byte range, checking every bound. */
+export class ByteReader {
+  readonly bytes: Uint8Array;
+  private readonly view: DataView;
+  pos = 0;
+  /** Names the structure in error messages, e.g. "field 't2m' tile 17". */
+  readonly where: string;
+
+  constructor(bytes: Uint8Array, where: string) {
+    this.bytes = bytes;
+    this.view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+    this.where = where;
+  }
+
+  /** Bytes not yet read. */
+  get remaining(): number {
+    return this.bytes.length - this.pos;
+  }
+
+  private need(n: number, what: string): void {
+    if (n > this.bytes.length - this.pos) {
+      throw new FormatError(
+        FormatCode.Truncated,
+        `${this.where}: ${what} needs ${n} bytes at offset ${this.pos} but only ${this.bytes.length - this.pos} remain`,
+      );
+    }
+  }
+
+  u8(what = 'a byte'): number {
+    this.need(1, what);
+    return this.bytes[this.pos++];
+  }
+  u16(what = 'a 16-bit value'): number {
+    this.need(2, what);
+    const v = this.view.getUint16(this.pos, true);
+    this.pos += 2;
+    return v;
+  }
+  i16(what = 'a 16-bit value'): number {
+    this.need(2, what);
+    const v = this.view.getInt16(this.pos, true);
+    this.pos += 2;
+    return v;
+  }
+  u32(what = 'a 32-bit value'): number {
+    this.need(4, what);
+    const v = this.view.getUint32(this.pos, true);
+    this.pos += 4;
+    return v;
+  }
+  /** An 8-byte unsigned integer; refused above 2^53 - 1. */
+  u64(what = 'a 64-bit value'): number {
+    this.need(8, what);
+    const lo = this.view.getUint32(this.pos, true);
+    const hi = this.view.getUint32(this.pos + 4, true);
+    if (hi >= 0x200000) {
+      throw new FormatError(FormatCode.Malformed, `${this.where}: ${what} at offset ${this.pos} exceeds 2^53`);
+    }
+    this.pos += 8;
+    return hi * 0x100000000 + lo;
+  }
+  f64(what = 'a float64'): number {
+    this.need(8, what);
+    const v = this.view.getFloat64(this.pos, true);
+    this.pos += 8;
+    return v;
+  }
+  bytesView(n: number, what = 'a byte run'): Uint8Array {
+    this.need(n, what);
+    const b = this.bytes.subarray(this.pos, this.pos + n);
+    this.pos += n;
+    return b;
+  }
+}

@@ -1,0 +1,13 @@
+/**
+ * rankfield: lossy archiving of 2-D float fields under a stated error bound,
+ * by tiled truncated SVD with a residual that makes pointwise bounds strict.
+ */
+export { pack, ArchiveBuilder, type PackOptions, MAX_TILE_SIDE } from './pack.js';
+export { open, Archive, type FieldValues, type CheckReport, type CheckFailure, type OpenOptions } from './archive.js';
+export { parseBound, formatBound, resolveBound, isPointwise } from './codec/bound.js';
+export { FormatError, InputError, FormatCode, InputCode } from './errors.js';
+export { MemorySource, type ByteSource } from './format/source.js';
+export { MemorySink, type Sink } from './format/container.js';
+export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Attrs } from './format/schema.js';
+export type { Bound, BoundMode, Dtype, FloatArray } from './types.js';
+export { VERSION_STRING } from './version.js';

@@ -1,0 +1,113 @@
+/** Writing archives: {@link pack} one field to bytes, or build a many-field archive with {@link ArchiveBuilder}. */
+import { checkBound, parseBound } from './codec/bound.js';
+import { encodeField, type FieldSpec } from './codec/field.js';
+import { InputCode, InputError } from './errors.js';
+import { ContainerWriter, MemorySink, VERSION, type Sink } from './format/container.js';
+import type { ArchiveHeader, Attrs, FieldHeader, FieldIndex } from './format/schema.js';
+import type { Bound, Dtype, FloatArray } from './types.js';
+import { VERSION_STRING } from './version.js';
+
+/** Options for one field. */
+export interface PackOptions {
+  /** The error bound, as `{ mode, value }` or text such as `'rel:1e-3'`. */
+  bound: Bound | string;
+  /** Tile size: [rows, cols], or one number for square tiles. Default 64x64. */
+  tile?: number | [number, number];
+  /** A fill value marking missing cells (restored bit for bit, excluded from the bound). */
+  fill?: number | null;
+  /** Field name; default 'field'. */
+  name?: string;
+  /** Element type; default from the array (Float32Array: f32, else f64). */
+  dtype?: Dtype;
+  /** Free-form attributes of the field. */
+  attrs?: Attrs;
+}
+
+/** Largest tile side accepted. */
+export const MAX_TILE_SIDE = 4096;
+
+function options(values: FloatArray | number[], shape: readonly number[], o: PackOptions): { spec: FieldSpec; data: FloatArray } {
+  if (!Array.isArray(shape) || shape.length !== 2 || !shape.every((d) => Number.isInteger(d) && d >= 1)) {
+    throw new InputError(InputCode.Shape, `shape must be [rows, cols] of positive integers, got ${JSON.stringify(shape)}`);
+  }
+  const [rows, cols] = shape;
+  if (values.length !== rows * cols) {
+    throw new InputError(InputCode.Shape, `shape ${rows}x${cols} needs ${rows * cols} values, got ${values.length}`);
+  }
+  const dtype: Dtype = o.dtype ?? (values instanceof Float32Array ? 'f32' : 'f64');
+  if (dtype !== 'f32' && dtype !== 'f64') throw new InputError(InputCode.Dtype, `dtype must be f32 or f64, got ${String(dtype)}`);
+  const want = dtype === 'f32' ? Float32Array : Float64Array;
+  const data = values instanceof want ? values : want.from(values);
+  const tile = o.tile ?? 64;
+  const [tr, tc] = typeof tile === 'number' ? [tile, tile] : tile;
+  for (const t of [tr, tc]) {
+    if (!Number.isInteger(t) || t < 1 || t > MAX_TILE_SIDE) {
+      throw new InputError(InputCode.Option, `tile sides must be integers in 1..${MAX_TILE_SIDE}, got ${JSON.stringify(tile)}`);
+    }
+  }
+  if (tr * tc > 1 << 22) throw new InputError(InputCode.Option, `tile ${tr}x${tc} holds more than ${1 << 22} cells`);
+  const bound = typeof o.bound === 'string' ? parseBound(o.bound) : checkBound(o.bound ?? ({} as Bound));
+  const fill = o.fill ?? null;
+  if (fill !== null && typeof fill !== 'number') throw new InputError(InputCode.Option, `fill must be a number, got ${String(fill)}`);
+  const name = o.name ?? 'field';
+  if (typeof name !== 'string' || name.length === 0 || name.length > 1024) throw new InputError(InputCode.Option, 'field name must be a non-empty string');
+  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill }, data };
+}
+
+/** Builds an archive field by field into a sink. */
+export class ArchiveBuilder {
+  private readonly writer: ContainerWriter;
+  private readonly fields: FieldHeader[] = [];
+  private readonly indexes: FieldIndex[] = [];
+
+  constructor(sink: Sink, private readonly attrs: Attrs = {}) {
+    this.writer = new ContainerWriter(sink);
+  }
+
+  /** Encode and append one field. */
+  add(values: FloatArray | number[], shape: readonly number[], o: PackOptions): FieldHeader {
+    const { spec, data } = options(values, shape, o);
+    if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
+    const ix: FieldIndex = { offset: [], length: [], crc: [], method: [], rank: [], valid: [], max_err: [], rmse: [], value_crc: [], summary: { valid: 0, max_err: 0, rmse: 0 } };
+    const result = encodeField(data, spec, (_t, tile) => {
+      const ref = this.writer.addPayload(tile.payload);
+      ix.offset.push(ref.offset);
+      ix.length.push(ref.length);
+      ix.crc.push(ref.crc);
+      ix.method.push(tile.stats.method);
+      ix.rank.push(tile.stats.rank);
+      ix.valid.push(tile.stats.valid);
+      ix.max_err.push(tile.stats.maxErr);
+      ix.rmse.push(tile.stats.rmse);
+      ix.value_crc.push(tile.stats.valueCrc);
+    });
+    ix.summary = { valid: result.valid, max_err: result.maxErr, rmse: result.rmse };
+    const header: FieldHeader = {
+      name: spec.name,
+      dtype: spec.dtype,
+      shape: [spec.rows, spec.cols],
+      tile: [spec.tileRows, spec.tileCols],
+      bound: { mode: spec.bound.mode, value: spec.bound.value, tolerance: result.tolerance, range: result.range },
+      fill: spec.fill,
+      attrs: o.attrs ?? {},
+    };
+    this.fields.push(header);
+    this.indexes.push(ix);
+    return header;
+  }
+
+  /** Write header, index and tail. */
+  finish(): void {
+    const header: ArchiveHeader = { format: 'rankfield', version: VERSION, writer: `rankfield ${VERSION_STRING}`, attrs: this.attrs, fields: this.fields };
+    this.writer.finish(header, { fields: this.indexes });
+  }
+}
+
+/** Compress one 2-D field (row-major) into archive bytes. */
+export function pack(values: FloatArray | number[], shape: readonly number[], o: PackOptions): Uint8Array {
+  const sink = new MemorySink();
+  const b = new ArchiveBuilder(sink);
+  b.add(values, shape, o);
+  b.finish();
+  return sink.bytes();
+}
