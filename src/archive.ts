@@ -4,6 +4,7 @@
  */
 import { Cell, classify, fillWords } from './codec/mask.js';
 import { isPointwise } from './codec/bound.js';
+import { ErrorTally } from './codec/tally.js';
 import { decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
 import { readContainer, type Container } from './format/container.js';
@@ -84,9 +85,16 @@ export class Archive {
   /** Fetch, check and decode one tile. */
   async tile(name: string | undefined, t: number, verifyValues = false): Promise<FloatArray> {
     const { header: h, index: ix } = this.field(name);
+    if (!Number.isInteger(t) || t < 0 || t >= ix.offset.length) {
+      throw new InputError(InputCode.Option, `field '${h.name}' has tiles 0..${ix.offset.length - 1}, not ${t}`);
+    }
     const where = `${this.source.label} field '${h.name}' tile ${t}`;
     const payload = await this.source.read(ix.offset[t], ix.length[t]);
     if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${ix.offset[t]})`);
+    const rank = payload[0] === 1 && payload.length >= 4 ? payload[2] | (payload[3] << 8) : 0;
+    if (payload[0] !== ix.method[t] || rank !== ix.rank[t]) {
+      throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${payload[0]} rank ${rank}, the index says method ${ix.method[t]} rank ${ix.rank[t]}`);
+    }
     const [m, n] = tileDims(h, t);
     const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where });
     if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== ix.value_crc[t]) {
@@ -99,7 +107,7 @@ export class Archive {
   async read(name?: string): Promise<FieldValues> {
     const { header: h, index: ix } = this.field(name);
     const [rows, cols] = h.shape;
-    const values = h.dtype === 'f32' ? new Float32Array(rows * cols) : new Float64Array(rows * cols);
+    const values = allocate(h.dtype, rows * cols, h.name);
     for (let t = 0; t < ix.offset.length; t++) {
       const tile = await this.tile(h.name, t);
       place(values, cols, h, t, tile);
@@ -127,9 +135,7 @@ export class Archive {
       if (orig !== undefined && orig.length !== rows * cols) {
         throw new InputError(InputCode.Shape, `original for field '${h.name}' has ${orig.length} values, the archive ${rows}x${cols}`);
       }
-      let maxErr = 0;
-      let sse = 0;
-      let valid = 0;
+      const total = new ErrorTally();
       let specials = 0;
       const fw = fillWords(h.fill, h.dtype);
       for (let t = 0; t < ix.offset.length; t++) {
@@ -150,7 +156,7 @@ export class Archive {
           const ow = new Uint32Array(part.buffer);
           const dw = new Uint32Array(tile.buffer);
           const wpv = h.dtype === 'f32' ? 1 : 2;
-          let tileMax = 0;
+          const tally = new ErrorTally();
           for (let c = 0; c < m * n; c++) {
             if (cls.codes[c] !== Cell.Valid) {
               let same = got.codes[c] === cls.codes[c];
@@ -158,13 +164,10 @@ export class Archive {
               if (!same) specials++;
               continue;
             }
-            const d = Math.abs(part[c] - tile[c]);
-            if (!(d <= tileMax)) tileMax = d;
-            sse += d * d;
-            valid++;
+            tally.add(Math.abs(part[c] - tile[c]));
           }
-          if (!(tileMax <= maxErr)) maxErr = tileMax;
-          if (pointwise && !(tileMax <= tol)) fail(t, `measured max error ${tileMax} exceeds the bound ${tol}`);
+          total.merge(tally);
+          if (pointwise && !(tally.max <= tol)) fail(t, `measured max error ${tally.max} exceeds the bound ${tol}`);
         }
       }
       if (!pointwise && !(ix.summary.rmse <= tol)) fail(-1, `recorded RMSE ${ix.summary.rmse} exceeds the bound ${tol}`);
@@ -176,8 +179,8 @@ export class Archive {
         recorded: { maxErr: ix.summary.max_err, rmse: ix.summary.rmse },
       };
       if (orig) {
-        const rmse = valid > 0 ? Math.sqrt(sse / valid) : 0;
-        entry.measured = { maxErr, rmse, specialMismatches: specials };
+        const rmse = total.rmse;
+        entry.measured = { maxErr: total.max, rmse, specialMismatches: specials };
         if (specials > 0) fail(-1, `${specials} missing or special cells differ from the original`);
         if (!pointwise && !(rmse <= tol)) fail(-1, `measured RMSE ${rmse} exceeds the bound ${tol}`);
       }
@@ -190,6 +193,15 @@ export class Archive {
   /** Release the source. */
   async close(): Promise<void> {
     await this.source.close?.();
+  }
+}
+
+/** Output values for a whole field, refusing sizes this runtime cannot hold. */
+function allocate(dtype: Dtype, cells: number, name: string): FloatArray {
+  try {
+    return dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
+  } catch {
+    throw new FormatError(FormatCode.Limit, `field '${name}' has ${cells} values, too many to decode at once here`);
   }
 }
 

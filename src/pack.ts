@@ -3,7 +3,7 @@ import { checkBound, parseBound } from './codec/bound.js';
 import { encodeField, type FieldSpec } from './codec/field.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, MemorySink, VERSION, type Sink } from './format/container.js';
-import type { ArchiveHeader, Attrs, FieldHeader, FieldIndex } from './format/schema.js';
+import { attrsProblem, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 import { VERSION_STRING } from './version.js';
 
@@ -26,6 +26,9 @@ export interface PackOptions {
 /** Largest tile side accepted. */
 export const MAX_TILE_SIDE = 4096;
 
+/** Largest tile area accepted (cells); readers refuse more by default. */
+export const MAX_TILE_CELLS = 1 << 20;
+
 function options(values: FloatArray | number[], shape: readonly number[], o: PackOptions): { spec: FieldSpec; data: FloatArray } {
   if (!Array.isArray(shape) || shape.length !== 2 || !shape.every((d) => Number.isInteger(d) && d >= 1)) {
     throw new InputError(InputCode.Shape, `shape must be [rows, cols] of positive integers, got ${JSON.stringify(shape)}`);
@@ -45,12 +48,14 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
       throw new InputError(InputCode.Option, `tile sides must be integers in 1..${MAX_TILE_SIDE}, got ${JSON.stringify(tile)}`);
     }
   }
-  if (tr * tc > 1 << 22) throw new InputError(InputCode.Option, `tile ${tr}x${tc} holds more than ${1 << 22} cells`);
+  if (tr * tc > 1 << 20) throw new InputError(InputCode.Option, `tile ${tr}x${tc} holds more than ${1 << 20} cells`);
   const bound = typeof o.bound === 'string' ? parseBound(o.bound) : checkBound(o.bound ?? ({} as Bound));
   const fill = o.fill ?? null;
   if (fill !== null && typeof fill !== 'number') throw new InputError(InputCode.Option, `fill must be a number, got ${String(fill)}`);
   const name = o.name ?? 'field';
   if (typeof name !== 'string' || name.length === 0 || name.length > 1024) throw new InputError(InputCode.Option, 'field name must be a non-empty string');
+  const problem = o.attrs === undefined ? null : attrsProblem(o.attrs);
+  if (problem) throw new InputError(InputCode.Option, `field '${name}': ${problem}`);
   return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill }, data };
 }
 
@@ -61,6 +66,8 @@ export class ArchiveBuilder {
   private readonly indexes: FieldIndex[] = [];
 
   constructor(sink: Sink, private readonly attrs: Attrs = {}) {
+    const problem = attrsProblem(attrs);
+    if (problem) throw new InputError(InputCode.Option, `archive ${problem}`);
     this.writer = new ContainerWriter(sink);
   }
 

@@ -7,6 +7,7 @@ import { crc32 } from '../format/crc32.js';
 import type { Bound, Dtype, FloatArray } from '../types.js';
 import { isPointwise, resolveBound } from './bound.js';
 import { Cell, fillWords } from './mask.js';
+import { ErrorTally } from './tally.js';
 import { decodeTile } from './tile-decode.js';
 import { encodeL2, encodePointwise, ensureSvd, exactPayload, prepareTile, type PreparedTile } from './tile-encode.js';
 
@@ -82,21 +83,16 @@ export function validRange(values: FloatArray, dtype: Dtype, fill: number | null
 }
 
 /** Decode a payload and measure it against the original tile. */
-export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array | null): { stats: TileStats; sse: number } {
+export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array | null): { stats: TileStats; tally: ErrorTally } {
   const out = decodeTile(payload, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check' });
   const codes = t.classes.codes;
-  let maxErr = 0;
-  let sse = 0;
+  const tally = new ErrorTally();
   for (let c = 0; c < codes.length; c++) {
-    if (codes[c] !== Cell.Valid) continue;
-    const d = Math.abs(t.orig[c] - out[c]);
-    if (!(d <= maxErr)) maxErr = d;
-    sse += d * d;
+    if (codes[c] === Cell.Valid) tally.add(Math.abs(t.orig[c] - out[c]));
   }
   const rank = payload[0] === 1 ? payload[2] | (payload[3] << 8) : 0;
   const valueCrc = crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength));
-  const rmse = t.valid > 0 ? Math.sqrt(sse / t.valid) : 0;
-  return { stats: { method: payload[0], rank, valid: t.valid, maxErr, rmse, valueCrc }, sse };
+  return { stats: { method: payload[0], rank, valid: t.valid, maxErr: tally.max, rmse: tally.rmse, valueCrc }, tally };
 }
 
 /** Encode every tile of a field, handing each to `emit` in row-major tile order. */
@@ -112,7 +108,7 @@ export function encodeField(values: FloatArray, spec: FieldSpec, emit: (index: n
     return prepareTile(tile, m, n, spec.dtype, fill);
   };
   const summary = { tolerance: tol, range, valid: 0, maxErr: 0, rmse: 0 };
-  let sse = 0;
+  const total = new ErrorTally();
   const finish = (index: number, t: PreparedTile, payload: Uint8Array, pointwise: boolean): void => {
     let res = measure(payload, t, fill);
     // The safety net: a pointwise tile that fails its own check is stored exactly.
@@ -121,8 +117,7 @@ export function encodeField(values: FloatArray, spec: FieldSpec, emit: (index: n
       res = measure(payload, t, fill);
     }
     summary.valid += t.valid;
-    summary.maxErr = Math.max(summary.maxErr, res.stats.maxErr);
-    sse += res.sse;
+    total.merge(res.tally);
     emit(index, { payload, stats: res.stats });
   };
   if (isPointwise(spec.bound.mode) || tol === 0) {
@@ -136,12 +131,16 @@ export function encodeField(values: FloatArray, spec: FieldSpec, emit: (index: n
     const plan = planL2(values, spec, prep, gr, gc, tol, fill);
     plan.tiles.forEach((payload, index) => finish(index, plan.prepared(index), payload, false));
   }
-  summary.rmse = summary.valid > 0 ? Math.sqrt(sse / summary.valid) : 0;
+  summary.maxErr = total.max;
+  summary.rmse = total.rmse;
   return summary;
 }
 
 /** Shares of the squared-error budget given to rank truncation, tried in turn. */
 const TRUNCATION_SHARES = [0.5, 0.8, 0.3];
+
+/** Fractions of sqrt(3) x RMSE limit tried as the pointwise limit of residual plans. */
+const RESIDUAL_FACTORS = [0.97, 0.85, 0.7, 0.5];
 
 /**
  * Choose ranks and steps for an L2 bound: the field's SSE budget N*E^2 is
@@ -178,14 +177,36 @@ function planL2(
     dims.push([t.m, t.n]);
     sv.push(t.valid > 0 && t.finite ? ensureSvd(t).s.slice() : new Float64Array(0));
   }
-  const budget = valid * tol * tol;
+  // Squared errors are counted in units of tol^2, so nothing overflows: the budget is the valid count.
+  const budget = valid;
+  const sv2 = sv.map((s) => s.map((v) => (v / tol) * (v / tol)));
   // All singular values, smallest first, as (tile, k) pairs.
   const order: [number, number, number][] = [];
-  sv.forEach((s, t) => s.forEach((v, k) => order.push([v * v, t, k])));
+  sv2.forEach((s, t) => s.forEach((v2, k) => order.push([v2, t, k])));
   order.sort((a, b) => a[0] - b[0] || b[2] - a[2] || a[1] - b[1]);
 
   let best: Uint8Array[] | null = null;
   let bestBytes = Infinity;
+  /** Encode every tile with `one`; keep the plan if it meets the budget with fewer bytes. */
+  const tryPlan = (one: (t: PreparedTile, index: number) => Uint8Array): boolean => {
+    const tiles: Uint8Array[] = [];
+    const tally = new ErrorTally();
+    let bytes = 0;
+    for (let index = 0; index < count; index++) {
+      const t = get(index);
+      const p = one(t, index);
+      tally.merge(measure(p, t, fill).tally);
+      bytes += p.length;
+      tiles.push(p);
+    }
+    if (!(tally.rmse <= tol)) return false;
+    if (bytes < bestBytes) {
+      best = tiles;
+      bestBytes = bytes;
+    }
+    return true;
+  };
+  // Plans by Eckart-Young: truncate field-wide, quantize factors, no residual.
   for (const share of TRUNCATION_SHARES) {
     for (let attempt = 0; attempt < 4; attempt++) {
       const tighten = Math.pow(0.5, attempt);
@@ -202,29 +223,21 @@ function planL2(
       ranks.forEach((r, t) => {
         sumRN += r * dims[t][1];
         let e = 0;
-        for (let k = 0; k < r; k++) e += sv[t][k] * sv[t][k];
+        for (let k = 0; k < r; k++) e += sv2[t][k];
         sumME += dims[t][0] * e;
       });
-      const dw = sumRN > 0 ? Math.sqrt((6 * q) / sumRN) : 1;
+      // Steps that spend half the quantization budget on each factor (uniform noise, step^2 / 12 per coefficient).
+      const dw = sumRN > 0 ? tol * Math.sqrt((6 * q) / sumRN) : tol;
       const du = sumME > 0 ? Math.sqrt((6 * q) / sumME) : 1;
-      const tiles: Uint8Array[] = [];
-      let sse = 0;
-      let bytes = 0;
-      for (let index = 0; index < count; index++) {
-        const t = get(index);
-        const p = q > 0 || ranks[index] === sv[index].length ? encodeL2(t, ranks[index], du, dw) : exactPayload(t);
-        sse += measure(p, t, fill).sse;
-        bytes += p.length;
-        tiles.push(p);
-      }
-      if (sse <= budget) {
-        if (bytes < bestBytes) {
-          best = tiles;
-          bestBytes = bytes;
-        }
-        break;
-      }
+      if (!(dw > 0 && du > 0 && Number.isFinite(dw) && Number.isFinite(du))) break;
+      const ok = tryPlan((t, index) => (q > 0 || ranks[index] === sv[index].length ? encodeL2(t, ranks[index], du, dw) : exactPayload(t)));
+      if (ok) break;
     }
+  }
+  // Plans with a residual: the pointwise coder at a limit E' whose uniform
+  // quantization error, (2E')^2 / 12 per value, fits the budget (common practice, no source).
+  for (const f of RESIDUAL_FACTORS) {
+    if (tryPlan((t) => encodePointwise(t, Math.sqrt(3) * tol * f))) break;
   }
   if (!best) {
     best = [];

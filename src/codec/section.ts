@@ -39,6 +39,7 @@ export function readSection(r: ByteReader, what: string, expected: number, exact
     );
   }
   const stored = r.bytesView(storedLength, `${what} data`);
+  if (storedLength === 0) throw new FormatError(FormatCode.Malformed, `${r.where}: ${what} has an empty DEFLATE stream`);
   // One spare byte: an inflate that fills it produced more than declared.
   const out = new Uint8Array(rawLength + 1);
   let got: Uint8Array;
@@ -50,7 +51,7 @@ export function readSection(r: ByteReader, what: string, expected: number, exact
   if (got.length !== rawLength) {
     throw new FormatError(
       FormatCode.Malformed,
-      `${r.where}: ${what} inflates to ${got.length > rawLength ? 'more than' : got.length} bytes, not the declared ${rawLength}`,
+      `${r.where}: ${what} inflates to ${got.length > rawLength ? `more than ${rawLength}` : got.length} bytes, not the declared ${rawLength}`,
     );
   }
   return got.subarray(0, rawLength);

@@ -60,7 +60,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const cells = m * n;
   const width = ctx.dtype === 'f32' ? 4 : 8;
   const flags = r.u8('flags');
-  if (flags & ~KNOWN_FLAGS) throw malformed(where, `unknown flags 0x${flags.toString(16)}`);
+  if (flags & ~KNOWN_FLAGS) throw new FormatError(FormatCode.Unsupported, `${where}: unknown payload flags 0x${flags.toString(16)} (this reader knows 0x${KNOWN_FLAGS.toString(16)})`);
   const rank = r.u16('rank');
   if (rank > Math.min(m, n)) throw malformed(where, `rank ${rank} exceeds the tile's ${m}x${n}`);
   const center = r.f64('center');
@@ -76,6 +76,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
     for (let c = 0; c < cells; c++) {
       if (codes[c] > Cell.RawNaN) throw malformed(where, `mask cell ${c} has unknown class ${codes[c]}`);
       if (codes[c] === Cell.RawNaN) raws++;
+      if (codes[c] === Cell.Fill && ctx.fill === null) throw malformed(where, `mask cell ${c} is a fill cell but the field has no fill value`);
     }
     if (mask.length !== cells + raws * width) throw malformed(where, 'mask raw NaN bytes do not match its codes');
     rawNaN = mask.subarray(cells);
@@ -124,6 +125,10 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
     if (er.remaining !== 0) throw malformed(where, 'exception section has trailing bytes');
   }
 
+  // A valid cell must decode to a finite value; anything else is a damaged or hostile payload.
+  for (let c = 0; c < cells; c++) {
+    if (codes[c] === Cell.Valid && !Number.isFinite(out[c])) throw malformed(where, `valid cell ${c} decodes to a non-finite value`);
+  }
   applyClasses(out, codes, rawNaN, ctx.fill);
   return out;
 }

@@ -114,6 +114,7 @@ export interface Factors {
 export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dwTarget: number): Factors | null {
   const { m, n } = t;
   const s = ensureSvd(t);
+  if (!(duTarget > 0 && dwTarget > 0 && Number.isFinite(duTarget) && Number.isFinite(dwTarget))) return null;
   const cu = stepCode(duTarget);
   const cw = stepCode(dwTarget);
   const du = stepValue(cu);
@@ -267,7 +268,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number): Correcti
 const RANKS = [0, 1, 2, 3, 4, 5, 6, 8, 10, 12, 14, 16, 20, 24, 28, 32, 40, 48, 56, 64, 80, 96, 112, 128, 160, 192, 224, 256];
 
 /** Share of the bound given to factor quantization noise (tuned in bench/). */
-export const FACTOR_NOISE = 0.5;
+export const FACTOR_NOISE = 0.25;
 
 /**
  * The smallest payload meeting the pointwise bound e (absolute), over ranks
@@ -290,14 +291,16 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   while (numRank < s.k && s.s[numRank] > tol) numRank++;
   let worse = 0;
   let prev = p0.length;
+  // Energy of the kept ranks relative to s[0]^2, so huge values cannot overflow it.
   let energy = 0;
   let done = 0;
+  const s0 = s.s[0];
   for (const r of RANKS) {
     if (r === 0) continue;
     if (r > numRank) break;
-    for (; done < r; done++) energy += s.s[done] * s.s[done];
+    for (; done < r; done++) energy += (s.s[done] / s0) * (s.s[done] / s0);
     const dw = FACTOR_NOISE * e * Math.sqrt((12 * m) / r);
-    const du = FACTOR_NOISE * e * Math.sqrt((12 * n) / energy);
+    const du = (FACTOR_NOISE * e * Math.sqrt(12 * n)) / (s0 * Math.sqrt(energy));
     const f = quantizeFactors(t, r, du, dw);
     if (!f) break;
     const p = lowRankPayload(t, f, correct(t, f, e));

@@ -81,7 +81,7 @@ export class ContainerWriter {
   finish(header: ArchiveHeader, index: ArchiveIndex): void {
     if (this.finished) throw new Error('archive already finished');
     this.finished = true;
-    const h = encode(header);
+    const h = encode(headerForDisk(header));
     const headerOffset = this.pos;
     this.put(h);
     const ix = encode(index);
@@ -100,6 +100,19 @@ export class ContainerWriter {
     t.bytes(TAIL_MAGIC);
     this.put(t.finish());
   }
+}
+
+/** The header as stored: fill values become 8-byte binary64 (so -0 and every bit survive MessagePack). */
+function headerForDisk(header: ArchiveHeader): unknown {
+  return {
+    ...header,
+    fields: header.fields.map((f) => {
+      if (f.fill === null) return f;
+      const b = new Uint8Array(8);
+      new DataView(b.buffer).setFloat64(0, f.fill, true);
+      return { ...f, fill: b };
+    }),
+  };
 }
 
 /** What {@link readContainer} returns. */
@@ -164,6 +177,9 @@ export async function readContainer(src: ByteSource, limits: Limits): Promise<Co
       throw new FormatError(FormatCode.Malformed, `${label}: ${what} at ${off}+${len} lies outside bytes ${PROLOGUE_SIZE}..${end}`);
     }
     if (len > max) throw new FormatError(FormatCode.Limit, `${label}: ${what} of ${len} bytes exceeds the limit of ${max}`);
+  }
+  if (headerOffset < indexOffset + indexLength && indexOffset < headerOffset + headerLength) {
+    throw new FormatError(FormatCode.Malformed, `${label}: header (${headerOffset}+${headerLength}) and index (${indexOffset}+${indexLength}) overlap`);
   }
   const hb = await src.read(headerOffset, headerLength);
   if (crc32(hb) !== headerCrc) throw new FormatError(FormatCode.Checksum, `${label}: header CRC-32 mismatch (header at offset ${headerOffset})`);

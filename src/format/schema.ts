@@ -3,6 +3,7 @@
  * before trusting any number in them (spec/FORMAT.md, "Header", "Index").
  */
 import { FormatCode, FormatError } from '../errors.js';
+import { resolveBound } from '../codec/bound.js';
 import type { BoundMode, Dtype } from '../types.js';
 
 /** Free-form attributes: strings, numbers, booleans, or arrays of them. */
@@ -72,11 +73,11 @@ export interface Limits {
 /** Defaults: generous for real archives, small enough that no file can exhaust memory by declaration alone. */
 export const DEFAULT_LIMITS: Limits = {
   maxHeaderBytes: 16 << 20,
-  maxIndexBytes: 512 << 20,
+  maxIndexBytes: 128 << 20,
   maxFields: 10000,
   maxCells: 2 ** 40,
-  maxTileCells: 1 << 22,
-  maxTiles: 1 << 24,
+  maxTileCells: 1 << 20,
+  maxTiles: 1 << 22,
 };
 
 type Obj = Record<string, unknown>;
@@ -94,13 +95,21 @@ function posInt(v: unknown, label: string, what: string, max = Number.MAX_SAFE_I
   return v;
 }
 
+/** What is wrong with an attribute map, or null when it is usable. */
+export function attrsProblem(v: unknown): string | null {
+  if (!isObj(v)) return 'attrs must be a map';
+  const ok = (x: unknown) => typeof x === 'string' || typeof x === 'number' || typeof x === 'boolean';
+  for (const [k, a] of Object.entries(v)) {
+    if (k === '__proto__') return "attribute name '__proto__' is not allowed";
+    if (!(ok(a) || (Array.isArray(a) && a.every(ok)))) return `attribute '${k}' must be a string, number, boolean or an array of them`;
+  }
+  return null;
+}
+
 function checkAttrs(v: unknown, label: string): Attrs {
   if (v === undefined) return {};
-  if (!isObj(v)) fail(label, 'attrs must be a map');
-  for (const [k, a] of Object.entries(v)) {
-    const ok = (x: unknown) => typeof x === 'string' || typeof x === 'number' || typeof x === 'boolean';
-    if (!(ok(a) || (Array.isArray(a) && a.every(ok)))) fail(label, `attribute '${k}' must be a string, number, boolean or an array of them`);
-  }
+  const problem = attrsProblem(v);
+  if (problem) fail(label, problem);
   return v as Attrs;
 }
 
@@ -108,13 +117,14 @@ function checkAttrs(v: unknown, label: string): Attrs {
 export function checkHeader(raw: unknown, limits: Limits, label: string): ArchiveHeader {
   if (!isObj(raw)) fail(label, 'header is not a map');
   if (raw.format !== 'rankfield') fail(label, `header format is ${JSON.stringify(raw.format)}, not "rankfield"`);
+  if (raw.version !== 1) fail(label, `header version ${JSON.stringify(raw.version)} does not match the container version 1`);
   if (!Array.isArray(raw.fields)) fail(label, 'header has no fields list');
   if (raw.fields.length > limits.maxFields) throw new FormatError(FormatCode.Limit, `${label}: ${raw.fields.length} fields exceed the limit of ${limits.maxFields}`);
   const names = new Set<string>();
   const fields = raw.fields.map((f: unknown, i: number): FieldHeader => {
     const at = `${label} header field ${i}`;
     if (!isObj(f)) fail(at, 'is not a map');
-    if (typeof f.name !== 'string' || f.name.length === 0 || f.name.length > 1024) fail(at, 'name must be a non-empty string');
+    if (typeof f.name !== 'string' || f.name.length === 0 || f.name.length > 1024) fail(at, 'name must be a string of 1 to 1024 characters');
     if (names.has(f.name)) fail(at, `duplicate field name '${f.name}'`);
     names.add(f.name);
     const where = `${label} field '${f.name}'`;
@@ -132,23 +142,41 @@ export function checkHeader(raw: unknown, limits: Limits, label: string): Archiv
     const b = f.bound;
     if (!isObj(b)) fail(where, 'bound is not a map');
     if (!['abs', 'rel', 'rmse', 'psnr'].includes(b.mode as string)) fail(where, `bound mode ${JSON.stringify(b.mode)} is unknown`);
-    if (typeof b.value !== 'number' || !(b.value > 0)) fail(where, 'bound value must be a positive number');
+    if (typeof b.value !== 'number' || !(b.value > 0) || !Number.isFinite(b.value)) fail(where, 'bound value must be a positive finite number');
     if (typeof b.tolerance !== 'number' || !(b.tolerance >= 0)) fail(where, 'bound tolerance must be a number >= 0');
     const range = b.range;
-    if (range !== null && !(Array.isArray(range) && range.length === 2 && range.every((x) => typeof x === 'number'))) fail(where, 'bound range must be [min, max] or nil');
-    if (f.fill !== null && typeof f.fill !== 'number') fail(where, 'fill must be a number or nil');
+    if (range !== null && !(Array.isArray(range) && range.length === 2 && range.every((x) => typeof x === 'number' && Number.isFinite(x)) && range[0] <= range[1])) {
+      fail(where, 'bound range must be finite [min, max] with min <= max, or nil');
+    }
+    let fill: number | null = null;
+    if (f.fill !== null && f.fill !== undefined) {
+      if (!(f.fill instanceof Uint8Array) || f.fill.length !== 8) fail(where, 'fill must be nil or 8 bytes (binary64, little-endian)');
+      fill = new DataView(f.fill.buffer, f.fill.byteOffset, 8).getFloat64(0, true);
+    }
+    const tolerance = resolveBound({ mode: b.mode as BoundMode, value: b.value as number }, range ? (range[1] as number) - (range[0] as number) : 0);
+    if (!Object.is(Math.min(Number.isFinite(tolerance) ? tolerance : Number.MAX_VALUE, Number.MAX_VALUE), b.tolerance)) {
+      fail(where, `bound tolerance ${String(b.tolerance)} is not what ${String(b.mode)}:${String(b.value)} gives for the stored range`);
+    }
     return {
       name: f.name,
       dtype: f.dtype,
       shape: [rows, cols],
       tile: [tr, tc],
       bound: { mode: b.mode as BoundMode, value: b.value, tolerance: b.tolerance, range: range as number[] | null },
-      fill: (f.fill as number | null) ?? null,
+      fill,
       attrs: checkAttrs(f.attrs, where),
     };
   });
   const writer = typeof raw.writer === 'string' ? raw.writer : 'unknown';
-  return { format: 'rankfield', version: Number(raw.version), writer, attrs: checkAttrs(raw.attrs, `${label} header`), fields };
+  return { format: 'rankfield', version: 1, writer, attrs: checkAttrs(raw.attrs, `${label} header`), fields };
+}
+
+/** Rows and columns of tile t of a field (edge tiles are partial). */
+export function tileShape(h: Pick<FieldHeader, 'shape' | 'tile'>, t: number): [number, number] {
+  const gc = Math.ceil(h.shape[1] / h.tile[1]);
+  const ti = Math.floor(t / gc);
+  const tj = t % gc;
+  return [Math.min(h.tile[0], h.shape[0] - ti * h.tile[0]), Math.min(h.tile[1], h.shape[1] - tj * h.tile[1])];
 }
 
 const COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc'] as const;
@@ -178,11 +206,30 @@ export function checkIndex(raw: unknown, header: ArchiveHeader, start: number, e
         const v = col(c)[t];
         if (!Number.isInteger(v) || v < 0 || v > 0xffffffff) fail(where, `tile ${t} ${c} is not a 32-bit value`);
       }
+      const [m, n] = tileShape(h, t);
+      const method = col('method')[t];
+      const rank = col('rank')[t];
+      const valid = col('valid')[t];
+      if (method !== 0 && method !== 1) fail(where, `tile ${t} method ${method} is not 0 or 1`);
+      if (!Number.isInteger(rank) || rank < 0 || rank > Math.min(m, n) || (method === 0 && rank !== 0)) fail(where, `tile ${t} rank ${rank} is impossible for a ${m}x${n} tile`);
+      if (!Number.isInteger(valid) || valid < 0 || valid > m * n) fail(where, `tile ${t} valid count ${valid} is impossible for a ${m}x${n} tile`);
+      for (const c of ['max_err', 'rmse'] as const) {
+        const v = col(c)[t];
+        if (!(v >= 0) || !Number.isFinite(v)) fail(where, `tile ${t} ${c} ${v} is not a finite number >= 0`);
+      }
+    }
+    // Payloads may not overlap: each tile owns its bytes.
+    const byOffset = col('offset').map((o, t) => [o, col('length')[t]]).sort((a, b) => a[0] - b[0]);
+    for (let k = 1; k < byOffset.length; k++) {
+      if (byOffset[k][0] < byOffset[k - 1][0] + byOffset[k - 1][1]) fail(where, `tile payloads overlap at offset ${byOffset[k][0]}`);
     }
     const s = f.summary;
-    if (!isObj(s) || typeof s.valid !== 'number' || typeof s.max_err !== 'number' || typeof s.rmse !== 'number') fail(where, 'summary must hold valid, max_err and rmse');
+    if (!isObj(s) || !Number.isInteger(s.valid) || !((s.valid as number) >= 0)) fail(where, 'summary must hold an integer valid count');
+    for (const k of ['max_err', 'rmse'] as const) {
+      if (typeof s[k] !== 'number' || !((s[k] as number) >= 0) || !Number.isFinite(s[k])) fail(where, `summary ${k} must be a finite number >= 0`);
+    }
     void limits;
-    return { ...(Object.fromEntries(COLUMNS.map((c) => [c, col(c)])) as Omit<FieldIndex, 'summary'>), summary: { valid: s.valid, max_err: s.max_err, rmse: s.rmse } };
+    return { ...(Object.fromEntries(COLUMNS.map((c) => [c, col(c)])) as Omit<FieldIndex, 'summary'>), summary: { valid: s.valid as number, max_err: s.max_err as number, rmse: s.rmse as number } };
   });
   return { fields };
 }

@@ -134,11 +134,11 @@ function interpretHeader(text: string, dict: PyValue, where: string): Omit<NpyHe
  * prefixes every message.
  */
 export function parseNpyHeader(bytes: Uint8Array, name = 'input'): NpyHeader {
-  if (bytes.length < 8) fileError(name, `truncated header: ${bytes.length} bytes, too short for the 8-byte magic and version`);
-  if (!MAGIC.every((b, i) => bytes[i] === b)) {
+  if (MAGIC.some((b, i) => i < bytes.length && bytes[i] !== b)) {
     const hex = Array.from(bytes.subarray(0, 6), (b) => b.toString(16).padStart(2, '0')).join(' ');
-    fileError(name, `not a .npy file: the first 6 bytes are ${hex}, not the magic 93 4e 55 4d 50 59 ("\\x93NUMPY")`);
+    fileError(name, `not a .npy file: the first bytes are ${hex}, not the magic 93 4e 55 4d 50 59 ("\\x93NUMPY")`);
   }
+  if (bytes.length < 8) fileError(name, `truncated header: ${bytes.length} bytes, too short for the 8-byte magic and version`);
   const major = bytes[6]!;
   const minor = bytes[7]!;
   if ((major !== 1 && major !== 2 && major !== 3) || minor !== 0) {

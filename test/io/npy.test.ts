@@ -217,7 +217,8 @@ describe('parseNpy: bad input, each with its own message', () => {
     // DOC: the first 6 bytes are exactly "\x93NUMPY".
     const bad = ok.slice();
     bad[5] = 0x5a; // 'Z'
-    expectInputError(() => parseNpy(bad, 'x.npy'), InputCode.File, /^x\.npy: not a \.npy file: the first 6 bytes are 93 4e 55 4d 50 5a/);
+    expectInputError(() => parseNpy(bad, 'x.npy'), InputCode.File, /^x\.npy: not a \.npy file: the first bytes are 93 4e 55 4d 50 5a/);
+    expectInputError(() => parseNpy(Uint8Array.from([0x50, 0x4b, 0x03])), InputCode.File, /not a \.npy file: the first bytes are 50 4b 03,/); // a zip (.npz) prefix
   });
 
   it('unknown format version', () => {

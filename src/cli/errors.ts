@@ -1,0 +1,88 @@
+/**
+ * Errors of the command line and how they are shown: every failure becomes
+ * one line `rankfield: error: <message>` (exit 2); `--debug` adds the stack.
+ */
+import { CommanderError } from 'commander';
+import { FormatError, InputError } from '../errors.js';
+
+/** Exit codes of the command line. */
+export const Exit = {
+  /** Success; for `check`: every tile holds its bound and checksums. */
+  Ok: 0,
+  /** `check` (and `demo`) found a failure. */
+  CheckFailed: 1,
+  /** Unusable input: bad arguments, unreadable files, malformed archives. */
+  Usage: 2,
+} as const;
+
+/** A refusal of the command line itself: bad option combinations, existing outputs, and so on. */
+export class UsageError extends Error {
+  constructor(message: string) {
+    super(message);
+    this.name = 'UsageError';
+  }
+}
+
+/** A file system failure, already phrased with its path and what was being done. */
+export class FileError extends Error {
+  readonly code: string;
+  constructor(message: string, code: string, options?: { cause?: unknown }) {
+    super(message, options);
+    this.name = 'FileError';
+    this.code = code;
+  }
+}
+
+const REASONS: Record<string, string> = {
+  ENOENT: 'no such file or directory',
+  EISDIR: 'is a directory',
+  ENOTDIR: 'a part of the path is not a directory',
+  EACCES: 'permission denied',
+  EPERM: 'operation not permitted',
+  EEXIST: 'already exists',
+  ENOSPC: 'no space left on the device',
+  EDQUOT: 'disk quota exceeded',
+  EROFS: 'read-only file system',
+  EMFILE: 'too many open files',
+  ENFILE: 'too many open files in the system',
+  EIO: 'input/output error',
+  ENAMETOOLONG: 'file name too long',
+  ELOOP: 'too many levels of symbolic links',
+  EBUSY: 'resource busy',
+  EXDEV: 'cannot rename across file systems',
+  ERR_FS_FILE_TOO_LARGE: 'file too large to load into memory',
+};
+
+/** A Node system or file system error (a string `code` such as ENOENT or ERR_FS_FILE_TOO_LARGE), not one of rankfield's own. */
+export function isSystemError(e: unknown): e is NodeJS.ErrnoException {
+  if (!(e instanceof Error) || e instanceof FormatError || e instanceof InputError || e instanceof CommanderError) return false;
+  const code = (e as NodeJS.ErrnoException).code;
+  return typeof code === 'string' && (typeof (e as NodeJS.ErrnoException).errno === 'number' || code.startsWith('ERR_FS'));
+}
+
+/** Phrase a system error as `cannot <action> '<path>': <reason>`. */
+export function fileError(e: unknown, action: string, path: string): unknown {
+  if (e instanceof FileError || !isSystemError(e)) return e;
+  const code = e.code as string;
+  const reason = REASONS[code] ?? e.message.replace(/^[A-Z_]+: /, '');
+  return new FileError(`cannot ${action} '${path}': ${reason}`, code, { cause: e });
+}
+
+/** The one-line message for any error. */
+export function oneLine(e: unknown): string {
+  let text: string;
+  if (e instanceof CommanderError) text = e.message.replace(/^error: /, '');
+  else if (e instanceof UsageError || e instanceof FileError || e instanceof InputError || e instanceof FormatError) text = e.message;
+  else if (isSystemError(e)) {
+    const reason = REASONS[e.code as string] ?? e.message;
+    text = e.path ? `'${e.path}': ${reason}` : reason;
+  } else if (e instanceof Error) text = `internal error: ${e.message} (rerun with --debug for the stack trace, and please report it)`;
+  else text = `internal error: ${String(e)}`;
+  return text.replace(/\s*\n\s*/g, ' ').trim();
+}
+
+/** Write an error to stderr the way the command line shows errors. */
+export function report(e: unknown, debug: boolean, writeErr: (s: string) => void): void {
+  writeErr(`rankfield: error: ${oneLine(e)}\n`);
+  if (debug && e instanceof Error && e.stack) writeErr(`${e.stack}\n`);
+}

@@ -1,0 +1,181 @@
+/**
+ * File handling of the command line: inputs are opened read-only; outputs
+ * are written to a temporary file in the destination folder, flushed, and
+ * renamed over the destination, so a failure never leaves a half-written
+ * output and never touches an existing one.
+ */
+import { randomBytes } from 'node:crypto';
+import { unlinkSync, type Stats } from 'node:fs';
+import { lstat, open as openFile, rename, stat, unlink } from 'node:fs/promises';
+import { basename, dirname, join, resolve } from 'node:path';
+import { open, type Archive } from '../index.js';
+import { FileSource } from '../io/file-source.js';
+import { FileError, UsageError, fileError, isSystemError } from './errors.js';
+
+/** Temporary files being written; removed on a signal (see {@link removeTempFilesSync}). */
+const pending = new Set<string>();
+
+/** Remove every temporary file still being written (for signal handlers). */
+export function removeTempFilesSync(): void {
+  for (const p of pending) {
+    try {
+      unlinkSync(p);
+    } catch {
+      // Already gone, or not removable: nothing more can be done while exiting.
+    }
+  }
+  pending.clear();
+}
+
+function emptyFile(path: string): FileError {
+  return new FileError(`'${path}' is empty (0 bytes)`, 'EMPTY');
+}
+
+function notDirectory(path: string): FileError {
+  return new FileError(`cannot read '${path}': is a directory`, 'EISDIR');
+}
+
+/** Stat an input that must be an existing, non-empty, non-directory file. */
+export async function statInput(path: string): Promise<Stats> {
+  let st: Stats;
+  try {
+    st = await stat(path);
+  } catch (e) {
+    throw fileError(e, 'read', path);
+  }
+  if (st.isDirectory()) throw notDirectory(path);
+  if (st.isFile() && st.size === 0) throw emptyFile(path);
+  return st;
+}
+
+/** Read a whole input file (opened read-only). */
+export async function readInput(path: string): Promise<Uint8Array> {
+  let handle;
+  try {
+    handle = await openFile(path, 'r');
+  } catch (e) {
+    throw fileError(e, 'read', path);
+  }
+  try {
+    const st = await handle.stat();
+    if (st.isDirectory()) throw notDirectory(path);
+    const bytes = await handle.readFile();
+    if (bytes.length === 0) throw emptyFile(path);
+    return new Uint8Array(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  } catch (e) {
+    throw fileError(e, 'read', path);
+  } finally {
+    await handle.close();
+  }
+}
+
+/** Open an archive file for random access; the caller closes it. */
+export async function openArchive(path: string): Promise<Archive> {
+  let src: FileSource;
+  try {
+    src = await FileSource.open(path);
+  } catch (e) {
+    throw fileError(e, 'read', path);
+  }
+  try {
+    if ((await src.size()) === 0) throw emptyFile(path);
+    return await open(src);
+  } catch (e) {
+    await src.close();
+    throw fileError(e, 'read', path);
+  }
+}
+
+/** Options of {@link checkOutput} and {@link writeOutput}. */
+export interface OutputOptions {
+  /** Overwrite an existing output. */
+  force: boolean;
+  /** Input paths the output must not be. */
+  inputs: string[];
+}
+
+async function statOrNull(path: string, action: string, how: typeof stat = stat): Promise<Stats | null> {
+  try {
+    return await how(path);
+  } catch (e) {
+    if (isSystemError(e) && e.code === 'ENOENT') return null;
+    throw fileError(e, action, path);
+  }
+}
+
+/**
+ * Refuse an output that is one of the inputs, that exists (unless `force`),
+ * that is a directory, or whose folder does not exist. Called before any
+ * work is done and again just before the output is renamed into place.
+ */
+export async function checkOutput(out: string, o: OutputOptions): Promise<void> {
+  if (out.length === 0 || out.endsWith('/')) throw new UsageError(`output '${out}' is not a file name`);
+  const target = await statOrNull(out, 'write', lstat);
+  for (const input of o.inputs) {
+    let same = resolve(input) === resolve(out);
+    if (!same && target !== null) {
+      const a = await statOrNull(input, 'read');
+      const b = await statOrNull(out, 'write');
+      same = a !== null && b !== null && a.dev === b.dev && a.ino === b.ino;
+    }
+    if (same) throw new UsageError(`output '${out}' is the input file; choose another output name`);
+  }
+  if (target !== null) {
+    if (target.isDirectory()) throw new FileError(`cannot write '${out}': is a directory`, 'EISDIR');
+    if (!o.force) throw new UsageError(`output '${out}' already exists; use --force to overwrite it`);
+  }
+  const folder = dirname(out);
+  const dir = await statOrNull(folder, 'write');
+  if (dir === null) throw new FileError(`cannot write '${out}': folder '${folder}' does not exist`, 'ENOENT');
+  if (!dir.isDirectory()) throw new FileError(`cannot write '${out}': '${folder}' is not a directory`, 'ENOTDIR');
+}
+
+/**
+ * Write `bytes` to `out` atomically: a temporary file `.NAME.<pid>.<random>.tmp`
+ * in the same folder, fsync, rename over `out`, then fsync the folder. On any
+ * failure the temporary file is removed and `out` is left as it was.
+ */
+export async function writeOutput(out: string, bytes: Uint8Array, o: OutputOptions): Promise<void> {
+  await checkOutput(out, o);
+  const folder = dirname(out);
+  const tmp = join(folder, `.${basename(out)}.${process.pid}.${randomBytes(6).toString('hex')}.tmp`);
+  let handle;
+  try {
+    handle = await openFile(tmp, 'wx', 0o644);
+  } catch (e) {
+    throw fileError(e, 'write', out);
+  }
+  pending.add(tmp);
+  try {
+    for (let at = 0; at < bytes.length; ) {
+      const { bytesWritten } = await handle.write(bytes, at, bytes.length - at);
+      at += bytesWritten;
+    }
+    await handle.sync();
+    await handle.close();
+    handle = null;
+    await checkOutput(out, o);
+    await rename(tmp, out);
+    pending.delete(tmp);
+  } catch (e) {
+    if (handle) await handle.close().catch(() => undefined);
+    await unlink(tmp).catch(() => undefined);
+    pending.delete(tmp);
+    throw fileError(e, 'write', out);
+  }
+  await syncFolder(folder);
+}
+
+/** Flush a folder so that a rename in it survives a crash; best effort (not every system allows it). */
+async function syncFolder(folder: string): Promise<void> {
+  try {
+    const dir = await openFile(folder, 'r');
+    try {
+      await dir.sync();
+    } finally {
+      await dir.close();
+    }
+  } catch {
+    // Some file systems refuse fsync on a directory; the data itself is already flushed.
+  }
+}

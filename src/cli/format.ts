@@ -1,0 +1,55 @@
+/** Number and table formatting for the command line's reports. */
+import { formatBound, isPointwise, type FieldHeader } from '../index.js';
+
+/** A number in 4 significant digits, exponent form when very large or small. */
+export function num(x: number): string {
+  if (!Number.isFinite(x)) return String(x);
+  if (x === 0) return '0';
+  const a = Math.abs(x);
+  if (a >= 1e-3 && a < 1e7) return String(Number(x.toPrecision(4)));
+  return x.toExponential(3).replace(/\.?0+e/, 'e');
+}
+
+/** A compression ratio, e.g. "12.34". */
+export function ratio(raw: number, packed: number): string {
+  return packed > 0 ? (raw / packed).toFixed(2) : '-';
+}
+
+/** Seconds from milliseconds, e.g. "1.23 s" or "45 ms". */
+export function seconds(ms: number): string {
+  return ms < 1000 ? `${Math.round(ms)} ms` : `${(ms / 1000).toFixed(2)} s`;
+}
+
+/** Bytes of the values of a field as stored raw. */
+export function rawBytes(h: FieldHeader): number {
+  return h.shape[0] * h.shape[1] * (h.dtype === 'f32' ? 4 : 8);
+}
+
+/**
+ * The error a bound limits, measured against its resolved tolerance E:
+ * the max error for pointwise modes, the RMSE for the others.
+ */
+export function errorVsBound(h: FieldHeader, maxErr: number, rmse: number): { what: 'max error' | 'RMSE'; value: number; fraction: number } {
+  const pointwise = isPointwise(h.bound.mode);
+  const value = pointwise ? maxErr : rmse;
+  const tol = h.bound.tolerance;
+  return { what: pointwise ? 'max error' : 'RMSE', value, fraction: tol > 0 ? value / tol : value === 0 ? 0 : Infinity };
+}
+
+/** "rel:0.001 (E = 0.0301, pointwise)" */
+export function boundText(h: FieldHeader): string {
+  const kind = isPointwise(h.bound.mode) ? 'pointwise limit' : 'RMSE limit';
+  return `${formatBound(h.bound)} (${kind} E = ${num(h.bound.tolerance)})`;
+}
+
+/** Render rows as a table with columns padded to width; numbers right-aligned. */
+export function table(head: string[], rows: string[][]): string {
+  const widths = head.map((h, c) => Math.max(h.length, ...rows.map((r) => r[c].length)));
+  const right = head.map((_, c) => rows.every((r) => /^[-+0-9.e]+( ms| s)?$/.test(r[c])));
+  const line = (cells: string[]) =>
+    cells
+      .map((s, c) => (right[c] ? s.padStart(widths[c]) : s.padEnd(widths[c])))
+      .join('  ')
+      .trimEnd();
+  return [line(head), line(widths.map((w) => '-'.repeat(w))), ...rows.map(line)].join('\n');
+}

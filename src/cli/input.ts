@@ -1,0 +1,92 @@
+/**
+ * Reading a 2-D field from a file named on the command line: a .npy file
+ * (its own header says shape and dtype), or else headerless raw binary whose
+ * shape, dtype and byte order the user states.
+ */
+import { InputCode, InputError, type Dtype } from '../index.js';
+import type { NdArray } from '../io/ndarray.js';
+import { parseNpy } from '../io/npy.js';
+import { parseRaw } from '../io/raw.js';
+import { UsageError } from './errors.js';
+import { readInput } from './files.js';
+
+/** How a raw file is laid out, as given by --shape, --dtype and --endian. */
+export interface RawLayout {
+  shape?: [number, number];
+  dtype?: Dtype;
+  endian?: 'little' | 'big';
+}
+
+/** A field read from a file: always 2-D. */
+export interface LoadedField extends NdArray {
+  shape: [number, number];
+  /** 'npy' or 'raw'. */
+  kind: 'npy' | 'raw';
+}
+
+/** True when a path names a .npy file (case-insensitive extension). */
+export function isNpyPath(path: string): boolean {
+  return /\.npy$/i.test(path);
+}
+
+const NPY_MAGIC = [0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59];
+
+/**
+ * Check, before any file is read, that the layout options fit the input:
+ * none for a .npy file (it describes itself); --shape and --dtype (or
+ * `defaults`) for raw input. Returns the raw layout, or null for .npy.
+ */
+export function checkLayout(
+  path: string,
+  given: RawLayout,
+  defaults?: { shape: [number, number]; dtype: Dtype },
+): { shape: [number, number]; dtype: Dtype; endian: 'little' | 'big' } | null {
+  if (isNpyPath(path)) {
+    const used = (['shape', 'dtype', 'endian'] as const).filter((k) => given[k] !== undefined).map((k) => `--${k}`);
+    if (used.length > 0) {
+      throw new UsageError(`${used.join(', ')} describe headerless raw input, but '${path}' is a .npy file that carries its own header; drop ${used.length > 1 ? 'them' : 'it'}`);
+    }
+    return null;
+  }
+  const shape = given.shape ?? defaults?.shape;
+  const dtype = given.dtype ?? defaults?.dtype;
+  if (shape === undefined || dtype === undefined) {
+    const missing = [shape === undefined ? '--shape RxC' : '', dtype === undefined ? '--dtype f32|f64' : ''].filter(Boolean).join(' and ');
+    throw new UsageError(`'${path}' does not end in .npy, so it is read as headerless raw binary, which needs ${missing}`);
+  }
+  return { shape, dtype, endian: given.endian ?? 'little' };
+}
+
+/**
+ * Load `path` as a 2-D field. For raw input, `given` holds what the user
+ * stated and `defaults` what may stand in for a missing --shape or --dtype
+ * (the archive's own, when checking); without either, both are required.
+ */
+export async function loadField(path: string, given: RawLayout, defaults?: { shape: [number, number]; dtype: Dtype }): Promise<LoadedField> {
+  const layout = checkLayout(path, given, defaults);
+  if (layout === null) {
+    const bytes = await readInput(path);
+    const arr = parseNpy(bytes, path);
+    const shape = arr.shape;
+    if (shape.length !== 2) {
+      const tuple = shape.length === 1 ? `(${shape[0]},)` : `(${shape.join(', ')})`;
+      throw new InputError(
+        InputCode.Shape,
+        `${path}: holds a ${shape.length}-D array of shape ${tuple}; only 2-D fields are supported for now (save each 2-D slice as its own .npy)`,
+      );
+    }
+    if (shape[0] === 0 || shape[1] === 0) throw new InputError(InputCode.Shape, `${path}: the array of shape (${shape.join(', ')}) holds no values`);
+    return { ...arr, shape: [shape[0], shape[1]], kind: 'npy' };
+  }
+  const { shape, dtype, endian } = layout;
+  const bytes = await readInput(path);
+  try {
+    const arr = parseRaw(bytes, shape, dtype, endian, path);
+    return { ...arr, shape: [shape[0], shape[1]], kind: 'raw' };
+  } catch (e) {
+    if (e instanceof InputError && NPY_MAGIC.every((b, i) => bytes[i] === b)) {
+      throw new InputError(e.code, `${e.message} (the file starts like a .npy file; give it a .npy name to read its header)`);
+    }
+    throw e;
+  }
+}

@@ -1,0 +1,106 @@
+/**
+ * The `rankfield` command line: argument parsing with commander, one module
+ * per command, and one error path. Every error is shown as one line
+ * `rankfield: error: <message>` with exit code 2; `--debug` adds the stack.
+ */
+import { Command, CommanderError } from 'commander';
+import { VERSION_STRING } from '../index.js';
+import { registerCheck } from './check.js';
+import { registerDemo } from './demo.js';
+import { Exit, report } from './errors.js';
+import { removeTempFilesSync } from './files.js';
+import { registerPack } from './pack.js';
+import { registerShow } from './show.js';
+import { registerUnpack } from './unpack.js';
+
+/** What commands write to and report back. */
+export interface Context {
+  /** Write to standard output. */
+  out(text: string): void;
+  /** Write to standard error. */
+  err(text: string): void;
+  /** Exit code a command sets when it completes but reports a failure (check). */
+  exitCode: number;
+}
+
+/** Build the program with all commands; errors are thrown, never exit the process. */
+export function buildProgram(ctx: Context): Command {
+  const program = new Command('rankfield');
+  program
+    .description('Lossy archiving of 2-D floating-point fields under a stated error bound, by tiled truncated SVD.')
+    .version(VERSION_STRING, '-V, --version', 'print the version')
+    .option('--debug', 'print stack traces of errors')
+    .helpOption('-h, --help', 'show help')
+    .exitOverride()
+    .configureOutput({
+      writeOut: (s) => ctx.out(s),
+      // Errors are shown by main() as one line; commander's own error and help-on-error output is dropped.
+      writeErr: () => undefined,
+      outputError: () => undefined,
+    })
+    .addHelpText(
+      'after',
+      `
+Exit codes: 0 success; 1 \`check\` or \`demo\` found a failure; 2 unusable input
+(bad arguments, unreadable or malformed files).
+
+Packing is lossy: it discards information. Keep the originals until
+\`rankfield check ARCHIVE --against ORIGINAL\` passes, and follow your
+institution's data-retention rules.`,
+    );
+  registerPack(program, ctx);
+  registerUnpack(program, ctx);
+  registerShow(program, ctx);
+  registerCheck(program, ctx);
+  registerDemo(program, ctx);
+  return program;
+}
+
+/** True when `--debug` appears among the arguments (before a `--`). */
+function wantsDebug(argv: readonly string[]): boolean {
+  const end = argv.indexOf('--');
+  return (end < 0 ? argv : argv.slice(0, end)).includes('--debug');
+}
+
+/** Run the command line on `argv` (without the node and script paths); resolves to the exit code. */
+export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'err'>>): Promise<number> {
+  const ctx: Context = {
+    out: io?.out ?? ((s) => void process.stdout.write(s)),
+    err: io?.err ?? ((s) => void process.stderr.write(s)),
+    exitCode: Exit.Ok,
+  };
+  const debug = wantsDebug(argv);
+  const program = buildProgram(ctx);
+  try {
+    await program.parseAsync(argv, { from: 'user' });
+    return ctx.exitCode;
+  } catch (e) {
+    if (e instanceof CommanderError) {
+      if (e.exitCode === 0) return Exit.Ok; // --help, --version, `help`
+      if (e.code === 'commander.help') {
+        const names = program.commands.map((c) => c.name()).filter((n) => n !== 'help');
+        report(new CommanderError(2, e.code, `missing command (one of ${names.join(', ')}; see 'rankfield --help')`), false, ctx.err);
+        return Exit.Usage;
+      }
+    }
+    report(e, debug, ctx.err);
+    return Exit.Usage;
+  }
+}
+
+/** Entry point of bin/rankfield: runs main on process.argv, with signal and broken-pipe handling. */
+export async function run(): Promise<void> {
+  const onSignal = (signal: NodeJS.Signals, code: number) => () => {
+    removeTempFilesSync();
+    process.stderr.write(`rankfield: error: interrupted by ${signal}; unfinished output files were removed\n`);
+    process.exit(code);
+  };
+  process.once('SIGINT', onSignal('SIGINT', 130));
+  process.once('SIGTERM', onSignal('SIGTERM', 143));
+  // A reader that closes the pipe early (`rankfield show x | head -1`) is not an error.
+  process.stdout.on('error', (e: NodeJS.ErrnoException) => {
+    if (e.code === 'EPIPE') process.exit(process.exitCode ?? 0);
+    throw e;
+  });
+  process.exitCode = await main(process.argv.slice(2));
+}

@@ -1,0 +1,73 @@
+/**
+ * Parsers of option values for commander. Each checks its value fully and
+ * throws commander's InvalidArgumentError, so that commander reports the
+ * option by name ("option '--tile <RxC>' argument '0' is invalid. ...").
+ */
+import { InvalidArgumentError } from 'commander';
+import { MAX_TILE_SIDE, parseBound, type Bound, type Dtype } from '../index.js';
+import { parseDtype, parseShape } from '../io/raw.js';
+
+function wrap<T>(fn: () => T): T {
+  try {
+    return fn();
+  } catch (e) {
+    if (e instanceof Error) throw new InvalidArgumentError(e.message);
+    throw e;
+  }
+}
+
+/** `--bound MODE:VALUE`, by the library's own parser. */
+export function boundOption(text: string): Bound {
+  return wrap(() => parseBound(text));
+}
+
+/** `--tile RxC` or `--tile N` (square): positive integers up to {@link MAX_TILE_SIDE}. */
+export function tileOption(text: string): [number, number] {
+  const parts = text.split('x');
+  if (parts.length > 2 || !parts.every((p) => /^[0-9]+$/.test(p))) {
+    throw new InvalidArgumentError(`tile must be RxC or one number (e.g. 64x64 or 64), got '${text}'`);
+  }
+  const sides = parts.map(Number);
+  for (const s of sides) {
+    if (!Number.isSafeInteger(s) || s < 1 || s > MAX_TILE_SIDE) {
+      throw new InvalidArgumentError(`tile sides must be integers in 1..${MAX_TILE_SIDE}, got '${text}'`);
+    }
+  }
+  return sides.length === 1 ? [sides[0], sides[0]] : [sides[0], sides[1]];
+}
+
+const DECIMAL = /^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$/;
+
+/** `--fill V`: a finite decimal number. */
+export function fillOption(text: string): number {
+  const t = text.trim();
+  const v = Number(t);
+  if (!DECIMAL.test(t) || !Number.isFinite(v)) {
+    throw new InvalidArgumentError(`fill value must be a finite number (e.g. -999 or 9.96921e36), got '${text}'; NaN and infinities are kept exactly without it`);
+  }
+  return v;
+}
+
+/** `--shape RxC`: exactly two positive integers. */
+export function shapeOption(text: string): [number, number] {
+  const dims = wrap(() => parseShape(text));
+  if (dims.length !== 2) throw new InvalidArgumentError(`shape must be RxC (2-D); ${dims.length}-D fields are not supported yet, got '${text}'`);
+  return [dims[0], dims[1]];
+}
+
+/** `--dtype f32|f64` (also float32, float64). */
+export function dtypeOption(text: string): Dtype {
+  return wrap(() => parseDtype(text));
+}
+
+/** `--endian little|big`. */
+export function endianOption(text: string): 'little' | 'big' {
+  if (text !== 'little' && text !== 'big') throw new InvalidArgumentError(`byte order must be 'little' or 'big', got '${text}'`);
+  return text;
+}
+
+/** `--name NAME`: a field name of 1 to 1024 characters. */
+export function nameOption(text: string): string {
+  if (text.length === 0 || text.length > 1024) throw new InvalidArgumentError('field name must have 1 to 1024 characters');
+  return text;
+}

@@ -1,0 +1,114 @@
+/** `rankfield pack`: compress one 2-D field into an archive. */
+import { basename, extname } from 'node:path';
+import type { Command } from 'commander';
+import { InputCode, InputError, open, pack, type Bound, type Dtype } from '../index.js';
+import { errorVsBound, boundText, num, ratio, seconds } from './format.js';
+import { checkOutput, statInput, writeOutput } from './files.js';
+import { checkLayout, loadField } from './input.js';
+import type { Context } from './main.js';
+import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, tileOption } from './options.js';
+
+interface PackFlags {
+  output: string;
+  bound: Bound;
+  tile?: [number, number];
+  fill?: number;
+  name?: string;
+  shape?: [number, number];
+  dtype?: Dtype;
+  endian?: 'little' | 'big';
+  force?: boolean;
+}
+
+/** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
+export const LOSSY_NOTE = `
+Packing is LOSSY. It discards information: the archive holds values within the
+stated bound of the originals, not the originals, and what is discarded cannot
+be recovered. Keep the original files until
+
+    rankfield check OUT.rfz --against IN
+
+passes, and follow your institution's data-retention rules before deleting any
+original.`;
+
+const BOUNDS_HELP = `
+Bounds (MODE:VALUE):
+  abs:E     every value within E of the original
+  rel:R     every value within R x (max - min) of the field's valid values
+  rmse:E    root-mean-square error at most E
+  psnr:D    PSNR at least D dB, i.e. RMSE at most (max - min) / 10^(D/20)
+Missing values (NaN, infinities, and the --fill value) are kept bit for bit
+and are not counted in the bound.
+
+Input: a .npy file holding a 2-D float32 or float64 array; any other name is
+read as headerless raw binary and needs --shape and --dtype (--endian defaults
+to little).
+
+Example:
+  rankfield pack sst.npy -o sst.rfz --bound abs:0.01 --fill -999`;
+
+/** Default field name: the input file name without its extension. */
+function defaultName(input: string): string {
+  const base = basename(input, extname(input));
+  return base.length > 0 && base.length <= 1024 ? base : 'field';
+}
+
+/** Refuse a fill value the field's element type cannot hold. */
+function checkFill(fill: number | undefined, dtype: Dtype): void {
+  if (fill !== undefined && dtype === 'f32' && !Number.isFinite(Math.fround(fill))) {
+    throw new InputError(InputCode.Option, `fill value ${fill} is outside the float32 range of the input`);
+  }
+}
+
+function countFill(values: Float32Array | Float64Array, fill: number): number {
+  const f = values instanceof Float32Array ? Math.fround(fill) : fill;
+  let n = 0;
+  for (let i = 0; i < values.length; i++) if (values[i] === f) n++;
+  return n;
+}
+
+/** Register `pack` on the program. */
+export function registerPack(program: Command, ctx: Context): void {
+  program
+    .command('pack')
+    .summary('compress a 2-D field into an archive (lossy: see pack --help)')
+    .description('Compress one 2-D field into an archive, keeping every value within a stated error bound.\n' + LOSSY_NOTE)
+    .argument('<IN>', 'input: .npy (2-D float32/float64), or raw binary with --shape and --dtype')
+    .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
+    .requiredOption('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D', boundOption)
+    .option('--tile <RxC>', 'tile size, RxC or one number for square tiles (default 64)', tileOption)
+    .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound)', fillOption)
+    .option('--name <NAME>', 'field name stored in the archive (default: IN without its extension)', nameOption)
+    .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
+    .option('--dtype <TYPE>', 'raw input: f32 or f64', dtypeOption)
+    .option('--endian <ORDER>', 'raw input: byte order, little (default) or big', endianOption)
+    .option('--force', 'overwrite OUT if it exists')
+    .addHelpText('after', BOUNDS_HELP)
+    .action(async (input: string, flags: PackFlags) => {
+      const start = performance.now();
+      const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
+      await statInput(input);
+      checkLayout(input, layout);
+      const io = { force: flags.force === true, inputs: [input] };
+      await checkOutput(flags.output, io);
+      const field = await loadField(input, layout);
+      checkFill(flags.fill, field.dtype);
+      const name = flags.name ?? defaultName(input);
+      const bytes = pack(field.data, field.shape, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, dtype: field.dtype });
+      // Only the header and index are read back, for the figures of the summary.
+      const { header: h, index: ix } = (await open(bytes)).field(name);
+      await writeOutput(flags.output, bytes, io);
+      const elapsed = performance.now() - start;
+      if (flags.fill !== undefined && countFill(field.data, flags.fill) === 0) {
+        ctx.err(`rankfield: note: the fill value ${flags.fill} does not occur in '${input}'\n`);
+      }
+      const raw = field.data.byteLength;
+      const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
+      const other = e.what === 'max error' ? `RMSE ${num(ix.summary.rmse)}` : `max error ${num(ix.summary.max_err)}`;
+      ctx.out(
+        `packed '${input}' (${h.shape.join('x')} ${h.dtype}, field '${h.name}') -> '${flags.output}': ` +
+          `${raw} bytes in, ${bytes.length} bytes out, ratio ${ratio(raw, bytes.length)}; ` +
+          `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n`,
+      );
+    });
+}

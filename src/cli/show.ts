@@ -1,0 +1,161 @@
+/** `rankfield show`: what an archive holds, from its header and index only (no tile is decoded). */
+import type { Command } from 'commander';
+import { METHOD_NAMES, Method } from '../codec/payload.js';
+import { formatBound, isPointwise, type Archive, type Attrs } from '../index.js';
+import { openArchive, statInput } from './files.js';
+import { num, rawBytes } from './format.js';
+import type { Context } from './main.js';
+
+/** The facts `show` reports about one field. */
+export interface FieldFacts {
+  name: string;
+  shape: number[];
+  dtype: string;
+  tile: number[];
+  tiles: number;
+  bound: { text: string; mode: string; value: number; tolerance: number; limits: 'pointwise' | 'rmse'; range: number[] | null };
+  fill: number | null;
+  cells: number;
+  validCells: number;
+  rawBytes: number;
+  payloadBytes: number;
+  /** rawBytes / payloadBytes. */
+  ratio: number;
+  bitsPerValue: number;
+  achieved: { maxErr: number; rmse: number };
+  /** Tiles per method name. */
+  methods: Record<string, number>;
+  /** Tiles per rank, low-rank tiles only. */
+  rankHistogram: Record<string, number>;
+  /** Tiles stored exactly (not low-rank), counted apart from the rank histogram. */
+  exactTiles: number;
+  attrs: Attrs;
+}
+
+/** The facts `show` reports about an archive. */
+export interface ArchiveFacts {
+  file: string;
+  fileBytes: number;
+  version: number;
+  writer: string;
+  attrs: Attrs;
+  rawBytes: number;
+  /** rawBytes / fileBytes. */
+  ratio: number;
+  fields: FieldFacts[];
+}
+
+/** Gather the facts of an opened archive. */
+export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
+  const fields = archive.header.fields.map((h, i): FieldFacts => {
+    const ix = archive.index.fields[i];
+    const payloadBytes = ix.length.reduce((a, b) => a + b, 0);
+    const cells = h.shape[0] * h.shape[1];
+    const methods: Record<string, number> = {};
+    const ranks = new Map<number, number>();
+    let exactTiles = 0;
+    ix.method.forEach((m, t) => {
+      const label = METHOD_NAMES[m] ?? `method-${m}`;
+      methods[label] = (methods[label] ?? 0) + 1;
+      if (m === Method.Exact) exactTiles++;
+      else ranks.set(ix.rank[t], (ranks.get(ix.rank[t]) ?? 0) + 1);
+    });
+    const rankHistogram = Object.fromEntries([...ranks.entries()].sort((a, b) => a[0] - b[0]).map(([r, n]) => [String(r), n]));
+    const raw = rawBytes(h);
+    return {
+      name: h.name,
+      shape: h.shape,
+      dtype: h.dtype,
+      tile: h.tile,
+      tiles: ix.offset.length,
+      bound: {
+        text: formatBound(h.bound),
+        mode: h.bound.mode,
+        value: h.bound.value,
+        tolerance: h.bound.tolerance,
+        limits: isPointwise(h.bound.mode) ? 'pointwise' : 'rmse',
+        range: h.bound.range,
+      },
+      fill: h.fill,
+      cells,
+      validCells: ix.summary.valid,
+      rawBytes: raw,
+      payloadBytes,
+      ratio: raw / payloadBytes,
+      bitsPerValue: (payloadBytes * 8) / cells,
+      achieved: { maxErr: ix.summary.max_err, rmse: ix.summary.rmse },
+      methods,
+      rankHistogram,
+      exactTiles,
+      attrs: h.attrs,
+    };
+  });
+  const raw = fields.reduce((a, f) => a + f.rawBytes, 0);
+  return {
+    file,
+    fileBytes: archive.size,
+    version: archive.header.version,
+    writer: archive.header.writer,
+    attrs: archive.header.attrs,
+    rawBytes: raw,
+    ratio: raw / archive.size,
+    fields,
+  };
+}
+
+function attrsText(attrs: Attrs): string {
+  return Object.entries(attrs)
+    .map(([k, v]) => `${k}=${JSON.stringify(v)}`)
+    .join(', ');
+}
+
+/** Render the facts as text. */
+export function factsText(a: ArchiveFacts): string {
+  const lines = [
+    `archive  ${a.file}: format version ${a.version}, written by ${a.writer}`,
+    `size     ${a.fileBytes} bytes for ${a.fields.length} field${a.fields.length === 1 ? '' : 's'}; ${a.rawBytes} raw value bytes; ratio ${a.ratio.toFixed(2)}`,
+  ];
+  if (Object.keys(a.attrs).length > 0) lines.push(`attrs    ${attrsText(a.attrs)}`);
+  for (const f of a.fields) {
+    const grid = `${Math.ceil(f.shape[0] / f.tile[0])} x ${Math.ceil(f.shape[1] / f.tile[1])}`;
+    const range = f.bound.range ? `valid range [${num(f.bound.range[0])}, ${num(f.bound.range[1])}]` : 'no valid values';
+    const ranks = Object.entries(f.rankHistogram).map(([r, n]) => `${r}:${n}`);
+    lines.push(
+      `field '${f.name}'`,
+      `  shape        ${f.shape[0]} x ${f.shape[1]} ${f.dtype}; tiles ${f.tile[0]} x ${f.tile[1]} (${grid} = ${f.tiles} tiles)`,
+      `  bound        ${f.bound.text} -> ${f.bound.limits === 'pointwise' ? 'pointwise limit' : 'RMSE limit'} E = ${num(f.bound.tolerance)} (${range})`,
+      `  missing      ${f.cells - f.validCells} of ${f.cells} cells (NaN, infinities${f.fill === null ? '' : `, fill ${f.fill}`}), kept exactly`,
+      `  payload      ${f.payloadBytes} bytes; ratio ${f.ratio.toFixed(2)}; ${f.bitsPerValue.toFixed(3)} bits per value`,
+      `  achieved     max error ${num(f.achieved.maxErr)}, RMSE ${num(f.achieved.rmse)} (E = ${num(f.bound.tolerance)})`,
+      `  methods      ${Object.entries(f.methods).map(([m, n]) => `${m} ${n}`).join(', ')}`,
+      `  ranks        ${ranks.length > 0 ? ranks.join('  ') : '(no low-rank tiles)'}${f.exactTiles > 0 ? `  | exact: ${f.exactTiles}` : ''}`,
+    );
+    if (Object.keys(f.attrs).length > 0) lines.push(`  attrs        ${attrsText(f.attrs)}`);
+  }
+  return lines.join('\n') + '\n';
+}
+
+/** Register `show` on the program. */
+export function registerShow(program: Command, ctx: Context): void {
+  program
+    .command('show')
+    .summary('describe the fields of an archive')
+    .description(
+      'Describe an archive: per field its shape, dtype, tiles, bound and resolved tolerance E, compression ratio ' +
+        '(raw value bytes / payload bytes; for the whole archive, raw value bytes / file size), bits per value, ' +
+        'the ranks chosen per tile (exact tiles counted apart), and the max error and RMSE recorded at pack time.\n\n' +
+        'Only the header and index are read; use `rankfield check` to verify the tiles.',
+    )
+    .argument('<IN>', 'archive to describe')
+    .option('--json', 'print one JSON object with the same facts')
+    .action(async (input: string, flags: { json?: boolean }) => {
+      await statInput(input);
+      const archive = await openArchive(input);
+      try {
+        const facts = archiveFacts(archive, input);
+        ctx.out(flags.json ? `${JSON.stringify(facts, null, 2)}\n` : factsText(facts));
+      } finally {
+        await archive.close();
+      }
+    });
+}

@@ -1,0 +1,114 @@
+/**
+ * Shared helpers of the command-line tests: build dist/ when it is missing or
+ * older than src/, run `node bin/rankfield ...` in a folder, load the
+ * vega-datasets volcano grid, and assert the one-line error contract.
+ */
+import { execFileSync, spawnSync } from 'node:child_process';
+import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { dirname, join, resolve } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { expect } from 'vitest';
+
+export const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '../..');
+export const BIN = join(ROOT, 'bin', 'rankfield');
+
+function newestMtime(dir: string): number {
+  let newest = 0;
+  for (const entry of readdirSync(dir, { withFileTypes: true })) {
+    const p = join(dir, entry.name);
+    newest = Math.max(newest, entry.isDirectory() ? newestMtime(p) : statSync(p).mtimeMs);
+  }
+  return newest;
+}
+
+/** Compile with tsc when dist/cli/main.js is missing or older than a source file (`npm test` has already built it). */
+export function ensureBuilt(): void {
+  const main = join(ROOT, 'dist', 'cli', 'main.js');
+  if (existsSync(main) && statSync(main).mtimeMs >= newestMtime(join(ROOT, 'src'))) return;
+  execFileSync(process.execPath, [join(ROOT, 'node_modules', 'typescript', 'bin', 'tsc'), '-p', '.'], { cwd: ROOT, stdio: 'inherit' });
+}
+
+export interface RunResult {
+  code: number | null;
+  stdout: string;
+  stderr: string;
+}
+
+/** Run `node bin/rankfield ...args` in `cwd`. */
+export function rf(args: string[], cwd: string, env: NodeJS.ProcessEnv = {}): RunResult {
+  const r = spawnSync(process.execPath, [BIN, ...args], { cwd, encoding: 'utf8', env: { ...process.env, ...env }, timeout: 60_000 });
+  if (r.error) throw r.error;
+  return { code: r.status, stdout: r.stdout, stderr: r.stderr };
+}
+
+/** A fresh temporary folder, and a function that removes it. */
+export function tempDir(prefix = 'rankfield-cli-'): { dir: string; remove: () => void } {
+  const dir = mkdtempSync(join(tmpdir(), prefix));
+  return { dir, remove: () => rmSync(dir, { recursive: true, force: true }) };
+}
+
+/**
+ * The Maunga Whau volcano grid shipped by vega-datasets (data/volcano.json:
+ * 87 wide x 61 high, row-major `values`, heights in metres). Returned as 61 rows x 87 columns.
+ */
+export function volcano(): { values: Float64Array; shape: [number, number] } {
+  const raw = JSON.parse(readFileSync(join(ROOT, 'node_modules', 'vega-datasets', 'data', 'volcano.json'), 'utf8')) as {
+    width: number;
+    height: number;
+    values: number[];
+  };
+  // Source: vega-datasets data/volcano.json (width 87, height 61).
+  expect([raw.width, raw.height, raw.values.length]).toEqual([87, 61, 87 * 61]);
+  return { values: Float64Array.from(raw.values), shape: [raw.height, raw.width] };
+}
+
+/** Assert the error contract: exit 2, exactly one stderr line `rankfield: error: ...` matching `pattern`, no stack trace, nothing on stdout. */
+export function expectCliError(r: RunResult, pattern: RegExp): void {
+  expect(r.code, `stderr: ${r.stderr}`).toBe(2);
+  const lines = r.stderr.trimEnd().split('\n');
+  expect(lines, r.stderr).toHaveLength(1);
+  expect(lines[0]).toMatch(/^rankfield: error: \S/);
+  expect(lines[0]).toMatch(pattern);
+  expect(r.stderr).not.toMatch(/\n\s+at /);
+  expect(r.stdout).toBe('');
+}
+
+/** Names in `dir` that look like leftover temporary output files. */
+export function leftovers(dir: string): string[] {
+  return readdirSync(dir).filter((n) => n.endsWith('.tmp'));
+}
+
+/** Largest |a - b| over cells where the original `a` is a finite valid value (not equal to `fill`). */
+export function maxAbsError(a: ArrayLike<number>, b: ArrayLike<number>, fill: number | null = null): number {
+  let m = 0;
+  for (let i = 0; i < a.length; i++) {
+    if (!Number.isFinite(a[i]) || a[i] === fill) continue;
+    m = Math.max(m, Math.abs(a[i] - b[i]));
+  }
+  return m;
+}
+
+/** Root-mean-square of a - b over the same cells as {@link maxAbsError}. */
+export function rmsError(a: ArrayLike<number>, b: ArrayLike<number>, fill: number | null = null): number {
+  let s = 0;
+  let n = 0;
+  for (let i = 0; i < a.length; i++) {
+    if (!Number.isFinite(a[i]) || a[i] === fill) continue;
+    s += (a[i] - b[i]) ** 2;
+    n++;
+  }
+  return n > 0 ? Math.sqrt(s / n) : 0;
+}
+
+/** Min and max over the same cells as {@link maxAbsError}. */
+export function validRange(a: ArrayLike<number>, fill: number | null = null): [number, number] {
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (let i = 0; i < a.length; i++) {
+    if (!Number.isFinite(a[i]) || a[i] === fill) continue;
+    lo = Math.min(lo, a[i]);
+    hi = Math.max(hi, a[i]);
+  }
+  return [lo, hi];
+}

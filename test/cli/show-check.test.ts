@@ -1,0 +1,163 @@
+/**
+ * `rankfield show` and `rankfield check`: the facts shown agree with the
+ * archive's bytes, check passes on a good archive, fails (exit 1, naming the
+ * tile) on a damaged tile payload or an original that the archive does not
+ * match, and refuses (exit 2) archives whose tail, header or index is damaged.
+ */
+import { readFileSync, statSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { open } from '../../src/index.js';
+import { formatNpy } from '../../src/io/npy.js';
+import { formatRaw } from '../../src/io/raw.js';
+import { ensureBuilt, expectCliError, rf, tempDir, validRange, volcano } from './helpers.js';
+
+const { dir, remove } = tempDir();
+const vol = volcano();
+const [ROWS, COLS] = vol.shape;
+const path = (name: string) => join(dir, name);
+
+beforeAll(() => {
+  ensureBuilt();
+  writeFileSync(path('volcano.npy'), formatNpy({ data: vol.values, shape: [ROWS, COLS], dtype: 'f64' }));
+  const r = rf(['pack', 'volcano.npy', '-o', 'v.rfz', '--bound', 'rel:1e-3', '--tile', '32'], dir);
+  expect(r.code, r.stderr).toBe(0);
+});
+afterAll(remove);
+
+/** Copy v.rfz to `name` with one byte flipped at `offset` (negative: from the end). */
+function damaged(name: string, offset: number): void {
+  const bytes = new Uint8Array(readFileSync(path('v.rfz')));
+  const at = offset < 0 ? bytes.length + offset : offset;
+  bytes[at] ^= 0xff;
+  writeFileSync(path(name), bytes);
+}
+
+describe('show', () => {
+  it('prints the facts of each field as text', () => {
+    const r = rf(['show', 'v.rfz'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/field 'volcano'/);
+    expect(r.stdout).toMatch(/shape +61 x 87 f64; tiles 32 x 32 \(2 x 3 = 6 tiles\)/);
+    expect(r.stdout).toMatch(/bound +rel:0\.001 -> pointwise limit E = 0\.101 /); // 1e-3 x (195 - 94): the volcano's height range
+    expect(r.stdout).toMatch(/ratio \d+\.\d\d; \d+\.\d{3} bits per value/);
+    expect(r.stdout).toMatch(/achieved +max error [0-9.e-]+, RMSE [0-9.e-]+/);
+    expect(r.stdout).toMatch(/methods +/);
+    expect(r.stdout).toMatch(/ranks +/);
+  });
+
+  it('--json gives the same facts, consistent with the file and the index', async () => {
+    const r = rf(['show', 'v.rfz', '--json'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    const facts = JSON.parse(r.stdout);
+    const bytes = new Uint8Array(readFileSync(path('v.rfz')));
+    const archive = await open(bytes);
+    const ix = archive.index.fields[0];
+    const payload = ix.length.reduce((a, b) => a + b, 0);
+    const f = facts.fields[0];
+    expect(facts.fileBytes).toBe(statSync(path('v.rfz')).size);
+    expect(facts.rawBytes).toBe(ROWS * COLS * 8);
+    expect(facts.ratio).toBeCloseTo((ROWS * COLS * 8) / bytes.length, 12);
+    expect([f.name, f.shape, f.dtype, f.tile, f.tiles]).toEqual(['volcano', [61, 87], 'f64', [32, 32], 6]);
+    const [lo, hi] = validRange(vol.values);
+    expect([lo, hi]).toEqual([94, 195]); // the Maunga Whau heights span 94..195 m (from memory; also R's datasets::volcano)
+    expect(f.bound).toMatchObject({ mode: 'rel', value: 1e-3, limits: 'pointwise', range: [94, 195] });
+    expect(f.bound.tolerance).toBeCloseTo(1e-3 * (hi - lo), 12);
+    expect(f.payloadBytes).toBe(payload);
+    expect(f.ratio).toBeCloseTo((ROWS * COLS * 8) / payload, 12);
+    expect(f.bitsPerValue).toBeCloseTo((payload * 8) / (ROWS * COLS), 12);
+    expect(f.achieved).toEqual({ maxErr: ix.summary.max_err, rmse: ix.summary.rmse });
+    const ranked = Object.values(f.rankHistogram as Record<string, number>).reduce((a, b) => a + b, 0);
+    expect(ranked + f.exactTiles).toBe(6);
+    expect(Object.values(f.methods as Record<string, number>).reduce((a, b) => a + b, 0)).toBe(6);
+    for (const [rank, n] of Object.entries(f.rankHistogram as Record<string, number>)) {
+      expect(ix.rank.filter((x, t) => ix.method[t] !== 0 && x === Number(rank))).toHaveLength(n);
+    }
+  });
+});
+
+describe('check', () => {
+  it('passes on a good archive (exit 0), with and without the original', () => {
+    const a = rf(['check', 'v.rfz'], dir);
+    expect(a.code, a.stdout + a.stderr).toBe(0);
+    expect(a.stdout).toMatch(/check passed/);
+    const b = rf(['check', 'v.rfz', '--against', 'volcano.npy'], dir);
+    expect(b.code, b.stdout + b.stderr).toBe(0);
+    expect(b.stdout).toMatch(/measured +max error .*; missing cells identical/);
+    const j = JSON.parse(rf(['check', 'v.rfz', '--against', 'volcano.npy', '--json'], dir).stdout);
+    expect(j.ok).toBe(true);
+    expect(j.failures).toEqual([]);
+    expect(j.fields[0].measured.maxErr).toBeLessThanOrEqual(j.fields[0].tolerance);
+  });
+
+  it('accepts a raw original, taking shape and dtype from the field unless given', () => {
+    writeFileSync(path('volcano.f64'), formatRaw({ data: vol.values, shape: [ROWS, COLS], dtype: 'f64' }));
+    expect(rf(['check', 'v.rfz', '--against', 'volcano.f64'], dir).code).toBe(0);
+    expect(rf(['check', 'v.rfz', '--against', 'volcano.f64', '--shape', '61x87', '--dtype', 'f64'], dir).code).toBe(0);
+  });
+
+  it('fails (exit 1) when the original differs from the archive beyond the bound, naming field and tile', () => {
+    const moved = Float64Array.from(vol.values);
+    const [i, j] = [40, 70]; // tile row 1, tile column 2 of a 2 x 3 grid of 32 x 32 tiles: tile 5
+    moved[i * COLS + j] += 1;
+    writeFileSync(path('moved.npy'), formatNpy({ data: moved, shape: [ROWS, COLS], dtype: 'f64' }));
+    const r = rf(['check', 'v.rfz', '--against', 'moved.npy'], dir);
+    expect(r.code).toBe(1);
+    expect(r.stdout).toMatch(/FAIL field 'volcano' tile 5: measured max error [0-9.]+ exceeds the bound/);
+    expect(r.stdout).toMatch(/check FAILED: 1 problem/);
+    const json = JSON.parse(rf(['check', 'v.rfz', '--against', 'moved.npy', '--json'], dir).stdout);
+    expect(json.ok).toBe(false);
+    expect(json.failures.map((f: { field: string; tile: number }) => [f.field, f.tile])).toEqual([['volcano', 5]]);
+  });
+
+  it('refuses (exit 2) an original of the wrong shape or dtype', () => {
+    writeFileSync(path('small.npy'), formatNpy({ data: new Float64Array(12), shape: [3, 4], dtype: 'f64' }));
+    expectCliError(rf(['check', 'v.rfz', '--against', 'small.npy'], dir), /original 'small\.npy' is 3x4, but field 'volcano' of 'v\.rfz' is 61x87/);
+    writeFileSync(path('v32.npy'), formatNpy({ data: Float32Array.from(vol.values), shape: [ROWS, COLS], dtype: 'f32' }));
+    expectCliError(rf(['check', 'v.rfz', '--against', 'v32.npy'], dir), /holds f32 values, but field 'volcano' of 'v\.rfz' is f64/);
+    expectCliError(rf(['check', 'v.rfz', '--against', 'volcano.f64', '--shape', '87x61'], dir), /original 'volcano\.f64' is 87x61/);
+    expectCliError(rf(['check', 'v.rfz', '--shape', '61x87'], dir), /--shape describe the original, which needs --against/);
+  });
+
+  it('a flipped byte in a tile payload is a check failure (exit 1) naming the tile; unpack refuses it (exit 2)', async () => {
+    const archive = await open(new Uint8Array(readFileSync(path('v.rfz'))));
+    const ix = archive.index.fields[0];
+    const t = 3;
+    damaged('tile.rfz', ix.offset[t] + Math.floor(ix.length[t] / 2));
+    const r = rf(['check', 'tile.rfz'], dir);
+    expect(r.code).toBe(1);
+    expect(r.stdout).toMatch(new RegExp(`FAIL field 'volcano' tile ${t}: payload CRC-32 mismatch`));
+    expectCliError(rf(['unpack', 'tile.rfz', '-o', 'tile.npy'], dir), new RegExp(`field 'volcano' tile ${t}: payload CRC-32 mismatch`));
+    expect(rf(['show', 'tile.rfz'], dir).code).toBe(0); // show reads only the header and index
+  });
+
+  it('a flipped byte in the tail or the header is exit 2, for check, show and unpack', async () => {
+    damaged('tail.rfz', -20);
+    for (const cmd of [['check', 'tail.rfz'], ['show', 'tail.rfz'], ['unpack', 'tail.rfz', '-o', 'tail.npy']]) {
+      expectCliError(rf(cmd, dir), /tail\.rfz: tail CRC-32 mismatch/);
+    }
+    const bytes = new Uint8Array(readFileSync(path('v.rfz')));
+    const headerOffset = Number(new DataView(bytes.buffer, bytes.byteOffset + bytes.length - 48, 8).getBigUint64(0, true));
+    damaged('header.rfz', headerOffset + 3);
+    expectCliError(rf(['check', 'header.rfz'], dir), /header\.rfz: header CRC-32 mismatch/);
+  });
+
+  it('a truncated archive, a non-archive and an empty file are exit 2', () => {
+    const bytes = readFileSync(path('v.rfz'));
+    writeFileSync(path('cut.rfz'), bytes.subarray(0, bytes.length - 10));
+    expectCliError(rf(['check', 'cut.rfz'], dir), /cut\.rfz: no archive tail at the end of the file \(truncated/);
+    expectCliError(rf(['check', 'volcano.npy'], dir), /volcano\.npy: not a rankfield archive/);
+    writeFileSync(path('empty.rfz'), '');
+    expectCliError(rf(['check', 'empty.rfz'], dir), /'empty\.rfz' is empty \(0 bytes\)/);
+    expectCliError(rf(['check', 'missing.rfz'], dir), /cannot read 'missing\.rfz': no such file or directory/);
+  });
+
+  it('check --help documents the exit codes and the payload / tail distinction', () => {
+    const r = rf(['check', '--help'], dir);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/0 +every tile holds its bound/);
+    expect(r.stdout).toMatch(/1 +the check failed/);
+    expect(r.stdout).toMatch(/2 +unusable input/);
+    expect(r.stdout).toMatch(/A damaged tile payload is a check failure \(exit 1\); damage to the tail,\s+header or index is exit 2/);
+  });
+});

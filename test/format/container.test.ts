@@ -1,0 +1,363 @@
+/**
+ * Corrupted and foreign archives at library level: open(), read() and
+ * check() either succeed or reject with FormatError (with a code), and
+ * nothing else ever escapes. The layout used below to aim at each region is
+ * the one the writer documents in src/format/container.ts: a 16-byte
+ * prologue (8 magic bytes, u16 version, u16 required flags, u32 reserved),
+ * the tile payloads, the header and index (MessagePack), and a 48-byte tail
+ * (u64 header offset, u32 length, u32 CRC, u64 index offset, u32 length,
+ * u32 CRC, u16 version, u16 flags, u32 CRC of the 36 bytes before, 8 magic
+ * bytes), all little-endian.
+ */
+import { decode, encode } from '@msgpack/msgpack';
+import { describe, expect, it } from 'vitest';
+import { open } from '../../src/archive.js';
+import { FormatCode, FormatError } from '../../src/errors.js';
+import { crc32 } from '../../src/format/crc32.js';
+import { pack } from '../../src/pack.js';
+
+const CODES = new Set<string>(Object.values(FormatCode));
+const TAIL = 48;
+
+/** A small archive: 4 tiles of a 6x7 f64 field with a NaN and a fill cell, low-rank payloads. */
+function smallLowRank(): Uint8Array {
+  const v = new Float64Array(6 * 7).map((_, i) => Math.sin(i / 3));
+  v[4] = NaN;
+  v[20] = -999;
+  return pack(v, [6, 7], { bound: 'rel:1e-2', tile: [3, 4], fill: -999, name: 'sample' });
+}
+
+/** A small archive of exact payloads (f32, bound finer than the precision). */
+function smallExact(): Uint8Array {
+  const v = Float32Array.from({ length: 5 * 6 }, (_, i) => Math.cos(i) * 100);
+  return pack(v, [5, 6], { bound: 'abs:1e-9', tile: [3, 3], name: 'exact' });
+}
+
+/** A small archive whose one tile stores low-rank factors (rank > 0) and a residual. */
+function smallFactors(): Uint8Array {
+  const v = new Float64Array(16 * 16);
+  for (let i = 0; i < 16; i++) for (let j = 0; j < 16; j++) v[i * 16 + j] = Math.sin(i / 3) * Math.cos(j / 4) + 0.3 * Math.cos(i / 2) * Math.sin(j / 5);
+  return pack(v, [16, 16], { bound: 'abs:1e-3', tile: 16, name: 'factors' });
+}
+
+interface Layout {
+  headerOffset: number;
+  headerLength: number;
+  indexOffset: number;
+  indexLength: number;
+  tailOffset: number;
+}
+
+function layout(b: Uint8Array): Layout {
+  const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
+  const t = b.length - TAIL;
+  return {
+    headerOffset: d.getUint32(t, true) + d.getUint32(t + 4, true) * 2 ** 32,
+    headerLength: d.getUint32(t + 8, true),
+    indexOffset: d.getUint32(t + 16, true) + d.getUint32(t + 20, true) * 2 ** 32,
+    indexLength: d.getUint32(t + 24, true),
+    tailOffset: t,
+  };
+}
+
+/** Recompute the tail's own CRC after editing its first 36 bytes. */
+function resealTail(b: Uint8Array): void {
+  const t = b.length - TAIL;
+  new DataView(b.buffer, b.byteOffset).setUint32(t + 36, crc32(b.subarray(t, t + 36)), true);
+}
+
+/**
+ * Rebuild an archive with the same payload region and a changed header and/or
+ * index, every CRC and offset recomputed, so that only the content is wrong.
+ */
+function rebuild(b: Uint8Array, edit: { header?: (h: any) => void; index?: (ix: any) => void; payload?: (p: Uint8Array) => void }): Uint8Array {
+  const l = layout(b);
+  const payloadEnd = Math.min(l.headerOffset, l.indexOffset);
+  const payloads = b.slice(0, payloadEnd);
+  edit.payload?.(payloads.subarray(16));
+  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as any;
+  const index = decode(b.subarray(l.indexOffset, l.indexOffset + l.indexLength)) as any;
+  edit.header?.(header);
+  edit.index?.(index);
+  const hb = encode(header);
+  const ib = encode(index);
+  const out = new Uint8Array(payloadEnd + hb.length + ib.length + TAIL);
+  out.set(payloads);
+  out.set(hb, payloadEnd);
+  out.set(ib, payloadEnd + hb.length);
+  const tail = b.subarray(l.tailOffset);
+  const t = out.length - TAIL;
+  out.set(tail, t);
+  const d = new DataView(out.buffer);
+  d.setUint32(t, payloadEnd, true);
+  d.setUint32(t + 4, 0, true);
+  d.setUint32(t + 8, hb.length, true);
+  d.setUint32(t + 12, crc32(hb), true);
+  d.setUint32(t + 16, payloadEnd + hb.length, true);
+  d.setUint32(t + 20, 0, true);
+  d.setUint32(t + 24, ib.length, true);
+  d.setUint32(t + 28, crc32(ib), true);
+  resealTail(out);
+  return out;
+}
+
+/** The error of a full open + read of every field, or null when all succeed. */
+async function readAll(b: Uint8Array): Promise<unknown> {
+  try {
+    const a = await open(b);
+    for (const name of a.names) await a.read(name);
+    return null;
+  } catch (e) {
+    return e;
+  }
+}
+
+function expectFormatError(e: unknown, code?: string, message?: RegExp): asserts e is FormatError {
+  if (!(e instanceof FormatError)) throw new Error(`expected a FormatError, got ${e === null ? 'success' : String((e as Error)?.stack ?? e)}`);
+  expect(CODES.has(e.code), `unknown code ${e.code}`).toBe(true);
+  if (code) expect(e.code).toBe(code);
+  if (message) expect(e.message).toMatch(message);
+}
+
+/** The tile whose payload holds byte offset `at`, or -1. */
+async function tileAt(b: Uint8Array, at: number): Promise<number> {
+  const ix = (await open(b)).index.fields[0];
+  return ix.offset.findIndex((o, t) => at >= o && at < o + ix.length[t]);
+}
+
+describe('well-formed archives', () => {
+  it('the sample archives are a few hundred bytes, open and check clean', async () => {
+    for (const b of [smallLowRank(), smallExact(), smallFactors()]) {
+      expect(b.length).toBeGreaterThan(200);
+      expect(b.length).toBeLessThan(1000);
+      expect(await readAll(b)).toBeNull();
+      expect((await (await open(b)).check()).ok).toBe(true);
+    }
+    expect((await open(smallLowRank())).index.fields[0].method).toContain(1);
+    expect((await open(smallExact())).index.fields[0].method.every((m) => m === 0)).toBe(true);
+    // If the encoder stops choosing factors here, pick another sample: the sweeps below rely on it.
+    expect((await open(smallFactors())).index.fields[0].rank[0], 'smallFactors() has no factors').toBeGreaterThan(0);
+  });
+
+  it('rebuild() with no edit gives an archive that reads the same', async () => {
+    const b = smallLowRank();
+    const r = rebuild(b, {});
+    const x = await (await open(b)).read();
+    const y = await (await open(r)).read();
+    expect(Buffer.from(y.values.buffer).equals(Buffer.from(x.values.buffer))).toBe(true);
+  });
+});
+
+describe('prologue and tail', () => {
+  it('bad magic at the start is refused with bad-magic', async () => {
+    for (let i = 0; i < 8; i++) {
+      const b = smallLowRank();
+      b[i] ^= 0x20;
+      expectFormatError(await readAll(b), FormatCode.BadMagic);
+    }
+  });
+
+  it('files that are not archives are refused', async () => {
+    const png = Uint8Array.of(0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a, ...new Array(100).fill(0)); // PNG signature (from memory)
+    expectFormatError(await readAll(png), FormatCode.BadMagic);
+    expectFormatError(await readAll(new Uint8Array(0)), FormatCode.Truncated);
+    expectFormatError(await readAll(new TextEncoder().encode('rankfield archive? no, just text '.repeat(4))), FormatCode.BadMagic);
+    const zeros = new Uint8Array(500);
+    expectFormatError(await readAll(zeros), FormatCode.BadMagic);
+  });
+
+  for (const version of [0, 2, 3, 0x100, 0xffff]) {
+    it(`format version ${version} is refused as unsupported, naming the versions known`, async () => {
+      const b = smallLowRank();
+      new DataView(b.buffer).setUint16(8, version, true);
+      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`version ${version} .*knows 1\\b`));
+      // The same with the tail agreeing and resealed: still refused for the version.
+      const c = smallLowRank();
+      new DataView(c.buffer).setUint16(8, version, true);
+      new DataView(c.buffer).setUint16(c.length - TAIL + 32, version, true);
+      resealTail(c);
+      expectFormatError(await readAll(c), FormatCode.Unsupported, /knows 1\b/);
+    });
+  }
+
+  for (const flags of [0x0001, 0x0002, 0x8000, 0xffff]) {
+    it(`unknown required flags 0x${flags.toString(16)} are refused as unsupported`, async () => {
+      const b = smallLowRank();
+      new DataView(b.buffer).setUint16(10, flags, true);
+      new DataView(b.buffer).setUint16(b.length - TAIL + 34, flags, true);
+      resealTail(b);
+      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`0x${flags.toString(16)}`));
+    });
+  }
+
+  it('a tail whose version disagrees with the prologue is refused', async () => {
+    const b = smallLowRank();
+    new DataView(b.buffer).setUint16(b.length - TAIL + 32, 2, true);
+    resealTail(b);
+    expectFormatError(await readAll(b));
+  });
+
+  it('tail offsets pointing outside the file are refused', async () => {
+    for (const [at, value] of [
+      [0, 0],
+      [0, 2 ** 31],
+      [8, 2 ** 30],
+      [16, 3],
+      [24, 0xffffffff],
+      [20, 0x00200000], // high word: offset above 2^53
+    ]) {
+      const b = smallLowRank();
+      new DataView(b.buffer).setUint32(b.length - TAIL + at, value, true);
+      resealTail(b);
+      expectFormatError(await readAll(b));
+    }
+  });
+
+  it('tiny reader limits are enforced with code limit', async () => {
+    const b = smallLowRank();
+    let e: unknown = null;
+    try {
+      await open(b, { limits: { maxHeaderBytes: 10 } });
+    } catch (x) {
+      e = x;
+    }
+    expectFormatError(e, FormatCode.Limit);
+  });
+});
+
+describe('tile payload corruption', () => {
+  it('a flipped payload byte makes read() fail with checksum naming the tile, and check() report it', async () => {
+    const b = smallLowRank();
+    const ix = (await open(b)).index.fields[0];
+    for (let t = 0; t < ix.offset.length; t++) {
+      const c = b.slice();
+      c[ix.offset[t] + Math.floor(ix.length[t] / 2)] ^= 0x01;
+      const a = await open(c); // payloads are not read by open()
+      const e = await a.read().then(
+        () => null,
+        (x: unknown) => x,
+      );
+      expectFormatError(e, FormatCode.Checksum, new RegExp(`field 'sample' tile ${t}\\b`));
+      const report = await a.check();
+      expect(report.ok).toBe(false);
+      expect(report.failures.map((f) => f.tile)).toEqual([t]);
+      expect(report.failures[0].field).toBe('sample');
+    }
+  });
+
+  it('payload bytes changed with a matching CRC: read() returns or throws FormatError, check() never throws', async () => {
+    // Every byte of every payload, each XORed with 0xFF, the index CRC recomputed:
+    // this reaches the tile decoder itself with arbitrary bytes.
+    for (const base of [smallLowRank(), smallExact(), smallFactors()]) {
+      const ix = (await open(base)).index.fields[0];
+      const payloadEnd = Math.min(layout(base).headerOffset, layout(base).indexOffset);
+      for (let at = 16; at < payloadEnd; at++) {
+        const c = rebuild(base, {
+          payload: (p) => {
+            p[at - 16] ^= 0xff;
+          },
+          index: (x) => {
+            const f = x.fields[0];
+            f.crc = f.offset.map((o: number, t: number) => crc32(base.subarray(o, o + f.length[t]).map((v, k) => (o + k === at ? v ^ 0xff : v))));
+          },
+        });
+        const e = await readAll(c);
+        if (e !== null) expectFormatError(e);
+        const report = await (await open(c)).check();
+        const t = ix.offset.findIndex((o, k) => at >= o && at < o + ix.length[k]);
+        // A change the decoder accepts must still be caught by the decoded-value CRC,
+        // unless the decoded values are bit-identical.
+        if (!report.ok) expect(report.failures.every((f) => f.tile === t)).toBe(true);
+        if (e !== null) expect(report.ok).toBe(false);
+      }
+    }
+  }, 60_000);
+});
+
+describe('header and index with valid CRCs but bad contents', () => {
+  const cases: [string, { header?: (h: any) => void; index?: (ix: any) => void }][] = [
+    ['header an empty map', { header: (h) => Object.keys(h).forEach((k) => delete h[k]) }],
+    ['header format name', { header: (h) => (h.format = 'other') }],
+    ['no fields list', { header: (h) => delete h.fields }],
+    ['dtype unknown', { header: (h) => (h.fields[0].dtype = 'f16') }],
+    ['shape of zero rows', { header: (h) => (h.fields[0].shape = [0, 7]) }],
+    ['shape not integers', { header: (h) => (h.fields[0].shape = [6.5, 7]) }],
+    ['shape changes the tile count', { header: (h) => (h.fields[0].shape = [60, 7]) }],
+    ['tile of zero', { header: (h) => (h.fields[0].tile = [0, 4]) }],
+    ['huge field', { header: (h) => (h.fields[0].shape = [2 ** 30, 2 ** 30]) }],
+    ['bound mode unknown', { header: (h) => (h.fields[0].bound.mode = 'ratio') }],
+    ['negative tolerance', { header: (h) => (h.fields[0].bound.tolerance = -1) }],
+    ['duplicate field names', { header: (h) => h.fields.push(h.fields[0]) }],
+    ['fill a string', { header: (h) => (h.fields[0].fill = 'none') }],
+    ['index fields count', { index: (ix) => ix.fields.push(ix.fields[0]) }],
+    ['index column too short', { index: (ix) => ix.fields[0].offset.pop() }],
+    ['index column missing', { index: (ix) => delete ix.fields[0].crc }],
+    ['payload offset before the payloads', { index: (ix) => (ix.fields[0].offset[0] = 3) }],
+    ['payload past the payload region', { index: (ix) => (ix.fields[0].length[3] = 10_000) }],
+    ['payload length 0', { index: (ix) => (ix.fields[0].length[1] = 0) }],
+    ['non-integer offset', { index: (ix) => (ix.fields[0].offset[2] += 0.5) }],
+    ['crc out of range', { index: (ix) => (ix.fields[0].crc[0] = -1) }],
+    ['value crc a string', { index: (ix) => (ix.fields[0].value_crc[0] = 'x') }],
+    ['no summary', { index: (ix) => delete ix.fields[0].summary }],
+  ];
+  for (const [what, edit] of cases) {
+    it(what, async () => {
+      expectFormatError(await readAll(rebuild(smallLowRank(), edit)), undefined);
+    });
+  }
+
+  it('a payload offset moved onto another tile fails the checksum of that tile', async () => {
+    const c = rebuild(smallLowRank(), { index: (ix) => (ix.fields[0].offset[1] = ix.fields[0].offset[0]) });
+    expectFormatError(await readAll(c), FormatCode.Checksum, /tile 1\b/);
+  });
+});
+
+describe('sweeps', () => {
+  for (const [name, make] of [
+    ['low-rank', smallLowRank],
+    ['exact', smallExact],
+    ['factors', smallFactors],
+  ] as const) {
+    it(`${name}: truncation at every length is refused with FormatError`, async () => {
+      const b = make();
+      for (let n = 0; n < b.length; n++) expectFormatError(await readAll(b.slice(0, n)));
+    });
+
+    it(`${name}: flipping any byte outside the reserved prologue word is refused with FormatError`, async () => {
+      const b = make();
+      const l = layout(b);
+      for (const mask of [0x01, 0x80, 0xff]) {
+        for (let at = 0; at < b.length; at++) {
+          if (at >= 12 && at < 16) continue; // reserved bytes: see the test below
+          const c = b.slice();
+          c[at] ^= mask;
+          const e = await readAll(c);
+          expectFormatError(e);
+          if (at >= 16 && at < Math.min(l.headerOffset, l.indexOffset)) {
+            // Inside a payload: open() succeeds, read() reports the tile's checksum.
+            expect(e.code).toBe(FormatCode.Checksum);
+            expect(e.message).toMatch(new RegExp(`tile ${await tileAt(b, at)}\\b`));
+          }
+          // check() never throws a FormatError for payloads: it reports them.
+          let opened = null;
+          try {
+            opened = await open(c);
+          } catch (x) {
+            expectFormatError(x);
+          }
+          if (opened) expect((await opened.check()).ok).toBe(false);
+        }
+      }
+    }, 60_000);
+
+    // BUG (reported): the 4 reserved bytes of the prologue (offsets 12..15) are covered
+    // by no CRC and not required to be zero, so a corrupted reserved word goes unnoticed.
+    it.fails(`${name}: flipping a reserved prologue byte is refused`, async () => {
+      for (let at = 12; at < 16; at++) {
+        const c = make();
+        c[at] ^= 0xff;
+        expectFormatError(await readAll(c));
+      }
+    });
+  }
+});
