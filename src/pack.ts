@@ -1,6 +1,6 @@
 /** Writing archives: {@link pack} one field to bytes, or build a many-field archive with {@link ArchiveBuilder}. */
 import { checkBound, parseBound } from './codec/bound.js';
-import { encodeField, type FieldSpec } from './codec/field.js';
+import { encodeField, memoryBands, type BandSource, type FieldSpec } from './codec/field.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, MemorySink, VERSION, type Sink } from './format/container.js';
 import { attrsProblem, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
@@ -29,18 +29,18 @@ export const MAX_TILE_SIDE = 4096;
 /** Largest tile area accepted (cells); readers refuse more by default. */
 export const MAX_TILE_CELLS = 1 << 20;
 
-function options(values: FloatArray | number[], shape: readonly number[], o: PackOptions): { spec: FieldSpec; data: FloatArray } {
+function options(values: FloatArray | number[], shape: readonly number[], o: PackOptions, withValues = true): { spec: FieldSpec; data: FloatArray } {
   if (!Array.isArray(shape) || shape.length !== 2 || !shape.every((d) => Number.isInteger(d) && d >= 1)) {
     throw new InputError(InputCode.Shape, `shape must be [rows, cols] of positive integers, got ${JSON.stringify(shape)}`);
   }
   const [rows, cols] = shape;
-  if (values.length !== rows * cols) {
+  if (withValues && values.length !== rows * cols) {
     throw new InputError(InputCode.Shape, `shape ${rows}x${cols} needs ${rows * cols} values, got ${values.length}`);
   }
   const dtype: Dtype = o.dtype ?? (values instanceof Float32Array ? 'f32' : 'f64');
   if (dtype !== 'f32' && dtype !== 'f64') throw new InputError(InputCode.Dtype, `dtype must be f32 or f64, got ${String(dtype)}`);
   const want = dtype === 'f32' ? Float32Array : Float64Array;
-  const data = values instanceof want ? values : want.from(values);
+  const data = !withValues || values instanceof want ? (values as FloatArray) : want.from(values);
   const tile = o.tile ?? 64;
   const [tr, tc] = typeof tile === 'number' ? [tile, tile] : tile;
   for (const t of [tr, tc]) {
@@ -71,12 +71,35 @@ export class ArchiveBuilder {
     this.writer = new ContainerWriter(sink);
   }
 
-  /** Encode and append one field. */
+  /** Encode and append one field held in memory (row-major). */
   add(values: FloatArray | number[], shape: readonly number[], o: PackOptions): FieldHeader {
     const { spec, data } = options(values, shape, o);
+    return this.encode(memoryBands(data, spec.cols), spec, o);
+  }
+
+  /**
+   * Encode and append one field read band by band (rows [r0, r0 + count) at
+   * a time), so its whole values never need to be in memory. `band` may be
+   * called more than once for the same rows (range pass, L2 planning).
+   */
+  addBands(band: (r0: number, count: number) => FloatArray, shape: readonly number[], dtype: Dtype, o: PackOptions): FieldHeader {
+    const { spec } = options(new Float32Array(0), shape, { ...o, dtype }, false);
+    const check: BandSource = {
+      band: (r0, count) => {
+        const b = band(r0, count);
+        if (b.length !== count * spec.cols || !(dtype === 'f32' ? b instanceof Float32Array : b instanceof Float64Array)) {
+          throw new InputError(InputCode.Shape, `band of rows ${r0}..${r0 + count} holds ${b.length} ${b.constructor.name} values, not ${count * spec.cols} ${dtype}`);
+        }
+        return b;
+      },
+    };
+    return this.encode(check, spec, o);
+  }
+
+  private encode(src: BandSource, spec: FieldSpec, o: PackOptions): FieldHeader {
     if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
     const ix: FieldIndex = { offset: [], length: [], crc: [], method: [], rank: [], valid: [], max_err: [], rmse: [], value_crc: [], summary: { valid: 0, max_err: 0, rmse: 0 } };
-    const result = encodeField(data, spec, (_t, tile) => {
+    const result = encodeField(src, spec, (_t, tile) => {
       const ref = this.writer.addPayload(tile.payload);
       ix.offset.push(ref.offset);
       ix.length.push(ref.length);

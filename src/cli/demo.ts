@@ -4,7 +4,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import type { Command } from 'commander';
 import { BASIN_DEFAULTS, corvaneBasin } from '../demo/basin.js';
-import { formatBound, isPointwise, pack, parseBound, type Bound } from '../index.js';
+import { isPointwise, pack, parseBound, type Bound } from '../index.js';
 import { formatNpy } from '../io/npy.js';
 import { Exit, fileError } from './errors.js';
 import { checkOutput, openArchive, writeOutput } from './files.js';
@@ -22,6 +22,7 @@ interface DemoFlags {
 }
 
 interface Row {
+  text: string;
   bound: Bound;
   bytes: number;
   rawBytes: number;
@@ -57,6 +58,7 @@ async function runBound(text: string, values: Float32Array, shape: [number, numb
     const h = archive.field('sst').header;
     const span = h.bound.range ? h.bound.range[1] - h.bound.range[0] : NaN;
     return {
+      text,
       bound,
       bytes: bytes.length,
       rawBytes: values.byteLength,
@@ -66,7 +68,7 @@ async function runBound(text: string, values: Float32Array, shape: [number, numb
       packMs: t1 - t0,
       unpackMs: t2 - t1,
       ok: report.ok,
-      failures: report.failures.map((x) => `${formatBound(bound)}: field '${x.field}' tile ${x.tile}: ${x.what}`),
+      failures: report.failures.map((x) => `${text}: field '${x.field}' tile ${x.tile}: ${x.what}`),
     };
   } finally {
     await archive.close();
@@ -113,7 +115,7 @@ export function registerDemo(program: Command, ctx: Context): void {
         const results: Row[] = [];
         for (const text of DEMO_BOUNDS) results.push(await runBound(text, basin.values, shape, basin.fill, basin.attrs, dir, force));
         const body = results.map((r) => [
-          formatBound(r.bound),
+          r.text,
           String(r.bytes),
           ratio(r.rawBytes, r.bytes),
           `${r.fraction.toFixed(3)} (${isPointwise(r.bound.mode) ? 'max' : 'RMSE'})`,

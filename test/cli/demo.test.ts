@@ -20,7 +20,7 @@ describe('rankfield demo', () => {
     expect(r.stdout).toMatch(/Corvane Basin/);
     expect(r.stdout).toMatch(/bound +bytes +ratio +error \/ E +RMSE degC +PSNR dB +pack +unpack +check/);
     const rows = r.stdout.split('\n').filter((l) => /^(rel|psnr):/.test(l));
-    expect(rows.map((l) => l.split(/\s+/)[0])).toEqual(['rel:0.01', 'rel:0.001', 'rel:0.0001', 'psnr:60']);
+    expect(rows.map((l) => l.split(/\s+/)[0])).toEqual(['rel:1e-2', 'rel:1e-3', 'rel:1e-4', 'psnr:60']);
     for (const row of rows) {
       expect(row).toMatch(/ ok$/);
       const fraction = Number(/ (\d+\.\d+) \((max|RMSE)\)/.exec(row)?.[1]);

@@ -3,9 +3,11 @@
  * `rankfield: error: ...`, exit code 2, no stack trace, and no output file
  * (nor a leftover temporary file).
  */
-import { existsSync, mkdirSync, readdirSync, writeFileSync } from 'node:fs';
+import { chmodSync, existsSync, mkdirSync, readdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { fileError, oneLine } from '../../src/cli/errors.js';
+import { FormatCode, FormatError } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { formatRaw } from '../../src/io/raw.js';
 import { ensureBuilt, expectCliError, leftovers, rf, tempDir } from './helpers.js';
@@ -108,5 +110,29 @@ describe('--debug', () => {
     expect(r.code, r.stderr).toBe(0);
     expect(existsSync(join(dir, 'dbg.rfz'))).toBe(true);
     expect(leftovers(dir)).toEqual([]);
+  });
+});
+
+describe('file system errors', () => {
+  /** A Node system error as fs/promises raises it. */
+  const sysError = (code: string, errno: number, message: string) => Object.assign(new Error(`${code}: ${message}, open 'x.npy'`), { code, errno, syscall: 'open', path: 'x.npy' });
+
+  it('are phrased with the action and the path', () => {
+    expect(oneLine(fileError(sysError('EACCES', -13, 'permission denied'), 'read', 'x.npy'))).toBe("cannot read 'x.npy': permission denied");
+    expect(oneLine(fileError(sysError('ENOSPC', -28, 'no space left on device'), 'write', 'o.rfz'))).toBe("cannot write 'o.rfz': no space left on the device");
+    expect(oneLine(sysError('EMFILE', -24, 'too many open files'))).toBe("'x.npy': too many open files");
+  });
+
+  it('leave the library errors alone', () => {
+    const e = new FormatError(FormatCode.Truncated, 'a.rfz: too short');
+    expect(fileError(e, 'read', 'a.rfz')).toBe(e);
+    expect(oneLine(e)).toBe('a.rfz: too short');
+    expect(oneLine(new Error('boom\nsecond line'))).toBe('internal error: boom second line (rerun with --debug for the stack trace, and please report it)');
+  });
+
+  it.skipIf(process.getuid?.() === 0)('an unreadable input is refused with the path (not testable as root)', () => {
+    writeFileSync(join(dir, 'locked.npy'), formatNpy({ data: field, shape: [12, 20], dtype: 'f32' }));
+    chmodSync(join(dir, 'locked.npy'), 0o000);
+    expectCliError(rf(['pack', 'locked.npy', '-o', 'locked.rfz', '--bound', 'abs:1'], dir), /cannot read 'locked\.npy': permission denied/);
   });
 });

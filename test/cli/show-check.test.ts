@@ -7,7 +7,7 @@
 import { readFileSync, statSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { open } from '../../src/index.js';
+import { ArchiveBuilder, MemorySink, open } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { formatRaw } from '../../src/io/raw.js';
 import { ensureBuilt, expectCliError, rf, tempDir, validRange, volcano } from './helpers.js';
@@ -159,5 +159,25 @@ describe('check', () => {
     expect(r.stdout).toMatch(/1 +the check failed/);
     expect(r.stdout).toMatch(/2 +unusable input/);
     expect(r.stdout).toMatch(/A damaged tile payload is a check failure \(exit 1\); damage to the tail,\s+header or index is exit 2/);
+  });
+
+  it('on a many-field archive, --field names the field the original belongs to', () => {
+    const sink = new MemorySink();
+    const b = new ArchiveBuilder(sink);
+    const small = Float64Array.from({ length: 10 * 12 }, (_, c) => Math.sin(c / 9));
+    b.add(vol.values, [ROWS, COLS], { bound: 'abs:0.5', name: 'height' });
+    b.add(small, [10, 12], { bound: 'abs:1e-3', name: 'wave', tile: 8 });
+    b.finish();
+    writeFileSync(path('two.rfz'), sink.bytes());
+    writeFileSync(path('wave.npy'), formatNpy({ data: small, shape: [10, 12], dtype: 'f64' }));
+    const s = JSON.parse(rf(['show', 'two.rfz', '--json'], dir).stdout);
+    expect(s.fields.map((f: { name: string; tiles: number }) => [f.name, f.tiles])).toEqual([['height', 2], ['wave', 4]]); // 64 x 64 tiles over 61 x 87; 8 x 8 over 10 x 12
+    expect(s.rawBytes).toBe((ROWS * COLS + 120) * 8);
+    const ok = rf(['check', 'two.rfz', '--against', 'wave.npy', '--field', 'wave'], dir);
+    expect(ok.code, ok.stdout + ok.stderr).toBe(0);
+    expect(ok.stdout).toMatch(/against 'wave\.npy' \(field 'wave'\)/);
+    // Without --field the original is compared with the first field, whose shape differs.
+    expectCliError(rf(['check', 'two.rfz', '--against', 'wave.npy'], dir), /original 'wave\.npy' is 10x12, but field 'height' of 'two\.rfz' is 61x87/);
+    expectCliError(rf(['check', 'two.rfz', '--against', 'wave.npy', '--field', 'nope'], dir), /no field 'nope' in two\.rfz \(fields: height, wave\)/);
   });
 });

@@ -177,10 +177,9 @@ describe('-0.0 and 0.0 as fill values', () => {
       expect((await archive.check(values)).ok).toBe(true);
     });
 
-    // BUG (reported): the header is MessagePack, whose encoder writes -0 as the
-    // integer 0, so the fill value read back is +0 and low-rank tiles restore
-    // their -0 fill cells as +0.
-    it.fails(`${dtype}: fill -0.0 restores -0 cells exactly; +0 cells are ordinary values`, async () => {
+    // Found against commit 74b919b: the header's MessagePack encoder wrote -0 as the
+    // integer 0, so the fill read back was +0 and low-rank tiles restored -0 fill cells as +0.
+    it(`${dtype}: fill -0.0 restores -0 cells exactly; +0 cells are ordinary values`, async () => {
       const { values, pos, neg } = zeros(dtype);
       const archive = await open(pack(values, [24, 24], { bound: 'abs:1e-3', tile: 12, fill: -0 }));
       expect(archive.index.fields[0].method).toContain(1);

@@ -1,0 +1,164 @@
+/**
+ * Planning for L2 bounds (rmse, psnr). The field's squared-error budget,
+ * N x E^2 over its N valid values, is shared across tiles: the first pass
+ * takes every tile's singular values, candidate plans are costed on a sample
+ * of tiles, and the chosen plan gives each tile an allotment of the budget
+ * that the second pass enforces tile by tile, so the whole-field RMSE holds
+ * by construction and tiles can be written as they are finished.
+ */
+import { forEachTile, measure, type BandSource, type FieldSpec } from './field.js';
+import { encodeL2, encodePointwise, ensureSvd, exactPayload, prepareTile, type PreparedTile } from './tile-encode.js';
+
+/** Shares of the budget given to rank truncation in the Eckart-Young plans. */
+const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
+/** Tiles costed per candidate plan. */
+const SAMPLE_TILES = 48;
+/** Prepared tiles are kept between passes for fields up to this many cells. */
+const KEEP_CELLS = 4 << 20;
+
+/** One way to encode every tile, with each tile's share of the budget (in units of E^2). */
+interface Plan {
+  name: string;
+  one: (t: PreparedTile, index: number) => Uint8Array;
+  allot: (index: number) => number;
+}
+
+/** The chosen plan, enforced tile by tile. */
+export interface L2Plan {
+  name: string;
+  encode(t: PreparedTile, index: number): { payload: Uint8Array; res: ReturnType<typeof measure> };
+}
+
+/** First pass and plan choice; the returned plan encodes one tile at a time. */
+export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null): L2Plan {
+  const keep = spec.rows * spec.cols <= KEEP_CELLS;
+  const kept: PreparedTile[] = [];
+  const sv2: Float64Array[] = [];
+  const dims: [number, number, number][] = [];
+  forEachTile(src, spec, (_index, tile, m, n) => {
+    const t = prepareTile(tile, m, n, spec.dtype, fill);
+    // Squared singular values in units of tol^2, so nothing overflows.
+    const s = t.valid > 0 && t.finite ? ensureSvd(t).s : new Float64Array(0);
+    sv2.push(s.map((v) => (v / tol) * (v / tol)));
+    dims.push([m, n, t.valid]);
+    if (keep) kept.push(t);
+  });
+  const count = dims.length;
+  let valid = 0;
+  for (const d of dims) valid += d[2];
+  const budget = valid; // N x tol^2, in units of tol^2
+  const plans: Plan[] = [];
+  for (const share of TRUNCATION_SHARES) {
+    const p = eckartYoungPlan(sv2, dims, budget, share, tol);
+    if (p) plans.push(p);
+  }
+  // Residual plan: the pointwise coder at E' with uniform quantization error
+  // (2E')^2 / 12 = E^2 per value (common practice, no source), a little inside.
+  const ePrime = Math.sqrt(3) * tol * 0.97;
+  plans.push({ name: 'residual', one: (t) => encodePointwise(t, ePrime), allot: (index) => 0.999 * dims[index][2] });
+
+  const sampleAt = (k: number) => Math.floor(((k + 0.5) * count) / Math.min(count, SAMPLE_TILES));
+  let best = plans[plans.length - 1];
+  if (plans.length > 1) {
+    let bestBytes = Infinity;
+    const sample: number[] = [];
+    for (let k = 0; k < Math.min(count, SAMPLE_TILES); k++) sample.push(sampleAt(k));
+    // Sampling needs tiles in memory; for large fields, sample from a fresh read.
+    const sampled = keep ? sample.map((i) => kept[i]) : readSample(src, spec, fill, new Set(sample));
+    for (const p of plans) {
+      let bytes = 0;
+      sample.forEach((index, k) => (bytes += p.one(sampled[k], index).length));
+      if (bytes < bestBytes) {
+        bestBytes = bytes;
+        best = p;
+      }
+    }
+  }
+  const plan = best;
+  return {
+    name: plan.name,
+    encode(t, index) {
+      const allotment = plan.allot(index);
+      let payload = plan.one(t, index);
+      let res = measure(payload, t, fill);
+      // Enforce the tile's allotment: tighter residual coding, then exact storage.
+      for (const f of [0.9, 0.7, 0.5]) {
+        if (fits(res.tally.rmse, t.valid, allotment, tol)) break;
+        const e = Math.sqrt((3 * allotment) / Math.max(1, t.valid)) * tol * f;
+        payload = encodePointwise(t, e);
+        res = measure(payload, t, fill);
+      }
+      if (!fits(res.tally.rmse, t.valid, allotment, tol)) {
+        payload = exactPayload(t);
+        res = measure(payload, t, fill);
+      }
+      return { payload, res };
+    },
+  };
+}
+
+/** Whether a tile's squared error, valid x rmse^2, is within its allotment (units of tol^2). */
+function fits(rmse: number, valid: number, allotment: number, tol: number): boolean {
+  if (valid === 0) return true;
+  const r = rmse / tol;
+  return valid * r * r <= allotment;
+}
+
+/** Prepared tiles at the given indexes, from one more pass over the source. */
+function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, want: Set<number>): PreparedTile[] {
+  const out: PreparedTile[] = [];
+  forEachTile(src, spec, (index, tile, m, n) => {
+    if (want.has(index)) out.push(prepareTile(tile, m, n, spec.dtype, fill));
+  });
+  return out;
+}
+
+/**
+ * The Eckart-Young plan for a truncation share: discard the field-wide
+ * smallest singular values until their squares reach share x budget; the
+ * rest of the budget goes to factor quantization, half to each factor,
+ * with uniform noise step^2 / 12 per coefficient.
+ */
+function eckartYoungPlan(sv2: Float64Array[], dims: [number, number, number][], budget: number, share: number, tol: number): Plan | null {
+  const order: [number, number][] = [];
+  sv2.forEach((s, t) => s.forEach((v2) => order.push([v2, t])));
+  order.sort((a, b) => a[0] - b[0] || a[1] - b[1]);
+  const ranks = sv2.map((s) => s.length);
+  const cut = new Float64Array(sv2.length);
+  let total = 0;
+  for (const [v2, t] of order) {
+    if (!(total + v2 <= share * budget)) break;
+    total += v2;
+    cut[t] += v2;
+    ranks[t]--;
+  }
+  const q = (budget - total) * 0.9;
+  let sumRN = 0;
+  let sumME = 0;
+  ranks.forEach((r, t) => {
+    sumRN += r * dims[t][1];
+    let e = 0;
+    for (let k = 0; k < r; k++) e += sv2[t][k];
+    sumME += dims[t][0] * e;
+  });
+  const dw = sumRN > 0 ? tol * Math.sqrt((6 * q) / sumRN) : tol;
+  const du = sumME > 0 ? Math.sqrt((6 * q) / sumME) : 1;
+  if (!(dw > 0 && du > 0 && Number.isFinite(dw) && Number.isFinite(du))) return null;
+  // Each tile's allotment: its truncation error plus its expected quantization noise,
+  // scaled so the allotments add up to the budget.
+  const predicted = ranks.map((r, t) => {
+    let e = 0;
+    for (let k = 0; k < r; k++) e += sv2[t][k];
+    const [m, n] = dims[t];
+    return cut[t] + (r * n * (dw / tol) ** 2) / 12 + (m * e * du * du) / 12;
+  });
+  let sum = 0;
+  for (const p of predicted) sum += p;
+  // A hair inside the budget, so rounding in the sums cannot tip the total over.
+  const scale = sum > 0 ? (0.999 * budget) / sum : 0;
+  return {
+    name: `eckart-young ${share}`,
+    one: (t, index) => encodeL2(t, ranks[index], du, dw),
+    allot: (index) => predicted[index] * scale,
+  };
+}
