@@ -123,6 +123,9 @@ export class Archive {
    */
   async check(against?: FloatArray | Record<string, FloatArray>): Promise<CheckReport> {
     const report: CheckReport = { ok: true, fields: [], failures: [] };
+    if (against !== undefined && ArrayBuffer.isView(against) && this.header.fields.length !== 1) {
+      throw new InputError(InputCode.Option, `the archive holds ${this.header.fields.length} fields: give the originals by field name`);
+    }
     for (const h of this.header.fields) {
       const { index: ix } = this.field(h.name);
       const given = against === undefined ? undefined : ArrayBuffer.isView(against) ? against : against[h.name];

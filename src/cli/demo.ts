@@ -7,7 +7,7 @@ import { BASIN_DEFAULTS, corvaneBasin } from '../demo/basin.js';
 import { isPointwise, pack, parseBound, type Bound } from '../index.js';
 import { formatNpy } from '../io/npy.js';
 import { Exit, fileError } from './errors.js';
-import { checkOutput, openArchive, writeOutput } from './files.js';
+import { checkOutput, openArchive, trackTempDir, writeOutput } from './files.js';
 import { num, ratio, seconds, table } from './format.js';
 import type { Context } from './main.js';
 import { shapeOption } from './options.js';
@@ -97,6 +97,7 @@ export function registerDemo(program: Command, ctx: Context): void {
       try {
         if (flags.dir !== undefined) await mkdir(flags.dir, { recursive: true });
         dir = flags.dir ?? (await mkdtemp(join(tmpdir(), 'rankfield-demo-')));
+        if (flags.dir === undefined) trackTempDir(dir, true);
       } catch (e) {
         throw fileError(e, 'create folder', flags.dir ?? tmpdir());
       }
@@ -135,7 +136,10 @@ export function registerDemo(program: Command, ctx: Context): void {
         );
         ctx.exitCode = failed === 0 ? Exit.Ok : Exit.CheckFailed;
       } finally {
-        if (flags.dir === undefined) await rm(dir, { recursive: true, force: true });
+        if (flags.dir === undefined) {
+          await rm(dir, { recursive: true, force: true });
+          trackTempDir(dir, false);
+        }
       }
     });
 }

@@ -5,17 +5,24 @@
  * output and never touches an existing one.
  */
 import { randomBytes } from 'node:crypto';
-import { unlinkSync, type Stats } from 'node:fs';
+import { rmSync, unlinkSync, type Stats } from 'node:fs';
 import { lstat, open as openFile, rename, stat, unlink } from 'node:fs/promises';
 import { basename, dirname, join, resolve } from 'node:path';
 import { open, type Archive } from '../index.js';
 import { FileSource } from '../io/file-source.js';
 import { FileError, UsageError, fileError, isSystemError } from './errors.js';
 
-/** Temporary files being written; removed on a signal (see {@link removeTempFilesSync}). */
+/** Temporary files being written, and temporary folders in use; removed on a signal (see {@link removeTempFilesSync}). */
 const pending = new Set<string>();
+const pendingDirs = new Set<string>();
 
-/** Remove every temporary file still being written (for signal handlers). */
+/** Mark a temporary folder for removal should the process be interrupted (`false`: it is removed already). */
+export function trackTempDir(dir: string, active: boolean): void {
+  if (active) pendingDirs.add(dir);
+  else pendingDirs.delete(dir);
+}
+
+/** Remove every temporary file still being written, and every tracked temporary folder (for signal handlers). */
 export function removeTempFilesSync(): void {
   for (const p of pending) {
     try {
@@ -25,6 +32,8 @@ export function removeTempFilesSync(): void {
     }
   }
   pending.clear();
+  for (const d of pendingDirs) rmSync(d, { recursive: true, force: true });
+  pendingDirs.clear();
 }
 
 function emptyFile(path: string): FileError {

@@ -97,10 +97,13 @@ export async function run(): Promise<void> {
   };
   process.once('SIGINT', onSignal('SIGINT', 130));
   process.once('SIGTERM', onSignal('SIGTERM', 143));
-  // A reader that closes the pipe early (`rankfield show x | head -1`) is not an error.
+  // A reader that closes the pipe early (`rankfield show x | head -1`) is not an error: further
+  // output is dropped, and the command still finishes (and cleans up) normally.
+  let stdoutOpen = true;
   process.stdout.on('error', (e: NodeJS.ErrnoException) => {
-    if (e.code === 'EPIPE') process.exit(process.exitCode ?? 0);
-    throw e;
+    if (e.code !== 'EPIPE') throw e;
+    stdoutOpen = false;
   });
-  process.exitCode = await main(process.argv.slice(2));
+  const out = (s: string) => void (stdoutOpen && process.stdout.write(s));
+  process.exitCode = await main(process.argv.slice(2), { out });
 }

@@ -36,7 +36,7 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   const sv2: Float64Array[] = [];
   const dims: [number, number, number][] = [];
   forEachTile(src, spec, (_index, tile, m, n) => {
-    const t = prepareTile(tile, m, n, spec.dtype, fill);
+    const t = prepareTile(tile, m, n, spec.dtype, fill, tol);
     // Squared singular values in units of tol^2, so nothing overflows.
     const s = t.valid > 0 && t.finite ? ensureSvd(t).s : new Float64Array(0);
     sv2.push(s.map((v) => (v / tol) * (v / tol)));
@@ -64,7 +64,7 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
     const sample: number[] = [];
     for (let k = 0; k < Math.min(count, SAMPLE_TILES); k++) sample.push(sampleAt(k));
     // Sampling needs tiles in memory; for large fields, sample from a fresh read.
-    const sampled = keep ? sample.map((i) => kept[i]) : readSample(src, spec, fill, new Set(sample));
+    const sampled = keep ? sample.map((i) => kept[i]) : readSample(src, spec, fill, new Set(sample), tol);
     for (const p of plans) {
       let bytes = 0;
       sample.forEach((index, k) => (bytes += p.one(sampled[k], index).length));
@@ -105,10 +105,10 @@ function fits(rmse: number, valid: number, allotment: number, tol: number): bool
 }
 
 /** Prepared tiles at the given indexes, from one more pass over the source. */
-function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, want: Set<number>): PreparedTile[] {
+function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, want: Set<number>, tol: number): PreparedTile[] {
   const out: PreparedTile[] = [];
   forEachTile(src, spec, (index, tile, m, n) => {
-    if (want.has(index)) out.push(prepareTile(tile, m, n, spec.dtype, fill));
+    if (want.has(index)) out.push(prepareTile(tile, m, n, spec.dtype, fill, tol));
   });
   return out;
 }

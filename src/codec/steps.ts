@@ -31,7 +31,10 @@ export function stepValue(code: number, where = 'step'): number {
   return (8 + (code & 7)) * pow2(exp - 3);
 }
 
-/** The code of the largest representable step not above `target` (> 0). */
+/** Smallest representable step: 8 x 2^(MIN_EXP - 3). */
+export const MIN_STEP = 8 * pow2(MIN_EXP - 3);
+
+/** The code of the largest representable step not above `target` (>= MIN_STEP). */
 export function stepCode(target: number): number {
   if (!(target > 0)) throw new RangeError('step target must be positive');
   let exp = Math.floor(Math.log2(target));
@@ -42,5 +45,6 @@ export function stepCode(target: number): number {
   let code = exp * 8 + f;
   // Guard against log2 rounding: step down until the step is not above target.
   while (stepValue(code) > target && code > MIN_EXP * 8) code--;
+  if (stepValue(code) > target) throw new RangeError(`no step code is at or below ${target}`);
   return code;
 }

@@ -11,7 +11,7 @@ import { Cell, classify, type Classes } from './mask.js';
 import { Flag, Method } from './payload.js';
 import { addResidual, lowRank, predict, roundTo } from './reconstruct.js';
 import { MAX_INT, packInts, writeSection } from './section.js';
-import { stepCode, stepValue } from './steps.js';
+import { MIN_STEP, stepCode, stepValue } from './steps.js';
 
 /** A tile made ready for encoding. */
 export interface PreparedTile {
@@ -33,7 +33,7 @@ export interface PreparedTile {
 }
 
 /** Classify, fill and centre a tile; the SVD is computed by {@link ensureSvd}. */
-export function prepareTile(orig: FloatArray, m: number, n: number, dtype: Dtype, fill: Uint32Array | null): PreparedTile {
+export function prepareTile(orig: FloatArray, m: number, n: number, dtype: Dtype, fill: Uint32Array | null, tol = 0): PreparedTile {
   const cells = m * n;
   const classes = classify(orig, fill);
   const valid = cells - classes.special;
@@ -58,6 +58,7 @@ export function prepareTile(orig: FloatArray, m: number, n: number, dtype: Dtype
     x[c] -= center;
     if (!Number.isFinite(x[c])) finite = false;
   }
+  if (finite && classes.special > 0 && valid > 0 && tol > 0) lowRankFill(x, classes.codes, m, n, tol);
   let maskSection: Uint8Array = new Uint8Array(0);
   if (classes.special > 0) {
     const raw = new Uint8Array(cells + classes.rawNaN.length);
@@ -69,6 +70,53 @@ export function prepareTile(orig: FloatArray, m: number, n: number, dtype: Dtype
   }
   return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null };
 }
+
+/**
+ * Refine the stand-in values of missing cells so they continue the tile's
+ * low-rank structure (hard impute: alternate a rank-r truncated SVD with
+ * replacing the missing cells by its reconstruction; Troyanskaya et al., 2001).
+ * The rank grows from 1 until the rank-r fit of the valid cells is within
+ * the tolerance; if no rank up to IMPUTE_MAX_RANK gets there, the smooth fill stays.
+ */
+function lowRankFill(x: Float64Array, codes: Uint8Array, m: number, n: number, tol: number): void {
+  const cells = m * n;
+  const maxRank = Math.min(IMPUTE_MAX_RANK, Math.floor(Math.min(m, n) / 2));
+  const trial = x.slice();
+  const recon = new Float64Array(cells);
+  for (let r = 1; r <= maxRank; r++) {
+    let fit = Infinity;
+    for (let iter = 0; iter < IMPUTE_ITERATIONS; iter++) {
+      const s = svd(trial, m, n);
+      const rr = Math.min(r, s.k);
+      recon.fill(0);
+      for (let i = 0; i < m; i++) {
+        for (let k = 0; k < rr; k++) {
+          const us = s.u[i * s.k + k] * s.s[k];
+          if (us === 0) continue;
+          for (let j = 0; j < n; j++) recon[i * n + j] += us * s.v[j * s.k + k];
+        }
+      }
+      let sq = 0;
+      let count = 0;
+      for (let c = 0; c < cells; c++) {
+        if (codes[c] === Cell.Valid) {
+          const d = (trial[c] - recon[c]) / tol;
+          sq += d * d;
+          count++;
+        } else trial[c] = recon[c];
+      }
+      fit = Math.sqrt(sq / count);
+    }
+    if (fit <= 0.5) {
+      x.set(trial);
+      return;
+    }
+  }
+}
+
+/** Hard-impute sweeps per trial rank, and the largest rank tried. */
+const IMPUTE_ITERATIONS = 4;
+const IMPUTE_MAX_RANK = 6;
 
 /** The tile's SVD (computed once). */
 export function ensureSvd(t: PreparedTile): Svd {
@@ -114,7 +162,7 @@ export interface Factors {
 export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dwTarget: number): Factors | null {
   const { m, n } = t;
   const s = ensureSvd(t);
-  if (!(duTarget > 0 && dwTarget > 0 && Number.isFinite(duTarget) && Number.isFinite(dwTarget))) return null;
+  if (!(duTarget >= MIN_STEP && dwTarget >= MIN_STEP && Number.isFinite(duTarget) && Number.isFinite(dwTarget))) return null;
   const cu = stepCode(duTarget);
   const cw = stepCode(dwTarget);
   const du = stepValue(cu);
@@ -211,6 +259,23 @@ export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correct
   return w.finish();
 }
 
+/** A copy of q whose missing cells hold their 2-D Lorenzo prediction, in raster order. */
+function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: number): Int32Array {
+  const out = q.slice();
+  for (let i = 0; i < m; i++) {
+    for (let j = 0; j < n; j++) {
+      const c = i * n + j;
+      if (codes[c] === Cell.Valid) continue;
+      const up = i > 0 ? out[c - n] : 0;
+      const left = j > 0 ? out[c - 1] : 0;
+      const diag = i > 0 && j > 0 ? out[c - n - 1] : 0;
+      const p = up + left - diag;
+      out[c] = Math.abs(p) <= MAX_INT ? p : 0;
+    }
+  }
+  return out;
+}
+
 /** Sum of log2(1 + |v|): a cheap stand-in for coded size, to pick a predictor. */
 function roughBits(v: Int32Array): number {
   let s = 0;
@@ -246,9 +311,12 @@ export function correct(t: PreparedTile, f: Factors | null, e: number): Correcti
     }
     if (!any) q = null;
     else {
-      const d = predict(q, m, n, MAX_INT);
+      // Missing cells take the value the predictor expects, so they cost nothing
+      // after prediction (the decoder overwrites them anyway).
+      const qp = t.classes.special > 0 ? predictedFill(q, codes, m, n) : q;
+      const d = predict(qp, m, n, MAX_INT);
       if (d && roughBits(d) < roughBits(q)) {
-        addResidual(acc, q, step);
+        addResidual(acc, qp, step);
         q = d;
         lorenzo = true;
       } else addResidual(acc, q, step);

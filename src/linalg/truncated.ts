@@ -1,0 +1,276 @@
+/**
+ * Truncated SVD by the randomized range finder with subspace (power)
+ * iteration: Halko, Martinsson and Tropp, "Finding structure with
+ * randomness: probabilistic algorithms for constructing approximate matrix
+ * decompositions", SIAM Review 53(2), 2011 (Algorithm 4.4 for the range,
+ * Algorithm 5.1 for the SVD of the projected matrix). Flat row-major and
+ * column-major Float64Arrays throughout; deterministic (fixed-seed sketch).
+ */
+
+import { InputCode, InputError } from '../errors.js';
+import { exponentOf, mulPow2, scaleByPow2 } from './pow2.js';
+import { applyQ, qrcp, sumSquares } from './qrcp.js';
+import { checkShape } from './shape.js';
+import { svd, type Svd } from './svd.js';
+
+/** Oversampling p: the sketch has k + p columns. */
+export const OVERSAMPLE = 8;
+/** Number q of power (subspace) iterations. */
+export const POWER_ITERATIONS = 2;
+/** Seed of the Gaussian test matrix; fixed so that results are reproducible. */
+const SEED = 0x2545f491;
+
+/**
+ * Leading k singular triplets of a row-major m x n matrix (k <= min(m, n));
+ * same layout as Svd but with k columns. Deterministic (fixed-seed sketch).
+ * Also returns the Frobenius norm squared of a, so callers know the energy
+ * left beyond k: frob2 - sum(s^2).
+ *
+ * Result: `k` is the requested rank; `u` is m x k and `v` is n x k,
+ * row-major; `s` has k entries, descending and >= 0. As in {@link Svd},
+ * columns with `s[j] > 0` are orthonormal (to about 1e-14) and columns with
+ * `s[j] === 0` are zero. `a` is not modified.
+ *
+ * Method. Let l = k + p with p = {@link OVERSAMPLE}. If l >= min(m, n) the
+ * full {@link svd} is computed and truncated to k (its guarantees carry
+ * over). Otherwise `a` is scaled by a power of two near its max-abs entry
+ * (so squares and products cannot overflow or underflow), multiplied by an
+ * n x l Gaussian test matrix Omega drawn from mulberry32 with a fixed seed,
+ * and the range is refined by q = {@link POWER_ITERATIONS} subspace
+ * iterations, Y <- A (A^T Y), with an orthonormal basis taken by Householder
+ * QR after every multiply. With Q the final m x l basis, B = Q^T A is
+ * factored by {@link svd}, U = Q U_B, and everything is truncated to k.
+ *
+ * What the result satisfies in the sketch case:
+ * - u diag(s) v^T = u u^T a exactly in exact arithmetic (u u^T is an
+ *   orthogonal projector), so ||a - u diag(s) v^T||_F^2 = frob2 - sum(s^2),
+ *   up to rounding; that difference may come out slightly negative (about
+ *   1e-15 * frob2) when the tail is empty, and callers should clamp at 0.
+ * - s[j] <= sigma_j(a) up to rounding (singular values of Q^T a).
+ * - Accuracy depends on the spectrum: the error in sigma_j and the excess
+ *   of the truncation error over the Eckart-Young-Mirsky optimum scale like
+ *   (sigma_{l+1} / sigma_j)^(2q+1); for fast-decaying spectra (smooth fields)
+ *   the leading values match the full SVD to about 1e-12 relative; for a
+ *   flat spectrum the result is only a good rank-k approximation, within
+ *   the expected-error bound of Halko, Martinsson and Tropp.
+ *
+ * Special inputs, as in {@link svd}: a zero matrix gives all-zero u, s, v
+ * and frob2 = 0. If `a` contains NaN or +-Infinity, every entry of u, s, v
+ * and frob2 is NaN. Finite entries anywhere in the float64 range work,
+ * subnormals included; a singular value, or frob2, whose true value exceeds
+ * Number.MAX_VALUE is returned as Infinity (so with entries beyond about
+ * 1e154, s^2 and frob2 overflow: scale before using the energy formula).
+ *
+ * Omega depends on Math.log, Math.cos and Math.sin (Box-Muller). Results are
+ * bit-identical run to run on a given JavaScript engine; ECMAScript does not
+ * require those functions to be correctly rounded, so another engine could
+ * draw a different Omega.
+ *
+ * @throws InputError (code `shape`) if m or n is not a positive integer or
+ *   `a.length !== m * n`; InputError (code `option`) if k is not an integer
+ *   in 1..min(m, n).
+ */
+export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): Svd & { frob2: number } {
+  checkShape(a.length, m, n, 'truncatedSvd');
+  const kmax = Math.min(m, n);
+  if (!Number.isInteger(k) || k < 1 || k > kmax) {
+    throw new InputError(InputCode.Option, `truncatedSvd: rank ${k} must be an integer in 1..${kmax} for a ${m} x ${n} matrix`);
+  }
+  const u = new Float64Array(m * k);
+  const s = new Float64Array(k);
+  const v = new Float64Array(n * k);
+
+  let amax = 0;
+  let probe = 0; // becomes NaN iff some entry is not finite
+  for (let i = 0; i < a.length; i++) {
+    const x = a[i];
+    probe += x * 0;
+    const ax = Math.abs(x);
+    if (ax > amax) amax = ax;
+  }
+  if (probe !== 0) {
+    u.fill(NaN);
+    s.fill(NaN);
+    v.fill(NaN);
+    return { m, n, k, u, s, v, frob2: NaN };
+  }
+  if (amax === 0) return { m, n, k, u, s, v, frob2: 0 };
+  const e = exponentOf(amax);
+
+  // Row-major working copy of a, scaled by 2^-e (entries O(1)).
+  const w = new Float64Array(m * n);
+  scaleByPow2(a, w, -e);
+  const frob2 = mulPow2(sumSquares(w, 0, m * n), 2 * e);
+
+  const l = k + OVERSAMPLE;
+  if (l >= kmax) {
+    const full = svd(a, m, n);
+    const fk = full.k;
+    for (let i = 0; i < m; i++) for (let c = 0; c < k; c++) u[i * k + c] = full.u[i * fk + c];
+    for (let j = 0; j < n; j++) for (let c = 0; c < k; c++) v[j * k + c] = full.v[j * fk + c];
+    for (let c = 0; c < k; c++) s[c] = full.s[c];
+    return { m, n, k, u, s, v, frob2 };
+  }
+
+  // Column-major sketch buffers: g (n x l), y and q (m x l), z (n x l).
+  const g = new Float64Array(n * l);
+  const y = new Float64Array(m * l);
+  const q = new Float64Array(m * l);
+  const z = new Float64Array(n * l);
+  gaussian(g, SEED);
+
+  mulA(w, m, n, g, l, y);
+  orthonormalize(y, m, l, q);
+  for (let it = 0; it < POWER_ITERATIONS; it++) {
+    mulAt(w, m, n, q, l, z);
+    orthonormalize(z, n, l, g);
+    mulA(w, m, n, g, l, y);
+    orthonormalize(y, m, l, q);
+  }
+
+  // z = A^T Q is n x l column-major, i.e. B = Q^T A as l x n row-major.
+  mulAt(w, m, n, q, l, z);
+  const fb = svd(z, l, n); // fb.k === l since l < n
+  const ub = fb.u;
+  for (let i = 0; i < m; i++) {
+    const uo = i * k;
+    for (let t = 0; t < l; t++) {
+      const qt = q[t * m + i];
+      if (qt === 0) continue;
+      const bo = t * l;
+      for (let c = 0; c < k; c++) u[uo + c] += qt * ub[bo + c];
+    }
+  }
+  for (let j = 0; j < n; j++) for (let c = 0; c < k; c++) v[j * k + c] = fb.v[j * l + c];
+  for (let c = 0; c < k; c++) s[c] = mulPow2(fb.s[c], e);
+  return { m, n, k, u, s, v, frob2 };
+}
+
+/**
+ * Fills `out` with standard normal deviates: mulberry32 uniforms seeded with
+ * `seed`, turned into normals by the Box-Muller transform.
+ */
+function gaussian(out: Float64Array, seed: number): void {
+  let st = seed >>> 0;
+  const len = out.length;
+  for (let i = 0; i < len; i += 2) {
+    // mulberry32, two draws; u1 in (0, 1] so the log is finite.
+    st = (st + 0x6d2b79f5) >>> 0;
+    let t = st;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    const u1 = 1 - ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+    st = (st + 0x6d2b79f5) >>> 0;
+    t = st;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    const u2 = ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+    const r = Math.sqrt(-2 * Math.log(u1));
+    const th = 2 * Math.PI * u2;
+    out[i] = r * Math.cos(th);
+    if (i + 1 < len) out[i + 1] = r * Math.sin(th);
+  }
+}
+
+/**
+ * y = w g, with w row-major m x n and g, y column-major (n x l, m x l).
+ * Two columns of g per pass so each entry of w is loaded once for both.
+ */
+function mulA(w: Float64Array, m: number, n: number, g: Float64Array, l: number, y: Float64Array): void {
+  const end2 = n - (n & 1);
+  let c = 0;
+  for (; c + 1 < l; c += 2) {
+    const g0 = c * n;
+    const g1 = g0 + n;
+    const y0 = c * m;
+    const y1 = y0 + m;
+    for (let i = 0; i < m; i++) {
+      const ro = i * n;
+      let a0 = 0;
+      let a1 = 0;
+      let b0 = 0;
+      let b1 = 0;
+      let j = 0;
+      for (; j < end2; j += 2) {
+        const x0 = w[ro + j];
+        const x1 = w[ro + j + 1];
+        a0 += x0 * g[g0 + j];
+        a1 += x1 * g[g0 + j + 1];
+        b0 += x0 * g[g1 + j];
+        b1 += x1 * g[g1 + j + 1];
+      }
+      if (j < n) {
+        const x0 = w[ro + j];
+        a0 += x0 * g[g0 + j];
+        b0 += x0 * g[g1 + j];
+      }
+      y[y0 + i] = a0 + a1;
+      y[y1 + i] = b0 + b1;
+    }
+  }
+  if (c < l) {
+    const g0 = c * n;
+    const y0 = c * m;
+    for (let i = 0; i < m; i++) {
+      const ro = i * n;
+      let a0 = 0;
+      let a1 = 0;
+      let j = 0;
+      for (; j < end2; j += 2) {
+        a0 += w[ro + j] * g[g0 + j];
+        a1 += w[ro + j + 1] * g[g0 + j + 1];
+      }
+      if (j < n) a0 += w[ro + j] * g[g0 + j];
+      y[y0 + i] = a0 + a1;
+    }
+  }
+}
+
+/**
+ * z = w^T q, with w row-major m x n and q, z column-major (m x l, n x l):
+ * column c of z accumulates q[i][c] times row i of w. Two columns per pass.
+ */
+function mulAt(w: Float64Array, m: number, n: number, q: Float64Array, l: number, z: Float64Array): void {
+  z.fill(0);
+  let c = 0;
+  for (; c + 1 < l; c += 2) {
+    const q0 = c * m;
+    const q1 = q0 + m;
+    const z0 = c * n;
+    const z1 = z0 + n;
+    for (let i = 0; i < m; i++) {
+      const f0 = q[q0 + i];
+      const f1 = q[q1 + i];
+      const ro = i * n;
+      for (let j = 0; j < n; j++) {
+        const x = w[ro + j];
+        z[z0 + j] += f0 * x;
+        z[z1 + j] += f1 * x;
+      }
+    }
+  }
+  if (c < l) {
+    const q0 = c * m;
+    const z0 = c * n;
+    for (let i = 0; i < m; i++) {
+      const f0 = q[q0 + i];
+      if (f0 === 0) continue;
+      const ro = i * n;
+      for (let j = 0; j < n; j++) z[z0 + j] += f0 * w[ro + j];
+    }
+  }
+}
+
+/**
+ * Writes into `q` (column-major rows x cols, rows >= cols) an orthonormal
+ * basis containing the column space of `y` (same shape, destroyed): the
+ * first cols columns of the Householder factor Q of y P = Q R. Columns of y
+ * that are exactly dependent still yield orthonormal columns of q, so the
+ * basis keeps full width even when the matrix has lower rank.
+ */
+function orthonormalize(y: Float64Array, rows: number, cols: number, q: Float64Array): void {
+  const f = qrcp(y, rows, cols, 0);
+  q.fill(0);
+  for (let c = 0; c < cols; c++) q[c * rows + c] = 1;
+  applyQ(y, rows, f, q, cols);
+}
