@@ -10,16 +10,43 @@ import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
 import { readContainer, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
 import { DEFAULT_LIMITS, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Limits } from './format/schema.js';
-import { MemorySource, type ByteSource } from './format/source.js';
+import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
 import type { Dtype, FloatArray } from './types.js';
 
-/** A decoded field. */
+/** A decoded field, or a window of one. */
 export interface FieldValues {
   name: string;
   dtype: Dtype;
+  /** Shape of `values`: [rows, cols] of the window (the whole field when no window was asked for). */
   shape: number[];
+  /** Row-major values of the window. */
   values: FloatArray;
+  /** Where the window lies in the field: half-open row and column ranges. */
+  window: { rows: [number, number]; cols: [number, number] };
 }
+
+/**
+ * Options of {@link Archive.read}. Ranges are half-open, `[start, end)`,
+ * in field rows and columns; an omitted range means all of them.
+ */
+export interface ReadOptions {
+  /** Rows [r0, r1) of the window. */
+  rows?: readonly [number, number];
+  /** Columns [c0, c1) of the window. */
+  cols?: readonly [number, number];
+  /**
+   * Also check each decoded tile against the CRC-32 of the values verified
+   * at encode time (costs one CRC pass over the decoded tiles). Default false:
+   * payload CRCs are always checked.
+   */
+  verify?: boolean;
+}
+
+/** Keys {@link ReadOptions} may hold; any other is refused, so a misspelt option is not silently ignored. */
+const READ_KEYS = ['rows', 'cols', 'verify'];
+
+/** Payload bytes fetched per batch of a read: bounds the memory a read holds besides its output. */
+const BATCH_BYTES = 16 << 20;
 
 /** One failed check. */
 export interface CheckFailure {
@@ -50,6 +77,8 @@ export interface CheckReport {
 export interface OpenOptions {
   /** Reader limits; defaults to {@link DEFAULT_LIMITS}. */
   limits?: Partial<Limits>;
+  /** How payload reads are merged (gap and waste limits, reads in flight). */
+  coalesce?: CoalesceOptions;
 }
 
 /** An opened archive. */
@@ -62,6 +91,7 @@ export class Archive {
   constructor(
     private readonly source: ByteSource,
     container: Container,
+    private readonly coalesce: CoalesceOptions = {},
   ) {
     this.header = container.header;
     this.index = container.index;
@@ -88,8 +118,13 @@ export class Archive {
     if (!Number.isInteger(t) || t < 0 || t >= ix.offset.length) {
       throw new InputError(InputCode.Option, `field '${h.name}' has tiles 0..${ix.offset.length - 1}, not ${t}`);
     }
-    const where = `${this.source.label} field '${h.name}' tile ${t}`;
     const payload = await this.source.read(ix.offset[t], ix.length[t]);
+    return this.decodePayload(h, ix, t, payload, verifyValues);
+  }
+
+  /** Check a fetched payload against the index and decode it. */
+  private decodePayload(h: FieldHeader, ix: FieldIndex, t: number, payload: Uint8Array, verifyValues: boolean): FloatArray {
+    const where = `${this.source.label} field '${h.name}' tile ${t}`;
     if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${ix.offset[t]})`);
     const rank = payload[0] === 1 && payload.length >= 4 ? payload[2] | (payload[3] << 8) : 0;
     if (payload[0] !== ix.method[t] || rank !== ix.rank[t]) {
@@ -103,16 +138,74 @@ export class Archive {
     return out;
   }
 
-  /** Decode a whole field. */
-  async read(name?: string): Promise<FieldValues> {
-    const { header: h, index: ix } = this.field(name);
-    const [rows, cols] = h.shape;
-    const values = allocate(h.dtype, rows * cols, h.name);
-    for (let t = 0; t < ix.offset.length; t++) {
-      const tile = await this.tile(h.name, t);
-      place(values, cols, h, t, tile);
+  /**
+   * Fetch the payloads of `tiles` (in the given order) in batches of about
+   * {@link BATCH_BYTES}, each batch with merged reads, and hand each to
+   * `use` in order. With `isolate`, a batch whose merged read fails is
+   * fetched again tile by tile, and a tile that cannot be fetched is handed
+   * over as its error instead of failing the whole call.
+   */
+  private async eachPayload(
+    ix: FieldIndex,
+    tiles: readonly number[],
+    use: (t: number, payload: Uint8Array | FormatError) => void,
+    isolate = false,
+  ): Promise<void> {
+    for (let k = 0; k < tiles.length; ) {
+      const batch: number[] = [];
+      let bytes = 0;
+      while (k < tiles.length && (batch.length === 0 || bytes + ix.length[tiles[k]] <= BATCH_BYTES)) {
+        bytes += ix.length[tiles[k]];
+        batch.push(tiles[k++]);
+      }
+      const ranges: ByteRange[] = batch.map((t) => ({ offset: ix.offset[t], length: ix.length[t] }));
+      let payloads: (Uint8Array | FormatError)[];
+      try {
+        payloads = await readRanges(this.source, ranges, this.coalesce);
+      } catch (e) {
+        if (!isolate || !(e instanceof FormatError)) throw e;
+        payloads = [];
+        for (const r of ranges) payloads.push(await this.source.read(r.offset, r.length).catch((err: unknown) => (err instanceof FormatError ? err : Promise.reject(err))));
+      }
+      batch.forEach((t, i) => use(t, payloads[i]));
     }
-    return { name: h.name, dtype: h.dtype, shape: [rows, cols], values };
+  }
+
+  /**
+   * Decode a field, or a window of it: `rows: [r0, r1]` and `cols: [c0, c1]`
+   * (half-open; each defaults to the whole extent). Only the tiles the
+   * window intersects are fetched (adjacent and near payloads in one read
+   * each) and decoded, then cropped. Several reads may run at once on one
+   * archive.
+   */
+  async read(name?: string, options: ReadOptions = {}): Promise<FieldValues> {
+    const { header: h, index: ix } = this.field(name);
+    const { rows, cols } = checkWindow(h, options);
+    const verify = options.verify === true;
+    const [r0, r1] = rows;
+    const [c0, c1] = cols;
+    const [tr, tc] = h.tile;
+    const gc = Math.ceil(h.shape[1] / tc);
+    const width = c1 - c0;
+    const values = allocate(h.dtype, (r1 - r0) * width, h.name);
+    const tiles: number[] = [];
+    for (let ti = Math.floor(r0 / tr); ti * tr < r1; ti++) {
+      for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) tiles.push(ti * gc + tj);
+    }
+    await this.eachPayload(ix, tiles, (t, payload) => {
+      if (payload instanceof FormatError) throw payload;
+      const tile = this.decodePayload(h, ix, t, payload, verify);
+      const i0 = Math.floor(t / gc) * tr;
+      const j0 = (t % gc) * tc;
+      const [, n] = tileDims(h, t);
+      const a = Math.max(r0, i0);
+      const b = Math.min(r1, i0 + tr);
+      const lo = Math.max(c0, j0);
+      const hi = Math.min(c1, j0 + n);
+      // Same-type typed-array copies move bytes, so NaN payloads survive.
+      for (let i = a; i < b; i++) values.set(tile.subarray((i - i0) * n + (lo - j0), (i - i0) * n + (hi - j0)), (i - r0) * width + (lo - c0));
+    });
+    return { name: h.name, dtype: h.dtype, shape: [r1 - r0, width], values, window: { rows: [r0, r1], cols: [c0, c1] } };
   }
 
   /**
@@ -141,14 +234,16 @@ export class Archive {
       const total = new ErrorTally();
       let specials = 0;
       const fw = fillWords(h.fill, h.dtype);
-      for (let t = 0; t < ix.offset.length; t++) {
+      const all = Array.from({ length: ix.offset.length }, (_, t) => t);
+      await this.eachPayload(ix, all, (t, payload) => {
         let tile: FloatArray;
         try {
-          tile = await this.tile(h.name, t, true);
+          if (payload instanceof FormatError) throw payload;
+          tile = this.decodePayload(h, ix, t, payload, true);
         } catch (e) {
           if (!(e instanceof FormatError)) throw e;
           fail(t, e.message);
-          continue;
+          return;
         }
         if (pointwise && !(ix.max_err[t] <= tol)) fail(t, `recorded max error ${ix.max_err[t]} exceeds the bound ${tol}`);
         if (orig) {
@@ -172,7 +267,7 @@ export class Archive {
           total.merge(tally);
           if (pointwise && !(tally.max <= tol)) fail(t, `measured max error ${tally.max} exceeds the bound ${tol}`);
         }
-      }
+      }, true);
       if (!pointwise && !(ix.summary.rmse <= tol)) fail(-1, `recorded RMSE ${ix.summary.rmse} exceeds the bound ${tol}`);
       const entry: CheckReport['fields'][number] = {
         name: h.name,
@@ -208,20 +303,34 @@ function allocate(dtype: Dtype, cells: number, name: string): FloatArray {
   }
 }
 
+/** Check a range of a window: integers with 0 <= start < end <= extent. */
+function checkRange(v: unknown, extent: number, what: 'rows' | 'cols', field: string): [number, number] {
+  if (v === undefined) return [0, extent];
+  const ok = Array.isArray(v) && v.length === 2 && v.every((x) => Number.isSafeInteger(x));
+  if (!ok) throw new InputError(InputCode.Option, `${what} of a window must be [start, end] with integer ends, got ${JSON.stringify(v)}`);
+  const [a, b] = v as [number, number];
+  if (a < 0 || b > extent || a >= b) {
+    const why = a >= b ? 'is empty (start must be below end)' : `lies outside ${what} 0..${extent}`;
+    throw new InputError(InputCode.Option, `field '${field}' has ${extent} ${what === 'rows' ? 'rows' : 'columns'}; ${what} [${a}, ${b}) ${why}`);
+  }
+  return [a, b];
+}
+
+/** The window a read asks for, checked against the field. */
+function checkWindow(h: FieldHeader, o: ReadOptions): { rows: [number, number]; cols: [number, number] } {
+  if (typeof o !== 'object' || o === null) throw new InputError(InputCode.Option, `read options must be an object, got ${String(o)}`);
+  const unknown = Object.keys(o).filter((k) => !READ_KEYS.includes(k));
+  if (unknown.length > 0) throw new InputError(InputCode.Option, `unknown read option${unknown.length > 1 ? 's' : ''} ${unknown.map((k) => `'${k}'`).join(', ')} (known: ${READ_KEYS.join(', ')})`);
+  if (o.verify !== undefined && typeof o.verify !== 'boolean') throw new InputError(InputCode.Option, `verify must be true or false, got ${String(o.verify)}`);
+  return { rows: checkRange(o.rows, h.shape[0], 'rows', h.name), cols: checkRange(o.cols, h.shape[1], 'cols', h.name) };
+}
+
 /** Rows and columns of tile t of a field. */
 export function tileDims(h: FieldHeader, t: number): [number, number] {
   const gc = Math.ceil(h.shape[1] / h.tile[1]);
   const ti = Math.floor(t / gc);
   const tj = t % gc;
   return [Math.min(h.tile[0], h.shape[0] - ti * h.tile[0]), Math.min(h.tile[1], h.shape[1] - tj * h.tile[1])];
-}
-
-function place(values: FloatArray, cols: number, h: FieldHeader, t: number, tile: FloatArray): void {
-  const gc = Math.ceil(h.shape[1] / h.tile[1]);
-  const i0 = Math.floor(t / gc) * h.tile[0];
-  const j0 = (t % gc) * h.tile[1];
-  const [m, n] = tileDims(h, t);
-  for (let i = 0; i < m; i++) values.set(tile.subarray(i * n, i * n + n), (i0 + i) * cols + j0);
 }
 
 function extract(values: FloatArray, cols: number, h: FieldHeader, t: number): FloatArray {
@@ -239,5 +348,5 @@ export async function open(source: Uint8Array | ByteSource, options: OpenOptions
   const src = source instanceof Uint8Array ? new MemorySource(source) : source;
   const limits = { ...DEFAULT_LIMITS, ...options.limits };
   const container = await readContainer(src, limits);
-  return new Archive(src, container);
+  return new Archive(src, container, options.coalesce);
 }

@@ -16,6 +16,9 @@ export interface Prepared {
   amax: number;
   /** Number of valid cells. */
   valid: number;
+  /** Min and max of the valid values (0, 0 when none). */
+  lo: number;
+  hi: number;
 }
 
 export function prepare(values: Float32Array, fill: number | null): Prepared {
@@ -24,6 +27,8 @@ export function prepare(values: Float32Array, fill: number | null): Prepared {
   const missing: number[] = [];
   let sum = 0;
   let amax = 0;
+  let lo = Infinity;
+  let hi = -Infinity;
   for (let i = 0; i < values.length; i++) {
     const v = values[i];
     if (isMissing(v, f)) {
@@ -33,11 +38,14 @@ export function prepare(values: Float32Array, fill: number | null): Prepared {
     filled[i] = v;
     sum += v;
     if (Math.abs(v) > amax) amax = Math.abs(v);
+    if (v < lo) lo = v;
+    if (v > hi) hi = v;
   }
   const valid = values.length - missing.length;
   const mean = valid > 0 ? sum / valid : 0;
   for (const i of missing) filled[i] = mean;
-  return { filled, missing: Uint32Array.from(missing), amax, valid };
+  if (!(lo <= hi)) lo = hi = 0;
+  return { filled, missing: Uint32Array.from(missing), amax, valid, lo, hi };
 }
 
 /** u32 count; then a bitmap section of all cells and a section of the missing cells' raw float32 words. */
@@ -55,16 +63,21 @@ export function writeMissing(w: Writer, values: Float32Array, p: Prepared): void
   w.section(new Uint8Array(raw.buffer));
 }
 
-/** Read what {@link writeMissing} wrote and put the exact bits back into `out`. */
-export function restoreMissing(r: Reader, out: Float32Array): void {
+/**
+ * Read what {@link writeMissing} wrote; returns a function that puts the
+ * exact bits back into the decoded values (called once they are computed).
+ */
+export function readMissing(r: Reader, cells: number): (out: Float32Array) => void {
   const count = r.u32();
-  if (count === 0) return;
+  if (count === 0) return () => {};
   const bitmap = r.section();
   const rawBytes = r.section();
-  if (rawBytes.length !== 4 * count || bitmap.length !== Math.ceil(out.length / 8)) throw new Error('baseline stream: bad missing-cell sections');
-  const raw = new Uint32Array(rawBytes.buffer, rawBytes.byteOffset, count);
-  const words = new Uint32Array(out.buffer, out.byteOffset, out.length);
-  let k = 0;
-  for (let c = 0; c < out.length; c++) if (bitmap[c >> 3] & (1 << (c & 7))) words[c] = raw[k++];
-  if (k !== count) throw new Error('baseline stream: missing-cell count does not match the bitmap');
+  if (rawBytes.length !== 4 * count || bitmap.length !== Math.ceil(cells / 8)) throw new Error('baseline stream: bad missing-cell sections');
+  const raw = new Uint32Array(rawBytes.slice().buffer);
+  return (out) => {
+    const words = new Uint32Array(out.buffer, out.byteOffset, out.length);
+    let k = 0;
+    for (let c = 0; c < out.length; c++) if (bitmap[c >> 3] & (1 << (c & 7))) words[c] = raw[k++];
+    if (k !== count) throw new Error('baseline stream: missing-cell count does not match the bitmap');
+  };
 }

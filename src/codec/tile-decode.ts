@@ -21,6 +21,10 @@ export interface TileContext {
   fill: Uint32Array | null;
   /** For messages: e.g. "field 'sst' tile 12". */
   where: string;
+  /** File offset of the payload, for messages; offsets are counted within the payload when absent. */
+  offset?: number;
+  /** Largest rank accepted (a reader limit); default: any rank up to min(m, n). */
+  maxRank?: number;
 }
 
 function malformed(where: string, what: string): FormatError {
@@ -29,19 +33,24 @@ function malformed(where: string, what: string): FormatError {
 
 /** Decode a payload; throws {@link FormatError} on anything malformed. */
 export function decodeTile(payload: Uint8Array, ctx: TileContext): FloatArray {
-  const r = new ByteReader(payload, ctx.where);
+  const r = ctx.offset === undefined ? new ByteReader(payload, ctx.where, 0, 'payload offset') : new ByteReader(payload, ctx.where, ctx.offset, 'file offset');
   const method = r.u8('method');
   let out: FloatArray;
   if (method === Method.Exact) out = decodeExact(r, ctx);
   else if (method === Method.LowRank) out = decodeLowRank(r, ctx);
-  else throw new FormatError(FormatCode.Unsupported, `${ctx.where}: unknown payload method ${method} (this reader knows 0 and 1)`);
-  if (r.remaining !== 0) throw malformed(ctx.where, `${r.remaining} unexpected bytes after the payload`);
+  else throw new FormatError(FormatCode.Unsupported, `${ctx.where}: unknown payload method ${method} at ${r.unit} ${r.base} (this reader knows 0 and 1)`);
+  if (r.remaining !== 0) throw malformed(ctx.where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
   return out;
+}
+
+/** "cell 17 (row 2, column 3)" for a cell of an m x n tile. */
+function cellName(c: number, n: number): string {
+  return `cell ${c} (row ${Math.floor(c / n)}, column ${c % n})`;
 }
 
 function decodeExact(r: ByteReader, ctx: TileContext): FloatArray {
   const flags = r.u8('flags');
-  if (flags !== 0) throw malformed(ctx.where, `exact payload has unknown flags 0x${flags.toString(16)}`);
+  if (flags !== 0) throw malformed(ctx.where, `exact payload has unknown flags 0x${flags.toString(16)} at ${r.unit} ${r.offset - 1}`);
   const width = ctx.dtype === 'f32' ? 4 : 8;
   const cells = ctx.m * ctx.n;
   const planes = readSection(r, 'exact values', cells * width);
@@ -60,11 +69,17 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const cells = m * n;
   const width = ctx.dtype === 'f32' ? 4 : 8;
   const flags = r.u8('flags');
-  if (flags & ~KNOWN_FLAGS) throw new FormatError(FormatCode.Unsupported, `${where}: unknown payload flags 0x${flags.toString(16)} (this reader knows 0x${KNOWN_FLAGS.toString(16)})`);
+  if (flags & ~KNOWN_FLAGS) {
+    throw new FormatError(FormatCode.Unsupported, `${where}: unknown payload flags 0x${flags.toString(16)} at ${r.unit} ${r.offset - 1} (this reader knows 0x${KNOWN_FLAGS.toString(16)})`);
+  }
   const rank = r.u16('rank');
-  if (rank > Math.min(m, n)) throw malformed(where, `rank ${rank} exceeds the tile's ${m}x${n}`);
+  if (rank > Math.min(m, n)) throw malformed(where, `rank ${rank} at ${r.unit} ${r.offset - 2} exceeds the tile's ${m}x${n}`);
+  if (ctx.maxRank !== undefined && rank > ctx.maxRank) {
+    throw new FormatError(FormatCode.Limit, `${where}: rank ${rank} exceeds the reader limit of ${ctx.maxRank}`);
+  }
   const center = r.f64('center');
-  if (!Number.isFinite(center)) throw malformed(where, 'centre is not finite');
+  if (!Number.isFinite(center)) throw malformed(where, `centre ${center} at ${r.unit} ${r.offset - 8} is not finite`);
+  if (flags & Flag.Lorenzo && !(flags & Flag.Residual)) throw malformed(where, 'prediction flag without a residual');
 
   let codes: Uint8Array = new Uint8Array(cells);
   let rawNaN: Uint8Array = new Uint8Array(0);
@@ -74,40 +89,47 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
     codes = mask.slice(0, cells);
     let raws = 0;
     for (let c = 0; c < cells; c++) {
-      if (codes[c] > Cell.RawNaN) throw malformed(where, `mask cell ${c} has unknown class ${codes[c]}`);
+      if (codes[c] > Cell.RawNaN) throw malformed(where, `mask ${cellName(c, n)} has unknown class ${codes[c]}`);
       if (codes[c] === Cell.RawNaN) raws++;
-      if (codes[c] === Cell.Fill && ctx.fill === null) throw malformed(where, `mask cell ${c} is a fill cell but the field has no fill value`);
+      if (codes[c] === Cell.Fill && ctx.fill === null) throw malformed(where, `mask ${cellName(c, n)} is a fill cell but the field has no fill value`);
     }
-    if (mask.length !== cells + raws * width) throw malformed(where, 'mask raw NaN bytes do not match its codes');
+    if (mask.length !== cells + raws * width) {
+      throw malformed(where, `mask holds ${mask.length - cells} bytes of raw NaN bits, its ${raws} raw NaN cells need ${raws * width}`);
+    }
     rawNaN = mask.subarray(cells);
+    const view = new DataView(rawNaN.buffer, rawNaN.byteOffset, rawNaN.byteLength);
+    for (let k = 0; k < raws; k++) {
+      const v = width === 4 ? view.getFloat32(4 * k, true) : view.getFloat64(8 * k, true);
+      if (v === v) throw malformed(where, `raw NaN ${k} of the mask holds the number ${v}, not a NaN`);
+    }
   }
 
   const l = new Float64Array(m * rank);
   const w = new Float64Array(rank * n);
   if (rank > 0) readFactors(r, ctx, rank, l, w);
-  else if (r.u8('group count') !== 0) throw malformed(where, 'rank 0 with factor groups');
+  else if (r.u8('group count') !== 0) throw malformed(where, `rank 0 with factor groups (group count at ${r.unit} ${r.offset - 1})`);
 
   const acc = new Float64Array(cells);
   lowRank(l, w, m, n, rank, center, acc);
 
   if (flags & Flag.Residual) {
     const sec = readSection(r, 'residual', 8 + 1 + 4 * cells, false);
-    const sr = new ByteReader(sec, `${where} residual`);
+    const sr = new ByteReader(sec, `${where} residual`, 0, 'raw offset');
     const step = sr.f64('step');
-    if (!(step > 0 && Number.isFinite(step))) throw malformed(where, 'residual step is not a positive finite number');
+    if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} is not a positive finite number`);
     const q = new Int32Array(cells);
     unpackInts(sr, q, 'residual');
-    if (sr.remaining !== 0) throw malformed(where, 'residual section has trailing bytes');
+    if (sr.remaining !== 0) throw malformed(where, `residual section has ${sr.remaining} bytes after its values`);
     if (flags & Flag.Lorenzo && !unpredict(q, m, n, MAX_INT)) throw malformed(where, 'residual exceeds 2^30 after prediction');
     addResidual(acc, q, step);
-  } else if (flags & Flag.Lorenzo) throw malformed(where, 'prediction flag without a residual');
+  }
 
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
   roundTo(acc, out);
 
   if (flags & Flag.Exceptions) {
     const sec = readSection(r, 'exceptions', 4 + cells * (4 + width), false);
-    const er = new ByteReader(sec, `${where} exceptions`);
+    const er = new ByteReader(sec, `${where} exceptions`, 0, 'raw offset');
     const count = er.u32('exception count');
     if (count > cells) throw malformed(where, `${count} exceptions in a tile of ${cells} cells`);
     const bytes = new Uint8Array(out.buffer);
@@ -115,19 +137,27 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
     let prev = -1;
     for (let e = 0; e < count; e++) {
       const c = er.u32('exception cell');
-      if (c <= prev || c >= cells) throw malformed(where, `exception cell ${c} is out of order or outside the tile`);
-      if (codes[c] !== Cell.Valid) throw malformed(where, `exception at missing cell ${c}`);
+      if (c <= prev || c >= cells) throw malformed(where, `exception ${e} names cell ${c}: out of order or outside the tile of ${cells} cells`);
+      if (codes[c] !== Cell.Valid) throw malformed(where, `exception ${e} at missing ${cellName(c, n)}`);
       cellsAt[e] = c;
       prev = c;
     }
     const vals = er.bytesView(count * width, 'exception values');
-    for (let e = 0; e < count; e++) bytes.set(vals.subarray(e * width, e * width + width), cellsAt[e] * width);
-    if (er.remaining !== 0) throw malformed(where, 'exception section has trailing bytes');
+    const words = new Uint32Array(out.buffer);
+    for (let e = 0; e < count; e++) {
+      const c = cellsAt[e];
+      bytes.set(vals.subarray(e * width, e * width + width), c * width);
+      // An exception holds an original valid value, which is never the fill value.
+      if (ctx.fill !== null && words[c * (width / 4)] === ctx.fill[0] && (width === 4 || words[2 * c + 1] === ctx.fill[1])) {
+        throw malformed(where, `exception ${e} at ${cellName(c, n)} holds the fill value`);
+      }
+    }
+    if (er.remaining !== 0) throw malformed(where, `exception section has ${er.remaining} bytes after its values`);
   }
 
   // A valid cell must decode to a finite value; anything else is a damaged or hostile payload.
   for (let c = 0; c < cells; c++) {
-    if (codes[c] === Cell.Valid && !Number.isFinite(out[c])) throw malformed(where, `valid cell ${c} decodes to a non-finite value`);
+    if (codes[c] === Cell.Valid && !Number.isFinite(out[c])) throw malformed(where, `valid ${cellName(c, n)} decodes to ${out[c]}, not a finite value`);
   }
   applyClasses(out, codes, rawNaN, ctx.fill);
   return out;
@@ -137,7 +167,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
 function readFactors(r: ByteReader, ctx: TileContext, rank: number, l: Float64Array, w: Float64Array): void {
   const { m, n, where } = ctx;
   const groups = r.u8('group count');
-  if (groups === 0) throw malformed(where, `rank ${rank} but no factor groups`);
+  if (groups === 0) throw malformed(where, `rank ${rank} but no factor groups (group count at ${r.unit} ${r.offset - 1})`);
   const sizes: number[] = [];
   let total = 0;
   for (let g = 0; g < groups; g++) {
@@ -153,7 +183,7 @@ function readFactors(r: ByteReader, ctx: TileContext, rank: number, l: Float64Ar
   for (let g = 0; g < groups; g++) {
     const size = sizes[g];
     const sec = readSection(r, `factor group ${g}`, 4 * size + size * (2 + 4 * m + 4 * n), false);
-    const gr = new ByteReader(sec, `${where} factor group ${g}`);
+    const gr = new ByteReader(sec, `${where} factor group ${g}`, 0, 'raw offset');
     const du: number[] = [];
     const dw: number[] = [];
     for (let k = 0; k < size; k++) {
@@ -167,7 +197,7 @@ function readFactors(r: ByteReader, ctx: TileContext, rank: number, l: Float64Ar
       unpackInts(gr, qw, `right factor ${rk}`);
       for (let j = 0; j < n; j++) w[rk * n + j] = qw[j] * dw[k];
     }
-    if (gr.remaining !== 0) throw malformed(where, `factor group ${g} has trailing bytes`);
+    if (gr.remaining !== 0) throw malformed(where, `factor group ${g} has ${gr.remaining} bytes after its factors`);
     k0 += size;
   }
 }

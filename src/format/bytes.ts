@@ -80,11 +80,17 @@ export class ByteReader {
   pos = 0;
   /** Names the structure in error messages, e.g. "field 't2m' tile 17". */
   readonly where: string;
+  /** Offset of `bytes[0]` for messages (the file offset of a payload, when known). */
+  readonly base: number;
+  /** What offsets in messages count: "file offset", "payload offset", "raw offset" (inside inflated data), ... */
+  readonly unit: string;
 
-  constructor(bytes: Uint8Array, where: string) {
+  constructor(bytes: Uint8Array, where: string, base = 0, unit = 'offset') {
     this.bytes = bytes;
     this.view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
     this.where = where;
+    this.base = base;
+    this.unit = unit;
   }
 
   /** Bytes not yet read. */
@@ -92,11 +98,16 @@ export class ByteReader {
     return this.bytes.length - this.pos;
   }
 
+  /** The current position as messages state it (base + pos). */
+  get offset(): number {
+    return this.base + this.pos;
+  }
+
   private need(n: number, what: string): void {
     if (n > this.bytes.length - this.pos) {
       throw new FormatError(
         FormatCode.Truncated,
-        `${this.where}: ${what} needs ${n} bytes at offset ${this.pos} but only ${this.bytes.length - this.pos} remain`,
+        `${this.where}: ${what} needs ${n} bytes at ${this.unit} ${this.offset} but only ${this.bytes.length - this.pos} remain`,
       );
     }
   }
@@ -129,7 +140,7 @@ export class ByteReader {
     const lo = this.view.getUint32(this.pos, true);
     const hi = this.view.getUint32(this.pos + 4, true);
     if (hi >= 0x200000) {
-      throw new FormatError(FormatCode.Malformed, `${this.where}: ${what} at offset ${this.pos} exceeds 2^53`);
+      throw new FormatError(FormatCode.Malformed, `${this.where}: ${what} at ${this.unit} ${this.offset} exceeds 2^53`);
     }
     this.pos += 8;
     return hi * 0x100000000 + lo;

@@ -3,12 +3,12 @@
  * (spec/FORMAT.md). This module knows bytes, CRCs and the structure of the
  * header and index; it knows nothing of how tiles are coded.
  */
-import { decode, encode } from '@msgpack/msgpack';
+import { Decoder, encode } from '@msgpack/msgpack';
 import { FormatCode, FormatError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
 import type { ByteSource } from './source.js';
-import { checkHeader, checkIndex, type ArchiveHeader, type ArchiveIndex, type Limits } from './schema.js';
+import { checkHeader, checkIndex, MAX_DEPTH, MAX_MAP_ENTRIES, resolveLimits, type ArchiveHeader, type ArchiveIndex, type Limits } from './schema.js';
 
 /** Magic bytes that open every archive. */
 export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0a);
@@ -123,36 +123,174 @@ export interface Container {
   index: ArchiveIndex;
   /** End of the payload region (start of header or index, whichever is first). */
   payloadEnd: number;
+  /** The limits the container was checked against (defaults merged with the caller's). */
+  limits: Limits;
 }
 
 function same(a: Uint8Array, b: Uint8Array): boolean {
   return a.length === b.length && a.every((v, i) => v === b[i]);
 }
 
-function decodeBlock(bytes: Uint8Array, what: string, label: string): unknown {
+const keyText = new TextDecoder();
+
+/**
+ * Walk one MessagePack value without building it, before the decoder sees
+ * it: every declared length must fit in the bytes that remain (so a
+ * 5-byte array header cannot make a decoder allocate 4 Gi slots), within
+ * the limits; maps have string keys, none twice and none `__proto__`;
+ * extension types and the never-used byte 0xC1 are refused; nesting is at
+ * most {@link MAX_DEPTH}; no byte may follow the value. Returns the number
+ * of map entries, which the decoded value must reproduce (a second guard
+ * against duplicate keys). Iterative: no input can exhaust the call stack.
+ */
+export function scanMessagePack(b: Uint8Array, what: string, label: string, limits: Pick<Limits, 'maxStringBytes' | 'maxTiles' | 'maxFields'>): number {
+  const bad = (at: number, problem: string): never => {
+    throw new FormatError(FormatCode.Malformed, `${label}: ${what} is not valid MessagePack: ${problem} at block offset ${at}`);
+  };
+  const view = new DataView(b.buffer, b.byteOffset, b.byteLength);
+  const maxArray = Math.max(limits.maxTiles, limits.maxFields);
+  // Per open container: items still to come, and for maps the keys seen and whether a key comes next.
+  const left: number[] = [];
+  const keys: (Set<string> | null)[] = [];
+  const keyNext: boolean[] = [];
+  let entries = 0;
+  let pos = 0;
+  const len = b.length;
+  const need = (at: number, n: number, of: string): void => {
+    if (n > len - pos) bad(at, `${of} needs ${n} bytes but only ${len - pos} remain`);
+  };
+  const uint = (at: number, size: number): number => {
+    need(at, size, 'a length');
+    const v = size === 1 ? b[pos] : size === 2 ? view.getUint16(pos) : view.getUint32(pos);
+    pos += size;
+    return v;
+  };
+  do {
+    const depth = left.length;
+    const at = pos;
+    if (pos >= len) bad(at, 'the block ends inside a value');
+    const h = b[pos++];
+    if (depth > 0 && keys[depth - 1] !== null && keyNext[depth - 1]) {
+      // A map key: a string, read and remembered.
+      let n: number;
+      if (h >= 0xa0 && h <= 0xbf) n = h - 0xa0;
+      else if (h === 0xd9) n = uint(at, 1);
+      else if (h === 0xda) n = uint(at, 2);
+      else if (h === 0xdb) n = uint(at, 4);
+      else return bad(at, `a map key of type byte 0x${h.toString(16)} (keys must be strings)`);
+      if (n > limits.maxStringBytes) throw new FormatError(FormatCode.Limit, `${label}: ${what} key of ${n} bytes at block offset ${at} exceeds the limit of ${limits.maxStringBytes}`);
+      need(at, n, 'a key');
+      const key = keyText.decode(b.subarray(pos, pos + n));
+      pos += n;
+      if (key === '__proto__') bad(at, 'the key __proto__');
+      const seen = keys[depth - 1] as Set<string>;
+      if (seen.has(key)) bad(at, `the key ${JSON.stringify(key.slice(0, 40))} a second time in one map`);
+      seen.add(key);
+      keyNext[depth - 1] = false;
+      continue;
+    }
+    let str = -1;
+    let open = -1;
+    let isMap = false;
+    if (h <= 0x7f || h >= 0xe0 || h === 0xc0 || h === 0xc2 || h === 0xc3) {
+      // fixint, nil, false, true: the head byte is the value
+    } else if (h <= 0x8f) (open = h - 0x80), (isMap = true);
+    else if (h <= 0x9f) open = h - 0x90;
+    else if (h <= 0xbf) str = h - 0xa0;
+    else if (h === 0xcc || h === 0xd0) need(at, 1, 'a number'), (pos += 1);
+    else if (h === 0xcd || h === 0xd1) need(at, 2, 'a number'), (pos += 2);
+    else if (h === 0xca || h === 0xce || h === 0xd2) need(at, 4, 'a number'), (pos += 4);
+    else if (h === 0xcb || h === 0xcf || h === 0xd3) need(at, 8, 'a number'), (pos += 8);
+    else if (h === 0xd9 || h === 0xc4) str = uint(at, 1);
+    else if (h === 0xda || h === 0xc5) str = uint(at, 2);
+    else if (h === 0xdb || h === 0xc6) str = uint(at, 4);
+    else if (h === 0xdc) open = uint(at, 2);
+    else if (h === 0xdd) open = uint(at, 4);
+    else if (h === 0xde) (open = uint(at, 2)), (isMap = true);
+    else if (h === 0xdf) (open = uint(at, 4)), (isMap = true);
+    else if (h === 0xc1) bad(at, 'the unused type byte 0xc1');
+    else bad(at, `an extension type (byte 0x${h.toString(16)}), which version 1 does not use`);
+    if (str >= 0) {
+      if (str > limits.maxStringBytes) throw new FormatError(FormatCode.Limit, `${label}: ${what} string or binary of ${str} bytes at block offset ${at} exceeds the limit of ${limits.maxStringBytes}`);
+      need(at, str, 'a string or binary value');
+      pos += str;
+    }
+    if (open > 0) {
+      if (depth + 1 > MAX_DEPTH) bad(at, `nesting deeper than ${MAX_DEPTH}`);
+      if (isMap && open > MAX_MAP_ENTRIES) throw new FormatError(FormatCode.Limit, `${label}: ${what} map of ${open} entries at block offset ${at} exceeds the limit of ${MAX_MAP_ENTRIES}`);
+      if (!isMap && open > maxArray) throw new FormatError(FormatCode.Limit, `${label}: ${what} array of ${open} elements at block offset ${at} exceeds the limit of ${maxArray}`);
+      // Every element takes at least one byte (a map entry two).
+      need(at, isMap ? 2 * open : open, `${isMap ? 'a map' : 'an array'} of ${open}`);
+      left.push(open);
+      keys.push(isMap ? new Set() : null);
+      keyNext.push(isMap);
+      if (isMap) entries += open;
+      continue;
+    }
+    // A value is complete: count it against its container, closing every container it completes.
+    for (let d = left.length - 1; d >= 0; d--) {
+      left[d]--;
+      if (keys[d] !== null) keyNext[d] = true;
+      if (left[d] > 0) break;
+      left.pop();
+      keys.pop();
+      keyNext.pop();
+    }
+  } while (left.length > 0);
+  if (pos !== len) bad(pos, `${len - pos} bytes after the end of the value`);
+  return entries;
+}
+
+/** Map entries of a decoded value (maps are plain objects; depth is bounded by the scan). */
+function countEntries(v: unknown): number {
+  let s = 0;
+  if (Array.isArray(v)) {
+    for (let i = 0; i < v.length; i++) if (typeof v[i] === 'object' && v[i] !== null) s += countEntries(v[i]);
+  } else if (typeof v === 'object' && v !== null && !(v instanceof Uint8Array)) {
+    for (const x of Object.values(v)) s += 1 + (typeof x === 'object' && x !== null ? countEntries(x) : 0);
+  }
+  return s;
+}
+
+/** Scan, then decode one block with the decoder's own limits set from ours. */
+function decodeBlock(bytes: Uint8Array, what: string, label: string, limits: Limits): unknown {
+  const entries = scanMessagePack(bytes, what, label, limits);
+  const maxLength = Math.max(limits.maxTiles, limits.maxFields);
+  const decoder = new Decoder({
+    maxStrLength: limits.maxStringBytes,
+    maxBinLength: limits.maxStringBytes,
+    maxArrayLength: maxLength,
+    maxMapLength: MAX_MAP_ENTRIES,
+    maxExtLength: 0,
+  });
+  let value: unknown;
   try {
-    return decode(bytes);
+    value = decoder.decode(bytes);
   } catch (e) {
     throw new FormatError(FormatCode.Malformed, `${label}: ${what} is not valid MessagePack (${(e as Error).message})`);
   }
+  // Two keys that decode to the same property name (the scan compares them as UTF-8 text).
+  if (countEntries(value) !== entries) throw new FormatError(FormatCode.Malformed, `${label}: ${what} has a map with a key twice`);
+  return value;
 }
 
 /** Read and check prologue, tail, header and index; payloads are left in the source. */
-export async function readContainer(src: ByteSource, limits: Limits): Promise<Container> {
+export async function readContainer(src: ByteSource, given?: Partial<Limits>): Promise<Container> {
+  const limits = resolveLimits(given);
   const label = src.label;
   const size = await src.size();
-  if (size < PROLOGUE_SIZE + TAIL_SIZE) {
+  if (!Number.isSafeInteger(size) || size < PROLOGUE_SIZE + TAIL_SIZE) {
     throw new FormatError(FormatCode.Truncated, `${label}: ${size} bytes is too short for an archive (at least ${PROLOGUE_SIZE + TAIL_SIZE})`);
   }
-  const pro = new ByteReader(await src.read(0, PROLOGUE_SIZE), `${label} prologue`);
+  const pro = new ByteReader(await src.read(0, PROLOGUE_SIZE), `${label} prologue`, 0, 'file offset');
   if (!same(pro.bytesView(8), MAGIC)) throw new FormatError(FormatCode.BadMagic, `${label}: not a rankfield archive (wrong magic bytes at offset 0)`);
   const version = pro.u16();
   const flags = pro.u16();
   checkVersion(version, flags, label);
-  const tail = new ByteReader(await src.read(size - TAIL_SIZE, TAIL_SIZE), `${label} tail`);
+  const tail = new ByteReader(await src.read(size - TAIL_SIZE, TAIL_SIZE), `${label} tail`, size - TAIL_SIZE, 'file offset');
   const tailBytes = tail.bytes;
   if (!same(tailBytes.subarray(40), TAIL_MAGIC)) {
-    throw new FormatError(FormatCode.Truncated, `${label}: no archive tail at the end of the file (truncated or not a rankfield archive)`);
+    throw new FormatError(FormatCode.Truncated, `${label}: no archive tail at the end of the file (offset ${size - 8}; truncated or not a rankfield archive)`);
   }
   if (crc32(tailBytes.subarray(0, 36)) !== new DataView(tailBytes.buffer, tailBytes.byteOffset + 36, 4).getUint32(0, true)) {
     throw new FormatError(FormatCode.Checksum, `${label}: tail CRC-32 mismatch at offset ${size - TAIL_SIZE}`);
@@ -183,12 +321,12 @@ export async function readContainer(src: ByteSource, limits: Limits): Promise<Co
   }
   const hb = await src.read(headerOffset, headerLength);
   if (crc32(hb) !== headerCrc) throw new FormatError(FormatCode.Checksum, `${label}: header CRC-32 mismatch (header at offset ${headerOffset})`);
-  const header = checkHeader(decodeBlock(hb, 'header', label), limits, label);
+  const header = checkHeader(decodeBlock(hb, `header (at offset ${headerOffset})`, label, limits), limits, label);
   const ib = await src.read(indexOffset, indexLength);
   if (crc32(ib) !== indexCrc) throw new FormatError(FormatCode.Checksum, `${label}: index CRC-32 mismatch (index at offset ${indexOffset})`);
   const payloadEnd = Math.min(headerOffset, indexOffset);
-  const index = checkIndex(decodeBlock(ib, 'index', label), header, PROLOGUE_SIZE, payloadEnd, limits, label);
-  return { size, version, header, index, payloadEnd };
+  const index = checkIndex(decodeBlock(ib, `index (at offset ${indexOffset})`, label, limits), header, PROLOGUE_SIZE, payloadEnd, limits, label);
+  return { size, version, header, index, payloadEnd, limits };
 }
 
 /** Refuse versions and required flags this reader does not know. */

@@ -2,8 +2,7 @@
  * The header and index as data, and the checks a reader applies to them
  * before trusting any number in them (spec/FORMAT.md, "Header", "Index").
  */
-import { FormatCode, FormatError } from '../errors.js';
-import { resolveBound } from '../codec/bound.js';
+import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import type { BoundMode, Dtype } from '../types.js';
 
 /** Free-form attributes: strings, numbers, booleans, or arrays of them. */
@@ -58,27 +57,71 @@ export interface ArchiveIndex {
   fields: FieldIndex[];
 }
 
-/** Reader limits: declared sizes beyond these are refused before anything is allocated. */
+/**
+ * Reader limits: declared sizes beyond these are refused (FormatError code
+ * `limit`) before anything is allocated. Every limit is an option of
+ * `open()`; see {@link DEFAULT_LIMITS} and spec/FORMAT.md, section 14.
+ */
 export interface Limits {
+  /** Bytes of the header block. */
   maxHeaderBytes: number;
+  /** Bytes of the index block. */
   maxIndexBytes: number;
+  /** Fields of one archive. */
   maxFields: number;
-  /** Cells of one field (rows x cols). */
+  /** Cells of one field (rows x cols), as declared; windows of larger fields cannot be declared either. */
   maxCells: number;
-  /** Cells of one tile. */
+  /** Cells of one tile: bounds every buffer a tile decode allocates. */
   maxTileCells: number;
+  /** Tiles of one field. */
   maxTiles: number;
+  /** Rank of one tile: bounds the decode work of a tile to m*n*rank multiply-adds. */
+  maxRank: number;
+  /** Bytes of one MessagePack string or binary value in the header or index. */
+  maxStringBytes: number;
+  /** Cells one read may return at once (a whole field or a window): bounds the output buffer. */
+  maxReadCells: number;
 }
 
 /** Defaults: generous for real archives, small enough that no file can exhaust memory by declaration alone. */
-export const DEFAULT_LIMITS: Limits = {
+export const DEFAULT_LIMITS: Readonly<Limits> = Object.freeze({
   maxHeaderBytes: 16 << 20,
   maxIndexBytes: 128 << 20,
   maxFields: 10000,
   maxCells: 2 ** 40,
   maxTileCells: 1 << 20,
   maxTiles: 1 << 22,
-};
+  // 1024 = min(m, n) of the largest square tile of 2^20 cells: no archive the default limits accept needs more.
+  maxRank: 1024,
+  maxStringBytes: 1 << 20,
+  maxReadCells: 1 << 28,
+});
+
+/** Entries of one map in the header or index (attributes included); a fixed rule, not an option. */
+export const MAX_MAP_ENTRIES = 1 << 16;
+/** Nesting depth of the header and index (legitimate blocks nest 5 deep); a fixed rule, not an option. */
+export const MAX_DEPTH = 16;
+
+/** Merge caller limits over the defaults, refusing values that are not positive integers. */
+export function resolveLimits(given: Partial<Limits> | undefined): Limits {
+  const out: Limits = { ...DEFAULT_LIMITS };
+  if (given === undefined || given === null) return out;
+  if (typeof given !== 'object') throw new InputError(InputCode.Option, `limits must be an object, got ${describe(given)}`);
+  for (const [k, v] of Object.entries(given)) {
+    if (v === undefined) continue;
+    if (!(k in DEFAULT_LIMITS)) throw new InputError(InputCode.Option, `unknown reader limit '${k}' (known: ${Object.keys(DEFAULT_LIMITS).join(', ')})`);
+    if (typeof v !== 'number' || !Number.isSafeInteger(v) || v < 1) throw new InputError(InputCode.Option, `reader limit ${k} must be a positive integer, got ${describe(v)}`);
+    out[k as keyof Limits] = v;
+  }
+  return out;
+}
+
+/** Refuse a read of `cells` values at once above the limit (called before allocating the output). */
+export function checkReadCells(cells: number, limits: Pick<Limits, 'maxReadCells'>, where: string): void {
+  if (!(cells <= limits.maxReadCells)) {
+    throw new FormatError(FormatCode.Limit, `${where}: reading ${cells} values at once exceeds the limit of ${limits.maxReadCells} (read windows, or raise limits.maxReadCells)`);
+  }
+}
 
 type Obj = Record<string, unknown>;
 
@@ -86,12 +129,24 @@ function fail(label: string, what: string): never {
   throw new FormatError(FormatCode.Malformed, `${label}: ${what}`);
 }
 
+/** A short description of a decoded value for messages (never the whole of a long string or array). */
+export function describe(v: unknown): string {
+  if (v === undefined) return 'nothing';
+  if (v === null) return 'nil';
+  if (typeof v === 'string') return v.length > 40 ? `${JSON.stringify(v.slice(0, 40))}... (${v.length} characters)` : JSON.stringify(v);
+  if (typeof v === 'number' || typeof v === 'boolean' || typeof v === 'bigint') return String(v);
+  if (v instanceof Uint8Array) return `${v.length} bytes of binary data`;
+  if (Array.isArray(v)) return `an array of ${v.length}`;
+  if (typeof v === 'object') return 'a map';
+  return typeof v;
+}
+
 function isObj(v: unknown): v is Obj {
   return typeof v === 'object' && v !== null && !Array.isArray(v) && !(v instanceof Uint8Array);
 }
 
 function posInt(v: unknown, label: string, what: string, max = Number.MAX_SAFE_INTEGER): number {
-  if (typeof v !== 'number' || !Number.isInteger(v) || v < 1 || v > max) fail(label, `${what} must be an integer in 1..${max}, got ${String(v)}`);
+  if (typeof v !== 'number' || !Number.isInteger(v) || v < 1 || v > max) fail(label, `${what} must be an integer in 1..${max}, got ${describe(v)}`);
   return v;
 }
 
@@ -101,7 +156,7 @@ export function attrsProblem(v: unknown): string | null {
   const ok = (x: unknown) => typeof x === 'string' || typeof x === 'number' || typeof x === 'boolean';
   for (const [k, a] of Object.entries(v)) {
     if (k === '__proto__') return "attribute name '__proto__' is not allowed";
-    if (!(ok(a) || (Array.isArray(a) && a.every(ok)))) return `attribute '${k}' must be a string, number, boolean or an array of them`;
+    if (!(ok(a) || (Array.isArray(a) && a.every(ok)))) return `attribute '${k}' must be a string, number, boolean or an array of them, got ${describe(a)}`;
   }
   return null;
 }
@@ -113,50 +168,57 @@ function checkAttrs(v: unknown, label: string): Attrs {
   return v as Attrs;
 }
 
+/** The fill value as stored: nil, a number, or 8 bytes of binary64 (little-endian; the reference writer's form). */
+function checkFill(f: Obj, where: string): number | null {
+  if (!('fill' in f)) fail(where, 'has no fill key (nil when the field has no fill value)');
+  const v = f.fill;
+  if (v === null) return null;
+  if (typeof v === 'number') return v;
+  if (v instanceof Uint8Array && v.length === 8) return new DataView(v.buffer, v.byteOffset, 8).getFloat64(0, true);
+  return fail(where, `fill must be nil, a number or 8 bytes (binary64, little-endian), got ${describe(v)}`);
+}
+
 /** Validate a decoded header. */
 export function checkHeader(raw: unknown, limits: Limits, label: string): ArchiveHeader {
-  if (!isObj(raw)) fail(label, 'header is not a map');
-  if (raw.format !== 'rankfield') fail(label, `header format is ${JSON.stringify(raw.format)}, not "rankfield"`);
-  if (raw.version !== 1) fail(label, `header version ${JSON.stringify(raw.version)} does not match the container version 1`);
-  if (!Array.isArray(raw.fields)) fail(label, 'header has no fields list');
+  if (!isObj(raw)) fail(label, `header is ${describe(raw)}, not a map`);
+  if (raw.format !== 'rankfield') fail(label, `header format is ${describe(raw.format)}, not "rankfield"`);
+  // The header's `version` key is not examined (spec 6.1): the prologue and tail are authoritative.
+  if (!Array.isArray(raw.fields)) fail(label, `header fields is ${describe(raw.fields)}, not an array`);
   if (raw.fields.length > limits.maxFields) throw new FormatError(FormatCode.Limit, `${label}: ${raw.fields.length} fields exceed the limit of ${limits.maxFields}`);
   const names = new Set<string>();
   const fields = raw.fields.map((f: unknown, i: number): FieldHeader => {
     const at = `${label} header field ${i}`;
-    if (!isObj(f)) fail(at, 'is not a map');
-    if (typeof f.name !== 'string' || f.name.length === 0 || f.name.length > 1024) fail(at, 'name must be a string of 1 to 1024 characters');
-    if (names.has(f.name)) fail(at, `duplicate field name '${f.name}'`);
+    if (!isObj(f)) fail(at, `is ${describe(f)}, not a map`);
+    if (typeof f.name !== 'string' || f.name.length === 0 || f.name.length > 1024) fail(at, `name must be a string of 1 to 1024 characters, got ${describe(f.name)}`);
+    if (names.has(f.name)) fail(at, `duplicate field name ${describe(f.name)}`);
     names.add(f.name);
-    const where = `${label} field '${f.name}'`;
-    if (f.dtype !== 'f32' && f.dtype !== 'f64') fail(where, `dtype ${JSON.stringify(f.dtype)} is not f32 or f64`);
-    if (!Array.isArray(f.shape) || f.shape.length !== 2) fail(where, 'shape must be [rows, cols]');
-    if (!Array.isArray(f.tile) || f.tile.length !== 2) fail(where, 'tile must be [rows, cols]');
+    const where = `${label} field ${describe(f.name).replace(/^"(.*)"$/, "'$1'")}`;
+    if (f.dtype !== 'f32' && f.dtype !== 'f64') fail(where, `dtype ${describe(f.dtype)} is not "f32" or "f64"`);
+    if (!Array.isArray(f.shape) || f.shape.length !== 2) fail(where, `shape must be [rows, cols], got ${describe(f.shape)}`);
+    if (!Array.isArray(f.tile) || f.tile.length !== 2) fail(where, `tile must be [rows, cols], got ${describe(f.tile)}`);
     const rows = posInt(f.shape[0], where, 'rows');
     const cols = posInt(f.shape[1], where, 'cols');
     const tr = posInt(f.tile[0], where, 'tile rows');
     const tc = posInt(f.tile[1], where, 'tile cols');
     if (rows * cols > limits.maxCells) throw new FormatError(FormatCode.Limit, `${where}: ${rows}x${cols} exceeds the limit of ${limits.maxCells} cells`);
-    if (tr * tc > limits.maxTileCells) throw new FormatError(FormatCode.Limit, `${where}: tile ${tr}x${tc} exceeds the limit of ${limits.maxTileCells} cells`);
+    // A tile is cut at the field's edge, so only its part inside the field counts.
+    const tileCells = Math.min(tr, rows) * Math.min(tc, cols);
+    if (tileCells > limits.maxTileCells) throw new FormatError(FormatCode.Limit, `${where}: tile ${tr}x${tc} exceeds the limit of ${limits.maxTileCells} cells`);
     const tiles = Math.ceil(rows / tr) * Math.ceil(cols / tc);
     if (tiles > limits.maxTiles) throw new FormatError(FormatCode.Limit, `${where}: ${tiles} tiles exceed the limit of ${limits.maxTiles}`);
     const b = f.bound;
-    if (!isObj(b)) fail(where, 'bound is not a map');
-    if (!['abs', 'rel', 'rmse', 'psnr'].includes(b.mode as string)) fail(where, `bound mode ${JSON.stringify(b.mode)} is unknown`);
-    if (typeof b.value !== 'number' || !(b.value > 0) || !Number.isFinite(b.value)) fail(where, 'bound value must be a positive finite number');
-    if (typeof b.tolerance !== 'number' || !(b.tolerance >= 0)) fail(where, 'bound tolerance must be a number >= 0');
+    if (!isObj(b)) fail(where, `bound is ${describe(b)}, not a map`);
+    if (!['abs', 'rel', 'rmse', 'psnr'].includes(b.mode as string)) fail(where, `bound mode ${describe(b.mode)} is unknown`);
+    if (typeof b.value !== 'number' || !(b.value > 0) || !Number.isFinite(b.value)) fail(where, `bound value must be a positive finite number, got ${describe(b.value)}`);
+    // The stored tolerance is authoritative (spec 6.3): it is checked for type, not recomputed.
+    if (typeof b.tolerance !== 'number' || !(b.tolerance >= 0) || !Number.isFinite(b.tolerance)) {
+      fail(where, `bound tolerance must be a finite number >= 0, got ${describe(b.tolerance)}`);
+    }
     const range = b.range;
     if (range !== null && !(Array.isArray(range) && range.length === 2 && range.every((x) => typeof x === 'number' && Number.isFinite(x)) && range[0] <= range[1])) {
-      fail(where, 'bound range must be finite [min, max] with min <= max, or nil');
+      fail(where, `bound range must be finite [min, max] with min <= max, or nil, got ${Array.isArray(range) ? `[${range.map(describe).join(', ')}]` : describe(range)}`);
     }
-    let fill: number | null = null;
-    if (f.fill !== null && f.fill !== undefined) {
-      if (!(f.fill instanceof Uint8Array) || f.fill.length !== 8) fail(where, 'fill must be nil or 8 bytes (binary64, little-endian)');
-      fill = new DataView(f.fill.buffer, f.fill.byteOffset, 8).getFloat64(0, true);
-    }
-    const tolerance = resolveBound({ mode: b.mode as BoundMode, value: b.value as number }, range ? (range[1] as number) - (range[0] as number) : 0);
-    if (!Object.is(Math.min(Number.isFinite(tolerance) ? tolerance : Number.MAX_VALUE, Number.MAX_VALUE), b.tolerance)) {
-      fail(where, `bound tolerance ${String(b.tolerance)} is not what ${String(b.mode)}:${String(b.value)} gives for the stored range`);
-    }
+    const fill = checkFill(f, where);
     return {
       name: f.name,
       dtype: f.dtype,
@@ -185,51 +247,92 @@ const COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err'
 export function checkIndex(raw: unknown, header: ArchiveHeader, start: number, end: number, limits: Limits, label: string): ArchiveIndex {
   if (!isObj(raw) || !Array.isArray(raw.fields)) fail(label, 'index is not a map with a fields list');
   if (raw.fields.length !== header.fields.length) fail(label, `index lists ${raw.fields.length} fields, header ${header.fields.length}`);
-  const fields = raw.fields.map((f: unknown, i: number): FieldIndex => {
-    const h = header.fields[i];
-    const where = `${label} index of field '${h.name}'`;
-    if (!isObj(f)) fail(where, 'is not a map');
-    const tiles = Math.ceil(h.shape[0] / h.tile[0]) * Math.ceil(h.shape[1] / h.tile[1]);
-    for (const c of COLUMNS) {
-      const col = f[c];
-      if (!Array.isArray(col) || col.length !== tiles) fail(where, `column '${c}' must list ${tiles} tiles`);
-      if (!col.every((v) => typeof v === 'number' && !Number.isNaN(v))) fail(where, `column '${c}' holds a non-number`);
-    }
-    const col = (c: (typeof COLUMNS)[number]) => f[c] as number[];
-    for (let t = 0; t < tiles; t++) {
-      const off = col('offset')[t];
-      const len = col('length')[t];
-      if (!Number.isInteger(off) || !Number.isInteger(len) || off < start || len < 2 || off + len > end) {
-        fail(where, `tile ${t} payload ${off}+${len} lies outside the payload bytes ${start}..${end}`);
-      }
-      for (const c of ['crc', 'value_crc'] as const) {
-        const v = col(c)[t];
-        if (!Number.isInteger(v) || v < 0 || v > 0xffffffff) fail(where, `tile ${t} ${c} is not a 32-bit value`);
-      }
-      const [m, n] = tileShape(h, t);
-      const method = col('method')[t];
-      const rank = col('rank')[t];
-      const valid = col('valid')[t];
-      if (method !== 0 && method !== 1) fail(where, `tile ${t} method ${method} is not 0 or 1`);
-      if (!Number.isInteger(rank) || rank < 0 || rank > Math.min(m, n) || (method === 0 && rank !== 0)) fail(where, `tile ${t} rank ${rank} is impossible for a ${m}x${n} tile`);
-      if (!Number.isInteger(valid) || valid < 0 || valid > m * n) fail(where, `tile ${t} valid count ${valid} is impossible for a ${m}x${n} tile`);
-      for (const c of ['max_err', 'rmse'] as const) {
-        const v = col(c)[t];
-        if (!(v >= 0) || !Number.isFinite(v)) fail(where, `tile ${t} ${c} ${v} is not a finite number >= 0`);
-      }
-    }
-    // Payloads may not overlap: each tile owns its bytes.
-    const byOffset = col('offset').map((o, t) => [o, col('length')[t]]).sort((a, b) => a[0] - b[0]);
-    for (let k = 1; k < byOffset.length; k++) {
-      if (byOffset[k][0] < byOffset[k - 1][0] + byOffset[k - 1][1]) fail(where, `tile payloads overlap at offset ${byOffset[k][0]}`);
-    }
-    const s = f.summary;
-    if (!isObj(s) || !Number.isInteger(s.valid) || !((s.valid as number) >= 0)) fail(where, 'summary must hold an integer valid count');
-    for (const k of ['max_err', 'rmse'] as const) {
-      if (typeof s[k] !== 'number' || !((s[k] as number) >= 0) || !Number.isFinite(s[k])) fail(where, `summary ${k} must be a finite number >= 0`);
-    }
-    void limits;
-    return { ...(Object.fromEntries(COLUMNS.map((c) => [c, col(c)])) as Omit<FieldIndex, 'summary'>), summary: { valid: s.valid as number, max_err: s.max_err as number, rmse: s.rmse as number } };
-  });
+  const fields = raw.fields.map((f: unknown, i: number): FieldIndex => checkFieldIndex(f, header.fields[i], start, end, limits, label));
+  checkNoOverlap(fields, header, label);
   return { fields };
+}
+
+function checkFieldIndex(f: unknown, h: FieldHeader, start: number, end: number, limits: Limits, label: string): FieldIndex {
+  const where = `${label} index of field '${h.name}'`;
+  if (!isObj(f)) fail(where, `is ${describe(f)}, not a map`);
+  const tiles = Math.ceil(h.shape[0] / h.tile[0]) * Math.ceil(h.shape[1] / h.tile[1]);
+  for (const c of COLUMNS) {
+    const col = f[c];
+    if (!Array.isArray(col) || col.length !== tiles) fail(where, `column '${c}' must list ${tiles} tiles, got ${describe(col)}`);
+    for (let t = 0; t < tiles; t++) {
+      const v = col[t];
+      if (typeof v !== 'number' || Number.isNaN(v)) fail(where, `column '${c}' tile ${t} holds ${describe(v)}, not a number`);
+    }
+  }
+  const col = (c: (typeof COLUMNS)[number]) => f[c] as number[];
+  const [offset, length, crc, method, rank, valid, maxErr, rmse, valueCrc] = COLUMNS.map(col);
+  let validSum = 0;
+  let maxErrMax = 0;
+  for (let t = 0; t < tiles; t++) {
+    const off = offset[t];
+    const len = length[t];
+    if (!Number.isInteger(off) || !Number.isInteger(len) || off < start || len < 2 || off + len > end) {
+      fail(where, `tile ${t} payload ${off}+${len} lies outside the payload bytes ${start}..${end}`);
+    }
+    if (!Number.isInteger(crc[t]) || crc[t] < 0 || crc[t] > 0xffffffff) fail(where, `tile ${t} crc ${crc[t]} is not a 32-bit value`);
+    if (!Number.isInteger(valueCrc[t]) || valueCrc[t] < 0 || valueCrc[t] > 0xffffffff) fail(where, `tile ${t} value_crc ${valueCrc[t]} is not a 32-bit value`);
+    const [m, n] = tileShape(h, t);
+    if (method[t] !== 0 && method[t] !== 1) fail(where, `tile ${t} method ${method[t]} is not 0 or 1`);
+    const r = rank[t];
+    if (!Number.isInteger(r) || r < 0 || r > Math.min(m, n) || (method[t] === 0 && r !== 0)) fail(where, `tile ${t} rank ${r} is impossible for a method ${method[t]} ${m}x${n} tile`);
+    if (r > limits.maxRank) throw new FormatError(FormatCode.Limit, `${where}: tile ${t} rank ${r} exceeds the limit of ${limits.maxRank}`);
+    const v = valid[t];
+    if (!Number.isInteger(v) || v < 0 || v > m * n) fail(where, `tile ${t} valid count ${v} is impossible for a ${m}x${n} tile`);
+    for (const [name, x] of [['max_err', maxErr[t]], ['rmse', rmse[t]]] as const) {
+      if (!(x >= 0) || !Number.isFinite(x)) fail(where, `tile ${t} ${name} ${x} is not a finite number >= 0`);
+      if (v === 0 && x !== 0) fail(where, `tile ${t} has no valid cell but a ${name} of ${x}`);
+    }
+    validSum += v;
+    if (maxErr[t] > maxErrMax) maxErrMax = maxErr[t];
+  }
+  const s = f.summary;
+  if (!isObj(s)) fail(where, `summary is ${describe(s)}, not a map`);
+  if (typeof s.valid !== 'number' || typeof s.max_err !== 'number' || typeof s.rmse !== 'number') fail(where, 'summary must hold numbers valid, max_err and rmse');
+  if (s.valid !== validSum) fail(where, `summary valid count ${s.valid} is not the sum ${validSum} of the tiles' counts`);
+  if (s.max_err !== maxErrMax) fail(where, `summary max_err ${s.max_err} is not the largest tile max_err ${maxErrMax}`);
+  if (!(s.rmse >= 0) || !Number.isFinite(s.rmse) || (validSum === 0 && s.rmse !== 0)) fail(where, `summary rmse ${s.rmse} is not a finite number >= 0 (0 without valid cells)`);
+  return { offset, length, crc, method, rank, valid, max_err: maxErr, rmse, value_crc: valueCrc, summary: { valid: s.valid, max_err: s.max_err, rmse: s.rmse } };
+}
+
+/**
+ * Payloads may not overlap, within a field or across fields: each tile owns
+ * its bytes, so no file can make a reader decode the same bytes many times.
+ * Writers store payloads in order, so one pass usually suffices; otherwise
+ * the payloads are sorted by offset.
+ */
+function checkNoOverlap(fields: FieldIndex[], header: ArchiveHeader, label: string): void {
+  let total = 0;
+  for (const f of fields) total += f.offset.length;
+  const off = new Float64Array(total);
+  const len = new Float64Array(total);
+  const owner = new Uint32Array(total);
+  let k = 0;
+  let sorted = true;
+  fields.forEach((f, i) => {
+    for (let t = 0; t < f.offset.length; t++, k++) {
+      off[k] = f.offset[t];
+      len[k] = f.length[t];
+      owner[k] = i;
+      if (k > 0 && off[k] < off[k - 1] + len[k - 1]) sorted = false;
+    }
+  });
+  if (sorted) return;
+  const order = new Uint32Array(total).map((_, j) => j).sort((a, b) => off[a] - off[b] || a - b);
+  for (let j = 1; j < total; j++) {
+    const a = order[j - 1];
+    const b = order[j];
+    if (off[b] < off[a] + len[a]) {
+      const name = (x: number) => {
+        let t = x;
+        for (let i = 0; i < owner[x]; i++) t -= fields[i].offset.length;
+        return `field '${header.fields[owner[x]].name}' tile ${t}`;
+      };
+      fail(`${label} index`, `the payloads of ${name(a)} (${off[a]}+${len[a]}) and ${name(b)} (${off[b]}+${len[b]}) overlap`);
+    }
+  }
 }

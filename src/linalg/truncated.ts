@@ -9,7 +9,7 @@
 
 import { InputCode, InputError } from '../errors.js';
 import { exponentOf, mulPow2, scaleByPow2 } from './pow2.js';
-import { applyQ, qrcp, sumSquares } from './qrcp.js';
+import { sumSquares } from './qrcp.js';
 import { checkShape } from './shape.js';
 import { svd, type Svd } from './svd.js';
 
@@ -42,24 +42,30 @@ const SEED = 0x2545f491;
  * factored by {@link svd}, U = Q U_B, and everything is truncated to k.
  *
  * What the result satisfies in the sketch case:
- * - u diag(s) v^T = u u^T a exactly in exact arithmetic (u u^T is an
- *   orthogonal projector), so ||a - u diag(s) v^T||_F^2 = frob2 - sum(s^2),
- *   up to rounding; that difference may come out slightly negative (about
- *   1e-15 * frob2) when the tail is empty, and callers should clamp at 0.
+ * - u diag(s) v^T = u u^T a in exact arithmetic (u u^T is an orthogonal
+ *   projector), so ||a - u diag(s) v^T||_F^2 = frob2 - sum(s^2). Computed in
+ *   floating point, that difference carries an absolute error of about
+ *   k * 2^-52 * frob2: it can come out slightly negative (clamp at 0), and a
+ *   tail energy below about 1e-15 * frob2 cannot be resolved this way.
  * - s[j] <= sigma_j(a) up to rounding (singular values of Q^T a).
- * - Accuracy depends on the spectrum: the error in sigma_j and the excess
- *   of the truncation error over the Eckart-Young-Mirsky optimum scale like
- *   (sigma_{l+1} / sigma_j)^(2q+1); for fast-decaying spectra (smooth fields)
- *   the leading values match the full SVD to about 1e-12 relative; for a
- *   flat spectrum the result is only a good rank-k approximation, within
- *   the expected-error bound of Halko, Martinsson and Tropp.
+ * - Accuracy depends on the spectrum: the error in sigma_j, and the excess
+ *   of the truncation error over the Eckart-Young-Mirsky optimum, shrink
+ *   roughly like (sigma_{l+1} / sigma_j)^(2q+1). For fast-decaying spectra (smooth
+ *   fields) the leading values match the full SVD to about 1e-11 relative,
+ *   or to about 2^-52 * s[0] absolute where sigma_j nears rounding level;
+ *   where the spectrum is flat (e.g. a float32 rounding floor) the values
+ *   there are less accurate, but the rank-k approximation stays close to
+ *   optimal: on average over the sketch, within the expected-error bound of
+ *   Halko, Martinsson and Tropp (their Corollary 10.10 with Theorem 9.3).
  *
  * Special inputs, as in {@link svd}: a zero matrix gives all-zero u, s, v
  * and frob2 = 0. If `a` contains NaN or +-Infinity, every entry of u, s, v
  * and frob2 is NaN. Finite entries anywhere in the float64 range work,
- * subnormals included; a singular value, or frob2, whose true value exceeds
- * Number.MAX_VALUE is returned as Infinity (so with entries beyond about
- * 1e154, s^2 and frob2 overflow: scale before using the energy formula).
+ * subnormals included; a singular value whose true value exceeds
+ * Number.MAX_VALUE is returned as Infinity. frob2 (like s^2) leaves the
+ * float64 range sooner: it is Infinity once ||a||_F exceeds about 1e154 and
+ * may underflow (to 0 below about 1e-162), so callers with such data should
+ * scale before using the energy formula.
  *
  * Omega depends on Math.log, Math.cos and Math.sin (Box-Muller). Results are
  * bit-identical run to run on a given JavaScript engine; ECMAScript does not
@@ -112,24 +118,31 @@ export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): 
     return { m, n, k, u, s, v, frob2 };
   }
 
+  // wt = w^T (n x m row-major), so that A^T x is also made of dot products.
+  const wt = new Float64Array(n * m);
+  for (let i = 0; i < m; i++) {
+    const ro = i * n;
+    for (let j = 0; j < n; j++) wt[j * m + i] = w[ro + j];
+  }
   // Column-major sketch buffers: g (n x l), y and q (m x l), z (n x l).
   const g = new Float64Array(n * l);
   const y = new Float64Array(m * l);
   const q = new Float64Array(m * l);
   const z = new Float64Array(n * l);
+  const tau = new Float64Array(l);
   gaussian(g, SEED);
 
   mulA(w, m, n, g, l, y);
-  orthonormalize(y, m, l, q);
+  orthonormalize(y, m, l, q, tau);
   for (let it = 0; it < POWER_ITERATIONS; it++) {
-    mulAt(w, m, n, q, l, z);
-    orthonormalize(z, n, l, g);
+    mulA(wt, n, m, q, l, z);
+    orthonormalize(z, n, l, g, tau);
     mulA(w, m, n, g, l, y);
-    orthonormalize(y, m, l, q);
+    orthonormalize(y, m, l, q, tau);
   }
 
   // z = A^T Q is n x l column-major, i.e. B = Q^T A as l x n row-major.
-  mulAt(w, m, n, q, l, z);
+  mulA(wt, n, m, q, l, z);
   const fb = svd(z, l, n); // fb.k === l since l < n
   const ub = fb.u;
   for (let i = 0; i < m; i++) {
@@ -173,90 +186,85 @@ function gaussian(out: Float64Array, seed: number): void {
 }
 
 /**
- * y = w g, with w row-major m x n and g, y column-major (n x l, m x l).
- * Two columns of g per pass so each entry of w is loaded once for both.
+ * y = w g, with w row-major rows x cols and g, y column-major (cols x l,
+ * rows x l): every entry of y is a contiguous dot product. Blocks of four
+ * columns of g by two rows of w, so each load feeds several products.
  */
-function mulA(w: Float64Array, m: number, n: number, g: Float64Array, l: number, y: Float64Array): void {
-  const end2 = n - (n & 1);
+function mulA(w: Float64Array, rows: number, cols: number, g: Float64Array, l: number, y: Float64Array): void {
   let c = 0;
-  for (; c + 1 < l; c += 2) {
-    const g0 = c * n;
-    const g1 = g0 + n;
-    const y0 = c * m;
-    const y1 = y0 + m;
-    for (let i = 0; i < m; i++) {
-      const ro = i * n;
-      let a0 = 0;
-      let a1 = 0;
-      let b0 = 0;
-      let b1 = 0;
-      let j = 0;
-      for (; j < end2; j += 2) {
-        const x0 = w[ro + j];
-        const x1 = w[ro + j + 1];
-        a0 += x0 * g[g0 + j];
-        a1 += x1 * g[g0 + j + 1];
-        b0 += x0 * g[g1 + j];
-        b1 += x1 * g[g1 + j + 1];
-      }
-      if (j < n) {
-        const x0 = w[ro + j];
-        a0 += x0 * g[g0 + j];
-        b0 += x0 * g[g1 + j];
-      }
-      y[y0 + i] = a0 + a1;
-      y[y1 + i] = b0 + b1;
-    }
-  }
-  if (c < l) {
-    const g0 = c * n;
-    const y0 = c * m;
-    for (let i = 0; i < m; i++) {
-      const ro = i * n;
-      let a0 = 0;
-      let a1 = 0;
-      let j = 0;
-      for (; j < end2; j += 2) {
-        a0 += w[ro + j] * g[g0 + j];
-        a1 += w[ro + j + 1] * g[g0 + j + 1];
-      }
-      if (j < n) a0 += w[ro + j] * g[g0 + j];
-      y[y0 + i] = a0 + a1;
-    }
-  }
-}
-
-/**
- * z = w^T q, with w row-major m x n and q, z column-major (m x l, n x l):
- * column c of z accumulates q[i][c] times row i of w. Two columns per pass.
- */
-function mulAt(w: Float64Array, m: number, n: number, q: Float64Array, l: number, z: Float64Array): void {
-  z.fill(0);
-  let c = 0;
-  for (; c + 1 < l; c += 2) {
-    const q0 = c * m;
-    const q1 = q0 + m;
-    const z0 = c * n;
-    const z1 = z0 + n;
-    for (let i = 0; i < m; i++) {
-      const f0 = q[q0 + i];
-      const f1 = q[q1 + i];
-      const ro = i * n;
-      for (let j = 0; j < n; j++) {
+  for (; c + 3 < l; c += 4) {
+    const g0 = c * cols;
+    const g1 = g0 + cols;
+    const g2 = g1 + cols;
+    const g3 = g2 + cols;
+    const y0 = c * rows;
+    const y1 = y0 + rows;
+    const y2 = y1 + rows;
+    const y3 = y2 + rows;
+    let i = 0;
+    for (; i + 1 < rows; i += 2) {
+      const ro = i * cols;
+      const rp = ro + cols;
+      let s0 = 0;
+      let s1 = 0;
+      let s2 = 0;
+      let s3 = 0;
+      let t0 = 0;
+      let t1 = 0;
+      let t2 = 0;
+      let t3 = 0;
+      for (let j = 0; j < cols; j++) {
         const x = w[ro + j];
-        z[z0 + j] += f0 * x;
-        z[z1 + j] += f1 * x;
+        const z = w[rp + j];
+        const a0 = g[g0 + j];
+        const a1 = g[g1 + j];
+        const a2 = g[g2 + j];
+        const a3 = g[g3 + j];
+        s0 += x * a0;
+        s1 += x * a1;
+        s2 += x * a2;
+        s3 += x * a3;
+        t0 += z * a0;
+        t1 += z * a1;
+        t2 += z * a2;
+        t3 += z * a3;
       }
+      y[y0 + i] = s0;
+      y[y1 + i] = s1;
+      y[y2 + i] = s2;
+      y[y3 + i] = s3;
+      y[y0 + i + 1] = t0;
+      y[y1 + i + 1] = t1;
+      y[y2 + i + 1] = t2;
+      y[y3 + i + 1] = t3;
+    }
+    if (i < rows) {
+      const ro = i * cols;
+      let s0 = 0;
+      let s1 = 0;
+      let s2 = 0;
+      let s3 = 0;
+      for (let j = 0; j < cols; j++) {
+        const x = w[ro + j];
+        s0 += x * g[g0 + j];
+        s1 += x * g[g1 + j];
+        s2 += x * g[g2 + j];
+        s3 += x * g[g3 + j];
+      }
+      y[y0 + i] = s0;
+      y[y1 + i] = s1;
+      y[y2 + i] = s2;
+      y[y3 + i] = s3;
     }
   }
-  if (c < l) {
-    const q0 = c * m;
-    const z0 = c * n;
-    for (let i = 0; i < m; i++) {
-      const f0 = q[q0 + i];
-      if (f0 === 0) continue;
-      const ro = i * n;
-      for (let j = 0; j < n; j++) z[z0 + j] += f0 * w[ro + j];
+  for (; c < l; c++) {
+    const g0 = c * cols;
+    const y0 = c * rows;
+    for (let i = 0; i < rows; i++) {
+      const ro = i * cols;
+      let s0 = 0;
+      for (let j = 0; j < cols; j++) s0 += w[ro + j] * g[g0 + j];
+      y[y0 + i] = s0;
     }
   }
 }
@@ -264,13 +272,84 @@ function mulAt(w: Float64Array, m: number, n: number, q: Float64Array, l: number
 /**
  * Writes into `q` (column-major rows x cols, rows >= cols) an orthonormal
  * basis containing the column space of `y` (same shape, destroyed): the
- * first cols columns of the Householder factor Q of y P = Q R. Columns of y
- * that are exactly dependent still yield orthonormal columns of q, so the
- * basis keeps full width even when the matrix has lower rank.
+ * first cols columns of Q in the Householder QR y = Q R (unpivoted, LAPACK
+ * dlarfg convention), formed explicitly as LAPACK dorg2r does. Q is a product
+ * of reflectors, so its columns are orthonormal to rounding even when y is
+ * rank-deficient or has exactly dependent columns (a reflector whose column
+ * is already zero below the diagonal is the identity). `tau` is scratch of
+ * length >= cols.
  */
-function orthonormalize(y: Float64Array, rows: number, cols: number, q: Float64Array): void {
-  const f = qrcp(y, rows, cols, 0);
+function orthonormalize(y: Float64Array, rows: number, cols: number, q: Float64Array, tau: Float64Array): void {
+  for (let i = 0; i < cols; i++) {
+    const ci = i * rows;
+    const alpha = y[ci + i];
+    const xn2 = sumSquares(y, ci + i + 1, rows - i - 1);
+    if (xn2 === 0) {
+      tau[i] = 0; // H_i = I
+      continue;
+    }
+    const nrm = Math.sqrt(alpha * alpha + xn2);
+    const beta = alpha >= 0 ? -nrm : nrm;
+    tau[i] = (beta - alpha) / beta;
+    const inv = 1 / (alpha - beta);
+    for (let t = ci + i + 1; t < ci + rows; t++) y[t] *= inv;
+    y[ci + i] = beta;
+    reflect(y, rows, i, tau[i], y, i + 1, cols);
+  }
+  // Q e_c = H_0 ... H_{cols-1} e_c, accumulated from the last reflector; when
+  // H_i is applied, columns c < i are still e_c, which H_i leaves alone.
   q.fill(0);
   for (let c = 0; c < cols; c++) q[c * rows + c] = 1;
-  applyQ(y, rows, f, q, cols);
+  for (let i = cols - 1; i >= 0; i--) if (tau[i] !== 0) reflect(y, rows, i, tau[i], q, i, cols);
+}
+
+/**
+ * Applies H_i = I - ti v v^T to columns from..to-1 of the column-major
+ * matrix x (rows per column), where v is 1 at row i and h[i * rows + t] at
+ * rows t > i (rows above i are zero). Four columns per pass share the loads
+ * of v.
+ */
+function reflect(h: Float64Array, rows: number, i: number, ti: number, x: Float64Array, from: number, to: number): void {
+  const ci = i * rows;
+  let c = from;
+  for (; c + 3 < to; c += 4) {
+    const x0 = c * rows;
+    const x1 = x0 + rows;
+    const x2 = x1 + rows;
+    const x3 = x2 + rows;
+    let s0 = x[x0 + i];
+    let s1 = x[x1 + i];
+    let s2 = x[x2 + i];
+    let s3 = x[x3 + i];
+    for (let t = i + 1; t < rows; t++) {
+      const vt = h[ci + t];
+      s0 += vt * x[x0 + t];
+      s1 += vt * x[x1 + t];
+      s2 += vt * x[x2 + t];
+      s3 += vt * x[x3 + t];
+    }
+    s0 *= ti;
+    s1 *= ti;
+    s2 *= ti;
+    s3 *= ti;
+    x[x0 + i] -= s0;
+    x[x1 + i] -= s1;
+    x[x2 + i] -= s2;
+    x[x3 + i] -= s3;
+    for (let t = i + 1; t < rows; t++) {
+      const vt = h[ci + t];
+      x[x0 + t] -= s0 * vt;
+      x[x1 + t] -= s1 * vt;
+      x[x2 + t] -= s2 * vt;
+      x[x3 + t] -= s3 * vt;
+    }
+  }
+  for (; c < to; c++) {
+    const x0 = c * rows;
+    let s0 = x[x0 + i];
+    for (let t = i + 1; t < rows; t++) s0 += h[ci + t] * x[x0 + t];
+    s0 *= ti;
+    x[x0 + i] -= s0;
+    for (let t = i + 1; t < rows; t++) x[x0 + t] -= s0 * h[ci + t];
+  }
 }

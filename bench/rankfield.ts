@@ -1,0 +1,84 @@
+/**
+ * rankfield as one more method of the table, through its public API only
+ * (pack, open, read), plus a split of its bytes into factors, residual and
+ * metadata read from the tile payloads (spec/FORMAT.md, "Tile payloads").
+ */
+import { open, pack } from '../src/index.js';
+import type { Codec } from './baselines/codec.js';
+
+/** Tile side used for every field. */
+export const TILE = 64;
+
+export const rankfield: Codec = {
+  id: 'rankfield',
+  describe: `this library: pack(values, shape, { bound, tile: ${TILE}, fill }), read back with open(bytes).read().`,
+  encode: (field, target) => pack(field.values, [field.rows, field.cols], { bound: target.text, tile: TILE, fill: field.fill }),
+  async decode(bytes) {
+    const archive = await open(bytes);
+    const { values } = await archive.read();
+    if (!(values instanceof Float32Array)) throw new Error('rankfield returned float64 for a float32 field');
+    return values;
+  },
+};
+
+/** Where rankfield's bytes go. */
+export interface Breakdown {
+  tiles: number;
+  meanRank: number;
+  /** Tiles stored with the exact (lossless) method. */
+  exactTiles: number;
+  /** Bytes of the quantized factors (DEFLATE streams of the factor groups). */
+  factors: number;
+  /** Bytes of the residual and exception streams, and of exact tiles. */
+  residual: number;
+  /** Everything else: payload fixed parts, mask sections, section headers, container header, index and tail. */
+  metadata: number;
+  total: number;
+}
+
+/** Read a u32 little-endian at `at`. */
+function u32(b: Uint8Array, at: number): number {
+  if (at + 4 > b.length) throw new Error('rankfield payload shorter than its sections');
+  return (b[at] | (b[at + 1] << 8) | (b[at + 2] << 16) | (b[at + 3] << 24)) >>> 0;
+}
+
+/** Split one tile payload; returns [factors, residual] bytes (the rest is metadata). */
+export function splitPayload(p: Uint8Array): [number, number] {
+  if (p[0] === 0) return [0, p.length]; // Exact: values only
+  if (p[0] !== 1) throw new Error(`unknown payload method ${p[0]}`);
+  const flags = p[1];
+  let pos = 12; // method, flags, rank u16, centre f64
+  const section = (): number => {
+    const stored = u32(p, pos + 4);
+    pos += 8 + stored;
+    return stored;
+  };
+  if (flags & 1) section(); // mask
+  const groups = p[pos];
+  pos += 1 + 2 * groups;
+  let factors = 0;
+  for (let g = 0; g < groups; g++) factors += section();
+  let residual = 0;
+  if (flags & 2) residual += section();
+  if (flags & 4) residual += section();
+  if (pos !== p.length) throw new Error(`payload parse ended at ${pos} of ${p.length} bytes`);
+  return [factors, residual];
+}
+
+export async function breakdown(bytes: Uint8Array): Promise<Breakdown> {
+  const archive = await open(bytes);
+  const ix = archive.index.fields[0];
+  let factors = 0;
+  let residual = 0;
+  let exactTiles = 0;
+  for (let t = 0; t < ix.offset.length; t++) {
+    const p = bytes.subarray(ix.offset[t], ix.offset[t] + ix.length[t]);
+    if (p[0] === 0) exactTiles++;
+    const [f, r] = splitPayload(p);
+    factors += f;
+    residual += r;
+  }
+  const tiles = ix.rank.length;
+  const meanRank = tiles > 0 ? ix.rank.reduce((a, b) => a + b, 0) / tiles : 0;
+  return { tiles, meanRank, exactTiles, factors, residual, metadata: bytes.length - factors - residual, total: bytes.length };
+}

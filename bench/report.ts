@@ -1,0 +1,222 @@
+/** RESULTS.md: tables per field, summary lines, targets, and how the run was made. */
+import type { Errors } from './metrics.js';
+import type { Breakdown } from './rankfield.js';
+
+export type Status = 'ok' | 'failed' | 'skipped' | 'floor';
+
+/** One (field, bound, method) cell. */
+export interface Row {
+  field: string;
+  bound: string;
+  method: string;
+  status: Status;
+  reason?: string;
+  bytes?: number;
+  ratio?: number;
+  bpv?: number;
+  errors?: Errors;
+  /** Achieved max error / E (E: pointwise limit or RMSE limit). */
+  maxOverE?: number;
+  encMBs?: number;
+  decMBs?: number;
+  encRuns?: number;
+  decRuns?: number;
+  breakdown?: Breakdown;
+  /** Eckart-Young floor, in factor values. */
+  floorValues?: number;
+}
+
+export interface FieldInfo {
+  id: string;
+  rows: number;
+  cols: number;
+  source: string;
+  smooth: boolean;
+  large: boolean;
+  range: [number, number];
+  missing: number;
+}
+
+export interface RunInfo {
+  command: string;
+  date: string;
+  quick: boolean;
+  machine: string[];
+  elapsedS: number;
+  methods: { id: string; describe: string }[];
+  fields: FieldInfo[];
+  bounds: string[];
+  rows: Row[];
+  notes: string[];
+}
+
+const fmt = {
+  ratio: (v: number): string => (v >= 100 ? v.toFixed(0) : v >= 10 ? v.toFixed(1) : v.toFixed(2)),
+  mbs: (v: number): string => (v >= 100 ? v.toFixed(0) : v >= 10 ? v.toFixed(1) : v.toFixed(2)),
+  sci: (v: number): string => (v === 0 ? '0' : v.toExponential(2)),
+  db: (v: number): string => (Number.isFinite(v) ? v.toFixed(1) : 'exact'),
+};
+
+/** Rankfield's ratio over the best working baseline's (never the floor) in one (field, bound) cell. */
+export interface Quotient {
+  field: string;
+  bound: string;
+  rankfield: Row | undefined;
+  best: Row | undefined;
+  value: number | null;
+}
+
+export function quotients(info: RunInfo): Quotient[] {
+  const out: Quotient[] = [];
+  for (const f of info.fields) {
+    for (const b of info.bounds) {
+      const cell = info.rows.filter((r) => r.field === f.id && r.bound === b);
+      if (cell.length === 0) continue;
+      const rf = cell.find((r) => r.method === 'rankfield');
+      const base = cell.filter((r) => r.method !== 'rankfield' && r.status === 'ok' && r.ratio !== undefined);
+      const best = base.reduce<Row | undefined>((a, r) => (a === undefined || (r.ratio ?? 0) > (a.ratio ?? 0) ? r : a), undefined);
+      const value = rf?.status === 'ok' && best?.ratio && rf.ratio ? rf.ratio / best.ratio : null;
+      out.push({ field: f.id, bound: b, rankfield: rf, best, value });
+    }
+  }
+  return out;
+}
+
+function notes(r: Row): string {
+  if (r.status === 'skipped' || r.status === 'failed') return r.reason ?? '';
+  if (r.status === 'floor') return `floor: ${r.floorValues} factor values at 32 bits each; no decode`;
+  const b = r.breakdown;
+  if (!b) return r.reason ?? '';
+  const pct = (v: number): string => `${((100 * v) / b.total).toFixed(0)}%`;
+  return `mean rank ${b.meanRank.toFixed(2)}; factors ${pct(b.factors)}, residual ${pct(b.residual)}, metadata ${pct(b.metadata)}${b.exactTiles ? `; ${b.exactTiles}/${b.tiles} tiles exact` : ''}`;
+}
+
+function table(rows: Row[]): string[] {
+  const out = [
+    '| bound | method | status | bytes | ratio | bits/value | max err / E | RMSE | PSNR dB | enc MB/s | dec MB/s | runs enc/dec | notes |',
+    '|---|---|---|--:|--:|--:|--:|--:|--:|--:|--:|--:|---|',
+  ];
+  for (const r of rows) {
+    const e = r.errors;
+    const status = r.status === 'failed' ? '**FAILED**' : r.status;
+    const cells = [
+      r.bound,
+      r.method === 'rankfield' ? '**rankfield**' : r.method,
+      status,
+      r.bytes !== undefined ? String(r.bytes) : '',
+      r.ratio !== undefined ? fmt.ratio(r.ratio) : '',
+      r.bpv !== undefined ? r.bpv.toFixed(3) : '',
+      r.maxOverE !== undefined ? r.maxOverE.toFixed(3) : '',
+      e ? fmt.sci(e.rmse) : '',
+      e ? fmt.db(e.psnr) : '',
+      r.encMBs !== undefined ? fmt.mbs(r.encMBs) : '',
+      r.decMBs !== undefined ? fmt.mbs(r.decMBs) : '',
+      r.encRuns !== undefined ? `${r.encRuns}/${r.decRuns ?? ''}` : '',
+      notes(r).replace(/\|/g, '/'),
+    ];
+    out.push(`| ${cells.join(' | ')} |`);
+  }
+  return out;
+}
+
+function summaryLine(info: RunInfo, q: Quotient[], field: string): string {
+  const parts = q
+    .filter((c) => c.field === field)
+    .map((c) => {
+      if (c.rankfield?.status !== 'ok') return `${c.bound} rankfield ${c.rankfield ? 'FAILED' : 'missing'}`;
+      if (c.value === null || !c.best) return `${c.bound} no working baseline`;
+      return `${c.bound} ${c.value.toFixed(2)}x (vs ${c.best.method})`;
+    });
+  return `- **${field}**: rankfield ratio / best baseline ratio: ${parts.join(' · ')}`;
+}
+
+function targets(info: RunInfo, q: Quotient[]): string[] {
+  const out: string[] = [];
+  const measured = q.filter((c) => c.value !== null);
+  const below = measured.filter((c) => (c.value as number) < 1);
+  const missing = q.filter((c) => c.value === null);
+  const mark = (ok: boolean): string => (ok ? '**met**' : '**not met**');
+  out.push(
+    `- rankfield's ratio >= the best baseline's at every field and bound: ${mark(below.length === 0 && missing.length === 0)}` +
+      ` (${measured.length - below.length} of ${q.length} cells at or above 1.00x` +
+      (below.length ? `; below: ${below.map((c) => `${c.field} ${c.bound} ${(c.value as number).toFixed(2)}x`).join(', ')}` : '') +
+      (missing.length ? `; not comparable: ${missing.map((c) => `${c.field} ${c.bound}`).join(', ')}` : '') +
+      ')',
+  );
+  const smooth = info.fields.filter((f) => f.smooth).map((f) => f.id);
+  const cells = q.filter((c) => smooth.includes(c.field) && (c.bound === 'rel:1e-3' || c.bound === 'psnr:60'));
+  const ok15 = cells.length > 0 && cells.every((c) => c.value !== null && c.value >= 1.5);
+  out.push(
+    `- >= 1.5x the best baseline on the smooth fields (${smooth.join(', ')}) at rel:1e-3 and psnr:60: ${mark(ok15)} (` +
+      cells.map((c) => `${c.field} ${c.bound} ${c.value === null ? 'n/a' : c.value.toFixed(2) + 'x'}`).join(', ') +
+      ')',
+  );
+  const large = info.fields.find((f) => f.large);
+  if (large) {
+    const rf = info.rows.find((r) => r.field === large.id && r.bound === 'rel:1e-3' && r.method === 'rankfield');
+    const df = info.rows.find((r) => r.field === large.id && r.bound === 'rel:1e-3' && r.method === 'deflate');
+    const size = `${large.id}, ${large.rows}x${large.cols}, rel:1e-3, one core (Node runs the codec on one thread)`;
+    if (rf?.encMBs !== undefined && rf.decMBs !== undefined) {
+      const vsE = df?.encMBs ? ` = ${(rf.encMBs / df.encMBs).toFixed(2)}x fflate deflate of the raw bytes (${fmt.mbs(df.encMBs)} MB/s)` : '';
+      const vsD = df?.decMBs ? ` = ${(rf.decMBs / df.decMBs).toFixed(2)}x fflate inflate (${fmt.mbs(df.decMBs)} MB/s)` : '';
+      out.push(`- encode >= 20 MB/s (${size}): ${mark(rf.encMBs >= 20)}: ${fmt.mbs(rf.encMBs)} MB/s${vsE}, median of ${rf.encRuns} runs`);
+      out.push(`- decode >= 200 MB/s (${size}): ${mark(rf.decMBs >= 200)}: ${fmt.mbs(rf.decMBs)} MB/s${vsD}, median of ${rf.decRuns} runs`);
+      if (df?.ratio !== undefined && rf.ratio !== undefined) out.push(`- reference ratio on the large field: fflate deflate ${fmt.ratio(df.ratio)}, rankfield at rel:1e-3 ${fmt.ratio(rf.ratio)}`);
+    } else out.push(`- speed targets: rankfield did not produce a timed row on ${large.id} at rel:1e-3 (${rf?.reason ?? 'missing'})`);
+  }
+  return out;
+}
+
+export function renderResults(info: RunInfo): string {
+  const q = quotients(info);
+  const lines: string[] = [];
+  lines.push('# rankfield benchmarks');
+  lines.push('');
+  lines.push(`Generated by \`${info.command}\` on ${info.date}${info.quick ? ' — **quick run** (smaller fields, fewer runs; see Notes)' : ''}; took ${info.elapsedS.toFixed(0)} s. Do not edit by hand.`);
+  lines.push('');
+  lines.push('Machine: ' + info.machine.join('; ') + '.');
+  lines.push('');
+  lines.push('## Summary');
+  lines.push('');
+  for (const f of info.fields) lines.push(summaryLine(info, q, f.id));
+  lines.push('');
+  const ranked = q.filter((c) => c.value !== null).sort((a, b) => (a.value as number) - (b.value as number));
+  lines.push(`Worst cells against the best baseline: ${ranked.slice(0, 3).map((c) => `${c.field} ${c.bound} ${(c.value as number).toFixed(2)}x (vs ${c.best?.method})`).join('; ') || 'none'}.`);
+  lines.push('');
+  lines.push('## Targets (from issue 3)');
+  lines.push('');
+  lines.push(...targets(info, q));
+  lines.push('');
+  lines.push('## How to read the tables');
+  lines.push('');
+  lines.push('- ratio = float32 bytes of the field (rows x cols x 4) / compressed bytes; bits/value = 8 x compressed bytes / (rows x cols).');
+  lines.push('- E is the resolved tolerance: the pointwise limit for rel bounds (value x range), the RMSE limit for psnr bounds (range / 10^(dB/20)); range = max - min of the valid values. "max err / E" is the achieved maximum error over E.');
+  lines.push('- RMSE and PSNR (20 log10(range / RMSE)) are measured over valid cells of the decoded field; missing cells must come back bit for bit.');
+  lines.push('- Every output is decoded and checked against the original in this run: a row whose bound is not met (or whose missing cells differ) is **FAILED**, with the reason.');
+  lines.push('- MB/s = float32 bytes of the field / median wall time (tinybench, sequential runs, no warm-up phase: the first run is the check run), 10^6 bytes per MB. "runs" is how many runs the median is of; a cell whose first run is slow is timed by that run alone.');
+  lines.push('- The best baseline of a cell is the working (not failed, not skipped) baseline with the highest ratio; the Eckart-Young floor is not a codec and never counts as the best.');
+  lines.push('');
+  lines.push('## Methods');
+  lines.push('');
+  for (const m of info.methods) lines.push(`- **${m.id}**: ${m.describe}`);
+  lines.push('');
+  lines.push('## Fields');
+  lines.push('');
+  for (const f of info.fields) lines.push(`- **${f.id}** (${f.rows}x${f.cols}, range ${f.range[0].toPrecision(5)} .. ${f.range[1].toPrecision(5)}${f.missing ? `, ${f.missing} missing cells` : ''}): ${f.source}`);
+  lines.push('');
+  for (const f of info.fields) {
+    lines.push(`## ${f.id}`);
+    lines.push('');
+    lines.push(`${f.rows}x${f.cols}; rate-distortion plot: [rd-${f.id}.png](rd-${f.id}.png)`);
+    lines.push('');
+    lines.push(...table(info.rows.filter((r) => r.field === f.id)));
+    lines.push('');
+  }
+  if (info.notes.length) {
+    lines.push('## Notes');
+    lines.push('');
+    for (const n of info.notes) lines.push(`- ${n}`);
+    lines.push('');
+  }
+  return lines.join('\n');
+}

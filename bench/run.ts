@@ -1,0 +1,274 @@
+/**
+ * `npm run bench [-- --quick] [-- --fields a,b] [-- --out DIR]`: every method
+ * on every field and bound, in one process, each output decoded and checked;
+ * writes RESULTS.md and one rate-distortion plot per field.
+ */
+import { mkdirSync, writeFileSync } from 'node:fs';
+import os from 'node:os';
+import { join } from 'node:path';
+import { isPointwise, parseBound, resolveBound } from '../src/index.js';
+import { BaselineFailure } from './baselines/bytes.js';
+import type { Codec } from './baselines/codec.js';
+import { columnSubset } from './baselines/column-subset.js';
+import { deflateRaw } from './baselines/deflate.js';
+import { globalSvd } from './baselines/global-svd.js';
+import { lorenzo } from './baselines/lorenzo.js';
+import { prepare } from './baselines/missing.js';
+import { oracleValues, tileSpectra, type TileSpectrum } from './baselines/oracle.js';
+import { quantize } from './baselines/quantize.js';
+import { benchFields, type BenchField } from './fields.js';
+import { measure, meets, validRange, type Target } from './metrics.js';
+import { renderPlot, type Marker, type Rgb, type Series } from './plot.js';
+import { breakdown, rankfield, TILE } from './rankfield.js';
+import { renderResults, type FieldInfo, type Row } from './report.js';
+import { timeTask, type TimingOptions } from './timing.js';
+
+export const BOUNDS = ['rel:1e-2', 'rel:1e-3', 'rel:1e-4', 'psnr:40', 'psnr:60', 'psnr:80'];
+/** The bound of the speed targets. */
+const SPEED_BOUND = 'rel:1e-3';
+const CODECS: Codec[] = [rankfield, deflateRaw, quantize, lorenzo, globalSvd, columnSubset];
+const FLOOR_ID = 'eckart-young floor';
+
+interface Args {
+  quick: boolean;
+  fields: string[] | null;
+  out: string;
+}
+
+const USAGE = 'usage: npm run bench -- [--quick] [--fields id,id,...] [--out DIR]';
+
+function parseArgs(argv: string[]): Args {
+  const args: Args = { quick: false, fields: null, out: join(process.cwd(), 'bench') };
+  for (let i = 0; i < argv.length; i++) {
+    const a = argv[i];
+    if (a === '--quick') args.quick = true;
+    else if (a === '--fields' && i + 1 < argv.length) args.fields = argv[++i].split(',');
+    else if (a === '--out' && i + 1 < argv.length) args.out = argv[++i];
+    else if (a === '--help' || a === '-h') {
+      console.log(USAGE);
+      process.exit(0);
+    } else {
+      console.error(`bench: error: unknown argument '${a}'\n${USAGE}`);
+      process.exit(2);
+    }
+  }
+  return args;
+}
+
+const t0 = performance.now();
+function log(text: string): void {
+  console.error(`[${((performance.now() - t0) / 1000).toFixed(1).padStart(6)} s] ${text}`);
+}
+
+function describeError(e: unknown): string {
+  const err = e instanceof Error && !(e instanceof BaselineFailure) && e.cause instanceof Error ? e.cause : e;
+  if (err instanceof BaselineFailure) return err.message;
+  return `threw ${err instanceof Error ? `${err.name}: ${err.message}` : String(err)}`;
+}
+
+/** Encode (timed), decode (timed), check. */
+async function runCodec(codec: Codec, field: BenchField, target: Target, timing: TimingOptions): Promise<Row> {
+  const base: Row = { field: field.id, bound: target.text, method: codec.id, status: 'ok' };
+  const skip = codec.skip?.(field, target) ?? null;
+  if (skip) return { ...base, status: 'skipped', reason: skip };
+  const mb = field.values.byteLength / 1e6;
+  let bytes: Uint8Array | null = null;
+  let decoded: Float32Array | null = null;
+  let enc;
+  try {
+    enc = await timeTask(() => {
+      bytes = codec.encode(field, target);
+    }, timing);
+  } catch (e) {
+    if (!(e instanceof BaselineFailure || (e instanceof Error && e.cause instanceof BaselineFailure))) console.error(e);
+    return { ...base, status: 'failed', reason: `encode ${describeError(e)}` };
+  }
+  const out = bytes as unknown as Uint8Array;
+  let dec;
+  try {
+    dec = await timeTask(async () => {
+      decoded = await codec.decode(out);
+    }, timing);
+  } catch (e) {
+    console.error(e);
+    return { ...base, status: 'failed', reason: `decode ${describeError(e)}`, bytes: out.length };
+  }
+  return finish(base, field, target, out, decoded as unknown as Float32Array, mb / (enc.medianMs / 1000), mb / (dec.medianMs / 1000), enc.runs, dec.runs);
+}
+
+function finish(base: Row, field: BenchField, target: Target, bytes: Uint8Array, decoded: Float32Array, encMBs: number, decMBs: number, encRuns: number, decRuns: number): Row {
+  const errors = measure(field.values, decoded, field.fill, target.range);
+  const cells = field.rows * field.cols;
+  const row: Row = {
+    ...base,
+    bytes: bytes.length,
+    ratio: (cells * 4) / bytes.length,
+    bpv: (8 * bytes.length) / cells,
+    errors,
+    maxOverE: errors.maxErr / target.tol,
+    encMBs,
+    decMBs,
+    encRuns,
+    decRuns,
+  };
+  if (!meets(errors, target)) {
+    row.status = 'failed';
+    row.reason =
+      errors.mismatches > 0 ? `${errors.mismatches} missing cells not restored bit for bit`
+      : target.pointwise ? `max error ${errors.maxErr.toExponential(3)} > E = ${target.tol.toExponential(3)}`
+      : `RMSE ${errors.rmse.toExponential(3)} > ${target.tol.toExponential(3)}`;
+  }
+  return row;
+}
+
+function floorRow(field: BenchField, target: Target, spectra: TileSpectrum[], valid: number): Row {
+  const values = oracleValues(spectra, valid * target.tol * target.tol);
+  const bytes = 4 * values;
+  const cells = field.rows * field.cols;
+  return {
+    field: field.id,
+    bound: target.text,
+    method: FLOOR_ID,
+    status: 'floor',
+    floorValues: values,
+    bytes,
+    ratio: bytes > 0 ? (cells * 4) / bytes : Infinity,
+    bpv: (8 * bytes) / cells,
+    errors: { maxErr: NaN, rmse: target.tol, psnr: 20 * Math.log10(target.range / target.tol), valid, mismatches: 0 },
+  };
+}
+
+const STYLE: Record<string, { color: Rgb; marker: Marker; dashed?: boolean }> = {
+  rankfield: { color: [210, 30, 30], marker: 'square' },
+  quantize: { color: [40, 90, 210], marker: 'circle' },
+  lorenzo: { color: [20, 150, 60], marker: 'triangle' },
+  'global-svd': { color: [150, 50, 180], marker: 'diamond' },
+  'column-subset': { color: [235, 140, 10], marker: 'cross' },
+  [FLOOR_ID]: { color: [120, 120, 120], marker: 'plus', dashed: true },
+};
+
+function plotField(field: BenchField, rows: Row[], dir: string): string {
+  const series: Series[] = [];
+  for (const [id, style] of Object.entries(STYLE)) {
+    const pts = rows.filter((r) => r.method === id && (r.status === 'ok' || r.status === 'floor') && r.bpv && r.errors && Number.isFinite(r.errors.psnr));
+    if (pts.length) series.push({ name: id, points: pts.map((r) => [r.bpv as number, (r.errors as { psnr: number }).psnr]), connect: 'y', ...style });
+  }
+  const lossless = rows.find((r) => r.method === 'deflate' && r.status === 'ok');
+  const png = renderPlot({
+    title: `${field.id} (${field.rows}x${field.cols}): rate against distortion`,
+    x: { label: 'bits per value', log: true },
+    y: { label: 'PSNR (dB)' },
+    series,
+    vlines: lossless?.bpv ? [{ x: lossless.bpv, name: 'deflate (lossless)', color: [40, 40, 40] }] : [],
+    note: 'one point per bound met (rel 1e-2, 1e-3, 1e-4; psnr 40, 60, 80), joined in order of PSNR; failed and skipped rows are not drawn; the floor has no decoder',
+  });
+  const file = join(dir, `rd-${field.id}.png`);
+  writeFileSync(file, png);
+  return file;
+}
+
+function machine(): string[] {
+  const cpus = os.cpus();
+  return [
+    `${cpus.length} x ${cpus[0]?.model ?? 'unknown CPU'}`,
+    `${(os.totalmem() / 2 ** 30).toFixed(1)} GiB memory`,
+    `${os.type()} ${os.release()} ${os.arch()}`,
+    `Node ${process.version}`,
+    `load average at start ${os.loadavg().map((v) => v.toFixed(2)).join(' ')} (the machine is shared)`,
+  ];
+}
+
+async function main(): Promise<void> {
+  const args = parseArgs(process.argv.slice(2));
+  const started = new Date();
+  const machineFacts = machine();
+  const timing: TimingOptions = args.quick ? { iterations: 2, timeMs: 30, slowMs: 150, minRuns: 1 } : { iterations: 5, timeMs: 400, slowMs: 1500, minRuns: 1 };
+  const speedRuns = 3;
+  log(`building fields (${args.quick ? 'quick' : 'full'} run)`);
+  let fields = benchFields(args.quick);
+  if (args.fields) {
+    const unknown = args.fields.filter((id) => !fields.some((f) => f.id === id));
+    if (unknown.length) {
+      console.error(`bench: error: unknown field(s) ${unknown.join(', ')} (known: ${fields.map((f) => f.id).join(', ')})`);
+      process.exit(2);
+    }
+    fields = fields.filter((f) => args.fields?.includes(f.id));
+  }
+  mkdirSync(args.out, { recursive: true });
+  const rows: Row[] = [];
+  const infos: FieldInfo[] = [];
+  const notes: string[] = [
+    `Tiles are ${TILE}x${TILE} for rankfield and for the Eckart-Young floor.`,
+    'Missing cells: the lossy baselines store a deflated bitmap and the exact float32 words of missing cells and model the rest with those cells set to the mean; the floor and the SVD-based baselines see the same mean-filled field.',
+    'The quantizing baselines pack integers as rankfield does (zigzag, smallest of 1/2/4-byte planes, DEFLATE level 6), so differences come from the model, not the packing.',
+    "The demo generator (src/demo/basin.ts) has no time axis; the basin-stack's time series is built in bench/fields.ts from it (six seeds blended over time).",
+    'deflate is bound-independent: it is encoded and timed once per field and checked against each bound.',
+  ];
+  if (args.quick) notes.push('Quick run: generated fields at 256x256, the stack 96 x (48x64), the large field shrunk from 4096x4096 to 1024x1024 and run at rel:1e-3 only; fewer timing runs. Use `npm run bench` for the full table.');
+  for (const field of fields) {
+    const [lo, hi] = validRange(field.values, field.fill);
+    const prep = prepare(field.values, field.fill);
+    infos.push({ id: field.id, rows: field.rows, cols: field.cols, source: field.source, smooth: field.smooth, large: field.large, range: [lo, hi], missing: prep.missing.length });
+    const bounds = field.large && args.quick ? [SPEED_BOUND] : BOUNDS;
+    let lossless: { bytes: Uint8Array; decoded: Float32Array; enc: number; dec: number; encRuns: number; decRuns: number } | null = null;
+    let spectra: TileSpectrum[] | null = null;
+    const fieldRows: Row[] = [];
+    for (const text of bounds) {
+      const bound = parseBound(text);
+      const target: Target = { text, mode: bound.mode, value: bound.value, tol: resolveBound(bound, hi - lo), pointwise: isPointwise(bound.mode), range: hi - lo };
+      for (const codec of CODECS) {
+        const speedCell = field.large && text === SPEED_BOUND && (codec.id === 'rankfield' || codec.id === 'deflate');
+        const t = speedCell ? { ...timing, minRuns: speedRuns } : timing;
+        let row: Row;
+        if (codec.id === deflateRaw.id) {
+          if (!lossless) {
+            const mb = field.values.byteLength / 1e6;
+            let bytes: Uint8Array = new Uint8Array(0);
+            let decoded: Float32Array = new Float32Array(0);
+            const enc = await timeTask(() => {
+              bytes = deflateRaw.encode(field, target);
+            }, t);
+            const dec = await timeTask(() => {
+              decoded = deflateRaw.decode(bytes) as Float32Array;
+            }, t);
+            lossless = { bytes, decoded, enc: mb / (enc.medianMs / 1000), dec: mb / (dec.medianMs / 1000), encRuns: enc.runs, decRuns: dec.runs };
+          }
+          const l = lossless;
+          row = finish({ field: field.id, bound: text, method: codec.id, status: 'ok' }, field, target, l.bytes, l.decoded, l.enc, l.dec, l.encRuns, l.decRuns);
+        } else row = await runCodec(codec, field, target, t);
+        if (row.method === 'rankfield' && row.status === 'ok' && row.bytes !== undefined) {
+          row.breakdown = await breakdown(rankfield.encode(field, target));
+        }
+        fieldRows.push(row);
+        log(`${field.id} ${text} ${codec.id}: ${row.status}${row.ratio ? ` ratio ${row.ratio.toFixed(2)}` : ''}${row.encMBs ? ` enc ${row.encMBs.toFixed(2)} MB/s` : ''}${row.decMBs ? ` dec ${row.decMBs.toFixed(1)} MB/s` : ''}${row.reason ? ` (${row.reason})` : ''}`);
+      }
+      if (!target.pointwise) {
+        spectra ??= tileSpectra(prep.filled, field.rows, field.cols, TILE);
+        fieldRows.push(floorRow(field, target, spectra, prep.valid));
+      }
+    }
+    rows.push(...fieldRows);
+    log(`plot ${plotField(field, fieldRows, args.out)}`);
+  }
+  const command = `npm run bench${process.argv.length > 2 ? ' -- ' + process.argv.slice(2).join(' ') : ''}`;
+  const md = renderResults({
+    command,
+    date: started.toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC'),
+    quick: args.quick,
+    machine: machineFacts,
+    elapsedS: (performance.now() - t0) / 1000,
+    methods: [...CODECS.map((c) => ({ id: c.id, describe: c.describe })), { id: FLOOR_ID, describe: 'for psnr bounds: the fewest factor values any rank-truncated 64x64 tiling needs for that RMSE, from per-tile singular values (Eckart-Young), counted r (m + n) per tile and shown as bytes at 32 bits per value. A floor for the factor part, not a codec: nothing is decoded.' }],
+    fields: infos,
+    bounds: BOUNDS,
+    rows,
+    notes,
+  });
+  const file = join(args.out, 'RESULTS.md');
+  writeFileSync(file, md);
+  log(`wrote ${file}`);
+}
+
+main().catch((e: unknown) => {
+  console.error(e);
+  process.exit(1);
+});

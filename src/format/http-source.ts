@@ -1,0 +1,365 @@
+/**
+ * A {@link ByteSource} over an http(s) URL, read with HTTP Range requests
+ * (RFC 9110, section 14). It uses only `fetch`, so it runs in Node 20,
+ * browsers, workers and other runtimes alike.
+ *
+ * What it guarantees: every read returns exactly the bytes asked for, or
+ * throws. A 206 answer must carry a Content-Range that names exactly the
+ * asked range and the size learnt when the source was opened, and a body
+ * of exactly that length; a changed ETag or size means the file changed on
+ * the server while it was being read. Dropped connections, time-outs and
+ * 5xx answers are retried a bounded number of times. A server that ignores
+ * Range (answers 200 with the whole body) is used as a whole-file fallback
+ * held in memory when the file is small; otherwise it is refused.
+ */
+import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
+import type { ByteSource } from './source.js';
+
+/** Options of {@link HttpSource}. */
+export interface HttpSourceOptions {
+  /** The fetch to use; default `globalThis.fetch`. */
+  fetch?: typeof fetch;
+  /** Extra request headers (e.g. authorization). */
+  headers?: Record<string, string>;
+  /** Retries after a failed attempt (dropped connection, time-out, 408, 429, 5xx, short body). Default 3. */
+  retries?: number;
+  /** Wait before the first retry in milliseconds, doubled for each further one. Default 250. */
+  retryDelay?: number;
+  /** Time limit of one request, body included, in milliseconds. Default 30000. */
+  timeout?: number;
+  /**
+   * Largest file held in memory when the server ignores Range requests and
+   * sends the whole file. Default 64 MiB; 0 refuses such servers outright.
+   */
+  maxWholeFile?: number;
+  /** Name of the source in messages; default the URL. */
+  label?: string;
+}
+
+/** Default {@link HttpSourceOptions.maxWholeFile}: 64 MiB. */
+export const DEFAULT_MAX_WHOLE_FILE = 64 << 20;
+
+/** What was learnt about the file when it was first reached. */
+interface Remote {
+  size: number;
+  etag: string | null;
+  lastModified: string | null;
+}
+
+/** A failure worth another attempt. */
+class Transient extends Error {}
+
+/** A whole response body, or bytes of a range. */
+interface Body {
+  bytes: Uint8Array;
+  /** False when the body ended before the expected length. */
+  complete: boolean;
+}
+
+const RETRY_STATUS = new Set([408, 425, 429, 500, 502, 503, 504]);
+
+function sleep(ms: number): Promise<void> {
+  return new Promise((resolve) => setTimeout(resolve, ms));
+}
+
+function describe(e: unknown): string {
+  if (!(e instanceof Error)) return String(e);
+  const cause = (e as Error & { cause?: unknown }).cause;
+  const inner = cause instanceof Error ? ` (${cause.message})` : '';
+  return `${e.message}${inner}`;
+}
+
+/** A read-only byte source over an http(s) URL. */
+export class HttpSource implements ByteSource {
+  readonly url: string;
+  readonly label: string;
+  /** Body bytes received so far, over all requests (failed attempts included). */
+  bytesFetched = 0;
+  /** Requests sent so far (retries included). */
+  requests = 0;
+  private readonly fetcher: typeof fetch;
+  private readonly headers: Record<string, string>;
+  private readonly retries: number;
+  private readonly retryDelay: number;
+  private readonly timeout: number;
+  private readonly maxWholeFile: number;
+  private remote: Promise<Remote> | null = null;
+  /** The whole file, when the server ignores Range and the file is small. */
+  private whole: Uint8Array | null = null;
+
+  constructor(url: string | URL, options: HttpSourceOptions = {}) {
+    const text = String(url);
+    let parsed: URL;
+    try {
+      parsed = new URL(text);
+    } catch {
+      throw new InputError(InputCode.Option, `'${text}' is not a URL`);
+    }
+    if (parsed.protocol !== 'http:' && parsed.protocol !== 'https:') {
+      throw new InputError(InputCode.Option, `'${text}' is not an http or https URL`);
+    }
+    this.url = parsed.href;
+    this.label = options.label ?? text;
+    const f = options.fetch ?? (globalThis.fetch as typeof fetch | undefined);
+    if (typeof f !== 'function') throw new InputError(InputCode.Option, `${this.label}: this runtime has no fetch; pass options.fetch`);
+    this.fetcher = f;
+    this.headers = { ...options.headers };
+    const count = (v: number | undefined, dflt: number, what: string): number => {
+      const x = v ?? dflt;
+      if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) throw new InputError(InputCode.Option, `${what} must be a finite number >= 0, got ${String(x)}`);
+      return x;
+    };
+    this.retries = Math.floor(count(options.retries, 3, 'retries'));
+    this.retryDelay = count(options.retryDelay, 250, 'retryDelay');
+    this.timeout = count(options.timeout, 30_000, 'timeout');
+    this.maxWholeFile = count(options.maxWholeFile, DEFAULT_MAX_WHOLE_FILE, 'maxWholeFile');
+  }
+
+  /** Size of the file, learnt by the first request (a ranged GET of byte 0). */
+  size(): Promise<number> {
+    if (this.remote === null) {
+      this.remote = this.attempts('reach', () => this.probe());
+      // A failed probe may be tried again by a later call.
+      this.remote.catch(() => (this.remote = null));
+    }
+    return this.remote.then((r) => r.size);
+  }
+
+  /** Exactly `length` bytes from `offset`. */
+  async read(offset: number, length: number): Promise<Uint8Array> {
+    if (!Number.isSafeInteger(offset) || !Number.isSafeInteger(length) || offset < 0 || length < 0) {
+      throw new FormatError(FormatCode.Malformed, `${this.label}: byte range ${offset}+${length} is not a pair of non-negative integers`);
+    }
+    const size = await this.size();
+    if (offset + length > size) {
+      throw new FormatError(FormatCode.Truncated, `${this.label}: bytes ${offset}..${offset + length} lie beyond its ${size} bytes`);
+    }
+    if (this.whole !== null) return this.whole.subarray(offset, offset + length);
+    if (length === 0) return new Uint8Array(0);
+    return this.attempts(`read bytes ${offset}..${offset + length} of`, () => this.fetchRange(offset, length));
+  }
+
+  /** Run `once` with retries on transient failures; other errors pass at once. */
+  private async attempts<T>(what: string, once: () => Promise<T>): Promise<T> {
+    let last: unknown;
+    for (let attempt = 0; attempt <= this.retries; attempt++) {
+      if (attempt > 0) await sleep(this.retryDelay * 2 ** (attempt - 1));
+      try {
+        return await once();
+      } catch (e) {
+        if (e instanceof FormatError || e instanceof InputError) throw e;
+        last = e;
+      }
+    }
+    const tries = this.retries + 1;
+    if (last instanceof Transient && /^short body/.test(last.message)) {
+      throw new FormatError(FormatCode.Truncated, `${this.label}: could not ${what} it: ${last.message}, ${tries} attempt${tries === 1 ? '' : 's'}`);
+    }
+    throw new InputError(InputCode.File, `cannot ${what} '${this.label}': ${describe(last)} (gave up after ${tries} attempt${tries === 1 ? '' : 's'})`);
+  }
+
+  /** One request, with the time limit applied to the answer and its body. */
+  private async request(method: 'GET', range: string, use: (r: Response) => Promise<unknown>): Promise<void> {
+    const controller = typeof AbortController === 'function' ? new AbortController() : null;
+    let timedOut = false;
+    const timer = this.timeout > 0 && controller ? setTimeout(() => ((timedOut = true), controller.abort()), this.timeout) : null;
+    const headers: Record<string, string> = { ...this.headers };
+    // Range offsets count the bytes as stored; a compressed transfer would count others.
+    // (Browsers set Accept-Encoding themselves and ignore this.)
+    headers['Accept-Encoding'] = 'identity';
+    headers['Range'] = range;
+    this.requests++;
+    let response: Response | null = null;
+    try {
+      response = await this.fetcher(this.url, { method, headers, signal: controller?.signal, cache: 'no-store', redirect: 'follow' });
+      await use(response);
+    } catch (e) {
+      // Release a body left unread, so its connection is not held open.
+      if (response !== null && response.body !== null && !response.bodyUsed) await response.body.cancel().catch(() => undefined);
+      if (timedOut) throw new Transient(`no complete answer within ${this.timeout} ms`);
+      if (e instanceof FormatError || e instanceof InputError || e instanceof Transient) throw e;
+      // fetch and body streams fail with TypeError (network) or AbortError; either may pass on retry.
+      throw new Transient(describe(e));
+    } finally {
+      if (timer !== null) clearTimeout(timer);
+    }
+  }
+
+  /** Refuse statuses that no retry will mend; mark the rest transient. */
+  private status(r: Response, what: string): void {
+    if (RETRY_STATUS.has(r.status)) throw new Transient(`HTTP ${r.status} ${r.statusText}`.trim());
+    throw new InputError(InputCode.File, `cannot ${what} '${this.label}': HTTP ${r.status} ${r.statusText}`.trim());
+  }
+
+  /** Refuse a content coding: Range offsets would then count other bytes than the file's. */
+  private identity(r: Response): void {
+    const coding = r.headers.get('content-encoding');
+    if (coding !== null && coding.trim().toLowerCase() !== 'identity' && coding.trim() !== '') {
+      throw new FormatError(FormatCode.Malformed, `${this.label}: the server sent it with Content-Encoding '${coding}'; ranged reads need the file as stored (identity)`);
+    }
+  }
+
+  /**
+   * Learn the size, and whether the server honours Range, with a ranged GET
+   * of byte 0: 206 gives the size in Content-Range; 200 is a server that
+   * ignores Range, whose whole file is kept when small; 416 an empty file.
+   */
+  private async probe(): Promise<Remote> {
+    let found: Remote | null = null;
+    await this.request('GET', 'bytes=0-0', async (r) => {
+      const etag = r.headers.get('etag');
+      const lastModified = r.headers.get('last-modified');
+      if (r.status === 416) {
+        found = { size: 0, etag, lastModified };
+        return;
+      }
+      if (r.status === 200) {
+        found = await this.acceptWhole(r, null);
+        return;
+      }
+      if (r.status !== 206) this.status(r, 'reach');
+      this.identity(r);
+      const cr = this.contentRange(r);
+      if (cr.start !== 0 || cr.end !== 0) {
+        throw new FormatError(FormatCode.Malformed, `${this.label}: asked for byte 0, the server answered Content-Range '${r.headers.get('content-range')}'`);
+      }
+      if (cr.total === null) throw new FormatError(FormatCode.Malformed, `${this.label}: the server does not say the file's size (Content-Range '${r.headers.get('content-range')}')`);
+      await this.body(r, 1);
+      found = { size: cr.total, etag, lastModified };
+    });
+    return found!;
+  }
+
+  private noRanges(size: number): InputError {
+    return new InputError(
+      InputCode.File,
+      `${this.label}: the server does not honour Range requests and the file is ${size} bytes, more than the ${this.maxWholeFile} bytes ` +
+        'this reader holds in memory; serve it from a server that supports Range requests',
+    );
+  }
+
+  /** A 200 answer with the whole file: keep it when small and of the known size, else refuse. */
+  private async acceptWhole(r: Response, expected: number | null): Promise<Remote> {
+    this.identity(r);
+    const declared = r.headers.get('content-length');
+    const n = declared !== null && /^\s*\d+\s*$/.test(declared) ? Number(declared) : null;
+    if (n !== null && n > this.maxWholeFile) {
+      await r.body?.cancel();
+      throw this.noRanges(n);
+    }
+    if (expected !== null && n !== null && n !== expected) {
+      await r.body?.cancel();
+      throw new FormatError(FormatCode.Truncated, `${this.label}: the server ignored the Range request and sent ${n} bytes, but the file was ${expected} bytes when opened (changed on the server?)`);
+    }
+    const { bytes, complete } = await this.collect(r, n, this.maxWholeFile);
+    if (!complete) throw new Transient(`short body: ${bytes.length} of ${n} bytes of the whole file arrived`);
+    if (expected !== null && bytes.length !== expected) {
+      throw new FormatError(FormatCode.Truncated, `${this.label}: the server ignored the Range request and sent ${bytes.length} bytes, but the file was ${expected} bytes when opened (changed on the server?)`);
+    }
+    this.whole = bytes;
+    return { size: bytes.length, etag: r.headers.get('etag'), lastModified: r.headers.get('last-modified') };
+  }
+
+  /** Parse Content-Range: `bytes START-END/TOTAL` (TOTAL may be `*`). */
+  private contentRange(r: Response): { start: number; end: number; total: number | null } {
+    const text = r.headers.get('content-range');
+    if (text === null) {
+      throw new FormatError(
+        FormatCode.Malformed,
+        `${this.label}: a 206 answer without Content-Range, so its bytes cannot be placed (a server on another origin must list it in Access-Control-Expose-Headers)`,
+      );
+    }
+    const m = /^\s*bytes\s+(\d+)-(\d+)\/(\d+|\*)\s*$/i.exec(text);
+    if (!m) throw new FormatError(FormatCode.Malformed, `${this.label}: cannot parse Content-Range '${text}'`);
+    return { start: Number(m[1]), end: Number(m[2]), total: m[3] === '*' ? null : Number(m[3]) };
+  }
+
+  /** Read a body of exactly `length` bytes; a short one is transient, a long one an error. */
+  private async body(r: Response, length: number): Promise<Uint8Array> {
+    const { bytes, complete } = await this.collect(r, length, length);
+    if (!complete) throw new Transient(`short body: ${bytes.length} of ${length} bytes arrived`);
+    return bytes;
+  }
+
+  /**
+   * Collect a body into one buffer, refusing more than `limit` bytes.
+   * `expected` (when known) sizes the buffer; `complete` says whether that
+   * many bytes arrived.
+   */
+  private async collect(r: Response, expected: number | null, limit: number): Promise<Body> {
+    const tooLong = (n: number) => {
+      if (expected !== null) return new FormatError(FormatCode.Malformed, `${this.label}: the server sent more than the ${expected} bytes asked for`);
+      return this.noRanges(n);
+    };
+    if (r.body === null) {
+      const buf = new Uint8Array(await r.arrayBuffer());
+      this.bytesFetched += buf.length;
+      if (buf.length > limit) throw tooLong(buf.length);
+      return { bytes: buf, complete: expected === null || buf.length === expected };
+    }
+    const reader = r.body.getReader();
+    let buf = new Uint8Array(expected ?? Math.min(limit, 1 << 16));
+    let at = 0;
+    for (;;) {
+      const { done, value } = await reader.read();
+      if (done) break;
+      this.bytesFetched += value.length;
+      if (at + value.length > limit) {
+        await reader.cancel().catch(() => undefined);
+        throw tooLong(at + value.length);
+      }
+      if (at + value.length > buf.length) {
+        // Unknown length: grow by doubling, up to the limit.
+        const grown = new Uint8Array(Math.min(limit, Math.max(buf.length * 2, at + value.length)));
+        grown.set(buf.subarray(0, at));
+        buf = grown;
+      }
+      buf.set(value, at);
+      at += value.length;
+    }
+    const bytes = at === buf.length ? buf : buf.slice(0, at);
+    return { bytes, complete: expected === null || at === expected };
+  }
+
+  /** One ranged GET of `length` bytes at `offset`. */
+  private async fetchRange(offset: number, length: number): Promise<Uint8Array> {
+    const remote = await this.size().then(() => this.remote!);
+    let out: Uint8Array | null = null;
+    const end = offset + length - 1;
+    await this.request('GET', `bytes=${offset}-${end}`, async (r) => {
+      if (r.status === 200) {
+        await this.acceptWhole(r, remote.size);
+        out = this.whole!.subarray(offset, offset + length);
+        return;
+      }
+      if (r.status === 416) {
+        await r.body?.cancel();
+        throw new FormatError(FormatCode.Truncated, `${this.label}: the server says bytes ${offset}..${offset + length} are beyond the file, which was ${remote.size} bytes when opened (changed on the server?)`);
+      }
+      if (r.status !== 206) this.status(r, `read bytes ${offset}..${offset + length} of`);
+      this.identity(r);
+      const cr = this.contentRange(r);
+      if (cr.total !== null && cr.total !== remote.size) {
+        await r.body?.cancel();
+        throw new FormatError(FormatCode.Truncated, `${this.label}: the file is now ${cr.total} bytes, it was ${remote.size} when opened (changed on the server while being read)`);
+      }
+      const etag = r.headers.get('etag');
+      const modified = r.headers.get('last-modified');
+      if ((remote.etag !== null && etag !== null && etag !== remote.etag) || (remote.lastModified !== null && modified !== null && modified !== remote.lastModified)) {
+        await r.body?.cancel();
+        throw new FormatError(FormatCode.Malformed, `${this.label}: the file changed on the server while being read (ETag or Last-Modified differ from when it was opened)`);
+      }
+      if (cr.start !== offset || cr.end !== end) {
+        await r.body?.cancel();
+        throw new FormatError(FormatCode.Malformed, `${this.label}: asked for bytes ${offset}-${end}, the server answered Content-Range '${r.headers.get('content-range')}'`);
+      }
+      out = await this.body(r, length);
+    });
+    return out!;
+  }
+
+  /** Nothing to release: each request finishes on its own. Drops the whole-file fallback, if any. */
+  async close(): Promise<void> {
+    this.whole = null;
+  }
+}

@@ -1,0 +1,347 @@
+/**
+ * Reading 2-D fields from .npy and raw files a band of rows at a time, with
+ * random access through a file descriptor, so a field larger than memory can
+ * be packed; and writing a .npy file band by band.
+ *
+ * The reads are synchronous because the encoder asks for bands from inside
+ * its (synchronous) tile loop. Before and after every band the file's size
+ * and modification time are compared with those seen at open, so a file that
+ * is rewritten, grows or shrinks while it is being read is reported instead
+ * of being packed from a mixture of old and new bytes.
+ */
+import { closeSync, fstatSync, fsyncSync, openSync, readSync, writeSync } from 'node:fs';
+import { InputCode, InputError } from '../errors.js';
+import type { Dtype, FloatArray } from '../types.js';
+import { HOST_LITTLE_ENDIAN, checkedProduct, itemSize, swapBytes } from './ndarray.js';
+import { MAX_NPY_HEADER_BYTES, formatNpy, parseNpyHeader } from './npy.js';
+
+/** A 2-D field read a band of rows at a time. */
+export interface BandReader {
+  /** [rows, cols]. */
+  readonly shape: [number, number];
+  readonly dtype: Dtype;
+  /** The file, for messages. */
+  readonly path: string;
+  /** Rows [r0, r0 + count) as row-major, native-order values. */
+  band(r0: number, count: number): FloatArray;
+  /** Bytes read from the file so far (header included). */
+  readonly bytesRead: number;
+  /** Close the file; further reads are refused. Closing twice is harmless. */
+  close(): void;
+}
+
+/** How the values lie in the file. */
+interface Layout {
+  shape: [number, number];
+  dtype: Dtype;
+  littleEndian: boolean;
+  fortranOrder: boolean;
+  /** Byte offset of the first value. */
+  dataOffset: number;
+}
+
+/** Largest single read, so one band never needs one huge buffer beyond its values. */
+const MAX_READ = 8 << 20;
+/** Fortran-order columns closer than this are fetched by one read. */
+const MAX_COLUMN_GAP = 4096;
+
+function fileError(path: string, what: string): InputError {
+  return new InputError(InputCode.File, `${path}: ${what}`);
+}
+
+/** Reads bands of one open file. */
+class FileBands implements BandReader {
+  bytesRead = 0;
+  private fd: number | null;
+  private readonly size: number;
+  private readonly mtime: number;
+  private readonly item: number;
+
+  constructor(
+    fd: number,
+    readonly path: string,
+    private readonly layout: Layout,
+    stat: { size: number; mtimeMs: number },
+    headerBytes: number,
+  ) {
+    this.fd = fd;
+    this.size = stat.size;
+    this.mtime = stat.mtimeMs;
+    this.item = itemSize(layout.dtype);
+    this.bytesRead = headerBytes;
+  }
+
+  get shape(): [number, number] {
+    return this.layout.shape;
+  }
+
+  get dtype(): Dtype {
+    return this.layout.dtype;
+  }
+
+  private handle(): number {
+    if (this.fd === null) throw new InputError(InputCode.Option, `${this.path}: read after the band reader was closed`);
+    return this.fd;
+  }
+
+  /** Refuse to go on when the file is no longer what it was at open. */
+  private unchanged(): void {
+    const st = fstatSync(this.handle());
+    if (st.size !== this.size || st.mtimeMs !== this.mtime) {
+      const what = st.size !== this.size ? `its size went from ${this.size} to ${st.size} bytes` : 'it was modified';
+      throw fileError(this.path, `the file changed while being read (${what}); pack it once it is complete and no longer written`);
+    }
+  }
+
+  /** Exactly `length` bytes at `position` into `into` at `at`. */
+  private readExact(into: Uint8Array, at: number, length: number, position: number): void {
+    const fd = this.handle();
+    for (let done = 0; done < length; ) {
+      const n = readSync(fd, into, at + done, length - done, position + done);
+      if (n === 0) throw fileError(this.path, `the file ended at byte ${position + done}, before the ${this.size} bytes it had when opened (it changed while being read)`);
+      done += n;
+      this.bytesRead += n;
+    }
+  }
+
+  band(r0: number, count: number): FloatArray {
+    const [rows, cols] = this.layout.shape;
+    if (!Number.isSafeInteger(r0) || !Number.isSafeInteger(count) || r0 < 0 || count < 0 || r0 + count > rows) {
+      throw new InputError(InputCode.Option, `${this.path}: band of rows ${r0}..${r0 + count} lies outside rows 0..${rows}`);
+    }
+    this.unchanged();
+    const item = this.item;
+    const bytes = new Uint8Array(count * cols * item);
+    if (!this.layout.fortranOrder) {
+      const start = this.layout.dataOffset + r0 * cols * item;
+      for (let at = 0; at < bytes.length; at += MAX_READ) this.readExact(bytes, at, Math.min(MAX_READ, bytes.length - at), start + at);
+    } else {
+      this.fortranBand(bytes, r0, count);
+    }
+    this.unchanged();
+    if (this.layout.littleEndian !== HOST_LITTLE_ENDIAN) swapBytes(bytes, item);
+    return this.layout.dtype === 'f32' ? new Float32Array(bytes.buffer, 0, count * cols) : new Float64Array(bytes.buffer, 0, count * cols);
+  }
+
+  /**
+   * Rows [r0, r0 + count) of Fortran-order (column-major) data: each column
+   * holds them as one run; runs of nearby columns are read together, then
+   * transposed into row-major order.
+   */
+  private fortranBand(out: Uint8Array, r0: number, count: number): void {
+    const [rows, cols] = this.layout.shape;
+    const item = this.item;
+    const run = count * item;
+    const stride = rows * item;
+    const gap = stride - run;
+    // Columns per read: all those whose runs lie within MAX_READ, when the gaps between them are small.
+    const perRead = gap <= MAX_COLUMN_GAP ? Math.max(1, Math.floor(MAX_READ / stride)) : 1;
+    const buf = new Uint8Array(perRead === 1 ? run : (perRead - 1) * stride + run);
+    for (let j0 = 0; j0 < cols; j0 += perRead) {
+      const k = Math.min(perRead, cols - j0);
+      const length = (k - 1) * stride + run;
+      this.readExact(buf, 0, length, this.layout.dataOffset + (j0 * rows + r0) * item);
+      for (let dj = 0; dj < k; dj++) {
+        const src = dj * stride;
+        for (let i = 0; i < count; i++) {
+          const dst = (i * cols + j0 + dj) * item;
+          for (let b = 0; b < item; b++) out[dst + b] = buf[src + i * item + b];
+        }
+      }
+    }
+  }
+
+  close(): void {
+    const fd = this.fd;
+    this.fd = null;
+    if (fd !== null) closeSync(fd);
+  }
+}
+
+/** Open read-only; a directory is refused with an EISDIR error like Node's own. */
+function openInput(path: string): { fd: number; size: number; mtimeMs: number } {
+  const fd = openSync(path, 'r');
+  try {
+    const st = fstatSync(fd);
+    if (st.isDirectory()) {
+      throw Object.assign(new Error(`EISDIR: illegal operation on a directory, open '${path}'`), { code: 'EISDIR', errno: -21, syscall: 'open', path });
+    }
+    return { fd, size: st.size, mtimeMs: st.mtimeMs };
+  } catch (e) {
+    closeSync(fd);
+    throw e;
+  }
+}
+
+/** Read up to `length` bytes at `position` (fewer at the end of the file). */
+function readPrefix(fd: number, length: number, position: number): Uint8Array {
+  const out = new Uint8Array(length);
+  let done = 0;
+  while (done < length) {
+    const n = readSync(fd, out, done, length - done, position + done);
+    if (n === 0) break;
+    done += n;
+  }
+  return out.subarray(0, done);
+}
+
+function pyShape(shape: readonly number[]): string {
+  return shape.length === 1 ? `(${shape[0]},)` : `(${shape.join(', ')})`;
+}
+
+/**
+ * Open a .npy file holding a 2-D float32 or float64 array for band reads.
+ * Only its header is read here. Throws InputError for what
+ * `parseNpyHeader` refuses, for other than 2-D or empty arrays, and for a
+ * data part whose length differs from what the header declares; system
+ * errors (ENOENT, EACCES, EISDIR) pass on as Node reports them.
+ */
+export function openNpyBands(path: string): BandReader {
+  const { fd, size, mtimeMs } = openInput(path);
+  try {
+    // The header's length sits in bytes 8..12; read just enough for the whole header.
+    const lead = readPrefix(fd, 12, 0);
+    let want = lead.length;
+    if (lead.length >= 10 && lead[6] === 1) want = 10 + (lead[8] | (lead[9] << 8));
+    else if (lead.length >= 12 && (lead[6] === 2 || lead[6] === 3)) want = 12 + new DataView(lead.buffer, lead.byteOffset, 12).getUint32(8, true);
+    const head = want <= lead.length ? lead : readPrefix(fd, Math.min(want, 12 + MAX_NPY_HEADER_BYTES + 1), 0);
+    const h = parseNpyHeader(head, path);
+    if (h.shape.length !== 2) {
+      throw new InputError(
+        InputCode.Shape,
+        `${path}: holds a ${h.shape.length}-D array of shape ${pyShape(h.shape)}; only 2-D fields are supported for now (save each 2-D slice as its own .npy)`,
+      );
+    }
+    if (h.shape[0] === 0 || h.shape[1] === 0) throw new InputError(InputCode.Shape, `${path}: the array of shape (${h.shape.join(', ')}) holds no values`);
+    const count = checkedProduct(h.shape, path, pyShape(h.shape));
+    const item = itemSize(h.dtype);
+    const available = size - h.dataOffset;
+    if (available !== count * item) {
+      throw fileError(
+        path,
+        `header declares shape ${pyShape(h.shape)} = ${count} values of ${item} bytes but the data holds ${available} bytes` +
+          (available < count * item ? ' (file truncated?)' : ` (${available - count * item} extra bytes)`),
+      );
+    }
+    const layout: Layout = { shape: [h.shape[0], h.shape[1]], dtype: h.dtype, littleEndian: h.littleEndian, fortranOrder: h.fortranOrder, dataOffset: h.dataOffset };
+    return new FileBands(fd, path, layout, { size, mtimeMs }, head.length);
+  } catch (e) {
+    closeSync(fd);
+    throw e;
+  }
+}
+
+/**
+ * Open a headerless raw file of `shape` (rows, cols) values of `dtype` in C
+ * order and the given byte order for band reads. Its size must be exactly
+ * rows x cols x item size (else InputError Shape).
+ */
+export function openRawBands(path: string, shape: [number, number], dtype: Dtype, endian: 'little' | 'big'): BandReader {
+  if (dtype !== 'f32' && dtype !== 'f64') throw new InputError(InputCode.Dtype, `${path}: unknown dtype ${JSON.stringify(dtype)}, expected 'f32' or 'f64'`);
+  if (endian !== 'little' && endian !== 'big') throw new InputError(InputCode.Option, `${path}: byte order must be 'little' or 'big', not ${JSON.stringify(endian)}`);
+  if (!shape.every((d) => Number.isSafeInteger(d) && d >= 1) || shape.length !== 2) {
+    throw new InputError(InputCode.Shape, `${path}: shape must be two positive integers, got ${JSON.stringify(shape)}`);
+  }
+  const { fd, size, mtimeMs } = openInput(path);
+  try {
+    const count = checkedProduct(shape, path, shape.join('x'));
+    const item = itemSize(dtype);
+    if (size !== count * item) {
+      throw new InputError(
+        InputCode.Shape,
+        `${path}: shape ${shape.join('x')} of ${dtype} needs ${count} values of ${item} bytes = ${count * item} bytes but the file holds ${size} bytes`,
+      );
+    }
+    const layout: Layout = { shape: [shape[0], shape[1]], dtype, littleEndian: endian === 'little', fortranOrder: false, dataOffset: 0 };
+    return new FileBands(fd, path, layout, { size, mtimeMs }, 0);
+  } catch (e) {
+    closeSync(fd);
+    throw e;
+  }
+}
+
+/**
+ * Writes a .npy file (little-endian, C order) band by band: the header
+ * first, then rows in order. {@link NpyBandWriter.close} checks that every
+ * row was written, flushes and closes.
+ */
+export class NpyBandWriter {
+  private fd: number | null;
+  private rowsWritten = 0;
+  private readonly cols: number;
+
+  /** Create `path` (refusing an existing file) for a field of `shape` and `dtype`. */
+  constructor(
+    readonly path: string,
+    readonly shape: [number, number],
+    readonly dtype: Dtype,
+  ) {
+    this.cols = shape[1];
+    // The header is the one formatNpy writes for an empty array of this shape, minus its (empty) data.
+    const empty = dtype === 'f32' ? new Float32Array(0) : new Float64Array(0);
+    const header = formatNpy({ data: empty, shape: [0, shape[1]], dtype });
+    const text = new TextDecoder('latin1').decode(header);
+    const fixed = text.replace(`'shape': (0, ${shape[1]})`, `'shape': (${shape[0]}, ${shape[1]})`);
+    const bytes = new Uint8Array(fixed.length);
+    for (let i = 0; i < fixed.length; i++) bytes[i] = fixed.charCodeAt(i);
+    // The longer shape text may need the header padded afresh to its 64-byte boundary.
+    const out = repad(bytes);
+    this.fd = openSync(path, 'wx', 0o644);
+    this.put(out);
+  }
+
+  private put(bytes: Uint8Array): void {
+    if (this.fd === null) throw new InputError(InputCode.Option, `${this.path}: write after close`);
+    for (let at = 0; at < bytes.length; ) at += writeSync(this.fd, bytes, at, bytes.length - at);
+  }
+
+  /** Append the next rows (a whole number of rows of the field's dtype). */
+  write(band: FloatArray): void {
+    const want = this.dtype === 'f32' ? Float32Array : Float64Array;
+    if (!(band instanceof want) || band.length % this.cols !== 0) {
+      throw new InputError(InputCode.Shape, `${this.path}: a band must be whole rows of ${this.cols} ${this.dtype} values`);
+    }
+    const rows = band.length / this.cols;
+    if (this.rowsWritten + rows > this.shape[0]) throw new InputError(InputCode.Shape, `${this.path}: more than the ${this.shape[0]} rows declared`);
+    const bytes = new Uint8Array(band.buffer, band.byteOffset, band.byteLength);
+    if (!HOST_LITTLE_ENDIAN) {
+      const copy = bytes.slice();
+      swapBytes(copy, band.BYTES_PER_ELEMENT);
+      this.put(copy);
+    } else this.put(bytes);
+    this.rowsWritten += rows;
+  }
+
+  /** Check that all rows were written, flush and close. */
+  close(): void {
+    const fd = this.fd;
+    if (fd === null) return;
+    this.fd = null;
+    try {
+      if (this.rowsWritten !== this.shape[0]) throw new InputError(InputCode.Shape, `${this.path}: ${this.rowsWritten} of ${this.shape[0]} rows written`);
+      fsyncSync(fd);
+    } finally {
+      closeSync(fd);
+    }
+  }
+}
+
+/** Re-pad a .npy header (format 1.0 or 2.0) so the data starts at a multiple of 64 bytes. */
+function repad(header: Uint8Array): Uint8Array {
+  const major = header[6];
+  const start = major === 1 ? 10 : 12;
+  let end = header.length - 1; // the final '\n'
+  while (end > start && header[end - 1] === 0x20) end--;
+  const dict = header.subarray(start, end);
+  const length = Math.ceil((start + dict.length + 1) / 64) * 64 - start;
+  if (major === 1 && length > 0xffff) throw new InputError(InputCode.Shape, 'npy header too long');
+  const out = new Uint8Array(start + length);
+  out.set(header.subarray(0, 8));
+  const view = new DataView(out.buffer);
+  if (major === 1) view.setUint16(8, length, true);
+  else view.setUint32(8, length, true);
+  out.fill(0x20, start, start + length - 1);
+  out.set(dict, start);
+  out[start + length - 1] = 0x0a;
+  return out;
+}

@@ -1,0 +1,106 @@
+/**
+ * Seed archives for the fuzzer: valid archives of several shapes, dtypes,
+ * bound modes and payload kinds, written by this library (pack and
+ * ArchiveBuilder). Together they hold every payload feature the format has:
+ * exact and low-rank tiles, rank 0 and rank > 0, masks with every cell
+ * class (fill, +-Inf, canonical and raw NaN), residuals with and without
+ * Lorenzo prediction, and exceptions. The values are generated (sums of
+ * separable cosines, spikes, holes): seeds only need to be valid archives.
+ */
+import { ArchiveBuilder, pack } from '../../src/pack.js';
+import { MemorySink } from '../../src/format/container.js';
+import type { FloatArray } from '../../src/types.js';
+import { Rng } from './rng.js';
+
+/** A seed archive and what it was made from. */
+export interface Seed {
+  name: string;
+  bytes: Uint8Array;
+}
+
+/** A smooth field of `terms` separable cosine products, scaled and offset. */
+function smooth(rows: number, cols: number, seed: number, terms = 2, scale = 1, offset = 0): Float64Array {
+  const rng = new Rng(seed, 1);
+  const v = new Float64Array(rows * cols);
+  for (let k = 0; k < terms; k++) {
+    const a = 0.2 + rng.next();
+    const fi = 4 * rng.next();
+    const fj = 4 * rng.next();
+    const pi = 6 * rng.next();
+    const pj = 6 * rng.next();
+    for (let i = 0; i < rows; i++) {
+      const u = Math.cos((fi * i) / Math.max(1, rows - 1) + pi);
+      for (let j = 0; j < cols; j++) v[i * cols + j] += a * u * Math.cos((fj * j) / Math.max(1, cols - 1) + pj);
+    }
+  }
+  for (let i = 0; i < v.length; i++) v[i] = scale * (offset + v[i]);
+  return v;
+}
+
+/** Put NaN (canonical and with payloads), +-Inf and fill cells into a field. */
+function holes(v: FloatArray, every: number, fill: number | null): void {
+  const words = new Uint32Array(v.buffer, v.byteOffset, v.byteLength / 4);
+  const wide = v instanceof Float64Array;
+  for (let c = 3; c < v.length; c += every) {
+    const kind = (c / every) % 5 | 0;
+    if (kind === 0) v[c] = NaN;
+    else if (kind === 1) v[c] = Infinity;
+    else if (kind === 2) v[c] = -Infinity;
+    else if (kind === 3 && fill !== null) v[c] = fill;
+    else if (wide) {
+      words[2 * c] = 0xdeadbeef; // a NaN with a payload (raw NaN class)
+      words[2 * c + 1] = 0x7ff80123;
+    } else words[c] = 0x7f800001; // a signalling NaN (raw NaN class)
+  }
+}
+
+/** Build the seed archives (deterministic). */
+export function buildSeeds(): Seed[] {
+  const seeds: Seed[] = [];
+  const add = (name: string, bytes: Uint8Array) => seeds.push({ name, bytes });
+
+  const lr = smooth(6, 7, 1);
+  lr[4] = NaN;
+  lr[20] = -999;
+  add('lowrank-f64-masked', pack(lr, [6, 7], { bound: 'rel:1e-2', tile: [3, 4], fill: -999, name: 'sample' }));
+
+  add('exact-f32', pack(Float32Array.from(smooth(5, 6, 2, 3, 100)), [5, 6], { bound: 'abs:1e-9', tile: 3, name: 'exact' }));
+
+  add('factors-f64', pack(smooth(16, 16, 3), [16, 16], { bound: 'abs:1e-3', tile: 16, name: 'factors' }));
+
+  const masked = Float32Array.from(smooth(40, 33, 4, 3, 10, 5));
+  holes(masked, 7, -1);
+  add('masked-f32-rel', pack(masked, [40, 33], { bound: 'rel:1e-3', tile: [16, 12], fill: -1, name: 'masked', attrs: { units: 'K', levels: [1, 2.5, 'x', true] } }));
+
+  // Spikes far beyond what a residual integer holds: exceptions.
+  const spiky = smooth(24, 24, 5, 2, 1);
+  for (const c of [5, 77, 300, 501]) spiky[c] = 1e12 * (c % 2 ? 1 : -1);
+  add('exceptions-f64', pack(spiky, [24, 24], { bound: 'abs:1e-4', tile: 12, name: 'spiky' }));
+
+  // Noise on a smooth field at a fine bound: residuals (with and without Lorenzo prediction).
+  const noisy = smooth(32, 32, 6, 2, 1);
+  const rng = new Rng(7);
+  for (let i = 0; i < noisy.length; i++) noisy[i] += 1e-3 * (rng.next() - 0.5);
+  add('residual-f64', pack(noisy, [32, 32], { bound: 'abs:1e-5', tile: 16, name: 'noisy' }));
+
+  add('rmse-f64', pack(smooth(24, 24, 8, 4), [24, 24], { bound: 'rmse:1e-3', tile: 8, name: 'l2' }));
+  add('psnr-f32', pack(Float32Array.from(smooth(20, 30, 9, 3)), [20, 30], { bound: 'psnr:50', tile: 10, name: 'psnr' }));
+
+  add('constant-f32', pack(new Float32Array(32 * 32).fill(273.15), [32, 32], { bound: 'abs:0.01', tile: 8, name: 'constant' }));
+  add('one-row-f64', pack(smooth(1, 50, 10), [1, 50], { bound: 'rel:1e-4', tile: [1, 16], name: 'row' }));
+  add('all-nan-f64', pack(new Float64Array(8 * 8).fill(NaN), [8, 8], { bound: 'abs:1', tile: 4, name: 'void' }));
+  add('tiny-f64', pack(smooth(12, 12, 11, 2, 1e-300), [12, 12], { bound: 'rel:1e-3', tile: 6, name: 'tiny' }));
+  add('huge-f64', pack(smooth(12, 12, 12, 2, 1e300, 1), [12, 12], { bound: 'rel:1e-6', tile: 6, name: 'huge' }));
+  add('single-cell', pack([42.5], [1, 1], { bound: 'abs:0.1', name: 'one' }));
+
+  const sink = new MemorySink();
+  const b = new ArchiveBuilder(sink, { site: 'fuzz corpus', version: 3 });
+  b.add(Float32Array.from(smooth(10, 14, 13)), [10, 14], { bound: 'abs:1e-3', tile: [4, 5], name: 'a' });
+  const second = smooth(9, 9, 14, 2, 5);
+  holes(second, 4, 1e20);
+  b.add(second, [9, 9], { bound: 'rmse:1e-2', tile: 3, name: 'b', fill: 1e20 });
+  b.add(new Float64Array(6).fill(-0), [2, 3], { bound: 'abs:1', name: 'c', fill: 0 });
+  b.finish();
+  add('multi-field', sink.bytes());
+  return seeds;
+}

@@ -1,0 +1,511 @@
+/**
+ * Mutations of seed archives. Two layers:
+ *
+ * - structural: on the decoded model (payload bytes, the raw data inside
+ *   compressed sections, the fixed part of payloads, header and index
+ *   values, MessagePack encodings, container words), after which offsets,
+ *   lengths and CRCs are recomputed so the mutation reaches the checks
+ *   behind them, down to the tile decoder;
+ * - byte-level: on the finished file (bit flips, boundary bytes, truncation,
+ *   duplicated, deleted and spliced regions), sometimes with the header,
+ *   index and tail CRCs recomputed afterwards.
+ *
+ * Every choice comes from the given Rng, so a case is replayed from its seed.
+ */
+import * as zlib from 'node:zlib';
+import { deflateSync, inflateSync } from 'fflate';
+import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
+import { cloneModel, layout, resealTail, sections, serialize, TAIL, type Model } from './model.js';
+import type { Rng } from './rng.js';
+
+/** Numbers that sit on a boundary of some check. */
+export const BOUNDARY_NUMBERS = [
+  0, -0, 1, -1, 2, 3, 7, 8, 0.5, 1.5, -2.5, 255, 256, 1023, 1024, 1025, 4096, 65535, 65536, 0x7fffffff, 2 ** 31, 0xffffffff, 2 ** 32, 2 ** 20,
+  2 ** 20 + 1, 2 ** 22, 2 ** 22 + 1, 2 ** 30, 2 ** 40, 2 ** 40 + 1, 2 ** 53 - 1, 2 ** 53, 2 ** 64, 1e308, -1e308, Number.MAX_VALUE, 5e-324, 2.2250738585072014e-308,
+  NaN, Infinity, -Infinity, -(2 ** 31), -(2 ** 53),
+];
+
+const BOUNDARY_BYTES = [0x00, 0xff, 0x7f, 0x80, 0x01, 0xfe];
+
+/** A value of the wrong type, or of an absurd size. */
+function absurdValue(rng: Rng): unknown {
+  return rng.weighted<() => unknown>([
+    [10, () => rng.pick(BOUNDARY_NUMBERS)],
+    [2, () => rng.pick(['', 'x', 'f32', 'f64', 'abs', 'rel', 'rmse', 'psnr', 'rankfield', '__proto__'])],
+    [1, () => 'long '.repeat(rng.range(10, 3000))],
+    [2, () => rng.pick([[], [1], [1, 2], [1, 2, 3], [NaN, 1], ['a', 'b'], [[1, 2]], [{}]])],
+    [2, () => rng.pick([{}, { a: 1 }, { offset: [] }, { mode: 'abs' }])],
+    [2, () => rng.pick([null, true, false, undefined])],
+    [2, () => rng.pick([new Uint8Array(0), new Uint8Array(8), new Uint8Array(8).fill(0xff), new Uint8Array(9), Uint8Array.of(0, 0, 0, 0, 0, 0, 0xf8, 0x7f)])],
+    [1, () => new Lying('array', rng.pick([2 ** 32 - 1, 2 ** 22, 2 ** 16, 100]), [1])],
+    [1, () => new Lying('map', rng.pick([2 ** 32 - 1, 2 ** 16, 100]), ['a', 1])],
+    [1, () => new Lying('str', rng.pick([2 ** 32 - 1, 2 ** 20, 50]), new Uint8Array(3))],
+    [1, () => nested(rng.range(2, 40))],
+    [2, () => new Num(rng.pick([0, 1, 2, 3, 16, 64, 2 ** 31, 2 ** 33, -1, 0.5]), rng.pick(['f32', 'f64', 'u8', 'u16', 'u32', 'u64', 'i8', 'i16', 'i32', 'i64'] as const))],
+    [1, () => new Raw(rng.pick([Uint8Array.of(0xc1), Uint8Array.of(0xd4, 0, 0), Uint8Array.of(0xc7, 4, 1, 0, 0, 0, 0), Uint8Array.of(0xd6, 0xff, 0, 0, 0, 0)]))],
+  ])();
+}
+
+function nested(depth: number): unknown {
+  let v: unknown = 1;
+  for (let i = 0; i < depth; i++) v = i % 2 ? [v] : { k: v };
+  return v;
+}
+
+/** A number near `v`, or a boundary number. */
+function nearNumber(v: unknown, rng: Rng): unknown {
+  if (typeof v !== 'number' || !rng.chance(0.6)) return rng.pick(BOUNDARY_NUMBERS);
+  return rng.pick([v + 1, v - 1, v * 2, v / 2, -v, v + 0.5, v * 1e6, Math.floor(v / 3)]);
+}
+
+/** Every path (keys and array positions) into a decoded value, up to a depth. */
+function paths(v: unknown, prefix: (string | number)[] = [], out: (string | number)[][] = [], depth = 0): (string | number)[][] {
+  if (depth > 6) return out;
+  if (Array.isArray(v)) {
+    const n = v.length;
+    // Long arrays (index columns): a few positions only.
+    const idx = n <= 8 ? [...Array(n).keys()] : [0, 1, n - 1, Math.floor(n / 2)];
+    for (const i of idx) {
+      out.push([...prefix, i]);
+      paths(v[i], [...prefix, i], out, depth + 1);
+    }
+  } else if (typeof v === 'object' && v !== null && !(v instanceof Uint8Array)) {
+    for (const k of Object.keys(v)) {
+      out.push([...prefix, k]);
+      paths((v as any)[k], [...prefix, k], out, depth + 1);
+    }
+  }
+  return out;
+}
+
+function getAt(root: any, path: (string | number)[]): any {
+  let v = root;
+  for (const k of path) v = v?.[k];
+  return v;
+}
+
+/** Set, delete or replace the value at a random path of a decoded block; returns a description. */
+function editValue(root: any, rng: Rng, what: string): string {
+  const all = paths(root);
+  if (all.length === 0) return `${what}: nothing to edit`;
+  const path = rng.pick(all);
+  const parent = getAt(root, path.slice(0, -1));
+  const key = path[path.length - 1];
+  const old = parent[key];
+  const op = rng.weighted<string>([
+    [6, 'absurd'],
+    [4, 'near'],
+    [1, 'delete'],
+    [1, 'extra key'],
+    [1, 'duplicate key'],
+    [1, 'append'],
+  ]);
+  const name = `${what}.${path.join('.')}`;
+  if (op === 'absurd') parent[key] = absurdValue(rng);
+  else if (op === 'near') parent[key] = nearNumber(old, rng);
+  else if (op === 'delete') {
+    if (Array.isArray(parent)) parent.splice(key as number, 1);
+    else delete parent[key];
+  } else if (op === 'extra key') {
+    if (typeof old === 'object' && old !== null && !Array.isArray(old) && !(old instanceof Uint8Array)) old[`extra_${rng.int(100)}`] = absurdValue(rng);
+    else parent[key] = absurdValue(rng);
+  } else if (op === 'duplicate key') {
+    if (Array.isArray(parent)) parent.push(old);
+    else {
+      const entries: [unknown, unknown][] = Object.entries(parent);
+      const i = entries.findIndex(([k]) => k === key);
+      entries.splice(i + 1, 0, [rng.chance(0.7) ? key : rng.pick([1, 0, -1, 1.5, null, true]), absurdValue(rng)]);
+      // Replace the map by one that repeats a key (or has a non-string key): only a RawMap can say that.
+      const grand = getAt(root, path.slice(0, -2));
+      const pkey = path[path.length - 2];
+      if (grand === undefined || pkey === undefined) return `${name}: no parent map to repeat a key in`;
+      grand[pkey] = new RawMap(entries);
+    }
+  } else if (Array.isArray(old)) old.push(absurdValue(rng));
+  else parent[key] = [old, old];
+  return `${name} ${op}`;
+}
+
+/** Mutate bytes in place or return new bytes: flips, boundary values, numbers written over, runs, cuts, growth. */
+export function mutateBytes(b: Uint8Array, rng: Rng, focus = b.length): Uint8Array {
+  if (b.length === 0) return rng.chance(0.5) ? b : Uint8Array.of(rng.int(256));
+  const pos = () => (rng.chance(0.6) ? rng.int(Math.min(b.length, Math.max(1, focus))) : rng.int(b.length));
+  const op = rng.weighted<string>([
+    [5, 'flip'],
+    [4, 'boundary'],
+    [3, 'number'],
+    [1, 'run'],
+    [1, 'cut'],
+    [1, 'grow'],
+    [1, 'random'],
+  ]);
+  if (op === 'flip') {
+    for (let k = rng.range(1, 3); k > 0; k--) {
+      const p = pos();
+      b[p] ^= 1 << rng.int(8);
+    }
+  } else if (op === 'boundary') b[pos()] = rng.pick(BOUNDARY_BYTES);
+  else if (op === 'number') {
+    const p = pos();
+    const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
+    const v = rng.pick(BOUNDARY_NUMBERS);
+    const width = rng.pick([1, 2, 4, 8]);
+    if (p + width <= b.length) {
+      if (width === 8) d.setFloat64(p, v, true);
+      else if (width === 4) d.setUint32(p, Number.isFinite(v) ? v >>> 0 : 0xffffffff, true);
+      else if (width === 2) d.setUint16(p, Number.isFinite(v) ? v & 0xffff : 0xffff, true);
+      else b[p] = Number.isFinite(v) ? v & 0xff : 0xff;
+    }
+  } else if (op === 'run') {
+    const p = pos();
+    b.fill(rng.pick(BOUNDARY_BYTES), p, Math.min(b.length, p + rng.range(2, 64)));
+  } else if (op === 'cut') {
+    return b.slice(0, rng.int(b.length));
+  } else if (op === 'grow') {
+    const extra = new Uint8Array(rng.range(1, 16)).map(() => (rng.chance(0.5) ? 0 : rng.int(256)));
+    const at = rng.chance(0.5) ? b.length : pos();
+    return Uint8Array.of(...b.subarray(0, at), ...extra, ...b.subarray(at));
+  } else {
+    for (let k = rng.range(1, 8); k > 0; k--) b[pos()] = rng.int(256);
+  }
+  return b;
+}
+
+/** Pick a (field, tile) whose payload exists. */
+function pickPayload(m: Model, rng: Rng): [number, number] | null {
+  const fields = m.payloads.map((p, i) => [p.length, i]).filter(([n]) => n > 0);
+  if (fields.length === 0) return null;
+  const f = rng.pick(fields)[1];
+  return [f, rng.int(m.payloads[f].length)];
+}
+
+function setU32(b: Uint8Array, at: number, v: number): void {
+  new DataView(b.buffer, b.byteOffset, b.byteLength).setUint32(at, v >>> 0, true);
+}
+
+/** A DEFLATE stream of `raw` made some other valid way (stored blocks, zlib strategies, fflate levels). */
+function otherStream(raw: Uint8Array, rng: Rng): Uint8Array {
+  const how = rng.int(3);
+  if (how === 0) {
+    // Stored blocks of random sizes (RFC 1951, 3.2.4), the last one final.
+    const parts: number[] = [];
+    let at = 0;
+    do {
+      const n = Math.min(raw.length - at, rng.range(0, 300));
+      const last = at + n >= raw.length;
+      parts.push(last ? 1 : 0, n & 0xff, n >> 8, ~n & 0xff, (~n >> 8) & 0xff, ...raw.subarray(at, at + n));
+      at += n;
+    } while (at < raw.length);
+    return Uint8Array.from(parts);
+  }
+  if (how === 1) {
+    const strategy = rng.pick([zlib.constants.Z_DEFAULT_STRATEGY, zlib.constants.Z_FILTERED, zlib.constants.Z_HUFFMAN_ONLY, zlib.constants.Z_RLE, zlib.constants.Z_FIXED]);
+    return new Uint8Array(zlib.deflateRawSync(raw, { level: rng.range(0, 9), strategy, memLevel: rng.range(1, 9) }));
+  }
+  return deflateSync(raw, { level: rng.range(0, 9) as 0 });
+}
+
+/** Rewrite one section of a payload: mutate its raw data, or its stream, or its declared lengths. */
+function mutateSection(p: Uint8Array, rng: Rng): { payload: Uint8Array; what: string } {
+  const { sections: secs } = sections(p);
+  if (secs.length === 0) return { payload: p, what: 'no section' };
+  const s = rng.pick(secs);
+  const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+  const stored = p.subarray(s.start + 8, s.end);
+  let raw: Uint8Array = inflateSync(stored);
+  let what = `section ${s.name}`;
+  let declared: number | null = null;
+  let next: Uint8Array;
+  const kind = rng.weighted<string>([
+    [8, 'raw'],
+    [2, 'restream'],
+    [2, 'stream bytes'],
+    [1, 'trailing'],
+    [1, 'lengths'],
+  ]);
+  if (kind === 'raw') {
+    for (let k = rng.range(1, 3); k > 0; k--) raw = mutateBytes(raw, rng, 24);
+    next = rng.chance(0.8) ? deflateSync(raw, { level: 6 }) : otherStream(raw, rng);
+    declared = rng.chance(0.9) ? raw.length : rng.pick([raw.length + 1, raw.length - 1, 0, 2 ** 32 - 1, 1032 * next.length + 1]);
+    what += ` raw data (${raw.length} bytes, declared ${declared})`;
+  } else if (kind === 'restream') {
+    next = otherStream(raw, rng);
+    declared = raw.length;
+    what += ' written as another valid stream';
+  } else if (kind === 'stream bytes') {
+    next = mutateBytes(stored.slice(), rng);
+    declared = d.getUint32(s.start, true);
+    what += ' stream bytes';
+  } else if (kind === 'trailing') {
+    next = Uint8Array.of(...stored, ...new Uint8Array(rng.range(1, 4)).map(() => rng.int(256)));
+    declared = raw.length;
+    what += ' with bytes after its stream';
+  } else {
+    next = stored.slice();
+    declared = rng.pick([0, 1, 2 ** 31, 2 ** 32 - 1, d.getUint32(s.start, true) + rng.pick([-1, 1])]) >>> 0;
+    const lieStored = rng.chance(0.5);
+    what += lieStored ? ' stored length' : ` raw length ${declared}`;
+    if (lieStored) {
+      const out = p.slice();
+      setU32(out, s.start + 4, rng.pick([0, 1, stored.length + 1, stored.length - 1, 2 ** 32 - 1]));
+      return { payload: out, what };
+    }
+  }
+  const head = new Uint8Array(8);
+  setU32(head, 0, declared ?? raw.length);
+  setU32(head, 4, next.length);
+  return { payload: Uint8Array.of(...p.subarray(0, s.start), ...head, ...next, ...p.subarray(s.end)), what };
+}
+
+/** Change the fixed part of a payload (method, flags, rank, centre, group count), keeping the index's method and rank in step. */
+function mutateFixed(m: Model, f: number, t: number, rng: Rng): string {
+  const p = m.payloads[f][t];
+  const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+  const ix = m.index.fields[f];
+  const which = rng.pick(['method', 'flags', 'rank', 'centre', 'groups']);
+  if (which === 'method') p[0] = rng.pick([0, 1, 2, 255]);
+  else if (which === 'flags') p[1] = rng.chance(0.5) ? p[1] ^ (1 << rng.int(8)) : rng.int(256);
+  else if (which === 'rank' && p.length >= 4) d.setUint16(2, rng.pick([0, 1, 2, 3, 4, 7, 8, 16, 17, 65535, d.getUint16(2, true) + 1]) & 0xffff, true);
+  else if (which === 'centre' && p.length >= 12) d.setFloat64(4, rng.pick(BOUNDARY_NUMBERS), true);
+  else if (which === 'groups' && p.length >= 13) {
+    const { sections: secs } = sections(p);
+    const at = p[1] & 1 && secs.length > 0 ? secs[0].end : 12;
+    if (at < p.length) p[at] = rng.pick([0, 1, 2, 255]);
+  }
+  if (rng.chance(0.8) && p.length >= 1) {
+    ix.method[t] = p[0];
+    ix.rank[t] = p[0] === 1 && p.length >= 4 ? d.getUint16(2, true) : 0;
+  }
+  return `payload ${f}/${t} ${which}`;
+}
+
+/** Changes to the header that keep it self-consistent, so they reach the decoder. */
+function consistentHeader(m: Model, rng: Rng): string {
+  const fields = m.header.fields;
+  const f = rng.int(fields.length);
+  const h = fields[f];
+  const which = rng.weighted<string>([
+    [3, 'scale'],
+    [2, 'dtype'],
+    [2, 'fill'],
+    [2, 'bound'],
+    [1, 'transpose'],
+    [1, 'rename'],
+  ]);
+  if (which === 'scale') {
+    // Scaling shape and tile by the same integers keeps the tile grid; the payloads then meet larger tiles.
+    const cells = h.tile[0] * h.tile[1];
+    const big = rng.chance(0.02);
+    const limit = big ? 2 ** 20 : 2 ** 12;
+    const room = Math.max(1, Math.floor(Math.sqrt(limit / cells)));
+    const k1 = rng.range(1, Math.max(1, room));
+    const k2 = rng.range(1, Math.max(1, Math.floor(limit / cells / k1)));
+    h.shape = [h.shape[0] * k1, h.shape[1] * k2];
+    h.tile = [h.tile[0] * k1, h.tile[1] * k2];
+    return `field ${f} scaled by ${k1}x${k2}`;
+  }
+  if (which === 'dtype') h.dtype = h.dtype === 'f32' ? 'f64' : 'f32';
+  else if (which === 'fill') {
+    const b = new Uint8Array(8);
+    new DataView(b.buffer).setFloat64(0, rng.pick([0, -0, -999, NaN, Infinity, 1e20, 5e-324]), true);
+    h.fill = rng.pick([null, b, rng.pick(BOUNDARY_NUMBERS)]);
+  } else if (which === 'bound') {
+    const k = rng.pick(['mode', 'value', 'tolerance', 'range']);
+    h.bound[k] = k === 'mode' ? rng.pick(['abs', 'rel', 'rmse', 'psnr']) : k === 'range' ? rng.pick([null, [0, 0], [1, -1], [-1e308, 1e308]]) : nearNumber(h.bound[k], rng);
+  } else if (which === 'transpose') {
+    h.shape = [h.shape[1], h.shape[0]];
+    h.tile = [h.tile[1], h.tile[0]];
+  } else h.name = fields.length > 1 && rng.chance(0.5) ? fields[(f + 1) % fields.length].name : rng.pick(['', 'x'.repeat(1025), 'ok', '\u0000']);
+  return `field ${f} ${which}`;
+}
+
+/** MessagePack-level tricks on the header or index bytes. */
+function msgpackBlock(m: Model, rng: Rng): string {
+  const block = rng.chance(0.5) ? 'header' : 'index';
+  const value = block === 'header' ? m.header : m.index;
+  const trick = rng.pick(['bytes', 'bytes', 'trailing', 'wrapped', 'widths', 'truncated']);
+  let bytes = encodeValue(value);
+  if (trick === 'bytes') for (let k = rng.range(1, 3); k > 0; k--) bytes = mutateBytes(bytes, rng);
+  else if (trick === 'trailing') bytes = Uint8Array.of(...bytes, rng.pick([0xc0, 0x00, 0x90]));
+  else if (trick === 'wrapped') bytes = encodeValue(rng.chance(0.5) ? [value] : new RawMap([['fields', value]]));
+  else if (trick === 'widths') bytes = encodeValue(widen(value, rng));
+  else bytes = bytes.slice(0, rng.int(bytes.length));
+  if (block === 'header') m.headerBytes = bytes;
+  else m.indexBytes = bytes;
+  return `${block} msgpack ${trick}`;
+}
+
+/** The same value with numbers written in other (valid) widths: a reader must accept them all. */
+function widen(v: unknown, rng: Rng): unknown {
+  if (typeof v === 'number') {
+    if (Number.isInteger(v) && v >= 0 && v < 2 ** 32 && rng.chance(0.5)) return new Num(v, rng.pick(['u32', 'u64', 'f64'] as const));
+    if (!Object.is(v, -0) && rng.chance(0.3)) return new Num(v, 'f64');
+    return v;
+  }
+  if (Array.isArray(v)) return v.map((x) => widen(x, rng));
+  if (typeof v === 'object' && v !== null && !(v instanceof Uint8Array)) {
+    const out: any = {};
+    for (const [k, x] of Object.entries(v)) out[k] = widen(x, rng);
+    return out;
+  }
+  return v;
+}
+
+/** Structural index edits that need the final offsets: applied after a first layout pass. */
+function postIndex(m: Model, rng: Rng): string {
+  const fields = m.index.fields;
+  const f = rng.int(fields.length);
+  const ix = fields[f];
+  const n = ix.offset.length;
+  const t = rng.int(n);
+  const u = rng.int(n);
+  const other = fields[rng.int(fields.length)];
+  const v = rng.int(other.offset.length);
+  const which = rng.pick(['swap', 'alias', 'alias other field', 'shift', 'into header', 'crc of other', 'grow']);
+  if (which === 'swap') {
+    for (const c of ['offset', 'length', 'crc', 'method', 'rank']) [ix[c][t], ix[c][u]] = [ix[c][u], ix[c][t]];
+  } else if (which === 'alias' || which === 'alias other field') {
+    const src = which === 'alias' ? ix : other;
+    const k = which === 'alias' ? u : v;
+    ix.offset[t] = src.offset[k];
+    ix.length[t] = src.length[k];
+    ix.crc[t] = src.crc[k];
+  } else if (which === 'shift') ix.offset[t] += rng.pick([-1, 1, -2, 2, 8]);
+  else if (which === 'into header') ix.offset[t] = Math.max(0, ix.offset[n - 1] + ix.length[n - 1]);
+  else if (which === 'crc of other') ix.crc[t] = ix.crc[u];
+  else ix.length[t] += rng.pick([1, 2, 100]);
+  m.fixIndex = false;
+  return `index field ${f} tile ${t} ${which}`;
+}
+
+/** Container-level words: versions, flags, reserved word, block order, a gap, a stale CRC. */
+function containerWords(m: Model, rng: Rng): string {
+  const which = rng.pick(['version', 'flags', 'reserved', 'order', 'gap', 'stale crc', 'tail version']);
+  if (which === 'version') m.version = rng.pick([0, 2, 0xffff]);
+  else if (which === 'flags') m.flags = 1 << rng.int(16);
+  else if (which === 'reserved') m.reserved = rng.u32();
+  else if (which === 'order') m.indexFirst = !m.indexFirst;
+  else if (which === 'gap') m.gap = new Uint8Array(rng.range(1, 64)).map(() => rng.int(256));
+  else if (which === 'stale crc') m.fixCrcs = false;
+  else m.tailVersion = rng.pick([0, 2]);
+  return `container ${which}`;
+}
+
+/** Byte-level mutations of a whole file. */
+function fileBytes(b: Uint8Array, others: Uint8Array[], rng: Rng): { bytes: Uint8Array; what: string } {
+  const which = rng.weighted<string>([
+    [4, 'mutate'],
+    [2, 'truncate'],
+    [1, 'duplicate'],
+    [1, 'delete'],
+    [2, 'splice'],
+    [2, 'tail field'],
+  ]);
+  if (which === 'mutate') return { bytes: mutateBytes(b.slice(), rng), what: 'file bytes' };
+  if (which === 'truncate') return { bytes: b.slice(0, rng.int(b.length)), what: 'file truncated' };
+  const a = rng.int(b.length);
+  const e = Math.min(b.length, a + rng.range(1, 200));
+  if (which === 'duplicate') {
+    const at = rng.int(b.length);
+    return { bytes: Uint8Array.of(...b.subarray(0, at), ...b.subarray(a, e), ...b.subarray(at)), what: `file region ${a}..${e} duplicated at ${at}` };
+  }
+  if (which === 'delete') return { bytes: Uint8Array.of(...b.subarray(0, a), ...b.subarray(e)), what: `file region ${a}..${e} deleted` };
+  if (which === 'splice') {
+    const o = rng.pick(others);
+    const oa = rng.int(o.length);
+    const oe = Math.min(o.length, oa + (e - a));
+    const out = b.slice();
+    out.set(o.subarray(oa, oe).subarray(0, out.length - a), a);
+    return { bytes: out, what: `file region ${a}..${e} spliced from another archive` };
+  }
+  // A tail field (offsets, lengths) set to a boundary value.
+  const out = b.slice();
+  if (out.length >= TAIL) {
+    const t = out.length - TAIL;
+    const at = rng.pick([0, 4, 8, 16, 20, 24]);
+    setU32(out, t + at, rng.pick([0, 1, 15, 16, 17, 0x7fffffff, 0xffffffff, 0x001fffff, 0x00200000, t, t - 1, layout(b).headerOffset + 1]));
+  }
+  return { bytes: out, what: 'tail field' };
+}
+
+/** One fuzz case: a mutated archive and the list of what was done to it. */
+export interface Mutated {
+  bytes: Uint8Array;
+  ops: string[];
+}
+
+export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
+  const m = cloneModel(seed);
+  const ops: string[] = [];
+  // Edits of offsets, lengths and CRCs must come after the layout pass that recomputes them.
+  const late: (() => string)[] = [];
+  const count = rng.weighted([
+    [15, 0],
+    [55, 1],
+    [22, 2],
+    [8, 3],
+  ]);
+  for (let k = 0; k < count; k++) {
+    const op = rng.weighted<string>([
+      [14, 'payload bytes'],
+      [18, 'section'],
+      [8, 'fixed part'],
+      [12, 'header value'],
+      [6, 'header consistent'],
+      [10, 'index value'],
+      [6, 'index structure'],
+      [8, 'msgpack'],
+      [4, 'container'],
+    ]);
+    const at = pickPayload(m, rng);
+    if (op === 'payload bytes' && at) {
+      const [f, t] = at;
+      m.payloads[f][t] = mutateBytes(m.payloads[f][t], rng, 16);
+      ops.push(`payload ${f}/${t} bytes`);
+    } else if (op === 'section' && at) {
+      const [f, t] = at;
+      const r = mutateSection(m.payloads[f][t], rng);
+      m.payloads[f][t] = r.payload;
+      ops.push(`payload ${f}/${t} ${r.what}`);
+    } else if (op === 'fixed part' && at) ops.push(mutateFixed(m, at[0], at[1], rng));
+    else if (op === 'header value') ops.push(editValue(m.header, rng, 'header'));
+    else if (op === 'header consistent') ops.push(consistentHeader(m, rng));
+    else if (op === 'index value') {
+      // Index columns are long: aim at one field's columns directly, or anywhere in the index.
+      const f = rng.int(m.index.fields.length);
+      const ix = m.index.fields[f];
+      const c = rng.pick(['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc']);
+      if (!rng.chance(0.7) || ix.offset.length === 0) ops.push(editValue(m.index, rng, 'index'));
+      else {
+        const t = rng.int(ix.offset.length);
+        const edit = () => {
+          ix[c][t] = rng.chance(0.5) ? nearNumber(ix[c][t], rng) : absurdValue(rng);
+          return `index field ${f} ${c}[${t}]`;
+        };
+        if (c === 'offset' || c === 'length' || c === 'crc') late.push(edit);
+        else ops.push(edit());
+      }
+    } else if (op === 'index structure') late.push(() => postIndex(m, rng));
+    else if (op === 'msgpack') ops.push(msgpackBlock(m, rng));
+    else if (op === 'container') ops.push(containerWords(m, rng));
+  }
+  let bytes = serialize(m);
+  if (late.length > 0 && Array.isArray(m.index?.fields) && m.index.fields.every((f: any) => Array.isArray(f?.offset) && f.offset.length > 0)) {
+    for (const edit of late) ops.push(edit());
+    m.fixIndex = false;
+    bytes = serialize(m);
+  }
+  if (rng.chance(0.25)) {
+    for (let k = rng.range(1, 2); k > 0; k--) {
+      const r = fileBytes(bytes, others, rng);
+      bytes = r.bytes;
+      ops.push(r.what);
+    }
+    if (rng.chance(0.5)) {
+      resealTail(bytes);
+      ops.push('CRCs resealed');
+    }
+  }
+  if (ops.length === 0) ops.push('unchanged');
+  return { bytes, ops };
+}
