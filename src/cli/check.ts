@@ -2,7 +2,7 @@
 import type { Command } from 'commander';
 import { InputCode, InputError, isPointwise, type CheckReport, type Dtype, type FieldHeader } from '../index.js';
 import { Exit, UsageError } from './errors.js';
-import { openArchive, statInput } from './files.js';
+import { isUrl, openArchive, statInput } from './files.js';
 import { boundText, num } from './format.js';
 import { loadField } from './input.js';
 import type { Context } from './main.js';
@@ -78,7 +78,7 @@ export function registerCheck(program: Command, ctx: Context): void {
     .command('check')
     .summary('verify an archive tile by tile, optionally against the original')
     .description('Verify every tile of an archive: checksums, decoding, and the error bound; with --against, also against the original values.')
-    .argument('<IN>', 'archive to check')
+    .argument('<IN>', 'archive to check: a file or an http(s) URL')
     .option('--against <ORIGINAL>', 'original values to compare with: .npy, or raw binary')
     .option('--field <NAME>', 'field ORIGINAL belongs to (default: the first)', nameOption)
     .option('--shape <RxC>', 'raw ORIGINAL: rows x columns (default: the field\'s)', shapeOption)
@@ -91,7 +91,7 @@ export function registerCheck(program: Command, ctx: Context): void {
         const stray = (['field', 'shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
         if (stray.length > 0) throw new UsageError(`${stray.join(', ')} describe the original, which needs --against ORIGINAL`);
       }
-      await statInput(input);
+      if (!isUrl(input)) await statInput(input);
       if (flags.against !== undefined) await statInput(flags.against);
       const archive = await openArchive(input);
       try {

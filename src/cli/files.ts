@@ -8,7 +8,9 @@ import { randomBytes } from 'node:crypto';
 import { rmSync, unlinkSync, type Stats } from 'node:fs';
 import { lstat, open as openFile, rename, stat, unlink } from 'node:fs/promises';
 import { basename, dirname, join, resolve } from 'node:path';
-import { open, type Archive } from '../index.js';
+import { HttpSource } from '../format/http-source.js';
+import { open, type Archive, type Sink } from '../index.js';
+import { FileSink } from '../io/file-sink.js';
 import { FileSource } from '../io/file-source.js';
 import { FileError, UsageError, fileError, isSystemError } from './errors.js';
 
@@ -42,6 +44,11 @@ function emptyFile(path: string): FileError {
 
 function notDirectory(path: string): FileError {
   return new FileError(`cannot read '${path}': is a directory`, 'EISDIR');
+}
+
+/** True when an input names an http(s) URL rather than a file. */
+export function isUrl(input: string): boolean {
+  return /^https?:\/\//i.test(input);
 }
 
 /** Stat an input that must be an existing, non-empty, non-directory file. */
@@ -78,8 +85,22 @@ export async function readInput(path: string): Promise<Uint8Array> {
   }
 }
 
-/** Open an archive file for random access; the caller closes it. */
+/**
+ * Open an archive for random access, from a file or an http(s) URL (read
+ * with Range requests); the caller closes it. Only the tail, header and
+ * index are read here.
+ */
 export async function openArchive(path: string): Promise<Archive> {
+  if (isUrl(path)) {
+    const src = new HttpSource(path);
+    try {
+      return await open(src);
+    } catch (e) {
+      await src.close();
+      throw e;
+    }
+  }
+  await statInput(path);
   let src: FileSource;
   try {
     src = await FileSource.open(path);
@@ -145,32 +166,57 @@ export async function checkOutput(out: string, o: OutputOptions): Promise<void> 
  * failure the temporary file is removed and `out` is left as it was.
  */
 export async function writeOutput(out: string, bytes: Uint8Array, o: OutputOptions): Promise<void> {
+  await writeOutputWith(out, o, (sink) => sink.write(bytes));
+}
+
+/**
+ * Write `out` atomically from `produce`, which writes into a sink as it goes
+ * (so the output need never be in memory): into a temporary file in the
+ * same folder, flushed, fsynced and renamed over `out` once `produce`
+ * returns. If `produce` or any step fails, or the process is interrupted,
+ * the temporary file is removed and `out` is left as it was. Errors thrown
+ * by `produce` itself pass on unchanged; those of writing are phrased with
+ * `out`.
+ */
+export async function writeOutputWith(out: string, o: OutputOptions, produce: (sink: Sink) => void | Promise<void>): Promise<void> {
   await checkOutput(out, o);
   const folder = dirname(out);
   const tmp = join(folder, `.${basename(out)}.${process.pid}.${randomBytes(6).toString('hex')}.tmp`);
-  let handle;
+  let sink: FileSink;
   try {
-    handle = await openFile(tmp, 'wx', 0o644);
+    sink = FileSink.create(tmp);
   } catch (e) {
     throw fileError(e, 'write', out);
   }
   pending.add(tmp);
+  const writing: Sink = {
+    write(bytes) {
+      try {
+        sink.write(bytes);
+      } catch (e) {
+        throw fileError(e, 'write', out);
+      }
+    },
+  };
   try {
-    for (let at = 0; at < bytes.length; ) {
-      const { bytesWritten } = await handle.write(bytes, at, bytes.length - at);
-      at += bytesWritten;
+    await produce(writing);
+    try {
+      sink.close(true);
+    } catch (e) {
+      throw fileError(e, 'write', out);
     }
-    await handle.sync();
-    await handle.close();
-    handle = null;
     await checkOutput(out, o);
-    await rename(tmp, out);
+    await rename(tmp, out).catch((e: unknown) => Promise.reject(fileError(e, 'write', out)));
     pending.delete(tmp);
   } catch (e) {
-    if (handle) await handle.close().catch(() => undefined);
+    try {
+      sink.abandon();
+    } catch {
+      // Already closed, or not closable: the file is removed below either way.
+    }
     await unlink(tmp).catch(() => undefined);
     pending.delete(tmp);
-    throw fileError(e, 'write', out);
+    throw e;
   }
   await syncFolder(folder);
 }

@@ -3,11 +3,13 @@
  * (its own header says shape and dtype), or else headerless raw binary whose
  * shape, dtype and byte order the user states.
  */
+import { open as openFile } from 'node:fs/promises';
 import { InputCode, InputError, type Dtype } from '../index.js';
+import { openNpyBands, openRawBands, type BandReader } from '../io/bands.js';
 import type { NdArray } from '../io/ndarray.js';
 import { parseNpy } from '../io/npy.js';
 import { parseRaw } from '../io/raw.js';
-import { UsageError } from './errors.js';
+import { fileError, UsageError } from './errors.js';
 import { readInput } from './files.js';
 
 /** How a raw file is laid out, as given by --shape, --dtype and --endian. */
@@ -88,5 +90,42 @@ export async function loadField(path: string, given: RawLayout, defaults?: { sha
       throw new InputError(e.code, `${e.message} (the file starts like a .npy file; give it a .npy name to read its header)`);
     }
     throw e;
+  }
+}
+
+/**
+ * Open `path` for reading a band of rows at a time (only the .npy header is
+ * read here), with the same checks and messages as {@link loadField}. The
+ * caller closes the reader. File system errors are phrased with the path.
+ */
+export async function openFieldBands(path: string, given: RawLayout): Promise<BandReader> {
+  const layout = checkLayout(path, given);
+  try {
+    if (layout === null) return openNpyBands(path);
+    try {
+      return openRawBands(path, layout.shape, layout.dtype, layout.endian);
+    } catch (e) {
+      if (e instanceof InputError) {
+        const head = await readHead(path);
+        if (NPY_MAGIC.every((b, i) => head[i] === b)) {
+          throw new InputError(e.code, `${e.message} (the file starts like a .npy file; give it a .npy name to read its header)`);
+        }
+      }
+      throw e;
+    }
+  } catch (e) {
+    throw fileError(e, 'read', path);
+  }
+}
+
+/** The first bytes of a file (for telling what it looks like). */
+async function readHead(path: string): Promise<Uint8Array> {
+  const h = await openFile(path, 'r');
+  try {
+    const out = new Uint8Array(NPY_MAGIC.length);
+    const { bytesRead } = await h.read(out, 0, out.length, 0);
+    return out.subarray(0, bytesRead);
+  } finally {
+    await h.close();
   }
 }

@@ -1,10 +1,11 @@
 /** `rankfield pack`: compress one 2-D field into an archive. */
 import { basename, extname } from 'node:path';
 import type { Command } from 'commander';
-import { InputCode, InputError, open, pack, type Bound, type Dtype } from '../index.js';
-import { errorVsBound, boundText, num, ratio, seconds } from './format.js';
-import { checkOutput, statInput, writeOutput } from './files.js';
-import { checkLayout, loadField } from './input.js';
+import { ArchiveBuilder, InputCode, InputError, type Bound, type Dtype, type FloatArray } from '../index.js';
+import { fileError } from './errors.js';
+import { errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
+import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
+import { checkLayout, openFieldBands } from './input.js';
 import type { Context } from './main.js';
 import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, tileOption } from './options.js';
 
@@ -60,7 +61,7 @@ function checkFill(fill: number | undefined, dtype: Dtype): void {
   }
 }
 
-function countFill(values: Float32Array | Float64Array, fill: number): number {
+function countFill(values: FloatArray, fill: number): number {
   const f = values instanceof Float32Array ? Math.fround(fill) : fill;
   let n = 0;
   for (let i = 0; i < values.length; i++) if (values[i] === f) n++;
@@ -91,23 +92,50 @@ export function registerPack(program: Command, ctx: Context): void {
       checkLayout(input, layout);
       const io = { force: flags.force === true, inputs: [input] };
       await checkOutput(flags.output, io);
-      const field = await loadField(input, layout);
-      checkFill(flags.fill, field.dtype);
-      const name = flags.name ?? defaultName(input);
-      const bytes = pack(field.data, field.shape, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, dtype: field.dtype });
-      // Only the header and index are read back, for the figures of the summary.
-      const { header: h, index: ix } = (await open(bytes)).field(name);
-      await writeOutput(flags.output, bytes, io);
+      // The input is read a band of tile rows at a time and payloads are written as they are
+      // finished, so memory holds about one band of tiles plus the index, whatever the size.
+      const field = await openFieldBands(input, layout);
+      let fills = 0;
+      try {
+        checkFill(flags.fill, field.dtype);
+        const name = flags.name ?? defaultName(input);
+        const [rows] = field.shape;
+        let firstPass = true;
+        const band = (r0: number, count: number): FloatArray => {
+          let values: FloatArray;
+          try {
+            values = field.band(r0, count);
+          } catch (e) {
+            throw fileError(e, 'read', input);
+          }
+          // The first pass (the value range) reads every row once, in order: count fill values there.
+          if (firstPass && flags.fill !== undefined) fills += countFill(values, flags.fill);
+          if (r0 + count === rows) firstPass = false;
+          return values;
+        };
+        await writeOutputWith(flags.output, io, (sink) => {
+          const builder = new ArchiveBuilder(sink);
+          builder.addBands(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name });
+          builder.finish();
+        });
+      } finally {
+        field.close();
+      }
+      // Only the tail, header and index are read back, for the figures of the summary.
+      const archive = await openArchive(flags.output);
+      const { header: h, index: ix } = archive.field();
+      const size = archive.size;
+      await archive.close();
       const elapsed = performance.now() - start;
-      if (flags.fill !== undefined && countFill(field.data, flags.fill) === 0) {
+      if (flags.fill !== undefined && fills === 0) {
         ctx.err(`rankfield: note: the fill value ${flags.fill} does not occur in '${input}'\n`);
       }
-      const raw = field.data.byteLength;
+      const raw = rawBytes(h);
       const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
       const other = e.what === 'max error' ? `RMSE ${num(ix.summary.rmse)}` : `max error ${num(ix.summary.max_err)}`;
       ctx.out(
         `packed '${input}' (${h.shape.join('x')} ${h.dtype}, field '${h.name}') -> '${flags.output}': ` +
-          `${raw} bytes in, ${bytes.length} bytes out, ratio ${ratio(raw, bytes.length)}; ` +
+          `${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; ` +
           `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n`,
       );
     });

@@ -2,7 +2,7 @@
 import type { Command } from 'commander';
 import { METHOD_NAMES, Method } from '../codec/payload.js';
 import { formatBound, isPointwise, type Archive, type Attrs } from '../index.js';
-import { openArchive, statInput } from './files.js';
+import { openArchive } from './files.js';
 import { num, rawBytes } from './format.js';
 import type { Context } from './main.js';
 
@@ -144,12 +144,11 @@ export function registerShow(program: Command, ctx: Context): void {
       'Describe an archive: per field its shape, dtype, tiles, bound and resolved tolerance E, compression ratio ' +
         '(raw value bytes / payload bytes; for the whole archive, raw value bytes / file size), bits per value, ' +
         'the ranks chosen per tile (exact tiles counted apart), and the max error and RMSE recorded at pack time.\n\n' +
-        'Only the header and index are read; use `rankfield check` to verify the tiles.',
+        'Only the tail, header and index are read (for a URL, with HTTP Range requests); use `rankfield check` to verify the tiles.',
     )
-    .argument('<IN>', 'archive to describe')
+    .argument('<IN>', 'archive to describe: a file or an http(s) URL')
     .option('--json', 'print one JSON object with the same facts')
     .action(async (input: string, flags: { json?: boolean }) => {
-      await statInput(input);
       const archive = await openArchive(input);
       try {
         const facts = archiveFacts(archive, input);

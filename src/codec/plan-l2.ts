@@ -7,10 +7,12 @@
  * by construction and tiles can be written as they are finished.
  */
 import { forEachTile, measure, type BandSource, type FieldSpec } from './field.js';
-import { encodeL2, encodePointwise, ensureSvd, exactPayload, prepareTile, type PreparedTile } from './tile-encode.js';
+import { encodeL2, encodePointwise, energyOf, ensureSvd, exactPayload, prepareTile, type PreparedTile } from './tile-encode.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
+/** Singular values computed per tile in the first pass (all of them: an uncomputed tail can only be cut whole). */
+const L2_RANK = Infinity;
 /** Tiles costed per candidate plan. */
 const SAMPLE_TILES = 48;
 /** Prepared tiles are kept between passes for fields up to this many cells. */
@@ -34,12 +36,24 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   const keep = spec.rows * spec.cols <= KEEP_CELLS;
   const kept: PreparedTile[] = [];
   const sv2: Float64Array[] = [];
+  const tails: number[] = [];
   const dims: [number, number, number][] = [];
   forEachTile(src, spec, (_index, tile, m, n) => {
     const t = prepareTile(tile, m, n, spec.dtype, fill, tol);
     // Squared singular values in units of tol^2, so nothing overflows.
-    const s = t.valid > 0 && t.finite ? ensureSvd(t).s : new Float64Array(0);
-    sv2.push(s.map((v) => (v / tol) * (v / tol)));
+    const usable = t.valid > 0 && t.finite;
+    // The full spectrum: cutting the field-wide smallest values needs every one of them.
+    const s = usable ? ensureSvd(t, L2_RANK).s : new Float64Array(0);
+    const v2 = s.map((v) => (v / tol) * (v / tol));
+    sv2.push(v2);
+    // Energy beyond the computed singular values (zero when the SVD is complete).
+    let tail = 0;
+    if (usable && s.length < Math.min(m, n)) {
+      let kept = 0;
+      for (const x of v2) kept += x;
+      tail = Math.max(0, energyOf(t) / tol / tol - kept);
+    }
+    tails.push(tail);
     dims.push([m, n, t.valid]);
     if (keep) kept.push(t);
   });
@@ -49,7 +63,7 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   const budget = valid; // N x tol^2, in units of tol^2
   const plans: Plan[] = [];
   for (const share of TRUNCATION_SHARES) {
-    const p = eckartYoungPlan(sv2, dims, budget, share, tol);
+    const p = eckartYoungPlan(sv2, tails, dims, budget, share, tol);
     if (p) plans.push(p);
   }
   // Residual plan: the pointwise coder at E' with uniform quantization error
@@ -119,27 +133,58 @@ function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, 
  * rest of the budget goes to factor quantization, half to each factor,
  * with uniform noise step^2 / 12 per coefficient.
  */
-function eckartYoungPlan(sv2: Float64Array[], dims: [number, number, number][], budget: number, share: number, tol: number): Plan | null {
-  const order: [number, number][] = [];
-  sv2.forEach((s, t) => s.forEach((v2) => order.push([v2, t])));
+function eckartYoungPlan(
+  sv2: Float64Array[],
+  tails: number[],
+  dims: [number, number, number][],
+  budget: number,
+  share: number,
+  tol: number,
+): Plan | null {
+  // Cuts per tile, smallest first: the uncomputed tail as one lump (full rank -> k), then each
+  // computed singular value. Keys are made non-decreasing within a tile so that a global
+  // ascending order never cuts a tile's larger value before its smaller ones.
+  const order: [number, number, number][] = []; // [key, tile, squared value]
+  const ranks: number[] = [];
+  sv2.forEach((s, t) => {
+    const [m, n] = dims[t];
+    let key = 0;
+    if (tails[t] > 0) {
+      key = tails[t];
+      order.push([key, t, tails[t]]);
+      ranks.push(Math.min(m, n));
+    } else ranks.push(s.length);
+    for (let k = s.length - 1; k >= 0; k--) {
+      key = Math.max(key, s[k]);
+      order.push([key, t, s[k]]);
+    }
+  });
   order.sort((a, b) => a[0] - b[0] || a[1] - b[1]);
-  const ranks = sv2.map((s) => s.length);
   const cut = new Float64Array(sv2.length);
+  // A tile whose next cut does not fit is closed: its larger values cannot be cut either.
+  const closed = new Uint8Array(sv2.length);
   let total = 0;
-  for (const [v2, t] of order) {
-    if (!(total + v2 <= share * budget)) break;
+  for (const [, t, v2] of order) {
+    if (closed[t]) continue;
+    if (!(total + v2 <= share * budget)) {
+      closed[t] = 1;
+      continue;
+    }
     total += v2;
     cut[t] += v2;
-    ranks[t]--;
+    ranks[t] = ranks[t] > sv2[t].length ? sv2[t].length : ranks[t] - 1;
   }
   const q = (budget - total) * 0.9;
   let sumRN = 0;
   let sumME = 0;
+  const keptEnergy = (r: number, t: number) => {
+    let e = 0;
+    for (let k = 0; k < Math.min(r, sv2[t].length); k++) e += sv2[t][k];
+    return e + (r > sv2[t].length ? tails[t] : 0);
+  };
   ranks.forEach((r, t) => {
     sumRN += r * dims[t][1];
-    let e = 0;
-    for (let k = 0; k < r; k++) e += sv2[t][k];
-    sumME += dims[t][0] * e;
+    sumME += dims[t][0] * keptEnergy(r, t);
   });
   const dw = sumRN > 0 ? tol * Math.sqrt((6 * q) / sumRN) : tol;
   const du = sumME > 0 ? Math.sqrt((6 * q) / sumME) : 1;
@@ -147,8 +192,7 @@ function eckartYoungPlan(sv2: Float64Array[], dims: [number, number, number][], 
   // Each tile's allotment: its truncation error plus its expected quantization noise,
   // scaled so the allotments add up to the budget.
   const predicted = ranks.map((r, t) => {
-    let e = 0;
-    for (let k = 0; k < r; k++) e += sv2[t][k];
+    const e = keptEnergy(r, t);
     const [m, n] = dims[t];
     return cut[t] + (r * n * (dw / tol) ** 2) / 12 + (m * e * du * du) / 12;
   });

@@ -4,7 +4,7 @@
  * within the bound.
  */
 import { ByteWriter } from '../format/bytes.js';
-import { solveSpd, svd, type Svd } from '../linalg/svd.js';
+import { solveSpd, svd, truncatedSvd, type Svd } from '../linalg/svd.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { fillMissing } from './fill.js';
 import { Cell, classify, type Classes } from './mask.js';
@@ -86,7 +86,7 @@ function lowRankFill(x: Float64Array, codes: Uint8Array, m: number, n: number, t
   for (let r = 1; r <= maxRank; r++) {
     let fit = Infinity;
     for (let iter = 0; iter < IMPUTE_ITERATIONS; iter++) {
-      const s = svd(trial, m, n);
+      const s = r + 8 >= Math.min(m, n) ? svd(trial, m, n) : truncatedSvd(trial, m, n, r);
       const rr = Math.min(r, s.k);
       recon.fill(0);
       for (let i = 0; i < m; i++) {
@@ -119,9 +119,25 @@ const IMPUTE_ITERATIONS = 4;
 const IMPUTE_MAX_RANK = 6;
 
 /** The tile's SVD (computed once). */
-export function ensureSvd(t: PreparedTile): Svd {
-  if (!t.svd) t.svd = svd(t.centred, t.m, t.n);
+export function ensureSvd(t: PreparedTile, need = Infinity): Svd {
+  const full = Math.min(t.m, t.n);
+  const want = Math.min(full, need);
+  if (t.svd && t.svd.k >= want) return t.svd;
+  // The randomized range finder pays off while the sketch (k + 8 columns) is well below full rank.
+  t.svd = want + 8 >= full ? svd(t.centred, t.m, t.n) : truncatedSvd(t.centred, t.m, t.n, Math.max(want, PARTIAL_RANK));
   return t.svd;
+}
+
+/** Singular triplets computed first; more are computed when a search needs them. */
+export const PARTIAL_RANK = 16;
+
+/** Squared Frobenius norm of a tile's centred values. */
+export function energyOf(t: PreparedTile): number {
+  const s = ensureSvd(t);
+  if ('frob2' in s) return (s as Svd & { frob2: number }).frob2;
+  let e = 0;
+  for (let k = 0; k < s.k; k++) e += s.s[k] * s.s[k];
+  return e;
 }
 
 /** The exact payload: byte-shuffled values, DEFLATE. */
@@ -161,7 +177,7 @@ export interface Factors {
  */
 export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dwTarget: number): Factors | null {
   const { m, n } = t;
-  const s = ensureSvd(t);
+  const s = ensureSvd(t, r);
   if (!(duTarget >= MIN_STEP && dwTarget >= MIN_STEP && Number.isFinite(duTarget) && Number.isFinite(dwTarget))) return null;
   const cu = stepCode(duTarget);
   const cw = stepCode(dwTarget);
@@ -352,11 +368,15 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   const p0 = lowRankPayload(t, null, correct(t, null, e));
   if (p0.length < best.length) best = p0;
   if (!(e > 0)) return best;
-  const s = ensureSvd(t);
+  let s = ensureSvd(t, PARTIAL_RANK);
   const { m, n } = t;
   const tol = s.s[0] * 1e-13;
-  let numRank = 0;
-  while (numRank < s.k && s.s[numRank] > tol) numRank++;
+  const numericalRank = () => {
+    let k = 0;
+    while (k < s.k && s.s[k] > tol) k++;
+    return k;
+  };
+  let numRank = numericalRank();
   let worse = 0;
   let prev = p0.length;
   // Energy of the kept ranks relative to s[0]^2, so huge values cannot overflow it.
@@ -365,6 +385,10 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   const s0 = s.s[0];
   for (const r of RANKS) {
     if (r === 0) continue;
+    if (r > s.k && numRank === s.k) {
+      s = ensureSvd(t, r);
+      numRank = numericalRank();
+    }
     if (r > numRank) break;
     for (; done < r; done++) energy += (s.s[done] / s0) * (s.s[done] / s0);
     const dw = FACTOR_NOISE * e * Math.sqrt((12 * m) / r);
@@ -386,8 +410,7 @@ export function encodeL2(t: PreparedTile, r: number, du: number, dw: number): Ui
   if (!t.finite) return exact;
   let f: Factors | null = null;
   if (r > 0 && t.valid > 0) {
-    const s = ensureSvd(t);
-    f = quantizeFactors(t, Math.min(r, s.k), du, dw);
+    f = quantizeFactors(t, Math.min(r, t.m, t.n), du, dw);
     if (!f) return exact;
   }
   const p = lowRankPayload(t, f, null);

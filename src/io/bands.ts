@@ -13,7 +13,7 @@ import { closeSync, fstatSync, fsyncSync, openSync, readSync, writeSync } from '
 import { InputCode, InputError } from '../errors.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { HOST_LITTLE_ENDIAN, checkedProduct, itemSize, swapBytes } from './ndarray.js';
-import { MAX_NPY_HEADER_BYTES, formatNpy, parseNpyHeader } from './npy.js';
+import { MAX_NPY_HEADER_BYTES, parseNpyHeader } from './npy.js';
 
 /** A 2-D field read a band of rows at a time. */
 export interface BandReader {
@@ -277,15 +277,7 @@ export class NpyBandWriter {
     readonly dtype: Dtype,
   ) {
     this.cols = shape[1];
-    // The header is the one formatNpy writes for an empty array of this shape, minus its (empty) data.
-    const empty = dtype === 'f32' ? new Float32Array(0) : new Float64Array(0);
-    const header = formatNpy({ data: empty, shape: [0, shape[1]], dtype });
-    const text = new TextDecoder('latin1').decode(header);
-    const fixed = text.replace(`'shape': (0, ${shape[1]})`, `'shape': (${shape[0]}, ${shape[1]})`);
-    const bytes = new Uint8Array(fixed.length);
-    for (let i = 0; i < fixed.length; i++) bytes[i] = fixed.charCodeAt(i);
-    // The longer shape text may need the header padded afresh to its 64-byte boundary.
-    const out = repad(bytes);
+    const out = npyHeader(shape, dtype);
     this.fd = openSync(path, 'wx', 0o644);
     this.put(out);
   }
@@ -326,22 +318,18 @@ export class NpyBandWriter {
   }
 }
 
-/** Re-pad a .npy header (format 1.0 or 2.0) so the data starts at a multiple of 64 bytes. */
-function repad(header: Uint8Array): Uint8Array {
-  const major = header[6];
-  const start = major === 1 ? 10 : 12;
-  let end = header.length - 1; // the final '\n'
-  while (end > start && header[end - 1] === 0x20) end--;
-  const dict = header.subarray(start, end);
-  const length = Math.ceil((start + dict.length + 1) / 64) * 64 - start;
-  if (major === 1 && length > 0xffff) throw new InputError(InputCode.Shape, 'npy header too long');
-  const out = new Uint8Array(start + length);
-  out.set(header.subarray(0, 8));
-  const view = new DataView(out.buffer);
-  if (major === 1) view.setUint16(8, length, true);
-  else view.setUint32(8, length, true);
-  out.fill(0x20, start, start + length - 1);
-  out.set(dict, start);
-  out[start + length - 1] = 0x0a;
+/**
+ * The header formatNpy writes (format 1.0, little-endian, C order, padded
+ * with spaces and '\n' so the data starts at a multiple of 64 bytes).
+ */
+function npyHeader(shape: [number, number], dtype: Dtype): Uint8Array {
+  const dict = `{'descr': '${dtype === 'f32' ? '<f4' : '<f8'}', 'fortran_order': False, 'shape': (${shape[0]}, ${shape[1]}), }`;
+  const length = Math.ceil((10 + dict.length + 1) / 64) * 64 - 10;
+  const out = new Uint8Array(10 + length);
+  out.set([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0]);
+  new DataView(out.buffer).setUint16(8, length, true);
+  out.fill(0x20, 10, 10 + length - 1);
+  for (let i = 0; i < dict.length; i++) out[10 + i] = dict.charCodeAt(i);
+  out[10 + length - 1] = 0x0a;
   return out;
 }

@@ -69,7 +69,8 @@ function paths(v: unknown, prefix: (string | number)[] = [], out: (string | numb
       out.push([...prefix, i]);
       paths(v[i], [...prefix, i], out, depth + 1);
     }
-  } else if (typeof v === 'object' && v !== null && !(v instanceof Uint8Array)) {
+  } else if (typeof v === 'object' && v !== null && Object.getPrototypeOf(v) === Object.prototype) {
+    // Plain maps only: the writer's special nodes (RawMap, Lying, ...) are leaves.
     for (const k of Object.keys(v)) {
       out.push([...prefix, k]);
       paths((v as any)[k], [...prefix, k], out, depth + 1);
@@ -107,7 +108,7 @@ function editValue(root: any, rng: Rng, what: string): string {
     if (Array.isArray(parent)) parent.splice(key as number, 1);
     else delete parent[key];
   } else if (op === 'extra key') {
-    if (typeof old === 'object' && old !== null && !Array.isArray(old) && !(old instanceof Uint8Array)) old[`extra_${rng.int(100)}`] = absurdValue(rng);
+    if (typeof old === 'object' && old !== null && Object.getPrototypeOf(old) === Object.prototype) old[`extra_${rng.int(100)}`] = absurdValue(rng);
     else parent[key] = absurdValue(rng);
   } else if (op === 'duplicate key') {
     if (Array.isArray(parent)) parent.push(old);
@@ -458,6 +459,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
       [4, 'container'],
     ]);
     const at = pickPayload(m, rng);
+    try {
     if (op === 'payload bytes' && at) {
       const [f, t] = at;
       m.payloads[f][t] = mutateBytes(m.payloads[f][t], rng, 16);
@@ -488,10 +490,20 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
     } else if (op === 'index structure') late.push(() => postIndex(m, rng));
     else if (op === 'msgpack') ops.push(msgpackBlock(m, rng));
     else if (op === 'container') ops.push(containerWords(m, rng));
+    } catch (e) {
+      // A mutation whose target an earlier mutation already destroyed (e.g. an index that is no longer a map).
+      ops.push(`${op} skipped (${(e as Error).message})`);
+    }
   }
   let bytes = serialize(m);
   if (late.length > 0 && Array.isArray(m.index?.fields) && m.index.fields.every((f: any) => Array.isArray(f?.offset) && f.offset.length > 0)) {
-    for (const edit of late) ops.push(edit());
+    for (const edit of late) {
+      try {
+        ops.push(edit());
+      } catch (e) {
+        ops.push(`index edit skipped (${(e as Error).message})`);
+      }
+    }
     m.fixIndex = false;
     bytes = serialize(m);
   }

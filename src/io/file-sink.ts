@@ -1,0 +1,88 @@
+/**
+ * A {@link Sink} that writes archive bytes to a file as they come, through a
+ * file descriptor, with a small buffer so that many small payloads do not
+ * cost one system call each. Writes are synchronous because the archive
+ * writer emits payloads from inside the encoder's (synchronous) tile loop.
+ */
+import { closeSync, fsyncSync, openSync, writeSync } from 'node:fs';
+import type { Sink } from '../format/container.js';
+
+/** Default buffer: 1 MiB. */
+const BUFFER_BYTES = 1 << 20;
+
+/** Writes bytes in order to one file. */
+export class FileSink implements Sink {
+  /** Bytes handed to {@link write} so far. */
+  bytesWritten = 0;
+  private fd: number | null;
+  private readonly buffer: Uint8Array;
+  private used = 0;
+
+  /** Write to an open descriptor (which {@link close} closes). */
+  constructor(fd: number, readonly path: string, bufferBytes = BUFFER_BYTES) {
+    this.fd = fd;
+    this.buffer = new Uint8Array(Math.max(1, bufferBytes));
+  }
+
+  /** Create `path` for writing, refusing an existing file (mode 0644). */
+  static create(path: string): FileSink {
+    return new FileSink(openSync(path, 'wx', 0o644), path);
+  }
+
+  private handle(): number {
+    if (this.fd === null) throw new Error(`${this.path}: write after the file sink was closed`);
+    return this.fd;
+  }
+
+  private writeAll(bytes: Uint8Array): void {
+    const fd = this.handle();
+    for (let at = 0; at < bytes.length; ) at += writeSync(fd, bytes, at, bytes.length - at);
+  }
+
+  write(bytes: Uint8Array): void {
+    this.handle();
+    this.bytesWritten += bytes.length;
+    if (this.used + bytes.length <= this.buffer.length) {
+      this.buffer.set(bytes, this.used);
+      this.used += bytes.length;
+      return;
+    }
+    this.flush();
+    // Large writes skip the buffer.
+    if (bytes.length >= this.buffer.length) this.writeAll(bytes);
+    else {
+      this.buffer.set(bytes);
+      this.used = bytes.length;
+    }
+  }
+
+  /** Write out what is buffered. */
+  flush(): void {
+    if (this.used > 0) {
+      const n = this.used;
+      this.used = 0;
+      this.writeAll(this.buffer.subarray(0, n));
+    }
+  }
+
+  /** Flush, fsync (`sync`, default true) and close. Closing twice is harmless; a failed flush still closes the file. */
+  close(sync = true): void {
+    const fd = this.fd;
+    if (fd === null) return;
+    try {
+      this.flush();
+      if (sync) fsyncSync(fd);
+    } finally {
+      this.fd = null;
+      closeSync(fd);
+    }
+  }
+
+  /** Close without writing what is buffered (after a failure). */
+  abandon(): void {
+    const fd = this.fd;
+    this.fd = null;
+    this.used = 0;
+    if (fd !== null) closeSync(fd);
+  }
+}

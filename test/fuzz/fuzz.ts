@@ -1,0 +1,79 @@
+/**
+ * The fuzz loop shared by the CI test (test/fuzz/fuzz.test.ts) and the long
+ * run (`npm run fuzz -- --cases N`): case i of a run with seed s mutates a
+ * seed archive with Rng(s, i), so any case is replayed from (s, i) alone.
+ */
+import { buildSeeds, type Seed } from './corpus.js';
+import { runCase, type Outcome } from './harness.js';
+import { parse, type Model } from './model.js';
+import { mutate } from './mutate.js';
+import { Rng } from './rng.js';
+
+/** Seeds, parsed once. */
+export interface Corpus {
+  seeds: Seed[];
+  models: Model[];
+}
+
+export function corpus(): Corpus {
+  const seeds = buildSeeds();
+  return { seeds, models: seeds.map((s) => parse(s.bytes)) };
+}
+
+/** One case, made and run. */
+export interface CaseResult extends Outcome {
+  index: number;
+  seed: string;
+  ops: string[];
+  bytes: Uint8Array;
+}
+
+/** Make case `i` of run `seed` (no running). */
+export function makeCase(c: Corpus, seed: number, i: number): { rng: Rng; seedName: string; bytes: Uint8Array; ops: string[] } {
+  const rng = new Rng(seed, i);
+  const k = rng.int(c.seeds.length);
+  const others = c.seeds.filter((_, j) => j !== k).map((s) => s.bytes);
+  const { bytes, ops } = mutate(c.models[k], others, rng);
+  return { rng, seedName: c.seeds[k].name, bytes, ops };
+}
+
+export async function runOne(c: Corpus, seed: number, i: number): Promise<CaseResult> {
+  const { rng, seedName, bytes, ops } = makeCase(c, seed, i);
+  const outcome = await runCase(bytes, rng);
+  return { ...outcome, index: i, seed: seedName, ops, bytes };
+}
+
+/** Running totals of a fuzz run. */
+export class Tally {
+  cases = 0;
+  results = new Map<string, number>();
+  findings: { index: number; seed: string; ops: string[]; finding: string }[] = [];
+  slowest: { index: number; ms: number; seed: string; ops: string[] } = { index: -1, ms: 0, seed: '', ops: [] };
+  over1s = 0;
+  maxWork = 0;
+  peakMemory = 0;
+  totalMs = 0;
+
+  add(r: CaseResult): void {
+    this.cases++;
+    this.results.set(`${r.stage} ${r.result}`, (this.results.get(`${r.stage} ${r.result}`) ?? 0) + 1);
+    for (const finding of r.findings) this.findings.push({ index: r.index, seed: r.seed, ops: r.ops, finding });
+    if (r.ms > this.slowest.ms) this.slowest = { index: r.index, ms: r.ms, seed: r.seed, ops: r.ops };
+    if (r.ms > 1000) this.over1s++;
+    this.maxWork = Math.max(this.maxWork, r.work);
+    this.peakMemory = Math.max(this.peakMemory, r.memory);
+    this.totalMs += r.ms;
+  }
+
+  /** Share of cases that reached each stage/result, as lines. */
+  summary(): string[] {
+    const lines = [...this.results.entries()].sort((a, b) => b[1] - a[1]).map(([k, n]) => `  ${String(n).padStart(8)}  ${k}`);
+    return [
+      `cases ${this.cases}, findings ${this.findings.length}, cases over 1 s ${this.over1s}`,
+      `slowest case ${this.slowest.index} (${this.slowest.ms.toFixed(1)} ms, seed ${this.slowest.seed}: ${this.slowest.ops.join('; ')})`,
+      `mean ${(this.totalMs / Math.max(1, this.cases)).toFixed(2)} ms per case, largest declared decode work ${this.maxWork}, peak heap+buffers ${(this.peakMemory / 2 ** 20).toFixed(0)} MiB`,
+      'outcomes (stage result):',
+      ...lines,
+    ];
+  }
+}

@@ -1,0 +1,177 @@
+/**
+ * Run one fuzz case the way users touch an archive: open it, show it (the
+ * CLI's facts, from header and index), read every field whole, read a few
+ * tiles and a window, and check it. What may escape is a FormatError (or an
+ * InputError) with a known code and a one-line message naming the source;
+ * anything else, a check() that throws, or a read() failure that check()
+ * does not report, is a finding.
+ */
+import { open, type Archive } from '../../src/archive.js';
+import { archiveFacts, factsText } from '../../src/cli/show.js';
+import { FormatCode, FormatError, InputCode, InputError } from '../../src/errors.js';
+import { MemorySource } from '../../src/format/source.js';
+import type { FloatArray } from '../../src/types.js';
+import type { Rng } from './rng.js';
+
+const FORMAT_CODES = new Set<string>(Object.values(FormatCode));
+const INPUT_CODES = new Set<string>(Object.values(InputCode));
+
+/** What happened to one case. */
+export interface Outcome {
+  /** 'ok' when everything read back; else the first typed error's class and code. */
+  result: string;
+  /** The stage of the first typed error (open, read, tile, window, check). */
+  stage: string;
+  /** Findings: anything that breaks the contract, with the stage and the error. */
+  findings: string[];
+  /** Decode work the opened archive declares: sum over tiles of m*n*(rank+1) multiply-adds, per pass. */
+  work: number;
+  /** Largest heapUsed + arrayBuffers seen between stages, in bytes. */
+  memory: number;
+  ms: number;
+}
+
+/** Is `e` a typed error as promised (class, code, one line naming the source)? Returns the problem, or null. */
+export function typedErrorProblem(e: unknown, label: string): string | null {
+  if (e instanceof FormatError) {
+    if (!FORMAT_CODES.has(e.code)) return `FormatError with unknown code ${String(e.code)}`;
+  } else if (e instanceof InputError) {
+    if (!INPUT_CODES.has(e.code)) return `InputError with unknown code ${String(e.code)}`;
+  } else {
+    return `untyped ${(e as Error)?.name ?? typeof e}: ${(e as Error)?.stack ?? String(e)}`;
+  }
+  const msg = e.message;
+  if (typeof msg !== 'string' || msg.length === 0) return `${e.name} with an empty message`;
+  if (/[\n\r]/.test(msg)) return `${e.name} message of several lines: ${JSON.stringify(msg.slice(0, 300))}`;
+  if (msg.length > 600) return `${e.name} message of ${msg.length} characters: ${msg.slice(0, 200)}...`;
+  if (!msg.startsWith(label)) return `${e.name} message does not name the source: ${msg}`;
+  return null;
+}
+
+function memoryNow(): number {
+  const m = process.memoryUsage();
+  return m.heapUsed + m.arrayBuffers;
+}
+
+/** Tiles covering a window, through the tile API, assembled as a window read would. */
+async function readWindow(a: Archive, name: string, rng: Rng): Promise<FloatArray> {
+  const { header: h } = a.field(name);
+  const [rows, cols] = h.shape;
+  const r0 = rng.int(rows);
+  const c0 = rng.int(cols);
+  const hh = Math.min(rows - r0, 1 + rng.int(Math.min(rows - r0, 64)));
+  const ww = Math.min(cols - c0, 1 + rng.int(Math.min(cols - c0, 64)));
+  const out = h.dtype === 'f32' ? new Float32Array(hh * ww) : new Float64Array(hh * ww);
+  const [tr, tc] = h.tile;
+  const gc = Math.ceil(cols / tc);
+  for (let ti = Math.floor(r0 / tr); ti * tr < r0 + hh; ti++) {
+    for (let tj = Math.floor(c0 / tc); tj * tc < c0 + ww; tj++) {
+      const tile = await a.tile(name, ti * gc + tj);
+      const n = Math.min(tc, cols - tj * tc);
+      for (let i = Math.max(r0, ti * tr); i < Math.min(r0 + hh, (ti + 1) * tr); i++) {
+        for (let j = Math.max(c0, tj * tc); j < Math.min(c0 + ww, (tj + 1) * tc); j++) {
+          out[(i - r0) * ww + (j - c0)] = tile[(i - ti * tr) * n + (j - tj * tc)];
+        }
+      }
+    }
+  }
+  return out;
+}
+
+/** Declared decode work of an opened archive: sum over tiles of m*n*(rank+1). */
+export function declaredWork(a: Archive): number {
+  let w = 0;
+  a.header.fields.forEach((h, f) => {
+    const ix = a.index.fields[f];
+    const gc = Math.ceil(h.shape[1] / h.tile[1]);
+    for (let t = 0; t < ix.offset.length; t++) {
+      const m = Math.min(h.tile[0], h.shape[0] - Math.floor(t / gc) * h.tile[0]);
+      const n = Math.min(h.tile[1], h.shape[1] - (t % gc) * h.tile[1]);
+      w += m * n * (ix.rank[t] + 1);
+    }
+  });
+  return w;
+}
+
+export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case'): Promise<Outcome> {
+  const t0 = performance.now();
+  const out: Outcome = { result: 'ok', stage: 'done', findings: [], work: 0, memory: 0, ms: 0 };
+  const sample = () => {
+    out.memory = Math.max(out.memory, memoryNow());
+  };
+  /** Record a typed error (first one wins) or a finding. */
+  const caught = (e: unknown, stage: string): void => {
+    const problem = typedErrorProblem(e, label);
+    if (problem) out.findings.push(`${stage}: ${problem}`);
+    else if (out.result === 'ok') {
+      out.result = `${(e as Error).name}:${(e as FormatError).code}`;
+      out.stage = stage;
+    }
+  };
+  let a: Archive;
+  try {
+    a = await open(new MemorySource(bytes, label));
+  } catch (e) {
+    caught(e, 'open');
+    out.ms = performance.now() - t0;
+    return out;
+  }
+  sample();
+  out.work = declaredWork(a);
+  try {
+    factsText(archiveFacts(a, label));
+  } catch (e) {
+    out.findings.push(`show: ${typedErrorProblem(e, label) ?? `show threw ${(e as Error).message} on an archive that opened`}`);
+  }
+  const failedTiles = new Map<string, Set<number>>();
+  const failed = (name: string, e: unknown): void => {
+    const m = e instanceof FormatError ? /tile (\d+)/.exec(e.message.slice(label.length)) : null;
+    if (!failedTiles.has(name)) failedTiles.set(name, new Set());
+    if (m) failedTiles.get(name)!.add(Number(m[1]));
+  };
+  for (const name of a.names) {
+    try {
+      await a.read(name);
+    } catch (e) {
+      caught(e, 'read');
+      if (e instanceof FormatError && e.code !== FormatCode.Limit) failed(name, e);
+    }
+    sample();
+    const tiles = a.field(name).index.offset.length;
+    for (let k = 0; k < 2 && tiles > 0; k++) {
+      const t = rng.int(tiles);
+      try {
+        await a.tile(name, t);
+      } catch (e) {
+        caught(e, 'tile');
+        if (e instanceof FormatError) failed(name, e);
+      }
+    }
+    try {
+      await readWindow(a, name, rng);
+    } catch (e) {
+      caught(e, 'window');
+      if (e instanceof FormatError) failed(name, e);
+    }
+    sample();
+  }
+  try {
+    const report = await a.check();
+    sample();
+    // Every tile that failed to decode above must be reported by check().
+    for (const [name, tiles] of failedTiles) {
+      if (report.ok) out.findings.push(`check: reports ok, but reading field '${name}' failed`);
+      for (const t of tiles) {
+        if (!report.failures.some((f) => f.field === name && f.tile === t)) out.findings.push(`check: does not report field '${name}' tile ${t}, which failed to decode`);
+      }
+    }
+    if (!report.ok && out.result === 'ok') {
+      out.result = 'check-failed';
+      out.stage = 'check';
+    }
+  } catch (e) {
+    out.findings.push(`check: threw ${typedErrorProblem(e, label) ?? `${(e as Error).name}: ${(e as Error).message}`}`);
+  }
+  out.ms = performance.now() - t0;
+  return out;
+}
