@@ -75,6 +75,16 @@ export function ripple(x: number, y: number): number {
 }
 
 /**
+ * A curved front (a tanh step across a wavy line) over a gentle background:
+ * smooth at the grid scale, nearly rank one away from the front, but of high
+ * rank as a whole because the front is not aligned with the grid.
+ */
+export function front(x: number, y: number): number {
+  const d = y - 0.5 - 0.12 * Math.sin(5 * x + 0.5) - 0.05 * Math.cos(11 * x);
+  return 1.5 * Math.tanh(d / 0.04) + 0.3 * Math.cos(2 * x + 3 * y) + 0.2 * x;
+}
+
+/**
  * Random-phase spectral synthesis of an n x n field whose isotropic energy
  * spectrum falls as E(k) ~ k^-5/3 (Kolmogorov). In 2-D, E(k) ~ k |F(k)|^2,
  * so the Fourier amplitudes fall as k^-4/3 (from memory). Fixed seed; the
@@ -146,7 +156,7 @@ export function basinStack(snapshots: number, rows: number, cols: number): { val
 export function benchFields(quick: boolean): BenchField[] {
   const n = quick ? 256 : 512;
   const big = quick ? 1024 : 4096;
-  const [sr, sc, st] = quick ? [48, 64, 96] : [64, 96, 256];
+  const [sr, sc, st] = quick ? [32, 48, 48] : [64, 96, 128];
   const volcano = vegaGrid('volcano');
   const precip = vegaGrid('annual-precip');
   const stack = basinStack(st, sr, sc);
@@ -156,6 +166,7 @@ export function benchFields(quick: boolean): BenchField[] {
     { id: 'annual-precip', ...plain, ...precip, source: 'vega-datasets data/annual-precip.json (360 wide x 168 high)' },
     { id: 'smooth-bumps', ...plain, smooth: true, rows: n, cols: n, values: sample(n, bumps), source: `analytic: six Gaussian bumps on a tilted plane, ${n}x${n}` },
     { id: 'smooth-ripple', ...plain, smooth: true, rows: n, cols: n, values: sample(n, ripple), source: `analytic: damped radial waves plus an oblique wave, ${n}x${n}` },
+    { id: 'smooth-front', ...plain, smooth: true, rows: n, cols: n, values: sample(n, front), source: `analytic: a curved tanh front (width 0.04) over a gentle background, ${n}x${n}` },
     { id: 'turbulence', ...plain, rows: n, cols: n, values: turbulence(n, 1941), source: `random-phase spectral synthesis, E(k) ~ k^-5/3, seed 1941, ${n}x${n}` },
     { id: 'basin-stack', ...plain, fill: stack.fill, rows: st, cols: sr * sc, values: stack.values, source: `${st} snapshots (rows) of the demo's ${sr}x${sc} Corvane Basin (columns), six seeds blended over time, seasonal cycle, noise; land = fill -999` },
     {

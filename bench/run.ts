@@ -66,11 +66,11 @@ function describeError(e: unknown): string {
   return `threw ${err instanceof Error ? `${err.name}: ${err.message}` : String(err)}`;
 }
 
-/** Encode (timed), decode (timed), check. */
-async function runCodec(codec: Codec, field: BenchField, target: Target, timing: TimingOptions): Promise<Row> {
+/** Encode (timed), decode (timed), check; also returns the encoded bytes when there are any. */
+async function runCodec(codec: Codec, field: BenchField, target: Target, timing: TimingOptions): Promise<{ row: Row; bytes: Uint8Array | null }> {
   const base: Row = { field: field.id, bound: target.text, method: codec.id, status: 'ok' };
   const skip = codec.skip?.(field, target) ?? null;
-  if (skip) return { ...base, status: 'skipped', reason: skip };
+  if (skip) return { row: { ...base, status: 'skipped', reason: skip }, bytes: null };
   const mb = field.values.byteLength / 1e6;
   let bytes: Uint8Array | null = null;
   let decoded: Float32Array | null = null;
@@ -81,7 +81,7 @@ async function runCodec(codec: Codec, field: BenchField, target: Target, timing:
     }, timing);
   } catch (e) {
     if (!(e instanceof BaselineFailure || (e instanceof Error && e.cause instanceof BaselineFailure))) console.error(e);
-    return { ...base, status: 'failed', reason: `encode ${describeError(e)}` };
+    return { row: { ...base, status: 'failed', reason: `encode ${describeError(e)}` }, bytes: null };
   }
   const out = bytes as unknown as Uint8Array;
   let dec;
@@ -91,9 +91,10 @@ async function runCodec(codec: Codec, field: BenchField, target: Target, timing:
     }, timing);
   } catch (e) {
     console.error(e);
-    return { ...base, status: 'failed', reason: `decode ${describeError(e)}`, bytes: out.length };
+    return { row: { ...base, status: 'failed', reason: `decode ${describeError(e)}`, bytes: out.length }, bytes: out };
   }
-  return finish(base, field, target, out, decoded as unknown as Float32Array, mb / (enc.medianMs / 1000), mb / (dec.medianMs / 1000), enc.runs, dec.runs);
+  const row = finish(base, field, target, out, decoded as unknown as Float32Array, mb / (enc.medianMs / 1000), mb / (dec.medianMs / 1000), enc.runs, dec.runs);
+  return { row, bytes: out };
 }
 
 function finish(base: Row, field: BenchField, target: Target, bytes: Uint8Array, decoded: Float32Array, encMBs: number, decMBs: number, encRuns: number, decRuns: number): Row {
@@ -204,7 +205,7 @@ async function main(): Promise<void> {
     "The demo generator (src/demo/basin.ts) has no time axis; the basin-stack's time series is built in bench/fields.ts from it (six seeds blended over time).",
     'deflate is bound-independent: it is encoded and timed once per field and checked against each bound.',
   ];
-  if (args.quick) notes.push('Quick run: generated fields at 256x256, the stack 96 x (48x64), the large field shrunk from 4096x4096 to 1024x1024 and run at rel:1e-3 only; fewer timing runs. Use `npm run bench` for the full table.');
+  if (args.quick) notes.push('Quick run: generated fields at 256x256 (512x512 in the full run), the stack 48 x (32x48) (128 x (64x96) in the full run), the large field shrunk from 4096x4096 to 1024x1024 and run at rel:1e-3 only; fewer timing runs. Use `npm run bench` for the full table.');
   for (const field of fields) {
     const [lo, hi] = validRange(field.values, field.fill);
     const prep = prepare(field.values, field.fill);
@@ -235,9 +236,10 @@ async function main(): Promise<void> {
           }
           const l = lossless;
           row = finish({ field: field.id, bound: text, method: codec.id, status: 'ok' }, field, target, l.bytes, l.decoded, l.enc, l.dec, l.encRuns, l.decRuns);
-        } else row = await runCodec(codec, field, target, t);
-        if (row.method === 'rankfield' && row.status === 'ok' && row.bytes !== undefined) {
-          row.breakdown = await breakdown(rankfield.encode(field, target));
+        } else {
+          const outcome = await runCodec(codec, field, target, t);
+          row = outcome.row;
+          if (codec.id === rankfield.id && outcome.bytes) row.breakdown = await breakdown(outcome.bytes);
         }
         fieldRows.push(row);
         log(`${field.id} ${text} ${codec.id}: ${row.status}${row.ratio ? ` ratio ${row.ratio.toFixed(2)}` : ''}${row.encMBs ? ` enc ${row.encMBs.toFixed(2)} MB/s` : ''}${row.decMBs ? ` dec ${row.decMBs.toFixed(1)} MB/s` : ''}${row.reason ? ` (${row.reason})` : ''}`);

@@ -3,7 +3,7 @@ import { InvalidArgumentError, type Command } from 'commander';
 import { formatNpy } from '../io/npy.js';
 import { formatRaw } from '../io/raw.js';
 import { UsageError } from './errors.js';
-import { checkOutput, isUrl, openArchive, writeOutput } from './files.js';
+import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files.js';
 import { seconds } from './format.js';
 import { isNpyPath } from './input.js';
 import type { Context } from './main.js';
@@ -79,6 +79,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
       const start = performance.now();
       const npy = isNpyPath(flags.output);
       if (npy && flags.endian !== undefined) throw new UsageError(`--endian applies to raw output; '${flags.output}' is written as .npy (little-endian)`);
+      if (!isUrl(input)) await statInput(input);
       const io = { force: flags.force === true, inputs: isUrl(input) ? [] : [input] };
       await checkOutput(flags.output, io);
       const archive = await openArchive(input);

@@ -143,7 +143,7 @@ export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: numb
   const pointwise = isPointwise(spec.bound.mode) || tol === 0;
   const plan = pointwise ? null : planL2(src, spec, tol, fill);
   forEachTile(src, spec, (index, tile, m, n) => {
-    const t = prepareTile(tile, m, n, spec.dtype, fill, tol);
+    const t = plan?.kept(index) ?? prepareTile(tile, m, n, spec.dtype, fill, tol);
     let payload: Uint8Array;
     let res: ReturnType<typeof measure>;
     if (plan) ({ payload, res } = plan.encode(t, index));

@@ -28,6 +28,8 @@ interface Plan {
 /** The chosen plan, enforced tile by tile. */
 export interface L2Plan {
   name: string;
+  /** The tile prepared in the first pass, when the field was small enough to keep it. */
+  kept(index: number): PreparedTile | undefined;
   encode(t: PreparedTile, index: number): { payload: Uint8Array; res: ReturnType<typeof measure> };
 }
 
@@ -91,6 +93,7 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   const plan = best;
   return {
     name: plan.name,
+    kept: (index) => (keep ? kept[index] : undefined),
     encode(t, index) {
       const allotment = plan.allot(index);
       let payload = plan.one(t, index);

@@ -227,8 +227,14 @@ interface Correction {
   exceptions: number[];
 }
 
-/** Write a LowRank payload. */
-export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correction | null): Uint8Array {
+/** The fixed part and the raw (uncompressed) section contents of a LowRank payload. */
+interface LowRankParts {
+  head: Uint8Array;
+  /** Factor group, residual and exception sections, in payload order, before DEFLATE. */
+  raws: Uint8Array[];
+}
+
+function lowRankParts(t: PreparedTile, f: Factors | null, corr: Correction | null): LowRankParts {
   const { m, n } = t;
   const rank = f ? f.rank : 0;
   let flags = 0;
@@ -237,12 +243,13 @@ export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correct
   if (hasResidual) flags |= Flag.Residual;
   if (hasResidual && corr.lorenzo) flags |= Flag.Lorenzo;
   if (corr !== null && corr.exceptions.length > 0) flags |= Flag.Exceptions;
-  const w = new ByteWriter(1024);
+  const w = new ByteWriter(16 + t.maskSection.length);
   w.u8(Method.LowRank);
   w.u8(flags);
   w.u16(rank);
   w.f64(t.center);
   if (flags & Flag.Mask) w.bytes(t.maskSection);
+  const raws: Uint8Array[] = [];
   if (f && rank > 0) {
     w.u8(1);
     w.u16(rank);
@@ -255,13 +262,13 @@ export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correct
       packInts(f.qu.subarray(k * m, k * m + m), g);
       packInts(f.qw.subarray(k * n, k * n + n), g);
     }
-    writeSection(w, g.view8());
+    raws.push(g.view8());
   } else w.u8(0);
   if (hasResidual && corr.q) {
     const sec = new ByteWriter(m * n + 16);
     sec.f64(corr.step);
     packInts(corr.q, sec);
-    writeSection(w, sec.view8());
+    raws.push(sec.view8());
   }
   if (corr !== null && corr.exceptions.length > 0) {
     const width = t.dtype === 'f32' ? 4 : 8;
@@ -270,9 +277,52 @@ export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correct
     sec.u32(corr.exceptions.length);
     for (const c of corr.exceptions) sec.u32(c);
     for (const c of corr.exceptions) sec.bytes(src.subarray(c * width, c * width + width));
-    writeSection(w, sec.view8());
+    raws.push(sec.view8());
   }
+  return { head: w.finish(), raws };
+}
+
+/** Write a LowRank payload. */
+export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correction | null): Uint8Array {
+  const { head, raws } = lowRankParts(t, f, corr);
+  const w = new ByteWriter(head.length + 256);
+  w.bytes(head);
+  for (const raw of raws) writeSection(w, raw);
   return w.finish();
+}
+
+// Scratch histogram for estimates (reused: no allocation per call).
+const HIST = new Uint32Array(256);
+// -log2(k / n) is computed from log2 of counts, looked up for small counts.
+const LOG2 = new Float64Array(4097).map((_, k) => (k === 0 ? 0 : Math.log2(k)));
+
+/**
+ * A quick stand-in for the DEFLATE size of `raw`: its order-0 entropy plus
+ * section framing and a code-table allowance. Used only to rank candidates;
+ * the finalists are compressed for real.
+ */
+export function estimateSection(raw: Uint8Array): number {
+  HIST.fill(0);
+  for (let i = 0; i < raw.length; i++) HIST[raw[i]]++;
+  const total = raw.length;
+  const lt = Math.log2(total || 1);
+  let bits = 0;
+  let symbols = 0;
+  for (let v = 0; v < 256; v++) {
+    const c = HIST[v];
+    if (c === 0) continue;
+    symbols++;
+    bits += c * (lt - (c <= 4096 ? LOG2[c] : Math.log2(c)));
+  }
+  return 8 + 6 + Math.ceil(bits / 8) + Math.ceil(symbols * 0.6);
+}
+
+/** Estimated size of a LowRank payload (see {@link estimateSection}). */
+function lowRankEstimate(t: PreparedTile, f: Factors | null, corr: Correction | null): number {
+  const { head, raws } = lowRankParts(t, f, corr);
+  let size = head.length;
+  for (const raw of raws) size += estimateSection(raw);
+  return size;
 }
 
 /** A copy of q whose missing cells hold their 2-D Lorenzo prediction, in raster order. */
@@ -292,10 +342,13 @@ function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: number): 
   return out;
 }
 
-/** Sum of log2(1 + |v|): a cheap stand-in for coded size, to pick a predictor. */
+/** Sum of bit lengths of |v|: a cheap stand-in for coded size, to pick a predictor. */
 function roughBits(v: Int32Array): number {
   let s = 0;
-  for (let i = 0; i < v.length; i++) s += Math.log2(1 + Math.abs(v[i]));
+  for (let i = 0; i < v.length; i++) {
+    const a = v[i] < 0 ? -v[i] : v[i];
+    s += 32 - Math.clz32(a);
+  }
   return s;
 }
 
@@ -359,15 +412,31 @@ export const FACTOR_NOISE = 0.25;
  * 0.. and the exact method.
  */
 export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
-  let best = exactPayload(t);
+  const exact = exactPayload(t);
   if (t.valid === 0) {
     const p = lowRankPayload(t, null, null);
-    return p.length < best.length ? p : best;
+    return p.length < exact.length ? p : exact;
   }
-  if (!t.finite) return best;
-  const p0 = lowRankPayload(t, null, correct(t, null, e));
-  if (p0.length < best.length) best = p0;
-  if (!(e > 0)) return best;
+  if (!t.finite) return exact;
+  // Candidates are ranked by estimated size; the best few are compressed for real.
+  const candidates: { f: Factors | null; corr: Correction; est: number }[] = [];
+  const corr0 = correct(t, null, e);
+  candidates.push({ f: null, corr: corr0, est: lowRankEstimate(t, null, corr0) });
+  if (e > 0) searchRanks(t, e, candidates);
+  candidates.sort((a, b) => a.est - b.est);
+  let best = exact;
+  for (const c of candidates.slice(0, FINALISTS)) {
+    const p = lowRankPayload(t, c.f, c.corr);
+    if (p.length < best.length) best = p;
+  }
+  return best;
+}
+
+/** Candidates compressed for real after ranking by estimate. */
+const FINALISTS = 2;
+
+/** Add rank 1, 2, ... candidates until the estimates stop falling. */
+function searchRanks(t: PreparedTile, e: number, out: { f: Factors | null; corr: Correction; est: number }[]): void {
   let s = ensureSvd(t, PARTIAL_RANK);
   const { m, n } = t;
   const tol = s.s[0] * 1e-13;
@@ -378,7 +447,7 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   };
   let numRank = numericalRank();
   let worse = 0;
-  let prev = p0.length;
+  let prev = out[0].est;
   // Energy of the kept ranks relative to s[0]^2, so huge values cannot overflow it.
   let energy = 0;
   let done = 0;
@@ -395,13 +464,13 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
     const du = (FACTOR_NOISE * e * Math.sqrt(12 * n)) / (s0 * Math.sqrt(energy));
     const f = quantizeFactors(t, r, du, dw);
     if (!f) break;
-    const p = lowRankPayload(t, f, correct(t, f, e));
-    if (p.length < best.length) best = p;
-    worse = p.length >= prev ? worse + 1 : 0;
-    prev = p.length;
+    const corr = correct(t, f, e);
+    const est = lowRankEstimate(t, f, corr);
+    out.push({ f, corr, est });
+    worse = est >= prev ? worse + 1 : 0;
+    prev = est;
     if (worse >= 2) break;
   }
-  return best;
 }
 
 /** A rank-r payload with no residual (L2 modes), or the exact one if smaller. */

@@ -6,47 +6,62 @@
 import { buildSeeds, type Seed } from './corpus.js';
 import { runCase, type Outcome } from './harness.js';
 import { parse, type Model } from './model.js';
-import { mutate } from './mutate.js';
+import { mutate, type Expectation } from './mutate.js';
+import { open } from '../../src/archive.js';
 import { Rng } from './rng.js';
 
-/** Seeds, parsed once. */
+/** Seeds, parsed once, with their decoded values. */
 export interface Corpus {
   seeds: Seed[];
   models: Model[];
+  values: Map<string, Uint8Array>[];
 }
 
-export function corpus(): Corpus {
+export async function corpus(): Promise<Corpus> {
   const seeds = buildSeeds();
-  return { seeds, models: seeds.map((s) => parse(s.bytes)) };
+  const values: Map<string, Uint8Array>[] = [];
+  for (const s of seeds) {
+    const a = await open(s.bytes);
+    const v = new Map<string, Uint8Array>();
+    for (const name of a.names) {
+      const got = (await a.read(name)).values;
+      v.set(name, new Uint8Array(got.buffer.slice(got.byteOffset, got.byteOffset + got.byteLength)));
+    }
+    if (!(await a.check()).ok) throw new Error(`seed ${s.name} does not check clean`);
+    values.push(v);
+  }
+  return { seeds, models: seeds.map((s) => parse(s.bytes)), values };
 }
 
 /** One case, made and run. */
 export interface CaseResult extends Outcome {
   index: number;
+  expect: Expectation;
   seed: string;
   ops: string[];
   bytes: Uint8Array;
 }
 
 /** Make case `i` of run `seed` (no running). */
-export function makeCase(c: Corpus, seed: number, i: number): { rng: Rng; seedName: string; bytes: Uint8Array; ops: string[] } {
+export function makeCase(c: Corpus, seed: number, i: number): { rng: Rng; k: number; bytes: Uint8Array; ops: string[]; expect: Expectation } {
   const rng = new Rng(seed, i);
   const k = rng.int(c.seeds.length);
   const others = c.seeds.filter((_, j) => j !== k).map((s) => s.bytes);
-  const { bytes, ops } = mutate(c.models[k], others, rng);
-  return { rng, seedName: c.seeds[k].name, bytes, ops };
+  const { bytes, ops, expect } = mutate(c.models[k], others, rng);
+  return { rng, k, bytes, ops, expect };
 }
 
 export async function runOne(c: Corpus, seed: number, i: number): Promise<CaseResult> {
-  const { rng, seedName, bytes, ops } = makeCase(c, seed, i);
-  const outcome = await runCase(bytes, rng);
-  return { ...outcome, index: i, seed: seedName, ops, bytes };
+  const { rng, k, bytes, ops, expect } = makeCase(c, seed, i);
+  const outcome = await runCase(bytes, rng, 'fuzz-case', { expect, values: c.values[k] });
+  return { ...outcome, index: i, seed: c.seeds[k].name, ops, bytes, expect };
 }
 
 /** Running totals of a fuzz run. */
 export class Tally {
   cases = 0;
   results = new Map<string, number>();
+  expectations = new Map<string, number>();
   findings: { index: number; seed: string; ops: string[]; finding: string }[] = [];
   slowest: { index: number; ms: number; seed: string; ops: string[] } = { index: -1, ms: 0, seed: '', ops: [] };
   over1s = 0;
@@ -56,6 +71,7 @@ export class Tally {
 
   add(r: CaseResult): void {
     this.cases++;
+    this.expectations.set(r.expect, (this.expectations.get(r.expect) ?? 0) + 1);
     this.results.set(`${r.stage} ${r.result}`, (this.results.get(`${r.stage} ${r.result}`) ?? 0) + 1);
     for (const finding of r.findings) this.findings.push({ index: r.index, seed: r.seed, ops: r.ops, finding });
     if (r.ms > this.slowest.ms) this.slowest = { index: r.index, ms: r.ms, seed: r.seed, ops: r.ops };
@@ -72,6 +88,7 @@ export class Tally {
       `cases ${this.cases}, findings ${this.findings.length}, cases over 1 s ${this.over1s}`,
       `slowest case ${this.slowest.index} (${this.slowest.ms.toFixed(1)} ms, seed ${this.slowest.seed}: ${this.slowest.ops.join('; ')})`,
       `mean ${(this.totalMs / Math.max(1, this.cases)).toFixed(2)} ms per case, largest declared decode work ${this.maxWork}, peak heap+buffers ${(this.peakMemory / 2 ** 20).toFixed(0)} MiB`,
+      `cases that must read back unchanged ${this.expectations.get('same') ?? 0}, that must be refused ${this.expectations.get('refuse') ?? 0}`,
       'outcomes (stage result):',
       ...lines,
     ];

@@ -93,7 +93,20 @@ export function declaredWork(a: Archive): number {
   return w;
 }
 
-export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case'): Promise<Outcome> {
+/** What a case must do beyond the typed-error contract (see expectationOf in ./mutate.ts). */
+export interface Obligation {
+  expect: 'same' | 'refuse' | 'any';
+  /** The seed's decoded values per field name (compared bit for bit when expect is 'same'). */
+  values: Map<string, Uint8Array>;
+}
+
+function sameBytes(a: Uint8Array, b: Uint8Array): boolean {
+  if (a.length !== b.length) return false;
+  for (let i = 0; i < a.length; i++) if (a[i] !== b[i]) return false;
+  return true;
+}
+
+export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', duty?: Obligation): Promise<Outcome> {
   const t0 = performance.now();
   const out: Outcome = { result: 'ok', stage: 'done', findings: [], work: 0, memory: 0, ms: 0 };
   const sample = () => {
@@ -108,13 +121,18 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case'):
       out.stage = stage;
     }
   };
+  const finish = (): Outcome => {
+    out.ms = performance.now() - t0;
+    if (duty?.expect === 'refuse' && out.result === 'ok') out.findings.push('accepted: this mutation must be refused');
+    if (duty?.expect === 'same' && out.result !== 'ok') out.findings.push(`refused (${out.stage} ${out.result}): this mutation must read back unchanged`);
+    return out;
+  };
   let a: Archive;
   try {
     a = await open(new MemorySource(bytes, label));
   } catch (e) {
     caught(e, 'open');
-    out.ms = performance.now() - t0;
-    return out;
+    return finish();
   }
   sample();
   out.work = declaredWork(a);
@@ -131,7 +149,11 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case'):
   };
   for (const name of a.names) {
     try {
-      await a.read(name);
+      const got = await a.read(name);
+      const want = duty?.expect === 'same' ? duty.values.get(name) : undefined;
+      if (duty?.expect === 'same' && (want === undefined || !sameBytes(new Uint8Array(got.values.buffer, got.values.byteOffset, got.values.byteLength), want))) {
+        out.findings.push(`read: field '${name}' does not read back as the seed's (this mutation must not change values)`);
+      }
     } catch (e) {
       caught(e, 'read');
       if (e instanceof FormatError && e.code !== FormatCode.Limit) failed(name, e);
@@ -172,6 +194,5 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case'):
   } catch (e) {
     out.findings.push(`check: threw ${typedErrorProblem(e, label) ?? `${(e as Error).name}: ${(e as Error).message}`}`);
   }
-  out.ms = performance.now() - t0;
-  return out;
+  return finish();
 }

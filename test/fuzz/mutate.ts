@@ -111,17 +111,19 @@ function editValue(root: any, rng: Rng, what: string): string {
     if (typeof old === 'object' && old !== null && Object.getPrototypeOf(old) === Object.prototype) old[`extra_${rng.int(100)}`] = absurdValue(rng);
     else parent[key] = absurdValue(rng);
   } else if (op === 'duplicate key') {
-    if (Array.isArray(parent)) parent.push(old);
-    else {
-      const entries: [unknown, unknown][] = Object.entries(parent);
-      const i = entries.findIndex(([k]) => k === key);
-      entries.splice(i + 1, 0, [rng.chance(0.7) ? key : rng.pick([1, 0, -1, 1.5, null, true]), absurdValue(rng)]);
-      // Replace the map by one that repeats a key (or has a non-string key): only a RawMap can say that.
-      const grand = getAt(root, path.slice(0, -2));
-      const pkey = path[path.length - 2];
-      if (grand === undefined || pkey === undefined) return `${name}: no parent map to repeat a key in`;
-      grand[pkey] = new RawMap(entries);
+    if (Array.isArray(parent)) {
+      parent.push(old);
+      return `${name} copied to the end of its array`;
     }
+    const entries: [unknown, unknown][] = Object.entries(parent);
+    const i = entries.findIndex(([k]) => k === key);
+    entries.splice(i + 1, 0, [rng.chance(0.7) ? key : rng.pick([1, 0, -1, 1.5, null, true]), absurdValue(rng)]);
+    // Replace the map by one that repeats a key (or has a non-string key): only a RawMap can say that.
+    const grand = path.length >= 2 ? getAt(root, path.slice(0, -2)) : null;
+    const pkey = path[path.length - 2];
+    if (path.length === 1) return `${name}: top-level map left alone`;
+    grand[pkey] = new RawMap(entries);
+    return `${name} repeated key or non-string key in its map`;
   } else if (Array.isArray(old)) old.push(absurdValue(rng));
   else parent[key] = [old, old];
   return `${name} ${op}`;
@@ -368,9 +370,11 @@ function postIndex(m: Model, rng: Rng): string {
   } else if (which === 'alias' || which === 'alias other field') {
     const src = which === 'alias' ? ix : other;
     const k = which === 'alias' ? u : v;
+    const g = which === 'alias' ? f : fields.indexOf(other);
     ix.offset[t] = src.offset[k];
     ix.length[t] = src.length[k];
     ix.crc[t] = src.crc[k];
+    return g === f && k === t ? `index field ${f} tile ${t} aliased to itself` : `index field ${f} tile ${t} aliased to the payload of field ${g} tile ${k}`;
   } else if (which === 'shift') ix.offset[t] += rng.pick([-1, 1, -2, 2, 8]);
   else if (which === 'into header') ix.offset[t] = Math.max(0, ix.offset[n - 1] + ix.length[n - 1]);
   else if (which === 'crc of other') ix.crc[t] = ix.crc[u];
@@ -433,6 +437,39 @@ function fileBytes(b: Uint8Array, others: Uint8Array[], rng: Rng): { bytes: Uint
 export interface Mutated {
   bytes: Uint8Array;
   ops: string[];
+  /** 'same': must read back exactly as the seed; 'refuse': must be refused somewhere; 'any': either. */
+  expect: Expectation;
+}
+
+export type Expectation = 'same' | 'refuse' | 'any';
+
+/**
+ * What an operation obliges a reader to do, from its description: valid
+ * re-encodings (another DEFLATE stream, other MessagePack number widths,
+ * block order, an unreferenced gap, the reserved word) must not change what
+ * is read; stream bytes after the end, a repeated or non-string map key, a
+ * stale CRC, unknown versions and flags, a block with bytes after its value
+ * or cut short, a declared raw length that differs from the data, and two
+ * tiles sharing payload bytes must be refused.
+ */
+export function expectationOf(op: string): Expectation {
+  if (/^unchanged$|no section$|nothing to edit$|aliased to itself$|top-level map left alone$/.test(op)) return 'same';
+  if (/written as another valid stream$|msgpack widths$|^container (reserved|order|gap)$/.test(op)) return 'same';
+  if (/with bytes after its stream$|^container (version|flags|stale crc|tail version)$|msgpack (trailing|truncated)$|repeated key or non-string key|aliased to the payload of/.test(op)) return 'refuse';
+  const raw = /raw data \((\d+) bytes, declared (\d+)\)$/.exec(op);
+  if (raw && raw[1] !== raw[2]) return 'refuse';
+  return 'any';
+}
+
+/** The obligation of several operations together: all 'same' stay 'same', 'same' and 'refuse' refuse, anything else is free. */
+export function combine(ops: string[]): Expectation {
+  let e: Expectation = 'same';
+  for (const op of ops) {
+    const x = expectationOf(op);
+    if (x === 'any') return 'any';
+    if (x === 'refuse') e = 'refuse';
+  }
+  return e;
 }
 
 export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
@@ -519,5 +556,5 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
     }
   }
   if (ops.length === 0) ops.push('unchanged');
-  return { bytes, ops };
+  return { bytes, ops, expect: combine(ops) };
 }

@@ -1,7 +1,7 @@
 import { it } from 'vitest';
 import { corpus, runOne, Tally } from './fuzz.js';
 it('smoke', async () => {
-  const c = corpus();
+  const c = await corpus();
   const t = new Tally();
   const t0 = performance.now();
   for (let i = 0; i < 1500; i++) t.add(await runOne(c, 1, i));

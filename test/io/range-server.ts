@@ -1,0 +1,133 @@
+/**
+ * A small HTTP file server on 127.0.0.1 for the tests: single byte ranges
+ * as RFC 9110 section 14 describes them (206 with Content-Range, 416 beyond
+ * the end), ETag and Last-Modified, and a count of the body bytes it sends.
+ * A `misbehave` hook lets a test make it answer the way faulty servers do.
+ */
+import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
+import type { AddressInfo } from 'node:net';
+import { readFileSync } from 'node:fs';
+import { extname } from 'node:path';
+
+/** What a request asked for, as the server parsed it. */
+export interface Asked {
+  method: string;
+  path: string;
+  /** [start, end] inclusive, or null for the whole file. */
+  range: [number, number] | null;
+  /** Requests served so far, this one included. */
+  count: number;
+}
+
+/**
+ * A faulty behaviour: return true when the hook answered the request
+ * itself, false to let the server answer normally.
+ */
+export type Misbehave = (asked: Asked, req: IncomingMessage, res: ServerResponse, body: Uint8Array) => boolean;
+
+export interface RangeServer {
+  /** Base URL, e.g. http://127.0.0.1:PORT */
+  url: string;
+  /** Serve bytes (or a file from disk, read at each request) at a path such as '/a.rfz'. */
+  put(path: string, content: Uint8Array | { file: string }): void;
+  /** Body bytes sent (all requests). */
+  bytesSent: number;
+  /** Requests received. */
+  requests: number;
+  /** Every request, in order. */
+  log: Asked[];
+  /** Set or clear the faulty behaviour. */
+  misbehave: Misbehave | null;
+  /** Zero the counters and the log. */
+  reset(): void;
+  close(): Promise<void>;
+}
+
+const TYPES: Record<string, string> = {
+  '.js': 'text/javascript',
+  '.mjs': 'text/javascript',
+  '.html': 'text/html; charset=utf-8',
+  '.json': 'application/json',
+};
+
+/** Parse a single-range `bytes=a-b`, `bytes=a-` or `bytes=-n` header against a size; null when unusable. */
+function parseRange(header: string | undefined, size: number): [number, number] | 'unsatisfiable' | null {
+  if (header === undefined) return null;
+  const m = /^bytes=(\d*)-(\d*)$/.exec(header.trim());
+  if (!m || (m[1] === '' && m[2] === '')) return null;
+  if (m[1] === '') {
+    const n = Number(m[2]);
+    if (n === 0) return 'unsatisfiable';
+    return [Math.max(0, size - n), size - 1];
+  }
+  const start = Number(m[1]);
+  const end = m[2] === '' ? size - 1 : Math.min(Number(m[2]), size - 1);
+  if (start >= size || start > end) return 'unsatisfiable';
+  return [start, end];
+}
+
+/** Start a server on 127.0.0.1 with an OS-chosen port. */
+export async function startRangeServer(): Promise<RangeServer> {
+  const files = new Map<string, Uint8Array | { file: string }>();
+  const state: RangeServer = {
+    url: '',
+    bytesSent: 0,
+    requests: 0,
+    log: [],
+    misbehave: null,
+    put: (path, content) => void files.set(path, content),
+    reset() {
+      state.bytesSent = 0;
+      state.requests = 0;
+      state.log = [];
+    },
+    close: async () => {
+      server.closeAllConnections();
+      await new Promise<void>((resolve) => server.close(() => resolve()));
+    },
+  };
+  const send = (res: ServerResponse, body: Uint8Array) => {
+    state.bytesSent += body.length;
+    res.end(body);
+  };
+  const server = createServer((req, res) => {
+    state.requests++;
+    const path = decodeURIComponent(new URL(req.url ?? '/', 'http://x').pathname);
+    const entry = files.get(path);
+    if (entry === undefined) {
+      res.writeHead(404, { 'Content-Type': 'text/plain' });
+      res.end('not found');
+      return;
+    }
+    const body = entry instanceof Uint8Array ? entry : new Uint8Array(readFileSync(entry.file));
+    const parsed = parseRange(req.headers.range, body.length);
+    const asked: Asked = { method: req.method ?? 'GET', path, range: parsed === null || parsed === 'unsatisfiable' ? null : parsed, count: state.requests };
+    state.log.push(asked);
+    if (state.misbehave?.(asked, req, res, body)) return;
+    const common = {
+      'Accept-Ranges': 'bytes',
+      'Content-Type': TYPES[extname(path)] ?? 'application/octet-stream',
+      ETag: `"${body.length.toString(16)}-${entry instanceof Uint8Array ? 'mem' : 'file'}"`,
+      'Last-Modified': 'Tue, 01 Dec 2026 12:00:00 GMT',
+      'Cache-Control': 'no-store',
+    };
+    if (parsed === 'unsatisfiable') {
+      res.writeHead(416, { ...common, 'Content-Range': `bytes */${body.length}` });
+      res.end();
+      return;
+    }
+    if (parsed === null) {
+      res.writeHead(200, { ...common, 'Content-Length': String(body.length) });
+      if (req.method === 'HEAD') res.end();
+      else send(res, body);
+      return;
+    }
+    const [a, b] = parsed;
+    res.writeHead(206, { ...common, 'Content-Length': String(b - a + 1), 'Content-Range': `bytes ${a}-${b}/${body.length}` });
+    if (req.method === 'HEAD') res.end();
+    else send(res, body.subarray(a, b + 1));
+  });
+  await new Promise<void>((resolve) => server.listen(0, '127.0.0.1', () => resolve()));
+  state.url = `http://127.0.0.1:${(server.address() as AddressInfo).port}`;
+  return state;
+}
