@@ -1,5 +1,6 @@
 /** Writing archives: {@link pack} one field to bytes, or build a many-field archive with {@link ArchiveBuilder}. */
 import { checkBound, parseBound } from './codec/bound.js';
+import { chooseTile } from './codec/auto-tile.js';
 import { encodeField, memoryBands, type BandSource, type FieldSpec } from './codec/field.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, MemorySink, VERSION, type Sink } from './format/container.js';
@@ -11,8 +12,12 @@ import { VERSION_STRING } from './version.js';
 export interface PackOptions {
   /** The error bound, as `{ mode, value }` or text such as `'rel:1e-3'`. */
   bound: Bound | string;
-  /** Tile size: [rows, cols], or one number for square tiles. Default 64x64. */
-  tile?: number | [number, number];
+  /**
+   * Tile size: [rows, cols], or one number for square tiles. Default 64x64.
+   * 'auto' tries 64, 128 and 256 square tiles and the whole field (when it
+   * fits in one tile) on a sample and keeps the one that packs smallest.
+   */
+  tile?: number | [number, number] | 'auto';
   /** A fill value marking missing cells (restored bit for bit, excluded from the bound). */
   fill?: number | null;
   /** Field name; default 'field'. */
@@ -42,7 +47,11 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   const want = dtype === 'f32' ? Float32Array : Float64Array;
   const data = !withValues || values instanceof want ? (values as FloatArray) : want.from(values);
   const tile = o.tile ?? 64;
-  const [tr, tc] = typeof tile === 'number' ? [tile, tile] : tile;
+  const auto = tile === 'auto';
+  if (!auto && typeof tile !== 'number' && !(Array.isArray(tile) && tile.length === 2)) {
+    throw new InputError(InputCode.Option, `tile must be a number, [rows, cols] or 'auto', got ${JSON.stringify(tile)}`);
+  }
+  const [tr, tc] = auto ? [64, 64] : typeof tile === 'number' ? [tile, tile] : tile;
   for (const t of [tr, tc]) {
     if (!Number.isInteger(t) || t < 1 || t > MAX_TILE_SIDE) {
       throw new InputError(InputCode.Option, `tile sides must be integers in 1..${MAX_TILE_SIDE}, got ${JSON.stringify(tile)}`);
@@ -56,7 +65,7 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   if (typeof name !== 'string' || name.length === 0 || name.length > 1024) throw new InputError(InputCode.Option, 'field name must be a non-empty string');
   const problem = o.attrs === undefined ? null : attrsProblem(o.attrs);
   if (problem) throw new InputError(InputCode.Option, `field '${name}': ${problem}`);
-  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill }, data };
+  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto }, data };
 }
 
 /** Builds an archive field by field into a sink. */
@@ -97,6 +106,7 @@ export class ArchiveBuilder {
   }
 
   private encode(src: BandSource, spec: FieldSpec, o: PackOptions): FieldHeader {
+    if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, spec);
     if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
     const ix: FieldIndex = { offset: [], length: [], crc: [], method: [], rank: [], valid: [], max_err: [], rmse: [], value_crc: [], summary: { valid: 0, max_err: 0, rmse: 0 } };
     const result = encodeField(src, spec, (_t, tile) => {

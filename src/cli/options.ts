@@ -22,7 +22,8 @@ export function boundOption(text: string): Bound {
 }
 
 /** `--tile RxC` or `--tile N` (square): positive integers up to {@link MAX_TILE_SIDE}. */
-export function tileOption(text: string): [number, number] {
+export function tileOption(text: string): [number, number] | 'auto' {
+  if (text === 'auto') return 'auto';
   const parts = text.split('x');
   if (parts.length > 2 || !parts.every((p) => /^[0-9]+$/.test(p))) {
     throw new InvalidArgumentError(`tile must be RxC or one number (e.g. 64x64 or 64), got '${text}'`);

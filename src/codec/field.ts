@@ -22,6 +22,8 @@ export interface FieldSpec {
   tileCols: number;
   bound: Bound;
   fill: number | null;
+  /** Choose the tile shape by trial (see auto-tile.ts); tileRows/tileCols are then replaced. */
+  autoTile?: boolean;
 }
 
 /** Per-tile facts recorded in the index. */
