@@ -18,6 +18,8 @@ export interface Series {
   dashed?: boolean;
   /** Connect the points in order of x (default), of y, or not at all. */
   connect?: 'x' | 'y' | 'none';
+  /** Optional group of each point: lines join only points of the same group. */
+  groups?: number[];
 }
 
 /** A vertical reference line across the plot (e.g. a lossless method, which has no finite y). */
@@ -152,6 +154,20 @@ export class Canvas {
   }
 }
 
+/** Break text at spaces into lines of at most `width` characters. */
+export function wrap(text: string, width: number): string[] {
+  const lines: string[] = [];
+  let line = '';
+  for (const word of text.split(' ')) {
+    if (line && line.length + 1 + word.length > width) {
+      lines.push(line);
+      line = word;
+    } else line = line ? `${line} ${word}` : word;
+  }
+  if (line) lines.push(line);
+  return lines;
+}
+
 /** Round to 1, 2 or 5 times a power of ten. */
 function nice(v: number): number {
   const p = 10 ** Math.floor(Math.log10(v));
@@ -215,7 +231,7 @@ export function renderPlot(spec: PlotSpec): Uint8Array {
   const H = spec.height ?? 620;
   const c = new Canvas(W, H);
   const legendW = 320;
-  const box = { x0: 96, y0: 56, x1: W - legendW - 20, y1: H - 84 };
+  const box = { x0: 96, y0: 56, x1: W - legendW - 20, y1: H - 100 };
   const xs = spec.series.flatMap((s) => s.points.map((p) => p[0])).concat((spec.vlines ?? []).map((v) => v.x));
   const ys = spec.series.flatMap((s) => s.points.map((p) => p[1]));
   const [xlo, xhi] = limits(xs, spec.x);
@@ -250,7 +266,10 @@ export function renderPlot(spec: PlotSpec): Uint8Array {
   c.line(box.x1, box.y0, box.x1, box.y1, BLACK);
   const xl = spec.x.label + (spec.x.log ? ' (log scale)' : '');
   c.text((box.x0 + box.x1 - Canvas.textWidth(xl, 2)) / 2, box.y1 + 38, xl, BLACK, 2);
-  if (spec.note) c.text(box.x0, H - 18, spec.note, [90, 90, 90], 1);
+  if (spec.note) {
+    const lines = wrap(spec.note, Math.floor((W - box.x0 - 8) / (Canvas.textWidth('x', 1) + 1)));
+    lines.forEach((line, k) => c.text(box.x0, H - 12 - 11 * (lines.length - k), line, [90, 90, 90], 1));
+  }
   const yl = spec.y.label + (spec.y.log ? ' (log scale)' : '');
   c.text(18, (box.y0 + box.y1 + Canvas.textWidth(yl, 2)) / 2, yl, BLACK, 2, true);
 
@@ -262,9 +281,17 @@ export function renderPlot(spec: PlotSpec): Uint8Array {
   }
   for (const s of spec.series) {
     const by = s.connect === 'y' ? 1 : 0;
-    const pts = s.points.filter(([x, y]) => Number.isFinite(x) && Number.isFinite(y) && (!spec.x.log || x > 0) && (!spec.y.log || y > 0)).sort((a, b) => a[by] - b[by]);
-    if (s.connect !== 'none') for (let i = 1; i < pts.length; i++) c.line(tx(pts[i - 1][0]), ty(pts[i - 1][1]), tx(pts[i][0]), ty(pts[i][1]), s.color, 2, s.dashed ? 6 : 0);
-    for (const [x, y] of pts) c.marker(tx(x), ty(y), s.marker ?? 'square', s.color);
+    const pts = s.points
+      .map(([x, y], i) => ({ x, y, g: s.groups?.[i] ?? 0 }))
+      .filter(({ x, y }) => Number.isFinite(x) && Number.isFinite(y) && (!spec.x.log || x > 0) && (!spec.y.log || y > 0))
+      .sort((a, b) => (by ? a.y - b.y : a.x - b.x));
+    if (s.connect !== 'none') {
+      for (const g of new Set(pts.map((p) => p.g))) {
+        const run = pts.filter((p) => p.g === g);
+        for (let i = 1; i < run.length; i++) c.line(tx(run[i - 1].x), ty(run[i - 1].y), tx(run[i].x), ty(run[i].y), s.color, 2, s.dashed ? 6 : 0);
+      }
+    }
+    for (const p of pts) c.marker(tx(p.x), ty(p.y), s.marker ?? 'square', s.color);
   }
   c.clip = [0, 0, W - 1, H - 1];
 

@@ -7,17 +7,17 @@ import { mkdirSync, writeFileSync } from 'node:fs';
 import os from 'node:os';
 import { join } from 'node:path';
 import { isPointwise, parseBound, resolveBound } from '../src/index.js';
-import { BaselineFailure } from './baselines/bytes.js';
+import { FLOOR_ID, finish, floorRow, runCodec } from './cells.js';
 import type { Codec } from './baselines/codec.js';
 import { columnSubset } from './baselines/column-subset.js';
 import { deflateRaw } from './baselines/deflate.js';
 import { globalSvd } from './baselines/global-svd.js';
 import { lorenzo } from './baselines/lorenzo.js';
 import { prepare } from './baselines/missing.js';
-import { oracleValues, tileSpectra, type TileSpectrum } from './baselines/oracle.js';
+import { tileSpectra, type TileSpectrum } from './baselines/oracle.js';
 import { quantize } from './baselines/quantize.js';
 import { benchFields, type BenchField } from './fields.js';
-import { measure, meets, validRange, type Target } from './metrics.js';
+import { validRange, type Target } from './metrics.js';
 import { renderPlot, type Marker, type Rgb, type Series } from './plot.js';
 import { breakdown, rankfield, TILE } from './rankfield.js';
 import { renderResults, type FieldInfo, type Row } from './report.js';
@@ -27,7 +27,6 @@ export const BOUNDS = ['rel:1e-2', 'rel:1e-3', 'rel:1e-4', 'psnr:40', 'psnr:60',
 /** The bound of the speed targets. */
 const SPEED_BOUND = 'rel:1e-3';
 const CODECS: Codec[] = [rankfield, deflateRaw, quantize, lorenzo, globalSvd, columnSubset];
-const FLOOR_ID = 'eckart-young floor';
 
 interface Args {
   quick: boolean;
@@ -60,85 +59,6 @@ function log(text: string): void {
   console.error(`[${((performance.now() - t0) / 1000).toFixed(1).padStart(6)} s] ${text}`);
 }
 
-function describeError(e: unknown): string {
-  const err = e instanceof Error && !(e instanceof BaselineFailure) && e.cause instanceof Error ? e.cause : e;
-  if (err instanceof BaselineFailure) return err.message;
-  return `threw ${err instanceof Error ? `${err.name}: ${err.message}` : String(err)}`;
-}
-
-/** Encode (timed), decode (timed), check; also returns the encoded bytes when there are any. */
-async function runCodec(codec: Codec, field: BenchField, target: Target, timing: TimingOptions): Promise<{ row: Row; bytes: Uint8Array | null }> {
-  const base: Row = { field: field.id, bound: target.text, method: codec.id, status: 'ok' };
-  const skip = codec.skip?.(field, target) ?? null;
-  if (skip) return { row: { ...base, status: 'skipped', reason: skip }, bytes: null };
-  const mb = field.values.byteLength / 1e6;
-  let bytes: Uint8Array | null = null;
-  let decoded: Float32Array | null = null;
-  let enc;
-  try {
-    enc = await timeTask(() => {
-      bytes = codec.encode(field, target);
-    }, timing);
-  } catch (e) {
-    if (!(e instanceof BaselineFailure || (e instanceof Error && e.cause instanceof BaselineFailure))) console.error(e);
-    return { row: { ...base, status: 'failed', reason: `encode ${describeError(e)}` }, bytes: null };
-  }
-  const out = bytes as unknown as Uint8Array;
-  let dec;
-  try {
-    dec = await timeTask(async () => {
-      decoded = await codec.decode(out);
-    }, timing);
-  } catch (e) {
-    console.error(e);
-    return { row: { ...base, status: 'failed', reason: `decode ${describeError(e)}`, bytes: out.length }, bytes: out };
-  }
-  const row = finish(base, field, target, out, decoded as unknown as Float32Array, mb / (enc.medianMs / 1000), mb / (dec.medianMs / 1000), enc.runs, dec.runs);
-  return { row, bytes: out };
-}
-
-function finish(base: Row, field: BenchField, target: Target, bytes: Uint8Array, decoded: Float32Array, encMBs: number, decMBs: number, encRuns: number, decRuns: number): Row {
-  const errors = measure(field.values, decoded, field.fill, target.range);
-  const cells = field.rows * field.cols;
-  const row: Row = {
-    ...base,
-    bytes: bytes.length,
-    ratio: (cells * 4) / bytes.length,
-    bpv: (8 * bytes.length) / cells,
-    errors,
-    maxOverE: errors.maxErr / target.tol,
-    encMBs,
-    decMBs,
-    encRuns,
-    decRuns,
-  };
-  if (!meets(errors, target)) {
-    row.status = 'failed';
-    row.reason =
-      errors.mismatches > 0 ? `${errors.mismatches} missing cells not restored bit for bit`
-      : target.pointwise ? `max error ${errors.maxErr.toExponential(3)} > E = ${target.tol.toExponential(3)}`
-      : `RMSE ${errors.rmse.toExponential(3)} > ${target.tol.toExponential(3)}`;
-  }
-  return row;
-}
-
-function floorRow(field: BenchField, target: Target, spectra: TileSpectrum[], valid: number): Row {
-  const values = oracleValues(spectra, valid * target.tol * target.tol);
-  const bytes = 4 * values;
-  const cells = field.rows * field.cols;
-  return {
-    field: field.id,
-    bound: target.text,
-    method: FLOOR_ID,
-    status: 'floor',
-    floorValues: values,
-    bytes,
-    ratio: bytes > 0 ? (cells * 4) / bytes : Infinity,
-    bpv: (8 * bytes) / cells,
-    errors: { maxErr: NaN, rmse: target.tol, psnr: 20 * Math.log10(target.range / target.tol), valid, mismatches: 0 },
-  };
-}
-
 const STYLE: Record<string, { color: Rgb; marker: Marker; dashed?: boolean }> = {
   rankfield: { color: [210, 30, 30], marker: 'square' },
   quantize: { color: [40, 90, 210], marker: 'circle' },
@@ -152,7 +72,15 @@ function plotField(field: BenchField, rows: Row[], dir: string): string {
   const series: Series[] = [];
   for (const [id, style] of Object.entries(STYLE)) {
     const pts = rows.filter((r) => r.method === id && (r.status === 'ok' || r.status === 'floor') && r.bpv && r.errors && Number.isFinite(r.errors.psnr));
-    if (pts.length) series.push({ name: id, points: pts.map((r) => [r.bpv as number, (r.errors as { psnr: number }).psnr]), connect: 'y', ...style });
+    if (pts.length) {
+      series.push({
+        name: id,
+        points: pts.map((r) => [r.bpv as number, (r.errors as { psnr: number }).psnr]),
+        groups: pts.map((r) => (isPointwise(parseBound(r.bound).mode) ? 0 : 1)),
+        connect: 'y',
+        ...style,
+      });
+    }
   }
   const lossless = rows.find((r) => r.method === 'deflate' && r.status === 'ok');
   const png = renderPlot({
@@ -161,11 +89,15 @@ function plotField(field: BenchField, rows: Row[], dir: string): string {
     y: { label: 'PSNR (dB)' },
     series,
     vlines: lossless?.bpv ? [{ x: lossless.bpv, name: 'deflate (lossless)', color: [40, 40, 40] }] : [],
-    note: 'one point per bound met (rel 1e-2, 1e-3, 1e-4; psnr 40, 60, 80), joined in order of PSNR; failed and skipped rows are not drawn; the floor has no decoder',
+    note: 'one point per bound met; lines join a method\'s rel bounds (1e-2, 1e-3, 1e-4) and its psnr bounds (40, 60, 80) separately; failed or skipped rows are not drawn',
   });
   const file = join(dir, `rd-${field.id}.png`);
   writeFileSync(file, png);
   return file;
+}
+
+function loadavg(): string {
+  return os.loadavg().map((v) => v.toFixed(2)).join(' ');
 }
 
 function machine(): string[] {
@@ -175,7 +107,7 @@ function machine(): string[] {
     `${(os.totalmem() / 2 ** 30).toFixed(1)} GiB memory`,
     `${os.type()} ${os.release()} ${os.arch()}`,
     `Node ${process.version}`,
-    `load average at start ${os.loadavg().map((v) => v.toFixed(2)).join(' ')} (the machine is shared)`,
+    `load average at start ${loadavg()} (1, 5, 15 min; the machine is shared, so timings vary with other work)`,
   ];
 }
 
@@ -252,6 +184,7 @@ async function main(): Promise<void> {
     rows.push(...fieldRows);
     log(`plot ${plotField(field, fieldRows, args.out)}`);
   }
+  machineFacts.push(`load average at end ${loadavg()}`);
   const command = `npm run bench${process.argv.length > 2 ? ' -- ' + process.argv.slice(2).join(' ') : ''}`;
   const md = renderResults({
     command,

@@ -32,8 +32,9 @@ export function shrinkUntilMet(make: (scale: number) => Uint8Array, decode: (b: 
 
 /**
  * Largest pointwise error a quantizer may leave before the final rounding to
- * float32, so that |x - float32(x')| <= tol still holds: tol minus one float32
- * ulp at the largest magnitude (common practice, no source).
+ * float32, so that |x - float32(x')| <= tol still holds: tol minus one to two
+ * float32 ulps at the largest magnitude (rounding to float32 moves a value by
+ * at most half an ulp; common practice, no source).
  */
 export function pointwiseBudget(tol: number, amax: number): number {
   const ulp = 2 ** (Math.ceil(Math.log2(amax + tol + Number.MIN_VALUE)) - 23);

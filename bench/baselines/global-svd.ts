@@ -22,9 +22,10 @@ import { prepare, readMissing, writeMissing } from './missing.js';
 /** Cost above which a full SVD is skipped: m * n * min(m, n) (about a few seconds here). */
 export const SVD_COST_LIMIT = 5e8;
 
-export function svdSkip(rows: number, cols: number): string | null {
+/** A reason to skip a whole-field O(m n min(m, n)) method on a large field, or null. */
+export function svdSkip(rows: number, cols: number, what = 'a full SVD'): string | null {
   const cost = rows * cols * Math.min(rows, cols);
-  return cost > SVD_COST_LIMIT ? `skipped: a full SVD of ${rows}x${cols} costs ~${(cost / SVD_COST_LIMIT).toFixed(0)}x the ${SVD_COST_LIMIT.toExponential(0)} flop-scale limit of this run` : null;
+  return cost > SVD_COST_LIMIT ? `too slow here: ${what} of ${rows}x${cols} costs m n min(m, n) = ${cost.toExponential(1)}, over this run's limit of ${SVD_COST_LIMIT.toExponential(0)}` : null;
 }
 
 function deflatedSize(raw: Uint8Array): number {

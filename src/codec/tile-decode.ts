@@ -4,6 +4,7 @@
  */
 import { FormatCode, FormatError } from '../errors.js';
 import { ByteReader } from '../format/bytes.js';
+import { printable } from '../format/schema.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
 import { Flag, KNOWN_FLAGS, Method } from './payload.js';
@@ -32,7 +33,9 @@ function malformed(where: string, what: string): FormatError {
 }
 
 /** Decode a payload; throws {@link FormatError} on anything malformed. */
-export function decodeTile(payload: Uint8Array, ctx: TileContext): FloatArray {
+export function decodeTile(payload: Uint8Array, given: TileContext): FloatArray {
+  // The caller's label may hold a field name from the file: keep messages on one line.
+  const ctx = { ...given, where: printable(given.where) };
   const r = ctx.offset === undefined ? new ByteReader(payload, ctx.where, 0, 'payload offset') : new ByteReader(payload, ctx.where, ctx.offset, 'file offset');
   const method = r.u8('method');
   let out: FloatArray;
@@ -109,31 +112,28 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (rank > 0) readFactors(r, ctx, rank, l, w);
   else if (r.u8('group count') !== 0) throw malformed(where, `rank 0 with factor groups (group count at ${r.unit} ${r.offset - 1})`);
 
-  const acc = new Float64Array(cells);
-  lowRank(l, w, m, n, rank, center, acc);
-
+  // Every section is read and checked before the arithmetic, so a malformed late part costs no multiply-adds.
+  let step = 0;
+  let q: Int32Array | null = null;
   if (flags & Flag.Residual) {
     const sec = readSection(r, 'residual', 8 + 1 + 4 * cells, false);
     const sr = new ByteReader(sec, `${where} residual`, 0, 'raw offset');
-    const step = sr.f64('step');
+    step = sr.f64('step');
     if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} is not a positive finite number`);
-    const q = new Int32Array(cells);
+    q = new Int32Array(cells);
     unpackInts(sr, q, 'residual');
     if (sr.remaining !== 0) throw malformed(where, `residual section has ${sr.remaining} bytes after its values`);
     if (flags & Flag.Lorenzo && !unpredict(q, m, n, MAX_INT)) throw malformed(where, 'residual exceeds 2^30 after prediction');
-    addResidual(acc, q, step);
   }
 
-  const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  roundTo(acc, out);
-
+  let cellsAt = new Uint32Array(0);
+  let vals: Uint8Array = new Uint8Array(0);
   if (flags & Flag.Exceptions) {
     const sec = readSection(r, 'exceptions', 4 + cells * (4 + width), false);
     const er = new ByteReader(sec, `${where} exceptions`, 0, 'raw offset');
     const count = er.u32('exception count');
     if (count > cells) throw malformed(where, `${count} exceptions in a tile of ${cells} cells`);
-    const bytes = new Uint8Array(out.buffer);
-    const cellsAt = new Uint32Array(count);
+    cellsAt = new Uint32Array(count);
     let prev = -1;
     for (let e = 0; e < count; e++) {
       const c = er.u32('exception cell');
@@ -142,17 +142,26 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
       cellsAt[e] = c;
       prev = c;
     }
-    const vals = er.bytesView(count * width, 'exception values');
-    const words = new Uint32Array(out.buffer);
-    for (let e = 0; e < count; e++) {
-      const c = cellsAt[e];
-      bytes.set(vals.subarray(e * width, e * width + width), c * width);
-      // An exception holds an original valid value, which is never the fill value.
-      if (ctx.fill !== null && words[c * (width / 4)] === ctx.fill[0] && (width === 4 || words[2 * c + 1] === ctx.fill[1])) {
-        throw malformed(where, `exception ${e} at ${cellName(c, n)} holds the fill value`);
-      }
-    }
+    vals = er.bytesView(count * width, 'exception values');
     if (er.remaining !== 0) throw malformed(where, `exception section has ${er.remaining} bytes after its values`);
+  }
+  if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
+
+  const acc = new Float64Array(cells);
+  lowRank(l, w, m, n, rank, center, acc);
+  if (q !== null) addResidual(acc, q, step);
+  const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
+  roundTo(acc, out);
+
+  const bytes = new Uint8Array(out.buffer);
+  const words = new Uint32Array(out.buffer);
+  for (let e = 0; e < cellsAt.length; e++) {
+    const c = cellsAt[e];
+    bytes.set(vals.subarray(e * width, e * width + width), c * width);
+    // An exception holds an original valid value, which is never the fill value.
+    if (ctx.fill !== null && words[c * (width / 4)] === ctx.fill[0] && (width === 4 || words[2 * c + 1] === ctx.fill[1])) {
+      throw malformed(where, `exception ${e} at ${cellName(c, n)} holds the fill value`);
+    }
   }
 
   // A valid cell must decode to a finite value; anything else is a damaged or hostile payload.

@@ -290,7 +290,7 @@ export async function readContainer(src: ByteSource, given?: Partial<Limits>): P
   const tail = new ByteReader(await src.read(size - TAIL_SIZE, TAIL_SIZE), `${label} tail`, size - TAIL_SIZE, 'file offset');
   const tailBytes = tail.bytes;
   if (!same(tailBytes.subarray(40), TAIL_MAGIC)) {
-    throw new FormatError(FormatCode.Truncated, `${label}: no archive tail at the end of the file (offset ${size - 8}; truncated or not a rankfield archive)`);
+    throw new FormatError(FormatCode.Truncated, `${label}: no archive tail at the end of the file (truncated or not a rankfield archive: bytes ${size - 8}..${size} are not the tail magic)`);
   }
   if (crc32(tailBytes.subarray(0, 36)) !== new DataView(tailBytes.buffer, tailBytes.byteOffset + 36, 4).getUint32(0, true)) {
     throw new FormatError(FormatCode.Checksum, `${label}: tail CRC-32 mismatch at offset ${size - TAIL_SIZE}`);

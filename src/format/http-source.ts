@@ -25,7 +25,7 @@ export interface HttpSourceOptions {
   retries?: number;
   /** Wait before the first retry in milliseconds, doubled for each further one. Default 250. */
   retryDelay?: number;
-  /** Time limit of one request, body included, in milliseconds. Default 30000. */
+  /** Longest wait in milliseconds for an answer, or for more of its body, before the attempt counts as failed. Default 30000. */
   timeout?: number;
   /**
    * Largest file held in memory when the server ignores Range requests and
@@ -86,6 +86,8 @@ export class HttpSource implements ByteSource {
   private remote: Promise<Remote> | null = null;
   /** The whole file, when the server ignores Range and the file is small. */
   private whole: Uint8Array | null = null;
+  /** Per response in flight: restarts its time limit when body bytes arrive. */
+  private readonly progress = new WeakMap<Response, () => void>();
 
   constructor(url: string | URL, options: HttpSourceOptions = {}) {
     const text = String(url);
@@ -102,7 +104,8 @@ export class HttpSource implements ByteSource {
     this.label = options.label ?? text;
     const f = options.fetch ?? (globalThis.fetch as typeof fetch | undefined);
     if (typeof f !== 'function') throw new InputError(InputCode.Option, `${this.label}: this runtime has no fetch; pass options.fetch`);
-    this.fetcher = f;
+    // Called as a plain function: browsers refuse a fetch invoked with another `this`.
+    this.fetcher = (input, init) => f.call(globalThis, input, init);
     this.headers = { ...options.headers };
     const count = (v: number | undefined, dflt: number, what: string): number => {
       const x = v ?? dflt;
@@ -158,11 +161,20 @@ export class HttpSource implements ByteSource {
     throw new InputError(InputCode.File, `cannot ${what} '${this.label}': ${describe(last)} (gave up after ${tries} attempt${tries === 1 ? '' : 's'})`);
   }
 
-  /** One request, with the time limit applied to the answer and its body. */
+  /**
+   * One request. The time limit applies to the wait for the answer and to
+   * every wait for more of its body (so a long read that keeps coming is not
+   * cut off, but one that stalls is).
+   */
   private async request(method: 'GET', range: string, use: (r: Response) => Promise<unknown>): Promise<void> {
     const controller = typeof AbortController === 'function' ? new AbortController() : null;
     let timedOut = false;
-    const timer = this.timeout > 0 && controller ? setTimeout(() => ((timedOut = true), controller.abort()), this.timeout) : null;
+    let timer: ReturnType<typeof setTimeout> | null = null;
+    const arm = () => {
+      if (timer !== null) clearTimeout(timer);
+      if (this.timeout > 0 && controller) timer = setTimeout(() => ((timedOut = true), controller.abort()), this.timeout);
+    };
+    arm();
     const headers: Record<string, string> = { ...this.headers };
     // Range offsets count the bytes as stored; a compressed transfer would count others.
     // (Browsers set Accept-Encoding themselves and ignore this.)
@@ -172,11 +184,13 @@ export class HttpSource implements ByteSource {
     let response: Response | null = null;
     try {
       response = await this.fetcher(this.url, { method, headers, signal: controller?.signal, cache: 'no-store', redirect: 'follow' });
+      this.progress.set(response, arm);
+      arm();
       await use(response);
     } catch (e) {
       // Release a body left unread, so its connection is not held open.
       if (response !== null && response.body !== null && !response.bodyUsed) await response.body.cancel().catch(() => undefined);
-      if (timedOut) throw new Transient(`no complete answer within ${this.timeout} ms`);
+      if (timedOut) throw new Transient(`no answer for ${this.timeout} ms`);
       if (e instanceof FormatError || e instanceof InputError || e instanceof Transient) throw e;
       // fetch and body streams fail with TypeError (network) or AbortError; either may pass on retry.
       throw new Transient(describe(e));
@@ -303,6 +317,7 @@ export class HttpSource implements ByteSource {
     for (;;) {
       const { done, value } = await reader.read();
       if (done) break;
+      this.progress.get(r)?.();
       this.bytesFetched += value.length;
       if (at + value.length > limit) {
         await reader.cancel().catch(() => undefined);

@@ -106,11 +106,11 @@ export const MAX_DEPTH = 16;
 export function resolveLimits(given: Partial<Limits> | undefined): Limits {
   const out: Limits = { ...DEFAULT_LIMITS };
   if (given === undefined || given === null) return out;
-  if (typeof given !== 'object') throw new InputError(InputCode.Option, `limits must be an object, got ${describe(given)}`);
+  if (typeof given !== 'object') throw new InputError(InputCode.Option, `limits must be an object, got ${describeValue(given)}`);
   for (const [k, v] of Object.entries(given)) {
     if (v === undefined) continue;
     if (!(k in DEFAULT_LIMITS)) throw new InputError(InputCode.Option, `unknown reader limit '${k}' (known: ${Object.keys(DEFAULT_LIMITS).join(', ')})`);
-    if (typeof v !== 'number' || !Number.isSafeInteger(v) || v < 1) throw new InputError(InputCode.Option, `reader limit ${k} must be a positive integer, got ${describe(v)}`);
+    if (typeof v !== 'number' || !Number.isSafeInteger(v) || v < 1) throw new InputError(InputCode.Option, `reader limit ${k} must be a positive integer, got ${describeValue(v)}`);
     out[k as keyof Limits] = v;
   }
   return out;
@@ -130,10 +130,10 @@ function fail(label: string, what: string): never {
 }
 
 /** A short description of a decoded value for messages (never the whole of a long string or array). */
-export function describe(v: unknown): string {
+export function describeValue(v: unknown): string {
   if (v === undefined) return 'nothing';
   if (v === null) return 'nil';
-  if (typeof v === 'string') return v.length > 40 ? `${JSON.stringify(v.slice(0, 40))}... (${v.length} characters)` : JSON.stringify(v);
+  if (typeof v === 'string') return v.length > 40 ? `${printable(JSON.stringify(v.slice(0, 40)))}... (${v.length} characters)` : printable(JSON.stringify(v));
   if (typeof v === 'number' || typeof v === 'boolean' || typeof v === 'bigint') return String(v);
   if (v instanceof Uint8Array) return `${v.length} bytes of binary data`;
   if (Array.isArray(v)) return `an array of ${v.length}`;
@@ -141,13 +141,35 @@ export function describe(v: unknown): string {
   return typeof v;
 }
 
+/**
+ * Text from a file made safe for a one-line message: control characters
+ * (C0, DEL, C1), line and paragraph separators and lone surrogates become
+ * \uXXXX, so no name can break a line or send escape sequences to a terminal.
+ */
+export function printable(s: string): string {
+  return s.replace(/[\u0000-\u001f\u007f-\u009f\u2028\u2029]|[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/g, (c) => `\\u${c.charCodeAt(0).toString(16).padStart(4, '0')}`);
+}
+
+/** A field name quoted for messages, shortened when long (names may have up to 1024 characters). */
+export function quoteName(name: string): string {
+  return `'${printable(name.length > 60 ? `${name.slice(0, 60)}...` : name)}'`;
+}
+
 function isObj(v: unknown): v is Obj {
   return typeof v === 'object' && v !== null && !Array.isArray(v) && !(v instanceof Uint8Array);
 }
 
 function posInt(v: unknown, label: string, what: string, max = Number.MAX_SAFE_INTEGER): number {
-  if (typeof v !== 'number' || !Number.isInteger(v) || v < 1 || v > max) fail(label, `${what} must be an integer in 1..${max}, got ${describe(v)}`);
+  if (typeof v !== 'number' || !Number.isInteger(v) || v < 1 || v > max) fail(label, `${what} must be an integer in 1..${max}, got ${describeValue(v)}`);
   return v;
+}
+
+/** Longest attribute name or string (UTF-8 bytes): the default reader limit on MessagePack strings. */
+export const MAX_ATTR_STRING = 1 << 20;
+
+function tooLong(x: unknown): boolean {
+  // Three UTF-8 bytes per UTF-16 code unit at most; measure exactly only when that could exceed the limit.
+  return typeof x === 'string' && x.length * 3 > MAX_ATTR_STRING && new TextEncoder().encode(x).length > MAX_ATTR_STRING;
 }
 
 /** What is wrong with an attribute map, or null when it is usable. */
@@ -156,7 +178,8 @@ export function attrsProblem(v: unknown): string | null {
   const ok = (x: unknown) => typeof x === 'string' || typeof x === 'number' || typeof x === 'boolean';
   for (const [k, a] of Object.entries(v)) {
     if (k === '__proto__') return "attribute name '__proto__' is not allowed";
-    if (!(ok(a) || (Array.isArray(a) && a.every(ok)))) return `attribute '${k}' must be a string, number, boolean or an array of them, got ${describe(a)}`;
+    if (tooLong(k) || tooLong(a) || (Array.isArray(a) && a.some(tooLong))) return `attribute ${quoteName(k)} has a name or string longer than ${MAX_ATTR_STRING} bytes of UTF-8`;
+    if (!(ok(a) || (Array.isArray(a) && a.every(ok)))) return `attribute ${quoteName(k)} must be a string, number, boolean or an array of them, got ${describeValue(a)}`;
   }
   return null;
 }
@@ -175,27 +198,27 @@ function checkFill(f: Obj, where: string): number | null {
   if (v === null) return null;
   if (typeof v === 'number') return v;
   if (v instanceof Uint8Array && v.length === 8) return new DataView(v.buffer, v.byteOffset, 8).getFloat64(0, true);
-  return fail(where, `fill must be nil, a number or 8 bytes (binary64, little-endian), got ${describe(v)}`);
+  return fail(where, `fill must be nil, a number or 8 bytes (binary64, little-endian), got ${describeValue(v)}`);
 }
 
 /** Validate a decoded header. */
 export function checkHeader(raw: unknown, limits: Limits, label: string): ArchiveHeader {
-  if (!isObj(raw)) fail(label, `header is ${describe(raw)}, not a map`);
-  if (raw.format !== 'rankfield') fail(label, `header format is ${describe(raw.format)}, not "rankfield"`);
+  if (!isObj(raw)) fail(label, `header is ${describeValue(raw)}, not a map`);
+  if (raw.format !== 'rankfield') fail(label, `header format is ${describeValue(raw.format)}, not "rankfield"`);
   // The header's `version` key is not examined (spec 6.1): the prologue and tail are authoritative.
-  if (!Array.isArray(raw.fields)) fail(label, `header fields is ${describe(raw.fields)}, not an array`);
+  if (!Array.isArray(raw.fields)) fail(label, `header fields is ${describeValue(raw.fields)}, not an array`);
   if (raw.fields.length > limits.maxFields) throw new FormatError(FormatCode.Limit, `${label}: ${raw.fields.length} fields exceed the limit of ${limits.maxFields}`);
   const names = new Set<string>();
   const fields = raw.fields.map((f: unknown, i: number): FieldHeader => {
     const at = `${label} header field ${i}`;
-    if (!isObj(f)) fail(at, `is ${describe(f)}, not a map`);
-    if (typeof f.name !== 'string' || f.name.length === 0 || f.name.length > 1024) fail(at, `name must be a string of 1 to 1024 characters, got ${describe(f.name)}`);
-    if (names.has(f.name)) fail(at, `duplicate field name ${describe(f.name)}`);
+    if (!isObj(f)) fail(at, `is ${describeValue(f)}, not a map`);
+    if (typeof f.name !== 'string' || f.name.length === 0 || f.name.length > 1024) fail(at, `name must be a string of 1 to 1024 characters, got ${describeValue(f.name)}`);
+    if (names.has(f.name)) fail(at, `duplicate field name ${describeValue(f.name)}`);
     names.add(f.name);
-    const where = `${label} field ${describe(f.name).replace(/^"(.*)"$/, "'$1'")}`;
-    if (f.dtype !== 'f32' && f.dtype !== 'f64') fail(where, `dtype ${describe(f.dtype)} is not "f32" or "f64"`);
-    if (!Array.isArray(f.shape) || f.shape.length !== 2) fail(where, `shape must be [rows, cols], got ${describe(f.shape)}`);
-    if (!Array.isArray(f.tile) || f.tile.length !== 2) fail(where, `tile must be [rows, cols], got ${describe(f.tile)}`);
+    const where = `${label} field ${quoteName(f.name)}`;
+    if (f.dtype !== 'f32' && f.dtype !== 'f64') fail(where, `dtype ${describeValue(f.dtype)} is not "f32" or "f64"`);
+    if (!Array.isArray(f.shape) || f.shape.length !== 2) fail(where, `shape must be [rows, cols], got ${describeValue(f.shape)}`);
+    if (!Array.isArray(f.tile) || f.tile.length !== 2) fail(where, `tile must be [rows, cols], got ${describeValue(f.tile)}`);
     const rows = posInt(f.shape[0], where, 'rows');
     const cols = posInt(f.shape[1], where, 'cols');
     const tr = posInt(f.tile[0], where, 'tile rows');
@@ -207,16 +230,16 @@ export function checkHeader(raw: unknown, limits: Limits, label: string): Archiv
     const tiles = Math.ceil(rows / tr) * Math.ceil(cols / tc);
     if (tiles > limits.maxTiles) throw new FormatError(FormatCode.Limit, `${where}: ${tiles} tiles exceed the limit of ${limits.maxTiles}`);
     const b = f.bound;
-    if (!isObj(b)) fail(where, `bound is ${describe(b)}, not a map`);
-    if (!['abs', 'rel', 'rmse', 'psnr'].includes(b.mode as string)) fail(where, `bound mode ${describe(b.mode)} is unknown`);
-    if (typeof b.value !== 'number' || !(b.value > 0) || !Number.isFinite(b.value)) fail(where, `bound value must be a positive finite number, got ${describe(b.value)}`);
+    if (!isObj(b)) fail(where, `bound is ${describeValue(b)}, not a map`);
+    if (!['abs', 'rel', 'rmse', 'psnr'].includes(b.mode as string)) fail(where, `bound mode ${describeValue(b.mode)} is unknown`);
+    if (typeof b.value !== 'number' || !(b.value > 0) || !Number.isFinite(b.value)) fail(where, `bound value must be a positive finite number, got ${describeValue(b.value)}`);
     // The stored tolerance is authoritative (spec 6.3): it is checked for type, not recomputed.
     if (typeof b.tolerance !== 'number' || !(b.tolerance >= 0) || !Number.isFinite(b.tolerance)) {
-      fail(where, `bound tolerance must be a finite number >= 0, got ${describe(b.tolerance)}`);
+      fail(where, `bound tolerance must be a finite number >= 0, got ${describeValue(b.tolerance)}`);
     }
     const range = b.range;
     if (range !== null && !(Array.isArray(range) && range.length === 2 && range.every((x) => typeof x === 'number' && Number.isFinite(x)) && range[0] <= range[1])) {
-      fail(where, `bound range must be finite [min, max] with min <= max, or nil, got ${Array.isArray(range) ? `[${range.map(describe).join(', ')}]` : describe(range)}`);
+      fail(where, `bound range must be finite [min, max] with min <= max, or nil, got ${Array.isArray(range) ? `[${range.map(describeValue).join(', ')}]` : describeValue(range)}`);
     }
     const fill = checkFill(f, where);
     return {
@@ -253,15 +276,15 @@ export function checkIndex(raw: unknown, header: ArchiveHeader, start: number, e
 }
 
 function checkFieldIndex(f: unknown, h: FieldHeader, start: number, end: number, limits: Limits, label: string): FieldIndex {
-  const where = `${label} index of field '${h.name}'`;
-  if (!isObj(f)) fail(where, `is ${describe(f)}, not a map`);
+  const where = `${label} index of field ${quoteName(h.name)}`;
+  if (!isObj(f)) fail(where, `is ${describeValue(f)}, not a map`);
   const tiles = Math.ceil(h.shape[0] / h.tile[0]) * Math.ceil(h.shape[1] / h.tile[1]);
   for (const c of COLUMNS) {
     const col = f[c];
-    if (!Array.isArray(col) || col.length !== tiles) fail(where, `column '${c}' must list ${tiles} tiles, got ${describe(col)}`);
+    if (!Array.isArray(col) || col.length !== tiles) fail(where, `column '${c}' must list ${tiles} tiles, got ${describeValue(col)}`);
     for (let t = 0; t < tiles; t++) {
       const v = col[t];
-      if (typeof v !== 'number' || Number.isNaN(v)) fail(where, `column '${c}' tile ${t} holds ${describe(v)}, not a number`);
+      if (typeof v !== 'number' || Number.isNaN(v)) fail(where, `column '${c}' tile ${t} holds ${describeValue(v)}, not a number`);
     }
   }
   const col = (c: (typeof COLUMNS)[number]) => f[c] as number[];
@@ -291,7 +314,7 @@ function checkFieldIndex(f: unknown, h: FieldHeader, start: number, end: number,
     if (maxErr[t] > maxErrMax) maxErrMax = maxErr[t];
   }
   const s = f.summary;
-  if (!isObj(s)) fail(where, `summary is ${describe(s)}, not a map`);
+  if (!isObj(s)) fail(where, `summary is ${describeValue(s)}, not a map`);
   if (typeof s.valid !== 'number' || typeof s.max_err !== 'number' || typeof s.rmse !== 'number') fail(where, 'summary must hold numbers valid, max_err and rmse');
   if (s.valid !== validSum) fail(where, `summary valid count ${s.valid} is not the sum ${validSum} of the tiles' counts`);
   if (s.max_err !== maxErrMax) fail(where, `summary max_err ${s.max_err} is not the largest tile max_err ${maxErrMax}`);
@@ -330,7 +353,7 @@ function checkNoOverlap(fields: FieldIndex[], header: ArchiveHeader, label: stri
       const name = (x: number) => {
         let t = x;
         for (let i = 0; i < owner[x]; i++) t -= fields[i].offset.length;
-        return `field '${header.fields[owner[x]].name}' tile ${t}`;
+        return `field ${quoteName(header.fields[owner[x]].name)} tile ${t}`;
       };
       fail(`${label} index`, `the payloads of ${name(a)} (${off[a]}+${len[a]}) and ${name(b)} (${off[b]}+${len[b]}) overlap`);
     }

@@ -124,7 +124,7 @@ export function serialize(m: Model): Uint8Array {
     if (Array.isArray(fields)) {
       placed.forEach((refs, i) => {
         const f = fields[i];
-        if (typeof f !== 'object' || f === null || Array.isArray(f)) return;
+        if (typeof f !== 'object' || f === null || Object.getPrototypeOf(f) !== Object.prototype) return;
         f.offset = refs.map((r) => r.offset);
         f.length = refs.map((r) => r.length);
         f.crc = refs.map((r) => r.crc);

@@ -117,7 +117,8 @@ function editValue(root: any, rng: Rng, what: string): string {
     }
     const entries: [unknown, unknown][] = Object.entries(parent);
     const i = entries.findIndex(([k]) => k === key);
-    entries.splice(i + 1, 0, [rng.chance(0.7) ? key : rng.pick([1, 0, -1, 1.5, null, true]), absurdValue(rng)]);
+    // The repeated key holds the same value half the time: a reader that keeps the last one would accept it.
+    entries.splice(i + 1, 0, [rng.chance(0.7) ? key : rng.pick([1, 0, -1, 1.5, null, true]), rng.chance(0.5) ? old : absurdValue(rng)]);
     // Replace the map by one that repeats a key (or has a non-string key): only a RawMap can say that.
     const grand = path.length >= 2 ? getAt(root, path.slice(0, -2)) : null;
     const pkey = path[path.length - 2];
@@ -282,6 +283,103 @@ function mutateFixed(m: Model, f: number, t: number, rng: Rng): string {
   return `payload ${f}/${t} ${which}`;
 }
 
+/**
+ * Targeted edits that leave every structure well-formed but break one rule
+ * a decoder must enforce (spec/FORMAT.md, section 15): a fill cell in a field
+ * without a fill value, raw NaN bits that are a number, an exception that is
+ * NaN or the fill value, a NaN residual step or centre, a tile grid that no
+ * longer matches the index. Each must be refused.
+ */
+function semantic(m: Model, rng: Rng): string {
+  const f = rng.int(m.payloads.length);
+  const h = m.header.fields[f];
+  const wide = h.dtype === 'f64';
+  const width = wide ? 8 : 4;
+  const t = rng.int(m.payloads[f].length);
+  const p = m.payloads[f][t];
+  const { sections: secs } = p[0] === 1 ? sections(p) : { sections: [] };
+  const find = (name: string) => secs.find((x) => x.name === name);
+  const rewrite = (name: string, edit: (raw: Uint8Array) => boolean): boolean => {
+    const s = find(name);
+    if (!s) return false;
+    const raw = inflateSync(p.subarray(s.start + 8, s.end));
+    if (!edit(raw)) return false;
+    const stored = deflateSync(raw, { level: 6 });
+    const head = new Uint8Array(8);
+    setU32(head, 0, raw.length);
+    setU32(head, 4, stored.length);
+    m.payloads[f][t] = Uint8Array.of(...p.subarray(0, s.start), ...head, ...stored, ...p.subarray(s.end));
+    return true;
+  };
+  const cells = (() => {
+    const gc = Math.ceil(h.shape[1] / h.tile[1]);
+    return Math.min(h.tile[0], h.shape[0] - Math.floor(t / gc) * h.tile[0]) * Math.min(h.tile[1], h.shape[1] - (t % gc) * h.tile[1]);
+  })();
+  const fillBits = (): Uint8Array | null => {
+    if (!(h.fill instanceof Uint8Array)) return null;
+    const v = new DataView(h.fill.buffer, h.fill.byteOffset, 8).getFloat64(0, true);
+    if (Number.isNaN(v)) return null;
+    const b = new Uint8Array(width);
+    if (wide) new DataView(b.buffer).setFloat64(0, v, true);
+    else new DataView(b.buffer).setFloat32(0, v, true);
+    return b;
+  };
+  const tries: [string, () => boolean][] = [
+    ['fill cell without a fill value', () => h.fill === null && rewrite('mask', (raw) => ((raw[rng.int(cells)] = 1), true))],
+    [
+      'raw NaN bits that are a number',
+      () =>
+        rewrite('mask', (raw) => {
+          if (raw.length <= cells) return false;
+          if (wide) new DataView(raw.buffer).setFloat64(cells, 1.5, true);
+          else new DataView(raw.buffer).setFloat32(cells, 1.5, true);
+          return true;
+        }),
+    ],
+    [
+      'an exception that is NaN or the fill value',
+      () =>
+        rewrite('exceptions', (raw) => {
+          const d = new DataView(raw.buffer);
+          const count = d.getUint32(0, true);
+          if (count === 0) return false;
+          const at = 4 + 4 * count + width * rng.int(count);
+          const fb = fillBits();
+          if (fb && rng.chance(0.5)) raw.set(fb, at);
+          else if (wide) d.setFloat64(at, NaN, true);
+          else d.setFloat32(at, NaN, true);
+          return true;
+        }),
+    ],
+    ['a NaN residual step', () => rewrite('residual', (raw) => (new DataView(raw.buffer).setFloat64(0, NaN, true), true))],
+    [
+      'a NaN centre',
+      () => {
+        if (p[0] !== 1) return false;
+        new DataView(p.buffer, p.byteOffset).setFloat64(4, NaN, true);
+        return true;
+      },
+    ],
+    [
+      'a tile grid that does not match the index',
+      () => {
+        const old = h.tile;
+        h.tile = [h.tile[0] * 2 >= h.shape[0] && h.tile[1] * 2 >= h.shape[1] ? Math.max(1, h.tile[0] >> 1) : h.tile[0] * 2, h.tile[1]];
+        const tiles = Math.ceil(h.shape[0] / h.tile[0]) * Math.ceil(h.shape[1] / h.tile[1]);
+        if (tiles !== m.payloads[f].length) return true;
+        h.tile = old;
+        return false;
+      },
+    ],
+  ];
+  const start = rng.int(tries.length);
+  for (let k = 0; k < tries.length; k++) {
+    const [what, apply] = tries[(start + k) % tries.length];
+    if (apply()) return `field ${f} payload ${f}/${t}: ${what} (must be refused)`;
+  }
+  return `field ${f} payload ${f}/${t}: no rule to break here`;
+}
+
 /** Changes to the header that keep it self-consistent, so they reach the decoder. */
 function consistentHeader(m: Model, rng: Rng): string {
   const fields = m.header.fields;
@@ -322,9 +420,8 @@ function consistentHeader(m: Model, rng: Rng): string {
   return `field ${f} ${which}`;
 }
 
-/** MessagePack-level tricks on the header or index bytes. */
-function msgpackBlock(m: Model, rng: Rng): string {
-  const block = rng.chance(0.5) ? 'header' : 'index';
+/** MessagePack-level tricks on the header or index bytes (applied last, to the final header or index). */
+function msgpackBlock(m: Model, rng: Rng, block: 'header' | 'index'): string {
   const value = block === 'header' ? m.header : m.index;
   const trick = rng.pick(['bytes', 'bytes', 'trailing', 'wrapped', 'widths', 'truncated']);
   let bytes = encodeValue(value);
@@ -453,7 +550,9 @@ export type Expectation = 'same' | 'refuse' | 'any';
  * tiles sharing payload bytes must be refused.
  */
 export function expectationOf(op: string): Expectation {
-  if (/^unchanged$|no section$|nothing to edit$|aliased to itself$|top-level map left alone$/.test(op)) return 'same';
+  if (/ edited twice$| skipped \(/.test(op)) return 'any';
+  if (/^unchanged$|no section$|nothing to edit$|aliased to itself$|top-level map left alone$|no rule to break here$/.test(op)) return 'same';
+  if (/\(must be refused\)$/.test(op)) return 'refuse';
   if (/written as another valid stream$|msgpack widths$|^container (reserved|order|gap)$/.test(op)) return 'same';
   if (/with bytes after its stream$|^container (version|flags|stale crc|tail version)$|msgpack (trailing|truncated)$|repeated key or non-string key|aliased to the payload of/.test(op)) return 'refuse';
   const raw = /raw data \((\d+) bytes, declared (\d+)\)$/.exec(op);
@@ -483,6 +582,13 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
     [22, 2],
     [8, 3],
   ]);
+  // Expectations hold for edits of distinct targets: a second edit of one target frees the case ('any').
+  const touched = new Set<string>();
+  const touch = (key: string) => {
+    if (touched.has(key)) ops.push(`${key} edited twice`);
+    touched.add(key);
+  };
+  const blocks: ('header' | 'index')[] = [];
   for (let k = 0; k < count; k++) {
     const op = rng.weighted<string>([
       [14, 'payload bytes'],
@@ -494,39 +600,52 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
       [6, 'index structure'],
       [8, 'msgpack'],
       [4, 'container'],
+      [4, 'semantic'],
     ]);
     const at = pickPayload(m, rng);
     try {
-    if (op === 'payload bytes' && at) {
-      const [f, t] = at;
-      m.payloads[f][t] = mutateBytes(m.payloads[f][t], rng, 16);
-      ops.push(`payload ${f}/${t} bytes`);
-    } else if (op === 'section' && at) {
-      const [f, t] = at;
-      const r = mutateSection(m.payloads[f][t], rng);
-      m.payloads[f][t] = r.payload;
-      ops.push(`payload ${f}/${t} ${r.what}`);
-    } else if (op === 'fixed part' && at) ops.push(mutateFixed(m, at[0], at[1], rng));
-    else if (op === 'header value') ops.push(editValue(m.header, rng, 'header'));
-    else if (op === 'header consistent') ops.push(consistentHeader(m, rng));
-    else if (op === 'index value') {
-      // Index columns are long: aim at one field's columns directly, or anywhere in the index.
-      const f = rng.int(m.index.fields.length);
-      const ix = m.index.fields[f];
-      const c = rng.pick(['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc']);
-      if (!rng.chance(0.7) || ix.offset.length === 0) ops.push(editValue(m.index, rng, 'index'));
-      else {
-        const t = rng.int(ix.offset.length);
-        const edit = () => {
-          ix[c][t] = rng.chance(0.5) ? nearNumber(ix[c][t], rng) : absurdValue(rng);
-          return `index field ${f} ${c}[${t}]`;
-        };
-        if (c === 'offset' || c === 'length' || c === 'crc') late.push(edit);
-        else ops.push(edit());
+      if (op === 'payload bytes' && at) {
+        const [f, t] = at;
+        touch(`payload ${f}/${t}`);
+        m.payloads[f][t] = mutateBytes(m.payloads[f][t], rng, 16);
+        ops.push(`payload ${f}/${t} bytes`);
+      } else if (op === 'section' && at) {
+        const [f, t] = at;
+        touch(`payload ${f}/${t}`);
+        const r = mutateSection(m.payloads[f][t], rng);
+        m.payloads[f][t] = r.payload;
+        ops.push(`payload ${f}/${t} ${r.what}`);
+      } else if (op === 'fixed part' && at) {
+        touch(`payload ${at[0]}/${at[1]}`);
+        ops.push(mutateFixed(m, at[0], at[1], rng));
+      } else if (op === 'header value') ops.push(editValue(m.header, rng, 'header'));
+      else if (op === 'header consistent') ops.push(consistentHeader(m, rng));
+      else if (op === 'index value') {
+        // Index columns are long: aim at one field's columns directly, or anywhere in the index.
+        const f = rng.int(m.index.fields.length);
+        const ix = m.index.fields[f];
+        const c = rng.pick(['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc']);
+        if (!rng.chance(0.7) || ix.offset.length === 0) ops.push(editValue(m.index, rng, 'index'));
+        else {
+          const t = rng.int(ix.offset.length);
+          const edit = () => {
+            ix[c][t] = rng.chance(0.5) ? nearNumber(ix[c][t], rng) : absurdValue(rng);
+            return `index field ${f} ${c}[${t}]`;
+          };
+          if (c === 'offset' || c === 'length' || c === 'crc') late.push(edit);
+          else ops.push(edit());
+        }
+      } else if (op === 'index structure') late.push(() => postIndex(m, rng));
+      else if (op === 'msgpack') {
+        const block = rng.chance(0.5) ? 'header' : 'index';
+        if (!blocks.includes(block)) blocks.push(block);
+      } else if (op === 'container') ops.push(containerWords(m, rng));
+      else if (op === 'semantic') {
+        const what = semantic(m, rng);
+        const target = /^field \d+/.exec(what)?.[0];
+        if (target) touch(target);
+        ops.push(what);
       }
-    } else if (op === 'index structure') late.push(() => postIndex(m, rng));
-    else if (op === 'msgpack') ops.push(msgpackBlock(m, rng));
-    else if (op === 'container') ops.push(containerWords(m, rng));
     } catch (e) {
       // A mutation whose target an earlier mutation already destroyed (e.g. an index that is no longer a map).
       ops.push(`${op} skipped (${(e as Error).message})`);
@@ -541,6 +660,12 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
         ops.push(`index edit skipped (${(e as Error).message})`);
       }
     }
+    m.fixIndex = false;
+    bytes = serialize(m);
+  }
+  if (blocks.length > 0) {
+    // MessagePack tricks on the final blocks (offsets and CRCs already in the index).
+    for (const block of blocks) ops.push(msgpackBlock(m, rng, block));
     m.fixIndex = false;
     bytes = serialize(m);
   }

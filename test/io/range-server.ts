@@ -6,8 +6,8 @@
  */
 import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
 import type { AddressInfo } from 'node:net';
-import { readFileSync } from 'node:fs';
-import { extname } from 'node:path';
+import { existsSync, readFileSync, statSync } from 'node:fs';
+import { extname, join, normalize } from 'node:path';
 
 /** What a request asked for, as the server parsed it. */
 export interface Asked {
@@ -30,6 +30,8 @@ export interface RangeServer {
   url: string;
   /** Serve bytes (or a file from disk, read at each request) at a path such as '/a.rfz'. */
   put(path: string, content: Uint8Array | { file: string }): void;
+  /** Serve the files under folder `dir` at URL paths starting with `prefix` (e.g. '/dist/'). */
+  mount(prefix: string, dir: string): void;
   /** Body bytes sent (all requests). */
   bytesSent: number;
   /** Requests received. */
@@ -69,6 +71,19 @@ function parseRange(header: string | undefined, size: number): [number, number] 
 /** Start a server on 127.0.0.1 with an OS-chosen port. */
 export async function startRangeServer(): Promise<RangeServer> {
   const files = new Map<string, Uint8Array | { file: string }>();
+  const mounts: [string, string][] = [];
+  const lookup = (path: string): Uint8Array | { file: string } | undefined => {
+    const direct = files.get(path);
+    if (direct !== undefined) return direct;
+    for (const [prefix, dir] of mounts) {
+      if (!path.startsWith(prefix)) continue;
+      const rest = normalize(path.slice(prefix.length));
+      if (rest.startsWith('..')) return undefined;
+      const file = join(dir, rest);
+      if (existsSync(file) && statSync(file).isFile()) return { file };
+    }
+    return undefined;
+  };
   const state: RangeServer = {
     url: '',
     bytesSent: 0,
@@ -76,6 +91,7 @@ export async function startRangeServer(): Promise<RangeServer> {
     log: [],
     misbehave: null,
     put: (path, content) => void files.set(path, content),
+    mount: (prefix, dir) => void mounts.push([prefix, dir]),
     reset() {
       state.bytesSent = 0;
       state.requests = 0;
@@ -93,7 +109,7 @@ export async function startRangeServer(): Promise<RangeServer> {
   const server = createServer((req, res) => {
     state.requests++;
     const path = decodeURIComponent(new URL(req.url ?? '/', 'http://x').pathname);
-    const entry = files.get(path);
+    const entry = lookup(path);
     if (entry === undefined) {
       res.writeHead(404, { 'Content-Type': 'text/plain' });
       res.end('not found');

@@ -1,0 +1,137 @@
+/**
+ * The decoder in a browser: headless Chromium (Debian's chromium package,
+ * driven by playwright-core) loads dist/decode.js as ES modules from a
+ * server on 127.0.0.1, opens an archive there with HTTP Range requests,
+ * decodes windows, and hands back the bits of the values, which must equal
+ * what Node decodes from the same bytes. Data: vega-datasets
+ * data/annual-precip.json (360 wide x 168 high), with missing cells added.
+ */
+import { existsSync, mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { open, pack } from '../../src/index.js';
+import { precip } from '../archive/datasets.js';
+import { ensureBuilt, ROOT } from '../cli/helpers.js';
+import { startRangeServer, type RangeServer } from '../io/range-server.js';
+
+const CHROMIUM = '/usr/bin/chromium';
+
+const PAGE = `<!doctype html>
+<html><head><meta charset="utf-8"><title>rankfield decode</title><link rel="icon" href="data:,">
+<script type="importmap">
+{ "imports": {
+  "fflate": "/node_modules/fflate/esm/browser.js",
+  "@msgpack/msgpack": "/node_modules/@msgpack/msgpack/dist.esm/index.mjs"
+} }
+</script>
+<script type="module">
+import { open, HttpSource, FormatError } from '/dist/decode.js';
+window.decodeWindows = async (url, windows) => {
+  const archive = await open(new HttpSource(url));
+  // Several windows at once on one archive object.
+  const fields = await Promise.all(windows.map(([rows, cols]) => archive.read(undefined, { rows, cols })));
+  return fields.map((f) => ({ shape: f.shape, dtype: f.dtype, words: Array.from(new Uint32Array(f.values.buffer, f.values.byteOffset, f.values.byteLength / 4)) }));
+};
+window.decodeError = async (url) => {
+  try { await open(new HttpSource(url, { retries: 0 })); return 'opened'; }
+  catch (e) { return (e instanceof FormatError ? 'FormatError: ' : e.name + ': ') + e.message; }
+};
+window.ready = true;
+</script></head><body></body></html>`;
+
+/** The precipitation grid as float32 with missing cells: a NaN with a payload, and +-Inf. */
+function field(): Float32Array {
+  const g = precip();
+  const v = Float32Array.from(g.values);
+  const w = new Uint32Array(v.buffer);
+  for (let k = 5; k < v.length; k += 211) {
+    if (k % 3 === 0) w[k] = 0x7fc0_abcd;
+    else v[k] = k % 3 === 1 ? Infinity : -Infinity;
+  }
+  return v;
+}
+
+const WINDOWS: [[number, number], [number, number]][] = [
+  [[0, 168], [0, 360]], // the whole field
+  [[40, 104], [100, 164]], // inner tiles
+  [[150, 168], [330, 360]], // edge tiles on both axes
+  [[77, 78], [0, 360]], // one row
+  [[0, 168], [359, 360]], // one column
+];
+
+describe('the decoder in headless Chromium', () => {
+  let server: RangeServer;
+  let context: BrowserContext | null = null;
+  let page: Page;
+  let profile: string;
+  const errors: string[] = [];
+  const bytes = pack(field(), [168, 360], { bound: 'abs:1', tile: [32, 48], name: 'precip' });
+
+  beforeAll(async () => {
+    if (!existsSync(CHROMIUM)) return;
+    ensureBuilt();
+    server = await startRangeServer();
+    server.put('/index.html', new TextEncoder().encode(PAGE));
+    server.put('/precip.rfz', bytes);
+    server.mount('/dist/', join(ROOT, 'dist'));
+    server.mount('/node_modules/', join(ROOT, 'node_modules'));
+    profile = mkdtempSync(join(tmpdir(), 'rankfield-chromium-'));
+    context = await chromium.launchPersistentContext(profile, {
+      executablePath: CHROMIUM,
+      headless: true,
+      args: [
+        '--headless',
+        '--no-sandbox',
+        '--disable-gpu',
+        '--disable-quic',
+        '--no-first-run',
+        '--disable-background-networking',
+        '--disable-component-update',
+        '--disable-sync',
+      ],
+    });
+    page = await context.newPage();
+    page.on('pageerror', (e) => errors.push(`page error: ${e.message}`));
+    page.on('console', (m) => void (m.type() === 'error' && errors.push(`console: ${m.text()}`)));
+    await page.goto(`${server.url}/index.html`);
+    await page.waitForFunction(() => (window as unknown as { ready?: boolean }).ready === true, undefined, { timeout: 20_000 });
+  }, 60_000);
+
+  afterAll(async () => {
+    await context?.close();
+    await server?.close();
+    if (profile) rmSync(profile, { recursive: true, force: true });
+  });
+
+  it('has Debian chromium to run in', () => {
+    expect(existsSync(CHROMIUM), `${CHROMIUM} is missing: install Debian's chromium package (apt-get install -y chromium), as .ci/run does`).toBe(true);
+  });
+
+  it('decodes windows over HTTP Range requests, bit for bit as Node does', async () => {
+    expect(context, `${CHROMIUM} is missing: install Debian's chromium package (apt-get install -y chromium)`).not.toBeNull();
+    server.reset();
+    const got = await page.evaluate(([url, windows]) => (window as unknown as { decodeWindows: (u: string, w: unknown) => Promise<{ shape: number[]; dtype: string; words: number[] }[]> }).decodeWindows(url, windows), [`${server.url}/precip.rfz`, WINDOWS] as const);
+    expect(errors).toEqual([]);
+    const node = await open(bytes);
+    for (const [k, [rows, cols]] of WINDOWS.entries()) {
+      const want = await node.read(undefined, { rows, cols });
+      expect(got[k].shape).toEqual(want.shape);
+      expect(got[k].dtype).toBe('f32');
+      expect(got[k].words, `window ${k}`).toEqual(Array.from(new Uint32Array(want.values.buffer)));
+    }
+    // Every request for the archive was a ranged one.
+    const archiveRequests = server.log.filter((a) => a.path === '/precip.rfz');
+    expect(archiveRequests.length).toBeGreaterThan(4);
+    expect(archiveRequests.every((a) => a.range !== null)).toBe(true);
+  }, 60_000);
+
+  it('reports a damaged archive with FormatError in the browser too', async () => {
+    expect(context).not.toBeNull();
+    const broken = bytes.slice(0, bytes.length - 10);
+    server.put('/broken.rfz', broken);
+    const message = await page.evaluate((url) => (window as unknown as { decodeError: (u: string) => Promise<string> }).decodeError(url), `${server.url}/broken.rfz`);
+    expect(message).toMatch(/^FormatError: .*broken\.rfz: no archive tail/);
+  }, 30_000);
+});

@@ -1,0 +1,72 @@
+/**
+ * The decoding entry point must run where Node's built-in modules do not
+ * exist. Walk the import graph of the built dist/decode.js (every static and
+ * dynamic import, followed through relative files) and fail on any Node
+ * built-in (the list is Node's own `builtinModules`, plus any `node:`
+ * specifier) and on any package other than the two browser-safe ones the
+ * decoder needs.
+ */
+import { existsSync, readFileSync } from 'node:fs';
+import { builtinModules } from 'node:module';
+import { dirname, join, relative, resolve } from 'node:path';
+import { beforeAll, describe, expect, it } from 'vitest';
+import { ensureBuilt, ROOT } from '../cli/helpers.js';
+
+/** Packages the decoder may import: both ship ESM builds without Node built-ins. */
+const ALLOWED_PACKAGES = new Set(['fflate', '@msgpack/msgpack']);
+const BUILTINS = new Set(builtinModules.flatMap((m) => [m, m.split('/')[0]]));
+
+/** Specifiers of every import and re-export in a module's text (tsc output: one per statement). */
+export function specifiers(text: string): string[] {
+  const out: string[] = [];
+  const patterns = [/\b(?:import|export)\s[^'";]*?\bfrom\s*['"]([^'"]+)['"]/g, /\bimport\s*['"]([^'"]+)['"]/g, /\bimport\s*\(\s*['"]([^'"]+)['"]\s*\)/g];
+  for (const p of patterns) for (const m of text.matchAll(p)) out.push(m[1]);
+  return out;
+}
+
+/** Every module reachable from `entry`, and every bare specifier imported along the way (with who imports it). */
+function walk(entry: string): { files: string[]; bare: { spec: string; from: string }[] } {
+  const seen = new Set<string>();
+  const bare: { spec: string; from: string }[] = [];
+  const todo = [entry];
+  while (todo.length > 0) {
+    const file = todo.pop()!;
+    if (seen.has(file)) continue;
+    seen.add(file);
+    for (const spec of specifiers(readFileSync(file, 'utf8'))) {
+      if (spec.startsWith('.') || spec.startsWith('/')) {
+        const target = resolve(dirname(file), spec);
+        if (!existsSync(target)) throw new Error(`${relative(ROOT, file)} imports '${spec}', which does not exist`);
+        todo.push(target);
+      } else bare.push({ spec, from: relative(ROOT, file) });
+    }
+  }
+  return { files: [...seen], bare };
+}
+
+describe('the import graph of dist/decode.js', () => {
+  beforeAll(() => ensureBuilt());
+
+  it('finds the imports of a module (the walker itself)', () => {
+    expect(specifiers(`import { a } from './a.js';\nexport * from "node:fs";\nimport 'zlib';\nconst m = await import('os');`).sort()).toEqual(['./a.js', 'node:fs', 'os', 'zlib']);
+  });
+
+  it('holds no Node built-in and no package but fflate and @msgpack/msgpack', () => {
+    const { files, bare } = walk(join(ROOT, 'dist', 'decode.js'));
+    // The decoder's own modules are all there: archive, container, tile decoding, the HTTP source.
+    for (const f of ['archive.js', 'format/container.js', 'codec/tile-decode.js', 'format/http-source.js']) expect(files).toContain(join(ROOT, 'dist', f));
+    const builtins = bare.filter(({ spec }) => spec.startsWith('node:') || BUILTINS.has(spec) || BUILTINS.has(spec.split('/')[0]));
+    expect(builtins, `Node built-ins imported: ${builtins.map((b) => `${b.spec} (by ${b.from})`).join(', ')}`).toEqual([]);
+    const packages = bare.filter(({ spec }) => !ALLOWED_PACKAGES.has(spec));
+    expect(packages, `packages not known to be browser-safe: ${packages.map((b) => `${b.spec} (by ${b.from})`).join(', ')}`).toEqual([]);
+  });
+
+  it('uses no Node-only globals (Buffer, process, require, __dirname)', () => {
+    const { files } = walk(join(ROOT, 'dist', 'decode.js'));
+    for (const f of files) {
+      // Strip comments so that prose about these names does not count.
+      const code = readFileSync(f, 'utf8').replace(/\/\*[\s\S]*?\*\//g, '').replace(/\/\/.*$/gm, '');
+      expect(code, relative(ROOT, f)).not.toMatch(/\b(?:Buffer|process|require|__dirname|__filename)\s*[.(]/);
+    }
+  });
+});

@@ -1,0 +1,164 @@
+/**
+ * The command line over windows and URLs: `unpack --region` from a file and
+ * from an http(s) URL, `show URL` and `check URL`, and the streaming `pack`
+ * (band reader + file sink), whose archive must be byte-identical to the
+ * library's in-memory pack of the same values. Data: the vega-datasets
+ * annual-precip grid (data/annual-precip.json, 360 wide x 168 high).
+ */
+import { spawn } from 'node:child_process';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { open, pack } from '../../src/index.js';
+import { parseNpy, formatNpy } from '../../src/io/npy.js';
+import { formatRaw } from '../../src/io/raw.js';
+import { precip } from '../archive/datasets.js';
+import { startRangeServer, type RangeServer } from '../io/range-server.js';
+import { BIN, ensureBuilt, expectCliError, leftovers, rf, tempDir, type RunResult } from './helpers.js';
+
+/** Run the CLI without blocking this process's event loop (the test's HTTP server must keep answering). */
+function rfAsync(args: string[], cwd: string): Promise<RunResult> {
+  return new Promise((resolve, reject) => {
+    const child = spawn(process.execPath, [BIN, ...args], { cwd });
+    let stdout = '';
+    let stderr = '';
+    child.stdout.on('data', (d: Buffer) => (stdout += d.toString()));
+    child.stderr.on('data', (d: Buffer) => (stderr += d.toString()));
+    const timer = setTimeout(() => child.kill('SIGKILL'), 60_000);
+    child.on('error', reject);
+    child.on('close', (code) => {
+      clearTimeout(timer);
+      resolve({ code, stdout, stderr });
+    });
+  });
+}
+
+const bits = (a: Float32Array | Float64Array) => new Uint32Array(a.buffer, a.byteOffset, a.byteLength / 4);
+
+let tmp: ReturnType<typeof tempDir>;
+let server: RangeServer;
+const g = precip();
+const data = Float32Array.from(g.values);
+let whole: Float32Array;
+
+beforeAll(async () => {
+  ensureBuilt();
+  tmp = tempDir('rankfield-region-cli-');
+  writeFileSync(join(tmp.dir, 'precip.npy'), formatNpy({ data, shape: g.shape, dtype: 'f32' }));
+  const r = rf(['pack', 'precip.npy', '-o', 'precip.rfz', '--bound', 'abs:2', '--tile', '32x48'], tmp.dir);
+  expect(r.code, r.stderr).toBe(0);
+  whole = (await (await open(new Uint8Array(readFileSync(join(tmp.dir, 'precip.rfz'))))).read()).values as Float32Array;
+  server = await startRangeServer();
+  server.put('/precip.rfz', { file: join(tmp.dir, 'precip.rfz') });
+});
+afterAll(async () => {
+  await server?.close();
+  tmp?.remove();
+});
+
+function windowOf(rows: [number, number], cols: [number, number]): Float32Array {
+  const out = new Float32Array((rows[1] - rows[0]) * (cols[1] - cols[0]));
+  for (let i = rows[0]; i < rows[1]; i++) out.set(whole.subarray(i * 360 + cols[0], i * 360 + cols[1]), (i - rows[0]) * (cols[1] - cols[0]));
+  return out;
+}
+
+describe('streaming pack', () => {
+  it('writes the same archive bytes as the library packing the values in memory, from .npy and raw input', () => {
+    const want = pack(data, g.shape, { bound: 'abs:2', tile: [32, 48], name: 'precip' });
+    expect(new Uint8Array(readFileSync(join(tmp.dir, 'precip.rfz')))).toEqual(want);
+    writeFileSync(join(tmp.dir, 'precip.be'), formatRaw({ data, shape: g.shape, dtype: 'f32' }, 'big'));
+    const r = rf(['pack', 'precip.be', '-o', 'raw.rfz', '--bound', 'abs:2', '--tile', '32x48', '--shape', '168x360', '--dtype', 'f32', '--endian', 'big', '--name', 'precip'], tmp.dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/241920 bytes in, \d+ bytes out/);
+    expect(new Uint8Array(readFileSync(join(tmp.dir, 'raw.rfz')))).toEqual(want);
+    expect(leftovers(tmp.dir)).toEqual([]);
+  });
+
+  it('still notes a fill value that does not occur, and leaves no file behind on a bad input', () => {
+    const r = rf(['pack', 'precip.npy', '-o', 'fill.rfz', '--bound', 'abs:2', '--fill', '-12345'], tmp.dir);
+    expect(r.code).toBe(0);
+    expect(r.stderr).toMatch(/note: the fill value -12345 does not occur in 'precip.npy'/);
+    writeFileSync(join(tmp.dir, 'short.raw'), new Uint8Array(100));
+    const bad = rf(['pack', 'short.raw', '-o', 'bad.rfz', '--bound', 'abs:2', '--shape', '168x360', '--dtype', 'f32'], tmp.dir);
+    expectCliError(bad, /short\.raw: shape 168x360 of f32 needs 60480 values of 4 bytes = 241920 bytes but the file holds 100 bytes/);
+    expect(leftovers(tmp.dir)).toEqual([]);
+  });
+});
+
+describe('unpack --region from a file', () => {
+  it.each([
+    ['10:20,30:40', [10, 20], [30, 40]],
+    ['0:1,0:360', [0, 1], [0, 360]],
+    ['167:168,359:360', [167, 168], [359, 360]],
+    [':40,300:', [0, 40], [300, 360]],
+    ['31:33,47:49', [31, 33], [47, 49]],
+  ] as const)('%s gives that window of the whole decode, bit for bit', (region, rows, cols) => {
+    const out = `w-${region.replace(/[:,]/g, '_')}.npy`;
+    const r = rf(['unpack', 'precip.rfz', '-o', out, '--region', region], tmp.dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(new RegExp(`unpacked rows ${rows[0]}\\.\\.${rows[1] - 1}, columns ${cols[0]}\\.\\.${cols[1] - 1} \\(${rows[1] - rows[0]}x${cols[1] - cols[0]}\\) of field 'precip'`));
+    const got = parseNpy(new Uint8Array(readFileSync(join(tmp.dir, out))));
+    expect(got.shape).toEqual([rows[1] - rows[0], cols[1] - cols[0]]);
+    expect(bits(got.data)).toEqual(bits(windowOf([rows[0], rows[1]], [cols[0], cols[1]])));
+  });
+
+  it.each([
+    ['10:20', /region must be R0:R1,C0:C1/],
+    ['a:b,1:2', /region must be R0:R1,C0:C1/],
+    ['10:10,0:5', /region rows 10:10 are empty/],
+    ['0:5,-1:3', /region must be R0:R1,C0:C1/],
+    ['0:200,0:5', /field 'precip' has 168 rows; rows \[0, 200\) lies outside rows 0\.\.168/],
+    ['0:5,360:', /cols \[360, 360\) is empty/],
+  ])('--region %s is refused with one error line and no output', (region, message) => {
+    const r = rf(['unpack', 'precip.rfz', '-o', 'bad.npy', '--region', region], tmp.dir);
+    expectCliError(r, message);
+    expect(leftovers(tmp.dir)).toEqual([]);
+  });
+});
+
+describe('archives at an http URL', () => {
+  it('unpack --region reads only what the window needs and gives the same window', async () => {
+    server.reset();
+    const r = await rfAsync(['unpack', `${server.url}/precip.rfz`, '-o', 'url.npy', '--region', '100:130,200:260'], tmp.dir);
+    expect(r.code, r.stderr).toBe(0);
+    const got = parseNpy(new Uint8Array(readFileSync(join(tmp.dir, 'url.npy'))));
+    expect(bits(got.data)).toEqual(bits(windowOf([100, 130], [200, 260])));
+    // Bytes served: the probe, prologue, tail, header and index, plus the payloads of the
+    // tiles the window touches (tile rows 3..4, tile columns 4..5 of 32x48 tiles).
+    const a = await open(new Uint8Array(readFileSync(join(tmp.dir, 'precip.rfz'))));
+    const ix = a.index.fields[0];
+    const gc = Math.ceil(360 / 48);
+    let payload = 0;
+    for (const ti of [3, 4]) for (const tj of [4, 5]) payload += ix.length[ti * gc + tj];
+    const size = a.size;
+    const tail = new DataView(readFileSync(join(tmp.dir, 'precip.rfz')).buffer.slice(size - 48));
+    const meta = 1 + 16 + 48 + tail.getUint32(8, true) + tail.getUint32(24, true);
+    expect(server.bytesSent).toBe(meta + payload);
+  });
+
+  it('show reads only the probe byte, prologue, tail, header and index, and says what a file show says', async () => {
+    server.reset();
+    const r = await rfAsync(['show', `${server.url}/precip.rfz`, '--json'], tmp.dir);
+    expect(r.code, r.stderr).toBe(0);
+    const local = rf(['show', 'precip.rfz', '--json'], tmp.dir);
+    const a = JSON.parse(r.stdout) as Record<string, unknown>;
+    const b = JSON.parse(local.stdout) as Record<string, unknown>;
+    expect({ ...a, file: '' }).toEqual({ ...b, file: '' });
+    const bytes = readFileSync(join(tmp.dir, 'precip.rfz'));
+    const tail = new DataView(bytes.buffer.slice(bytes.length - 48));
+    expect(server.bytesSent).toBe(1 + 16 + 48 + tail.getUint32(8, true) + tail.getUint32(24, true));
+  });
+
+  it('check URL passes, against the original too', async () => {
+    const r = await rfAsync(['check', `${server.url}/precip.rfz`, '--against', 'precip.npy'], tmp.dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/check passed/);
+  });
+
+  it('a missing URL, an unreachable server and a malformed URL give one error line (exit 2)', async () => {
+    expectCliError(await rfAsync(['show', `${server.url}/none.rfz`], tmp.dir), /cannot reach '.*none\.rfz': HTTP 404 Not Found/);
+    expectCliError(await rfAsync(['unpack', 'http://127.0.0.1:1/x.rfz', '-o', 'x.npy'], tmp.dir), /cannot reach 'http:\/\/127\.0\.0\.1:1\/x\.rfz': .*gave up after 4 attempts/);
+    expectCliError(await rfAsync(['show', 'http://exa mple/x.rfz'], tmp.dir), /'http:\/\/exa mple\/x\.rfz' is not a URL/);
+    expect(leftovers(tmp.dir)).toEqual([]);
+  });
+});

@@ -1,0 +1,332 @@
+/**
+ * Hand-made hostile archives, one per rule of spec/FORMAT.md sections 14-16
+ * that the fuzzer found or that its mutations reach only by luck: each is
+ * refused with a FormatError whose code and message say what and where, or,
+ * for what a reader must accept, reads back unchanged. The archives are
+ * seed archives taken apart and put back with every CRC recomputed
+ * (./model.ts), so only the rule under test is broken.
+ */
+import { deflateSync, inflateSync } from 'fflate';
+import { describe, expect, it } from 'vitest';
+import { open } from '../../src/archive.js';
+import { FormatCode, FormatError, InputCode, InputError } from '../../src/errors.js';
+import { DEFAULT_LIMITS, resolveLimits } from '../../src/format/schema.js';
+import { ArchiveBuilder, pack } from '../../src/pack.js';
+import { MemorySink } from '../../src/format/container.js';
+import { buildSeeds } from './corpus.js';
+import { cloneModel, parse, sections, serialize, type Model } from './model.js';
+import { Lying, Raw, RawMap, encodeValue } from './msgpack.js';
+
+async function refusal(bytes: Uint8Array, readToo = true): Promise<FormatError> {
+  try {
+    const a = await open(bytes);
+    if (readToo) for (const n of a.names) await a.read(n);
+  } catch (e) {
+    if (!(e instanceof FormatError)) throw e;
+    return e;
+  }
+  throw new Error('the archive was accepted');
+}
+
+async function values(bytes: Uint8Array): Promise<Buffer[]> {
+  const a = await open(bytes);
+  const out: Buffer[] = [];
+  for (const n of a.names) {
+    const v = (await a.read(n)).values;
+    out.push(Buffer.from(v.buffer, v.byteOffset, v.byteLength));
+  }
+  return out;
+}
+
+function smooth(rows: number, cols: number): Float64Array {
+  const v = new Float64Array(rows * cols);
+  for (let i = 0; i < rows; i++) for (let j = 0; j < cols; j++) v[i * cols + j] = Math.sin(i / 3) * Math.cos(j / 4) + 0.3 * Math.cos(i / 2) * Math.sin(j / 5);
+  return v;
+}
+
+/** 16x16 smooth field, one tile with factors (rank > 0) and a residual. */
+const factors = () => pack(smooth(16, 16), [16, 16], { bound: 'abs:1e-3', tile: 16, name: 'factors' });
+/** 6x7 field in four tiles with a NaN and a fill cell. */
+const masked = () => {
+  const v = smooth(6, 7);
+  v[4] = NaN;
+  v[20] = -999;
+  return pack(v, [6, 7], { bound: 'rel:1e-2', tile: [3, 4], fill: -999, name: 'sample' });
+};
+/** Two fields. */
+const twoFields = () => {
+  const sink = new MemorySink();
+  const b = new ArchiveBuilder(sink);
+  b.add(smooth(8, 8), [8, 8], { bound: 'abs:1e-3', tile: 4, name: 'a' });
+  b.add(Float32Array.from(smooth(6, 6)), [6, 6], { bound: 'abs:1e-3', tile: 3, name: 'b' });
+  b.finish();
+  return sink.bytes();
+};
+
+function edit(bytes: Uint8Array, change: (m: Model) => void): Uint8Array {
+  const m = cloneModel(parse(bytes));
+  change(m);
+  return serialize(m);
+}
+
+describe('MessagePack blocks are scanned before they are decoded', () => {
+  it('an array declaring 2^32 - 1 elements in a few bytes is refused without allocating them', async () => {
+    const b = edit(masked(), (m) => (m.header.fields[0].attrs = { huge: new Lying('array', 2 ** 32 - 1, [1]) }));
+    const e = await refusal(b);
+    expect(e.code).toBe(FormatCode.Limit);
+    expect(e.message).toMatch(/^archive: header \(at offset \d+\) array of 4294967295 elements at block offset \d+ exceeds the limit of 4194304$/);
+    // Within the limit but beyond the bytes there are: malformed, naming the block offset.
+    const c = edit(masked(), (m) => (m.header.fields[0].attrs = { huge: new Lying('array', 1 << 20, [1]) }));
+    expect((await refusal(c)).message).toMatch(/not valid MessagePack: an array of 1048576 needs 1048576 bytes but only \d+ remain at block offset \d+/);
+  });
+
+  it('a key that occurs twice in one map is refused, even with the same value (spec 6: keys MUST NOT repeat)', async () => {
+    const b = edit(masked(), (m) => {
+      const f = m.header.fields[0];
+      m.header.fields[0] = new RawMap([...Object.entries(f), ['shape', f.shape]]);
+    });
+    expect((await refusal(b)).message).toMatch(/the key "shape" a second time in one map at block offset \d+/);
+    const c = edit(masked(), (m) => (m.index.fields[0].summary = new RawMap([...Object.entries(m.index.fields[0].summary), ['valid', m.index.fields[0].summary.valid]])));
+    expect((await refusal(c)).message).toMatch(/^archive: index .*"valid" a second time/);
+  });
+
+  it('non-string keys, extension types, the byte 0xC1, deep nesting and bytes after the value are refused', async () => {
+    const cases: [string, (m: Model) => void, RegExp][] = [
+      ['integer key', (m) => (m.header.attrs = new RawMap([[1, 'one']])), /a map key of type byte 0x1 \(keys must be strings\)/],
+      ['timestamp extension', (m) => (m.header.attrs = { when: new Raw(Uint8Array.of(0xd6, 0xff, 0, 0, 0, 0)) }), /an extension type \(byte 0xd6\)/],
+      ['0xC1', (m) => (m.header.attrs = { x: new Raw(Uint8Array.of(0xc1)) }), /the unused type byte 0xc1/],
+      ['nesting of 17', (m) => (m.header.future = nest(17)), /nesting deeper than 16/],
+      ['bytes after the index', (m) => (m.indexBytes = Uint8Array.of(...encodeValue(m.index), 0xc0)), /1 bytes after the end of the value/],
+    ];
+    for (const [what, change, message] of cases) {
+      const e = await refusal(edit(masked(), change));
+      expect(e.code, what).toBe(FormatCode.Malformed);
+      expect(e.message, what).toMatch(message);
+    }
+  });
+
+  it('an unknown key is skipped whatever it holds, within the nesting limit (spec 17)', async () => {
+    const want = await values(masked());
+    expect(await values(edit(masked(), (m) => (m.header.future = nest(12))))).toEqual(want);
+  });
+
+  it('a string longer than the limit is refused with code limit', async () => {
+    const b = edit(masked(), (m) => (m.header.attrs = { history: 'x'.repeat(5000) }));
+    expect((await values(b)).length).toBe(1);
+    let e: unknown = null;
+    try {
+      await open(b, { limits: { maxStringBytes: 4096 } });
+    } catch (x) {
+      e = x;
+    }
+    expect((e as FormatError).code).toBe(FormatCode.Limit);
+    expect((e as FormatError).message).toMatch(/string or binary of 5000 bytes at block offset \d+ exceeds the limit of 4096/);
+  });
+});
+
+function nest(depth: number): unknown {
+  let v: unknown = 1;
+  for (let i = 1; i < depth; i++) v = [v];
+  return v;
+}
+
+describe('reader limits', () => {
+  it('are positive integers; anything else is refused as bad caller input', () => {
+    expect(resolveLimits({ maxRank: 8 }).maxRank).toBe(8);
+    expect(resolveLimits(undefined)).toEqual(DEFAULT_LIMITS);
+    for (const bad of [{ maxRank: 0 }, { maxTiles: 1.5 }, { maxCells: NaN }, { maxFields: '9' }, { maxTileSize: 4 }]) {
+      let e: unknown = null;
+      try {
+        resolveLimits(bad as never);
+      } catch (x) {
+        e = x;
+      }
+      expect(e).toBeInstanceOf(InputError);
+      expect((e as InputError).code).toBe(InputCode.Option);
+    }
+  });
+
+  it('a rank above maxRank is refused at open, before any tile is decoded', async () => {
+    const b = factors();
+    const rank = (await open(b)).index.fields[0].rank[0];
+    expect(rank).toBeGreaterThan(1);
+    let e: unknown = null;
+    try {
+      await open(b, { limits: { maxRank: rank - 1 } });
+    } catch (x) {
+      e = x;
+    }
+    expect((e as FormatError).code).toBe(FormatCode.Limit);
+    expect((e as FormatError).message).toMatch(new RegExp(`tile 0 rank ${rank} exceeds the limit of ${rank - 1}`));
+    await open(b, { limits: { maxRank: rank } });
+  });
+
+  it('a tile larger than its field counts only its cells inside the field (spec 6.2: tiles are cut at the edge)', async () => {
+    const b = pack(smooth(3, 5), [3, 5], { bound: 'abs:1e-3', tile: 64 });
+    await open(b, { limits: { maxTileCells: 15 } });
+    let e: unknown = null;
+    try {
+      await open(b, { limits: { maxTileCells: 14 } });
+    } catch (x) {
+      e = x;
+    }
+    expect((e as FormatError).code).toBe(FormatCode.Limit);
+  });
+});
+
+describe('the index', () => {
+  it('refuses payloads shared between fields, naming both tiles', async () => {
+    const base = twoFields();
+    const b = edit(base, (m) => {
+      serialize(m);
+      const [a, c] = m.index.fields;
+      c.offset[0] = a.offset[1];
+      c.length[0] = a.length[1];
+      c.crc[0] = a.crc[1];
+      m.fixIndex = false;
+    });
+    const e = await refusal(b, false);
+    expect(e.code).toBe(FormatCode.Malformed);
+    expect(e.message).toMatch(/the payloads of field 'a' tile 1 \(\d+\+\d+\) and field 'b' tile 0 \(\d+\+\d+\) overlap/);
+  });
+
+  it('refuses a summary that disagrees with its tiles', async () => {
+    const cases: [string, (ix: any) => void, RegExp][] = [
+      ['valid', (ix) => (ix.summary.valid += 1), /summary valid count \d+ is not the sum \d+/],
+      ['max_err', (ix) => (ix.summary.max_err *= 2), /summary max_err .* is not the largest tile max_err/],
+      ['a tile without valid cells but an error', (ix) => ((ix.valid[0] = 0), (ix.summary.valid = ix.valid.reduce((s: number, v: number) => s + v, 0))), /tile 0 has no valid cell but a max_err of/],
+    ];
+    for (const [what, change, message] of cases) {
+      const e = await refusal(edit(masked(), (m) => change(m.index.fields[0])), false);
+      expect(e.message, what).toMatch(message);
+    }
+  });
+});
+
+describe('the header', () => {
+  it('takes the fill value as nil, a number (spec 6.2) or 8 bytes of binary64 (the reference writer), and refuses a missing fill key', async () => {
+    const want = await values(masked());
+    expect(await values(edit(masked(), (m) => (m.header.fields[0].fill = -999)))).toEqual(want);
+    const e = await refusal(edit(masked(), (m) => delete m.header.fields[0].fill));
+    expect(e.message).toMatch(/field 'sample': has no fill key/);
+  });
+
+  it('keeps the sign of a fill of -0 written as a float 64 number', async () => {
+    const v = new Float64Array([1, -0, 0, 2]);
+    const b = pack(v, [2, 2], { bound: 'abs:0.1', tile: 2, fill: -0 });
+    const viaNumber = edit(b, (m) => (m.header.fields[0].fill = -0));
+    expect(Object.is((await open(viaNumber)).header.fields[0].fill, -0)).toBe(true);
+    expect(await values(viaNumber)).toEqual(await values(b));
+  });
+
+  it('refuses a tolerance that is not finite, and names the value it got', async () => {
+    const e = await refusal(edit(masked(), (m) => (m.header.fields[0].bound.tolerance = Infinity)));
+    expect(e.message).toMatch(/bound tolerance must be a finite number >= 0, got Infinity/);
+  });
+
+  it('escapes control characters of names in messages, so a message stays one line and sends no terminal escapes', async () => {
+    const e = await refusal(edit(masked(), (m) => ((m.header.fields[0].name = 'sst\n\u001b[31mred\u2028'), (m.header.fields[0].dtype = 'f16'))));
+    expect(e.message).toBe(`archive field 'sst\\u000a\\u001b[31mred\\u2028': dtype "f16" is not "f32" or "f64"`);
+  });
+
+  it('quotes long values and names briefly in messages', async () => {
+    const e = await refusal(edit(masked(), (m) => (m.header.fields[0].dtype = 'q'.repeat(10000))));
+    expect(e.message.length).toBeLessThan(200);
+    expect(e.message).toMatch(/dtype "q{40}"\.\.\. \(10000 characters\) is not "f32" or "f64"/);
+  });
+});
+
+describe('tile payloads', () => {
+  /**
+   * A seed archive (the fuzz corpus, which is checked to hold every payload
+   * feature) with a tile that has the named section, whatever the encoder's
+   * choices are today.
+   */
+  function withSection(name: string, fill?: 'fill'): { bytes: Uint8Array; f: number; t: number; field: string } {
+    for (const seed of buildSeeds()) {
+      const m = parse(seed.bytes);
+      for (let f = 0; f < m.payloads.length; f++) {
+        if (fill && !(m.header.fields[f].fill instanceof Uint8Array)) continue;
+        const t = m.payloads[f].findIndex((p) => p[0] === 1 && sections(p).sections.some((x) => x.name === name));
+        if (t >= 0) return { bytes: seed.bytes, f, t, field: m.header.fields[f].name };
+      }
+    }
+    throw new Error(`no seed archive has a ${name} section`);
+  }
+
+  /** Rewrite one section of tile t of field f through `change` on its raw data. */
+  function editSection(bytes: Uint8Array, f: number, t: number, name: string, change: (raw: Uint8Array) => Uint8Array | void): Uint8Array {
+    return edit(bytes, (m) => {
+      const p = m.payloads[f][t];
+      const s = sections(p).sections.find((x) => x.name === name);
+      if (!s) throw new Error(`tile ${t} has no ${name} section`);
+      let raw: Uint8Array = inflateSync(p.subarray(s.start + 8, s.end));
+      raw = change(raw) ?? raw;
+      const stored = deflateSync(raw);
+      const head = new Uint8Array(8);
+      new DataView(head.buffer).setUint32(0, raw.length, true);
+      new DataView(head.buffer).setUint32(4, stored.length, true);
+      m.payloads[f][t] = Uint8Array.of(...p.subarray(0, s.start), ...head, ...stored, ...p.subarray(s.end));
+    });
+  }
+
+  it('refuses a fill cell in a field without a fill value, naming the cell by row and column', async () => {
+    const v = smooth(6, 7);
+    v[9] = NaN;
+    const b = pack(v, [6, 7], { bound: 'rel:1e-2', tile: [3, 4] });
+    const e = await refusal(editSection(b, 0, 0, 'mask', (raw) => void (raw[5] = 1)));
+    expect(e.message).toMatch(/^archive field 'field' tile 0: mask cell 5 \(row 1, column 1\) is a fill cell but the field has no fill value$/);
+  });
+
+  it('refuses raw NaN bits that are a number', async () => {
+    const v = smooth(6, 7);
+    new Uint32Array(v.buffer).set([1, 0x7ff00000], 2 * 9); // a signalling NaN: raw NaN class
+    const b = pack(v, [6, 7], { bound: 'rel:1e-2', tile: [3, 4] });
+    const e = await refusal(editSection(b, 0, 0, 'mask', (raw) => new DataView(raw.buffer).setFloat64(12, 2.5, true)));
+    expect(e.message).toMatch(/raw NaN 0 of the mask holds the number 2.5, not a NaN/);
+  });
+
+  it('refuses an exception holding the fill value, or a NaN', async () => {
+    const { bytes, f, t, field } = withSection('exceptions');
+    const h = parse(bytes).header.fields[f];
+    const wide = h.dtype === 'f64';
+    const put = (value: number) =>
+      editSection(bytes, f, t, 'exceptions', (raw) => {
+        const d = new DataView(raw.buffer);
+        const at = 4 + 4 * d.getUint32(0, true);
+        if (wide) d.setFloat64(at, value, true);
+        else d.setFloat32(at, value, true);
+      });
+    const e = await refusal(put(NaN));
+    expect(e.message).toMatch(new RegExp(`^archive field '${field}' tile ${t}: valid cell \\d+ \\(row \\d+, column \\d+\\) decodes to NaN, not a finite value$`));
+    // With a fill value set to what the exception holds (the header is checked, not the payload, for fill values).
+    const withFill = edit(put(-12345), (m) => {
+      const b = new Uint8Array(8);
+      new DataView(b.buffer).setFloat64(0, -12345, true);
+      m.header.fields[f].fill = b;
+    });
+    expect((await refusal(withFill)).message).toMatch(/exception 0 at cell \d+ \(row \d+, column \d+\) holds the fill value/);
+  });
+
+  it('refuses a residual step of NaN and a centre of Infinity, naming the value and where the centre is', async () => {
+    const r = withSection('residual');
+    const e1 = await refusal(editSection(r.bytes, r.f, r.t, 'residual', (raw) => new DataView(raw.buffer).setFloat64(0, NaN, true)));
+    expect(e1.message).toMatch(/residual step NaN is not a positive finite number/);
+    const e2 = await refusal(edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true)));
+    expect(e2.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: centre Infinity at payload offset 4 is not finite$`));
+  });
+
+  it('refuses bytes after a DEFLATE stream inside a section', async () => {
+    const r = withSection('residual');
+    const b = edit(r.bytes, (m) => {
+      const p = m.payloads[r.f][r.t];
+      const s = sections(p).sections.find((x) => x.name === 'residual')!;
+      const d = new DataView(p.buffer);
+      const stored = d.getUint32(s.start + 4, true);
+      const q = Uint8Array.of(...p.subarray(0, s.end), 0, ...p.subarray(s.end));
+      new DataView(q.buffer).setUint32(s.start + 4, stored + 1, true);
+      m.payloads[r.f][r.t] = q;
+    });
+    expect((await refusal(b)).message).toMatch(/residual has 1 bytes after the end of the stream of its DEFLATE data \(section at payload offset \d+\)/);
+  });
+});

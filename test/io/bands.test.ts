@@ -1,0 +1,203 @@
+/**
+ * Band readers for .npy and raw files, the .npy band writer, and FileSink.
+ * Band reads are checked against reading the whole file with parseNpy /
+ * parseRaw (themselves tested against the NumPy format description), and
+ * must read only the rows asked for.
+ */
+import { appendFileSync, mkdtempSync, readFileSync, rmSync, truncateSync, utimesSync, writeFileSync, openSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { afterAll, describe, expect, it } from 'vitest';
+import { ArchiveBuilder, InputCode, InputError, MemorySink, open, pack } from '../../src/index.js';
+import { NpyBandWriter, openNpyBands, openRawBands } from '../../src/io/bands.js';
+import { FileSink } from '../../src/io/file-sink.js';
+import { formatNpy, parseNpy } from '../../src/io/npy.js';
+import { formatRaw, parseRaw } from '../../src/io/raw.js';
+import { volcano } from '../archive/datasets.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'rankfield-bands-'));
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
+
+const g = volcano(); // 61 x 87
+const bits = (a: Float32Array | Float64Array) => new Uint32Array(a.buffer, a.byteOffset, a.byteLength / 4);
+
+/** Rows [r0, r0 + count) of a row-major array. */
+const rowsOf = (a: Float32Array | Float64Array, cols: number, r0: number, count: number) => a.subarray(r0 * cols, (r0 + count) * cols);
+
+/** A .npy v1.0 file written by hand after the format description (big-endian, Fortran order as asked). */
+function handNpy(values: Float64Array, shape: [number, number], descr: string, fortran: boolean): Uint8Array {
+  const [rows, cols] = shape;
+  const dict = `{'descr': '${descr}', 'fortran_order': ${fortran ? 'True' : 'False'}, 'shape': (${rows}, ${cols}), }`;
+  const hl = Math.ceil((10 + dict.length + 1) / 64) * 64 - 10;
+  const item = descr.endsWith('4') ? 4 : 8;
+  const out = new Uint8Array(10 + hl + rows * cols * item);
+  out.set([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0, hl & 0xff, hl >> 8]);
+  for (let i = 0; i < hl - 1; i++) out[10 + i] = i < dict.length ? dict.charCodeAt(i) : 0x20;
+  out[10 + hl - 1] = 0x0a;
+  const view = new DataView(out.buffer, 10 + hl);
+  const little = descr.startsWith('<');
+  for (let i = 0; i < rows; i++) {
+    for (let j = 0; j < cols; j++) {
+      const k = fortran ? j * rows + i : i * cols + j;
+      if (item === 4) view.setFloat32(k * 4, values[i * cols + j], little);
+      else view.setFloat64(k * 8, values[i * cols + j], little);
+    }
+  }
+  return out;
+}
+
+describe('band readers', () => {
+  it.each([
+    ['<f8', false],
+    ['>f8', false],
+    ['<f4', false],
+    ['>f4', true],
+    ['<f8', true],
+  ] as const)('.npy %s fortran=%s: every band equals the same rows of the whole file', (descr, fortran) => {
+    const file = join(dir, `v-${descr.replace(/[<>]/, (c) => (c === '<' ? 'le' : 'be'))}-${fortran}.npy`);
+    const bytes = handNpy(g.values, g.shape, descr, fortran);
+    writeFileSync(file, bytes);
+    const whole = parseNpy(bytes, file);
+    const r = openNpyBands(file);
+    try {
+      expect(r.shape).toEqual([61, 87]);
+      expect(r.dtype).toBe(descr.endsWith('4') ? 'f32' : 'f64');
+      for (const [r0, count] of [[0, 61], [0, 1], [60, 1], [16, 16], [48, 13], [5, 0]]) {
+        expect(bits(r.band(r0, count)), `rows ${r0}+${count}`).toEqual(bits(rowsOf(whole.data, 87, r0, count)));
+      }
+    } finally {
+      r.close();
+    }
+  });
+
+  it('reads only the header and the rows asked for (C order)', () => {
+    const file = join(dir, 'count.npy');
+    const bytes = formatNpy({ data: g.values, shape: [61, 87], dtype: 'f64' });
+    writeFileSync(file, bytes);
+    const r = openNpyBands(file);
+    try {
+      const header = r.bytesRead;
+      expect(header).toBe(bytes.length - 61 * 87 * 8);
+      r.band(10, 3);
+      expect(r.bytesRead - header).toBe(3 * 87 * 8);
+    } finally {
+      r.close();
+    }
+  });
+
+  it('raw files, both byte orders', () => {
+    for (const endian of ['little', 'big'] as const) {
+      const file = join(dir, `v-${endian}.raw`);
+      const data = Float32Array.from(g.values);
+      writeFileSync(file, formatRaw({ data, shape: [61, 87], dtype: 'f32' }, endian));
+      const whole = parseRaw(readFileSync(file), [61, 87], 'f32', endian, file);
+      const r = openRawBands(file, [61, 87], 'f32', endian);
+      try {
+        expect(bits(r.band(7, 20))).toEqual(bits(rowsOf(whole.data, 87, 7, 20)));
+        expect(r.bytesRead).toBe(20 * 87 * 4);
+      } finally {
+        r.close();
+      }
+    }
+  });
+
+  it('refuses files whose size does not fit the shape, and bands outside the rows', () => {
+    const raw = join(dir, 'short.raw');
+    writeFileSync(raw, new Uint8Array(61 * 87 * 4 - 4));
+    expect(() => openRawBands(raw, [61, 87], 'f32', 'little')).toThrow(/needs 5307 values of 4 bytes = 21228 bytes but the file holds 21224 bytes/);
+    const npy = join(dir, 'short.npy');
+    writeFileSync(npy, formatNpy({ data: g.values, shape: [61, 87], dtype: 'f64' }).subarray(0, 1000));
+    expect(() => openNpyBands(npy)).toThrow(/file truncated\?/);
+    const ok = join(dir, 'ok.npy');
+    writeFileSync(ok, formatNpy({ data: g.values, shape: [61, 87], dtype: 'f64' }));
+    const r = openNpyBands(ok);
+    try {
+      expect(() => r.band(60, 2)).toThrow(/rows 60\.\.62 lies outside rows 0\.\.61/);
+    } finally {
+      r.close();
+    }
+    const three = join(dir, 'three.npy');
+    writeFileSync(three, formatNpy({ data: new Float64Array(8), shape: [2, 2, 2], dtype: 'f64' }));
+    expect(() => openNpyBands(three)).toThrow(/3-D array of shape \(2, 2, 2\); only 2-D fields/);
+  });
+
+  it.each([
+    ['grows', (f: string) => appendFileSync(f, new Uint8Array(8)), /its size went from 42456 to 42464 bytes/],
+    ['shrinks', (f: string) => truncateSync(f, 30_000), /its size went from 42456 to 30000 bytes/],
+    ['is rewritten in place', (f: string) => utimesSync(f, new Date(), new Date(Date.now() + 5000)), /it was modified/],
+  ])('reports a file that %s while being read', (_what, change, message) => {
+    const file = join(dir, `changing-${_what.replace(/ /g, '-')}.raw`);
+    writeFileSync(file, formatRaw({ data: g.values, shape: [61, 87], dtype: 'f64' }));
+    const r = openRawBands(file, [61, 87], 'f64', 'little');
+    try {
+      r.band(0, 16);
+      change(file);
+      let e: unknown = null;
+      try {
+        r.band(16, 16);
+      } catch (err) {
+        e = err;
+      }
+      expect(e).toBeInstanceOf(InputError);
+      expect((e as InputError).code).toBe(InputCode.File);
+      expect((e as InputError).message).toMatch(/the file changed while being read/);
+      expect((e as InputError).message).toMatch(message);
+    } finally {
+      r.close();
+    }
+  });
+});
+
+describe('NpyBandWriter', () => {
+  it('writes a .npy file band by band that parseNpy reads back bit for bit', () => {
+    const file = join(dir, 'written.npy');
+    const data = Float32Array.from(g.values);
+    const w = new NpyBandWriter(file, [61, 87], 'f32');
+    for (let r0 = 0; r0 < 61; r0 += 20) w.write(rowsOf(data, 87, r0, Math.min(20, 61 - r0)));
+    w.close();
+    const back = parseNpy(readFileSync(file), file);
+    expect(back.shape).toEqual([61, 87]);
+    expect(bits(back.data)).toEqual(bits(data));
+    // The same header formatNpy writes.
+    expect(readFileSync(file)).toEqual(Buffer.from(formatNpy({ data, shape: [61, 87], dtype: 'f32' })));
+  });
+
+  it('refuses too many or too few rows, and an existing file', () => {
+    const file = join(dir, 'partial.npy');
+    const w = new NpyBandWriter(file, [2, 87], 'f64');
+    w.write(rowsOf(g.values, 87, 0, 1));
+    expect(() => w.write(rowsOf(g.values, 87, 0, 2))).toThrow(/more than the 2 rows/);
+    expect(() => w.close()).toThrow(/1 of 2 rows written/);
+    expect(() => new NpyBandWriter(file, [2, 87], 'f64')).toThrow(/EEXIST/);
+  });
+});
+
+describe('FileSink', () => {
+  it('writes what it is given, in order, across its buffer', () => {
+    const file = join(dir, 'sink.bin');
+    const sink = new FileSink(openSync(file, 'w'), file, 100);
+    const parts = [40, 50, 30, 250, 1, 99, 100].map((n, k) => Uint8Array.from({ length: n }, (_, i) => (i + k * 17) & 0xff));
+    for (const p of parts) sink.write(p);
+    sink.close();
+    sink.close();
+    expect(new Uint8Array(readFileSync(file))).toEqual(Uint8Array.from(parts.flatMap((p) => [...p])));
+    expect(sink.bytesWritten).toBe(570);
+    expect(() => sink.write(new Uint8Array(1))).toThrow(/after the file sink was closed/);
+  });
+
+  it('an archive built into a FileSink holds the same bytes as one built in memory', async () => {
+    const file = join(dir, 'built.rfz');
+    const sink = FileSink.create(file);
+    const b = new ArchiveBuilder(sink);
+    b.add(g.values, g.shape, { bound: 'abs:0.5', tile: 16, name: 'v' });
+    b.finish();
+    sink.close();
+    const mem = new MemorySink();
+    const m = new ArchiveBuilder(mem);
+    m.add(g.values, g.shape, { bound: 'abs:0.5', tile: 16, name: 'v' });
+    m.finish();
+    expect(new Uint8Array(readFileSync(file))).toEqual(mem.bytes());
+    expect(mem.bytes()).toEqual(pack(g.values, g.shape, { bound: 'abs:0.5', tile: 16, name: 'v' }));
+    await open(mem.bytes());
+  });
+});
