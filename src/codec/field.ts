@@ -10,7 +10,8 @@ import { Cell, fillWords } from './mask.js';
 import { ErrorTally } from './tally.js';
 import { decodeTile } from './tile-decode.js';
 import { planL2 } from './plan-l2.js';
-import { encodePointwise, exactPayload, prepareTile, type PreparedTile } from './tile-encode.js';
+import { prepareTile, type PreparedTile } from './prepare.js';
+import { encodePointwise, exactPayload } from './tile-encode.js';
 
 /** What the encoder needs to know about a field. */
 export interface FieldSpec {

@@ -7,7 +7,8 @@
  * by construction and tiles can be written as they are finished.
  */
 import { forEachTile, measure, type BandSource, type FieldSpec } from './field.js';
-import { encodeL2, encodePointwise, energyOf, ensureSvd, exactPayload, prepareTile, type PreparedTile } from './tile-encode.js';
+import { energyOf, ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
+import { encodeL2, encodePointwise, exactPayload } from './tile-encode.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];

@@ -13,7 +13,7 @@ import { Matrix, SVD } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
 import { fillWords } from '../../src/codec/mask.js';
-import { prepareTile } from '../../src/codec/tile-encode.js';
+import { prepareTile } from '../../src/codec/prepare.js';
 import { pack } from '../../src/pack.js';
 import type { Dtype, FloatArray } from '../../src/types.js';
 import { asDtype, close, expectIndexMatches, measure, validCells, validRange, words } from './measure.js';
