@@ -27,6 +27,8 @@ export interface Breakdown {
   meanRank: number;
   /** Tiles stored with the exact (lossless) method. */
   exactTiles: number;
+  /** Factor values stored, sum of rank x (rows + cols) over tiles: comparable with the Eckart-Young floor's count. */
+  factorValues: number;
   /** Bytes of the quantized factors (DEFLATE streams of the factor groups). */
   factors: number;
   /** Bytes of the residual and exception streams, and of exact tiles. */
@@ -79,6 +81,14 @@ export async function breakdown(bytes: Uint8Array): Promise<Breakdown> {
     residual += r;
   }
   const tiles = ix.rank.length;
+  const h = archive.header.fields[0];
+  const gc = Math.ceil(h.shape[1] / h.tile[1]);
+  let factorValues = 0;
+  for (let t = 0; t < tiles; t++) {
+    const m = Math.min(h.tile[0], h.shape[0] - Math.floor(t / gc) * h.tile[0]);
+    const n = Math.min(h.tile[1], h.shape[1] - (t % gc) * h.tile[1]);
+    factorValues += ix.rank[t] * (m + n);
+  }
   const meanRank = tiles > 0 ? ix.rank.reduce((a, b) => a + b, 0) / tiles : 0;
-  return { tiles, meanRank, exactTiles, factors, residual, metadata: bytes.length - factors - residual, total: bytes.length };
+  return { tiles, meanRank, exactTiles, factorValues, factors, residual, metadata: bytes.length - factors - residual, total: bytes.length };
 }

@@ -88,7 +88,7 @@ function notes(r: Row): string {
   const b = r.breakdown;
   if (!b) return r.reason ?? '';
   const pct = (v: number): string => `${((100 * v) / b.total).toFixed(0)}%`;
-  return `mean rank ${b.meanRank.toFixed(2)}; factors ${pct(b.factors)}, residual ${pct(b.residual)}, metadata ${pct(b.metadata)}${b.exactTiles ? `; ${b.exactTiles}/${b.tiles} tiles exact` : ''}`;
+  return `mean rank ${b.meanRank.toFixed(2)} (${b.factorValues} factor values); factors ${pct(b.factors)}, residual ${pct(b.residual)}, metadata ${pct(b.metadata)}${b.exactTiles ? `; ${b.exactTiles}/${b.tiles} tiles exact` : ''}`;
 }
 
 function table(rows: Row[]): string[] {
@@ -194,6 +194,7 @@ export function renderResults(info: RunInfo): string {
   lines.push('- RMSE and PSNR (20 log10(range / RMSE)) are measured over valid cells of the decoded field; missing cells must come back bit for bit.');
   lines.push('- Every output is decoded and checked against the original in this run: a row whose bound is not met (or whose missing cells differ) is **FAILED**, with the reason.');
   lines.push('- MB/s = float32 bytes of the field / median wall time (tinybench, sequential runs, no warm-up phase: the first run is the check run), 10^6 bytes per MB. "runs" is how many runs the median is of; a cell whose first run is slow is timed by that run alone.');
+  lines.push('- rankfield notes: mean rank over tiles and the factor values it stores (sum of rank x (rows + cols), to set against the floor\'s count); shares of its bytes: factors = the factor DEFLATE streams, residual = residual and exception streams and exact tiles, metadata = everything else (each tile\'s fixed part with its centre, mask sections, section headers, container header, index and tail).');
   lines.push('- The best baseline of a cell is the working (not failed, not skipped) baseline with the highest ratio; the Eckart-Young floor is not a codec and never counts as the best.');
   lines.push('');
   lines.push('## Methods');

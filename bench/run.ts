@@ -34,10 +34,10 @@ interface Args {
   out: string;
 }
 
-const USAGE = 'usage: npm run bench -- [--quick] [--fields id,id,...] [--out DIR]';
+const USAGE = 'usage: npm run bench -- [--quick] [--fields id,id,...] [--out DIR]   (default DIR: bench/, or bench/out/quick/ with --quick)';
 
 function parseArgs(argv: string[]): Args {
-  const args: Args = { quick: false, fields: null, out: join(process.cwd(), 'bench') };
+  const args: Args = { quick: false, fields: null, out: '' };
   for (let i = 0; i < argv.length; i++) {
     const a = argv[i];
     if (a === '--quick') args.quick = true;
@@ -51,6 +51,8 @@ function parseArgs(argv: string[]): Args {
       process.exit(2);
     }
   }
+  // The full run writes the committed bench/RESULTS.md; a quick run goes to scratch (git-ignored) so it never replaces it.
+  args.out ||= join(process.cwd(), 'bench', ...(args.quick ? ['out', 'quick'] : []));
   return args;
 }
 
@@ -115,7 +117,7 @@ async function main(): Promise<void> {
   const args = parseArgs(process.argv.slice(2));
   const started = new Date();
   const machineFacts = machine();
-  const timing: TimingOptions = args.quick ? { iterations: 2, timeMs: 30, slowMs: 150, minRuns: 1 } : { iterations: 5, timeMs: 400, slowMs: 1500, minRuns: 1 };
+  const timing: TimingOptions = args.quick ? { iterations: 2, timeMs: 30, slowMs: 150, minRuns: 1 } : { iterations: 5, timeMs: 200, slowMs: 1500, minRuns: 1 };
   const speedRuns = 3;
   log(`building fields (${args.quick ? 'quick' : 'full'} run)`);
   let fields = benchFields(args.quick);

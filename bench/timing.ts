@@ -8,7 +8,7 @@ export interface TimingOptions {
   timeMs: number;
   /** A task whose first run takes longer than this is timed by that run alone (unless minRuns asks for more). */
   slowMs: number;
-  /** Runs required whatever the cost (the speed-target cells). */
+  /** When above 1: exactly this many runs, whatever the cost (the speed-target cells). */
   minRuns: number;
 }
 
@@ -30,7 +30,7 @@ async function bench(fn: () => unknown, iterations: number, time: number): Promi
 
 /** Time `fn`; errors it throws propagate (the first run is also the check that it works). */
 export async function timeTask(fn: () => unknown, o: TimingOptions): Promise<Timing> {
-  if (o.minRuns > 1) return bench(fn, Math.max(o.minRuns, o.iterations), o.timeMs);
+  if (o.minRuns > 1) return bench(fn, o.minRuns, 0);
   const probe = await bench(fn, 1, 0);
   if (probe.medianMs >= o.slowMs) return probe;
   // The probe doubled as warm-up.

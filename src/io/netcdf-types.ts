@@ -1,0 +1,149 @@
+/**
+ * Types and format constants shared by the NetCDF classic reader
+ * (`netcdf-read.ts`) and writer (`netcdf-write.ts`).
+ *
+ * The constants come from the NetCDF classic format specification (the BNF
+ * grammar of the header in the NetCDF User's Guide, "File Format
+ * Specifications"), quoted here from memory: the magic is 'C' 'D' 'F'
+ * followed by a version byte (1 for the classic format, CDF-1; 2 for the
+ * 64-bit-offset format, CDF-2); every integer is big-endian; list tags are
+ * NC_DIMENSION = 0x0A, NC_VARIABLE = 0x0B, NC_ATTRIBUTE = 0x0C; the types
+ * are NC_BYTE = 1 (signed 8-bit), NC_CHAR = 2, NC_SHORT = 3, NC_INT = 4,
+ * NC_FLOAT = 5, NC_DOUBLE = 6.
+ */
+
+/** The six external types of the classic data model. */
+export type NcType = 'byte' | 'char' | 'short' | 'int' | 'float' | 'double';
+
+/** Numeric types an attribute may be given explicitly when writing. */
+export type NcNumericType = Exclude<NcType, 'char'>;
+
+/**
+ * An attribute value: text (NC_CHAR, UTF-8), one number, or a list of
+ * numbers (any numeric type; a one-element list reads back as a number).
+ */
+export type NcAttrValue = string | number | number[];
+
+/** Attributes by name, in file order. */
+export type NcAttrs = Record<string, NcAttrValue>;
+
+/** One dimension. `size` of the unlimited dimension is the number of records. */
+export interface NcDimension {
+  name: string;
+  size: number;
+  unlimited: boolean;
+}
+
+/** One variable as described by the header (no data). */
+export interface NcVariable {
+  name: string;
+  /** Dimension names, slowest-varying first. */
+  dims: string[];
+  /** Dimension sizes; the unlimited (record) dimension counts the records. */
+  shape: number[];
+  /** Stored (external) type. */
+  type: NcType;
+  /** Attributes, values as in {@link NcAttrValue}. */
+  attrs: NcAttrs;
+  /** The stored type of each attribute in `attrs`. */
+  attrTypes: Record<string, NcType>;
+  /** True when the first dimension is the unlimited one. */
+  isRecord: boolean;
+  /** File offset of the data (of the first record, for a record variable). */
+  begin: number;
+}
+
+/** A parsed NetCDF classic or 64-bit-offset header. */
+export interface NcFile {
+  format: 'classic' | '64bit-offset';
+  dims: NcDimension[];
+  globalAttrs: NcAttrs;
+  /** The stored type of each global attribute. */
+  globalAttrTypes: Record<string, NcType>;
+  variables: NcVariable[];
+  /** Number of records (the unlimited dimension's size; 0 when there is none). */
+  numRecords: number;
+  /** Bytes from one record to the next (0 without record variables). */
+  recordSize: number;
+}
+
+/** What {@link readNetcdfVariable} returns: one variable's physical values. */
+export interface NcValues {
+  /**
+   * Row-major values of the selected hyperslab. Float32Array for unpacked
+   * float variables and for unpacked byte and short variables (exact);
+   * Float64Array for double, int and every packed variable.
+   */
+  values: Float32Array | Float64Array;
+  dtype: 'f32' | 'f64';
+  /** Shape of `values` (the variable's shape, or the hyperslab's count). */
+  shape: number[];
+  /** Dimension names, one per axis of `shape`. */
+  dims: string[];
+  /**
+   * The value every missing cell holds in `values`, or null when there is
+   * none. A fill that never occurs may still be reported (it is the value a
+   * writer should declare as _FillValue).
+   */
+  fill: number | null;
+  /** Where `fill` came from. */
+  fillSource: '_FillValue' | 'missing_value' | 'default' | null;
+  /** Cells of the selection equal to `fill` (NaN cells are not counted). */
+  fillCount: number;
+  /**
+   * Cells that held another missing value (a second missing_value, or a
+   * _FillValue/missing_value different from `fill`) and now hold `fill`.
+   */
+  remapped: number;
+  /** The variable's attributes as stored (see {@link physicalAttributes} for writing the values back). */
+  attrs: NcAttrs;
+  /** True when scale_factor/add_offset were applied. */
+  unpacked: boolean;
+  /** The stored type and the packing applied, for reports. */
+  storedType: NcType;
+  packing: { scale: number; offset: number } | null;
+}
+
+/** Type codes, as stored in the file. */
+export const NC_TYPE_CODE: Record<NcType, number> = { byte: 1, char: 2, short: 3, int: 4, float: 5, double: 6 };
+
+/** Type names by code (index 0 unused). */
+export const NC_TYPE_BY_CODE: readonly (NcType | undefined)[] = [undefined, 'byte', 'char', 'short', 'int', 'float', 'double'];
+
+/** Bytes per value of each type. */
+export const NC_TYPE_SIZE: Record<NcType, 1 | 2 | 4 | 8> = { byte: 1, char: 1, short: 2, int: 4, float: 4, double: 8 };
+
+/** List tags of the header grammar. */
+export const NC_DIMENSION = 0x0a;
+export const NC_VARIABLE = 0x0b;
+export const NC_ATTRIBUTE = 0x0c;
+
+/** numrecs value meaning "not known, count the records from the file length". */
+export const NC_STREAMING = 0xffffffff;
+
+/**
+ * The netCDF library's default fill values (from memory of netcdf.h:
+ * NC_FILL_BYTE -127, NC_FILL_CHAR 0, NC_FILL_SHORT -32767,
+ * NC_FILL_INT -2147483647, NC_FILL_FLOAT and NC_FILL_DOUBLE
+ * 9.9692099683868690e+36; the float one is the binary32 value 0x7CF00000).
+ */
+export const NC_DEFAULT_FILL: Record<NcType, number> = {
+  byte: -127,
+  char: 0,
+  short: -32767,
+  int: -2147483647,
+  float: Math.fround(9.969209968386869e36),
+  double: 9.969209968386869e36,
+};
+
+/** Smallest and largest value of each integer type (signed). */
+export const NC_INT_RANGE: Record<'byte' | 'short' | 'int', [number, number]> = {
+  byte: [-128, 127],
+  short: [-32768, 32767],
+  int: [-2147483648, 2147483647],
+};
+
+/** Rounds `n` up to a multiple of 4 (the format's alignment). */
+export function pad4(n: number): number {
+  return n + ((4 - (n % 4)) % 4);
+}
