@@ -21,6 +21,14 @@ export const rankfield: Codec = {
   },
 };
 
+/** rankfield with the tile shape chosen by trial (`tile: 'auto'`). */
+export const rankfieldAuto: Codec = {
+  ...rankfield,
+  id: 'rankfield-auto',
+  describe: "this library with pack(values, shape, { bound, tile: 'auto', fill }): 64, 128, 256 and whole-field tiles tried on a sample, the smallest kept.",
+  encode: (field, target) => pack(field.values, [field.rows, field.cols], { bound: target.text, tile: 'auto', fill: field.fill }),
+};
+
 /** Where rankfield's bytes go. */
 export interface Breakdown {
   tiles: number;

@@ -66,14 +66,14 @@ export interface Quotient {
   value: number | null;
 }
 
-export function quotients(info: RunInfo): Quotient[] {
+export function quotients(info: RunInfo, ours = 'rankfield'): Quotient[] {
   const out: Quotient[] = [];
   for (const f of info.fields) {
     for (const b of info.bounds) {
       const cell = info.rows.filter((r) => r.field === f.id && r.bound === b);
       if (cell.length === 0) continue;
-      const rf = cell.find((r) => r.method === 'rankfield');
-      const base = cell.filter((r) => r.method !== 'rankfield' && r.status === 'ok' && r.ratio !== undefined);
+      const rf = cell.find((r) => r.method === ours);
+      const base = cell.filter((r) => !r.method.startsWith('rankfield') && r.status === 'ok' && r.ratio !== undefined);
       const best = base.reduce<Row | undefined>((a, r) => (a === undefined || (r.ratio ?? 0) > (a.ratio ?? 0) ? r : a), undefined);
       const value = rf?.status === 'ok' && best?.ratio && rf.ratio ? rf.ratio / best.ratio : null;
       out.push({ field: f.id, bound: b, rankfield: rf, best, value });
@@ -119,15 +119,15 @@ function table(rows: Row[]): string[] {
   return out;
 }
 
-function summaryLine(info: RunInfo, q: Quotient[], field: string): string {
+function summaryLine(info: RunInfo, q: Quotient[], field: string, ours = 'rankfield'): string {
   const parts = q
     .filter((c) => c.field === field)
     .map((c) => {
-      if (c.rankfield?.status !== 'ok') return `${c.bound} rankfield ${c.rankfield ? 'FAILED' : 'missing'}`;
+      if (c.rankfield?.status !== 'ok') return `${c.bound} ${ours} ${c.rankfield ? 'FAILED' : 'missing'}`;
       if (c.value === null || !c.best) return `${c.bound} no working baseline`;
       return `${c.bound} ${c.value.toFixed(2)}x (vs ${c.best.method})`;
     });
-  return `- **${field}**: rankfield ratio / best baseline ratio: ${parts.join(' · ')}`;
+  return `- **${field}**: ${ours} ratio / best baseline ratio: ${parts.join(' · ')}`;
 }
 
 function targets(info: RunInfo, q: Quotient[]): string[] {
@@ -180,6 +180,13 @@ export function renderResults(info: RunInfo): string {
   lines.push('');
   for (const f of info.fields) lines.push(summaryLine(info, q, f.id));
   lines.push('');
+  const qa = quotients(info, 'rankfield-auto');
+  if (qa.some((c) => c.rankfield)) {
+    lines.push('With `tile: \'auto\'` (the tile shape chosen by trial on a sample):');
+    lines.push('');
+    for (const f of info.fields) if (qa.some((c) => c.field === f.id && c.rankfield)) lines.push(summaryLine(info, qa, f.id, 'rankfield-auto'));
+    lines.push('');
+  }
   const ranked = q.filter((c) => c.value !== null).sort((a, b) => (a.value as number) - (b.value as number));
   lines.push(`Worst cells against the best baseline: ${ranked.slice(0, 3).map((c) => `${c.field} ${c.bound} ${(c.value as number).toFixed(2)}x (vs ${c.best?.method})`).join('; ') || 'none'}.`);
   lines.push('');

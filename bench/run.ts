@@ -19,14 +19,14 @@ import { quantize } from './baselines/quantize.js';
 import { benchFields, type BenchField } from './fields.js';
 import { validRange, type Target } from './metrics.js';
 import { renderPlot, type Marker, type Rgb, type Series } from './plot.js';
-import { breakdown, rankfield, TILE } from './rankfield.js';
+import { breakdown, rankfield, rankfieldAuto, TILE } from './rankfield.js';
 import { renderResults, type FieldInfo, type Row } from './report.js';
 import { timeTask, type TimingOptions } from './timing.js';
 
 export const BOUNDS = ['rel:1e-2', 'rel:1e-3', 'rel:1e-4', 'psnr:40', 'psnr:60', 'psnr:80'];
 /** The bound of the speed targets. */
 const SPEED_BOUND = 'rel:1e-3';
-const CODECS: Codec[] = [rankfield, deflateRaw, quantize, lorenzo, globalSvd, columnSubset];
+const CODECS: Codec[] = [rankfield, rankfieldAuto, deflateRaw, quantize, lorenzo, globalSvd, columnSubset];
 
 interface Args {
   quick: boolean;
@@ -63,6 +63,7 @@ function log(text: string): void {
 
 const STYLE: Record<string, { color: Rgb; marker: Marker; dashed?: boolean }> = {
   rankfield: { color: [210, 30, 30], marker: 'square' },
+  'rankfield-auto': { color: [120, 20, 20], marker: 'square', dashed: true },
   quantize: { color: [40, 90, 210], marker: 'circle' },
   lorenzo: { color: [20, 150, 60], marker: 'triangle' },
   'global-svd': { color: [150, 50, 180], marker: 'diamond' },
@@ -173,7 +174,7 @@ async function main(): Promise<void> {
         } else {
           const outcome = await runCodec(codec, field, target, t);
           row = outcome.row;
-          if (codec.id === rankfield.id && outcome.bytes) row.breakdown = await breakdown(outcome.bytes);
+          if (codec.id.startsWith('rankfield') && outcome.bytes) row.breakdown = await breakdown(outcome.bytes);
         }
         fieldRows.push(row);
         log(`${field.id} ${text} ${codec.id}: ${row.status}${row.ratio ? ` ratio ${row.ratio.toFixed(2)}` : ''}${row.encMBs ? ` enc ${row.encMBs.toFixed(2)} MB/s` : ''}${row.decMBs ? ` dec ${row.decMBs.toFixed(1)} MB/s` : ''}${row.reason ? ` (${row.reason})` : ''}`);

@@ -3,6 +3,7 @@
  * L2 bounds share the field's squared-error budget across tiles, discarding
  * the field-wide smallest singular values first (Eckart-Young).
  */
+import { FormatError } from '../errors.js';
 import { crc32 } from '../format/crc32.js';
 import type { Bound, Dtype, FloatArray } from '../types.js';
 import { isPointwise, resolveBound } from './bound.js';
@@ -119,9 +120,18 @@ export function validRange(src: BandSource, spec: FieldSpec): [number, number] |
 
 /** Decode a payload and measure it against the original tile. */
 export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array | null): { stats: TileStats; tally: ErrorTally } {
-  const out = decodeTile(payload, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check' });
   const codes = t.classes.codes;
   const tally = new ErrorTally();
+  let out: FloatArray;
+  try {
+    out = decodeTile(payload, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check' });
+  } catch (e) {
+    // A candidate the decoder refuses (e.g. values rounding past the float32 maximum)
+    // fails every bound, so the caller falls back to exact storage.
+    if (!(e instanceof FormatError)) throw e;
+    tally.add(NaN);
+    return { stats: { method: payload[0], rank: 0, valid: t.valid, maxErr: NaN, rmse: NaN, valueCrc: 0 }, tally };
+  }
   for (let c = 0; c < codes.length; c++) {
     if (codes[c] === Cell.Valid) tally.add(Math.abs(t.orig[c] - out[c]));
   }
