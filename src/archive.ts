@@ -9,7 +9,7 @@ import { decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
 import { readContainer, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
-import { DEFAULT_LIMITS, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Limits } from './format/schema.js';
+import { DEFAULT_LIMITS, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Limits, checkReadCells, quoteName } from './format/schema.js';
 import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
 import type { Dtype, FloatArray } from './types.js';
 
@@ -87,6 +87,8 @@ export class Archive {
   readonly index: ArchiveIndex;
   /** Size of the archive in bytes. */
   readonly size: number;
+  /** The reader limits this archive was checked against. */
+  readonly limits: Limits;
 
   constructor(
     private readonly source: ByteSource,
@@ -96,6 +98,7 @@ export class Archive {
     this.header = container.header;
     this.index = container.index;
     this.size = container.size;
+    this.limits = container.limits;
   }
 
   /** Names of the fields, in archive order. */
@@ -124,14 +127,14 @@ export class Archive {
 
   /** Check a fetched payload against the index and decode it. */
   private decodePayload(h: FieldHeader, ix: FieldIndex, t: number, payload: Uint8Array, verifyValues: boolean): FloatArray {
-    const where = `${this.source.label} field '${h.name}' tile ${t}`;
+    const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
     if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${ix.offset[t]})`);
     const rank = payload[0] === 1 && payload.length >= 4 ? payload[2] | (payload[3] << 8) : 0;
     if (payload[0] !== ix.method[t] || rank !== ix.rank[t]) {
       throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${payload[0]} rank ${rank}, the index says method ${ix.method[t]} rank ${ix.rank[t]}`);
     }
     const [m, n] = tileDims(h, t);
-    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where });
+    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: ix.offset[t], maxRank: this.limits.maxRank });
     if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== ix.value_crc[t]) {
       throw new FormatError(FormatCode.Checksum, `${where}: decoded values differ from those verified at encode time (value CRC-32 mismatch)`);
     }
@@ -187,6 +190,7 @@ export class Archive {
     const [tr, tc] = h.tile;
     const gc = Math.ceil(h.shape[1] / tc);
     const width = c1 - c0;
+    checkReadCells((r1 - r0) * width, this.limits, `${this.source.label} field ${quoteName(h.name)}`);
     const values = allocate(h.dtype, (r1 - r0) * width, h.name);
     const tiles: number[] = [];
     for (let ti = Math.floor(r0 / tr); ti * tr < r1; ti++) {
@@ -346,7 +350,6 @@ function extract(values: FloatArray, cols: number, h: FieldHeader, t: number): F
 /** Open an archive from bytes in memory or any {@link ByteSource}. */
 export async function open(source: Uint8Array | ByteSource, options: OpenOptions = {}): Promise<Archive> {
   const src = source instanceof Uint8Array ? new MemorySource(source) : source;
-  const limits = { ...DEFAULT_LIMITS, ...options.limits };
-  const container = await readContainer(src, limits);
+  const container = await readContainer(src, options.limits);
   return new Archive(src, container, options.coalesce);
 }

@@ -109,7 +109,7 @@ function parseHeader(bytes: Uint8Array, name: string): { header: Header; end: nu
         continue;
       }
       if (outOfBounds) fileError(name, 'the NetCDF header ends early: it describes more than the file holds (truncated or corrupt file)');
-      const reason = e instanceof Error ? e.message.replace(/^Not a valid NetCDF v3\.x file: /, '') : String(e);
+      const reason = (e instanceof Error ? e.message : String(e)).replace(/^Not a valid NetCDF v3\.x file: /, '').replace(/^non valid type (\d+)$/, 'unknown type code $1');
       fileError(name, `malformed NetCDF header: ${reason}`);
     }
   }

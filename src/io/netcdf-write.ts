@@ -479,7 +479,12 @@ export function writeNetcdf(file: NcWriteFile): Uint8Array {
   });
   const header = buildHeader(file, c, layout.format, layout.begins);
   if (header.length !== layout.headerBytes) throw new Error('NetCDF writer: header size changed between passes');
-  const out = new Uint8Array(layout.totalBytes);
+  let out: Uint8Array;
+  try {
+    out = new Uint8Array(layout.totalBytes);
+  } catch {
+    return optionError(`the file would take ${layout.totalBytes} bytes, more than can be built in memory here`);
+  }
   out.set(header, 0);
   const view = new DataView(out.buffer);
   const records = c.isRecord.filter((r) => r).length;
