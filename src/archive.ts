@@ -3,7 +3,8 @@
  * them. Only the payloads a call needs are fetched from the source.
  */
 import { Cell, classify, fillWords } from './codec/mask.js';
-import { isPointwise } from './codec/bound.js';
+import { checkBound, isPointwise, parseBound, resolveBound } from './codec/bound.js';
+import { prefixLengths } from './codec/payload.js';
 import { ErrorTally } from './codec/tally.js';
 import { decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
@@ -11,7 +12,7 @@ import { readContainer, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
 import { DEFAULT_LIMITS, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Limits, checkReadCells, quoteName } from './format/schema.js';
 import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
-import type { Dtype, FloatArray } from './types.js';
+import type { Bound, Dtype, FloatArray } from './types.js';
 
 /** A decoded field, or a window of one. */
 export interface FieldValues {
@@ -23,6 +24,14 @@ export interface FieldValues {
   values: FloatArray;
   /** Where the window lies in the field: half-open row and column ranges. */
   window: { rows: [number, number]; cols: [number, number] };
+  /**
+   * What the returned values are known to satisfy, from the figures recorded
+   * at encode time for the tiles (or tile prefixes) they came from: the
+   * largest error of any value, and the RMSE over those tiles' valid values.
+   */
+  achieved: { maxErr: number; rmse: number };
+  /** Tiles served from a prefix (factors only) rather than their whole payload. */
+  prefixTiles: number;
 }
 
 /**
@@ -40,10 +49,26 @@ export interface ReadOptions {
    * payload CRCs are always checked.
    */
   verify?: boolean;
+  /**
+   * A looser bound than the archive holds (progressive reading): each tile
+   * is read only as far as a prefix of its payload whose recorded error meets
+   * this bound (resolved against the field's stored value range), else whole.
+   * `achieved` in the result states what the returned values satisfy.
+   */
+  bound?: Bound | string;
 }
 
 /** Keys {@link ReadOptions} may hold; any other is refused, so a misspelt option is not silently ignored. */
-const READ_KEYS = ['rows', 'cols', 'verify'];
+const READ_KEYS = ['rows', 'cols', 'verify', 'bound'];
+
+/** What a read takes of one tile. */
+interface TileChoice {
+  length: number;
+  prefix: boolean;
+  crc: number;
+  maxErr: number;
+  rmse: number;
+}
 
 /** Payload bytes fetched per batch of a read: bounds the memory a read holds besides its output. */
 const BATCH_BYTES = 16 << 20;
@@ -153,15 +178,16 @@ export class Archive {
     tiles: readonly number[],
     use: (t: number, payload: Uint8Array | FormatError) => void,
     isolate = false,
+    lengthOf: (t: number) => number = (t) => ix.length[t],
   ): Promise<void> {
     for (let k = 0; k < tiles.length; ) {
       const batch: number[] = [];
       let bytes = 0;
-      while (k < tiles.length && (batch.length === 0 || bytes + ix.length[tiles[k]] <= BATCH_BYTES)) {
-        bytes += ix.length[tiles[k]];
+      while (k < tiles.length && (batch.length === 0 || bytes + lengthOf(tiles[k]) <= BATCH_BYTES)) {
+        bytes += lengthOf(tiles[k]);
         batch.push(tiles[k++]);
       }
-      const ranges: ByteRange[] = batch.map((t) => ({ offset: ix.offset[t], length: ix.length[t] }));
+      const ranges: ByteRange[] = batch.map((t) => ({ offset: ix.offset[t], length: lengthOf(t) }));
       let payloads: (Uint8Array | FormatError)[];
       try {
         payloads = await readRanges(this.source, ranges, this.coalesce);
@@ -185,6 +211,7 @@ export class Archive {
     const { header: h, index: ix } = this.field(name);
     const { rows, cols } = checkWindow(h, options);
     const verify = options.verify === true;
+    const plan = this.progressivePlan(h, ix, options.bound);
     const [r0, r1] = rows;
     const [c0, c1] = cols;
     const [tr, tc] = h.tile;
@@ -196,9 +223,15 @@ export class Archive {
     for (let ti = Math.floor(r0 / tr); ti * tr < r1; ti++) {
       for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) tiles.push(ti * gc + tj);
     }
+    const tally = { max: 0, sq: 0, valid: 0, prefixTiles: 0 };
     await this.eachPayload(ix, tiles, (t, payload) => {
       if (payload instanceof FormatError) throw payload;
-      const tile = this.decodePayload(h, ix, t, payload, verify);
+      const choice = plan(t);
+      const tile = choice.prefix ? this.decodePrefix(h, ix, t, payload, choice.crc) : this.decodePayload(h, ix, t, payload, verify);
+      if (!(choice.maxErr <= tally.max)) tally.max = choice.maxErr;
+      tally.sq += ix.valid[t] * choice.rmse * choice.rmse;
+      tally.valid += ix.valid[t];
+      if (choice.prefix) tally.prefixTiles++;
       const i0 = Math.floor(t / gc) * tr;
       const j0 = (t % gc) * tc;
       const [, n] = tileDims(h, t);
@@ -208,8 +241,40 @@ export class Archive {
       const hi = Math.min(c1, j0 + n);
       // Same-type typed-array copies move bytes, so NaN payloads survive.
       for (let i = a; i < b; i++) values.set(tile.subarray((i - i0) * n + (lo - j0), (i - i0) * n + (hi - j0)), (i - r0) * width + (lo - c0));
-    });
-    return { name: h.name, dtype: h.dtype, shape: [r1 - r0, width], values, window: { rows: [r0, r1], cols: [c0, c1] } };
+    }, false, (t) => plan(t).length);
+    const achieved = { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 };
+    return { name: h.name, dtype: h.dtype, shape: [r1 - r0, width], values, window: { rows: [r0, r1], cols: [c0, c1] }, achieved, prefixTiles: tally.prefixTiles };
+  }
+
+  /**
+   * For each tile, what to read: the shortest recorded prefix whose error
+   * meets the requested bound, else the whole payload.
+   */
+  private progressivePlan(h: FieldHeader, ix: FieldIndex, bound: Bound | string | undefined): (t: number) => TileChoice {
+    const whole = (t: number): TileChoice => ({ length: ix.length[t], prefix: false, crc: ix.crc[t], maxErr: ix.max_err[t], rmse: ix.rmse[t] });
+    if (bound === undefined) return whole;
+    const b = typeof bound === 'string' ? parseBound(bound) : checkBound(bound);
+    const range = h.bound.range;
+    const tol = resolveBound(b, range ? range[1] - range[0] : 0);
+    const pointwise = isPointwise(b.mode);
+    return (t) => {
+      const p = ix.prefix?.[t] ?? [];
+      for (let k = 0; k < p.length; k += 4) {
+        const [length, crc, maxErr, rmse] = p.slice(k, k + 4);
+        if (pointwise ? maxErr <= tol : rmse <= tol) return { length, prefix: true, crc, maxErr, rmse };
+      }
+      return whole(t);
+    };
+  }
+
+  /** Check a fetched prefix against its recorded CRC and decode its factor groups. */
+  private decodePrefix(h: FieldHeader, ix: FieldIndex, t: number, bytes: Uint8Array, crc: number): FloatArray {
+    const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
+    if (crc32(bytes) !== crc) throw new FormatError(FormatCode.Checksum, `${where}: prefix of ${bytes.length} bytes fails its CRC-32 (payload at offset ${ix.offset[t]})`);
+    const groups = prefixLengths(bytes).indexOf(bytes.length);
+    if (groups < 0) throw new FormatError(FormatCode.Malformed, `${where}: the index lists a prefix of ${bytes.length} bytes that does not end at a factor group`);
+    const [m, n] = tileDims(h, t);
+    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: ix.offset[t], maxRank: this.limits.maxRank, groups });
   }
 
   /**

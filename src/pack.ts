@@ -120,6 +120,7 @@ export class ArchiveBuilder {
       ix.max_err.push(tile.stats.maxErr);
       ix.rmse.push(tile.stats.rmse);
       ix.value_crc.push(tile.stats.valueCrc);
+      (ix.prefix ??= []).push(tile.stats.prefix);
     });
     ix.summary = { valid: result.valid, max_err: result.maxErr, rmse: result.rmse };
     const header: FieldHeader = {

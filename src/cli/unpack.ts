@@ -7,7 +7,9 @@ import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files
 import { seconds } from './format.js';
 import { isNpyPath } from './input.js';
 import type { Context } from './main.js';
-import { endianOption, nameOption } from './options.js';
+import { boundOption, endianOption, nameOption } from './options.js';
+import { formatBound } from '../codec/bound.js';
+import type { Bound } from '../types.js';
 
 /** A window as given by --region: each end may be left open (to the field's edge). */
 export interface Region {
@@ -19,6 +21,7 @@ interface UnpackFlags {
   output: string;
   field?: string;
   region?: Region;
+  bound?: Bound;
   endian?: 'little' | 'big';
   force?: boolean;
 }
@@ -72,6 +75,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .requiredOption('-o, --output <OUT>', 'file to write: OUT.npy, or raw binary (e.g. OUT.raw)')
     .option('--field <NAME>', 'field to decode (default: the first)', nameOption)
     .option('--region <R0:R1,C0:C1>', 'decode only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
+    .option('--bound <MODE:VALUE>', 'a looser bound than the archive holds: read only as much of each tile as meets it (prints what the values satisfy)', boundOption)
     .option('--endian <ORDER>', 'raw output: byte order, little (default) or big', endianOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', HELP)
@@ -90,7 +94,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
           rows: [r.rows[0] ?? 0, r.rows[1] ?? h.shape[0]] as [number, number],
           cols: [r.cols[0] ?? 0, r.cols[1] ?? h.shape[1]] as [number, number],
         };
-        const field = await archive.read(h.name, window ?? {});
+        const field = await archive.read(h.name, { ...(window ?? {}), ...(flags.bound ? { bound: flags.bound } : {}) });
         const arr = { data: field.values, shape: field.shape, dtype: field.dtype };
         const endian = flags.endian ?? 'little';
         const bytes = npy ? formatNpy(arr) : formatRaw(arr, endian);
@@ -99,6 +103,10 @@ export function registerUnpack(program: Command, ctx: Context): void {
         const [[r0, r1], [c0, c1]] = [field.window.rows, field.window.cols];
         const what = window ? `rows ${r0}..${r1 - 1}, columns ${c0}..${c1 - 1} (${field.shape.join('x')}) of field '${h.name}' (${h.shape.join('x')} ${h.dtype})` : `field '${h.name}' (${h.shape.join('x')} ${h.dtype})`;
         ctx.out(`unpacked ${what} from '${input}' -> '${flags.output}' (${kind}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+        if (flags.bound) {
+          const a = field.achieved;
+          ctx.out(`requested ${formatBound(flags.bound)}: ${field.prefixTiles} of the tiles read as factors only; the values satisfy max error ${a.maxErr.toPrecision(4)}, RMSE ${a.rmse.toPrecision(4)} (recorded at encode time)\n`);
+        }
       } finally {
         await archive.close();
       }

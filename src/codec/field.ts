@@ -9,6 +9,7 @@ import type { Bound, Dtype, FloatArray } from '../types.js';
 import { isPointwise, resolveBound } from './bound.js';
 import { Cell, fillWords } from './mask.js';
 import { ErrorTally } from './tally.js';
+import { prefixLengths } from './payload.js';
 import { decodeTile } from './tile-decode.js';
 import { planL2 } from './plan-l2.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
@@ -36,6 +37,12 @@ export interface TileStats {
   maxErr: number;
   rmse: number;
   valueCrc: number;
+  /**
+   * Progressive prefixes, four numbers each: byte length, CRC-32 of those
+   * bytes, max error and RMSE of the values they decode to (factor groups
+   * only, no residual). Only prefixes shorter than the payload are listed.
+   */
+  prefix: number[];
 }
 
 /** A finished tile. */
@@ -130,14 +137,39 @@ export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array 
     // fails every bound, so the caller falls back to exact storage.
     if (!(e instanceof FormatError)) throw e;
     tally.add(NaN);
-    return { stats: { method: payload[0], rank: 0, valid: t.valid, maxErr: NaN, rmse: NaN, valueCrc: 0 }, tally };
+    return { stats: { method: payload[0], rank: 0, valid: t.valid, maxErr: NaN, rmse: NaN, valueCrc: 0, prefix: [] }, tally };
   }
   for (let c = 0; c < codes.length; c++) {
     if (codes[c] === Cell.Valid) tally.add(Math.abs(t.orig[c] - out[c]));
   }
   const rank = payload[0] === 1 ? payload[2] | (payload[3] << 8) : 0;
   const valueCrc = crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength));
-  return { stats: { method: payload[0], rank, valid: t.valid, maxErr: tally.max, rmse: tally.rmse, valueCrc }, tally };
+  return { stats: { method: payload[0], rank, valid: t.valid, maxErr: tally.max, rmse: tally.rmse, valueCrc, prefix: [] }, tally };
+}
+
+/**
+ * Measure every progressive prefix of a payload with the decoder's own
+ * prefix reading, so a reader can choose one from the index alone.
+ */
+export function measurePrefixes(payload: Uint8Array, t: PreparedTile, fill: Uint32Array | null): number[] {
+  const out: number[] = [];
+  const lens = prefixLengths(payload);
+  lens.forEach((len, groups) => {
+    if (len >= payload.length) return;
+    const bytes = payload.subarray(0, len);
+    let values: FloatArray;
+    try {
+      values = decodeTile(bytes, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check', groups });
+    } catch (e) {
+      if (e instanceof FormatError) return; // a prefix that does not decode (values past the float maximum) is not offered
+      throw e;
+    }
+    const tally = new ErrorTally();
+    const codes = t.classes.codes;
+    for (let c = 0; c < codes.length; c++) if (codes[c] === Cell.Valid) tally.add(Math.abs(t.orig[c] - values[c]));
+    if (Number.isFinite(tally.max)) out.push(len, crc32(bytes), tally.max, tally.rmse);
+  });
+  return out;
 }
 
 /**
@@ -171,6 +203,7 @@ export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: numb
     }
     summary.valid += t.valid;
     total.merge(res.tally);
+    res.stats.prefix = measurePrefixes(payload, t, fill);
     emit(index, { payload, stats: res.stats });
   });
   summary.maxErr = total.max;

@@ -26,6 +26,12 @@ export interface TileContext {
   offset?: number;
   /** Largest rank accepted (a reader limit); default: any rank up to min(m, n). */
   maxRank?: number;
+  /**
+   * Decode a payload prefix holding only the first `groups` factor groups
+   * (progressive reading, spec/FORMAT.md "Progressive reading"): the bytes end
+   * after that group, and residual and exceptions are not applied.
+   */
+  groups?: number;
 }
 
 function malformed(where: string, what: string): FormatError {
@@ -71,7 +77,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const { m, n, where } = ctx;
   const cells = m * n;
   const width = ctx.dtype === 'f32' ? 4 : 8;
-  const flags = r.u8('flags');
+  let flags = r.u8('flags');
   if (flags & ~KNOWN_FLAGS) {
     throw new FormatError(FormatCode.Unsupported, `${where}: unknown payload flags 0x${flags.toString(16)} at ${r.unit} ${r.offset - 1} (this reader knows 0x${KNOWN_FLAGS.toString(16)})`);
   }
@@ -107,10 +113,16 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
     }
   }
 
-  const l = new Float64Array(m * rank);
-  const w = new Float64Array(rank * n);
-  if (rank > 0) readFactors(r, ctx, rank, l, w);
+  let factors: { l: Float64Array; w: Float64Array; rank: number } = { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
+  if (rank > 0) factors = readFactors(r, ctx, rank);
   else if (r.u8('group count') !== 0) throw malformed(where, `rank 0 with factor groups (group count at ${r.unit} ${r.offset - 1})`);
+  const prefix = ctx.groups !== undefined;
+  if (prefix) {
+    // A prefix ends after its last factor group: no residual, no exceptions.
+    if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the prefix's factor groups, from ${r.unit} ${r.offset}`);
+    flags &= ~(Flag.Residual | Flag.Exceptions | Flag.Lorenzo);
+  }
+  const { l, w } = factors;
 
   // Every section is read and checked before the arithmetic, so a malformed late part costs no multiply-adds.
   let step = 0;
@@ -148,7 +160,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
 
   const acc = new Float64Array(cells);
-  lowRank(l, w, m, n, rank, center, acc);
+  lowRank(l, w, m, n, factors.rank, center, acc);
   if (q !== null) addResidual(acc, q, step);
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
   roundTo(acc, out);
@@ -173,10 +185,10 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
 }
 
 /** Read the factor groups into l (m x r) and w (r x n). */
-function readFactors(r: ByteReader, ctx: TileContext, rank: number, l: Float64Array, w: Float64Array): void {
+function readFactors(r: ByteReader, ctx: TileContext, declared: number): { l: Float64Array; w: Float64Array; rank: number } {
   const { m, n, where } = ctx;
   const groups = r.u8('group count');
-  if (groups === 0) throw malformed(where, `rank ${rank} but no factor groups (group count at ${r.unit} ${r.offset - 1})`);
+  if (groups === 0) throw malformed(where, `rank ${declared} but no factor groups (group count at ${r.unit} ${r.offset - 1})`);
   const sizes: number[] = [];
   let total = 0;
   for (let g = 0; g < groups; g++) {
@@ -185,11 +197,18 @@ function readFactors(r: ByteReader, ctx: TileContext, rank: number, l: Float64Ar
     sizes.push(s);
     total += s;
   }
-  if (total !== rank) throw malformed(where, `factor groups hold ${total} ranks, the payload declares ${rank}`);
+  if (total !== declared) throw malformed(where, `factor groups hold ${total} ranks, the payload declares ${declared}`);
+  // A prefix read uses the first ctx.groups groups only.
+  const used = ctx.groups === undefined ? groups : ctx.groups;
+  if (!Number.isInteger(used) || used < 0 || used > groups) throw malformed(where, `a prefix of ${used} factor groups asked of a payload with ${groups}`);
+  let rank = 0;
+  for (let g = 0; g < used; g++) rank += sizes[g];
+  const l = new Float64Array(m * rank);
+  const w = new Float64Array(rank * n);
   const qu = new Int32Array(m);
   const qw = new Int32Array(n);
   let k0 = 0;
-  for (let g = 0; g < groups; g++) {
+  for (let g = 0; g < used; g++) {
     const size = sizes[g];
     const sec = readSection(r, `factor group ${g}`, 4 * size + size * (2 + 4 * m + 4 * n), false);
     const gr = new ByteReader(sec, `${where} factor group ${g}`, 0, 'raw offset');
@@ -209,4 +228,5 @@ function readFactors(r: ByteReader, ctx: TileContext, rank: number, l: Float64Ar
     if (gr.remaining !== 0) throw malformed(where, `factor group ${g} has ${gr.remaining} bytes after its factors`);
     k0 += size;
   }
+  return { l, w, rank };
 }

@@ -48,6 +48,12 @@ export interface FieldIndex {
   max_err: number[];
   rmse: number[];
   value_crc: number[];
+  /**
+   * Optional: per tile, its progressive prefixes as four numbers each (byte
+   * length, CRC-32 of those bytes, max error, RMSE of the values they decode
+   * to), shortest first. Absent in archives written without them.
+   */
+  prefix?: number[][];
   /** Whole-field figures achieved at encode time. */
   summary: { valid: number; max_err: number; rmse: number };
 }
@@ -319,7 +325,28 @@ function checkFieldIndex(f: unknown, h: FieldHeader, start: number, end: number,
   if (s.valid !== validSum) fail(where, `summary valid count ${s.valid} is not the sum ${validSum} of the tiles' counts`);
   if (s.max_err !== maxErrMax) fail(where, `summary max_err ${s.max_err} is not the largest tile max_err ${maxErrMax}`);
   if (!(s.rmse >= 0) || !Number.isFinite(s.rmse) || (validSum === 0 && s.rmse !== 0)) fail(where, `summary rmse ${s.rmse} is not a finite number >= 0 (0 without valid cells)`);
-  return { offset, length, crc, method, rank, valid, max_err: maxErr, rmse, value_crc: valueCrc, summary: { valid: s.valid, max_err: s.max_err, rmse: s.rmse } };
+  const out: FieldIndex = { offset, length, crc, method, rank, valid, max_err: maxErr, rmse, value_crc: valueCrc, summary: { valid: s.valid, max_err: s.max_err, rmse: s.rmse } };
+  if (f.prefix !== undefined) out.prefix = checkPrefixes(f.prefix, out, where);
+  return out;
+}
+
+/** Validate the optional prefix column: per tile, quads of (length, crc, max error, rmse), lengths rising and shorter than the payload. */
+function checkPrefixes(raw: unknown, ix: FieldIndex, where: string): number[][] {
+  const tiles = ix.offset.length;
+  if (!Array.isArray(raw) || raw.length !== tiles) fail(where, `column 'prefix' must list ${tiles} tiles`);
+  return raw.map((p: unknown, t: number) => {
+    if (!Array.isArray(p) || p.length % 4 !== 0 || p.length > 4 * 256) fail(where, `tile ${t} prefix list is not a list of (length, crc, max_err, rmse) quads`);
+    if (p.length > 0 && ix.method[t] !== 1) fail(where, `tile ${t} lists prefixes but is not a low-rank tile`);
+    let prev = 0;
+    for (let k = 0; k < p.length; k += 4) {
+      const [len, crc, max, rmse] = p.slice(k, k + 4) as unknown[];
+      if (!Number.isInteger(len) || (len as number) <= prev || (len as number) >= ix.length[t]) fail(where, `tile ${t} prefix ${k / 4} length ${String(len)} is not rising or not shorter than the payload`);
+      if (!Number.isInteger(crc) || (crc as number) < 0 || (crc as number) > 0xffffffff) fail(where, `tile ${t} prefix ${k / 4} crc is not a 32-bit value`);
+      for (const x of [max, rmse]) if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) fail(where, `tile ${t} prefix ${k / 4} error ${String(x)} is not a finite number >= 0`);
+      prev = len as number;
+    }
+    return p as number[];
+  });
 }
 
 /**

@@ -27,6 +27,7 @@ import {
   NC_STREAMING,
   NC_TYPE_SIZE,
   pad4,
+  setOwn,
   type NcAttrs,
   type NcAttrValue,
   type NcDimension,
@@ -143,8 +144,8 @@ function convertAttrs(list: Attribute[], where: string, name: string): { attrs: 
       if (a.type === 'byte') list2 = list2.map((b) => (b << 24) >> 24); // NC_BYTE is signed
       value = list2.length === 1 ? list2[0] : list2;
     }
-    attrs[key] = value;
-    types[key] = a.type;
+    setOwn(attrs, key, value);
+    setOwn(types, key, a.type);
   }
   return { attrs, types };
 }
@@ -500,11 +501,11 @@ export function physicalAttributes(v: NcVariable, read: NcValues): { attrs: NcAt
     if (drop.has(key)) continue;
     // valid_* in the stored type are in stored (packed) units, per CF 8.1 (from memory).
     if (/^valid_(min|max|range)$/.test(key) && v.attrTypes[key] === v.type && typeof value !== 'string') {
-      attrs[key] = Array.isArray(value) ? value.map(unpack) : unpack(value);
-      attrTypes[key] = outType;
+      setOwn<NcAttrValue>(attrs, key, Array.isArray(value) ? value.map(unpack) : unpack(value));
+      setOwn(attrTypes, key, outType);
     } else {
-      attrs[key] = value;
-      attrTypes[key] = v.attrTypes[key];
+      setOwn(attrs, key, value);
+      setOwn(attrTypes, key, v.attrTypes[key]);
     }
   }
   if (read.fill !== null) {

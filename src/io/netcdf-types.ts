@@ -147,3 +147,8 @@ export const NC_INT_RANGE: Record<'byte' | 'short' | 'int', [number, number]> = 
 export function pad4(n: number): number {
   return n + ((4 - (n % 4)) % 4);
 }
+
+/** Sets an own property, safely even for keys such as "__proto__" (names come from files). */
+export function setOwn<T>(target: Record<string, T>, key: string, value: T): void {
+  Object.defineProperty(target, key, { value, enumerable: true, writable: true, configurable: true });
+}

@@ -197,11 +197,11 @@ function checkNumbers(values: ArrayLike<number>, type: NcType, what: string): vo
 const VAR_TYPED_ATTRS = new Set(['_FillValue', 'missing_value', 'valid_min', 'valid_max', 'valid_range']);
 
 function attrType(key: string, value: NcAttrValue, types: Record<string, NcType> | undefined, varType: NcType | null, what: string): NcType {
+  const given = types && Object.prototype.hasOwnProperty.call(types, key) ? types[key] : undefined;
   if (typeof value === 'string') {
-    if (types?.[key] !== undefined && types[key] !== 'char') optionError(`${what} attribute '${key}' is text but its type is given as ${types[key]}`);
+    if (given !== undefined && given !== 'char') optionError(`${what} attribute '${key}' is text but its type is given as ${given}`);
     return 'char';
   }
-  const given = types?.[key];
   if (given !== undefined) {
     if (!(given in NC_TYPE_SIZE) || given === 'char') optionError(`${what} attribute '${key}' is numeric but its type is given as ${String(given)}`);
     return given;

@@ -94,6 +94,14 @@ describe('readNetcdfHeader on the fixtures', () => {
     expect((new NetCDFReader(bytes).variables[0].attributes as unknown[])[0]).toMatchObject({ value: [253, 100] });
   });
 
+  it('keeps an attribute named __proto__ as an ordinary attribute', () => {
+    const attrs = JSON.parse('{"__proto__": "odd but legal", "units": "m"}') as Record<string, string>;
+    const bytes = writeNetcdf({ dims: [{ name: 'x', size: 1 }], globalAttrs: attrs, variables: [] });
+    const file = readNetcdfHeader(bytes);
+    expect(Object.keys(file.globalAttrs)).toEqual(['__proto__', 'units']);
+    expect(Object.getPrototypeOf(file.globalAttrs)).toBe(Object.prototype);
+  });
+
   it('counts the records from the file length when numrecs is STREAMING', () => {
     // SPEC: numrecs = 0xFFFFFFFF (STREAMING) means "count the records".
     const bytes = classic.slice();
