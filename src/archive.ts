@@ -10,7 +10,7 @@ import { decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
 import { readContainer, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
-import { DEFAULT_LIMITS, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Limits, checkReadCells, quoteName } from './format/schema.js';
+import { DEFAULT_LIMITS, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Limits, checkReadCells, quoteName, sliceGrid, tileOrigin, tileShape } from './format/schema.js';
 import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 
@@ -18,12 +18,16 @@ import type { Bound, Dtype, FloatArray } from './types.js';
 export interface FieldValues {
   name: string;
   dtype: Dtype;
-  /** Shape of `values`: [rows, cols] of the window (the whole field when no window was asked for). */
+  /**
+   * Shape of `values`: [rows, cols] of the window, or [slices, rows, cols]
+   * for a field of slices (layout 'slices' or more than one slice); a whole
+   * read of a field with an nd_shape returns that shape.
+   */
   shape: number[];
   /** Row-major values of the window. */
   values: FloatArray;
   /** Where the window lies in the field: half-open row and column ranges. */
-  window: { rows: [number, number]; cols: [number, number] };
+  window: { slices: [number, number]; rows: [number, number]; cols: [number, number] };
   /**
    * What the returned values are known to satisfy, from the figures recorded
    * at encode time for the tiles (or tile prefixes) they came from: the
@@ -39,6 +43,8 @@ export interface FieldValues {
  * in field rows and columns; an omitted range means all of them.
  */
 export interface ReadOptions {
+  /** Slices [s0, s1) of the window (fields of slices only; default all). */
+  slices?: readonly [number, number];
   /** Rows [r0, r1) of the window. */
   rows?: readonly [number, number];
   /** Columns [c0, c1) of the window. */
@@ -59,7 +65,7 @@ export interface ReadOptions {
 }
 
 /** Keys {@link ReadOptions} may hold; any other is refused, so a misspelt option is not silently ignored. */
-const READ_KEYS = ['rows', 'cols', 'verify', 'bound'];
+const READ_KEYS = ['slices', 'rows', 'cols', 'verify', 'bound'];
 
 /** What a read takes of one tile. */
 interface TileChoice {
@@ -209,19 +215,23 @@ export class Archive {
    */
   async read(name?: string, options: ReadOptions = {}): Promise<FieldValues> {
     const { header: h, index: ix } = this.field(name);
-    const { rows, cols } = checkWindow(h, options);
+    const { slices, rows, cols } = checkWindow(h, options);
     const verify = options.verify === true;
     const plan = this.progressivePlan(h, ix, options.bound);
+    const [s0, s1] = slices;
     const [r0, r1] = rows;
     const [c0, c1] = cols;
     const [tr, tc] = h.tile;
-    const gc = Math.ceil(h.shape[1] / tc);
+    const [gr, gc] = sliceGrid(h);
     const width = c1 - c0;
-    checkReadCells((r1 - r0) * width, this.limits, `${this.source.label} field ${quoteName(h.name)}`);
-    const values = allocate(h.dtype, (r1 - r0) * width, h.name);
+    const plane = (r1 - r0) * width;
+    checkReadCells((s1 - s0) * plane, this.limits, `${this.source.label} field ${quoteName(h.name)}`);
+    const values = allocate(h.dtype, (s1 - s0) * plane, h.name);
     const tiles: number[] = [];
-    for (let ti = Math.floor(r0 / tr); ti * tr < r1; ti++) {
-      for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) tiles.push(ti * gc + tj);
+    for (let s = s0; s < s1; s++) {
+      for (let ti = Math.floor(r0 / tr); ti * tr < r1; ti++) {
+        for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) tiles.push(s * gr * gc + ti * gc + tj);
+      }
     }
     const tally = { max: 0, sq: 0, valid: 0, prefixTiles: 0 };
     await this.eachPayload(ix, tiles, (t, payload) => {
@@ -232,18 +242,20 @@ export class Archive {
       tally.sq += ix.valid[t] * choice.rmse * choice.rmse;
       tally.valid += ix.valid[t];
       if (choice.prefix) tally.prefixTiles++;
-      const i0 = Math.floor(t / gc) * tr;
-      const j0 = (t % gc) * tc;
-      const [, n] = tileDims(h, t);
+      const { s, i0, j0 } = tileOrigin(h, t);
+      const [, n] = tileShape(h, t);
+      const base = (s - s0) * plane;
       const a = Math.max(r0, i0);
       const b = Math.min(r1, i0 + tr);
       const lo = Math.max(c0, j0);
       const hi = Math.min(c1, j0 + n);
       // Same-type typed-array copies move bytes, so NaN payloads survive.
-      for (let i = a; i < b; i++) values.set(tile.subarray((i - i0) * n + (lo - j0), (i - i0) * n + (hi - j0)), (i - r0) * width + (lo - c0));
+      for (let i = a; i < b; i++) values.set(tile.subarray((i - i0) * n + (lo - j0), (i - i0) * n + (hi - j0)), base + (i - r0) * width + (lo - c0));
     }, false, (t) => plan(t).length);
     const achieved = { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 };
-    return { name: h.name, dtype: h.dtype, shape: [r1 - r0, width], values, window: { rows: [r0, r1], cols: [c0, c1] }, achieved, prefixTiles: tally.prefixTiles };
+    const whole = options.slices === undefined && options.rows === undefined && options.cols === undefined;
+    const shape = whole && h.nd_shape ? h.nd_shape.slice() : hasSlices(h) ? [s1 - s0, r1 - r0, width] : [r1 - r0, width];
+    return { name: h.name, dtype: h.dtype, shape, values, window: { slices: [s0, s1], rows: [r0, r1], cols: [c0, c1] }, achieved, prefixTiles: tally.prefixTiles };
   }
 
   /**
@@ -297,8 +309,10 @@ export class Archive {
       const tol = h.bound.tolerance;
       const pointwise = isPointwise(h.bound.mode);
       const [rows, cols] = h.shape;
-      if (orig !== undefined && orig.length !== rows * cols) {
-        throw new InputError(InputCode.Shape, `original for field '${h.name}' has ${orig.length} values, the archive ${rows}x${cols}`);
+      const nslices = h.slices ?? 1;
+      if (orig !== undefined && orig.length !== nslices * rows * cols) {
+        const what = h.nd_shape ? h.nd_shape.join('x') : nslices > 1 ? `${nslices}x${rows}x${cols}` : `${rows}x${cols}`;
+        throw new InputError(InputCode.Shape, `original for field '${h.name}' has ${orig.length} values, the archive ${what}`);
       }
       const total = new ErrorTally();
       let specials = 0;
@@ -316,8 +330,8 @@ export class Archive {
         }
         if (pointwise && !(ix.max_err[t] <= tol)) fail(t, `recorded max error ${ix.max_err[t]} exceeds the bound ${tol}`);
         if (orig) {
-          const [m, n] = tileDims(h, t);
-          const part = extract(orig, cols, h, t);
+          const [m, n] = tileShape(h, t);
+          const part = extract(orig, h, t);
           const cls = classify(part, fw);
           const got = classify(tile, fw);
           const ow = new Uint32Array(part.buffer);
@@ -373,42 +387,50 @@ function allocate(dtype: Dtype, cells: number, name: string): FloatArray {
 }
 
 /** Check a range of a window: integers with 0 <= start < end <= extent. */
-function checkRange(v: unknown, extent: number, what: 'rows' | 'cols', field: string): [number, number] {
+function checkRange(v: unknown, extent: number, what: 'slices' | 'rows' | 'cols', field: string): [number, number] {
   if (v === undefined) return [0, extent];
   const ok = Array.isArray(v) && v.length === 2 && v.every((x) => Number.isSafeInteger(x));
   if (!ok) throw new InputError(InputCode.Option, `${what} of a window must be [start, end] with integer ends, got ${JSON.stringify(v)}`);
   const [a, b] = v as [number, number];
   if (a < 0 || b > extent || a >= b) {
     const why = a >= b ? 'is empty (start must be below end)' : `lies outside ${what} 0..${extent}`;
-    throw new InputError(InputCode.Option, `field '${field}' has ${extent} ${what === 'rows' ? 'rows' : 'columns'}; ${what} [${a}, ${b}) ${why}`);
+    throw new InputError(InputCode.Option, `field '${field}' has ${extent} ${what === 'cols' ? 'columns' : what}; ${what} [${a}, ${b}) ${why}`);
   }
   return [a, b];
 }
 
 /** The window a read asks for, checked against the field. */
-function checkWindow(h: FieldHeader, o: ReadOptions): { rows: [number, number]; cols: [number, number] } {
+function checkWindow(h: FieldHeader, o: ReadOptions): { slices: [number, number]; rows: [number, number]; cols: [number, number] } {
   if (typeof o !== 'object' || o === null) throw new InputError(InputCode.Option, `read options must be an object, got ${String(o)}`);
   const unknown = Object.keys(o).filter((k) => !READ_KEYS.includes(k));
   if (unknown.length > 0) throw new InputError(InputCode.Option, `unknown read option${unknown.length > 1 ? 's' : ''} ${unknown.map((k) => `'${k}'`).join(', ')} (known: ${READ_KEYS.join(', ')})`);
   if (o.verify !== undefined && typeof o.verify !== 'boolean') throw new InputError(InputCode.Option, `verify must be true or false, got ${String(o.verify)}`);
-  return { rows: checkRange(o.rows, h.shape[0], 'rows', h.name), cols: checkRange(o.cols, h.shape[1], 'cols', h.name) };
+  if (o.slices !== undefined && !hasSlices(h)) throw new InputError(InputCode.Option, `field '${h.name}' is a plain 2-D field: it has no slices to choose`);
+  return {
+    slices: checkRange(o.slices, h.slices ?? 1, 'slices', h.name),
+    rows: checkRange(o.rows, h.shape[0], 'rows', h.name),
+    cols: checkRange(o.cols, h.shape[1], 'cols', h.name),
+  };
 }
 
-/** Rows and columns of tile t of a field. */
+/** True when reads of the field count slices: more than one, or an N-D variable laid out as slices. */
+export function hasSlices(h: FieldHeader): boolean {
+  return (h.slices ?? 1) > 1 || h.layout === 'slices';
+}
+
+/** Rows and columns of tile t of a field (kept for callers; see tileShape in schema.ts). */
 export function tileDims(h: FieldHeader, t: number): [number, number] {
-  const gc = Math.ceil(h.shape[1] / h.tile[1]);
-  const ti = Math.floor(t / gc);
-  const tj = t % gc;
-  return [Math.min(h.tile[0], h.shape[0] - ti * h.tile[0]), Math.min(h.tile[1], h.shape[1] - tj * h.tile[1])];
+  return tileShape(h, t);
 }
 
-function extract(values: FloatArray, cols: number, h: FieldHeader, t: number): FloatArray {
-  const gc = Math.ceil(h.shape[1] / h.tile[1]);
-  const i0 = Math.floor(t / gc) * h.tile[0];
-  const j0 = (t % gc) * h.tile[1];
-  const [m, n] = tileDims(h, t);
+/** Tile t cut out of the original values (C order: slice s is rows [s * R, (s + 1) * R) of the stacked matrix). */
+function extract(values: FloatArray, h: FieldHeader, t: number): FloatArray {
+  const cols = h.shape[1];
+  const { s, i0, j0 } = tileOrigin(h, t);
+  const r = s * h.shape[0] + i0;
+  const [m, n] = tileShape(h, t);
   const out = h.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
-  for (let i = 0; i < m; i++) out.set(values.subarray((i0 + i) * cols + j0, (i0 + i) * cols + j0 + n), i * n);
+  for (let i = 0; i < m; i++) out.set(values.subarray((r + i) * cols + j0, (r + i) * cols + j0 + n), i * n);
   return out;
 }
 

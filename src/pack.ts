@@ -3,8 +3,8 @@ import { checkBound, parseBound } from './codec/bound.js';
 import { chooseTile } from './codec/auto-tile.js';
 import { encodeField, memoryBands, type BandSource, type FieldSpec } from './codec/field.js';
 import { InputCode, InputError } from './errors.js';
-import { ContainerWriter, MemorySink, VERSION, type Sink } from './format/container.js';
-import { attrsProblem, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
+import { ContainerWriter, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
+import { attrsProblem, ndProblem, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 import { VERSION_STRING } from './version.js';
 
@@ -26,6 +26,28 @@ export interface PackOptions {
   dtype?: Dtype;
   /** Free-form attributes of the field. */
   attrs?: Attrs;
+  /**
+   * Slices of `shape` stacked in the field (default 1): the values are then
+   * slices x rows x cols in C order (for bands: rows of the stacked
+   * (slices x rows) x cols matrix). Archives holding a field of more than
+   * one slice carry required flag bit 0, which older readers refuse.
+   */
+  slices?: number;
+  /** The original N-D shape (product slices x rows x cols), restored by whole reads. */
+  ndShape?: readonly number[];
+  /** Dimension names, one per entry of ndShape. */
+  dims?: readonly string[];
+  /** How ndShape maps to slices x rows x cols: 'slices' (default for 3 or more dims) or 'matrix:A'. */
+  layout?: string;
+}
+
+/** Options of {@link ArchiveBuilder}. */
+export interface BuilderOptions {
+  /**
+   * Fields of more than one slice will be added: set required flag bit 0
+   * in the prologue at once. Needed only for sinks without `patch`.
+   */
+  slices?: boolean;
 }
 
 /** Largest tile side accepted. */
@@ -39,8 +61,14 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
     throw new InputError(InputCode.Shape, `shape must be [rows, cols] of positive integers, got ${JSON.stringify(shape)}`);
   }
   const [rows, cols] = shape;
-  if (withValues && values.length !== rows * cols) {
-    throw new InputError(InputCode.Shape, `shape ${rows}x${cols} needs ${rows * cols} values, got ${values.length}`);
+  const slices = o.slices ?? 1;
+  const ndShape = o.ndShape === undefined ? undefined : Array.from(o.ndShape);
+  const dims = o.dims === undefined ? undefined : Array.from(o.dims);
+  const nd = ndProblem(rows, cols, slices === 1 && ndShape === undefined ? undefined : slices, ndShape, dims, o.layout);
+  if (nd) throw new InputError(InputCode.Shape, `field '${o.name ?? 'field'}': ${nd}`);
+  if (withValues && values.length !== slices * rows * cols) {
+    const what = slices === 1 ? `${rows}x${cols}` : `${slices} slices of ${rows}x${cols}`;
+    throw new InputError(InputCode.Shape, `shape ${what} needs ${slices * rows * cols} values, got ${values.length}`);
   }
   const dtype: Dtype = o.dtype ?? (values instanceof Float32Array ? 'f32' : 'f64');
   if (dtype !== 'f32' && dtype !== 'f64') throw new InputError(InputCode.Dtype, `dtype must be f32 or f64, got ${String(dtype)}`);
@@ -65,7 +93,7 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   if (typeof name !== 'string' || name.length === 0 || name.length > 1024) throw new InputError(InputCode.Option, 'field name must be a non-empty string');
   const problem = o.attrs === undefined ? null : attrsProblem(o.attrs);
   if (problem) throw new InputError(InputCode.Option, `field '${name}': ${problem}`);
-  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto }, data };
+  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices }, data };
 }
 
 /** Builds an archive field by field into a sink. */
@@ -74,10 +102,10 @@ export class ArchiveBuilder {
   private readonly fields: FieldHeader[] = [];
   private readonly indexes: FieldIndex[] = [];
 
-  constructor(sink: Sink, private readonly attrs: Attrs = {}) {
+  constructor(sink: Sink, private readonly attrs: Attrs = {}, options: BuilderOptions = {}) {
     const problem = attrsProblem(attrs);
     if (problem) throw new InputError(InputCode.Option, `archive ${problem}`);
-    this.writer = new ContainerWriter(sink);
+    this.writer = new ContainerWriter(sink, options.slices === true ? FLAG_SLICES : 0);
   }
 
   /** Encode and append one field held in memory (row-major). */
@@ -96,6 +124,7 @@ export class ArchiveBuilder {
     const check: BandSource = {
       band: (r0, count) => {
         const b = band(r0, count);
+        if (r0 < 0 || r0 + count > (spec.slices ?? 1) * spec.rows) throw new Error(`band rows ${r0}..${r0 + count} outside the field`);
         if (b.length !== count * spec.cols || !(dtype === 'f32' ? b instanceof Float32Array : b instanceof Float64Array)) {
           throw new InputError(InputCode.Shape, `band of rows ${r0}..${r0 + count} holds ${b.length} ${b.constructor.name} values, not ${count * spec.cols} ${dtype}`);
         }
@@ -106,8 +135,13 @@ export class ArchiveBuilder {
   }
 
   private encode(src: BandSource, spec: FieldSpec, o: PackOptions): FieldHeader {
-    if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, spec);
     if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
+    const slices = spec.slices ?? 1;
+    if (slices > 1 && !this.writer.require(FLAG_SLICES)) {
+      throw new InputError(InputCode.Option, `field '${spec.name}' has ${slices} slices: create the ArchiveBuilder with { slices: true } (this sink cannot patch the prologue)`);
+    }
+    // The trial samples the top of the first slice.
+    if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 });
     const ix: FieldIndex = { offset: [], length: [], crc: [], method: [], rank: [], valid: [], max_err: [], rmse: [], value_crc: [], summary: { valid: 0, max_err: 0, rmse: 0 } };
     const result = encodeField(src, spec, (_t, tile) => {
       const ref = this.writer.addPayload(tile.payload);
@@ -132,6 +166,11 @@ export class ArchiveBuilder {
       fill: spec.fill,
       attrs: o.attrs ?? {},
     };
+    // Optional keys are written only when they say something, so 2-D archives keep their bytes.
+    if (slices > 1) header.slices = slices;
+    if (o.ndShape !== undefined) header.nd_shape = Array.from(o.ndShape);
+    if (o.dims !== undefined) header.dims = Array.from(o.dims);
+    if (o.ndShape !== undefined && (o.layout !== undefined || o.ndShape.length > 2)) header.layout = o.layout ?? 'slices';
     this.fields.push(header);
     this.indexes.push(ix);
     return header;

@@ -27,6 +27,12 @@ export interface FieldSpec {
   fill: number | null;
   /** Choose the tile shape by trial (see auto-tile.ts); tileRows/tileCols are then replaced. */
   autoTile?: boolean;
+  /**
+   * Slices of rows x cols stacked in the field (default 1). The source then
+   * serves rows of the stacked (slices x rows) x cols matrix: rows
+   * [s * rows, (s + 1) * rows) are slice s. Tiles never cross slices.
+   */
+  slices?: number;
 }
 
 /** Per-tile facts recorded in the index. */
@@ -62,7 +68,7 @@ export interface FieldResult {
   rmse: number;
 }
 
-/** Number of tile rows and columns. */
+/** Number of tile rows and columns of one slice. */
 export function tileGrid(spec: Pick<FieldSpec, 'rows' | 'cols' | 'tileRows' | 'tileCols'>): [number, number] {
   return [Math.ceil(spec.rows / spec.tileRows), Math.ceil(spec.cols / spec.tileCols)];
 }
@@ -91,16 +97,22 @@ export function extractTile(band: FloatArray, spec: FieldSpec, bandRows: number,
   return { tile, m, n };
 }
 
-/** Visit every tile in row-major order, reading one band of rows per tile row. */
+/**
+ * Visit every tile in index order (slice by slice, row-major within a
+ * slice: t = s * gr * gc + ti * gc + tj), reading one band of rows per tile row.
+ */
 export function forEachTile(src: BandSource, spec: FieldSpec, visit: (index: number, tile: FloatArray, m: number, n: number) => void): void {
   const [gr, gc] = tileGrid(spec);
-  for (let ti = 0; ti < gr; ti++) {
-    const r0 = ti * spec.tileRows;
-    const rows = Math.min(spec.tileRows, spec.rows - r0);
-    const band = src.band(r0, rows);
-    for (let tj = 0; tj < gc; tj++) {
-      const { tile, m, n } = extractTile(band, spec, rows, tj);
-      visit(ti * gc + tj, tile, m, n);
+  const slices = spec.slices ?? 1;
+  for (let s = 0; s < slices; s++) {
+    for (let ti = 0; ti < gr; ti++) {
+      const r0 = ti * spec.tileRows;
+      const rows = Math.min(spec.tileRows, spec.rows - r0);
+      const band = src.band(s * spec.rows + r0, rows);
+      for (let tj = 0; tj < gc; tj++) {
+        const { tile, m, n } = extractTile(band, spec, rows, tj);
+        visit(s * gr * gc + ti * gc + tj, tile, m, n);
+      }
     }
   }
 }
@@ -112,8 +124,11 @@ export function validRange(src: BandSource, spec: FieldSpec): [number, number] |
   let lo = Infinity;
   let hi = -Infinity;
   const step = Math.max(1, spec.tileRows);
-  for (let r0 = 0; r0 < spec.rows; r0 += step) {
-    const values = src.band(r0, Math.min(step, spec.rows - r0));
+  const total = (spec.slices ?? 1) * spec.rows;
+  // Bands stay within a slice, as the encoder's own reads do.
+  for (let r0 = 0, end = 0; r0 < total; r0 = end) {
+    end = Math.min(total, r0 + step, (Math.floor(r0 / spec.rows) + 1) * spec.rows);
+    const values = src.band(r0, end - r0);
     for (let i = 0; i < values.length; i++) {
       const v = values[i];
       if (!Number.isFinite(v)) continue;

@@ -36,7 +36,7 @@ export interface L2Plan {
 
 /** First pass and plan choice; the returned plan encodes one tile at a time. */
 export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null): L2Plan {
-  const keep = spec.rows * spec.cols <= KEEP_CELLS;
+  const keep = (spec.slices ?? 1) * spec.rows * spec.cols <= KEEP_CELLS;
   const kept: PreparedTile[] = [];
   const sv2: Float64Array[] = [];
   const tails: number[] = [];

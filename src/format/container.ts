@@ -8,7 +8,7 @@ import { FormatCode, FormatError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
 import type { ByteSource } from './source.js';
-import { checkHeader, checkIndex, MAX_DEPTH, MAX_MAP_ENTRIES, resolveLimits, type ArchiveHeader, type ArchiveIndex, type Limits } from './schema.js';
+import { checkHeader, checkIndex, MAX_DEPTH, MAX_MAP_ENTRIES, quoteName, resolveLimits, type ArchiveHeader, type ArchiveIndex, type Limits } from './schema.js';
 
 /** Magic bytes that open every archive. */
 export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0a);
@@ -19,11 +19,21 @@ export const VERSIONS = [1] as const;
 /** Version written by this writer. */
 export const VERSION = 1;
 export const PROLOGUE_SIZE = 16;
+/** Required flag bit 0: some field stacks more than one slice (spec/FORMAT.md, "Required flags"). */
+export const FLAG_SLICES = 0x1;
+/** Required flags this reader understands. */
+export const KNOWN_FLAGS = FLAG_SLICES;
 export const TAIL_SIZE = 48;
 
 /** Receives archive bytes in order. */
 export interface Sink {
   write(bytes: Uint8Array): void;
+  /**
+   * Optional: overwrite bytes already written at `offset` (same length).
+   * The writer uses it to set a required flag in the prologue when a field
+   * that needs one arrives after the prologue was written.
+   */
+  patch?(offset: number, bytes: Uint8Array): void;
 }
 
 /** Collects bytes in memory. */
@@ -33,6 +43,16 @@ export class MemorySink implements Sink {
   write(bytes: Uint8Array): void {
     this.parts.push(bytes.slice());
     this.size += bytes.length;
+  }
+  patch(offset: number, bytes: Uint8Array): void {
+    if (offset < 0 || offset + bytes.length > this.size) throw new RangeError(`patch ${offset}+${bytes.length} lies outside the ${this.size} bytes written`);
+    let at = 0;
+    for (const p of this.parts) {
+      const lo = Math.max(offset, at);
+      const hi = Math.min(offset + bytes.length, at + p.length);
+      if (lo < hi) p.set(bytes.subarray(lo - offset, hi - offset), lo - at);
+      at += p.length;
+    }
   }
   bytes(): Uint8Array {
     const out = new Uint8Array(this.size);
@@ -56,13 +76,40 @@ export interface PayloadRef {
 export class ContainerWriter {
   private pos = 0;
   private finished = false;
-  constructor(private readonly sink: Sink) {
+  private written: number;
+  /** Required flags of this archive (prologue and tail). */
+  flags: number;
+  /** `flags`: required flags known in advance (e.g. {@link FLAG_SLICES}), written into the prologue at once. */
+  constructor(private readonly sink: Sink, flags = 0) {
+    this.flags = flags;
+    this.written = flags;
+    this.put(this.prologue(flags));
+  }
+
+  private prologue(flags: number): Uint8Array {
     const w = new ByteWriter(PROLOGUE_SIZE);
     w.bytes(MAGIC);
     w.u16(VERSION);
-    w.u16(0); // required flags: none in version 1
+    w.u16(flags);
     w.u32(0); // reserved
-    this.put(w.finish());
+    return w.finish();
+  }
+
+  /**
+   * Set required flags. When the prologue was written without them, the
+   * sink must support `patch`; otherwise this returns false and nothing
+   * changes (declare the flags when creating the writer instead).
+   */
+  require(bits: number): boolean {
+    const want = this.flags | bits;
+    if (want === this.flags) return true;
+    if (want !== this.written) {
+      if (!this.sink.patch) return false;
+      this.sink.patch(0, this.prologue(want));
+      this.written = want;
+    }
+    this.flags = want;
+    return true;
   }
 
   private put(bytes: Uint8Array): void {
@@ -95,7 +142,7 @@ export class ContainerWriter {
     t.u32(ix.length);
     t.u32(crc32(ix));
     t.u16(VERSION);
-    t.u16(0);
+    t.u16(this.flags);
     t.u32(crc32(t.view8()));
     t.bytes(TAIL_MAGIC);
     this.put(t.finish());
@@ -322,6 +369,10 @@ export async function readContainer(src: ByteSource, given?: Partial<Limits>): P
   const hb = await src.read(headerOffset, headerLength);
   if (crc32(hb) !== headerCrc) throw new FormatError(FormatCode.Checksum, `${label}: header CRC-32 mismatch (header at offset ${headerOffset})`);
   const header = checkHeader(decodeBlock(hb, `header (at offset ${headerOffset})`, label, limits), limits, label);
+  const sliced = header.fields.find((f) => (f.slices ?? 1) > 1);
+  if (sliced && (flags & FLAG_SLICES) === 0) {
+    throw new FormatError(FormatCode.Malformed, `${label}: field ${quoteName(sliced.name)} holds ${sliced.slices} slices but required flag bit 0 (slices) is not set`);
+  }
   const ib = await src.read(indexOffset, indexLength);
   if (crc32(ib) !== indexCrc) throw new FormatError(FormatCode.Checksum, `${label}: index CRC-32 mismatch (index at offset ${indexOffset})`);
   const payloadEnd = Math.min(headerOffset, indexOffset);
@@ -334,7 +385,7 @@ export function checkVersion(version: number, flags: number, label: string): voi
   if (!(VERSIONS as readonly number[]).includes(version)) {
     throw new FormatError(FormatCode.Unsupported, `${label}: format version ${version} is not supported (this reader knows ${VERSIONS.join(', ')})`);
   }
-  if (flags !== 0) {
-    throw new FormatError(FormatCode.Unsupported, `${label}: required flags 0x${flags.toString(16)} are unknown to this reader (version ${version} defines none)`);
+  if ((flags & ~KNOWN_FLAGS) !== 0) {
+    throw new FormatError(FormatCode.Unsupported, `${label}: required flags 0x${(flags & ~KNOWN_FLAGS).toString(16)} are unknown to this reader (it knows 0x${KNOWN_FLAGS.toString(16)}: bit 0, slices)`);
   }
 }

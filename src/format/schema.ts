@@ -26,6 +26,66 @@ export interface FieldHeader {
   };
   fill: number | null;
   attrs: Attrs;
+  /**
+   * Optional: number of R x C slices stacked in this field (default 1). The
+   * values are the C-order values of an N-D variable; the tile grid is laid
+   * per slice (spec/FORMAT.md, "N-D fields"). Present only when > 1.
+   */
+  slices?: number;
+  /** Optional: the original N-D shape; its product is slices x rows x cols. */
+  nd_shape?: number[];
+  /** Optional: dimension names, one per entry of nd_shape. */
+  dims?: string[];
+  /** Optional: how nd_shape maps to slices x rows x cols: 'slices' or 'matrix:A'. */
+  layout?: string;
+}
+
+/** Slices, rows and columns an N-D shape gives under a layout ('slices' or 'matrix:A'). */
+export function layoutGrid(ndShape: readonly number[], layout: string): { slices: number; rows: number; cols: number } | string {
+  const k = ndShape.length;
+  const prod = (a: readonly number[]) => a.reduce((x, y) => x * y, 1);
+  if (layout === 'slices') {
+    if (k < 2) return `layout 'slices' needs at least 2 dimensions, nd_shape has ${k}`;
+    return { slices: prod(ndShape.slice(0, k - 2)), rows: ndShape[k - 2], cols: ndShape[k - 1] };
+  }
+  const m = /^matrix:([0-9]{1,3})$/.exec(layout);
+  if (m) {
+    const a = Number(m[1]);
+    if (a < 1 || a >= k) return `layout 'matrix:${a}' needs 1 <= ${a} < ${k} (the number of dimensions)`;
+    return { slices: 1, rows: prod(ndShape.slice(0, a)), cols: prod(ndShape.slice(a)) };
+  }
+  return `layout ${describeValue(layout)} is not 'slices' or 'matrix:A'`;
+}
+
+/**
+ * What is wrong with the N-D keys of a field, or null: slices a positive
+ * integer; nd_shape positive integers whose product is slices x rows x cols;
+ * dims strings (1 to 1024 characters) one per nd_shape entry;
+ * layout consistent with nd_shape and [rows, cols].
+ */
+export function ndProblem(rows: number, cols: number, slices: unknown, ndShape: unknown, dims: unknown, layout: unknown): string | null {
+  if (slices !== undefined && (typeof slices !== 'number' || !Number.isSafeInteger(slices) || slices < 1)) return `slices must be a positive integer, got ${describeValue(slices)}`;
+  const s = (slices as number | undefined) ?? 1;
+  if (ndShape === undefined) {
+    return dims !== undefined || layout !== undefined ? 'dims and layout need nd_shape' : null;
+  }
+  if (!Array.isArray(ndShape) || ndShape.length < 2 || ndShape.length > 32 || !ndShape.every((d) => typeof d === 'number' && Number.isSafeInteger(d) && d >= 1)) {
+    return `nd_shape must be 2 to 32 positive integers, got ${Array.isArray(ndShape) ? `[${ndShape.map(describeValue).join(', ')}]` : describeValue(ndShape)}`;
+  }
+  const nd = ndShape as number[];
+  const product = nd.reduce((a, b) => a * b, 1);
+  if (product !== s * rows * cols) return `nd_shape [${nd.join(', ')}] holds ${product} values, not slices x rows x cols = ${s}x${rows}x${cols}`;
+  if (dims !== undefined) {
+    if (!Array.isArray(dims) || dims.length !== nd.length) return `dims must list ${nd.length} names, one per nd_shape entry, got ${describeValue(dims)}`;
+    if (!dims.every((d) => typeof d === 'string' && d.length >= 1 && d.length <= 1024)) return 'dims must be names of 1 to 1024 characters';
+  }
+  const lay = layout ?? (nd.length === 2 ? undefined : 'slices');
+  if (lay === undefined) return s === 1 && nd[0] === rows && nd[1] === cols ? null : `nd_shape [${nd.join(', ')}] without a layout must equal [rows, cols]`;
+  if (typeof lay !== 'string') return `layout must be a string, got ${describeValue(lay)}`;
+  const g = layoutGrid(nd, lay);
+  if (typeof g === 'string') return g;
+  if (g.slices !== s || g.rows !== rows || g.cols !== cols) return `layout '${lay}' of nd_shape [${nd.join(', ')}] gives ${g.slices} slices of ${g.rows}x${g.cols}, the field declares ${s} of ${rows}x${cols}`;
+  return null;
 }
 
 /** The header block. */
@@ -229,11 +289,14 @@ export function checkHeader(raw: unknown, limits: Limits, label: string): Archiv
     const cols = posInt(f.shape[1], where, 'cols');
     const tr = posInt(f.tile[0], where, 'tile rows');
     const tc = posInt(f.tile[1], where, 'tile cols');
-    if (rows * cols > limits.maxCells) throw new FormatError(FormatCode.Limit, `${where}: ${rows}x${cols} exceeds the limit of ${limits.maxCells} cells`);
+    const nd = ndProblem(rows, cols, f.slices, f.nd_shape, f.dims, f.layout);
+    if (nd) fail(where, nd);
+    const slices = (f.slices as number | undefined) ?? 1;
+    if (slices * rows * cols > limits.maxCells) throw new FormatError(FormatCode.Limit, `${where}: ${slices}x${rows}x${cols} exceeds the limit of ${limits.maxCells} cells`);
     // A tile is cut at the field's edge, so only its part inside the field counts.
     const tileCells = Math.min(tr, rows) * Math.min(tc, cols);
     if (tileCells > limits.maxTileCells) throw new FormatError(FormatCode.Limit, `${where}: tile ${tr}x${tc} exceeds the limit of ${limits.maxTileCells} cells`);
-    const tiles = Math.ceil(rows / tr) * Math.ceil(cols / tc);
+    const tiles = slices * Math.ceil(rows / tr) * Math.ceil(cols / tc);
     if (tiles > limits.maxTiles) throw new FormatError(FormatCode.Limit, `${where}: ${tiles} tiles exceed the limit of ${limits.maxTiles}`);
     const b = f.bound;
     if (!isObj(b)) fail(where, `bound is ${describeValue(b)}, not a map`);
@@ -248,7 +311,7 @@ export function checkHeader(raw: unknown, limits: Limits, label: string): Archiv
       fail(where, `bound range must be finite [min, max] with min <= max, or nil, got ${Array.isArray(range) ? `[${range.map(describeValue).join(', ')}]` : describeValue(range)}`);
     }
     const fill = checkFill(f, where);
-    return {
+    const out: FieldHeader = {
       name: f.name,
       dtype: f.dtype,
       shape: [rows, cols],
@@ -257,17 +320,42 @@ export function checkHeader(raw: unknown, limits: Limits, label: string): Archiv
       fill,
       attrs: checkAttrs(f.attrs, where),
     };
+    if (f.slices !== undefined) out.slices = slices;
+    if (f.nd_shape !== undefined) out.nd_shape = (f.nd_shape as number[]).slice();
+    if (f.dims !== undefined) out.dims = (f.dims as string[]).slice();
+    if (f.layout !== undefined) out.layout = f.layout as string;
+    return out;
   });
   const writer = typeof raw.writer === 'string' ? raw.writer : 'unknown';
   return { format: 'rankfield', version: 1, writer, attrs: checkAttrs(raw.attrs, `${label} header`), fields };
 }
 
-/** Rows and columns of tile t of a field (edge tiles are partial). */
+/** Tiles of one slice of a field: [tile rows, tile columns]. */
+export function sliceGrid(h: Pick<FieldHeader, 'shape' | 'tile'>): [number, number] {
+  return [Math.ceil(h.shape[0] / h.tile[0]), Math.ceil(h.shape[1] / h.tile[1])];
+}
+
+/** Total tiles of a field: slices x tiles per slice. */
+export function tileCount(h: Pick<FieldHeader, 'shape' | 'tile' | 'slices'>): number {
+  const [gr, gc] = sliceGrid(h);
+  return (h.slices ?? 1) * gr * gc;
+}
+
+/**
+ * Where tile t lies: its slice s and its first row and column within the
+ * slice (t = s * (gr * gc) + ti * gc + tj; tiles never cross slices).
+ */
+export function tileOrigin(h: Pick<FieldHeader, 'shape' | 'tile'>, t: number): { s: number; i0: number; j0: number } {
+  const [gr, gc] = sliceGrid(h);
+  const s = Math.floor(t / (gr * gc));
+  const local = t - s * gr * gc;
+  return { s, i0: Math.floor(local / gc) * h.tile[0], j0: (local % gc) * h.tile[1] };
+}
+
+/** Rows and columns of tile t of a field (edge tiles of each slice are partial). */
 export function tileShape(h: Pick<FieldHeader, 'shape' | 'tile'>, t: number): [number, number] {
-  const gc = Math.ceil(h.shape[1] / h.tile[1]);
-  const ti = Math.floor(t / gc);
-  const tj = t % gc;
-  return [Math.min(h.tile[0], h.shape[0] - ti * h.tile[0]), Math.min(h.tile[1], h.shape[1] - tj * h.tile[1])];
+  const { i0, j0 } = tileOrigin(h, t);
+  return [Math.min(h.tile[0], h.shape[0] - i0), Math.min(h.tile[1], h.shape[1] - j0)];
 }
 
 const COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc'] as const;
@@ -284,7 +372,7 @@ export function checkIndex(raw: unknown, header: ArchiveHeader, start: number, e
 function checkFieldIndex(f: unknown, h: FieldHeader, start: number, end: number, limits: Limits, label: string): FieldIndex {
   const where = `${label} index of field ${quoteName(h.name)}`;
   if (!isObj(f)) fail(where, `is ${describeValue(f)}, not a map`);
-  const tiles = Math.ceil(h.shape[0] / h.tile[0]) * Math.ceil(h.shape[1] / h.tile[1]);
+  const tiles = tileCount(h);
   for (const c of COLUMNS) {
     const col = f[c];
     if (!Array.isArray(col) || col.length !== tiles) fail(where, `column '${c}' must list ${tiles} tiles, got ${describeValue(col)}`);
