@@ -162,6 +162,11 @@ export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array 
   return { stats: { method: payload[0], rank, valid: t.valid, maxErr: tally.max, rmse: tally.rmse, valueCrc, prefix: [] }, tally };
 }
 
+/** A prefix is recorded only if it is at most this share of its payload ... */
+const PREFIX_MAX_SHARE = 0.75;
+/** ... and saves at least this many bytes. */
+const PREFIX_MIN_SAVING = 64;
+
 /**
  * Measure every progressive prefix of a payload with the decoder's own
  * prefix reading, so a reader can choose one from the index alone.
@@ -170,7 +175,10 @@ export function measurePrefixes(payload: Uint8Array, t: PreparedTile, fill: Uint
   const out: number[] = [];
   const lens = prefixLengths(payload);
   lens.forEach((len, groups) => {
-    if (len >= payload.length) return;
+    // The centre alone (no factor group) is never worth offering: its error is about the tile's range.
+    if (groups === 0) return;
+    // A prefix is worth its index entry (about 30 bytes) only if it saves a good share of the payload.
+    if (len > PREFIX_MAX_SHARE * payload.length || payload.length - len < PREFIX_MIN_SAVING) return;
     const bytes = payload.subarray(0, len);
     let values: FloatArray;
     try {

@@ -41,22 +41,21 @@ function errors(x: ArrayLike<number>, y: ArrayLike<number>): { max: number; rmse
 describe('progressive reads of annual-precip', () => {
   const g = precip();
   const values = Float32Array.from(g.values);
-  // A tight pointwise bound makes every tile carry a residual after its factors.
-  const bytes = pack(values, g.shape, { bound: 'rel:1e-4', tile: 56, name: 'precip' });
+  // At rel:1e-2 with 32x32 tiles about a third of the tiles are low-rank with a residual after their factors.
+  const bytes = pack(values, g.shape, { bound: 'rel:1e-2', tile: 32, name: 'precip' });
 
   it('records prefixes for low-rank tiles', async () => {
     const a = await open(bytes);
     const ix = a.index.fields[0];
     expect(ix.prefix).toBeDefined();
-    const lowRank = ix.method.filter((m) => m === 1).length;
-    expect(lowRank).toBeGreaterThan(0);
+    expect(ix.prefix!.filter((p) => p.length > 0).length).toBeGreaterThan(5);
     ix.prefix!.forEach((p, t) => {
       expect(p.length % 4).toBe(0);
       for (let k = 0; k < p.length; k += 4) expect(p[k]).toBeLessThan(ix.length[t]);
     });
   });
 
-  for (const bound of ['abs:2000', 'abs:500', 'rmse:300', 'psnr:30']) {
+  for (const bound of ['abs:2000', 'abs:800', 'rmse:600', 'psnr:25']) {
     it(`${bound}: the values satisfy the bound the result states, measured against the original`, async () => {
       const src = new CountingSource(bytes);
       // No merging of nearby reads, so the count is exactly what the reader asked for.
