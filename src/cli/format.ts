@@ -22,7 +22,7 @@ export function seconds(ms: number): string {
 
 /** Bytes of the values of a field as stored raw. */
 export function rawBytes(h: FieldHeader): number {
-  return h.shape[0] * h.shape[1] * (h.dtype === 'f32' ? 4 : 8);
+  return (h.slices ?? 1) * h.shape[0] * h.shape[1] * (h.dtype === 'f32' ? 4 : 8);
 }
 
 /**

@@ -2,11 +2,14 @@
 import { basename, extname } from 'node:path';
 import type { Command } from 'commander';
 import { ArchiveBuilder, InputCode, InputError, type Bound, type Dtype, type FloatArray } from '../index.js';
-import { fileError } from './errors.js';
+import { fileError, UsageError } from './errors.js';
+import { isNetcdfPath, netcdfFields, parseMatrix } from './netcdf.js';
+import { readInput } from './files.js';
 import { errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
 import { checkLayout, openFieldBands } from './input.js';
 import type { Context } from './main.js';
+import { printable } from '../format/schema.js';
 import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, tileOption } from './options.js';
 
 interface PackFlags {
@@ -19,6 +22,8 @@ interface PackFlags {
   dtype?: Dtype;
   endian?: 'little' | 'big';
   force?: boolean;
+  var?: string[];
+  matrix?: string[];
 }
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
@@ -41,12 +46,24 @@ Bounds (MODE:VALUE):
 Missing values (NaN, infinities, and the --fill value) are kept bit for bit
 and are not counted in the bound.
 
-Input: a .npy file holding a 2-D float32 or float64 array; any other name is
-read as headerless raw binary and needs --shape and --dtype (--endian defaults
-to little).
+Input: a .npy file holding a 2-D float32 or float64 array; a NetCDF classic or
+64-bit-offset file (.nc); any other name is read as headerless raw binary and
+needs --shape and --dtype (--endian defaults to little).
+
+NetCDF input: every numeric variable of 2 or more dimensions becomes one field
+(or those named by --var, repeatable), with its attributes and dimension
+names; global attributes become the archive's. CF _FillValue / missing_value
+cells are kept bit for bit and excluded from the bound; variables packed with
+scale_factor / add_offset are stored as their unpacked physical values (the
+bound applies to those). A variable of 3 or more dimensions is stored as a
+stack of 2-D slices over its last two axes; --matrix time:space instead
+flattens the leading axes named before the colon into rows and the rest into
+columns (time x grid point: the snapshot matrix, where series of snapshots are
+most often of low rank).
 
 Example:
-  rankfield pack sst.npy -o sst.rfz --bound abs:0.01 --fill -999`;
+  rankfield pack sst.npy -o sst.rfz --bound abs:0.01 --fill -999
+  rankfield pack run.nc -o run.rfz --bound rel:1e-3 --matrix time:space`;
 
 /** Default field name: the input file name without its extension. */
 function defaultName(input: string): string {
@@ -83,10 +100,15 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
     .option('--dtype <TYPE>', 'raw input: f32 or f64', dtypeOption)
     .option('--endian <ORDER>', 'raw input: byte order, little (default) or big', endianOption)
+    .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
+    .option('--matrix <AXES:NAME>', 'NetCDF input: flatten the leading axes AXES (comma-separated) into rows, the rest into columns, e.g. time:space', parseMatrix)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
       const start = performance.now();
+      if (isNetcdfPath(input)) return packNetcdf(input, flags, ctx, start);
+      const nc = (['var', 'matrix'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
+      if (nc.length > 0) throw new UsageError(`${nc.join(' and ')} apply to NetCDF input (.nc); '${input}' is not one`);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       await statInput(input);
       checkLayout(input, layout);
@@ -139,4 +161,49 @@ export function registerPack(program: Command, ctx: Context): void {
           `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n`,
       );
     });
+}
+
+/** `pack IN.nc`: every chosen variable becomes one field of one archive. */
+async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: number): Promise<void> {
+  const misplaced = (['shape', 'dtype', 'endian', 'fill', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
+  if (misplaced.length > 0) {
+    throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}', fill values from its _FillValue / missing_value attributes`);
+  }
+  await statInput(input);
+  const io = { force: flags.force === true, inputs: [input] };
+  await checkOutput(flags.output, io);
+  const bytes = await readInput(input);
+  const { fields, archiveAttrs } = netcdfFields(bytes, input, flags.var, flags.matrix);
+  await writeOutputWith(flags.output, io, (sink) => {
+    const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
+    for (const f of fields) {
+      builder.add(f.read.values, [f.rows, f.cols], {
+        bound: flags.bound,
+        tile: flags.tile,
+        fill: f.read.fill,
+        name: f.name,
+        attrs: f.attrs,
+        slices: f.slices,
+        ndShape: f.read.shape,
+        dims: f.read.dims,
+        layout: f.layout,
+      });
+    }
+    builder.finish();
+  });
+  const archive = await openArchive(flags.output);
+  const size = archive.size;
+  let raw = 0;
+  const lines: string[] = [];
+  for (const h of archive.header.fields) {
+    const { index: ix } = archive.field(h.name);
+    const r = rawBytes(h);
+    raw += r;
+    const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
+    const layout = h.layout ?? 'plain';
+    lines.push(`  ${printable(h.name)} (${(h.dims ?? []).map(printable).join(', ')}) ${(h.nd_shape ?? h.shape).join('x')} ${h.dtype}, layout ${layout}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E)\n`);
+  }
+  await archive.close();
+  ctx.out(`packed ${fields.length} variable${fields.length === 1 ? '' : 's'} of '${input}' -> '${flags.output}': ${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; bound ${flags.bound.mode}:${flags.bound.value}; ${seconds(performance.now() - start)}\n`);
+  for (const l of lines) ctx.out(l);
 }

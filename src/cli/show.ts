@@ -5,6 +5,7 @@ import { formatBound, isPointwise, type Archive, type Attrs } from '../index.js'
 import { openArchive } from './files.js';
 import { num, rawBytes } from './format.js';
 import type { Context } from './main.js';
+import { printable } from '../format/schema.js';
 
 /** The facts `show` reports about one field. */
 export interface FieldFacts {
@@ -30,6 +31,14 @@ export interface FieldFacts {
   /** Tiles stored exactly (not low-rank), counted apart from the rank histogram. */
   exactTiles: number;
   attrs: Attrs;
+  /** Slices of shape stacked in the field (1 for plain fields). */
+  slices: number;
+  /** The original N-D shape, dimension names and layout, when recorded. */
+  ndShape?: number[];
+  dims?: string[];
+  layout?: string;
+  /** True when the values are CF-unpacked physical values (scale_factor / add_offset applied at pack time). */
+  unpacked: boolean;
 }
 
 /** The facts `show` reports about an archive. */
@@ -50,7 +59,7 @@ export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
   const fields = archive.header.fields.map((h, i): FieldFacts => {
     const ix = archive.index.fields[i];
     const payloadBytes = ix.length.reduce((a, b) => a + b, 0);
-    const cells = h.shape[0] * h.shape[1];
+    const cells = (h.slices ?? 1) * h.shape[0] * h.shape[1];
     const methods: Record<string, number> = {};
     const ranks = new Map<number, number>();
     let exactTiles = 0;
@@ -88,6 +97,11 @@ export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
       rankHistogram,
       exactTiles,
       attrs: h.attrs,
+      slices: h.slices ?? 1,
+      ...(h.nd_shape ? { ndShape: h.nd_shape } : {}),
+      ...(h.dims ? { dims: h.dims } : {}),
+      ...(h.layout ? { layout: h.layout } : {}),
+      unpacked: h.attrs['rankfield:unpacked'] === true,
     };
   });
   const raw = fields.reduce((a, f) => a + f.rawBytes, 0);
@@ -105,7 +119,7 @@ export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
 
 function attrsText(attrs: Attrs): string {
   return Object.entries(attrs)
-    .map(([k, v]) => `${k}=${JSON.stringify(v)}`)
+    .map(([k, v]) => `${printable(k)}=${printable(JSON.stringify(v))}`)
     .join(', ');
 }
 
@@ -117,12 +131,12 @@ export function factsText(a: ArchiveFacts): string {
   ];
   if (Object.keys(a.attrs).length > 0) lines.push(`attrs    ${attrsText(a.attrs)}`);
   for (const f of a.fields) {
-    const grid = `${Math.ceil(f.shape[0] / f.tile[0])} x ${Math.ceil(f.shape[1] / f.tile[1])}`;
+    const grid = `${f.slices > 1 ? `${f.slices} slices x ` : ''}${Math.ceil(f.shape[0] / f.tile[0])} x ${Math.ceil(f.shape[1] / f.tile[1])}`;
     const range = f.bound.range ? `valid range [${num(f.bound.range[0])}, ${num(f.bound.range[1])}]` : 'no valid values';
     const ranks = Object.entries(f.rankHistogram).map(([r, n]) => `${r}:${n}`);
     lines.push(
-      `field '${f.name}'`,
-      `  shape        ${f.shape[0]} x ${f.shape[1]} ${f.dtype}; tiles ${f.tile[0]} x ${f.tile[1]} (${grid} = ${f.tiles} tiles)`,
+      `field '${printable(f.name)}'`,
+      `  shape        ${f.slices > 1 ? `${f.slices} slices of ` : ''}${f.shape[0]} x ${f.shape[1]} ${f.dtype}; tiles ${f.tile[0]} x ${f.tile[1]} (${grid} = ${f.tiles} tiles)`,
       `  bound        ${f.bound.text} -> ${f.bound.limits === 'pointwise' ? 'pointwise limit' : 'RMSE limit'} E = ${num(f.bound.tolerance)} (${range})`,
       `  missing      ${f.cells - f.validCells} of ${f.cells} cells (NaN, infinities${f.fill === null ? '' : `, fill ${f.fill}`}), kept exactly`,
       `  payload      ${f.payloadBytes} bytes; ratio ${f.ratio.toFixed(2)}; ${f.bitsPerValue.toFixed(3)} bits per value`,
@@ -130,6 +144,15 @@ export function factsText(a: ArchiveFacts): string {
       `  methods      ${Object.entries(f.methods).map(([m, n]) => `${m} ${n}`).join(', ')}`,
       `  ranks        ${ranks.length > 0 ? ranks.join('  ') : '(no low-rank tiles)'}${f.exactTiles > 0 ? `  | exact: ${f.exactTiles}` : ''}`,
     );
+    if (f.ndShape) {
+      const dims = f.dims ? ` (${f.dims.map((d) => printable(d)).join(', ')})` : '';
+      const how = f.layout === undefined ? '' : f.layout === 'slices' ? '; layout slices: the last two axes are each slice' : `; layout ${printable(f.layout)}: the first ${f.layout.slice(7)} axes are the rows, the rest the columns`;
+      lines.push(`  variable     ${f.ndShape.join(' x ')}${dims}${how}; unpack restores this shape`);
+    }
+    if (f.unpacked) {
+      const p = f.attrs['rankfield:packing'];
+      lines.push(`  values       unpacked physical values (CF scale_factor/add_offset ${Array.isArray(p) ? p.join(', ') : ''} applied at pack time; the bound applies to them)`);
+    }
     if (Object.keys(f.attrs).length > 0) lines.push(`  attrs        ${attrsText(f.attrs)}`);
   }
   return lines.join('\n') + '\n';

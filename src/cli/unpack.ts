@@ -6,6 +6,11 @@ import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files.js';
 import { seconds } from './format.js';
 import { isNpyPath } from './input.js';
+import { isNetcdfPath, netcdfFromFields } from './netcdf.js';
+import { writeNetcdf } from '../io/netcdf-write.js';
+import { printable } from '../format/schema.js';
+import { stat } from 'node:fs/promises';
+import { join } from 'node:path';
 import type { Context } from './main.js';
 import { boundOption, endianOption, nameOption } from './options.js';
 import { formatBound } from '../codec/bound.js';
@@ -20,6 +25,8 @@ export interface Region {
 interface UnpackFlags {
   output: string;
   field?: string;
+  var?: string;
+  slices?: [number | undefined, number | undefined];
   region?: Region;
   bound?: Bound;
   endian?: 'little' | 'big';
@@ -35,6 +42,11 @@ requests, fetching only the tail, header, index and the tiles needed.
 edge, so ':100,50:' is the first 100 rows from column 50 on. Only the tiles
 the window touches are read and decoded.
 
+OUT ending in .nc gets a NetCDF classic file of every field (or --var NAME),
+with dimensions and attributes restored; OUT ending in / (an existing folder)
+gets one NAME.npy per field; .csv writes a small window as text (at most
+10^6 values without --force). --slices A:B picks slices of an N-D field.
+
 OUT ending in .npy gets a .npy file (little-endian, C order); any other name
 gets headerless raw binary in C (row-major) order, little-endian unless
 --endian big. The element type is the field's own (f32 or f64). Missing
@@ -49,6 +61,36 @@ Example:
 const END = /^[0-9]*$/;
 
 /** `--region R0:R1,C0:C1`: two half-open ranges of non-negative integers, either end optional. */
+/** `--slices A:B`: a half-open range of slices, either end optional. */
+export function slicesOption(text: string): [number | undefined, number | undefined] {
+  const r = text.split(':');
+  if (r.length !== 2 || !r.every((e) => END.test(e.trim()))) throw new InvalidArgumentError(`slices must be A:B (slices A..B-1; an empty end means the edge), got '${text}'`);
+  const [a, b] = r.map((e) => (e.trim() === '' ? undefined : Number(e.trim())));
+  for (const v of [a, b]) if (v !== undefined && !Number.isSafeInteger(v)) throw new InvalidArgumentError(`slice ends must be integers below 2^53, got '${text}'`);
+  if (a !== undefined && b !== undefined && a >= b) throw new InvalidArgumentError(`slices ${a}:${b} are empty (the start must be below the end)`);
+  return [a, b];
+}
+
+/** Most values written to .csv without --force. */
+export const CSV_LIMIT = 1_000_000;
+
+/** C-order values as CSV: a 2-D window as a matrix; more axes as one line per value with its indexes. */
+export function formatCsv(values: Float32Array | Float64Array, shape: number[], dims: string[]): Uint8Array {
+  const out: string[] = [];
+  if (shape.length === 2) {
+    const [r, c] = shape;
+    for (let i = 0; i < r; i++) out.push(Array.from(values.subarray(i * c, (i + 1) * c), (x) => String(x)).join(','));
+  } else {
+    out.push([...dims, 'value'].map((d) => (/[",\n]/.test(d) ? `"${d.replace(/"/g, '""')}"` : d)).join(','));
+    const idx = new Array<number>(shape.length).fill(0);
+    for (let k = 0; k < values.length; k++) {
+      out.push(`${idx.join(',')},${String(values[k])}`);
+      for (let a = shape.length - 1; a >= 0 && ++idx[a] === shape[a]; a--) idx[a] = 0;
+    }
+  }
+  return new TextEncoder().encode(out.join('\n') + '\n');
+}
+
 export function regionOption(text: string): Region {
   const parts = text.split(',');
   const ranges = parts.map((p) => p.trim().split(':'));
@@ -72,8 +114,10 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .summary('decode a field of an archive (or a window of it) to .npy or raw binary')
     .description('Decode one field of an archive (by default the first), or a window of it, to a .npy or raw file.')
     .argument('<IN>', 'archive to read: a file or an http(s) URL')
-    .requiredOption('-o, --output <OUT>', 'file to write: OUT.npy, or raw binary (e.g. OUT.raw)')
+    .requiredOption('-o, --output <OUT>', 'file to write: OUT.npy, OUT.csv, OUT.nc (NetCDF classic, every field or --var), DIR/ (one .npy per field), or raw binary (e.g. OUT.raw)')
     .option('--field <NAME>', 'field to decode (default: the first)', nameOption)
+    .option('--var <NAME>', 'the same as --field (a NetCDF variable packed as a field)', nameOption)
+    .option('--slices <A:B>', 'fields of slices: decode only slices A..B-1 (with --region for a window of each)', slicesOption)
     .option('--region <R0:R1,C0:C1>', 'decode only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
     .option('--bound <MODE:VALUE>', 'a looser bound than the archive holds: read only as much of each tile as meets it (prints what the values satisfy)', boundOption)
     .option('--endian <ORDER>', 'raw output: byte order, little (default) or big', endianOption)
@@ -81,28 +125,63 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .addHelpText('after', HELP)
     .action(async (input: string, flags: UnpackFlags) => {
       const start = performance.now();
+      if (flags.var !== undefined && flags.field !== undefined) throw new UsageError('give --var or --field, not both');
+      const chosen = flags.var ?? flags.field;
       const npy = isNpyPath(flags.output);
-      if (npy && flags.endian !== undefined) throw new UsageError(`--endian applies to raw output; '${flags.output}' is written as .npy (little-endian)`);
+      const nc = isNetcdfPath(flags.output);
+      const csv = /\.csv$/i.test(flags.output);
+      const dirOut = flags.output.endsWith('/');
+      if (flags.endian !== undefined && (npy || nc || csv || dirOut)) throw new UsageError(`--endian applies to raw output; '${flags.output}' is not written as raw binary`);
+      if (dirOut && chosen !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
+      if ((nc || dirOut) && (flags.region || flags.slices || flags.bound)) throw new UsageError(`--region, --slices and --bound apply to one field written to .npy, .csv or raw; '${flags.output}' gets whole fields`);
       if (!isUrl(input)) await statInput(input);
       const io = { force: flags.force === true, inputs: isUrl(input) ? [] : [input] };
-      await checkOutput(flags.output, io);
+      if (dirOut) await checkFolder(flags.output);
+      else await checkOutput(flags.output, io);
       const archive = await openArchive(input);
       try {
-        const { header: h } = archive.field(flags.field);
+        if (dirOut || nc) {
+          const names = chosen !== undefined ? [archive.field(chosen).header.name] : archive.names;
+          const fields = [];
+          for (const name of names) {
+            const f = await archive.read(name);
+            fields.push({ h: archive.field(name).header, shape: f.shape, values: f.values });
+          }
+          if (nc) {
+            const bytes = writeNetcdf(netcdfFromFields(archive.header.attrs, fields));
+            await writeOutput(flags.output, bytes, io);
+            ctx.out(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (NetCDF classic, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+          } else {
+            const files = fileNames(names);
+            for (const [i, f] of fields.entries()) await writeOutput(join(flags.output, files[i]), formatNpy({ data: f.values, shape: f.shape, dtype: f.h.dtype }), io);
+            ctx.out(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> ${files.map((f) => `'${join(flags.output, f)}'`).join(', ')}; ${seconds(performance.now() - start)}\n`);
+          }
+          return;
+        }
+        const { header: h } = archive.field(chosen);
         const r = flags.region;
         const window = r && {
           rows: [r.rows[0] ?? 0, r.rows[1] ?? h.shape[0]] as [number, number],
           cols: [r.cols[0] ?? 0, r.cols[1] ?? h.shape[1]] as [number, number],
         };
-        const field = await archive.read(h.name, { ...(window ?? {}), ...(flags.bound ? { bound: flags.bound } : {}) });
+        const sl = flags.slices && { slices: [flags.slices[0] ?? 0, flags.slices[1] ?? h.slices ?? 1] as [number, number] };
+        if (csv) {
+          const s = sl ? sl.slices[1] - sl.slices[0] : h.slices ?? 1;
+          const cells = s * (window ? (window.rows[1] - window.rows[0]) * (window.cols[1] - window.cols[0]) : h.shape[0] * h.shape[1]);
+          if (cells > CSV_LIMIT && flags.force !== true) throw new UsageError(`.csv output of ${cells} values is refused (more than ${CSV_LIMIT}); choose a smaller window with --region / --slices, write .npy, or use --force`);
+        }
+        const field = await archive.read(h.name, { ...(window ?? {}), ...(sl ?? {}), ...(flags.bound ? { bound: flags.bound } : {}) });
         const arr = { data: field.values, shape: field.shape, dtype: field.dtype };
         const endian = flags.endian ?? 'little';
-        const bytes = npy ? formatNpy(arr) : formatRaw(arr, endian);
+        const dims = h.dims && h.dims.length === field.shape.length ? h.dims : field.shape.length === 3 ? ['slice', 'row', 'col'] : field.shape.map((_, i) => `axis${i}`);
+        const bytes = npy ? formatNpy(arr) : csv ? formatCsv(field.values, field.shape, dims) : formatRaw(arr, endian);
         await writeOutput(flags.output, bytes, io);
-        const kind = npy ? '.npy' : `raw ${endian}-endian`;
+        const kind = npy ? '.npy' : csv ? 'CSV' : `raw ${endian}-endian`;
         const [[r0, r1], [c0, c1]] = [field.window.rows, field.window.cols];
-        const what = window ? `rows ${r0}..${r1 - 1}, columns ${c0}..${c1 - 1} (${field.shape.join('x')}) of field '${h.name}' (${h.shape.join('x')} ${h.dtype})` : `field '${h.name}' (${h.shape.join('x')} ${h.dtype})`;
-        ctx.out(`unpacked ${what} from '${input}' -> '${flags.output}' (${kind}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+        const [s0, s1] = field.window.slices;
+        const full = `field '${printable(h.name)}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype})`;
+        const part = `${sl ? `slices ${s0}..${s1 - 1}, ` : ''}rows ${r0}..${r1 - 1}, columns ${c0}..${c1 - 1} (${field.shape.join('x')}) of `;
+        ctx.out(`unpacked ${window || sl ? part : ''}${full} from '${input}' -> '${flags.output}' (${kind}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
         if (flags.bound) {
           const a = field.achieved;
           ctx.out(`requested ${formatBound(flags.bound)}: ${field.prefixTiles} of the tiles read as factors only; the values satisfy max error ${a.maxErr.toPrecision(4)}, RMSE ${a.rmse.toPrecision(4)} (recorded at encode time)\n`);
@@ -111,4 +190,22 @@ export function registerUnpack(program: Command, ctx: Context): void {
         await archive.close();
       }
     });
+}
+
+/** Refuse a folder output that does not exist or is not a folder. */
+async function checkFolder(path: string): Promise<void> {
+  const st = await stat(path).catch(() => null);
+  if (st === null || !st.isDirectory()) throw new UsageError(`output folder '${path}' does not exist (create it first)`);
+}
+
+/** One safe, distinct file name per field: NAME.npy, other characters as '_'. */
+function fileNames(names: string[]): string[] {
+  const used = new Set<string>();
+  return names.map((n) => {
+    let base = n.replace(/[^A-Za-z0-9._-]/g, '_').replace(/^\.+/, '_').slice(0, 200) || 'field';
+    let name = `${base}.npy`;
+    for (let k = 2; used.has(name.toLowerCase()); k++) name = `${base}-${k}.npy`;
+    used.add(name.toLowerCase());
+    return name;
+  });
 }

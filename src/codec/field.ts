@@ -27,6 +27,8 @@ export interface FieldSpec {
   fill: number | null;
   /** Choose the tile shape by trial (see auto-tile.ts); tileRows/tileCols are then replaced. */
   autoTile?: boolean;
+  /** Store factors in groups of ranks 1, 1, 2, 4, ... so readers can stop after any group (costs bytes). */
+  progressive?: boolean;
   /**
    * Slices of rows x cols stacked in the field (default 1). The source then
    * serves rows of the stacked (slices x rows) x cols matrix: rows
@@ -211,7 +213,7 @@ export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: numb
   const pointwise = isPointwise(spec.bound.mode) || tol === 0;
   const plan = pointwise ? null : planL2(src, spec, tol, fill);
   forEachTile(src, spec, (index, tile, m, n) => {
-    const t = plan?.kept(index) ?? prepareTile(tile, m, n, spec.dtype, fill, tol);
+    const t = plan?.kept(index) ?? prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
     let payload: Uint8Array;
     let res: ReturnType<typeof measure>;
     if (plan) ({ payload, res } = plan.encode(t, index));

@@ -42,7 +42,7 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   const tails: number[] = [];
   const dims: [number, number, number][] = [];
   forEachTile(src, spec, (_index, tile, m, n) => {
-    const t = prepareTile(tile, m, n, spec.dtype, fill, tol);
+    const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
     // Squared singular values in units of tol^2, so nothing overflows.
     const usable = t.valid > 0 && t.finite;
     // The full spectrum: cutting the field-wide smallest values needs every one of them.
@@ -126,7 +126,7 @@ function fits(rmse: number, valid: number, allotment: number, tol: number): bool
 function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, want: Set<number>, tol: number): PreparedTile[] {
   const out: PreparedTile[] = [];
   forEachTile(src, spec, (index, tile, m, n) => {
-    if (want.has(index)) out.push(prepareTile(tile, m, n, spec.dtype, fill, tol));
+    if (want.has(index)) out.push(prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one'));
   });
   return out;
 }

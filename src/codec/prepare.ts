@@ -27,10 +27,20 @@ export interface PreparedTile {
   /** False when centring overflowed (values near the float64 maximum). */
   finite: boolean;
   svd: Svd | null;
+  /** How factor ranks are grouped in the payload (see groupSizes in tile-encode.ts). */
+  grouping: 'one' | 'doubling';
 }
 
 /** Classify, fill and centre a tile; the SVD is computed by {@link ensureSvd}. */
-export function prepareTile(orig: FloatArray, m: number, n: number, dtype: Dtype, fill: Uint32Array | null, tol = 0): PreparedTile {
+export function prepareTile(
+  orig: FloatArray,
+  m: number,
+  n: number,
+  dtype: Dtype,
+  fill: Uint32Array | null,
+  tol = 0,
+  grouping: 'one' | 'doubling' = 'one',
+): PreparedTile {
   const cells = m * n;
   const classes = classify(orig, fill);
   const valid = cells - classes.special;
@@ -65,7 +75,7 @@ export function prepareTile(orig: FloatArray, m: number, n: number, dtype: Dtype
     writeSection(w, raw);
     maskSection = w.finish();
   }
-  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null };
+  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null, grouping };
 }
 
 /**

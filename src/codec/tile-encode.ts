@@ -123,7 +123,7 @@ function lowRankParts(t: PreparedTile, f: Factors | null, corr: Correction | nul
   if (flags & Flag.Mask) w.bytes(t.maskSection);
   const raws: Uint8Array[] = [];
   if (f && rank > 0) {
-    const sizes = groupSizes(rank);
+    const sizes = groupSizes(rank, t.grouping);
     w.u8(sizes.length);
     for (const s of sizes) w.u16(s);
     let k0 = 0;
@@ -161,15 +161,13 @@ function lowRankParts(t: PreparedTile, f: Factors | null, corr: Correction | nul
 
 /**
  * How ranks are grouped into separately compressed factor groups, each a
- * point where a progressive reader may stop: GROUPING 'one' keeps all ranks
- * in one group; 'doubling' cuts after ranks 1, 2, 4, 8, ... (tuned in bench/).
+ * point where a progressive reader may stop: 'one' keeps all ranks in one
+ * group; 'doubling' cuts after ranks 1, 2, 4, 8, ... Measured on the bench
+ * fields, 'doubling' costs 10-30% more bytes at psnr:40/60 with 64x64
+ * tiles, so it is an option (PackOptions.progressive), not the default.
  */
-// Measured with the bench fields: 'doubling' costs 10-30% more bytes at psnr:40/60 with 64x64 tiles, so one group it is.
-export const GROUPING = 'one' as 'one' | 'doubling';
-
-/** Group sizes for a rank under {@link GROUPING}. */
-export function groupSizes(rank: number): number[] {
-  if (GROUPING === 'one' || rank <= 1) return [rank];
+export function groupSizes(rank: number, grouping: 'one' | 'doubling'): number[] {
+  if (grouping === 'one' || rank <= 1) return [rank];
   const out: number[] = [];
   let done = 0;
   for (let next = 1; done < rank; next *= 2) {

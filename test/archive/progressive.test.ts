@@ -116,3 +116,37 @@ describe('progressive reads of annual-precip', () => {
     await expect(b.read('precip', { bound: 'abs:3000' })).rejects.toSatisfy((e: unknown) => e instanceof FormatError && e.code === 'checksum' && e.message.includes(`tile ${t}`));
   });
 });
+
+describe('progressive layout (factors in groups of ranks 1, 1, 2, 4, ...)', () => {
+  const g = precip();
+  const values = Float32Array.from(g.values);
+  // psnr:40 on annual-precip keeps several ranks per 64x64 tile; no residual, so the prefixes are rank prefixes.
+  const plain = pack(values, g.shape, { bound: 'psnr:40', name: 'precip' });
+  const progressive = pack(values, g.shape, { bound: 'psnr:40', name: 'precip', progressive: true });
+
+  it('decodes to the same values as the one-group layout would allow, within the same bound', async () => {
+    const a = await open(progressive);
+    const got = await a.read('precip');
+    const tol = a.header.fields[0].bound.tolerance;
+    expect(errors(values, got.values).rmse).toBeLessThanOrEqual(tol);
+    expect((await a.check(values)).ok).toBe(true);
+    // The grouping costs bytes: report it by asserting only that both archives are valid and the plain one is no larger.
+    expect(plain.length).toBeLessThanOrEqual(progressive.length);
+  });
+
+  it('records several rank prefixes per tile, and a looser RMSE reads fewer bytes, within what it states', async () => {
+    const src = new CountingSource(progressive);
+    const a = await open(src, { coalesce: { maxGap: 0 } });
+    const ix = a.index.fields[0];
+    expect(ix.prefix!.some((p) => p.length >= 8)).toBe(true); // at least two prefixes in some tile
+    const before = src.fetched;
+    const got = await a.read('precip', { bound: 'rmse:400' });
+    const used = src.fetched - before;
+    expect(got.prefixTiles).toBeGreaterThan(0);
+    expect(used).toBeLessThan(ix.length.reduce((s, x) => s + x, 0));
+    const e = errors(values, got.values);
+    expect(e.max).toBeLessThanOrEqual(got.achieved.maxErr);
+    expect(e.rmse).toBeLessThanOrEqual(got.achieved.rmse * (1 + 1e-9));
+    expect(got.achieved.rmse).toBeLessThanOrEqual(400);
+  });
+});

@@ -1,0 +1,115 @@
+/**
+ * Fields of stacked slices (N-D variables): header keys slices, nd_shape,
+ * dims, layout; required flag bit 0; slice-window reads; check over all
+ * slices. Data: vega-datasets data/annual-precip.json (168 x 360), cut into
+ * 4 slices of 42 x 360 (C order, no data moved), and data/volcano.json.
+ */
+import { describe, expect, it } from 'vitest';
+import { ArchiveBuilder, FormatError, InputError, MemorySink, open, pack } from '../../src/index.js';
+import type { Sink } from '../../src/format/container.js';
+import { precip, volcano } from './datasets.js';
+
+const grid = precip();
+// NaN cells of the dataset (null in the JSON) are missing values.
+const nd = [4, 42, 360];
+
+async function sliced(bound = 'abs:0.5', layout?: string) {
+  const sink = new MemorySink();
+  const b = new ArchiveBuilder(sink, { title: 'precip stack' });
+  b.add(Float32Array.from(grid.values), [42, 360], { bound, tile: 32, name: 'precip', slices: 4, ndShape: nd, dims: ['band', 'lat', 'lon'], layout });
+  b.finish();
+  return sink.bytes();
+}
+
+describe('fields of slices', () => {
+  it('round-trips within the bound, NaN cells exact, nd_shape and dims restored, flag bit 0 set', async () => {
+    const bytes = await sliced();
+    // Prologue: magic (8), version u16, required flags u16, little-endian (spec/FORMAT.md, "Prologue").
+    expect(bytes[10] | (bytes[11] << 8)).toBe(1);
+    const a = await open(bytes);
+    const h = a.field('precip').header;
+    expect([h.slices, h.nd_shape, h.dims, h.layout, h.shape]).toEqual([4, nd, ['band', 'lat', 'lon'], 'slices', [42, 360]]);
+    expect(a.index.fields[0].offset.length).toBe(4 * 2 * 12); // 4 slices x ceil(42/32) x ceil(360/32) tiles
+    const all = await a.read('precip');
+    expect(all.shape).toEqual(nd);
+    const orig = Float32Array.from(grid.values);
+    let max = 0;
+    for (let i = 0; i < orig.length; i++) {
+      if (Number.isNaN(orig[i])) expect(Number.isNaN(all.values[i])).toBe(true);
+      else max = Math.max(max, Math.abs(orig[i] - all.values[i]));
+    }
+    expect(max).toBeLessThanOrEqual(0.5);
+    const report = await a.check({ precip: orig });
+    expect(report.ok).toBe(true);
+    expect(report.fields[0].tiles).toBe(96);
+  });
+
+  it('a window of slices and rows/cols equals the same part of the whole read', async () => {
+    const a = await open(await sliced());
+    const all = await a.read('precip');
+    const w = await a.read('precip', { slices: [1, 3], rows: [30, 42], cols: [100, 170] });
+    expect(w.shape).toEqual([2, 12, 70]);
+    for (let s = 0; s < 2; s++) {
+      for (let i = 0; i < 12; i++) {
+        for (let j = 0; j < 70; j++) {
+          const want = all.values[(s + 1) * 42 * 360 + (30 + i) * 360 + 100 + j];
+          expect(Object.is(w.values[s * 12 * 70 + i * 70 + j], want) || w.values[s * 12 * 70 + i * 70 + j] === want).toBe(true);
+        }
+      }
+    }
+  });
+
+  it('an L2 bound is met over the whole field, across slices', async () => {
+    const a = await open(await sliced('rmse:0.8'));
+    const orig = Float32Array.from(grid.values);
+    const report = await a.check({ precip: orig });
+    expect(report.ok).toBe(true);
+    expect(report.fields[0].measured!.rmse).toBeLessThanOrEqual(0.8);
+  });
+
+  it("the 'matrix:1' layout keeps S = 1 and a whole read returns nd_shape", async () => {
+    const v = volcano();
+    // volcano 61 x 87 seen as (61, 3, 29): matrix:1 gives 61 x 87 again.
+    const sink = new MemorySink();
+    const b = new ArchiveBuilder(sink);
+    b.add(v.values, [61, 87], { bound: 'abs:0.1', name: 'h', ndShape: [61, 3, 29], dims: ['y', 'xa', 'xb'], layout: 'matrix:1' });
+    b.finish();
+    const bytes = sink.bytes();
+    expect(bytes[10] | (bytes[11] << 8)).toBe(0); // no slices, no required flag
+    const a = await open(bytes);
+    const r = await a.read('h');
+    expect(r.shape).toEqual([61, 3, 29]);
+    expect((await a.read('h', { rows: [0, 2] })).shape).toEqual([2, 87]);
+    await expect(a.read('h', { slices: [0, 1] })).rejects.toThrow(InputError);
+  });
+
+  it('refuses inconsistent N-D options', () => {
+    const b = new ArchiveBuilder(new MemorySink());
+    const vals = new Float32Array(4 * 42 * 360);
+    expect(() => b.add(vals, [42, 360], { bound: 'abs:1', slices: 4, ndShape: [4, 42, 361] })).toThrow(/nd_shape/);
+    expect(() => b.add(vals, [42, 360], { bound: 'abs:1', slices: 4, ndShape: nd, dims: ['a'] })).toThrow(/dims/);
+    expect(() => b.add(vals, [42, 360], { bound: 'abs:1', slices: 4, ndShape: nd, layout: 'matrix:1' })).toThrow(/layout/);
+    expect(() => b.add(vals, [42, 360], { bound: 'abs:1', slices: 3 })).toThrow(/values/);
+  });
+
+  it('a sink without patch needs { slices: true } up front', () => {
+    const parts: Uint8Array[] = [];
+    const sink: Sink = { write: (x) => parts.push(x.slice()) };
+    const vals = new Float32Array(2 * 8 * 8);
+    expect(() => new ArchiveBuilder(sink).add(vals, [8, 8], { bound: 'abs:1', slices: 2 })).toThrow(/slices: true/);
+    const b = new ArchiveBuilder(sink, {}, { slices: true });
+    b.add(vals, [8, 8], { bound: 'abs:1', slices: 2 });
+    b.finish();
+  });
+
+  it('an archive whose flag bit 0 is cleared is refused (a reader ignoring slices would misread)', async () => {
+    const bytes = await sliced();
+    const bad = bytes.slice();
+    bad[10] = 0; // prologue flags; the tail then disagrees too
+    await expect(open(bad)).rejects.toThrow(FormatError);
+    // Plain 2-D archives keep flags 0 and open as before.
+    const plain = pack(Float32Array.from(volcano().values), [61, 87], { bound: 'abs:1' });
+    expect(plain[10] | (plain[11] << 8)).toBe(0);
+    await expect(open(plain)).resolves.toBeDefined();
+  });
+});
