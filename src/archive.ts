@@ -27,7 +27,8 @@ export interface FieldValues {
   /** Row-major values of the window. */
   values: FloatArray;
   /** Where the window lies in the field: half-open row and column ranges. */
-  window: { slices: [number, number]; rows: [number, number]; cols: [number, number] };
+  /** `slices` is present only for fields of slices (see {@link hasSlices}). */
+  window: { slices?: [number, number]; rows: [number, number]; cols: [number, number] };
   /**
    * What the returned values are known to satisfy, from the figures recorded
    * at encode time for the tiles (or tile prefixes) they came from: the
@@ -255,7 +256,7 @@ export class Archive {
     const achieved = { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 };
     const whole = options.slices === undefined && options.rows === undefined && options.cols === undefined;
     const shape = whole && h.nd_shape ? h.nd_shape.slice() : hasSlices(h) ? [s1 - s0, r1 - r0, width] : [r1 - r0, width];
-    return { name: h.name, dtype: h.dtype, shape, values, window: { slices: [s0, s1], rows: [r0, r1], cols: [c0, c1] }, achieved, prefixTiles: tally.prefixTiles };
+    return { name: h.name, dtype: h.dtype, shape, values, window: { ...(hasSlices(h) ? { slices: [s0, s1] as [number, number] } : {}), rows: [r0, r1], cols: [c0, c1] }, achieved, prefixTiles: tally.prefixTiles };
   }
 
   /**

@@ -178,7 +178,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
         await writeOutput(flags.output, bytes, io);
         const kind = npy ? '.npy' : csv ? 'CSV' : `raw ${endian}-endian`;
         const [[r0, r1], [c0, c1]] = [field.window.rows, field.window.cols];
-        const [s0, s1] = field.window.slices;
+        const [s0, s1] = field.window.slices ?? [0, 1];
         const full = `field '${printable(h.name)}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype})`;
         const part = `${sl ? `slices ${s0}..${s1 - 1}, ` : ''}rows ${r0}..${r1 - 1}, columns ${c0}..${c1 - 1} (${field.shape.join('x')}) of `;
         ctx.out(`unpacked ${window || sl ? part : ''}${full} from '${input}' -> '${flags.output}' (${kind}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);

@@ -249,7 +249,7 @@ describe('bad windows', () => {
     [{ rows: [1.5, 3] }, /rows of a window must be \[start, end\] with integer ends, got \[1\.5,3\]/],
     [{ cols: [1] }, /cols of a window must be \[start, end\]/],
     [{ cols: 'all' }, /cols of a window must be/],
-    [{ row: [0, 1] }, /unknown read option 'row' \(known: rows, cols, verify\)/],
+    [{ row: [0, 1] }, /unknown read option 'row' \(known: slices, rows, cols, verify/],
     [{ verify: 'yes' }, /verify must be true or false/],
   ])('%j is refused with InputError', async (o, message) => {
     const a = await open(bytes);

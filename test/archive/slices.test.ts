@@ -8,6 +8,7 @@ import { describe, expect, it } from 'vitest';
 import { ArchiveBuilder, FormatError, InputError, MemorySink, open, pack } from '../../src/index.js';
 import type { Sink } from '../../src/format/container.js';
 import { precip, volcano } from './datasets.js';
+import { crc32 } from '../../src/format/crc32.js';
 
 const grid = precip();
 // NaN cells of the dataset (null in the JSON) are missing values.
@@ -105,8 +106,17 @@ describe('fields of slices', () => {
   it('an archive whose flag bit 0 is cleared is refused (a reader ignoring slices would misread)', async () => {
     const bytes = await sliced();
     const bad = bytes.slice();
-    bad[10] = 0; // prologue flags; the tail then disagrees too
-    await expect(open(bad)).rejects.toThrow(FormatError);
+    // Clear the flag in the prologue (offset 10) and the tail (offset 34), and reseal the tail CRC
+    // (CRC-32 of tail bytes 0..35 at tail offset 36): spec/FORMAT.md, Sections 3.1 and 3.5.
+    const tail = bad.length - 48;
+    const view = new DataView(bad.buffer);
+    view.setUint16(10, 0, true);
+    view.setUint16(tail + 34, 0, true);
+    view.setUint32(tail + 36, crc32(bad.subarray(tail, tail + 36)), true);
+    await expect(open(bad)).rejects.toThrow(/required flag bit 0 \(slices\) is not set/);
+    const half = bytes.slice();
+    half[10] = 0; // the prologue alone cleared: the tail disagrees
+    await expect(open(half)).rejects.toThrow(FormatError);
     // Plain 2-D archives keep flags 0 and open as before.
     const plain = pack(Float32Array.from(volcano().values), [61, 87], { bound: 'abs:1' });
     expect(plain[10] | (plain[11] << 8)).toBe(0);
