@@ -5,6 +5,7 @@
  * the tables is the whole cost.
  */
 import { deflateSync, inflateSync } from 'fflate';
+import { ByteWriter } from '../../src/format/bytes.js';
 
 /** DEFLATE level used by every baseline, as the issue asks. */
 export const LEVEL = 6;
@@ -15,40 +16,8 @@ export const MAX_INT = 0x40000000;
 /** Thrown when a baseline cannot meet the bound; the row is marked failed with this message. */
 export class BaselineFailure extends Error {}
 
-/** Appends little-endian values to a buffer grown by doubling. */
-export class Writer {
-  private buf = new Uint8Array(1024);
-  private view = new DataView(this.buf.buffer);
-  length = 0;
-
-  private reserve(extra: number): void {
-    if (this.length + extra <= this.buf.length) return;
-    let size = this.buf.length * 2;
-    while (size < this.length + extra) size *= 2;
-    const next = new Uint8Array(size);
-    next.set(this.buf.subarray(0, this.length));
-    this.buf = next;
-    this.view = new DataView(next.buffer);
-  }
-  u8(v: number): void {
-    this.reserve(1);
-    this.buf[this.length++] = v;
-  }
-  u32(v: number): void {
-    this.reserve(4);
-    this.view.setUint32(this.length, v, true);
-    this.length += 4;
-  }
-  f64(v: number): void {
-    this.reserve(8);
-    this.view.setFloat64(this.length, v, true);
-    this.length += 8;
-  }
-  bytes(b: Uint8Array): void {
-    this.reserve(b.length);
-    this.buf.set(b, this.length);
-    this.length += b.length;
-  }
+/** The library's little-endian writer, plus the baselines' sections and packed integers. */
+export class Writer extends ByteWriter {
   /** u32 raw length, u32 stored length, DEFLATE stream. */
   section(raw: Uint8Array): void {
     const stored = deflateSync(raw, { level: LEVEL });
@@ -59,9 +28,6 @@ export class Writer {
   /** Integers (|v| <= 2^30) zigzagged into 1, 2 or 4 byte planes, as one section. */
   ints(values: ArrayLike<number>): void {
     this.section(packInts(values));
-  }
-  finish(): Uint8Array {
-    return this.buf.slice(0, this.length);
   }
 }
 
