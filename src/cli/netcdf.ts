@@ -3,10 +3,11 @@
  * classic or 64-bit-offset file and their layouts for `pack`, and building
  * a NetCDF classic file from an archive's fields for `unpack -o OUT.nc`.
  */
-import { InputCode, InputError, type Attrs, type FieldHeader } from '../index.js';
-import { readNetcdfHeader, readNetcdfVariable, physicalAttributes, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues } from '../io/netcdf-read.js';
-import type { NcWriteFile, NcWriteVariable } from '../io/netcdf-write.js';
-import { layoutGrid, printable } from '../format/schema.js';
+import { FormatCode, FormatError, InputCode, InputError, type Attrs, type FieldHeader } from '../index.js';
+import { readNetcdfHeader, readNetcdfVariable, physicalAttributes, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues, type NcVariable } from '../io/netcdf-read.js';
+import { NC_TYPE_SIZE, setOwn } from '../io/netcdf-types.js';
+import type { NcWriteFile, NcWriteValues, NcWriteVariable } from '../io/netcdf-write.js';
+import { layoutGrid, MAX_ATTR_STRING, printable } from '../format/schema.js';
 import { UsageError } from './errors.js';
 
 /** Attribute keys of the archive's own, beside the variable's attributes (prefix "rankfield:"). */
@@ -23,7 +24,16 @@ export const KEY = {
   unlimited: 'rankfield:unlimited',
   /** Archive attr: the source's NetCDF format. */
   format: 'rankfield:nc_format',
+  /** Archive attr: JSON of the source's dimensions in file order, [{ name, size, unlimited }]. */
+  dims: 'rankfield:nc_dims',
+  /** Archive attr: every variable name of the source, in file order (fields and carried ones). */
+  order: 'rankfield:nc_order',
+  /** Archive attr: one JSON string per variable carried losslessly (not packed as a field); see {@link carriedJson}. */
+  carried: 'rankfield:nc_carried',
 } as const;
+
+/** Largest total of the carried variables' JSON in one archive: half the readers' default header limit of 16 MiB. */
+export const MAX_CARRIED_BYTES = 8 << 20;
 
 /** True when a path names a NetCDF file (case-insensitive extension .nc). */
 export function isNetcdfPath(path: string): boolean {
@@ -55,13 +65,154 @@ function typesText(types: Record<string, NcType>): string[] {
   return Object.entries(types).map(([k, t]) => `${k}=${t}`);
 }
 
+/** The stored values of any variable, bit for bit (big-endian on disk; typed arrays hold the same bits). */
+function storedValues(bytes: Uint8Array, file: NcFile, v: NcVariable): Int8Array | Uint8Array | Int16Array | Int32Array | Float32Array | Float64Array {
+  const size = NC_TYPE_SIZE[v.type];
+  const slab = (v.isRecord ? v.shape.slice(1) : v.shape).reduce((a, b) => a * b, 1);
+  const records = v.isRecord ? v.shape[0] : 1;
+  const n = slab * records;
+  const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  // Floats are read as their bit patterns, so NaN payloads survive.
+  const out =
+    v.type === 'byte' ? new Int8Array(n) : v.type === 'char' ? new Uint8Array(n) : v.type === 'short' ? new Int16Array(n) : v.type === 'int' ? new Int32Array(n) : v.type === 'float' ? new Uint32Array(n) : new BigUint64Array(n);
+  for (let r = 0; r < records; r++) {
+    const base = v.begin + r * file.recordSize;
+    const at = r * slab;
+    for (let i = 0; i < slab; i++) {
+      const off = base + i * size;
+      if (out instanceof Int8Array) out[at + i] = view.getInt8(off);
+      else if (out instanceof Uint8Array) out[at + i] = view.getUint8(off);
+      else if (out instanceof Int16Array) out[at + i] = view.getInt16(off);
+      else if (out instanceof Int32Array) out[at + i] = view.getInt32(off);
+      else if (out instanceof Uint32Array) out[at + i] = view.getUint32(off);
+      else out[at + i] = view.getBigUint64(off);
+    }
+  }
+  if (out instanceof Uint32Array) return new Float32Array(out.buffer);
+  if (out instanceof BigUint64Array) return new Float64Array(out.buffer);
+  return out;
+}
+
+const CANONICAL_NAN_F32 = 0x7fc00000;
+const CANONICAL_NAN_F64 = 0x7ff8000000000000n;
+
+/**
+ * A number for JSON, losslessly: finite numbers as JSON numbers (the
+ * shortest round-trip form of ECMAScript's Number::toString, exact for
+ * float64, and for float32 values widened to float64), except -0 as "-0";
+ * "Infinity", "-Infinity"; "NaN" for the canonical quiet NaN of the type,
+ * "NaN:0x..." (the bit pattern in hex) for any other.
+ */
+function jsonNumber(x: number, bits?: () => bigint, canonical?: bigint): number | string {
+  if (Number.isNaN(x)) {
+    const b = bits?.();
+    return b === undefined || b === canonical ? 'NaN' : `NaN:0x${b.toString(16)}`;
+  }
+  if (x === Infinity) return 'Infinity';
+  if (x === -Infinity) return '-Infinity';
+  if (Object.is(x, -0)) return '-0';
+  return x;
+}
+
+function jsonValues(values: ReturnType<typeof storedValues>): (number | string)[] | string {
+  if (values instanceof Uint8Array) {
+    let s = '';
+    for (let i = 0; i < values.length; i += 8192) s += String.fromCharCode(...values.subarray(i, i + 8192));
+    return s; // one character per byte (code 0..255), so every byte comes back
+  }
+  const out: (number | string)[] = new Array<number | string>(values.length);
+  if (values instanceof Float32Array) {
+    const u = new Uint32Array(values.buffer, values.byteOffset, values.length);
+    for (let i = 0; i < values.length; i++) out[i] = jsonNumber(values[i], () => BigInt(u[i]), BigInt(CANONICAL_NAN_F32));
+  } else if (values instanceof Float64Array) {
+    const u = new BigUint64Array(values.buffer, values.byteOffset, values.length);
+    for (let i = 0; i < values.length; i++) out[i] = jsonNumber(values[i], () => u[i], CANONICAL_NAN_F64);
+  } else for (let i = 0; i < values.length; i++) out[i] = values[i];
+  return out;
+}
+
+/**
+ * One variable not packed as a field, as JSON: { name, dims, type, attrs:
+ * [[name, type, value], ...] in file order, values }, values row-major as
+ * numbers (see {@link jsonNumber}) or, for char, one string of one
+ * character per byte.
+ */
+function carriedJson(bytes: Uint8Array, file: NcFile, v: NcVariable): string {
+  const attrs = Object.entries(v.attrs).map(([k, a]) => [k, v.attrTypes[k], typeof a === 'string' ? a : Array.isArray(a) ? a.map((x) => jsonNumber(x)) : jsonNumber(a)]);
+  return JSON.stringify({ name: v.name, dims: v.dims, type: v.type, attrs, values: jsonValues(storedValues(bytes, file, v)) });
+}
+
+/** A carried variable back from its JSON (archive attributes: checked, since archives come from anywhere). */
+function fromCarried(text: unknown, i: number): NcWriteVariable {
+  const bad = (why: string): never => {
+    throw new FormatError(FormatCode.Malformed, `archive attribute ${KEY.carried} entry ${i}: ${why}`);
+  };
+  if (typeof text !== 'string') return bad('not a string');
+  let o: unknown;
+  try {
+    o = JSON.parse(text);
+  } catch {
+    return bad('not valid JSON');
+  }
+  const r = o as { name?: unknown; dims?: unknown; type?: unknown; attrs?: unknown; values?: unknown };
+  if (o === null || typeof o !== 'object' || typeof r.name !== 'string') return bad('no variable name');
+  const where = `variable '${printable(r.name)}'`;
+  if (!Array.isArray(r.dims) || !r.dims.every((d) => typeof d === 'string')) return bad(`${where}: dims must be a list of names`);
+  if (typeof r.type !== 'string' || !(r.type in NC_TYPE_SIZE)) return bad(`${where}: unknown type`);
+  const type = r.type as NcType;
+  const num = (x: unknown): number => {
+    if (typeof x === 'number') return x;
+    if (x === '-0') return -0;
+    if (x === 'Infinity') return Infinity;
+    if (x === '-Infinity') return -Infinity;
+    if (x === 'NaN' || (typeof x === 'string' && /^NaN:0x[0-9a-f]{1,16}$/.test(x))) return NaN;
+    return bad(`${where}: ${JSON.stringify(x)} is not a number`);
+  };
+  const attrs: NcAttrs = {};
+  const attrTypes: Record<string, NcType> = {};
+  if (!Array.isArray(r.attrs)) return bad(`${where}: attrs must be a list`);
+  for (const a of r.attrs as unknown[]) {
+    if (!Array.isArray(a) || a.length !== 3 || typeof a[0] !== 'string' || typeof a[1] !== 'string' || !(a[1] in NC_TYPE_SIZE)) return bad(`${where}: an attribute is not [name, type, value]`);
+    const value: NcAttrValue = typeof a[2] === 'string' && a[1] === 'char' ? a[2] : Array.isArray(a[2]) ? a[2].map(num) : num(a[2]);
+    setOwn(attrs, a[0], value);
+    setOwn(attrTypes, a[0], a[1] as NcType);
+  }
+  let values: NcWriteValues;
+  if (type === 'char') {
+    if (typeof r.values !== 'string') return bad(`${where}: char values must be a string`);
+    const s = r.values;
+    values = new Uint8Array(s.length);
+    for (let k = 0; k < s.length; k++) {
+      const c = s.charCodeAt(k);
+      if (c > 255) return bad(`${where}: char values hold a character beyond one byte`);
+      values[k] = c;
+    }
+  } else {
+    if (!Array.isArray(r.values)) return bad(`${where}: values must be a list`);
+    const list = r.values as unknown[];
+    if (type === 'float' || type === 'double') {
+      const f = type === 'float' ? new Float32Array(list.length) : new Float64Array(list.length);
+      const u = type === 'float' ? new Uint32Array(f.buffer) : new BigUint64Array(f.buffer);
+      list.forEach((x, k) => {
+        if (typeof x === 'string' && x.startsWith('NaN:')) {
+          const b = BigInt(x.slice(4));
+          if (u instanceof Uint32Array) u[k] = Number(b & 0xffffffffn);
+          else u[k] = b;
+        } else f[k] = num(x);
+      });
+      values = f;
+    } else values = list.map(num); // the writer checks the range of each integer
+  }
+  return { name: r.name, dims: r.dims as string[], type, attrs, attrTypes, values };
+}
+
 /**
  * The variables to pack: those named by `--var` (in the order given), else
  * every numeric variable of two or more non-empty dimensions. `matrix`
  * (from --matrix) lays out every variable whose leading dimensions are
  * those names as 'matrix:A'; the others get the default layout.
  */
-export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | undefined, matrix: string[] | undefined): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs } {
+export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | undefined, matrix: string[] | undefined): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
   const file = readNetcdfHeader(bytes, path);
   let names: string[];
   if (vars && vars.length > 0) {
@@ -80,7 +231,10 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
     try {
       read = readNetcdfVariable(bytes, file, name);
     } catch (e) {
-      if (e instanceof InputError) throw new InputError(e.code, `${path}: ${e.message}`);
+      if (e instanceof InputError) {
+        const hint = e.code === InputCode.Missing ? '' : ' (variables that are not fields are carried losslessly with the fields packed: leave them out of --var)';
+        throw new InputError(e.code, `${path}: ${e.message}${hint}`);
+      }
       throw e;
     }
     const v = file.variables.find((x) => x.name === name)!;
@@ -106,7 +260,43 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
   archiveAttrs[KEY.format] = file.format;
   const unlimited = file.dims.find((d) => d.unlimited);
   if (unlimited) archiveAttrs[KEY.unlimited] = unlimited.name;
-  return { file, fields, archiveAttrs };
+  // Every variable that cannot be a field (char, fewer than 2 dimensions, a dimension of size 0) is carried
+  // losslessly in the archive's attributes, as are, without --var, any others not packed; with --var, the
+  // numeric variables of 2+ dimensions left out stay out (that is what --var chooses).
+  const packed = new Set(names);
+  const carried = file.variables.filter((v) => !packed.has(v.name) && (!(vars && vars.length > 0) || v.type === 'char' || v.shape.length < 2 || v.shape.some((d) => d === 0)));
+  const texts: string[] = [];
+  let total = 0;
+  for (const v of carried) {
+    const t = carriedJson(bytes, file, v);
+    const n = Buffer.byteLength(t, 'utf8');
+    total += n;
+    const what = `${path}: variable '${printable(v.name)}' (${v.type}, ${v.shape.join('x') || 'scalar'}) is not packed as a field and would be carried losslessly in the archive's attributes`;
+    if (n > MAX_ATTR_STRING) {
+      throw new InputError(InputCode.Shape, `${what}, but takes ${n} bytes there, more than the ${MAX_ATTR_STRING} readers accept; leave it out by naming the variables to pack with --var`);
+    }
+    if (total > MAX_CARRIED_BYTES) {
+      throw new InputError(InputCode.Shape, `${what}, but the carried variables up to it take ${total} bytes, more than the ${MAX_CARRIED_BYTES} an archive header may spend on them; name the variables to pack with --var`);
+    }
+    texts.push(t);
+  }
+  archiveAttrs[KEY.dims] = JSON.stringify(file.dims.map((d) => ({ name: d.name, size: d.size, unlimited: d.unlimited })));
+  archiveAttrs[KEY.order] = file.variables.filter((v) => packed.has(v.name) || carried.includes(v)).map((v) => v.name);
+  if (texts.length > 0) archiveAttrs[KEY.carried] = texts;
+  return { file, fields, archiveAttrs, carried: carried.map((v) => v.name) };
+}
+
+/** Names of the variables an archive carries losslessly (not packed as fields), from its attributes; for reports, so never throws. */
+export function carriedNames(attrs: Attrs): string[] {
+  const list = attrs[KEY.carried];
+  if (!Array.isArray(list)) return [];
+  return list.map((t, i) => {
+    try {
+      return fromCarried(t, i).name;
+    } catch {
+      return `(entry ${i}: malformed)`;
+    }
+  });
 }
 
 /** NetCDF attributes from archive attributes: our own keys dropped, types from the stored "name=type" list. */
@@ -142,8 +332,16 @@ function fieldDims(h: FieldHeader, shape: number[]): string[] {
 /** A NetCDF classic file of whole fields (shape = nd_shape), with dims and attributes restored. */
 export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; shape: number[]; values: Float32Array | Float64Array }[]): NcWriteFile {
   const dims = new Map<string, number>();
-  const unlimited = typeof archiveAttrs[KEY.unlimited] === 'string' ? (archiveAttrs[KEY.unlimited] as string) : null;
-  const variables: NcWriteVariable[] = fields.map(({ h, shape, values }) => {
+  let unlimited = typeof archiveAttrs[KEY.unlimited] === 'string' ? (archiveAttrs[KEY.unlimited] as string) : null;
+  // The source's dimensions, in its order (archives of NetCDF input carry them; older ones do not).
+  const source = sourceDims(archiveAttrs[KEY.dims]);
+  for (const d of source) {
+    dims.set(d.name, d.size);
+    if (d.unlimited) unlimited = d.name;
+  }
+  const carriedList = archiveAttrs[KEY.carried];
+  const carried = Array.isArray(carriedList) ? carriedList.map((t, i) => fromCarried(t, i)) : [];
+  const packedVars: NcWriteVariable[] = fields.map(({ h, shape, values }) => {
     const names = fieldDims(h, shape);
     names.forEach((d, i) => {
       const had = dims.get(d);
@@ -162,6 +360,18 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
     }
     return { name: h.name, dims: names, type, attrs, attrTypes: types, values };
   });
+  for (const v of carried) {
+    const missing = v.dims.find((d) => !dims.has(d));
+    if (missing !== undefined) throw new FormatError(FormatCode.Malformed, `archive attribute ${KEY.carried}: variable '${printable(v.name)}' uses dimension '${printable(missing)}', which the archive does not describe`);
+    if (packedVars.some((p) => p.name === v.name)) throw new FormatError(FormatCode.Malformed, `archive attribute ${KEY.carried}: variable '${printable(v.name)}' is also a field`);
+  }
+  // The source's variable order, where the archive records it.
+  const order = Array.isArray(archiveAttrs[KEY.order]) ? (archiveAttrs[KEY.order] as unknown[]) : [];
+  const rank = (name: string): number => {
+    const i = order.indexOf(name);
+    return i < 0 ? order.length : i;
+  };
+  const variables = [...packedVars, ...carried].map((v, i) => ({ v, i })).sort((a, b) => rank(a.v.name) - rank(b.v.name) || a.i - b.i).map((x) => x.v);
   // The record dimension stays unlimited only where every variable using it has it first (the format's rule).
   const recordOk = unlimited !== null && dims.has(unlimited) && variables.every((v) => v.dims.indexOf(unlimited) <= 0);
   const g = ncAttrs(archiveAttrs);
@@ -171,4 +381,25 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
     globalAttrTypes: g.types,
     variables,
   };
+}
+
+/** The source's dimension list from its JSON archive attribute, checked; [] when absent. */
+function sourceDims(text: unknown): { name: string; size: number; unlimited: boolean }[] {
+  if (text === undefined) return [];
+  const bad = (): never => {
+    throw new FormatError(FormatCode.Malformed, `archive attribute ${KEY.dims} is not a JSON list of { name, size, unlimited }`);
+  };
+  if (typeof text !== 'string') return bad();
+  let o: unknown;
+  try {
+    o = JSON.parse(text);
+  } catch {
+    return bad();
+  }
+  if (!Array.isArray(o)) return bad();
+  return o.map((d: unknown) => {
+    const x = d as { name?: unknown; size?: unknown; unlimited?: unknown };
+    if (d === null || typeof d !== 'object' || typeof x.name !== 'string' || typeof x.size !== 'number' || typeof x.unlimited !== 'boolean') return bad();
+    return { name: x.name, size: x.size, unlimited: x.unlimited };
+  });
 }

@@ -52,7 +52,10 @@ needs --shape and --dtype (--endian defaults to little).
 
 NetCDF input: every numeric variable of 2 or more dimensions becomes one field
 (or those named by --var, repeatable), with its attributes and dimension
-names; global attributes become the archive's. CF _FillValue / missing_value
+names; global attributes become the archive's. The other variables (1-D
+coordinates, char variables such as station names, scalars) are not
+compressed: they are carried losslessly, bit for bit, in the archive's
+attributes (up to 1 MiB of JSON each), and unpack -o OUT.nc writes them back. CF _FillValue / missing_value
 cells are kept bit for bit and excluded from the bound; variables packed with
 scale_factor / add_offset are stored as their unpacked physical values (the
 bound applies to those). A variable of 3 or more dimensions is stored as a
@@ -173,7 +176,7 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   const io = { force: flags.force === true, inputs: [input] };
   await checkOutput(flags.output, io);
   const bytes = await readInput(input);
-  const { fields, archiveAttrs } = netcdfFields(bytes, input, flags.var, flags.matrix);
+  const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix);
   await writeOutputWith(flags.output, io, (sink) => {
     const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
     for (const f of fields) {
@@ -206,4 +209,5 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   await archive.close();
   ctx.out(`packed ${fields.length} variable${fields.length === 1 ? '' : 's'} of '${input}' -> '${flags.output}': ${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; bound ${flags.bound.mode}:${flags.bound.value}; ${seconds(performance.now() - start)}\n`);
   for (const l of lines) ctx.out(l);
+  if (carried.length > 0) ctx.out(`  carried losslessly (not packed as fields): ${carried.map(printable).join(', ')}\n`);
 }

@@ -6,6 +6,7 @@ import { openArchive } from './files.js';
 import { num, rawBytes } from './format.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
+import { carriedNames, KEY } from './netcdf.js';
 
 /** The facts `show` reports about one field. */
 export interface FieldFacts {
@@ -48,6 +49,8 @@ export interface ArchiveFacts {
   version: number;
   writer: string;
   attrs: Attrs;
+  /** Variables of a NetCDF source carried losslessly in the archive's attributes (not packed as fields). */
+  carried: string[];
   rawBytes: number;
   /** rawBytes / fileBytes. */
   ratio: number;
@@ -111,6 +114,7 @@ export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
     version: archive.header.version,
     writer: archive.header.writer,
     attrs: archive.header.attrs,
+    carried: carriedNames(archive.header.attrs),
     rawBytes: raw,
     ratio: raw / archive.size,
     fields,
@@ -129,7 +133,11 @@ export function factsText(a: ArchiveFacts): string {
     `archive  ${a.file}: format version ${a.version}, written by ${a.writer}`,
     `size     ${a.fileBytes} bytes for ${a.fields.length} field${a.fields.length === 1 ? '' : 's'}; ${a.rawBytes} raw value bytes; ratio ${a.ratio.toFixed(2)}`,
   ];
-  if (Object.keys(a.attrs).length > 0) lines.push(`attrs    ${attrsText(a.attrs)}`);
+  // The NetCDF source's dimensions, variable order and carried variables are bookkeeping (and can be large): named, not printed.
+  const own = new Set<string>([KEY.dims, KEY.order, KEY.carried]);
+  const shown = Object.fromEntries(Object.entries(a.attrs).filter(([k]) => !own.has(k)));
+  if (Object.keys(shown).length > 0) lines.push(`attrs    ${attrsText(shown)}`);
+  if (a.carried.length > 0) lines.push(`carried  losslessly (not packed as fields; unpack -o OUT.nc restores them): ${a.carried.map(printable).join(', ')}`);
   for (const f of a.fields) {
     const grid = `${f.slices > 1 ? `${f.slices} slices x ` : ''}${Math.ceil(f.shape[0] / f.tile[0])} x ${Math.ceil(f.shape[1] / f.tile[1])}`;
     const range = f.bound.range ? `valid range [${num(f.bound.range[0])}, ${num(f.bound.range[1])}]` : 'no valid values';

@@ -6,13 +6,15 @@
  * by our reader (itself checked against netcdfjs in test/io), and the .nc
  * output read back with netcdfjs 4.0.0 (reference reader of the classic format).
  */
-import { existsSync, readdirSync, readFileSync } from 'node:fs';
+import { existsSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { NetCDFReader } from 'netcdfjs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { open } from '../../src/index.js';
 import { parseNpy } from '../../src/io/npy.js';
-import { readNetcdfHeader, readNetcdfVariable } from '../../src/io/netcdf-read.js';
+import { readNetcdfHeader, readNetcdfVariable, type NcFile, type NcVariable } from '../../src/io/netcdf-read.js';
+import { writeNetcdf } from '../../src/io/netcdf-write.js';
+import { NC_TYPE_SIZE } from '../../src/io/netcdf-types.js';
 import { ROOT, ensureBuilt, expectCliError, leftovers, rf, tempDir } from './helpers.js';
 
 const FIX = join(ROOT, 'test', 'fixtures', 'netcdf');
@@ -70,6 +72,118 @@ describe.each([
       expect(npy.dtype).toBe(orig.dtype);
       expectWithin(npy.data, orig.values, orig.fill, h.bound.tolerance);
     }
+  });
+});
+
+/** The stored bytes of a variable, record slabs joined (located by our reader's header: begin, record size). */
+function storedBytes(bytes: Uint8Array, file: NcFile, v: NcVariable): Uint8Array {
+  const slab = (v.isRecord ? v.shape.slice(1) : v.shape).reduce((a, b) => a * b, 1) * NC_TYPE_SIZE[v.type];
+  const records = v.isRecord ? v.shape[0] : 1;
+  const out = new Uint8Array(slab * records);
+  for (let r = 0; r < records; r++) out.set(bytes.subarray(v.begin + r * file.recordSize, v.begin + r * file.recordSize + slab), r * slab);
+  return out;
+}
+
+describe.each([
+  ['classic', CLASSIC, 'c'],
+  ['64-bit-offset', WIDE, 'w'],
+])('pack %s NetCDF, unpack -o out.nc: everything restored', (_kind, file, tag) => {
+  it('netcdfjs finds every variable, dimension and global attribute; 1-D and char variables are bit-identical', () => {
+    const out = join(t.dir, `all-${tag}.rfz`);
+    const r = rf(['pack', file, '-o', out, '--bound', 'rel:1e-3'], t.dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/carried losslessly \(not packed as fields\): time, depth, lat, lon, station_name, station_lat/);
+    const show = rf(['show', out], t.dir);
+    expect(show.stdout).toMatch(/carried +losslessly .*: time, depth, lat, lon, station_name, station_lat\n/);
+    const u = rf(['unpack', out, '-o', `all-${tag}.nc`], t.dir);
+    expect(u.code, u.stderr).toBe(0);
+    const origBytes = new Uint8Array(readFileSync(file));
+    const backBytes = new Uint8Array(readFileSync(join(t.dir, `all-${tag}.nc`)));
+    // netcdfjs 4.0.0, an independent reader of the classic format, on both files.
+    const a = new NetCDFReader(origBytes);
+    const b = new NetCDFReader(backBytes);
+    expect(b.variables.map((v) => v.name)).toEqual(a.variables.map((v) => v.name));
+    // netcdfjs lists the unlimited dimension with size 0 and its record count apart.
+    expect(b.dimensions).toEqual(a.dimensions);
+    expect(b.recordDimension.length).toBe(a.recordDimension.length);
+    expect(b.recordDimension.name).toBe(a.recordDimension.name);
+    expect(b.globalAttributes).toEqual(a.globalAttributes);
+    const na = readNetcdfHeader(origBytes);
+    const nb = readNetcdfHeader(backBytes);
+    const carried = na.variables.filter((v) => v.type === 'char' || v.shape.length < 2);
+    expect(carried.map((v) => v.name)).toEqual(['time', 'depth', 'lat', 'lon', 'station_name', 'station_lat']);
+    for (const v of carried) {
+      const w = nb.variables.find((x) => x.name === v.name)!;
+      expect([w.type, w.dims, w.shape, w.isRecord]).toEqual([v.type, v.dims, v.shape, v.isRecord]);
+      expect(w.attrs).toEqual(v.attrs);
+      expect(w.attrTypes).toEqual(v.attrTypes);
+      // Bit for bit: the stored bytes of the data (padding aside).
+      expect(Buffer.from(storedBytes(backBytes, nb, w)).equals(Buffer.from(storedBytes(origBytes, na, v))), v.name).toBe(true);
+      // And what netcdfjs reads (none of these is NC_BYTE, whose sign netcdfjs drops).
+      const va = a.variables.find((x) => x.name === v.name)!;
+      const vb = b.variables.find((x) => x.name === v.name)!;
+      expect(vb.attributes).toEqual(va.attributes);
+      expect(b.getDataVariable(v.name)).toEqual(a.getDataVariable(v.name));
+    }
+  });
+});
+
+describe('carried variables: edge values and limits', () => {
+  it('-0, NaN, infinities, float32 values, scalars and text come back bit for bit', () => {
+    const f32 = new Uint32Array([0x80000000, 0x7fc00000, 0x7f800000, 0xff800000, 0x3f8ccccd, 0x00000001, 0x7f7fffff, 0xffc00000]);
+    const f64 = new Float64Array([-0, NaN, Infinity, -Infinity, 0.1, 5e-324, Number.MAX_VALUE, 1 / 3]);
+    const grid = new Float32Array(8 * 8).map((_, i) => Math.sin(i));
+    const nc = writeNetcdf({
+      dims: [{ name: 'x', size: 8 }, { name: 'y', size: 8 }, { name: 'n', size: 5 }, { name: 'unused', size: 2 }],
+      globalAttrs: { note: 'edge values' },
+      variables: [
+        { name: 'f', dims: ['x'], type: 'float', attrs: { _FillValue: NaN, units: 'm' }, values: new Float32Array(f32.buffer) },
+        { name: 'd', dims: ['y'], type: 'double', attrs: { valid_range: [-Infinity, Infinity] }, values: f64 },
+        { name: 'k', dims: [], type: 'int', attrs: {}, values: [-2147483648] },
+        { name: 'b', dims: ['n'], type: 'byte', attrs: {}, values: [-128, -1, 0, 1, 127] },
+        { name: 's', dims: ['n'], type: 'short', attrs: {}, values: [-32768, -1, 0, 1, 32767] },
+        { name: 'label', dims: ['n'], type: 'char', attrs: {}, values: Uint8Array.of(0x41, 0, 0xff, 0x0a, 0x22) },
+        { name: 'grid', dims: ['x', 'y'], type: 'float', attrs: {}, values: grid },
+      ],
+    });
+    writeFileSync(join(t.dir, 'edge.nc'), nc);
+    const p = rf(['pack', 'edge.nc', '-o', 'edge.rfz', '--bound', 'abs:0.01'], t.dir);
+    expect(p.code, p.stderr).toBe(0);
+    const u = rf(['unpack', 'edge.rfz', '-o', 'edge-back.nc'], t.dir);
+    expect(u.code, u.stderr).toBe(0);
+    const back = new Uint8Array(readFileSync(join(t.dir, 'edge-back.nc')));
+    const na = readNetcdfHeader(nc);
+    const nb = readNetcdfHeader(back);
+    expect(nb.dims).toEqual(na.dims);
+    expect(nb.variables.map((v) => v.name)).toEqual(na.variables.map((v) => v.name));
+    for (const name of ['f', 'd', 'k', 'b', 's', 'label']) {
+      const v = na.variables.find((x) => x.name === name)!;
+      const w = nb.variables.find((x) => x.name === name)!;
+      expect([w.type, w.dims]).toEqual([v.type, v.dims]);
+      expect(Object.is(w.attrs._FillValue, v.attrs._FillValue)).toBe(true);
+      expect(w.attrs).toEqual(v.attrs);
+      expect(Buffer.from(storedBytes(back, nb, w)).equals(Buffer.from(storedBytes(nc, na, v))), name).toBe(true);
+    }
+    // netcdfjs reads the same float bits: -0 stays negative (IEEE 754 signed zero).
+    const ref = new NetCDFReader(back);
+    expect(Object.is((ref.getDataVariable('f') as number[])[0], -0)).toBe(true);
+  });
+
+  it('a variable too large to carry is refused, naming it, with no output', () => {
+    const big = new Float64Array(100_000).map((_, i) => Math.sqrt(i + 0.5));
+    const nc = writeNetcdf({
+      dims: [{ name: 'x', size: 100_000 }, { name: 'r', size: 4 }, { name: 'c', size: 4 }],
+      globalAttrs: {},
+      variables: [
+        { name: 'long_axis', dims: ['x'], type: 'double', attrs: {}, values: big },
+        { name: 'grid', dims: ['r', 'c'], type: 'double', attrs: {}, values: new Float64Array(16) },
+      ],
+    });
+    writeFileSync(join(t.dir, 'bigaxis.nc'), nc);
+    const r = rf(['pack', 'bigaxis.nc', '-o', 'bad-big.rfz', '--bound', 'abs:1'], t.dir);
+    expectCliError(r, /variable 'long_axis' \(double, 100000\) .* more than the 1048576/);
+    expect(existsSync(join(t.dir, 'bad-big.rfz'))).toBe(false);
+    expect(leftovers(t.dir)).toEqual([]);
   });
 });
 
