@@ -144,7 +144,7 @@ export class ArchiveBuilder {
   private encode(src: BandSource, spec: FieldSpec, o: PackOptions): FieldHeader {
     if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
     const slices = spec.slices ?? 1;
-    if (slices > 1 && !this.writer.require(FLAG_SLICES)) {
+    if (slices > 1 && !this.writer.requireFlags(FLAG_SLICES)) {
       throw new InputError(InputCode.Option, `field '${spec.name}' has ${slices} slices: create the ArchiveBuilder with { slices: true } (this sink cannot patch the prologue)`);
     }
     // The trial samples the top of the first slice.

@@ -100,7 +100,7 @@ export class ContainerWriter {
    * sink must support `patch`; otherwise this returns false and nothing
    * changes (declare the flags when creating the writer instead).
    */
-  require(bits: number): boolean {
+  requireFlags(bits: number): boolean {
     const want = this.flags | bits;
     if (want === this.flags) return true;
     if (want !== this.written) {
