@@ -8,6 +8,7 @@ import { randomBytes } from 'node:crypto';
 import { rmSync, unlinkSync, type Stats } from 'node:fs';
 import { lstat, open as openFile, rename, stat, unlink } from 'node:fs/promises';
 import { basename, dirname, join, resolve } from 'node:path';
+import { parentPort, workerData } from 'node:worker_threads';
 import { HttpSource } from '../format/http-source.js';
 import { open, type Archive, type Sink } from '../index.js';
 import { FileSink } from '../io/file-sink.js';
@@ -22,6 +23,20 @@ const pendingDirs = new Set<string>();
 export function trackTempDir(dir: string, active: boolean): void {
   if (active) pendingDirs.add(dir);
   else pendingDirs.delete(dir);
+  // In the command's worker (see worker.ts), the main thread handles signals: tell it too.
+  if (inCommandWorker()) parentPort?.postMessage({ dir, active });
+}
+
+/** Mark a temporary file for removal should the process be interrupted (`false`: renamed or removed already). */
+export function trackTempFile(path: string, active: boolean): void {
+  if (active) pending.add(path);
+  else pending.delete(path);
+  if (inCommandWorker()) parentPort?.postMessage({ tmp: path, active });
+}
+
+/** True inside the worker thread that bin/rankfield runs long commands in. */
+function inCommandWorker(): boolean {
+  return (workerData as { rankfieldWorker?: boolean } | null)?.rankfieldWorker === true;
 }
 
 /** Remove every temporary file still being written, and every tracked temporary folder (for signal handlers). */
@@ -188,7 +203,7 @@ export async function writeOutputWith(out: string, o: OutputOptions, produce: (s
   } catch (e) {
     throw fileError(e, 'write', out);
   }
-  pending.add(tmp);
+  trackTempFile(tmp, true);
   const writing: Sink = {
     write(bytes) {
       try {
@@ -207,7 +222,7 @@ export async function writeOutputWith(out: string, o: OutputOptions, produce: (s
     }
     await checkOutput(out, o);
     await rename(tmp, out).catch((e: unknown) => Promise.reject(fileError(e, 'write', out)));
-    pending.delete(tmp);
+    trackTempFile(tmp, false);
   } catch (e) {
     try {
       sink.abandon();
@@ -215,7 +230,7 @@ export async function writeOutputWith(out: string, o: OutputOptions, produce: (s
       // Already closed, or not closable: the file is removed below either way.
     }
     await unlink(tmp).catch(() => undefined);
-    pending.delete(tmp);
+    trackTempFile(tmp, false);
     throw e;
   }
   await syncFolder(folder);

@@ -8,7 +8,8 @@ import { VERSION_STRING } from '../index.js';
 import { registerCheck } from './check.js';
 import { registerDemo } from './demo.js';
 import { Exit, report } from './errors.js';
-import { removeTempFilesSync } from './files.js';
+import { removeTempFilesSync, trackTempDir, trackTempFile } from './files.js';
+import { Worker } from 'node:worker_threads';
 import { registerPack } from './pack.js';
 import { registerShow } from './show.js';
 import { registerUnpack } from './unpack.js';
@@ -88,10 +89,47 @@ export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'e
   }
 }
 
+/** Commands that run long enough to be interrupted mid-way: they run in a worker thread (see worker.ts). */
+const LONG_COMMANDS = ['pack', 'demo'];
+
+/** The command word of argv: its first argument that is not an option. */
+function commandOf(argv: readonly string[]): string | undefined {
+  return argv.find((a) => !a.startsWith('-'));
+}
+
+/** Run main in a worker thread, relaying its output, temporary files and exit code. */
+function inWorker(argv: string[], out: (s: string) => void, setWorker: (w: Worker) => void): Promise<number> {
+  return new Promise((resolveCode) => {
+    const w = new Worker(new URL('./worker.js', import.meta.url), { workerData: { argv, rankfieldWorker: true } });
+    setWorker(w);
+    let done = false;
+    const finish = (code: number) => {
+      if (!done) {
+        done = true;
+        resolveCode(code);
+      }
+    };
+    w.on('message', (m: { out?: string; err?: string; tmp?: string; dir?: string; active?: boolean; exit?: number }) => {
+      if (m.out !== undefined) out(m.out);
+      if (m.err !== undefined) process.stderr.write(m.err);
+      if (m.tmp !== undefined) trackTempFile(m.tmp, m.active === true);
+      if (m.dir !== undefined) trackTempDir(m.dir, m.active === true);
+      if (m.exit !== undefined) finish(m.exit);
+    });
+    w.on('error', (e) => {
+      report(e, wantsDebug(argv), (s) => void process.stderr.write(s));
+      finish(Exit.Usage);
+    });
+    w.on('exit', (code) => finish(code === 0 ? Exit.Ok : Exit.Usage));
+  });
+}
+
 /** Entry point of bin/rankfield: runs main on process.argv, with signal and broken-pipe handling. */
 export async function run(): Promise<void> {
+  let worker: Worker | undefined;
   const onSignal = (signal: NodeJS.Signals, code: number) => () => {
     removeTempFilesSync();
+    void worker?.terminate();
     process.stderr.write(`rankfield: error: interrupted by ${signal}; unfinished output files were removed\n`);
     process.exit(code);
   };
@@ -105,5 +143,7 @@ export async function run(): Promise<void> {
     stdoutOpen = false;
   });
   const out = (s: string) => void (stdoutOpen && process.stdout.write(s));
-  process.exitCode = await main(process.argv.slice(2), { out });
+  const argv = process.argv.slice(2);
+  const long = LONG_COMMANDS.includes(commandOf(argv) ?? '');
+  process.exitCode = long ? await inWorker(argv, out, (w) => (worker = w)) : await main(argv, { out });
 }

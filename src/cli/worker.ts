@@ -1,0 +1,16 @@
+/**
+ * The worker thread that long commands (pack, demo) run in. Encoding is
+ * synchronous, so in the main thread a signal would only be handled after it
+ * ends; here the main thread stays free to react to SIGINT and SIGTERM at
+ * once: it removes the temporary files this worker reports, then stops it.
+ * Output and the exit code travel back as messages, in order.
+ */
+import { parentPort, workerData } from 'node:worker_threads';
+import { main } from './main.js';
+
+const { argv } = workerData as { argv: string[] };
+const port = parentPort;
+if (port) {
+  const code = await main(argv, { out: (s) => port.postMessage({ out: s }), err: (s) => port.postMessage({ err: s }) });
+  port.postMessage({ exit: code });
+}

@@ -1,0 +1,68 @@
+/**
+ * Interrupting a pack mid-run: SIGINT or SIGTERM while a large field is being
+ * encoded leaves the destination untouched (no file, or the old file intact)
+ * and removes the temporary file; the exit code is 128 + the signal number
+ * (common practice, no source). The field is the vega-datasets annual-precip
+ * grid (data/annual-precip.json), mirror-tiled to 2048 x 2048 float32 so that
+ * packing takes long enough to be interrupted.
+ */
+import { spawn } from 'node:child_process';
+import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join, resolve } from 'node:path';
+import { afterAll, describe, expect, it } from 'vitest';
+import { mirrored, precip } from '../archive/datasets.js';
+
+const ROOT = resolve(import.meta.dirname, '../..');
+const BIN = join(ROOT, 'bin', 'rankfield');
+const SIDE = 2048;
+const dir = mkdtempSync(join(tmpdir(), 'rankfield-interrupt-'));
+const input = join(dir, 'big.f32');
+writeFileSync(input, new Uint8Array(mirrored(precip(), SIDE, 0, SIDE).buffer));
+
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
+
+/** Start a pack, wait until its temporary file exists, send `signal`, and resolve with the exit code. */
+function interrupt(out: string, signal: NodeJS.Signals, extra: string[] = []): Promise<{ code: number | null; stderr: string; sawTemp: boolean }> {
+  return new Promise((done, fail) => {
+    const child = spawn(process.execPath, [BIN, 'pack', input, '-o', out, '--bound', 'rel:1e-5', '--shape', `${SIDE}x${SIDE}`, '--dtype', 'f32', ...extra]);
+    let stderr = '';
+    let sawTemp = false;
+    child.stderr.on('data', (d) => (stderr += String(d)));
+    const poll = setInterval(() => {
+      if (readdirSync(dir).some((f) => f.endsWith('.tmp'))) {
+        sawTemp = true;
+        clearInterval(poll);
+        // Let it write some payloads first.
+        setTimeout(() => child.kill(signal), 300);
+      }
+    }, 20);
+    child.on('error', fail);
+    child.on('exit', (code) => {
+      clearInterval(poll);
+      done({ code, stderr, sawTemp });
+    });
+  });
+}
+
+describe('interrupting rankfield pack', () => {
+  it('SIGINT mid-run: exit 130, no output file, no temporary file left', async () => {
+    const out = join(dir, 'a.rfz');
+    const r = await interrupt(out, 'SIGINT');
+    expect(r.sawTemp).toBe(true);
+    expect(r.code).toBe(130);
+    expect(r.stderr).toMatch(/^rankfield: error: interrupted by SIGINT/m);
+    expect(existsSync(out)).toBe(false);
+    expect(readdirSync(dir).filter((f) => f.endsWith('.tmp'))).toEqual([]);
+  }, 120_000);
+
+  it('SIGTERM mid-run with --force over an existing file: exit 143, the old file intact, no temporary file left', async () => {
+    const out = join(dir, 'b.rfz');
+    writeFileSync(out, 'the previous archive');
+    const r = await interrupt(out, 'SIGTERM', ['--force']);
+    expect(r.sawTemp).toBe(true);
+    expect(r.code).toBe(143);
+    expect(readFileSync(out, 'utf8')).toBe('the previous archive');
+    expect(readdirSync(dir).filter((f) => f.endsWith('.tmp'))).toEqual([]);
+  }, 120_000);
+});
