@@ -33,3 +33,16 @@ export function mulPow2(x: number, e: number): number {
   const e2 = Math.trunc((e - e1) / 2);
   return x * 2 ** e1 * 2 ** e2 * 2 ** (e - e1 - e2);
 }
+
+/** Largest |x| over the entries, or NaN when some entry is not finite (NaN or an infinity). */
+export function maxAbs(a: Float64Array): number {
+  let amax = 0;
+  let probe = 0; // becomes NaN iff some entry is not finite
+  for (let i = 0; i < a.length; i++) {
+    const x = a[i];
+    probe += x * 0;
+    const ax = Math.abs(x);
+    if (ax > amax) amax = ax;
+  }
+  return probe === 0 ? amax : NaN;
+}

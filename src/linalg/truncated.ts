@@ -8,7 +8,7 @@
  */
 
 import { InputCode, InputError } from '../errors.js';
-import { exponentOf, mulPow2, scaleByPow2 } from './pow2.js';
+import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { sumSquares } from './qrcp.js';
 import { checkShape } from './shape.js';
 import { svd, type Svd } from './svd.js';
@@ -86,15 +86,8 @@ export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): 
   const s = new Float64Array(k);
   const v = new Float64Array(n * k);
 
-  let amax = 0;
-  let probe = 0; // becomes NaN iff some entry is not finite
-  for (let i = 0; i < a.length; i++) {
-    const x = a[i];
-    probe += x * 0;
-    const ax = Math.abs(x);
-    if (ax > amax) amax = ax;
-  }
-  if (probe !== 0) {
+  const amax = maxAbs(a);
+  if (amax !== amax) {
     u.fill(NaN);
     s.fill(NaN);
     v.fill(NaN);
