@@ -22,6 +22,7 @@ import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
 import { pack } from '../../src/pack.js';
 import type { BoundMode, Dtype, FloatArray } from '../../src/types.js';
+import { xorshift32 } from '../rng.js';
 
 const SEED = 0x40d5;
 
@@ -71,18 +72,7 @@ function limits(dtype: Dtype): { tiny: number; max: number; minExp: number; maxE
   return dtype === 'f64' ? { tiny: 2 ** -1074, max: Number.MAX_VALUE, minExp: -1074, maxExp: 1023 } : { tiny: 2 ** -149, max: 3.4028234663852886e38, minExp: -149, maxExp: 127 };
 }
 
-/** xorshift32 (Marsaglia 2003, from memory). */
-function rng(seed: number): () => number {
-  let s = seed >>> 0 || 1;
-  return () => {
-    s ^= s << 13;
-    s >>>= 0;
-    s ^= s >>> 17;
-    s ^= s << 5;
-    s >>>= 0;
-    return s / 2 ** 32;
-  };
-}
+const rng = xorshift32;
 
 function fillValue(c: Case): number | null {
   const { tiny, max } = limits(c.dtype);

@@ -2,18 +2,8 @@ import { Matrix, SingularValueDecomposition, solve } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { InputError } from '../../src/errors.js';
 import { solveSpd, svd, type Svd } from '../../src/linalg/svd.js';
+import { mulberry32 } from '../rng.js';
 
-/** mulberry32: small seeded PRNG so every test is deterministic. */
-function mulberry32(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 function randomMatrix(m: number, n: number, seed: number): Float64Array {
   const rnd = mulberry32(seed);

@@ -3,18 +3,8 @@ import { describe, expect, it } from 'vitest';
 import { InputError } from '../../src/errors.js';
 import { svd, truncatedSvd, type Svd } from '../../src/linalg/svd.js';
 import { OVERSAMPLE, POWER_ITERATIONS } from '../../src/linalg/truncated.js';
+import { mulberry32 } from '../rng.js';
 
-/** mulberry32: small seeded PRNG so every test is deterministic. */
-function mulberry32(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 /** m x n matrix of independent standard normals (Box-Muller), row-major. */
 function gaussianMatrix(m: number, n: number, seed: number): Float64Array {
