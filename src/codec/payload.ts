@@ -52,3 +52,38 @@ export function prefixLengths(payload: Uint8Array): number[] {
   }
   return out;
 }
+
+/** Bytes of a payload by role, for reports: factor streams (with their step codes), residual and exceptions. */
+export interface PayloadShares {
+  factors: number;
+  residual: number;
+  exceptions: number;
+}
+
+/**
+ * Walk a well-formed payload (one the decoder accepts) and count its bytes
+ * by role; everything else is fixed part, mask and framing. Returns null
+ * for a payload that does not walk to its end.
+ */
+export function payloadShares(payload: Uint8Array): PayloadShares | null {
+  if (payload[0] === Method.Exact) return { factors: 0, residual: 0, exceptions: payload.length };
+  if (payload[0] !== Method.LowRank) return null;
+  const lens = prefixLengths(payload);
+  if (lens.length === 0) return null;
+  const factors = lens[lens.length - 1] - lens[0];
+  let at = lens[lens.length - 1];
+  const view = new DataView(payload.buffer, payload.byteOffset, payload.byteLength);
+  let residual = 0;
+  let exceptions = 0;
+  if (payload[1] & Flag.Residual) {
+    if (at + 12 > payload.length) return null;
+    residual = 12 + view.getUint32(at + 8, true);
+    at += residual;
+  }
+  if (payload[1] & Flag.Exceptions) {
+    if (at + 8 > payload.length) return null;
+    exceptions = 8 + view.getUint32(at + 4, true);
+    at += exceptions;
+  }
+  return at === payload.length ? { factors, residual, exceptions } : null;
+}

@@ -94,6 +94,8 @@ export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dw
 
 /** Residual and exceptions of a pointwise candidate. */
 interface Correction {
+  /** The centre the candidate reconstructs around (the tile's, or one on its lattice). */
+  center: number;
   step: number;
   q: Int32Array | null;
   lorenzo: boolean;
@@ -119,7 +121,7 @@ export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correct
   w.u8(Method.LowRank);
   w.u8(flags);
   w.u16(rank);
-  w.f64(t.center);
+  w.f64(corr !== null ? corr.center : t.center);
   if (flags & Flag.Mask) w.bytes(t.maskSection);
   if (f && rank > 0) {
     const sizes = groupSizes(rank, t.grouping);
@@ -213,15 +215,15 @@ function roughBits(v: Int32Array): number {
 /**
  * The residual of a candidate against the pointwise bound e, computed with the
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
+ * The step is 2e, or `step` when given (with `center`, for lattice candidates).
  */
-export function correct(t: PreparedTile, f: Factors | null, e: number): Correction {
+export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 * e, center = t.center): Correction {
   const { m, n } = t;
   const cells = m * n;
   const base = new Float64Array(cells);
-  if (f) lowRank(f.l, f.w, m, n, f.rank, t.center, base);
-  else base.fill(t.center);
+  if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
+  else base.fill(center);
   const codes = t.classes.codes;
-  const step = 2 * e;
   let q: Int32Array | null = null;
   let lorenzo = false;
   const acc = base.slice();
@@ -256,7 +258,29 @@ export function correct(t: PreparedTile, f: Factors | null, e: number): Correcti
     if (codes[c] !== Cell.Valid) continue;
     if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
   }
-  return { step, q, lorenzo, exceptions };
+  return { center, step, q, lorenzo, exceptions };
+}
+
+/**
+ * Rank-0 candidates: the plain one (step 2e around the tile's centre) and,
+ * when the tile's values lie on an integer lattice, one whose step is the
+ * largest odd multiple K of the lattice step with (K - 1) / 2 steps within e,
+ * around a centre on the lattice: every reconstructed value is then a
+ * lattice point within e (exact when e is below half the lattice step).
+ */
+function rankZero(t: PreparedTile, e: number): Uint8Array {
+  let best = lowRankPayload(t, null, correct(t, null, e));
+  const { quantum, origin } = t.lattice;
+  if (quantum > 0 && e >= 0) {
+    const k = 2 * Math.floor(e / quantum) + 1;
+    const step = k * quantum;
+    const center = origin + Math.round((t.center - origin) / quantum) * quantum;
+    if (step <= 2 ** 52 && Number.isFinite(center)) {
+      const p = lowRankPayload(t, null, correct(t, null, Math.max(e, Number.MIN_VALUE), step, center));
+      if (p.length < best.length) best = p;
+    }
+  }
+  return best;
 }
 
 /** Candidate ranks tried by the pointwise search. */
@@ -277,7 +301,7 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
     return p.length < exact.length ? p : exact;
   }
   if (!t.finite) return exact;
-  let best = lowRankPayload(t, null, correct(t, null, e));
+  let best = rankZero(t, e);
   if (e > 0) best = searchRanks(t, e, best);
   return best.length < exact.length ? best : exact;
 }
