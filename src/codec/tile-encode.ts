@@ -44,21 +44,29 @@ export interface Factors {
 }
 
 /**
- * Quantize the first r left singular vectors with step du, refit the right
- * factor by least squares against the tile (W = (Lq^T Lq)^-1 Lq^T A, the
- * pseudo-inverse solution), then quantize it with step dw.
+ * Quantize the first r left singular vectors, vector k with step c / s_k
+ * (so every rank adds the same rounding noise, c^2 m / 12, to the tile:
+ * equal noise per coefficient is the high-rate optimum of uniform
+ * quantization; from memory), refit the right factor by least squares
+ * against the tile (W = (Lq^T Lq)^-1 Lq^T A, the pseudo-inverse solution),
+ * then quantize it with step dw.
  */
-export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dwTarget: number): Factors | null {
+export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget: number): Factors | null {
   const { m, n } = t;
   const s = ensureSvd(t, r);
-  if (!(duTarget >= MIN_STEP && dwTarget >= MIN_STEP && Number.isFinite(duTarget) && Number.isFinite(dwTarget))) return null;
-  const cu = stepCode(duTarget);
+  if (!(dwTarget >= MIN_STEP && Number.isFinite(dwTarget) && c > 0 && Number.isFinite(c))) return null;
+  const codeU = new Int16Array(r);
   const cw = stepCode(dwTarget);
-  const du = stepValue(cu);
   const dw = stepValue(cw);
   const qu = new Int32Array(r * m);
   const l = new Float64Array(m * r);
+  // Singular values below this share of the largest are treated as this small.
+  const floor = s.s[0] * 1e-12;
   for (let k = 0; k < r; k++) {
+    const duTarget = c / Math.max(s.s[k], floor);
+    if (!(duTarget >= MIN_STEP && Number.isFinite(duTarget))) return null;
+    codeU[k] = stepCode(Math.min(duTarget, 2 ** 900));
+    const du = stepValue(codeU[k]);
     for (let i = 0; i < m; i++) {
       const q = Math.round(s.u[i * s.k + k] / du);
       if (Math.abs(q) > MAX_INT) return null;
@@ -80,16 +88,18 @@ export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dw
       for (let j = 0; j < n; j++) b[bk + j] += lik * a[row + j];
     }
   }
+  // A left vector quantized to all zeros leaves G singular: such a rank adds nothing.
+  for (let k = 0; k < r; k++) if (g[k * r + k] === 0) return null;
   solveSpd(g, r, b, n);
   const qw = new Int32Array(r * n);
   const w = new Float64Array(r * n);
-  for (let c = 0; c < r * n; c++) {
-    const q = Math.round(b[c] / dw);
+  for (let k = 0; k < r * n; k++) {
+    const q = Math.round(b[k] / dw);
     if (!(Math.abs(q) <= MAX_INT)) return null;
-    qw[c] = q;
-    w[c] = q * dw;
+    qw[k] = q;
+    w[k] = q * dw;
   }
-  return { rank: r, codeU: new Int16Array(r).fill(cu), codeW: new Int16Array(r).fill(cw), qu, qw, l, w };
+  return { rank: r, codeU, codeW: new Int16Array(r).fill(cw), qu, qw, l, w };
 }
 
 /** Residual and exceptions of a pointwise candidate. */
@@ -320,10 +330,6 @@ function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array 
   let worse = 0;
   let best = rank0;
   let prev = rank0.length;
-  // Energy of the kept ranks relative to s[0]^2, so huge values cannot overflow it.
-  let energy = 0;
-  let done = 0;
-  const s0 = s.s[0];
   for (const r of RANKS) {
     if (r === 0) continue;
     if (r > s.k && numRank === s.k) {
@@ -331,10 +337,10 @@ function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array 
       numRank = numericalRank();
     }
     if (r > numRank) break;
-    for (; done < r; done++) energy += (s.s[done] / s0) * (s.s[done] / s0);
+    // Rounding noise per cell of (FACTOR_NOISE e)^2 from each factor: r c^2 / (12 n) and r dw^2 / (12 m).
     const dw = FACTOR_NOISE * e * Math.sqrt((12 * m) / r);
-    const du = (FACTOR_NOISE * e * Math.sqrt(12 * n)) / (s0 * Math.sqrt(energy));
-    const f = quantizeFactors(t, r, du, dw);
+    const c = FACTOR_NOISE * e * Math.sqrt((12 * n) / r);
+    const f = quantizeFactors(t, r, c, dw);
     if (!f) break;
     const p = lowRankPayload(t, f, correct(t, f, e));
     if (p.length < best.length) best = p;
@@ -346,12 +352,12 @@ function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array 
 }
 
 /** A rank-r payload with no residual (L2 modes), or the exact one if smaller. */
-export function encodeL2(t: PreparedTile, r: number, du: number, dw: number): Uint8Array {
+export function encodeL2(t: PreparedTile, r: number, c: number, dw: number): Uint8Array {
   const exact = exactPayload(t);
   if (!t.finite) return exact;
   let f: Factors | null = null;
   if (r > 0 && t.valid > 0) {
-    f = quantizeFactors(t, Math.min(r, t.m, t.n), du, dw);
+    f = quantizeFactors(t, Math.min(r, t.m, t.n), c, dw);
     if (!f) return exact;
   }
   const p = lowRankPayload(t, f, null);
