@@ -13,9 +13,10 @@ export interface PackOptions {
   /** The error bound, as `{ mode, value }` or text such as `'rel:1e-3'`. */
   bound: Bound | string;
   /**
-   * Tile size: [rows, cols], or one number for square tiles. Default 64x64.
-   * 'auto' tries 64, 128 and 256 square tiles and the whole field (when it
-   * fits in one tile) on a sample and keeps the one that packs smallest.
+   * Tile size: [rows, cols], or one number for square tiles. Default 'auto':
+   * 64, 128 and 256 square tiles and the whole field (when it holds at most
+   * 2^20 cells) are tried on a sample and the one that packs smallest is
+   * kept. Smaller tiles make window reads cheaper; set a size to fix it.
    */
   tile?: number | [number, number] | 'auto';
   /** A fill value marking missing cells (restored bit for bit, excluded from the bound). */
@@ -81,7 +82,7 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   if (dtype !== 'f32' && dtype !== 'f64') throw new InputError(InputCode.Dtype, `dtype must be f32 or f64, got ${String(dtype)}`);
   const want = dtype === 'f32' ? Float32Array : Float64Array;
   const data = !withValues || values instanceof want ? (values as FloatArray) : want.from(values);
-  const tile = o.tile ?? 64;
+  const tile = o.tile ?? 'auto';
   const auto = tile === 'auto';
   if (!auto && typeof tile !== 'number' && !(Array.isArray(tile) && tile.length === 2)) {
     throw new InputError(InputCode.Option, `tile must be a number, [rows, cols] or 'auto', got ${JSON.stringify(tile)}`);
