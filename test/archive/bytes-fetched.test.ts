@@ -52,7 +52,7 @@ afterAll(async () => {
 
 describe('a 256x256 window of an 8192x8192 archive over HTTP', () => {
   it('fetches at most 1.5 x (intersecting payloads + index + tail + header), and the right values', async () => {
-    const ix = local.index.fields[0];
+    const ix = (await local.loadIndex()).fields[0];
     const gc = SIDE / TILE;
     const tiles: number[] = [];
     for (let ti = Math.floor(ROWS[0] / TILE); ti * TILE < ROWS[1]; ti++) for (let tj = Math.floor(COLS[0] / TILE); tj * TILE < COLS[1]; tj++) tiles.push(ti * gc + tj);

@@ -126,7 +126,7 @@ describe('archives at an http URL', () => {
     // Bytes served: the probe, prologue, tail, header and index, plus the payloads of the
     // tiles the window touches (tile rows 3..4, tile columns 4..5 of 32x48 tiles).
     const a = await open(new Uint8Array(readFileSync(join(tmp.dir, 'precip.rfz'))));
-    const ix = a.index.fields[0];
+    const ix = (await a.loadIndex()).fields[0];
     const gc = Math.ceil(360 / 48);
     let payload = 0;
     for (const ti of [3, 4]) for (const tj of [4, 5]) payload += ix.length[ti * gc + tj];

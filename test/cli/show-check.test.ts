@@ -52,7 +52,7 @@ describe('show', () => {
     const facts = JSON.parse(r.stdout);
     const bytes = new Uint8Array(readFileSync(path('v.rfz')));
     const archive = await open(bytes);
-    const ix = archive.index.fields[0];
+    const ix = (await archive.loadIndex()).fields[0];
     const payload = ix.length.reduce((a, b) => a + b, 0);
     const f = facts.fields[0];
     expect(facts.fileBytes).toBe(statSync(path('v.rfz')).size);
@@ -121,7 +121,7 @@ describe('check', () => {
 
   it('a flipped byte in a tile payload is a check failure (exit 1) naming the tile; unpack refuses it (exit 2)', async () => {
     const archive = await open(new Uint8Array(readFileSync(path('v.rfz'))));
-    const ix = archive.index.fields[0];
+    const ix = (await archive.loadIndex()).fields[0];
     const t = 3;
     damaged('tile.rfz', ix.offset[t] + Math.floor(ix.length[t] / 2));
     const r = rf(['check', 'tile.rfz'], dir);

@@ -148,7 +148,7 @@ describe('reader limits', () => {
 
   it('a rank above maxRank is refused at open, before any tile is decoded', async () => {
     const b = factors();
-    const rank = (await open(b)).index.fields[0].rank[0];
+    const rank = (await (await open(b)).loadIndex()).fields[0].rank[0];
     expect(rank).toBeGreaterThan(1);
     let e: unknown = null;
     try {
@@ -337,7 +337,7 @@ describe('tile payloads', () => {
   it('payload errors name file offsets when the reader knows where the payload is', async () => {
     const r = withSection('residual');
     const b = edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true));
-    const offset = (await open(b)).index.fields[r.f].offset[r.t];
+    const offset = (await (await open(b)).loadIndex()).fields[r.f].offset[r.t];
     expect((await refusal(b)).message).toMatch(new RegExp(`centre Infinity at file offset ${offset + 4} is not finite$`));
   });
 
