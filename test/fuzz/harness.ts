@@ -163,9 +163,15 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', 
     }
   }
   const failedTiles = new Map<string, Set<number>>();
+  const failedPages = new Map<string, Set<number>>();
   const failed = (name: string, e: unknown): void => {
-    const m = e instanceof FormatError ? /tile (\d+)/.exec(e.message.slice(label.length)) : null;
+    const text = e instanceof FormatError ? e.message.slice(label.length) : '';
+    // A failed index page is reported by check() as one failure naming the page (tile -1).
+    const page = /index page (\d+) of field/.exec(text);
+    const m = page ? null : /tile (\d+)/.exec(text);
     if (!failedTiles.has(name)) failedTiles.set(name, new Set());
+    if (!failedPages.has(name)) failedPages.set(name, new Set());
+    if (page) failedPages.get(name)!.add(Number(page[1]));
     if (m) failedTiles.get(name)!.add(Number(m[1]));
   };
   for (const name of a.names) {
@@ -219,6 +225,9 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', 
       if (report.ok) out.findings.push(`check: reports ok, but reading field '${name}' failed`);
       for (const t of tiles) {
         if (!report.failures.some((f) => f.field === name && f.tile === t)) out.findings.push(`check: does not report field '${name}' tile ${t}, which failed to decode`);
+      }
+      for (const p of failedPages.get(name) ?? []) {
+        if (!report.failures.some((f) => f.field === name && f.tile === -1 && new RegExp(`index page ${p} `).test(f.what))) out.findings.push(`check: does not report field '${name}' index page ${p}, which failed to load`);
       }
     }
     if (!report.ok && out.result === 'ok') {
