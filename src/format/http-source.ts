@@ -183,7 +183,9 @@ export class HttpSource implements ByteSource {
       this.multiRange = false;
     } catch (e) {
       if (changed.error !== null) throw changed.error;
-      // Not refused, not proven unsupported (a dropped connection, a bad part): these ranges go one by one.
+      // An answer that breaks the multipart syntax: this server is asked one range per request from now on.
+      if (e instanceof FormatError) this.multiRange = false;
+      // Otherwise (a dropped connection, a time-out) only these ranges go one by one.
     }
     return one();
   }
