@@ -188,6 +188,7 @@ export async function startRangeServer(): Promise<RangeServer> {
       else send(res, body);
       return;
     }
+    if (parsed === 'several') throw new Error('unreachable: several ranges were answered above');
     const [a, b] = parsed;
     res.writeHead(206, { ...common, 'Content-Length': String(b - a + 1), 'Content-Range': `bytes ${a}-${b}/${body.length}` });
     if (req.method === 'HEAD') res.end();
