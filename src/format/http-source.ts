@@ -100,6 +100,8 @@ export class HttpSource implements ByteSource {
   private whole: Uint8Array | null = null;
   /** Whether several ranges may go in one request (false once the server is seen not to support it). */
   multiRange: boolean;
+  /** Multi-range requests that failed in a row without an answer. */
+  private multiFailures = 0;
   /** Per response in flight: restarts its time limit when body bytes arrive. */
   private readonly progress = new WeakMap<Response, () => void>();
 
@@ -179,13 +181,18 @@ export class HttpSource implements ByteSource {
     const changed: { error: FormatError | null } = { error: null };
     try {
       const got = await this.fetchRanges(ranges, changed);
-      if (got !== null) return got;
+      if (got !== null) {
+        this.multiFailures = 0;
+        return got;
+      }
       this.multiRange = false;
     } catch (e) {
       if (changed.error !== null) throw changed.error;
       // An answer that breaks the multipart syntax: this server is asked one range per request from now on.
       if (e instanceof FormatError) this.multiRange = false;
-      // Otherwise (a dropped connection, a time-out) only these ranges go one by one.
+      // Otherwise (a dropped connection, a time-out, a browser refusing the request across origins)
+      // these ranges go one by one, and after a second such failure in a row all later ones too.
+      else if (++this.multiFailures >= 2) this.multiRange = false;
     }
     return one();
   }
@@ -204,8 +211,9 @@ export class HttpSource implements ByteSource {
     // Room for the part headers (about 100 bytes each) and the delimiters.
     const limit = wanted + 512 * asked.length + 4096;
     let parts: { start: number; bytes: Uint8Array }[] | null = null;
-    const changedNow = (message: string): never => {
-      changed.error = new FormatError(FormatCode.Truncated, `${this.label}: ${message}`);
+    // As for one range: a changed size is `truncated`, a changed ETag or Last-Modified `malformed`.
+    const changedNow = (message: string, code: FormatCode = FormatCode.Truncated): never => {
+      changed.error = new FormatError(code, `${this.label}: ${message}`);
       throw changed.error;
     };
     await this.request('GET', header, async (r) => {
@@ -218,7 +226,7 @@ export class HttpSource implements ByteSource {
       const modified = r.headers.get('last-modified');
       if ((remote.etag !== null && etag !== null && etag !== remote.etag) || (remote.lastModified !== null && modified !== null && modified !== remote.lastModified)) {
         await r.body?.cancel().catch(() => undefined);
-        changedNow('the file changed on the server while being read (ETag or Last-Modified differ from when it was opened)');
+        changedNow('the file changed on the server while being read (ETag or Last-Modified differ from when it was opened)', FormatCode.Malformed);
       }
       const type = r.headers.get('content-type') ?? '';
       const m = /^\s*multipart\/byteranges\s*;(?:.*;)?\s*boundary=(?:"([^"]{1,70})"|([^\s;"]{1,70}))/i.exec(type);

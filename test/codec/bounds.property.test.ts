@@ -154,7 +154,7 @@ async function checkCase(c: Case): Promise<void> {
   } else {
     expect(m.summary.rmse, `RMSE ${m.summary.rmse} > ${h.bound.tolerance}`).toBeLessThanOrEqual(h.bound.tolerance);
   }
-  expectIndexMatches(archive, m);
+  await expectIndexMatches(archive, m);
   const ix = await archive.fieldIndex();
   ix.method.forEach((method, t) => {
     expect([0, 1]).toContain(method);

@@ -46,7 +46,7 @@ async function roundTrip(values: FloatArray, shape: number[], bound: string, til
       if (!(d <= h.bound.tolerance)) expect.fail(`cell ${c}: |${values[c]} - ${got[c]}| = ${d} > ${h.bound.tolerance}`);
     }
   } else expect(m.summary.rmse).toBeLessThanOrEqual(h.bound.tolerance);
-  expectIndexMatches(archive, m);
+  await expectIndexMatches(archive, m);
   expect((await archive.check(values)).ok).toBe(true);
   return { archive, got, bytes, m };
 }

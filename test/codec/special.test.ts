@@ -98,7 +98,7 @@ describe('special cells come back bit for bit', () => {
         for (const c of cells) expect(bitsOf(got, c), `cell ${c}`).toEqual(bitsOf(values, c));
         const m = measure(values, got, [rows, cols], [12, 16], dtype, FILL);
         expect(m.specialMismatches).toBe(0);
-        expectIndexMatches(archive, m);
+        await expectIndexMatches(archive, m);
         const report = await archive.check(values);
         expect(report.ok).toBe(true);
         expect(report.fields[0].measured?.specialMismatches).toBe(0);
@@ -221,7 +221,7 @@ describe('all-missing tiles and fields', () => {
         expect((await archive.loadIndex()).fields[0].valid[4]).toBe(0);
         expect((await archive.loadIndex()).fields[0].max_err[4]).toBe(0);
         expect((await archive.loadIndex()).fields[0].rmse[4]).toBe(0);
-        expectIndexMatches(archive, m);
+        await expectIndexMatches(archive, m);
         expect((await archive.check(values)).ok).toBe(true);
       }
     });

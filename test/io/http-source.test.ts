@@ -388,6 +388,22 @@ describe('several ranges in one request (RFC 9110 section 14.6, multipart/bytera
     expect(src.multiRange).toBe(false);
   });
 
+  it('multi-range requests that get no answer twice in a row are not tried again', async () => {
+    server.misbehave = (asked, req) => {
+      if (asked.ranges === null) return false;
+      req.socket.destroy();
+      return true;
+    };
+    const src = new HttpSource(`${server.url}/data.bin`, quick);
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(src.multiRange).toBe(true);
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(src.multiRange).toBe(false);
+    server.reset();
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(server.log.every((a) => a.ranges === null)).toBe(true);
+  });
+
   it('a multi-range answer showing the file changed is refused, not retried one by one', async () => {
     const src = new HttpSource(`${server.url}/data.bin`, quick);
     await src.size();
