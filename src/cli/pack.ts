@@ -148,7 +148,8 @@ export function registerPack(program: Command, ctx: Context): void {
       }
       // Only the tail, header and index are read back, for the figures of the summary.
       const archive = await openArchive(flags.output);
-      const { header: h, index: ix } = archive.field();
+      const { header: h, summary } = archive.field();
+      const ix = { summary };
       const size = archive.size;
       await archive.close();
       const elapsed = performance.now() - start;
@@ -199,7 +200,7 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   let raw = 0;
   const lines: string[] = [];
   for (const h of archive.header.fields) {
-    const { index: ix } = archive.field(h.name);
+    const ix = archive.field(h.name);
     const r = rawBytes(h);
     raw += r;
     const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
