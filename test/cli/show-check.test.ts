@@ -176,7 +176,7 @@ describe('check', () => {
     const sink = new MemorySink();
     const b = new ArchiveBuilder(sink);
     const small = Float64Array.from({ length: 10 * 12 }, (_, c) => Math.sin(c / 9));
-    b.add(vol.values, [ROWS, COLS], { bound: 'abs:0.5', name: 'height' });
+    b.add(vol.values, [ROWS, COLS], { bound: 'abs:0.5', name: 'height', tile: 64 });
     b.add(small, [10, 12], { bound: 'abs:1e-3', name: 'wave', tile: 8 });
     b.finish();
     writeFileSync(path('two.rfz'), sink.bytes());
