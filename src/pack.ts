@@ -15,7 +15,7 @@ export interface PackOptions {
   /**
    * Tile size: [rows, cols], or one number for square tiles. Default 'auto':
    * 64, 128 and 256 square tiles and the whole field (when it holds at most
-   * 2^20 cells) are tried on a sample and the one that packs smallest is
+   * 2^18 cells) are tried on a sample and the one that packs smallest is
    * kept. Smaller tiles make window reads cheaper; set a size to fix it.
    */
   tile?: number | [number, number] | 'auto';

@@ -12,7 +12,7 @@ const SQUARE = [64, 128, 256];
 /** Rows and columns of the sample the trial runs on (from the top of the field, centred across). */
 const SAMPLE_SIDE = 1024;
 /** Largest whole-sample tile tried (cells). */
-const WHOLE_CELLS = 1 << 20;
+const WHOLE_CELLS = 1 << 18;
 
 /** Tile shapes tried for a field of rows x cols. */
 export function tileCandidates(rows: number, cols: number): [number, number][] {
