@@ -249,3 +249,32 @@ export function renderResults(info: RunInfo): string {
   }
   return lines.join('\n');
 }
+
+/**
+ * The README's performance block: per field and bound, rankfield's ratio
+ * over the best baseline's, and the share of its bytes in low-rank factors
+ * (the rest is the residual, exact tiles and metadata), from the same run as
+ * RESULTS.md.
+ */
+export function renderReadmeBlock(info: RunInfo): string {
+  const q = quotients(info);
+  const lines: string[] = [];
+  lines.push(`From \`${info.command}\` on ${info.date} (${info.quick ? 'quick run' : 'full run'}; every figure is in [bench/RESULTS.md](bench/RESULTS.md)).`);
+  lines.push('');
+  lines.push('rankfield (default options) against the best of the baselines in each cell, as a ratio of compression ratios (above 1.00x: rankfield is smaller), and in brackets the share of rankfield\'s bytes that are low-rank factors (the rest is the predicted, range-coded residual and metadata):');
+  lines.push('');
+  lines.push(`| field | ${info.bounds.join(' | ')} |`);
+  lines.push(`|---|${info.bounds.map(() => '--:').join('|')}|`);
+  for (const f of info.fields) {
+    const cells = info.bounds.map((b) => {
+      const c = q.find((x) => x.field === f.id && x.bound === b);
+      const r = info.rows.find((x) => x.field === f.id && x.bound === b && x.method === 'rankfield');
+      if (!c || c.value === null || !r?.breakdown) return '–';
+      return `${c.value.toFixed(2)}x (${Math.round((100 * r.breakdown.factors) / r.breakdown.total)}%)`;
+    });
+    lines.push(`| ${f.id} | ${cells.join(' | ')} |`);
+  }
+  lines.push('');
+  lines.push('Read it this way: where the bracket is near 0% the tile-local predictor and the range coder carry the load (real, noisy or integer-valued fields at pointwise bounds); where it is large the truncated SVD does (fields low-rank as a whole, such as smooth fields and stacks of snapshots, above all at PSNR bounds).');
+  return lines.join('\n');
+}

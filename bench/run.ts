@@ -3,7 +3,7 @@
  * on every field and bound, in one process, each output decoded and checked;
  * writes RESULTS.md and one rate-distortion plot per field.
  */
-import { mkdirSync, writeFileSync } from 'node:fs';
+import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
 import os from 'node:os';
 import { join } from 'node:path';
 import { isPointwise, parseBound, resolveBound } from '../src/index.js';
@@ -20,7 +20,7 @@ import { benchFields, type BenchField } from './fields.js';
 import { validRange, type Target } from './metrics.js';
 import { renderPlot, type Marker, type Rgb, type Series } from './plot.js';
 import { breakdown, rankfield, rankfield64, TILE } from './rankfield.js';
-import { renderResults, type FieldInfo, type Row } from './report.js';
+import { renderReadmeBlock, renderResults, type FieldInfo, type Row, type RunInfo } from './report.js';
 import { timeTask, type TimingOptions } from './timing.js';
 
 export const BOUNDS = ['rel:1e-2', 'rel:1e-3', 'rel:1e-4', 'psnr:40', 'psnr:60', 'psnr:80'];
@@ -191,7 +191,7 @@ async function main(): Promise<void> {
   }
   machineFacts.push(`load average at end ${loadavg()}`);
   const command = `npm run bench${process.argv.length > 2 ? ' -- ' + process.argv.slice(2).join(' ') : ''}`;
-  const md = renderResults({
+  const runInfo: RunInfo = {
     command,
     date: started.toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC'),
     quick: args.quick,
@@ -202,10 +202,24 @@ async function main(): Promise<void> {
     bounds: BOUNDS,
     rows,
     notes,
-  });
+  };
+  const md = renderResults(runInfo);
   const file = join(args.out, 'RESULTS.md');
   writeFileSync(file, md);
   log(`wrote ${file}`);
+  // A full run also rewrites the README's performance block, so README figures always come from a run.
+  if (!args.quick && !args.fields) {
+    const readme = join(process.cwd(), 'README.md');
+    const text = readFileSync(readme, 'utf8');
+    const begin = '<!-- performance:begin (written by npm run bench) -->';
+    const end = '<!-- performance:end -->';
+    const a = text.indexOf(begin);
+    const b = text.indexOf(end);
+    if (a >= 0 && b > a) {
+      writeFileSync(readme, text.slice(0, a + begin.length) + '\n' + renderReadmeBlock(runInfo) + '\n' + text.slice(b));
+      log(`updated the performance block of ${readme}`);
+    }
+  }
 }
 
 main().catch((e: unknown) => {
