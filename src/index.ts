@@ -3,6 +3,7 @@
  * by tiled truncated SVD with a residual that makes pointwise bounds strict.
  */
 export { pack, ArchiveBuilder, type PackOptions, MAX_TILE_SIDE } from './pack.js';
+export { chooseLayout } from './layout.js';
 export { open, Archive, type FieldValues, type ReadOptions, type CheckReport, type CheckFailure, type OpenOptions, type TileEntry } from './archive.js';
 export { parseBound, formatBound, resolveBound, isPointwise } from './codec/bound.js';
 export { FormatError, InputError, FormatCode, InputCode } from './errors.js';

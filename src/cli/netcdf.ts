@@ -3,7 +3,7 @@
  * classic or 64-bit-offset file and their layouts for `pack`, and building
  * a NetCDF classic file from an archive's fields for `unpack -o OUT.nc`.
  */
-import { FormatCode, FormatError, InputCode, InputError, type Attrs, type FieldHeader } from '../index.js';
+import { chooseLayout, FormatCode, FormatError, InputCode, InputError, type Attrs, type Bound, type FieldHeader } from '../index.js';
 import { readNetcdfHeader, readNetcdfVariable, physicalAttributes, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues, type NcVariable } from '../io/netcdf-read.js';
 import { NC_TYPE_SIZE, setOwn } from '../io/netcdf-types.js';
 import type { NcWriteFile, NcWriteValues, NcWriteVariable } from '../io/netcdf-write.js';
@@ -212,7 +212,7 @@ function fromCarried(text: unknown, i: number): NcWriteVariable {
  * (from --matrix) lays out every variable whose leading dimensions are
  * those names as 'matrix:A'; the others get the default layout.
  */
-export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | undefined, matrix: string[] | undefined): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
+export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | undefined, matrix: string[] | undefined, bound: Bound, choose: 'auto' | 'slices' = 'auto'): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
   const file = readNetcdfHeader(bytes, path);
   let names: string[];
   if (vars && vars.length > 0) {
@@ -240,7 +240,8 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
     const v = file.variables.find((x) => x.name === name)!;
     const k = read.shape.length;
     const lead = matrix && matrix.length < k && matrix.every((d, i) => read.dims[i] === d) ? matrix.length : 0;
-    const layout = lead > 0 ? `matrix:${lead}` : k > 2 ? 'slices' : undefined;
+    // --matrix overrides; without it (and without --layout slices) a variable of 3+ axes takes the layout whose sample packs smallest.
+    const layout = lead > 0 ? `matrix:${lead}` : k > 2 ? (matrix || choose === 'slices' ? 'slices' : chooseLayout(read.values, read.shape, bound, read.fill)) : undefined;
     const g = layout ? (layoutGrid(read.shape, layout) as { slices: number; rows: number; cols: number }) : { slices: 1, rows: read.shape[0], cols: read.shape[1] };
     const phys = physicalAttributes(v, read);
     const attrs: Attrs = { ...(phys.attrs as Attrs) };

@@ -24,6 +24,7 @@ interface PackFlags {
   force?: boolean;
   var?: string[];
   matrix?: string[];
+  layout?: 'auto' | 'slices';
 }
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
@@ -58,11 +59,13 @@ compressed: they are carried losslessly, bit for bit, in the archive's
 attributes (up to 1 MiB of JSON each), and unpack -o OUT.nc writes them back. CF _FillValue / missing_value
 cells are kept bit for bit and excluded from the bound; variables packed with
 scale_factor / add_offset are stored as their unpacked physical values (the
-bound applies to those). A variable of 3 or more dimensions is stored as a
-stack of 2-D slices over its last two axes; --matrix time:space instead
-flattens the leading axes named before the colon into rows and the rest into
-columns (time x grid point: the snapshot matrix, where series of snapshots are
-most often of low rank).
+bound applies to those). A variable of 3 or more dimensions is stored either
+as a stack of 2-D slices over its last two axes, or as a matrix whose rows
+are its leading axes and whose columns are the rest (time x grid point: the
+snapshot matrix, where series of snapshots are most often of low rank); by
+default the layout whose sample packs smallest is kept (show names it).
+--layout slices forces slices; --matrix time:space forces the matrix, with
+the leading axes named before the colon as rows.
 
 Example:
   rankfield pack sst.npy -o sst.rfz --bound abs:0.01 --fill -999
@@ -105,12 +108,13 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--endian <ORDER>', 'raw input: byte order, little (default) or big', endianOption)
     .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
     .option('--matrix <AXES:NAME>', 'NetCDF input: flatten the leading axes AXES (comma-separated) into rows, the rest into columns, e.g. time:space', parseMatrix)
+    .option('--layout <LAYOUT>', 'NetCDF input, variables of 3+ dimensions: auto (default: the layout whose sample packs smallest) or slices', layoutOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
       const start = performance.now();
       if (isNetcdfPath(input)) return packNetcdf(input, flags, ctx, start);
-      const nc = (['var', 'matrix'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
+      const nc = (['var', 'matrix', 'layout'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
       if (nc.length > 0) throw new UsageError(`${nc.join(' and ')} apply to NetCDF input (.nc); '${input}' is not one`);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       await statInput(input);
@@ -177,7 +181,7 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   const io = { force: flags.force === true, inputs: [input] };
   await checkOutput(flags.output, io);
   const bytes = await readInput(input);
-  const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix);
+  const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto');
   await writeOutputWith(flags.output, io, (sink) => {
     const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
     for (const f of fields) {
@@ -211,4 +215,10 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   ctx.out(`packed ${fields.length} variable${fields.length === 1 ? '' : 's'} of '${input}' -> '${flags.output}': ${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; bound ${flags.bound.mode}:${flags.bound.value}; ${seconds(performance.now() - start)}\n`);
   for (const l of lines) ctx.out(l);
   if (carried.length > 0) ctx.out(`  carried losslessly (not packed as fields): ${carried.map(printable).join(', ')}\n`);
+}
+
+/** `--layout`: auto or slices. */
+function layoutOption(text: string): 'auto' | 'slices' {
+  if (text === 'auto' || text === 'slices') return text;
+  throw new UsageError(`--layout must be auto or slices (use --matrix AXES:NAME for a matrix), got '${printable(text)}'`);
 }

@@ -237,7 +237,7 @@ describe('layouts and outputs', () => {
 
   it('--slices with --region writes a small .csv; a large one is refused without --force', () => {
     const out = join(t.dir, 's.rfz');
-    expect(rf(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01', '--var', 'sst'], t.dir).code).toBe(0);
+    expect(rf(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01', '--var', 'sst', '--layout', 'slices'], t.dir).code).toBe(0);
     const u = rf(['unpack', out, '--slices', '1:3', '--region', '0:2,0:3', '-o', 'w.csv'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const lines = readFileSync(join(t.dir, 'w.csv'), 'utf8').trimEnd().split('\n');
