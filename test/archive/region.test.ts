@@ -70,7 +70,7 @@ async function assemble(a: Archive, name: string): Promise<FieldValues> {
   }
   const whole = await a.read(name);
   expect(bits(whole.values)).toEqual(bits(values));
-  return { name, dtype: h.dtype, shape: [rows, cols], values, window: { rows: [0, rows], cols: [0, cols] } };
+  return { ...whole, shape: [rows, cols], values, window: { rows: [0, rows], cols: [0, cols] } };
 }
 
 /** The window of a whole decode, cut out directly. */

@@ -15,6 +15,7 @@ import { open } from '../../src/archive.js';
 import { FormatCode, FormatError } from '../../src/errors.js';
 import { crc32 } from '../../src/format/crc32.js';
 import { pack } from '../../src/pack.js';
+import type { Block } from '../fuzz/model.js';
 
 const CODES = new Set<string>(Object.values(FormatCode));
 const TAIL = 48;
@@ -71,8 +72,8 @@ function resealTail(b: Uint8Array): void {
  * index, every CRC and offset recomputed, so that only the content is wrong.
  */
 interface Edit {
-  header?: (h: any) => void;
-  index?: (ix: any) => void;
+  header?: (h: Block) => void;
+  index?: (ix: Block) => void;
   payload?: (p: Uint8Array) => void;
   /** Replace the encoded header or index bytes. */
   headerBytes?: (b: Uint8Array) => Uint8Array;
@@ -84,8 +85,8 @@ function rebuild(b: Uint8Array, edit: Edit): Uint8Array {
   const payloadEnd = Math.min(l.headerOffset, l.indexOffset);
   const payloads = b.slice(0, payloadEnd);
   edit.payload?.(payloads.subarray(16));
-  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as any;
-  const index = decode(b.subarray(l.indexOffset, l.indexOffset + l.indexLength)) as any;
+  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as Block;
+  const index = decode(b.subarray(l.indexOffset, l.indexOffset + l.indexLength)) as Block;
   edit.header?.(header);
   edit.index?.(index);
   const hb = edit.headerBytes ? edit.headerBytes(encode(header)) : encode(header);
@@ -340,7 +341,7 @@ describe('header and index with valid CRCs but bad contents', () => {
         },
       });
       expectFormatError(await readAll(c), FormatCode.Malformed);
-      expect(({} as any).polluted).toBeUndefined();
+      expect(({} as Record<string, unknown>).polluted).toBeUndefined();
     }
   });
 

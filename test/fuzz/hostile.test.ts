@@ -14,7 +14,7 @@ import { DEFAULT_LIMITS, resolveLimits } from '../../src/format/schema.js';
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import { buildSeeds } from './corpus.js';
-import { cloneModel, parse, sections, serialize, type Model } from './model.js';
+import { cloneModel, parse, sections, serialize, type Block, type Model } from './model.js';
 import { Lying, Raw, RawMap, encodeValue } from './msgpack.js';
 
 async function refusal(bytes: Uint8Array, readToo = true): Promise<FormatError> {
@@ -206,7 +206,7 @@ describe('the index', () => {
   });
 
   it('refuses a summary that disagrees with its tiles', async () => {
-    const cases: [string, (ix: any) => void, RegExp][] = [
+    const cases: [string, (ix: Block) => void, RegExp][] = [
       ['valid', (ix) => (ix.summary.valid += 1), /summary valid count \d+ is not the sum \d+/],
       ['max_err', (ix) => (ix.summary.max_err *= 2), /summary max_err .* is not the largest tile max_err/],
       ['a tile without valid cells but an error', (ix) => ((ix.valid[0] = 0), (ix.summary.valid = ix.valid.reduce((s: number, v: number) => s + v, 0))), /tile 0 has no valid cell but a max_err of/],

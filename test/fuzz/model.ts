@@ -32,6 +32,14 @@ export function layout(b: Uint8Array): Layout {
   };
 }
 
+/**
+ * A decoded MessagePack block (header or index) that mutations reshape at
+ * will: any member may become any value, so it is typed loosely on purpose,
+ * and this is the one place of the fuzz harness that says `any`.
+ */
+// biome-ignore lint/suspicious/noExplicitAny: a decoded block whose shape mutations change freely (comment above)
+export type Block = any;
+
 /** A decoded archive, as plain mutable data. */
 export interface Model {
   version: number;
@@ -40,8 +48,8 @@ export interface Model {
   /** Payloads per field, in tile order. */
   payloads: Uint8Array[][];
   // Decoded MessagePack: shapes are whatever a mutation made of them.
-  header: any;
-  index: any;
+  header: Block;
+  index: Block;
   /** Raw block bytes to use instead of encoding `header` / `index`. */
   headerBytes?: Uint8Array;
   indexBytes?: Uint8Array;
@@ -61,9 +69,9 @@ export interface Model {
 export function parse(b: Uint8Array): Model {
   const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
   const l = layout(b);
-  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as any;
-  const index = decode(b.subarray(l.indexOffset, l.indexOffset + l.indexLength)) as any;
-  const payloads = index.fields.map((f: any) => f.offset.map((o: number, t: number) => b.slice(o, o + f.length[t])));
+  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as Block;
+  const index = decode(b.subarray(l.indexOffset, l.indexOffset + l.indexLength)) as Block;
+  const payloads = index.fields.map((f: Block) => f.offset.map((o: number, t: number) => b.slice(o, o + f.length[t])));
   return {
     version: d.getUint16(8, true),
     flags: d.getUint16(10, true),
@@ -82,9 +90,9 @@ export function clone<T>(v: T): T {
   if (v instanceof Uint8Array) return v.slice() as T;
   if (Array.isArray(v)) return v.map(clone) as T;
   if (typeof v === 'object' && v !== null) {
-    const out: any = {};
+    const out: Record<string, unknown> = {};
     for (const [k, x] of Object.entries(v)) out[k] = clone(x);
-    return out;
+    return out as T;
   }
   return v;
 }
