@@ -161,8 +161,6 @@ describe('reader limits', () => {
     await open(b, { limits: { maxRank: rank } });
   });
 
-  // BUG (reported, src/archive.ts): read() does not call checkReadCells yet, so maxReadCells
-  // bounds nothing; this test fails (as expected) until it does.
   it('read() refuses more values at once than maxReadCells, and reads a window within it', async () => {
     const a = await open(masked(), { limits: { maxReadCells: 10 } });
     expect((await a.read(undefined, { rows: [0, 2], cols: [0, 5] })).values.length).toBe(10);
@@ -332,8 +330,6 @@ describe('tile payloads', () => {
     expect(e2.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: centre Infinity at (payload offset 4|file offset \\d+) is not finite$`));
   });
 
-  // BUG (reported, src/archive.ts): Archive passes no payload offset to decodeTile, so payload
-  // errors count offsets within the payload; this test fails (as expected) until it does.
   it('payload errors name file offsets when the reader knows where the payload is', async () => {
     const r = withSection('residual');
     const b = edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true));
