@@ -111,7 +111,10 @@ async function sources(bytes: Uint8Array, name: string): Promise<Record<string, 
   };
 }
 
-describe.each(CASES)('windows of $label', ({ label, grid, dtype, tile, bound }) => {
+// An explicit limit: the whole-field and random-window tests read through three sources,
+// one of them HTTP (up to about 1 s each on this 2-core machine when idle, 2-3 s when it
+// is busy with other work), close enough to vitest's 5 s default to fail there.
+describe.each(CASES)('windows of $label', { timeout: 30_000 }, ({ label, grid, dtype, tile, bound }) => {
   const field = withMissing(grid(), dtype);
   const [rows, cols] = field.shape;
   const bytes = pack(field.values, field.shape, { bound, tile, fill: -9999, name: 'g' });

@@ -225,6 +225,8 @@ describe('hostile values: every valid value within its bound, every special cell
 
   it('subnormals, near-maximum magnitudes, every decade, extreme constants, random NaN payloads, special fill values', async () => {
     await fc.assert(fc.asyncProperty(caseArb, checkCase), { seed: SEED, numRuns: 400 });
+    // Explicit limits here: each run packs, reads and checks a field, and the run counts
+    // are what give the properties their reach (this one 2-4 s on this 2-core machine).
   }, 120_000);
 
   it('one-row and one-column fields of the same kinds', async () => {

@@ -291,6 +291,8 @@ describe('tile payload corruption', () => {
         if (e !== null) expect(report.ok).toBe(false);
       }
     }
+    // Explicit limit: every payload byte of three archives, each rebuilt, read and checked
+    // (about 1 s on this 2-core machine, several times that when it is busy).
   }, 60_000);
 });
 
@@ -441,6 +443,8 @@ describe('sweeps', () => {
           if (opened) expect((await opened.check()).ok).toBe(false);
         }
       }
+      // Explicit limit: three flips of every byte, each read and checked (up to about 1 s on
+      // this 2-core machine for the low-rank sample, several times that when it is busy).
     }, 60_000);
 
     // Spec 3.1 and 17: readers MUST ignore the prologue's reserved word (offsets 12..15),
