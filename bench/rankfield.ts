@@ -4,6 +4,7 @@
  * metadata read from the tile payloads (spec/FORMAT.md, "Tile payloads").
  */
 import { open, pack } from '../src/index.js';
+import { payloadShares } from '../src/codec/payload.js';
 import type { Codec } from './baselines/codec.js';
 
 /** Tile side used for every field. */
@@ -46,33 +47,11 @@ export interface Breakdown {
   total: number;
 }
 
-/** Read a u32 little-endian at `at`. */
-function u32(b: Uint8Array, at: number): number {
-  if (at + 4 > b.length) throw new Error('rankfield payload shorter than its sections');
-  return (b[at] | (b[at + 1] << 8) | (b[at + 2] << 16) | (b[at + 3] << 24)) >>> 0;
-}
-
 /** Split one tile payload; returns [factors, residual] bytes (the rest is metadata). */
 export function splitPayload(p: Uint8Array): [number, number] {
-  if (p[0] === 0) return [0, p.length]; // Exact: values only
-  if (p[0] !== 1) throw new Error(`unknown payload method ${p[0]}`);
-  const flags = p[1];
-  let pos = 12; // method, flags, rank u16, centre f64
-  const section = (): number => {
-    const stored = u32(p, pos + 4);
-    pos += 8 + stored;
-    return stored;
-  };
-  if (flags & 1) section(); // mask
-  const groups = p[pos];
-  pos += 1 + 2 * groups;
-  let factors = 0;
-  for (let g = 0; g < groups; g++) factors += section();
-  let residual = 0;
-  if (flags & 2) residual += section();
-  if (flags & 4) residual += section();
-  if (pos !== p.length) throw new Error(`payload parse ended at ${pos} of ${p.length} bytes`);
-  return [factors, residual];
+  const shares = payloadShares(p);
+  if (shares === null) throw new Error(`a payload of ${p.length} bytes that does not walk to its end`);
+  return [shares.factors, shares.residual + shares.exceptions];
 }
 
 export async function breakdown(bytes: Uint8Array): Promise<Breakdown> {

@@ -113,7 +113,7 @@ function decodeSubset(bytes: Uint8Array): Float32Array {
 
 export const columnSubset: Codec = {
   id: 'column-subset',
-  describe: 'k evenly spaced columns kept as float32, every other column projected onto their span by least squares (float32 coefficients), DEFLATE level 6; k by bisection; nothing added for pointwise bounds.',
+  describe: 'k evenly spaced columns kept as float32, every other column projected onto their span by least squares (float32 coefficients), DEFLATE level 9; k by bisection; nothing added for pointwise bounds.',
   skip: (f) => svdSkip(f.rows, f.cols, 'the basis and projections'),
   encode(field, target) {
     const { rows, cols } = field;

@@ -40,7 +40,7 @@ export const lorenzoPredictor: Predictor = {
 
 export const lorenzo: Codec = {
   id: 'lorenzo',
-  describe: 'the quantized integers of `quantize`, 2-D Lorenzo prediction (Ibarria et al., 2003), zigzag byte planes, DEFLATE level 6.',
+  describe: 'the quantized integers of `quantize`, 2-D Lorenzo prediction (Ibarria et al., 2003), zigzag byte planes, DEFLATE level 9.',
   encode: (field, target) => encodeQuantized(field, target, lorenzoPredictor),
   decode: (bytes) => decodeQuantized(bytes, lorenzoPredictor),
 };

@@ -77,7 +77,7 @@ export function decodeQuantized(bytes: Uint8Array, predictor: Predictor | null =
 
 export const quantize: Codec = {
   id: 'quantize',
-  describe: 'uniform scalar quantization (step 2E for pointwise bounds, sqrt(12) x RMSE limit otherwise), zigzag byte planes, DEFLATE level 6.',
+  describe: 'uniform scalar quantization (step 2E for pointwise bounds, sqrt(12) x RMSE limit otherwise), zigzag byte planes, DEFLATE level 9.',
   encode: (field, target) => encodeQuantized(field, target),
   decode: (bytes) => decodeQuantized(bytes),
 };

@@ -32,19 +32,58 @@ export const KNOWN_FLAGS = 0x0f;
 export function prefixLengths(payload: Uint8Array): number[] {
   if (payload[0] !== Method.LowRank || payload.length < 13) return [];
   const view = new DataView(payload.buffer, payload.byteOffset, payload.byteLength);
-  const section = (at: number) => (at + 8 <= payload.length ? at + 8 + view.getUint32(at + 4, true) : Infinity);
+  const u32At = (at: number) => (at + 4 <= payload.length ? view.getUint32(at, true) : Infinity);
   let at = 12;
-  if (payload[1] & Flag.Mask) at = section(at);
+  if (payload[1] & Flag.Mask) at += 8 + u32At(at + 4);
   if (!(at < payload.length)) return [];
   const groups = payload[at];
+  const sizes: number[] = [];
+  for (let g = 0; g < groups; g++) sizes.push(at + 3 + 2 * g <= payload.length ? view.getUint16(at + 1 + 2 * g, true) : 0);
   at += 1 + 2 * groups;
   if (!(at <= payload.length)) return [];
   const out = [at];
+  // A group is its step codes (4 bytes a rank), a u32 length and its coded stream.
   // On a prefix the walk stops at the last group that is complete.
   for (let g = 0; g < groups; g++) {
-    at = section(at);
+    at += 4 * sizes[g];
+    at += 4 + u32At(at);
     if (!(at <= payload.length)) break;
     out.push(at);
   }
   return out;
+}
+
+/** Bytes of a payload by role, for reports: factor streams (with their step codes), residual and exceptions. */
+export interface PayloadShares {
+  factors: number;
+  residual: number;
+  exceptions: number;
+}
+
+/**
+ * Walk a well-formed payload (one the decoder accepts) and count its bytes
+ * by role; everything else is fixed part, mask and framing. Returns null
+ * for a payload that does not walk to its end.
+ */
+export function payloadShares(payload: Uint8Array): PayloadShares | null {
+  if (payload[0] === Method.Exact) return { factors: 0, residual: 0, exceptions: payload.length };
+  if (payload[0] !== Method.LowRank) return null;
+  const lens = prefixLengths(payload);
+  if (lens.length === 0) return null;
+  const factors = lens[lens.length - 1] - lens[0];
+  let at = lens[lens.length - 1];
+  const view = new DataView(payload.buffer, payload.byteOffset, payload.byteLength);
+  let residual = 0;
+  let exceptions = 0;
+  if (payload[1] & Flag.Residual) {
+    if (at + 12 > payload.length) return null;
+    residual = 12 + view.getUint32(at + 8, true);
+    at += residual;
+  }
+  if (payload[1] & Flag.Exceptions) {
+    if (at + 8 > payload.length) return null;
+    exceptions = 8 + view.getUint32(at + 4, true);
+    at += exceptions;
+  }
+  return at === payload.length ? { factors, residual, exceptions } : null;
 }

@@ -161,26 +161,22 @@ function eckartYoungPlan(
     ranks[t] -= 1;
   }
   const q = (budget - total) * 0.9;
+  // Half of q to each factor, as uniform rounding noise step^2 / 12 per coefficient:
+  // the right factor with one step dw, the left with step c / s_k for rank k (see quantizeFactors).
   let sumRN = 0;
-  let sumME = 0;
-  const keptEnergy = (r: number, t: number) => {
-    let e = 0;
-    for (let k = 0; k < r; k++) e += sv2[t][k];
-    return e;
-  };
+  let sumRM = 0;
   ranks.forEach((r, t) => {
     sumRN += r * dims[t][1];
-    sumME += dims[t][0] * keptEnergy(r, t);
+    sumRM += r * dims[t][0];
   });
   const dw = sumRN > 0 ? tol * Math.sqrt((6 * q) / sumRN) : tol;
-  const du = sumME > 0 ? Math.sqrt((6 * q) / sumME) : 1;
-  if (!(dw > 0 && du > 0 && Number.isFinite(dw) && Number.isFinite(du))) return null;
+  const c = sumRM > 0 ? tol * Math.sqrt((6 * q) / sumRM) : tol;
+  if (!(dw > 0 && c > 0 && Number.isFinite(dw) && Number.isFinite(c))) return null;
   // Each tile's allotment: its truncation error plus its expected quantization noise,
   // scaled so the allotments add up to the budget.
   const predicted = ranks.map((r, t) => {
-    const e = keptEnergy(r, t);
     const [m, n] = dims[t];
-    return cut[t] + (r * n * (dw / tol) ** 2) / 12 + (m * e * du * du) / 12;
+    return cut[t] + (r * n * (dw / tol) ** 2) / 12 + (r * m * (c / tol) ** 2) / 12;
   });
   let sum = 0;
   for (const p of predicted) sum += p;
@@ -188,7 +184,7 @@ function eckartYoungPlan(
   const scale = sum > 0 ? (0.999 * budget) / sum : 0;
   return {
     name: `eckart-young ${share}`,
-    one: (t, index) => encodeL2(t, ranks[index], du, dw),
+    one: (t, index) => encodeL2(t, ranks[index], c, dw),
     allot: (index) => predicted[index] * scale,
   };
 }

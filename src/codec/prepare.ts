@@ -29,6 +29,12 @@ export interface PreparedTile {
   svd: Svd | null;
   /** How factor ranks are grouped in the payload (see groupSizes in tile-encode.ts). */
   grouping: 'one' | 'doubling';
+  /**
+   * When every valid value is an integer (below 2^40 in magnitude): their
+   * greatest common step and one of them, so values are origin + k x quantum;
+   * otherwise quantum is 0. See {@link integerLattice}.
+   */
+  lattice: { quantum: number; origin: number };
 }
 
 /** Classify, fill and centre a tile; the SVD is computed by {@link ensureSvd}. */
@@ -75,7 +81,41 @@ export function prepareTile(
     writeSection(w, raw);
     maskSection = w.finish();
   }
-  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null, grouping };
+  const lattice = integerLattice(orig, classes.codes);
+  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null, grouping, lattice };
+}
+
+/** Largest integer magnitude the lattice test accepts: far below 2^53, so differences and gcds are exact. */
+const LATTICE_LIMIT = 2 ** 40;
+
+/**
+ * Many stored fields hold values on a lattice: integer counts, or heights
+ * and depths recorded to whole units. A residual quantized with a step that
+ * is an odd multiple of the lattice step keeps every value on the lattice,
+ * so codes are fewer and errors are whole multiples of the lattice step.
+ * Returns the greatest common divisor of the differences of the valid
+ * values (Euclid's algorithm), or quantum 0 when a value is not an integer.
+ */
+export function integerLattice(orig: FloatArray, codes: Uint8Array): { quantum: number; origin: number } {
+  let origin = NaN;
+  let g = 0;
+  for (let c = 0; c < orig.length; c++) {
+    if (codes[c] !== Cell.Valid) continue;
+    const v = orig[c];
+    if (!Number.isInteger(v) || Math.abs(v) > LATTICE_LIMIT) return { quantum: 0, origin: 0 };
+    if (origin !== origin) {
+      origin = v;
+      continue;
+    }
+    let a = Math.abs(v - origin);
+    // gcd(g, a) by Euclid's algorithm.
+    while (a > 0) {
+      const r = g % a;
+      g = a;
+      a = r;
+    }
+  }
+  return g > 0 ? { quantum: g, origin } : { quantum: 0, origin: 0 };
 }
 
 /**

@@ -9,7 +9,8 @@ import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
 import { Flag, KNOWN_FLAGS, Method } from './payload.js';
 import { addResidual, lowRank, roundTo, unpredict } from './reconstruct.js';
-import { MAX_INT, readSection, unpackInts } from './section.js';
+import { CodeStreamError, decodeInts } from './code-decode.js';
+import { MAX_INT, readSection } from './section.js';
 import { stepValue } from './steps.js';
 
 /** What a decoder needs to know about a tile besides its payload. */
@@ -128,13 +129,10 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   let step = 0;
   let q: Int32Array | null = null;
   if (flags & Flag.Residual) {
-    const sec = readSection(r, 'residual', 8 + 1 + 4 * cells, false);
-    const sr = new ByteReader(sec, `${where} residual`, 0, 'raw offset');
-    step = sr.f64('step');
-    if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} is not a positive finite number`);
+    step = r.f64('residual step');
+    if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${r.offset - 8} is not a positive finite number`);
     q = new Int32Array(cells);
-    unpackInts(sr, q, 'residual');
-    if (sr.remaining !== 0) throw malformed(where, `residual section has ${sr.remaining} bytes after its values`);
+    readCoded(r, 'residual', m, n, flags & Flag.Mask ? codes : null, q, where);
     if (flags & Flag.Lorenzo && !unpredict(q, m, n, MAX_INT)) throw malformed(where, 'residual exceeds 2^30 after prediction');
   }
 
@@ -205,28 +203,43 @@ function readFactors(r: ByteReader, ctx: TileContext, declared: number): { l: Fl
   for (let g = 0; g < used; g++) rank += sizes[g];
   const l = new Float64Array(m * rank);
   const w = new Float64Array(rank * n);
-  const qu = new Int32Array(m);
-  const qw = new Int32Array(n);
   let k0 = 0;
   for (let g = 0; g < used; g++) {
     const size = sizes[g];
-    const sec = readSection(r, `factor group ${g}`, 4 * size + size * (2 + 4 * m + 4 * n), false);
-    const gr = new ByteReader(sec, `${where} factor group ${g}`, 0, 'raw offset');
     const du: number[] = [];
     const dw: number[] = [];
     for (let k = 0; k < size; k++) {
-      du.push(stepValue(gr.i16('left step'), gr.where));
-      dw.push(stepValue(gr.i16('right step'), gr.where));
+      du.push(stepValue(r.i16('left step'), where));
+      dw.push(stepValue(r.i16('right step'), where));
     }
+    const row = new Int32Array(size * (m + n));
+    readCoded(r, `factor group ${g}`, 1, row.length, null, row, where);
+    let at = 0;
     for (let k = 0; k < size; k++) {
       const rk = k0 + k;
-      unpackInts(gr, qu, `left factor ${rk}`);
-      for (let i = 0; i < m; i++) l[i * rank + rk] = qu[i] * du[k];
-      unpackInts(gr, qw, `right factor ${rk}`);
-      for (let j = 0; j < n; j++) w[rk * n + j] = qw[j] * dw[k];
+      for (let i = 0; i < m; i++) l[i * rank + rk] = row[at + i] * du[k];
+      at += m;
+      for (let j = 0; j < n; j++) w[rk * n + j] = row[at + j] * dw[k];
+      at += n;
     }
-    if (gr.remaining !== 0) throw malformed(where, `factor group ${g} has ${gr.remaining} bytes after its factors`);
     k0 += size;
   }
   return { l, w, rank };
+}
+
+/**
+ * Read a coded integer stream (u32 length, then the stream) of an m x n
+ * grid into `out`. The length is checked against what is left of the
+ * payload before anything is decoded.
+ */
+function readCoded(r: ByteReader, what: string, m: number, n: number, codes: Uint8Array | null, out: Int32Array, where: string): void {
+  const at = r.offset;
+  const length = r.u32(`${what} length`);
+  const bytes = r.bytesView(length, `${what} stream`);
+  try {
+    decodeInts(bytes, m, n, codes, out);
+  } catch (e) {
+    if (!(e instanceof CodeStreamError)) throw e;
+    throw malformed(where, `${what} (coded stream at ${r.unit} ${at}, ${length} bytes): ${e.message}`);
+  }
 }

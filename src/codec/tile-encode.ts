@@ -9,7 +9,8 @@ import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { Flag, Method } from './payload.js';
 import { addResidual, lowRank, predict, roundTo } from './reconstruct.js';
-import { MAX_INT, packInts, writeSection } from './section.js';
+import { encodeInts } from './code-encode.js';
+import { MAX_INT, writeSection } from './section.js';
 import { MIN_STEP, stepCode, stepValue } from './steps.js';
 
 /** The exact payload: byte-shuffled values, DEFLATE. */
@@ -43,21 +44,29 @@ export interface Factors {
 }
 
 /**
- * Quantize the first r left singular vectors with step du, refit the right
- * factor by least squares against the tile (W = (Lq^T Lq)^-1 Lq^T A, the
- * pseudo-inverse solution), then quantize it with step dw.
+ * Quantize the first r left singular vectors, vector k with step c / s_k
+ * (so every rank adds the same rounding noise, c^2 m / 12, to the tile:
+ * equal noise per coefficient is the high-rate optimum of uniform
+ * quantization; from memory), refit the right factor by least squares
+ * against the tile (W = (Lq^T Lq)^-1 Lq^T A, the pseudo-inverse solution),
+ * then quantize it with step dw.
  */
-export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dwTarget: number): Factors | null {
+export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget: number): Factors | null {
   const { m, n } = t;
   const s = ensureSvd(t, r);
-  if (!(duTarget >= MIN_STEP && dwTarget >= MIN_STEP && Number.isFinite(duTarget) && Number.isFinite(dwTarget))) return null;
-  const cu = stepCode(duTarget);
+  if (!(dwTarget >= MIN_STEP && Number.isFinite(dwTarget) && c > 0 && Number.isFinite(c))) return null;
+  const codeU = new Int16Array(r);
   const cw = stepCode(dwTarget);
-  const du = stepValue(cu);
   const dw = stepValue(cw);
   const qu = new Int32Array(r * m);
   const l = new Float64Array(m * r);
+  // Singular values below this share of the largest are treated as this small.
+  const floor = s.s[0] * 1e-12;
   for (let k = 0; k < r; k++) {
+    const duTarget = c / Math.max(s.s[k], floor);
+    if (!(duTarget >= MIN_STEP && Number.isFinite(duTarget))) return null;
+    codeU[k] = stepCode(Math.min(duTarget, 2 ** 900));
+    const du = stepValue(codeU[k]);
     for (let i = 0; i < m; i++) {
       const q = Math.round(s.u[i * s.k + k] / du);
       if (Math.abs(q) > MAX_INT) return null;
@@ -79,34 +88,37 @@ export function quantizeFactors(t: PreparedTile, r: number, duTarget: number, dw
       for (let j = 0; j < n; j++) b[bk + j] += lik * a[row + j];
     }
   }
+  // A left vector quantized to all zeros leaves G singular: such a rank adds nothing.
+  for (let k = 0; k < r; k++) if (g[k * r + k] === 0) return null;
   solveSpd(g, r, b, n);
   const qw = new Int32Array(r * n);
   const w = new Float64Array(r * n);
-  for (let c = 0; c < r * n; c++) {
-    const q = Math.round(b[c] / dw);
+  for (let k = 0; k < r * n; k++) {
+    const q = Math.round(b[k] / dw);
     if (!(Math.abs(q) <= MAX_INT)) return null;
-    qw[c] = q;
-    w[c] = q * dw;
+    qw[k] = q;
+    w[k] = q * dw;
   }
-  return { rank: r, codeU: new Int16Array(r).fill(cu), codeW: new Int16Array(r).fill(cw), qu, qw, l, w };
+  return { rank: r, codeU, codeW: new Int16Array(r).fill(cw), qu, qw, l, w };
 }
 
 /** Residual and exceptions of a pointwise candidate. */
 interface Correction {
+  /** The centre the candidate reconstructs around (the tile's, or one on its lattice). */
+  center: number;
   step: number;
   q: Int32Array | null;
   lorenzo: boolean;
   exceptions: number[];
 }
 
-/** The fixed part and the raw (uncompressed) section contents of a LowRank payload. */
-interface LowRankParts {
-  head: Uint8Array;
-  /** Factor group, residual and exception sections, in payload order, before DEFLATE. */
-  raws: Uint8Array[];
-}
-
-function lowRankParts(t: PreparedTile, f: Factors | null, corr: Correction | null): LowRankParts {
+/**
+ * Write a LowRank payload: the fixed part, the mask section, the factor
+ * groups (step codes, then one coded integer stream of the group's factor
+ * codes), the residual (step, then one coded stream over the tile's valid
+ * cells) and the exceptions section (DEFLATE).
+ */
+export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correction | null): Uint8Array {
   const { m, n } = t;
   const rank = f ? f.rank : 0;
   let flags = 0;
@@ -115,37 +127,42 @@ function lowRankParts(t: PreparedTile, f: Factors | null, corr: Correction | nul
   if (hasResidual) flags |= Flag.Residual;
   if (hasResidual && corr.lorenzo) flags |= Flag.Lorenzo;
   if (corr !== null && corr.exceptions.length > 0) flags |= Flag.Exceptions;
-  const w = new ByteWriter(16 + t.maskSection.length);
+  const w = new ByteWriter(64 + t.maskSection.length + (hasResidual ? (m * n) / 2 : 0) + (f ? rank * (m + n) : 0));
   w.u8(Method.LowRank);
   w.u8(flags);
   w.u16(rank);
-  w.f64(t.center);
+  w.f64(corr !== null ? corr.center : t.center);
   if (flags & Flag.Mask) w.bytes(t.maskSection);
-  const raws: Uint8Array[] = [];
   if (f && rank > 0) {
     const sizes = groupSizes(rank, t.grouping);
     w.u8(sizes.length);
-    for (const s of sizes) w.u16(s);
+    for (const size of sizes) w.u16(size);
     let k0 = 0;
     for (const size of sizes) {
-      const g = new ByteWriter(4 * size + size * (m + n) + 64);
       for (let k = k0; k < k0 + size; k++) {
-        g.i16(f.codeU[k]);
-        g.i16(f.codeW[k]);
+        w.i16(f.codeU[k]);
+        w.i16(f.codeW[k]);
       }
+      // The group's factor codes as one row: left factor k, right factor k, left factor k+1, ...
+      const row = new Int32Array(size * (m + n));
+      let at = 0;
       for (let k = k0; k < k0 + size; k++) {
-        packInts(f.qu.subarray(k * m, k * m + m), g);
-        packInts(f.qw.subarray(k * n, k * n + n), g);
+        row.set(f.qu.subarray(k * m, k * m + m), at);
+        at += m;
+        row.set(f.qw.subarray(k * n, k * n + n), at);
+        at += n;
       }
-      raws.push(g.view8());
+      const coded = encodeInts(row, 1, row.length, null);
+      w.u32(coded.length);
+      w.bytes(coded);
       k0 += size;
     }
   } else w.u8(0);
   if (hasResidual && corr.q) {
-    const sec = new ByteWriter(m * n + 16);
-    sec.f64(corr.step);
-    packInts(corr.q, sec);
-    raws.push(sec.view8());
+    w.f64(corr.step);
+    const coded = encodeInts(corr.q, m, n, t.classes.special > 0 ? t.classes.codes : null);
+    w.u32(coded.length);
+    w.bytes(coded);
   }
   if (corr !== null && corr.exceptions.length > 0) {
     const width = t.dtype === 'f32' ? 4 : 8;
@@ -154,9 +171,9 @@ function lowRankParts(t: PreparedTile, f: Factors | null, corr: Correction | nul
     sec.u32(corr.exceptions.length);
     for (const c of corr.exceptions) sec.u32(c);
     for (const c of corr.exceptions) sec.bytes(src.subarray(c * width, c * width + width));
-    raws.push(sec.view8());
+    writeSection(w, sec.view8());
   }
-  return { head: w.finish(), raws };
+  return w.finish();
 }
 
 /**
@@ -176,49 +193,6 @@ export function groupSizes(rank: number, grouping: 'one' | 'doubling'): number[]
     done = end;
   }
   return out;
-}
-
-/** Write a LowRank payload. */
-export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correction | null): Uint8Array {
-  const { head, raws } = lowRankParts(t, f, corr);
-  const w = new ByteWriter(head.length + 256);
-  w.bytes(head);
-  for (const raw of raws) writeSection(w, raw);
-  return w.finish();
-}
-
-// Scratch histogram for estimates (reused: no allocation per call).
-const HIST = new Uint32Array(256);
-// -log2(k / n) is computed from log2 of counts, looked up for small counts.
-const LOG2 = new Float64Array(4097).map((_, k) => (k === 0 ? 0 : Math.log2(k)));
-
-/**
- * A quick stand-in for the DEFLATE size of `raw`: its order-0 entropy plus
- * section framing and a code-table allowance. Used only to rank candidates;
- * the finalists are compressed for real.
- */
-export function estimateSection(raw: Uint8Array): number {
-  HIST.fill(0);
-  for (let i = 0; i < raw.length; i++) HIST[raw[i]]++;
-  const total = raw.length;
-  const lt = Math.log2(total || 1);
-  let bits = 0;
-  let symbols = 0;
-  for (let v = 0; v < 256; v++) {
-    const c = HIST[v];
-    if (c === 0) continue;
-    symbols++;
-    bits += c * (lt - (c <= 4096 ? LOG2[c] : Math.log2(c)));
-  }
-  return 8 + 6 + Math.ceil(bits / 8) + Math.ceil(symbols * 0.6);
-}
-
-/** Estimated size of a LowRank payload (see {@link estimateSection}). */
-function lowRankEstimate(t: PreparedTile, f: Factors | null, corr: Correction | null): number {
-  const { head, raws } = lowRankParts(t, f, corr);
-  let size = head.length;
-  for (const raw of raws) size += estimateSection(raw);
-  return size;
 }
 
 /** A copy of q whose missing cells hold their 2-D Lorenzo prediction, in raster order. */
@@ -251,15 +225,15 @@ function roughBits(v: Int32Array): number {
 /**
  * The residual of a candidate against the pointwise bound e, computed with the
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
+ * The step is 2e, or `step` when given (with `center`, for lattice candidates).
  */
-export function correct(t: PreparedTile, f: Factors | null, e: number): Correction {
+export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 * e, center = t.center): Correction {
   const { m, n } = t;
   const cells = m * n;
   const base = new Float64Array(cells);
-  if (f) lowRank(f.l, f.w, m, n, f.rank, t.center, base);
-  else base.fill(t.center);
+  if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
+  else base.fill(center);
   const codes = t.classes.codes;
-  const step = 2 * e;
   let q: Int32Array | null = null;
   let lorenzo = false;
   const acc = base.slice();
@@ -294,7 +268,29 @@ export function correct(t: PreparedTile, f: Factors | null, e: number): Correcti
     if (codes[c] !== Cell.Valid) continue;
     if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
   }
-  return { step, q, lorenzo, exceptions };
+  return { center, step, q, lorenzo, exceptions };
+}
+
+/**
+ * Rank-0 candidates: the plain one (step 2e around the tile's centre) and,
+ * when the tile's values lie on an integer lattice, one whose step is the
+ * largest odd multiple K of the lattice step with (K - 1) / 2 steps within e,
+ * around a centre on the lattice: every reconstructed value is then a
+ * lattice point within e (exact when e is below half the lattice step).
+ */
+function rankZero(t: PreparedTile, e: number): Uint8Array {
+  let best = lowRankPayload(t, null, correct(t, null, e));
+  const { quantum, origin } = t.lattice;
+  if (quantum > 0 && e >= 0) {
+    const k = 2 * Math.floor(e / quantum) + 1;
+    const step = k * quantum;
+    const center = origin + Math.round((t.center - origin) / quantum) * quantum;
+    if (step <= 2 ** 52 && Number.isFinite(center)) {
+      const p = lowRankPayload(t, null, correct(t, null, Math.max(e, Number.MIN_VALUE), step, center));
+      if (p.length < best.length) best = p;
+    }
+  }
+  return best;
 }
 
 /** Candidate ranks tried by the pointwise search. */
@@ -305,7 +301,8 @@ export const FACTOR_NOISE = 0.25;
 
 /**
  * The smallest payload meeting the pointwise bound e (absolute), over ranks
- * 0.. and the exact method.
+ * 0.. and the exact method. Every candidate is coded for real: the coded
+ * streams cost little next to the SVD, and their sizes are exact.
  */
 export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   const exact = exactPayload(t);
@@ -314,25 +311,13 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
     return p.length < exact.length ? p : exact;
   }
   if (!t.finite) return exact;
-  // Candidates are ranked by estimated size; the best few are compressed for real.
-  const candidates: { f: Factors | null; corr: Correction; est: number }[] = [];
-  const corr0 = correct(t, null, e);
-  candidates.push({ f: null, corr: corr0, est: lowRankEstimate(t, null, corr0) });
-  if (e > 0) searchRanks(t, e, candidates);
-  candidates.sort((a, b) => a.est - b.est);
-  let best = exact;
-  for (const c of candidates.slice(0, FINALISTS)) {
-    const p = lowRankPayload(t, c.f, c.corr);
-    if (p.length < best.length) best = p;
-  }
-  return best;
+  let best = rankZero(t, e);
+  if (e > 0) best = searchRanks(t, e, best);
+  return best.length < exact.length ? best : exact;
 }
 
-/** Candidates compressed for real after ranking by estimate. */
-const FINALISTS = 2;
-
-/** Add rank 1, 2, ... candidates until the estimates stop falling. */
-function searchRanks(t: PreparedTile, e: number, out: { f: Factors | null; corr: Correction; est: number }[]): void {
+/** Try rank 1, 2, ... payloads until the size has not fallen twice running; the smallest wins. */
+function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array {
   let s = ensureSvd(t, PARTIAL_RANK);
   const { m, n } = t;
   const tol = s.s[0] * 1e-13;
@@ -343,11 +328,8 @@ function searchRanks(t: PreparedTile, e: number, out: { f: Factors | null; corr:
   };
   let numRank = numericalRank();
   let worse = 0;
-  let prev = out[0].est;
-  // Energy of the kept ranks relative to s[0]^2, so huge values cannot overflow it.
-  let energy = 0;
-  let done = 0;
-  const s0 = s.s[0];
+  let best = rank0;
+  let prev = rank0.length;
   for (const r of RANKS) {
     if (r === 0) continue;
     if (r > s.k && numRank === s.k) {
@@ -355,27 +337,27 @@ function searchRanks(t: PreparedTile, e: number, out: { f: Factors | null; corr:
       numRank = numericalRank();
     }
     if (r > numRank) break;
-    for (; done < r; done++) energy += (s.s[done] / s0) * (s.s[done] / s0);
+    // Rounding noise per cell of (FACTOR_NOISE e)^2 from each factor: r c^2 / (12 n) and r dw^2 / (12 m).
     const dw = FACTOR_NOISE * e * Math.sqrt((12 * m) / r);
-    const du = (FACTOR_NOISE * e * Math.sqrt(12 * n)) / (s0 * Math.sqrt(energy));
-    const f = quantizeFactors(t, r, du, dw);
+    const c = FACTOR_NOISE * e * Math.sqrt((12 * n) / r);
+    const f = quantizeFactors(t, r, c, dw);
     if (!f) break;
-    const corr = correct(t, f, e);
-    const est = lowRankEstimate(t, f, corr);
-    out.push({ f, corr, est });
-    worse = est >= prev ? worse + 1 : 0;
-    prev = est;
+    const p = lowRankPayload(t, f, correct(t, f, e));
+    if (p.length < best.length) best = p;
+    worse = p.length >= prev ? worse + 1 : 0;
+    prev = p.length;
     if (worse >= 2) break;
   }
+  return best;
 }
 
 /** A rank-r payload with no residual (L2 modes), or the exact one if smaller. */
-export function encodeL2(t: PreparedTile, r: number, du: number, dw: number): Uint8Array {
+export function encodeL2(t: PreparedTile, r: number, c: number, dw: number): Uint8Array {
   const exact = exactPayload(t);
   if (!t.finite) return exact;
   let f: Factors | null = null;
   if (r > 0 && t.valid > 0) {
-    f = quantizeFactors(t, Math.min(r, t.m, t.n), du, dw);
+    f = quantizeFactors(t, Math.min(r, t.m, t.n), c, dw);
     if (!f) return exact;
   }
   const p = lowRankPayload(t, f, null);

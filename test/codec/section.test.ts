@@ -1,7 +1,6 @@
 /**
  * Compressed sections (u32 raw length, u32 stored length, raw DEFLATE stream
- * of RFC 1951) and the integer packing inside them (zigzag, then byte planes
- * of width 1, 2 or 4), from src/codec/section.ts.
+ * of RFC 1951) from src/codec/section.ts.
  *
  * RFC 1951 facts used (from memory): a block starts with BFINAL (1 bit) and
  * BTYPE (2 bits, LSB first); BTYPE 00 is a stored block: after the header
@@ -14,7 +13,7 @@ import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { FormatCode, FormatError } from '../../src/errors.js';
 import { ByteReader, ByteWriter } from '../../src/format/bytes.js';
-import { MAX_INT, packInts, readSection, unpackInts, unzigzag, writeSection, zigzag } from '../../src/codec/section.js';
+import { readSection, writeSection } from '../../src/codec/section.js';
 
 /** A section with any declared raw length around any stored bytes. */
 function section(declared: number, stored: Uint8Array | number[]): Uint8Array {
@@ -150,98 +149,5 @@ describe('readSection', () => {
       }),
       { seed: 0x5ed, numRuns: 500 },
     );
-  });
-});
-
-describe('zigzag', () => {
-  it('maps 0, -1, 1, -2, 2 to 0, 1, 2, 3, 4', () => {
-    expect([0, -1, 1, -2, 2, -3].map(zigzag)).toEqual([0, 1, 2, 3, 4, 5]);
-    expect([0, 1, 2, 3, 4, 5].map(unzigzag)).toEqual([0, -1, 1, -2, 2, -3]);
-  });
-
-  it('round-trips every integer of magnitude up to 2^30, and beyond', () => {
-    fc.assert(
-      fc.property(fc.integer({ min: -MAX_INT, max: MAX_INT }), (v) => {
-        const z = zigzag(v);
-        expect(z).toBeGreaterThanOrEqual(0);
-        expect(unzigzag(z)).toBe(v);
-      }),
-      { seed: 0x212, numRuns: 2000 },
-    );
-    for (const v of [MAX_INT, -MAX_INT, 2 ** 40, -(2 ** 40), 2 ** 51, -(2 ** 51)]) expect(unzigzag(zigzag(v))).toBe(v);
-    expect(zigzag(MAX_INT)).toBe(2 ** 31);
-    expect(zigzag(-MAX_INT)).toBe(2 ** 31 - 1);
-  });
-
-  it('is a bijection onto 0..N', () => {
-    const seen = new Set<number>();
-    for (let v = -500; v < 500; v++) seen.add(zigzag(v));
-    expect(seen.size).toBe(1000);
-    expect(Math.max(...seen)).toBe(999);
-    for (let u = 0; u < 1000; u++) expect(zigzag(unzigzag(u))).toBe(u);
-  });
-});
-
-describe('packInts / unpackInts', () => {
-  it('writes the width byte and byte planes of the zigzagged values (worked example)', () => {
-    // [1, -1, 300] -> zigzag [2, 1, 600]; 600 = 0x258 needs 2 bytes:
-    // width 2, low bytes 02 01 58, high bytes 00 00 02 (computed by hand).
-    const w = new ByteWriter();
-    packInts(Int32Array.from([1, -1, 300]), w);
-    expect(Array.from(w.finish())).toEqual([2, 0x02, 0x01, 0x58, 0x00, 0x00, 0x02]);
-    const w1 = new ByteWriter();
-    packInts(Int32Array.from([0, -1, 127, -128]), w1); // zigzag max 255: one byte
-    expect(Array.from(w1.finish())).toEqual([1, 0, 1, 254, 255]);
-    const w4 = new ByteWriter();
-    packInts(Int32Array.from([-32769]), w4); // zigzag 65537 = 0x10001: four bytes
-    expect(Array.from(w4.finish())).toEqual([4, 0x01, 0x00, 0x01, 0x00]);
-  });
-
-  it('round-trips random runs with |v| <= 2^30 and consumes exactly what it wrote', () => {
-    const magnitude = fc.constantFrom(1, 127, 128, 32767, 32768, MAX_INT);
-    fc.assert(
-      fc.property(
-        magnitude.chain((m) => fc.array(fc.integer({ min: -m, max: m }), { maxLength: 300 })),
-        fc.uint8Array({ maxLength: 4 }),
-        (vals, after) => {
-          const w = new ByteWriter();
-          packInts(Int32Array.from(vals), w);
-          w.bytes(after);
-          const r = new ByteReader(w.finish(), 'test');
-          const out = new Int32Array(vals.length);
-          unpackInts(r, out, 'run');
-          expect(Array.from(out)).toEqual(vals);
-          expect(r.remaining).toBe(after.length);
-        },
-      ),
-      { seed: 0x9ac, numRuns: 500 },
-    );
-  });
-
-  it('round-trips the extremes 2^30 and -2^30', () => {
-    const vals = Int32Array.from([MAX_INT, -MAX_INT, 0, 1, -1]);
-    const w = new ByteWriter();
-    packInts(vals, w);
-    const out = new Int32Array(5);
-    unpackInts(new ByteReader(w.finish(), 't'), out, 'run');
-    expect(Array.from(out)).toEqual(Array.from(vals));
-  });
-
-  it('refuses widths other than 1, 2, 4, values above 2^30 and short runs', () => {
-    for (const width of [0, 3, 5, 8, 255]) {
-      expectFormat(thrown(() => unpackInts(new ByteReader(Uint8Array.of(width, 0, 0, 0, 0, 0, 0, 0, 0), 't'), new Int32Array(1), 'q')), FormatCode.Malformed, /width/);
-    }
-    // zigzag 2^31 + 1 would be -(2^30) - 1: one past the limit.
-    const z = 2 ** 31 + 1;
-    const planes = Uint8Array.of(4, z & 0xff, (z >>> 8) & 0xff, (z >>> 16) & 0xff, z >>> 24);
-    expectFormat(thrown(() => unpackInts(new ByteReader(planes, 't'), new Int32Array(1), 'q')), FormatCode.Malformed, /2\^30/);
-    expectFormat(thrown(() => unpackInts(new ByteReader(Uint8Array.of(2, 1, 2, 3), 't'), new Int32Array(2), 'q')), FormatCode.Truncated);
-    expectFormat(thrown(() => unpackInts(new ByteReader(new Uint8Array(0), 't'), new Int32Array(0), 'q')), FormatCode.Truncated);
-  });
-
-  it('an empty run is one width byte', () => {
-    const w = new ByteWriter();
-    packInts(new Int32Array(0), w);
-    expect(Array.from(w.finish())).toEqual([1]);
   });
 });

@@ -1,0 +1,127 @@
+/**
+ * Coded integer streams (src/codec/code-encode.ts, code-decode.ts): the
+ * binary adaptive range coder and the binarisation of spec/FORMAT.md,
+ * "Coded integer streams".
+ */
+import fc from 'fast-check';
+import { describe, expect, it } from 'vitest';
+import { CodeStreamError, decodeInts } from '../../src/codec/code-decode.js';
+import { encodeInts } from '../../src/codec/code-encode.js';
+import { Cell } from '../../src/codec/mask.js';
+import { mulberry32 } from '../rng.js';
+
+function roundTrip(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Int32Array {
+  const bytes = encodeInts(values, m, n, codes);
+  const out = new Int32Array(m * n).fill(12345);
+  decodeInts(bytes, m, n, codes, out);
+  return out;
+}
+
+/** A two-sided geometric variable: P(|v| = k) proportional to theta^k, sign fair. */
+function geometric(rand: () => number, theta: number): number {
+  const k = Math.floor(Math.log(1 - rand()) / Math.log(theta));
+  return k === 0 ? 0 : rand() < 0.5 ? -k : k;
+}
+
+describe('coded integer streams', () => {
+  it('round-trip any grid of integers with |v| <= 2^30, bit for bit', () => {
+    const limit = 0x40000000;
+    fc.assert(
+      fc.property(
+        fc.integer({ min: 1, max: 24 }),
+        fc.integer({ min: 1, max: 24 }),
+        fc.array(fc.oneof(fc.integer({ min: -3, max: 3 }), fc.integer({ min: -limit, max: limit }), fc.constantFrom(-limit, limit, 0)), { minLength: 576, maxLength: 576 }),
+        (m, n, pool) => {
+          const v = Int32Array.from({ length: m * n }, (_, c) => pool[c]);
+          expect(Array.from(roundTrip(v, m, n, null))).toEqual(Array.from(v));
+        },
+      ),
+      { numRuns: 300 },
+    );
+  });
+
+  it('skip cells that are not valid: they decode as 0 and cost nothing', () => {
+    const rand = mulberry32(7);
+    const m = 40;
+    const n = 50;
+    const v = new Int32Array(m * n);
+    const codes = new Uint8Array(m * n);
+    for (let c = 0; c < m * n; c++) {
+      if (rand() < 0.3) codes[c] = Cell.Fill;
+      else v[c] = geometric(rand, 0.6);
+    }
+    expect(Array.from(roundTrip(v, m, n, codes))).toEqual(Array.from(v));
+    const all = encodeInts(new Int32Array(m * n), m, n, new Uint8Array(m * n).fill(Cell.NaN));
+    // Nothing coded: only the flush bytes.
+    expect(all.length).toBe(4);
+  });
+
+  it('code i.i.d. values within 2% of their entropy, never below it', () => {
+    // Shannon's source coding theorem (Shannon 1948): no code beats n x H bits on
+    // average for an i.i.d. source; an adaptive binary model should approach it
+    // (the 2% allowance is common practice, no source).
+    for (const theta of [0.3, 0.7, 0.95]) {
+      const rand = mulberry32(Math.round(theta * 1000));
+      const n = 200_000;
+      const v = Int32Array.from({ length: n }, () => geometric(rand, theta));
+      // Entropy of the two-sided geometric law, from its probabilities.
+      let h = 0;
+      const pk = (k: number) => (1 - theta) * theta ** k; // P(|v| = k)
+      for (let k = 0; k < 2000; k++) {
+        const p = pk(k);
+        if (p < 1e-300) break;
+        h -= k === 0 ? p * Math.log2(p) : p * (Math.log2(p / 2));
+      }
+      const bits = 8 * encodeInts(v, 1, n, null).length;
+      expect(bits / n).toBeGreaterThan(h * 0.99); // a sample's empirical entropy may dip a little below h
+      expect(bits / n).toBeLessThan(h * 1.02 + 0.01);
+    }
+  });
+
+  it('use the neighbourhood: a field whose activity varies costs less than its order-0 entropy', () => {
+    // Half the rows quiet (theta 0.2), half busy (theta 0.9), in bands of 8 rows: the
+    // order-0 entropy of the mixture exceeds the average of the two entropies (concavity
+    // of entropy; from memory), and the context model should get close to the average.
+    const rand = mulberry32(99);
+    const m = 256;
+    const n = 256;
+    const v = new Int32Array(m * n);
+    for (let i = 0; i < m; i++) for (let j = 0; j < n; j++) v[i * n + j] = geometric(rand, (i >> 3) % 2 ? 0.9 : 0.2);
+    const counts = new Map<number, number>();
+    for (const x of v) counts.set(x, (counts.get(x) ?? 0) + 1);
+    let h0 = 0;
+    for (const c of counts.values()) h0 -= (c / v.length) * Math.log2(c / v.length);
+    const bits = 8 * encodeInts(v, m, n, null).length;
+    expect(bits / v.length).toBeLessThan(0.9 * h0);
+  });
+
+  it('refuse truncated streams, trailing bytes and values beyond 2^30', () => {
+    const rand = mulberry32(3);
+    const v = Int32Array.from({ length: 500 }, () => geometric(rand, 0.8));
+    const bytes = encodeInts(v, 20, 25, null);
+    const out = new Int32Array(500);
+    expect(() => decodeInts(bytes.subarray(0, bytes.length - 1), 20, 25, null, out)).toThrow(CodeStreamError);
+    const longer = new Uint8Array(bytes.length + 1);
+    longer.set(bytes);
+    expect(() => decodeInts(longer, 20, 25, null, out)).toThrow(/follow the end of the stream/);
+    expect(() => decodeInts(new Uint8Array(3), 1, 1, null, out)).toThrow(/at least 4 bytes/);
+    // All-ones bytes: every decision comes out 1, so the first value's class runs to 30
+    // and its bits to all ones: 2^31 - 1, beyond the limit.
+    expect(() => decodeInts(new Uint8Array(64).fill(0xff), 1, 1, null, out)).toThrow(/exceeds 2\^30/);
+  });
+
+  it('decode arbitrary bytes to values or a CodeStreamError, nothing else', () => {
+    fc.assert(
+      fc.property(fc.uint8Array({ minLength: 0, maxLength: 80 }), fc.integer({ min: 1, max: 12 }), fc.integer({ min: 1, max: 12 }), (bytes, m, n) => {
+        const out = new Int32Array(m * n);
+        try {
+          decodeInts(bytes, m, n, null, out);
+          for (const x of out) expect(Math.abs(x)).toBeLessThanOrEqual(0x40000000);
+        } catch (e) {
+          expect(e).toBeInstanceOf(CodeStreamError);
+        }
+      }),
+      { numRuns: 2000 },
+    );
+  });
+});
