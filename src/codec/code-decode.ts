@@ -5,12 +5,79 @@
  * the inner loop stays in registers.
  */
 import { Cell } from './mask.js';
-import { CLASS_AT, CLASSES, MANT_AT, newModel, PROB_BITS, PROB_ONE, SHIFTS, SIGN_AT, ZERO_AT } from './code-model.js';
+import { CLASS_AT, CLASSES, MANT_AT, MASK_CLASS_AT, MASK_SPECIAL_AT, newMaskModel, newModel, PROB_BITS, PROB_ONE, SHIFTS, SIGN_AT, ZERO_AT } from './code-model.js';
 
 const TOP = 0x1000000;
 
 /** Why a stream failed to decode, for the caller's message. */
 export class CodeStreamError extends Error {}
+
+/** A range decoder over one stream, with the adaptive model it was coded with. */
+class RangeDecoder {
+  private pos = 4;
+  private code: number;
+  private range = 0xffffffff;
+  /** Bytes read past the end (as zeros); the stream is refused if any. */
+  private over = 0;
+
+  constructor(
+    private readonly bytes: Uint8Array,
+    private readonly p: Uint16Array,
+    private readonly count: Uint8Array,
+  ) {
+    if (bytes.length < 4) throw new CodeStreamError(`a coded stream is at least 4 bytes, this one ${bytes.length}`);
+    this.code = ((bytes[0] << 24) | (bytes[1] << 16) | (bytes[2] << 8) | bytes[3]) >>> 0;
+  }
+
+  private normalize(): void {
+    while (this.range < TOP) {
+      this.range = (this.range * 256) >>> 0;
+      let next = 0;
+      if (this.pos < this.bytes.length) next = this.bytes[this.pos];
+      else this.over++;
+      this.pos++;
+      this.code = ((this.code * 256) >>> 0) + next;
+    }
+  }
+
+  /** One adaptive binary decision; updates the model as the encoder did. */
+  bit(ctx: number): number {
+    const pr = this.p[ctx];
+    const bound = (this.range >>> PROB_BITS) * pr;
+    const shift = SHIFTS[this.count[ctx]];
+    if (this.count[ctx] < 255) this.count[ctx]++;
+    let b = 0;
+    if (this.code < bound) {
+      this.range = bound;
+      this.p[ctx] = pr + ((PROB_ONE - pr) >> shift);
+    } else {
+      this.code -= bound;
+      this.range -= bound;
+      this.p[ctx] = pr - (pr >> shift);
+      b = 1;
+    }
+    if (this.range < TOP) this.normalize();
+    return b;
+  }
+
+  /** One bit at probability 1/2. */
+  direct(): number {
+    this.range = this.range >>> 1;
+    let b = 0;
+    if (this.code >= this.range) {
+      this.code -= this.range;
+      b = 1;
+    }
+    if (this.range < TOP) this.normalize();
+    return b;
+  }
+
+  /** Refuse a stream that ran short or has bytes after its end. */
+  finish(what: string): void {
+    if (this.over > 0) throw new CodeStreamError(`the stream ends ${this.over} byte(s) before its ${what} do`);
+    if (this.pos !== this.bytes.length) throw new CodeStreamError(`${this.bytes.length - this.pos} byte(s) follow the end of the stream`);
+  }
+}
 
 /**
  * Decode an m x n grid of integers from `bytes` into `out` (length m x n).
@@ -20,41 +87,8 @@ export class CodeStreamError extends Error {}
  */
 export function decodeInts(bytes: Uint8Array, m: number, n: number, codes: Uint8Array | null, out: Int32Array): void {
   const { p, count } = newModel();
-  const end = bytes.length;
-  if (end < 4) throw new CodeStreamError(`a coded stream is at least 4 bytes, this one ${end}`);
-  let pos = 4;
-  let code = ((bytes[0] << 24) | (bytes[1] << 16) | (bytes[2] << 8) | bytes[3]) >>> 0;
-  let range = 0xffffffff;
-  let over = 0; // bytes read past the end (as zeros); the stream is refused if any
-
-  // One adaptive binary decision; updates the model like the encoder.
-  const bit = (ctx: number): number => {
-    const pr = p[ctx];
-    const bound = (range >>> PROB_BITS) * pr;
-    const shift = SHIFTS[count[ctx]];
-    if (count[ctx] < 255) count[ctx]++;
-    let b: number;
-    if (code < bound) {
-      range = bound;
-      p[ctx] = pr + ((PROB_ONE - pr) >> shift);
-      b = 0;
-    } else {
-      code -= bound;
-      range -= bound;
-      p[ctx] = pr - (pr >> shift);
-      b = 1;
-    }
-    while (range < TOP) {
-      range = (range * 256) >>> 0;
-      let next = 0;
-      if (pos < end) next = bytes[pos];
-      else over++;
-      pos++;
-      code = ((code * 256) >>> 0) + next;
-    }
-    return b;
-  };
-
+  const dec = new RangeDecoder(bytes, p, count);
+  const bit = (ctx: number): number => dec.bit(ctx);
   for (let i = 0; i < m; i++) {
     for (let j = 0; j < n; j++) {
       const c = i * n + j;
@@ -84,29 +118,42 @@ export function decodeInts(bytes: Uint8Array, m: number, n: number, codes: Uint8
         if (k > 1) {
           mag = 2 * mag + bit(MANT_AT + 3 * k + 1 + top);
           // The remaining k - 2 bits at probability 1/2.
-          for (let b = k - 3; b >= 0; b--) {
-            range = range >>> 1;
-            let d = 0;
-            if (code >= range) {
-              code -= range;
-              d = 1;
-            }
-            mag = 2 * mag + d;
-            while (range < TOP) {
-              range = (range * 256) >>> 0;
-              let next = 0;
-              if (pos < end) next = bytes[pos];
-              else over++;
-              pos++;
-              code = ((code * 256) >>> 0) + next;
-            }
-          }
+          for (let b = k - 3; b >= 0; b--) mag = 2 * mag + dec.direct();
         }
       }
       if (mag > 0x40000000) throw new CodeStreamError(`value ${c} exceeds 2^30 in magnitude`);
       out[c] = negative ? -mag : mag;
     }
   }
-  if (over > 0) throw new CodeStreamError(`the stream ends ${over} byte(s) before its values do`);
-  if (pos !== end) throw new CodeStreamError(`${end - pos} byte(s) follow the end of the stream`);
+  dec.finish('values');
+}
+
+/**
+ * Decode the class map of an m x n tile written by encodeClasses into `out`.
+ * Classes above 5 are refused, as are streams of the wrong length.
+ */
+export function decodeClasses(bytes: Uint8Array, m: number, n: number, out: Uint8Array): void {
+  const { p, count } = newMaskModel();
+  const dec = new RangeDecoder(bytes, p, count);
+  const bit = (ctx: number): number => dec.bit(ctx);
+  for (let i = 0; i < m; i++) {
+    for (let j = 0; j < n; j++) {
+      const c = i * n + j;
+      const left = j > 0 && out[c - 1] !== 0 ? 1 : 0;
+      const up = i > 0 ? out[c - n] : 0;
+      const upLeft = i > 0 && j > 0 && out[c - n - 1] !== 0 ? 1 : 0;
+      const upRight = i > 0 && j + 1 < n && out[c - n + 1] !== 0 ? 1 : 0;
+      if (bit(MASK_SPECIAL_AT + left + 2 * (up !== 0 ? 1 : 0) + 4 * upLeft + 8 * upRight) === 0) {
+        out[c] = 0;
+        continue;
+      }
+      const base = MASK_CLASS_AT + 7 * up;
+      const b2 = bit(base);
+      const b1 = bit(base + 1 + b2);
+      const v = 4 * b2 + 2 * b1 + bit(base + 3 + 2 * b2 + b1);
+      if (v > 4) throw new CodeStreamError(`cell ${c} has class ${v + 1}, above the largest, 5`);
+      out[c] = v + 1;
+    }
+  }
+  dec.finish('classes');
 }

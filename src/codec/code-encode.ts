@@ -4,7 +4,7 @@
  * spec/FORMAT.md, "Coded integer streams", states every step.
  */
 import { Cell } from './mask.js';
-import { bucketOf, CLASS_AT, MANT_AT, newModel, PROB_BITS, PROB_ONE, SHIFTS, SIGN_AT, signContext, ZERO_AT } from './code-model.js';
+import { bucketOf, CLASS_AT, MANT_AT, MASK_CLASS_AT, MASK_SPECIAL_AT, newMaskModel, newModel, PROB_BITS, PROB_ONE, SHIFTS, SIGN_AT, signContext, ZERO_AT } from './code-model.js';
 
 const TOP = 0x1000000; // 2^24: the range is renormalised to stay at or above it
 
@@ -22,9 +22,8 @@ export class RangeEncoder {
   private readonly p: Uint16Array;
   private readonly count: Uint8Array;
 
-  constructor(expected = 1024) {
+  constructor(expected = 1024, model = newModel()) {
     this.out = new Uint8Array(Math.max(64, expected));
-    const model = newModel();
     this.p = model.p;
     this.count = model.count;
   }
@@ -128,6 +127,37 @@ export function encodeInts(values: Int32Array, m: number, n: number, codes: Uint
       const upLeft = i > 0 && j > 0 ? values[c - n - 1] : 0;
       const upRight = i > 0 && j + 1 < n ? values[c - n + 1] : 0;
       enc.value(values[c], bucketOf(left, up, upLeft, upRight), signContext(left, up));
+    }
+  }
+  return enc.finish();
+}
+
+/**
+ * Code the class map of an m x n tile (class codes 0..5 of ./mask.ts) in
+ * raster order with the class-map model (./code-model.ts).
+ */
+export function encodeClasses(codes: Uint8Array, m: number, n: number): Uint8Array {
+  const enc = new RangeEncoder(codes.length / 8 + 64, newMaskModel());
+  for (let i = 0; i < m; i++) {
+    for (let j = 0; j < n; j++) {
+      const c = i * n + j;
+      const left = j > 0 && codes[c - 1] !== 0 ? 1 : 0;
+      const up = i > 0 ? codes[c - n] : 0;
+      const upLeft = i > 0 && j > 0 && codes[c - n - 1] !== 0 ? 1 : 0;
+      const upRight = i > 0 && j + 1 < n && codes[c - n + 1] !== 0 ? 1 : 0;
+      const ctx = left + 2 * (up !== 0 ? 1 : 0) + 4 * upLeft + 8 * upRight;
+      if (codes[c] === 0) {
+        enc.bit(0, MASK_SPECIAL_AT + ctx);
+        continue;
+      }
+      enc.bit(1, MASK_SPECIAL_AT + ctx);
+      const v = codes[c] - 1;
+      const base = MASK_CLASS_AT + 7 * up;
+      const b2 = (v >> 2) & 1;
+      const b1 = (v >> 1) & 1;
+      enc.bit(b2, base);
+      enc.bit(b1, base + 1 + b2);
+      enc.bit(v & 1, base + 3 + 2 * b2 + b1);
     }
   }
   return enc.finish();

@@ -65,3 +65,19 @@ export function bucketOf(left: number, up: number, upLeft: number, upRight: numb
 export function signContext(left: number, up: number): number {
   return 3 * (left > 0 ? 2 : left < 0 ? 0 : 1) + (up > 0 ? 2 : up < 0 ? 0 : 1);
 }
+
+/**
+ * The model of a coded class map (the mask of a tile): per cell, whether it
+ * is missing, in one of 16 contexts from the left, up, up-left and up-right
+ * cells being missing; then, for a missing cell, its class minus 1 (0..4) as
+ * three bits of a binary tree (7 nodes) in one of 6 contexts, the class of
+ * the cell above.
+ */
+export const MASK_SPECIAL_AT = 0;
+export const MASK_CLASS_AT = 16;
+export const MASK_CONTEXTS = MASK_CLASS_AT + 6 * 7;
+
+/** A fresh class-map model: every probability 1/2, every count 0. */
+export function newMaskModel(): { p: Uint16Array; count: Uint8Array } {
+  return { p: new Uint16Array(MASK_CONTEXTS).fill(PROB_HALF), count: new Uint8Array(MASK_CONTEXTS) };
+}

@@ -18,10 +18,12 @@ export const Flag = {
   Residual: 2,
   Exceptions: 4,
   Lorenzo: 8,
+  /** Factor codes are stored as first differences along each factor vector. */
+  FactorDelta: 16,
 } as const;
 
 /** All flag bits this version defines; any other bit set is refused. */
-export const KNOWN_FLAGS = 0x0f;
+export const KNOWN_FLAGS = 0x1f;
 
 /**
  * Byte lengths of the progressive prefixes of a LowRank payload: entry k is
@@ -34,7 +36,7 @@ export function prefixLengths(payload: Uint8Array): number[] {
   const view = new DataView(payload.buffer, payload.byteOffset, payload.byteLength);
   const u32At = (at: number) => (at + 4 <= payload.length ? view.getUint32(at, true) : Infinity);
   let at = 12;
-  if (payload[1] & Flag.Mask) at += 8 + u32At(at + 4);
+  if (payload[1] & Flag.Mask) at += 8 + u32At(at) + u32At(at + 4);
   if (!(at < payload.length)) return [];
   const groups = payload[at];
   const sizes: number[] = [];

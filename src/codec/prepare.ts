@@ -8,7 +8,7 @@ import { svd, truncatedSvd, type Svd } from '../linalg/svd.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { fillMissing } from './fill.js';
 import { Cell, classify, type Classes } from './mask.js';
-import { writeSection } from './section.js';
+import { encodeClasses } from './code-encode.js';
 
 /** A tile made ready for encoding. */
 export interface PreparedTile {
@@ -74,11 +74,13 @@ export function prepareTile(
   if (finite && classes.special > 0 && valid > 0 && tol > 0) lowRankFill(x, classes.codes, m, n, tol);
   let maskSection: Uint8Array = new Uint8Array(0);
   if (classes.special > 0) {
-    const raw = new Uint8Array(cells + classes.rawNaN.length);
-    raw.set(classes.codes);
-    raw.set(classes.rawNaN, cells);
-    const w = new ByteWriter(raw.length + 16);
-    writeSection(w, raw);
+    // u32 coded length, u32 raw NaN bytes, the coded class map, the raw NaN bits.
+    const coded = encodeClasses(classes.codes, m, n);
+    const w = new ByteWriter(coded.length + classes.rawNaN.length + 8);
+    w.u32(coded.length);
+    w.u32(classes.rawNaN.length);
+    w.bytes(coded);
+    w.bytes(classes.rawNaN);
     maskSection = w.finish();
   }
   const lattice = integerLattice(orig, classes.codes);

@@ -9,7 +9,7 @@ import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
 import { Flag, KNOWN_FLAGS, Method } from './payload.js';
 import { addResidual, lowRank, roundTo, unpredict } from './reconstruct.js';
-import { CodeStreamError, decodeInts } from './code-decode.js';
+import { CodeStreamError, decodeClasses, decodeInts } from './code-decode.js';
 import { MAX_INT, readSection } from './section.js';
 import { stepValue } from './steps.js';
 
@@ -90,23 +90,32 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const center = r.f64('center');
   if (!Number.isFinite(center)) throw malformed(where, `centre ${center} at ${r.unit} ${r.offset - 8} is not finite`);
   if (flags & Flag.Lorenzo && !(flags & Flag.Residual)) throw malformed(where, 'prediction flag without a residual');
+  if (flags & Flag.FactorDelta && rank === 0) throw malformed(where, 'factor difference flag on a payload of rank 0');
 
   let codes: Uint8Array = new Uint8Array(cells);
   let rawNaN: Uint8Array = new Uint8Array(0);
   if (flags & Flag.Mask) {
-    const mask = readSection(r, 'mask', cells * (1 + width), false);
-    if (mask.length < cells) throw malformed(where, 'mask is shorter than the tile');
-    codes = mask.slice(0, cells);
+    const at = r.offset;
+    const codedLength = r.u32('mask length');
+    const rawLength = r.u32('mask raw NaN length');
+    const coded = r.bytesView(codedLength, 'mask classes');
+    codes = new Uint8Array(cells);
+    try {
+      decodeClasses(coded, m, n, codes);
+    } catch (e) {
+      if (!(e instanceof CodeStreamError)) throw e;
+      throw malformed(where, `mask (coded stream at ${r.unit} ${at}, ${codedLength} bytes): ${e.message}`);
+    }
     let raws = 0;
+    let special = 0;
     for (let c = 0; c < cells; c++) {
-      if (codes[c] > Cell.RawNaN) throw malformed(where, `mask ${cellName(c, n)} has unknown class ${codes[c]}`);
+      if (codes[c] !== Cell.Valid) special++;
       if (codes[c] === Cell.RawNaN) raws++;
       if (codes[c] === Cell.Fill && ctx.fill === null) throw malformed(where, `mask ${cellName(c, n)} is a fill cell but the field has no fill value`);
     }
-    if (mask.length !== cells + raws * width) {
-      throw malformed(where, `mask holds ${mask.length - cells} bytes of raw NaN bits, its ${raws} raw NaN cells need ${raws * width}`);
-    }
-    rawNaN = mask.subarray(cells);
+    if (special === 0) throw malformed(where, `mask at ${r.unit} ${at} marks no cell missing`);
+    if (rawLength !== raws * width) throw malformed(where, `mask holds ${rawLength} bytes of raw NaN bits, its ${raws} raw NaN cells need ${raws * width}`);
+    rawNaN = r.bytesView(rawLength, 'mask raw NaN bits');
     const view = new DataView(rawNaN.buffer, rawNaN.byteOffset, rawNaN.byteLength);
     for (let k = 0; k < raws; k++) {
       const v = width === 4 ? view.getFloat32(4 * k, true) : view.getFloat64(8 * k, true);
@@ -115,7 +124,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   }
 
   let factors: { l: Float64Array; w: Float64Array; rank: number } = { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
-  if (rank > 0) factors = readFactors(r, ctx, rank);
+  if (rank > 0) factors = readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0);
   else if (r.u8('group count') !== 0) throw malformed(where, `rank 0 with factor groups (group count at ${r.unit} ${r.offset - 1})`);
   const prefix = ctx.groups !== undefined;
   if (prefix) {
@@ -183,7 +192,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
 }
 
 /** Read the factor groups into l (m x r) and w (r x n). */
-function readFactors(r: ByteReader, ctx: TileContext, declared: number): { l: Float64Array; w: Float64Array; rank: number } {
+function readFactors(r: ByteReader, ctx: TileContext, declared: number, delta: boolean): { l: Float64Array; w: Float64Array; rank: number } {
   const { m, n, where } = ctx;
   const groups = r.u8('group count');
   if (groups === 0) throw malformed(where, `rank ${declared} but no factor groups (group count at ${r.unit} ${r.offset - 1})`);
@@ -214,6 +223,7 @@ function readFactors(r: ByteReader, ctx: TileContext, declared: number): { l: Fl
     }
     const row = new Int32Array(size * (m + n));
     readCoded(r, `factor group ${g}`, 1, row.length, null, row, where);
+    if (delta && !undoDifferences(row, m, n)) throw malformed(where, `factor group ${g}: a factor code exceeds 2^30 after summing its differences`);
     let at = 0;
     for (let k = 0; k < size; k++) {
       const rk = k0 + k;
@@ -242,4 +252,21 @@ function readCoded(r: ByteReader, what: string, m: number, n: number, codes: Uin
     if (!(e instanceof CodeStreamError)) throw e;
     throw malformed(where, `${what} (coded stream at ${r.unit} ${at}, ${length} bytes): ${e.message}`);
   }
+}
+
+/** Running sums along each factor vector of a group row (left m, right n, left m, ...), in place; false if one leaves +-2^30. */
+function undoDifferences(row: Int32Array, m: number, n: number): boolean {
+  let at = 0;
+  while (at < row.length) {
+    for (const len of [m, n]) {
+      let acc = 0;
+      for (let i = at; i < at + len; i++) {
+        acc += row[i];
+        if (acc > MAX_INT || acc < -MAX_INT) return false;
+        row[i] = acc;
+      }
+      at += len;
+    }
+  }
+  return true;
 }

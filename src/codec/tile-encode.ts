@@ -119,6 +119,35 @@ interface Correction {
  * cells) and the exceptions section (DEFLATE).
  */
 export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correction | null): Uint8Array {
+  // Plain codes always fit (every code is within +-2^30).
+  const plain = lowRankWith(t, f, corr, false)!;
+  if (!f || f.rank === 0) return plain;
+  // Factor codes as they are, or as differences along each vector (smooth factors), whichever is smaller.
+  const delta = lowRankWith(t, f, corr, true);
+  return delta !== null && delta.length < plain.length ? delta : plain;
+}
+
+/** The group's factor codes as one row (left factor k, right factor k, left k+1, ...), differenced if asked; null if a difference leaves +-2^30. */
+function factorRow(f: Factors, k0: number, size: number, m: number, n: number, delta: boolean): Int32Array | null {
+  const row = new Int32Array(size * (m + n));
+  let at = 0;
+  const put = (v: Int32Array): boolean => {
+    let prev = 0;
+    for (let i = 0; i < v.length; i++) {
+      const d = delta ? v[i] - prev : v[i];
+      if (d > MAX_INT || d < -MAX_INT) return false;
+      row[at++] = d;
+      prev = v[i];
+    }
+    return true;
+  };
+  for (let k = k0; k < k0 + size; k++) {
+    if (!put(f.qu.subarray(k * m, k * m + m)) || !put(f.qw.subarray(k * n, k * n + n))) return null;
+  }
+  return row;
+}
+
+function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null, delta: boolean): Uint8Array | null {
   const { m, n } = t;
   const rank = f ? f.rank : 0;
   let flags = 0;
@@ -127,6 +156,7 @@ export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correct
   if (hasResidual) flags |= Flag.Residual;
   if (hasResidual && corr.lorenzo) flags |= Flag.Lorenzo;
   if (corr !== null && corr.exceptions.length > 0) flags |= Flag.Exceptions;
+  if (delta) flags |= Flag.FactorDelta;
   const w = new ByteWriter(64 + t.maskSection.length + (hasResidual ? (m * n) / 2 : 0) + (f ? rank * (m + n) : 0));
   w.u8(Method.LowRank);
   w.u8(flags);
@@ -143,15 +173,8 @@ export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correct
         w.i16(f.codeU[k]);
         w.i16(f.codeW[k]);
       }
-      // The group's factor codes as one row: left factor k, right factor k, left factor k+1, ...
-      const row = new Int32Array(size * (m + n));
-      let at = 0;
-      for (let k = k0; k < k0 + size; k++) {
-        row.set(f.qu.subarray(k * m, k * m + m), at);
-        at += m;
-        row.set(f.qw.subarray(k * n, k * n + n), at);
-        at += n;
-      }
+      const row = factorRow(f, k0, size, m, n, delta);
+      if (row === null) return null;
       const coded = encodeInts(row, 1, row.length, null);
       w.u32(coded.length);
       w.bytes(coded);

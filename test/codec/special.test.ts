@@ -266,10 +266,9 @@ describe('a land mask is filled smoothly', () => {
   for (const bound of ['abs:1e-4', 'rel:1e-5', 'rmse:1e-4', 'psnr:80']) {
     for (const tile of [32, 64]) {
       // Known shortfall, tracked in issue 9's notes: with L2 bounds and 64x64 tiles the
-      // mean rank doubles (3 -> 6 for rmse:1e-4; psnr:80 met it after the coded residual of
-      // format 2, and since the factor steps c / s_k of dcadb40 it is 3 -> 5 again). A fully
-      // converged harmonic fill gives the same numerical rank, so the stand-in itself, not
-      // the sweep count, adds the rank.
+      // mean rank doubles (3 -> 6 for rmse:1e-4, 4 -> 5 for psnr:80). A fully converged
+      // harmonic fill gives the same numerical rank, so the stand-in itself, not the sweep
+      // count, adds the rank.
       const known = tile === 64 && (bound.startsWith('rmse') || bound.startsWith('psnr'));
       (known ? it.fails : it)(`${bound}, ${tile}x${tile} tiles: the mean rank rises by at most 1`, async () => {
         const plain = await meanRank(false, bound, tile);
