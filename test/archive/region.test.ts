@@ -15,6 +15,7 @@ import { InputCode, InputError, MemorySource, open, pack, type Archive, type Byt
 import { HttpSource } from '../../src/format/http-source.js';
 import { FileSource } from '../../src/io/file-source.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
+import { expectSameBytes } from '../same-bytes.js';
 import { precip, volcano, type Grid } from './datasets.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'rankfield-region-'));
@@ -52,15 +53,6 @@ function withMissing(g: Grid, dtype: 'f32' | 'f64'): { values: Float32Array | Fl
 const bits = (a: Float32Array | Float64Array) => new Uint32Array(a.buffer, a.byteOffset, a.byteLength / 4);
 
 /**
- * Assert the same bits. Buffer.equals decides, since toEqual over 10^5 words takes a good
- * part of a second each time; toEqual runs only to describe a mismatch.
- */
-function expectBits(got: Float32Array | Float64Array, want: Float32Array | Float64Array, label?: string): void {
-  const bytes = (a: Float32Array | Float64Array) => Buffer.from(a.buffer, a.byteOffset, a.byteLength);
-  if (!(got.constructor === want.constructor && bytes(got).equals(bytes(want)))) expect(bits(got), label).toEqual(bits(want));
-}
-
-/**
  * The whole decode, assembled here tile by tile from `archive.tile` (a path
  * apart from the window reader), and checked against `read()` of the whole.
  */
@@ -78,7 +70,7 @@ async function assemble(a: Archive, name: string): Promise<FieldValues> {
     for (let i = 0; i < Math.min(tr, rows - i0); i++) values.set(tile.subarray(i * n, (i + 1) * n), (i0 + i) * cols + j0);
   }
   const whole = await a.read(name);
-  expectBits(whole.values, values);
+  expectSameBytes(whole.values, values);
   return { ...whole, shape: [rows, cols], values, window: { rows: [0, rows], cols: [0, cols] } };
 }
 
@@ -154,7 +146,7 @@ describe.each(CASES)('windows of $label', ({ label, grid, dtype, tile, bound }) 
       expect(got.shape, k).toEqual([r[1] - r[0], c[1] - c[0]]);
       expect(got.window).toEqual({ rows: r, cols: c });
       expect(got.dtype).toBe(dtype);
-      expectBits(got.values, want, `${k} window ${r} x ${c}`);
+      expectSameBytes(got.values, want, `${k} window ${r} x ${c}`);
     }
   });
 
@@ -163,7 +155,7 @@ describe.each(CASES)('windows of $label', ({ label, grid, dtype, tile, bound }) 
     await fc.assert(
       fc.asyncProperty(range(rows), range(cols), fc.constantFrom('memory', 'file', 'http'), async (r, c, k) => {
         const got = await archives[k].read('g', { rows: r, cols: c });
-        expectBits(got.values, crop(whole, r, c));
+        expectSameBytes(got.values, crop(whole, r, c));
       }),
       { numRuns: 40, seed: 20261201 },
     );
@@ -242,7 +234,7 @@ describe('what a window read fetches', () => {
       [(k * 29) % 350, Math.min(360, ((k * 29) % 350) + 1 + ((k * 31) % 90))],
     ]);
     const results = await Promise.all(windows.map(([r, c]) => a.read('p', { rows: r, cols: c, verify: true })));
-    results.forEach((got, k) => expectBits(got.values, crop(whole, windows[k][0], windows[k][1]), `window ${k}`));
+    results.forEach((got, k) => expectSameBytes(got.values, crop(whole, windows[k][0], windows[k][1]), `window ${k}`));
   });
 });
 
