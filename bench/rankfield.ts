@@ -56,7 +56,7 @@ export function splitPayload(p: Uint8Array): [number, number] {
 
 export async function breakdown(bytes: Uint8Array): Promise<Breakdown> {
   const archive = await open(bytes);
-  const ix = archive.index.fields[0];
+  const ix = (await archive.loadIndex()).fields[0];
   let factors = 0;
   let residual = 0;
   let exactTiles = 0;

@@ -8,9 +8,9 @@ import { prefixLengths } from './codec/payload.js';
 import { ErrorTally } from './codec/tally.js';
 import { decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
-import { readContainer, type Container } from './format/container.js';
+import { joinPages, readContainer, readPages, tilePage, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
-import { DEFAULT_LIMITS, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Limits, checkReadCells, quoteName, sliceGrid, tileOrigin, tileShape } from './format/schema.js';
+import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex, checkReadCells, pageCount, quoteName, sliceGrid, tileCount, tileOrigin, tileShape } from './format/schema.js';
 import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 
@@ -113,24 +113,60 @@ export interface OpenOptions {
   coalesce?: CoalesceOptions;
 }
 
+/** One tile's entry in its index page. */
+export interface TileEntry {
+  offset: number;
+  length: number;
+  crc: number;
+  method: number;
+  rank: number;
+  valid: number;
+  max_err: number;
+  rmse: number;
+  value_crc: number;
+  /** Recorded prefixes as quads (length, crc, max_err, rmse); empty when none. */
+  prefix: number[];
+}
+
+/** Index pages of one field, fetched on demand and kept. */
+class FieldPages {
+  readonly loaded = new Map<number, PageIndex>();
+  readonly pending = new Map<number, Promise<void>>();
+  constructor(
+    readonly h: FieldHeader,
+    readonly d: FieldDirectory,
+  ) {}
+  /** The entry of tile t; its page must have been loaded. */
+  entry(c: Container, position: number, t: number): TileEntry {
+    const { p, k } = tilePage(c, position, t);
+    const pg = this.loaded.get(p);
+    if (pg === undefined) throw new Error(`index page ${p} of field ${quoteName(this.h.name)} was not loaded before tile ${t} was used`);
+    return { offset: pg.offset[k], length: pg.length[k], crc: pg.crc[k], method: pg.method[k], rank: pg.rank[k], valid: pg.valid[k], max_err: pg.max_err[k], rmse: pg.rmse[k], value_crc: pg.value_crc[k], prefix: pg.prefix?.[k] ?? [] };
+  }
+}
+
 /** An opened archive. */
 export class Archive {
   readonly header: ArchiveHeader;
-  readonly index: ArchiveIndex;
+  /** The index directory: per field, its index pages, payload runs and summary. */
+  readonly directory: ArchiveDirectory;
   /** Size of the archive in bytes. */
   readonly size: number;
   /** The reader limits this archive was checked against. */
   readonly limits: Limits;
+  private readonly pages: FieldPages[];
+  private whole: ArchiveIndex | null = null;
 
   constructor(
     private readonly source: ByteSource,
-    container: Container,
+    private readonly container: Container,
     private readonly coalesce: CoalesceOptions = {},
   ) {
     this.header = container.header;
-    this.index = container.index;
+    this.directory = container.directory;
     this.size = container.size;
     this.limits = container.limits;
+    this.pages = this.header.fields.map((h, i) => new FieldPages(h, this.directory.fields[i]));
   }
 
   /** Names of the fields, in archive order. */
@@ -138,36 +174,107 @@ export class Archive {
     return this.header.fields.map((f) => f.name);
   }
 
-  /** Header and index entries of a field (the first when `name` is omitted). */
-  field(name?: string): { header: FieldHeader; index: FieldIndex; position: number } {
+  /**
+   * The whole index, once {@link loadIndex} has fetched it. Reads do not
+   * need it: they fetch only the index pages of the tiles they touch.
+   */
+  get index(): ArchiveIndex {
+    if (this.whole === null) throw new InputError(InputCode.Option, `the whole index of ${this.source.label} is not loaded: call await archive.loadIndex() first (reads fetch only the index pages they need)`);
+    return this.whole;
+  }
+
+  /** Fetch every index page of every field (checking each, and each field's summary) and return the whole index. */
+  async loadIndex(): Promise<ArchiveIndex> {
+    if (this.whole !== null) return this.whole;
+    const fields: FieldIndex[] = [];
+    for (let i = 0; i < this.header.fields.length; i++) fields.push(await this.fieldIndexAt(i));
+    this.whole = { fields };
+    return this.whole;
+  }
+
+  /** The whole index of one field (the first when `name` is omitted), from all its pages. */
+  async fieldIndex(name?: string): Promise<FieldIndex> {
+    return this.fieldIndexAt(this.field(name).position);
+  }
+
+  private async fieldIndexAt(position: number): Promise<FieldIndex> {
+    const fp = this.pages[position];
+    const all = Array.from({ length: pageCount(fp.h, fp.d.page) }, (_, p) => p);
+    await this.loadPages(position, all);
+    return joinPages(this.container, position, all.map((p) => fp.loaded.get(p)!), this.source.label);
+  }
+
+  /**
+   * Fetch the index pages of field `position` not yet held (one merged
+   * fetch for all of them); pages being fetched by another call are awaited.
+   */
+  private async loadPages(position: number, pages: readonly number[]): Promise<void> {
+    const fp = this.pages[position];
+    const missing = [...new Set(pages)].filter((p) => !fp.loaded.has(p) && !fp.pending.has(p));
+    if (missing.length > 0) {
+      const job = readPages(this.source, this.container, position, missing, this.coalesce).then((got) => missing.forEach((p, i) => fp.loaded.set(p, got[i])));
+      for (const p of missing) fp.pending.set(p, job);
+      // A failed fetch may be tried again by a later call.
+      job.then(
+        () => missing.forEach((p) => fp.pending.delete(p)),
+        () => missing.forEach((p) => fp.pending.delete(p)),
+      );
+    }
+    const waits = [...new Set(pages.map((p) => fp.pending.get(p)).filter((w): w is Promise<void> => w !== undefined))];
+    await Promise.all(waits);
+  }
+
+  /** Index pages holding `tiles` of field `position`. */
+  private pagesOf(position: number, tiles: readonly number[]): number[] {
+    const out = new Set<number>();
+    for (const t of tiles) out.add(tilePage(this.container, position, t).p);
+    return [...out].sort((a, b) => a - b);
+  }
+
+  /** The index entries of `tiles` of field `position`, fetching their pages first. */
+  private async entries(position: number, tiles: readonly number[]): Promise<(t: number) => TileEntry> {
+    await this.loadPages(position, this.pagesOf(position, tiles));
+    const fp = this.pages[position];
+    return (t) => fp.entry(this.container, position, t);
+  }
+
+  /** Header, directory entry and summary of a field (the first when `name` is omitted). */
+  field(name?: string): { header: FieldHeader; directory: FieldDirectory; summary: FieldDirectory['summary']; position: number } {
     const position = name === undefined ? 0 : this.header.fields.findIndex((f) => f.name === name);
     if (position < 0 || position >= this.header.fields.length) {
       throw new InputError(InputCode.Missing, `no field '${name}' in ${this.source.label} (fields: ${this.names.join(', ') || 'none'})`);
     }
-    return { header: this.header.fields[position], index: this.index.fields[position], position };
+    const directory = this.directory.fields[position];
+    return { header: this.header.fields[position], directory, summary: directory.summary, position };
+  }
+
+  /** The index entry of one tile (fetching its index page when not yet held). */
+  async tileEntry(name: string | undefined, t: number): Promise<TileEntry> {
+    const { header: h, position } = this.field(name);
+    const n = tileCount(h);
+    if (!Number.isInteger(t) || t < 0 || t >= n) throw new InputError(InputCode.Option, `field '${h.name}' has tiles 0..${n - 1}, not ${t}`);
+    return (await this.entries(position, [t]))(t);
   }
 
   /** Fetch, check and decode one tile. */
   async tile(name: string | undefined, t: number, verifyValues = false): Promise<FloatArray> {
-    const { header: h, index: ix } = this.field(name);
-    if (!Number.isInteger(t) || t < 0 || t >= ix.offset.length) {
-      throw new InputError(InputCode.Option, `field '${h.name}' has tiles 0..${ix.offset.length - 1}, not ${t}`);
-    }
-    const payload = await this.source.read(ix.offset[t], ix.length[t]);
-    return this.decodePayload(h, ix, t, payload, verifyValues);
+    const { header: h } = this.field(name);
+    const e = await this.tileEntry(name, t);
+    const payload = await this.source.read(e.offset, e.length);
+    return this.decodePayload(h, e, t, payload, verifyValues);
   }
 
   /** Check a fetched payload against the index and decode it. */
-  private decodePayload(h: FieldHeader, ix: FieldIndex, t: number, payload: Uint8Array, verifyValues: boolean): FloatArray {
+  private decodePayload(h: FieldHeader, e: TileEntry, t: number, payload: Uint8Array, verifyValues: boolean): FloatArray {
     const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
-    if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${ix.offset[t]})`);
+    if (crc32(payload) !== e.crc) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${e.offset})`);
     const rank = payload[0] === 1 && payload.length >= 4 ? payload[2] | (payload[3] << 8) : 0;
-    if (payload[0] !== ix.method[t] || rank !== ix.rank[t]) {
-      throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${payload[0]} rank ${rank}, the index says method ${ix.method[t]} rank ${ix.rank[t]}`);
+    if (payload[0] !== e.method || rank !== e.rank) {
+      throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${payload[0]} rank ${rank}, the index says method ${e.method} rank ${e.rank}`);
     }
     const [m, n] = tileDims(h, t);
-    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: ix.offset[t], maxRank: this.limits.maxRank });
-    if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== ix.value_crc[t]) {
+    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank });
+    if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== e.value_crc) {
       throw new FormatError(FormatCode.Checksum, `${where}: decoded values differ from those verified at encode time (value CRC-32 mismatch)`);
     }
     return out;
@@ -181,11 +288,11 @@ export class Archive {
    * over as its error instead of failing the whole call.
    */
   private async eachPayload(
-    ix: FieldIndex,
+    entry: (t: number) => TileEntry,
     tiles: readonly number[],
     use: (t: number, payload: Uint8Array | FormatError) => void,
     isolate = false,
-    lengthOf: (t: number) => number = (t) => ix.length[t],
+    lengthOf: (t: number) => number = (t) => entry(t).length,
   ): Promise<void> {
     for (let k = 0; k < tiles.length; ) {
       const batch: number[] = [];
@@ -194,7 +301,7 @@ export class Archive {
         bytes += lengthOf(tiles[k]);
         batch.push(tiles[k++]);
       }
-      const ranges: ByteRange[] = batch.map((t) => ({ offset: ix.offset[t], length: lengthOf(t) }));
+      const ranges: ByteRange[] = batch.map((t) => ({ offset: entry(t).offset, length: lengthOf(t) }));
       let payloads: (Uint8Array | FormatError)[];
       try {
         payloads = await readRanges(this.source, ranges, this.coalesce);
@@ -215,10 +322,10 @@ export class Archive {
    * archive.
    */
   async read(name?: string, options: ReadOptions = {}): Promise<FieldValues> {
-    const { header: h, index: ix } = this.field(name);
+    const { header: h, position } = this.field(name);
     const { slices, rows, cols } = checkWindow(h, options);
     const verify = options.verify === true;
-    const plan = this.progressivePlan(h, ix, options.bound);
+    const bound = options.bound === undefined ? undefined : typeof options.bound === 'string' ? parseBound(options.bound) : checkBound(options.bound);
     const [s0, s1] = slices;
     const [r0, r1] = rows;
     const [c0, c1] = cols;
@@ -234,14 +341,17 @@ export class Archive {
         for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) tiles.push(s * gr * gc + ti * gc + tj);
       }
     }
+    const entry = await this.entries(position, tiles);
+    const plan = this.progressivePlan(h, entry, bound);
     const tally = { max: 0, sq: 0, valid: 0, prefixTiles: 0 };
-    await this.eachPayload(ix, tiles, (t, payload) => {
+    await this.eachPayload(entry, tiles, (t, payload) => {
       if (payload instanceof FormatError) throw payload;
       const choice = plan(t);
-      const tile = choice.prefix ? this.decodePrefix(h, ix, t, payload, choice.crc) : this.decodePayload(h, ix, t, payload, verify);
+      const e = entry(t);
+      const tile = choice.prefix ? this.decodePrefix(h, e, t, payload, choice.crc) : this.decodePayload(h, e, t, payload, verify);
       if (!(choice.maxErr <= tally.max)) tally.max = choice.maxErr;
-      tally.sq += ix.valid[t] * choice.rmse * choice.rmse;
-      tally.valid += ix.valid[t];
+      tally.sq += e.valid * choice.rmse * choice.rmse;
+      tally.valid += e.valid;
       if (choice.prefix) tally.prefixTiles++;
       const { s, i0, j0 } = tileOrigin(h, t);
       const [, n] = tileShape(h, t);
@@ -263,15 +373,17 @@ export class Archive {
    * For each tile, what to read: the shortest recorded prefix whose error
    * meets the requested bound, else the whole payload.
    */
-  private progressivePlan(h: FieldHeader, ix: FieldIndex, bound: Bound | string | undefined): (t: number) => TileChoice {
-    const whole = (t: number): TileChoice => ({ length: ix.length[t], prefix: false, crc: ix.crc[t], maxErr: ix.max_err[t], rmse: ix.rmse[t] });
-    if (bound === undefined) return whole;
-    const b = typeof bound === 'string' ? parseBound(bound) : checkBound(bound);
+  private progressivePlan(h: FieldHeader, entry: (t: number) => TileEntry, b: Bound | undefined): (t: number) => TileChoice {
+    const whole = (t: number): TileChoice => {
+      const e = entry(t);
+      return { length: e.length, prefix: false, crc: e.crc, maxErr: e.max_err, rmse: e.rmse };
+    };
+    if (b === undefined) return whole;
     const range = h.bound.range;
     const tol = resolveBound(b, range ? range[1] - range[0] : 0);
     const pointwise = isPointwise(b.mode);
     return (t) => {
-      const p = ix.prefix?.[t] ?? [];
+      const p = entry(t).prefix;
       for (let k = 0; k < p.length; k += 4) {
         const [length, crc, maxErr, rmse] = p.slice(k, k + 4);
         if (pointwise ? maxErr <= tol : rmse <= tol) return { length, prefix: true, crc, maxErr, rmse };
@@ -281,13 +393,13 @@ export class Archive {
   }
 
   /** Check a fetched prefix against its recorded CRC and decode its factor groups. */
-  private decodePrefix(h: FieldHeader, ix: FieldIndex, t: number, bytes: Uint8Array, crc: number): FloatArray {
+  private decodePrefix(h: FieldHeader, e: TileEntry, t: number, bytes: Uint8Array, crc: number): FloatArray {
     const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
-    if (crc32(bytes) !== crc) throw new FormatError(FormatCode.Checksum, `${where}: prefix of ${bytes.length} bytes fails its CRC-32 (payload at offset ${ix.offset[t]})`);
+    if (crc32(bytes) !== crc) throw new FormatError(FormatCode.Checksum, `${where}: prefix of ${bytes.length} bytes fails its CRC-32 (payload at offset ${e.offset})`);
     const groups = prefixLengths(bytes).indexOf(bytes.length);
     if (groups < 0) throw new FormatError(FormatCode.Malformed, `${where}: the index lists a prefix of ${bytes.length} bytes that does not end at a factor group`);
     const [m, n] = tileDims(h, t);
-    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: ix.offset[t], maxRank: this.limits.maxRank, groups });
+    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, groups });
   }
 
   /**
@@ -302,7 +414,7 @@ export class Archive {
       throw new InputError(InputCode.Option, `the archive holds ${this.header.fields.length} fields: give the originals by field name`);
     }
     for (const h of this.header.fields) {
-      const { index: ix } = this.field(h.name);
+      const { position, summary } = this.field(h.name);
       const given = against === undefined ? undefined : ArrayBuffer.isView(against) ? against : against[h.name];
       const want = h.dtype === 'f32' ? Float32Array : Float64Array;
       const orig = given === undefined || given instanceof want ? given : want.from(given);
@@ -318,9 +430,39 @@ export class Archive {
       const total = new ErrorTally();
       let specials = 0;
       const fw = fillWords(h.fill, h.dtype);
-      const all = Array.from({ length: ix.offset.length }, (_, t) => t);
-      await this.eachPayload(ix, all, (t, payload) => {
+      // Index pages: a page that cannot be read fails its tiles, and the rest are checked.
+      const fp = this.pages[position];
+      const npages = pageCount(h, fp.d.page);
+      const pages = Array.from({ length: npages }, (_, p) => p);
+      try {
+        await this.loadPages(position, pages);
+      } catch (e) {
+        if (!(e instanceof FormatError)) throw e;
+        for (const p of pages) {
+          await this.loadPages(position, [p]).catch((err: unknown) => {
+            if (!(err instanceof FormatError)) throw err;
+            fail(-1, err.message);
+          });
+        }
+      }
+      const all: number[] = [];
+      for (const p of pages) {
+        const pg = fp.loaded.get(p);
+        if (pg !== undefined) all.push(...pg.tiles);
+      }
+      all.sort((a, b) => a - b);
+      if (all.length === tileCount(h)) {
+        try {
+          joinPages(this.container, position, pages.map((p) => fp.loaded.get(p)!), this.source.label);
+        } catch (e) {
+          if (!(e instanceof FormatError)) throw e;
+          fail(-1, e.message);
+        }
+      }
+      const entry = (t: number) => fp.entry(this.container, position, t);
+      await this.eachPayload(entry, all, (t, payload) => {
         let tile: FloatArray;
+        const ix = entry(t);
         try {
           if (payload instanceof FormatError) throw payload;
           tile = this.decodePayload(h, ix, t, payload, true);
@@ -329,7 +471,7 @@ export class Archive {
           fail(t, e.message);
           return;
         }
-        if (pointwise && !(ix.max_err[t] <= tol)) fail(t, `recorded max error ${ix.max_err[t]} exceeds the bound ${tol}`);
+        if (pointwise && !(ix.max_err <= tol)) fail(t, `recorded max error ${ix.max_err} exceeds the bound ${tol}`);
         if (orig) {
           const [m, n] = tileShape(h, t);
           const part = extract(orig, h, t);
@@ -352,21 +494,21 @@ export class Archive {
           if (pointwise && !(tally.max <= tol)) fail(t, `measured max error ${tally.max} exceeds the bound ${tol}`);
         }
       }, true);
-      if (!pointwise && !(ix.summary.rmse <= tol)) fail(-1, `recorded RMSE ${ix.summary.rmse} exceeds the bound ${tol}`);
-      const entry: CheckReport['fields'][number] = {
+      if (!pointwise && !(summary.rmse <= tol)) fail(-1, `recorded RMSE ${summary.rmse} exceeds the bound ${tol}`);
+      const report1: CheckReport['fields'][number] = {
         name: h.name,
-        tiles: ix.offset.length,
+        tiles: tileCount(h),
         mode: h.bound.mode,
         tolerance: tol,
-        recorded: { maxErr: ix.summary.max_err, rmse: ix.summary.rmse },
+        recorded: { maxErr: summary.max_err, rmse: summary.rmse },
       };
       if (orig) {
         const rmse = total.rmse;
-        entry.measured = { maxErr: total.max, rmse, specialMismatches: specials };
+        report1.measured = { maxErr: total.max, rmse, specialMismatches: specials };
         if (specials > 0) fail(-1, `${specials} missing or special cells differ from the original`);
         if (!pointwise && !(rmse <= tol)) fail(-1, `measured RMSE ${rmse} exceeds the bound ${tol}`);
       }
-      report.fields.push(entry);
+      report.fields.push(report1);
     }
     report.ok = report.failures.length === 0;
     return report;

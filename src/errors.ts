@@ -8,8 +8,7 @@
  * Two other kinds pass through: errors of the file system as Node reports
  * them (FileSource, a file sink: ENOENT, EACCES, ...), and whatever a
  * caller's own ByteSource, Sink or band callback throws. Any other error is
- * an internal assertion that no input should reach (each is commented where
- * it is thrown): a bug in rankfield.
+ * an internal assertion that no input should reach: a bug in rankfield.
  */
 
 /** Codes of {@link FormatError}: what is wrong with an archive's bytes. */

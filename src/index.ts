@@ -3,14 +3,14 @@
  * by tiled truncated SVD with a residual that makes pointwise bounds strict.
  */
 export { pack, ArchiveBuilder, type PackOptions, MAX_TILE_SIDE } from './pack.js';
-export { open, Archive, type FieldValues, type ReadOptions, type CheckReport, type CheckFailure, type OpenOptions } from './archive.js';
+export { open, Archive, type FieldValues, type ReadOptions, type CheckReport, type CheckFailure, type OpenOptions, type TileEntry } from './archive.js';
 export { parseBound, formatBound, resolveBound, isPointwise } from './codec/bound.js';
 export { FormatError, InputError, FormatCode, InputCode } from './errors.js';
 export { MemorySource, readRanges, coalesce, type ByteSource, type ByteRange, type CoalesceOptions } from './format/source.js';
 export { HttpSource, type HttpSourceOptions } from './format/http-source.js';
 export { FileSource } from './io/file-source.js';
 export { MemorySink, type Sink } from './format/container.js';
-export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type FieldHeader, type FieldIndex, type Attrs } from './format/schema.js';
+export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type ArchiveDirectory, type FieldDirectory, type PageIndex, type FieldHeader, type FieldIndex, type Attrs } from './format/schema.js';
 export type { Bound, BoundMode, Dtype, FloatArray } from './types.js';
 export { VERSION_STRING } from './version.js';
 export { Method, METHOD_NAMES } from './codec/payload.js';

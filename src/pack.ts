@@ -1,10 +1,10 @@
 /** Writing archives: {@link pack} one field to bytes, or build a many-field archive with {@link ArchiveBuilder}. */
 import { checkBound, parseBound } from './codec/bound.js';
 import { chooseTile } from './codec/auto-tile.js';
-import { encodeField, memoryBands, type BandSource, type FieldSpec } from './codec/field.js';
+import { encodeField, memoryBands, type BandSource, type EncodedTile, type FieldSpec } from './codec/field.js';
 import { InputCode, InputError } from './errors.js';
-import { ContainerWriter, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
-import { attrsProblem, ndProblem, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
+import { ContainerWriter, DEFAULT_PAGE, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
+import { attrsProblem, ndProblem, pageGrid, pageTiles, sliceGrid, tileCount, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 import { VERSION_STRING } from './version.js';
 
@@ -13,9 +13,10 @@ export interface PackOptions {
   /** The error bound, as `{ mode, value }` or text such as `'rel:1e-3'`. */
   bound: Bound | string;
   /**
-   * Tile size: [rows, cols], or one number for square tiles. Default 64x64.
-   * 'auto' tries 64, 128 and 256 square tiles and the whole field (when it
-   * fits in one tile) on a sample and keeps the one that packs smallest.
+   * Tile size: [rows, cols], or one number for square tiles. Default 'auto':
+   * 64, 128 and 256 square tiles and the whole field (when it holds at most
+   * 2^20 cells) are tried on a sample and the one that packs smallest is
+   * kept. Smaller tiles make window reads cheaper; set a size to fix it.
    */
   tile?: number | [number, number] | 'auto';
   /** A fill value marking missing cells (restored bit for bit, excluded from the bound). */
@@ -46,6 +47,12 @@ export interface PackOptions {
   dims?: readonly string[];
   /** How ndShape maps to slices x rows x cols: 'slices' (default for 3 or more dims) or 'matrix:A'. */
   layout?: string;
+  /**
+   * Tiles per index page: [tile rows, tile cols], or one number for square
+   * pages. Default 8 x 8. A window read fetches the pages its tiles are on,
+   * so smaller pages cost less per window and more in the index directory.
+   */
+  indexPage?: number | [number, number];
 }
 
 /** Options of {@link ArchiveBuilder}. */
@@ -60,10 +67,13 @@ export interface BuilderOptions {
 /** Largest tile side accepted. */
 export const MAX_TILE_SIDE = 4096;
 
+/** Largest side of an index page, in tiles. */
+export const MAX_PAGE_SIDE = 4096;
+
 /** Largest tile area accepted (cells); readers refuse more by default. */
 export const MAX_TILE_CELLS = 1 << 20;
 
-function options(values: FloatArray | number[], shape: readonly number[], o: PackOptions, withValues = true): { spec: FieldSpec; data: FloatArray } {
+function options(values: FloatArray | number[], shape: readonly number[], o: PackOptions, withValues = true): { spec: FieldSpec; data: FloatArray; page: [number, number] } {
   if (!Array.isArray(shape) || shape.length !== 2 || !shape.every((d) => Number.isInteger(d) && d >= 1)) {
     throw new InputError(InputCode.Shape, `shape must be [rows, cols] of positive integers, got ${JSON.stringify(shape)}`);
   }
@@ -81,7 +91,7 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   if (dtype !== 'f32' && dtype !== 'f64') throw new InputError(InputCode.Dtype, `dtype must be f32 or f64, got ${String(dtype)}`);
   const want = dtype === 'f32' ? Float32Array : Float64Array;
   const data = !withValues || values instanceof want ? (values as FloatArray) : want.from(values);
-  const tile = o.tile ?? 64;
+  const tile = o.tile ?? 'auto';
   const auto = tile === 'auto';
   if (!auto && typeof tile !== 'number' && !(Array.isArray(tile) && tile.length === 2)) {
     throw new InputError(InputCode.Option, `tile must be a number, [rows, cols] or 'auto', got ${JSON.stringify(tile)}`);
@@ -93,6 +103,11 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
     }
   }
   if (tr * tc > 1 << 20) throw new InputError(InputCode.Option, `tile ${tr}x${tc} holds more than ${1 << 20} cells`);
+  const ip = o.indexPage ?? [DEFAULT_PAGE[0], DEFAULT_PAGE[1]];
+  const page = typeof ip === 'number' ? [ip, ip] : ip;
+  if (!Array.isArray(page) || page.length !== 2 || !page.every((x) => Number.isInteger(x) && x >= 1 && x <= MAX_PAGE_SIDE)) {
+    throw new InputError(InputCode.Option, `indexPage must be a number or [rows, cols] of integers in 1..${MAX_PAGE_SIDE}, got ${JSON.stringify(ip)}`);
+  }
   const bound = typeof o.bound === 'string' ? parseBound(o.bound) : checkBound(o.bound ?? ({} as Bound));
   const fill = o.fill ?? null;
   if (fill !== null && typeof fill !== 'number') throw new InputError(InputCode.Option, `fill must be a number, got ${String(fill)}`);
@@ -100,7 +115,7 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   if (typeof name !== 'string' || name.length === 0 || name.length > 1024) throw new InputError(InputCode.Option, 'field name must be a non-empty string');
   const problem = o.attrs === undefined ? null : attrsProblem(o.attrs);
   if (problem) throw new InputError(InputCode.Option, `field '${name}': ${problem}`);
-  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices, progressive: o.progressive === true }, data };
+  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices, progressive: o.progressive === true }, data, page: [page[0], page[1]] };
 }
 
 /** Builds an archive field by field into a sink. */
@@ -109,6 +124,7 @@ export class ArchiveBuilder {
   private readonly fields: FieldHeader[] = [];
   private readonly indexes: FieldIndex[] = [];
   private finished = false;
+  private readonly pages: [number, number][] = [];
 
   constructor(sink: Sink, private readonly attrs: Attrs = {}, options: BuilderOptions = {}) {
     const problem = attrsProblem(attrs);
@@ -119,8 +135,8 @@ export class ArchiveBuilder {
   /** Encode and append one field held in memory (row-major). */
   add(values: FloatArray | number[], shape: readonly number[], o: PackOptions): FieldHeader {
     this.refuseAfterFinish(o.name);
-    const { spec, data } = options(values, shape, o);
-    return this.encode(memoryBands(data, spec.cols), spec, o);
+    const { spec, data, page } = options(values, shape, o);
+    return this.encode(memoryBands(data, spec.cols), spec, o, page);
   }
 
   /**
@@ -130,7 +146,7 @@ export class ArchiveBuilder {
    */
   addBands(band: (r0: number, count: number) => FloatArray, shape: readonly number[], dtype: Dtype, o: PackOptions): FieldHeader {
     this.refuseAfterFinish(o.name);
-    const { spec } = options(new Float32Array(0), shape, { ...o, dtype }, false);
+    const { spec, page } = options(new Float32Array(0), shape, { ...o, dtype }, false);
     const check: BandSource = {
       band: (r0, count) => {
         // Internal assertion: the rows are the encoder's own request, always within the
@@ -143,7 +159,7 @@ export class ArchiveBuilder {
         return b;
       },
     };
-    return this.encode(check, spec, o);
+    return this.encode(check, spec, o, page);
   }
 
   /** Refuse a field after finish(): appended after the tail, it would leave an archive that does not open. */
@@ -151,7 +167,7 @@ export class ArchiveBuilder {
     if (this.finished) throw new InputError(InputCode.Option, `field '${name ?? 'field'}' cannot be added: finish() has already written the archive's header, index and tail`);
   }
 
-  private encode(src: BandSource, spec: FieldSpec, o: PackOptions): FieldHeader {
+  private encode(src: BandSource, spec: FieldSpec, o: PackOptions, page: [number, number]): FieldHeader {
     if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
     const slices = spec.slices ?? 1;
     if (slices > 1 && !this.writer.requireFlags(FLAG_SLICES)) {
@@ -159,20 +175,43 @@ export class ArchiveBuilder {
     }
     // The trial samples the top of the first slice.
     if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 });
-    const ix: FieldIndex = { offset: [], length: [], crc: [], method: [], rank: [], valid: [], max_err: [], rmse: [], value_crc: [], summary: { valid: 0, max_err: 0, rmse: 0 } };
-    const result = encodeField(src, spec, (_t, tile) => {
-      const ref = this.writer.addPayload(tile.payload);
-      ix.offset.push(ref.offset);
-      ix.length.push(ref.length);
-      ix.crc.push(ref.crc);
-      ix.method.push(tile.stats.method);
-      ix.rank.push(tile.stats.rank);
-      ix.valid.push(tile.stats.valid);
-      ix.max_err.push(tile.stats.maxErr);
-      ix.rmse.push(tile.stats.rmse);
-      ix.value_crc.push(tile.stats.valueCrc);
-      (ix.prefix ??= []).push(tile.stats.prefix);
+    // Payloads are written page by page (spec/FORMAT.md, section 3): the tiles of one band of
+    // page rows are held (encoded) until the band is complete, then written page after page.
+    const grid = { shape: [spec.rows, spec.cols], tile: [spec.tileRows, spec.tileCols] };
+    const n = tileCount({ ...grid, slices });
+    const [gr, gc] = sliceGrid(grid);
+    const [, pc] = pageGrid(grid, page);
+    const column = () => new Array<number>(n).fill(0);
+    const ix: FieldIndex = { offset: column(), length: column(), crc: column(), method: column(), rank: column(), valid: column(), max_err: column(), rmse: column(), value_crc: column(), prefix: new Array<number[]>(n), summary: { valid: 0, max_err: 0, rmse: 0 } };
+    const held = new Map<number, EncodedTile>();
+    const result = encodeField(src, spec, (t, tile) => {
+      held.set(t, tile);
+      const s = Math.floor(t / (gr * gc));
+      const ti = Math.floor((t - s * gr * gc) / gc);
+      const tj = (t - s * gr * gc) % gc;
+      if (tj !== gc - 1 || (ti !== gr - 1 && (ti + 1) % page[0] !== 0)) return;
+      const [pr] = pageGrid(grid, page);
+      const pi = Math.floor(ti / page[0]);
+      for (let pj = 0; pj < pc; pj++) {
+        for (const u of pageTiles(grid, page, s * pr * pc + pi * pc + pj)) {
+          const e = held.get(u);
+          if (e === undefined) throw new Error(`tile ${u} was not encoded before the end of its band of pages`);
+          held.delete(u);
+          const ref = this.writer.addPayload(e.payload);
+          ix.offset[u] = ref.offset;
+          ix.length[u] = ref.length;
+          ix.crc[u] = ref.crc;
+          ix.method[u] = e.stats.method;
+          ix.rank[u] = e.stats.rank;
+          ix.valid[u] = e.stats.valid;
+          ix.max_err[u] = e.stats.maxErr;
+          ix.rmse[u] = e.stats.rmse;
+          ix.value_crc[u] = e.stats.valueCrc;
+          ix.prefix![u] = e.stats.prefix;
+        }
+      }
     });
+    if (held.size > 0) throw new Error(`${held.size} tiles were encoded but not written`);
     ix.summary = { valid: result.valid, max_err: result.maxErr, rmse: result.rmse };
     const header: FieldHeader = {
       name: spec.name,
@@ -190,6 +229,7 @@ export class ArchiveBuilder {
     if (o.ndShape !== undefined && (o.layout !== undefined || o.ndShape.length > 2)) header.layout = o.layout ?? 'slices';
     this.fields.push(header);
     this.indexes.push(ix);
+    this.pages.push(page);
     return header;
   }
 
@@ -198,7 +238,7 @@ export class ArchiveBuilder {
     if (this.finished) throw new InputError(InputCode.Option, 'finish() was already called: the archive is complete');
     this.finished = true;
     const header: ArchiveHeader = { format: 'rankfield', version: VERSION, writer: `rankfield ${VERSION_STRING}`, attrs: this.attrs, fields: this.fields };
-    this.writer.finish(header, { fields: this.indexes });
+    this.writer.finish(header, { fields: this.indexes }, this.pages);
   }
 }
 

@@ -32,11 +32,12 @@ Exit codes:
   0  every tile holds its bound and checksums (and matches ORIGINAL)
   1  the check failed: each failure is listed (field, tile, what)
   2  unusable input: IN cannot be read, is not an archive, or its tail,
-     header or index is truncated or corrupted (then no tile can be
-     located); ORIGINAL cannot be read or has the wrong shape or dtype;
-     bad options
-A damaged tile payload is a check failure (exit 1); damage to the tail,
-header or index is exit 2.`;
+     header or index directory is truncated or corrupted (then no tile
+     can be located); ORIGINAL cannot be read or has the wrong shape or
+     dtype; bad options
+A damaged tile payload, or a damaged index page (its tiles cannot be
+located), is a check failure (exit 1); damage to the tail,
+header or index directory is exit 2.`;
 
 /** Check that an original fits the field it is compared with. */
 function checkOriginal(path: string, shape: number[], dtype: Dtype, h: FieldHeader, archive: string): void {

@@ -97,7 +97,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .argument('<IN>', 'input: .npy (2-D float32/float64), or raw binary with --shape and --dtype')
     .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
     .requiredOption('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D', boundOption)
-    .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (tries several on a sample; default 64)', tileOption)
+    .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (default: 64, 128, 256 and the whole field tried on a sample, the smallest kept)', tileOption)
     .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound)', fillOption)
     .option('--name <NAME>', 'field name stored in the archive (default: IN without its extension)', nameOption)
     .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
@@ -148,7 +148,8 @@ export function registerPack(program: Command, ctx: Context): void {
       }
       // Only the tail, header and index are read back, for the figures of the summary.
       const archive = await openArchive(flags.output);
-      const { header: h, index: ix } = archive.field();
+      const { header: h, summary } = archive.field();
+      const ix = { summary };
       const size = archive.size;
       await archive.close();
       const elapsed = performance.now() - start;
@@ -199,7 +200,7 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   let raw = 0;
   const lines: string[] = [];
   for (const h of archive.header.fields) {
-    const { index: ix } = archive.field(h.name);
+    const ix = archive.field(h.name);
     const r = rawBytes(h);
     raw += r;
     const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);

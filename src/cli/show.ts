@@ -57,7 +57,7 @@ export interface ArchiveFacts {
   fields: FieldFacts[];
 }
 
-/** Gather the facts of an opened archive. */
+/** Gather the facts of an opened archive whose whole index is loaded ({@link Archive.loadIndex}). */
 export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
   const fields = archive.header.fields.map((h, i): FieldFacts => {
     const ix = archive.index.fields[i];
@@ -175,13 +175,14 @@ export function registerShow(program: Command, ctx: Context): void {
       'Describe an archive: per field its shape, dtype, tiles, bound and resolved tolerance E, compression ratio ' +
         '(raw value bytes / payload bytes; for the whole archive, raw value bytes / file size), bits per value, ' +
         'the ranks chosen per tile (exact tiles counted apart), and the max error and RMSE recorded at pack time.\n\n' +
-        'Only the tail, header and index are read (for a URL, with HTTP Range requests); use `rankfield check` to verify the tiles.',
+        'Only the tail, header and index (directory and pages) are read (for a URL, with HTTP Range requests); use `rankfield check` to verify the tiles.',
     )
     .argument('<IN>', 'archive to describe: a file or an http(s) URL')
     .option('--json', 'print one JSON object with the same facts')
     .action(async (input: string, flags: { json?: boolean }) => {
       const archive = await openArchive(input);
       try {
+        await archive.loadIndex();
         const facts = archiveFacts(archive, input);
         ctx.out(flags.json ? `${JSON.stringify(facts, null, 2)}\n` : factsText(facts));
       } finally {

@@ -32,26 +32,45 @@ export function tileCandidates(rows: number, cols: number): [number, number][] {
   return out;
 }
 
-/** The candidate tile shape that packs a sample of the field into the fewest bytes. */
+/** Tiles of one shape encoded per candidate; the trial extrapolates bytes per cell from them. */
+const TRIAL_TILES = 8;
+
+/**
+ * The candidate tile shape that packs a sample of the field into the fewest
+ * bytes per cell. The sample is the top of the field, centred across, at
+ * most 1024 x 1024; a candidate smaller than the sample is tried on
+ * TRIAL_TILES of its tiles spread over the sample (laid side by side as one
+ * small field), so the trial costs a few whole-sample encodings at most.
+ */
 export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
   const rows = Math.min(spec.rows, SAMPLE_SIDE);
   const cols = Math.min(spec.cols, SAMPLE_SIDE);
   const c0 = Math.floor((spec.cols - cols) / 2);
   const band = src.band(0, rows);
-  let sample: FloatArray = band;
-  if (cols < spec.cols) {
-    sample = spec.dtype === 'f32' ? new Float32Array(rows * cols) : new Float64Array(rows * cols);
-    for (let i = 0; i < rows; i++) sample.set(band.subarray(i * spec.cols + c0, i * spec.cols + c0 + cols), i * cols);
-  }
-  const sampleSrc: BandSource = { band: (r0, count) => sample.subarray(r0 * cols, (r0 + count) * cols) };
+  const make = (cells: number): FloatArray => (spec.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells));
+  const sample = make(rows * cols);
+  for (let i = 0; i < rows; i++) sample.set(band.subarray(i * spec.cols + c0, i * spec.cols + c0 + cols), i * cols);
   let best: [number, number] = [spec.tileRows, spec.tileCols];
-  let bestBytes = Infinity;
+  let bestRate = Infinity;
   for (const [tr, tc] of tileCandidates(spec.rows, spec.cols)) {
-    const trial: FieldSpec = { ...spec, rows, cols, tileRows: Math.min(tr, rows), tileCols: Math.min(tc, cols) };
+    const m = Math.min(tr, rows);
+    const n = Math.min(tc, cols);
+    const grid: [number, number][] = [];
+    for (let i = 0; i + m <= rows; i += m) for (let j = 0; j + n <= cols; j += n) grid.push([i, j]);
+    // Every tile, or TRIAL_TILES of them evenly spread, side by side in one row of tiles.
+    const picked = grid.length <= TRIAL_TILES ? grid : Array.from({ length: TRIAL_TILES }, (_, k) => grid[Math.floor(((k + 0.5) * grid.length) / TRIAL_TILES)]);
+    const width = picked.length * n;
+    const mosaic = make(m * width);
+    picked.forEach(([i0, j0], k) => {
+      for (let i = 0; i < m; i++) mosaic.set(sample.subarray((i0 + i) * cols + j0, (i0 + i) * cols + j0 + n), i * width + k * n);
+    });
+    const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
+    const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false };
     let bytes = 0;
-    encodeField(sampleSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
-    if (bytes < bestBytes) {
-      bestBytes = bytes;
+    encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
+    const rate = bytes / (m * width);
+    if (rate < bestRate) {
+      bestRate = rate;
       best = [tr, tc];
     }
   }

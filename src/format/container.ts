@@ -1,29 +1,31 @@
 /**
- * The container: prologue, tile payloads, header, index, tail
- * (spec/FORMAT.md). This module knows bytes, CRCs and the structure of the
- * header and index; it knows nothing of how tiles are coded.
+ * The container: prologue, tile payloads, header, index pages, index
+ * directory, tail (spec/FORMAT.md). This module knows bytes, CRCs and the
+ * structure of the header and index; it knows nothing of how tiles are coded.
  */
 import { Decoder, encode } from '@msgpack/msgpack';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
-import type { ByteSource } from './source.js';
-import { checkHeader, checkIndex, MAX_DEPTH, MAX_MAP_ENTRIES, quoteName, resolveLimits, type ArchiveHeader, type ArchiveIndex, type Limits } from './schema.js';
+import { readRanges, type ByteSource, type CoalesceOptions } from './source.js';
+import { checkDirectory, checkHeader, checkPage, checkSummary, MAX_DEPTH, MAX_MAP_ENTRIES, pageCount, pageOf, pageTiles, quoteName, resolveLimits, tileCount, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex } from './schema.js';
 
 /** Magic bytes that open every archive. */
 export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0a);
 /** Magic bytes that close every archive. */
 export const TAIL_MAGIC = Uint8Array.of(0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a);
 /** Format versions this reader understands. */
-export const VERSIONS = [1] as const;
+export const VERSIONS = [2] as const;
 /** Version written by this writer. */
-export const VERSION = 1;
+export const VERSION = 2;
 export const PROLOGUE_SIZE = 16;
 /** Required flag bit 0: some field stacks more than one slice (spec/FORMAT.md, "Required flags"). */
 export const FLAG_SLICES = 0x1;
 /** Required flags this reader understands. */
 export const KNOWN_FLAGS = FLAG_SLICES;
 export const TAIL_SIZE = 48;
+/** Tile rows and columns of one index page, unless a field asks for others: 64 tiles, about 2.5 KB of index. */
+export const DEFAULT_PAGE: readonly [number, number] = [8, 8];
 
 /** Receives archive bytes in order. */
 export interface Sink {
@@ -124,24 +126,55 @@ export class ContainerWriter {
     return ref;
   }
 
-  /** Write header, index and tail. */
-  finish(header: ArchiveHeader, index: ArchiveIndex): void {
+  /**
+   * Write the header, the index pages of every field, the index directory
+   * and the tail. `pages[i]` is the page shape ([tile rows, tile cols]) of
+   * field i; its payloads must have been added page by page, in page order
+   * (each page's tiles in its own order, see pageTiles), so that each
+   * page's payloads lie back to back.
+   */
+  finish(header: ArchiveHeader, index: ArchiveIndex, pages: readonly (readonly number[])[]): void {
     // Internal assertion: ArchiveBuilder.finish() refuses a second call first, so no input reaches this.
     if (this.finished) throw new Error('archive already finished');
     this.finished = true;
     const h = encode(headerForDisk(header));
     const headerOffset = this.pos;
     this.put(h);
-    const ix = encode(index);
-    const indexOffset = this.pos;
-    this.put(ix);
+    const fields: FieldDirectory[] = index.fields.map((ix, i) => {
+      const fh = header.fields[i];
+      const page: [number, number] = [pages[i][0], pages[i][1]];
+      const d: FieldDirectory = { page, page_offset: [], page_length: [], page_crc: [], data_offset: [], data_length: [], summary: ix.summary };
+      if (ix.offset.length !== tileCount(fh)) throw new Error(`field ${i} has ${ix.offset.length} tiles in its index, its header ${tileCount(fh)}`);
+      for (let p = 0; p < pageCount(fh, page); p++) {
+        const tiles = pageTiles(fh, page, p);
+        const block: Record<string, unknown> = {};
+        for (const c of PAGE_COLUMNS) block[c] = tiles.map((t) => ix[c][t]);
+        if (ix.prefix) block.prefix = tiles.map((t) => ix.prefix![t]);
+        let at = ix.offset[tiles[0]];
+        d.data_offset.push(at);
+        for (const t of tiles) {
+          if (ix.offset[t] !== at) throw new Error(`field ${i} tile ${t}: payloads were not added page by page (page ${p})`);
+          at += ix.length[t];
+        }
+        d.data_length.push(at - ix.offset[tiles[0]]);
+        const b = encode(block);
+        d.page_offset.push(this.pos);
+        d.page_length.push(b.length);
+        d.page_crc.push(crc32(b));
+        this.put(b);
+      }
+      return d;
+    });
+    const dir = encode({ fields } satisfies ArchiveDirectory);
+    const dirOffset = this.pos;
+    this.put(dir);
     const t = new ByteWriter(TAIL_SIZE);
     t.u64(headerOffset);
     t.u32(h.length);
     t.u32(crc32(h));
-    t.u64(indexOffset);
-    t.u32(ix.length);
-    t.u32(crc32(ix));
+    t.u64(dirOffset);
+    t.u32(dir.length);
+    t.u32(crc32(dir));
     t.u16(VERSION);
     t.u16(this.flags);
     t.u32(crc32(t.view8()));
@@ -149,6 +182,9 @@ export class ContainerWriter {
     this.put(t.finish());
   }
 }
+
+/** The columns of an index page, in the order the writer stores them. */
+const PAGE_COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc'] as const;
 
 /** The header as stored: fill values become 8-byte binary64 (so -0 and every bit survive MessagePack). */
 function headerForDisk(header: ArchiveHeader): unknown {
@@ -168,8 +204,9 @@ export interface Container {
   size: number;
   version: number;
   header: ArchiveHeader;
-  index: ArchiveIndex;
-  /** End of the payload region (start of header or index, whichever is first). */
+  /** The index directory: per field, its pages and payload runs, and its summary. */
+  directory: ArchiveDirectory;
+  /** End of the payload region (start of the first of header, index pages and directory). */
   payloadEnd: number;
   /** The limits the container was checked against (defaults merged with the caller's). */
   limits: Limits;
@@ -257,7 +294,7 @@ export function scanMessagePack(b: Uint8Array, what: string, label: string, limi
     else if (h === 0xde) (open = uint(at, 2)), (isMap = true);
     else if (h === 0xdf) (open = uint(at, 4)), (isMap = true);
     else if (h === 0xc1) bad(at, 'the unused type byte 0xc1');
-    else bad(at, `an extension type (byte 0x${h.toString(16)}), which version 1 does not use`);
+    else bad(at, `an extension type (byte 0x${h.toString(16)}), which this format does not use`);
     if (str >= 0) {
       if (str > limits.maxStringBytes) throw new FormatError(FormatCode.Limit, `${label}: ${what} string or binary of ${str} bytes at block offset ${at} exceeds the limit of ${limits.maxStringBytes}`);
       need(at, str, 'a string or binary value');
@@ -346,9 +383,9 @@ export async function readContainer(src: ByteSource, given?: Partial<Limits>): P
   const headerOffset = tail.u64('header offset');
   const headerLength = tail.u32('header length');
   const headerCrc = tail.u32('header CRC');
-  const indexOffset = tail.u64('index offset');
-  const indexLength = tail.u32('index length');
-  const indexCrc = tail.u32('index CRC');
+  const dirOffset = tail.u64('index directory offset');
+  const dirLength = tail.u32('index directory length');
+  const dirCrc = tail.u32('index directory CRC');
   const tailVersion = tail.u16('version');
   const tailFlags = tail.u16('flags');
   if (tailVersion !== version || tailFlags !== flags) {
@@ -357,28 +394,78 @@ export async function readContainer(src: ByteSource, given?: Partial<Limits>): P
   const end = size - TAIL_SIZE;
   for (const [what, off, len, max] of [
     ['header', headerOffset, headerLength, limits.maxHeaderBytes],
-    ['index', indexOffset, indexLength, limits.maxIndexBytes],
+    ['index directory', dirOffset, dirLength, limits.maxIndexBytes],
   ] as const) {
     if (off < PROLOGUE_SIZE || off + len > end) {
       throw new FormatError(FormatCode.Malformed, `${label}: ${what} at ${off}+${len} lies outside bytes ${PROLOGUE_SIZE}..${end}`);
     }
     if (len > max) throw new FormatError(FormatCode.Limit, `${label}: ${what} of ${len} bytes exceeds the limit of ${max}`);
   }
-  if (headerOffset < indexOffset + indexLength && indexOffset < headerOffset + headerLength) {
-    throw new FormatError(FormatCode.Malformed, `${label}: header (${headerOffset}+${headerLength}) and index (${indexOffset}+${indexLength}) overlap`);
+  if (headerOffset < dirOffset + dirLength && dirOffset < headerOffset + headerLength) {
+    throw new FormatError(FormatCode.Malformed, `${label}: header (${headerOffset}+${headerLength}) and index directory (${dirOffset}+${dirLength}) overlap`);
   }
   const hb = await src.read(headerOffset, headerLength);
   if (crc32(hb) !== headerCrc) throw new FormatError(FormatCode.Checksum, `${label}: header CRC-32 mismatch (header at offset ${headerOffset})`);
-  const header = checkHeader(decodeBlock(hb, `header (at offset ${headerOffset})`, label, limits), limits, label);
+  const header = checkHeader(decodeBlock(hb, `header (at offset ${headerOffset})`, label, limits), limits, label, version);
   const sliced = header.fields.find((f) => (f.slices ?? 1) > 1);
   if (sliced && (flags & FLAG_SLICES) === 0) {
     throw new FormatError(FormatCode.Malformed, `${label}: field ${quoteName(sliced.name)} holds ${sliced.slices} slices but required flag bit 0 (slices) is not set`);
   }
-  const ib = await src.read(indexOffset, indexLength);
-  if (crc32(ib) !== indexCrc) throw new FormatError(FormatCode.Checksum, `${label}: index CRC-32 mismatch (index at offset ${indexOffset})`);
-  const payloadEnd = Math.min(headerOffset, indexOffset);
-  const index = checkIndex(decodeBlock(ib, `index (at offset ${indexOffset})`, label, limits), header, PROLOGUE_SIZE, payloadEnd, limits, label);
-  return { size, version, header, index, payloadEnd, limits };
+  const db = await src.read(dirOffset, dirLength);
+  if (crc32(db) !== dirCrc) throw new FormatError(FormatCode.Checksum, `${label}: index directory CRC-32 mismatch (directory at offset ${dirOffset})`);
+  const bounds = { start: PROLOGUE_SIZE, end, header: { offset: headerOffset, length: headerLength }, directory: { offset: dirOffset, length: dirLength } };
+  const { directory, payloadEnd } = checkDirectory(decodeBlock(db, `index directory (at offset ${dirOffset})`, label, limits), header, bounds, limits, label);
+  return { size, version, header, directory, payloadEnd, limits };
+}
+
+/**
+ * Fetch, check and decode index pages `pages` of field `f` (merged reads, as
+ * for payloads). Each page's CRC-32 is checked against the directory before
+ * its bytes are decoded; a failure names the page and field.
+ */
+export async function readPages(src: ByteSource, c: Container, f: number, pages: readonly number[], options: CoalesceOptions = {}): Promise<PageIndex[]> {
+  const d = c.directory.fields[f];
+  const h = c.header.fields[f];
+  const ranges = pages.map((p) => {
+    if (!Number.isInteger(p) || p < 0 || p >= d.page_offset.length) throw new RangeError(`field ${f} has pages 0..${d.page_offset.length - 1}, not ${p}`);
+    return { offset: d.page_offset[p], length: d.page_length[p] };
+  });
+  const blocks = await readRanges(src, ranges, options);
+  return pages.map((p, i) => decodePage(blocks[i], c, f, p, src.label, h, d));
+}
+
+/** Check one fetched index page against the directory and decode it. */
+export function decodePage(bytes: Uint8Array, c: Container, f: number, p: number, label: string, h: FieldHeader = c.header.fields[f], d: FieldDirectory = c.directory.fields[f]): PageIndex {
+  const what = `index page ${p} of field ${quoteName(h.name)} (at offset ${d.page_offset[p]})`;
+  if (crc32(bytes) !== d.page_crc[p]) throw new FormatError(FormatCode.Checksum, `${label}: ${what}: CRC-32 mismatch`);
+  return checkPage(decodeBlock(bytes, what, label, c.limits), h, d, p, c.limits, label);
+}
+
+/**
+ * The whole index of field f from all its pages (in page order), in tile
+ * order, with the field summary checked against the tiles.
+ */
+export function joinPages(c: Container, f: number, pages: readonly PageIndex[], label: string): FieldIndex {
+  const h = c.header.fields[f];
+  const d = c.directory.fields[f];
+  const n = tileCount(h);
+  const cols = { offset: new Array<number>(n), length: new Array<number>(n), crc: new Array<number>(n), method: new Array<number>(n), rank: new Array<number>(n), valid: new Array<number>(n), max_err: new Array<number>(n), rmse: new Array<number>(n), value_crc: new Array<number>(n) };
+  const prefix: number[][] | undefined = pages.some((pg) => pg.prefix) ? new Array<number[]>(n) : undefined;
+  for (const pg of pages) {
+    pg.tiles.forEach((t, k) => {
+      for (const c2 of PAGE_COLUMNS) cols[c2][t] = pg[c2][k];
+      if (prefix) prefix[t] = pg.prefix?.[k] ?? [];
+    });
+  }
+  checkSummary(d, cols.valid, cols.max_err, `${label} index of field ${quoteName(h.name)}`);
+  const out: FieldIndex = { ...cols, summary: d.summary };
+  if (prefix) out.prefix = prefix;
+  return out;
+}
+
+/** Where tile t of field f is described: its index page and position there. */
+export function tilePage(c: Container, f: number, t: number): { p: number; k: number } {
+  return pageOf(c.header.fields[f], c.directory.fields[f].page, t);
 }
 
 /** Refuse versions and required flags this reader does not know. */

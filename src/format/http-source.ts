@@ -11,9 +11,15 @@
  * 5xx answers are retried a bounded number of times. A server that ignores
  * Range (answers 200 with the whole body) is used as a whole-file fallback
  * held in memory when the file is small; otherwise it is refused.
+ *
+ * Several ranges ({@link HttpSource.readMany}) go in one request with a
+ * multi-range `Range` header, answered as `multipart/byteranges` (RFC 9110,
+ * section 14.6). A server that answers such a request otherwise (200, one
+ * range not covering them all, no answer) is asked one range per request
+ * from then on.
  */
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
-import type { ByteSource } from './source.js';
+import type { ByteRange, ByteSource } from './source.js';
 
 /** Options of {@link HttpSource}. */
 export interface HttpSourceOptions {
@@ -34,6 +40,12 @@ export interface HttpSourceOptions {
   maxWholeFile?: number;
   /** Name of the source in messages; default the URL. */
   label?: string;
+  /**
+   * Ask for several ranges in one request (multipart/byteranges answer)
+   * when a read needs several. Default true; a server found not to support
+   * it is asked one range per request.
+   */
+  multiRange?: boolean;
 }
 
 /** Default {@link HttpSourceOptions.maxWholeFile}: 64 MiB. */
@@ -86,6 +98,10 @@ export class HttpSource implements ByteSource {
   private remote: Promise<Remote> | null = null;
   /** The whole file, when the server ignores Range and the file is small. */
   private whole: Uint8Array | null = null;
+  /** Whether several ranges may go in one request (false once the server is seen not to support it). */
+  multiRange: boolean;
+  /** Multi-range requests that failed in a row without an answer. */
+  private multiFailures = 0;
   /** Per response in flight: restarts its time limit when body bytes arrive. */
   private readonly progress = new WeakMap<Response, () => void>();
 
@@ -116,6 +132,8 @@ export class HttpSource implements ByteSource {
     this.retryDelay = count(options.retryDelay, 250, 'retryDelay');
     this.timeout = count(options.timeout, 30_000, 'timeout');
     this.maxWholeFile = count(options.maxWholeFile, DEFAULT_MAX_WHOLE_FILE, 'maxWholeFile');
+    if (options.multiRange !== undefined && typeof options.multiRange !== 'boolean') throw new InputError(InputCode.Option, `multiRange must be true or false, got ${String(options.multiRange)}`);
+    this.multiRange = options.multiRange ?? true;
   }
 
   /** Size of the file, learnt by the first request (a ranged GET of byte 0). */
@@ -140,6 +158,117 @@ export class HttpSource implements ByteSource {
     if (this.whole !== null) return this.whole.subarray(offset, offset + length);
     if (length === 0) return new Uint8Array(0);
     return this.attempts(`read bytes ${offset}..${offset + length} of`, () => this.fetchRange(offset, length));
+  }
+
+  /**
+   * The bytes of several ranges, asked for in one request when the server
+   * answers multi-range requests; otherwise (or when that request fails in
+   * any way other than showing the file changed) one request per range,
+   * each with its own retries.
+   */
+  async readMany(ranges: readonly ByteRange[]): Promise<Uint8Array[]> {
+    for (const { offset, length } of ranges) {
+      if (!Number.isSafeInteger(offset) || !Number.isSafeInteger(length) || offset < 0 || length < 0) {
+        throw new FormatError(FormatCode.Malformed, `${this.label}: byte range ${offset}+${length} is not a pair of non-negative integers`);
+      }
+    }
+    const size = await this.size();
+    for (const { offset, length } of ranges) {
+      if (offset + length > size) throw new FormatError(FormatCode.Truncated, `${this.label}: bytes ${offset}..${offset + length} lie beyond its ${size} bytes`);
+    }
+    const one = () => Promise.all(ranges.map((r) => this.read(r.offset, r.length)));
+    if (this.whole !== null || !this.multiRange || ranges.filter((r) => r.length > 0).length < 2) return one();
+    const changed: { error: FormatError | null } = { error: null };
+    try {
+      const got = await this.fetchRanges(ranges, changed);
+      if (got !== null) {
+        this.multiFailures = 0;
+        return got;
+      }
+      this.multiRange = false;
+    } catch (e) {
+      if (changed.error !== null) throw changed.error;
+      // An answer that breaks the multipart syntax: this server is asked one range per request from now on.
+      if (e instanceof FormatError) this.multiRange = false;
+      // Otherwise (a dropped connection, a time-out, a browser refusing the request across origins)
+      // these ranges go one by one, and after a second such failure in a row all later ones too.
+      else if (++this.multiFailures >= 2) this.multiRange = false;
+    }
+    return one();
+  }
+
+  /**
+   * One GET for several ranges. Returns their bytes, or null when the server
+   * does not answer multi-range requests usefully (200, another status, or
+   * parts that do not cover every range). Sets `changed.error` (and throws
+   * it) when the answer shows the file changed since it was opened.
+   */
+  private async fetchRanges(ranges: readonly ByteRange[], changed: { error: FormatError | null }): Promise<Uint8Array[] | null> {
+    const remote = await this.size().then(() => this.remote!);
+    const asked = ranges.filter((r) => r.length > 0);
+    const header = `bytes=${asked.map((r) => `${r.offset}-${r.offset + r.length - 1}`).join(',')}`;
+    const wanted = asked.reduce((a, r) => a + r.length, 0);
+    // Room for the part headers (about 100 bytes each) and the delimiters.
+    const limit = wanted + 512 * asked.length + 4096;
+    let parts: { start: number; bytes: Uint8Array }[] | null = null;
+    // As for one range: a changed size is `truncated`, a changed ETag or Last-Modified `malformed`.
+    const changedNow = (message: string, code: FormatCode = FormatCode.Truncated): never => {
+      changed.error = new FormatError(code, `${this.label}: ${message}`);
+      throw changed.error;
+    };
+    await this.request('GET', header, async (r) => {
+      if (r.status !== 206) {
+        await r.body?.cancel().catch(() => undefined);
+        return;
+      }
+      this.identity(r);
+      const etag = r.headers.get('etag');
+      const modified = r.headers.get('last-modified');
+      if ((remote.etag !== null && etag !== null && etag !== remote.etag) || (remote.lastModified !== null && modified !== null && modified !== remote.lastModified)) {
+        await r.body?.cancel().catch(() => undefined);
+        changedNow('the file changed on the server while being read (ETag or Last-Modified differ from when it was opened)', FormatCode.Malformed);
+      }
+      const type = r.headers.get('content-type') ?? '';
+      const m = /^\s*multipart\/byteranges\s*;(?:.*;)?\s*boundary=(?:"([^"]{1,70})"|([^\s;"]{1,70}))/i.exec(type);
+      if (m) {
+        const declared = r.headers.get('content-length');
+        const n = declared !== null && /^\s*\d+\s*$/.test(declared) ? Number(declared) : null;
+        if (n !== null && n > limit) {
+          await r.body?.cancel().catch(() => undefined);
+          return;
+        }
+        const { bytes, complete } = await this.collect(r, n, limit);
+        if (!complete) throw new Transient(`short body: ${bytes.length} of ${n} bytes of a multi-range answer arrived`);
+        parts = parseByteranges(bytes, m[1] ?? m[2], this.label);
+      } else {
+        const cr = this.contentRange(r);
+        const length = cr.end - cr.start + 1;
+        if (cr.end < cr.start || length > limit) {
+          await r.body?.cancel().catch(() => undefined);
+          return;
+        }
+        parts = [{ start: cr.start, total: cr.total, bytes: await this.body(r, length) }].map((p) => {
+          if (p.total !== null && p.total !== remote.size) changedNow(`the file is now ${p.total} bytes, it was ${remote.size} when opened (changed on the server while being read)`);
+          return p;
+        });
+      }
+    });
+    if (parts === null) return null;
+    const got: { start: number; bytes: Uint8Array }[] = parts;
+    for (const p of got as { start: number; bytes: Uint8Array; total?: number | null }[]) {
+      if (p.total !== undefined && p.total !== null && p.total !== remote.size) changedNow(`the file is now ${p.total} bytes, it was ${remote.size} when opened (changed on the server while being read)`);
+    }
+    const out: Uint8Array[] = [];
+    for (const r of ranges) {
+      if (r.length === 0) {
+        out.push(new Uint8Array(0));
+        continue;
+      }
+      const part = got.find((p) => p.start <= r.offset && r.offset + r.length <= p.start + p.bytes.length);
+      if (part === undefined) return null;
+      out.push(part.bytes.subarray(r.offset - part.start, r.offset - part.start + r.length));
+    }
+    return out;
   }
 
   /** Run `once` with retries on transient failures; other errors pass at once. */
@@ -377,4 +506,55 @@ export class HttpSource implements ByteSource {
   async close(): Promise<void> {
     this.whole = null;
   }
+}
+
+const latin1 = new TextDecoder('latin1');
+
+/**
+ * The parts of a multipart/byteranges body (RFC 9110 section 14.6, with the
+ * delimiter syntax of RFC 2046 section 5.1.1): each part's start and bytes,
+ * taken by the length its Content-Range states (so part bytes that happen
+ * to look like a delimiter do no harm). Throws a FormatError on a body that
+ * does not follow the syntax.
+ */
+export function parseByteranges(body: Uint8Array, boundary: string, label: string): { start: number; total: number | null; bytes: Uint8Array }[] {
+  const bad = (what: string): never => {
+    throw new FormatError(FormatCode.Malformed, `${label}: a multipart/byteranges answer ${what}`);
+  };
+  const delim = new TextEncoder().encode(`--${boundary}`);
+  const at = (pos: number, pattern: Uint8Array) => pos + pattern.length <= body.length && pattern.every((b, i) => body[pos + i] === b);
+  const find = (from: number, pattern: Uint8Array): number => {
+    for (let i = from; i + pattern.length <= body.length; i++) if (at(i, pattern)) return i;
+    return -1;
+  };
+  const crlf = Uint8Array.of(13, 10);
+  const blank = Uint8Array.of(13, 10, 13, 10);
+  const out: { start: number; total: number | null; bytes: Uint8Array }[] = [];
+  // The preamble (usually empty) ends at the first delimiter.
+  let pos = find(0, delim);
+  if (pos < 0) bad('has no delimiter');
+  for (;;) {
+    pos += delim.length;
+    if (at(pos, Uint8Array.of(45, 45))) break; // the close delimiter
+    // Transport padding (spaces, tabs), then CRLF.
+    while (body[pos] === 32 || body[pos] === 9) pos++;
+    if (!at(pos, crlf)) bad('has a delimiter not followed by a line end');
+    const headEnd = find(pos, blank);
+    if (headEnd < 0 || headEnd - pos > 8192) bad('has a part whose headers do not end');
+    const lines = latin1.decode(body.subarray(pos + 2, headEnd)).split('\r\n');
+    const range = lines.map((l) => /^content-range\s*:\s*bytes\s+(\d+)-(\d+)\/(\d+|\*)\s*$/i.exec(l)).find((x) => x !== null);
+    if (!range) bad('has a part without a usable Content-Range');
+    const start = Number(range![1]);
+    const end = Number(range![2]);
+    if (!Number.isSafeInteger(start) || !Number.isSafeInteger(end) || end < start) bad(`has a part with Content-Range bytes ${range![1]}-${range![2]}`);
+    const from = headEnd + 4;
+    const to = from + (end - start + 1);
+    if (to > body.length) bad(`ends inside the part of bytes ${start}-${end}`);
+    out.push({ start, total: range![3] === '*' ? null : Number(range![3]), bytes: body.subarray(from, to) });
+    // CRLF, then the next delimiter.
+    if (!at(to, crlf) || !at(to + 2, delim)) bad(`has no delimiter after the part of bytes ${start}-${end}`);
+    pos = to + 2;
+    if (out.length > 100_000) bad('has too many parts');
+  }
+  return out;
 }

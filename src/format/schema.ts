@@ -124,6 +124,46 @@ export interface ArchiveIndex {
 }
 
 /**
+ * One field in the index directory (version 2): the page grid, where each
+ * index page is with its CRC-32, the payload bytes of each page's tiles, and
+ * the whole-field figures (spec/FORMAT.md, section 7).
+ */
+export interface FieldDirectory {
+  /** [tile rows, tile columns] of one page. */
+  page: [number, number];
+  /** Per page, in page order: file offset, length and CRC-32 of the page block. */
+  page_offset: number[];
+  page_length: number[];
+  page_crc: number[];
+  /** Per page: file offset and length of the payloads of its tiles, which lie back to back. */
+  data_offset: number[];
+  data_length: number[];
+  /** Whole-field figures achieved at encode time. */
+  summary: { valid: number; max_err: number; rmse: number };
+}
+
+/** The index directory: the small top level of the paged index. */
+export interface ArchiveDirectory {
+  fields: FieldDirectory[];
+}
+
+/** The tiles of one index page, as parallel columns in the page's tile order. */
+export interface PageIndex {
+  /** Field tile numbers of the page's tiles, in page order (not stored: follows from the grid). */
+  tiles: number[];
+  offset: number[];
+  length: number[];
+  crc: number[];
+  method: number[];
+  rank: number[];
+  valid: number[];
+  max_err: number[];
+  rmse: number[];
+  value_crc: number[];
+  prefix?: number[][];
+}
+
+/**
  * Reader limits: declared sizes beyond these are refused (FormatError code
  * `limit`) before anything is allocated. Every limit is an option of
  * `open()`; see {@link DEFAULT_LIMITS} and spec/FORMAT.md, section 14.
@@ -131,7 +171,7 @@ export interface ArchiveIndex {
 export interface Limits {
   /** Bytes of the header block. */
   maxHeaderBytes: number;
-  /** Bytes of the index block. */
+  /** Bytes of the index directory, and of each index page. */
   maxIndexBytes: number;
   /** Fields of one archive. */
   maxFields: number;
@@ -268,7 +308,7 @@ function checkFill(f: Obj, where: string): number | null {
 }
 
 /** Validate a decoded header. */
-export function checkHeader(raw: unknown, limits: Limits, label: string): ArchiveHeader {
+export function checkHeader(raw: unknown, limits: Limits, label: string, version = 2): ArchiveHeader {
   if (!isObj(raw)) fail(label, `header is ${describeValue(raw)}, not a map`);
   if (raw.format !== 'rankfield') fail(label, `header format is ${describeValue(raw.format)}, not "rankfield"`);
   // The header's `version` key is not examined (spec 6.1): the prologue and tail are authoritative.
@@ -327,7 +367,7 @@ export function checkHeader(raw: unknown, limits: Limits, label: string): Archiv
     return out;
   });
   const writer = typeof raw.writer === 'string' ? raw.writer : 'unknown';
-  return { format: 'rankfield', version: 1, writer, attrs: checkAttrs(raw.attrs, `${label} header`), fields };
+  return { format: 'rankfield', version, writer, attrs: checkAttrs(raw.attrs, `${label} header`), fields };
 }
 
 /** Tiles of one slice of a field: [tile rows, tile columns]. */
@@ -360,117 +400,229 @@ export function tileShape(h: Pick<FieldHeader, 'shape' | 'tile'>, t: number): [n
 
 const COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc'] as const;
 
-/** Validate a decoded index against its header and the payload region [start, end). */
-export function checkIndex(raw: unknown, header: ArchiveHeader, start: number, end: number, limits: Limits, label: string): ArchiveIndex {
-  if (!isObj(raw) || !Array.isArray(raw.fields)) fail(label, 'index is not a map with a fields list');
-  if (raw.fields.length !== header.fields.length) fail(label, `index lists ${raw.fields.length} fields, header ${header.fields.length}`);
-  const fields = raw.fields.map((f: unknown, i: number): FieldIndex => checkFieldIndex(f, header.fields[i], start, end, limits, label));
-  checkNoOverlap(fields, header, label);
-  return { fields };
+/** Index pages of one slice of a field: [page rows, page columns], for pages of `page` = [tile rows, tile cols]. */
+export function pageGrid(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[]): [number, number] {
+  const [gr, gc] = sliceGrid(h);
+  return [Math.ceil(gr / page[0]), Math.ceil(gc / page[1])];
 }
 
-function checkFieldIndex(f: unknown, h: FieldHeader, start: number, end: number, limits: Limits, label: string): FieldIndex {
-  const where = `${label} index of field ${quoteName(h.name)}`;
-  if (!isObj(f)) fail(where, `is ${describeValue(f)}, not a map`);
-  const tiles = tileCount(h);
+/** Total index pages of a field: slices x pages per slice. */
+export function pageCount(h: Pick<FieldHeader, 'shape' | 'tile' | 'slices'>, page: readonly number[]): number {
+  const [pr, pc] = pageGrid(h, page);
+  return (h.slices ?? 1) * pr * pc;
+}
+
+/**
+ * The field tile numbers of index page p, in page order: the page's tile
+ * rows top to bottom, each left to right (pages never cross slices; edge
+ * pages hold fewer tiles).
+ */
+export function pageTiles(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[], p: number): number[] {
+  const [gr, gc] = sliceGrid(h);
+  const [pr, pc] = pageGrid(h, page);
+  const s = Math.floor(p / (pr * pc));
+  const local = p - s * pr * pc;
+  const pi = Math.floor(local / pc);
+  const pj = local % pc;
+  const out: number[] = [];
+  for (let ti = pi * page[0]; ti < Math.min(gr, (pi + 1) * page[0]); ti++) {
+    for (let tj = pj * page[1]; tj < Math.min(gc, (pj + 1) * page[1]); tj++) out.push(s * gr * gc + ti * gc + tj);
+  }
+  return out;
+}
+
+/** Which index page holds tile t, and its position k in that page. */
+export function pageOf(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[], t: number): { p: number; k: number } {
+  const [gr, gc] = sliceGrid(h);
+  const [pr, pc] = pageGrid(h, page);
+  const s = Math.floor(t / (gr * gc));
+  const local = t - s * gr * gc;
+  const ti = Math.floor(local / gc);
+  const tj = local % gc;
+  const pi = Math.floor(ti / page[0]);
+  const pj = Math.floor(tj / page[1]);
+  const width = Math.min(gc, (pj + 1) * page[1]) - pj * page[1];
+  return { p: s * pr * pc + pi * pc + pj, k: (ti - pi * page[0]) * width + (tj - pj * page[1]) };
+}
+
+/** Where the index blocks are, for the checks of the directory. */
+export interface BlockBounds {
+  /** First byte after the prologue (16). */
+  start: number;
+  /** First byte of the tail. */
+  end: number;
+  header: { offset: number; length: number };
+  directory: { offset: number; length: number };
+}
+
+const DIRECTORY_COLUMNS = ['page_offset', 'page_length', 'page_crc', 'data_offset', 'data_length'] as const;
+
+/**
+ * Validate a decoded index directory against its header and the block
+ * positions: the page grid of each field, its pages (inside the file, after
+ * every payload, clear of the header, the directory and each other, in
+ * order) and its payload runs (inside the payload region, in order, none
+ * overlapping another). Returns the directory and the end of the payload
+ * region.
+ */
+export function checkDirectory(raw: unknown, header: ArchiveHeader, b: BlockBounds, limits: Limits, label: string): { directory: ArchiveDirectory; payloadEnd: number } {
+  if (!isObj(raw) || !Array.isArray(raw.fields)) fail(label, 'index directory is not a map with a fields list');
+  if (raw.fields.length !== header.fields.length) fail(label, `index directory lists ${raw.fields.length} fields, header ${header.fields.length}`);
+  const fields = raw.fields.map((f: unknown, i: number): FieldDirectory => {
+    const h = header.fields[i];
+    const where = `${label} index directory of field ${quoteName(h.name)}`;
+    if (!isObj(f)) fail(where, `is ${describeValue(f)}, not a map`);
+    if (!Array.isArray(f.page) || f.page.length !== 2) fail(where, `page must be [tile rows, tile cols], got ${describeValue(f.page)}`);
+    const page: [number, number] = [posInt(f.page[0], where, 'page tile rows'), posInt(f.page[1], where, 'page tile cols')];
+    const pages = pageCount(h, page);
+    const cols = DIRECTORY_COLUMNS.map((c) => {
+      const col = f[c];
+      if (!Array.isArray(col) || col.length !== pages) fail(where, `column '${c}' must list ${pages} pages, got ${describeValue(col)}`);
+      for (let p = 0; p < pages; p++) {
+        const v = col[p];
+        if (typeof v !== 'number' || !Number.isSafeInteger(v) || v < 0) fail(where, `column '${c}' page ${p} holds ${describeValue(v)}, not an integer >= 0`);
+      }
+      return col as number[];
+    });
+    const [pageOffset, pageLength, pageCrc, dataOffset, dataLength] = cols;
+    for (let p = 0; p < pages; p++) {
+      if (pageCrc[p] > 0xffffffff) fail(where, `page ${p} crc ${pageCrc[p]} is not a 32-bit value`);
+      if (pageLength[p] < 1) fail(where, `page ${p} has length 0`);
+      if (pageLength[p] > limits.maxIndexBytes) throw new FormatError(FormatCode.Limit, `${where}: page ${p} of ${pageLength[p]} bytes exceeds the limit of ${limits.maxIndexBytes}`);
+      const n = pageTileCount(h, page, p);
+      if (dataLength[p] < 2 * n) fail(where, `page ${p} payload run of ${dataLength[p]} bytes cannot hold its ${n} tiles (2 bytes at least each)`);
+    }
+    const s = f.summary;
+    if (!isObj(s)) fail(where, `summary is ${describeValue(s)}, not a map`);
+    if (typeof s.valid !== 'number' || !Number.isSafeInteger(s.valid) || s.valid < 0) fail(where, `summary valid must be an integer >= 0, got ${describeValue(s.valid)}`);
+    for (const k of ['max_err', 'rmse'] as const) {
+      const x = s[k];
+      if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) fail(where, `summary ${k} must be a finite number >= 0, got ${describeValue(x)}`);
+      if (s.valid === 0 && x !== 0) fail(where, `summary ${k} is ${x} but the field has no valid cell`);
+    }
+    return { page, page_offset: pageOffset, page_length: pageLength, page_crc: pageCrc, data_offset: dataOffset, data_length: dataLength, summary: { valid: s.valid as number, max_err: s.max_err as number, rmse: s.rmse as number } };
+  });
+  // Pages: in order, each clear of the header, the directory and the page before it, inside the file.
+  let payloadEnd = Math.min(b.header.offset, b.directory.offset);
+  let prev = b.start;
+  const clash = (o: number, l: number, x: { offset: number; length: number }) => o < x.offset + x.length && x.offset < o + l;
+  fields.forEach((f, i) => {
+    const where = `${label} index directory of field ${quoteName(header.fields[i].name)}`;
+    for (let p = 0; p < f.page_offset.length; p++) {
+      const o = f.page_offset[p];
+      const l = f.page_length[p];
+      if (o < prev || o + l > b.end) fail(where, `page ${p} at ${o}+${l} is not after the page before it within bytes ${prev}..${b.end}`);
+      if (clash(o, l, b.header) || clash(o, l, b.directory)) fail(where, `page ${p} at ${o}+${l} overlaps the header or the index directory`);
+      prev = o + l;
+      payloadEnd = Math.min(payloadEnd, o);
+    }
+  });
+  // Payload runs: in order, none overlapping another, all before the first block.
+  let after = b.start;
+  fields.forEach((f, i) => {
+    const where = `${label} index directory of field ${quoteName(header.fields[i].name)}`;
+    for (let p = 0; p < f.data_offset.length; p++) {
+      const o = f.data_offset[p];
+      const l = f.data_length[p];
+      if (o < after || o + l > payloadEnd) fail(where, `page ${p} payload run ${o}+${l} is not after the run before it within the payload bytes ${after}..${payloadEnd}`);
+      after = o + l;
+    }
+  });
+  return { directory: { fields }, payloadEnd };
+}
+
+/** Tiles of index page p (edge pages hold fewer). */
+export function pageTileCount(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[], p: number): number {
+  const [gr, gc] = sliceGrid(h);
+  const [pr, pc] = pageGrid(h, page);
+  const local = p % (pr * pc);
+  const pi = Math.floor(local / pc);
+  const pj = local % pc;
+  return (Math.min(gr, (pi + 1) * page[0]) - pi * page[0]) * (Math.min(gc, (pj + 1) * page[1]) - pj * page[1]);
+}
+
+/**
+ * Validate a decoded index page (page p of field h): nine columns of the
+ * page's tile count, each tile's figures possible for its shape, and the
+ * payloads back to back in page order, filling exactly the page's payload
+ * run from the directory (so no two tiles anywhere share a byte).
+ */
+export function checkPage(raw: unknown, h: FieldHeader, d: FieldDirectory, p: number, limits: Limits, label: string): PageIndex {
+  const where = `${label} index page ${p} of field ${quoteName(h.name)}`;
+  if (!isObj(raw)) fail(where, `is ${describeValue(raw)}, not a map`);
+  const f = raw;
+  const tiles = pageTiles(h, d.page, p);
+  const n = tiles.length;
   for (const c of COLUMNS) {
     const col = f[c];
-    if (!Array.isArray(col) || col.length !== tiles) fail(where, `column '${c}' must list ${tiles} tiles, got ${describeValue(col)}`);
-    for (let t = 0; t < tiles; t++) {
-      const v = col[t];
-      if (typeof v !== 'number' || Number.isNaN(v)) fail(where, `column '${c}' tile ${t} holds ${describeValue(v)}, not a number`);
+    if (!Array.isArray(col) || col.length !== n) fail(where, `column '${c}' must list ${n} tiles, got ${describeValue(col)}`);
+    for (let k = 0; k < n; k++) {
+      const v = col[k];
+      if (typeof v !== 'number' || Number.isNaN(v)) fail(where, `column '${c}' tile ${tiles[k]} holds ${describeValue(v)}, not a number`);
     }
   }
   const col = (c: (typeof COLUMNS)[number]) => f[c] as number[];
   const [offset, length, crc, method, rank, valid, maxErr, rmse, valueCrc] = COLUMNS.map(col);
-  let validSum = 0;
-  let maxErrMax = 0;
-  for (let t = 0; t < tiles; t++) {
-    const off = offset[t];
-    const len = length[t];
-    if (!Number.isInteger(off) || !Number.isInteger(len) || off < start || len < 2 || off + len > end) {
-      fail(where, `tile ${t} payload ${off}+${len} lies outside the payload bytes ${start}..${end}`);
-    }
-    if (!Number.isInteger(crc[t]) || crc[t] < 0 || crc[t] > 0xffffffff) fail(where, `tile ${t} crc ${crc[t]} is not a 32-bit value`);
-    if (!Number.isInteger(valueCrc[t]) || valueCrc[t] < 0 || valueCrc[t] > 0xffffffff) fail(where, `tile ${t} value_crc ${valueCrc[t]} is not a 32-bit value`);
-    const [m, n] = tileShape(h, t);
-    if (method[t] !== 0 && method[t] !== 1) fail(where, `tile ${t} method ${method[t]} is not 0 or 1`);
-    const r = rank[t];
-    if (!Number.isInteger(r) || r < 0 || r > Math.min(m, n) || (method[t] === 0 && r !== 0)) fail(where, `tile ${t} rank ${r} is impossible for a method ${method[t]} ${m}x${n} tile`);
+  let at = d.data_offset[p];
+  for (let k = 0; k < n; k++) {
+    const t = tiles[k];
+    const off = offset[k];
+    const len = length[k];
+    if (!Number.isInteger(len) || len < 2) fail(where, `tile ${t} payload length ${len} is not an integer >= 2`);
+    if (off !== at) fail(where, `tile ${t} payload at ${off} does not follow the payload before it (expected ${at}: a page's payloads lie back to back from the run the directory gives)`);
+    at += len;
+    if (!Number.isInteger(crc[k]) || crc[k] < 0 || crc[k] > 0xffffffff) fail(where, `tile ${t} crc ${crc[k]} is not a 32-bit value`);
+    if (!Number.isInteger(valueCrc[k]) || valueCrc[k] < 0 || valueCrc[k] > 0xffffffff) fail(where, `tile ${t} value_crc ${valueCrc[k]} is not a 32-bit value`);
+    const [m, nn] = tileShape(h, t);
+    if (method[k] !== 0 && method[k] !== 1) fail(where, `tile ${t} method ${method[k]} is not 0 or 1`);
+    const r = rank[k];
+    if (!Number.isInteger(r) || r < 0 || r > Math.min(m, nn) || (method[k] === 0 && r !== 0)) fail(where, `tile ${t} rank ${r} is impossible for a method ${method[k]} ${m}x${nn} tile`);
     if (r > limits.maxRank) throw new FormatError(FormatCode.Limit, `${where}: tile ${t} rank ${r} exceeds the limit of ${limits.maxRank}`);
-    const v = valid[t];
-    if (!Number.isInteger(v) || v < 0 || v > m * n) fail(where, `tile ${t} valid count ${v} is impossible for a ${m}x${n} tile`);
-    for (const [name, x] of [['max_err', maxErr[t]], ['rmse', rmse[t]]] as const) {
+    const v = valid[k];
+    if (!Number.isInteger(v) || v < 0 || v > m * nn) fail(where, `tile ${t} valid count ${v} is impossible for a ${m}x${nn} tile`);
+    for (const [name, x] of [['max_err', maxErr[k]], ['rmse', rmse[k]]] as const) {
       if (!(x >= 0) || !Number.isFinite(x)) fail(where, `tile ${t} ${name} ${x} is not a finite number >= 0`);
       if (v === 0 && x !== 0) fail(where, `tile ${t} has no valid cell but a ${name} of ${x}`);
     }
-    validSum += v;
-    if (maxErr[t] > maxErrMax) maxErrMax = maxErr[t];
   }
-  const s = f.summary;
-  if (!isObj(s)) fail(where, `summary is ${describeValue(s)}, not a map`);
-  if (typeof s.valid !== 'number' || typeof s.max_err !== 'number' || typeof s.rmse !== 'number') fail(where, 'summary must hold numbers valid, max_err and rmse');
-  if (s.valid !== validSum) fail(where, `summary valid count ${s.valid} is not the sum ${validSum} of the tiles' counts`);
-  if (s.max_err !== maxErrMax) fail(where, `summary max_err ${s.max_err} is not the largest tile max_err ${maxErrMax}`);
-  if (!(s.rmse >= 0) || !Number.isFinite(s.rmse) || (validSum === 0 && s.rmse !== 0)) fail(where, `summary rmse ${s.rmse} is not a finite number >= 0 (0 without valid cells)`);
-  const out: FieldIndex = { offset, length, crc, method, rank, valid, max_err: maxErr, rmse, value_crc: valueCrc, summary: { valid: s.valid, max_err: s.max_err, rmse: s.rmse } };
-  if (f.prefix !== undefined) out.prefix = checkPrefixes(f.prefix, out, where);
+  if (at !== d.data_offset[p] + d.data_length[p]) fail(where, `its payloads end at ${at}, the directory's payload run at ${d.data_offset[p] + d.data_length[p]}`);
+  const out: PageIndex = { tiles, offset, length, crc, method, rank, valid, max_err: maxErr, rmse, value_crc: valueCrc };
+  if (f.prefix !== undefined) out.prefix = checkPrefixes(f.prefix, out, tiles, where);
   return out;
 }
 
+/**
+ * Check a field's summary against all its tiles (a reader that has every
+ * page of the field: whole-index loads and check).
+ */
+export function checkSummary(d: FieldDirectory, valid: readonly number[], maxErr: readonly number[], where: string): void {
+  let validSum = 0;
+  let maxErrMax = 0;
+  for (let t = 0; t < valid.length; t++) {
+    validSum += valid[t];
+    if (maxErr[t] > maxErrMax) maxErrMax = maxErr[t];
+  }
+  const s = d.summary;
+  if (s.valid !== validSum) fail(where, `summary valid count ${s.valid} is not the sum ${validSum} of the tiles' counts`);
+  if (s.max_err !== maxErrMax) fail(where, `summary max_err ${s.max_err} is not the largest tile max_err ${maxErrMax}`);
+}
+
 /** Validate the optional prefix column: per tile, quads of (length, crc, max error, rmse), lengths rising and shorter than the payload. */
-function checkPrefixes(raw: unknown, ix: FieldIndex, where: string): number[][] {
-  const tiles = ix.offset.length;
-  if (!Array.isArray(raw) || raw.length !== tiles) fail(where, `column 'prefix' must list ${tiles} tiles`);
-  return raw.map((p: unknown, t: number) => {
+function checkPrefixes(raw: unknown, ix: Pick<PageIndex, 'length' | 'method'>, tiles: readonly number[], where: string): number[][] {
+  const n = tiles.length;
+  if (!Array.isArray(raw) || raw.length !== n) fail(where, `column 'prefix' must list ${n} tiles`);
+  return raw.map((p: unknown, k: number) => {
+    const t = tiles[k];
     if (!Array.isArray(p) || p.length % 4 !== 0 || p.length > 4 * 256) fail(where, `tile ${t} prefix list is not a list of (length, crc, max_err, rmse) quads`);
-    if (p.length > 0 && ix.method[t] !== 1) fail(where, `tile ${t} lists prefixes but is not a low-rank tile`);
+    if (p.length > 0 && ix.method[k] !== 1) fail(where, `tile ${t} lists prefixes but is not a low-rank tile`);
     let prev = 0;
-    for (let k = 0; k < p.length; k += 4) {
-      const [len, crc, max, rmse] = p.slice(k, k + 4) as unknown[];
-      if (!Number.isInteger(len) || (len as number) <= prev || (len as number) >= ix.length[t]) fail(where, `tile ${t} prefix ${k / 4} length ${String(len)} is not rising or not shorter than the payload`);
-      if (!Number.isInteger(crc) || (crc as number) < 0 || (crc as number) > 0xffffffff) fail(where, `tile ${t} prefix ${k / 4} crc is not a 32-bit value`);
-      for (const x of [max, rmse]) if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) fail(where, `tile ${t} prefix ${k / 4} error ${String(x)} is not a finite number >= 0`);
+    for (let q = 0; q < p.length; q += 4) {
+      const [len, crc, max, rmse] = p.slice(q, q + 4) as unknown[];
+      if (!Number.isInteger(len) || (len as number) <= prev || (len as number) >= ix.length[k]) fail(where, `tile ${t} prefix ${q / 4} length ${String(len)} is not rising or not shorter than the payload`);
+      if (!Number.isInteger(crc) || (crc as number) < 0 || (crc as number) > 0xffffffff) fail(where, `tile ${t} prefix ${q / 4} crc is not a 32-bit value`);
+      for (const x of [max, rmse]) if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) fail(where, `tile ${t} prefix ${q / 4} error ${String(x)} is not a finite number >= 0`);
       prev = len as number;
     }
     return p as number[];
   });
-}
-
-/**
- * Payloads may not overlap, within a field or across fields: each tile owns
- * its bytes, so no file can make a reader decode the same bytes many times.
- * Writers store payloads in order, so one pass usually suffices; otherwise
- * the payloads are sorted by offset.
- */
-function checkNoOverlap(fields: FieldIndex[], header: ArchiveHeader, label: string): void {
-  let total = 0;
-  for (const f of fields) total += f.offset.length;
-  const off = new Float64Array(total);
-  const len = new Float64Array(total);
-  const owner = new Uint32Array(total);
-  let k = 0;
-  let sorted = true;
-  fields.forEach((f, i) => {
-    for (let t = 0; t < f.offset.length; t++, k++) {
-      off[k] = f.offset[t];
-      len[k] = f.length[t];
-      owner[k] = i;
-      if (k > 0 && off[k] < off[k - 1] + len[k - 1]) sorted = false;
-    }
-  });
-  if (sorted) return;
-  const order = new Uint32Array(total).map((_, j) => j).sort((a, b) => off[a] - off[b] || a - b);
-  for (let j = 1; j < total; j++) {
-    const a = order[j - 1];
-    const b = order[j];
-    if (off[b] < off[a] + len[a]) {
-      const name = (x: number) => {
-        let t = x;
-        for (let i = 0; i < owner[x]; i++) t -= fields[i].offset.length;
-        return `field ${quoteName(header.fields[owner[x]].name)} tile ${t}`;
-      };
-      fail(`${label} index`, `the payloads of ${name(a)} (${off[a]}+${len[a]}) and ${name(b)} (${off[b]}+${len[b]}) overlap`);
-    }
-  }
 }

@@ -11,6 +11,12 @@ export interface ByteSource {
   size(): Promise<number>;
   /** Exactly `length` bytes from `offset`; throws if the source is shorter. */
   read(offset: number, length: number): Promise<Uint8Array>;
+  /**
+   * Optional: the bytes of several ranges fetched together, in as few round
+   * trips as the source can (over HTTP, one request carrying many ranges).
+   * Returns exactly the bytes of each range, in the given order.
+   */
+  readMany?(ranges: readonly ByteRange[]): Promise<Uint8Array[]>;
   /** Release resources (file handles); optional. */
   close?(): Promise<void>;
   /** For messages: a path or URL. */
@@ -61,7 +67,16 @@ export interface CoalesceOptions {
   maxWaste?: number;
   /** Merged reads in flight at once. Default 6 (what browsers allow per HTTP/1.1 host). */
   concurrency?: number;
+  /**
+   * Largest number of merged reads handed to one {@link ByteSource.readMany}
+   * call (one HTTP request) for sources that have it. Default 64; 1 turns
+   * the grouping off.
+   */
+  rangesPerRequest?: number;
 }
+
+/** Default {@link CoalesceOptions.rangesPerRequest}. */
+export const DEFAULT_RANGES_PER_REQUEST = 64;
 
 /** Default {@link CoalesceOptions.maxGap}: 64 KiB. */
 export const DEFAULT_MAX_GAP = 64 * 1024;
@@ -132,20 +147,35 @@ export async function readRanges(src: ByteSource, ranges: readonly ByteRange[], 
   const plan = coalesce(ranges, options);
   const concurrency = options.concurrency ?? DEFAULT_CONCURRENCY;
   if (!Number.isInteger(concurrency) || concurrency < 1) throw new InputError(InputCode.Option, `concurrency must be an integer >= 1, got ${String(concurrency)}`);
+  const perRequest = options.rangesPerRequest ?? DEFAULT_RANGES_PER_REQUEST;
+  if (!Number.isInteger(perRequest) || perRequest < 1) throw new InputError(InputCode.Option, `rangesPerRequest must be an integer >= 1, got ${String(perRequest)}`);
+  // Jobs: groups of merged reads, one readMany call each when the source has it, else one read each.
+  const many = src.readMany?.bind(src);
+  const jobs: MergedRead[][] = [];
+  const step = many && plan.length > 1 ? perRequest : 1;
+  for (let k = 0; k < plan.length; k += step) jobs.push(plan.slice(k, k + step));
   const out: Uint8Array[] = ranges.map(() => new Uint8Array(0));
   let next = 0;
   let failed = false;
+  const place = (read: MergedRead, bytes: Uint8Array) => {
+    if (bytes.length !== read.length) {
+      throw new FormatError(FormatCode.Truncated, `${src.label}: read of bytes ${read.offset}..${read.offset + read.length} returned ${bytes.length} bytes`);
+    }
+    for (const i of read.members) {
+      const at = ranges[i].offset - read.offset;
+      out[i] = bytes.subarray(at, at + ranges[i].length);
+    }
+  };
   const worker = async (): Promise<void> => {
-    while (!failed && next < plan.length) {
-      const read = plan[next++];
+    while (!failed && next < jobs.length) {
+      const job = jobs[next++];
       try {
-        const bytes = await src.read(read.offset, read.length);
-        if (bytes.length !== read.length) {
-          throw new FormatError(FormatCode.Truncated, `${src.label}: read of bytes ${read.offset}..${read.offset + read.length} returned ${bytes.length} bytes`);
-        }
-        for (const i of read.members) {
-          const at = ranges[i].offset - read.offset;
-          out[i] = bytes.subarray(at, at + ranges[i].length);
+        if (job.length === 1 || !many) {
+          for (const read of job) place(read, await src.read(read.offset, read.length));
+        } else {
+          const got = await many(job.map((r) => ({ offset: r.offset, length: r.length })));
+          if (got.length !== job.length) throw new FormatError(FormatCode.Truncated, `${src.label}: a read of ${job.length} ranges returned ${got.length}`);
+          job.forEach((read, i) => place(read, got[i]));
         }
       } catch (e) {
         failed = true;
@@ -154,7 +184,7 @@ export async function readRanges(src: ByteSource, ranges: readonly ByteRange[], 
     }
   };
   const workers: Promise<void>[] = [];
-  for (let k = 0; k < Math.min(concurrency, plan.length); k++) workers.push(worker());
+  for (let k = 0; k < Math.min(concurrency, jobs.length); k++) workers.push(worker());
   await Promise.all(workers);
   return out;
 }

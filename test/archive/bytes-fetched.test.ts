@@ -1,14 +1,16 @@
 /**
- * What a window costs over HTTP: a 256x256 window of an 8192x8192 archive
- * (64x64 tiles, 16384 of them) read from a server on 127.0.0.1 that counts
+ * What a window costs over HTTP: a 256x256 window of a 2048x2048 archive
+ * (64x64 tiles, 1024 of them, in 16 index pages) read from a server on 127.0.0.1 that counts
  * the body bytes it sends. The budget is the payload bytes of the tiles the
  * window intersects plus the index, tail and header; the reader may fetch at
  * most 1.5 times that (the issue's requirement). The field is the
  * vega-datasets annual-precip grid (data/annual-precip.json, 360 x 168)
- * mirror-tiled to 8192x8192, packed band by band into a file.
+ * mirror-tiled to 2048x2048, packed band by band into a file. (The
+ * 16384x16384 case of issue 11, with a constant field, is
+ * test/archive/paged-window.test.ts.)
  *
- * Building the archive runs the encoder over 2^26 values: this is the slow
- * test of the suite (minutes with today's encoder).
+ * Building the archive runs the encoder over 2^22 values: a slow test
+ * (about 10 s idle on 2 cores), hence the explicit timeout.
  */
 import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -21,10 +23,10 @@ import { FileSink } from '../../src/io/file-sink.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
 import { mirrored, precip } from './datasets.js';
 
-const SIDE = 8192;
+const SIDE = 2048;
 const TILE = 64;
-const ROWS: [number, number] = [4000, 4256];
-const COLS: [number, number] = [5000, 5256];
+const ROWS: [number, number] = [1000, 1256];
+const COLS: [number, number] = [1200, 1456];
 
 const dir = mkdtempSync(join(tmpdir(), 'rankfield-bytes-'));
 let server: RangeServer;
@@ -43,16 +45,16 @@ beforeAll(async () => {
   local = await open(new MemorySource(bytes));
   server = await startRangeServer();
   server.put('/big.rfz', bytes);
-}, 30 * 60_000);
+}, 5 * 60_000);
 
 afterAll(async () => {
   await server?.close();
   rmSync(dir, { recursive: true, force: true });
 });
 
-describe('a 256x256 window of an 8192x8192 archive over HTTP', () => {
+describe('a 256x256 window of a 2048x2048 archive over HTTP', () => {
   it('fetches at most 1.5 x (intersecting payloads + index + tail + header), and the right values', async () => {
-    const ix = local.index.fields[0];
+    const ix = (await local.loadIndex()).fields[0];
     const gc = SIDE / TILE;
     const tiles: number[] = [];
     for (let ti = Math.floor(ROWS[0] / TILE); ti * TILE < ROWS[1]; ti++) for (let tj = Math.floor(COLS[0] / TILE); tj * TILE < COLS[1]; tj++) tiles.push(ti * gc + tj);
@@ -60,7 +62,10 @@ describe('a 256x256 window of an 8192x8192 archive over HTTP', () => {
     const payload = tiles.reduce((s, t) => s + ix.length[t], 0);
     const tail = new DataView(bytes.buffer, bytes.byteOffset + bytes.length - TAIL_SIZE, TAIL_SIZE);
     const headerLength = tail.getUint32(8, true);
-    const indexLength = tail.getUint32(24, true);
+    // Version 2: the index directory, and the index pages holding the window's tiles.
+    const d = local.directory.fields[0];
+    const pages = new Set(tiles.map((t) => Math.floor(Math.floor(t / gc) / d.page[0]) * Math.ceil(gc / d.page[1]) + Math.floor((t % gc) / d.page[1])));
+    const indexLength = tail.getUint32(24, true) + [...pages].reduce((s, p) => s + d.page_length[p], 0);
     const budget = payload + indexLength + TAIL_SIZE + headerLength;
 
     server.reset();
@@ -70,7 +75,7 @@ describe('a 256x256 window of an 8192x8192 archive over HTTP', () => {
     const fetched = server.bytesSent;
     console.log(
       `window 256x256 of ${SIDE}x${SIDE}: fetched ${fetched} bytes in ${server.requests} requests; budget ${budget} ` +
-        `(payloads ${payload} of ${tiles.length} tiles, index ${indexLength}, header ${headerLength}, tail ${TAIL_SIZE}); ` +
+        `(payloads ${payload} of ${tiles.length} tiles, index directory and ${pages.size} pages ${indexLength}, header ${headerLength}, tail ${TAIL_SIZE}); ` +
         `ratio ${(fetched / budget).toFixed(3)}; archive ${bytes.length} bytes`,
     );
     // The requirement of issue 5: at most 1.5 x the budget.

@@ -203,7 +203,7 @@ describe('what a window read fetches', () => {
     const src = new Recording(bytes);
     // Gaps between tile rows are dropped, not fetched: maxGap 0.
     const a = await open(src, { coalesce: { maxGap: 0 } });
-    const ix = a.index.fields[0];
+    const ix = (await a.loadIndex()).fields[0];
     const opened = src.reads.length;
     // Rows 20..50 touch tile rows 1..3; columns 40..100 touch tile columns 2..6 (of 23).
     await a.read('p', { rows: [20, 50], cols: [40, 100] });
@@ -220,9 +220,30 @@ describe('what a window read fetches', () => {
   it('merges across tile rows when the gap is small and the waste within its limit', async () => {
     const src = new Recording(bytes);
     const a = await open(src, { coalesce: { maxGap: 1 << 20, maxWaste: 1000 } });
+    await a.loadIndex(); // the index pages, read here so that only payload reads are counted
     const opened = src.reads.length;
     await a.read('p', { rows: [20, 50], cols: [40, 100] });
     expect(src.reads.length - opened).toBe(1);
+  });
+
+  it('fetches the index pages of the touched tiles once, in one read before the payloads', async () => {
+    const src = new Recording(bytes);
+    const a = await open(src, { coalesce: { maxGap: 0 } });
+    const opened = src.reads.length;
+    const d = a.directory.fields[0];
+    // 11 x 23 tiles of 16, pages of 8 x 8 tiles: 2 x 3 pages. Rows 100..140, cols 120..140 touch
+    // tile rows 6..8 and tile columns 7..8: pages 0, 1 (tile rows 0-7) and 3, 4 (tile rows 8-10).
+    await a.read('p', { rows: [100, 140], cols: [120, 140] });
+    const reads = src.reads.slice(opened);
+    const pageReads = reads.filter(([o]) => d.page_offset.includes(o));
+    expect(pageReads).toEqual([
+      [d.page_offset[0], d.page_length[0] + d.page_length[1]],
+      [d.page_offset[3], d.page_length[3] + d.page_length[4]],
+    ]);
+    // The same window again: no page is fetched twice.
+    const before = src.reads.length;
+    await a.read('p', { rows: [100, 140], cols: [120, 140] });
+    expect(src.reads.slice(before).filter(([o]) => d.page_offset.includes(o))).toEqual([]);
   });
 
   it('runs concurrent reads on one archive object, each with its own correct result', async () => {

@@ -30,7 +30,7 @@ describe('fields of slices', () => {
     const a = await open(bytes);
     const h = a.field('precip').header;
     expect([h.slices, h.nd_shape, h.dims, h.layout, h.shape]).toEqual([4, nd, ['band', 'lat', 'lon'], 'slices', [42, 360]]);
-    expect(a.index.fields[0].offset.length).toBe(4 * 2 * 12); // 4 slices x ceil(42/32) x ceil(360/32) tiles
+    expect((await a.loadIndex()).fields[0].offset.length).toBe(4 * 2 * 12); // 4 slices x ceil(42/32) x ceil(360/32) tiles
     const all = await a.read('precip');
     expect(all.shape).toEqual(nd);
     const orig = Float32Array.from(grid.values);

@@ -117,6 +117,16 @@ describe('unpack --region from a file', () => {
   });
 });
 
+/** Bytes the requests since the last reset asked for (each range once, as the server parsed it). */
+function asked(s: RangeServer): number {
+  let n = 0;
+  for (const a of s.log) {
+    if (a.range) n += a.range[1] - a.range[0] + 1;
+    for (const [x, y] of a.ranges ?? []) n += y - x + 1;
+  }
+  return n;
+}
+
 describe('archives at an http URL', { timeout: CLI_TIMEOUT }, () => {
   it('unpack --region reads only what the window needs and gives the same window', async () => {
     server.reset();
@@ -124,17 +134,22 @@ describe('archives at an http URL', { timeout: CLI_TIMEOUT }, () => {
     expect(r.code, r.stderr).toBe(0);
     const got = parseNpy(new Uint8Array(readFileSync(join(tmp.dir, 'url.npy'))));
     expectSameBytes(got.data, windowOf([100, 130], [200, 260]));
-    // Bytes served: the probe, prologue, tail, header and index, plus the payloads of the
-    // tiles the window touches (tile rows 3..4, tile columns 4..5 of 32x48 tiles).
+    // Bytes asked for: the probe, prologue, tail, header and index directory, the one index
+    // page (6 x 8 tiles of 32x48, pages of 8 x 8 tiles), plus the payloads of the tiles the
+    // window touches (tile rows 3..4, tile columns 4..5).
     const a = await open(new Uint8Array(readFileSync(join(tmp.dir, 'precip.rfz'))));
-    const ix = a.index.fields[0];
+    const ix = (await a.loadIndex()).fields[0];
     const gc = Math.ceil(360 / 48);
     let payload = 0;
     for (const ti of [3, 4]) for (const tj of [4, 5]) payload += ix.length[ti * gc + tj];
     const size = a.size;
     const tail = new DataView(readFileSync(join(tmp.dir, 'precip.rfz')).buffer.slice(size - 48));
-    const meta = 1 + 16 + 48 + tail.getUint32(8, true) + tail.getUint32(24, true);
-    expect(server.bytesSent).toBe(meta + payload);
+    const meta = 1 + 16 + 48 + tail.getUint32(8, true) + tail.getUint32(24, true) + a.directory.fields[0].page_length[0];
+    expect(asked(server)).toBe(meta + payload);
+    // The two payload runs went in one request (multipart/byteranges): what was sent is the runs plus the part headers.
+    expect(server.log.at(-1)?.ranges).toHaveLength(2);
+    expect(server.bytesSent).toBeGreaterThan(meta + payload);
+    expect(server.bytesSent).toBeLessThan(meta + payload + 400);
   });
 
   it('show reads only the probe byte, prologue, tail, header and index, and says what a file show says', async () => {
@@ -147,7 +162,10 @@ describe('archives at an http URL', { timeout: CLI_TIMEOUT }, () => {
     expect({ ...a, file: '' }).toEqual({ ...b, file: '' });
     const bytes = readFileSync(join(tmp.dir, 'precip.rfz'));
     const tail = new DataView(bytes.buffer.slice(bytes.length - 48));
-    expect(server.bytesSent).toBe(1 + 16 + 48 + tail.getUint32(8, true) + tail.getUint32(24, true));
+    const pages = (await open(new Uint8Array(bytes))).directory.fields[0].page_length.reduce((x, y) => x + y, 0);
+    // show needs every tile's method and rank: the whole index, directory and pages.
+    expect(asked(server)).toBe(1 + 16 + 48 + tail.getUint32(8, true) + tail.getUint32(24, true) + pages);
+    expect(server.bytesSent).toBe(asked(server));
   });
 
   it('check URL passes, against the original too', async () => {

@@ -52,7 +52,7 @@ describe('show', () => {
     const facts = JSON.parse(r.stdout);
     const bytes = new Uint8Array(readFileSync(path('v.rfz')));
     const archive = await open(bytes);
-    const ix = archive.index.fields[0];
+    const ix = (await archive.loadIndex()).fields[0];
     const payload = ix.length.reduce((a, b) => a + b, 0);
     const f = facts.fields[0];
     expect(facts.fileBytes).toBe(statSync(path('v.rfz')).size);
@@ -121,7 +121,7 @@ describe('check', () => {
 
   it('a flipped byte in a tile payload is a check failure (exit 1) naming the tile; unpack refuses it (exit 2)', async () => {
     const archive = await open(new Uint8Array(readFileSync(path('v.rfz'))));
-    const ix = archive.index.fields[0];
+    const ix = (await archive.loadIndex()).fields[0];
     const t = 3;
     damaged('tile.rfz', ix.offset[t] + Math.floor(ix.length[t] / 2));
     const r = rf(['check', 'tile.rfz'], dir);
@@ -129,6 +129,17 @@ describe('check', () => {
     expect(r.stdout).toMatch(new RegExp(`FAIL field 'volcano' tile ${t}: payload CRC-32 mismatch`));
     expectCliError(rf(['unpack', 'tile.rfz', '-o', 'tile.npy'], dir), new RegExp(`field 'volcano' tile ${t}: payload CRC-32 mismatch`));
     expect(rf(['show', 'tile.rfz'], dir).code).toBe(0); // show reads only the header and index
+  });
+
+  it('a flipped byte in an index page is a check failure (exit 1) naming the page; show and unpack refuse it (exit 2)', async () => {
+    const archive = await open(new Uint8Array(readFileSync(path('v.rfz'))));
+    const d = archive.directory.fields[0];
+    damaged('page.rfz', d.page_offset[0] + Math.floor(d.page_length[0] / 2));
+    const r = rf(['check', 'page.rfz'], dir);
+    expect(r.code).toBe(1);
+    expect(r.stdout).toMatch(/FAIL field 'volcano'.*index page 0 of field 'volcano' \(at offset \d+\): CRC-32 mismatch/);
+    expectCliError(rf(['unpack', 'page.rfz', '-o', 'page.npy'], dir), /index page 0 of field 'volcano' \(at offset \d+\): CRC-32 mismatch/);
+    expectCliError(rf(['show', 'page.rfz'], dir), /index page 0 of field 'volcano' \(at offset \d+\): CRC-32 mismatch/);
   });
 
   it('a flipped byte in the tail or the header is exit 2, for check, show and unpack', async () => {
@@ -158,14 +169,14 @@ describe('check', () => {
     expect(r.stdout).toMatch(/0 +every tile holds its bound/);
     expect(r.stdout).toMatch(/1 +the check failed/);
     expect(r.stdout).toMatch(/2 +unusable input/);
-    expect(r.stdout).toMatch(/A damaged tile payload is a check failure \(exit 1\); damage to the tail,\s+header or index is exit 2/);
+    expect(r.stdout).toMatch(/A damaged tile payload, or a damaged index page \(its tiles cannot be\s+located\), is a check failure \(exit 1\); damage to the tail,\s+header or index directory is exit 2/);
   });
 
   it('on a many-field archive, --field names the field the original belongs to', () => {
     const sink = new MemorySink();
     const b = new ArchiveBuilder(sink);
     const small = Float64Array.from({ length: 10 * 12 }, (_, c) => Math.sin(c / 9));
-    b.add(vol.values, [ROWS, COLS], { bound: 'abs:0.5', name: 'height' });
+    b.add(vol.values, [ROWS, COLS], { bound: 'abs:0.5', name: 'height', tile: 64 });
     b.add(small, [10, 12], { bound: 'abs:1e-3', name: 'wave', tile: 8 });
     b.finish();
     writeFileSync(path('two.rfz'), sink.bytes());

@@ -154,8 +154,8 @@ async function checkCase(c: Case): Promise<void> {
   } else {
     expect(m.summary.rmse, `RMSE ${m.summary.rmse} > ${h.bound.tolerance}`).toBeLessThanOrEqual(h.bound.tolerance);
   }
-  expectIndexMatches(archive, m);
-  const { index: ix } = archive.field();
+  await expectIndexMatches(archive, m);
+  const ix = await archive.fieldIndex();
   ix.method.forEach((method, t) => {
     expect([0, 1]).toContain(method);
     if (method === 0) expect(ix.rank[t]).toBe(0);

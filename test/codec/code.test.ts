@@ -105,9 +105,13 @@ describe('coded integer streams', () => {
     longer.set(bytes);
     expect(() => decodeInts(longer, 20, 25, null, out)).toThrow(/follow the end of the stream/);
     expect(() => decodeInts(new Uint8Array(3), 1, 1, null, out)).toThrow(/at least 4 bytes/);
-    // All-ones bytes: every decision comes out 1, so the first value's class runs to 30
-    // and its bits to all ones: 2^31 - 1, beyond the limit.
-    expect(() => decodeInts(new Uint8Array(64).fill(0xff), 1, 1, null, out)).toThrow(/exceeds 2\^30/);
+    // No encoder starts a stream at the top of the range.
+    expect(() => decodeInts(new Uint8Array(64).fill(0xff), 1, 1, null, out)).toThrow(/FF FF FF FF/);
+    // Just below it every adaptive decision comes out 1, so the first value's class runs
+    // to 30 and its bits towards all ones: beyond 2^30, or off the halved range.
+    const top = new Uint8Array(64).fill(0xff);
+    top[3] = 0xfe;
+    expect(() => decodeInts(top, 1, 1, null, out)).toThrow(/exceeds 2\^30|outside both halves/);
   });
 
   it('decode arbitrary bytes to values or a CodeStreamError, nothing else', () => {

@@ -143,8 +143,8 @@ export function close(a: number, b: number, rel = 1e-12): boolean {
 }
 
 /** Expect the index's recorded figures of field 0 to equal what `m` measured. */
-export function expectIndexMatches(archive: Archive, m: Measured, name?: string): void {
-  const { index: ix } = archive.field(name);
+export async function expectIndexMatches(archive: Archive, m: Measured, name?: string): Promise<void> {
+  const ix = await archive.fieldIndex(name);
   expect(ix.valid.length).toBe(m.tiles.length);
   m.tiles.forEach((t, i) => {
     expect(ix.valid[i], `tile ${i} valid`).toBe(t.valid);

@@ -98,11 +98,11 @@ describe('special cells come back bit for bit', () => {
         for (const c of cells) expect(bitsOf(got, c), `cell ${c}`).toEqual(bitsOf(values, c));
         const m = measure(values, got, [rows, cols], [12, 16], dtype, FILL);
         expect(m.specialMismatches).toBe(0);
-        expectIndexMatches(archive, m);
+        await expectIndexMatches(archive, m);
         const report = await archive.check(values);
         expect(report.ok).toBe(true);
         expect(report.fields[0].measured?.specialMismatches).toBe(0);
-        const { index: ix } = archive.field();
+        const ix = await archive.fieldIndex();
         // rel 1e-3 on this smooth field goes through the low-rank payload, whose mask section restores the specials.
         if (bound === 'rel:1e-3') expect(ix.method).toContain(1);
       });
@@ -143,7 +143,7 @@ describe('special cells are excluded from the value range', () => {
   it('the summary counts valid cells only', async () => {
     const { values, cells } = withSpecials(30, 41, 'f64');
     const archive = await open(pack(values, [30, 41], { bound: 'abs:1e-3', tile: 16, fill: FILL }));
-    expect(archive.index.fields[0].summary.valid).toBe(30 * 41 - new Set(cells).size);
+    expect((await archive.loadIndex()).fields[0].summary.valid).toBe(30 * 41 - new Set(cells).size);
   });
 });
 
@@ -182,7 +182,7 @@ describe('-0.0 and 0.0 as fill values', () => {
     it(`${dtype}: fill -0.0 restores -0 cells exactly; +0 cells are ordinary values`, async () => {
       const { values, pos, neg } = zeros(dtype);
       const archive = await open(pack(values, [24, 24], { bound: 'abs:1e-3', tile: 12, fill: -0 }));
-      expect(archive.index.fields[0].method).toContain(1);
+      expect((await archive.loadIndex()).fields[0].method).toContain(1);
       const got = (await archive.read()).values;
       for (const c of pos) expect(Math.abs(got[c])).toBeLessThanOrEqual(1e-3);
       for (const c of neg) expect(Object.is(got[c], -0), `cell ${c}: ${got[c]}`).toBe(true);
@@ -218,10 +218,10 @@ describe('all-missing tiles and fields', () => {
         const got = (await archive.read()).values;
         const m = measure(values, got, [20, 30], [10, 10], dtype, FILL);
         expect(m.specialMismatches).toBe(0);
-        expect(archive.index.fields[0].valid[4]).toBe(0);
-        expect(archive.index.fields[0].max_err[4]).toBe(0);
-        expect(archive.index.fields[0].rmse[4]).toBe(0);
-        expectIndexMatches(archive, m);
+        expect((await archive.loadIndex()).fields[0].valid[4]).toBe(0);
+        expect((await archive.loadIndex()).fields[0].max_err[4]).toBe(0);
+        expect((await archive.loadIndex()).fields[0].rmse[4]).toBe(0);
+        await expectIndexMatches(archive, m);
         expect((await archive.check(values)).ok).toBe(true);
       }
     });
@@ -239,7 +239,7 @@ describe('all-missing tiles and fields', () => {
         expect(h.bound.range).toBeNull();
         // With no valid values the range is empty: rel and psnr resolve to 0, abs and rmse keep their value.
         expect(h.bound.tolerance).toBe(bound.startsWith('rel') || bound.startsWith('psnr') ? 0 : 0.5);
-        expect(archive.index.fields[0].summary).toEqual({ valid: 0, max_err: 0, rmse: 0 });
+        expect((await archive.loadIndex()).fields[0].summary).toEqual({ valid: 0, max_err: 0, rmse: 0 });
         const got = (await archive.read()).values;
         for (let c = 0; c < values.length; c++) expect(bitsOf(got, c)).toEqual(bitsOf(values, c));
         expect((await archive.check(values)).ok).toBe(true);
@@ -259,7 +259,7 @@ describe('a land mask is filled smoothly', () => {
     const v = new Float64Array(R * C);
     for (let i = 0; i < R; i++) for (let j = 0; j < C; j++) v[i * C + j] = masked && land(i, j) ? FILL : field(i, j);
     const a = await open(pack(v, [R, C], { bound, tile, fill: masked ? FILL : null }));
-    const rank = a.index.fields[0].rank;
+    const rank = (await a.loadIndex()).fields[0].rank;
     return rank.reduce((s, r) => s + r, 0) / rank.length;
   }
 

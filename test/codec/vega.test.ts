@@ -82,7 +82,7 @@ describe.each(GRIDS)('vega-datasets $name', (g) => {
         } else {
           expect(m.summary.rmse).toBeLessThanOrEqual(tol);
         }
-        expectIndexMatches(archive, m, g.name);
+        await expectIndexMatches(archive, m, g.name);
         const report = await archive.check({ [g.name]: values });
         expect(report.ok).toBe(true);
         const ratio = values.byteLength / bytes.length;

@@ -4,10 +4,10 @@
  * nothing else ever escapes. The layout used below to aim at each region is
  * the one the writer documents in src/format/container.ts: a 16-byte
  * prologue (8 magic bytes, u16 version, u16 required flags, u32 reserved),
- * the tile payloads, the header and index (MessagePack), and a 48-byte tail
- * (u64 header offset, u32 length, u32 CRC, u64 index offset, u32 length,
- * u32 CRC, u16 version, u16 flags, u32 CRC of the 36 bytes before, 8 magic
- * bytes), all little-endian.
+ * the tile payloads, the header, index pages and index directory
+ * (MessagePack), and a 48-byte tail (u64 header offset, u32 length, u32 CRC,
+ * u64 directory offset, u32 length, u32 CRC, u16 version, u16 flags, u32 CRC
+ * of the 36 bytes before, 8 magic bytes), all little-endian.
  */
 import { decode, encode } from '@msgpack/msgpack';
 import { describe, expect, it } from 'vitest';
@@ -15,7 +15,7 @@ import { open } from '../../src/archive.js';
 import { FormatCode, FormatError } from '../../src/errors.js';
 import { crc32 } from '../../src/format/crc32.js';
 import { pack } from '../../src/pack.js';
-import type { Block } from '../fuzz/model.js';
+import { assemble, joinIndex, layout, split, splitIndex, type Block } from './paged.js';
 
 const CODES = new Set<string>(Object.values(FormatCode));
 const TAIL = 48;
@@ -41,26 +41,6 @@ function smallFactors(): Uint8Array {
   return pack(v, [16, 16], { bound: 'abs:1e-3', tile: 16, name: 'factors' });
 }
 
-interface Layout {
-  headerOffset: number;
-  headerLength: number;
-  indexOffset: number;
-  indexLength: number;
-  tailOffset: number;
-}
-
-function layout(b: Uint8Array): Layout {
-  const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
-  const t = b.length - TAIL;
-  return {
-    headerOffset: d.getUint32(t, true) + d.getUint32(t + 4, true) * 2 ** 32,
-    headerLength: d.getUint32(t + 8, true),
-    indexOffset: d.getUint32(t + 16, true) + d.getUint32(t + 20, true) * 2 ** 32,
-    indexLength: d.getUint32(t + 24, true),
-    tailOffset: t,
-  };
-}
-
 /** Recompute the tail's own CRC after editing its first 36 bytes. */
 function resealTail(b: Uint8Array): void {
   const t = b.length - TAIL;
@@ -70,45 +50,30 @@ function resealTail(b: Uint8Array): void {
 /**
  * Rebuild an archive with the same payload region and a changed header and/or
  * index, every CRC and offset recomputed, so that only the content is wrong.
+ * The index is edited whole (columns over all tiles) and split into its
+ * pages again (test/format/paged.ts).
  */
 interface Edit {
   header?: (h: Block) => void;
   index?: (ix: Block) => void;
   payload?: (p: Uint8Array) => void;
-  /** Replace the encoded header or index bytes. */
+  /** Replace the encoded header, index directory, or one page. */
   headerBytes?: (b: Uint8Array) => Uint8Array;
   indexBytes?: (b: Uint8Array) => Uint8Array;
+  pageBytes?: (field: number, page: number, b: Uint8Array) => Uint8Array;
 }
 
 function rebuild(b: Uint8Array, edit: Edit): Uint8Array {
-  const l = layout(b);
-  const payloadEnd = Math.min(l.headerOffset, l.indexOffset);
-  const payloads = b.slice(0, payloadEnd);
-  edit.payload?.(payloads.subarray(16));
-  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as Block;
-  const index = decode(b.subarray(l.indexOffset, l.indexOffset + l.indexLength)) as Block;
-  edit.header?.(header);
+  const parts = split(b);
+  const front = parts.front.slice();
+  edit.payload?.(front.subarray(16));
+  const index = joinIndex(parts);
+  edit.header?.(parts.header);
   edit.index?.(index);
-  const hb = edit.headerBytes ? edit.headerBytes(encode(header)) : encode(header);
-  const ib = edit.indexBytes ? edit.indexBytes(encode(index)) : encode(index);
-  const out = new Uint8Array(payloadEnd + hb.length + ib.length + TAIL);
-  out.set(payloads);
-  out.set(hb, payloadEnd);
-  out.set(ib, payloadEnd + hb.length);
-  const tail = b.subarray(l.tailOffset);
-  const t = out.length - TAIL;
-  out.set(tail, t);
-  const d = new DataView(out.buffer);
-  d.setUint32(t, payloadEnd, true);
-  d.setUint32(t + 4, 0, true);
-  d.setUint32(t + 8, hb.length, true);
-  d.setUint32(t + 12, crc32(hb), true);
-  d.setUint32(t + 16, payloadEnd + hb.length, true);
-  d.setUint32(t + 20, 0, true);
-  d.setUint32(t + 24, ib.length, true);
-  d.setUint32(t + 28, crc32(ib), true);
-  resealTail(out);
-  return out;
+  const hb = edit.headerBytes ? edit.headerBytes(encode(parts.header)) : encode(parts.header);
+  const { pages, dirFields, dirExtra } = splitIndex(index, parts);
+  const pageBytes = pages.map((list, i) => list.map((pg, k) => (edit.pageBytes ? edit.pageBytes(i, k, encode(pg)) : encode(pg))));
+  return assemble({ front, headerBytes: hb, pageBytes, dirFields, dirExtra, dirBytes: edit.indexBytes });
 }
 
 /** The error of a full open + read of every field, or null when all succeed. */
@@ -131,7 +96,7 @@ function expectFormatError(e: unknown, code?: string, message?: RegExp): asserts
 
 /** The tile whose payload holds byte offset `at`, or -1. */
 async function tileAt(b: Uint8Array, at: number): Promise<number> {
-  const ix = (await open(b)).index.fields[0];
+  const ix = (await (await open(b)).loadIndex()).fields[0];
   return ix.offset.findIndex((o, t) => at >= o && at < o + ix.length[t]);
 }
 
@@ -143,10 +108,10 @@ describe('well-formed archives', () => {
       expect(await readAll(b)).toBeNull();
       expect((await (await open(b)).check()).ok).toBe(true);
     }
-    expect((await open(smallLowRank())).index.fields[0].method).toContain(1);
-    expect((await open(smallExact())).index.fields[0].method.every((m) => m === 0)).toBe(true);
+    expect((await (await open(smallLowRank())).loadIndex()).fields[0].method).toContain(1);
+    expect((await (await open(smallExact())).loadIndex()).fields[0].method.every((m) => m === 0)).toBe(true);
     // If the encoder stops choosing factors here, pick another sample: the sweeps below rely on it.
-    expect((await open(smallFactors())).index.fields[0].rank[0], 'smallFactors() has no factors').toBeGreaterThan(0);
+    expect((await (await open(smallFactors())).loadIndex()).fields[0].rank[0], 'smallFactors() has no factors').toBeGreaterThan(0);
   });
 
   it('rebuild() with no edit gives an archive that reads the same', async () => {
@@ -176,17 +141,18 @@ describe('prologue and tail', () => {
     expectFormatError(await readAll(zeros), FormatCode.BadMagic);
   });
 
-  for (const version of [0, 2, 3, 0x100, 0xffff]) {
+  // Version 1 (the unpaged index) is no longer read: 0.x format, dropped with version 2.
+  for (const version of [0, 1, 3, 0x100, 0xffff]) {
     it(`format version ${version} is refused as unsupported, naming the versions known`, async () => {
       const b = smallLowRank();
       new DataView(b.buffer).setUint16(8, version, true);
-      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`version ${version} .*knows 1\\b`));
+      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`version ${version} .*knows 2\\b`));
       // The same with the tail agreeing and resealed: still refused for the version.
       const c = smallLowRank();
       new DataView(c.buffer).setUint16(8, version, true);
       new DataView(c.buffer).setUint16(c.length - TAIL + 32, version, true);
       resealTail(c);
-      expectFormatError(await readAll(c), FormatCode.Unsupported, /knows 1\b/);
+      expectFormatError(await readAll(c), FormatCode.Unsupported, /knows 2\b/);
     });
   }
 
@@ -212,7 +178,7 @@ describe('prologue and tail', () => {
 
   it('a tail whose version disagrees with the prologue is refused', async () => {
     const b = smallLowRank();
-    new DataView(b.buffer).setUint16(b.length - TAIL + 32, 2, true);
+    new DataView(b.buffer).setUint16(b.length - TAIL + 32, 1, true);
     resealTail(b);
     expectFormatError(await readAll(b));
   });
@@ -248,7 +214,7 @@ describe('prologue and tail', () => {
 describe('tile payload corruption', () => {
   it('a flipped payload byte makes read() fail with checksum naming the tile, and check() report it', async () => {
     const b = smallLowRank();
-    const ix = (await open(b)).index.fields[0];
+    const ix = (await (await open(b)).loadIndex()).fields[0];
     for (let t = 0; t < ix.offset.length; t++) {
       const c = b.slice();
       c[ix.offset[t] + Math.floor(ix.length[t] / 2)] ^= 0x01;
@@ -269,8 +235,8 @@ describe('tile payload corruption', () => {
     // Every byte of every payload, each XORed with 0xFF, the index CRC recomputed:
     // this reaches the tile decoder itself with arbitrary bytes.
     for (const base of [smallLowRank(), smallExact(), smallFactors()]) {
-      const ix = (await open(base)).index.fields[0];
-      const payloadEnd = Math.min(layout(base).headerOffset, layout(base).indexOffset);
+      const ix = (await (await open(base)).loadIndex()).fields[0];
+      const payloadEnd = split(base).front.length;
       for (let at = 16; at < payloadEnd; at++) {
         const c = rebuild(base, {
           payload: (p) => {
@@ -418,9 +384,9 @@ describe('sweeps', () => {
       for (let n = 0; n < b.length; n++) expectFormatError(await readAll(b.slice(0, n)));
     });
 
-    it(`${name}: flipping any byte but the reserved prologue word is refused with FormatError`, async () => {
+    it(`${name}: flipping Block byte but the reserved prologue word is refused with FormatError`, async () => {
       const b = make();
-      const l = layout(b);
+      const end = split(b).front.length;
       for (const mask of [0x01, 0x80, 0xff]) {
         for (let at = 0; at < b.length; at++) {
           if (at >= 12 && at < 16) continue; // the reserved word: see the test below
@@ -428,7 +394,7 @@ describe('sweeps', () => {
           c[at] ^= mask;
           const e = await readAll(c);
           expectFormatError(e);
-          if (at >= 16 && at < Math.min(l.headerOffset, l.indexOffset)) {
+          if (at >= 16 && at < end) {
             // Inside a payload: open() succeeds, read() reports the tile's checksum.
             expect(e.code).toBe(FormatCode.Checksum);
             expect(e.message).toMatch(new RegExp(`tile ${await tileAt(b, at)}\\b`));
@@ -462,3 +428,110 @@ describe('sweeps', () => {
     });
   }
 });
+
+describe('index pages (version 2)', () => {
+  /** 12 x 14 f64 field, tiles 3 x 4 (4 x 4 tiles), index pages of 2 x 3 tiles: 2 x 2 pages, the right ones 2 tiles wide. */
+  function paged(): Uint8Array {
+    const v = new Float64Array(12 * 14).map((_, i) => Math.sin(i / 5) + (i % 14) / 7);
+    return pack(v, [12, 14], { bound: 'abs:1e-3', tile: [3, 4], name: 'sample', indexPage: [2, 3] });
+  }
+
+  it('the directory lists 2 x 2 pages, and payloads lie page by page', async () => {
+    const b = paged();
+    const a = await open(b);
+    const d = a.directory.fields[0];
+    expect(d.page).toEqual([2, 3]);
+    expect(d.page_offset).toHaveLength(4);
+    const ix = await a.loadIndex();
+    // Page 0 holds tiles 0, 1, 2, 4, 5, 6 (tile rows 0-1, tile columns 0-2), written first and back to back.
+    const order = [0, 1, 2, 4, 5, 6, 3, 7, 8, 9, 10, 12, 13, 14, 11, 15];
+    let at = 16;
+    for (const t of order) {
+      expect(ix.fields[0].offset[t], `tile ${t}`).toBe(at);
+      at += ix.fields[0].length[t];
+    }
+  });
+
+  it('a corrupted page is refused with a checksum error naming it, only by reads that need it; check() reports it and checks the rest', async () => {
+    const b = paged();
+    const d = (await open(b)).directory.fields[0];
+    for (let p = 0; p < 4; p++) {
+      const c = b.slice();
+      c[d.page_offset[p] + Math.floor(d.page_length[p] / 2)] ^= 0x10;
+      const a = await open(c); // the directory is intact: open() reads no page
+      const e = await a.read().then(
+        () => null,
+        (x: unknown) => x,
+      );
+      expectFormatError(e, FormatCode.Checksum, new RegExp(`index page ${p} of field 'sample'.*CRC-32 mismatch`));
+      // A window on another page reads (page 0 is rows 0-5 x cols 0-11, page 3 rows 6-11 x cols 12-13).
+      const other = p === 0 ? { rows: [6, 12] as [number, number], cols: [12, 14] as [number, number] } : { rows: [0, 6] as [number, number], cols: [0, 12] as [number, number] };
+      await a.read('sample', other);
+      const report = await a.check();
+      expect(report.ok).toBe(false);
+      expect(report.failures).toHaveLength(1);
+      expect(report.failures[0].what).toMatch(new RegExp(`index page ${p} `));
+    }
+  });
+
+  const cases: [string, Edit, RegExp][] = [
+    ['a page with a byte after its value', { pageBytes: (_f, p, b) => (p === 2 ? Uint8Array.of(...b, 0xc0) : b) }, /index page 2 of field 'sample'.*bytes after the end/],
+    ['a page column too short', { pageBytes: (_f, p, b) => (p === 1 ? encode({ ...(decodeMap(b) as object), crc: [1] }) : b) }, /index page 1 of field 'sample'.*column 'crc' must list 2 tiles/],
+    ['a tile offset not following the one before', { index: (ix) => (ix.fields[0].offset[5] += 1) }, /index page 0 of field 'sample'.*tile 5 payload at .* does not follow/],
+    ['a payload length changed', { index: (ix) => (ix.fields[0].length[15] -= 1) }, /index page 3 of field 'sample'.*payloads end at/],
+  ];
+  for (const [what, edit, message] of cases) {
+    it(`${what} is refused, naming the page`, async () => {
+      expectFormatError(await readAll(rebuild(paged(), edit)), FormatCode.Malformed, message);
+    });
+  }
+
+  it('directory entries that no writer makes are refused at open', async () => {
+    const dirEdit = (change: (f: Block) => void): Edit => ({
+      indexBytes: (b) => {
+        const dir = decodeMap(b) as Block;
+        change(dir.fields[0]);
+        return encode(dir);
+      },
+    });
+    for (const [change, message] of [
+      [(f: Block) => (f.page = [0, 3]), /page tile rows must be an integer/],
+      [(f: Block) => f.page_crc.pop(), /column 'page_crc' must list 4 pages/],
+      [(f: Block) => ([f.page_offset[0], f.page_offset[1]] = [f.page_offset[1], f.page_offset[0]]), /page 0 at .* is not after the page before it|page 1 at .* is not after/],
+      [(f: Block) => (f.data_offset[1] -= 1), /page 1 payload run .* is not after the run before it/],
+      [(f: Block) => (f.data_length[3] += 1000), /page 3 payload run .* is not after the run before it within the payload bytes/],
+      [(f: Block) => (f.data_length[0] = 3), /page 0 payload run of 3 bytes cannot hold its 6 tiles/],
+      [(f: Block) => (f.page_offset[0] = 20), /page 0 at 20\+.* overlaps|is not after/],
+      [(f: Block) => (f.summary.valid = -1), /summary valid must be an integer >= 0/],
+    ] as [(f: Block) => void, RegExp][]) {
+      const e = await readAll(rebuild(paged(), dirEdit(change)));
+      expectFormatError(e, FormatCode.Malformed, message);
+    }
+  });
+
+  it('a page longer than the reader limit on index bytes is refused with code limit before it is read', async () => {
+    const b = paged();
+    const d = (await open(b)).directory.fields[0];
+    const limit = Math.max(...d.page_length) - 1;
+    let e: unknown = null;
+    try {
+      await open(b, { limits: { maxIndexBytes: Math.max(limit, layout(b).dirLength) } });
+    } catch (x) {
+      e = x;
+    }
+    expectFormatError(e, FormatCode.Limit, /page \d+ of \d+ bytes exceeds the limit/);
+  });
+
+  it('a summary that disagrees with the tiles is refused when the whole index is loaded, and reported by check()', async () => {
+    const c = rebuild(paged(), { index: (ix) => (ix.fields[0].summary.valid += 1) });
+    const a = await open(c);
+    await a.read('sample', { rows: [0, 3], cols: [0, 4] }); // a window needs no summary
+    await expect(a.loadIndex()).rejects.toThrow(/summary valid count .* is not the sum/);
+    const report = await a.check();
+    expect(report.failures.map((f) => f.what).join('\n')).toMatch(/summary valid count/);
+  });
+});
+
+function decodeMap(b: Uint8Array): unknown {
+  return decode(b);
+}

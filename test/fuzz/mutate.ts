@@ -15,7 +15,7 @@
 import * as zlib from 'node:zlib';
 import { deflateSync, inflateSync } from 'fflate';
 import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
-import { cloneModel, layout, resealTail, sections, serialize, TAIL, type Block, type Model } from './model.js';
+import { cloneModel, directoryValue, layout, pageValues, resealTail, sections, serialize, TAIL, type Block, type Model } from './model.js';
 import type { Rng } from './rng.js';
 
 /** Numbers that sit on a boundary of some check. */
@@ -422,7 +422,21 @@ function consistentHeader(m: Model, rng: Rng): string {
 
 /** MessagePack-level tricks on the header or index bytes (applied last, to the final header or index). */
 function msgpackBlock(m: Model, rng: Rng, block: 'header' | 'index'): string {
-  const value = block === 'header' ? m.header : m.index;
+  // The index is the directory or one of its pages (version 2): each is a block of its own.
+  let target: string = block;
+  let value: unknown = m.header;
+  if (block === 'index') {
+    const pages = pageValues(m);
+    const f = rng.int(pages.length + 1);
+    if (f === pages.length || pages[f].length === 0) {
+      target = 'index directory';
+      value = directoryValue(m);
+    } else {
+      const p = rng.int(pages[f].length);
+      target = `index page ${f}/${p}`;
+      value = pages[f][p];
+    }
+  }
   const trick = rng.pick(['bytes', 'bytes', 'trailing', 'wrapped', 'widths', 'truncated']);
   let bytes = encodeValue(value);
   if (trick === 'bytes') for (let k = rng.range(1, 3); k > 0; k--) bytes = mutateBytes(bytes, rng);
@@ -431,8 +445,9 @@ function msgpackBlock(m: Model, rng: Rng, block: 'header' | 'index'): string {
   else if (trick === 'widths') bytes = encodeValue(widen(value, rng));
   else bytes = bytes.slice(0, rng.int(bytes.length));
   if (block === 'header') m.headerBytes = bytes;
-  else m.indexBytes = bytes;
-  return `${block} msgpack ${trick}`;
+  else if (target === 'index directory') m.indexBytes = bytes;
+  else (m.pageBytes ??= {})[target.slice(11)] = bytes;
+  return `${target} msgpack ${trick}`;
 }
 
 /** The same value with numbers written in other (valid) widths: a reader must accept them all. */
@@ -483,13 +498,13 @@ function postIndex(m: Model, rng: Rng): string {
 /** Container-level words: versions, flags, reserved word, block order, a gap, a stale CRC. */
 function containerWords(m: Model, rng: Rng): string {
   const which = rng.pick(['version', 'flags', 'reserved', 'order', 'gap', 'stale crc', 'tail version']);
-  if (which === 'version') m.version = rng.pick([0, 2, 0xffff]);
+  if (which === 'version') m.version = rng.pick([0, 1, 3, 0xffff]);
   else if (which === 'flags') m.flags = 1 << (1 + rng.int(15)); // bit 0 (slices) is known; every other bit must be refused
   else if (which === 'reserved') m.reserved = rng.u32();
   else if (which === 'order') m.indexFirst = !m.indexFirst;
   else if (which === 'gap') m.gap = new Uint8Array(rng.range(1, 64)).map(() => rng.int(256));
   else if (which === 'stale crc') m.fixCrcs = false;
-  else m.tailVersion = rng.pick([0, 2]);
+  else m.tailVersion = rng.pick([0, 1, 3]);
   return `container ${which}`;
 }
 
@@ -665,7 +680,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
   }
   if (blocks.length > 0) {
     // MessagePack tricks on the final blocks (offsets and CRCs already in the index).
-    for (const block of blocks) ops.push(msgpackBlock(m, rng, block));
+    for (const block of blocks.sort()) ops.push(msgpackBlock(m, rng, block)); // header first: its length moves the pages
     m.fixIndex = false;
     bytes = serialize(m);
   }

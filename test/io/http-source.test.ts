@@ -304,3 +304,117 @@ describe('an archive over HTTP', () => {
     expect(new Uint32Array((await a.read()).values.buffer)).toEqual(new Uint32Array(whole.values.buffer));
   });
 });
+
+describe('several ranges in one request (RFC 9110 section 14.6, multipart/byteranges, from memory)', () => {
+  const ranges = [
+    { offset: 10, length: 5 },
+    { offset: 4000, length: 1 },
+    { offset: 0, length: 0 },
+    { offset: 99_000, length: 1000 },
+  ];
+  const want = ranges.map((r) => bytes.subarray(r.offset, r.offset + r.length));
+
+  it('asks for them in one request and returns exactly the asked bytes', async () => {
+    const src = new HttpSource(`${server.url}/data.bin`, quick);
+    await src.size();
+    server.reset();
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(server.requests).toBe(1);
+    expect(server.log[0].ranges).toEqual([[10, 14], [4000, 4000], [99_000, 99_999]]);
+    expect(src.bytesFetched).toBe(1 + server.bytesSent);
+  });
+
+  it('places parts by their Content-Range: bytes that look like a delimiter inside a part do no harm', async () => {
+    // A file whose bytes hold the server's delimiter text for this very request.
+    const trap = new TextEncoder().encode(`\r\n--rankfield-test-3--\r\n`.repeat(20));
+    server.put('/trap.bin', trap);
+    const src = new HttpSource(`${server.url}/trap.bin`, quick);
+    await src.size(); // request 1
+    await src.read(0, 1); // request 2
+    const got = await src.readMany([{ offset: 0, length: 40 }, { offset: 100, length: 60 }]); // request 3
+    expect(got).toEqual([trap.subarray(0, 40), trap.subarray(100, 160)]);
+  });
+
+  it('a server that sends the whole file (200) instead is asked one range per request from then on', async () => {
+    server.multiRange = false;
+    try {
+      const src = new HttpSource(`${server.url}/data.bin`, quick);
+      await src.size();
+      server.reset();
+      expect(await src.readMany(ranges)).toEqual(want);
+      expect(src.multiRange).toBe(false);
+      // The multi-range request, then one request per non-empty range.
+      expect(server.log.map((a) => (a.ranges ? 'several' : a.range))).toEqual(['several', [10, 14], [4000, 4000], [99_000, 99_999]]);
+      server.reset();
+      expect(await src.readMany(ranges)).toEqual(want);
+      expect(server.requests).toBe(3);
+    } finally {
+      server.multiRange = true;
+    }
+  });
+
+  it('a server that answers one range covering them all is used, within the size allowed', async () => {
+    server.misbehave = (asked, _req, res, body) => {
+      if (asked.ranges === null) return false;
+      const a = Math.min(...asked.ranges.map((r) => r[0]));
+      const b = Math.max(...asked.ranges.map((r) => r[1]));
+      res.writeHead(206, { 'Content-Range': `bytes ${a}-${b}/${body.length}`, 'Content-Length': String(b - a + 1) });
+      res.end(body.subarray(a, b + 1));
+      return true;
+    };
+    const src = new HttpSource(`${server.url}/data.bin`, quick);
+    const near = [
+      { offset: 100, length: 10 },
+      { offset: 120, length: 10 },
+    ];
+    expect(await src.readMany(near)).toEqual(near.map((r) => bytes.subarray(r.offset, r.offset + r.length)));
+    expect(src.multiRange).toBe(true);
+    // Covering 10 and 99 000 would take about the whole file: more than asked allows, so one range per request.
+    server.reset();
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(src.multiRange).toBe(false);
+    expect(server.requests).toBe(4);
+  });
+
+  it('a multipart answer that breaks the syntax is not used: one range per request', async () => {
+    server.misbehave = (asked, _req, res) => {
+      if (asked.ranges === null) return false;
+      res.writeHead(206, { 'Content-Type': 'multipart/byteranges; boundary=XYZ' });
+      res.end('--XYZ\r\nContent-Range: bytes 10-14/100000\r\n\r\nabc');
+      return true;
+    };
+    const src = new HttpSource(`${server.url}/data.bin`, quick);
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(src.multiRange).toBe(false);
+  });
+
+  it('multi-range requests that get no answer twice in a row are not tried again', async () => {
+    server.misbehave = (asked, req) => {
+      if (asked.ranges === null) return false;
+      req.socket.destroy();
+      return true;
+    };
+    const src = new HttpSource(`${server.url}/data.bin`, quick);
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(src.multiRange).toBe(true);
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(src.multiRange).toBe(false);
+    server.reset();
+    expect(await src.readMany(ranges)).toEqual(want);
+    expect(server.log.every((a) => a.ranges === null)).toBe(true);
+  });
+
+  it('a multi-range answer showing the file changed is refused, not retried one by one', async () => {
+    const src = new HttpSource(`${server.url}/data.bin`, quick);
+    await src.size();
+    server.misbehave = (asked, _req, res) => {
+      if (asked.ranges === null) return false;
+      res.writeHead(206, { 'Content-Type': 'multipart/byteranges; boundary=XYZ', ETag: '"other"' });
+      res.end('--XYZ--\r\n');
+      return true;
+    };
+    const e = await failure(src.readMany(ranges));
+    expect(e).toBeInstanceOf(FormatError);
+    expect(e.message).toMatch(/changed on the server while being read/);
+  });
+});

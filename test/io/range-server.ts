@@ -1,7 +1,10 @@
 /**
- * A small HTTP file server on 127.0.0.1 for the tests: single byte ranges
- * as RFC 9110 section 14 describes them (206 with Content-Range, 416 beyond
- * the end), ETag and Last-Modified, and a count of the body bytes it sends.
+ * A small HTTP file server on 127.0.0.1 for the tests: byte ranges as RFC
+ * 9110 section 14 describes them (206 with Content-Range, 416 beyond the
+ * end; several ranges in one request answered as multipart/byteranges,
+ * section 14.6, unless `multiRange` is off, when the whole file is sent as
+ * servers without that support do), ETag and Last-Modified, and a count of
+ * the body bytes it sends.
  * A `misbehave` hook lets a test make it answer the way faulty servers do.
  */
 import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
@@ -13,8 +16,10 @@ import { extname, join, normalize } from 'node:path';
 export interface Asked {
   method: string;
   path: string;
-  /** [start, end] inclusive, or null for the whole file. */
+  /** [start, end] inclusive, or null for the whole file (or several ranges). */
   range: [number, number] | null;
+  /** Every range of a request for several, [start, end] inclusive each; null otherwise. */
+  ranges: [number, number][] | null;
   /** Requests served so far, this one included. */
   count: number;
 }
@@ -40,6 +45,8 @@ export interface RangeServer {
   log: Asked[];
   /** Set or clear the faulty behaviour. */
   misbehave: Misbehave | null;
+  /** Answer requests for several ranges with multipart/byteranges (default true); when false, with the whole file (200). */
+  multiRange: boolean;
   /** Zero the counters and the log. */
   reset(): void;
   close(): Promise<void>;
@@ -68,6 +75,20 @@ function parseRange(header: string | undefined, size: number): [number, number] 
   return [start, end];
 }
 
+/** Parse a `bytes=a-b,c-d,...` header of two or more ranges; null when it is not one (RFC 9110 section 14.1.2 syntax, spaces allowed around commas). */
+function parseRanges(header: string | undefined, size: number): [number, number][] | null {
+  if (header === undefined || !/^bytes=/.test(header.trim())) return null;
+  const items = header.trim().slice(6).split(',').map((x) => x.trim());
+  if (items.length < 2) return null;
+  const out: [number, number][] = [];
+  for (const item of items) {
+    const r = parseRange(`bytes=${item}`, size);
+    if (r === null) return null;
+    if (r !== 'unsatisfiable') out.push(r);
+  }
+  return out;
+}
+
 /** Start a server on 127.0.0.1 with an OS-chosen port. */
 export async function startRangeServer(): Promise<RangeServer> {
   const files = new Map<string, Uint8Array | { file: string }>();
@@ -90,6 +111,7 @@ export async function startRangeServer(): Promise<RangeServer> {
     requests: 0,
     log: [],
     misbehave: null,
+    multiRange: true,
     put: (path, content) => void files.set(path, content),
     mount: (prefix, dir) => void mounts.push([prefix, dir]),
     reset() {
@@ -116,8 +138,9 @@ export async function startRangeServer(): Promise<RangeServer> {
       return;
     }
     const body = entry instanceof Uint8Array ? entry : new Uint8Array(readFileSync(entry.file));
-    const parsed = parseRange(req.headers.range, body.length);
-    const asked: Asked = { method: req.method ?? 'GET', path, range: parsed === null || parsed === 'unsatisfiable' ? null : parsed, count: state.requests };
+    const several = parseRanges(req.headers.range, body.length);
+    const parsed = several !== null ? (state.multiRange ? 'several' : null) : parseRange(req.headers.range, body.length);
+    const asked: Asked = { method: req.method ?? 'GET', path, range: parsed === null || parsed === 'unsatisfiable' || parsed === 'several' ? null : parsed, ranges: several, count: state.requests };
     state.log.push(asked);
     if (state.misbehave?.(asked, req, res, body)) return;
     const common = {
@@ -127,6 +150,33 @@ export async function startRangeServer(): Promise<RangeServer> {
       'Last-Modified': 'Tue, 01 Dec 2026 12:00:00 GMT',
       'Cache-Control': 'no-store',
     };
+    if (parsed === 'several' && several !== null && several.length === 0) {
+      res.writeHead(416, { ...common, 'Content-Range': `bytes */${body.length}` });
+      res.end();
+      return;
+    }
+    if (parsed === 'several' && several !== null) {
+      // RFC 9110 section 14.6: one part per range, in the order asked, each with its Content-Range.
+      const boundary = `rankfield-test-${state.requests}`;
+      const enc = new TextEncoder();
+      const chunks: Uint8Array[] = [];
+      for (const [a, b] of several) {
+        chunks.push(enc.encode(`\r\n--${boundary}\r\nContent-Type: ${common['Content-Type']}\r\nContent-Range: bytes ${a}-${b}/${body.length}\r\n\r\n`));
+        chunks.push(body.subarray(a, b + 1));
+      }
+      chunks.push(enc.encode(`\r\n--${boundary}--\r\n`));
+      const total = chunks.reduce((n, c) => n + c.length, 0);
+      const out = new Uint8Array(total);
+      let at = 0;
+      for (const c of chunks) {
+        out.set(c, at);
+        at += c.length;
+      }
+      res.writeHead(206, { ...common, 'Content-Type': `multipart/byteranges; boundary=${boundary}`, 'Content-Length': String(total) });
+      if (req.method === 'HEAD') res.end();
+      else send(res, out);
+      return;
+    }
     if (parsed === 'unsatisfiable') {
       res.writeHead(416, { ...common, 'Content-Range': `bytes */${body.length}` });
       res.end();
@@ -138,6 +188,7 @@ export async function startRangeServer(): Promise<RangeServer> {
       else send(res, body);
       return;
     }
+    if (parsed === 'several') throw new Error('unreachable: several ranges were answered above');
     const [a, b] = parsed;
     res.writeHead(206, { ...common, 'Content-Length': String(b - a + 1), 'Content-Range': `bytes ${a}-${b}/${body.length}` });
     if (req.method === 'HEAD') res.end();

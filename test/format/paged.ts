@@ -1,0 +1,214 @@
+/**
+ * Version 2 archives taken apart and put back together for the tests: the
+ * layout spec/FORMAT.md documents (16-byte prologue; payloads written page
+ * by page; MessagePack header, index pages and index directory; 48-byte
+ * tail: u64 header offset, u32 length, u32 CRC, u64 directory offset, u32
+ * length, u32 CRC, u16 version, u16 flags, u32 CRC of the 36 bytes before,
+ * 8 magic bytes, little-endian). The index is edited as one "logical" index
+ * (per field, columns over all tiles in tile order, as version 1 stored it)
+ * and split into pages again on the way back, so that an edit of tile t
+ * lands in the page that holds t. Parsing trusts its input: always an
+ * archive this library wrote.
+ */
+import { decode, encode } from '@msgpack/msgpack';
+import { crc32 } from '../../src/format/crc32.js';
+
+/**
+ * A decoded MessagePack block (header, index directory or page) that the
+ * container tests and the fuzzer edit and reshape at will: any member may
+ * become any value, so it is typed loosely on purpose, and this is the one
+ * place of the test helpers that says `any`.
+ */
+// biome-ignore lint/suspicious/noExplicitAny: a decoded block whose shape tests change freely (comment above)
+export type Block = any;
+
+export const PROLOGUE = 16;
+export const TAIL = 48;
+export const COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc', 'prefix'] as const;
+
+/** Where the tail says the header and the index directory are. */
+export interface Layout {
+  headerOffset: number;
+  headerLength: number;
+  dirOffset: number;
+  dirLength: number;
+  tailOffset: number;
+}
+
+export function layout(b: Uint8Array): Layout {
+  const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
+  const t = b.length - TAIL;
+  return {
+    headerOffset: d.getUint32(t, true) + d.getUint32(t + 4, true) * 2 ** 32,
+    headerLength: d.getUint32(t + 8, true),
+    dirOffset: d.getUint32(t + 16, true) + d.getUint32(t + 20, true) * 2 ** 32,
+    dirLength: d.getUint32(t + 24, true),
+    tailOffset: t,
+  };
+}
+
+/** A field's tile and page grid, as parsed from the seed archive (edits of the header do not move pages). */
+export interface Grid {
+  rows: number;
+  cols: number;
+  tileRows: number;
+  tileCols: number;
+  slices: number;
+  page: [number, number];
+}
+
+/** The field tile numbers of page p, in page order (spec/FORMAT.md, section 7). */
+export function pageTiles(g: Grid, p: number): number[] {
+  const gr = Math.ceil(g.rows / g.tileRows);
+  const gc = Math.ceil(g.cols / g.tileCols);
+  const pr = Math.ceil(gr / g.page[0]);
+  const pc = Math.ceil(gc / g.page[1]);
+  const s = Math.floor(p / (pr * pc));
+  const pi = Math.floor((p % (pr * pc)) / pc);
+  const pj = p % pc;
+  const out: number[] = [];
+  for (let ti = pi * g.page[0]; ti < Math.min(gr, (pi + 1) * g.page[0]); ti++) for (let tj = pj * g.page[1]; tj < Math.min(gc, (pj + 1) * g.page[1]); tj++) out.push(s * gr * gc + ti * gc + tj);
+  return out;
+}
+
+export function pageCount(g: Grid): number {
+  const gr = Math.ceil(g.rows / g.tileRows);
+  const gc = Math.ceil(g.cols / g.tileCols);
+  return g.slices * Math.ceil(gr / g.page[0]) * Math.ceil(gc / g.page[1]);
+}
+
+/** An archive in parts. */
+export interface Parts {
+  /** Bytes 0 .. end of the payloads (prologue and payloads). */
+  front: Uint8Array;
+  header: Block;
+  /** The directory, decoded. */
+  dir: Block;
+  /** The index pages, decoded, per field. */
+  pages: Block[][];
+  grids: Grid[];
+}
+
+export function split(b: Uint8Array): Parts {
+  const l = layout(b);
+  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as Block;
+  const dir = decode(b.subarray(l.dirOffset, l.dirOffset + l.dirLength)) as Block;
+  let end = Math.min(l.headerOffset, l.dirOffset);
+  const pages = dir.fields.map((f: Block) =>
+    f.page_offset.map((o: number, p: number) => {
+      end = Math.min(end, o);
+      return decode(b.subarray(o, o + f.page_length[p]));
+    }),
+  );
+  const grids = header.fields.map((h: Block, i: number): Grid => ({ rows: h.shape[0], cols: h.shape[1], tileRows: h.tile[0], tileCols: h.tile[1], slices: h.slices ?? 1, page: dir.fields[i].page }));
+  return { front: b.slice(0, end), header, dir, pages, grids };
+}
+
+/** The logical index: per field, every column over all tiles in tile order, and the summary. */
+export function joinIndex(p: Parts): Block {
+  return {
+    fields: p.dir.fields.map((f: Block, i: number) => {
+      const out: Block = {};
+      for (const c of COLUMNS) {
+        if (!p.pages[i].some((pg: Block) => c in pg)) continue;
+        out[c] = [];
+        p.pages[i].forEach((pg: Block, k: number) => pageTiles(p.grids[i], k).forEach((t, j) => (out[c][t] = pg[c][j])));
+      }
+      out.summary = f.summary;
+      return out;
+    }),
+  };
+}
+
+/** Split a logical index into pages with the grids of `p` (values a test made hostile pass through). */
+export function splitIndex(index: Block, p: Parts): { pages: Block[][]; dirFields: Block[]; dirExtra: Record<string, unknown> } {
+  const fields: Block[] = Array.isArray(index?.fields) ? index.fields : [];
+  const dirExtra: Record<string, unknown> = {};
+  if (typeof index === 'object' && index !== null) for (const [k, v] of Object.entries(index)) if (k !== 'fields') dirExtra[k] = v;
+  const pages: Block[][] = [];
+  const dirFields = fields.map((f: Block, i: number) => {
+    const g = p.grids[Math.min(i, p.grids.length - 1)];
+    const orig = p.dir.fields[Math.min(i, p.dir.fields.length - 1)];
+    const d: Block = { page: g.page, data_offset: orig.data_offset.slice(), data_length: orig.data_length.slice() };
+    const list: Block[] = [];
+    if (typeof f !== 'object' || f === null) {
+      pages.push(list);
+      return f;
+    }
+    for (let k = 0; k < pageCount(g); k++) {
+      const tiles = pageTiles(g, k);
+      const pg: Block = {};
+      for (const c of COLUMNS) {
+        if (!(c in f)) continue;
+        const col = f[c];
+        pg[c] = Array.isArray(col) ? tiles.filter((t) => t < col.length).map((t) => col[t]) : col;
+      }
+      list.push(pg);
+    }
+    pages.push(list);
+    for (const [k, v] of Object.entries(f)) if (!(COLUMNS as readonly string[]).includes(k)) d[k] = v;
+    return d;
+  });
+  return { pages, dirFields, dirExtra };
+}
+
+/** Options of {@link assemble}. */
+export interface Assembly {
+  front: Uint8Array;
+  headerBytes: Uint8Array;
+  /** Encoded pages per field (each listed in the directory in this order). */
+  pageBytes: Uint8Array[][];
+  /** Directory field maps without the page_offset, page_length, page_crc columns (added here); non-objects pass as they are. */
+  dirFields: Block[];
+  dirExtra?: Record<string, unknown>;
+  /** Replace the encoded directory. */
+  dirBytes?: (b: Uint8Array) => Uint8Array;
+  /** Page CRCs as the directory states them (default: computed). */
+  pageCrc?: (field: number, page: number, crc: number) => number;
+}
+
+/** Put an archive together: front, header, pages, directory, tail, every offset and CRC computed. */
+export function assemble(a: Assembly, encodeValue: (v: unknown) => Uint8Array = (v) => encode(v)): Uint8Array {
+  let pos = a.front.length;
+  const headerAt = pos;
+  pos += a.headerBytes.length;
+  const fields = a.dirFields.map((f, i) => {
+    const list = a.pageBytes[i] ?? [];
+    const offs: number[] = [];
+    const lens: number[] = [];
+    const crcs: number[] = [];
+    list.forEach((b, k) => {
+      offs.push(pos);
+      lens.push(b.length);
+      crcs.push(a.pageCrc ? a.pageCrc(i, k, crc32(b)) : crc32(b));
+      pos += b.length;
+    });
+    if (typeof f !== 'object' || f === null) return f;
+    const { page, ...rest } = f;
+    return { page, page_offset: offs, page_length: lens, page_crc: crcs, ...rest };
+  });
+  let db = encodeValue({ fields, ...(a.dirExtra ?? {}) });
+  if (a.dirBytes) db = a.dirBytes(db);
+  const dirAt = pos;
+  const size = pos + db.length + TAIL;
+  const out = new Uint8Array(size);
+  out.set(a.front);
+  out.set(a.headerBytes, headerAt);
+  let at = headerAt + a.headerBytes.length;
+  for (const list of a.pageBytes) for (const b of list) out.set(b, at), (at += b.length);
+  out.set(db, dirAt);
+  const d = new DataView(out.buffer);
+  const t = size - TAIL;
+  const front = new DataView(a.front.buffer, a.front.byteOffset);
+  d.setUint32(t, headerAt, true);
+  d.setUint32(t + 8, a.headerBytes.length, true);
+  d.setUint32(t + 12, crc32(a.headerBytes), true);
+  d.setUint32(t + 16, dirAt, true);
+  d.setUint32(t + 24, db.length, true);
+  d.setUint32(t + 28, crc32(db), true);
+  d.setUint16(t + 32, front.getUint16(8, true), true);
+  d.setUint16(t + 34, front.getUint16(10, true), true);
+  d.setUint32(t + 36, crc32(out.subarray(t, t + 36)), true);
+  out.set([0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a], t + 40);
+  return out;
+}
