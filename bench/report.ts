@@ -180,11 +180,11 @@ export function renderResults(info: RunInfo): string {
   lines.push('');
   for (const f of info.fields) lines.push(summaryLine(info, q, f.id));
   lines.push('');
-  const qa = quotients(info, 'rankfield-auto');
+  const qa = quotients(info, 'rankfield-64');
   if (qa.some((c) => c.rankfield)) {
-    lines.push('With `tile: \'auto\'` (the tile shape chosen by trial on a sample):');
+    lines.push('With fixed 64 x 64 tiles (`tile: 64`, the cheapest window reads):');
     lines.push('');
-    for (const f of info.fields) if (qa.some((c) => c.field === f.id && c.rankfield)) lines.push(summaryLine(info, qa, f.id, 'rankfield-auto'));
+    for (const f of info.fields) if (qa.some((c) => c.field === f.id && c.rankfield)) lines.push(summaryLine(info, qa, f.id, 'rankfield-64'));
     lines.push('');
   }
   const ranked = q.filter((c) => c.value !== null).sort((a, b) => (a.value as number) - (b.value as number));

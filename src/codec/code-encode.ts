@@ -121,7 +121,11 @@ export function encodeInts(values: Int32Array, m: number, n: number, codes: Uint
   for (let i = 0; i < m; i++) {
     for (let j = 0; j < n; j++) {
       const c = i * n + j;
-      if (codes !== null && codes[c] !== Cell.Valid) continue;
+      if (codes !== null && codes[c] !== Cell.Valid) {
+        // The decoder sets skipped cells to 0: anything else would not round-trip.
+        if (values[c] !== 0) throw new Error(`internal: skipped cell ${c} holds ${values[c]}, not 0`);
+        continue;
+      }
       const left = j > 0 ? values[c - 1] : 0;
       const up = i > 0 ? values[c - n] : 0;
       const upLeft = i > 0 && j > 0 ? values[c - n - 1] : 0;

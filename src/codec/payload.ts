@@ -17,13 +17,12 @@ export const Flag = {
   Mask: 1,
   Residual: 2,
   Exceptions: 4,
-  Lorenzo: 8,
   /** Factor codes are stored as first differences along each factor vector. */
   FactorDelta: 16,
 } as const;
 
 /** All flag bits this version defines; any other bit set is refused. */
-export const KNOWN_FLAGS = 0x1f;
+export const KNOWN_FLAGS = 0x17;
 
 /**
  * Byte lengths of the progressive prefixes of a LowRank payload: entry k is
@@ -78,8 +77,8 @@ export function payloadShares(payload: Uint8Array): PayloadShares | null {
   let residual = 0;
   let exceptions = 0;
   if (payload[1] & Flag.Residual) {
-    if (at + 12 > payload.length) return null;
-    residual = 12 + view.getUint32(at + 8, true);
+    if (at + 13 > payload.length) return null;
+    residual = 13 + view.getUint32(at + 9, true);
     at += residual;
   }
   if (payload[1] & Flag.Exceptions) {

@@ -8,7 +8,7 @@ import { printable } from '../format/schema.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
 import { Flag, KNOWN_FLAGS, Method } from './payload.js';
-import { addResidual, lowRank, roundTo, unpredict } from './reconstruct.js';
+import { addResidual, lowRank, MAX_PREDICTOR, roundTo, unpredict } from './reconstruct.js';
 import { CodeStreamError, decodeClasses, decodeInts } from './code-decode.js';
 import { MAX_INT, readSection } from './section.js';
 import { stepValue } from './steps.js';
@@ -89,7 +89,6 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   }
   const center = r.f64('center');
   if (!Number.isFinite(center)) throw malformed(where, `centre ${center} at ${r.unit} ${r.offset - 8} is not finite`);
-  if (flags & Flag.Lorenzo && !(flags & Flag.Residual)) throw malformed(where, 'prediction flag without a residual');
   if (flags & Flag.FactorDelta && rank === 0) throw malformed(where, 'factor difference flag on a payload of rank 0');
 
   let codes: Uint8Array = new Uint8Array(cells);
@@ -130,7 +129,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (prefix) {
     // A prefix ends after its last factor group: no residual, no exceptions.
     if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the prefix's factor groups, from ${r.unit} ${r.offset}`);
-    flags &= ~(Flag.Residual | Flag.Exceptions | Flag.Lorenzo);
+    flags &= ~(Flag.Residual | Flag.Exceptions);
   }
   const { l, w } = factors;
 
@@ -140,9 +139,11 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (flags & Flag.Residual) {
     step = r.f64('residual step');
     if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${r.offset - 8} is not a positive finite number`);
+    const predictor = r.u8('residual predictor');
+    if (predictor > MAX_PREDICTOR) throw malformed(where, `residual predictor ${predictor} at ${r.unit} ${r.offset - 1} is not one of 0..${MAX_PREDICTOR}`);
     q = new Int32Array(cells);
     readCoded(r, 'residual', m, n, flags & Flag.Mask ? codes : null, q, where);
-    if (flags & Flag.Lorenzo && !unpredict(q, m, n, MAX_INT)) throw malformed(where, 'residual exceeds 2^30 after prediction');
+    if (!unpredict(q, m, n, MAX_INT, predictor)) throw malformed(where, 'a residual code exceeds 2^30 after prediction');
   }
 
   let cellsAt = new Uint32Array(0);

@@ -8,7 +8,10 @@ import { solveSpd } from '../linalg/svd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { Flag, Method } from './payload.js';
-import { addResidual, lowRank, predict, roundTo } from './reconstruct.js';
+import { addResidual, lowRank, predict, predictedFill, Predictor, roundTo } from './reconstruct.js';
+
+/** Predictors tried for the residual, besides none. */
+const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median];
 import { encodeInts } from './code-encode.js';
 import { MAX_INT, writeSection } from './section.js';
 import { MIN_STEP, stepCode, stepValue } from './steps.js';
@@ -108,7 +111,8 @@ interface Correction {
   center: number;
   step: number;
   q: Int32Array | null;
-  lorenzo: boolean;
+  /** The predictor of the residual codes (reconstruct.ts Predictor). */
+  predictor: number;
   exceptions: number[];
 }
 
@@ -154,7 +158,6 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
   if (t.maskSection.length > 0) flags |= Flag.Mask;
   const hasResidual = corr !== null && corr.q !== null;
   if (hasResidual) flags |= Flag.Residual;
-  if (hasResidual && corr.lorenzo) flags |= Flag.Lorenzo;
   if (corr !== null && corr.exceptions.length > 0) flags |= Flag.Exceptions;
   if (delta) flags |= Flag.FactorDelta;
   const w = new ByteWriter(64 + t.maskSection.length + (hasResidual ? (m * n) / 2 : 0) + (f ? rank * (m + n) : 0));
@@ -183,6 +186,7 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
   } else w.u8(0);
   if (hasResidual && corr.q) {
     w.f64(corr.step);
+    w.u8(corr.predictor);
     const coded = encodeInts(corr.q, m, n, t.classes.special > 0 ? t.classes.codes : null);
     w.u32(coded.length);
     w.bytes(coded);
@@ -218,23 +222,6 @@ export function groupSizes(rank: number, grouping: 'one' | 'doubling'): number[]
   return out;
 }
 
-/** A copy of q whose missing cells hold their 2-D Lorenzo prediction, in raster order. */
-function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: number): Int32Array {
-  const out = q.slice();
-  for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      const c = i * n + j;
-      if (codes[c] === Cell.Valid) continue;
-      const up = i > 0 ? out[c - n] : 0;
-      const left = j > 0 ? out[c - 1] : 0;
-      const diag = i > 0 && j > 0 ? out[c - n - 1] : 0;
-      const p = up + left - diag;
-      out[c] = Math.abs(p) <= MAX_INT ? p : 0;
-    }
-  }
-  return out;
-}
-
 /** Sum of bit lengths of |v|: a cheap stand-in for coded size, to pick a predictor. */
 function roughBits(v: Int32Array): number {
   let s = 0;
@@ -258,7 +245,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 
   else base.fill(center);
   const codes = t.classes.codes;
   let q: Int32Array | null = null;
-  let lorenzo = false;
+  let predictor: number = Predictor.None;
   const acc = base.slice();
   if (e > 0 && Number.isFinite(step)) {
     q = new Int32Array(cells);
@@ -273,15 +260,25 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 
     }
     if (!any) q = null;
     else {
-      // Missing cells take the value the predictor expects, so they cost nothing
-      // after prediction (the decoder overwrites them anyway).
-      const qp = t.classes.special > 0 ? predictedFill(q, codes, m, n) : q;
-      const d = predict(qp, m, n, MAX_INT);
-      if (d && roughBits(d) < roughBits(q)) {
-        addResidual(acc, qp, step);
-        q = d;
-        lorenzo = true;
-      } else addResidual(acc, q, step);
+      // The predictor whose residual looks cheapest. Missing cells take the value the
+      // predictor expects, so they cost nothing (the decoder overwrites them anyway).
+      let best = q;
+      let bestFilled = q;
+      let bestBits = roughBits(q);
+      for (const kind of PREDICTORS) {
+        const qp = t.classes.special > 0 ? predictedFill(q, codes, m, n, MAX_INT, kind) : q;
+        const d = predict(qp, m, n, MAX_INT, kind);
+        if (!d) continue;
+        const bits = roughBits(d);
+        if (bits < bestBits) {
+          best = d;
+          bestFilled = qp;
+          bestBits = bits;
+          predictor = kind;
+        }
+      }
+      addResidual(acc, bestFilled, step);
+      q = best;
     }
   }
   const out = t.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
@@ -291,7 +288,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 
     if (codes[c] !== Cell.Valid) continue;
     if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
   }
-  return { center, step, q, lorenzo, exceptions };
+  return { center, step, q, predictor, exceptions };
 }
 
 /**
