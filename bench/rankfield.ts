@@ -48,12 +48,6 @@ export interface Breakdown {
   total: number;
 }
 
-/** Read a u32 little-endian at `at`. */
-function u32(b: Uint8Array, at: number): number {
-  if (at + 4 > b.length) throw new Error('rankfield payload shorter than its sections');
-  return (b[at] | (b[at + 1] << 8) | (b[at + 2] << 16) | (b[at + 3] << 24)) >>> 0;
-}
-
 /** Split one tile payload; returns [factors, residual] bytes (the rest is metadata). */
 export function splitPayload(p: Uint8Array): [number, number] {
   const shares = payloadShares(p);

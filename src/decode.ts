@@ -1,8 +1,9 @@
 /**
  * The decoding entry point, `rankfield/decode`: open archives and read
- * fields or windows of them from memory, any {@link ByteSource}, or an
- * http(s) URL. Nothing in its import graph uses Node built-ins, so it runs
- * in browsers, workers and other JavaScript runtimes with `fetch`.
+ * fields or windows of them from bytes in memory or any {@link ByteSource};
+ * `open` takes no URL, so to read over http(s) give it an
+ * {@link HttpSource}. Nothing in its import graph uses Node built-ins, so it
+ * runs in browsers, workers and other JavaScript runtimes with `fetch`.
  */
 export { open, Archive, type FieldValues, type ReadOptions, type OpenOptions, type CheckReport, type CheckFailure, type TileEntry } from './archive.js';
 export { MemorySource, readRanges, coalesce, DEFAULT_MAX_GAP, type ByteSource, type ByteRange, type CoalesceOptions, type MergedRead } from './format/source.js';

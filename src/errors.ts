@@ -1,9 +1,14 @@
 /**
- * The two error types of rankfield. Every failure the library reports is one
- * of these: {@link FormatError} when bytes claiming to be an archive are not a
- * valid one, {@link InputError} when a caller's values, shape or options are
- * unusable. Each carries a stable `code` from the tables below, and a message
- * that says what is wrong and where.
+ * The two error types of rankfield. Every failure the library itself reports
+ * is one of these: {@link FormatError} when bytes claiming to be an archive
+ * are not a valid one, {@link InputError} when a caller's values, shape,
+ * options or calls are unusable. Each carries a stable `code` from the tables
+ * below, and a message that says what is wrong and where.
+ *
+ * Two other kinds pass through: errors of the file system as Node reports
+ * them (FileSource, a file sink: ENOENT, EACCES, ...), and whatever a
+ * caller's own ByteSource, Sink or band callback throws. Any other error is
+ * an internal assertion that no input should reach: a bug in rankfield.
  */
 
 /** Codes of {@link FormatError}: what is wrong with an archive's bytes. */

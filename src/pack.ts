@@ -123,6 +123,7 @@ export class ArchiveBuilder {
   private readonly writer: ContainerWriter;
   private readonly fields: FieldHeader[] = [];
   private readonly indexes: FieldIndex[] = [];
+  private finished = false;
   private readonly pages: [number, number][] = [];
 
   constructor(sink: Sink, private readonly attrs: Attrs = {}, options: BuilderOptions = {}) {
@@ -133,6 +134,7 @@ export class ArchiveBuilder {
 
   /** Encode and append one field held in memory (row-major). */
   add(values: FloatArray | number[], shape: readonly number[], o: PackOptions): FieldHeader {
+    this.refuseAfterFinish(o.name);
     const { spec, data, page } = options(values, shape, o);
     return this.encode(memoryBands(data, spec.cols), spec, o, page);
   }
@@ -143,11 +145,14 @@ export class ArchiveBuilder {
    * called more than once for the same rows (range pass, L2 planning).
    */
   addBands(band: (r0: number, count: number) => FloatArray, shape: readonly number[], dtype: Dtype, o: PackOptions): FieldHeader {
+    this.refuseAfterFinish(o.name);
     const { spec, page } = options(new Float32Array(0), shape, { ...o, dtype }, false);
     const check: BandSource = {
       band: (r0, count) => {
+        // Internal assertion: the rows are the encoder's own request, always within the
+        // field, so no input reaches this; it guards the caller's callback against a bug here.
+        if (r0 < 0 || r0 + count > (spec.slices ?? 1) * spec.rows) throw new Error(`band rows ${r0}..${r0 + count} asked outside the field`);
         const b = band(r0, count);
-        if (r0 < 0 || r0 + count > (spec.slices ?? 1) * spec.rows) throw new Error(`band rows ${r0}..${r0 + count} outside the field`);
         if (b.length !== count * spec.cols || !(dtype === 'f32' ? b instanceof Float32Array : b instanceof Float64Array)) {
           throw new InputError(InputCode.Shape, `band of rows ${r0}..${r0 + count} holds ${b.length} ${b.constructor.name} values, not ${count * spec.cols} ${dtype}`);
         }
@@ -155,6 +160,11 @@ export class ArchiveBuilder {
       },
     };
     return this.encode(check, spec, o, page);
+  }
+
+  /** Refuse a field after finish(): appended after the tail, it would leave an archive that does not open. */
+  private refuseAfterFinish(name: string | undefined): void {
+    if (this.finished) throw new InputError(InputCode.Option, `field '${name ?? 'field'}' cannot be added: finish() has already written the archive's header, index and tail`);
   }
 
   private encode(src: BandSource, spec: FieldSpec, o: PackOptions, page: [number, number]): FieldHeader {
@@ -223,8 +233,10 @@ export class ArchiveBuilder {
     return header;
   }
 
-  /** Write header, index and tail. */
+  /** Write header, index and tail. The builder takes no field after this, and finishes once. */
   finish(): void {
+    if (this.finished) throw new InputError(InputCode.Option, 'finish() was already called: the archive is complete');
+    this.finished = true;
     const header: ArchiveHeader = { format: 'rankfield', version: VERSION, writer: `rankfield ${VERSION_STRING}`, attrs: this.attrs, fields: this.fields };
     this.writer.finish(header, { fields: this.indexes }, this.pages);
   }

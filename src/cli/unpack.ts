@@ -202,7 +202,7 @@ async function checkFolder(path: string): Promise<void> {
 function fileNames(names: string[]): string[] {
   const used = new Set<string>();
   return names.map((n) => {
-    let base = n.replace(/[^A-Za-z0-9._-]/g, '_').replace(/^\.+/, '_').slice(0, 200) || 'field';
+    const base = n.replace(/[^A-Za-z0-9._-]/g, '_').replace(/^\.+/, '_').slice(0, 200) || 'field';
     let name = `${base}.npy`;
     for (let k = 2; used.has(name.toLowerCase()); k++) name = `${base}-${k}.npy`;
     used.add(name.toLowerCase());

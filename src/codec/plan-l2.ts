@@ -7,13 +7,11 @@
  * by construction and tiles can be written as they are finished.
  */
 import { forEachTile, measure, type BandSource, type FieldSpec } from './field.js';
-import { energyOf, ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
+import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { encodeL2, encodePointwise, exactPayload } from './tile-encode.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
-/** Singular values computed per tile in the first pass (all of them: an uncomputed tail can only be cut whole). */
-const L2_RANK = Infinity;
 /** Tiles costed per candidate plan. */
 const SAMPLE_TILES = 48;
 /** Prepared tiles are kept between passes for fields up to this many cells. */
@@ -39,24 +37,14 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   const keep = (spec.slices ?? 1) * spec.rows * spec.cols <= KEEP_CELLS;
   const kept: PreparedTile[] = [];
   const sv2: Float64Array[] = [];
-  const tails: number[] = [];
   const dims: [number, number, number][] = [];
   forEachTile(src, spec, (_index, tile, m, n) => {
     const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
     // Squared singular values in units of tol^2, so nothing overflows.
     const usable = t.valid > 0 && t.finite;
-    // The full spectrum: cutting the field-wide smallest values needs every one of them.
-    const s = usable ? ensureSvd(t, L2_RANK).s : new Float64Array(0);
-    const v2 = s.map((v) => (v / tol) * (v / tol));
-    sv2.push(v2);
-    // Energy beyond the computed singular values (zero when the SVD is complete).
-    let tail = 0;
-    if (usable && s.length < Math.min(m, n)) {
-      let kept = 0;
-      for (const x of v2) kept += x;
-      tail = Math.max(0, energyOf(t) / tol / tol - kept);
-    }
-    tails.push(tail);
+    // The full spectrum (ensureSvd's default): cutting the field-wide smallest values needs every one of them.
+    const s = usable ? ensureSvd(t).s : new Float64Array(0);
+    sv2.push(s.map((v) => (v / tol) * (v / tol)));
     dims.push([m, n, t.valid]);
     if (keep) kept.push(t);
   });
@@ -66,7 +54,7 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   const budget = valid; // N x tol^2, in units of tol^2
   const plans: Plan[] = [];
   for (const share of TRUNCATION_SHARES) {
-    const p = eckartYoungPlan(sv2, tails, dims, budget, share, tol);
+    const p = eckartYoungPlan(sv2, dims, budget, share, tol);
     if (p) plans.push(p);
   }
   // Residual plan: the pointwise coder at E' with uniform quantization error
@@ -139,25 +127,19 @@ function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, 
  */
 function eckartYoungPlan(
   sv2: Float64Array[],
-  tails: number[],
   dims: [number, number, number][],
   budget: number,
   share: number,
   tol: number,
 ): Plan | null {
-  // Cuts per tile, smallest first: the uncomputed tail as one lump (full rank -> k), then each
-  // computed singular value. Keys are made non-decreasing within a tile so that a global
-  // ascending order never cuts a tile's larger value before its smaller ones.
+  // Cuts per tile, smallest singular value first (every tile's spectrum is complete). Keys are
+  // made non-decreasing within a tile so that a global ascending order never cuts a tile's
+  // larger value before its smaller ones.
   const order: [number, number, number][] = []; // [key, tile, squared value]
   const ranks: number[] = [];
   sv2.forEach((s, t) => {
-    const [m, n] = dims[t];
     let key = 0;
-    if (tails[t] > 0) {
-      key = tails[t];
-      order.push([key, t, tails[t]]);
-      ranks.push(Math.min(m, n));
-    } else ranks.push(s.length);
+    ranks.push(s.length);
     for (let k = s.length - 1; k >= 0; k--) {
       key = Math.max(key, s[k]);
       order.push([key, t, s[k]]);
@@ -176,7 +158,7 @@ function eckartYoungPlan(
     }
     total += v2;
     cut[t] += v2;
-    ranks[t] = ranks[t] > sv2[t].length ? sv2[t].length : ranks[t] - 1;
+    ranks[t] -= 1;
   }
   const q = (budget - total) * 0.9;
   // Half of q to each factor, as uniform rounding noise step^2 / 12 per coefficient:

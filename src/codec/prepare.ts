@@ -180,12 +180,3 @@ export function ensureSvd(t: PreparedTile, need = Infinity): Svd {
 /** Singular triplets computed first; more are computed when a search needs them. */
 export const PARTIAL_RANK = 16;
 
-/** Squared Frobenius norm of a tile's centred values. */
-export function energyOf(t: PreparedTile): number {
-  const s = ensureSvd(t);
-  if ('frob2' in s) return (s as Svd & { frob2: number }).frob2;
-  let e = 0;
-  for (let k = 0; k < s.k; k++) e += s.s[k] * s.s[k];
-  return e;
-}
-

@@ -34,7 +34,12 @@ export function stepValue(code: number, where = 'step'): number {
 /** Smallest representable step: 8 x 2^(MIN_EXP - 3). */
 export const MIN_STEP = 8 * pow2(MIN_EXP - 3);
 
-/** The code of the largest representable step not above `target` (>= MIN_STEP). */
+/**
+ * The code of the largest representable step not above `target` (>= MIN_STEP).
+ * The RangeErrors below are internal assertions: the one caller,
+ * quantizeFactors (tile-encode.ts), passes only finite targets >= MIN_STEP,
+ * so no input to pack() reaches them.
+ */
 export function stepCode(target: number): number {
   if (!(target > 0)) throw new RangeError('step target must be positive');
   let exp = Math.floor(Math.log2(target));

@@ -4,7 +4,7 @@
  * structure of the header and index; it knows nothing of how tiles are coded.
  */
 import { Decoder, encode } from '@msgpack/msgpack';
-import { FormatCode, FormatError } from '../errors.js';
+import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
 import { readRanges, type ByteSource, type CoalesceOptions } from './source.js';
@@ -47,7 +47,7 @@ export class MemorySink implements Sink {
     this.size += bytes.length;
   }
   patch(offset: number, bytes: Uint8Array): void {
-    if (offset < 0 || offset + bytes.length > this.size) throw new RangeError(`patch ${offset}+${bytes.length} lies outside the ${this.size} bytes written`);
+    if (offset < 0 || offset + bytes.length > this.size) throw new InputError(InputCode.Option, `patch ${offset}+${bytes.length} lies outside the ${this.size} bytes written`);
     let at = 0;
     for (const p of this.parts) {
       const lo = Math.max(offset, at);
@@ -134,6 +134,7 @@ export class ContainerWriter {
    * page's payloads lie back to back.
    */
   finish(header: ArchiveHeader, index: ArchiveIndex, pages: readonly (readonly number[])[]): void {
+    // Internal assertion: ArchiveBuilder.finish() refuses a second call first, so no input reaches this.
     if (this.finished) throw new Error('archive already finished');
     this.finished = true;
     const h = encode(headerForDisk(header));

@@ -478,6 +478,7 @@ export function writeNetcdf(file: NcWriteFile): Uint8Array {
     return numbersOf(v, c.slabCounts[i] * (c.isRecord[i] ? c.numRecords : 1), rowLength);
   });
   const header = buildHeader(file, c, layout.format, layout.begins);
+  // Internal assertion: both passes lay out the same header, so no input reaches this.
   if (header.length !== layout.headerBytes) throw new Error('NetCDF writer: header size changed between passes');
   let out: Uint8Array;
   try {

@@ -1,8 +1,9 @@
 /**
  * Dense thin SVD by one-sided Jacobi rotations (Hestenes), preconditioned by
- * a rank-revealing pivoted QR, and a small symmetric positive (semi)definite
- * solver. Everything works on flat, row-major Float64Arrays and is
- * deterministic: the same input gives bit-identical output on every run.
+ * a rank-revealing pivoted QR. It works on flat, row-major Float64Arrays and
+ * is deterministic: the same input gives bit-identical output on every run.
+ * The small symmetric positive (semi)definite solver is in spd.ts and the
+ * truncated SVD in truncated.ts; both are re-exported here.
  */
 
 import { jacobi } from './jacobi.js';

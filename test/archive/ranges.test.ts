@@ -8,6 +8,7 @@ import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { FormatError, InputError, MemorySource, type ByteSource } from '../../src/index.js';
 import { coalesce, readRanges } from '../../src/format/source.js';
+import { expectSameBytes } from '../same-bytes.js';
 
 const bytes = Uint8Array.from({ length: 1 << 16 }, (_, i) => (i * 131 + (i >> 9)) & 0xff);
 
@@ -110,7 +111,7 @@ describe('readRanges', () => {
         async (pairs, maxGap) => {
           const ranges = pairs.map(([o, l]) => ({ offset: o, length: Math.min(l, bytes.length - o) }));
           const got = await readRanges(new MemorySource(bytes), ranges, { maxGap, maxWaste: 1 });
-          ranges.forEach((r, i) => expect(got[i]).toEqual(bytes.subarray(r.offset, r.offset + r.length)));
+          ranges.forEach((r, i) => expectSameBytes(got[i], bytes.subarray(r.offset, r.offset + r.length), `range ${i}`));
         },
       ),
       { numRuns: 100, seed: 11 },

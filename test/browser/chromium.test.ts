@@ -101,6 +101,8 @@ describe.skipIf(!PRESENT && !REQUIRED)('the decoder in headless Chromium', () =>
     page.on('console', (m) => void (m.type() === 'error' && errors.push(`console: ${m.text()}`)));
     await page.goto(`${server.url}/index.html`);
     await page.waitForFunction(() => (window as unknown as { ready?: boolean }).ready === true, undefined, { timeout: 20_000 });
+    // Explicit limits in this file: starting Chromium and loading the page take seconds,
+    // and each test then decodes inside the browser over HTTP; a busy machine multiplies both.
   }, 60_000);
 
   afterAll(async () => {

@@ -35,6 +35,15 @@ export interface RunResult {
   stderr: string;
 }
 
+/**
+ * The time limit of command-line tests that start several `node bin/rankfield`
+ * processes. Each costs 0.3-1 s on this 2-core machine when idle (start-up,
+ * a worker thread and a cold JIT), several times that when the machine is
+ * busy, so a test that starts three or four passes vitest's 5 s default
+ * there; the limit is set explicitly for that reason.
+ */
+export const CLI_TIMEOUT = 30_000;
+
 /** Run `node bin/rankfield ...args` in `cwd`. */
 export function rf(args: string[], cwd: string, env: NodeJS.ProcessEnv = {}): RunResult {
   const r = spawnSync(process.execPath, [BIN, ...args], { cwd, encoding: 'utf8', env: { ...process.env, ...env }, timeout: 60_000 });

@@ -15,7 +15,7 @@ import { parseNpy } from '../../src/io/npy.js';
 import { readNetcdfHeader, readNetcdfVariable, type NcFile, type NcVariable } from '../../src/io/netcdf-read.js';
 import { writeNetcdf } from '../../src/io/netcdf-write.js';
 import { NC_TYPE_SIZE } from '../../src/io/netcdf-types.js';
-import { ROOT, ensureBuilt, expectCliError, leftovers, rf, tempDir } from './helpers.js';
+import { CLI_TIMEOUT, ROOT, ensureBuilt, expectCliError, leftovers, rf, tempDir } from './helpers.js';
 
 const FIX = join(ROOT, 'test', 'fixtures', 'netcdf');
 const CLASSIC = join(FIX, 'corvane-run-classic.nc');
@@ -43,7 +43,7 @@ function expectWithin(got: Float32Array | Float64Array, want: Float32Array | Flo
 describe.each([
   ['classic', CLASSIC, 'c'],
   ['64-bit-offset', WIDE, 'w'],
-])('pack %s NetCDF, unpack to a folder of .npy', (_kind, file, tag) => {
+])('pack %s NetCDF, unpack to a folder of .npy', { timeout: CLI_TIMEOUT }, (_kind, file, tag) => {
   it('every variable of 2+ dimensions round-trips within its bound, with attributes and dimension names', async () => {
     const out = join(t.dir, `${tag}.rfz`);
     const r = rf(['pack', file, '-o', out, '--bound', 'rel:1e-3'], t.dir);
@@ -87,7 +87,7 @@ function storedBytes(bytes: Uint8Array, file: NcFile, v: NcVariable): Uint8Array
 describe.each([
   ['classic', CLASSIC, 'c'],
   ['64-bit-offset', WIDE, 'w'],
-])('pack %s NetCDF, unpack -o out.nc: everything restored', (_kind, file, tag) => {
+])('pack %s NetCDF, unpack -o out.nc: everything restored', { timeout: CLI_TIMEOUT }, (_kind, file, tag) => {
   it('netcdfjs finds every variable, dimension and global attribute; 1-D and char variables are bit-identical', () => {
     const out = join(t.dir, `all-${tag}.rfz`);
     const r = rf(['pack', file, '-o', out, '--bound', 'rel:1e-3'], t.dir);
@@ -128,7 +128,7 @@ describe.each([
   });
 });
 
-describe('carried variables: edge values and limits', () => {
+describe('carried variables: edge values and limits', { timeout: CLI_TIMEOUT }, () => {
   it('-0, NaN, infinities, float32 values, scalars and text come back bit for bit', () => {
     const f32 = new Uint32Array([0x80000000, 0x7fc00000, 0x7f800000, 0xff800000, 0x3f8ccccd, 0x00000001, 0x7f7fffff, 0xffc00000]);
     const f64 = new Float64Array([-0, NaN, Infinity, -Infinity, 0.1, 5e-324, Number.MAX_VALUE, 1 / 3]);
@@ -187,7 +187,7 @@ describe('carried variables: edge values and limits', () => {
   });
 });
 
-describe('layouts and outputs', () => {
+describe('layouts and outputs', { timeout: CLI_TIMEOUT }, () => {
   it('--matrix time:space stores time x grid-point matrices and restores the original shape', async () => {
     const out = join(t.dir, 'm.rfz');
     const r = rf(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01', '--matrix', 'time:space', '--var', 'salt', '--var', 'sst'], t.dir);
@@ -219,7 +219,9 @@ describe('layouts and outputs', () => {
     const sst = back.variables.find((v) => v.name === 'sst')!;
     expect(sst.type).toBe('float');
     expect(sst.dimensions.map((d) => back.dimensions[d].name)).toEqual(['time', 'lat', 'lon']);
-    const attr = (name: string) => sst.attributes.find((x) => x.name === name)?.value;
+    // netcdfjs 4.0.0 declares a variable's `attributes` as `[]`; at run time they are its `Attribute`s.
+    const varAttributes = (v: { attributes: [] }) => v.attributes as unknown as { name: string; value: number | string }[];
+    const attr = (name: string) => varAttributes(sst).find((x) => x.name === name)?.value;
     expect(attr('units')).toBe('degree_Celsius');
     expect(attr('_FillValue')).toBe(Math.fround(1e20));
     // The unlimited dimension: netcdfjs lists its header size (0) and the record count apart.
@@ -232,7 +234,7 @@ describe('layouts and outputs', () => {
     // The packed short variable comes back as its physical values, without the packing attributes.
     const ssh = back.variables.find((v) => v.name === 'ssh')!;
     expect(ssh.type).toBe('double');
-    expect(ssh.attributes.some((a) => a.name === 'scale_factor')).toBe(false);
+    expect(varAttributes(ssh).some((a) => a.name === 'scale_factor')).toBe(false);
   });
 
   it('--slices with --region writes a small .csv; a large one is refused without --force', () => {
@@ -246,7 +248,7 @@ describe('layouts and outputs', () => {
   });
 });
 
-describe('bad NetCDF input: one line, exit 2, no output', () => {
+describe('bad NetCDF input: one line, exit 2, no output', { timeout: CLI_TIMEOUT }, () => {
   const cases: [string, string[], RegExp][] = [
     ['a non-NetCDF file', [join(FIX, 'not-netcdf.nc')], /not a NetCDF file/],
     ['a truncated NetCDF file', [join(FIX, 'truncated.nc')], /truncated/],

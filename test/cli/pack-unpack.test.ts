@@ -8,7 +8,7 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatNpy, parseNpy } from '../../src/io/npy.js';
 import { formatRaw, parseRaw } from '../../src/io/raw.js';
-import { ensureBuilt, expectCliError, leftovers, maxAbsError, rf, rmsError, tempDir, validRange, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, maxAbsError, rf, rmsError, tempDir, validRange, volcano } from './helpers.js';
 
 const { dir, remove } = tempDir();
 const vol = volcano();
@@ -33,7 +33,7 @@ function unpackNpy(archive: string, out: string, extra: string[] = []) {
   return parseNpy(readFileSync(join(dir, out)));
 }
 
-describe('pack', () => {
+describe('pack', { timeout: CLI_TIMEOUT }, () => {
   it('packs a float64 .npy under abs:0.5 and the values read back hold the bound', () => {
     const r = rf(['pack', 'volcano.npy', '-o', 'v-abs.rfz', '--bound', 'abs:0.5'], dir);
     expect(r.code, r.stderr).toBe(0);
@@ -116,7 +116,7 @@ describe('pack', () => {
   });
 });
 
-describe('unpack', () => {
+describe('unpack', { timeout: CLI_TIMEOUT }, () => {
   beforeAll(() => {
     expect(rf(['pack', 'volcano.npy', '-o', 'u.rfz', '--bound', 'abs:0.5'], dir).code).toBe(0);
   });

@@ -280,7 +280,8 @@ describe('a land mask is filled smoothly', () => {
     }
   }
 
-  // BUG (reported): the masked field holds 61% of the values yet costs about 1.8x the
+  // Known shortfall, tracked in issue 9's notes (compression of fields with land fill):
+  // it.fails until it is fixed. The masked field holds 61% of the values yet costs about 1.8x the
   // bytes (rmse:1e-4: 3288 -> 6024 bytes; abs:1e-4: 3851 -> 7326 at the time of writing).
   it.fails('a land block does not make the archive larger (64x64 tiles)', async () => {
     for (const bound of ['abs:1e-4', 'rmse:1e-4']) {
@@ -337,7 +338,8 @@ describe('a land mask is filled smoothly', () => {
     expect(planeFillError(32, 32, [12, 20, 10, 18])).toBeLessThan(1e-3 * 15.5);
   });
 
-  // BUG (reported): the fill stops after min(400, 2 (m + n)) Gauss-Seidel
+  // Known shortfall, tracked in issue 9's notes (compression of fields with land fill; issue 10
+  // names the cost of the fill): it.fails until it is fixed. The fill stops after min(400, 2 (m + n)) Gauss-Seidel
   // sweeps, far from converged for a big hole in a 64x64 tile (the default).
   it.fails('a big lake in a 64x64 tile is filled with the plane', () => {
     // Plane range over the tile: 0.5 * 63 = 31.5.

@@ -13,6 +13,15 @@
 import { decode, encode } from '@msgpack/msgpack';
 import { crc32 } from '../../src/format/crc32.js';
 
+/**
+ * A decoded MessagePack block (header, index directory or page) that the
+ * container tests and the fuzzer edit and reshape at will: any member may
+ * become any value, so it is typed loosely on purpose, and this is the one
+ * place of the test helpers that says `any`.
+ */
+// biome-ignore lint/suspicious/noExplicitAny: a decoded block whose shape tests change freely (comment above)
+export type Block = any;
+
 export const PROLOGUE = 16;
 export const TAIL = 48;
 export const COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc', 'prefix'] as const;
@@ -72,38 +81,38 @@ export function pageCount(g: Grid): number {
 export interface Parts {
   /** Bytes 0 .. end of the payloads (prologue and payloads). */
   front: Uint8Array;
-  header: any;
+  header: Block;
   /** The directory, decoded. */
-  dir: any;
+  dir: Block;
   /** The index pages, decoded, per field. */
-  pages: any[][];
+  pages: Block[][];
   grids: Grid[];
 }
 
 export function split(b: Uint8Array): Parts {
   const l = layout(b);
-  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as any;
-  const dir = decode(b.subarray(l.dirOffset, l.dirOffset + l.dirLength)) as any;
+  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as Block;
+  const dir = decode(b.subarray(l.dirOffset, l.dirOffset + l.dirLength)) as Block;
   let end = Math.min(l.headerOffset, l.dirOffset);
-  const pages = dir.fields.map((f: any) =>
+  const pages = dir.fields.map((f: Block) =>
     f.page_offset.map((o: number, p: number) => {
       end = Math.min(end, o);
       return decode(b.subarray(o, o + f.page_length[p]));
     }),
   );
-  const grids = header.fields.map((h: any, i: number): Grid => ({ rows: h.shape[0], cols: h.shape[1], tileRows: h.tile[0], tileCols: h.tile[1], slices: h.slices ?? 1, page: dir.fields[i].page }));
+  const grids = header.fields.map((h: Block, i: number): Grid => ({ rows: h.shape[0], cols: h.shape[1], tileRows: h.tile[0], tileCols: h.tile[1], slices: h.slices ?? 1, page: dir.fields[i].page }));
   return { front: b.slice(0, end), header, dir, pages, grids };
 }
 
 /** The logical index: per field, every column over all tiles in tile order, and the summary. */
-export function joinIndex(p: Parts): any {
+export function joinIndex(p: Parts): Block {
   return {
-    fields: p.dir.fields.map((f: any, i: number) => {
-      const out: any = {};
+    fields: p.dir.fields.map((f: Block, i: number) => {
+      const out: Block = {};
       for (const c of COLUMNS) {
-        if (!p.pages[i].some((pg: any) => c in pg)) continue;
+        if (!p.pages[i].some((pg: Block) => c in pg)) continue;
         out[c] = [];
-        p.pages[i].forEach((pg: any, k: number) => pageTiles(p.grids[i], k).forEach((t, j) => (out[c][t] = pg[c][j])));
+        p.pages[i].forEach((pg: Block, k: number) => pageTiles(p.grids[i], k).forEach((t, j) => (out[c][t] = pg[c][j])));
       }
       out.summary = f.summary;
       return out;
@@ -112,23 +121,23 @@ export function joinIndex(p: Parts): any {
 }
 
 /** Split a logical index into pages with the grids of `p` (values a test made hostile pass through). */
-export function splitIndex(index: any, p: Parts): { pages: any[][]; dirFields: any[]; dirExtra: Record<string, unknown> } {
-  const fields: any[] = Array.isArray(index?.fields) ? index.fields : [];
+export function splitIndex(index: Block, p: Parts): { pages: Block[][]; dirFields: Block[]; dirExtra: Record<string, unknown> } {
+  const fields: Block[] = Array.isArray(index?.fields) ? index.fields : [];
   const dirExtra: Record<string, unknown> = {};
   if (typeof index === 'object' && index !== null) for (const [k, v] of Object.entries(index)) if (k !== 'fields') dirExtra[k] = v;
-  const pages: any[][] = [];
-  const dirFields = fields.map((f: any, i: number) => {
+  const pages: Block[][] = [];
+  const dirFields = fields.map((f: Block, i: number) => {
     const g = p.grids[Math.min(i, p.grids.length - 1)];
     const orig = p.dir.fields[Math.min(i, p.dir.fields.length - 1)];
-    const d: any = { page: g.page, data_offset: orig.data_offset.slice(), data_length: orig.data_length.slice() };
-    const list: any[] = [];
+    const d: Block = { page: g.page, data_offset: orig.data_offset.slice(), data_length: orig.data_length.slice() };
+    const list: Block[] = [];
     if (typeof f !== 'object' || f === null) {
       pages.push(list);
       return f;
     }
     for (let k = 0; k < pageCount(g); k++) {
       const tiles = pageTiles(g, k);
-      const pg: any = {};
+      const pg: Block = {};
       for (const c of COLUMNS) {
         if (!(c in f)) continue;
         const col = f[c];
@@ -150,7 +159,7 @@ export interface Assembly {
   /** Encoded pages per field (each listed in the directory in this order). */
   pageBytes: Uint8Array[][];
   /** Directory field maps without the page_offset, page_length, page_crc columns (added here); non-objects pass as they are. */
-  dirFields: any[];
+  dirFields: Block[];
   dirExtra?: Record<string, unknown>;
   /** Replace the encoded directory. */
   dirBytes?: (b: Uint8Array) => Uint8Array;

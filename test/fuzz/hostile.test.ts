@@ -14,7 +14,7 @@ import { DEFAULT_LIMITS, resolveLimits } from '../../src/format/schema.js';
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import { buildSeeds } from './corpus.js';
-import { cloneModel, parse, sections, serialize, type Model } from './model.js';
+import { cloneModel, parse, sections, serialize, type Block, type Model } from './model.js';
 import { Lying, Raw, RawMap, encodeValue } from './msgpack.js';
 
 async function refusal(bytes: Uint8Array, readToo = true): Promise<FormatError> {
@@ -163,8 +163,6 @@ describe('reader limits', () => {
     await open(b, { limits: { maxRank: rank } });
   });
 
-  // BUG (reported, src/archive.ts): read() does not call checkReadCells yet, so maxReadCells
-  // bounds nothing; this test fails (as expected) until it does.
   it('read() refuses more values at once than maxReadCells, and reads a window within it', async () => {
     const a = await open(masked(), { limits: { maxReadCells: 10 } });
     expect((await a.read(undefined, { rows: [0, 2], cols: [0, 5] })).values.length).toBe(10);
@@ -210,7 +208,7 @@ describe('the index', () => {
   });
 
   it('refuses a summary that disagrees with its tiles', async () => {
-    const cases: [string, (ix: any) => void, RegExp][] = [
+    const cases: [string, (ix: Block) => void, RegExp][] = [
       ['valid', (ix) => (ix.summary.valid += 1), /summary valid count \d+ is not the sum \d+/],
       ['max_err', (ix) => (ix.summary.max_err *= 2), /summary max_err .* is not the largest tile max_err/],
       ['a tile without valid cells but an error', (ix) => ((ix.valid[0] = 0), (ix.summary.valid = ix.valid.reduce((s: number, v: number) => s + v, 0))), /tile 0 has no valid cell but a max_err of/],
@@ -342,8 +340,6 @@ describe('tile payloads', () => {
     expect(e2.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: centre Infinity at (payload offset 4|file offset \\d+) is not finite$`));
   });
 
-  // BUG (reported, src/archive.ts): Archive passes no payload offset to decodeTile, so payload
-  // errors count offsets within the payload; this test fails (as expected) until it does.
   it('payload errors name file offsets when the reader knows where the payload is', async () => {
     const r = withSection('residual');
     const b = edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true));

@@ -11,7 +11,9 @@
  */
 import { crc32 } from '../../src/format/crc32.js';
 import { encodeValue } from './msgpack.js';
-import { joinIndex, pageCount, pageTiles, split, splitIndex, type Grid } from '../format/paged.js';
+import { joinIndex, pageCount, pageTiles, split, splitIndex, type Block, type Grid } from '../format/paged.js';
+
+export type { Block };
 
 export const PROLOGUE = 16;
 export const TAIL = 48;
@@ -35,6 +37,7 @@ export function layout(b: Uint8Array): Layout {
   };
 }
 
+
 /** A decoded archive, as plain mutable data. */
 export interface Model {
   version: number;
@@ -43,9 +46,9 @@ export interface Model {
   /** Payloads per field, in tile order. */
   payloads: Uint8Array[][];
   // Decoded MessagePack: shapes are whatever a mutation made of them.
-  header: any;
+  header: Block;
   /** The logical index: per field, columns over all tiles in tile order, and the summary. */
-  index: any;
+  index: Block;
   /** Tile and page grids of the seed's fields (they fix where pages and payloads go). */
   grids: Grid[];
   /** Raw block bytes to use instead of encoding the header / the index directory. */
@@ -71,7 +74,7 @@ export function parse(b: Uint8Array): Model {
   const l = layout(b);
   const parts = split(b);
   const index = joinIndex(parts);
-  const payloads = index.fields.map((f: any) => f.offset.map((o: number, t: number) => b.slice(o, o + f.length[t])));
+  const payloads = index.fields.map((f: Block) => f.offset.map((o: number, t: number) => b.slice(o, o + f.length[t])));
   return {
     version: d.getUint16(8, true),
     flags: d.getUint16(10, true),
@@ -91,9 +94,9 @@ export function clone<T>(v: T): T {
   if (v instanceof Uint8Array) return v.slice() as T;
   if (Array.isArray(v)) return v.map(clone) as T;
   if (typeof v === 'object' && v !== null) {
-    const out: any = {};
+    const out: Record<string, unknown> = {};
     for (const [k, x] of Object.entries(v)) out[k] = clone(x);
-    return out;
+    return out as T;
   }
   return v;
 }
@@ -113,7 +116,7 @@ export function cloneModel(m: Model): Model {
 }
 
 /** The pieces of a model laid out: payload bytes, page values and the directory value (before encoding). */
-function lay(m: Model): { parts: Uint8Array[]; pos: number; pages: any[][]; dirFields: any[]; dirExtra: Record<string, unknown> } {
+function lay(m: Model): { parts: Uint8Array[]; pos: number; pages: Block[][]; dirFields: Block[]; dirExtra: Record<string, unknown> } {
   const parts: Uint8Array[] = [];
   let pos = PROLOGUE;
   const runs: { data_offset: number[]; data_length: number[] }[] = [];
@@ -152,7 +155,7 @@ function lay(m: Model): { parts: Uint8Array[]; pos: number; pages: any[][]; dirF
       });
     }
   }
-  const shape = { grids: m.grids, dir: { fields: runs } } as any;
+  const shape = { grids: m.grids, dir: { fields: runs } } as Block;
   const { pages, dirFields, dirExtra } = splitIndex(m.index, shape);
   return { parts, pos, pages, dirFields, dirExtra };
 }
@@ -163,7 +166,7 @@ export function directoryValue(m: Model): unknown {
 }
 
 /** The index page values a model serializes to, per field. */
-export function pageValues(m: Model): any[][] {
+export function pageValues(m: Model): Block[][] {
   return lay(cloneModel(m)).pages;
 }
 

@@ -15,7 +15,7 @@
 import * as zlib from 'node:zlib';
 import { deflateSync, inflateSync } from 'fflate';
 import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
-import { cloneModel, directoryValue, layout, pageValues, resealTail, sections, serialize, TAIL, type Model } from './model.js';
+import { cloneModel, directoryValue, layout, pageValues, resealTail, sections, serialize, TAIL, type Block, type Model } from './model.js';
 import type { Rng } from './rng.js';
 
 /** Numbers that sit on a boundary of some check. */
@@ -73,20 +73,20 @@ function paths(v: unknown, prefix: (string | number)[] = [], out: (string | numb
     // Plain maps only: the writer's special nodes (RawMap, Lying, ...) are leaves.
     for (const k of Object.keys(v)) {
       out.push([...prefix, k]);
-      paths((v as any)[k], [...prefix, k], out, depth + 1);
+      paths((v as Record<string, unknown>)[k], [...prefix, k], out, depth + 1);
     }
   }
   return out;
 }
 
-function getAt(root: any, path: (string | number)[]): any {
+function getAt(root: Block, path: (string | number)[]): Block {
   let v = root;
   for (const k of path) v = v?.[k];
   return v;
 }
 
 /** Set, delete or replace the value at a random path of a decoded block; returns a description. */
-function editValue(root: any, rng: Rng, what: string): string {
+function editValue(root: Block, rng: Rng, what: string): string {
   const all = paths(root);
   if (all.length === 0) return `${what}: nothing to edit`;
   const path = rng.pick(all);
@@ -459,7 +459,7 @@ function widen(v: unknown, rng: Rng): unknown {
   }
   if (Array.isArray(v)) return v.map((x) => widen(x, rng));
   if (typeof v === 'object' && v !== null && !(v instanceof Uint8Array)) {
-    const out: any = {};
+    const out: Record<string, unknown> = {};
     for (const [k, x] of Object.entries(v)) out[k] = widen(x, rng);
     return out;
   }
@@ -667,7 +667,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
     }
   }
   let bytes = serialize(m);
-  if (late.length > 0 && Array.isArray(m.index?.fields) && m.index.fields.every((f: any) => Array.isArray(f?.offset) && f.offset.length > 0)) {
+  if (late.length > 0 && Array.isArray(m.index?.fields) && m.index.fields.every((f: Block) => Array.isArray(f?.offset) && f.offset.length > 0)) {
     for (const edit of late) {
       try {
         ops.push(edit());
