@@ -83,6 +83,16 @@ export function buildSeeds(): Seed[] {
   for (let i = 0; i < noisy.length; i++) noisy[i] += 1e-3 * (rng.next() - 0.5);
   add('residual-f64', pack(noisy, [32, 32], { bound: 'abs:1e-5', tile: 16, name: 'noisy' }));
 
+  // Factors of random vectors (no smoothness along them): their codes are stored as they are, not as differences.
+  const rough = new Float64Array(24 * 24);
+  const rr = new Rng(15);
+  for (let k = 0; k < 3; k++) {
+    const u = Array.from({ length: 24 }, () => rr.next() - 0.5);
+    const w = Array.from({ length: 24 }, () => rr.next() - 0.5);
+    for (let i = 0; i < 24; i++) for (let j = 0; j < 24; j++) rough[i * 24 + j] += u[i] * w[j] * (3 - k);
+  }
+  add('rough-factors-f64', pack(rough, [24, 24], { bound: 'abs:1e-4', tile: 24, name: 'rough', progressive: true }));
+
   add('rmse-f64', pack(smooth(24, 24, 8, 4), [24, 24], { bound: 'rmse:1e-3', tile: 8, name: 'l2' }));
   add('psnr-f32', pack(Float32Array.from(smooth(20, 30, 9, 3)), [20, 30], { bound: 'psnr:50', tile: 10, name: 'psnr' }));
 

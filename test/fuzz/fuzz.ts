@@ -88,7 +88,7 @@ export class Tally {
       `cases ${this.cases}, findings ${this.findings.length}, cases over 1 s ${this.over1s}`,
       `slowest case ${this.slowest.index} (${this.slowest.ms.toFixed(1)} ms, seed ${this.slowest.seed}: ${this.slowest.ops.join('; ')})`,
       `mean ${(this.totalMs / Math.max(1, this.cases)).toFixed(2)} ms per case, largest declared decode work ${this.maxWork}, peak heap+buffers ${(this.peakMemory / 2 ** 20).toFixed(0)} MiB`,
-      `cases that must read back unchanged ${this.expectations.get('same') ?? 0}, that must be refused ${this.expectations.get('refuse') ?? 0}`,
+      `cases that must read back unchanged ${this.expectations.get('same') ?? 0}, that must be refused ${this.expectations.get('refuse') ?? 0}, whose changed values check() must catch ${this.expectations.get('detect') ?? 0}`,
       'outcomes (stage result):',
       ...lines,
     ];

@@ -4,7 +4,9 @@
  * tiles and a window, and check it. What may escape is a FormatError (or an
  * InputError) with a known code and a one-line message naming the source;
  * anything else, a check() that throws, or a read() failure that check()
- * does not report, is a finding.
+ * does not report, is a finding. Obligations (./mutate.ts) add: read back
+ * the seed's values bit for bit ('same'), be refused somewhere ('refuse'),
+ * or have check() report a field that reads back other values ('detect').
  */
 import { open, type Archive } from '../../src/archive.js';
 import { archiveFacts, factsText } from '../../src/cli/show.js';
@@ -106,8 +108,8 @@ export function declaredWork(a: Archive): number {
 
 /** What a case must do beyond the typed-error contract (see expectationOf in ./mutate.ts). */
 export interface Obligation {
-  expect: 'same' | 'refuse' | 'any';
-  /** The seed's decoded values per field name (compared bit for bit when expect is 'same'). */
+  expect: 'same' | 'refuse' | 'detect' | 'any';
+  /** The seed's decoded values per field name (compared bit for bit when expect is 'same' or 'detect'). */
   values: Map<string, Uint8Array>;
 }
 
@@ -158,13 +160,17 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', 
     if (!failedTiles.has(name)) failedTiles.set(name, new Set());
     if (m) failedTiles.get(name)!.add(Number(m[1]));
   };
+  /** Fields that read back without error but with values other than the seed's (for 'detect'). */
+  const changed = new Set<string>();
   for (const name of a.names) {
     try {
       const got = await a.read(name);
-      const want = duty?.expect === 'same' ? duty.values.get(name) : undefined;
-      if (duty?.expect === 'same' && (want === undefined || !sameBytes(new Uint8Array(got.values.buffer, got.values.byteOffset, got.values.byteLength), want))) {
+      const want = duty?.expect === 'same' || duty?.expect === 'detect' ? duty.values.get(name) : undefined;
+      const same = want !== undefined && sameBytes(new Uint8Array(got.values.buffer, got.values.byteOffset, got.values.byteLength), want);
+      if (duty?.expect === 'same' && !same) {
         out.findings.push(`read: field '${name}' does not read back as the seed's (this mutation must not change values)`);
       }
+      if (duty?.expect === 'detect' && !same) changed.add(name);
     } catch (e) {
       caught(e, 'read');
       if (e instanceof FormatError && e.code !== FormatCode.Limit) failed(name, e);
@@ -210,6 +216,10 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', 
       for (const t of tiles) {
         if (!report.failures.some((f) => f.field === name && f.tile === t)) out.findings.push(`check: does not report field '${name}' tile ${t}, which failed to decode`);
       }
+    }
+    // Payload edits under the seed's index: values that changed must fail the value CRC of their tile.
+    for (const name of changed) {
+      if (!report.failures.some((f) => f.field === name)) out.findings.push(`check: field '${name}' reads back other values than the seed's, but check() reports no failure for it`);
     }
     if (!report.ok && out.result === 'ok') {
       out.result = 'check-failed';
