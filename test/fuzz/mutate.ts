@@ -310,13 +310,13 @@ export function recode(p: Uint8Array, layout: PayloadLayout, part: PartRef, m: n
 }
 
 /**
- * Mutate one coded stream (mask class map, factor group, residual). A
- * range-coded stream decodes exactly as many bytes as it was written with
- * (./model.ts), and the decoder reads byte k of a stream at the same point
- * whatever follows it, so a stream cut short, one followed by bytes, or a
- * length word that is off are refused whatever the bytes; flipped bits and
- * re-coded values may decode to other valid values, which the value CRC
- * then catches.
+ * Mutate one coded stream (mask class map, factor group, residual). The
+ * decoder (src/codec/code-decode.ts) reads exactly the bytes the encoder
+ * wrote, and reads byte k at the same point whatever the bytes after k are,
+ * so a stream cut short (it must read a missing byte), one followed by
+ * bytes (they are left over), or a length word that is off (one of the two)
+ * is refused whatever the bytes; flipped bits and re-coded values may
+ * decode to other valid values, which the value CRC then catches.
  */
 function mutateCoded(p: Uint8Array, layout: PayloadLayout, s: PartRef, m: number, n: number, rng: Rng): { payload: Uint8Array; what: string } {
   const stream = p.subarray(s.streamStart, s.end);
