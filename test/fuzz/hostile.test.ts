@@ -17,6 +17,7 @@ import { buildSeeds } from './corpus.js';
 import { cloneModel, parse, PayloadFlag, replaceStream, serialize, splice, tileDims, walk, type Model, type PartRef, type PayloadLayout } from './model.js';
 import { decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
+import { crc32 } from '../../src/format/crc32.js';
 import { Lying, Raw, RawMap, encodeValue } from './msgpack.js';
 
 async function refusal(bytes: Uint8Array, readToo = true): Promise<FormatError> {
@@ -496,6 +497,31 @@ describe('tile payloads', () => {
     const b = edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true));
     const offset = (await open(b)).index.fields[r.f].offset[r.t];
     expect((await refusal(b)).message).toMatch(new RegExp(`centre Infinity at file offset ${offset + 4} is not finite$`));
+  });
+
+  it('refuses a recorded prefix that does not end at a factor group, even with a CRC of the bytes it covers', async () => {
+    const r = withPart('group 1');
+    const base = await open(r.bytes);
+    const q = base.index.fields[r.f].prefix![r.t];
+    expect(q.length).toBeGreaterThanOrEqual(4);
+    for (const off of [-1, 1]) {
+      const b = edit(r.bytes, (m) => {
+        const quad = m.index.fields[r.f].prefix[r.t];
+        quad[0] += off;
+        quad[1] = crc32(m.payloads[r.f][r.t].subarray(0, quad[0]));
+      });
+      const a = await open(b);
+      // The whole payload is untouched: a full read and check() are fine; the progressive read is refused.
+      await a.read(r.field);
+      let e: unknown = null;
+      try {
+        await a.read(r.field, { bound: 'abs:1e300' });
+      } catch (x) {
+        e = x;
+      }
+      expect(e).toBeInstanceOf(FormatError);
+      expect((e as FormatError).message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: the index lists a prefix of ${q[0] + off} bytes that does not end at a factor group$`));
+    }
   });
 
   it('refuses bytes after a DEFLATE stream inside a section (exact values, exceptions)', async () => {

@@ -18,6 +18,7 @@ import { deflateSync, inflateSync } from 'fflate';
 import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
 import { decodeClasses, decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
+import { crc32 } from '../../src/format/crc32.js';
 import { cloneModel, layout, PayloadFlag, replaceStream, resealTail, serialize, splice, TAIL, tileDims, walk, type Model, type PartRef, type PayloadLayout } from './model.js';
 import type { Rng } from './rng.js';
 
@@ -698,6 +699,30 @@ function postIndex(m: Model, rng: Rng): string {
   return `index field ${f} tile ${t} ${which}`;
 }
 
+/**
+ * Move the first recorded prefix of a progressive tile off its factor group
+ * boundary by one byte, with a CRC that matches the bytes it now covers: a
+ * progressive read takes that prefix (./harness.ts reads at a bound every
+ * prefix meets) and must refuse it (spec/FORMAT.md 18.2).
+ */
+function prefixCut(m: Model, rng: Rng, touch: (key: string) => void): string {
+  const tiles: [number, number][] = [];
+  m.index.fields.forEach((ix: any, f: number) => {
+    if (Array.isArray(ix?.prefix)) ix.prefix.forEach((q: unknown, t: number) => Array.isArray(q) && q.length >= 4 && tiles.push([f, t]));
+  });
+  if (tiles.length === 0) return 'index prefix: nothing to edit';
+  const [f, t] = rng.pick(tiles);
+  touch(`payload ${f}/${t}`);
+  const ix = m.index.fields[f];
+  const q = ix.prefix[t];
+  const next = q.length >= 8 ? q[4] : ix.length[t];
+  const cuts = [q[0] - 1, q[0] + 1].filter((x) => x > 0 && x < next);
+  if (cuts.length === 0) return 'index prefix: nothing to edit';
+  q[0] = rng.pick(cuts);
+  q[1] = crc32(m.payloads[f][t].subarray(0, q[0]));
+  return `index field ${f} tile ${t} prefix 0 cut at ${q[0]}, off its factor group boundary, CRC recomputed${REFUSE}`;
+}
+
 /** Container-level words: versions, flags, reserved word, block order, a gap, a stale CRC. */
 function containerWords(m: Model, rng: Rng): string {
   const which = rng.pick(['version', 'flags', 'reserved', 'order', 'gap', 'stale crc', 'tail version']);
@@ -830,6 +855,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
       [8, 'msgpack'],
       [4, 'container'],
       [4, 'semantic'],
+      [1, 'prefix'],
     ]);
     const at = pickPayload(m, rng);
     try {
@@ -851,11 +877,18 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
         // Index columns are long: aim at one field's columns directly, or anywhere in the index.
         const f = rng.int(m.index.fields.length);
         const ix = m.index.fields[f];
-        const c = rng.pick(['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc']);
+        const c = rng.pick(['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc', 'prefix']);
         if (!rng.chance(0.7) || ix.offset.length === 0) ops.push(editValue(m.index, rng, 'index'));
         else {
           const t = rng.int(ix.offset.length);
           const edit = () => {
+            const q = ix.prefix?.[t];
+            if (c === 'prefix' && Array.isArray(q) && q.length > 0) {
+              // One number of a (length, crc, max_err, rmse) quad.
+              const k = rng.int(q.length);
+              q[k] = rng.chance(0.5) ? nearNumber(q[k], rng) : absurdValue(rng);
+              return `index field ${f} prefix[${t}][${k}]`;
+            }
             ix[c][t] = rng.chance(0.5) ? nearNumber(ix[c][t], rng) : absurdValue(rng);
             return `index field ${f} ${c}[${t}]`;
           };
@@ -863,6 +896,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
           else ops.push(edit());
         }
       } else if (op === 'index structure') late.push(() => postIndex(m, rng));
+      else if (op === 'prefix') ops.push(prefixCut(m, rng, touch));
       else if (op === 'msgpack') {
         const block = rng.chance(0.5) ? 'header' : 'index';
         if (!blocks.includes(block)) blocks.push(block);
