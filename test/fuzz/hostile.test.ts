@@ -364,7 +364,8 @@ describe('tile payloads', () => {
       const b = editStream(noFill(), 0, 0, 'mask', () => {
         const classes = new Uint8Array(12);
         classes[6] = 4;
-        classes[10] = bad; // the coder writes class - 1 in three bits: 5..7 fit
+        // The coder writes class - 1 in three bits (5..7 fit); in the last row, as no cell below takes it as a context.
+        classes[10] = bad;
         return encodeClasses(classes, 3, 4);
       });
       const e = await refusal(b);

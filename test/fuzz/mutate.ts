@@ -294,6 +294,8 @@ export function classesOf(p: Uint8Array, layout: PayloadLayout, m: number, n: nu
 /** Decode a coded stream of a seed payload, let `edit` change the values, and code them again. */
 export function recode(p: Uint8Array, layout: PayloadLayout, part: PartRef, m: number, n: number, edit: (v: Int32Array | Uint8Array, g: Grid) => void): Uint8Array {
   const g = gridOf(p, layout, part, m, n);
+  // A group size an earlier edit of this payload made up: not worth decoding (the case is 'any' by then).
+  if (g.m * g.n > 2 ** 20) throw new Error(`a grid of ${g.m}x${g.n} is too large to code again`);
   const stream = p.subarray(part.streamStart, part.end);
   let next: Uint8Array;
   if (part.name === 'mask') {
@@ -391,10 +393,11 @@ function mutateRawNaN(p: Uint8Array, layout: PayloadLayout, width: number, rng: 
 }
 
 /** Mutate one part of tile t of field f: a DEFLATE section, a coded stream, the raw NaN bits, or the FactorDelta flag. */
-function mutatePart(mdl: Model, f: number, t: number, rng: Rng): string {
+function mutatePart(mdl: Model, seed: Model, f: number, t: number, rng: Rng): string {
   const p = mdl.payloads[f][t];
   const layout = walk(p);
-  const h = mdl.header.fields[f];
+  // Tile sizes and dtype from the seed's header: an earlier edit of this case may have made the header anything.
+  const h = seed.header.fields[f];
   const [m, n] = tileDims(h, t);
   const width = h.dtype === 'f64' ? 8 : 4;
   const choice = rng.weighted<string>([
@@ -449,7 +452,7 @@ function mutateFixed(m: Model, f: number, t: number, rng: Rng): string {
  * NaN residual step or centre, a tile grid that no longer matches the index.
  * Each must be refused.
  */
-function semantic(m: Model, rng: Rng): string {
+function semantic(m: Model, seed: Model, rng: Rng): string {
   const f = rng.int(m.payloads.length);
   const h = m.header.fields[f];
   const wide = h.dtype === 'f64';
@@ -471,7 +474,8 @@ function semantic(m: Model, rng: Rng): string {
     m.payloads[f][t] = splice(p, s.start, s.end, Uint8Array.of(...head, ...stored));
     return true;
   };
-  const [rows, cols] = tileDims(h, t);
+  // Tile sizes from the seed's header (an earlier edit may have made this case's header anything).
+  const [rows, cols] = tileDims(seed.header.fields[f], t);
   /** Decode a coded stream, edit its values (false: nothing to break here) and code them again. */
   const recoded = (name: string, edit: (v: Int32Array | Uint8Array, g: { m: number; n: number; codes: Uint8Array | null }) => boolean): boolean => {
     const s = find(name);
@@ -513,7 +517,12 @@ function semantic(m: Model, rng: Rng): string {
         return true;
       },
     ],
-    ['a class above 5 in the mask', () => recoded('mask', (v) => ((v[rng.int(v.length)] = rng.range(6, 8)), true))],
+    [
+      'a class above 5 in the mask',
+      // In the last row: the coder takes the class of the cell above as a context, which must be 0..5
+      // (a larger one indexes past its model and never ends), so no cell may sit below the bad one.
+      () => recoded('mask', (v) => ((v[(rows - 1) * cols + rng.int(cols)] = rng.range(6, 8)), true)),
+    ],
     [
       'a code above 2^30 in a coded stream',
       () => {
@@ -867,7 +876,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
       } else if (op === 'part' && at) {
         const [f, t] = at;
         touch(`payload ${f}/${t}`);
-        ops.push(mutatePart(m, f, t, rng));
+        ops.push(mutatePart(m, seed, f, t, rng));
       } else if (op === 'fixed part' && at) {
         touch(`payload ${at[0]}/${at[1]}`);
         ops.push(mutateFixed(m, at[0], at[1], rng));
@@ -902,7 +911,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
         if (!blocks.includes(block)) blocks.push(block);
       } else if (op === 'container') ops.push(containerWords(m, rng));
       else if (op === 'semantic') {
-        const what = semantic(m, rng);
+        const what = semantic(m, seed, rng);
         const target = /^field \d+/.exec(what)?.[0];
         if (target) touch(target);
         // Semantic edits of a payload the walk reads as the decoder does only when no other edit touched it.
