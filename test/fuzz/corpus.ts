@@ -1,10 +1,14 @@
 /**
  * Seed archives for the fuzzer: valid archives of several shapes, dtypes,
  * bound modes and payload kinds, written by this library (pack and
- * ArchiveBuilder). Together they hold every payload feature the format has:
- * exact and low-rank tiles, rank 0 and rank > 0, masks with every cell
- * class (fill, +-Inf, canonical and raw NaN), residuals with and without
- * Lorenzo prediction, and exceptions. The values are generated (sums of
+ * ArchiveBuilder). Together they hold every payload feature the format has
+ * (test/fuzz/fuzz.test.ts checks it): exact and low-rank tiles, rank 0 and
+ * rank > 0, factor codes stored as values (random factors) and as
+ * differences along each vector (smooth fields), one and several factor
+ * groups (a progressive field, with its prefix column), coded class maps
+ * with every cell class (fill, +-Inf, canonical and raw NaN, the raw bits
+ * in f32 and f64), residuals with and without Lorenzo prediction, with and
+ * without factors, and exceptions. The values are generated (sums of
  * separable cosines, spikes, holes): seeds only need to be valid archives.
  */
 import { ArchiveBuilder, pack } from '../../src/pack.js';
