@@ -17,6 +17,9 @@ import { Flag, payloadShares, prefixLengths } from '../../src/codec/payload.js';
 import { corpus, makeCase, runOne, Tally } from './fuzz.js';
 import { PayloadFlag, tileDims, walk } from './model.js';
 import { classesOf } from './mutate.js';
+import { decodeTile } from '../../src/codec/tile-decode.js';
+import { fillWords } from '../../src/codec/mask.js';
+import { FormatError } from '../../src/errors.js';
 
 const SEED = 20261201;
 const CASES = 6000;
@@ -79,6 +82,48 @@ describe('fuzzing', () => {
       }
     }
     expect(lowRank).toBeGreaterThan(20);
+  });
+
+  it('every single-bit flip in a coded stream of a seed tile is refused with a FormatError or decodes', async () => {
+    // The payload CRC is bypassed (decodeTile directly): this is what the value CRC stands behind.
+    const c = await corpus();
+    const outcomes = { refused: 0, same: 0, other: 0 };
+    c.models.forEach((m) => {
+      m.payloads.forEach((field, f) => {
+        const h = m.header.fields[f];
+        // The first low-rank tile of each field that has a coded stream.
+        const t = field.findIndex((p) => p[0] === 1 && walk(p).parts.some((x) => x.kind === 'coded'));
+        if (t < 0) return;
+        const p = field[t];
+        const [rows, cols] = tileDims(h, t);
+        const fill = h.fill instanceof Uint8Array ? new DataView(h.fill.buffer, h.fill.byteOffset, 8).getFloat64(0, true) : h.fill;
+        const ctx = { m: rows, n: cols, dtype: h.dtype, fill: fillWords(fill, h.dtype), where: `${h.name} tile ${t}` };
+        const seedValues = Buffer.from(decodeTile(p, ctx).buffer);
+        for (const part of walk(p).parts) {
+          if (part.kind !== 'coded') continue;
+          for (let b = part.streamStart; b < part.end; b++) {
+            for (let bit = 0; bit < 8; bit++) {
+              const q = p.slice();
+              q[b] ^= 1 << bit;
+              let got: Buffer;
+              try {
+                got = Buffer.from(decodeTile(q, ctx).buffer);
+              } catch (e) {
+                if (!(e instanceof FormatError)) throw new Error(`${h.name} tile ${t} ${part.name} byte ${b} bit ${bit}: ${(e as Error).stack}`);
+                outcomes.refused++;
+                continue;
+              }
+              if (got.equals(seedValues)) outcomes.same++;
+              else outcomes.other++;
+            }
+          }
+        }
+      });
+    });
+    console.log(`coded stream bit flips: ${JSON.stringify(outcomes)}`);
+    // Both outcomes occur: most flips break the exact stream length, some decode to other values.
+    expect(outcomes.refused).toBeGreaterThan(outcomes.same + outcomes.other);
+    expect(outcomes.other).toBeGreaterThan(0);
   });
 
   it('a case is made the same way every time (replayable from seed and number)', async () => {
