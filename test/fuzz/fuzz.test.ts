@@ -15,7 +15,11 @@
 import { describe, expect, it } from 'vitest';
 import { Flag, payloadShares, prefixLengths } from '../../src/codec/payload.js';
 import { corpus, makeCase, runOne, Tally } from './fuzz.js';
-import { PayloadFlag, tileDims, walk } from './model.js';
+import { cloneModel, PayloadFlag, serialize, tileDims, walk } from './model.js';
+import { runCase } from './harness.js';
+import { Rng } from './rng.js';
+import { open } from '../../src/archive.js';
+import { crc32 } from '../../src/format/crc32.js';
 import { classesOf } from './mutate.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
 import { fillWords } from '../../src/codec/mask.js';
@@ -124,6 +128,23 @@ describe('fuzzing', () => {
     // Both outcomes occur: most flips break the exact stream length, some decode to other values.
     expect(outcomes.refused).toBeGreaterThan(outcomes.same + outcomes.other);
     expect(outcomes.other).toBeGreaterThan(0);
+  });
+
+  it('the detect obligation flags a payload edit whose changed values check() does not report', async () => {
+    const c = await corpus();
+    const k = c.seeds.findIndex((s) => s.name === 'residual-f64');
+    const m = cloneModel(c.models[k]);
+    const p = m.payloads[0][0];
+    const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+    d.setFloat64(4, d.getFloat64(4, true) + 1e-3, true); // the centre moved: other values, a valid payload
+    const caught = await runCase(serialize(m), new Rng(1), 'fuzz-case', { expect: 'detect', values: c.values[k], loose: c.loose[k] });
+    expect(caught.findings).toEqual([]);
+    expect(caught.result).toBe('check-failed');
+    // With the value CRC recomputed for the new values, check() cannot tell: the harness must.
+    const values = await (await open(serialize(m))).tile('noisy', 0);
+    m.index.fields[0].value_crc[0] = crc32(new Uint8Array(values.buffer, values.byteOffset, values.byteLength));
+    const missed = await runCase(serialize(m), new Rng(1), 'fuzz-case', { expect: 'detect', values: c.values[k], loose: c.loose[k] });
+    expect(missed.findings).toEqual([`check: field 'noisy' reads back other values than the seed's, but check() reports no failure for it`]);
   });
 
   it('a case is made the same way every time (replayable from seed and number)', async () => {
