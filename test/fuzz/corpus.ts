@@ -1,10 +1,14 @@
 /**
  * Seed archives for the fuzzer: valid archives of several shapes, dtypes,
  * bound modes and payload kinds, written by this library (pack and
- * ArchiveBuilder). Together they hold every payload feature the format has:
- * exact and low-rank tiles, rank 0 and rank > 0, masks with every cell
- * class (fill, +-Inf, canonical and raw NaN), residuals with and without
- * Lorenzo prediction, and exceptions. The values are generated (sums of
+ * ArchiveBuilder). Together they hold every payload feature the format has
+ * (test/fuzz/fuzz.test.ts checks it): exact and low-rank tiles, rank 0 and
+ * rank > 0, factor codes stored as values (random factors) and as
+ * differences along each vector (smooth fields), one and several factor
+ * groups (a progressive field, with its prefix column), coded class maps
+ * with every cell class (fill, +-Inf, canonical and raw NaN, the raw bits
+ * in f32 and f64), residuals with and without Lorenzo prediction, with and
+ * without factors, and exceptions. The values are generated (sums of
  * separable cosines, spikes, holes): seeds only need to be valid archives.
  */
 import { ArchiveBuilder, pack } from '../../src/pack.js';
@@ -82,6 +86,16 @@ export function buildSeeds(): Seed[] {
   const rng = new Rng(7);
   for (let i = 0; i < noisy.length; i++) noisy[i] += 1e-3 * (rng.next() - 0.5);
   add('residual-f64', pack(noisy, [32, 32], { bound: 'abs:1e-5', tile: 16, name: 'noisy' }));
+
+  // Factors of random vectors (no smoothness along them): their codes are stored as they are, not as differences.
+  const rough = new Float64Array(24 * 24);
+  const rr = new Rng(15);
+  for (let k = 0; k < 3; k++) {
+    const u = Array.from({ length: 24 }, () => rr.next() - 0.5);
+    const w = Array.from({ length: 24 }, () => rr.next() - 0.5);
+    for (let i = 0; i < 24; i++) for (let j = 0; j < 24; j++) rough[i * 24 + j] += u[i] * w[j] * (3 - k);
+  }
+  add('rough-factors-f64', pack(rough, [24, 24], { bound: 'abs:1e-4', tile: 24, name: 'rough', progressive: true }));
 
   add('rmse-f64', pack(smooth(24, 24, 8, 4), [24, 24], { bound: 'rmse:1e-3', tile: 8, name: 'l2' }));
   add('psnr-f32', pack(Float32Array.from(smooth(20, 30, 9, 3)), [20, 30], { bound: 'psnr:50', tile: 10, name: 'psnr' }));

@@ -6,15 +6,24 @@
  * throws and reports every tile that failed to decode; valid re-encodings
  * (another DEFLATE stream, other MessagePack number widths, block order, an
  * unreferenced gap, the reserved word) read back bit for bit; mutations that
- * break a rule of spec/FORMAT.md section 15 are refused. Time per case is
+ * break a rule of spec/FORMAT.md section 15 are refused (coded streams cut
+ * short, followed by bytes or with a wrong length word included); payload
+ * edits that decode to other values are reported by check(). Time per case is
  * measured and printed, not asserted; instead the decode work an opened case
  * declares and the memory it uses are held under fixed ceilings.
  */
 import { describe, expect, it } from 'vitest';
-import { Flag } from '../../src/codec/payload.js';
-import { inflateSync } from 'fflate';
+import { Flag, payloadShares, prefixLengths } from '../../src/codec/payload.js';
 import { corpus, makeCase, runOne, Tally } from './fuzz.js';
-import { sections } from './model.js';
+import { cloneModel, PayloadFlag, serialize, tileDims, walk } from './model.js';
+import { runCase } from './harness.js';
+import { Rng } from './rng.js';
+import { open } from '../../src/archive.js';
+import { crc32 } from '../../src/format/crc32.js';
+import { classesOf } from './mutate.js';
+import { decodeTile } from '../../src/codec/tile-decode.js';
+import { fillWords } from '../../src/codec/mask.js';
+import { FormatError } from '../../src/errors.js';
 
 const SEED = 20261201;
 const CASES = 6000;
@@ -24,23 +33,119 @@ describe('fuzzing', () => {
     const c = await corpus();
     const seen = new Set<string>();
     c.models.forEach((m) => {
-      for (const field of m.payloads) {
-        for (const p of field) {
+      m.payloads.forEach((field, f) => {
+        const h = m.header.fields[f];
+        field.forEach((p, t) => {
           seen.add(`method ${p[0]}`);
-          if (p[0] !== 1) continue;
-          if (p[2] | (p[3] << 8)) seen.add('rank > 0');
+          const w = walk(p);
+          if (p[0] !== 1) return;
+          if (w.rank > 0) seen.add(w.flags & PayloadFlag.FactorDelta ? 'rank > 0 as differences' : 'rank > 0 as values');
+          if (w.groups.length > 1) seen.add('several factor groups');
+          if (w.rank > 0 && w.flags & PayloadFlag.Residual) seen.add('factors and a residual');
+          if (w.residualPredictor !== undefined) seen.add(w.residualPredictor === 0 ? 'residual not predicted' : 'residual predicted');
           for (const [bit, name] of Object.entries(Flag)) if (p[1] & name) seen.add(`flag ${bit}`);
-          const mask = sections(p).sections.find((s) => s.name === 'mask');
-          if (mask) for (const code of inflateSync(p.subarray(mask.start + 8, mask.end))) if (code <= 5) seen.add(`class ${code}`);
-        }
-      }
+          if (w.mask && w.mask.rawEnd > w.mask.rawStart) seen.add(`raw NaN bits ${h.dtype}`);
+          // The class map through the library's decoder: a wrong decoder would fail the seeds' own round trip first.
+          const [rows, cols] = tileDims(h, t);
+          for (const code of classesOf(p, w, rows, cols) ?? []) seen.add(`class ${code}`);
+        });
+      });
       if (m.payloads.length > 1) seen.add('several fields');
       seen.add(m.header.fields[0].dtype);
     });
     // Cell classes 0..5 of the mask (valid, fill, +Inf, -Inf, NaN, raw NaN): spec/FORMAT.md 10.6.3.
-    for (const want of ['method 0', 'method 1', 'rank > 0', 'flag Mask', 'flag Residual', 'flag Exceptions', 'flag Lorenzo', 'class 0', 'class 1', 'class 2', 'class 3', 'class 4', 'class 5', 'several fields', 'f32', 'f64']) {
-      expect(seen, `no seed has ${want}`).toContain(want);
+    const want = ['method 0', 'method 1', 'rank > 0 as values', 'rank > 0 as differences', 'several factor groups', 'factors and a residual'];
+    want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FactorDelta', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
+    want.push('class 0', 'class 1', 'class 2', 'class 3', 'class 4', 'class 5', 'several fields', 'f32', 'f64');
+    for (const x of want) expect(seen, `no seed has ${x}`).toContain(x);
+  });
+
+  it('the test-side payload walker and the library walkers (prefixLengths, payloadShares) agree on every seed payload', async () => {
+    const c = await corpus();
+    // The walker's flag bits are its own copy of the layout: they must be the library's.
+    expect(PayloadFlag).toEqual(Flag);
+    let lowRank = 0;
+    for (const m of c.models) {
+      for (const field of m.payloads) {
+        for (const p of field) {
+          const w = walk(p);
+          expect(w.end).toBe(p.length);
+          const length = (name: string) => {
+            const x = w.parts.find((s) => s.name === name);
+            return x ? x.end - x.start : 0;
+          };
+          const shares = payloadShares(p);
+          if (p[0] === 0) {
+            expect(shares).toEqual({ factors: 0, residual: 0, exceptions: p.length });
+            continue;
+          }
+          lowRank++;
+          const groups = w.parts.filter((s) => s.name.startsWith('group '));
+          expect(prefixLengths(p)).toEqual([w.groupCountAt + 1 + 2 * w.groups.length, ...groups.map((s) => s.end)]);
+          expect(shares).toEqual({ factors: groups.reduce((sum, s) => sum + s.end - s.start, 0), residual: length('residual'), exceptions: length('exceptions') });
+        }
+      }
     }
+    expect(lowRank).toBeGreaterThan(20);
+  });
+
+  it('every single-bit flip in a coded stream of a seed tile is refused with a FormatError or decodes', async () => {
+    // The payload CRC is bypassed (decodeTile directly): this is what the value CRC stands behind.
+    const c = await corpus();
+    const outcomes = { refused: 0, same: 0, other: 0 };
+    c.models.forEach((m) => {
+      m.payloads.forEach((field, f) => {
+        const h = m.header.fields[f];
+        // The first low-rank tile of each field that has a coded stream.
+        const t = field.findIndex((p) => p[0] === 1 && walk(p).parts.some((x) => x.kind === 'coded'));
+        if (t < 0) return;
+        const p = field[t];
+        const [rows, cols] = tileDims(h, t);
+        const fill = h.fill instanceof Uint8Array ? new DataView(h.fill.buffer, h.fill.byteOffset, 8).getFloat64(0, true) : h.fill;
+        const ctx = { m: rows, n: cols, dtype: h.dtype, fill: fillWords(fill, h.dtype), where: `${h.name} tile ${t}` };
+        const seedValues = Buffer.from(decodeTile(p, ctx).buffer);
+        for (const part of walk(p).parts) {
+          if (part.kind !== 'coded') continue;
+          for (let b = part.streamStart; b < part.end; b++) {
+            for (let bit = 0; bit < 8; bit++) {
+              const q = p.slice();
+              q[b] ^= 1 << bit;
+              let got: Buffer;
+              try {
+                got = Buffer.from(decodeTile(q, ctx).buffer);
+              } catch (e) {
+                if (!(e instanceof FormatError)) throw new Error(`${h.name} tile ${t} ${part.name} byte ${b} bit ${bit}: ${(e as Error).stack}`);
+                outcomes.refused++;
+                continue;
+              }
+              if (got.equals(seedValues)) outcomes.same++;
+              else outcomes.other++;
+            }
+          }
+        }
+      });
+    });
+    console.log(`coded stream bit flips: ${JSON.stringify(outcomes)}`);
+    // Both outcomes occur: most flips break the exact stream length, some decode to other values.
+    expect(outcomes.refused).toBeGreaterThan(outcomes.same + outcomes.other);
+    expect(outcomes.other).toBeGreaterThan(0);
+  });
+
+  it('the detect obligation flags a payload edit whose changed values check() does not report', async () => {
+    const c = await corpus();
+    const k = c.seeds.findIndex((s) => s.name === 'residual-f64');
+    const m = cloneModel(c.models[k]);
+    const p = m.payloads[0][0];
+    const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+    d.setFloat64(4, d.getFloat64(4, true) + 1e-3, true); // the centre moved: other values, a valid payload
+    const caught = await runCase(serialize(m), new Rng(1), 'fuzz-case', { expect: 'detect', values: c.values[k], loose: c.loose[k] });
+    expect(caught.findings).toEqual([]);
+    expect(caught.result).toBe('check-failed');
+    // With the value CRC recomputed for the new values, check() cannot tell: the harness must.
+    const values = await (await open(serialize(m))).tile('noisy', 0);
+    m.index.fields[0].value_crc[0] = crc32(new Uint8Array(values.buffer, values.byteOffset, values.byteLength));
+    const missed = await runCase(serialize(m), new Rng(1), 'fuzz-case', { expect: 'detect', values: c.values[k], loose: c.loose[k] });
+    expect(missed.findings).toEqual([`check: field 'noisy' reads back other values than the seed's, but check() reports no failure for it`]);
   });
 
   it('a case is made the same way every time (replayable from seed and number)', async () => {
@@ -72,6 +177,7 @@ describe('fuzzing', () => {
     expect(tally.results.get('done ok') ?? 0).toBeGreaterThan(CASES / 20);
     expect(tally.expectations.get('same') ?? 0).toBeGreaterThan(CASES / 20);
     expect(tally.expectations.get('refuse') ?? 0).toBeGreaterThan(CASES / 40);
+    expect(tally.expectations.get('detect') ?? 0).toBeGreaterThan(CASES / 20);
     // Ceilings instead of timing: the largest decode work an accepted case declares
     // (sum of m*n*(rank+1) over its tiles), and heap plus array buffers between stages.
     expect(tally.maxWork).toBeLessThan(2 ** 26);

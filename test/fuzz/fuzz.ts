@@ -4,7 +4,8 @@
  * seed archive with Rng(s, i), so any case is replayed from (s, i) alone.
  */
 import { buildSeeds, type Seed } from './corpus.js';
-import { runCase, type Outcome } from './harness.js';
+import { LOOSE_BOUND, runCase, type Outcome } from './harness.js';
+import type { FloatArray } from '../../src/types.js';
 import { parse, type Model } from './model.js';
 import { mutate, type Expectation } from './mutate.js';
 import { open } from '../../src/archive.js';
@@ -15,22 +16,28 @@ export interface Corpus {
   seeds: Seed[];
   models: Model[];
   values: Map<string, Uint8Array>[];
+  /** Values read at the harness's loose bound (progressive prefixes). */
+  loose: Map<string, Uint8Array>[];
 }
 
 export async function corpus(): Promise<Corpus> {
   const seeds = buildSeeds();
   const values: Map<string, Uint8Array>[] = [];
+  const loose: Map<string, Uint8Array>[] = [];
+  const copy = (got: FloatArray) => new Uint8Array(got.buffer.slice(got.byteOffset, got.byteOffset + got.byteLength));
   for (const s of seeds) {
     const a = await open(s.bytes);
     const v = new Map<string, Uint8Array>();
+    const l = new Map<string, Uint8Array>();
     for (const name of a.names) {
-      const got = (await a.read(name)).values;
-      v.set(name, new Uint8Array(got.buffer.slice(got.byteOffset, got.byteOffset + got.byteLength)));
+      v.set(name, copy((await a.read(name)).values));
+      l.set(name, copy((await a.read(name, { bound: LOOSE_BOUND })).values));
     }
     if (!(await a.check()).ok) throw new Error(`seed ${s.name} does not check clean`);
     values.push(v);
+    loose.push(l);
   }
-  return { seeds, models: seeds.map((s) => parse(s.bytes)), values };
+  return { seeds, models: seeds.map((s) => parse(s.bytes)), values, loose };
 }
 
 /** One case, made and run. */
@@ -53,7 +60,7 @@ export function makeCase(c: Corpus, seed: number, i: number): { rng: Rng; k: num
 
 export async function runOne(c: Corpus, seed: number, i: number): Promise<CaseResult> {
   const { rng, k, bytes, ops, expect } = makeCase(c, seed, i);
-  const outcome = await runCase(bytes, rng, 'fuzz-case', { expect, values: c.values[k] });
+  const outcome = await runCase(bytes, rng, 'fuzz-case', { expect, values: c.values[k], loose: c.loose[k] });
   return { ...outcome, index: i, seed: c.seeds[k].name, ops, bytes, expect };
 }
 
@@ -88,7 +95,7 @@ export class Tally {
       `cases ${this.cases}, findings ${this.findings.length}, cases over 1 s ${this.over1s}`,
       `slowest case ${this.slowest.index} (${this.slowest.ms.toFixed(1)} ms, seed ${this.slowest.seed}: ${this.slowest.ops.join('; ')})`,
       `mean ${(this.totalMs / Math.max(1, this.cases)).toFixed(2)} ms per case, largest declared decode work ${this.maxWork}, peak heap+buffers ${(this.peakMemory / 2 ** 20).toFixed(0)} MiB`,
-      `cases that must read back unchanged ${this.expectations.get('same') ?? 0}, that must be refused ${this.expectations.get('refuse') ?? 0}`,
+      `cases that must read back unchanged ${this.expectations.get('same') ?? 0}, that must be refused ${this.expectations.get('refuse') ?? 0}, whose changed values check() must catch ${this.expectations.get('detect') ?? 0}`,
       'outcomes (stage result):',
       ...lines,
     ];

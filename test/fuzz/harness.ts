@@ -1,10 +1,13 @@
 /**
  * Run one fuzz case the way users touch an archive: open it, show it (the
- * CLI's facts, from header and index), read every field whole, read a few
- * tiles and a window, and check it. What may escape is a FormatError (or an
+ * CLI's facts, from header and index), read every field whole and at a
+ * loose bound (progressive prefixes), read a few tiles and a window, and
+ * check it. What may escape is a FormatError (or an
  * InputError) with a known code and a one-line message naming the source;
  * anything else, a check() that throws, or a read() failure that check()
- * does not report, is a finding.
+ * does not report, is a finding. Obligations (./mutate.ts) add: read back
+ * the seed's values bit for bit ('same'), be refused somewhere ('refuse'),
+ * or have check() report a field that reads back other values ('detect').
  */
 import { open, type Archive } from '../../src/archive.js';
 import { archiveFacts, factsText } from '../../src/cli/show.js';
@@ -107,10 +110,15 @@ export function declaredWork(a: Archive, index: ArchiveIndex): number {
 
 /** What a case must do beyond the typed-error contract (see expectationOf in ./mutate.ts). */
 export interface Obligation {
-  expect: 'same' | 'refuse' | 'any';
-  /** The seed's decoded values per field name (compared bit for bit when expect is 'same'). */
+  expect: 'same' | 'refuse' | 'detect' | 'any';
+  /** The seed's decoded values per field name (compared bit for bit when expect is 'same' or 'detect'). */
   values: Map<string, Uint8Array>;
+  /** The seed's values per field name read at {@link LOOSE_BOUND} (progressive prefixes where the index lists them). */
+  loose?: Map<string, Uint8Array>;
 }
+
+/** A bound every recorded prefix meets: a read at it takes each tile's shortest prefix (spec/FORMAT.md 18.4). */
+export const LOOSE_BOUND = 'abs:1e300';
 
 function sameBytes(a: Uint8Array, b: Uint8Array): boolean {
   if (a.length !== b.length) return false;
@@ -174,16 +182,34 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', 
     if (page) failedPages.get(name)!.add(Number(page[1]));
     if (m) failedTiles.get(name)!.add(Number(m[1]));
   };
+  /** Fields that read back without error but with values other than the seed's (for 'detect'). */
+  const changed = new Set<string>();
   for (const name of a.names) {
     try {
       const got = await a.read(name);
-      const want = duty?.expect === 'same' ? duty.values.get(name) : undefined;
-      if (duty?.expect === 'same' && (want === undefined || !sameBytes(new Uint8Array(got.values.buffer, got.values.byteOffset, got.values.byteLength), want))) {
+      const want = duty?.expect === 'same' || duty?.expect === 'detect' ? duty.values.get(name) : undefined;
+      const same = want !== undefined && sameBytes(new Uint8Array(got.values.buffer, got.values.byteOffset, got.values.byteLength), want);
+      if (duty?.expect === 'same' && !same) {
         out.findings.push(`read: field '${name}' does not read back as the seed's (this mutation must not change values)`);
       }
+      if (duty?.expect === 'detect' && !same) changed.add(name);
     } catch (e) {
       caught(e, 'read');
       if (e instanceof FormatError && e.code !== FormatCode.Limit) failed(name, e);
+    }
+    // A progressive read: prefixes are checked by their own CRCs (the seed's, as the mutations leave the
+    // prefix column alone), so a prefix read back differs from the seed's only through whole tiles, whose
+    // value CRCs check() verifies. A failure here is not a decoding failure check() must report.
+    try {
+      const got = await a.read(name, { bound: LOOSE_BOUND });
+      const want = duty?.loose?.get(name);
+      if (want !== undefined && (duty?.expect === 'same' || duty?.expect === 'detect')) {
+        const same = sameBytes(new Uint8Array(got.values.buffer, got.values.byteOffset, got.values.byteLength), want);
+        if (duty.expect === 'same' && !same) out.findings.push(`progressive: field '${name}' at ${LOOSE_BOUND} does not read back as the seed's (this mutation must not change values)`);
+        if (duty.expect === 'detect' && !same) changed.add(name);
+      }
+    } catch (e) {
+      caught(e, 'progressive');
     }
     sample();
     const tiles = tileCount(a.field(name).header);
@@ -229,6 +255,10 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', 
       for (const p of failedPages.get(name) ?? []) {
         if (!report.failures.some((f) => f.field === name && f.tile === -1 && new RegExp(`index page ${p} `).test(f.what))) out.findings.push(`check: does not report field '${name}' index page ${p}, which failed to load`);
       }
+    }
+    // Payload edits under the seed's index: values that changed must fail the value CRC of their tile.
+    for (const name of changed) {
+      if (!report.failures.some((f) => f.field === name)) out.findings.push(`check: field '${name}' reads back other values than the seed's, but check() reports no failure for it`);
     }
     if (!report.ok && out.result === 'ok') {
       out.result = 'check-failed';

@@ -14,7 +14,10 @@ import { DEFAULT_LIMITS, resolveLimits } from '../../src/format/schema.js';
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import { buildSeeds } from './corpus.js';
-import { cloneModel, parse, sections, serialize, type Block, type Model } from './model.js';
+import { cloneModel, parse, PayloadFlag, replaceStream, serialize, splice, tileDims, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
+import { decodeInts } from '../../src/codec/code-decode.js';
+import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
+import { crc32 } from '../../src/format/crc32.js';
 import { Lying, Raw, RawMap, encodeValue } from './msgpack.js';
 
 async function refusal(bytes: Uint8Array, readToo = true): Promise<FormatError> {
@@ -190,6 +193,23 @@ describe('reader limits', () => {
 });
 
 describe('the index', () => {
+  // BUG (reported; found by `npm run fuzz -- --seed 4242`, case 48926): checkPrefixes in
+  // src/format/schema.ts puts a prefix length or error from the file into its message with
+  // String(value), not describeValue(value), so a long string there gives a message of
+  // thousands of characters and a string with a line break a message of several lines.
+  // it.fails: this test fails until that is fixed; then drop `.fails`.
+  it.fails('quotes a prefix entry of the wrong type briefly and on one line', async () => {
+    const bytes = buildSeeds().find((s) => s.name === 'rough-factors-f64')!.bytes;
+    for (const at of [0, 2, 3]) {
+      const b = edit(bytes, (m) => (m.index.fields[0].prefix[0][at] = 'line\n'.repeat(500)));
+      const e = await refusal(b, false);
+      expect(e.code).toBe(FormatCode.Malformed);
+      expect(e.message).not.toMatch(/[\n\r]/);
+      expect(e.message.length).toBeLessThan(300);
+      expect(e.message).toMatch(/^archive index of field 'rough': tile 0 prefix 0 (length|error) "line\\nline\\n/);
+    }
+  });
+
   it('refuses payloads shared between fields, naming both tiles', async () => {
     const base = twoFields();
     const b = edit(base, (m) => {
@@ -262,55 +282,211 @@ describe('the header', () => {
 describe('tile payloads', () => {
   /**
    * A seed archive (the fuzz corpus, which is checked to hold every payload
-   * feature) with a tile that has the named section, whatever the encoder's
-   * choices are today.
+   * feature) with a low-rank tile that has the named part and passes `also`,
+   * whatever the encoder's choices are today.
    */
-  function withSection(name: string, fill?: 'fill'): { bytes: Uint8Array; f: number; t: number; field: string } {
+  function withPart(name: string, also: (w: PayloadLayout) => boolean = () => true): { bytes: Uint8Array; f: number; t: number; field: string; m: number; n: number } {
     for (const seed of buildSeeds()) {
-      const m = parse(seed.bytes);
-      for (let f = 0; f < m.payloads.length; f++) {
-        if (fill && !(m.header.fields[f].fill instanceof Uint8Array)) continue;
-        const t = m.payloads[f].findIndex((p) => p[0] === 1 && sections(p).sections.some((x) => x.name === name));
-        if (t >= 0) return { bytes: seed.bytes, f, t, field: m.header.fields[f].name };
+      const md = parse(seed.bytes);
+      for (let f = 0; f < md.payloads.length; f++) {
+        const t = md.payloads[f].findIndex((p) => {
+          const w = walk(p);
+          return w.parts.some((x) => x.name === name) && also(w);
+        });
+        if (t >= 0) {
+          const [m, n] = tileDims(md.header.fields[f], t);
+          return { bytes: seed.bytes, f, t, field: md.header.fields[f].name, m, n };
+        }
       }
     }
-    throw new Error(`no seed archive has a ${name} section`);
+    throw new Error(`no seed archive has a ${name} part`);
   }
 
-  /** Rewrite one section of tile t of field f through `change` on its raw data. */
+  /** Rewrite one payload of an archive through `change(payload, layout)`. */
+  function editPayload(bytes: Uint8Array, f: number, t: number, change: (p: Uint8Array, w: PayloadLayout) => Uint8Array | void): Uint8Array {
+    return edit(bytes, (md) => {
+      const p = md.payloads[f][t];
+      md.payloads[f][t] = change(p, walk(p)) ?? p;
+    });
+  }
+
+  /** The named part of a payload. */
+  function part(w: PayloadLayout, name: string): PartRef {
+    const x = w.parts.find((s) => s.name === name);
+    if (!x) throw new Error(`the payload has no ${name} part`);
+    return x;
+  }
+
+  /** Rewrite one DEFLATE section of tile t of field f through `change` on its raw data. */
   function editSection(bytes: Uint8Array, f: number, t: number, name: string, change: (raw: Uint8Array) => Uint8Array | void): Uint8Array {
-    return edit(bytes, (m) => {
-      const p = m.payloads[f][t];
-      const s = sections(p).sections.find((x) => x.name === name);
-      if (!s) throw new Error(`tile ${t} has no ${name} section`);
-      let raw: Uint8Array = inflateSync(p.subarray(s.start + 8, s.end));
+    return editPayload(bytes, f, t, (p, w) => {
+      const s = part(w, name);
+      let raw: Uint8Array = inflateSync(p.subarray(s.streamStart, s.end));
       raw = change(raw) ?? raw;
       const stored = deflateSync(raw);
       const head = new Uint8Array(8);
       new DataView(head.buffer).setUint32(0, raw.length, true);
       new DataView(head.buffer).setUint32(4, stored.length, true);
-      m.payloads[f][t] = Uint8Array.of(...p.subarray(0, s.start), ...head, ...stored, ...p.subarray(s.end));
+      return splice(p, s.start, s.end, Uint8Array.of(...head, ...stored));
     });
   }
 
-  it('refuses a fill cell in a field without a fill value, naming the cell by row and column', async () => {
+  /** Replace the stream of a coded part (its length word follows) with `stream(old)`. */
+  function editStream(bytes: Uint8Array, f: number, t: number, name: string, stream: (old: Uint8Array) => Uint8Array): Uint8Array {
+    return editPayload(bytes, f, t, (p, w) => {
+      const s = part(w, name);
+      return replaceStream(p, s, stream(p.slice(s.streamStart, s.end)));
+    });
+  }
+
+  /** A masked 6x7 field without a fill value, tiles of 3x4; tile 0 has cell 6 (row 1, column 2) NaN. */
+  const noFill = (raw = false) => {
     const v = smooth(6, 7);
-    v[9] = NaN;
-    const b = pack(v, [6, 7], { bound: 'rel:1e-2', tile: [3, 4] });
-    const e = await refusal(editSection(b, 0, 0, 'mask', (raw) => void (raw[5] = 1)));
+    if (raw) new Uint32Array(v.buffer).set([1, 0x7ff00000], 2 * 9); // a signalling NaN: raw NaN class
+    else v[9] = NaN;
+    return pack(v, [6, 7], { bound: 'rel:1e-2', tile: [3, 4] });
+  };
+
+  it('refuses a fill cell in a field without a fill value, naming the cell by row and column', async () => {
+    const b = editStream(noFill(), 0, 0, 'mask', () => {
+      const classes = new Uint8Array(12);
+      classes[6] = 4;
+      classes[5] = 1;
+      return encodeClasses(classes, 3, 4);
+    });
+    const e = await refusal(b);
     expect(e.message).toMatch(/^archive field 'field' tile 0: mask cell 5 \(row 1, column 1\) is a fill cell but the field has no fill value$/);
   });
 
   it('refuses raw NaN bits that are a number', async () => {
-    const v = smooth(6, 7);
-    new Uint32Array(v.buffer).set([1, 0x7ff00000], 2 * 9); // a signalling NaN: raw NaN class
-    const b = pack(v, [6, 7], { bound: 'rel:1e-2', tile: [3, 4] });
-    const e = await refusal(editSection(b, 0, 0, 'mask', (raw) => new DataView(raw.buffer).setFloat64(12, 2.5, true)));
+    const b = editPayload(noFill(true), 0, 0, (p, w) => {
+      expect(w.mask!.rawEnd - w.mask!.rawStart).toBe(8);
+      new DataView(p.buffer, p.byteOffset).setFloat64(w.mask!.rawStart, 2.5, true);
+    });
+    const e = await refusal(b);
     expect(e.message).toMatch(/raw NaN 0 of the mask holds the number 2.5, not a NaN/);
   });
 
+  it('refuses a raw NaN length word that does not match the raw NaN cells of the class map', async () => {
+    for (const [lie, cut] of [
+      [16, false],
+      [0, false],
+      [0, true],
+    ] as const) {
+      const b = editPayload(noFill(true), 0, 0, (p, w) => {
+        const out = cut ? splice(p, w.mask!.rawStart, w.mask!.rawEnd, new Uint8Array(0)) : p;
+        new DataView(out.buffer).setUint32(w.mask!.rawLengthAt, lie, true);
+        return out;
+      });
+      const e = await refusal(b);
+      expect(e.code).toBe(FormatCode.Malformed);
+      expect(e.message).toMatch(new RegExp(`^archive field 'field' tile 0: mask holds ${lie} bytes of raw NaN bits, its 1 raw NaN cells need 8$`));
+    }
+  });
+
+  it('refuses a class above 5 in a coded class map, and a class map that marks no cell missing', async () => {
+    for (const bad of [6, 7, 8]) {
+      const b = editStream(noFill(), 0, 0, 'mask', () => {
+        const classes = new Uint8Array(12);
+        classes[6] = 4;
+        // The coder writes class - 1 in three bits (5..7 fit); in the last row, as no cell below takes it as a context.
+        classes[10] = bad;
+        return encodeClasses(classes, 3, 4);
+      });
+      const e = await refusal(b);
+      expect(e.code).toBe(FormatCode.Malformed);
+      expect(e.message).toMatch(new RegExp(`^archive field 'field' tile 0: mask \\(coded stream at (payload|file) offset \\d+, \\d+ bytes\\): cell 10 has class ${bad}, above the largest, 5$`));
+    }
+    const none = editStream(noFill(), 0, 0, 'mask', () => encodeClasses(new Uint8Array(12), 3, 4));
+    expect((await refusal(none)).message).toMatch(/^archive field 'field' tile 0: mask at (payload|file) offset \d+ marks no cell missing$/);
+  });
+
+  it('refuses a coded stream whose length word runs past the payload, before decoding anything', async () => {
+    for (const name of ['residual', 'group 0', 'mask']) {
+      const r = withPart(name);
+      for (const huge of [2 ** 32 - 1, 2 ** 31]) {
+        const b = editPayload(r.bytes, r.f, r.t, (p, w) => void new DataView(p.buffer, p.byteOffset).setUint32(part(w, name).lengthAt, huge, true));
+        const e = await refusal(b);
+        expect(e.code, name).toBe(FormatCode.Truncated);
+        const label = name === 'mask' ? 'mask classes' : `${name === 'group 0' ? 'factor group 0' : name} stream`;
+        expect(e.message, name).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: ${label} needs ${huge} bytes at (payload|file) offset \\d+ but only \\d+ remain$`));
+      }
+    }
+  });
+
+  it('refuses a coded stream shorter than its values, or of fewer than 4 bytes', async () => {
+    for (const name of ['residual', 'group 0', 'mask']) {
+      const r = withPart(name);
+      const what = name === 'group 0' ? 'factor group 0' : name;
+      for (const cut of [1, 2]) {
+        const e = await refusal(editStream(r.bytes, r.f, r.t, name, (old) => old.slice(0, old.length - cut)));
+        expect(e.code, name).toBe(FormatCode.Malformed);
+        // The decoder reads the first missing byte where it read it before the cut (its decisions up to
+        // there depend only on earlier bytes); past it, it reads zeros, so its later decisions and how
+        // many more bytes it reads may change: at least one byte is missing, not always `cut`.
+        const short = new RegExp(`^archive field '${r.field}' tile ${r.t}: ${what} \\(coded stream at (payload|file) offset \\d+, \\d+ bytes\\): the stream ends (\\d+) byte\\(s\\) before its (values|classes) do$`).exec(e.message);
+        expect(short, `${name}: ${e.message}`).not.toBeNull();
+        expect(Number(short![2])).toBeGreaterThanOrEqual(1);
+      }
+      const e = await refusal(editStream(r.bytes, r.f, r.t, name, (old) => old.slice(0, 3)));
+      expect(e.message, name).toMatch(/a coded stream is at least 4 bytes, this one 3$/);
+    }
+  });
+
+  it('refuses bytes after the end of a coded stream, even when the length word counts them', async () => {
+    for (const name of ['residual', 'group 0', 'mask']) {
+      const r = withPart(name);
+      const what = name === 'group 0' ? 'factor group 0' : name;
+      for (const extra of [Uint8Array.of(0), Uint8Array.of(0xff, 0x12)]) {
+        const e = await refusal(editStream(r.bytes, r.f, r.t, name, (old) => Uint8Array.of(...old, ...extra)));
+        expect(e.code, name).toBe(FormatCode.Malformed);
+        expect(e.message, name).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: ${what} \\(coded stream at (payload|file) offset \\d+, \\d+ bytes\\): ${extra.length} byte\\(s\\) follow the end of the stream$`));
+      }
+    }
+  });
+
+  it('refuses a coded value above 2^30 in magnitude, and factor differences whose sum leaves 2^30', async () => {
+    // A residual without mask: every cell's code is in the stream (a code past 2^30 is refused whatever the predictor).
+    const r = withPart('residual', (w) => !(w.flags & PayloadFlag.Mask));
+    const big = editStream(r.bytes, r.f, r.t, 'residual', () => {
+      const q = new Int32Array(r.m * r.n);
+      q[3] = -(2 ** 30 + 1);
+      return encodeInts(q, r.m, r.n, null);
+    });
+    expect((await refusal(big)).message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: residual \\(coded stream at (payload|file) offset \\d+, \\d+ bytes\\): value 3 exceeds 2\\^30 in magnitude$`));
+    // Exactly 2^30 is a valid code.
+    const edge = editStream(r.bytes, r.f, r.t, 'residual', () => {
+      const q = new Int32Array(r.m * r.n);
+      q[3] = 2 ** 30;
+      return encodeInts(q, r.m, r.n, null);
+    });
+    const a = await open(edge);
+    for (const name of a.names) await a.read(name);
+    // Other values than the seed's: the value CRC says so.
+    const report = await a.check();
+    expect(report.failures.map((x) => x.what)).toEqual([expect.stringMatching(/value CRC-32 mismatch/)]);
+
+    const d = withPart('group 0', (w) => (w.flags & PayloadFlag.FactorDelta) !== 0);
+    expect(d.m).toBeGreaterThan(1);
+    const over = editStream(d.bytes, d.f, d.t, 'group 0', (old) => {
+      const size = walk(parse(d.bytes).payloads[d.f][d.t]).groups[0].size;
+      const row = new Int32Array(size * (d.m + d.n));
+      decodeInts(old, 1, row.length, null, row);
+      row[0] = 2 ** 30;
+      row[1] = 1;
+      return encodeInts(row, 1, row.length, null);
+    });
+    expect((await refusal(over)).message).toMatch(new RegExp(`^archive field '${d.field}' tile ${d.t}: factor group 0: a factor code exceeds 2\\^30 after summing its differences$`));
+  });
+
+  it('refuses the factor difference flag on a payload of rank 0', async () => {
+    const r = withPart('residual', (w) => w.rank === 0);
+    const e = await refusal(editPayload(r.bytes, r.f, r.t, (p) => void (p[1] |= PayloadFlag.FactorDelta)));
+    expect(e.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: factor difference flag on a payload of rank 0$`));
+  });
+
   it('refuses an exception holding the fill value, or a NaN', async () => {
-    const { bytes, f, t, field } = withSection('exceptions');
+    const { bytes, f, t, field } = withPart('exceptions');
     const h = parse(bytes).header.fields[f];
     const wide = h.dtype === 'f64';
     const put = (value: number) =>
@@ -332,32 +508,59 @@ describe('tile payloads', () => {
   });
 
   it('refuses a residual step of NaN and a centre of Infinity, naming the value and where the centre is', async () => {
-    const r = withSection('residual');
-    const e1 = await refusal(editSection(r.bytes, r.f, r.t, 'residual', (raw) => new DataView(raw.buffer).setFloat64(0, NaN, true)));
-    expect(e1.message).toMatch(/residual step NaN is not a positive finite number/);
+    const r = withPart('residual');
+    const e1 = await refusal(editPayload(r.bytes, r.f, r.t, (p, w) => void new DataView(p.buffer, p.byteOffset).setFloat64(w.residualStepAt!, NaN, true)));
+    expect(e1.message).toMatch(/residual step NaN at (payload|file) offset \d+ is not a positive finite number/);
     const e2 = await refusal(edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true)));
     // Offsets count in the payload, or in the file when the reader passes the payload's offset.
     expect(e2.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: centre Infinity at (payload offset 4|file offset \\d+) is not finite$`));
   });
 
   it('payload errors name file offsets when the reader knows where the payload is', async () => {
-    const r = withSection('residual');
+    const r = withPart('residual');
     const b = edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true));
     const offset = (await (await open(b)).loadIndex()).fields[r.f].offset[r.t];
     expect((await refusal(b)).message).toMatch(new RegExp(`centre Infinity at file offset ${offset + 4} is not finite$`));
   });
 
-  it('refuses bytes after a DEFLATE stream inside a section', async () => {
-    const r = withSection('residual');
-    const b = edit(r.bytes, (m) => {
-      const p = m.payloads[r.f][r.t];
-      const s = sections(p).sections.find((x) => x.name === 'residual')!;
-      const d = new DataView(p.buffer);
-      const stored = d.getUint32(s.start + 4, true);
-      const q = Uint8Array.of(...p.subarray(0, s.end), 0, ...p.subarray(s.end));
-      new DataView(q.buffer).setUint32(s.start + 4, stored + 1, true);
-      m.payloads[r.f][r.t] = q;
-    });
-    expect((await refusal(b)).message).toMatch(/residual has 1 bytes after the end of the stream of its DEFLATE data \(section at (payload|file) offset \d+\)/);
+  it('refuses a recorded prefix that does not end at a factor group, even with a CRC of the bytes it covers', async () => {
+    const r = withPart('group 1');
+    const base = await open(r.bytes);
+    const q = (await base.loadIndex()).fields[r.f].prefix![r.t];
+    expect(q.length).toBeGreaterThanOrEqual(4);
+    for (const off of [-1, 1]) {
+      const b = edit(r.bytes, (m) => {
+        const quad = m.index.fields[r.f].prefix[r.t];
+        quad[0] += off;
+        quad[1] = crc32(m.payloads[r.f][r.t].subarray(0, quad[0]));
+      });
+      const a = await open(b);
+      // The whole payload is untouched: a full read and check() are fine; the progressive read is refused.
+      await a.read(r.field);
+      let e: unknown = null;
+      try {
+        await a.read(r.field, { bound: 'abs:1e300' });
+      } catch (x) {
+        e = x;
+      }
+      expect(e).toBeInstanceOf(FormatError);
+      expect((e as FormatError).message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: the index lists a prefix of ${q[0] + off} bytes that does not end at a factor group$`));
+    }
+  });
+
+  it('refuses bytes after a DEFLATE stream inside a section (exact values, exceptions)', async () => {
+    for (const [name, what] of [
+      ['values', 'exact values'],
+      ['exceptions', 'exceptions'],
+    ]) {
+      const r = withPart(name);
+      const b = editPayload(r.bytes, r.f, r.t, (p, w) => {
+        const s = part(w, name);
+        const q = splice(p, s.end, s.end, Uint8Array.of(0));
+        new DataView(q.buffer).setUint32(s.lengthAt, s.end - s.streamStart + 1, true);
+        return q;
+      });
+      expect((await refusal(b)).message, name).toMatch(new RegExp(`${what} has 1 bytes after the end of the stream of its DEFLATE data \\(section at (payload|file) offset \\d+\\)`));
+    }
   });
 });

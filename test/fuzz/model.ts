@@ -253,39 +253,141 @@ export function resealTail(b: Uint8Array): void {
   d.setUint32(t + 36, crc32(b.subarray(t, t + 36)), true);
 }
 
-/** A section inside a payload: where its 8-byte header starts and where its stored bytes end. */
-export interface SectionRef {
+/**
+ * A part of a tile payload that holds a length-prefixed stream:
+ * - 'deflate': a DEFLATE section (exact values, exceptions): u32 raw length,
+ *   u32 stored length, stored bytes;
+ * - 'coded': a coded stream (mask class map, factor group, residual) with
+ *   the words before its u32 length (mask: none, the raw NaN length word
+ *   follows the coded length; group: step codes; residual: f64 step and u8 predictor).
+ */
+export interface PartRef {
   name: string;
+  kind: 'deflate' | 'coded';
+  /** Where the part begins (its first word). */
   start: number;
+  /** The u32 word that counts the stream bytes (DEFLATE: the stored length). */
+  lengthAt: number;
+  /** First byte of the stream, and the end of the stream. */
+  streamStart: number;
   end: number;
 }
 
-/** Find the fixed part and sections of a seed payload (method 0 or 1). */
-export function sections(p: Uint8Array): { fixedEnd: number; sections: SectionRef[] } {
+/** A tile payload taken apart (the layout of src/codec/tile-decode.ts, format 2, written out here from the layout, not taken from the library). */
+export interface PayloadLayout {
+  method: number;
+  flags: number;
+  rank: number;
+  /** End of the fixed part (method 0: 2 bytes; method 1: 12 bytes). */
+  fixedEnd: number;
+  /** Every length-prefixed part, in payload order. */
+  parts: PartRef[];
+  /** The raw NaN bits after a coded mask: the u32 word that counts them, and where they are. */
+  mask?: { rawLengthAt: number; rawStart: number; rawEnd: number };
+  /** The u8 group count (method 1). */
+  groupCountAt: number;
+  /** Factor groups: rank count and where their step codes (i16 left, i16 right per rank) begin. */
+  groups: { size: number; stepsAt: number }[];
+  /** The residual's f64 step (its u8 predictor follows). */
+  residualStepAt?: number;
+  /** The residual's predictor (0 none, 1 Lorenzo, 2 left, 3 up, 4 average, 5 median). */
+  residualPredictor?: number;
+  /** Where the walk ended: a well-formed payload ends exactly at its length. */
+  end: number;
+}
+
+/** Payload flag bits (src/codec/payload.ts), restated so a change there shows up here as a failing test. */
+export const PayloadFlag = { Mask: 1, Residual: 2, Exceptions: 4, FactorDelta: 16 } as const;
+
+/**
+ * Walk a tile payload of method 0 or 1. Throws a RangeError if a length
+ * word points past the end (a payload an earlier mutation already broke);
+ * seed payloads walk to exactly their end.
+ */
+export function walk(p: Uint8Array): PayloadLayout {
   const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
-  const out: SectionRef[] = [];
-  let pos = 0;
-  const section = (name: string) => {
-    const stored = d.getUint32(pos + 4, true);
-    out.push({ name, start: pos, end: pos + 8 + stored });
-    pos += 8 + stored;
+  const u32 = (at: number): number => {
+    if (at + 4 > p.length) throw new RangeError(`payload of ${p.length} bytes has no u32 at ${at}`);
+    return d.getUint32(at, true);
   };
-  if (p[0] === 0) {
-    pos = 2;
-    const fixedEnd = pos;
-    section('values');
-    return { fixedEnd, sections: out };
+  const parts: PartRef[] = [];
+  const deflate = (name: string, at: number): number => {
+    const end = at + 8 + u32(at + 4);
+    if (end > p.length) throw new RangeError(`${name} ends at ${end}, past the payload's ${p.length} bytes`);
+    parts.push({ name, kind: 'deflate', start: at, lengthAt: at + 4, streamStart: at + 8, end });
+    return end;
+  };
+  /** A coded stream whose u32 length is at `lengthAt`, after `start`. */
+  const coded = (name: string, start: number, lengthAt: number, streamStart = lengthAt + 4): number => {
+    const end = streamStart + u32(lengthAt);
+    if (end > p.length) throw new RangeError(`${name} ends at ${end}, past the payload's ${p.length} bytes`);
+    parts.push({ name, kind: 'coded', start, lengthAt, streamStart, end });
+    return end;
+  };
+  const method = p[0];
+  if (method === 0) {
+    const end = deflate('values', 2);
+    return { method, flags: p[1], rank: 0, fixedEnd: 2, parts, groupCountAt: -1, groups: [], end };
   }
+  if (method !== 1 || p.length < 13) throw new RangeError(`not a walkable payload (method ${method}, ${p.length} bytes)`);
   const flags = p[1];
   const rank = d.getUint16(2, true);
-  pos = 12;
-  const fixedEnd = pos;
-  if (flags & 1) section('mask');
-  const groups = p[pos++];
-  pos += 2 * groups;
-  for (let g = 0; g < groups; g++) section(`group ${g}`);
-  void rank;
-  if (flags & 2) section('residual');
-  if (flags & 4) section('exceptions');
-  return { fixedEnd, sections: out };
+  let at = 12;
+  let mask: PayloadLayout['mask'];
+  if (flags & PayloadFlag.Mask) {
+    const codedEnd = coded('mask', at, at, at + 8);
+    const rawEnd = codedEnd + u32(at + 4);
+    if (rawEnd > p.length) throw new RangeError(`mask raw NaN bits end at ${rawEnd}, past the payload's ${p.length} bytes`);
+    mask = { rawLengthAt: at + 4, rawStart: codedEnd, rawEnd };
+    at = rawEnd;
+  }
+  const groupCountAt = at;
+  if (at >= p.length) throw new RangeError('no group count');
+  const count = p[at++];
+  const groups: { size: number; stepsAt: number }[] = [];
+  const sizes: number[] = [];
+  for (let g = 0; g < count; g++, at += 2) {
+    if (at + 2 > p.length) throw new RangeError('group sizes cut short');
+    sizes.push(d.getUint16(at, true));
+  }
+  sizes.forEach((size, g) => {
+    groups.push({ size, stepsAt: at });
+    at = coded(`group ${g}`, at, at + 4 * size);
+  });
+  let residualStepAt: number | undefined;
+  let residualPredictor: number | undefined;
+  if (flags & PayloadFlag.Residual) {
+    residualStepAt = at;
+    if (at + 9 > p.length) throw new RangeError('residual step and predictor cut short');
+    residualPredictor = p[at + 8];
+    at = coded('residual', at, at + 9);
+  }
+  if (flags & PayloadFlag.Exceptions) at = deflate('exceptions', at);
+  return { method, flags, rank, fixedEnd: 12, parts, mask, groupCountAt, groups, residualStepAt, residualPredictor, end: at };
+}
+
+/** Rows and columns of tile t of a field (header map as decoded): tiles are cut at the field's edges; slices repeat the grid. */
+export function tileDims(h: { shape: number[]; tile: number[] }, t: number): [number, number] {
+  const gr = Math.ceil(h.shape[0] / h.tile[0]);
+  const gc = Math.ceil(h.shape[1] / h.tile[1]);
+  const k = t % (gr * gc);
+  const ti = Math.floor(k / gc);
+  const tj = k % gc;
+  return [Math.min(h.tile[0], h.shape[0] - ti * h.tile[0]), Math.min(h.tile[1], h.shape[1] - tj * h.tile[1])];
+}
+
+/** Replace bytes [from, to) of a payload by `bytes`. */
+export function splice(p: Uint8Array, from: number, to: number, bytes: Uint8Array): Uint8Array {
+  const out = new Uint8Array(p.length - (to - from) + bytes.length);
+  out.set(p.subarray(0, from));
+  out.set(bytes, from);
+  out.set(p.subarray(to), from + bytes.length);
+  return out;
+}
+
+/** Replace the stream of a part by `stream`, with its length word set to `declared` (default: the stream's length). */
+export function replaceStream(p: Uint8Array, part: PartRef, stream: Uint8Array, declared = stream.length): Uint8Array {
+  const out = splice(p, part.streamStart, part.end, stream);
+  new DataView(out.buffer).setUint32(part.lengthAt, declared >>> 0, true);
+  return out;
 }

@@ -2,7 +2,8 @@
  * Mutations of seed archives. Two layers:
  *
  * - structural: on the decoded model (payload bytes, the raw data inside
- *   compressed sections, the fixed part of payloads, header and index
+ *   DEFLATE sections, coded streams and the words around them, the fixed
+ *   part of payloads, header and index
  *   values, MessagePack encodings, container words), after which offsets,
  *   lengths and CRCs are recomputed so the mutation reaches the checks
  *   behind them, down to the tile decoder;
@@ -15,7 +16,10 @@
 import * as zlib from 'node:zlib';
 import { deflateSync, inflateSync } from 'fflate';
 import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
-import { cloneModel, directoryValue, layout, pageValues, resealTail, sections, serialize, TAIL, type Block, type Model } from './model.js';
+import { decodeClasses, decodeInts } from '../../src/codec/code-decode.js';
+import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
+import { crc32 } from '../../src/format/crc32.js';
+import { cloneModel, directoryValue, layout, pageValues, PayloadFlag, replaceStream, resealTail, serialize, splice, TAIL, tileDims, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import type { Rng } from './rng.js';
 
 /** Numbers that sit on a boundary of some check. */
@@ -209,13 +213,14 @@ function otherStream(raw: Uint8Array, rng: Rng): Uint8Array {
   return deflateSync(raw, { level: rng.range(0, 9) as 0 });
 }
 
-/** Rewrite one section of a payload: mutate its raw data, or its stream, or its declared lengths. */
-function mutateSection(p: Uint8Array, rng: Rng): { payload: Uint8Array; what: string } {
-  const { sections: secs } = sections(p);
-  if (secs.length === 0) return { payload: p, what: 'no section' };
-  const s = rng.pick(secs);
+/** Obligation suffixes of operation descriptions (see expectationOf). */
+const REFUSE = ' (must be refused)';
+const CAUGHT = ' (changed values must be caught)';
+
+/** Rewrite one DEFLATE section of a payload: mutate its raw data, or its stream, or its declared lengths. */
+function mutateDeflate(p: Uint8Array, s: PartRef, rng: Rng): { payload: Uint8Array; what: string } {
   const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
-  const stored = p.subarray(s.start + 8, s.end);
+  const stored = p.subarray(s.streamStart, s.end);
   let raw: Uint8Array = inflateSync(stored);
   let what = `section ${s.name}`;
   let declared: number | null = null;
@@ -231,7 +236,8 @@ function mutateSection(p: Uint8Array, rng: Rng): { payload: Uint8Array; what: st
     for (let k = rng.range(1, 3); k > 0; k--) raw = mutateBytes(raw, rng, 24);
     next = rng.chance(0.8) ? deflateSync(raw, { level: 6 }) : otherStream(raw, rng);
     declared = rng.chance(0.9) ? raw.length : rng.pick([raw.length + 1, raw.length - 1, 0, 2 ** 32 - 1, 1032 * next.length + 1]);
-    what += ` raw data (${raw.length} bytes, declared ${declared})`;
+    // A declared raw length other than the data's is refused; the same length may still decode to other values.
+    what += ` raw data (${raw.length} bytes, declared ${declared})${declared === raw.length ? CAUGHT : REFUSE}`;
   } else if (kind === 'restream') {
     next = otherStream(raw, rng);
     declared = raw.length;
@@ -239,26 +245,181 @@ function mutateSection(p: Uint8Array, rng: Rng): { payload: Uint8Array; what: st
   } else if (kind === 'stream bytes') {
     next = mutateBytes(stored.slice(), rng);
     declared = d.getUint32(s.start, true);
-    what += ' stream bytes';
+    what += ` stream bytes${CAUGHT}`;
   } else if (kind === 'trailing') {
     next = Uint8Array.of(...stored, ...new Uint8Array(rng.range(1, 4)).map(() => rng.int(256)));
     declared = raw.length;
-    what += ' with bytes after its stream';
+    what += ` with bytes after its stream${REFUSE}`;
   } else {
     next = stored.slice();
     declared = rng.pick([0, 1, 2 ** 31, 2 ** 32 - 1, d.getUint32(s.start, true) + rng.pick([-1, 1])]) >>> 0;
     const lieStored = rng.chance(0.5);
-    what += lieStored ? ' stored length' : ` raw length ${declared}`;
+    what += lieStored ? ` stored length${CAUGHT}` : ` raw length ${declared}${REFUSE}`;
     if (lieStored) {
       const out = p.slice();
-      setU32(out, s.start + 4, rng.pick([0, 1, stored.length + 1, stored.length - 1, 2 ** 32 - 1]));
+      setU32(out, s.lengthAt, rng.pick([0, 1, stored.length + 1, stored.length - 1, 2 ** 32 - 1]));
       return { payload: out, what };
     }
   }
   const head = new Uint8Array(8);
   setU32(head, 0, declared ?? raw.length);
   setU32(head, 4, next.length);
-  return { payload: Uint8Array.of(...p.subarray(0, s.start), ...head, ...next, ...p.subarray(s.end)), what };
+  return { payload: splice(p, s.start, s.end, Uint8Array.of(...head, ...next)), what };
+}
+
+/** What a coded stream holds: the grid it codes and, for the residual, which cells it skips. */
+interface Grid {
+  m: number;
+  n: number;
+  codes: Uint8Array | null;
+}
+
+/** The grid of a coded stream of a payload whose tile is m x n (the mask's classes decoded for the residual). */
+function gridOf(p: Uint8Array, layout: PayloadLayout, part: PartRef, m: number, n: number): Grid {
+  if (part.name === 'mask') return { m, n, codes: null };
+  if (part.name === 'residual') return { m, n, codes: classesOf(p, layout, m, n) };
+  const g = layout.groups[Number(part.name.slice('group '.length))];
+  return { m: 1, n: g.size * (m + n), codes: null };
+}
+
+/** The class map of a payload's coded mask (decoded by the library's decoder), or null without a mask. */
+export function classesOf(p: Uint8Array, layout: PayloadLayout, m: number, n: number): Uint8Array | null {
+  const mask = layout.parts.find((x) => x.name === 'mask');
+  if (!mask) return null;
+  const out = new Uint8Array(m * n);
+  decodeClasses(p.subarray(mask.streamStart, mask.end), m, n, out);
+  return out;
+}
+
+/** Decode a coded stream of a seed payload, let `edit` change the values, and code them again. */
+export function recode(p: Uint8Array, layout: PayloadLayout, part: PartRef, m: number, n: number, edit: (v: Int32Array | Uint8Array, g: Grid) => void): Uint8Array {
+  const g = gridOf(p, layout, part, m, n);
+  // A group size an earlier edit of this payload made up: not worth decoding (the case is 'any' by then).
+  if (g.m * g.n > 2 ** 20) throw new Error(`a grid of ${g.m}x${g.n} is too large to code again`);
+  const stream = p.subarray(part.streamStart, part.end);
+  let next: Uint8Array;
+  if (part.name === 'mask') {
+    const classes = new Uint8Array(m * n);
+    decodeClasses(stream, m, n, classes);
+    edit(classes, g);
+    next = encodeClasses(classes, m, n);
+  } else {
+    const values = new Int32Array(g.m * g.n);
+    decodeInts(stream, g.m, g.n, g.codes, values);
+    edit(values, g);
+    next = encodeInts(values, g.m, g.n, g.codes);
+  }
+  return replaceStream(p, part, next);
+}
+
+/**
+ * Mutate one coded stream (mask class map, factor group, residual). The
+ * decoder (src/codec/code-decode.ts) reads exactly the bytes the encoder
+ * wrote, and reads byte k at the same point whatever the bytes after k are,
+ * so a stream cut short (it must read a missing byte), one followed by
+ * bytes (they are left over), or a length word that is off (one of the two)
+ * is refused whatever the bytes; flipped bits and re-coded values may
+ * decode to other valid values, which the value CRC then catches.
+ */
+function mutateCoded(p: Uint8Array, layout: PayloadLayout, s: PartRef, m: number, n: number, rng: Rng): { payload: Uint8Array; what: string } {
+  const stream = p.subarray(s.streamStart, s.end);
+  const what = `coded ${s.name}`;
+  const kind = rng.weighted<string>([
+    [4, 'flip'],
+    [2, 'bytes'],
+    [3, 'values'],
+    [2, 'length off by one'],
+    [1, 'truncated'],
+    [1, 'trailing'],
+    [1, 'huge length'],
+    [1, 'empty'],
+  ]);
+  if (kind === 'flip') {
+    const next = stream.slice();
+    for (let k = rng.range(1, 3); k > 0; k--) next[rng.int(next.length)] ^= 1 << rng.int(8);
+    return { payload: replaceStream(p, s, next), what: `${what} stream bits flipped${CAUGHT}` };
+  }
+  if (kind === 'bytes') return { payload: replaceStream(p, s, mutateBytes(stream.slice(), rng)), what: `${what} stream bytes${CAUGHT}` };
+  if (kind === 'values') {
+    const out = recode(p, layout, s, m, n, (v, g) => {
+      const cells = [...Array(v.length).keys()].filter((c) => g.codes === null || g.codes[c] === 0);
+      for (let k = rng.range(1, 2); k > 0 && cells.length > 0; k--) {
+        const c = rng.pick(cells);
+        // Mask classes stay in 0..5 here (a class above 5 is a semantic mutation); codes stay within +-2^30.
+        if (v instanceof Uint8Array) v[c] = (v[c] + rng.range(1, 5)) % 6;
+        else v[c] = rng.pick([v[c] + 1, v[c] - 1, -v[c], 0, 2 ** 30, -(2 ** 30), 2 ** 29 + 1, rng.range(-1000, 1000)]);
+      }
+    });
+    return { payload: out, what: `${what} values changed and coded again${CAUGHT}` };
+  }
+  if (kind === 'length off by one') {
+    const out = p.slice();
+    const off = rng.pick([-1, 1]);
+    setU32(out, s.lengthAt, stream.length + off);
+    return { payload: out, what: `${what} length word ${off > 0 ? '+1' : '-1'}${REFUSE}` };
+  }
+  if (kind === 'truncated') {
+    const cut = rng.range(1, Math.min(3, stream.length));
+    return { payload: replaceStream(p, s, stream.slice(0, stream.length - cut)), what: `${what} stream cut ${cut} byte(s) short${REFUSE}` };
+  }
+  if (kind === 'trailing') {
+    const extra = new Uint8Array(rng.range(1, 3)).map(() => rng.int(256));
+    return { payload: replaceStream(p, s, Uint8Array.of(...stream, ...extra)), what: `${what} with bytes after its stream${REFUSE}` };
+  }
+  if (kind === 'huge length') {
+    const out = p.slice();
+    setU32(out, s.lengthAt, rng.pick([2 ** 32 - 1, 2 ** 31, p.length - s.streamStart + 1]));
+    return { payload: out, what: `${what} length word past the payload${REFUSE}` };
+  }
+  return { payload: replaceStream(p, s, new Uint8Array(0)), what: `${what} stream empty${REFUSE}` };
+}
+
+/** The raw NaN bits after a coded mask: a length word that is off, or bits added or taken away. */
+function mutateRawNaN(p: Uint8Array, layout: PayloadLayout, width: number, rng: Rng): { payload: Uint8Array; what: string } {
+  const mask = layout.mask!;
+  const have = mask.rawEnd - mask.rawStart;
+  const kind = rng.pick(['word', 'more bits', 'fewer bits']);
+  if (kind === 'word' || (kind === 'fewer bits' && have === 0)) {
+    const out = p.slice();
+    const lie = rng.pick([have + 1, have - 1, have + width, have - width, 2 ** 32 - 1]);
+    setU32(out, mask.rawLengthAt, lie);
+    return { payload: out, what: `mask raw NaN length word ${lie >>> 0} for ${have} bytes${REFUSE}` };
+  }
+  // Length word and bits agree, but not with the number of raw NaN cells in the class map.
+  const bits = kind === 'more bits' ? new Uint8Array(width).fill(0xff) : new Uint8Array(0);
+  const out = splice(p, kind === 'more bits' ? mask.rawEnd : mask.rawEnd - width, mask.rawEnd, bits);
+  setU32(out, mask.rawLengthAt, have + (kind === 'more bits' ? width : -width));
+  return { payload: out, what: `mask raw NaN bits: ${kind === 'more bits' ? 'one value more' : 'one value fewer'} than its raw NaN cells${REFUSE}` };
+}
+
+/** Mutate one part of tile t of field f: a DEFLATE section, a coded stream, the raw NaN bits, or the FactorDelta flag. */
+function mutatePart(mdl: Model, seed: Model, f: number, t: number, rng: Rng): string {
+  const p = mdl.payloads[f][t];
+  const layout = walk(p);
+  // Tile sizes and dtype from the seed's header: an earlier edit of this case may have made the header anything.
+  const h = seed.header.fields[f];
+  const [m, n] = tileDims(h, t);
+  const width = h.dtype === 'f64' ? 8 : 4;
+  const choice = rng.weighted<string>([
+    [10, 'part'],
+    [layout.mask ? 1 : 0, 'raw NaN'],
+    [layout.method === 1 ? 1 : 0, 'delta flag'],
+  ]);
+  let r: { payload: Uint8Array; what: string };
+  if (choice === 'raw NaN') r = mutateRawNaN(p, layout, width, rng);
+  else if (choice === 'delta flag') {
+    const out = p.slice();
+    out[1] ^= PayloadFlag.FactorDelta;
+    const set = (out[1] & PayloadFlag.FactorDelta) !== 0;
+    // Rank 0 with the flag is refused; on rank > 0 the codes are read as values or as differences, other values.
+    r = { payload: out, what: `FactorDelta flag ${set ? 'set' : 'cleared'} on rank ${layout.rank}${set && layout.rank === 0 ? REFUSE : CAUGHT}` };
+  } else if (layout.parts.length === 0) r = { payload: p, what: 'no section' };
+  else {
+    const s = rng.pick(layout.parts);
+    r = s.kind === 'deflate' ? mutateDeflate(p, s, rng) : mutateCoded(p, layout, s, m, n, rng);
+  }
+  mdl.payloads[f][t] = r.payload;
+  return `payload ${f}/${t} ${r.what}`;
 }
 
 /** Change the fixed part of a payload (method, flags, rank, centre, group count), keeping the index's method and rank in step. */
@@ -272,49 +433,58 @@ function mutateFixed(m: Model, f: number, t: number, rng: Rng): string {
   else if (which === 'rank' && p.length >= 4) d.setUint16(2, rng.pick([0, 1, 2, 3, 4, 7, 8, 16, 17, 65535, d.getUint16(2, true) + 1]) & 0xffff, true);
   else if (which === 'centre' && p.length >= 12) d.setFloat64(4, rng.pick(BOUNDARY_NUMBERS), true);
   else if (which === 'groups' && p.length >= 13) {
-    const { sections: secs } = sections(p);
-    const at = p[1] & 1 && secs.length > 0 ? secs[0].end : 12;
+    const at = walk(p).groupCountAt;
     if (at < p.length) p[at] = rng.pick([0, 1, 2, 255]);
   }
   if (rng.chance(0.8) && p.length >= 1) {
     ix.method[t] = p[0];
     ix.rank[t] = p[0] === 1 && p.length >= 4 ? d.getUint16(2, true) : 0;
   }
-  return `payload ${f}/${t} ${which}`;
+  return `payload ${f}/${t} ${which}${CAUGHT}`;
 }
 
 /**
  * Targeted edits that leave every structure well-formed but break one rule
  * a decoder must enforce (spec/FORMAT.md, section 15): a fill cell in a field
- * without a fill value, raw NaN bits that are a number, an exception that is
- * NaN or the fill value, a NaN residual step or centre, a tile grid that no
- * longer matches the index. Each must be refused.
+ * without a fill value, raw NaN bits that are a number, a mask class above
+ * 5, a coded value above 2^30 or factor differences that sum past it, the
+ * FactorDelta flag on rank 0, an exception that is NaN or the fill value, a
+ * NaN residual step or centre, a tile grid that no longer matches the index.
+ * Each must be refused.
  */
-function semantic(m: Model, rng: Rng): string {
+function semantic(m: Model, seed: Model, rng: Rng): string {
   const f = rng.int(m.payloads.length);
   const h = m.header.fields[f];
   const wide = h.dtype === 'f64';
   const width = wide ? 8 : 4;
   const t = rng.int(m.payloads[f].length);
   const p = m.payloads[f][t];
-  const { sections: secs } = p[0] === 1 ? sections(p) : { sections: [] };
-  const find = (name: string) => secs.find((x) => x.name === name);
+  const layout = walk(p);
+  const find = (name: string) => layout.parts.find((x) => x.name === name);
+  /** Rewrite a DEFLATE section's raw data. */
   const rewrite = (name: string, edit: (raw: Uint8Array) => boolean): boolean => {
     const s = find(name);
     if (!s) return false;
-    const raw = inflateSync(p.subarray(s.start + 8, s.end));
+    const raw = inflateSync(p.subarray(s.streamStart, s.end));
     if (!edit(raw)) return false;
     const stored = deflateSync(raw, { level: 6 });
     const head = new Uint8Array(8);
     setU32(head, 0, raw.length);
     setU32(head, 4, stored.length);
-    m.payloads[f][t] = Uint8Array.of(...p.subarray(0, s.start), ...head, ...stored, ...p.subarray(s.end));
+    m.payloads[f][t] = splice(p, s.start, s.end, Uint8Array.of(...head, ...stored));
     return true;
   };
-  const cells = (() => {
-    const gc = Math.ceil(h.shape[1] / h.tile[1]);
-    return Math.min(h.tile[0], h.shape[0] - Math.floor(t / gc) * h.tile[0]) * Math.min(h.tile[1], h.shape[1] - (t % gc) * h.tile[1]);
-  })();
+  // Tile sizes from the seed's header (an earlier edit may have made this case's header anything).
+  const [rows, cols] = tileDims(seed.header.fields[f], t);
+  /** Decode a coded stream, edit its values (false: nothing to break here) and code them again. */
+  const recoded = (name: string, edit: (v: Int32Array | Uint8Array, g: { m: number; n: number; codes: Uint8Array | null }) => boolean): boolean => {
+    const s = find(name);
+    if (!s) return false;
+    let changed = false;
+    const out = recode(p, layout, s, rows, cols, (v, g) => void (changed = edit(v, g)));
+    if (changed) m.payloads[f][t] = out;
+    return changed;
+  };
   const fillBits = (): Uint8Array | null => {
     if (!(h.fill instanceof Uint8Array)) return null;
     const v = new DataView(h.fill.buffer, h.fill.byteOffset, 8).getFloat64(0, true);
@@ -325,16 +495,67 @@ function semantic(m: Model, rng: Rng): string {
     return b;
   };
   const tries: [string, () => boolean][] = [
-    ['fill cell without a fill value', () => h.fill === null && rewrite('mask', (raw) => ((raw[rng.int(cells)] = 1), true))],
     [
-      'raw NaN bits that are a number',
+      'fill cell without a fill value',
       () =>
-        rewrite('mask', (raw) => {
-          if (raw.length <= cells) return false;
-          if (wide) new DataView(raw.buffer).setFloat64(cells, 1.5, true);
-          else new DataView(raw.buffer).setFloat32(cells, 1.5, true);
+        h.fill === null &&
+        recoded('mask', (v) => {
+          // A cell of another class that needs no raw bits (a valid cell would also shift the residual).
+          const other = [...v.keys()].filter((c) => v[c] >= 2 && v[c] <= 4);
+          v[other.length > 0 ? rng.pick(other) : rng.int(v.length)] = 1;
           return true;
         }),
+    ],
+    [
+      'raw NaN bits that are a number',
+      () => {
+        if (!layout.mask || layout.mask.rawEnd === layout.mask.rawStart) return false;
+        const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+        const at = layout.mask.rawStart + width * rng.int((layout.mask.rawEnd - layout.mask.rawStart) / width);
+        if (wide) d.setFloat64(at, 1.5, true);
+        else d.setFloat32(at, 1.5, true);
+        return true;
+      },
+    ],
+    [
+      'a class above 5 in the mask',
+      // In the last row: the coder takes the class of the cell above as a context, which must be 0..5
+      // (a larger one indexes past its model and never ends), so no cell may sit below the bad one.
+      () => recoded('mask', (v) => ((v[(rows - 1) * cols + rng.int(cols)] = rng.range(6, 8)), true)),
+    ],
+    [
+      'a code above 2^30 in a coded stream',
+      () => {
+        const streams = layout.parts.filter((x) => x.kind === 'coded' && x.name !== 'mask');
+        if (streams.length === 0) return false;
+        return recoded(rng.pick(streams).name, (v, g) => {
+          const cells = [...v.keys()].filter((c) => g.codes === null || g.codes[c] === 0);
+          if (cells.length === 0) return false;
+          // The coder writes any magnitude below 2^31 (class 30 and 30 bits below the leading one); the decoder allows 2^30.
+          v[rng.pick(cells)] = rng.pick([1, -1]) * rng.pick([2 ** 30 + 1, 2 ** 31 - 1]);
+          return true;
+        });
+      },
+    ],
+    [
+      'factor differences that sum past 2^30',
+      () =>
+        (layout.flags & PayloadFlag.FactorDelta) !== 0 &&
+        rows >= 2 &&
+        recoded('group 0', (v) => {
+          // The first two entries of left factor 0: their running sum is 2^31.
+          v[0] = 2 ** 30;
+          v[1] = 2 ** 30;
+          return true;
+        }),
+    ],
+    [
+      'FactorDelta flag on rank 0',
+      () => {
+        if (layout.method !== 1 || layout.rank !== 0) return false;
+        p[1] |= PayloadFlag.FactorDelta;
+        return true;
+      },
     ],
     [
       'an exception that is NaN or the fill value',
@@ -351,7 +572,14 @@ function semantic(m: Model, rng: Rng): string {
           return true;
         }),
     ],
-    ['a NaN residual step', () => rewrite('residual', (raw) => (new DataView(raw.buffer).setFloat64(0, NaN, true), true))],
+    [
+      'a NaN residual step',
+      () => {
+        if (layout.residualStepAt === undefined) return false;
+        new DataView(p.buffer, p.byteOffset, p.byteLength).setFloat64(layout.residualStepAt, NaN, true);
+        return true;
+      },
+    ],
     [
       'a NaN centre',
       () => {
@@ -495,6 +723,30 @@ function postIndex(m: Model, rng: Rng): string {
   return `index field ${f} tile ${t} ${which}`;
 }
 
+/**
+ * Move the first recorded prefix of a progressive tile off its factor group
+ * boundary by one byte, with a CRC that matches the bytes it now covers: a
+ * progressive read takes that prefix (./harness.ts reads at a bound every
+ * prefix meets) and must refuse it (spec/FORMAT.md 18.2).
+ */
+function prefixCut(m: Model, rng: Rng, touch: (key: string) => void): string {
+  const tiles: [number, number][] = [];
+  m.index.fields.forEach((ix: Block, f: number) => {
+    if (Array.isArray(ix?.prefix)) ix.prefix.forEach((q: unknown, t: number) => Array.isArray(q) && q.length >= 4 && tiles.push([f, t]));
+  });
+  if (tiles.length === 0) return 'index prefix: nothing to edit';
+  const [f, t] = rng.pick(tiles);
+  touch(`payload ${f}/${t}`);
+  const ix = m.index.fields[f];
+  const q = ix.prefix[t];
+  const next = q.length >= 8 ? q[4] : ix.length[t];
+  const cuts = [q[0] - 1, q[0] + 1].filter((x) => x > 0 && x < next);
+  if (cuts.length === 0) return 'index prefix: nothing to edit';
+  q[0] = rng.pick(cuts);
+  q[1] = crc32(m.payloads[f][t].subarray(0, q[0]));
+  return `index field ${f} tile ${t} prefix 0 cut at ${q[0]}, off its factor group boundary, CRC recomputed${REFUSE}`;
+}
+
 /** Container-level words: versions, flags, reserved word, block order, a gap, a stale CRC. */
 function containerWords(m: Model, rng: Rng): string {
   const which = rng.pick(['version', 'flags', 'reserved', 'order', 'gap', 'stale crc', 'tail version']);
@@ -549,39 +801,50 @@ function fileBytes(b: Uint8Array, others: Uint8Array[], rng: Rng): { bytes: Uint
 export interface Mutated {
   bytes: Uint8Array;
   ops: string[];
-  /** 'same': must read back exactly as the seed; 'refuse': must be refused somewhere; 'any': either. */
   expect: Expectation;
 }
 
-export type Expectation = 'same' | 'refuse' | 'any';
+/**
+ * 'same': must read back exactly as the seed; 'refuse': must be refused
+ * somewhere; 'detect': payload bytes changed under an index whose value
+ * CRCs are the seed's, so a field that reads back other values must be
+ * reported by check(); 'any': only the typed-error contract.
+ */
+export type Expectation = 'same' | 'refuse' | 'detect' | 'any';
 
 /**
  * What an operation obliges a reader to do, from its description: valid
  * re-encodings (another DEFLATE stream, other MessagePack number widths,
  * block order, an unreferenced gap, the reserved word) must not change what
- * is read; stream bytes after the end, a repeated or non-string map key, a
- * stale CRC, unknown versions and flags, a block with bytes after its value
- * or cut short, a declared raw length that differs from the data, and two
- * tiles sharing payload bytes must be refused.
+ * is read; stream bytes after the end, a coded stream whose length word is
+ * off or that is cut short, a repeated or non-string map key, a stale CRC,
+ * unknown versions and flags, a block with bytes after its value or cut
+ * short, a declared raw length that differs from the data, and two tiles
+ * sharing payload bytes must be refused; edits of payload bytes that keep
+ * the index may decode to other values, which check() must then report.
  */
 export function expectationOf(op: string): Expectation {
   if (/ edited twice$| skipped \(/.test(op)) return 'any';
   if (/^unchanged$|no section$|nothing to edit$|aliased to itself$|top-level map left alone$|no rule to break here$/.test(op)) return 'same';
   if (/\(must be refused\)$/.test(op)) return 'refuse';
+  if (/\(changed values must be caught\)$/.test(op)) return 'detect';
   if (/written as another valid stream$|msgpack widths$|^container (reserved|order|gap)$/.test(op)) return 'same';
-  if (/with bytes after its stream$|^container (version|flags|stale crc|tail version)$|msgpack (trailing|truncated)$|repeated key or non-string key|aliased to the payload of/.test(op)) return 'refuse';
-  const raw = /raw data \((\d+) bytes, declared (\d+)\)$/.exec(op);
-  if (raw && raw[1] !== raw[2]) return 'refuse';
+  if (/^container (version|flags|stale crc|tail version)$|msgpack (trailing|truncated)$|repeated key or non-string key|aliased to the payload of/.test(op)) return 'refuse';
   return 'any';
 }
 
-/** The obligation of several operations together: all 'same' stay 'same', 'same' and 'refuse' refuse, anything else is free. */
+/**
+ * The obligation of several operations together: all 'same' stay 'same';
+ * 'refuse' with 'same' or 'detect' refuses; 'detect' with 'same' detects;
+ * anything with 'any' is free.
+ */
 export function combine(ops: string[]): Expectation {
   let e: Expectation = 'same';
   for (const op of ops) {
     const x = expectationOf(op);
     if (x === 'any') return 'any';
     if (x === 'refuse') e = 'refuse';
+    else if (x === 'detect' && e === 'same') e = 'detect';
   }
   return e;
 }
@@ -607,7 +870,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
   for (let k = 0; k < count; k++) {
     const op = rng.weighted<string>([
       [14, 'payload bytes'],
-      [18, 'section'],
+      [18, 'part'],
       [8, 'fixed part'],
       [12, 'header value'],
       [6, 'header consistent'],
@@ -616,6 +879,7 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
       [8, 'msgpack'],
       [4, 'container'],
       [4, 'semantic'],
+      [1, 'prefix'],
     ]);
     const at = pickPayload(m, rng);
     try {
@@ -623,13 +887,11 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
         const [f, t] = at;
         touch(`payload ${f}/${t}`);
         m.payloads[f][t] = mutateBytes(m.payloads[f][t], rng, 16);
-        ops.push(`payload ${f}/${t} bytes`);
-      } else if (op === 'section' && at) {
+        ops.push(`payload ${f}/${t} bytes${CAUGHT}`);
+      } else if (op === 'part' && at) {
         const [f, t] = at;
         touch(`payload ${f}/${t}`);
-        const r = mutateSection(m.payloads[f][t], rng);
-        m.payloads[f][t] = r.payload;
-        ops.push(`payload ${f}/${t} ${r.what}`);
+        ops.push(mutatePart(m, seed, f, t, rng));
       } else if (op === 'fixed part' && at) {
         touch(`payload ${at[0]}/${at[1]}`);
         ops.push(mutateFixed(m, at[0], at[1], rng));
@@ -639,11 +901,18 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
         // Index columns are long: aim at one field's columns directly, or anywhere in the index.
         const f = rng.int(m.index.fields.length);
         const ix = m.index.fields[f];
-        const c = rng.pick(['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc']);
+        const c = rng.pick(['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc', 'prefix']);
         if (!rng.chance(0.7) || ix.offset.length === 0) ops.push(editValue(m.index, rng, 'index'));
         else {
           const t = rng.int(ix.offset.length);
           const edit = () => {
+            const q = ix.prefix?.[t];
+            if (c === 'prefix' && Array.isArray(q) && q.length > 0) {
+              // One number of a (length, crc, max_err, rmse) quad.
+              const k = rng.int(q.length);
+              q[k] = rng.chance(0.5) ? nearNumber(q[k], rng) : absurdValue(rng);
+              return `index field ${f} prefix[${t}][${k}]`;
+            }
             ix[c][t] = rng.chance(0.5) ? nearNumber(ix[c][t], rng) : absurdValue(rng);
             return `index field ${f} ${c}[${t}]`;
           };
@@ -651,14 +920,18 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
           else ops.push(edit());
         }
       } else if (op === 'index structure') late.push(() => postIndex(m, rng));
+      else if (op === 'prefix') ops.push(prefixCut(m, rng, touch));
       else if (op === 'msgpack') {
         const block = rng.chance(0.5) ? 'header' : 'index';
         if (!blocks.includes(block)) blocks.push(block);
       } else if (op === 'container') ops.push(containerWords(m, rng));
       else if (op === 'semantic') {
-        const what = semantic(m, rng);
+        const what = semantic(m, seed, rng);
         const target = /^field \d+/.exec(what)?.[0];
         if (target) touch(target);
+        // Semantic edits of a payload the walk reads as the decoder does only when no other edit touched it.
+        const payload = /payload \d+\/\d+/.exec(what)?.[0];
+        if (payload) touch(payload);
         ops.push(what);
       }
     } catch (e) {

@@ -77,7 +77,7 @@ async function main(): Promise<void> {
   if (o.replay !== null) {
     const r = await runOne(c, o.seed, o.replay);
     console.log(`case ${o.replay} (seed archive ${r.seed}): ${r.ops.join('; ')}`);
-    console.log(`  ${r.stage} ${r.result}, ${r.ms.toFixed(1)} ms, must ${r.expect === 'any' ? 'only raise typed errors' : r.expect === 'same' ? 'read back unchanged' : 'be refused'}`);
+    console.log(`  ${r.stage} ${r.result}, ${r.ms.toFixed(1)} ms, must ${{ any: 'only raise typed errors', same: 'read back unchanged', refuse: 'be refused', detect: 'have check() report changed values' }[r.expect]}`);
     for (const f of r.findings) console.log(`  FINDING ${f}`);
     console.log(`  saved as ${save(o.replay, r.findings.join('\n'))}.rfz`);
     return;
