@@ -147,6 +147,8 @@ export function encodeClasses(codes: Uint8Array, m: number, n: number): Uint8Arr
       const c = i * n + j;
       const left = j > 0 && codes[c - 1] !== 0 ? 1 : 0;
       const up = i > 0 ? codes[c - n] : 0;
+      // Classes come from classify() (0..5); a larger one above would index past the model.
+      if (up > 5) throw new Error(`internal: class ${up} at cell ${c - n} is not 0..5`);
       const upLeft = i > 0 && j > 0 && codes[c - n - 1] !== 0 ? 1 : 0;
       const upRight = i > 0 && j + 1 < n && codes[c - n + 1] !== 0 ? 1 : 0;
       const ctx = left + 2 * (up !== 0 ? 1 : 0) + 4 * upLeft + 8 * upRight;

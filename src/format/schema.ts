@@ -618,9 +618,9 @@ function checkPrefixes(raw: unknown, ix: Pick<PageIndex, 'length' | 'method'>, t
     let prev = 0;
     for (let q = 0; q < p.length; q += 4) {
       const [len, crc, max, rmse] = p.slice(q, q + 4) as unknown[];
-      if (!Number.isInteger(len) || (len as number) <= prev || (len as number) >= ix.length[k]) fail(where, `tile ${t} prefix ${q / 4} length ${String(len)} is not rising or not shorter than the payload`);
+      if (!Number.isInteger(len) || (len as number) <= prev || (len as number) >= ix.length[k]) fail(where, `tile ${t} prefix ${q / 4} length ${describeValue(len)} is not rising or not shorter than the payload`);
       if (!Number.isInteger(crc) || (crc as number) < 0 || (crc as number) > 0xffffffff) fail(where, `tile ${t} prefix ${q / 4} crc is not a 32-bit value`);
-      for (const x of [max, rmse]) if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) fail(where, `tile ${t} prefix ${q / 4} error ${String(x)} is not a finite number >= 0`);
+      for (const x of [max, rmse]) if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) fail(where, `tile ${t} prefix ${q / 4} error ${describeValue(x)} is not a finite number >= 0`);
       prev = len as number;
     }
     return p as number[];
