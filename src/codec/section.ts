@@ -1,24 +1,13 @@
 /**
- * DEFLATE sections inside a tile payload (exact values, masks, exceptions). A section is `u32 rawLength, u32 storedLength, stored bytes`, where
- * the stored bytes are a raw DEFLATE stream (RFC 1951) that inflates to
- * exactly `rawLength` bytes and ends with the stored bytes. Writing uses
- * fflate; reading uses the strict decoder of ./inflate.ts.
+ * Reading DEFLATE sections of a tile payload (exact values, exceptions). A
+ * section is `u32 rawLength, u32 storedLength, stored bytes`, where the stored bytes are a raw DEFLATE stream (RFC 1951) that inflates to
+ * exactly `rawLength` bytes and ends with the stored bytes. Reading (here)
+ * uses the strict decoder of ./inflate.ts; writing is in ./section-write.ts,
+ * so the decoding entry imports no compressor.
  */
-import { deflateSync } from 'fflate';
 import { FormatCode, FormatError } from '../errors.js';
-import { ByteReader, ByteWriter } from '../format/bytes.js';
+import type { ByteReader } from '../format/bytes.js';
 import { InflateError, inflateInto } from './inflate.js';
-
-/** DEFLATE level for every section; fixed so archives are reproducible. */
-export const DEFLATE_LEVEL = 6;
-
-/** Append `raw` as a compressed section. */
-export function writeSection(w: ByteWriter, raw: Uint8Array): void {
-  const stored = deflateSync(raw, { level: DEFLATE_LEVEL });
-  w.u32(raw.length);
-  w.u32(stored.length);
-  w.bytes(stored);
-}
 
 /**
  * No DEFLATE stream inflates to more than 1032 times its stored size: the

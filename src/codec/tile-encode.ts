@@ -13,7 +13,8 @@ import { addResidual, lowRank, predict, predictedFill, Predictor, roundTo } from
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median];
 import { encodeInts } from './code-encode.js';
-import { MAX_INT, writeSection } from './section.js';
+import { MAX_INT } from './section.js';
+import { writeSection } from './section-write.js';
 import { MIN_STEP, stepCode, stepValue } from './steps.js';
 
 /** The exact payload: byte-shuffled values, DEFLATE. */

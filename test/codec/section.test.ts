@@ -13,7 +13,8 @@ import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { FormatCode, FormatError } from '../../src/errors.js';
 import { ByteReader, ByteWriter } from '../../src/format/bytes.js';
-import { readSection, writeSection } from '../../src/codec/section.js';
+import { readSection } from '../../src/codec/section.js';
+import { writeSection } from '../../src/codec/section-write.js';
 
 /** A section with any declared raw length around any stored bytes. */
 function section(declared: number, stored: Uint8Array | number[]): Uint8Array {
