@@ -4,7 +4,7 @@
  */
 import { Cell, classify, fillWords } from './codec/mask.js';
 import { checkBound, isPointwise, parseBound, resolveBound } from './codec/bound.js';
-import { prefixLengths } from './codec/payload.js';
+import { payloadHead, prefixLengths } from './codec/payload.js';
 import { ErrorTally } from './codec/tally.js';
 import { decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
@@ -268,9 +268,9 @@ export class Archive {
   private decodePayload(h: FieldHeader, e: TileEntry, t: number, payload: Uint8Array, verifyValues: boolean): FloatArray {
     const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
     if (crc32(payload) !== e.crc) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${e.offset})`);
-    const rank = payload[0] === 1 && payload.length >= 4 ? payload[2] | (payload[3] << 8) : 0;
-    if (payload[0] !== e.method || rank !== e.rank) {
-      throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${payload[0]} rank ${rank}, the index says method ${e.method} rank ${e.rank}`);
+    const { method, rank } = payloadHead(payload);
+    if (method !== e.method || rank !== e.rank) {
+      throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${method} rank ${rank}, the index says method ${e.method} rank ${e.rank}`);
     }
     const [m, n] = tileDims(h, t);
     const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank });

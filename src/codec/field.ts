@@ -9,7 +9,7 @@ import type { Bound, Dtype, FloatArray } from '../types.js';
 import { isPointwise, resolveBound } from './bound.js';
 import { Cell, fillWords } from './mask.js';
 import { ErrorTally } from './tally.js';
-import { prefixLengths } from './payload.js';
+import { payloadHead, prefixLengths } from './payload.js';
 import { decodeTile } from './tile-decode.js';
 import { planL2 } from './plan-l2.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
@@ -159,7 +159,7 @@ export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array 
   for (let c = 0; c < codes.length; c++) {
     if (codes[c] === Cell.Valid) tally.add(Math.abs(t.orig[c] - out[c]));
   }
-  const rank = payload[0] === 1 ? payload[2] | (payload[3] << 8) : 0;
+  const { rank } = payloadHead(payload);
   const valueCrc = crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength));
   return { stats: { method: payload[0], rank, valid: t.valid, maxErr: tally.max, rmse: tally.rmse, valueCrc, prefix: [] }, tally };
 }

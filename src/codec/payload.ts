@@ -25,6 +25,18 @@ export const Flag = {
 export const KNOWN_FLAGS = 0x17;
 
 /**
+ * The method and rank a payload declares (its first byte, and for LowRank
+ * the u16 at byte 2); rank 0 for other methods or a payload too short to
+ * hold it. The one reader of these bytes outside the decoder, for the
+ * index checks and the writer's statistics.
+ */
+export function payloadHead(payload: Uint8Array): { method: number; rank: number } {
+  const method = payload.length > 0 ? payload[0] : -1;
+  const rank = method === Method.LowRank && payload.length >= 4 ? payload[2] | (payload[3] << 8) : 0;
+  return { method, rank };
+}
+
+/**
  * Byte lengths of the progressive prefixes of a LowRank payload: entry k is
  * where factor group k begins (entry 0: the fixed part, mask section and
  * group list; the last entry: the end of the last factor group present).
