@@ -6,7 +6,8 @@
  * that the second pass enforces tile by tile, so the whole-field RMSE holds
  * by construction and tiles can be written as they are finished.
  */
-import { forEachTile, measure, type BandSource, type FieldSpec } from './field.js';
+import { measure } from './measure.js';
+import { forEachTile, type BandSource, type FieldSpec } from './tiles.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { encodeL2, encodePointwise, exactPayload } from './tile-encode.js';
 

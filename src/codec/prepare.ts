@@ -4,7 +4,8 @@
  * its SVD on demand.
  */
 import { ByteWriter } from '../format/bytes.js';
-import { svd, truncatedSvd, type Svd } from '../linalg/svd.js';
+import { svd, type Svd } from '../linalg/svd.js';
+import { truncatedSvd } from '../linalg/truncated.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { fillMissing } from './fill.js';
 import { Cell, classify, type Classes } from './mask.js';

@@ -4,7 +4,7 @@
  * within the bound.
  */
 import { ByteWriter } from '../format/bytes.js';
-import { solveSpd } from '../linalg/svd.js';
+import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { Flag, Method } from './payload.js';

@@ -11,8 +11,6 @@ import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { applyQ, qrcp, sumSquares } from './qrcp.js';
 import { checkShape } from './shape.js';
 
-export { solveSpd } from './spd.js';
-export { truncatedSvd } from './truncated.js';
 
 /**
  * Thin SVD of a row-major m x n matrix: a = u * diag(s) * v^T. k = min(m, n).

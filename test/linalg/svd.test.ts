@@ -1,7 +1,8 @@
 import { Matrix, SingularValueDecomposition, solve } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { InputError } from '../../src/errors.js';
-import { solveSpd, svd, type Svd } from '../../src/linalg/svd.js';
+import { solveSpd } from '../../src/linalg/spd.js';
+import { svd, type Svd } from '../../src/linalg/svd.js';
 import { mulberry32 } from '../rng.js';
 
 

@@ -1,7 +1,8 @@
 import { Matrix, QrDecomposition, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { InputError } from '../../src/errors.js';
-import { svd, truncatedSvd, type Svd } from '../../src/linalg/svd.js';
+import { svd, type Svd } from '../../src/linalg/svd.js';
+import { truncatedSvd } from '../../src/linalg/truncated.js';
 import { OVERSAMPLE, POWER_ITERATIONS } from '../../src/linalg/truncated.js';
 import { mulberry32 } from '../rng.js';
 

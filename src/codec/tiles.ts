@@ -1,0 +1,100 @@
+/**
+ * The geometry of a field being encoded: its spec, the band source it is
+ * read from, its tile grid, and the walk over its tiles.
+ */
+import type { Bound, Dtype, FloatArray } from '../types.js';
+import { fillWords } from './mask.js';
+
+/** What the encoder needs to know about a field. */
+export interface FieldSpec {
+  name: string;
+  dtype: Dtype;
+  rows: number;
+  cols: number;
+  tileRows: number;
+  tileCols: number;
+  bound: Bound;
+  fill: number | null;
+  /** Choose the tile shape by trial (see auto-tile.ts); tileRows/tileCols are then replaced. */
+  autoTile?: boolean;
+  /** Store factors in groups of ranks 1, 1, 2, 4, ... so readers can stop after any group (costs bytes). */
+  progressive?: boolean;
+  /**
+   * Slices of rows x cols stacked in the field (default 1). The source then
+   * serves rows of the stacked (slices x rows) x cols matrix: rows
+   * [s * rows, (s + 1) * rows) are slice s. Tiles never cross slices.
+   */
+  slices?: number;
+}
+
+/** Number of tile rows and columns of one slice. */
+export function tileGrid(spec: Pick<FieldSpec, 'rows' | 'cols' | 'tileRows' | 'tileCols'>): [number, number] {
+  return [Math.ceil(spec.rows / spec.tileRows), Math.ceil(spec.cols / spec.tileCols)];
+}
+
+/**
+ * Where the encoder reads a field from: bands of whole rows, so a field
+ * larger than memory can be packed one band of tiles at a time.
+ */
+export interface BandSource {
+  /** Rows [r0, r0 + count) as row-major values of the field's dtype. */
+  band(r0: number, count: number): FloatArray;
+}
+
+/** A band source over a field already in memory. */
+export function memoryBands(values: FloatArray, cols: number): BandSource {
+  return { band: (r0, count) => values.subarray(r0 * cols, (r0 + count) * cols) };
+}
+
+/** Copy tile column tj out of a band holding the tile row's rows. */
+export function extractTile(band: FloatArray, spec: FieldSpec, bandRows: number, tj: number): { tile: FloatArray; m: number; n: number } {
+  const j0 = tj * spec.tileCols;
+  const m = bandRows;
+  const n = Math.min(spec.tileCols, spec.cols - j0);
+  const tile = spec.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+  for (let i = 0; i < m; i++) tile.set(band.subarray(i * spec.cols + j0, i * spec.cols + j0 + n), i * n);
+  return { tile, m, n };
+}
+
+/**
+ * Visit every tile in index order (slice by slice, row-major within a
+ * slice: t = s * gr * gc + ti * gc + tj), reading one band of rows per tile row.
+ */
+export function forEachTile(src: BandSource, spec: FieldSpec, visit: (index: number, tile: FloatArray, m: number, n: number) => void): void {
+  const [gr, gc] = tileGrid(spec);
+  const slices = spec.slices ?? 1;
+  for (let s = 0; s < slices; s++) {
+    for (let ti = 0; ti < gr; ti++) {
+      const r0 = ti * spec.tileRows;
+      const rows = Math.min(spec.tileRows, spec.rows - r0);
+      const band = src.band(s * spec.rows + r0, rows);
+      for (let tj = 0; tj < gc; tj++) {
+        const { tile, m, n } = extractTile(band, spec, rows, tj);
+        visit(s * gr * gc + ti * gc + tj, tile, m, n);
+      }
+    }
+  }
+}
+
+/** Min and max over finite values that are not the fill value, read band by band. */
+export function validRange(src: BandSource, spec: FieldSpec): [number, number] | null {
+  const fw = fillWords(spec.fill, spec.dtype);
+  const f = fw === null ? NaN : spec.dtype === 'f32' ? Math.fround(spec.fill as number) : (spec.fill as number);
+  let lo = Infinity;
+  let hi = -Infinity;
+  const step = Math.max(1, spec.tileRows);
+  const total = (spec.slices ?? 1) * spec.rows;
+  // Bands stay within a slice, as the encoder's own reads do.
+  for (let r0 = 0, end = 0; r0 < total; r0 = end) {
+    end = Math.min(total, r0 + step, (Math.floor(r0 / spec.rows) + 1) * spec.rows);
+    const values = src.band(r0, end - r0);
+    for (let i = 0; i < values.length; i++) {
+      const v = values[i];
+      if (!Number.isFinite(v)) continue;
+      if (v === f && Object.is(v, f)) continue;
+      if (v < lo) lo = v;
+      if (v > hi) hi = v;
+    }
+  }
+  return lo <= hi ? [lo, hi] : null;
+}
