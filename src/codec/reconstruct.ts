@@ -119,6 +119,17 @@ export function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: nu
   return out;
 }
 
+/**
+ * The rest of a tile's reconstruction after {@link lowRank} has filled `acc`
+ * (spec/FORMAT.md section 11): the residual q x step added in place when
+ * there is one, then rounding to the output dtype. The decoder and the
+ * encoder's candidate check both call this, so they cannot drift apart.
+ */
+export function reconstruct(acc: Float64Array, q: Int32Array | null, step: number, out: Float32Array | Float64Array): void {
+  if (q !== null) addResidual(acc, q, step);
+  roundTo(acc, out);
+}
+
 /** Round binary64 values to the output dtype (binary32: round-to-nearest-even). */
 export function roundTo(values: Float64Array, out: Float32Array | Float64Array): void {
   out.set(values);

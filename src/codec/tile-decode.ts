@@ -8,7 +8,7 @@ import { printable } from '../format/schema.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
 import { Flag, KNOWN_FLAGS, Method } from './payload.js';
-import { addResidual, lowRank, MAX_PREDICTOR, roundTo, unpredict } from './reconstruct.js';
+import { lowRank, MAX_PREDICTOR, reconstruct, unpredict } from './reconstruct.js';
 import { CodeStreamError, decodeClasses, decodeInts } from './code-decode.js';
 import { MAX_INT, readSection } from './section.js';
 import { stepValue } from './steps.js';
@@ -169,9 +169,8 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
 
   const acc = new Float64Array(cells);
   lowRank(l, w, m, n, factors.rank, center, acc);
-  if (q !== null) addResidual(acc, q, step);
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  roundTo(acc, out);
+  reconstruct(acc, q, step, out);
 
   const bytes = new Uint8Array(out.buffer);
   const words = new Uint32Array(out.buffer);

@@ -8,7 +8,7 @@ import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { Flag, Method } from './payload.js';
-import { addResidual, lowRank, predict, predictedFill, Predictor, roundTo } from './reconstruct.js';
+import { lowRank, predict, predictedFill, Predictor, reconstruct } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median];
@@ -241,13 +241,14 @@ function roughBits(v: Int32Array): number {
 export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 * e, center = t.center): Correction {
   const { m, n } = t;
   const cells = m * n;
+  // The decoder's own arithmetic: the low-rank part and centre here, the rest in reconstruct().
   const base = new Float64Array(cells);
   if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
-  else base.fill(center);
+  else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
   const codes = t.classes.codes;
   let q: Int32Array | null = null;
   let predictor: number = Predictor.None;
-  const acc = base.slice();
+  let added: Int32Array | null = null;
   if (e > 0 && Number.isFinite(step)) {
     q = new Int32Array(cells);
     let any = false;
@@ -278,12 +279,12 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 
           predictor = kind;
         }
       }
-      addResidual(acc, bestFilled, step);
+      added = bestFilled;
       q = best;
     }
   }
   const out = t.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  roundTo(acc, out);
+  reconstruct(base.slice(), added, step, out);
   const exceptions: number[] = [];
   for (let c = 0; c < cells; c++) {
     if (codes[c] !== Cell.Valid) continue;
