@@ -97,8 +97,8 @@ export interface ArchiveHeader {
   fields: FieldHeader[];
 }
 
-/** One field's tiles in the index, as parallel columns in row-major tile order. */
-export interface FieldIndex {
+/** Per-tile columns of the index, parallel arrays in tile order (spec/FORMAT.md, section 7). */
+export interface TileColumns {
   offset: number[];
   length: number[];
   crc: number[];
@@ -114,6 +114,10 @@ export interface FieldIndex {
    * to), shortest first. Absent in archives written without them.
    */
   prefix?: number[][];
+}
+
+/** One field's tiles in the index, as parallel columns in row-major tile order. */
+export interface FieldIndex extends TileColumns {
   /** Whole-field figures achieved at encode time. */
   summary: { valid: number; max_err: number; rmse: number };
 }
@@ -148,19 +152,9 @@ export interface ArchiveDirectory {
 }
 
 /** The tiles of one index page, as parallel columns in the page's tile order. */
-export interface PageIndex {
+export interface PageIndex extends TileColumns {
   /** Field tile numbers of the page's tiles, in page order (not stored: follows from the grid). */
   tiles: number[];
-  offset: number[];
-  length: number[];
-  crc: number[];
-  method: number[];
-  rank: number[];
-  valid: number[];
-  max_err: number[];
-  rmse: number[];
-  value_crc: number[];
-  prefix?: number[][];
 }
 
 /**

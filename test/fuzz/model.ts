@@ -11,32 +11,11 @@
  */
 import { crc32 } from '../../src/format/crc32.js';
 import { encodeValue } from './msgpack.js';
-import { joinIndex, pageCount, pageTiles, split, splitIndex, type Block, type Grid } from '../format/paged.js';
+import { joinIndex, layout, pageCount, pageTiles, PROLOGUE, split, splitIndex, TAIL, type Block, type Grid } from '../format/paged.js';
 
 export type { Block };
 
-export const PROLOGUE = 16;
-export const TAIL = 48;
-
-/** Where the tail says the header and index directory are. */
-export interface Layout {
-  headerOffset: number;
-  headerLength: number;
-  indexOffset: number;
-  indexLength: number;
-}
-
-export function layout(b: Uint8Array): Layout {
-  const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
-  const t = b.length - TAIL;
-  return {
-    headerOffset: d.getUint32(t, true) + d.getUint32(t + 4, true) * 2 ** 32,
-    headerLength: d.getUint32(t + 8, true),
-    indexOffset: d.getUint32(t + 16, true) + d.getUint32(t + 20, true) * 2 ** 32,
-    indexLength: d.getUint32(t + 24, true),
-  };
-}
-
+export { layout, PROLOGUE, TAIL, type Layout } from '../format/paged.js';
 
 /** A decoded archive, as plain mutable data. */
 export interface Model {
@@ -83,7 +62,7 @@ export function parse(b: Uint8Array): Model {
     header: parts.header,
     index,
     grids: parts.grids,
-    indexFirst: l.indexOffset < l.headerOffset,
+    indexFirst: l.dirOffset < l.headerOffset,
     fixIndex: true,
     fixCrcs: true,
   };
@@ -246,7 +225,7 @@ export function resealTail(b: Uint8Array): void {
   const l = layout(b);
   for (const [off, len, at] of [
     [l.headerOffset, l.headerLength, t + 12],
-    [l.indexOffset, l.indexLength, t + 28],
+    [l.dirOffset, l.dirLength, t + 28],
   ]) {
     if (off >= 0 && off + len <= t) d.setUint32(at, crc32(b.subarray(off, off + len)), true);
   }
