@@ -136,7 +136,7 @@ async function main(): Promise<void> {
   const notes: string[] = [
     `Tiles are ${TILE}x${TILE} for rankfield and for the Eckart-Young floor.`,
     'Missing cells: the lossy baselines store a deflated bitmap and the exact float32 words of missing cells and model the rest with those cells set to the mean; the floor and the SVD-based baselines see the same mean-filled field.',
-    'The quantizing baselines pack integers as zigzag byte planes (the smallest of 1, 2 or 4 bytes) with DEFLATE level 9, the strongest level, as a careful user would; rankfield codes its integers with its own context-adaptive range coder (spec/FORMAT.md, format 2).',
+    'The quantizing baselines pack integers as zigzag byte planes (the smallest of 1, 2 or 4 bytes) with DEFLATE level 9, the strongest level, as a careful user would; rankfield codes its integers with its own context-adaptive range coder (spec/FORMAT.md, format 3).',
     "The demo generator (src/demo/basin.ts) has no time axis; the basin-stack's time series is built in bench/fields.ts from it (six seeds blended over time).",
     'deflate is bound-independent: it is encoded and timed once per field and checked against each bound.',
   ];

@@ -10,7 +10,7 @@ import { decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
 import { joinPages, readContainer, readPages, tilePage, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
-import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex, checkReadCells, pageCount, quoteName, sliceGrid, tileCount, tileOrigin, tileShape } from './format/schema.js';
+import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex, checkReadCells, pageCount, quoteName, sliceGrid, tileCount, tileOrigin, tileShape, up32 } from './format/schema.js';
 import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 
@@ -471,7 +471,8 @@ export class Archive {
           fail(t, e.message);
           return;
         }
-        if (pointwise && !(ix.max_err <= tol)) fail(t, `recorded max error ${ix.max_err} exceeds the bound ${tol}`);
+        // Recorded errors are stored rounded up to binary32 (spec/FORMAT.md, section 7.3): compared with the bound rounded alike.
+        if (pointwise && !(ix.max_err <= up32(tol))) fail(t, `recorded max error ${ix.max_err} exceeds the bound ${tol}`);
         if (orig) {
           const [m, n] = tileShape(h, t);
           const part = extract(orig, h, t);

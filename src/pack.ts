@@ -4,7 +4,7 @@ import { chooseTile } from './codec/auto-tile.js';
 import { encodeField, memoryBands, type BandSource, type EncodedTile, type FieldSpec } from './codec/field.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, DEFAULT_PAGE, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
-import { attrsProblem, ndProblem, pageGrid, pageTiles, sliceGrid, tileCount, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
+import { attrsProblem, ndProblem, pageGrid, pageTiles, sliceGrid, tileCount, up32, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 import { VERSION_STRING } from './version.js';
 
@@ -182,7 +182,9 @@ export class ArchiveBuilder {
     const [gr, gc] = sliceGrid(grid);
     const [, pc] = pageGrid(grid, page);
     const column = () => new Array<number>(n).fill(0);
-    const ix: FieldIndex = { offset: column(), length: column(), crc: column(), method: column(), rank: column(), valid: column(), max_err: column(), rmse: column(), value_crc: column(), prefix: new Array<number[]>(n), summary: { valid: 0, max_err: 0, rmse: 0 } };
+    const ix: FieldIndex = { offset: column(), length: column(), crc: column(), method: column(), rank: column(), valid: column(), max_err: column(), rmse: column(), value_crc: column(), summary: { valid: 0, max_err: 0, rmse: 0 } };
+    // Prefixes are recorded for progressive layouts only, where a read can stop after the first factor groups.
+    if (spec.progressive) ix.prefix = new Array<number[]>(n);
     const held = new Map<number, EncodedTile>();
     const result = encodeField(src, spec, (t, tile) => {
       held.set(t, tile);
@@ -204,15 +206,16 @@ export class ArchiveBuilder {
           ix.method[u] = e.stats.method;
           ix.rank[u] = e.stats.rank;
           ix.valid[u] = e.stats.valid;
-          ix.max_err[u] = e.stats.maxErr;
-          ix.rmse[u] = e.stats.rmse;
+          // Recorded errors are kept as the archive stores them: rounded up to binary32.
+          ix.max_err[u] = up32(e.stats.maxErr);
+          ix.rmse[u] = up32(e.stats.rmse);
           ix.value_crc[u] = e.stats.valueCrc;
-          ix.prefix![u] = e.stats.prefix;
+          if (ix.prefix) ix.prefix[u] = e.stats.prefix.map((x, q) => (q % 4 >= 2 ? up32(x) : x));
         }
       }
     });
     if (held.size > 0) throw new Error(`${held.size} tiles were encoded but not written`);
-    ix.summary = { valid: result.valid, max_err: result.maxErr, rmse: result.rmse };
+    ix.summary = { valid: result.valid, max_err: ix.max_err.reduce((a, b) => Math.max(a, b), 0), rmse: result.rmse };
     const header: FieldHeader = {
       name: spec.name,
       dtype: spec.dtype,

@@ -63,7 +63,8 @@ export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: numb
     }
     summary.valid += t.valid;
     total.merge(res.tally);
-    res.stats.prefix = measurePrefixes(payload, t, fill);
+    // Prefixes are measured (and recorded) for progressive layouts only.
+    res.stats.prefix = spec.progressive ? measurePrefixes(payload, t, fill) : [];
     emit(index, { payload, stats: res.stats });
   });
   summary.maxErr = total.max;

@@ -8,16 +8,16 @@ import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
 import { readRanges, type ByteSource, type CoalesceOptions } from './source.js';
-import { checkDirectory, checkHeader, checkPage, checkSummary, MAX_DEPTH, MAX_MAP_ENTRIES, pageCount, pageOf, pageTiles, quoteName, resolveLimits, tileCount, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex } from './schema.js';
+import { checkDirectory, checkHeader, checkPage, checkSummary, directoryForDisk, pageForDisk, MAX_DEPTH, MAX_MAP_ENTRIES, pageCount, pageOf, pageTiles, quoteName, resolveLimits, tileCount, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex } from './schema.js';
 
 /** Magic bytes that open every archive. */
 export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0a);
 /** Magic bytes that close every archive. */
 export const TAIL_MAGIC = Uint8Array.of(0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a);
 /** Format versions this reader understands. */
-export const VERSIONS = [2] as const;
+export const VERSIONS = [3] as const;
 /** Version written by this writer. */
-export const VERSION = 2;
+export const VERSION = 3;
 export const PROLOGUE_SIZE = 16;
 /** Required flag bit 0: some field stacks more than one slice (spec/FORMAT.md, "Required flags"). */
 export const FLAG_SLICES = 0x1;
@@ -140,16 +140,13 @@ export class ContainerWriter {
     const h = encode(headerForDisk(header));
     const headerOffset = this.pos;
     this.put(h);
-    const fields: FieldDirectory[] = index.fields.map((ix, i) => {
+    const fields = index.fields.map((ix, i) => {
       const fh = header.fields[i];
       const page: [number, number] = [pages[i][0], pages[i][1]];
       const d: FieldDirectory = { page, page_offset: [], page_length: [], page_crc: [], data_offset: [], data_length: [], summary: ix.summary };
       if (ix.offset.length !== tileCount(fh)) throw new Error(`field ${i} has ${ix.offset.length} tiles in its index, its header ${tileCount(fh)}`);
       for (let p = 0; p < pageCount(fh, page); p++) {
         const tiles = pageTiles(fh, page, p);
-        const block: Record<string, unknown> = {};
-        for (const c of PAGE_COLUMNS) block[c] = tiles.map((t) => ix[c][t]);
-        if (ix.prefix) block.prefix = tiles.map((t) => ix.prefix![t]);
         let at = ix.offset[tiles[0]];
         d.data_offset.push(at);
         for (const t of tiles) {
@@ -157,15 +154,15 @@ export class ContainerWriter {
           at += ix.length[t];
         }
         d.data_length.push(at - ix.offset[tiles[0]]);
-        const b = encode(block);
+        const b = encodeNumbers(pageForDisk(fh, ix, tiles));
         d.page_offset.push(this.pos);
         d.page_length.push(b.length);
         d.page_crc.push(crc32(b));
         this.put(b);
       }
-      return d;
+      return directoryForDisk(d);
     });
-    const dir = encode({ fields } satisfies ArchiveDirectory);
+    const dir = encode(fields);
     const dirOffset = this.pos;
     this.put(dir);
     const t = new ByteWriter(TAIL_SIZE);
@@ -183,20 +180,77 @@ export class ContainerWriter {
   }
 }
 
-/** The columns of an index page, in the order the writer stores them. */
-const PAGE_COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc'] as const;
-
-/** The header as stored: fill values become 8-byte binary64 (so -0 and every bit survive MessagePack). */
-function headerForDisk(header: ArchiveHeader): unknown {
-  return {
-    ...header,
-    fields: header.fields.map((f) => {
-      if (f.fill === null) return f;
-      const b = new Uint8Array(8);
-      new DataView(b.buffer).setFloat64(0, f.fill, true);
-      return { ...f, fill: b };
-    }),
+/**
+ * MessagePack of arrays of numbers (an index page), with every number in
+ * its shortest exact form: integers as the smallest integer type, other
+ * numbers as binary32 when that holds them exactly, else binary64. (The
+ * general encoder writes every non-integer as binary64.)
+ */
+export function encodeNumbers(value: unknown): Uint8Array {
+  const w = new ByteWriter(1024);
+  const be = (bytes: number, v: number, float: boolean) => {
+    const b = new DataView(new ArrayBuffer(bytes));
+    if (float) bytes === 4 ? b.setFloat32(0, v) : b.setFloat64(0, v);
+    else if (bytes === 1) b.setUint8(0, v & 0xff);
+    else if (bytes === 2) b.setUint16(0, v & 0xffff);
+    else if (bytes === 4) b.setUint32(0, v >>> 0);
+    else b.setBigUint64(0, BigInt.asUintN(64, BigInt(v)));
+    w.bytes(new Uint8Array(b.buffer));
   };
+  const put = (v: unknown): void => {
+    if (Array.isArray(v)) {
+      if (v.length < 16) w.u8(0x90 | v.length);
+      else if (v.length < 0x10000) (w.u8(0xdc), be(2, v.length, false));
+      else (w.u8(0xdd), be(4, v.length, false));
+      for (const x of v) put(x);
+    } else if (typeof v === 'number' && Number.isSafeInteger(v)) {
+      if (v >= 0) {
+        if (v < 0x80) w.u8(v);
+        else if (v < 0x100) (w.u8(0xcc), be(1, v, false));
+        else if (v < 0x10000) (w.u8(0xcd), be(2, v, false));
+        else if (v < 2 ** 32) (w.u8(0xce), be(4, v, false));
+        else (w.u8(0xcf), be(8, v, false));
+      } else if (v >= -32) w.u8(v & 0xff);
+      else if (v >= -0x80) (w.u8(0xd0), be(1, v, false));
+      else if (v >= -0x8000) (w.u8(0xd1), be(2, v, false));
+      else if (v >= -(2 ** 31)) (w.u8(0xd2), be(4, v, false));
+      else (w.u8(0xd3), be(8, v, false));
+    } else if (typeof v === 'number') {
+      if (Math.fround(v) === v || Number.isNaN(v)) (w.u8(0xca), be(4, v, true));
+      else (w.u8(0xcb), be(8, v, true));
+    } else {
+      // Internal assertion: index pages hold numbers and arrays only.
+      throw new Error(`an index page cannot hold ${typeof v}`);
+    }
+  };
+  put(value);
+  return w.finish();
+}
+
+/** The in-memory columns of an index page, as {@link joinPages} gathers them. */
+const MEMORY_COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc'] as const;
+
+/**
+ * The header as stored (spec/FORMAT.md, section 6): no format name or
+ * version (the prologue and tail hold them); attribute maps only when not
+ * empty; the fill value only when there is one, as 8 bytes of binary64 (so
+ * -0 and every bit survive MessagePack).
+ */
+function headerForDisk(header: ArchiveHeader): unknown {
+  const out: Record<string, unknown> = { writer: header.writer };
+  if (Object.keys(header.attrs).length > 0) out.attrs = header.attrs;
+  out.fields = header.fields.map((f) => {
+    const { fill, attrs, ...rest } = f;
+    const g: Record<string, unknown> = rest;
+    if (fill !== null) {
+      const b = new Uint8Array(8);
+      new DataView(b.buffer).setFloat64(0, fill, true);
+      g.fill = b;
+    }
+    if (Object.keys(attrs).length > 0) g.attrs = attrs;
+    return g;
+  });
+  return out;
 }
 
 /** What {@link readContainer} returns. */
@@ -453,7 +507,7 @@ export function joinPages(c: Container, f: number, pages: readonly PageIndex[], 
   const prefix: number[][] | undefined = pages.some((pg) => pg.prefix) ? new Array<number[]>(n) : undefined;
   for (const pg of pages) {
     pg.tiles.forEach((t, k) => {
-      for (const c2 of PAGE_COLUMNS) cols[c2][t] = pg[c2][k];
+      for (const c2 of MEMORY_COLUMNS) cols[c2][t] = pg[c2][k];
       if (prefix) prefix[t] = pg.prefix?.[k] ?? [];
     });
   }

@@ -128,7 +128,7 @@ export interface ArchiveIndex {
 }
 
 /**
- * One field in the index directory (version 2): the page grid, where each
+ * One field in the index directory (version 3; offsets are worked out, not stored): the page grid, where each
  * index page is with its CRC-32, the payload bytes of each page's tiles, and
  * the whole-field figures (spec/FORMAT.md, section 7).
  */
@@ -291,11 +291,10 @@ function checkAttrs(v: unknown, label: string): Attrs {
   return v as Attrs;
 }
 
-/** The fill value as stored: nil, a number, or 8 bytes of binary64 (little-endian; the reference writer's form). */
+/** The fill value as stored: absent or nil, a number, or 8 bytes of binary64 (little-endian; the reference writer's form). */
 function checkFill(f: Obj, where: string): number | null {
-  if (!('fill' in f)) fail(where, 'has no fill key (nil when the field has no fill value)');
   const v = f.fill;
-  if (v === null) return null;
+  if (v === undefined || v === null) return null;
   if (typeof v === 'number') return v;
   if (v instanceof Uint8Array && v.length === 8) return new DataView(v.buffer, v.byteOffset, 8).getFloat64(0, true);
   return fail(where, `fill must be nil, a number or 8 bytes (binary64, little-endian), got ${describeValue(v)}`);
@@ -304,8 +303,7 @@ function checkFill(f: Obj, where: string): number | null {
 /** Validate a decoded header. */
 export function checkHeader(raw: unknown, limits: Limits, label: string, version = 2): ArchiveHeader {
   if (!isObj(raw)) fail(label, `header is ${describeValue(raw)}, not a map`);
-  if (raw.format !== 'rankfield') fail(label, `header format is ${describeValue(raw.format)}, not "rankfield"`);
-  // The header's `version` key is not examined (spec 6.1): the prologue and tail are authoritative.
+  // The version and the archive's identity are the prologue's and the tail's (spec 6.1): the header holds neither.
   if (!Array.isArray(raw.fields)) fail(label, `header fields is ${describeValue(raw.fields)}, not an array`);
   if (raw.fields.length > limits.maxFields) throw new FormatError(FormatCode.Limit, `${label}: ${raw.fields.length} fields exceed the limit of ${limits.maxFields}`);
   const names = new Set<string>();
@@ -392,7 +390,49 @@ export function tileShape(h: Pick<FieldHeader, 'shape' | 'tile'>, t: number): [n
   return [Math.min(h.tile[0], h.shape[0] - i0), Math.min(h.tile[1], h.shape[1] - j0)];
 }
 
-const COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc'] as const;
+/**
+ * The per-tile columns of an index page as stored, in their order
+ * (spec/FORMAT.md, section 7.3): the page is an array of these eight
+ * columns, then optionally the prefix column. Offsets are not stored (a
+ * page's payloads lie back to back from its run), and `missing` (cells
+ * that are not valid) stands for `valid`.
+ */
+export const PAGE_COLUMNS = ['length', 'crc', 'method', 'rank', 'missing', 'max_err', 'rmse', 'value_crc'] as const;
+
+/**
+ * The smallest binary32 value at or above x (x finite, >= 0; x itself when
+ * 0, below the smallest normal binary32 or above the largest): how the writer stores recorded errors,
+ * which stay upper bounds of what they measured.
+ */
+export function up32(x: number): number {
+  // Below the smallest normal binary32 (subnormals lose relative precision) the value stays as it is, as binary64.
+  if (x < 2 ** -126) return x;
+  const f = Math.fround(x);
+  // Beyond the largest binary32 too.
+  if (f >= x) return Number.isFinite(f) ? f : x;
+  const b = new Float32Array([f]);
+  new Uint32Array(b.buffer)[0] += 1;
+  return Number.isFinite(b[0]) ? b[0] : x;
+}
+
+/** The on-disk form of an index page: the columns of {@link PAGE_COLUMNS}, errors rounded up to binary32, then the prefix column if any. */
+export function pageForDisk(h: Pick<FieldHeader, 'shape' | 'tile'>, ix: TileColumns, tiles: readonly number[]): unknown[] {
+  const out: unknown[] = [
+    tiles.map((t) => ix.length[t]),
+    tiles.map((t) => ix.crc[t]),
+    tiles.map((t) => ix.method[t]),
+    tiles.map((t) => ix.rank[t]),
+    tiles.map((t) => {
+      const [m, n] = tileShape(h, t);
+      return m * n - ix.valid[t];
+    }),
+    tiles.map((t) => up32(ix.max_err[t])),
+    tiles.map((t) => up32(ix.rmse[t])),
+    tiles.map((t) => ix.value_crc[t]),
+  ];
+  if (ix.prefix) out.push(tiles.map((t) => ix.prefix![t].map((x, q) => (q % 4 >= 2 ? up32(x) : x))));
+  return out;
+}
 
 /** Index pages of one slice of a field: [page rows, page columns], for pages of `page` = [tile rows, tile cols]. */
 export function pageGrid(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[]): [number, number] {
@@ -449,28 +489,41 @@ export interface BlockBounds {
   directory: { offset: number; length: number };
 }
 
-const DIRECTORY_COLUMNS = ['page_offset', 'page_length', 'page_crc', 'data_offset', 'data_length'] as const;
+/** The elements of a field's directory entry that are per-page columns, with their positions (spec/FORMAT.md, section 7.2). */
+const DIRECTORY_COLUMNS = [
+  [1, 'page_length'],
+  [2, 'page_crc'],
+  [3, 'data_length'],
+] as const;
 
 /**
  * Validate a decoded index directory against its header and the block
- * positions: the page grid of each field, its pages (inside the file, after
- * every payload, clear of the header, the directory and each other, in
- * order) and its payload runs (inside the payload region, in order, none
- * overlapping another). Returns the directory and the end of the payload
- * region.
+ * positions. On disk it is an array with one entry per field, each an
+ * array `[page, page_length, page_crc, data_length, summary]`; nothing is
+ * stored of where pages and payload runs are, because the layout is
+ * contiguous: the payload runs of every field, in order, fill the bytes
+ * from the prologue to the header exactly, and the index pages, in order,
+ * fill the bytes from the header's end to the directory exactly, which ends
+ * where the tail begins. Returns the directory with those offsets worked
+ * out, and the end of the payload region (the header's offset).
  */
 export function checkDirectory(raw: unknown, header: ArchiveHeader, b: BlockBounds, limits: Limits, label: string): { directory: ArchiveDirectory; payloadEnd: number } {
-  if (!isObj(raw) || !Array.isArray(raw.fields)) fail(label, 'index directory is not a map with a fields list');
-  if (raw.fields.length !== header.fields.length) fail(label, `index directory lists ${raw.fields.length} fields, header ${header.fields.length}`);
-  const fields = raw.fields.map((f: unknown, i: number): FieldDirectory => {
+  if (!Array.isArray(raw)) fail(label, `index directory is ${describeValue(raw)}, not an array of fields`);
+  if (raw.length !== header.fields.length) fail(label, `index directory lists ${raw.length} fields, header ${header.fields.length}`);
+  const payloadEnd = b.header.offset;
+  const pagesStart = b.header.offset + b.header.length;
+  if (b.directory.offset + b.directory.length !== b.end) fail(label, `the index directory (${b.directory.offset}+${b.directory.length}) does not end where the tail begins (${b.end})`);
+  let pageAt = pagesStart;
+  let dataAt = b.start;
+  const fields = raw.map((f: unknown, i: number): FieldDirectory => {
     const h = header.fields[i];
     const where = `${label} index directory of field ${quoteName(h.name)}`;
-    if (!isObj(f)) fail(where, `is ${describeValue(f)}, not a map`);
-    if (!Array.isArray(f.page) || f.page.length !== 2) fail(where, `page must be [tile rows, tile cols], got ${describeValue(f.page)}`);
-    const page: [number, number] = [posInt(f.page[0], where, 'page tile rows'), posInt(f.page[1], where, 'page tile cols')];
+    if (!Array.isArray(f) || f.length < 5) fail(where, `is ${describeValue(f)}, not an array of 5 elements [page, page_length, page_crc, data_length, summary]`);
+    if (!Array.isArray(f[0]) || f[0].length !== 2) fail(where, `page must be [tile rows, tile cols], got ${describeValue(f[0])}`);
+    const page: [number, number] = [posInt(f[0][0], where, 'page tile rows'), posInt(f[0][1], where, 'page tile cols')];
     const pages = pageCount(h, page);
-    const cols = DIRECTORY_COLUMNS.map((c) => {
-      const col = f[c];
+    const [pageLength, pageCrc, dataLength] = DIRECTORY_COLUMNS.map(([at, c]) => {
+      const col = f[at];
       if (!Array.isArray(col) || col.length !== pages) fail(where, `column '${c}' must list ${pages} pages, got ${describeValue(col)}`);
       for (let p = 0; p < pages; p++) {
         const v = col[p];
@@ -478,51 +531,38 @@ export function checkDirectory(raw: unknown, header: ArchiveHeader, b: BlockBoun
       }
       return col as number[];
     });
-    const [pageOffset, pageLength, pageCrc, dataOffset, dataLength] = cols;
+    const pageOffset: number[] = [];
+    const dataOffset: number[] = [];
     for (let p = 0; p < pages; p++) {
       if (pageCrc[p] > 0xffffffff) fail(where, `page ${p} crc ${pageCrc[p]} is not a 32-bit value`);
       if (pageLength[p] < 1) fail(where, `page ${p} has length 0`);
       if (pageLength[p] > limits.maxIndexBytes) throw new FormatError(FormatCode.Limit, `${where}: page ${p} of ${pageLength[p]} bytes exceeds the limit of ${limits.maxIndexBytes}`);
       const n = pageTileCount(h, page, p);
       if (dataLength[p] < 2 * n) fail(where, `page ${p} payload run of ${dataLength[p]} bytes cannot hold its ${n} tiles (2 bytes at least each)`);
+      if (pageAt + pageLength[p] > b.directory.offset) fail(where, `page ${p} at ${pageAt}+${pageLength[p]} reaches past the index directory at ${b.directory.offset} (index pages lie back to back from the header's end)`);
+      if (dataAt + dataLength[p] > payloadEnd) fail(where, `page ${p} payload run ${dataAt}+${dataLength[p]} reaches past the payload bytes ${b.start}..${payloadEnd} (payload runs lie back to back from byte ${b.start})`);
+      pageOffset.push(pageAt);
+      dataOffset.push(dataAt);
+      pageAt += pageLength[p];
+      dataAt += dataLength[p];
     }
-    const s = f.summary;
-    if (!isObj(s)) fail(where, `summary is ${describeValue(s)}, not a map`);
-    if (typeof s.valid !== 'number' || !Number.isSafeInteger(s.valid) || s.valid < 0) fail(where, `summary valid must be an integer >= 0, got ${describeValue(s.valid)}`);
-    for (const k of ['max_err', 'rmse'] as const) {
-      const x = s[k];
+    const s = f[4];
+    if (!Array.isArray(s) || s.length < 3) fail(where, `summary is ${describeValue(s)}, not [valid, max_err, rmse]`);
+    if (typeof s[0] !== 'number' || !Number.isSafeInteger(s[0]) || s[0] < 0) fail(where, `summary valid must be an integer >= 0, got ${describeValue(s[0])}`);
+    for (const [k, x] of [['max_err', s[1]], ['rmse', s[2]]] as const) {
       if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) fail(where, `summary ${k} must be a finite number >= 0, got ${describeValue(x)}`);
-      if (s.valid === 0 && x !== 0) fail(where, `summary ${k} is ${x} but the field has no valid cell`);
+      if (s[0] === 0 && x !== 0) fail(where, `summary ${k} is ${x} but the field has no valid cell`);
     }
-    return { page, page_offset: pageOffset, page_length: pageLength, page_crc: pageCrc, data_offset: dataOffset, data_length: dataLength, summary: { valid: s.valid as number, max_err: s.max_err as number, rmse: s.rmse as number } };
+    return { page, page_offset: pageOffset, page_length: pageLength, page_crc: pageCrc, data_offset: dataOffset, data_length: dataLength, summary: { valid: s[0], max_err: s[1] as number, rmse: s[2] as number } };
   });
-  // Pages: in order, each clear of the header, the directory and the page before it, inside the file.
-  let payloadEnd = Math.min(b.header.offset, b.directory.offset);
-  let prev = b.start;
-  const clash = (o: number, l: number, x: { offset: number; length: number }) => o < x.offset + x.length && x.offset < o + l;
-  fields.forEach((f, i) => {
-    const where = `${label} index directory of field ${quoteName(header.fields[i].name)}`;
-    for (let p = 0; p < f.page_offset.length; p++) {
-      const o = f.page_offset[p];
-      const l = f.page_length[p];
-      if (o < prev || o + l > b.end) fail(where, `page ${p} at ${o}+${l} is not after the page before it within bytes ${prev}..${b.end}`);
-      if (clash(o, l, b.header) || clash(o, l, b.directory)) fail(where, `page ${p} at ${o}+${l} overlaps the header or the index directory`);
-      prev = o + l;
-      payloadEnd = Math.min(payloadEnd, o);
-    }
-  });
-  // Payload runs: in order, none overlapping another, all before the first block.
-  let after = b.start;
-  fields.forEach((f, i) => {
-    const where = `${label} index directory of field ${quoteName(header.fields[i].name)}`;
-    for (let p = 0; p < f.data_offset.length; p++) {
-      const o = f.data_offset[p];
-      const l = f.data_length[p];
-      if (o < after || o + l > payloadEnd) fail(where, `page ${p} payload run ${o}+${l} is not after the run before it within the payload bytes ${after}..${payloadEnd}`);
-      after = o + l;
-    }
-  });
+  if (dataAt !== payloadEnd) fail(label, `the payload runs end at ${dataAt}, the header begins at ${payloadEnd} (payloads fill the bytes between the prologue and the header exactly)`);
+  if (pageAt !== b.directory.offset) fail(label, `the index pages end at ${pageAt}, the index directory begins at ${b.directory.offset} (pages fill the bytes between the header and the directory exactly)`);
   return { directory: { fields }, payloadEnd };
+}
+
+/** The on-disk form of a field's directory entry (spec/FORMAT.md, section 7.2): offsets are not stored. */
+export function directoryForDisk(d: FieldDirectory): unknown[] {
+  return [d.page, d.page_length, d.page_crc, d.data_length, [d.summary.valid, d.summary.max_err, d.summary.rmse]];
 }
 
 /** Tiles of index page p (edge pages hold fewer). */
@@ -536,34 +576,35 @@ export function pageTileCount(h: Pick<FieldHeader, 'shape' | 'tile'>, page: read
 }
 
 /**
- * Validate a decoded index page (page p of field h): nine columns of the
- * page's tile count, each tile's figures possible for its shape, and the
- * payloads back to back in page order, filling exactly the page's payload
- * run from the directory (so no two tiles anywhere share a byte).
+ * Validate a decoded index page (page p of field h): an array of the eight
+ * columns of {@link PAGE_COLUMNS}, each of the page's tile count, then
+ * optionally the prefix column; each tile's figures possible for its
+ * shape; the payload lengths filling exactly the page's payload run from
+ * the directory, in page order (so no two tiles anywhere share a byte).
+ * Returns the page with each tile's offset and valid count worked out.
  */
 export function checkPage(raw: unknown, h: FieldHeader, d: FieldDirectory, p: number, limits: Limits, label: string): PageIndex {
   const where = `${label} index page ${p} of field ${quoteName(h.name)}`;
-  if (!isObj(raw)) fail(where, `is ${describeValue(raw)}, not a map`);
-  const f = raw;
+  if (!Array.isArray(raw) || raw.length < PAGE_COLUMNS.length) fail(where, `is ${describeValue(raw)}, not an array of ${PAGE_COLUMNS.length} columns (${PAGE_COLUMNS.join(', ')})`);
   const tiles = pageTiles(h, d.page, p);
   const n = tiles.length;
-  for (const c of COLUMNS) {
-    const col = f[c];
+  PAGE_COLUMNS.forEach((c, i) => {
+    const col = raw[i];
     if (!Array.isArray(col) || col.length !== n) fail(where, `column '${c}' must list ${n} tiles, got ${describeValue(col)}`);
     for (let k = 0; k < n; k++) {
       const v = col[k];
       if (typeof v !== 'number' || Number.isNaN(v)) fail(where, `column '${c}' tile ${tiles[k]} holds ${describeValue(v)}, not a number`);
     }
-  }
-  const col = (c: (typeof COLUMNS)[number]) => f[c] as number[];
-  const [offset, length, crc, method, rank, valid, maxErr, rmse, valueCrc] = COLUMNS.map(col);
+  });
+  const [length, crc, method, rank, missing, maxErr, rmse, valueCrc] = PAGE_COLUMNS.map((_, i) => raw[i] as number[]);
+  const offset: number[] = [];
+  const valid: number[] = [];
   let at = d.data_offset[p];
   for (let k = 0; k < n; k++) {
     const t = tiles[k];
-    const off = offset[k];
     const len = length[k];
     if (!Number.isInteger(len) || len < 2) fail(where, `tile ${t} payload length ${len} is not an integer >= 2`);
-    if (off !== at) fail(where, `tile ${t} payload at ${off} does not follow the payload before it (expected ${at}: a page's payloads lie back to back from the run the directory gives)`);
+    offset.push(at);
     at += len;
     if (!Number.isInteger(crc[k]) || crc[k] < 0 || crc[k] > 0xffffffff) fail(where, `tile ${t} crc ${crc[k]} is not a 32-bit value`);
     if (!Number.isInteger(valueCrc[k]) || valueCrc[k] < 0 || valueCrc[k] > 0xffffffff) fail(where, `tile ${t} value_crc ${valueCrc[k]} is not a 32-bit value`);
@@ -572,8 +613,10 @@ export function checkPage(raw: unknown, h: FieldHeader, d: FieldDirectory, p: nu
     const r = rank[k];
     if (!Number.isInteger(r) || r < 0 || r > Math.min(m, nn) || (method[k] === 0 && r !== 0)) fail(where, `tile ${t} rank ${r} is impossible for a method ${method[k]} ${m}x${nn} tile`);
     if (r > limits.maxRank) throw new FormatError(FormatCode.Limit, `${where}: tile ${t} rank ${r} exceeds the limit of ${limits.maxRank}`);
-    const v = valid[k];
-    if (!Number.isInteger(v) || v < 0 || v > m * nn) fail(where, `tile ${t} valid count ${v} is impossible for a ${m}x${nn} tile`);
+    const miss = missing[k];
+    if (!Number.isInteger(miss) || miss < 0 || miss > m * nn) fail(where, `tile ${t} missing count ${miss} is impossible for a ${m}x${nn} tile`);
+    const v = m * nn - miss;
+    valid.push(v);
     for (const [name, x] of [['max_err', maxErr[k]], ['rmse', rmse[k]]] as const) {
       if (!(x >= 0) || !Number.isFinite(x)) fail(where, `tile ${t} ${name} ${x} is not a finite number >= 0`);
       if (v === 0 && x !== 0) fail(where, `tile ${t} has no valid cell but a ${name} of ${x}`);
@@ -581,7 +624,7 @@ export function checkPage(raw: unknown, h: FieldHeader, d: FieldDirectory, p: nu
   }
   if (at !== d.data_offset[p] + d.data_length[p]) fail(where, `its payloads end at ${at}, the directory's payload run at ${d.data_offset[p] + d.data_length[p]}`);
   const out: PageIndex = { tiles, offset, length, crc, method, rank, valid, max_err: maxErr, rmse, value_crc: valueCrc };
-  if (f.prefix !== undefined) out.prefix = checkPrefixes(f.prefix, out, tiles, where);
+  if (raw.length > PAGE_COLUMNS.length) out.prefix = checkPrefixes(raw[PAGE_COLUMNS.length], out, tiles, where);
   return out;
 }
 

@@ -62,7 +62,7 @@ describe('a 256x256 window of a 2048x2048 archive over HTTP', () => {
     const payload = tiles.reduce((s, t) => s + ix.length[t], 0);
     const tail = new DataView(bytes.buffer, bytes.byteOffset + bytes.length - TAIL_SIZE, TAIL_SIZE);
     const headerLength = tail.getUint32(8, true);
-    // Version 2: the index directory, and the index pages holding the window's tiles.
+    // Since version 2: the index directory, and the index pages holding the window's tiles.
     const d = local.directory.fields[0];
     const pages = new Set(tiles.map((t) => Math.floor(Math.floor(t / gc) / d.page[0]) * Math.ceil(gc / d.page[1]) + Math.floor((t % gc) / d.page[1])));
     const indexLength = tail.getUint32(24, true) + [...pages].reduce((s, p) => s + d.page_length[p], 0);

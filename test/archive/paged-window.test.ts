@@ -79,8 +79,8 @@ describe(`a 256x256 window of a ${SIDE}x${SIDE} archive over HTTP`, () => {
     );
     expect(fetched).toBeLessThanOrEqual(budget);
     expect(server.requests).toBeLessThanOrEqual(4);
-    // The budget has teeth: the index pages alone, read whole as version 1 read its index, exceed it several times.
-    expect(index).toBeGreaterThan(4 * budget);
+    // The budget has teeth: the index pages alone, read whole as version 1 read its index, exceed it three times over.
+    expect(index).toBeGreaterThan(3 * budget);
     // Every byte the server sent reached the reader, and nothing else was fetched.
     expect(src.bytesFetched).toBe(openBytes + fetched);
 

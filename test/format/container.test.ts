@@ -15,7 +15,7 @@ import { open } from '../../src/archive.js';
 import { FormatCode, FormatError } from '../../src/errors.js';
 import { crc32 } from '../../src/format/crc32.js';
 import { pack } from '../../src/pack.js';
-import { assemble, joinIndex, layout, split, splitIndex, type Block } from './paged.js';
+import { assemble, diskPage, joinIndex, layout, split, splitIndex, type Block } from './paged.js';
 
 const CODES = new Set<string>(Object.values(FormatCode));
 const TAIL = 48;
@@ -72,7 +72,8 @@ function rebuild(b: Uint8Array, edit: Edit): Uint8Array {
   edit.index?.(index);
   const hb = edit.headerBytes ? edit.headerBytes(encode(parts.header)) : encode(parts.header);
   const { pages, dirFields, dirExtra } = splitIndex(index, parts);
-  const pageBytes = pages.map((list, i) => list.map((pg, k) => (edit.pageBytes ? edit.pageBytes(i, k, encode(pg)) : encode(pg))));
+  const grid = (i: number) => parts.grids[Math.min(i, parts.grids.length - 1)];
+  const pageBytes = pages.map((list, i) => list.map((pg, k) => (edit.pageBytes ? edit.pageBytes(i, k, encode(diskPage(pg, grid(i), k))) : encode(diskPage(pg, grid(i), k)))));
   return assemble({ front, headerBytes: hb, pageBytes, dirFields, dirExtra, dirBytes: edit.indexBytes });
 }
 
@@ -141,18 +142,18 @@ describe('prologue and tail', () => {
     expectFormatError(await readAll(zeros), FormatCode.BadMagic);
   });
 
-  // Version 1 (the unpaged index) is no longer read: 0.x format, dropped with version 2.
-  for (const version of [0, 1, 3, 0x100, 0xffff]) {
+  // Versions 1 (the unpaged index) and 2 (keyed index maps) are no longer read: 0.x format, dropped with version 3.
+  for (const version of [0, 1, 2, 4, 0x100, 0xffff]) {
     it(`format version ${version} is refused as unsupported, naming the versions known`, async () => {
       const b = smallLowRank();
       new DataView(b.buffer).setUint16(8, version, true);
-      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`version ${version} .*knows 2\\b`));
+      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`version ${version} .*knows 3\\b`));
       // The same with the tail agreeing and resealed: still refused for the version.
       const c = smallLowRank();
       new DataView(c.buffer).setUint16(8, version, true);
       new DataView(c.buffer).setUint16(c.length - TAIL + 32, version, true);
       resealTail(c);
-      expectFormatError(await readAll(c), FormatCode.Unsupported, /knows 2\b/);
+      expectFormatError(await readAll(c), FormatCode.Unsupported, /knows 3\b/);
     });
   }
 
@@ -265,7 +266,7 @@ describe('tile payload corruption', () => {
 describe('header and index with valid CRCs but bad contents', () => {
   const cases: [string, Edit][] = [
     ['header an empty map', { header: (h) => Object.keys(h).forEach((k) => delete h[k]) }],
-    ['header format name', { header: (h) => (h.format = 'other') }],
+    ['header fields not a list', { header: (h) => (h.fields = { 0: h.fields[0] }) }],
     ['no fields list', { header: (h) => delete h.fields }],
     ['dtype unknown', { header: (h) => (h.fields[0].dtype = 'f16') }],
     ['shape of zero rows', { header: (h) => (h.fields[0].shape = [0, 7]) }],
@@ -278,12 +279,12 @@ describe('header and index with valid CRCs but bad contents', () => {
     ['duplicate field names', { header: (h) => h.fields.push(h.fields[0]) }],
     ['fill a string', { header: (h) => (h.fields[0].fill = 'none') }],
     ['index fields count', { index: (ix) => ix.fields.push(ix.fields[0]) }],
-    ['index column too short', { index: (ix) => ix.fields[0].offset.pop() }],
+    ['index column too short', { index: (ix) => ix.fields[0].length.pop() }],
     ['index column missing', { index: (ix) => delete ix.fields[0].crc }],
-    ['payload offset before the payloads', { index: (ix) => (ix.fields[0].offset[0] = 3) }],
+    ['a missing count above the tile cells', { index: (ix) => (ix.fields[0].valid[0] = -1) }],
     ['payload past the payload region', { index: (ix) => (ix.fields[0].length[3] = 10_000) }],
     ['payload length 0', { index: (ix) => (ix.fields[0].length[1] = 0) }],
-    ['non-integer offset', { index: (ix) => (ix.fields[0].offset[2] += 0.5) }],
+    ['non-integer length', { index: (ix) => (ix.fields[0].length[2] += 0.5) }],
     ['crc out of range', { index: (ix) => (ix.fields[0].crc[0] = -1) }],
     ['value crc a string', { index: (ix) => (ix.fields[0].value_crc[0] = 'x') }],
     ['no summary', { index: (ix) => delete ix.fields[0].summary }],
@@ -313,12 +314,16 @@ describe('header and index with valid CRCs but bad contents', () => {
     }
   });
 
-  it('a payload offset moved onto another tile is refused (overlap, or the checksum of that tile)', async () => {
-    const c = rebuild(smallLowRank(), { index: (ix) => (ix.fields[0].offset[1] = ix.fields[0].offset[0]) });
+  it('two payload lengths traded between tiles are refused by the checksum of the tile that moved', async () => {
+    // Offsets are not stored (spec/FORMAT.md, section 7.3): a tile's payload starts where the one before ends.
+    const c = rebuild(smallLowRank(), {
+      index: (ix) => {
+        const f = ix.fields[0];
+        [f.length[0], f.length[1]] = [f.length[1] + 1, f.length[0] - 1];
+      },
+    });
     const e = await readAll(c);
-    expectFormatError(e);
-    expect([FormatCode.Malformed, FormatCode.Checksum]).toContain(e.code);
-    if (e.code === FormatCode.Checksum) expect(e.message).toMatch(/tile 1\b/);
+    expectFormatError(e, FormatCode.Checksum, /tile 0\b/);
   });
 });
 
@@ -337,10 +342,10 @@ describe('what a reader must accept (spec 6.1, 6.4, 17)', () => {
         h.fields[0].units_note = 'kept for later versions';
         h.fields[0].bound.confidence = 0.95;
       },
+      // Index pages and directory entries are arrays: later versions add elements after the known ones.
       index: (ix) => {
-        ix.created = 'later';
         ix.fields[0].extra_column = [1, 2, 3, 4];
-        ix.fields[0].summary.p99 = 0.5;
+        ix.fields[0].summary = { ...ix.fields[0].summary, p99: 0.5 };
       },
     });
   });
@@ -429,7 +434,7 @@ describe('sweeps', () => {
   }
 });
 
-describe('index pages (version 2)', () => {
+describe('index pages', () => {
   /** 12 x 14 f64 field, tiles 3 x 4 (4 x 4 tiles), index pages of 2 x 3 tiles: 2 x 2 pages, the right ones 2 tiles wide. */
   function paged(): Uint8Array {
     const v = new Float64Array(12 * 14).map((_, i) => Math.sin(i / 5) + (i % 14) / 7);
@@ -476,8 +481,8 @@ describe('index pages (version 2)', () => {
 
   const cases: [string, Edit, RegExp][] = [
     ['a page with a byte after its value', { pageBytes: (_f, p, b) => (p === 2 ? Uint8Array.of(...b, 0xc0) : b) }, /index page 2 of field 'sample'.*bytes after the end/],
-    ['a page column too short', { pageBytes: (_f, p, b) => (p === 1 ? encode({ ...(decodeMap(b) as object), crc: [1] }) : b) }, /index page 1 of field 'sample'.*column 'crc' must list 2 tiles/],
-    ['a tile offset not following the one before', { index: (ix) => (ix.fields[0].offset[5] += 1) }, /index page 0 of field 'sample'.*tile 5 payload at .* does not follow/],
+    ['a page column too short', { pageBytes: (_f, p, b) => (p === 1 ? encode((decode(b) as number[][]).map((c, i) => (i === 1 ? [1] : c))) : b) }, /index page 1 of field 'sample'.*column 'crc' must list 2 tiles/],
+    ['a page that is not an array of columns', { pageBytes: (_f, p, b) => (p === 1 ? encode({ length: (decode(b) as number[][])[0] }) : b) }, /index page 1 of field 'sample'.*not an array of 8 columns/],
     ['a payload length changed', { index: (ix) => (ix.fields[0].length[15] -= 1) }, /index page 3 of field 'sample'.*payloads end at/],
   ];
   for (const [what, edit, message] of cases) {
@@ -489,20 +494,22 @@ describe('index pages (version 2)', () => {
   it('directory entries that no writer makes are refused at open', async () => {
     const dirEdit = (change: (f: Block) => void): Edit => ({
       indexBytes: (b) => {
-        const dir = decodeMap(b) as Block;
-        change(dir.fields[0]);
+        const dir = decode(b) as Block;
+        change(dir[0]);
         return encode(dir);
       },
     });
     for (const [change, message] of [
-      [(f: Block) => (f.page = [0, 3]), /page tile rows must be an integer/],
-      [(f: Block) => f.page_crc.pop(), /column 'page_crc' must list 4 pages/],
-      [(f: Block) => ([f.page_offset[0], f.page_offset[1]] = [f.page_offset[1], f.page_offset[0]]), /page 0 at .* is not after the page before it|page 1 at .* is not after/],
-      [(f: Block) => (f.data_offset[1] -= 1), /page 1 payload run .* is not after the run before it/],
-      [(f: Block) => (f.data_length[3] += 1000), /page 3 payload run .* is not after the run before it within the payload bytes/],
-      [(f: Block) => (f.data_length[0] = 3), /page 0 payload run of 3 bytes cannot hold its 6 tiles/],
-      [(f: Block) => (f.page_offset[0] = 20), /page 0 at 20\+.* overlaps|is not after/],
-      [(f: Block) => (f.summary.valid = -1), /summary valid must be an integer >= 0/],
+      // The stored entry: [page, page_length, page_crc, data_length, summary] (spec/FORMAT.md, section 7.2).
+      [(f: Block) => (f[0] = [0, 3]), /page tile rows must be an integer/],
+      [(f: Block) => f[2].pop(), /column 'page_crc' must list 4 pages/],
+      [(f: Block) => (f[1][0] += 1), /page 3 at .* reaches past the index directory|index pages end at/],
+      [(f: Block) => (f[1][1] -= 1), /index pages end at .* the index directory begins at/],
+      [(f: Block) => (f[3][1] -= 1), /payload runs end at .* the header begins at|page 1 of field 'sample'.*payloads end at/],
+      [(f: Block) => (f[3][3] += 1000), /page 3 payload run .* reaches past the payload bytes/],
+      [(f: Block) => (f[3][0] = 3), /page 0 payload run of 3 bytes cannot hold its 6 tiles/],
+      [(f: Block) => (f[4][0] = -1), /summary valid must be an integer >= 0/],
+      [(f: Block) => f.splice(4), /not an array of 5 elements/],
     ] as [(f: Block) => void, RegExp][]) {
       const e = await readAll(rebuild(paged(), dirEdit(change)));
       expectFormatError(e, FormatCode.Malformed, message);
@@ -531,7 +538,3 @@ describe('index pages (version 2)', () => {
     expect(report.failures.map((f) => f.what).join('\n')).toMatch(/summary valid count/);
   });
 });
-
-function decodeMap(b: Uint8Array): unknown {
-  return decode(b);
-}

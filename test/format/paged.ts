@@ -1,5 +1,5 @@
 /**
- * Version 2 archives taken apart and put back together for the tests: the
+ * Version 3 archives taken apart and put back together for the tests: the
  * layout spec/FORMAT.md documents (16-byte prologue; payloads written page
  * by page; MessagePack header, index pages and index directory; 48-byte
  * tail: u64 header offset, u32 length, u32 CRC, u64 directory offset, u32
@@ -89,19 +89,85 @@ export interface Parts {
   grids: Grid[];
 }
 
+/** Cells of tile t of a grid (edge tiles are partial). */
+export function tileCells(g: Grid, t: number): number {
+  const gr = Math.ceil(g.rows / g.tileRows);
+  const gc = Math.ceil(g.cols / g.tileCols);
+  const local = t % (gr * gc);
+  const i0 = Math.floor(local / gc) * g.tileRows;
+  const j0 = (local % gc) * g.tileCols;
+  return Math.min(g.tileRows, g.rows - i0) * Math.min(g.tileCols, g.cols - j0);
+}
+
+/** The stored columns of an index page, in their order (spec/FORMAT.md, section 7.3); then optionally `prefix`. */
+export const DISK_PAGE = ['length', 'crc', 'method', 'rank', 'missing', 'max_err', 'rmse', 'value_crc'] as const;
+
+/**
+ * A stored index page (an array of columns) as a map of the logical
+ * columns, with each tile's offset (from the page's payload run) and valid
+ * count (from `missing`) worked out as a reader does.
+ */
+export function keyedPage(raw: Block, g: Grid, p: number, dataOffset: number): Block {
+  const tiles = pageTiles(g, p);
+  const out: Block = {};
+  DISK_PAGE.forEach((c, i) => (out[c] = raw[i]));
+  if (raw.length > DISK_PAGE.length) out.prefix = raw[DISK_PAGE.length];
+  let at = dataOffset;
+  out.offset = out.length.map((l: number) => ((at += l), at - l));
+  out.valid = tiles.map((t, k) => tileCells(g, t) - out.missing[k]);
+  delete out.missing;
+  return out;
+}
+
+/**
+ * A logical page map back to its stored form: the columns of
+ * {@link DISK_PAGE} (`missing` from `valid`, `offset` dropped: it is not
+ * stored), then `prefix` if present, then any other keys' values (after an
+ * empty prefix column when there is none). Values a test made hostile pass
+ * through.
+ */
+export function diskPage(pg: Block, g: Grid, p: number): Block {
+  if (typeof pg !== 'object' || pg === null || Array.isArray(pg)) return pg;
+  const tiles = pageTiles(g, p);
+  const valid = pg.valid;
+  const missing = Array.isArray(valid) ? valid.map((v: unknown, k: number) => (typeof v === 'number' && k < tiles.length ? tileCells(g, tiles[k]) - v : v)) : valid;
+  const out: Block[] = DISK_PAGE.map((c) => (c === 'missing' ? missing : pg[c]));
+  const extra = Object.keys(pg).filter((k) => !(DISK_PAGE as readonly string[]).includes(k) && !['valid', 'offset', 'prefix'].includes(k));
+  if ('prefix' in pg || extra.length > 0) out.push(pg.prefix ?? tiles.map(() => []));
+  for (const k of extra) out.push(pg[k]);
+  return out;
+}
+
+/** A logical directory entry back to its stored form `[page, page_length, page_crc, data_length, summary]` (offsets are not stored), then any other keys' values. */
+export function diskDirField(f: Block): Block {
+  if (typeof f !== 'object' || f === null || Array.isArray(f)) return f;
+  const s = f.summary;
+  const summary = typeof s === 'object' && s !== null && !Array.isArray(s) ? [s.valid, s.max_err, s.rmse] : s;
+  const out: Block[] = [f.page, f.page_length, f.page_crc, f.data_length, summary];
+  for (const k of Object.keys(f)) if (!['page', 'page_offset', 'page_length', 'page_crc', 'data_offset', 'data_length', 'summary'].includes(k)) out.push(f[k]);
+  return out;
+}
+
 export function split(b: Uint8Array): Parts {
   const l = layout(b);
   const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as Block;
-  const dir = decode(b.subarray(l.dirOffset, l.dirOffset + l.dirLength)) as Block;
-  let end = Math.min(l.headerOffset, l.dirOffset);
-  const pages = dir.fields.map((f: Block) =>
-    f.page_offset.map((o: number, p: number) => {
-      end = Math.min(end, o);
-      return decode(b.subarray(o, o + f.page_length[p]));
-    }),
-  );
-  const grids = header.fields.map((h: Block, i: number): Grid => ({ rows: h.shape[0], cols: h.shape[1], tileRows: h.tile[0], tileCols: h.tile[1], slices: h.slices ?? 1, page: dir.fields[i].page }));
-  return { front: b.slice(0, end), header, dir, pages, grids };
+  const raw = decode(b.subarray(l.dirOffset, l.dirOffset + l.dirLength)) as Block[];
+  let pageAt = l.headerOffset + l.headerLength;
+  let dataAt = PROLOGUE;
+  const fields = raw.map((f: Block) => {
+    const d: Block = { page: f[0], page_offset: [], page_length: f[1], page_crc: f[2], data_offset: [], data_length: f[3], summary: { valid: f[4][0], max_err: f[4][1], rmse: f[4][2] } };
+    for (let p = 0; p < f[1].length; p++) {
+      d.page_offset.push(pageAt);
+      d.data_offset.push(dataAt);
+      pageAt += f[1][p];
+      dataAt += f[3][p];
+    }
+    return d;
+  });
+  const dir = { fields };
+  const grids = header.fields.map((h: Block, i: number): Grid => ({ rows: h.shape[0], cols: h.shape[1], tileRows: h.tile[0], tileCols: h.tile[1], slices: h.slices ?? 1, page: fields[i].page }));
+  const pages = fields.map((f: Block, i: number) => f.page_offset.map((o: number, p: number) => keyedPage(decode(b.subarray(o, o + f.page_length[p])) as Block, grids[i], p, f.data_offset[p])));
+  return { front: b.slice(0, l.headerOffset), header, dir, pages, grids };
 }
 
 /** The logical index: per field, every column over all tiles in tile order, and the summary. */
@@ -184,10 +250,9 @@ export function assemble(a: Assembly, encodeValue: (v: unknown) => Uint8Array = 
       pos += b.length;
     });
     if (typeof f !== 'object' || f === null) return f;
-    const { page, ...rest } = f;
-    return { page, page_offset: offs, page_length: lens, page_crc: crcs, ...rest };
+    return diskDirField({ ...f, page_length: lens, page_crc: crcs });
   });
-  let db = encodeValue({ fields, ...(a.dirExtra ?? {}) });
+  let db = encodeValue([...fields, ...Object.values(a.dirExtra ?? {})]);
   if (a.dirBytes) db = a.dirBytes(db);
   const dirAt = pos;
   const size = pos + db.length + TAIL;

@@ -4,10 +4,11 @@
  * few tiles, a window) and check may only raise FormatError or InputError,
  * with a known code and a one-line message naming the source; check() never
  * throws and reports every tile that failed to decode; valid re-encodings
- * (another DEFLATE stream, other MessagePack number widths, block order, an
- * unreferenced gap, the reserved word) read back bit for bit; mutations that
- * break a rule of spec/FORMAT.md section 15 are refused (coded streams cut
- * short, followed by bytes or with a wrong length word included); payload
+ * (another DEFLATE stream, other MessagePack number widths, the reserved
+ * word) read back bit for bit; mutations that break a rule of
+ * spec/FORMAT.md section 15 are refused (coded streams cut short, followed
+ * by bytes or with a wrong length word included; blocks out of order or
+ * with a gap between them); payload
  * edits that decode to other values are reported by check(). Time per case is
  * measured and printed, not asserted; instead the decode work an opened case
  * declares and the memory it uses are held under fixed ceilings.

@@ -155,7 +155,7 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', 
     return finish();
   }
   sample();
-  // Version 2: open() reads the index directory only; the pages come with the reads, or all at once here.
+  // Since version 2, open() reads the index directory only; the pages come with the reads, or all at once here.
   let index: ArchiveIndex | null = null;
   try {
     index = await a.loadIndex();

@@ -89,8 +89,8 @@ describe('MessagePack blocks are scanned before they are decoded', () => {
       m.header.fields[0] = new RawMap([...Object.entries(f), ['shape', f.shape]]);
     });
     expect((await refusal(b)).message).toMatch(/the key "shape" a second time in one map at block offset \d+/);
-    const c = edit(masked(), (m) => (m.index.fields[0].summary = new RawMap([...Object.entries(m.index.fields[0].summary), ['valid', m.index.fields[0].summary.valid]])));
-    expect((await refusal(c)).message).toMatch(/^archive: index .*"valid" a second time/);
+    const c = edit(masked(), (m) => (m.header.fields[0].bound = new RawMap([...Object.entries(m.header.fields[0].bound), ['mode', m.header.fields[0].bound.mode]])));
+    expect((await refusal(c)).message).toMatch(/^archive: header .*"mode" a second time/);
   });
 
   it('non-string keys, extension types, the byte 0xC1, deep nesting and bytes after the value are refused', async () => {
@@ -199,7 +199,7 @@ describe('the index', () => {
     const bytes = buildSeeds().find((s) => s.name === 'rough-factors-f64')!.bytes;
     for (const at of [0, 2, 3]) {
       const b = edit(bytes, (m) => (m.index.fields[0].prefix[0][at] = 'line\n'.repeat(500)));
-      // Pages are checked when a read needs them (format 2), so the refusal comes with the read.
+      // Pages are checked when a read needs them (since format 2), so the refusal comes with the read.
       const e = await refusal(b);
       expect(e.code).toBe(FormatCode.Malformed);
       expect(e.message).not.toMatch(/[\n\r]/);
@@ -208,21 +208,18 @@ describe('the index', () => {
     }
   });
 
-  it('refuses payloads shared between fields, naming both tiles', async () => {
+  it('refuses payload lengths that do not fill their page run exactly, naming the page', async () => {
     const base = twoFields();
     const b = edit(base, (m) => {
       serialize(m);
-      const [a, c] = m.index.fields;
-      c.offset[0] = a.offset[1];
-      c.length[0] = a.length[1];
-      c.crc[0] = a.crc[1];
+      m.index.fields[1].length[0] += 1;
       m.fixIndex = false;
     });
-    // Version 2: each index page's payloads must fill, back to back, the payload run the
-    // directory gives it, and the runs may not overlap: a payload of another page is refused.
+    // Version 3 stores no offsets: each index page's payloads fill, back to back, the payload run
+    // the directory gives it (runs follow each other from byte 16), so no two tiles can share a byte.
     const e = await refusal(b);
     expect(e.code).toBe(FormatCode.Malformed);
-    expect(e.message).toMatch(/index page 0 of field 'b'.*tile 0 payload at \d+ does not follow the payload before it/);
+    expect(e.message).toMatch(/index page 0 of field 'b'.*its payloads end at \d+, the directory's payload run at \d+/);
   });
 
   it('refuses a summary that disagrees with its tiles', async () => {
@@ -245,11 +242,12 @@ describe('the index', () => {
 });
 
 describe('the header', () => {
-  it('takes the fill value as nil, a number (spec 6.2) or 8 bytes of binary64 (the reference writer), and refuses a missing fill key', async () => {
+  it('takes the fill value as nil or absent, a number (spec 6.2) or 8 bytes of binary64 (the reference writer)', async () => {
     const want = await values(masked());
     expect(await values(edit(masked(), (m) => (m.header.fields[0].fill = -999)))).toEqual(want);
+    // Without a fill key the field has no fill value, so its fill cells are refused where a tile marks one.
     const e = await refusal(edit(masked(), (m) => delete m.header.fields[0].fill));
-    expect(e.message).toMatch(/field 'sample': has no fill key/);
+    expect(e.message).toMatch(/field 'sample' tile \d+: mask .*fill/);
   });
 
   it('keeps the sign of a fill of -0 written as a float 64 number', async () => {

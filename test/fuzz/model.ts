@@ -2,7 +2,7 @@
  * An archive taken apart for mutation: prologue words, payloads, header and
  * index as decoded values; and put back together with every offset, length
  * and CRC recomputed (or, on request, left as the mutation set them). The
- * layout is the one spec/FORMAT.md documents for version 2 (16-byte
+ * layout is the one spec/FORMAT.md documents for version 3 (16-byte
  * prologue, payloads page by page, MessagePack header, index pages and index
  * directory, 48-byte tail). The index is held as one logical index (columns
  * over all tiles, test/format/paged.ts) and split into its pages when put
@@ -11,7 +11,7 @@
  */
 import { crc32 } from '../../src/format/crc32.js';
 import { encodeValue } from './msgpack.js';
-import { joinIndex, layout, pageCount, pageTiles, PROLOGUE, split, splitIndex, TAIL, type Block, type Grid } from '../format/paged.js';
+import { diskDirField, diskPage, joinIndex, layout, pageCount, pageTiles, PROLOGUE, split, splitIndex, TAIL, type Block, type Grid } from '../format/paged.js';
 
 export type { Block };
 
@@ -144,15 +144,20 @@ export function directoryValue(m: Model): unknown {
   return serializeParts(m).dirValue;
 }
 
-/** The index page values a model serializes to, per field. */
+/** The index page values a model serializes to (their stored form), per field. */
 export function pageValues(m: Model): Block[][] {
-  return lay(cloneModel(m)).pages;
+  return diskPages(m, lay(cloneModel(m)).pages);
+}
+
+/** Pages in their stored form (test/format/paged.ts diskPage), with the grid of their field. */
+function diskPages(m: Model, pages: Block[][]): Block[][] {
+  return pages.map((list, f) => list.map((pg, p) => diskPage(pg, m.grids[Math.min(f, m.grids.length - 1)], p)));
 }
 
 function serializeParts(m: Model): { out: Uint8Array; dirValue: unknown } {
   const { parts, pos, pages, dirFields, dirExtra } = lay(m);
   const hb = m.headerBytes ?? encodeValue(m.header);
-  const pageBytes = pages.map((list, f) => list.map((pg, p) => m.pageBytes?.[`${f}/${p}`] ?? encodeValue(pg)));
+  const pageBytes = diskPages(m, pages).map((list, f) => list.map((pg, p) => m.pageBytes?.[`${f}/${p}`] ?? encodeValue(pg)));
   const pagesLength = pageBytes.reduce((n, list) => n + list.reduce((k, b) => k + b.length, 0), 0);
   // Index first: pages then directory, then header; else header, pages, directory.
   let at = m.indexFirst ? pos : pos + hb.length;
@@ -167,10 +172,9 @@ function serializeParts(m: Model): { out: Uint8Array; dirValue: unknown } {
       at += b.length;
     }
     if (typeof f !== 'object' || f === null) return f;
-    const { page, ...rest } = f;
-    return { page, page_offset: offs, page_length: lens, page_crc: crcs, ...rest };
+    return diskDirField({ ...f, page_offset: offs, page_length: lens, page_crc: crcs });
   });
-  const dirValue = { fields, ...dirExtra };
+  const dirValue = [...fields, ...Object.values(dirExtra)];
   const db = m.indexBytes ?? encodeValue(dirValue);
   const indexStart = m.indexFirst ? pos : pos + hb.length;
   const dirAt = indexStart + pagesLength;
@@ -252,7 +256,7 @@ export interface PartRef {
   end: number;
 }
 
-/** A tile payload taken apart (the layout of src/codec/tile-decode.ts, format 2, written out here from the layout, not taken from the library). */
+/** A tile payload taken apart (the layout of src/codec/tile-decode.ts, format 3, written out here from the layout, not taken from the library). */
 export interface PayloadLayout {
   method: number;
   flags: number;

@@ -650,7 +650,7 @@ function consistentHeader(m: Model, rng: Rng): string {
 
 /** MessagePack-level tricks on the header or index bytes (applied last, to the final header or index). */
 function msgpackBlock(m: Model, rng: Rng, block: 'header' | 'index'): string {
-  // The index is the directory or one of its pages (version 2): each is a block of its own.
+  // The index is the directory or one of its pages (since version 2): each is a block of its own.
   let target: string = block;
   let value: unknown = m.header;
   if (block === 'index') {
@@ -750,13 +750,13 @@ function prefixCut(m: Model, rng: Rng, touch: (key: string) => void): string {
 /** Container-level words: versions, flags, reserved word, block order, a gap, a stale CRC. */
 function containerWords(m: Model, rng: Rng): string {
   const which = rng.pick(['version', 'flags', 'reserved', 'order', 'gap', 'stale crc', 'tail version']);
-  if (which === 'version') m.version = rng.pick([0, 1, 3, 0xffff]);
+  if (which === 'version') m.version = rng.pick([0, 1, 2, 4, 0xffff]);
   else if (which === 'flags') m.flags = 1 << (1 + rng.int(15)); // bit 0 (slices) is known; every other bit must be refused
   else if (which === 'reserved') m.reserved = rng.u32();
   else if (which === 'order') m.indexFirst = !m.indexFirst;
   else if (which === 'gap') m.gap = new Uint8Array(rng.range(1, 64)).map(() => rng.int(256));
   else if (which === 'stale crc') m.fixCrcs = false;
-  else m.tailVersion = rng.pick([0, 1, 3]);
+  else m.tailVersion = rng.pick([0, 1, 2, 4]);
   return `container ${which}`;
 }
 
@@ -815,12 +815,14 @@ export type Expectation = 'same' | 'refuse' | 'detect' | 'any';
 /**
  * What an operation obliges a reader to do, from its description: valid
  * re-encodings (another DEFLATE stream, other MessagePack number widths,
- * block order, an unreferenced gap, the reserved word) must not change what
- * is read; stream bytes after the end, a coded stream whose length word is
- * off or that is cut short, a repeated or non-string map key, a stale CRC,
- * unknown versions and flags, a block with bytes after its value or cut
- * short, a declared raw length that differs from the data, and two tiles
- * sharing payload bytes must be refused; edits of payload bytes that keep
+ * the reserved word) must not change what is read; stream bytes after the
+ * end, a coded stream whose length word is off or that is cut short, a
+ * repeated or non-string map key, a stale CRC, unknown versions and flags,
+ * blocks out of their order or with bytes between them (version 3's layout
+ * is contiguous), a block with bytes after its value or cut short, and a
+ * declared raw length that differs from the data must be refused; an index
+ * entry copied from another tile is free (offsets are not stored, so it
+ * cannot make two tiles share bytes); edits of payload bytes that keep
  * the index may decode to other values, which check() must then report.
  */
 export function expectationOf(op: string): Expectation {
@@ -828,8 +830,9 @@ export function expectationOf(op: string): Expectation {
   if (/^unchanged$|no section$|nothing to edit$|aliased to itself$|top-level map left alone$|no rule to break here$/.test(op)) return 'same';
   if (/\(must be refused\)$/.test(op)) return 'refuse';
   if (/\(changed values must be caught\)$/.test(op)) return 'detect';
-  if (/written as another valid stream$|msgpack widths$|^container (reserved|order|gap)$/.test(op)) return 'same';
-  if (/^container (version|flags|stale crc|tail version)$|msgpack (trailing|truncated)$|repeated key or non-string key|aliased to the payload of/.test(op)) return 'refuse';
+  if (/written as another valid stream$|msgpack widths$|^container reserved$/.test(op)) return 'same';
+  // Blocks out of their order and bytes between blocks: the layout is contiguous (spec/FORMAT.md, section 3).
+  if (/^container (version|flags|stale crc|tail version|order|gap)$|msgpack (trailing|truncated)$|repeated key or non-string key/.test(op)) return 'refuse';
   return 'any';
 }
 
