@@ -13,6 +13,15 @@ const SQUARE = [64, 128, 256];
 const SAMPLE_SIDE = 1024;
 /** Largest whole-sample tile tried (cells). */
 const WHOLE_CELLS = 1 << 18;
+/**
+ * A field at most this thin (a time x space matrix, a few levels of a
+ * long section) is also tried with tiles across its whole short side and
+ * 512 to 4096 along the long one, and sampled along its long side up to
+ * {@link THIN_SAMPLE_CELLS}.
+ */
+const THIN_SIDE = 256;
+const THIN_LENGTHS = [512, 1024, 2048, 4096];
+const THIN_SAMPLE_CELLS = 1 << 20;
 
 /** Tile shapes tried for a field of rows x cols. */
 export function tileCandidates(rows: number, cols: number): [number, number][] {
@@ -28,7 +37,9 @@ export function tileCandidates(rows: number, cols: number): [number, number][] {
   };
   for (const s of SQUARE) add(s, s);
   if (rows * cols <= WHOLE_CELLS) add(rows, cols);
-  else if (Math.min(rows, cols) <= 256) add(rows <= cols ? rows : Math.floor(WHOLE_CELLS / cols), rows <= cols ? Math.floor(WHOLE_CELLS / rows) : cols);
+  else if (Math.min(rows, cols) <= THIN_SIDE) {
+    for (const l of THIN_LENGTHS) if (l < Math.max(rows, cols)) add(rows <= cols ? rows : l, rows <= cols ? l : cols);
+  }
   return out;
 }
 
@@ -38,13 +49,15 @@ const TRIAL_TILES = 8;
 /**
  * The candidate tile shape that packs a sample of the field into the fewest
  * bytes per cell. The sample is the top of the field, centred across, at
- * most 1024 x 1024; a candidate smaller than the sample is tried on
- * TRIAL_TILES of its tiles spread over the sample (laid side by side as one
- * small field), so the trial costs a few whole-sample encodings at most.
+ * most 1024 x 1024 (of a thin field: its whole short side, and up to 2^20
+ * cells along the long one); a candidate smaller than the sample is tried
+ * on TRIAL_TILES of its tiles spread over the sample (laid side by side as
+ * one small field), so the trial costs a few whole-sample encodings at most.
  */
 export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
-  const rows = Math.min(spec.rows, SAMPLE_SIDE);
-  const cols = Math.min(spec.cols, SAMPLE_SIDE);
+  const thin = Math.min(spec.rows, spec.cols) <= THIN_SIDE;
+  const rows = Math.min(spec.rows, thin && spec.rows > spec.cols ? Math.floor(THIN_SAMPLE_CELLS / spec.cols) : SAMPLE_SIDE);
+  const cols = Math.min(spec.cols, thin && spec.cols >= spec.rows ? Math.floor(THIN_SAMPLE_CELLS / spec.rows) : SAMPLE_SIDE);
   const c0 = Math.floor((spec.cols - cols) / 2);
   const band = src.band(0, rows);
   const make = (cells: number): FloatArray => (spec.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells));
@@ -77,5 +90,5 @@ export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
   return best;
 }
 
-/** About what one tile adds to the index (offsets, lengths, CRCs, errors). */
-const TILE_INDEX_BYTES = 60;
+/** About what one tile adds to the index (length, CRCs, method, rank, missing count, errors: spec/FORMAT.md, section 7.3). */
+const TILE_INDEX_BYTES = 26;
