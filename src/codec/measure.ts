@@ -65,7 +65,7 @@ export function measurePrefixes(payload: Uint8Array, t: PreparedTile, fill: Uint
   lens.forEach((len, groups) => {
     // The centre alone (no factor group) is never worth offering: its error is about the tile's range.
     if (groups === 0) return;
-    // A prefix is worth its index entry (about 30 bytes) only if it saves a good share of the payload.
+    // A prefix is worth its index entry (under 20 bytes) only if it saves a good share of the payload.
     if (len > PREFIX_MAX_SHARE * payload.length || payload.length - len < PREFIX_MIN_SAVING) return;
     const bytes = payload.subarray(0, len);
     let values: FloatArray;

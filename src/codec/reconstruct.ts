@@ -48,13 +48,108 @@ export function addResidual(out: Float64Array, q: Int32Array, step: number): voi
  * - Median: the median edge detector of LOCO-I (Weinberger, Seroussi and
  *   Sapiro, IEEE Trans. Image Processing 9(8), 2000): min(a, b) if
  *   c >= max(a, b), max(a, b) if c <= min(a, b), else a + b - c.
+ * - Blend: a weighted mean of five predictions (left, up, Lorenzo, the
+ *   Lorenzo step along the row above, linear extrapolation along the row),
+ *   each weighted by the inverse of its recent error around the cell, in the
+ *   manner of the blending predictors of Seemann and Tischer ("Generalized
+ *   locally adaptive DPCM", DCC 1997) and Meyer and Tischer (TMW, DCC 1997);
+ *   in exact integer arithmetic (see {@link blendWalk}).
  * On the tile's first row every predictor takes a (0 in the first cell), on
  * its first column b: the same as the Lorenzo predictor with zeros outside.
  */
-export const Predictor = { None: 0, Lorenzo: 1, Left: 2, Up: 3, Average: 4, Median: 5 } as const;
+export const Predictor = { None: 0, Lorenzo: 1, Left: 2, Up: 3, Average: 4, Median: 5, Blend: 6 } as const;
 export type Predictor = (typeof Predictor)[keyof typeof Predictor];
 /** The largest predictor id. */
-export const MAX_PREDICTOR = 5;
+export const MAX_PREDICTOR = 6;
+
+/** Predictions the blend weighs. */
+const BLEND_PARTS = 5;
+/** A blend part's recorded error is capped here, so every weight stays at least 2. */
+const BLEND_ERR_CAP = 8191;
+
+/**
+ * The blend predictor's walk over a tile in raster order: for each cell,
+ * the prediction p from the codes already settled, then `settle(c, p)`
+ * gives the cell's code q[c] (written into q), or NaN to stop (the walk then
+ * returns false). On the first row p is the cell to the left (0 in the
+ * first cell), on the first column the cell above. Inside, with W, N, NW
+ * the left, up and up-left codes, NE the up-right code (N in the last
+ * column), WW two to the left (W in column 1) and NNE two up and one right
+ * (NE in row 1 or the last column), the parts are
+ *   P0 = W, P1 = N, P2 = W + N - NW, P3 = N + NE - NNE, P4 = 2 W - WW;
+ * part k's error at a settled interior cell is min(|q - Pk|, 8191) (0 on
+ * the first row and column), its activity e_k the sum of its errors at the
+ * left, up, up-left and up-right cells (up-right: up in the last column),
+ * its weight w_k = floor(65536 / (1 + e_k)), and
+ *   p = floor((sum w_k Pk + floor(W_sum / 2)) / W_sum),   W_sum = sum w_k,
+ * all exact integers (every sum stays below 2^53).
+ */
+function blendWalk(q: Int32Array, m: number, n: number, settle: (c: number, p: number) => number): boolean {
+  const cells = m * n;
+  // Errors per part, interleaved per cell: err[5 c + k].
+  const err = new Int32Array(BLEND_PARTS * cells);
+  const weight = blendWeights();
+  for (let i = 0; i < m; i++) {
+    for (let j = 0; j < n; j++) {
+      const c = i * n + j;
+      if (i === 0 || j === 0) {
+        const v = settle(c, i === 0 ? (j === 0 ? 0 : q[c - 1]) : q[c - n]);
+        if (v !== v) return false;
+        q[c] = v;
+        continue;
+      }
+      const w = q[c - 1];
+      const nn = q[c - n];
+      const last = j + 1 === n;
+      const ne = last ? nn : q[c - n + 1];
+      const p0 = w;
+      const p1 = nn;
+      const p2 = w + nn - q[c - n - 1];
+      const p3 = nn + ne - (i >= 2 && !last ? q[c - 2 * n + 1] : ne);
+      const p4 = 2 * w - (j >= 2 ? q[c - 2] : w);
+      const a = BLEND_PARTS * (c - 1);
+      const b = BLEND_PARTS * (c - n);
+      const d = b - BLEND_PARTS;
+      const e = last ? b : b + BLEND_PARTS;
+      const w0 = weight[err[a] + err[b] + err[d] + err[e]];
+      const w1 = weight[err[a + 1] + err[b + 1] + err[d + 1] + err[e + 1]];
+      const w2 = weight[err[a + 2] + err[b + 2] + err[d + 2] + err[e + 2]];
+      const w3 = weight[err[a + 3] + err[b + 3] + err[d + 3] + err[e + 3]];
+      const w4 = weight[err[a + 4] + err[b + 4] + err[d + 4] + err[e + 4]];
+      const total = w0 + w1 + w2 + w3 + w4;
+      const num = w0 * p0 + w1 * p1 + w2 * p2 + w3 * p3 + w4 * p4 + Math.floor(total / 2);
+      let p = Math.floor(num / total);
+      // Exact floor division (the quotient of doubles may round across an integer).
+      if (p * total > num) p--;
+      else if ((p + 1) * total <= num) p++;
+      const v = settle(c, p);
+      if (v !== v) return false;
+      q[c] = v;
+      const at = BLEND_PARTS * c;
+      err[at] = capErr(v - p0);
+      err[at + 1] = capErr(v - p1);
+      err[at + 2] = capErr(v - p2);
+      err[at + 3] = capErr(v - p3);
+      err[at + 4] = capErr(v - p4);
+    }
+  }
+  return true;
+}
+
+function capErr(d: number): number {
+  const a = d < 0 ? -d : d;
+  return a > BLEND_ERR_CAP ? BLEND_ERR_CAP : a;
+}
+
+let weights: Int32Array | null = null;
+/** floor(65536 / (1 + e)) for every activity e a blend can have (0 .. 4 x the error cap). */
+function blendWeights(): Int32Array {
+  if (weights === null) {
+    weights = new Int32Array(4 * BLEND_ERR_CAP + 1);
+    for (let e = 0; e < weights.length; e++) weights[e] = Math.floor(65536 / (1 + e));
+  }
+  return weights;
+}
 
 /** The prediction of an interior cell from a (left), b (up), c (up-left). */
 function interior(kind: number, a: number, b: number, c: number): number {
@@ -78,6 +173,12 @@ function interior(kind: number, a: number, b: number, c: number): number {
 /** Inverse of {@link predict}, in place: q = d + prediction, raster order. False if a q leaves +-limit. */
 export function unpredict(d: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo): boolean {
   if (kind === Predictor.None) return true;
+  if (kind === Predictor.Blend) {
+    return blendWalk(d, m, n, (c, p) => {
+      const q = d[c] + p;
+      return q > limit || q < -limit ? Number.NaN : q;
+    });
+  }
   for (let i = 0; i < m; i++) {
     for (let j = 0; j < n; j++) {
       const c = i * n + j;
@@ -93,6 +194,16 @@ export function unpredict(d: Int32Array, m: number, n: number, limit: number, ki
 /** The prediction residual of q with predictor `kind`, or null if one exceeds `limit`. */
 export function predict(q: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo): Int32Array | null {
   const d = new Int32Array(q.length);
+  if (kind === Predictor.Blend) {
+    const work = q.slice();
+    const ok = blendWalk(work, m, n, (c, p) => {
+      const v = q[c] - p;
+      if (v > limit || v < -limit) return Number.NaN;
+      d[c] = v;
+      return q[c];
+    });
+    return ok ? d : null;
+  }
   for (let i = 0; i < m; i++) {
     for (let j = 0; j < n; j++) {
       const c = i * n + j;
@@ -108,6 +219,10 @@ export function predict(q: Int32Array, m: number, n: number, limit: number, kind
 /** A copy of q whose cells not Valid (class code non-zero) hold their prediction, so their residual is 0. */
 export function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: number, limit: number, kind: number): Int32Array {
   const out = q.slice();
+  if (kind === Predictor.Blend) {
+    blendWalk(out, m, n, (c, p) => (codes[c] === 0 ? q[c] : Math.abs(p) <= limit ? p : 0));
+    return out;
+  }
   for (let i = 0; i < m; i++) {
     for (let j = 0; j < n; j++) {
       const c = i * n + j;

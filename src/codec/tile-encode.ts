@@ -11,7 +11,9 @@ import { Flag, Method } from './payload.js';
 import { lowRank, predict, predictedFill, Predictor, reconstruct } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
-const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median];
+const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
+/** The blend (tried last) is taken only when its coded stream is below this share of the best other predictor's. */
+const BLEND_MARGIN = 0.99;
 import { encodeInts } from './code-encode.js';
 import { MAX_INT } from './section.js';
 import { writeSection } from './section-write.js';
@@ -115,6 +117,8 @@ interface Correction {
   /** The predictor of the residual codes (reconstruct.ts Predictor). */
   predictor: number;
   exceptions: number[];
+  /** The coded stream of q, when the predictor choice already made it. */
+  coded?: Uint8Array;
 }
 
 /**
@@ -188,7 +192,7 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
   if (hasResidual && corr.q) {
     w.f64(corr.step);
     w.u8(corr.predictor);
-    const coded = encodeInts(corr.q, m, n, t.classes.special > 0 ? t.classes.codes : null);
+    const coded = corr.coded ?? encodeInts(corr.q, m, n, t.classes.special > 0 ? t.classes.codes : null);
     w.u32(coded.length);
     w.bytes(coded);
   }
@@ -249,6 +253,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 
   let q: Int32Array | null = null;
   let predictor: number = Predictor.None;
   let added: Int32Array | null = null;
+  let coded: Uint8Array | undefined;
   if (e > 0 && Number.isFinite(step)) {
     q = new Int32Array(cells);
     let any = false;
@@ -267,17 +272,33 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 
       let best = q;
       let bestFilled = q;
       let bestBits = roughBits(q);
+      let blend: { d: Int32Array; filled: Int32Array } | null = null;
       for (const kind of PREDICTORS) {
         const qp = t.classes.special > 0 ? predictedFill(q, codes, m, n, MAX_INT, kind) : q;
         const d = predict(qp, m, n, MAX_INT, kind);
         if (!d) continue;
         const bits = roughBits(d);
-        if (bits < bestBits) {
+        if (!(bits < bestBits)) continue;
+        if (kind === Predictor.Blend) blend = { d, filled: qp };
+        else {
           best = d;
           bestFilled = qp;
           bestBits = bits;
           predictor = kind;
         }
+      }
+      if (blend !== null) {
+        // The blend looks cheaper, but it decodes several times slower than the others and
+        // bit lengths are only an estimate: both are coded, and the blend must save 1%.
+        const mask = t.classes.special > 0 ? codes : null;
+        const other = encodeInts(best, m, n, mask);
+        const mine = encodeInts(blend.d, m, n, mask);
+        if (mine.length < BLEND_MARGIN * other.length) {
+          best = blend.d;
+          bestFilled = blend.filled;
+          predictor = Predictor.Blend;
+          coded = mine;
+        } else coded = other;
       }
       added = bestFilled;
       q = best;
@@ -290,7 +311,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 
     if (codes[c] !== Cell.Valid) continue;
     if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
   }
-  return { center, step, q, predictor, exceptions };
+  return { center, step, q, predictor, exceptions, coded };
 }
 
 /**

@@ -24,7 +24,7 @@ export const FLAG_SLICES = 0x1;
 /** Required flags this reader understands. */
 export const KNOWN_FLAGS = FLAG_SLICES;
 export const TAIL_SIZE = 48;
-/** Tile rows and columns of one index page, unless a field asks for others: 64 tiles, about 2.5 KB of index. */
+/** Tile rows and columns of one index page, unless a field asks for others: 64 tiles, about 1.6 KB of index. */
 export const DEFAULT_PAGE: readonly [number, number] = [8, 8];
 
 /** Receives archive bytes in order. */

@@ -301,7 +301,7 @@ function checkFill(f: Obj, where: string): number | null {
 }
 
 /** Validate a decoded header. */
-export function checkHeader(raw: unknown, limits: Limits, label: string, version = 2): ArchiveHeader {
+export function checkHeader(raw: unknown, limits: Limits, label: string, version = 3): ArchiveHeader {
   if (!isObj(raw)) fail(label, `header is ${describeValue(raw)}, not a map`);
   // The version and the archive's identity are the prologue's and the tail's (spec 6.1): the header holds neither.
   if (!Array.isArray(raw.fields)) fail(label, `header fields is ${describeValue(raw.fields)}, not an array`);

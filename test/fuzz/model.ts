@@ -273,7 +273,7 @@ export interface PayloadLayout {
   groups: { size: number; stepsAt: number }[];
   /** The residual's f64 step (its u8 predictor follows). */
   residualStepAt?: number;
-  /** The residual's predictor (0 none, 1 Lorenzo, 2 left, 3 up, 4 average, 5 median). */
+  /** The residual's predictor (0 none, 1 Lorenzo, 2 left, 3 up, 4 average, 5 median, 6 blend). */
   residualPredictor?: number;
   /** Where the walk ended: a well-formed payload ends exactly at its length. */
   end: number;
