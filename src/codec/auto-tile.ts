@@ -80,8 +80,9 @@ export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
     const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
     const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false };
     let bytes = 0;
-    encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
-    const rate = bytes / (m * width);
+    const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
+    // Bytes per valid cell: candidates sample different tiles, and missing cells cost next to nothing.
+    const rate = bytes / Math.max(1, done.valid);
     if (rate < bestRate) {
       bestRate = rate;
       best = [tr, tc];

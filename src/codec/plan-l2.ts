@@ -9,7 +9,7 @@
 import { measure } from './measure.js';
 import { forEachTile, type BandSource, type FieldSpec } from './tiles.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
-import { encodeL2, encodePointwise, exactPayload } from './tile-encode.js';
+import { encodeL2, encodePointwise, exactPayload, rankZeroForMse } from './tile-encode.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
@@ -60,8 +60,14 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   }
   // Residual plan: the pointwise coder at E' with uniform quantization error
   // (2E')^2 / 12 = E^2 per value (common practice, no source), a little inside.
+  // Also a rank-0 residual whose codes are chosen for rate as well as error; the smaller wins.
   const ePrime = Math.sqrt(3) * tol * 0.97;
-  plans.push({ name: 'residual', one: (t) => encodePointwise(t, ePrime), allot: (index) => 0.999 * dims[index][2] });
+  const residual = (t: PreparedTile): Uint8Array => {
+    const plain = encodePointwise(t, ePrime);
+    const rdo = rankZeroForMse(t, 0.97 * tol * tol);
+    return rdo !== null && rdo.length < plain.length ? rdo : plain;
+  };
+  plans.push({ name: 'residual', one: residual, allot: (index) => 0.999 * dims[index][2] });
 
   const sampleAt = (k: number) => Math.floor(((k + 0.5) * count) / Math.min(count, SAMPLE_TILES));
   let best = plans[plans.length - 1];

@@ -170,6 +170,27 @@ function interior(kind: number, a: number, b: number, c: number): number {
   }
 }
 
+/**
+ * Walk a tile in raster order with predictor `kind`: for each cell, its
+ * prediction p from the codes already settled (the edge rule, then the
+ * predictor; 0 for None), then `settle(c, p)` gives the cell's code, written
+ * into q, or NaN to stop (the walk then returns false). The encoder's way
+ * to choose each code knowing its prediction.
+ */
+export function walkPredictor(q: Int32Array, m: number, n: number, kind: number, settle: (c: number, p: number) => number): boolean {
+  if (kind === Predictor.Blend) return blendWalk(q, m, n, settle);
+  for (let i = 0; i < m; i++) {
+    for (let j = 0; j < n; j++) {
+      const c = i * n + j;
+      const p = kind === Predictor.None ? 0 : i === 0 ? (j === 0 ? 0 : q[c - 1]) : j === 0 ? q[c - n] : interior(kind, q[c - 1], q[c - n], q[c - n - 1]);
+      const v = settle(c, p);
+      if (v !== v) return false;
+      q[c] = v;
+    }
+  }
+  return true;
+}
+
 /** Inverse of {@link predict}, in place: q = d + prediction, raster order. False if a q leaves +-limit. */
 export function unpredict(d: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo): boolean {
   if (kind === Predictor.None) return true;

@@ -8,7 +8,7 @@ import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { Flag, Method } from './payload.js';
-import { lowRank, predict, predictedFill, Predictor, reconstruct } from './reconstruct.js';
+import { lowRank, predict, predictedFill, Predictor, reconstruct, walkPredictor } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -312,6 +312,71 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 
     if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
   }
   return { center, step, q, predictor, exceptions, coded };
+}
+
+/** Step multipliers and rate weights (in units of step^2) the rate-distortion search tries. */
+const RDO_STEPS = [0.6, 0.7, 0.85, 1];
+const RDO_WEIGHTS = [0.15, 0.3, 0.45, 0.6];
+
+/** Rough bits of a prediction difference, for the rate-distortion search. */
+function diffBits(d: number): number {
+  return d === 0 ? 1 : 3 + 2 * Math.log2(d < 0 ? -d : d);
+}
+
+/**
+ * A rank-0 payload for a mean squared error allotment (L2 bounds) whose
+ * residual codes are chosen for rate as well as distortion: in raster
+ * order each code is the nearest one, or the next one towards its
+ * prediction when that lowers (error / step)^2 + w x bits of the
+ * difference (greedy rate-distortion optimised quantization; the usual
+ * Lagrangian trade, e.g. Sullivan and Wiegand, "Rate-distortion
+ * optimization for video compression", IEEE Signal Processing Magazine
+ * 15(6), 1998). Finer steps with such codes meet the same error in fewer
+ * bytes than uniform rounding at low rates. Steps and weights are tried
+ * with the predictor plain rounding picks, then Lorenzo, the median and the
+ * blend at the best of them. Returns the smallest payload whose estimated squared
+ * error stays within 98% of `mse` per valid cell, or null.
+ */
+export function rankZeroForMse(t: PreparedTile, mse: number): Uint8Array | null {
+  if (!t.finite || t.valid === 0 || !(mse > 0) || !Number.isFinite(mse)) return null;
+  const { m, n } = t;
+  const codes = t.classes.codes;
+  const center = t.center;
+  const unit = Math.sqrt(12 * mse);
+  const plainKind = correct(t, null, unit / 2, unit).predictor;
+  let best: Uint8Array | null = null;
+  let bestAt: [number, number] = [1, 0];
+  const one = (kind: number, a: number, w: number): void => {
+    const step = a * unit;
+    {
+      const q = new Int32Array(m * n);
+      const d = new Int32Array(m * n);
+      let se = 0;
+      const ok = walkPredictor(q, m, n, kind, (c, p) => {
+        if (codes[c] !== Cell.Valid) return Math.abs(p) <= MAX_INT ? p : Number.NaN;
+        const x = (t.orig[c] - center) / step;
+        let v = Math.round(x);
+        if (v !== p) {
+          const alt = v + (p > v ? 1 : -1);
+          if ((x - alt) * (x - alt) + w * diffBits(alt - p) < (x - v) * (x - v) + w * diffBits(v - p)) v = alt;
+        }
+        if (Math.abs(v) > MAX_INT || Math.abs(v - p) > MAX_INT) return Number.NaN;
+        d[c] = v - p;
+        se += (x - v) * (x - v) * step * step;
+        return v;
+      });
+      if (!ok || !(se <= 0.98 * mse * t.valid)) return;
+      const payload = lowRankPayload(t, null, { center, step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
+      if (best === null || payload.length < best.length) {
+        best = payload;
+        bestAt = [a, w];
+      }
+    }
+  };
+  // The step and weight with the predictor plain rounding picks, then the other predictors at the best of them.
+  for (const a of RDO_STEPS) for (const w of RDO_WEIGHTS) one(plainKind, a, w);
+  for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) if (kind !== plainKind) one(kind, ...bestAt);
+  return best;
 }
 
 /**
