@@ -6,7 +6,7 @@
 import { chmodSync, existsSync, mkdirSync, readdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { fileError, oneLine } from '../../src/cli/errors.js';
+import { capLine, fileError, MAX_LINE, oneLine } from '../../src/cli/errors.js';
 import { FormatCode, FormatError } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { formatRaw } from '../../src/io/raw.js';
@@ -41,6 +41,10 @@ const CASES: [string, string[], RegExp][] = [
   ['bound of zero', ['pack', 'f.npy', '-o', OUT, '--bound', 'abs:0'], /bound value for 'abs' must be a positive finite number, got 0/],
   ['negative bound', ['pack', 'f.npy', '-o', OUT, '--bound', 'rel:-1e-3'], /bound value for 'rel' must be a positive finite number, got -0\.001/],
   ['NaN bound', ['pack', 'f.npy', '-o', OUT, '--bound', 'rmse:NaN'], /bound value for 'rmse' must be a positive finite number, got NaN/],
+  ['infinite bound', ['pack', 'f.npy', '-o', OUT, '--bound', 'abs:inf'], /bound value for 'abs' must be a positive finite number, got infinity \('inf'\)$/],
+  ['minus infinite bound', ['pack', 'f.npy', '-o', OUT, '--bound', 'psnr:-Infinity'], /bound value for 'psnr' must be a positive finite number, got minus infinity \('-Infinity'\)$/],
+  ['bound beyond the float64 range', ['pack', 'f.npy', '-o', OUT, '--bound', 'rel:1e999'], /got '1e999', beyond the float64 range \(infinity\)$/],
+  ['bound that is not a number', ['unpack', 'x.rfz', '-o', 'x.npy', '--bound', 'abs:two'], /got 'two', which is not a number$/],
   ['unknown bound mode', ['pack', 'f.npy', '-o', OUT, '--bound', 'tight:1'], /unknown bound mode 'tight' \(known: abs, rel, rmse, psnr\)/],
   ['bound without a mode', ['pack', 'f.npy', '-o', OUT, '--bound', '0.01'], /bound '0\.01' is not MODE:VALUE/],
   ['missing --bound', ['pack', 'f.npy', '-o', OUT], /required option '--bound <MODE:VALUE>' not specified/],
@@ -92,6 +96,25 @@ describe('every bad input: one line, exit 2, no output', () => {
   it('messages differ from case to case', () => {
     expect(seen).toHaveLength(CASES.length);
     expect(new Set(seen).size).toBe(seen.length);
+  });
+});
+
+describe('long input is elided in the middle of the error line', () => {
+  it('a 5000-digit shape axis', () => {
+    const axis = `7${'0'.repeat(4998)}9`;
+    const r = rf(['pack', 'f.raw', '-o', OUT, '--shape', `12x${axis}`, '--dtype', 'f32', '--bound', 'abs:1'], dir);
+    expectCliError(r, /shape .*12x7000.*\.\.\.\[\d+ characters\]\.\.\..*0009/);
+    expect(r.stderr.length).toBeLessThanOrEqual(MAX_LINE + '\n'.length + 'rankfield: error: '.length);
+  });
+
+  it('capLine keeps short lines, and the start and end of long words and lines', () => {
+    expect(capLine("cannot read 'a.npy': no such file or directory")).toBe("cannot read 'a.npy': no such file or directory");
+    const word = `'${'a'.repeat(60)}${'b'.repeat(100)}${'c'.repeat(40)}'`;
+    const short = capLine(`bad ${word} here`);
+    expect(short).toMatch(/^bad 'a{47}\.\.\.\[130 characters\]\.\.\.c{23}' here$/);
+    const many = capLine(Array.from({ length: 200 }, (_, i) => `word${i}`).join(' '));
+    expect(many.length).toBeLessThanOrEqual(MAX_LINE);
+    expect(many).toMatch(/^word0 word1 .*\.\.\.\[\d+ characters\]\.\.\..* word199$/);
   });
 });
 
