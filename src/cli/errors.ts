@@ -78,7 +78,34 @@ export function oneLine(e: unknown): string {
     text = e.path ? `'${e.path}': ${reason}` : reason;
   } else if (e instanceof Error) text = `internal error: ${e.message} (rerun with --debug for the stack trace, and please report it)`;
   else text = `internal error: ${String(e)}`;
-  return text.replace(/\s*\n\s*/g, ' ').trim();
+  return capLine(text.replace(/\s*\n\s*/g, ' ').trim());
+}
+
+/** Longest word of an error line kept whole (a long number, path or name typed by the user). */
+export const MAX_WORD = 100;
+/** Longest error line, in characters (after long words are shortened). */
+export const MAX_LINE = 500;
+
+/** `text` with its middle replaced by `...[N characters]...` so that about `keep` characters remain. */
+export function elide(text: string, keep: number): string {
+  const chars = [...text];
+  if (chars.length <= keep) return text;
+  const head = Math.ceil((keep * 2) / 3);
+  const tail = keep - head;
+  const cut = chars.length - head - tail;
+  return `${chars.slice(0, head).join('')}...[${cut} characters]...${chars.slice(chars.length - tail).join('')}`;
+}
+
+/**
+ * Cap an error line at a readable length: every word (a run without
+ * spaces) longer than {@link MAX_WORD} keeps its start and end with the
+ * middle elided, and a line still longer than {@link MAX_LINE} is elided in
+ * its middle the same way. A 5000-digit shape thus shows as its first and
+ * last digits and how many were left out.
+ */
+export function capLine(line: string): string {
+  const short = line.replace(/\S+/g, (w) => ([...w].length > MAX_WORD ? elide(w, 72) : w));
+  return [...short].length > MAX_LINE ? elide(short, MAX_LINE - 30) : short;
 }
 
 /** Write an error to stderr the way the command line shows errors. */

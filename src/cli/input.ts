@@ -3,12 +3,12 @@
  * (its own header says shape and dtype), or else headerless raw binary whose
  * shape, dtype and byte order the user states.
  */
-import { open as openFile } from 'node:fs/promises';
 import { InputCode, InputError, type Dtype } from '../index.js';
 import { openNpyBands, openRawBands, type BandReader } from '../io/bands.js';
 import type { NdArray } from '../io/ndarray.js';
 import { parseNpy } from '../io/npy.js';
 import { parseRaw } from '../io/raw.js';
+import { openRegular } from '../io/regular-file.js';
 import { fileError, UsageError } from './errors.js';
 import { readInput } from './files.js';
 
@@ -120,7 +120,7 @@ export async function openFieldBands(path: string, given: RawLayout): Promise<Ba
 
 /** The first bytes of a file (for telling what it looks like). */
 async function readHead(path: string): Promise<Uint8Array> {
-  const h = await openFile(path, 'r');
+  const { handle: h } = await openRegular(path);
   try {
     const out = new Uint8Array(NPY_MAGIC.length);
     const { bytesRead } = await h.read(out, 0, out.length, 0);

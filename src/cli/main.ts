@@ -9,6 +9,7 @@ import { registerCheck } from './check.js';
 import { registerDemo } from './demo.js';
 import { Exit, report } from './errors.js';
 import { removeTempFilesSync, trackTempDir, trackTempFile } from './files.js';
+import { HTTP_DEFAULTS } from './http.js';
 import { Worker } from 'node:worker_threads';
 import { registerPack } from './pack.js';
 import { registerShow } from './show.js';
@@ -43,7 +44,12 @@ export function buildProgram(ctx: Context): Command {
       'after',
       `
 Exit codes: 0 success; 1 \`check\` or \`demo\` found a failure; 2 unusable input
-(bad arguments, unreadable or malformed files).
+(bad arguments, unreadable or malformed files); 128 + N ended by signal N.
+
+Environment (seconds, 0: no limit), for archives read from http(s) URLs:
+  RANKFIELD_HTTP_DEADLINE          all HTTP reads of one command (default ${HTTP_DEFAULTS.deadline})
+  RANKFIELD_HTTP_REQUEST_DEADLINE  one request, to its last byte (default ${HTTP_DEFAULTS.requestDeadline})
+  RANKFIELD_HTTP_TIMEOUT           silence within a request (default ${HTTP_DEFAULTS.timeout})
 
 Packing is lossy: it discards information. Keep the originals until
 \`rankfield check ARCHIVE --against ORIGINAL\` passes, and follow your
@@ -116,11 +122,17 @@ function inWorker(argv: string[], out: (s: string) => void, setWorker: (w: Worke
       if (m.dir !== undefined) trackTempDir(m.dir, m.active === true);
       if (m.exit !== undefined) finish(m.exit);
     });
+    // A worker that dies (out of memory, an uncaught error) cannot remove its temporary files: do it here.
     w.on('error', (e) => {
+      removeTempFilesSync();
       report(e, wantsDebug(argv), (s) => void process.stderr.write(s));
       finish(Exit.Usage);
     });
-    w.on('exit', (code) => finish(code === 0 ? Exit.Ok : Exit.Usage));
+    w.on('exit', (code) => {
+      // Messages are delivered before 'exit': whatever is still tracked was abandoned.
+      removeTempFilesSync();
+      finish(code === 0 ? Exit.Ok : Exit.Usage);
+    });
   });
 }
 
@@ -133,8 +145,11 @@ export async function run(): Promise<void> {
     process.stderr.write(`rankfield: error: interrupted by ${signal}; unfinished output files were removed\n`);
     process.exit(code);
   };
+  // Exit codes 128 + the signal number (common practice, no source). Inputs are opened without
+  // blocking (src/io/regular-file.ts), so no thread can be stuck in open() and hold up the exit.
   process.once('SIGINT', onSignal('SIGINT', 130));
   process.once('SIGTERM', onSignal('SIGTERM', 143));
+  process.once('SIGHUP', onSignal('SIGHUP', 129));
   // A reader that closes the pipe early (`rankfield show x | head -1`) is not an error: further
   // output is dropped, and the command still finishes (and cleans up) normally.
   let stdoutOpen = true;

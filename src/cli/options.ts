@@ -7,6 +7,8 @@ import { InvalidArgumentError } from 'commander';
 import { MAX_TILE_SIDE, parseBound, type Bound, type Dtype } from '../index.js';
 import { parseDtype, parseShape } from '../io/raw.js';
 
+const DECIMAL = /^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$/;
+
 function wrap<T>(fn: () => T): T {
   try {
     return fn();
@@ -16,8 +18,33 @@ function wrap<T>(fn: () => T): T {
   }
 }
 
-/** `--bound MODE:VALUE`, by the library's own parser. */
+/**
+ * A value typed as `text` that is not a finite number, named the way a
+ * message should say it ("infinity ('inf')", "NaN ('nan': not a number)",
+ * "'1e999', beyond the float64 range (infinity)"), or null when it is a
+ * finite number.
+ */
+export function nonFinite(text: string): string | null {
+  const t = text.trim();
+  const v = Number(t);
+  if (Number.isFinite(v)) return null;
+  if (/^[+-]?inf(inity)?$/i.test(t)) return `${t.startsWith('-') ? 'minus infinity' : 'infinity'} ('${t}')`;
+  if (/^[+-]?nan$/i.test(t)) return `NaN ('${t}': not a number)`;
+  if (DECIMAL.test(t)) return `'${t}', beyond the float64 range (${v < 0 ? 'minus ' : ''}infinity)`;
+  return `'${t}', which is not a number`;
+}
+
+/**
+ * `--bound MODE:VALUE`, by the library's own parser, after naming the
+ * values it would report as just NaN or Infinity: `abs:inf` is infinity,
+ * `abs:1e999` beyond the float64 range, `abs:x` not a number.
+ */
 export function boundOption(text: string): Bound {
+  const m = /^([a-z]+):(.+)$/.exec(text.trim());
+  const named = m === null ? null : nonFinite(m[2]);
+  if (m !== null && named !== null && ['abs', 'rel', 'rmse', 'psnr'].includes(m[1])) {
+    throw new InvalidArgumentError(`bound value for '${m[1]}' must be a positive finite number, got ${named}`);
+  }
   return wrap(() => parseBound(text));
 }
 
@@ -36,8 +63,6 @@ export function tileOption(text: string): [number, number] | 'auto' {
   }
   return sides.length === 1 ? [sides[0], sides[0]] : [sides[0], sides[1]];
 }
-
-const DECIMAL = /^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$/;
 
 /** `--fill V`: a finite decimal number. */
 export function fillOption(text: string): number {

@@ -8,7 +8,11 @@
  * asked range and the size learnt when the source was opened, and a body
  * of exactly that length; a changed ETag or size means the file changed on
  * the server while it was being read. Dropped connections, time-outs and
- * 5xx answers are retried a bounded number of times. A server that ignores
+ * 5xx answers are retried a bounded number of times. Time is bounded three
+ * ways: a wait with nothing arriving (`timeout`), one request from sending
+ * it to the last byte of its answer (`requestDeadline`, so a server that
+ * drips bytes cannot hold a read forever), and, when set, all reads of the
+ * source together (`deadline`). A server that ignores
  * Range (answers 200 with the whole body) is used as a whole-file fallback
  * held in memory when the file is small; otherwise it is refused.
  *
@@ -31,8 +35,22 @@ export interface HttpSourceOptions {
   retries?: number;
   /** Wait before the first retry in milliseconds, doubled for each further one. Default 250. */
   retryDelay?: number;
-  /** Longest wait in milliseconds for an answer, or for more of its body, before the attempt counts as failed. Default 30000. */
+  /** Longest wait in milliseconds for an answer, or for more of its body, before the attempt counts as failed. Default 30000; 0: none. */
   timeout?: number;
+  /**
+   * Longest time in milliseconds for one request, from sending it to the
+   * last byte of its answer, however steadily the bytes come; past it the
+   * attempt counts as failed (and is retried like a dropped connection).
+   * Default 300000 (5 minutes); 0: none.
+   */
+  requestDeadline?: number;
+  /**
+   * Longest time in milliseconds for all reads of this source together,
+   * retries and waits between them included, counted from its creation.
+   * Past it every read fails with InputError (code `file`), and a request
+   * in flight is aborted. Default 0: none.
+   */
+  deadline?: number;
   /**
    * Largest file held in memory when the server ignores Range requests and
    * sends the whole file. Default 64 MiB; 0 refuses such servers outright.
@@ -60,6 +78,9 @@ interface Remote {
 
 /** A failure worth another attempt. */
 class Transient extends Error {}
+
+/** The source's overall deadline passed: no further attempt. */
+class DeadlinePassed extends Error {}
 
 /** A whole response body, or bytes of a range. */
 interface Body {
@@ -94,6 +115,10 @@ export class HttpSource implements ByteSource {
   private readonly retries: number;
   private readonly retryDelay: number;
   private readonly timeout: number;
+  private readonly requestDeadline: number;
+  private readonly deadline: number;
+  /** When the overall deadline passes (Date.now() time), or Infinity. */
+  private readonly deadlineAt: number;
   private readonly maxWholeFile: number;
   private remote: Promise<Remote> | null = null;
   /** The whole file, when the server ignores Range and the file is small. */
@@ -131,6 +156,9 @@ export class HttpSource implements ByteSource {
     this.retries = Math.floor(count(options.retries, 3, 'retries'));
     this.retryDelay = count(options.retryDelay, 250, 'retryDelay');
     this.timeout = count(options.timeout, 30_000, 'timeout');
+    this.requestDeadline = count(options.requestDeadline, 300_000, 'requestDeadline');
+    this.deadline = count(options.deadline, 0, 'deadline');
+    this.deadlineAt = this.deadline > 0 ? Date.now() + this.deadline : Infinity;
     this.maxWholeFile = count(options.maxWholeFile, DEFAULT_MAX_WHOLE_FILE, 'maxWholeFile');
     if (options.multiRange !== undefined && typeof options.multiRange !== 'boolean') throw new InputError(InputCode.Option, `multiRange must be true or false, got ${String(options.multiRange)}`);
     this.multiRange = options.multiRange ?? true;
@@ -271,38 +299,61 @@ export class HttpSource implements ByteSource {
     return out;
   }
 
-  /** Run `once` with retries on transient failures; other errors pass at once. */
+  /** Run `once` with retries on transient failures; other errors pass at once. The overall deadline ends the attempts. */
   private async attempts<T>(what: string, once: () => Promise<T>): Promise<T> {
     let last: unknown;
+    let tried = 0;
+    const tries = () => `${tried} attempt${tried === 1 ? '' : 's'}`;
+    const overdue = () =>
+      new InputError(
+        InputCode.File,
+        `cannot ${what} '${this.label}': the deadline of ${this.deadline} ms for all reads passed${last === undefined ? '' : ` (last failure: ${describe(last)}, after ${tries()})`}`,
+      );
     for (let attempt = 0; attempt <= this.retries; attempt++) {
-      if (attempt > 0) await sleep(this.retryDelay * 2 ** (attempt - 1));
+      if (attempt > 0) {
+        const wait = this.retryDelay * 2 ** (attempt - 1);
+        if (Date.now() + wait >= this.deadlineAt) throw overdue();
+        await sleep(wait);
+      }
+      if (Date.now() >= this.deadlineAt) throw overdue();
+      tried++;
       try {
         return await once();
       } catch (e) {
         if (e instanceof FormatError || e instanceof InputError) throw e;
+        if (e instanceof DeadlinePassed) throw overdue();
         last = e;
       }
     }
-    const tries = this.retries + 1;
     if (last instanceof Transient && /^short body/.test(last.message)) {
-      throw new FormatError(FormatCode.Truncated, `${this.label}: could not ${what} it: ${last.message}, ${tries} attempt${tries === 1 ? '' : 's'}`);
+      throw new FormatError(FormatCode.Truncated, `${this.label}: could not ${what} it: ${last.message}, ${tries()}`);
     }
-    throw new InputError(InputCode.File, `cannot ${what} '${this.label}': ${describe(last)} (gave up after ${tries} attempt${tries === 1 ? '' : 's'})`);
+    throw new InputError(InputCode.File, `cannot ${what} '${this.label}': ${describe(last)} (gave up after ${tries()})`);
   }
 
   /**
-   * One request. The time limit applies to the wait for the answer and to
-   * every wait for more of its body (so a long read that keeps coming is not
-   * cut off, but one that stalls is).
+   * One request. The idle time limit applies to the wait for the answer and
+   * to every wait for more of its body (so a long read that keeps coming is
+   * not cut off, but one that stalls is); the request deadline, and the
+   * overall one, to the whole of it (so one that keeps coming too slowly is
+   * cut off too).
    */
   private async request(method: 'GET', range: string, use: (r: Response) => Promise<unknown>): Promise<void> {
     const controller = typeof AbortController === 'function' ? new AbortController() : null;
-    let timedOut = false;
+    let ended: 'idle' | 'request' | 'overall' | null = null;
     let timer: ReturnType<typeof setTimeout> | null = null;
+    const stop = (why: 'idle' | 'request' | 'overall') => {
+      ended ??= why;
+      controller?.abort();
+    };
     const arm = () => {
       if (timer !== null) clearTimeout(timer);
-      if (this.timeout > 0 && controller) timer = setTimeout(() => ((timedOut = true), controller.abort()), this.timeout);
+      if (this.timeout > 0 && controller) timer = setTimeout(() => stop('idle'), this.timeout);
     };
+    // One timer for the whole request: the request deadline or the overall one, whichever comes first.
+    const left = this.deadlineAt - Date.now();
+    const whole = this.requestDeadline > 0 && this.requestDeadline <= left ? { ms: this.requestDeadline, why: 'request' as const } : Number.isFinite(left) ? { ms: Math.max(0, left), why: 'overall' as const } : null;
+    const deadline = whole && controller ? setTimeout(() => stop(whole.why), whole.ms) : null;
     arm();
     const headers: Record<string, string> = { ...this.headers };
     // Range offsets count the bytes as stored; a compressed transfer would count others.
@@ -319,12 +370,15 @@ export class HttpSource implements ByteSource {
     } catch (e) {
       // Release a body left unread, so its connection is not held open.
       if (response !== null && response.body !== null && !response.bodyUsed) await response.body.cancel().catch(() => undefined);
-      if (timedOut) throw new Transient(`no answer for ${this.timeout} ms`);
+      if (ended === 'overall') throw new DeadlinePassed('overall deadline');
+      if (ended === 'request') throw new Transient(`the answer did not complete within ${this.requestDeadline} ms`);
+      if (ended === 'idle') throw new Transient(`no answer for ${this.timeout} ms`);
       if (e instanceof FormatError || e instanceof InputError || e instanceof Transient) throw e;
       // fetch and body streams fail with TypeError (network) or AbortError; either may pass on retry.
       throw new Transient(describe(e));
     } finally {
       if (timer !== null) clearTimeout(timer);
+      if (deadline !== null) clearTimeout(deadline);
     }
   }
 

@@ -14,6 +14,7 @@ import { InputCode, InputError } from '../errors.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { HOST_LITTLE_ENDIAN, checkedProduct, itemSize, swapBytes } from './ndarray.js';
 import { MAX_NPY_HEADER_BYTES, parseNpyHeader } from './npy.js';
+import { openRegularSync } from './regular-file.js';
 
 /** A 2-D field read a band of rows at a time. */
 export interface BandReader {
@@ -158,19 +159,10 @@ class FileBands implements BandReader {
   }
 }
 
-/** Open read-only; a directory is refused with an EISDIR error like Node's own. */
+/** Open read-only without blocking; a directory is refused with an EISDIR error like Node's own, a FIFO, device or socket with an InputError. */
 function openInput(path: string): { fd: number; size: number; mtimeMs: number } {
-  const fd = openSync(path, 'r');
-  try {
-    const st = fstatSync(fd);
-    if (st.isDirectory()) {
-      throw Object.assign(new Error(`EISDIR: illegal operation on a directory, open '${path}'`), { code: 'EISDIR', errno: -21, syscall: 'open', path });
-    }
-    return { fd, size: st.size, mtimeMs: st.mtimeMs };
-  } catch (e) {
-    closeSync(fd);
-    throw e;
-  }
+  const { fd, stat } = openRegularSync(path);
+  return { fd, size: stat.size, mtimeMs: stat.mtimeMs };
 }
 
 /** Read up to `length` bytes at `position` (fewer at the end of the file). */

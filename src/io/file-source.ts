@@ -4,9 +4,10 @@
  * archive can be opened and single tiles decoded without loading the file.
  * The file is opened read-only and never written.
  */
-import { open as openFile, type FileHandle } from 'node:fs/promises';
+import type { FileHandle } from 'node:fs/promises';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import type { ByteSource } from '../format/source.js';
+import { openRegular } from './regular-file.js';
 
 /** A read-only, random-access byte source over one file. */
 export class FileSource implements ByteSource {
@@ -23,26 +24,14 @@ export class FileSource implements ByteSource {
   /**
    * Open `path` read-only. File system errors (ENOENT, EACCES, ...) are
    * passed on as Node reports them; a directory is refused with an EISDIR
-   * error of the same shape (Linux lets `open` succeed on one). `label`
-   * names the source in messages; default the path.
+   * error of the same shape (Linux lets `open` succeed on one), and a FIFO,
+   * device or socket with an InputError (code `file`): the file is opened
+   * without blocking, so a FIFO with no writer cannot hold the open up.
+   * `label` names the source in messages; default the path.
    */
   static async open(path: string, label: string = path): Promise<FileSource> {
-    const handle = await openFile(path, 'r');
-    try {
-      const st = await handle.stat();
-      if (st.isDirectory()) {
-        throw Object.assign(new Error(`EISDIR: illegal operation on a directory, open '${path}'`), {
-          code: 'EISDIR',
-          errno: -21,
-          syscall: 'open',
-          path,
-        });
-      }
-      return new FileSource(handle, st.size, label);
-    } catch (e) {
-      await handle.close();
-      throw e;
-    }
+    const { handle, stat } = await openRegular(path);
+    return new FileSource(handle, stat.size, label);
   }
 
   /** Size of the file when it was opened. */

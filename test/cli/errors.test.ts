@@ -6,7 +6,8 @@
 import { chmodSync, existsSync, mkdirSync, readdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { fileError, oneLine } from '../../src/cli/errors.js';
+import { capLine, fileError, MAX_LINE, oneLine } from '../../src/cli/errors.js';
+import { boundOption } from '../../src/cli/options.js';
 import { FormatCode, FormatError } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { formatRaw } from '../../src/io/raw.js';
@@ -41,6 +42,7 @@ const CASES: [string, string[], RegExp][] = [
   ['bound of zero', ['pack', 'f.npy', '-o', OUT, '--bound', 'abs:0'], /bound value for 'abs' must be a positive finite number, got 0/],
   ['negative bound', ['pack', 'f.npy', '-o', OUT, '--bound', 'rel:-1e-3'], /bound value for 'rel' must be a positive finite number, got -0\.001/],
   ['NaN bound', ['pack', 'f.npy', '-o', OUT, '--bound', 'rmse:NaN'], /bound value for 'rmse' must be a positive finite number, got NaN/],
+  ['infinite bound', ['pack', 'f.npy', '-o', OUT, '--bound', 'abs:inf'], /bound value for 'abs' must be a positive finite number, got infinity \('inf'\)$/],
   ['unknown bound mode', ['pack', 'f.npy', '-o', OUT, '--bound', 'tight:1'], /unknown bound mode 'tight' \(known: abs, rel, rmse, psnr\)/],
   ['bound without a mode', ['pack', 'f.npy', '-o', OUT, '--bound', '0.01'], /bound '0\.01' is not MODE:VALUE/],
   ['missing --bound', ['pack', 'f.npy', '-o', OUT], /required option '--bound <MODE:VALUE>' not specified/],
@@ -92,6 +94,43 @@ describe('every bad input: one line, exit 2, no output', () => {
   it('messages differ from case to case', () => {
     expect(seen).toHaveLength(CASES.length);
     expect(new Set(seen).size).toBe(seen.length);
+  });
+});
+
+describe('--bound values that are not finite numbers are named', () => {
+  it('infinities, values beyond the float64 range, and words', () => {
+    const message = (text: string) => {
+      try {
+        boundOption(text);
+      } catch (e) {
+        return (e as Error).message;
+      }
+      return 'accepted';
+    };
+    expect(message('psnr:-Infinity')).toBe("bound value for 'psnr' must be a positive finite number, got minus infinity ('-Infinity')");
+    expect(message('rel:1e999')).toBe("bound value for 'rel' must be a positive finite number, got '1e999', beyond the float64 range (infinity)");
+    expect(message('abs:two')).toBe("bound value for 'abs' must be a positive finite number, got 'two', which is not a number");
+    expect(message('rmse:nan')).toBe("bound value for 'rmse' must be a positive finite number, got NaN ('nan': not a number)");
+    expect(message('abs:0.5')).toBe('accepted');
+  });
+});
+
+describe('long input is elided in the middle of the error line', () => {
+  it('a 5000-digit shape axis', () => {
+    const axis = `7${'0'.repeat(4998)}9`;
+    const r = rf(['pack', 'f.raw', '-o', OUT, '--shape', `12x${axis}`, '--dtype', 'f32', '--bound', 'abs:1'], dir);
+    expectCliError(r, /shape .*12x7000.*\.\.\.\[\d+ characters\]\.\.\..*0009/);
+    expect(r.stderr.length).toBeLessThanOrEqual(MAX_LINE + '\n'.length + 'rankfield: error: '.length);
+  });
+
+  it('capLine keeps short lines, and the start and end of long words and lines', () => {
+    expect(capLine("cannot read 'a.npy': no such file or directory")).toBe("cannot read 'a.npy': no such file or directory");
+    const word = `'${'a'.repeat(60)}${'b'.repeat(100)}${'c'.repeat(40)}'`;
+    const short = capLine(`bad ${word} here`);
+    expect(short).toMatch(/^bad 'a{47}\.\.\.\[130 characters\]\.\.\.c{23}' here$/);
+    const many = capLine(Array.from({ length: 200 }, (_, i) => `word${i}`).join(' '));
+    expect(many.length).toBeLessThanOrEqual(MAX_LINE);
+    expect(many).toMatch(/^word0 word1 .*\.\.\.\[\d+ characters\]\.\.\..* word199$/);
   });
 });
 

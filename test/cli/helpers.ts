@@ -3,7 +3,7 @@
  * older than src/, run `node bin/rankfield ...` in a folder, load the
  * vega-datasets volcano grid, and assert the one-line error contract.
  */
-import { execFileSync, spawnSync } from 'node:child_process';
+import { type ChildProcess, execFileSync, spawn, spawnSync } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { dirname, join, resolve } from 'node:path';
@@ -51,6 +51,33 @@ export function rf(args: string[], cwd: string, env: NodeJS.ProcessEnv = {}): Ru
   return { code: r.status, stdout: r.stdout, stderr: r.stderr };
 }
 
+/** What a child run ended with: its result, and the signal that ended it (null when it exited by itself). */
+export type ChildResult = RunResult & { signal: NodeJS.Signals | null };
+
+/**
+ * Start `node bin/rankfield ...args` in `cwd` without waiting for it (so
+ * that this process's event loop, and a test server on it, keeps running,
+ * and several can run at once): the child, and its result once it has
+ * exited. A child still running when its test ends is the test's to kill.
+ */
+export function rfStart(args: string[], cwd: string, env: NodeJS.ProcessEnv = {}): { child: ChildProcess; done: Promise<ChildResult> } {
+  const child = spawn(process.execPath, [BIN, ...args], { cwd, env: { ...process.env, ...env } });
+  let stdout = '';
+  let stderr = '';
+  child.stdout!.on('data', (d: Buffer) => (stdout += d.toString()));
+  child.stderr!.on('data', (d: Buffer) => (stderr += d.toString()));
+  const done = new Promise<ChildResult>((resolve, reject) => {
+    child.on('error', reject);
+    child.on('close', (code, signal) => resolve({ code, signal, stdout, stderr }));
+  });
+  return { child, done };
+}
+
+/** Run `node bin/rankfield ...args` in `cwd` without blocking this process's event loop. */
+export function rfAsync(args: string[], cwd: string, env: NodeJS.ProcessEnv = {}): Promise<ChildResult> {
+  return rfStart(args, cwd, env).done;
+}
+
 /** A fresh temporary folder, and a function that removes it. */
 export function tempDir(prefix = 'rankfield-cli-'): { dir: string; remove: () => void } {
   const dir = mkdtempSync(join(tmpdir(), prefix));
@@ -83,9 +110,14 @@ export function expectCliError(r: RunResult, pattern: RegExp): void {
   expect(r.stdout).toBe('');
 }
 
+/** True for the name of a temporary output file (`.NAME.rankfield-tmp-HOST-PID-RANDOM`; earlier versions: `.NAME.PID.RANDOM.tmp`). */
+export function isTempName(name: string): boolean {
+  return name.includes('.rankfield-tmp-') || name.endsWith('.tmp');
+}
+
 /** Names in `dir` that look like leftover temporary output files. */
 export function leftovers(dir: string): string[] {
-  return readdirSync(dir).filter((n) => n.endsWith('.tmp'));
+  return readdirSync(dir).filter(isTempName);
 }
 
 /** Largest |a - b| over cells where the original `a` is a finite valid value (not equal to `fill`). */

@@ -8,7 +8,7 @@ import { afterAll, beforeAll, beforeEach, describe, expect, it } from 'vitest';
 import { FormatCode, FormatError, InputCode, InputError, open, pack } from '../../src/index.js';
 import { volcano } from '../archive/datasets.js';
 import { HttpSource } from '../../src/format/http-source.js';
-import { startRangeServer, type RangeServer } from './range-server.js';
+import { drip, startRangeServer, type RangeServer } from './range-server.js';
 
 const bytes = Uint8Array.from({ length: 100_000 }, (_, i) => (i * 7919 + (i >> 8)) % 251);
 let server: RangeServer;
@@ -289,6 +289,40 @@ describe('HttpSource time limits', () => {
     const stalled = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 150, retries: 0 });
     const e = await failure(stalled.read(0, 8000));
     expect(e.message).toMatch(/no answer for 150 ms \(gave up after 1 attempt\)/);
+  });
+});
+
+describe('HttpSource deadlines (a server that drips bytes)', () => {
+  // One body byte every 20 ms: a 1000-byte read would take 20 s, with no pause reaching the idle limit.
+  const dripping = drip(20);
+
+  it('ends one request at its deadline however steadily the bytes come, and retries it', async () => {
+    server.misbehave = dripping;
+    const src = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 200, requestDeadline: 300, retries: 1 });
+    const e = await failure(src.read(0, 1000));
+    expect(e).toBeInstanceOf(InputError);
+    expect((e as InputError).code).toBe(InputCode.File);
+    expect(e.message).toMatch(/cannot read bytes 0\.\.1000 of '.*data\.bin': the answer did not complete within 300 ms \(gave up after 2 attempts\)/);
+    // The probe, then the read and its retry.
+    expect(server.requests).toBe(3);
+  });
+
+  it('ends all reads at the overall deadline, retries and waits included, and refuses reads after it', async () => {
+    server.misbehave = dripping;
+    const src = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 200, requestDeadline: 10_000, deadline: 400, retries: 5 });
+    const e = await failure(src.read(0, 1000));
+    expect(e).toBeInstanceOf(InputError);
+    expect(e.message).toMatch(/cannot read bytes 0\.\.1000 of '.*data\.bin': the deadline of 400 ms for all reads passed/);
+    const requests = server.requests;
+    server.misbehave = null;
+    const again = await failure(src.read(0, 10));
+    expect(again.message).toMatch(/the deadline of 400 ms for all reads passed/);
+    expect(server.requests).toBe(requests); // no request was sent
+  });
+
+  it('refuses deadlines that are not finite numbers >= 0', () => {
+    expect(() => new HttpSource(`${server.url}/data.bin`, { requestDeadline: -1 })).toThrow(/requestDeadline must be a finite number >= 0, got -1/);
+    expect(() => new HttpSource(`${server.url}/data.bin`, { deadline: Infinity })).toThrow(/deadline must be a finite number >= 0, got Infinity/);
   });
 });
 

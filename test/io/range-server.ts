@@ -89,6 +89,29 @@ function parseRanges(header: string | undefined, size: number): [number, number]
   return out;
 }
 
+/**
+ * A faulty behaviour: answer ranged reads (not the probe of byte 0) with
+ * the right headers, then one body byte every `every` ms, as a server that
+ * drips bytes does: never a pause long enough for an idle limit, yet a read
+ * of n bytes takes n x `every` ms.
+ */
+export function drip(every: number): Misbehave {
+  return (asked, _req, res, body) => {
+    if (asked.range === null || asked.range[1] === 0) return false;
+    const [a, b] = asked.range;
+    res.writeHead(206, { 'Content-Length': String(b - a + 1), 'Content-Range': `bytes ${a}-${b}/${body.length}` });
+    let at = a;
+    const timer = setInterval(() => {
+      if (res.destroyed || at > b) return clearInterval(timer);
+      res.write(body.subarray(at, at + 1));
+      at++;
+      if (at > b) res.end();
+    }, every);
+    res.on('close', () => clearInterval(timer));
+    return true;
+  };
+}
+
 /** Start a server on 127.0.0.1 with an OS-chosen port. */
 export async function startRangeServer(): Promise<RangeServer> {
   const files = new Map<string, Uint8Array | { file: string }>();
