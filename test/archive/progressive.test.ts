@@ -124,9 +124,10 @@ describe('progressive reads of annual-precip', () => {
 describe('progressive layout (factors in groups of ranks 1, 1, 2, 4, ...)', () => {
   const g = precip();
   const values = Float32Array.from(g.values);
-  // psnr:40 on annual-precip keeps several ranks per 64x64 tile; no residual, so the prefixes are rank prefixes.
-  const plain = pack(values, g.shape, { bound: 'psnr:40', name: 'precip', tile: 64 });
-  const progressive = pack(values, g.shape, { bound: 'psnr:40', name: 'precip', tile: 64, progressive: true });
+  // psnr:35 on annual-precip keeps several ranks per 64x64 tile; no residual, so the prefixes are rank prefixes.
+  // (At psnr:40 a rank-0 residual with rate-distortion optimised codes is now smaller.)
+  const plain = pack(values, g.shape, { bound: 'psnr:35', name: 'precip', tile: 64 });
+  const progressive = pack(values, g.shape, { bound: 'psnr:35', name: 'precip', tile: 64, progressive: true });
 
   it('decodes to the same values as the one-group layout would allow, within the same bound', async () => {
     const a = await open(progressive);
@@ -144,13 +145,13 @@ describe('progressive layout (factors in groups of ranks 1, 1, 2, 4, ...)', () =
     const ix = (await a.loadIndex()).fields[0];
     expect(ix.prefix!.some((p) => p.length >= 8)).toBe(true); // at least two prefixes in some tile
     const before = src.fetched;
-    const got = await a.read('precip', { bound: 'rmse:400' });
+    const got = await a.read('precip', { bound: 'rmse:1000' });
     const used = src.fetched - before;
     expect(got.prefixTiles).toBeGreaterThan(0);
     expect(used).toBeLessThan(ix.length.reduce((s, x) => s + x, 0));
     const e = errors(values, got.values);
     expect(e.max).toBeLessThanOrEqual(got.achieved.maxErr);
     expect(e.rmse).toBeLessThanOrEqual(got.achieved.rmse * (1 + 1e-9));
-    expect(got.achieved.rmse).toBeLessThanOrEqual(400);
+    expect(got.achieved.rmse).toBeLessThanOrEqual(1000);
   });
 });
