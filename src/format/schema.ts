@@ -79,7 +79,8 @@ export function ndProblem(rows: number, cols: number, slices: unknown, ndShape: 
     if (!Array.isArray(dims) || dims.length !== nd.length) return `dims must list ${nd.length} names, one per nd_shape entry, got ${describeValue(dims)}`;
     if (!dims.every((d) => typeof d === 'string' && d.length >= 1 && d.length <= 1024)) return 'dims must be names of 1 to 1024 characters';
   }
-  const lay = layout ?? (nd.length === 2 ? undefined : 'slices');
+  // A layout that is present must be a string: nil is not absent (spec 6.2.1).
+  const lay = layout !== undefined ? layout : nd.length === 2 ? undefined : 'slices';
   if (lay === undefined) return s === 1 && nd[0] === rows && nd[1] === cols ? null : `nd_shape [${nd.join(', ')}] without a layout must equal [rows, cols]`;
   if (typeof lay !== 'string') return `layout must be a string, got ${describeValue(lay)}`;
   const g = layoutGrid(nd, lay);

@@ -374,6 +374,8 @@ describe('header and index with valid CRCs but bad contents', () => {
       [{ header: (h) => delete h.fields[0].bound.range }, /^archive field 'sample': bound is an array of 3, not an array of 4 elements \[mode, value, tolerance, range\]$/],
       [{ header: (h) => (h.fields[0].nd = [2]) }, /^archive field 'sample': nd is an array of 1, not nil or a map of slices, nd_shape, dims, layout$/],
       [{ header: (h) => (h.fields[0].nd_shape = [7, 6]) }, /^archive field 'sample': nd_shape \[7, 6\] without a layout must equal \[rows, cols\]$/],
+      // A key of the nd map that is present must have its type: a nil layout is not an absent one (spec 6.2.1).
+      [{ header: (h) => Object.assign(h.fields[0], { nd_shape: [6, 7], layout: null }) }, /^archive field 'sample': layout must be a string, got nil$/],
     ];
     for (const [edit, message] of cases) expectFormatError(await readAll(rebuild(smallLowRank(), edit)), FormatCode.Malformed, message);
   });
