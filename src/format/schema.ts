@@ -273,6 +273,22 @@ function tooLong(x: unknown): boolean {
   return typeof x === 'string' && x.length * 3 > MAX_ATTR_STRING && new TextEncoder().encode(x).length > MAX_ATTR_STRING;
 }
 
+/** A lone UTF-16 surrogate: a character that no well-formed UTF-8 can carry. */
+const LONE_SURROGATE = /[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/;
+
+/**
+ * Whether a value a writer is about to put in the header (a string, or an
+ * array or map of them, keys included) holds a lone surrogate: the header
+ * must be well-formed UTF-8 (spec/FORMAT.md, section 6), so such text would
+ * not read back as it was given.
+ */
+export function holdsLoneSurrogate(v: unknown): boolean {
+  if (typeof v === 'string') return LONE_SURROGATE.test(v);
+  if (Array.isArray(v)) return v.some(holdsLoneSurrogate);
+  if (isObj(v)) return Object.entries(v).some(([k, x]) => LONE_SURROGATE.test(k) || holdsLoneSurrogate(x));
+  return false;
+}
+
 /** What is wrong with an attribute map, or null when it is usable. */
 export function attrsProblem(v: unknown): string | null {
   if (!isObj(v)) return 'attrs must be a map';

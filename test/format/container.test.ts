@@ -12,9 +12,10 @@
 import { decode, encode } from '@msgpack/msgpack';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
-import { FormatCode, FormatError } from '../../src/errors.js';
+import { FormatCode, FormatError, InputError } from '../../src/errors.js';
 import { crc32 } from '../../src/format/crc32.js';
-import { pack } from '../../src/pack.js';
+import { ArchiveBuilder, pack, type PackOptions } from '../../src/pack.js';
+import { MemorySink } from '../../src/format/container.js';
 import { VERSION_STRING } from '../../src/version.js';
 import { assemble, diskHeader, diskPage, joinIndex, layout, split, splitIndex, type Block } from './paged.js';
 
@@ -154,6 +155,25 @@ describe('well-formed archives', () => {
     const attrs = (await open(c)).header.fields[0].attrs;
     expect(Object.is(attrs.zero, -0)).toBe(true);
     expect(attrs.big).toBe(2 ** 60);
+  });
+
+  it('the writer refuses names and attributes that well-formed UTF-8 cannot carry (spec 6), rather than change them', () => {
+    // A lone surrogate (U+D800 without its pair) has no UTF-8 form (RFC 3629, section 3).
+    const v = Float64Array.of(1, 2, 3, 4);
+    const cases: Omit<PackOptions, 'bound'>[] = [{ name: 'x\ud800' }, { attrs: { units: '\udc00K' } }, { attrs: { ['\ud800']: 1 } }, { ndShape: [2, 2], dims: ['y', '\ud801'] }];
+    for (const o of cases) {
+      let e: unknown = null;
+      try {
+        pack(v, [2, 2], { bound: 'abs:0.1', ...o });
+      } catch (x) {
+        e = x;
+      }
+      expect(e, JSON.stringify(o)).toBeInstanceOf(InputError);
+      expect((e as InputError).message).toMatch(/hold a lone UTF-16 surrogate, which UTF-8 cannot store$/);
+    }
+    expect(() => new ArchiveBuilder(new MemorySink(), { title: 'a\udfff' })).toThrow(/^archive attributes hold a lone UTF-16 surrogate/);
+    // A surrogate pair is text like any other, and reads back as it was given.
+    expect(() => pack(v, [2, 2], { bound: 'abs:0.1', name: 'x\ud83d\ude00' })).not.toThrow();
   });
 
   it('rebuild() with no edit gives an archive that reads the same, with the same header', async () => {
