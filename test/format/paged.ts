@@ -7,8 +7,9 @@
  * 8 magic bytes, little-endian). The index is edited as one "logical" index
  * (per field, columns over all tiles in tile order, as version 1 stored it)
  * and split into pages again on the way back, so that an edit of tile t
- * lands in the page that holds t. Parsing trusts its input: always an
- * archive this library wrote.
+ * lands in the page that holds t. The header, stored as arrays, is edited
+ * as keyed maps too (keyedHeader, diskHeader). Parsing trusts its input:
+ * always an archive this library wrote.
  */
 import { decode, encode } from '@msgpack/msgpack';
 import { crc32 } from '../../src/format/crc32.js';
