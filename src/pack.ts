@@ -4,7 +4,7 @@ import { chooseTile } from './codec/auto-tile.js';
 import { encodeField, memoryBands, type BandSource, type EncodedTile, type FieldSpec } from './codec/field.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, DEFAULT_PAGE, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
-import { attrsProblem, ndProblem, pageGrid, pageTiles, sliceGrid, tileCount, up32, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
+import { attrsProblem, holdsLoneSurrogate, ndProblem, quoteName, pageGrid, pageTiles, sliceGrid, tileCount, up32, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 import { VERSION_STRING } from './version.js';
 
@@ -115,6 +115,7 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   if (typeof name !== 'string' || name.length === 0 || name.length > 1024) throw new InputError(InputCode.Option, 'field name must be a non-empty string');
   const problem = o.attrs === undefined ? null : attrsProblem(o.attrs);
   if (problem) throw new InputError(InputCode.Option, `field '${name}': ${problem}`);
+  if (holdsLoneSurrogate([name, dims, o.attrs])) throw new InputError(InputCode.Option, `field ${quoteName(name)}: its name, dimension names or attributes hold a lone UTF-16 surrogate, which UTF-8 cannot store`);
   return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices, progressive: o.progressive === true }, data, page: [page[0], page[1]] };
 }
 
@@ -129,6 +130,7 @@ export class ArchiveBuilder {
   constructor(sink: Sink, private readonly attrs: Attrs = {}, options: BuilderOptions = {}) {
     const problem = attrsProblem(attrs);
     if (problem) throw new InputError(InputCode.Option, `archive ${problem}`);
+    if (holdsLoneSurrogate(attrs)) throw new InputError(InputCode.Option, 'archive attributes hold a lone UTF-16 surrogate, which UTF-8 cannot store');
     this.writer = new ContainerWriter(sink, options.slices === true ? FLAG_SLICES : 0);
   }
 

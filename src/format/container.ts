@@ -8,7 +8,7 @@ import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
 import { readRanges, type ByteSource, type CoalesceOptions } from './source.js';
-import { checkDirectory, checkHeader, checkPage, checkSummary, directoryForDisk, pageForDisk, MAX_DEPTH, MAX_MAP_ENTRIES, pageCount, pageOf, pageTiles, quoteName, resolveLimits, tileCount, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex } from './schema.js';
+import { checkDirectory, checkHeader, checkPage, checkSummary, directoryForDisk, headerForDisk, pageForDisk, MAX_DEPTH, MAX_MAP_ENTRIES, pageCount, pageOf, pageTiles, quoteName, resolveLimits, tileCount, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex } from './schema.js';
 
 /** Magic bytes that open every archive. */
 export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0a);
@@ -137,7 +137,7 @@ export class ContainerWriter {
     // Internal assertion: ArchiveBuilder.finish() refuses a second call first, so no input reaches this.
     if (this.finished) throw new Error('archive already finished');
     this.finished = true;
-    const h = encode(headerForDisk(header));
+    const h = encodeCompact(headerForDisk(header));
     const headerOffset = this.pos;
     this.put(h);
     const fields = index.fields.map((ix, i) => {
@@ -154,7 +154,7 @@ export class ContainerWriter {
           at += ix.length[t];
         }
         d.data_length.push(at - ix.offset[tiles[0]]);
-        const b = encodeNumbers(pageForDisk(fh, ix, tiles));
+        const b = encodeCompact(pageForDisk(fh, ix, tiles));
         d.page_offset.push(this.pos);
         d.page_length.push(b.length);
         d.page_crc.push(crc32(b));
@@ -180,13 +180,18 @@ export class ContainerWriter {
   }
 }
 
+const utf8 = new TextEncoder();
+
 /**
- * MessagePack of arrays of numbers (an index page), with every number in
- * its shortest exact form: integers as the smallest integer type, other
- * numbers as binary32 when that holds them exactly, else binary64. (The
- * general encoder writes every non-integer as binary64.)
+ * MessagePack of the header and of an index page, with every number in its
+ * shortest exact form: integers (other than -0) below 2^53 in magnitude as
+ * the smallest integer type, other numbers as binary32 when that holds them
+ * exactly (-0, infinities and NaN included), else binary64. (The general
+ * encoder writes every non-integer as binary64.) Strings are UTF-8 (a lone
+ * surrogate becomes U+FFFD, so the bytes are always well-formed); maps are
+ * plain objects, binary data Uint8Arrays; null and undefined are nil.
  */
-export function encodeNumbers(value: unknown): Uint8Array {
+export function encodeCompact(value: unknown): Uint8Array {
   const w = new ByteWriter(1024);
   const be = (bytes: number, v: number, float: boolean) => {
     const b = new DataView(new ArrayBuffer(bytes));
@@ -197,13 +202,27 @@ export function encodeNumbers(value: unknown): Uint8Array {
     else b.setBigUint64(0, BigInt.asUintN(64, BigInt(v)));
     w.bytes(new Uint8Array(b.buffer));
   };
+  /** A length in the head byte below `small`, else after one of the three head bytes `codes` (8-, 16-, 32-bit length; 8-bit only where `codes[0]` is not 0). */
+  const head = (n: number, fix: number, small: number, codes: readonly [number, number, number]) => {
+    if (n < small) w.u8(fix | n);
+    else if (n < 0x100 && codes[0] !== 0) (w.u8(codes[0]), be(1, n, false));
+    else if (n < 0x10000) (w.u8(codes[1]), be(2, n, false));
+    else (w.u8(codes[2]), be(4, n, false));
+  };
   const put = (v: unknown): void => {
-    if (Array.isArray(v)) {
-      if (v.length < 16) w.u8(0x90 | v.length);
-      else if (v.length < 0x10000) (w.u8(0xdc), be(2, v.length, false));
-      else (w.u8(0xdd), be(4, v.length, false));
+    if (v === null || v === undefined) w.u8(0xc0);
+    else if (typeof v === 'boolean') w.u8(v ? 0xc3 : 0xc2);
+    else if (typeof v === 'string') {
+      const b = utf8.encode(v);
+      head(b.length, 0xa0, 32, [0xd9, 0xda, 0xdb]);
+      w.bytes(b);
+    } else if (v instanceof Uint8Array) {
+      head(v.length, 0, 0, [0xc4, 0xc5, 0xc6]);
+      w.bytes(v);
+    } else if (Array.isArray(v)) {
+      head(v.length, 0x90, 16, [0, 0xdc, 0xdd]);
       for (const x of v) put(x);
-    } else if (typeof v === 'number' && Number.isSafeInteger(v)) {
+    } else if (typeof v === 'number' && Number.isSafeInteger(v) && !Object.is(v, -0)) {
       if (v >= 0) {
         if (v < 0x80) w.u8(v);
         else if (v < 0x100) (w.u8(0xcc), be(1, v, false));
@@ -218,9 +237,13 @@ export function encodeNumbers(value: unknown): Uint8Array {
     } else if (typeof v === 'number') {
       if (Math.fround(v) === v || Number.isNaN(v)) (w.u8(0xca), be(4, v, true));
       else (w.u8(0xcb), be(8, v, true));
+    } else if (typeof v === 'object') {
+      const entries = Object.entries(v);
+      head(entries.length, 0x80, 16, [0, 0xde, 0xdf]);
+      for (const [k, x] of entries) put(k), put(x);
     } else {
-      // Internal assertion: index pages hold numbers and arrays only.
-      throw new Error(`an index page cannot hold ${typeof v}`);
+      // Internal assertion: the header and index pages hold no other kind of value.
+      throw new Error(`a header or index page cannot hold ${typeof v}`);
     }
   };
   put(value);
@@ -229,29 +252,6 @@ export function encodeNumbers(value: unknown): Uint8Array {
 
 /** The in-memory columns of an index page, as {@link joinPages} gathers them. */
 const MEMORY_COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc'] as const;
-
-/**
- * The header as stored (spec/FORMAT.md, section 6): no format name or
- * version (the prologue and tail hold them); attribute maps only when not
- * empty; the fill value only when there is one, as 8 bytes of binary64 (so
- * -0 and every bit survive MessagePack).
- */
-function headerForDisk(header: ArchiveHeader): unknown {
-  const out: Record<string, unknown> = { writer: header.writer };
-  if (Object.keys(header.attrs).length > 0) out.attrs = header.attrs;
-  out.fields = header.fields.map((f) => {
-    const { fill, attrs, ...rest } = f;
-    const g: Record<string, unknown> = rest;
-    if (fill !== null) {
-      const b = new Uint8Array(8);
-      new DataView(b.buffer).setFloat64(0, fill, true);
-      g.fill = b;
-    }
-    if (Object.keys(attrs).length > 0) g.attrs = attrs;
-    return g;
-  });
-  return out;
-}
 
 /** What {@link readContainer} returns. */
 export interface Container {

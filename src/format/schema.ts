@@ -79,7 +79,8 @@ export function ndProblem(rows: number, cols: number, slices: unknown, ndShape: 
     if (!Array.isArray(dims) || dims.length !== nd.length) return `dims must list ${nd.length} names, one per nd_shape entry, got ${describeValue(dims)}`;
     if (!dims.every((d) => typeof d === 'string' && d.length >= 1 && d.length <= 1024)) return 'dims must be names of 1 to 1024 characters';
   }
-  const lay = layout ?? (nd.length === 2 ? undefined : 'slices');
+  // A layout that is present must be a string: nil is not absent (spec 6.2.1).
+  const lay = layout !== undefined ? layout : nd.length === 2 ? undefined : 'slices';
   if (lay === undefined) return s === 1 && nd[0] === rows && nd[1] === cols ? null : `nd_shape [${nd.join(', ')}] without a layout must equal [rows, cols]`;
   if (typeof lay !== 'string') return `layout must be a string, got ${describeValue(lay)}`;
   const g = layoutGrid(nd, lay);
@@ -272,6 +273,22 @@ function tooLong(x: unknown): boolean {
   return typeof x === 'string' && x.length * 3 > MAX_ATTR_STRING && new TextEncoder().encode(x).length > MAX_ATTR_STRING;
 }
 
+/** A lone UTF-16 surrogate: a character that no well-formed UTF-8 can carry. */
+const LONE_SURROGATE = /[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/;
+
+/**
+ * Whether a value a writer is about to put in the header (a string, or an
+ * array or map of them, keys included) holds a lone surrogate: the header
+ * must be well-formed UTF-8 (spec/FORMAT.md, section 6), so such text would
+ * not read back as it was given.
+ */
+export function holdsLoneSurrogate(v: unknown): boolean {
+  if (typeof v === 'string') return LONE_SURROGATE.test(v);
+  if (Array.isArray(v)) return v.some(holdsLoneSurrogate);
+  if (isObj(v)) return Object.entries(v).some(([k, x]) => LONE_SURROGATE.test(k) || holdsLoneSurrogate(x));
+  return false;
+}
+
 /** What is wrong with an attribute map, or null when it is usable. */
 export function attrsProblem(v: unknown): string | null {
   if (!isObj(v)) return 'attrs must be a map';
@@ -285,81 +302,130 @@ export function attrsProblem(v: unknown): string | null {
 }
 
 function checkAttrs(v: unknown, label: string): Attrs {
-  if (v === undefined) return {};
+  if (v === undefined || v === null) return {};
   const problem = attrsProblem(v);
   if (problem) fail(label, problem);
   return v as Attrs;
 }
 
 /** The fill value as stored: absent or nil, a number, or 8 bytes of binary64 (little-endian; the reference writer's form). */
-function checkFill(f: Obj, where: string): number | null {
-  const v = f.fill;
+function checkFill(v: unknown, where: string): number | null {
   if (v === undefined || v === null) return null;
   if (typeof v === 'number') return v;
   if (v instanceof Uint8Array && v.length === 8) return new DataView(v.buffer, v.byteOffset, 8).getFloat64(0, true);
   return fail(where, `fill must be nil, a number or 8 bytes (binary64, little-endian), got ${describeValue(v)}`);
 }
 
-/** Validate a decoded header. */
+/**
+ * The header as stored (spec/FORMAT.md, section 6) is positional, like the
+ * index: an array `[writer, attrs, fields]`, each field an array of the
+ * elements of {@link FIELD_ELEMENTS} (the last three optional), its bound an
+ * array of {@link BOUND_ELEMENTS}. Elements after the known ones are ignored.
+ */
+export const HEADER_ELEMENTS = ['writer', 'attrs', 'fields'] as const;
+export const FIELD_ELEMENTS = ['name', 'dtype', 'shape', 'tile', 'bound', 'fill', 'attrs', 'nd'] as const;
+/** Elements a field entry must have: the first five (fill, attrs and nd may be left out at the end). */
+export const FIELD_REQUIRED = 5;
+export const BOUND_ELEMENTS = ['mode', 'value', 'tolerance', 'range'] as const;
+/** The keys an `nd` map may hold (spec/FORMAT.md, section 6.2.1); others are ignored. */
+export const ND_KEYS = ['slices', 'nd_shape', 'dims', 'layout'] as const;
+
+/** A description of a positional structure for messages: `[a, b, c]`. */
+const listOf = (names: readonly string[]) => `[${names.join(', ')}]`;
+
+/** Validate a decoded header (its on-disk array form, spec/FORMAT.md section 6). */
 export function checkHeader(raw: unknown, limits: Limits, label: string, version = 3): ArchiveHeader {
-  if (!isObj(raw)) fail(label, `header is ${describeValue(raw)}, not a map`);
+  if (!Array.isArray(raw) || raw.length < HEADER_ELEMENTS.length) fail(label, `header is ${describeValue(raw)}, not an array of ${HEADER_ELEMENTS.length} elements ${listOf(HEADER_ELEMENTS)}`);
   // The version and the archive's identity are the prologue's and the tail's (spec 6.1): the header holds neither.
-  if (!Array.isArray(raw.fields)) fail(label, `header fields is ${describeValue(raw.fields)}, not an array`);
-  if (raw.fields.length > limits.maxFields) throw new FormatError(FormatCode.Limit, `${label}: ${raw.fields.length} fields exceed the limit of ${limits.maxFields}`);
+  const [rawWriter, rawAttrs, rawFields] = raw;
+  if (!Array.isArray(rawFields)) fail(label, `header fields is ${describeValue(rawFields)}, not an array`);
+  if (rawFields.length > limits.maxFields) throw new FormatError(FormatCode.Limit, `${label}: ${rawFields.length} fields exceed the limit of ${limits.maxFields}`);
   const names = new Set<string>();
-  const fields = raw.fields.map((f: unknown, i: number): FieldHeader => {
+  const fields = rawFields.map((f: unknown, i: number): FieldHeader => {
     const at = `${label} header field ${i}`;
-    if (!isObj(f)) fail(at, `is ${describeValue(f)}, not a map`);
-    if (typeof f.name !== 'string' || f.name.length === 0 || f.name.length > 1024) fail(at, `name must be a string of 1 to 1024 characters, got ${describeValue(f.name)}`);
-    if (names.has(f.name)) fail(at, `duplicate field name ${describeValue(f.name)}`);
-    names.add(f.name);
-    const where = `${label} field ${quoteName(f.name)}`;
-    if (f.dtype !== 'f32' && f.dtype !== 'f64') fail(where, `dtype ${describeValue(f.dtype)} is not "f32" or "f64"`);
-    if (!Array.isArray(f.shape) || f.shape.length !== 2) fail(where, `shape must be [rows, cols], got ${describeValue(f.shape)}`);
-    if (!Array.isArray(f.tile) || f.tile.length !== 2) fail(where, `tile must be [rows, cols], got ${describeValue(f.tile)}`);
-    const rows = posInt(f.shape[0], where, 'rows');
-    const cols = posInt(f.shape[1], where, 'cols');
-    const tr = posInt(f.tile[0], where, 'tile rows');
-    const tc = posInt(f.tile[1], where, 'tile cols');
-    const nd = ndProblem(rows, cols, f.slices, f.nd_shape, f.dims, f.layout);
-    if (nd) fail(where, nd);
-    const slices = (f.slices as number | undefined) ?? 1;
+    if (!Array.isArray(f) || f.length < FIELD_REQUIRED) fail(at, `is ${describeValue(f)}, not an array of ${FIELD_REQUIRED} to ${FIELD_ELEMENTS.length} elements ${listOf(FIELD_ELEMENTS)}`);
+    const [name, dtype, shape, tile, b, fillValue, attrs, ndValue] = f;
+    if (typeof name !== 'string' || name.length === 0 || name.length > 1024) fail(at, `name must be a string of 1 to 1024 characters, got ${describeValue(name)}`);
+    if (names.has(name)) fail(at, `duplicate field name ${describeValue(name)}`);
+    names.add(name);
+    const where = `${label} field ${quoteName(name)}`;
+    if (dtype !== 'f32' && dtype !== 'f64') fail(where, `dtype ${describeValue(dtype)} is not "f32" or "f64"`);
+    if (!Array.isArray(shape) || shape.length !== 2) fail(where, `shape must be [rows, cols], got ${describeValue(shape)}`);
+    if (!Array.isArray(tile) || tile.length !== 2) fail(where, `tile must be [rows, cols], got ${describeValue(tile)}`);
+    const rows = posInt(shape[0], where, 'rows');
+    const cols = posInt(shape[1], where, 'cols');
+    const tr = posInt(tile[0], where, 'tile rows');
+    const tc = posInt(tile[1], where, 'tile cols');
+    if (ndValue !== undefined && ndValue !== null && !isObj(ndValue)) fail(where, `nd is ${describeValue(ndValue)}, not nil or a map of ${ND_KEYS.join(', ')}`);
+    const nd: Obj = isObj(ndValue) ? ndValue : {};
+    const ndError = ndProblem(rows, cols, nd.slices, nd.nd_shape, nd.dims, nd.layout);
+    if (ndError) fail(where, ndError);
+    const slices = (nd.slices as number | undefined) ?? 1;
     if (slices * rows * cols > limits.maxCells) throw new FormatError(FormatCode.Limit, `${where}: ${slices}x${rows}x${cols} exceeds the limit of ${limits.maxCells} cells`);
     // A tile is cut at the field's edge, so only its part inside the field counts.
     const tileCells = Math.min(tr, rows) * Math.min(tc, cols);
     if (tileCells > limits.maxTileCells) throw new FormatError(FormatCode.Limit, `${where}: tile ${tr}x${tc} exceeds the limit of ${limits.maxTileCells} cells`);
     const tiles = slices * Math.ceil(rows / tr) * Math.ceil(cols / tc);
     if (tiles > limits.maxTiles) throw new FormatError(FormatCode.Limit, `${where}: ${tiles} tiles exceed the limit of ${limits.maxTiles}`);
-    const b = f.bound;
-    if (!isObj(b)) fail(where, `bound is ${describeValue(b)}, not a map`);
-    if (!['abs', 'rel', 'rmse', 'psnr'].includes(b.mode as string)) fail(where, `bound mode ${describeValue(b.mode)} is unknown`);
-    if (typeof b.value !== 'number' || !(b.value > 0) || !Number.isFinite(b.value)) fail(where, `bound value must be a positive finite number, got ${describeValue(b.value)}`);
+    if (!Array.isArray(b) || b.length < BOUND_ELEMENTS.length) fail(where, `bound is ${describeValue(b)}, not an array of ${BOUND_ELEMENTS.length} elements ${listOf(BOUND_ELEMENTS)}`);
+    const [mode, value, tolerance, range] = b;
+    if (!['abs', 'rel', 'rmse', 'psnr'].includes(mode as string)) fail(where, `bound mode ${describeValue(mode)} is unknown`);
+    if (typeof value !== 'number' || !(value > 0) || !Number.isFinite(value)) fail(where, `bound value must be a positive finite number, got ${describeValue(value)}`);
     // The stored tolerance is authoritative (spec 6.3): it is checked for type, not recomputed.
-    if (typeof b.tolerance !== 'number' || !(b.tolerance >= 0) || !Number.isFinite(b.tolerance)) {
-      fail(where, `bound tolerance must be a finite number >= 0, got ${describeValue(b.tolerance)}`);
+    if (typeof tolerance !== 'number' || !(tolerance >= 0) || !Number.isFinite(tolerance)) {
+      fail(where, `bound tolerance must be a finite number >= 0, got ${describeValue(tolerance)}`);
     }
-    const range = b.range;
     if (range !== null && !(Array.isArray(range) && range.length === 2 && range.every((x) => typeof x === 'number' && Number.isFinite(x)) && range[0] <= range[1])) {
       fail(where, `bound range must be finite [min, max] with min <= max, or nil, got ${Array.isArray(range) ? `[${range.map(describeValue).join(', ')}]` : describeValue(range)}`);
     }
-    const fill = checkFill(f, where);
+    const fill = checkFill(fillValue, where);
     const out: FieldHeader = {
-      name: f.name,
-      dtype: f.dtype,
+      name,
+      dtype,
       shape: [rows, cols],
       tile: [tr, tc],
-      bound: { mode: b.mode as BoundMode, value: b.value, tolerance: b.tolerance, range: range as number[] | null },
+      bound: { mode: mode as BoundMode, value, tolerance, range: range as number[] | null },
       fill,
-      attrs: checkAttrs(f.attrs, where),
+      attrs: checkAttrs(attrs, where),
     };
-    if (f.slices !== undefined) out.slices = slices;
-    if (f.nd_shape !== undefined) out.nd_shape = (f.nd_shape as number[]).slice();
-    if (f.dims !== undefined) out.dims = (f.dims as string[]).slice();
-    if (f.layout !== undefined) out.layout = f.layout as string;
+    if (nd.slices !== undefined) out.slices = slices;
+    if (nd.nd_shape !== undefined) out.nd_shape = (nd.nd_shape as number[]).slice();
+    if (nd.dims !== undefined) out.dims = (nd.dims as string[]).slice();
+    if (nd.layout !== undefined) out.layout = nd.layout as string;
     return out;
   });
-  const writer = typeof raw.writer === 'string' ? raw.writer : 'unknown';
-  return { format: 'rankfield', version, writer, attrs: checkAttrs(raw.attrs, `${label} header`), fields };
+  const writer = typeof rawWriter === 'string' ? rawWriter : 'unknown';
+  return { format: 'rankfield', version, writer, attrs: checkAttrs(rawAttrs, `${label} header`), fields };
+}
+
+/**
+ * The on-disk form of the header (spec/FORMAT.md, section 6): `[writer,
+ * attrs, fields]`, attribute maps nil when empty; each field `[name, dtype,
+ * shape, tile, [mode, value, tolerance, range], fill, attrs, nd]` with the
+ * fill value as 8 bytes of binary64 (so -0 and every bit survive
+ * MessagePack), `nd` a map of the N-D keys the field has, and the trailing
+ * nils (no fill, no attributes, no N-D keys) left out.
+ */
+export function headerForDisk(header: Pick<ArchiveHeader, 'writer' | 'attrs' | 'fields'>): unknown[] {
+  const fields = header.fields.map((f) => {
+    const b = f.bound;
+    let fill: Uint8Array | null = null;
+    if (f.fill !== null) {
+      fill = new Uint8Array(8);
+      new DataView(fill.buffer).setFloat64(0, f.fill, true);
+    }
+    const nd: Record<string, unknown> = {};
+    for (const k of ND_KEYS) if (f[k] !== undefined) nd[k] = f[k];
+    const out: unknown[] = [f.name, f.dtype, [f.shape[0], f.shape[1]], [f.tile[0], f.tile[1]], [b.mode, b.value, b.tolerance, b.range], fill, nonEmpty(f.attrs), nonEmpty(nd)];
+    while (out.length > FIELD_REQUIRED && out[out.length - 1] === null) out.pop();
+    return out;
+  });
+  return [header.writer, nonEmpty(header.attrs), fields];
+}
+
+/** A map, or nil when it is empty. */
+function nonEmpty<T extends object>(m: T): T | null {
+  return Object.keys(m).length > 0 ? m : null;
 }
 
 /** Tiles of one slice of a field: [tile rows, tile columns]. */

@@ -172,8 +172,9 @@ describe('-0.0 and 0.0 as fill values', () => {
       const got = (await archive.read()).values;
       for (const c of pos) expect(Object.is(got[c], 0), `cell ${c}: ${got[c]}`).toBe(true);
       for (const c of neg) expect(Math.abs(got[c])).toBeLessThanOrEqual(1e-3);
-      // -0 is valid, so the range reaches down to 0.
-      expect(archive.header.fields[0].bound.range?.[0]).toBe(0);
+      // -0 is valid and the smallest valid value, so the range starts at it, sign included
+      // (spec/FORMAT.md 6: a number whose sign matters is written as a float, never as the integer 0).
+      expect(Object.is(archive.header.fields[0].bound.range?.[0], -0)).toBe(true);
       expect((await archive.check(values)).ok).toBe(true);
     });
 

@@ -7,8 +7,9 @@
  * 8 magic bytes, little-endian). The index is edited as one "logical" index
  * (per field, columns over all tiles in tile order, as version 1 stored it)
  * and split into pages again on the way back, so that an edit of tile t
- * lands in the page that holds t. Parsing trusts its input: always an
- * archive this library wrote.
+ * lands in the page that holds t. The header, stored as arrays, is edited
+ * as keyed maps too (keyedHeader, diskHeader). Parsing trusts its input:
+ * always an archive this library wrote.
  */
 import { decode, encode } from '@msgpack/msgpack';
 import { crc32 } from '../../src/format/crc32.js';
@@ -148,9 +149,78 @@ export function diskDirField(f: Block): Block {
   return out;
 }
 
+/** The stored elements of the header, of a field entry and of a bound, in their order (spec/FORMAT.md, section 6). */
+export const DISK_HEADER = ['writer', 'attrs', 'fields'] as const;
+export const DISK_FIELD = ['name', 'dtype', 'shape', 'tile', 'bound', 'fill', 'attrs', 'nd'] as const;
+export const DISK_BOUND = ['mode', 'value', 'tolerance', 'range'] as const;
+/** The keys of a field entry's `nd` map, which the logical field holds as keys of its own (as version 2 stored them). */
+export const ND_KEYS = ['slices', 'nd_shape', 'dims', 'layout'] as const;
+
+const isMap = (v: unknown): v is Record<string, Block> => typeof v === 'object' && v !== null && Object.getPrototypeOf(v) === Object.prototype;
+
+/**
+ * The stored header (an array `[writer, attrs, fields]`, each field an array
+ * `[name, dtype, shape, tile, bound, fill?, attrs?, nd?]`, each bound
+ * `[mode, value, tolerance, range]`) as the keyed "logical" header the tests
+ * edit: maps with those keys, the keys of a field's `nd` map among its own,
+ * and a nil (or left out) fill, attrs or nd as no key at all.
+ */
+export function keyedHeader(raw: Block): Block {
+  const out: Block = { writer: raw[0] };
+  if (raw[1] !== null) out.attrs = raw[1];
+  out.fields = raw[2].map((f: Block) => {
+    const g: Block = {};
+    DISK_FIELD.forEach((k, i) => {
+      if (i < f.length && f[i] !== null) g[k] = f[i];
+    });
+    g.bound = Object.fromEntries(DISK_BOUND.map((k, i) => [k, f[4][i]]));
+    if (g.nd) Object.assign(g, g.nd);
+    delete g.nd;
+    return g;
+  });
+  return out;
+}
+
+/**
+ * The values of `keys` of map `m` in their order, then the values of its
+ * other keys (a test's unknown keys: elements a reader ignores). A key left
+ * out in the middle is nil; at the end it is left out too, unless other keys
+ * follow.
+ */
+function positional(m: Record<string, Block>, keys: readonly string[], value: (k: string) => Block = (k) => m[k], skip: readonly string[] = []): Block[] {
+  const out: Block[] = keys.map(value);
+  const extra = Object.keys(m).filter((k) => !keys.includes(k) && !skip.includes(k));
+  if (extra.length === 0) while (out.length > 0 && out[out.length - 1] === undefined) out.pop();
+  return [...out.map((v) => v ?? null), ...extra.map((k) => m[k])];
+}
+
+/**
+ * A logical header back to its stored form (the inverse of
+ * {@link keyedHeader}): fill, attrs and nd left out at the end of a field
+ * when it has none, as the writer does. Keys a test added follow the known
+ * elements; values a test made hostile (a field or bound that is no map)
+ * pass through.
+ */
+export function diskHeader(h: Block): Block {
+  if (!isMap(h)) return h;
+  return positional(h, DISK_HEADER, (k) => (k === 'fields' && Array.isArray(h.fields) ? h.fields.map(diskField) : h[k]));
+}
+
+function diskField(f: Block): Block {
+  if (!isMap(f)) return f;
+  const nd: Block = {};
+  for (const k of ND_KEYS) if (k in f) nd[k] = f[k];
+  const value = (k: string): Block => {
+    if (k === 'bound') return isMap(f.bound) ? positional(f.bound, DISK_BOUND) : f.bound;
+    if (k === 'nd') return 'nd' in f ? f.nd : Object.keys(nd).length > 0 ? nd : undefined;
+    return k === 'fill' || k === 'attrs' ? (f[k] ?? undefined) : f[k];
+  };
+  return positional(f, DISK_FIELD, value, ND_KEYS);
+}
+
 export function split(b: Uint8Array): Parts {
   const l = layout(b);
-  const header = decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)) as Block;
+  const header = keyedHeader(decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)));
   const raw = decode(b.subarray(l.dirOffset, l.dirOffset + l.dirLength)) as Block[];
   let pageAt = l.headerOffset + l.headerLength;
   let dataAt = PROLOGUE;

@@ -8,7 +8,8 @@
  * groups (a progressive field, with its prefix column), coded class maps
  * with every cell class (fill, +-Inf, canonical and raw NaN, the raw bits
  * in f32 and f64), residuals with and without Lorenzo prediction, with and
- * without factors, and exceptions. The values are generated (sums of
+ * without factors, and exceptions; and the header's optional parts (fill
+ * values, attributes, an N-D field). The values are generated (sums of
  * separable cosines, spikes, holes): seeds only need to be valid archives.
  */
 import { ArchiveBuilder, pack } from '../../src/pack.js';
@@ -106,6 +107,8 @@ export function buildSeeds(): Seed[] {
   add('tiny-f64', pack(smooth(12, 12, 11, 2, 1e-300), [12, 12], { bound: 'rel:1e-3', tile: 6, name: 'tiny' }));
   add('huge-f64', pack(smooth(12, 12, 12, 2, 1e300, 1), [12, 12], { bound: 'rel:1e-6', tile: 6, name: 'huge' }));
   add('single-cell', pack([42.5], [1, 1], { bound: 'abs:0.1', name: 'one' }));
+  // An N-D field, (time, y, x) read as a matrix of time x (y, x): the header's nd map (spec/FORMAT.md 6.2.1).
+  add('nd-matrix-f32', pack(Float32Array.from(smooth(4, 15, 16)), [4, 15], { bound: 'abs:1e-3', tile: [2, 8], name: 'series', ndShape: [4, 5, 3], dims: ['time', 'y', 'x'], layout: 'matrix:1', attrs: { units: 'm' } }));
 
   const sink = new MemorySink();
   const b = new ArchiveBuilder(sink, { site: 'fuzz corpus', version: 3 });

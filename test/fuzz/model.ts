@@ -11,7 +11,7 @@
  */
 import { crc32 } from '../../src/format/crc32.js';
 import { encodeValue } from './msgpack.js';
-import { diskDirField, diskPage, joinIndex, layout, pageCount, pageTiles, PROLOGUE, split, splitIndex, TAIL, type Block, type Grid } from '../format/paged.js';
+import { diskDirField, diskHeader, diskPage, joinIndex, layout, pageCount, pageTiles, PROLOGUE, split, splitIndex, TAIL, type Block, type Grid } from '../format/paged.js';
 
 export type { Block };
 
@@ -144,6 +144,11 @@ export function directoryValue(m: Model): unknown {
   return serializeParts(m).dirValue;
 }
 
+/** The header value a model serializes to (its stored form, test/format/paged.ts diskHeader). */
+export function headerValue(m: Model): unknown {
+  return diskHeader(m.header);
+}
+
 /** The index page values a model serializes to (their stored form), per field. */
 export function pageValues(m: Model): Block[][] {
   return diskPages(m, lay(cloneModel(m)).pages);
@@ -156,7 +161,7 @@ function diskPages(m: Model, pages: Block[][]): Block[][] {
 
 function serializeParts(m: Model): { out: Uint8Array; dirValue: unknown } {
   const { parts, pos, pages, dirFields, dirExtra } = lay(m);
-  const hb = m.headerBytes ?? encodeValue(m.header);
+  const hb = m.headerBytes ?? encodeValue(headerValue(m));
   const pageBytes = diskPages(m, pages).map((list, f) => list.map((pg, p) => m.pageBytes?.[`${f}/${p}`] ?? encodeValue(pg)));
   const pagesLength = pageBytes.reduce((n, list) => n + list.reduce((k, b) => k + b.length, 0), 0);
   // Index first: pages then directory, then header; else header, pages, directory.

@@ -19,7 +19,7 @@ import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
 import { decodeClasses, decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
 import { crc32 } from '../../src/format/crc32.js';
-import { cloneModel, directoryValue, layout, pageValues, PayloadFlag, replaceStream, resealTail, serialize, splice, TAIL, tileDims, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
+import { cloneModel, directoryValue, headerValue, layout, pageValues, PayloadFlag, replaceStream, resealTail, serialize, splice, TAIL, tileDims, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import type { Rng } from './rng.js';
 
 /** Numbers that sit on a boundary of some check. */
@@ -652,7 +652,7 @@ function consistentHeader(m: Model, rng: Rng): string {
 function msgpackBlock(m: Model, rng: Rng, block: 'header' | 'index'): string {
   // The index is the directory or one of its pages (since version 2): each is a block of its own.
   let target: string = block;
-  let value: unknown = m.header;
+  let value: unknown = headerValue(m);
   if (block === 'index') {
     const pages = pageValues(m);
     const f = rng.int(pages.length + 1);
