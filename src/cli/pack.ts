@@ -10,7 +10,7 @@ import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js
 import { checkLayout, openFieldBands } from './input.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
-import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, tileOption } from './options.js';
+import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, threadsOption, tileOption } from './options.js';
 
 interface PackFlags {
   output: string;
@@ -25,6 +25,7 @@ interface PackFlags {
   var?: string[];
   matrix?: string[];
   layout?: 'auto' | 'slices';
+  threads?: number;
 }
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
@@ -109,6 +110,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
     .option('--matrix <AXES:NAME>', 'NetCDF input: flatten the leading axes AXES (comma-separated) into rows, the rest into columns, e.g. time:space', parseMatrix)
     .option('--layout <LAYOUT>', 'NetCDF input, variables of 3+ dimensions: auto (default: the layout whose sample packs smallest) or slices', layoutOption)
+    .option('--threads <N>', 'worker threads encoding tiles (default: the number of cores); the archive is the same for every N', threadsOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
@@ -142,9 +144,9 @@ export function registerPack(program: Command, ctx: Context): void {
           if (r0 + count === rows) firstPass = false;
           return values;
         };
-        await writeOutputWith(flags.output, io, (sink) => {
+        await writeOutputWith(flags.output, io, async (sink) => {
           const builder = new ArchiveBuilder(sink);
-          builder.addBands(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name });
+          await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, threads: flags.threads });
           builder.finish();
         });
       } finally {
@@ -182,10 +184,11 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   await checkOutput(flags.output, io);
   const bytes = await readInput(input);
   const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto');
-  await writeOutputWith(flags.output, io, (sink) => {
+  await writeOutputWith(flags.output, io, async (sink) => {
     const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
     for (const f of fields) {
-      builder.add(f.read.values, [f.rows, f.cols], {
+      await builder.addAsync(f.read.values, [f.rows, f.cols], {
+        threads: flags.threads,
         bound: flags.bound,
         tile: flags.tile,
         fill: f.read.fill,

@@ -43,6 +43,8 @@ export interface BandsRead {
 /** Bands per thread decoded ahead of the one being written. */
 const BANDS_PER_THREAD = 2;
 const BAND_CELLS = 1 << 20;
+/** Windows of fewer values are decoded in the calling thread. */
+const MIN_PARALLEL_CELLS = 1 << 16;
 
 /** One band: a window of one slice. */
 interface BandRequest {
@@ -118,14 +120,19 @@ function shareBytes(location: ArchiveLocation): ArchiveLocation {
   return out;
 }
 
-/** Bands of whole tile rows covering the window, slice by slice, about `cells` values each. */
-function planBands(archive: Archive, name: string, o: ReadOptions, cells: number): BandRequest[] {
+/**
+ * Bands of whole tile rows covering the window, slice by slice: about
+ * `cells` values each, and small enough that every thread has bands to
+ * decode (at most a share 1 / (BANDS_PER_THREAD x threads) of a slice).
+ */
+function planBands(archive: Archive, name: string, o: ReadOptions, cells: number, threads: number): BandRequest[] {
   const { header: h } = archive.field(name);
   const { slices, rows, cols } = checkWindow(h, o);
   const [tr, tc] = h.tile;
   const [gr, gc] = sliceGrid(h);
   const width = cols[1] - cols[0];
-  const per = tr * Math.max(1, Math.floor(cells / (tr * width)));
+  const tileRows = Math.ceil(rows[1] / tr) - Math.floor(rows[0] / tr);
+  const per = tr * Math.max(1, Math.min(Math.floor(cells / (tr * width)), Math.ceil(tileRows / (BANDS_PER_THREAD * threads))));
   const keep = { ...(o.verify !== undefined ? { verify: o.verify } : {}), ...(o.bound !== undefined ? { bound: o.bound } : {}) };
   const out: BandRequest[] = [];
   for (let s = slices[0]; s < slices[1]; s++) {
@@ -155,8 +162,11 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
   const read: ReadOptions = { ...rest };
   if (typeof read.bound === 'string') read.bound = parseBound(read.bound);
   else if (read.bound !== undefined) read.bound = checkBound(read.bound as Bound);
-  const bands = planBands(archive, h.name, read, bandCells ?? BAND_CELLS);
-  const workers = Math.min(threads, bands.length);
+  const { shape } = readShape(archive, h.name, read);
+  // Below MIN_PARALLEL_CELLS starting workers costs more than decoding here.
+  const cells = shape.reduce((a, b) => a * b, 1);
+  const bands = planBands(archive, h.name, read, bandCells ?? BAND_CELLS, cells < MIN_PARALLEL_CELLS ? 1 : threads);
+  const workers = cells < MIN_PARALLEL_CELLS ? 1 : Math.min(threads, bands.length);
   if (workers > 1 && location === undefined) throw new InputError(InputCode.Option, 'reading with more than one thread needs the location the archive was opened from');
   const shared = workers > 1 ? shareBytes(location!) : location;
   const pool = workers > 1 ? new WorkerPool(workers) : null;
@@ -186,16 +196,20 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
   } finally {
     await pool?.close();
   }
-  const { slices, rows, cols } = checkWindow(h, read);
+  return { ...readShape(archive, h.name, o), achieved: { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 }, prefixTiles: tally.prefixTiles };
+}
+
+/**
+ * What a read of this window gives, known before anything is decoded: the
+ * field's name and dtype, the shape Archive.read would return (the N-D
+ * shape for a whole read of a field that has one) and the window. Throws
+ * as Archive.read does for a window that does not fit the field.
+ */
+export function readShape(archive: Archive, name: string | undefined, o: ReadOptions): Omit<BandsRead, 'achieved' | 'prefixTiles'> {
+  const { header: h } = archive.field(name);
+  const { slices, rows, cols } = checkWindow(h, { ...(o.slices ? { slices: o.slices } : {}), ...(o.rows ? { rows: o.rows } : {}), ...(o.cols ? { cols: o.cols } : {}) });
   const whole = o.slices === undefined && o.rows === undefined && o.cols === undefined;
   const width = cols[1] - cols[0];
   const shape = whole && h.nd_shape ? h.nd_shape.slice() : hasSlices(h) ? [slices[1] - slices[0], rows[1] - rows[0], width] : [rows[1] - rows[0], width];
-  return {
-    name: h.name,
-    dtype: h.dtype,
-    shape,
-    window: { ...(hasSlices(h) ? { slices } : {}), rows, cols },
-    achieved: { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 },
-    prefixTiles: tally.prefixTiles,
-  };
+  return { name: h.name, dtype: h.dtype, shape, window: { ...(hasSlices(h) ? { slices } : {}), rows, cols } };
 }
