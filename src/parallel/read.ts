@@ -122,8 +122,10 @@ function shareBytes(location: ArchiveLocation): ArchiveLocation {
 
 /**
  * Bands of whole tile rows covering the window, slice by slice: about
- * `cells` values each, and small enough that every thread has bands to
- * decode (at most a share 1 / (BANDS_PER_THREAD x threads) of a slice).
+ * `cells` values each, and with more than one thread small enough that
+ * every thread has bands to decode (at most 1 / (BANDS_PER_THREAD x
+ * threads) of the window's tile rows). A window of a few tile rows in one
+ * thread is one band: one read, with its payloads fetched together.
  */
 function planBands(archive: Archive, name: string, o: ReadOptions, cells: number, threads: number): BandRequest[] {
   const { header: h } = archive.field(name);
@@ -132,7 +134,8 @@ function planBands(archive: Archive, name: string, o: ReadOptions, cells: number
   const [gr, gc] = sliceGrid(h);
   const width = cols[1] - cols[0];
   const tileRows = Math.ceil(rows[1] / tr) - Math.floor(rows[0] / tr);
-  const per = tr * Math.max(1, Math.min(Math.floor(cells / (tr * width)), Math.ceil(tileRows / (BANDS_PER_THREAD * threads))));
+  const share = threads > 1 ? Math.ceil(tileRows / (BANDS_PER_THREAD * threads)) : Infinity;
+  const per = tr * Math.max(1, Math.min(Math.floor(cells / (tr * width)), share));
   const keep = { ...(o.verify !== undefined ? { verify: o.verify } : {}), ...(o.bound !== undefined ? { bound: o.bound } : {}) };
   const out: BandRequest[] = [];
   for (let s = slices[0]; s < slices[1]; s++) {
