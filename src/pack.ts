@@ -65,6 +65,12 @@ export interface ParallelPackOptions extends PackOptions {
    * count; 1 encodes in the calling thread, as {@link pack} does.
    */
   threads?: number;
+  /**
+   * A pool of worker threads to encode on, kept by the caller across calls
+   * (its workers stay started and warm); `threads` is then the pool's. The
+   * pool is not closed here.
+   */
+  pool?: WorkerPool;
 }
 
 /** Options of {@link ArchiveBuilder}. */
@@ -207,16 +213,16 @@ export class ArchiveBuilder {
   }
 
   private async encodeAsync(src: BandSource, spec: FieldSpec, o: ParallelPackOptions, page: [number, number]): Promise<FieldHeader> {
-    const threads = checkThreads(o.threads);
+    const threads = o.pool?.threads ?? checkThreads(o.threads);
     if (threads === 1) return this.encode(src, spec, o, page);
     const w = this.begin(src, spec, page);
     const workers = Math.min(threads, tileCount({ shape: [spec.rows, spec.cols], tile: [spec.tileRows, spec.tileCols], slices: spec.slices }));
     if (workers === 1) return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
-    const pool = new WorkerPool(workers);
+    const pool = o.pool ?? new WorkerPool(workers);
     try {
       return this.end(spec, o, page, w.ix, await encodeFieldParallel(src, spec, w.emit, pool));
     } finally {
-      await pool.close();
+      if (pool !== o.pool) await pool.close();
     }
   }
 

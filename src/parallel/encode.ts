@@ -75,9 +75,11 @@ export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit
   const done = new Map<number, TileOutcome>();
   let next = 0;
   let submitted = 0;
+  let answered = 0;
   let failure: { error: unknown } | null = null;
   let wake: (() => void) | null = null;
   const settle = () => {
+    answered++;
     const w = wake;
     wake = null;
     w?.();
@@ -122,7 +124,13 @@ export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit
   } catch (e) {
     failure ??= { error: e };
   }
-  if (failure !== null) throw (failure as { error: unknown }).error;
+  if (failure !== null) {
+    // Tasks still running are let finish (their results dropped), so the pool is left
+    // idle and the workers can forget the field; a pool that failed is not waited for.
+    while (answered < submitted && !pool.failed) await new Promise<void>((r) => (wake = r));
+    if (!pool.failed) await pool.broadcast('encode-forget', { key });
+    throw (failure as { error: unknown }).error;
+  }
   await pool.broadcast('encode-forget', { key });
   return summary.result();
 }

@@ -123,6 +123,11 @@ export class WorkerPool {
     }
   }
 
+  /** True once a worker died (every call then fails) or the pool was closed. */
+  get failed(): boolean {
+    return this.failure !== null || this.closed;
+  }
+
   /** Run one task; `transfer` lists buffers of `body` moved to the worker (they become unusable here). */
   run<T>(kind: string, body: unknown, transfer: TransferListItem[] = []): Promise<T> {
     if (this.failure) return Promise.reject(this.failure);

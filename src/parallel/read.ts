@@ -25,6 +25,8 @@ export interface BandReadOptions extends ReadOptions {
   threads?: number;
   /** Where workers open the archive (needed for more than one thread): the path, URL or bytes `archive` was opened from. */
   location?: ArchiveLocation;
+  /** A pool of worker threads kept by the caller across calls (not closed here); `threads` is then the pool's. */
+  pool?: WorkerPool;
   /** Values per band to aim at (default 2^20); a band is at least one tile row. */
   bandCells?: number;
 }
@@ -159,8 +161,8 @@ function planBands(archive: Archive, name: string, o: ReadOptions, cells: number
  * path, URL or bytes `archive` was opened from) themselves.
  */
 export async function readBands(archive: Archive, name: string | undefined, o: BandReadOptions, onBand: (values: FloatArray) => void | Promise<void>): Promise<BandsRead> {
-  const { threads: given, location, bandCells, ...rest } = o;
-  const threads = checkThreads(given);
+  const { threads: given, location, bandCells, pool: kept, ...rest } = o;
+  const threads = kept?.threads ?? checkThreads(given);
   const { header: h } = archive.field(name);
   const read: ReadOptions = { ...rest };
   if (typeof read.bound === 'string') read.bound = parseBound(read.bound);
@@ -172,13 +174,13 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
   const workers = cells < MIN_PARALLEL_CELLS ? 1 : Math.min(threads, bands.length);
   if (workers > 1 && location === undefined) throw new InputError(InputCode.Option, 'reading with more than one thread needs the location the archive was opened from');
   const shared = workers > 1 ? shareBytes(location!) : location;
-  const pool = workers > 1 ? new WorkerPool(workers) : null;
+  const pool = workers > 1 ? (kept ?? new WorkerPool(workers)) : null;
   const key = nextKey++;
   const decode = (req: BandRequest): Promise<BandResult> =>
     pool ? pool.run<BandResult>('read-band', { key, location: shared, size: archive.size, req }) : decodeBand(archive, req);
   const tally = { max: 0, sq: 0, valid: 0, prefixTiles: 0 };
+  const ahead: Promise<BandResult>[] = [];
   try {
-    const ahead: Promise<BandResult>[] = [];
     const take = async () => {
       const r = await ahead.shift()!;
       await onBand(r.values);
@@ -195,9 +197,13 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
       if (ahead.length >= BANDS_PER_THREAD * workers) await take();
     }
     while (ahead.length > 0) await take();
-    if (pool) await pool.broadcast('read-forget', { key });
   } finally {
-    await pool?.close();
+    // Bands still being decoded are let finish (a caller's pool is left idle), then the workers close the archive.
+    if (pool && !pool.failed) {
+      await Promise.allSettled(ahead);
+      await pool.broadcast('read-forget', { key }).catch(() => undefined);
+    }
+    if (pool !== kept) await pool?.close();
   }
   return { ...readShape(archive, h.name, o), achieved: { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 }, prefixTiles: tally.prefixTiles };
 }
