@@ -19,6 +19,7 @@ import { mkdtempSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { availableParallelism, cpus, tmpdir } from 'node:os';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { Worker } from 'node:worker_threads';
 import { deflateSync, inflateSync } from 'fflate';
 import { open, pack, packAsync, readBands, WorkerPool } from '../src/index.js';
 import { benchFields } from './fields.js';
@@ -96,8 +97,27 @@ function cli(args: string[]): number {
   return ms;
 }
 
+/**
+ * What two threads can gain here now: the same CPU-bound loop on one worker,
+ * then on two at once (each doing the whole loop); the ratio of throughputs
+ * is the ceiling of any 2-thread speed-up on this machine at this moment
+ * (other tenants' load included).
+ */
+async function ceiling(): Promise<number> {
+  const code = "const { parentPort } = require('node:worker_threads'); let x = 0; for (let i = 0; i < 2e8; i++) x += Math.sqrt(i); parentPort.postMessage(x);";
+  const run = async (n: number) => {
+    const t0 = performance.now();
+    await Promise.all(Array.from({ length: n }, () => new Promise((r) => new Worker(code, { eval: true }).once('message', r))));
+    return performance.now() - t0;
+  };
+  const one = median([await run(1), await run(1), await run(1)]);
+  const two = median([await run(2), await run(2), await run(2)]);
+  return (2 * one) / two;
+}
+
 async function main(): Promise<void> {
-  console.log(`node ${process.version}, ${cpus().length} cores (${availableParallelism()} available) of ${cpus()[0]?.model ?? 'unknown'}; bound ${BOUND}; medians of ${RUNS} runs\n`);
+  console.log(`node ${process.version}, ${cpus().length} cores (${availableParallelism()} available) of ${cpus()[0]?.model ?? 'unknown'}; bound ${BOUND}; medians of ${RUNS} runs`);
+  console.log(`ceiling: two threads running the same CPU-bound loop get ${(await ceiling()).toFixed(2)}x the throughput of one (the machine is shared, so this is the most any 2-thread ratio below can show)\n`);
   const fields = benchFields(QUICK).filter((f) => f.large || f.id === 'volcano' || f.id === 'annual-precip');
   const rows: Row[] = [];
   let large: { archive: Uint8Array; bytes: number } | null = null;
@@ -108,7 +128,7 @@ async function main(): Promise<void> {
     if (f.large) large = { archive, bytes: f.values.byteLength };
     console.error(`${f.id}: done`);
   }
-  console.log('2t: a new pool of 2 workers per call (start-up and cold code included, as in one command); 2t warm: one pool kept across calls.\n');
+  console.log('2t: this thread and one worker started per call (start-up and cold code included, as in one command); 2t warm: a pool of two workers kept across calls.\n');
   console.log('| field | shape | deflate-6 MB/s | inflate MB/s | encode 1t | encode 2t | encode 2t warm | 2t/1t | 2t warm/1t | 1t/deflate | decode 1t | decode 2t | decode 2t warm | 2t/1t | 2t warm/1t | 1t/inflate | same bytes |');
   console.log('|---|---|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|---|');
   const x = (a: number, b: number) => `${(a / b).toFixed(2)}x`;

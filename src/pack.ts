@@ -2,7 +2,7 @@
 import { checkBound, parseBound } from './codec/bound.js';
 import { chooseTile } from './codec/auto-tile.js';
 import { encodeField, memoryBands, type BandSource, type EncodedTile, type FieldResult, type FieldSpec } from './codec/field.js';
-import { encodeFieldParallel } from './parallel/encode.js';
+import { encodeFieldParallel, encodeTasks } from './parallel/encode.js';
 import { checkThreads, WorkerPool } from './parallel/pool.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, DEFAULT_PAGE, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
@@ -60,9 +60,10 @@ export interface PackOptions {
 /** Options of one field packed on worker threads ({@link packAsync}, {@link ArchiveBuilder.addAsync}). */
 export interface ParallelPackOptions extends PackOptions {
   /**
-   * Worker threads encoding tiles (default: the core count,
-   * os.availableParallelism()). The archive is byte-identical for every
-   * count; 1 encodes in the calling thread, as {@link pack} does.
+   * Threads encoding tiles, the calling thread among them (default: the
+   * core count, os.availableParallelism()): threads - 1 workers are started.
+   * The archive is byte-identical for every count; 1 encodes in the calling
+   * thread alone, as {@link pack} does.
    */
   threads?: number;
   /**
@@ -218,7 +219,8 @@ export class ArchiveBuilder {
     const w = this.begin(src, spec, page);
     const workers = Math.min(threads, tileCount({ shape: [spec.rows, spec.cols], tile: [spec.tileRows, spec.tileCols], slices: spec.slices }));
     if (workers === 1) return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
-    const pool = o.pool ?? new WorkerPool(workers);
+    // The calling thread encodes tiles too, as one of the threads.
+    const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result });
     try {
       return this.end(spec, o, page, w.ix, await encodeFieldParallel(src, spec, w.emit, pool));
     } finally {

@@ -110,7 +110,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
     .option('--matrix <AXES:NAME>', 'NetCDF input: flatten the leading axes AXES (comma-separated) into rows, the rest into columns, e.g. time:space', parseMatrix)
     .option('--layout <LAYOUT>', 'NetCDF input, variables of 3+ dimensions: auto (default: the layout whose sample packs smallest) or slices', layoutOption)
-    .option('--threads <N>', 'worker threads encoding tiles (default: the number of cores); the archive is the same for every N', threadsOption)
+    .option('--threads <N>', 'threads encoding tiles (default: the number of cores; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {

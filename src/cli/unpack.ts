@@ -123,7 +123,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .option('--region <R0:R1,C0:C1>', 'decode only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
     .option('--bound <MODE:VALUE>', 'a looser bound than the archive holds: read only as much of each tile as meets it (prints what the values satisfy)', boundOption)
     .option('--endian <ORDER>', 'raw output: byte order, little (default) or big', endianOption)
-    .option('--threads <N>', 'worker threads decoding bands of tiles for .npy and raw output (default: the number of cores)', threadsOption)
+    .option('--threads <N>', 'threads decoding bands of tiles for .npy and raw output (default: the number of cores; N - 1 worker threads beside the main one)', threadsOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', HELP)
     .action(async (input: string, flags: UnpackFlags) => {

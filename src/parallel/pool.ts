@@ -1,6 +1,7 @@
 /**
- * A pool of worker threads (node:worker_threads) that run rankfield's own
- * tasks (see worker.ts): encoding tiles for {@link ArchiveBuilder.addAsync}
+ * A pool of worker threads (node:worker_threads), optionally with the
+ * calling thread as one more lane, that run rankfield's own tasks (see
+ * worker.ts): encoding tiles for {@link ArchiveBuilder.addAsync}
  * and decoding bands of a field for {@link readBands}. Tasks are queued in
  * this thread and handed to the least busy worker, at most {@link DEPTH} at
  * a time each, so a worker never waits for work while the queue holds some
@@ -89,7 +90,8 @@ interface Task {
 }
 
 interface Slot {
-  worker: Worker;
+  /** The worker, or null for the lane of the calling thread. */
+  worker: Worker | null;
   /** Tasks posted and not yet answered, by id. */
   posted: Map<number, Task>;
 }
@@ -98,6 +100,12 @@ interface Slot {
 export interface PoolOptions {
   /** Heap limits of each worker (see node:worker_threads); default none. */
   resourceLimits?: ResourceLimits;
+  /**
+   * Run tasks in the calling thread too, as one of the pool's threads (so
+   * threads - 1 workers are started): `local` does what a worker would and
+   * returns the result. The calling thread is then busy while it runs one.
+   */
+  local?: (kind: string, body: unknown) => unknown;
 }
 
 /** A fixed set of worker threads running the tasks of worker.ts. */
@@ -109,9 +117,13 @@ export class WorkerPool {
   private failure: Error | null = null;
   private closed = false;
 
+  private readonly local: PoolOptions['local'];
+
   constructor(threads: number, options: PoolOptions = {}) {
     this.threads = checkThreads(threads);
-    for (let i = 0; i < this.threads; i++) {
+    this.local = options.local;
+    if (this.local) this.slots.push({ worker: null, posted: new Map() });
+    for (let i = this.slots.length; i < this.threads; i++) {
       const worker = new Worker(new URL('./worker.js', import.meta.url), { resourceLimits: options.resourceLimits });
       const slot: Slot = { worker, posted: new Map() };
       worker.on('message', (m: ReplyMessage) => this.answer(slot, m));
@@ -156,7 +168,8 @@ export class WorkerPool {
   private pump(): void {
     while (this.queue.length > 0) {
       let best: Slot | null = null;
-      for (const s of this.slots) if (s.posted.size < DEPTH && (best === null || s.posted.size < best.posted.size)) best = s;
+      // The calling thread's lane takes one task at a time: it runs it, and cannot take more meanwhile.
+      for (const s of this.slots) if (s.posted.size < (s.worker ? DEPTH : 1) && (best === null || s.posted.size < best.posted.size)) best = s;
       if (best === null) return;
       this.post(best, this.queue.shift()!);
     }
@@ -165,7 +178,21 @@ export class WorkerPool {
   private post(slot: Slot, task: Task): void {
     slot.posted.set(task.id, task);
     const m: TaskMessage = { id: task.id, kind: task.kind, body: task.body };
-    slot.worker.postMessage(m, task.transfer);
+    if (slot.worker) {
+      slot.worker.postMessage(m, task.transfer);
+      return;
+    }
+    // In this thread, after the events already waiting (worker answers, reads) are handled.
+    setImmediate(async () => {
+      if (!slot.posted.has(m.id)) return; // the pool failed or closed meanwhile
+      try {
+        task.resolve(await this.local!(m.kind, m.body));
+      } catch (e) {
+        task.reject(e);
+      }
+      slot.posted.delete(m.id);
+      this.pump();
+    });
   }
 
   private answer(slot: Slot, m: ReplyMessage): void {
@@ -185,7 +212,7 @@ export class WorkerPool {
     this.queue.length = 0;
     for (const s of this.slots) s.posted.clear();
     for (const t of pending) t.reject(e);
-    void this.close();
+    void this.close().catch(() => undefined);
   }
 
   /** Stop every worker (tasks still pending are rejected). Closing twice is harmless. */
@@ -196,6 +223,7 @@ export class WorkerPool {
     this.queue.length = 0;
     const stopped = new Error('the worker pool was closed');
     for (const t of pending) t.reject(stopped);
-    await Promise.all(this.slots.map((s) => s.worker.terminate()));
+    // A worker that already died may refuse to be terminated: it is stopped either way.
+    await Promise.all(this.slots.map((s) => s.worker?.terminate().catch(() => undefined)));
   }
 }

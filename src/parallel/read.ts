@@ -21,7 +21,7 @@ export type ArchiveLocation = string | Uint8Array;
 
 /** Options of {@link readBands}: a window as for Archive.read, and the threads. */
 export interface BandReadOptions extends ReadOptions {
-  /** Worker threads decoding bands (default: the core count); 1 decodes in this thread. */
+  /** Threads decoding bands, this one among them (default: the core count); 1 decodes in this thread alone. */
   threads?: number;
   /** Where workers open the archive (needed for more than one thread): the path, URL or bytes `archive` was opened from. */
   location?: ArchiveLocation;
@@ -174,7 +174,9 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
   const workers = cells < MIN_PARALLEL_CELLS ? 1 : Math.min(threads, bands.length);
   if (workers > 1 && location === undefined) throw new InputError(InputCode.Option, 'reading with more than one thread needs the location the archive was opened from');
   const shared = workers > 1 ? shareBytes(location!) : location;
-  const pool = workers > 1 ? (kept ?? new WorkerPool(workers)) : null;
+  // The calling thread decodes bands too (from its own archive), as one of the threads.
+  const local = (kind: string, body: unknown) => (kind === 'read-band' ? decodeBand(archive, (body as { req: BandRequest }).req) : null);
+  const pool = workers > 1 ? (kept ?? new WorkerPool(workers, { local })) : null;
   const key = nextKey++;
   const decode = (req: BandRequest): Promise<BandResult> =>
     pool ? pool.run<BandResult>('read-band', { key, location: shared, size: archive.size, req }) : decodeBand(archive, req);
