@@ -46,23 +46,34 @@ export interface FieldChoices {
   fill: Uint32Array | null;
   dtype: FieldSpec['dtype'];
   progressive: boolean;
+  /** The bound is held tile by tile (abs, rel, or a zero tolerance); else the L2 plan shares it. */
+  pointwise: boolean;
   /** The L2 plan; null for pointwise bounds. */
   plan: L2Plan | null;
 }
 
 /**
- * Make the field-level choices: one pass over the source for the value
- * range, and for L2 bounds the planning pass (see plan-l2.ts).
+ * The choices before the L2 plan: one pass over the source for the value
+ * range, and the tolerance the bound resolves to; `plan` is still null.
  */
-export function fieldChoices(src: BandSource, spec: FieldSpec): FieldChoices {
+export function fieldBasis(src: BandSource, spec: FieldSpec): FieldChoices {
   const range = validRange(src, spec);
   const span = range ? range[1] - range[0] : 0;
   let tol = resolveBound(spec.bound, span);
   if (!Number.isFinite(tol)) tol = Number.MAX_VALUE;
   const fill = fillWords(spec.fill, spec.dtype);
   const pointwise = isPointwise(spec.bound.mode) || tol === 0;
-  const plan = pointwise ? null : planL2(src, spec, tol, fill);
-  return { tol, range, fill, dtype: spec.dtype, progressive: spec.progressive === true, plan };
+  return { tol, range, fill, dtype: spec.dtype, progressive: spec.progressive === true, pointwise, plan: null };
+}
+
+/**
+ * Make the field-level choices: {@link fieldBasis}, and for L2 bounds the
+ * planning pass (see plan-l2.ts).
+ */
+export function fieldChoices(src: BandSource, spec: FieldSpec): FieldChoices {
+  const c = fieldBasis(src, spec);
+  if (!c.pointwise) c.plan = planL2(src, spec, c.tol, c.fill);
+  return c;
 }
 
 /** A tile as the encoder takes it: prepared in the planning pass (kept), or prepared now. */

@@ -8,6 +8,7 @@
  */
 import { measure } from './measure.js';
 import { forEachTile, type BandSource, type FieldSpec } from './tiles.js';
+import type { FloatArray } from '../types.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { encodeL2, encodePointwise, exactPayload } from './tile-encode.js';
 
@@ -49,22 +50,44 @@ function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
   return p.kind === 'rank' ? encodeL2(t, p.ranks[index], p.c, p.dw) : encodePointwise(t, p.ePrime);
 }
 
-/** First pass and plan choice; the returned plan encodes one tile at a time. */
-export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null): L2Plan {
-  const keep = (spec.slices ?? 1) * spec.rows * spec.cols <= KEEP_CELLS;
-  const kept: PreparedTile[] = [];
-  const sv2: Float64Array[] = [];
-  const dims: [number, number, number][] = [];
-  forEachTile(src, spec, (_index, tile, m, n) => {
-    const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
-    // Squared singular values in units of tol^2, so nothing overflows.
-    const usable = t.valid > 0 && t.finite;
-    // The full spectrum (ensureSvd's default): cutting the field-wide smallest values needs every one of them.
-    const s = usable ? ensureSvd(t).s : new Float64Array(0);
-    sv2.push(s.map((v) => (v / tol) * (v / tol)));
-    dims.push([m, n, t.valid]);
-    if (keep) kept.push(t);
-  });
+/** What the first pass learns of one tile (and the tile itself, prepared, while a field is small enough to keep). */
+export interface FirstPassTile {
+  /** Squared singular values in units of tol^2, so nothing overflows. */
+  sv2: Float64Array;
+  /** Rows, columns and valid cells. */
+  dims: [number, number, number];
+  tile?: PreparedTile;
+}
+
+/** Whether the first pass keeps its prepared tiles for the second (fields up to KEEP_CELLS). */
+export function keepsTiles(spec: Pick<FieldSpec, 'rows' | 'cols' | 'slices'>): boolean {
+  return (spec.slices ?? 1) * spec.rows * spec.cols <= KEEP_CELLS;
+}
+
+/** The first pass over one tile: prepare it and take its whole spectrum. */
+export function firstPassTile(tile: FloatArray, m: number, n: number, spec: Pick<FieldSpec, 'dtype' | 'progressive'>, fill: Uint32Array | null, tol: number, keep: boolean): FirstPassTile {
+  const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
+  const usable = t.valid > 0 && t.finite;
+  // The full spectrum (ensureSvd's default): cutting the field-wide smallest values needs every one of them.
+  const s = usable ? ensureSvd(t).s : new Float64Array(0);
+  return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
+}
+
+/**
+ * First pass and plan choice; the returned plan encodes one tile at a time.
+ * `first` gives the first pass's results in tile order when it was made
+ * elsewhere (on worker threads); by default it is made here.
+ */
+export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: FirstPassTile[]): L2Plan {
+  const keep = keepsTiles(spec);
+  if (first === undefined) {
+    const made: FirstPassTile[] = [];
+    forEachTile(src, spec, (_index, tile, m, n) => made.push(firstPassTile(tile, m, n, spec, fill, tol, keep)));
+    first = made;
+  }
+  const kept = keep ? first.map((f) => f.tile!) : [];
+  const sv2 = first.map((f) => f.sv2);
+  const dims = first.map((f) => f.dims);
   const count = dims.length;
   let valid = 0;
   for (const d of dims) valid += d[2];

@@ -1,16 +1,17 @@
 /**
  * Encoding a field's tiles on a {@link WorkerPool}. The field-level choices
- * (value range, tolerance, L2 plan) are made here first, exactly as the
- * synchronous encoder makes them; each worker is handed them once, then
- * tiles one by one. Results come back in any order and are emitted in tile
- * order, so the archive is byte-identical for every thread count.
+ * (value range, tolerance, L2 plan) are made first, as the synchronous
+ * encoder makes them (the per-tile work of the L2 planning pass on the
+ * pool); each worker is handed them once, then tiles one by one. Results
+ * come back in any order and are emitted in tile order, so the archive is
+ * byte-identical for every thread count.
  *
  * This thread reads the input bands and writes the payloads while the
  * workers encode; at most {@link BANDS_PER_THREAD} bands of tiles per thread
  * are in flight (read and not yet written), which bounds the memory.
  */
-import { encodeTile, fieldChoices, FieldSummary, tileGrid, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { l2Plan, type L2PlanData } from '../codec/plan-l2.js';
+import { encodeTile, fieldBasis, FieldSummary, tileGrid, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
+import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2PlanData } from '../codec/plan-l2.js';
 import type { PreparedTile } from '../codec/prepare.js';
 import { ErrorTally } from '../codec/tally.js';
 import type { FloatArray } from '../types.js';
@@ -55,6 +56,10 @@ export const encodeTasks = {
     const payload = own ? o.payload : o.payload.slice();
     return { result: { ...o, payload }, transfer: [payload.buffer as ArrayBuffer] };
   },
+  'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean }) {
+    const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep);
+    return { result: f, transfer: [f.sv2.buffer as ArrayBuffer] };
+  },
   'encode-forget'(body: { key: number }) {
     fields.delete(body.key);
     return { result: null };
@@ -62,17 +67,14 @@ export const encodeTasks = {
 };
 
 /**
- * Encode every tile of a field on `pool`, handing each to `emit` in tile
- * order; the same result, and the same payloads, as encodeField.
+ * Run `post` for every item, at most `limit` at a time, and hand each result
+ * to `use` in item order as soon as the ones before it are used. At the
+ * first failure (of a task or of `use`) no more items are taken; tasks still
+ * running are let finish (their results dropped, so a caller's pool is left
+ * idle) unless the pool itself failed; then the failure is thrown.
  */
-export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool): Promise<FieldResult> {
-  const c = fieldChoices(src, spec);
-  const key = nextKey++;
-  const { plan, ...rest } = c;
-  await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
-  const summary = new FieldSummary(c);
-  const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
-  const done = new Map<number, TileOutcome>();
+async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: T) => Promise<R>, use: (r: R, k: number) => void, limit: number): Promise<void> {
+  const done = new Map<number, R>();
   let next = 0;
   let submitted = 0;
   let answered = 0;
@@ -85,17 +87,15 @@ export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit
     w?.();
   };
   const waitFor = async (ready: () => boolean) => {
-    while (failure === null && !ready()) await new Promise<void>((r) => (wake = r));
+    while (!ready()) await new Promise<void>((r) => (wake = r));
   };
-  const finished = (o: TileOutcome & { index: number }) => {
+  const finished = (k: number, r: R) => {
     if (failure !== null) return;
-    // The tally crossed threads as plain fields; give it its class back.
-    done.set(o.index, { ...o, tally: Object.assign(new ErrorTally(), o.tally) });
+    done.set(k, r);
     try {
       for (let d = done.get(next); d !== undefined; d = done.get(next)) {
         done.delete(next);
-        summary.add(d);
-        emit(next, { payload: d.payload, stats: d.stats });
+        use(d, next);
         next++;
       }
     } catch (e) {
@@ -103,15 +103,13 @@ export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit
     }
   };
   try {
-    for (const { index, tile, m, n } of tilesOf(src, spec)) {
-      await waitFor(() => submitted - next < limit);
+    for (const item of items) {
+      await waitFor(() => failure !== null || submitted - next < limit);
       if (failure !== null) break;
-      const prepared = c.plan?.kept(index);
-      const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile };
-      submitted++;
-      pool.run<TileOutcome>('encode-tile', task, prepared ? [] : [tile.buffer as ArrayBuffer]).then(
-        (o) => {
-          finished({ ...o, index });
+      const k = submitted++;
+      post(item).then(
+        (r) => {
+          finished(k, r);
           settle();
         },
         (e: unknown) => {
@@ -120,17 +118,50 @@ export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit
         },
       );
     }
-    await waitFor(() => next === submitted);
+    await waitFor(() => failure !== null || next === submitted);
   } catch (e) {
     failure ??= { error: e };
   }
   if (failure !== null) {
-    // Tasks still running are let finish (their results dropped), so the pool is left
-    // idle and the workers can forget the field; a pool that failed is not waited for.
-    while (answered < submitted && !pool.failed) await new Promise<void>((r) => (wake = r));
-    if (!pool.failed) await pool.broadcast('encode-forget', { key });
+    await waitFor(() => answered === submitted || pool.failed);
     throw (failure as { error: unknown }).error;
   }
-  await pool.broadcast('encode-forget', { key });
+}
+
+/**
+ * Encode every tile of a field on `pool`, handing each to `emit` in tile
+ * order; the same result, and the same payloads, as encodeField. For L2
+ * bounds the planning pass (each tile's spectrum) runs on the pool too;
+ * the plan is then chosen here, as encodeField chooses it.
+ */
+export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool): Promise<FieldResult> {
+  const c = fieldBasis(src, spec);
+  const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
+  if (!c.pointwise) {
+    const first: FirstPassTile[] = [];
+    const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
+    const post = ({ tile, m, n }: { tile: FloatArray; m: number; n: number }) => pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n }, [tile.buffer as ArrayBuffer]);
+    await inOrder(pool, tilesOf(src, spec), post, (f) => first.push(f), limit);
+    c.plan = planL2(src, spec, c.tol, c.fill, first);
+  }
+  const key = nextKey++;
+  const { plan, ...rest } = c;
+  await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
+  const summary = new FieldSummary(c);
+  const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
+    const prepared = c.plan?.kept(index);
+    const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile };
+    return pool.run<TileOutcome>('encode-tile', task, prepared ? [] : [tile.buffer as ArrayBuffer]);
+  };
+  const use = (o: TileOutcome, index: number) => {
+    // The tally crossed threads as plain fields; give it its class back.
+    summary.add({ ...o, tally: Object.assign(new ErrorTally(), o.tally) });
+    emit(index, { payload: o.payload, stats: o.stats });
+  };
+  try {
+    await inOrder(pool, tilesOf(src, spec), post, use, limit);
+  } finally {
+    if (!pool.failed) await pool.broadcast('encode-forget', { key });
+  }
   return summary.result();
 }
