@@ -48,7 +48,7 @@ function precipWithFill(): { values: Float32Array; shape: [number, number]; fill
 
 const same = (a: Uint8Array, b: Uint8Array) => Buffer.from(a).equals(Buffer.from(b));
 
-// Each case packs a 168 x 360 field four times (pack, then 1, 2 and 3 threads, each
+// Each case packs a 168 x 360 field three times (pack, then 2 and 3 threads, each
 // starting its workers): a few seconds idle, several times that on a busy 2-core machine.
 describe('packAsync: the same archive for every thread count', () => {
   const cases: [string, string, number | [number, number]][] = [
@@ -60,11 +60,11 @@ describe('packAsync: the same archive for every thread count', () => {
     it(label, async () => {
       const { values, shape, fill } = precipWithFill();
       const o = { bound, tile, fill };
+      // One thread is pack() itself (packAsync with threads 1 runs it in the calling thread).
       const sync = lib.pack(values, shape, o);
-      const got = await Promise.all([1, 2, 3].map((threads) => lib.packAsync(values, shape, { ...o, threads })));
-      for (const [k, bytes] of got.entries()) expect(same(bytes, sync), `threads ${k + 1}`).toBe(true);
+      for (const threads of [2, 3]) expect(same(await lib.packAsync(values, shape, { ...o, threads }), sync), `threads ${threads}`).toBe(true);
       // And the archive holds its bound: the decoded field against the original.
-      const report = await (await lib.open(got[1])).check(values);
+      const report = await (await lib.open(sync)).check(values);
       expect(report.failures).toEqual([]);
     }, 120_000);
   }
