@@ -161,8 +161,9 @@ function planBands(archive: Archive, name: string, o: ReadOptions, cells: number
  * path, URL or bytes `archive` was opened from) themselves.
  */
 export async function readBands(archive: Archive, name: string | undefined, o: BandReadOptions, onBand: (values: FloatArray) => void | Promise<void>): Promise<BandsRead> {
-  const { threads: given, location, bandCells, pool: kept, ...rest } = o;
+  const { threads: given, location, bandCells = BAND_CELLS, pool: kept, ...rest } = o;
   const threads = kept?.threads ?? checkThreads(given);
+  if (!Number.isSafeInteger(bandCells) || bandCells < 1) throw new InputError(InputCode.Option, `bandCells must be a positive integer, got ${String(bandCells)}`);
   const { header: h } = archive.field(name);
   const read: ReadOptions = { ...rest };
   if (typeof read.bound === 'string') read.bound = parseBound(read.bound);
@@ -170,7 +171,7 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
   const { shape } = readShape(archive, h.name, read);
   // Below MIN_PARALLEL_CELLS starting workers costs more than decoding here.
   const cells = shape.reduce((a, b) => a * b, 1);
-  const bands = planBands(archive, h.name, read, bandCells ?? BAND_CELLS, cells < MIN_PARALLEL_CELLS ? 1 : threads);
+  const bands = planBands(archive, h.name, read, bandCells, cells < MIN_PARALLEL_CELLS ? 1 : threads);
   const workers = cells < MIN_PARALLEL_CELLS ? 1 : Math.min(threads, bands.length);
   if (workers > 1 && location === undefined) throw new InputError(InputCode.Option, 'reading with more than one thread needs the location the archive was opened from');
   const shared = workers > 1 ? shareBytes(location!) : location;
