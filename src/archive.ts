@@ -543,8 +543,8 @@ function checkRange(v: unknown, extent: number, what: 'slices' | 'rows' | 'cols'
   return [a, b];
 }
 
-/** The window a read asks for, checked against the field. */
-function checkWindow(h: FieldHeader, o: ReadOptions): { slices: [number, number]; rows: [number, number]; cols: [number, number] } {
+/** The window a read asks for, checked against the field (also for band-by-band reads, src/parallel/read.ts). */
+export function checkWindow(h: FieldHeader, o: ReadOptions): { slices: [number, number]; rows: [number, number]; cols: [number, number] } {
   if (typeof o !== 'object' || o === null) throw new InputError(InputCode.Option, `read options must be an object, got ${String(o)}`);
   const unknown = Object.keys(o).filter((k) => !READ_KEYS.includes(k));
   if (unknown.length > 0) throw new InputError(InputCode.Option, `unknown read option${unknown.length > 1 ? 's' : ''} ${unknown.map((k) => `'${k}'`).join(', ')} (known: ${READ_KEYS.join(', ')})`);

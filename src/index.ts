@@ -2,7 +2,9 @@
  * rankfield: lossy archiving of 2-D float fields under a stated error bound,
  * by tiled truncated SVD with a residual that makes pointwise bounds strict.
  */
-export { pack, ArchiveBuilder, type PackOptions, MAX_TILE_SIDE } from './pack.js';
+export { pack, packAsync, ArchiveBuilder, type PackOptions, type ParallelPackOptions, MAX_TILE_SIDE } from './pack.js';
+export { readBands, type ArchiveLocation, type BandReadOptions, type BandsRead } from './parallel/read.js';
+export { MAX_THREADS, WorkerPool, type PoolOptions } from './parallel/pool.js';
 export { chooseLayout } from './layout.js';
 export { open, Archive, type FieldValues, type ReadOptions, type CheckReport, type CheckFailure, type OpenOptions, type TileEntry } from './archive.js';
 export { parseBound, formatBound, resolveBound, isPointwise } from './codec/bound.js';

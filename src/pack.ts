@@ -1,7 +1,9 @@
 /** Writing archives: {@link pack} one field to bytes, or build a many-field archive with {@link ArchiveBuilder}. */
 import { checkBound, parseBound } from './codec/bound.js';
 import { chooseTile } from './codec/auto-tile.js';
-import { encodeField, memoryBands, type BandSource, type EncodedTile, type FieldSpec } from './codec/field.js';
+import { encodeField, memoryBands, type BandSource, type EncodedTile, type FieldResult, type FieldSpec } from './codec/field.js';
+import { encodeFieldParallel, encodeTasks } from './parallel/encode.js';
+import { checkThreads, WorkerPool } from './parallel/pool.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, DEFAULT_PAGE, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
 import { attrsProblem, holdsLoneSurrogate, ndProblem, quoteName, pageGrid, pageTiles, sliceGrid, tileCount, up32, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
@@ -53,6 +55,23 @@ export interface PackOptions {
    * so smaller pages cost less per window and more in the index directory.
    */
   indexPage?: number | [number, number];
+}
+
+/** Options of one field packed on worker threads ({@link packAsync}, {@link ArchiveBuilder.addAsync}). */
+export interface ParallelPackOptions extends PackOptions {
+  /**
+   * Threads encoding tiles, the calling thread among them (default: the
+   * core count, os.availableParallelism()): threads - 1 workers are started.
+   * The archive is byte-identical for every count; 1 encodes in the calling
+   * thread alone, as {@link pack} does.
+   */
+  threads?: number;
+  /**
+   * A pool of worker threads to encode on, kept by the caller across calls
+   * (its workers stay started and warm); `threads` is then the pool's. The
+   * pool is not closed here.
+   */
+  pool?: WorkerPool;
 }
 
 /** Options of {@link ArchiveBuilder}. */
@@ -119,6 +138,22 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices, progressive: o.progressive === true }, data, page: [page[0], page[1]] };
 }
 
+/** A caller's band callback, with every band it returns checked against the field. */
+function checkedBands(band: (r0: number, count: number) => FloatArray, spec: FieldSpec): BandSource {
+  return {
+    band: (r0, count) => {
+      // Internal assertion: the rows are the encoder's own request, always within the
+      // field, so no input reaches this; it guards the caller's callback against a bug here.
+      if (r0 < 0 || r0 + count > (spec.slices ?? 1) * spec.rows) throw new Error(`band rows ${r0}..${r0 + count} asked outside the field`);
+      const b = band(r0, count);
+      if (b.length !== count * spec.cols || !(spec.dtype === 'f32' ? b instanceof Float32Array : b instanceof Float64Array)) {
+        throw new InputError(InputCode.Shape, `band of rows ${r0}..${r0 + count} holds ${b.length} ${b.constructor.name} values, not ${count * spec.cols} ${spec.dtype}`);
+      }
+      return b;
+    },
+  };
+}
+
 /** Builds an archive field by field into a sink. */
 export class ArchiveBuilder {
   private readonly writer: ContainerWriter;
@@ -141,6 +176,13 @@ export class ArchiveBuilder {
     return this.encode(memoryBands(data, spec.cols), spec, o, page);
   }
 
+  /** {@link add} with tiles encoded on worker threads (`o.threads`); the same bytes for every thread count. */
+  async addAsync(values: FloatArray | number[], shape: readonly number[], o: ParallelPackOptions): Promise<FieldHeader> {
+    this.refuseAfterFinish(o.name);
+    const { spec, data, page } = options(values, shape, o);
+    return this.encodeAsync(memoryBands(data, spec.cols), spec, o, page);
+  }
+
   /**
    * Encode and append one field read band by band (rows [r0, r0 + count) at
    * a time), so its whole values never need to be in memory. `band` may be
@@ -149,19 +191,18 @@ export class ArchiveBuilder {
   addBands(band: (r0: number, count: number) => FloatArray, shape: readonly number[], dtype: Dtype, o: PackOptions): FieldHeader {
     this.refuseAfterFinish(o.name);
     const { spec, page } = options(new Float32Array(0), shape, { ...o, dtype }, false);
-    const check: BandSource = {
-      band: (r0, count) => {
-        // Internal assertion: the rows are the encoder's own request, always within the
-        // field, so no input reaches this; it guards the caller's callback against a bug here.
-        if (r0 < 0 || r0 + count > (spec.slices ?? 1) * spec.rows) throw new Error(`band rows ${r0}..${r0 + count} asked outside the field`);
-        const b = band(r0, count);
-        if (b.length !== count * spec.cols || !(dtype === 'f32' ? b instanceof Float32Array : b instanceof Float64Array)) {
-          throw new InputError(InputCode.Shape, `band of rows ${r0}..${r0 + count} holds ${b.length} ${b.constructor.name} values, not ${count * spec.cols} ${dtype}`);
-        }
-        return b;
-      },
-    };
-    return this.encode(check, spec, o, page);
+    return this.encode(checkedBands(band, spec), spec, o, page);
+  }
+
+  /**
+   * {@link addBands} with tiles encoded on worker threads (`o.threads`):
+   * `band` is called in this thread, while the workers encode the bands
+   * read before; the same bytes for every thread count.
+   */
+  async addBandsAsync(band: (r0: number, count: number) => FloatArray, shape: readonly number[], dtype: Dtype, o: ParallelPackOptions): Promise<FieldHeader> {
+    this.refuseAfterFinish(o.name);
+    const { spec, page } = options(new Float32Array(0), shape, { ...o, dtype }, false);
+    return this.encodeAsync(checkedBands(band, spec), spec, o, page);
   }
 
   /** Refuse a field after finish(): appended after the tail, it would leave an archive that does not open. */
@@ -170,6 +211,27 @@ export class ArchiveBuilder {
   }
 
   private encode(src: BandSource, spec: FieldSpec, o: PackOptions, page: [number, number]): FieldHeader {
+    const w = this.begin(src, spec, page);
+    return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
+  }
+
+  private async encodeAsync(src: BandSource, spec: FieldSpec, o: ParallelPackOptions, page: [number, number]): Promise<FieldHeader> {
+    const threads = o.pool?.threads ?? checkThreads(o.threads);
+    if (threads === 1) return this.encode(src, spec, o, page);
+    const w = this.begin(src, spec, page);
+    const workers = Math.min(threads, tileCount({ shape: [spec.rows, spec.cols], tile: [spec.tileRows, spec.tileCols], slices: spec.slices }));
+    if (workers === 1) return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
+    // The calling thread encodes tiles too, as one of the threads.
+    const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result });
+    try {
+      return this.end(spec, o, page, w.ix, await encodeFieldParallel(src, spec, w.emit, pool));
+    } finally {
+      if (pool !== o.pool) await pool.close();
+    }
+  }
+
+  /** Checks and the tile shape before a field is encoded; the index it fills, and the emit that writes its payloads. */
+  private begin(src: BandSource, spec: FieldSpec, page: [number, number]): { ix: FieldIndex; emit: (t: number, tile: EncodedTile) => void } {
     if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
     const slices = spec.slices ?? 1;
     if (slices > 1 && !this.writer.requireFlags(FLAG_SLICES)) {
@@ -188,7 +250,7 @@ export class ArchiveBuilder {
     // Prefixes are recorded for progressive layouts only, where a read can stop after the first factor groups.
     if (spec.progressive) ix.prefix = new Array<number[]>(n);
     const held = new Map<number, EncodedTile>();
-    const result = encodeField(src, spec, (t, tile) => {
+    const emit = (t: number, tile: EncodedTile) => {
       held.set(t, tile);
       const s = Math.floor(t / (gr * gc));
       const ti = Math.floor((t - s * gr * gc) / gc);
@@ -215,8 +277,15 @@ export class ArchiveBuilder {
           if (ix.prefix) ix.prefix[u] = e.stats.prefix.map((x, q) => (q % 4 >= 2 ? up32(x) : x));
         }
       }
-    });
-    if (held.size > 0) throw new Error(`${held.size} tiles were encoded but not written`);
+      if (t === n - 1 && held.size > 0) throw new Error(`${held.size} tiles were encoded but not written`);
+    };
+    return { ix, emit };
+  }
+
+  /** The field's header and index, once every tile is written. */
+  private end(spec: FieldSpec, o: PackOptions, page: [number, number], ix: FieldIndex, result: FieldResult): FieldHeader {
+    const slices = spec.slices ?? 1;
+    // The summary's max_err is the largest recorded (binary32, rounded up) tile max_err.
     ix.summary = { valid: result.valid, max_err: ix.max_err.reduce((a, b) => Math.max(a, b), 0), rmse: result.rmse };
     const header: FieldHeader = {
       name: spec.name,
@@ -252,6 +321,18 @@ export function pack(values: FloatArray | number[], shape: readonly number[], o:
   const sink = new MemorySink();
   const b = new ArchiveBuilder(sink);
   b.add(values, shape, o);
+  b.finish();
+  return sink.bytes();
+}
+
+/**
+ * {@link pack} with tiles encoded on worker threads (`o.threads`, default the
+ * core count): byte-identical to pack's archive for every thread count.
+ */
+export async function packAsync(values: FloatArray | number[], shape: readonly number[], o: ParallelPackOptions): Promise<Uint8Array> {
+  const sink = new MemorySink();
+  const b = new ArchiveBuilder(sink);
+  await b.addAsync(values, shape, o);
   b.finish();
   return sink.bytes();
 }

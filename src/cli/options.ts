@@ -4,7 +4,7 @@
  * option by name ("option '--tile <RxC>' argument '0' is invalid. ...").
  */
 import { InvalidArgumentError } from 'commander';
-import { MAX_TILE_SIDE, parseBound, type Bound, type Dtype } from '../index.js';
+import { MAX_THREADS, MAX_TILE_SIDE, parseBound, type Bound, type Dtype } from '../index.js';
 import { parseDtype, parseShape } from '../io/raw.js';
 
 const DECIMAL = /^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$/;
@@ -96,4 +96,14 @@ export function endianOption(text: string): 'little' | 'big' {
 export function nameOption(text: string): string {
   if (text.length === 0 || text.length > 1024) throw new InvalidArgumentError('field name must have 1 to 1024 characters');
   return text;
+}
+
+/** `--threads N`: worker threads, an integer from 1 to {@link MAX_THREADS}. */
+export function threadsOption(text: string): number {
+  const t = text.trim();
+  const n = Number(t);
+  if (!/^[0-9]+$/.test(t) || !Number.isSafeInteger(n) || n < 1 || n > MAX_THREADS) {
+    throw new InvalidArgumentError(`threads must be an integer from 1 to ${MAX_THREADS}, got '${text}'`);
+  }
+  return n;
 }

@@ -10,7 +10,7 @@ import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js
 import { checkLayout, openFieldBands } from './input.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
-import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, tileOption } from './options.js';
+import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, threadsOption, tileOption } from './options.js';
 
 interface PackFlags {
   output: string;
@@ -25,6 +25,7 @@ interface PackFlags {
   var?: string[];
   matrix?: string[];
   layout?: 'auto' | 'slices';
+  threads?: number;
 }
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
@@ -109,6 +110,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
     .option('--matrix <AXES:NAME>', 'NetCDF input: flatten the leading axes AXES (comma-separated) into rows, the rest into columns, e.g. time:space', parseMatrix)
     .option('--layout <LAYOUT>', 'NetCDF input, variables of 3+ dimensions: auto (default: the layout whose sample packs smallest) or slices', layoutOption)
+    .option('--threads <N>', 'threads encoding tiles (default: the number of cores; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
@@ -142,9 +144,9 @@ export function registerPack(program: Command, ctx: Context): void {
           if (r0 + count === rows) firstPass = false;
           return values;
         };
-        await writeOutputWith(flags.output, io, (sink) => {
+        await writeOutputWith(flags.output, io, async (sink) => {
           const builder = new ArchiveBuilder(sink);
-          builder.addBands(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name });
+          await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, threads: defaultThreads(flags.threads, field.shape[0] * field.shape[1]) });
           builder.finish();
         });
       } finally {
@@ -182,10 +184,11 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   await checkOutput(flags.output, io);
   const bytes = await readInput(input);
   const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto');
-  await writeOutputWith(flags.output, io, (sink) => {
+  await writeOutputWith(flags.output, io, async (sink) => {
     const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
     for (const f of fields) {
-      builder.add(f.read.values, [f.rows, f.cols], {
+      await builder.addAsync(f.read.values, [f.rows, f.cols], {
+        threads: defaultThreads(flags.threads, f.slices * f.rows * f.cols),
         bound: flags.bound,
         tile: flags.tile,
         fill: f.read.fill,
@@ -221,4 +224,12 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
 function layoutOption(text: string): 'auto' | 'slices' {
   if (text === 'auto' || text === 'slices') return text;
   throw new UsageError(`--layout must be auto or slices (use --matrix AXES:NAME for a matrix), got '${printable(text)}'`);
+}
+
+/** Fields of fewer values are packed in one thread unless --threads says otherwise: starting a worker costs about a tenth of a second. */
+const MIN_PARALLEL_CELLS = 1 << 18;
+
+/** The threads of one field: as given, or by default 1 for a small field and the core count otherwise. */
+function defaultThreads(given: number | undefined, cells: number): number | undefined {
+  return given !== undefined ? given : cells < MIN_PARALLEL_CELLS ? 1 : undefined;
 }

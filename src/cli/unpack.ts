@@ -1,9 +1,10 @@
 /** `rankfield unpack`: decode one field of an archive, or a window of it, to .npy or raw binary. */
 import { InvalidArgumentError, type Command } from 'commander';
-import { formatNpy } from '../io/npy.js';
-import { formatRaw } from '../io/raw.js';
+import { formatNpy, npyHeader } from '../io/npy.js';
+import { valueBytes } from '../io/bands.js';
+import { readBands, readShape, type BandsRead } from '../parallel/read.js';
 import { UsageError } from './errors.js';
-import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files.js';
+import { checkOutput, isUrl, openArchive, statInput, writeOutput, writeOutputWith } from './files.js';
 import { seconds } from './format.js';
 import { isNpyPath } from './input.js';
 import { isNetcdfPath, netcdfFromFields } from './netcdf.js';
@@ -12,7 +13,7 @@ import { printable } from '../format/schema.js';
 import { stat } from 'node:fs/promises';
 import { join } from 'node:path';
 import type { Context } from './main.js';
-import { boundOption, endianOption, nameOption } from './options.js';
+import { boundOption, endianOption, nameOption, threadsOption } from './options.js';
 import { formatBound } from '../codec/bound.js';
 import type { Bound } from '../types.js';
 
@@ -31,6 +32,7 @@ interface UnpackFlags {
   bound?: Bound;
   endian?: 'little' | 'big';
   force?: boolean;
+  threads?: number;
 }
 
 const HELP = `
@@ -121,6 +123,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .option('--region <R0:R1,C0:C1>', 'decode only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
     .option('--bound <MODE:VALUE>', 'a looser bound than the archive holds: read only as much of each tile as meets it (prints what the values satisfy)', boundOption)
     .option('--endian <ORDER>', 'raw output: byte order, little (default) or big', endianOption)
+    .option('--threads <N>', 'threads decoding bands of tiles for .npy and raw output (default: the number of cores; N - 1 worker threads beside the main one)', threadsOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', HELP)
     .action(async (input: string, flags: UnpackFlags) => {
@@ -170,18 +173,37 @@ export function registerUnpack(program: Command, ctx: Context): void {
           const cells = s * (window ? (window.rows[1] - window.rows[0]) * (window.cols[1] - window.cols[0]) : h.shape[0] * h.shape[1]);
           if (cells > CSV_LIMIT && flags.force !== true) throw new UsageError(`.csv output of ${cells} values is refused (more than ${CSV_LIMIT}); choose a smaller window with --region / --slices, write .npy, or use --force`);
         }
-        const field = await archive.read(h.name, { ...(window ?? {}), ...(sl ?? {}), ...(flags.bound ? { bound: flags.bound } : {}) });
-        const arr = { data: field.values, shape: field.shape, dtype: field.dtype };
+        const request = { ...(window ?? {}), ...(sl ?? {}), ...(flags.bound ? { bound: flags.bound } : {}) };
         const endian = flags.endian ?? 'little';
-        const dims = h.dims && h.dims.length === field.shape.length ? h.dims : field.shape.length === 3 ? ['slice', 'row', 'col'] : field.shape.map((_, i) => `axis${i}`);
-        const bytes = npy ? formatNpy(arr) : csv ? formatCsv(field.values, field.shape, dims) : formatRaw(arr, endian);
-        await writeOutput(flags.output, bytes, io);
+        let written = 0;
+        let field: BandsRead;
+        if (csv) {
+          const f = await archive.read(h.name, request);
+          const dims = h.dims && h.dims.length === f.shape.length ? h.dims : f.shape.length === 3 ? ['slice', 'row', 'col'] : f.shape.map((_, i) => `axis${i}`);
+          const bytes = formatCsv(f.values, f.shape, dims);
+          await writeOutput(flags.output, bytes, io);
+          written = bytes.length;
+          field = f;
+        } else {
+          // .npy and raw: decoded band by band (on worker threads) and written as each band comes.
+          const { shape } = readShape(archive, h.name, request);
+          let got: BandsRead | undefined;
+          await writeOutputWith(flags.output, io, async (sink) => {
+            const put = (b: Uint8Array) => {
+              sink.write(b);
+              written += b.length;
+            };
+            if (npy) put(npyHeader(shape, h.dtype));
+            got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => put(valueBytes(values, endian)));
+          });
+          field = got!;
+        }
         const kind = npy ? '.npy' : csv ? 'CSV' : `raw ${endian}-endian`;
         const [[r0, r1], [c0, c1]] = [field.window.rows, field.window.cols];
         const [s0, s1] = field.window.slices ?? [0, 1];
         const full = `field '${printable(h.name)}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype})`;
         const part = `${sl ? `slices ${s0}..${s1 - 1}, ` : ''}rows ${r0}..${r1 - 1}, columns ${c0}..${c1 - 1} (${field.shape.join('x')}) of `;
-        ctx.out(`unpacked ${window || sl ? part : ''}${full} from '${input}' -> '${flags.output}' (${kind}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+        ctx.out(`unpacked ${window || sl ? part : ''}${full} from '${input}' -> '${flags.output}' (${kind}, ${written} bytes); ${seconds(performance.now() - start)}\n`);
         if (flags.bound) {
           const a = field.achieved;
           ctx.out(`requested ${formatBound(flags.bound)}: ${field.prefixTiles} of the tiles read as factors only; the values satisfy max error ${a.maxErr.toPrecision(4)}, RMSE ${a.rmse.toPrecision(4)} (recorded at encode time)\n`);
@@ -209,3 +231,4 @@ function fileNames(names: string[]): string[] {
     return name;
   });
 }
+

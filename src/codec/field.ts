@@ -7,12 +7,13 @@ import { isPointwise, resolveBound } from './bound.js';
 import { fillWords } from './mask.js';
 import { ErrorTally } from './tally.js';
 import { measure, measurePrefixes, type TileStats } from './measure.js';
-import { planL2 } from './plan-l2.js';
-import { prepareTile } from './prepare.js';
+import { planL2, type L2Plan } from './plan-l2.js';
+import { prepareTile, type PreparedTile } from './prepare.js';
+import type { FloatArray } from '../types.js';
 import { encodePointwise, exactPayload } from './tile-encode.js';
 import { forEachTile, validRange, type BandSource, type FieldSpec } from './tiles.js';
 
-export { extractTile, forEachTile, memoryBands, tileGrid, validRange, type BandSource, type FieldSpec } from './tiles.js';
+export { extractTile, forEachTile, tilesOf, memoryBands, tileGrid, validRange, type BandSource, type FieldSpec } from './tiles.js';
 export { measure, measurePrefixes, type TileStats } from './measure.js';
 
 /** A finished tile. */
@@ -33,41 +34,109 @@ export interface FieldResult {
 }
 
 /**
- * Encode every tile of a field, handing each to `emit` in row-major tile
- * order as soon as it is done. The source is read once for the value range
- * and once more per encoding pass (L2 bounds make one extra pass).
+ * The field-level choices every tile is encoded with: made once per field
+ * (value range, tolerance, and for L2 bounds the plan), after which tiles
+ * are independent of one another and may be encoded in any order or thread.
  */
-export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void): FieldResult {
+export interface FieldChoices {
+  /** The resolved absolute tolerance (pointwise limit, or RMSE limit). */
+  tol: number;
+  range: [number, number] | null;
+  /** The fill value's words in the field's dtype, or null. */
+  fill: Uint32Array | null;
+  dtype: FieldSpec['dtype'];
+  progressive: boolean;
+  /** The bound is held tile by tile (abs, rel, or a zero tolerance); else the L2 plan shares it. */
+  pointwise: boolean;
+  /** The L2 plan; null for pointwise bounds. */
+  plan: L2Plan | null;
+}
+
+/**
+ * The choices before the L2 plan: one pass over the source for the value
+ * range, and the tolerance the bound resolves to; `plan` is still null.
+ */
+export function fieldBasis(src: BandSource, spec: FieldSpec): FieldChoices {
   const range = validRange(src, spec);
   const span = range ? range[1] - range[0] : 0;
   let tol = resolveBound(spec.bound, span);
   if (!Number.isFinite(tol)) tol = Number.MAX_VALUE;
   const fill = fillWords(spec.fill, spec.dtype);
-  const summary = { tolerance: tol, range, valid: 0, maxErr: 0, rmse: 0 };
-  const total = new ErrorTally();
   const pointwise = isPointwise(spec.bound.mode) || tol === 0;
-  const plan = pointwise ? null : planL2(src, spec, tol, fill);
-  forEachTile(src, spec, (index, tile, m, n) => {
-    const t = plan?.kept(index) ?? prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
-    let payload: Uint8Array;
-    let res: ReturnType<typeof measure>;
-    if (plan) ({ payload, res } = plan.encode(t, index));
-    else {
-      payload = encodePointwise(t, tol);
-      res = measure(payload, t, fill);
-      // The safety net: a tile that fails its own check is stored exactly.
-      if (!(res.stats.maxErr <= tol)) {
-        payload = exactPayload(t);
-        res = measure(payload, t, fill);
-      }
+  return { tol, range, fill, dtype: spec.dtype, progressive: spec.progressive === true, pointwise, plan: null };
+}
+
+/**
+ * Make the field-level choices: {@link fieldBasis}, and for L2 bounds the
+ * planning pass (see plan-l2.ts).
+ */
+export function fieldChoices(src: BandSource, spec: FieldSpec): FieldChoices {
+  const c = fieldBasis(src, spec);
+  if (!c.pointwise) c.plan = planL2(src, spec, c.tol, c.fill);
+  return c;
+}
+
+/** A tile as the encoder takes it: prepared in the planning pass (kept), or prepared now. */
+export function tileToEncode(c: FieldChoices, index: number, tile: FloatArray, m: number, n: number): PreparedTile {
+  return c.plan?.kept(index) ?? prepareTile(tile, m, n, c.dtype, c.fill, c.tol, c.progressive ? 'doubling' : 'one');
+}
+
+/** One encoded tile with what it adds to the field's summary. */
+export interface TileOutcome extends EncodedTile {
+  /** Valid cells of the tile. */
+  valid: number;
+  /** The tile's errors, merged into the field's in tile order. */
+  tally: ErrorTally;
+}
+
+/** Encode one prepared tile under the field's choices; depends on nothing but its arguments. */
+export function encodeTile(c: FieldChoices, t: PreparedTile, index: number): TileOutcome {
+  let payload: Uint8Array;
+  let res: ReturnType<typeof measure>;
+  if (c.plan) ({ payload, res } = c.plan.encode(t, index));
+  else {
+    payload = encodePointwise(t, c.tol);
+    res = measure(payload, t, c.fill);
+    // The safety net: a tile that fails its own check is stored exactly.
+    if (!(res.stats.maxErr <= c.tol)) {
+      payload = exactPayload(t);
+      res = measure(payload, t, c.fill);
     }
-    summary.valid += t.valid;
-    total.merge(res.tally);
-    // Prefixes are measured (and recorded) for progressive layouts only.
-    res.stats.prefix = spec.progressive ? measurePrefixes(payload, t, fill) : [];
-    emit(index, { payload, stats: res.stats });
+  }
+  // Prefixes are measured (and recorded) for progressive layouts only.
+  res.stats.prefix = c.progressive ? measurePrefixes(payload, t, c.fill) : [];
+  return { payload, stats: res.stats, valid: t.valid, tally: res.tally };
+}
+
+/** Folds tile outcomes, in tile order, into a field's summary. */
+export class FieldSummary {
+  private valid = 0;
+  private readonly total = new ErrorTally();
+
+  constructor(private readonly c: FieldChoices) {}
+
+  add(o: TileOutcome): void {
+    this.valid += o.valid;
+    this.total.merge(o.tally);
+  }
+
+  result(): FieldResult {
+    return { tolerance: this.c.tol, range: this.c.range, valid: this.valid, maxErr: this.total.max, rmse: this.total.rmse };
+  }
+}
+
+/**
+ * Encode every tile of a field, handing each to `emit` in row-major tile
+ * order as soon as it is done. The source is read once for the value range
+ * and once more per encoding pass (L2 bounds make one extra pass).
+ */
+export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void): FieldResult {
+  const c = fieldChoices(src, spec);
+  const summary = new FieldSummary(c);
+  forEachTile(src, spec, (index, tile, m, n) => {
+    const o = encodeTile(c, tileToEncode(c, index, tile, m, n), index);
+    summary.add(o);
+    emit(index, { payload: o.payload, stats: o.stats });
   });
-  summary.maxErr = total.max;
-  summary.rmse = total.rmse;
-  return summary;
+  return summary.result();
 }

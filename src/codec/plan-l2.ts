@@ -8,6 +8,7 @@
  */
 import { measure } from './measure.js';
 import { forEachTile, type BandSource, type FieldSpec } from './tiles.js';
+import type { FloatArray } from '../types.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { encodeL2, encodePointwise, exactPayload, rankZeroForMse } from './tile-encode.js';
 
@@ -18,56 +19,94 @@ const SAMPLE_TILES = 48;
 /** Prepared tiles are kept between passes for fields up to this many cells. */
 const KEEP_CELLS = 4 << 20;
 
-/** One way to encode every tile, with each tile's share of the budget (in units of E^2). */
-interface Plan {
+/**
+ * One way to encode every tile, as plain data (so a plan can be handed to
+ * another thread): 'rank' encodes tile i at rank ranks[i] with factor steps
+ * c and dw; 'residual' runs the pointwise coder at ePrime (or a rank-0
+ * residual with rate-distortion optimised codes, if smaller). allot[i] is tile
+ * i's share of the budget, in units of tol^2.
+ */
+export interface L2PlanData {
   name: string;
-  one: (t: PreparedTile, index: number) => Uint8Array;
-  allot: (index: number) => number;
+  kind: 'rank' | 'residual';
+  ranks: Int32Array;
+  c: number;
+  dw: number;
+  ePrime: number;
+  allot: Float64Array;
+  tol: number;
 }
 
 /** The chosen plan, enforced tile by tile. */
 export interface L2Plan {
   name: string;
+  data: L2PlanData;
   /** The tile prepared in the first pass, when the field was small enough to keep it. */
   kept(index: number): PreparedTile | undefined;
   encode(t: PreparedTile, index: number): { payload: Uint8Array; res: ReturnType<typeof measure> };
 }
 
-/** First pass and plan choice; the returned plan encodes one tile at a time. */
-export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null): L2Plan {
-  const keep = (spec.slices ?? 1) * spec.rows * spec.cols <= KEEP_CELLS;
-  const kept: PreparedTile[] = [];
-  const sv2: Float64Array[] = [];
-  const dims: [number, number, number][] = [];
-  forEachTile(src, spec, (_index, tile, m, n) => {
-    const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
-    // Squared singular values in units of tol^2, so nothing overflows.
-    const usable = t.valid > 0 && t.finite;
-    // The full spectrum (ensureSvd's default): cutting the field-wide smallest values needs every one of them.
-    const s = usable ? ensureSvd(t).s : new Float64Array(0);
-    sv2.push(s.map((v) => (v / tol) * (v / tol)));
-    dims.push([m, n, t.valid]);
-    if (keep) kept.push(t);
-  });
+/** A tile's payload under a plan, before its allotment is enforced. */
+function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
+  if (p.kind === 'rank') return encodeL2(t, p.ranks[index], p.c, p.dw);
+  // The pointwise coder at ePrime, or a rank-0 residual whose codes are chosen for rate as well as error: the smaller.
+  const plain = encodePointwise(t, p.ePrime);
+  const rdo = rankZeroForMse(t, 0.97 * p.tol * p.tol);
+  return rdo !== null && rdo.length < plain.length ? rdo : plain;
+}
+
+/** What the first pass learns of one tile (and the tile itself, prepared, while a field is small enough to keep). */
+export interface FirstPassTile {
+  /** Squared singular values in units of tol^2, so nothing overflows. */
+  sv2: Float64Array;
+  /** Rows, columns and valid cells. */
+  dims: [number, number, number];
+  tile?: PreparedTile;
+}
+
+/** Whether the first pass keeps its prepared tiles for the second (fields up to KEEP_CELLS). */
+export function keepsTiles(spec: Pick<FieldSpec, 'rows' | 'cols' | 'slices'>): boolean {
+  return (spec.slices ?? 1) * spec.rows * spec.cols <= KEEP_CELLS;
+}
+
+/** The first pass over one tile: prepare it and take its whole spectrum. */
+export function firstPassTile(tile: FloatArray, m: number, n: number, spec: Pick<FieldSpec, 'dtype' | 'progressive'>, fill: Uint32Array | null, tol: number, keep: boolean): FirstPassTile {
+  const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
+  const usable = t.valid > 0 && t.finite;
+  // The full spectrum (ensureSvd's default): cutting the field-wide smallest values needs every one of them.
+  const s = usable ? ensureSvd(t).s : new Float64Array(0);
+  return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
+}
+
+/**
+ * First pass and plan choice; the returned plan encodes one tile at a time.
+ * `first` gives the first pass's results in tile order when it was made
+ * elsewhere (on worker threads); by default it is made here.
+ */
+export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: FirstPassTile[]): L2Plan {
+  const keep = keepsTiles(spec);
+  if (first === undefined) {
+    const made: FirstPassTile[] = [];
+    forEachTile(src, spec, (_index, tile, m, n) => made.push(firstPassTile(tile, m, n, spec, fill, tol, keep)));
+    first = made;
+  }
+  const kept = keep ? first.map((f) => f.tile!) : [];
+  const sv2 = first.map((f) => f.sv2);
+  const dims = first.map((f) => f.dims);
   const count = dims.length;
   let valid = 0;
   for (const d of dims) valid += d[2];
   const budget = valid; // N x tol^2, in units of tol^2
-  const plans: Plan[] = [];
+  const plans: L2PlanData[] = [];
   for (const share of TRUNCATION_SHARES) {
     const p = eckartYoungPlan(sv2, dims, budget, share, tol);
     if (p) plans.push(p);
   }
   // Residual plan: the pointwise coder at E' with uniform quantization error
-  // (2E')^2 / 12 = E^2 per value (common practice, no source), a little inside.
-  // Also a rank-0 residual whose codes are chosen for rate as well as error; the smaller wins.
+  // (2E')^2 / 12 = E^2 per value (common practice, no source), a little inside; or, per tile, a
+  // rank-0 residual with rate-distortion optimised codes when that is smaller (encodeWith).
   const ePrime = Math.sqrt(3) * tol * 0.97;
-  const residual = (t: PreparedTile): Uint8Array => {
-    const plain = encodePointwise(t, ePrime);
-    const rdo = rankZeroForMse(t, 0.97 * tol * tol);
-    return rdo !== null && rdo.length < plain.length ? rdo : plain;
-  };
-  plans.push({ name: 'residual', one: residual, allot: (index) => 0.999 * dims[index][2] });
+  plans.push({ name: 'residual', kind: 'residual', ranks: new Int32Array(0), c: 0, dw: 0, ePrime, allot: Float64Array.from(dims, (d) => 0.999 * d[2]), tol });
 
   const sampleAt = (k: number) => Math.floor(((k + 0.5) * count) / Math.min(count, SAMPLE_TILES));
   let best = plans[plans.length - 1];
@@ -79,20 +118,30 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
     const sampled = keep ? sample.map((i) => kept[i]) : readSample(src, spec, fill, new Set(sample), tol);
     for (const p of plans) {
       let bytes = 0;
-      sample.forEach((index, k) => (bytes += p.one(sampled[k], index).length));
+      sample.forEach((index, k) => (bytes += encodeWith(p, sampled[k], index).length));
       if (bytes < bestBytes) {
         bestBytes = bytes;
         best = p;
       }
     }
   }
-  const plan = best;
+  return l2Plan(best, fill, (index) => (keep ? kept[index] : undefined));
+}
+
+/**
+ * A plan from its data: each tile encoded as the plan says, then held to its
+ * allotment by tighter residual coding, then exact storage. `kept` serves
+ * tiles prepared in the first pass (none by default).
+ */
+export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index: number) => PreparedTile | undefined = () => undefined): L2Plan {
+  const tol = data.tol;
   return {
-    name: plan.name,
-    kept: (index) => (keep ? kept[index] : undefined),
+    name: data.name,
+    data,
+    kept,
     encode(t, index) {
-      const allotment = plan.allot(index);
-      let payload = plan.one(t, index);
+      const allotment = data.allot[index];
+      let payload = encodeWith(data, t, index);
       let res = measure(payload, t, fill);
       // Enforce the tile's allotment: tighter residual coding, then exact storage.
       for (const f of [0.9, 0.7, 0.5]) {
@@ -138,7 +187,7 @@ function eckartYoungPlan(
   budget: number,
   share: number,
   tol: number,
-): Plan | null {
+): L2PlanData | null {
   // Cuts per tile, smallest singular value first (every tile's spectrum is complete). Keys are
   // made non-decreasing within a tile so that a global ascending order never cuts a tile's
   // larger value before its smaller ones.
@@ -189,9 +238,5 @@ function eckartYoungPlan(
   for (const p of predicted) sum += p;
   // A hair inside the budget, so rounding in the sums cannot tip the total over.
   const scale = sum > 0 ? (0.999 * budget) / sum : 0;
-  return {
-    name: `eckart-young ${share}`,
-    one: (t, index) => encodeL2(t, ranks[index], c, dw),
-    allot: (index) => predicted[index] * scale,
-  };
+  return { name: `eckart-young ${share}`, kind: 'rank', ranks: Int32Array.from(ranks), c, dw, ePrime: 0, allot: Float64Array.from(predicted, (p) => p * scale), tol };
 }

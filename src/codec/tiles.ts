@@ -57,10 +57,11 @@ export function extractTile(band: FloatArray, spec: FieldSpec, bandRows: number,
 }
 
 /**
- * Visit every tile in index order (slice by slice, row-major within a
- * slice: t = s * gr * gc + ti * gc + tj), reading one band of rows per tile row.
+ * Every tile in index order (slice by slice, row-major within a slice:
+ * t = s * gr * gc + ti * gc + tj), reading one band of rows per tile row
+ * when the first tile of that row is asked for.
  */
-export function forEachTile(src: BandSource, spec: FieldSpec, visit: (index: number, tile: FloatArray, m: number, n: number) => void): void {
+export function* tilesOf(src: BandSource, spec: FieldSpec): Generator<{ index: number; tile: FloatArray; m: number; n: number }> {
   const [gr, gc] = tileGrid(spec);
   const slices = spec.slices ?? 1;
   for (let s = 0; s < slices; s++) {
@@ -68,12 +69,14 @@ export function forEachTile(src: BandSource, spec: FieldSpec, visit: (index: num
       const r0 = ti * spec.tileRows;
       const rows = Math.min(spec.tileRows, spec.rows - r0);
       const band = src.band(s * spec.rows + r0, rows);
-      for (let tj = 0; tj < gc; tj++) {
-        const { tile, m, n } = extractTile(band, spec, rows, tj);
-        visit(s * gr * gc + ti * gc + tj, tile, m, n);
-      }
+      for (let tj = 0; tj < gc; tj++) yield { index: s * gr * gc + ti * gc + tj, ...extractTile(band, spec, rows, tj) };
     }
   }
+}
+
+/** Visit every tile in index order (see {@link tilesOf}). */
+export function forEachTile(src: BandSource, spec: FieldSpec, visit: (index: number, tile: FloatArray, m: number, n: number) => void): void {
+  for (const { index, tile, m, n } of tilesOf(src, spec)) visit(index, tile, m, n);
 }
 
 /** Min and max over finite values that are not the fill value, read band by band. */

@@ -13,7 +13,7 @@ import { closeSync, fstatSync, fsyncSync, openSync, readSync, writeSync } from '
 import { InputCode, InputError } from '../errors.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { HOST_LITTLE_ENDIAN, checkedProduct, itemSize, swapBytes } from './ndarray.js';
-import { MAX_NPY_HEADER_BYTES, parseNpyHeader } from './npy.js';
+import { MAX_NPY_HEADER_BYTES, npyHeader, parseNpyHeader } from './npy.js';
 import { openRegularSync } from './regular-file.js';
 
 /** A 2-D field read a band of rows at a time. */
@@ -253,6 +253,18 @@ export function openRawBands(path: string, shape: [number, number], dtype: Dtype
 }
 
 /**
+ * The bytes of `values` in the given byte order: a view of them, with no
+ * copy, when that is the host's order; else a byte-swapped copy.
+ */
+export function valueBytes(values: FloatArray, endian: 'little' | 'big'): Uint8Array {
+  const bytes = new Uint8Array(values.buffer, values.byteOffset, values.byteLength);
+  if ((endian === 'little') === HOST_LITTLE_ENDIAN) return bytes;
+  const copy = bytes.slice();
+  swapBytes(copy, values.BYTES_PER_ELEMENT);
+  return copy;
+}
+
+/**
  * Writes a .npy file (little-endian, C order) band by band: the header
  * first, then rows in order. {@link NpyBandWriter.close} checks that every
  * row was written, flushes and closes.
@@ -287,12 +299,7 @@ export class NpyBandWriter {
     }
     const rows = band.length / this.cols;
     if (this.rowsWritten + rows > this.shape[0]) throw new InputError(InputCode.Shape, `${this.path}: more than the ${this.shape[0]} rows declared`);
-    const bytes = new Uint8Array(band.buffer, band.byteOffset, band.byteLength);
-    if (!HOST_LITTLE_ENDIAN) {
-      const copy = bytes.slice();
-      swapBytes(copy, band.BYTES_PER_ELEMENT);
-      this.put(copy);
-    } else this.put(bytes);
+    this.put(valueBytes(band, 'little'));
     this.rowsWritten += rows;
   }
 
@@ -308,20 +315,4 @@ export class NpyBandWriter {
       closeSync(fd);
     }
   }
-}
-
-/**
- * The header formatNpy writes (format 1.0, little-endian, C order, padded
- * with spaces and '\n' so the data starts at a multiple of 64 bytes).
- */
-function npyHeader(shape: [number, number], dtype: Dtype): Uint8Array {
-  const dict = `{'descr': '${dtype === 'f32' ? '<f4' : '<f8'}', 'fortran_order': False, 'shape': (${shape[0]}, ${shape[1]}), }`;
-  const length = Math.ceil((10 + dict.length + 1) / 64) * 64 - 10;
-  const out = new Uint8Array(10 + length);
-  out.set([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0]);
-  new DataView(out.buffer).setUint16(8, length, true);
-  out.fill(0x20, 10, 10 + length - 1);
-  for (let i = 0; i < dict.length; i++) out[10 + i] = dict.charCodeAt(i);
-  out[10 + length - 1] = 0x0a;
-  return out;
 }

@@ -224,16 +224,15 @@ export function parseNpy(bytes: Uint8Array, name = 'input'): NdArray {
 }
 
 /**
- * Writes `arr` as a .npy file: little-endian, C order, format 1.0 unless the
- * header exceeds 65535 bytes (then 2.0). The header is
- * "{'descr': '<f8', 'fortran_order': False, 'shape': (2, 3), }" followed by
- * spaces and a final '\n' so that the data starts at a multiple of 64 bytes.
- * Throws InputError Dtype or Shape when `arr` is inconsistent.
+ * The header of a .npy file of `shape` and `dtype`, little-endian, C order:
+ * format 1.0 unless the header exceeds 65535 bytes (then 2.0). The dict
+ * "{'descr': '<f8', 'fortran_order': False, 'shape': (2, 3), }" is followed
+ * by spaces and a final '\n' so that the data starts at a multiple of 64
+ * bytes. The data may follow in one piece or band by band.
  */
-export function formatNpy(arr: NdArray): Uint8Array {
-  validateNdArray(arr, 'formatNpy');
-  const descr = arr.dtype === 'f32' ? '<f4' : '<f8';
-  const dict = `{'descr': '${descr}', 'fortran_order': False, 'shape': ${pyTuple(arr.shape)}, }`;
+export function npyHeader(shape: readonly number[], dtype: Dtype): Uint8Array {
+  const descr = dtype === 'f32' ? '<f4' : '<f8';
+  const dict = `{'descr': '${descr}', 'fortran_order': False, 'shape': ${pyTuple(shape)}, }`;
   let major = 1;
   let start = 10;
   let headerLength = Math.ceil((start + dict.length + 1) / ALIGN) * ALIGN - start;
@@ -242,8 +241,7 @@ export function formatNpy(arr: NdArray): Uint8Array {
     start = 12;
     headerLength = Math.ceil((start + dict.length + 1) / ALIGN) * ALIGN - start;
   }
-  const data = encodeFloats(arr.data, true);
-  const out = new Uint8Array(start + headerLength + data.length);
+  const out = new Uint8Array(start + headerLength);
   out.set(MAGIC, 0);
   out[6] = major;
   out[7] = 0;
@@ -252,6 +250,19 @@ export function formatNpy(arr: NdArray): Uint8Array {
   else view.setUint32(8, headerLength, true);
   for (let i = 0; i < headerLength - 1; i++) out[start + i] = i < dict.length ? dict.charCodeAt(i) : 0x20;
   out[start + headerLength - 1] = 0x0a;
-  out.set(data, start + headerLength);
+  return out;
+}
+
+/**
+ * Writes `arr` as a .npy file: {@link npyHeader}, then the values
+ * little-endian. Throws InputError Dtype or Shape when `arr` is inconsistent.
+ */
+export function formatNpy(arr: NdArray): Uint8Array {
+  validateNdArray(arr, 'formatNpy');
+  const head = npyHeader(arr.shape, arr.dtype);
+  const data = encodeFloats(arr.data, true);
+  const out = new Uint8Array(head.length + data.length);
+  out.set(head, 0);
+  out.set(data, head.length);
   return out;
 }

@@ -1,0 +1,167 @@
+/**
+ * Encoding a field's tiles on a {@link WorkerPool}. The field-level choices
+ * (value range, tolerance, L2 plan) are made first, as the synchronous
+ * encoder makes them (the per-tile work of the L2 planning pass on the
+ * pool); each worker is handed them once, then tiles one by one. Results
+ * come back in any order and are emitted in tile order, so the archive is
+ * byte-identical for every thread count.
+ *
+ * This thread reads the input bands and writes the payloads while the
+ * workers encode; at most {@link BANDS_PER_THREAD} bands of tiles per thread
+ * are in flight (read and not yet written), which bounds the memory.
+ */
+import { encodeTile, fieldBasis, FieldSummary, tileGrid, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
+import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2PlanData } from '../codec/plan-l2.js';
+import type { PreparedTile } from '../codec/prepare.js';
+import { ErrorTally } from '../codec/tally.js';
+import type { FloatArray } from '../types.js';
+import type { WorkerPool } from './pool.js';
+
+/** Bands of tiles per thread that may be in flight at once. */
+const BANDS_PER_THREAD = 2;
+
+/** {@link FieldChoices} as plain data, for a worker. */
+interface WireChoices extends Omit<FieldChoices, 'plan'> {
+  plan: L2PlanData | null;
+}
+
+/** One tile to encode: its raw values, or the tile prepared in the planning pass. */
+interface TileTask {
+  key: number;
+  index: number;
+  m: number;
+  n: number;
+  tile?: FloatArray;
+  prepared?: PreparedTile;
+}
+
+/** Field choices by key, in each worker. */
+const fields = new Map<number, FieldChoices>();
+let nextKey = 1;
+
+/** The tasks a worker runs for encoding (see worker.ts). */
+export const encodeTasks = {
+  'encode-setup'(body: { key: number; choices: WireChoices }) {
+    const w = body.choices;
+    fields.set(body.key, { ...w, plan: w.plan === null ? null : l2Plan(w.plan, w.fill) });
+    return { result: null };
+  },
+  'encode-tile'(body: TileTask) {
+    const c = fields.get(body.key);
+    // Internal assertion: the set-up message always precedes a field's tiles in the port.
+    if (c === undefined) throw new Error(`tile ${body.index} of an unknown field (key ${body.key})`);
+    const t = body.prepared ?? tileToEncode(c, body.index, body.tile!, body.m, body.n);
+    const o = encodeTile(c, t, body.index);
+    const own = o.payload.byteOffset === 0 && o.payload.byteLength === o.payload.buffer.byteLength;
+    const payload = own ? o.payload : o.payload.slice();
+    return { result: { ...o, payload }, transfer: [payload.buffer as ArrayBuffer] };
+  },
+  'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean }) {
+    const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep);
+    return { result: f, transfer: [f.sv2.buffer as ArrayBuffer] };
+  },
+  'encode-forget'(body: { key: number }) {
+    fields.delete(body.key);
+    return { result: null };
+  },
+};
+
+/**
+ * Run `post` for every item, at most `limit` at a time, and hand each result
+ * to `use` in item order as soon as the ones before it are used. At the
+ * first failure (of a task or of `use`) no more items are taken; tasks still
+ * running are let finish (their results dropped, so a caller's pool is left
+ * idle) unless the pool itself failed; then the failure is thrown.
+ */
+async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: T) => Promise<R>, use: (r: R, k: number) => void, limit: number): Promise<void> {
+  const done = new Map<number, R>();
+  let next = 0;
+  let submitted = 0;
+  let answered = 0;
+  let failure: { error: unknown } | null = null;
+  let wake: (() => void) | null = null;
+  const settle = () => {
+    answered++;
+    const w = wake;
+    wake = null;
+    w?.();
+  };
+  const waitFor = async (ready: () => boolean) => {
+    while (!ready()) await new Promise<void>((r) => (wake = r));
+  };
+  const finished = (k: number, r: R) => {
+    if (failure !== null) return;
+    done.set(k, r);
+    try {
+      for (let d = done.get(next); d !== undefined; d = done.get(next)) {
+        done.delete(next);
+        use(d, next);
+        next++;
+      }
+    } catch (e) {
+      failure = { error: e };
+    }
+  };
+  try {
+    for (const item of items) {
+      await waitFor(() => failure !== null || submitted - next < limit);
+      if (failure !== null) break;
+      const k = submitted++;
+      post(item).then(
+        (r) => {
+          finished(k, r);
+          settle();
+        },
+        (e: unknown) => {
+          failure ??= { error: e };
+          settle();
+        },
+      );
+    }
+    await waitFor(() => failure !== null || next === submitted);
+  } catch (e) {
+    failure ??= { error: e };
+  }
+  if (failure !== null) {
+    await waitFor(() => answered === submitted || pool.failed);
+    throw (failure as { error: unknown }).error;
+  }
+}
+
+/**
+ * Encode every tile of a field on `pool`, handing each to `emit` in tile
+ * order; the same result, and the same payloads, as encodeField. For L2
+ * bounds the planning pass (each tile's spectrum) runs on the pool too;
+ * the plan is then chosen here, as encodeField chooses it.
+ */
+export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool): Promise<FieldResult> {
+  const c = fieldBasis(src, spec);
+  const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
+  if (!c.pointwise) {
+    const first: FirstPassTile[] = [];
+    const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
+    const post = ({ tile, m, n }: { tile: FloatArray; m: number; n: number }) => pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n }, [tile.buffer as ArrayBuffer]);
+    await inOrder(pool, tilesOf(src, spec), post, (f) => first.push(f), limit);
+    c.plan = planL2(src, spec, c.tol, c.fill, first);
+  }
+  const key = nextKey++;
+  const { plan, ...rest } = c;
+  await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
+  const summary = new FieldSummary(c);
+  const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
+    const prepared = c.plan?.kept(index);
+    const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile };
+    return pool.run<TileOutcome>('encode-tile', task, prepared ? [] : [tile.buffer as ArrayBuffer]);
+  };
+  const use = (o: TileOutcome, index: number) => {
+    // The tally crossed threads as plain fields; give it its class back.
+    summary.add({ ...o, tally: Object.assign(new ErrorTally(), o.tally) });
+    emit(index, { payload: o.payload, stats: o.stats });
+  };
+  try {
+    await inOrder(pool, tilesOf(src, spec), post, use, limit);
+  } finally {
+    if (!pool.failed) await pool.broadcast('encode-forget', { key });
+  }
+  return summary.result();
+}

@@ -1,0 +1,165 @@
+/**
+ * Packing and reading on worker threads. Worker threads load the compiled
+ * modules (dist/parallel/worker.js), so these tests import the library from
+ * dist/ (built first when older than src/, as the command-line tests do),
+ * typed by the sources. The fields are open grids shipped by vega-datasets
+ * (see test/archive/datasets.ts).
+ */
+import { existsSync, mkdtempSync, readdirSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { pathToFileURL } from 'node:url';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { ensureBuilt, ROOT } from '../cli/helpers.js';
+import { mirrored, precip, volcano } from '../archive/datasets.js';
+import { expectSameBytes } from '../same-bytes.js';
+
+type Lib = typeof import('../../src/index.js');
+type Pool = typeof import('../../src/parallel/pool.js');
+type Encode = typeof import('../../src/parallel/encode.js');
+type Field = typeof import('../../src/codec/field.js');
+type Files = typeof import('../../src/cli/files.js');
+
+const dist = (path: string) => import(pathToFileURL(join(ROOT, 'dist', path)).href);
+let lib: Lib;
+let pool: Pool;
+let encode: Encode;
+let field: Field;
+let files: Files;
+
+beforeAll(async () => {
+  ensureBuilt();
+  [lib, pool, encode, field, files] = await Promise.all([dist('index.js'), dist('parallel/pool.js'), dist('parallel/encode.js'), dist('codec/field.js'), dist('cli/files.js')]);
+}, 120_000);
+
+const dir = mkdtempSync(join(tmpdir(), 'rankfield-threads-'));
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
+
+/**
+ * The volcano grid (61 x 87) with missing cells of both kinds: heights
+ * below 100 m become the fill value -999, and a 3 x 4 block becomes NaN.
+ */
+function volcanoWithFill(): { values: Float32Array; shape: [number, number]; fill: number } {
+  const g = volcano();
+  const values = Float32Array.from(g.values, (v) => (v < 100 ? -999 : v));
+  for (let i = 30; i < 33; i++) for (let j = 40; j < 44; j++) values[i * g.shape[1] + j] = Number.NaN;
+  return { values, shape: g.shape, fill: -999 };
+}
+
+/** annual-precip mirror-tiled to 400 x 500 (more than 2^16 values, so reads use worker threads), packed once. */
+const big: { values: Float32Array; bytes: Uint8Array } = { values: new Float32Array(0), bytes: new Uint8Array(0) };
+beforeAll(() => {
+  big.values = mirrored(precip(), 500, 0, 400);
+  big.bytes = lib.pack(big.values, [400, 500], { bound: 'rel:1e-3', tile: 48 });
+}, 60_000);
+
+const same = (a: Uint8Array, b: Uint8Array) => Buffer.from(a).equals(Buffer.from(b));
+
+// Each case packs a 61 x 87 field three times (pack, then 2 and 3 threads, each
+// starting its workers): a second or two idle, several times that on a busy 2-core machine.
+describe('packAsync: the same archive for every thread count', () => {
+  const cases: [string, string, number | [number, number]][] = [
+    ['pointwise rel:1e-3, fill cells and NaN', 'rel:1e-3', 16],
+    ['psnr:60, fill cells and NaN', 'psnr:60', [12, 20]],
+    ['abs:0.5, fill cells and NaN', 'abs:0.5', 16],
+  ];
+  for (const [label, bound, tile] of cases) {
+    it(label, async () => {
+      const { values, shape, fill } = volcanoWithFill();
+      const o = { bound, tile, fill };
+      // One thread is pack() itself (packAsync with threads 1 runs it in the calling thread).
+      const sync = lib.pack(values, shape, o);
+      for (const threads of [2, 3]) expect(same(await lib.packAsync(values, shape, { ...o, threads }), sync), `threads ${threads}`).toBe(true);
+      // And the archive holds its bound: the decoded field against the original.
+      const report = await (await lib.open(sync)).check(values);
+      expect(report.failures).toEqual([]);
+    }, 120_000);
+  }
+
+  it('auto tile and a field of slices through ArchiveBuilder.addAsync', async () => {
+    const g = volcano();
+    const one = Float32Array.from(g.values);
+    const stack = new Float32Array(one.length * 3);
+    for (let s = 0; s < 3; s++) stack.set(one.map((v) => v + 10 * s), s * one.length);
+    const build = async (threads: number | null) => {
+      const sink = new lib.MemorySink();
+      const b = new lib.ArchiveBuilder(sink, {}, { slices: true });
+      const o = { bound: 'psnr:50', name: 'stack', slices: 3, ndShape: [3, ...g.shape], tile: 'auto' as const };
+      if (threads === null) b.add(stack, g.shape, o);
+      else await b.addAsync(stack, g.shape, { ...o, threads });
+      await b.addAsync(one, g.shape, { bound: 'rel:1e-4', name: 'plain', tile: 16, threads: threads ?? 1 });
+      b.finish();
+      return sink.bytes();
+    };
+    expect(same(await build(3), await build(null))).toBe(true);
+  }, 120_000);
+
+  it('refuses a thread count that is not an integer from 1 to MAX_THREADS', async () => {
+    const { values, shape } = volcanoWithFill();
+    for (const threads of [0, -2, 1.5, Number.NaN, lib.MAX_THREADS + 1]) {
+      await expect(lib.packAsync(values, shape, { bound: 'rel:1e-2', threads })).rejects.toMatchObject({ name: 'InputError', code: 'option' });
+    }
+  });
+});
+
+describe('readBands: a field band by band, on worker threads', () => {
+  it('gives the values of Archive.read, for the whole field and for windows, with 1 and 2 threads', async () => {
+    const bytes = big.bytes;
+    const archive = await lib.open(bytes);
+    for (const window of [{}, { rows: [37, 301] as [number, number], cols: [5, 497] as [number, number] }]) {
+      const want = await archive.read(undefined, window);
+      for (const threads of [1, 2]) {
+        const parts: Float32Array[] = [];
+        const got = await lib.readBands(archive, undefined, { ...window, threads, location: bytes, bandCells: 30_000 }, (v) => void parts.push(v as Float32Array));
+        expect(parts.length).toBeGreaterThan(2);
+        const joined = new Float32Array(want.values.length);
+        let at = 0;
+        for (const p of parts) {
+          joined.set(p, at);
+          at += p.length;
+        }
+        expect(at).toBe(want.values.length);
+        expectSameBytes(joined, want.values, `threads ${threads}`);
+        expect(got.shape).toEqual(want.shape);
+        expect(got.window).toEqual(want.window);
+        expect(got.achieved.maxErr).toBe(want.achieved.maxErr);
+        expect(got.achieved.rmse).toBeCloseTo(want.achieved.rmse, 12);
+      }
+    }
+  }, 60_000);
+
+  it('a damaged tile fails the read with the FormatError Archive.read gives', async () => {
+    const bytes = big.bytes;
+    const archive = await lib.open(bytes);
+    const e = await archive.tileEntry(undefined, 20);
+    const bad = bytes.slice();
+    bad[e.offset + 3] ^= 0x40;
+    const damaged = await lib.open(bad);
+    const want = await damaged.read().catch((err: unknown) => err);
+    expect(want).toBeInstanceOf(lib.FormatError);
+    const got = await lib.readBands(damaged, undefined, { threads: 2, location: bad, bandCells: 10_000 }, () => undefined).catch((err: unknown) => err);
+    expect(got).toBeInstanceOf(lib.FormatError);
+    expect(got).toMatchObject({ code: 'checksum', message: (want as Error).message });
+  }, 60_000);
+});
+
+describe('a worker thread that dies', () => {
+  it('fails the encoding with one error, and the output file is not left behind', async () => {
+    // Workers with a heap far too small for a 256 x 256 tile: they run out of memory
+    // (ERR_WORKER_OUT_OF_MEMORY), which the pool reports as a failed worker.
+    const p = new pool.WorkerPool(2, { resourceLimits: { maxOldGenerationSizeMb: 4, maxYoungGenerationSizeMb: 1 } });
+    const values = mirrored(precip(), 512, 0, 512);
+    const spec = { name: 'f', dtype: 'f32' as const, rows: 512, cols: 512, tileRows: 256, tileCols: 256, bound: { mode: 'rel' as const, value: 1e-4 }, fill: null };
+    const out = join(dir, 'dead.rfz');
+    try {
+      const run = files.writeOutputWith(out, { force: false, inputs: [] }, async (sink) => {
+        await encode.encodeFieldParallel(field.memoryBands(values, 512), spec, (_t, tile) => sink.write(tile.payload), p);
+      });
+      await expect(run).rejects.toThrow(/worker thread (failed|stopped)/);
+    } finally {
+      await p.close();
+    }
+    expect(existsSync(out)).toBe(false);
+    expect(readdirSync(dir).filter((f) => f.endsWith('.tmp'))).toEqual([]);
+  }, 60_000);
+});
