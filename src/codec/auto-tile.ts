@@ -16,11 +16,15 @@ const WHOLE_CELLS = 1 << 18;
 /**
  * A field at most this thin (a time x space matrix, a few levels of a
  * long section) is also tried with tiles across its whole short side and
- * 512 to 4096 along the long one, and sampled along its long side up to
- * {@link THIN_SAMPLE_CELLS}.
+ * about 512 to 4096 along the long one, and sampled along its long side up
+ * to {@link THIN_SAMPLE_CELLS}. Each length is the long side split evenly
+ * into the whole number of parts nearest to it (6144 gives 512, 1024, 2048
+ * and 3072), so that no thin tile is left over at the end, and at most
+ * {@link MAX_STRIP} (the format allows tile sides up to 4096 in the writer).
  */
 const THIN_SIDE = 256;
 const THIN_LENGTHS = [512, 1024, 2048, 4096];
+const MAX_STRIP = 4096;
 const THIN_SAMPLE_CELLS = 1 << 20;
 
 /** Tile shapes tried for a field of rows x cols. */
@@ -38,7 +42,11 @@ export function tileCandidates(rows: number, cols: number): [number, number][] {
   for (const s of SQUARE) add(s, s);
   if (rows * cols <= WHOLE_CELLS) add(rows, cols);
   else if (Math.min(rows, cols) <= THIN_SIDE) {
-    for (const l of THIN_LENGTHS) if (l < Math.max(rows, cols)) add(rows <= cols ? rows : l, rows <= cols ? l : cols);
+    const long = Math.max(rows, cols);
+    for (const l of THIN_LENGTHS) {
+      const len = Math.ceil(long / Math.max(1, Math.round(long / l)));
+      if (len <= MAX_STRIP) add(rows <= cols ? rows : len, rows <= cols ? len : cols);
+    }
   }
   return out;
 }

@@ -35,10 +35,17 @@ describe('tile candidates', () => {
       [128, 512],
       [128, 1024],
       [128, 2048],
-      [128, 4096],
+      [128, 3072],
     ]);
-    // Tall and thin: the same strips, turned.
-    expect(tileCandidates(3000, 100)).toContainEqual([2048, 100]);
+    // Tall and thin: the strips, turned; 3000 splits into 6, 3 and 1 parts (the whole side twice: one candidate).
+    expect(tileCandidates(3000, 100)).toEqual([
+      [64, 64],
+      [128, 100],
+      [256, 100],
+      [500, 100],
+      [1000, 100],
+      [3000, 100],
+    ]);
     expect(tileCandidates(4096, 4096)).toEqual([
       [64, 64],
       [128, 128],
