@@ -13,6 +13,7 @@ import { HTTP_DEFAULTS } from './http.js';
 import { Worker } from 'node:worker_threads';
 import { addOutputOptions } from './output.js';
 import { registerPack } from './pack.js';
+import { registerPreview } from './preview.js';
 import { registerShow } from './show.js';
 import { registerUnpack } from './unpack.js';
 
@@ -65,6 +66,7 @@ institution's data-retention rules.`,
   registerShow(program, ctx);
   registerCheck(program, ctx);
   registerDemo(program, ctx);
+  registerPreview(program, ctx);
   addOutputOptions(program);
   return program;
 }
