@@ -14,6 +14,7 @@ import { Worker } from 'node:worker_threads';
 import { addOutputOptions } from './output.js';
 import { registerPack } from './pack.js';
 import { registerPreview } from './preview.js';
+import { registerTrial } from './trial.js';
 import { registerShow } from './show.js';
 import { registerUnpack } from './unpack.js';
 
@@ -67,6 +68,7 @@ institution's data-retention rules.`,
   registerCheck(program, ctx);
   registerDemo(program, ctx);
   registerPreview(program, ctx);
+  registerTrial(program, ctx);
   addOutputOptions(program);
   return program;
 }

@@ -100,8 +100,9 @@ export function heatmap(spec: HeatmapSpec): Raster {
   const legendW = Math.max(0, ...legend.map((l) => BAR_W + 8 + Raster.textWidth(l.label, TEXT)));
   const barX = PAD + imgW + 24;
   const sideW = Math.max(BAR_W + 8 + labelW, legendW, Raster.textWidth(spec.barLabel, TEXT));
-  const width = Math.max(barX + sideW + PAD, 480);
-  const chars = Math.floor((width - 2 * PAD) / Raster.textWidth('x', TEXT) / 1.2);
+  const width = Math.max(barX + sideW + PAD, 600);
+  // Characters per line: each glyph and its gap take 6 font cells.
+  const chars = Math.floor((width - 2 * PAD) / (6 * TEXT));
   const title = spec.title.flatMap((t) => wrap(t, chars));
   const notes = spec.notes.flatMap((t) => wrap(t, chars));
   const top = PAD + title.length * LINE + 8;
