@@ -236,7 +236,7 @@ export function registerTrial(program: Command, ctx: Context): void {
     .action(async (input: string, flags: TrialFlags) => {
       const start = performance.now();
       const out = new Output(ctx, flags);
-      if (isNetcdfPath(input)) throw new UsageError(`trial reads .npy or raw input; '${printable(input)}' is NetCDF: unpack one variable to .npy first (rankfield unpack ARCHIVE --var NAME -o NAME.npy works only on archives, so save the variable as .npy with your NetCDF tools)`);
+      if (isNetcdfPath(input)) throw new UsageError(`trial reads .npy or raw input, not NetCDF yet: save one 2-D variable of '${printable(input)}' as .npy first`);
       await statInput(input);
       const io = { force: flags.force === true, inputs: [input] };
       const pictures = flags.pictures ?? null;
