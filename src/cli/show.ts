@@ -168,7 +168,7 @@ export function factsText(a: ArchiveFacts): string {
       `field '${printable(f.name)}'`,
       `  shape        ${f.slices > 1 ? `${f.slices} slices of ` : ''}${f.shape[0]} x ${f.shape[1]} ${f.dtype}; tiles ${f.tile[0]} x ${f.tile[1]} (${grid} = ${f.tiles} tiles)`,
       `  bound        ${f.bound.text} -> ${f.bound.limits === 'pointwise' ? 'pointwise limit' : 'RMSE limit'} E = ${num(f.bound.tolerance)} (${range})`,
-      `  missing      ${f.cells - f.validCells} of ${f.cells} cells (NaN, infinities${f.fill === null ? '' : `, fill ${f.fill}`}), kept exactly`,
+      `  missing      ${f.cells - f.validCells} of ${f.cells} cells (NaN, infinities${f.fill === null ? '' : `, fill ${num(f.fill)}`}), kept exactly`,
       `  payload      ${bytesText(f.payloadBytes)}; ratio ${f.ratio.toFixed(2)}; ${f.bitsPerValue.toFixed(3)} bits per value`,
       `  holds        ${tileUseText(f.use)}`,
       `  bytes        ${f.bytes ? sharesText(f.bytes) : '(not counted for an archive read from a URL: that needs every payload)'}`,

@@ -97,7 +97,7 @@ export async function fileShares(path: string, fields: Pick<FieldIndex, 'offset'
 /** "12 of 40 tiles (30%) use a low-rank part, mean rank 2.3; 28 are residual only (rank 0); 0 stored exactly" */
 export function tileUseText(u: TileUse): string {
   const pct = (n: number) => `${u.tiles > 0 ? Math.round((100 * n) / u.tiles) : 0}%`;
-  const low = u.lowRank > 0 ? `${u.lowRank} of ${u.tiles} tiles (${pct(u.lowRank)}) use a low-rank part, of mean rank ${u.meanRank.toFixed(1)}` : `no tile of ${u.tiles} uses a low-rank part`;
+  const low = u.lowRank > 0 ? `${u.lowRank} of ${u.tiles} tiles (${pct(u.lowRank)}) use a low-rank part, of mean rank ${u.meanRank.toFixed(1)}` : `no low-rank part in any of the ${u.tiles} tile${u.tiles === 1 ? '' : 's'}`;
   const parts = [low];
   if (u.residualOnly > 0) parts.push(`${u.residualOnly} (${pct(u.residualOnly)}) ${u.residualOnly === 1 ? 'is' : 'are'} a mean and a coded residual only (rank 0)`);
   if (u.exact > 0) parts.push(`${u.exact} (${pct(u.exact)}) stored exactly`);

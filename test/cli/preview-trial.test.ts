@@ -16,7 +16,7 @@ import { CLI_TIMEOUT, ensureBuilt, expectCliError, rf, tempDir, volcano } from '
 
 const { dir, remove } = tempDir();
 const vol = volcano();
-const [ROWS, COLS] = vol.shape;
+const COLS = vol.shape[1];
 
 beforeAll(() => {
   ensureBuilt();
