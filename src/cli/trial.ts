@@ -67,6 +67,10 @@ the bytes is low-rank factors and which residual. A sample is not the whole
 field: ratios on the full field differ, most where the field changes
 character from place to place.
 
+Whatever bound you choose, packing is lossy: it discards information. Keep
+the original files until rankfield check ARCHIVE --against ORIGINAL passes,
+and follow your institution's data-retention rules.
+
 --pictures DIR writes one error picture per bound, DIR/trial-MODE-VALUE.png
 (|decoded - original| / E per cell; see rankfield preview --help).
 
