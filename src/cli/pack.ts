@@ -205,7 +205,7 @@ async function packNetcdf(input: string, flags: PackFlags, out: Output, start: n
       const bar = out.tileProgress(`packing '${printable(f.name)}'`, f.read.values.byteLength);
       const fieldThreads = defaultThreads(flags.threads, f.slices * f.rows * f.cols);
       if (threads === undefined || (fieldThreads ?? Infinity) > threads) threads = fieldThreads;
-      try {
+      // The bar holds a timer: stopped however the field ends.
       await builder.addAsync(f.read.values, [f.rows, f.cols], {
         onProgress: bar.onProgress,
         threads: fieldThreads,
@@ -218,10 +218,7 @@ async function packNetcdf(input: string, flags: PackFlags, out: Output, start: n
         ndShape: f.read.shape,
         dims: f.read.dims,
         layout: f.layout,
-      });
-      } finally {
-        bar.stop();
-      }
+      }).finally(() => bar.stop());
     }
     builder.finish();
   });
