@@ -3,7 +3,7 @@
  * directory, tail (spec/FORMAT.md). This module knows bytes, CRCs and the
  * structure of the header and index; it knows nothing of how tiles are coded.
  */
-import { Decoder, encode } from '@msgpack/msgpack';
+import { Decoder } from '@msgpack/msgpack';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
@@ -15,15 +15,15 @@ export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0
 /** Magic bytes that close every archive. */
 export const TAIL_MAGIC = Uint8Array.of(0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a);
 /** Format versions this reader understands. */
-export const VERSIONS = [3] as const;
+export const VERSIONS = [4] as const;
 /** Version written by this writer. */
-export const VERSION = 3;
-export const PROLOGUE_SIZE = 16;
+export const VERSION = 4;
+export const PROLOGUE_SIZE = 12;
 /** Required flag bit 0: some field stacks more than one slice (spec/FORMAT.md, "Required flags"). */
 export const FLAG_SLICES = 0x1;
 /** Required flags this reader understands. */
 export const KNOWN_FLAGS = FLAG_SLICES;
-export const TAIL_SIZE = 48;
+export const TAIL_SIZE = 24;
 /** Tile rows and columns of one index page, unless a field asks for others: 64 tiles, about 1.6 KB of index. */
 export const DEFAULT_PAGE: readonly [number, number] = [8, 8];
 
@@ -93,7 +93,6 @@ export class ContainerWriter {
     w.bytes(MAGIC);
     w.u16(VERSION);
     w.u16(flags);
-    w.u32(0); // reserved
     return w.finish();
   }
 
@@ -137,9 +136,6 @@ export class ContainerWriter {
     // Internal assertion: ArchiveBuilder.finish() refuses a second call first, so no input reaches this.
     if (this.finished) throw new Error('archive already finished');
     this.finished = true;
-    const h = encodeCompact(headerForDisk(header));
-    const headerOffset = this.pos;
-    this.put(h);
     const fields = index.fields.map((ix, i) => {
       const fh = header.fields[i];
       const page: [number, number] = [pages[i][0], pages[i][1]];
@@ -162,19 +158,16 @@ export class ContainerWriter {
       }
       return directoryForDisk(d);
     });
-    const dir = encode(fields);
-    const dirOffset = this.pos;
+    const h = encodeCompact(headerForDisk(header));
+    this.put(h);
+    const dir = encodeCompact(fields);
     this.put(dir);
     const t = new ByteWriter(TAIL_SIZE);
-    t.u64(headerOffset);
     t.u32(h.length);
-    t.u32(crc32(h));
-    t.u64(dirOffset);
     t.u32(dir.length);
-    t.u32(crc32(dir));
     t.u16(VERSION);
     t.u16(this.flags);
-    t.u32(crc32(t.view8()));
+    t.u32(crc32(t.view8(), crc32(dir, crc32(h))));
     t.bytes(TAIL_MAGIC);
     this.put(t.finish());
   }
@@ -428,45 +421,37 @@ export async function readContainer(src: ByteSource, given?: Partial<Limits>): P
   checkVersion(version, flags, label);
   const tail = new ByteReader(await src.read(size - TAIL_SIZE, TAIL_SIZE), `${label} tail`, size - TAIL_SIZE, 'file offset');
   const tailBytes = tail.bytes;
-  if (!same(tailBytes.subarray(40), TAIL_MAGIC)) {
+  if (!same(tailBytes.subarray(16), TAIL_MAGIC)) {
     throw new FormatError(FormatCode.Truncated, `${label}: no archive tail at the end of the file (truncated or not a rankfield archive: bytes ${size - 8}..${size} are not the tail magic)`);
   }
-  if (crc32(tailBytes.subarray(0, 36)) !== new DataView(tailBytes.buffer, tailBytes.byteOffset + 36, 4).getUint32(0, true)) {
-    throw new FormatError(FormatCode.Checksum, `${label}: tail CRC-32 mismatch at offset ${size - TAIL_SIZE}`);
-  }
-  const headerOffset = tail.u64('header offset');
   const headerLength = tail.u32('header length');
-  const headerCrc = tail.u32('header CRC');
-  const dirOffset = tail.u64('index directory offset');
   const dirLength = tail.u32('index directory length');
-  const dirCrc = tail.u32('index directory CRC');
   const tailVersion = tail.u16('version');
   const tailFlags = tail.u16('flags');
+  const blockCrc = tail.u32('CRC');
   if (tailVersion !== version || tailFlags !== flags) {
     throw new FormatError(FormatCode.Malformed, `${label}: tail says version ${tailVersion} flags ${tailFlags}, prologue says ${version} flags ${flags}`);
   }
   const end = size - TAIL_SIZE;
-  for (const [what, off, len, max] of [
-    ['header', headerOffset, headerLength, limits.maxHeaderBytes],
-    ['index directory', dirOffset, dirLength, limits.maxIndexBytes],
-  ] as const) {
-    if (off < PROLOGUE_SIZE || off + len > end) {
-      throw new FormatError(FormatCode.Malformed, `${label}: ${what} at ${off}+${len} lies outside bytes ${PROLOGUE_SIZE}..${end}`);
-    }
-    if (len > max) throw new FormatError(FormatCode.Limit, `${label}: ${what} of ${len} bytes exceeds the limit of ${max}`);
+  if (headerLength > limits.maxHeaderBytes) throw new FormatError(FormatCode.Limit, `${label}: header of ${headerLength} bytes exceeds the limit of ${limits.maxHeaderBytes}`);
+  if (dirLength > limits.maxIndexBytes) throw new FormatError(FormatCode.Limit, `${label}: index directory of ${dirLength} bytes exceeds the limit of ${limits.maxIndexBytes}`);
+  if (PROLOGUE_SIZE + headerLength + dirLength > end) {
+    throw new FormatError(FormatCode.Malformed, `${label}: a header of ${headerLength} bytes and an index directory of ${dirLength} bytes do not fit between the prologue and the tail (${end - PROLOGUE_SIZE} bytes)`);
   }
-  if (headerOffset < dirOffset + dirLength && dirOffset < headerOffset + headerLength) {
-    throw new FormatError(FormatCode.Malformed, `${label}: header (${headerOffset}+${headerLength}) and index directory (${dirOffset}+${dirLength}) overlap`);
+  // The header and the directory lie back to back just before the tail: one read, one CRC (with the tail's first 12 bytes).
+  const dirOffset = end - dirLength;
+  const headerOffset = dirOffset - headerLength;
+  const block = await src.read(headerOffset, headerLength + dirLength);
+  if (crc32(tailBytes.subarray(0, 12), crc32(block)) !== blockCrc) {
+    throw new FormatError(FormatCode.Checksum, `${label}: CRC-32 mismatch over the header, index directory and tail (bytes ${headerOffset}..${size - 12}): one of them is damaged`);
   }
-  const hb = await src.read(headerOffset, headerLength);
-  if (crc32(hb) !== headerCrc) throw new FormatError(FormatCode.Checksum, `${label}: header CRC-32 mismatch (header at offset ${headerOffset})`);
+  const hb = block.subarray(0, headerLength);
   const header = checkHeader(decodeBlock(hb, `header (at offset ${headerOffset})`, label, limits), limits, label, version);
   const sliced = header.fields.find((f) => (f.slices ?? 1) > 1);
   if (sliced && (flags & FLAG_SLICES) === 0) {
     throw new FormatError(FormatCode.Malformed, `${label}: field ${quoteName(sliced.name)} holds ${sliced.slices} slices but required flag bit 0 (slices) is not set`);
   }
-  const db = await src.read(dirOffset, dirLength);
-  if (crc32(db) !== dirCrc) throw new FormatError(FormatCode.Checksum, `${label}: index directory CRC-32 mismatch (directory at offset ${dirOffset})`);
+  const db = block.subarray(headerLength);
   const bounds = { start: PROLOGUE_SIZE, end, header: { offset: headerOffset, length: headerLength }, directory: { offset: dirOffset, length: dirLength } };
   const { directory, payloadEnd } = checkDirectory(decodeBlock(db, `index directory (at offset ${dirOffset})`, label, limits), header, bounds, limits, label);
   return { size, version, header, directory, payloadEnd, limits };

@@ -129,7 +129,7 @@ export interface ArchiveIndex {
 }
 
 /**
- * One field in the index directory (version 3; offsets are worked out, not stored): the page grid, where each
+ * One field in the index directory (since version 3, offsets are worked out, not stored): the page grid, where each
  * index page is with its CRC-32, the payload bytes of each page's tiles, and
  * the whole-field figures (spec/FORMAT.md, section 7).
  */
@@ -547,7 +547,7 @@ export function pageOf(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly nu
 
 /** Where the index blocks are, for the checks of the directory. */
 export interface BlockBounds {
-  /** First byte after the prologue (16). */
+  /** First byte after the prologue (12). */
   start: number;
   /** First byte of the tail. */
   end: number;
@@ -568,20 +568,21 @@ const DIRECTORY_COLUMNS = [
  * array `[page, page_length, page_crc, data_length, summary]`; nothing is
  * stored of where pages and payload runs are, because the layout is
  * contiguous: the payload runs of every field, in order, fill the bytes
- * from the prologue to the header exactly, and the index pages, in order,
- * fill the bytes from the header's end to the directory exactly, which ends
- * where the tail begins. Returns the directory with those offsets worked
- * out, and the end of the payload region (the header's offset).
+ * from the prologue on, the index pages, in order, follow them and fill
+ * the bytes up to the header exactly, and the header, the directory and
+ * the tail follow one another to the end of the file. Returns the
+ * directory with those offsets worked out, and the end of the payload
+ * region (where the first index page begins).
  */
 export function checkDirectory(raw: unknown, header: ArchiveHeader, b: BlockBounds, limits: Limits, label: string): { directory: ArchiveDirectory; payloadEnd: number } {
   if (!Array.isArray(raw)) fail(label, `index directory is ${describeValue(raw)}, not an array of fields`);
   if (raw.length !== header.fields.length) fail(label, `index directory lists ${raw.length} fields, header ${header.fields.length}`);
-  const payloadEnd = b.header.offset;
-  const pagesStart = b.header.offset + b.header.length;
-  if (b.directory.offset + b.directory.length !== b.end) fail(label, `the index directory (${b.directory.offset}+${b.directory.length}) does not end where the tail begins (${b.end})`);
-  let pageAt = pagesStart;
+  const pagesEnd = b.header.offset;
+  if (b.header.offset + b.header.length !== b.directory.offset || b.directory.offset + b.directory.length !== b.end) {
+    fail(label, `the header (${b.header.offset}+${b.header.length}) and the index directory (${b.directory.offset}+${b.directory.length}) do not lie back to back before the tail (${b.end})`);
+  }
   let dataAt = b.start;
-  const fields = raw.map((f: unknown, i: number): FieldDirectory => {
+  const parsed = raw.map((f: unknown, i: number) => {
     const h = header.fields[i];
     const where = `${label} index directory of field ${quoteName(h.name)}`;
     if (!Array.isArray(f) || f.length < 5) fail(where, `is ${describeValue(f)}, not an array of 5 elements [page, page_length, page_crc, data_length, summary]`);
@@ -597,7 +598,6 @@ export function checkDirectory(raw: unknown, header: ArchiveHeader, b: BlockBoun
       }
       return col as number[];
     });
-    const pageOffset: number[] = [];
     const dataOffset: number[] = [];
     for (let p = 0; p < pages; p++) {
       if (pageCrc[p] > 0xffffffff) fail(where, `page ${p} crc ${pageCrc[p]} is not a 32-bit value`);
@@ -605,11 +605,8 @@ export function checkDirectory(raw: unknown, header: ArchiveHeader, b: BlockBoun
       if (pageLength[p] > limits.maxIndexBytes) throw new FormatError(FormatCode.Limit, `${where}: page ${p} of ${pageLength[p]} bytes exceeds the limit of ${limits.maxIndexBytes}`);
       const n = pageTileCount(h, page, p);
       if (dataLength[p] < 2 * n) fail(where, `page ${p} payload run of ${dataLength[p]} bytes cannot hold its ${n} tiles (2 bytes at least each)`);
-      if (pageAt + pageLength[p] > b.directory.offset) fail(where, `page ${p} at ${pageAt}+${pageLength[p]} reaches past the index directory at ${b.directory.offset} (index pages lie back to back from the header's end)`);
-      if (dataAt + dataLength[p] > payloadEnd) fail(where, `page ${p} payload run ${dataAt}+${dataLength[p]} reaches past the payload bytes ${b.start}..${payloadEnd} (payload runs lie back to back from byte ${b.start})`);
-      pageOffset.push(pageAt);
+      if (dataAt + dataLength[p] > pagesEnd) fail(where, `page ${p} payload run ${dataAt}+${dataLength[p]} reaches past the header at ${pagesEnd} (payload runs lie back to back from byte ${b.start}, before the index pages)`);
       dataOffset.push(dataAt);
-      pageAt += pageLength[p];
       dataAt += dataLength[p];
     }
     const s = f[4];
@@ -619,16 +616,27 @@ export function checkDirectory(raw: unknown, header: ArchiveHeader, b: BlockBoun
       if (typeof x !== 'number' || !(x >= 0) || !Number.isFinite(x)) fail(where, `summary ${k} must be a finite number >= 0, got ${describeValue(x)}`);
       if (s[0] === 0 && x !== 0) fail(where, `summary ${k} is ${x} but the field has no valid cell`);
     }
-    return { page, page_offset: pageOffset, page_length: pageLength, page_crc: pageCrc, data_offset: dataOffset, data_length: dataLength, summary: { valid: s[0], max_err: s[1] as number, rmse: s[2] as number } };
+    return { where, page, pageLength, pageCrc, dataOffset, dataLength, summary: { valid: s[0], max_err: s[1] as number, rmse: s[2] as number } };
   });
-  if (dataAt !== payloadEnd) fail(label, `the payload runs end at ${dataAt}, the header begins at ${payloadEnd} (payloads fill the bytes between the prologue and the header exactly)`);
-  if (pageAt !== b.directory.offset) fail(label, `the index pages end at ${pageAt}, the index directory begins at ${b.directory.offset} (pages fill the bytes between the header and the directory exactly)`);
+  // The index pages follow the last payload run, in archive order, and end where the header begins.
+  const payloadEnd = dataAt;
+  let pageAt = payloadEnd;
+  const fields = parsed.map(({ where, page, pageLength, pageCrc, dataOffset, dataLength, summary }): FieldDirectory => {
+    const pageOffset: number[] = [];
+    for (let p = 0; p < pageLength.length; p++) {
+      if (pageAt + pageLength[p] > pagesEnd) fail(where, `page ${p} at ${pageAt}+${pageLength[p]} reaches past the header at ${pagesEnd} (index pages lie back to back from the end of the payload runs)`);
+      pageOffset.push(pageAt);
+      pageAt += pageLength[p];
+    }
+    return { page, page_offset: pageOffset, page_length: pageLength, page_crc: pageCrc, data_offset: dataOffset, data_length: dataLength, summary };
+  });
+  if (pageAt !== pagesEnd) fail(label, `the index pages end at ${pageAt}, the header begins at ${pagesEnd} (payload runs and index pages fill the bytes between the prologue and the header exactly)`);
   return { directory: { fields }, payloadEnd };
 }
 
 /** The on-disk form of a field's directory entry (spec/FORMAT.md, section 7.2): offsets are not stored. */
 export function directoryForDisk(d: FieldDirectory): unknown[] {
-  return [d.page, d.page_length, d.page_crc, d.data_length, [d.summary.valid, d.summary.max_err, d.summary.rmse]];
+  return [d.page, d.page_length, d.page_crc, d.data_length, [d.summary.valid, up32(d.summary.max_err), up32(d.summary.rmse)]];
 }
 
 /** Tiles of index page p (edge pages hold fewer). */

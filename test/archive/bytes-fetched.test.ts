@@ -61,11 +61,11 @@ describe('a 256x256 window of a 2048x2048 archive over HTTP', () => {
     expect(tiles).toHaveLength(25); // 5 x 5 tiles: the window is not aligned to the tile grid
     const payload = tiles.reduce((s, t) => s + ix.length[t], 0);
     const tail = new DataView(bytes.buffer, bytes.byteOffset + bytes.length - TAIL_SIZE, TAIL_SIZE);
-    const headerLength = tail.getUint32(8, true);
+    const headerLength = tail.getUint32(0, true);
     // Since version 2: the index directory, and the index pages holding the window's tiles.
     const d = local.directory.fields[0];
     const pages = new Set(tiles.map((t) => Math.floor(Math.floor(t / gc) / d.page[0]) * Math.ceil(gc / d.page[1]) + Math.floor((t % gc) / d.page[1])));
-    const indexLength = tail.getUint32(24, true) + [...pages].reduce((s, p) => s + d.page_length[p], 0);
+    const indexLength = tail.getUint32(4, true) + [...pages].reduce((s, p) => s + d.page_length[p], 0);
     const budget = payload + indexLength + TAIL_SIZE + headerLength;
 
     server.reset();

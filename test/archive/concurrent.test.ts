@@ -35,7 +35,7 @@ describe('100 concurrent window reads over a flaky HTTP server', () => {
     // Cut every fifth response that serves payload bytes (not the probe, tail, header or index).
     server.misbehave = (asked, req, res, body) => {
       const r = asked.range;
-      if (!r || r[0] < 16 || r[1] >= body.length - 48 - 2048) return false;
+      if (!r || r[0] < 12 || r[1] >= body.length - 24 - 2048) return false; // after the 12-byte prologue, well before the 24-byte tail
       payloadResponses++;
       if (payloadResponses % 5 !== 0) return false;
       cuts++;
@@ -67,7 +67,7 @@ describe('100 concurrent window reads over a flaky HTTP server', () => {
     const a = await open(new HttpSource(`${server.url}/p.rfz`, { retryDelay: 1 }));
     server.misbehave = (asked, req, res, body) => {
       const r = asked.range;
-      if (!r || r[0] < 16 || r[1] >= body.length - 48 - 2048) return false;
+      if (!r || r[0] < 12 || r[1] >= body.length - 24 - 2048) return false; // payloads (and pages): after the 12-byte prologue, well before the 24-byte tail
       res.writeHead(206, { 'Content-Length': String(r[1] - r[0] + 1), 'Content-Range': `bytes ${r[0]}-${r[1]}/${body.length}` });
       res.write(body.subarray(r[0], r[0] + 1), () => req.socket.destroy());
       return true;

@@ -106,13 +106,14 @@ describe('fields of slices', () => {
   it('an archive whose flag bit 0 is cleared is refused (a reader ignoring slices would misread)', async () => {
     const bytes = await sliced();
     const bad = bytes.slice();
-    // Clear the flag in the prologue (offset 10) and the tail (offset 34), and reseal the tail CRC
-    // (CRC-32 of tail bytes 0..35 at tail offset 36): spec/FORMAT.md, Sections 3.1 and 3.5.
-    const tail = bad.length - 48;
+    // Clear the flag in the prologue (offset 10) and the tail (offset 10), and reseal the tail's CRC
+    // (over the header, the directory and tail bytes 0..11, at tail offset 12): spec/FORMAT.md, Sections 3.1 and 3.5.
+    const tail = bad.length - 24;
     const view = new DataView(bad.buffer);
     view.setUint16(10, 0, true);
-    view.setUint16(tail + 34, 0, true);
-    view.setUint32(tail + 36, crc32(bad.subarray(tail, tail + 36)), true);
+    view.setUint16(tail + 10, 0, true);
+    const from = tail - view.getUint32(tail, true) - view.getUint32(tail + 4, true);
+    view.setUint32(tail + 12, crc32(bad.subarray(from, tail + 12)), true);
     await expect(open(bad)).rejects.toThrow(/required flag bit 0 \(slices\) is not set/);
     const half = bytes.slice();
     half[10] = 0; // the prologue alone cleared: the tail disagrees

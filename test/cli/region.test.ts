@@ -143,8 +143,9 @@ describe('archives at an http URL', { timeout: CLI_TIMEOUT }, () => {
     let payload = 0;
     for (const ti of [3, 4]) for (const tj of [4, 5]) payload += ix.length[ti * gc + tj];
     const size = a.size;
-    const tail = new DataView(readFileSync(join(tmp.dir, 'precip.rfz')).buffer.slice(size - 48));
-    const meta = 1 + 16 + 48 + tail.getUint32(8, true) + tail.getUint32(24, true) + a.directory.fields[0].page_length[0];
+    const tail = new DataView(readFileSync(join(tmp.dir, 'precip.rfz')).buffer.slice(size - 24));
+    // Prologue 12 bytes, tail 24 (its words 0 and 4: header and directory lengths), spec/FORMAT.md 3.1 and 3.5.
+    const meta = 1 + 12 + 24 + tail.getUint32(0, true) + tail.getUint32(4, true) + a.directory.fields[0].page_length[0];
     expect(asked(server)).toBe(meta + payload);
     // The two payload runs went in one request (multipart/byteranges): what was sent is the runs plus the part headers.
     expect(server.log.at(-1)?.ranges).toHaveLength(2);
@@ -165,10 +166,10 @@ describe('archives at an http URL', { timeout: CLI_TIMEOUT }, () => {
     expect((b.fields as { bytes: unknown }[])[0].bytes).not.toBeNull();
     expect(noShares(a)).toEqual(noShares(b));
     const bytes = readFileSync(join(tmp.dir, 'precip.rfz'));
-    const tail = new DataView(bytes.buffer.slice(bytes.length - 48));
+    const tail = new DataView(bytes.buffer.slice(bytes.length - 24));
     const pages = (await open(new Uint8Array(bytes))).directory.fields[0].page_length.reduce((x, y) => x + y, 0);
     // show needs every tile's method and rank: the whole index, directory and pages.
-    expect(asked(server)).toBe(1 + 16 + 48 + tail.getUint32(8, true) + tail.getUint32(24, true) + pages);
+    expect(asked(server)).toBe(1 + 12 + 24 + tail.getUint32(0, true) + tail.getUint32(4, true) + pages);
     expect(server.bytesSent).toBe(asked(server));
   });
 

@@ -143,14 +143,19 @@ describe('check', () => {
   });
 
   it('a flipped byte in the tail or the header is exit 2, for check, show and unpack', async () => {
-    damaged('tail.rfz', -20);
+    // Tail byte 10 is the required flags word (spec/FORMAT.md 3.5): it then disagrees with the prologue's.
+    damaged('tail.rfz', -14);
     for (const cmd of [['check', 'tail.rfz'], ['show', 'tail.rfz'], ['unpack', 'tail.rfz', '-o', 'tail.npy']]) {
-      expectCliError(rf(cmd, dir), /tail\.rfz: tail CRC-32 mismatch/);
+      expectCliError(rf(cmd, dir), /tail\.rfz: tail says version 4 flags 255, prologue says 4 flags 0/);
     }
+    // A length word of the tail, and a header byte: the tail's CRC over header, directory and tail fails.
+    damaged('length.rfz', -24);
+    expectCliError(rf(['check', 'length.rfz'], dir), /length\.rfz: CRC-32 mismatch over the header, index directory and tail|length\.rfz: .*do not fit/);
     const bytes = new Uint8Array(readFileSync(path('v.rfz')));
-    const headerOffset = Number(new DataView(bytes.buffer, bytes.byteOffset + bytes.length - 48, 8).getBigUint64(0, true));
+    const view = new DataView(bytes.buffer, bytes.byteOffset + bytes.length - 24);
+    const headerOffset = bytes.length - 24 - view.getUint32(0, true) - view.getUint32(4, true);
     damaged('header.rfz', headerOffset + 3);
-    expectCliError(rf(['check', 'header.rfz'], dir), /header\.rfz: header CRC-32 mismatch/);
+    expectCliError(rf(['check', 'header.rfz'], dir), /header\.rfz: CRC-32 mismatch over the header, index directory and tail/);
   });
 
   it('a truncated archive, a non-archive and an empty file are exit 2', () => {

@@ -164,7 +164,7 @@ export async function expectIndexMatches(archive: Archive, m: Measured, name?: s
   });
   expect(ix.summary.valid).toBe(m.summary.valid);
   expect(closeUp32(ix.summary.max_err, m.summary.maxErr), `summary max_err recorded ${ix.summary.max_err} measured ${m.summary.maxErr}`).toBe(true);
-  expect(close(ix.summary.rmse, m.summary.rmse), `summary rmse recorded ${ix.summary.rmse} measured ${m.summary.rmse}`).toBe(true);
+  expect(closeUp32(ix.summary.rmse, m.summary.rmse), `summary rmse recorded ${ix.summary.rmse} measured ${m.summary.rmse}`).toBe(true);
 }
 
 /** A small deterministic PRNG (mulberry32), uniform in [0, 1). */

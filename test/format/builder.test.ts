@@ -1,7 +1,7 @@
 /**
  * ArchiveBuilder's life cycle: once finish() has written the header, index
  * and tail, the archive is complete (spec/FORMAT.md section 3: the tail is
- * the last 48 bytes of the file), so a later field or a second finish()
+ * the last 24 bytes of the file), so a later field or a second finish()
  * must be refused with an InputError rather than appended after the tail,
  * which would leave a file that no reader opens.
  */

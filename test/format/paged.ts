@@ -1,10 +1,10 @@
 /**
- * Version 3 archives taken apart and put back together for the tests: the
- * layout spec/FORMAT.md documents (16-byte prologue; payloads written page
- * by page; MessagePack header, index pages and index directory; 48-byte
- * tail: u64 header offset, u32 length, u32 CRC, u64 directory offset, u32
- * length, u32 CRC, u16 version, u16 flags, u32 CRC of the 36 bytes before,
- * 8 magic bytes, little-endian). The index is edited as one "logical" index
+ * Version 4 archives taken apart and put back together for the tests: the
+ * layout spec/FORMAT.md documents (12-byte prologue; payloads written page
+ * by page; MessagePack index pages, header and index directory; 24-byte
+ * tail: u32 header length, u32 directory length, u16 version, u16 flags,
+ * u32 CRC of header, directory and the tail's first 12 bytes, 8 magic
+ * bytes, little-endian). The index is edited as one "logical" index
  * (per field, columns over all tiles in tile order, as version 1 stored it)
  * and split into pages again on the way back, so that an edit of tile t
  * lands in the page that holds t. The header, stored as arrays, is edited
@@ -23,11 +23,11 @@ import { crc32 } from '../../src/format/crc32.js';
 // biome-ignore lint/suspicious/noExplicitAny: a decoded block whose shape tests change freely (comment above)
 export type Block = any;
 
-export const PROLOGUE = 16;
-export const TAIL = 48;
+export const PROLOGUE = 12;
+export const TAIL = 24;
 export const COLUMNS = ['offset', 'length', 'crc', 'method', 'rank', 'valid', 'max_err', 'rmse', 'value_crc', 'prefix'] as const;
 
-/** Where the tail says the header and the index directory are. */
+/** Where the header and the index directory are, from the lengths in the tail (they end where it begins). */
 export interface Layout {
   headerOffset: number;
   headerLength: number;
@@ -39,13 +39,9 @@ export interface Layout {
 export function layout(b: Uint8Array): Layout {
   const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
   const t = b.length - TAIL;
-  return {
-    headerOffset: d.getUint32(t, true) + d.getUint32(t + 4, true) * 2 ** 32,
-    headerLength: d.getUint32(t + 8, true),
-    dirOffset: d.getUint32(t + 16, true) + d.getUint32(t + 20, true) * 2 ** 32,
-    dirLength: d.getUint32(t + 24, true),
-    tailOffset: t,
-  };
+  const headerLength = d.getUint32(t, true);
+  const dirLength = d.getUint32(t + 4, true);
+  return { headerOffset: t - dirLength - headerLength, headerLength, dirOffset: t - dirLength, dirLength, tailOffset: t };
 }
 
 /** A field's tile and page grid, as parsed from the seed archive (edits of the header do not move pages). */
@@ -222,8 +218,11 @@ export function split(b: Uint8Array): Parts {
   const l = layout(b);
   const header = keyedHeader(decode(b.subarray(l.headerOffset, l.headerOffset + l.headerLength)));
   const raw = decode(b.subarray(l.dirOffset, l.dirOffset + l.dirLength)) as Block[];
-  let pageAt = l.headerOffset + l.headerLength;
   let dataAt = PROLOGUE;
+  for (const f of raw) for (const n of f[3]) dataAt += n;
+  const payloadEnd = dataAt;
+  let pageAt = payloadEnd;
+  dataAt = PROLOGUE;
   const fields = raw.map((f: Block) => {
     const d: Block = { page: f[0], page_offset: [], page_length: f[1], page_crc: f[2], data_offset: [], data_length: f[3], summary: { valid: f[4][0], max_err: f[4][1], rmse: f[4][2] } };
     for (let p = 0; p < f[1].length; p++) {
@@ -237,7 +236,7 @@ export function split(b: Uint8Array): Parts {
   const dir = { fields };
   const grids = header.fields.map((h: Block, i: number): Grid => ({ rows: h.shape[0], cols: h.shape[1], tileRows: h.tile[0], tileCols: h.tile[1], slices: h.slices ?? 1, page: fields[i].page }));
   const pages = fields.map((f: Block, i: number) => f.page_offset.map((o: number, p: number) => keyedPage(decode(b.subarray(o, o + f.page_length[p])) as Block, grids[i], p, f.data_offset[p])));
-  return { front: b.slice(0, l.headerOffset), header, dir, pages, grids };
+  return { front: b.slice(0, payloadEnd), header, dir, pages, grids };
 }
 
 /** The logical index: per field, every column over all tiles in tile order, and the summary. */
@@ -303,18 +302,14 @@ export interface Assembly {
   pageCrc?: (field: number, page: number, crc: number) => number;
 }
 
-/** Put an archive together: front, header, pages, directory, tail, every offset and CRC computed. */
+/** Put an archive together: front, pages, header, directory, tail, every length and CRC computed. */
 export function assemble(a: Assembly, encodeValue: (v: unknown) => Uint8Array = (v) => encode(v)): Uint8Array {
   let pos = a.front.length;
-  const headerAt = pos;
-  pos += a.headerBytes.length;
   const fields = a.dirFields.map((f, i) => {
     const list = a.pageBytes[i] ?? [];
-    const offs: number[] = [];
     const lens: number[] = [];
     const crcs: number[] = [];
     list.forEach((b, k) => {
-      offs.push(pos);
       lens.push(b.length);
       crcs.push(a.pageCrc ? a.pageCrc(i, k, crc32(b)) : crc32(b));
       pos += b.length;
@@ -324,26 +319,23 @@ export function assemble(a: Assembly, encodeValue: (v: unknown) => Uint8Array = 
   });
   let db = encodeValue([...fields, ...Object.values(a.dirExtra ?? {})]);
   if (a.dirBytes) db = a.dirBytes(db);
-  const dirAt = pos;
-  const size = pos + db.length + TAIL;
+  const headerAt = pos;
+  const dirAt = headerAt + a.headerBytes.length;
+  const size = dirAt + db.length + TAIL;
   const out = new Uint8Array(size);
   out.set(a.front);
-  out.set(a.headerBytes, headerAt);
-  let at = headerAt + a.headerBytes.length;
+  let at = a.front.length;
   for (const list of a.pageBytes) for (const b of list) out.set(b, at), (at += b.length);
+  out.set(a.headerBytes, headerAt);
   out.set(db, dirAt);
   const d = new DataView(out.buffer);
   const t = size - TAIL;
   const front = new DataView(a.front.buffer, a.front.byteOffset);
-  d.setUint32(t, headerAt, true);
-  d.setUint32(t + 8, a.headerBytes.length, true);
-  d.setUint32(t + 12, crc32(a.headerBytes), true);
-  d.setUint32(t + 16, dirAt, true);
-  d.setUint32(t + 24, db.length, true);
-  d.setUint32(t + 28, crc32(db), true);
-  d.setUint16(t + 32, front.getUint16(8, true), true);
-  d.setUint16(t + 34, front.getUint16(10, true), true);
-  d.setUint32(t + 36, crc32(out.subarray(t, t + 36)), true);
-  out.set([0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a], t + 40);
+  d.setUint32(t, a.headerBytes.length, true);
+  d.setUint32(t + 4, db.length, true);
+  d.setUint16(t + 8, front.getUint16(8, true), true);
+  d.setUint16(t + 10, front.getUint16(10, true), true);
+  d.setUint32(t + 12, crc32(out.subarray(headerAt, t + 12)), true);
+  out.set([0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a], t + 16);
   return out;
 }

@@ -4,8 +4,8 @@
  * few tiles, a window) and check may only raise FormatError or InputError,
  * with a known code and a one-line message naming the source; check() never
  * throws and reports every tile that failed to decode; valid re-encodings
- * (another DEFLATE stream, other MessagePack number widths, the reserved
- * word) read back bit for bit; mutations that break a rule of
+ * (another DEFLATE stream, other MessagePack number widths) read back bit
+ * for bit; mutations that break a rule of
  * spec/FORMAT.md section 15 are refused (coded streams cut short, followed
  * by bytes or with a wrong length word included; blocks out of order or
  * with a gap between them); payload

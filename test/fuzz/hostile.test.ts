@@ -215,8 +215,8 @@ describe('the index', () => {
       m.index.fields[1].length[0] += 1;
       m.fixIndex = false;
     });
-    // Version 3 stores no offsets: each index page's payloads fill, back to back, the payload run
-    // the directory gives it (runs follow each other from byte 16), so no two tiles can share a byte.
+    // Since version 3 no offset is stored: each index page's payloads fill, back to back, the payload run
+    // the directory gives it (runs follow each other from byte 12), so no two tiles can share a byte.
     const e = await refusal(b);
     expect(e.code).toBe(FormatCode.Malformed);
     expect(e.message).toMatch(/index page 0 of field 'b'.*its payloads end at \d+, the directory's payload run at \d+/);

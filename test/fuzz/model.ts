@@ -2,9 +2,9 @@
  * An archive taken apart for mutation: prologue words, payloads, header and
  * index as decoded values; and put back together with every offset, length
  * and CRC recomputed (or, on request, left as the mutation set them). The
- * layout is the one spec/FORMAT.md documents for version 3 (16-byte
- * prologue, payloads page by page, MessagePack header, index pages and index
- * directory, 48-byte tail). The index is held as one logical index (columns
+ * layout is the one spec/FORMAT.md documents for version 4 (12-byte
+ * prologue, payloads page by page, MessagePack index pages, header and index
+ * directory, 24-byte tail). The index is held as one logical index (columns
  * over all tiles, test/format/paged.ts) and split into its pages when put
  * back, so an edit of tile t lands in the page holding t. The parsing here
  * trusts its input, which is always a seed archive written by this library.
@@ -21,7 +21,6 @@ export { layout, PROLOGUE, TAIL, type Layout } from '../format/paged.js';
 export interface Model {
   version: number;
   flags: number;
-  reserved: number;
   /** Payloads per field, in tile order. */
   payloads: Uint8Array[][];
   // Decoded MessagePack: shapes are whatever a mutation made of them.
@@ -35,11 +34,11 @@ export interface Model {
   indexBytes?: Uint8Array;
   /** Raw bytes of single index pages, by `field/page`. */
   pageBytes?: Record<string, Uint8Array>;
-  /** Write the index (pages and directory) before the header (both orders are valid). */
-  indexFirst: boolean;
+  /** Write the header before the index pages (version 3's order, which version 4 readers must refuse). */
+  headerFirst: boolean;
   /** Recompute index offsets, lengths and payload CRCs from `payloads` (off when a mutation edits them). */
   fixIndex: boolean;
-  /** Recompute the header, directory and tail CRCs (off to test them). */
+  /** Recompute the tail's CRC of header, directory and tail (off to test it). */
   fixCrcs: boolean;
   /** Tail version and flags, when a mutation makes them differ from the prologue's. */
   tailVersion?: number;
@@ -50,19 +49,17 @@ export interface Model {
 
 export function parse(b: Uint8Array): Model {
   const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
-  const l = layout(b);
   const parts = split(b);
   const index = joinIndex(parts);
   const payloads = index.fields.map((f: Block) => f.offset.map((o: number, t: number) => b.slice(o, o + f.length[t])));
   return {
     version: d.getUint16(8, true),
     flags: d.getUint16(10, true),
-    reserved: d.getUint32(12, true),
     payloads,
     header: parts.header,
     index,
     grids: parts.grids,
-    indexFirst: l.dirOffset < l.headerOffset,
+    headerFirst: false,
     fixIndex: true,
     fixCrcs: true,
   };
@@ -163,9 +160,8 @@ function serializeParts(m: Model): { out: Uint8Array; dirValue: unknown } {
   const { parts, pos, pages, dirFields, dirExtra } = lay(m);
   const hb = m.headerBytes ?? encodeValue(headerValue(m));
   const pageBytes = diskPages(m, pages).map((list, f) => list.map((pg, p) => m.pageBytes?.[`${f}/${p}`] ?? encodeValue(pg)));
-  const pagesLength = pageBytes.reduce((n, list) => n + list.reduce((k, b) => k + b.length, 0), 0);
-  // Index first: pages then directory, then header; else header, pages, directory.
-  let at = m.indexFirst ? pos : pos + hb.length;
+  // Pages, then header and directory; or (a mutation) the header before the pages.
+  let at = m.headerFirst ? pos + hb.length : pos;
   const fields = dirFields.map((f, i) => {
     const offs: number[] = [];
     const lens: number[] = [];
@@ -181,43 +177,33 @@ function serializeParts(m: Model): { out: Uint8Array; dirValue: unknown } {
   });
   const dirValue = [...fields, ...Object.values(dirExtra)];
   const db = m.indexBytes ?? encodeValue(dirValue);
-  const indexStart = m.indexFirst ? pos : pos + hb.length;
-  const dirAt = indexStart + pagesLength;
-  const headerAt = m.indexFirst ? dirAt + db.length : pos;
-  const size = pos + hb.length + pagesLength + db.length + TAIL;
+  const pagesAt = m.headerFirst ? pos + hb.length : pos;
+  const headerAt = m.headerFirst ? pos : at;
+  const dirAt = at + (m.headerFirst ? 0 : hb.length);
+  const size = dirAt + db.length + TAIL;
   const out = new Uint8Array(size);
   const d = new DataView(out.buffer);
   out.set([0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0a]);
   d.setUint16(8, m.version, true);
   d.setUint16(10, m.flags, true);
-  d.setUint32(12, m.reserved >>> 0, true);
   let w = PROLOGUE;
   for (const p of parts) {
     out.set(p, w);
     w += p.length;
   }
   out.set(hb, headerAt);
-  w = indexStart;
+  w = pagesAt;
   for (const list of pageBytes) for (const b of list) out.set(b, w), (w += b.length);
   out.set(db, dirAt);
   const t = size - TAIL;
-  d.setUint32(t, headerAt, true);
-  d.setUint32(t + 4, 0, true);
-  d.setUint32(t + 8, hb.length, true);
-  d.setUint32(t + 12, crc32(hb), true);
-  d.setUint32(t + 16, dirAt, true);
-  d.setUint32(t + 20, 0, true);
-  d.setUint32(t + 24, db.length, true);
-  d.setUint32(t + 28, crc32(db), true);
-  d.setUint16(t + 32, m.tailVersion ?? m.version, true);
-  d.setUint16(t + 34, m.tailFlags ?? m.flags, true);
-  d.setUint32(t + 36, crc32(out.subarray(t, t + 36)), true);
-  out.set([0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a], t + 40);
-  if (!m.fixCrcs) {
-    // Leave one CRC stale on purpose: the mutation is then caught by its checksum.
-    d.setUint32(t + 12, (crc32(hb) ^ 1) >>> 0, true);
-    d.setUint32(t + 36, crc32(out.subarray(t, t + 36)), true);
-  }
+  d.setUint32(t, hb.length, true);
+  d.setUint32(t + 4, db.length, true);
+  d.setUint16(t + 8, m.tailVersion ?? m.version, true);
+  d.setUint16(t + 10, m.tailFlags ?? m.flags, true);
+  // The CRC covers the bytes where a reader looks for header and directory (the L_H + L_D bytes before the tail) and the tail's first 12.
+  const crc = crc32(out.subarray(t - db.length - hb.length, t + 12));
+  d.setUint32(t + 12, m.fixCrcs ? crc : (crc ^ 1) >>> 0, true);
+  out.set([0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a], t + 16);
   return { out, dirValue };
 }
 
@@ -226,19 +212,13 @@ export function serialize(m: Model): Uint8Array {
   return serializeParts(m).out;
 }
 
-/** Recompute every CRC a byte-level mutation may have broken: tail, header, index directory (not page or payload CRCs). */
+/** Recompute the CRC a byte-level mutation may have broken: the tail's, over header, directory and tail (not page or payload CRCs). */
 export function resealTail(b: Uint8Array): void {
   if (b.length < TAIL) return;
   const d = new DataView(b.buffer, b.byteOffset, b.byteLength);
   const t = b.length - TAIL;
   const l = layout(b);
-  for (const [off, len, at] of [
-    [l.headerOffset, l.headerLength, t + 12],
-    [l.dirOffset, l.dirLength, t + 28],
-  ]) {
-    if (off >= 0 && off + len <= t) d.setUint32(at, crc32(b.subarray(off, off + len)), true);
-  }
-  d.setUint32(t + 36, crc32(b.subarray(t, t + 36)), true);
+  if (l.headerOffset >= 0) d.setUint32(t + 12, crc32(b.subarray(l.headerOffset, t + 12)), true);
 }
 
 /**

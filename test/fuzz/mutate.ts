@@ -747,16 +747,15 @@ function prefixCut(m: Model, rng: Rng, touch: (key: string) => void): string {
   return `index field ${f} tile ${t} prefix 0 cut at ${q[0]}, off its factor group boundary, CRC recomputed${REFUSE}`;
 }
 
-/** Container-level words: versions, flags, reserved word, block order, a gap, a stale CRC. */
+/** Container-level words: versions, flags, block order, a gap, a stale CRC. */
 function containerWords(m: Model, rng: Rng): string {
-  const which = rng.pick(['version', 'flags', 'reserved', 'order', 'gap', 'stale crc', 'tail version']);
-  if (which === 'version') m.version = rng.pick([0, 1, 2, 4, 0xffff]);
+  const which = rng.pick(['version', 'flags', 'order', 'gap', 'stale crc', 'tail version']);
+  if (which === 'version') m.version = rng.pick([0, 1, 2, 3, 5, 0xffff]);
   else if (which === 'flags') m.flags = 1 << (1 + rng.int(15)); // bit 0 (slices) is known; every other bit must be refused
-  else if (which === 'reserved') m.reserved = rng.u32();
-  else if (which === 'order') m.indexFirst = !m.indexFirst;
+  else if (which === 'order') m.headerFirst = true;
   else if (which === 'gap') m.gap = new Uint8Array(rng.range(1, 64)).map(() => rng.int(256));
   else if (which === 'stale crc') m.fixCrcs = false;
-  else m.tailVersion = rng.pick([0, 1, 2, 4]);
+  else m.tailVersion = rng.pick([0, 1, 2, 3, 5]);
   return `container ${which}`;
 }
 
@@ -787,12 +786,13 @@ function fileBytes(b: Uint8Array, others: Uint8Array[], rng: Rng): { bytes: Uint
     out.set(o.subarray(oa, oe).subarray(0, out.length - a), a);
     return { bytes: out, what: `file region ${a}..${e} spliced from another archive` };
   }
-  // A tail field (offsets, lengths) set to a boundary value.
+  // A tail field (the header and directory lengths) set to a boundary value.
   const out = b.slice();
   if (out.length >= TAIL) {
     const t = out.length - TAIL;
-    const at = rng.pick([0, 4, 8, 16, 20, 24]);
-    setU32(out, t + at, rng.pick([0, 1, 15, 16, 17, 0x7fffffff, 0xffffffff, 0x001fffff, 0x00200000, t, t - 1, layout(b).headerOffset + 1]));
+    const l = layout(b);
+    const at = rng.pick([0, 4]);
+    setU32(out, t + at, rng.pick([0, 1, 11, 12, 13, 0x7fffffff, 0xffffffff, t, t - 1, l.headerLength + 1, l.dirLength - 1]));
   }
   return { bytes: out, what: 'tail field' };
 }
@@ -815,11 +815,11 @@ export type Expectation = 'same' | 'refuse' | 'detect' | 'any';
 /**
  * What an operation obliges a reader to do, from its description: valid
  * re-encodings (another DEFLATE stream, other MessagePack number widths,
- * the reserved word) must not change what is read; stream bytes after the
+ * must not change what is read; stream bytes after the
  * end, a coded stream whose length word is off or that is cut short, a
  * repeated or non-string map key, a stale CRC, unknown versions and flags,
- * blocks out of their order or with bytes between them (version 3's layout
- * is contiguous), a block with bytes after its value or cut short, and a
+ * blocks out of their order or with bytes between them (the layout is
+ * contiguous), a block with bytes after its value or cut short, and a
  * declared raw length that differs from the data must be refused; an index
  * entry copied from another tile is free (offsets are not stored, so it
  * cannot make two tiles share bytes); edits of payload bytes that keep
@@ -830,7 +830,7 @@ export function expectationOf(op: string): Expectation {
   if (/^unchanged$|no section$|nothing to edit$|aliased to itself$|top-level map left alone$|no rule to break here$/.test(op)) return 'same';
   if (/\(must be refused\)$/.test(op)) return 'refuse';
   if (/\(changed values must be caught\)$/.test(op)) return 'detect';
-  if (/written as another valid stream$|msgpack widths$|^container reserved$/.test(op)) return 'same';
+  if (/written as another valid stream$|msgpack widths$/.test(op)) return 'same';
   // Blocks out of their order and bytes between blocks: the layout is contiguous (spec/FORMAT.md, section 3).
   if (/^container (version|flags|stale crc|tail version|order|gap)$|msgpack (trailing|truncated)$|repeated key or non-string key/.test(op)) return 'refuse';
   return 'any';
