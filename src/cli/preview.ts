@@ -4,7 +4,7 @@ import { hasSlices } from '../archive.js';
 import { printable } from '../format/schema.js';
 import { type Archive, type Dtype, type FieldHeader, formatBound, isPointwise } from '../index.js';
 import { heatmap, type HeatmapSpec } from '../picture/heatmap.js';
-import { blockFor, EXACT_CODE, rankGrid, readGrids, type Grid, type PictureWindow } from '../picture/sample.js';
+import { blockFor, EXACT_CODE, rankGrid, readGrids, slicePlane, snapshotPlane, snapshotShape, type Grid, type Plane, type PictureWindow } from '../picture/sample.js';
 import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files.js';
 import { num, seconds } from './format.js';
@@ -66,16 +66,29 @@ function countOption(what: string, min: number, max: number) {
   };
 }
 
-/** The window a preview draws, checked against the field. */
-function windowOf(h: FieldHeader, flags: PreviewFlags): PictureWindow {
-  const slices = h.slices ?? 1;
+/**
+ * The slices a preview chooses among, and the plane it draws of each: the
+ * stored slices, or for a matrix layout the rows of the matrix (snapshots),
+ * each over the variable's last two axes.
+ */
+function planes(archive: Archive, h: FieldHeader): { count: number; what: string; plane: (i: number) => Plane } | null {
+  if (snapshotShape(h)) {
+    const lead = (h.dims ?? []).slice(0, Number(h.layout!.slice(7))).map(printable).join(', ');
+    return { count: h.shape[0], what: `snapshot${lead ? ` (${lead})` : ''}`, plane: (i) => snapshotPlane(archive, h, i) };
+  }
+  if (hasSlices(h)) return { count: h.slices ?? 1, what: 'slice', plane: (i) => slicePlane(archive, h, i) };
+  return null;
+}
+
+/** The window a preview draws, checked against the plane. */
+function windowOf(h: FieldHeader, flags: PreviewFlags, choice: ReturnType<typeof planes>, plane: Plane): PictureWindow {
   const slice = flags.slice ?? 0;
-  if (flags.slice !== undefined && !hasSlices(h)) throw new UsageError(`field '${printable(h.name)}' is a plain 2-D field: it has no slices to choose`);
-  if (slice >= slices) throw new UsageError(`field '${printable(h.name)}' has slices 0..${slices - 1}, not ${slice}`);
+  if (flags.slice !== undefined && choice === null) throw new UsageError(`field '${printable(h.name)}' is a plain 2-D field: it has no slices to choose`);
+  if (choice !== null && slice >= choice.count) throw new UsageError(`field '${printable(h.name)}' has ${choice.what.split(' ')[0]}s 0..${choice.count - 1}, not ${slice}`);
   const r = flags.region;
-  const rows: [number, number] = [r?.rows[0] ?? 0, r?.rows[1] ?? h.shape[0]];
-  const cols: [number, number] = [r?.cols[0] ?? 0, r?.cols[1] ?? h.shape[1]];
-  for (const [what, [a, b], n] of [['rows', rows, h.shape[0]], ['columns', cols, h.shape[1]]] as const) {
+  const rows: [number, number] = [r?.rows[0] ?? 0, r?.rows[1] ?? plane.rows];
+  const cols: [number, number] = [r?.cols[0] ?? 0, r?.cols[1] ?? plane.cols];
+  for (const [what, [a, b], n] of [['rows', rows, plane.rows], ['columns', cols, plane.cols]] as const) {
     if (a >= b || b > n) throw new UsageError(`field '${printable(h.name)}' has ${n} ${what}; the region's ${what} ${a}:${b} lie outside it`);
   }
   return { slice, rows, cols };
@@ -88,10 +101,10 @@ function unitOf(h: FieldHeader): string {
 }
 
 /** The picture's specification for one map. */
-function specOf(kind: MapKind, h: FieldHeader, grid: Grid, w: PictureWindow, scale: number, file: string, region: boolean): HeatmapSpec {
+function specOf(kind: MapKind, h: FieldHeader, grid: Grid, w: PictureWindow, scale: number, file: string, region: boolean, choice: ReturnType<typeof planes>): HeatmapSpec {
   const unit = unitOf(h);
   const long = typeof h.attrs.long_name === 'string' ? `${h.attrs.long_name} ` : '';
-  const where = `${hasSlices(h) ? `slice ${w.slice} of ${h.slices ?? 1}, ` : ''}rows ${w.rows[0]}..${w.rows[1] - 1}, columns ${w.cols[0]}..${w.cols[1] - 1}`;
+  const where = `${choice ? `${choice.what} ${w.slice} of ${choice.count}, ` : ''}rows ${w.rows[0]}..${w.rows[1] - 1}, columns ${w.cols[0]}..${w.cols[1] - 1}`;
   const tol = `E = ${num(h.bound.tolerance)}${unit ? ` ${unit}` : ''}`;
   const bound = `bound ${formatBound(h.bound)} (${isPointwise(h.bound.mode) ? 'pointwise' : 'RMSE'} limit ${tol}); archive '${file}'`;
   const what = kind === 'value' ? 'decoded values' : kind === 'error' ? '|decoded - original| / E' : 'rank of each tile';
@@ -99,42 +112,51 @@ function specOf(kind: MapKind, h: FieldHeader, grid: Grid, w: PictureWindow, sca
   const max = finite.reduce((a, b) => Math.max(a, b), -Infinity);
   const min = finite.reduce((a, b) => Math.min(a, b), Infinity);
   const notes = [grid.block > 1 ? `one pixel: ${grid.block} x ${grid.block} cells (${kind === 'value' ? 'mean' : kind === 'error' ? 'largest' : 'the first cell\'s tile'})` : scale > 1 ? `one cell: ${scale} x ${scale} pixels` : 'one cell per pixel'];
-  if (kind === 'rank') notes.push(`tiles of ${h.tile[0]} x ${h.tile[1]} cells`);
+  if (kind === 'rank') notes.push(`tiles of ${h.tile[0]} x ${h.tile[1]} cells${snapshotShape(h) ? ' of the matrix (one snapshot per row)' : ''}`);
+  if (snapshotShape(h)) {
+    const rest = (h.dims ?? []).slice(Number(h.layout!.slice(7))).map(printable);
+    const axes = rest.length >= 2 ? `: (${rest.slice(0, -1).join(', ')}) x ${rest[rest.length - 1]}` : '';
+    notes.push(`stored as a matrix (layout ${h.layout}), one snapshot per row: drawn is one row laid out over the remaining axes${axes}`);
+  }
   const base = { cells: grid.cells, rows: grid.rows, cols: grid.cols, scale, title: [`${long}'${printable(h.name)}': ${what}`, where, bound], notes, missing: grid.missing > 0 };
   if (kind === 'value') {
     const range = !region && h.bound.range ? h.bound.range : finite.length > 0 ? [min, max] : [0, 1];
     return { ...base, map: 'viridis', lo: range[0], hi: range[1], barLabel: unit || 'value' };
   }
   if (kind === 'error') return { ...base, map: 'inferno', lo: 0, hi: Math.max(1, finite.length > 0 ? max : 1), barLabel: '|error| / E' };
-  // Tile edges, in picture cells, where they fall on a cell boundary.
+  // Tile edges, in picture cells (for slices; tiles of a matrix do not follow the picture's axes).
   const edges = (lo: number, hi: number, t: number) => {
     const out: number[] = [];
-    for (let e = (Math.floor(lo / t) + 1) * t; e < hi; e += t) if ((e - lo) % grid.block === 0 || grid.block > 1) out.push(Math.round((e - lo) / grid.block));
+    for (let e = (Math.floor(lo / t) + 1) * t; e < hi; e += t) out.push(Math.round((e - lo) / grid.block));
     return out;
   };
-  return { ...base, edges: { rows: edges(w.rows[0], w.rows[1], h.tile[0]), cols: edges(w.cols[0], w.cols[1], h.tile[1]) }, map: 'viridis', lo: 0, hi: Math.max(1, finite.length > 0 ? max : 1), discrete: true, barLabel: 'rank', specials: grid.cells.includes(EXACT_CODE) ? [{ code: EXACT_CODE, colour: [255, 255, 255], label: 'exact' }] : [], missing: false };
+  const lines = snapshotShape(h) ? undefined : { rows: edges(w.rows[0], w.rows[1], h.tile[0]), cols: edges(w.cols[0], w.cols[1], h.tile[1]) };
+  return { ...base, edges: lines, map: 'viridis', lo: 0, hi: Math.max(1, finite.length > 0 ? max : 1), discrete: true, barLabel: 'rank', specials: grid.cells.includes(EXACT_CODE) ? [{ code: EXACT_CODE, colour: [255, 255, 255], label: 'exact' }] : [], missing: false };
 }
 
 /** Draw one map of a field of an opened archive; returns the PNG and the figures of the report. */
 async function draw(archive: Archive, input: string, flags: PreviewFlags): Promise<{ png: Uint8Array; report: Record<string, unknown> }> {
   const { header: h } = archive.field(flags.var);
-  const w = windowOf(h, flags);
+  const choice = planes(archive, h);
+  const plane = choice ? choice.plane(Math.min(flags.slice ?? 0, choice.count - 1)) : slicePlane(archive, h, 0);
+  const w = windowOf(h, flags, choice, plane);
   const block = blockFor(w, flags.size);
   let grid: Grid;
-  if (flags.map === 'rank') grid = await rankGrid(archive, h.name, w, block);
+  if (flags.map === 'rank') grid = rankGrid(plane, await archive.fieldIndex(h.name), w, block);
   else {
     let original: Float32Array | Float64Array | undefined;
     if (flags.map === 'error') {
+      if (snapshotShape(h)) throw new UsageError(`field '${printable(h.name)}' is stored as a matrix (layout ${h.layout}): --map error compares 2-D originals only; draw its values or ranks, or use rankfield check --against`);
       const orig = await loadField(flags.against!, { dtype: flags.dtype, endian: flags.endian }, { shape: [h.shape[0], h.shape[1]], dtype: h.dtype });
       if (orig.shape[0] !== h.shape[0] || orig.shape[1] !== h.shape[1]) throw new UsageError(`original '${flags.against}' is ${orig.shape.join('x')}, but field '${printable(h.name)}' of '${input}' is ${h.shape.join('x')}${hasSlices(h) ? ' per slice' : ''}`);
       original = orig.data;
     }
-    const grids = await readGrids(archive, h.name, w, block, original, h.bound.tolerance > 0 ? h.bound.tolerance : 1);
+    const grids = await readGrids(plane, h, w, block, original, h.bound.tolerance > 0 ? h.bound.tolerance : 1);
     grid = flags.map === 'error' ? grids.errors! : grids.values;
   }
   // Small fields are enlarged to about 384 pixels on their longer side.
   const scale = block > 1 ? 1 : Math.max(1, Math.floor(384 / Math.max(grid.rows, grid.cols)));
-  const spec = specOf(flags.map, h, grid, w, scale, input, flags.region !== undefined);
+  const spec = specOf(flags.map, h, grid, w, scale, input, flags.region !== undefined, choice);
   const raster = heatmap(spec);
   return {
     png: raster.png(),

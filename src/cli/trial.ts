@@ -9,7 +9,7 @@ import { InvalidArgumentError, type Command } from 'commander';
 import { printable } from '../format/schema.js';
 import { formatBound, isPointwise, MemorySource, open, pack, parseBound, resolveBound, type Bound, type Dtype, type FloatArray } from '../index.js';
 import { heatmap } from '../picture/heatmap.js';
-import { readGrids } from '../picture/sample.js';
+import { readGrids, slicePlane } from '../picture/sample.js';
 import { fileError, UsageError } from './errors.js';
 import { checkOutput, statInput, writeOutput } from './files.js';
 import { num, ratio, seconds, table } from './format.js';
@@ -178,7 +178,7 @@ async function tryBound(sample: FloatArray, shape: [number, number], range: [num
   let picture: string | null = null;
   if (pictures !== null) {
     picture = join(pictures, `trial-${formatBound(bound).replace(':', '-')}.png`);
-    const grids = await readGrids(archive, h.name, { slice: 0, rows: [0, shape[0]], cols: [0, shape[1]] }, Math.max(1, Math.ceil(Math.max(...shape) / 768)), sample, h.bound.tolerance > 0 ? h.bound.tolerance : 1);
+    const grids = await readGrids(slicePlane(archive, h, 0), h, { slice: 0, rows: [0, shape[0]], cols: [0, shape[1]] }, Math.max(1, Math.ceil(Math.max(...shape) / 768)), sample, h.bound.tolerance > 0 ? h.bound.tolerance : 1);
     const g = grids.errors!;
     const worst = g.cells.reduce((a, b) => (b > a ? b : a), 0);
     const scale = g.block > 1 ? 1 : Math.max(1, Math.floor(384 / Math.max(g.rows, g.cols)));

@@ -12,7 +12,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { open, pack } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { mapColour } from '../../src/picture/colormap.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, rf, tempDir, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, ROOT, rf, tempDir, volcano } from './helpers.js';
 
 const { dir, remove } = tempDir();
 const vol = volcano();
@@ -34,6 +34,12 @@ function png(name: string): { width: number; height: number; at: (x: number, y: 
   return { width: p.width, height: p.height, at: (x, y) => Array.from(data.subarray((y * p.width + x) * 3, (y * p.width + x) * 3 + 3)) };
 }
 
+/** The top-left pixel of the picture's first cell, found by its colour just right of the black frame. */
+function topLeft(p: ReturnType<typeof png>, first: number[]): [number, number] {
+  for (let y = 0; y < p.height; y++) for (let x = 1; x < p.width / 2; x++) if (p.at(x, y).every((c, k) => c === first[k]) && p.at(x - 1, y).join() === '0,0,0') return [x, y];
+  throw new Error('no cell of the first colour beside the frame');
+}
+
 describe('preview', { timeout: CLI_TIMEOUT }, () => {
   it('value map: each cell in the colour of its decoded value on the field\'s valid range', async () => {
     const r = rf(['preview', 'v.rfz', '-o', 'value.png', '--json'], dir);
@@ -47,12 +53,7 @@ describe('preview', { timeout: CLI_TIMEOUT }, () => {
     expect(rep.scaleRange).toEqual([94, 195]);
     const back = (await open(readFileSync(join(dir, 'v.rfz')))).read();
     const values = (await back).values;
-    // Find the top-left cell by its colour (the picture frame is black and the page white above it).
-    const first = mapColour('viridis', (values[0] - 94) / 101);
-    let x0 = -1;
-    let y0 = -1;
-    for (let y = 0; y < p.height && x0 < 0; y++) for (let x = 0; x < p.width / 2 && x0 < 0; x++) if (p.at(x, y).every((c, k) => c === first[k]) && p.at(x - 1, y).join() === '0,0,0') [x0, y0] = [x, y];
-    expect(x0).toBeGreaterThan(0);
+    const [x0, y0] = topLeft(p, mapColour('viridis', (values[0] - 94) / 101));
     for (const [i, j] of [[0, 0], [30, 40], [60, 86], [12, 70]]) {
       expect(p.at(x0 + j * 4 + 2, y0 + i * 4 + 2)).toEqual(mapColour('viridis', (values[i * COLS + j] - 94) / 101));
     }
@@ -70,6 +71,27 @@ describe('preview', { timeout: CLI_TIMEOUT }, () => {
     expect(rank.code, rank.stderr).toBe(0);
     expect(JSON.parse(rank.stdout).window).toEqual({ slice: 0, rows: [0, 32], cols: [16, COLS] });
     expect(png('r.png').width).toBeGreaterThan(0);
+  });
+
+  it('a field stored as a matrix (time x space) is drawn one snapshot at a time over its last two axes', async () => {
+    const nc = join(ROOT, 'test', 'fixtures', 'netcdf', 'corvane-run-classic.nc');
+    expect(rf(['pack', nc, '-o', 'nc.rfz', '--bound', 'rel:1e-3', '--matrix', 'time:space'], dir).code).toBe(0);
+    const r = rf(['preview', 'nc.rfz', '--var', 'sst', '--slice', '2', '-o', 'snap.png', '--json'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    const rep = JSON.parse(r.stdout);
+    expect(rep.window).toEqual({ slice: 2, rows: [0, 24], cols: [0, 32] }); // sst is (time 6, lat 24, lon 32) in the fixture
+    const field = await (await open(readFileSync(join(dir, 'nc.rfz')))).read('sst');
+    expect(field.shape).toEqual([6, 24, 32]);
+    const [lo, hi] = rep.scaleRange;
+    const at = (i: number, j: number) => field.values[2 * 768 + i * 32 + j];
+    const p = png('snap.png');
+    const [x0, y0] = topLeft(p, mapColour('viridis', (at(0, 0) - lo) / (hi - lo)));
+    // Cells in the west of the basin, all sea (land, the fill value 1e20, lies east).
+    for (const [i, j] of [[3, 4], [10, 2], [20, 9]]) {
+      expect(at(i, j)).toBeLessThan(1e30);
+      expect(p.at(x0 + j * rep.scale + 1, y0 + i * rep.scale + 1)).toEqual(mapColour('viridis', (at(i, j) - lo) / (hi - lo)));
+    }
+    expectCliError(rf(['preview', 'nc.rfz', '--var', 'sst', '--slice', '6', '-o', 'x.png'], dir), /field 'sst' has snapshots 0\.\.5, not 6/);
   });
 
   it('large fields are drawn in blocks: --size 20 gives one picture cell per 5 x 5 cells', () => {

@@ -7,7 +7,7 @@
  */
 import { describe, expect, it } from 'vitest';
 import { open, pack } from '../../src/index.js';
-import { blockFor, rankGrid, readGrids } from '../../src/picture/sample.js';
+import { blockFor, rankGrid, readGrids, slicePlane } from '../../src/picture/sample.js';
 import { volcano } from '../cli/helpers.js';
 
 const vol = volcano();
@@ -19,7 +19,8 @@ describe('picture grids', () => {
     const whole = (await archive.read()).values;
     const w = { slice: 0, rows: [3, 58] as [number, number], cols: [5, 80] as [number, number] };
     const block = 4;
-    const { values, errors } = await readGrids(archive, 'field', w, block, vol.values, 2);
+    const h = archive.field().header;
+    const { values, errors } = await readGrids(slicePlane(archive, h, 0), h, w, block, vol.values, 2);
     expect([values.rows, values.cols]).toEqual([Math.ceil(55 / 4), Math.ceil(75 / 4)]);
     for (const [gi, gj] of [[0, 0], [5, 7], [13, 18]]) {
       let sum = 0;
@@ -46,7 +47,8 @@ describe('picture grids', () => {
     v[9 * COLS + 9] = -999;
     const archive = await open(pack(v, vol.shape, { bound: 'abs:0.5', tile: 32, fill: -999 }));
     const whole = (await archive.read()).values;
-    const { values } = await readGrids(archive, 'field', { slice: 0, rows: [0, ROWS], cols: [0, COLS] }, 8);
+    const h = archive.field().header;
+    const { values } = await readGrids(slicePlane(archive, h, 0), h, { slice: 0, rows: [0, ROWS], cols: [0, COLS] }, 8);
     expect(values.cells[0]).toBeNaN();
     expect(values.missing).toBe(65);
     let sum = 0;
@@ -58,7 +60,7 @@ describe('picture grids', () => {
     const archive = await open(pack(vol.values, vol.shape, { bound: 'psnr:40', tile: 16 }));
     const ix = await archive.fieldIndex();
     const w = { slice: 0, rows: [0, ROWS] as [number, number], cols: [0, COLS] as [number, number] };
-    const g = await rankGrid(archive, 'field', w, 1);
+    const g = rankGrid(slicePlane(archive, archive.field().header, 0), ix, w, 1);
     expect([g.rows, g.cols]).toEqual([ROWS, COLS]);
     const gc = Math.ceil(COLS / 16);
     for (const [r, c] of [[0, 0], [20, 40], [60, 86]]) {
