@@ -21,11 +21,11 @@ interface PreviewFlags extends OutputFlags {
   var?: string;
   slice?: number;
   region?: Region;
-  map: MapKind;
+  map?: MapKind;
   against?: string;
   dtype?: Dtype;
   endian?: 'little' | 'big';
-  size: number;
+  size?: number;
   force?: boolean;
 }
 
@@ -43,6 +43,10 @@ Maps:
           for a field of slices, the slice given with --slice)
   rank    the rank of each tile's low-rank part (0: a mean and a coded
           residual only), exactly stored tiles in white; reads the index only
+
+--slice I picks a slice of a field of slices, or for a field stored as a
+matrix (layout matrix:A, one snapshot per row) the row, drawn over the
+variable's remaining axes (all but the last flattened into rows).
 
 Colours: viridis (value, rank) and inferno (error), perceptually uniform maps
 by van der Walt and Smith (2015); missing cells (NaN, infinities, the fill
@@ -135,7 +139,7 @@ function specOf(kind: MapKind, h: FieldHeader, grid: Grid, w: PictureWindow, sca
 }
 
 /** Draw one map of a field of an opened archive; returns the PNG and the figures of the report. */
-async function draw(archive: Archive, input: string, flags: PreviewFlags): Promise<{ png: Uint8Array; report: Record<string, unknown> }> {
+async function draw(archive: Archive, input: string, flags: Required<Pick<PreviewFlags, 'map' | 'size'>> & PreviewFlags): Promise<{ png: Uint8Array; report: Record<string, unknown> }> {
   const { header: h } = archive.field(flags.var);
   const choice = planes(archive, h);
   const plane = choice ? choice.plane(Math.min(flags.slice ?? 0, choice.count - 1)) : slicePlane(archive, h, 0);
@@ -175,15 +179,16 @@ export function registerPreview(program: Command, ctx: Context): void {
     .option('--var <NAME>', 'field to draw (default: the first)', nameOption)
     .option('--slice <I>', 'fields of slices: the slice to draw (default 0)', countOption('slice', 0, Number.MAX_SAFE_INTEGER))
     .option('--region <R0:R1,C0:C1>', 'draw only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
-    .option('--map <MAP>', 'value (default), error (needs --against) or rank', mapOption, 'value' as MapKind)
+    .option('--map <MAP>', 'value (default), error (needs --against) or rank', mapOption)
     .option('--against <ORIGINAL>', 'original values for --map error: .npy, or raw of the field\'s shape')
     .option('--dtype <TYPE>', 'raw ORIGINAL: f32 or f64 (default: the field\'s)', dtypeOption)
     .option('--endian <ORDER>', 'raw ORIGINAL: byte order, little (default) or big', endianOption)
-    .option('--size <N>', `longest side of the picture in cells; larger fields are drawn in blocks (default ${DEFAULT_SIZE})`, countOption('size', 16, 4096), DEFAULT_SIZE)
+    .option('--size <N>', `longest side of the picture in cells; larger fields are drawn in blocks (default ${DEFAULT_SIZE})`, countOption('size', 16, 4096))
     .option('--force', 'overwrite PNG if it exists')
     .addHelpText('after', HELP)
-    .action(async (input: string, flags: PreviewFlags) => {
+    .action(async (input: string, given: PreviewFlags) => {
       const start = performance.now();
+      const flags: Required<Pick<PreviewFlags, 'map' | 'size'>> & PreviewFlags = { ...given, map: given.map ?? 'value', size: given.size ?? DEFAULT_SIZE };
       const out = new Output(ctx, flags);
       if (flags.map === 'error' && flags.against === undefined) throw new UsageError('--map error needs --against ORIGINAL (the values the archive was packed from)');
       if (flags.map !== 'error' && (flags.against !== undefined || flags.dtype !== undefined || flags.endian !== undefined)) throw new UsageError('--against, --dtype and --endian apply to --map error');

@@ -21,8 +21,8 @@ import { Output, type OutputFlags } from './output.js';
 import { byteShares, tileUse, type ByteShares, type TileUse } from './summary.js';
 
 interface TrialFlags extends OutputFlags {
-  bounds: Bound[];
-  sample: number;
+  bounds?: Bound[];
+  sample?: number;
   tile?: [number, number] | 'auto';
   fill?: number;
   shape?: [number, number];
@@ -108,7 +108,7 @@ const RANGE_BAND = 256;
  * range of the whole field (one pass over it, a band of rows at a time), which
  * rel and psnr bounds are resolved against, as pack does.
  */
-async function readSample(input: string, flags: TrialFlags): Promise<{ values: FloatArray; shape: [number, number]; field: [number, number]; rows: [number, number]; cols: [number, number]; dtype: Dtype; range: [number, number] | null }> {
+async function readSample(input: string, flags: TrialFlags & { sample: number }): Promise<{ values: FloatArray; shape: [number, number]; field: [number, number]; rows: [number, number]; cols: [number, number]; dtype: Dtype; range: [number, number] | null }> {
   const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
   checkLayout(input, layout);
   const field = await openFieldBands(input, layout);
@@ -227,8 +227,8 @@ export function registerTrial(program: Command, ctx: Context): void {
     .summary('pack a sample of a field at several bounds and compare ratio and error, to choose a bound')
     .description('Pack a sample of a field at several bounds, in memory, and print per bound the ratio, bits per value, achieved max error, RMSE and PSNR, and what carried the bytes (low-rank factors or residual). Nothing is archived.')
     .argument('<IN>', 'input: .npy (2-D float32/float64), or raw binary with --shape and --dtype')
-    .option('--bounds <LIST>', `bounds to try, comma-separated (default ${TRIAL_BOUNDS})`, boundsOption, boundsOption(TRIAL_BOUNDS))
-    .option('--sample <N>', `side of the central sample in cells (default ${DEFAULT_SAMPLE})`, sampleOption, DEFAULT_SAMPLE)
+    .option('--bounds <LIST>', `bounds to try, comma-separated (default ${TRIAL_BOUNDS})`, boundsOption)
+    .option('--sample <N>', `side of the central sample in cells (default ${DEFAULT_SAMPLE})`, sampleOption)
     .option('--tile <RxC>', 'tile size as for pack (default: chosen on the sample per bound)', tileOption)
     .option('--fill <V>', 'fill value marking missing cells, as for pack', fillOption)
     .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
@@ -237,8 +237,9 @@ export function registerTrial(program: Command, ctx: Context): void {
     .option('--pictures <DIR>', 'write an error picture per bound into DIR (an existing folder)')
     .option('--force', 'overwrite pictures of an earlier trial')
     .addHelpText('after', HELP)
-    .action(async (input: string, flags: TrialFlags) => {
+    .action(async (input: string, given: TrialFlags) => {
       const start = performance.now();
+      const flags = { ...given, bounds: given.bounds ?? boundsOption(TRIAL_BOUNDS), sample: given.sample ?? DEFAULT_SAMPLE };
       const out = new Output(ctx, flags);
       if (isNetcdfPath(input)) throw new UsageError(`trial reads .npy or raw input, not NetCDF yet: save one 2-D variable of '${printable(input)}' as .npy first`);
       await statInput(input);
