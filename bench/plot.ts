@@ -5,7 +5,7 @@
  * built-in 5x7 font (font.ts).
  */
 import { encode } from 'fast-png';
-import { glyph, GLYPH_W } from './font.js';
+import { glyph, GLYPH_W } from '../src/picture/font.js';
 
 export type Rgb = [number, number, number];
 export type Marker = 'square' | 'circle' | 'triangle' | 'diamond' | 'cross' | 'plus';

@@ -406,13 +406,17 @@ export class Archive {
    * Check every tile: payload CRC, decoding, decoded-value CRC, and the
    * recorded error against the bound. With `against` (original values per
    * field name, or one array for a one-field archive), also measure the
-   * actual error and compare special cells bit for bit.
+   * actual error and compare special cells bit for bit. `onProgress` is
+   * called after each tile with the tiles checked so far and the tiles of
+   * all fields (for progress displays; it must not throw).
    */
-  async check(against?: FloatArray | Record<string, FloatArray>): Promise<CheckReport> {
+  async check(against?: FloatArray | Record<string, FloatArray>, onProgress?: (done: number, total: number) => void): Promise<CheckReport> {
     const report: CheckReport = { ok: true, fields: [], failures: [] };
     if (against !== undefined && ArrayBuffer.isView(against) && this.header.fields.length !== 1) {
       throw new InputError(InputCode.Option, `the archive holds ${this.header.fields.length} fields: give the originals by field name`);
     }
+    const allTiles = this.header.fields.reduce((a, h) => a + tileCount(h), 0);
+    let checked = 0;
     for (const h of this.header.fields) {
       const { position, summary } = this.field(h.name);
       const given = against === undefined ? undefined : ArrayBuffer.isView(against) ? against : against[h.name];
@@ -461,6 +465,7 @@ export class Archive {
       }
       const entry = (t: number) => fp.entry(this.container, position, t);
       await this.eachPayload(entry, all, (t, payload) => {
+        onProgress?.(++checked, allTiles);
         let tile: FloatArray;
         const ix = entry(t);
         try {

@@ -55,6 +55,12 @@ export interface PackOptions {
    * so smaller pages cost less per window and more in the index directory.
    */
   indexPage?: number | [number, number];
+  /**
+   * Called each time a tile's payload has been written, with the tiles
+   * written so far and the field's tile count (for progress displays). It
+   * must not throw; it has no effect on the archive.
+   */
+  onProgress?: (done: number, total: number) => void;
 }
 
 /** Options of one field packed on worker threads ({@link packAsync}, {@link ArchiveBuilder.addAsync}). */
@@ -211,14 +217,14 @@ export class ArchiveBuilder {
   }
 
   private encode(src: BandSource, spec: FieldSpec, o: PackOptions, page: [number, number]): FieldHeader {
-    const w = this.begin(src, spec, page);
+    const w = this.begin(src, spec, page, o.onProgress);
     return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
   }
 
   private async encodeAsync(src: BandSource, spec: FieldSpec, o: ParallelPackOptions, page: [number, number]): Promise<FieldHeader> {
     const threads = o.pool?.threads ?? checkThreads(o.threads);
     if (threads === 1) return this.encode(src, spec, o, page);
-    const w = this.begin(src, spec, page);
+    const w = this.begin(src, spec, page, o.onProgress);
     const workers = Math.min(threads, tileCount({ shape: [spec.rows, spec.cols], tile: [spec.tileRows, spec.tileCols], slices: spec.slices }));
     if (workers === 1) return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
     // The calling thread encodes tiles too, as one of the threads.
@@ -231,7 +237,7 @@ export class ArchiveBuilder {
   }
 
   /** Checks and the tile shape before a field is encoded; the index it fills, and the emit that writes its payloads. */
-  private begin(src: BandSource, spec: FieldSpec, page: [number, number]): { ix: FieldIndex; emit: (t: number, tile: EncodedTile) => void } {
+  private begin(src: BandSource, spec: FieldSpec, page: [number, number], onProgress?: (done: number, total: number) => void): { ix: FieldIndex; emit: (t: number, tile: EncodedTile) => void } {
     if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
     const slices = spec.slices ?? 1;
     if (slices > 1 && !this.writer.requireFlags(FLAG_SLICES)) {
@@ -250,6 +256,7 @@ export class ArchiveBuilder {
     // Prefixes are recorded for progressive layouts only, where a read can stop after the first factor groups.
     if (spec.progressive) ix.prefix = new Array<number[]>(n);
     const held = new Map<number, EncodedTile>();
+    let written = 0;
     const emit = (t: number, tile: EncodedTile) => {
       held.set(t, tile);
       const s = Math.floor(t / (gr * gc));
@@ -275,6 +282,7 @@ export class ArchiveBuilder {
           ix.rmse[u] = up32(e.stats.rmse);
           ix.value_crc[u] = e.stats.valueCrc;
           if (ix.prefix) ix.prefix[u] = e.stats.prefix.map((x, q) => (q % 4 >= 2 ? up32(x) : x));
+          onProgress?.(++written, n);
         }
       }
       if (t === n - 1 && held.size > 0) throw new Error(`${held.size} tiles were encoded but not written`);

@@ -1,20 +1,20 @@
 /** `rankfield check`: verify every tile of an archive, optionally against the original values. */
 import type { Command } from 'commander';
-import { InputCode, InputError, isPointwise, type CheckReport, type Dtype, type FieldHeader } from '../index.js';
+import { InputCode, InputError, isPointwise, type Archive, type CheckReport, type Dtype, type FieldHeader } from '../index.js';
 import { Exit, UsageError } from './errors.js';
 import { isUrl, openArchive, statInput } from './files.js';
-import { boundText, num } from './format.js';
+import { boundText, num, rawBytes } from './format.js';
 import { loadField } from './input.js';
 import type { Context } from './main.js';
 import { dtypeOption, endianOption, nameOption, shapeOption } from './options.js';
+import { Output, type OutputFlags } from './output.js';
 
-interface CheckFlags {
+interface CheckFlags extends OutputFlags {
   against?: string;
   field?: string;
   shape?: [number, number];
   dtype?: Dtype;
   endian?: 'little' | 'big';
-  json?: boolean;
 }
 
 const HELP = `
@@ -73,6 +73,17 @@ function reportText(r: CheckReport, headers: FieldHeader[], input: string, again
   return lines.join('\n') + '\n';
 }
 
+/** Run a check with a progress bar over the tiles of every field. */
+async function withBar(out: Output, archive: Archive, run: (onProgress: (done: number, total: number) => void) => Promise<CheckReport>): Promise<CheckReport> {
+  const raw = archive.header.fields.reduce((a, h) => a + rawBytes(h), 0);
+  const bar = out.tileProgress('checking', raw);
+  try {
+    return await run(bar.onProgress);
+  } finally {
+    bar.stop();
+  }
+}
+
 /** Register `check` on the program. */
 export function registerCheck(program: Command, ctx: Context): void {
   program
@@ -88,6 +99,7 @@ export function registerCheck(program: Command, ctx: Context): void {
     .option('--json', 'print the report as one JSON object')
     .addHelpText('after', HELP)
     .action(async (input: string, flags: CheckFlags) => {
+      const out = new Output(ctx, flags);
       if (flags.against === undefined) {
         const stray = (['field', 'shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
         if (stray.length > 0) throw new UsageError(`${stray.join(', ')} describe the original, which needs --against ORIGINAL`);
@@ -104,16 +116,12 @@ export function registerCheck(program: Command, ctx: Context): void {
           const orig = await loadField(flags.against, layout, { shape: [h.shape[0], h.shape[1]], dtype: h.dtype });
           checkOriginal(flags.against, orig.shape, orig.dtype, h, input);
           against = { path: flags.against, field: h.name };
-          report = await archive.check({ [h.name]: orig.data });
+          report = await withBar(out, archive, (onProgress) => archive.check({ [h.name]: orig.data }, onProgress));
         } else {
-          report = await archive.check();
+          report = await withBar(out, archive, (onProgress) => archive.check(undefined, onProgress));
         }
-        if (flags.json) {
-          const out = { file: input, against: against?.path ?? null, field: against?.field ?? null, ok: report.ok, fields: report.fields, failures: report.failures };
-          ctx.out(`${JSON.stringify(out, null, 2)}\n`);
-        } else {
-          ctx.out(reportText(report, archive.header.fields, input, against));
-        }
+        out.result({ command: 'check', file: input, against: against?.path ?? null, field: against?.field ?? null, ok: report.ok, fields: report.fields, failures: report.failures });
+        out.text(reportText(report, archive.header.fields, input, against));
         ctx.exitCode = report.ok ? Exit.Ok : Exit.CheckFailed;
       } finally {
         await archive.close();

@@ -11,11 +11,12 @@ import { checkOutput, openArchive, trackTempDir, writeOutput } from './files.js'
 import { num, ratio, seconds, table } from './format.js';
 import type { Context } from './main.js';
 import { shapeOption } from './options.js';
+import { Output, type OutputFlags } from './output.js';
 
 /** The bounds the demo packs at. */
 export const DEMO_BOUNDS = ['rel:1e-2', 'rel:1e-3', 'rel:1e-4', 'psnr:60'] as const;
 
-interface DemoFlags {
+interface DemoFlags extends OutputFlags {
   dir?: string;
   shape?: [number, number];
   force?: boolean;
@@ -90,6 +91,7 @@ export function registerDemo(program: Command, ctx: Context): void {
     .option('--shape <RxC>', `grid size (default ${BASIN_DEFAULTS.rows}x${BASIN_DEFAULTS.cols})`, shapeOption)
     .option('--force', 'overwrite files in D from an earlier run')
     .action(async (flags: DemoFlags) => {
+      const out = new Output(ctx, flags);
       const [rows, cols] = flags.shape ?? [BASIN_DEFAULTS.rows, BASIN_DEFAULTS.cols];
       const basin = corvaneBasin({ rows, cols });
       const force = flags.force === true;
@@ -106,7 +108,7 @@ export function registerDemo(program: Command, ctx: Context): void {
         // Refuse files of an earlier run before anything is printed or written.
         for (const out of [original, ...DEMO_BOUNDS.map((b) => archivePath(dir, b))]) await checkOutput(out, { force, inputs: [] });
         const land = ((100 * basin.landCells) / basin.values.length).toFixed(1);
-        ctx.out(
+        out.text(
           `Corvane Basin (an invented scenario): simulated sea-surface temperature, ${rows} x ${cols} float32,\n` +
             `${land}% land stored as fill value ${basin.fill}, water ${num(basin.range[0])} .. ${num(basin.range[1])} degC\n` +
             `files in ${flags.dir !== undefined ? `'${dir}'` : 'a temporary folder, removed at the end (keep them with --dir)'}\n\n`,
@@ -126,10 +128,19 @@ export function registerDemo(program: Command, ctx: Context): void {
           seconds(r.unpackMs),
           r.ok ? 'ok' : 'FAILED',
         ]);
-        ctx.out(table(['bound', 'bytes', 'ratio', 'error / E', 'RMSE degC', 'PSNR dB', 'pack', 'unpack', 'check'], body) + '\n\n');
-        for (const r of results) for (const f of r.failures) ctx.out(`FAIL ${f}\n`);
+        out.text(table(['bound', 'bytes', 'ratio', 'error / E', 'RMSE degC', 'PSNR dB', 'pack', 'unpack', 'check'], body) + '\n\n');
+        for (const r of results) for (const f of r.failures) out.text(`FAIL ${f}\n`);
         const failed = results.filter((r) => !r.ok).length;
-        ctx.out(
+        out.result({
+          command: 'demo',
+          dir: flags.dir ?? null,
+          shape,
+          fill: basin.fill,
+          bounds: results.map((r) => ({ bound: r.text, bytes: r.bytes, rawBytes: r.rawBytes, ratio: r.rawBytes / r.bytes, errorOverE: r.fraction, rmse: r.rmse, psnr: r.psnr, ok: r.ok, packSeconds: r.packMs / 1000, unpackSeconds: r.unpackMs / 1000 })),
+          ok: failed === 0,
+          failures: results.flatMap((r) => r.failures),
+        });
+        out.text(
           failed === 0
             ? `all ${results.length} checks passed (error / E: max error over the pointwise limit, or RMSE over the RMSE limit)\n`
             : `${failed} of ${results.length} checks FAILED\n`,

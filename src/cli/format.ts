@@ -10,6 +10,19 @@ export function num(x: number): string {
   return x.toExponential(3).replace(/\.?0+e/, 'e');
 }
 
+/** A byte count for people: "512 bytes", "12.3 kB", "4.56 MB" (SI units, 3 significant digits). */
+export function bytesText(n: number): string {
+  if (n < 1000) return `${n} bytes`;
+  const units = ['kB', 'MB', 'GB', 'TB', 'PB'];
+  let v = n / 1000;
+  let u = 0;
+  while (v >= 999.5 && u < units.length - 1) {
+    v /= 1000;
+    u++;
+  }
+  return `${Number(v.toPrecision(3))} ${units[u]}`;
+}
+
 /** A compression ratio, e.g. "12.34". */
 export function ratio(raw: number, packed: number): string {
   return packed > 0 ? (raw / packed).toFixed(2) : '-';

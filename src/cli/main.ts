@@ -11,7 +11,10 @@ import { Exit, report } from './errors.js';
 import { removeTempFilesSync, trackTempDir, trackTempFile } from './files.js';
 import { HTTP_DEFAULTS } from './http.js';
 import { Worker } from 'node:worker_threads';
+import { addOutputOptions } from './output.js';
 import { registerPack } from './pack.js';
+import { registerPreview } from './preview.js';
+import { registerTrial } from './trial.js';
 import { registerShow } from './show.js';
 import { registerUnpack } from './unpack.js';
 
@@ -23,6 +26,10 @@ export interface Context {
   err(text: string): void;
   /** Exit code a command sets when it completes but reports a failure (check). */
   exitCode: number;
+  /** Standard error is a terminal: progress bars are drawn (output.ts). */
+  errTTY?: boolean;
+  /** Width of that terminal in columns, when known. */
+  errColumns?: number;
 }
 
 /** Build the program with all commands; errors are thrown, never exit the process. */
@@ -60,6 +67,9 @@ institution's data-retention rules.`,
   registerShow(program, ctx);
   registerCheck(program, ctx);
   registerDemo(program, ctx);
+  registerPreview(program, ctx);
+  registerTrial(program, ctx);
+  addOutputOptions(program);
   return program;
 }
 
@@ -70,11 +80,13 @@ function wantsDebug(argv: readonly string[]): boolean {
 }
 
 /** Run the command line on `argv` (without the node and script paths); resolves to the exit code. */
-export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'err'>>): Promise<number> {
+export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'err' | 'errTTY' | 'errColumns'>>): Promise<number> {
   const ctx: Context = {
     out: io?.out ?? ((s) => void process.stdout.write(s)),
     err: io?.err ?? ((s) => void process.stderr.write(s)),
     exitCode: Exit.Ok,
+    errTTY: io?.errTTY ?? (io?.err === undefined && process.stderr.isTTY === true),
+    errColumns: io?.errColumns ?? process.stderr.columns,
   };
   const debug = wantsDebug(argv);
   const program = buildProgram(ctx);
@@ -96,7 +108,7 @@ export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'e
 }
 
 /** Commands that run long enough to be interrupted mid-way: they run in a worker thread (see worker.ts). */
-const LONG_COMMANDS = ['pack', 'demo'];
+const LONG_COMMANDS = ['pack', 'demo', 'trial'];
 
 /** The command word of argv: its first argument that is not an option. */
 function commandOf(argv: readonly string[]): string | undefined {
@@ -106,7 +118,8 @@ function commandOf(argv: readonly string[]): string | undefined {
 /** Run main in a worker thread, relaying its output, temporary files and exit code. */
 function inWorker(argv: string[], out: (s: string) => void, setWorker: (w: Worker) => void): Promise<number> {
   return new Promise((resolveCode) => {
-    const w = new Worker(new URL('./worker.js', import.meta.url), { workerData: { argv, rankfieldWorker: true } });
+    const tty = { errTTY: process.stderr.isTTY === true, errColumns: process.stderr.columns };
+    const w = new Worker(new URL('./worker.js', import.meta.url), { workerData: { argv, rankfieldWorker: true, ...tty } });
     setWorker(w);
     let done = false;
     const finish = (code: number) => {

@@ -5,14 +5,16 @@ import { ArchiveBuilder, InputCode, InputError, type Bound, type Dtype, type Flo
 import { fileError, UsageError } from './errors.js';
 import { isNetcdfPath, netcdfFields, parseMatrix } from './netcdf.js';
 import { readInput } from './files.js';
-import { errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
+import { bytesText, errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
 import { checkLayout, openFieldBands } from './input.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
+import { Output, type OutputFlags } from './output.js';
+import { packChoices, packDetails, writtenFacts } from './pack-report.js';
 import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, threadsOption, tileOption } from './options.js';
 
-interface PackFlags {
+interface PackFlags extends OutputFlags {
   output: string;
   bound: Bound;
   tile?: [number, number] | 'auto';
@@ -115,7 +117,8 @@ export function registerPack(program: Command, ctx: Context): void {
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
       const start = performance.now();
-      if (isNetcdfPath(input)) return packNetcdf(input, flags, ctx, start);
+      const out = new Output(ctx, flags);
+      if (isNetcdfPath(input)) return packNetcdf(input, flags, out, start);
       const nc = (['var', 'matrix', 'layout'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
       if (nc.length > 0) throw new UsageError(`${nc.join(' and ')} apply to NetCDF input (.nc); '${input}' is not one`);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
@@ -127,6 +130,7 @@ export function registerPack(program: Command, ctx: Context): void {
       // finished, so memory holds about one band of tiles plus the index, whatever the size.
       const field = await openFieldBands(input, layout);
       let fills = 0;
+      let threads: number | undefined;
       try {
         checkFill(flags.fill, field.dtype);
         const name = flags.name ?? defaultName(input);
@@ -144,15 +148,22 @@ export function registerPack(program: Command, ctx: Context): void {
           if (r0 + count === rows) firstPass = false;
           return values;
         };
+        threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1]);
         await writeOutputWith(flags.output, io, async (sink) => {
           const builder = new ArchiveBuilder(sink);
-          await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, threads: defaultThreads(flags.threads, field.shape[0] * field.shape[1]) });
+          const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
+          try {
+            await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, threads, onProgress: bar.onProgress });
+          } finally {
+            bar.stop();
+          }
           builder.finish();
         });
       } finally {
         field.close();
       }
-      // Only the tail, header and index are read back, for the figures of the summary.
+      // The header and index are read back, and the payloads counted by role, for the summary.
+      const facts = await writtenFacts(flags.output);
       const archive = await openArchive(flags.output);
       const { header: h, summary } = archive.field();
       const ix = { summary };
@@ -160,21 +171,24 @@ export function registerPack(program: Command, ctx: Context): void {
       await archive.close();
       const elapsed = performance.now() - start;
       if (flags.fill !== undefined && fills === 0) {
-        ctx.err(`rankfield: note: the fill value ${flags.fill} does not occur in '${input}'\n`);
+        out.note(`the fill value ${flags.fill} does not occur in '${input}'`);
       }
+      const choices = packChoices(flags.tile, null, flags.threads, threads);
       const raw = rawBytes(h);
       const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
       const other = e.what === 'max error' ? `RMSE ${num(ix.summary.rmse)}` : `max error ${num(ix.summary.max_err)}`;
-      ctx.out(
+      out.text(
         `packed '${input}' (${h.shape.join('x')} ${h.dtype}, field '${h.name}') -> '${flags.output}': ` +
           `${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; ` +
-          `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n`,
+          `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n` +
+          packDetails(facts, choices, false),
       );
+      out.result({ command: 'pack', input, output: flags.output, choices, seconds: elapsed / 1000, archive: facts });
     });
 }
 
 /** `pack IN.nc`: every chosen variable becomes one field of one archive. */
-async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: number): Promise<void> {
+async function packNetcdf(input: string, flags: PackFlags, out: Output, start: number): Promise<void> {
   const misplaced = (['shape', 'dtype', 'endian', 'fill', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
   if (misplaced.length > 0) {
     throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}', fill values from its _FillValue / missing_value attributes`);
@@ -184,11 +198,17 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   await checkOutput(flags.output, io);
   const bytes = await readInput(input);
   const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto');
+  let threads: number | undefined;
   await writeOutputWith(flags.output, io, async (sink) => {
     const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
     for (const f of fields) {
+      const bar = out.tileProgress(`packing '${printable(f.name)}'`, f.read.values.byteLength);
+      const fieldThreads = defaultThreads(flags.threads, f.slices * f.rows * f.cols);
+      if (threads === undefined || (fieldThreads ?? Infinity) > threads) threads = fieldThreads;
+      // The bar holds a timer: stopped however the field ends.
       await builder.addAsync(f.read.values, [f.rows, f.cols], {
-        threads: defaultThreads(flags.threads, f.slices * f.rows * f.cols),
+        onProgress: bar.onProgress,
+        threads: fieldThreads,
         bound: flags.bound,
         tile: flags.tile,
         fill: f.read.fill,
@@ -198,26 +218,32 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
         ndShape: f.read.shape,
         dims: f.read.dims,
         layout: f.layout,
-      });
+      }).finally(() => bar.stop());
     }
     builder.finish();
   });
+  const facts = await writtenFacts(flags.output);
   const archive = await openArchive(flags.output);
   const size = archive.size;
   let raw = 0;
   const lines: string[] = [];
-  for (const h of archive.header.fields) {
+  for (const [i, h] of archive.header.fields.entries()) {
     const ix = archive.field(h.name);
     const r = rawBytes(h);
     raw += r;
     const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
     const layout = h.layout ?? 'plain';
-    lines.push(`  ${printable(h.name)} (${(h.dims ?? []).map(printable).join(', ')}) ${(h.nd_shape ?? h.shape).join('x')} ${h.dtype}, layout ${layout}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E)\n`);
+    const own = facts.fields[i];
+    lines.push(`  ${printable(h.name)} (${(h.dims ?? []).map(printable).join(', ')}) ${(h.nd_shape ?? h.shape).join('x')} ${h.dtype}, layout ${layout}: ${bytesText(own.payloadBytes)}, ratio ${ratio(r, own.payloadBytes)}; ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E)\n`);
   }
   await archive.close();
-  ctx.out(`packed ${fields.length} variable${fields.length === 1 ? '' : 's'} of '${input}' -> '${flags.output}': ${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; bound ${flags.bound.mode}:${flags.bound.value}; ${seconds(performance.now() - start)}\n`);
-  for (const l of lines) ctx.out(l);
-  if (carried.length > 0) ctx.out(`  carried losslessly (not packed as fields): ${carried.map(printable).join(', ')}\n`);
+  const choices = packChoices(flags.tile, flags.layout === 'slices' || flags.matrix !== undefined ? 'given' : 'auto', flags.threads, threads);
+  const elapsed = performance.now() - start;
+  out.text(`packed ${fields.length} variable${fields.length === 1 ? '' : 's'} of '${input}' -> '${flags.output}': ${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; bound ${flags.bound.mode}:${flags.bound.value}; ${seconds(elapsed)}\n`);
+  for (const l of lines) out.text(l);
+  if (carried.length > 0) out.text(`  carried losslessly (not packed as fields): ${carried.map(printable).join(', ')}\n`);
+  out.text(packDetails(facts, choices, fields.length > 1));
+  out.result({ command: 'pack', input, output: flags.output, choices, seconds: elapsed / 1000, archive: facts });
 }
 
 /** `--layout`: auto or slices. */

@@ -3,10 +3,13 @@ import type { Command } from 'commander';
 import { METHOD_NAMES, Method } from '../codec/payload.js';
 import { formatBound, isPointwise, type Archive, type Attrs } from '../index.js';
 import { openArchive } from './files.js';
-import { num, rawBytes } from './format.js';
+import { bytesText, num, rawBytes } from './format.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
 import { carriedNames, KEY } from './netcdf.js';
+import { Output, type OutputFlags } from './output.js';
+import { fileShares, sharesText, tileUse, tileUseText, type ByteShares, type TileUse } from './summary.js';
+import { isUrl } from './files.js';
 
 /** The facts `show` reports about one field. */
 export interface FieldFacts {
@@ -31,6 +34,10 @@ export interface FieldFacts {
   rankHistogram: Record<string, number>;
   /** Tiles stored exactly (not low-rank), counted apart from the rank histogram. */
   exactTiles: number;
+  /** How the tiles are stored: with a low-rank part (and its mean rank), residual only, exactly. */
+  use: TileUse;
+  /** The payload bytes by role; null when not counted (archives read from a URL). */
+  bytes: ByteShares | null;
   attrs: Attrs;
   /** Slices of shape stacked in the field (1 for plain fields). */
   slices: number;
@@ -54,11 +61,16 @@ export interface ArchiveFacts {
   rawBytes: number;
   /** rawBytes / fileBytes. */
   ratio: number;
+  /** Bytes of the file outside the tile payloads: prologue, header, index and tail. */
+  containerBytes: number;
   fields: FieldFacts[];
 }
 
-/** Gather the facts of an opened archive whose whole index is loaded ({@link Archive.loadIndex}). */
-export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
+/**
+ * Gather the facts of an opened archive whose whole index is loaded
+ * ({@link Archive.loadIndex}); `shares` are the byte shares per field, when counted.
+ */
+export function archiveFacts(archive: Archive, file: string, shares: ByteShares[] | null = null): ArchiveFacts {
   const fields = archive.header.fields.map((h, i): FieldFacts => {
     const ix = archive.index.fields[i];
     const payloadBytes = ix.length.reduce((a, b) => a + b, 0);
@@ -99,6 +111,8 @@ export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
       methods,
       rankHistogram,
       exactTiles,
+      use: tileUse(ix),
+      bytes: shares?.[i] ?? null,
       attrs: h.attrs,
       slices: h.slices ?? 1,
       ...(h.nd_shape ? { ndShape: h.nd_shape } : {}),
@@ -108,6 +122,7 @@ export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
     };
   });
   const raw = fields.reduce((a, f) => a + f.rawBytes, 0);
+  const payloads = fields.reduce((a, f) => a + f.payloadBytes, 0);
   return {
     file,
     fileBytes: archive.size,
@@ -117,9 +132,13 @@ export function archiveFacts(archive: Archive, file: string): ArchiveFacts {
     carried: carriedNames(archive.header.attrs),
     rawBytes: raw,
     ratio: raw / archive.size,
+    containerBytes: archive.size - payloads,
     fields,
   };
 }
+
+/** Prefix of the attributes rankfield keeps for itself: shown by `show --json` only. */
+const BOOKKEEPING = 'rankfield:';
 
 function attrsText(attrs: Attrs): string {
   return Object.entries(attrs)
@@ -131,11 +150,14 @@ function attrsText(attrs: Attrs): string {
 export function factsText(a: ArchiveFacts): string {
   const lines = [
     `archive  ${a.file}: format version ${a.version}, written by ${a.writer}`,
-    `size     ${a.fileBytes} bytes for ${a.fields.length} field${a.fields.length === 1 ? '' : 's'}; ${a.rawBytes} raw value bytes; ratio ${a.ratio.toFixed(2)}`,
+    `size     ${bytesText(a.fileBytes)} for ${a.fields.length} field${a.fields.length === 1 ? '' : 's'} (${bytesText(a.rawBytes)} of raw values): ratio ${a.ratio.toFixed(2)}; header, index and tail ${bytesText(a.containerBytes)}`,
   ];
+  if (a.fields.length > 1) {
+    for (const f of a.fields) lines.push(`  ${printable(f.name)}: ${bytesText(f.payloadBytes)}, ratio ${f.ratio.toFixed(2)}`);
+  }
   // The NetCDF source's dimensions, variable order and carried variables are bookkeeping (and can be large): named, not printed.
   const own = new Set<string>([KEY.dims, KEY.order, KEY.carried]);
-  const shown = Object.fromEntries(Object.entries(a.attrs).filter(([k]) => !own.has(k)));
+  const shown = Object.fromEntries(Object.entries(a.attrs).filter(([k]) => !own.has(k) && !k.startsWith(BOOKKEEPING)));
   if (Object.keys(shown).length > 0) lines.push(`attrs    ${attrsText(shown)}`);
   if (a.carried.length > 0) lines.push(`carried  losslessly (not packed as fields; unpack -o OUT.nc restores them): ${a.carried.map(printable).join(', ')}`);
   for (const f of a.fields) {
@@ -146,8 +168,10 @@ export function factsText(a: ArchiveFacts): string {
       `field '${printable(f.name)}'`,
       `  shape        ${f.slices > 1 ? `${f.slices} slices of ` : ''}${f.shape[0]} x ${f.shape[1]} ${f.dtype}; tiles ${f.tile[0]} x ${f.tile[1]} (${grid} = ${f.tiles} tiles)`,
       `  bound        ${f.bound.text} -> ${f.bound.limits === 'pointwise' ? 'pointwise limit' : 'RMSE limit'} E = ${num(f.bound.tolerance)} (${range})`,
-      `  missing      ${f.cells - f.validCells} of ${f.cells} cells (NaN, infinities${f.fill === null ? '' : `, fill ${f.fill}`}), kept exactly`,
-      `  payload      ${f.payloadBytes} bytes; ratio ${f.ratio.toFixed(2)}; ${f.bitsPerValue.toFixed(3)} bits per value`,
+      `  missing      ${f.cells - f.validCells} of ${f.cells} cells (NaN, infinities${f.fill === null ? '' : `, fill ${num(f.fill)}`}), kept exactly`,
+      `  payload      ${bytesText(f.payloadBytes)}; ratio ${f.ratio.toFixed(2)}; ${f.bitsPerValue.toFixed(3)} bits per value`,
+      `  holds        ${tileUseText(f.use)}`,
+      `  bytes        ${f.bytes ? sharesText(f.bytes) : '(not counted for an archive read from a URL: that needs every payload)'}`,
       `  achieved     max error ${num(f.achieved.maxErr)}, RMSE ${num(f.achieved.rmse)} (E = ${num(f.bound.tolerance)})`,
       `  methods      ${Object.entries(f.methods).map(([m, n]) => `${m} ${n}`).join(', ')}`,
       `  ranks        ${ranks.length > 0 ? ranks.join('  ') : '(no low-rank tiles)'}${f.exactTiles > 0 ? `  | exact: ${f.exactTiles}` : ''}`,
@@ -161,7 +185,9 @@ export function factsText(a: ArchiveFacts): string {
       const p = f.attrs['rankfield:packing'];
       lines.push(`  values       unpacked physical values (CF scale_factor/add_offset ${Array.isArray(p) ? p.join(', ') : ''} applied at pack time; the bound applies to them)`);
     }
-    if (Object.keys(f.attrs).length > 0) lines.push(`  attrs        ${attrsText(f.attrs)}`);
+    // The archive's own bookkeeping (rankfield:...) is shown in words above, or only in --json.
+    const fieldAttrs = Object.fromEntries(Object.entries(f.attrs).filter(([k]) => !k.startsWith(BOOKKEEPING)));
+    if (Object.keys(fieldAttrs).length > 0) lines.push(`  attrs        ${attrsText(fieldAttrs)}`);
   }
   return lines.join('\n') + '\n';
 }
@@ -174,17 +200,23 @@ export function registerShow(program: Command, ctx: Context): void {
     .description(
       'Describe an archive: per field its shape, dtype, tiles, bound and resolved tolerance E, compression ratio ' +
         '(raw value bytes / payload bytes; for the whole archive, raw value bytes / file size), bits per value, ' +
-        'the ranks chosen per tile (exact tiles counted apart), and the max error and RMSE recorded at pack time.\n\n' +
-        'Only the tail, header and index (directory and pages) are read (for a URL, with HTTP Range requests); use `rankfield check` to verify the tiles.',
+        'the ranks chosen per tile (exact tiles counted apart), the max error and RMSE recorded at pack time, ' +
+        'and in words how many tiles use a low-rank part and which share of the bytes is low-rank factors, residual, ' +
+        'exactly stored values and tile headers.\n\n' +
+        'For an archive file, the tile payloads are read to count their bytes by role; for a URL only the tail, header ' +
+        'and index (directory and pages) are read, with HTTP Range requests. Use `rankfield check` to verify the tiles.',
     )
     .argument('<IN>', 'archive to describe: a file or an http(s) URL')
-    .option('--json', 'print one JSON object with the same facts')
-    .action(async (input: string, flags: { json?: boolean }) => {
+    .option('--json', 'print one JSON object with the same facts, unrounded')
+    .action(async (input: string, flags: OutputFlags) => {
+      const out = new Output(ctx, flags);
       const archive = await openArchive(input);
       try {
-        await archive.loadIndex();
-        const facts = archiveFacts(archive, input);
-        ctx.out(flags.json ? `${JSON.stringify(facts, null, 2)}\n` : factsText(facts));
+        const ix = await archive.loadIndex();
+        const shares = isUrl(input) ? null : await fileShares(input, ix.fields);
+        const facts = archiveFacts(archive, input, shares);
+        out.result({ command: 'show', ...facts });
+        out.text(factsText(facts));
       } finally {
         await archive.close();
       }

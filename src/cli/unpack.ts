@@ -14,8 +14,10 @@ import { stat } from 'node:fs/promises';
 import { join } from 'node:path';
 import type { Context } from './main.js';
 import { boundOption, endianOption, nameOption, threadsOption } from './options.js';
+import { Output, type OutputFlags } from './output.js';
 import { formatBound } from '../codec/bound.js';
 import type { Bound } from '../types.js';
+import type { FieldHeader } from '../format/schema.js';
 
 /** A window as given by --region: each end may be left open (to the field's edge). */
 export interface Region {
@@ -23,7 +25,7 @@ export interface Region {
   cols: [number | undefined, number | undefined];
 }
 
-interface UnpackFlags {
+interface UnpackFlags extends OutputFlags {
   output: string;
   field?: string;
   var?: string;
@@ -128,6 +130,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .addHelpText('after', HELP)
     .action(async (input: string, flags: UnpackFlags) => {
       const start = performance.now();
+      const out = new Output(ctx, flags);
       if (flags.var !== undefined && flags.field !== undefined) throw new UsageError('give --var or --field, not both');
       const chosen = flags.var ?? flags.field;
       const npy = isNpyPath(flags.output);
@@ -153,11 +156,18 @@ export function registerUnpack(program: Command, ctx: Context): void {
           if (nc) {
             const bytes = writeNetcdf(netcdfFromFields(archive.header.attrs, fields));
             await writeOutput(flags.output, bytes, io);
-            ctx.out(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (NetCDF classic, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+            out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (NetCDF classic, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+            out.result({ command: 'unpack', input, output: flags.output, format: 'netcdf', files: [{ path: flags.output, bytes: bytes.length, fields: names }], seconds: (performance.now() - start) / 1000 });
           } else {
             const files = fileNames(names);
-            for (const [i, f] of fields.entries()) await writeOutput(join(flags.output, files[i]), formatNpy({ data: f.values, shape: f.shape, dtype: f.h.dtype }), io);
-            ctx.out(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> ${files.map((f) => `'${join(flags.output, f)}'`).join(', ')}; ${seconds(performance.now() - start)}\n`);
+            const written = [];
+            for (const [i, f] of fields.entries()) {
+              const bytes = formatNpy({ data: f.values, shape: f.shape, dtype: f.h.dtype });
+              await writeOutput(join(flags.output, files[i]), bytes, io);
+              written.push({ path: join(flags.output, files[i]), bytes: bytes.length, fields: [names[i]] });
+            }
+            out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> ${files.map((f) => `'${join(flags.output, f)}'`).join(', ')}; ${seconds(performance.now() - start)}\n`);
+            out.result({ command: 'unpack', input, output: flags.output, format: 'npy', files: written, seconds: (performance.now() - start) / 1000 });
           }
           return;
         }
@@ -188,14 +198,26 @@ export function registerUnpack(program: Command, ctx: Context): void {
           // .npy and raw: decoded band by band (on worker threads) and written as each band comes.
           const { shape } = readShape(archive, h.name, request);
           let got: BandsRead | undefined;
-          await writeOutputWith(flags.output, io, async (sink) => {
-            const put = (b: Uint8Array) => {
-              sink.write(b);
-              written += b.length;
-            };
-            if (npy) put(npyHeader(shape, h.dtype));
-            got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => put(valueBytes(values, endian)));
-          });
+          const cells = shape.reduce((a, b) => a * b, 1);
+          const tiles = tilesTouched(h, request);
+          const bar = out.progress(`unpacking '${printable(h.name)}'`, tiles, cells * (h.dtype === 'f32' ? 4 : 8));
+          let done = 0;
+          try {
+            await writeOutputWith(flags.output, io, async (sink) => {
+              const put = (b: Uint8Array) => {
+                sink.write(b);
+                written += b.length;
+              };
+              if (npy) put(npyHeader(shape, h.dtype));
+              got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
+                put(valueBytes(values, endian));
+                done += values.length;
+                bar.update(Math.round((tiles * done) / cells));
+              });
+            });
+          } finally {
+            bar.stop();
+          }
           field = got!;
         }
         const kind = npy ? '.npy' : csv ? 'CSV' : `raw ${endian}-endian`;
@@ -203,15 +225,36 @@ export function registerUnpack(program: Command, ctx: Context): void {
         const [s0, s1] = field.window.slices ?? [0, 1];
         const full = `field '${printable(h.name)}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype})`;
         const part = `${sl ? `slices ${s0}..${s1 - 1}, ` : ''}rows ${r0}..${r1 - 1}, columns ${c0}..${c1 - 1} (${field.shape.join('x')}) of `;
-        ctx.out(`unpacked ${window || sl ? part : ''}${full} from '${input}' -> '${flags.output}' (${kind}, ${written} bytes); ${seconds(performance.now() - start)}\n`);
+        out.text(`unpacked ${window || sl ? part : ''}${full} from '${input}' -> '${flags.output}' (${kind}, ${written} bytes); ${seconds(performance.now() - start)}\n`);
+        out.result({
+          command: 'unpack',
+          input,
+          output: flags.output,
+          format: npy ? 'npy' : csv ? 'csv' : 'raw',
+          files: [{ path: flags.output, bytes: written, fields: [h.name] }],
+          field: h.name,
+          shape: field.shape,
+          window: field.window,
+          ...(flags.bound ? { bound: formatBound(flags.bound), prefixTiles: field.prefixTiles, achieved: field.achieved } : {}),
+          seconds: (performance.now() - start) / 1000,
+        });
         if (flags.bound) {
           const a = field.achieved;
-          ctx.out(`requested ${formatBound(flags.bound)}: ${field.prefixTiles} of the tiles read as factors only; the values satisfy max error ${a.maxErr.toPrecision(4)}, RMSE ${a.rmse.toPrecision(4)} (recorded at encode time)\n`);
+          out.text(`requested ${formatBound(flags.bound)}: ${field.prefixTiles} of the tiles read as factors only; the values satisfy max error ${a.maxErr.toPrecision(4)}, RMSE ${a.rmse.toPrecision(4)} (recorded at encode time)\n`);
         }
       } finally {
         await archive.close();
       }
     });
+}
+
+/** Tiles a read of `request` touches (for the progress bar). */
+function tilesTouched(h: FieldHeader, request: { slices?: [number, number]; rows?: [number, number]; cols?: [number, number] }): number {
+  const [s0, s1] = request.slices ?? [0, h.slices ?? 1];
+  const [r0, r1] = request.rows ?? [0, h.shape[0]];
+  const [c0, c1] = request.cols ?? [0, h.shape[1]];
+  const span = (a: number, b: number, t: number) => Math.floor((b - 1) / t) - Math.floor(a / t) + 1;
+  return (s1 - s0) * span(r0, r1, h.tile[0]) * span(c0, c1, h.tile[1]);
 }
 
 /** Refuse a folder output that does not exist or is not a folder. */

@@ -8,9 +8,9 @@
 import { parentPort, workerData } from 'node:worker_threads';
 import { main } from './main.js';
 
-const { argv } = workerData as { argv: string[] };
+const { argv, errTTY, errColumns } = workerData as { argv: string[]; errTTY?: boolean; errColumns?: number };
 const port = parentPort;
 if (port) {
-  const code = await main(argv, { out: (s) => port.postMessage({ out: s }), err: (s) => port.postMessage({ err: s }) });
+  const code = await main(argv, { out: (s) => port.postMessage({ out: s }), err: (s) => port.postMessage({ err: s }), errTTY: errTTY === true, errColumns });
   port.postMessage({ exit: code });
 }

@@ -12,7 +12,7 @@ import type { Codec } from '../../bench/baselines/codec.js';
 import { runCodec } from '../../bench/cells.js';
 import { fft, fft2 } from '../../bench/fft.js';
 import { basinStack, turbulence, vegaGrid } from '../../bench/fields.js';
-import { glyph } from '../../bench/font.js';
+import { glyph } from '../../src/picture/font.js';
 import { measure, type Target } from '../../bench/metrics.js';
 import { renderPlot, ticks, tickLabel } from '../../bench/plot.js';
 import { breakdown, rankfield } from '../../bench/rankfield.js';

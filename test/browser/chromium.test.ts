@@ -1,9 +1,10 @@
 /**
  * The decoder in a browser: headless Chromium (Debian's chromium package,
- * driven by playwright-core) loads dist/decode.js as ES modules from a
- * server on 127.0.0.1, opens an archive there with HTTP Range requests,
- * decodes windows, and hands back the bits of the values, which must equal
- * what Node decodes from the same bytes. Data: vega-datasets
+ * driven by playwright-core) loads the single-file bundle
+ * dist/rankfield-decode.mjs (no import map) and dist/decode.js as ES modules
+ * from a server on 127.0.0.1, opens an archive there with HTTP Range
+ * requests, decodes windows with each, and hands back the bits of the
+ * values, which must equal what Node decodes from the same bytes. Data: vega-datasets
  * data/annual-precip.json (360 wide x 168 high), with missing cells added.
  */
 import { existsSync, mkdtempSync, rmSync } from 'node:fs';
@@ -13,7 +14,7 @@ import { chromium, type BrowserContext, type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { open, pack } from '../../src/index.js';
 import { precip } from '../archive/datasets.js';
-import { ensureBuilt, ROOT } from '../cli/helpers.js';
+import { ensureBuilt, ensureBundled, ROOT } from '../cli/helpers.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
 
 const CHROMIUM = '/usr/bin/chromium';
@@ -31,9 +32,12 @@ const PAGE = `<!doctype html>
 } }
 </script>
 <script type="module">
-import { open, HttpSource, FormatError } from '/dist/decode.js';
-window.decodeWindows = async (url, windows) => {
-  const archive = await open(new HttpSource(url));
+import * as bundle from '/dist/rankfield-decode.mjs';
+import * as modules from '/dist/decode.js';
+const { open, HttpSource, FormatError } = bundle;
+window.decodeWindows = async (url, windows, which) => {
+  const lib = which === 'modules' ? modules : bundle;
+  const archive = await lib.open(new lib.HttpSource(url));
   // Several windows at once on one archive object.
   const fields = await Promise.all(windows.map(([rows, cols]) => archive.read(undefined, { rows, cols })));
   return fields.map((f) => ({ shape: f.shape, dtype: f.dtype, words: Array.from(new Uint32Array(f.values.buffer, f.values.byteOffset, f.values.byteLength / 4)) }));
@@ -76,6 +80,7 @@ describe.skipIf(!PRESENT && !REQUIRED)('the decoder in headless Chromium', () =>
   beforeAll(async () => {
     if (!existsSync(CHROMIUM)) return;
     ensureBuilt();
+    ensureBundled();
     server = await startRangeServer();
     server.put('/index.html', new TextEncoder().encode(PAGE));
     server.put('/precip.rfz', bytes);
@@ -115,10 +120,10 @@ describe.skipIf(!PRESENT && !REQUIRED)('the decoder in headless Chromium', () =>
     expect(existsSync(CHROMIUM), `${CHROMIUM} is missing: install Debian's chromium package (apt-get install -y chromium), as .ci/run does`).toBe(true);
   });
 
-  it('decodes windows over HTTP Range requests, bit for bit as Node does', async () => {
+  it.each(['bundle', 'modules'])('decodes windows over HTTP Range requests, bit for bit as Node does (%s)', async (which) => {
     expect(context, `${CHROMIUM} is missing: install Debian's chromium package (apt-get install -y chromium)`).not.toBeNull();
     server.reset();
-    const got = await page.evaluate(([url, windows]) => (window as unknown as { decodeWindows: (u: string, w: unknown) => Promise<{ shape: number[]; dtype: string; words: number[] }[]> }).decodeWindows(url, windows), [`${server.url}/precip.rfz`, WINDOWS] as const);
+    const got = await page.evaluate(([url, windows, w]) => (window as unknown as { decodeWindows: (u: string, x: unknown, w: string) => Promise<{ shape: number[]; dtype: string; words: number[] }[]> }).decodeWindows(url, windows, w), [`${server.url}/precip.rfz`, WINDOWS, which] as const);
     expect(errors).toEqual([]);
     const node = await open(bytes);
     for (const [k, [rows, cols]] of WINDOWS.entries()) {

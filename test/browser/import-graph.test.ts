@@ -10,7 +10,7 @@ import { existsSync, readFileSync } from 'node:fs';
 import { builtinModules } from 'node:module';
 import { dirname, join, relative, resolve } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
-import { ensureBuilt, ROOT } from '../cli/helpers.js';
+import { ensureBuilt, ensureBundled, ROOT } from '../cli/helpers.js';
 
 /** Packages the decoder may import: both ship ESM builds without Node built-ins. */
 const ALLOWED_PACKAGES = new Set(['fflate', '@msgpack/msgpack']);
@@ -76,5 +76,19 @@ describe('the import graph of dist/decode.js', () => {
       const code = readFileSync(f, 'utf8').replace(/\/\*[\s\S]*?\*\//g, '').replace(/\/\/.*$/gm, '');
       expect(code, relative(ROOT, f)).not.toMatch(/\b(?:Buffer|process|require|__dirname|__filename)\s*[.(]/);
     }
+  });
+});
+
+describe('the single-file browser bundle', () => {
+  beforeAll(() => ensureBundled());
+
+  it('dist/rankfield-decode.mjs imports nothing and exports the decoding entry\'s names', async () => {
+    const text = readFileSync(join(ROOT, 'dist', 'rankfield-decode.mjs'), 'utf8');
+    expect(specifiers(text)).toEqual([]);
+    expect(text).not.toMatch(/\brequire\s*\(/);
+    // Loaded as an ES module here too, it offers what rankfield/decode offers.
+    const bundle = (await import(join(ROOT, 'dist', 'rankfield-decode.mjs'))) as Record<string, unknown>;
+    const entry = (await import(join(ROOT, 'dist', 'decode.js'))) as Record<string, unknown>;
+    expect(Object.keys(bundle).sort()).toEqual(Object.keys(entry).sort());
   });
 });

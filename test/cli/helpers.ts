@@ -29,6 +29,13 @@ export function ensureBuilt(): void {
   execFileSync(process.execPath, [join(ROOT, 'node_modules', 'typescript', 'bin', 'tsc'), '-p', '.'], { cwd: ROOT, stdio: 'inherit' });
 }
 
+/** Build the browser bundle dist/rankfield-decode.mjs (scripts/bundle.mjs) when it is missing or older than a source file. */
+export function ensureBundled(): void {
+  const bundle = join(ROOT, 'dist', 'rankfield-decode.mjs');
+  if (existsSync(bundle) && statSync(bundle).mtimeMs >= newestMtime(join(ROOT, 'src'))) return;
+  execFileSync(process.execPath, [join(ROOT, 'scripts', 'bundle.mjs')], { cwd: ROOT, stdio: 'inherit' });
+}
+
 export interface RunResult {
   code: number | null;
   stdout: string;

@@ -38,8 +38,12 @@ describe('pack', { timeout: CLI_TIMEOUT }, () => {
     const r = rf(['pack', 'volcano.npy', '-o', 'v-abs.rfz', '--bound', 'abs:0.5'], dir);
     expect(r.code, r.stderr).toBe(0);
     const size = readFileSync(join(dir, 'v-abs.rfz')).length;
-    // One summary line: bytes in (61 x 87 x 8), bytes out, ratio, achieved error vs the bound, time.
-    expect(r.stdout.trimEnd().split('\n')).toHaveLength(1);
+    // One summary line: bytes in (61 x 87 x 8), bytes out, ratio, achieved error vs the bound, time;
+    // then indented details: the automatic choices (tile, threads), tile use and byte shares.
+    const [first, ...details] = r.stdout.trimEnd().split('\n');
+    expect(first).toMatch(/^packed 'volcano\.npy'/);
+    expect(details.map((l) => l.split(' ')[2])).toEqual(['tile', 'threads', expect.any(String), 'bytes:']);
+    expect(details[0]).toMatch(/^  tile \d+ x \d+ \(chosen automatically: /);
     expect(r.stdout).toContain(`${ROWS * COLS * 8} bytes in, ${size} bytes out, ratio ${((ROWS * COLS * 8) / size).toFixed(2)}`);
     expect(r.stdout).toMatch(/abs:0\.5 \(pointwise limit E = 0\.5\): max error [0-9.e-]+ \([01]\.\d{3} E\), RMSE [0-9.e-]+; \d+(\.\d+)? m?s/);
     const back = unpackNpy('v-abs.rfz', 'v-abs.npy');

@@ -1,5 +1,5 @@
 /**
- * A tiny 5x7 bitmap font of our own for the plots: digits, letters, and the
+ * A tiny 5x7 bitmap font of our own for pictures and plots: digits, letters, and the
  * symbols the labels use. Each glyph is seven rows of five cells, '#' set;
  * the letters with descenders (g j p q y) have two more rows below the line.
  */
@@ -89,6 +89,7 @@ const G: Record<string, string> = {
   '!': '..#.. ..#.. ..#.. ..#.. ..#.. ..... ..#..',
   '#': '.#.#. .#.#. ##### .#.#. ##### .#.#. .#.#.',
   "'": '..#.. ..#.. .#... ..... ..... ..... .....',
+  '|': '..#.. ..#.. ..#.. ..#.. ..#.. ..#.. ..#..',
 };
 
 /** Glyph width and height in font cells. */

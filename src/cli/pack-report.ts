@@ -1,0 +1,65 @@
+/**
+ * What `pack` reports once the archive is written: per field its size and
+ * ratio, how its tiles and bytes are used, and every choice pack made on
+ * its own (tile shape, layout, threads), as text and as one JSON object.
+ */
+import { availableParallelism } from 'node:os';
+import { printable } from '../format/schema.js';
+import { openArchive } from './files.js';
+import { archiveFacts, type ArchiveFacts, type FieldFacts } from './show.js';
+import { fileShares, sharesText, tileUseText } from './summary.js';
+
+/** What pack chose itself, and what the user fixed. */
+export interface PackChoices {
+  /** The tile shape was tried on a sample ('auto') or given with --tile. */
+  tile: 'auto' | 'given';
+  /** The layout of N-D variables was tried on a sample ('auto') or given (--layout, --matrix); null for 2-D input. */
+  layout: 'auto' | 'given' | null;
+  /** Threads encoding tiles, and whether that number was chosen by pack. */
+  threads: number;
+  threadsAuto: boolean;
+}
+
+/** The choices of a pack run from its flags; `threads` is the resolved count of the largest field. */
+export function packChoices(tile: unknown, layout: 'auto' | 'given' | null, given: number | undefined, resolved: number | undefined): PackChoices {
+  return {
+    tile: tile === undefined || tile === 'auto' ? 'auto' : 'given',
+    layout,
+    threads: given ?? resolved ?? availableParallelism(),
+    threadsAuto: given === undefined,
+  };
+}
+
+/** The facts of a freshly written archive file, with its payload bytes counted by role. */
+export async function writtenFacts(path: string): Promise<ArchiveFacts> {
+  const archive = await openArchive(path);
+  try {
+    const ix = await archive.loadIndex();
+    return archiveFacts(archive, path, await fileShares(path, ix.fields));
+  } finally {
+    await archive.close();
+  }
+}
+
+/** The lines that follow pack's summary line: choices, then per field how it is stored. */
+export function packDetails(facts: ArchiveFacts, c: PackChoices, many: boolean): string {
+  const lines: string[] = [];
+  const tiles = [...new Set(facts.fields.map((f) => f.tile.join(' x ')))].join(', ');
+  const auto = (what: boolean, how: string) => (what ? ` (chosen automatically: ${how})` : '');
+  lines.push(`  tile ${tiles}${auto(c.tile === 'auto', 'the shape that packed smallest on a sample; --tile fixes it')}`);
+  if (c.layout !== null) {
+    const layouts = [...new Set(facts.fields.map((f) => f.layout ?? 'plain'))].join(', ');
+    lines.push(`  layout ${layouts}${auto(c.layout === 'auto', 'the layout that packed smallest on a sample; --layout slices or --matrix fixes it')}`);
+  }
+  lines.push(`  threads ${c.threads}${auto(c.threadsAuto, 'one for a field under 2^18 values, else the number of cores; --threads fixes it')}`);
+  for (const f of facts.fields) lines.push(...fieldLines(f, many));
+  return lines.join('\n') + '\n';
+}
+
+/** How one field is stored; with `many`, named (pack's line per variable has given its size and ratio). */
+function fieldLines(f: FieldFacts, many: boolean): string[] {
+  const who = many ? `${printable(f.name)}: ` : '';
+  const out = [`  ${who}${tileUseText(f.use)}`];
+  if (f.bytes) out.push(`  ${who}bytes: ${sharesText(f.bytes)}`);
+  return out;
+}

@@ -1,0 +1,284 @@
+/**
+ * `rankfield trial`: pack a sample of the user's own field at several bounds
+ * and report, per bound, what each would cost and achieve, so a bound can be
+ * chosen on the data before archiving all of it. Nothing is written but the
+ * optional error pictures.
+ */
+import { join } from 'node:path';
+import { InvalidArgumentError, type Command } from 'commander';
+import { printable } from '../format/schema.js';
+import { formatBound, isPointwise, MemorySource, open, pack, parseBound, resolveBound, type Bound, type Dtype, type FloatArray } from '../index.js';
+import { heatmap } from '../picture/heatmap.js';
+import { readGrids, slicePlane } from '../picture/sample.js';
+import { fileError, UsageError } from './errors.js';
+import { checkOutput, statInput, writeOutput } from './files.js';
+import { num, ratio, seconds, table } from './format.js';
+import { checkLayout, openFieldBands } from './input.js';
+import type { Context } from './main.js';
+import { isNetcdfPath } from './netcdf.js';
+import { dtypeOption, endianOption, fillOption, nonFinite, shapeOption, tileOption } from './options.js';
+import { Output, type OutputFlags } from './output.js';
+import { byteShares, tileUse, type ByteShares, type TileUse } from './summary.js';
+
+interface TrialFlags extends OutputFlags {
+  bounds?: Bound[];
+  sample?: number;
+  tile?: [number, number] | 'auto';
+  fill?: number;
+  shape?: [number, number];
+  dtype?: Dtype;
+  endian?: 'little' | 'big';
+  pictures?: string;
+  force?: boolean;
+}
+
+/** The bounds tried by default. */
+export const TRIAL_BOUNDS = 'rel:1e-2,rel:1e-3,rel:1e-4,psnr:60';
+
+/** Side of the sample by default, in cells. */
+const DEFAULT_SAMPLE = 384;
+
+/** One bound's outcome on the sample. */
+export interface TrialRow {
+  bound: string;
+  /** The resolved tolerance E (pointwise limit or RMSE limit), against the whole field's value range. */
+  tolerance: number;
+  bytes: number;
+  ratio: number;
+  bitsPerValue: number;
+  maxErr: number;
+  rmse: number;
+  /** 20 log10(range / RMSE), range of the whole field's valid values; null when the RMSE is 0. */
+  psnr: number | null;
+  tiles: TileUse;
+  shares: ByteShares;
+  picture: string | null;
+}
+
+const HELP = `
+The sample is the central block of up to --sample x --sample cells of the
+field. IN is read once whole, a band of rows at a time, for the value range
+that rel and psnr bounds are resolved against (as pack does), so the
+tolerance E on the sample is the one the whole field would get. The sample is packed at each bound in
+memory, read back and compared with itself: ratio (raw value bytes / archive
+bytes), bits per value, the achieved max error, RMSE and PSNR (over the
+sample's value range), how many tiles use a low-rank part, and which share of
+the bytes is low-rank factors and which residual. A sample is not the whole
+field: ratios on the full field differ, most where the field changes
+character from place to place.
+
+Whatever bound you choose, packing is lossy: it discards information. Keep
+the original files until rankfield check ARCHIVE --against ORIGINAL passes,
+and follow your institution's data-retention rules.
+
+--pictures DIR writes one error picture per bound, DIR/trial-MODE-VALUE.png
+(|decoded - original| / E per cell; see rankfield preview --help).
+
+Example:
+  rankfield trial sst.npy --fill -999 --bounds abs:0.01,abs:0.05,psnr:60`;
+
+/** `--bounds A,B,...`: bounds, each as --bound takes it. */
+function boundsOption(text: string): Bound[] {
+  const parts = text.split(',').map((p) => p.trim());
+  if (parts.length === 0 || parts.some((p) => p === '')) throw new InvalidArgumentError(`bounds must be a comma-separated list such as rel:1e-2,psnr:60, got '${printable(text)}'`);
+  if (parts.length > 16) throw new InvalidArgumentError(`at most 16 bounds at once, got ${parts.length}`);
+  return parts.map((p) => {
+    const m = /^([a-z]+):(.+)$/.exec(p);
+    const bad = m === null ? null : nonFinite(m[2]);
+    if (bad !== null) throw new InvalidArgumentError(`bound value in '${printable(p)}' must be a positive finite number, got ${bad}`);
+    try {
+      return parseBound(p);
+    } catch (e) {
+      throw new InvalidArgumentError(e instanceof Error ? e.message : String(e));
+    }
+  });
+}
+
+function sampleOption(text: string): number {
+  const n = Number(text.trim());
+  if (!/^[0-9]+$/.test(text.trim()) || !Number.isSafeInteger(n) || n < 8 || n > 4096) throw new InvalidArgumentError(`sample must be an integer from 8 to 4096, got '${printable(text)}'`);
+  return n;
+}
+
+/** Rows read at a time when the field's value range is measured. */
+const RANGE_BAND = 256;
+
+/**
+ * Read the central block of up to side x side cells of IN, and the value
+ * range of the whole field (one pass over it, a band of rows at a time), which
+ * rel and psnr bounds are resolved against, as pack does.
+ */
+async function readSample(input: string, flags: TrialFlags & { sample: number }): Promise<{ values: FloatArray; shape: [number, number]; field: [number, number]; rows: [number, number]; cols: [number, number]; dtype: Dtype; range: [number, number] | null }> {
+  const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
+  checkLayout(input, layout);
+  const field = await openFieldBands(input, layout);
+  try {
+    const [R, C] = field.shape;
+    const m = Math.min(R, flags.sample);
+    const n = Math.min(C, flags.sample);
+    const r0 = Math.floor((R - m) / 2);
+    const c0 = Math.floor((C - n) / 2);
+    let band: FloatArray;
+    const fill = flags.fill === undefined ? null : field.dtype === 'f32' ? Math.fround(flags.fill) : flags.fill;
+    let lo = Infinity;
+    let hi = -Infinity;
+    try {
+      for (let b0 = 0; b0 < R; b0 += RANGE_BAND) {
+        const part = field.band(b0, Math.min(RANGE_BAND, R - b0));
+        for (let k = 0; k < part.length; k++) {
+          const v = part[k];
+          if (!Number.isFinite(v) || v === fill) continue;
+          if (v < lo) lo = v;
+          if (v > hi) hi = v;
+        }
+      }
+      band = field.band(r0, m);
+    } catch (e) {
+      throw fileError(e, 'read', input);
+    }
+    const values = field.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+    for (let i = 0; i < m; i++) values.set(band.subarray(i * C + c0, i * C + c0 + n), i * n);
+    return { values, shape: [m, n], field: [R, C], rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: field.dtype, range: lo <= hi ? [lo, hi] : null };
+  } finally {
+    field.close();
+  }
+}
+
+/** Pack the sample at one bound, read it back and measure it. */
+async function tryBound(sample: FloatArray, shape: [number, number], range: [number, number] | null, bound: Bound, flags: TrialFlags, out: Output, pictures: string | null, io: { force: boolean; inputs: string[] }): Promise<TrialRow> {
+  const bar = out.tileProgress(`trial ${formatBound(bound)}`, sample.byteLength);
+  // rel and psnr are resolved against the whole field's range, not the sample's: the E a pack of the field would use.
+  const span = range ? range[1] - range[0] : 0;
+  const pointwise = isPointwise(bound.mode);
+  const tol = resolveBound(bound, span);
+  const fixed: Bound = bound.mode === 'rel' || bound.mode === 'psnr' ? { mode: pointwise ? 'abs' : 'rmse', value: tol > 0 ? tol : Number.MIN_VALUE } : bound;
+  let bytes: Uint8Array;
+  try {
+    bytes = pack(sample, shape, { bound: fixed, tile: flags.tile, fill: flags.fill ?? null, name: 'sample', onProgress: bar.onProgress });
+  } finally {
+    bar.stop();
+  }
+  const archive = await open(bytes);
+  const { header: h } = archive.field();
+  const ix = await archive.fieldIndex();
+  const back = (await archive.read()).values;
+  const fill = h.fill === null ? null : h.dtype === 'f32' ? Math.fround(h.fill) : h.fill;
+  let max = 0;
+  let sq = 0;
+  let valid = 0;
+  for (let k = 0; k < sample.length; k++) {
+    const v = sample[k];
+    if (!Number.isFinite(v) || v === fill) continue;
+    const e = Math.abs(back[k] - v);
+    if (e > max) max = e;
+    sq += e * e;
+    valid++;
+  }
+  const rmse = valid > 0 ? Math.sqrt(sq / valid) : 0;
+  let picture: string | null = null;
+  if (pictures !== null) {
+    picture = join(pictures, `trial-${formatBound(bound).replace(':', '-')}.png`);
+    const grids = await readGrids(slicePlane(archive, h, 0), h, { slice: 0, rows: [0, shape[0]], cols: [0, shape[1]] }, Math.max(1, Math.ceil(Math.max(...shape) / 768)), sample, h.bound.tolerance > 0 ? h.bound.tolerance : 1);
+    const g = grids.errors!;
+    const worst = g.cells.reduce((a, b) => (b > a ? b : a), 0);
+    const scale = g.block > 1 ? 1 : Math.max(1, Math.floor(384 / Math.max(g.rows, g.cols)));
+    const png = heatmap({
+      cells: g.cells,
+      rows: g.rows,
+      cols: g.cols,
+      scale,
+      map: 'inferno',
+      lo: 0,
+      hi: Math.max(1, worst),
+      barLabel: '|error| / E',
+      title: [`trial sample: |decoded - original| / E`, `bound ${formatBound(bound)} (E = ${num(h.bound.tolerance)}); ratio ${ratio(sample.byteLength, bytes.length)}`],
+      notes: [g.block > 1 ? `one pixel: ${g.block} x ${g.block} cells (largest)` : scale > 1 ? `one cell: ${scale} x ${scale} pixels` : 'one cell per pixel'],
+      missing: g.missing > 0,
+    }).png();
+    await writeOutput(picture, png, io);
+  }
+  await archive.close();
+  return {
+    bound: formatBound(bound),
+    tolerance: tol,
+    bytes: bytes.length,
+    ratio: sample.byteLength / bytes.length,
+    bitsPerValue: (bytes.length * 8) / sample.length,
+    maxErr: max,
+    rmse,
+    psnr: rmse > 0 && span > 0 ? 20 * Math.log10(span / rmse) : null,
+    tiles: tileUse(ix),
+    shares: await byteShares(new MemorySource(bytes), ix, 'trial sample'),
+    picture,
+  };
+}
+
+/** "45% / 50%": the shares of factors and residual in a row's payload bytes. */
+function carried(s: ByteShares): string {
+  const total = s.factors + s.residual + s.exact + s.tileHeaders;
+  const pct = (n: number) => `${total > 0 ? Math.round((100 * n) / total) : 0}%`;
+  return `${pct(s.factors)} / ${pct(s.residual + s.exact)}`;
+}
+
+/** Register `trial` on the program. */
+export function registerTrial(program: Command, ctx: Context): void {
+  program
+    .command('trial')
+    .summary('pack a sample of a field at several bounds and compare ratio and error, to choose a bound')
+    .description('Pack a sample of a field at several bounds, in memory, and print per bound the ratio, bits per value, achieved max error, RMSE and PSNR, and what carried the bytes (low-rank factors or residual). Nothing is archived.')
+    .argument('<IN>', 'input: .npy (2-D float32/float64), or raw binary with --shape and --dtype')
+    .option('--bounds <LIST>', `bounds to try, comma-separated (default ${TRIAL_BOUNDS})`, boundsOption)
+    .option('--sample <N>', `side of the central sample in cells (default ${DEFAULT_SAMPLE})`, sampleOption)
+    .option('--tile <RxC>', 'tile size as for pack (default: chosen on the sample per bound)', tileOption)
+    .option('--fill <V>', 'fill value marking missing cells, as for pack', fillOption)
+    .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
+    .option('--dtype <TYPE>', 'raw input: f32 or f64', dtypeOption)
+    .option('--endian <ORDER>', 'raw input: byte order, little (default) or big', endianOption)
+    .option('--pictures <DIR>', 'write an error picture per bound into DIR (an existing folder)')
+    .option('--force', 'overwrite pictures of an earlier trial')
+    .addHelpText('after', HELP)
+    .action(async (input: string, given: TrialFlags) => {
+      const start = performance.now();
+      const flags = { ...given, bounds: given.bounds ?? boundsOption(TRIAL_BOUNDS), sample: given.sample ?? DEFAULT_SAMPLE };
+      const out = new Output(ctx, flags);
+      if (isNetcdfPath(input)) throw new UsageError(`trial reads .npy or raw input, not NetCDF yet: save one 2-D variable of '${printable(input)}' as .npy first`);
+      await statInput(input);
+      const io = { force: flags.force === true, inputs: [input] };
+      const pictures = flags.pictures ?? null;
+      if (pictures !== null) {
+        for (const b of flags.bounds) await checkOutput(join(pictures, `trial-${formatBound(b).replace(':', '-')}.png`), io);
+      }
+      const s = await readSample(input, flags);
+      const rows: TrialRow[] = [];
+      for (const b of flags.bounds) rows.push(await tryBound(s.values, s.shape, s.range, b, flags, out, pictures, io));
+      const where = `rows ${s.rows[0]}..${s.rows[1] - 1}, columns ${s.cols[0]}..${s.cols[1] - 1}`;
+      const range = s.range ? `valid range [${num(s.range[0])}, ${num(s.range[1])}]` : 'no valid values';
+      out.text(`trial of '${input}' (${s.field.join('x')} ${s.dtype}, ${range}): sample ${s.shape.join(' x ')} (${where}), ${s.values.byteLength} bytes of raw values\n\n`);
+      const body = rows.map((r) => [
+        r.bound,
+        num(r.tolerance),
+        r.ratio.toFixed(2),
+        r.bitsPerValue.toFixed(2),
+        num(r.maxErr),
+        num(r.rmse),
+        r.psnr === null ? 'inf' : r.psnr.toFixed(1),
+        `${r.tiles.lowRank}/${r.tiles.tiles}`,
+        r.tiles.lowRank > 0 ? r.tiles.meanRank.toFixed(1) : '-',
+        carried(r.shares),
+      ]);
+      out.text(`${table(['bound', 'E', 'ratio', 'bits/value', 'max error', 'RMSE', 'PSNR dB', 'low-rank tiles', 'mean rank', 'factors / residual'], body)}\n\n`);
+      out.text('factors / residual: shares of the payload bytes in low-rank factors and in the residual with exactly stored values; the rest is tile headers and masks.\n');
+      for (const r of rows) if (r.picture) out.text(`error picture for ${r.bound}: '${r.picture}'\n`);
+      out.text(`A sample is not the whole field: check the full archive with rankfield check. ${seconds(performance.now() - start)}\n`);
+      out.result({
+        command: 'trial',
+        input,
+        shape: s.field,
+        dtype: s.dtype,
+        range: s.range,
+        sample: { rows: s.rows, cols: s.cols, shape: s.shape, rawBytes: s.values.byteLength },
+        bounds: rows,
+        seconds: (performance.now() - start) / 1000,
+      });
+    });
+}
