@@ -26,6 +26,7 @@ interface PackFlags {
   matrix?: string[];
   layout?: 'auto' | 'slices';
   threads?: number;
+  progressive?: boolean;
 }
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
@@ -111,6 +112,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--matrix <AXES:NAME>', 'NetCDF input: flatten the leading axes AXES (comma-separated) into rows, the rest into columns, e.g. time:space', parseMatrix)
     .option('--layout <LAYOUT>', 'NetCDF input, variables of 3+ dimensions: auto (default: the layout whose sample packs smallest) or slices', layoutOption)
     .option('--threads <N>', 'threads encoding tiles (default: the number of cores; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
+    .option('--progressive', 'lay each tile\'s factors out in rank groups with their recorded errors, so that `unpack --bound` with a looser bound reads only a prefix of each tile (costs some bytes)')
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
@@ -146,7 +148,7 @@ export function registerPack(program: Command, ctx: Context): void {
         };
         await writeOutputWith(flags.output, io, async (sink) => {
           const builder = new ArchiveBuilder(sink);
-          await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, threads: defaultThreads(flags.threads, field.shape[0] * field.shape[1]) });
+          await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, progressive: flags.progressive === true, threads: defaultThreads(flags.threads, field.shape[0] * field.shape[1]) });
           builder.finish();
         });
       } finally {
@@ -198,6 +200,7 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
         ndShape: f.read.shape,
         dims: f.read.dims,
         layout: f.layout,
+        progressive: flags.progressive === true,
       });
     }
     builder.finish();

@@ -5,7 +5,7 @@ import { valueBytes } from '../io/bands.js';
 import { readBands, readShape, type BandsRead } from '../parallel/read.js';
 import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput, writeOutputWith } from './files.js';
-import { seconds } from './format.js';
+import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
 import { isNetcdfPath, netcdfFromFields } from './netcdf.js';
 import { writeNetcdf } from '../io/netcdf-write.js';
@@ -14,8 +14,9 @@ import { stat } from 'node:fs/promises';
 import { join } from 'node:path';
 import type { Context } from './main.js';
 import { boundOption, endianOption, nameOption, threadsOption } from './options.js';
-import { formatBound } from '../codec/bound.js';
+import { formatBound, isPointwise, resolveBound } from '../codec/bound.js';
 import type { Bound } from '../types.js';
+import type { FieldHeader } from '../format/schema.js';
 
 /** A window as given by --region: each end may be left open (to the field's edge). */
 export interface Region {
@@ -161,7 +162,8 @@ export function registerUnpack(program: Command, ctx: Context): void {
           }
           return;
         }
-        const { header: h } = archive.field(chosen);
+        const { header: h, summary } = archive.field(chosen);
+        if (flags.bound) refuseStricter(flags.bound, h, summary, input);
         const r = flags.region;
         const window = r && {
           rows: [r.rows[0] ?? 0, r.rows[1] ?? h.shape[0]] as [number, number],
@@ -212,6 +214,26 @@ export function registerUnpack(program: Command, ctx: Context): void {
         await archive.close();
       }
     });
+}
+
+/**
+ * Refuse `unpack --bound` when the request is stricter than the archive
+ * holds: a read can only give back what was stored. A pointwise request is
+ * met when the archive's own bound is pointwise and no looser, or when its
+ * recorded max error is within it; an RMSE request likewise with the RMSE
+ * (a pointwise bound E also bounds the RMSE by E).
+ */
+export function refuseStricter(b: Bound, h: FieldHeader, summary: { max_err: number; rmse: number }, input: string): void {
+  const range = h.bound.range;
+  const tol = resolveBound(b, range ? range[1] - range[0] : 0);
+  const pointwise = isPointwise(b.mode);
+  const heldBy = pointwise ? isPointwise(h.bound.mode) : true;
+  const met = (heldBy && h.bound.tolerance <= tol) || (pointwise ? summary.max_err : summary.rmse) <= tol;
+  if (met) return;
+  throw new UsageError(
+    `--bound ${formatBound(b)} (${pointwise ? 'max error' : 'RMSE'} ${num(tol)}) is stricter than field '${printable(h.name)}' of '${input}' holds: ` +
+      `it was packed under ${formatBound(h.bound)}, recorded max error ${num(summary.max_err)}, RMSE ${num(summary.rmse)}; leave out --bound to read the values as stored`,
+  );
 }
 
 /** Refuse a folder output that does not exist or is not a folder. */
