@@ -9,6 +9,7 @@ import { NC_TYPE_SIZE, setOwn } from '../io/netcdf-types.js';
 import type { NcWriteFile, NcWriteValues, NcWriteVariable } from '../io/netcdf-write.js';
 import { layoutGrid, MAX_ATTR_STRING, printable } from '../format/schema.js';
 import { UsageError } from './errors.js';
+import { RangeWatch, suspectMessage } from './fill-guard.js';
 
 /** Attribute keys of the archive's own, beside the variable's attributes (prefix "rankfield:"). */
 export const KEY = {
@@ -212,7 +213,15 @@ function fromCarried(text: unknown, i: number): NcWriteVariable {
  * (from --matrix) lays out every variable whose leading dimensions are
  * those names as 'matrix:A'; the others get the default layout.
  */
-export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | undefined, matrix: string[] | undefined, bound: Bound, choose: 'auto' | 'slices' = 'auto'): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
+export function netcdfFields(
+  bytes: Uint8Array,
+  path: string,
+  vars: string[] | undefined,
+  matrix: string[] | undefined,
+  bound: Bound,
+  choose: 'auto' | 'slices' = 'auto',
+  fill?: number | false,
+): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
   const file = readNetcdfHeader(bytes, path);
   let names: string[];
   if (vars && vars.length > 0) {
@@ -238,6 +247,16 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
       throw e;
     }
     const v = file.variables.find((x) => x.name === name)!;
+    if (typeof fill === 'number' && (read.fill === null || read.fillSource === 'default')) {
+      if (read.fillCount > 0) throw new UsageError(`${path}: variable '${printable(name)}' has ${read.fillCount} cells of netCDF's default fill value ${read.fill}, which mark missing cells already; --fill cannot add a second`);
+      useFill(read, fill);
+    }
+    if (fill !== false) {
+      const watch = new RangeWatch(read.fill);
+      watch.add(read.values);
+      const s = watch.suspect();
+      if (s) throw new UsageError(suspectMessage(s, `variable '${printable(name)}' of '${path}'`, read.dtype === 'f32'));
+    }
     const k = read.shape.length;
     const lead = matrix && matrix.length < k && matrix.every((d, i) => read.dims[i] === d) ? matrix.length : 0;
     // --matrix overrides; without it (and without --layout slices) a variable of 3+ axes takes the layout whose sample packs smallest.
@@ -285,6 +304,16 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
   archiveAttrs[KEY.order] = file.variables.filter((v) => packed.has(v.name) || carried.includes(v)).map((v) => v.name);
   if (texts.length > 0) archiveAttrs[KEY.carried] = texts;
   return { file, fields, archiveAttrs, carried: carried.map((v) => v.name) };
+}
+
+/** `--fill V` for a variable without _FillValue / missing_value: its cells holding V become missing. */
+function useFill(read: NcValues, fill: number): void {
+  const f = read.values instanceof Float32Array ? Math.fround(fill) : fill;
+  let n = 0;
+  for (let i = 0; i < read.values.length; i++) if (read.values[i] === f) n++;
+  read.fill = f;
+  read.fillSource = '_FillValue';
+  read.fillCount = n;
 }
 
 /** Names of the variables an archive carries losslessly (not packed as fields), from its attributes; for reports, so never throws. */

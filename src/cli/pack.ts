@@ -10,13 +10,15 @@ import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js
 import { checkLayout, openFieldBands } from './input.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
+import { RangeWatch, suspectMessage } from './fill-guard.js';
 import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, threadsOption, tileOption } from './options.js';
 
 interface PackFlags {
   output: string;
   bound: Bound;
   tile?: [number, number] | 'auto';
-  fill?: number;
+  /** --fill V, or false for --no-fill. */
+  fill?: number | false;
   name?: string;
   shape?: [number, number];
   dtype?: Dtype;
@@ -48,6 +50,13 @@ Bounds (MODE:VALUE):
   psnr:D    PSNR at least D dB, i.e. RMSE at most (max - min) / 10^(D/20)
 Missing values (NaN, infinities, and the --fill value) are kept bit for bit
 and are not counted in the bound.
+
+Fill-value guard: a value that looks like an undeclared fill value would set
+the field's range, and with it what rel and psnr bounds allow. pack refuses
+(exit 2, naming the value and its count) when a value of magnitude 1e30 or
+more occurs, or when one value at an end of the range holds at least 0.1% of
+the cells and lies more than 10 times the spread of the other values beyond
+them. Give --fill V if it marks missing cells, --no-fill to pack it as data.
 
 Input: a .npy file holding a 2-D float32 or float64 array; a NetCDF classic or
 64-bit-offset file (.nc); any other name is read as headerless raw binary and
@@ -103,7 +112,8 @@ export function registerPack(program: Command, ctx: Context): void {
     .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
     .requiredOption('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D', boundOption)
     .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (default: 64, 128, 256 and the whole field tried on a sample, the smallest kept)', tileOption)
-    .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound)', fillOption)
+    .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound); NetCDF input: for variables without _FillValue / missing_value', fillOption)
+    .option('--no-fill', 'pack extreme values as data: turn off the refusal of a value that looks like an undeclared fill value (see below)')
     .option('--name <NAME>', 'field name stored in the archive (default: IN without its extension)', nameOption)
     .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
     .option('--dtype <TYPE>', 'raw input: f32 or f64', dtypeOption)
@@ -129,8 +139,10 @@ export function registerPack(program: Command, ctx: Context): void {
       // finished, so memory holds about one band of tiles plus the index, whatever the size.
       const field = await openFieldBands(input, layout);
       let fills = 0;
+      const fill = flags.fill === false ? undefined : flags.fill;
+      const watch = flags.fill === false ? null : new RangeWatch(fill ?? null);
       try {
-        checkFill(flags.fill, field.dtype);
+        checkFill(fill, field.dtype);
         const name = flags.name ?? defaultName(input);
         const [rows] = field.shape;
         let firstPass = true;
@@ -142,13 +154,18 @@ export function registerPack(program: Command, ctx: Context): void {
             throw fileError(e, 'read', input);
           }
           // The first pass (the value range) reads every row once, in order: count fill values there.
-          if (firstPass && flags.fill !== undefined) fills += countFill(values, flags.fill);
-          if (r0 + count === rows) firstPass = false;
+          if (firstPass && fill !== undefined) fills += countFill(values, fill);
+          if (firstPass) watch?.add(values);
+          if (firstPass && r0 + count === rows) {
+            firstPass = false;
+            const s = watch?.suspect();
+            if (s) throw new UsageError(suspectMessage(s, `'${input}'`, field.dtype === 'f32'));
+          }
           return values;
         };
         await writeOutputWith(flags.output, io, async (sink) => {
           const builder = new ArchiveBuilder(sink);
-          await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, progressive: flags.progressive === true, threads: defaultThreads(flags.threads, field.shape[0] * field.shape[1]) });
+          await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: fill ?? null, name, progressive: flags.progressive === true, threads: defaultThreads(flags.threads, field.shape[0] * field.shape[1]) });
           builder.finish();
         });
       } finally {
@@ -161,8 +178,8 @@ export function registerPack(program: Command, ctx: Context): void {
       const size = archive.size;
       await archive.close();
       const elapsed = performance.now() - start;
-      if (flags.fill !== undefined && fills === 0) {
-        ctx.err(`rankfield: note: the fill value ${flags.fill} does not occur in '${input}'\n`);
+      if (fill !== undefined && fills === 0) {
+        ctx.err(`rankfield: note: the fill value ${fill} does not occur in '${input}'\n`);
       }
       const raw = rawBytes(h);
       const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
@@ -177,15 +194,15 @@ export function registerPack(program: Command, ctx: Context): void {
 
 /** `pack IN.nc`: every chosen variable becomes one field of one archive. */
 async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: number): Promise<void> {
-  const misplaced = (['shape', 'dtype', 'endian', 'fill', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
+  const misplaced = (['shape', 'dtype', 'endian', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
   if (misplaced.length > 0) {
-    throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}', fill values from its _FillValue / missing_value attributes`);
+    throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}'`);
   }
   await statInput(input);
   const io = { force: flags.force === true, inputs: [input] };
   await checkOutput(flags.output, io);
   const bytes = await readInput(input);
-  const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto');
+  const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto', flags.fill);
   await writeOutputWith(flags.output, io, async (sink) => {
     const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
     for (const f of fields) {
