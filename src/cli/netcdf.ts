@@ -5,7 +5,10 @@
  */
 import { chooseLayout, FormatCode, FormatError, InputCode, InputError, type Attrs, type Bound, type FieldHeader } from '../index.js';
 import { readNetcdfHeader, readNetcdfVariable, physicalAttributes, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues, type NcVariable } from '../io/netcdf-read.js';
-import { NC_TYPE_SIZE, setOwn } from '../io/netcdf-types.js';
+import { NC_TYPE_SIZE, setOwn, unmark } from '../io/netcdf-types.js';
+import { formatBound } from '../codec/bound.js';
+import { VERSION_STRING } from '../version.js';
+import { toStoredType } from './netcdf-stored.js';
 import type { NcWriteFile, NcWriteValues, NcWriteVariable } from '../io/netcdf-write.js';
 import { layoutGrid, MAX_ATTR_STRING, printable } from '../format/schema.js';
 import { UsageError } from './errors.js';
@@ -29,6 +32,14 @@ export const KEY = {
   dims: 'rankfield:nc_dims',
   /** Archive attr: every variable name of the source, in file order (fields and carried ones). */
   order: 'rankfield:nc_order',
+  /** Field attr: JSON of the variable's own attributes, [[name, type, value], ...] in file order, to write it back as stored (see netcdf-stored.ts). */
+  storedAttrs: 'rankfield:nc_attrs',
+  /**
+   * Field attr: the physical value of each missing value declared beside the
+   * fill (a missing_value other than _FillValue), in order; its cells hold the
+   * k-th missing-value mark (a quiet NaN, see src/io/netcdf-types.ts) in the archive.
+   */
+  marks: 'rankfield:nc_missing',
   /** Archive attr: one JSON string per variable carried losslessly (not packed as a field); see {@link carriedJson}. */
   carried: 'rankfield:nc_carried',
 } as const;
@@ -139,8 +150,37 @@ function jsonValues(values: ReturnType<typeof storedValues>): (number | string)[
  * character per byte.
  */
 function carriedJson(bytes: Uint8Array, file: NcFile, v: NcVariable): string {
-  const attrs = Object.entries(v.attrs).map(([k, a]) => [k, v.attrTypes[k], typeof a === 'string' ? a : Array.isArray(a) ? a.map((x) => jsonNumber(x)) : jsonNumber(a)]);
-  return JSON.stringify({ name: v.name, dims: v.dims, type: v.type, attrs, values: jsonValues(storedValues(bytes, file, v)) });
+  return JSON.stringify({ name: v.name, dims: v.dims, type: v.type, attrs: attrsJson(v), values: jsonValues(storedValues(bytes, file, v)) });
+}
+
+/** A JSON number back (see {@link jsonNumber}); `bad` is called for anything else. */
+function numberFromJson(x: unknown, bad: (why: string) => never): number {
+  if (typeof x === 'number') return x;
+  if (x === '-0') return -0;
+  if (x === 'Infinity') return Infinity;
+  if (x === '-Infinity') return -Infinity;
+  if (x === 'NaN' || (typeof x === 'string' && /^NaN:0x[0-9a-f]{1,16}$/.test(x))) return NaN;
+  return bad(`${JSON.stringify(x)} is not a number`);
+}
+
+/** A variable's attributes as JSON: [[name, type, value], ...] in file order. */
+export function attrsJson(v: NcVariable): (string | number | (string | number)[])[][] {
+  return Object.entries(v.attrs).map(([k, a]) => [k, v.attrTypes[k], typeof a === 'string' ? a : Array.isArray(a) ? a.map((x) => jsonNumber(x)) : jsonNumber(a)]);
+}
+
+/** Attributes back from {@link attrsJson} (checked, since archives come from anywhere). */
+export function attrsFromJson(list: unknown, bad: (why: string) => never): { attrs: NcAttrs; attrTypes: Record<string, NcType> } {
+  const attrs: NcAttrs = {};
+  const attrTypes: Record<string, NcType> = {};
+  if (!Array.isArray(list)) return bad('attrs must be a list');
+  for (const a of list as unknown[]) {
+    if (!Array.isArray(a) || a.length !== 3 || typeof a[0] !== 'string' || typeof a[1] !== 'string' || !(a[1] in NC_TYPE_SIZE)) return bad('an attribute is not [name, type, value]');
+    const num = (x: unknown) => numberFromJson(x, bad);
+    const value: NcAttrValue = typeof a[2] === 'string' && a[1] === 'char' ? a[2] : Array.isArray(a[2]) ? a[2].map(num) : num(a[2]);
+    setOwn(attrs, a[0], value);
+    setOwn(attrTypes, a[0], a[1] as NcType);
+  }
+  return { attrs, attrTypes };
 }
 
 /** A carried variable back from its JSON (archive attributes: checked, since archives come from anywhere). */
@@ -161,23 +201,8 @@ function fromCarried(text: unknown, i: number): NcWriteVariable {
   if (!Array.isArray(r.dims) || !r.dims.every((d) => typeof d === 'string')) return bad(`${where}: dims must be a list of names`);
   if (typeof r.type !== 'string' || !(r.type in NC_TYPE_SIZE)) return bad(`${where}: unknown type`);
   const type = r.type as NcType;
-  const num = (x: unknown): number => {
-    if (typeof x === 'number') return x;
-    if (x === '-0') return -0;
-    if (x === 'Infinity') return Infinity;
-    if (x === '-Infinity') return -Infinity;
-    if (x === 'NaN' || (typeof x === 'string' && /^NaN:0x[0-9a-f]{1,16}$/.test(x))) return NaN;
-    return bad(`${where}: ${JSON.stringify(x)} is not a number`);
-  };
-  const attrs: NcAttrs = {};
-  const attrTypes: Record<string, NcType> = {};
-  if (!Array.isArray(r.attrs)) return bad(`${where}: attrs must be a list`);
-  for (const a of r.attrs as unknown[]) {
-    if (!Array.isArray(a) || a.length !== 3 || typeof a[0] !== 'string' || typeof a[1] !== 'string' || !(a[1] in NC_TYPE_SIZE)) return bad(`${where}: an attribute is not [name, type, value]`);
-    const value: NcAttrValue = typeof a[2] === 'string' && a[1] === 'char' ? a[2] : Array.isArray(a[2]) ? a[2].map(num) : num(a[2]);
-    setOwn(attrs, a[0], value);
-    setOwn(attrTypes, a[0], a[1] as NcType);
-  }
+  const num = (x: unknown): number => numberFromJson(x, (why) => bad(`${where}: ${why}`));
+  const { attrs, attrTypes } = attrsFromJson(r.attrs, (why) => bad(`${where}: ${why}`));
   let values: NcWriteValues;
   if (type === 'char') {
     if (typeof r.values !== 'string') return bad(`${where}: char values must be a string`);
@@ -238,7 +263,7 @@ export function netcdfFields(
   const fields = names.map((name) => {
     let read: NcValues;
     try {
-      read = readNetcdfVariable(bytes, file, name);
+      read = readNetcdfVariable(bytes, file, name, undefined, { mark: true });
     } catch (e) {
       if (e instanceof InputError) {
         const hint = e.code === InputCode.Missing ? '' : ' (variables that are not fields are carried losslessly with the fields packed: leave them out of --var)';
@@ -266,6 +291,8 @@ export function netcdfFields(
     const attrs: Attrs = { ...(phys.attrs as Attrs) };
     attrs[KEY.attrTypes] = typesText(phys.attrTypes);
     attrs[KEY.storedType] = read.storedType;
+    attrs[KEY.storedAttrs] = JSON.stringify(attrsJson(v));
+    if (read.marks.length > 0) attrs[KEY.marks] = read.marks;
     if (read.unpacked && read.packing) {
       attrs[KEY.unpacked] = true;
       attrs[KEY.packing] = [read.packing.scale, read.packing.offset];
@@ -380,6 +407,8 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
       }
       dims.set(d, shape[i]);
     });
+    const stored = storedVariable(h, values);
+    if (stored) return { name: h.name, dims: names, ...stored };
     const { attrs, types } = ncAttrs(h.attrs);
     const type: NcType = h.dtype === 'f32' ? 'float' : 'double';
     delete attrs._FillValue;
@@ -405,12 +434,47 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
   // The record dimension stays unlimited only where every variable using it has it first (the format's rule).
   const recordOk = unlimited !== null && dims.has(unlimited) && variables.every((v) => v.dims.indexOf(unlimited) <= 0);
   const g = ncAttrs(archiveAttrs);
+  // NetCDF Users Guide, appendix "Attribute Conventions", history: each program that modifies a
+  // file appends a line with date, time and program; CF conventions 1.x section 2.6.2 keeps it (from memory).
+  const note = `${new Date().toISOString().replace(/\.\d+Z$/, 'Z')} rankfield ${VERSION_STRING} unpack: values decoded from a lossy archive (${fields.map(({ h }) => `${h.name} ${formatBound(h.bound)}`).join(', ')}), within those bounds of the originals, not the originals`;
+  const history = g.attrs.history;
+  setOwn<NcAttrValue>(g.attrs, 'history', typeof history === 'string' && history.length > 0 ? `${history.replace(/\n+$/, '')}\n${note}` : note);
+  delete g.types.history;
   return {
     dims: [...dims].map(([name, size]) => ({ name, size, unlimited: recordOk && name === unlimited })),
     globalAttrs: g.attrs,
     globalAttrTypes: g.types,
     variables,
   };
+}
+
+/**
+ * A field as the variable it was read from (stored type and own
+ * attributes), for archives that record them; null for others. Archive
+ * attributes are checked: a malformed record is a FormatError.
+ */
+function storedVariable(h: FieldHeader, values: Float32Array | Float64Array): { type: NcType; attrs: NcAttrs; attrTypes: Record<string, NcType>; values: NcWriteValues } | null {
+  const text = h.attrs[KEY.storedAttrs];
+  const type = h.attrs[KEY.storedType];
+  if (text === undefined) return null;
+  const bad = (why: string): never => {
+    throw new FormatError(FormatCode.Malformed, `field '${printable(h.name)}' attribute ${KEY.storedAttrs}: ${why}`);
+  };
+  if (typeof text !== 'string' || typeof type !== 'string' || !(type in NC_TYPE_SIZE) || type === 'char') return bad(`needs a JSON list and ${KEY.storedType}, a numeric NetCDF type`);
+  let list: unknown;
+  try {
+    list = JSON.parse(text);
+  } catch {
+    return bad('not valid JSON');
+  }
+  const { attrs, attrTypes } = attrsFromJson(list, bad);
+  return { type: type as NcType, attrs, attrTypes, values: toStoredType(values, h.fill, type as NcType, attrs) };
+}
+
+/** Missing values of a field decoded for .npy, raw or CSV output: the cells of each missing-value mark get the value they held (see {@link KEY}.marks). In place. */
+export function restoreMissing(h: FieldHeader, values: Float32Array | Float64Array): void {
+  const marks = h.attrs[KEY.marks];
+  if (Array.isArray(marks) && marks.length > 0 && marks.every((x) => typeof x === 'number')) unmark(values, marks as number[]);
 }
 
 /** The source's dimension list from its JSON archive attribute, checked; [] when absent. */

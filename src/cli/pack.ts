@@ -68,9 +68,13 @@ names; global attributes become the archive's. The other variables (1-D
 coordinates, char variables such as station names, scalars) are not
 compressed: they are carried losslessly, bit for bit, in the archive's
 attributes (up to 1 MiB of JSON each), and unpack -o OUT.nc writes them back. CF _FillValue / missing_value
-cells are kept bit for bit and excluded from the bound; variables packed with
-scale_factor / add_offset are stored as their unpacked physical values (the
-bound applies to those). A variable of 3 or more dimensions is stored either
+cells are kept bit for bit and excluded from the bound, each coming back as
+itself; variables packed with scale_factor / add_offset are stored as their
+unpacked physical values, and the bound applies to those. unpack -o OUT.nc
+writes each variable back in its stored type with its own attributes: a
+value stored as an integer is rounded to the nearest stored step, which adds
+at most half a step (scale_factor / 2) to the error; under a pointwise bound
+below half a step the stored integers come back exactly. A variable of 3 or more dimensions is stored either
 as a stack of 2-D slices over its last two axes, or as a matrix whose rows
 are its leading axes and whose columns are the rest (time x grid point: the
 snapshot matrix, where series of snapshots are most often of low rank); by

@@ -7,7 +7,7 @@ import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput, writeOutputWith } from './files.js';
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
-import { isNetcdfPath, netcdfFromFields } from './netcdf.js';
+import { isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
 import { writeNetcdf } from '../io/netcdf-write.js';
 import { printable } from '../format/schema.js';
 import { stat } from 'node:fs/promises';
@@ -157,6 +157,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
             ctx.out(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (NetCDF classic, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
           } else {
             const files = fileNames(names);
+            for (const f of fields) restoreMissing(f.h, f.values);
             for (const [i, f] of fields.entries()) await writeOutput(join(flags.output, files[i]), formatNpy({ data: f.values, shape: f.shape, dtype: f.h.dtype }), io);
             ctx.out(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> ${files.map((f) => `'${join(flags.output, f)}'`).join(', ')}; ${seconds(performance.now() - start)}\n`);
           }
@@ -181,6 +182,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
         let field: BandsRead;
         if (csv) {
           const f = await archive.read(h.name, request);
+          restoreMissing(h, f.values);
           const dims = h.dims && h.dims.length === f.shape.length ? h.dims : f.shape.length === 3 ? ['slice', 'row', 'col'] : f.shape.map((_, i) => `axis${i}`);
           const bytes = formatCsv(f.values, f.shape, dims);
           await writeOutput(flags.output, bytes, io);
@@ -196,7 +198,10 @@ export function registerUnpack(program: Command, ctx: Context): void {
               written += b.length;
             };
             if (npy) put(npyHeader(shape, h.dtype));
-            got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => put(valueBytes(values, endian)));
+            got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
+              restoreMissing(h, values);
+              put(valueBytes(values, endian));
+            });
           });
           field = got!;
         }
