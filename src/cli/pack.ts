@@ -3,15 +3,15 @@ import { basename, extname } from 'node:path';
 import type { Command } from 'commander';
 import { ArchiveBuilder, InputCode, InputError, type Bound, type Dtype, type FloatArray } from '../index.js';
 import { fileError, UsageError } from './errors.js';
-import { isNetcdfPath, netcdfFields, parseMatrix } from './netcdf.js';
+import { netcdfFields, parseMatrix } from './netcdf.js';
 import { readInput } from './files.js';
 import { errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
-import { checkLayout, openFieldBands } from './input.js';
+import { checkLayout, inputKind, openFieldBands } from './input.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
 import { RangeWatch, suspectMessage } from './fill-guard.js';
-import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, threadsOption, tileOption } from './options.js';
+import { boundOption, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
 
 interface PackFlags {
   output: string;
@@ -20,7 +20,7 @@ interface PackFlags {
   /** --fill V, or false for --no-fill. */
   fill?: number | false;
   name?: string;
-  shape?: [number, number];
+  shape?: number[];
   dtype?: Dtype;
   endian?: 'little' | 'big';
   force?: boolean;
@@ -58,9 +58,13 @@ more occurs, or when one value at an end of the range holds at least 0.1% of
 the cells and lies more than 10 times the spread of the other values beyond
 them. Give --fill V if it marks missing cells, --no-fill to pack it as data.
 
-Input: a .npy file holding a 2-D float32 or float64 array; a NetCDF classic or
-64-bit-offset file (.nc); any other name is read as headerless raw binary and
-needs --shape and --dtype (--endian defaults to little).
+Input, told apart by its first bytes (else by its name): a .npy file holding
+a float32 or float64 array of 2 or more axes (N-D in C order); a NetCDF
+classic or 64-bit-offset file, whatever its name (.nc, .cdf, ...); anything
+else is read as headerless raw binary and needs --shape (RxC, or AxBxC...
+for N-D in C order) and --dtype (--endian defaults to little). An array of 3
+or more axes is packed as 2-D slices over its last two axes, or as a matrix
+with --matrix (see below).
 
 NetCDF input: every numeric variable of 2 or more dimensions becomes one field
 (or those named by --var, repeatable), with its attributes and dimension
@@ -112,48 +116,57 @@ export function registerPack(program: Command, ctx: Context): void {
     .command('pack')
     .summary('compress a 2-D field into an archive (lossy: see pack --help)')
     .description('Compress one 2-D field into an archive, keeping every value within a stated error bound.\n' + LOSSY_NOTE)
-    .argument('<IN>', 'input: .npy (2-D float32/float64), or raw binary with --shape and --dtype')
+    .argument('<IN>', 'input: .npy (float32/float64, 2 or more axes), NetCDF, or raw binary with --shape and --dtype')
     .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
     .requiredOption('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D', boundOption)
     .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (default: 64, 128, 256 and the whole field tried on a sample, the smallest kept)', tileOption)
     .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound); NetCDF input: for variables without _FillValue / missing_value', fillOption)
     .option('--no-fill', 'pack extreme values as data: turn off the refusal of a value that looks like an undeclared fill value (see below)')
     .option('--name <NAME>', 'field name stored in the archive (default: IN without its extension)', nameOption)
-    .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
+    .option('--shape <RxC>', 'raw input: rows x columns, or AxBxC... for an N-D array in C order', ndShapeOption)
     .option('--dtype <TYPE>', 'raw input: f32 or f64', dtypeOption)
     .option('--endian <ORDER>', 'raw input: byte order, little (default) or big', endianOption)
     .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
-    .option('--matrix <AXES:NAME>', 'NetCDF input: flatten the leading axes AXES (comma-separated) into rows, the rest into columns, e.g. time:space', parseMatrix)
-    .option('--layout <LAYOUT>', 'NetCDF input, variables of 3+ dimensions: auto (default: the layout whose sample packs smallest) or slices', layoutOption)
+    .option('--matrix <AXES:NAME>', 'variables or arrays of 3+ axes: flatten the leading axes AXES (comma-separated; axis0, axis1, ... for .npy and raw) into rows, the rest into columns, e.g. time:space', parseMatrix)
+    .option('--layout <LAYOUT>', 'variables of 3+ dimensions: auto (default: NetCDF, the layout whose sample packs smallest; .npy and raw, slices) or slices', layoutOption)
     .option('--threads <N>', 'threads encoding tiles (default: the number of cores; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
     .option('--progressive', 'lay each tile\'s factors out in rank groups with their recorded errors, so that `unpack --bound` with a looser bound reads only a prefix of each tile (costs some bytes)')
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
       const start = performance.now();
-      if (isNetcdfPath(input)) return packNetcdf(input, flags, ctx, start);
-      const nc = (['var', 'matrix', 'layout'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
-      if (nc.length > 0) throw new UsageError(`${nc.join(' and ')} apply to NetCDF input (.nc); '${input}' is not one`);
-      const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       await statInput(input);
-      checkLayout(input, layout);
+      const kind = await inputKind(input);
+      if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, flags, ctx, start);
+      if (flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${input}' is not NetCDF (by its first bytes or its name)`);
+      const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
+      checkLayout(input, layout, undefined, kind);
       const io = { force: flags.force === true, inputs: [input] };
       await checkOutput(flags.output, io);
       // The input is read a band of tile rows at a time and payloads are written as they are
       // finished, so memory holds about one band of tiles plus the index, whatever the size.
-      const field = await openFieldBands(input, layout);
+      const field = await openFieldBands(input, layout, kind);
+      let grid: ArrayGrid;
+      try {
+        grid = arrayGrid(field.ndShape, flags.matrix, flags.layout, input);
+      } catch (e) {
+        field.close();
+        throw e;
+      }
       let fills = 0;
       const fill = flags.fill === false ? undefined : flags.fill;
       const watch = flags.fill === false ? null : new RangeWatch(fill ?? null);
       try {
         checkFill(fill, field.dtype);
         const name = flags.name ?? defaultName(input);
-        const [rows] = field.shape;
+        // Rows of the stacked matrix the library reads (slices x rows); each is `factor` rows of the file's C-order matrix.
+        const rows = grid.slices * grid.rows;
+        const factor = grid.cols / field.shape[1];
         let firstPass = true;
         const band = (r0: number, count: number): FloatArray => {
           let values: FloatArray;
           try {
-            values = field.band(r0, count);
+            values = field.band(r0 * factor, count * factor);
           } catch (e) {
             throw fileError(e, 'read', input);
           }
@@ -168,8 +181,9 @@ export function registerPack(program: Command, ctx: Context): void {
           return values;
         };
         await writeOutputWith(flags.output, io, async (sink) => {
-          const builder = new ArchiveBuilder(sink);
-          await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: fill ?? null, name, progressive: flags.progressive === true, threads: defaultThreads(flags.threads, field.shape[0] * field.shape[1]) });
+          const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
+          const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
+          await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound: flags.bound, tile: flags.tile, fill: fill ?? null, name, progressive: flags.progressive === true, threads: defaultThreads(flags.threads, field.shape[0] * field.shape[1]), ...nd });
           builder.finish();
         });
       } finally {
@@ -189,7 +203,7 @@ export function registerPack(program: Command, ctx: Context): void {
       const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
       const other = e.what === 'max error' ? `RMSE ${num(ix.summary.rmse)}` : `max error ${num(ix.summary.max_err)}`;
       ctx.out(
-        `packed '${input}' (${h.shape.join('x')} ${h.dtype}, field '${h.name}') -> '${flags.output}': ` +
+        `packed '${input}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype}, field '${h.name}'${h.layout ? `, layout ${h.layout}` : ''}) -> '${flags.output}': ` +
           `${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; ` +
           `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n`,
       );
@@ -242,6 +256,36 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   ctx.out(`packed ${fields.length} variable${fields.length === 1 ? '' : 's'} of '${input}' -> '${flags.output}': ${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; bound ${flags.bound.mode}:${flags.bound.value}; ${seconds(performance.now() - start)}\n`);
   for (const l of lines) ctx.out(l);
   if (carried.length > 0) ctx.out(`  carried losslessly (not packed as fields): ${carried.map(printable).join(', ')}\n`);
+}
+
+/** How an N-D .npy or raw array is laid out as a field: slices x rows x cols, and the layout name (undefined for 2-D). */
+interface ArrayGrid {
+  slices: number;
+  rows: number;
+  cols: number;
+  layout: string | undefined;
+}
+
+/**
+ * The layout of an array of `nd` axes from .npy or raw input: 2-D as it is;
+ * more axes as slices over the last two (the default), or with --matrix as a
+ * matrix whose rows are the leading axes, named axis0, axis1, ... (case
+ * does not matter), since these files carry no dimension names.
+ */
+export function arrayGrid(nd: readonly number[], matrix: string[] | undefined, layout: 'auto' | 'slices' | undefined, input: string): ArrayGrid {
+  const k = nd.length;
+  const prod = (a: readonly number[]) => a.reduce((x, y) => x * y, 1);
+  if (k === 2) {
+    if (matrix || layout === 'slices') throw new UsageError(`--matrix and --layout apply to arrays of 3 or more axes; '${input}' holds a 2-D array`);
+    return { slices: 1, rows: nd[0], cols: nd[1], layout: undefined };
+  }
+  if (matrix) {
+    const names = nd.map((_, i) => `axis${i}`);
+    const ok = matrix.length < k && matrix.every((m, i) => m.toLowerCase() === names[i]);
+    if (!ok) throw new UsageError(`--matrix ${matrix.join(',')}:...: '${input}' has no dimension names; its axes are ${names.join(', ')} (name leading ones, e.g. --matrix axis0:space)`);
+    return { slices: 1, rows: prod(nd.slice(0, matrix.length)), cols: prod(nd.slice(matrix.length)), layout: `matrix:${matrix.length}` };
+  }
+  return { slices: prod(nd.slice(0, -2)), rows: nd[k - 2], cols: nd[k - 1], layout: 'slices' };
 }
 
 /** `--layout`: auto or slices. */
