@@ -5,6 +5,7 @@ import { readNetcdfHeader, readNetcdfVariable } from '../io/netcdf-read.js';
 import { setOwn } from '../io/netcdf-types.js';
 import { printable } from '../format/schema.js';
 import { readInput } from './files.js';
+import { netcdf4ToClassic } from '../io/hdf5-read.js';
 import { Exit, UsageError } from './errors.js';
 import { isUrl, openArchive, statInput } from './files.js';
 import { boundText, num } from './format.js';
@@ -69,8 +70,8 @@ function checkOriginal(what: string, shape: number[], dtype: Dtype, h: FieldHead
  * reads them (CF missing values and packing applied): every field of the
  * archive, or those named by --var; each must be a variable of the file.
  */
-async function netcdfOriginals(path: string, archive: Archive, names: string[] | undefined, input: string): Promise<Record<string, FloatArray>> {
-  const bytes = await readInput(path);
+async function netcdfOriginals(path: string, archive: Archive, names: string[] | undefined, input: string, hdf5: boolean): Promise<Record<string, FloatArray>> {
+  const bytes = hdf5 ? await netcdf4ToClassic(path) : await readInput(path);
   const file = readNetcdfHeader(bytes, path);
   const chosen = names && names.length > 0 ? names.map((n) => archive.field(n).header.name) : archive.names;
   const out: Record<string, FloatArray> = {};
@@ -150,7 +151,7 @@ export function registerCheck(program: Command, ctx: Context): void {
           if (kind === 'netcdf' || kind === 'hdf5') {
             const misplaced = (['field', 'shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
             if (misplaced.length > 0) throw new UsageError(`${misplaced.join(', ')} describe a .npy or raw original; '${path}' is NetCDF (choose variables with --var)`);
-            originals = await netcdfOriginals(path, archive, flags.var, input);
+            originals = await netcdfOriginals(path, archive, flags.var, input, kind === 'hdf5');
           } else {
             if (flags.var !== undefined) throw new UsageError(`--var chooses variables of a NetCDF original; '${path}' is not NetCDF (by its first bytes or its name): use --field`);
             const { header: h } = archive.field(flags.field);

@@ -3,7 +3,8 @@ import { basename, extname } from 'node:path';
 import type { Command } from 'commander';
 import { ArchiveBuilder, InputCode, InputError, type Bound, type Dtype, type FloatArray } from '../index.js';
 import { fileError, UsageError } from './errors.js';
-import { netcdfFields, parseMatrix } from './netcdf.js';
+import { KEY, netcdfFields, parseMatrix } from './netcdf.js';
+import { netcdf4ToClassic } from '../io/hdf5-read.js';
 import { readInput } from './files.js';
 import { errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
@@ -60,7 +61,9 @@ them. Give --fill V if it marks missing cells, --no-fill to pack it as data.
 
 Input, told apart by its first bytes (else by its name): a .npy file holding
 a float32 or float64 array of 2 or more axes (N-D in C order); a NetCDF
-classic or 64-bit-offset file, whatever its name (.nc, .cdf, ...); anything
+classic or 64-bit-offset file, whatever its name (.nc, .cdf, ...); a NetCDF-4
+or HDF5 file (read through h5wasm; variables of groups named GROUP.NAME);
+anything
 else is read as headerless raw binary and needs --shape (RxC, or AxBxC...
 for N-D in C order) and --dtype (--endian defaults to little). An array of 3
 or more axes is packed as 2-D slices over its last two axes, or as a matrix
@@ -137,7 +140,7 @@ export function registerPack(program: Command, ctx: Context): void {
       const start = performance.now();
       await statInput(input);
       const kind = await inputKind(input);
-      if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, flags, ctx, start);
+      if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, flags, ctx, start, kind === 'hdf5');
       if (flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${input}' is not NetCDF (by its first bytes or its name)`);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       checkLayout(input, layout, undefined, kind);
@@ -211,7 +214,7 @@ export function registerPack(program: Command, ctx: Context): void {
 }
 
 /** `pack IN.nc`: every chosen variable becomes one field of one archive. */
-async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: number): Promise<void> {
+async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: number, hdf5: boolean): Promise<void> {
   const misplaced = (['shape', 'dtype', 'endian', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
   if (misplaced.length > 0) {
     throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}'`);
@@ -219,8 +222,10 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   await statInput(input);
   const io = { force: flags.force === true, inputs: [input] };
   await checkOutput(flags.output, io);
-  const bytes = await readInput(input);
+  // NetCDF-4 / HDF5 is read through h5wasm into the classic model (src/io/hdf5-read.ts).
+  const bytes = hdf5 ? await netcdf4ToClassic(input) : await readInput(input);
   const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto', flags.fill);
+  if (hdf5) archiveAttrs[KEY.format] = 'netcdf4';
   await writeOutputWith(flags.output, io, async (sink) => {
     const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
     for (const f of fields) {

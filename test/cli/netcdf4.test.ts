@@ -1,0 +1,61 @@
+/**
+ * NetCDF-4 (HDF5 inside) through the command line: a file made by Debian's
+ * ncgen -k nc4 and chunked and deflated by nccopy packs, checks against
+ * itself and unpacks to NetCDF classic that ncdump reads; a damaged HDF5
+ * file is one error line. Data: vega-datasets data/volcano.json.
+ */
+import { execFileSync } from 'node:child_process';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { cdlValues, haveNetcdfBin, NCCOPY, ncdumpHeader, ncgen } from '../cdl.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, rf, tempDir, volcano } from './helpers.js';
+
+const RUN = haveNetcdfBin('the NetCDF-4 command-line tests');
+const g = volcano();
+let t: ReturnType<typeof tempDir>;
+beforeAll(() => {
+  ensureBuilt();
+  t = tempDir('rankfield-nc4-');
+  if (!RUN) return;
+  const cdl = `netcdf v {
+dimensions:
+  Y = 61 ;
+  X = 87 ;
+variables:
+  float height(Y, X) ;
+    height:units = "m" ;
+    height:_FillValue = -999.f ;
+  :title = "volcano" ;
+data:
+  height = ${cdlValues(g.values.map((h, i) => (i % 41 === 0 ? -999 : h)))} ;
+}
+`;
+  const nc4 = ncgen(cdl, join(t.dir, 'plain4.nc'), 'nc4');
+  execFileSync(NCCOPY, ['-k', 'nc4', '-d', '5', '-c', 'Y/16,X/16', nc4, join(t.dir, 'v4.nc')]);
+}, CLI_TIMEOUT);
+afterAll(() => t?.remove());
+
+describe.skipIf(!RUN)('NetCDF-4 input', { timeout: CLI_TIMEOUT }, () => {
+  it('packs a chunked, deflated NetCDF-4 file, checks against it, and unpacks to classic with a lossy-archive history line', () => {
+    const p = rf(['pack', 'v4.nc', '-o', 'v4.rfz', '--bound', 'abs:0.5'], t.dir);
+    expect(p.code, p.stderr).toBe(0);
+    expect(p.stdout).toMatch(/height \(Y, X\) 61x87 f32/);
+    const c = rf(['check', 'v4.rfz', '--against', 'v4.nc'], t.dir);
+    expect(c.code, c.stdout + c.stderr).toBe(0);
+    expect(c.stdout).toMatch(/missing cells identical/);
+    expect(rf(['unpack', 'v4.rfz', '-o', 'back.nc'], t.dir).code).toBe(0);
+    // ncdump (netcdf-bin) reads the file written: CDF-1 classic, dims, attributes.
+    const h = ncdumpHeader(join(t.dir, 'back.nc'));
+    expect(h).toMatch(/float height\(Y, X\) ;/);
+    expect(h).toMatch(/height:_FillValue = -999\.f ;/);
+    expect(h).toMatch(/:history = ".* rankfield \S+ unpack: values decoded from a lossy archive \(height abs:0\.5\)/);
+    expect(readFileSync(join(t.dir, 'back.nc')).subarray(0, 4)).toEqual(Buffer.from('CDF\x01', 'latin1'));
+  });
+
+  it('a damaged HDF5 file is one error line (the HDF5 library\'s own report kept off the terminal)', () => {
+    const whole = readFileSync(join(t.dir, 'v4.nc'));
+    writeFileSync(join(t.dir, 'cut.nc'), whole.subarray(0, 600));
+    expectCliError(rf(['pack', 'cut.nc', '-o', 'cut.rfz', '--bound', 'abs:1'], t.dir), /cut\.nc: not a readable HDF5 file \(H5Fopen\(\)/);
+  });
+});
