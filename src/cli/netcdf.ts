@@ -283,7 +283,8 @@ export function netcdfFields(
       if (s) throw new UsageError(suspectMessage(s, `variable '${printable(name)}' of '${path}'`, read.dtype === 'f32'));
     }
     const k = read.shape.length;
-    const lead = matrix && matrix.length < k && matrix.every((d, i) => read.dims[i] === d) ? matrix.length : 0;
+    // Dimension names match without regard to case (TIME, Time and time alike).
+    const lead = matrix && matrix.length < k && matrix.every((d, i) => read.dims[i].toLowerCase() === d.toLowerCase()) ? matrix.length : 0;
     // --matrix overrides; without it (and without --layout slices) a variable of 3+ axes takes the layout whose sample packs smallest.
     const layout = lead > 0 ? `matrix:${lead}` : k > 2 ? (matrix || choose === 'slices' ? 'slices' : chooseLayout(read.values, read.shape, bound, read.fill)) : undefined;
     const g = layout ? (layoutGrid(read.shape, layout) as { slices: number; rows: number; cols: number }) : { slices: 1, rows: read.shape[0], cols: read.shape[1] };
@@ -300,7 +301,8 @@ export function netcdfFields(
     return { name, read, rows: g.rows, cols: g.cols, slices: g.slices, layout, attrs };
   });
   if (matrix && !fields.some((f) => f.layout?.startsWith('matrix:'))) {
-    throw new UsageError(`--matrix ${matrix.join(',')}:...: no variable packed has leading dimensions (${matrix.join(', ')}) followed by more`);
+    const have = fields.map((f) => `${printable(f.name)}(${f.read.dims.map(printable).join(', ')})`).join(', ');
+    throw new UsageError(`--matrix ${matrix.join(',')}:...: no variable packed has leading dimensions (${matrix.join(', ')}) followed by more; the variables are ${have}`);
   }
   const archiveAttrs: Attrs = { ...(file.globalAttrs as Attrs) };
   archiveAttrs[KEY.attrTypes] = typesText(file.globalAttrTypes);
@@ -386,8 +388,47 @@ function fieldDims(h: FieldHeader, shape: number[]): string[] {
   return shape.map((_, i) => `${h.name}_dim${i}`);
 }
 
-/** A NetCDF classic file of whole fields (shape = nd_shape), with dims and attributes restored. */
-export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; shape: number[]; values: Float32Array | Float64Array }[]): NcWriteFile {
+/** The values of a variable the archive carries (a coordinate variable, say), or null when it carries none of that name. */
+export function carriedValues(archiveAttrs: Attrs, name: string): NcWriteValues | null {
+  const list = archiveAttrs[KEY.carried];
+  if (!Array.isArray(list)) return null;
+  for (const [i, t] of list.entries()) {
+    const v = fromCarried(t, i);
+    if (v.name === name) return v.values;
+  }
+  return null;
+}
+
+/** The part of C-order `values` of `shape` within `ranges` (per axis; undefined: whole), as the same kind of array. */
+function cutValues(values: NcWriteValues, shape: number[], ranges: ([number, number] | undefined)[]): NcWriteValues {
+  const r = shape.map((n, i) => ranges[i] ?? ([0, n] as [number, number]));
+  const n = r.reduce((x, [a, b]) => x * (b - a), 1);
+  const stride = shape.map((_, i) => shape.slice(i + 1).reduce((x, y) => x * y, 1));
+  const idx = r.map(([a]) => a);
+  const pick: number[] = [];
+  for (let e = 0; e < n; e++) {
+    pick.push(idx.reduce((f, x, i) => f + x * stride[i], 0));
+    for (let i = shape.length - 1; i >= 0 && ++idx[i] === r[i][1]; i--) idx[i] = r[i][0];
+  }
+  if (Array.isArray(values)) return pick.map((j) => values[j]) as NcWriteValues;
+  const T = values.constructor as new (n: number) => typeof values;
+  const out = new T(n);
+  // Bits, not numbers, for floats: NaN payloads are kept.
+  if (values instanceof Float32Array || values instanceof Float64Array) {
+    const s = values instanceof Float32Array ? new Uint32Array(values.buffer, values.byteOffset, values.length) : new BigUint64Array(values.buffer, values.byteOffset, values.length);
+    const d = values instanceof Float32Array ? new Uint32Array((out as Float32Array).buffer) : new BigUint64Array((out as Float64Array).buffer);
+    pick.forEach((j, i) => void (d[i] = s[j]));
+  } else pick.forEach((j, i) => void ((out as Int32Array)[i] = (values as Int32Array)[j]));
+  return out;
+}
+
+/**
+ * A NetCDF classic file of fields (shape = nd_shape, or a window of it),
+ * with dims and attributes restored. `cut` maps the dimensions of a window
+ * to their index ranges: those dimensions take the window's sizes, and the
+ * carried variables along them (coordinate variables) are cut to match.
+ */
+export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; shape: number[]; values: Float32Array | Float64Array }[], cut?: Map<string, [number, number]>): NcWriteFile {
   const dims = new Map<string, number>();
   let unlimited = typeof archiveAttrs[KEY.unlimited] === 'string' ? (archiveAttrs[KEY.unlimited] as string) : null;
   // The source's dimensions, in its order (archives of NetCDF input carry them; older ones do not).
@@ -398,8 +439,15 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
   }
   const carriedList = archiveAttrs[KEY.carried];
   const carried = Array.isArray(carriedList) ? carriedList.map((t, i) => fromCarried(t, i)) : [];
+  if (cut && cut.size > 0) {
+    for (const v of carried) {
+      const shape = v.dims.map((d) => dims.get(d) ?? 0);
+      if (v.dims.some((d) => cut.has(d))) v.values = cutValues(v.values, shape, v.dims.map((d) => cut.get(d)));
+    }
+    for (const [d, [a, b]] of cut) dims.set(d, b - a);
+  }
   const packedVars: NcWriteVariable[] = fields.map(({ h, shape, values }) => {
-    const names = fieldDims(h, shape);
+    const names = fieldDims(h, h.nd_shape && h.nd_shape.length === shape.length ? h.nd_shape : shape);
     names.forEach((d, i) => {
       const had = dims.get(d);
       if (had !== undefined && had !== shape[i]) {

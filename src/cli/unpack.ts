@@ -7,7 +7,9 @@ import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput, writeOutputWith } from './files.js';
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
-import { isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
+import { carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
+import { dimNames, ndShapeOf, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
+import type { Archive, FloatArray } from '../index.js';
 import { writeNetcdf } from '../io/netcdf-write.js';
 import { printable } from '../format/schema.js';
 import { stat } from 'node:fs/promises';
@@ -26,6 +28,7 @@ export interface Region {
 
 interface UnpackFlags {
   output: string;
+  where?: WhereTerm[];
   field?: string;
   var?: string;
   slices?: [number | undefined, number | undefined];
@@ -46,7 +49,13 @@ edge, so ':100,50:' is the first 100 rows from column 50 on. Only the tiles
 the window touches are read and decoded.
 
 OUT ending in .nc gets a NetCDF classic file of every field (or --var NAME),
-with dimensions and attributes restored; OUT ending in / (an existing folder)
+with dimensions and attributes restored; with --region, --slices or --where,
+a window of one field, its dimensions and coordinate variables cut to match.
+--where lat=-30:30,lon=100:180 chooses the window by coordinate values
+(inclusive), through the coordinate variables the archive carries;
+dimension names match in any case. --slices and --region count the axes of
+the variable (slices over the leading ones, rows and columns the last two)
+whatever its layout; OUT ending in / (an existing folder)
 gets one NAME.npy per field; .csv writes a small window as text (at most
 10^6 values without --force). --slices A:B picks slices of an N-D field.
 
@@ -122,6 +131,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .option('--var <NAME>', 'the same as --field (a NetCDF variable packed as a field)', nameOption)
     .option('--slices <A:B>', 'fields of slices: decode only slices A..B-1 (with --region for a window of each)', slicesOption)
     .option('--region <R0:R1,C0:C1>', 'decode only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
+    .option('--where <NAME=LO:HI,...>', 'decode only where the coordinate variables of the named dimensions lie within LO..HI (inclusive; an empty end is open), e.g. lat=-30:30,lon=100:180; names in any case', whereOption)
     .option('--bound <MODE:VALUE>', 'a looser bound than the archive holds: read only as much of each tile as meets it (prints what the values satisfy)', boundOption)
     .option('--endian <ORDER>', 'raw output: byte order, little (default) or big', endianOption)
     .option('--threads <N>', 'threads decoding bands of tiles for .npy and raw output (default: the number of cores; N - 1 worker threads beside the main one)', threadsOption)
@@ -137,13 +147,24 @@ export function registerUnpack(program: Command, ctx: Context): void {
       const dirOut = flags.output.endsWith('/');
       if (flags.endian !== undefined && (npy || nc || csv || dirOut)) throw new UsageError(`--endian applies to raw output; '${flags.output}' is not written as raw binary`);
       if (dirOut && chosen !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
-      if ((nc || dirOut) && (flags.region || flags.slices || flags.bound)) throw new UsageError(`--region, --slices and --bound apply to one field written to .npy, .csv or raw; '${flags.output}' gets whole fields`);
+      if (dirOut && (flags.region || flags.slices || flags.bound || flags.where)) throw new UsageError(`--region, --slices, --where and --bound apply to one field; '${flags.output}' (a folder) gets whole fields`);
+      if (nc && flags.bound) throw new UsageError(`--bound applies to .npy, .csv or raw output; '${flags.output}' (NetCDF) gets the values as stored`);
+      if (flags.where && (flags.region || flags.slices)) throw new UsageError('--where chooses the window by coordinate values; give it without --region and --slices');
       if (!isUrl(input)) await statInput(input);
       const io = { force: flags.force === true, inputs: isUrl(input) ? [] : [input] };
       if (dirOut) await checkFolder(flags.output);
       else await checkOutput(flags.output, io);
       const archive = await openArchive(input);
       try {
+        const windowed = flags.where !== undefined || flags.region !== undefined || flags.slices !== undefined;
+        if (!dirOut && windowed) {
+          if (nc && chosen === undefined && archive.names.length > 1) throw new UsageError(`a window written to .nc is of one field: name it with --var (fields: ${archive.names.map((n) => printable(n)).join(', ')})`);
+          const h = archive.field(chosen).header;
+          if (nc || flags.where !== undefined || h.layout?.startsWith('matrix:')) {
+            await unpackAxes(archive, h, flags, { input, nc, csv, npy, io, start }, ctx);
+            return;
+          }
+        }
         if (dirOut || nc) {
           const names = chosen !== undefined ? [archive.field(chosen).header.name] : archive.names;
           const fields = [];
@@ -219,6 +240,66 @@ export function registerUnpack(program: Command, ctx: Context): void {
         await archive.close();
       }
     });
+}
+
+/**
+ * `unpack` of a window chosen by axis: by --where coordinate ranges, to
+ * NetCDF (dimensions and coordinate variables cut to match), or of a field
+ * laid out as a matrix (--slices and --region count its own axes, as for
+ * slices). The window is read into memory, then written.
+ */
+async function unpackAxes(
+  archive: Archive,
+  h: FieldHeader,
+  flags: UnpackFlags,
+  o: { input: string; nc: boolean; csv: boolean; npy: boolean; io: { force: boolean; inputs: string[] }; start: number },
+  ctx: Context,
+): Promise<void> {
+  const nd = ndShapeOf(h);
+  let ranges: AxisRange[] | null;
+  if (flags.where) {
+    ranges = rangesWhere(h, flags.where, (dim) => {
+      const v = carriedValues(archive.header.attrs, dim);
+      return v === null || v instanceof Uint8Array || (Array.isArray(v) && v.some((x) => typeof x !== 'number')) ? null : (v as ArrayLike<number>);
+    });
+  } else ranges = rangesFrom(h, flags.slices, flags.region);
+  let got: { values: FloatArray; shape: number[] };
+  const cells = (r: AxisRange[]) => r.reduce((x, [a, b]) => x * (b - a), 1);
+  const k = nd.length;
+  const sliceRange = (): AxisRange => [flags.slices?.[0] ?? 0, flags.slices?.[1] ?? nd.slice(0, k - 2).reduce((x, y) => x * y, 1)];
+  const rowRange: AxisRange = [flags.region?.rows[0] ?? 0, flags.region?.rows[1] ?? nd[k - 2]];
+  const colRange: AxisRange = [flags.region?.cols[0] ?? 0, flags.region?.cols[1] ?? nd[k - 1]];
+  const n = ranges ? cells(ranges) : cells([sliceRange(), rowRange, colRange]);
+  if (o.csv && n > CSV_LIMIT && flags.force !== true) throw new UsageError(`.csv output of ${n} values is refused (more than ${CSV_LIMIT}); choose a smaller window, write .npy, or use --force`);
+  if (ranges) got = await readAxes(archive, h, ranges);
+  else if (o.nc) throw new UsageError(`--slices of a variable of ${k} dimensions counts its first ${k - 2} dimensions together, which a .nc window cannot express; use --where, or write .npy`);
+  else got = await readSliceWindow(archive, h, sliceRange(), rowRange, colRange);
+  const dims = dimNames(h);
+  let bytes: Uint8Array;
+  let kind: string;
+  if (o.nc) {
+    const cut = new Map<string, [number, number]>();
+    ranges!.forEach(([a, b], i) => {
+      if (a !== 0 || b !== nd[i]) cut.set(dims[i], [a, b]);
+    });
+    bytes = writeNetcdf(netcdfFromFields(archive.header.attrs, [{ h, shape: got.shape, values: got.values }], cut));
+    kind = 'NetCDF classic';
+  } else {
+    restoreMissing(h, got.values);
+    if (o.npy) {
+      bytes = formatNpy({ data: got.values, shape: got.shape, dtype: h.dtype });
+      kind = '.npy';
+    } else if (o.csv) {
+      bytes = formatCsv(got.values, got.shape, ranges ? dims : got.shape.length === 3 ? ['slice', dims[k - 2], dims[k - 1]] : dims);
+      kind = 'CSV';
+    } else {
+      bytes = valueBytes(got.values, flags.endian ?? 'little');
+      kind = `raw ${flags.endian ?? 'little'}-endian`;
+    }
+  }
+  await writeOutput(flags.output, bytes, o.io);
+  const what = ranges ? ranges.map(([a, b], i) => `${printable(dims[i])} ${a}..${b - 1}`).join(', ') : `slices ${sliceRange()[0]}..${sliceRange()[1] - 1}, rows ${rowRange[0]}..${rowRange[1] - 1}, columns ${colRange[0]}..${colRange[1] - 1}`;
+  ctx.out(`unpacked ${what} (${got.shape.join('x')}) of field '${printable(h.name)}' (${nd.join('x')} ${h.dtype}) from '${o.input}' -> '${flags.output}' (${kind}, ${bytes.length} bytes); ${seconds(performance.now() - o.start)}\n`);
 }
 
 /**
