@@ -4,13 +4,16 @@ import { formatNpy, npyHeader } from '../io/npy.js';
 import { valueBytes } from '../io/bands.js';
 import { readBands, readShape, type BandsRead } from '../parallel/read.js';
 import { UsageError } from './errors.js';
-import { checkOutput, isUrl, openArchive, statInput, writeOutput, writeOutputWith } from './files.js';
+import { checkOutput, isUrl, openArchive, statInput, trackTempDir, writeOutput, writeOutputWith } from './files.js';
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
 import { carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
 import { dimNames, ndShapeOf, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
 import type { Archive, FloatArray } from '../index.js';
-import { writeNetcdf } from '../io/netcdf-write.js';
+import { writeNetcdf, type NcWriteFile } from '../io/netcdf-write.js';
+import { writeNetcdf4 } from '../io/hdf5-write.js';
+import { mkdtemp, readFile, rm } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
 import { printable } from '../format/schema.js';
 import { stat } from 'node:fs/promises';
 import { join } from 'node:path';
@@ -28,6 +31,7 @@ export interface Region {
 
 interface UnpackFlags {
   output: string;
+  netcdf4?: boolean;
   where?: WhereTerm[];
   field?: string;
   var?: string;
@@ -133,6 +137,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .option('--region <R0:R1,C0:C1>', 'decode only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
     .option('--where <NAME=LO:HI,...>', 'decode only where the coordinate variables of the named dimensions lie within LO..HI (inclusive; an empty end is open), e.g. lat=-30:30,lon=100:180; names in any case', whereOption)
     .option('--bound <MODE:VALUE>', 'a looser bound than the archive holds: read only as much of each tile as meets it (prints what the values satisfy)', boundOption)
+    .option('--netcdf4', 'NetCDF output: write NetCDF-4 (HDF5 inside, through h5wasm) instead of NetCDF classic')
     .option('--endian <ORDER>', 'raw output: byte order, little (default) or big', endianOption)
     .option('--threads <N>', 'threads decoding bands of tiles for .npy and raw output (default: the number of cores; N - 1 worker threads beside the main one)', threadsOption)
     .option('--force', 'overwrite OUT if it exists')
@@ -148,6 +153,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
       if (flags.endian !== undefined && (npy || nc || csv || dirOut)) throw new UsageError(`--endian applies to raw output; '${flags.output}' is not written as raw binary`);
       if (dirOut && chosen !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
       if (dirOut && (flags.region || flags.slices || flags.bound || flags.where)) throw new UsageError(`--region, --slices, --where and --bound apply to one field; '${flags.output}' (a folder) gets whole fields`);
+      if (flags.netcdf4 && !nc) throw new UsageError(`--netcdf4 applies to NetCDF output (OUT ending in .nc); '${flags.output}' is not`);
       if (nc && flags.bound) throw new UsageError(`--bound applies to .npy, .csv or raw output; '${flags.output}' (NetCDF) gets the values as stored`);
       if (flags.where && (flags.region || flags.slices)) throw new UsageError('--where chooses the window by coordinate values; give it without --region and --slices');
       if (!isUrl(input)) await statInput(input);
@@ -173,9 +179,9 @@ export function registerUnpack(program: Command, ctx: Context): void {
             fields.push({ h: archive.field(name).header, shape: f.shape, values: f.values });
           }
           if (nc) {
-            const bytes = writeNetcdf(netcdfFromFields(archive.header.attrs, fields));
+            const bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, fields), flags.netcdf4 === true);
             await writeOutput(flags.output, bytes, io);
-            ctx.out(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (NetCDF classic, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+            ctx.out(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (${flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic'}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
           } else {
             const files = fileNames(names);
             for (const f of fields) restoreMissing(f.h, f.values);
@@ -243,6 +249,25 @@ export function registerUnpack(program: Command, ctx: Context): void {
 }
 
 /**
+ * The bytes of a NetCDF file: classic (or 64-bit offset when the sizes need
+ * it), or NetCDF-4 written by h5wasm into a temporary folder (removed
+ * afterwards, and on an interrupt) and read back.
+ */
+async function netcdfBytes(file: NcWriteFile, netcdf4: boolean): Promise<Uint8Array> {
+  if (!netcdf4) return writeNetcdf(file);
+  const dir = await mkdtemp(join(tmpdir(), 'rankfield-nc4-'));
+  trackTempDir(dir, true);
+  try {
+    const path = join(dir, 'out.nc');
+    await writeNetcdf4(path, file);
+    return new Uint8Array(await readFile(path));
+  } finally {
+    await rm(dir, { recursive: true, force: true });
+    trackTempDir(dir, false);
+  }
+}
+
+/**
  * `unpack` of a window chosen by axis: by --where coordinate ranges, to
  * NetCDF (dimensions and coordinate variables cut to match), or of a field
  * laid out as a matrix (--slices and --region count its own axes, as for
@@ -282,8 +307,8 @@ async function unpackAxes(
     ranges!.forEach(([a, b], i) => {
       if (a !== 0 || b !== nd[i]) cut.set(dims[i], [a, b]);
     });
-    bytes = writeNetcdf(netcdfFromFields(archive.header.attrs, [{ h, shape: got.shape, values: got.values }], cut));
-    kind = 'NetCDF classic';
+    bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, [{ h, shape: got.shape, values: got.values }], cut), flags.netcdf4 === true);
+    kind = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
   } else {
     restoreMissing(h, got.values);
     if (o.npy) {

@@ -70,7 +70,7 @@ async function h5(): Promise<H5> {
  * text, so that a failure is one line of ours. Returns fn's result and the
  * caught text.
  */
-function quietly<T>(fn: () => T): { result: T; stack: string } {
+export function quietly<T>(fn: () => T): { result: T; stack: string } {
   const original = fs.writeSync;
   const caught: string[] = [];
   const quiet = function (this: unknown, fd: number, data: unknown, ...rest: unknown[]): number {
@@ -88,7 +88,7 @@ function quietly<T>(fn: () => T): { result: T; stack: string } {
 }
 
 /** The innermost HDF5 complaint of an error stack, e.g. "H5Fopen(): unable to synchronously open file". */
-function hdf5Reason(stack: string): string {
+export function hdf5Reason(stack: string): string {
   const m = /#000: .* in (\w+\(\)): (.*)$/m.exec(stack);
   return m ? `${m[1]}: ${m[2].trim()}` : 'the HDF5 library refused it';
 }
