@@ -5,6 +5,7 @@ import { ArchiveBuilder, InputCode, InputError, type Bound, type Dtype, type Flo
 import { fileError, UsageError } from './errors.js';
 import { KEY, netcdfFields, parseMatrix } from './netcdf.js';
 import { netcdf4ToClassic } from '../io/hdf5-read.js';
+import { NC_TYPE_SIZE, type NcType } from '../io/netcdf-types.js';
 import { readInput } from './files.js';
 import { errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
@@ -251,7 +252,9 @@ async function packNetcdf(input: string, flags: PackFlags, ctx: Context, start: 
   const lines: string[] = [];
   for (const h of archive.header.fields) {
     const ix = archive.field(h.name);
-    const r = rawBytes(h);
+    // Bytes in: the values as the source stores them (a short variable counts 2 bytes a value, not the 8 of its physical float64s).
+    const stored = h.attrs[KEY.storedType];
+    const r = typeof stored === 'string' && stored in NC_TYPE_SIZE ? (rawBytes(h) / (h.dtype === 'f32' ? 4 : 8)) * NC_TYPE_SIZE[stored as NcType] : rawBytes(h);
     raw += r;
     const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
     const layout = h.layout ?? 'plain';

@@ -67,7 +67,10 @@ const attributes = (r: NetCDFReader, name: string) => r.variables.find((v) => v.
 describe.skipIf(!RUN)('CF round trip of an ncgen file', { timeout: CLI_TIMEOUT }, () => {
   it('under a bound below half the packing step, the stored shorts come back exactly, and every missing cell as itself', () => {
     // abs:0.004 < scale_factor / 2 = 0.005: rounding the decoded physical value gives the stored integer back.
-    expect(rf(['pack', 'volcano.nc', '-o', 'v.rfz', '--bound', 'abs:0.004'], t.dir).code).toBe(0);
+    const p = rf(['pack', 'volcano.nc', '-o', 'v.rfz', '--bound', 'abs:0.004'], t.dir);
+    expect(p.code, p.stderr).toBe(0);
+    // Bytes in as stored: 5307 shorts (2 bytes) and 5307 floats (4 bytes).
+    expect(p.stdout).toMatch(new RegExp(`: ${N * 2 + N * 4} bytes in,`));
     const u = rf(['unpack', 'v.rfz', '-o', 'back.nc'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const a = new NetCDFReader(readFileSync(join(t.dir, 'volcano.nc')));
