@@ -272,9 +272,11 @@ export function netcdfFields(
       throw e;
     }
     const v = file.variables.find((x) => x.name === name)!;
+    let given = false;
     if (typeof fill === 'number' && (read.fill === null || read.fillSource === 'default')) {
       if (read.fillCount > 0) throw new UsageError(`${path}: variable '${printable(name)}' has ${read.fillCount} cells of netCDF's default fill value ${read.fill}, which mark missing cells already; --fill cannot add a second`);
       useFill(read, fill);
+      given = true;
     }
     if (fill !== false) {
       const watch = new RangeWatch(read.fill);
@@ -292,7 +294,13 @@ export function netcdfFields(
     const attrs: Attrs = { ...(phys.attrs as Attrs) };
     attrs[KEY.attrTypes] = typesText(phys.attrTypes);
     attrs[KEY.storedType] = read.storedType;
-    attrs[KEY.storedAttrs] = JSON.stringify(attrsJson(v));
+    const own = attrsJson(v);
+    // --fill declares the variable's _FillValue, in its stored type (packed: the stored value the fill unpacks from).
+    if (given && read.fill !== null) {
+      const s = read.packing ? (read.fill - read.packing.offset) / read.packing.scale : read.fill;
+      own.push(['_FillValue', v.type, v.type === 'float' || v.type === 'double' ? s : Math.round(s)]);
+    }
+    attrs[KEY.storedAttrs] = JSON.stringify(own);
     if (read.marks.length > 0) attrs[KEY.marks] = read.marks;
     if (read.unpacked && read.packing) {
       attrs[KEY.unpacked] = true;

@@ -4,8 +4,8 @@
  * check --against takes every input pack takes (N-D .npy, raw with an N-D
  * shape, NetCDF with --var) and reports each variable; a NetCDF classic file
  * is read as NetCDF whatever its name, a .npy file whatever its name.
- * Data: vega-datasets data/annual-precip.json (168 x 360, open data) cut
- * into 4 bands of 42 rows, as a 4 x 42 x 360 array; NetCDF files made by
+ * Data: vega-datasets data/annual-precip.json (168 x 360, open data), every
+ * second row and column, cut into 4 bands of 21 rows: a 4 x 21 x 180 array; NetCDF files made by
  * Debian's ncgen from CDL (NetCDF Users Guide, CDL syntax).
  */
 import { copyFileSync, readFileSync, writeFileSync } from 'node:fs';
@@ -19,8 +19,9 @@ import { CLI_TIMEOUT, ensureBuilt, expectCliError, maxAbsError, rf, tempDir, vol
 
 let t: ReturnType<typeof tempDir>;
 const g = precip();
-const values = Float32Array.from(g.values);
-const ND = [4, 42, 360];
+/** Every second row and column of the grid (84 x 180), as float32. */
+const values = Float32Array.from({ length: 84 * 180 }, (_, k) => g.values[2 * Math.floor(k / 180) * 360 + 2 * (k % 180)]);
+const ND = [4, 21, 180];
 
 beforeAll(() => {
   ensureBuilt();
@@ -36,7 +37,7 @@ describe('N-D .npy and raw', { timeout: CLI_TIMEOUT }, () => {
   it('pack takes a 3-D .npy as slices; unpack gives the 3-D array back within the bound; check --against it passes', () => {
     const r = rf(['pack', 'p3.npy', '-o', 'p3.rfz', '--bound', 'abs:2'], t.dir);
     expect(r.code, r.stderr).toBe(0);
-    expect(r.stdout).toMatch(/\(4x42x360 f32, field 'p3', layout slices\)/);
+    expect(r.stdout).toMatch(/\(4x21x180 f32, field 'p3', layout slices\)/);
     expect(rf(['unpack', 'p3.rfz', '-o', 'back.npy'], t.dir).code).toBe(0);
     const back = parseNpy(new Uint8Array(readFileSync(join(t.dir, 'back.npy'))), 'back.npy');
     expect(back.shape).toEqual(ND);
@@ -48,19 +49,19 @@ describe('N-D .npy and raw', { timeout: CLI_TIMEOUT }, () => {
   });
 
   it('raw with a 3-D --shape packs and checks (the field\'s shape is the default)', () => {
-    const r = rf(['pack', 'p3.f32', '-o', 'raw3.rfz', '--bound', 'abs:2', '--shape', '4x42x360', '--dtype', 'f32'], t.dir);
+    const r = rf(['pack', 'p3.f32', '-o', 'raw3.rfz', '--bound', 'abs:2', '--shape', '4x21x180', '--dtype', 'f32'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     expect(rf(['check', 'raw3.rfz', '--against', 'p3.f32'], t.dir).code).toBe(0);
-    expect(rf(['check', 'raw3.rfz', '--against', 'p3.f32', '--shape', '4x42x360'], t.dir).code).toBe(0);
-    const bad = rf(['check', 'raw3.rfz', '--against', 'p3.f32', '--shape', '168x360'], t.dir);
-    expectCliError(bad, /original 'p3\.f32' has shape 168x360, but field 'p3' of 'raw3\.rfz' has shape 4x42x360/);
+    expect(rf(['check', 'raw3.rfz', '--against', 'p3.f32', '--shape', '4x21x180'], t.dir).code).toBe(0);
+    const bad = rf(['check', 'raw3.rfz', '--against', 'p3.f32', '--shape', '84x180'], t.dir);
+    expectCliError(bad, /original 'p3\.f32' has shape 84x180, but field 'p3' of 'raw3\.rfz' has shape 4x21x180/);
   });
 
   it('--matrix axis0:space lays the leading axis out as rows (axis names are case-insensitive)', async () => {
     const r = rf(['pack', 'p3.npy', '-o', 'm.rfz', '--bound', 'abs:2', '--matrix', 'AXIS0:space'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     const a = await open(join(t.dir, 'm.rfz'));
-    expect([a.header.fields[0].layout, a.header.fields[0].shape]).toEqual(['matrix:1', [4, 42 * 360]]);
+    expect([a.header.fields[0].layout, a.header.fields[0].shape]).toEqual(['matrix:1', [4, 21 * 180]]);
     await a.close();
     const bad = rf(['pack', 'p3.npy', '-o', 'm2.rfz', '--bound', 'abs:2', '--matrix', 'time:space'], t.dir);
     expectCliError(bad, /its axes are axis0, axis1, axis2/);
@@ -69,7 +70,7 @@ describe('N-D .npy and raw', { timeout: CLI_TIMEOUT }, () => {
   it('a .npy file is read by its header whatever its name', () => {
     const r = rf(['pack', 'p3-npy.bin', '-o', 'named.rfz', '--bound', 'abs:2'], t.dir);
     expect(r.code, r.stderr).toBe(0);
-    expect(r.stdout).toMatch(/4x42x360 f32/);
+    expect(r.stdout).toMatch(/4x21x180 f32/);
   });
 });
 
