@@ -14,6 +14,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { open as openBrowserSafe } from '../../src/decode.js';
 import { FormatError, InputError, MemorySource, open, pack } from '../../src/index.js';
 import { tempDir } from '../cli/helpers.js';
+import { startRangeServer } from '../io/range-server.js';
 import { volcano } from './datasets.js';
 
 /** Fixed seed: every run tries the same cases. */
@@ -65,6 +66,20 @@ describe('open() takes every form of archive input', () => {
   it('a file: URL, as a URL and as text (Node entry)', async () => {
     await expectVolcano(pathToFileURL(path));
     await expectVolcano(pathToFileURL(path).href);
+  });
+
+  it('an http URL, as text and as a URL, in both entries (read with Range requests)', async () => {
+    const server = await startRangeServer();
+    try {
+      server.put('/volcano.rfz', bytes);
+      await expectVolcano(`${server.url}/volcano.rfz`);
+      await expectVolcano(new URL(`${server.url}/volcano.rfz`));
+      const a = await openBrowserSafe(`${server.url}/volcano.rfz`);
+      expect(a.names).toEqual(['height']);
+      await a.close();
+    } finally {
+      await server.close();
+    }
   });
 
   it('a missing file is an InputError naming it and the reason', async () => {
