@@ -118,8 +118,8 @@ function countFill(values: FloatArray, fill: number): number {
 export function registerPack(program: Command, ctx: Context): void {
   program
     .command('pack')
-    .summary('compress a 2-D field into an archive (lossy: see pack --help)')
-    .description('Compress one 2-D field into an archive, keeping every value within a stated error bound.\n' + LOSSY_NOTE)
+    .summary('compress a field (2-D or N-D) or NetCDF variables into an archive (lossy: see pack --help)')
+    .description('Compress a field (2-D or N-D), or the variables of a NetCDF file, into an archive, keeping every value within a stated error bound.\n' + LOSSY_NOTE)
     .argument('<IN>', 'input: .npy (float32/float64, 2 or more axes), NetCDF, or raw binary with --shape and --dtype')
     .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
     .requiredOption('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D', boundOption)
