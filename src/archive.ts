@@ -11,6 +11,7 @@ import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
 import { joinPages, readContainer, readPages, tilePage, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
 import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex, checkReadCells, pageCount, quoteName, sliceGrid, tileCount, tileOrigin, tileShape, up32 } from './format/schema.js';
+import { HttpSource } from './format/http-source.js';
 import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 
@@ -583,9 +584,115 @@ function extract(values: FloatArray, h: FieldHeader, t: number): FloatArray {
   return out;
 }
 
-/** Open an archive from bytes in memory or any {@link ByteSource}. */
-export async function open(source: Uint8Array | ByteSource, options: OpenOptions = {}): Promise<Archive> {
-  const src = source instanceof Uint8Array ? new MemorySource(source) : source;
-  const container = await readContainer(src, options.limits);
-  return new Archive(src, container, options.coalesce);
+/** What {@link open} reads an archive from. */
+export type ArchiveInput = Uint8Array | ArrayBuffer | ByteSource | URL | string;
+
+const OPEN_KEYS = ['limits', 'coalesce'];
+
+/** A short description of a value for messages: its type, never its contents. */
+function kindOf(x: unknown): string {
+  if (x === null) return 'null';
+  if (typeof x !== 'object') return typeof x;
+  const name = (Object.getPrototypeOf(x) as { constructor?: { name?: unknown } } | null)?.constructor?.name;
+  return typeof name === 'string' && name.length > 0 ? `an object (${name})` : 'an object';
+}
+
+/** True for an object with the two required methods of a {@link ByteSource}. */
+function isByteSource(x: unknown): x is ByteSource {
+  return typeof x === 'object' && x !== null && typeof (x as ByteSource).size === 'function' && typeof (x as ByteSource).read === 'function';
+}
+
+/**
+ * A caller's {@link ByteSource}, with what it answers checked: a size that
+ * is not a non-negative integer, or a read that is not a Uint8Array of the
+ * length asked for, is an InputError (the source is the caller's argument).
+ * What the source throws passes on unchanged.
+ */
+class CheckedSource implements ByteSource {
+  readonly label: string;
+  readonly readMany?: (ranges: readonly ByteRange[]) => Promise<Uint8Array[]>;
+  constructor(private readonly inner: ByteSource) {
+    this.label = typeof inner.label === 'string' ? inner.label : 'archive';
+    if (typeof inner.readMany === 'function') {
+      const many = inner.readMany.bind(inner);
+      this.readMany = async (ranges) => {
+        const got: unknown = await many(ranges);
+        if (!Array.isArray(got) || got.length !== ranges.length) throw new InputError(InputCode.Option, `${this.label}: the source's readMany() gave ${kindOf(got)}, not ${ranges.length} byte arrays`);
+        return ranges.map((r, i) => this.checked(got[i], r.offset, r.length));
+      };
+    }
+  }
+  async size(): Promise<number> {
+    const n: unknown = await this.inner.size();
+    if (typeof n !== 'number' || !Number.isSafeInteger(n) || n < 0) throw new InputError(InputCode.Option, `${this.label}: the source's size() gave ${typeof n === 'number' ? n : kindOf(n)}, not a byte count`);
+    return n;
+  }
+  async read(offset: number, length: number): Promise<Uint8Array> {
+    return this.checked(await this.inner.read(offset, length), offset, length);
+  }
+  async close(): Promise<void> {
+    if (typeof this.inner.close === 'function') await this.inner.close();
+  }
+  private checked(b: unknown, offset: number, length: number): Uint8Array {
+    if (!(b instanceof Uint8Array) || b.length !== length) {
+      throw new InputError(InputCode.Option, `${this.label}: the source's read(${offset}, ${length}) gave ${b instanceof Uint8Array ? `${b.length} bytes` : kindOf(b)}, not ${length} bytes`);
+    }
+    return b;
+  }
+}
+
+/**
+ * The byte source {@link open} reads from, and whether open made it (and so
+ * closes it when opening fails). `file` opens a path or file: URL; without
+ * it (the browser-safe entry) such input is refused.
+ */
+async function sourceOf(input: unknown, file?: (path: string | URL) => Promise<ByteSource>): Promise<{ src: ByteSource; own: boolean }> {
+  if (input instanceof Uint8Array) return { src: new MemorySource(input), own: true };
+  if (input instanceof ArrayBuffer) return { src: new MemorySource(new Uint8Array(input)), own: true };
+  if (ArrayBuffer.isView(input)) {
+    throw new InputError(InputCode.Option, `open() takes an archive's bytes as a Uint8Array or ArrayBuffer, got ${kindOf(input)}; to archive values, use pack()`);
+  }
+  if (typeof input === 'string' || input instanceof URL) {
+    const text = String(input);
+    if (/^https?:\/\//i.test(text)) return { src: new HttpSource(text), own: true };
+    if (file === undefined) throw new InputError(InputCode.Option, `open() here reads bytes, a ByteSource or an http(s) URL; '${text}' is none (file paths are read by the Node entry, 'rankfield')`);
+    if (text.length === 0) throw new InputError(InputCode.Option, 'open() was given an empty path');
+    return { src: await file(input), own: true };
+  }
+  if (isByteSource(input)) return { src: new CheckedSource(input), own: false };
+  throw new InputError(InputCode.Option, `open() takes a Uint8Array, an ArrayBuffer, a ByteSource (size() and read()), an http(s) URL${file ? ' or a file path' : ''}; got ${kindOf(input)}`);
+}
+
+/** Check the options of {@link open}: an object of known keys, or undefined. */
+function checkOpenOptions(options: unknown): OpenOptions {
+  if (options === undefined) return {};
+  if (typeof options !== 'object' || options === null || Array.isArray(options)) throw new InputError(InputCode.Option, `open options must be an object, got ${kindOf(options)}`);
+  const unknown = Object.keys(options).filter((k) => !OPEN_KEYS.includes(k));
+  if (unknown.length > 0) throw new InputError(InputCode.Option, `unknown open option${unknown.length > 1 ? 's' : ''} ${unknown.map((k) => `'${k}'`).join(', ')} (known: ${OPEN_KEYS.join(', ')})`);
+  const o = options as OpenOptions;
+  if (o.coalesce !== undefined && (typeof o.coalesce !== 'object' || o.coalesce === null)) throw new InputError(InputCode.Option, `coalesce must be an object, got ${kindOf(o.coalesce)}`);
+  return o;
+}
+
+/** Open an archive on a source made by {@link sourceOf}, closing a source of open's own if it fails. */
+export async function openOn(input: unknown, options: unknown, file?: (path: string | URL) => Promise<ByteSource>): Promise<Archive> {
+  const o = checkOpenOptions(options);
+  const { src, own } = await sourceOf(input, file);
+  try {
+    const container = await readContainer(src, o.limits);
+    return new Archive(src, container, o.coalesce);
+  } catch (e) {
+    if (own) await src.close?.().catch(() => undefined);
+    throw e;
+  }
+}
+
+/**
+ * Open an archive from bytes in memory (Uint8Array, or the ArrayBuffer a
+ * `fetch` response gives), any {@link ByteSource}, or an http(s) URL (read
+ * with an {@link HttpSource} of default options). A malformed archive is a
+ * FormatError; an argument of any other kind an InputError.
+ */
+export async function open(source: Uint8Array | ArrayBuffer | ByteSource | URL | string, options: OpenOptions = {}): Promise<Archive> {
+  return openOn(source, options);
 }

@@ -6,8 +6,11 @@
  * below, and a message that says what is wrong and where.
  *
  * Two other kinds pass through: errors of the file system as Node reports
- * them (FileSource, a file sink: ENOENT, EACCES, ...), and whatever a
- * caller's own ByteSource, Sink or band callback throws. Any other error is
+ * them where the caller opens files itself (FileSource.open, a file sink:
+ * ENOENT, EACCES, ...; `open(path)` turns them into an InputError of code
+ * `file`), and whatever a caller's own ByteSource, Sink or band callback
+ * throws (what a ByteSource answers is checked: a wrong answer is an
+ * InputError). Any other error is
  * an internal assertion that no input should reach: a bug in rankfield.
  */
 

@@ -98,9 +98,20 @@ export const MAX_PAGE_SIDE = 4096;
 /** Largest tile area accepted (cells); readers refuse more by default. */
 export const MAX_TILE_CELLS = 1 << 20;
 
+/** Refuse options that are not an object (they hold at least the bound). */
+function checkOptions<T extends PackOptions>(o: T): T {
+  if (typeof o !== 'object' || o === null || Array.isArray(o)) {
+    throw new InputError(InputCode.Option, `pack options must be an object holding at least the error bound, e.g. { bound: 'abs:0.01' }; got ${o === null ? 'null' : Array.isArray(o) ? 'an array' : typeof o}`);
+  }
+  return o;
+}
+
 function options(values: FloatArray | number[], shape: readonly number[], o: PackOptions, withValues = true): { spec: FieldSpec; data: FloatArray; page: [number, number] } {
   if (!Array.isArray(shape) || shape.length !== 2 || !shape.every((d) => Number.isInteger(d) && d >= 1)) {
     throw new InputError(InputCode.Shape, `shape must be [rows, cols] of positive integers, got ${JSON.stringify(shape)}`);
+  }
+  if (withValues && !(Array.isArray(values) || values instanceof Float32Array || values instanceof Float64Array)) {
+    throw new InputError(InputCode.Dtype, `values must be a Float32Array, a Float64Array or an array of numbers, got ${values === null ? 'null' : typeof values === 'object' ? (values as object).constructor?.name ?? 'an object' : typeof values}`);
   }
   const [rows, cols] = shape;
   const slices = o.slices ?? 1;
@@ -177,14 +188,14 @@ export class ArchiveBuilder {
 
   /** Encode and append one field held in memory (row-major). */
   add(values: FloatArray | number[], shape: readonly number[], o: PackOptions): FieldHeader {
-    this.refuseAfterFinish(o.name);
+    this.refuseAfterFinish(checkOptions(o).name);
     const { spec, data, page } = options(values, shape, o);
     return this.encode(memoryBands(data, spec.cols), spec, o, page);
   }
 
   /** {@link add} with tiles encoded on worker threads (`o.threads`); the same bytes for every thread count. */
   async addAsync(values: FloatArray | number[], shape: readonly number[], o: ParallelPackOptions): Promise<FieldHeader> {
-    this.refuseAfterFinish(o.name);
+    this.refuseAfterFinish(checkOptions(o).name);
     const { spec, data, page } = options(values, shape, o);
     return this.encodeAsync(memoryBands(data, spec.cols), spec, o, page);
   }
@@ -195,7 +206,7 @@ export class ArchiveBuilder {
    * called more than once for the same rows (range pass, L2 planning).
    */
   addBands(band: (r0: number, count: number) => FloatArray, shape: readonly number[], dtype: Dtype, o: PackOptions): FieldHeader {
-    this.refuseAfterFinish(o.name);
+    this.refuseAfterFinish(checkOptions(o).name);
     const { spec, page } = options(new Float32Array(0), shape, { ...o, dtype }, false);
     return this.encode(checkedBands(band, spec), spec, o, page);
   }
@@ -206,7 +217,7 @@ export class ArchiveBuilder {
    * read before; the same bytes for every thread count.
    */
   async addBandsAsync(band: (r0: number, count: number) => FloatArray, shape: readonly number[], dtype: Dtype, o: ParallelPackOptions): Promise<FieldHeader> {
-    this.refuseAfterFinish(o.name);
+    this.refuseAfterFinish(checkOptions(o).name);
     const { spec, page } = options(new Float32Array(0), shape, { ...o, dtype }, false);
     return this.encodeAsync(checkedBands(band, spec), spec, o, page);
   }

@@ -1,18 +1,23 @@
 /** `rankfield check`: verify every tile of an archive, optionally against the original values. */
 import type { Command } from 'commander';
-import { InputCode, InputError, isPointwise, type Archive, type CheckReport, type Dtype, type FieldHeader } from '../index.js';
+import { InputCode, InputError, isPointwise, type Archive, type CheckReport, type Dtype, type FieldHeader, type FloatArray } from '../index.js';
+import { printable } from '../format/schema.js';
+import { netcdf4ToClassic } from '../io/hdf5-read.js';
+import { readNetcdfHeader, readNetcdfVariable } from '../io/netcdf-read.js';
+import { setOwn } from '../io/netcdf-types.js';
 import { Exit, UsageError } from './errors.js';
-import { isUrl, openArchive, statInput } from './files.js';
+import { isUrl, openArchive, readInput, statInput } from './files.js';
 import { boundText, num, rawBytes } from './format.js';
-import { loadField } from './input.js';
+import { inputKind, loadField } from './input.js';
 import type { Context } from './main.js';
-import { dtypeOption, endianOption, nameOption, shapeOption } from './options.js';
+import { dtypeOption, endianOption, nameOption, ndShapeOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 
 interface CheckFlags extends OutputFlags {
   against?: string;
   field?: string;
-  shape?: [number, number];
+  var?: string[];
+  shape?: number[];
   dtype?: Dtype;
   endian?: 'little' | 'big';
 }
@@ -25,8 +30,12 @@ verified at pack time), and the recorded error against the bound. With
 error (abs, rel) or RMSE (rmse, psnr) is measured, and every missing cell
 (NaN, infinity, fill value) must come back bit for bit.
 
-ORIGINAL is a .npy file, or headerless raw binary; for raw, --shape and
---dtype default to the field's own and --endian to little.
+ORIGINAL is anything pack reads, told apart by its first bytes (else its
+name): a NetCDF file, whose variables are compared with the fields of their
+names (every field, or those named by --var) and reported one by one; a .npy
+file of the field's shape (N-D included); or headerless raw binary, whose
+--shape (RxC or AxBxC...) and --dtype default to the field's own and
+--endian to little.
 
 Exit codes:
   0  every tile holds its bound and checksums (and matches ORIGINAL)
@@ -39,18 +48,53 @@ A damaged tile payload, or a damaged index page (its tiles cannot be
 located), is a check failure (exit 1); damage to the tail,
 header or index directory is exit 2.`;
 
-/** Check that an original fits the field it is compared with. */
-function checkOriginal(path: string, shape: number[], dtype: Dtype, h: FieldHeader, archive: string): void {
-  if (shape[0] !== h.shape[0] || shape[1] !== h.shape[1]) {
-    throw new InputError(InputCode.Shape, `original '${path}' is ${shape.join('x')}, but field '${h.name}' of '${archive}' is ${h.shape.join('x')}`);
+/** The shape a field's original has: its N-D shape, else slices x rows x cols, else rows x cols. */
+function fieldShape(h: FieldHeader): number[] {
+  return h.nd_shape ?? ((h.slices ?? 1) > 1 ? [h.slices!, h.shape[0], h.shape[1]] : h.shape);
+}
+
+/** Check that an original fits the field it is compared with (both shapes as the files give them). */
+function checkOriginal(what: string, shape: number[], dtype: Dtype, h: FieldHeader, archive: string): void {
+  const want = fieldShape(h);
+  if (shape.length !== want.length || shape.some((d, i) => d !== want[i])) {
+    throw new InputError(InputCode.Shape, `${what} has shape ${shape.join('x')}, but field '${printable(h.name)}' of '${archive}' has shape ${want.join('x')}`);
   }
   if (dtype !== h.dtype) {
-    throw new InputError(InputCode.Dtype, `original '${path}' holds ${dtype} values, but field '${h.name}' of '${archive}' is ${h.dtype}`);
+    throw new InputError(InputCode.Dtype, `${what} holds ${dtype} values, but field '${printable(h.name)}' of '${archive}' is ${h.dtype}`);
   }
 }
 
-function reportText(r: CheckReport, headers: FieldHeader[], input: string, against: { path: string; field: string } | null): string {
-  const lines = [`check '${input}'${against ? ` against '${against.path}' (field '${against.field}')` : ''}`];
+/**
+ * The originals of an archive's fields from a NetCDF file, read as pack
+ * reads them (CF missing values and packing applied): every field of the
+ * archive, or those named by --var; each must be a variable of the file.
+ */
+async function netcdfOriginals(path: string, archive: Archive, names: string[] | undefined, input: string, hdf5: boolean): Promise<Record<string, FloatArray>> {
+  const bytes = hdf5 ? await netcdf4ToClassic(path) : await readInput(path);
+  const file = readNetcdfHeader(bytes, path);
+  const chosen = names && names.length > 0 ? names.map((n) => archive.field(n).header.name) : archive.names;
+  const out: Record<string, FloatArray> = {};
+  for (const name of chosen) {
+    const h = archive.field(name).header;
+    if (!file.variables.some((v) => v.name === name)) {
+      throw new InputError(InputCode.Missing, `'${path}' has no variable '${printable(name)}' to compare with field '${printable(name)}' of '${input}' (variables: ${file.variables.map((v) => printable(v.name)).join(', ')}); name the fields to compare with --var`);
+    }
+    let read;
+    try {
+      read = readNetcdfVariable(bytes, file, name, undefined, { mark: true });
+    } catch (e) {
+      if (e instanceof InputError) throw new InputError(e.code, `${path}: ${e.message}`);
+      throw e;
+    }
+    checkOriginal(`variable '${printable(name)}' of '${path}'`, read.shape, read.dtype, h, input);
+    setOwn(out, name, read.values);
+  }
+  return out;
+}
+
+function reportText(r: CheckReport, headers: FieldHeader[], input: string, against: { path: string; fields: string[] } | null): string {
+  const which = against ? (against.fields.length === 1 ? `field '${against.fields[0]}'` : `fields ${against.fields.map((f) => `'${f}'`).join(', ')}`) : '';
+  const lines = [`check '${input}'${against ? ` against '${against.path}' (${which})` : ''}`];
   for (const f of r.fields) {
     const h = headers.find((x) => x.name === f.name)!;
     const pw = isPointwise(h.bound.mode);
@@ -91,9 +135,10 @@ export function registerCheck(program: Command, ctx: Context): void {
     .summary('verify an archive tile by tile, optionally against the original')
     .description('Verify every tile of an archive: checksums, decoding, and the error bound; with --against, also against the original values.')
     .argument('<IN>', 'archive to check: a file or an http(s) URL')
-    .option('--against <ORIGINAL>', 'original values to compare with: .npy, or raw binary')
-    .option('--field <NAME>', 'field ORIGINAL belongs to (default: the first)', nameOption)
-    .option('--shape <RxC>', 'raw ORIGINAL: rows x columns (default: the field\'s)', shapeOption)
+    .option('--against <ORIGINAL>', 'original values to compare with: whatever pack takes (.npy, NetCDF, or raw binary)')
+    .option('--field <NAME>', '.npy or raw ORIGINAL: the field it belongs to (default: the first)', nameOption)
+    .option('--var <NAME>', 'NetCDF ORIGINAL: a variable to compare with the field of its name (repeatable; default every field)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
+    .option('--shape <RxC>', 'raw ORIGINAL: its shape, RxC or AxBxC... (default: the field\'s)', ndShapeOption)
     .option('--dtype <TYPE>', 'raw ORIGINAL: f32 or f64 (default: the field\'s)', dtypeOption)
     .option('--endian <ORDER>', 'raw ORIGINAL: byte order, little (default) or big', endianOption)
     .option('--json', 'print the report as one JSON object')
@@ -101,26 +146,37 @@ export function registerCheck(program: Command, ctx: Context): void {
     .action(async (input: string, flags: CheckFlags) => {
       const out = new Output(ctx, flags);
       if (flags.against === undefined) {
-        const stray = (['field', 'shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
+        const stray = (['field', 'var', 'shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
         if (stray.length > 0) throw new UsageError(`${stray.join(', ')} describe the original, which needs --against ORIGINAL`);
       }
       if (!isUrl(input)) await statInput(input);
       if (flags.against !== undefined) await statInput(flags.against);
       const archive = await openArchive(input);
       try {
-        let against: { path: string; field: string } | null = null;
+        let against: { path: string; fields: string[] } | null = null;
         let report: CheckReport;
         if (flags.against !== undefined) {
-          const { header: h } = archive.field(flags.field);
-          const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
-          const orig = await loadField(flags.against, layout, { shape: [h.shape[0], h.shape[1]], dtype: h.dtype });
-          checkOriginal(flags.against, orig.shape, orig.dtype, h, input);
-          against = { path: flags.against, field: h.name };
-          report = await withBar(out, archive, (onProgress) => archive.check({ [h.name]: orig.data }, onProgress));
+          const path = flags.against;
+          const kind = await inputKind(path);
+          let originals: Record<string, FloatArray>;
+          if (kind === 'netcdf' || kind === 'hdf5') {
+            const misplaced = (['field', 'shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
+            if (misplaced.length > 0) throw new UsageError(`${misplaced.join(', ')} describe a .npy or raw original; '${path}' is NetCDF (choose variables with --var)`);
+            originals = await netcdfOriginals(path, archive, flags.var, input, kind === 'hdf5');
+          } else {
+            if (flags.var !== undefined) throw new UsageError(`--var chooses variables of a NetCDF original; '${path}' is not NetCDF (by its first bytes or its name): use --field`);
+            const { header: h } = archive.field(flags.field);
+            const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
+            const orig = await loadField(path, layout, { shape: fieldShape(h), dtype: h.dtype }, kind);
+            checkOriginal(`original '${path}'`, orig.shape, orig.dtype, h, input);
+            originals = { [h.name]: orig.data };
+          }
+          against = { path, fields: Object.keys(originals) };
+          report = await withBar(out, archive, (onProgress) => archive.check(originals, onProgress));
         } else {
           report = await withBar(out, archive, (onProgress) => archive.check(undefined, onProgress));
         }
-        out.result({ command: 'check', file: input, against: against?.path ?? null, field: against?.field ?? null, ok: report.ok, fields: report.fields, failures: report.failures });
+        out.result({ command: 'check', file: input, against: against?.path ?? null, field: against?.fields[0] ?? null, compared: against?.fields ?? [], ok: report.ok, fields: report.fields, failures: report.failures });
         out.text(reportText(report, archive.header.fields, input, against));
         ctx.exitCode = report.ok ? Exit.Ok : Exit.CheckFailed;
       } finally {

@@ -9,19 +9,19 @@ import type { NdArray } from '../io/ndarray.js';
 import { parseNpy } from '../io/npy.js';
 import { parseRaw } from '../io/raw.js';
 import { openRegular } from '../io/regular-file.js';
+import { SNIFF_BYTES, sniffFormat } from '../io/sniff.js';
 import { fileError, UsageError } from './errors.js';
 import { readInput } from './files.js';
 
 /** How a raw file is laid out, as given by --shape, --dtype and --endian. */
 export interface RawLayout {
-  shape?: [number, number];
+  shape?: number[];
   dtype?: Dtype;
   endian?: 'little' | 'big';
 }
 
-/** A field read from a file: always 2-D. */
+/** A field read from a file: 2 or more axes, in C order. */
 export interface LoadedField extends NdArray {
-  shape: [number, number];
   /** 'npy' or 'raw'. */
   kind: 'npy' | 'raw';
 }
@@ -29,6 +29,33 @@ export interface LoadedField extends NdArray {
 /** True when a path names a .npy file (case-insensitive extension). */
 export function isNpyPath(path: string): boolean {
   return /\.npy$/i.test(path);
+}
+
+/** How an input file is read: by its first bytes, else by its name (see {@link inputKind}). */
+export type InputKind = 'npy' | 'netcdf' | 'hdf5' | 'raw';
+
+/**
+ * How to read `path`: by what its first bytes say (src/io/sniff.ts), so
+ * that a NetCDF file named .cdf or a .npy file named .dat is read as what it
+ * is; when they say nothing, by its extension (.npy; .nc, .cdf, .nc4, .h5,
+ * .hdf5 are read as NetCDF, whose reader says what is wrong); else raw. A
+ * rankfield archive is refused (it is not a field).
+ */
+export async function inputKind(path: string): Promise<InputKind> {
+  let head: Uint8Array;
+  try {
+    head = await readHead(path, SNIFF_BYTES);
+  } catch (e) {
+    throw fileError(e, 'read', path);
+  }
+  const f = sniffFormat(head);
+  if (f === 'npy') return 'npy';
+  if (f === 'hdf5') return 'hdf5';
+  if (f !== null && f.startsWith('netcdf')) return 'netcdf';
+  if (f === 'rankfield') throw new UsageError(`'${path}' is a rankfield archive, not a field (unpack it first, or name the original)`);
+  if (isNpyPath(path)) return 'npy';
+  if (/\.(nc|cdf|nc4|h5|hdf5?)$/i.test(path)) return 'netcdf';
+  return 'raw';
 }
 
 const NPY_MAGIC = [0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59];
@@ -41,9 +68,10 @@ const NPY_MAGIC = [0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59];
 export function checkLayout(
   path: string,
   given: RawLayout,
-  defaults?: { shape: [number, number]; dtype: Dtype },
-): { shape: [number, number]; dtype: Dtype; endian: 'little' | 'big' } | null {
-  if (isNpyPath(path)) {
+  defaults?: { shape: number[]; dtype: Dtype },
+  kind: InputKind = isNpyPath(path) ? 'npy' : 'raw',
+): { shape: number[]; dtype: Dtype; endian: 'little' | 'big' } | null {
+  if (kind === 'npy') {
     const used = (['shape', 'dtype', 'endian'] as const).filter((k) => given[k] !== undefined).map((k) => `--${k}`);
     if (used.length > 0) {
       throw new UsageError(`${used.join(', ')} describe headerless raw input, but '${path}' is a .npy file that carries its own header; drop ${used.length > 1 ? 'them' : 'it'}`);
@@ -54,7 +82,7 @@ export function checkLayout(
   const dtype = given.dtype ?? defaults?.dtype;
   if (shape === undefined || dtype === undefined) {
     const missing = [shape === undefined ? '--shape RxC' : '', dtype === undefined ? '--dtype f32|f64' : ''].filter(Boolean).join(' and ');
-    throw new UsageError(`'${path}' does not end in .npy, so it is read as headerless raw binary, which needs ${missing}`);
+    throw new UsageError(`'${path}' is neither .npy nor NetCDF by its first bytes or its name, so it is read as headerless raw binary, which needs ${missing}`);
   }
   return { shape, dtype, endian: given.endian ?? 'little' };
 }
@@ -64,27 +92,24 @@ export function checkLayout(
  * stated and `defaults` what may stand in for a missing --shape or --dtype
  * (the archive's own, when checking); without either, both are required.
  */
-export async function loadField(path: string, given: RawLayout, defaults?: { shape: [number, number]; dtype: Dtype }): Promise<LoadedField> {
-  const layout = checkLayout(path, given, defaults);
+export async function loadField(path: string, given: RawLayout, defaults?: { shape: number[]; dtype: Dtype }, kind?: InputKind): Promise<LoadedField> {
+  const layout = checkLayout(path, given, defaults, kind);
   if (layout === null) {
     const bytes = await readInput(path);
     const arr = parseNpy(bytes, path);
     const shape = arr.shape;
-    if (shape.length !== 2) {
+    if (shape.length < 2) {
       const tuple = shape.length === 1 ? `(${shape[0]},)` : `(${shape.join(', ')})`;
-      throw new InputError(
-        InputCode.Shape,
-        `${path}: holds a ${shape.length}-D array of shape ${tuple}; only 2-D fields are supported for now (save each 2-D slice as its own .npy)`,
-      );
+      throw new InputError(InputCode.Shape, `${path}: holds a ${shape.length}-D array of shape ${tuple}; a field has 2 or more axes`);
     }
-    if (shape[0] === 0 || shape[1] === 0) throw new InputError(InputCode.Shape, `${path}: the array of shape (${shape.join(', ')}) holds no values`);
-    return { ...arr, shape: [shape[0], shape[1]], kind: 'npy' };
+    if (shape.some((d) => d === 0)) throw new InputError(InputCode.Shape, `${path}: the array of shape (${shape.join(', ')}) holds no values`);
+    return { ...arr, kind: 'npy' };
   }
   const { shape, dtype, endian } = layout;
   const bytes = await readInput(path);
   try {
     const arr = parseRaw(bytes, shape, dtype, endian, path);
-    return { ...arr, shape: [shape[0], shape[1]], kind: 'raw' };
+    return { ...arr, kind: 'raw' };
   } catch (e) {
     if (e instanceof InputError && NPY_MAGIC.every((b, i) => bytes[i] === b)) {
       throw new InputError(e.code, `${e.message} (the file starts like a .npy file; give it a .npy name to read its header)`);
@@ -98,15 +123,15 @@ export async function loadField(path: string, given: RawLayout, defaults?: { sha
  * read here), with the same checks and messages as {@link loadField}. The
  * caller closes the reader. File system errors are phrased with the path.
  */
-export async function openFieldBands(path: string, given: RawLayout): Promise<BandReader> {
-  const layout = checkLayout(path, given);
+export async function openFieldBands(path: string, given: RawLayout, kind?: InputKind): Promise<BandReader> {
+  const layout = checkLayout(path, given, undefined, kind);
   try {
     if (layout === null) return openNpyBands(path);
     try {
       return openRawBands(path, layout.shape, layout.dtype, layout.endian);
     } catch (e) {
       if (e instanceof InputError) {
-        const head = await readHead(path);
+        const head = await readHead(path, NPY_MAGIC.length);
         if (NPY_MAGIC.every((b, i) => head[i] === b)) {
           throw new InputError(e.code, `${e.message} (the file starts like a .npy file; give it a .npy name to read its header)`);
         }
@@ -119,10 +144,10 @@ export async function openFieldBands(path: string, given: RawLayout): Promise<Ba
 }
 
 /** The first bytes of a file (for telling what it looks like). */
-async function readHead(path: string): Promise<Uint8Array> {
+async function readHead(path: string, bytes: number): Promise<Uint8Array> {
   const { handle: h } = await openRegular(path);
   try {
-    const out = new Uint8Array(NPY_MAGIC.length);
+    const out = new Uint8Array(bytes);
     const { bytesRead } = await h.read(out, 0, out.length, 0);
     return out.subarray(0, bytesRead);
   } finally {

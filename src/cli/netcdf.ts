@@ -5,10 +5,14 @@
  */
 import { chooseLayout, FormatCode, FormatError, InputCode, InputError, type Attrs, type Bound, type FieldHeader } from '../index.js';
 import { readNetcdfHeader, readNetcdfVariable, physicalAttributes, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues, type NcVariable } from '../io/netcdf-read.js';
-import { NC_TYPE_SIZE, setOwn } from '../io/netcdf-types.js';
+import { NC_TYPE_SIZE, setOwn, unmark } from '../io/netcdf-types.js';
+import { formatBound } from '../codec/bound.js';
+import { VERSION_STRING } from '../version.js';
+import { toStoredType } from './netcdf-stored.js';
 import type { NcWriteFile, NcWriteValues, NcWriteVariable } from '../io/netcdf-write.js';
 import { layoutGrid, MAX_ATTR_STRING, printable } from '../format/schema.js';
 import { UsageError } from './errors.js';
+import { RangeWatch, suspectMessage } from './fill-guard.js';
 
 /** Attribute keys of the archive's own, beside the variable's attributes (prefix "rankfield:"). */
 export const KEY = {
@@ -28,6 +32,14 @@ export const KEY = {
   dims: 'rankfield:nc_dims',
   /** Archive attr: every variable name of the source, in file order (fields and carried ones). */
   order: 'rankfield:nc_order',
+  /** Field attr: JSON of the variable's own attributes, [[name, type, value], ...] in file order, to write it back as stored (see netcdf-stored.ts). */
+  storedAttrs: 'rankfield:nc_attrs',
+  /**
+   * Field attr: the physical value of each missing value declared beside the
+   * fill (a missing_value other than _FillValue), in order; its cells hold the
+   * k-th missing-value mark (a quiet NaN, see src/io/netcdf-types.ts) in the archive.
+   */
+  marks: 'rankfield:nc_missing',
   /** Archive attr: one JSON string per variable carried losslessly (not packed as a field); see {@link carriedJson}. */
   carried: 'rankfield:nc_carried',
 } as const;
@@ -138,8 +150,37 @@ function jsonValues(values: ReturnType<typeof storedValues>): (number | string)[
  * character per byte.
  */
 function carriedJson(bytes: Uint8Array, file: NcFile, v: NcVariable): string {
-  const attrs = Object.entries(v.attrs).map(([k, a]) => [k, v.attrTypes[k], typeof a === 'string' ? a : Array.isArray(a) ? a.map((x) => jsonNumber(x)) : jsonNumber(a)]);
-  return JSON.stringify({ name: v.name, dims: v.dims, type: v.type, attrs, values: jsonValues(storedValues(bytes, file, v)) });
+  return JSON.stringify({ name: v.name, dims: v.dims, type: v.type, attrs: attrsJson(v), values: jsonValues(storedValues(bytes, file, v)) });
+}
+
+/** A JSON number back (see {@link jsonNumber}); `bad` is called for anything else. */
+function numberFromJson(x: unknown, bad: (why: string) => never): number {
+  if (typeof x === 'number') return x;
+  if (x === '-0') return -0;
+  if (x === 'Infinity') return Infinity;
+  if (x === '-Infinity') return -Infinity;
+  if (x === 'NaN' || (typeof x === 'string' && /^NaN:0x[0-9a-f]{1,16}$/.test(x))) return NaN;
+  return bad(`${JSON.stringify(x)} is not a number`);
+}
+
+/** A variable's attributes as JSON: [[name, type, value], ...] in file order. */
+export function attrsJson(v: NcVariable): (string | number | (string | number)[])[][] {
+  return Object.entries(v.attrs).map(([k, a]) => [k, v.attrTypes[k], typeof a === 'string' ? a : Array.isArray(a) ? a.map((x) => jsonNumber(x)) : jsonNumber(a)]);
+}
+
+/** Attributes back from {@link attrsJson} (checked, since archives come from anywhere). */
+export function attrsFromJson(list: unknown, bad: (why: string) => never): { attrs: NcAttrs; attrTypes: Record<string, NcType> } {
+  const attrs: NcAttrs = {};
+  const attrTypes: Record<string, NcType> = {};
+  if (!Array.isArray(list)) return bad('attrs must be a list');
+  for (const a of list as unknown[]) {
+    if (!Array.isArray(a) || a.length !== 3 || typeof a[0] !== 'string' || typeof a[1] !== 'string' || !(a[1] in NC_TYPE_SIZE)) return bad('an attribute is not [name, type, value]');
+    const num = (x: unknown) => numberFromJson(x, bad);
+    const value: NcAttrValue = typeof a[2] === 'string' && a[1] === 'char' ? a[2] : Array.isArray(a[2]) ? a[2].map(num) : num(a[2]);
+    setOwn(attrs, a[0], value);
+    setOwn(attrTypes, a[0], a[1] as NcType);
+  }
+  return { attrs, attrTypes };
 }
 
 /** A carried variable back from its JSON (archive attributes: checked, since archives come from anywhere). */
@@ -160,23 +201,8 @@ function fromCarried(text: unknown, i: number): NcWriteVariable {
   if (!Array.isArray(r.dims) || !r.dims.every((d) => typeof d === 'string')) return bad(`${where}: dims must be a list of names`);
   if (typeof r.type !== 'string' || !(r.type in NC_TYPE_SIZE)) return bad(`${where}: unknown type`);
   const type = r.type as NcType;
-  const num = (x: unknown): number => {
-    if (typeof x === 'number') return x;
-    if (x === '-0') return -0;
-    if (x === 'Infinity') return Infinity;
-    if (x === '-Infinity') return -Infinity;
-    if (x === 'NaN' || (typeof x === 'string' && /^NaN:0x[0-9a-f]{1,16}$/.test(x))) return NaN;
-    return bad(`${where}: ${JSON.stringify(x)} is not a number`);
-  };
-  const attrs: NcAttrs = {};
-  const attrTypes: Record<string, NcType> = {};
-  if (!Array.isArray(r.attrs)) return bad(`${where}: attrs must be a list`);
-  for (const a of r.attrs as unknown[]) {
-    if (!Array.isArray(a) || a.length !== 3 || typeof a[0] !== 'string' || typeof a[1] !== 'string' || !(a[1] in NC_TYPE_SIZE)) return bad(`${where}: an attribute is not [name, type, value]`);
-    const value: NcAttrValue = typeof a[2] === 'string' && a[1] === 'char' ? a[2] : Array.isArray(a[2]) ? a[2].map(num) : num(a[2]);
-    setOwn(attrs, a[0], value);
-    setOwn(attrTypes, a[0], a[1] as NcType);
-  }
+  const num = (x: unknown): number => numberFromJson(x, (why) => bad(`${where}: ${why}`));
+  const { attrs, attrTypes } = attrsFromJson(r.attrs, (why) => bad(`${where}: ${why}`));
   let values: NcWriteValues;
   if (type === 'char') {
     if (typeof r.values !== 'string') return bad(`${where}: char values must be a string`);
@@ -212,7 +238,15 @@ function fromCarried(text: unknown, i: number): NcWriteVariable {
  * (from --matrix) lays out every variable whose leading dimensions are
  * those names as 'matrix:A'; the others get the default layout.
  */
-export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | undefined, matrix: string[] | undefined, bound: Bound, choose: 'auto' | 'slices' = 'auto'): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
+export function netcdfFields(
+  bytes: Uint8Array,
+  path: string,
+  vars: string[] | undefined,
+  matrix: string[] | undefined,
+  bound: Bound,
+  choose: 'auto' | 'slices' = 'auto',
+  fill?: number | false,
+): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
   const file = readNetcdfHeader(bytes, path);
   let names: string[];
   if (vars && vars.length > 0) {
@@ -229,7 +263,7 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
   const fields = names.map((name) => {
     let read: NcValues;
     try {
-      read = readNetcdfVariable(bytes, file, name);
+      read = readNetcdfVariable(bytes, file, name, undefined, { mark: true });
     } catch (e) {
       if (e instanceof InputError) {
         const hint = e.code === InputCode.Missing ? '' : ' (variables that are not fields are carried losslessly with the fields packed: leave them out of --var)';
@@ -238,8 +272,21 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
       throw e;
     }
     const v = file.variables.find((x) => x.name === name)!;
+    let given = false;
+    if (typeof fill === 'number' && (read.fill === null || read.fillSource === 'default')) {
+      if (read.fillCount > 0) throw new UsageError(`${path}: variable '${printable(name)}' has ${read.fillCount} cells of netCDF's default fill value ${read.fill}, which mark missing cells already; --fill cannot add a second`);
+      useFill(read, fill);
+      given = true;
+    }
+    if (fill !== false) {
+      const watch = new RangeWatch(read.fill);
+      watch.add(read.values);
+      const s = watch.suspect();
+      if (s) throw new UsageError(suspectMessage(s, `variable '${printable(name)}' of '${path}'`, read.dtype === 'f32'));
+    }
     const k = read.shape.length;
-    const lead = matrix && matrix.length < k && matrix.every((d, i) => read.dims[i] === d) ? matrix.length : 0;
+    // Dimension names match without regard to case (TIME, Time and time alike).
+    const lead = matrix && matrix.length < k && matrix.every((d, i) => read.dims[i].toLowerCase() === d.toLowerCase()) ? matrix.length : 0;
     // --matrix overrides; without it (and without --layout slices) a variable of 3+ axes takes the layout whose sample packs smallest.
     const layout = lead > 0 ? `matrix:${lead}` : k > 2 ? (matrix || choose === 'slices' ? 'slices' : chooseLayout(read.values, read.shape, bound, read.fill)) : undefined;
     const g = layout ? (layoutGrid(read.shape, layout) as { slices: number; rows: number; cols: number }) : { slices: 1, rows: read.shape[0], cols: read.shape[1] };
@@ -247,6 +294,14 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
     const attrs: Attrs = { ...(phys.attrs as Attrs) };
     attrs[KEY.attrTypes] = typesText(phys.attrTypes);
     attrs[KEY.storedType] = read.storedType;
+    const own = attrsJson(v);
+    // --fill declares the variable's _FillValue, in its stored type (packed: the stored value the fill unpacks from).
+    if (given && read.fill !== null) {
+      const s = read.packing ? (read.fill - read.packing.offset) / read.packing.scale : read.fill;
+      own.push(['_FillValue', v.type, v.type === 'float' || v.type === 'double' ? s : Math.round(s)]);
+    }
+    attrs[KEY.storedAttrs] = JSON.stringify(own);
+    if (read.marks.length > 0) attrs[KEY.marks] = read.marks;
     if (read.unpacked && read.packing) {
       attrs[KEY.unpacked] = true;
       attrs[KEY.packing] = [read.packing.scale, read.packing.offset];
@@ -254,7 +309,8 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
     return { name, read, rows: g.rows, cols: g.cols, slices: g.slices, layout, attrs };
   });
   if (matrix && !fields.some((f) => f.layout?.startsWith('matrix:'))) {
-    throw new UsageError(`--matrix ${matrix.join(',')}:...: no variable packed has leading dimensions (${matrix.join(', ')}) followed by more`);
+    const have = fields.map((f) => `${printable(f.name)}(${f.read.dims.map(printable).join(', ')})`).join(', ');
+    throw new UsageError(`--matrix ${matrix.join(',')}:...: no variable packed has leading dimensions (${matrix.join(', ')}) followed by more; the variables are ${have}`);
   }
   const archiveAttrs: Attrs = { ...(file.globalAttrs as Attrs) };
   archiveAttrs[KEY.attrTypes] = typesText(file.globalAttrTypes);
@@ -285,6 +341,16 @@ export function netcdfFields(bytes: Uint8Array, path: string, vars: string[] | u
   archiveAttrs[KEY.order] = file.variables.filter((v) => packed.has(v.name) || carried.includes(v)).map((v) => v.name);
   if (texts.length > 0) archiveAttrs[KEY.carried] = texts;
   return { file, fields, archiveAttrs, carried: carried.map((v) => v.name) };
+}
+
+/** `--fill V` for a variable without _FillValue / missing_value: its cells holding V become missing. */
+function useFill(read: NcValues, fill: number): void {
+  const f = read.values instanceof Float32Array ? Math.fround(fill) : fill;
+  let n = 0;
+  for (let i = 0; i < read.values.length; i++) if (read.values[i] === f) n++;
+  read.fill = f;
+  read.fillSource = '_FillValue';
+  read.fillCount = n;
 }
 
 /** Names of the variables an archive carries losslessly (not packed as fields), from its attributes; for reports, so never throws. */
@@ -330,8 +396,47 @@ function fieldDims(h: FieldHeader, shape: number[]): string[] {
   return shape.map((_, i) => `${h.name}_dim${i}`);
 }
 
-/** A NetCDF classic file of whole fields (shape = nd_shape), with dims and attributes restored. */
-export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; shape: number[]; values: Float32Array | Float64Array }[]): NcWriteFile {
+/** The values of a variable the archive carries (a coordinate variable, say), or null when it carries none of that name. */
+export function carriedValues(archiveAttrs: Attrs, name: string): NcWriteValues | null {
+  const list = archiveAttrs[KEY.carried];
+  if (!Array.isArray(list)) return null;
+  for (const [i, t] of list.entries()) {
+    const v = fromCarried(t, i);
+    if (v.name === name) return v.values;
+  }
+  return null;
+}
+
+/** The part of C-order `values` of `shape` within `ranges` (per axis; undefined: whole), as the same kind of array. */
+function cutValues(values: NcWriteValues, shape: number[], ranges: ([number, number] | undefined)[]): NcWriteValues {
+  const r = shape.map((n, i) => ranges[i] ?? ([0, n] as [number, number]));
+  const n = r.reduce((x, [a, b]) => x * (b - a), 1);
+  const stride = shape.map((_, i) => shape.slice(i + 1).reduce((x, y) => x * y, 1));
+  const idx = r.map(([a]) => a);
+  const pick: number[] = [];
+  for (let e = 0; e < n; e++) {
+    pick.push(idx.reduce((f, x, i) => f + x * stride[i], 0));
+    for (let i = shape.length - 1; i >= 0 && ++idx[i] === r[i][1]; i--) idx[i] = r[i][0];
+  }
+  if (Array.isArray(values)) return pick.map((j) => values[j]) as NcWriteValues;
+  const T = values.constructor as new (n: number) => typeof values;
+  const out = new T(n);
+  // Bits, not numbers, for floats: NaN payloads are kept.
+  if (values instanceof Float32Array || values instanceof Float64Array) {
+    const s = values instanceof Float32Array ? new Uint32Array(values.buffer, values.byteOffset, values.length) : new BigUint64Array(values.buffer, values.byteOffset, values.length);
+    const d = values instanceof Float32Array ? new Uint32Array((out as Float32Array).buffer) : new BigUint64Array((out as Float64Array).buffer);
+    pick.forEach((j, i) => void (d[i] = s[j]));
+  } else pick.forEach((j, i) => void ((out as Int32Array)[i] = (values as Int32Array)[j]));
+  return out;
+}
+
+/**
+ * A NetCDF classic file of fields (shape = nd_shape, or a window of it),
+ * with dims and attributes restored. `cut` maps the dimensions of a window
+ * to their index ranges: those dimensions take the window's sizes, and the
+ * carried variables along them (coordinate variables) are cut to match.
+ */
+export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; shape: number[]; values: Float32Array | Float64Array }[], cut?: Map<string, [number, number]>): NcWriteFile {
   const dims = new Map<string, number>();
   let unlimited = typeof archiveAttrs[KEY.unlimited] === 'string' ? (archiveAttrs[KEY.unlimited] as string) : null;
   // The source's dimensions, in its order (archives of NetCDF input carry them; older ones do not).
@@ -342,8 +447,15 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
   }
   const carriedList = archiveAttrs[KEY.carried];
   const carried = Array.isArray(carriedList) ? carriedList.map((t, i) => fromCarried(t, i)) : [];
+  if (cut && cut.size > 0) {
+    for (const v of carried) {
+      const shape = v.dims.map((d) => dims.get(d) ?? 0);
+      if (v.dims.some((d) => cut.has(d))) v.values = cutValues(v.values, shape, v.dims.map((d) => cut.get(d)));
+    }
+    for (const [d, [a, b]] of cut) dims.set(d, b - a);
+  }
   const packedVars: NcWriteVariable[] = fields.map(({ h, shape, values }) => {
-    const names = fieldDims(h, shape);
+    const names = fieldDims(h, h.nd_shape && h.nd_shape.length === shape.length ? h.nd_shape : shape);
     names.forEach((d, i) => {
       const had = dims.get(d);
       if (had !== undefined && had !== shape[i]) {
@@ -351,6 +463,8 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
       }
       dims.set(d, shape[i]);
     });
+    const stored = storedVariable(h, values);
+    if (stored) return { name: h.name, dims: names, ...stored };
     const { attrs, types } = ncAttrs(h.attrs);
     const type: NcType = h.dtype === 'f32' ? 'float' : 'double';
     delete attrs._FillValue;
@@ -376,12 +490,47 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
   // The record dimension stays unlimited only where every variable using it has it first (the format's rule).
   const recordOk = unlimited !== null && dims.has(unlimited) && variables.every((v) => v.dims.indexOf(unlimited) <= 0);
   const g = ncAttrs(archiveAttrs);
+  // NetCDF Users Guide, appendix "Attribute Conventions", history: each program that modifies a
+  // file appends a line with date, time and program; CF conventions 1.x section 2.6.2 keeps it (from memory).
+  const note = `${new Date().toISOString().replace(/\.\d+Z$/, 'Z')} rankfield ${VERSION_STRING} unpack: values decoded from a lossy archive (${fields.map(({ h }) => `${h.name} ${formatBound(h.bound)}`).join(', ')}), within those bounds of the originals, not the originals`;
+  const history = g.attrs.history;
+  setOwn<NcAttrValue>(g.attrs, 'history', typeof history === 'string' && history.length > 0 ? `${history.replace(/\n+$/, '')}\n${note}` : note);
+  delete g.types.history;
   return {
     dims: [...dims].map(([name, size]) => ({ name, size, unlimited: recordOk && name === unlimited })),
     globalAttrs: g.attrs,
     globalAttrTypes: g.types,
     variables,
   };
+}
+
+/**
+ * A field as the variable it was read from (stored type and own
+ * attributes), for archives that record them; null for others. Archive
+ * attributes are checked: a malformed record is a FormatError.
+ */
+function storedVariable(h: FieldHeader, values: Float32Array | Float64Array): { type: NcType; attrs: NcAttrs; attrTypes: Record<string, NcType>; values: NcWriteValues } | null {
+  const text = h.attrs[KEY.storedAttrs];
+  const type = h.attrs[KEY.storedType];
+  if (text === undefined) return null;
+  const bad = (why: string): never => {
+    throw new FormatError(FormatCode.Malformed, `field '${printable(h.name)}' attribute ${KEY.storedAttrs}: ${why}`);
+  };
+  if (typeof text !== 'string' || typeof type !== 'string' || !(type in NC_TYPE_SIZE) || type === 'char') return bad(`needs a JSON list and ${KEY.storedType}, a numeric NetCDF type`);
+  let list: unknown;
+  try {
+    list = JSON.parse(text);
+  } catch {
+    return bad('not valid JSON');
+  }
+  const { attrs, attrTypes } = attrsFromJson(list, bad);
+  return { type: type as NcType, attrs, attrTypes, values: toStoredType(values, h.fill, type as NcType, attrs) };
+}
+
+/** Missing values of a field decoded for .npy, raw or CSV output: the cells of each missing-value mark get the value they held (see {@link KEY}.marks). In place. */
+export function restoreMissing(h: FieldHeader, values: Float32Array | Float64Array): void {
+  const marks = h.attrs[KEY.marks];
+  if (Array.isArray(marks) && marks.length > 0 && marks.every((x) => typeof x === 'number')) unmark(values, marks as number[]);
 }
 
 /** The source's dimension list from its JSON archive attribute, checked; [] when absent. */

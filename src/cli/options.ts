@@ -81,6 +81,11 @@ export function shapeOption(text: string): [number, number] {
   return [dims[0], dims[1]];
 }
 
+/** `--shape RxC`, `AxBxC`, ...: two or more positive integers (an N-D raw field in C order). */
+export function ndShapeOption(text: string): number[] {
+  return wrap(() => parseShape(text));
+}
+
 /** `--dtype f32|f64` (also float32, float64). */
 export function dtypeOption(text: string): Dtype {
   return wrap(() => parseDtype(text));

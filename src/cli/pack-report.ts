@@ -13,15 +13,19 @@ import { fileShares, sharesText, tileUseText } from './summary.js';
 export interface PackChoices {
   /** The tile shape was tried on a sample ('auto') or given with --tile. */
   tile: 'auto' | 'given';
-  /** The layout of N-D variables was tried on a sample ('auto') or given (--layout, --matrix); null for 2-D input. */
-  layout: 'auto' | 'given' | null;
+  /**
+   * The layout of N-D variables was tried on a sample ('auto', NetCDF), given
+   * (--layout, --matrix), or the default of N-D .npy and raw input, slices
+   * ('default'); null for 2-D input.
+   */
+  layout: 'auto' | 'given' | 'default' | null;
   /** Threads encoding tiles, and whether that number was chosen by pack. */
   threads: number;
   threadsAuto: boolean;
 }
 
 /** The choices of a pack run from its flags; `threads` is the resolved count of the largest field. */
-export function packChoices(tile: unknown, layout: 'auto' | 'given' | null, given: number | undefined, resolved: number | undefined): PackChoices {
+export function packChoices(tile: unknown, layout: PackChoices['layout'], given: number | undefined, resolved: number | undefined): PackChoices {
   return {
     tile: tile === undefined || tile === 'auto' ? 'auto' : 'given',
     layout,
@@ -49,7 +53,8 @@ export function packDetails(facts: ArchiveFacts, c: PackChoices, many: boolean):
   lines.push(`  tile ${tiles}${auto(c.tile === 'auto', 'the shape that packed smallest on a sample; --tile fixes it')}`);
   if (c.layout !== null) {
     const layouts = [...new Set(facts.fields.map((f) => f.layout ?? 'plain'))].join(', ');
-    lines.push(`  layout ${layouts}${auto(c.layout === 'auto', 'the layout that packed smallest on a sample; --layout slices or --matrix fixes it')}`);
+    const how = c.layout === 'default' ? ' (the default for .npy and raw arrays of 3+ axes; --matrix lays them out as a matrix)' : auto(c.layout === 'auto', 'the layout that packed smallest on a sample; --layout slices or --matrix fixes it');
+    lines.push(`  layout ${layouts}${how}`);
   }
   lines.push(`  threads ${c.threads}${auto(c.threadsAuto, 'one for a field under 2^18 values, else the number of cores; --threads fixes it')}`);
   for (const f of facts.fields) lines.push(...fieldLines(f, many));

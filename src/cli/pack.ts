@@ -1,26 +1,30 @@
-/** `rankfield pack`: compress one 2-D field into an archive. */
+/** `rankfield pack`: compress a field (2-D or N-D), or the variables of a NetCDF file, into an archive. */
 import { basename, extname } from 'node:path';
 import type { Command } from 'commander';
 import { ArchiveBuilder, InputCode, InputError, type Bound, type Dtype, type FloatArray } from '../index.js';
 import { fileError, UsageError } from './errors.js';
-import { isNetcdfPath, netcdfFields, parseMatrix } from './netcdf.js';
+import { KEY, netcdfFields, parseMatrix } from './netcdf.js';
+import { netcdf4ToClassic } from '../io/hdf5-read.js';
+import { NC_TYPE_SIZE, type NcType } from '../io/netcdf-types.js';
 import { readInput } from './files.js';
 import { bytesText, errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
-import { checkLayout, openFieldBands } from './input.js';
+import { checkLayout, inputKind, openFieldBands } from './input.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
 import { Output, type OutputFlags } from './output.js';
 import { packChoices, packDetails, writtenFacts } from './pack-report.js';
-import { boundOption, dtypeOption, endianOption, fillOption, nameOption, shapeOption, threadsOption, tileOption } from './options.js';
+import { RangeWatch, suspectMessage } from './fill-guard.js';
+import { boundOption, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
 
 interface PackFlags extends OutputFlags {
   output: string;
   bound: Bound;
   tile?: [number, number] | 'auto';
-  fill?: number;
+  /** --fill V, or false for --no-fill. */
+  fill?: number | false;
   name?: string;
-  shape?: [number, number];
+  shape?: number[];
   dtype?: Dtype;
   endian?: 'little' | 'big';
   force?: boolean;
@@ -28,6 +32,7 @@ interface PackFlags extends OutputFlags {
   matrix?: string[];
   layout?: 'auto' | 'slices';
   threads?: number;
+  progressive?: boolean;
 }
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
@@ -50,9 +55,21 @@ Bounds (MODE:VALUE):
 Missing values (NaN, infinities, and the --fill value) are kept bit for bit
 and are not counted in the bound.
 
-Input: a .npy file holding a 2-D float32 or float64 array; a NetCDF classic or
-64-bit-offset file (.nc); any other name is read as headerless raw binary and
-needs --shape and --dtype (--endian defaults to little).
+Fill-value guard: a value that looks like an undeclared fill value would set
+the field's range, and with it what rel and psnr bounds allow. pack refuses
+(exit 2, naming the value and its count) when a value of magnitude 1e30 or
+more occurs, or when one value at an end of the range holds at least 0.1% of
+the cells and lies more than 10 times the spread of the other values beyond
+them. Give --fill V if it marks missing cells, --no-fill to pack it as data.
+
+Input, told apart by its first bytes (else by its name): a .npy file holding
+a float32 or float64 array of 2 or more axes (N-D in C order); a NetCDF
+classic or 64-bit-offset file, whatever its name (.nc, .cdf, ...); a NetCDF-4
+or HDF5 file (read through h5wasm; variables of groups named GROUP.NAME);
+anything else is read as headerless raw binary and needs --shape (RxC, or
+AxBxC... for N-D in C order) and --dtype (--endian defaults to little). An
+array of 3 or more axes is packed as 2-D slices over its last two axes, or
+as a matrix with --matrix (see below).
 
 NetCDF input: every numeric variable of 2 or more dimensions becomes one field
 (or those named by --var, repeatable), with its attributes and dimension
@@ -60,9 +77,13 @@ names; global attributes become the archive's. The other variables (1-D
 coordinates, char variables such as station names, scalars) are not
 compressed: they are carried losslessly, bit for bit, in the archive's
 attributes (up to 1 MiB of JSON each), and unpack -o OUT.nc writes them back. CF _FillValue / missing_value
-cells are kept bit for bit and excluded from the bound; variables packed with
-scale_factor / add_offset are stored as their unpacked physical values (the
-bound applies to those). A variable of 3 or more dimensions is stored either
+cells are kept bit for bit and excluded from the bound, each coming back as
+itself; variables packed with scale_factor / add_offset are stored as their
+unpacked physical values, and the bound applies to those. unpack -o OUT.nc
+writes each variable back in its stored type with its own attributes: a
+value stored as an integer is rounded to the nearest stored step, which adds
+at most half a step (scale_factor / 2) to the error; under a pointwise bound
+below half a step the stored integers come back exactly. A variable of 3 or more dimensions is stored either
 as a stack of 2-D slices over its last two axes, or as a matrix whose rows
 are its leading axes and whose columns are the rest (time x grid point: the
 snapshot matrix, where series of snapshots are most often of low rank); by
@@ -98,62 +119,81 @@ function countFill(values: FloatArray, fill: number): number {
 export function registerPack(program: Command, ctx: Context): void {
   program
     .command('pack')
-    .summary('compress a 2-D field into an archive (lossy: see pack --help)')
-    .description('Compress one 2-D field into an archive, keeping every value within a stated error bound.\n' + LOSSY_NOTE)
-    .argument('<IN>', 'input: .npy (2-D float32/float64), or raw binary with --shape and --dtype')
+    .summary('compress a field (2-D or N-D) or NetCDF variables into an archive (lossy: see pack --help)')
+    .description('Compress a field (2-D or N-D), or the variables of a NetCDF file, into an archive, keeping every value within a stated error bound.\n' + LOSSY_NOTE)
+    .argument('<IN>', 'input: .npy (float32/float64, 2 or more axes), NetCDF, or raw binary with --shape and --dtype')
     .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
     .requiredOption('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D', boundOption)
     .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (default: 64, 128, 256 and the whole field tried on a sample, the smallest kept)', tileOption)
-    .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound)', fillOption)
+    .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound); NetCDF input: for variables without _FillValue / missing_value', fillOption)
+    .option('--no-fill', 'pack extreme values as data: turn off the refusal of a value that looks like an undeclared fill value (see below)')
     .option('--name <NAME>', 'field name stored in the archive (default: IN without its extension)', nameOption)
-    .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
+    .option('--shape <RxC>', 'raw input: rows x columns, or AxBxC... for an N-D array in C order', ndShapeOption)
     .option('--dtype <TYPE>', 'raw input: f32 or f64', dtypeOption)
     .option('--endian <ORDER>', 'raw input: byte order, little (default) or big', endianOption)
     .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
-    .option('--matrix <AXES:NAME>', 'NetCDF input: flatten the leading axes AXES (comma-separated) into rows, the rest into columns, e.g. time:space', parseMatrix)
-    .option('--layout <LAYOUT>', 'NetCDF input, variables of 3+ dimensions: auto (default: the layout whose sample packs smallest) or slices', layoutOption)
+    .option('--matrix <AXES:NAME>', 'variables or arrays of 3+ axes: flatten the leading axes AXES (comma-separated; axis0, axis1, ... for .npy and raw) into rows, the rest into columns, e.g. time:space', parseMatrix)
+    .option('--layout <LAYOUT>', 'variables of 3+ dimensions: auto (default: NetCDF, the layout whose sample packs smallest; .npy and raw, slices) or slices', layoutOption)
     .option('--threads <N>', 'threads encoding tiles (default: the number of cores; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
+    .option('--progressive', 'lay each tile\'s factors out in rank groups with their recorded errors, so that `unpack --bound` with a looser bound reads only a prefix of each tile (costs some bytes)')
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
       const start = performance.now();
       const out = new Output(ctx, flags);
-      if (isNetcdfPath(input)) return packNetcdf(input, flags, out, start);
-      const nc = (['var', 'matrix', 'layout'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
-      if (nc.length > 0) throw new UsageError(`${nc.join(' and ')} apply to NetCDF input (.nc); '${input}' is not one`);
-      const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       await statInput(input);
-      checkLayout(input, layout);
+      const kind = await inputKind(input);
+      if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, flags, out, start, kind === 'hdf5');
+      if (flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${input}' is not NetCDF (by its first bytes or its name)`);
+      const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
+      checkLayout(input, layout, undefined, kind);
       const io = { force: flags.force === true, inputs: [input] };
       await checkOutput(flags.output, io);
       // The input is read a band of tile rows at a time and payloads are written as they are
       // finished, so memory holds about one band of tiles plus the index, whatever the size.
-      const field = await openFieldBands(input, layout);
+      const field = await openFieldBands(input, layout, kind);
+      let grid: ArrayGrid;
+      try {
+        grid = arrayGrid(field.ndShape, flags.matrix, flags.layout, input);
+      } catch (e) {
+        field.close();
+        throw e;
+      }
       let fills = 0;
       let threads: number | undefined;
+      const fill = flags.fill === false ? undefined : flags.fill;
+      const watch = flags.fill === false ? null : new RangeWatch(fill ?? null);
       try {
-        checkFill(flags.fill, field.dtype);
+        checkFill(fill, field.dtype);
         const name = flags.name ?? defaultName(input);
-        const [rows] = field.shape;
+        // Rows of the stacked matrix the library reads (slices x rows); each is `factor` rows of the file's C-order matrix.
+        const rows = grid.slices * grid.rows;
+        const factor = grid.cols / field.shape[1];
         let firstPass = true;
         const band = (r0: number, count: number): FloatArray => {
           let values: FloatArray;
           try {
-            values = field.band(r0, count);
+            values = field.band(r0 * factor, count * factor);
           } catch (e) {
             throw fileError(e, 'read', input);
           }
           // The first pass (the value range) reads every row once, in order: count fill values there.
-          if (firstPass && flags.fill !== undefined) fills += countFill(values, flags.fill);
-          if (r0 + count === rows) firstPass = false;
+          if (firstPass && fill !== undefined) fills += countFill(values, fill);
+          if (firstPass) watch?.add(values);
+          if (firstPass && r0 + count === rows) {
+            firstPass = false;
+            const s = watch?.suspect();
+            if (s) throw new UsageError(suspectMessage(s, `'${input}'`, field.dtype === 'f32'));
+          }
           return values;
         };
         threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1]);
         await writeOutputWith(flags.output, io, async (sink) => {
-          const builder = new ArchiveBuilder(sink);
+          const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
+          const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
           const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
           try {
-            await builder.addBandsAsync(band, field.shape, field.dtype, { bound: flags.bound, tile: flags.tile, fill: flags.fill ?? null, name, threads, onProgress: bar.onProgress });
+            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound: flags.bound, tile: flags.tile, fill: fill ?? null, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
           } finally {
             bar.stop();
           }
@@ -170,15 +210,17 @@ export function registerPack(program: Command, ctx: Context): void {
       const size = archive.size;
       await archive.close();
       const elapsed = performance.now() - start;
-      if (flags.fill !== undefined && fills === 0) {
-        out.note(`the fill value ${flags.fill} does not occur in '${input}'`);
+      if (fill !== undefined && fills === 0) {
+        out.note(`the fill value ${fill} does not occur in '${input}'`);
       }
-      const choices = packChoices(flags.tile, null, flags.threads, threads);
+      // The layout of an N-D array is given (--matrix, --layout slices) or the default, slices; no sample is tried.
+      const chosen = grid.layout === undefined ? null : flags.matrix !== undefined || flags.layout === 'slices' ? 'given' : 'default';
+      const choices = packChoices(flags.tile, chosen, flags.threads, threads);
       const raw = rawBytes(h);
       const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
       const other = e.what === 'max error' ? `RMSE ${num(ix.summary.rmse)}` : `max error ${num(ix.summary.max_err)}`;
       out.text(
-        `packed '${input}' (${h.shape.join('x')} ${h.dtype}, field '${h.name}') -> '${flags.output}': ` +
+        `packed '${input}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype}, field '${h.name}'${h.layout ? `, layout ${h.layout}` : ''}) -> '${flags.output}': ` +
           `${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; ` +
           `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n` +
           packDetails(facts, choices, false),
@@ -188,16 +230,18 @@ export function registerPack(program: Command, ctx: Context): void {
 }
 
 /** `pack IN.nc`: every chosen variable becomes one field of one archive. */
-async function packNetcdf(input: string, flags: PackFlags, out: Output, start: number): Promise<void> {
-  const misplaced = (['shape', 'dtype', 'endian', 'fill', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
+async function packNetcdf(input: string, flags: PackFlags, out: Output, start: number, hdf5: boolean): Promise<void> {
+  const misplaced = (['shape', 'dtype', 'endian', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
   if (misplaced.length > 0) {
-    throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}', fill values from its _FillValue / missing_value attributes`);
+    throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}'`);
   }
   await statInput(input);
   const io = { force: flags.force === true, inputs: [input] };
   await checkOutput(flags.output, io);
-  const bytes = await readInput(input);
-  const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto');
+  // NetCDF-4 / HDF5 is read through h5wasm into the classic model (src/io/hdf5-read.ts).
+  const bytes = hdf5 ? await netcdf4ToClassic(input) : await readInput(input);
+  const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto', flags.fill);
+  if (hdf5) archiveAttrs[KEY.format] = 'netcdf4';
   let threads: number | undefined;
   await writeOutputWith(flags.output, io, async (sink) => {
     const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
@@ -218,6 +262,7 @@ async function packNetcdf(input: string, flags: PackFlags, out: Output, start: n
         ndShape: f.read.shape,
         dims: f.read.dims,
         layout: f.layout,
+        progressive: flags.progressive === true,
       }).finally(() => bar.stop());
     }
     builder.finish();
@@ -229,7 +274,9 @@ async function packNetcdf(input: string, flags: PackFlags, out: Output, start: n
   const lines: string[] = [];
   for (const [i, h] of archive.header.fields.entries()) {
     const ix = archive.field(h.name);
-    const r = rawBytes(h);
+    // Bytes in: the values as the source stores them (a short variable counts 2 bytes a value, not the 8 of its physical float64s).
+    const stored = h.attrs[KEY.storedType];
+    const r = typeof stored === 'string' && stored in NC_TYPE_SIZE ? (rawBytes(h) / (h.dtype === 'f32' ? 4 : 8)) * NC_TYPE_SIZE[stored as NcType] : rawBytes(h);
     raw += r;
     const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
     const layout = h.layout ?? 'plain';
@@ -244,6 +291,36 @@ async function packNetcdf(input: string, flags: PackFlags, out: Output, start: n
   if (carried.length > 0) out.text(`  carried losslessly (not packed as fields): ${carried.map(printable).join(', ')}\n`);
   out.text(packDetails(facts, choices, fields.length > 1));
   out.result({ command: 'pack', input, output: flags.output, choices, seconds: elapsed / 1000, archive: facts });
+}
+
+/** How an N-D .npy or raw array is laid out as a field: slices x rows x cols, and the layout name (undefined for 2-D). */
+interface ArrayGrid {
+  slices: number;
+  rows: number;
+  cols: number;
+  layout: string | undefined;
+}
+
+/**
+ * The layout of an array of `nd` axes from .npy or raw input: 2-D as it is;
+ * more axes as slices over the last two (the default), or with --matrix as a
+ * matrix whose rows are the leading axes, named axis0, axis1, ... (case
+ * does not matter), since these files carry no dimension names.
+ */
+export function arrayGrid(nd: readonly number[], matrix: string[] | undefined, layout: 'auto' | 'slices' | undefined, input: string): ArrayGrid {
+  const k = nd.length;
+  const prod = (a: readonly number[]) => a.reduce((x, y) => x * y, 1);
+  if (k === 2) {
+    if (matrix || layout === 'slices') throw new UsageError(`--matrix and --layout apply to arrays of 3 or more axes; '${input}' holds a 2-D array`);
+    return { slices: 1, rows: nd[0], cols: nd[1], layout: undefined };
+  }
+  if (matrix) {
+    const names = nd.map((_, i) => `axis${i}`);
+    const ok = matrix.length < k && matrix.every((m, i) => m.toLowerCase() === names[i]);
+    if (!ok) throw new UsageError(`--matrix ${matrix.join(',')}:...: '${input}' has no dimension names; its axes are ${names.join(', ')} (name leading ones, e.g. --matrix axis0:space)`);
+    return { slices: 1, rows: prod(nd.slice(0, matrix.length)), cols: prod(nd.slice(matrix.length)), layout: `matrix:${matrix.length}` };
+  }
+  return { slices: prod(nd.slice(0, -2)), rows: nd[k - 2], cols: nd[k - 1], layout: 'slices' };
 }
 
 /** `--layout`: auto or slices. */

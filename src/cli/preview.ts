@@ -8,7 +8,7 @@ import { blockFor, EXACT_CODE, rankGrid, readGrids, slicePlane, snapshotPlane, s
 import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files.js';
 import { num, seconds } from './format.js';
-import { loadField } from './input.js';
+import { inputKind, loadField } from './input.js';
 import type { Context } from './main.js';
 import { dtypeOption, endianOption, nameOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
@@ -151,7 +151,9 @@ async function draw(archive: Archive, input: string, flags: Required<Pick<Previe
     let original: Float32Array | Float64Array | undefined;
     if (flags.map === 'error') {
       if (snapshotShape(h)) throw new UsageError(`field '${printable(h.name)}' is stored as a matrix (layout ${h.layout}): --map error compares 2-D originals only; draw its values or ranks, or use rankfield check --against`);
-      const orig = await loadField(flags.against!, { dtype: flags.dtype, endian: flags.endian }, { shape: [h.shape[0], h.shape[1]], dtype: h.dtype });
+      const kind = await inputKind(flags.against!);
+      if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`--map error compares a .npy or raw original; '${printable(flags.against!)}' is NetCDF (save the variable's slice as .npy, or use rankfield check --against)`);
+      const orig = await loadField(flags.against!, { dtype: flags.dtype, endian: flags.endian }, { shape: [h.shape[0], h.shape[1]], dtype: h.dtype }, kind);
       if (orig.shape[0] !== h.shape[0] || orig.shape[1] !== h.shape[1]) throw new UsageError(`original '${flags.against}' is ${orig.shape.join('x')}, but field '${printable(h.name)}' of '${input}' is ${h.shape.join('x')}${hasSlices(h) ? ' per slice' : ''}`);
       original = orig.data;
     }

@@ -13,10 +13,9 @@ import { readGrids, slicePlane } from '../picture/sample.js';
 import { fileError, UsageError } from './errors.js';
 import { checkOutput, statInput, writeOutput } from './files.js';
 import { num, ratio, seconds, table } from './format.js';
-import { checkLayout, openFieldBands } from './input.js';
+import { checkLayout, inputKind, openFieldBands } from './input.js';
 import type { Context } from './main.js';
-import { isNetcdfPath } from './netcdf.js';
-import { dtypeOption, endianOption, fillOption, nonFinite, shapeOption, tileOption } from './options.js';
+import { dtypeOption, endianOption, fillOption, ndShapeOption, nonFinite, tileOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 import { byteShares, tileUse, type ByteShares, type TileUse } from './summary.js';
 
@@ -25,7 +24,7 @@ interface TrialFlags extends OutputFlags {
   sample?: number;
   tile?: [number, number] | 'auto';
   fill?: number;
-  shape?: [number, number];
+  shape?: number[];
   dtype?: Dtype;
   endian?: 'little' | 'big';
   pictures?: string;
@@ -57,7 +56,8 @@ export interface TrialRow {
 
 const HELP = `
 The sample is the central block of up to --sample x --sample cells of the
-field. IN is read once whole, a band of rows at a time, for the value range
+field; of an array of 3 or more axes, of its middle slice over the last two
+axes (the slices pack stores by default). IN is read once whole, a band of rows at a time, for the value range
 that rel and psnr bounds are resolved against (as pack does), so the
 tolerance E on the sample is the one the whole field would get. The sample is packed at each bound in
 memory, read back and compared with itself: ratio (raw value bytes / archive
@@ -108,12 +108,22 @@ const RANGE_BAND = 256;
  * range of the whole field (one pass over it, a band of rows at a time), which
  * rel and psnr bounds are resolved against, as pack does.
  */
-async function readSample(input: string, flags: TrialFlags & { sample: number }): Promise<{ values: FloatArray; shape: [number, number]; field: [number, number]; rows: [number, number]; cols: [number, number]; dtype: Dtype; range: [number, number] | null }> {
+async function readSample(
+  input: string,
+  flags: TrialFlags & { sample: number },
+  kind: 'npy' | 'raw',
+): Promise<{ values: FloatArray; shape: [number, number]; field: number[]; slice: number | null; rows: [number, number]; cols: [number, number]; dtype: Dtype; range: [number, number] | null }> {
   const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
-  checkLayout(input, layout);
-  const field = await openFieldBands(input, layout);
+  checkLayout(input, layout, undefined, kind);
+  const field = await openFieldBands(input, layout, kind);
   try {
-    const [R, C] = field.shape;
+    // An N-D array is read as the matrix of all axes but the last by the last: slice k is rows k*R .. (k+1)*R - 1.
+    const nd = field.ndShape;
+    const R = nd[nd.length - 2];
+    const C = nd[nd.length - 1];
+    const all = field.shape[0];
+    const slice = nd.length > 2 ? Math.floor(all / R / 2) : null;
+    const first = (slice ?? 0) * R;
     const m = Math.min(R, flags.sample);
     const n = Math.min(C, flags.sample);
     const r0 = Math.floor((R - m) / 2);
@@ -123,8 +133,8 @@ async function readSample(input: string, flags: TrialFlags & { sample: number })
     let lo = Infinity;
     let hi = -Infinity;
     try {
-      for (let b0 = 0; b0 < R; b0 += RANGE_BAND) {
-        const part = field.band(b0, Math.min(RANGE_BAND, R - b0));
+      for (let b0 = 0; b0 < all; b0 += RANGE_BAND) {
+        const part = field.band(b0, Math.min(RANGE_BAND, all - b0));
         for (let k = 0; k < part.length; k++) {
           const v = part[k];
           if (!Number.isFinite(v) || v === fill) continue;
@@ -132,13 +142,13 @@ async function readSample(input: string, flags: TrialFlags & { sample: number })
           if (v > hi) hi = v;
         }
       }
-      band = field.band(r0, m);
+      band = field.band(first + r0, m);
     } catch (e) {
       throw fileError(e, 'read', input);
     }
     const values = field.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
     for (let i = 0; i < m; i++) values.set(band.subarray(i * C + c0, i * C + c0 + n), i * n);
-    return { values, shape: [m, n], field: [R, C], rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: field.dtype, range: lo <= hi ? [lo, hi] : null };
+    return { values, shape: [m, n], field: nd, slice, rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: field.dtype, range: lo <= hi ? [lo, hi] : null };
   } finally {
     field.close();
   }
@@ -231,7 +241,7 @@ export function registerTrial(program: Command, ctx: Context): void {
     .option('--sample <N>', `side of the central sample in cells (default ${DEFAULT_SAMPLE})`, sampleOption)
     .option('--tile <RxC>', 'tile size as for pack (default: chosen on the sample per bound)', tileOption)
     .option('--fill <V>', 'fill value marking missing cells, as for pack', fillOption)
-    .option('--shape <RxC>', 'raw input: rows x columns', shapeOption)
+    .option('--shape <RxC>', 'raw input: rows x columns, or AxBxC... for an N-D array in C order', ndShapeOption)
     .option('--dtype <TYPE>', 'raw input: f32 or f64', dtypeOption)
     .option('--endian <ORDER>', 'raw input: byte order, little (default) or big', endianOption)
     .option('--pictures <DIR>', 'write an error picture per bound into DIR (an existing folder)')
@@ -241,17 +251,18 @@ export function registerTrial(program: Command, ctx: Context): void {
       const start = performance.now();
       const flags = { ...given, bounds: given.bounds ?? boundsOption(TRIAL_BOUNDS), sample: given.sample ?? DEFAULT_SAMPLE };
       const out = new Output(ctx, flags);
-      if (isNetcdfPath(input)) throw new UsageError(`trial reads .npy or raw input, not NetCDF yet: save one 2-D variable of '${printable(input)}' as .npy first`);
       await statInput(input);
+      const kind = await inputKind(input);
+      if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`trial reads .npy or raw input, not NetCDF yet: save one variable of '${printable(input)}' as .npy first`);
       const io = { force: flags.force === true, inputs: [input] };
       const pictures = flags.pictures ?? null;
       if (pictures !== null) {
         for (const b of flags.bounds) await checkOutput(join(pictures, `trial-${formatBound(b).replace(':', '-')}.png`), io);
       }
-      const s = await readSample(input, flags);
+      const s = await readSample(input, flags, kind);
       const rows: TrialRow[] = [];
       for (const b of flags.bounds) rows.push(await tryBound(s.values, s.shape, s.range, b, flags, out, pictures, io));
-      const where = `rows ${s.rows[0]}..${s.rows[1] - 1}, columns ${s.cols[0]}..${s.cols[1] - 1}`;
+      const where = `${s.slice === null ? '' : `slice ${s.slice}, `}rows ${s.rows[0]}..${s.rows[1] - 1}, columns ${s.cols[0]}..${s.cols[1] - 1}`;
       const range = s.range ? `valid range [${num(s.range[0])}, ${num(s.range[1])}]` : 'no valid values';
       out.text(`trial of '${input}' (${s.field.join('x')} ${s.dtype}, ${range}): sample ${s.shape.join(' x ')} (${where}), ${s.values.byteLength} bytes of raw values\n\n`);
       const body = rows.map((r) => [
@@ -276,7 +287,7 @@ export function registerTrial(program: Command, ctx: Context): void {
         shape: s.field,
         dtype: s.dtype,
         range: s.range,
-        sample: { rows: s.rows, cols: s.cols, shape: s.shape, rawBytes: s.values.byteLength },
+        sample: { slice: s.slice, rows: s.rows, cols: s.cols, shape: s.shape, rawBytes: s.values.byteLength },
         bounds: rows,
         seconds: (performance.now() - start) / 1000,
       });

@@ -1,21 +1,26 @@
-/** `rankfield unpack`: decode one field of an archive, or a window of it, to .npy or raw binary. */
+/** `rankfield unpack`: decode the fields of an archive, or a window of one, to .npy, raw, CSV or NetCDF. */
 import { InvalidArgumentError, type Command } from 'commander';
 import { formatNpy, npyHeader } from '../io/npy.js';
 import { valueBytes } from '../io/bands.js';
 import { readBands, readShape, type BandsRead } from '../parallel/read.js';
 import { UsageError } from './errors.js';
-import { checkOutput, isUrl, openArchive, statInput, writeOutput, writeOutputWith } from './files.js';
-import { seconds } from './format.js';
+import { checkOutput, isUrl, openArchive, statInput, trackTempDir, writeOutput, writeOutputWith } from './files.js';
+import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
-import { isNetcdfPath, netcdfFromFields } from './netcdf.js';
-import { writeNetcdf } from '../io/netcdf-write.js';
+import { carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
+import { dimNames, ndShapeOf, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
+import type { Archive, FloatArray } from '../index.js';
+import { writeNetcdf, type NcWriteFile } from '../io/netcdf-write.js';
+import { writeNetcdf4 } from '../io/hdf5-write.js';
+import { mkdtemp, readFile, rm } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
 import { printable } from '../format/schema.js';
 import { stat } from 'node:fs/promises';
 import { join } from 'node:path';
 import type { Context } from './main.js';
 import { boundOption, endianOption, nameOption, threadsOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
-import { formatBound } from '../codec/bound.js';
+import { formatBound, isPointwise, resolveBound } from '../codec/bound.js';
 import type { Bound } from '../types.js';
 import type { FieldHeader } from '../format/schema.js';
 
@@ -27,6 +32,8 @@ export interface Region {
 
 interface UnpackFlags extends OutputFlags {
   output: string;
+  netcdf4?: boolean;
+  where?: WhereTerm[];
   field?: string;
   var?: string;
   slices?: [number | undefined, number | undefined];
@@ -47,7 +54,13 @@ edge, so ':100,50:' is the first 100 rows from column 50 on. Only the tiles
 the window touches are read and decoded.
 
 OUT ending in .nc gets a NetCDF classic file of every field (or --var NAME),
-with dimensions and attributes restored; OUT ending in / (an existing folder)
+with dimensions and attributes restored; with --region, --slices or --where,
+a window of one field, its dimensions and coordinate variables cut to match.
+--where lat=-30:30,lon=100:180 chooses the window by coordinate values
+(inclusive), through the coordinate variables the archive carries;
+dimension names match in any case. --slices and --region count the axes of
+the variable (slices over the leading ones, rows and columns the last two)
+whatever its layout; OUT ending in / (an existing folder)
 gets one NAME.npy per field; .csv writes a small window as text (at most
 10^6 values without --force). --slices A:B picks slices of an N-D field.
 
@@ -123,7 +136,9 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .option('--var <NAME>', 'the same as --field (a NetCDF variable packed as a field)', nameOption)
     .option('--slices <A:B>', 'fields of slices: decode only slices A..B-1 (with --region for a window of each)', slicesOption)
     .option('--region <R0:R1,C0:C1>', 'decode only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
+    .option('--where <NAME=LO:HI,...>', 'decode only where the coordinate variables of the named dimensions lie within LO..HI (inclusive; an empty end is open), e.g. lat=-30:30,lon=100:180; names in any case', whereOption)
     .option('--bound <MODE:VALUE>', 'a looser bound than the archive holds: read only as much of each tile as meets it (prints what the values satisfy)', boundOption)
+    .option('--netcdf4', 'NetCDF output: write NetCDF-4 (HDF5 inside, through h5wasm) instead of NetCDF classic')
     .option('--endian <ORDER>', 'raw output: byte order, little (default) or big', endianOption)
     .option('--threads <N>', 'threads decoding bands of tiles for .npy and raw output (default: the number of cores; N - 1 worker threads beside the main one)', threadsOption)
     .option('--force', 'overwrite OUT if it exists')
@@ -139,13 +154,25 @@ export function registerUnpack(program: Command, ctx: Context): void {
       const dirOut = flags.output.endsWith('/');
       if (flags.endian !== undefined && (npy || nc || csv || dirOut)) throw new UsageError(`--endian applies to raw output; '${flags.output}' is not written as raw binary`);
       if (dirOut && chosen !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
-      if ((nc || dirOut) && (flags.region || flags.slices || flags.bound)) throw new UsageError(`--region, --slices and --bound apply to one field written to .npy, .csv or raw; '${flags.output}' gets whole fields`);
+      if (dirOut && (flags.region || flags.slices || flags.bound || flags.where)) throw new UsageError(`--region, --slices, --where and --bound apply to one field; '${flags.output}' (a folder) gets whole fields`);
+      if (flags.netcdf4 && !nc) throw new UsageError(`--netcdf4 applies to NetCDF output (OUT ending in .nc); '${flags.output}' is not`);
+      if (nc && flags.bound) throw new UsageError(`--bound applies to .npy, .csv or raw output; '${flags.output}' (NetCDF) gets the values as stored`);
+      if (flags.where && (flags.region || flags.slices)) throw new UsageError('--where chooses the window by coordinate values; give it without --region and --slices');
       if (!isUrl(input)) await statInput(input);
       const io = { force: flags.force === true, inputs: isUrl(input) ? [] : [input] };
       if (dirOut) await checkFolder(flags.output);
       else await checkOutput(flags.output, io);
       const archive = await openArchive(input);
       try {
+        const windowed = flags.where !== undefined || flags.region !== undefined || flags.slices !== undefined;
+        if (!dirOut && windowed) {
+          if (nc && chosen === undefined && archive.names.length > 1) throw new UsageError(`a window written to .nc is of one field: name it with --var (fields: ${archive.names.map((n) => printable(n)).join(', ')})`);
+          const h = archive.field(chosen).header;
+          if (nc || flags.where !== undefined || h.layout?.startsWith('matrix:')) {
+            await unpackAxes(archive, h, flags, { input, nc, csv, npy, io, start }, out);
+            return;
+          }
+        }
         if (dirOut || nc) {
           const names = chosen !== undefined ? [archive.field(chosen).header.name] : archive.names;
           const fields = [];
@@ -154,12 +181,14 @@ export function registerUnpack(program: Command, ctx: Context): void {
             fields.push({ h: archive.field(name).header, shape: f.shape, values: f.values });
           }
           if (nc) {
-            const bytes = writeNetcdf(netcdfFromFields(archive.header.attrs, fields));
+            const bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, fields), flags.netcdf4 === true);
             await writeOutput(flags.output, bytes, io);
-            out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (NetCDF classic, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
-            out.result({ command: 'unpack', input, output: flags.output, format: 'netcdf', files: [{ path: flags.output, bytes: bytes.length, fields: names }], seconds: (performance.now() - start) / 1000 });
+            const format = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
+            out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (${format}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+            out.result({ command: 'unpack', input, output: flags.output, format: flags.netcdf4 ? 'netcdf4' : 'netcdf', files: [{ path: flags.output, bytes: bytes.length, fields: names }], seconds: (performance.now() - start) / 1000 });
           } else {
             const files = fileNames(names);
+            for (const f of fields) restoreMissing(f.h, f.values);
             const written = [];
             for (const [i, f] of fields.entries()) {
               const bytes = formatNpy({ data: f.values, shape: f.shape, dtype: f.h.dtype });
@@ -171,7 +200,8 @@ export function registerUnpack(program: Command, ctx: Context): void {
           }
           return;
         }
-        const { header: h } = archive.field(chosen);
+        const { header: h, summary } = archive.field(chosen);
+        if (flags.bound) refuseStricter(flags.bound, h, summary, input);
         const r = flags.region;
         const window = r && {
           rows: [r.rows[0] ?? 0, r.rows[1] ?? h.shape[0]] as [number, number],
@@ -189,6 +219,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
         let field: BandsRead;
         if (csv) {
           const f = await archive.read(h.name, request);
+          restoreMissing(h, f.values);
           const dims = h.dims && h.dims.length === f.shape.length ? h.dims : f.shape.length === 3 ? ['slice', 'row', 'col'] : f.shape.map((_, i) => `axis${i}`);
           const bytes = formatCsv(f.values, f.shape, dims);
           await writeOutput(flags.output, bytes, io);
@@ -210,6 +241,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
               };
               if (npy) put(npyHeader(shape, h.dtype));
               got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
+                restoreMissing(h, values);
                 put(valueBytes(values, endian));
                 done += values.length;
                 bar.update(Math.round((tiles * done) / cells));
@@ -255,6 +287,118 @@ function tilesTouched(h: FieldHeader, request: { slices?: [number, number]; rows
   const [c0, c1] = request.cols ?? [0, h.shape[1]];
   const span = (a: number, b: number, t: number) => Math.floor((b - 1) / t) - Math.floor(a / t) + 1;
   return (s1 - s0) * span(r0, r1, h.tile[0]) * span(c0, c1, h.tile[1]);
+}
+
+/**
+ * The bytes of a NetCDF file: classic (or 64-bit offset when the sizes need
+ * it), or NetCDF-4 written by h5wasm into a temporary folder (removed
+ * afterwards, and on an interrupt) and read back.
+ */
+async function netcdfBytes(file: NcWriteFile, netcdf4: boolean): Promise<Uint8Array> {
+  if (!netcdf4) return writeNetcdf(file);
+  const dir = await mkdtemp(join(tmpdir(), 'rankfield-nc4-'));
+  trackTempDir(dir, true);
+  try {
+    const path = join(dir, 'out.nc');
+    await writeNetcdf4(path, file);
+    return new Uint8Array(await readFile(path));
+  } finally {
+    await rm(dir, { recursive: true, force: true });
+    trackTempDir(dir, false);
+  }
+}
+
+/**
+ * `unpack` of a window chosen by axis: by --where coordinate ranges, to
+ * NetCDF (dimensions and coordinate variables cut to match), or of a field
+ * laid out as a matrix (--slices and --region count its own axes, as for
+ * slices). The window is read into memory, then written.
+ */
+async function unpackAxes(
+  archive: Archive,
+  h: FieldHeader,
+  flags: UnpackFlags,
+  o: { input: string; nc: boolean; csv: boolean; npy: boolean; io: { force: boolean; inputs: string[] }; start: number },
+  out: Output,
+): Promise<void> {
+  const nd = ndShapeOf(h);
+  let ranges: AxisRange[] | null;
+  if (flags.where) {
+    ranges = rangesWhere(h, flags.where, (dim) => {
+      const v = carriedValues(archive.header.attrs, dim);
+      return v === null || v instanceof Uint8Array || (Array.isArray(v) && v.some((x) => typeof x !== 'number')) ? null : (v as ArrayLike<number>);
+    });
+  } else ranges = rangesFrom(h, flags.slices, flags.region);
+  let got: { values: FloatArray; shape: number[] };
+  const cells = (r: AxisRange[]) => r.reduce((x, [a, b]) => x * (b - a), 1);
+  const k = nd.length;
+  const sliceRange = (): AxisRange => [flags.slices?.[0] ?? 0, flags.slices?.[1] ?? nd.slice(0, k - 2).reduce((x, y) => x * y, 1)];
+  const rowRange: AxisRange = [flags.region?.rows[0] ?? 0, flags.region?.rows[1] ?? nd[k - 2]];
+  const colRange: AxisRange = [flags.region?.cols[0] ?? 0, flags.region?.cols[1] ?? nd[k - 1]];
+  const n = ranges ? cells(ranges) : cells([sliceRange(), rowRange, colRange]);
+  if (o.csv && n > CSV_LIMIT && flags.force !== true) throw new UsageError(`.csv output of ${n} values is refused (more than ${CSV_LIMIT}); choose a smaller window, write .npy, or use --force`);
+  if (ranges) got = await readAxes(archive, h, ranges);
+  else if (o.nc) throw new UsageError(`--slices of a variable of ${k} dimensions counts its first ${k - 2} dimensions together, which a .nc window cannot express; use --where, or write .npy`);
+  else got = await readSliceWindow(archive, h, sliceRange(), rowRange, colRange);
+  const dims = dimNames(h);
+  let bytes: Uint8Array;
+  let kind: string;
+  if (o.nc) {
+    const cut = new Map<string, [number, number]>();
+    ranges!.forEach(([a, b], i) => {
+      if (a !== 0 || b !== nd[i]) cut.set(dims[i], [a, b]);
+    });
+    bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, [{ h, shape: got.shape, values: got.values }], cut), flags.netcdf4 === true);
+    kind = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
+  } else {
+    restoreMissing(h, got.values);
+    if (o.npy) {
+      bytes = formatNpy({ data: got.values, shape: got.shape, dtype: h.dtype });
+      kind = '.npy';
+    } else if (o.csv) {
+      bytes = formatCsv(got.values, got.shape, ranges ? dims : got.shape.length === 3 ? ['slice', dims[k - 2], dims[k - 1]] : dims);
+      kind = 'CSV';
+    } else {
+      bytes = valueBytes(got.values, flags.endian ?? 'little');
+      kind = `raw ${flags.endian ?? 'little'}-endian`;
+    }
+  }
+  await writeOutput(flags.output, bytes, o.io);
+  const what = ranges ? ranges.map(([a, b], i) => `${printable(dims[i])} ${a}..${b - 1}`).join(', ') : `slices ${sliceRange()[0]}..${sliceRange()[1] - 1}, rows ${rowRange[0]}..${rowRange[1] - 1}, columns ${colRange[0]}..${colRange[1] - 1}`;
+  out.text(`unpacked ${what} (${got.shape.join('x')}) of field '${printable(h.name)}' (${nd.join('x')} ${h.dtype}) from '${o.input}' -> '${flags.output}' (${kind}, ${bytes.length} bytes); ${seconds(performance.now() - o.start)}\n`);
+  out.result({
+    command: 'unpack',
+    input: o.input,
+    output: flags.output,
+    format: o.nc ? (flags.netcdf4 ? 'netcdf4' : 'netcdf') : o.npy ? 'npy' : o.csv ? 'csv' : 'raw',
+    files: [{ path: flags.output, bytes: bytes.length, fields: [h.name] }],
+    field: h.name,
+    shape: got.shape,
+    // A window by axis: each dimension's half-open range; else slices (of the leading axes together), rows and columns.
+    window: ranges ? null : { slices: sliceRange(), rows: rowRange, cols: colRange },
+    axes: ranges ? ranges.map(([a, b], i) => ({ name: dims[i], range: [a, b] })) : null,
+    seconds: (performance.now() - o.start) / 1000,
+  });
+}
+
+/**
+ * Refuse `unpack --bound` when the request is stricter than the archive
+ * holds: a read can only give back what was stored. A pointwise request is
+ * met when the archive's own bound is pointwise and no looser, or when its
+ * recorded max error is within it; an RMSE request likewise with the RMSE
+ * (a pointwise bound E also bounds the RMSE by E).
+ */
+export function refuseStricter(b: Bound, h: FieldHeader, summary: { max_err: number; rmse: number }, input: string): void {
+  const range = h.bound.range;
+  const tol = resolveBound(b, range ? range[1] - range[0] : 0);
+  const pointwise = isPointwise(b.mode);
+  const heldBy = pointwise ? isPointwise(h.bound.mode) : true;
+  const met = (heldBy && h.bound.tolerance <= tol) || (pointwise ? summary.max_err : summary.rmse) <= tol;
+  if (met) return;
+  throw new UsageError(
+    `--bound ${formatBound(b)} (${pointwise ? 'max error' : 'RMSE'} ${num(tol)}) is stricter than field '${printable(h.name)}' of '${input}' holds: ` +
+      `it was packed under ${formatBound(h.bound)}, recorded max error ${num(summary.max_err)}, RMSE ${num(summary.rmse)}; leave out --bound to read the values as stored`,
+  );
 }
 
 /** Refuse a folder output that does not exist or is not a folder. */

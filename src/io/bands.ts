@@ -16,10 +16,15 @@ import { HOST_LITTLE_ENDIAN, checkedProduct, itemSize, swapBytes } from './ndarr
 import { MAX_NPY_HEADER_BYTES, npyHeader, parseNpyHeader } from './npy.js';
 import { openRegularSync } from './regular-file.js';
 
-/** A 2-D field read a band of rows at a time. */
+/**
+ * A field read a band of rows at a time. An N-D array in C order is read as
+ * the 2-D matrix of its values: all axes but the last as rows.
+ */
 export interface BandReader {
-  /** [rows, cols]. */
+  /** [rows, cols] of the matrix read: the product of all axes but the last, and the last. */
   readonly shape: [number, number];
+  /** The array's own shape (2 or more axes; equal to `shape` for a 2-D array). */
+  readonly ndShape: number[];
   readonly dtype: Dtype;
   /** The file, for messages. */
   readonly path: string;
@@ -34,6 +39,7 @@ export interface BandReader {
 /** How the values lie in the file. */
 interface Layout {
   shape: [number, number];
+  ndShape: number[];
   dtype: Dtype;
   littleEndian: boolean;
   fortranOrder: boolean;
@@ -70,6 +76,10 @@ class FileBands implements BandReader {
     this.mtime = stat.mtimeMs;
     this.item = itemSize(layout.dtype);
     this.bytesRead = headerBytes;
+  }
+
+  get ndShape(): number[] {
+    return this.layout.ndShape.slice();
   }
 
   get shape(): [number, number] {
@@ -177,14 +187,20 @@ function readPrefix(fd: number, length: number, position: number): Uint8Array {
   return out.subarray(0, done);
 }
 
+/** The C-order matrix of an N-D shape: all axes but the last as rows. */
+function matrixOf(shape: readonly number[]): [number, number] {
+  return [shape.slice(0, -1).reduce((a, b) => a * b, 1), shape[shape.length - 1]];
+}
+
 function pyShape(shape: readonly number[]): string {
   return shape.length === 1 ? `(${shape[0]},)` : `(${shape.join(', ')})`;
 }
 
 /**
- * Open a .npy file holding a 2-D float32 or float64 array for band reads.
- * Only its header is read here. Throws InputError for what
- * `parseNpyHeader` refuses, for other than 2-D or empty arrays, and for a
+ * Open a .npy file holding a float32 or float64 array of 2 or more axes
+ * (N-D ones in C order) for band reads. Only its header is read here.
+ * Throws InputError for what `parseNpyHeader` refuses, for 1-D, empty and
+ * N-D Fortran-order arrays, and for a
  * data part whose length differs from what the header declares; system
  * errors (ENOENT, EACCES, EISDIR) pass on as Node reports them.
  */
@@ -198,13 +214,13 @@ export function openNpyBands(path: string): BandReader {
     else if (lead.length >= 12 && (lead[6] === 2 || lead[6] === 3)) want = 12 + new DataView(lead.buffer, lead.byteOffset, 12).getUint32(8, true);
     const head = want <= lead.length ? lead : readPrefix(fd, Math.min(want, 12 + MAX_NPY_HEADER_BYTES + 1), 0);
     const h = parseNpyHeader(head, path);
-    if (h.shape.length !== 2) {
-      throw new InputError(
-        InputCode.Shape,
-        `${path}: holds a ${h.shape.length}-D array of shape ${pyShape(h.shape)}; only 2-D fields are supported for now (save each 2-D slice as its own .npy)`,
-      );
+    if (h.shape.length < 2) {
+      throw new InputError(InputCode.Shape, `${path}: holds a ${h.shape.length}-D array of shape ${pyShape(h.shape)}; a field has 2 or more axes`);
     }
-    if (h.shape[0] === 0 || h.shape[1] === 0) throw new InputError(InputCode.Shape, `${path}: the array of shape (${h.shape.join(', ')}) holds no values`);
+    if (h.shape.some((d) => d === 0)) throw new InputError(InputCode.Shape, `${path}: the array of shape ${pyShape(h.shape)} holds no values`);
+    if (h.shape.length > 2 && h.fortranOrder) {
+      throw new InputError(InputCode.Shape, `${path}: holds a ${h.shape.length}-D array of shape ${pyShape(h.shape)} in Fortran order; save it in C order (numpy.ascontiguousarray) to pack it`);
+    }
     const count = checkedProduct(h.shape, path, pyShape(h.shape));
     const item = itemSize(h.dtype);
     const available = size - h.dataOffset;
@@ -215,7 +231,7 @@ export function openNpyBands(path: string): BandReader {
           (available < count * item ? ' (file truncated?)' : ` (${available - count * item} extra bytes)`),
       );
     }
-    const layout: Layout = { shape: [h.shape[0], h.shape[1]], dtype: h.dtype, littleEndian: h.littleEndian, fortranOrder: h.fortranOrder, dataOffset: h.dataOffset };
+    const layout: Layout = { shape: matrixOf(h.shape), ndShape: h.shape.slice(), dtype: h.dtype, littleEndian: h.littleEndian, fortranOrder: h.fortranOrder, dataOffset: h.dataOffset };
     return new FileBands(fd, path, layout, { size, mtimeMs }, head.length);
   } catch (e) {
     closeSync(fd);
@@ -228,11 +244,11 @@ export function openNpyBands(path: string): BandReader {
  * order and the given byte order for band reads. Its size must be exactly
  * rows x cols x item size (else InputError Shape).
  */
-export function openRawBands(path: string, shape: [number, number], dtype: Dtype, endian: 'little' | 'big'): BandReader {
+export function openRawBands(path: string, shape: readonly number[], dtype: Dtype, endian: 'little' | 'big'): BandReader {
   if (dtype !== 'f32' && dtype !== 'f64') throw new InputError(InputCode.Dtype, `${path}: unknown dtype ${JSON.stringify(dtype)}, expected 'f32' or 'f64'`);
   if (endian !== 'little' && endian !== 'big') throw new InputError(InputCode.Option, `${path}: byte order must be 'little' or 'big', not ${JSON.stringify(endian)}`);
-  if (!shape.every((d) => Number.isSafeInteger(d) && d >= 1) || shape.length !== 2) {
-    throw new InputError(InputCode.Shape, `${path}: shape must be two positive integers, got ${JSON.stringify(shape)}`);
+  if (!shape.every((d) => Number.isSafeInteger(d) && d >= 1) || shape.length < 2) {
+    throw new InputError(InputCode.Shape, `${path}: shape must be two or more positive integers, got ${JSON.stringify(shape)}`);
   }
   const { fd, size, mtimeMs } = openInput(path);
   try {
@@ -244,7 +260,7 @@ export function openRawBands(path: string, shape: [number, number], dtype: Dtype
         `${path}: shape ${shape.join('x')} of ${dtype} needs ${count} values of ${item} bytes = ${count * item} bytes but the file holds ${size} bytes`,
       );
     }
-    const layout: Layout = { shape: [shape[0], shape[1]], dtype, littleEndian: endian === 'little', fortranOrder: false, dataOffset: 0 };
+    const layout: Layout = { shape: matrixOf(shape), ndShape: shape.slice(), dtype, littleEndian: endian === 'little', fortranOrder: false, dataOffset: 0 };
     return new FileBands(fd, path, layout, { size, mtimeMs }, 0);
   } catch (e) {
     closeSync(fd);

@@ -22,11 +22,14 @@
 import { NetCDFReader, type Attribute, type Header } from 'netcdfjs';
 import { InputCode, InputError } from '../errors.js';
 import {
+  holdsMark,
+  MAX_MARKS,
   NC_DEFAULT_FILL,
   NC_INT_RANGE,
   NC_STREAMING,
   NC_TYPE_SIZE,
   pad4,
+  setMark,
   setOwn,
   type NcAttrs,
   type NcAttrValue,
@@ -427,7 +430,7 @@ function packedFill(first: number, v: NcVariable, unsigned: boolean, scale: numb
  * variables (Dtype), variables of fewer than 2 dimensions and empty ones
  * (Shape).
  */
-export function readNetcdfVariable(bytes: Uint8Array, file: NcFile, name: string, selection?: NcSelection): NcValues {
+export function readNetcdfVariable(bytes: Uint8Array, file: NcFile, name: string, selection?: NcSelection, options: { mark?: boolean } = {}): NcValues {
   const v = file.variables.find((x) => x.name === name);
   if (!v) {
     const known = file.variables.map((x) => x.name).join(', ');
@@ -457,15 +460,20 @@ export function readNetcdfVariable(bytes: Uint8Array, file: NcFile, name: string
   let remapped = 0;
   const s = scale ?? 1;
   const o = offset ?? 0;
+  const mark = options.mark === true && list.length > 1;
+  if (mark && list.length - 1 > MAX_MARKS) throw new InputError(InputCode.File, `variable '${name}' declares ${list.length} missing values; at most ${MAX_MARKS + 1} can be kept apart`);
+  if (mark && holdsMark(values, list.length - 1)) throw new InputError(InputCode.File, `variable '${name}' holds NaN values with the bit patterns rankfield uses to keep its missing values apart; it cannot be packed with them`);
   for (let i = 0; i < n; i++) {
     const x = values[i];
     const at = list.length === 0 ? -1 : x === list[0] ? 0 : list.length > 1 ? list.indexOf(x) : -1;
-    if (at >= 0) {
+    if (at > 0 && mark) setMark(values, i, at);
+    else if (at >= 0) {
       values[i] = fill as number;
       fillCount++;
       if (at > 0) remapped++;
     } else if (packed) values[i] = x * s + o;
   }
+  const marks = mark ? list.slice(1).map((x) => (packed ? x * s + o : x)) : [];
   return {
     values,
     dtype: f32 ? 'f32' : 'f64',
@@ -479,6 +487,7 @@ export function readNetcdfVariable(bytes: Uint8Array, file: NcFile, name: string
     unpacked: packed,
     storedType: v.type,
     packing: packed ? { scale: s, offset: o } : null,
+    marks,
   };
 }
 

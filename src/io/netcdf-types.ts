@@ -95,6 +95,13 @@ export interface NcValues {
    * _FillValue/missing_value different from `fill`) and now hold `fill`.
    */
   remapped: number;
+  /**
+   * With the `mark` option: the physical value of each other missing value
+   * (after `fill`), in order; cells holding the k-th (from 1) hold the quiet
+   * NaN {@link missingMark}(k) instead of `fill`, so each comes back as
+   * itself (see {@link unmark}). Empty without the option.
+   */
+  marks: number[];
   /** The variable's attributes as stored (see {@link physicalAttributes} for writing the values back). */
   attrs: NcAttrs;
   /** True when scale_factor/add_offset were applied. */
@@ -151,4 +158,54 @@ export function pad4(n: number): number {
 /** Sets an own property, safely even for keys such as "__proto__" (names come from files). */
 export function setOwn<T>(target: Record<string, T>, key: string, value: T): void {
   Object.defineProperty(target, key, { value, enumerable: true, writable: true, configurable: true });
+}
+
+/** Most missing values beside the fill that can be marked apart (see {@link missingMark}). */
+export const MAX_MARKS = 255;
+/** Bits of the quiet NaNs that mark the k-th other missing value: float32 0x7fd13000 + k, float64 0x7ffa1300_00000000 + k (our own choice). */
+const MARK_F32 = 0x7fd13000;
+const MARK_F64 = 0x7ffa130000000000n;
+
+/** The k-th (1..{@link MAX_MARKS}) missing-value mark of a type, as bits: a quiet NaN with a payload of our own. */
+export function missingMark(k: number, f32: boolean): number | bigint {
+  return f32 ? MARK_F32 + k : MARK_F64 + BigInt(k);
+}
+
+/** Which mark (1..count) cell i of `values` holds, or 0 (for a few cells: it makes a view per call). */
+export function markAt(values: Float32Array | Float64Array, i: number, count: number): number {
+  if (!Number.isNaN(values[i])) return 0;
+  const f32 = values instanceof Float32Array;
+  return markOf(values, i, f32 ? new Uint32Array(values.buffer, values.byteOffset, values.length) : null, f32 ? null : new BigUint64Array(values.buffer, values.byteOffset, values.length), count);
+}
+
+/** Which mark (1..count) a NaN's bits are, or 0. */
+function markOf(values: Float32Array | Float64Array, i: number, bits32: Uint32Array | null, bits64: BigUint64Array | null, count: number): number {
+  const k = bits32 ? bits32[i] - MARK_F32 : Number(bits64![i] - MARK_F64);
+  return k >= 1 && k <= count ? k : 0;
+}
+
+/** Set cell i of `values` to mark k (bit for bit). */
+export function setMark(values: Float32Array | Float64Array, i: number, k: number): void {
+  if (values instanceof Float32Array) new Uint32Array(values.buffer, values.byteOffset, values.length)[i] = MARK_F32 + k;
+  else new BigUint64Array(values.buffer, values.byteOffset, values.length)[i] = MARK_F64 + BigInt(k);
+}
+
+/** True when `values` already hold a NaN with the bits of one of the first `count` marks. */
+export function holdsMark(values: Float32Array | Float64Array, count: number): boolean {
+  const b32 = values instanceof Float32Array ? new Uint32Array(values.buffer, values.byteOffset, values.length) : null;
+  const b64 = b32 ? null : new BigUint64Array(values.buffer, values.byteOffset, values.length);
+  for (let i = 0; i < values.length; i++) if (Number.isNaN(values[i]) && markOf(values, i, b32, b64, count) > 0) return true;
+  return false;
+}
+
+/** Put the missing values back in place of their marks: the cells of mark k get marks[k - 1]. In place. */
+export function unmark(values: Float32Array | Float64Array, marks: readonly number[]): void {
+  if (marks.length === 0) return;
+  const b32 = values instanceof Float32Array ? new Uint32Array(values.buffer, values.byteOffset, values.length) : null;
+  const b64 = b32 ? null : new BigUint64Array(values.buffer, values.byteOffset, values.length);
+  for (let i = 0; i < values.length; i++) {
+    if (!Number.isNaN(values[i])) continue;
+    const k = markOf(values, i, b32, b64, marks.length);
+    if (k > 0) values[i] = marks[k - 1];
+  }
 }

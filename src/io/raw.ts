@@ -75,17 +75,18 @@ export function formatRaw(arr: NdArray, endian: 'little' | 'big' = 'little'): Ui
 }
 
 /**
- * Parses a shape written as "RxC" (2-D) or "AxBxC" (3-D): positive decimal
+ * Parses a shape written as "RxC" (2-D), "AxBxC" (3-D) and so on up to
+ * {@link MAX_NDIM} axes: positive decimal
  * integers without signs, spaces or leading zeros, joined by a lowercase
  * 'x'. Anything else, or a shape of more than 2^53 - 1 values, throws
  * InputError Shape.
  */
 export function parseShape(text: string): number[] {
   const parts = typeof text === 'string' ? text.split('x') : [];
-  if (parts.length < 2 || parts.length > 3 || !parts.every((p) => /^[1-9][0-9]*$/.test(p))) {
+  if (parts.length < 2 || parts.length > MAX_NDIM || !parts.every((p) => /^[1-9][0-9]*$/.test(p))) {
     throw new InputError(
       InputCode.Shape,
-      `shape ${JSON.stringify(text)} is not of the form RxC or AxBxC with positive integers (e.g. 512x512 or 64x64x32)`,
+      `shape ${JSON.stringify(text)} is not of the form RxC, AxBxC, ... (2 to ${MAX_NDIM} positive integers, e.g. 512x512 or 12x90x180)`,
     );
   }
   const dims = parts.map(Number);

@@ -16,12 +16,11 @@ import { open, pack } from '../../src/index.js';
 import { precip } from '../archive/datasets.js';
 import { ensureBuilt, ensureBundled, ROOT } from '../cli/helpers.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
+import { haveSystemTools } from '../system-tools.js';
 
 const CHROMIUM = '/usr/bin/chromium';
-/** .ci/run installs chromium and sets this, so that a missing browser fails CI instead of skipping. */
-const REQUIRED = process.env.RANKFIELD_SYSTEM_TESTS === 'required';
-const PRESENT = existsSync(CHROMIUM);
-if (!PRESENT && !REQUIRED) console.warn(`skipped: the browser test needs ${CHROMIUM} (apt-get install -y chromium; .ci/run installs it)`);
+/** .ci/run installs chromium and sets RANKFIELD_SYSTEM_TESTS=required, so that a missing browser fails CI instead of skipping. */
+const RUN = haveSystemTools('the browser test', 'chromium', [CHROMIUM]);
 
 const PAGE = `<!doctype html>
 <html><head><meta charset="utf-8"><title>rankfield decode</title><link rel="icon" href="data:,">
@@ -69,7 +68,7 @@ const WINDOWS: [[number, number], [number, number]][] = [
   [[0, 168], [359, 360]], // one column
 ];
 
-describe.skipIf(!PRESENT && !REQUIRED)('the decoder in headless Chromium', () => {
+describe.skipIf(!RUN)('the decoder in headless Chromium', () => {
   let server: RangeServer;
   let context: BrowserContext | null = null;
   let page: Page;

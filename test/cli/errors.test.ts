@@ -22,7 +22,7 @@ beforeAll(() => {
   ensureBuilt();
   writeFileSync(join(dir, 'f.npy'), formatNpy({ data: field, shape: [12, 20], dtype: 'f32' }));
   writeFileSync(join(dir, 'f.raw'), formatRaw({ data: field, shape: [12, 20], dtype: 'f32' }));
-  writeFileSync(join(dir, 'cube.npy'), formatNpy({ data: new Float32Array(24), shape: [2, 3, 4], dtype: 'f32' }));
+  writeFileSync(join(dir, 'hollow.npy'), formatNpy({ data: new Float32Array(0), shape: [2, 0, 4], dtype: 'f32' }));
   writeFileSync(join(dir, 'line.npy'), formatNpy({ data: new Float64Array(5), shape: [5], dtype: 'f64' }));
   writeFileSync(join(dir, 'empty.npy'), '');
   writeFileSync(join(dir, 'empty.raw'), '');
@@ -55,11 +55,11 @@ const CASES: [string, string[], RegExp][] = [
   ['fill not a number', pack('--fill', 'none'), /fill value must be a finite number .* got 'none'/],
   ['fill outside float32', pack('--fill', '1e300'), /fill value 1e\+300 is outside the float32 range/],
   ['unknown byte order', pack('--endian', 'native'), /byte order must be 'little' or 'big', got 'native'/],
-  ['shape of three axes', ['pack', 'f.raw', '-o', OUT, '--shape', '2x3x40', '--dtype', 'f32', '--bound', 'abs:1'], /shape must be RxC \(2-D\); 3-D fields are not supported yet/],
+  ['shape of three axes the file does not hold', ['pack', 'f.raw', '-o', OUT, '--shape', '2x3x41', '--dtype', 'f32', '--bound', 'abs:1'], /f\.raw: shape 2x3x41 of f32 needs 246 values of 4 bytes = 984 bytes but the file holds 960 bytes/],
   ['malformed shape', ['pack', 'f.raw', '-o', OUT, '--shape', '12*20', '--dtype', 'f32', '--bound', 'abs:1'], /shape "12\*20" is not of the form RxC/],
-  ['raw input without --shape and --dtype', ['pack', 'f.raw', '-o', OUT, '--bound', 'abs:1'], /'f\.raw' does not end in \.npy, so it is read as headerless raw binary, which needs --shape RxC and --dtype f32\|f64/],
+  ['raw input without --shape and --dtype', ['pack', 'f.raw', '-o', OUT, '--bound', 'abs:1'], /'f\.raw' is neither \.npy nor NetCDF by its first bytes or its name, so it is read as headerless raw binary, which needs --shape RxC and --dtype f32\|f64/],
   ['raw layout given for a .npy', ['pack', 'f.npy', '-o', OUT, '--bound', 'abs:1', '--dtype', 'f32'], /--dtype describe headerless raw input, but 'f\.npy' is a \.npy file/],
-  ['.npy with three axes', ['pack', 'cube.npy', '-o', OUT, '--bound', 'abs:1'], /cube\.npy: holds a 3-D array of shape \(2, 3, 4\); only 2-D fields are supported for now/],
+  ['.npy with an empty axis', ['pack', 'hollow.npy', '-o', OUT, '--bound', 'abs:1'], /hollow\.npy: the array of shape \(2, 0, 4\) holds no values/],
   ['.npy with one axis', ['pack', 'line.npy', '-o', OUT, '--bound', 'abs:1'], /line\.npy: holds a 1-D array of shape \(5,\)/],
   ['empty .npy file', ['pack', 'empty.npy', '-o', OUT, '--bound', 'abs:1'], /'empty\.npy' is empty \(0 bytes\)/],
   ['empty raw file', ['pack', 'empty.raw', '-o', OUT, '--shape', '2x2', '--dtype', 'f32', '--bound', 'abs:1'], /'empty\.raw' is empty \(0 bytes\)/],

@@ -116,7 +116,7 @@ describe('trial', { timeout: CLI_TIMEOUT }, () => {
     const r = rf(['trial', 'volcano.npy', '--sample', '32', '--bounds', 'abs:1,rel:1e-2,psnr:45', '--tile', '16', '--pictures', '.', '--json'], dir);
     expect(r.code, r.stderr).toBe(0);
     const t = JSON.parse(r.stdout);
-    expect(t.sample).toEqual({ rows: [14, 46], cols: [27, 59], shape: [32, 32], rawBytes: 32 * 32 * 8 }); // centred: (61 - 32) / 2, (87 - 32) / 2, rounded down
+    expect(t.sample).toEqual({ slice: null, rows: [14, 46], cols: [27, 59], shape: [32, 32], rawBytes: 32 * 32 * 8 }); // centred: (61 - 32) / 2, (87 - 32) / 2, rounded down
     expect(t.range).toEqual([94, 195]); // the whole field's range, from memory (R's datasets::volcano)
     const sample = new Float64Array(32 * 32);
     for (let i = 0; i < 32; i++) sample.set(vol.values.subarray((14 + i) * COLS + 27, (14 + i) * COLS + 59), i * 32);

@@ -112,10 +112,10 @@ describe('check', () => {
 
   it('refuses (exit 2) an original of the wrong shape or dtype', () => {
     writeFileSync(path('small.npy'), formatNpy({ data: new Float64Array(12), shape: [3, 4], dtype: 'f64' }));
-    expectCliError(rf(['check', 'v.rfz', '--against', 'small.npy'], dir), /original 'small\.npy' is 3x4, but field 'volcano' of 'v\.rfz' is 61x87/);
+    expectCliError(rf(['check', 'v.rfz', '--against', 'small.npy'], dir), /original 'small\.npy' has shape 3x4, but field 'volcano' of 'v\.rfz' has shape 61x87/);
     writeFileSync(path('v32.npy'), formatNpy({ data: Float32Array.from(vol.values), shape: [ROWS, COLS], dtype: 'f32' }));
     expectCliError(rf(['check', 'v.rfz', '--against', 'v32.npy'], dir), /holds f32 values, but field 'volcano' of 'v\.rfz' is f64/);
-    expectCliError(rf(['check', 'v.rfz', '--against', 'volcano.f64', '--shape', '87x61'], dir), /original 'volcano\.f64' is 87x61/);
+    expectCliError(rf(['check', 'v.rfz', '--against', 'volcano.f64', '--shape', '87x61'], dir), /original 'volcano\.f64' has shape 87x61/);
     expectCliError(rf(['check', 'v.rfz', '--shape', '61x87'], dir), /--shape describe the original, which needs --against/);
   });
 
@@ -193,7 +193,7 @@ describe('check', () => {
     expect(ok.code, ok.stdout + ok.stderr).toBe(0);
     expect(ok.stdout).toMatch(/against 'wave\.npy' \(field 'wave'\)/);
     // Without --field the original is compared with the first field, whose shape differs.
-    expectCliError(rf(['check', 'two.rfz', '--against', 'wave.npy'], dir), /original 'wave\.npy' is 10x12, but field 'height' of 'two\.rfz' is 61x87/);
+    expectCliError(rf(['check', 'two.rfz', '--against', 'wave.npy'], dir), /original 'wave\.npy' has shape 10x12, but field 'height' of 'two\.rfz' has shape 61x87/);
     expectCliError(rf(['check', 'two.rfz', '--against', 'wave.npy', '--field', 'nope'], dir), /no field 'nope' in two\.rfz \(fields: height, wave\)/);
   });
 });

@@ -76,7 +76,9 @@ describe('pack of several variables', { timeout: CLI_TIMEOUT }, () => {
     const ix = await archive.loadIndex();
     archive.header.fields.forEach((h, i) => {
       const bytes = ix.fields[i].length.reduce((a, b) => a + b, 0);
-      const raw = (h.slices ?? 1) * h.shape[0] * h.shape[1] * (h.dtype === 'f32' ? 4 : 8);
+      // Bytes in are counted in the variable's stored type (ssh is stored as short and unpacked to float64).
+      const stored = { byte: 1, short: 2, int: 4, float: 4, double: 8 }[h.attrs['rankfield:nc_type'] as string] ?? (h.dtype === 'f32' ? 4 : 8);
+      const raw = (h.slices ?? 1) * h.shape[0] * h.shape[1] * stored;
       expect(r.stdout).toMatch(new RegExp(`\\n  ${h.name} \\(.*, layout ${h.layout ?? 'plain'}: [0-9.]+ (bytes|kB), ratio ${(raw / bytes).toFixed(2)}; `));
     });
     expect(r.stdout).toMatch(/\n  tile .* \(chosen automatically: the shape that packed smallest on a sample; --tile fixes it\)/);

@@ -117,8 +117,18 @@ describe('band readers', () => {
       r.close();
     }
     const three = join(dir, 'three.npy');
-    writeFileSync(three, formatNpy({ data: new Float64Array(8), shape: [2, 2, 2], dtype: 'f64' }));
-    expect(() => openNpyBands(three)).toThrow(/3-D array of shape \(2, 2, 2\); only 2-D fields/);
+    writeFileSync(three, formatNpy({ data: Float64Array.from({ length: 8 }, (_, i) => i), shape: [2, 2, 2], dtype: 'f64' }));
+    // A C-order N-D array is read as the matrix of its values: all axes but the last as rows.
+    const nd = openNpyBands(three);
+    try {
+      expect([nd.shape, nd.ndShape]).toEqual([[4, 2], [2, 2, 2]]);
+      expect(Array.from(nd.band(1, 2))).toEqual([2, 3, 4, 5]);
+    } finally {
+      nd.close();
+    }
+    const one = join(dir, 'one.npy');
+    writeFileSync(one, formatNpy({ data: new Float64Array(3), shape: [3], dtype: 'f64' }));
+    expect(() => openNpyBands(one)).toThrow(/1-D array of shape \(3,\); a field has 2 or more axes/);
   });
 
   it.each([

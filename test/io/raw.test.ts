@@ -109,16 +109,17 @@ describe('formatRaw', () => {
 });
 
 describe('parseShape', () => {
-  it('reads RxC and AxBxC', () => {
+  it('reads RxC, AxBxC and more axes', () => {
     expect(parseShape('512x256')).toEqual([512, 256]);
     expect(parseShape('64x32x1')).toEqual([64, 32, 1]);
+    expect(parseShape('1x2x3x4')).toEqual([1, 2, 3, 4]);
     expect(parseShape('1x9007199254740991')).toEqual([1, 9007199254740991]);
   });
 
   it('refuses anything else with InputError Shape', () => {
-    const bad = ['', '512', '1x2x3x4', '0x5', '5x0', '-1x5', '+1x5', '1.5x2', '1e3x2', '5X5', '5*5', ' 5x5', '5x5 ', '5 x 5', '5x', 'x5', '05x5', '0x10x5'];
+    const bad = ['', '512', Array(33).fill('1').join('x'), '0x5', '5x0', '-1x5', '+1x5', '1.5x2', '1e3x2', '5X5', '5*5', ' 5x5', '5x5 ', '5 x 5', '5x', 'x5', '05x5', '0x10x5'];
     for (const text of bad) {
-      expectInputError(() => parseShape(text), InputCode.Shape, /is not of the form RxC or AxBxC with positive integers/);
+      expectInputError(() => parseShape(text), InputCode.Shape, /is not of the form RxC, AxBxC, \.\.\. \(2 to 32 positive integers/);
     }
     expectInputError(() => parseShape('9007199254740992x1'), InputCode.Shape, /axis 0 is larger than 2\^53 - 1/);
     expectInputError(() => parseShape('100000000x100000000x1000'), InputCode.Shape, /holds 10000000000000000000 values, more than 2\^53 - 1/);

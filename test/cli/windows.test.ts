@@ -1,0 +1,114 @@
+/**
+ * Windows of N-D variables on every layout, by index and by coordinate:
+ * --matrix with dimension names in another case, --slices of a matrix-laid
+ * archive, --where coordinate ranges, and windows written to .nc with their
+ * coordinate variables cut to match (read back with netcdfjs 4.0.0).
+ * Data: vega-datasets data/annual-precip.json (168 x 360), every second row
+ * and column (84 x 180), three times (x1, x1.5, x0.5) along a TIME
+ * dimension, in a NetCDF classic file made by Debian's ncgen, with latitude
+ * and longitude coordinates of our choosing (2-degree cells).
+ */
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { NetCDFReader } from 'netcdfjs';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { parseNpy } from '../../src/io/npy.js';
+import { precip } from '../archive/datasets.js';
+import { cdlValues, haveNetcdfBin, ncgen } from '../cdl.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, rf, tempDir } from './helpers.js';
+
+const RUN = haveNetcdfBin('the window tests');
+const T = 3;
+const NY = 84;
+const NX = 180;
+const g = precip();
+const grid = new Float64Array(T * NY * NX);
+for (let s = 0; s < T; s++) for (let i = 0; i < NY; i++) for (let j = 0; j < NX; j++) grid[(s * NY + i) * NX + j] = g.values[2 * i * 360 + 2 * j] * [1, 1.5, 0.5][s];
+/** Latitudes 83 down to -83 (decreasing, as the grid's rows run north to south), longitudes -179 to 179. */
+const LAT = Array.from({ length: NY }, (_, i) => 83 - 2 * i);
+const LON = Array.from({ length: NX }, (_, j) => -179 + 2 * j);
+const E = 1;
+
+let t: ReturnType<typeof tempDir>;
+beforeAll(() => {
+  ensureBuilt();
+  t = tempDir('rankfield-win-');
+  if (!RUN) return;
+  const cdl = `netcdf rain {
+dimensions:
+  TIME = ${T} ;
+  lat = ${NY} ;
+  lon = ${NX} ;
+variables:
+  double TIME(TIME) ;
+  float lat(lat) ;
+    lat:units = "degrees_north" ;
+  float lon(lon) ;
+    lon:units = "degrees_east" ;
+  double precip(TIME, lat, lon) ;
+    precip:units = "mm" ;
+data:
+  TIME = 0, 1, 2 ;
+  lat = ${LAT.join(', ')} ;
+  lon = ${LON.join(', ')} ;
+  precip = ${cdlValues(grid)} ;
+}
+`;
+  ncgen(cdl, join(t.dir, 'rain.nc'));
+  const r = rf(['pack', 'rain.nc', '-o', 'm.rfz', '--bound', `abs:${E}`, '--matrix', 'time:space'], t.dir);
+  expect(r.code, r.stderr).toBe(0);
+}, CLI_TIMEOUT);
+afterAll(() => t?.remove());
+
+/** Largest |got - want| over the window rows i0.., cols j0.. of time s of the grid. */
+function windowError(got: ArrayLike<number>, s0: number, s1: number, i0: number, i1: number, j0: number, j1: number): number {
+  let m = 0;
+  let k = 0;
+  for (let s = s0; s < s1; s++) for (let i = i0; i < i1; i++) for (let j = j0; j < j1; j++) m = Math.max(m, Math.abs(got[k++] - grid[(s * NY + i) * NX + j]));
+  expect(k).toBe(got.length);
+  return m;
+}
+
+describe.skipIf(!RUN)('windows of a matrix-laid NetCDF variable', { timeout: CLI_TIMEOUT }, () => {
+  it('--matrix matched the dimension TIME in another case; a name that matches none lists the real ones', () => {
+    expect(rf(['show', 'm.rfz'], t.dir).stdout).toMatch(/layout matrix/);
+    expectCliError(rf(['pack', 'rain.nc', '-o', 'x.rfz', '--bound', 'abs:1', '--matrix', 'depth:space'], t.dir), /the variables are precip\(TIME, lat, lon\)/);
+  });
+
+  it('--slices and --region count the variable\'s own axes on a matrix layout', () => {
+    const r = rf(['unpack', 'm.rfz', '--slices', '1:3', '--region', '10:20,100:130', '-o', 's.npy'], t.dir);
+    expect(r.code, r.stderr).toBe(0);
+    const a = parseNpy(new Uint8Array(readFileSync(join(t.dir, 's.npy'))), 's.npy');
+    expect(a.shape).toEqual([2, 10, 30]);
+    // abs:E bounds every value (the bound's definition).
+    expect(windowError(a.data, 1, 3, 10, 20, 100, 130)).toBeLessThanOrEqual(E);
+  });
+
+  it('--where lat=-30:30,lon=100:180 to .nc: the window of those coordinates, the coordinate variables cut to match', () => {
+    const r = rf(['unpack', 'm.rfz', '--where', 'LAT=-30:30,lon=100:180', '-o', 'box.nc'], t.dir);
+    expect(r.code, r.stderr).toBe(0);
+    const i0 = LAT.findIndex((y) => y <= 30);
+    const i1 = LAT.findIndex((y) => y < -30);
+    const j0 = LON.findIndex((x) => x >= 100);
+    const j1 = NX;
+    // netcdfjs 4.0.0, an independent reader of the classic format.
+    const b = new NetCDFReader(readFileSync(join(t.dir, 'box.nc')));
+    expect(b.dimensions.map((d) => [d.name, d.size])).toEqual([['TIME', T], ['lat', i1 - i0], ['lon', j1 - j0]]);
+    expect(b.getDataVariable('lat')).toEqual(LAT.slice(i0, i1));
+    expect(b.getDataVariable('lon')).toEqual(LON.slice(j0, j1));
+    expect(b.getDataVariable('TIME')).toEqual([0, 1, 2]);
+    expect(windowError((b.getDataVariable('precip') as number[][]).flat(), 0, T, i0, i1, j0, j1)).toBeLessThanOrEqual(E);
+  });
+
+  it('--region to .nc cuts the dimensions and coordinates by index', () => {
+    expect(rf(['unpack', 'm.rfz', '--var', 'precip', '--region', '4:8,0:5', '-o', 'r.nc'], t.dir).code).toBe(0);
+    const b = new NetCDFReader(readFileSync(join(t.dir, 'r.nc')));
+    expect(b.getDataVariable('lat')).toEqual(LAT.slice(4, 8));
+    expect(b.getDataVariable('lon')).toEqual(LON.slice(0, 5));
+  });
+
+  it('--where names that match no dimension, and ranges that select nothing, are refused with what there is', () => {
+    expectCliError(rf(['unpack', 'm.rfz', '--where', 'depth=0:10', '-o', 'x.npy'], t.dir), /field 'precip' has no dimension 'depth'; its dimensions are TIME, lat, lon/);
+    expectCliError(rf(['unpack', 'm.rfz', '--where', 'lat=85:90', '-o', 'x.npy'], t.dir), /--where lat=85:90 selects nothing: coordinate 'lat' runs from -83 to 83/);
+  });
+});

@@ -1,0 +1,144 @@
+/**
+ * NetCDF-4 and HDF5 input through h5wasm (src/io/hdf5-read.ts), checked
+ * against the netCDF library itself: a NetCDF-4 file made by Debian's
+ * netcdf-bin (`ncgen -k nc4`, then `nccopy` with deflate and chunking) must
+ * read as exactly what `nccopy -k classic` converts it to (same dimensions,
+ * variables, attributes and values, bit for bit). Groups, which classic
+ * files lack, and plain HDF5 files made by hdf5-tools (`h5import`,
+ * `h5repack` with GZIP and chunks) are checked against the values written.
+ * Data: vega-datasets data/volcano.json (61 x 87 heights in metres).
+ */
+import { execFileSync } from 'node:child_process';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { InputError } from '../../src/errors.js';
+import { netcdf4ToClassic, readHdf5AsClassic } from '../../src/io/hdf5-read.js';
+import { readNetcdfHeader, readNetcdfVariable } from '../../src/io/netcdf-read.js';
+import { cdlValues, haveNetcdfBin, NCCOPY, ncgen } from '../cdl.js';
+import { tempDir, volcano } from '../cli/helpers.js';
+import { haveSystemTools } from '../system-tools.js';
+
+const NC = haveNetcdfBin('the NetCDF-4 reading tests');
+const H5 = haveSystemTools('the HDF5 reading tests', 'hdf5-tools', ['/usr/bin/h5import', '/usr/bin/h5repack']);
+const g = volcano();
+let t: ReturnType<typeof tempDir>;
+beforeAll(() => {
+  t = tempDir('rankfield-h5-');
+});
+afterAll(() => t?.remove());
+
+const CDL = `netcdf run {
+dimensions:
+  time = UNLIMITED ;
+  y = 61 ;
+  x = 87 ;
+variables:
+  double time(time) ;
+    time:units = "days since 2000-01-01" ;
+  short height(time, y, x) ;
+    height:units = "m" ;
+    height:scale_factor = 0.01f ;
+    height:add_offset = 100.f ;
+    height:_FillValue = -32767s ;
+  float slope(y, x) ;
+    slope:_FillValue = -999.f ;
+    slope:missing_value = -888.f ;
+  :title = "volcano heights" ;
+  :Conventions = "CF-1.8" ;
+data:
+  time = 0, 1 ;
+  height = ${cdlValues([...g.values, ...g.values].map((h, i) => (i % 97 === 0 ? -32767 : Math.round((h - 100) * 100 + (i >= g.values.length ? 1 : 0)))))} ;
+  slope = ${cdlValues(g.values.map((h, i) => (i % 50 === 0 ? -999 : i % 77 === 0 ? -888 : h / 7)))} ;
+}
+`;
+
+describe.skipIf(!NC)('NetCDF-4 made by ncgen and nccopy', { timeout: 30_000 }, () => {
+  let nc4: string;
+  let packed: string;
+  let classic: string;
+  beforeAll(() => {
+    nc4 = ncgen(CDL, join(t.dir, 'run4.nc'), 'nc4');
+    packed = join(t.dir, 'run4z.nc');
+    classic = join(t.dir, 'run3.nc');
+    // Deflate level 5 and 1 x 16 x 16 chunks, then the netCDF library's own conversion to classic.
+    execFileSync(NCCOPY, ['-k', 'nc4', '-d', '5', '-c', 'time/1,y/16,x/16', nc4, packed]);
+    execFileSync(NCCOPY, ['-k', 'classic', nc4, classic]);
+  });
+
+  it.each([
+    ['as written by ncgen', () => nc4],
+    ['chunked and deflated by nccopy', () => packed],
+  ])('reads %s as nccopy -k classic converts it: dims, variables, attributes, values', async (_what, file) => {
+    const ours = await netcdf4ToClassic(file());
+    const ref = new Uint8Array(readFileSync(classic));
+    const a = readNetcdfHeader(ours, 'ours');
+    const b = readNetcdfHeader(ref, 'nccopy');
+    expect(a.dims.map((d) => [d.name, d.size, d.unlimited])).toEqual(b.dims.map((d) => [d.name, d.size, d.unlimited]));
+    expect(a.globalAttrs).toEqual(Object.fromEntries(Object.entries(b.globalAttrs).filter(([k]) => k !== '_NCProperties')));
+    expect(a.variables.map((v) => [v.name, v.type, v.dims])).toEqual(b.variables.map((v) => [v.name, v.type, v.dims]));
+    for (const v of a.variables) {
+      const w = b.variables.find((x) => x.name === v.name)!;
+      expect([v.attrs, v.attrTypes]).toEqual([w.attrs, w.attrTypes]);
+      if (v.shape.length < 2) continue;
+      const x = readNetcdfVariable(ours, a, v.name);
+      const y = readNetcdfVariable(ref, b, v.name);
+      expect(Buffer.from(x.values.buffer).equals(Buffer.from(y.values.buffer)), v.name).toBe(true);
+    }
+  });
+
+  it('reads groups, naming their variables GROUP.NAME', async () => {
+    const cdl = `netcdf grouped {
+dimensions:
+  y = 2 ;
+  x = 3 ;
+variables:
+  float top(y, x) ;
+data:
+  top = 1, 2, 3, 4, 5, 6 ;
+group: ocean {
+  variables:
+    double depth(y, x) ;
+      depth:units = "m" ;
+  data:
+    depth = 10, 20, 30, 40, 50, 60 ;
+  }
+}
+`;
+    const f = await readHdf5AsClassic(ncgen(cdl, join(t.dir, 'grouped.nc'), 'nc4'));
+    const depth = f.variables.find((v) => v.name === 'ocean.depth')!;
+    expect([depth.dims, depth.attrs, Array.from(depth.values as Float64Array)]).toEqual([['y', 'x'], { units: 'm' }, [10, 20, 30, 40, 50, 60]]);
+  });
+
+  it('refuses a string variable with one InputError naming it', async () => {
+    const cdl = 'netcdf s {\ndimensions:\n  n = 2 ;\nvariables:\n  string label(n) ;\ndata:\n  label = "a", "b" ;\n}\n';
+    const file = ncgen(cdl, join(t.dir, 'strings.nc'), 'nc4');
+    await expect(readHdf5AsClassic(file)).rejects.toThrow(InputError);
+    await expect(readHdf5AsClassic(file)).rejects.toThrow(/variable '\/label' holds strings/);
+  });
+});
+
+describe.skipIf(!H5)('plain HDF5 made by hdf5-tools', { timeout: 30_000 }, () => {
+  it('h5import, then h5repack with GZIP and 16 x 16 chunks: the values read back exactly, dims named after the dataset', async () => {
+    const txt = join(t.dir, 'heights.txt');
+    writeFileSync(txt, Array.from(g.values, String).join(' '));
+    // h5import configuration keywords (HDF5 tools documentation, h5import; from memory).
+    const cfg = join(t.dir, 'heights.cfg');
+    writeFileSync(cfg, 'PATH /grid/height\nINPUT-CLASS TEXTFP\nRANK 2\nDIMENSION-SIZES 61 87\nOUTPUT-CLASS FP\nOUTPUT-SIZE 64\n');
+    const plain = join(t.dir, 'plain.h5');
+    const zipped = join(t.dir, 'zipped.h5');
+    execFileSync('/usr/bin/h5import', [txt, '-c', cfg, '-o', plain]);
+    execFileSync('/usr/bin/h5repack', ['-f', 'GZIP=5', '-l', 'CHUNK=16x16', plain, zipped]);
+    const f = await readHdf5AsClassic(zipped);
+    expect(f.variables.map((v) => [v.name, v.dims, v.type])).toEqual([['grid.height', ['grid.height_dim0', 'grid.height_dim1'], 'double']]);
+    expect(Array.from(f.variables[0].values as Float64Array)).toEqual(Array.from(g.values));
+  });
+});
+
+describe('not HDF5', () => {
+  it('a file that is not HDF5 is one InputError', async () => {
+    const junk = join(t.dir, 'junk.h5');
+    writeFileSync(junk, 'not an hdf5 file at all');
+    await expect(readHdf5AsClassic(junk)).rejects.toThrow(/junk\.h5: not a readable HDF5 file/);
+  });
+});
