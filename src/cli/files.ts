@@ -18,7 +18,7 @@ import { hostname } from 'node:os';
 import { basename, dirname, join, resolve } from 'node:path';
 import { parentPort, workerData } from 'node:worker_threads';
 import { HttpSource } from '../format/http-source.js';
-import { open, type Archive, type Sink } from '../index.js';
+import { open, type Archive, type ByteSource, type Sink } from '../index.js';
 import { FileSink } from '../io/file-sink.js';
 import { FileSource } from '../io/file-source.js';
 import { fileKind, openRegular } from '../io/regular-file.js';
@@ -195,10 +195,19 @@ export async function readInput(path: string): Promise<Uint8Array> {
  * caller closes it. Only the tail, header and index are read here.
  */
 export async function openArchive(path: string): Promise<Archive> {
+  return (await openArchiveSource(path)).archive;
+}
+
+/**
+ * {@link openArchive}, also giving the byte source the archive reads, so a
+ * caller can read more of the same file through the same open file (another
+ * open of the path could meet a file that has been replaced in between).
+ */
+export async function openArchiveSource(path: string): Promise<{ archive: Archive; src: ByteSource }> {
   if (isUrl(path)) {
     const src = new HttpSource(path, httpOptions());
     try {
-      return await open(src);
+      return { archive: await open(src), src };
     } catch (e) {
       await src.close();
       throw e;
@@ -213,7 +222,7 @@ export async function openArchive(path: string): Promise<Archive> {
   }
   try {
     if ((await src.size()) === 0) throw emptyFile(path);
-    return await open(src);
+    return { archive: await open(src), src };
   } catch (e) {
     await src.close();
     throw fileError(e, 'read', path);

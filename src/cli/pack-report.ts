@@ -5,9 +5,9 @@
  */
 import { availableParallelism } from 'node:os';
 import { printable } from '../format/schema.js';
-import { openArchive } from './files.js';
+import { openArchiveSource } from './files.js';
 import { archiveFacts, type ArchiveFacts, type FieldFacts } from './show.js';
-import { fileShares, sharesText, tileUseText } from './summary.js';
+import { byteShares, sharesText, tileUseText, type ByteShares } from './summary.js';
 
 /** What pack chose itself, and what the user fixed. */
 export interface PackChoices {
@@ -36,10 +36,13 @@ export function packChoices(tile: unknown, layout: PackChoices['layout'], given:
 
 /** The facts of a freshly written archive file, with its payload bytes counted by role. */
 export async function writtenFacts(path: string): Promise<ArchiveFacts> {
-  const archive = await openArchive(path);
+  // One open file for the index and the payloads: a concurrent `pack --force` may replace the path meanwhile.
+  const { archive, src } = await openArchiveSource(path);
   try {
     const ix = await archive.loadIndex();
-    return archiveFacts(archive, path, await fileShares(path, ix.fields));
+    const shares: ByteShares[] = [];
+    for (const f of ix.fields) shares.push(await byteShares(src, f, path));
+    return archiveFacts(archive, path, shares);
   } finally {
     await archive.close();
   }
