@@ -9,6 +9,7 @@
 import { measure } from './measure.js';
 import { forEachTile, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
+import { singularValues } from '../linalg/svd.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { encodeL2, encodePointwise, exactPayload, rankZeroForMse } from './tile-encode.js';
 
@@ -73,8 +74,9 @@ export function keepsTiles(spec: Pick<FieldSpec, 'rows' | 'cols' | 'slices'>): b
 export function firstPassTile(tile: FloatArray, m: number, n: number, spec: Pick<FieldSpec, 'dtype' | 'progressive'>, fill: Uint32Array | null, tol: number, keep: boolean): FirstPassTile {
   const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
   const usable = t.valid > 0 && t.finite;
-  // The full spectrum (ensureSvd's default): cutting the field-wide smallest values needs every one of them.
-  const s = usable ? ensureSvd(t).s : new Float64Array(0);
+  // The full spectrum: cutting the field-wide smallest values needs every one of them. A kept tile
+  // keeps its whole SVD for the second pass; otherwise the values alone are computed (bit for bit the same).
+  const s = !usable ? new Float64Array(0) : keep ? ensureSvd(t).s : singularValues(t.centred, m, n);
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
 }
 

@@ -13,11 +13,12 @@ export const MAX_SWEEPS = 60;
  * Orthogonalizes the columns of the column-major rows x cols matrix x by
  * plane rotations from the right, and applies the same rotations to the
  * column-major cols x cols matrix v (pass the identity to get the
- * accumulated orthogonal factor). Stops after the first sweep in which no
+ * accumulated orthogonal factor, or null when only the column norms, the
+ * singular values, are wanted: the rotations of x are the same either way). Stops after the first sweep in which no
  * pair needed a rotation, or after {@link MAX_SWEEPS}. Entries must be O(1)
  * in magnitude (no overflow of squares). Returns the number of sweeps run.
  */
-export function jacobi(x: Float64Array, rows: number, cols: number, v: Float64Array): number {
+export function jacobi(x: Float64Array, rows: number, cols: number, v: Float64Array | null): number {
   const d = new Float64Array(cols); // squared column norms, kept exact
   for (let j = 0; j < cols; j++) d[j] = sumSquares(x, j * rows, rows);
   const end4 = rows - (rows & 3);
@@ -90,12 +91,14 @@ export function jacobi(x: Float64Array, rows: number, cols: number, v: Float64Ar
         d[p] = np0 + np1;
         d[q] = nq0 + nq1;
 
-        const qv = q * cols;
-        for (let r = 0; r < cols; r++) {
-          const y = v[pv + r];
-          const z = v[qv + r];
-          v[pv + r] = c * y - s * z;
-          v[qv + r] = s * y + c * z;
+        if (v !== null) {
+          const qv = q * cols;
+          for (let r = 0; r < cols; r++) {
+            const y = v[pv + r];
+            const z = v[qv + r];
+            v[pv + r] = c * y - s * z;
+            v[qv + r] = s * y + c * z;
+          }
         }
         rotated = true;
       }

@@ -8,7 +8,7 @@
 
 import { jacobi } from './jacobi.js';
 import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
-import { applyQ, qrcp, sumSquares } from './qrcp.js';
+import { applyQ, qrcp, sumSquares, type Qrcp } from './qrcp.js';
 import { checkShape } from './shape.js';
 
 
@@ -72,47 +72,16 @@ export function svd(a: Float64Array, m: number, n: number): Svd {
   const u = new Float64Array(m * k);
   const s = new Float64Array(k);
   const v = new Float64Array(n * k);
-
-  const amax = maxAbs(a);
-  if (amax !== amax) {
+  const red = reduce(a, m, n, true);
+  if (red === 'nan') {
     u.fill(NaN);
     s.fill(NaN);
     v.fill(NaN);
     return { m, n, k, u, s, v };
   }
-  if (amax === 0) return { m, n, k, u, s, v };
-  const e = exponentOf(amax);
-
-  // Column-major M x N working copy of a (tall) or a^T (wide), scaled by 2^-e.
-  const w = new Float64Array(M * N);
-  if (tall) {
-    const h = Math.trunc(-e / 2);
-    const f1 = 2 ** h;
-    const f2 = 2 ** (-e - h);
-    for (let i = 0; i < m; i++) {
-      const row = i * n;
-      for (let j = 0; j < n; j++) w[j * M + i] = a[row + j] * f1 * f2;
-    }
-  } else {
-    scaleByPow2(a, w, -e); // row j of a is column j of a^T
-  }
-
-  // w P = Q R, R of rank r (trailing block dropped).
-  const total = sumSquares(w, 0, M * N);
-  const qr = qrcp(w, M, N, DROP * DROP * total);
+  if (red === 'zero') return { m, n, k, u, s, v };
+  const { w, qr, x, vx, e } = red;
   const r = qr.rank;
-
-  // x = R^T (N x r, column-major): column i is row i of R.
-  const x = new Float64Array(N * r);
-  for (let i = 0; i < r; i++) {
-    const xo = i * N;
-    for (let j = i; j < N; j++) x[xo + j] = w[j * M + i];
-  }
-  const vx = new Float64Array(r * r);
-  for (let j = 0; j < r; j++) vx[j * r + j] = 1;
-  // x vx = Ux diag(sigma), so a = (Q vx) diag(sigma) (P Ux)^T.
-  jacobi(x, N, r, vx);
-
   const norms = new Float64Array(r);
   for (let j = 0; j < r; j++) norms[j] = Math.sqrt(sumSquares(x, j * N, N));
   const order = new Array<number>(r);
@@ -144,4 +113,68 @@ export function svd(a: Float64Array, m: number, n: number): Svd {
     for (let t = 0; t < N; t++) short[perm[t] * k + jj] = x[xo + t] * inv;
   }
   return { m, n, k, u, s, v };
+}
+
+/** The pivoted-QR and Jacobi stages shared by {@link svd} and {@link singularValues}. */
+function reduce(a: Float64Array, m: number, n: number, vectors: boolean): 'nan' | 'zero' | { w: Float64Array; qr: Qrcp; x: Float64Array; vx: Float64Array; e: number } {
+  const tall = m >= n;
+  const M = tall ? m : n;
+  const N = tall ? n : m;
+  const amax = maxAbs(a);
+  if (amax !== amax) return 'nan';
+  if (amax === 0) return 'zero';
+  const e = exponentOf(amax);
+
+  // Column-major M x N working copy of a (tall) or a^T (wide), scaled by 2^-e.
+  const w = new Float64Array(M * N);
+  if (tall) {
+    const h = Math.trunc(-e / 2);
+    const f1 = 2 ** h;
+    const f2 = 2 ** (-e - h);
+    for (let i = 0; i < m; i++) {
+      const row = i * n;
+      for (let j = 0; j < n; j++) w[j * M + i] = a[row + j] * f1 * f2;
+    }
+  } else {
+    scaleByPow2(a, w, -e); // row j of a is column j of a^T
+  }
+
+  // w P = Q R, R of rank r (trailing block dropped).
+  const total = sumSquares(w, 0, M * N);
+  const qr = qrcp(w, M, N, DROP * DROP * total);
+  const r = qr.rank;
+
+  // x = R^T (N x r, column-major): column i is row i of R.
+  const x = new Float64Array(N * r);
+  for (let i = 0; i < r; i++) {
+    const xo = i * N;
+    for (let j = i; j < N; j++) x[xo + j] = w[j * M + i];
+  }
+  const vx = new Float64Array(vectors ? r * r : 0);
+  for (let j = 0; vectors && j < r; j++) vx[j * r + j] = 1;
+  // x vx = Ux diag(sigma), so a = (Q vx) diag(sigma) (P Ux)^T.
+  jacobi(x, N, r, vectors ? vx : null);
+  return { w, qr, x, vx, e };
+}
+
+/**
+ * The singular values of the row-major m x n matrix `a`, in decreasing
+ * order, min(m, n) of them: bit for bit those {@link svd} returns (the same
+ * rotations), without the work of the singular vectors.
+ */
+export function singularValues(a: Float64Array, m: number, n: number): Float64Array {
+  checkShape(a.length, m, n, 'singularValues');
+  const N = Math.min(m, n);
+  const s = new Float64Array(N);
+  const red = reduce(a, m, n, false);
+  if (red === 'nan') return s.fill(NaN);
+  if (red === 'zero') return s;
+  const { x, qr, e } = red;
+  const r = qr.rank;
+  const norms = new Float64Array(r);
+  for (let j = 0; j < r; j++) norms[j] = Math.sqrt(sumSquares(x, j * N, N));
+  const sorted = Array.from(norms).sort((p, q) => q - p);
+  const top = sorted[0];
+  for (let jj = 0; jj < r; jj++) if (sorted[jj] > FLUSH * top) s[jj] = mulPow2(sorted[jj], e);
+  return s;
 }

@@ -2,7 +2,7 @@ import { Matrix, SingularValueDecomposition, solve } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { InputError } from '../../src/errors.js';
 import { solveSpd } from '../../src/linalg/spd.js';
-import { svd, type Svd } from '../../src/linalg/svd.js';
+import { singularValues, svd, type Svd } from '../../src/linalg/svd.js';
 import { mulberry32 } from '../rng.js';
 
 
@@ -444,5 +444,33 @@ describe('solveSpd', () => {
     for (const v of x) expect(v).toBeNaN();
     expect(() => solveSpd(new Float64Array(3), 2, new Float64Array(2), 1)).toThrow(InputError);
     expect(() => solveSpd(new Float64Array(4), 2, new Float64Array(3), 1)).toThrow(InputError);
+  });
+});
+
+describe('singularValues', () => {
+  it('gives bit for bit the values svd gives, and matches ml-matrix to rounding', () => {
+    const rng = mulberry32(91);
+    for (const [m, n, rank] of [
+      [40, 30, 30],
+      [30, 40, 5],
+      [64, 64, 64],
+      [7, 120, 3],
+      [1, 9, 1],
+    ]) {
+      // A rank-`rank` matrix plus nothing, or full rank: a product of random factors.
+      const a = new Float64Array(m * n);
+      for (let k = 0; k < rank; k++) {
+        const u = Array.from({ length: m }, () => rng() - 0.5);
+        const v = Array.from({ length: n }, () => rng() - 0.5);
+        for (let i = 0; i < m; i++) for (let j = 0; j < n; j++) a[i * n + j] += u[i] * v[j] * 2 ** -k;
+      }
+      const got = singularValues(a, m, n);
+      expect(Array.from(got)).toEqual(Array.from(svd(a, m, n).s));
+      // Reference library: ml-matrix's SVD (Golub-Kahan-Reinsch, after JAMA).
+      const ref = new SingularValueDecomposition(new Matrix(Array.from({ length: m }, (_, i) => Array.from(a.subarray(i * n, (i + 1) * n)))), { autoTranspose: true }).diagonal;
+      for (let k = 0; k < Math.min(m, n); k++) expect(Math.abs(got[k] - ref[k])).toBeLessThanOrEqual(1e-12 * ref[0]);
+    }
+    expect(Array.from(singularValues(new Float64Array(6), 2, 3))).toEqual([0, 0]);
+    expect(Array.from(singularValues(Float64Array.of(1, NaN, 0, 0), 2, 2)).every(Number.isNaN)).toBe(true);
   });
 });
