@@ -2,14 +2,13 @@
 import type { Command } from 'commander';
 import { METHOD_NAMES, Method } from '../codec/payload.js';
 import { formatBound, isPointwise, type Archive, type Attrs } from '../index.js';
-import { openArchive } from './files.js';
+import { isUrl, openArchiveSource } from './files.js';
 import { bytesText, num, rawBytes } from './format.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
 import { carriedNames, KEY } from './netcdf.js';
 import { Output, type OutputFlags } from './output.js';
-import { fileShares, sharesText, tileUse, tileUseText, type ByteShares, type TileUse } from './summary.js';
-import { isUrl } from './files.js';
+import { byteShares, sharesText, tileUse, tileUseText, type ByteShares, type TileUse } from './summary.js';
 
 /** The facts `show` reports about one field. */
 export interface FieldFacts {
@@ -210,10 +209,15 @@ export function registerShow(program: Command, ctx: Context): void {
     .option('--json', 'print one JSON object with the same facts, unrounded')
     .action(async (input: string, flags: OutputFlags) => {
       const out = new Output(ctx, flags);
-      const archive = await openArchive(input);
+      // The payloads are read through the archive's own open file, so the index and the payloads are of one archive.
+      const { archive, src } = await openArchiveSource(input);
       try {
         const ix = await archive.loadIndex();
-        const shares = isUrl(input) ? null : await fileShares(input, ix.fields);
+        let shares: ByteShares[] | null = null;
+        if (!isUrl(input)) {
+          shares = [];
+          for (const f of ix.fields) shares.push(await byteShares(src, f, input));
+        }
         const facts = archiveFacts(archive, input, shares);
         out.result({ command: 'show', ...facts });
         out.text(factsText(facts));

@@ -7,8 +7,6 @@
 import { payloadShares } from '../codec/payload.js';
 import { FormatCode, FormatError, Method, type ByteSource, type FieldIndex } from '../index.js';
 import { readRanges } from '../format/source.js';
-import { FileSource } from '../io/file-source.js';
-import { fileError } from './errors.js';
 
 /** How the tiles of a field are stored. */
 export interface TileUse {
@@ -75,23 +73,6 @@ export async function byteShares(source: ByteSource, ix: Pick<FieldIndex, 'offse
     });
   }
   return out;
-}
-
-/** Byte shares of every field of a local archive file (one read pass over its payloads). */
-export async function fileShares(path: string, fields: Pick<FieldIndex, 'offset' | 'length'>[]): Promise<ByteShares[]> {
-  let src: FileSource;
-  try {
-    src = await FileSource.open(path);
-  } catch (e) {
-    throw fileError(e, 'read', path);
-  }
-  try {
-    const out: ByteShares[] = [];
-    for (const ix of fields) out.push(await byteShares(src, ix, path));
-    return out;
-  } finally {
-    await src.close();
-  }
 }
 
 /** "12 of 40 tiles (30%) use a low-rank part, mean rank 2.3; 28 are residual only (rank 0); 0 stored exactly" */
