@@ -91,22 +91,50 @@ export function slicesOption(text: string): [number | undefined, number | undefi
 /** Most values written to .csv without --force. */
 export const CSV_LIMIT = 1_000_000;
 
-/** C-order values as CSV: a 2-D window as a matrix; more axes as one line per value with its indexes. */
+/**
+ * C-order values as CSV: a 2-D window as a matrix; more axes as one line per
+ * value with its indexes. The text is encoded a few thousand lines at a time,
+ * so no single string grows past what the runtime allows (about 2^29
+ * characters in V8) however many values are written.
+ */
 export function formatCsv(values: Float32Array | Float64Array, shape: number[], dims: string[]): Uint8Array {
-  const out: string[] = [];
+  const encoder = new TextEncoder();
+  const chunks: Uint8Array[] = [];
+  let lines: string[] = [];
+  let chars = 0;
+  const push = (line: string) => {
+    lines.push(line);
+    chars += line.length + 1;
+    if (chars >= CSV_CHUNK) flush();
+  };
+  const flush = () => {
+    if (lines.length > 0) chunks.push(encoder.encode(lines.join('\n') + '\n'));
+    lines = [];
+    chars = 0;
+  };
   if (shape.length === 2) {
     const [r, c] = shape;
-    for (let i = 0; i < r; i++) out.push(Array.from(values.subarray(i * c, (i + 1) * c), (x) => String(x)).join(','));
+    for (let i = 0; i < r; i++) push(Array.from(values.subarray(i * c, (i + 1) * c), (x) => String(x)).join(','));
   } else {
-    out.push([...dims, 'value'].map((d) => (/[",\n]/.test(d) ? `"${d.replace(/"/g, '""')}"` : d)).join(','));
+    push([...dims, 'value'].map((d) => (/[",\n]/.test(d) ? `"${d.replace(/"/g, '""')}"` : d)).join(','));
     const idx = new Array<number>(shape.length).fill(0);
     for (let k = 0; k < values.length; k++) {
-      out.push(`${idx.join(',')},${String(values[k])}`);
+      push(`${idx.join(',')},${String(values[k])}`);
       for (let a = shape.length - 1; a >= 0 && ++idx[a] === shape[a]; a--) idx[a] = 0;
     }
   }
-  return new TextEncoder().encode(out.join('\n') + '\n');
+  flush();
+  const out = new Uint8Array(chunks.reduce((n, b) => n + b.length, 0));
+  let at = 0;
+  for (const b of chunks) {
+    out.set(b, at);
+    at += b.length;
+  }
+  return out;
 }
+
+/** Characters of CSV text encoded at once. */
+const CSV_CHUNK = 1 << 20;
 
 export function regionOption(text: string): Region {
   const parts = text.split(',');
