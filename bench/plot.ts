@@ -6,6 +6,7 @@
  */
 import { encode } from 'fast-png';
 import { glyph, GLYPH_W } from '../src/picture/font.js';
+import { wrap } from '../src/picture/raster.js';
 
 export type Rgb = [number, number, number];
 export type Marker = 'square' | 'circle' | 'triangle' | 'diamond' | 'cross' | 'plus';
@@ -152,20 +153,6 @@ export class Canvas {
   png(): Uint8Array {
     return encode({ width: this.width, height: this.height, data: this.data, channels: 3, depth: 8 });
   }
-}
-
-/** Break text at spaces into lines of at most `width` characters. */
-export function wrap(text: string, width: number): string[] {
-  const lines: string[] = [];
-  let line = '';
-  for (const word of text.split(' ')) {
-    if (line && line.length + 1 + word.length > width) {
-      lines.push(line);
-      line = word;
-    } else line = line ? `${line} ${word}` : word;
-  }
-  if (line) lines.push(line);
-  return lines;
 }
 
 /** Round to 1, 2 or 5 times a power of ten. */

@@ -37,7 +37,8 @@ const H5T_STRING = 3;
 const HIDDEN = new Set(['CLASS', 'NAME', 'REFERENCE_LIST', 'DIMENSION_LIST', '_Netcdf4Coordinates', '_Netcdf4Dimid', '_NCProperties', '_nc3_strict', '_IsNetcdf4']);
 const DIM_ONLY = 'This is a netCDF dimension but not a netCDF variable';
 
-type H5 = typeof import('h5wasm/node').default;
+/** The h5wasm module (Node build). */
+export type H5 = typeof import('h5wasm/node').default;
 type Meta = { type: number; size: number; signed: boolean; maxshape: number[] | null; shape: number[] | null };
 type H5Attr = { metadata: Meta; value: unknown };
 type H5Node = {
@@ -53,8 +54,8 @@ type H5Node = {
 
 let loading: Promise<H5> | null = null;
 
-/** h5wasm, loaded once (its WebAssembly module takes a moment to start). */
-async function h5(): Promise<H5> {
+/** h5wasm, loaded once for reading and writing (its WebAssembly module takes a moment to start). */
+export async function h5(): Promise<H5> {
   loading ??= import('h5wasm/node').then(async (m) => {
     await m.default.ready;
     return m.default;

@@ -10,11 +10,10 @@
  * strings (read back as char), links kept in creation order.
  */
 import { InputCode, InputError } from '../errors.js';
-import { hdf5Reason, quietly } from './hdf5-read.js';
+import { h5, hdf5Reason, quietly, type H5 } from './hdf5-read.js';
 import type { NcAttrValue, NcType } from './netcdf-types.js';
 import type { NcWriteFile, NcWriteValues } from './netcdf-write.js';
 
-type H5 = typeof import('h5wasm/node').default;
 type H5Dataset = {
   make_scale(name?: string): void;
   attach_scale(index: number, path: string): void;
@@ -27,15 +26,6 @@ type H5File = H5Dataset & {
 
 const DTYPE: Record<NcType, string> = { byte: '<b', char: 'S1', short: '<h', int: '<i', float: '<f', double: '<d' };
 const DIM_ONLY = 'This is a netCDF dimension but not a netCDF variable.';
-
-let loading: Promise<H5> | null = null;
-async function h5(): Promise<H5> {
-  loading ??= import('h5wasm/node').then(async (m) => {
-    await m.default.ready;
-    return m.default;
-  });
-  return loading;
-}
 
 /** Values as the typed array (or one-character strings, for char) h5wasm writes for `type`. */
 function data(values: NcWriteValues, type: NcType): unknown {
