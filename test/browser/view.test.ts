@@ -20,9 +20,9 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ArchiveBuilder, MemorySink, open, type Archive, type FieldHeader } from '../../src/index.js';
 import { mapColour, MISSING } from '../../src/picture/colormap.js';
 import { precip } from '../archive/datasets.js';
-import { ensureBuilt, ensureBundled, ROOT, rfStart, tempDir, type ChildResult } from '../cli/helpers.js';
+import { ensureBuilt, ensureBundled, ROOT, tempDir } from '../cli/helpers.js';
 import { haveSystemTools } from '../system-tools.js';
-import type { ChildProcess } from 'node:child_process';
+import { startView, type RunningView } from '../view/start.js';
 
 const CHROMIUM = '/usr/bin/chromium';
 /** .ci/run installs chromium and sets RANKFIELD_SYSTEM_TESTS=required, so that a missing browser fails CI instead of skipping. */
@@ -114,12 +114,12 @@ describe.skipIf(!RUN)('rankfield view in headless Chromium', () => {
   const bytes = archiveBytes();
   let node: Archive;
   let tmp: ReturnType<typeof tempDir>;
-  let viewer: { child: ChildProcess; done: Promise<ChildResult> };
+  let viewer: RunningView;
   let url = '';
   let context: BrowserContext | null = null;
   let page: Page;
   const errors: string[] = [];
-  const logLines = () => (viewer.child as ChildProcess & { stderrText?: string }).stderrText?.split('\n') ?? [];
+  const logLines = () => viewer.stderr().split('\n');
 
   beforeAll(async () => {
     ensureBuilt();
@@ -129,22 +129,8 @@ describe.skipIf(!RUN)('rankfield view in headless Chromium', () => {
     tmp = tempDir('rankfield-view-');
     const file = join(tmp.dir, 'precip.rfz');
     writeFileSync(file, bytes);
-    viewer = rfStart(['view', file, '--log', '--json'], tmp.dir);
-    const child = viewer.child as ChildProcess & { stderrText?: string };
-    child.stderrText = '';
-    child.stderr!.on('data', (d: Buffer) => (child.stderrText += d.toString()));
-    url = await new Promise<string>((resolve, reject) => {
-      let text = '';
-      child.stdout!.on('data', (d: Buffer) => {
-        text += d.toString();
-        try {
-          resolve((JSON.parse(text) as { url: string }).url);
-        } catch {
-          // not all of it yet
-        }
-      });
-      child.on('close', (code) => reject(new Error(`view ended with ${code}: ${child.stderrText}`)));
-    });
+    viewer = await startView([file, '--log'], tmp.dir);
+    url = viewer.url;
     context = await chromium.launchPersistentContext(join(tmp.dir, 'profile'), {
       executablePath: CHROMIUM,
       headless: true,
