@@ -120,7 +120,7 @@ function reportText(r: CheckReport, headers: FieldHeader[], input: string, again
 /** Run a check with a progress bar over the tiles of every field. */
 async function withBar(out: Output, archive: Archive, run: (onProgress: (done: number, total: number) => void) => Promise<CheckReport>): Promise<CheckReport> {
   const raw = archive.header.fields.reduce((a, h) => a + rawBytes(h), 0);
-  const bar = out.tileProgress('checking', raw);
+  const bar = out.tileProgress('checking', raw, 'reading the index and the first tiles');
   try {
     return await run(bar.onProgress);
   } finally {

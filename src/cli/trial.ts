@@ -156,7 +156,7 @@ async function readSample(
 
 /** Pack the sample at one bound, read it back and measure it. */
 async function tryBound(sample: FloatArray, shape: [number, number], range: [number, number] | null, bound: Bound, flags: TrialFlags, out: Output, pictures: string | null, io: { force: boolean; inputs: string[] }): Promise<TrialRow> {
-  const bar = out.tileProgress(`trial ${formatBound(bound)}`, sample.byteLength);
+  const bar = out.tileProgress(`trial ${formatBound(bound)}`, sample.byteLength, 'planning the tiles');
   // rel and psnr are resolved against the whole field's range, not the sample's: the E a pack of the field would use.
   const span = range ? range[1] - range[0] : 0;
   const pointwise = isPointwise(bound.mode);
