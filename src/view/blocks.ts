@@ -25,6 +25,9 @@ import { readWindow, type PlaneLayout } from './plane.js';
  */
 export const COARSE_BOUND = 'psnr:30';
 
+/** Window reads in flight at once (each may fetch several ranges in one request). */
+export const RUNS_IN_FLIGHT = 4;
+
 /** Most cells the cache keeps (about 64 MB of float64); the least recently drawn blocks go first. */
 export const CACHE_CELLS = 8 << 20;
 
@@ -58,6 +61,8 @@ export class BlockStore {
   private readonly cache = new Map<string, Block>();
   private readonly pending = new Map<string, Promise<void>>();
   private cells = 0;
+  private running = 0;
+  private readonly queue: (() => void)[] = [];
   /** False once a coarse read found no prefix to use: the archive records none (or none that help). */
   private progressive = true;
   readonly tally: LoadTally = { reads: 0, coarseReads: 0, prefixTiles: 0 };
@@ -120,34 +125,64 @@ export class BlockStore {
    */
   async load(p: number, want: readonly [number, number][], k: number, drawn: () => void, current: () => boolean): Promise<void> {
     if (this.progressive) {
-      await this.pass(p, want.filter(([bi, bj]) => !this.hasCoarse(p, bi, bj, k)), k, true, drawn);
+      await this.readPass(p, want, k, true, drawn, current);
       if (!current()) return;
     }
-    await this.pass(p, want.filter(([bi, bj]) => !this.full(p, bi, bj, k)), k, false, drawn);
+    await this.readPass(p, want, k, false, drawn, current);
   }
 
-  /** Read `blocks` in runs along each row of blocks, at once; wait for those another pass is reading. */
-  private async pass(p: number, blocks: readonly [number, number][], k: number, coarse: boolean, drawn: () => void): Promise<void> {
-    const waits: Promise<void>[] = [];
-    const fresh: [number, number][] = [];
-    for (const [bi, bj] of blocks) {
-      const w = this.pending.get(this.key(p, bi, bj, k, coarse)) ?? this.pending.get(this.key(p, bi, bj, k, false));
-      if (w !== undefined) waits.push(w);
-      else fresh.push([bi, bj]);
+  /** True when (p, bi, bj) is held as a pass of this quality needs it at step k. */
+  private held(p: number, bi: number, bj: number, k: number, coarse: boolean): boolean {
+    return coarse ? this.hasCoarse(p, bi, bj, k) : this.full(p, bi, bj, k);
+  }
+
+  /**
+   * Read those of `blocks` not yet held, in runs along each row of blocks,
+   * at most {@link RUNS_IN_FLIGHT} at once; blocks another pass is reading
+   * are waited for. A run still queued when the view has moved on is not
+   * read; a pass that waited for it reads what is still missing itself.
+   */
+  async readPass(p: number, blocks: readonly [number, number][], k: number, coarse: boolean, drawn: () => void, current: () => boolean): Promise<void> {
+    for (let round = 0; round < 3 && current(); round++) {
+      const missing = blocks.filter(([bi, bj]) => !this.held(p, bi, bj, k, coarse));
+      if (missing.length === 0) return;
+      const waits: Promise<void>[] = [];
+      const fresh: [number, number][] = [];
+      for (const [bi, bj] of missing) {
+        const w = this.pending.get(this.key(p, bi, bj, k, coarse)) ?? this.pending.get(this.key(p, bi, bj, k, false));
+        if (w !== undefined) waits.push(w);
+        else fresh.push([bi, bj]);
+      }
+      fresh.sort((a, b) => a[0] - b[0] || a[1] - b[1]);
+      for (let i = 0; i < fresh.length; ) {
+        let j = i + 1;
+        while (j < fresh.length && fresh[j][0] === fresh[i][0] && fresh[j][1] === fresh[j - 1][1] + 1) j++;
+        const run = fresh.slice(i, j);
+        const job = this.slot(async () => {
+          if (!current()) return;
+          await this.readRun(p, run[0][0], run[0][1], run[run.length - 1][1] + 1, k, coarse);
+          drawn();
+        });
+        for (const [bi, bj] of run) this.pending.set(this.key(p, bi, bj, k, coarse), job);
+        const clear = () => run.forEach(([bi, bj]) => this.pending.get(this.key(p, bi, bj, k, coarse)) === job && this.pending.delete(this.key(p, bi, bj, k, coarse)));
+        job.then(clear, clear);
+        waits.push(job);
+        i = j;
+      }
+      await Promise.all(waits);
     }
-    fresh.sort((a, b) => a[0] - b[0] || a[1] - b[1]);
-    for (let i = 0; i < fresh.length; ) {
-      let j = i + 1;
-      while (j < fresh.length && fresh[j][0] === fresh[i][0] && fresh[j][1] === fresh[j - 1][1] + 1) j++;
-      const run = fresh.slice(i, j);
-      const job = this.readRun(p, run[0][0], run[0][1], run[run.length - 1][1] + 1, k, coarse).then(drawn);
-      for (const [bi, bj] of run) this.pending.set(this.key(p, bi, bj, k, coarse), job);
-      const clear = () => run.forEach(([bi, bj]) => this.pending.delete(this.key(p, bi, bj, k, coarse)));
-      job.then(clear, clear);
-      waits.push(job);
-      i = j;
+  }
+
+  /** Run `task` when fewer than {@link RUNS_IN_FLIGHT} tasks are running. */
+  private async slot(task: () => Promise<void>): Promise<void> {
+    while (this.running >= RUNS_IN_FLIGHT) await new Promise<void>((resolve) => this.queue.push(resolve));
+    this.running++;
+    try {
+      await task();
+    } finally {
+      this.running--;
+      this.queue.shift()?.();
     }
-    await Promise.all(waits);
   }
 
   /** Read blocks [bj0, bj1) of block row bi of plane p in one window, and keep each at step k. */

@@ -264,6 +264,7 @@ class Viewer {
     const coarse = t.coarseReads > 0 ? `, ${t.coarseReads} of them coarse first (${t.prefixTiles} tiles from payload prefixes at ${COARSE_BOUND})` : '';
     $('status').textContent = `${blocks}; ${t.reads} window read${t.reads === 1 ? '' : 's'} of '${this.h.name}' so far${coarse}`;
     $('traffic').textContent = `${this.source.requests} HTTP requests, ${(this.source.bytesFetched / 1024).toFixed(1)} KiB of ${(this.archive.size / 1024).toFixed(1)} KiB`;
+    document.body.dataset.requests = String(this.source.requests);
     document.body.dataset.gen = String(gen);
     document.body.dataset.state = 'ready';
   }

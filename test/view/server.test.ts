@@ -9,6 +9,7 @@
  * Data: vega-datasets data/volcano.json (61 x 87, heights in metres), and
  * test/fixtures/netcdf/corvane-run-classic.nc (see its README).
  */
+import { once } from 'node:events';
 import { connect, createServer } from 'node:net';
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
@@ -167,7 +168,10 @@ describe('rankfield view (command and server)', () => {
       const got = await remote.read('height', { rows: [20, 40], cols: [30, 60] });
       const want = await (await open(bytes)).read('height', { rows: [20, 40], cols: [30, 60] });
       expect(Array.from(got.values)).toEqual(Array.from(want.values));
-      // What the page asked of the viewer is what the viewer asked upstream, range for range.
+      // What the page asked of the viewer is what the viewer asked upstream, range for range
+      // (once the viewer has logged every request: its stderr arrives on its own time).
+      const logged = () => v.stderr().split('\n').filter((l) => l.startsWith('GET /archive')).length;
+      while (logged() < src.requests) await once(v.child.stderr!, 'data');
       const asked = v
         .stderr()
         .split('\n')
