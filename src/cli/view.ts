@@ -84,6 +84,7 @@ export function registerView(program: Command, ctx: Context): void {
       const { archive, src } = await openArchiveSource(input);
       let server: ViewServer;
       try {
+        if (archive.names.length === 0) throw new UsageError(`'${printable(input)}' holds no fields to view`);
         // Coordinate variables carried beside the fields (NetCDF input), by dimension name.
         const coords: Record<string, number[]> = {};
         for (const h of archive.header.fields) {

@@ -15,7 +15,7 @@ import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { NetCDFReader } from 'netcdfjs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { HttpSource, open, pack } from '../../src/index.js';
+import { ArchiveBuilder, HttpSource, MemorySink, open, pack } from '../../src/index.js';
 import { parseByteranges } from '../../src/format/http-source.js';
 import { parseRangeHeader } from '../../src/view/server.js';
 import { CLI_TIMEOUT, ensureBuilt, ensureBundled, expectCliError, rf, rfAsync, ROOT, tempDir, volcano } from '../cli/helpers.js';
@@ -85,6 +85,10 @@ describe('rankfield view (command and server)', () => {
     writeFileSync(notArchive, 'not an archive at all, just some text\n'.repeat(4));
     expectCliError(rf(['view', notArchive], tmp.dir), /text\.rfz/);
     expectCliError(rf(['view'], tmp.dir), /missing required argument/);
+    const empty = new MemorySink();
+    new ArchiveBuilder(empty).finish();
+    writeFileSync(join(tmp.dir, 'empty.rfz'), empty.bytes());
+    expectCliError(rf(['view', 'empty.rfz'], tmp.dir), /'empty\.rfz' holds no fields to view/);
     // A port in use.
     const busy = createServer();
     await new Promise<void>((resolve) => busy.listen(0, '127.0.0.1', () => resolve()));
