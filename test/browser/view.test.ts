@@ -14,14 +14,15 @@
  * least one pixel per cell).
  */
 import { once } from 'node:events';
-import { mkdirSync, writeFileSync } from 'node:fs';
+import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { NetCDFReader } from 'netcdfjs';
 import { join } from 'node:path';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ArchiveBuilder, MemorySink, open, type Archive, type FieldHeader } from '../../src/index.js';
 import { mapColour, MISSING } from '../../src/picture/colormap.js';
 import { precip } from '../archive/datasets.js';
-import { ensureBuilt, ensureBundled, ROOT, tempDir } from '../cli/helpers.js';
+import { ensureBuilt, ensureBundled, rf, ROOT, tempDir } from '../cli/helpers.js';
 import { haveSystemTools } from '../system-tools.js';
 import { startView, type RunningView } from '../view/start.js';
 
@@ -325,6 +326,35 @@ describe.skipIf(!RUN)('rankfield view in headless Chromium', () => {
     expect(await page.locator('#probe').innerText()).toContain(`band 2, lat ${r}, lon ${c}`);
     expect(errors).toEqual([]);
     await page.screenshot({ path: join(SHOTS, 'slices.png') });
+  }, 60_000);
+
+  it('shows under the pointer the coordinate values a NetCDF source carried', async () => {
+    // test/fixtures/netcdf/corvane-run-classic.nc (invented test data, see its README): sst is (time 6, lat 24, lon 32).
+    const fixture = join(ROOT, 'test', 'fixtures', 'netcdf', 'corvane-run-classic.nc');
+    const rfz = join(tmp.dir, 'corvane.rfz');
+    expect(rf(['pack', fixture, '-o', rfz, '--var', 'sst', '--bound', 'rel:1e-3', '--layout', 'slices', '--quiet'], tmp.dir).code).toBe(0);
+    const other = await startView([rfz], tmp.dir);
+    try {
+      const p = await context!.newPage();
+      await p.goto(other.url);
+      const view = await settled(p);
+      const box = await canvasBox(p);
+      const [x, y] = [Math.floor(view.width / 2), Math.floor(view.height / 2)];
+      await p.mouse.move(box.x + x, box.y + y);
+      const [r, c] = [cellAt(view.r0, y, view.s, 24), cellAt(view.c0, x, view.s, 32)];
+      const probe = await p.locator('#probe').innerText();
+      expect(probe).toContain(`time 0, lat ${r}, lon ${c}`);
+      // The coordinate values as netcdfjs 4.0.0 (an independent reader of the classic format) reads them.
+      const nc = new NetCDFReader(readFileSync(fixture));
+      const shown = (v: number) => String(Number(v.toPrecision(7)));
+      expect(probe).toMatch(new RegExp(`lat\\s+${shown((nc.getDataVariable('lat') as number[])[r]).replace('.', '\\.')}`));
+      expect(probe).toMatch(new RegExp(`lon\\s+${shown((nc.getDataVariable('lon') as number[])[c]).replace('.', '\\.')}`));
+      expect(probe).toMatch(new RegExp(`time\\s+${shown((nc.getDataVariable('time') as number[])[0]).replace('.', '\\.')}`));
+      await p.close();
+    } finally {
+      other.child.kill('SIGTERM');
+      await other.done;
+    }
   }, 60_000);
 
   it('ends cleanly on SIGTERM', async () => {
