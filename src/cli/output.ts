@@ -95,7 +95,8 @@ export class Output {
     if (this.ctx.errTTY !== true || this.quiet) return { stop: () => undefined };
     const ctx = this.ctx;
     const start = performance.now();
-    const width = Math.max(20, (ctx.errColumns ?? 80) - 1);
+    // A terminal that reports no width (0 columns, as some pseudo-terminals do) is taken as 80 wide.
+    const width = Math.max(20, (ctx.errColumns || 80) - 1);
     const draw = () => {
       const line = `${text}... ${Math.floor((performance.now() - start) / 1000)} s`;
       ctx.err(`\r${line.length > width ? `${line.slice(0, width - 3)}...` : line}\x1b[K`);
