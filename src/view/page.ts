@@ -39,6 +39,11 @@ const MAX_SCALE = 64;
 
 const $ = <T extends HTMLElement>(id: string) => document.getElementById(id) as T;
 
+/** 'every 2nd', 'every 4th', ...: the sampling step in words. */
+function every(k: number): string {
+  return `every ${k}${k % 10 === 2 && k % 100 !== 12 ? 'nd' : 'th'} cell`;
+}
+
 /** One line of text, or '-' for nothing. */
 function show(v: number): string {
   return Number.isFinite(v) ? String(Number(v.toPrecision(7))) : String(v);
@@ -54,6 +59,8 @@ class Viewer {
   private fill: number | null = null;
   private gen = 0;
   private frame = 0;
+  /** Where the pointer last was over the canvas, for the readout; null when it is elsewhere. */
+  private pointer: [number, number] | null = null;
   private readonly canvas = $<HTMLCanvasElement>('field');
   private readonly ctx = this.canvas.getContext('2d')!;
   private readonly stores = new Map<string, BlockStore>();
@@ -158,8 +165,10 @@ class Viewer {
         this.view = { ...this.view, r0: drag.r0 - (e.clientY - drag.y) / this.view.s, c0: drag.c0 - (e.clientX - drag.x) / this.view.s };
         this.changed();
       }
-      this.probe(e.offsetX, e.offsetY);
+      this.pointer = [e.offsetX, e.offsetY];
+      this.probe();
     });
+    stage.addEventListener('pointerleave', () => (this.pointer = null));
     const end = () => {
       drag = null;
       stage.classList.remove('dragging');
@@ -171,6 +180,7 @@ class Viewer {
       (e) => {
         e.preventDefault();
         const lines = e.deltaMode === 1 ? 40 : e.deltaMode === 2 ? 400 : 1;
+        this.pointer = [e.offsetX, e.offsetY];
         this.zoom(Math.exp(-e.deltaY * lines * 0.002), e.offsetX, e.offsetY);
       },
       { passive: false },
@@ -223,8 +233,9 @@ class Viewer {
     // The exact view, for tests and scripts that compare the canvas with decoded values.
     document.body.dataset.view = JSON.stringify({ ...v, width: this.canvas.width, height: this.canvas.height });
     history.replaceState(null, '', `#var=${encodeURIComponent(v.field)}&plane=${v.plane}&r=${+v.r0.toFixed(3)}&c=${+v.c0.toFixed(3)}&s=${+v.s.toPrecision(6)}`);
-    $('zoom').textContent = v.s >= 1 ? `${+v.s.toFixed(2)} px per cell` : `${+(1 / v.s).toFixed(2)} cells per px${stepOf(v.s) > 1 ? ` (every ${stepOf(v.s)}th cell)` : ''}`;
+    $('zoom').textContent = v.s >= 1 ? `${+v.s.toFixed(2)} px per cell` : `${+(1 / v.s).toFixed(2)} cells per px${stepOf(v.s) > 1 ? ` (${every(stepOf(v.s))})` : ''}`;
     this.draw();
+    this.probe();
     void this.fetch();
   }
 
@@ -259,6 +270,7 @@ class Viewer {
     }
     if (gen !== this.gen) return;
     this.draw();
+    this.probe();
     const t = store.tally;
     const blocks = `${want.length} ${this.L.what === 'snapshot' ? 'band' : 'tile'}${want.length === 1 ? '' : 's'} in view`;
     const coarse = t.coarseReads > 0 ? `, ${t.coarseReads} of them coarse first (${t.prefixTiles} tiles from payload prefixes at ${COARSE_BOUND})` : '';
@@ -342,8 +354,10 @@ class Viewer {
     }
   }
 
-  /** What lies under canvas point (x, y). */
-  private probe(x: number, y: number): void {
+  /** What lies under the pointer. */
+  private probe(): void {
+    if (this.pointer === null) return;
+    const [x, y] = this.pointer;
     const { L, h, view: v } = this;
     const k = stepOf(v.s);
     const at = (a0: number, i: number) => Math.floor(a0 + (i + 0.5) / v.s);
@@ -358,7 +372,7 @@ class Viewer {
       const value = block === undefined ? null : blockValue(block, r, c);
       const unit = typeof h.attrs.units === 'string' ? ` ${h.attrs.units}` : '';
       out.push(['value', value === null ? 'not read yet' : !Number.isFinite(value) || value === this.fill ? `missing (${show(value)})` : `${show(value)}${unit}${block?.coarse ? ' (coarse)' : ''}`]);
-      out.push(['plane cell', `row ${r}, column ${c}${k > 1 ? ` (every ${k}th)` : ''}`]);
+      out.push(['plane cell', `row ${r}, column ${c}${k > 1 ? ` (${every(k)})` : ''}`]);
       const idx = ndIndex(h, L, v.plane, r, c);
       const dims = h.dims ?? (idx.length === 3 ? ['slice', 'row', 'column'] : ['row', 'column']);
       out.push(['index', idx.map((i, a) => `${dims[a]} ${i}`).join(', ')]);
