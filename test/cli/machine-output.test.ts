@@ -35,7 +35,7 @@ const CASES: [string, string[], string[]][] = [
   ['show', ['show', at('v.rfz')], ['command', ...FACTS]],
   ['check', ['check', at('v.rfz'), '--against', at('volcano.npy')], ['command', 'file', 'against', 'field', 'compared', 'ok', 'fields', 'failures']],
   ['preview', ['preview', at('v.rfz'), '-o', at('v.png'), '--map', 'rank', '--force'], ['command', 'input', 'output', 'field', 'map', 'colourMap', 'window', 'block', 'scale', 'width', 'height', 'scaleRange', 'unit', 'missingCells', 'bytes', 'seconds']],
-  ['trial', ['trial', at('volcano.npy'), '--sample', '24', '--bounds', 'abs:1,psnr:50', '--tile', '12'], ['command', 'input', 'shape', 'dtype', 'range', 'sample', 'bounds', 'seconds']],
+  ['trial', ['trial', at('volcano.npy'), '--sample', '24', '--bounds', 'abs:1,psnr:50', '--tile', '12'], ['command', 'input', 'variable', 'shape', 'dtype', 'range', 'sample', 'bounds', 'seconds']],
   ['demo', ['demo', '--shape', '24x32', '--dir', at('demo'), '--force'], ['command', 'dir', 'shape', 'fill', 'bounds', 'ok', 'failures']],
 ];
 
