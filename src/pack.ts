@@ -155,6 +155,16 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices, progressive: o.progressive === true }, data, page: [page[0], page[1]] };
 }
 
+/**
+ * The encoder's spec and the index page shape of a field of `shape` and
+ * `dtype` packed with options `o`, checked as {@link ArchiveBuilder.addBands}
+ * checks them (a tile shape 'auto' is still to be chosen: `spec.autoTile`).
+ */
+export function fieldSpecOf(shape: readonly number[], dtype: Dtype, o: PackOptions): { spec: FieldSpec; page: [number, number] } {
+  const { spec, page } = options(new Float32Array(0), shape, { ...checkOptions(o), dtype }, false);
+  return { spec, page };
+}
+
 /** A caller's band callback, with every band it returns checked against the field. */
 function checkedBands(band: (r0: number, count: number) => FloatArray, spec: FieldSpec): BandSource {
   return {

@@ -13,6 +13,8 @@ import { HTTP_DEFAULTS } from './http.js';
 import { Worker } from 'node:worker_threads';
 import { addOutputOptions } from './output.js';
 import { registerPack } from './pack.js';
+import { registerPlan } from './plan.js';
+import { registerJoin } from './join.js';
 import { registerPreview } from './preview.js';
 import { registerTrial } from './trial.js';
 import { registerShow } from './show.js';
@@ -62,7 +64,9 @@ Packing is lossy: it discards information. Keep the originals until
 \`rankfield check ARCHIVE --against ORIGINAL\` passes, and follow your
 institution's data-retention rules.`,
     );
+  registerPlan(program, ctx);
   registerPack(program, ctx);
+  registerJoin(program, ctx);
   registerUnpack(program, ctx);
   registerShow(program, ctx);
   registerCheck(program, ctx);
@@ -108,7 +112,7 @@ export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'e
 }
 
 /** Commands that run long enough to be interrupted mid-way: they run in a worker thread (see worker.ts). */
-const LONG_COMMANDS = ['pack', 'demo', 'trial'];
+const LONG_COMMANDS = ['pack', 'demo', 'trial', 'plan', 'join'];
 
 /** The command word of argv: its first argument that is not an option. */
 function commandOf(argv: readonly string[]): string | undefined {

@@ -9,7 +9,10 @@ import { NC_TYPE_SIZE, type NcType } from '../io/netcdf-types.js';
 import { readInput } from './files.js';
 import { bytesText, errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
-import { checkLayout, inputKind, openFieldBands } from './input.js';
+import { checkLayout, inputKind, openFieldBands, type InputKind } from './input.js';
+import { parsePlan, partRange, type PartRange } from '../parts/plan.js';
+import { packPlanned } from '../parts/part.js';
+import type { BandReader } from '../io/bands.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
 import { Output, type OutputFlags } from './output.js';
@@ -19,7 +22,7 @@ import { boundOption, dtypeOption, endianOption, fillOption, nameOption, ndShape
 
 interface PackFlags extends OutputFlags {
   output: string;
-  bound: Bound;
+  bound?: Bound;
   tile?: [number, number] | 'auto';
   /** --fill V, or false for --no-fill. */
   fill?: number | false;
@@ -33,6 +36,8 @@ interface PackFlags extends OutputFlags {
   layout?: 'auto' | 'slices';
   threads?: number;
   progressive?: boolean;
+  plan?: string;
+  part?: [number, number];
 }
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
@@ -96,13 +101,13 @@ Example:
   rankfield pack run.nc -o run.rfz --bound rel:1e-3 --matrix time:space`;
 
 /** Default field name: the input file name without its extension. */
-function defaultName(input: string): string {
+export function defaultName(input: string): string {
   const base = basename(input, extname(input));
   return base.length > 0 && base.length <= 1024 ? base : 'field';
 }
 
 /** Refuse a fill value the field's element type cannot hold. */
-function checkFill(fill: number | undefined, dtype: Dtype): void {
+export function checkFill(fill: number | undefined, dtype: Dtype): void {
   if (fill !== undefined && dtype === 'f32' && !Number.isFinite(Math.fround(fill))) {
     throw new InputError(InputCode.Option, `fill value ${fill} is outside the float32 range of the input`);
   }
@@ -123,7 +128,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .description('Compress a field (2-D or N-D), or the variables of a NetCDF file, into an archive, keeping every value within a stated error bound.\n' + LOSSY_NOTE)
     .argument('<IN>', 'input: .npy (float32/float64, 2 or more axes), NetCDF, or raw binary with --shape and --dtype')
     .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
-    .requiredOption('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D', boundOption)
+    .option('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D (required, unless --plan gives it)', boundOption)
     .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (default: 64, 128, 256 and the whole field tried on a sample, the smallest kept)', tileOption)
     .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound); NetCDF input: for variables without _FillValue / missing_value', fillOption)
     .option('--no-fill', 'pack extreme values as data: turn off the refusal of a value that looks like an undeclared fill value (see below)')
@@ -136,6 +141,8 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--layout <LAYOUT>', 'variables of 3+ dimensions: auto (default: NetCDF, the layout whose sample packs smallest; .npy and raw, slices) or slices', layoutOption)
     .option('--threads <N>', 'threads encoding tiles (default: the number of cores; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
     .option('--progressive', 'lay each tile\'s factors out in rank groups with their recorded errors, so that `unpack --bound` with a looser bound reads only a prefix of each tile (costs some bytes)')
+    .option('--plan <PLAN>', 'pack with the field-wide choices of a plan written by `rankfield plan` (bound, tile, fill, name come from it)')
+    .option('--part <K/N>', 'with --plan: pack only part K of N (a band of rows; see plan --help), to be joined by `rankfield join`', partOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
@@ -143,7 +150,10 @@ export function registerPack(program: Command, ctx: Context): void {
       const out = new Output(ctx, flags);
       await statInput(input);
       const kind = await inputKind(input);
-      if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, flags, out, start, kind === 'hdf5');
+      if (flags.plan !== undefined || flags.part !== undefined) return packPlannedCli(input, kind, flags, out, start);
+      const bound = flags.bound;
+      if (bound === undefined) throw new UsageError("pack needs --bound MODE:VALUE (or --plan PLAN from 'rankfield plan')");
+      if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, { ...flags, bound }, out, start, kind === 'hdf5');
       if (flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${input}' is not NetCDF (by its first bytes or its name)`);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       checkLayout(input, layout, undefined, kind);
@@ -166,34 +176,14 @@ export function registerPack(program: Command, ctx: Context): void {
       try {
         checkFill(fill, field.dtype);
         const name = flags.name ?? defaultName(input);
-        // Rows of the stacked matrix the library reads (slices x rows); each is `factor` rows of the file's C-order matrix.
-        const rows = grid.slices * grid.rows;
-        const factor = grid.cols / field.shape[1];
-        let firstPass = true;
-        const band = (r0: number, count: number): FloatArray => {
-          let values: FloatArray;
-          try {
-            values = field.band(r0 * factor, count * factor);
-          } catch (e) {
-            throw fileError(e, 'read', input);
-          }
-          // The first pass (the value range) reads every row once, in order: count fill values there.
-          if (firstPass && fill !== undefined) fills += countFill(values, fill);
-          if (firstPass) watch?.add(values);
-          if (firstPass && r0 + count === rows) {
-            firstPass = false;
-            const s = watch?.suspect();
-            if (s) throw new UsageError(suspectMessage(s, `'${input}'`, field.dtype === 'f32'));
-          }
-          return values;
-        };
+        const band = watchedBand(field, grid, input, fill, watch, (n) => (fills += n));
         threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1]);
         await writeOutputWith(flags.output, io, async (sink) => {
           const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
           const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
           const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
           try {
-            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound: flags.bound, tile: flags.tile, fill: fill ?? null, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
+            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound, tile: flags.tile, fill: fill ?? null, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
           } finally {
             bar.stop();
           }
@@ -229,8 +219,37 @@ export function registerPack(program: Command, ctx: Context): void {
     });
 }
 
+/**
+ * The band reader the library packs from: rows of the stacked matrix (slices
+ * x rows; each is `grid.cols / field.shape[1]` rows of the file's C-order
+ * matrix). The first pass (the value range) reads every row once, in order:
+ * fill values are counted there (`onFill`), and `watch` sees the values,
+ * refusing after the last row a value that looks like an undeclared fill.
+ */
+export function watchedBand(field: BandReader, grid: ArrayGrid, input: string, fill: number | undefined, watch: RangeWatch | null, onFill: (n: number) => void): (r0: number, count: number) => FloatArray {
+  const rows = grid.slices * grid.rows;
+  const factor = grid.cols / field.shape[1];
+  let firstPass = true;
+  return (r0, count) => {
+    let values: FloatArray;
+    try {
+      values = field.band(r0 * factor, count * factor);
+    } catch (e) {
+      throw fileError(e, 'read', input);
+    }
+    if (firstPass && fill !== undefined) onFill(countFill(values, fill));
+    if (firstPass) watch?.add(values);
+    if (firstPass && r0 + count === rows) {
+      firstPass = false;
+      const s = watch?.suspect();
+      if (s) throw new UsageError(suspectMessage(s, `'${input}'`, field.dtype === 'f32'));
+    }
+    return values;
+  };
+}
+
 /** `pack IN.nc`: every chosen variable becomes one field of one archive. */
-async function packNetcdf(input: string, flags: PackFlags, out: Output, start: number, hdf5: boolean): Promise<void> {
+async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, out: Output, start: number, hdf5: boolean): Promise<void> {
   const misplaced = (['shape', 'dtype', 'endian', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
   if (misplaced.length > 0) {
     throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}'`);
@@ -294,7 +313,7 @@ async function packNetcdf(input: string, flags: PackFlags, out: Output, start: n
 }
 
 /** How an N-D .npy or raw array is laid out as a field: slices x rows x cols, and the layout name (undefined for 2-D). */
-interface ArrayGrid {
+export interface ArrayGrid {
   slices: number;
   rows: number;
   cols: number;
@@ -333,6 +352,66 @@ function layoutOption(text: string): 'auto' | 'slices' {
 const MIN_PARALLEL_CELLS = 1 << 18;
 
 /** The threads of one field: as given, or by default 1 for a small field and the core count otherwise. */
-function defaultThreads(given: number | undefined, cells: number): number | undefined {
+export function defaultThreads(given: number | undefined, cells: number): number | undefined {
   return given !== undefined ? given : cells < MIN_PARALLEL_CELLS ? 1 : undefined;
+}
+
+/** `--part K/N`: 1 <= K <= N. */
+function partOption(text: string): [number, number] {
+  const m = /^([0-9]{1,9})\/([0-9]{1,9})$/.exec(text);
+  const k = m ? Number(m[1]) : NaN;
+  const n = m ? Number(m[2]) : NaN;
+  if (!m || k < 1 || n < 1 || k > n) throw new UsageError(`--part must be K/N with 1 <= K <= N (part K of N), e.g. 3/16; got '${printable(text)}'`);
+  return [k, n];
+}
+
+/** `pack --plan PLAN [--part K/N]`: the field (or its part K of N) packed with the plan's choices. */
+async function packPlannedCli(input: string, kind: InputKind, flags: PackFlags, out: Output, start: number): Promise<void> {
+  if (flags.plan === undefined) {
+    throw new UsageError(`--part needs --plan: the parts of a run share field-wide choices (the value range, the tile shape, the tolerance and for rmse and psnr bounds the L2 plan) made from the whole field; run 'rankfield plan ${input} -o PLAN --bound ...' first`);
+  }
+  if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`--plan and --part read .npy and raw input a band of rows at a time; '${input}' is NetCDF, whose variables are read whole: pack it in one process, without --plan and --part`);
+  const fixed = (['bound', 'tile', 'fill', 'name', 'matrix', 'layout', 'progressive', 'var'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k === 'fill' && flags.fill === false ? 'no-fill' : k}`);
+  if (fixed.length > 0) throw new UsageError(`${fixed.join(', ')}: the plan '${flags.plan}' fixes ${fixed.length === 1 ? 'it' : 'them'}; drop ${fixed.length === 1 ? 'it' : 'them'} (or make another plan)`);
+  if (flags.threads !== undefined && flags.threads !== 1) throw new UsageError('pack --plan encodes on one thread; run more parts at once instead of --threads');
+  const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
+  checkLayout(input, layout, undefined, kind);
+  await statInput(flags.plan);
+  const plan = parsePlan(new TextDecoder().decode(await readInput(flags.plan)), flags.plan);
+  const io = { force: flags.force === true, inputs: [input, flags.plan] };
+  await checkOutput(flags.output, io);
+  const field = await openFieldBands(input, layout, kind);
+  const f = plan.field;
+  let range: PartRange;
+  try {
+    const have = `${field.ndShape.join('x')} ${field.dtype}`;
+    const want = `${(f.nd_shape ?? f.shape).join('x')} ${f.dtype}`;
+    if (have !== want) throw new UsageError(`'${input}' holds a ${have} array; plan '${flags.plan}' (run '${printable(plan.run)}') was made for ${want}`);
+    const factor = f.shape[1] / field.shape[1];
+    const band = (r0: number, count: number): FloatArray => {
+      try {
+        return field.band(r0 * factor, count * factor);
+      } catch (e) {
+        throw fileError(e, 'read', input);
+      }
+    };
+    const total = flags.part ? partRange(plan, flags.part[0], flags.part[1]) : null;
+    const cells = total ? (total.rows[1] - total.rows[0]) * f.shape[1] : f.shape[0] * f.shape[1];
+    const bar = out.tileProgress(`packing ${flags.part ? `part ${flags.part.join('/')}` : 'the field'} of '${printable(f.name)}'`, cells * (f.dtype === 'f32' ? 4 : 8));
+    try {
+      range = await writeOutputWith(flags.output, io, (sink) => packPlanned(sink, { band }, plan, { part: flags.part, onProgress: bar.onProgress, input }).then(() => undefined)).then(() => total ?? partRange(plan, 1, 1));
+    } finally {
+      bar.stop();
+    }
+  } finally {
+    field.close();
+  }
+  const archive = await openArchive(flags.output);
+  const size = archive.size;
+  const { summary } = archive.field();
+  await archive.close();
+  const elapsed = performance.now() - start;
+  const what = flags.part ? `part ${flags.part.join('/')} (rows ${range.rows[0]}..${range.rows[1] - 1}) of run '${printable(plan.run)}'` : `run '${printable(plan.run)}' (whole field)`;
+  out.text(`packed ${what} from '${input}' -> '${flags.output}': ${size} bytes, ${range.tiles[1] - range.tiles[0]} tiles of ${f.tile.join('x')}; max error ${num(summary.max_err)}, RMSE ${num(summary.rmse)} over these rows; ${seconds(elapsed)}\n`);
+  out.result({ command: 'pack', input, output: flags.output, run: plan.run, plan: plan.hash, part: flags.part ?? null, rows: range.rows, tiles: range.tiles, bytes: size, summary, seconds: elapsed / 1000 });
 }

@@ -11,7 +11,7 @@
  * are in flight (read and not yet written), which bounds the memory.
  */
 import { encodeTile, fieldBasis, FieldSummary, tileGrid, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2PlanData } from '../codec/plan-l2.js';
+import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
 import type { PreparedTile } from '../codec/prepare.js';
 import { ErrorTally } from '../codec/tally.js';
 import type { FloatArray } from '../types.js';
@@ -137,13 +137,7 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
 export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool): Promise<FieldResult> {
   const c = fieldBasis(src, spec);
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
-  if (!c.pointwise) {
-    const first: FirstPassTile[] = [];
-    const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
-    const post = ({ tile, m, n }: { tile: FloatArray; m: number; n: number }) => pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n }, [tile.buffer as ArrayBuffer]);
-    await inOrder(pool, tilesOf(src, spec), post, (f) => first.push(f), limit);
-    c.plan = planL2(src, spec, c.tol, c.fill, first);
-  }
+  if (!c.pointwise) c.plan = await planL2Parallel(src, spec, c, pool);
   const key = nextKey++;
   const { plan, ...rest } = c;
   await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
@@ -164,4 +158,18 @@ export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit
     if (!pool.failed) await pool.broadcast('encode-forget', { key });
   }
   return summary.result();
+}
+
+/**
+ * The L2 plan of a field whose basis `c` is made (pointwise false): the
+ * first pass (every tile's spectrum) on `pool`, then the plan chosen here,
+ * as {@link planL2} makes it in one thread.
+ */
+export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool): Promise<L2Plan> {
+  const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
+  const first: FirstPassTile[] = [];
+  const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
+  const post = ({ tile, m, n }: { tile: FloatArray; m: number; n: number }) => pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n }, [tile.buffer as ArrayBuffer]);
+  await inOrder(pool, tilesOf(src, spec), post, (f) => first.push(f), limit);
+  return planL2(src, spec, c.tol, c.fill, first);
 }
