@@ -120,7 +120,12 @@ describe('join refuses', () => {
     changed[100 * 64 + 5] += 1;
     const sink = new MemorySink();
     await expect(packPlanned(sink, memoryBands(changed, 64), p, { part: [4, 8] })).rejects.toThrow(/rows 96..127 differ from those plan .* was made from/);
-    // Other parts read other rows, and pass.
-    await packPlanned(new MemorySink(), memoryBands(changed, 64), p, { part: [3, 8] });
+    // Other parts read other rows, and pass; a part reads its own rows only.
+    const asked: [number, number][] = [];
+    const counting = { band: (r0: number, count: number) => (asked.push([r0, r0 + count]), changed.subarray(r0 * 64, (r0 + count) * 64)) };
+    const range = await packPlanned(new MemorySink(), counting, p, { part: [3, 8] });
+    expect(range.rows).toEqual([64, 96]);
+    expect(asked.length).toBeGreaterThan(0);
+    for (const [a, b] of asked) expect(a >= 64 && b <= 96, `rows ${a}..${b}`).toBe(true);
   }, 60_000);
 });
