@@ -12,6 +12,8 @@ import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js
 import { checkLayout, inputKind, openFieldBands, type InputKind } from './input.js';
 import { parsePlan, partRange, type PartRange } from '../parts/plan.js';
 import { packPlanned } from '../parts/part.js';
+import { encodeTasks } from '../parallel/encode.js';
+import { checkThreads, WorkerPool } from '../parallel/pool.js';
 import type { BandReader } from '../io/bands.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
@@ -139,7 +141,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
     .option('--matrix <AXES:NAME>', 'variables or arrays of 3+ axes: flatten the leading axes AXES (comma-separated; axis0, axis1, ... for .npy and raw) into rows, the rest into columns, e.g. time:space', parseMatrix)
     .option('--layout <LAYOUT>', 'variables of 3+ dimensions: auto (default: NetCDF, the layout whose sample packs smallest; .npy and raw, slices) or slices', layoutOption)
-    .option('--threads <N>', 'threads encoding tiles (default: the number of cores; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
+    .option('--threads <N>', 'threads encoding tiles (default: the number of cores, and 1 for a --part; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
     .option('--progressive', 'lay each tile\'s factors out in rank groups with their recorded errors, so that `unpack --bound` with a looser bound reads only a prefix of each tile (costs some bytes)')
     .option('--plan <PLAN>', 'pack with the field-wide choices of a plan written by `rankfield plan` (bound, tile, fill, name come from it)')
     .option('--part <K/N>', 'with --plan: pack only part K of N (a band of rows; see plan --help), to be joined by `rankfield join`', partOption)
@@ -373,7 +375,6 @@ async function packPlannedCli(input: string, kind: InputKind, flags: PackFlags, 
   if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`--plan and --part read .npy and raw input a band of rows at a time; '${input}' is NetCDF, whose variables are read whole: pack it in one process, without --plan and --part`);
   const fixed = (['bound', 'tile', 'fill', 'name', 'matrix', 'layout', 'progressive', 'var'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k === 'fill' && flags.fill === false ? 'no-fill' : k}`);
   if (fixed.length > 0) throw new UsageError(`${fixed.join(', ')}: the plan '${flags.plan}' fixes ${fixed.length === 1 ? 'it' : 'them'}; drop ${fixed.length === 1 ? 'it' : 'them'} (or make another plan)`);
-  if (flags.threads !== undefined && flags.threads !== 1) throw new UsageError('pack --plan encodes on one thread; run more parts at once instead of --threads');
   const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
   checkLayout(input, layout, undefined, kind);
   await statInput(flags.plan);
@@ -398,10 +399,14 @@ async function packPlannedCli(input: string, kind: InputKind, flags: PackFlags, 
     const total = flags.part ? partRange(plan, flags.part[0], flags.part[1]) : null;
     const cells = total ? (total.rows[1] - total.rows[0]) * f.shape[1] : f.shape[0] * f.shape[1];
     const bar = out.tileProgress(`packing ${flags.part ? `part ${flags.part.join('/')}` : 'the field'} of '${printable(f.name)}'`, cells * (f.dtype === 'f32' ? 4 : 8));
+    // A part runs on one thread unless told otherwise (parts are usually run many at once); a whole field as pack does.
+    const threads = flags.threads ?? (flags.part ? 1 : (defaultThreads(undefined, cells) ?? checkThreads(undefined)));
+    const pool = threads > 1 ? new WorkerPool(threads, { local: (k, body) => encodeTasks[k as keyof typeof encodeTasks](body as never).result }) : undefined;
     try {
-      range = await writeOutputWith(flags.output, io, (sink) => packPlanned(sink, { band }, plan, { part: flags.part, onProgress: bar.onProgress, input }).then(() => undefined)).then(() => total ?? partRange(plan, 1, 1));
+      range = await writeOutputWith(flags.output, io, (sink) => packPlanned(sink, { band }, plan, { part: flags.part, onProgress: bar.onProgress, input, pool }).then(() => undefined)).then(() => total ?? partRange(plan, 1, 1));
     } finally {
       bar.stop();
+      await pool?.close();
     }
   } finally {
     field.close();

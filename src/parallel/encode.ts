@@ -33,6 +33,8 @@ interface TileTask {
   n: number;
   tile?: FloatArray;
   prepared?: PreparedTile;
+  /** Prepare `tile` with its full SVD first (see encodeWithChoices). */
+  full?: boolean;
 }
 
 /** Field choices by key, in each worker. */
@@ -50,7 +52,7 @@ export const encodeTasks = {
     const c = fields.get(body.key);
     // Internal assertion: the set-up message always precedes a field's tiles in the port.
     if (c === undefined) throw new Error(`tile ${body.index} of an unknown field (key ${body.key})`);
-    const t = body.prepared ?? tileToEncode(c, body.index, body.tile!, body.m, body.n);
+    const t = body.prepared ?? (body.full ? firstPassTile(body.tile!, body.m, body.n, c, c.fill, c.tol, true).tile! : tileToEncode(c, body.index, body.tile!, body.m, body.n));
     const o = encodeTile(c, t, body.index);
     const own = o.payload.byteOffset === 0 && o.payload.byteLength === o.payload.buffer.byteLength;
     const payload = own ? o.payload : o.payload.slice();
@@ -136,24 +138,36 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
  */
 export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool): Promise<FieldResult> {
   const c = fieldBasis(src, spec);
-  const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   if (!c.pointwise) c.plan = await planL2Parallel(src, spec, c, pool);
+  return encodeWithChoices(src, spec, c, pool, (index, o) => emit(index, { payload: o.payload, stats: o.stats }));
+}
+
+/**
+ * Encode every tile of `src` (a field of `spec`) under choices `c` made
+ * beforehand, on `pool`, handing each outcome to `use` in tile order. With
+ * `full`, each tile is first prepared with its full SVD, as the L2 first
+ * pass prepares the tiles a single pack keeps (parts of a run, whose plan
+ * says so, encode their tiles from the same state).
+ */
+export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool, use: (index: number, o: TileOutcome) => void, full = false): Promise<FieldResult> {
+  const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   const key = nextKey++;
   const { plan, ...rest } = c;
   await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
   const summary = new FieldSummary(c);
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
     const prepared = c.plan?.kept(index);
-    const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile };
+    const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile, full };
     return pool.run<TileOutcome>('encode-tile', task, prepared ? [] : [tile.buffer as ArrayBuffer]);
   };
-  const use = (o: TileOutcome, index: number) => {
+  const done = (o: TileOutcome, index: number) => {
     // The tally crossed threads as plain fields; give it its class back.
-    summary.add({ ...o, tally: Object.assign(new ErrorTally(), o.tally) });
-    emit(index, { payload: o.payload, stats: o.stats });
+    const outcome = { ...o, tally: Object.assign(new ErrorTally(), o.tally) };
+    summary.add(outcome);
+    use(index, outcome);
   };
   try {
-    await inOrder(pool, tilesOf(src, spec), post, use, limit);
+    await inOrder(pool, tilesOf(src, spec), post, done, limit);
   } finally {
     if (!pool.failed) await pool.broadcast('encode-forget', { key });
   }

@@ -13,6 +13,8 @@ import { InputCode, InputError } from '../errors.js';
 import type { Sink } from '../format/container.js';
 import type { Attrs } from '../format/schema.js';
 import { ArchiveBuilder } from '../pack.js';
+import { encodeWithChoices } from '../parallel/encode.js';
+import type { WorkerPool } from '../parallel/pool.js';
 import { BandCrc, partRange, planChoices, planSpec, type PartRange, type RunPlan } from './plan.js';
 
 /** Archive attributes of a part (spec/FORMAT.md, "Parts of a run"). */
@@ -41,6 +43,8 @@ export interface PlannedOptions {
   onProgress?: (done: number, total: number) => void;
   /** Where the input is named in messages. */
   input?: string;
+  /** Worker threads to encode on (the payloads are the same without); not closed here. */
+  pool?: WorkerPool;
 }
 
 /**
@@ -48,10 +52,16 @@ export interface PlannedOptions {
  * (row 0 of `src` is field row `r0`), as a single pack encodes them, and
  * hand each to `emit` with its band-relative number.
  */
-function encodeBand(src: BandSource, plan: RunPlan, range: PartRange, emit: (t: number, tile: EncodedTile) => void, tallies: number[]): FieldResult {
+async function encodeBand(src: BandSource, plan: RunPlan, range: PartRange, emit: (t: number, tile: EncodedTile) => void, tallies: number[], pool?: WorkerPool): Promise<FieldResult> {
   const full = planSpec(plan.field);
   const spec: FieldSpec = { ...full, rows: range.rows[1] - range.rows[0] };
   const c = planChoices(plan, range.tiles[0], range.tiles[1]);
+  if (pool && pool.threads > 1) {
+    return encodeWithChoices(src, spec, c, pool, (index, o) => {
+      tallies.push(...o.tally.state());
+      emit(index, { payload: o.payload, stats: o.stats });
+    }, plan.keep);
+  }
   const summary = new FieldSummary(c);
   for (const { index, tile, m, n } of tilesOf(src, spec)) {
     // A single pack of a field small enough keeps each tile as its L2 first pass prepared it (with its
@@ -96,7 +106,7 @@ export async function packPlanned(sink: Sink, src: BandSource, plan: RunPlan, o:
   const tallies: number[] = [];
   const attrs = {};
   const opts = { attrs, onProgress: o.onProgress, ...(whole ? { ndShape: f.nd_shape, dims: f.dims, layout: f.layout } : {}) };
-  await builder.addCoded(spec, opts, f.page, (emit) => encodeBand(bandSrc, plan, range, emit, tallies));
+  await builder.addCoded(spec, opts, f.page, (emit) => encodeBand(bandSrc, plan, range, emit, tallies, o.pool));
   crc.finish();
   if (!whole) {
     const a: Attrs = { [PART_KEYS.run]: plan.run, [PART_KEYS.plan]: plan.hash, [PART_KEYS.part]: [k, n], [PART_KEYS.rows]: [r0, r1, f.shape[0]] };

@@ -42,7 +42,7 @@ afterAll(async () => {
 const bytes = (name: string) => readFileSync(join(dir, name));
 
 describe.runIf(RUN)('8 parts packed at once by GNU parallel, joined', () => {
-  it('give the single pack byte for byte; a lost part is packed again alone; windows read over HTTP', async () => {
+  it('give the single pack byte for byte; a lost part is packed again alone (on 2 threads); windows read over HTTP', async () => {
     // 1024 rows in tiles of 16 and index pages of 8 tile rows: 8 bands of 128 rows, one per part.
     const plan = rf(['plan', 'precip.npy', '-o', 'run.plan.json', '--bound', 'psnr:60', '--tile', '16', '--run', 'precip-test'], dir);
     expect(plan.code, plan.stderr).toBe(0);
@@ -62,7 +62,8 @@ describe.runIf(RUN)('8 parts packed at once by GNU parallel, joined', () => {
     // A part lost (a failed node): join names it; packed again alone, the join is the same.
     rmSync(join(dir, 'part-5.rfz'));
     expectCliError(rf(['join', ...parts.filter((k) => k !== '5').map((k) => `part-${k}.rfz`), '-o', 'again.rfz'], dir), /run 'precip-test' has 8 parts; part 5 is missing/);
-    expect(rf(['pack', 'precip.npy', '-o', 'part-5.rfz', '--plan', 'run.plan.json', '--part', '5/8', '-q'], dir).code).toBe(0);
+    // This time on two threads: the payloads are the same.
+    expect(rf(['pack', 'precip.npy', '-o', 'part-5.rfz', '--plan', 'run.plan.json', '--part', '5/8', '--threads', '2', '-q'], dir).code).toBe(0);
     expect(rf(['join', ...parts.map((k) => `part-${k}.rfz`), '-o', 'again.rfz', '-q'], dir).code).toBe(0);
     expect(bytes('again.rfz').equals(bytes('single.rfz'))).toBe(true);
 
@@ -87,6 +88,10 @@ describe('parts on the command line: one line and exit 2', () => {
     expectCliError(rf(['pack', 'precip.npy', '-o', 'x.rfz', '--part', '0/2'], dir), /--part must be K\/N with 1 <= K <= N/);
     expect(rf(['plan', 'precip.npy', '-o', 'abs.plan.json', '--bound', 'abs:1', '--tile', '32', '-q'], dir).code).toBe(0);
     expectCliError(rf(['pack', 'precip.npy', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '1/2', '--bound', 'abs:2'], dir), /--bound: the plan 'abs.plan.json' fixes it; drop it/);
+    // The whole field packed under the plan, on 2 threads, is the single pack.
+    expect(rf(['pack', 'precip.npy', '-o', 'whole.rfz', '--plan', 'abs.plan.json', '--threads', '2', '-q'], dir).code).toBe(0);
+    expect(rf(['pack', 'precip.npy', '-o', 'abs.rfz', '--bound', 'abs:1', '--tile', '32', '-q'], dir).code).toBe(0);
+    expect(bytes('whole.rfz').equals(bytes('abs.rfz'))).toBe(true);
     // 1024 rows in bands of 8 x 32 rows: 4 bands.
     expectCliError(rf(['pack', 'precip.npy', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '1/5'], dir), /the field has 4 bands of 256 rows .* at most 4 parts/);
     const other = mirrored(precip(), COLS, 7, ROWS);
