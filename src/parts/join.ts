@@ -184,7 +184,9 @@ async function write(parts: Part[], sink: Sink, o: JoinOptions): Promise<JoinRes
           const at = ix.offset[t] - start;
           const payload = run.slice(at, at + ix.length[t]);
           if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${p.label}: tile ${t} of part ${p.k}/${p.n} (tile ${t0 + t} of the field): payload CRC-32 mismatch`);
-          const tally = ErrorTally.fromState(p.tally.slice(4 * t, 4 * t + 4));
+          const state = p.tally.slice(4 * t, 4 * t + 4);
+          if (!validTally(state, ix.valid[t])) throw new FormatError(FormatCode.Malformed, `${p.label}: tile ${t} of part ${p.k}/${p.n}: its error tally in ${PART_KEYS.tally} (${state.join(', ')}) is not one of ${ix.valid[t]} valid cells`);
+          const tally = ErrorTally.fromState(state);
           total.merge(tally);
           valid += ix.valid[t];
           emit(t0 + t, { payload, stats: { method: ix.method[t], rank: ix.rank[t], valid: ix.valid[t], maxErr: ix.max_err[t], rmse: ix.rmse[t], valueCrc: ix.value_crc[t], prefix: ix.prefix?.[t] ?? [] } });
@@ -197,4 +199,10 @@ async function write(parts: Part[], sink: Sink, o: JoinOptions): Promise<JoinRes
   });
   builder.finish();
   return { run: p0.run, plan: p0.plan, parts: parts.length, header };
+}
+
+/** A tally state [count, max, scale, ssq] as a tile of `valid` cells leaves it: finite, not negative, counting its valid cells. */
+function validTally(s: readonly number[], valid: number): boolean {
+  const [count, max, scale, ssq] = s;
+  return count === valid && s.every((x) => Number.isFinite(x) && x >= 0) && (scale === 0 ? max === 0 : ssq >= 1 && max > 0);
 }
