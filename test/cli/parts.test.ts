@@ -32,7 +32,8 @@ beforeAll(() => {
   ensureBuilt();
   const values = mirrored(precip(), COLS, 0, ROWS);
   writeFileSync(join(dir, 'precip.npy'), formatNpy({ data: values, shape: [ROWS, COLS], dtype: 'f32' }));
-});
+  // A build when dist/ is stale takes longer than the default 10 s of a hook on a busy machine.
+}, 120_000);
 
 afterAll(async () => {
   await server?.close();
