@@ -57,6 +57,8 @@ describe.runIf(RUN)('8 parts packed at once by GNU parallel, joined', () => {
     const single = rf(['pack', 'precip.npy', '-o', 'single.rfz', '--bound', 'psnr:60', '--tile', '16', '-q'], dir);
     expect(single.code, single.stderr).toBe(0);
     expect(bytes('run.rfz').equals(bytes('single.rfz'))).toBe(true);
+    // show names a part as such.
+    expect(rf(['show', 'part-3.rfz'], dir).stdout).toMatch(/^part {5}3\/8 of run 'precip-test': rows 256..383 of a field of 1024 rows/m);
     const check = rf(['check', 'run.rfz', '--against', 'precip.npy', '-q'], dir);
     expect(check.code, check.stderr).toBe(0);
 
