@@ -76,6 +76,7 @@ function mismatch(parts: Part[]): string | null {
     if (p.run !== p0.run || p.plan !== p0.plan) {
       return `'${p.label}' is part ${p.k}/${p.n} of run '${p.run}' (plan ${p.plan.slice(0, 12)}), '${p0.label}' of run '${p0.run}' (plan ${p0.plan.slice(0, 12)}): join the parts of one run, packed with one plan`;
     }
+    if (p.archive.header.writer !== p0.archive.header.writer) return `'${p.label}' was written by ${p.archive.header.writer}, '${p0.label}' by ${p0.archive.header.writer}: the parts of a run are packed by one program`;
     if (p.n !== p0.n) return `'${p.label}' is part ${p.k} of ${p.n}, '${p0.label}' part ${p0.k} of ${p0.n}: the parts of one run share one count`;
     if (p.k < 1 || p.k > p.n) return `'${p.label}' says it is part ${p.k} of ${p.n}`;
   }

@@ -25,6 +25,10 @@ import { tileGrid } from '../codec/tiles.js';
 import { crc32 } from '../format/crc32.js';
 import { InputCode, InputError } from '../errors.js';
 import type { Bound, BoundMode, Dtype, FloatArray } from '../types.js';
+import { VERSION_STRING } from '../version.js';
+
+/** The program that makes plans and packs parts, as archives name their writer. */
+const WRITER = `rankfield ${VERSION_STRING}`;
 
 /** The version of the plan's JSON form this code writes and reads. */
 export const PLAN_VERSION = 1;
@@ -54,9 +58,11 @@ export interface PlanField {
 /** A run plan (see the module comment). */
 export interface RunPlan {
   version: number;
+  /** The program that made the plan (`rankfield` and its version): parts are packed by the same one, so their payloads are a single pack's. */
+  writer: string;
   /** The run's name, shown to users and carried by every part: `--run`, or the field name and the first 12 hex digits of the hash. */
   run: string;
-  /** SHA-256 (hex) of the canonical form of `source`, `field`, `l2` and `keep`. */
+  /** SHA-256 (hex) of the canonical form of `writer`, `source`, `field`, `l2` and `keep`. */
   hash: string;
   source: {
     /** The input's file name, for messages only (not compared). */
@@ -189,8 +195,9 @@ export async function makePlan(src: BandSource, req: PlanRequest): Promise<RunPl
   };
   const source = { file: req.file, band_rows: band, band_crc };
   const keep = !c.pointwise && keepsTiles(spec);
-  const hash = planHash(source, field, l2, keep);
-  return { version: PLAN_VERSION, run: req.run ?? `${spec.name}-${hash.slice(0, 12)}`, hash, source, field, l2, keep };
+  const writer = WRITER;
+  const hash = planHash(writer, source, field, l2, keep);
+  return { version: PLAN_VERSION, writer, run: req.run ?? `${spec.name}-${hash.slice(0, 12)}`, hash, source, field, l2, keep };
 }
 
 /** Numbers whose exact value JSON cannot carry (-0, NaN, infinities) are written as strings. */
@@ -201,8 +208,9 @@ function exact(x: number): number | string {
 }
 
 /** The canonical JSON of what a plan decides (every key in a fixed order), hashed and written. */
-function canonical(source: RunPlan['source'], f: PlanField, l2: L2PlanData | null, keep: boolean): Record<string, unknown> {
+function canonical(writer: string, source: RunPlan['source'], f: PlanField, l2: L2PlanData | null, keep: boolean): Record<string, unknown> {
   return {
+    writer,
     source: { band_rows: source.band_rows, band_crc: source.band_crc },
     field: {
       name: f.name,
@@ -224,13 +232,13 @@ function canonical(source: RunPlan['source'], f: PlanField, l2: L2PlanData | nul
   };
 }
 
-function planHash(source: RunPlan['source'], f: PlanField, l2: L2PlanData | null, keep: boolean): string {
-  return createHash('sha256').update(JSON.stringify(canonical(source, f, l2, keep))).digest('hex');
+function planHash(writer: string, source: RunPlan['source'], f: PlanField, l2: L2PlanData | null, keep: boolean): string {
+  return createHash('sha256').update(JSON.stringify(canonical(writer, source, f, l2, keep))).digest('hex');
 }
 
 /** The plan as the JSON text `rankfield plan` writes. */
 export function planText(p: RunPlan): string {
-  const c = canonical(p.source, p.field, p.l2, p.keep);
+  const c = canonical(p.writer, p.source, p.field, p.l2, p.keep);
   const body = { rankfield_plan: p.version, run: p.run, hash: p.hash, file: p.source.file, ...c };
   return `${JSON.stringify(body)}\n`;
 }
@@ -304,7 +312,8 @@ export function parsePlan(text: string, label: string): RunPlan {
     };
   }
   const keep = r.keep === true;
-  const hash = planHash(source, field, l2, keep);
+  const writer = str(r.writer, 'writer');
+  const hash = planHash(writer, source, field, l2, keep);
   if (r.hash !== hash) {
     throw new InputError(InputCode.Option, `${label}: the plan was changed after 'rankfield plan' wrote it (its content does not match its hash); make it again`);
   }
@@ -312,7 +321,10 @@ export function parsePlan(text: string, label: string): RunPlan {
   const [gr, gc] = tileGrid(planSpec(field));
   if (source.band_rows !== bandRows(field) || source.band_crc.length !== Math.ceil(field.shape[0] / source.band_rows)) bad('its bands do not match its tile and page shapes');
   if (l2 !== null && ((l2.kind === 'rank' && l2.ranks.length !== gr * gc) || l2.allot.length !== gr * gc)) bad(`its L2 plan does not cover the ${gr * gc} tiles`);
-  return { version: PLAN_VERSION, run: str(r.run, 'run'), hash, source, field, l2, keep };
+  if (writer !== WRITER) {
+    throw new InputError(InputCode.Option, `${label}: the plan was made by ${writer}, this is ${WRITER}; the parts of a run are packed by the program that made its plan (their payloads would differ): make the plan again, or use ${writer}`);
+  }
+  return { version: PLAN_VERSION, writer, run: str(r.run, 'run'), hash, source, field, l2, keep };
 }
 
 /** The rows and tiles of part k of n (1-based): a contiguous run of bands, split as evenly as whole bands allow. */

@@ -6,6 +6,7 @@
  * cells are null, read as NaN: a masked field; data/volcano.json), mirror
  * tiled to a few hundred rows (see test/archive/datasets.ts).
  */
+import { createHash } from 'node:crypto';
 import { describe, expect, it } from 'vitest';
 import { ArchiveBuilder, FormatError, InputError, MemorySink, MemorySource, open, type PackOptions } from '../../src/index.js';
 import { makePlan, parsePlan, planText, partRange, type RunPlan } from '../../src/parts/plan.js';
@@ -114,6 +115,11 @@ describe('join refuses', () => {
     const text = planText(p).replace('"keep":false', '"keep":true');
     expect(() => parsePlan(text, 'plan.json')).toThrow(/plan.json: the plan was changed after 'rankfield plan' wrote it/);
     expect(() => parsePlan('{"a":1}', 'plan.json')).toThrow(/plan.json: not a plan written by 'rankfield plan'/);
+    // A plan of another program version, with a hash of its own that matches: refused, since its parts' payloads could differ.
+    const o = JSON.parse(planText(p)) as Record<string, unknown>;
+    o.writer = 'rankfield 0.0.1';
+    o.hash = createHash('sha256').update(JSON.stringify({ writer: o.writer, source: o.source, field: o.field, l2: o.l2, keep: o.keep })).digest('hex');
+    expect(() => parsePlan(JSON.stringify(o), 'old.json')).toThrow(/old.json: the plan was made by rankfield 0.0.1, this is rankfield \S+; the parts of a run are packed by the program that made its plan/);
     // 256 rows in bands of 2 x 16 rows: 8 bands.
     expect(() => partRange(p, 1, 9)).toThrow(/8 bands of 32 rows .* at most 8 parts/);
     const changed = c.values.slice();
