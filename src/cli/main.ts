@@ -64,8 +64,8 @@ Packing is lossy: it discards information. Keep the originals until
 \`rankfield check ARCHIVE --against ORIGINAL\` passes, and follow your
 institution's data-retention rules.`,
     );
-  registerPlan(program, ctx);
   registerPack(program, ctx);
+  registerPlan(program, ctx);
   registerJoin(program, ctx);
   registerUnpack(program, ctx);
   registerShow(program, ctx);

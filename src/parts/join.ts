@@ -9,12 +9,12 @@
  * is byte-identical to the single pack of the same input and plan.
  */
 import { open, type Archive } from '../archive.js';
-import type { FieldResult, FieldSpec } from '../codec/field.js';
+import type { EncodedTile, FieldResult, FieldSpec } from '../codec/field.js';
 import { ErrorTally } from '../codec/tally.js';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import type { Sink } from '../format/container.js';
 import { crc32 } from '../format/crc32.js';
-import { pageGrid, pageTiles, sliceGrid, type Attrs, type FieldHeader, type FieldIndex } from '../format/schema.js';
+import { pageGrid, pageTiles, type Attrs, type FieldHeader, type FieldIndex } from '../format/schema.js';
 import type { ByteSource } from '../format/source.js';
 import { ArchiveBuilder } from '../pack.js';
 import { partRange } from './plan.js';
@@ -154,7 +154,8 @@ async function write(parts: Part[], sink: Sink, o: JoinOptions): Promise<JoinRes
   for (const p of parts) {
     const want = partRange(plan, p.k, p.n);
     if (p.rows[0] !== want.rows[0] || p.rows[1] !== want.rows[1] || p.header.shape[0] !== want.rows[1] - want.rows[0]) {
-      throw new FormatError(FormatCode.Malformed, `${p.label}: part ${p.k}/${p.n} holds rows ${p.rows[0]}..${p.rows[1] - 1}, but part ${p.k} of ${p.n} of a field of ${rows} rows in bands of ${want.rows[1] - want.rows[0]} is rows ${want.rows[0]}..${want.rows[1] - 1}`);
+      const band = h0.tile[0] * p0.page[0];
+      throw new FormatError(FormatCode.Malformed, `${p.label}: part ${p.k}/${p.n} holds rows ${p.rows[0]}..${p.rows[1] - 1} (${p.header.shape[0]} rows), but part ${p.k} of ${p.n} of a field of ${rows} rows in bands of ${band} is rows ${want.rows[0]}..${want.rows[1] - 1}`);
     }
     const ix = await p.archive.fieldIndex();
     if (p.tally.length !== 4 * ix.length.length) throw new FormatError(FormatCode.Malformed, `${p.label}: ${PART_KEYS.tally} holds ${p.tally.length} numbers, not 4 for each of the part's ${ix.length.length} tiles`);
@@ -162,38 +163,14 @@ async function write(parts: Part[], sink: Sink, o: JoinOptions): Promise<JoinRes
   }
   const spec: FieldSpec = { name: h0.name, dtype: h0.dtype, rows, cols, tileRows: h0.tile[0], tileCols: h0.tile[1], bound: { mode: h0.bound.mode, value: h0.bound.value }, fill: h0.fill, progressive: indexes[0].prefix !== undefined };
   const builder = new ArchiveBuilder(sink);
-  const header = await builder.addCoded(spec, { attrs: h0.attrs, ndShape: p0.nd.ndShape, dims: p0.nd.dims, layout: p0.nd.layout, onProgress: o.onProgress }, p0.page, async (emit) => {
+  const nd = { ndShape: p0.nd.ndShape, dims: p0.nd.dims, layout: p0.nd.layout };
+  const header = await builder.addCoded(spec, { attrs: h0.attrs, ...nd, onProgress: o.onProgress }, p0.page, async (emit) => {
     const total = new ErrorTally();
     let valid = 0;
     let t0 = 0;
     for (const [i, p] of parts.entries()) {
-      const ix = indexes[i];
-      const h = p.header;
-      const d = p.archive.directory.fields[0];
-      const [pr, pc] = pageGrid(h, p.page);
-      const [, gc] = sliceGrid(h);
-      // One band of index pages at a time: its payloads lie back to back in the part, page after page.
-      for (let pi = 0; pi < pr; pi++) {
-        const first = pi * pc;
-        const start = d.data_offset[first];
-        const end = d.data_offset[first + pc - 1] + d.data_length[first + pc - 1];
-        const run = await p.src.read(start, end - start);
-        const tiles: number[] = [];
-        for (let pj = 0; pj < pc; pj++) tiles.push(...pageTiles(h, p.page, first + pj));
-        tiles.sort((a, b) => a - b);
-        for (const t of tiles) {
-          const at = ix.offset[t] - start;
-          const payload = run.slice(at, at + ix.length[t]);
-          if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${p.label}: tile ${t} of part ${p.k}/${p.n} (tile ${t0 + t} of the field): payload CRC-32 mismatch`);
-          const state = p.tally.slice(4 * t, 4 * t + 4);
-          if (!validTally(state, ix.valid[t])) throw new FormatError(FormatCode.Malformed, `${p.label}: tile ${t} of part ${p.k}/${p.n}: its error tally in ${PART_KEYS.tally} (${state.join(', ')}) is not one of ${ix.valid[t]} valid cells`);
-          const tally = ErrorTally.fromState(state);
-          total.merge(tally);
-          valid += ix.valid[t];
-          emit(t0 + t, { payload, stats: { method: ix.method[t], rank: ix.rank[t], valid: ix.valid[t], maxErr: ix.max_err[t], rmse: ix.rmse[t], valueCrc: ix.value_crc[t], prefix: ix.prefix?.[t] ?? [] } });
-        }
-      }
-      t0 += Math.ceil(h.shape[0] / h.tile[0]) * gc;
+      valid += await copyPart(p, indexes[i], t0, emit, total);
+      t0 += indexes[i].length.length;
     }
     const result: FieldResult = { tolerance: h0.bound.tolerance, range: h0.bound.range as [number, number] | null, valid, maxErr: total.max, rmse: total.rmse };
     return result;
@@ -206,4 +183,37 @@ async function write(parts: Part[], sink: Sink, o: JoinOptions): Promise<JoinRes
 function validTally(s: readonly number[], valid: number): boolean {
   const [count, max, scale, ssq] = s;
   return count === valid && s.every((x) => Number.isFinite(x) && x >= 0) && (scale === 0 ? max === 0 : ssq >= 1 && max > 0);
+}
+
+/**
+ * Hand every tile of part `p` (index `ix`) to `emit` in tile order, as
+ * tile `t0 + t` of the field, with its payload checked against its CRC-32,
+ * and merge its error tally into `total`. Returns the part's valid cells.
+ */
+async function copyPart(p: Part, ix: FieldIndex, t0: number, emit: (t: number, tile: EncodedTile) => void, total: ErrorTally): Promise<number> {
+  const h = p.header;
+  const d = p.archive.directory.fields[0];
+  const [pr, pc] = pageGrid(h, p.page);
+  let valid = 0;
+  // One band of index pages at a time: its payloads lie back to back in the part, page after page.
+  for (let pi = 0; pi < pr; pi++) {
+    const first = pi * pc;
+    const start = d.data_offset[first];
+    const end = d.data_offset[first + pc - 1] + d.data_length[first + pc - 1];
+    const run = await p.src.read(start, end - start);
+    const tiles: number[] = [];
+    for (let pj = 0; pj < pc; pj++) tiles.push(...pageTiles(h, p.page, first + pj));
+    tiles.sort((a, b) => a - b);
+    for (const t of tiles) {
+      const at = ix.offset[t] - start;
+      const payload = run.slice(at, at + ix.length[t]);
+      if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${p.label}: tile ${t} of part ${p.k}/${p.n} (tile ${t0 + t} of the field): payload CRC-32 mismatch`);
+      const state = p.tally.slice(4 * t, 4 * t + 4);
+      if (!validTally(state, ix.valid[t])) throw new FormatError(FormatCode.Malformed, `${p.label}: tile ${t} of part ${p.k}/${p.n}: its error tally in ${PART_KEYS.tally} (${state.join(', ')}) is not one of ${ix.valid[t]} valid cells`);
+      total.merge(ErrorTally.fromState(state));
+      valid += ix.valid[t];
+      emit(t0 + t, { payload, stats: { method: ix.method[t], rank: ix.rank[t], valid: ix.valid[t], maxErr: ix.max_err[t], rmse: ix.rmse[t], valueCrc: ix.value_crc[t], prefix: ix.prefix?.[t] ?? [] } });
+    }
+  }
+  return valid;
 }
