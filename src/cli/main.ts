@@ -65,14 +65,14 @@ Packing is lossy: it discards information. Keep the originals until
 institution's data-retention rules.`,
     );
   registerPack(program, ctx);
-  registerPlan(program, ctx);
-  registerJoin(program, ctx);
   registerUnpack(program, ctx);
   registerShow(program, ctx);
   registerCheck(program, ctx);
   registerDemo(program, ctx);
   registerPreview(program, ctx);
   registerTrial(program, ctx);
+  registerPlan(program, ctx);
+  registerJoin(program, ctx);
   addOutputOptions(program);
   return program;
 }

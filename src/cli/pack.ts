@@ -151,7 +151,7 @@ export function registerPack(program: Command, ctx: Context): void {
       const kind = await inputKind(input);
       if (flags.plan !== undefined || flags.part !== undefined) return packPlannedCli(input, kind, flags, out, start);
       const bound = flags.bound;
-      if (bound === undefined) throw new UsageError("pack needs --bound MODE:VALUE (or --plan PLAN from 'rankfield plan')");
+      if (bound === undefined) throw new UsageError("required option '--bound <MODE:VALUE>' not specified (a plan from 'rankfield plan', given with --plan PLAN, holds it instead)");
       if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, { ...flags, bound }, out, start, kind === 'hdf5');
       if (flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${input}' is not NetCDF (by its first bytes or its name)`);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
