@@ -13,6 +13,8 @@ import { HTTP_DEFAULTS } from './http.js';
 import { Worker } from 'node:worker_threads';
 import { addOutputOptions } from './output.js';
 import { registerPack } from './pack.js';
+import { registerPlan } from './plan.js';
+import { registerJoin } from './join.js';
 import { registerPreview } from './preview.js';
 import { registerTrial } from './trial.js';
 import { registerShow } from './show.js';
@@ -71,6 +73,8 @@ institution's data-retention rules.`,
   registerPreview(program, ctx);
   registerTrial(program, ctx);
   registerView(program, ctx);
+  registerPlan(program, ctx);
+  registerJoin(program, ctx);
   addOutputOptions(program);
   return program;
 }
@@ -110,7 +114,7 @@ export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'e
 }
 
 /** Commands that run long enough to be interrupted mid-way: they run in a worker thread (see worker.ts). */
-const LONG_COMMANDS = ['pack', 'demo', 'trial'];
+const LONG_COMMANDS = ['pack', 'demo', 'trial', 'plan', 'join'];
 
 /** The command word of argv: its first argument that is not an option. */
 function commandOf(argv: readonly string[]): string | undefined {

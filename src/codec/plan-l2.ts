@@ -127,6 +127,9 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
         best = p;
       }
     }
+    // The trial left singular vectors (of whatever rank it needed) on the sampled tiles; the second
+    // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
+    if (keep) for (const t of sampled) t.svd = null;
   }
   return l2Plan(best, fill, (index) => (keep ? kept[index] : undefined));
 }
