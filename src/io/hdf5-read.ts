@@ -24,7 +24,6 @@
  *  - the first dimension whose maximum size is unlimited becomes the record
  *    dimension (classic files have at most one).
  */
-import fs from 'node:fs';
 import { InputCode, InputError } from '../errors.js';
 import type { NcAttrValue, NcType } from './netcdf-types.js';
 import { writeNetcdf, type NcWriteFile, type NcWriteValues, type NcWriteVariable } from './netcdf-write.js';
@@ -54,38 +53,27 @@ type H5Node = {
 
 let loading: Promise<H5> | null = null;
 
-/** h5wasm, loaded once for reading and writing (its WebAssembly module takes a moment to start). */
+/**
+ * h5wasm, loaded once for reading and writing (its WebAssembly module takes
+ * a moment to start). The HDF5 library's automatic error report is switched
+ * to h5wasm's throwing handler (`activate_throwing_error_handler`, h5wasm
+ * 0.7.2 and later): a failing HDF5 call throws an Error whose message is the
+ * error stack the library would otherwise print to stderr, so nothing of it
+ * reaches the terminal and {@link hdf5Reason} makes one line of it.
+ */
 export async function h5(): Promise<H5> {
   loading ??= import('h5wasm/node').then(async (m) => {
-    await m.default.ready;
+    const module = await m.default.ready;
+    module.activate_throwing_error_handler();
     return m.default;
   });
   return loading;
 }
 
-/**
- * Run `fn` with the HDF5 library's error reports kept off the terminal: on
- * failure the C library prints its error stack to file descriptor 2, which
- * h5wasm's Node build writes with fs.writeSync; those writes are caught
- * (only during `fn`, only to descriptor 2) and handed to `fn`'s caller as
- * text, so that a failure is one line of ours. Returns fn's result and the
- * caught text.
- */
-export function quietly<T>(fn: () => T): { result: T; stack: string } {
-  const original = fs.writeSync;
-  const caught: string[] = [];
-  const quiet = function (this: unknown, fd: number, data: unknown, ...rest: unknown[]): number {
-    if (fd !== 2) return (original as (...a: unknown[]) => number).call(this, fd, data, ...rest);
-    const text = typeof data === 'string' ? data : Buffer.from(data as Uint8Array).subarray((rest[0] as number | undefined) ?? 0, rest[1] === undefined ? undefined : ((rest[0] as number | undefined) ?? 0) + (rest[1] as number)).toString('utf8');
-    caught.push(text);
-    return typeof data === 'string' ? Buffer.byteLength(data) : ((rest[1] as number | undefined) ?? (data as Uint8Array).length);
-  };
-  fs.writeSync = quiet as typeof fs.writeSync;
-  try {
-    return { result: fn(), stack: caught.join('') };
-  } finally {
-    fs.writeSync = original;
-  }
+/** The message of a caught HDF5 failure, as one line: the innermost complaint of its error stack, or the error's own text. */
+export function hdf5Failure(e: unknown): string {
+  const text = e instanceof Error ? e.message : String(e);
+  return /HDF5-DIAG|#000:/.test(text) ? hdf5Reason(text) : text.split('\n')[0];
 }
 
 /** The innermost HDF5 complaint of an error stack, e.g. "H5Fopen(): unable to synchronously open file". */
@@ -165,24 +153,17 @@ function flatName(path: string): string {
  */
 export async function readHdf5AsClassic(path: string): Promise<NcWriteFile> {
   const lib = await h5();
-  const { result, stack } = quietly((): NcWriteFile | { failed: unknown } => {
-    try {
-      return readOpen(lib, path);
-    } catch (e) {
-      return { failed: e };
-    }
-  });
-  if ('failed' in result) {
-    const e = result.failed;
+  try {
+    return readOpen(lib, path);
+  } catch (e) {
     if (e instanceof InputError) throw e;
-    return fileError(path, `not a readable HDF5 file (${stack ? hdf5Reason(stack) : e instanceof Error ? e.message : String(e)})`);
+    return fileError(path, `not a readable HDF5 file (${hdf5Failure(e)})`);
   }
-  return result;
 }
 
 type H5File = H5Node & { file_id: bigint; close(): void; dereference(r: unknown): { path: string } | null };
 
-/** {@link readHdf5AsClassic} within {@link quietly}: opens, walks and closes the file. */
+/** {@link readHdf5AsClassic}: opens, walks and closes the file. */
 function readOpen(lib: H5, path: string): NcWriteFile {
   const file = new lib.File(path, 'r') as unknown as H5File;
   if (!(file.file_id >= 0n)) throw new Error('cannot open');

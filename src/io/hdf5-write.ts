@@ -10,7 +10,7 @@
  * strings (read back as char), links kept in creation order.
  */
 import { InputCode, InputError } from '../errors.js';
-import { h5, hdf5Reason, quietly, type H5 } from './hdf5-read.js';
+import { h5, hdf5Failure, type H5 } from './hdf5-read.js';
 import type { NcAttrValue, NcType } from './netcdf-types.js';
 import type { NcWriteFile, NcWriteValues } from './netcdf-write.js';
 
@@ -64,19 +64,15 @@ function putAttrs(target: H5Dataset, attrs: Record<string, NcAttrValue>, types: 
 /** Write `file` as NetCDF-4 at `path` (a new file; the caller publishes it). */
 export async function writeNetcdf4(path: string, file: NcWriteFile): Promise<void> {
   const lib = await h5();
-  const { result, stack } = quietly(() => {
-    try {
-      write(lib, path, file);
-      return null;
-    } catch (e) {
-      return e;
-    }
-  });
-  if (result instanceof InputError) throw result;
-  if (result !== null) throw new InputError(InputCode.File, `${path}: the HDF5 library could not write it (${stack ? hdf5Reason(stack) : result instanceof Error ? result.message : String(result)})`);
+  try {
+    write(lib, path, file);
+  } catch (e) {
+    if (e instanceof InputError) throw e;
+    throw new InputError(InputCode.File, `${path}: the HDF5 library could not write it (${hdf5Failure(e)})`);
+  }
 }
 
-/** {@link writeNetcdf4} within {@link quietly}. */
+/** {@link writeNetcdf4}: creates, fills and closes the file. */
 function write(lib: H5, path: string, file: NcWriteFile): void {
   const out = new lib.File(path, 'w', { track_order: true }) as unknown as H5File;
   try {

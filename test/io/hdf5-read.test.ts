@@ -8,7 +8,7 @@
  * `h5repack` with GZIP and chunks) are checked against the values written.
  * Data: vega-datasets data/volcano.json (61 x 87 heights in metres).
  */
-import { execFileSync } from 'node:child_process';
+import { execFileSync, spawnSync } from 'node:child_process';
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -16,7 +16,7 @@ import { InputError } from '../../src/errors.js';
 import { netcdf4ToClassic, readHdf5AsClassic } from '../../src/io/hdf5-read.js';
 import { readNetcdfHeader, readNetcdfVariable } from '../../src/io/netcdf-read.js';
 import { cdlValues, haveNetcdfBin, NCCOPY, ncgen } from '../cdl.js';
-import { tempDir, volcano } from '../cli/helpers.js';
+import { ensureBuilt, tempDir, volcano } from '../cli/helpers.js';
 import { haveSystemTools } from '../system-tools.js';
 
 const NC = haveNetcdfBin('the NetCDF-4 reading tests');
@@ -24,6 +24,7 @@ const H5 = haveSystemTools('the HDF5 reading tests', 'hdf5-tools', ['/usr/bin/h5
 const g = volcano();
 let t: ReturnType<typeof tempDir>;
 beforeAll(() => {
+  ensureBuilt();
   t = tempDir('rankfield-h5-');
 });
 afterAll(() => t?.remove());
@@ -140,5 +141,25 @@ describe('not HDF5', () => {
     const junk = join(t.dir, 'junk.h5');
     writeFileSync(junk, 'not an hdf5 file at all');
     await expect(readHdf5AsClassic(junk)).rejects.toThrow(/junk\.h5: not a readable HDF5 file/);
+  });
+});
+
+describe('HDF5 error reports', () => {
+  // h5wasm's throwing error handler (its CHANGELOG, v0.7.2): the HDF5 library's error stack becomes the
+  // thrown Error's message instead of text on stderr. A child process shows that nothing reaches stderr.
+  it('a failing HDF5 read or write is one InputError naming the HDF5 call, with nothing printed on stderr', () => {
+    const junk = join(t.dir, 'junk2.h5');
+    writeFileSync(junk, 'not an hdf5 file at all');
+    const script = `
+      const { readHdf5AsClassic } = await import(${JSON.stringify(new URL('../../dist/io/hdf5-read.js', import.meta.url).href)});
+      const { writeNetcdf4 } = await import(${JSON.stringify(new URL('../../dist/io/hdf5-write.js', import.meta.url).href)});
+      for (const f of [() => readHdf5AsClassic(${JSON.stringify(junk)}), () => writeNetcdf4(${JSON.stringify(join(t.dir, 'no-such-dir', 'x.nc'))}, { dims: [], globalAttrs: {}, variables: [] })]) {
+        try { await f(); console.log('no error'); } catch (e) { console.log(e.constructor.name + ' ' + e.message); }
+      }`;
+    const r = spawnSync(process.execPath, ['--input-type=module', '-e', script], { encoding: 'utf8' });
+    expect(r.stderr).toBe('');
+    const lines = r.stdout.trim().split('\n');
+    expect(lines[0]).toMatch(/^InputError .*junk2\.h5: not a readable HDF5 file \(H5Fopen\(\): /);
+    expect(lines[1]).toMatch(/^InputError .*x\.nc: the HDF5 library could not write it \(H5Fcreate\(\): /);
   });
 });
