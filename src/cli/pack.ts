@@ -193,7 +193,8 @@ export function registerPack(program: Command, ctx: Context): void {
           const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
           const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
           try {
-            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound: flags.bound, tile: flags.tile, fill: fill ?? null, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
+            // The guard ran (or --no-fill turned it off) in the band callback above, in the command line's words.
+            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound: flags.bound, tile: flags.tile, fill: fill ?? null, fillGuard: false, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
           } finally {
             bar.stop();
           }
@@ -256,6 +257,7 @@ async function packNetcdf(input: string, flags: PackFlags, out: Output, start: n
         bound: flags.bound,
         tile: flags.tile,
         fill: f.read.fill,
+        fillGuard: false, // guarded by netcdfFields, in the command line's words
         name: f.name,
         attrs: f.attrs,
         slices: f.slices,

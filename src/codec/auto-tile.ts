@@ -86,7 +86,7 @@ export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
       for (let i = 0; i < m; i++) mosaic.set(sample.subarray((i0 + i) * cols + j0, (i0 + i) * cols + j0 + n), i * width + k * n);
     });
     const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
-    const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false };
+    const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false }; // the field's own pass guards
     let bytes = 0;
     const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
     // Bytes per valid cell: candidates sample different tiles, and missing cells cost next to nothing.
