@@ -5,7 +5,8 @@
  */
 import { chooseLayout, FormatCode, FormatError, InputCode, InputError, type Attrs, type Bound, type FieldHeader } from '../index.js';
 import { readNetcdfHeader, readNetcdfVariable, physicalAttributes, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues, type NcVariable } from '../io/netcdf-read.js';
-import { NC_TYPE_SIZE, setOwn, unmark } from '../io/netcdf-types.js';
+import { NC_TYPE_SIZE, setOwn } from '../io/netcdf-types.js';
+import { MISSING_VALUES_KEY } from '../missing.js';
 import { formatBound } from '../codec/bound.js';
 import { VERSION_STRING } from '../version.js';
 import { toStoredType } from './netcdf-stored.js';
@@ -39,7 +40,7 @@ export const KEY = {
    * fill (a missing_value other than _FillValue), in order; its cells hold the
    * k-th missing-value mark (a quiet NaN, see src/io/netcdf-types.ts) in the archive.
    */
-  marks: 'rankfield:nc_missing',
+  marks: MISSING_VALUES_KEY,
   /** Archive attr: one JSON string per variable carried losslessly (not packed as a field); see {@link carriedJson}. */
   carried: 'rankfield:nc_carried',
 } as const;
@@ -528,10 +529,7 @@ function storedVariable(h: FieldHeader, values: Float32Array | Float64Array): { 
 }
 
 /** Missing values of a field decoded for .npy, raw or CSV output: the cells of each missing-value mark get the value they held (see {@link KEY}.marks). In place. */
-export function restoreMissing(h: FieldHeader, values: Float32Array | Float64Array): void {
-  const marks = h.attrs[KEY.marks];
-  if (Array.isArray(marks) && marks.length > 0 && marks.every((x) => typeof x === 'number')) unmark(values, marks as number[]);
-}
+export { restoreMissing } from '../missing.js';
 
 /** The source's dimension list from its JSON archive attribute, checked; [] when absent. */
 function sourceDims(text: unknown): { name: string; size: number; unlimited: boolean }[] {
