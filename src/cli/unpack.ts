@@ -7,7 +7,7 @@ import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, trackTempDir, writeOutput, writeOutputWith } from './files.js';
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
-import { carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
+import { byPath, carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
 import { dimNames, ndShapeOf, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
 import type { Archive, FloatArray } from '../index.js';
 import { writeNetcdf, type NcWriteFile } from '../io/netcdf-write.js';
@@ -175,13 +175,13 @@ export function registerUnpack(program: Command, ctx: Context): void {
       const start = performance.now();
       const out = new Output(ctx, flags);
       if (flags.var !== undefined && flags.field !== undefined) throw new UsageError('give --var or --field, not both');
-      const chosen = flags.var ?? flags.field;
+      const given = flags.var ?? flags.field;
       const npy = isNpyPath(flags.output);
       const nc = isNetcdfPath(flags.output);
       const csv = /\.csv$/i.test(flags.output);
       const dirOut = flags.output.endsWith('/');
       if (flags.endian !== undefined && (npy || nc || csv || dirOut)) throw new UsageError(`--endian applies to raw output; '${flags.output}' is not written as raw binary`);
-      if (dirOut && chosen !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
+      if (dirOut && given !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
       if (dirOut && (flags.region || flags.slices || flags.bound || flags.where)) throw new UsageError(`--region, --slices, --where and --bound apply to one field; '${flags.output}' (a folder) gets whole fields`);
       if (flags.netcdf4 && !nc) throw new UsageError(`--netcdf4 applies to NetCDF output (OUT ending in .nc); '${flags.output}' is not`);
       if (nc && flags.bound) throw new UsageError(`--bound applies to .npy, .csv or raw output; '${flags.output}' (NetCDF) gets the values as stored`);
@@ -192,6 +192,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
       else await checkOutput(flags.output, io);
       const archive = await openArchive(input);
       try {
+        const chosen = byPath(archive.names, given);
         const windowed = flags.where !== undefined || flags.region !== undefined || flags.slices !== undefined;
         if (!dirOut && windowed) {
           if (nc && chosen === undefined && archive.names.length > 1) throw new UsageError(`a window written to .nc is of one field: name it with --var (fields: ${archive.names.map((n) => printable(n)).join(', ')})`);
@@ -323,6 +324,10 @@ function tilesTouched(h: FieldHeader, request: { slices?: [number, number]; rows
  * afterwards, and on an interrupt) and read back.
  */
 async function netcdfBytes(file: NcWriteFile, netcdf4: boolean): Promise<Uint8Array> {
+  if (!netcdf4 && file.groupPaths) {
+    const grouped = [...file.variables.map((v) => v.name), ...file.dims.map((d) => d.name)].filter((n) => n.includes('/'));
+    throw new UsageError(`the output holds variables or dimensions of NetCDF-4 groups (${grouped.slice(0, 3).map(printable).join(', ')}${grouped.length > 3 ? ', ...' : ''}), which NetCDF classic cannot hold: add --netcdf4, or write .npy`);
+  }
   if (!netcdf4) return writeNetcdf(file);
   const dir = await mkdtemp(join(tmpdir(), 'rankfield-nc4-'));
   trackTempDir(dir, true);

@@ -56,7 +56,9 @@ export function axisOf(h: FieldHeader, name: string): number {
   const dims = dimNames(h);
   const exact = dims.indexOf(name);
   if (exact >= 0) return exact;
-  const i = dims.findIndex((d) => d.toLowerCase() === name.toLowerCase());
+  let i = dims.findIndex((d) => d.toLowerCase() === name.toLowerCase());
+  // A dimension of a NetCDF-4 group ('ocean/depth') also answers to its own name ('depth').
+  if (i < 0) i = dims.findIndex((d) => d.slice(d.lastIndexOf('/') + 1).toLowerCase() === name.toLowerCase());
   if (i < 0) throw new UsageError(`field '${printable(h.name)}' has no dimension '${printable(name)}'; its dimensions are ${dims.map(printable).join(', ')}`);
   return i;
 }

@@ -15,8 +15,10 @@
  *  - the bookkeeping attributes (CLASS, NAME, REFERENCE_LIST,
  *    DIMENSION_LIST, _Netcdf4Coordinates, _Netcdf4Dimid, _NCProperties,
  *    _nc3_strict) are dropped; every other attribute is kept with its type.
- *  - groups: a variable or dimension of group G is named G.NAME (nested
- *    groups G.H.NAME), since classic files have no groups.
+ *  - groups: a variable or dimension of group G is named by its path
+ *    without the leading '/', G/NAME (nested groups G/H/NAME); NetCDF names
+ *    cannot hold '/', so a name without one is of the root group. The
+ *    model's `groupPaths` says so (classic files have no groups).
  *  - types beyond the classic ones are widened exactly: unsigned byte to
  *    short, unsigned short to int, 32- and 64-bit unsigned and 64-bit
  *    integers to double (refused beyond 2^53, where double is inexact);
@@ -141,9 +143,9 @@ function attributes(node: H5Node, path: string): { attrs: Record<string, NcAttrV
   return { attrs, attrTypes };
 }
 
-/** A classic name for an HDF5 path: groups joined by '.', without the leading '/'. */
+/** The model's name of an HDF5 path: the path without the leading '/', groups kept as 'G/H/NAME'. */
 function flatName(path: string): string {
-  return path.replace(/^\/+/, '').split('/').join('.');
+  return path.replace(/^\/+/, '').replace(/\/+/g, '/');
 }
 
 /**
@@ -222,13 +224,18 @@ function readOpen(lib: H5, path: string): NcWriteFile {
       globalAttrs: g.attrs,
       globalAttrTypes: g.attrTypes,
       variables,
+      groupPaths: true,
     };
   } finally {
     file.close();
   }
 }
 
-/** A NetCDF-4 / HDF5 file as the bytes of the NetCDF classic file that holds the same (see the module comment). */
+/**
+ * A NetCDF-4 / HDF5 file as the bytes of the NetCDF classic file that holds
+ * the same (see the module comment); variables and dimensions of groups keep
+ * their paths as names, which only rankfield's own classic reader takes.
+ */
 export async function netcdf4ToClassic(path: string): Promise<Uint8Array> {
   const f = await readHdf5AsClassic(path);
   try {

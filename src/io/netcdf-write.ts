@@ -61,6 +61,13 @@ export interface NcWriteFile {
   globalAttrs: NcAttrs;
   globalAttrTypes?: Record<string, NcType>;
   variables: NcWriteVariable[];
+  /**
+   * Names of variables and dimensions may be NetCDF-4 group paths,
+   * `GROUP/.../NAME` without a leading '/', each part a valid name. Only for
+   * the in-memory model of a NetCDF-4 file (src/io/hdf5-read.ts) and for
+   * writing NetCDF-4: bytes written with such names are no valid classic file.
+   */
+  groupPaths?: boolean;
 }
 
 /** Where everything goes, from {@link planNetcdf}. */
@@ -91,7 +98,11 @@ const utf8 = new TextEncoder();
  * NFC, first character a letter, digit or underscore, no control
  * characters or '/', no trailing spaces, at most 256 bytes.
  */
-function checkName(name: string, what: string): Uint8Array {
+function checkName(name: string, what: string, paths = false): Uint8Array {
+  if (paths && typeof name === 'string' && name.includes('/')) {
+    for (const part of name.split('/')) checkName(part, `${what} '${name}': group path part`);
+    return utf8.encode(name);
+  }
   if (typeof name !== 'string' || name.length === 0) optionError(`${what} needs a non-empty name`);
   const bytes = utf8.encode(name);
   const ok =
@@ -256,7 +267,7 @@ function checkStructure(file: Omit<NcWriteFile, 'variables'> & { variables: Omit
   let numRecords = 0;
   let unlimited = -1;
   for (const [i, d] of file.dims.entries()) {
-    checkName(d.name, 'dimension');
+    checkName(d.name, 'dimension', file.groupPaths === true);
     if (dimNames.has(d.name)) optionError(`two dimensions named '${d.name}'`);
     dimNames.set(d.name, i);
     const lo = d.unlimited ? 0 : 1;
@@ -272,7 +283,7 @@ function checkStructure(file: Omit<NcWriteFile, 'variables'> & { variables: Omit
   const out: Checked = { dimIds: [], slabs: [], slabCounts: [], isRecord: [], numRecords };
   const varNames = new Set<string>();
   for (const v of file.variables) {
-    checkName(v.name, 'variable');
+    checkName(v.name, 'variable', file.groupPaths === true);
     if (varNames.has(v.name)) optionError(`two variables named '${v.name}'`);
     varNames.add(v.name);
     if (!(v.type in NC_TYPE_SIZE)) optionError(`variable '${v.name}' has unknown type ${JSON.stringify(v.type)}`);

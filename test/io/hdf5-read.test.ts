@@ -88,7 +88,9 @@ describe.skipIf(!NC)('NetCDF-4 made by ncgen and nccopy', { timeout: 30_000 }, (
     }
   });
 
-  it('reads groups, naming their variables GROUP.NAME', async () => {
+  it('reads nested groups, naming variables and dimensions by their path (GROUP/NAME), dimensions found in the group that defines them', async () => {
+    // netCDF-4 CDL allows "group:" blocks, and a group's variables may use the dimensions of the
+    // groups around it (NetCDF Users Guide, "Groups" and "CDL Syntax"; from memory).
     const cdl = `netcdf grouped {
 dimensions:
   y = 2 ;
@@ -98,17 +100,35 @@ variables:
 data:
   top = 1, 2, 3, 4, 5, 6 ;
 group: ocean {
+  dimensions:
+    z = 2 ;
   variables:
     double depth(y, x) ;
       depth:units = "m" ;
+    float z(z) ;
   data:
     depth = 10, 20, 30, 40, 50, 60 ;
+    z = 5, 15 ;
+  group: deep {
+    variables:
+      float temp(z, x) ;
+    data:
+      temp = 1.5, 2.5, 3.5, 4.5, 5.5, 6.5 ;
+  }
   }
 }
 `;
     const f = await readHdf5AsClassic(ncgen(cdl, join(t.dir, 'grouped.nc'), 'nc4'));
-    const depth = f.variables.find((v) => v.name === 'ocean.depth')!;
+    expect(f.groupPaths).toBe(true);
+    expect(f.variables.map((v) => v.name).sort()).toEqual(['ocean/deep/temp', 'ocean/depth', 'ocean/z', 'top']);
+    expect(f.dims.map((d) => `${d.name}=${d.size}`).sort()).toEqual(['ocean/z=2', 'x=3', 'y=2']);
+    const depth = f.variables.find((v) => v.name === 'ocean/depth')!;
     expect([depth.dims, depth.attrs, Array.from(depth.values as Float64Array)]).toEqual([['y', 'x'], { units: 'm' }, [10, 20, 30, 40, 50, 60]]);
+    const temp = f.variables.find((v) => v.name === 'ocean/deep/temp')!;
+    expect([temp.dims, Array.from(temp.values as Float32Array)]).toEqual([['ocean/z', 'x'], [1.5, 2.5, 3.5, 4.5, 5.5, 6.5]]);
+    // The in-memory classic bytes keep the paths, and the classic reader reads them back.
+    const back = readNetcdfHeader(await netcdf4ToClassic(join(t.dir, 'grouped.nc')), 'grouped.nc');
+    expect(back.variables.map((v) => v.name).sort()).toEqual(['ocean/deep/temp', 'ocean/depth', 'ocean/z', 'top']);
   });
 
   it('refuses a string variable with one InputError naming it', async () => {
@@ -131,7 +151,7 @@ describe.skipIf(!H5)('plain HDF5 made by hdf5-tools', { timeout: 30_000 }, () =>
     execFileSync('/usr/bin/h5import', [txt, '-c', cfg, '-o', plain]);
     execFileSync('/usr/bin/h5repack', ['-f', 'GZIP=5', '-l', 'CHUNK=16x16', plain, zipped]);
     const f = await readHdf5AsClassic(zipped);
-    expect(f.variables.map((v) => [v.name, v.dims, v.type])).toEqual([['grid.height', ['grid.height_dim0', 'grid.height_dim1'], 'double']]);
+    expect(f.variables.map((v) => [v.name, v.dims, v.type])).toEqual([['grid/height', ['grid/height_dim0', 'grid/height_dim1'], 'double']]);
     expect(Array.from(f.variables[0].values as Float64Array)).toEqual(Array.from(g.values));
   });
 });
