@@ -55,7 +55,9 @@ edge, so ':100,50:' is the first 100 rows from column 50 on. Only the tiles
 the window touches are read and decoded.
 
 OUT ending in .nc gets a NetCDF classic file of every field (or --var NAME),
-with dimensions and attributes restored; with --region, --slices or --where,
+with dimensions and attributes restored (with --netcdf4 a NetCDF-4 file, the
+only kind that holds variables of groups, named GROUP/NAME: each goes back
+into its group); with --region, --slices or --where,
 a window of one field, its dimensions and coordinate variables cut to match.
 --where lat=-30:30,lon=100:180 chooses the window by coordinate values
 (inclusive), through the coordinate variables the archive carries;
