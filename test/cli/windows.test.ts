@@ -115,7 +115,6 @@ describe.skipIf(!RUN)('windows of a matrix-laid NetCDF variable', { timeout: CLI
 
 describe.skipIf(!RUN)('windows of a 4-D variable written to .nc, on both layouts', { timeout: CLI_TIMEOUT }, () => {
   // (time 2, depth 3, lat 12, lon 10): the grid's time s, rows 30.., columns 60.., times 1 + depth / 10.
-  const DIMS = [2, 3, 12, 10];
   const cell = (s: number, d: number, i: number, j: number) => grid[(s * NY + 30 + i) * NX + 60 + j] * (1 + d / 10);
   const DEPTH = [5, 15, 25];
   const four = new Float64Array(2 * 3 * 12 * 10);
