@@ -144,13 +144,13 @@ group: ocean {
     expect(rf(['check', 'groups.rfz', '--against', 'groups.nc', '--var', '/ocean/temp'], t.dir).code).toBe(0);
     // Classic files have no groups: refused with the remedy.
     expectCliError(rf(['unpack', 'groups.rfz', '-o', 'flat.nc'], t.dir), /NetCDF-4 groups \(.*ocean\/temp.*\), which NetCDF classic cannot hold: add --netcdf4/);
-    const u = rf(['unpack', 'groups.rfz', '-o', 'back.nc', '--netcdf4'], t.dir);
+    const u = rf(['unpack', 'groups.rfz', '-o', 'groups-back.nc', '--netcdf4'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     // ncdump (netcdf-bin) prints the same groups, dimensions, variables, attributes and data as for the original,
     // but for the history line unpack adds; the values are within 0.001 of the originals, printed to ncdump's
     // own precision (7 significant digits for float, 17 for double), so the doubles are compared by value.
     const dump = (f: string) => execFileSync(NCDUMP, [join(t.dir, f)], { encoding: 'utf8' }).replace(/^netcdf \S+ \{/, '').replace(/\n\t\t:history = .*\n/, '\n');
-    const [a, b] = [dump('groups.nc'), dump('back.nc')];
+    const [a, b] = [dump('groups.nc'), dump('groups-back.nc')];
     const noDeepData = (d: string) => d.replace(/(group: deep \{[\s\S]*?data:)[\s\S]*?(\} \/\/ group deep)/, '$1 $2');
     expect(noDeepData(b)).toBe(noDeepData(a));
     expect(b).toMatch(/group: ocean \{\n {2}dimensions:\n {2}\tdepth = 4 ;[\s\S]*group: deep \{/);
