@@ -52,13 +52,15 @@ export const MAX_CARRIED_BYTES = 8 << 20;
  * A field or variable named as the user gave it: a NetCDF-4 path such as
  * '/ocean/temp' names the field 'ocean/temp' (and '/temp' the root group's
  * 'temp'), since names keep group paths without the leading '/' (spec/FORMAT.md,
- * section 6.4.1). A name that is one of `names` as given is kept.
+ * section 6.4.1). A name that is one of `names` as given, or names none of
+ * them either way, is kept (so a refusal quotes it as given).
  */
 export function byPath(names: readonly string[], name: string): string;
 export function byPath(names: readonly string[], name: string | undefined): string | undefined;
 export function byPath(names: readonly string[], name: string | undefined): string | undefined {
   if (name === undefined || names.includes(name) || !name.startsWith('/')) return name;
-  return name.replace(/^\/+/, '');
+  const path = name.replace(/^\/+/, '');
+  return names.includes(path) ? path : name;
 }
 
 /** The last part of a group path ('ocean/depth' -> 'depth'). */

@@ -142,6 +142,7 @@ group: ocean {
     expect(one.code, one.stderr).toBe(0);
     expect(JSON.parse(one.stdout).archive.fields.map((f: { name: string }) => f.name)).toEqual(['ocean/deep/temp']);
     expect(rf(['check', 'groups.rfz', '--against', 'groups.nc', '--var', '/ocean/temp'], t.dir).code).toBe(0);
+    expectCliError(rf(['unpack', 'groups.rfz', '--var', '/ocean/nope', '-o', 'x.npy'], t.dir), /no field '\/ocean\/nope' in groups\.rfz \(fields: .*ocean\/temp/);
     // Classic files have no groups: refused with the remedy.
     expectCliError(rf(['unpack', 'groups.rfz', '-o', 'flat.nc'], t.dir), /NetCDF-4 groups \(.*ocean\/temp.*\), which NetCDF classic cannot hold: add --netcdf4/);
     const u = rf(['unpack', 'groups.rfz', '-o', 'groups-back.nc', '--netcdf4'], t.dir);
