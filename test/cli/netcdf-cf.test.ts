@@ -72,6 +72,11 @@ describe.skipIf(!RUN)('CF round trip of an ncgen file', { timeout: CLI_TIMEOUT }
     expect(p.code, p.stderr).toBe(0);
     // Bytes in as stored: 5307 shorts (2 bytes) and 5307 floats (4 bytes).
     expect(p.stdout).toMatch(new RegExp(`: ${N * 2 + N * 4} bytes in,`));
+    // show counts the same: per field the stored bytes, against which its ratio is taken.
+    const shown = JSON.parse(rf(['show', 'v.rfz', '--json'], t.dir).stdout) as { rawBytes: number; fields: { name: string; rawBytes: number; payloadBytes: number; ratio: number }[] };
+    expect(shown.fields.map((f) => [f.name, f.rawBytes])).toEqual([['height', N * 2], ['level', N * 4]]);
+    expect(shown.rawBytes).toBe(N * 6);
+    for (const f of shown.fields) expect(f.ratio).toBe(f.rawBytes / f.payloadBytes);
     const u = rf(['unpack', 'v.rfz', '-o', 'back.nc'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const a = new NetCDFReader(readFileSync(join(t.dir, 'volcano.nc')));
