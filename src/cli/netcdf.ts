@@ -524,8 +524,8 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
     globalAttrs: g.attrs,
     globalAttrTypes: g.types,
     variables,
-    // Names of NetCDF-4 groups' variables and dimensions are paths (G/NAME): written back into their groups.
-    groupPaths: variables.some((v) => v.name.includes('/')) || [...dims.keys()].some((d) => d.includes('/')),
+    // Names of NetCDF-4 groups' variables, dimensions and attributes are paths (G/NAME): written back into their groups.
+    groupPaths: variables.some((v) => v.name.includes('/')) || [...dims.keys()].some((d) => d.includes('/')) || Object.keys(g.attrs).some((k) => k.includes('/')),
   };
 }
 

@@ -341,8 +341,8 @@ function tilesTouched(h: FieldHeader, request: { slices?: [number, number]; rows
  */
 async function netcdfBytes(file: NcWriteFile, netcdf4: boolean): Promise<Uint8Array> {
   if (!netcdf4 && file.groupPaths) {
-    const grouped = [...file.variables.map((v) => v.name), ...file.dims.map((d) => d.name)].filter((n) => n.includes('/'));
-    throw new UsageError(`the output holds variables or dimensions of NetCDF-4 groups (${grouped.slice(0, 3).map(printable).join(', ')}${grouped.length > 3 ? ', ...' : ''}), which NetCDF classic cannot hold: add --netcdf4, or write .npy`);
+    const grouped = [...file.variables.map((v) => v.name), ...file.dims.map((d) => d.name), ...Object.keys(file.globalAttrs)].filter((n) => n.includes('/'));
+    throw new UsageError(`the output holds variables, dimensions or attributes of NetCDF-4 groups (${grouped.slice(0, 3).map(printable).join(', ')}${grouped.length > 3 ? ', ...' : ''}), which NetCDF classic cannot hold: add --netcdf4, or write .npy`);
   }
   if (!netcdf4) return writeNetcdf(file);
   const dir = await mkdtemp(join(tmpdir(), 'rankfield-nc4-'));

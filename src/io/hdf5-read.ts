@@ -18,7 +18,8 @@
  *  - groups: a variable or dimension of group G is named by its path
  *    without the leading '/', G/NAME (nested groups G/H/NAME); NetCDF names
  *    cannot hold '/', so a name without one is of the root group. The
- *    model's `groupPaths` says so (classic files have no groups).
+ *    model's `groupPaths` says so (classic files have no groups). A
+ *    group's attributes are global attributes named G/NAME likewise.
  *  - types beyond the classic ones are widened exactly: unsigned byte to
  *    short, unsigned short to int, 32- and 64-bit unsigned and 64-bit
  *    integers to double (refused beyond 2^53, where double is inexact);
@@ -173,11 +174,23 @@ function readOpen(lib: H5, path: string): NcWriteFile {
     const dims = new Map<string, { size: number; unlimited: boolean }>();
     const variables: NcWriteVariable[] = [];
     const datasets: H5Node[] = [];
+    // Attributes of groups are kept as global attributes named by their path, G/NAME.
+    const groupAttrs: ReturnType<typeof attributes>[] = [];
     const walk = (g: H5Node) => {
       for (const k of g.keys!()) {
         const o = g.get!(k);
         if (o === null) continue;
-        if (o.type === 'Group') walk(o);
+        if (o.type === 'Group') {
+          const own = attributes(o, path);
+          const prefix = `${flatName(o.path)}/`;
+          const named = { attrs: {} as Record<string, NcAttrValue>, attrTypes: {} as Record<string, NcType> };
+          for (const [name, v] of Object.entries(own.attrs)) {
+            Object.defineProperty(named.attrs, prefix + name, { value: v, enumerable: true, writable: true, configurable: true });
+            Object.defineProperty(named.attrTypes, prefix + name, { value: own.attrTypes[name], enumerable: true, writable: true, configurable: true });
+          }
+          groupAttrs.push(named);
+          walk(o);
+        }
         else if (o.type === 'Dataset') datasets.push(o);
       }
     };
@@ -219,6 +232,10 @@ function readOpen(lib: H5, path: string): NcWriteFile {
     // The record dimension stays unlimited only where every variable using it has it first (the classic format's rule).
     const rec = record !== null && variables.every((v) => v.dims.indexOf(record!) <= 0) ? record : null;
     const g = attributes(file, path);
+    for (const a of groupAttrs) {
+      Object.assign(g.attrs, a.attrs);
+      Object.assign(g.attrTypes, a.attrTypes);
+    }
     return {
       dims: [...dims].map(([name, d]) => ({ name, size: d.size, unlimited: name === rec })),
       globalAttrs: g.attrs,

@@ -24,6 +24,7 @@ type H5Dataset = {
 };
 type H5File = H5Dataset & {
   create_group(name: string, track_order?: boolean): unknown;
+  get(name: string): unknown;
   create_dataset(a: { name: string; data: unknown; shape: number[]; dtype: string; maxshape?: (number | null)[]; chunks?: number[] }): H5Dataset;
   close(): void;
 };
@@ -89,7 +90,7 @@ function write(lib: H5, path: string, file: NcWriteFile): void {
     const coordinate = (d: string) => file.variables.find((v) => v.name === d && v.dims.length === 1 && v.dims[0] === d);
     // Groups: a name 'G/H/NAME' (file.groupPaths) goes into group /G/H, created in order of first use.
     const made = new Set<string>();
-    for (const name of [...file.dims.map((d) => d.name), ...file.variables.map((v) => v.name)]) {
+    for (const name of [...file.dims.map((d) => d.name), ...file.variables.map((v) => v.name), ...Object.keys(file.globalAttrs)]) {
       if (!file.groupPaths || !name.includes('/')) continue;
       const parts = name.split('/');
       for (let i = 1; i < parts.length; i++) {
@@ -116,7 +117,17 @@ function write(lib: H5, path: string, file: NcWriteFile): void {
       v.dims.forEach((d, i) => ds.attach_scale(i, `/${d}`));
       putAttrs(ds, v.attrs, v.attrTypes);
     }
-    putAttrs(out, file.globalAttrs, file.globalAttrTypes);
+    // A global attribute named G/NAME (groupPaths) is attribute NAME of group /G.
+    const own: Record<string, NcAttrValue> = {};
+    const byGroup = new Map<string, Record<string, NcAttrValue>>();
+    for (const [name, v] of Object.entries(file.globalAttrs)) {
+      const at = file.groupPaths ? name.lastIndexOf('/') : -1;
+      const target = at < 0 ? own : (byGroup.get(name.slice(0, at)) ?? byGroup.set(name.slice(0, at), {}).get(name.slice(0, at))!);
+      Object.defineProperty(target, at < 0 ? name : name.slice(at + 1), { value: v, enumerable: true, writable: true, configurable: true });
+    }
+    const typeOf = (prefix: string) => Object.fromEntries(Object.entries(file.globalAttrTypes ?? {}).filter(([k]) => (prefix === '' ? !k.includes('/') : k.startsWith(prefix) && !k.slice(prefix.length).includes('/'))).map(([k, t]) => [k.slice(prefix.length), t]));
+    putAttrs(out, own, file.groupPaths ? typeOf('') : file.globalAttrTypes);
+    for (const [g, attrs] of byGroup) putAttrs(out.get(g) as H5Dataset, attrs, typeOf(`${g}/`));
   } finally {
     out.close();
   }

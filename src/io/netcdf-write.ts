@@ -62,8 +62,9 @@ export interface NcWriteFile {
   globalAttrTypes?: Record<string, NcType>;
   variables: NcWriteVariable[];
   /**
-   * Names of variables and dimensions may be NetCDF-4 group paths,
-   * `GROUP/.../NAME` without a leading '/', each part a valid name. Only for
+   * Names of variables, dimensions and global attributes may be NetCDF-4
+   * group paths, `GROUP/.../NAME` without a leading '/', each part a valid
+   * name (a global attribute so named is an attribute of that group). Only for
    * the in-memory model of a NetCDF-4 file (src/io/hdf5-read.ts) and for
    * writing NetCDF-4: bytes written with such names are no valid classic file.
    */
@@ -220,7 +221,7 @@ function attrType(key: string, value: NcAttrValue, types: Record<string, NcType>
   return varType !== null && varType !== 'char' && VAR_TYPED_ATTRS.has(key) ? varType : 'double';
 }
 
-function writeAttrs(w: HeaderWriter, attrs: NcAttrs, types: Record<string, NcType> | undefined, varType: NcType | null, what: string): void {
+function writeAttrs(w: HeaderWriter, attrs: NcAttrs, types: Record<string, NcType> | undefined, varType: NcType | null, what: string, paths = false): void {
   if (attrs === null || typeof attrs !== 'object') optionError(`${what} attributes must be an object`);
   const entries = Object.entries(attrs);
   if (entries.length === 0) {
@@ -231,7 +232,7 @@ function writeAttrs(w: HeaderWriter, attrs: NcAttrs, types: Record<string, NcTyp
   w.u32(NC_ATTRIBUTE);
   w.u32(entries.length);
   for (const [key, value] of entries) {
-    w.name(checkName(key, `${what} attribute`));
+    w.name(checkName(key, `${what} attribute`, paths));
     const type = attrType(key, value, types, varType, what);
     w.u32(NC_TYPE_CODE[type]);
     if (typeof value === 'string') {
@@ -320,7 +321,7 @@ function buildHeader(file: Parameters<typeof checkStructure>[0], c: Checked, for
       w.u32(d.unlimited ? 0 : d.size);
     }
   }
-  writeAttrs(w, file.globalAttrs, file.globalAttrTypes, null, 'global');
+  writeAttrs(w, file.globalAttrs, file.globalAttrTypes, null, 'global', file.groupPaths === true);
   if (file.variables.length === 0) {
     w.u32(0);
     w.u32(0);

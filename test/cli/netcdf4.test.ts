@@ -100,7 +100,7 @@ describe.skipIf(!RUN)('NetCDF-4 input', { timeout: CLI_TIMEOUT }, () => {
     expect(data('rec3.nc')).toMatch(/site = "Maunga " ;/);
   });
 
-  it('groups: variables of nested groups are packed under their paths, chosen by --var /GROUP/NAME, and written back into their groups by --netcdf4 as ncdump shows the original', () => {
+  it('groups: variables of nested groups are packed under their paths, chosen by --var /GROUP/NAME, and written back into their groups, with the groups\' attributes, by --netcdf4 as ncdump shows the original', () => {
     // netCDF-4 CDL "group:" blocks (NetCDF Users Guide, "CDL Syntax" and "Groups"; from memory); a group's
     // variables use the dimensions of the groups around it. Values: volcano.json's first rows.
     const row = (r: number, n: number) => cdlValues(g.values.slice(r * 87, r * 87 + n));
@@ -121,6 +121,8 @@ group: ocean {
       depth:units = "m" ;
     float temp(depth, x) ;
       temp:_FillValue = -999.f ;
+    :region = "north shelf" ;
+    :levels = 4 ;
   data:
     depth = 5, 15, 25, 35 ;
     temp = ${row(1, 23)}, -999 ;
@@ -145,6 +147,8 @@ group: ocean {
     expectCliError(rf(['unpack', 'groups.rfz', '--var', '/ocean/nope', '-o', 'x.npy'], t.dir), /no field '\/ocean\/nope' in groups\.rfz \(fields: .*ocean\/temp/);
     // Classic files have no groups: refused with the remedy.
     expectCliError(rf(['unpack', 'groups.rfz', '-o', 'flat.nc'], t.dir), /NetCDF-4 groups \(.*ocean\/temp.*\), which NetCDF classic cannot hold: add --netcdf4/);
+    // The group's attributes go with it (ncdump prints them in the group, compared below).
+    expect(JSON.parse(rf(['show', 'groups.rfz', '--json'], t.dir).stdout).attrs).toMatchObject({ 'ocean/region': 'north shelf', 'ocean/levels': 4 });
     const u = rf(['unpack', 'groups.rfz', '-o', 'groups-back.nc', '--netcdf4'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     // ncdump (netcdf-bin) prints the same groups, dimensions, variables, attributes and data as for the original,
