@@ -39,12 +39,22 @@ export interface Breakdown {
   exactTiles: number;
   /** Factor values stored, sum of rank x (rows + cols) over tiles: comparable with the Eckart-Young floor's count. */
   factorValues: number;
-  /** Bytes of the quantized factors (DEFLATE streams of the factor groups). */
+  /** Bytes of the quantized factors (the factor groups: step codes, lengths and coded streams). */
   factors: number;
   /** Bytes of the residual and exception streams, and of exact tiles. */
   residual: number;
   /** Everything else: payload fixed parts, mask sections, section headers, container header, index and tail. */
   metadata: number;
+  /**
+   * The per-tile part of the metadata, as the compression target counts it
+   * (tile headers, index, mask sections): the index pages, and every
+   * payload byte that is not coded data (fixed part, mask section, group
+   * list, step codes, stream lengths, the residual's step and predictor,
+   * section headers).
+   */
+  tileMetadata: number;
+  /** The archive's frame: prologue, header block, index directory and tail (once per archive, whatever its size). */
+  container: number;
   total: number;
 }
 
@@ -60,6 +70,7 @@ export async function breakdown(bytes: Uint8Array): Promise<Breakdown> {
   const ix = (await archive.loadIndex()).fields[0];
   let factors = 0;
   let residual = 0;
+  let framing = 0;
   let exactTiles = 0;
   for (let t = 0; t < ix.offset.length; t++) {
     const p = bytes.subarray(ix.offset[t], ix.offset[t] + ix.length[t]);
@@ -67,7 +78,11 @@ export async function breakdown(bytes: Uint8Array): Promise<Breakdown> {
     const [f, r] = splitPayload(p);
     factors += f;
     residual += r;
+    framing += payloadShares(p)!.framing;
   }
+  // The frame: 12-byte prologue, header and directory (lengths from the tail), 24-byte tail (spec/FORMAT.md, section 3).
+  const tail = new DataView(bytes.buffer, bytes.byteOffset + bytes.length - 24, 24);
+  const container = 12 + tail.getUint32(0, true) + tail.getUint32(4, true) + 24;
   const tiles = ix.rank.length;
   const h = archive.header.fields[0];
   const gc = Math.ceil(h.shape[1] / h.tile[1]);
@@ -78,5 +93,6 @@ export async function breakdown(bytes: Uint8Array): Promise<Breakdown> {
     factorValues += ix.rank[t] * (m + n);
   }
   const meanRank = tiles > 0 ? ix.rank.reduce((a, b) => a + b, 0) / tiles : 0;
-  return { tiles, meanRank, exactTiles, factorValues, factors, residual, metadata: bytes.length - factors - residual, total: bytes.length };
+  const metadata = bytes.length - factors - residual;
+  return { tiles, meanRank, exactTiles, factorValues, factors, residual, metadata, tileMetadata: metadata - container + framing, container, total: bytes.length };
 }

@@ -4,10 +4,14 @@
  * field: `npm run pictures` (builds first). The field is packed as the demo
  * packs it (the library's pack, with the field's units and long name), and
  * the pictures are drawn by the command line (rankfield preview), so they
- * are what a user gets. Writes docs/pictures/{value,error,rank}.png.
+ * are what a user gets. Writes docs/pictures/{value,error,rank}.png, and
+ * docs/pictures/view.png: the page of `rankfield view sst.rfz`, as headless
+ * Chromium (Debian's chromium, driven by playwright-core) draws it after a
+ * zoom, with the pointer over the field (skipped, with a note, without
+ * /usr/bin/chromium).
  */
-import { execFileSync } from 'node:child_process';
-import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { execFileSync, spawn } from 'node:child_process';
+import { existsSync, mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -30,6 +34,41 @@ try {
   rf('preview', 'sst.rfz', '-o', join(out, 'value.png'), '--size', '512', '--force');
   rf('preview', 'sst.rfz', '-o', join(out, 'error.png'), '--map', 'error', '--against', 'sst.npy', '--region', '128:384,256:512', '--force');
   rf('preview', 'sst64.rfz', '-o', join(out, 'rank.png'), '--map', 'rank', '--size', '512', '--force');
+  if (existsSync('/usr/bin/chromium')) await viewShot(join(work, 'sst.rfz'), join(out, 'view.png'));
+  else console.error('note: no /usr/bin/chromium (apt-get install -y chromium): docs/pictures/view.png not made');
 } finally {
   rmSync(work, { recursive: true, force: true });
+}
+
+/** Start `rankfield view ARCHIVE`, load its page in headless Chromium, zoom in once, point at the field, and save a screenshot. */
+async function viewShot(archive, png) {
+  const { chromium } = await import('playwright-core');
+  const child = spawn(process.execPath, [join(root, 'bin', 'rankfield'), 'view', archive, '--json'], { stdio: ['ignore', 'pipe', 'inherit'] });
+  let text = '';
+  const url = await new Promise((resolve, reject) => {
+    child.stdout.on('data', (d) => {
+      text += d;
+      try {
+        resolve(JSON.parse(text).url);
+      } catch {
+        // not all of it yet
+      }
+    });
+    child.on('close', (code) => reject(new Error(`rankfield view ended with exit code ${code}`)));
+  });
+  const browser = await chromium.launch({ executablePath: '/usr/bin/chromium', headless: true, args: ['--no-sandbox', '--disable-gpu'] });
+  try {
+    const page = await browser.newPage({ viewport: { width: 1100, height: 640 } });
+    await page.goto(url);
+    const ready = () => page.waitForFunction(() => document.body.dataset.state === 'ready', undefined, { timeout: 30_000 });
+    await ready();
+    await page.click('#zoom-in');
+    await ready();
+    const box = await page.locator('#field').boundingBox();
+    await page.mouse.move(box.x + box.width * 0.4, box.y + box.height * 0.55);
+    await page.screenshot({ path: png });
+  } finally {
+    await browser.close();
+    child.kill('SIGTERM');
+  }
 }

@@ -176,6 +176,16 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices, progressive: o.progressive === true, guardFill }, data, page: [page[0], page[1]] };
 }
 
+/**
+ * The encoder's spec and the index page shape of a field of `shape` and
+ * `dtype` packed with options `o`, checked as {@link ArchiveBuilder.addBands}
+ * checks them (a tile shape 'auto' is still to be chosen: `spec.autoTile`).
+ */
+export function fieldSpecOf(shape: readonly number[], dtype: Dtype, o: PackOptions): { spec: FieldSpec; page: [number, number] } {
+  const { spec, page } = options(new Float32Array(0), shape, { ...checkOptions(o), dtype }, false);
+  return { spec, page };
+}
+
 /** A caller's band callback, with every band it returns checked against the field. */
 function checkedBands(band: (r0: number, count: number) => FloatArray, spec: FieldSpec): BandSource {
   return {
@@ -200,7 +210,7 @@ export class ArchiveBuilder {
   private finished = false;
   private readonly pages: [number, number][] = [];
 
-  constructor(sink: Sink, private readonly attrs: Attrs = {}, options: BuilderOptions = {}) {
+  constructor(sink: Sink, private attrs: Attrs = {}, options: BuilderOptions = {}) {
     const problem = attrsProblem(attrs);
     if (problem) throw new InputError(InputCode.Option, `archive ${problem}`);
     if (holdsLoneSurrogate(attrs)) throw new InputError(InputCode.Option, 'archive attributes hold a lone UTF-16 surrogate, which UTF-8 cannot store');
@@ -270,13 +280,49 @@ export class ArchiveBuilder {
 
   /** Checks and the tile shape before a field is encoded; the index it fills, and the emit that writes its payloads. */
   private begin(src: BandSource, spec: FieldSpec, page: [number, number], onProgress?: (done: number, total: number) => void): { ix: FieldIndex; emit: (t: number, tile: EncodedTile) => void } {
+    this.checkField(spec);
+    // The trial samples the top of the first slice.
+    if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 });
+    return this.start(spec, page, onProgress);
+  }
+
+  /** Refuse a field whose name is taken, or whose slices need a flag the sink cannot set any more. */
+  private checkField(spec: FieldSpec): void {
     if (this.fields.some((f) => f.name === spec.name)) throw new InputError(InputCode.Option, `field '${spec.name}' is already in the archive`);
     const slices = spec.slices ?? 1;
     if (slices > 1 && !this.writer.requireFlags(FLAG_SLICES)) {
       throw new InputError(InputCode.Option, `field '${spec.name}' has ${slices} slices: create the ArchiveBuilder with { slices: true } (this sink cannot patch the prologue)`);
     }
-    // The trial samples the top of the first slice.
-    if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 });
+  }
+
+  /**
+   * Append one field whose tiles are already coded (parts of a run, and
+   * their join): `produce` hands every tile to `emit` in tile order, with
+   * its payload and recorded figures, and returns the field's result; the
+   * writer lays the payloads out page by page and builds the index from
+   * them, exactly as for a field it encodes itself. `spec` must have its
+   * tile shape fixed (no autoTile).
+   */
+  async addCoded(spec: FieldSpec, o: Omit<PackOptions, 'bound'>, page: [number, number], produce: (emit: (t: number, tile: EncodedTile) => void) => FieldResult | Promise<FieldResult>): Promise<FieldHeader> {
+    this.refuseAfterFinish(spec.name);
+    // Internal assertion: callers (parts and join) fix the tile shape from a plan or a part header.
+    if (spec.autoTile) throw new Error('addCoded needs a fixed tile shape');
+    this.checkField(spec);
+    const w = this.start(spec, page, o.onProgress);
+    return this.end(spec, { ...o, bound: spec.bound }, page, w.ix, await produce(w.emit));
+  }
+
+  /** Replace the archive's attributes (written by finish()), e.g. with figures known only once the fields are coded. */
+  setAttrs(attrs: Attrs): void {
+    const problem = attrsProblem(attrs);
+    if (problem) throw new InputError(InputCode.Option, `archive ${problem}`);
+    if (holdsLoneSurrogate(attrs)) throw new InputError(InputCode.Option, 'archive attributes hold a lone UTF-16 surrogate, which UTF-8 cannot store');
+    this.attrs = attrs;
+  }
+
+  /** The index a field's tiles fill, and the emit that writes their payloads page by page. */
+  private start(spec: FieldSpec, page: [number, number], onProgress?: (done: number, total: number) => void): { ix: FieldIndex; emit: (t: number, tile: EncodedTile) => void } {
+    const slices = spec.slices ?? 1;
     // Payloads are written page by page (spec/FORMAT.md, section 3): the tiles of one band of
     // page rows are held (encoded) until the band is complete, then written page after page.
     const grid = { shape: [spec.rows, spec.cols], tile: [spec.tileRows, spec.tileCols] };

@@ -50,7 +50,7 @@ located), is a check failure (exit 1); damage to the tail,
 header or index directory is exit 2.`;
 
 /** The shape a field's original has: its N-D shape, else slices x rows x cols, else rows x cols. */
-function fieldShape(h: FieldHeader): number[] {
+export function fieldShape(h: FieldHeader): number[] {
   return h.nd_shape ?? ((h.slices ?? 1) > 1 ? [h.slices!, h.shape[0], h.shape[1]] : h.shape);
 }
 
@@ -70,7 +70,7 @@ function checkOriginal(what: string, shape: number[], dtype: Dtype, h: FieldHead
  * reads them (CF missing values and packing applied): every field of the
  * archive, or those named by --var; each must be a variable of the file.
  */
-async function netcdfOriginals(path: string, archive: Archive, names: string[] | undefined, input: string, hdf5: boolean): Promise<Record<string, FloatArray>> {
+export async function netcdfOriginals(path: string, archive: Archive, names: string[] | undefined, input: string, hdf5: boolean): Promise<Record<string, FloatArray>> {
   const bytes = hdf5 ? await netcdf4ToClassic(path) : await readInput(path);
   const file = readNetcdfHeader(bytes, path);
   const chosen = names && names.length > 0 ? names.map((n) => archive.field(byPath(archive.names, n)).header.name) : archive.names;
@@ -121,7 +121,7 @@ function reportText(r: CheckReport, headers: FieldHeader[], input: string, again
 /** Run a check with a progress bar over the tiles of every field. */
 async function withBar(out: Output, archive: Archive, run: (onProgress: (done: number, total: number) => void) => Promise<CheckReport>): Promise<CheckReport> {
   const raw = archive.header.fields.reduce((a, h) => a + rawBytes(h), 0);
-  const bar = out.tileProgress('checking', raw);
+  const bar = out.tileProgress('checking', raw, 'reading the index and the first tiles');
   try {
     return await run(bar.onProgress);
   } finally {

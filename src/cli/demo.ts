@@ -41,19 +41,36 @@ function archivePath(dir: string, text: string): string {
   return join(dir, `corvane-sst.${text.replace(':', '-')}.rfz`);
 }
 
-/** Pack, write, read back and check one bound. */
-async function runBound(text: string, values: Float32Array, shape: [number, number], fill: number | null, attrs: Record<string, string>, dir: string, force: boolean): Promise<Row> {
+/** Pack, write, read back and check one bound, with progress bars on a terminal. */
+async function runBound(out: Output, text: string, values: Float32Array, shape: [number, number], fill: number | null, attrs: Record<string, string>, dir: string, force: boolean): Promise<Row> {
   const bound = parseBound(text);
   const file = archivePath(dir, text);
   const t0 = performance.now();
-  const bytes = pack(values, shape, { bound, fill, name: 'sst', attrs });
+  const packing = out.tileProgress(`packing at ${text}`, values.byteLength, 'planning the tiles');
+  let bytes: Uint8Array;
+  try {
+    bytes = pack(values, shape, { bound, fill, name: 'sst', attrs, onProgress: packing.onProgress });
+  } finally {
+    packing.stop();
+  }
   await writeOutput(file, bytes, { force, inputs: [] });
   const t1 = performance.now();
   const archive = await openArchive(file);
   try {
-    await archive.read('sst');
+    const reading = out.phase(`reading back ${text}`);
+    try {
+      await archive.read('sst');
+    } finally {
+      reading.stop();
+    }
     const t2 = performance.now();
-    const report = await archive.check(values);
+    const checking = out.tileProgress(`checking ${text}`, values.byteLength, 'reading the index');
+    let report: Awaited<ReturnType<typeof archive.check>>;
+    try {
+      report = await archive.check(values, checking.onProgress);
+    } finally {
+      checking.stop();
+    }
     const f = report.fields[0];
     const m = f.measured ?? { maxErr: NaN, rmse: NaN };
     const h = archive.field('sst').header;
@@ -116,7 +133,7 @@ export function registerDemo(program: Command, ctx: Context): void {
         const shape: [number, number] = [rows, cols];
         await writeOutput(original, formatNpy({ data: basin.values, shape, dtype: 'f32' }), { force, inputs: [] });
         const results: Row[] = [];
-        for (const text of DEMO_BOUNDS) results.push(await runBound(text, basin.values, shape, basin.fill, basin.attrs, dir, force));
+        for (const text of DEMO_BOUNDS) results.push(await runBound(out, text, basin.values, shape, basin.fill, basin.attrs, dir, force));
         const body = results.map((r) => [
           r.text,
           String(r.bytes),

@@ -13,10 +13,13 @@ import { HTTP_DEFAULTS } from './http.js';
 import { Worker } from 'node:worker_threads';
 import { addOutputOptions } from './output.js';
 import { registerPack } from './pack.js';
+import { registerPlan } from './plan.js';
+import { registerJoin } from './join.js';
 import { registerPreview } from './preview.js';
 import { registerTrial } from './trial.js';
 import { registerShow } from './show.js';
 import { registerUnpack } from './unpack.js';
+import { registerView } from './view.js';
 
 /** What commands write to and report back. */
 export interface Context {
@@ -69,6 +72,9 @@ institution's data-retention rules.`,
   registerDemo(program, ctx);
   registerPreview(program, ctx);
   registerTrial(program, ctx);
+  registerView(program, ctx);
+  registerPlan(program, ctx);
+  registerJoin(program, ctx);
   addOutputOptions(program);
   return program;
 }
@@ -108,7 +114,7 @@ export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'e
 }
 
 /** Commands that run long enough to be interrupted mid-way: they run in a worker thread (see worker.ts). */
-const LONG_COMMANDS = ['pack', 'demo', 'trial'];
+const LONG_COMMANDS = ['pack', 'demo', 'trial', 'plan', 'join'];
 
 /** The command word of argv: its first argument that is not an option. */
 function commandOf(argv: readonly string[]): string | undefined {
@@ -160,9 +166,13 @@ export async function run(): Promise<void> {
   };
   // Exit codes 128 + the signal number (common practice, no source). Inputs are opened without
   // blocking (src/io/regular-file.ts), so no thread can be stuck in open() and hold up the exit.
-  process.once('SIGINT', onSignal('SIGINT', 130));
-  process.once('SIGTERM', onSignal('SIGTERM', 143));
-  process.once('SIGHUP', onSignal('SIGHUP', 129));
+  const command = commandOf(process.argv.slice(2));
+  // `view` runs until a signal, which ends it normally: it handles them itself (src/cli/view.ts).
+  if (command !== 'view') {
+    process.once('SIGINT', onSignal('SIGINT', 130));
+    process.once('SIGTERM', onSignal('SIGTERM', 143));
+    process.once('SIGHUP', onSignal('SIGHUP', 129));
+  }
   // A reader that closes the pipe early (`rankfield show x | head -1`) is not an error: further
   // output is dropped, and the command still finishes (and cleans up) normally.
   let stdoutOpen = true;
@@ -172,6 +182,8 @@ export async function run(): Promise<void> {
   });
   const out = (s: string) => void (stdoutOpen && process.stdout.write(s));
   const argv = process.argv.slice(2);
-  const long = LONG_COMMANDS.includes(commandOf(argv) ?? '');
+  const long = LONG_COMMANDS.includes(command ?? '');
   process.exitCode = long ? await inWorker(argv, out, (w) => (worker = w)) : await main(argv, { out });
+  // The viewer's HTTP reads of a URL may leave idle keep-alive connections: do not wait for them to time out.
+  if (command === 'view') process.exit();
 }

@@ -63,16 +63,56 @@ export class Output {
   /**
    * A bar started by the first report of a library call that states its
    * total only as it goes (pack's `onProgress`, check's): pass `onProgress`
-   * to the call, and call `stop` when it ends, also on errors.
+   * to the call, and call `stop` when it ends, also on errors. Until the
+   * first report, a line names the phase (`before`: what the call does
+   * before its first tile, such as reading the input and planning the tiles)
+   * and the seconds spent in it, so a terminal is never silent.
    */
-  tileProgress(label: string, bytes: number): { onProgress: (done: number, total: number) => void; stop: () => void } {
+  tileProgress(label: string, bytes: number, before = 'reading the input and planning the tiles'): { onProgress: (done: number, total: number) => void; stop: () => void } {
     let bar: Progress | null = null;
+    const phase = this.phase(`${label}: ${before}`);
     return {
       onProgress: (done, total) => {
-        bar ??= this.progress(label, total, bytes);
+        if (bar === null) {
+          phase.stop();
+          bar = this.progress(label, total, bytes);
+        }
         bar.update(done);
       },
-      stop: () => bar?.stop(),
+      stop: () => {
+        phase.stop();
+        bar?.stop();
+      },
+    };
+  }
+
+  /**
+   * A line on stderr naming what is being done and for how many seconds,
+   * redrawn each second, drawn (like the bars) only when stderr is a
+   * terminal and --quiet is not given; `stop` clears it.
+   */
+  phase(text: string): { stop: () => void } {
+    if (this.ctx.errTTY !== true || this.quiet) return { stop: () => undefined };
+    const ctx = this.ctx;
+    const start = performance.now();
+    // A terminal that reports no width (0 columns, as some pseudo-terminals do) is taken as 80 wide.
+    const width = Math.max(20, (ctx.errColumns || 80) - 1);
+    const draw = () => {
+      const line = `${text}... ${Math.floor((performance.now() - start) / 1000)} s`;
+      ctx.err(`\r${line.length > width ? `${line.slice(0, width - 3)}...` : line}\x1b[K`);
+    };
+    draw();
+    const timer = setInterval(draw, 1000);
+    timer.unref?.();
+    let live = true;
+    return {
+      stop: () => {
+        if (!live) return;
+        live = false;
+        clearInterval(timer);
+        // Carriage return and erase to the end of the line (ECMA-48 EL).
+        ctx.err('\r\x1b[K');
+      },
     };
   }
 }

@@ -10,6 +10,8 @@ import { readInput } from './files.js';
 import { bytesText, errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
 import { checkLayout, inputKind, openFieldBands } from './input.js';
+import { packPlannedCli, partOption } from './pack-plan.js';
+import type { BandReader } from '../io/bands.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
 import { Output, type OutputFlags } from './output.js';
@@ -17,9 +19,9 @@ import { packChoices, packDetails, writtenFacts } from './pack-report.js';
 import { RangeWatch, suspectMessage } from './fill-guard.js';
 import { boundOption, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
 
-interface PackFlags extends OutputFlags {
+export interface PackFlags extends OutputFlags {
   output: string;
-  bound: Bound;
+  bound?: Bound;
   tile?: [number, number] | 'auto';
   /** --fill V, or false for --no-fill. */
   fill?: number | false;
@@ -33,6 +35,8 @@ interface PackFlags extends OutputFlags {
   layout?: 'auto' | 'slices';
   threads?: number;
   progressive?: boolean;
+  plan?: string;
+  part?: [number, number];
 }
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
@@ -98,13 +102,13 @@ Example:
   rankfield pack run.nc -o run.rfz --bound rel:1e-3 --matrix time:space`;
 
 /** Default field name: the input file name without its extension. */
-function defaultName(input: string): string {
+export function defaultName(input: string): string {
   const base = basename(input, extname(input));
   return base.length > 0 && base.length <= 1024 ? base : 'field';
 }
 
 /** Refuse a fill value the field's element type cannot hold. */
-function checkFill(fill: number | undefined, dtype: Dtype): void {
+export function checkFill(fill: number | undefined, dtype: Dtype): void {
   if (fill !== undefined && dtype === 'f32' && !Number.isFinite(Math.fround(fill))) {
     throw new InputError(InputCode.Option, `fill value ${fill} is outside the float32 range of the input`);
   }
@@ -125,7 +129,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .description('Compress a field (2-D or N-D), or the variables of a NetCDF file, into an archive, keeping every value within a stated error bound.\n' + LOSSY_NOTE)
     .argument('<IN>', 'input: .npy (float32/float64, 2 or more axes), NetCDF, or raw binary with --shape and --dtype')
     .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
-    .requiredOption('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D', boundOption)
+    .option('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D (required, unless --plan gives it)', boundOption)
     .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (default: 64, 128, 256 and the whole field tried on a sample, the smallest kept)', tileOption)
     .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound); NetCDF input: for variables without _FillValue / missing_value', fillOption)
     .option('--no-fill', 'pack extreme values as data: turn off the refusal of a value that looks like an undeclared fill value (see below)')
@@ -136,8 +140,10 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--var <NAME>', 'NetCDF input: a variable to pack (repeatable; default every numeric variable of 2+ dimensions)', (v: string, prev: string[] | undefined) => [...(prev ?? []), v])
     .option('--matrix <AXES:NAME>', 'variables or arrays of 3+ axes: flatten the leading axes AXES (comma-separated; axis0, axis1, ... for .npy and raw) into rows, the rest into columns, e.g. time:space', parseMatrix)
     .option('--layout <LAYOUT>', 'variables of 3+ dimensions: auto (default: NetCDF, the layout whose sample packs smallest; .npy and raw, slices) or slices', layoutOption)
-    .option('--threads <N>', 'threads encoding tiles (default: the number of cores; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
+    .option('--threads <N>', 'threads encoding tiles (default: the number of cores, and 1 for a --part; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
     .option('--progressive', 'lay each tile\'s factors out in rank groups with their recorded errors, so that `unpack --bound` with a looser bound reads only a prefix of each tile (costs some bytes)')
+    .option('--plan <PLAN>', 'pack with the field-wide choices of a plan written by `rankfield plan` (bound, tile, fill, name come from it)')
+    .option('--part <K/N>', 'with --plan: pack only part K of N (a band of rows; see plan --help), to be joined by `rankfield join`', partOption)
     .option('--force', 'overwrite OUT if it exists')
     .addHelpText('after', BOUNDS_HELP)
     .action(async (input: string, flags: PackFlags) => {
@@ -145,7 +151,10 @@ export function registerPack(program: Command, ctx: Context): void {
       const out = new Output(ctx, flags);
       await statInput(input);
       const kind = await inputKind(input);
-      if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, flags, out, start, kind === 'hdf5');
+      if (flags.plan !== undefined || flags.part !== undefined) return packPlannedCli(input, kind, flags, out, start);
+      const bound = flags.bound;
+      if (bound === undefined) throw new UsageError("required option '--bound <MODE:VALUE>' not specified (a plan from 'rankfield plan', given with --plan PLAN, holds it instead)");
+      if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, { ...flags, bound }, out, start, kind === 'hdf5');
       if (flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${input}' is not NetCDF (by its first bytes or its name)`);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       checkLayout(input, layout, undefined, kind);
@@ -168,27 +177,7 @@ export function registerPack(program: Command, ctx: Context): void {
       try {
         checkFill(fill, field.dtype);
         const name = flags.name ?? defaultName(input);
-        // Rows of the stacked matrix the library reads (slices x rows); each is `factor` rows of the file's C-order matrix.
-        const rows = grid.slices * grid.rows;
-        const factor = grid.cols / field.shape[1];
-        let firstPass = true;
-        const band = (r0: number, count: number): FloatArray => {
-          let values: FloatArray;
-          try {
-            values = field.band(r0 * factor, count * factor);
-          } catch (e) {
-            throw fileError(e, 'read', input);
-          }
-          // The first pass (the value range) reads every row once, in order: count fill values there.
-          if (firstPass && fill !== undefined) fills += countFill(values, fill);
-          if (firstPass) watch?.add(values);
-          if (firstPass && r0 + count === rows) {
-            firstPass = false;
-            const s = watch?.suspect();
-            if (s) throw new UsageError(suspectMessage(s, `'${input}'`, field.dtype === 'f32'));
-          }
-          return values;
-        };
+        const band = watchedBand(field, grid, input, fill, watch, (n) => (fills += n));
         threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1]);
         await writeOutputWith(flags.output, io, async (sink) => {
           const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
@@ -196,7 +185,7 @@ export function registerPack(program: Command, ctx: Context): void {
           const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
           try {
             // The guard ran (or --no-fill turned it off) in the band callback above, in the command line's words.
-            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound: flags.bound, tile: flags.tile, fill: fill ?? null, fillGuard: false, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
+            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound, tile: flags.tile, fill: fill ?? null, fillGuard: false, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
           } finally {
             bar.stop();
           }
@@ -232,8 +221,37 @@ export function registerPack(program: Command, ctx: Context): void {
     });
 }
 
+/**
+ * The band reader the library packs from: rows of the stacked matrix (slices
+ * x rows; each is `grid.cols / field.shape[1]` rows of the file's C-order
+ * matrix). The first pass (the value range) reads every row once, in order:
+ * fill values are counted there (`onFill`), and `watch` sees the values,
+ * refusing after the last row a value that looks like an undeclared fill.
+ */
+export function watchedBand(field: BandReader, grid: ArrayGrid, input: string, fill: number | undefined, watch: RangeWatch | null, onFill: (n: number) => void): (r0: number, count: number) => FloatArray {
+  const rows = grid.slices * grid.rows;
+  const factor = grid.cols / field.shape[1];
+  let firstPass = true;
+  return (r0, count) => {
+    let values: FloatArray;
+    try {
+      values = field.band(r0 * factor, count * factor);
+    } catch (e) {
+      throw fileError(e, 'read', input);
+    }
+    if (firstPass && fill !== undefined) onFill(countFill(values, fill));
+    if (firstPass) watch?.add(values);
+    if (firstPass && r0 + count === rows) {
+      firstPass = false;
+      const s = watch?.suspect();
+      if (s) throw new UsageError(suspectMessage(s, `'${input}'`, field.dtype === 'f32'));
+    }
+    return values;
+  };
+}
+
 /** `pack IN.nc`: every chosen variable becomes one field of one archive. */
-async function packNetcdf(input: string, flags: PackFlags, out: Output, start: number, hdf5: boolean): Promise<void> {
+async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, out: Output, start: number, hdf5: boolean): Promise<void> {
   const misplaced = (['shape', 'dtype', 'endian', 'name'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
   if (misplaced.length > 0) {
     throw new UsageError(`${misplaced.join(', ')} do not apply to NetCDF input: shapes, types and names come from '${input}'`);
@@ -298,7 +316,7 @@ async function packNetcdf(input: string, flags: PackFlags, out: Output, start: n
 }
 
 /** How an N-D .npy or raw array is laid out as a field: slices x rows x cols, and the layout name (undefined for 2-D). */
-interface ArrayGrid {
+export interface ArrayGrid {
   slices: number;
   rows: number;
   cols: number;
@@ -337,6 +355,7 @@ function layoutOption(text: string): 'auto' | 'slices' {
 const MIN_PARALLEL_CELLS = 1 << 18;
 
 /** The threads of one field: as given, or by default 1 for a small field and the core count otherwise. */
-function defaultThreads(given: number | undefined, cells: number): number | undefined {
+export function defaultThreads(given: number | undefined, cells: number): number | undefined {
   return given !== undefined ? given : cells < MIN_PARALLEL_CELLS ? 1 : undefined;
 }
+

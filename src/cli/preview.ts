@@ -2,7 +2,8 @@
 import { InvalidArgumentError, type Command } from 'commander';
 import { hasSlices } from '../archive.js';
 import { printable } from '../format/schema.js';
-import { type Archive, type Dtype, type FieldHeader, formatBound, isPointwise } from '../index.js';
+import { type Archive, type Dtype, type FieldHeader, type FloatArray, formatBound, isPointwise } from '../index.js';
+import { fieldShape, netcdfOriginals } from './check.js';
 import { heatmap, type HeatmapSpec } from '../picture/heatmap.js';
 import { blockFor, EXACT_CODE, rankGrid, readGrids, slicePlane, snapshotPlane, snapshotShape, type Grid, type Plane, type PictureWindow } from '../picture/sample.js';
 import { UsageError } from './errors.js';
@@ -40,8 +41,11 @@ Maps:
   error   |decoded - original| / E per cell (block maxima), E the archive's
           resolved tolerance: 1 is the bound for abs and rel; for rmse and
           psnr E is the RMSE limit, which single cells may exceed. Needs
-          --against ORIGINAL (.npy or raw of the field's rows x columns;
-          for a field of slices, the slice given with --slice)
+          --against ORIGINAL: what the field was packed from (a NetCDF file,
+          whose variable of the field's name is read as pack reads it, or a
+          .npy of the field's N-D shape), of which the drawn slice or
+          snapshot is compared; or that slice or snapshot alone (.npy, or
+          raw of its rows x columns)
   rank    the rank of each tile's low-rank part (0: a mean and a coded
           residual only), exactly stored tiles in white; reads the index only
 
@@ -139,6 +143,32 @@ function specOf(kind: MapKind, h: FieldHeader, grid: Grid, w: PictureWindow, sca
   return { ...base, edges: lines, map: 'viridis', lo: 0, hi: Math.max(1, finite.length > 0 ? max : 1), discrete: true, barLabel: 'rank', specials: grid.cells.includes(EXACT_CODE) ? [{ code: EXACT_CODE, colour: [255, 255, 255], label: 'exact' }] : [], missing: false };
 }
 
+/**
+ * The original values of the plane drawn, for --map error: ORIGINAL holds
+ * the whole field (NetCDF: the variable of the field's name; .npy or raw:
+ * the field's N-D shape), of which the plane's run of C-order values is
+ * taken (slice i of a field of slices, row i of a field stored as a
+ * matrix), or just the plane (.npy or raw of its rows x columns).
+ */
+async function planeOriginal(archive: Archive, h: FieldHeader, input: string, flags: PreviewFlags, plane: Plane, index: number): Promise<FloatArray> {
+  const path = flags.against!;
+  const kind = await inputKind(path);
+  const size = plane.rows * plane.cols;
+  const whole = fieldShape(h);
+  if (kind === 'netcdf' || kind === 'hdf5') {
+    if (flags.dtype !== undefined || flags.endian !== undefined) throw new UsageError(`--dtype and --endian describe raw originals; '${printable(path)}' is NetCDF`);
+    const values = (await netcdfOriginals(path, archive, [h.name], input, kind === 'hdf5'))[h.name];
+    return values.subarray(index * size, (index + 1) * size);
+  }
+  // A .npy original states its shape; a raw one is read as the plane alone (its rows x columns, the field's dtype unless --dtype).
+  const orig = await loadField(path, { dtype: flags.dtype, endian: flags.endian }, { shape: [plane.rows, plane.cols], dtype: h.dtype }, kind);
+  const same = (a: readonly number[], b: readonly number[]) => a.length === b.length && a.every((d, i) => d === b[i]);
+  if (same(orig.shape, whole)) return orig.data.subarray(index * size, (index + 1) * size);
+  if (same(orig.shape, [plane.rows, plane.cols])) return orig.data;
+  const what = snapshotShape(h) ? 'snapshot' : hasSlices(h) ? 'slice' : '';
+  throw new UsageError(`original '${printable(path)}' is ${orig.shape.join('x')}, but field '${printable(h.name)}' of '${input}' is ${whole.join('x')}${what ? ` (one ${what}: ${plane.rows}x${plane.cols})` : ''}`);
+}
+
 /** Draw one map of a field of an opened archive; returns the PNG and the figures of the report. */
 async function draw(archive: Archive, input: string, flags: Required<Pick<PreviewFlags, 'map' | 'size'>> & PreviewFlags): Promise<{ png: Uint8Array; report: Record<string, unknown> }> {
   const { header: h } = archive.field(byPath(archive.names, flags.var));
@@ -149,15 +179,8 @@ async function draw(archive: Archive, input: string, flags: Required<Pick<Previe
   let grid: Grid;
   if (flags.map === 'rank') grid = rankGrid(plane, await archive.fieldIndex(h.name), w, block);
   else {
-    let original: Float32Array | Float64Array | undefined;
-    if (flags.map === 'error') {
-      if (snapshotShape(h)) throw new UsageError(`field '${printable(h.name)}' is stored as a matrix (layout ${h.layout}): --map error compares 2-D originals only; draw its values or ranks, or use rankfield check --against`);
-      const kind = await inputKind(flags.against!);
-      if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`--map error compares a .npy or raw original; '${printable(flags.against!)}' is NetCDF (save the variable's slice as .npy, or use rankfield check --against)`);
-      const orig = await loadField(flags.against!, { dtype: flags.dtype, endian: flags.endian }, { shape: [h.shape[0], h.shape[1]], dtype: h.dtype }, kind);
-      if (orig.shape[0] !== h.shape[0] || orig.shape[1] !== h.shape[1]) throw new UsageError(`original '${flags.against}' is ${orig.shape.join('x')}, but field '${printable(h.name)}' of '${input}' is ${h.shape.join('x')}${hasSlices(h) ? ' per slice' : ''}`);
-      original = orig.data;
-    }
+    let original: FloatArray | undefined;
+    if (flags.map === 'error') original = await planeOriginal(archive, h, input, flags, plane, choice === null ? 0 : Math.min(flags.slice ?? 0, choice.count - 1));
     const grids = await readGrids(plane, h, w, block, original, h.bound.tolerance > 0 ? h.bound.tolerance : 1);
     grid = flags.map === 'error' ? grids.errors! : grids.values;
   }
@@ -183,7 +206,7 @@ export function registerPreview(program: Command, ctx: Context): void {
     .option('--slice <I>', 'fields of slices: the slice to draw (default 0)', countOption('slice', 0, Number.MAX_SAFE_INTEGER))
     .option('--region <R0:R1,C0:C1>', 'draw only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
     .option('--map <MAP>', 'value (default), error (needs --against) or rank', mapOption)
-    .option('--against <ORIGINAL>', 'original values for --map error: .npy, or raw of the field\'s shape')
+    .option('--against <ORIGINAL>', 'original values for --map error: the NetCDF or .npy file packed, or the drawn slice alone (.npy or raw)')
     .option('--dtype <TYPE>', 'raw ORIGINAL: f32 or f64 (default: the field\'s)', dtypeOption)
     .option('--endian <ORDER>', 'raw ORIGINAL: byte order, little (default) or big', endianOption)
     .option('--size <N>', `longest side of the picture in cells; larger fields are drawn in blocks (default ${DEFAULT_SIZE})`, countOption('size', 16, 4096))

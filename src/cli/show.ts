@@ -9,6 +9,7 @@ import { printable } from '../format/schema.js';
 import { carriedNames, KEY } from './netcdf.js';
 import { Output, type OutputFlags } from './output.js';
 import { byteShares, sharesText, tileUse, tileUseText, type ByteShares, type TileUse } from './summary.js';
+import { PART_KEYS } from '../parts/part.js';
 
 /** The facts `show` reports about one field. */
 export interface FieldFacts {
@@ -159,6 +160,11 @@ export function factsText(a: ArchiveFacts): string {
   const own = new Set<string>([KEY.dims, KEY.order, KEY.carried]);
   const shown = Object.fromEntries(Object.entries(a.attrs).filter(([k]) => !own.has(k) && !k.startsWith(BOOKKEEPING)));
   if (Object.keys(shown).length > 0) lines.push(`attrs    ${attrsText(shown)}`);
+  const part = a.attrs[PART_KEYS.part];
+  const rows = a.attrs[PART_KEYS.rows];
+  if (Array.isArray(part) && Array.isArray(rows)) {
+    lines.push(`part     ${part.join('/')} of run '${printable(String(a.attrs[PART_KEYS.run]))}': rows ${rows[0]}..${Number(rows[1]) - 1} of a field of ${rows[2]} rows; 'rankfield join' puts every part of the run together`);
+  }
   if (a.carried.length > 0) lines.push(`carried  losslessly (not packed as fields; unpack -o OUT.nc restores them): ${a.carried.map(printable).join(', ')}`);
   for (const f of a.fields) {
     const grid = `${f.slices > 1 ? `${f.slices} slices x ` : ''}${Math.ceil(f.shape[0] / f.tile[0])} x ${Math.ceil(f.shape[1] / f.tile[1])}`;

@@ -7,20 +7,23 @@
 import { join } from 'node:path';
 import { InvalidArgumentError, type Command } from 'commander';
 import { printable } from '../format/schema.js';
-import { formatBound, isPointwise, MemorySource, open, pack, parseBound, resolveBound, type Bound, type Dtype, type FloatArray } from '../index.js';
+import { InputError, formatBound, isPointwise, MemorySource, open, pack, parseBound, resolveBound, type Bound, type Dtype, type FloatArray } from '../index.js';
 import { heatmap } from '../picture/heatmap.js';
 import { readGrids, slicePlane } from '../picture/sample.js';
+import { netcdf4ToClassic } from '../io/hdf5-read.js';
+import { readNetcdfHeader, readNetcdfVariable } from '../io/netcdf-read.js';
 import { fileError, UsageError } from './errors.js';
-import { checkOutput, statInput, writeOutput } from './files.js';
+import { checkOutput, readInput, statInput, writeOutput } from './files.js';
 import { num, ratio, seconds, table } from './format.js';
 import { checkLayout, inputKind, openFieldBands } from './input.js';
 import type { Context } from './main.js';
-import { dtypeOption, endianOption, fillOption, ndShapeOption, nonFinite, tileOption } from './options.js';
+import { dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, nonFinite, tileOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 import { byteShares, tileUse, type ByteShares, type TileUse } from './summary.js';
 
 interface TrialFlags extends OutputFlags {
   bounds?: Bound[];
+  var?: string;
   sample?: number;
   tile?: [number, number] | 'auto';
   fill?: number;
@@ -56,7 +59,8 @@ export interface TrialRow {
 
 const HELP = `
 The sample is the central block of up to --sample x --sample cells of the
-field; of an array of 3 or more axes, of its middle slice over the last two
+field (for NetCDF input, of the variable --var names, else of the first of 2
+or more dimensions, read as pack reads it); of an array of 3 or more axes, of its middle slice over the last two
 axes (the slices pack stores by default). IN is read once whole, a band of rows at a time, for the value range
 that rel and psnr bounds are resolved against (as pack does), so the
 tolerance E on the sample is the one the whole field would get. The sample is packed at each bound in
@@ -100,6 +104,73 @@ function sampleOption(text: string): number {
   return n;
 }
 
+/** The sample a trial packs, where it lies, and the whole field's value range. */
+interface Sample {
+  values: FloatArray;
+  shape: [number, number];
+  /** The whole field's shape. */
+  field: number[];
+  /** The variable sampled (NetCDF input), else null. */
+  variable: string | null;
+  slice: number | null;
+  rows: [number, number];
+  cols: [number, number];
+  dtype: Dtype;
+  range: [number, number] | null;
+  /** The fill value marking missing cells: --fill, or for NetCDF the variable's own. */
+  fill: number | null;
+}
+
+/** The central block of up to `side` x `side` cells of the middle slice (over the last two axes) of C-order values of shape `nd`. */
+function centralBlock(values: FloatArray, nd: readonly number[], side: number): Pick<Sample, 'values' | 'shape' | 'slice' | 'rows' | 'cols'> {
+  const R = nd[nd.length - 2];
+  const C = nd[nd.length - 1];
+  const slices = values.length / (R * C);
+  const slice = nd.length > 2 ? Math.floor(slices / 2) : null;
+  const m = Math.min(R, side);
+  const n = Math.min(C, side);
+  const r0 = Math.floor((R - m) / 2);
+  const c0 = Math.floor((C - n) / 2);
+  const out = values instanceof Float32Array ? new Float32Array(m * n) : new Float64Array(m * n);
+  const base = (slice ?? 0) * R * C;
+  for (let i = 0; i < m; i++) out.set(values.subarray(base + (r0 + i) * C + c0, base + (r0 + i) * C + c0 + n), i * n);
+  return { values: out, shape: [m, n], slice, rows: [r0, r0 + m], cols: [c0, c0 + n] };
+}
+
+/**
+ * The sample of a variable of a NetCDF file (classic, or NetCDF-4 / HDF5
+ * through h5wasm), read as pack reads it: CF missing values are the fill
+ * value (`--fill` stands in where the variable declares none), packed
+ * values are unpacked. The variable is `--var`, or the first numeric one of
+ * two or more dimensions, as pack would take.
+ */
+async function readNetcdfSample(input: string, flags: TrialFlags & { sample: number }, hdf5: boolean): Promise<Sample> {
+  const given = (['shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
+  if (given.length > 0) throw new UsageError(`${given.join(', ')} describe raw input; '${printable(input)}' is NetCDF, which describes itself`);
+  const bytes = hdf5 ? await netcdf4ToClassic(input) : await readInput(input);
+  const file = readNetcdfHeader(bytes, input);
+  const fields = file.variables.filter((v) => v.type !== 'char' && v.shape.length >= 2 && v.shape.every((d) => d > 0));
+  const name = flags.var ?? fields[0]?.name;
+  if (name === undefined) throw new UsageError(`'${printable(input)}' has no numeric variable of 2 or more dimensions to sample`);
+  let read;
+  try {
+    read = readNetcdfVariable(bytes, file, name);
+  } catch (e) {
+    if (e instanceof InputError) throw new InputError(e.code, `${input}: ${e.message}`);
+    throw e;
+  }
+  const fill = read.fill ?? flags.fill ?? null;
+  const f = fill === null ? null : read.dtype === 'f32' ? Math.fround(fill) : fill;
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (const v of read.values) {
+    if (!Number.isFinite(v) || v === f) continue;
+    if (v < lo) lo = v;
+    if (v > hi) hi = v;
+  }
+  return { ...centralBlock(read.values, read.shape, flags.sample), field: read.shape, variable: name, dtype: read.dtype, range: lo <= hi ? [lo, hi] : null, fill };
+}
+
 /** Rows read at a time when the field's value range is measured. */
 const RANGE_BAND = 256;
 
@@ -112,7 +183,7 @@ async function readSample(
   input: string,
   flags: TrialFlags & { sample: number },
   kind: 'npy' | 'raw',
-): Promise<{ values: FloatArray; shape: [number, number]; field: number[]; slice: number | null; rows: [number, number]; cols: [number, number]; dtype: Dtype; range: [number, number] | null }> {
+): Promise<Sample> {
   const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
   checkLayout(input, layout, undefined, kind);
   const field = await openFieldBands(input, layout, kind);
@@ -148,15 +219,15 @@ async function readSample(
     }
     const values = field.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
     for (let i = 0; i < m; i++) values.set(band.subarray(i * C + c0, i * C + c0 + n), i * n);
-    return { values, shape: [m, n], field: nd, slice, rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: field.dtype, range: lo <= hi ? [lo, hi] : null };
+    return { values, shape: [m, n], field: nd, variable: null, slice, rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: field.dtype, range: lo <= hi ? [lo, hi] : null, fill: flags.fill ?? null };
   } finally {
     field.close();
   }
 }
 
 /** Pack the sample at one bound, read it back and measure it. */
-async function tryBound(sample: FloatArray, shape: [number, number], range: [number, number] | null, bound: Bound, flags: TrialFlags, out: Output, pictures: string | null, io: { force: boolean; inputs: string[] }): Promise<TrialRow> {
-  const bar = out.tileProgress(`trial ${formatBound(bound)}`, sample.byteLength);
+async function tryBound(sample: FloatArray, shape: [number, number], range: [number, number] | null, fill: number | null, bound: Bound, flags: TrialFlags, out: Output, pictures: string | null, io: { force: boolean; inputs: string[] }): Promise<TrialRow> {
+  const bar = out.tileProgress(`trial ${formatBound(bound)}`, sample.byteLength, 'planning the tiles');
   // rel and psnr are resolved against the whole field's range, not the sample's: the E a pack of the field would use.
   const span = range ? range[1] - range[0] : 0;
   const pointwise = isPointwise(bound.mode);
@@ -164,7 +235,7 @@ async function tryBound(sample: FloatArray, shape: [number, number], range: [num
   const fixed: Bound = bound.mode === 'rel' || bound.mode === 'psnr' ? { mode: pointwise ? 'abs' : 'rmse', value: tol > 0 ? tol : Number.MIN_VALUE } : bound;
   let bytes: Uint8Array;
   try {
-    bytes = pack(sample, shape, { bound: fixed, tile: flags.tile, fill: flags.fill ?? null, fillGuard: false, name: 'sample', onProgress: bar.onProgress });
+    bytes = pack(sample, shape, { bound: fixed, tile: flags.tile, fill, fillGuard: false, name: 'sample', onProgress: bar.onProgress });
   } finally {
     bar.stop();
   }
@@ -172,13 +243,13 @@ async function tryBound(sample: FloatArray, shape: [number, number], range: [num
   const { header: h } = archive.field();
   const ix = await archive.fieldIndex();
   const back = (await archive.read()).values;
-  const fill = h.fill === null ? null : h.dtype === 'f32' ? Math.fround(h.fill) : h.fill;
+  const stored = h.fill === null ? null : h.dtype === 'f32' ? Math.fround(h.fill) : h.fill;
   let max = 0;
   let sq = 0;
   let valid = 0;
   for (let k = 0; k < sample.length; k++) {
     const v = sample[k];
-    if (!Number.isFinite(v) || v === fill) continue;
+    if (!Number.isFinite(v) || v === stored) continue;
     const e = Math.abs(back[k] - v);
     if (e > max) max = e;
     sq += e * e;
@@ -236,7 +307,8 @@ export function registerTrial(program: Command, ctx: Context): void {
     .command('trial')
     .summary('pack a sample of a field at several bounds and compare ratio and error, to choose a bound')
     .description('Pack a sample of a field at several bounds, in memory, and print per bound the ratio, bits per value, achieved max error, RMSE and PSNR, and what carried the bytes (low-rank factors or residual). Nothing is archived.')
-    .argument('<IN>', 'input: .npy (2-D float32/float64), or raw binary with --shape and --dtype')
+    .argument('<IN>', 'input: NetCDF (told by its first bytes; --var picks the variable), .npy, or raw binary with --shape and --dtype')
+    .option('--var <NAME>', 'NetCDF input: the variable to sample (default: the first of 2 or more dimensions)', nameOption)
     .option('--bounds <LIST>', `bounds to try, comma-separated (default ${TRIAL_BOUNDS})`, boundsOption)
     .option('--sample <N>', `side of the central sample in cells (default ${DEFAULT_SAMPLE})`, sampleOption)
     .option('--tile <RxC>', 'tile size as for pack (default: chosen on the sample per bound)', tileOption)
@@ -253,18 +325,19 @@ export function registerTrial(program: Command, ctx: Context): void {
       const out = new Output(ctx, flags);
       await statInput(input);
       const kind = await inputKind(input);
-      if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`trial reads .npy or raw input, not NetCDF yet: save one variable of '${printable(input)}' as .npy first`);
+      const netcdf = kind === 'netcdf' || kind === 'hdf5';
+      if (!netcdf && flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${printable(input)}' is not NetCDF (by its first bytes or its name)`);
       const io = { force: flags.force === true, inputs: [input] };
       const pictures = flags.pictures ?? null;
       if (pictures !== null) {
         for (const b of flags.bounds) await checkOutput(join(pictures, `trial-${formatBound(b).replace(':', '-')}.png`), io);
       }
-      const s = await readSample(input, flags, kind);
+      const s = netcdf ? await readNetcdfSample(input, flags, kind === 'hdf5') : await readSample(input, flags, kind);
       const rows: TrialRow[] = [];
-      for (const b of flags.bounds) rows.push(await tryBound(s.values, s.shape, s.range, b, flags, out, pictures, io));
+      for (const b of flags.bounds) rows.push(await tryBound(s.values, s.shape, s.range, s.fill, b, flags, out, pictures, io));
       const where = `${s.slice === null ? '' : `slice ${s.slice}, `}rows ${s.rows[0]}..${s.rows[1] - 1}, columns ${s.cols[0]}..${s.cols[1] - 1}`;
       const range = s.range ? `valid range [${num(s.range[0])}, ${num(s.range[1])}]` : 'no valid values';
-      out.text(`trial of '${input}' (${s.field.join('x')} ${s.dtype}, ${range}): sample ${s.shape.join(' x ')} (${where}), ${s.values.byteLength} bytes of raw values\n\n`);
+      out.text(`trial of '${input}'${s.variable === null ? '' : `, variable '${printable(s.variable)}'`} (${s.field.join('x')} ${s.dtype}, ${range}): sample ${s.shape.join(' x ')} (${where}), ${s.values.byteLength} bytes of raw values\n\n`);
       const body = rows.map((r) => [
         r.bound,
         num(r.tolerance),
@@ -284,6 +357,7 @@ export function registerTrial(program: Command, ctx: Context): void {
       out.result({
         command: 'trial',
         input,
+        variable: s.variable,
         shape: s.field,
         dtype: s.dtype,
         range: s.range,

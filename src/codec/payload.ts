@@ -71,6 +71,14 @@ export interface PayloadShares {
   factors: number;
   residual: number;
   exceptions: number;
+  /**
+   * The part of those three that frames the coded data rather than being
+   * it: step codes and length words of the factor groups, the residual's
+   * step, predictor and length, the exceptions' (or exact values') method,
+   * flags and section lengths. With the fixed part and the mask, these are
+   * the tile's header bytes.
+   */
+  framing: number;
 }
 
 /**
@@ -79,24 +87,29 @@ export interface PayloadShares {
  * for a payload that does not walk to its end.
  */
 export function payloadShares(payload: Uint8Array): PayloadShares | null {
-  if (payload[0] === Method.Exact) return { factors: 0, residual: 0, exceptions: payload.length };
+  // Method, flags and the section's two lengths frame the exact values.
+  if (payload[0] === Method.Exact) return { factors: 0, residual: 0, exceptions: payload.length, framing: Math.min(payload.length, 10) };
   if (payload[0] !== Method.LowRank) return null;
   const lens = prefixLengths(payload);
   if (lens.length === 0) return null;
   const factors = lens[lens.length - 1] - lens[0];
   let at = lens[lens.length - 1];
   const view = new DataView(payload.buffer, payload.byteOffset, payload.byteLength);
+  // Each group: 4 bytes of step codes a rank and a u32 length; the ranks add up to the payload's rank.
+  let framing = 4 * (lens.length - 1) + 4 * payloadHead(payload).rank;
   let residual = 0;
   let exceptions = 0;
   if (payload[1] & Flag.Residual) {
     if (at + 13 > payload.length) return null;
     residual = 13 + view.getUint32(at + 9, true);
+    framing += 13;
     at += residual;
   }
   if (payload[1] & Flag.Exceptions) {
     if (at + 8 > payload.length) return null;
     exceptions = 8 + view.getUint32(at + 4, true);
+    framing += 8;
     at += exceptions;
   }
-  return at === payload.length ? { factors, residual, exceptions } : null;
+  return at === payload.length ? { factors, residual, exceptions, framing } : null;
 }

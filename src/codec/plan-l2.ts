@@ -9,8 +9,8 @@
 import { measure } from './measure.js';
 import { forEachTile, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
-import { singularValues } from '../linalg/svd.js';
-import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
+import { gramSingularValues } from '../linalg/spectrum.js';
+import { prepareTile, type PreparedTile } from './prepare.js';
 import { encodeL2, encodePointwise, exactPayload, rankZeroForMse } from './tile-encode.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
@@ -74,9 +74,10 @@ export function keepsTiles(spec: Pick<FieldSpec, 'rows' | 'cols' | 'slices'>): b
 export function firstPassTile(tile: FloatArray, m: number, n: number, spec: Pick<FieldSpec, 'dtype' | 'progressive'>, fill: Uint32Array | null, tol: number, keep: boolean): FirstPassTile {
   const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
   const usable = t.valid > 0 && t.finite;
-  // The full spectrum: cutting the field-wide smallest values needs every one of them. A kept tile
-  // keeps its whole SVD for the second pass; otherwise the values alone are computed (bit for bit the same).
-  const s = !usable ? new Float64Array(0) : keep ? ensureSvd(t).s : singularValues(t.centred, m, n);
+  // The full spectrum: cutting the field-wide smallest values needs every one of them, and only
+  // their squares to the budget's accuracy, so the Gram matrix's eigenvalues serve (src/linalg/spectrum.ts).
+  // The second pass computes singular vectors only up to the rank it codes.
+  const s = !usable ? new Float64Array(0) : gramSingularValues(t.centred, m, n);
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
 }
 
@@ -126,6 +127,9 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
         best = p;
       }
     }
+    // The trial left singular vectors (of whatever rank it needed) on the sampled tiles; the second
+    // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
+    if (keep) for (const t of sampled) t.svd = null;
   }
   return l2Plan(best, fill, (index) => (keep ? kept[index] : undefined));
 }

@@ -252,8 +252,10 @@ export function ensureSvd(t: PreparedTile, need = Infinity): Svd {
   const full = Math.min(t.m, t.n);
   const want = Math.min(full, need);
   if (t.svd && t.svd.k >= want) return t.svd;
-  // The randomized range finder pays off while the sketch (k + 8 columns) is well below full rank.
-  t.svd = want + 8 >= full ? svd(t.centred, t.m, t.n) : truncatedSvd(t.centred, t.m, t.n, Math.max(want, PARTIAL_RANK));
+  // At least PARTIAL_RANK triplets (so a search can grow), never more than the tile has; the randomized
+  // range finder pays off while its sketch (k + 8 columns) is well below full rank.
+  const k = Math.min(full, Math.max(want, PARTIAL_RANK));
+  t.svd = k + 8 >= full ? svd(t.centred, t.m, t.n) : truncatedSvd(t.centred, t.m, t.n, k);
   return t.svd;
 }
 

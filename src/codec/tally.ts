@@ -53,6 +53,22 @@ export class ErrorTally {
     }
   }
 
+  /**
+   * The tally's state as four numbers, [count, max, scale, ssq]: what a
+   * part of a run records per tile so that its join can merge the tiles'
+   * tallies in tile order, as a single encoding does, to the same bits.
+   */
+  state(): [number, number, number, number] {
+    return [this.count, this.max, this.scale, this.ssq];
+  }
+
+  /** A tally restored from {@link state}. */
+  static fromState(s: readonly number[]): ErrorTally {
+    const t = new ErrorTally();
+    [t.count, t.max, t.scale, t.ssq] = s;
+    return t;
+  }
+
   /** Root-mean-square of the errors (0 when none were added). */
   get rmse(): number {
     if (this.max !== this.max) return NaN;

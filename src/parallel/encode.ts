@@ -11,7 +11,7 @@
  * are in flight (read and not yet written), which bounds the memory.
  */
 import { encodeTile, fieldBasis, FieldSummary, tileGrid, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2PlanData } from '../codec/plan-l2.js';
+import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
 import type { PreparedTile } from '../codec/prepare.js';
 import { ErrorTally } from '../codec/tally.js';
 import type { FloatArray } from '../types.js';
@@ -33,6 +33,8 @@ interface TileTask {
   n: number;
   tile?: FloatArray;
   prepared?: PreparedTile;
+  /** Prepare `tile` as the L2 first pass does (see encodeWithChoices). */
+  full?: boolean;
 }
 
 /** Field choices by key, in each worker. */
@@ -50,7 +52,7 @@ export const encodeTasks = {
     const c = fields.get(body.key);
     // Internal assertion: the set-up message always precedes a field's tiles in the port.
     if (c === undefined) throw new Error(`tile ${body.index} of an unknown field (key ${body.key})`);
-    const t = body.prepared ?? tileToEncode(c, body.index, body.tile!, body.m, body.n);
+    const t = body.prepared ?? (body.full ? firstPassTile(body.tile!, body.m, body.n, c, c.fill, c.tol, true).tile! : tileToEncode(c, body.index, body.tile!, body.m, body.n));
     const o = encodeTile(c, t, body.index);
     const own = o.payload.byteOffset === 0 && o.payload.byteLength === o.payload.buffer.byteLength;
     const payload = own ? o.payload : o.payload.slice();
@@ -136,32 +138,52 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
  */
 export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool): Promise<FieldResult> {
   const c = fieldBasis(src, spec);
+  if (!c.pointwise) c.plan = await planL2Parallel(src, spec, c, pool);
+  return encodeWithChoices(src, spec, c, pool, (index, o) => emit(index, { payload: o.payload, stats: o.stats }));
+}
+
+/**
+ * Encode every tile of `src` (a field of `spec`) under choices `c` made
+ * beforehand, on `pool`, handing each outcome to `use` in tile order. With
+ * `full`, each tile is first prepared as the L2 first pass prepares the
+ * tiles a single pack keeps (parts of a run, whose plan
+ * says so, encode their tiles from the same state).
+ */
+export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool, use: (index: number, o: TileOutcome) => void, full = false): Promise<FieldResult> {
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
-  if (!c.pointwise) {
-    const first: FirstPassTile[] = [];
-    const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
-    const post = ({ tile, m, n }: { tile: FloatArray; m: number; n: number }) => pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n }, [tile.buffer as ArrayBuffer]);
-    await inOrder(pool, tilesOf(src, spec), post, (f) => first.push(f), limit);
-    c.plan = planL2(src, spec, c.tol, c.fill, first);
-  }
   const key = nextKey++;
   const { plan, ...rest } = c;
   await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
   const summary = new FieldSummary(c);
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
     const prepared = c.plan?.kept(index);
-    const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile };
+    const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile, full };
     return pool.run<TileOutcome>('encode-tile', task, prepared ? [] : [tile.buffer as ArrayBuffer]);
   };
-  const use = (o: TileOutcome, index: number) => {
+  const done = (o: TileOutcome, index: number) => {
     // The tally crossed threads as plain fields; give it its class back.
-    summary.add({ ...o, tally: Object.assign(new ErrorTally(), o.tally) });
-    emit(index, { payload: o.payload, stats: o.stats });
+    const outcome = { ...o, tally: Object.assign(new ErrorTally(), o.tally) };
+    summary.add(outcome);
+    use(index, outcome);
   };
   try {
-    await inOrder(pool, tilesOf(src, spec), post, use, limit);
+    await inOrder(pool, tilesOf(src, spec), post, done, limit);
   } finally {
     if (!pool.failed) await pool.broadcast('encode-forget', { key });
   }
   return summary.result();
+}
+
+/**
+ * The L2 plan of a field whose basis `c` is made (pointwise false): the
+ * first pass (every tile's spectrum) on `pool`, then the plan chosen here,
+ * as {@link planL2} makes it in one thread.
+ */
+export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool): Promise<L2Plan> {
+  const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
+  const first: FirstPassTile[] = [];
+  const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
+  const post = ({ tile, m, n }: { tile: FloatArray; m: number; n: number }) => pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n }, [tile.buffer as ArrayBuffer]);
+  await inOrder(pool, tilesOf(src, spec), post, (f) => first.push(f), limit);
+  return planL2(src, spec, c.tol, c.fill, first);
 }

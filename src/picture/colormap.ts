@@ -15,6 +15,9 @@
 /** A colour as [red, green, blue], 0..255. */
 export type Rgb = [number, number, number];
 
+/** Missing cells: a neutral grey, outside both maps' colours. */
+export const MISSING: Rgb = [150, 150, 150];
+
 /** The maps a picture may use. */
 export type MapName = 'viridis' | 'inferno';
 

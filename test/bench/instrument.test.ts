@@ -75,6 +75,10 @@ describe('rankfield bytes', () => {
       expect(b.tiles).toBe(4);
       expect(b.factors + b.residual + b.metadata).toBe(bytes.length);
       expect(b.metadata).toBeGreaterThan(0);
+      // The frame holds at least the 12-byte prologue and the 24-byte tail (spec/FORMAT.md, section 3); the per-tile part adds the payloads' framing to the rest.
+      expect(b.container).toBeGreaterThan(36);
+      expect(b.tileMetadata).toBeGreaterThanOrEqual(b.metadata - b.container);
+      expect(b.tileMetadata + b.container).toBeLessThan(bytes.length);
       const back = await rankfield.decode(bytes);
       expect(back.length).toBe(rows * cols);
     }

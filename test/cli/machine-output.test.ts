@@ -21,7 +21,11 @@ beforeAll(() => {
   writeFileSync(join(dir, 'volcano.npy'), formatNpy({ data: vol.values, shape: vol.shape, dtype: 'f64' }));
   const r = rf(['pack', 'volcano.npy', '-o', 'v.rfz', '--bound', 'abs:0.5', '--tile', '16'], dir);
   expect(r.code, r.stderr).toBe(0);
-});
+  // A plan, and the one part it splits the small grid into (61 rows, bands of 8 tile rows of 16).
+  expect(rf(['plan', 'volcano.npy', '-o', 'v.plan.json', '--bound', 'abs:0.5', '--tile', '16'], dir).code).toBe(0);
+  expect(rf(['pack', 'volcano.npy', '-o', 'part-1.rfz', '--plan', 'v.plan.json', '--part', '1/1'], dir).code).toBe(0);
+  // Three processes (and a build when dist/ is stale): more than the default 10 s of a hook on a busy machine.
+}, 3 * CLI_TIMEOUT);
 afterAll(remove);
 
 /** Keys whose values are timings: the only ones that may differ between two runs (README, "Machine-readable output"). */
@@ -31,11 +35,14 @@ const TIMINGS = new Set(['seconds', 'packSeconds', 'unpackSeconds']);
 const FACTS = ['file', 'fileBytes', 'version', 'writer', 'attrs', 'carried', 'rawBytes', 'ratio', 'containerBytes', 'fields'];
 const CASES: [string, string[], string[]][] = [
   ['pack', ['pack', at('volcano.npy'), '-o', at('p.rfz'), '--bound', 'rel:1e-3', '--tile', '32', '--force'], ['command', 'input', 'output', 'choices', 'seconds', 'archive']],
+  ['plan', ['plan', at('volcano.npy'), '-o', at('p.plan.json'), '--bound', 'psnr:50', '--tile', '16', '--force'], ['command', 'input', 'output', 'run', 'hash', 'tile', 'tolerance', 'range', 'bands', 'bandRows', 'l2', 'seconds']],
+  ['pack', ['pack', at('volcano.npy'), '-o', at('pp.rfz'), '--plan', at('v.plan.json'), '--part', '1/1', '--force'], ['command', 'input', 'output', 'run', 'plan', 'part', 'rows', 'tiles', 'bytes', 'summary', 'seconds']],
+  ['join', ['join', at('part-1.rfz'), '-o', at('j.rfz'), '--force'], ['command', 'inputs', 'output', 'run', 'plan', 'parts', 'bytes', 'summary', 'seconds']],
   ['unpack', ['unpack', at('v.rfz'), '-o', at('u.npy'), '--region', '10:30,5:50', '--threads', '1', '--force'], ['command', 'input', 'output', 'format', 'files', 'field', 'shape', 'window', 'seconds']],
   ['show', ['show', at('v.rfz')], ['command', ...FACTS]],
   ['check', ['check', at('v.rfz'), '--against', at('volcano.npy')], ['command', 'file', 'against', 'field', 'compared', 'ok', 'fields', 'failures']],
   ['preview', ['preview', at('v.rfz'), '-o', at('v.png'), '--map', 'rank', '--force'], ['command', 'input', 'output', 'field', 'map', 'colourMap', 'window', 'block', 'scale', 'width', 'height', 'scaleRange', 'unit', 'missingCells', 'bytes', 'seconds']],
-  ['trial', ['trial', at('volcano.npy'), '--sample', '24', '--bounds', 'abs:1,psnr:50', '--tile', '12'], ['command', 'input', 'shape', 'dtype', 'range', 'sample', 'bounds', 'seconds']],
+  ['trial', ['trial', at('volcano.npy'), '--sample', '24', '--bounds', 'abs:1,psnr:50', '--tile', '12'], ['command', 'input', 'variable', 'shape', 'dtype', 'range', 'sample', 'bounds', 'seconds']],
   ['demo', ['demo', '--shape', '24x32', '--dir', at('demo'), '--force'], ['command', 'dir', 'shape', 'fill', 'bounds', 'ok', 'failures']],
 ];
 

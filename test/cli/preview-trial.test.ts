@@ -139,11 +139,11 @@ describe('trial', { timeout: CLI_TIMEOUT }, () => {
     expect(t.bounds.map((b: { picture: string }) => b.picture)).toEqual(['trial-abs-1.png', 'trial-rel-0.01.png', 'trial-psnr-45.png']);
   });
 
-  it('refuses bad bounds, NetCDF input and tiny samples with one line and exit 2', () => {
+  it('refuses bad bounds, a broken NetCDF file and tiny samples with one line and exit 2', () => {
     expectCliError(rf(['trial', 'volcano.npy', '--bounds', 'abs:1,,rel:2'], dir), /comma-separated list/);
     expectCliError(rf(['trial', 'volcano.npy', '--bounds', 'abs:inf'], dir), /got infinity/);
     expectCliError(rf(['trial', 'volcano.npy', '--sample', '4'], dir), /sample must be an integer from 8 to 4096/);
     writeFileSync(join(dir, 'x.nc'), new Uint8Array(8));
-    expectCliError(rf(['trial', 'x.nc'], dir), /trial reads \.npy or raw input/);
+    expectCliError(rf(['trial', 'x.nc'], dir), /x\.nc/); // named .nc, read as NetCDF, and refused as not one
   });
 });

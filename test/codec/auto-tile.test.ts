@@ -46,7 +46,14 @@ describe('tile candidates', () => {
       [1000, 100],
       [3000, 100],
     ]);
+    // Both sides at least the sample's 1024: 512 too (four of them fill the sample).
     expect(tileCandidates(4096, 4096)).toEqual([
+      [64, 64],
+      [128, 128],
+      [256, 256],
+      [512, 512],
+    ]);
+    expect(tileCandidates(1023, 4096)).toEqual([
       [64, 64],
       [128, 128],
       [256, 256],

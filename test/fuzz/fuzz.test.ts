@@ -78,13 +78,16 @@ describe('fuzzing', () => {
           };
           const shares = payloadShares(p);
           if (p[0] === 0) {
-            expect(shares).toEqual({ factors: 0, residual: 0, exceptions: p.length });
+            // Method, flags and the section's two u32 lengths (spec/FORMAT.md, 10.5 and 10.2).
+            expect(shares).toEqual({ factors: 0, residual: 0, exceptions: p.length, framing: 10 });
             continue;
           }
           lowRank++;
           const groups = w.parts.filter((s) => s.name.startsWith('group '));
           expect(prefixLengths(p)).toEqual([w.groupCountAt + 1 + 2 * w.groups.length, ...groups.map((s) => s.end)]);
-          expect(shares).toEqual({ factors: groups.reduce((sum, s) => sum + s.end - s.start, 0), residual: length('residual'), exceptions: length('exceptions') });
+          // Framing: per group a u32 length and 4 bytes of step codes a rank (10.6.4); the residual's step, predictor and length (10.6.5); the exceptions section's lengths (10.2).
+          const framing = w.groups.reduce((sum, g) => sum + 4 + 4 * g.size, 0) + (length('residual') > 0 ? 13 : 0) + (length('exceptions') > 0 ? 8 : 0);
+          expect(shares).toEqual({ factors: groups.reduce((sum, s) => sum + s.end - s.start, 0), residual: length('residual'), exceptions: length('exceptions'), framing });
         }
       }
     }

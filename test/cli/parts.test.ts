@@ -1,0 +1,127 @@
+/**
+ * A run packed in parts by concurrent processes, as a cluster or GNU
+ * parallel runs it: `plan`, 8 x `pack --plan --part K/8` started at once by
+ * GNU parallel (Debian's `parallel` package), `join`, then `check`; the
+ * joined archive is compared byte for byte with a single `pack` of the same
+ * input, a lost part is packed again alone, and windows are read over HTTP
+ * from the joined archive. The field is the vega-datasets annual-precip
+ * grid (data/annual-precip.json, land cells null, read as NaN: a masked
+ * field) mirror tiled to 1024 x 128 (see test/archive/datasets.ts).
+ * The parts (and the runs on worker threads) are separate processes; the
+ * other commands run in this process, to spare a Node start-up each.
+ */
+import { spawnSync } from 'node:child_process';
+import { readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { HttpSource } from '../../src/format/http-source.js';
+import { MemorySource, open } from '../../src/index.js';
+import { formatNpy } from '../../src/io/npy.js';
+import { mirrored, precip } from '../archive/datasets.js';
+import { startRangeServer, type RangeServer } from '../io/range-server.js';
+import { haveSystemTools } from '../system-tools.js';
+import { main } from '../../src/cli/main.js';
+import { BIN, ensureBuilt, expectCliError, rf, tempDir, type RunResult } from './helpers.js';
+
+const PARALLEL = '/usr/bin/parallel';
+const RUN = haveSystemTools('the parts test through GNU parallel', 'parallel', [PARALLEL]);
+const ROWS = 1024;
+const COLS = 128;
+
+const { dir, remove } = tempDir('rankfield-parts-');
+let server: RangeServer | undefined;
+
+beforeAll(() => {
+  ensureBuilt();
+  const values = mirrored(precip(), COLS, 0, ROWS);
+  writeFileSync(join(dir, 'precip.npy'), formatNpy({ data: values, shape: [ROWS, COLS], dtype: 'f32' }));
+  // A build when dist/ is stale takes longer than the default 10 s of a hook on a busy machine.
+}, 120_000);
+
+afterAll(async () => {
+  await server?.close();
+  remove();
+});
+
+const bytes = (name: string) => readFileSync(join(dir, name));
+
+/**
+ * The command line run in this process (no Node start-up per command), on
+ * files of the test folder: arguments naming one of them are made absolute.
+ */
+async function cli(args: string[]): Promise<RunResult> {
+  let stdout = '';
+  let stderr = '';
+  const abs = args.map((a) => (/\.(npy|rfz|json|nc)$/.test(a) ? join(dir, a) : a));
+  const code = await main(abs, { out: (x) => void (stdout += x), err: (x) => void (stderr += x), errTTY: false });
+  return { code, stdout, stderr };
+}
+
+describe.runIf(RUN)('8 parts packed at once by GNU parallel, joined', () => {
+  it('give the single pack byte for byte; a lost part is packed again alone (on 2 threads); windows read over HTTP', async () => {
+    // 1024 rows in tiles of 16 and index pages of 8 tile rows: 8 bands of 128 rows, one per part.
+    const plan = await cli(['plan', 'precip.npy', '-o', 'run.plan.json', '--bound', 'psnr:60', '--tile', '16', '--run', 'precip-test']);
+    expect(plan.code, plan.stderr).toBe(0);
+    expect(plan.stdout).toMatch(/8 bands of 128 rows, so at most 8 parts/);
+    const parts = Array.from({ length: 8 }, (_, i) => String(i + 1));
+    const p = spawnSync(PARALLEL, ['--will-cite', '--halt', 'now,fail=1', '-j', '8', process.execPath, BIN, 'pack', 'precip.npy', '-o', 'part-{}.rfz', '--plan', 'run.plan.json', '--part', '{}/8', '-q', ':::', ...parts], { cwd: dir, encoding: 'utf8', timeout: 180_000 });
+    expect(p.status, p.stderr).toBe(0);
+    const joined = await cli(['join', ...parts.map((k) => `part-${k}.rfz`), '-o', 'run.rfz']);
+    expect(joined.code, joined.stderr).toBe(0);
+    expect(joined.stdout).toMatch(/^joined 8 parts of run 'precip-test' -> '\S*run.rfz'/);
+    const single = await cli(['pack', 'precip.npy', '-o', 'single.rfz', '--bound', 'psnr:60', '--tile', '16', '-q']);
+    expect(single.code, single.stderr).toBe(0);
+    expect(bytes('run.rfz').equals(bytes('single.rfz'))).toBe(true);
+    // show names a part as such.
+    expect((await cli(['show', 'part-3.rfz'])).stdout).toMatch(/^part {5}3\/8 of run 'precip-test': rows 256..383 of a field of 1024 rows/m);
+    const check = await cli(['check', 'run.rfz', '--against', 'precip.npy', '-q']);
+    expect(check.code, check.stderr).toBe(0);
+
+    // A part lost (a failed node): join names it; packed again alone, the join is the same.
+    rmSync(join(dir, 'part-5.rfz'));
+    expectCliError(await cli(['join', ...parts.filter((k) => k !== '5').map((k) => `part-${k}.rfz`), '-o', 'again.rfz']), /run 'precip-test' has 8 parts; part 5 is missing/);
+    // This time on two threads: the payloads are the same.
+    expect(rf(['pack', 'precip.npy', '-o', 'part-5.rfz', '--plan', 'run.plan.json', '--part', '5/8', '--threads', '2', '-q'], dir).code).toBe(0);
+    expect((await cli(['join', ...parts.map((k) => `part-${k}.rfz`), '-o', 'again.rfz', '-q'])).code).toBe(0);
+    expect(bytes('again.rfz').equals(bytes('single.rfz'))).toBe(true);
+
+    // Windows of the joined archive over HTTP, against the same windows read from the file in memory.
+    server = await startRangeServer();
+    server.put('/run.rfz', bytes('run.rfz'));
+    const remote = await open(new HttpSource(`${server.url}/run.rfz`));
+    const local = await open(new MemorySource(new Uint8Array(bytes('single.rfz'))));
+    for (const w of [{ rows: [0, 40], cols: [0, 128] }, { rows: [120, 140], cols: [30, 90] }, { rows: [1000, 1024], cols: [100, 128] }] as const) {
+      const got = await remote.read(undefined, { rows: [...w.rows], cols: [...w.cols] });
+      const want = await local.read(undefined, { rows: [...w.rows], cols: [...w.cols] });
+      expect(Buffer.from(got.values.buffer).equals(Buffer.from(want.values.buffer))).toBe(true);
+    }
+    await remote.close();
+    await local.close();
+  }, 240_000);
+});
+
+describe('parts on the command line: one line and exit 2', () => {
+  it('--part without --plan, --part on NetCDF, options the plan fixes, a part beyond the bands, an input the plan was not made from', async () => {
+    expectCliError(await cli(['pack', 'precip.npy', '-o', 'x.rfz', '--bound', 'abs:1', '--part', '1/2']), /--part needs --plan: .*run 'rankfield plan \S*precip.npy -o PLAN --bound \.\.\.' first/);
+    expectCliError(await cli(['pack', 'precip.npy', '-o', 'x.rfz', '--part', '0/2']), /--part must be K\/N with 1 <= K <= N/);
+    expect((await cli(['plan', 'precip.npy', '-o', 'abs.plan.json', '--bound', 'abs:1', '--tile', '32', '-q'])).code).toBe(0);
+    expectCliError(await cli(['pack', 'precip.npy', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '1/2', '--bound', 'abs:2']), /--bound: the plan '\S*abs.plan.json' fixes it; drop it/);
+    // The whole field packed under the plan, on 2 threads, is the single pack.
+    expect(rf(['pack', 'precip.npy', '-o', 'whole.rfz', '--plan', 'abs.plan.json', '--threads', '2', '-q'], dir).code).toBe(0);
+    expect((await cli(['pack', 'precip.npy', '-o', 'abs.rfz', '--bound', 'abs:1', '--tile', '32', '-q'])).code).toBe(0);
+    expect(bytes('whole.rfz').equals(bytes('abs.rfz'))).toBe(true);
+    // 1024 rows in bands of 8 x 32 rows: 4 bands.
+    expectCliError(await cli(['pack', 'precip.npy', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '1/5']), /the field has 4 bands of 256 rows .* at most 4 parts/);
+    const other = mirrored(precip(), COLS, 7, ROWS);
+    writeFileSync(join(dir, 'other.npy'), formatNpy({ data: other, shape: [ROWS, COLS], dtype: 'f32' }));
+    expectCliError(await cli(['pack', 'other.npy', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '2/4']), /other.npy: rows 256..511 differ from those plan .* was made from/);
+    writeFileSync(join(dir, 'short.npy'), formatNpy({ data: other.subarray(0, 512 * COLS), shape: [512, COLS], dtype: 'f32' }));
+    expectCliError(await cli(['pack', 'short.npy', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '2/4']), /short.npy' holds a 512x128 f32 array; plan '\S*abs.plan.json' .* was made for 1024x128 f32/);
+    writeFileSync(join(dir, 'broken.plan.json'), '{"rankfield_plan": 1, "hash": "00"}');
+    expectCliError(await cli(['pack', 'precip.npy', '-o', 'x.rfz', '--plan', 'broken.plan.json', '--part', '1/2']), /broken.plan.json: not a plan written by 'rankfield plan'/);
+    // Classic NetCDF (the CDF magic): its variables are read whole.
+    writeFileSync(join(dir, 'v.nc'), Buffer.from('CDF\x01\x00\x00\x00\x00', 'latin1'));
+    expectCliError(await cli(['pack', 'v.nc', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '1/2']), /v.nc' is NetCDF, whose variables are read whole: pack it in one process/);
+    expectCliError(await cli(['join', 'single-missing.rfz', '-o', 'x.rfz']), /single-missing.rfz/);
+  }, 120_000);
+});
