@@ -321,6 +321,12 @@ export class Archive {
    * window intersects are fetched (adjacent and near payloads in one read
    * each) and decoded, then cropped. Several reads may run at once on one
    * archive.
+   *
+   * Missing cells come back bit for bit as stored: NaN, infinities and the
+   * fill value as themselves. A field packed from a NetCDF variable that
+   * declares a `missing_value` beside its `_FillValue` stores the cells of
+   * that other value as a quiet NaN mark; `restoreMissing(header, values)`
+   * (src/missing.ts) puts the value back, as the command line does.
    */
   async read(name?: string, options: ReadOptions = {}): Promise<FieldValues> {
     const { header: h, position } = this.field(name);

@@ -14,3 +14,4 @@ export { parseBound, formatBound, isPointwise } from './codec/bound.js';
 export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type ArchiveDirectory, type FieldDirectory, type PageIndex, type FieldHeader, type FieldIndex, type Attrs } from './format/schema.js';
 export type { Bound, BoundMode, Dtype, FloatArray } from './types.js';
 export { VERSION_STRING } from './version.js';
+export { MISSING_VALUES_KEY, missingValues, restoreMissing } from './missing.js';

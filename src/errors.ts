@@ -45,6 +45,8 @@ export const InputCode = {
   File: 'file',
   /** A named field or variable that does not exist. */
   Missing: 'missing',
+  /** A value that looks like an undeclared fill value would set the field's range (see the `fill` option of pack). */
+  Fill: 'fill',
 } as const;
 export type InputCode = (typeof InputCode)[keyof typeof InputCode];
 

@@ -17,5 +17,6 @@ export { MemorySink, type Sink } from './format/container.js';
 export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type ArchiveDirectory, type FieldDirectory, type PageIndex, type FieldHeader, type FieldIndex, type Attrs } from './format/schema.js';
 export type { Bound, BoundMode, Dtype, FloatArray } from './types.js';
 export { VERSION_STRING } from './version.js';
+export { MISSING_VALUES_KEY, missingValues, restoreMissing } from './missing.js';
 export { Method, METHOD_NAMES } from './codec/payload.js';
 export { MAX_TILE_CELLS } from './pack.js';

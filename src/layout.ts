@@ -57,7 +57,7 @@ export function chooseLayout(values: FloatArray, shape: readonly number[], bound
       sample = values instanceof Float32Array ? new Float32Array(rows * cols) : new Float64Array(rows * cols);
       for (let i = 0; i < rows; i++) sample.set(values.subarray(i * g.cols + c0, i * g.cols + c0 + cols), i * cols);
     }
-    const bytes = pack(sample, [rows, cols], { bound: absolute, fill }).length;
+    const bytes = pack(sample, [rows, cols], { bound: absolute, fill, fillGuard: false }).length; // a sample; the caller guards the field
     const rate = bytes / (rows * cols);
     if (rate < bestRate) {
       bestRate = rate;

@@ -21,8 +21,27 @@ export interface PackOptions {
    * kept. Smaller tiles make window reads cheaper; set a size to fix it.
    */
   tile?: number | [number, number] | 'auto';
-  /** A fill value marking missing cells (restored bit for bit, excluded from the bound). */
+  /**
+   * A fill value marking missing cells (restored bit for bit, excluded from
+   * the bound and the value range).
+   *
+   * Fill-value guard: unless `fill` is `null` or `fillGuard` is false, a
+   * value that looks like an undeclared fill value is refused with an
+   * {@link InputError} of code `fill` naming the value and how many cells
+   * hold it: any value of magnitude 1e30 or more, or a single value at an
+   * end of the range held by at least 0.1% of the valid cells and farther
+   * from the others than 10 times their spread. As data such a value would
+   * set the field's range, and a `rel` or `psnr` bound resolved against it
+   * would allow errors far larger than the real values.
+   *
+   * - left out (undefined): no fill value; the guard is on.
+   * - a number: cells holding it (by bit pattern, in the dtype) are missing;
+   *   the guard is on for the other values.
+   * - `null`: no fill value, and every value is data: the guard is off.
+   */
   fill?: number | null;
+  /** Set false to turn the fill-value guard off whatever `fill` is (see {@link fill}). Default true. */
+  fillGuard?: boolean;
   /** Field name; default 'field'. */
   name?: string;
   /** Element type; default from the array (Float32Array: f32, else f64). */
@@ -147,12 +166,14 @@ function options(values: FloatArray | number[], shape: readonly number[], o: Pac
   const bound = typeof o.bound === 'string' ? parseBound(o.bound) : checkBound(o.bound ?? ({} as Bound));
   const fill = o.fill ?? null;
   if (fill !== null && typeof fill !== 'number') throw new InputError(InputCode.Option, `fill must be a number, got ${String(fill)}`);
+  if (o.fillGuard !== undefined && typeof o.fillGuard !== 'boolean') throw new InputError(InputCode.Option, `fillGuard must be true or false, got ${String(o.fillGuard)}`);
+  const guardFill = o.fill !== null && o.fillGuard !== false;
   const name = o.name ?? 'field';
   if (typeof name !== 'string' || name.length === 0 || name.length > 1024) throw new InputError(InputCode.Option, 'field name must be a non-empty string');
   const problem = o.attrs === undefined ? null : attrsProblem(o.attrs);
   if (problem) throw new InputError(InputCode.Option, `field '${name}': ${problem}`);
   if (holdsLoneSurrogate([name, dims, o.attrs])) throw new InputError(InputCode.Option, `field ${quoteName(name)}: its name, dimension names or attributes hold a lone UTF-16 surrogate, which UTF-8 cannot store`);
-  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices, progressive: o.progressive === true }, data, page: [page[0], page[1]] };
+  return { spec: { name, dtype, rows, cols, tileRows: tr, tileCols: tc, bound, fill, autoTile: auto, slices, progressive: o.progressive === true, guardFill }, data, page: [page[0], page[1]] };
 }
 
 /**

@@ -5,6 +5,7 @@ import { printable } from '../format/schema.js';
 import { netcdf4ToClassic } from '../io/hdf5-read.js';
 import { readNetcdfHeader, readNetcdfVariable } from '../io/netcdf-read.js';
 import { setOwn } from '../io/netcdf-types.js';
+import { byPath } from './netcdf.js';
 import { Exit, UsageError } from './errors.js';
 import { isUrl, openArchive, readInput, statInput } from './files.js';
 import { boundText, num, rawBytes } from './format.js';
@@ -72,7 +73,7 @@ function checkOriginal(what: string, shape: number[], dtype: Dtype, h: FieldHead
 export async function netcdfOriginals(path: string, archive: Archive, names: string[] | undefined, input: string, hdf5: boolean): Promise<Record<string, FloatArray>> {
   const bytes = hdf5 ? await netcdf4ToClassic(path) : await readInput(path);
   const file = readNetcdfHeader(bytes, path);
-  const chosen = names && names.length > 0 ? names.map((n) => archive.field(n).header.name) : archive.names;
+  const chosen = names && names.length > 0 ? names.map((n) => archive.field(byPath(archive.names, n)).header.name) : archive.names;
   const out: Record<string, FloatArray> = {};
   for (const name of chosen) {
     const h = archive.field(name).header;

@@ -1,106 +1,11 @@
 /**
- * The fill-value guard of `pack`: a sentinel left in a field without
- * `--fill` (land cells of -1e34, a -999 that marks missing cells) becomes
- * the field's range, and a rel or psnr bound, resolved against that range,
- * then permits errors far larger than the real values. {@link RangeWatch}
- * sees the values once, band by band, and names such a value:
- *  - any value of magnitude 1e30 or more (netCDF's default fill of float,
- *    9.96921e36, and the common -1e34 and 1e30 are of this kind);
- *  - or a single value at an end of the range held by many cells (at least
- *    0.1% of the valid ones, and 2), and farther from the rest of the
- *    values than 10 times their own spread (rules of thumb; common
- *    practice, no source).
- * The user then says which it is: `--fill V` (missing) or `--no-fill` (data).
+ * The command line's wording of the fill-value guard (src/codec/fill-guard.ts):
+ * a suspect value is refused with one line suggesting `--fill V` (it marks
+ * missing cells) or `--no-fill` (it is data).
  */
-import type { FloatArray } from '../index.js';
+import { shortest, type Suspect } from '../codec/fill-guard.js';
 
-/** Magnitude from which a value is taken for a sentinel, whatever the rest. */
-export const HUGE = 1e30;
-/** Share of the valid cells a single extreme value must hold to count as a sentinel. */
-const MANY = 1e-3;
-/** How much farther than the spread of the rest an extreme value must lie. */
-const FAR = 10;
-
-/** A suspect value: what it is, how many cells hold it, and the range of the rest. */
-export interface Suspect {
-  value: number;
-  count: number;
-  huge: boolean;
-  rest: [number, number] | null;
-}
-
-/** Extremes of a field's valid values, gathered band by band in one pass. */
-export class RangeWatch {
-  private valid = 0;
-  private min1 = Infinity;
-  private min2 = Infinity;
-  private nMin = 0;
-  private max1 = -Infinity;
-  private max2 = -Infinity;
-  private nMax = 0;
-  private hugeValue = 0;
-  private hugeCount = 0;
-  private restLo = Infinity;
-  private restHi = -Infinity;
-
-  /** `fill`: the value already declared missing (not counted); NaN and infinities are never counted. */
-  constructor(private readonly fill: number | null) {}
-
-  add(values: FloatArray): void {
-    const fill = this.fill === null ? null : values instanceof Float32Array ? Math.fround(this.fill) : this.fill;
-    for (let i = 0; i < values.length; i++) {
-      const x = values[i];
-      if (!Number.isFinite(x) || x === fill) continue;
-      if (Math.abs(x) >= HUGE) {
-        if (this.hugeCount === 0 || x === this.hugeValue) {
-          this.hugeValue = x;
-          this.hugeCount++;
-        }
-        continue;
-      }
-      this.valid++;
-      if (x < this.restLo) this.restLo = x;
-      if (x > this.restHi) this.restHi = x;
-      if (x < this.min1) {
-        this.min2 = this.min1;
-        this.min1 = x;
-        this.nMin = 1;
-      } else if (x === this.min1) this.nMin++;
-      else if (x < this.min2) this.min2 = x;
-      if (x > this.max1) {
-        this.max2 = this.max1;
-        this.max1 = x;
-        this.nMax = 1;
-      } else if (x === this.max1) this.nMax++;
-      else if (x > this.max2) this.max2 = x;
-    }
-  }
-
-  /** The value that looks like an undeclared fill value, or null. */
-  suspect(): Suspect | null {
-    if (this.hugeCount > 0) {
-      return { value: this.hugeValue, count: this.hugeCount, huge: true, rest: this.valid > 0 ? [this.restLo, this.restHi] : null };
-    }
-    const many = Math.max(2, MANY * this.valid);
-    const low = this.nMin >= many && this.max1 - this.min2 > 0 && this.min2 - this.min1 > FAR * (this.max1 - this.min2);
-    const high = this.nMax >= many && this.max2 - this.min1 > 0 && this.max1 - this.max2 > FAR * (this.max2 - this.min1);
-    if (!low && !high) return null;
-    const atLow = low && (!high || this.nMin >= this.nMax);
-    return atLow
-      ? { value: this.min1, count: this.nMin, huge: false, rest: [this.min2, high ? this.max2 : this.max1] }
-      : { value: this.max1, count: this.nMax, huge: false, rest: [low ? this.min2 : this.min1, this.max2] };
-  }
-}
-
-/** The shortest decimal that reads back as `x` in the given type (so it can be typed as --fill). */
-export function shortest(x: number, f32: boolean): string {
-  if (!f32) return String(x);
-  for (let p = 1; p <= 9; p++) {
-    const t = Number(x.toPrecision(p));
-    if (Math.fround(t) === x) return String(t);
-  }
-  return String(x);
-}
+export { HUGE, RangeWatch, shortest, type Suspect } from '../codec/fill-guard.js';
 
 /** The one-line refusal for a suspect value of `what` ("'x.npy'", "variable 'sst' of 'run.nc'"). */
 export function suspectMessage(s: Suspect, what: string, f32: boolean): string {

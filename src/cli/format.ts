@@ -1,5 +1,6 @@
 /** Number and table formatting for the command line's reports. */
 import { formatBound, isPointwise, type FieldHeader } from '../index.js';
+import { NC_TYPE_SIZE, type NcType } from '../io/netcdf-types.js';
 
 /** A number in 4 significant digits, exponent form when very large or small. */
 export function num(x: number): string {
@@ -33,9 +34,21 @@ export function seconds(ms: number): string {
   return ms < 1000 ? `${Math.round(ms)} ms` : `${(ms / 1000).toFixed(2)} s`;
 }
 
-/** Bytes of the values of a field as stored raw. */
+/** Bytes of the values of a field as stored raw, in its dtype. */
 export function rawBytes(h: FieldHeader): number {
   return (h.slices ?? 1) * h.shape[0] * h.shape[1] * (h.dtype === 'f32' ? 4 : 8);
+}
+
+/**
+ * Bytes of the values of a field as its source stored them: {@link rawBytes},
+ * or for a NetCDF variable in its stored type (attribute rankfield:nc_type,
+ * spec/FORMAT.md section 6.4.1), so a short variable unpacked to float64
+ * counts 2 bytes a value, as pack reports it.
+ */
+export function sourceBytes(h: FieldHeader): number {
+  const stored = h.attrs['rankfield:nc_type'];
+  if (typeof stored !== 'string' || stored === 'char' || !Object.hasOwn(NC_TYPE_SIZE, stored)) return rawBytes(h);
+  return (h.slices ?? 1) * h.shape[0] * h.shape[1] * NC_TYPE_SIZE[stored as NcType];
 }
 
 /**

@@ -5,7 +5,8 @@
  */
 import { chooseLayout, FormatCode, FormatError, InputCode, InputError, type Attrs, type Bound, type FieldHeader } from '../index.js';
 import { readNetcdfHeader, readNetcdfVariable, physicalAttributes, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues, type NcVariable } from '../io/netcdf-read.js';
-import { NC_TYPE_SIZE, setOwn, unmark } from '../io/netcdf-types.js';
+import { NC_TYPE_SIZE, setOwn } from '../io/netcdf-types.js';
+import { MISSING_VALUES_KEY } from '../missing.js';
 import { formatBound } from '../codec/bound.js';
 import { VERSION_STRING } from '../version.js';
 import { toStoredType } from './netcdf-stored.js';
@@ -39,13 +40,33 @@ export const KEY = {
    * fill (a missing_value other than _FillValue), in order; its cells hold the
    * k-th missing-value mark (a quiet NaN, see src/io/netcdf-types.ts) in the archive.
    */
-  marks: 'rankfield:nc_missing',
+  marks: MISSING_VALUES_KEY,
   /** Archive attr: one JSON string per variable carried losslessly (not packed as a field); see {@link carriedJson}. */
   carried: 'rankfield:nc_carried',
 } as const;
 
 /** Largest total of the carried variables' JSON in one archive: half the readers' default header limit of 16 MiB. */
 export const MAX_CARRIED_BYTES = 8 << 20;
+
+/**
+ * A field or variable named as the user gave it: a NetCDF-4 path such as
+ * '/ocean/temp' names the field 'ocean/temp' (and '/temp' the root group's
+ * 'temp'), since names keep group paths without the leading '/' (spec/FORMAT.md,
+ * section 6.4.1). A name that is one of `names` as given, or names none of
+ * them either way, is kept (so a refusal quotes it as given).
+ */
+export function byPath(names: readonly string[], name: string): string;
+export function byPath(names: readonly string[], name: string | undefined): string | undefined;
+export function byPath(names: readonly string[], name: string | undefined): string | undefined {
+  if (name === undefined || names.includes(name) || !name.startsWith('/')) return name;
+  const path = name.replace(/^\/+/, '');
+  return names.includes(path) ? path : name;
+}
+
+/** The last part of a group path ('ocean/depth' -> 'depth'). */
+export function baseName(name: string): string {
+  return name.slice(name.lastIndexOf('/') + 1);
+}
 
 /** True when a path names a NetCDF file (case-insensitive extension .nc). */
 export function isNetcdfPath(path: string): boolean {
@@ -251,11 +272,11 @@ export function netcdfFields(
   let names: string[];
   if (vars && vars.length > 0) {
     const seen = new Set<string>();
-    for (const v of vars) {
+    names = vars.map((v) => byPath(file.variables.map((x) => x.name), v));
+    for (const v of names) {
       if (seen.has(v)) throw new UsageError(`--var '${printable(v)}' is given twice`);
       seen.add(v);
     }
-    names = vars;
   } else {
     names = file.variables.filter((v) => v.type !== 'char' && v.shape.length >= 2 && v.shape.every((d) => d > 0)).map((v) => v.name);
     if (names.length === 0) throw new InputError(InputCode.Shape, `${path}: no numeric variable of 2 or more dimensions to pack (variables: ${file.variables.map((v) => `${v.name}(${v.dims.join(', ')})`).join(', ') || 'none'})`);
@@ -286,7 +307,9 @@ export function netcdfFields(
     }
     const k = read.shape.length;
     // Dimension names match without regard to case (TIME, Time and time alike).
-    const lead = matrix && matrix.length < k && matrix.every((d, i) => read.dims[i].toLowerCase() === d.toLowerCase()) ? matrix.length : 0;
+    // A dimension of a group ('ocean/time') also answers to its own name ('time').
+    const same = (dim: string, d: string) => dim.toLowerCase() === d.toLowerCase() || baseName(dim).toLowerCase() === d.toLowerCase();
+    const lead = matrix && matrix.length < k && matrix.every((d, i) => same(read.dims[i], d)) ? matrix.length : 0;
     // --matrix overrides; without it (and without --layout slices) a variable of 3+ axes takes the layout whose sample packs smallest.
     const layout = lead > 0 ? `matrix:${lead}` : k > 2 ? (matrix || choose === 'slices' ? 'slices' : chooseLayout(read.values, read.shape, bound, read.fill)) : undefined;
     const g = layout ? (layoutGrid(read.shape, layout) as { slices: number; rows: number; cols: number }) : { slices: 1, rows: read.shape[0], cols: read.shape[1] };
@@ -501,6 +524,8 @@ export function netcdfFromFields(archiveAttrs: Attrs, fields: { h: FieldHeader; 
     globalAttrs: g.attrs,
     globalAttrTypes: g.types,
     variables,
+    // Names of NetCDF-4 groups' variables, dimensions and attributes are paths (G/NAME): written back into their groups.
+    groupPaths: variables.some((v) => v.name.includes('/')) || [...dims.keys()].some((d) => d.includes('/')) || Object.keys(g.attrs).some((k) => k.includes('/')),
   };
 }
 
@@ -528,10 +553,7 @@ function storedVariable(h: FieldHeader, values: Float32Array | Float64Array): { 
 }
 
 /** Missing values of a field decoded for .npy, raw or CSV output: the cells of each missing-value mark get the value they held (see {@link KEY}.marks). In place. */
-export function restoreMissing(h: FieldHeader, values: Float32Array | Float64Array): void {
-  const marks = h.attrs[KEY.marks];
-  if (Array.isArray(marks) && marks.length > 0 && marks.every((x) => typeof x === 'number')) unmark(values, marks as number[]);
-}
+export { restoreMissing } from '../missing.js';
 
 /** The source's dimension list from its JSON archive attribute, checked; [] when absent. */
 function sourceDims(text: unknown): { name: string; size: number; unlimited: boolean }[] {

@@ -67,9 +67,11 @@ the cells and lies more than 10 times the spread of the other values beyond
 them. Give --fill V if it marks missing cells, --no-fill to pack it as data.
 
 Input, told apart by its first bytes (else by its name): a .npy file holding
-a float32 or float64 array of 2 or more axes (N-D in C order); a NetCDF
-classic or 64-bit-offset file, whatever its name (.nc, .cdf, ...); a NetCDF-4
-or HDF5 file (read through h5wasm; variables of groups named GROUP.NAME);
+a float32 or float64 array of 2 or more axes (C or Fortran order; N-D in
+Fortran order is read whole, up to 2 GiB); a NetCDF classic or 64-bit-offset
+file, whatever its name (.nc, .cdf, ...); a NetCDF-4 or HDF5 file (read
+through h5wasm; variables of groups named by their path, GROUP/NAME, and
+--var /GROUP/NAME chooses one);
 anything else is read as headerless raw binary and needs --shape (RxC, or
 AxBxC... for N-D in C order) and --dtype (--endian defaults to little). An
 array of 3 or more axes is packed as 2-D slices over its last two axes, or
@@ -182,7 +184,8 @@ export function registerPack(program: Command, ctx: Context): void {
           const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
           const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
           try {
-            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound, tile: flags.tile, fill: fill ?? null, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
+            // The guard ran (or --no-fill turned it off) in the band callback above, in the command line's words.
+            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound, tile: flags.tile, fill: fill ?? null, fillGuard: false, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
           } finally {
             bar.stop();
           }
@@ -274,6 +277,7 @@ async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, ou
         bound: flags.bound,
         tile: flags.tile,
         fill: f.read.fill,
+        fillGuard: false, // guarded by netcdfFields, in the command line's words
         name: f.name,
         attrs: f.attrs,
         slices: f.slices,

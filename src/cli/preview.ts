@@ -14,6 +14,7 @@ import type { Context } from './main.js';
 import { dtypeOption, endianOption, nameOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 import { regionOption, type Region } from './unpack.js';
+import { byPath } from './netcdf.js';
 
 type MapKind = 'value' | 'error' | 'rank';
 
@@ -170,7 +171,7 @@ async function planeOriginal(archive: Archive, h: FieldHeader, input: string, fl
 
 /** Draw one map of a field of an opened archive; returns the PNG and the figures of the report. */
 async function draw(archive: Archive, input: string, flags: Required<Pick<PreviewFlags, 'map' | 'size'>> & PreviewFlags): Promise<{ png: Uint8Array; report: Record<string, unknown> }> {
-  const { header: h } = archive.field(flags.var);
+  const { header: h } = archive.field(byPath(archive.names, flags.var));
   const choice = planes(archive, h);
   const plane = choice ? choice.plane(Math.min(flags.slice ?? 0, choice.count - 1)) : slicePlane(archive, h, 0);
   const w = windowOf(h, flags, choice, plane);

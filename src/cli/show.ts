@@ -3,7 +3,7 @@ import type { Command } from 'commander';
 import { METHOD_NAMES, Method } from '../codec/payload.js';
 import { formatBound, isPointwise, type Archive, type Attrs } from '../index.js';
 import { isUrl, openArchiveSource } from './files.js';
-import { bytesText, num, rawBytes } from './format.js';
+import { bytesText, num, sourceBytes } from './format.js';
 import type { Context } from './main.js';
 import { printable } from '../format/schema.js';
 import { carriedNames, KEY } from './netcdf.js';
@@ -22,6 +22,7 @@ export interface FieldFacts {
   fill: number | null;
   cells: number;
   validCells: number;
+  /** Bytes of the values as the source stored them (a NetCDF variable in its stored type). */
   rawBytes: number;
   payloadBytes: number;
   /** rawBytes / payloadBytes. */
@@ -85,7 +86,7 @@ export function archiveFacts(archive: Archive, file: string, shares: ByteShares[
       else ranks.set(ix.rank[t], (ranks.get(ix.rank[t]) ?? 0) + 1);
     });
     const rankHistogram = Object.fromEntries([...ranks.entries()].sort((a, b) => a[0] - b[0]).map(([r, n]) => [String(r), n]));
-    const raw = rawBytes(h);
+    const raw = sourceBytes(h);
     return {
       name: h.name,
       shape: h.shape,

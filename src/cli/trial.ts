@@ -235,7 +235,7 @@ async function tryBound(sample: FloatArray, shape: [number, number], range: [num
   const fixed: Bound = bound.mode === 'rel' || bound.mode === 'psnr' ? { mode: pointwise ? 'abs' : 'rmse', value: tol > 0 ? tol : Number.MIN_VALUE } : bound;
   let bytes: Uint8Array;
   try {
-    bytes = pack(sample, shape, { bound: fixed, tile: flags.tile, fill, name: 'sample', onProgress: bar.onProgress });
+    bytes = pack(sample, shape, { bound: fixed, tile: flags.tile, fill, fillGuard: false, name: 'sample', onProgress: bar.onProgress });
   } finally {
     bar.stop();
   }

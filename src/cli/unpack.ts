@@ -7,8 +7,8 @@ import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, trackTempDir, writeOutput, writeOutputWith } from './files.js';
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
-import { carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
-import { dimNames, ndShapeOf, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
+import { byPath, carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
+import { dimNames, ndShapeOf, notOneBox, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
 import type { Archive, FloatArray } from '../index.js';
 import { writeNetcdf, type NcWriteFile } from '../io/netcdf-write.js';
 import { writeNetcdf4 } from '../io/hdf5-write.js';
@@ -36,7 +36,8 @@ interface UnpackFlags extends OutputFlags {
   where?: WhereTerm[];
   field?: string;
   var?: string;
-  slices?: [number | undefined, number | undefined];
+  /** --slices: one range (of the leading axes together), or one per leading axis. */
+  slices?: Span[];
   region?: Region;
   bound?: Bound;
   endian?: 'little' | 'big';
@@ -54,7 +55,9 @@ edge, so ':100,50:' is the first 100 rows from column 50 on. Only the tiles
 the window touches are read and decoded.
 
 OUT ending in .nc gets a NetCDF classic file of every field (or --var NAME),
-with dimensions and attributes restored; with --region, --slices or --where,
+with dimensions and attributes restored (with --netcdf4 a NetCDF-4 file, the
+only kind that holds variables of groups, named GROUP/NAME: each goes back
+into its group); with --region, --slices or --where,
 a window of one field, its dimensions and coordinate variables cut to match.
 --where lat=-30:30,lon=100:180 chooses the window by coordinate values
 (inclusive), through the coordinate variables the archive carries;
@@ -62,7 +65,11 @@ dimension names match in any case. --slices and --region count the axes of
 the variable (slices over the leading ones, rows and columns the last two)
 whatever its layout; OUT ending in / (an existing folder)
 gets one NAME.npy per field; .csv writes a small window as text (at most
-10^6 values without --force). --slices A:B picks slices of an N-D field.
+10^6 values without --force). --slices A:B picks slices of an N-D field
+(of its leading axes together: slice s of a (time, depth, lat, lon)
+variable is time s / ndepth, depth s % ndepth); --slices A:B,C:D picks a
+range of each leading axis (time A..B-1 and depth C..D-1), a box that .nc
+output can always hold.
 
 OUT ending in .npy gets a .npy file (little-endian, C order); any other name
 gets headerless raw binary in C (row-major) order, little-endian unless
@@ -78,14 +85,23 @@ Example:
 const END = /^[0-9]*$/;
 
 /** `--region R0:R1,C0:C1`: two half-open ranges of non-negative integers, either end optional. */
-/** `--slices A:B`: a half-open range of slices, either end optional. */
-export function slicesOption(text: string): [number | undefined, number | undefined] {
-  const r = text.split(':');
-  if (r.length !== 2 || !r.every((e) => END.test(e.trim()))) throw new InvalidArgumentError(`slices must be A:B (slices A..B-1; an empty end means the edge), got '${text}'`);
-  const [a, b] = r.map((e) => (e.trim() === '' ? undefined : Number(e.trim())));
-  for (const v of [a, b]) if (v !== undefined && !Number.isSafeInteger(v)) throw new InvalidArgumentError(`slice ends must be integers below 2^53, got '${text}'`);
-  if (a !== undefined && b !== undefined && a >= b) throw new InvalidArgumentError(`slices ${a}:${b} are empty (the start must be below the end)`);
-  return [a, b];
+/** A half-open range whose ends may be left open (to the edge). */
+export type Span = [number | undefined, number | undefined];
+
+/**
+ * `--slices A:B` (a half-open range of slices, of the leading axes
+ * together), or `A:B,C:D,...` (one range per leading axis); either end of
+ * each may be left open.
+ */
+export function slicesOption(text: string): Span[] {
+  return text.split(',').map((part) => {
+    const r = part.split(':');
+    if (r.length !== 2 || !r.every((e) => END.test(e.trim()))) throw new InvalidArgumentError(`slices must be A:B (slices A..B-1), or A:B,C:D,... (one range per leading axis); an empty end means the edge; got '${text}'`);
+    const [a, b] = r.map((e) => (e.trim() === '' ? undefined : Number(e.trim())));
+    for (const v of [a, b]) if (v !== undefined && !Number.isSafeInteger(v)) throw new InvalidArgumentError(`slice ends must be integers below 2^53, got '${text}'`);
+    if (a !== undefined && b !== undefined && a >= b) throw new InvalidArgumentError(`slices ${a}:${b} are empty (the start must be below the end)`);
+    return [a, b] as Span;
+  });
 }
 
 /** Most values written to .csv without --force. */
@@ -162,7 +178,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .requiredOption('-o, --output <OUT>', 'file to write: OUT.npy, OUT.csv, OUT.nc (NetCDF classic, every field or --var), DIR/ (one .npy per field), or raw binary (e.g. OUT.raw)')
     .option('--field <NAME>', 'field to decode (default: the first)', nameOption)
     .option('--var <NAME>', 'the same as --field (a NetCDF variable packed as a field)', nameOption)
-    .option('--slices <A:B>', 'fields of slices: decode only slices A..B-1 (with --region for a window of each)', slicesOption)
+    .option('--slices <A:B>', 'fields of slices: decode only slices A..B-1 of the leading axes together, or A:B,C:D,... one range per leading axis (with --region for a window of each)', slicesOption)
     .option('--region <R0:R1,C0:C1>', 'decode only rows R0..R1-1 and columns C0..C1-1 (an empty end means the edge)', regionOption)
     .option('--where <NAME=LO:HI,...>', 'decode only where the coordinate variables of the named dimensions lie within LO..HI (inclusive; an empty end is open), e.g. lat=-30:30,lon=100:180; names in any case', whereOption)
     .option('--bound <MODE:VALUE>', 'a looser bound than the archive holds: read only as much of each tile as meets it (prints what the values satisfy)', boundOption)
@@ -175,13 +191,13 @@ export function registerUnpack(program: Command, ctx: Context): void {
       const start = performance.now();
       const out = new Output(ctx, flags);
       if (flags.var !== undefined && flags.field !== undefined) throw new UsageError('give --var or --field, not both');
-      const chosen = flags.var ?? flags.field;
+      const given = flags.var ?? flags.field;
       const npy = isNpyPath(flags.output);
       const nc = isNetcdfPath(flags.output);
       const csv = /\.csv$/i.test(flags.output);
       const dirOut = flags.output.endsWith('/');
       if (flags.endian !== undefined && (npy || nc || csv || dirOut)) throw new UsageError(`--endian applies to raw output; '${flags.output}' is not written as raw binary`);
-      if (dirOut && chosen !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
+      if (dirOut && given !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
       if (dirOut && (flags.region || flags.slices || flags.bound || flags.where)) throw new UsageError(`--region, --slices, --where and --bound apply to one field; '${flags.output}' (a folder) gets whole fields`);
       if (flags.netcdf4 && !nc) throw new UsageError(`--netcdf4 applies to NetCDF output (OUT ending in .nc); '${flags.output}' is not`);
       if (nc && flags.bound) throw new UsageError(`--bound applies to .npy, .csv or raw output; '${flags.output}' (NetCDF) gets the values as stored`);
@@ -192,11 +208,12 @@ export function registerUnpack(program: Command, ctx: Context): void {
       else await checkOutput(flags.output, io);
       const archive = await openArchive(input);
       try {
+        const chosen = byPath(archive.names, given);
         const windowed = flags.where !== undefined || flags.region !== undefined || flags.slices !== undefined;
         if (!dirOut && windowed) {
           if (nc && chosen === undefined && archive.names.length > 1) throw new UsageError(`a window written to .nc is of one field: name it with --var (fields: ${archive.names.map((n) => printable(n)).join(', ')})`);
           const h = archive.field(chosen).header;
-          if (nc || flags.where !== undefined || h.layout?.startsWith('matrix:')) {
+          if (nc || flags.where !== undefined || h.layout?.startsWith('matrix:') || (flags.slices !== undefined && flags.slices.length > 1)) {
             await unpackAxes(archive, h, flags, { input, nc, csv, npy, io, start }, out);
             return;
           }
@@ -235,7 +252,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
           rows: [r.rows[0] ?? 0, r.rows[1] ?? h.shape[0]] as [number, number],
           cols: [r.cols[0] ?? 0, r.cols[1] ?? h.shape[1]] as [number, number],
         };
-        const sl = flags.slices && { slices: [flags.slices[0] ?? 0, flags.slices[1] ?? h.slices ?? 1] as [number, number] };
+        const sl = flags.slices && { slices: [flags.slices[0][0] ?? 0, flags.slices[0][1] ?? h.slices ?? 1] as [number, number] };
         if (csv) {
           const s = sl ? sl.slices[1] - sl.slices[0] : h.slices ?? 1;
           const cells = s * (window ? (window.rows[1] - window.rows[0]) * (window.cols[1] - window.cols[0]) : h.shape[0] * h.shape[1]);
@@ -323,6 +340,10 @@ function tilesTouched(h: FieldHeader, request: { slices?: [number, number]; rows
  * afterwards, and on an interrupt) and read back.
  */
 async function netcdfBytes(file: NcWriteFile, netcdf4: boolean): Promise<Uint8Array> {
+  if (!netcdf4 && file.groupPaths) {
+    const grouped = [...file.variables.map((v) => v.name), ...file.dims.map((d) => d.name), ...Object.keys(file.globalAttrs)].filter((n) => n.includes('/'));
+    throw new UsageError(`the output holds variables, dimensions or attributes of NetCDF-4 groups (${grouped.slice(0, 3).map(printable).join(', ')}${grouped.length > 3 ? ', ...' : ''}), which NetCDF classic cannot hold: add --netcdf4, or write .npy`);
+  }
   if (!netcdf4) return writeNetcdf(file);
   const dir = await mkdtemp(join(tmpdir(), 'rankfield-nc4-'));
   trackTempDir(dir, true);
@@ -360,13 +381,13 @@ async function unpackAxes(
   let got: { values: FloatArray; shape: number[] };
   const cells = (r: AxisRange[]) => r.reduce((x, [a, b]) => x * (b - a), 1);
   const k = nd.length;
-  const sliceRange = (): AxisRange => [flags.slices?.[0] ?? 0, flags.slices?.[1] ?? nd.slice(0, k - 2).reduce((x, y) => x * y, 1)];
+  const sliceRange = (): AxisRange => [flags.slices?.[0][0] ?? 0, flags.slices?.[0][1] ?? nd.slice(0, k - 2).reduce((x, y) => x * y, 1)];
   const rowRange: AxisRange = [flags.region?.rows[0] ?? 0, flags.region?.rows[1] ?? nd[k - 2]];
   const colRange: AxisRange = [flags.region?.cols[0] ?? 0, flags.region?.cols[1] ?? nd[k - 1]];
   const n = ranges ? cells(ranges) : cells([sliceRange(), rowRange, colRange]);
   if (o.csv && n > CSV_LIMIT && flags.force !== true) throw new UsageError(`.csv output of ${n} values is refused (more than ${CSV_LIMIT}); choose a smaller window, write .npy, or use --force`);
   if (ranges) got = await readAxes(archive, h, ranges);
-  else if (o.nc) throw new UsageError(`--slices of a variable of ${k} dimensions counts its first ${k - 2} dimensions together, which a .nc window cannot express; use --where, or write .npy`);
+  else if (o.nc) throw new UsageError(notOneBox(h, sliceRange()));
   else got = await readSliceWindow(archive, h, sliceRange(), rowRange, colRange);
   const dims = dimNames(h);
   let bytes: Uint8Array;

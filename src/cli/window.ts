@@ -10,7 +10,7 @@ import { InvalidArgumentError } from 'commander';
 import type { Archive, FieldHeader, FloatArray } from '../index.js';
 import { printable } from '../format/schema.js';
 import { UsageError } from './errors.js';
-import type { Region } from './unpack.js';
+import type { Region, Span } from './unpack.js';
 
 /** A half-open index range along one axis. */
 export type AxisRange = [number, number];
@@ -56,18 +56,23 @@ export function axisOf(h: FieldHeader, name: string): number {
   const dims = dimNames(h);
   const exact = dims.indexOf(name);
   if (exact >= 0) return exact;
-  const i = dims.findIndex((d) => d.toLowerCase() === name.toLowerCase());
+  let i = dims.findIndex((d) => d.toLowerCase() === name.toLowerCase());
+  // A dimension of a NetCDF-4 group ('ocean/depth') also answers to its own name ('depth').
+  if (i < 0) i = dims.findIndex((d) => d.slice(d.lastIndexOf('/') + 1).toLowerCase() === name.toLowerCase());
   if (i < 0) throw new UsageError(`field '${printable(h.name)}' has no dimension '${printable(name)}'; its dimensions are ${dims.map(printable).join(', ')}`);
   return i;
 }
 
 /**
  * Per-axis ranges from --slices and --region: the region's rows and
- * columns are the last two axes; the slices the first axis of a 3-D field
- * (for more axes, the slices of the flattened leading axes must be whole
- * leading axes, else null: the caller reads them as slices).
+ * columns are the last two axes. --slices gives one range per leading axis,
+ * or one range of the leading axes together (their C-order flat index):
+ * for a 3-D field that is the first axis; for more axes it counts whole
+ * boxes only where the range is one (say time 1 whole, or depths 2..5 of
+ * time 3), else null: the caller reads it as slices (or, for .nc, refuses
+ * with {@link notOneBox}).
  */
-export function rangesFrom(h: FieldHeader, slices: [number | undefined, number | undefined] | undefined, region: Region | undefined): AxisRange[] | null {
+export function rangesFrom(h: FieldHeader, slices: Span[] | undefined, region: Region | undefined): AxisRange[] | null {
   const nd = ndShapeOf(h);
   const k = nd.length;
   const out: AxisRange[] = nd.map((n) => [0, n]);
@@ -75,14 +80,66 @@ export function rangesFrom(h: FieldHeader, slices: [number | undefined, number |
     out[k - 2] = [region.rows[0] ?? 0, region.rows[1] ?? nd[k - 2]];
     out[k - 1] = [region.cols[0] ?? 0, region.cols[1] ?? nd[k - 1]];
   }
-  if (slices) {
-    if (k !== 3) return null;
-    out[0] = [slices[0] ?? 0, slices[1] ?? nd[0]];
+  if (slices && slices.length > 1) {
+    const lead = dimNames(h).slice(0, k - 2);
+    if (slices.length !== k - 2) {
+      throw new UsageError(`--slices gives ${slices.length} ranges, but field '${printable(h.name)}' has ${k - 2} leading ${k - 2 === 1 ? 'axis' : 'axes'} (${lead.map(printable).join(', ')}): give one range per leading axis, or one range A:B of them together`);
+    }
+    slices.forEach(([a, b], i) => void (out[i] = [a ?? 0, b ?? nd[i]]));
+  } else if (slices) {
+    const flat: AxisRange = [slices[0][0] ?? 0, slices[0][1] ?? nd.slice(0, k - 2).reduce((x, y) => x * y, 1)];
+    const box = k < 3 ? null : boxOf(nd.slice(0, k - 2), flat);
+    if (box === null) return null;
+    box.forEach((r, i) => void (out[i] = r));
   }
   out.forEach(([a, b], i) => {
     if (!(a >= 0 && b <= nd[i] && a < b)) throw new UsageError(`field '${printable(h.name)}' has ${nd[i]} entries along '${printable(dimNames(h)[i])}'; the range ${a}:${b} lies outside 0:${nd[i]}`);
   });
   return out;
+}
+
+/**
+ * The box (one range per axis) of the C-order flat indexes [a, b) of an
+ * array of shape `lead`, when they are exactly a box; else null. A range
+ * beyond the array is returned as it is along the first axis, to be refused
+ * by the caller's bounds check.
+ */
+export function boxOf(lead: number[], [a, b]: AxisRange): AxisRange[] | null {
+  const total = lead.reduce((x, y) => x * y, 1);
+  if (lead.length === 1) return [[a, b]];
+  if (a < 0 || b > total || a >= b) return null;
+  const index = (f: number) => {
+    const idx = lead.map(() => 0);
+    for (let i = lead.length - 1; i >= 0; i--) {
+      idx[i] = f % lead[i];
+      f = Math.floor(f / lead[i]);
+    }
+    return idx;
+  };
+  const p = index(a);
+  const q = index(b - 1);
+  // The bounding box: along each axis, the two ends' indexes while the axes before agree, else the whole axis
+  // (a run that crosses from one index of an outer axis to the next passes both ends of every inner one).
+  let same = true;
+  const box = lead.map((n, i): AxisRange => {
+    const r: AxisRange = same ? [p[i], q[i] + 1] : [0, n];
+    same &&= p[i] === q[i];
+    return r;
+  });
+  // The run lies within its bounding box, so it is that box exactly when they hold as many cells.
+  return box.reduce((x, [lo, hi]) => x * (hi - lo), 1) === b - a ? box : null;
+}
+
+/** The refusal of a --slices range of the leading axes together that is no box of them (a .nc window needs one). */
+export function notOneBox(h: FieldHeader, [a, b]: AxisRange): string {
+  const nd = ndShapeOf(h);
+  const k = nd.length;
+  const lead = dimNames(h).slice(0, k - 2);
+  const sizes = lead.map((d, i) => `${printable(d)} ${nd[i]}`).join(', ');
+  return (
+    `--slices ${a}:${b} of field '${printable(h.name)}' counts its leading axes together (${sizes}), and slices ${a}..${b - 1} are not one range of each, which a .nc window needs; ` +
+    `give one range per leading axis (--slices ${lead.map(() => 'A:B').join(',')}), or write .npy`
+  );
 }
 
 /**

@@ -96,7 +96,7 @@ export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
       }
     }
     const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
-    const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false };
+    const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false }; // the field's own pass guards
     let bytes = 0;
     const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
     // Bytes per valid cell: candidates sample different tiles, and missing cells cost next to nothing.

@@ -4,6 +4,7 @@
  * the field-wide smallest singular values first (Eckart-Young).
  */
 import { isPointwise, resolveBound } from './bound.js';
+import { RangeWatch, suspectError } from './fill-guard.js';
 import { fillWords } from './mask.js';
 import { ErrorTally } from './tally.js';
 import { measure, measurePrefixes, type TileStats } from './measure.js';
@@ -54,10 +55,14 @@ export interface FieldChoices {
 
 /**
  * The choices before the L2 plan: one pass over the source for the value
- * range, and the tolerance the bound resolves to; `plan` is still null.
+ * range (refusing, with `guardFill`, a value that looks like an undeclared
+ * fill value), and the tolerance the bound resolves to; `plan` is still null.
  */
 export function fieldBasis(src: BandSource, spec: FieldSpec): FieldChoices {
-  const range = validRange(src, spec);
+  const watch = spec.guardFill ? new RangeWatch(spec.fill) : undefined;
+  const range = validRange(src, spec, watch);
+  const suspect = watch?.suspect();
+  if (suspect) throw suspectError(suspect, spec.name, spec.dtype === 'f32');
   const span = range ? range[1] - range[0] : 0;
   let tol = resolveBound(spec.bound, span);
   if (!Number.isFinite(tol)) tol = Number.MAX_VALUE;

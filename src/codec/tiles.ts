@@ -19,6 +19,8 @@ export interface FieldSpec {
   autoTile?: boolean;
   /** Store factors in groups of ranks 1, 1, 2, 4, ... so readers can stop after any group (costs bytes). */
   progressive?: boolean;
+  /** Refuse a value that looks like an undeclared fill value (see fill-guard.ts), seen in the range pass. */
+  guardFill?: boolean;
   /**
    * Slices of rows x cols stacked in the field (default 1). The source then
    * serves rows of the stacked (slices x rows) x cols matrix: rows
@@ -80,7 +82,7 @@ export function forEachTile(src: BandSource, spec: FieldSpec, visit: (index: num
 }
 
 /** Min and max over finite values that are not the fill value, read band by band. */
-export function validRange(src: BandSource, spec: FieldSpec): [number, number] | null {
+export function validRange(src: BandSource, spec: FieldSpec, watch?: { add(values: FloatArray): void }): [number, number] | null {
   const fw = fillWords(spec.fill, spec.dtype);
   const f = fw === null ? NaN : spec.dtype === 'f32' ? Math.fround(spec.fill as number) : (spec.fill as number);
   let lo = Infinity;
@@ -91,6 +93,7 @@ export function validRange(src: BandSource, spec: FieldSpec): [number, number] |
   for (let r0 = 0, end = 0; r0 < total; r0 = end) {
     end = Math.min(total, r0 + step, (Math.floor(r0 / spec.rows) + 1) * spec.rows);
     const values = src.band(r0, end - r0);
+    watch?.add(values);
     for (let i = 0; i < values.length; i++) {
       const v = values[i];
       if (!Number.isFinite(v)) continue;

@@ -13,7 +13,7 @@ import { closeSync, fstatSync, fsyncSync, openSync, readSync, writeSync } from '
 import { InputCode, InputError } from '../errors.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { HOST_LITTLE_ENDIAN, checkedProduct, itemSize, swapBytes } from './ndarray.js';
-import { MAX_NPY_HEADER_BYTES, npyHeader, parseNpyHeader } from './npy.js';
+import { MAX_NPY_HEADER_BYTES, npyHeader, parseNpy, parseNpyHeader } from './npy.js';
 import { openRegularSync } from './regular-file.js';
 
 /**
@@ -196,11 +196,70 @@ function pyShape(shape: readonly number[]): string {
   return shape.length === 1 ? `(${shape[0]},)` : `(${shape.join(', ')})`;
 }
 
+/** Largest N-D Fortran-order .npy data read whole to be reordered (2 GiB). */
+export const MAX_FORTRAN_BYTES = 2 ** 31;
+
+/**
+ * An N-D Fortran-order .npy file, read whole from the open `fd` (which the
+ * caller closes) and reordered into C order by {@link parseNpy} (the .npy format
+ * description, numpy.lib.format: with fortran_order True the data is the
+ * array's column-major order, the first axis varying fastest).
+ */
+function wholeFortran(fd: number, path: string, size: number, shape: number[], item: number): BandReader {
+  const count = checkedProduct(shape, path, pyShape(shape));
+  if (count * item > MAX_FORTRAN_BYTES) {
+    throw new InputError(InputCode.Shape, `${path}: holds a ${shape.length}-D array of shape ${pyShape(shape)} in Fortran order, which is read whole to reorder it, and its ${count * item} bytes exceed ${MAX_FORTRAN_BYTES}; save it in C order (numpy.ascontiguousarray) to pack it band by band`);
+  }
+  const bytes = readPrefix(fd, size, 0);
+  if (bytes.length !== size) throw fileError(path, `the file ended at byte ${bytes.length}, before the ${size} bytes it had when opened (it changed while being read)`);
+  const arr = parseNpy(bytes, path);
+  return new ArrayBands(path, arr.data, shape, size);
+}
+
+/** Bands of an array already in memory, in C order. */
+class ArrayBands implements BandReader {
+  private data: FloatArray | null;
+  readonly shape: [number, number];
+  readonly dtype: Dtype;
+
+  constructor(
+    readonly path: string,
+    data: FloatArray,
+    private readonly nd: number[],
+    readonly bytesRead: number,
+  ) {
+    this.data = data;
+    this.shape = matrixOf(nd);
+    this.dtype = data instanceof Float32Array ? 'f32' : 'f64';
+  }
+
+  get ndShape(): number[] {
+    return this.nd.slice();
+  }
+
+  band(r0: number, count: number): FloatArray {
+    const [rows, cols] = this.shape;
+    if (this.data === null) throw new InputError(InputCode.Option, `${this.path}: read after the band reader was closed`);
+    if (!Number.isSafeInteger(r0) || !Number.isSafeInteger(count) || r0 < 0 || count < 0 || r0 + count > rows) {
+      throw new InputError(InputCode.Option, `${this.path}: band of rows ${r0}..${r0 + count} lies outside rows 0..${rows}`);
+    }
+    // A copy, as a file read gives: the caller may keep or change it.
+    return this.data.slice(r0 * cols, (r0 + count) * cols);
+  }
+
+  close(): void {
+    this.data = null;
+  }
+}
+
 /**
  * Open a .npy file holding a float32 or float64 array of 2 or more axes
  * (N-D ones in C order) for band reads. Only its header is read here.
- * Throws InputError for what `parseNpyHeader` refuses, for 1-D, empty and
- * N-D Fortran-order arrays, and for a
+ * An N-D array (3 or more axes) in Fortran order, whose C-order rows are
+ * scattered over the whole file, is read whole and reordered into C order
+ * in memory ({@link MAX_FORTRAN_BYTES} at most); a 2-D one is read by bands.
+ * Throws InputError for what `parseNpyHeader` refuses, for 1-D and empty
+ * arrays, and for a
  * data part whose length differs from what the header declares; system
  * errors (ENOENT, EACCES, EISDIR) pass on as Node reports them.
  */
@@ -218,9 +277,6 @@ export function openNpyBands(path: string): BandReader {
       throw new InputError(InputCode.Shape, `${path}: holds a ${h.shape.length}-D array of shape ${pyShape(h.shape)}; a field has 2 or more axes`);
     }
     if (h.shape.some((d) => d === 0)) throw new InputError(InputCode.Shape, `${path}: the array of shape ${pyShape(h.shape)} holds no values`);
-    if (h.shape.length > 2 && h.fortranOrder) {
-      throw new InputError(InputCode.Shape, `${path}: holds a ${h.shape.length}-D array of shape ${pyShape(h.shape)} in Fortran order; save it in C order (numpy.ascontiguousarray) to pack it`);
-    }
     const count = checkedProduct(h.shape, path, pyShape(h.shape));
     const item = itemSize(h.dtype);
     const available = size - h.dataOffset;
@@ -230,6 +286,11 @@ export function openNpyBands(path: string): BandReader {
         `header declares shape ${pyShape(h.shape)} = ${count} values of ${item} bytes but the data holds ${available} bytes` +
           (available < count * item ? ' (file truncated?)' : ` (${available - count * item} extra bytes)`),
       );
+    }
+    if (h.shape.length > 2 && h.fortranOrder) {
+      const whole = wholeFortran(fd, path, size, h.shape, item);
+      closeSync(fd);
+      return whole;
     }
     const layout: Layout = { shape: matrixOf(h.shape), ndShape: h.shape.slice(), dtype: h.dtype, littleEndian: h.littleEndian, fortranOrder: h.fortranOrder, dataOffset: h.dataOffset };
     return new FileBands(fd, path, layout, { size, mtimeMs }, head.length);

@@ -15,8 +15,11 @@
  *  - the bookkeeping attributes (CLASS, NAME, REFERENCE_LIST,
  *    DIMENSION_LIST, _Netcdf4Coordinates, _Netcdf4Dimid, _NCProperties,
  *    _nc3_strict) are dropped; every other attribute is kept with its type.
- *  - groups: a variable or dimension of group G is named G.NAME (nested
- *    groups G.H.NAME), since classic files have no groups.
+ *  - groups: a variable or dimension of group G is named by its path
+ *    without the leading '/', G/NAME (nested groups G/H/NAME); NetCDF names
+ *    cannot hold '/', so a name without one is of the root group. The
+ *    model's `groupPaths` says so (classic files have no groups). A
+ *    group's attributes are global attributes named G/NAME likewise.
  *  - types beyond the classic ones are widened exactly: unsigned byte to
  *    short, unsigned short to int, 32- and 64-bit unsigned and 64-bit
  *    integers to double (refused beyond 2^53, where double is inexact);
@@ -24,7 +27,6 @@
  *  - the first dimension whose maximum size is unlimited becomes the record
  *    dimension (classic files have at most one).
  */
-import fs from 'node:fs';
 import { InputCode, InputError } from '../errors.js';
 import type { NcAttrValue, NcType } from './netcdf-types.js';
 import { writeNetcdf, type NcWriteFile, type NcWriteValues, type NcWriteVariable } from './netcdf-write.js';
@@ -54,38 +56,27 @@ type H5Node = {
 
 let loading: Promise<H5> | null = null;
 
-/** h5wasm, loaded once for reading and writing (its WebAssembly module takes a moment to start). */
+/**
+ * h5wasm, loaded once for reading and writing (its WebAssembly module takes
+ * a moment to start). The HDF5 library's automatic error report is switched
+ * to h5wasm's throwing handler (`activate_throwing_error_handler`, h5wasm
+ * 0.7.2 and later): a failing HDF5 call throws an Error whose message is the
+ * error stack the library would otherwise print to stderr, so nothing of it
+ * reaches the terminal and {@link hdf5Reason} makes one line of it.
+ */
 export async function h5(): Promise<H5> {
   loading ??= import('h5wasm/node').then(async (m) => {
-    await m.default.ready;
+    const module = await m.default.ready;
+    module.activate_throwing_error_handler();
     return m.default;
   });
   return loading;
 }
 
-/**
- * Run `fn` with the HDF5 library's error reports kept off the terminal: on
- * failure the C library prints its error stack to file descriptor 2, which
- * h5wasm's Node build writes with fs.writeSync; those writes are caught
- * (only during `fn`, only to descriptor 2) and handed to `fn`'s caller as
- * text, so that a failure is one line of ours. Returns fn's result and the
- * caught text.
- */
-export function quietly<T>(fn: () => T): { result: T; stack: string } {
-  const original = fs.writeSync;
-  const caught: string[] = [];
-  const quiet = function (this: unknown, fd: number, data: unknown, ...rest: unknown[]): number {
-    if (fd !== 2) return (original as (...a: unknown[]) => number).call(this, fd, data, ...rest);
-    const text = typeof data === 'string' ? data : Buffer.from(data as Uint8Array).subarray((rest[0] as number | undefined) ?? 0, rest[1] === undefined ? undefined : ((rest[0] as number | undefined) ?? 0) + (rest[1] as number)).toString('utf8');
-    caught.push(text);
-    return typeof data === 'string' ? Buffer.byteLength(data) : ((rest[1] as number | undefined) ?? (data as Uint8Array).length);
-  };
-  fs.writeSync = quiet as typeof fs.writeSync;
-  try {
-    return { result: fn(), stack: caught.join('') };
-  } finally {
-    fs.writeSync = original;
-  }
+/** The message of a caught HDF5 failure, as one line: the innermost complaint of its error stack, or the error's own text. */
+export function hdf5Failure(e: unknown): string {
+  const text = e instanceof Error ? e.message : String(e);
+  return /HDF5-DIAG|#000:/.test(text) ? hdf5Reason(text) : text.split('\n')[0];
 }
 
 /** The innermost HDF5 complaint of an error stack, e.g. "H5Fopen(): unable to synchronously open file". */
@@ -153,9 +144,9 @@ function attributes(node: H5Node, path: string): { attrs: Record<string, NcAttrV
   return { attrs, attrTypes };
 }
 
-/** A classic name for an HDF5 path: groups joined by '.', without the leading '/'. */
+/** The model's name of an HDF5 path: the path without the leading '/', groups kept as 'G/H/NAME'. */
 function flatName(path: string): string {
-  return path.replace(/^\/+/, '').split('/').join('.');
+  return path.replace(/^\/+/, '').replace(/\/+/g, '/');
 }
 
 /**
@@ -165,24 +156,17 @@ function flatName(path: string): string {
  */
 export async function readHdf5AsClassic(path: string): Promise<NcWriteFile> {
   const lib = await h5();
-  const { result, stack } = quietly((): NcWriteFile | { failed: unknown } => {
-    try {
-      return readOpen(lib, path);
-    } catch (e) {
-      return { failed: e };
-    }
-  });
-  if ('failed' in result) {
-    const e = result.failed;
+  try {
+    return readOpen(lib, path);
+  } catch (e) {
     if (e instanceof InputError) throw e;
-    return fileError(path, `not a readable HDF5 file (${stack ? hdf5Reason(stack) : e instanceof Error ? e.message : String(e)})`);
+    return fileError(path, `not a readable HDF5 file (${hdf5Failure(e)})`);
   }
-  return result;
 }
 
 type H5File = H5Node & { file_id: bigint; close(): void; dereference(r: unknown): { path: string } | null };
 
-/** {@link readHdf5AsClassic} within {@link quietly}: opens, walks and closes the file. */
+/** {@link readHdf5AsClassic}: opens, walks and closes the file. */
 function readOpen(lib: H5, path: string): NcWriteFile {
   const file = new lib.File(path, 'r') as unknown as H5File;
   if (!(file.file_id >= 0n)) throw new Error('cannot open');
@@ -190,11 +174,23 @@ function readOpen(lib: H5, path: string): NcWriteFile {
     const dims = new Map<string, { size: number; unlimited: boolean }>();
     const variables: NcWriteVariable[] = [];
     const datasets: H5Node[] = [];
+    // Attributes of groups are kept as global attributes named by their path, G/NAME.
+    const groupAttrs: ReturnType<typeof attributes>[] = [];
     const walk = (g: H5Node) => {
       for (const k of g.keys!()) {
         const o = g.get!(k);
         if (o === null) continue;
-        if (o.type === 'Group') walk(o);
+        if (o.type === 'Group') {
+          const own = attributes(o, path);
+          const prefix = `${flatName(o.path)}/`;
+          const named = { attrs: {} as Record<string, NcAttrValue>, attrTypes: {} as Record<string, NcType> };
+          for (const [name, v] of Object.entries(own.attrs)) {
+            Object.defineProperty(named.attrs, prefix + name, { value: v, enumerable: true, writable: true, configurable: true });
+            Object.defineProperty(named.attrTypes, prefix + name, { value: own.attrTypes[name], enumerable: true, writable: true, configurable: true });
+          }
+          groupAttrs.push(named);
+          walk(o);
+        }
         else if (o.type === 'Dataset') datasets.push(o);
       }
     };
@@ -236,18 +232,27 @@ function readOpen(lib: H5, path: string): NcWriteFile {
     // The record dimension stays unlimited only where every variable using it has it first (the classic format's rule).
     const rec = record !== null && variables.every((v) => v.dims.indexOf(record!) <= 0) ? record : null;
     const g = attributes(file, path);
+    for (const a of groupAttrs) {
+      Object.assign(g.attrs, a.attrs);
+      Object.assign(g.attrTypes, a.attrTypes);
+    }
     return {
       dims: [...dims].map(([name, d]) => ({ name, size: d.size, unlimited: name === rec })),
       globalAttrs: g.attrs,
       globalAttrTypes: g.attrTypes,
       variables,
+      groupPaths: true,
     };
   } finally {
     file.close();
   }
 }
 
-/** A NetCDF-4 / HDF5 file as the bytes of the NetCDF classic file that holds the same (see the module comment). */
+/**
+ * A NetCDF-4 / HDF5 file as the bytes of the NetCDF classic file that holds
+ * the same (see the module comment); variables and dimensions of groups keep
+ * their paths as names, which only rankfield's own classic reader takes.
+ */
 export async function netcdf4ToClassic(path: string): Promise<Uint8Array> {
   const f = await readHdf5AsClassic(path);
   try {

@@ -61,6 +61,14 @@ export interface NcWriteFile {
   globalAttrs: NcAttrs;
   globalAttrTypes?: Record<string, NcType>;
   variables: NcWriteVariable[];
+  /**
+   * Names of variables, dimensions and global attributes may be NetCDF-4
+   * group paths, `GROUP/.../NAME` without a leading '/', each part a valid
+   * name (a global attribute so named is an attribute of that group). Only for
+   * the in-memory model of a NetCDF-4 file (src/io/hdf5-read.ts) and for
+   * writing NetCDF-4: bytes written with such names are no valid classic file.
+   */
+  groupPaths?: boolean;
 }
 
 /** Where everything goes, from {@link planNetcdf}. */
@@ -91,7 +99,11 @@ const utf8 = new TextEncoder();
  * NFC, first character a letter, digit or underscore, no control
  * characters or '/', no trailing spaces, at most 256 bytes.
  */
-function checkName(name: string, what: string): Uint8Array {
+function checkName(name: string, what: string, paths = false): Uint8Array {
+  if (paths && typeof name === 'string' && name.includes('/')) {
+    for (const part of name.split('/')) checkName(part, `${what} '${name}': group path part`);
+    return utf8.encode(name);
+  }
   if (typeof name !== 'string' || name.length === 0) optionError(`${what} needs a non-empty name`);
   const bytes = utf8.encode(name);
   const ok =
@@ -209,7 +221,7 @@ function attrType(key: string, value: NcAttrValue, types: Record<string, NcType>
   return varType !== null && varType !== 'char' && VAR_TYPED_ATTRS.has(key) ? varType : 'double';
 }
 
-function writeAttrs(w: HeaderWriter, attrs: NcAttrs, types: Record<string, NcType> | undefined, varType: NcType | null, what: string): void {
+function writeAttrs(w: HeaderWriter, attrs: NcAttrs, types: Record<string, NcType> | undefined, varType: NcType | null, what: string, paths = false): void {
   if (attrs === null || typeof attrs !== 'object') optionError(`${what} attributes must be an object`);
   const entries = Object.entries(attrs);
   if (entries.length === 0) {
@@ -220,7 +232,7 @@ function writeAttrs(w: HeaderWriter, attrs: NcAttrs, types: Record<string, NcTyp
   w.u32(NC_ATTRIBUTE);
   w.u32(entries.length);
   for (const [key, value] of entries) {
-    w.name(checkName(key, `${what} attribute`));
+    w.name(checkName(key, `${what} attribute`, paths));
     const type = attrType(key, value, types, varType, what);
     w.u32(NC_TYPE_CODE[type]);
     if (typeof value === 'string') {
@@ -256,7 +268,7 @@ function checkStructure(file: Omit<NcWriteFile, 'variables'> & { variables: Omit
   let numRecords = 0;
   let unlimited = -1;
   for (const [i, d] of file.dims.entries()) {
-    checkName(d.name, 'dimension');
+    checkName(d.name, 'dimension', file.groupPaths === true);
     if (dimNames.has(d.name)) optionError(`two dimensions named '${d.name}'`);
     dimNames.set(d.name, i);
     const lo = d.unlimited ? 0 : 1;
@@ -272,7 +284,7 @@ function checkStructure(file: Omit<NcWriteFile, 'variables'> & { variables: Omit
   const out: Checked = { dimIds: [], slabs: [], slabCounts: [], isRecord: [], numRecords };
   const varNames = new Set<string>();
   for (const v of file.variables) {
-    checkName(v.name, 'variable');
+    checkName(v.name, 'variable', file.groupPaths === true);
     if (varNames.has(v.name)) optionError(`two variables named '${v.name}'`);
     varNames.add(v.name);
     if (!(v.type in NC_TYPE_SIZE)) optionError(`variable '${v.name}' has unknown type ${JSON.stringify(v.type)}`);
@@ -309,7 +321,7 @@ function buildHeader(file: Parameters<typeof checkStructure>[0], c: Checked, for
       w.u32(d.unlimited ? 0 : d.size);
     }
   }
-  writeAttrs(w, file.globalAttrs, file.globalAttrTypes, null, 'global');
+  writeAttrs(w, file.globalAttrs, file.globalAttrTypes, null, 'global', file.groupPaths === true);
   if (file.variables.length === 0) {
     w.u32(0);
     w.u32(0);

@@ -48,6 +48,27 @@ describe('N-D .npy and raw', { timeout: CLI_TIMEOUT }, () => {
     expect(c.stdout).toMatch(/measured +max error/);
   });
 
+  it('a 3-D .npy in Fortran order packs as its C-order array: unpack gives the same values as the C-order file, check --against it passes', () => {
+    // The .npy format description (numpy.lib.format): with 'fortran_order': True the data is in
+    // column-major order, the first axis fastest: element (i, j, k) at i + 4 (j + 21 k).
+    const dict = `{'descr': '<f4', 'fortran_order': True, 'shape': (4, 21, 180), }`;
+    const hl = Math.ceil((10 + dict.length + 1) / 64) * 64 - 10;
+    const bytes = new Uint8Array(10 + hl + values.length * 4);
+    bytes.set([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0, hl & 0xff, hl >> 8]);
+    for (let i = 0; i < hl - 1; i++) bytes[10 + i] = i < dict.length ? dict.charCodeAt(i) : 0x20;
+    bytes[10 + hl - 1] = 0x0a;
+    const view = new DataView(bytes.buffer, 10 + hl);
+    for (let i = 0; i < 4; i++) for (let j = 0; j < 21; j++) for (let k = 0; k < 180; k++) view.setFloat32((i + 4 * (j + 21 * k)) * 4, values[(i * 21 + j) * 180 + k], true);
+    writeFileSync(join(t.dir, 'p3f.npy'), bytes);
+    const r = rf(['pack', 'p3f.npy', '-o', 'p3f.rfz', '--bound', 'abs:2', '--tile', '21', '--name', 'p'], t.dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(rf(['pack', 'p3.npy', '-o', 'p3c.rfz', '--bound', 'abs:2', '--tile', '21', '--name', 'p'], t.dir).code).toBe(0);
+    // The same array, so the same archive byte for byte (packing is deterministic).
+    expect(Buffer.compare(readFileSync(join(t.dir, 'p3f.rfz')), readFileSync(join(t.dir, 'p3c.rfz')))).toBe(0);
+    const c = rf(['check', 'p3f.rfz', '--against', 'p3f.npy'], t.dir);
+    expect(c.code, c.stdout + c.stderr).toBe(0);
+  });
+
   it('raw with a 3-D --shape packs and checks (the field\'s shape is the default)', () => {
     const r = rf(['pack', 'p3.f32', '-o', 'raw3.rfz', '--bound', 'abs:2', '--shape', '4x21x180', '--dtype', 'f32'], t.dir);
     expect(r.code, r.stderr).toBe(0);

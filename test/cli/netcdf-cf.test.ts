@@ -15,6 +15,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { NetCDFReader } from 'netcdfjs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { open, restoreMissing } from '../../src/index.js';
 import { parseNpy } from '../../src/io/npy.js';
 import { cdlValues, haveNetcdfBin, ncdumpHeader, ncgen } from '../cdl.js';
 import { CLI_TIMEOUT, ensureBuilt, rf, tempDir, volcano } from './helpers.js';
@@ -71,6 +72,11 @@ describe.skipIf(!RUN)('CF round trip of an ncgen file', { timeout: CLI_TIMEOUT }
     expect(p.code, p.stderr).toBe(0);
     // Bytes in as stored: 5307 shorts (2 bytes) and 5307 floats (4 bytes).
     expect(p.stdout).toMatch(new RegExp(`: ${N * 2 + N * 4} bytes in,`));
+    // show counts the same: per field the stored bytes, against which its ratio is taken.
+    const shown = JSON.parse(rf(['show', 'v.rfz', '--json'], t.dir).stdout) as { rawBytes: number; fields: { name: string; rawBytes: number; payloadBytes: number; ratio: number }[] };
+    expect(shown.fields.map((f) => [f.name, f.rawBytes])).toEqual([['height', N * 2], ['level', N * 4]]);
+    expect(shown.rawBytes).toBe(N * 6);
+    for (const f of shown.fields) expect(f.ratio).toBe(f.rawBytes / f.payloadBytes);
     const u = rf(['unpack', 'v.rfz', '-o', 'back.nc'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const a = new NetCDFReader(readFileSync(join(t.dir, 'volcano.nc')));
@@ -106,6 +112,28 @@ describe.skipIf(!RUN)('CF round trip of an ncgen file', { timeout: CLI_TIMEOUT }
   it('the .nc written back notes in history that its values come from a lossy archive', () => {
     const h = ncdumpHeader(join(t.dir, 'back.nc'));
     expect(h).toMatch(/:history = "made with ncgen from CDL\\n",?\s*"?\d{4}-\d\d-\d\dT[0-9:]+Z rankfield \S+ unpack: values decoded from a lossy archive \(height abs:0\.004, level abs:0\.004\)/);
+  });
+
+  it('in the library, read() gives the missing_value cells as a NaN mark and restoreMissing puts the value back, bit for bit; on a window too', async () => {
+    const a = await open(join(t.dir, 'v.rfz'));
+    try {
+      const h = a.field('level').header;
+      const read = await a.read('level');
+      const bits = new Uint32Array(read.values.buffer, read.values.byteOffset, read.values.length);
+      // Before: the mark, a quiet NaN (binary32 exponent all ones, top fraction bit set; IEEE 754-2008 section 6.2.1).
+      for (let i = FILL_CELLS; i < FILL_CELLS + MISS_CELLS; i++) expect(Number.isNaN(read.values[i]) && (bits[i] & 0x7fc00000) === 0x7fc00000).toBe(true);
+      restoreMissing(h, read.values);
+      // After: the CDL's own values, -999 (_FillValue) and -888 (missing_value), as float32.
+      for (let i = 0; i < FILL_CELLS + MISS_CELLS; i++) expect(bits[i]).toBe(new Uint32Array(Float32Array.of(role(i) === 'fill' ? -999 : -888).buffer)[0]);
+      expect(read.values.some((x) => Number.isNaN(x))).toBe(false);
+      // A window: row 1 (cells 87..173) holds the missing_value cells 100..149.
+      const w = await a.read('level', { rows: [1, 2], cols: [0, 87] });
+      restoreMissing(h, w.values);
+      for (let j = 0; j < 87; j++) if (role(87 + j) === 'missing') expect(w.values[j]).toBe(-888);
+      expect(w.values.some((x) => Number.isNaN(x))).toBe(false);
+    } finally {
+      await a.close();
+    }
   });
 
   it('.npy output gives the missing_value cells their own value too', () => {

@@ -100,6 +100,71 @@ describe.skipIf(!RUN)('NetCDF-4 input', { timeout: CLI_TIMEOUT }, () => {
     expect(data('rec3.nc')).toMatch(/site = "Maunga " ;/);
   });
 
+  it('groups: variables of nested groups are packed under their paths, chosen by --var /GROUP/NAME, and written back into their groups, with the groups\' attributes, by --netcdf4 as ncdump shows the original', () => {
+    // netCDF-4 CDL "group:" blocks (NetCDF Users Guide, "CDL Syntax" and "Groups"; from memory); a group's
+    // variables use the dimensions of the groups around it. Values: volcano.json's first rows.
+    const row = (r: number, n: number) => cdlValues(g.values.slice(r * 87, r * 87 + n));
+    const cdl = `netcdf grouped {
+dimensions:
+  x = 6 ;
+variables:
+  float top(x, x) ;
+    top:units = "m" ;
+  :title = "groups" ;
+data:
+  top = ${row(0, 36)} ;
+group: ocean {
+  dimensions:
+    depth = 4 ;
+  variables:
+    float depth(depth) ;
+      depth:units = "m" ;
+    float temp(depth, x) ;
+      temp:_FillValue = -999.f ;
+    :region = "north shelf" ;
+    :levels = 4 ;
+  data:
+    depth = 5, 15, 25, 35 ;
+    temp = ${row(1, 23)}, -999 ;
+  group: deep {
+    variables:
+      double temp(depth, x) ;
+    data:
+      temp = ${row(2, 24)} ;
+  }
+}
+}
+`;
+    ncgen(cdl, join(t.dir, 'groups.nc'), 'nc4');
+    const p = rf(['pack', 'groups.nc', '-o', 'groups.rfz', '--bound', 'abs:0.001'], t.dir);
+    expect(p.code, p.stderr).toBe(0);
+    expect(p.stdout).toMatch(/ocean\/temp \(ocean\/depth, x\) 4x6 f32/);
+    expect(p.stdout).toMatch(/ocean\/deep\/temp \(ocean\/depth, x\) 4x6 f64/);
+    const one = rf(['pack', 'groups.nc', '-o', 'one.rfz', '--bound', 'abs:0.001', '--var', '/ocean/deep/temp', '--json'], t.dir);
+    expect(one.code, one.stderr).toBe(0);
+    expect(JSON.parse(one.stdout).archive.fields.map((f: { name: string }) => f.name)).toEqual(['ocean/deep/temp']);
+    expect(rf(['check', 'groups.rfz', '--against', 'groups.nc', '--var', '/ocean/temp'], t.dir).code).toBe(0);
+    expectCliError(rf(['unpack', 'groups.rfz', '--var', '/ocean/nope', '-o', 'x.npy'], t.dir), /no field '\/ocean\/nope' in groups\.rfz \(fields: .*ocean\/temp/);
+    // Classic files have no groups: refused with the remedy.
+    expectCliError(rf(['unpack', 'groups.rfz', '-o', 'flat.nc'], t.dir), /NetCDF-4 groups \(.*ocean\/temp.*\), which NetCDF classic cannot hold: add --netcdf4/);
+    // The group's attributes go with it (ncdump prints them in the group, compared below).
+    expect(JSON.parse(rf(['show', 'groups.rfz', '--json'], t.dir).stdout).attrs).toMatchObject({ 'ocean/region': 'north shelf', 'ocean/levels': 4 });
+    const u = rf(['unpack', 'groups.rfz', '-o', 'groups-back.nc', '--netcdf4'], t.dir);
+    expect(u.code, u.stderr).toBe(0);
+    // ncdump (netcdf-bin) prints the same groups, dimensions, variables, attributes and data as for the original,
+    // but for the history line unpack adds; the values are within 0.001 of the originals, printed to ncdump's
+    // own precision (7 significant digits for float, 17 for double), so the doubles are compared by value.
+    const dump = (f: string) => execFileSync(NCDUMP, [join(t.dir, f)], { encoding: 'utf8' }).replace(/^netcdf \S+ \{/, '').replace(/\n\t\t:history = .*\n/, '\n');
+    const [a, b] = [dump('groups.nc'), dump('groups-back.nc')];
+    const noDeepData = (d: string) => d.replace(/(group: deep \{[\s\S]*?data:)[\s\S]*?(\} \/\/ group deep)/, '$1 $2');
+    expect(noDeepData(b)).toBe(noDeepData(a));
+    expect(b).toMatch(/group: ocean \{\n {2}dimensions:\n {2}\tdepth = 4 ;[\s\S]*group: deep \{/);
+    const deepValues = (d: string) => /temp =([^;]*);\n {4}\} \/\/ group deep/.exec(d)![1].split(',').map(Number);
+    const [da, db] = [deepValues(a), deepValues(b)];
+    expect(db.length).toBe(24);
+    for (let i = 0; i < 24; i++) expect(Math.abs(db[i] - da[i])).toBeLessThanOrEqual(0.001);
+  });
+
   it('--netcdf4 is refused for other outputs', () => {
     expectCliError(rf(['unpack', 'rec.rfz', '-o', 'x.npy', '--netcdf4'], t.dir), /--netcdf4 applies to NetCDF output/);
   });

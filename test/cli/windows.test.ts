@@ -112,3 +112,79 @@ describe.skipIf(!RUN)('windows of a matrix-laid NetCDF variable', { timeout: CLI
     expectCliError(rf(['unpack', 'm.rfz', '--where', 'lat=85:90', '-o', 'x.npy'], t.dir), /--where lat=85:90 selects nothing: coordinate 'lat' runs from -83 to 83/);
   });
 });
+
+describe.skipIf(!RUN)('windows of a 4-D variable written to .nc, on both layouts', { timeout: CLI_TIMEOUT }, () => {
+  // (time 2, depth 3, lat 12, lon 10): the grid's time s, rows 30.., columns 60.., times 1 + depth / 10.
+  const cell = (s: number, d: number, i: number, j: number) => grid[(s * NY + 30 + i) * NX + 60 + j] * (1 + d / 10);
+  const DEPTH = [5, 15, 25];
+  const four = new Float64Array(2 * 3 * 12 * 10);
+  for (let s = 0, k = 0; s < 2; s++) for (let d = 0; d < 3; d++) for (let i = 0; i < 12; i++) for (let j = 0; j < 10; j++) four[k++] = cell(s, d, i, j);
+  /** Largest |got - want| over the box of (time, depth, lat, lon) index ranges. */
+  const boxError = (got: number[], r: [number, number][]) => {
+    let m = 0;
+    let k = 0;
+    for (let s = r[0][0]; s < r[0][1]; s++) for (let d = r[1][0]; d < r[1][1]; d++) for (let i = r[2][0]; i < r[2][1]; i++) for (let j = r[3][0]; j < r[3][1]; j++) m = Math.max(m, Math.abs(got[k++] - cell(s, d, i, j)));
+    expect(k).toBe(got.length);
+    return m;
+  };
+  beforeAll(() => {
+    const cdl = `netcdf deep {
+dimensions:
+  time = UNLIMITED ;
+  depth = 3 ;
+  lat = 12 ;
+  lon = 10 ;
+variables:
+  double time(time) ;
+  float depth(depth) ;
+  float lat(lat) ;
+  float lon(lon) ;
+  double rain(time, depth, lat, lon) ;
+data:
+  time = 10, 20 ;
+  depth = ${DEPTH.join(', ')} ;
+  lat = ${LAT.slice(30, 42).join(', ')} ;
+  lon = ${LON.slice(60, 70).join(', ')} ;
+  rain = ${cdlValues(four)} ;
+}
+`;
+    ncgen(cdl, join(t.dir, 'deep.nc'));
+    for (const [out, how] of [['d-slices.rfz', ['--layout', 'slices']], ['d-matrix.rfz', ['--matrix', 'time,depth:space']]] as const) {
+      const r = rf(['pack', 'deep.nc', '-o', out, '--bound', `abs:${E}`, '--tile', '8', ...how], t.dir);
+      expect(r.code, r.stderr).toBe(0);
+    }
+  }, CLI_TIMEOUT);
+
+  it.each(['d-slices.rfz', 'd-matrix.rfz'])('%s: --slices A:B,C:D (a range per leading axis) with --region gives that box, the coordinate variables cut to match', (archive) => {
+    const r = rf(['unpack', archive, '--slices', '0:2,1:3', '--region', '2:7,3:9', '-o', `box-${archive}.nc`], t.dir);
+    expect(r.code, r.stderr).toBe(0);
+    // netcdfjs 4.0.0, an independent reader of the classic format.
+    const b = new NetCDFReader(readFileSync(join(t.dir, `box-${archive}.nc`)));
+    // netcdfjs gives the unlimited dimension size 0; the time variable counts its records.
+    expect(b.dimensions.map((d) => [d.name, d.size])).toEqual([['time', 0], ['depth', 2], ['lat', 5], ['lon', 6]]);
+    expect(b.getDataVariable('time')).toEqual([10, 20]);
+    expect(b.getDataVariable('depth')).toEqual([15, 25]);
+    expect(b.getDataVariable('lat')).toEqual(LAT.slice(32, 37));
+    expect(b.getDataVariable('lon')).toEqual(LON.slice(63, 69));
+    // abs:E bounds every value (the bound's definition).
+    expect(boxError((b.getDataVariable('rain') as number[][]).flat(), [[0, 2], [1, 3], [2, 7], [3, 9]])).toBeLessThanOrEqual(E);
+  });
+
+  it.each(['d-slices.rfz', 'd-matrix.rfz'])('%s: --slices A:B of the leading axes together is written when it is one box (time 1, all depths), refused with the remedy when not', (archive) => {
+    expect(rf(['unpack', archive, '--slices', '3:6', '-o', `t1-${archive}.nc`], t.dir).code).toBe(0);
+    const b = new NetCDFReader(readFileSync(join(t.dir, `t1-${archive}.nc`)));
+    expect(b.dimensions.map((d) => [d.name, d.size])).toEqual([['time', 0], ['depth', 3], ['lat', 12], ['lon', 10]]);
+    expect(b.getDataVariable('time')).toEqual([20]);
+    expect(boxError((b.getDataVariable('rain') as number[][]).flat(), [[1, 2], [0, 3], [0, 12], [0, 10]])).toBeLessThanOrEqual(E);
+    // Slices 2..4 are depth 2 of time 0 and depths 0, 1 of time 1: no box.
+    expectCliError(rf(['unpack', archive, '--slices', '2:5', '-o', 'x.nc'], t.dir), /slices 2\.\.4 are not one range of each.*give one range per leading axis \(--slices A:B,A:B\)/);
+    expectCliError(rf(['unpack', archive, '--slices', '0:1,0:1,0:1', '-o', 'x.nc'], t.dir), /--slices gives 3 ranges, but field 'rain' has 2 leading axes \(time, depth\)/);
+  });
+
+  it('--slices A:B,C:D to .npy gives the 4-D box', () => {
+    expect(rf(['unpack', 'd-slices.rfz', '--slices', '1:2,0:2', '-o', 'box4.npy'], t.dir).code).toBe(0);
+    const a = parseNpy(new Uint8Array(readFileSync(join(t.dir, 'box4.npy'))), 'box4.npy');
+    expect(a.shape).toEqual([1, 2, 12, 10]);
+    expect(boxError(Array.from(a.data), [[1, 2], [0, 2], [0, 12], [0, 10]])).toBeLessThanOrEqual(E);
+  });
+});

@@ -70,6 +70,55 @@ describe('band readers', () => {
     }
   });
 
+  it.each(['<f8', '>f4'] as const)('.npy %s of 3 and 4 axes in Fortran order: bands are the C-order rows (read whole and reordered)', (descr) => {
+    // The .npy format description (NumPy's NEP 1 and the numpy.lib.format docstring): with
+    // 'fortran_order': True the data is the array in column-major order, the FIRST axis varying
+    // fastest, so element (i0, i1, ..., ik) lies at i0 + d0 * (i1 + d1 * (i2 + ...)). The bytes are
+    // placed by that rule; each element's value encodes its own index, 1000 i0 + 100 i1 + 10 i2 + i3.
+    for (const shape of [[3, 4, 5], [2, 3, 4, 5]]) {
+      const n = shape.reduce((a, b) => a * b, 1);
+      const dict = `{'descr': '${descr}', 'fortran_order': True, 'shape': (${shape.join(', ')}), }`;
+      const hl = Math.ceil((10 + dict.length + 1) / 64) * 64 - 10;
+      const item = descr.endsWith('4') ? 4 : 8;
+      const bytes = new Uint8Array(10 + hl + n * item);
+      bytes.set([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0, hl & 0xff, hl >> 8]);
+      for (let i = 0; i < hl - 1; i++) bytes[10 + i] = i < dict.length ? dict.charCodeAt(i) : 0x20;
+      bytes[10 + hl - 1] = 0x0a;
+      const view = new DataView(bytes.buffer, 10 + hl);
+      const value = (idx: number[]) => idx.reduce((v, x, a) => v + x * 10 ** (3 - a - (4 - shape.length)), 0);
+      const idx = new Array<number>(shape.length).fill(0);
+      for (let e = 0; e < n; e++) {
+        let f = 0;
+        for (let a = shape.length - 1; a >= 0; a--) f = f * shape[a] + idx[a];
+        if (item === 4) view.setFloat32(f * 4, value(idx), descr.startsWith('<'));
+        else view.setFloat64(f * 8, value(idx), descr.startsWith('<'));
+        for (let a = shape.length - 1; a >= 0 && ++idx[a] === shape[a]; a--) idx[a] = 0;
+      }
+      const file = join(dir, `fortran-${shape.length}-${item}.npy`);
+      writeFileSync(file, bytes);
+      // The C-order values, index by index (last axis fastest).
+      const want: number[] = [];
+      idx.fill(0);
+      for (let e = 0; e < n; e++) {
+        want.push(value(idx));
+        for (let a = shape.length - 1; a >= 0 && ++idx[a] === shape[a]; a--) idx[a] = 0;
+      }
+      const r = openNpyBands(file);
+      try {
+        expect(r.ndShape).toEqual(shape);
+        const cols = shape[shape.length - 1];
+        expect(r.shape).toEqual([n / cols, cols]);
+        expect(r.bytesRead).toBe(bytes.length);
+        for (const [r0, count] of [[0, n / cols], [0, 1], [n / cols - 1, 1], [2, 5]]) {
+          expect(Array.from(r.band(r0, count)), `${shape.join('x')} rows ${r0}+${count}`).toEqual(want.slice(r0 * cols, (r0 + count) * cols));
+        }
+      } finally {
+        r.close();
+      }
+      expect(() => r.band(0, 1)).toThrow(InputError);
+    }
+  });
+
   it('reads only the header and the rows asked for (C order)', () => {
     const file = join(dir, 'count.npy');
     const bytes = formatNpy({ data: g.values, shape: [61, 87], dtype: 'f64' });

@@ -8,7 +8,7 @@
  * `h5repack` with GZIP and chunks) are checked against the values written.
  * Data: vega-datasets data/volcano.json (61 x 87 heights in metres).
  */
-import { execFileSync } from 'node:child_process';
+import { execFileSync, spawnSync } from 'node:child_process';
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -16,7 +16,7 @@ import { InputError } from '../../src/errors.js';
 import { netcdf4ToClassic, readHdf5AsClassic } from '../../src/io/hdf5-read.js';
 import { readNetcdfHeader, readNetcdfVariable } from '../../src/io/netcdf-read.js';
 import { cdlValues, haveNetcdfBin, NCCOPY, ncgen } from '../cdl.js';
-import { tempDir, volcano } from '../cli/helpers.js';
+import { ensureBuilt, tempDir, volcano } from '../cli/helpers.js';
 import { haveSystemTools } from '../system-tools.js';
 
 const NC = haveNetcdfBin('the NetCDF-4 reading tests');
@@ -24,6 +24,7 @@ const H5 = haveSystemTools('the HDF5 reading tests', 'hdf5-tools', ['/usr/bin/h5
 const g = volcano();
 let t: ReturnType<typeof tempDir>;
 beforeAll(() => {
+  ensureBuilt();
   t = tempDir('rankfield-h5-');
 });
 afterAll(() => t?.remove());
@@ -87,7 +88,9 @@ describe.skipIf(!NC)('NetCDF-4 made by ncgen and nccopy', { timeout: 30_000 }, (
     }
   });
 
-  it('reads groups, naming their variables GROUP.NAME', async () => {
+  it('reads nested groups, naming variables and dimensions by their path (GROUP/NAME), dimensions found in the group that defines them', async () => {
+    // netCDF-4 CDL allows "group:" blocks, and a group's variables may use the dimensions of the
+    // groups around it (NetCDF Users Guide, "Groups" and "CDL Syntax"; from memory).
     const cdl = `netcdf grouped {
 dimensions:
   y = 2 ;
@@ -97,17 +100,35 @@ variables:
 data:
   top = 1, 2, 3, 4, 5, 6 ;
 group: ocean {
+  dimensions:
+    z = 2 ;
   variables:
     double depth(y, x) ;
       depth:units = "m" ;
+    float z(z) ;
   data:
     depth = 10, 20, 30, 40, 50, 60 ;
+    z = 5, 15 ;
+  group: deep {
+    variables:
+      float temp(z, x) ;
+    data:
+      temp = 1.5, 2.5, 3.5, 4.5, 5.5, 6.5 ;
+  }
   }
 }
 `;
     const f = await readHdf5AsClassic(ncgen(cdl, join(t.dir, 'grouped.nc'), 'nc4'));
-    const depth = f.variables.find((v) => v.name === 'ocean.depth')!;
+    expect(f.groupPaths).toBe(true);
+    expect(f.variables.map((v) => v.name).sort()).toEqual(['ocean/deep/temp', 'ocean/depth', 'ocean/z', 'top']);
+    expect(f.dims.map((d) => `${d.name}=${d.size}`).sort()).toEqual(['ocean/z=2', 'x=3', 'y=2']);
+    const depth = f.variables.find((v) => v.name === 'ocean/depth')!;
     expect([depth.dims, depth.attrs, Array.from(depth.values as Float64Array)]).toEqual([['y', 'x'], { units: 'm' }, [10, 20, 30, 40, 50, 60]]);
+    const temp = f.variables.find((v) => v.name === 'ocean/deep/temp')!;
+    expect([temp.dims, Array.from(temp.values as Float32Array)]).toEqual([['ocean/z', 'x'], [1.5, 2.5, 3.5, 4.5, 5.5, 6.5]]);
+    // The in-memory classic bytes keep the paths, and the classic reader reads them back.
+    const back = readNetcdfHeader(await netcdf4ToClassic(join(t.dir, 'grouped.nc')), 'grouped.nc');
+    expect(back.variables.map((v) => v.name).sort()).toEqual(['ocean/deep/temp', 'ocean/depth', 'ocean/z', 'top']);
   });
 
   it('refuses a string variable with one InputError naming it', async () => {
@@ -130,7 +151,7 @@ describe.skipIf(!H5)('plain HDF5 made by hdf5-tools', { timeout: 30_000 }, () =>
     execFileSync('/usr/bin/h5import', [txt, '-c', cfg, '-o', plain]);
     execFileSync('/usr/bin/h5repack', ['-f', 'GZIP=5', '-l', 'CHUNK=16x16', plain, zipped]);
     const f = await readHdf5AsClassic(zipped);
-    expect(f.variables.map((v) => [v.name, v.dims, v.type])).toEqual([['grid.height', ['grid.height_dim0', 'grid.height_dim1'], 'double']]);
+    expect(f.variables.map((v) => [v.name, v.dims, v.type])).toEqual([['grid/height', ['grid/height_dim0', 'grid/height_dim1'], 'double']]);
     expect(Array.from(f.variables[0].values as Float64Array)).toEqual(Array.from(g.values));
   });
 });
@@ -140,5 +161,25 @@ describe('not HDF5', () => {
     const junk = join(t.dir, 'junk.h5');
     writeFileSync(junk, 'not an hdf5 file at all');
     await expect(readHdf5AsClassic(junk)).rejects.toThrow(/junk\.h5: not a readable HDF5 file/);
+  });
+});
+
+describe('HDF5 error reports', () => {
+  // h5wasm's throwing error handler (its CHANGELOG, v0.7.2): the HDF5 library's error stack becomes the
+  // thrown Error's message instead of text on stderr. A child process shows that nothing reaches stderr.
+  it('a failing HDF5 read or write is one InputError naming the HDF5 call, with nothing printed on stderr', () => {
+    const junk = join(t.dir, 'junk2.h5');
+    writeFileSync(junk, 'not an hdf5 file at all');
+    const script = `
+      const { readHdf5AsClassic } = await import(${JSON.stringify(new URL('../../dist/io/hdf5-read.js', import.meta.url).href)});
+      const { writeNetcdf4 } = await import(${JSON.stringify(new URL('../../dist/io/hdf5-write.js', import.meta.url).href)});
+      for (const f of [() => readHdf5AsClassic(${JSON.stringify(junk)}), () => writeNetcdf4(${JSON.stringify(join(t.dir, 'no-such-dir', 'x.nc'))}, { dims: [], globalAttrs: {}, variables: [] })]) {
+        try { await f(); console.log('no error'); } catch (e) { console.log(e.constructor.name + ' ' + e.message); }
+      }`;
+    const r = spawnSync(process.execPath, ['--input-type=module', '-e', script], { encoding: 'utf8' });
+    expect(r.stderr).toBe('');
+    const lines = r.stdout.trim().split('\n');
+    expect(lines[0]).toMatch(/^InputError .*junk2\.h5: not a readable HDF5 file \(H5Fopen\(\): /);
+    expect(lines[1]).toMatch(/^InputError .*x\.nc: the HDF5 library could not write it \(H5Fcreate\(\): /);
   });
 });
