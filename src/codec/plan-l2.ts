@@ -101,7 +101,7 @@ export class Spectra {
   private readonly offset: Int32Array;
   readonly length: Int32Array;
   private readonly chunks: Float64Array[] = [];
-  private used = SPECTRA_CHUNK;
+  private used = 0;
   /** Tiles added so far. */
   count = 0;
 
@@ -121,7 +121,7 @@ export class Spectra {
     if (t >= this.tiles) throw new Error(`more than the ${this.tiles} tiles of the field were planned`);
     const k = f.sv2.length;
     // A spectrum never straddles two chunks (tile sides are at most 4096, well below a chunk).
-    if (this.used + k > SPECTRA_CHUNK) {
+    if (this.chunks.length === 0 || this.used + k > SPECTRA_CHUNK) {
       this.chunks.push(new Float64Array(Math.max(SPECTRA_CHUNK, k)));
       this.used = 0;
     }
