@@ -18,9 +18,9 @@
  *     nice node bench/dist/bench/pack-large.js [--size MIB] [--modes abs,rel,rmse,psnr] [--tile 64] [--threads N] [--dir DIR] [--keep]
  *
  * --size is the field's size in MiB (a power of 4: 64, 256, 1024; default
- * 1024). A run at the default size with every mode writes bench/MEMORY.md
- * and the README's memory block; other runs print the table only (or write
- * it to --report FILE). The peak is read by /usr/bin/time -v where it exists
+ * 1024). A run of every mode writes bench/MEMORY.md (or --report FILE) and
+ * the README's memory block, which state the size; a run of fewer modes
+ * prints the table only (or writes it to --report FILE). The peak is read by /usr/bin/time -v where it exists
  * (its "Maximum resident set size"), else from the child's own
  * process.resourceUsage().maxRSS. Not a test: at 1 GiB it takes most of an
  * hour on two busy cores.
@@ -224,7 +224,8 @@ async function run(): Promise<void> {
       '',
     ].join('\n');
     console.log('\n' + md);
-    const full = size === 1024 && modes.length === 4 && tile === '64';
+    // A run of every mode writes bench/MEMORY.md and the README's memory block (stating the size), so README figures always come from a run.
+    const full = modes.length === 4;
     const report = arg('report', full ? join(ROOT, 'bench', 'MEMORY.md') : '');
     if (report) {
       writeFileSync(report, md);
@@ -238,7 +239,7 @@ async function run(): Promise<void> {
       if (a >= 0 && e > a) {
         const worst = rows.reduce((x, r) => Math.max(x, r.maxRss), 0);
         const line = rows.map((r) => `${r.run} ${mb(r.maxRss)} MB`).join(', ');
-        const block = `From \`node bench/dist/bench/pack-large.js\` on ${started.toISOString().slice(0, 10)} ([bench/MEMORY.md](bench/MEMORY.md)), a ${side} x ${side} float32 field (1 GiB), tiles ${tile} x ${tile}, peak resident memory of the whole process, worker threads included: ${line}; the largest ${mb(worst)} MB.`;
+        const block = `Peak resident memory of the whole process (worker threads included) on a ${side} x ${side} float32 field (${(inBytes / 2 ** 30).toFixed(2)} GiB), tiles ${tile} x ${tile}, from \`node bench/dist/bench/pack-large.js${process.argv.slice(2).length ? ' ' + process.argv.slice(2).join(' ') : ''}\` on ${started.toISOString().slice(0, 10)} ([bench/MEMORY.md](bench/MEMORY.md)): ${line}; the largest ${mb(worst)} MB (target: below 300 MB).`;
         writeFileSync(readme, text.slice(0, a + BEGIN.length) + '\n' + block + '\n' + text.slice(e));
         console.log(`updated the memory block of ${readme}`);
       }

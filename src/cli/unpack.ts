@@ -61,8 +61,15 @@ a window of one field, its dimensions and coordinate variables cut to match.
 dimension names match in any case. --slices and --region count the axes of
 the variable (slices over the leading ones, rows and columns the last two)
 whatever its layout; OUT ending in / (an existing folder)
-gets one NAME.npy per field; .csv writes a small window as text (at most
-10^6 values without --force). --slices A:B picks slices of an N-D field.
+gets one NAME.npy per field; .csv writes a window as text (at most 10^6
+values without --force). --slices A:B picks slices of an N-D field.
+
+.npy, raw, CSV and folder outputs are decoded and written a band of tile
+rows at a time, in bounded memory whatever the field's size; an output of
+more than 64 MiB is announced with its size first, and one larger than the
+free space of its file system is refused before anything is written.
+NetCDF output and windows chosen by --where (or of a field stored as a
+matrix) are made in memory, and refused beyond 512 MiB of values.
 
 OUT ending in .npy gets a .npy file (little-endian, C order); any other name
 gets headerless raw binary in C (row-major) order, little-endian unless
