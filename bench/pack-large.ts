@@ -202,7 +202,8 @@ async function run(): Promise<void> {
     rmSync(back, { force: true });
     const bomb = join(dir, `bomb-${side}.rfz`);
     rmSync(bomb, { force: true });
-    writeBomb(bomb, side, Number(tile) || 64);
+    // Tiles of 1024 x 1024, the largest readers accept by default: the fewest bytes for the most values.
+    writeBomb(bomb, side, 1024);
     const bombBack = join(dir, `bomb-${side}.npy`);
     const ba = ['unpack', bomb, '-o', bombBack, '--force', ...extra];
     const b = await cli(ba, dir);

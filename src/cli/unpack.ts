@@ -110,6 +110,8 @@ export const CSV_LIMIT = 1_000_000;
 export class CsvWriter {
   private lines: string[] = [];
   private chars = 0;
+  /** Values of a 2-D row not yet complete. */
+  private row: string[] = [];
   private readonly encoder = new TextEncoder();
   /** The next value's indexes (more than 2 axes), else null. */
   private readonly idx: number[] | null;
@@ -135,12 +137,23 @@ export class CsvWriter {
     this.chars = 0;
   }
 
-  /** The next values in C order: whole rows (of the last axis). */
+  /** The next values in C order (whole rows, or a row in pieces). */
   write(values: Float32Array | Float64Array): void {
     const idx = this.idx;
     if (idx === null) {
       const c = this.shape[1];
-      for (let i = 0; i < values.length; i += c) this.line(Array.from(values.subarray(i, i + c), (x) => String(x)).join(','));
+      let i = 0;
+      // A row begun by earlier values is finished first; then whole rows; then the start of the next.
+      if (this.row.length > 0) {
+        const k = Math.min(values.length, c - this.row.length);
+        for (; i < k; i++) this.row.push(String(values[i]));
+        if (this.row.length === c) {
+          this.line(this.row.join(','));
+          this.row = [];
+        }
+      }
+      for (; i + c <= values.length; i += c) this.line(Array.from(values.subarray(i, i + c), (x) => String(x)).join(','));
+      for (; i < values.length; i++) this.row.push(String(values[i]));
       return;
     }
     const shape = this.shape;

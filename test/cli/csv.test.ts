@@ -27,7 +27,7 @@ describe('formatCsv', () => {
     expect(new TextDecoder().decode(formatCsv(Float32Array.of(7), [1, 1, 1], ['a,b', 'say "x"', 'c'])).split('\n')[0]).toBe('"a,b","say ""x""",c,value');
   });
 
-  it('is the same text when the values come a few rows at a time (CsvWriter, as unpack streams bands)', () => {
+  it('is the same text when the values come a few rows or a piece of a row at a time (CsvWriter, as unpack streams bands)', () => {
     for (const shape of [
       [37, 29],
       [3, 11, 7],
@@ -39,8 +39,10 @@ describe('formatCsv', () => {
       const chunks: Uint8Array[] = [];
       const w = new CsvWriter(shape, dims, (b) => chunks.push(b));
       const row = shape[shape.length - 1];
-      // Bands of 1, 2, 3, ... whole rows.
-      for (let at = 0, rows = 1; at < n; at += rows * row, rows++) w.write(v.subarray(at, Math.min(n, at + rows * row)));
+      // Bands of 1, 2, 3, ... whole rows, then pieces of rows of 1, 2, 3, ... values.
+      let at = 0;
+      for (let rows = 1; at < n / 2; at += rows * row, rows++) w.write(v.subarray(at, Math.min(n, at + rows * row)));
+      for (let k = 1; at < n; at += k, k++) w.write(v.subarray(at, Math.min(n, at + k)));
       w.end();
       expect(Buffer.concat(chunks).toString('utf8'), shape.join('x')).toBe(new TextDecoder().decode(formatCsv(v, shape, dims)));
     }
