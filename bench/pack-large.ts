@@ -18,9 +18,9 @@
  *     nice node bench/dist/bench/pack-large.js [--size MIB] [--modes abs,rel,rmse,psnr] [--tile 64] [--threads N] [--dir DIR] [--keep]
  *
  * --size is the field's size in MiB (a power of 4: 64, 256, 1024; default
- * 1024). A run of every mode writes bench/MEMORY.md (or --report FILE) and
- * the README's memory block, which state the size; a run of fewer modes
- * prints the table only (or writes it to --report FILE). The peak is read by /usr/bin/time -v where it exists
+ * 1024). Every run writes its table to bench/MEMORY-<SIZE>MiB.md (or
+ * --report FILE) and into the README's block for its size
+ * (<!-- memory <SIZE> MiB:begin ... -->), when README has one. The peak is read by /usr/bin/time -v where it exists
  * (its "Maximum resident set size"), else from the child's own
  * process.resourceUsage().maxRSS. Not a test: at 1 GiB it takes most of an
  * hour on two busy cores.
@@ -28,7 +28,7 @@
 import { spawn } from 'node:child_process';
 import { existsSync, mkdtempSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { loadavg, tmpdir } from 'node:os';
-import { dirname, join, resolve } from 'node:path';
+import { basename, dirname, join, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { ArchiveBuilder } from '../src/index.js';
 import { NpyBandWriter } from '../src/io/bands.js';
@@ -42,8 +42,6 @@ const TIME = '/usr/bin/time';
 const BAND_ROWS = 256;
 /** The target of issues 11 and 15, in bytes. */
 const TARGET = 300e6;
-const BEGIN = '<!-- memory:begin (written by bench/pack-large.ts) -->';
-const END = '<!-- memory:end -->';
 
 /** The bound each mode is measured at (the field spans about -2 .. 3). */
 const BOUNDS: Record<string, string> = { abs: 'abs:0.01', rel: 'rel:1e-3', rmse: 'rmse:0.005', psnr: 'psnr:60' };
@@ -225,25 +223,22 @@ async function run(): Promise<void> {
       '',
     ].join('\n');
     console.log('\n' + md);
-    // A run of every mode writes bench/MEMORY.md and the README's memory block (stating the size), so README figures always come from a run.
-    const full = modes.length === 4;
-    const report = arg('report', full ? join(ROOT, 'bench', 'MEMORY.md') : '');
-    if (report) {
-      writeFileSync(report, md);
-      console.log(`wrote ${report}`);
-    }
-    if (full) {
-      const readme = join(ROOT, 'README.md');
-      const text = readFileSync(readme, 'utf8');
-      const a = text.indexOf(BEGIN);
-      const e = text.indexOf(END);
-      if (a >= 0 && e > a) {
-        const worst = rows.reduce((x, r) => Math.max(x, r.maxRss), 0);
-        const line = rows.map((r) => `${r.run} ${mb(r.maxRss)} MB`).join(', ');
-        const block = `Peak resident memory of the whole process (worker threads included) on a ${side} x ${side} float32 field (${(inBytes / 2 ** 30).toFixed(2)} GiB), tiles ${tile} x ${tile}, from \`node bench/dist/bench/pack-large.js${process.argv.slice(2).length ? ' ' + process.argv.slice(2).join(' ') : ''}\` on ${started.toISOString().slice(0, 10)} ([bench/MEMORY.md](bench/MEMORY.md)): ${line}; the largest ${mb(worst)} MB (target: below 300 MB).`;
-        writeFileSync(readme, text.slice(0, a + BEGIN.length) + '\n' + block + '\n' + text.slice(e));
-        console.log(`updated the memory block of ${readme}`);
-      }
+    // Every run writes its table to bench/MEMORY-<size>MiB.md (or --report FILE) and into the README's block for its size, when README has one, so README figures always come from a run.
+    const report = arg('report', join(ROOT, 'bench', `MEMORY-${size}MiB.md`));
+    writeFileSync(report, md);
+    console.log(`wrote ${report}`);
+    const readme = join(ROOT, 'README.md');
+    const text = readFileSync(readme, 'utf8');
+    const begin = `<!-- memory ${size} MiB:begin (written by bench/pack-large.ts) -->`;
+    const end = `<!-- memory ${size} MiB:end -->`;
+    const a = text.indexOf(begin);
+    const e = text.indexOf(end);
+    if (a >= 0 && e > a) {
+      const worst = rows.reduce((x, r) => Math.max(x, r.maxRss), 0);
+      const line = rows.map((r) => `${r.run} ${mb(r.maxRss)} MB`).join(', ');
+      const block = `${side} x ${side} float32 (${size} MiB), tiles ${tile} x ${tile}, from \`node bench/dist/bench/pack-large.js${process.argv.slice(2).length ? ' ' + process.argv.slice(2).join(' ') : ''}\` on ${started.toISOString().slice(0, 10)} ([bench/${basename(report)}](bench/${basename(report)})): ${line}; the largest ${mb(worst)} MB.`;
+      writeFileSync(readme, text.slice(0, a + begin.length) + '\n' + block + '\n' + text.slice(e));
+      console.log(`updated the ${size} MiB memory block of ${readme}`);
     }
   } finally {
     if (own && !keep) rmSync(dir, { recursive: true, force: true });
