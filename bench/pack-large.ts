@@ -15,12 +15,14 @@
  * writes the same bytes.
  *
  *   npx tsc -p . && npx tsc -p tsconfig.bench.json && \
- *     nice node bench/dist/bench/pack-large.js [--size MIB] [--modes abs,rel,rmse,psnr] [--tile 64] [--threads N] [--dir DIR] [--keep]
+ *     nice node bench/dist/bench/pack-large.js [--size MIB] [--modes abs,rel,rmse,psnr] [--tile 64] [--threads N] [--dir DIR] [--keep] [--no-unpack]
  *
  * --size is the field's size in MiB (a power of 4: 64, 256, 1024; default
- * 1024). Every run writes its table to bench/MEMORY-<SIZE>MiB.md (or
- * --report FILE) and into the README's block for its size
- * (<!-- memory <SIZE> MiB:begin ... -->), when README has one. The peak is read by /usr/bin/time -v where it exists
+ * 1024). Every run writes its rows into bench/MEMORY-<SIZE>MiB.md (or
+ * --report FILE), keeping earlier runs' rows for what it did not measure,
+ * and the merged table into the README's block for its size
+ * (<!-- memory <SIZE> MiB:begin ... -->), when README has one.
+ * --no-unpack measures the packs only. The peak is read by /usr/bin/time -v where it exists
  * (its "Maximum resident set size"), else from the child's own
  * process.resourceUsage().maxRSS. Not a test: at 1 GiB it takes most of an
  * hour on two busy cores.
@@ -117,7 +119,7 @@ function cli(args: string[], dir: string): Promise<ChildRun> {
     process.stderr.write('@@maxrss ' + process.resourceUsage().maxRSS * 1024 + '\\n');
     process.exitCode = code;`;
   // A script file rather than --eval: worker threads inherit the process's Node options, and --input-type would stop them.
-  const file = join(dir, 'child.mjs');
+  const file = join(dir, `child-${process.pid}.mjs`);
   writeFileSync(file, script);
   const node = [process.execPath, file];
   const timed = existsSync(TIME);
@@ -143,6 +145,8 @@ function cli(args: string[], dir: string): Promise<ChildRun> {
 }
 
 interface Row {
+  /** When the run ended (UTC, to the minute). */
+  date: string;
   run: string;
   command: string;
   bytesIn: number;
@@ -153,10 +157,27 @@ interface Row {
 }
 
 const mb = (b: number) => (b / 1e6).toFixed(1);
+const HEAD = '| run | command | ended (UTC) | input bytes | output bytes | time (s) | peak RSS (MB) | below 300 MB |';
+const rowLine = (r: Row) =>
+  `| ${r.run} | \`${r.command}\` | ${r.date} | ${r.bytesIn} | ${r.bytesOut} | ${r.seconds.toFixed(1)} | ${mb(r.maxRss)} | ${r.maxRss < TARGET ? 'yes' : '**no**'}${r.note ? ` (${r.note})` : ''} |`;
+const now = () => new Date().toISOString().slice(0, 16).replace('T', ' ');
+
+/** The rows of an earlier table of the same size (kept where this run did not measure the same thing), as lines. */
+function earlierRows(file: string, runs: Set<string>): string[] {
+  if (!existsSync(file)) return [];
+  return (
+    readFileSync(file, 'utf8')
+      .split('\n')
+      .filter((l) => /^\| (pack|unpack) /.test(l) && !runs.has(l.slice(2, l.indexOf(' | '))))
+      // Rows of the first version of the table had no date column.
+      .map((l) => (l.split(' | ').length === 7 ? l.replace(/^(\| [^|]+ \| `[^`]+`) \| /, '$1 | (not recorded) | ') : l))
+      .filter((l) => l.split(' | ').length === 8)
+  );
+}
 
 function table(rows: Row[]): string {
-  const lines = ['| run | command | input bytes | output bytes | time (s) | peak RSS (MB) | below 300 MB |', '|---|---|--:|--:|--:|--:|---|'];
-  for (const r of rows) lines.push(`| ${r.run} | \`${r.command}\` | ${r.bytesIn} | ${r.bytesOut} | ${r.seconds.toFixed(1)} | ${mb(r.maxRss)} | ${r.maxRss < TARGET ? 'yes' : '**no**'}${r.note ? ` (${r.note})` : ''} |`);
+  const lines = [HEAD, '|---|---|---|--:|--:|--:|--:|---|'];
+  for (const r of rows) lines.push(rowLine(r));
   return lines.join('\n');
 }
 
@@ -187,44 +208,51 @@ async function run(): Promise<void> {
       const r = await cli(args, dir);
       if (r.code !== 0) throw new Error(`pack ${BOUNDS[mode]} failed (exit ${r.code}): ${r.stderr.trim()}`);
       archives.set(mode, out);
-      rows.push({ run: `pack ${BOUNDS[mode]}`, command: `rankfield ${args.slice(0, -2).join(' ').replaceAll(dir + '/', '')}`, bytesIn: inBytes, bytesOut: statSync(out).size, seconds: r.seconds, maxRss: r.maxRss, note: '' });
+      rows.push({ date: now(), run: `pack ${BOUNDS[mode]}`, command: `rankfield ${args.slice(0, -2).join(' ').replaceAll(dir + '/', '')}`, bytesIn: inBytes, bytesOut: statSync(out).size, seconds: r.seconds, maxRss: r.maxRss, note: '' });
       console.log(table(rows.slice(-1)).split('\n')[2]);
     }
-    const first = archives.get(modes[0])!;
-    const back = join(dir, `field-${side}-back.npy`);
-    const ua = ['unpack', first, '-o', back, '--force', '--quiet', ...extra];
-    const u = await cli(ua, dir);
-    if (u.code !== 0) throw new Error(`unpack failed (exit ${u.code}): ${u.stderr.trim()}`);
-    rows.push({ run: 'unpack to .npy', command: `rankfield ${ua.join(' ').replaceAll(dir + '/', '')}`, bytesIn: statSync(first).size, bytesOut: statSync(back).size, seconds: u.seconds, maxRss: u.maxRss, note: '' });
-    console.log(table(rows.slice(-1)).split('\n')[2]);
-    rmSync(back, { force: true });
-    const bomb = join(dir, `bomb-${side}.rfz`);
-    rmSync(bomb, { force: true });
-    // Tiles of 1024 x 1024, the largest readers accept by default: the fewest bytes for the most values.
-    writeBomb(bomb, side, 1024);
-    const bombBack = join(dir, `bomb-${side}.npy`);
-    const ba = ['unpack', bomb, '-o', bombBack, '--force', ...extra];
-    const b = await cli(ba, dir);
-    if (b.code !== 0) throw new Error(`unpack of the bomb failed (exit ${b.code}): ${b.stderr.trim()}`);
-    const said = /note: (writing [^\n]*)/.exec(b.stderr);
-    rows.push({ run: 'unpack of a constant field', command: `rankfield ${ba.join(' ').replaceAll(dir + '/', '')}`, bytesIn: statSync(bomb).size, bytesOut: statSync(bombBack).size, seconds: b.seconds, maxRss: b.maxRss, note: said ? `said before writing: "${said[1]}"` : 'no size note' });
-    console.log(table(rows.slice(-1)).split('\n')[2]);
-    rmSync(bombBack, { force: true });
-
-    const by = u.by;
+    let by = '';
+    if (!process.argv.includes('--no-unpack')) {
+      const first = archives.get(modes[0])!;
+      const back = join(dir, `field-${side}-back.npy`);
+      const ua = ['unpack', first, '-o', back, '--force', '--quiet', ...extra];
+      const u = await cli(ua, dir);
+      if (u.code !== 0) throw new Error(`unpack failed (exit ${u.code}): ${u.stderr.trim()}`);
+      rows.push({ date: now(), run: 'unpack to .npy', command: `rankfield ${ua.join(' ').replaceAll(dir + '/', '')}`, bytesIn: statSync(first).size, bytesOut: statSync(back).size, seconds: u.seconds, maxRss: u.maxRss, note: '' });
+      console.log(table(rows.slice(-1)).split('\n')[2]);
+      rmSync(back, { force: true });
+      const bomb = join(dir, `bomb-${side}.rfz`);
+      rmSync(bomb, { force: true });
+      // Tiles of 1024 x 1024, the largest readers accept by default: the fewest bytes for the most values.
+      writeBomb(bomb, side, 1024);
+      const bombBack = join(dir, `bomb-${side}.npy`);
+      const ba = ['unpack', bomb, '-o', bombBack, '--force', ...extra];
+      const b = await cli(ba, dir);
+      if (b.code !== 0) throw new Error(`unpack of the bomb failed (exit ${b.code}): ${b.stderr.trim()}`);
+      const said = /note: (writing [^\n]*)/.exec(b.stderr);
+      rows.push({ date: now(), run: 'unpack of a constant field', command: `rankfield ${ba.join(' ').replaceAll(dir + '/', '')}`, bytesIn: statSync(bomb).size, bytesOut: statSync(bombBack).size, seconds: b.seconds, maxRss: b.maxRss, note: said ? `said before writing: "${said[1]}"` : 'no size note' });
+      console.log(table(rows.slice(-1)).split('\n')[2]);
+      rmSync(bombBack, { force: true });
+      by = u.by;
+    }
+    // Every run writes its rows into bench/MEMORY-<size>MiB.md (or --report FILE), keeping the rows of earlier runs of the same size for what it did not measure, and the merged table into the README's block for its size, when README has one: README figures always come from runs.
+    const report = arg('report', join(ROOT, 'bench', `MEMORY-${size}MiB.md`));
+    const order = ['pack abs', 'pack rel', 'pack rmse', 'pack psnr', 'unpack to', 'unpack of'];
+    const rank = (l: string) => order.findIndex((o) => l.startsWith(`| ${o}`));
+    const merged = [...earlierRows(report, new Set(rows.map((r) => r.run))), ...rows.map(rowLine)].sort((x, y) => rank(x) - rank(y));
     const md = [
       `# Peak memory of pack and unpack on a large field`,
       '',
-      `From \`node bench/dist/bench/pack-large.js${process.argv.slice(2).length ? ' ' + process.argv.slice(2).join(' ') : ''}\` on ${started.toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC')}, Node ${process.version}, load average at end ${loadavg().map((x) => x.toFixed(2)).join(' ')}.`,
+      `Rows from runs of \`node bench/dist/bench/pack-large.js\` (each row gives its command and when it ended); last written by \`node bench/dist/bench/pack-large.js${process.argv.slice(2).length ? ' ' + process.argv.slice(2).join(' ') : ''}\`, started ${started.toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC')}, Node ${process.version}, load average at its end ${loadavg().map((x) => x.toFixed(2)).join(' ')} (2 cores shared with other work: times are not comparable between rows).`,
       '',
-      `Field: ${side} x ${side} float32 (${(inBytes / 2 ** 30).toFixed(3)} GiB as .npy), invented for the measurement (bench/pack-large.ts: smooth waves, bumps and a front, plus seeded noise of amplitude 1e-3). Tiles ${tile} x ${tile}; threads ${threads || 'default (the core count)'}. Each run is a child process; peak RSS is its maximum resident set size (${by === 'time -v' ? '`/usr/bin/time -v`' : 'process.resourceUsage().maxRSS'}), worker threads included. The last row unpacks a valid archive of a constant ${side} x ${side} field, a few KB that decode to ${side * side * 4} bytes of values. MB = 10^6 bytes.`,
+      `Field: ${side} x ${side} float32 (${(inBytes / 2 ** 30).toFixed(3)} GiB as .npy), invented for the measurement (bench/pack-large.ts: smooth waves, bumps and a front, plus seeded noise of amplitude 1e-3). Tiles ${tile} x ${tile}; threads ${threads || 'default (the core count)'}. Each run is a child process; peak RSS is its maximum resident set size (${by === 'resourceUsage' ? 'process.resourceUsage().maxRSS' : '`/usr/bin/time -v`'}), worker threads included. "unpack of a constant field" unpacks a valid archive of a constant ${side} x ${side} field in 1024 x 1024 tiles, a few KB that decode to ${side * side * 4} bytes of values. MB = 10^6 bytes.`,
       '',
-      table(rows),
+      HEAD,
+      '|---|---|---|--:|--:|--:|--:|---|',
+      ...merged,
       '',
     ].join('\n');
     console.log('\n' + md);
-    // Every run writes its table to bench/MEMORY-<size>MiB.md (or --report FILE) and into the README's block for its size, when README has one, so README figures always come from a run.
-    const report = arg('report', join(ROOT, 'bench', `MEMORY-${size}MiB.md`));
     writeFileSync(report, md);
     console.log(`wrote ${report}`);
     const readme = join(ROOT, 'README.md');
@@ -234,9 +262,10 @@ async function run(): Promise<void> {
     const a = text.indexOf(begin);
     const e = text.indexOf(end);
     if (a >= 0 && e > a) {
-      const worst = rows.reduce((x, r) => Math.max(x, r.maxRss), 0);
-      const line = rows.map((r) => `${r.run} ${mb(r.maxRss)} MB`).join(', ');
-      const block = `${side} x ${side} float32 (${size} MiB), tiles ${tile} x ${tile}, from \`node bench/dist/bench/pack-large.js${process.argv.slice(2).length ? ' ' + process.argv.slice(2).join(' ') : ''}\` on ${started.toISOString().slice(0, 10)} ([bench/${basename(report)}](bench/${basename(report)})): ${line}; the largest ${mb(worst)} MB.`;
+      const cells = merged.map((l) => l.split(' | '));
+      const worst = cells.reduce((x, c) => Math.max(x, Number(c[6])), 0);
+      const line = cells.map((c) => `${c[0].slice(2)} ${c[6]} MB`).join(', ');
+      const block = `${side} x ${side} float32 (${size} MiB), tiles ${tile} x ${tile}, peak resident memory of the whole process, worker threads included ([bench/${basename(report)}](bench/${basename(report)}), written by \`bench/pack-large.ts --size ${size}\`): ${line}; the largest ${worst.toFixed(1)} MB.`;
       writeFileSync(readme, text.slice(0, a + begin.length) + '\n' + block + '\n' + text.slice(e));
       console.log(`updated the ${size} MiB memory block of ${readme}`);
     }
