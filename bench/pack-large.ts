@@ -1,111 +1,277 @@
 /**
- * Packing a field larger than comfortable memory, through the command line:
- * writes a SIDE x SIDE float32 .npy band by band (default 16384 x 16384,
- * 1 GiB), then runs `rankfield pack` on it in a child process and reports
- * the child's peak resident set size (target: under 300 MB), the time and
- * the sizes. The field is the vega-datasets annual-precip grid
- * (data/annual-precip.json, 360 x 168) mirror-tiled to SIDE x SIDE.
+ * Peak memory of the command line on a large field: writes a SIDE x SIDE
+ * float32 .npy band by band (default 16384 x 16384, 1 GiB), then runs, each
+ * in a child process of its own, `rankfield pack` at an abs, a rel, an rmse
+ * and a psnr bound, `rankfield unpack` of the abs archive to .npy, and
+ * `rankfield unpack` to .npy of a decompression bomb (a few-KB archive of a
+ * constant SIDE x SIDE field, written here through the library); and reports
+ * each child's peak resident set size, which covers its worker threads too
+ * (they share the process). Target (issues 11 and 15): every figure below
+ * 300 MB.
+ *
+ * The field is invented for this measurement: a smooth analytic surface
+ * (a few separable waves and bumps, and a front that bends across it) plus
+ * uniform noise of amplitude 1e-3 from a seeded xorshift32, so every run
+ * writes the same bytes.
  *
  *   npx tsc -p . && npx tsc -p tsconfig.bench.json && \
- *     nice node bench/dist/bench/pack-large.js [--side 16384] [--bound rel:1e-3] [--tile 64] [--dir DIR]
+ *     nice node bench/dist/bench/pack-large.js [--size MIB] [--modes abs,rel,rmse,psnr] [--tile 64] [--threads N] [--dir DIR] [--keep] [--no-unpack]
  *
- * Not a test: it takes minutes (the encoder runs over 2^28 values).
+ * --size is the field's size in MiB (a power of 4: 64, 256, 1024; default
+ * 1024). Every run writes its rows into bench/MEMORY-<SIZE>MiB.md (or
+ * --report FILE), keeping earlier runs' rows for what it did not measure,
+ * and the merged table into the README's block for its size
+ * (<!-- memory <SIZE> MiB:begin ... -->), when README has one.
+ * --no-unpack measures the packs only. The peak is read by /usr/bin/time -v where it exists
+ * (its "Maximum resident set size"), else from the child's own
+ * process.resourceUsage().maxRSS. Not a test: at 1 GiB it takes most of an
+ * hour on two busy cores.
  */
 import { spawn } from 'node:child_process';
-import { mkdtempSync, readFileSync, rmSync, statSync } from 'node:fs';
-import { tmpdir } from 'node:os';
-import { dirname, join, resolve } from 'node:path';
+import { existsSync, mkdtempSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { loadavg, tmpdir } from 'node:os';
+import { basename, dirname, join, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
+import { ArchiveBuilder } from '../src/index.js';
 import { NpyBandWriter } from '../src/io/bands.js';
+import { FileSink } from '../src/io/file-sink.js';
+import { xorshift32 } from './rng.js';
 
 /** Repository root: this file runs from bench/dist/bench/. */
 const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '..', '..', '..');
+const TIME = '/usr/bin/time';
+/** Rows written per band by the generator. */
+const BAND_ROWS = 256;
+/** The target of issues 11 and 15, in bytes. */
+const TARGET = 300e6;
+
+/** The bound each mode is measured at (the field spans about -2 .. 3). */
+const BOUNDS: Record<string, string> = { abs: 'abs:0.01', rel: 'rel:1e-3', rmse: 'rmse:0.005', psnr: 'psnr:60' };
 
 function arg(name: string, fallback: string): string {
   const i = process.argv.indexOf(`--${name}`);
   return i >= 0 && i + 1 < process.argv.length ? process.argv[i + 1] : fallback;
 }
 
-interface Grid {
-  values: Float64Array;
-  width: number;
-  height: number;
-}
-
-function precip(): Grid {
-  const raw = JSON.parse(readFileSync(join(ROOT, 'node_modules', 'vega-datasets', 'data', 'annual-precip.json'), 'utf8')) as { width: number; height: number; values: (number | null)[] };
-  return { values: Float64Array.from(raw.values, (v) => (v === null ? NaN : v)), width: raw.width, height: raw.height };
-}
-
-/** Rows [r0, r0 + count) of the grid mirror-tiled to `cols` columns. */
-function band(g: Grid, cols: number, r0: number, count: number): Float32Array {
-  const reflect = (i: number, n: number) => {
-    const p = i % (2 * n);
-    return p < n ? p : 2 * n - 1 - p;
-  };
-  const out = new Float32Array(count * cols);
+/** Rows [r0, r0 + count) of the invented side x side field. */
+function band(side: number, r0: number, count: number, next: () => number): Float32Array {
+  const out = new Float32Array(count * side);
+  const cx = new Float64Array(side);
+  const sx = new Float64Array(side);
+  const gx = new Float64Array(side);
+  for (let j = 0; j < side; j++) {
+    const x = j / side;
+    cx[j] = Math.cos(2 * Math.PI * 3 * x);
+    sx[j] = Math.sin(2 * Math.PI * 7 * x + 0.4);
+    gx[j] = Math.exp(-(((x - 0.62) / 0.18) ** 2));
+  }
   for (let i = 0; i < count; i++) {
-    const src = reflect(r0 + i, g.height) * g.width;
-    for (let j = 0; j < cols; j++) out[i * cols + j] = g.values[src + reflect(j, g.width)];
+    const y = (r0 + i) / side;
+    const a = Math.sin(2 * Math.PI * 2 * y + 1.1);
+    const b = 0.35 * Math.cos(2 * Math.PI * 5 * y);
+    const g = 1.2 * Math.exp(-(((y - 0.35) / 0.22) ** 2));
+    const bend = 0.3 + 0.08 * Math.sin(2 * Math.PI * 3 * y);
+    const o = i * side;
+    for (let j = 0; j < side; j++) {
+      const x = j / side;
+      const front = 0.5 * Math.tanh((x - bend) / 0.01);
+      out[o + j] = a * cx[j] + b * sx[j] + g * gx[j] + front + 1e-3 * (2 * next() - 1);
+    }
   }
   return out;
 }
 
-/** Run the CLI's main() in a fresh Node process; resolve with its exit code, output and peak RSS (bytes). */
-function packInChild(args: string[]): Promise<{ code: number | null; stdout: string; stderr: string; maxRss: number; seconds: number }> {
+/** Write the field as .npy, band by band. */
+function writeField(path: string, side: number): void {
+  const next = xorshift32(20261202);
+  const w = new NpyBandWriter(path, [side, side], 'f32');
+  for (let r0 = 0; r0 < side; r0 += BAND_ROWS) w.write(band(side, r0, Math.min(BAND_ROWS, side - r0), next));
+  w.close();
+}
+
+/** A valid archive of a constant side x side field, written through the library: a few KB that decode to side^2 values. */
+function writeBomb(path: string, side: number, tile: number): void {
+  const sink = FileSink.create(path);
+  const b = new ArchiveBuilder(sink);
+  b.addBands((_r0, count) => new Float32Array(count * side).fill(1.5), [side, side], 'f32', { bound: 'abs:0.01', tile, name: 'bomb' });
+  b.finish();
+  sink.close();
+}
+
+interface ChildRun {
+  code: number | null;
+  stdout: string;
+  stderr: string;
+  /** Peak resident set size in bytes. */
+  maxRss: number;
+  /** Where the peak was read: 'time -v' or 'resourceUsage'. */
+  by: string;
+  seconds: number;
+}
+
+/** Run the CLI in a fresh Node process (under /usr/bin/time -v where it exists); resolve with its exit code, output and peak RSS. `dir` holds the child's script. */
+function cli(args: string[], dir: string): Promise<ChildRun> {
   const main = pathToFileURL(join(ROOT, 'dist', 'cli', 'main.js')).href;
+  // resourceUsage().maxRSS is in kilobytes (getrusage ru_maxrss on Linux), for the whole process: worker threads included.
   const script = `
     const { main } = await import(${JSON.stringify(main)});
     const code = await main(${JSON.stringify(args)});
-    // resourceUsage().maxRSS is in kilobytes (getrusage ru_maxrss on Linux).
     process.stderr.write('@@maxrss ' + process.resourceUsage().maxRSS * 1024 + '\\n');
     process.exitCode = code;`;
+  // A script file rather than --eval: worker threads inherit the process's Node options, and --input-type would stop them.
+  const file = join(dir, `child-${process.pid}.mjs`);
+  writeFileSync(file, script);
+  const node = [process.execPath, file];
+  const timed = existsSync(TIME);
+  const [cmd, ...rest] = timed ? [TIME, '-v', ...node] : node;
   const start = performance.now();
-  return new Promise((resolvePromise, reject) => {
-    const child = spawn(process.execPath, ['--input-type=module', '-e', script], { cwd: ROOT });
+  return new Promise((done, fail) => {
+    const child = spawn(cmd, rest, { cwd: ROOT });
     let stdout = '';
     let stderr = '';
     child.stdout.on('data', (d: Buffer) => (stdout += d.toString()));
     child.stderr.on('data', (d: Buffer) => (stderr += d.toString()));
-    child.on('error', reject);
+    child.on('error', fail);
     child.on('close', (code) => {
-      const m = /@@maxrss (\d+)/.exec(stderr);
-      resolvePromise({ code, stdout, stderr: stderr.replace(/@@maxrss \d+\n/, ''), maxRss: m ? Number(m[1]) : NaN, seconds: (performance.now() - start) / 1000 });
+      const own = /@@maxrss (\d+)/.exec(stderr);
+      const tv = /Maximum resident set size \(kbytes\): (\d+)/.exec(stderr);
+      const maxRss = tv ? Number(tv[1]) * 1024 : own ? Number(own[1]) : NaN;
+      const text = stderr.replace(/@@maxrss \d+\n/, '');
+      // What /usr/bin/time adds begins with its "Command being timed" line.
+      const cut = text.indexOf('\tCommand being timed');
+      done({ code, stdout, stderr: cut >= 0 ? text.slice(0, cut) : text, maxRss, by: tv ? 'time -v' : 'resourceUsage', seconds: (performance.now() - start) / 1000 });
     });
   });
 }
 
+interface Row {
+  /** When the run ended (UTC, to the minute). */
+  date: string;
+  run: string;
+  command: string;
+  bytesIn: number;
+  bytesOut: number;
+  seconds: number;
+  maxRss: number;
+  note: string;
+}
+
+const mb = (b: number) => (b / 1e6).toFixed(1);
+const HEAD = '| run | command | ended (UTC) | input bytes | output bytes | time (s) | peak RSS (MB) | below 300 MB |';
+const rowLine = (r: Row) =>
+  `| ${r.run} | \`${r.command}\` | ${r.date} | ${r.bytesIn} | ${r.bytesOut} | ${r.seconds.toFixed(1)} | ${mb(r.maxRss)} | ${r.maxRss < TARGET ? 'yes' : '**no**'}${r.note ? ` (${r.note})` : ''} |`;
+const now = () => new Date().toISOString().slice(0, 16).replace('T', ' ');
+
+/** The rows of an earlier table of the same size (kept where this run did not measure the same thing), as lines. */
+function earlierRows(file: string, runs: Set<string>): string[] {
+  if (!existsSync(file)) return [];
+  return (
+    readFileSync(file, 'utf8')
+      .split('\n')
+      .filter((l) => /^\| (pack|unpack) /.test(l) && !runs.has(l.slice(2, l.indexOf(' | '))))
+      // Rows of the first version of the table had no date column.
+      .map((l) => (l.split(' | ').length === 7 ? l.replace(/^(\| [^|]+ \| `[^`]+`) \| /, '$1 | (not recorded) | ') : l))
+      .filter((l) => l.split(' | ').length === 8)
+  );
+}
+
+function table(rows: Row[]): string {
+  const lines = [HEAD, '|---|---|---|--:|--:|--:|--:|---|'];
+  for (const r of rows) lines.push(rowLine(r));
+  return lines.join('\n');
+}
+
 async function run(): Promise<void> {
-  const side = Number(arg('side', '16384'));
-  const bound = arg('bound', 'rel:1e-3');
+  const size = Number(arg('size', '1024'));
+  const side = Math.round(Math.sqrt((size * 2 ** 20) / 4));
+  if (!(side >= 64 && side * side * 4 === size * 2 ** 20)) throw new Error(`--size must be a power of 4 MiB (64, 256, 1024), got ${arg('size', '')}`);
+  const modes = arg('modes', 'abs,rel,rmse,psnr').split(',');
+  for (const m of modes) if (!(m in BOUNDS)) throw new Error(`unknown mode '${m}' (abs, rel, rmse, psnr)`);
   const tile = arg('tile', '64');
+  const threads = arg('threads', '');
+  const keep = process.argv.includes('--keep');
   const own = arg('dir', '') === '';
   const dir = own ? mkdtempSync(join(tmpdir(), 'rankfield-pack-large-')) : resolve(arg('dir', ''));
   const input = join(dir, `field-${side}.npy`);
-  const output = join(dir, `field-${side}.rfz`);
+  const rows: Row[] = [];
+  const extra = threads ? ['--threads', threads] : [];
+  const started = new Date();
   try {
-    const g = precip();
     const t0 = performance.now();
-    const w = new NpyBandWriter(input, [side, side], 'f32');
-    for (let r0 = 0; r0 < side; r0 += 256) w.write(band(g, side, r0, Math.min(256, side - r0)));
-    w.close();
+    if (!existsSync(input)) writeField(input, side);
     const inBytes = statSync(input).size;
-    console.log(`wrote ${input}: ${side} x ${side} float32, ${inBytes} bytes in ${((performance.now() - t0) / 1000).toFixed(1)} s (generator peak RSS ${(process.resourceUsage().maxRSS / 1024).toFixed(0)} MB)`);
-    const r = await packInChild(['pack', input, '-o', output, '--bound', bound, '--tile', tile, '--force']);
-    if (r.code !== 0) throw new Error(`pack failed (exit ${r.code}): ${r.stderr.trim()}`);
-    const outBytes = statSync(output).size;
-    const mb = r.maxRss / 2 ** 20;
-    console.log(r.stdout.trim());
-    console.log(
-      [
-        `field          ${side} x ${side} float32 (${(inBytes / 2 ** 30).toFixed(3)} GiB .npy), bound ${bound}, tiles ${tile}`,
-        `archive        ${outBytes} bytes (ratio ${(inBytes / outBytes).toFixed(2)})`,
-        `pack time      ${r.seconds.toFixed(1)} s (${(inBytes / 2 ** 20 / r.seconds).toFixed(2)} MiB/s), child process`,
-        `peak RSS       ${mb.toFixed(1)} MiB (target < 300 MB: ${r.maxRss < 300e6 ? 'met' : 'NOT met'})`,
-      ].join('\n'),
-    );
+    console.log(`field ${input}: ${side} x ${side} float32, ${inBytes} bytes (${((performance.now() - t0) / 1000).toFixed(1)} s)`);
+    const archives = new Map<string, string>();
+    for (const mode of modes) {
+      const out = join(dir, `field-${side}-${mode}.rfz`);
+      const args = ['pack', input, '-o', out, '--bound', BOUNDS[mode], '--tile', tile, '--force', '--quiet', ...extra];
+      const r = await cli(args, dir);
+      if (r.code !== 0) throw new Error(`pack ${BOUNDS[mode]} failed (exit ${r.code}): ${r.stderr.trim()}`);
+      archives.set(mode, out);
+      rows.push({ date: now(), run: `pack ${BOUNDS[mode]}`, command: `rankfield ${args.slice(0, -2).join(' ').replaceAll(dir + '/', '')}`, bytesIn: inBytes, bytesOut: statSync(out).size, seconds: r.seconds, maxRss: r.maxRss, note: '' });
+      console.log(table(rows.slice(-1)).split('\n')[2]);
+    }
+    let by = '';
+    if (!process.argv.includes('--no-unpack')) {
+      const first = archives.get(modes[0])!;
+      const back = join(dir, `field-${side}-back.npy`);
+      const ua = ['unpack', first, '-o', back, '--force', '--quiet', ...extra];
+      const u = await cli(ua, dir);
+      if (u.code !== 0) throw new Error(`unpack failed (exit ${u.code}): ${u.stderr.trim()}`);
+      rows.push({ date: now(), run: 'unpack to .npy', command: `rankfield ${ua.join(' ').replaceAll(dir + '/', '')}`, bytesIn: statSync(first).size, bytesOut: statSync(back).size, seconds: u.seconds, maxRss: u.maxRss, note: '' });
+      console.log(table(rows.slice(-1)).split('\n')[2]);
+      rmSync(back, { force: true });
+      const bomb = join(dir, `bomb-${side}.rfz`);
+      rmSync(bomb, { force: true });
+      // Tiles of 1024 x 1024, the largest readers accept by default: the fewest bytes for the most values.
+      writeBomb(bomb, side, 1024);
+      const bombBack = join(dir, `bomb-${side}.npy`);
+      const ba = ['unpack', bomb, '-o', bombBack, '--force', ...extra];
+      const b = await cli(ba, dir);
+      if (b.code !== 0) throw new Error(`unpack of the bomb failed (exit ${b.code}): ${b.stderr.trim()}`);
+      const said = /note: (writing [^\n]*)/.exec(b.stderr);
+      rows.push({ date: now(), run: 'unpack of a constant field', command: `rankfield ${ba.join(' ').replaceAll(dir + '/', '')}`, bytesIn: statSync(bomb).size, bytesOut: statSync(bombBack).size, seconds: b.seconds, maxRss: b.maxRss, note: said ? `said before writing: "${said[1]}"` : 'no size note' });
+      console.log(table(rows.slice(-1)).split('\n')[2]);
+      rmSync(bombBack, { force: true });
+      by = u.by;
+    }
+    // Every run writes its rows into bench/MEMORY-<size>MiB.md (or --report FILE), keeping the rows of earlier runs of the same size for what it did not measure, and the merged table into the README's block for its size, when README has one: README figures always come from runs.
+    const report = arg('report', join(ROOT, 'bench', `MEMORY-${size}MiB.md`));
+    const order = ['pack abs', 'pack rel', 'pack rmse', 'pack psnr', 'unpack to', 'unpack of'];
+    const rank = (l: string) => order.findIndex((o) => l.startsWith(`| ${o}`));
+    const merged = [...earlierRows(report, new Set(rows.map((r) => r.run))), ...rows.map(rowLine)].sort((x, y) => rank(x) - rank(y));
+    const md = [
+      `# Peak memory of pack and unpack on a large field`,
+      '',
+      `Rows from runs of \`node bench/dist/bench/pack-large.js\` (each row gives its command and when it ended); last written by \`node bench/dist/bench/pack-large.js${process.argv.slice(2).length ? ' ' + process.argv.slice(2).join(' ') : ''}\`, started ${started.toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC')}, Node ${process.version}, load average at its end ${loadavg().map((x) => x.toFixed(2)).join(' ')} (2 cores shared with other work: times are not comparable between rows).`,
+      '',
+      `Field: ${side} x ${side} float32 (${(inBytes / 2 ** 30).toFixed(3)} GiB as .npy), invented for the measurement (bench/pack-large.ts: smooth waves, bumps and a front, plus seeded noise of amplitude 1e-3). Tiles ${tile} x ${tile}; threads ${threads || 'default (the core count)'}. Each run is a child process; peak RSS is its maximum resident set size (${by === 'resourceUsage' ? 'process.resourceUsage().maxRSS' : '`/usr/bin/time -v`'}), worker threads included. "unpack of a constant field" unpacks a valid archive of a constant ${side} x ${side} field in 1024 x 1024 tiles, a few KB that decode to ${side * side * 4} bytes of values. MB = 10^6 bytes.`,
+      '',
+      HEAD,
+      '|---|---|---|--:|--:|--:|--:|---|',
+      ...merged,
+      '',
+    ].join('\n');
+    console.log('\n' + md);
+    writeFileSync(report, md);
+    console.log(`wrote ${report}`);
+    const readme = join(ROOT, 'README.md');
+    const text = readFileSync(readme, 'utf8');
+    const begin = `<!-- memory ${size} MiB:begin (written by bench/pack-large.ts) -->`;
+    const end = `<!-- memory ${size} MiB:end -->`;
+    const a = text.indexOf(begin);
+    const e = text.indexOf(end);
+    if (a >= 0 && e > a) {
+      const cells = merged.map((l) => l.split(' | '));
+      const worst = cells.reduce((x, c) => Math.max(x, Number(c[6])), 0);
+      const line = cells.map((c) => `${c[0].slice(2)} ${c[6]} MB`).join(', ');
+      const block = `${side} x ${side} float32 (${size} MiB), tiles ${tile} x ${tile}, peak resident memory of the whole process, worker threads included ([bench/${basename(report)}](bench/${basename(report)}), written by \`bench/pack-large.ts --size ${size}\`): ${line}; the largest ${worst.toFixed(1)} MB.`;
+      writeFileSync(readme, text.slice(0, a + begin.length) + '\n' + block + '\n' + text.slice(e));
+      console.log(`updated the ${size} MiB memory block of ${readme}`);
+    }
   } finally {
-    if (own) rmSync(dir, { recursive: true, force: true });
+    if (own && !keep) rmSync(dir, { recursive: true, force: true });
+    else console.log(`files kept in ${dir}`);
   }
 }
 

@@ -15,8 +15,8 @@ import { writeNetcdf4 } from '../io/hdf5-write.js';
 import { mkdtemp, readFile, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { printable } from '../format/schema.js';
-import { stat } from 'node:fs/promises';
-import { join } from 'node:path';
+import { stat, statfs } from 'node:fs/promises';
+import { dirname, join, resolve } from 'node:path';
 import type { Context } from './main.js';
 import { boundOption, endianOption, nameOption, threadsOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
@@ -64,12 +64,19 @@ a window of one field, its dimensions and coordinate variables cut to match.
 dimension names match in any case. --slices and --region count the axes of
 the variable (slices over the leading ones, rows and columns the last two)
 whatever its layout; OUT ending in / (an existing folder)
-gets one NAME.npy per field; .csv writes a small window as text (at most
-10^6 values without --force). --slices A:B picks slices of an N-D field
+gets one NAME.npy per field; .csv writes a window as text (at most 10^6
+values without --force). --slices A:B picks slices of an N-D field
 (of its leading axes together: slice s of a (time, depth, lat, lon)
 variable is time s / ndepth, depth s % ndepth); --slices A:B,C:D picks a
 range of each leading axis (time A..B-1 and depth C..D-1), a box that .nc
 output can always hold.
+
+.npy, raw, CSV and folder outputs are decoded and written a band of tile
+rows at a time, in bounded memory whatever the field's size; an output of
+more than 64 MiB is announced with its size first, and one larger than the
+free space of its file system is refused before anything is written.
+NetCDF output and windows chosen by --where (or of a field stored as a
+matrix) are made in memory, and refused beyond 512 MiB of values.
 
 OUT ending in .npy gets a .npy file (little-endian, C order); any other name
 gets headerless raw binary in C (row-major) order, little-endian unless
@@ -108,38 +115,82 @@ export function slicesOption(text: string): Span[] {
 export const CSV_LIMIT = 1_000_000;
 
 /**
- * C-order values as CSV: a 2-D window as a matrix; more axes as one line per
- * value with its indexes. The text is encoded a few thousand lines at a time,
- * so no single string grows past what the runtime allows (about 2^29
- * characters in V8) however many values are written.
+ * C-order values as CSV text, written as they come: a 2-D window as a
+ * matrix (one line per row); more axes as a header of dimension names and
+ * one line per value with its indexes. Values are given in order, whole
+ * rows at a time; the text is encoded and handed to `put` a chunk of lines
+ * at a time, so neither the text nor the values are ever whole in memory
+ * and no single string grows past what the runtime allows (about 2^29
+ * characters in V8), however many values are written.
  */
-export function formatCsv(values: Float32Array | Float64Array, shape: number[], dims: string[]): Uint8Array {
-  const encoder = new TextEncoder();
-  const chunks: Uint8Array[] = [];
-  let lines: string[] = [];
-  let chars = 0;
-  const push = (line: string) => {
-    lines.push(line);
-    chars += line.length + 1;
-    if (chars >= CSV_CHUNK) flush();
-  };
-  const flush = () => {
-    if (lines.length > 0) chunks.push(encoder.encode(lines.join('\n') + '\n'));
-    lines = [];
-    chars = 0;
-  };
-  if (shape.length === 2) {
-    const [r, c] = shape;
-    for (let i = 0; i < r; i++) push(Array.from(values.subarray(i * c, (i + 1) * c), (x) => String(x)).join(','));
-  } else {
-    push([...dims, 'value'].map((d) => (/[",\n]/.test(d) ? `"${d.replace(/"/g, '""')}"` : d)).join(','));
-    const idx = new Array<number>(shape.length).fill(0);
+export class CsvWriter {
+  private lines: string[] = [];
+  private chars = 0;
+  /** Values of a 2-D row not yet complete. */
+  private row: string[] = [];
+  private readonly encoder = new TextEncoder();
+  /** The next value's indexes (more than 2 axes), else null. */
+  private readonly idx: number[] | null;
+
+  constructor(
+    private readonly shape: readonly number[],
+    dims: readonly string[],
+    private readonly put: (bytes: Uint8Array) => void,
+  ) {
+    this.idx = shape.length === 2 ? null : new Array<number>(shape.length).fill(0);
+    if (this.idx) this.line([...dims, 'value'].map((d) => (/[",\n]/.test(d) ? `"${d.replace(/"/g, '""')}"` : d)).join(','));
+  }
+
+  private line(text: string): void {
+    this.lines.push(text);
+    this.chars += text.length + 1;
+    if (this.chars >= CSV_CHUNK) this.flush();
+  }
+
+  private flush(): void {
+    if (this.lines.length > 0) this.put(this.encoder.encode(this.lines.join('\n') + '\n'));
+    this.lines = [];
+    this.chars = 0;
+  }
+
+  /** The next values in C order (whole rows, or a row in pieces). */
+  write(values: Float32Array | Float64Array): void {
+    const idx = this.idx;
+    if (idx === null) {
+      const c = this.shape[1];
+      let i = 0;
+      // A row begun by earlier values is finished first; then whole rows; then the start of the next.
+      if (this.row.length > 0) {
+        const k = Math.min(values.length, c - this.row.length);
+        for (; i < k; i++) this.row.push(String(values[i]));
+        if (this.row.length === c) {
+          this.line(this.row.join(','));
+          this.row = [];
+        }
+      }
+      for (; i + c <= values.length; i += c) this.line(Array.from(values.subarray(i, i + c), (x) => String(x)).join(','));
+      for (; i < values.length; i++) this.row.push(String(values[i]));
+      return;
+    }
+    const shape = this.shape;
     for (let k = 0; k < values.length; k++) {
-      push(`${idx.join(',')},${String(values[k])}`);
+      this.line(`${idx.join(',')},${String(values[k])}`);
       for (let a = shape.length - 1; a >= 0 && ++idx[a] === shape[a]; a--) idx[a] = 0;
     }
   }
-  flush();
+
+  /** Write out what is left. */
+  end(): void {
+    this.flush();
+  }
+}
+
+/** C-order values as CSV (see {@link CsvWriter}), in memory: for small windows and tests. */
+export function formatCsv(values: Float32Array | Float64Array, shape: number[], dims: string[]): Uint8Array {
+  const chunks: Uint8Array[] = [];
+  const w = new CsvWriter(shape, dims, (b) => chunks.push(b));
+  w.write(values);
+  w.end();
   const out = new Uint8Array(chunks.reduce((n, b) => n + b.length, 0));
   let at = 0;
   for (const b of chunks) {
@@ -151,6 +202,47 @@ export function formatCsv(values: Float32Array | Float64Array, shape: number[], 
 
 /** Characters of CSV text encoded at once. */
 const CSV_CHUNK = 1 << 20;
+
+/** Outputs larger than this (bytes) are announced, with their size, before anything is written. */
+export const ANNOUNCE_BYTES = 1 << 26;
+
+/**
+ * Most bytes of decoded values an output held in memory may take (NetCDF
+ * output, and windows chosen by axis): beyond it such a run is refused, with
+ * the ways round it, rather than left to run out of memory. .npy, raw and
+ * CSV outputs of a field or a --region / --slices window are written band by
+ * band and have no such limit.
+ */
+export const HELD_BYTES = 1 << 29;
+
+/** Refuse an output that would hold more than {@link HELD_BYTES} of decoded values in memory. */
+function checkHeld(bytes: number, what: string, out: string): void {
+  if (bytes <= HELD_BYTES) return;
+  throw new UsageError(`'${out}' would hold ${what} in memory, ${bytes} bytes of values, more than the ${HELD_BYTES} this output allows; write .npy or raw (band by band, any size), or a smaller window`);
+}
+
+/** Bytes of the decoded values of whole fields. */
+function fieldBytes(archive: Archive, names: string[]): number {
+  let b = 0;
+  for (const name of names) {
+    const h = archive.field(name).header;
+    b += (h.slices ?? 1) * h.shape[0] * h.shape[1] * (h.dtype === 'f32' ? 4 : 8);
+  }
+  return b;
+}
+
+/**
+ * Before writing `bytes` to `out`: say how many when they are many (a small
+ * archive may decode to a huge field), and refuse when the file system
+ * holding `out` has fewer bytes free, so a run never ends half-way with the
+ * disk full.
+ */
+async function beforeWriting(out: string, bytes: number, what: string, note: (s: string) => void): Promise<void> {
+  const fs = await statfs(dirname(resolve(out))).catch(() => null);
+  const free = fs === null ? Infinity : fs.bavail * fs.bsize;
+  if (bytes > free) throw new UsageError(`'${out}' would take ${bytes} bytes (${what}) but its file system has ${free} bytes free; choose a window with --region / --slices, or another place`);
+  if (bytes > ANNOUNCE_BYTES) note(`writing ${bytes} bytes (${what}) to '${out}'`);
+}
 
 export function regionOption(text: string): Region {
   const parts = text.split(',');
@@ -218,31 +310,51 @@ export function registerUnpack(program: Command, ctx: Context): void {
             return;
           }
         }
-        if (dirOut || nc) {
+        if (dirOut) {
+          // One .npy per field, each decoded band by band and written as it comes.
+          const names = archive.names;
+          const files = fileNames(names);
+          const written: { path: string; bytes: number; fields: string[] }[] = [];
+          try {
+            for (const [i, name] of names.entries()) {
+              const h = archive.field(name).header;
+              const path = join(flags.output, files[i]);
+              const { shape } = readShape(archive, name, {});
+              const head = npyHeader(shape, h.dtype);
+              const bytes = head.length + shape.reduce((a, b) => a * b, 1) * (h.dtype === 'f32' ? 4 : 8);
+              await beforeWriting(path, bytes, `${shape.join('x')} ${h.dtype}`, (t) => out.note(t));
+              await writeOutputWith(path, io, async (sink) => {
+                sink.write(head);
+                await readBands(archive, name, { threads: flags.threads, location: input }, (values) => {
+                  restoreMissing(h, values);
+                  sink.write(valueBytes(values, 'little'));
+                });
+              });
+              written.push({ path, bytes, fields: [name] });
+            }
+          } catch (e) {
+            // As for one file: a failed run leaves no output, not the fields before the failure.
+            for (const w of written) await rm(w.path, { force: true });
+            throw e;
+          }
+          out.text(`unpacked ${names.length} field${names.length === 1 ? '' : 's'} from '${input}' -> ${files.map((f) => `'${join(flags.output, f)}'`).join(', ')}; ${seconds(performance.now() - start)}\n`);
+          out.result({ command: 'unpack', input, output: flags.output, format: 'npy', files: written, seconds: (performance.now() - start) / 1000 });
+          return;
+        }
+        if (nc) {
+          // NetCDF is written from fields in memory: refused beyond HELD_BYTES rather than running out of memory.
           const names = chosen !== undefined ? [archive.field(chosen).header.name] : archive.names;
+          checkHeld(fieldBytes(archive, names), `${names.length} field${names.length === 1 ? '' : 's'} whole (NetCDF is written from memory)`, flags.output);
           const fields = [];
           for (const name of names) {
             const f = await archive.read(name);
             fields.push({ h: archive.field(name).header, shape: f.shape, values: f.values });
           }
-          if (nc) {
-            const bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, fields), flags.netcdf4 === true);
-            await writeOutput(flags.output, bytes, io);
-            const format = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
-            out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (${format}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
-            out.result({ command: 'unpack', input, output: flags.output, format: flags.netcdf4 ? 'netcdf4' : 'netcdf', files: [{ path: flags.output, bytes: bytes.length, fields: names }], seconds: (performance.now() - start) / 1000 });
-          } else {
-            const files = fileNames(names);
-            for (const f of fields) restoreMissing(f.h, f.values);
-            const written = [];
-            for (const [i, f] of fields.entries()) {
-              const bytes = formatNpy({ data: f.values, shape: f.shape, dtype: f.h.dtype });
-              await writeOutput(join(flags.output, files[i]), bytes, io);
-              written.push({ path: join(flags.output, files[i]), bytes: bytes.length, fields: [names[i]] });
-            }
-            out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> ${files.map((f) => `'${join(flags.output, f)}'`).join(', ')}; ${seconds(performance.now() - start)}\n`);
-            out.result({ command: 'unpack', input, output: flags.output, format: 'npy', files: written, seconds: (performance.now() - start) / 1000 });
-          }
+          const bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, fields), flags.netcdf4 === true);
+          await writeOutput(flags.output, bytes, io);
+          const format = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
+          out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (${format}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+          out.result({ command: 'unpack', input, output: flags.output, format: flags.netcdf4 ? 'netcdf4' : 'netcdf', files: [{ path: flags.output, bytes: bytes.length, fields: names }], seconds: (performance.now() - start) / 1000 });
           return;
         }
         const { header: h, summary } = archive.field(chosen);
@@ -261,42 +373,37 @@ export function registerUnpack(program: Command, ctx: Context): void {
         const request = { ...(window ?? {}), ...(sl ?? {}), ...(flags.bound ? { bound: flags.bound } : {}) };
         const endian = flags.endian ?? 'little';
         let written = 0;
-        let field: BandsRead;
-        if (csv) {
-          const f = await archive.read(h.name, request);
-          restoreMissing(h, f.values);
-          const dims = h.dims && h.dims.length === f.shape.length ? h.dims : f.shape.length === 3 ? ['slice', 'row', 'col'] : f.shape.map((_, i) => `axis${i}`);
-          const bytes = formatCsv(f.values, f.shape, dims);
-          await writeOutput(flags.output, bytes, io);
-          written = bytes.length;
-          field = f;
-        } else {
-          // .npy and raw: decoded band by band (on worker threads) and written as each band comes.
-          const { shape } = readShape(archive, h.name, request);
-          let got: BandsRead | undefined;
-          const cells = shape.reduce((a, b) => a * b, 1);
-          const tiles = tilesTouched(h, request);
-          const bar = out.progress(`unpacking '${printable(h.name)}'`, tiles, cells * (h.dtype === 'f32' ? 4 : 8));
-          let done = 0;
-          try {
-            await writeOutputWith(flags.output, io, async (sink) => {
-              const put = (b: Uint8Array) => {
-                sink.write(b);
-                written += b.length;
-              };
-              if (npy) put(npyHeader(shape, h.dtype));
-              got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
-                restoreMissing(h, values);
-                put(valueBytes(values, endian));
-                done += values.length;
-                bar.update(Math.round((tiles * done) / cells));
-              });
+        // Decoded band by band (on worker threads) and written as each band comes: the field is never whole in memory.
+        const { shape } = readShape(archive, h.name, request);
+        const cells = shape.reduce((a, b) => a * b, 1);
+        const item = h.dtype === 'f32' ? 4 : 8;
+        if (!csv) await beforeWriting(flags.output, (npy ? npyHeader(shape, h.dtype).length : 0) + cells * item, `${shape.join('x')} ${h.dtype}`, (t) => out.note(t));
+        let got: BandsRead | undefined;
+        const tiles = tilesTouched(h, request);
+        const bar = out.progress(`unpacking '${printable(h.name)}'`, tiles, cells * item);
+        let done = 0;
+        try {
+          await writeOutputWith(flags.output, io, async (sink) => {
+            const put = (b: Uint8Array) => {
+              sink.write(b);
+              written += b.length;
+            };
+            const dims = h.dims && h.dims.length === shape.length ? h.dims : shape.length === 3 ? ['slice', 'row', 'col'] : shape.map((_, i) => `axis${i}`);
+            const text = csv ? new CsvWriter(shape, dims, put) : null;
+            if (npy) put(npyHeader(shape, h.dtype));
+            got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
+              restoreMissing(h, values);
+              if (text) text.write(values);
+              else put(valueBytes(values, endian));
+              done += values.length;
+              bar.update(Math.round((tiles * done) / cells));
             });
-          } finally {
-            bar.stop();
-          }
-          field = got!;
+            text?.end();
+          });
+        } finally {
+          bar.stop();
         }
+        const field = got!;
         const kind = npy ? '.npy' : csv ? 'CSV' : `raw ${endian}-endian`;
         const [[r0, r1], [c0, c1]] = [field.window.rows, field.window.cols];
         const [s0, s1] = field.window.slices ?? [0, 1];
@@ -386,6 +493,7 @@ async function unpackAxes(
   const colRange: AxisRange = [flags.region?.cols[0] ?? 0, flags.region?.cols[1] ?? nd[k - 1]];
   const n = ranges ? cells(ranges) : cells([sliceRange(), rowRange, colRange]);
   if (o.csv && n > CSV_LIMIT && flags.force !== true) throw new UsageError(`.csv output of ${n} values is refused (more than ${CSV_LIMIT}); choose a smaller window, write .npy, or use --force`);
+  checkHeld(n * (h.dtype === 'f32' ? 4 : 8), `a window of ${n} values (a window by axis is read whole)`, flags.output);
   if (ranges) got = await readAxes(archive, h, ranges);
   else if (o.nc) throw new UsageError(notOneBox(h, sliceRange()));
   else got = await readSliceWindow(archive, h, sliceRange(), rowRange, colRange);

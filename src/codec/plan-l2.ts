@@ -7,7 +7,7 @@
  * by construction and tiles can be written as they are finished.
  */
 import { measure } from './measure.js';
-import { forEachTile, type BandSource, type FieldSpec } from './tiles.js';
+import { forEachTile, tileGrid, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
@@ -56,9 +56,9 @@ function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
   return rdo !== null && rdo.length < plain.length ? rdo : plain;
 }
 
-/** What the first pass learns of one tile (and the tile itself, prepared, while a field is small enough to keep). */
+/** What the first pass learns of one tile (and the tile itself, prepared, while a field is small enough to keep it). */
 export interface FirstPassTile {
-  /** Squared singular values in units of tol^2, so nothing overflows. */
+  /** Squared singular values in units of tol^2, so nothing overflows; descending, as the SVD gives them. */
   sv2: Float64Array;
   /** Rows, columns and valid cells. */
   dims: [number, number, number];
@@ -81,35 +81,114 @@ export function firstPassTile(tile: FloatArray, m: number, n: number, spec: Pick
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
 }
 
+/** Values per chunk of a {@link Spectra} store (8 MiB): the store grows a chunk at a time, never by copying. */
+const SPECTRA_CHUNK = 1 << 20;
+
+/**
+ * What the planner keeps of the first pass: per tile its rows, columns,
+ * valid cells and squared singular values, in flat typed arrays, and no
+ * tile data. The Eckart-Young cut is field-wide (the smallest values of all
+ * tiles go first), so every value is needed, at 8 bytes each: min(m, n)
+ * per tile, 1/32 of a float32 field's bytes at 64 x 64 tiles. Tiles are
+ * added in tile order, each as soon as its first pass is done.
+ */
+export class Spectra {
+  /** Rows, columns and valid cells per tile. */
+  readonly m: Int32Array;
+  readonly n: Int32Array;
+  readonly valid: Int32Array;
+  /** Where tile t's values lie: the chunk, the offset within it, and how many. */
+  private readonly chunk: Int32Array;
+  private readonly offset: Int32Array;
+  readonly length: Int32Array;
+  private readonly chunks: Float64Array[] = [];
+  private used = 0;
+  /** Tiles added so far. */
+  count = 0;
+
+  constructor(readonly tiles: number) {
+    this.m = new Int32Array(tiles);
+    this.n = new Int32Array(tiles);
+    this.valid = new Int32Array(tiles);
+    this.chunk = new Int32Array(tiles);
+    this.offset = new Int32Array(tiles);
+    this.length = new Int32Array(tiles);
+  }
+
+  /** Add the next tile's first-pass result (its spectrum is copied; the result is not kept). */
+  add(f: Pick<FirstPassTile, 'sv2' | 'dims'>): void {
+    const t = this.count;
+    // Internal assertion: the callers add exactly the field's tiles.
+    if (t >= this.tiles) throw new Error(`more than the ${this.tiles} tiles of the field were planned`);
+    const k = f.sv2.length;
+    // A spectrum never straddles two chunks (tile sides are at most 4096, well below a chunk).
+    if (this.chunks.length === 0 || this.used + k > SPECTRA_CHUNK) {
+      this.chunks.push(new Float64Array(Math.max(SPECTRA_CHUNK, k)));
+      this.used = 0;
+    }
+    this.chunks[this.chunks.length - 1].set(f.sv2, this.used);
+    this.chunk[t] = this.chunks.length - 1;
+    this.offset[t] = this.used;
+    this.length[t] = k;
+    this.used += k;
+    [this.m[t], this.n[t], this.valid[t]] = f.dims;
+    this.count++;
+  }
+
+  /** Tile t's squared singular values, descending (a view, not a copy). */
+  values(t: number): Float64Array {
+    return this.chunks[this.chunk[t]].subarray(this.offset[t], this.offset[t] + this.length[t]);
+  }
+
+  /** Bytes held: the per-tile arrays and the chunks of values. */
+  get bytes(): number {
+    let b = 6 * 4 * this.tiles;
+    for (const c of this.chunks) b += c.byteLength;
+    return b;
+  }
+}
+
+/** The first pass over every tile of a field, in this thread, into a {@link Spectra} store (and the prepared tiles, when kept). */
+export function firstPass(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null): { spectra: Spectra; kept: PreparedTile[] } {
+  const keep = keepsTiles(spec);
+  const spectra = new Spectra(tileCount(spec));
+  const kept: PreparedTile[] = [];
+  forEachTile(src, spec, (_index, tile, m, n) => {
+    const f = firstPassTile(tile, m, n, spec, fill, tol, keep);
+    spectra.add(f);
+    if (keep) kept.push(f.tile!);
+  });
+  return { spectra, kept };
+}
+
+/** Tiles of a field, over all its slices. */
+function tileCount(spec: FieldSpec): number {
+  const [gr, gc] = tileGrid(spec);
+  return (spec.slices ?? 1) * gr * gc;
+}
+
 /**
  * First pass and plan choice; the returned plan encodes one tile at a time.
- * `first` gives the first pass's results in tile order when it was made
- * elsewhere (on worker threads); by default it is made here.
+ * `first` gives the first pass's results (spectra of every tile, in tile
+ * order, and the prepared tiles when the field is small enough to keep them)
+ * when it was made elsewhere (on worker threads); by default it is made here.
  */
-export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: FirstPassTile[]): L2Plan {
+export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: { spectra: Spectra; kept: PreparedTile[] }): L2Plan {
   const keep = keepsTiles(spec);
-  if (first === undefined) {
-    const made: FirstPassTile[] = [];
-    forEachTile(src, spec, (_index, tile, m, n) => made.push(firstPassTile(tile, m, n, spec, fill, tol, keep)));
-    first = made;
-  }
-  const kept = keep ? first.map((f) => f.tile!) : [];
-  const sv2 = first.map((f) => f.sv2);
-  const dims = first.map((f) => f.dims);
-  const count = dims.length;
+  const { spectra, kept } = first ?? firstPass(src, spec, tol, fill);
+  // Internal assertion: the first pass covers every tile, in order.
+  if (spectra.count !== spectra.tiles || (keep && kept.length !== spectra.tiles)) throw new Error(`the first pass planned ${spectra.count} of ${spectra.tiles} tiles`);
+  const count = spectra.tiles;
   let valid = 0;
-  for (const d of dims) valid += d[2];
+  for (let t = 0; t < count; t++) valid += spectra.valid[t];
   const budget = valid; // N x tol^2, in units of tol^2
   const plans: L2PlanData[] = [];
-  for (const share of TRUNCATION_SHARES) {
-    const p = eckartYoungPlan(sv2, dims, budget, share, tol);
-    if (p) plans.push(p);
-  }
+  for (const p of eckartYoungPlans(spectra, budget, TRUNCATION_SHARES, tol)) if (p) plans.push(p);
   // Residual plan: the pointwise coder at E' with uniform quantization error
   // (2E')^2 / 12 = E^2 per value (common practice, no source), a little inside; or, per tile, a
   // rank-0 residual with rate-distortion optimised codes when that is smaller (encodeWith).
   const ePrime = Math.sqrt(3) * tol * 0.97;
-  plans.push({ name: 'residual', kind: 'residual', ranks: new Int32Array(0), c: 0, dw: 0, ePrime, allot: Float64Array.from(dims, (d) => 0.999 * d[2]), tol });
+  plans.push({ name: 'residual', kind: 'residual', ranks: new Int32Array(0), c: 0, dw: 0, ePrime, allot: Float64Array.from(spectra.valid, (v) => 0.999 * v), tol });
 
   const sampleAt = (k: number) => Math.floor(((k + 0.5) * count) / Math.min(count, SAMPLE_TILES));
   let best = plans[plans.length - 1];
@@ -182,67 +261,97 @@ function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, 
 }
 
 /**
- * The Eckart-Young plan for a truncation share: discard the field-wide
+ * The Eckart-Young plans, one per truncation share: discard the field-wide
  * smallest singular values until their squares reach share x budget; the
  * rest of the budget goes to factor quantization, half to each factor,
- * with uniform noise step^2 / 12 per coefficient.
+ * with uniform noise step^2 / 12 per coefficient. Null where the steps do
+ * not come out positive and finite.
+ *
+ * The values are visited in ascending order of their key (the largest
+ * value at or after them in their tile's descending spectrum, so a tile's
+ * larger value is never cut before its smaller ones), ties by tile, then
+ * smallest first within a tile: a merge of the tiles' spectra through a
+ * heap of tiles, so nothing is held beyond the store and a few numbers per
+ * tile. A tile whose next cut does not fit a share is closed for it: its
+ * larger values cannot be cut either.
  */
-function eckartYoungPlan(
-  sv2: Float64Array[],
-  dims: [number, number, number][],
-  budget: number,
-  share: number,
-  tol: number,
-): L2PlanData | null {
-  // Cuts per tile, smallest singular value first (every tile's spectrum is complete). Keys are
-  // made non-decreasing within a tile so that a global ascending order never cuts a tile's
-  // larger value before its smaller ones.
-  const order: [number, number, number][] = []; // [key, tile, squared value]
-  const ranks: number[] = [];
-  sv2.forEach((s, t) => {
-    let key = 0;
-    ranks.push(s.length);
-    for (let k = s.length - 1; k >= 0; k--) {
-      key = Math.max(key, s[k]);
-      order.push([key, t, s[k]]);
+export function eckartYoungPlans(spectra: Spectra, budget: number, shares: readonly number[], tol: number): (L2PlanData | null)[] {
+  const count = spectra.tiles;
+  const cuts = shares.map(() => ({ total: 0, cut: new Float64Array(count), ranks: Int32Array.from(spectra.length), closed: new Uint8Array(count) }));
+  // Per tile: the next value's position (from the end of its spectrum) and its key.
+  const next = new Int32Array(count);
+  const key = new Float64Array(count);
+  const heap = new Int32Array(count);
+  let size = 0;
+  const less = (a: number, b: number) => (key[a] - key[b] || a - b) < 0;
+  const down = (i: number) => {
+    const t = heap[i];
+    for (;;) {
+      let c = 2 * i + 1;
+      if (c >= size) break;
+      if (c + 1 < size && less(heap[c + 1], heap[c])) c++;
+      if (!less(heap[c], t)) break;
+      heap[i] = heap[c];
+      i = c;
     }
-  });
-  order.sort((a, b) => a[0] - b[0] || a[1] - b[1]);
-  const cut = new Float64Array(sv2.length);
-  // A tile whose next cut does not fit is closed: its larger values cannot be cut either.
-  const closed = new Uint8Array(sv2.length);
-  let total = 0;
-  for (const [, t, v2] of order) {
-    if (closed[t]) continue;
-    if (!(total + v2 <= share * budget)) {
-      closed[t] = 1;
-      continue;
-    }
-    total += v2;
-    cut[t] += v2;
-    ranks[t] -= 1;
+    heap[i] = t;
+  };
+  // Each tile enters with the key of its smallest value; the heap is then built bottom-up.
+  for (let t = 0; t < count; t++) {
+    const k = spectra.length[t];
+    if (k === 0) continue;
+    next[t] = k - 1;
+    key[t] = Math.max(0, spectra.values(t)[k - 1]);
+    heap[size++] = t;
   }
+  for (let i = (size >> 1) - 1; i >= 0; i--) down(i);
+  while (size > 0) {
+    const t = heap[0];
+    const v2 = spectra.values(t)[next[t]];
+    for (const [s, c] of cuts.entries()) {
+      if (c.closed[t]) continue;
+      if (!(c.total + v2 <= shares[s] * budget)) {
+        c.closed[t] = 1;
+        continue;
+      }
+      c.total += v2;
+      c.cut[t] += v2;
+      c.ranks[t] -= 1;
+    }
+    // The tile's next value, or out of the heap when it has none or every share has closed it.
+    if (next[t] > 0 && cuts.some((c) => !c.closed[t])) {
+      next[t]--;
+      key[t] = Math.max(key[t], spectra.values(t)[next[t]]);
+    } else heap[0] = heap[--size];
+    down(0);
+  }
+  return cuts.map((c, s) => stepsFor(spectra, budget, shares[s], c.total, c.cut, c.ranks, tol));
+}
+
+/** A plan's steps and allotments from its cut: what is left of the budget goes to factor quantization. */
+function stepsFor(spectra: Spectra, budget: number, share: number, total: number, cut: Float64Array, ranks: Int32Array, tol: number): L2PlanData | null {
   const q = (budget - total) * 0.9;
   // Half of q to each factor, as uniform rounding noise step^2 / 12 per coefficient:
   // the right factor with one step dw, the left with step c / s_k for rank k (see quantizeFactors).
   let sumRN = 0;
   let sumRM = 0;
-  ranks.forEach((r, t) => {
-    sumRN += r * dims[t][1];
-    sumRM += r * dims[t][0];
-  });
+  for (let t = 0; t < ranks.length; t++) {
+    sumRN += ranks[t] * spectra.n[t];
+    sumRM += ranks[t] * spectra.m[t];
+  }
   const dw = sumRN > 0 ? tol * Math.sqrt((6 * q) / sumRN) : tol;
   const c = sumRM > 0 ? tol * Math.sqrt((6 * q) / sumRM) : tol;
   if (!(dw > 0 && c > 0 && Number.isFinite(dw) && Number.isFinite(c))) return null;
   // Each tile's allotment: its truncation error plus its expected quantization noise,
   // scaled so the allotments add up to the budget.
-  const predicted = ranks.map((r, t) => {
-    const [m, n] = dims[t];
-    return cut[t] + (r * n * (dw / tol) ** 2) / 12 + (r * m * (c / tol) ** 2) / 12;
-  });
+  const predicted = new Float64Array(ranks.length);
+  for (let t = 0; t < ranks.length; t++) {
+    const r = ranks[t];
+    predicted[t] = cut[t] + (r * spectra.n[t] * (dw / tol) ** 2) / 12 + (r * spectra.m[t] * (c / tol) ** 2) / 12;
+  }
   let sum = 0;
   for (const p of predicted) sum += p;
   // A hair inside the budget, so rounding in the sums cannot tip the total over.
   const scale = sum > 0 ? (0.999 * budget) / sum : 0;
-  return { name: `eckart-young ${share}`, kind: 'rank', ranks: Int32Array.from(ranks), c, dw, ePrime: 0, allot: Float64Array.from(predicted, (p) => p * scale), tol };
+  return { name: `eckart-young ${share}`, kind: 'rank', ranks, c, dw, ePrime: 0, allot: predicted.map((p) => p * scale), tol };
 }

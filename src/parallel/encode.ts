@@ -11,7 +11,7 @@
  * are in flight (read and not yet written), which bounds the memory.
  */
 import { encodeTile, fieldBasis, FieldSummary, tileGrid, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
+import { firstPassTile, keepsTiles, l2Plan, planL2, Spectra, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
 import type { PreparedTile } from '../codec/prepare.js';
 import { ErrorTally } from '../codec/tally.js';
 import type { FloatArray } from '../types.js';
@@ -181,9 +181,15 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
  */
 export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool): Promise<L2Plan> {
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
-  const first: FirstPassTile[] = [];
+  // Of each tile's first pass, the planner keeps its spectrum in a flat store (and the prepared tile only for small fields).
+  const [gr, gc] = tileGrid(spec);
+  const first = { spectra: new Spectra((spec.slices ?? 1) * gr * gc), kept: [] as PreparedTile[] };
   const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
   const post = ({ tile, m, n }: { tile: FloatArray; m: number; n: number }) => pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n }, [tile.buffer as ArrayBuffer]);
-  await inOrder(pool, tilesOf(src, spec), post, (f) => first.push(f), limit);
+  const take = (f: FirstPassTile) => {
+    first.spectra.add(f);
+    if (body.keep) first.kept.push(f.tile!);
+  };
+  await inOrder(pool, tilesOf(src, spec), post, take, limit);
   return planL2(src, spec, c.tol, c.fill, first);
 }

@@ -27,8 +27,10 @@ export interface BandReadOptions extends ReadOptions {
   location?: ArchiveLocation;
   /** A pool of worker threads kept by the caller across calls (not closed here); `threads` is then the pool's. */
   pool?: WorkerPool;
-  /** Values per band to aim at (default 2^20); a band is at least one tile row. */
+  /** Values per band to aim at (default 2^20); a band is at least one tile row, unless a tile row holds more than `maxBandCells` values. */
   bandCells?: number;
+  /** Most values in one band (default 2^22): a larger tile row is read in bands of fewer rows, a wider row in runs of tile columns (see planBands). */
+  maxBandCells?: number;
 }
 
 /** What {@link readBands} read: Archive.read's result without the values, which went to the caller band by band. */
@@ -45,6 +47,10 @@ export interface BandsRead {
 /** Bands per thread decoded ahead of the one being written. */
 const BANDS_PER_THREAD = 2;
 const BAND_CELLS = 1 << 20;
+/** Most values in one band (16 MiB of float32), whatever the tile shape; see planBands. */
+const MAX_BAND_CELLS = 1 << 22;
+/** Fields whose tiles hold more values are decoded in the calling thread alone (see readBands). */
+const ONE_THREAD_TILE_CELLS = 1 << 18;
 /** Windows of fewer values are decoded in the calling thread. */
 const MIN_PARALLEL_CELLS = 1 << 16;
 
@@ -52,7 +58,7 @@ const MIN_PARALLEL_CELLS = 1 << 16;
 interface BandRequest {
   name: string;
   options: ReadOptions;
-  /** Tiles of the band, for the count of valid values behind `achieved`. */
+  /** Tiles of the band, for the count of valid values behind `achieved`; empty when an earlier band counts them. */
   tiles: number[];
 }
 
@@ -63,12 +69,12 @@ interface BandResult {
   valid: number;
 }
 
-/** Decode one band with Archive.read, and count the valid values of its tiles. */
+/** Decode one band with Archive.read, and count the valid values of its tiles (none when its tiles are counted in an earlier band). */
 async function decodeBand(archive: Archive, req: BandRequest): Promise<BandResult> {
   const f = await archive.read(req.name, req.options);
   let valid = 0;
   for (const t of req.tiles) valid += (await archive.tileEntry(req.name, t)).valid;
-  return { values: f.values, achieved: f.achieved, prefixTiles: f.prefixTiles, valid };
+  return { values: f.values, achieved: f.achieved, prefixTiles: req.tiles.length > 0 ? f.prefixTiles : 0, valid };
 }
 
 /** Archives open in this worker, by read key. */
@@ -128,8 +134,16 @@ function shareBytes(location: ArchiveLocation): ArchiveLocation {
  * every thread has bands to decode (at most 1 / (BANDS_PER_THREAD x
  * threads) of the window's tile rows). A window of a few tile rows in one
  * thread is one band: one read, with its payloads fetched together.
+ *
+ * A tile row of more than `most` values (tall tiles across
+ * a wide window: a few KB of archive can declare them) is cut into bands of
+ * fewer rows, each decoding the tile row's tiles again; a row of more than
+ * that many values into runs of whole tile columns, one row at a time. The
+ * bands stay in C order, so the values are written as they come, and no
+ * band holds more than `most` values. Each tile is counted
+ * (for `achieved`) in the first band that decodes it only.
  */
-function planBands(archive: Archive, name: string, o: ReadOptions, cells: number, threads: number): BandRequest[] {
+function planBands(archive: Archive, name: string, o: ReadOptions, cells: number, most: number, threads: number): BandRequest[] {
   const { header: h } = archive.field(name);
   const { slices, rows, cols } = checkWindow(h, o);
   const [tr, tc] = h.tile;
@@ -137,16 +151,40 @@ function planBands(archive: Archive, name: string, o: ReadOptions, cells: number
   const width = cols[1] - cols[0];
   const tileRows = Math.ceil(rows[1] / tr) - Math.floor(rows[0] / tr);
   const share = threads > 1 ? Math.ceil(tileRows / (BANDS_PER_THREAD * threads)) : Infinity;
-  const per = tr * Math.max(1, Math.min(Math.floor(cells / (tr * width)), share));
   const keep = { ...(o.verify !== undefined ? { verify: o.verify } : {}), ...(o.bound !== undefined ? { bound: o.bound } : {}) };
   const out: BandRequest[] = [];
+  const tilesOf = (s: number, a: number, b: number, c0: number, c1: number) => {
+    const tiles: number[] = [];
+    for (let ti = Math.floor(a / tr); ti * tr < b; ti++) for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) tiles.push(s * gr * gc + ti * gc + tj);
+    return tiles;
+  };
+  const band = (s: number, a: number, b: number, c: [number, number], counted: boolean) =>
+    out.push({ name: h.name, options: { ...keep, ...(hasSlices(h) ? { slices: [s, s + 1] as [number, number] } : {}), rows: [a, b], cols: c }, tiles: counted ? tilesOf(s, a, b, c[0], c[1]) : [] });
+  if (tr * width <= most) {
+    const per = tr * Math.max(1, Math.min(Math.floor(cells / (tr * width)), share, Math.floor(most / (tr * width))));
+    for (let s = slices[0]; s < slices[1]; s++) {
+      for (let a = rows[0]; a < rows[1]; ) {
+        const b = Math.min(rows[1], (Math.floor(a / per) + 1) * per);
+        band(s, a, b, cols, true);
+        a = b;
+      }
+    }
+    return out;
+  }
+  // Rows per band within a tile row, and runs of whole tile columns when one row is too wide.
+  const per = Math.max(1, Math.floor(most / width));
+  const step = tc * Math.max(1, Math.floor(most / tc));
+  const runs: [number, number][] = [];
+  if (width <= most) runs.push(cols);
+  else for (let c = cols[0]; c < cols[1]; ) runs.push([c, (c = Math.min(cols[1], (Math.floor(c / step) + 1) * step))]);
   for (let s = slices[0]; s < slices[1]; s++) {
-    for (let a = rows[0]; a < rows[1]; ) {
-      const b = Math.min(rows[1], (Math.floor(a / per) + 1) * per);
-      const tiles: number[] = [];
-      for (let ti = Math.floor(a / tr); ti * tr < b; ti++) for (let tj = Math.floor(cols[0] / tc); tj * tc < cols[1]; tj++) tiles.push(s * gr * gc + ti * gc + tj);
-      out.push({ name: h.name, options: { ...keep, ...(hasSlices(h) ? { slices: [s, s + 1] as [number, number] } : {}), rows: [a, b], cols }, tiles });
-      a = b;
+    for (let t0 = rows[0]; t0 < rows[1]; ) {
+      const t1 = Math.min(rows[1], (Math.floor(t0 / tr) + 1) * tr);
+      for (let a = t0; a < t1; a += per) {
+        if (runs.length === 1) band(s, a, Math.min(t1, a + per), cols, a === t0);
+        else for (const run of runs) band(s, a, a + 1, run, a === t0);
+      }
+      t0 = t1;
     }
   }
   return out;
@@ -161,18 +199,24 @@ function planBands(archive: Archive, name: string, o: ReadOptions, cells: number
  * path, URL or bytes `archive` was opened from) themselves.
  */
 export async function readBands(archive: Archive, name: string | undefined, o: BandReadOptions, onBand: (values: FloatArray) => void | Promise<void>): Promise<BandsRead> {
-  const { threads: given, location, bandCells = BAND_CELLS, pool: kept, ...rest } = o;
+  const { threads: given, location, bandCells = BAND_CELLS, maxBandCells = MAX_BAND_CELLS, pool: kept, ...rest } = o;
   const threads = kept?.threads ?? checkThreads(given);
-  if (!Number.isSafeInteger(bandCells) || bandCells < 1) throw new InputError(InputCode.Option, `bandCells must be a positive integer, got ${String(bandCells)}`);
+  for (const [k, v] of [['bandCells', bandCells], ['maxBandCells', maxBandCells]] as const) {
+    if (!Number.isSafeInteger(v) || v < 1) throw new InputError(InputCode.Option, `${k} must be a positive integer, got ${String(v)}`);
+  }
   const { header: h } = archive.field(name);
   const read: ReadOptions = { ...rest };
   if (typeof read.bound === 'string') read.bound = parseBound(read.bound);
   else if (read.bound !== undefined) read.bound = checkBound(read.bound as Bound);
   const { shape } = readShape(archive, h.name, read);
-  // Below MIN_PARALLEL_CELLS starting workers costs more than decoding here.
   const cells = shape.reduce((a, b) => a * b, 1);
-  const bands = planBands(archive, h.name, read, bandCells, cells < MIN_PARALLEL_CELLS ? 1 : threads);
-  const workers = cells < MIN_PARALLEL_CELLS ? 1 : Math.min(threads, bands.length);
+  // Below MIN_PARALLEL_CELLS starting workers costs more than decoding here. Tiles of more than
+  // ONE_THREAD_TILE_CELLS are decoded in one thread: each thread decoding them carries about 100 MB
+  // of freed tile buffers not yet collected (peak RSS of unpack to .npy of a constant 8192 x 8192
+  // float32 field of 1024 x 1024 tiles, /usr/bin/time -v: 318 MB on two threads, 208 MB on one).
+  const one = cells < MIN_PARALLEL_CELLS || h.tile[0] * h.tile[1] > ONE_THREAD_TILE_CELLS;
+  const bands = planBands(archive, h.name, read, bandCells, maxBandCells, one ? 1 : threads);
+  const workers = one ? 1 : Math.min(threads, bands.length);
   if (workers > 1 && location === undefined) throw new InputError(InputCode.Option, 'reading with more than one thread needs the location the archive was opened from');
   const shared = workers > 1 ? shareBytes(location!) : location;
   // The calling thread decodes bands too (from its own archive), as one of the threads.

@@ -128,6 +128,38 @@ describe('readBands: a field band by band, on worker threads', () => {
     }
   }, 60_000);
 
+  it('cuts a tile row of more than maxBandCells values into bands of fewer rows, and a wider row into runs of tile columns, in C order', async () => {
+    // Volcano (61 rows x 87 columns) in 16 x 24 tiles, progressive and read under a looser bound too, so prefix reads are counted.
+    const v = volcano();
+    const bytes = lib.pack(v.values, v.shape, { bound: 'abs:0.01', tile: [16, 24], progressive: true });
+    const archive = await lib.open(bytes);
+    for (const window of [{}, { rows: [5, 58] as [number, number], cols: [3, 80] as [number, number] }]) {
+      for (const bound of [undefined, 'abs:2']) {
+        const o = { ...window, ...(bound ? { bound } : {}) };
+        const want = await archive.read(undefined, o);
+        // A tile row (16 rows x up to 87 columns) is more than 500 values: bands of 5 or 6 rows. A row is more than 50: runs of up to 48 columns, a row at a time.
+        for (const most of [500, 50]) {
+          const parts: Float64Array[] = [];
+          const got = await lib.readBands(archive, undefined, { ...o, threads: 1, maxBandCells: most }, (x) => void parts.push(x as Float64Array));
+          for (const p of parts) expect(p.length).toBeLessThanOrEqual(most);
+          expect(parts.length).toBeGreaterThan(most === 500 ? 8 : 60);
+          const joined = new Float64Array(want.values.length);
+          let at = 0;
+          for (const p of parts) {
+            joined.set(p, at);
+            at += p.length;
+          }
+          expect(at).toBe(want.values.length);
+          expectSameBytes(joined, want.values, `most ${most}`);
+          // Each tile counted once, as Archive.read counts it.
+          expect(got.prefixTiles).toBe(want.prefixTiles);
+          expect(got.achieved.maxErr).toBe(want.achieved.maxErr);
+          expect(got.achieved.rmse).toBeCloseTo(want.achieved.rmse, 12);
+        }
+      }
+    }
+  }, 60_000);
+
   it('a damaged tile fails the read with the FormatError Archive.read gives', async () => {
     const bytes = big.bytes;
     const archive = await lib.open(bytes);

@@ -1,0 +1,104 @@
+/**
+ * `rankfield unpack` writes band by band (issue 15): CSV text of a field
+ * that spans several bands, one .npy per field of a folder output (and none
+ * left when a later field fails), and the size of a large output said before
+ * it is written. The values are compared with what the library's own
+ * Archive.read decodes; the .npy layout with the NumPy format description
+ * (NEP 1: magic, version 1.0, little-endian header length, a Python dict
+ * literal padded to a multiple of 64 bytes; from memory).
+ */
+import { closeSync, mkdirSync, openSync, readdirSync, readFileSync, readSync, statSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { formatCsv } from '../../src/cli/unpack.js';
+import { ArchiveBuilder, open, pack } from '../../src/index.js';
+import { FileSink } from '../../src/io/file-sink.js';
+import { formatNpy } from '../../src/io/npy.js';
+import { CLI_TIMEOUT, ensureBuilt, rf, tempDir } from './helpers.js';
+
+const { dir, remove } = tempDir();
+const ROWS = 300;
+const COLS = 260;
+const values = Float32Array.from({ length: ROWS * COLS }, (_, k) => Math.sin(k / 97) * 10 + Math.cos((k % COLS) / 7));
+
+beforeAll(() => {
+  ensureBuilt();
+  // 32 x 32 tiles: 10 tile rows, so two threads read at least four bands.
+  writeFileSync(join(dir, 'f.rfz'), pack(values, [ROWS, COLS], { bound: 'abs:0.01', tile: 32 }));
+  // Three slices of 100 x 260, packed from an N-D .npy.
+  writeFileSync(join(dir, 's.npy'), formatNpy({ data: values, shape: [3, 100, COLS], dtype: 'f32' }));
+}, CLI_TIMEOUT);
+afterAll(remove);
+
+describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
+  it('writes CSV of a field over several bands as the text of the whole field', async () => {
+    const r = rf(['unpack', 'f.rfz', '-o', 'f.csv', '--threads', '2'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    const a = await open(readFileSync(join(dir, 'f.rfz')));
+    const whole = await a.read();
+    expect(readFileSync(join(dir, 'f.csv'), 'utf8')).toBe(new TextDecoder().decode(formatCsv(whole.values, whole.shape, ['y', 'x'])));
+  });
+
+  it('writes CSV of a field of slices with running indexes across bands', async () => {
+    const p = rf(['pack', 's.npy', '-o', 's.rfz', '--bound', 'abs:0.01', '--tile', '32'], dir);
+    expect(p.code, p.stderr).toBe(0);
+    const r = rf(['unpack', 's.rfz', '-o', 's.csv', '--threads', '2'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    const a = await open(readFileSync(join(dir, 's.rfz')));
+    const whole = await a.read();
+    const text = readFileSync(join(dir, 's.csv'), 'utf8');
+    expect(text).toBe(new TextDecoder().decode(formatCsv(whole.values, whole.shape, ['slice', 'row', 'col'])));
+    expect(text.split('\n').at(-2)).toBe(`2,99,259,${String(whole.values[whole.values.length - 1])}`);
+  });
+
+  it('writes one .npy per field, and leaves none when a later field fails', async () => {
+    const good = join(dir, 'two.rfz');
+    const sink = FileSink.create(good);
+    const b = new ArchiveBuilder(sink);
+    b.add(values, [ROWS, COLS], { bound: 'abs:0.01', tile: 32, name: 'a' });
+    b.add(values, [ROWS, COLS], { bound: 'abs:0.01', tile: 32, name: 'b' });
+    b.finish();
+    sink.close();
+    mkdirSync(join(dir, 'out-ok'));
+    mkdirSync(join(dir, 'out-bad'));
+    const r = rf(['unpack', 'two.rfz', '-o', 'out-ok/', '--threads', '2'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(statSync(join(dir, 'out-ok', 'b.npy')).size).toBe(128 + ROWS * COLS * 4);
+    // A flipped byte in the last tile of field b: its checksum fails after a.npy was written.
+    const bytes = readFileSync(good);
+    const a = await open(bytes);
+    const e = await a.tileEntry('b', 80);
+    bytes[e.offset + (e.length >> 1)] ^= 0x40;
+    writeFileSync(join(dir, 'bad.rfz'), bytes);
+    const f = rf(['unpack', 'bad.rfz', '-o', 'out-bad/', '--threads', '2'], dir);
+    expect(f.code).toBe(2);
+    expect(f.stderr.trim().split('\n')).toHaveLength(1);
+    expect(f.stderr).toMatch(/^rankfield: error: .*tile 80/);
+    expect(readdirSync(join(dir, 'out-bad'))).toEqual([]);
+  });
+
+  it('says how many bytes a large output takes before writing it (a small archive of a constant field)', () => {
+    const side = 4096;
+    const sink = FileSink.create(join(dir, 'const.rfz'));
+    const b = new ArchiveBuilder(sink);
+    b.addBands((_r0, count) => new Float32Array(count * side).fill(1.5), [side, side], 'f32', { bound: 'abs:0.01', tile: 1024 });
+    b.finish();
+    sink.close();
+    expect(statSync(join(dir, 'const.rfz')).size).toBeLessThan(4096);
+    const r = rf(['unpack', 'const.rfz', '-o', 'const.npy', '--threads', '2'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    const size = statSync(join(dir, 'const.npy')).size;
+    expect(size).toBe(128 + side * side * 4);
+    expect(r.stderr).toBe(`rankfield: note: writing ${size} bytes (4096x4096 f32) to 'const.npy'\n`);
+    const head = Buffer.alloc(136);
+    const fd = openSync(join(dir, 'const.npy'), 'r');
+    readSync(fd, head, 0, 136, 0);
+    closeSync(fd);
+    expect(head.subarray(0, 6).toString('latin1')).toBe('\x93NUMPY');
+    expect(head.toString('latin1', 10, 128)).toMatch(/'shape': \(4096, 4096\)/);
+    expect(head.readFloatLE(128)).toBe(1.5);
+    const q = rf(['unpack', 'const.rfz', '-o', 'const2.npy', '--quiet', '--threads', '2'], dir);
+    expect(q.code, q.stderr).toBe(0);
+    expect(q.stderr).toBe('');
+  });
+});

@@ -1,0 +1,132 @@
+/**
+ * The L2 plan (src/codec/plan-l2.ts): what it keeps of the first pass, and
+ * the field-wide Eckart-Young cut made by merging the tiles' spectra.
+ *
+ * Eckart-Young (Eckart and Young, Psychometrika 1, 1936; from memory): the
+ * squared Frobenius error of the best rank-r approximation is the sum of the
+ * squares of the discarded singular values, so a shared budget of squared
+ * error is spent best by discarding the field-wide smallest values first.
+ * The greedy rule stated in the reference below (visit every value in
+ * ascending order, cut while it fits, close a tile whose next value does
+ * not fit) is common practice, no source.
+ */
+import { describe, expect, it } from 'vitest';
+import { eckartYoungPlans, firstPass, keepsTiles, planL2, Spectra } from '../../src/codec/plan-l2.js';
+import { memoryBands, type FieldSpec } from '../../src/codec/tiles.js';
+import { mulberry32 } from '../rng.js';
+
+/** The cut for one share, stated directly: every value of every tile in one sorted list. */
+function referenceCut(spectra: number[][], budget: number, share: number): { total: number; cut: number[]; ranks: number[] } {
+  const order: [number, number, number][] = [];
+  spectra.forEach((s, t) => {
+    let key = 0;
+    for (let k = s.length - 1; k >= 0; k--) {
+      key = Math.max(key, s[k]);
+      order.push([key, t, s[k]]);
+    }
+  });
+  // Array.prototype.sort is stable (ECMAScript 2019; from memory): equal keys of one tile keep their order.
+  order.sort((a, b) => a[0] - b[0] || a[1] - b[1]);
+  const cut = spectra.map(() => 0);
+  const ranks = spectra.map((s) => s.length);
+  const closed = spectra.map(() => false);
+  let total = 0;
+  for (const [, t, v2] of order) {
+    if (closed[t]) continue;
+    if (!(total + v2 <= share * budget)) {
+      closed[t] = true;
+      continue;
+    }
+    total += v2;
+    cut[t] += v2;
+    ranks[t] -= 1;
+  }
+  return { total, cut, ranks };
+}
+
+/** A store holding these spectra, every tile 8 x 8 with all cells valid. */
+function store(spectra: number[][]): Spectra {
+  const s = new Spectra(spectra.length);
+  for (const v of spectra) s.add({ sv2: Float64Array.from(v), dims: [8, 8, 64] });
+  return s;
+}
+
+/** Random spectra drawn from a few values, so that many values tie within and across tiles. */
+function spectraOf(seed: number, tiles: number, descending: boolean): number[][] {
+  const rnd = mulberry32(seed);
+  const levels = [0, 0.25, 0.5, 1, 2, 3, 50, 1e4];
+  return Array.from({ length: tiles }, () => {
+    const k = Math.floor(rnd() * 9); // 0..8 values; 0 stands for a tile with no usable values
+    const v = Array.from({ length: k }, () => levels[Math.floor(rnd() * levels.length)]);
+    return descending ? v.sort((a, b) => b - a) : v;
+  });
+}
+
+describe('eckartYoungPlans', () => {
+  const shares = [0.3, 0.5, 0.8];
+  for (const [label, descending] of [
+    ['descending spectra, as the SVD gives them', true],
+    ['spectra out of order (keys are then running maxima)', false],
+  ] as const) {
+    it(`cuts exactly the values the sorted-list rule cuts, with the same sums: ${label}`, () => {
+      for (let seed = 1; seed <= 40; seed++) {
+        const sp = spectraOf(seed, 1 + (seed % 17) * 5, descending);
+        const budget = 4 + (seed % 7) * 9;
+        const tol = 0.5;
+        const plans = eckartYoungPlans(store(sp), budget, shares, tol);
+        shares.forEach((share, i) => {
+          const ref = referenceCut(sp, budget, share);
+          const p = plans[i];
+          if (p === null) return;
+          expect(Array.from(p.ranks), `seed ${seed} share ${share}`).toEqual(ref.ranks);
+          // The steps follow from the total cut (summed in the same order, so bit for bit) and the ranks.
+          const q = (budget - ref.total) * 0.9;
+          let sumRN = 0;
+          for (const r of ref.ranks) sumRN += r * 8;
+          expect(p.dw).toBe(sumRN > 0 ? tol * Math.sqrt((6 * q) / sumRN) : tol);
+          // Allotments add up to a hair inside the budget (0.999 of it), and a tile with more cut gets no less.
+          const sum = p.allot.reduce((a, b) => a + b, 0);
+          expect(sum).toBeLessThanOrEqual(budget);
+          expect(sum).toBeCloseTo(0.999 * budget, 9);
+          for (let t = 1; t < sp.length; t++) if (ref.ranks[t] === ref.ranks[t - 1] && ref.cut[t] > ref.cut[t - 1]) expect(p.allot[t]).toBeGreaterThan(p.allot[t - 1]);
+        });
+      }
+    });
+  }
+});
+
+describe('Spectra (what the planner keeps of the first pass)', () => {
+  it('holds 8 bytes per singular value and six 32-bit numbers per tile, and no tile data', () => {
+    const tiles = 5000;
+    const s = new Spectra(tiles);
+    const sv2 = Float64Array.from({ length: 64 }, (_, k) => 64 - k);
+    for (let t = 0; t < tiles; t++) s.add({ sv2, dims: [64, 64, 4096] });
+    const values = tiles * 64;
+    // The values fill whole chunks of 2^20 (8 MiB), so the store is at most one chunk above the values themselves.
+    expect(s.bytes).toBeGreaterThanOrEqual(8 * values + 24 * tiles);
+    expect(s.bytes).toBeLessThanOrEqual(8 * values + 24 * tiles + 8 * (1 << 20));
+    // Against the float32 tiles it summarises (64 x 64 x 4 bytes each): about 30 times less.
+    expect(8 * values + 24 * tiles).toBeLessThan((tiles * 64 * 64 * 4) / 30);
+    expect(Array.from(s.values(4321))).toEqual(Array.from(sv2));
+    expect(() => s.add({ sv2, dims: [64, 64, 4096] })).toThrow(/more than the 5000 tiles/);
+  });
+
+  it('keeps prepared tiles only for small fields; a larger field is planned from spectra and sampled tiles alone', () => {
+    const rows = 2050;
+    const cols = 2050; // 4.2 M cells: past the 4 M cells whose prepared tiles are kept
+    expect(keepsTiles({ rows: 2048, cols: 2048 })).toBe(true);
+    expect(keepsTiles({ rows, cols })).toBe(false);
+    // A field of 4 x 4 tiles of 2 x 2 cells, planned with the spectra store of its first pass.
+    const spec: FieldSpec = { name: 'f', dtype: 'f64', rows: 8, cols: 8, tileRows: 2, tileCols: 2, bound: { mode: 'psnr', value: 30 }, fill: null };
+    const rnd = mulberry32(7);
+    const values = Float64Array.from({ length: 64 }, (_, k) => Math.sin(k / 5) + 0.1 * rnd());
+    const src = memoryBands(values, 8);
+    const first = firstPass(src, spec, 0.05, null);
+    expect(first.spectra.count).toBe(16);
+    expect(first.spectra.length.every((k) => k === 2)).toBe(true);
+    const plan = planL2(src, spec, 0.05, null, first);
+    // The plan keeps per tile one allotment (and, for a rank plan, one rank): nothing that grows with the tile.
+    expect(plan.data.allot.length).toBe(16);
+    expect(plan.data.ranks.length === 16 || plan.data.ranks.length === 0).toBe(true);
+  });
+});
