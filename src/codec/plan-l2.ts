@@ -11,7 +11,8 @@ import { forEachTile, tileGrid, type BandSource, type FieldSpec } from './tiles.
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
-import { encodeL2, encodePointwise, exactPayload, rankZeroForMse } from './tile-encode.js';
+import { payloadHead } from './payload.js';
+import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, rankZeroForMse, residualForMse } from './tile-encode.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
@@ -50,10 +51,19 @@ export interface L2Plan {
 /** A tile's payload under a plan, before its allotment is enforced. */
 function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
   if (p.kind === 'rank') return encodeL2(t, p.ranks[index], p.c, p.dw);
-  // The pointwise coder at ePrime, or a rank-0 residual whose codes are chosen for rate as well as error: the smaller.
-  const plain = encodePointwise(t, p.ePrime);
-  const rdo = rankZeroForMse(t, 0.97 * p.tol * p.tol);
-  return rdo !== null && rdo.length < plain.length ? rdo : plain;
+  // The pointwise coder at ePrime, or a residual whose codes are chosen for rate as well as error, at
+  // rank 0 and at the rank the pointwise coder chose: the smallest.
+  const mse = 0.97 * p.tol * p.tol;
+  let best = encodePointwise(t, p.ePrime);
+  const rdo = rankZeroForMse(t, mse);
+  if (rdo !== null && rdo.length < best.length) best = rdo;
+  const r = payloadHead(best).rank;
+  if (r > 0) {
+    const f = pointwiseFactors(t, r, p.ePrime);
+    const withFactors = f && residualForMse(t, f, mse);
+    if (withFactors && withFactors.length < best.length) best = withFactors;
+  }
+  return best;
 }
 
 /** What the first pass learns of one tile (and the tile itself, prepared, while a field is small enough to keep it). */

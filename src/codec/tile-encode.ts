@@ -324,59 +324,79 @@ function diffBits(d: number): number {
 }
 
 /**
- * A rank-0 payload for a mean squared error allotment (L2 bounds) whose
- * residual codes are chosen for rate as well as distortion: in raster
- * order each code is the nearest one, or the next one towards its
- * prediction when that lowers (error / step)^2 + w x bits of the
- * difference (greedy rate-distortion optimised quantization; the usual
- * Lagrangian trade, e.g. Sullivan and Wiegand, "Rate-distortion
+ * A payload for a mean squared error allotment (L2 bounds): the factors `f`
+ * (none: rank 0) and a residual whose codes are chosen for rate as well as
+ * distortion: in raster order each code is the nearest one, or the next
+ * one towards its prediction when that lowers (error / step)^2 + w x bits
+ * of the difference (greedy rate-distortion optimised quantization; the
+ * usual Lagrangian trade, e.g. Sullivan and Wiegand, "Rate-distortion
  * optimization for video compression", IEEE Signal Processing Magazine
  * 15(6), 1998). Finer steps with such codes meet the same error in fewer
  * bytes than uniform rounding at low rates. Steps and weights are tried
  * with the predictor plain rounding picks, then Lorenzo, the median and the
- * blend at the best of them. Returns the smallest payload whose estimated squared
- * error stays within 98% of `mse` per valid cell, or null.
+ * blend at the best of them. Returns the smallest payload whose estimated
+ * squared error stays within 98% of `mse` per valid cell, or null.
  */
-export function rankZeroForMse(t: PreparedTile, mse: number): Uint8Array | null {
+export function residualForMse(t: PreparedTile, f: Factors | null, mse: number): Uint8Array | null {
   if (!t.finite || t.valid === 0 || !(mse > 0) || !Number.isFinite(mse)) return null;
   const { m, n } = t;
   const codes = t.classes.codes;
   const center = t.center;
+  // What the residual corrects: the decoder's own low-rank part and centre.
+  const base = new Float64Array(m * n);
+  if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
+  else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
   const unit = Math.sqrt(12 * mse);
-  const plainKind = correct(t, null, unit / 2, unit).predictor;
+  const plainKind = correct(t, f, unit / 2, unit).predictor;
   let best: Uint8Array | null = null;
   let bestAt: [number, number] = [1, 0];
   const one = (kind: number, a: number, w: number): void => {
     const step = a * unit;
-    {
-      const q = new Int32Array(m * n);
-      const d = new Int32Array(m * n);
-      let se = 0;
-      const ok = walkPredictor(q, m, n, kind, (c, p) => {
-        if (codes[c] !== Cell.Valid) return Math.abs(p) <= MAX_INT ? p : Number.NaN;
-        const x = (t.orig[c] - center) / step;
-        let v = Math.round(x);
-        if (v !== p) {
-          const alt = v + (p > v ? 1 : -1);
-          if ((x - alt) * (x - alt) + w * diffBits(alt - p) < (x - v) * (x - v) + w * diffBits(v - p)) v = alt;
-        }
-        if (Math.abs(v) > MAX_INT || Math.abs(v - p) > MAX_INT) return Number.NaN;
-        d[c] = v - p;
-        se += (x - v) * (x - v) * step * step;
-        return v;
-      });
-      if (!ok || !(se <= 0.98 * mse * t.valid)) return;
-      const payload = lowRankPayload(t, null, { center, step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
-      if (best === null || payload.length < best.length) {
-        best = payload;
-        bestAt = [a, w];
+    const q = new Int32Array(m * n);
+    const d = new Int32Array(m * n);
+    let se = 0;
+    const ok = walkPredictor(q, m, n, kind, (c, p) => {
+      if (codes[c] !== Cell.Valid) return Math.abs(p) <= MAX_INT ? p : Number.NaN;
+      const x = (t.orig[c] - base[c]) / step;
+      let v = Math.round(x);
+      if (v !== p) {
+        const alt = v + (p > v ? 1 : -1);
+        if ((x - alt) * (x - alt) + w * diffBits(alt - p) < (x - v) * (x - v) + w * diffBits(v - p)) v = alt;
       }
+      if (Math.abs(v) > MAX_INT || Math.abs(v - p) > MAX_INT) return Number.NaN;
+      d[c] = v - p;
+      se += (x - v) * (x - v) * step * step;
+      return v;
+    });
+    if (!ok || !(se <= 0.98 * mse * t.valid)) return;
+    const payload = lowRankPayload(t, f, { center, step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
+    if (best === null || payload.length < best.length) {
+      best = payload;
+      bestAt = [a, w];
     }
   };
   // The step and weight with the predictor plain rounding picks, then the other predictors at the best of them.
   for (const a of RDO_STEPS) for (const w of RDO_WEIGHTS) one(plainKind, a, w);
   for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) if (kind !== plainKind) one(kind, ...bestAt);
   return best;
+}
+
+/** {@link residualForMse} at rank 0. */
+export function rankZeroForMse(t: PreparedTile, mse: number): Uint8Array | null {
+  return residualForMse(t, null, mse);
+}
+
+/**
+ * The factors of rank r that the pointwise search quantizes for bound e,
+ * or null: rounding noise per cell of (FACTOR_NOISE e)^2 from each factor,
+ * r c^2 / (12 n) and r dw^2 / (12 m).
+ */
+export function pointwiseFactors(t: PreparedTile, r: number, e: number): Factors | null {
+  const { m, n } = t;
+  if (!(r > 0 && r <= Math.min(m, n))) return null;
+  const dw = FACTOR_NOISE * e * Math.sqrt((12 * m) / r);
+  const c = FACTOR_NOISE * e * Math.sqrt((12 * n) / r);
+  return quantizeFactors(t, r, c, dw);
 }
 
 /**
@@ -450,7 +470,6 @@ const MIN_RANKS_TRIED = 4;
 /** Try rank 1, 2, ... payloads until the size has not fallen twice running (after rank MIN_RANKS_TRIED); the smallest wins. */
 function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array {
   let s = ensureSvd(t, PARTIAL_RANK);
-  const { m, n } = t;
   const tol = s.s[0] * 1e-13;
   const numericalRank = () => {
     let k = 0;
@@ -468,10 +487,7 @@ function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array 
       numRank = numericalRank();
     }
     if (r > numRank) break;
-    // Rounding noise per cell of (FACTOR_NOISE e)^2 from each factor: r c^2 / (12 n) and r dw^2 / (12 m).
-    const dw = FACTOR_NOISE * e * Math.sqrt((12 * m) / r);
-    const c = FACTOR_NOISE * e * Math.sqrt((12 * n) / r);
-    const f = quantizeFactors(t, r, c, dw);
+    const f = pointwiseFactors(t, r, e);
     if (!f) break;
     const p = lowRankPayload(t, f, correct(t, f, e));
     if (p.length < best.length) best = p;

@@ -1,0 +1,63 @@
+/**
+ * The residual whose codes are chosen for rate as well as error (L2
+ * bounds), on top of quantized factors: checked on a real gridded field,
+ * vega-datasets 3.2.1 annual-precip.json (NOAA CFSv2 2016 annual
+ * precipitation, 360 x 168), against the definition of the mean squared
+ * error (common usage, from memory), with the payload decoded by the
+ * library's decoder.
+ */
+import { readFileSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
+import { describe, expect, it } from 'vitest';
+import { payloadHead } from '../../src/codec/payload.js';
+import { prepareTile } from '../../src/codec/prepare.js';
+import { decodeTile } from '../../src/codec/tile-decode.js';
+import { pointwiseFactors, rankZeroForMse, residualForMse } from '../../src/codec/tile-encode.js';
+
+function precipTile(m: number, n: number): Float32Array {
+  const path = fileURLToPath(new URL('../../node_modules/vega-datasets/data/annual-precip.json', import.meta.url));
+  const g = JSON.parse(readFileSync(path, 'utf8')) as { width: number; height: number; values: (number | null)[] };
+  // A block of the tropics and mid-latitudes without missing cells: rows 40.., columns 100..
+  const out = new Float32Array(m * n);
+  for (let i = 0; i < m; i++) for (let j = 0; j < n; j++) out[i * n + j] = g.values[(40 + i) * g.width + 100 + j] ?? Number.NaN;
+  return out;
+}
+
+function mseOf(a: ArrayLike<number>, b: ArrayLike<number>): number {
+  let s = 0;
+  for (let c = 0; c < a.length; c++) s += (a[c] - b[c]) ** 2;
+  return s / a.length;
+}
+
+describe('residualForMse', () => {
+  it('keeps the factors it is given and meets the squared-error allotment on the decoded values', () => {
+    const [m, n] = [64, 96];
+    const values = precipTile(m, n);
+    expect(values.every(Number.isFinite)).toBe(true);
+    const t = prepareTile(values, m, n, 'f32', null);
+    let lo = Infinity;
+    let hi = -Infinity;
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    // PSNR 60 dB over the block's range: RMSE limit range / 10^3 (PSNR = 20 log10(range / RMSE), common usage).
+    const tol = (hi - lo) / 1000;
+    const mse = 0.97 * tol * tol;
+    for (const rank of [0, 2, 5]) {
+      const f = rank > 0 ? pointwiseFactors(t, rank, Math.sqrt(3) * tol) : null;
+      if (rank > 0) expect(f).not.toBeNull();
+      const payload = rank > 0 ? residualForMse(t, f, mse) : rankZeroForMse(t, mse);
+      expect(payload).not.toBeNull();
+      expect(payloadHead(payload!).rank).toBe(rank);
+      const back = decodeTile(payload!, { m, n, dtype: 'f32', fill: null, where: 'test' });
+      expect(mseOf(back, values), `rank ${rank}`).toBeLessThanOrEqual(mse);
+    }
+  });
+
+  it('refuses what it cannot code: no valid cell, or an allotment that is not a positive finite number', () => {
+    const t = prepareTile(precipTile(8, 8), 8, 8, 'f32', null);
+    expect(residualForMse(t, null, 0)).toBeNull();
+    expect(residualForMse(t, null, Number.NaN)).toBeNull();
+    expect(residualForMse(t, null, Infinity)).toBeNull();
+    const empty = prepareTile(new Float32Array(16).fill(Number.NaN), 4, 4, 'f32', null);
+    expect(residualForMse(empty, null, 1)).toBeNull();
+  });
+});
