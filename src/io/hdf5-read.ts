@@ -41,7 +41,7 @@ const DIM_ONLY = 'This is a netCDF dimension but not a netCDF variable';
 
 /** The h5wasm module (Node build). */
 export type H5 = typeof import('h5wasm/node').default;
-type Meta = { type: number; size: number; signed: boolean; maxshape: number[] | null; shape: number[] | null };
+type Meta = { type: number; size: number; signed: boolean; vlen?: boolean; maxshape: number[] | null; shape: number[] | null };
 type H5Attr = { metadata: Meta; value: unknown };
 type H5Node = {
   path: string;
@@ -116,6 +116,18 @@ function typedValues(v: unknown, type: NcType, where: string, path: string): NcW
   if (type === 'double' && v instanceof Float64Array) return v;
   const n = numbers(v, where, path);
   return type === 'byte' ? Int8Array.from(n) : type === 'short' ? Int16Array.from(n) : type === 'int' ? Int32Array.from(n) : type === 'float' ? Float32Array.from(n) : Float64Array.from(n);
+}
+
+/** The bytes of a char variable that h5wasm gives as one-character strings ('' for a zero byte). */
+function charBytes(v: unknown, where: string, path: string): Uint8Array {
+  const list = Array.isArray(v) ? v : [v];
+  const out = new Uint8Array(list.length);
+  list.forEach((x, i) => {
+    const text = String(x);
+    if (text.length > 1 || text.charCodeAt(0) > 0xff) fileError(path, `${where} holds a character that is not one byte`);
+    out[i] = text.length === 0 ? 0 : text.charCodeAt(0);
+  });
+  return out;
 }
 
 /** Attributes of a node, without the bookkeeping ones, each with its classic type. */
@@ -207,8 +219,10 @@ function readOpen(lib: H5, path: string): NcWriteFile {
       const name = flatName(d.path);
       if (isScale(d) && String(d.attrs.NAME?.value ?? '').startsWith(DIM_ONLY)) continue;
       const where = `variable '${d.path}'`;
-      if (d.metadata.type === H5T_STRING) fileError(path, `${where} holds strings, which NetCDF classic cannot hold; pack the other variables by naming them with --var`);
-      const type = classicType(d.metadata);
+      // NetCDF-4 stores a char variable as HDF5 strings of one byte each (netCDF User's Guide, "NetCDF-4 format": NC_CHAR; from memory): the classic char type.
+      const oneByteText = d.metadata.type === H5T_STRING && d.metadata.size === 1 && !d.metadata.vlen;
+      if (d.metadata.type === H5T_STRING && !oneByteText) fileError(path, `${where} holds strings (NetCDF-4 type string), which rankfield does not carry: remove the variable first (for example with nccopy -V listing the others)`);
+      const type = oneByteText ? 'char' : classicType(d.metadata);
       if (type === null) fileError(path, `${where} has an HDF5 type that NetCDF classic cannot hold (class ${d.metadata.type}, ${d.metadata.size} bytes)`);
       const shape = d.metadata.shape ?? [];
       let names: string[];
@@ -227,7 +241,8 @@ function readOpen(lib: H5, path: string): NcWriteFile {
         if (had === undefined) dims.set(dn, { size: shape[i], unlimited: false });
       });
       const { attrs, attrTypes } = attributes(d, path);
-      variables.push({ name, dims: names, type, attrs, attrTypes, values: typedValues(d.value, type, where, path) });
+      const values = oneByteText ? charBytes(d.value, where, path) : typedValues(d.value, type, where, path);
+      variables.push({ name, dims: names, type, attrs, attrTypes, values });
     }
     // The record dimension stays unlimited only where every variable using it has it first (the classic format's rule).
     const rec = record !== null && variables.every((v) => v.dims.indexOf(record!) <= 0) ? record : null;

@@ -165,6 +165,31 @@ group: ocean {
     for (let i = 0; i < 24; i++) expect(Math.abs(db[i] - da[i])).toBeLessThanOrEqual(0.001);
   });
 
+  it('a char variable of a NetCDF-4 file (HDF5 strings of one byte each) is carried: pack, unpack --netcdf4, and ncdump shows the same text', () => {
+    // netCDF-4 stores NC_CHAR as one-byte HDF5 strings (netCDF User's Guide, "NetCDF-4 format"; from memory); ncgen -k nc4 makes it.
+    const cdl = `netcdf s {
+dimensions:
+  y = 4 ;
+  x = 5 ;
+  n = 2 ;
+  len = 6 ;
+variables:
+  float sst(y, x) ;
+    sst:units = "degC" ;
+  char station_name(n, len) ;
+data:
+  sst = 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17, 18, 19, 20 ;
+  station_name = "alpha", "beta" ;
+}
+`;
+    ncgen(cdl, join(t.dir, 'chars4.nc'), 'nc4');
+    expect(rf(['pack', 'chars4.nc', '-o', 'chars4.rfz', '--bound', 'abs:0.01', '-q'], t.dir).code).toBe(0);
+    expect(rf(['unpack', 'chars4.rfz', '-o', 'chars4-back.nc', '--netcdf4', '-q'], t.dir).code).toBe(0);
+    const dump = execFileSync(NCDUMP, [join(t.dir, 'chars4-back.nc')], { encoding: 'utf8' });
+    expect(dump).toMatch(/char station_name\(n, len\) ;/);
+    expect(dump).toMatch(/station_name =\s+"alpha",\s+"beta" ;/);
+  });
+
   it('--netcdf4 is refused for other outputs', () => {
     expectCliError(rf(['unpack', 'rec.rfz', '-o', 'x.npy', '--netcdf4'], t.dir), /--netcdf4 applies to NetCDF output/);
   });
