@@ -16,9 +16,11 @@ export interface PackOptions {
   bound: Bound | string;
   /**
    * Tile size: [rows, cols], or one number for square tiles. Default 'auto':
-   * 64, 128 and 256 square tiles and the whole field (when it holds at most
-   * 2^18 cells) are tried on a sample and the one that packs smallest is
-   * kept. Smaller tiles make window reads cheaper; set a size to fix it.
+   * 64, 128 and 256 square tiles, 512 on fields of at least 1024 x 1024, the
+   * whole field (when it holds at most 2^18 cells) and, on thin fields,
+   * strips across them are each tried on tiles spread over the field, and
+   * the one that packs smallest is kept. Smaller tiles make window reads
+   * cheaper; set a size to fix it.
    */
   tile?: number | [number, number] | 'auto';
   /**
