@@ -273,7 +273,7 @@ export class Archive {
     if (method !== e.method || rank !== e.rank) {
       throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${method} rank ${rank}, the index says method ${e.method} rank ${e.rank}`);
     }
-    const [m, n] = tileDims(h, t);
+    const [m, n] = tileShape(h, t);
     const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank });
     if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== e.value_crc) {
       throw new FormatError(FormatCode.Checksum, `${where}: decoded values differ from those verified at encode time (value CRC-32 mismatch)`);
@@ -405,7 +405,7 @@ export class Archive {
     if (crc32(bytes) !== crc) throw new FormatError(FormatCode.Checksum, `${where}: prefix of ${bytes.length} bytes fails its CRC-32 (payload at offset ${e.offset})`);
     const groups = prefixLengths(bytes).indexOf(bytes.length);
     if (groups < 0) throw new FormatError(FormatCode.Malformed, `${where}: the index lists a prefix of ${bytes.length} bytes that does not end at a factor group`);
-    const [m, n] = tileDims(h, t);
+    const [m, n] = tileShape(h, t);
     return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, groups });
   }
 
@@ -572,11 +572,6 @@ export function checkWindow(h: FieldHeader, o: ReadOptions): { slices: [number, 
 /** True when reads of the field count slices: more than one, or an N-D variable laid out as slices. */
 export function hasSlices(h: FieldHeader): boolean {
   return (h.slices ?? 1) > 1 || h.layout === 'slices';
-}
-
-/** Rows and columns of tile t of a field (kept for callers; see tileShape in schema.ts). */
-export function tileDims(h: FieldHeader, t: number): [number, number] {
-  return tileShape(h, t);
 }
 
 /** Tile t cut out of the original values (C order: slice s is rows [s * R, (s + 1) * R) of the stacked matrix). */

@@ -7,8 +7,10 @@
 
 import { InputCode, InputError } from '../errors.js';
 
-/** Element type of a field: IEEE 754 binary32 (`f32`) or binary64 (`f64`). */
-export type Dtype = 'f32' | 'f64';
+import type { Dtype } from '../types.js';
+
+/** Element type of a field (the library's one type for it, from src/types.ts), for the readers and writers that import it from here. */
+export type { Dtype };
 
 /**
  * A dense array in C (row-major) order. `data` holds the product of `shape`
