@@ -2,7 +2,7 @@
  * Solver for small symmetric positive (semi)definite systems.
  */
 
-import { exponentOf, mulPow2, scaleByPow2 } from './pow2.js';
+import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { checkShape } from './shape.js';
 
 /** Scratch for the Cholesky factor, grown on demand (the solver is not reentrant). */
@@ -29,22 +29,10 @@ let cholScratch = new Float64Array(0);
 export function solveSpd(g: Float64Array, r: number, b: Float64Array, nrhs: number): void {
   checkShape(g.length, r, r, 'solveSpd g');
   checkShape(b.length, r, nrhs, 'solveSpd b');
-  let gmax = 0;
-  let bmax = 0;
-  let probe = 0;
-  for (let i = 0; i < g.length; i++) {
-    const x = g[i];
-    probe += x * 0;
-    const ax = Math.abs(x);
-    if (ax > gmax) gmax = ax;
-  }
-  for (let i = 0; i < b.length; i++) {
-    const x = b[i];
-    probe += x * 0;
-    const ax = Math.abs(x);
-    if (ax > bmax) bmax = ax;
-  }
-  if (probe !== 0) {
+  // maxAbs is NaN when an entry is not finite.
+  const gmax = maxAbs(g);
+  const bmax = maxAbs(b);
+  if (gmax !== gmax || bmax !== bmax) {
     b.fill(NaN);
     return;
   }
