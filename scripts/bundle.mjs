@@ -15,17 +15,10 @@ import { fileURLToPath } from 'node:url';
 import { build } from 'esbuild';
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), '..');
+/** What both bundles are: one ESM file for browsers, no bundler needed by the page. */
+const common = { bundle: true, format: 'esm', platform: 'browser', target: 'es2022', legalComments: 'eof', logLevel: 'warning' };
 const outfile = join(root, 'dist', 'rankfield-decode.mjs');
-await build({
-  entryPoints: [join(root, 'src', 'decode.ts')],
-  outfile,
-  bundle: true,
-  format: 'esm',
-  platform: 'browser',
-  target: 'es2022',
-  legalComments: 'eof',
-  logLevel: 'warning',
-});
+await build({ ...common, entryPoints: [join(root, 'src', 'decode.ts')], outfile });
 console.log(`wrote ${outfile}`);
 
 /** Resolve the page's imports of the decoding entry to the decoder bundle beside it. */
@@ -36,15 +29,5 @@ const decoderOutside = {
   },
 };
 const viewfile = join(root, 'dist', 'rankfield-view.mjs');
-await build({
-  entryPoints: [join(root, 'src', 'view', 'page.ts')],
-  outfile: viewfile,
-  bundle: true,
-  format: 'esm',
-  platform: 'browser',
-  target: 'es2022',
-  legalComments: 'eof',
-  logLevel: 'warning',
-  plugins: [decoderOutside],
-});
+await build({ ...common, entryPoints: [join(root, 'src', 'view', 'page.ts')], outfile: viewfile, plugins: [decoderOutside] });
 console.log(`wrote ${viewfile}`);

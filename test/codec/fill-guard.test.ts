@@ -9,8 +9,9 @@
  * fields.
  */
 import { describe, expect, it } from 'vitest';
-import { ArchiveBuilder, InputError, MemorySink, open, pack, packAsync } from '../../src/index.js';
+import { ArchiveBuilder, MemorySink, open, pack, packAsync } from '../../src/index.js';
 import { volcano } from '../archive/datasets.js';
+import { refusal } from '../refusal.js';
 
 const g = volcano();
 /** Rows 0..19, columns 0..29 set to `sentinel` (600 of 5307 cells). */
@@ -22,15 +23,6 @@ function withSentinel(sentinel: number): Float32Array {
 /** The netCDF library's default fill value of float, 9.9692099683868690e+36 (netcdf.h NC_FILL_FLOAT; from memory). */
 const NC_FILL_FLOAT = Math.fround(9.969209968386869e36);
 
-function refusal(f: () => unknown): InputError {
-  try {
-    f();
-  } catch (e) {
-    if (e instanceof InputError) return e;
-    throw e;
-  }
-  throw new Error('no error');
-}
 
 describe('fill-value guard of the library', () => {
   it.each([

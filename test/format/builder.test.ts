@@ -6,7 +6,8 @@
  * which would leave a file that no reader opens.
  */
 import { describe, expect, it } from 'vitest';
-import { ArchiveBuilder, InputCode, InputError, MemorySink, open } from '../../src/index.js';
+import { ArchiveBuilder, InputCode, MemorySink, open } from '../../src/index.js';
+import { refusal } from '../refusal.js';
 
 const values = Float64Array.from({ length: 8 * 9 }, (_, i) => Math.sin(i / 5));
 
@@ -18,15 +19,6 @@ function finished(): { sink: MemorySink; builder: ArchiveBuilder; bytes: Uint8Ar
   return { sink, builder, bytes: sink.bytes() };
 }
 
-function refusal(f: () => unknown): InputError {
-  try {
-    f();
-  } catch (e) {
-    if (e instanceof InputError) return e;
-    throw e;
-  }
-  throw new Error('expected an InputError, nothing was thrown');
-}
 
 describe('ArchiveBuilder after finish()', () => {
   it('add() is refused, writes nothing, and the archive still opens with its one field', async () => {
