@@ -11,6 +11,7 @@ import type { Dtype, FloatArray } from '../types.js';
 import { fillMissing } from './fill.js';
 import { Cell, classify, type Classes } from './mask.js';
 import { encodeClasses } from './code-encode.js';
+import { binary32Near } from './steps.js';
 
 /** A tile made ready for encoding. */
 export interface PreparedTile {
@@ -65,7 +66,8 @@ export function prepareTile(
     else if (v !== first) constant = false;
   }
   // A constant tile keeps its value exactly as centre; otherwise the mean.
-  let center = valid === 0 ? 0 : constant ? first : sum / valid;
+  // The mean is rounded to binary32, which a payload stores in 4 bytes (any centre decodes the same way).
+  let center = valid === 0 ? 0 : constant ? first : binary32Near(sum / valid);
   if (!Number.isFinite(center)) center = 0;
   fillMissing(x, classes.codes, m, n, center);
   let finite = true;

@@ -53,3 +53,22 @@ export function stepCode(target: number): number {
   if (stepValue(code) > target) throw new RangeError(`no step code is at or below ${target}`);
   return code;
 }
+
+/**
+ * The largest binary32 value not above `x`, for a positive finite `x` in
+ * binary32's normal range; `x` itself otherwise (stored as binary64 then).
+ * Residual steps are rounded down to it, so a payload stores them in 4
+ * bytes and a smaller step never loosens a bound.
+ */
+export function binary32Below(x: number): number {
+  if (!(x >= 2 ** -126 && x < 2 ** 128)) return x;
+  const f = new Float32Array([x]);
+  if (f[0] > x) new Uint32Array(f.buffer)[0]--;
+  return f[0];
+}
+
+/** The binary32 value nearest `x` when `x` is within binary32's normal range (or 0); `x` itself otherwise. */
+export function binary32Near(x: number): number {
+  const y = Math.fround(x);
+  return y === 0 ? (x === 0 ? 0 : x) : Math.abs(y) >= 2 ** -126 && Number.isFinite(y) ? y : x;
+}

@@ -7,7 +7,7 @@ import { ByteReader } from '../format/bytes.js';
 import { printable } from '../format/schema.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
-import { Flag, KNOWN_FLAGS, Method } from './payload.js';
+import { Flag, KNOWN_FLAGS, Method, VARINT_BYTES } from './payload.js';
 import { lowRank, MAX_PREDICTOR, reconstruct, unpredict } from './reconstruct.js';
 import { CodeStreamError, decodeClasses, decodeInts } from './code-decode.js';
 import { MAX_INT, readSection } from './section.js';
@@ -82,14 +82,17 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (flags & ~KNOWN_FLAGS) {
     throw new FormatError(FormatCode.Unsupported, `${where}: unknown payload flags 0x${flags.toString(16)} at ${r.unit} ${r.offset - 1} (this reader knows 0x${KNOWN_FLAGS.toString(16)})`);
   }
-  const rank = r.u16('rank');
-  if (rank > Math.min(m, n)) throw malformed(where, `rank ${rank} at ${r.unit} ${r.offset - 2} exceeds the tile's ${m}x${n}`);
+  const rankAt = r.offset;
+  const rank = r.varint('rank', VARINT_BYTES);
+  if (rank > Math.min(m, n)) throw malformed(where, `rank ${rank} at ${r.unit} ${rankAt} exceeds the tile's ${m}x${n}`);
   if (ctx.maxRank !== undefined && rank > ctx.maxRank) {
     throw new FormatError(FormatCode.Limit, `${where}: rank ${rank} exceeds the reader limit of ${ctx.maxRank}`);
   }
-  const center = r.f64('center');
-  if (!Number.isFinite(center)) throw malformed(where, `centre ${center} at ${r.unit} ${r.offset - 8} is not finite`);
+  const centreAt = r.offset;
+  const center = flags & Flag.WideCentre ? r.f64('centre') : r.f32('centre');
+  if (!Number.isFinite(center)) throw malformed(where, `centre ${center} at ${r.unit} ${centreAt} is not finite`);
   if (flags & Flag.FactorDelta && rank === 0) throw malformed(where, 'factor difference flag on a payload of rank 0');
+  if (flags & Flag.WideStep && !(flags & Flag.Residual)) throw malformed(where, 'wide residual step flag on a payload without a residual');
 
   let codes: Uint8Array = new Uint8Array(cells);
   let rawNaN: Uint8Array = new Uint8Array(0);
@@ -124,7 +127,6 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
 
   let factors: { l: Float64Array; w: Float64Array; rank: number } = { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
   if (rank > 0) factors = readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0);
-  else if (r.u8('group count') !== 0) throw malformed(where, `rank 0 with factor groups (group count at ${r.unit} ${r.offset - 1})`);
   const prefix = ctx.groups !== undefined;
   if (prefix) {
     // A prefix ends after its last factor group: no residual, no exceptions.
@@ -137,8 +139,9 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   let step = 0;
   let q: Int32Array | null = null;
   if (flags & Flag.Residual) {
-    step = r.f64('residual step');
-    if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${r.offset - 8} is not a positive finite number`);
+    const stepAt = r.offset;
+    step = flags & Flag.WideStep ? r.f64('residual step') : r.f32('residual step');
+    if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${stepAt} is not a positive finite number`);
     const predictor = r.u8('residual predictor');
     if (predictor > MAX_PREDICTOR) throw malformed(where, `residual predictor ${predictor} at ${r.unit} ${r.offset - 1} is not one of 0..${MAX_PREDICTOR}`);
     q = new Int32Array(cells);
@@ -199,7 +202,7 @@ function readFactors(r: ByteReader, ctx: TileContext, declared: number, delta: b
   const sizes: number[] = [];
   let total = 0;
   for (let g = 0; g < groups; g++) {
-    const s = r.u16('group size');
+    const s = r.varint('group size', VARINT_BYTES);
     if (s === 0) throw malformed(where, `factor group ${g} is empty`);
     sizes.push(s);
     total += s;
@@ -213,13 +216,18 @@ function readFactors(r: ByteReader, ctx: TileContext, declared: number, delta: b
   const l = new Float64Array(m * rank);
   const w = new Float64Array(rank * n);
   let k0 = 0;
+  // Step codes are stored as differences from the previous rank's (from 0 for rank 0), left and right apart.
+  let cu = 0;
+  let cw = 0;
   for (let g = 0; g < used; g++) {
     const size = sizes[g];
     const du: number[] = [];
     const dw: number[] = [];
     for (let k = 0; k < size; k++) {
-      du.push(stepValue(r.i16('left step'), where));
-      dw.push(stepValue(r.i16('right step'), where));
+      cu += r.svarint('left step code', VARINT_BYTES);
+      du.push(stepValue(cu, where));
+      cw += r.svarint('right step code', VARINT_BYTES);
+      dw.push(stepValue(cw, where));
     }
     const row = new Int32Array(size * (m + n));
     readCoded(r, `factor group ${g}`, 1, row.length, null, row, where);

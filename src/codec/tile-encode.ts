@@ -17,7 +17,7 @@ const BLEND_MARGIN = 0.99;
 import { encodeInts } from './code-encode.js';
 import { MAX_INT } from './section.js';
 import { writeSection } from './section-write.js';
-import { MIN_STEP, stepCode, stepValue } from './steps.js';
+import { binary32Below, MIN_STEP, stepCode, stepValue } from './steps.js';
 
 /** The exact payload: byte-shuffled values, DEFLATE. */
 export function exactPayload(t: PreparedTile): Uint8Array {
@@ -166,20 +166,24 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
   if (corr !== null && corr.exceptions.length > 0) flags |= Flag.Exceptions;
   if (delta) flags |= Flag.FactorDelta;
   const w = new ByteWriter(64 + t.maskSection.length + (hasResidual ? (m * n) / 2 : 0) + (f ? rank * (m + n) : 0));
+  const center = corr !== null ? corr.center : t.center;
+  if (Math.fround(center) !== center) flags |= Flag.WideCentre;
+  if (hasResidual && Math.fround(corr.step) !== corr.step) flags |= Flag.WideStep;
   w.u8(Method.LowRank);
   w.u8(flags);
-  w.u16(rank);
-  w.f64(corr !== null ? corr.center : t.center);
+  w.varint(rank);
+  if (flags & Flag.WideCentre) w.f64(center);
+  else w.f32(center);
   if (flags & Flag.Mask) w.bytes(t.maskSection);
   if (f && rank > 0) {
     const sizes = groupSizes(rank, t.grouping);
     w.u8(sizes.length);
-    for (const size of sizes) w.u16(size);
+    for (const size of sizes) w.varint(size);
     let k0 = 0;
     for (const size of sizes) {
       for (let k = k0; k < k0 + size; k++) {
-        w.i16(f.codeU[k]);
-        w.i16(f.codeW[k]);
+        w.svarint(f.codeU[k] - (k > 0 ? f.codeU[k - 1] : 0));
+        w.svarint(f.codeW[k] - (k > 0 ? f.codeW[k - 1] : 0));
       }
       const row = factorRow(f, k0, size, m, n, delta);
       if (row === null) return null;
@@ -188,9 +192,10 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
       w.bytes(coded);
       k0 += size;
     }
-  } else w.u8(0);
+  }
   if (hasResidual && corr.q) {
-    w.f64(corr.step);
+    if (flags & Flag.WideStep) w.f64(corr.step);
+    else w.f32(corr.step);
     w.u8(corr.predictor);
     const coded = corr.coded ?? encodeInts(corr.q, m, n, t.classes.special > 0 ? t.classes.codes : null);
     w.u32(coded.length);
@@ -242,7 +247,7 @@ function roughBits(v: Int32Array): number {
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
  * The step is 2e, or `step` when given (with `center`, for lattice candidates).
  */
-export function correct(t: PreparedTile, f: Factors | null, e: number, step = 2 * e, center = t.center): Correction {
+export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center): Correction {
   const { m, n } = t;
   const cells = m * n;
   // The decoder's own arithmetic: the low-rank part and centre here, the rest in reconstruct().
@@ -351,7 +356,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number):
   let best: Uint8Array | null = null;
   let bestAt: [number, number] = [1, 0];
   const one = (kind: number, a: number, w: number): void => {
-    const step = a * unit;
+    const step = binary32Below(a * unit);
     const q = new Int32Array(m * n);
     const d = new Int32Array(m * n);
     let se = 0;

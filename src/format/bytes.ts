@@ -58,6 +58,25 @@ export class ByteWriter {
     this.view.setFloat64(this.length, v, true);
     this.length += 8;
   }
+  /** A binary32 value; the caller makes sure `v` is one (Math.fround(v) === v). */
+  f32(v: number): void {
+    this.reserve(4);
+    this.view.setFloat32(this.length, v, true);
+    this.length += 4;
+  }
+  /** An unsigned integer below 2^28 as a LEB128 varint: 7 bits a byte, low bits first, high bit set on every byte but the last. */
+  varint(v: number): void {
+    this.reserve(4);
+    while (v >= 0x80) {
+      this.buf[this.length++] = (v & 0x7f) | 0x80;
+      v >>>= 7;
+    }
+    this.buf[this.length++] = v;
+  }
+  /** A signed integer of magnitude below 2^27 as the varint of its zigzag code (0, -1, 1, -2, ... to 0, 1, 2, 3, ...). */
+  svarint(v: number): void {
+    this.varint(v < 0 ? -2 * v - 1 : 2 * v);
+  }
   bytes(b: Uint8Array): void {
     this.reserve(b.length);
     this.buf.set(b, this.length);
@@ -150,6 +169,36 @@ export class ByteReader {
     const v = this.view.getFloat64(this.pos, true);
     this.pos += 8;
     return v;
+  }
+  /** A binary32 value, widened exactly to a number. */
+  f32(what = 'a float32'): number {
+    this.need(4, what);
+    const v = this.view.getFloat32(this.pos, true);
+    this.pos += 4;
+    return v;
+  }
+  /**
+   * A LEB128 varint of at most `maxBytes` bytes (at most 4), in its shortest
+   * form: a longer one (a last byte of 0 after the first) is refused, so
+   * every value has one encoding.
+   */
+  varint(what = 'a varint', maxBytes = 3): number {
+    const at = this.offset;
+    let v = 0;
+    for (let k = 0; k < maxBytes; k++) {
+      const b = this.u8(what);
+      v += (b & 0x7f) * 2 ** (7 * k);
+      if (b < 0x80) {
+        if (b === 0 && k > 0) throw new FormatError(FormatCode.Malformed, `${this.where}: ${what} at ${this.unit} ${at} is not in its shortest form`);
+        return v;
+      }
+    }
+    throw new FormatError(FormatCode.Malformed, `${this.where}: ${what} at ${this.unit} ${at} runs over ${maxBytes} bytes`);
+  }
+  /** A signed integer stored as the varint of its zigzag code (see ByteWriter.svarint). */
+  svarint(what = 'a signed varint', maxBytes = 3): number {
+    const z = this.varint(what, maxBytes);
+    return z % 2 === 0 ? z / 2 : -(z + 1) / 2;
   }
   bytesView(n: number, what = 'a byte run'): Uint8Array {
     this.need(n, what);

@@ -87,10 +87,12 @@ describe('the blend predictor (6)', () => {
     const a = await open(bytes);
     const ix = (await a.loadIndex()).fields[0];
     const payload = bytes.subarray(ix.offset[0], ix.offset[0] + ix.length[0]);
-    // The predictor byte follows the f64 step of the residual (spec/FORMAT.md 10.6.5): find it after the fixed part and group count.
+    // spec/FORMAT.md 10.6.1 and 10.6.5: method, flags (Residual only: centre and step in binary32), rank 0 (no factor
+    // block), the binary32 centre, then the residual's binary32 step and its predictor byte.
     expect(payload[0]).toBe(1);
-    expect(payload[12]).toBe(0); // no factor groups (rank 0)
-    expect(payload[13 + 8]).toBe(Predictor.Blend);
+    expect(payload[1]).toBe(0x02);
+    expect(payload[2]).toBe(0);
+    expect(payload[3 + 4 + 4]).toBe(Predictor.Blend);
     expect(Array.from((await a.read()).values)).toEqual(Array.from(values));
   });
 });

@@ -14,7 +14,7 @@ import { DEFAULT_LIMITS, resolveLimits } from '../../src/format/schema.js';
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import { buildSeeds } from './corpus.js';
-import { cloneModel, parse, PayloadFlag, replaceStream, serialize, splice, tileDims, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
+import { cloneModel, parse, PayloadFlag, replaceStream, serialize, setCentre, setResidualStep, splice, tileDims, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import { decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
 import { crc32 } from '../../src/format/crc32.js';
@@ -481,6 +481,35 @@ describe('tile payloads', () => {
     expect(e.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: factor difference flag on a payload of rank 0$`));
   });
 
+  it('refuses a wide-step flag without a residual, and a rank varint longer than its shortest form (spec/FORMAT.md 2, 10.6.1)', async () => {
+    const g = withPart('group 0', (w) => !(w.flags & PayloadFlag.Residual));
+    const e = await refusal(editPayload(g.bytes, g.f, g.t, (p) => void (p[1] |= PayloadFlag.WideStep)));
+    expect(e.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: wide residual step flag on a payload without a residual$`));
+    // Rank r written as two bytes (r | 0x80, 0): the same number, not in its shortest form. The index copy still says r.
+    const long = await refusal(editPayload(g.bytes, g.f, g.t, (p, w) => splice(p, 2, w.centreAt, Uint8Array.of(w.rank | 0x80, 0))));
+    expect(long.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: rank at (payload|file) offset \\d+ is not in its shortest form$`));
+  });
+
+  it('a binary32 centre and step are read exactly: the seed payloads that use them decode to the values check() verifies', async () => {
+    // Every seed archive passes check() (values CRC-compared with what the encoder verified); here at least one payload
+    // of each kind must hold a binary32 centre and one a binary32 step, so both widths are exercised.
+    let narrowCentre = 0;
+    let narrowStep = 0;
+    for (const seed of buildSeeds()) {
+      for (const ps of parse(seed.bytes).payloads) {
+        for (const p of ps) {
+          const w = walk(p);
+          if (w.method !== 1) continue;
+          if (!(w.flags & PayloadFlag.WideCentre)) narrowCentre++;
+          if (w.residualStepWidth === 4) narrowStep++;
+        }
+      }
+      expect((await (await open(seed.bytes)).check()).failures).toEqual([]);
+    }
+    expect(narrowCentre).toBeGreaterThan(0);
+    expect(narrowStep).toBeGreaterThan(0);
+  });
+
   it('refuses an exception holding the fill value, or a NaN', async () => {
     const { bytes, f, t, field } = withPart('exceptions');
     const h = parse(bytes).header.fields[f];
@@ -505,18 +534,20 @@ describe('tile payloads', () => {
 
   it('refuses a residual step of NaN and a centre of Infinity, naming the value and where the centre is', async () => {
     const r = withPart('residual');
-    const e1 = await refusal(editPayload(r.bytes, r.f, r.t, (p, w) => void new DataView(p.buffer, p.byteOffset).setFloat64(w.residualStepAt!, NaN, true)));
+    const e1 = await refusal(editPayload(r.bytes, r.f, r.t, (p) => setResidualStep(p, NaN)));
     expect(e1.message).toMatch(/residual step NaN at (payload|file) offset \d+ is not a positive finite number/);
-    const e2 = await refusal(edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true)));
-    // Offsets count in the payload, or in the file when the reader passes the payload's offset.
-    expect(e2.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: centre Infinity at (payload offset 4|file offset \\d+) is not finite$`));
+    const e2 = await refusal(edit(r.bytes, (m) => setCentre(m.payloads[r.f][r.t], Infinity)));
+    // Offsets count in the payload, or in the file when the reader passes the payload's offset; the centre follows the rank's varint.
+    const at = walk(parse(r.bytes).payloads[r.f][r.t]).centreAt;
+    expect(e2.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: centre Infinity at (payload offset ${at}|file offset \\d+) is not finite$`));
   });
 
   it('payload errors name file offsets when the reader knows where the payload is', async () => {
     const r = withPart('residual');
-    const b = edit(r.bytes, (m) => new DataView(m.payloads[r.f][r.t].buffer).setFloat64(4, Infinity, true));
+    const b = edit(r.bytes, (m) => setCentre(m.payloads[r.f][r.t], Infinity));
     const offset = (await (await open(b)).loadIndex()).fields[r.f].offset[r.t];
-    expect((await refusal(b)).message).toMatch(new RegExp(`centre Infinity at file offset ${offset + 4} is not finite$`));
+    const at = walk(parse(r.bytes).payloads[r.f][r.t]).centreAt;
+    expect((await refusal(b)).message).toMatch(new RegExp(`centre Infinity at file offset ${offset + at} is not finite$`));
   });
 
   it('refuses a recorded prefix that does not end at a factor group, even with a CRC of the bytes it covers', async () => {

@@ -2,7 +2,7 @@
  * An archive taken apart for mutation: prologue words, payloads, header and
  * index as decoded values; and put back together with every offset, length
  * and CRC recomputed (or, on request, left as the mutation set them). The
- * layout is the one spec/FORMAT.md documents for version 4 (12-byte
+ * layout is the one spec/FORMAT.md documents for version 5 (12-byte
  * prologue, payloads page by page, MessagePack index pages, header and index
  * directory, 24-byte tail). The index is held as one logical index (columns
  * over all tiles, test/format/paged.ts) and split into its pages when put
@@ -34,7 +34,7 @@ export interface Model {
   indexBytes?: Uint8Array;
   /** Raw bytes of single index pages, by `field/page`. */
   pageBytes?: Record<string, Uint8Array>;
-  /** Write the header before the index pages (version 3's order, which version 4 readers must refuse). */
+  /** Write the header before the index pages (version 3's order, which version 4 and later readers must refuse). */
   headerFirst: boolean;
   /** Recompute index offsets, lengths and payload CRCs from `payloads` (off when a mutation edits them). */
   fixIndex: boolean;
@@ -241,23 +241,29 @@ export interface PartRef {
   end: number;
 }
 
-/** A tile payload taken apart (the layout of src/codec/tile-decode.ts, format 3, written out here from the layout, not taken from the library). */
+/** A tile payload taken apart (the layout of spec/FORMAT.md section 10, format 5, written out here from the spec, not taken from the library). */
 export interface PayloadLayout {
   method: number;
   flags: number;
   rank: number;
-  /** End of the fixed part (method 0: 2 bytes; method 1: 12 bytes). */
+  /** Where the rank varint begins (2) and where the centre begins (after the varint). */
+  rankAt: number;
+  centreAt: number;
+  /** End of the fixed part (method 0: 2 bytes; method 1: after the binary32 or binary64 centre). */
   fixedEnd: number;
   /** Every length-prefixed part, in payload order. */
   parts: PartRef[];
   /** The raw NaN bits after a coded mask: the u32 word that counts them, and where they are. */
   mask?: { rawLengthAt: number; rawStart: number; rawEnd: number };
-  /** The u8 group count (method 1). */
+  /** The u8 group count (method 1, rank above 0; -1 when absent). */
   groupCountAt: number;
-  /** Factor groups: rank count and where their step codes (i16 left, i16 right per rank) begin. */
+  /** Where the group list ends: the first prefix boundary (for rank 0, where the factor block would be). */
+  groupsEnd: number;
+  /** Factor groups: rank count and where their step codes (two signed varints per rank) begin. */
   groups: { size: number; stepsAt: number }[];
-  /** The residual's f64 step (its u8 predictor follows). */
+  /** The residual's step (binary32, or binary64 with flag WideStep; its u8 predictor follows). */
   residualStepAt?: number;
+  residualStepWidth?: number;
   /** The residual's predictor (0 none, 1 Lorenzo, 2 left, 3 up, 4 average, 5 median, 6 blend). */
   residualPredictor?: number;
   /** Where the walk ended: a well-formed payload ends exactly at its length. */
@@ -265,7 +271,28 @@ export interface PayloadLayout {
 }
 
 /** Payload flag bits (src/codec/payload.ts), restated so a change there shows up here as a failing test. */
-export const PayloadFlag = { Mask: 1, Residual: 2, Exceptions: 4, FactorDelta: 16 } as const;
+export const PayloadFlag = { Mask: 1, Residual: 2, Exceptions: 4, FactorDelta: 16, WideCentre: 32, WideStep: 64 } as const;
+
+/** An unsigned LEB128 varint at `at` (spec/FORMAT.md section 2): its value and byte length. Throws a RangeError past the end. */
+export function readVarint(p: Uint8Array, at: number): { value: number; bytes: number } {
+  let value = 0;
+  for (let k = 0; ; k++) {
+    if (at + k >= p.length) throw new RangeError(`varint at ${at} runs past the payload's ${p.length} bytes`);
+    value += (p[at + k] & 0x7f) * 2 ** (7 * k);
+    if (p[at + k] < 0x80) return { value, bytes: k + 1 };
+  }
+}
+
+/** The shortest LEB128 encoding of a non-negative integer. */
+export function varintBytes(v: number): number[] {
+  const out: number[] = [];
+  while (v >= 0x80) {
+    out.push((v % 0x80) | 0x80);
+    v = Math.floor(v / 0x80);
+  }
+  out.push(v);
+  return out;
+}
 
 /**
  * Walk a tile payload of method 0 or 1. Throws a RangeError if a length
@@ -295,12 +322,16 @@ export function walk(p: Uint8Array): PayloadLayout {
   const method = p[0];
   if (method === 0) {
     const end = deflate('values', 2);
-    return { method, flags: p[1], rank: 0, fixedEnd: 2, parts, groupCountAt: -1, groups: [], end };
+    return { method, flags: p[1], rank: 0, rankAt: -1, centreAt: -1, fixedEnd: 2, parts, groupCountAt: -1, groupsEnd: -1, groups: [], end };
   }
-  if (method !== 1 || p.length < 13) throw new RangeError(`not a walkable payload (method ${method}, ${p.length} bytes)`);
+  if (method !== 1 || p.length < 3) throw new RangeError(`not a walkable payload (method ${method}, ${p.length} bytes)`);
   const flags = p[1];
-  const rank = d.getUint16(2, true);
-  let at = 12;
+  const rankV = readVarint(p, 2);
+  const rank = rankV.value;
+  const centreAt = 2 + rankV.bytes;
+  let at = centreAt + (flags & PayloadFlag.WideCentre ? 8 : 4);
+  const fixedEnd = at;
+  if (at > p.length) throw new RangeError('centre cut short');
   let mask: PayloadLayout['mask'];
   if (flags & PayloadFlag.Mask) {
     const codedEnd = coded('mask', at, at, at + 8);
@@ -309,29 +340,62 @@ export function walk(p: Uint8Array): PayloadLayout {
     mask = { rawLengthAt: at + 4, rawStart: codedEnd, rawEnd };
     at = rawEnd;
   }
-  const groupCountAt = at;
-  if (at >= p.length) throw new RangeError('no group count');
-  const count = p[at++];
+  let groupCountAt = -1;
   const groups: { size: number; stepsAt: number }[] = [];
-  const sizes: number[] = [];
-  for (let g = 0; g < count; g++, at += 2) {
-    if (at + 2 > p.length) throw new RangeError('group sizes cut short');
-    sizes.push(d.getUint16(at, true));
+  if (rank > 0) {
+    groupCountAt = at;
+    if (at >= p.length) throw new RangeError('no group count');
+    const count = p[at++];
+    const sizes: number[] = [];
+    for (let g = 0; g < count; g++) {
+      const v = readVarint(p, at);
+      sizes.push(v.value);
+      at += v.bytes;
+    }
+    for (const [g, size] of sizes.entries()) {
+      const stepsAt = at;
+      for (let k = 0; k < 2 * size; k++) at += readVarint(p, at).bytes;
+      groups.push({ size, stepsAt });
+      at = coded(`group ${g}`, stepsAt, at);
+    }
   }
-  sizes.forEach((size, g) => {
-    groups.push({ size, stepsAt: at });
-    at = coded(`group ${g}`, at, at + 4 * size);
-  });
+  const groupsEnd = groups.length > 0 ? groups[0].stepsAt : at;
   let residualStepAt: number | undefined;
+  let residualStepWidth: number | undefined;
   let residualPredictor: number | undefined;
   if (flags & PayloadFlag.Residual) {
     residualStepAt = at;
-    if (at + 9 > p.length) throw new RangeError('residual step and predictor cut short');
-    residualPredictor = p[at + 8];
-    at = coded('residual', at, at + 9);
+    residualStepWidth = flags & PayloadFlag.WideStep ? 8 : 4;
+    if (at + residualStepWidth + 1 > p.length) throw new RangeError('residual step and predictor cut short');
+    residualPredictor = p[at + residualStepWidth];
+    at = coded('residual', at, at + residualStepWidth + 1);
   }
   if (flags & PayloadFlag.Exceptions) at = deflate('exceptions', at);
-  return { method, flags, rank, fixedEnd: 12, parts, mask, groupCountAt, groups, residualStepAt, residualPredictor, end: at };
+  return { method, flags, rank, rankAt: 2, centreAt, fixedEnd, parts, mask, groupCountAt, groupsEnd, groups, residualStepAt, residualStepWidth, residualPredictor, end: at };
+}
+
+/** Write the centre of a LowRank payload in place, in the width its flags give (binary32 rounds `v`). */
+export function setCentre(p: Uint8Array, v: number): void {
+  const w = walk(p);
+  const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+  if (w.flags & PayloadFlag.WideCentre) d.setFloat64(w.centreAt, v, true);
+  else d.setFloat32(w.centreAt, v, true);
+}
+
+/** The centre of a LowRank payload. */
+export function getCentre(p: Uint8Array): number {
+  const w = walk(p);
+  const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+  return w.flags & PayloadFlag.WideCentre ? d.getFloat64(w.centreAt, true) : d.getFloat32(w.centreAt, true);
+}
+
+/** Write the residual step of a LowRank payload in place, in the width its flags give. */
+export function setResidualStep(p: Uint8Array, v: number): void {
+  const w = walk(p);
+  if (w.residualStepAt === undefined) throw new RangeError('no residual');
+  const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+  if (w.residualStepWidth === 8) d.setFloat64(w.residualStepAt, v, true);
+  else d.setFloat32(w.residualStepAt, v, true);
 }
 
 /** Rows and columns of tile t of a field (header map as decoded): tiles are cut at the field's edges; slices repeat the grid. */

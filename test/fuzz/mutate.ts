@@ -19,7 +19,7 @@ import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
 import { decodeClasses, decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
 import { crc32 } from '../../src/format/crc32.js';
-import { cloneModel, directoryValue, headerValue, layout, pageValues, PayloadFlag, replaceStream, resealTail, serialize, splice, TAIL, tileDims, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
+import { cloneModel, directoryValue, headerValue, layout, pageValues, PayloadFlag, readVarint, replaceStream, resealTail, serialize, setCentre, setResidualStep, splice, TAIL, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import type { Rng } from './rng.js';
 
 /** Numbers that sit on a boundary of some check. */
@@ -424,21 +424,38 @@ function mutatePart(mdl: Model, seed: Model, f: number, t: number, rng: Rng): st
 
 /** Change the fixed part of a payload (method, flags, rank, centre, group count), keeping the index's method and rank in step. */
 function mutateFixed(m: Model, f: number, t: number, rng: Rng): string {
-  const p = m.payloads[f][t];
-  const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
+  let p = m.payloads[f][t];
   const ix = m.index.fields[f];
   const which = rng.pick(['method', 'flags', 'rank', 'centre', 'groups']);
+  const layout = (): PayloadLayout | null => {
+    try {
+      return walk(p);
+    } catch {
+      return null;
+    }
+  };
+  const l = layout();
   if (which === 'method') p[0] = rng.pick([0, 1, 2, 255]);
   else if (which === 'flags') p[1] = rng.chance(0.5) ? p[1] ^ (1 << rng.int(8)) : rng.int(256);
-  else if (which === 'rank' && p.length >= 4) d.setUint16(2, rng.pick([0, 1, 2, 3, 4, 7, 8, 16, 17, 65535, d.getUint16(2, true) + 1]) & 0xffff, true);
-  else if (which === 'centre' && p.length >= 12) d.setFloat64(4, rng.pick(BOUNDARY_NUMBERS), true);
-  else if (which === 'groups' && p.length >= 13) {
-    const at = walk(p).groupCountAt;
-    if (at < p.length) p[at] = rng.pick([0, 1, 2, 255]);
-  }
+  else if (which === 'rank' && l !== null && l.method === 1) {
+    // A new rank varint (of any length), or the same rank in a longer form than its shortest.
+    const v = rng.pick([0, 1, 2, 3, 4, 7, 8, 16, 17, 127, 128, 65535, 2 ** 21, l.rank + 1]);
+    const bytes = rng.chance(0.2) ? [...varintBytes(l.rank).map((b) => b | 0x80), 0] : varintBytes(v);
+    p = splice(p, 2, l.centreAt, Uint8Array.from(bytes));
+    m.payloads[f][t] = p;
+  } else if (which === 'centre' && l !== null && l.method === 1) setCentre(p, rng.pick(BOUNDARY_NUMBERS));
+  else if (which === 'groups' && l !== null && l.groupCountAt >= 0) p[l.groupCountAt] = rng.pick([0, 1, 2, 255]);
   if (rng.chance(0.8) && p.length >= 1) {
     ix.method[t] = p[0];
-    ix.rank[t] = p[0] === 1 && p.length >= 4 ? d.getUint16(2, true) : 0;
+    let rank = 0;
+    if (p[0] === 1) {
+      try {
+        rank = readVarint(p, 2).value;
+      } catch {
+        rank = 0;
+      }
+    }
+    ix.rank[t] = rank;
   }
   return `payload ${f}/${t} ${which}${CAUGHT}`;
 }
@@ -576,7 +593,7 @@ function semantic(m: Model, seed: Model, rng: Rng): string {
       'a NaN residual step',
       () => {
         if (layout.residualStepAt === undefined) return false;
-        new DataView(p.buffer, p.byteOffset, p.byteLength).setFloat64(layout.residualStepAt, NaN, true);
+        setResidualStep(p, NaN);
         return true;
       },
     ],
@@ -584,7 +601,7 @@ function semantic(m: Model, seed: Model, rng: Rng): string {
       'a NaN centre',
       () => {
         if (p[0] !== 1) return false;
-        new DataView(p.buffer, p.byteOffset).setFloat64(4, NaN, true);
+        setCentre(p, NaN);
         return true;
       },
     ],
