@@ -77,7 +77,6 @@ function decodeExact(r: ByteReader, ctx: TileContext): FloatArray {
 function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const { m, n, where } = ctx;
   const cells = m * n;
-  const width = ctx.dtype === 'f32' ? 4 : 8;
   let flags = r.u8('flags');
   if (flags & ~KNOWN_FLAGS) {
     throw new FormatError(FormatCode.Unsupported, `${where}: unknown payload flags 0x${flags.toString(16)} at ${r.unit} ${r.offset - 1} (this reader knows 0x${KNOWN_FLAGS.toString(16)})`);
@@ -94,104 +93,114 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (flags & Flag.FactorDelta && rank === 0) throw malformed(where, 'factor difference flag on a payload of rank 0');
   if (flags & Flag.WideStep && !(flags & Flag.Residual)) throw malformed(where, 'wide residual step flag on a payload without a residual');
 
-  let codes: Uint8Array = new Uint8Array(cells);
-  let rawNaN: Uint8Array = new Uint8Array(0);
-  if (flags & Flag.Mask) {
-    const at = r.offset;
-    const codedLength = r.u32('mask length');
-    const rawLength = r.u32('mask raw NaN length');
-    const coded = r.bytesView(codedLength, 'mask classes');
-    codes = new Uint8Array(cells);
-    try {
-      decodeClasses(coded, m, n, codes);
-    } catch (e) {
-      if (!(e instanceof CodeStreamError)) throw e;
-      throw malformed(where, `mask (coded stream at ${r.unit} ${at}, ${codedLength} bytes): ${e.message}`);
-    }
-    let raws = 0;
-    let special = 0;
-    for (let c = 0; c < cells; c++) {
-      if (codes[c] !== Cell.Valid) special++;
-      if (codes[c] === Cell.RawNaN) raws++;
-      if (codes[c] === Cell.Fill && ctx.fill === null) throw malformed(where, `mask ${cellName(c, n)} is a fill cell but the field has no fill value`);
-    }
-    if (special === 0) throw malformed(where, `mask at ${r.unit} ${at} marks no cell missing`);
-    if (rawLength !== raws * width) throw malformed(where, `mask holds ${rawLength} bytes of raw NaN bits, its ${raws} raw NaN cells need ${raws * width}`);
-    rawNaN = r.bytesView(rawLength, 'mask raw NaN bits');
-    const view = new DataView(rawNaN.buffer, rawNaN.byteOffset, rawNaN.byteLength);
-    for (let k = 0; k < raws; k++) {
-      const v = width === 4 ? view.getFloat32(4 * k, true) : view.getFloat64(8 * k, true);
-      if (v === v) throw malformed(where, `raw NaN ${k} of the mask holds the number ${v}, not a NaN`);
-    }
-  }
-
-  let factors: { l: Float64Array; w: Float64Array; rank: number } = { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
-  if (rank > 0) factors = readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0);
-  const prefix = ctx.groups !== undefined;
-  if (prefix) {
+  const mask = flags & Flag.Mask ? readMask(r, ctx) : { codes: new Uint8Array(cells), rawNaN: new Uint8Array(0) };
+  const factors = rank > 0 ? readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0) : { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
+  if (ctx.groups !== undefined) {
     // A prefix ends after its last factor group: no residual, no exceptions.
     if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the prefix's factor groups, from ${r.unit} ${r.offset}`);
     flags &= ~(Flag.Residual | Flag.Exceptions);
   }
-  const { l, w } = factors;
-
   // Every section is read and checked before the arithmetic, so a malformed late part costs no multiply-adds.
-  let step = 0;
-  let q: Int32Array | null = null;
-  if (flags & Flag.Residual) {
-    const stepAt = r.offset;
-    step = flags & Flag.WideStep ? r.f64('residual step') : r.f32('residual step');
-    if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${stepAt} is not a positive finite number`);
-    const predictor = r.u8('residual predictor');
-    if (predictor > MAX_PREDICTOR) throw malformed(where, `residual predictor ${predictor} at ${r.unit} ${r.offset - 1} is not one of 0..${MAX_PREDICTOR}`);
-    q = new Int32Array(cells);
-    readCoded(r, 'residual', m, n, flags & Flag.Mask ? codes : null, q, where);
-    if (!unpredict(q, m, n, MAX_INT, predictor)) throw malformed(where, 'a residual code exceeds 2^30 after prediction');
-  }
-
-  let cellsAt = new Uint32Array(0);
-  let vals: Uint8Array = new Uint8Array(0);
-  if (flags & Flag.Exceptions) {
-    const sec = readSection(r, 'exceptions', 4 + cells * (4 + width), false);
-    const er = new ByteReader(sec, `${where} exceptions`, 0, 'raw offset');
-    const count = er.u32('exception count');
-    if (count > cells) throw malformed(where, `${count} exceptions in a tile of ${cells} cells`);
-    cellsAt = new Uint32Array(count);
-    let prev = -1;
-    for (let e = 0; e < count; e++) {
-      const c = er.u32('exception cell');
-      if (c <= prev || c >= cells) throw malformed(where, `exception ${e} names cell ${c}: out of order or outside the tile of ${cells} cells`);
-      if (codes[c] !== Cell.Valid) throw malformed(where, `exception ${e} at missing ${cellName(c, n)}`);
-      cellsAt[e] = c;
-      prev = c;
-    }
-    vals = er.bytesView(count * width, 'exception values');
-    if (er.remaining !== 0) throw malformed(where, `exception section has ${er.remaining} bytes after its values`);
-  }
+  const residual = flags & Flag.Residual ? readResidual(r, ctx, flags, mask.codes) : { step: 0, q: null };
+  const exceptions = flags & Flag.Exceptions ? readExceptions(r, ctx, mask.codes) : { cells: new Uint32Array(0), values: new Uint8Array(0) };
   if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
 
   const acc = new Float64Array(cells);
-  lowRank(l, w, m, n, factors.rank, center, acc);
+  lowRank(factors.l, factors.w, m, n, factors.rank, center, acc);
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  reconstruct(acc, q, step, out);
-
-  const bytes = new Uint8Array(out.buffer);
-  const words = new Uint32Array(out.buffer);
-  for (let e = 0; e < cellsAt.length; e++) {
-    const c = cellsAt[e];
-    bytes.set(vals.subarray(e * width, e * width + width), c * width);
-    // An exception holds an original valid value, which is never the fill value.
-    if (ctx.fill !== null && words[c * (width / 4)] === ctx.fill[0] && (width === 4 || words[2 * c + 1] === ctx.fill[1])) {
-      throw malformed(where, `exception ${e} at ${cellName(c, n)} holds the fill value`);
-    }
-  }
-
+  reconstruct(acc, residual.q, residual.step, out);
+  applyExceptions(out, exceptions, ctx);
   // A valid cell must decode to a finite value; anything else is a damaged or hostile payload.
   for (let c = 0; c < cells; c++) {
-    if (codes[c] === Cell.Valid && !Number.isFinite(out[c])) throw malformed(where, `valid ${cellName(c, n)} decodes to ${out[c]}, not a finite value`);
+    if (mask.codes[c] === Cell.Valid && !Number.isFinite(out[c])) throw malformed(where, `valid ${cellName(c, n)} decodes to ${out[c]}, not a finite value`);
   }
-  applyClasses(out, codes, rawNaN, ctx.fill);
+  applyClasses(out, mask.codes, mask.rawNaN, ctx.fill);
   return out;
+}
+
+/** Read and check the mask section: the cells' classes and the raw NaN bits of class-5 cells. */
+function readMask(r: ByteReader, ctx: TileContext): { codes: Uint8Array; rawNaN: Uint8Array } {
+  const { m, n, where } = ctx;
+  const cells = m * n;
+  const width = ctx.dtype === 'f32' ? 4 : 8;
+  const at = r.offset;
+  const codedLength = r.u32('mask length');
+  const rawLength = r.u32('mask raw NaN length');
+  const coded = r.bytesView(codedLength, 'mask classes');
+  const codes = new Uint8Array(cells);
+  try {
+    decodeClasses(coded, m, n, codes);
+  } catch (e) {
+    if (!(e instanceof CodeStreamError)) throw e;
+    throw malformed(where, `mask (coded stream at ${r.unit} ${at}, ${codedLength} bytes): ${e.message}`);
+  }
+  let raws = 0;
+  let special = 0;
+  for (let c = 0; c < cells; c++) {
+    if (codes[c] !== Cell.Valid) special++;
+    if (codes[c] === Cell.RawNaN) raws++;
+    if (codes[c] === Cell.Fill && ctx.fill === null) throw malformed(where, `mask ${cellName(c, n)} is a fill cell but the field has no fill value`);
+  }
+  if (special === 0) throw malformed(where, `mask at ${r.unit} ${at} marks no cell missing`);
+  if (rawLength !== raws * width) throw malformed(where, `mask holds ${rawLength} bytes of raw NaN bits, its ${raws} raw NaN cells need ${raws * width}`);
+  const rawNaN = r.bytesView(rawLength, 'mask raw NaN bits');
+  const view = new DataView(rawNaN.buffer, rawNaN.byteOffset, rawNaN.byteLength);
+  for (let k = 0; k < raws; k++) {
+    const v = width === 4 ? view.getFloat32(4 * k, true) : view.getFloat64(8 * k, true);
+    if (v === v) throw malformed(where, `raw NaN ${k} of the mask holds the number ${v}, not a NaN`);
+  }
+  return { codes, rawNaN };
+}
+
+/** Read and check the residual: its step, predictor and codes, the prediction undone. */
+function readResidual(r: ByteReader, ctx: TileContext, flags: number, codes: Uint8Array): { step: number; q: Int32Array } {
+  const { m, n, where } = ctx;
+  const stepAt = r.offset;
+  const step = flags & Flag.WideStep ? r.f64('residual step') : r.f32('residual step');
+  if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${stepAt} is not a positive finite number`);
+  const predictor = r.u8('residual predictor');
+  if (predictor > MAX_PREDICTOR) throw malformed(where, `residual predictor ${predictor} at ${r.unit} ${r.offset - 1} is not one of 0..${MAX_PREDICTOR}`);
+  const q = new Int32Array(m * n);
+  readCoded(r, 'residual', m, n, flags & Flag.Mask ? codes : null, q, where);
+  if (!unpredict(q, m, n, MAX_INT, predictor)) throw malformed(where, 'a residual code exceeds 2^30 after prediction');
+  return { step, q };
+}
+
+/** Read and check the exceptions section: valid cells in increasing order, and their exact values. */
+function readExceptions(r: ByteReader, ctx: TileContext, codes: Uint8Array): { cells: Uint32Array; values: Uint8Array } {
+  const { m, n, where } = ctx;
+  const cells = m * n;
+  const width = ctx.dtype === 'f32' ? 4 : 8;
+  const sec = readSection(r, 'exceptions', 4 + cells * (4 + width), false);
+  const er = new ByteReader(sec, `${where} exceptions`, 0, 'raw offset');
+  const count = er.u32('exception count');
+  if (count > cells) throw malformed(where, `${count} exceptions in a tile of ${cells} cells`);
+  const at = new Uint32Array(count);
+  let prev = -1;
+  for (let e = 0; e < count; e++) {
+    const c = er.u32('exception cell');
+    if (c <= prev || c >= cells) throw malformed(where, `exception ${e} names cell ${c}: out of order or outside the tile of ${cells} cells`);
+    if (codes[c] !== Cell.Valid) throw malformed(where, `exception ${e} at missing ${cellName(c, n)}`);
+    at[e] = c;
+    prev = c;
+  }
+  const values = er.bytesView(count * width, 'exception values');
+  if (er.remaining !== 0) throw malformed(where, `exception section has ${er.remaining} bytes after its values`);
+  return { cells: at, values };
+}
+
+/** Put the exceptions' exact values in place; an exception holds an original valid value, which is never the fill value. */
+function applyExceptions(out: FloatArray, ex: { cells: Uint32Array; values: Uint8Array }, ctx: TileContext): void {
+  const width = ctx.dtype === 'f32' ? 4 : 8;
+  const bytes = new Uint8Array(out.buffer);
+  const words = new Uint32Array(out.buffer);
+  for (let e = 0; e < ex.cells.length; e++) {
+    const c = ex.cells[e];
+    bytes.set(ex.values.subarray(e * width, e * width + width), c * width);
+    if (ctx.fill !== null && words[c * (width / 4)] === ctx.fill[0] && (width === 4 || words[2 * c + 1] === ctx.fill[1])) {
+      throw malformed(ctx.where, `exception ${e} at ${cellName(c, ctx.n)} holds the fill value`);
+    }
+  }
 }
 
 /** Read the factor groups into l (m x r) and w (r x n). */
