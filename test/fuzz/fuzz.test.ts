@@ -57,7 +57,8 @@ describe('fuzzing', () => {
     });
     // Cell classes 0..5 of the mask (valid, fill, +Inf, -Inf, NaN, raw NaN): spec/FORMAT.md 10.6.3.
     const want = ['method 0', 'method 1', 'rank > 0 as values', 'rank > 0 as differences', 'several factor groups', 'factors and a residual'];
-    want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FactorDelta', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
+    // WideCentre and WideStep: the tiny-f64 and huge-f64 seeds' centres and steps lie beyond binary32's normal range.
+    want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FactorDelta', 'flag WideCentre', 'flag WideStep', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
     want.push('class 0', 'class 1', 'class 2', 'class 3', 'class 4', 'class 5', 'several fields', 'an N-D field', 'f32', 'f64');
     for (const x of want) expect(seen, `no seed has ${x}`).toContain(x);
   });
