@@ -3,7 +3,8 @@ import { InvalidArgumentError, type Command } from 'commander';
 import { hasSlices } from '../archive.js';
 import { printable } from '../format/schema.js';
 import { type Archive, type Dtype, type FieldHeader, type FloatArray, formatBound, isPointwise } from '../index.js';
-import { fieldShape, netcdfOriginals } from './check.js';
+import { ndShape } from '../geometry.js';
+import { netcdfOriginals } from './check.js';
 import { heatmap, type HeatmapSpec } from '../picture/heatmap.js';
 import { blockFor, EXACT_CODE, rankGrid, readGrids, slicePlane, snapshotPlane, snapshotShape, type Grid, type Plane, type PictureWindow } from '../picture/sample.js';
 import { UsageError } from './errors.js';
@@ -154,7 +155,7 @@ async function planeOriginal(archive: Archive, h: FieldHeader, input: string, fl
   const path = flags.against!;
   const kind = await inputKind(path);
   const size = plane.rows * plane.cols;
-  const whole = fieldShape(h);
+  const whole = ndShape(h);
   if (kind === 'netcdf' || kind === 'hdf5') {
     if (flags.dtype !== undefined || flags.endian !== undefined) throw new UsageError(`--dtype and --endian describe raw originals; '${printable(path)}' is NetCDF`);
     const values = (await netcdfOriginals(path, archive, [h.name], input, kind === 'hdf5'))[h.name];

@@ -8,13 +8,14 @@ import { checkOutput, isUrl, openArchive, statInput, trackTempDir, writeOutput, 
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
 import { byPath, carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
-import { dimNames, ndShapeOf, notOneBox, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
+import { dimNames, notOneBox, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
 import type { Archive, FloatArray } from '../index.js';
 import { writeNetcdf, type NcWriteFile } from '../io/netcdf-write.js';
 import { writeNetcdf4 } from '../io/hdf5-write.js';
 import { mkdtemp, readFile, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { printable } from '../format/schema.js';
+import { ndShape } from '../geometry.js';
 import { stat, statfs } from 'node:fs/promises';
 import { dirname, join, resolve } from 'node:path';
 import type { Context } from './main.js';
@@ -477,7 +478,7 @@ async function unpackAxes(
   o: { input: string; nc: boolean; csv: boolean; npy: boolean; io: { force: boolean; inputs: string[] }; start: number },
   out: Output,
 ): Promise<void> {
-  const nd = ndShapeOf(h);
+  const nd = ndShape(h);
   let ranges: AxisRange[] | null;
   if (flags.where) {
     ranges = rangesWhere(h, flags.where, (dim) => {
