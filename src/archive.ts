@@ -12,8 +12,8 @@ import { joinPages, readContainer, readPages, tilePage, type Container } from '.
 import { crc32 } from './format/crc32.js';
 import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex, checkReadCells, pageCount, quoteName, up32 } from './format/schema.js';
 import { copyBlock, cutTile, ndShape, tileCount, tileOrigin, tileShape, windowTiles } from './geometry.js';
-import { HttpSource } from './format/http-source.js';
-import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
+import { HttpSource } from './io/http-source.js';
+import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './io/source.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 
 /** A decoded field, or a window of one. */

@@ -7,7 +7,7 @@ import { Decoder } from '@msgpack/msgpack';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
-import { readRanges, type ByteSource, type CoalesceOptions } from './source.js';
+import { readRanges, type ByteSource, type CoalesceOptions } from '../io/source.js';
 import { tileCount } from '../geometry.js';
 import { checkDirectory, checkHeader, checkPage, checkSummary, directoryForDisk, headerForDisk, pageForDisk, MAX_DEPTH, MAX_MAP_ENTRIES, pageCount, pageOf, pageTiles, quoteName, resolveLimits, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex } from './schema.js';
 

@@ -9,9 +9,9 @@
 import { checkWindow, hasSlices, open, type Archive, type ReadOptions } from '../archive.js';
 import { checkBound, parseBound } from '../codec/bound.js';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
-import { HttpSource } from '../format/http-source.js';
+import { HttpSource } from '../io/http-source.js';
 import { windowTiles } from '../geometry.js';
-import { MemorySource, type ByteSource } from '../format/source.js';
+import { MemorySource, type ByteSource } from '../io/source.js';
 import { FileSource } from '../io/file-source.js';
 import type { Bound, Dtype, FloatArray } from '../types.js';
 import { checkThreads, WorkerPool } from './pool.js';
