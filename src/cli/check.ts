@@ -11,7 +11,7 @@ import { Exit, UsageError } from './errors.js';
 import { isUrl, openArchive, readInput, statInput } from './files.js';
 import { boundText, num, rawBytes } from './format.js';
 import { inputKind, loadField } from './input.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { dtypeOption, endianOption, nameOption, ndShapeOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 

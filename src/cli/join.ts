@@ -7,7 +7,7 @@ import type { ByteSource } from '../io/source.js';
 
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
 import { fileError, UsageError } from './errors.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { Output, type OutputFlags } from './output.js';
 import { num, seconds } from './format.js';
 

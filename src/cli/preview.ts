@@ -11,10 +11,11 @@ import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files.js';
 import { num, seconds } from './format.js';
 import { inputKind, loadField } from './input.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { dtypeOption, endianOption, nameOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
-import { regionOption, type Region } from './unpack.js';
+import { regionOption } from './unpack.js';
+import type { Region } from './window.js';
 import { byPath } from './netcdf.js';
 
 type MapKind = 'value' | 'error' | 'rank';

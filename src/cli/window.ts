@@ -11,7 +11,15 @@ import type { Archive, FieldHeader, FloatArray } from '../index.js';
 import { printable } from '../format/schema.js';
 import { ndShape } from '../geometry.js';
 import { UsageError } from './errors.js';
-import type { Region, Span } from './unpack.js';
+
+/** A window as given by --region: each end may be left open (to the field's edge). */
+export interface Region {
+  rows: [number | undefined, number | undefined];
+  cols: [number | undefined, number | undefined];
+}
+
+/** A half-open range whose ends may be left open (to the edge). */
+export type Span = [number | undefined, number | undefined];
 
 /** A half-open index range along one axis. */
 export type AxisRange = [number, number];
