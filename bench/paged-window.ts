@@ -13,7 +13,7 @@
  *   npx tsc -p tsconfig.bench.json && nice node bench/dist/bench/paged-window.js [--side 16384]
  */
 import { ArchiveBuilder, MemorySink, open } from '../src/index.js';
-import { HttpSource } from '../src/format/http-source.js';
+import { HttpSource } from '../src/io/http-source.js';
 import { startRangeServer } from '../test/io/range-server.js';
 
 function arg(name: string, fallback: string): string {

@@ -18,7 +18,7 @@ import { tmpdir } from 'node:os';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { ArchiveBuilder, open } from '../src/index.js';
-import { HttpSource } from '../src/format/http-source.js';
+import { HttpSource } from '../src/io/http-source.js';
 import { FileSink } from '../src/io/file-sink.js';
 import { startRangeServer } from '../test/io/range-server.js';
 

@@ -10,9 +10,10 @@ import { decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
 import { joinPages, readContainer, readPages, tilePage, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
-import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex, checkReadCells, pageCount, quoteName, sliceGrid, tileCount, tileOrigin, tileShape, up32 } from './format/schema.js';
-import { HttpSource } from './format/http-source.js';
-import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './format/source.js';
+import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex, checkReadCells, pageCount, quoteName, up32 } from './format/schema.js';
+import { copyBlock, cutTile, ndShape, tileCount, tileOrigin, tileShape, windowTiles } from './geometry.js';
+import { HttpSource } from './io/http-source.js';
+import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './io/source.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 
 /** A decoded field, or a window of one. */
@@ -336,18 +337,12 @@ export class Archive {
     const [s0, s1] = slices;
     const [r0, r1] = rows;
     const [c0, c1] = cols;
-    const [tr, tc] = h.tile;
-    const [gr, gc] = sliceGrid(h);
     const width = c1 - c0;
     const plane = (r1 - r0) * width;
     checkReadCells((s1 - s0) * plane, this.limits, `${this.source.label} field ${quoteName(h.name)}`);
     const values = allocate(h.dtype, (s1 - s0) * plane, h.name);
     const tiles: number[] = [];
-    for (let s = s0; s < s1; s++) {
-      for (let ti = Math.floor(r0 / tr); ti * tr < r1; ti++) {
-        for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) tiles.push(s * gr * gc + ti * gc + tj);
-      }
-    }
+    for (let s = s0; s < s1; s++) tiles.push(...windowTiles(h, s, r0, r1, c0, c1));
     const entry = await this.entries(position, tiles);
     const plan = this.progressivePlan(h, entry, bound);
     const tally = { max: 0, sq: 0, valid: 0, prefixTiles: 0 };
@@ -360,19 +355,16 @@ export class Archive {
       tally.sq += e.valid * choice.rmse * choice.rmse;
       tally.valid += e.valid;
       if (choice.prefix) tally.prefixTiles++;
+      // The part of the tile inside the window, to its place in the output (slice s at row (s - s0) * window rows).
       const { s, i0, j0 } = tileOrigin(h, t);
-      const [, n] = tileShape(h, t);
-      const base = (s - s0) * plane;
+      const [m, n] = tileShape(h, t);
       const a = Math.max(r0, i0);
-      const b = Math.min(r1, i0 + tr);
       const lo = Math.max(c0, j0);
-      const hi = Math.min(c1, j0 + n);
-      // Same-type typed-array copies move bytes, so NaN payloads survive.
-      for (let i = a; i < b; i++) values.set(tile.subarray((i - i0) * n + (lo - j0), (i - i0) * n + (hi - j0)), base + (i - r0) * width + (lo - c0));
+      copyBlock(tile, n, a - i0, lo - j0, Math.min(r1, i0 + m) - a, Math.min(c1, j0 + n) - lo, values, width, (s - s0) * (r1 - r0) + a - r0, lo - c0);
     }, false, (t) => plan(t).length);
     const achieved = { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 };
     const whole = options.slices === undefined && options.rows === undefined && options.cols === undefined;
-    const shape = whole && h.nd_shape ? h.nd_shape.slice() : hasSlices(h) ? [s1 - s0, r1 - r0, width] : [r1 - r0, width];
+    const shape = whole && h.nd_shape ? ndShape(h) : hasSlices(h) ? [s1 - s0, r1 - r0, width] : [r1 - r0, width];
     return { name: h.name, dtype: h.dtype, shape, values, window: { ...(hasSlices(h) ? { slices: [s0, s1] as [number, number] } : {}), rows: [r0, r1], cols: [c0, c1] }, achieved, prefixTiles: tally.prefixTiles };
   }
 
@@ -487,7 +479,7 @@ export class Archive {
         if (pointwise && !(ix.max_err <= up32(tol))) fail(t, `recorded max error ${ix.max_err} exceeds the bound ${tol}`);
         if (orig) {
           const [m, n] = tileShape(h, t);
-          const part = extract(orig, h, t);
+          const part = cutTile(orig, h, t);
           const cls = classify(part, fw);
           const got = classify(tile, fw);
           const ow = new Uint32Array(part.buffer);
@@ -572,17 +564,6 @@ export function checkWindow(h: FieldHeader, o: ReadOptions): { slices: [number, 
 /** True when reads of the field count slices: more than one, or an N-D variable laid out as slices. */
 export function hasSlices(h: FieldHeader): boolean {
   return (h.slices ?? 1) > 1 || h.layout === 'slices';
-}
-
-/** Tile t cut out of the original values (C order: slice s is rows [s * R, (s + 1) * R) of the stacked matrix). */
-function extract(values: FloatArray, h: FieldHeader, t: number): FloatArray {
-  const cols = h.shape[1];
-  const { s, i0, j0 } = tileOrigin(h, t);
-  const r = s * h.shape[0] + i0;
-  const [m, n] = tileShape(h, t);
-  const out = h.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
-  for (let i = 0; i < m; i++) out.set(values.subarray((r + i) * cols + j0, (r + i) * cols + j0 + n), i * n);
-  return out;
 }
 
 /** What {@link open} reads an archive from. */

@@ -7,8 +7,8 @@
  * runs in browsers, workers and other JavaScript runtimes with `fetch`.
  */
 export { open, Archive, type ArchiveInput, type FieldValues, type ReadOptions, type OpenOptions, type CheckReport, type CheckFailure, type TileEntry } from './archive.js';
-export { MemorySource, readRanges, coalesce, DEFAULT_MAX_GAP, type ByteSource, type ByteRange, type CoalesceOptions, type MergedRead } from './format/source.js';
-export { HttpSource, DEFAULT_MAX_WHOLE_FILE, type HttpSourceOptions } from './format/http-source.js';
+export { MemorySource, readRanges, coalesce, DEFAULT_MAX_GAP, type ByteSource, type ByteRange, type CoalesceOptions, type MergedRead } from './io/source.js';
+export { HttpSource, DEFAULT_MAX_WHOLE_FILE, type HttpSourceOptions } from './io/http-source.js';
 export { FormatError, InputError, FormatCode, InputCode } from './errors.js';
 export { parseBound, formatBound, isPointwise } from './codec/bound.js';
 export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type ArchiveDirectory, type FieldDirectory, type PageIndex, type FieldHeader, type FieldIndex, type Attrs } from './format/schema.js';

@@ -7,6 +7,7 @@
 import { isPointwise, resolveBound } from './codec/bound.js';
 import { InputCode, InputError } from './errors.js';
 import { layoutGrid } from './format/schema.js';
+import { cutBlock } from './geometry.js';
 import { pack } from './pack.js';
 import type { Bound, FloatArray } from './types.js';
 
@@ -54,8 +55,7 @@ export function chooseLayout(values: FloatArray, shape: readonly number[], bound
       cols = Math.max(1, Math.min(g.cols, Math.floor(SAMPLE_VALUES / g.rows)));
       rows = g.rows;
       const c0 = Math.floor((g.cols - cols) / 2);
-      sample = values instanceof Float32Array ? new Float32Array(rows * cols) : new Float64Array(rows * cols);
-      for (let i = 0; i < rows; i++) sample.set(values.subarray(i * g.cols + c0, i * g.cols + c0 + cols), i * cols);
+      sample = cutBlock(values, g.cols, 0, c0, rows, cols);
     }
     const bytes = pack(sample, [rows, cols], { bound: absolute, fill, fillGuard: false }).length; // a sample; the caller guards the field
     const rate = bytes / (rows * cols);

@@ -8,7 +8,7 @@
 import { fileURLToPath } from 'node:url';
 import { openOn, type Archive, type OpenOptions } from './archive.js';
 import { InputCode, InputError } from './errors.js';
-import type { ByteSource } from './format/source.js';
+import type { ByteSource } from './io/source.js';
 import { FileSource } from './io/file-source.js';
 
 /** Open a path or file: URL as a {@link FileSource}; failures of the file system become an InputError naming the path. */

@@ -6,7 +6,8 @@ import { encodeFieldParallel, encodeTasks } from './parallel/encode.js';
 import { checkThreads, WorkerPool } from './parallel/pool.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, DEFAULT_PAGE, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
-import { attrsProblem, holdsLoneSurrogate, ndProblem, quoteName, pageGrid, pageTiles, sliceGrid, tileCount, up32, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
+import { tileCount, tileGrid } from './geometry.js';
+import { attrsProblem, holdsLoneSurrogate, ndProblem, quoteName, pageGrid, pageTiles, up32, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 import { VERSION_STRING } from './version.js';
 
@@ -269,7 +270,7 @@ export class ArchiveBuilder {
     const threads = o.pool?.threads ?? checkThreads(o.threads);
     if (threads === 1) return this.encode(src, spec, o, page);
     const w = this.begin(src, spec, page, o.onProgress);
-    const workers = Math.min(threads, tileCount({ shape: [spec.rows, spec.cols], tile: [spec.tileRows, spec.tileCols], slices: spec.slices }));
+    const workers = Math.min(threads, tileCount(spec));
     if (workers === 1) return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
     // The calling thread encodes tiles too, as one of the threads.
     const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result });
@@ -324,13 +325,11 @@ export class ArchiveBuilder {
 
   /** The index a field's tiles fill, and the emit that writes their payloads page by page. */
   private start(spec: FieldSpec, page: [number, number], onProgress?: (done: number, total: number) => void): { ix: FieldIndex; emit: (t: number, tile: EncodedTile) => void } {
-    const slices = spec.slices ?? 1;
     // Payloads are written page by page (spec/FORMAT.md, section 3): the tiles of one band of
     // page rows are held (encoded) until the band is complete, then written page after page.
-    const grid = { shape: [spec.rows, spec.cols], tile: [spec.tileRows, spec.tileCols] };
-    const n = tileCount({ ...grid, slices });
-    const [gr, gc] = sliceGrid(grid);
-    const [, pc] = pageGrid(grid, page);
+    const n = tileCount(spec);
+    const [gr, gc] = tileGrid(spec);
+    const [pr, pc] = pageGrid(spec, page);
     const column = () => new Array<number>(n).fill(0);
     const ix: FieldIndex = { offset: column(), length: column(), crc: column(), method: column(), rank: column(), valid: column(), max_err: column(), rmse: column(), value_crc: column(), summary: { valid: 0, max_err: 0, rmse: 0 } };
     // Prefixes are recorded for progressive layouts only, where a read can stop after the first factor groups.
@@ -343,10 +342,9 @@ export class ArchiveBuilder {
       const ti = Math.floor((t - s * gr * gc) / gc);
       const tj = (t - s * gr * gc) % gc;
       if (tj !== gc - 1 || (ti !== gr - 1 && (ti + 1) % page[0] !== 0)) return;
-      const [pr] = pageGrid(grid, page);
       const pi = Math.floor(ti / page[0]);
       for (let pj = 0; pj < pc; pj++) {
-        for (const u of pageTiles(grid, page, s * pr * pc + pi * pc + pj)) {
+        for (const u of pageTiles(spec, page, s * pr * pc + pi * pc + pj)) {
           const e = held.get(u);
           if (e === undefined) throw new Error(`tile ${u} was not encoded before the end of its band of pages`);
           held.delete(u);

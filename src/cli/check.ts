@@ -2,6 +2,7 @@
 import type { Command } from 'commander';
 import { InputCode, InputError, isPointwise, type Archive, type CheckReport, type Dtype, type FieldHeader, type FloatArray } from '../index.js';
 import { printable } from '../format/schema.js';
+import { ndShape } from '../geometry.js';
 import { netcdf4ToClassic } from '../io/hdf5-read.js';
 import { readNetcdfHeader, readNetcdfVariable } from '../io/netcdf-read.js';
 import { setOwn } from '../io/netcdf-types.js';
@@ -10,7 +11,7 @@ import { Exit, UsageError } from './errors.js';
 import { isUrl, openArchive, readInput, statInput } from './files.js';
 import { boundText, num, rawBytes } from './format.js';
 import { inputKind, loadField } from './input.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { dtypeOption, endianOption, nameOption, ndShapeOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 
@@ -49,14 +50,9 @@ A damaged tile payload, or a damaged index page (its tiles cannot be
 located), is a check failure (exit 1); damage to the tail,
 header or index directory is exit 2.`;
 
-/** The shape a field's original has: its N-D shape, else slices x rows x cols, else rows x cols. */
-export function fieldShape(h: FieldHeader): number[] {
-  return h.nd_shape ?? ((h.slices ?? 1) > 1 ? [h.slices!, h.shape[0], h.shape[1]] : h.shape);
-}
-
 /** Check that an original fits the field it is compared with (both shapes as the files give them). */
 function checkOriginal(what: string, shape: number[], dtype: Dtype, h: FieldHeader, archive: string): void {
-  const want = fieldShape(h);
+  const want = ndShape(h);
   if (shape.length !== want.length || shape.some((d, i) => d !== want[i])) {
     throw new InputError(InputCode.Shape, `${what} has shape ${shape.join('x')}, but field '${printable(h.name)}' of '${archive}' has shape ${want.join('x')}`);
   }
@@ -168,7 +164,7 @@ export function registerCheck(program: Command, ctx: Context): void {
             if (flags.var !== undefined) throw new UsageError(`--var chooses variables of a NetCDF original; '${path}' is not NetCDF (by its first bytes or its name): use --field`);
             const { header: h } = archive.field(flags.field);
             const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
-            const orig = await loadField(path, layout, { shape: fieldShape(h), dtype: h.dtype }, kind);
+            const orig = await loadField(path, layout, { shape: ndShape(h), dtype: h.dtype }, kind);
             checkOriginal(`original '${path}'`, orig.shape, orig.dtype, h, input);
             originals = { [h.name]: orig.data };
           }

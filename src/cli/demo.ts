@@ -9,7 +9,7 @@ import { formatNpy } from '../io/npy.js';
 import { Exit, fileError } from './errors.js';
 import { checkOutput, openArchive, trackTempDir, writeOutput } from './files.js';
 import { num, ratio, seconds, table } from './format.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { shapeOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 

@@ -17,7 +17,7 @@ import { link, lstat, open as openFile, opendir, readlink, rename, stat, unlink 
 import { hostname } from 'node:os';
 import { basename, dirname, join, resolve } from 'node:path';
 import { parentPort, workerData } from 'node:worker_threads';
-import { HttpSource } from '../format/http-source.js';
+import { HttpSource } from '../io/http-source.js';
 import { open, type Archive, type ByteSource, type Sink } from '../index.js';
 import { FileSink } from '../io/file-sink.js';
 import { FileSource } from '../io/file-source.js';

@@ -12,7 +12,7 @@
  * time is retried (a few times, as for a dropped connection); the command
  * deadline is final.
  */
-import type { HttpSourceOptions } from '../format/http-source.js';
+import type { HttpSourceOptions } from '../io/http-source.js';
 import { UsageError } from './errors.js';
 
 /** Defaults of the command line, in seconds. */

@@ -3,11 +3,11 @@ import type { Command } from 'commander';
 import { FileSource } from '../io/file-source.js';
 import { joinParts, type JoinResult } from '../parts/join.js';
 import { printable } from '../format/schema.js';
-import type { ByteSource } from '../format/source.js';
+import type { ByteSource } from '../io/source.js';
 
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
 import { fileError, UsageError } from './errors.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { Output, type OutputFlags } from './output.js';
 import { num, seconds } from './format.js';
 

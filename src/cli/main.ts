@@ -21,19 +21,10 @@ import { registerShow } from './show.js';
 import { registerUnpack } from './unpack.js';
 import { registerView } from './view.js';
 
-/** What commands write to and report back. */
-export interface Context {
-  /** Write to standard output. */
-  out(text: string): void;
-  /** Write to standard error. */
-  err(text: string): void;
-  /** Exit code a command sets when it completes but reports a failure (check). */
-  exitCode: number;
-  /** Standard error is a terminal: progress bars are drawn (output.ts). */
-  errTTY?: boolean;
-  /** Width of that terminal in columns, when known. */
-  errColumns?: number;
-}
+import type { Context } from './context.js';
+
+// cli/plan.ts takes the type from here.
+export type { Context } from './context.js';
 
 /** Build the program with all commands; errors are thrown, never exit the process. */
 export function buildProgram(ctx: Context): Command {

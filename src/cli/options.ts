@@ -112,3 +112,11 @@ export function threadsOption(text: string): number {
   }
   return n;
 }
+
+/** Fields of fewer values are packed in one thread unless --threads says otherwise: starting a worker costs about a tenth of a second. */
+const MIN_PARALLEL_CELLS = 1 << 18;
+
+/** The threads of one field: as given, or by default 1 for a small field and the core count otherwise. */
+export function defaultThreads(given: number | undefined, cells: number): number | undefined {
+  return given !== undefined ? given : cells < MIN_PARALLEL_CELLS ? 1 : undefined;
+}

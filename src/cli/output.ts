@@ -7,7 +7,7 @@
  */
 import { SingleBar } from 'cli-progress';
 import type { Command } from 'commander';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 
 /** The output flags every command takes. */
 export interface OutputFlags {

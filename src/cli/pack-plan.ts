@@ -9,8 +9,30 @@ import { fileError, UsageError } from './errors.js';
 import { checkOutput, openArchive, readInput, statInput, writeOutputWith } from './files.js';
 import { num, seconds } from './format.js';
 import { checkLayout, openFieldBands, type InputKind } from './input.js';
-import type { Output } from './output.js';
-import { defaultThreads, type PackFlags } from './pack.js';
+import type { Output, OutputFlags } from './output.js';
+import { defaultThreads } from './options.js';
+import type { Bound, Dtype } from '../types.js';
+
+/** The flags of `pack` (cli/pack.ts), with and without --plan. */
+export interface PackFlags extends OutputFlags {
+  output: string;
+  bound?: Bound;
+  tile?: [number, number] | 'auto';
+  /** --fill V, or false for --no-fill. */
+  fill?: number | false;
+  name?: string;
+  shape?: number[];
+  dtype?: Dtype;
+  endian?: 'little' | 'big';
+  force?: boolean;
+  var?: string[];
+  matrix?: string[];
+  layout?: 'auto' | 'slices';
+  threads?: number;
+  progressive?: boolean;
+  plan?: string;
+  part?: [number, number];
+}
 
 /** `--part K/N`: 1 <= K <= N. */
 export function partOption(text: string): [number, number] {

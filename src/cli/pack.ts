@@ -10,34 +10,18 @@ import { readInput } from './files.js';
 import { bytesText, errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
 import { checkLayout, inputKind, openFieldBands } from './input.js';
-import { packPlannedCli, partOption } from './pack-plan.js';
+import { packPlannedCli, partOption, type PackFlags } from './pack-plan.js';
 import type { BandReader } from '../io/bands.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { printable } from '../format/schema.js';
-import { Output, type OutputFlags } from './output.js';
+import { Output } from './output.js';
 import { packChoices, packDetails, writtenFacts } from './pack-report.js';
 import { RangeWatch, suspectMessage } from './fill-guard.js';
-import { boundOption, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
+import { boundOption, defaultThreads, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
 
-export interface PackFlags extends OutputFlags {
-  output: string;
-  bound?: Bound;
-  tile?: [number, number] | 'auto';
-  /** --fill V, or false for --no-fill. */
-  fill?: number | false;
-  name?: string;
-  shape?: number[];
-  dtype?: Dtype;
-  endian?: 'little' | 'big';
-  force?: boolean;
-  var?: string[];
-  matrix?: string[];
-  layout?: 'auto' | 'slices';
-  threads?: number;
-  progressive?: boolean;
-  plan?: string;
-  part?: [number, number];
-}
+// cli/plan.ts takes it from here.
+export { defaultThreads } from './options.js';
+
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */
 export const LOSSY_NOTE = `
@@ -351,11 +335,4 @@ function layoutOption(text: string): 'auto' | 'slices' {
   throw new UsageError(`--layout must be auto or slices (use --matrix AXES:NAME for a matrix), got '${printable(text)}'`);
 }
 
-/** Fields of fewer values are packed in one thread unless --threads says otherwise: starting a worker costs about a tenth of a second. */
-const MIN_PARALLEL_CELLS = 1 << 18;
-
-/** The threads of one field: as given, or by default 1 for a small field and the core count otherwise. */
-export function defaultThreads(given: number | undefined, cells: number): number | undefined {
-  return given !== undefined ? given : cells < MIN_PARALLEL_CELLS ? 1 : undefined;
-}
 

@@ -3,17 +3,19 @@ import { InvalidArgumentError, type Command } from 'commander';
 import { hasSlices } from '../archive.js';
 import { printable } from '../format/schema.js';
 import { type Archive, type Dtype, type FieldHeader, type FloatArray, formatBound, isPointwise } from '../index.js';
-import { fieldShape, netcdfOriginals } from './check.js';
+import { ndShape } from '../geometry.js';
+import { netcdfOriginals } from './check.js';
 import { heatmap, type HeatmapSpec } from '../picture/heatmap.js';
 import { blockFor, EXACT_CODE, rankGrid, readGrids, slicePlane, snapshotPlane, snapshotShape, type Grid, type Plane, type PictureWindow } from '../picture/sample.js';
 import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files.js';
 import { num, seconds } from './format.js';
 import { inputKind, loadField } from './input.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { dtypeOption, endianOption, nameOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
-import { regionOption, type Region } from './unpack.js';
+import { regionOption } from './unpack.js';
+import type { Region } from './window.js';
 import { byPath } from './netcdf.js';
 
 type MapKind = 'value' | 'error' | 'rank';
@@ -154,7 +156,7 @@ async function planeOriginal(archive: Archive, h: FieldHeader, input: string, fl
   const path = flags.against!;
   const kind = await inputKind(path);
   const size = plane.rows * plane.cols;
-  const whole = fieldShape(h);
+  const whole = ndShape(h);
   if (kind === 'netcdf' || kind === 'hdf5') {
     if (flags.dtype !== undefined || flags.endian !== undefined) throw new UsageError(`--dtype and --endian describe raw originals; '${printable(path)}' is NetCDF`);
     const values = (await netcdfOriginals(path, archive, [h.name], input, kind === 'hdf5'))[h.name];

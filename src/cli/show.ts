@@ -4,7 +4,7 @@ import { METHOD_NAMES, Method } from '../codec/payload.js';
 import { formatBound, isPointwise, type Archive, type Attrs } from '../index.js';
 import { isUrl, openArchiveSource } from './files.js';
 import { bytesText, num, sourceBytes } from './format.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { printable } from '../format/schema.js';
 import { carriedNames, KEY } from './netcdf.js';
 import { Output, type OutputFlags } from './output.js';

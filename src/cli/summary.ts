@@ -6,7 +6,7 @@
  */
 import { payloadShares } from '../codec/payload.js';
 import { FormatCode, FormatError, Method, type ByteSource, type FieldIndex } from '../index.js';
-import { readRanges } from '../format/source.js';
+import { readRanges } from '../io/source.js';
 
 /** How the tiles of a field are stored. */
 export interface TileUse {

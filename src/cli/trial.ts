@@ -16,7 +16,7 @@ import { fileError, UsageError } from './errors.js';
 import { checkOutput, readInput, statInput, writeOutput } from './files.js';
 import { num, ratio, seconds, table } from './format.js';
 import { checkLayout, inputKind, openFieldBands } from './input.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, nonFinite, tileOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 import { byteShares, tileUse, type ByteShares, type TileUse } from './summary.js';

@@ -8,27 +8,22 @@ import { checkOutput, isUrl, openArchive, statInput, trackTempDir, writeOutput, 
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
 import { byPath, carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
-import { dimNames, ndShapeOf, notOneBox, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
+import { dimNames, notOneBox, type Region, type Span, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
 import type { Archive, FloatArray } from '../index.js';
 import { writeNetcdf, type NcWriteFile } from '../io/netcdf-write.js';
 import { writeNetcdf4 } from '../io/hdf5-write.js';
 import { mkdtemp, readFile, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { printable } from '../format/schema.js';
+import { ndShape } from '../geometry.js';
 import { stat, statfs } from 'node:fs/promises';
 import { dirname, join, resolve } from 'node:path';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { boundOption, endianOption, nameOption, threadsOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
 import { formatBound, isPointwise, resolveBound } from '../codec/bound.js';
 import type { Bound } from '../types.js';
 import type { FieldHeader } from '../format/schema.js';
-
-/** A window as given by --region: each end may be left open (to the field's edge). */
-export interface Region {
-  rows: [number | undefined, number | undefined];
-  cols: [number | undefined, number | undefined];
-}
 
 interface UnpackFlags extends OutputFlags {
   output: string;
@@ -92,9 +87,6 @@ Example:
 const END = /^[0-9]*$/;
 
 /** `--region R0:R1,C0:C1`: two half-open ranges of non-negative integers, either end optional. */
-/** A half-open range whose ends may be left open (to the edge). */
-export type Span = [number | undefined, number | undefined];
-
 /**
  * `--slices A:B` (a half-open range of slices, of the leading axes
  * together), or `A:B,C:D,...` (one range per leading axis); either end of
@@ -477,7 +469,7 @@ async function unpackAxes(
   o: { input: string; nc: boolean; csv: boolean; npy: boolean; io: { force: boolean; inputs: string[] }; start: number },
   out: Output,
 ): Promise<void> {
-  const nd = ndShapeOf(h);
+  const nd = ndShape(h);
   let ranges: AxisRange[] | null;
   if (flags.where) {
     ranges = rangesWhere(h, flags.where, (dim) => {

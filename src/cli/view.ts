@@ -13,7 +13,7 @@ import { viewerPage } from '../view/html.js';
 import { startViewServer, type ViewServer } from '../view/server.js';
 import { UsageError } from './errors.js';
 import { isUrl, openArchiveSource } from './files.js';
-import type { Context } from './main.js';
+import type { Context } from './context.js';
 import { carriedValues } from './netcdf.js';
 import { Output, type OutputFlags } from './output.js';
 

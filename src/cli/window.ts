@@ -9,8 +9,17 @@
 import { InvalidArgumentError } from 'commander';
 import type { Archive, FieldHeader, FloatArray } from '../index.js';
 import { printable } from '../format/schema.js';
+import { ndShape } from '../geometry.js';
 import { UsageError } from './errors.js';
-import type { Region, Span } from './unpack.js';
+
+/** A window as given by --region: each end may be left open (to the field's edge). */
+export interface Region {
+  rows: [number | undefined, number | undefined];
+  cols: [number | undefined, number | undefined];
+}
+
+/** A half-open range whose ends may be left open (to the edge). */
+export type Span = [number | undefined, number | undefined];
 
 /** A half-open index range along one axis. */
 export type AxisRange = [number, number];
@@ -40,14 +49,9 @@ export function whereOption(text: string): WhereTerm[] {
   });
 }
 
-/** The field's N-D shape: nd_shape, else slices x rows x cols, else rows x cols. */
-export function ndShapeOf(h: FieldHeader): number[] {
-  return h.nd_shape ?? ((h.slices ?? 1) > 1 ? [h.slices!, h.shape[0], h.shape[1]] : h.shape.slice());
-}
-
-/** The field's dimension names, one per axis of {@link ndShapeOf}. */
+/** The field's dimension names, one per axis of {@link ndShape}. */
 export function dimNames(h: FieldHeader): string[] {
-  const nd = ndShapeOf(h);
+  const nd = ndShape(h);
   return h.dims && h.dims.length === nd.length ? h.dims : nd.map((_, i) => `${h.name}_dim${i}`);
 }
 
@@ -73,7 +77,7 @@ export function axisOf(h: FieldHeader, name: string): number {
  * with {@link notOneBox}).
  */
 export function rangesFrom(h: FieldHeader, slices: Span[] | undefined, region: Region | undefined): AxisRange[] | null {
-  const nd = ndShapeOf(h);
+  const nd = ndShape(h);
   const k = nd.length;
   const out: AxisRange[] = nd.map((n) => [0, n]);
   if (region) {
@@ -132,7 +136,7 @@ export function boxOf(lead: number[], [a, b]: AxisRange): AxisRange[] | null {
 
 /** The refusal of a --slices range of the leading axes together that is no box of them (a .nc window needs one). */
 export function notOneBox(h: FieldHeader, [a, b]: AxisRange): string {
-  const nd = ndShapeOf(h);
+  const nd = ndShape(h);
   const k = nd.length;
   const lead = dimNames(h).slice(0, k - 2);
   const sizes = lead.map((d, i) => `${printable(d)} ${nd[i]}`).join(', ');
@@ -149,7 +153,7 @@ export function notOneBox(h: FieldHeader, [a, b]: AxisRange): string {
  * monotonic, CF conventions 1.x section 5, from memory).
  */
 export function rangesWhere(h: FieldHeader, terms: WhereTerm[], coords: (dim: string) => ArrayLike<number> | null): AxisRange[] {
-  const nd = ndShapeOf(h);
+  const nd = ndShape(h);
   const out: AxisRange[] = nd.map((n) => [0, n]);
   const seen = new Set<number>();
   for (const t of terms) {
@@ -201,7 +205,7 @@ function bitCopier(src: FloatArray, dst: FloatArray): (i: number, j: number) => 
  * taken from it in C order.
  */
 export async function readAxes(archive: Archive, h: FieldHeader, ranges: AxisRange[]): Promise<{ values: FloatArray; shape: number[] }> {
-  const nd = ndShapeOf(h);
+  const nd = ndShape(h);
   const shape = ranges.map(([a, b]) => b - a);
   return { values: await readFlats(archive, h, flatIndexes(nd, ranges)), shape };
 }
@@ -212,7 +216,7 @@ export async function readAxes(archive: Archive, h: FieldHeader, ranges: AxisRan
  * as slices x rows x cols.
  */
 export async function readSliceWindow(archive: Archive, h: FieldHeader, s: AxisRange, r: AxisRange, c: AxisRange): Promise<{ values: FloatArray; shape: number[] }> {
-  const nd = ndShapeOf(h);
+  const nd = ndShape(h);
   const k = nd.length;
   const lead = nd.slice(0, k - 2).reduce((x, y) => x * y, 1);
   return { values: await readFlats(archive, h, flatIndexes([lead, nd[k - 2], nd[k - 1]], [s, r, c])), shape: [s[1] - s[0], r[1] - r[0], c[1] - c[0]] };

@@ -5,6 +5,7 @@
  * the clearest case); smaller tiles cost less to read through a window.
  */
 import type { FloatArray } from '../types.js';
+import { copyBlock } from '../geometry.js';
 import { encodeField, type BandSource, type FieldSpec } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
@@ -92,7 +93,7 @@ export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
       const band = src.band(ti * m, m);
       for (; k < picked.length && Math.floor(picked[k] / gc) === ti; k++) {
         const j0 = (picked[k] % gc) * n;
-        for (let i = 0; i < m; i++) mosaic.set(band.subarray(i * spec.cols + j0, i * spec.cols + j0 + n), i * width + k * n);
+        copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n);
       }
     }
     const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };

@@ -14,7 +14,7 @@ import type { FloatArray } from '../types.js';
 import { encodePointwise, exactPayload } from './tile-encode.js';
 import { forEachTile, validRange, type BandSource, type FieldSpec } from './tiles.js';
 
-export { extractTile, forEachTile, tilesOf, memoryBands, tileGrid, validRange, type BandSource, type FieldSpec } from './tiles.js';
+export { forEachTile, tilesOf, memoryBands, validRange, type BandSource, type FieldSpec } from './tiles.js';
 export { measure, measurePrefixes, type TileStats } from './measure.js';
 
 /** A finished tile. */

@@ -12,7 +12,11 @@ import type { PreparedTile } from './prepare.js';
 import { ErrorTally } from './tally.js';
 import { decodeTile } from './tile-decode.js';
 
-/** Per-tile facts recorded in the index. */
+/**
+ * Per-tile facts recorded in the index, as the encoder measured them (library
+ * names); the index stores them as format/schema.ts's TileColumns (file keys:
+ * max_err, value_crc) and a reader hands one tile's out as archive.ts's TileEntry.
+ */
 export interface TileStats {
   method: number;
   rank: number;

@@ -1,18 +1,22 @@
 /**
- * The geometry of a field being encoded: its spec, the band source it is
- * read from, its tile grid, and the walk over its tiles.
+ * A field being encoded: its spec, the band source it is read from, and the
+ * walk over its tiles (the grid itself is in geometry.ts).
  */
+import { cutBlock, tileGrid, tileIndex, type SpecGrid } from '../geometry.js';
 import type { Bound, Dtype, FloatArray } from '../types.js';
 import { fillWords } from './mask.js';
 
-/** What the encoder needs to know about a field. */
-export interface FieldSpec {
+// The tile grid is geometry.ts's; plan-l2.ts and parts/plan.ts take it from here.
+export { tileGrid } from '../geometry.js';
+
+/**
+ * What the encoder needs to know about a field. Not the header's FieldHeader:
+ * that one holds the file's keys and what the encoding found (range,
+ * tolerance); this one the caller's choices (a Bound, the trial, the guard).
+ */
+export interface FieldSpec extends SpecGrid {
   name: string;
   dtype: Dtype;
-  rows: number;
-  cols: number;
-  tileRows: number;
-  tileCols: number;
   bound: Bound;
   fill: number | null;
   /** Choose the tile shape by trial (see auto-tile.ts); tileRows/tileCols are then replaced. */
@@ -29,11 +33,6 @@ export interface FieldSpec {
   slices?: number;
 }
 
-/** Number of tile rows and columns of one slice. */
-export function tileGrid(spec: Pick<FieldSpec, 'rows' | 'cols' | 'tileRows' | 'tileCols'>): [number, number] {
-  return [Math.ceil(spec.rows / spec.tileRows), Math.ceil(spec.cols / spec.tileCols)];
-}
-
 /**
  * Where the encoder reads a field from: bands of whole rows, so a field
  * larger than memory can be packed one band of tiles at a time.
@@ -46,16 +45,6 @@ export interface BandSource {
 /** A band source over a field already in memory. */
 export function memoryBands(values: FloatArray, cols: number): BandSource {
   return { band: (r0, count) => values.subarray(r0 * cols, (r0 + count) * cols) };
-}
-
-/** Copy tile column tj out of a band holding the tile row's rows. */
-export function extractTile(band: FloatArray, spec: FieldSpec, bandRows: number, tj: number): { tile: FloatArray; m: number; n: number } {
-  const j0 = tj * spec.tileCols;
-  const m = bandRows;
-  const n = Math.min(spec.tileCols, spec.cols - j0);
-  const tile = spec.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
-  for (let i = 0; i < m; i++) tile.set(band.subarray(i * spec.cols + j0, i * spec.cols + j0 + n), i * n);
-  return { tile, m, n };
 }
 
 /**
@@ -71,7 +60,11 @@ export function* tilesOf(src: BandSource, spec: FieldSpec): Generator<{ index: n
       const r0 = ti * spec.tileRows;
       const rows = Math.min(spec.tileRows, spec.rows - r0);
       const band = src.band(s * spec.rows + r0, rows);
-      for (let tj = 0; tj < gc; tj++) yield { index: s * gr * gc + ti * gc + tj, ...extractTile(band, spec, rows, tj) };
+      for (let tj = 0; tj < gc; tj++) {
+        const j0 = tj * spec.tileCols;
+        const n = Math.min(spec.tileCols, spec.cols - j0);
+        yield { index: tileIndex(spec, s, ti, tj), tile: cutBlock(band, spec.cols, 0, j0, rows, n), m: rows, n };
+      }
     }
   }
 }

@@ -7,8 +7,9 @@ import { Decoder } from '@msgpack/msgpack';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { ByteReader, ByteWriter } from './bytes.js';
 import { crc32 } from './crc32.js';
-import { readRanges, type ByteSource, type CoalesceOptions } from './source.js';
-import { checkDirectory, checkHeader, checkPage, checkSummary, directoryForDisk, headerForDisk, pageForDisk, MAX_DEPTH, MAX_MAP_ENTRIES, pageCount, pageOf, pageTiles, quoteName, resolveLimits, tileCount, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex } from './schema.js';
+import { readRanges, type ByteSource, type CoalesceOptions } from '../io/source.js';
+import { tileCount } from '../geometry.js';
+import { checkDirectory, checkHeader, checkPage, checkSummary, directoryForDisk, headerForDisk, pageForDisk, MAX_DEPTH, MAX_MAP_ENTRIES, pageCount, pageOf, pageTiles, quoteName, resolveLimits, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex } from './schema.js';
 
 /** Magic bytes that open every archive. */
 export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0a);

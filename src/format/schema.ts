@@ -3,12 +3,13 @@
  * before trusting any number in them (spec/FORMAT.md, "Header", "Index").
  */
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
+import { tileGrid, tileShape, type Grid } from '../geometry.js';
 import type { BoundMode, Dtype } from '../types.js';
 
 /** Free-form attributes: strings, numbers, booleans, or arrays of them. */
 export type Attrs = Record<string, string | number | boolean | (string | number | boolean)[]>;
 
-/** One field as the header describes it. */
+/** One field as the header stores it (file keys); the encoder's input is codec/tiles.ts's FieldSpec (the caller's choices). */
 export interface FieldHeader {
   name: string;
   dtype: Dtype;
@@ -428,34 +429,6 @@ function nonEmpty<T extends object>(m: T): T | null {
   return Object.keys(m).length > 0 ? m : null;
 }
 
-/** Tiles of one slice of a field: [tile rows, tile columns]. */
-export function sliceGrid(h: Pick<FieldHeader, 'shape' | 'tile'>): [number, number] {
-  return [Math.ceil(h.shape[0] / h.tile[0]), Math.ceil(h.shape[1] / h.tile[1])];
-}
-
-/** Total tiles of a field: slices x tiles per slice. */
-export function tileCount(h: Pick<FieldHeader, 'shape' | 'tile' | 'slices'>): number {
-  const [gr, gc] = sliceGrid(h);
-  return (h.slices ?? 1) * gr * gc;
-}
-
-/**
- * Where tile t lies: its slice s and its first row and column within the
- * slice (t = s * (gr * gc) + ti * gc + tj; tiles never cross slices).
- */
-export function tileOrigin(h: Pick<FieldHeader, 'shape' | 'tile'>, t: number): { s: number; i0: number; j0: number } {
-  const [gr, gc] = sliceGrid(h);
-  const s = Math.floor(t / (gr * gc));
-  const local = t - s * gr * gc;
-  return { s, i0: Math.floor(local / gc) * h.tile[0], j0: (local % gc) * h.tile[1] };
-}
-
-/** Rows and columns of tile t of a field (edge tiles of each slice are partial). */
-export function tileShape(h: Pick<FieldHeader, 'shape' | 'tile'>, t: number): [number, number] {
-  const { i0, j0 } = tileOrigin(h, t);
-  return [Math.min(h.tile[0], h.shape[0] - i0), Math.min(h.tile[1], h.shape[1] - j0)];
-}
-
 /**
  * The per-tile columns of an index page as stored, in their order
  * (spec/FORMAT.md, section 7.3): the page is an array of these eight
@@ -482,7 +455,7 @@ export function up32(x: number): number {
 }
 
 /** The on-disk form of an index page: the columns of {@link PAGE_COLUMNS}, errors rounded up to binary32, then the prefix column if any. */
-export function pageForDisk(h: Pick<FieldHeader, 'shape' | 'tile'>, ix: TileColumns, tiles: readonly number[]): unknown[] {
+export function pageForDisk(h: Grid, ix: TileColumns, tiles: readonly number[]): unknown[] {
   const out: unknown[] = [
     tiles.map((t) => ix.length[t]),
     tiles.map((t) => ix.crc[t]),
@@ -501,13 +474,13 @@ export function pageForDisk(h: Pick<FieldHeader, 'shape' | 'tile'>, ix: TileColu
 }
 
 /** Index pages of one slice of a field: [page rows, page columns], for pages of `page` = [tile rows, tile cols]. */
-export function pageGrid(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[]): [number, number] {
-  const [gr, gc] = sliceGrid(h);
+export function pageGrid(h: Grid, page: readonly number[]): [number, number] {
+  const [gr, gc] = tileGrid(h);
   return [Math.ceil(gr / page[0]), Math.ceil(gc / page[1])];
 }
 
 /** Total index pages of a field: slices x pages per slice. */
-export function pageCount(h: Pick<FieldHeader, 'shape' | 'tile' | 'slices'>, page: readonly number[]): number {
+export function pageCount(h: Grid, page: readonly number[]): number {
   const [pr, pc] = pageGrid(h, page);
   return (h.slices ?? 1) * pr * pc;
 }
@@ -517,8 +490,8 @@ export function pageCount(h: Pick<FieldHeader, 'shape' | 'tile' | 'slices'>, pag
  * rows top to bottom, each left to right (pages never cross slices; edge
  * pages hold fewer tiles).
  */
-export function pageTiles(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[], p: number): number[] {
-  const [gr, gc] = sliceGrid(h);
+export function pageTiles(h: Grid, page: readonly number[], p: number): number[] {
+  const [gr, gc] = tileGrid(h);
   const [pr, pc] = pageGrid(h, page);
   const s = Math.floor(p / (pr * pc));
   const local = p - s * pr * pc;
@@ -532,8 +505,8 @@ export function pageTiles(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly
 }
 
 /** Which index page holds tile t, and its position k in that page. */
-export function pageOf(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[], t: number): { p: number; k: number } {
-  const [gr, gc] = sliceGrid(h);
+export function pageOf(h: Grid, page: readonly number[], t: number): { p: number; k: number } {
+  const [gr, gc] = tileGrid(h);
   const [pr, pc] = pageGrid(h, page);
   const s = Math.floor(t / (gr * gc));
   const local = t - s * gr * gc;
@@ -640,8 +613,8 @@ export function directoryForDisk(d: FieldDirectory): unknown[] {
 }
 
 /** Tiles of index page p (edge pages hold fewer). */
-export function pageTileCount(h: Pick<FieldHeader, 'shape' | 'tile'>, page: readonly number[], p: number): number {
-  const [gr, gc] = sliceGrid(h);
+export function pageTileCount(h: Grid, page: readonly number[], p: number): number {
+  const [gr, gc] = tileGrid(h);
   const [pr, pc] = pageGrid(h, page);
   const local = p % (pr * pc);
   const pi = Math.floor(local / pc);

@@ -11,16 +11,18 @@
  */
 import { closeSync, fstatSync, fsyncSync, openSync, readSync, writeSync } from 'node:fs';
 import { InputCode, InputError } from '../errors.js';
+import type { BandSource } from '../codec/tiles.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { HOST_LITTLE_ENDIAN, checkedProduct, itemSize, swapBytes } from './ndarray.js';
 import { MAX_NPY_HEADER_BYTES, npyHeader, parseNpy, parseNpyHeader } from './npy.js';
 import { openRegularSync } from './regular-file.js';
 
 /**
- * A field read a band of rows at a time. An N-D array in C order is read as
- * the 2-D matrix of its values: all axes but the last as rows.
+ * A field read a band of rows at a time from a file: the encoder's
+ * BandSource, with what the file says of the field and a close. An N-D array
+ * in C order is read as the 2-D matrix of its values: all axes but the last as rows.
  */
-export interface BandReader {
+export interface BandReader extends BandSource {
   /** [rows, cols] of the matrix read: the product of all axes but the last, and the last. */
   readonly shape: [number, number];
   /** The array's own shape (2 or more axes; equal to `shape` for a 2-D array). */

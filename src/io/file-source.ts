@@ -6,7 +6,7 @@
  */
 import type { FileHandle } from 'node:fs/promises';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
-import type { ByteSource } from '../format/source.js';
+import type { ByteSource } from './source.js';
 import { openRegular } from './regular-file.js';
 
 /** A read-only, random-access byte source over one file. */

@@ -2,7 +2,7 @@
  * Cyclic one-sided Jacobi (Hestenes) kernel on a column-major matrix.
  */
 
-import { sumSquares } from './qrcp.js';
+import { sumSquares } from './householder.js';
 
 /** Rotate a column pair while |p . q| > JACOBI_TOL * |p| * |q|. */
 export const JACOBI_TOL = 1e-15;

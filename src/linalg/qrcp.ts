@@ -3,6 +3,7 @@
  * matrix, stopping early once every remaining column is negligible. Used to
  * precondition and rank-reduce the Jacobi SVD.
  */
+import { householder, reflect, sumSquares } from './householder.js';
 
 /** Result of {@link qrcp}; the factors themselves stay in the input array. */
 export interface Qrcp {
@@ -57,32 +58,11 @@ export function qrcp(w: Float64Array, rows: number, cols: number, drop2: number)
       vref[piv] = vref[i];
     }
 
-    // Householder vector for w[i.., i] (LAPACK dlarfg convention).
-    const ci = i * rows;
-    const alpha = w[ci + i];
-    const xn2 = sumSquares(w, ci + i + 1, rows - i - 1);
-    if (xn2 === 0) {
-      tau[i] = 0; // H_i = I; R[i][i] = alpha
-    } else {
-      const nrm = Math.sqrt(alpha * alpha + xn2);
-      const beta = alpha >= 0 ? -nrm : nrm;
-      tau[i] = (beta - alpha) / beta;
-      const inv = 1 / (alpha - beta);
-      for (let t = ci + i + 1; t < ci + rows; t++) w[t] *= inv;
-      w[ci + i] = beta;
-    }
-
-    // Apply H_i to the trailing columns and downdate their norms.
-    const ti = tau[i];
+    // The reflector for w[i.., i] (tau 0: H_i = I, R[i][i] = w[i][i]), applied to the trailing columns, whose norms are then downdated.
+    tau[i] = householder(w, rows, i);
+    if (tau[i] !== 0) reflect(w, rows, i, tau[i], w, i + 1, cols);
     for (let j = i + 1; j < cols; j++) {
       const cj = j * rows;
-      if (ti !== 0) {
-        let s = w[cj + i];
-        for (let t = i + 1; t < rows; t++) s += w[ci + t] * w[cj + t];
-        s *= ti;
-        w[cj + i] -= s;
-        for (let t = i + 1; t < rows; t++) w[cj + t] -= s * w[ci + t];
-      }
       const r = w[cj + i];
       const left = vn[j] - r * r;
       // Cancellation guard: recompute when most of the norm is gone.
@@ -115,23 +95,4 @@ export function applyQ(w: Float64Array, rows: number, f: Qrcp, y: Float64Array, 
       for (let t = i + 1; t < rows; t++) y[yc + t] -= s * w[ci + t];
     }
   }
-}
-
-/** Sum of squares of x[off], ..., x[off + len - 1]. */
-export function sumSquares(x: Float64Array, off: number, len: number): number {
-  let s0 = 0;
-  let s1 = 0;
-  let i = 0;
-  const end2 = len - (len & 1);
-  for (; i < end2; i += 2) {
-    const a = x[off + i];
-    const b = x[off + i + 1];
-    s0 += a * a;
-    s1 += b * b;
-  }
-  if (i < len) {
-    const a = x[off + i];
-    s0 += a * a;
-  }
-  return s0 + s1;
 }

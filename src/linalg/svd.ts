@@ -8,7 +8,8 @@
 
 import { jacobi } from './jacobi.js';
 import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
-import { applyQ, qrcp, sumSquares, type Qrcp } from './qrcp.js';
+import { sumSquares } from './householder.js';
+import { applyQ, qrcp, type Qrcp } from './qrcp.js';
 import { checkShape } from './shape.js';
 
 

@@ -9,7 +9,7 @@
 
 import { InputCode, InputError } from '../errors.js';
 import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
-import { sumSquares } from './qrcp.js';
+import { householder, reflect, sumSquares } from './householder.js';
 import { checkShape } from './shape.js';
 import { svd, type Svd } from './svd.js';
 
@@ -274,75 +274,12 @@ function mulA(w: Float64Array, rows: number, cols: number, g: Float64Array, l: n
  */
 function orthonormalize(y: Float64Array, rows: number, cols: number, q: Float64Array, tau: Float64Array): void {
   for (let i = 0; i < cols; i++) {
-    const ci = i * rows;
-    const alpha = y[ci + i];
-    const xn2 = sumSquares(y, ci + i + 1, rows - i - 1);
-    if (xn2 === 0) {
-      tau[i] = 0; // H_i = I
-      continue;
-    }
-    const nrm = Math.sqrt(alpha * alpha + xn2);
-    const beta = alpha >= 0 ? -nrm : nrm;
-    tau[i] = (beta - alpha) / beta;
-    const inv = 1 / (alpha - beta);
-    for (let t = ci + i + 1; t < ci + rows; t++) y[t] *= inv;
-    y[ci + i] = beta;
-    reflect(y, rows, i, tau[i], y, i + 1, cols);
+    tau[i] = householder(y, rows, i);
+    if (tau[i] !== 0) reflect(y, rows, i, tau[i], y, i + 1, cols);
   }
   // Q e_c = H_0 ... H_{cols-1} e_c, accumulated from the last reflector; when
   // H_i is applied, columns c < i are still e_c, which H_i leaves alone.
   q.fill(0);
   for (let c = 0; c < cols; c++) q[c * rows + c] = 1;
   for (let i = cols - 1; i >= 0; i--) if (tau[i] !== 0) reflect(y, rows, i, tau[i], q, i, cols);
-}
-
-/**
- * Applies H_i = I - ti v v^T to columns from..to-1 of the column-major
- * matrix x (rows per column), where v is 1 at row i and h[i * rows + t] at
- * rows t > i (rows above i are zero). Four columns per pass share the loads
- * of v.
- */
-function reflect(h: Float64Array, rows: number, i: number, ti: number, x: Float64Array, from: number, to: number): void {
-  const ci = i * rows;
-  let c = from;
-  for (; c + 3 < to; c += 4) {
-    const x0 = c * rows;
-    const x1 = x0 + rows;
-    const x2 = x1 + rows;
-    const x3 = x2 + rows;
-    let s0 = x[x0 + i];
-    let s1 = x[x1 + i];
-    let s2 = x[x2 + i];
-    let s3 = x[x3 + i];
-    for (let t = i + 1; t < rows; t++) {
-      const vt = h[ci + t];
-      s0 += vt * x[x0 + t];
-      s1 += vt * x[x1 + t];
-      s2 += vt * x[x2 + t];
-      s3 += vt * x[x3 + t];
-    }
-    s0 *= ti;
-    s1 *= ti;
-    s2 *= ti;
-    s3 *= ti;
-    x[x0 + i] -= s0;
-    x[x1 + i] -= s1;
-    x[x2 + i] -= s2;
-    x[x3 + i] -= s3;
-    for (let t = i + 1; t < rows; t++) {
-      const vt = h[ci + t];
-      x[x0 + t] -= s0 * vt;
-      x[x1 + t] -= s1 * vt;
-      x[x2 + t] -= s2 * vt;
-      x[x3 + t] -= s3 * vt;
-    }
-  }
-  for (; c < to; c++) {
-    const x0 = c * rows;
-    let s0 = x[x0 + i];
-    for (let t = i + 1; t < rows; t++) s0 += h[ci + t] * x[x0 + t];
-    s0 *= ti;
-    x[x0 + i] -= s0;
-    for (let t = i + 1; t < rows; t++) x[x0 + t] -= s0 * h[ci + t];
-  }
 }

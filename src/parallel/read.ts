@@ -9,9 +9,9 @@
 import { checkWindow, hasSlices, open, type Archive, type ReadOptions } from '../archive.js';
 import { checkBound, parseBound } from '../codec/bound.js';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
-import { HttpSource } from '../format/http-source.js';
-import { sliceGrid } from '../format/schema.js';
-import { MemorySource, type ByteSource } from '../format/source.js';
+import { HttpSource } from '../io/http-source.js';
+import { windowTiles } from '../geometry.js';
+import { MemorySource, type ByteSource } from '../io/source.js';
 import { FileSource } from '../io/file-source.js';
 import type { Bound, Dtype, FloatArray } from '../types.js';
 import { checkThreads, WorkerPool } from './pool.js';
@@ -147,19 +147,13 @@ function planBands(archive: Archive, name: string, o: ReadOptions, cells: number
   const { header: h } = archive.field(name);
   const { slices, rows, cols } = checkWindow(h, o);
   const [tr, tc] = h.tile;
-  const [gr, gc] = sliceGrid(h);
   const width = cols[1] - cols[0];
   const tileRows = Math.ceil(rows[1] / tr) - Math.floor(rows[0] / tr);
   const share = threads > 1 ? Math.ceil(tileRows / (BANDS_PER_THREAD * threads)) : Infinity;
   const keep = { ...(o.verify !== undefined ? { verify: o.verify } : {}), ...(o.bound !== undefined ? { bound: o.bound } : {}) };
   const out: BandRequest[] = [];
-  const tilesOf = (s: number, a: number, b: number, c0: number, c1: number) => {
-    const tiles: number[] = [];
-    for (let ti = Math.floor(a / tr); ti * tr < b; ti++) for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) tiles.push(s * gr * gc + ti * gc + tj);
-    return tiles;
-  };
   const band = (s: number, a: number, b: number, c: [number, number], counted: boolean) =>
-    out.push({ name: h.name, options: { ...keep, ...(hasSlices(h) ? { slices: [s, s + 1] as [number, number] } : {}), rows: [a, b], cols: c }, tiles: counted ? tilesOf(s, a, b, c[0], c[1]) : [] });
+    out.push({ name: h.name, options: { ...keep, ...(hasSlices(h) ? { slices: [s, s + 1] as [number, number] } : {}), rows: [a, b], cols: c }, tiles: counted ? windowTiles(h, s, a, b, c[0], c[1]) : [] });
   if (tr * width <= most) {
     const per = tr * Math.max(1, Math.min(Math.floor(cells / (tr * width)), share, Math.floor(most / (tr * width))));
     for (let s = slices[0]; s < slices[1]; s++) {

@@ -12,7 +12,8 @@
  */
 import { hasSlices, type Archive } from '../archive.js';
 import { Method } from '../codec/payload.js';
-import { sliceGrid, type FieldHeader, type FieldIndex } from '../format/schema.js';
+import type { FieldHeader, FieldIndex } from '../format/schema.js';
+import { cutBlock, tileIndex } from '../geometry.js';
 import type { FloatArray } from '../types.js';
 
 /** A 2-D plane of a field, readable by windows. */
@@ -51,13 +52,12 @@ export const EXACT_CODE = -1;
 
 /** Slice `slice` of a field as stored (slice 0 of a plain field). */
 export function slicePlane(archive: Archive, h: FieldHeader, slice: number): Plane {
-  const [gr, gc] = sliceGrid(h);
   return {
     rows: h.shape[0],
     cols: h.shape[1],
     band: h.tile[0],
     read: async (r0, r1, c0, c1) => (await archive.read(h.name, { ...(hasSlices(h) ? { slices: [slice, slice + 1] as [number, number] } : {}), rows: [r0, r1], cols: [c0, c1] })).values,
-    tileAt: (r, c) => slice * gr * gc + Math.floor(r / h.tile[0]) * gc + Math.floor(c / h.tile[1]),
+    tileAt: (r, c) => tileIndex(h, slice, Math.floor(r / h.tile[0]), Math.floor(c / h.tile[1])),
   };
 }
 
@@ -78,7 +78,6 @@ export function snapshotShape(h: FieldHeader): [number, number] | null {
 /** Row `row` of a matrix-layout field, laid out as {@link snapshotShape}. */
 export function snapshotPlane(archive: Archive, h: FieldHeader, row: number): Plane {
   const [rows, cols] = snapshotShape(h)!;
-  const gc = sliceGrid(h)[1];
   return {
     rows,
     cols,
@@ -87,11 +86,9 @@ export function snapshotPlane(archive: Archive, h: FieldHeader, row: number): Pl
     read: async (r0, r1, c0, c1) => {
       const got = (await archive.read(h.name, { rows: [row, row + 1], cols: [r0 * cols, r1 * cols] })).values;
       if (c0 === 0 && c1 === cols) return got;
-      const out = h.dtype === 'f32' ? new Float32Array((r1 - r0) * (c1 - c0)) : new Float64Array((r1 - r0) * (c1 - c0));
-      for (let r = 0; r < r1 - r0; r++) out.set(got.subarray(r * cols + c0, r * cols + c1), r * (c1 - c0));
-      return out;
+      return cutBlock(got, cols, 0, c0, r1 - r0, c1 - c0);
     },
-    tileAt: (r, c) => Math.floor(row / h.tile[0]) * gc + Math.floor((r * cols + c) / h.tile[1]),
+    tileAt: (r, c) => tileIndex(h, 0, Math.floor(row / h.tile[0]), Math.floor((r * cols + c) / h.tile[1])),
   };
 }
 

@@ -17,7 +17,7 @@
 import { randomBytes } from 'node:crypto';
 import { createServer, type IncomingMessage, type Server, type ServerResponse } from 'node:http';
 import type { AddressInfo } from 'node:net';
-import type { ByteSource } from '../format/source.js';
+import type { ByteSource } from '../io/source.js';
 
 /** What the server serves. */
 export interface ViewServerOptions {

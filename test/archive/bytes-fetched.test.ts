@@ -17,7 +17,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ArchiveBuilder, MemorySource, open, type Archive } from '../../src/index.js';
-import { HttpSource } from '../../src/format/http-source.js';
+import { HttpSource } from '../../src/io/http-source.js';
 import { TAIL_SIZE } from '../../src/format/container.js';
 import { FileSink } from '../../src/io/file-sink.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';

@@ -9,7 +9,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { InputError, open, pack } from '../../src/index.js';
-import { HttpSource } from '../../src/format/http-source.js';
+import { HttpSource } from '../../src/io/http-source.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
 import { precip } from './datasets.js';
 

@@ -16,7 +16,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ArchiveBuilder, MemorySink, MemorySource, open, type Archive } from '../../src/index.js';
-import { HttpSource } from '../../src/format/http-source.js';
+import { HttpSource } from '../../src/io/http-source.js';
 import { TAIL_SIZE } from '../../src/format/container.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
 

@@ -7,7 +7,7 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { FormatError, InputError, MemorySource, type ByteSource } from '../../src/index.js';
-import { coalesce, readRanges } from '../../src/format/source.js';
+import { coalesce, readRanges } from '../../src/io/source.js';
 import { expectSameBytes } from '../same-bytes.js';
 
 const bytes = Uint8Array.from({ length: 1 << 16 }, (_, i) => (i * 131 + (i >> 9)) & 0xff);

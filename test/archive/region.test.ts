@@ -12,7 +12,7 @@ import { join } from 'node:path';
 import fc from 'fast-check';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { InputCode, InputError, MemorySource, open, pack, type Archive, type ByteSource, type FieldValues } from '../../src/index.js';
-import { HttpSource } from '../../src/format/http-source.js';
+import { HttpSource } from '../../src/io/http-source.js';
 import { FileSource } from '../../src/io/file-source.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
 import { expectSameBytes } from '../same-bytes.js';

@@ -54,7 +54,7 @@ describe('the import graph of dist/decode.js', () => {
   it('holds no Node built-in and no package but fflate and @msgpack/msgpack', () => {
     const { files, bare } = walk(join(ROOT, 'dist', 'decode.js'));
     // The decoder's own modules are all there: archive, container, tile decoding, the HTTP source.
-    for (const f of ['archive.js', 'format/container.js', 'codec/tile-decode.js', 'format/http-source.js']) expect(files).toContain(join(ROOT, 'dist', f));
+    for (const f of ['archive.js', 'format/container.js', 'codec/tile-decode.js', 'io/http-source.js']) expect(files).toContain(join(ROOT, 'dist', f));
     const builtins = bare.filter(({ spec }) => spec.startsWith('node:') || BUILTINS.has(spec) || BUILTINS.has(spec.split('/')[0]));
     expect(builtins, `Node built-ins imported: ${builtins.map((b) => `${b.spec} (by ${b.from})`).join(', ')}`).toEqual([]);
     const packages = bare.filter(({ spec }) => !ALLOWED_PACKAGES.has(spec));

@@ -14,7 +14,7 @@ import { spawnSync } from 'node:child_process';
 import { readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { HttpSource } from '../../src/format/http-source.js';
+import { HttpSource } from '../../src/io/http-source.js';
 import { MemorySource, open } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { mirrored, precip } from '../archive/datasets.js';

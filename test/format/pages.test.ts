@@ -6,7 +6,8 @@
  * block), over grids with partial edge tiles and pages, and slices.
  */
 import { describe, expect, it } from 'vitest';
-import { pageCount, pageOf, pageTileCount, pageTiles, sliceGrid, tileCount, tileOrigin } from '../../src/format/schema.js';
+import { pageCount, pageOf, pageTileCount, pageTiles } from '../../src/format/schema.js';
+import { tileCount, tileGrid, tileOrigin } from '../../src/geometry.js';
 
 describe('page grid', () => {
   const cases = [
@@ -19,7 +20,7 @@ describe('page grid', () => {
   for (const c of cases) {
     it(`${c.slices} x ${c.shape.join('x')} in tiles of ${c.tile.join('x')}, pages of ${c.page.join('x')} tiles`, () => {
       const h = { shape: c.shape, tile: c.tile, slices: c.slices };
-      const [gr, gc] = sliceGrid(h);
+      const [gr, gc] = tileGrid(h);
       const P = pageCount(h, c.page);
       expect(P).toBe(c.slices * Math.ceil(gr / c.page[0]) * Math.ceil(gc / c.page[1]));
       const seen = new Array<number>(tileCount(h)).fill(0);

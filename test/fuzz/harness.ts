@@ -12,8 +12,9 @@
 import { open, type Archive } from '../../src/archive.js';
 import { archiveFacts, factsText } from '../../src/cli/show.js';
 import { FormatCode, FormatError, InputCode, InputError } from '../../src/errors.js';
-import { MemorySource } from '../../src/format/source.js';
-import { tileCount, type ArchiveIndex } from '../../src/format/schema.js';
+import { MemorySource } from '../../src/io/source.js';
+import type { ArchiveIndex } from '../../src/format/schema.js';
+import { tileCount } from '../../src/geometry.js';
 import type { FloatArray } from '../../src/types.js';
 import type { Rng } from './rng.js';
 

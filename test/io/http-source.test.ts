@@ -7,7 +7,7 @@
 import { afterAll, beforeAll, beforeEach, describe, expect, it } from 'vitest';
 import { FormatCode, FormatError, InputCode, InputError, open, pack } from '../../src/index.js';
 import { volcano } from '../archive/datasets.js';
-import { HttpSource } from '../../src/format/http-source.js';
+import { HttpSource } from '../../src/io/http-source.js';
 import { drip, startRangeServer, type RangeServer } from './range-server.js';
 
 const bytes = Uint8Array.from({ length: 100_000 }, (_, i) => (i * 7919 + (i >> 8)) % 251);

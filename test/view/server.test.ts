@@ -16,7 +16,7 @@ import { join } from 'node:path';
 import { NetCDFReader } from 'netcdfjs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ArchiveBuilder, HttpSource, MemorySink, open, pack } from '../../src/index.js';
-import { parseByteranges } from '../../src/format/http-source.js';
+import { parseByteranges } from '../../src/io/http-source.js';
 import { parseRangeHeader } from '../../src/view/server.js';
 import { CLI_TIMEOUT, ensureBuilt, ensureBundled, expectCliError, rf, rfAsync, ROOT, tempDir, volcano } from '../cli/helpers.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
