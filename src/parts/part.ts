@@ -86,20 +86,7 @@ export async function packPlanned(sink: Sink, src: BandSource, plan: RunPlan, o:
   const range = partRange(plan, k, n);
   const [r0, r1] = range.rows;
   const input = o.input ?? plan.source.file;
-  const crc = new BandCrc(plan.source.band_rows, f.shape[1], r0, (b, value) => {
-    const want = plan.source.band_crc[range.bands[0] + b];
-    if (value !== want) {
-      const a = (range.bands[0] + b) * plan.source.band_rows;
-      throw new InputError(InputCode.File, `${input}: rows ${a}..${Math.min(f.shape[0], a + plan.source.band_rows) - 1} differ from those plan '${plan.run}' was made from (CRC-32 ${hex(value)}, the plan has ${hex(want)}); run the plan again on this input, or give the input it was made from`);
-    }
-  });
-  const bandSrc: BandSource = {
-    band: (r, count) => {
-      const v = src.band(r0 + r, count);
-      crc.add(r0 + r, v);
-      return v;
-    },
-  };
+  const { band: bandSrc, finish } = partBands(src, plan, range, input);
   const spec: FieldSpec = { ...planSpec(f), rows: r1 - r0 };
   const whole = o.part === undefined;
   const builder = new ArchiveBuilder(sink);
@@ -107,7 +94,7 @@ export async function packPlanned(sink: Sink, src: BandSource, plan: RunPlan, o:
   const attrs = {};
   const opts = { attrs, onProgress: o.onProgress, ...(whole ? { ndShape: f.nd_shape, dims: f.dims, layout: f.layout } : {}) };
   await builder.addCoded(spec, opts, f.page, (emit) => encodeBand(bandSrc, plan, range, emit, tallies, o.pool));
-  crc.finish();
+  finish();
   if (!whole) {
     const a: Attrs = { [PART_KEYS.run]: plan.run, [PART_KEYS.plan]: plan.hash, [PART_KEYS.part]: [k, n], [PART_KEYS.rows]: [r0, r1, f.shape[0]] };
     if (f.nd_shape) a[PART_KEYS.ndShape] = f.nd_shape;
@@ -118,6 +105,32 @@ export async function packPlanned(sink: Sink, src: BandSource, plan: RunPlan, o:
   }
   builder.finish();
   return range;
+}
+
+/**
+ * The rows of part `range` of `plan` from `src` (the whole field's rows),
+ * renumbered from the part's first row, each band checked against the
+ * plan's CRC-32 of it once it has been read whole; `finish` checks the last
+ * band, a partial one at the bottom of the field.
+ */
+export function partBands(src: BandSource, plan: RunPlan, range: PartRange, input: string): { band: BandSource; finish: () => void } {
+  const f = plan.field;
+  const r0 = range.rows[0];
+  const crc = new BandCrc(plan.source.band_rows, f.shape[1], r0, (b, value) => {
+    const want = plan.source.band_crc[range.bands[0] + b];
+    if (value !== want) {
+      const a = (range.bands[0] + b) * plan.source.band_rows;
+      throw new InputError(InputCode.File, `${input}: rows ${a}..${Math.min(f.shape[0], a + plan.source.band_rows) - 1} differ from those plan '${plan.run}' was made from (CRC-32 ${hex(value)}, the plan has ${hex(want)}); run the plan again on this input, or give the input it was made from`);
+    }
+  });
+  const band: BandSource = {
+    band: (r, count) => {
+      const v = src.band(r0 + r, count);
+      crc.add(r0 + r, v);
+      return v;
+    },
+  };
+  return { band, finish: () => void crc.finish() };
 }
 
 function hex(x: number): string {
