@@ -38,6 +38,7 @@ import { InputCode, InputError } from '../errors.js';
 import { crc32, crc32Combiner } from '../format/crc32.js';
 import type { BoundMode, Dtype, FloatArray } from '../types.js';
 import { VERSION_STRING } from '../version.js';
+import { readJson } from './json-read.js';
 import { partBands } from './part.js';
 import { exact, finishPlan, isPointwisePlan, parsePlan, partRange, planSpec, planText, trialTile, type PlanRequest, type RunPlan } from './plan.js';
 
@@ -360,30 +361,12 @@ export function parsePiece(text: string, label: string): PlanPiece {
   const bad = (why: string): never => {
     throw new InputError(InputCode.Option, `${label}: not a piece written by 'rankfield plan --part' (${why})`);
   };
-  let raw: unknown;
-  try {
-    raw = JSON.parse(text);
-  } catch {
-    return bad('not JSON');
-  }
-  const obj = (v: unknown, what: string): Record<string, unknown> => (typeof v === 'object' && v !== null && !Array.isArray(v) ? (v as Record<string, unknown>) : bad(`${what} is not an object`));
-  const r = obj(raw, 'the piece');
+  const { root: r, obj, num, int, arr, pair } = readJson(text, 'the piece', bad);
   if (r.rankfield_plan_piece !== PIECE_VERSION) bad(r.rankfield_plan_piece === undefined ? 'no rankfield_plan_piece key' : `piece version ${JSON.stringify(r.rankfield_plan_piece)}; this program reads version ${PIECE_VERSION}`);
   const { hash, ...body } = r;
   if (hash !== createHash('sha256').update(JSON.stringify(body)).digest('hex')) {
     throw new InputError(InputCode.Option, `${label}: the piece was changed after 'rankfield plan' wrote it (its content does not match its hash); make it again`);
   }
-  const num = (v: unknown, what: string): number => {
-    if (typeof v === 'number') return v;
-    const special: Record<string, number> = { '-0': -0, NaN: NaN, Infinity: Infinity, '-Infinity': -Infinity };
-    return typeof v === 'string' && v in special ? special[v] : bad(`${what} is not a number`);
-  };
-  const int = (v: unknown, what: string, min = 0): number => (typeof v === 'number' && Number.isSafeInteger(v) && v >= min ? v : bad(`${what} is not an integer of at least ${min}`));
-  const arr = (v: unknown, what: string, n?: number): unknown[] => (Array.isArray(v) && (n === undefined || v.length === n) ? v : bad(`${what} is not an array${n === undefined ? '' : ` of ${n}`}`));
-  const pair = (v: unknown, what: string, min = 0): [number, number] => {
-    const a = arr(v, what, 2);
-    return [int(a[0], `${what}[0]`, min), int(a[1], `${what}[1]`, min)];
-  };
   const part = pair(r.part, 'part', 1);
   if (part[0] > part[1]) bad(`part ${part.join('/')}`);
   const writer = typeof r.writer === 'string' ? r.writer : bad('writer is not a string');
@@ -406,7 +389,7 @@ export function parsePiece(text: string, label: string): PlanPiece {
       fill: a.fill === null ? null : num(a.fill, 'ask.fill'),
       progressive: a.progressive === true,
     };
-    const rows = pair(r.rows, 'rows');
+    const rows = pair(r.rows, 'rows', 0);
     const row_crc = arr(r.row_crc, 'row_crc', rows[1] - rows[0]).map((x) => (typeof x === 'number' && Number.isInteger(x) && x >= 0 && x <= 0xffffffff ? x : bad('row_crc holds a number that is not a CRC-32')));
     if (rows[1] > ask.shape[0]) bad(`rows ${rows.join('..')} pass the field's ${ask.shape[0]}`);
     const range = r.range === null ? null : (arr(r.range, 'range', 2).map((x) => num(x, 'range')) as [number, number]);
@@ -415,7 +398,7 @@ export function parsePiece(text: string, label: string): PlanPiece {
   }
   if (r.pass !== 'spectra') bad(`pass ${JSON.stringify(r.pass)}`);
   const base = parsePlan(JSON.stringify(obj(r.base, 'base')), `${label} (its base)`, true);
-  const tiles = pair(r.tiles, 'tiles');
+  const tiles = pair(r.tiles, 'tiles', 0);
   const count = tiles[1] - tiles[0];
   if (count < 0) bad(`tiles ${tiles.join('..')}`);
   const bytes = (v: unknown, what: string, size: number, n?: number): DataView => {
@@ -438,6 +421,6 @@ export function parsePiece(text: string, label: string): PlanPiece {
     const x = d.getFloat64(8 * i, true);
     return Number.isFinite(x) ? x : bad('values holds a number that is not finite');
   });
-  const sample_crc = arr(r.sample_crc, 'sample_crc').map((x) => pair(x, 'sample_crc'));
+  const sample_crc = arr(r.sample_crc, 'sample_crc').map((x) => pair(x, 'sample_crc', 0));
   return { pass: 'spectra', writer, base, part, tiles, m, n, valid, full, held, values, sample_crc };
 }

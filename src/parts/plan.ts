@@ -26,6 +26,7 @@ import { crc32 } from '../format/crc32.js';
 import { InputCode, InputError } from '../errors.js';
 import type { Bound, BoundMode, Dtype, FloatArray } from '../types.js';
 import { VERSION_STRING } from '../version.js';
+import { readJson } from './json-read.js';
 
 /** The program that makes plans and packs parts, as archives name their writer. */
 const WRITER = `rankfield ${VERSION_STRING}`;
@@ -281,34 +282,12 @@ export function parsePlan(text: string, label: string, base = false): RunPlan {
   const bad = (why: string): never => {
     throw new InputError(InputCode.Option, `${label}: not ${what} (${why})`);
   };
-  let raw: unknown;
-  try {
-    raw = JSON.parse(text);
-  } catch {
-    return bad('not JSON');
-  }
-  const obj = (v: unknown, what: string): Record<string, unknown> => (typeof v === 'object' && v !== null && !Array.isArray(v) ? (v as Record<string, unknown>) : bad(`${what} is not an object`));
-  const r = obj(raw, 'the plan');
+  const { root: r, obj, num, int, str, arr, pair } = readJson(text, 'the plan', bad);
   if (!base && r[BASE_KEY] !== undefined) {
     throw new InputError(InputCode.Option, `${label}: this is the base of a plan made in parts, without its L2 plan: run the spectra pass on it ('rankfield plan IN --base ${label} --part K/N'), then merge those pieces into the plan`);
   }
   const key = base ? BASE_KEY : 'rankfield_plan';
   if (r[key] !== PLAN_VERSION) bad(r[key] === undefined ? `no ${key} key` : `version ${JSON.stringify(r[key])}; this program reads version ${PLAN_VERSION}`);
-  const num = (v: unknown, what: string): number => {
-    if (typeof v === 'number') return v;
-    if (v === '-0') return -0;
-    if (v === 'NaN') return NaN;
-    if (v === 'Infinity') return Infinity;
-    if (v === '-Infinity') return -Infinity;
-    return bad(`${what} is not a number`);
-  };
-  const int = (v: unknown, what: string, min = 0): number => (typeof v === 'number' && Number.isSafeInteger(v) && v >= min ? v : bad(`${what} is not an integer of at least ${min}`));
-  const str = (v: unknown, what: string): string => (typeof v === 'string' ? v : bad(`${what} is not a string`));
-  const arr = (v: unknown, what: string, n?: number): unknown[] => (Array.isArray(v) && (n === undefined || v.length === n) ? v : bad(`${what} is not an array${n === undefined ? '' : ` of ${n}`}`));
-  const pair = (v: unknown, what: string): [number, number] => {
-    const a = arr(v, what, 2);
-    return [int(a[0], `${what}[0]`, 1), int(a[1], `${what}[1]`, 1)];
-  };
   const s = obj(r.source, 'source');
   const source = { file: typeof r.file === 'string' ? r.file : '', band_rows: int(s.band_rows, 'source.band_rows', 1), band_crc: arr(s.band_crc, 'source.band_crc').map((x, i) => int(x, `source.band_crc[${i}]`)) };
   const f = obj(r.field, 'field');
