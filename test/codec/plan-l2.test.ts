@@ -11,7 +11,8 @@
  * not fit) is common practice, no source.
  */
 import { describe, expect, it } from 'vitest';
-import { cuttable, eckartYoungPlans, firstPass, keepsTiles, planL2, Spectra } from '../../src/codec/plan-l2.js';
+import { cuttable, eckartYoungPlans, firstPass, keepsTiles, planL2 } from '../../src/codec/plan-l2.js';
+import { Spectra } from '../../src/codec/spectra.js';
 import { memoryBands, type FieldSpec } from '../../src/codec/tiles.js';
 import { mulberry32 } from '../rng.js';
 

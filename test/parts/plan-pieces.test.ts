@@ -10,7 +10,8 @@ import { InputError } from '../../src/index.js';
 import { memoryBands, type FieldSpec } from '../../src/codec/tiles.js';
 import { crc32, crc32Combiner } from '../../src/format/crc32.js';
 import { makePlan, planText, type PlanRequest } from '../../src/parts/plan.js';
-import { mergeRange, mergeSpectra, parsePiece, pieceText, rangePiece, spectraPiece, type PlanPiece } from '../../src/parts/plan-pieces.js';
+import { mergeRange, mergeSpectra, rangePiece, spectraPiece, type PlanPiece } from '../../src/parts/plan-pieces.js';
+import { parsePiece, pieceText } from '../../src/parts/piece-text.js';
 import { mirrored, precip, volcano } from '../archive/datasets.js';
 import { refusal } from '../refusal.js';
 
