@@ -63,6 +63,11 @@ export function fieldBasis(src: BandSource, spec: FieldSpec): FieldChoices {
   const range = validRange(src, spec, watch);
   const suspect = watch?.suspect();
   if (suspect) throw suspectError(suspect, spec.name, spec.dtype === 'f32');
+  return basisOf(spec, range);
+}
+
+/** The choices before the L2 plan, from the value range of the valid values (see {@link fieldBasis}). */
+export function basisOf(spec: FieldSpec, range: [number, number] | null): FieldChoices {
   const span = range ? range[1] - range[0] : 0;
   let tol = resolveBound(spec.bound, span);
   if (!Number.isFinite(tol)) tol = Number.MAX_VALUE;

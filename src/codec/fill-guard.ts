@@ -80,6 +80,53 @@ export class RangeWatch {
     }
   }
 
+  /**
+   * The watch's state as eleven numbers (for a range pass made in parts:
+   * see src/parts/plan-pieces.ts): valid, the two smallest distinct values
+   * and the count of the smallest, the same at the top, the first huge
+   * value and its count, and the range of the values that are not huge.
+   */
+  state(): number[] {
+    return [this.valid, this.min1, this.min2, this.nMin, this.max1, this.max2, this.nMax, this.hugeValue, this.hugeCount, this.restLo, this.restHi];
+  }
+
+  /** A watch restored from {@link state}. */
+  static fromState(fill: number | null, s: readonly number[]): RangeWatch {
+    const w = new RangeWatch(fill);
+    [w.valid, w.min1, w.min2, w.nMin, w.max1, w.max2, w.nMax, w.hugeValue, w.hugeCount, w.restLo, w.restHi] = s;
+    return w;
+  }
+
+  /**
+   * Fold in the watch of the values that follow this one's. The extremes,
+   * counts and the range come out as one watch over all the values would
+   * give them; so does the verdict of {@link suspect}. Of huge values, the
+   * first one's count adds only where the later watch's first huge value is
+   * the same, so the count a refusal gives may fall short of the field's.
+   */
+  merge(o: RangeWatch): void {
+    this.valid += o.valid;
+    if (o.restLo < this.restLo) this.restLo = o.restLo;
+    if (o.restHi > this.restHi) this.restHi = o.restHi;
+    // The two smallest distinct values of both, and how many hold the smallest.
+    if (o.min1 < this.min1) {
+      this.min2 = Math.min(this.min1, o.min2);
+      [this.min1, this.nMin] = [o.min1, o.nMin];
+    } else if (o.min1 === this.min1) {
+      this.min2 = Math.min(this.min2, o.min2);
+      this.nMin += o.nMin;
+    } else this.min2 = Math.min(this.min2, o.min1);
+    if (o.max1 > this.max1) {
+      this.max2 = Math.max(this.max1, o.max2);
+      [this.max1, this.nMax] = [o.max1, o.nMax];
+    } else if (o.max1 === this.max1) {
+      this.max2 = Math.max(this.max2, o.max2);
+      this.nMax += o.nMax;
+    } else this.max2 = Math.max(this.max2, o.max1);
+    if (this.hugeCount === 0) [this.hugeValue, this.hugeCount] = [o.hugeValue, o.hugeCount];
+    else if (o.hugeCount > 0 && o.hugeValue === this.hugeValue) this.hugeCount += o.hugeCount;
+  }
+
   /** The value that looks like an undeclared fill value, or null. */
   suspect(): Suspect | null {
     if (this.hugeCount > 0) {

@@ -7,11 +7,13 @@
  * by construction and tiles can be written as they are finished.
  */
 import { measure } from './measure.js';
+import { cutBlock } from '../geometry.js';
 import { forEachTile, tileGrid, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
 import { payloadHead } from './payload.js';
+import { Spectra } from './spectra.js';
 import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, rankZeroForMse, residualForMse } from './tile-encode.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
@@ -91,71 +93,23 @@ export function firstPassTile(tile: FloatArray, m: number, n: number, spec: Pick
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
 }
 
-/** Values per chunk of a {@link Spectra} store (8 MiB): the store grows a chunk at a time, never by copying. */
-const SPECTRA_CHUNK = 1 << 20;
-
 /**
- * What the planner keeps of the first pass: per tile its rows, columns,
- * valid cells and squared singular values, in flat typed arrays, and no
- * tile data. The Eckart-Young cut is field-wide (the smallest values of all
- * tiles go first), so every value is needed, at 8 bytes each: min(m, n)
- * per tile, 1/32 of a float32 field's bytes at 64 x 64 tiles. Tiles are
- * added in tile order, each as soon as its first pass is done.
+ * The smallest values of a tile's spectrum (squares in units of tol^2,
+ * descending) that an Eckart-Young cut could reach in a field of `cells`
+ * cells: the longest tail whose sum stays within the largest truncation
+ * share of a budget of `cells` (the budget is the valid cells, never more).
+ * A cut takes a tile's values from its smallest up and only while the
+ * field's cut total stays within share x budget, so a value whose tail sum
+ * passes that limit is never cut, and leaving it out (with the values above
+ * it) changes no plan. The limit is widened by a millionth against rounding
+ * in the sums.
  */
-export class Spectra {
-  /** Rows, columns and valid cells per tile. */
-  readonly m: Int32Array;
-  readonly n: Int32Array;
-  readonly valid: Int32Array;
-  /** Where tile t's values lie: the chunk, the offset within it, and how many. */
-  private readonly chunk: Int32Array;
-  private readonly offset: Int32Array;
-  readonly length: Int32Array;
-  private readonly chunks: Float64Array[] = [];
-  private used = 0;
-  /** Tiles added so far. */
-  count = 0;
-
-  constructor(readonly tiles: number) {
-    this.m = new Int32Array(tiles);
-    this.n = new Int32Array(tiles);
-    this.valid = new Int32Array(tiles);
-    this.chunk = new Int32Array(tiles);
-    this.offset = new Int32Array(tiles);
-    this.length = new Int32Array(tiles);
-  }
-
-  /** Add the next tile's first-pass result (its spectrum is copied; the result is not kept). */
-  add(f: Pick<FirstPassTile, 'sv2' | 'dims'>): void {
-    const t = this.count;
-    // Internal assertion: the callers add exactly the field's tiles.
-    if (t >= this.tiles) throw new Error(`more than the ${this.tiles} tiles of the field were planned`);
-    const k = f.sv2.length;
-    // A spectrum never straddles two chunks (tile sides are at most 4096, well below a chunk).
-    if (this.chunks.length === 0 || this.used + k > SPECTRA_CHUNK) {
-      this.chunks.push(new Float64Array(Math.max(SPECTRA_CHUNK, k)));
-      this.used = 0;
-    }
-    this.chunks[this.chunks.length - 1].set(f.sv2, this.used);
-    this.chunk[t] = this.chunks.length - 1;
-    this.offset[t] = this.used;
-    this.length[t] = k;
-    this.used += k;
-    [this.m[t], this.n[t], this.valid[t]] = f.dims;
-    this.count++;
-  }
-
-  /** Tile t's squared singular values, descending (a view, not a copy). */
-  values(t: number): Float64Array {
-    return this.chunks[this.chunk[t]].subarray(this.offset[t], this.offset[t] + this.length[t]);
-  }
-
-  /** Bytes held: the per-tile arrays and the chunks of values. */
-  get bytes(): number {
-    let b = 6 * 4 * this.tiles;
-    for (const c of this.chunks) b += c.byteLength;
-    return b;
-  }
+export function cuttable(sv2: Float64Array, cells: number): Float64Array {
+  const limit = Math.max(...TRUNCATION_SHARES) * cells * (1 + 1e-6);
+  let sum = 0;
+  let j = sv2.length;
+  while (j > 0 && sum + Math.max(0, sv2[j - 1]) <= limit) sum += Math.max(0, sv2[--j]);
+  return sv2.subarray(j);
 }
 
 /** The first pass over every tile of a field, in this thread, into a {@link Spectra} store (and the prepared tiles, when kept). */
@@ -188,39 +142,63 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
   const { spectra, kept } = first ?? firstPass(src, spec, tol, fill);
   // Internal assertion: the first pass covers every tile, in order.
   if (spectra.count !== spectra.tiles || (keep && kept.length !== spectra.tiles)) throw new Error(`the first pass planned ${spectra.count} of ${spectra.tiles} tiles`);
-  const count = spectra.tiles;
+  const data = chooseL2(spectra, tol, (sample) => (keep ? sample.map((i) => kept[i]) : readTiles(src, spec, fill, sample, tol)));
+  return l2Plan(data, fill, (index) => (keep ? kept[index] : undefined));
+}
+
+/**
+ * The plan chosen from every tile's spectrum: the candidates
+ * ({@link candidatePlans}) costed on the tiles at {@link sampleTiles},
+ * which `tilesAt` prepares (or serves as the first pass prepared them).
+ */
+export function chooseL2(spectra: Spectra, tol: number, tilesAt: (indexes: number[]) => PreparedTile[]): L2PlanData {
+  const plans = candidatePlans(spectra, tol);
+  if (plans.length === 1) return plans[0];
+  const sample = sampleTiles(spectra.tiles);
+  return cheapestPlan(plans, sample, tilesAt(sample));
+}
+
+/** The field's squared-error budget, N x tol^2 over its N valid values, in units of tol^2. */
+function budgetOf(spectra: Spectra): number {
   let valid = 0;
-  for (let t = 0; t < count; t++) valid += spectra.valid[t];
-  const budget = valid; // N x tol^2, in units of tol^2
+  for (let t = 0; t < spectra.tiles; t++) valid += spectra.valid[t];
+  return valid;
+}
+
+/** The candidate plans, the residual plan last: one Eckart-Young plan per truncation share (where its steps come out), and the residual plan. */
+export function candidatePlans(spectra: Spectra, tol: number): L2PlanData[] {
   const plans: L2PlanData[] = [];
-  for (const p of eckartYoungPlans(spectra, budget, TRUNCATION_SHARES, tol)) if (p) plans.push(p);
+  for (const p of eckartYoungPlans(spectra, budgetOf(spectra), TRUNCATION_SHARES, tol)) if (p) plans.push(p);
   // Residual plan: the pointwise coder at E' with uniform quantization error
   // (2E')^2 / 12 = E^2 per value (common practice, no source), a little inside; or, per tile, a
   // rank-0 residual with rate-distortion optimised codes when that is smaller (encodeWith).
   const ePrime = Math.sqrt(3) * tol * 0.97;
   plans.push({ name: 'residual', kind: 'residual', ranks: new Int32Array(0), c: 0, dw: 0, ePrime, allot: Float64Array.from(spectra.valid, (v) => 0.999 * v), tol });
+  return plans;
+}
 
-  const sampleAt = (k: number) => Math.floor(((k + 0.5) * count) / Math.min(count, SAMPLE_TILES));
+/** The tiles candidate plans are costed on: SAMPLE_TILES spread evenly over the tile order (every tile of a smaller field). */
+export function sampleTiles(count: number): number[] {
+  const k = Math.min(count, SAMPLE_TILES);
+  return Array.from({ length: k }, (_, i) => Math.floor(((i + 0.5) * count) / k));
+}
+
+/** The plan whose payloads of the sampled tiles (at indexes `sample`) take the fewest bytes; the first on a tie. */
+export function cheapestPlan(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): L2PlanData {
   let best = plans[plans.length - 1];
-  if (plans.length > 1) {
-    let bestBytes = Infinity;
-    const sample: number[] = [];
-    for (let k = 0; k < Math.min(count, SAMPLE_TILES); k++) sample.push(sampleAt(k));
-    // Sampling needs tiles in memory; for large fields, sample from a fresh read.
-    const sampled = keep ? sample.map((i) => kept[i]) : readSample(src, spec, fill, new Set(sample), tol);
-    for (const p of plans) {
-      let bytes = 0;
-      sample.forEach((index, k) => (bytes += encodeWith(p, sampled[k], index).length));
-      if (bytes < bestBytes) {
-        bestBytes = bytes;
-        best = p;
-      }
+  let bestBytes = Infinity;
+  for (const p of plans) {
+    let bytes = 0;
+    sample.forEach((index, k) => (bytes += encodeWith(p, tiles[k], index).length));
+    if (bytes < bestBytes) {
+      bestBytes = bytes;
+      best = p;
     }
-    // The trial left singular vectors (of whatever rank it needed) on the sampled tiles; the second
-    // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
-    if (keep) for (const t of sampled) t.svd = null;
   }
-  return l2Plan(best, fill, (index) => (keep ? kept[index] : undefined));
+  // The trial left singular vectors (of whatever rank it needed) on the sampled tiles; the second
+  // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
+  for (const t of tiles) t.svd = null;
+  return best;
 }
 
 /**
@@ -261,12 +239,32 @@ function fits(rmse: number, valid: number, allotment: number, tol: number): bool
   return valid * r * r <= allotment;
 }
 
-/** Prepared tiles at the given indexes, from one more pass over the source. */
-function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, want: Set<number>, tol: number): PreparedTile[] {
+/**
+ * Prepared tiles at the given indexes (ascending), reading only the bands
+ * of rows that hold them, as {@link tilesOf} reads them; `check` sees each
+ * tile's values first.
+ */
+export function readTiles(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, indexes: number[], tol: number, check?: (index: number, tile: FloatArray) => void): PreparedTile[] {
+  const [gr, gc] = tileGrid(spec);
   const out: PreparedTile[] = [];
-  forEachTile(src, spec, (index, tile, m, n) => {
-    if (want.has(index)) out.push(prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one'));
-  });
+  let at = -1;
+  let band: FloatArray | null = null;
+  for (const index of indexes) {
+    const s = Math.floor(index / (gr * gc));
+    const ti = Math.floor((index % (gr * gc)) / gc);
+    const r0 = ti * spec.tileRows;
+    const rows = Math.min(spec.tileRows, spec.rows - r0);
+    if (s * gr + ti !== at) {
+      band = src.band(s * spec.rows + r0, rows);
+      at = s * gr + ti;
+    }
+    const j0 = (index % gc) * spec.tileCols;
+    const m = rows;
+    const n = Math.min(spec.tileCols, spec.cols - j0);
+    const tile = cutBlock(band as FloatArray, spec.cols, 0, j0, m, n);
+    check?.(index, tile);
+    out.push(prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one'));
+  }
   return out;
 }
 
@@ -287,7 +285,7 @@ function readSample(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, 
  */
 export function eckartYoungPlans(spectra: Spectra, budget: number, shares: readonly number[], tol: number): (L2PlanData | null)[] {
   const count = spectra.tiles;
-  const cuts = shares.map(() => ({ total: 0, cut: new Float64Array(count), ranks: Int32Array.from(spectra.length), closed: new Uint8Array(count) }));
+  const cuts = shares.map(() => ({ total: 0, cut: new Float64Array(count), ranks: Int32Array.from(spectra.full), closed: new Uint8Array(count) }));
   // Per tile: the next value's position (from the end of its spectrum) and its key.
   const next = new Int32Array(count);
   const key = new Float64Array(count);

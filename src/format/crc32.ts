@@ -46,3 +46,40 @@ export function crc32(bytes: Uint8Array, crc = 0): number {
   for (; i < n; i++) c = t[(c ^ bytes[i]) & 0xff] ^ (c >>> 8);
   return ~c >>> 0;
 }
+
+/** One step of the CRC register over a zero byte: linear over GF(2), so it is a 32 x 32 bit matrix. */
+function zeroByte(c: number): number {
+  return (TABLES[c & 0xff] ^ (c >>> 8)) >>> 0;
+}
+
+/** The image of `c` under the matrix whose column i is `cols[i]`. */
+function apply(cols: Uint32Array, c: number): number {
+  let r = 0;
+  for (let i = 0; c !== 0; i++, c >>>= 1) if (c & 1) r ^= cols[i];
+  return r >>> 0;
+}
+
+/**
+ * A function that combines the CRC-32 of bytes A and of bytes B, where B
+ * is `len` bytes long, into the CRC-32 of A followed by B, without the
+ * bytes: crc(A B) = Z^len(crc(A)) xor crc(B), Z being the register's step
+ * over one zero byte (the initial and final XORs cancel). This is the
+ * combination zlib's crc32_combine makes (from memory); Z^len is found by
+ * squaring, so making the function takes about 32 log2(len) matrix products.
+ */
+export function crc32Combiner(len: number): (a: number, b: number) => number {
+  let power = new Uint32Array(32);
+  for (let i = 0; i < 32; i++) power[i] = zeroByte((1 << i) >>> 0);
+  // The identity, then the product of the powers Z^(2^j) for the bits j of len.
+  let acc: Uint32Array | null = null;
+  for (let n = len; n > 0; n = Math.floor(n / 2)) {
+    if (n % 2 === 1) {
+      const a: Uint32Array | null = acc;
+      acc = a === null ? power.slice() : power.map((col) => apply(a, col));
+    }
+    const p = power;
+    power = p.map((col) => apply(p, col));
+  }
+  const cols = acc;
+  return (a, b) => ((cols === null ? a : apply(cols, a)) ^ b) >>> 0;
+}

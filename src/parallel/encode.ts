@@ -12,7 +12,8 @@
  */
 import { tileGrid } from '../geometry.js';
 import { encodeTile, fieldBasis, FieldSummary, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { firstPassTile, keepsTiles, l2Plan, planL2, Spectra, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
+import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
+import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
 import { ErrorTally } from '../codec/tally.js';
 import type { FloatArray } from '../types.js';

@@ -14,7 +14,7 @@ import { ErrorTally } from '../codec/tally.js';
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import type { Sink } from '../format/container.js';
 import { crc32 } from '../format/crc32.js';
-import { pageGrid, pageTiles, type Attrs, type FieldHeader, type FieldIndex } from '../format/schema.js';
+import { pageGrid, pageTiles, type Attrs, type FieldHeader, type FieldIndex, type Limits } from '../format/schema.js';
 import type { ByteSource } from '../format/source.js';
 import { ArchiveBuilder } from '../pack.js';
 import { partRange } from './plan.js';
@@ -41,9 +41,9 @@ function intPair(v: unknown, n: number): number[] | null {
 }
 
 /** Read and check the attributes of one part. */
-async function readPart(src: ByteSource): Promise<Part> {
+async function readPart(src: ByteSource, limits?: Partial<Limits>): Promise<Part> {
   const label = src.label;
-  const archive = await open(src);
+  const archive = await open(src, limits ? { limits } : {});
   const a: Attrs = archive.header.attrs;
   const run = a[PART_KEYS.run];
   const plan = a[PART_KEYS.plan];
@@ -108,6 +108,8 @@ function sameField(a: Part, b: Part): string | null {
 export interface JoinOptions {
   /** Called after each tile's payload is written, with tiles done and the field's tile count. */
   onProgress?: (done: number, total: number) => void;
+  /** Reader limits the parts are opened with (default: the readers' defaults). */
+  limits?: Partial<Limits>;
 }
 
 /** What {@link joinParts} joined. */
@@ -129,7 +131,7 @@ export async function joinParts(sources: readonly ByteSource[], sink: Sink, o: J
   const parts: Part[] = [];
   try {
     if (sources.length === 0) throw new InputError(InputCode.Option, 'join needs the parts of a run');
-    for (const s of sources) parts.push(await readPart(s));
+    for (const s of sources) parts.push(await readPart(s, o.limits));
     const why = mismatch(parts);
     if (why) throw new InputError(InputCode.Option, why);
     parts.sort((a, b) => a.k - b.k);
@@ -158,7 +160,7 @@ async function write(parts: Part[], sink: Sink, o: JoinOptions): Promise<JoinRes
       throw new FormatError(FormatCode.Malformed, `${p.label}: part ${p.k}/${p.n} holds rows ${p.rows[0]}..${p.rows[1] - 1} (${p.header.shape[0]} rows), but part ${p.k} of ${p.n} of a field of ${rows} rows in bands of ${band} is rows ${want.rows[0]}..${want.rows[1] - 1}`);
     }
     const ix = await p.archive.fieldIndex();
-    if (p.tally.length !== 4 * ix.length.length) throw new FormatError(FormatCode.Malformed, `${p.label}: ${PART_KEYS.tally} holds ${p.tally.length} numbers, not 4 for each of the part's ${ix.length.length} tiles`);
+    if (p.tally.length !== 2 * ix.length.length) throw new FormatError(FormatCode.Malformed, `${p.label}: ${PART_KEYS.tally} holds ${p.tally.length} numbers, not 2 for each of the part's ${ix.length.length} tiles`);
     indexes.push(ix);
   }
   const spec: FieldSpec = { name: h0.name, dtype: h0.dtype, rows, cols, tileRows: h0.tile[0], tileCols: h0.tile[1], bound: { mode: h0.bound.mode, value: h0.bound.value }, fill: h0.fill, progressive: indexes[0].prefix !== undefined };
@@ -208,7 +210,9 @@ async function copyPart(p: Part, ix: FieldIndex, t0: number, emit: (t: number, t
       const at = ix.offset[t] - start;
       const payload = run.slice(at, at + ix.length[t]);
       if (crc32(payload) !== ix.crc[t]) throw new FormatError(FormatCode.Checksum, `${p.label}: tile ${t} of part ${p.k}/${p.n} (tile ${t0 + t} of the field): payload CRC-32 mismatch`);
-      const state = p.tally.slice(4 * t, 4 * t + 4);
+      // The state [count, max, scale, ssq] from the two numbers a part records (see PART_KEYS.tally).
+      const [max, ssq] = p.tally.slice(2 * t, 2 * t + 2);
+      const state = [ix.valid[t], max, max > 0 ? max : 0, ssq];
       if (!validTally(state, ix.valid[t])) throw new FormatError(FormatCode.Malformed, `${p.label}: tile ${t} of part ${p.k}/${p.n}: its error tally in ${PART_KEYS.tally} (${state.join(', ')}) is not one of ${ix.valid[t]} valid cells`);
       total.merge(ErrorTally.fromState(state));
       valid += ix.valid[t];

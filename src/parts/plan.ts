@@ -26,6 +26,7 @@ import { crc32 } from '../format/crc32.js';
 import { InputCode, InputError } from '../errors.js';
 import type { Bound, BoundMode, Dtype, FloatArray } from '../types.js';
 import { VERSION_STRING } from '../version.js';
+import { readJson } from './json-read.js';
 
 /** The program that makes plans and packs parts, as archives name their writer. */
 const WRITER = `rankfield ${VERSION_STRING}`;
@@ -88,7 +89,7 @@ export function planSpec(f: PlanField): FieldSpec {
 export function planChoices(plan: RunPlan, t0 = 0, t1 = Infinity): FieldChoices {
   const f = plan.field;
   const fill = fillWords(f.fill, f.dtype);
-  const pointwise = isPointwise(f.bound.mode) || f.tolerance === 0;
+  const pointwise = isPointwisePlan(f);
   const data = plan.l2 === null ? null : { ...plan.l2, ranks: plan.l2.ranks.subarray(t0, t1), allot: plan.l2.allot.subarray(t0, t1) };
   return { tol: f.tolerance, range: f.range, fill, dtype: f.dtype, progressive: f.progressive, pointwise, plan: pointwise || data === null ? null : l2Plan(data, fill) };
 }
@@ -162,12 +163,8 @@ export interface PlanRequest {
  * trial; encodeField: the value range, the tolerance, the L2 plan).
  */
 export async function makePlan(src: BandSource, req: PlanRequest): Promise<RunPlan> {
-  const spec = { ...req.spec };
-  if ((spec.slices ?? 1) > 1) throw new InputError(InputCode.Option, `field '${spec.name}' holds ${spec.slices} slices: plans and parts split 2-D fields and matrix layouts only`);
-  if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 });
-  spec.autoTile = false;
-  const page = req.page;
-  const band = spec.tileRows * page[0];
+  const spec = trialTile(src, req.spec);
+  const band = spec.tileRows * req.page[0];
   const crcs = new BandCrc(band, spec.cols);
   // The value range is read once, row by row from the top: the bands' CRCs are taken on the way.
   const c = fieldBasis({ band: (r0, count) => {
@@ -180,6 +177,25 @@ export async function makePlan(src: BandSource, req: PlanRequest): Promise<RunPl
   if (band_crc.length !== Math.ceil(spec.rows / band)) throw new Error(`the range pass read ${band_crc.length} bands, not ${Math.ceil(spec.rows / band)}`);
   let l2: L2PlanData | null = null;
   if (!c.pointwise) l2 = req.planL2 ? await req.planL2(src, spec, c) : planL2(src, spec, c.tol, c.fill).data;
+  return finishPlan(req, spec, band_crc, c, l2);
+}
+
+/** The spec with its tile shape fixed: chosen by trial on `src` (reading only the sampled tiles' bands) when asked for; 2-D fields only. */
+export function trialTile(src: BandSource, given: FieldSpec): FieldSpec {
+  const spec = { ...given };
+  if ((spec.slices ?? 1) > 1) throw new InputError(InputCode.Option, `field '${spec.name}' holds ${spec.slices} slices: plans and parts split 2-D fields and matrix layouts only`);
+  if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 });
+  spec.autoTile = false;
+  return spec;
+}
+
+/**
+ * The plan from its choices: the spec with its tile shape fixed, the
+ * bands' CRC-32s, the tolerance and range (`c`), and the L2 plan (null for
+ * pointwise bounds, and in the base of a plan made in parts).
+ */
+export function finishPlan(req: Pick<PlanRequest, 'page' | 'nd' | 'file' | 'run'>, spec: FieldSpec, band_crc: number[], c: Pick<FieldChoices, 'tol' | 'range' | 'pointwise'>, l2: L2PlanData | null): RunPlan {
+  const page = req.page;
   const field: PlanField = {
     name: spec.name,
     dtype: spec.dtype,
@@ -193,15 +209,20 @@ export async function makePlan(src: BandSource, req: PlanRequest): Promise<RunPl
     tolerance: c.tol,
     range: c.range,
   };
-  const source = { file: req.file, band_rows: band, band_crc };
+  const source = { file: req.file, band_rows: spec.tileRows * page[0], band_crc };
   const keep = !c.pointwise && keepsTiles(spec);
   const writer = WRITER;
   const hash = planHash(writer, source, field, l2, keep);
   return { version: PLAN_VERSION, writer, run: req.run ?? `${spec.name}-${hash.slice(0, 12)}`, hash, source, field, l2, keep };
 }
 
+/** Whether a plan's bound is held tile by tile (no L2 plan is made for it). */
+export function isPointwisePlan(f: Pick<PlanField, 'bound' | 'tolerance'>): boolean {
+  return isPointwise(f.bound.mode) || f.tolerance === 0;
+}
+
 /** Numbers whose exact value JSON cannot carry (-0, NaN, infinities) are written as strings. */
-function exact(x: number): number | string {
+export function exact(x: number): number | string {
   if (Object.is(x, -0)) return '-0';
   if (!Number.isFinite(x)) return String(x);
   return x;
@@ -236,42 +257,37 @@ function planHash(writer: string, source: RunPlan['source'], f: PlanField, l2: L
   return createHash('sha256').update(JSON.stringify(canonical(writer, source, f, l2, keep))).digest('hex');
 }
 
-/** The plan as the JSON text `rankfield plan` writes. */
-export function planText(p: RunPlan): string {
+/**
+ * The plan as the JSON text `rankfield plan` writes; with `base`, the base
+ * of a plan made in parts (spec/FORMAT.md, 20): the same keys, its L2 plan
+ * still to make, under the key `rankfield_plan_base`, so that no part packs
+ * from it.
+ */
+export function planText(p: RunPlan, base = false): string {
   const c = canonical(p.writer, p.source, p.field, p.l2, p.keep);
-  const body = { rankfield_plan: p.version, run: p.run, hash: p.hash, file: p.source.file, ...c };
+  const body = { [base ? BASE_KEY : 'rankfield_plan']: p.version, run: p.run, hash: p.hash, file: p.source.file, ...c };
   return `${JSON.stringify(body)}\n`;
 }
 
-/** Read a plan written by {@link planText}; anything else, or a plan changed since, is refused with one line naming `label`. */
-export function parsePlan(text: string, label: string): RunPlan {
+/** The key that marks the base of a plan made in parts. */
+const BASE_KEY = 'rankfield_plan_base';
+
+/**
+ * Read a plan written by {@link planText} (with `base`, the base of a plan
+ * made in parts); anything else, or a plan changed since, is refused with
+ * one line naming `label`.
+ */
+export function parsePlan(text: string, label: string, base = false): RunPlan {
+  const what = base ? "the base of a plan written by 'rankfield plan --merge'" : "a plan written by 'rankfield plan'";
   const bad = (why: string): never => {
-    throw new InputError(InputCode.Option, `${label}: not a plan written by 'rankfield plan' (${why})`);
+    throw new InputError(InputCode.Option, `${label}: not ${what} (${why})`);
   };
-  let raw: unknown;
-  try {
-    raw = JSON.parse(text);
-  } catch {
-    return bad('not JSON');
+  const { root: r, obj, num, int, str, arr, pair } = readJson(text, 'the plan', bad);
+  if (!base && r[BASE_KEY] !== undefined) {
+    throw new InputError(InputCode.Option, `${label}: this is the base of a plan made in parts, without its L2 plan: run the spectra pass on it ('rankfield plan IN --base ${label} --part K/N'), then merge those pieces into the plan`);
   }
-  const obj = (v: unknown, what: string): Record<string, unknown> => (typeof v === 'object' && v !== null && !Array.isArray(v) ? (v as Record<string, unknown>) : bad(`${what} is not an object`));
-  const r = obj(raw, 'the plan');
-  if (r.rankfield_plan !== PLAN_VERSION) bad(r.rankfield_plan === undefined ? 'no rankfield_plan key' : `plan version ${JSON.stringify(r.rankfield_plan)}; this program reads version ${PLAN_VERSION}`);
-  const num = (v: unknown, what: string): number => {
-    if (typeof v === 'number') return v;
-    if (v === '-0') return -0;
-    if (v === 'NaN') return NaN;
-    if (v === 'Infinity') return Infinity;
-    if (v === '-Infinity') return -Infinity;
-    return bad(`${what} is not a number`);
-  };
-  const int = (v: unknown, what: string, min = 0): number => (typeof v === 'number' && Number.isSafeInteger(v) && v >= min ? v : bad(`${what} is not an integer of at least ${min}`));
-  const str = (v: unknown, what: string): string => (typeof v === 'string' ? v : bad(`${what} is not a string`));
-  const arr = (v: unknown, what: string, n?: number): unknown[] => (Array.isArray(v) && (n === undefined || v.length === n) ? v : bad(`${what} is not an array${n === undefined ? '' : ` of ${n}`}`));
-  const pair = (v: unknown, what: string): [number, number] => {
-    const a = arr(v, what, 2);
-    return [int(a[0], `${what}[0]`, 1), int(a[1], `${what}[1]`, 1)];
-  };
+  const key = base ? BASE_KEY : 'rankfield_plan';
+  if (r[key] !== PLAN_VERSION) bad(r[key] === undefined ? `no ${key} key` : `version ${JSON.stringify(r[key])}; this program reads version ${PLAN_VERSION}`);
   const s = obj(r.source, 'source');
   const source = { file: typeof r.file === 'string' ? r.file : '', band_rows: int(s.band_rows, 'source.band_rows', 1), band_crc: arr(s.band_crc, 'source.band_crc').map((x, i) => int(x, `source.band_crc[${i}]`)) };
   const f = obj(r.field, 'field');
@@ -321,6 +337,7 @@ export function parsePlan(text: string, label: string): RunPlan {
   const [gr, gc] = tileGrid(planSpec(field));
   if (source.band_rows !== bandRows(field) || source.band_crc.length !== Math.ceil(field.shape[0] / source.band_rows)) bad('its bands do not match its tile and page shapes');
   if (l2 !== null && ((l2.kind === 'rank' && l2.ranks.length !== gr * gc) || l2.allot.length !== gr * gc)) bad(`its L2 plan does not cover the ${gr * gc} tiles`);
+  if (base !== (l2 === null && !isPointwisePlan(field))) bad(base ? 'it has its L2 plan, or needs none' : `its bound ${field.bound.mode} needs an L2 plan and it has none`);
   if (writer !== WRITER) {
     throw new InputError(InputCode.Option, `${label}: the plan was made by ${writer}, this is ${WRITER}; the parts of a run are packed by the program that made its plan (their payloads would differ): make the plan again, or use ${writer}`);
   }

@@ -1,7 +1,10 @@
 /**
  * A run packed in parts by concurrent processes, as a cluster or GNU
- * parallel runs it: `plan`, 8 x `pack --plan --part K/8` started at once by
- * GNU parallel (Debian's `parallel` package), `join`, then `check`; the
+ * parallel runs it: the plan made in parts (8 x `plan --part K/8` of the
+ * range pass, `plan --merge`, 8 x `plan --base --part K/8` of the spectra
+ * pass, `plan --merge`; the pieces started at once by GNU parallel,
+ * Debian's `parallel` package), and compared with the plan of one process;
+ * 8 x `pack --plan --part K/8` started at once by GNU parallel, `join`, then `check`; the
  * joined archive is compared byte for byte with a single `pack` of the same
  * input, a lost part is packed again alone, and windows are read over HTTP
  * from the joined archive. The field is the vega-datasets annual-precip
@@ -59,11 +62,24 @@ async function cli(args: string[]): Promise<RunResult> {
 
 describe.runIf(RUN)('8 parts packed at once by GNU parallel, joined', () => {
   it('give the single pack byte for byte; a lost part is packed again alone (on 2 threads); windows read over HTTP', async () => {
-    // 1024 rows in tiles of 16 and index pages of 8 tile rows: 8 bands of 128 rows, one per part.
-    const plan = await cli(['plan', 'precip.npy', '-o', 'run.plan.json', '--bound', 'psnr:60', '--tile', '16', '--run', 'precip-test']);
-    expect(plan.code, plan.stderr).toBe(0);
-    expect(plan.stdout).toMatch(/8 bands of 128 rows, so at most 8 parts/);
+    // The plan made in parts too: 8 pieces of the range pass, merged into the base; 8 of the spectra pass, merged into the plan.
     const parts = Array.from({ length: 8 }, (_, i) => String(i + 1));
+    const pass = (args: string[]) => spawnSync(PARALLEL, ['--will-cite', '--halt', 'now,fail=1', '-j', '8', process.execPath, BIN, 'plan', 'precip.npy', ...args, '--part', '{}/8', '-q', ':::', ...parts], { cwd: dir, encoding: 'utf8', timeout: 180_000 });
+    const ranges = pass(['-o', 'range-{}.json', '--bound', 'psnr:60', '--tile', '16']);
+    expect(ranges.status, ranges.stderr).toBe(0);
+    const base = await cli(['plan', 'precip.npy', '-o', 'run.base.json', '--merge', ...parts.map((k) => `range-${k}.json`)]);
+    expect(base.code, base.stderr).toBe(0);
+    // 1024 rows in tiles of 16 and index pages of 8 tile rows: 8 bands of 128 rows, one per part.
+    expect(base.stdout).toMatch(/^base of run .* 8 bands of 128 rows, so at most 8 parts; next, the spectra pass/);
+    const spectra = pass(['-o', 'spectra-{}.json', '--base', 'run.base.json']);
+    expect(spectra.status, spectra.stderr).toBe(0);
+    const plan = await cli(['plan', 'precip.npy', '-o', 'run.plan.json', '--merge', ...parts.map((k) => `spectra-${k}.json`).reverse(), '--run', 'precip-test']);
+    expect(plan.code, plan.stderr).toBe(0);
+    expect(plan.stdout).toMatch(/^planned run 'precip-test' .* L2 plan/);
+    // The plan one process makes, byte for byte.
+    const one = await cli(['plan', 'precip.npy', '-o', 'one.plan.json', '--bound', 'psnr:60', '--tile', '16', '--run', 'precip-test', '-q']);
+    expect(one.code, one.stderr).toBe(0);
+    expect(bytes('run.plan.json').equals(bytes('one.plan.json'))).toBe(true);
     const p = spawnSync(PARALLEL, ['--will-cite', '--halt', 'now,fail=1', '-j', '8', process.execPath, BIN, 'pack', 'precip.npy', '-o', 'part-{}.rfz', '--plan', 'run.plan.json', '--part', '{}/8', '-q', ':::', ...parts], { cwd: dir, encoding: 'utf8', timeout: 180_000 });
     expect(p.status, p.stderr).toBe(0);
     const joined = await cli(['join', ...parts.map((k) => `part-${k}.rfz`), '-o', 'run.rfz']);
@@ -124,4 +140,18 @@ describe('parts on the command line: one line and exit 2', () => {
     expectCliError(await cli(['pack', 'v.nc', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '1/2']), /v.nc' is NetCDF, whose variables are read whole: pack it in one process/);
     expectCliError(await cli(['join', 'single-missing.rfz', '-o', 'x.rfz']), /single-missing.rfz/);
   }, 120_000);
+
+  it('plan in parts: a missing or repeated piece, pieces of other options, a base given as a plan, options the pieces fix', async () => {
+    for (const k of [1, 2, 3]) expect((await cli(['plan', 'precip.npy', '-o', `r${k}.json`, '--bound', 'rmse:0.5', '--tile', '32', '--part', `${k}/3`, '-q'])).code).toBe(0);
+    expect((await cli(['plan', 'precip.npy', '-o', 'r-other.json', '--bound', 'rmse:0.4', '--tile', '32', '--part', '2/3', '-q'])).code).toBe(0);
+    expectCliError(await cli(['plan', 'precip.npy', '-o', 'b.json', '--merge', 'r1.json', 'r3.json']), /the range pass has 3 parts; part 2 is missing/);
+    expectCliError(await cli(['plan', 'precip.npy', '-o', 'b.json', '--merge', 'r1.json', 'r2.json', 'r-other.json', 'r3.json']), /'\S*r-other.json' and '\S*r1.json' are pieces of different requests/);
+    expectCliError(await cli(['plan', 'precip.npy', '-o', 'b.json', '--merge', 'r1.json', 'r2.json', 'r1.json', 'r3.json']), /r1.json' is named twice/);
+    expectCliError(await cli(['plan', 'precip.npy', '-o', 'b.json', '--merge', 'r1.json', 'r2.json', 'r3.json', '--bound', 'rmse:1']), /--bound: the pieces fix it; drop it/);
+    expectCliError(await cli(['plan', 'precip.npy', '-o', 'b.json', '--base', 'r1.json']), /--base makes a piece of the spectra pass: give --part K\/N/);
+    expect((await cli(['plan', 'precip.npy', '-o', 'b.json', '--merge', 'r1.json', 'r2.json', 'r3.json', '-q'])).code).toBe(0);
+    expectCliError(await cli(['pack', 'precip.npy', '-o', 'x.rfz', '--plan', 'b.json', '--part', '1/2']), /b.json: this is the base of a plan made in parts, without its L2 plan: run the spectra pass on it/);
+    expectCliError(await cli(['plan', 'precip.npy', '-o', 's.json', '--base', 'r1.json', '--part', '1/2']), /r1.json: not the base of a plan written by 'rankfield plan --merge'/);
+    expectCliError(await cli(['plan', 'precip.npy', '-o', 's.json']), /required option '--bound <MODE:VALUE>' not specified/);
+  }, 60_000);
 });

@@ -77,3 +77,24 @@ describe('fill-value guard of the library', () => {
     expect(refusal(() => pack(g.values, g.shape, { bound: 'abs:1', fillGuard: 'no' as unknown as boolean })).code).toBe('option');
   });
 });
+
+describe('RangeWatch.merge (the guard over a range pass made in parts)', () => {
+  it('gives the state and verdict one watch over all the values gives', async () => {
+    const { RangeWatch } = await import('../../src/codec/fill-guard.js');
+    // Volcano heights with a sentinel of -999 (far below the rest) in 600 cells, and without; and with a huge one.
+    for (const values of [withSentinel(-999), withSentinel(2000), Float32Array.from(g.values), withSentinel(-1e34)]) {
+      const one = new RangeWatch(null);
+      one.add(values);
+      for (const cuts of [[0, 1000, values.length], [0, 17, 2500, 5000, values.length], [0, values.length, values.length]]) {
+        const parts = cuts.slice(1).map((end, i) => {
+          const w = new RangeWatch(null);
+          w.add(values.subarray(cuts[i], end));
+          return RangeWatch.fromState(null, w.state());
+        });
+        for (const w of parts.slice(1)) parts[0].merge(w);
+        expect(parts[0].state()).toEqual(one.state());
+        expect(parts[0].suspect()).toEqual(one.suspect());
+      }
+    }
+  });
+});

@@ -11,7 +11,8 @@
  * not fit) is common practice, no source.
  */
 import { describe, expect, it } from 'vitest';
-import { eckartYoungPlans, firstPass, keepsTiles, planL2, Spectra } from '../../src/codec/plan-l2.js';
+import { cuttable, eckartYoungPlans, firstPass, keepsTiles, planL2 } from '../../src/codec/plan-l2.js';
+import { Spectra } from '../../src/codec/spectra.js';
 import { memoryBands, type FieldSpec } from '../../src/codec/tiles.js';
 import { mulberry32 } from '../rng.js';
 
@@ -61,6 +62,30 @@ function spectraOf(seed: number, tiles: number, descending: boolean): number[][]
     return descending ? v.sort((a, b) => b - a) : v;
   });
 }
+
+describe('cuttable (what a spectra piece holds of a tile)', () => {
+  it('leaves out only values no cut reaches: the plans from the held tails are the plans from the whole spectra', () => {
+    for (let seed = 1; seed <= 40; seed++) {
+      // Descending spectra (as the SVD gives them) of 8 x 8 tiles whose cells are all valid: the budget is the cells.
+      const sp = spectraOf(seed, 1 + (seed % 17) * 5, true);
+      const cells = 64 * sp.length;
+      const trimmed = new Spectra(sp.length);
+      let held = 0;
+      for (const v of sp) {
+        const tail = cuttable(Float64Array.from(v), cells);
+        held += tail.length;
+        trimmed.add({ sv2: tail, dims: [8, 8, 64] }, v.length);
+      }
+      const whole = eckartYoungPlans(store(sp), cells, [0.3, 0.5, 0.8], 0.5);
+      const fromTails = eckartYoungPlans(trimmed, cells, [0.3, 0.5, 0.8], 0.5);
+      expect(fromTails, `seed ${seed}`).toEqual(whole);
+      // The reference rule above cuts nothing beyond the held tails.
+      const ref = referenceCut(sp, cells, 0.8);
+      ref.ranks.forEach((r, t) => expect(r).toBeGreaterThanOrEqual(sp[t].length - trimmed.length[t]));
+      if (seed === 40) expect(held).toBeLessThan(sp.flat().length); // some values are left out, so the check has teeth
+    }
+  });
+});
 
 describe('eckartYoungPlans', () => {
   const shares = [0.3, 0.5, 0.8];

@@ -10,7 +10,7 @@ import { createHash } from 'node:crypto';
 import { describe, expect, it } from 'vitest';
 import { ArchiveBuilder, FormatError, InputError, MemorySink, MemorySource, open, type PackOptions } from '../../src/index.js';
 import { makePlan, parsePlan, planText, partRange, type RunPlan } from '../../src/parts/plan.js';
-import { packPlanned } from '../../src/parts/part.js';
+import { HEADER_ROOM, maxPartTiles, packPlanned, TALLY_BYTES } from '../../src/parts/part.js';
 import { joinParts } from '../../src/parts/join.js';
 import { memoryBands } from '../../src/codec/tiles.js';
 import { mirrored, precip, volcano } from '../archive/datasets.js';
@@ -108,6 +108,29 @@ describe('join refuses', () => {
     const bad = parts[1].slice();
     bad[20] ^= 0xff;
     await expect(joined([parts[0], bad, parts[2], parts[3]])).rejects.toBeInstanceOf(FormatError);
+  }, 60_000);
+
+  it('a part of more tiles than its readers\' header limit allows, before encoding; one at the limit is read', async () => {
+    // Part 2 of 2 holds 128 rows in tiles of 16: 8 tile rows of 4 tiles, 32 tiles (4 bands of 8).
+    const p = await plan(c);
+    const tiles = partRange(p, 2, 2).tiles[1] - partRange(p, 2, 2).tiles[0];
+    expect(tiles).toBe(32);
+    const limit = HEADER_ROOM + TALLY_BYTES * tiles;
+    expect(maxPartTiles(limit)).toBe(tiles);
+    const e = await packPlanned(new MemorySink(), memoryBands(c.values, 64), p, { part: [2, 2], maxHeaderBytes: limit - 1 }).catch((x: unknown) => x);
+    expect(e).toBeInstanceOf(InputError);
+    expect((e as Error).message).toBe(`part 2/2 holds 32 tiles; a part records 18 bytes of error tally per tile in its header, which readers limit to ${limit - 1} bytes, so a part holds at most 31 tiles: split the field into at least 3 parts`);
+    // At the limit the part is written, and readers holding to that limit join it.
+    const parts = [await part(c, p, 1, 2), await (async () => {
+      const sink = new MemorySink();
+      await packPlanned(sink, memoryBands(c.values, 64), p, { part: [2, 2], maxHeaderBytes: limit });
+      return sink.bytes();
+    })()];
+    const sink = new MemorySink();
+    await joinParts(parts.map((b, i) => new MemorySource(b, `part-${i}.rfz`)), sink, { limits: { maxHeaderBytes: limit } });
+    expect(Buffer.from(sink.bytes()).equals(Buffer.from(single(c)))).toBe(true);
+    // The default: 16 MiB, less the room kept for the rest of the header, at 18 bytes a tile.
+    expect(maxPartTiles()).toBe(Math.floor(((16 << 20) - (64 << 10)) / 18));
   }, 60_000);
 
   it('a plan edited after it was written, a part count above the bands, and other input rows', async () => {
