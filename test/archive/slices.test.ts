@@ -28,7 +28,9 @@ async function sliced(bound = 'abs:0.5', layout?: string): Promise<Uint8Array> {
   return packed.get(key)!;
 }
 
-describe('fields of slices', () => {
+// Each pack of the four slices (96 tiles of up to 32 x 32; under rmse the L2 plan takes every tile's spectrum)
+// takes seconds when idle and over a minute on a machine loaded ten deep: hence the 120 s limit.
+describe('fields of slices', { timeout: 120_000 }, () => {
   it('round-trips within the bound, NaN cells exact, nd_shape and dims restored, flag bit 0 set', async () => {
     const bytes = await sliced();
     // Prologue: magic (8), version u16, required flags u16, little-endian (spec/FORMAT.md, "Prologue").
