@@ -433,35 +433,8 @@ export class Archive {
       const total = new ErrorTally();
       let specials = 0;
       const fw = fillWords(h.fill, h.dtype);
-      // Index pages: a page that cannot be read fails its tiles, and the rest are checked.
       const fp = this.pages[position];
-      const npages = pageCount(h, fp.d.page);
-      const pages = Array.from({ length: npages }, (_, p) => p);
-      try {
-        await this.loadPages(position, pages);
-      } catch (e) {
-        if (!(e instanceof FormatError)) throw e;
-        for (const p of pages) {
-          await this.loadPages(position, [p]).catch((err: unknown) => {
-            if (!(err instanceof FormatError)) throw err;
-            fail(-1, err.message);
-          });
-        }
-      }
-      const all: number[] = [];
-      for (const p of pages) {
-        const pg = fp.loaded.get(p);
-        if (pg !== undefined) all.push(...pg.tiles);
-      }
-      all.sort((a, b) => a - b);
-      if (all.length === tileCount(h)) {
-        try {
-          joinPages(this.container, position, pages.map((p) => fp.loaded.get(p)!), this.source.label);
-        } catch (e) {
-          if (!(e instanceof FormatError)) throw e;
-          fail(-1, e.message);
-        }
-      }
+      const all = await this.pagesForCheck(position, (what) => fail(-1, what));
       const entry = (t: number) => fp.entry(this.container, position, t);
       await this.eachPayload(entry, all, (t, payload) => {
         onProgress?.(++checked, allTiles);
@@ -478,23 +451,8 @@ export class Archive {
         // Recorded errors are stored rounded up to binary32 (spec/FORMAT.md, section 7.3): compared with the bound rounded alike.
         if (pointwise && !(ix.max_err <= up32(tol))) fail(t, `recorded max error ${ix.max_err} exceeds the bound ${tol}`);
         if (orig) {
-          const [m, n] = tileShape(h, t);
-          const part = cutTile(orig, h, t);
-          const cls = classify(part, fw);
-          const got = classify(tile, fw);
-          const ow = new Uint32Array(part.buffer);
-          const dw = new Uint32Array(tile.buffer);
-          const wpv = h.dtype === 'f32' ? 1 : 2;
-          const tally = new ErrorTally();
-          for (let c = 0; c < m * n; c++) {
-            if (cls.codes[c] !== Cell.Valid) {
-              let same = got.codes[c] === cls.codes[c];
-              for (let k = 0; k < wpv; k++) same = same && ow[c * wpv + k] === dw[c * wpv + k];
-              if (!same) specials++;
-              continue;
-            }
-            tally.add(Math.abs(part[c] - tile[c]));
-          }
+          const { tally, differ } = compareTile(cutTile(orig, h, t), tile, fw);
+          specials += differ;
           total.merge(tally);
           if (pointwise && !(tally.max <= tol)) fail(t, `measured max error ${tally.max} exceeds the bound ${tol}`);
         }
@@ -519,10 +477,72 @@ export class Archive {
     return report;
   }
 
+  /**
+   * Every index page of field `position`, for {@link check}: a page that
+   * cannot be read is reported to `fail` and its tiles are left out, and
+   * with every page held the pages are joined (their summary checked).
+   * Returns the tiles of the pages held, in tile order.
+   */
+  private async pagesForCheck(position: number, fail: (what: string) => void): Promise<number[]> {
+    const fp = this.pages[position];
+    const pages = Array.from({ length: pageCount(fp.h, fp.d.page) }, (_, p) => p);
+    try {
+      await this.loadPages(position, pages);
+    } catch (e) {
+      if (!(e instanceof FormatError)) throw e;
+      for (const p of pages) {
+        await this.loadPages(position, [p]).catch((err: unknown) => {
+          if (!(err instanceof FormatError)) throw err;
+          fail(err.message);
+        });
+      }
+    }
+    const all: number[] = [];
+    for (const p of pages) {
+      const pg = fp.loaded.get(p);
+      if (pg !== undefined) all.push(...pg.tiles);
+    }
+    all.sort((a, b) => a - b);
+    if (all.length === tileCount(fp.h)) {
+      try {
+        joinPages(this.container, position, pages.map((p) => fp.loaded.get(p)!), this.source.label);
+      } catch (e) {
+        if (!(e instanceof FormatError)) throw e;
+        fail(e.message);
+      }
+    }
+    return all;
+  }
+
   /** Release the source. */
   async close(): Promise<void> {
     await this.source.close?.();
   }
+}
+
+/**
+ * A decoded tile against the original's same cells (both of the field's
+ * dtype): the errors over the original's valid cells, and how many of its
+ * other cells (missing, special) the decoded tile does not hold bit for bit.
+ */
+function compareTile(part: FloatArray, tile: FloatArray, fw: Uint32Array | null): { tally: ErrorTally; differ: number } {
+  const cls = classify(part, fw);
+  const got = classify(tile, fw);
+  const ow = new Uint32Array(part.buffer, part.byteOffset, part.byteLength / 4);
+  const dw = new Uint32Array(tile.buffer, tile.byteOffset, tile.byteLength / 4);
+  const wpv = part instanceof Float32Array ? 1 : 2;
+  const tally = new ErrorTally();
+  let differ = 0;
+  for (let c = 0; c < part.length; c++) {
+    if (cls.codes[c] !== Cell.Valid) {
+      let same = got.codes[c] === cls.codes[c];
+      for (let k = 0; k < wpv; k++) same = same && ow[c * wpv + k] === dw[c * wpv + k];
+      if (!same) differ++;
+      continue;
+    }
+    tally.add(Math.abs(part[c] - tile[c]));
+  }
+  return { tally, differ };
 }
 
 /** Output values for a whole field, refusing sizes this runtime cannot hold. */

@@ -9,7 +9,7 @@ import { NC_TYPE_SIZE, type NcType } from '../io/netcdf-types.js';
 import { readInput } from './files.js';
 import { bytesText, errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
-import { checkLayout, inputKind, openFieldBands } from './input.js';
+import { checkLayout, inputKind, openFieldBands, type InputKind } from './input.js';
 import { packPlannedCli, partOption, type PackFlags } from './pack-plan.js';
 import type { BandReader } from '../io/bands.js';
 import type { Context } from './context.js';
@@ -139,70 +139,79 @@ export function registerPack(program: Command, ctx: Context): void {
       const bound = flags.bound;
       if (bound === undefined) throw new UsageError("required option '--bound <MODE:VALUE>' not specified (a plan from 'rankfield plan', given with --plan PLAN, holds it instead)");
       if (kind === 'netcdf' || kind === 'hdf5') return packNetcdf(input, { ...flags, bound }, out, start, kind === 'hdf5');
-      if (flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${input}' is not NetCDF (by its first bytes or its name)`);
-      const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
-      checkLayout(input, layout, undefined, kind);
-      const io = { force: flags.force === true, inputs: [input] };
-      await checkOutput(flags.output, io);
-      // The input is read a band of tile rows at a time and payloads are written as they are
-      // finished, so memory holds about one band of tiles plus the index, whatever the size.
-      const field = await openFieldBands(input, layout, kind);
-      let grid: ArrayGrid;
-      try {
-        grid = arrayGrid(field.ndShape, flags.matrix, flags.layout, input);
-      } catch (e) {
-        field.close();
-        throw e;
-      }
-      let fills = 0;
-      let threads: number | undefined;
-      const fill = flags.fill === false ? undefined : flags.fill;
-      const watch = flags.fill === false ? null : new RangeWatch(fill ?? null);
-      try {
-        checkFill(fill, field.dtype);
-        const name = flags.name ?? defaultName(input);
-        const band = watchedBand(field, grid, input, fill, watch, (n) => (fills += n));
-        threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1]);
-        await writeOutputWith(flags.output, io, async (sink) => {
-          const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
-          const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
-          const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
-          try {
-            // The guard ran (or --no-fill turned it off) in the band callback above, in the command line's words.
-            await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound, tile: flags.tile, fill: fill ?? null, fillGuard: false, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
-          } finally {
-            bar.stop();
-          }
-          builder.finish();
-        });
-      } finally {
-        field.close();
-      }
-      // The header and index are read back, and the payloads counted by role, for the summary.
-      const facts = await writtenFacts(flags.output);
-      const archive = await openArchive(flags.output);
-      const { header: h, summary } = archive.field();
-      const ix = { summary };
-      const size = archive.size;
-      await archive.close();
-      const elapsed = performance.now() - start;
-      if (fill !== undefined && fills === 0) {
-        out.note(`the fill value ${fill} does not occur in '${input}'`);
-      }
-      // The layout of an N-D array is given (--matrix, --layout slices) or the default, slices; no sample is tried.
-      const chosen = grid.layout === undefined ? null : flags.matrix !== undefined || flags.layout === 'slices' ? 'given' : 'default';
-      const choices = packChoices(flags.tile, chosen, flags.threads, threads);
-      const raw = rawBytes(h);
-      const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
-      const other = e.what === 'max error' ? `RMSE ${num(ix.summary.rmse)}` : `max error ${num(ix.summary.max_err)}`;
-      out.text(
-        `packed '${input}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype}, field '${h.name}'${h.layout ? `, layout ${h.layout}` : ''}) -> '${flags.output}': ` +
-          `${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; ` +
-          `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n` +
-          packDetails(facts, choices, false),
-      );
-      out.result({ command: 'pack', input, output: flags.output, choices, seconds: elapsed / 1000, archive: facts });
+      return packArray(input, kind, { ...flags, bound }, out, start);
     });
+}
+
+/** A .npy or raw array packed band by band: the input is read a band of tile rows at a time and payloads are written as they are finished, so memory holds about one band of tiles plus the index, whatever the size. */
+async function packArray(input: string, kind: InputKind, flags: PackFlags & { bound: Bound }, out: Output, start: number): Promise<void> {
+  const bound = flags.bound;
+  if (flags.var !== undefined) throw new UsageError(`--var applies to NetCDF input; '${input}' is not NetCDF (by its first bytes or its name)`);
+  const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
+  checkLayout(input, layout, undefined, kind);
+  const io = { force: flags.force === true, inputs: [input] };
+  await checkOutput(flags.output, io);
+  const field = await openFieldBands(input, layout, kind);
+  let grid: ArrayGrid;
+  try {
+    grid = arrayGrid(field.ndShape, flags.matrix, flags.layout, input);
+  } catch (e) {
+    field.close();
+    throw e;
+  }
+  let fills = 0;
+  let threads: number | undefined;
+  const fill = flags.fill === false ? undefined : flags.fill;
+  const watch = flags.fill === false ? null : new RangeWatch(fill ?? null);
+  try {
+    checkFill(fill, field.dtype);
+    const name = flags.name ?? defaultName(input);
+    const band = watchedBand(field, grid, input, fill, watch, (n) => (fills += n));
+    threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1]);
+    await writeOutputWith(flags.output, io, async (sink) => {
+      const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
+      const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
+      const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
+      try {
+        // The guard ran (or --no-fill turned it off) in the band callback above, in the command line's words.
+        await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound, tile: flags.tile, fill: fill ?? null, fillGuard: false, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
+      } finally {
+        bar.stop();
+      }
+      builder.finish();
+    });
+  } finally {
+    field.close();
+  }
+  await reportArray(input, flags, grid, { fill, fills, threads }, out, start);
+}
+
+/** What `pack` of an array prints and returns, from the archive as written (its header and index read back, its payloads counted by role). */
+async function reportArray(input: string, flags: PackFlags, grid: ArrayGrid, run: { fill: number | undefined; fills: number; threads: number | undefined }, out: Output, start: number): Promise<void> {
+  const { fill, fills, threads } = run;
+  const facts = await writtenFacts(flags.output);
+  const archive = await openArchive(flags.output);
+  const { header: h, summary } = archive.field();
+  const ix = { summary };
+  const size = archive.size;
+  await archive.close();
+  const elapsed = performance.now() - start;
+  if (fill !== undefined && fills === 0) {
+    out.note(`the fill value ${fill} does not occur in '${input}'`);
+  }
+  // The layout of an N-D array is given (--matrix, --layout slices) or the default, slices; no sample is tried.
+  const chosen = grid.layout === undefined ? null : flags.matrix !== undefined || flags.layout === 'slices' ? 'given' : 'default';
+  const choices = packChoices(flags.tile, chosen, flags.threads, threads);
+  const raw = rawBytes(h);
+  const e = errorVsBound(h, ix.summary.max_err, ix.summary.rmse);
+  const other = e.what === 'max error' ? `RMSE ${num(ix.summary.rmse)}` : `max error ${num(ix.summary.max_err)}`;
+  out.text(
+    `packed '${input}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype}, field '${h.name}'${h.layout ? `, layout ${h.layout}` : ''}) -> '${flags.output}': ` +
+      `${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; ` +
+      `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n` +
+      packDetails(facts, choices, false),
+  );
+  out.result({ command: 'pack', input, output: flags.output, choices, seconds: elapsed / 1000, archive: facts });
 }
 
 /**

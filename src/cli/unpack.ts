@@ -274,154 +274,191 @@ export function registerUnpack(program: Command, ctx: Context): void {
     .action(async (input: string, flags: UnpackFlags) => {
       const start = performance.now();
       const out = new Output(ctx, flags);
-      if (flags.var !== undefined && flags.field !== undefined) throw new UsageError('give --var or --field, not both');
-      const given = flags.var ?? flags.field;
-      const npy = isNpyPath(flags.output);
-      const nc = isNetcdfPath(flags.output);
-      const csv = /\.csv$/i.test(flags.output);
-      const dirOut = flags.output.endsWith('/');
-      if (flags.endian !== undefined && (npy || nc || csv || dirOut)) throw new UsageError(`--endian applies to raw output; '${flags.output}' is not written as raw binary`);
-      if (dirOut && given !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
-      if (dirOut && (flags.region || flags.slices || flags.bound || flags.where)) throw new UsageError(`--region, --slices, --where and --bound apply to one field; '${flags.output}' (a folder) gets whole fields`);
-      if (flags.netcdf4 && !nc) throw new UsageError(`--netcdf4 applies to NetCDF output (OUT ending in .nc); '${flags.output}' is not`);
-      if (nc && flags.bound) throw new UsageError(`--bound applies to .npy, .csv or raw output; '${flags.output}' (NetCDF) gets the values as stored`);
-      if (flags.where && (flags.region || flags.slices)) throw new UsageError('--where chooses the window by coordinate values; give it without --region and --slices');
+      const to = outputKind(flags);
       if (!isUrl(input)) await statInput(input);
       const io = { force: flags.force === true, inputs: isUrl(input) ? [] : [input] };
-      if (dirOut) await checkFolder(flags.output);
+      if (to.dirOut) await checkFolder(flags.output);
       else await checkOutput(flags.output, io);
       const archive = await openArchive(input);
+      const job: UnpackJob = { archive, input, flags, io, start, out, ...to };
       try {
-        const chosen = byPath(archive.names, given);
+        const chosen = byPath(archive.names, flags.var ?? flags.field);
         const windowed = flags.where !== undefined || flags.region !== undefined || flags.slices !== undefined;
-        if (!dirOut && windowed) {
-          if (nc && chosen === undefined && archive.names.length > 1) throw new UsageError(`a window written to .nc is of one field: name it with --var (fields: ${archive.names.map((n) => printable(n)).join(', ')})`);
+        if (!to.dirOut && windowed) {
+          if (to.nc && chosen === undefined && archive.names.length > 1) throw new UsageError(`a window written to .nc is of one field: name it with --var (fields: ${archive.names.map((n) => printable(n)).join(', ')})`);
           const h = archive.field(chosen).header;
-          if (nc || flags.where !== undefined || h.layout?.startsWith('matrix:') || (flags.slices !== undefined && flags.slices.length > 1)) {
-            await unpackAxes(archive, h, flags, { input, nc, csv, npy, io, start }, out);
+          if (to.nc || flags.where !== undefined || h.layout?.startsWith('matrix:') || (flags.slices !== undefined && flags.slices.length > 1)) {
+            await unpackAxes(archive, h, flags, { input, nc: to.nc, csv: to.csv, npy: to.npy, io, start }, out);
             return;
           }
         }
-        if (dirOut) {
-          // One .npy per field, each decoded band by band and written as it comes.
-          const names = archive.names;
-          const files = fileNames(names);
-          const written: { path: string; bytes: number; fields: string[] }[] = [];
-          try {
-            for (const [i, name] of names.entries()) {
-              const h = archive.field(name).header;
-              const path = join(flags.output, files[i]);
-              const { shape } = readShape(archive, name, {});
-              const head = npyHeader(shape, h.dtype);
-              const bytes = head.length + shape.reduce((a, b) => a * b, 1) * (h.dtype === 'f32' ? 4 : 8);
-              await beforeWriting(path, bytes, `${shape.join('x')} ${h.dtype}`, (t) => out.note(t));
-              await writeOutputWith(path, io, async (sink) => {
-                sink.write(head);
-                await readBands(archive, name, { threads: flags.threads, location: input }, (values) => {
-                  restoreMissing(h, values);
-                  sink.write(valueBytes(values, 'little'));
-                });
-              });
-              written.push({ path, bytes, fields: [name] });
-            }
-          } catch (e) {
-            // As for one file: a failed run leaves no output, not the fields before the failure.
-            for (const w of written) await rm(w.path, { force: true });
-            throw e;
-          }
-          out.text(`unpacked ${names.length} field${names.length === 1 ? '' : 's'} from '${input}' -> ${files.map((f) => `'${join(flags.output, f)}'`).join(', ')}; ${seconds(performance.now() - start)}\n`);
-          out.result({ command: 'unpack', input, output: flags.output, format: 'npy', files: written, seconds: (performance.now() - start) / 1000 });
-          return;
-        }
-        if (nc) {
-          // NetCDF is written from fields in memory: refused beyond HELD_BYTES rather than running out of memory.
-          const names = chosen !== undefined ? [archive.field(chosen).header.name] : archive.names;
-          checkHeld(fieldBytes(archive, names), `${names.length} field${names.length === 1 ? '' : 's'} whole (NetCDF is written from memory)`, flags.output);
-          const fields = [];
-          for (const name of names) {
-            const f = await archive.read(name);
-            fields.push({ h: archive.field(name).header, shape: f.shape, values: f.values });
-          }
-          const bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, fields), flags.netcdf4 === true);
-          await writeOutput(flags.output, bytes, io);
-          const format = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
-          out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (${format}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
-          out.result({ command: 'unpack', input, output: flags.output, format: flags.netcdf4 ? 'netcdf4' : 'netcdf', files: [{ path: flags.output, bytes: bytes.length, fields: names }], seconds: (performance.now() - start) / 1000 });
-          return;
-        }
-        const { header: h, summary } = archive.field(chosen);
-        if (flags.bound) refuseStricter(flags.bound, h, summary, input);
-        const r = flags.region;
-        const window = r && {
-          rows: [r.rows[0] ?? 0, r.rows[1] ?? h.shape[0]] as [number, number],
-          cols: [r.cols[0] ?? 0, r.cols[1] ?? h.shape[1]] as [number, number],
-        };
-        const sl = flags.slices && { slices: [flags.slices[0][0] ?? 0, flags.slices[0][1] ?? h.slices ?? 1] as [number, number] };
-        if (csv) {
-          const s = sl ? sl.slices[1] - sl.slices[0] : h.slices ?? 1;
-          const cells = s * (window ? (window.rows[1] - window.rows[0]) * (window.cols[1] - window.cols[0]) : h.shape[0] * h.shape[1]);
-          if (cells > CSV_LIMIT && flags.force !== true) throw new UsageError(`.csv output of ${cells} values is refused (more than ${CSV_LIMIT}); choose a smaller window with --region / --slices, write .npy, or use --force`);
-        }
-        const request = { ...(window ?? {}), ...(sl ?? {}), ...(flags.bound ? { bound: flags.bound } : {}) };
-        const endian = flags.endian ?? 'little';
-        let written = 0;
-        // Decoded band by band (on worker threads) and written as each band comes: the field is never whole in memory.
-        const { shape } = readShape(archive, h.name, request);
-        const cells = shape.reduce((a, b) => a * b, 1);
-        const item = h.dtype === 'f32' ? 4 : 8;
-        if (!csv) await beforeWriting(flags.output, (npy ? npyHeader(shape, h.dtype).length : 0) + cells * item, `${shape.join('x')} ${h.dtype}`, (t) => out.note(t));
-        let got: BandsRead | undefined;
-        const tiles = tilesTouched(h, request);
-        const bar = out.progress(`unpacking '${printable(h.name)}'`, tiles, cells * item);
-        let done = 0;
-        try {
-          await writeOutputWith(flags.output, io, async (sink) => {
-            const put = (b: Uint8Array) => {
-              sink.write(b);
-              written += b.length;
-            };
-            const dims = h.dims && h.dims.length === shape.length ? h.dims : shape.length === 3 ? ['slice', 'row', 'col'] : shape.map((_, i) => `axis${i}`);
-            const text = csv ? new CsvWriter(shape, dims, put) : null;
-            if (npy) put(npyHeader(shape, h.dtype));
-            got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
-              restoreMissing(h, values);
-              if (text) text.write(values);
-              else put(valueBytes(values, endian));
-              done += values.length;
-              bar.update(Math.round((tiles * done) / cells));
-            });
-            text?.end();
-          });
-        } finally {
-          bar.stop();
-        }
-        const field = got!;
-        const kind = npy ? '.npy' : csv ? 'CSV' : `raw ${endian}-endian`;
-        const [[r0, r1], [c0, c1]] = [field.window.rows, field.window.cols];
-        const [s0, s1] = field.window.slices ?? [0, 1];
-        const full = `field '${printable(h.name)}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype})`;
-        const part = `${sl ? `slices ${s0}..${s1 - 1}, ` : ''}rows ${r0}..${r1 - 1}, columns ${c0}..${c1 - 1} (${field.shape.join('x')}) of `;
-        out.text(`unpacked ${window || sl ? part : ''}${full} from '${input}' -> '${flags.output}' (${kind}, ${written} bytes); ${seconds(performance.now() - start)}\n`);
-        out.result({
-          command: 'unpack',
-          input,
-          output: flags.output,
-          format: npy ? 'npy' : csv ? 'csv' : 'raw',
-          files: [{ path: flags.output, bytes: written, fields: [h.name] }],
-          field: h.name,
-          shape: field.shape,
-          window: field.window,
-          ...(flags.bound ? { bound: formatBound(flags.bound), prefixTiles: field.prefixTiles, achieved: field.achieved } : {}),
-          seconds: (performance.now() - start) / 1000,
-        });
-        if (flags.bound) {
-          const a = field.achieved;
-          out.text(`requested ${formatBound(flags.bound)}: ${field.prefixTiles} of the tiles read as factors only; the values satisfy max error ${a.maxErr.toPrecision(4)}, RMSE ${a.rmse.toPrecision(4)} (recorded at encode time)\n`);
-        }
+        if (to.dirOut) await unpackFolder(job);
+        else if (to.nc) await unpackNetcdf(job, chosen);
+        else await unpackStream(job, chosen);
       } finally {
         await archive.close();
       }
     });
+}
+
+/** What -o names: .npy, NetCDF, CSV, a folder, or else raw binary. */
+interface OutputKind {
+  npy: boolean;
+  nc: boolean;
+  csv: boolean;
+  dirOut: boolean;
+}
+
+/** One run of `unpack`: the open archive, the command line, and where it reports. */
+interface UnpackJob extends OutputKind {
+  archive: Archive;
+  input: string;
+  flags: UnpackFlags;
+  io: { force: boolean; inputs: string[] };
+  start: number;
+  out: Output;
+}
+
+/** The kind of output -o names, with the flags that do not go with it refused. */
+function outputKind(flags: UnpackFlags): OutputKind {
+  if (flags.var !== undefined && flags.field !== undefined) throw new UsageError('give --var or --field, not both');
+  const given = flags.var ?? flags.field;
+  const npy = isNpyPath(flags.output);
+  const nc = isNetcdfPath(flags.output);
+  const csv = /\.csv$/i.test(flags.output);
+  const dirOut = flags.output.endsWith('/');
+  if (flags.endian !== undefined && (npy || nc || csv || dirOut)) throw new UsageError(`--endian applies to raw output; '${flags.output}' is not written as raw binary`);
+  if (dirOut && given !== undefined) throw new UsageError(`-o ${flags.output} (a folder) writes every field; with --var, name a file such as OUT.npy`);
+  if (dirOut && (flags.region || flags.slices || flags.bound || flags.where)) throw new UsageError(`--region, --slices, --where and --bound apply to one field; '${flags.output}' (a folder) gets whole fields`);
+  if (flags.netcdf4 && !nc) throw new UsageError(`--netcdf4 applies to NetCDF output (OUT ending in .nc); '${flags.output}' is not`);
+  if (nc && flags.bound) throw new UsageError(`--bound applies to .npy, .csv or raw output; '${flags.output}' (NetCDF) gets the values as stored`);
+  if (flags.where && (flags.region || flags.slices)) throw new UsageError('--where chooses the window by coordinate values; give it without --region and --slices');
+  return { npy, nc, csv, dirOut };
+}
+
+/** One .npy per field in the folder -o names, each decoded band by band and written as it comes. */
+async function unpackFolder({ archive, input, flags, io, start, out }: UnpackJob): Promise<void> {
+  const names = archive.names;
+  const files = fileNames(names);
+  const written: { path: string; bytes: number; fields: string[] }[] = [];
+  try {
+    for (const [i, name] of names.entries()) {
+      const h = archive.field(name).header;
+      const path = join(flags.output, files[i]);
+      const { shape } = readShape(archive, name, {});
+      const head = npyHeader(shape, h.dtype);
+      const bytes = head.length + shape.reduce((a, b) => a * b, 1) * (h.dtype === 'f32' ? 4 : 8);
+      await beforeWriting(path, bytes, `${shape.join('x')} ${h.dtype}`, (t) => out.note(t));
+      await writeOutputWith(path, io, async (sink) => {
+        sink.write(head);
+        await readBands(archive, name, { threads: flags.threads, location: input }, (values) => {
+          restoreMissing(h, values);
+          sink.write(valueBytes(values, 'little'));
+        });
+      });
+      written.push({ path, bytes, fields: [name] });
+    }
+  } catch (e) {
+    // As for one file: a failed run leaves no output, not the fields before the failure.
+    for (const w of written) await rm(w.path, { force: true });
+    throw e;
+  }
+  out.text(`unpacked ${names.length} field${names.length === 1 ? '' : 's'} from '${input}' -> ${files.map((f) => `'${join(flags.output, f)}'`).join(', ')}; ${seconds(performance.now() - start)}\n`);
+  out.result({ command: 'unpack', input, output: flags.output, format: 'npy', files: written, seconds: (performance.now() - start) / 1000 });
+}
+
+/** Every field, or the one chosen, to a NetCDF file: written from fields in memory, so refused beyond HELD_BYTES rather than running out of memory. */
+async function unpackNetcdf({ archive, input, flags, io, start, out }: UnpackJob, chosen: string | undefined): Promise<void> {
+  const names = chosen !== undefined ? [archive.field(chosen).header.name] : archive.names;
+  checkHeld(fieldBytes(archive, names), `${names.length} field${names.length === 1 ? '' : 's'} whole (NetCDF is written from memory)`, flags.output);
+  const fields = [];
+  for (const name of names) {
+    const f = await archive.read(name);
+    fields.push({ h: archive.field(name).header, shape: f.shape, values: f.values });
+  }
+  const bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, fields), flags.netcdf4 === true);
+  await writeOutput(flags.output, bytes, io);
+  const format = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
+  out.text(`unpacked ${fields.length} field${fields.length === 1 ? '' : 's'} from '${input}' -> '${flags.output}' (${format}, ${bytes.length} bytes); ${seconds(performance.now() - start)}\n`);
+  out.result({ command: 'unpack', input, output: flags.output, format: flags.netcdf4 ? 'netcdf4' : 'netcdf', files: [{ path: flags.output, bytes: bytes.length, fields: names }], seconds: (performance.now() - start) / 1000 });
+}
+
+/** One field, or a window of it, to .npy, CSV or raw binary: decoded band by band (on worker threads) and written as each band comes, so the field is never whole in memory. */
+async function unpackStream(job: UnpackJob, chosen: string | undefined): Promise<void> {
+  const { archive, input, flags, io, out, npy, csv } = job;
+  const { header: h, summary } = archive.field(chosen);
+  if (flags.bound) refuseStricter(flags.bound, h, summary, input);
+  const r = flags.region;
+  const window = r && {
+    rows: [r.rows[0] ?? 0, r.rows[1] ?? h.shape[0]] as [number, number],
+    cols: [r.cols[0] ?? 0, r.cols[1] ?? h.shape[1]] as [number, number],
+  };
+  const sl = flags.slices && { slices: [flags.slices[0][0] ?? 0, flags.slices[0][1] ?? h.slices ?? 1] as [number, number] };
+  if (csv) {
+    const s = sl ? sl.slices[1] - sl.slices[0] : h.slices ?? 1;
+    const cells = s * (window ? (window.rows[1] - window.rows[0]) * (window.cols[1] - window.cols[0]) : h.shape[0] * h.shape[1]);
+    if (cells > CSV_LIMIT && flags.force !== true) throw new UsageError(`.csv output of ${cells} values is refused (more than ${CSV_LIMIT}); choose a smaller window with --region / --slices, write .npy, or use --force`);
+  }
+  const request = { ...(window ?? {}), ...(sl ?? {}), ...(flags.bound ? { bound: flags.bound } : {}) };
+  const endian = flags.endian ?? 'little';
+  let written = 0;
+  const { shape } = readShape(archive, h.name, request);
+  const cells = shape.reduce((a, b) => a * b, 1);
+  const item = h.dtype === 'f32' ? 4 : 8;
+  if (!csv) await beforeWriting(flags.output, (npy ? npyHeader(shape, h.dtype).length : 0) + cells * item, `${shape.join('x')} ${h.dtype}`, (t) => out.note(t));
+  let got: BandsRead | undefined;
+  const tiles = tilesTouched(h, request);
+  const bar = out.progress(`unpacking '${printable(h.name)}'`, tiles, cells * item);
+  let done = 0;
+  try {
+    await writeOutputWith(flags.output, io, async (sink) => {
+      const put = (b: Uint8Array) => {
+        sink.write(b);
+        written += b.length;
+      };
+      const dims = h.dims && h.dims.length === shape.length ? h.dims : shape.length === 3 ? ['slice', 'row', 'col'] : shape.map((_, i) => `axis${i}`);
+      const text = csv ? new CsvWriter(shape, dims, put) : null;
+      if (npy) put(npyHeader(shape, h.dtype));
+      got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
+        restoreMissing(h, values);
+        if (text) text.write(values);
+        else put(valueBytes(values, endian));
+        done += values.length;
+        bar.update(Math.round((tiles * done) / cells));
+      });
+      text?.end();
+    });
+  } finally {
+    bar.stop();
+  }
+  reportStream(job, h, got!, { written, windowed: Boolean(window || sl), sliced: Boolean(sl), endian });
+}
+
+/** What `unpack` of one field to .npy, CSV or raw prints and returns. */
+function reportStream({ input, flags, start, out, npy, csv }: UnpackJob, h: FieldHeader, field: BandsRead, run: { written: number; windowed: boolean; sliced: boolean; endian: 'little' | 'big' }): void {
+  const { written, endian } = run;
+  const kind = npy ? '.npy' : csv ? 'CSV' : `raw ${endian}-endian`;
+  const [[r0, r1], [c0, c1]] = [field.window.rows, field.window.cols];
+  const [s0, s1] = field.window.slices ?? [0, 1];
+  const full = `field '${printable(h.name)}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype})`;
+  const part = `${run.sliced ? `slices ${s0}..${s1 - 1}, ` : ''}rows ${r0}..${r1 - 1}, columns ${c0}..${c1 - 1} (${field.shape.join('x')}) of `;
+  out.text(`unpacked ${run.windowed ? part : ''}${full} from '${input}' -> '${flags.output}' (${kind}, ${written} bytes); ${seconds(performance.now() - start)}\n`);
+  out.result({
+    command: 'unpack',
+    input,
+    output: flags.output,
+    format: npy ? 'npy' : csv ? 'csv' : 'raw',
+    files: [{ path: flags.output, bytes: written, fields: [h.name] }],
+    field: h.name,
+    shape: field.shape,
+    window: field.window,
+    ...(flags.bound ? { bound: formatBound(flags.bound), prefixTiles: field.prefixTiles, achieved: field.achieved } : {}),
+    seconds: (performance.now() - start) / 1000,
+  });
+  if (flags.bound) {
+    const a = field.achieved;
+    out.text(`requested ${formatBound(flags.bound)}: ${field.prefixTiles} of the tiles read as factors only; the values satisfy max error ${a.maxErr.toPrecision(4)}, RMSE ${a.rmse.toPrecision(4)} (recorded at encode time)\n`);
+  }
 }
 
 /** Tiles a read of `request` touches (for the progress bar). */

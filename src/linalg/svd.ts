@@ -2,8 +2,8 @@
  * Dense thin SVD by one-sided Jacobi rotations (Hestenes), preconditioned by
  * a rank-revealing pivoted QR. It works on flat, row-major Float64Arrays and
  * is deterministic: the same input gives bit-identical output on every run.
- * The small symmetric positive (semi)definite solver is in spd.ts and the
- * truncated SVD in truncated.ts; both are re-exported here.
+ * The small symmetric positive (semi)definite solver is in spd.ts, the
+ * truncated SVD in truncated.ts.
  */
 
 import { jacobi } from './jacobi.js';
@@ -11,7 +11,6 @@ import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { sumSquares } from './householder.js';
 import { applyQ, qrcp, type Qrcp } from './qrcp.js';
 import { checkShape } from './shape.js';
-
 
 /**
  * Thin SVD of a row-major m x n matrix: a = u * diag(s) * v^T. k = min(m, n).
@@ -83,8 +82,7 @@ export function svd(a: Float64Array, m: number, n: number): Svd {
   if (red === 'zero') return { m, n, k, u, s, v };
   const { w, qr, x, vx, e } = red;
   const r = qr.rank;
-  const norms = new Float64Array(r);
-  for (let j = 0; j < r; j++) norms[j] = Math.sqrt(sumSquares(x, j * N, N));
+  const norms = columnNorms(x, N, r);
   const order = new Array<number>(r);
   for (let j = 0; j < r; j++) order[j] = j;
   order.sort((p, q) => norms[q] - norms[p] || p - q);
@@ -114,6 +112,13 @@ export function svd(a: Float64Array, m: number, n: number): Svd {
     for (let t = 0; t < N; t++) short[perm[t] * k + jj] = x[xo + t] * inv;
   }
   return { m, n, k, u, s, v };
+}
+
+/** Euclidean norms of the r columns of the column-major N x r matrix x: the unscaled singular values after the Jacobi stage. */
+function columnNorms(x: Float64Array, N: number, r: number): Float64Array {
+  const norms = new Float64Array(r);
+  for (let j = 0; j < r; j++) norms[j] = Math.sqrt(sumSquares(x, j * N, N));
+  return norms;
 }
 
 /** The pivoted-QR and Jacobi stages shared by {@link svd} and {@link singularValues}. */
@@ -172,9 +177,7 @@ export function singularValues(a: Float64Array, m: number, n: number): Float64Ar
   if (red === 'zero') return s;
   const { x, qr, e } = red;
   const r = qr.rank;
-  const norms = new Float64Array(r);
-  for (let j = 0; j < r; j++) norms[j] = Math.sqrt(sumSquares(x, j * N, N));
-  const sorted = Array.from(norms).sort((p, q) => q - p);
+  const sorted = Array.from(columnNorms(x, N, r)).sort((p, q) => q - p);
   const top = sorted[0];
   for (let jj = 0; jj < r; jj++) if (sorted[jj] > FLUSH * top) s[jj] = mulPow2(sorted[jj], e);
   return s;

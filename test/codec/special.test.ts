@@ -249,7 +249,9 @@ describe('all-missing tiles and fields', () => {
   }
 });
 
-describe('a land mask is filled smoothly', () => {
+// Each test packs a 128 x 128 field twice (plain and masked; under rmse and psnr through the L2 plan):
+// seconds idle, several times that on a busy machine; hence the 60 s limit.
+describe('a land mask is filled smoothly', { timeout: 60_000 }, () => {
   const R = 128;
   const C = 128;
   const field = (i: number, j: number) => Math.sin(i / 19) * Math.cos(j / 23) + 0.5 * Math.cos(i / 31 + 1) * Math.sin(j / 17);

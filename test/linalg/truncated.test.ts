@@ -188,7 +188,9 @@ function decayingCases(): { name: string; a: Float64Array; m: number; n: number;
 }
 
 describe('truncatedSvd', () => {
-  it('matches the full svd and ml-matrix on fast-decaying spectra', () => {
+  // Seven matrices up to 160 x 128, each through the full svd, ml-matrix's SVD and two to four truncated
+  // SVDs: a few seconds idle, several times that on a busy machine; hence its own limit.
+  it('matches the full svd and ml-matrix on fast-decaying spectra', { timeout: 60_000 }, () => {
     for (const { a, m, n, ks } of decayingCases()) {
       const copy = a.slice();
       const full = svd(a, m, n);
