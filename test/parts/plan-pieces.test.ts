@@ -79,6 +79,11 @@ describe('a plan made in parts', () => {
     // A piece edited after it was written.
     const text = pieceText(s[1].piece).replace('"part":[2,2]', '"part":[1,2]');
     expect(refusal(() => parsePiece(text, 's-2.json')).message).toMatch(/^s-2.json: the piece was changed after/);
+    // Not a piece at all, another version, a piece cut short: one line each.
+    expect(refusal(() => parsePiece('{"a":1}', 'x.json')).message).toBe("x.json: not a piece written by 'rankfield plan --part' (no rankfield_plan_piece key)");
+    expect(refusal(() => parsePiece('{"rankfield_plan_piece":', 'x.json')).message).toBe("x.json: not a piece written by 'rankfield plan --part' (not JSON)");
+    expect(refusal(() => parsePiece('{"rankfield_plan_piece":9}', 'x.json')).message).toMatch(/piece version 9; this program reads version 1/);
+    expect(refusal(() => parsePiece(pieceText(s[0].piece).slice(0, 200), 's-1.json')).message).toMatch(/^s-1.json: not a piece written by 'rankfield plan --part' \(not JSON\)$/);
     // A spectra pass over other input rows: refused by the base's band CRC-32.
     const changed = c.values.slice();
     changed[200 * 192 + 7] += 1;
