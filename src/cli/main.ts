@@ -24,7 +24,6 @@ import { registerView } from './view.js';
 import type { Context } from './context.js';
 
 // cli/plan.ts takes the type from here.
-export type { Context } from './context.js';
 
 /** Build the program with all commands; errors are thrown, never exit the process. */
 export function buildProgram(ctx: Context): Command {

@@ -20,7 +20,6 @@ import { RangeWatch, suspectMessage } from './fill-guard.js';
 import { boundOption, defaultThreads, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
 
 // cli/plan.ts takes it from here.
-export { defaultThreads } from './options.js';
 
 
 /** The note every user sees before deciding to pack: lossy, keep originals, retention rules. */

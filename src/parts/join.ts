@@ -15,7 +15,7 @@ import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import type { Sink } from '../format/container.js';
 import { crc32 } from '../format/crc32.js';
 import { pageGrid, pageTiles, type Attrs, type FieldHeader, type FieldIndex, type Limits } from '../format/schema.js';
-import type { ByteSource } from '../format/source.js';
+import type { ByteSource } from '../io/source.js';
 import { ArchiveBuilder } from '../pack.js';
 import { partRange } from './plan.js';
 import { PART_KEYS } from './part.js';
