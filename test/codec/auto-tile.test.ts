@@ -85,5 +85,7 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     const [tr, tc] = a.header.fields[0].tile;
     expect(tr).toBe(rows);
     expect(tc).toBeGreaterThanOrEqual(512);
-  }, 60_000);
+    // The tile trial packs several strip and square candidates of this 288,000-cell field under an L2 plan: 68 s
+    // measured with a load average of 15 on this 2-core machine, so a limit well above that.
+  }, 180_000);
 });
