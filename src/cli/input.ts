@@ -3,7 +3,7 @@
  * (its own header says shape and dtype), or else headerless raw binary whose
  * shape, dtype and byte order the user states.
  */
-import { InputCode, InputError, type Dtype } from '../index.js';
+import { InputCode, InputError, type Dtype, type FloatArray } from '../index.js';
 import { openNpyBands, openRawBands, type BandReader } from '../io/bands.js';
 import type { NdArray } from '../io/ndarray.js';
 import { parseNpy } from '../io/npy.js';
@@ -120,11 +120,12 @@ export async function loadField(path: string, given: RawLayout, defaults?: { sha
 
 /**
  * Open `path` for reading a band of rows at a time (only the .npy header is
- * read here), with the same checks and messages as {@link loadField}. The
+ * read here), with the same checks and messages as {@link loadField} (for
+ * raw input, `defaults` stand in for a missing --shape or --dtype). The
  * caller closes the reader. File system errors are phrased with the path.
  */
-export async function openFieldBands(path: string, given: RawLayout, kind?: InputKind): Promise<BandReader> {
-  const layout = checkLayout(path, given, undefined, kind);
+export async function openFieldBands(path: string, given: RawLayout, kind?: InputKind, defaults?: { shape: number[]; dtype: Dtype }): Promise<BandReader> {
+  const layout = checkLayout(path, given, defaults, kind);
   try {
     if (layout === null) return openNpyBands(path);
     try {
@@ -153,4 +154,17 @@ async function readHead(path: string, bytes: number): Promise<Uint8Array> {
   } finally {
     await h.close();
   }
+}
+
+/**
+ * C-order values [start, start + count) of a field read by bands: the rows
+ * of the reader's matrix that hold them are read, and the run cut out.
+ */
+export function flatValues(field: BandReader, start: number, count: number): FloatArray {
+  const cols = field.shape[1];
+  const r0 = Math.floor(start / cols);
+  const r1 = Math.ceil((start + count) / cols);
+  const rows = field.band(r0, r1 - r0);
+  const at = start - r0 * cols;
+  return at === 0 && rows.length === count ? rows : rows.slice(at, at + count);
 }
