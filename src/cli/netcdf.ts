@@ -236,11 +236,6 @@ function fromCarried(text: unknown, i: number): NcWriteVariable {
 /** Values read at a time in the passes over a variable (16 or 32 MiB). */
 export const BAND_VALUES = 1 << 22;
 
-/** Rows of a matrix of `cols` columns read at a time: about {@link BAND_VALUES} values, at least one row. */
-export function bandRows(cols: number): number {
-  return Math.max(1, Math.floor(BAND_VALUES / cols));
-}
-
 /**
  * The variables to pack: those named by `--var` (in the order given), else
  * every numeric variable of two or more non-empty dimensions. `matrix`
@@ -250,7 +245,7 @@ export function bandRows(cols: number): number {
  * Each variable is read a band of rows at a time (never whole): once here,
  * for its missing cells, its value range and the fill-value guard, then by
  * the layout trial's samples, and again by the encoder through
- * {@link fieldBands}.
+ * {@link fieldBands}; `bandValues` values at most a read in the first pass.
  */
 export function netcdfFields(
   input: NetcdfInput,
@@ -259,6 +254,7 @@ export function netcdfFields(
   bound: Bound,
   choose: 'auto' | 'slices' = 'auto',
   fill?: number | false,
+  bandValues: number = BAND_VALUES,
 ): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
   const { file, path } = input;
   let names: string[];
@@ -298,7 +294,7 @@ export function netcdfFields(
     const range: [number, number] = [Infinity, -Infinity];
     let given = 0;
     const [rows, cols] = reader.shape;
-    const step = bandRows(cols);
+    const step = Math.max(1, Math.floor(bandValues / cols));
     for (let r0 = 0; r0 < rows; r0 += step) {
       let values: FloatArray;
       try {

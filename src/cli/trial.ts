@@ -11,6 +11,7 @@ import { InputError, formatBound, isPointwise, MemorySource, open, pack, parseBo
 import { heatmap } from '../picture/heatmap.js';
 import { readGrids, slicePlane } from '../picture/sample.js';
 import { openNetcdfInput } from './netcdf-open.js';
+import type { NetcdfInput } from '../io/netcdf-input.js';
 import { fileError, UsageError } from './errors.js';
 import { checkOutput, statInput, writeOutput } from './files.js';
 import { num, ratio, seconds, table } from './format.js';
@@ -104,7 +105,7 @@ function sampleOption(text: string): number {
 }
 
 /** The sample a trial packs, where it lies, and the whole field's value range. */
-interface Sample {
+export interface Sample {
   values: FloatArray;
   shape: [number, number];
   /** The whole field's shape. */
@@ -133,6 +134,20 @@ async function readNetcdfSample(input: string, flags: TrialFlags & { sample: num
   if (given.length > 0) throw new UsageError(`${given.join(', ')} describe raw input; '${printable(input)}' is NetCDF, which describes itself`);
   const nc = await openNetcdfInput(input, hdf5);
   try {
+    return netcdfSample(nc, flags);
+  } finally {
+    nc.close();
+  }
+}
+
+/**
+ * The sample of {@link readNetcdfSample} from an open file: one pass over
+ * the variable of `rangeValues` values a read at most, for its value range,
+ * then the sample's rows, each read alone (its columns only).
+ */
+export function netcdfSample(nc: NetcdfInput, flags: Pick<TrialFlags, 'var' | 'fill'> & { sample: number }, rangeValues = RANGE_VALUES): Sample {
+  const input = nc.path;
+  {
     const file = nc.file;
     const fields = file.variables.filter((v) => v.type !== 'char' && v.shape.length >= 2 && v.shape.every((d) => d > 0));
     const name = flags.var ?? fields[0]?.name;
@@ -160,7 +175,7 @@ async function readNetcdfSample(input: string, flags: TrialFlags & { sample: num
     const r0 = Math.floor((R - m) / 2);
     const c0 = Math.floor((C - n) / 2);
     try {
-      const step = Math.max(1, Math.floor(RANGE_VALUES / C));
+      const step = Math.max(1, Math.floor(rangeValues / C));
       for (let b0 = 0; b0 < all; b0 += step) {
         const part = reader.rows(b0, Math.min(step, all - b0));
         for (let k = 0; k < part.length; k++) {
@@ -177,8 +192,6 @@ async function readNetcdfSample(input: string, flags: TrialFlags & { sample: num
       throw named(e);
     }
     return { values, shape: [m, n], field: nd, variable: name, slice, rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: info.dtype, range: lo <= hi ? [lo, hi] : null, fill };
-  } finally {
-    nc.close();
   }
 }
 
