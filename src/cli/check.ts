@@ -35,7 +35,8 @@ name): a NetCDF file, whose variables are compared with the fields of their
 names (every field, or those named by --var) and reported one by one; a .npy
 file of the field's shape (N-D included); or headerless raw binary, whose
 --shape (RxC or AxBxC...) and --dtype default to the field's own and
---endian to little.
+--endian to little. The original is read a band of tile rows at a time, as
+the tiles are checked, so it may be larger than memory.
 
 Exit codes:
   0  every tile holds its bound and checksums (and matches ORIGINAL)

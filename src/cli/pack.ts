@@ -69,7 +69,7 @@ Input, told apart by its first bytes (else by its name): a .npy file holding
 a float32 or float64 array of 2 or more axes (C or Fortran order; N-D in
 Fortran order is read whole, up to 2 GiB); a NetCDF classic or 64-bit-offset
 file, whatever its name (.nc, .cdf, ...); a NetCDF-4 or HDF5 file (read
-through h5wasm; variables of groups named by their path, GROUP/NAME, and
+through h5wasm by hyperslabs; variables of groups named by their path, GROUP/NAME, and
 --var /GROUP/NAME chooses one);
 anything else is read as headerless raw binary and needs --shape (RxC, or
 AxBxC... for N-D in C order) and --dtype (--endian defaults to little). An
