@@ -340,6 +340,14 @@ export function flatPieces(shape: readonly number[], start: number, count: numbe
 
 type H5Dataset = H5Node & { slice(ranges: [number, number][]): unknown };
 
+/**
+ * Largest compressed chunk read (bytes of values). HDF5 inflates a filtered
+ * chunk whole into the WebAssembly heap for every read that touches it, so a
+ * variable in larger compressed chunks cannot be read by bands in bounded
+ * memory: it is refused (typical NetCDF-4 chunks take at most a few MiB).
+ */
+export const MAX_CHUNK_BYTES = 64 << 20;
+
 /** Largest number of values one hyperslab read asks HDF5 for (its buffer lives in the WebAssembly heap, which never shrinks). */
 const MAX_SLAB_VALUES = 1 << 21;
 
@@ -427,7 +435,16 @@ class Netcdf4Input implements NetcdfInput {
   }
 
   variable(name: string, options: { mark?: boolean } = {}): NcVariableReader {
-    return new NcVariableReader(this.stored, this.file, name, options);
+    const reader = new NcVariableReader(this.stored, this.file, name, options);
+    const d = this.datasets.get(name) as (H5Dataset & { filters?: unknown[] }) | undefined;
+    const chunks = (d?.metadata as { chunks?: number[] | null } | undefined)?.chunks;
+    if (d !== undefined && Array.isArray(chunks)) {
+      const bytes = chunks.reduce((a, b) => a * Number(b), 1) * d.metadata.size;
+      if (bytes > MAX_CHUNK_BYTES && Array.isArray(d.filters) && d.filters.length > 0) {
+        fileError(this.path, `variable '/${name}' is stored in compressed chunks of ${bytes} bytes (${chunks.join(' x ')}), which HDF5 inflates whole for every read; rankfield reads such variables by bands only from chunks of at most ${MAX_CHUNK_BYTES} bytes: rechunk it first (for example nccopy -c with smaller chunks, or nccopy -d 0 to store it uncompressed)`);
+      }
+    }
+    return reader;
   }
 
   close(): void {

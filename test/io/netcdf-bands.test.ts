@@ -12,7 +12,7 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ArchiveBuilder, chooseLayout, open, parseBound, type BandOriginal, type FloatArray } from '../../src/index.js';
 import { MemorySink } from '../../src/format/container.js';
-import { flatPieces, netcdf4ToClassic, openNetcdf4Input } from '../../src/io/hdf5-read.js';
+import { flatPieces, MAX_CHUNK_BYTES, netcdf4ToClassic, openNetcdf4Input } from '../../src/io/hdf5-read.js';
 import { valueBytes } from '../../src/io/bands.js';
 import { npyHeader } from '../../src/io/npy.js';
 import { classicInput, openClassicInput, type NetcdfInput } from '../../src/io/netcdf-input.js';
@@ -164,6 +164,31 @@ describe.skipIf(!NC)('NetCDF-4 read by hyperslabs', { timeout: 60_000 }, () => {
     } finally {
       nc.close();
     }
+  });
+});
+
+describe('NetCDF-4 variables that cannot be read in bounded memory', { timeout: 120_000 }, () => {
+  it('a variable in compressed chunks over 64 MiB is refused before any value is read, naming the remedy', async () => {
+    const { h5 } = await import('../../src/io/hdf5-read.js');
+    const lib = await h5();
+    const path = join(t.dir, 'bigchunk.h5');
+    const side = 4100; // one chunk of 4100 x 4100 float32: 67240000 bytes, over MAX_CHUNK_BYTES
+    expect(side * side * 4).toBeGreaterThan(MAX_CHUNK_BYTES);
+    const f = new lib.File(path, 'w');
+    f.create_dataset({ name: 'big', data: new Float32Array(side * side), shape: [side, side], dtype: '<f', chunks: [side, side], compression: 1 } as never);
+    f.create_dataset({ name: 'small', data: new Float32Array(64 * 64).fill(2), shape: [64, 64], dtype: '<f', chunks: [16, 16], compression: 1 } as never);
+    f.close();
+    expect(statSync(path).size).toBeLessThan(1 << 20);
+    const nc = await openNetcdf4Input(path);
+    try {
+      expect(() => nc.variable('big')).toThrow(/variable '\/big' is stored in compressed chunks of 67240000 bytes \(4100 x 4100\), which HDF5 inflates whole for every read; .* rechunk it first/);
+      expect(Array.from(nc.variable('small').rows(10, 1))).toEqual(new Array(64).fill(2));
+    } finally {
+      nc.close();
+    }
+    const r = rf(['pack', path, '-o', 'bigchunk.rfz', '--bound', 'abs:0.1'], t.dir);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/^rankfield: error: .*bigchunk\.h5: variable '\/big' is stored in compressed chunks/);
   });
 });
 
