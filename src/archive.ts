@@ -441,15 +441,19 @@ export class Archive {
       const given = against === undefined ? undefined : ArrayBuffer.isView(against) ? against : against[h.name];
       const want = h.dtype === 'f32' ? Float32Array : Float64Array;
       const bands = given !== undefined && !ArrayBuffer.isView(given) ? given : undefined;
-      const orig = given === undefined || bands !== undefined || given instanceof want ? (given as FloatArray | undefined) : want.from(given as FloatArray);
+      if (bands !== undefined && typeof (bands as Partial<BandOriginal>).band !== 'function') {
+        throw new InputError(InputCode.Option, `original for field '${h.name}' must be a typed array of its values or an object with a band(r0, count) method`);
+      }
+      const whole = given === undefined || bands !== undefined ? undefined : given instanceof want ? given : want.from(given as FloatArray);
+      const orig = whole ?? bands;
       const fail = (tile: number, what: string) => report.failures.push({ field: h.name, tile, what });
       const tol = h.bound.tolerance;
       const pointwise = isPointwise(h.bound.mode);
       const [rows, cols] = h.shape;
       const nslices = h.slices ?? 1;
-      if (orig !== undefined && bands === undefined && orig.length !== nslices * rows * cols) {
+      if (whole !== undefined && whole.length !== nslices * rows * cols) {
         const what = h.nd_shape ? h.nd_shape.join('x') : nslices > 1 ? `${nslices}x${rows}x${cols}` : `${rows}x${cols}`;
-        throw new InputError(InputCode.Shape, `original for field '${h.name}' has ${orig.length} values, the archive ${what}`);
+        throw new InputError(InputCode.Shape, `original for field '${h.name}' has ${whole.length} values, the archive ${what}`);
       }
       const total = new ErrorTally();
       let specials = 0;
@@ -491,7 +495,8 @@ export class Archive {
         const r = s * rows + i0;
         const m = tileShape(h, t)[0];
         if (held === null || r < held.r0 || r + m > held.r1) {
-          const got = bands!.band(r, m);
+          const got = (bands as BandOriginal).band(r, m);
+          if (!(got instanceof Float32Array || got instanceof Float64Array)) throw new InputError(InputCode.Option, `original for field '${h.name}': band(${r}, ${m}) returned no Float32Array or Float64Array`);
           if (got.length !== m * cols) throw new InputError(InputCode.Shape, `original for field '${h.name}': rows ${r}..${r + m} hold ${got.length} values, not ${m * cols}`);
           held = { r0: r, r1: r + m, values: got instanceof want ? got : want.from(got) };
         }
@@ -513,7 +518,7 @@ export class Archive {
         if (pointwise && !(ix.max_err <= up32(tol))) fail(t, `recorded max error ${ix.max_err} exceeds the bound ${tol}`);
         if (orig) {
           const [m, n] = tileShape(h, t);
-          const part = bands ? cut(t) : extract(orig, h, t);
+          const part = whole ? extract(whole, h, t) : cut(t);
           const cls = classify(part, fw);
           const got = classify(tile, fw);
           const ow = new Uint32Array(part.buffer);
