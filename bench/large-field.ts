@@ -8,10 +8,10 @@ import { NpyBandWriter } from '../src/io/bands.js';
 import { xorshift32 } from './rng.js';
 
 /** Rows written per band by the generator. */
-const BAND_ROWS = 256;
+export const BAND_ROWS = 256;
 
 /** Rows [r0, r0 + count) of the invented side x side field. */
-function band(side: number, r0: number, count: number, next: () => number): Float32Array {
+export function band(side: number, r0: number, count: number, next: () => number): Float32Array {
   const out = new Float32Array(count * side);
   const cx = new Float64Array(side);
   const sx = new Float64Array(side);

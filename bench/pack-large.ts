@@ -6,32 +6,37 @@
  * `rankfield unpack` to .npy of a decompression bomb (a few-KB archive of a
  * constant SIDE x SIDE field, written here through the library); and reports
  * each child's peak resident set size, which covers its worker threads too
- * (they share the process). Target (issues 11 and 15): every figure below
- * 300 MB.
+ * (they share the process); and `rankfield check --against` the input.
+ * With --input netcdf the field is written as a NetCDF classic file
+ * instead (one float variable 'field' of dimensions y, x), which the packs
+ * and the check read. Target (issues 11 and 15): every figure below 300 MB.
  *
  * The field is invented for this measurement (bench/large-field.ts).
  *
  *   npx tsc -p . && npx tsc -p tsconfig.bench.json && \
- *     nice node bench/dist/bench/pack-large.js [--size MIB] [--modes abs,rel,rmse,psnr] [--tile 64] [--threads N] [--dir DIR] [--keep] [--no-unpack]
+ *     nice node bench/dist/bench/pack-large.js [--size MIB] [--input npy|netcdf] [--modes abs,rel,rmse,psnr] [--tile 64] [--threads N] [--dir DIR] [--keep] [--no-unpack] [--no-check]
  *
  * --size is the field's size in MiB (a power of 4: 64, 256, 1024; default
  * 1024). Every run writes its rows into bench/MEMORY-<SIZE>MiB.md (or
  * --report FILE), keeping earlier runs' rows for what it did not measure,
  * and the merged table into the README's block for its size
  * (<!-- memory <SIZE> MiB:begin ... -->), when README has one.
- * --no-unpack measures the packs only. The peak is read by /usr/bin/time -v where it exists
+ * --no-unpack leaves out the unpacks, --no-check the check. The peak is read by /usr/bin/time -v where it exists
  * (its "Maximum resident set size"), else from the child's own
  * process.resourceUsage().maxRSS. Not a test: at 1 GiB it takes most of an
  * hour on two busy cores.
  */
 import { spawn } from 'node:child_process';
-import { existsSync, mkdtempSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { closeSync, existsSync, mkdtempSync, openSync, readFileSync, rmSync, statSync, writeFileSync, writeSync } from 'node:fs';
 import { loadavg, tmpdir } from 'node:os';
 import { basename, dirname, join, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { ArchiveBuilder } from '../src/index.js';
+import { valueBytes } from '../src/io/bands.js';
+import { netcdfHeader } from '../src/io/netcdf-write.js';
 import { FileSink } from '../src/io/file-sink.js';
-import { writeField } from './large-field.js';
+import { BAND_ROWS, band, writeField } from './large-field.js';
+import { xorshift32 } from './rng.js';
 
 /** Repository root: this file runs from bench/dist/bench/. */
 const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '..', '..', '..');
@@ -45,6 +50,23 @@ const BOUNDS: Record<string, string> = { abs: 'abs:0.01', rel: 'rel:1e-3', rmse:
 function arg(name: string, fallback: string): string {
   const i = process.argv.indexOf(`--${name}`);
   return i >= 0 && i + 1 < process.argv.length ? process.argv[i + 1] : fallback;
+}
+
+/** Write the field as a NetCDF classic file (float variable 'field' of dimensions y, x), band by band: the header, then rows, big-endian. */
+function writeNetcdfField(path: string, side: number): void {
+  const { header, layout } = netcdfHeader({ dims: [{ name: 'y', size: side }, { name: 'x', size: side }], globalAttrs: { title: 'bench/pack-large.ts field' }, variables: [{ name: 'field', dims: ['y', 'x'], type: 'float', attrs: { units: '1' } }] });
+  const fd = openSync(path, 'w');
+  try {
+    writeSync(fd, header);
+    const next = xorshift32(20261202);
+    for (let r0 = 0; r0 < side; r0 += BAND_ROWS) {
+      const rows = band(side, r0, Math.min(BAND_ROWS, side - r0), next);
+      writeSync(fd, valueBytes(rows, 'big'));
+    }
+  } finally {
+    closeSync(fd);
+  }
+  if (statSync(path).size !== layout.totalBytes) throw new Error(`${path}: wrote ${statSync(path).size} bytes, the header declares ${layout.totalBytes}`);
 }
 
 /** A valid archive of a constant side x side field, written through the library: a few KB that decode to side^2 values. */
@@ -126,7 +148,7 @@ function earlierRows(file: string, runs: Set<string>): string[] {
   return (
     readFileSync(file, 'utf8')
       .split('\n')
-      .filter((l) => /^\| (pack|unpack) /.test(l) && !runs.has(l.slice(2, l.indexOf(' | '))))
+      .filter((l) => /^\| (pack|unpack|check) /.test(l) && !runs.has(l.slice(2, l.indexOf(' | '))))
       // Rows of the first version of the table had no date column.
       .map((l) => (l.split(' | ').length === 7 ? l.replace(/^(\| [^|]+ \| `[^`]+`) \| /, '$1 | (not recorded) | ') : l))
       .filter((l) => l.split(' | ').length === 8)
@@ -150,15 +172,18 @@ async function run(): Promise<void> {
   const keep = process.argv.includes('--keep');
   const own = arg('dir', '') === '';
   const dir = own ? mkdtempSync(join(tmpdir(), 'rankfield-pack-large-')) : resolve(arg('dir', ''));
-  const input = join(dir, `field-${side}.npy`);
+  const netcdf = arg('input', 'npy') === 'netcdf';
+  if (!['npy', 'netcdf'].includes(arg('input', 'npy'))) throw new Error(`--input must be npy or netcdf, got ${arg('input', '')}`);
+  const input = join(dir, `field-${side}.${netcdf ? 'nc' : 'npy'}`);
+  const from = netcdf ? ' from NetCDF' : '';
   const rows: Row[] = [];
   const extra = threads ? ['--threads', threads] : [];
   const started = new Date();
   try {
     const t0 = performance.now();
-    if (!existsSync(input)) writeField(input, side);
+    if (!existsSync(input)) (netcdf ? writeNetcdfField : writeField)(input, side);
     const inBytes = statSync(input).size;
-    console.log(`field ${input}: ${side} x ${side} float32, ${inBytes} bytes (${((performance.now() - t0) / 1000).toFixed(1)} s)`);
+    console.log(`field ${input}: ${side} x ${side} float32${netcdf ? ' (NetCDF classic)' : ''}, ${inBytes} bytes (${((performance.now() - t0) / 1000).toFixed(1)} s)`);
     const archives = new Map<string, string>();
     for (const mode of modes) {
       const out = join(dir, `field-${side}-${mode}.rfz`);
@@ -166,10 +191,20 @@ async function run(): Promise<void> {
       const r = await cli(args, dir);
       if (r.code !== 0) throw new Error(`pack ${BOUNDS[mode]} failed (exit ${r.code}): ${r.stderr.trim()}`);
       archives.set(mode, out);
-      rows.push({ date: now(), run: `pack ${BOUNDS[mode]}`, command: `rankfield ${args.slice(0, -2).join(' ').replaceAll(dir + '/', '')}`, bytesIn: inBytes, bytesOut: statSync(out).size, seconds: r.seconds, maxRss: r.maxRss, note: '' });
+      rows.push({ date: now(), run: `pack ${BOUNDS[mode]}${from}`, command: `rankfield ${args.slice(0, -2).join(' ').replaceAll(dir + '/', '')}`, bytesIn: inBytes, bytesOut: statSync(out).size, seconds: r.seconds, maxRss: r.maxRss, note: '' });
       console.log(table(rows.slice(-1)).split('\n')[2]);
     }
     let by = '';
+    if (!process.argv.includes('--no-check') && archives.size > 0) {
+      const first = archives.get(modes[0])!;
+      const ca = ['check', first, '--against', input, ...extra];
+      const c = await cli(ca, dir);
+      if (c.code !== 0) throw new Error(`check --against failed (exit ${c.code}): ${c.stderr.trim()} ${c.stdout.trim()}`);
+      const measured = /measured +(max error [^;\n]*)/.exec(c.stdout);
+      rows.push({ date: now(), run: `check --against${netcdf ? ' NetCDF' : ' .npy'}`, command: `rankfield ${ca.join(' ').replaceAll(dir + '/', '')}`, bytesIn: statSync(first).size + inBytes, bytesOut: 0, seconds: c.seconds, maxRss: c.maxRss, note: measured ? `measured ${measured[1]}` : '' });
+      console.log(table(rows.slice(-1)).split('\n')[2]);
+      by = c.by;
+    }
     if (!process.argv.includes('--no-unpack')) {
       const first = archives.get(modes[0])!;
       const back = join(dir, `field-${side}-back.npy`);
@@ -195,15 +230,15 @@ async function run(): Promise<void> {
     }
     // Every run writes its rows into bench/MEMORY-<size>MiB.md (or --report FILE), keeping the rows of earlier runs of the same size for what it did not measure, and the merged table into the README's block for its size, when README has one: README figures always come from runs.
     const report = arg('report', join(ROOT, 'bench', `MEMORY-${size}MiB.md`));
-    const order = ['pack abs', 'pack rel', 'pack rmse', 'pack psnr', 'unpack to', 'unpack of'];
-    const rank = (l: string) => order.findIndex((o) => l.startsWith(`| ${o}`));
+    const order = ['pack abs', 'pack rel', 'pack rmse', 'pack psnr', 'check --against .npy', 'unpack to', 'unpack of', 'NetCDF:pack abs', 'NetCDF:pack rel', 'NetCDF:pack rmse', 'NetCDF:pack psnr', 'check --against NetCDF'];
+    const rank = (l: string) => order.findIndex((o) => (o.startsWith('NetCDF:') ? l.startsWith(`| ${o.slice(7)}`) && l.includes(' from NetCDF |') : l.startsWith(`| ${o}`) && !l.includes(' from NetCDF |')));
     const merged = [...earlierRows(report, new Set(rows.map((r) => r.run))), ...rows.map(rowLine)].sort((x, y) => rank(x) - rank(y));
     const md = [
-      `# Peak memory of pack and unpack on a large field`,
+      `# Peak memory of pack, check and unpack on a large field`,
       '',
       `Rows from runs of \`node bench/dist/bench/pack-large.js\` (each row gives its command and when it ended); last written by \`node bench/dist/bench/pack-large.js${process.argv.slice(2).length ? ' ' + process.argv.slice(2).join(' ') : ''}\`, started ${started.toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC')}, Node ${process.version}, load average at its end ${loadavg().map((x) => x.toFixed(2)).join(' ')} (2 cores shared with other work: times are not comparable between rows).`,
       '',
-      `Field: ${side} x ${side} float32 (${(inBytes / 2 ** 30).toFixed(3)} GiB as .npy), invented for the measurement (bench/pack-large.ts: smooth waves, bumps and a front, plus seeded noise of amplitude 1e-3). Tiles ${tile} x ${tile}; threads ${threads || 'default (the core count)'}. Each run is a child process; peak RSS is its maximum resident set size (${by === 'resourceUsage' ? 'process.resourceUsage().maxRSS' : '`/usr/bin/time -v`'}), worker threads included. "unpack of a constant field" unpacks a valid archive of a constant ${side} x ${side} field in 1024 x 1024 tiles, a few KB that decode to ${side * side * 4} bytes of values. MB = 10^6 bytes.`,
+      `Field: ${side} x ${side} float32 (${((side * side * 4) / 2 ** 30).toFixed(3)} GiB of values), invented for the measurement (bench/pack-large.ts: smooth waves, bumps and a front, plus seeded noise of amplitude 1e-3). Tiles ${tile} x ${tile}; threads ${threads || 'default (the core count)'}. "from NetCDF": the same field written as a NetCDF classic file (a header and one float variable 'field' of dimensions y, x, big-endian; bench/pack-large.ts --input netcdf). Each run is a child process; peak RSS is its maximum resident set size (${by === 'resourceUsage' ? 'process.resourceUsage().maxRSS' : '`/usr/bin/time -v`'}), worker threads included. "unpack of a constant field" unpacks a valid archive of a constant ${side} x ${side} field in 1024 x 1024 tiles, a few KB that decode to ${side * side * 4} bytes of values. MB = 10^6 bytes.`,
       '',
       HEAD,
       '|---|---|---|--:|--:|--:|--:|---|',

@@ -82,6 +82,15 @@ interface TileChoice {
 /** Payload bytes fetched per batch of a read: bounds the memory a read holds besides its output. */
 const BATCH_BYTES = 16 << 20;
 
+/**
+ * An original read a band of rows at a time, for {@link Archive.check}:
+ * rows [r0, r0 + count) of the field's stacked matrix (slices x rows, each
+ * of the field's columns; the C-order values of its N-D shape), row-major.
+ */
+export interface BandOriginal {
+  band(r0: number, count: number): FloatArray;
+}
+
 /** One failed check. */
 export interface CheckFailure {
   field: string;
@@ -405,11 +414,14 @@ export class Archive {
    * Check every tile: payload CRC, decoding, decoded-value CRC, and the
    * recorded error against the bound. With `against` (original values per
    * field name, or one array for a one-field archive), also measure the
-   * actual error and compare special cells bit for bit. `onProgress` is
+   * actual error and compare special cells bit for bit. An original given
+   * as a {@link BandOriginal} is read a band of tile rows at a time, as the
+   * tiles are checked in order, so it need not fit in memory; the report is
+   * the same as for its values given whole. `onProgress` is
    * called after each tile with the tiles checked so far and the tiles of
    * all fields (for progress displays; it must not throw).
    */
-  async check(against?: FloatArray | Record<string, FloatArray>, onProgress?: (done: number, total: number) => void): Promise<CheckReport> {
+  async check(against?: FloatArray | Record<string, FloatArray | BandOriginal>, onProgress?: (done: number, total: number) => void): Promise<CheckReport> {
     const report: CheckReport = { ok: true, fields: [], failures: [] };
     if (against !== undefined && ArrayBuffer.isView(against) && this.header.fields.length !== 1) {
       throw new InputError(InputCode.Option, `the archive holds ${this.header.fields.length} fields: give the originals by field name`);
@@ -420,15 +432,20 @@ export class Archive {
       const { position, summary } = this.field(h.name);
       const given = against === undefined ? undefined : ArrayBuffer.isView(against) ? against : against[h.name];
       const want = h.dtype === 'f32' ? Float32Array : Float64Array;
-      const orig = given === undefined || given instanceof want ? given : want.from(given);
+      const bands = given !== undefined && !ArrayBuffer.isView(given) ? given : undefined;
+      if (bands !== undefined && typeof (bands as Partial<BandOriginal>).band !== 'function') {
+        throw new InputError(InputCode.Option, `original for field '${h.name}' must be a typed array of its values or an object with a band(r0, count) method`);
+      }
+      const whole = given === undefined || bands !== undefined ? undefined : given instanceof want ? given : want.from(given as FloatArray);
+      const orig = whole ?? bands;
       const fail = (tile: number, what: string) => report.failures.push({ field: h.name, tile, what });
       const tol = h.bound.tolerance;
       const pointwise = isPointwise(h.bound.mode);
       const [rows, cols] = h.shape;
       const nslices = h.slices ?? 1;
-      if (orig !== undefined && orig.length !== nslices * rows * cols) {
+      if (whole !== undefined && whole.length !== nslices * rows * cols) {
         const what = h.nd_shape ? h.nd_shape.join('x') : nslices > 1 ? `${nslices}x${rows}x${cols}` : `${rows}x${cols}`;
-        throw new InputError(InputCode.Shape, `original for field '${h.name}' has ${orig.length} values, the archive ${what}`);
+        throw new InputError(InputCode.Shape, `original for field '${h.name}' has ${whole.length} values, the archive ${what}`);
       }
       const total = new ErrorTally();
       let specials = 0;
@@ -436,6 +453,20 @@ export class Archive {
       const fp = this.pages[position];
       const all = await this.pagesForCheck(position, (what) => fail(-1, what));
       const entry = (t: number) => fp.entry(this.container, position, t);
+      // A band original: the band of the tile row being checked, read once (tiles come in order).
+      let held: { r0: number; r1: number; values: FloatArray } | null = null;
+      const cut = (t: number): FloatArray => {
+        const { s, i0 } = tileOrigin(h, t);
+        const r = s * rows + i0;
+        const m = tileShape(h, t)[0];
+        if (held === null || r < held.r0 || r + m > held.r1) {
+          const got = (bands as BandOriginal).band(r, m);
+          if (!(got instanceof Float32Array || got instanceof Float64Array)) throw new InputError(InputCode.Option, `original for field '${h.name}': band(${r}, ${m}) returned no Float32Array or Float64Array`);
+          if (got.length !== m * cols) throw new InputError(InputCode.Shape, `original for field '${h.name}': rows ${r}..${r + m} hold ${got.length} values, not ${m * cols}`);
+          held = { r0: r, r1: r + m, values: got instanceof want ? got : want.from(got) };
+        }
+        return extract(held.values, h, t, held.r0);
+      };
       await this.eachPayload(entry, all, (t, payload) => {
         onProgress?.(++checked, allTiles);
         let tile: FloatArray;
@@ -451,7 +482,8 @@ export class Archive {
         // Recorded errors are stored rounded up to binary32 (spec/FORMAT.md, section 7.3): compared with the bound rounded alike.
         if (pointwise && !(ix.max_err <= up32(tol))) fail(t, `recorded max error ${ix.max_err} exceeds the bound ${tol}`);
         if (orig) {
-          const { tally, differ } = compareTile(cutTile(orig, h, t), tile, fw);
+          const part = whole ? cutTile(whole, h, t) : cut(t);
+          const { tally, differ } = compareTile(part, tile, fw);
           specials += differ;
           total.merge(tally);
           if (pointwise && !(tally.max <= tol)) fail(t, `measured max error ${tally.max} exceeds the bound ${tol}`);
@@ -584,6 +616,17 @@ export function checkWindow(h: FieldHeader, o: ReadOptions): { slices: [number, 
 /** True when reads of the field count slices: more than one, or an N-D variable laid out as slices. */
 export function hasSlices(h: FieldHeader): boolean {
   return (h.slices ?? 1) > 1 || h.layout === 'slices';
+}
+
+/** Tile t cut out of the original values (C order: slice s is rows [s * R, (s + 1) * R) of the stacked matrix). */
+function extract(values: FloatArray, h: FieldHeader, t: number, firstRow = 0): FloatArray {
+  const cols = h.shape[1];
+  const { s, i0, j0 } = tileOrigin(h, t);
+  const r = s * h.shape[0] + i0 - firstRow;
+  const [m, n] = tileShape(h, t);
+  const out = h.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+  for (let i = 0; i < m; i++) out.set(values.subarray((r + i) * cols + j0, (r + i) * cols + j0 + n), i * n);
+  return out;
 }
 
 /** What {@link open} reads an archive from. */

@@ -7,7 +7,7 @@ export { readBands, type ArchiveLocation, type BandReadOptions, type BandsRead }
 export { MAX_THREADS, WorkerPool, type PoolOptions } from './parallel/pool.js';
 export { chooseLayout } from './layout.js';
 export { open } from './open-file.js';
-export { Archive, type ArchiveInput, type FieldValues, type ReadOptions, type CheckReport, type CheckFailure, type OpenOptions, type TileEntry } from './archive.js';
+export { Archive, type ArchiveInput, type FieldValues, type ReadOptions, type CheckReport, type CheckFailure, type BandOriginal, type OpenOptions, type TileEntry } from './archive.js';
 export { parseBound, formatBound, resolveBound, isPointwise } from './codec/bound.js';
 export { FormatError, InputError, FormatCode, InputCode } from './errors.js';
 export { MemorySource, readRanges, coalesce, type ByteSource, type ByteRange, type CoalesceOptions } from './io/source.js';

@@ -1,16 +1,15 @@
 /** `rankfield check`: verify every tile of an archive, optionally against the original values. */
 import type { Command } from 'commander';
-import { InputCode, InputError, isPointwise, type Archive, type CheckReport, type Dtype, type FieldHeader, type FloatArray } from '../index.js';
+import { InputCode, InputError, isPointwise, type Archive, type BandOriginal, type CheckReport, type Dtype, type FieldHeader, type FloatArray } from '../index.js';
 import { printable } from '../format/schema.js';
 import { ndShape } from '../geometry.js';
-import { netcdf4ToClassic } from '../io/hdf5-read.js';
-import { readNetcdfHeader, readNetcdfVariable } from '../io/netcdf-read.js';
 import { setOwn } from '../io/netcdf-types.js';
 import { byPath } from './netcdf.js';
-import { Exit, UsageError } from './errors.js';
-import { isUrl, openArchive, readInput, statInput } from './files.js';
+import { Exit, fileError, UsageError } from './errors.js';
+import { isUrl, openArchive, statInput } from './files.js';
+import { openNetcdfInput } from './netcdf-open.js';
 import { boundText, num, rawBytes } from './format.js';
-import { inputKind, loadField } from './input.js';
+import { flatValues, inputKind, openFieldBands, type InputKind, type RawLayout } from './input.js';
 import type { Context } from './context.js';
 import { dtypeOption, endianOption, nameOption, ndShapeOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
@@ -37,7 +36,8 @@ name): a NetCDF file, whose variables are compared with the fields of their
 names (every field, or those named by --var) and reported one by one; a .npy
 file of the field's shape (N-D included); or headerless raw binary, whose
 --shape (RxC or AxBxC...) and --dtype default to the field's own and
---endian to little.
+--endian to little. The original is read a band of tile rows at a time, as
+the tiles are checked, so it may be larger than memory.
 
 Exit codes:
   0  every tile holds its bound and checksums (and matches ORIGINAL)
@@ -61,30 +61,87 @@ function checkOriginal(what: string, shape: number[], dtype: Dtype, h: FieldHead
   }
 }
 
+/** An original's values, read by runs of C-order positions: [start, start + count). */
+export type FlatRead = (start: number, count: number) => FloatArray;
+
+/** Originals open for reading: a reader per field name, and the files to close. */
+export interface Originals {
+  values: Record<string, FlatRead>;
+  close(): void;
+}
+
 /**
  * The originals of an archive's fields from a NetCDF file, read as pack
- * reads them (CF missing values and packing applied): every field of the
- * archive, or those named by --var; each must be a variable of the file.
+ * reads them (CF missing values and packing applied), a run at a time:
+ * every field of the archive, or those named by --var; each must be a
+ * variable of the file, of the field's shape and dtype. Only the header is
+ * read here. The caller closes them.
  */
-export async function netcdfOriginals(path: string, archive: Archive, names: string[] | undefined, input: string, hdf5: boolean): Promise<Record<string, FloatArray>> {
-  const bytes = hdf5 ? await netcdf4ToClassic(path) : await readInput(path);
-  const file = readNetcdfHeader(bytes, path);
-  const chosen = names && names.length > 0 ? names.map((n) => archive.field(byPath(archive.names, n)).header.name) : archive.names;
-  const out: Record<string, FloatArray> = {};
-  for (const name of chosen) {
-    const h = archive.field(name).header;
-    if (!file.variables.some((v) => v.name === name)) {
-      throw new InputError(InputCode.Missing, `'${path}' has no variable '${printable(name)}' to compare with field '${printable(name)}' of '${input}' (variables: ${file.variables.map((v) => printable(v.name)).join(', ')}); name the fields to compare with --var`);
+export async function netcdfOriginals(path: string, archive: Archive, names: string[] | undefined, input: string, hdf5: boolean): Promise<Originals> {
+  const nc = await openNetcdfInput(path, hdf5);
+  try {
+    const file = nc.file;
+    const chosen = names && names.length > 0 ? names.map((n) => archive.field(byPath(archive.names, n)).header.name) : archive.names;
+    const out: Record<string, FlatRead> = {};
+    for (const name of chosen) {
+      const h = archive.field(name).header;
+      if (!file.variables.some((v) => v.name === name)) {
+        throw new InputError(InputCode.Missing, `'${path}' has no variable '${printable(name)}' to compare with field '${printable(name)}' of '${input}' (variables: ${file.variables.map((v) => printable(v.name)).join(', ')}); name the fields to compare with --var`);
+      }
+      const named = (e: unknown): unknown => (e instanceof InputError ? new InputError(e.code, `${path}: ${e.message}`) : fileError(e, 'read', path));
+      let reader;
+      try {
+        reader = nc.variable(name, { mark: true });
+      } catch (e) {
+        throw named(e);
+      }
+      checkOriginal(`variable '${printable(name)}' of '${path}'`, reader.info.shape, reader.info.dtype, h, input);
+      const r = reader;
+      setOwn(out, name, (start: number, count: number) => {
+        try {
+          return r.values(start, count);
+        } catch (e) {
+          throw named(e);
+        }
+      });
     }
-    let read;
+    return { values: out, close: () => nc.close() };
+  } catch (e) {
+    nc.close();
+    throw e;
+  }
+}
+
+/**
+ * The original of one field from a .npy or raw file, read by bands (its
+ * shape and dtype checked against the field's; raw --shape and --dtype
+ * default to the field's). The caller closes it.
+ */
+export async function arrayOriginal(path: string, h: FieldHeader, layout: RawLayout, kind: InputKind, input: string): Promise<Originals> {
+  const field = await openFieldBands(path, layout, kind, { shape: ndShape(h), dtype: h.dtype });
+  try {
+    checkOriginal(`original '${path}'`, field.ndShape, field.dtype, h, input);
+  } catch (e) {
+    field.close();
+    throw e;
+  }
+  const values: Record<string, FlatRead> = {};
+  setOwn(values, h.name, (start: number, count: number) => {
     try {
-      read = readNetcdfVariable(bytes, file, name, undefined, { mark: true });
+      return flatValues(field, start, count);
     } catch (e) {
-      if (e instanceof InputError) throw new InputError(e.code, `${path}: ${e.message}`);
-      throw e;
+      throw fileError(e, 'read', path);
     }
-    checkOriginal(`variable '${printable(name)}' of '${path}'`, read.shape, read.dtype, h, input);
-    setOwn(out, name, read.values);
+  });
+  return { values, close: () => field.close() };
+}
+
+/** The band originals {@link Archive.check} reads: rows of each field's stacked matrix. */
+function bandOriginals(archive: Archive, o: Originals): Record<string, BandOriginal> {
+  const out: Record<string, BandOriginal> = {};
+  for (const [name, read] of Object.entries(o.values)) {
+    const cols = archive.field(name).header.shape[1];
+    setOwn(out, name, { band: (r0: number, count: number) => read(r0 * cols, count * cols) });
   }
   return out;
 }
@@ -155,7 +212,8 @@ export function registerCheck(program: Command, ctx: Context): void {
         if (flags.against !== undefined) {
           const path = flags.against;
           const kind = await inputKind(path);
-          let originals: Record<string, FloatArray>;
+          // The originals are read a band of tile rows at a time, as the tiles are checked: never whole.
+          let originals: Originals;
           if (kind === 'netcdf' || kind === 'hdf5') {
             const misplaced = (['field', 'shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
             if (misplaced.length > 0) throw new UsageError(`${misplaced.join(', ')} describe a .npy or raw original; '${path}' is NetCDF (choose variables with --var)`);
@@ -164,12 +222,15 @@ export function registerCheck(program: Command, ctx: Context): void {
             if (flags.var !== undefined) throw new UsageError(`--var chooses variables of a NetCDF original; '${path}' is not NetCDF (by its first bytes or its name): use --field`);
             const { header: h } = archive.field(flags.field);
             const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
-            const orig = await loadField(path, layout, { shape: ndShape(h), dtype: h.dtype }, kind);
-            checkOriginal(`original '${path}'`, orig.shape, orig.dtype, h, input);
-            originals = { [h.name]: orig.data };
+            originals = await arrayOriginal(path, h, layout, kind, input);
           }
-          against = { path, fields: Object.keys(originals) };
-          report = await withBar(out, archive, (onProgress) => archive.check(originals, onProgress));
+          try {
+            against = { path, fields: Object.keys(originals.values) };
+            const bands = bandOriginals(archive, originals);
+            report = await withBar(out, archive, (onProgress) => archive.check(bands, onProgress));
+          } finally {
+            originals.close();
+          }
         } else {
           report = await withBar(out, archive, (onProgress) => archive.check(undefined, onProgress));
         }

@@ -138,7 +138,7 @@ export async function removeStaleTemps(folder: string): Promise<string[]> {
   return removed;
 }
 
-function emptyFile(path: string): FileError {
+export function emptyFile(path: string): FileError {
   return new FileError(`'${path}' is empty (0 bytes)`, 'EMPTY');
 }
 

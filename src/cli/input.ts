@@ -3,27 +3,17 @@
  * (its own header says shape and dtype), or else headerless raw binary whose
  * shape, dtype and byte order the user states.
  */
-import { InputCode, InputError, type Dtype } from '../index.js';
+import { InputError, type Dtype, type FloatArray } from '../index.js';
 import { openNpyBands, openRawBands, type BandReader } from '../io/bands.js';
-import type { NdArray } from '../io/ndarray.js';
-import { parseNpy } from '../io/npy.js';
-import { parseRaw } from '../io/raw.js';
 import { openRegular } from '../io/regular-file.js';
 import { SNIFF_BYTES, sniffFormat } from '../io/sniff.js';
 import { fileError, UsageError } from './errors.js';
-import { readInput } from './files.js';
 
 /** How a raw file is laid out, as given by --shape, --dtype and --endian. */
 export interface RawLayout {
   shape?: number[];
   dtype?: Dtype;
   endian?: 'little' | 'big';
-}
-
-/** A field read from a file: 2 or more axes, in C order. */
-export interface LoadedField extends NdArray {
-  /** 'npy' or 'raw'. */
-  kind: 'npy' | 'raw';
 }
 
 /** True when a path names a .npy file (case-insensitive extension). */
@@ -88,43 +78,14 @@ export function checkLayout(
 }
 
 /**
- * Load `path` as a 2-D field. For raw input, `given` holds what the user
- * stated and `defaults` what may stand in for a missing --shape or --dtype
- * (the archive's own, when checking); without either, both are required.
- */
-export async function loadField(path: string, given: RawLayout, defaults?: { shape: number[]; dtype: Dtype }, kind?: InputKind): Promise<LoadedField> {
-  const layout = checkLayout(path, given, defaults, kind);
-  if (layout === null) {
-    const bytes = await readInput(path);
-    const arr = parseNpy(bytes, path);
-    const shape = arr.shape;
-    if (shape.length < 2) {
-      const tuple = shape.length === 1 ? `(${shape[0]},)` : `(${shape.join(', ')})`;
-      throw new InputError(InputCode.Shape, `${path}: holds a ${shape.length}-D array of shape ${tuple}; a field has 2 or more axes`);
-    }
-    if (shape.some((d) => d === 0)) throw new InputError(InputCode.Shape, `${path}: the array of shape (${shape.join(', ')}) holds no values`);
-    return { ...arr, kind: 'npy' };
-  }
-  const { shape, dtype, endian } = layout;
-  const bytes = await readInput(path);
-  try {
-    const arr = parseRaw(bytes, shape, dtype, endian, path);
-    return { ...arr, kind: 'raw' };
-  } catch (e) {
-    if (e instanceof InputError && NPY_MAGIC.every((b, i) => bytes[i] === b)) {
-      throw new InputError(e.code, `${e.message} (the file starts like a .npy file; give it a .npy name to read its header)`);
-    }
-    throw e;
-  }
-}
-
-/**
  * Open `path` for reading a band of rows at a time (only the .npy header is
- * read here), with the same checks and messages as {@link loadField}. The
+ * read here): a .npy file by its header, else raw input by the layout
+ * options (for which `defaults` stand in for a missing --shape or --dtype),
+ * with the raw reader's message noting a file that starts like .npy. The
  * caller closes the reader. File system errors are phrased with the path.
  */
-export async function openFieldBands(path: string, given: RawLayout, kind?: InputKind): Promise<BandReader> {
-  const layout = checkLayout(path, given, undefined, kind);
+export async function openFieldBands(path: string, given: RawLayout, kind?: InputKind, defaults?: { shape: number[]; dtype: Dtype }): Promise<BandReader> {
+  const layout = checkLayout(path, given, defaults, kind);
   try {
     if (layout === null) return openNpyBands(path);
     try {
@@ -153,4 +114,17 @@ async function readHead(path: string, bytes: number): Promise<Uint8Array> {
   } finally {
     await h.close();
   }
+}
+
+/**
+ * C-order values [start, start + count) of a field read by bands: the rows
+ * of the reader's matrix that hold them are read, and the run cut out.
+ */
+export function flatValues(field: BandReader, start: number, count: number): FloatArray {
+  const cols = field.shape[1];
+  const r0 = Math.floor(start / cols);
+  const r1 = Math.ceil((start + count) / cols);
+  const rows = field.band(r0, r1 - r0);
+  const at = start - r0 * cols;
+  return at === 0 && rows.length === count ? rows : rows.slice(at, at + count);
 }

@@ -3,9 +3,12 @@
  * classic or 64-bit-offset file and their layouts for `pack`, and building
  * a NetCDF classic file from an archive's fields for `unpack -o OUT.nc`.
  */
-import { chooseLayout, FormatCode, FormatError, InputCode, InputError, type Attrs, type Bound, type FieldHeader } from '../index.js';
-import { readNetcdfHeader, readNetcdfVariable, physicalAttributes, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues, type NcVariable } from '../io/netcdf-read.js';
+import { FormatCode, FormatError, InputCode, InputError, type Attrs, type Bound, type FieldHeader } from '../index.js';
+import { physicalAttributes, type NcVariableReader, type NcAttrs, type NcAttrValue, type NcFile, type NcType, type NcValues, type NcVariable } from '../io/netcdf-read.js';
 import { NC_TYPE_SIZE, setOwn } from '../io/netcdf-types.js';
+import type { NetcdfInput, StoredBits } from '../io/netcdf-input.js';
+import { chooseLayoutFrom, validRange } from '../layout.js';
+import type { FloatArray } from '../types.js';
 import { MISSING_VALUES_KEY } from '../missing.js';
 import { formatBound } from '../codec/bound.js';
 import { VERSION_STRING } from '../version.js';
@@ -83,10 +86,15 @@ export function parseMatrix(text: string): string[] {
   return lead;
 }
 
-/** One variable, read and laid out for packing. */
+/** What is known of a variable's values once read through (all of {@link NcValues} but the values). */
+export type NcInfo = Omit<NcValues, 'values'>;
+
+/** One variable, read through once and laid out for packing. */
 export interface NcField {
   name: string;
-  read: NcValues;
+  read: NcInfo;
+  /** Its values, a band at a time ({@link fieldBands}). */
+  reader: NcVariableReader;
   rows: number;
   cols: number;
   slices: number;
@@ -96,34 +104,6 @@ export interface NcField {
 
 function typesText(types: Record<string, NcType>): string[] {
   return Object.entries(types).map(([k, t]) => `${k}=${t}`);
-}
-
-/** The stored values of any variable, bit for bit (big-endian on disk; typed arrays hold the same bits). */
-function storedValues(bytes: Uint8Array, file: NcFile, v: NcVariable): Int8Array | Uint8Array | Int16Array | Int32Array | Float32Array | Float64Array {
-  const size = NC_TYPE_SIZE[v.type];
-  const slab = (v.isRecord ? v.shape.slice(1) : v.shape).reduce((a, b) => a * b, 1);
-  const records = v.isRecord ? v.shape[0] : 1;
-  const n = slab * records;
-  const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
-  // Floats are read as their bit patterns, so NaN payloads survive.
-  const out =
-    v.type === 'byte' ? new Int8Array(n) : v.type === 'char' ? new Uint8Array(n) : v.type === 'short' ? new Int16Array(n) : v.type === 'int' ? new Int32Array(n) : v.type === 'float' ? new Uint32Array(n) : new BigUint64Array(n);
-  for (let r = 0; r < records; r++) {
-    const base = v.begin + r * file.recordSize;
-    const at = r * slab;
-    for (let i = 0; i < slab; i++) {
-      const off = base + i * size;
-      if (out instanceof Int8Array) out[at + i] = view.getInt8(off);
-      else if (out instanceof Uint8Array) out[at + i] = view.getUint8(off);
-      else if (out instanceof Int16Array) out[at + i] = view.getInt16(off);
-      else if (out instanceof Int32Array) out[at + i] = view.getInt32(off);
-      else if (out instanceof Uint32Array) out[at + i] = view.getUint32(off);
-      else out[at + i] = view.getBigUint64(off);
-    }
-  }
-  if (out instanceof Uint32Array) return new Float32Array(out.buffer);
-  if (out instanceof BigUint64Array) return new Float64Array(out.buffer);
-  return out;
 }
 
 const CANONICAL_NAN_F32 = 0x7fc00000;
@@ -147,7 +127,7 @@ function jsonNumber(x: number, bits?: () => bigint, canonical?: bigint): number 
   return x;
 }
 
-function jsonValues(values: ReturnType<typeof storedValues>): (number | string)[] | string {
+function jsonValues(values: StoredBits): (number | string)[] | string {
   if (values instanceof Uint8Array) {
     let s = '';
     for (let i = 0; i < values.length; i += 8192) s += String.fromCharCode(...values.subarray(i, i + 8192));
@@ -170,8 +150,8 @@ function jsonValues(values: ReturnType<typeof storedValues>): (number | string)[
  * numbers (see {@link jsonNumber}) or, for char, one string of one
  * character per byte.
  */
-function carriedJson(bytes: Uint8Array, file: NcFile, v: NcVariable): string {
-  return JSON.stringify({ name: v.name, dims: v.dims, type: v.type, attrs: attrsJson(v), values: jsonValues(storedValues(bytes, file, v)) });
+function carriedJson(input: NetcdfInput, v: NcVariable): string {
+  return JSON.stringify({ name: v.name, dims: v.dims, type: v.type, attrs: attrsJson(v), values: jsonValues(input.storedBits(v)) });
 }
 
 /** A JSON number back (see {@link jsonNumber}); `bad` is called for anything else. */
@@ -253,22 +233,30 @@ function fromCarried(text: unknown, i: number): NcWriteVariable {
   return { name: r.name, dims: r.dims as string[], type, attrs, attrTypes, values };
 }
 
+/** Values read at a time in the passes over a variable (16 or 32 MiB). */
+export const BAND_VALUES = 1 << 22;
+
 /**
  * The variables to pack: those named by `--var` (in the order given), else
  * every numeric variable of two or more non-empty dimensions. `matrix`
  * (from --matrix) lays out every variable whose leading dimensions are
  * those names as 'matrix:A'; the others get the default layout.
+ *
+ * Each variable is read a band of rows at a time (never whole): once here,
+ * for its missing cells, its value range and the fill-value guard, then by
+ * the layout trial's samples, and again by the encoder through
+ * {@link fieldBands}; `bandValues` values at most a read in the first pass.
  */
 export function netcdfFields(
-  bytes: Uint8Array,
-  path: string,
+  input: NetcdfInput,
   vars: string[] | undefined,
   matrix: string[] | undefined,
   bound: Bound,
   choose: 'auto' | 'slices' = 'auto',
   fill?: number | false,
+  bandValues: number = BAND_VALUES,
 ): { file: NcFile; fields: NcField[]; archiveAttrs: Attrs; carried: string[] } {
-  const file = readNetcdfHeader(bytes, path);
+  const { file, path } = input;
   let names: string[];
   if (vars && vars.length > 0) {
     const seen = new Set<string>();
@@ -281,37 +269,66 @@ export function netcdfFields(
     names = file.variables.filter((v) => v.type !== 'char' && v.shape.length >= 2 && v.shape.every((d) => d > 0)).map((v) => v.name);
     if (names.length === 0) throw new InputError(InputCode.Shape, `${path}: no numeric variable of 2 or more dimensions to pack (variables: ${file.variables.map((v) => `${v.name}(${v.dims.join(', ')})`).join(', ') || 'none'})`);
   }
-  const fields = names.map((name) => {
-    let read: NcValues;
+  const named = (e: unknown): unknown => {
+    if (e instanceof InputError) {
+      const hint = e.code === InputCode.Missing ? '' : ' (variables that are not fields are carried losslessly with the fields packed: leave them out of --var)';
+      return new InputError(e.code, `${path}: ${e.message}${hint}`);
+    }
+    return e;
+  };
+  const fields = names.map((name): NcField => {
+    let reader: NcVariableReader;
     try {
-      read = readNetcdfVariable(bytes, file, name, undefined, { mark: true });
+      reader = input.variable(name, { mark: true });
     } catch (e) {
-      if (e instanceof InputError) {
-        const hint = e.code === InputCode.Missing ? '' : ' (variables that are not fields are carried losslessly with the fields packed: leave them out of --var)';
-        throw new InputError(e.code, `${path}: ${e.message}${hint}`);
-      }
-      throw e;
+      throw named(e);
     }
+    const info = reader.info;
     const v = file.variables.find((x) => x.name === name)!;
-    let given = false;
-    if (typeof fill === 'number' && (read.fill === null || read.fillSource === 'default')) {
+    const f32 = info.dtype === 'f32';
+    // --fill declares the fill of a variable without _FillValue / missing_value (one with netCDF's default fill only).
+    const declare = typeof fill === 'number' && (info.fill === null || info.fillSource === 'default');
+    const finalFill = declare ? (f32 ? Math.fround(fill as number) : (fill as number)) : info.fill;
+    // One pass over the variable: its missing cells, the cells holding --fill, the value range, the fill-value guard.
+    const watch = fill !== false ? new RangeWatch(finalFill) : null;
+    const range: [number, number] = [Infinity, -Infinity];
+    let given = 0;
+    const [rows, cols] = reader.shape;
+    const step = Math.max(1, Math.floor(bandValues / cols));
+    for (let r0 = 0; r0 < rows; r0 += step) {
+      let values: FloatArray;
+      try {
+        values = reader.rows(r0, Math.min(step, rows - r0));
+      } catch (e) {
+        throw named(e);
+      }
+      if (declare) for (let i = 0; i < values.length; i++) if (values[i] === finalFill) given++;
+      watch?.add(values);
+      validRange(values, finalFill, range);
+    }
+    const read: NcInfo = { ...info, fillCount: reader.fillCount, remapped: reader.remapped };
+    if (declare) {
       if (read.fillCount > 0) throw new UsageError(`${path}: variable '${printable(name)}' has ${read.fillCount} cells of netCDF's default fill value ${read.fill}, which mark missing cells already; --fill cannot add a second`);
-      useFill(read, fill);
-      given = true;
+      read.fill = finalFill;
+      read.fillSource = '_FillValue';
+      read.fillCount = given;
     }
-    if (fill !== false) {
-      const watch = new RangeWatch(read.fill);
-      watch.add(read.values);
-      const s = watch.suspect();
-      if (s) throw new UsageError(suspectMessage(s, `variable '${printable(name)}' of '${path}'`, read.dtype === 'f32'));
-    }
+    const s = watch?.suspect();
+    if (s) throw new UsageError(suspectMessage(s, `variable '${printable(name)}' of '${path}'`, f32));
     const k = read.shape.length;
     // Dimension names match without regard to case (TIME, Time and time alike).
     // A dimension of a group ('ocean/time') also answers to its own name ('time').
     const same = (dim: string, d: string) => dim.toLowerCase() === d.toLowerCase() || baseName(dim).toLowerCase() === d.toLowerCase();
     const lead = matrix && matrix.length < k && matrix.every((d, i) => same(read.dims[i], d)) ? matrix.length : 0;
     // --matrix overrides; without it (and without --layout slices) a variable of 3+ axes takes the layout whose sample packs smallest.
-    const layout = lead > 0 ? `matrix:${lead}` : k > 2 ? (matrix || choose === 'slices' ? 'slices' : chooseLayout(read.values, read.shape, bound, read.fill)) : undefined;
+    const flat = (start: number, count: number): FloatArray => {
+      try {
+        return reader.values(start, count);
+      } catch (e) {
+        throw named(e);
+      }
+    };
+    const layout = lead > 0 ? `matrix:${lead}` : k > 2 ? (matrix || choose === 'slices' ? 'slices' : chooseLayoutFrom(flat, read.dtype, read.shape, bound, read.fill, range)) : undefined;
     const g = layout ? (layoutGrid(read.shape, layout) as { slices: number; rows: number; cols: number }) : { slices: 1, rows: read.shape[0], cols: read.shape[1] };
     const phys = physicalAttributes(v, read);
     const attrs: Attrs = { ...(phys.attrs as Attrs) };
@@ -319,9 +336,9 @@ export function netcdfFields(
     attrs[KEY.storedType] = read.storedType;
     const own = attrsJson(v);
     // --fill declares the variable's _FillValue, in its stored type (packed: the stored value the fill unpacks from).
-    if (given && read.fill !== null) {
-      const s = read.packing ? (read.fill - read.packing.offset) / read.packing.scale : read.fill;
-      own.push(['_FillValue', v.type, v.type === 'float' || v.type === 'double' ? s : Math.round(s)]);
+    if (declare && read.fill !== null) {
+      const sv = read.packing ? (read.fill - read.packing.offset) / read.packing.scale : read.fill;
+      own.push(['_FillValue', v.type, v.type === 'float' || v.type === 'double' ? sv : Math.round(sv)]);
     }
     attrs[KEY.storedAttrs] = JSON.stringify(own);
     if (read.marks.length > 0) attrs[KEY.marks] = read.marks;
@@ -329,7 +346,7 @@ export function netcdfFields(
       attrs[KEY.unpacked] = true;
       attrs[KEY.packing] = [read.packing.scale, read.packing.offset];
     }
-    return { name, read, rows: g.rows, cols: g.cols, slices: g.slices, layout, attrs };
+    return { name, read, reader, rows: g.rows, cols: g.cols, slices: g.slices, layout, attrs };
   });
   if (matrix && !fields.some((f) => f.layout?.startsWith('matrix:'))) {
     const have = fields.map((f) => `${printable(f.name)}(${f.read.dims.map(printable).join(', ')})`).join(', ');
@@ -348,10 +365,15 @@ export function netcdfFields(
   const texts: string[] = [];
   let total = 0;
   for (const v of carried) {
-    const t = carriedJson(bytes, file, v);
+    const what = `${path}: variable '${printable(v.name)}' (${v.type}, ${v.shape.join('x') || 'scalar'}) is not packed as a field and would be carried losslessly in the archive's attributes`;
+    // Each value takes at least one character and a comma: a variable beyond the limit is refused before it is read.
+    const least = v.type === 'char' ? v.shape.reduce((a, b) => a * b, 1) : 2 * v.shape.reduce((a, b) => a * b, 1);
+    if (least > MAX_ATTR_STRING) {
+      throw new InputError(InputCode.Shape, `${what}, but takes at least ${least} bytes there, more than the ${MAX_ATTR_STRING} readers accept; leave it out by naming the variables to pack with --var`);
+    }
+    const t = carriedJson(input, v);
     const n = Buffer.byteLength(t, 'utf8');
     total += n;
-    const what = `${path}: variable '${printable(v.name)}' (${v.type}, ${v.shape.join('x') || 'scalar'}) is not packed as a field and would be carried losslessly in the archive's attributes`;
     if (n > MAX_ATTR_STRING) {
       throw new InputError(InputCode.Shape, `${what}, but takes ${n} bytes there, more than the ${MAX_ATTR_STRING} readers accept; leave it out by naming the variables to pack with --var`);
     }
@@ -366,14 +388,13 @@ export function netcdfFields(
   return { file, fields, archiveAttrs, carried: carried.map((v) => v.name) };
 }
 
-/** `--fill V` for a variable without _FillValue / missing_value: its cells holding V become missing. */
-function useFill(read: NcValues, fill: number): void {
-  const f = read.values instanceof Float32Array ? Math.fround(fill) : fill;
-  let n = 0;
-  for (let i = 0; i < read.values.length; i++) if (read.values[i] === f) n++;
-  read.fill = f;
-  read.fillSource = '_FillValue';
-  read.fillCount = n;
+/**
+ * The band reader the encoder packs a field from: rows of its stacked
+ * matrix (slices x rows, each of `cols` values), read from the variable's
+ * C-order values.
+ */
+export function fieldBands(f: NcField): (r0: number, count: number) => FloatArray {
+  return (r0, count) => f.reader.values(r0 * f.cols, count * f.cols);
 }
 
 /** Names of the variables an archive carries losslessly (not packed as fields), from its attributes; for reports, so never throws. */

@@ -48,7 +48,7 @@ export async function packPlannedCli(input: string, kind: InputKind, flags: Pack
   if (flags.plan === undefined) {
     throw new UsageError(`--part needs --plan: the parts of a run share field-wide choices (the value range, the tile shape, the tolerance and for rmse and psnr bounds the L2 plan) made from the whole field; run 'rankfield plan ${input} -o PLAN --bound ...' first`);
   }
-  if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`--plan and --part read .npy and raw input a band of rows at a time; '${input}' is NetCDF, whose variables are read whole: pack it in one process, without --plan and --part`);
+  if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`--plan and --part cover .npy and raw input; '${input}' is NetCDF, whose variables a plan does not describe: pack it in one process, without --plan and --part`);
   const fixed = (['bound', 'tile', 'fill', 'name', 'matrix', 'layout', 'progressive', 'var'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k === 'fill' && flags.fill === false ? 'no-fill' : k}`);
   if (fixed.length > 0) throw new UsageError(`${fixed.join(', ')}: the plan '${flags.plan}' fixes ${fixed.length === 1 ? 'it' : 'them'}; drop ${fixed.length === 1 ? 'it' : 'them'} (or make another plan)`);
   const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };

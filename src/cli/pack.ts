@@ -3,10 +3,9 @@ import { basename, extname } from 'node:path';
 import type { Command } from 'commander';
 import { ArchiveBuilder, InputCode, InputError, type Bound, type Dtype, type FloatArray } from '../index.js';
 import { fileError, UsageError } from './errors.js';
-import { KEY, netcdfFields, parseMatrix } from './netcdf.js';
-import { netcdf4ToClassic } from '../io/hdf5-read.js';
+import { fieldBands, KEY, netcdfFields, parseMatrix, type NcField } from './netcdf.js';
+import { openNetcdfInput } from './netcdf-open.js';
 import { NC_TYPE_SIZE, type NcType } from '../io/netcdf-types.js';
-import { readInput } from './files.js';
 import { bytesText, errorVsBound, boundText, num, ratio, rawBytes, seconds } from './format.js';
 import { checkOutput, openArchive, statInput, writeOutputWith } from './files.js';
 import { checkLayout, inputKind, openFieldBands, type InputKind } from './input.js';
@@ -53,7 +52,7 @@ Input, told apart by its first bytes (else by its name): a .npy file holding
 a float32 or float64 array of 2 or more axes (C or Fortran order; N-D in
 Fortran order is read whole, up to 2 GiB); a NetCDF classic or 64-bit-offset
 file, whatever its name (.nc, .cdf, ...); a NetCDF-4 or HDF5 file (read
-through h5wasm; variables of groups named by their path, GROUP/NAME, and
+through h5wasm by hyperslabs; variables of groups named by their path, GROUP/NAME, and
 --var /GROUP/NAME chooses one);
 anything else is read as headerless raw binary and needs --shape (RxC, or
 AxBxC... for N-D in C order) and --dtype (--endian defaults to little). An
@@ -251,36 +250,55 @@ async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, ou
   await statInput(input);
   const io = { force: flags.force === true, inputs: [input] };
   await checkOutput(flags.output, io);
-  // NetCDF-4 / HDF5 is read through h5wasm into the classic model (src/io/hdf5-read.ts).
-  const bytes = hdf5 ? await netcdf4ToClassic(input) : await readInput(input);
-  const { fields, archiveAttrs, carried } = netcdfFields(bytes, input, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto', flags.fill);
-  if (hdf5) archiveAttrs[KEY.format] = 'netcdf4';
+  // Only the header is read here; each variable is then read a band of rows at a time (NetCDF-4 / HDF5
+  // through h5wasm, by hyperslabs: src/io/hdf5-read.ts), so memory holds about one band whatever its size.
+  const nc = await openNetcdfInput(input, hdf5);
   let threads: number | undefined;
-  await writeOutputWith(flags.output, io, async (sink) => {
-    const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
-    for (const f of fields) {
-      const bar = out.tileProgress(`packing '${printable(f.name)}'`, f.read.values.byteLength);
-      const fieldThreads = defaultThreads(flags.threads, f.slices * f.rows * f.cols);
-      if (threads === undefined || (fieldThreads ?? Infinity) > threads) threads = fieldThreads;
-      // The bar holds a timer: stopped however the field ends.
-      await builder.addAsync(f.read.values, [f.rows, f.cols], {
-        onProgress: bar.onProgress,
-        threads: fieldThreads,
-        bound: flags.bound,
-        tile: flags.tile,
-        fill: f.read.fill,
-        fillGuard: false, // guarded by netcdfFields, in the command line's words
-        name: f.name,
-        attrs: f.attrs,
-        slices: f.slices,
-        ndShape: f.read.shape,
-        dims: f.read.dims,
-        layout: f.layout,
-        progressive: flags.progressive === true,
-      }).finally(() => bar.stop());
-    }
-    builder.finish();
-  });
+  let fields: NcField[];
+  let carried: string[];
+  try {
+    const chosen = netcdfFields(nc, flags.var, flags.matrix, flags.bound, flags.layout ?? 'auto', flags.fill);
+    fields = chosen.fields;
+    carried = chosen.carried;
+    const { archiveAttrs } = chosen;
+    if (hdf5) archiveAttrs[KEY.format] = 'netcdf4';
+    await writeOutputWith(flags.output, io, async (sink) => {
+      const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
+      for (const f of fields) {
+        const cells = f.slices * f.rows * f.cols;
+        const bar = out.tileProgress(`packing '${printable(f.name)}'`, cells * (f.read.dtype === 'f32' ? 4 : 8));
+        const fieldThreads = defaultThreads(flags.threads, cells);
+        if (threads === undefined || (fieldThreads ?? Infinity) > threads) threads = fieldThreads;
+        const band = fieldBands(f);
+        const read = (r0: number, count: number): FloatArray => {
+          try {
+            return band(r0, count);
+          } catch (e) {
+            throw fileError(e, 'read', input);
+          }
+        };
+        // The bar holds a timer: stopped however the field ends.
+        await builder.addBandsAsync(read, [f.rows, f.cols], f.read.dtype, {
+          onProgress: bar.onProgress,
+          threads: fieldThreads,
+          bound: flags.bound,
+          tile: flags.tile,
+          fill: f.read.fill,
+          fillGuard: false, // guarded by netcdfFields, in the command line's words
+          name: f.name,
+          attrs: f.attrs,
+          slices: f.slices,
+          ndShape: f.read.shape,
+          dims: f.read.dims,
+          layout: f.layout,
+          progressive: flags.progressive === true,
+        }).finally(() => bar.stop());
+      }
+      builder.finish();
+    });
+  } finally {
+    nc.close();
+  }
   const facts = await writtenFacts(flags.output);
   const archive = await openArchive(flags.output);
   const size = archive.size;

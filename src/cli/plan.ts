@@ -130,7 +130,7 @@ export function registerPlan(program: Command, ctx: Context): void {
       const out = new Output(ctx, flags);
       await statInput(input);
       const kind = await inputKind(input);
-      if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`plan and pack --part read .npy and raw input a band of rows at a time; '${input}' is NetCDF, whose variables are read whole: pack it in one process`);
+      if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`plan and pack --part cover .npy and raw input; '${input}' is NetCDF, whose variables a plan does not describe: pack it in one process`);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       checkLayout(input, layout, undefined, kind);
       if (flags.merge !== undefined && (flags.part !== undefined || flags.base !== undefined)) throw new UsageError('--merge takes the pieces of a pass and makes no piece itself: drop --part and --base');

@@ -7,10 +7,10 @@ import { ndShape } from '../geometry.js';
 import { netcdfOriginals } from './check.js';
 import { heatmap, type HeatmapSpec } from '../picture/heatmap.js';
 import { blockFor, EXACT_CODE, rankGrid, readGrids, slicePlane, snapshotPlane, snapshotShape, type Grid, type Plane, type PictureWindow } from '../picture/sample.js';
-import { UsageError } from './errors.js';
+import { fileError, UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, writeOutput } from './files.js';
 import { num, seconds } from './format.js';
-import { inputKind, loadField } from './input.js';
+import { flatValues, inputKind, openFieldBands } from './input.js';
 import type { Context } from './context.js';
 import { dtypeOption, endianOption, nameOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
@@ -146,29 +146,42 @@ function specOf(kind: MapKind, h: FieldHeader, grid: Grid, w: PictureWindow, sca
 }
 
 /**
- * The original values of the plane drawn, for --map error: ORIGINAL holds
- * the whole field (NetCDF: the variable of the field's name; .npy or raw:
- * the field's N-D shape), of which the plane's run of C-order values is
- * taken (slice i of a field of slices, row i of a field stored as a
- * matrix), or just the plane (.npy or raw of its rows x columns).
+ * The original values of the plane drawn, for --map error, read a band of
+ * rows at a time: ORIGINAL holds the whole field (NetCDF: the variable of
+ * the field's name; .npy or raw: the field's N-D shape), of which the
+ * plane's run of C-order values is read (slice i of a field of slices, row
+ * i of a field stored as a matrix), or just the plane (.npy or raw of its
+ * rows x columns). Only headers are read here; the caller closes it.
  */
-async function planeOriginal(archive: Archive, h: FieldHeader, input: string, flags: PreviewFlags, plane: Plane, index: number): Promise<FloatArray> {
+async function planeOriginal(archive: Archive, h: FieldHeader, input: string, flags: PreviewFlags, plane: Plane, index: number): Promise<{ rows: (r0: number, count: number) => FloatArray; close(): void }> {
   const path = flags.against!;
   const kind = await inputKind(path);
   const size = plane.rows * plane.cols;
   const whole = ndShape(h);
   if (kind === 'netcdf' || kind === 'hdf5') {
     if (flags.dtype !== undefined || flags.endian !== undefined) throw new UsageError(`--dtype and --endian describe raw originals; '${printable(path)}' is NetCDF`);
-    const values = (await netcdfOriginals(path, archive, [h.name], input, kind === 'hdf5'))[h.name];
-    return values.subarray(index * size, (index + 1) * size);
+    const o = await netcdfOriginals(path, archive, [h.name], input, kind === 'hdf5');
+    const read = o.values[h.name];
+    return { rows: (r0, count) => read(index * size + r0 * plane.cols, count * plane.cols), close: () => o.close() };
   }
   // A .npy original states its shape; a raw one is read as the plane alone (its rows x columns, the field's dtype unless --dtype).
-  const orig = await loadField(path, { dtype: flags.dtype, endian: flags.endian }, { shape: [plane.rows, plane.cols], dtype: h.dtype }, kind);
+  const field = await openFieldBands(path, { dtype: flags.dtype, endian: flags.endian }, kind, { shape: [plane.rows, plane.cols], dtype: h.dtype });
+  const shape = field.ndShape;
   const same = (a: readonly number[], b: readonly number[]) => a.length === b.length && a.every((d, i) => d === b[i]);
-  if (same(orig.shape, whole)) return orig.data.subarray(index * size, (index + 1) * size);
-  if (same(orig.shape, [plane.rows, plane.cols])) return orig.data;
-  const what = snapshotShape(h) ? 'snapshot' : hasSlices(h) ? 'slice' : '';
-  throw new UsageError(`original '${printable(path)}' is ${orig.shape.join('x')}, but field '${printable(h.name)}' of '${input}' is ${whole.join('x')}${what ? ` (one ${what}: ${plane.rows}x${plane.cols})` : ''}`);
+  const at = same(shape, whole) ? index * size : same(shape, [plane.rows, plane.cols]) ? 0 : -1;
+  if (at < 0) {
+    field.close();
+    const what = snapshotShape(h) ? 'snapshot' : hasSlices(h) ? 'slice' : '';
+    throw new UsageError(`original '${printable(path)}' is ${shape.join('x')}, but field '${printable(h.name)}' of '${input}' is ${whole.join('x')}${what ? ` (one ${what}: ${plane.rows}x${plane.cols})` : ''}`);
+  }
+  const rows = (r0: number, count: number): FloatArray => {
+    try {
+      return flatValues(field, at + r0 * plane.cols, count * plane.cols);
+    } catch (e) {
+      throw fileError(e, 'read', path);
+    }
+  };
+  return { rows, close: () => field.close() };
 }
 
 /** Draw one map of a field of an opened archive; returns the PNG and the figures of the report. */
@@ -181,10 +194,13 @@ async function draw(archive: Archive, input: string, flags: Required<Pick<Previe
   let grid: Grid;
   if (flags.map === 'rank') grid = rankGrid(plane, await archive.fieldIndex(h.name), w, block);
   else {
-    let original: FloatArray | undefined;
-    if (flags.map === 'error') original = await planeOriginal(archive, h, input, flags, plane, choice === null ? 0 : Math.min(flags.slice ?? 0, choice.count - 1));
-    const grids = await readGrids(plane, h, w, block, original, h.bound.tolerance > 0 ? h.bound.tolerance : 1);
-    grid = flags.map === 'error' ? grids.errors! : grids.values;
+    const original = flags.map === 'error' ? await planeOriginal(archive, h, input, flags, plane, choice === null ? 0 : Math.min(flags.slice ?? 0, choice.count - 1)) : null;
+    try {
+      const grids = await readGrids(plane, h, w, block, original?.rows, h.bound.tolerance > 0 ? h.bound.tolerance : 1);
+      grid = flags.map === 'error' ? grids.errors! : grids.values;
+    } finally {
+      original?.close();
+    }
   }
   // Small fields are enlarged to about 384 pixels on their longer side.
   const scale = block > 1 ? 1 : Math.max(1, Math.floor(384 / Math.max(grid.rows, grid.cols)));

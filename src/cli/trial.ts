@@ -10,12 +10,12 @@ import { printable } from '../format/schema.js';
 import { InputError, formatBound, isPointwise, MemorySource, open, pack, parseBound, resolveBound, type Bound, type Dtype, type FloatArray } from '../index.js';
 import { heatmap } from '../picture/heatmap.js';
 import { readGrids, slicePlane } from '../picture/sample.js';
-import { netcdf4ToClassic } from '../io/hdf5-read.js';
-import { readNetcdfHeader, readNetcdfVariable } from '../io/netcdf-read.js';
+import { openNetcdfInput } from './netcdf-open.js';
+import type { NetcdfInput } from '../io/netcdf-input.js';
 import { fileError, UsageError } from './errors.js';
-import { checkOutput, readInput, statInput, writeOutput } from './files.js';
+import { checkOutput, statInput, writeOutput } from './files.js';
 import { num, ratio, seconds, table } from './format.js';
-import { checkLayout, inputKind, openFieldBands } from './input.js';
+import { checkLayout, flatValues, inputKind, openFieldBands } from './input.js';
 import type { Context } from './context.js';
 import { dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, nonFinite, tileOption } from './options.js';
 import { Output, type OutputFlags } from './output.js';
@@ -105,7 +105,7 @@ function sampleOption(text: string): number {
 }
 
 /** The sample a trial packs, where it lies, and the whole field's value range. */
-interface Sample {
+export interface Sample {
   values: FloatArray;
   shape: [number, number];
   /** The whole field's shape. */
@@ -121,58 +121,83 @@ interface Sample {
   fill: number | null;
 }
 
-/** The central block of up to `side` x `side` cells of the middle slice (over the last two axes) of C-order values of shape `nd`. */
-function centralBlock(values: FloatArray, nd: readonly number[], side: number): Pick<Sample, 'values' | 'shape' | 'slice' | 'rows' | 'cols'> {
-  const R = nd[nd.length - 2];
-  const C = nd[nd.length - 1];
-  const slices = values.length / (R * C);
-  const slice = nd.length > 2 ? Math.floor(slices / 2) : null;
-  const m = Math.min(R, side);
-  const n = Math.min(C, side);
-  const r0 = Math.floor((R - m) / 2);
-  const c0 = Math.floor((C - n) / 2);
-  const out = values instanceof Float32Array ? new Float32Array(m * n) : new Float64Array(m * n);
-  const base = (slice ?? 0) * R * C;
-  for (let i = 0; i < m; i++) out.set(values.subarray(base + (r0 + i) * C + c0, base + (r0 + i) * C + c0 + n), i * n);
-  return { values: out, shape: [m, n], slice, rows: [r0, r0 + m], cols: [c0, c0 + n] };
-}
-
 /**
  * The sample of a variable of a NetCDF file (classic, or NetCDF-4 / HDF5
  * through h5wasm), read as pack reads it: CF missing values are the fill
  * value (`--fill` stands in where the variable declares none), packed
  * values are unpacked. The variable is `--var`, or the first numeric one of
- * two or more dimensions, as pack would take.
+ * two or more dimensions, as pack would take. It is read a band of rows at
+ * a time, once for its value range, then the sample's rows.
  */
 async function readNetcdfSample(input: string, flags: TrialFlags & { sample: number }, hdf5: boolean): Promise<Sample> {
   const given = (['shape', 'dtype', 'endian'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k}`);
   if (given.length > 0) throw new UsageError(`${given.join(', ')} describe raw input; '${printable(input)}' is NetCDF, which describes itself`);
-  const bytes = hdf5 ? await netcdf4ToClassic(input) : await readInput(input);
-  const file = readNetcdfHeader(bytes, input);
-  const fields = file.variables.filter((v) => v.type !== 'char' && v.shape.length >= 2 && v.shape.every((d) => d > 0));
-  const name = flags.var ?? fields[0]?.name;
-  if (name === undefined) throw new UsageError(`'${printable(input)}' has no numeric variable of 2 or more dimensions to sample`);
-  let read;
+  const nc = await openNetcdfInput(input, hdf5);
   try {
-    read = readNetcdfVariable(bytes, file, name);
-  } catch (e) {
-    if (e instanceof InputError) throw new InputError(e.code, `${input}: ${e.message}`);
-    throw e;
+    return netcdfSample(nc, flags);
+  } finally {
+    nc.close();
   }
-  const fill = read.fill ?? flags.fill ?? null;
-  const f = fill === null ? null : read.dtype === 'f32' ? Math.fround(fill) : fill;
-  let lo = Infinity;
-  let hi = -Infinity;
-  for (const v of read.values) {
-    if (!Number.isFinite(v) || v === f) continue;
-    if (v < lo) lo = v;
-    if (v > hi) hi = v;
-  }
-  return { ...centralBlock(read.values, read.shape, flags.sample), field: read.shape, variable: name, dtype: read.dtype, range: lo <= hi ? [lo, hi] : null, fill };
 }
 
-/** Rows read at a time when the field's value range is measured. */
-const RANGE_BAND = 256;
+/**
+ * The sample of {@link readNetcdfSample} from an open file: one pass over
+ * the variable of `rangeValues` values a read at most, for its value range,
+ * then the sample's rows, each read alone (its columns only).
+ */
+export function netcdfSample(nc: NetcdfInput, flags: Pick<TrialFlags, 'var' | 'fill'> & { sample: number }, rangeValues = RANGE_VALUES): Sample {
+  const input = nc.path;
+  {
+    const file = nc.file;
+    const fields = file.variables.filter((v) => v.type !== 'char' && v.shape.length >= 2 && v.shape.every((d) => d > 0));
+    const name = flags.var ?? fields[0]?.name;
+    if (name === undefined) throw new UsageError(`'${printable(input)}' has no numeric variable of 2 or more dimensions to sample`);
+    const named = (e: unknown): unknown => (e instanceof InputError ? new InputError(e.code, `${input}: ${e.message}`) : fileError(e, 'read', input));
+    let reader;
+    try {
+      reader = nc.variable(name);
+    } catch (e) {
+      throw named(e);
+    }
+    const info = reader.info;
+    const fill = info.fill ?? flags.fill ?? null;
+    const f = fill === null ? null : info.dtype === 'f32' ? Math.fround(fill) : fill;
+    let lo = Infinity;
+    let hi = -Infinity;
+    const nd = info.shape;
+    const R = nd[nd.length - 2];
+    const C = nd[nd.length - 1];
+    const all = reader.shape[0];
+    let values: FloatArray;
+    const slice = nd.length > 2 ? Math.floor(all / R / 2) : null;
+    const m = Math.min(R, flags.sample);
+    const n = Math.min(C, flags.sample);
+    const r0 = Math.floor((R - m) / 2);
+    const c0 = Math.floor((C - n) / 2);
+    try {
+      const step = Math.max(1, Math.floor(rangeValues / C));
+      for (let b0 = 0; b0 < all; b0 += step) {
+        const part = reader.rows(b0, Math.min(step, all - b0));
+        for (let k = 0; k < part.length; k++) {
+          const v = part[k];
+          if (!Number.isFinite(v) || v === f) continue;
+          if (v < lo) lo = v;
+          if (v > hi) hi = v;
+        }
+      }
+      // The sample's rows, each read alone (its columns only).
+      values = info.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+      for (let i = 0; i < m; i++) values.set(reader.values(((slice ?? 0) * R + r0 + i) * C + c0, n), i * n);
+    } catch (e) {
+      throw named(e);
+    }
+    return { values, shape: [m, n], field: nd, variable: name, slice, rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: info.dtype, range: lo <= hi ? [lo, hi] : null, fill };
+  }
+}
+
+/** Values read at a time when a NetCDF variable's value range is measured (about). */
+const RANGE_VALUES = 1 << 22;
+
 
 /**
  * Read the central block of up to side x side cells of IN, and the value
@@ -199,13 +224,14 @@ async function readSample(
     const n = Math.min(C, flags.sample);
     const r0 = Math.floor((R - m) / 2);
     const c0 = Math.floor((C - n) / 2);
-    let band: FloatArray;
+    let values: FloatArray;
     const fill = flags.fill === undefined ? null : field.dtype === 'f32' ? Math.fround(flags.fill) : flags.fill;
     let lo = Infinity;
     let hi = -Infinity;
     try {
-      for (let b0 = 0; b0 < all; b0 += RANGE_BAND) {
-        const part = field.band(b0, Math.min(RANGE_BAND, all - b0));
+      const step = Math.max(1, Math.floor(RANGE_VALUES / field.shape[1]));
+      for (let b0 = 0; b0 < all; b0 += step) {
+        const part = field.band(b0, Math.min(step, all - b0));
         for (let k = 0; k < part.length; k++) {
           const v = part[k];
           if (!Number.isFinite(v) || v === fill) continue;
@@ -213,12 +239,12 @@ async function readSample(
           if (v > hi) hi = v;
         }
       }
-      band = field.band(first + r0, m);
+      // The sample's rows, each read alone.
+      values = field.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+      for (let i = 0; i < m; i++) values.set(flatValues(field, (first + r0 + i) * C + c0, n), i * n);
     } catch (e) {
       throw fileError(e, 'read', input);
     }
-    const values = field.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
-    for (let i = 0; i < m; i++) values.set(band.subarray(i * C + c0, i * C + c0 + n), i * n);
     return { values, shape: [m, n], field: nd, variable: null, slice, rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: field.dtype, range: lo <= hi ? [lo, hi] : null, fill: flags.fill ?? null };
   } finally {
     field.close();

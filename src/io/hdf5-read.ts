@@ -28,8 +28,10 @@
  *    dimension (classic files have at most one).
  */
 import { InputCode, InputError } from '../errors.js';
-import type { NcAttrValue, NcType } from './netcdf-types.js';
-import { writeNetcdf, type NcWriteFile, type NcWriteValues, type NcWriteVariable } from './netcdf-write.js';
+import type { NetcdfInput, StoredBits } from './netcdf-input.js';
+import { NcVariableReader, readNetcdfHeader, type NcFile, type NcVariable, type StoredReader } from './netcdf-read.js';
+import { NC_TYPE_SIZE, type NcAttrValue, type NcType } from './netcdf-types.js';
+import { netcdfHeader, writeNetcdf, type NcWriteFile, type NcWriteValues, type NcWriteVariable } from './netcdf-write.js';
 
 /** HDF5 datatype classes (H5Tpublic.h, from memory): 0 integer, 1 float, 3 string. */
 const H5T_INTEGER = 0;
@@ -183,12 +185,30 @@ function readOpen(lib: H5, path: string): NcWriteFile {
   const file = new lib.File(path, 'r') as unknown as H5File;
   if (!(file.file_id >= 0n)) throw new Error('cannot open');
   try {
+    return walk(file, path, () => false).model as NcWriteFile;
+  } finally {
+    file.close();
+  }
+}
+
+/** A variable of the model whose values are still in the file: its dataset, read by hyperslabs. */
+type Deferred = Omit<NcWriteVariable, 'values'> & { values?: NcWriteValues };
+
+/**
+ * The classic model of an open file (see the module comment). The values
+ * of the datasets `defer` accepts are left in the file (their variables have
+ * no `values`; `datasets` maps their names to them); every other
+ * variable's values are read whole.
+ */
+function walk(file: H5File, path: string, defer: (d: H5Node, type: NcType) => boolean): { model: Omit<NcWriteFile, 'variables'> & { variables: Deferred[] }; datasets: Map<string, H5Node> } {
+  const deferred = new Map<string, H5Node>();
+  {
     const dims = new Map<string, { size: number; unlimited: boolean }>();
-    const variables: NcWriteVariable[] = [];
+    const variables: Deferred[] = [];
     const datasets: H5Node[] = [];
     // Attributes of groups are kept as global attributes named by their path, G/NAME.
     const groupAttrs: ReturnType<typeof attributes>[] = [];
-    const walk = (g: H5Node) => {
+    const visit = (g: H5Node) => {
       for (const k of g.keys!()) {
         const o = g.get!(k);
         if (o === null) continue;
@@ -201,12 +221,12 @@ function readOpen(lib: H5, path: string): NcWriteFile {
             Object.defineProperty(named.attrTypes, prefix + name, { value: own.attrTypes[name], enumerable: true, writable: true, configurable: true });
           }
           groupAttrs.push(named);
-          walk(o);
+          visit(o);
         }
         else if (o.type === 'Dataset') datasets.push(o);
       }
     };
-    walk(file);
+    visit(file);
     const isScale = (d: H5Node) => d.attrs.CLASS !== undefined && String(d.attrs.CLASS.value) === 'DIMENSION_SCALE';
     let record: string | null = null;
     for (const d of datasets.filter(isScale)) {
@@ -241,6 +261,11 @@ function readOpen(lib: H5, path: string): NcWriteFile {
         if (had === undefined) dims.set(dn, { size: shape[i], unlimited: false });
       });
       const { attrs, attrTypes } = attributes(d, path);
+      if (!oneByteText && defer(d, type)) {
+        deferred.set(name, d);
+        variables.push({ name, dims: names, type, attrs, attrTypes });
+        continue;
+      }
       const values = oneByteText ? charBytes(d.value, where, path) : typedValues(d.value, type, where, path);
       variables.push({ name, dims: names, type, attrs, attrTypes, values });
     }
@@ -251,15 +276,14 @@ function readOpen(lib: H5, path: string): NcWriteFile {
       Object.assign(g.attrs, a.attrs);
       Object.assign(g.attrTypes, a.attrTypes);
     }
-    return {
+    const model = {
       dims: [...dims].map(([name, d]) => ({ name, size: d.size, unlimited: name === rec })),
       globalAttrs: g.attrs,
       globalAttrTypes: g.attrTypes,
       variables,
       groupPaths: true,
     };
-  } finally {
-    file.close();
+    return { model, datasets: deferred };
   }
 }
 
@@ -274,6 +298,218 @@ export async function netcdf4ToClassic(path: string): Promise<Uint8Array> {
     return writeNetcdf(f);
   } catch (e) {
     if (e instanceof InputError) throw new InputError(e.code, `${path}: ${e.message}`);
+    throw e;
+  }
+}
+
+/**
+ * The pieces of C-order positions [start, start + count) of an array of
+ * `shape` as hyperslabs ([start, stop) per axis), in order: a partial
+ * leading row, whole rows, a partial trailing row, recursively; at most two
+ * per axis.
+ */
+export function flatPieces(shape: readonly number[], start: number, count: number): [number, number][][] {
+  const out: [number, number][][] = [];
+  const go = (axis: number, lead: [number, number][], a: number, b: number): void => {
+    if (a >= b) return;
+    if (axis === shape.length - 1) {
+      out.push([...lead, [a, b]]);
+      return;
+    }
+    const inner = shape.slice(axis + 1).reduce((x, y) => x * y, 1);
+    let i0 = Math.floor(a / inner);
+    let i1 = Math.ceil(b / inner); // rows [i0, i1) touched
+    const whole = (i: number, j: number) => out.push([...lead, [i, j], ...shape.slice(axis + 1).map((d) => [0, d] as [number, number])]);
+    if (i1 - i0 === 1) return go(axis + 1, [...lead, [i0, i0 + 1]], a - i0 * inner, b - i0 * inner);
+    let tail: (() => void) | null = null;
+    if (a % inner !== 0) {
+      go(axis + 1, [...lead, [i0, i0 + 1]], a - i0 * inner, inner);
+      i0++;
+    }
+    if (b % inner !== 0) {
+      const last = i1 - 1;
+      tail = () => go(axis + 1, [...lead, [last, last + 1]], 0, b - last * inner);
+      i1--;
+    }
+    if (i1 > i0) whole(i0, i1);
+    tail?.();
+  };
+  go(0, [], start, start + count);
+  return out;
+}
+
+type H5Dataset = H5Node & { slice(ranges: [number, number][]): unknown };
+
+/**
+ * Largest compressed chunk read (bytes of values). HDF5 inflates a filtered
+ * chunk whole into the WebAssembly heap for every read that touches it, so a
+ * variable in larger compressed chunks cannot be read by bands in bounded
+ * memory: it is refused (typical NetCDF-4 chunks take at most a few MiB).
+ */
+export const MAX_CHUNK_BYTES = 64 << 20;
+
+/** Largest number of values one hyperslab read asks HDF5 for (its buffer lives in the WebAssembly heap, which never shrinks). */
+const MAX_SLAB_VALUES = 1 << 21;
+
+/** A NetCDF-4 / HDF5 file open through h5wasm, its large variables read by hyperslabs. */
+class Netcdf4Input implements NetcdfInput {
+  readonly bytesRead = 0;
+  readonly stored: StoredReader;
+  private open = true;
+
+  constructor(
+    readonly path: string,
+    private readonly h5file: H5File,
+    readonly file: NcFile,
+    private readonly values: Map<string, NcWriteValues>,
+    private readonly datasets: Map<string, H5Node>,
+  ) {
+    this.stored = (v, start, count, unsigned, out) => this.readStored(v, start, count, unsigned, out);
+  }
+
+  private dataset(v: NcVariable): H5Dataset | null {
+    if (!this.open) throw new InputError(InputCode.Option, `${this.path}: read after the file was closed`);
+    return (this.datasets.get(v.name) as H5Dataset | undefined) ?? null;
+  }
+
+  /** Values of a deferred variable at C-order positions [start, start + count), as the classic model's numbers. */
+  private readStored(v: NcVariable, start: number, count: number, unsigned: boolean, out: Float32Array | Float64Array): void {
+    const d = this.dataset(v);
+    const wrap = 2 ** (8 * NC_TYPE_SIZE[v.type]);
+    const put = (src: ArrayLike<number | bigint>, at: number, where: string) => {
+      for (let i = 0; i < src.length; i++) {
+        let x = src[i];
+        if (typeof x === 'bigint') {
+          if (x > BigInt(Number.MAX_SAFE_INTEGER) || x < -BigInt(Number.MAX_SAFE_INTEGER)) fileError(this.path, `${where} holds ${x}, beyond 2^53, which double cannot hold exactly`);
+          x = Number(x);
+        }
+        // As a classic reader reads an integer type's bits unsigned (_Unsigned = "true").
+        out[at + i] = unsigned && x < 0 ? x + wrap : x;
+      }
+    };
+    const where = `variable '/${v.name}'`;
+    if (d === null) {
+      // A variable read whole at open (small: coordinates and the like).
+      const all = this.values.get(v.name);
+      if (all === undefined || typeof all[0] === 'string') throw new InputError(InputCode.Option, `${this.path}: ${where} has no numeric values`);
+      put(Array.prototype.slice.call(all, start, start + count) as number[], 0, where);
+      return;
+    }
+    const shape = v.shape;
+    let at = 0;
+    for (const piece of flatPieces(shape, start, count)) {
+      // A piece too large for one buffer is cut along its first axis of more than one index.
+      const size = piece.reduce((a, [x, y]) => a * (y - x), 1);
+      const axis = piece.findIndex(([x, y]) => y - x > 1);
+      const per = axis < 0 ? 1 : size / (piece[axis][1] - piece[axis][0]);
+      const step = axis < 0 ? 1 : Math.max(1, Math.floor(MAX_SLAB_VALUES / per));
+      const [lo, hi] = axis < 0 ? [0, 1] : piece[axis];
+      for (let i = lo; i < hi; i += step) {
+        const part = axis < 0 ? piece : piece.map((r, k) => (k === axis ? ([i, Math.min(hi, i + step)] as [number, number]) : r));
+        let got: unknown;
+        try {
+          got = d.slice(part);
+        } catch (e) {
+          fileError(this.path, `${where}: cannot read its values (${hdf5Failure(e)})`);
+        }
+        const list = got as ArrayLike<number | bigint>;
+        put(list, at, where);
+        at += list.length;
+      }
+    }
+    if (at !== count) throw new Error(`HDF5 hyperslabs gave ${at} values, not ${count}`);
+  }
+
+  storedBits(v: NcVariable): StoredBits {
+    const have = this.values.get(v.name);
+    if (have !== undefined) {
+      if (ArrayBuffer.isView(have)) return have;
+      // Numbers given as a list (not made by walk, which gives typed arrays): to the classic type's array.
+      const list = have as number[];
+      return v.type === 'byte' ? Int8Array.from(list) : v.type === 'short' ? Int16Array.from(list) : v.type === 'int' ? Int32Array.from(list) : v.type === 'float' ? Float32Array.from(list) : Float64Array.from(list);
+    }
+    const n = v.shape.reduce((a, b) => a * b, 1);
+    const out = v.type === 'float' ? new Float32Array(n) : new Float64Array(n);
+    this.readStored(v, 0, n, false, out);
+    return v.type === 'byte' ? Int8Array.from(out) : v.type === 'short' ? Int16Array.from(out) : v.type === 'int' ? Int32Array.from(out) : out;
+  }
+
+  variable(name: string, options: { mark?: boolean } = {}): NcVariableReader {
+    const reader = new NcVariableReader(this.stored, this.file, name, options);
+    const d = this.datasets.get(name) as (H5Dataset & { filters?: unknown[] }) | undefined;
+    const chunks = (d?.metadata as { chunks?: number[] | null } | undefined)?.chunks;
+    if (d !== undefined && Array.isArray(chunks)) {
+      const bytes = chunks.reduce((a, b) => a * Number(b), 1) * d.metadata.size;
+      if (bytes > MAX_CHUNK_BYTES && Array.isArray(d.filters) && d.filters.length > 0) {
+        fileError(this.path, `variable '/${name}' is stored in compressed chunks of ${bytes} bytes (${chunks.join(' x ')}), which HDF5 inflates whole for every read; rankfield reads such variables by bands only from chunks of at most ${MAX_CHUNK_BYTES} bytes: rechunk it first (for example nccopy -c with smaller chunks, or nccopy -d 0 to store it uncompressed)`);
+      }
+    }
+    return reader;
+  }
+
+  close(): void {
+    if (!this.open) return;
+    this.open = false;
+    this.h5file.close();
+  }
+}
+
+/**
+ * Open a NetCDF-4 / HDF5 file for band reads: its structure and attributes
+ * are read, and the values of variables that are not fields (coordinates,
+ * text: fewer than 2 dimensions, or an empty one); a field's values stay in
+ * the file and are read by hyperslabs (h5wasm's Node build reads the file
+ * where it lies, through the file system, never copying it whole). The
+ * header is the one {@link netcdf4ToClassic} would write, so packing from
+ * it gives the same archive. The caller closes it.
+ */
+export async function openNetcdf4Input(path: string): Promise<NetcdfInput> {
+  const lib = await h5();
+  let file: H5File;
+  try {
+    file = new lib.File(path, 'r') as unknown as H5File;
+    if (!(file.file_id >= 0n)) throw new Error('cannot open');
+  } catch (e) {
+    return fileError(path, `not a readable HDF5 file (${hdf5Failure(e)})`);
+  }
+  try {
+    let walked: ReturnType<typeof walk>;
+    try {
+      walked = walk(file, path, (d) => {
+        const shape = d.metadata.shape ?? [];
+        return shape.length >= 2 && shape.every((n) => n > 0);
+      });
+    } catch (e) {
+      if (e instanceof InputError) throw e;
+      return fileError(path, `not a readable HDF5 file (${hdf5Failure(e)})`);
+    }
+    const { model, datasets } = walked;
+    let header: ReturnType<typeof netcdfHeader>;
+    try {
+      header = netcdfHeader(model);
+    } catch (e) {
+      if (e instanceof InputError) throw new InputError(e.code, `${path}: ${e.message}`);
+      throw e;
+    }
+    // The classic header, parsed as the classic reader parses it, over a file of the size it declares (the data part reads as zeros).
+    const { header: bytes, layout } = header;
+    const zeros = new Uint8Array(0);
+    const virtual = {
+      size: layout.totalBytes,
+      read: (offset: number, length: number) => {
+        const out = offset + length <= bytes.length ? bytes.subarray(offset, offset + length) : zeros;
+        if (out.length === length) return out;
+        const pad = new Uint8Array(length);
+        if (offset < bytes.length) pad.set(bytes.subarray(offset, Math.min(bytes.length, offset + length)));
+        return pad;
+      },
+    };
+    const nc = readNetcdfHeader(virtual, path);
+    const values = new Map<string, NcWriteValues>();
+    for (const v of model.variables) if (v.values !== undefined) values.set(v.name, v.values);
+    return new Netcdf4Input(path, file, nc, values, datasets);
+  } catch (e) {
+    file.close();
     throw e;
   }
 }

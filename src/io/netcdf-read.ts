@@ -48,6 +48,32 @@ export const MAX_NETCDF_HEADER_BYTES = 16 << 20;
 /** Fill used for packed variables whose unpacked _FillValue cannot serve (see {@link readNetcdfVariable}). */
 export const PACKED_FALLBACK_FILL = -9.99e33;
 
+/**
+ * Random access to the bytes of a NetCDF file, read synchronously (the
+ * encoder asks for bands from inside its synchronous tile loop): the whole
+ * file in memory ({@link bytesSource}) or a file read with positioned reads
+ * (src/io/netcdf-file.ts), so a variable larger than memory can be read a
+ * band of rows at a time.
+ */
+export interface NcBytes {
+  /** The file's length in bytes. */
+  readonly size: number;
+  /** Exactly `length` bytes from `offset` (a range within `size`); a view that must not be kept past the next read. */
+  read(offset: number, length: number): Uint8Array;
+}
+
+/** The bytes of a whole file in memory as an {@link NcBytes}. */
+export function bytesSource(bytes: Uint8Array): NcBytes {
+  return { size: bytes.length, read: (offset, length) => bytes.subarray(offset, offset + length) };
+}
+
+function sourceOf(bytes: Uint8Array | NcBytes): NcBytes {
+  return bytes instanceof Uint8Array ? bytesSource(bytes) : bytes;
+}
+
+/** Largest single read of values, so one band never needs one huge buffer beyond its values. */
+const MAX_READ = 8 << 20;
+
 /** The HDF5 signature, "\x89HDF\r\n\x1a\n", which opens every NetCDF-4 file. */
 const HDF5_SIGNATURE = [0x89, 0x48, 0x44, 0x46, 0x0d, 0x0a, 0x1a, 0x0a];
 
@@ -56,22 +82,24 @@ function fileError(name: string, message: string): never {
 }
 
 /** True when the HDF5 signature sits at offset 0, 512, 1024, 2048, ... (HDF5 allows a user block before it). */
-function hasHdf5Signature(bytes: Uint8Array): boolean {
-  for (let at = 0; at + 8 <= bytes.length && at <= 1 << 20; at = at === 0 ? 512 : at * 2) {
-    if (HDF5_SIGNATURE.every((b, i) => bytes[at + i] === b)) return true;
+function hasHdf5Signature(src: NcBytes): boolean {
+  for (let at = 0; at + 8 <= src.size && at <= 1 << 20; at = at === 0 ? 512 : at * 2) {
+    const head = src.read(at, 8);
+    if (HDF5_SIGNATURE.every((b, i) => head[i] === b)) return true;
   }
   return false;
 }
 
 /** Refuses everything but 'CDF' + version 1 or 2, with a message saying what the bytes are. */
-function checkMagic(bytes: Uint8Array, name: string): void {
-  if (hasHdf5Signature(bytes)) {
+function checkMagic(src: NcBytes, name: string): void {
+  if (hasHdf5Signature(src)) {
     fileError(
       name,
       'this is a NetCDF-4 (HDF5) file; only the NetCDF classic and 64-bit-offset formats are read ' +
         '(convert it first, e.g. with nccopy -k classic or nccopy -k 64-bit-offset)',
     );
   }
+  const bytes = src.read(0, Math.min(src.size, 4));
   const magic = [0x43, 0x44, 0x46]; // 'C' 'D' 'F'
   const head = Math.min(bytes.length, 3);
   if (bytes.length === 0) fileError(name, 'the file is empty, not a NetCDF file');
@@ -93,23 +121,23 @@ function checkMagic(bytes: Uint8Array, name: string): void {
  * so a corrupt element count cannot make it build arrays the size of the
  * whole file, and reports where the header ended.
  */
-function parseHeader(bytes: Uint8Array, name: string): { header: Header; end: number } {
-  let size = Math.min(bytes.length, 1 << 16);
+function parseHeader(src: NcBytes, name: string): { header: Header; end: number } {
+  let size = Math.min(src.size, 1 << 16);
   for (;;) {
     // A copy: iobuffer reads byte arrays from the underlying ArrayBuffer,
     // past the end of a view (a pooled Buffer) when a count is too large.
-    const prefix = bytes.slice(0, size);
+    const prefix = src.read(0, size).slice();
     try {
       const reader = new NetCDFReader(prefix);
       if (reader.buffer.offset > size) throw new RangeError('Offset is outside the bounds of the DataView');
       return { header: reader.header, end: reader.buffer.offset };
     } catch (e) {
       const outOfBounds = e instanceof RangeError && /bounds|outside/i.test(e.message);
-      if (outOfBounds && size < bytes.length) {
+      if (outOfBounds && size < src.size) {
         if (size >= MAX_NETCDF_HEADER_BYTES) {
           fileError(name, `the NetCDF header is larger than this reader's limit of ${MAX_NETCDF_HEADER_BYTES} bytes (corrupt file?)`);
         }
-        size = Math.min(bytes.length, MAX_NETCDF_HEADER_BYTES, size * 8);
+        size = Math.min(src.size, MAX_NETCDF_HEADER_BYTES, size * 8);
         continue;
       }
       if (outOfBounds) fileError(name, 'the NetCDF header ends early: it describes more than the file holds (truncated or corrupt file)');
@@ -158,11 +186,13 @@ function convertAttrs(list: Attribute[], where: string, name: string): { attrs: 
  * Throws InputError (code File) naming `name` for bytes that are not such a
  * file: other formats, NetCDF-4/HDF5 and CDF-5 files (only classic and
  * 64-bit-offset are read), truncated or malformed headers, and files too
- * short for the data their header declares.
+ * short for the data their header declares. Given an {@link NcBytes}, only
+ * the header's bytes are read (a growing prefix, 64 KiB first).
  */
-export function readNetcdfHeader(bytes: Uint8Array, name = 'input'): NcFile {
-  checkMagic(bytes, name);
-  const { header, end } = parseHeader(bytes, name);
+export function readNetcdfHeader(bytes: Uint8Array | NcBytes, name = 'input'): NcFile {
+  const src = sourceOf(bytes);
+  checkMagic(src, name);
+  const { header, end } = parseHeader(src, name);
   const dimList = header.dimensions ?? [];
   const recordId = header.recordDimension.id;
   const dims: NcDimension[] = dimList.map((d, i) => ({ name: text(d.name), size: d.size, unlimited: i === recordId }));
@@ -202,7 +232,7 @@ export function readNetcdfHeader(bytes: Uint8Array, name = 'input'): NcFile {
     numRecords: 0,
     recordSize: 0,
   };
-  layOut(file, header.recordDimension.length, bytes.length, end, name);
+  layOut(file, header.recordDimension.length, src.size, end, name);
   return file;
 }
 
@@ -290,9 +320,8 @@ function checkSelection(v: NcVariable, sel: NcSelection | undefined): { start: n
   return { start, count };
 }
 
-/** Reads the stored values of a hyperslab of `v` into `out`, row by row. */
-function readStored(bytes: Uint8Array, file: NcFile, v: NcVariable, start: number[], count: number[], unsigned: boolean, out: Float32Array | Float64Array): void {
-  const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+/** Reads the stored values of a hyperslab of `v` into `out`, one run of the last dimension at a time. */
+function readStored(src: NcBytes, file: NcFile, v: NcVariable, start: number[], count: number[], unsigned: boolean, out: Float32Array | Float64Array): void {
   const k = v.shape.length;
   const size = NC_TYPE_SIZE[v.type];
   // Strides in values of the (non-record part of the) variable.
@@ -308,13 +337,44 @@ function readStored(bytes: Uint8Array, file: NcFile, v: NcVariable, start: numbe
       off += v.isRecord && i === 0 ? at * file.recordSize : at * stride[i] * size;
     }
     off += start[k - 1] * size;
-    decodeRun(view, off, run, v.type, unsigned, out, r * run);
+    const bytes = src.read(off, run * size);
+    decodeRun(new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength), 0, run, v.type, unsigned, out, r * run);
     for (let i = k - 2; i >= 0; i--) {
       if (++index[i] < count[i]) break;
       index[i] = 0;
     }
   }
 }
+
+/**
+ * Reads the stored values of `v` at C-order positions [start, start +
+ * count) into `out` from 0: runs that lie together in the file (a whole
+ * fixed-size variable; one record's slab of a record variable) are read
+ * together, at most {@link MAX_READ} bytes a read.
+ */
+function readStoredFlat(src: NcBytes, file: NcFile, v: NcVariable, start: number, count: number, unsigned: boolean, out: Float32Array | Float64Array): void {
+  const size = NC_TYPE_SIZE[v.type];
+  // Values of one record's slab (records are the only breaks in a variable's bytes).
+  const slab = v.isRecord ? v.shape.slice(1).reduce((a, b) => a * b, 1) : Infinity;
+  const most = Math.max(1, Math.floor(MAX_READ / size));
+  for (let done = 0; done < count; ) {
+    const at = start + done;
+    const record = v.isRecord ? Math.floor(at / slab) : 0;
+    const within = v.isRecord ? at - record * slab : at;
+    const n = Math.min(count - done, most, v.isRecord ? slab - within : Infinity);
+    const bytes = src.read(v.begin + record * file.recordSize + within * size, n * size);
+    decodeRun(new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength), 0, n, v.type, unsigned, out, done);
+    done += n;
+  }
+}
+
+/**
+ * Reads the stored values of `v` at C-order positions [start, start +
+ * count) into `out` from 0, as numbers (integers read unsigned when
+ * `unsigned`). The classic reader decodes them from the file's bytes; the
+ * NetCDF-4 reader (src/io/hdf5-read.ts) reads them through HDF5.
+ */
+export type StoredReader = (v: NcVariable, start: number, count: number, unsigned: boolean, out: Float32Array | Float64Array) => void;
 
 /** One number from a numeric attribute, or undefined when absent. */
 function scalarAttr(v: NcVariable, key: string): number | undefined {
@@ -430,7 +490,32 @@ function packedFill(first: number, v: NcVariable, unsigned: boolean, scale: numb
  * variables (Dtype), variables of fewer than 2 dimensions and empty ones
  * (Shape).
  */
-export function readNetcdfVariable(bytes: Uint8Array, file: NcFile, name: string, selection?: NcSelection, options: { mark?: boolean } = {}): NcValues {
+export function readNetcdfVariable(bytes: Uint8Array | NcBytes, file: NcFile, name: string, selection?: NcSelection, options: { mark?: boolean } = {}): NcValues {
+  const p = prepare(file, name, options);
+  const { start, count } = checkSelection(p.v, selection);
+  const n = count.reduce((a, b) => a * b, 1);
+  const values = p.f32 ? new Float32Array(n) : new Float64Array(n);
+  readStored(sourceOf(bytes), file, p.v, start, count, p.unsigned, values);
+  const { fillCount, remapped } = convert(p, values);
+  return { ...p.info, values, shape: count.slice(), fillCount, remapped };
+}
+
+/** A variable's reading, worked out from its header before any value is read. */
+interface Prepared {
+  v: NcVariable;
+  unsigned: boolean;
+  f32: boolean;
+  packed: boolean;
+  scale: number;
+  offset: number;
+  /** Missing values in the stored type: the fill's first. */
+  list: number[];
+  mark: boolean;
+  info: Omit<NcValues, 'values' | 'fillCount' | 'remapped'>;
+}
+
+/** The refusals and choices of {@link readNetcdfVariable} that depend on the header alone. */
+function prepare(file: NcFile, name: string, options: { mark?: boolean }): Prepared {
   const v = file.variables.find((x) => x.name === name);
   if (!v) {
     const known = file.variables.map((x) => x.name).join(', ');
@@ -442,27 +527,43 @@ export function readNetcdfVariable(bytes: Uint8Array, file: NcFile, name: string
   }
   const empty = v.shape.findIndex((d) => d === 0);
   if (empty >= 0) throw new InputError(InputCode.Shape, `variable '${name}' holds no values: dimension '${v.dims[empty]}' has size 0`);
-  const { start, count } = checkSelection(v, selection);
   const unsigned = v.type !== 'float' && v.type !== 'double' && String(v.attrs._Unsigned ?? '').toLowerCase() === 'true';
   const scale = scalarAttr(v, 'scale_factor');
   const offset = scalarAttr(v, 'add_offset');
   const packed = scale !== undefined || offset !== undefined;
-  const n = count.reduce((a, b) => a * b, 1);
   // Float32Array holds every byte and short (signed or not) exactly.
   const f32 = !packed && (v.type === 'float' || v.type === 'byte' || v.type === 'short');
-  const values = f32 ? new Float32Array(n) : new Float64Array(n);
-  readStored(bytes, file, v, start, count, unsigned, values);
-
   const { list, source } = missingValues(v, unsigned);
   let fill: number | null = list.length ? list[0] : null;
   if (packed && fill !== null) fill = packedFill(fill, v, unsigned, scale ?? 1, offset ?? 0);
-  let fillCount = 0;
-  let remapped = 0;
   const s = scale ?? 1;
   const o = offset ?? 0;
   const mark = options.mark === true && list.length > 1;
   if (mark && list.length - 1 > MAX_MARKS) throw new InputError(InputCode.File, `variable '${name}' declares ${list.length} missing values; at most ${MAX_MARKS + 1} can be kept apart`);
-  if (mark && holdsMark(values, list.length - 1)) throw new InputError(InputCode.File, `variable '${name}' holds NaN values with the bit patterns rankfield uses to keep its missing values apart; it cannot be packed with them`);
+  const marks = mark ? list.slice(1).map((x) => (packed ? x * s + o : x)) : [];
+  const info: Prepared['info'] = {
+    dtype: f32 ? 'f32' : 'f64',
+    shape: v.shape.slice(),
+    dims: v.dims.slice(),
+    fill,
+    fillSource: fill === null ? null : source,
+    attrs: { ...v.attrs },
+    unpacked: packed,
+    storedType: v.type,
+    packing: packed ? { scale: s, offset: o } : null,
+    marks,
+  };
+  return { v, unsigned, f32, packed, scale: s, offset: o, list, mark, info };
+}
+
+/** Stored values (read into `values`) to physical ones, in place: missing values to the fill (or their marks), packed values unpacked. */
+function convert(p: Prepared, values: Float32Array | Float64Array): { fillCount: number; remapped: number } {
+  const { list, mark, packed, scale: s, offset: o } = p;
+  const fill = p.info.fill;
+  if (mark && holdsMark(values, list.length - 1)) throw new InputError(InputCode.File, `variable '${p.v.name}' holds NaN values with the bit patterns rankfield uses to keep its missing values apart; it cannot be packed with them`);
+  let fillCount = 0;
+  let remapped = 0;
+  const n = values.length;
   for (let i = 0; i < n; i++) {
     const x = values[i];
     const at = list.length === 0 ? -1 : x === list[0] ? 0 : list.length > 1 ? list.indexOf(x) : -1;
@@ -473,22 +574,65 @@ export function readNetcdfVariable(bytes: Uint8Array, file: NcFile, name: string
       if (at > 0) remapped++;
     } else if (packed) values[i] = x * s + o;
   }
-  const marks = mark ? list.slice(1).map((x) => (packed ? x * s + o : x)) : [];
-  return {
-    values,
-    dtype: f32 ? 'f32' : 'f64',
-    shape: count.slice(),
-    dims: v.dims.slice(),
-    fill,
-    fillSource: fill === null ? null : source,
-    fillCount,
-    remapped,
-    attrs: { ...v.attrs },
-    unpacked: packed,
-    storedType: v.type,
-    packing: packed ? { scale: s, offset: o } : null,
-    marks,
-  };
+  return { fillCount, remapped };
+}
+
+/**
+ * One variable read a band at a time, as {@link readNetcdfVariable} reads it
+ * whole: {@link NcVariableReader.rows} gives rows of the C-order matrix of
+ * its values (all dimensions but the last as rows) as physical values, and
+ * reads only the bytes of those rows.
+ */
+export class NcVariableReader {
+  /** What {@link readNetcdfVariable} tells besides the values (shape: the variable's). */
+  readonly info: Omit<NcValues, 'values' | 'fillCount' | 'remapped'>;
+  /** [rows, cols] of the matrix read: the product of all dimensions but the last, and the last. */
+  readonly shape: [number, number];
+  /** Cells read so far that held a missing value (see {@link NcValues}). */
+  fillCount = 0;
+  remapped = 0;
+  private readonly p: Prepared;
+
+  constructor(
+    private readonly stored: StoredReader,
+    file: NcFile,
+    name: string,
+    options: { mark?: boolean } = {},
+  ) {
+    this.p = prepare(file, name, options);
+    this.info = this.p.info;
+    const shape = this.p.v.shape;
+    this.shape = [shape.slice(0, -1).reduce((a, b) => a * b, 1), shape[shape.length - 1]];
+  }
+
+  get dtype(): 'f32' | 'f64' {
+    return this.info.dtype;
+  }
+
+  /** Values at C-order positions [start, start + count). */
+  values(start: number, count: number): Float32Array | Float64Array {
+    const total = this.shape[0] * this.shape[1];
+    if (!Number.isSafeInteger(start) || !Number.isSafeInteger(count) || start < 0 || count < 0 || start + count > total) {
+      throw new InputError(InputCode.Option, `variable '${this.p.v.name}': values ${start}..${start + count} lie outside 0..${total}`);
+    }
+    const out = this.p.f32 ? new Float32Array(count) : new Float64Array(count);
+    this.stored(this.p.v, start, count, this.p.unsigned, out);
+    const c = convert(this.p, out);
+    this.fillCount += c.fillCount;
+    this.remapped += c.remapped;
+    return out;
+  }
+
+  /** Rows [r0, r0 + count) of the matrix. */
+  rows(r0: number, count: number): Float32Array | Float64Array {
+    return this.values(r0 * this.shape[1], count * this.shape[1]);
+  }
+}
+
+/** The stored-value reader of a classic file's bytes. */
+export function classicStored(bytes: Uint8Array | NcBytes, file: NcFile): StoredReader {
+  const src = sourceOf(bytes);
+  return (v, start, count, unsigned, out) => readStoredFlat(src, file, v, start, count, unsigned, out);
 }
 
 /**
@@ -500,7 +644,7 @@ export function readNetcdfVariable(bytes: Uint8Array, file: NcFile, name: string
  * packed type are unpacked. Types: the new _FillValue and unpacked ranges
  * take the values' type; the rest keep theirs.
  */
-export function physicalAttributes(v: NcVariable, read: NcValues): { attrs: NcAttrs; attrTypes: Record<string, NcType> } {
+export function physicalAttributes(v: NcVariable, read: Omit<NcValues, 'values'>): { attrs: NcAttrs; attrTypes: Record<string, NcType> } {
   const attrs: NcAttrs = {};
   const attrTypes: Record<string, NcType> = {};
   const outType: NcType = read.dtype === 'f32' ? 'float' : 'double';

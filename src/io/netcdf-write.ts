@@ -394,6 +394,16 @@ export function planNetcdf(file: Parameters<typeof checkStructure>[0]): NcLayout
   return plan(file).layout;
 }
 
+/**
+ * The header a file of these variables would have, and its layout, without
+ * its values: the model of a NetCDF-4 file whose values are read later
+ * (src/io/hdf5-read.ts) gets the same header as when written whole.
+ */
+export function netcdfHeader(file: Parameters<typeof checkStructure>[0]): { header: Uint8Array; layout: NcLayout } {
+  const { layout, c } = plan(file);
+  return { header: buildHeader(file, c, layout.format, layout.begins), layout };
+}
+
 function plan(file: Parameters<typeof checkStructure>[0]): { layout: NcLayout; c: Checked } {
   const c = checkStructure(file);
   const tryFormat = (format: NcLayout['format']): NcLayout | null => {

@@ -99,10 +99,12 @@ export function blockFor(w: PictureWindow, maxSide: number): number {
 
 /**
  * Block means of the decoded values, and with `original` (the plane's
- * values, plane rows x columns, row-major) the block maxima of
- * |decoded - original| / `tolerance` over the original's valid cells.
+ * values, plane rows x columns, row-major; or a reader of its rows [r0, r0 +
+ * count), whole width, called once per band so the original is never held
+ * whole) the block maxima of |decoded - original| / `tolerance` over the
+ * original's valid cells.
  */
-export async function readGrids(plane: Plane, h: Pick<FieldHeader, 'fill' | 'dtype'>, w: PictureWindow, block: number, original?: FloatArray, tolerance = 1): Promise<{ values: Grid; errors: Grid | null }> {
+export async function readGrids(plane: Plane, h: Pick<FieldHeader, 'fill' | 'dtype'>, w: PictureWindow, block: number, original?: FloatArray | ((r0: number, count: number) => FloatArray), tolerance = 1): Promise<{ values: Grid; errors: Grid | null }> {
   const [r0, r1] = w.rows;
   const [c0, c1] = w.cols;
   const rows = Math.ceil((r1 - r0) / block);
@@ -119,6 +121,9 @@ export async function readGrids(plane: Plane, h: Pick<FieldHeader, 'fill' | 'dty
   for (let b0 = r0; b0 < r1; b0 += band) {
     const b1 = Math.min(r1, b0 + band);
     const got = await plane.read(b0, b1, c0, c1);
+    // The original's rows of this band (all of it when given whole).
+    const orig = original === undefined ? undefined : typeof original === 'function' ? original(b0, b1 - b0) : original;
+    const first = typeof original === 'function' ? b0 : 0;
     for (let r = b0; r < b1; r++) {
       const gi = Math.floor((r - r0) / block) * cols;
       for (let c = c0; c < c1; c++) {
@@ -130,8 +135,8 @@ export async function readGrids(plane: Plane, h: Pick<FieldHeader, 'fill' | 'dty
         }
         sum[g] += v;
         count[g]++;
-        if (worst && original) {
-          const o = original[r * plane.cols + c];
+        if (worst && orig) {
+          const o = orig[(r - first) * plane.cols + c];
           if (!valid(o)) continue;
           const e = Math.abs(v - o) / tolerance;
           if (!(e <= worst[g])) worst[g] = e;

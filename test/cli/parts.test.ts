@@ -135,9 +135,9 @@ describe('parts on the command line: one line and exit 2', () => {
     expectCliError(await cli(['pack', 'short.npy', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '2/4']), /short.npy' holds a 512x128 f32 array; plan '\S*abs.plan.json' .* was made for 1024x128 f32/);
     writeFileSync(join(dir, 'broken.plan.json'), '{"rankfield_plan": 1, "hash": "00"}');
     expectCliError(await cli(['pack', 'precip.npy', '-o', 'x.rfz', '--plan', 'broken.plan.json', '--part', '1/2']), /broken.plan.json: not a plan written by 'rankfield plan'/);
-    // Classic NetCDF (the CDF magic): its variables are read whole.
+    // Classic NetCDF (the CDF magic): plans describe .npy and raw input only.
     writeFileSync(join(dir, 'v.nc'), Buffer.from('CDF\x01\x00\x00\x00\x00', 'latin1'));
-    expectCliError(await cli(['pack', 'v.nc', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '1/2']), /v.nc' is NetCDF, whose variables are read whole: pack it in one process/);
+    expectCliError(await cli(['pack', 'v.nc', '-o', 'x.rfz', '--plan', 'abs.plan.json', '--part', '1/2']), /v.nc' is NetCDF, whose variables a plan does not describe: pack it in one process/);
     expectCliError(await cli(['join', 'single-missing.rfz', '-o', 'x.rfz']), /single-missing.rfz/);
   }, 120_000);
 

@@ -7,12 +7,13 @@
  * (NEP 1: magic, version 1.0, little-endian header length, a Python dict
  * literal padded to a multiple of 64 bytes; from memory).
  */
-import { closeSync, mkdirSync, openSync, readdirSync, readFileSync, readSync, statSync, writeFileSync } from 'node:fs';
+import { closeSync, existsSync, mkdirSync, openSync, readdirSync, readFileSync, readSync, statSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatCsv } from '../../src/cli/unpack.js';
 import { ArchiveBuilder, open, pack } from '../../src/index.js';
 import { FileSink } from '../../src/io/file-sink.js';
+import { MemorySink } from '../../src/format/container.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { CLI_TIMEOUT, ensureBuilt, rf, tempDir } from './helpers.js';
 
@@ -102,5 +103,36 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
     const q = rf(['unpack', 'const.rfz', '-o', 'const2.npy', '--quiet', '--threads', '2'], dir);
     expect(q.code, q.stderr).toBe(0);
     expect(q.stderr).toBe('');
+  });
+
+  it('refuses NetCDF output beyond 512 MiB of values before decoding any (a small archive of a huge constant field)', async () => {
+    // One constant 1024 x 1024 tile encoded for real, then written 9 x 16 times through addCoded (as join
+    // copies coded tiles): a valid archive of a 9216 x 16384 float32 field, 603979776 bytes of values, in seconds.
+    const one = new MemorySink();
+    const b1 = new ArchiveBuilder(one);
+    b1.add(new Float32Array(1024 * 1024).fill(1.5), [1024, 1024], { bound: 'abs:0.01', tile: [1024, 1024], name: 'bomb' });
+    b1.finish();
+    const bytes = one.bytes();
+    const a1 = await open(bytes);
+    const e = await a1.tileEntry('bomb', 0);
+    const tile = { payload: bytes.slice(e.offset, e.offset + e.length), stats: { method: e.method, rank: e.rank, valid: e.valid, maxErr: e.max_err, rmse: e.rmse, valueCrc: e.value_crc, prefix: [] } };
+    const [rows, cols] = [9 * 1024, 16 * 1024];
+    const sink = FileSink.create(join(dir, 'huge.rfz'));
+    const b = new ArchiveBuilder(sink);
+    await b.addCoded({ name: 'bomb', dtype: 'f32', rows, cols, tileRows: 1024, tileCols: 1024, bound: { mode: 'abs', value: 0.01 }, fill: null }, {}, [8, 8], (emit) => {
+      for (let t = 0; t < 9 * 16; t++) emit(t, tile);
+      return { tolerance: 0.01, range: [1.5, 1.5], valid: rows * cols, maxErr: e.max_err, rmse: e.rmse };
+    });
+    b.finish();
+    sink.close();
+    expect(statSync(join(dir, 'huge.rfz')).size).toBeLessThan(8192);
+    // The archive is valid: a window of it decodes.
+    const w = rf(['unpack', 'huge.rfz', '-o', 'corner.npy', '--region', '9000:9002,16000:16002', '--quiet'], dir);
+    expect(w.code, w.stderr).toBe(0);
+    expect(readFileSync(join(dir, 'corner.npy')).readFloatLE(128)).toBe(1.5);
+    const r = rf(['unpack', 'huge.rfz', '-o', 'huge.nc'], dir);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toBe(`rankfield: error: 'huge.nc' would hold 1 field whole (NetCDF is written from memory) in memory, ${rows * cols * 4} bytes of values, more than the 536870912 this output allows; write .npy or raw (band by band, any size), or a smaller window\n`);
+    expect(existsSync(join(dir, 'huge.nc'))).toBe(false);
   });
 });
