@@ -13,8 +13,8 @@ import type { Output, OutputFlags } from './output.js';
 import { defaultThreads } from './options.js';
 import type { Bound, Dtype } from '../types.js';
 
-/** The flags of `pack` (cli/pack.ts), with and without --plan. */
-export interface PackFlags extends OutputFlags {
+/** The flags `pack` and `plan` share: the output, the bound, the input's description and the field-wide options. */
+export interface FieldFlags extends OutputFlags {
   output: string;
   bound?: Bound;
   tile?: [number, number] | 'auto';
@@ -25,13 +25,17 @@ export interface PackFlags extends OutputFlags {
   dtype?: Dtype;
   endian?: 'little' | 'big';
   force?: boolean;
-  var?: string[];
   matrix?: string[];
-  layout?: 'auto' | 'slices';
   threads?: number;
   progressive?: boolean;
-  plan?: string;
   part?: [number, number];
+}
+
+/** The flags of `pack` (cli/pack.ts), with and without --plan. */
+export interface PackFlags extends FieldFlags {
+  var?: string[];
+  layout?: 'auto' | 'slices';
+  plan?: string;
 }
 
 /** `--part K/N`: 1 <= K <= N. */

@@ -6,7 +6,6 @@
  */
 import { basename } from 'node:path';
 import type { Command } from 'commander';
-import type { Dtype } from '../index.js';
 import type { Bound } from '../types.js';
 import { fieldSpecOf } from '../pack.js';
 import { makePlan, parsePlan, partRange, planText, type PlanField, type RunPlan } from '../parts/plan.js';
@@ -22,31 +21,18 @@ import { checkOutput, readInput, statInput, writeOutput } from './files.js';
 import { RangeWatch, suspectMessage, type Suspect } from './fill-guard.js';
 import { checkLayout, inputKind, openFieldBands } from './input.js';
 import type { Context } from './context.js';
-import { Output, type OutputFlags } from './output.js';
+import { Output } from './output.js';
 import { defaultThreads } from './options.js';
 import { arrayGrid, checkFill, defaultName, watchedBand } from './pack.js';
 import { boundOption, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
 import { parseMatrix } from './netcdf.js';
 import { seconds } from './format.js';
-import { partOption } from './pack-plan.js';
+import { partOption, type FieldFlags } from './pack-plan.js';
 
-interface PlanFlags extends OutputFlags {
-  output: string;
-  bound?: Bound;
-  part?: [number, number];
+interface PlanFlags extends FieldFlags {
   base?: string;
   merge?: string[];
-  tile?: [number, number] | 'auto';
-  fill?: number | false;
-  name?: string;
-  shape?: number[];
-  dtype?: Dtype;
-  endian?: 'little' | 'big';
-  matrix?: string[];
-  progressive?: boolean;
   run?: string;
-  threads?: number;
-  force?: boolean;
 }
 
 const PLAN_HELP = `
