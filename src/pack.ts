@@ -1,7 +1,7 @@
 /** Writing archives: {@link pack} one field to bytes, or build a many-field archive with {@link ArchiveBuilder}. */
 import { checkBound, parseBound } from './codec/bound.js';
 import { chooseTile } from './codec/auto-tile.js';
-import { encodeField, memoryBands, type BandSource, type EncodedTile, type FieldResult, type FieldSpec } from './codec/field.js';
+import { encodeField, fieldBasis, memoryBands, type BandSource, type EncodedTile, type FieldPrior, type FieldResult, type FieldSpec } from './codec/field.js';
 import { encodeFieldParallel, encodeTasks } from './parallel/encode.js';
 import { checkThreads, WorkerPool } from './parallel/pool.js';
 import { InputCode, InputError } from './errors.js';
@@ -263,7 +263,7 @@ export class ArchiveBuilder {
 
   private encode(src: BandSource, spec: FieldSpec, o: PackOptions, page: [number, number]): FieldHeader {
     const w = this.begin(src, spec, page, o.onProgress);
-    return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
+    return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit, w.prior));
   }
 
   private async encodeAsync(src: BandSource, spec: FieldSpec, o: ParallelPackOptions, page: [number, number]): Promise<FieldHeader> {
@@ -271,22 +271,33 @@ export class ArchiveBuilder {
     if (threads === 1) return this.encode(src, spec, o, page);
     const w = this.begin(src, spec, page, o.onProgress);
     const workers = Math.min(threads, tileCount(spec));
-    if (workers === 1) return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit));
+    if (workers === 1) return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit, w.prior));
     // The calling thread encodes tiles too, as one of the threads.
     const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result });
     try {
-      return this.end(spec, o, page, w.ix, await encodeFieldParallel(src, spec, w.emit, pool));
+      return this.end(spec, o, page, w.ix, await encodeFieldParallel(src, spec, w.emit, pool, w.prior));
     } finally {
       if (pool !== o.pool) await pool.close();
     }
   }
 
-  /** Checks and the tile shape before a field is encoded; the index it fills, and the emit that writes its payloads. */
-  private begin(src: BandSource, spec: FieldSpec, page: [number, number], onProgress?: (done: number, total: number) => void): { ix: FieldIndex; emit: (t: number, tile: EncodedTile) => void } {
+  /**
+   * Checks and the tile shape before a field is encoded; the index it
+   * fills, the emit that writes its payloads, and (after a tile trial) the
+   * field's basis and the tiles the trial encoded, for the encoding pass.
+   */
+  private begin(src: BandSource, spec: FieldSpec, page: [number, number], onProgress?: (done: number, total: number) => void): { ix: FieldIndex; emit: (t: number, tile: EncodedTile) => void; prior?: FieldPrior } {
     this.checkField(spec);
-    // The trial samples the top of the first slice.
-    if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 });
-    return this.start(spec, page, onProgress);
+    let prior: FieldPrior | undefined;
+    if (spec.autoTile) {
+      // The range pass comes first, so that the trial encodes its tiles with the field's own tolerance.
+      const basis = fieldBasis(src, spec);
+      // The trial samples the first slice.
+      const trial = chooseTile(src, { ...spec, slices: 1 }, basis);
+      [spec.tileRows, spec.tileCols] = trial.shape;
+      prior = { basis, done: trial.done };
+    }
+    return { ...this.start(spec, page, onProgress), prior };
   }
 
   /** Refuse a field whose name is taken, or whose slices need a flag the sink cannot set any more. */

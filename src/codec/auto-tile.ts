@@ -6,7 +6,7 @@
  */
 import type { FloatArray } from '../types.js';
 import { copyBlock } from '../geometry.js';
-import { encodeField, type BandSource, type FieldSpec } from './field.js';
+import { encodeField, encodeTile, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
 const SQUARE = [64, 128, 256];
@@ -66,18 +66,27 @@ const TRIAL_TILES = 8;
  * The candidate tile shape that packs a sample of the field into the fewest
  * bytes per valid cell. Each candidate is tried on TRIAL_TILES of its whole
  * tiles spread evenly over the field (over the first slice of a field of
- * slices), laid side by side as one small field; a field with fewer whole
- * tiles than that is tried on all of them (a candidate as large as the
- * field, on the whole field). The tiles are read one band of tile rows at a
- * time, so the trial holds a few tiles, never the field.
+ * slices); a field with fewer whole tiles than that is tried on all of
+ * them (a candidate as large as the field, on the whole field). The tiles
+ * are read one band of tile rows at a time, so the trial holds a few
+ * tiles, never the field.
+ *
+ * Under a pointwise bound each sampled tile is encoded with the field's
+ * own basis (`basis`: its range and tolerance), exactly as the encoding
+ * pass would encode it, and the winner's tiles are returned in
+ * {@link TileTrial.done} for that pass to use as they are: where the
+ * trial covered the whole field (a 1024 x 1024 field with 512 x 512
+ * tiles) the field is encoded once, not twice. Under an L2 bound the
+ * sampled tiles are laid side by side as one small field and packed with
+ * its own plan (the field's plan spreads its error budget over all tiles,
+ * so a tile's payload depends on the others).
  *
  * Spreading the tiles matters: on bench/'s large field the top 1024 rows
  * favoured 256 x 256 tiles while 512 x 512 packed the whole field 23%
  * smaller (measured at rel:1e-3).
  */
-export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
-  const make = (cells: number): FloatArray => (spec.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells));
-  let best: [number, number] = [spec.tileRows, spec.tileCols];
+export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices): TileTrial {
+  let best: TileTrial = { shape: [spec.tileRows, spec.tileCols], done: new Map() };
   let bestRate = Infinity;
   for (const [m, n] of tileCandidates(spec.rows, spec.cols)) {
     const gr = Math.floor(spec.rows / m);
@@ -85,29 +94,70 @@ export function chooseTile(src: BandSource, spec: FieldSpec): [number, number] {
     const whole = gr * gc;
     // Every whole tile, or TRIAL_TILES of them evenly spread in row-major order (so over the tile rows too).
     const picked = whole <= TRIAL_TILES ? Array.from({ length: whole }, (_, k) => k) : Array.from({ length: TRIAL_TILES }, (_, k) => Math.floor(((k + 0.5) * whole) / TRIAL_TILES));
-    const width = picked.length * n;
-    const mosaic = make(m * width);
-    let k = 0;
-    while (k < picked.length) {
-      const ti = Math.floor(picked[k] / gc);
-      const band = src.band(ti * m, m);
-      for (; k < picked.length && Math.floor(picked[k] / gc) === ti; k++) {
-        const j0 = (picked[k] % gc) * n;
-        copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n);
-      }
-    }
-    const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
-    const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false }; // the field's own pass guards
-    let bytes = 0;
-    const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
+    const tried = basis.pointwise ? tryTiles(src, spec, basis, m, n, picked) : tryMosaic(src, spec, m, n, picked);
     // Bytes per valid cell: candidates sample different tiles, and missing cells cost next to nothing.
-    const rate = bytes / Math.max(1, done.valid);
+    const rate = tried.bytes / Math.max(1, tried.valid);
     if (rate < bestRate) {
       bestRate = rate;
-      best = [m, n];
+      best = { shape: [m, n], done: tried.done };
     }
   }
   return best;
+}
+
+/** The tile shape a trial chose, and the tiles of that shape it encoded as the field's own (by tile index). */
+export interface TileTrial {
+  shape: [number, number];
+  done: Map<number, TileOutcome>;
+}
+
+/** What one candidate's sample cost. */
+interface Tried {
+  bytes: number;
+  valid: number;
+  done: Map<number, TileOutcome>;
+}
+
+/** Tiles `picked` (row-major whole-tile numbers of an m x n grid) with their field tile index, read one band of tile rows at a time. */
+function eachPicked(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], visit: (k: number, band: FloatArray, j0: number, index: number) => void): void {
+  const gc = Math.floor(spec.cols / n);
+  // The field's grid counts the partial tile at the right edge too.
+  const fieldCols = Math.ceil(spec.cols / n);
+  let k = 0;
+  while (k < picked.length) {
+    const ti = Math.floor(picked[k] / gc);
+    const band = src.band(ti * m, m);
+    for (; k < picked.length && Math.floor(picked[k] / gc) === ti; k++) {
+      const tj = picked[k] % gc;
+      visit(k, band, tj * n, ti * fieldCols + tj);
+    }
+  }
+}
+
+/** A pointwise trial: each picked tile encoded with the field's basis, as the encoding pass would. */
+function tryTiles(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[]): Tried {
+  const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
+  const tile = spec.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+  eachPicked(src, spec, m, n, picked, (_k, band, j0, index) => {
+    copyBlock(band, spec.cols, 0, j0, m, n, tile, n, 0, 0);
+    const o = encodeTile(basis, tileToEncode(basis, index, tile.slice(), m, n), index);
+    tried.bytes += o.payload.length + TILE_INDEX_BYTES;
+    tried.valid += o.valid;
+    tried.done.set(index, o);
+  });
+  return tried;
+}
+
+/** An L2 trial: the picked tiles side by side as one small field, packed with its own plan. */
+function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[]): Tried {
+  const width = picked.length * n;
+  const mosaic = spec.dtype === 'f32' ? new Float32Array(m * width) : new Float64Array(m * width);
+  eachPicked(src, spec, m, n, picked, (k, band, j0) => copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n));
+  const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
+  const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false }; // the field's own pass guards
+  let bytes = 0;
+  const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
+  return { bytes, valid: done.valid, done: new Map() };
 }
 
 /** About what one tile adds to the index (length, CRCs, method, rank, missing count, errors: spec/FORMAT.md, section 7.3). */

@@ -77,13 +77,25 @@ export function basisOf(spec: FieldSpec, range: [number, number] | null): FieldC
 }
 
 /**
- * Make the field-level choices: {@link fieldBasis}, and for L2 bounds the
- * planning pass (see plan-l2.ts).
+ * Make the field-level choices: {@link fieldBasis} (or `basis`, made
+ * before), and for L2 bounds the planning pass (see plan-l2.ts).
  */
-export function fieldChoices(src: BandSource, spec: FieldSpec): FieldChoices {
-  const c = fieldBasis(src, spec);
+export function fieldChoices(src: BandSource, spec: FieldSpec, basis?: FieldChoices): FieldChoices {
+  const c = basis ? { ...basis } : fieldBasis(src, spec);
   if (!c.pointwise) c.plan = planL2(src, spec, c.tol, c.fill);
   return c;
+}
+
+/**
+ * What was settled about a field before its encoding pass: its basis (the
+ * range pass, made once), and tiles the tile trial already encoded with
+ * that basis and the chosen shape, by tile index: the same outcomes the
+ * encoding pass would compute (a pointwise tile depends only on its values
+ * and the basis), so they are used as they are.
+ */
+export interface FieldPrior {
+  basis: FieldChoices;
+  done: ReadonlyMap<number, TileOutcome>;
 }
 
 /** A tile as the encoder takes it: prepared in the planning pass (kept), or prepared now. */
@@ -140,11 +152,11 @@ export class FieldSummary {
  * order as soon as it is done. The source is read once for the value range
  * and once more per encoding pass (L2 bounds make one extra pass).
  */
-export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void): FieldResult {
-  const c = fieldChoices(src, spec);
+export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, prior?: FieldPrior): FieldResult {
+  const c = fieldChoices(src, spec, prior?.basis);
   const summary = new FieldSummary(c);
   forEachTile(src, spec, (index, tile, m, n) => {
-    const o = encodeTile(c, tileToEncode(c, index, tile, m, n), index);
+    const o = prior?.done.get(index) ?? encodeTile(c, tileToEncode(c, index, tile, m, n), index);
     summary.add(o);
     emit(index, { payload: o.payload, stats: o.stats });
   });

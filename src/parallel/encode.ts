@@ -11,7 +11,7 @@
  * are in flight (read and not yet written), which bounds the memory.
  */
 import { tileGrid } from '../geometry.js';
-import { encodeTile, fieldBasis, FieldSummary, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
+import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
 import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
 import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
@@ -138,10 +138,10 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
  * bounds the planning pass (each tile's spectrum) runs on the pool too;
  * the plan is then chosen here, as encodeField chooses it.
  */
-export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool): Promise<FieldResult> {
-  const c = fieldBasis(src, spec);
+export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool, prior?: FieldPrior): Promise<FieldResult> {
+  const c = prior ? { ...prior.basis } : fieldBasis(src, spec);
   if (!c.pointwise) c.plan = await planL2Parallel(src, spec, c, pool);
-  return encodeWithChoices(src, spec, c, pool, (index, o) => emit(index, { payload: o.payload, stats: o.stats }));
+  return encodeWithChoices(src, spec, c, pool, (index, o) => emit(index, { payload: o.payload, stats: o.stats }), false, prior?.done);
 }
 
 /**
@@ -151,25 +151,28 @@ export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit
  * tiles a single pack keeps (parts of a run, whose plan
  * says so, encode their tiles from the same state).
  */
-export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool, use: (index: number, o: TileOutcome) => void, full = false): Promise<FieldResult> {
+export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool, use: (index: number, o: TileOutcome) => void, full = false, done?: ReadonlyMap<number, TileOutcome>): Promise<FieldResult> {
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   const key = nextKey++;
   const { plan, ...rest } = c;
   await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
   const summary = new FieldSummary(c);
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
+    // A tile the tile trial encoded already (see FieldPrior).
+    const known = done?.get(index);
+    if (known) return Promise.resolve(known);
     const prepared = c.plan?.kept(index);
     const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile, full };
     return pool.run<TileOutcome>('encode-tile', task, prepared ? [] : [tile.buffer as ArrayBuffer]);
   };
-  const done = (o: TileOutcome, index: number) => {
+  const finished = (o: TileOutcome, index: number) => {
     // The tally crossed threads as plain fields; give it its class back.
     const outcome = { ...o, tally: Object.assign(new ErrorTally(), o.tally) };
     summary.add(outcome);
     use(index, outcome);
   };
   try {
-    await inOrder(pool, tilesOf(src, spec), post, done, limit);
+    await inOrder(pool, tilesOf(src, spec), post, finished, limit);
   } finally {
     if (!pool.failed) await pool.broadcast('encode-forget', { key });
   }

@@ -39,7 +39,7 @@ import { crc32, crc32Combiner } from '../format/crc32.js';
 import type { BoundMode, Dtype, FloatArray } from '../types.js';
 import { VERSION_STRING } from '../version.js';
 import { partBands } from './part.js';
-import { finishPlan, isPointwisePlan, partRange, planSpec, trialTile, type PlanRequest, type RunPlan } from './plan.js';
+import { bandCrcs, finishPlan, isPointwisePlan, partRange, planSpec, trialTile, type PlanRequest, type RunPlan } from './plan.js';
 
 /** The version of the pieces' JSON form. */
 export const PIECE_VERSION = 1;
@@ -230,19 +230,9 @@ export function mergeRange(src: BandSource, pieces: { label: string; piece: Plan
     if (s) (o.onSuspect ?? ((x: Suspect) => { throw suspectError(x, a.name, a.dtype === 'f32'); }))(s);
   }
   const req = requestOf(a, o.file ?? 'input', o.run);
-  const spec = trialTile(src, req.spec);
-  // The bands' CRC-32s from the rows': each band is its rows' bytes one after another.
-  const band = spec.tileRows * req.page[0];
-  const combine = crc32Combiner(spec.cols * (spec.dtype === 'f32' ? 4 : 8));
-  const band_crc: number[] = [];
-  let r = 0;
-  for (const { piece } of ordered) {
-    for (const c of piece.row_crc) {
-      band_crc[Math.floor(r / band)] = r % band === 0 ? c : combine(band_crc[Math.floor(r / band)], c);
-      r++;
-    }
-  }
-  const c = basisOf(spec, range);
+  const c = basisOf(req.spec, range);
+  const spec = trialTile(src, req.spec, c);
+  const band_crc = bandCrcs(ordered.flatMap(({ piece }) => piece.row_crc), spec, req.page);
   return { plan: finishPlan(req, spec, band_crc, c, null), base: !c.pointwise };
 }
 

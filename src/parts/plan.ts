@@ -22,7 +22,7 @@ import { fillWords } from '../codec/mask.js';
 import { keepsTiles, l2Plan, planL2, type L2PlanData } from '../codec/plan-l2.js';
 import { isPointwise } from '../codec/bound.js';
 import { tileGrid } from '../codec/tiles.js';
-import { crc32 } from '../format/crc32.js';
+import { crc32, crc32Combiner } from '../format/crc32.js';
 import { InputCode, InputError } from '../errors.js';
 import type { Bound, BoundMode, Dtype, FloatArray } from '../types.js';
 import { VERSION_STRING } from '../version.js';
@@ -163,30 +163,43 @@ export interface PlanRequest {
  * trial; encodeField: the value range, the tolerance, the L2 plan).
  */
 export async function makePlan(src: BandSource, req: PlanRequest): Promise<RunPlan> {
-  const spec = trialTile(src, req.spec);
-  const band = spec.tileRows * req.page[0];
-  const crcs = new BandCrc(band, spec.cols);
-  // The value range is read once, row by row from the top: the bands' CRCs are taken on the way.
+  const rows = new BandCrc(1, req.spec.cols);
+  // The value range is read once, row by row from the top: the rows' CRCs are taken on the way
+  // (the bands', which depend on the tile shape, follow from them once the trial has chosen it).
   const c = fieldBasis({ band: (r0, count) => {
     const v = src.band(r0, count);
-    crcs.add(r0, v);
+    rows.add(r0, v);
     return v;
-  } }, spec);
-  const band_crc = crcs.finish();
+  } }, req.spec);
+  const row_crc = rows.finish();
   // Internal assertion: validRange reads every row once, in order.
-  if (band_crc.length !== Math.ceil(spec.rows / band)) throw new Error(`the range pass read ${band_crc.length} bands, not ${Math.ceil(spec.rows / band)}`);
+  if (row_crc.length !== req.spec.rows) throw new Error(`the range pass read ${row_crc.length} rows, not ${req.spec.rows}`);
+  const spec = trialTile(src, req.spec, c);
+  const band_crc = bandCrcs(row_crc, spec, req.page);
   let l2: L2PlanData | null = null;
   if (!c.pointwise) l2 = req.planL2 ? await req.planL2(src, spec, c) : planL2(src, spec, c.tol, c.fill).data;
   return finishPlan(req, spec, band_crc, c, l2);
 }
 
 /** The spec with its tile shape fixed: chosen by trial on `src` (reading only the sampled tiles' bands) when asked for; 2-D fields only. */
-export function trialTile(src: BandSource, given: FieldSpec): FieldSpec {
+export function trialTile(src: BandSource, given: FieldSpec, basis: FieldChoices): FieldSpec {
   const spec = { ...given };
   if ((spec.slices ?? 1) > 1) throw new InputError(InputCode.Option, `field '${spec.name}' holds ${spec.slices} slices: plans and parts split 2-D fields and matrix layouts only`);
-  if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 });
+  if (spec.autoTile) [spec.tileRows, spec.tileCols] = chooseTile(src, { ...spec, slices: 1 }, basis).shape;
   spec.autoTile = false;
   return spec;
+}
+
+/** The CRC-32s of a field's bands (tile rows x page rows each) from its rows' CRC-32s: each band is its rows' bytes one after another. */
+export function bandCrcs(rowCrcs: readonly number[], spec: FieldSpec, page: readonly number[]): number[] {
+  const band = spec.tileRows * page[0];
+  const combine = crc32Combiner(spec.cols * (spec.dtype === 'f32' ? 4 : 8));
+  const out: number[] = [];
+  for (let r = 0; r < rowCrcs.length; r++) {
+    const b = Math.floor(r / band);
+    out[b] = r % band === 0 ? rowCrcs[r] : combine(out[b], rowCrcs[r]);
+  }
+  return out;
 }
 
 /**

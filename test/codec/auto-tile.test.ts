@@ -67,8 +67,13 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     for (const bound of ['rel:1e-3', 'psnr:50']) {
       const auto = pack(values, shape, { bound });
       const chosen = (await open(auto)).header.fields[0].tile;
-      const sizes = tileCandidates(...shape).map((t) => pack(values, shape, { bound, tile: t }).length);
+      const packs = tileCandidates(...shape).map((t) => pack(values, shape, { bound, tile: t }));
+      const sizes = packs.map((p) => p.length);
       expect(tileCandidates(...shape)).toContainEqual(chosen);
+      // The tiles the trial encoded are used as the field's own (pointwise bounds): the archive must be the one
+      // the chosen shape gives when it is asked for, byte for byte (test/parallel/threads.test.ts: on threads too).
+      const k = tileCandidates(...shape).findIndex((t) => t[0] === chosen[0] && t[1] === chosen[1]);
+      expect(Buffer.from(auto).equals(Buffer.from(packs[k])), `${bound}: auto and tile ${chosen.join('x')} differ`).toBe(true);
       // The trial measures a sample, not the whole field: close to the best, not always the best (common practice, no source).
       expect(auto.length, `${bound}: auto ${auto.length} bytes, candidates ${sizes.join(', ')}`).toBeLessThanOrEqual(1.1 * Math.min(...sizes));
     }
