@@ -35,7 +35,7 @@ import { chooseL2, cuttable, firstPassTile, readTiles, sampleTiles } from '../co
 import { Spectra } from '../codec/spectra.js';
 import { tilesOf, validRange, tileGrid } from '../codec/tiles.js';
 import { InputCode, InputError } from '../errors.js';
-import { crc32, crc32Combiner } from '../format/crc32.js';
+import { crc32 } from '../format/crc32.js';
 import type { BoundMode, Dtype, FloatArray } from '../types.js';
 import { VERSION_STRING } from '../version.js';
 import { partBands } from './part.js';
