@@ -1,8 +1,8 @@
 /** Writing archives: {@link pack} one field to bytes, or build a many-field archive with {@link ArchiveBuilder}. */
 import { checkBound, parseBound } from './codec/bound.js';
-import { chooseTile } from './codec/auto-tile.js';
-import { encodeField, fieldBasis, memoryBands, type BandSource, type EncodedTile, type FieldPrior, type FieldResult, type FieldSpec } from './codec/field.js';
-import { encodeFieldParallel, encodeTasks } from './parallel/encode.js';
+import { chooseTile, chooseTileAsync, type TileTrial } from './codec/auto-tile.js';
+import { encodeField, fieldBasis, memoryBands, type BandSource, type EncodedTile, type FieldChoices, type FieldPrior, type FieldResult, type FieldSpec } from './codec/field.js';
+import { encodeFieldParallel, encodeTasks, encodeTilesOn } from './parallel/encode.js';
 import { checkThreads, WorkerPool } from './parallel/pool.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, DEFAULT_PAGE, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
@@ -268,14 +268,20 @@ export class ArchiveBuilder {
 
   private async encodeAsync(src: BandSource, spec: FieldSpec, o: ParallelPackOptions, page: [number, number]): Promise<FieldHeader> {
     const threads = o.pool?.threads ?? checkThreads(o.threads);
-    if (threads === 1) return this.encode(src, spec, o, page);
-    const w = this.begin(src, spec, page, o.onProgress);
-    const workers = Math.min(threads, tileCount(spec));
-    if (workers === 1) return this.end(spec, o, page, w.ix, encodeField(src, spec, w.emit, w.prior));
+    // With the tile trial, the number of tiles is known only after it; the trial's tiles are encoded on the pool too.
+    const workers = spec.autoTile ? threads : Math.min(threads, tileCount(spec));
+    if (workers === 1) return this.encode(src, spec, o, page);
     // The calling thread encodes tiles too, as one of the threads.
     const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result });
     try {
-      return this.end(spec, o, page, w.ix, await encodeFieldParallel(src, spec, w.emit, pool, w.prior));
+      this.checkField(spec);
+      let prior: FieldPrior | undefined;
+      if (spec.autoTile) {
+        const basis = fieldBasis(src, spec);
+        prior = this.settleTile(spec, basis, await chooseTileAsync(src, { ...spec, slices: 1 }, basis, (tiles) => encodeTilesOn(pool, basis, tiles)));
+      }
+      const w = this.start(spec, page, o.onProgress);
+      return this.end(spec, o, page, w.ix, await encodeFieldParallel(src, spec, w.emit, pool, prior));
     } finally {
       if (pool !== o.pool) await pool.close();
     }
@@ -293,11 +299,15 @@ export class ArchiveBuilder {
       // The range pass comes first, so that the trial encodes its tiles with the field's own tolerance.
       const basis = fieldBasis(src, spec);
       // The trial samples the first slice.
-      const trial = chooseTile(src, { ...spec, slices: 1 }, basis);
-      [spec.tileRows, spec.tileCols] = trial.shape;
-      prior = { basis, done: trial.done };
+      prior = this.settleTile(spec, basis, chooseTile(src, { ...spec, slices: 1 }, basis));
     }
     return { ...this.start(spec, page, onProgress), prior };
+  }
+
+  /** Fix the tile shape the trial chose; what the encoding pass takes over from the trial. */
+  private settleTile(spec: FieldSpec, basis: FieldChoices, trial: TileTrial): FieldPrior {
+    [spec.tileRows, spec.tileCols] = trial.shape;
+    return { basis, done: trial.done };
   }
 
   /** Refuse a field whose name is taken, or whose slices need a flag the sink cannot set any more. */

@@ -86,23 +86,58 @@ const TRIAL_TILES = 8;
  * smaller (measured at rel:1e-3).
  */
 export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices): TileTrial {
-  let best: TileTrial = { shape: [spec.tileRows, spec.tileCols], done: new Map() };
-  let bestRate = Infinity;
-  for (const [m, n] of tileCandidates(spec.rows, spec.cols)) {
-    const gr = Math.floor(spec.rows / m);
-    const gc = Math.floor(spec.cols / n);
-    const whole = gr * gc;
-    // Every whole tile, or TRIAL_TILES of them evenly spread in row-major order (so over the tile rows too).
-    const picked = whole <= TRIAL_TILES ? Array.from({ length: whole }, (_, k) => k) : Array.from({ length: TRIAL_TILES }, (_, k) => Math.floor(((k + 0.5) * whole) / TRIAL_TILES));
-    const tried = basis.pointwise ? tryTiles(src, spec, basis, m, n, picked) : tryMosaic(src, spec, m, n, picked);
-    // Bytes per valid cell: candidates sample different tiles, and missing cells cost next to nothing.
-    const rate = tried.bytes / Math.max(1, tried.valid);
-    if (rate < bestRate) {
-      bestRate = rate;
-      best = { shape: [m, n], done: tried.done };
+  const choice = new TrialChoice(spec);
+  for (const [m, n, picked] of trialSamples(spec)) {
+    if (!basis.pointwise) choice.add(m, n, tryMosaic(src, spec, m, n, picked));
+    else {
+      const tiles = pickedTiles(src, spec, m, n, picked);
+      choice.add(m, n, tally(tiles.map((t) => t.index), tiles.map((t) => encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n), t.index))));
     }
   }
-  return best;
+  return choice.best;
+}
+
+/**
+ * {@link chooseTile} with the sampled tiles of a pointwise trial encoded by
+ * `encodeMany` (on worker threads: each candidate's tiles at once, the
+ * candidates one after another, so a few tiles are held at a time); the
+ * same choice and the same tiles.
+ */
+export async function chooseTileAsync(src: BandSource, spec: FieldSpec, basis: FieldChoices, encodeMany: (tiles: PickedTile[]) => Promise<TileOutcome[]>): Promise<TileTrial> {
+  if (!basis.pointwise) return chooseTile(src, spec, basis);
+  const choice = new TrialChoice(spec);
+  for (const [m, n, picked] of trialSamples(spec)) {
+    const tiles = pickedTiles(src, spec, m, n, picked);
+    // The indices first: encodeMany may hand the tiles' buffers over to other threads.
+    const indices = tiles.map((t) => t.index);
+    choice.add(m, n, tally(indices, await encodeMany(tiles)));
+  }
+  return choice.best;
+}
+
+/** Each candidate shape with the whole tiles its trial samples: every whole tile, or TRIAL_TILES of them evenly spread in row-major order (so over the tile rows too). */
+function trialSamples(spec: FieldSpec): [number, number, number[]][] {
+  return tileCandidates(spec.rows, spec.cols).map(([m, n]) => {
+    const whole = Math.floor(spec.rows / m) * Math.floor(spec.cols / n);
+    const picked = whole <= TRIAL_TILES ? Array.from({ length: whole }, (_, k) => k) : Array.from({ length: TRIAL_TILES }, (_, k) => Math.floor(((k + 0.5) * whole) / TRIAL_TILES));
+    return [m, n, picked];
+  });
+}
+
+/** The best candidate so far: fewest bytes per valid cell (candidates sample different tiles, and missing cells cost next to nothing). */
+class TrialChoice {
+  best: TileTrial;
+  private rate = Infinity;
+  constructor(spec: FieldSpec) {
+    this.best = { shape: [spec.tileRows, spec.tileCols], done: new Map() };
+  }
+  add(m: number, n: number, tried: Tried): void {
+    const rate = tried.bytes / Math.max(1, tried.valid);
+    if (rate < this.rate) {
+      this.rate = rate;
+      this.best = { shape: [m, n], done: tried.done };
+    }
+  }
 }
 
 /** The tile shape a trial chose, and the tiles of that shape it encoded as the field's own (by tile index). */
@@ -134,16 +169,32 @@ function eachPicked(src: BandSource, spec: FieldSpec, m: number, n: number, pick
   }
 }
 
-/** A pointwise trial: each picked tile encoded with the field's basis, as the encoding pass would. */
-function tryTiles(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[]): Tried {
-  const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
-  const tile = spec.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+/** A sampled tile: its field tile index and values (a copy of its own). */
+export interface PickedTile {
+  index: number;
+  tile: FloatArray;
+  m: number;
+  n: number;
+}
+
+/** The picked tiles of an m x n grid, copied out of their bands. */
+function pickedTiles(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[]): PickedTile[] {
+  const out: PickedTile[] = [];
   eachPicked(src, spec, m, n, picked, (_k, band, j0, index) => {
+    const tile = spec.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
     copyBlock(band, spec.cols, 0, j0, m, n, tile, n, 0, 0);
-    const o = encodeTile(basis, tileToEncode(basis, index, tile.slice(), m, n), index);
+    out.push({ index, tile, m, n });
+  });
+  return out;
+}
+
+/** A pointwise trial's cost: its tiles' payloads and index entries, and the tiles by index. */
+function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tried {
+  const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
+  outcomes.forEach((o, k) => {
     tried.bytes += o.payload.length + TILE_INDEX_BYTES;
     tried.valid += o.valid;
-    tried.done.set(index, o);
+    tried.done.set(indices[k], o);
   });
   return tried;
 }

@@ -247,7 +247,7 @@ function roughBits(v: Int32Array): number {
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
  * The step is 2e, or `step` when given (with `center`, for lattice candidates).
  */
-export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center): Correction {
+export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, blendToo = true): Correction {
   const { m, n } = t;
   const cells = m * n;
   // The decoder's own arithmetic: the low-rank part and centre here, the rest in reconstruct().
@@ -279,6 +279,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
       let bestBits = roughBits(q);
       let blend: { d: Int32Array; filled: Int32Array } | null = null;
       for (const kind of PREDICTORS) {
+        if (kind === Predictor.Blend && !blendToo) continue;
         const qp = t.classes.special > 0 ? predictedFill(q, codes, m, n, MAX_INT, kind) : q;
         const d = predict(qp, m, n, MAX_INT, kind);
         if (!d) continue;
@@ -411,19 +412,38 @@ export function pointwiseFactors(t: PreparedTile, r: number, e: number): Factors
  * around a centre on the lattice: every reconstructed value is then a
  * lattice point within e (exact when e is below half the lattice step).
  */
-function rankZero(t: PreparedTile, e: number): Uint8Array {
-  let best = lowRankPayload(t, null, correct(t, null, e));
+function rankZero(t: PreparedTile, e: number): Candidate {
+  let best = candidate(t, null, e);
   const { quantum, origin } = t.lattice;
   if (quantum > 0 && e >= 0) {
     const k = 2 * Math.floor(e / quantum) + 1;
     const step = k * quantum;
     const center = origin + Math.round((t.center - origin) / quantum) * quantum;
     if (step <= 2 ** 52 && Number.isFinite(center)) {
-      const p = lowRankPayload(t, null, correct(t, null, Math.max(e, Number.MIN_VALUE), step, center));
-      if (p.length < best.length) best = p;
+      const c = candidate(t, null, Math.max(e, Number.MIN_VALUE), step, center);
+      if (c.payload.length < best.payload.length) best = c;
     }
   }
   return best;
+}
+
+/**
+ * A candidate of the pointwise search: its payload with the predictors
+ * other than the blend, and how to code it again with the blend allowed.
+ * The blend costs more to compute than the others together (its five
+ * parts and their error grids), so the search ranks its candidates
+ * without it and tries it on the winner only.
+ */
+interface Candidate {
+  payload: Uint8Array;
+  withBlend(): Uint8Array;
+}
+
+function candidate(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center): Candidate {
+  return {
+    payload: lowRankPayload(t, f, correct(t, f, e, step, center, false)),
+    withBlend: () => lowRankPayload(t, f, correct(t, f, e, step, center, true)),
+  };
 }
 
 /** Candidate ranks tried by the pointwise search. */
@@ -443,7 +463,8 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   if (t.valid === 0) return orExact(t, lowRankPayload(t, null, null));
   let best = rankZero(t, e);
   if (e > 0) best = searchRanks(t, e, best);
-  return orExact(t, best);
+  const blended = best.withBlend();
+  return orExact(t, blended.length < best.payload.length ? blended : best.payload);
 }
 
 /**
@@ -473,7 +494,7 @@ function orExact(t: PreparedTile, best: Uint8Array): Uint8Array {
 const MIN_RANKS_TRIED = 4;
 
 /** Try rank 1, 2, ... payloads until the size has not fallen twice running (after rank MIN_RANKS_TRIED); the smallest wins. */
-function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array {
+function searchRanks(t: PreparedTile, e: number, rank0: Candidate): Candidate {
   let s = ensureSvd(t, PARTIAL_RANK);
   const tol = s.s[0] * 1e-13;
   const numericalRank = () => {
@@ -484,7 +505,7 @@ function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array 
   let numRank = numericalRank();
   let worse = 0;
   let best = rank0;
-  let prev = rank0.length;
+  let prev = rank0.payload.length;
   for (const r of RANKS) {
     if (r === 0) continue;
     if (r > s.k && numRank === s.k) {
@@ -494,10 +515,10 @@ function searchRanks(t: PreparedTile, e: number, rank0: Uint8Array): Uint8Array 
     if (r > numRank) break;
     const f = pointwiseFactors(t, r, e);
     if (!f) break;
-    const p = lowRankPayload(t, f, correct(t, f, e));
-    if (p.length < best.length) best = p;
-    worse = p.length >= prev ? worse + 1 : 0;
-    prev = p.length;
+    const c = candidate(t, f, e);
+    if (c.payload.length < best.payload.length) best = c;
+    worse = c.payload.length >= prev ? worse + 1 : 0;
+    prev = c.payload.length;
     if (worse >= 2 && r >= MIN_RANKS_TRIED) break;
   }
   return best;

@@ -15,6 +15,7 @@ import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, tilesOf, tileToE
 import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
 import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
+import type { PickedTile } from '../codec/auto-tile.js';
 import { ErrorTally } from '../codec/tally.js';
 import type { FloatArray } from '../types.js';
 import type { WorkerPool } from './pool.js';
@@ -177,6 +178,24 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
     if (!pool.failed) await pool.broadcast('encode-forget', { key });
   }
   return summary.result();
+}
+
+/**
+ * Encode `tiles` (a tile trial's sample, see chooseTileAsync) under the
+ * pointwise choices `c` on `pool`, all at once; the outcomes in their order,
+ * the same as encodeTile gives in one thread.
+ */
+export async function encodeTilesOn(pool: WorkerPool, c: FieldChoices, tiles: PickedTile[]): Promise<TileOutcome[]> {
+  const key = nextKey++;
+  const { plan: _, ...rest } = c;
+  await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: null } satisfies WireChoices });
+  try {
+    const runs = tiles.map(({ index, tile, m, n }) => pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile } satisfies TileTask, [tile.buffer as ArrayBuffer]));
+    // The tallies crossed threads as plain fields; give them their class back.
+    return (await Promise.all(runs)).map((o) => ({ ...o, tally: Object.assign(new ErrorTally(), o.tally) }));
+  } finally {
+    if (!pool.failed) await pool.broadcast('encode-forget', { key });
+  }
 }
 
 /**
