@@ -19,17 +19,33 @@ export function lowRank(
   center: number,
   out: Float64Array,
 ): void {
-  out.fill(0, 0, m * n);
+  // The same operations in the same order as the formula, in one pass per rank: the first rank's
+  // products are added to +0 (so that a product of -0 gives +0, as 0 + x does), and the centre is
+  // added in the last rank's pass.
+  const cells = m * n;
+  if (r === 0) {
+    out.fill(0 + center, 0, cells);
+    return;
+  }
   for (let i = 0; i < m; i++) {
     const row = i * n;
-    for (let k = 0; k < r; k++) {
-      const lik = l[i * r + k];
+    const li = i * r;
+    const l0 = l[li];
+    if (r === 1) {
+      for (let j = 0; j < n; j++) out[row + j] = 0 + l0 * w[j] + center;
+      continue;
+    }
+    for (let j = 0; j < n; j++) out[row + j] = 0 + l0 * w[j];
+    for (let k = 1; k < r - 1; k++) {
+      const lik = l[li + k];
       const wk = k * n;
       // i, k, j loop order: per cell the additions still run in rank order.
       for (let j = 0; j < n; j++) out[row + j] += lik * w[wk + j];
     }
+    const last = l[li + r - 1];
+    const wl = (r - 1) * n;
+    for (let j = 0; j < n; j++) out[row + j] = out[row + j] + last * w[wl + j] + center;
   }
-  for (let c = 0; c < m * n; c++) out[c] += center;
 }
 
 /** Residual: out[c] = out[c] + q[c] * step, for every cell. */
