@@ -6,7 +6,8 @@
  */
 import type { FloatArray } from '../types.js';
 import { copyBlock } from '../geometry.js';
-import { encodeField, encodeTile, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
+import { candidatePlans, costPlans, firstPass, keepsTiles } from './plan-l2.js';
+import { encodeField, encodeTile, fieldBasis, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
 const SQUARE = [64, 128, 256];
@@ -199,13 +200,30 @@ function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tr
   return tried;
 }
 
-/** An L2 trial: the picked tiles side by side as one small field, packed with its own plan. */
+/**
+ * An L2 trial: the picked tiles side by side as one small field, with its
+ * own basis and first pass, costed as the plan choice costs its candidate
+ * plans (on every tile of the small field): the cheapest plan's bytes. A
+ * small field whose first pass does not keep its tiles, or that has one
+ * candidate plan, is packed whole instead.
+ */
 function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[]): Tried {
   const width = picked.length * n;
   const mosaic = spec.dtype === 'f32' ? new Float32Array(m * width) : new Float64Array(m * width);
   eachPicked(src, spec, m, n, picked, (k, band, j0) => copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n));
   const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
   const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false }; // the field's own pass guards
+  const basis = fieldBasis(trialSrc, trial);
+  const tiles = picked.length;
+  if (!basis.pointwise && keepsTiles(trial)) {
+    const first = firstPass(trialSrc, trial, basis.tol, basis.fill);
+    const plans = candidatePlans(first.spectra, basis.tol);
+    if (plans.length > 1) {
+      const all = Array.from({ length: tiles }, (_, k) => k);
+      const valid = first.spectra.valid.reduce((a, b) => a + b, 0);
+      return { bytes: costPlans(plans, all, first.kept).bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map() };
+    }
+  }
   let bytes = 0;
   const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
   return { bytes, valid: done.valid, done: new Map() };

@@ -185,6 +185,11 @@ export function sampleTiles(count: number): number[] {
 
 /** The plan whose payloads of the sampled tiles (at indexes `sample`) take the fewest bytes; the first on a tie. */
 export function cheapestPlan(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): L2PlanData {
+  return costPlans(plans, sample, tiles).plan;
+}
+
+/** {@link cheapestPlan}, with the bytes its payloads of the sampled tiles take. */
+export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): { plan: L2PlanData; bytes: number } {
   let best = plans[plans.length - 1];
   let bestBytes = Infinity;
   for (const p of plans) {
@@ -198,7 +203,7 @@ export function cheapestPlan(plans: L2PlanData[], sample: number[], tiles: Prepa
   // The trial left singular vectors (of whatever rank it needed) on the sampled tiles; the second
   // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
   for (const t of tiles) t.svd = null;
-  return best;
+  return { plan: best, bytes: bestBytes };
 }
 
 /**

@@ -324,6 +324,14 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
 const RDO_STEPS = [0.6, 0.7, 0.85, 1];
 const RDO_WEIGHTS = [0.15, 0.3, 0.45, 0.6];
 
+/**
+ * Of the steps and weights the rate-distortion search tries, how many (those
+ * whose codes have the fewest rough bits) are coded for real: coding every
+ * one cost most of an L2 pack's time (common practice, no source, for the
+ * count).
+ */
+const RDO_CODED = 3;
+
 /** Rough bits of a prediction difference, for the rate-distortion search. */
 function diffBits(d: number): number {
   return d === 0 ? 1 : 3 + 2 * Math.log2(d < 0 ? -d : d);
@@ -356,11 +364,13 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number):
   const plainKind = correct(t, f, unit / 2, unit).predictor;
   let best: Uint8Array | null = null;
   let bestAt: [number, number] = [1, 0];
-  const one = (kind: number, a: number, w: number): void => {
+  /** The codes of predictor `kind` at step a x unit and weight w (in d), with their rough bits; null if they miss the allotment or leave the code range. */
+  const walk = (kind: number, a: number, w: number, d: Int32Array): { step: number; bits: number } | null => {
     const step = binary32Below(a * unit);
     const q = new Int32Array(m * n);
-    const d = new Int32Array(m * n);
+    d.fill(0);
     let se = 0;
+    let bits = 0;
     const ok = walkPredictor(q, m, n, kind, (c, p) => {
       if (codes[c] !== Cell.Valid) return Math.abs(p) <= MAX_INT ? p : Number.NaN;
       const x = (t.orig[c] - base[c]) / step;
@@ -371,18 +381,33 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number):
       }
       if (Math.abs(v) > MAX_INT || Math.abs(v - p) > MAX_INT) return Number.NaN;
       d[c] = v - p;
+      bits += diffBits(v - p);
       se += (x - v) * (x - v) * step * step;
       return v;
     });
-    if (!ok || !(se <= 0.98 * mse * t.valid)) return;
-    const payload = lowRankPayload(t, f, { center, step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
+    return ok && se <= 0.98 * mse * t.valid ? { step, bits } : null;
+  };
+  const d = new Int32Array(m * n);
+  const one = (kind: number, a: number, w: number): void => {
+    const walked = walk(kind, a, w, d);
+    if (walked === null) return;
+    const payload = lowRankPayload(t, f, { center, step: walked.step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
     if (best === null || payload.length < best.length) {
       best = payload;
       bestAt = [a, w];
     }
   };
-  // The step and weight with the predictor plain rounding picks, then the other predictors at the best of them.
-  for (const a of RDO_STEPS) for (const w of RDO_WEIGHTS) one(plainKind, a, w);
+  // The steps and weights with the predictor plain rounding picks, ranked by the rough bits of their
+  // codes; the RDO_CODED cheapest are coded for real. Then the other predictors at the best of them.
+  const ranked: { a: number; w: number; bits: number }[] = [];
+  for (const a of RDO_STEPS) {
+    for (const w of RDO_WEIGHTS) {
+      const walked = walk(plainKind, a, w, d);
+      if (walked !== null) ranked.push({ a, w, bits: walked.bits });
+    }
+  }
+  ranked.sort((x, y) => x.bits - y.bits);
+  for (const { a, w } of ranked.slice(0, RDO_CODED)) one(plainKind, a, w);
   for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) if (kind !== plainKind) one(kind, ...bestAt);
   return best;
 }
