@@ -127,7 +127,9 @@ interface Correction {
  * codes), the residual (step, then one coded stream over the tile's valid
  * cells) and the exceptions section (DEFLATE).
  */
-export function lowRankPayload(t: PreparedTile, f: Factors | null, corr: Correction | null): Uint8Array {
+export function lowRankPayload(t: PreparedTile, f: Factors | null, given: Correction | null): Uint8Array {
+  // The residual stream is the same in both forms below: coded once.
+  const corr = given?.q && !given.coded && f && f.rank > 0 ? { ...given, coded: encodeInts(given.q, t.m, t.n, t.classes.special > 0 ? t.classes.codes : null) } : given;
   // Plain codes always fit (every code is within +-2^30).
   const plain = lowRankWith(t, f, corr, false)!;
   if (!f || f.rank === 0) return plain;
