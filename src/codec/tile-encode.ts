@@ -313,7 +313,8 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
     }
   }
   const out = t.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  reconstruct(base.slice(), added, step, out);
+  // base is not needed after this: the residual is added to it in place.
+  reconstruct(base, added, step, out);
   const exceptions: number[] = [];
   for (let c = 0; c < cells; c++) {
     if (codes[c] !== Cell.Valid) continue;
