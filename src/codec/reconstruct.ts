@@ -228,6 +228,65 @@ export function unpredict(d: Int32Array, m: number, n: number, limit: number, ki
   return true;
 }
 
+/**
+ * The rough bits (sum over cells of the bit length of |difference|) of the
+ * prediction residual of q with each of the predictors Lorenzo, Left, Up,
+ * Average and Median, in one pass and without storing the residuals: entry
+ * k is for predictor k + 1, Infinity where a difference exceeds `limit`
+ * (where {@link predict} gives null). The same figures as bit lengths of
+ * predict()'s output, for the encoder's choice of predictor.
+ */
+export function predictorBits(q: Int32Array, m: number, n: number, limit: number): Float64Array {
+  let lorenzo = 0;
+  let left = 0;
+  let up = 0;
+  let average = 0;
+  let median = 0;
+  const bits = (v: number) => 32 - Math.clz32(v < 0 ? -v : v);
+  let over = 0;
+  for (let i = 0; i < m; i++) {
+    for (let j = 0; j < n; j++) {
+      const c = i * n + j;
+      if (i === 0 || j === 0) {
+        // The edge rule is the same for every predictor.
+        const v = q[c] - (i === 0 ? (j === 0 ? 0 : q[c - 1]) : q[c - n]);
+        if (v > limit || v < -limit) return Float64Array.of(Infinity, Infinity, Infinity, Infinity, Infinity);
+        const b = bits(v);
+        lorenzo += b;
+        left += b;
+        up += b;
+        average += b;
+        median += b;
+        continue;
+      }
+      const x = q[c];
+      const a = q[c - 1];
+      const b = q[c - n];
+      const d = q[c - n - 1];
+      const lo = a < b ? a : b;
+      const hi = a < b ? b : a;
+      const v1 = x - (a + b - d);
+      const v2 = x - a;
+      const v3 = x - b;
+      const v4 = x - Math.floor((a + b) / 2);
+      const v5 = x - (d >= hi ? lo : d <= lo ? hi : a + b - d);
+      lorenzo += bits(v1);
+      left += bits(v2);
+      up += bits(v3);
+      average += bits(v4);
+      median += bits(v5);
+      if (v1 > limit || v1 < -limit) over |= 1;
+      if (v2 > limit || v2 < -limit) over |= 2;
+      if (v3 > limit || v3 < -limit) over |= 4;
+      if (v4 > limit || v4 < -limit) over |= 8;
+      if (v5 > limit || v5 < -limit) over |= 16;
+    }
+  }
+  const out = Float64Array.of(lorenzo, left, up, average, median);
+  for (let k = 0; k < 5; k++) if (over & (1 << k)) out[k] = Infinity;
+  return out;
+}
+
 /** The prediction residual of q with predictor `kind`, or null if one exceeds `limit`. */
 export function predict(q: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo): Int32Array | null {
   const d = new Int32Array(q.length);

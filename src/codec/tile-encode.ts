@@ -8,7 +8,7 @@ import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { Flag, Method } from './payload.js';
-import { lowRank, predict, predictedFill, Predictor, reconstruct, walkPredictor } from './reconstruct.js';
+import { lowRank, predict, predictorBits, predictedFill, Predictor, reconstruct, walkPredictor } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -280,8 +280,18 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
       let bestFilled = q;
       let bestBits = roughBits(q);
       let blend: { d: Int32Array; filled: Int32Array } | null = null;
+      // Without missing cells, the plain predictors' bits come from one pass over q, and only the
+      // winner's differences are formed; with them, each predictor fills the missing cells its own way.
+      const plain = t.classes.special > 0 ? null : predictorBits(q, m, n, MAX_INT);
       for (const kind of PREDICTORS) {
         if (kind === Predictor.Blend && !blendToo) continue;
+        if (plain !== null && kind !== Predictor.Blend) {
+          if (plain[kind - 1] < bestBits) {
+            bestBits = plain[kind - 1];
+            predictor = kind;
+          }
+          continue;
+        }
         const qp = t.classes.special > 0 ? predictedFill(q, codes, m, n, MAX_INT, kind) : q;
         const d = predict(qp, m, n, MAX_INT, kind);
         if (!d) continue;
@@ -295,6 +305,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
           predictor = kind;
         }
       }
+      if (plain !== null && predictor !== Predictor.None) best = predict(q, m, n, MAX_INT, predictor)!;
       if (blend !== null) {
         // The blend looks cheaper, but it decodes several times slower than the others and
         // bit lengths are only an estimate: both are coded, and the blend must save 1%.
