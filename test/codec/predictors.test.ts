@@ -9,7 +9,7 @@ import { fileURLToPath } from 'node:url';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
-import { MAX_PREDICTOR, predict, predictedFill, Predictor, unpredict } from '../../src/codec/reconstruct.js';
+import { MAX_PREDICTOR, predict, predictedFill, Predictor, predictorBits, unpredict } from '../../src/codec/reconstruct.js';
 import { pack } from '../../src/pack.js';
 
 const LIMIT = 2 ** 30;
@@ -50,6 +50,30 @@ describe('every predictor is inverted exactly by the decoder', () => {
         else expect(filled[c]).toBe(q[c]);
       }
     }
+  });
+});
+
+describe("the encoder's one-pass bit count of the plain predictors", () => {
+  it('predictorBits gives the bit lengths of predict() for predictors 1 to 5, and Infinity where predict() gives null (fast-check)', () => {
+    const bitLength = (d: Int32Array) => d.reduce((s, v) => s + 32 - Math.clz32(Math.abs(v)), 0);
+    fc.assert(
+      fc.property(
+        fc.integer({ min: 1, max: 12 }),
+        fc.integer({ min: 1, max: 12 }),
+        fc.integer({ min: 0, max: 2 ** 30 }),
+        fc.infiniteStream(fc.double({ min: -1, max: 1, noNaN: true })),
+        (m, n, scale, noise) => {
+          const it = noise[Symbol.iterator]();
+          const q = Int32Array.from({ length: m * n }, () => Math.round(it.next().value * scale));
+          const bits = predictorBits(q, m, n, LIMIT);
+          for (let kind = 1; kind <= 5; kind++) {
+            const d = predict(q, m, n, LIMIT, kind);
+            expect(bits[kind - 1], `predictor ${kind}`).toBe(d === null ? Number.POSITIVE_INFINITY : bitLength(d));
+          }
+        },
+      ),
+      { numRuns: 300 },
+    );
   });
 });
 
