@@ -119,6 +119,9 @@ interface Correction {
   exceptions: number[];
   /** The coded stream of q, when the predictor choice already made it. */
   coded?: Uint8Array;
+  /** The residual codes before prediction (missing cells 0), and the rough bits of the chosen prediction's differences: for {@link blendVariant}. */
+  raw?: Int32Array;
+  bits?: number;
 }
 
 /**
@@ -261,6 +264,8 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   let predictor: number = Predictor.None;
   let added: Int32Array | null = null;
   let coded: Uint8Array | undefined;
+  let raw: Int32Array | undefined;
+  let rawBits: number | undefined;
   if (e > 0 && Number.isFinite(step)) {
     q = new Int32Array(cells);
     let any = false;
@@ -320,6 +325,8 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
         } else coded = other;
       }
       added = bestFilled;
+      raw = q;
+      rawBits = bestBits;
       q = best;
     }
   }
@@ -331,7 +338,32 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
     if (codes[c] !== Cell.Valid) continue;
     if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
   }
-  return { center, step, q, predictor, exceptions, coded };
+  return { center, step, q, predictor, exceptions, coded, raw, bits: rawBits };
+}
+
+/**
+ * The payload of a candidate whose residual was chosen without the blend
+ * (`corr`, from correct() with blendToo false), with its residual coded
+ * with the blend instead when that is what correct() with the blend
+ * allowed would choose: the blend's differences have fewer rough bits than
+ * the chosen predictor's, and its coded stream is at least 1% shorter.
+ * Null when it would keep the other predictor (the payload is then the
+ * candidate's own). The reconstruction, and so the exceptions, do not
+ * depend on the predictor: only valid cells' codes are checked, and they
+ * are the same codes.
+ */
+function blendVariant(t: PreparedTile, f: Factors | null, corr: Correction): Uint8Array | null {
+  if (!corr.raw || corr.q === null || corr.bits === undefined) return null;
+  const { m, n } = t;
+  const codes = t.classes.codes;
+  const filled = t.classes.special > 0 ? predictedFill(corr.raw, codes, m, n, MAX_INT, Predictor.Blend) : corr.raw;
+  const d = predict(filled, m, n, MAX_INT, Predictor.Blend);
+  if (!d || !(roughBits(d) < corr.bits)) return null;
+  const mask = t.classes.special > 0 ? codes : null;
+  const other = corr.coded ?? encodeInts(corr.q, m, n, mask);
+  const mine = encodeInts(d, m, n, mask);
+  if (!(mine.length < BLEND_MARGIN * other.length)) return null;
+  return lowRankPayload(t, f, { ...corr, q: d, predictor: Predictor.Blend, coded: mine });
 }
 
 /** Step multipliers and rate weights (in units of step^2) the rate-distortion search tries. */
@@ -479,10 +511,9 @@ interface Candidate {
 }
 
 function candidate(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center): Candidate {
-  return {
-    payload: lowRankPayload(t, f, correct(t, f, e, step, center, false)),
-    withBlend: () => lowRankPayload(t, f, correct(t, f, e, step, center, true)),
-  };
+  const corr = correct(t, f, e, step, center, false);
+  const payload = lowRankPayload(t, f, corr);
+  return { payload, withBlend: () => blendVariant(t, f, corr) ?? payload };
 }
 
 /** Candidate ranks tried by the pointwise search. */
