@@ -332,13 +332,18 @@ export function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: nu
 
 /**
  * The rest of a tile's reconstruction after {@link lowRank} has filled `acc`
- * (spec/FORMAT.md section 11): the residual q x step added in place when
- * there is one, then rounding to the output dtype. The decoder and the
+ * (spec/FORMAT.md section 11): the residual q x step added when there is
+ * one, then rounding to the output dtype. The decoder and the
  * encoder's candidate check both call this, so they cannot drift apart.
  */
 export function reconstruct(acc: Float64Array, q: Int32Array | null, step: number, out: Float32Array | Float64Array): void {
-  if (q !== null) addResidual(acc, q, step);
-  roundTo(acc, out);
+  if (q === null) {
+    roundTo(acc, out);
+    return;
+  }
+  // addResidual and roundTo in one pass: each sum is formed in binary64, then stored (rounded) in out;
+  // acc is left as it was.
+  for (let c = 0; c < q.length; c++) out[c] = acc[c] + q[c] * step;
 }
 
 /** Round binary64 values to the output dtype (binary32: round-to-nearest-even). */

@@ -93,7 +93,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (flags & Flag.FactorDelta && rank === 0) throw malformed(where, 'factor difference flag on a payload of rank 0');
   if (flags & Flag.WideStep && !(flags & Flag.Residual)) throw malformed(where, 'wide residual step flag on a payload without a residual');
 
-  const mask = flags & Flag.Mask ? readMask(r, ctx) : { codes: new Uint8Array(cells), rawNaN: new Uint8Array(0) };
+  const mask = flags & Flag.Mask ? readMask(r, ctx) : null;
   const factors = rank > 0 ? readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0) : { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
   if (ctx.groups !== undefined) {
     // A prefix ends after its last factor group: no residual, no exceptions.
@@ -101,8 +101,9 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
     flags &= ~(Flag.Residual | Flag.Exceptions);
   }
   // Every section is read and checked before the arithmetic, so a malformed late part costs no multiply-adds.
-  const residual = flags & Flag.Residual ? readResidual(r, ctx, flags, mask.codes) : { step: 0, q: null };
-  const exceptions = flags & Flag.Exceptions ? readExceptions(r, ctx, mask.codes) : { cells: new Uint32Array(0), values: new Uint8Array(0) };
+  const codes = mask?.codes ?? null;
+  const residual = flags & Flag.Residual ? readResidual(r, ctx, flags, codes) : { step: 0, q: null };
+  const exceptions = flags & Flag.Exceptions ? readExceptions(r, ctx, codes) : { cells: new Uint32Array(0), values: new Uint8Array(0) };
   if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
 
   const acc = new Float64Array(cells);
@@ -112,9 +113,9 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   applyExceptions(out, exceptions, ctx);
   // A valid cell must decode to a finite value; anything else is a damaged or hostile payload.
   for (let c = 0; c < cells; c++) {
-    if (mask.codes[c] === Cell.Valid && !Number.isFinite(out[c])) throw malformed(where, `valid ${cellName(c, n)} decodes to ${out[c]}, not a finite value`);
+    if ((codes === null || codes[c] === Cell.Valid) && !Number.isFinite(out[c])) throw malformed(where, `valid ${cellName(c, n)} decodes to ${out[c]}, not a finite value`);
   }
-  applyClasses(out, mask.codes, mask.rawNaN, ctx.fill);
+  if (mask !== null) applyClasses(out, mask.codes, mask.rawNaN, ctx.fill);
   return out;
 }
 
@@ -153,7 +154,7 @@ function readMask(r: ByteReader, ctx: TileContext): { codes: Uint8Array; rawNaN:
 }
 
 /** Read and check the residual: its step, predictor and codes, the prediction undone. */
-function readResidual(r: ByteReader, ctx: TileContext, flags: number, codes: Uint8Array): { step: number; q: Int32Array } {
+function readResidual(r: ByteReader, ctx: TileContext, flags: number, codes: Uint8Array | null): { step: number; q: Int32Array } {
   const { m, n, where } = ctx;
   const stepAt = r.offset;
   const step = flags & Flag.WideStep ? r.f64('residual step') : r.f32('residual step');
@@ -161,13 +162,13 @@ function readResidual(r: ByteReader, ctx: TileContext, flags: number, codes: Uin
   const predictor = r.u8('residual predictor');
   if (predictor > MAX_PREDICTOR) throw malformed(where, `residual predictor ${predictor} at ${r.unit} ${r.offset - 1} is not one of 0..${MAX_PREDICTOR}`);
   const q = new Int32Array(m * n);
-  readCoded(r, 'residual', m, n, flags & Flag.Mask ? codes : null, q, where);
+  readCoded(r, 'residual', m, n, codes, q, where);
   if (!unpredict(q, m, n, MAX_INT, predictor)) throw malformed(where, 'a residual code exceeds 2^30 after prediction');
   return { step, q };
 }
 
 /** Read and check the exceptions section: valid cells in increasing order, and their exact values. */
-function readExceptions(r: ByteReader, ctx: TileContext, codes: Uint8Array): { cells: Uint32Array; values: Uint8Array } {
+function readExceptions(r: ByteReader, ctx: TileContext, codes: Uint8Array | null): { cells: Uint32Array; values: Uint8Array } {
   const { m, n, where } = ctx;
   const cells = m * n;
   const width = ctx.dtype === 'f32' ? 4 : 8;
@@ -180,7 +181,7 @@ function readExceptions(r: ByteReader, ctx: TileContext, codes: Uint8Array): { c
   for (let e = 0; e < count; e++) {
     const c = er.u32('exception cell');
     if (c <= prev || c >= cells) throw malformed(where, `exception ${e} names cell ${c}: out of order or outside the tile of ${cells} cells`);
-    if (codes[c] !== Cell.Valid) throw malformed(where, `exception ${e} at missing ${cellName(c, n)}`);
+    if (codes !== null && codes[c] !== Cell.Valid) throw malformed(where, `exception ${e} at missing ${cellName(c, n)}`);
     at[e] = c;
     prev = c;
   }

@@ -331,7 +331,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
     }
   }
   const out = t.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  // base is not needed after this: the residual is added to it in place.
+  // The residual added and rounded to the dtype, as the decoder does it.
   reconstruct(base, added, step, out);
   const exceptions: number[] = [];
   for (let c = 0; c < cells; c++) {
