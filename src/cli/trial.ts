@@ -162,37 +162,52 @@ export function netcdfSample(nc: NetcdfInput, flags: Pick<TrialFlags, 'var' | 'f
     const info = reader.info;
     const fill = info.fill ?? flags.fill ?? null;
     const f = fill === null ? null : info.dtype === 'f32' ? Math.fround(fill) : fill;
-    let lo = Infinity;
-    let hi = -Infinity;
     const nd = info.shape;
-    const R = nd[nd.length - 2];
-    const C = nd[nd.length - 1];
-    const all = reader.shape[0];
-    let values: FloatArray;
-    const slice = nd.length > 2 ? Math.floor(all / R / 2) : null;
-    const m = Math.min(R, flags.sample);
-    const n = Math.min(C, flags.sample);
-    const r0 = Math.floor((R - m) / 2);
-    const c0 = Math.floor((C - n) / 2);
+    let cut: CentralSample;
     try {
-      const step = Math.max(1, Math.floor(rangeValues / C));
-      for (let b0 = 0; b0 < all; b0 += step) {
-        const part = reader.rows(b0, Math.min(step, all - b0));
-        for (let k = 0; k < part.length; k++) {
-          const v = part[k];
-          if (!Number.isFinite(v) || v === f) continue;
-          if (v < lo) lo = v;
-          if (v > hi) hi = v;
-        }
-      }
-      // The sample's rows, each read alone (its columns only).
-      values = info.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
-      for (let i = 0; i < m; i++) values.set(reader.values(((slice ?? 0) * R + r0 + i) * C + c0, n), i * n);
+      cut = centralSample({ nd, all: reader.shape[0], dtype: info.dtype, rows: (b0, count) => reader.rows(b0, count), values: (offset, count) => reader.values(offset, count) }, flags.sample, f, rangeValues);
     } catch (e) {
       throw named(e);
     }
-    return { values, shape: [m, n], field: nd, variable: name, slice, rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: info.dtype, range: lo <= hi ? [lo, hi] : null, fill };
+    return { ...cut, field: nd, variable: name, dtype: info.dtype, fill };
   }
+}
+
+/** A sample's values and where they lie, with the whole field's value range. */
+type CentralSample = Pick<Sample, 'values' | 'shape' | 'slice' | 'rows' | 'cols' | 'range'>;
+
+/**
+ * The central block of up to side x side cells of a field (of its middle
+ * slice, for an N-D array read as the matrix of all axes but the last by
+ * the last: slice k is rows k R .. (k + 1) R - 1), each of its rows read
+ * alone (its columns only), and the value range of the whole field over
+ * its valid values (finite, not `fill`), in one pass of about
+ * `rangeValues` values a read.
+ */
+function centralSample(src: { nd: readonly number[]; all: number; dtype: Dtype; rows(b0: number, count: number): FloatArray; values(offset: number, count: number): FloatArray }, side: number, fill: number | null, rangeValues: number): CentralSample {
+  const { nd, all } = src;
+  const R = nd[nd.length - 2];
+  const C = nd[nd.length - 1];
+  const slice = nd.length > 2 ? Math.floor(all / R / 2) : null;
+  const m = Math.min(R, side);
+  const n = Math.min(C, side);
+  const r0 = Math.floor((R - m) / 2);
+  const c0 = Math.floor((C - n) / 2);
+  let lo = Infinity;
+  let hi = -Infinity;
+  const step = Math.max(1, Math.floor(rangeValues / C));
+  for (let b0 = 0; b0 < all; b0 += step) {
+    const part = src.rows(b0, Math.min(step, all - b0));
+    for (let k = 0; k < part.length; k++) {
+      const v = part[k];
+      if (!Number.isFinite(v) || v === fill) continue;
+      if (v < lo) lo = v;
+      if (v > hi) hi = v;
+    }
+  }
+  const values = src.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
+  for (let i = 0; i < m; i++) values.set(src.values(((slice ?? 0) * R + r0 + i) * C + c0, n), i * n);
+  return { values, shape: [m, n], slice, rows: [r0, r0 + m], cols: [c0, c0 + n], range: lo <= hi ? [lo, hi] : null };
 }
 
 /** Values read at a time when a NetCDF variable's value range is measured (about). */
@@ -213,39 +228,14 @@ async function readSample(
   checkLayout(input, layout, undefined, kind);
   const field = await openFieldBands(input, layout, kind);
   try {
-    // An N-D array is read as the matrix of all axes but the last by the last: slice k is rows k*R .. (k+1)*R - 1.
-    const nd = field.ndShape;
-    const R = nd[nd.length - 2];
-    const C = nd[nd.length - 1];
-    const all = field.shape[0];
-    const slice = nd.length > 2 ? Math.floor(all / R / 2) : null;
-    const first = (slice ?? 0) * R;
-    const m = Math.min(R, flags.sample);
-    const n = Math.min(C, flags.sample);
-    const r0 = Math.floor((R - m) / 2);
-    const c0 = Math.floor((C - n) / 2);
-    let values: FloatArray;
     const fill = flags.fill === undefined ? null : field.dtype === 'f32' ? Math.fround(flags.fill) : flags.fill;
-    let lo = Infinity;
-    let hi = -Infinity;
+    let cut: CentralSample;
     try {
-      const step = Math.max(1, Math.floor(RANGE_VALUES / field.shape[1]));
-      for (let b0 = 0; b0 < all; b0 += step) {
-        const part = field.band(b0, Math.min(step, all - b0));
-        for (let k = 0; k < part.length; k++) {
-          const v = part[k];
-          if (!Number.isFinite(v) || v === fill) continue;
-          if (v < lo) lo = v;
-          if (v > hi) hi = v;
-        }
-      }
-      // The sample's rows, each read alone.
-      values = field.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
-      for (let i = 0; i < m; i++) values.set(flatValues(field, (first + r0 + i) * C + c0, n), i * n);
+      cut = centralSample({ nd: field.ndShape, all: field.shape[0], dtype: field.dtype, rows: (b0, count) => field.band(b0, count), values: (offset, count) => flatValues(field, offset, count) }, flags.sample, fill, RANGE_VALUES);
     } catch (e) {
       throw fileError(e, 'read', input);
     }
-    return { values, shape: [m, n], field: nd, variable: null, slice, rows: [r0, r0 + m], cols: [c0, c0 + n], dtype: field.dtype, range: lo <= hi ? [lo, hi] : null, fill: flags.fill ?? null };
+    return { ...cut, field: field.ndShape, variable: null, dtype: field.dtype, fill: flags.fill ?? null };
   } finally {
     field.close();
   }
