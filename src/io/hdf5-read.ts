@@ -203,7 +203,9 @@ type Deferred = Omit<NcWriteVariable, 'values'> & { values?: NcWriteValues };
 function walk(file: H5File, path: string, defer: (d: H5Node, type: NcType) => boolean): { model: Omit<NcWriteFile, 'variables'> & { variables: Deferred[] }; datasets: Map<string, H5Node> } {
   const deferred = new Map<string, H5Node>();
   {
-    const dims = new Map<string, { size: number; unlimited: boolean }>();
+    // `open`: an unlimited dimension known only from its dimension-only scale, whose current size (0
+    // when no variable of its own was written) is not its length: the first variable along it sets that.
+    const dims = new Map<string, { size: number; unlimited: boolean; open?: boolean }>();
     const variables: Deferred[] = [];
     const datasets: H5Node[] = [];
     // Attributes of groups are kept as global attributes named by their path, G/NAME.
@@ -233,7 +235,8 @@ function walk(file: H5File, path: string, defer: (d: H5Node, type: NcType) => bo
       const size = d.metadata.shape?.[0] ?? 0;
       const unlimited = (d.metadata.maxshape?.[0] ?? 0) > Number.MAX_SAFE_INTEGER;
       if (unlimited && record === null) record = flatName(d.path);
-      dims.set(flatName(d.path), { size, unlimited: unlimited && record === flatName(d.path) });
+      const dimOnly = String(d.attrs.NAME?.value ?? '').startsWith(DIM_ONLY);
+      dims.set(flatName(d.path), { size, unlimited: unlimited && record === flatName(d.path), open: unlimited && dimOnly });
     }
     for (const d of datasets) {
       const name = flatName(d.path);
@@ -257,7 +260,10 @@ function walk(file: H5File, path: string, defer: (d: H5Node, type: NcType) => bo
       else names = shape.map((_, i) => `${name}_dim${i}`);
       names.forEach((dn, i) => {
         const had = dims.get(dn);
-        if (had !== undefined && had.size !== shape[i]) fileError(path, `${where} has size ${shape[i]} along dimension '${dn}', which has size ${had.size}`);
+        if (had?.open) {
+          had.size = shape[i];
+          had.open = false;
+        } else if (had !== undefined && had.size !== shape[i]) fileError(path, `${where} has size ${shape[i]} along dimension '${dn}', which has size ${had.size}`);
         if (had === undefined) dims.set(dn, { size: shape[i], unlimited: false });
       });
       const { attrs, attrTypes } = attributes(d, path);

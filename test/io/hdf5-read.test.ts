@@ -88,6 +88,24 @@ describe.skipIf(!NC)('NetCDF-4 made by ncgen and nccopy', { timeout: 30_000 }, (
     }
   });
 
+  it('an unlimited dimension without a coordinate variable takes its length from the variables, as nccopy -k classic gives it', async () => {
+    // netCDF-4 keeps such a dimension as a dimension-only scale of current size 0 (from memory); its
+    // length is that of the variables along it. The reference is the netCDF library's own conversion.
+    const bare = CDL.replace('  double time(time) ;\n    time:units = "days since 2000-01-01" ;\n', '').replace('  time = 0, 1 ;\n', '');
+    expect(bare).not.toContain('double time');
+    const file = ncgen(bare, join(t.dir, 'bare4.nc'), 'nc4');
+    const ref3 = join(t.dir, 'bare3.nc');
+    execFileSync(NCCOPY, ['-k', 'classic', file, ref3]);
+    const ours = await netcdf4ToClassic(file);
+    const a = readNetcdfHeader(ours, 'ours');
+    const b = readNetcdfHeader(new Uint8Array(readFileSync(ref3)), 'nccopy');
+    expect(a.dims.map((d) => [d.name, d.size, d.unlimited])).toEqual(b.dims.map((d) => [d.name, d.size, d.unlimited]));
+    expect(a.variables.map((v) => [v.name, v.type, v.dims])).toEqual(b.variables.map((v) => [v.name, v.type, v.dims]));
+    const x = readNetcdfVariable(ours, a, 'height');
+    const y = readNetcdfVariable(new Uint8Array(readFileSync(ref3)), b, 'height');
+    expect(Buffer.from(x.values.buffer).equals(Buffer.from(y.values.buffer))).toBe(true);
+  });
+
   it('reads nested groups, naming variables and dimensions by their path (GROUP/NAME), dimensions found in the group that defines them', async () => {
     // netCDF-4 CDL allows "group:" blocks, and a group's variables may use the dimensions of the
     // groups around it (NetCDF Users Guide, "Groups" and "CDL Syntax"; from memory).
