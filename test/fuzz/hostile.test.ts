@@ -6,6 +6,7 @@
  * seed archives taken apart and put back with every CRC recomputed
  * (./model.ts), so only the rule under test is broken.
  */
+import { decode } from '@msgpack/msgpack';
 import { deflateSync, inflateSync } from 'fflate';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
@@ -14,7 +15,7 @@ import { DEFAULT_LIMITS, resolveLimits } from '../../src/format/schema.js';
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import { buildSeeds } from './corpus.js';
-import { cloneModel, pageValues, parse, PayloadFlag, replaceStream, serialize, setCentre, setLength, setResidualStep, splice, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
+import { cloneModel, layout, pageValues, parse, PayloadFlag, replaceStream, serialize, setCentre, setLength, setResidualStep, splice, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import { decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
 import { crc32 } from '../../src/format/crc32.js';
@@ -255,7 +256,7 @@ describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
   const cases: [string, number, (bin: Uint8Array, m: Model) => unknown, RegExp][] = [
     ['a column stored as a MessagePack array (the version 5 form)', 0, (_b, m) => lengths(m), /column 'length' is not a binary value$/],
     ['a u32 column one byte short', 1, (b) => b.subarray(0, b.length - 1), /column 'crc' holds 15 bytes, not 16 for 4 tiles$/],
-    ['an error column of neither 4 nor 8 bytes a tile', 4, (b) => Uint8Array.of(...b, 0, 0, 0, 0), /column 'max_err' holds 20 bytes, not 16 or 32 for 4 tiles$/],
+    ['an error column of neither 4 nor 8 bytes a tile', 4, (b) => Uint8Array.of(...b, 0, 0, 0, 0), /column 'max_err' holds 20 bytes, not 0, 16 or 32 for 4 tiles$/],
     ['a length varint not in its shortest form', 0, (_b, m) => Uint8Array.of(...varintBytes(lengths(m)[0]).map((x) => x | 0x80), 0, ...lengths(m).slice(1).flatMap(varintBytes)), /column 'length': varint 0 at column offset 0 is not in its shortest form$/],
     ['a varint of six bytes', 2, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x80, 0x00, ...b.subarray(1)), /column 'kind': varint 0 at column offset 0 runs over 5 bytes$/],
     ['a varint of 2^32', 3, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x10, ...b.subarray(1)), /column 'missing': varint 0 at column offset 0 holds 4294967296, not a value below 2\^32$/],
@@ -274,6 +275,18 @@ describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
       expect(e.message).toMatch(message);
     });
   }
+
+  it('reads an empty error column as zeros, and the writer writes one where every tile decodes exactly (spec 7.3, 7.5)', async () => {
+    const zero = withColumn(5, () => new Uint8Array(0));
+    expect((await (await open(zero)).loadIndex()).fields[0].rmse).toEqual([0, 0, 0, 0]);
+    // Integers within a bound of 0.1 are stored exactly (spec 19, the lattice candidate): both error columns are empty.
+    const exact = pack(Float64Array.from({ length: 36 }, (_, k) => (k * 7) % 11), [6, 6], { bound: 'abs:0.1', tile: 3 });
+    // The one index page lies between the payloads and the header (spec 3): decode the writer's own bytes.
+    const end = 12 + parse(exact).payloads[0].reduce((sum, p) => sum + p.length, 0);
+    const page = decode(exact.subarray(end, layout(exact).headerOffset)) as unknown[];
+    expect([page[4], page[5]]).toEqual([new Uint8Array(0), new Uint8Array(0)]);
+    expect((await (await open(exact)).loadIndex()).fields[0].max_err).toEqual([0, 0, 0, 0]);
+  });
 
   it('reads an error column written in binary64 as the same figures (a writer may; spec 7.3)', async () => {
     const wide = withColumn(4, (b) => new Uint8Array(new Float64Array(new Float32Array(b.buffer.slice(b.byteOffset, b.byteOffset + b.length))).buffer));
