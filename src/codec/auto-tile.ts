@@ -229,5 +229,10 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
   return { bytes, valid: done.valid, done: new Map() };
 }
 
-/** About what one tile adds to the index (length, CRCs, method, rank, missing count, errors: spec/FORMAT.md, section 7.3). */
-const TILE_INDEX_BYTES = 26;
+/**
+ * About what one tile adds to the index (spec/FORMAT.md, section 7.3): a
+ * length varint (2), two CRCs (8), kind and missing count (2), two binary32
+ * errors (8); measured 19.3 to 21.6 bytes a tile with 64 x 64 tiles on the
+ * bench fields at rel:1e-3.
+ */
+const TILE_INDEX_BYTES = 20;

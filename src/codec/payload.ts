@@ -1,4 +1,6 @@
 /** Tile payload constants shared by the encoder and decoder (spec/FORMAT.md, "Tile payloads"). */
+import { LENGTH_BYTES } from '../format/bytes.js';
+
 
 /** Payload methods: the first byte of every payload. */
 export const Method = {
@@ -28,7 +30,7 @@ export const Flag = {
 /** All flag bits this version defines; any other bit set is refused. */
 export const KNOWN_FLAGS = 0x77;
 
-/** Largest byte length of the varints of a payload (rank, group sizes, step-code differences). */
+/** Largest byte length of the varints of a payload that are not byte lengths (rank, group sizes, step-code differences). */
 export const VARINT_BYTES = 3;
 
 /**
@@ -41,31 +43,40 @@ interface Walk {
   rank: number;
   /** Where the factor block's group list ends (the first prefix boundary). */
   groupsAt: number;
-  /** Per group present: its rank count, the bytes of its step codes, and where it ends. */
-  groups: { size: number; stepBytes: number; end: number }[];
+  /** Per group present: its rank count, the bytes of its step codes and length varint, and where it ends. */
+  groups: { size: number; framing: number; end: number }[];
   /** True if every declared group is present. */
   allGroups: boolean;
 }
 
-/** Unsigned varint at `at`: [value, bytes], or null if it runs past the end or over VARINT_BYTES. */
-function varintAt(p: Uint8Array, at: number): [number, number] | null {
+/** Unsigned varint at `at` of at most `max` bytes: [value, bytes], or null if it runs past the end or over `max`. */
+function varintAt(p: Uint8Array, at: number, max = VARINT_BYTES): [number, number] | null {
   let v = 0;
-  for (let k = 0; k < VARINT_BYTES && at + k < p.length; k++) {
+  for (let k = 0; k < max && at + k < p.length; k++) {
     v += (p[at + k] & 0x7f) * 2 ** (7 * k);
     if (p[at + k] < 0x80) return [v, k + 1];
   }
   return null;
 }
 
+/** A length varint at `at` and the bytes it announces: [bytes of the varint, bytes announced], or Infinity past the end. */
+function lengthAt(p: Uint8Array, at: number): [number, number] {
+  const v = varintAt(p, at, LENGTH_BYTES);
+  return v === null ? [Infinity, Infinity] : [v[1], v[0]];
+}
+
 function walkLowRank(p: Uint8Array): Walk | null {
   if (p[0] !== Method.LowRank || p.length < 3) return null;
-  const view = new DataView(p.buffer, p.byteOffset, p.byteLength);
-  const u32At = (at: number) => (at + 4 <= p.length ? view.getUint32(at, true) : Infinity);
   const flags = p[1];
   const rank = varintAt(p, 2);
   if (rank === null) return null;
   let at = 2 + rank[1] + (flags & Flag.WideCentre ? 8 : 4);
-  if (flags & Flag.Mask) at += 8 + u32At(at) + u32At(at + 4);
+  if (flags & Flag.Mask) {
+    // Two length varints (class map, raw NaN bits), then the bytes they announce.
+    const [b1, classMap] = lengthAt(p, at);
+    const [b2, rawNaN] = lengthAt(p, at + b1);
+    at += b1 + b2 + classMap + rawNaN;
+  }
   if (!(at <= p.length)) return null;
   const walk: Walk = { rank: rank[0], groupsAt: at, groups: [], allGroups: true };
   if (rank[0] === 0) return walk;
@@ -79,7 +90,7 @@ function walkLowRank(p: Uint8Array): Walk | null {
     at += s[1];
   }
   walk.groupsAt = at;
-  // A group is its step codes (two signed varints a rank), a u32 length and its coded stream.
+  // A group is its step codes (two signed varints a rank), a length varint and its coded stream.
   for (const size of sizes) {
     const start = at;
     for (let k = 0; k < 2 * size && at <= p.length; k++) {
@@ -87,12 +98,13 @@ function walkLowRank(p: Uint8Array): Walk | null {
       at = c === null ? Infinity : at + c[1];
     }
     const stepBytes = at - start;
-    at += 4 + u32At(at);
+    const [lb, stream] = at < p.length ? lengthAt(p, at) : [Infinity, Infinity];
+    at += lb + stream;
     if (!(at <= p.length)) {
       walk.allGroups = false;
       break;
     }
-    walk.groups.push({ size, stepBytes, end: at });
+    walk.groups.push({ size, framing: stepBytes + lb, end: at });
   }
   return walk;
 }
@@ -142,29 +154,33 @@ export interface PayloadShares {
  * for a payload that does not walk to its end.
  */
 export function payloadShares(payload: Uint8Array): PayloadShares | null {
-  // Method, flags and the section's two lengths frame the exact values.
-  if (payload[0] === Method.Exact) return { factors: 0, residual: 0, exceptions: payload.length, framing: Math.min(payload.length, 10) };
+  if (payload[0] === Method.Exact) {
+    // Method, flags and the section's two length varints frame the exact values.
+    const [b1] = lengthAt(payload, 2);
+    const [b2] = lengthAt(payload, 2 + b1);
+    return { factors: 0, residual: 0, exceptions: payload.length, framing: Math.min(payload.length, 2 + b1 + b2) };
+  }
   const walk = walkLowRank(payload);
   if (walk === null || !walk.allGroups) return null;
   let at = walk.groups.length > 0 ? walk.groups[walk.groups.length - 1].end : walk.groupsAt;
   const factors = at - walk.groupsAt;
-  const view = new DataView(payload.buffer, payload.byteOffset, payload.byteLength);
-  // Each group: its step codes and a u32 length.
-  let framing = walk.groups.reduce((sum, g) => sum + g.stepBytes + 4, 0);
+  // Each group: its step codes and its length varint.
+  let framing = walk.groups.reduce((sum, g) => sum + g.framing, 0);
   let residual = 0;
   let exceptions = 0;
   if (payload[1] & Flag.Residual) {
-    // Step (binary32 or binary64), predictor and a u32 length.
-    const head = (payload[1] & Flag.WideStep ? 8 : 4) + 5;
-    if (at + head > payload.length) return null;
-    residual = head + view.getUint32(at + head - 4, true);
-    framing += head;
+    // Step (binary32 or binary64), predictor and a length varint.
+    const fixed = (payload[1] & Flag.WideStep ? 8 : 4) + 1;
+    const [lb, stream] = lengthAt(payload, at + fixed);
+    residual = fixed + lb + stream;
+    framing += fixed + lb;
     at += residual;
   }
   if (payload[1] & Flag.Exceptions) {
-    if (at + 8 > payload.length) return null;
-    exceptions = 8 + view.getUint32(at + 4, true);
-    framing += 8;
+    const [b1] = lengthAt(payload, at);
+    const [b2, stored] = lengthAt(payload, at + b1);
+    exceptions = b1 + b2 + stored;
+    framing += b1 + b2;
     at += exceptions;
   }
   return at === payload.length ? { factors, residual, exceptions, framing } : null;

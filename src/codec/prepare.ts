@@ -78,11 +78,11 @@ export function prepareTile(
   if (finite && classes.special > 0 && valid > 0 && tol > 0) lowRankFill(x, classes.codes, m, n, tol);
   let maskSection: Uint8Array = new Uint8Array(0);
   if (classes.special > 0) {
-    // u32 coded length, u32 raw NaN bytes, the coded class map, the raw NaN bits.
+    // Varints of the coded length and of the raw NaN bytes, the coded class map, the raw NaN bits.
     const coded = encodeClasses(classes.codes, m, n);
-    const w = new ByteWriter(coded.length + classes.rawNaN.length + 8);
-    w.u32(coded.length);
-    w.u32(classes.rawNaN.length);
+    const w = new ByteWriter(coded.length + classes.rawNaN.length + 10);
+    w.varint(coded.length);
+    w.varint(classes.rawNaN.length);
     w.bytes(coded);
     w.bytes(classes.rawNaN);
     maskSection = w.finish();

@@ -11,8 +11,8 @@ export const DEFLATE_LEVEL = 6;
 /** Append `raw` as a compressed section. */
 export function writeSection(w: ByteWriter, raw: Uint8Array): void {
   const stored = deflateSync(raw, { level: DEFLATE_LEVEL });
-  w.u32(raw.length);
-  w.u32(stored.length);
+  w.varint(raw.length);
+  w.varint(stored.length);
   w.bytes(stored);
 }
 

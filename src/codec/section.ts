@@ -1,6 +1,6 @@
 /**
  * Reading DEFLATE sections of a tile payload (exact values, exceptions). A
- * section is `u32 rawLength, u32 storedLength, stored bytes`, where the stored bytes are a raw DEFLATE stream (RFC 1951) that inflates to
+ * section is `varint rawLength, varint storedLength, stored bytes`, where the stored bytes are a raw DEFLATE stream (RFC 1951) that inflates to
  * exactly `rawLength` bytes and ends with the stored bytes. Reading (here)
  * uses the strict decoder of ./inflate.ts; writing is in ./section-write.ts,
  * so the decoding entry imports no compressor.
@@ -29,8 +29,8 @@ export const MAX_INFLATE_RATIO = 1032;
  */
 export function readSection(r: ByteReader, what: string, expected: number, exact = true): Uint8Array {
   const start = r.offset;
-  const rawLength = r.u32(`${what} raw length`);
-  const storedLength = r.u32(`${what} stored length`);
+  const rawLength = r.length(`${what} raw length`);
+  const storedLength = r.length(`${what} stored length`);
   const at = `section at ${r.unit} ${start}`;
   if (exact ? rawLength !== expected : rawLength > expected) {
     throw new FormatError(

@@ -125,8 +125,8 @@ function readMask(r: ByteReader, ctx: TileContext): { codes: Uint8Array; rawNaN:
   const cells = m * n;
   const width = ctx.dtype === 'f32' ? 4 : 8;
   const at = r.offset;
-  const codedLength = r.u32('mask length');
-  const rawLength = r.u32('mask raw NaN length');
+  const codedLength = r.length('mask length');
+  const rawLength = r.length('mask raw NaN length');
   const coded = r.bytesView(codedLength, 'mask classes');
   const codes = new Uint8Array(cells);
   try {
@@ -256,13 +256,13 @@ function readFactors(r: ByteReader, ctx: TileContext, declared: number, delta: b
 }
 
 /**
- * Read a coded integer stream (u32 length, then the stream) of an m x n
+ * Read a coded integer stream (varint length, then the stream) of an m x n
  * grid into `out`. The length is checked against what is left of the
  * payload before anything is decoded.
  */
 function readCoded(r: ByteReader, what: string, m: number, n: number, codes: Uint8Array | null, out: Int32Array, where: string): void {
   const at = r.offset;
-  const length = r.u32(`${what} length`);
+  const length = r.length(`${what} length`);
   const bytes = r.bytesView(length, `${what} stream`);
   try {
     decodeInts(bytes, m, n, codes, out);

@@ -193,7 +193,7 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
       const row = factorRow(f, k0, size, m, n, delta);
       if (row === null) return null;
       const coded = encodeInts(row, 1, row.length, null);
-      w.u32(coded.length);
+      w.varint(coded.length);
       w.bytes(coded);
       k0 += size;
     }
@@ -203,7 +203,7 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
     else w.f32(corr.step);
     w.u8(corr.predictor);
     const coded = corr.coded ?? encodeInts(corr.q, m, n, t.classes.special > 0 ? t.classes.codes : null);
-    w.u32(coded.length);
+    w.varint(coded.length);
     w.bytes(coded);
   }
   if (corr !== null && corr.exceptions.length > 0) {

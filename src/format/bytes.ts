@@ -4,6 +4,20 @@
  */
 import { FormatCode, FormatError } from '../errors.js';
 
+/** Most bytes of a varint that holds a byte length (a value below 2^32). */
+export const LENGTH_BYTES = 5;
+
+/**
+ * What is wrong with a varint whose last byte `b` is byte `k` (from 0) and
+ * whose value is `v`, or null: not the shortest form (a last byte of 0
+ * after the first), or a value of 2^32 or more.
+ */
+export function varintProblem(b: number, k: number, v: number): string | null {
+  if (b === 0 && k > 0) return 'is not in its shortest form';
+  if (v >= 2 ** 32) return `holds ${v}, not a value below 2^32`;
+  return null;
+}
+
 /** Appends little-endian values to a buffer grown by doubling. */
 export class ByteWriter {
   private buf: Uint8Array;
@@ -64,9 +78,9 @@ export class ByteWriter {
     this.view.setFloat32(this.length, v, true);
     this.length += 4;
   }
-  /** An unsigned integer below 2^28 as a LEB128 varint: 7 bits a byte, low bits first, high bit set on every byte but the last. */
+  /** An unsigned integer below 2^32 as a LEB128 varint: 7 bits a byte, low bits first, high bit set on every byte but the last. */
   varint(v: number): void {
-    this.reserve(4);
+    this.reserve(5);
     while (v >= 0x80) {
       this.buf[this.length++] = (v & 0x7f) | 0x80;
       v >>>= 7;
@@ -178,9 +192,9 @@ export class ByteReader {
     return v;
   }
   /**
-   * A LEB128 varint of at most `maxBytes` bytes (at most 4), in its shortest
+   * A LEB128 varint of at most `maxBytes` bytes (at most 5), in its shortest
    * form: a longer one (a last byte of 0 after the first) is refused, so
-   * every value has one encoding.
+   * every value has one encoding; so is a value of 2^32 or more.
    */
   varint(what = 'a varint', maxBytes = 3): number {
     const at = this.offset;
@@ -189,11 +203,16 @@ export class ByteReader {
       const b = this.u8(what);
       v += (b & 0x7f) * 2 ** (7 * k);
       if (b < 0x80) {
-        if (b === 0 && k > 0) throw new FormatError(FormatCode.Malformed, `${this.where}: ${what} at ${this.unit} ${at} is not in its shortest form`);
+        const problem = varintProblem(b, k, v);
+        if (problem !== null) throw new FormatError(FormatCode.Malformed, `${this.where}: ${what} at ${this.unit} ${at} ${problem}`);
         return v;
       }
     }
     throw new FormatError(FormatCode.Malformed, `${this.where}: ${what} at ${this.unit} ${at} runs over ${maxBytes} bytes`);
+  }
+  /** A byte length: a varint of at most {@link LENGTH_BYTES} bytes, below 2^32. */
+  length(what = 'a length'): number {
+    return this.varint(what, LENGTH_BYTES);
   }
   /** A signed integer stored as the varint of its zigzag code (see ByteWriter.svarint). */
   svarint(what = 'a signed varint', maxBytes = 3): number {

@@ -16,9 +16,9 @@ export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0
 /** Magic bytes that close every archive. */
 export const TAIL_MAGIC = Uint8Array.of(0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a);
 /** Format versions this reader understands. */
-export const VERSIONS = [5] as const;
+export const VERSIONS = [6] as const;
 /** Version written by this writer. */
-export const VERSION = 5;
+export const VERSION = 6;
 export const PROLOGUE_SIZE = 12;
 /** Required flag bit 0: some field stacks more than one slice (spec/FORMAT.md, "Required flags"). */
 export const FLAG_SLICES = 0x1;
@@ -270,13 +270,14 @@ const keyText = new TextDecoder();
  * Walk one MessagePack value without building it, before the decoder sees
  * it: every declared length must fit in the bytes that remain (so a
  * 5-byte array header cannot make a decoder allocate 4 Gi slots), within
- * the limits; maps have string keys, none twice and none `__proto__`;
+ * the limits (binary values within `maxBin`, by default `maxStringBytes`);
+ * maps have string keys, none twice and none `__proto__`;
  * extension types and the never-used byte 0xC1 are refused; nesting is at
  * most {@link MAX_DEPTH}; no byte may follow the value. Returns the number
  * of map entries, which the decoded value must reproduce (a second guard
  * against duplicate keys). Iterative: no input can exhaust the call stack.
  */
-export function scanMessagePack(b: Uint8Array, what: string, label: string, limits: Pick<Limits, 'maxStringBytes' | 'maxTiles' | 'maxFields'>): number {
+export function scanMessagePack(b: Uint8Array, what: string, label: string, limits: Pick<Limits, 'maxStringBytes' | 'maxTiles' | 'maxFields'>, maxBin = limits.maxStringBytes): number {
   const bad = (at: number, problem: string): never => {
     throw new FormatError(FormatCode.Malformed, `${label}: ${what} is not valid MessagePack: ${problem} at block offset ${at}`);
   };
@@ -344,7 +345,7 @@ export function scanMessagePack(b: Uint8Array, what: string, label: string, limi
     else if (h === 0xc1) bad(at, 'the unused type byte 0xc1');
     else bad(at, `an extension type (byte 0x${h.toString(16)}), which this format does not use`);
     if (str >= 0) {
-      if (str > limits.maxStringBytes) throw new FormatError(FormatCode.Limit, `${label}: ${what} string or binary of ${str} bytes at block offset ${at} exceeds the limit of ${limits.maxStringBytes}`);
+      if (str > (h >= 0xc4 && h <= 0xc6 ? maxBin : limits.maxStringBytes)) throw new FormatError(FormatCode.Limit, `${label}: ${what} string or binary of ${str} bytes at block offset ${at} exceeds the limit of ${limits.maxStringBytes}`);
       need(at, str, 'a string or binary value');
       pos += str;
     }
@@ -386,12 +387,12 @@ function countEntries(v: unknown): number {
 }
 
 /** Scan, then decode one block with the decoder's own limits set from ours. */
-function decodeBlock(bytes: Uint8Array, what: string, label: string, limits: Limits): unknown {
-  const entries = scanMessagePack(bytes, what, label, limits);
+function decodeBlock(bytes: Uint8Array, what: string, label: string, limits: Limits, maxBin = limits.maxStringBytes): unknown {
+  const entries = scanMessagePack(bytes, what, label, limits, maxBin);
   const maxLength = Math.max(limits.maxTiles, limits.maxFields);
   const decoder = new Decoder({
     maxStrLength: limits.maxStringBytes,
-    maxBinLength: limits.maxStringBytes,
+    maxBinLength: maxBin,
     maxArrayLength: maxLength,
     maxMapLength: MAX_MAP_ENTRIES,
     maxExtLength: 0,
@@ -478,7 +479,8 @@ export async function readPages(src: ByteSource, c: Container, f: number, pages:
 export function decodePage(bytes: Uint8Array, c: Container, f: number, p: number, label: string, h: FieldHeader = c.header.fields[f], d: FieldDirectory = c.directory.fields[f]): PageIndex {
   const what = `index page ${p} of field ${quoteName(h.name)} (at offset ${d.page_offset[p]})`;
   if (crc32(bytes) !== d.page_crc[p]) throw new FormatError(FormatCode.Checksum, `${label}: ${what}: CRC-32 mismatch`);
-  return checkPage(decodeBlock(bytes, what, label, c.limits), h, d, p, c.limits, label);
+  // A page's binary columns grow with its tiles: they are bounded by the page's length (within maxIndexBytes), not maxStringBytes.
+  return checkPage(decodeBlock(bytes, what, label, c.limits, c.limits.maxIndexBytes), h, d, p, c.limits, label);
 }
 
 /**

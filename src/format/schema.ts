@@ -5,6 +5,7 @@
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { tileGrid, tileShape, type Grid } from '../geometry.js';
 import type { BoundMode, Dtype } from '../types.js';
+import { COLUMN_TYPES, columnBytes, kindParts, PAGE_COLUMNS, type PageColumn, readColumn, tileKind } from './page-columns.js';
 
 /** Free-form attributes: strings, numbers, booleans, or arrays of them. */
 export type Attrs = Record<string, string | number | boolean | (string | number | boolean)[]>;
@@ -430,45 +431,41 @@ function nonEmpty<T extends object>(m: T): T | null {
 }
 
 /**
- * The per-tile columns of an index page as stored, in their order
- * (spec/FORMAT.md, section 7.3): the page is an array of these eight
- * columns, then optionally the prefix column. Offsets are not stored (a
- * page's payloads lie back to back from its run), and `missing` (cells
- * that are not valid) stands for `valid`.
- */
-export const PAGE_COLUMNS = ['length', 'crc', 'method', 'rank', 'missing', 'max_err', 'rmse', 'value_crc'] as const;
-
-/**
  * The smallest binary32 value at or above x (x finite, >= 0; x itself when
- * 0, below the smallest normal binary32 or above the largest): how the writer stores recorded errors,
- * which stay upper bounds of what they measured.
+ * 0, below the smallest normal binary32 or above the largest): how the
+ * writer stores recorded errors (spec/FORMAT.md 7.5, R(x)), which stay upper
+ * bounds of what they measured. A page whose figures are not all binary32
+ * values then stores its error columns as binary64.
  */
 export function up32(x: number): number {
   // Below the smallest normal binary32 (subnormals lose relative precision) the value stays as it is, as binary64.
   if (x < 2 ** -126) return x;
   const f = Math.fround(x);
-  // Beyond the largest binary32 too.
   if (f >= x) return Number.isFinite(f) ? f : x;
   const b = new Float32Array([f]);
   new Uint32Array(b.buffer)[0] += 1;
   return Number.isFinite(b[0]) ? b[0] : x;
 }
 
-/** The on-disk form of an index page: the columns of {@link PAGE_COLUMNS}, errors rounded up to binary32, then the prefix column if any. */
+/**
+ * The on-disk form of an index page (spec/FORMAT.md 7.3): the binary columns
+ * of {@link PAGE_COLUMNS} (errors rounded up to binary32, R(x) of 7.5), then
+ * the prefix column, a MessagePack array, if any.
+ */
 export function pageForDisk(h: Grid, ix: TileColumns, tiles: readonly number[]): unknown[] {
-  const out: unknown[] = [
-    tiles.map((t) => ix.length[t]),
-    tiles.map((t) => ix.crc[t]),
-    tiles.map((t) => ix.method[t]),
-    tiles.map((t) => ix.rank[t]),
-    tiles.map((t) => {
+  const values: Record<PageColumn, number[]> = {
+    length: tiles.map((t) => ix.length[t]),
+    crc: tiles.map((t) => ix.crc[t]),
+    kind: tiles.map((t) => tileKind(ix.method[t], ix.rank[t])),
+    missing: tiles.map((t) => {
       const [m, n] = tileShape(h, t);
       return m * n - ix.valid[t];
     }),
-    tiles.map((t) => up32(ix.max_err[t])),
-    tiles.map((t) => up32(ix.rmse[t])),
-    tiles.map((t) => ix.value_crc[t]),
-  ];
+    max_err: tiles.map((t) => up32(ix.max_err[t])),
+    rmse: tiles.map((t) => up32(ix.rmse[t])),
+    value_crc: tiles.map((t) => ix.value_crc[t]),
+  };
+  const out: unknown[] = PAGE_COLUMNS.map((c) => columnBytes(COLUMN_TYPES[c], values[c]));
   if (ix.prefix) out.push(tiles.map((t) => ix.prefix![t].map((x, q) => (q % 4 >= 2 ? up32(x) : x))));
   return out;
 }
@@ -623,45 +620,37 @@ export function pageTileCount(h: Grid, page: readonly number[], p: number): numb
 }
 
 /**
- * Validate a decoded index page (page p of field h): an array of the eight
- * columns of {@link PAGE_COLUMNS}, each of the page's tile count, then
+ * Validate a decoded index page (page p of field h): an array of the seven
+ * binary columns of {@link PAGE_COLUMNS}, each of the page's tile count, then
  * optionally the prefix column; each tile's figures possible for its
  * shape; the payload lengths filling exactly the page's payload run from
  * the directory, in page order (so no two tiles anywhere share a byte).
- * Returns the page with each tile's offset and valid count worked out.
+ * Returns the page with each tile's offset, method, rank and valid count
+ * worked out.
  */
 export function checkPage(raw: unknown, h: FieldHeader, d: FieldDirectory, p: number, limits: Limits, label: string): PageIndex {
   const where = `${label} index page ${p} of field ${quoteName(h.name)}`;
   if (!Array.isArray(raw) || raw.length < PAGE_COLUMNS.length) fail(where, `is ${describeValue(raw)}, not an array of ${PAGE_COLUMNS.length} columns (${PAGE_COLUMNS.join(', ')})`);
   const tiles = pageTiles(h, d.page, p);
   const n = tiles.length;
-  PAGE_COLUMNS.forEach((c, i) => {
-    const col = raw[i];
-    if (!Array.isArray(col) || col.length !== n) fail(where, `column '${c}' must list ${n} tiles, got ${describeValue(col)}`);
-    for (let k = 0; k < n; k++) {
-      const v = col[k];
-      if (typeof v !== 'number' || Number.isNaN(v)) fail(where, `column '${c}' tile ${tiles[k]} holds ${describeValue(v)}, not a number`);
-    }
-  });
-  const [length, crc, method, rank, missing, maxErr, rmse, valueCrc] = PAGE_COLUMNS.map((_, i) => raw[i] as number[]);
+  const [length, crc, kind, missing, maxErr, rmse, valueCrc] = PAGE_COLUMNS.map((c, i) => readColumn(raw[i], c, n, (what) => fail(where, what)));
+  const method = kind.map((x) => kindParts(x).method);
+  const rank = kind.map((x) => kindParts(x).rank);
   const offset: number[] = [];
   const valid: number[] = [];
   let at = d.data_offset[p];
   for (let k = 0; k < n; k++) {
     const t = tiles[k];
     const len = length[k];
-    if (!Number.isInteger(len) || len < 2) fail(where, `tile ${t} payload length ${len} is not an integer >= 2`);
+    if (len < 2) fail(where, `tile ${t} payload length ${len} is below 2`);
     offset.push(at);
     at += len;
-    if (!Number.isInteger(crc[k]) || crc[k] < 0 || crc[k] > 0xffffffff) fail(where, `tile ${t} crc ${crc[k]} is not a 32-bit value`);
-    if (!Number.isInteger(valueCrc[k]) || valueCrc[k] < 0 || valueCrc[k] > 0xffffffff) fail(where, `tile ${t} value_crc ${valueCrc[k]} is not a 32-bit value`);
     const [m, nn] = tileShape(h, t);
-    if (method[k] !== 0 && method[k] !== 1) fail(where, `tile ${t} method ${method[k]} is not 0 or 1`);
     const r = rank[k];
-    if (!Number.isInteger(r) || r < 0 || r > Math.min(m, nn) || (method[k] === 0 && r !== 0)) fail(where, `tile ${t} rank ${r} is impossible for a method ${method[k]} ${m}x${nn} tile`);
+    if (r > Math.min(m, nn)) fail(where, `tile ${t} kind ${kind[k]} (rank ${r}) is impossible for a ${m}x${nn} tile`);
     if (r > limits.maxRank) throw new FormatError(FormatCode.Limit, `${where}: tile ${t} rank ${r} exceeds the limit of ${limits.maxRank}`);
     const miss = missing[k];
-    if (!Number.isInteger(miss) || miss < 0 || miss > m * nn) fail(where, `tile ${t} missing count ${miss} is impossible for a ${m}x${nn} tile`);
+    if (miss > m * nn) fail(where, `tile ${t} missing count ${miss} is impossible for a ${m}x${nn} tile`);
     const v = m * nn - miss;
     valid.push(v);
     for (const [name, x] of [['max_err', maxErr[k]], ['rmse', rmse[k]]] as const) {

@@ -79,8 +79,9 @@ describe(`a 256x256 window of a ${SIDE}x${SIDE} archive over HTTP`, () => {
     );
     expect(fetched).toBeLessThanOrEqual(budget);
     expect(server.requests).toBeLessThanOrEqual(4);
-    // The budget has teeth: the index pages alone, read whole as version 1 read its index, exceed it three times over.
-    expect(index).toBeGreaterThan(3 * budget);
+    // The budget has teeth: the index pages alone, read whole as version 1 read its index, exceed it more than
+    // twice over (46144 bytes against 16647 with version 6's binary columns; three times over before them).
+    expect(index).toBeGreaterThan(2.5 * budget);
     // Every byte the server sent reached the reader, and nothing else was fetched.
     expect(src.bytesFetched).toBe(openBytes + fetched);
 

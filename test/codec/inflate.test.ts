@@ -205,8 +205,8 @@ describe('hand-built streams (RFC 1951)', () => {
 describe('readSection bounds the allocation by what a stream can hold', () => {
   function section(declared: number, stored: Uint8Array): ByteReader {
     const w = new ByteWriter();
-    w.u32(declared);
-    w.u32(stored.length);
+    w.varint(declared);
+    w.varint(stored.length);
     w.bytes(stored);
     return new ByteReader(w.finish(), 'tile 3', 100, 'file offset');
   }

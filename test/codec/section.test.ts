@@ -1,5 +1,5 @@
 /**
- * Compressed sections (u32 raw length, u32 stored length, raw DEFLATE stream
+ * Compressed sections (varint raw length, varint stored length, raw DEFLATE stream
  * of RFC 1951) from src/codec/section.ts.
  *
  * RFC 1951 facts used (from memory): a block starts with BFINAL (1 bit) and
@@ -19,8 +19,8 @@ import { writeSection } from '../../src/codec/section-write.js';
 /** A section with any declared raw length around any stored bytes. */
 function section(declared: number, stored: Uint8Array | number[]): Uint8Array {
   const w = new ByteWriter();
-  w.u32(declared);
-  w.u32(stored.length);
+  w.varint(declared);
+  w.varint(stored.length);
   w.bytes(Uint8Array.from(stored));
   return w.finish();
 }
@@ -135,11 +135,12 @@ describe('readSection', () => {
     // An empty stored stream.
     expectFormat(thrown(() => readSection(new ByteReader(section(0, []), 't'), 'v', 0)), FormatCode.Malformed);
     const w = new ByteWriter();
-    w.u32(4);
-    w.u32(1000);
+    w.varint(4);
+    w.varint(1000);
     w.bytes(new Uint8Array(10));
     expectFormat(thrown(() => readSection(new ByteReader(w.finish(), 't'), 'v', 4)), FormatCode.Truncated);
-    expectFormat(thrown(() => readSection(new ByteReader(new Uint8Array(6), 't'), 'v', 4)), FormatCode.Truncated);
+    // A stored length whose varint runs past the end (its only byte has the continuation bit set).
+    expectFormat(thrown(() => readSection(new ByteReader(Uint8Array.of(4, 0x80), 't'), 'v', 4)), FormatCode.Truncated);
   });
 
   it('random bytes after a valid header never escape as anything but FormatError', () => {

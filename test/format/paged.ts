@@ -1,5 +1,5 @@
 /**
- * Version 4 archives taken apart and put back together for the tests: the
+ * Version 6 archives taken apart and put back together for the tests: the
  * layout spec/FORMAT.md documents (12-byte prologue; payloads written page
  * by page; MessagePack index pages, header and index directory; 24-byte
  * tail: u32 header length, u32 directory length, u16 version, u16 flags,
@@ -13,6 +13,7 @@
  */
 import { decode, encode } from '@msgpack/msgpack';
 import { crc32 } from '../../src/format/crc32.js';
+import { COLUMN_TYPES, columnBytes, kindParts, PAGE_COLUMNS, readColumn } from '../../src/format/page-columns.js';
 
 /**
  * A decoded MessagePack block (header, index directory or page) that the
@@ -97,39 +98,59 @@ export function tileCells(g: Grid, t: number): number {
 }
 
 /** The stored columns of an index page, in their order (spec/FORMAT.md, section 7.3); then optionally `prefix`. */
-export const DISK_PAGE = ['length', 'crc', 'method', 'rank', 'missing', 'max_err', 'rmse', 'value_crc'] as const;
+export const DISK_PAGE = PAGE_COLUMNS;
 
 /**
- * A stored index page (an array of columns) as a map of the logical
- * columns, with each tile's offset (from the page's payload run) and valid
- * count (from `missing`) worked out as a reader does.
+ * A stored index page (an array of binary columns) as a map of the logical
+ * columns, with each tile's offset (from the page's payload run), method and
+ * rank (from `kind`) and valid count (from `missing`) worked out as a reader
+ * does.
  */
 export function keyedPage(raw: Block, g: Grid, p: number, dataOffset: number): Block {
   const tiles = pageTiles(g, p);
   const out: Block = {};
-  DISK_PAGE.forEach((c, i) => (out[c] = raw[i]));
+  const bad = (what: string): never => {
+    throw new Error(`seed page ${p}: ${what}`);
+  };
+  DISK_PAGE.forEach((c, i) => (out[c] = readColumn(raw[i], c, tiles.length, bad)));
   if (raw.length > DISK_PAGE.length) out.prefix = raw[DISK_PAGE.length];
   let at = dataOffset;
   out.offset = out.length.map((l: number) => ((at += l), at - l));
   out.valid = tiles.map((t, k) => tileCells(g, t) - out.missing[k]);
+  out.method = out.kind.map((x: number) => kindParts(x).method);
+  out.rank = out.kind.map((x: number) => kindParts(x).rank);
   delete out.missing;
+  delete out.kind;
   return out;
 }
 
+/** A column in its stored binary form when its values fit its type (spec/FORMAT.md 7.3); else, a value a test made hostile, as it is. */
+function diskColumn(c: (typeof DISK_PAGE)[number], values: Block): Block {
+  if (!Array.isArray(values)) return values;
+  const type = COLUMN_TYPES[c];
+  const fits = (v: unknown) => typeof v === 'number' && (type === 'error' || (Number.isInteger(v) && v >= 0 && v < 2 ** 32));
+  return values.every(fits) ? columnBytes(type, values) : values;
+}
+
 /**
- * A logical page map back to its stored form: the columns of
- * {@link DISK_PAGE} (`missing` from `valid`, `offset` dropped: it is not
- * stored), then `prefix` if present, then any other keys' values (after an
- * empty prefix column when there is none). Values a test made hostile pass
- * through.
+ * A logical page map back to its stored form: the binary columns of
+ * {@link DISK_PAGE} (`kind` from `method` and `rank`, `missing` from
+ * `valid`, `offset` dropped: it is not stored), then `prefix` if present,
+ * then any other keys' values (after an empty prefix column when there is
+ * none). Values a test made hostile pass through as MessagePack arrays
+ * (a method other than 0 and 1 too: no kind expresses it).
  */
 export function diskPage(pg: Block, g: Grid, p: number): Block {
   if (typeof pg !== 'object' || pg === null || Array.isArray(pg)) return pg;
   const tiles = pageTiles(g, p);
   const valid = pg.valid;
   const missing = Array.isArray(valid) ? valid.map((v: unknown, k: number) => (typeof v === 'number' && k < tiles.length ? tileCells(g, tiles[k]) - v : v)) : valid;
-  const out: Block[] = DISK_PAGE.map((c) => (c === 'missing' ? missing : pg[c]));
-  const extra = Object.keys(pg).filter((k) => !(DISK_PAGE as readonly string[]).includes(k) && !['valid', 'offset', 'prefix'].includes(k));
+  const { method, rank } = pg;
+  const kindOf = (k: number): unknown => (method[k] === 0 && rank[k] === 0 ? 0 : method[k] === 1 && typeof rank[k] === 'number' ? rank[k] + 1 : `method ${method[k]} rank ${rank[k]}`);
+  const kind = Array.isArray(method) && Array.isArray(rank) && method.length === rank.length ? method.map((_: unknown, k: number) => kindOf(k)) : method;
+  const out: Block[] = DISK_PAGE.map((c) => diskColumn(c, c === 'missing' ? missing : c === 'kind' ? kind : pg[c]));
+  const known = ['length', 'crc', 'method', 'rank', 'valid', 'offset', 'prefix', 'max_err', 'rmse', 'value_crc'];
+  const extra = Object.keys(pg).filter((k) => !known.includes(k));
   if ('prefix' in pg || extra.length > 0) out.push(pg.prefix ?? tiles.map(() => []));
   for (const k of extra) out.push(pg[k]);
   return out;

@@ -79,16 +79,17 @@ describe('fuzzing', () => {
           };
           const shares = payloadShares(p);
           if (p[0] === 0) {
-            // Method, flags and the section's two u32 lengths (spec/FORMAT.md, 10.5 and 10.2).
-            expect(shares).toEqual({ factors: 0, residual: 0, exceptions: p.length, framing: 10 });
+            // Method, flags and the section's two length varints (spec/FORMAT.md, 10.5 and 10.2).
+            const values = w.parts[0];
+            expect(shares).toEqual({ factors: 0, residual: 0, exceptions: p.length, framing: values.streamStart });
             continue;
           }
           lowRank++;
           const groups = w.parts.filter((s) => s.name.startsWith('group '));
           expect(prefixLengths(p)).toEqual([w.groupsEnd, ...groups.map((s) => s.end)]);
-          // Framing: per group its step-code varints and a u32 length (10.6.4); the residual's step (4 or 8 bytes), predictor and length (10.6.5); the exceptions section's lengths (10.2).
-          const framing =
-            groups.reduce((sum, g) => sum + (g.lengthAt - g.start) + 4, 0) + (length('residual') > 0 ? (w.residualStepWidth ?? 0) + 5 : 0) + (length('exceptions') > 0 ? 8 : 0);
+          // Framing: per group its step-code varints and length varint (10.6.4); the residual's step (4 or 8 bytes), predictor and length varint (10.6.5); the exceptions section's length varints (10.2).
+          const head = (name: string) => w.parts.filter((s) => s.name === name).reduce((sum, s) => sum + s.streamStart - s.start, 0);
+          const framing = groups.reduce((sum, g) => sum + g.streamStart - g.start, 0) + head('residual') + head('exceptions');
           expect(shares).toEqual({ factors: groups.reduce((sum, s) => sum + s.end - s.start, 0), residual: length('residual'), exceptions: length('exceptions'), framing });
         }
       }

@@ -6,6 +6,7 @@
  * seed archives taken apart and put back with every CRC recomputed
  * (./model.ts), so only the rule under test is broken.
  */
+import { decode } from '@msgpack/msgpack';
 import { deflateSync, inflateSync } from 'fflate';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
@@ -14,7 +15,7 @@ import { DEFAULT_LIMITS, resolveLimits } from '../../src/format/schema.js';
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import { buildSeeds } from './corpus.js';
-import { cloneModel, parse, PayloadFlag, replaceStream, serialize, setCentre, setResidualStep, splice, tileDims, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
+import { cloneModel, layout, pageValues, parse, PayloadFlag, replaceStream, serialize, setCentre, setLength, setResidualStep, splice, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import { decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
 import { crc32 } from '../../src/format/crc32.js';
@@ -241,6 +242,60 @@ describe('the index', () => {
   });
 });
 
+describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
+  // The masked archive has one page of four 3 x 4 tiles; its stored columns are
+  // length, crc, kind, missing, max_err, rmse, value_crc (positions 0 to 6).
+  const withColumn = (c: number, change: (bin: Uint8Array, m: Model) => unknown) =>
+    edit(masked(), (m) => {
+      const page = [...pageValues(m)[0][0]];
+      page[c] = change(page[c], m);
+      m.pageBytes = { '0/0': encodeValue(page) };
+    });
+  /** The four payload lengths of the masked archive, in page order. */
+  const lengths = (m: Model): number[] => m.payloads[0].map((p) => p.length);
+  const cases: [string, number, (bin: Uint8Array, m: Model) => unknown, RegExp][] = [
+    ['a column stored as a MessagePack array (the version 5 form)', 0, (_b, m) => lengths(m), /column 'length' is not a binary value$/],
+    ['a u32 column one byte short', 1, (b) => b.subarray(0, b.length - 1), /column 'crc' holds 15 bytes, not 16 for 4 tiles$/],
+    ['an error column of neither 4 nor 8 bytes a tile', 4, (b) => Uint8Array.of(...b, 0, 0, 0, 0), /column 'max_err' holds 20 bytes, not 0, 16 or 32 for 4 tiles$/],
+    ['a length varint not in its shortest form', 0, (_b, m) => Uint8Array.of(...varintBytes(lengths(m)[0]).map((x) => x | 0x80), 0, ...lengths(m).slice(1).flatMap(varintBytes)), /column 'length': varint 0 at column offset 0 is not in its shortest form$/],
+    ['a varint of six bytes', 2, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x80, 0x00, ...b.subarray(1)), /column 'kind': varint 0 at column offset 0 runs over 5 bytes$/],
+    ['a varint of 2^32', 3, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x10, ...b.subarray(1)), /column 'missing': varint 0 at column offset 0 holds 4294967296, not a value below 2\^32$/],
+    ['bytes left after the varints', 3, (b) => Uint8Array.of(...b, 0), /column 'missing' has 1 bytes left after its 4 varints$/],
+    ['too few varints', 3, (b) => b.subarray(0, 3), /column 'missing': varint 3 needs 1 bytes at column offset 3 but only 0 remain$/],
+    ['a kind whose rank exceeds the tile', 2, (b) => Uint8Array.of(5, ...b.subarray(1)), /tile 0 kind 5 \(rank 4\) is impossible for a 3x4 tile$/],
+    ['a missing count above the tile', 3, (b) => Uint8Array.of(13, ...b.subarray(1)), /tile 0 missing count 13 is impossible for a 3x4 tile$/],
+    ['a negative error in binary32', 5, (b) => Uint8Array.of(0, 0, 0x80, 0xbf, ...b.subarray(4)), /tile 0 rmse -1 is not a finite number >= 0$/],
+    ['an infinite error in binary64', 4, (b) => Uint8Array.from([...new Uint8Array(new Float64Array([Infinity, ...new Float32Array(b.buffer.slice(b.byteOffset + 4, b.byteOffset + 16))]).buffer)]), /tile 0 max_err Infinity is not a finite number >= 0$/],
+  ];
+  for (const [what, c, change, message] of cases) {
+    it(`refuses ${what}, naming the page`, async () => {
+      const e = await refusal(withColumn(c, change));
+      expect(e.code).toBe(FormatCode.Malformed);
+      expect(e.message).toMatch(/^archive index page 0 of field 'sample': /);
+      expect(e.message).toMatch(message);
+    });
+  }
+
+  it('reads an empty error column as zeros, and the writer writes one where every tile decodes exactly (spec 7.3, 7.5)', async () => {
+    const zero = withColumn(5, () => new Uint8Array(0));
+    expect((await (await open(zero)).loadIndex()).fields[0].rmse).toEqual([0, 0, 0, 0]);
+    // Integers within a bound of 0.1 are stored exactly (spec 19, the lattice candidate): both error columns are empty.
+    const exact = pack(Float64Array.from({ length: 36 }, (_, k) => (k * 7) % 11), [6, 6], { bound: 'abs:0.1', tile: 3 });
+    // The one index page lies between the payloads and the header (spec 3): decode the writer's own bytes.
+    const end = 12 + parse(exact).payloads[0].reduce((sum, p) => sum + p.length, 0);
+    const page = decode(exact.subarray(end, layout(exact).headerOffset)) as unknown[];
+    expect([page[4], page[5]]).toEqual([new Uint8Array(0), new Uint8Array(0)]);
+    expect((await (await open(exact)).loadIndex()).fields[0].max_err).toEqual([0, 0, 0, 0]);
+  });
+
+  it('reads an error column written in binary64 as the same figures (a writer may; spec 7.3)', async () => {
+    const wide = withColumn(4, (b) => new Uint8Array(new Float64Array(new Float32Array(b.buffer.slice(b.byteOffset, b.byteOffset + b.length))).buffer));
+    const [a, b] = [await open(masked()), await open(wide)];
+    expect((await b.loadIndex()).fields[0].max_err).toEqual((await a.loadIndex()).fields[0].max_err);
+    expect(await values(wide)).toEqual(await values(masked()));
+  });
+});
+
 describe('the header', () => {
   it('takes the fill value as nil or absent, a number (spec 6.2) or 8 bytes of binary64 (the reference writer)', async () => {
     const want = await values(masked());
@@ -320,14 +375,11 @@ describe('tile payloads', () => {
       let raw: Uint8Array = inflateSync(p.subarray(s.streamStart, s.end));
       raw = change(raw) ?? raw;
       const stored = deflateSync(raw);
-      const head = new Uint8Array(8);
-      new DataView(head.buffer).setUint32(0, raw.length, true);
-      new DataView(head.buffer).setUint32(4, stored.length, true);
-      return splice(p, s.start, s.end, Uint8Array.of(...head, ...stored));
+      return splice(p, s.start, s.end, Uint8Array.of(...varintBytes(raw.length), ...varintBytes(stored.length), ...stored));
     });
   }
 
-  /** Replace the stream of a coded part (its length word follows) with `stream(old)`. */
+  /** Replace the stream of a coded part (its length varint follows) with `stream(old)`. */
   function editStream(bytes: Uint8Array, f: number, t: number, name: string, stream: (old: Uint8Array) => Uint8Array): Uint8Array {
     return editPayload(bytes, f, t, (p, w) => {
       const s = part(w, name);
@@ -363,7 +415,7 @@ describe('tile payloads', () => {
     expect(e.message).toMatch(/raw NaN 0 of the mask holds the number 2.5, not a NaN/);
   });
 
-  it('refuses a raw NaN length word that does not match the raw NaN cells of the class map', async () => {
+  it('refuses a raw NaN length that does not match the raw NaN cells of the class map', async () => {
     for (const [lie, cut] of [
       [16, false],
       [0, false],
@@ -371,8 +423,7 @@ describe('tile payloads', () => {
     ] as const) {
       const b = editPayload(noFill(true), 0, 0, (p, w) => {
         const out = cut ? splice(p, w.mask!.rawStart, w.mask!.rawEnd, new Uint8Array(0)) : p;
-        new DataView(out.buffer).setUint32(w.mask!.rawLengthAt, lie, true);
-        return out;
+        return setLength(out, w.mask!.rawLengthAt, lie);
       });
       const e = await refusal(b);
       expect(e.code).toBe(FormatCode.Malformed);
@@ -397,11 +448,11 @@ describe('tile payloads', () => {
     expect((await refusal(none)).message).toMatch(/^archive field 'field' tile 0: mask at (payload|file) offset \d+ marks no cell missing$/);
   });
 
-  it('refuses a coded stream whose length word runs past the payload, before decoding anything', async () => {
+  it('refuses a coded stream whose length runs past the payload, before decoding anything', async () => {
     for (const name of ['residual', 'group 0', 'mask']) {
       const r = withPart(name);
       for (const huge of [2 ** 32 - 1, 2 ** 31]) {
-        const b = editPayload(r.bytes, r.f, r.t, (p, w) => void new DataView(p.buffer, p.byteOffset).setUint32(part(w, name).lengthAt, huge, true));
+        const b = editPayload(r.bytes, r.f, r.t, (p, w) => setLength(p, part(w, name).lengthAt, huge));
         const e = await refusal(b);
         expect(e.code, name).toBe(FormatCode.Truncated);
         const label = name === 'mask' ? 'mask classes' : `${name === 'group 0' ? 'factor group 0' : name} stream`;
@@ -583,9 +634,7 @@ describe('tile payloads', () => {
       const r = withPart(name);
       const b = editPayload(r.bytes, r.f, r.t, (p, w) => {
         const s = part(w, name);
-        const q = splice(p, s.end, s.end, Uint8Array.of(0));
-        new DataView(q.buffer).setUint32(s.lengthAt, s.end - s.streamStart + 1, true);
-        return q;
+        return setLength(splice(p, s.end, s.end, Uint8Array.of(0)), s.lengthAt, s.end - s.streamStart + 1);
       });
       expect((await refusal(b)).message, name).toMatch(new RegExp(`${what} has 1 bytes after the end of the stream of its DEFLATE data \\(section at (payload|file) offset \\d+\\)`));
     }

@@ -2,7 +2,7 @@
  * An archive taken apart for mutation: prologue words, payloads, header and
  * index as decoded values; and put back together with every offset, length
  * and CRC recomputed (or, on request, left as the mutation set them). The
- * layout is the one spec/FORMAT.md documents for version 5 (12-byte
+ * layout is the one spec/FORMAT.md documents for version 6 (12-byte
  * prologue, payloads page by page, MessagePack index pages, header and index
  * directory, 24-byte tail). The index is held as one logical index (columns
  * over all tiles, test/format/paged.ts) and split into its pages when put
@@ -223,25 +223,26 @@ export function resealTail(b: Uint8Array): void {
 
 /**
  * A part of a tile payload that holds a length-prefixed stream:
- * - 'deflate': a DEFLATE section (exact values, exceptions): u32 raw length,
- *   u32 stored length, stored bytes;
+ * - 'deflate': a DEFLATE section (exact values, exceptions): varint raw
+ *   length, varint stored length, stored bytes;
  * - 'coded': a coded stream (mask class map, factor group, residual) with
- *   the words before its u32 length (mask: none, the raw NaN length word
- *   follows the coded length; group: step codes; residual: f64 step and u8 predictor).
+ *   the bytes before its varint length (mask: none, the raw NaN length
+ *   varint follows the coded length; group: step codes; residual: step and
+ *   u8 predictor).
  */
 export interface PartRef {
   name: string;
   kind: 'deflate' | 'coded';
   /** Where the part begins (its first word). */
   start: number;
-  /** The u32 word that counts the stream bytes (DEFLATE: the stored length). */
+  /** The varint that counts the stream bytes (DEFLATE: the stored length). */
   lengthAt: number;
   /** First byte of the stream, and the end of the stream. */
   streamStart: number;
   end: number;
 }
 
-/** A tile payload taken apart (the layout of spec/FORMAT.md section 10, format 5, written out here from the spec, not taken from the library). */
+/** A tile payload taken apart (the layout of spec/FORMAT.md section 10, format 6, written out here from the spec, not taken from the library). */
 export interface PayloadLayout {
   method: number;
   flags: number;
@@ -253,7 +254,7 @@ export interface PayloadLayout {
   fixedEnd: number;
   /** Every length-prefixed part, in payload order. */
   parts: PartRef[];
-  /** The raw NaN bits after a coded mask: the u32 word that counts them, and where they are. */
+  /** The raw NaN bits after a coded mask: the varint that counts them, and where they are. */
   mask?: { rawLengthAt: number; rawStart: number; rawEnd: number };
   /** The u8 group count (method 1, rank above 0; -1 when absent). */
   groupCountAt: number;
@@ -296,25 +297,23 @@ export function varintBytes(v: number): number[] {
 
 /**
  * Walk a tile payload of method 0 or 1. Throws a RangeError if a length
- * word points past the end (a payload an earlier mutation already broke);
+ * points past the end (a payload an earlier mutation already broke);
  * seed payloads walk to exactly their end.
  */
 export function walk(p: Uint8Array): PayloadLayout {
-  const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
-  const u32 = (at: number): number => {
-    if (at + 4 > p.length) throw new RangeError(`payload of ${p.length} bytes has no u32 at ${at}`);
-    return d.getUint32(at, true);
-  };
   const parts: PartRef[] = [];
   const deflate = (name: string, at: number): number => {
-    const end = at + 8 + u32(at + 4);
+    const lengthAt = at + readVarint(p, at).bytes;
+    const stored = readVarint(p, lengthAt);
+    const streamStart = lengthAt + stored.bytes;
+    const end = streamStart + stored.value;
     if (end > p.length) throw new RangeError(`${name} ends at ${end}, past the payload's ${p.length} bytes`);
-    parts.push({ name, kind: 'deflate', start: at, lengthAt: at + 4, streamStart: at + 8, end });
+    parts.push({ name, kind: 'deflate', start: at, lengthAt, streamStart, end });
     return end;
   };
-  /** A coded stream whose u32 length is at `lengthAt`, after `start`. */
-  const coded = (name: string, start: number, lengthAt: number, streamStart = lengthAt + 4): number => {
-    const end = streamStart + u32(lengthAt);
+  /** A coded stream whose length varint is at `lengthAt`, after `start`; the stream starts after that varint unless `streamStart` says otherwise. */
+  const coded = (name: string, start: number, lengthAt: number, streamStart = lengthAt + readVarint(p, lengthAt).bytes): number => {
+    const end = streamStart + readVarint(p, lengthAt).value;
     if (end > p.length) throw new RangeError(`${name} ends at ${end}, past the payload's ${p.length} bytes`);
     parts.push({ name, kind: 'coded', start, lengthAt, streamStart, end });
     return end;
@@ -334,10 +333,13 @@ export function walk(p: Uint8Array): PayloadLayout {
   if (at > p.length) throw new RangeError('centre cut short');
   let mask: PayloadLayout['mask'];
   if (flags & PayloadFlag.Mask) {
-    const codedEnd = coded('mask', at, at, at + 8);
-    const rawEnd = codedEnd + u32(at + 4);
+    // Class map length, raw NaN length (two varints), then the class map and the raw NaN bits.
+    const rawLengthAt = at + readVarint(p, at).bytes;
+    const raw = readVarint(p, rawLengthAt);
+    const codedEnd = coded('mask', at, at, rawLengthAt + raw.bytes);
+    const rawEnd = codedEnd + raw.value;
     if (rawEnd > p.length) throw new RangeError(`mask raw NaN bits end at ${rawEnd}, past the payload's ${p.length} bytes`);
-    mask = { rawLengthAt: at + 4, rawStart: codedEnd, rawEnd };
+    mask = { rawLengthAt, rawStart: codedEnd, rawEnd };
     at = rawEnd;
   }
   let groupCountAt = -1;
@@ -417,9 +419,12 @@ export function splice(p: Uint8Array, from: number, to: number, bytes: Uint8Arra
   return out;
 }
 
-/** Replace the stream of a part by `stream`, with its length word set to `declared` (default: the stream's length). */
+/** Replace the varint at `at` by the shortest varint of `v` (which may be longer or shorter). */
+export function setLength(p: Uint8Array, at: number, v: number): Uint8Array {
+  return splice(p, at, at + readVarint(p, at).bytes, Uint8Array.from(varintBytes(v)));
+}
+
+/** Replace the stream of a part by `stream`, with its length varint set to `declared` (default: the stream's length). */
 export function replaceStream(p: Uint8Array, part: PartRef, stream: Uint8Array, declared = stream.length): Uint8Array {
-  const out = splice(p, part.streamStart, part.end, stream);
-  new DataView(out.buffer).setUint32(part.lengthAt, declared >>> 0, true);
-  return out;
+  return setLength(splice(p, part.streamStart, part.end, stream), part.lengthAt, declared);
 }

@@ -19,7 +19,7 @@ import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
 import { decodeClasses, decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
 import { crc32 } from '../../src/format/crc32.js';
-import { cloneModel, directoryValue, headerValue, layout, pageValues, PayloadFlag, readVarint, replaceStream, resealTail, serialize, setCentre, setResidualStep, splice, TAIL, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
+import { cloneModel, directoryValue, headerValue, layout, pageValues, PayloadFlag, readVarint, replaceStream, resealTail, serialize, setCentre, setLength, setResidualStep, splice, TAIL, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import type { Rng } from './rng.js';
 
 /** Numbers that sit on a boundary of some check. */
@@ -191,6 +191,11 @@ function setU32(b: Uint8Array, at: number, v: number): void {
   new DataView(b.buffer, b.byteOffset, b.byteLength).setUint32(at, v >>> 0, true);
 }
 
+/** A DEFLATE section: varints of the raw length and of the stored length, then the stored bytes (spec/FORMAT.md 10.2). */
+function sectionBytes(raw: number, stored: Uint8Array): Uint8Array {
+  return Uint8Array.of(...varintBytes(raw), ...varintBytes(stored.length), ...stored);
+}
+
 /** A DEFLATE stream of `raw` made some other valid way (stored blocks, zlib strategies, fflate levels). */
 function otherStream(raw: Uint8Array, rng: Rng): Uint8Array {
   const how = rng.int(3);
@@ -219,7 +224,6 @@ const CAUGHT = ' (changed values must be caught)';
 
 /** Rewrite one DEFLATE section of a payload: mutate its raw data, or its stream, or its declared lengths. */
 function mutateDeflate(p: Uint8Array, s: PartRef, rng: Rng): { payload: Uint8Array; what: string } {
-  const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
   const stored = p.subarray(s.streamStart, s.end);
   let raw: Uint8Array = inflateSync(stored);
   let what = `section ${s.name}`;
@@ -244,7 +248,7 @@ function mutateDeflate(p: Uint8Array, s: PartRef, rng: Rng): { payload: Uint8Arr
     what += ' written as another valid stream';
   } else if (kind === 'stream bytes') {
     next = mutateBytes(stored.slice(), rng);
-    declared = d.getUint32(s.start, true);
+    declared = readVarint(p, s.start).value;
     what += ` stream bytes${CAUGHT}`;
   } else if (kind === 'trailing') {
     next = Uint8Array.of(...stored, ...new Uint8Array(rng.range(1, 4)).map(() => rng.int(256)));
@@ -252,19 +256,12 @@ function mutateDeflate(p: Uint8Array, s: PartRef, rng: Rng): { payload: Uint8Arr
     what += ` with bytes after its stream${REFUSE}`;
   } else {
     next = stored.slice();
-    declared = rng.pick([0, 1, 2 ** 31, 2 ** 32 - 1, d.getUint32(s.start, true) + rng.pick([-1, 1])]) >>> 0;
+    declared = rng.pick([0, 1, 2 ** 31, 2 ** 32 - 1, readVarint(p, s.start).value + rng.pick([-1, 1])]) >>> 0;
     const lieStored = rng.chance(0.5);
     what += lieStored ? ` stored length${CAUGHT}` : ` raw length ${declared}${REFUSE}`;
-    if (lieStored) {
-      const out = p.slice();
-      setU32(out, s.lengthAt, rng.pick([0, 1, stored.length + 1, stored.length - 1, 2 ** 32 - 1]));
-      return { payload: out, what };
-    }
+    if (lieStored) return { payload: setLength(p, s.lengthAt, rng.pick([0, 1, stored.length + 1, stored.length - 1, 2 ** 32 - 1]) >>> 0), what };
   }
-  const head = new Uint8Array(8);
-  setU32(head, 0, declared ?? raw.length);
-  setU32(head, 4, next.length);
-  return { payload: splice(p, s.start, s.end, Uint8Array.of(...head, ...next)), what };
+  return { payload: splice(p, s.start, s.end, sectionBytes(declared ?? raw.length, next)), what };
 }
 
 /** What a coded stream holds: the grid it codes and, for the residual, which cells it skips. */
@@ -332,6 +329,7 @@ function mutateCoded(p: Uint8Array, layout: PayloadLayout, s: PartRef, m: number
     [1, 'truncated'],
     [1, 'trailing'],
     [1, 'huge length'],
+    [1, 'long varint'],
     [1, 'empty'],
   ]);
   if (kind === 'flip') {
@@ -353,10 +351,8 @@ function mutateCoded(p: Uint8Array, layout: PayloadLayout, s: PartRef, m: number
     return { payload: out, what: `${what} values changed and coded again${CAUGHT}` };
   }
   if (kind === 'length off by one') {
-    const out = p.slice();
     const off = rng.pick([-1, 1]);
-    setU32(out, s.lengthAt, stream.length + off);
-    return { payload: out, what: `${what} length word ${off > 0 ? '+1' : '-1'}${REFUSE}` };
+    return { payload: setLength(p, s.lengthAt, (stream.length + off) >>> 0), what: `${what} length ${off > 0 ? '+1' : '-1'}${REFUSE}` };
   }
   if (kind === 'truncated') {
     const cut = rng.range(1, Math.min(3, stream.length));
@@ -367,9 +363,13 @@ function mutateCoded(p: Uint8Array, layout: PayloadLayout, s: PartRef, m: number
     return { payload: replaceStream(p, s, Uint8Array.of(...stream, ...extra)), what: `${what} with bytes after its stream${REFUSE}` };
   }
   if (kind === 'huge length') {
-    const out = p.slice();
-    setU32(out, s.lengthAt, rng.pick([2 ** 32 - 1, 2 ** 31, p.length - s.streamStart + 1]));
-    return { payload: out, what: `${what} length word past the payload${REFUSE}` };
+    return { payload: setLength(p, s.lengthAt, rng.pick([2 ** 32 - 1, 2 ** 31, p.length - s.streamStart + 1])), what: `${what} length past the payload${REFUSE}` };
+  }
+  if (kind === 'long varint') {
+    // The right length in a longer form than its shortest (a last byte of 0), or a varint of 6 bytes, or one holding 2^32 or more: spec/FORMAT.md section 2.
+    const short = varintBytes(stream.length);
+    const bytes = rng.pick([[...short.map((b) => b | 0x80), 0], [0x80, 0x80, 0x80, 0x80, 0x80, 0x00], [0x80, 0x80, 0x80, 0x80, 0x10]]);
+    return { payload: splice(p, s.lengthAt, s.lengthAt + readVarint(p, s.lengthAt).bytes, Uint8Array.from(bytes)), what: `${what} length varint ${bytes.map((b) => b.toString(16)).join(' ')}${REFUSE}` };
   }
   return { payload: replaceStream(p, s, new Uint8Array(0)), what: `${what} stream empty${REFUSE}` };
 }
@@ -380,15 +380,12 @@ function mutateRawNaN(p: Uint8Array, layout: PayloadLayout, width: number, rng: 
   const have = mask.rawEnd - mask.rawStart;
   const kind = rng.pick(['word', 'more bits', 'fewer bits']);
   if (kind === 'word' || (kind === 'fewer bits' && have === 0)) {
-    const out = p.slice();
-    const lie = rng.pick([have + 1, have - 1, have + width, have - width, 2 ** 32 - 1]);
-    setU32(out, mask.rawLengthAt, lie);
-    return { payload: out, what: `mask raw NaN length word ${lie >>> 0} for ${have} bytes${REFUSE}` };
+    const lie = rng.pick([have + 1, have - 1, have + width, have - width, 2 ** 32 - 1]) >>> 0;
+    return { payload: setLength(p, mask.rawLengthAt, lie), what: `mask raw NaN length ${lie} for ${have} bytes${REFUSE}` };
   }
   // Length word and bits agree, but not with the number of raw NaN cells in the class map.
   const bits = kind === 'more bits' ? new Uint8Array(width).fill(0xff) : new Uint8Array(0);
-  const out = splice(p, kind === 'more bits' ? mask.rawEnd : mask.rawEnd - width, mask.rawEnd, bits);
-  setU32(out, mask.rawLengthAt, have + (kind === 'more bits' ? width : -width));
+  const out = setLength(splice(p, kind === 'more bits' ? mask.rawEnd : mask.rawEnd - width, mask.rawEnd, bits), mask.rawLengthAt, have + (kind === 'more bits' ? width : -width));
   return { payload: out, what: `mask raw NaN bits: ${kind === 'more bits' ? 'one value more' : 'one value fewer'} than its raw NaN cells${REFUSE}` };
 }
 
@@ -484,11 +481,7 @@ function semantic(m: Model, seed: Model, rng: Rng): string {
     if (!s) return false;
     const raw = inflateSync(p.subarray(s.streamStart, s.end));
     if (!edit(raw)) return false;
-    const stored = deflateSync(raw, { level: 6 });
-    const head = new Uint8Array(8);
-    setU32(head, 0, raw.length);
-    setU32(head, 4, stored.length);
-    m.payloads[f][t] = splice(p, s.start, s.end, Uint8Array.of(...head, ...stored));
+    m.payloads[f][t] = splice(p, s.start, s.end, sectionBytes(raw.length, deflateSync(raw, { level: 6 })));
     return true;
   };
   // Tile sizes from the seed's header (an earlier edit may have made this case's header anything).
@@ -767,12 +760,12 @@ function prefixCut(m: Model, rng: Rng, touch: (key: string) => void): string {
 /** Container-level words: versions, flags, block order, a gap, a stale CRC. */
 function containerWords(m: Model, rng: Rng): string {
   const which = rng.pick(['version', 'flags', 'order', 'gap', 'stale crc', 'tail version']);
-  if (which === 'version') m.version = rng.pick([0, 1, 2, 3, 4, 6, 0xffff]);
+  if (which === 'version') m.version = rng.pick([0, 1, 2, 3, 4, 5, 7, 0xffff]);
   else if (which === 'flags') m.flags = 1 << (1 + rng.int(15)); // bit 0 (slices) is known; every other bit must be refused
   else if (which === 'order') m.headerFirst = true;
   else if (which === 'gap') m.gap = new Uint8Array(rng.range(1, 64)).map(() => rng.int(256));
   else if (which === 'stale crc') m.fixCrcs = false;
-  else m.tailVersion = rng.pick([0, 1, 2, 3, 4, 6]);
+  else m.tailVersion = rng.pick([0, 1, 2, 3, 4, 5, 7]);
   return `container ${which}`;
 }
 
