@@ -11,13 +11,13 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ArchiveBuilder, MemorySink, open } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
-import { CLI_TIMEOUT, ensureBuilt, ROOT, rf, tempDir, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, ROOT, rfIn, tempDir, volcano } from './helpers.js';
 
 const { dir, remove } = tempDir();
 const vol = volcano();
 const [ROWS, COLS] = vol.shape;
 
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   writeFileSync(join(dir, 'volcano.npy'), formatNpy({ data: vol.values, shape: vol.shape, dtype: 'f64' }));
 });
@@ -25,8 +25,8 @@ afterAll(remove);
 
 describe('show in words', { timeout: CLI_TIMEOUT }, () => {
   it('states the share of tiles with a low-rank part, their mean rank and the bytes by role, as the index says', async () => {
-    expect(rf(['pack', 'volcano.npy', '-o', 'p.rfz', '--bound', 'psnr:40', '--tile', '16'], dir).code).toBe(0);
-    const r = rf(['show', 'p.rfz'], dir);
+    expect((await rfIn(['pack', 'volcano.npy', '-o', 'p.rfz', '--bound', 'psnr:40', '--tile', '16'], dir)).code).toBe(0);
+    const r = await rfIn(['show', 'p.rfz'], dir);
     expect(r.code, r.stderr).toBe(0);
     const ix = (await (await open(readFileSync(join(dir, 'p.rfz')))).loadIndex()).fields[0];
     const low = ix.rank.filter((k, t) => ix.method[t] === 1 && k > 0);
@@ -38,26 +38,26 @@ describe('show in words', { timeout: CLI_TIMEOUT }, () => {
     expect(m).not.toBeNull();
     const sum = m!.slice(1).map(Number).reduce((a, b) => a + b, 0);
     expect(Math.abs(sum - 100)).toBeLessThanOrEqual(2); // four rounded percentages
-    const j = JSON.parse(rf(['show', 'p.rfz', '--json'], dir).stdout);
+    const j = JSON.parse((await rfIn(['show', 'p.rfz', '--json'], dir)).stdout);
     const f = j.fields[0];
     expect(f.use).toEqual({ tiles, lowRank: low.length, meanRank: mean, residualOnly: tiles - low.length - f.exactTiles, exact: f.exactTiles });
     expect(f.bytes.factors + f.bytes.residual + f.bytes.exact + f.bytes.tileHeaders).toBe(f.payloadBytes);
     expect(j.containerBytes).toBe(statSync(join(dir, 'p.rfz')).size - f.payloadBytes);
   });
 
-  it('hides rankfield: attributes from the text, keeps them in --json, and gives each field its size and ratio', () => {
+  it('hides rankfield: attributes from the text, keeps them in --json, and gives each field its size and ratio', async () => {
     const sink = new MemorySink();
     const b = new ArchiveBuilder(sink, { title: 'two fields', 'rankfield:nc_format': 'classic' });
     b.add(vol.values, [ROWS, COLS], { bound: 'abs:0.5', name: 'height', tile: 32, attrs: { units: 'm', 'rankfield:nc_type': 'double' } });
     b.add(Float64Array.from({ length: 120 }, (_, c) => Math.sin(c / 9)), [10, 12], { bound: 'abs:1e-3', name: 'wave', tile: 8 });
     b.finish();
     writeFileSync(join(dir, 'two.rfz'), sink.bytes());
-    const r = rf(['show', 'two.rfz'], dir);
+    const r = await rfIn(['show', 'two.rfz'], dir);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).not.toContain('rankfield:');
     expect(r.stdout).toMatch(/attrs +title="two fields"/);
     expect(r.stdout).toMatch(/attrs +units="m"/);
-    const j = JSON.parse(rf(['show', 'two.rfz', '--json'], dir).stdout);
+    const j = JSON.parse((await rfIn(['show', 'two.rfz', '--json'], dir)).stdout);
     expect(j.attrs['rankfield:nc_format']).toBe('classic');
     expect(j.fields[0].attrs['rankfield:nc_type']).toBe('double');
     for (const f of j.fields) {
@@ -72,7 +72,7 @@ describe('show in words', { timeout: CLI_TIMEOUT }, () => {
 describe('pack of several variables', { timeout: 120_000 }, () => {
   it('prints each variable\'s size and ratio, and the tile shape, layout and threads it chose', async () => {
     const nc = join(ROOT, 'test', 'fixtures', 'netcdf', 'corvane-run-classic.nc');
-    const r = rf(['pack', nc, '-o', 'nc.rfz', '--bound', 'rel:1e-3'], dir);
+    const r = await rfIn(['pack', nc, '-o', 'nc.rfz', '--bound', 'rel:1e-3'], dir);
     expect(r.code, r.stderr).toBe(0);
     const archive = await open(readFileSync(join(dir, 'nc.rfz')));
     const ix = await archive.loadIndex();
@@ -86,7 +86,7 @@ describe('pack of several variables', { timeout: 120_000 }, () => {
     expect(r.stdout).toMatch(/\n  tile .* \(chosen automatically: the shape that packed smallest on a sample; --tile fixes it\)/);
     expect(r.stdout).toMatch(/\n  layout .* \(chosen automatically: the layout that packed smallest on a sample/);
     expect(r.stdout).toMatch(/\n  threads 1 \(chosen automatically: /);
-    const fixed = rf(['pack', nc, '-o', 'nc2.rfz', '--bound', 'rel:1e-3', '--tile', '24', '--layout', 'slices', '--threads', '1'], dir);
+    const fixed = await rfIn(['pack', nc, '-o', 'nc2.rfz', '--bound', 'rel:1e-3', '--tile', '24', '--layout', 'slices', '--threads', '1'], dir);
     expect(fixed.code, fixed.stderr).toBe(0);
     expect(fixed.stdout).not.toContain('chosen automatically');
   });
