@@ -7,15 +7,15 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { corvaneBasin } from '../../src/demo/basin.js';
 import { parseNpy } from '../../src/io/npy.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, rf, tempDir } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, rf, rfIn, tempDir } from './helpers.js';
 
 const { dir, remove } = tempDir();
 beforeAll(ensureBuilt);
 afterAll(remove);
 
 describe('rankfield demo', { timeout: CLI_TIMEOUT }, () => {
-  it('packs at the four bounds, checks each, prints the table and keeps the files with --dir', () => {
-    const r = rf(['demo', '--shape', '64x96', '--dir', 'keep'], dir);
+  it('packs at the four bounds, checks each, prints the table and keeps the files with --dir', async () => {
+    const r = await rfIn(['demo', '--shape', '64x96', '--dir', 'keep'], dir);
     expect(r.code, r.stdout + r.stderr).toBe(0);
     expect(r.stdout).toMatch(/Corvane Basin/);
     expect(r.stdout).toMatch(/bound +bytes +ratio +error \/ E +RMSE degC +PSNR dB +pack +unpack +check/);
@@ -32,16 +32,16 @@ describe('rankfield demo', { timeout: CLI_TIMEOUT }, () => {
     const orig = parseNpy(readFileSync(join(dir, 'keep', 'corvane-sst.npy')));
     expect([orig.shape, orig.dtype]).toEqual([[64, 96], 'f32']);
     // The kept files work with the other commands.
-    const c = rf(['check', 'keep/corvane-sst.rel-1e-3.rfz', '--against', 'keep/corvane-sst.npy'], dir);
+    const c = await rfIn(['check', 'keep/corvane-sst.rel-1e-3.rfz', '--against', 'keep/corvane-sst.npy'], dir);
     expect(c.code, c.stdout).toBe(0);
   });
 
-  it('refuses to overwrite an earlier run in --dir without --force', () => {
-    expectCliError(rf(['demo', '--shape', '64x96', '--dir', 'keep'], dir), /output 'keep\/corvane-sst\.npy' already exists; use --force/);
-    expect(rf(['demo', '--shape', '32x48', '--dir', 'keep', '--force'], dir).code).toBe(0);
+  it('refuses to overwrite an earlier run in --dir without --force', async () => {
+    expectCliError(await rfIn(['demo', '--shape', '64x96', '--dir', 'keep'], dir), /output 'keep\/corvane-sst\.npy' already exists; use --force/);
+    expect((await rfIn(['demo', '--shape', '32x48', '--dir', 'keep', '--force'], dir)).code).toBe(0);
   });
 
-  it('without --dir, works in a temporary folder and removes it', () => {
+  it('without --dir, works in a temporary folder and removes it', async () => {
     const tmp = join(dir, 'tmp');
     mkdirSync(tmp);
     const r = rf(['demo', '--shape', '48x80'], dir, { TMPDIR: tmp });
@@ -52,7 +52,7 @@ describe('rankfield demo', { timeout: CLI_TIMEOUT }, () => {
 });
 
 describe('corvaneBasin', () => {
-  it('is deterministic, marks land with the fill value or NaN, and depends on the seed', () => {
+  it('is deterministic, marks land with the fill value or NaN, and depends on the seed', async () => {
     const a = corvaneBasin({ rows: 40, cols: 60 });
     const b = corvaneBasin({ rows: 40, cols: 60 });
     expect(Buffer.from(a.values.buffer).equals(Buffer.from(b.values.buffer))).toBe(true);

@@ -1,7 +1,9 @@
 /**
  * Bad input of every kind: each gets its own one-line message
  * `rankfield: error: ...`, exit code 2, no stack trace, and no output file
- * (nor a leftover temporary file).
+ * (nor a leftover temporary file). The commands run in this process
+ * (rfIn: the same main() as bin/rankfield, compared with it, errors included,
+ * in in-process.test.ts).
  */
 import { chmodSync, existsSync, mkdirSync, readdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
@@ -11,7 +13,7 @@ import { boundOption } from '../../src/cli/options.js';
 import { FormatCode, FormatError } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { formatRaw } from '../../src/io/raw.js';
-import { ensureBuilt, expectCliError, leftovers, rf, tempDir } from './helpers.js';
+import { ensureBuilt, expectCliError, leftovers, rfIn, tempDir } from './helpers.js';
 
 const { dir, remove } = tempDir();
 const OUT = 'out.rfz';
@@ -82,9 +84,9 @@ const CASES: [string, string[], RegExp][] = [
 describe('every bad input: one line, exit 2, no output', () => {
   const seen: string[] = [];
   for (const [what, args, message] of CASES) {
-    it(what, () => {
+    it(what, async () => {
       const before = readdirSync(dir).sort();
-      const r = rf(args, dir);
+      const r = await rfIn(args, dir);
       seen.push(r.stderr);
       expectCliError(r, message);
       expect(readdirSync(dir).sort()).toEqual(before); // no output file, no temporary file
@@ -116,9 +118,9 @@ describe('--bound values that are not finite numbers are named', () => {
 });
 
 describe('long input is elided in the middle of the error line', () => {
-  it('a 5000-digit shape axis', () => {
+  it('a 5000-digit shape axis', async () => {
     const axis = `7${'0'.repeat(4998)}9`;
-    const r = rf(['pack', 'f.raw', '-o', OUT, '--shape', `12x${axis}`, '--dtype', 'f32', '--bound', 'abs:1'], dir);
+    const r = await rfIn(['pack', 'f.raw', '-o', OUT, '--shape', `12x${axis}`, '--dtype', 'f32', '--bound', 'abs:1'], dir);
     expectCliError(r, /shape .*12x7000.*\.\.\.\[\d+ characters\]\.\.\..*0009/);
     expect(r.stderr.length).toBeLessThanOrEqual(MAX_LINE + '\n'.length + 'rankfield: error: '.length);
   });
@@ -135,17 +137,17 @@ describe('long input is elided in the middle of the error line', () => {
 });
 
 describe('--debug', () => {
-  it('adds the stack trace after the one-line message, still exit 2', () => {
+  it('adds the stack trace after the one-line message, still exit 2', async () => {
     for (const args of [['--debug', 'pack', 'absent.npy', '-o', OUT, '--bound', 'abs:1'], ['pack', 'absent.npy', '-o', OUT, '--bound', 'abs:1', '--debug']]) {
-      const r = rf(args, dir);
+      const r = await rfIn(args, dir);
       expect(r.code).toBe(2);
       expect(r.stderr).toMatch(/^rankfield: error: cannot read 'absent\.npy': no such file or directory\n/);
       expect(r.stderr).toMatch(/\n\s+at /);
     }
   });
 
-  it('is not needed for success', () => {
-    const r = rf(['--debug', 'pack', 'f.npy', '-o', 'dbg.rfz', '--bound', 'abs:0.01'], dir);
+  it('is not needed for success', async () => {
+    const r = await rfIn(['--debug', 'pack', 'f.npy', '-o', 'dbg.rfz', '--bound', 'abs:0.01'], dir);
     expect(r.code, r.stderr).toBe(0);
     expect(existsSync(join(dir, 'dbg.rfz'))).toBe(true);
     expect(leftovers(dir)).toEqual([]);
@@ -169,9 +171,9 @@ describe('file system errors', () => {
     expect(oneLine(new Error('boom\nsecond line'))).toBe('internal error: boom second line (rerun with --debug for the stack trace, and please report it)');
   });
 
-  it.skipIf(process.getuid?.() === 0)('an unreadable input is refused with the path (not testable as root)', () => {
+  it.skipIf(process.getuid?.() === 0)('an unreadable input is refused with the path (not testable as root)', async () => {
     writeFileSync(join(dir, 'locked.npy'), formatNpy({ data: field, shape: [12, 20], dtype: 'f32' }));
     chmodSync(join(dir, 'locked.npy'), 0o000);
-    expectCliError(rf(['pack', 'locked.npy', '-o', 'locked.rfz', '--bound', 'abs:1'], dir), /cannot read 'locked\.npy': permission denied/);
+    expectCliError(await rfIn(['pack', 'locked.npy', '-o', 'locked.rfz', '--bound', 'abs:1'], dir), /cannot read 'locked\.npy': permission denied/);
   });
 });

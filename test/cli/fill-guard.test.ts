@@ -12,7 +12,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { open } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { cdlValues, haveNetcdfBin, ncgen } from '../cdl.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, maxAbsError, rf, tempDir, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, maxAbsError, rfIn, tempDir, volcano } from './helpers.js';
 
 let t: ReturnType<typeof tempDir>;
 const g = volcano();
@@ -25,7 +25,7 @@ function withSentinel(sentinel: number, f32: boolean): Float32Array | Float64Arr
 const HUGE = withSentinel(-1e34, true);
 const NINES = withSentinel(-9999, false);
 
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   t = tempDir('rankfield-guard-');
   writeFileSync(join(t.dir, 'huge.npy'), formatNpy({ data: HUGE, shape: g.shape, dtype: 'f32' }));
@@ -35,14 +35,14 @@ beforeAll(() => {
 afterAll(() => t?.remove());
 
 describe('pack refuses an undeclared fill value', { timeout: CLI_TIMEOUT }, () => {
-  it('a value of magnitude 1e30 or more: one line naming value and count, suggesting --fill and --no-fill', () => {
-    const r = rf(['pack', 'huge.npy', '-o', 'h.rfz', '--bound', 'rel:1e-3'], t.dir);
+  it('a value of magnitude 1e30 or more: one line naming value and count, suggesting --fill and --no-fill', async () => {
+    const r = await rfIn(['pack', 'huge.npy', '-o', 'h.rfz', '--bound', 'rel:1e-3'], t.dir);
     expectCliError(r, /'huge\.npy': 600 cells hold -1e\+34, of magnitude 1e30 or more \(the other values lie in 94 \.\. 195\).*give --fill -1e\+34; to pack it as data, give --no-fill$/);
     expect(() => readFileSync(join(t.dir, 'h.rfz'))).toThrow();
   });
 
   it('with --fill the sentinel is missing: kept bit for bit, and the bound is resolved on the heights alone', async () => {
-    const r = rf(['pack', 'huge.npy', '-o', 'hf.rfz', '--bound', 'rel:1e-2', '--fill', '-1e34'], t.dir);
+    const r = await rfIn(['pack', 'huge.npy', '-o', 'hf.rfz', '--bound', 'rel:1e-2', '--fill', '-1e34'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     const a = await open(join(t.dir, 'hf.rfz'));
     const f = await a.read();
@@ -54,13 +54,13 @@ describe('pack refuses an undeclared fill value', { timeout: CLI_TIMEOUT }, () =
     await a.close();
   });
 
-  it('a single extreme value in many cells far from the rest (-9999 among 94..195 m)', () => {
-    const r = rf(['pack', 'nines.npy', '-o', 'n.rfz', '--bound', 'abs:0.5'], t.dir);
+  it('a single extreme value in many cells far from the rest (-9999 among 94..195 m)', async () => {
+    const r = await rfIn(['pack', 'nines.npy', '-o', 'n.rfz', '--bound', 'abs:0.5'], t.dir);
     expectCliError(r, /600 cells hold -9999, far outside the rest \(the other values lie in 94 \.\. 195\).*--fill -9999.*--no-fill/);
   });
 
   it('--no-fill packs the sentinel as data, under the bound', async () => {
-    const r = rf(['pack', 'nines.npy', '-o', 'nn.rfz', '--bound', 'abs:0.5', '--no-fill'], t.dir);
+    const r = await rfIn(['pack', 'nines.npy', '-o', 'nn.rfz', '--bound', 'abs:0.5', '--no-fill'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     const a = await open(join(t.dir, 'nn.rfz'));
     // abs:E bounds every value, the -9999 cells among them.
@@ -68,8 +68,8 @@ describe('pack refuses an undeclared fill value', { timeout: CLI_TIMEOUT }, () =
     await a.close();
   });
 
-  it('a field without a sentinel packs as before', () => {
-    const r = rf(['pack', 'plain.npy', '-o', 'p.rfz', '--bound', 'abs:0.5'], t.dir);
+  it('a field without a sentinel packs as before', async () => {
+    const r = await rfIn(['pack', 'plain.npy', '-o', 'p.rfz', '--bound', 'abs:0.5'], t.dir);
     expect(r.code, r.stderr).toBe(0);
   });
 });
@@ -88,19 +88,19 @@ data:
 `;
   beforeAll(() => void ncgen(cdl, join(t.dir, 'nines.nc')));
 
-  it('is refused, naming the variable', () => {
-    const r = rf(['pack', 'nines.nc', '-o', 'nc.rfz', '--bound', 'abs:0.5'], t.dir);
+  it('is refused, naming the variable', async () => {
+    const r = await rfIn(['pack', 'nines.nc', '-o', 'nc.rfz', '--bound', 'abs:0.5'], t.dir);
     expectCliError(r, /variable 'height' of 'nines\.nc': 600 cells hold -9999, far outside the rest.*--fill -9999/);
   });
 
   it('--fill works for NetCDF input: the cells come back as missing, and the .nc written back declares _FillValue', async () => {
-    const r = rf(['pack', 'nines.nc', '-o', 'ncf.rfz', '--bound', 'abs:0.5', '--fill', '-9999'], t.dir);
+    const r = await rfIn(['pack', 'nines.nc', '-o', 'ncf.rfz', '--bound', 'abs:0.5', '--fill', '-9999'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     const a = await open(join(t.dir, 'ncf.rfz'));
     expect(a.header.fields[0].fill).toBe(-9999);
     expect(a.header.fields[0].bound.range).toEqual([94, 195]);
     await a.close();
-    expect(rf(['unpack', 'ncf.rfz', '-o', 'back.nc'], t.dir).code).toBe(0);
+    expect((await rfIn(['unpack', 'ncf.rfz', '-o', 'back.nc'], t.dir)).code).toBe(0);
     const { ncdumpHeader } = await import('../cdl.js');
     // CF conventions 1.x section 2.5.1: _FillValue declares the missing cells (from memory).
     expect(ncdumpHeader(join(t.dir, 'back.nc'))).toMatch(/height:_FillValue = -9999\.? ;/);

@@ -1,14 +1,16 @@
 /**
  * Shared helpers of the command-line tests: build dist/ when it is missing or
- * older than src/, run `node bin/rankfield ...` in a folder, load the
+ * older than src/, run `node bin/rankfield ...` in a folder (as a child
+ * process, or in this process through the same main()), load the
  * vega-datasets volcano grid, and assert the one-line error contract.
  */
 import { type ChildProcess, execFileSync, spawn, spawnSync } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { dirname, join, resolve } from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { fileURLToPath, pathToFileURL } from 'node:url';
 import { expect } from 'vitest';
+import type { main as cliMain } from '../../src/cli/main.js';
 
 export const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '../..');
 export const BIN = join(ROOT, 'bin', 'rankfield');
@@ -56,6 +58,36 @@ export function rf(args: string[], cwd: string, env: NodeJS.ProcessEnv = {}): Ru
   const r = spawnSync(process.execPath, [BIN, ...args], { cwd, encoding: 'utf8', env: { ...process.env, ...env }, timeout: 60_000 });
   if (r.error) throw r.error;
   return { code: r.status, stdout: r.stdout, stderr: r.stderr };
+}
+
+/**
+ * Run the command line in this process: main() of the compiled program
+ * (dist/cli/main.js, the code bin/rankfield runs) on `args`, in `cwd`, with
+ * its output collected; the same stdout, stderr and exit code as {@link rf}
+ * (test/cli/in-process.test.ts compares the two), without the 0.3-1 s start
+ * of a node process (several seconds on a busy machine).
+ *
+ * What only a process has stays with {@link rf} / {@link rfStart}: signals,
+ * stdin and stdout pipes, environment variables, several runs at once, the
+ * bin script itself, and the once-per-process sweep of stale temporary files
+ * (src/cli/files.ts). Runs are one at a time: the working folder is changed
+ * for the run and restored after (vitest runs each test file in its own
+ * forked process here, where process.chdir is allowed; tests within a file
+ * run one after another).
+ */
+export async function rfIn(args: string[], cwd: string): Promise<RunResult> {
+  ensureBuilt();
+  const { main } = (await import(pathToFileURL(join(ROOT, 'dist', 'cli', 'main.js')).href)) as { main: typeof cliMain };
+  let stdout = '';
+  let stderr = '';
+  const home = process.cwd();
+  process.chdir(cwd);
+  try {
+    const code = await main(args, { out: (s) => void (stdout += s), err: (s) => void (stderr += s), errTTY: false });
+    return { code, stdout, stderr };
+  } finally {
+    process.chdir(home);
+  }
 }
 
 /** What a child run ended with: its result, and the signal that ended it (null when it exited by itself). */

@@ -33,7 +33,8 @@ afterAll(() => rmSync(dir, { recursive: true, force: true }));
  */
 function interrupt(out: string, signal: NodeJS.Signals, extra: string[] = [], created = false): Promise<{ code: number | null; signal: NodeJS.Signals | null; pid: number | undefined; stderr: string; sawPayloads: boolean }> {
   return new Promise((done, fail) => {
-    const child = spawn(process.execPath, [BIN, 'pack', input, '-o', out, '--bound', 'rel:1e-5', '--shape', `${SIDE}x${SIDE}`, '--dtype', 'f32', ...extra]);
+    // A fixed tile shape: payloads start at once, without the tile trial on a sample (which writes nothing).
+    const child = spawn(process.execPath, [BIN, 'pack', input, '-o', out, '--bound', 'rel:1e-5', '--tile', '64', '--shape', `${SIDE}x${SIDE}`, '--dtype', 'f32', ...extra]);
     let stderr = '';
     let sawPayloads = false;
     child.stderr.on('data', (d) => (stderr += String(d)));

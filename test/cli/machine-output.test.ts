@@ -9,21 +9,21 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { main } from '../../src/cli/main.js';
 import { formatNpy } from '../../src/io/npy.js';
-import { CLI_TIMEOUT, ensureBuilt, rf, tempDir, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, rfIn, tempDir, volcano } from './helpers.js';
 
 const { dir, remove } = tempDir();
 const vol = volcano();
 /** Paths in the test folder: absolute, so that runs in this process and in a child name the same files. */
 const at = (name: string) => join(dir, name);
 
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   writeFileSync(join(dir, 'volcano.npy'), formatNpy({ data: vol.values, shape: vol.shape, dtype: 'f64' }));
-  const r = rf(['pack', 'volcano.npy', '-o', 'v.rfz', '--bound', 'abs:0.5', '--tile', '16'], dir);
+  const r = await rfIn(['pack', 'volcano.npy', '-o', 'v.rfz', '--bound', 'abs:0.5', '--tile', '16'], dir);
   expect(r.code, r.stderr).toBe(0);
   // A plan, and the one part it splits the small grid into (61 rows, bands of 8 tile rows of 16).
-  expect(rf(['plan', 'volcano.npy', '-o', 'v.plan.json', '--bound', 'abs:0.5', '--tile', '16'], dir).code).toBe(0);
-  expect(rf(['pack', 'volcano.npy', '-o', 'part-1.rfz', '--plan', 'v.plan.json', '--part', '1/1'], dir).code).toBe(0);
+  expect((await rfIn(['plan', 'volcano.npy', '-o', 'v.plan.json', '--bound', 'abs:0.5', '--tile', '16'], dir)).code).toBe(0);
+  expect((await rfIn(['pack', 'volcano.npy', '-o', 'part-1.rfz', '--plan', 'v.plan.json', '--part', '1/1'], dir)).code).toBe(0);
   // Three processes (and a build when dist/ is stale): more than the default 10 s of a hook on a busy machine.
 }, 3 * CLI_TIMEOUT);
 afterAll(remove);
@@ -64,7 +64,7 @@ function withoutTimings(v: unknown): unknown {
 describe('--json', () => {
   it.each(CASES)('%s: one JSON object with the documented keys, nothing else on stdout or stderr, stable but for timings', async (name, args, keys) => {
     // First as a user runs it (a child process), then again in this process.
-    const a = rf([...args, '--json'], dir);
+    const a = await rfIn([...args, '--json'], dir);
     expect(a.code, a.stderr).toBe(0);
     expect(a.stderr).toBe('');
     // JSON.parse takes exactly one value: any text before or after it would make it throw.
@@ -95,8 +95,8 @@ describe('--quiet', () => {
     expect([r.code, r.out, r.err]).toEqual([0, '', '']);
   }, CLI_TIMEOUT);
 
-  it('still prints the one error line on failure', () => {
-    const r = rf(['show', 'absent.rfz', '--quiet'], dir);
+  it('still prints the one error line on failure', async () => {
+    const r = await rfIn(['show', 'absent.rfz', '--quiet'], dir);
     expect(r.code).toBe(2);
     expect(r.stderr).toMatch(/^rankfield: error: cannot read 'absent\.rfz'/);
   });
@@ -125,9 +125,9 @@ describe('progress bars', () => {
     }
   }, CLI_TIMEOUT);
 
-  it('a child process whose stderr is a pipe writes no bar (pack in its worker thread, check in the main one)', () => {
+  it('a child process whose stderr is a pipe writes no bar (pack in its worker thread, check in the main one)', async () => {
     for (const args of [['pack', 'volcano.npy', '-o', 'pipe.rfz', '--bound', 'abs:1', '--tile', '16', '--force'], ['check', 'v.rfz']]) {
-      const r = rf(args, dir);
+      const r = await rfIn(args, dir);
       expect(r.code, r.stderr).toBe(0);
       expect(r.stderr).toBe('');
       expect(r.stdout).not.toMatch(/tiles \|/);

@@ -18,7 +18,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { open, restoreMissing } from '../../src/index.js';
 import { parseNpy } from '../../src/io/npy.js';
 import { cdlValues, haveNetcdfBin, ncdumpHeader, ncgen } from '../cdl.js';
-import { CLI_TIMEOUT, ensureBuilt, rf, tempDir, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, rfIn, tempDir, volcano } from './helpers.js';
 
 const RUN = haveNetcdfBin('the CF round-trip tests');
 const g = volcano();
@@ -54,7 +54,7 @@ data:
 `;
 
 let t: ReturnType<typeof tempDir>;
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   t = tempDir('rankfield-cf-');
   if (RUN) ncgen(CDL, join(t.dir, 'volcano.nc'));
@@ -66,18 +66,18 @@ type Attr = { name: string; type: string; value: unknown };
 const attributes = (r: NetCDFReader, name: string) => r.variables.find((v) => v.name === name)!.attributes as unknown as Attr[];
 
 describe.skipIf(!RUN)('CF round trip of an ncgen file', { timeout: CLI_TIMEOUT }, () => {
-  it('under a bound below half the packing step, the stored shorts come back exactly, and every missing cell as itself', () => {
+  it('under a bound below half the packing step, the stored shorts come back exactly, and every missing cell as itself', async () => {
     // abs:0.004 < scale_factor / 2 = 0.005: rounding the decoded physical value gives the stored integer back.
-    const p = rf(['pack', 'volcano.nc', '-o', 'v.rfz', '--bound', 'abs:0.004'], t.dir);
+    const p = await rfIn(['pack', 'volcano.nc', '-o', 'v.rfz', '--bound', 'abs:0.004'], t.dir);
     expect(p.code, p.stderr).toBe(0);
     // Bytes in as stored: 5307 shorts (2 bytes) and 5307 floats (4 bytes).
     expect(p.stdout).toMatch(new RegExp(`: ${N * 2 + N * 4} bytes in,`));
     // show counts the same: per field the stored bytes, against which its ratio is taken.
-    const shown = JSON.parse(rf(['show', 'v.rfz', '--json'], t.dir).stdout) as { rawBytes: number; fields: { name: string; rawBytes: number; payloadBytes: number; ratio: number }[] };
+    const shown = JSON.parse((await rfIn(['show', 'v.rfz', '--json'], t.dir)).stdout) as { rawBytes: number; fields: { name: string; rawBytes: number; payloadBytes: number; ratio: number }[] };
     expect(shown.fields.map((f) => [f.name, f.rawBytes])).toEqual([['height', N * 2], ['level', N * 4]]);
     expect(shown.rawBytes).toBe(N * 6);
     for (const f of shown.fields) expect(f.ratio).toBe(f.rawBytes / f.payloadBytes);
-    const u = rf(['unpack', 'v.rfz', '-o', 'back.nc'], t.dir);
+    const u = await rfIn(['unpack', 'v.rfz', '-o', 'back.nc'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const a = new NetCDFReader(readFileSync(join(t.dir, 'volcano.nc')));
     const b = new NetCDFReader(readFileSync(join(t.dir, 'back.nc')));
@@ -92,9 +92,9 @@ describe.skipIf(!RUN)('CF round trip of an ncgen file', { timeout: CLI_TIMEOUT }
     }
   });
 
-  it('under a looser bound, each short is within the bound plus half a step of the physical value', () => {
-    expect(rf(['pack', 'volcano.nc', '-o', 'w.rfz', '--bound', 'abs:0.5', '--var', 'height'], t.dir).code).toBe(0);
-    expect(rf(['unpack', 'w.rfz', '-o', 'wide.nc'], t.dir).code).toBe(0);
+  it('under a looser bound, each short is within the bound plus half a step of the physical value', async () => {
+    expect((await rfIn(['pack', 'volcano.nc', '-o', 'w.rfz', '--bound', 'abs:0.5', '--var', 'height'], t.dir)).code).toBe(0);
+    expect((await rfIn(['unpack', 'w.rfz', '-o', 'wide.nc'], t.dir)).code).toBe(0);
     const b = new NetCDFReader(readFileSync(join(t.dir, 'wide.nc')));
     const back = b.getDataVariable('height') as number[];
     let changed = 0;
@@ -109,7 +109,7 @@ describe.skipIf(!RUN)('CF round trip of an ncgen file', { timeout: CLI_TIMEOUT }
     expect(changed).toBeGreaterThan(0);
   });
 
-  it('the .nc written back notes in history that its values come from a lossy archive', () => {
+  it('the .nc written back notes in history that its values come from a lossy archive', async () => {
     const h = ncdumpHeader(join(t.dir, 'back.nc'));
     expect(h).toMatch(/:history = "made with ncgen from CDL\\n",?\s*"?\d{4}-\d\d-\d\dT[0-9:]+Z rankfield \S+ unpack: values decoded from a lossy archive \(height abs:0\.004, level abs:0\.004\)/);
   });
@@ -136,8 +136,8 @@ describe.skipIf(!RUN)('CF round trip of an ncgen file', { timeout: CLI_TIMEOUT }
     }
   });
 
-  it('.npy output gives the missing_value cells their own value too', () => {
-    expect(rf(['unpack', 'v.rfz', '--var', 'level', '-o', 'level.npy'], t.dir).code).toBe(0);
+  it('.npy output gives the missing_value cells their own value too', async () => {
+    expect((await rfIn(['unpack', 'v.rfz', '--var', 'level', '-o', 'level.npy'], t.dir)).code).toBe(0);
     const got = parseNpy(new Uint8Array(readFileSync(join(t.dir, 'level.npy'))), 'level.npy').data;
     for (let i = 0; i < FILL_CELLS + MISS_CELLS; i++) expect(got[i]).toBe(role(i) === 'fill' ? -999 : -888);
   });

@@ -1,6 +1,7 @@
 /**
  * NetCDF in and out through the command line: `pack IN.nc`, `unpack` to
- * .npy, a folder, .nc and .csv, --matrix layouts, and bad input. Fixtures:
+ * .npy, a folder, .nc and .csv, --matrix layouts, what pack says of each
+ * variable and of the choices it made itself, and bad input. Fixtures:
  * test/fixtures/netcdf (made by make-fixtures.ts there; see its README).
  * Checks against something outside the project: the original values as read
  * by our reader (itself checked against netcdfjs in test/io), and the .nc
@@ -15,14 +16,14 @@ import { parseNpy } from '../../src/io/npy.js';
 import { readNetcdfHeader, readNetcdfVariable, type NcFile, type NcVariable } from '../../src/io/netcdf-read.js';
 import { writeNetcdf } from '../../src/io/netcdf-write.js';
 import { NC_TYPE_SIZE } from '../../src/io/netcdf-types.js';
-import { CLI_TIMEOUT, ROOT, ensureBuilt, expectCliError, leftovers, rf, tempDir, type RunResult } from './helpers.js';
+import { CLI_TIMEOUT, ROOT, ensureBuilt, expectCliError, leftovers, rfIn, tempDir, type RunResult } from './helpers.js';
 
 const FIX = join(ROOT, 'test', 'fixtures', 'netcdf');
 const CLASSIC = join(FIX, 'corvane-run-classic.nc');
 const WIDE = join(FIX, 'corvane-run-64bit.nc');
 let t: ReturnType<typeof tempDir>;
 
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   t = tempDir('rankfield-nc-');
 });
@@ -37,11 +38,11 @@ afterAll(() => t.remove());
  */
 const PACK_TIMEOUT = 120_000;
 const packed = new Map<string, { out: string; r: RunResult }>();
-function packOnce(file: string, tag: string): { out: string; r: RunResult } {
+async function packOnce(file: string, tag: string): Promise<{ out: string; r: RunResult }> {
   let got = packed.get(file);
   if (got === undefined) {
     const out = join(t.dir, `${tag}.rfz`);
-    got = { out, r: rf(['pack', file, '-o', out, '--bound', 'rel:1e-3'], t.dir) };
+    got = { out, r: await rfIn(['pack', file, '-o', out, '--bound', 'rel:1e-3'], t.dir) };
     packed.set(file, got);
   }
   return got;
@@ -64,7 +65,7 @@ describe.each([
   ['64-bit-offset', WIDE, 'w'],
 ])('pack %s NetCDF, unpack to a folder of .npy', { timeout: PACK_TIMEOUT }, (_kind, file, tag) => {
   it('every variable of 2+ dimensions round-trips within its bound, with attributes and dimension names', async () => {
-    const { out, r } = packOnce(file, tag);
+    const { out, r } = await packOnce(file, tag);
     expect(r.code, r.stderr).toBe(0);
     const bytes = new Uint8Array(readFileSync(file));
     const nc = readNetcdfHeader(bytes, file);
@@ -76,7 +77,7 @@ describe.each([
     const dir = join(t.dir, `${tag}-out`);
     const { mkdirSync } = await import('node:fs');
     mkdirSync(dir);
-    const u = rf(['unpack', out, '-o', `${dir}/`], t.dir);
+    const u = await rfIn(['unpack', out, '-o', `${dir}/`], t.dir);
     expect(u.code, u.stderr).toBe(0);
     for (const name of want) {
       const orig = readNetcdfVariable(bytes, nc, name);
@@ -106,13 +107,13 @@ describe.each([
   ['classic', CLASSIC, 'c'],
   ['64-bit-offset', WIDE, 'w'],
 ])('pack %s NetCDF, unpack -o out.nc: everything restored', { timeout: PACK_TIMEOUT }, (_kind, file, tag) => {
-  it('netcdfjs finds every variable, dimension and global attribute; 1-D and char variables are bit-identical', () => {
-    const { out, r } = packOnce(file, tag);
+  it('netcdfjs finds every variable, dimension and global attribute; 1-D and char variables are bit-identical', async () => {
+    const { out, r } = await packOnce(file, tag);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/carried losslessly \(not packed as fields\): time, depth, lat, lon, station_name, station_lat/);
-    const show = rf(['show', out], t.dir);
+    const show = await rfIn(['show', out], t.dir);
     expect(show.stdout).toMatch(/carried +losslessly .*: time, depth, lat, lon, station_name, station_lat\n/);
-    const u = rf(['unpack', out, '-o', `all-${tag}.nc`], t.dir);
+    const u = await rfIn(['unpack', out, '-o', `all-${tag}.nc`], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const origBytes = new Uint8Array(readFileSync(file));
     const backBytes = new Uint8Array(readFileSync(join(t.dir, `all-${tag}.nc`)));
@@ -152,7 +153,7 @@ describe.each([
 });
 
 describe('carried variables: edge values and limits', { timeout: CLI_TIMEOUT }, () => {
-  it('-0, NaN, infinities, float32 values, scalars and text come back bit for bit', () => {
+  it('-0, NaN, infinities, float32 values, scalars and text come back bit for bit', async () => {
     const f32 = new Uint32Array([0x80000000, 0x7fc00000, 0x7f800000, 0xff800000, 0x3f8ccccd, 0x00000001, 0x7f7fffff, 0xffc00000]);
     const f64 = new Float64Array([-0, NaN, Infinity, -Infinity, 0.1, 5e-324, Number.MAX_VALUE, 1 / 3]);
     const grid = new Float32Array(8 * 8).map((_, i) => Math.sin(i));
@@ -170,9 +171,9 @@ describe('carried variables: edge values and limits', { timeout: CLI_TIMEOUT }, 
       ],
     });
     writeFileSync(join(t.dir, 'edge.nc'), nc);
-    const p = rf(['pack', 'edge.nc', '-o', 'edge.rfz', '--bound', 'abs:0.01'], t.dir);
+    const p = await rfIn(['pack', 'edge.nc', '-o', 'edge.rfz', '--bound', 'abs:0.01'], t.dir);
     expect(p.code, p.stderr).toBe(0);
-    const u = rf(['unpack', 'edge.rfz', '-o', 'edge-back.nc'], t.dir);
+    const u = await rfIn(['unpack', 'edge.rfz', '-o', 'edge-back.nc'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const back = new Uint8Array(readFileSync(join(t.dir, 'edge-back.nc')));
     const na = readNetcdfHeader(nc);
@@ -192,7 +193,7 @@ describe('carried variables: edge values and limits', { timeout: CLI_TIMEOUT }, 
     expect(Object.is((ref.getDataVariable('f') as number[])[0], -0)).toBe(true);
   });
 
-  it('a variable too large to carry is refused, naming it, with no output', () => {
+  it('a variable too large to carry is refused, naming it, with no output', async () => {
     const big = new Float64Array(100_000).map((_, i) => Math.sqrt(i + 0.5));
     const nc = writeNetcdf({
       dims: [{ name: 'x', size: 100_000 }, { name: 'r', size: 4 }, { name: 'c', size: 4 }],
@@ -203,36 +204,60 @@ describe('carried variables: edge values and limits', { timeout: CLI_TIMEOUT }, 
       ],
     });
     writeFileSync(join(t.dir, 'bigaxis.nc'), nc);
-    const r = rf(['pack', 'bigaxis.nc', '-o', 'bad-big.rfz', '--bound', 'abs:1'], t.dir);
+    const r = await rfIn(['pack', 'bigaxis.nc', '-o', 'bad-big.rfz', '--bound', 'abs:1'], t.dir);
     expectCliError(r, /variable 'long_axis' \(double, 100000\) .* more than the 1048576/);
     expect(existsSync(join(t.dir, 'bad-big.rfz'))).toBe(false);
     expect(leftovers(t.dir)).toEqual([]);
   });
 });
 
+describe('pack of several variables, in words', { timeout: PACK_TIMEOUT }, () => {
+  it('prints each variable\'s size and ratio, and the tile shape, layout and threads it chose', async () => {
+    const { out, r } = await packOnce(CLASSIC, 'c');
+    expect(r.code, r.stderr).toBe(0);
+    const archive = await open(readFileSync(out));
+    const ix = await archive.loadIndex();
+    archive.header.fields.forEach((h, i) => {
+      const bytes = ix.fields[i].length.reduce((a, b) => a + b, 0);
+      // Bytes in are counted in the variable's stored type (ssh is stored as short and unpacked to float64).
+      const stored = { byte: 1, short: 2, int: 4, float: 4, double: 8 }[h.attrs['rankfield:nc_type'] as string] ?? (h.dtype === 'f32' ? 4 : 8);
+      const raw = (h.slices ?? 1) * h.shape[0] * h.shape[1] * stored;
+      expect(r.stdout).toMatch(new RegExp(`\\n  ${h.name} \\(.*, layout ${h.layout ?? 'plain'}: [0-9.]+ (bytes|kB), ratio ${(raw / bytes).toFixed(2)}; `));
+    });
+    expect(r.stdout).toMatch(/\n  tile .* \(chosen automatically: the shape that packed smallest on a sample; --tile fixes it\)/);
+    expect(r.stdout).toMatch(/\n  layout .* \(chosen automatically: the layout that packed smallest on a sample/);
+    expect(r.stdout).toMatch(/\n  threads 1 \(chosen automatically: /);
+    const fixed = await rfIn(['pack', CLASSIC, '-o', 'nc2.rfz', '--bound', 'rel:1e-3', '--tile', '24', '--layout', 'slices', '--threads', '1'], t.dir);
+    expect(fixed.code, fixed.stderr).toBe(0);
+    expect(fixed.stdout).not.toContain('chosen automatically');
+  });
+});
+
 describe('layouts and outputs', { timeout: PACK_TIMEOUT }, () => {
   it('--matrix time:space stores time x grid-point matrices and restores the original shape', async () => {
     const out = join(t.dir, 'm.rfz');
-    const r = rf(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01', '--matrix', 'time:space', '--var', 'salt', '--var', 'sst'], t.dir);
+    // A fixed tile (the layout is the point here, not the tile trial, which packOnce's archives go through).
+    const r = await rfIn(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01', '--matrix', 'time:space', '--var', 'salt', '--var', 'sst', '--tile', '6x256'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     const a = await open(new Uint8Array(readFileSync(out)));
     const h = a.field('salt').header;
     expect([h.layout, h.shape, h.slices]).toEqual(['matrix:1', [6, 3 * 24 * 32], undefined]);
-    const u = rf(['unpack', out, '--var', 'salt', '-o', 'salt.npy'], t.dir);
+    const u = await rfIn(['unpack', out, '--var', 'salt', '-o', 'salt.npy'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const npy = parseNpy(new Uint8Array(readFileSync(join(t.dir, 'salt.npy'))), 'salt');
     const bytes = new Uint8Array(readFileSync(CLASSIC));
     const orig = readNetcdfVariable(bytes, readNetcdfHeader(bytes), 'salt');
     expect(npy.shape).toEqual([6, 3, 24, 32]);
     expectWithin(npy.data, orig.values, orig.fill, 0.01);
-    const show = rf(['show', out], t.dir);
+    const show = await rfIn(['show', out], t.dir);
     expect(show.stdout).toMatch(/layout matrix:1/);
   });
 
   it('unpack -o out.nc gives a NetCDF classic file netcdfjs reads: dims, attributes, fill, values', async () => {
     const out = join(t.dir, 'n.rfz');
-    expect(rf(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01'], t.dir).code).toBe(0);
-    const u = rf(['unpack', out, '-o', 'back.nc'], t.dir);
+    // A fixed layout and tile shape: what is checked is the .nc written back, not the trials (packOnce's archives go through them).
+    expect((await rfIn(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01', '--layout', 'slices', '--tile', '24x32'], t.dir)).code).toBe(0);
+    const u = await rfIn(['unpack', out, '-o', 'back.nc'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     // netcdfjs 4.0.0, an independent reader of the classic format.
     const back = new NetCDFReader(readFileSync(join(t.dir, 'back.nc')));
@@ -261,10 +286,10 @@ describe('layouts and outputs', { timeout: PACK_TIMEOUT }, () => {
     expect(varAttributes(ssh)).toEqual(varAttributes(origSsh));
   });
 
-  it('--slices with --region writes a small .csv; a large one is refused without --force', () => {
+  it('--slices with --region writes a small .csv; a large one is refused without --force', async () => {
     const out = join(t.dir, 's.rfz');
-    expect(rf(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01', '--var', 'sst', '--layout', 'slices'], t.dir).code).toBe(0);
-    const u = rf(['unpack', out, '--slices', '1:3', '--region', '0:2,0:3', '-o', 'w.csv'], t.dir);
+    expect((await rfIn(['pack', CLASSIC, '-o', out, '--bound', 'abs:0.01', '--var', 'sst', '--layout', 'slices', '--tile', '24x32'], t.dir)).code).toBe(0);
+    const u = await rfIn(['unpack', out, '--slices', '1:3', '--region', '0:2,0:3', '-o', 'w.csv'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     const lines = readFileSync(join(t.dir, 'w.csv'), 'utf8').trimEnd().split('\n');
     expect(lines[0]).toBe('time,lat,lon,value');
@@ -280,8 +305,8 @@ describe('bad NetCDF input: one line, exit 2, no output', { timeout: CLI_TIMEOUT
     ['a 1-D variable', [CLASSIC, '--var', 'station_lat'], /1 dimension/],
     ['a char variable', [CLASSIC, '--var', 'station_name'], /text \(char\)/],
   ];
-  it.each(cases)('%s', (_what, args, pattern) => {
-    const r = rf(['pack', ...args, '-o', 'bad.rfz', '--bound', 'abs:1'], t.dir);
+  it.each(cases)('%s', async (_what, args, pattern) => {
+    const r = await rfIn(['pack', ...args, '-o', 'bad.rfz', '--bound', 'abs:1'], t.dir);
     expectCliError(r, pattern);
     expect(existsSync(join(t.dir, 'bad.rfz'))).toBe(false);
     expect(leftovers(t.dir)).toEqual([]);

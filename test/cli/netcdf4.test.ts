@@ -11,12 +11,12 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { readNetcdfHeader } from '../../src/io/netcdf-read.js';
 import { cdlValues, haveNetcdfBin, NCCOPY, NCDUMP, ncdumpHeader, ncgen } from '../cdl.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, rf, tempDir, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, rfIn, tempDir, volcano } from './helpers.js';
 
 const RUN = haveNetcdfBin('the NetCDF-4 command-line tests');
 const g = volcano();
 let t: ReturnType<typeof tempDir>;
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   t = tempDir('rankfield-nc4-');
   if (!RUN) return;
@@ -62,14 +62,14 @@ data:
 afterAll(() => t?.remove());
 
 describe.skipIf(!RUN)('NetCDF-4 input', { timeout: CLI_TIMEOUT }, () => {
-  it('packs a chunked, deflated NetCDF-4 file, checks against it, and unpacks to classic with a lossy-archive history line', () => {
-    const p = rf(['pack', 'v4.nc', '-o', 'v4.rfz', '--bound', 'abs:0.5'], t.dir);
+  it('packs a chunked, deflated NetCDF-4 file, checks against it, and unpacks to classic with a lossy-archive history line', async () => {
+    const p = await rfIn(['pack', 'v4.nc', '-o', 'v4.rfz', '--bound', 'abs:0.5'], t.dir);
     expect(p.code, p.stderr).toBe(0);
     expect(p.stdout).toMatch(/height \(Y, X\) 61x87 f32/);
-    const c = rf(['check', 'v4.rfz', '--against', 'v4.nc'], t.dir);
+    const c = await rfIn(['check', 'v4.rfz', '--against', 'v4.nc'], t.dir);
     expect(c.code, c.stdout + c.stderr).toBe(0);
     expect(c.stdout).toMatch(/missing cells identical/);
-    expect(rf(['unpack', 'v4.rfz', '-o', 'back.nc'], t.dir).code).toBe(0);
+    expect((await rfIn(['unpack', 'v4.rfz', '-o', 'back.nc'], t.dir)).code).toBe(0);
     // ncdump (netcdf-bin) reads the file written: CDF-1 classic, dims, attributes.
     const h = ncdumpHeader(join(t.dir, 'back.nc'));
     expect(h).toMatch(/float height\(Y, X\) ;/);
@@ -78,13 +78,13 @@ describe.skipIf(!RUN)('NetCDF-4 input', { timeout: CLI_TIMEOUT }, () => {
     expect(readFileSync(join(t.dir, 'back.nc')).subarray(0, 4)).toEqual(Buffer.from('CDF\x01', 'latin1'));
   });
 
-  it('unpack --netcdf4 writes NetCDF-4 that the netCDF library reads as the classic output: nccopy -k classic gives the same dims, variables, attributes and values', () => {
-    expect(rf(['pack', 'rec.nc', '-o', 'rec.rfz', '--bound', 'abs:0.004'], t.dir).code).toBe(0);
-    const u = rf(['unpack', 'rec.rfz', '-o', 'rec4.nc', '--netcdf4'], t.dir);
+  it('unpack --netcdf4 writes NetCDF-4 that the netCDF library reads as the classic output: nccopy -k classic gives the same dims, variables, attributes and values', async () => {
+    expect((await rfIn(['pack', 'rec.nc', '-o', 'rec.rfz', '--bound', 'abs:0.004'], t.dir)).code).toBe(0);
+    const u = await rfIn(['unpack', 'rec.rfz', '-o', 'rec4.nc', '--netcdf4'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     expect(u.stdout).toMatch(/\(NetCDF-4, \d+ bytes\)/);
     expect(execFileSync(NCDUMP, ['-k', join(t.dir, 'rec4.nc')], { encoding: 'utf8' }).trim()).toBe('netCDF-4');
-    expect(rf(['unpack', 'rec.rfz', '-o', 'rec3.nc'], t.dir).code).toBe(0);
+    expect((await rfIn(['unpack', 'rec.rfz', '-o', 'rec3.nc'], t.dir)).code).toBe(0);
     execFileSync(NCCOPY, ['-k', 'classic', join(t.dir, 'rec4.nc'), join(t.dir, 'rec4to3.nc')]);
     const a = new Uint8Array(readFileSync(join(t.dir, 'rec4to3.nc')));
     const b = new Uint8Array(readFileSync(join(t.dir, 'rec3.nc')));
@@ -100,7 +100,7 @@ describe.skipIf(!RUN)('NetCDF-4 input', { timeout: CLI_TIMEOUT }, () => {
     expect(data('rec3.nc')).toMatch(/site = "Maunga " ;/);
   });
 
-  it('groups: variables of nested groups are packed under their paths, chosen by --var /GROUP/NAME, and written back into their groups, with the groups\' attributes, by --netcdf4 as ncdump shows the original', () => {
+  it('groups: variables of nested groups are packed under their paths, chosen by --var /GROUP/NAME, and written back into their groups, with the groups\' attributes, by --netcdf4 as ncdump shows the original', async () => {
     // netCDF-4 CDL "group:" blocks (NetCDF Users Guide, "CDL Syntax" and "Groups"; from memory); a group's
     // variables use the dimensions of the groups around it. Values: volcano.json's first rows.
     const row = (r: number, n: number) => cdlValues(g.values.slice(r * 87, r * 87 + n));
@@ -136,20 +136,20 @@ group: ocean {
 }
 `;
     ncgen(cdl, join(t.dir, 'groups.nc'), 'nc4');
-    const p = rf(['pack', 'groups.nc', '-o', 'groups.rfz', '--bound', 'abs:0.001'], t.dir);
+    const p = await rfIn(['pack', 'groups.nc', '-o', 'groups.rfz', '--bound', 'abs:0.001'], t.dir);
     expect(p.code, p.stderr).toBe(0);
     expect(p.stdout).toMatch(/ocean\/temp \(ocean\/depth, x\) 4x6 f32/);
     expect(p.stdout).toMatch(/ocean\/deep\/temp \(ocean\/depth, x\) 4x6 f64/);
-    const one = rf(['pack', 'groups.nc', '-o', 'one.rfz', '--bound', 'abs:0.001', '--var', '/ocean/deep/temp', '--json'], t.dir);
+    const one = await rfIn(['pack', 'groups.nc', '-o', 'one.rfz', '--bound', 'abs:0.001', '--var', '/ocean/deep/temp', '--json'], t.dir);
     expect(one.code, one.stderr).toBe(0);
     expect(JSON.parse(one.stdout).archive.fields.map((f: { name: string }) => f.name)).toEqual(['ocean/deep/temp']);
-    expect(rf(['check', 'groups.rfz', '--against', 'groups.nc', '--var', '/ocean/temp'], t.dir).code).toBe(0);
-    expectCliError(rf(['unpack', 'groups.rfz', '--var', '/ocean/nope', '-o', 'x.npy'], t.dir), /no field '\/ocean\/nope' in groups\.rfz \(fields: .*ocean\/temp/);
+    expect((await rfIn(['check', 'groups.rfz', '--against', 'groups.nc', '--var', '/ocean/temp'], t.dir)).code).toBe(0);
+    expectCliError(await rfIn(['unpack', 'groups.rfz', '--var', '/ocean/nope', '-o', 'x.npy'], t.dir), /no field '\/ocean\/nope' in groups\.rfz \(fields: .*ocean\/temp/);
     // Classic files have no groups: refused with the remedy.
-    expectCliError(rf(['unpack', 'groups.rfz', '-o', 'flat.nc'], t.dir), /NetCDF-4 groups \(.*ocean\/temp.*\), which NetCDF classic cannot hold: add --netcdf4/);
+    expectCliError(await rfIn(['unpack', 'groups.rfz', '-o', 'flat.nc'], t.dir), /NetCDF-4 groups \(.*ocean\/temp.*\), which NetCDF classic cannot hold: add --netcdf4/);
     // The group's attributes go with it (ncdump prints them in the group, compared below).
-    expect(JSON.parse(rf(['show', 'groups.rfz', '--json'], t.dir).stdout).attrs).toMatchObject({ 'ocean/region': 'north shelf', 'ocean/levels': 4 });
-    const u = rf(['unpack', 'groups.rfz', '-o', 'groups-back.nc', '--netcdf4'], t.dir);
+    expect(JSON.parse((await rfIn(['show', 'groups.rfz', '--json'], t.dir)).stdout).attrs).toMatchObject({ 'ocean/region': 'north shelf', 'ocean/levels': 4 });
+    const u = await rfIn(['unpack', 'groups.rfz', '-o', 'groups-back.nc', '--netcdf4'], t.dir);
     expect(u.code, u.stderr).toBe(0);
     // ncdump (netcdf-bin) prints the same groups, dimensions, variables, attributes and data as for the original,
     // but for the history line unpack adds; the values are within 0.001 of the originals, printed to ncdump's
@@ -165,7 +165,7 @@ group: ocean {
     for (let i = 0; i < 24; i++) expect(Math.abs(db[i] - da[i])).toBeLessThanOrEqual(0.001);
   });
 
-  it('a char variable of a NetCDF-4 file (HDF5 strings of one byte each) is carried: pack, unpack --netcdf4, and ncdump shows the same text', () => {
+  it('a char variable of a NetCDF-4 file (HDF5 strings of one byte each) is carried: pack, unpack --netcdf4, and ncdump shows the same text', async () => {
     // netCDF-4 stores NC_CHAR as one-byte HDF5 strings (netCDF User's Guide, "NetCDF-4 format"; from memory); ncgen -k nc4 makes it.
     const cdl = `netcdf s {
 dimensions:
@@ -183,20 +183,20 @@ data:
 }
 `;
     ncgen(cdl, join(t.dir, 'chars4.nc'), 'nc4');
-    expect(rf(['pack', 'chars4.nc', '-o', 'chars4.rfz', '--bound', 'abs:0.01', '-q'], t.dir).code).toBe(0);
-    expect(rf(['unpack', 'chars4.rfz', '-o', 'chars4-back.nc', '--netcdf4', '-q'], t.dir).code).toBe(0);
+    expect((await rfIn(['pack', 'chars4.nc', '-o', 'chars4.rfz', '--bound', 'abs:0.01', '-q'], t.dir)).code).toBe(0);
+    expect((await rfIn(['unpack', 'chars4.rfz', '-o', 'chars4-back.nc', '--netcdf4', '-q'], t.dir)).code).toBe(0);
     const dump = execFileSync(NCDUMP, [join(t.dir, 'chars4-back.nc')], { encoding: 'utf8' });
     expect(dump).toMatch(/char station_name\(n, len\) ;/);
     expect(dump).toMatch(/station_name =\s+"alpha",\s+"beta" ;/);
   });
 
-  it('--netcdf4 is refused for other outputs', () => {
-    expectCliError(rf(['unpack', 'rec.rfz', '-o', 'x.npy', '--netcdf4'], t.dir), /--netcdf4 applies to NetCDF output/);
+  it('--netcdf4 is refused for other outputs', async () => {
+    expectCliError(await rfIn(['unpack', 'rec.rfz', '-o', 'x.npy', '--netcdf4'], t.dir), /--netcdf4 applies to NetCDF output/);
   });
 
-  it('a damaged HDF5 file is one error line (the HDF5 library\'s own report kept off the terminal)', () => {
+  it('a damaged HDF5 file is one error line (the HDF5 library\'s own report kept off the terminal)', async () => {
     const whole = readFileSync(join(t.dir, 'v4.nc'));
     writeFileSync(join(t.dir, 'cut.nc'), whole.subarray(0, 600));
-    expectCliError(rf(['pack', 'cut.nc', '-o', 'cut.rfz', '--bound', 'abs:1'], t.dir), /cut\.nc: not a readable HDF5 file \(H5Fopen\(\)/);
+    expectCliError(await rfIn(['pack', 'cut.nc', '-o', 'cut.rfz', '--bound', 'abs:1'], t.dir), /cut\.nc: not a readable HDF5 file \(H5Fopen\(\)/);
   });
 });

@@ -6,7 +6,8 @@
  * wins (the finished file is published by a hard link, which fails if the
  * name exists); with --force the last rename wins and the file is always
  * complete. Every node here is made in a fresh temporary folder; the
- * system's own device files are never touched.
+ * system's own device files are never touched. The refusals run in this
+ * process (rfIn); the concurrent writers are separate processes.
  */
 import { spawnSync } from 'node:child_process';
 import { existsSync, lstatSync, mkdirSync, readdirSync, readFileSync, readlinkSync, statSync, symlinkSync, writeFileSync } from 'node:fs';
@@ -18,7 +19,7 @@ import { UsageError } from '../../src/cli/errors.js';
 import { pack } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { volcano } from '../archive/datasets.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, rf, rfAsync, tempDir } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, rfAsync, rfIn, tempDir } from './helpers.js';
 
 const { dir, remove } = tempDir('rankfield-outputs-');
 let socket: Server | null = null;
@@ -68,14 +69,14 @@ describe('a destination that is not a regular file is refused, with or without -
     ['a dangling symbolic link', 'dangling.rfz', /cannot write 'dangling\.rfz': it is a symbolic link to 'missing\.rfz'/],
   ];
   for (const [what, name, message] of cases) {
-    it(what, () => {
+    it(what, async () => {
       const before = kind(join(dir, name));
       for (const force of [[], ['--force']]) {
-        expectCliError(rf(packTo(name, ...force), dir), message);
+        expectCliError(await rfIn(packTo(name, ...force), dir), message);
         expect(kind(join(dir, name))).toBe(before);
       }
       // unpack writes the same way.
-      expectCliError(rf(['unpack', 'v-alone.rfz', '-o', name, '--force'], dir), message);
+      expectCliError(await rfIn(['unpack', 'v-alone.rfz', '-o', name, '--force'], dir), message);
       expect(kind(join(dir, name))).toBe(before);
       expect(readFileSync(join(dir, 'target.rfz'), 'utf8')).toBe('a file a link points to');
       expect(existsSync(join(dir, 'missing.rfz'))).toBe(false);
@@ -83,7 +84,7 @@ describe('a destination that is not a regular file is refused, with or without -
     }, CLI_TIMEOUT);
   }
 
-  it('a character device made here (mknod needs root)', (ctx) => {
+  it('a character device made here (mknod needs root)', async (ctx) => {
     const node = join(dir, 'null.rfz');
     // Major 1, minor 3: the memory device that discards writes, as a new node in this test's folder.
     const made = spawnSync('mknod', [node, 'c', '1', '3'], { encoding: 'utf8' });
@@ -91,7 +92,7 @@ describe('a destination that is not a regular file is refused, with or without -
     const before = kind(node);
     expect(before).toMatch(/^char /);
     for (const force of [[], ['--force']]) {
-      expectCliError(rf(packTo('null.rfz', ...force), dir), /cannot write 'null\.rfz': it is a character device; rankfield writes only regular files and new paths, with or without --force/);
+      expectCliError(await rfIn(packTo('null.rfz', ...force), dir), /cannot write 'null\.rfz': it is a character device; rankfield writes only regular files and new paths, with or without --force/);
       expect(kind(node)).toBe(before);
     }
     expect(leftovers(dir)).toEqual([]);

@@ -8,7 +8,7 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatNpy, parseNpy } from '../../src/io/npy.js';
 import { formatRaw, parseRaw } from '../../src/io/raw.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, maxAbsError, rf, rmsError, tempDir, validRange, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, maxAbsError, rfIn, rmsError, tempDir, validRange, volcano } from './helpers.js';
 
 const { dir, remove } = tempDir();
 const vol = volcano();
@@ -19,7 +19,7 @@ const masked = Float32Array.from(vol.values);
 for (let i = 0; i < masked.length; i++) if (masked[i] < 100) masked[i] = FILL;
 for (let i = 30; i < 33; i++) for (let j = 40; j < 44; j++) masked[i * COLS + j] = NaN;
 
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   writeFileSync(join(dir, 'volcano.npy'), formatNpy({ data: vol.values, shape: [ROWS, COLS], dtype: 'f64' }));
   writeFileSync(join(dir, 'masked.npy'), formatNpy({ data: masked, shape: [ROWS, COLS], dtype: 'f32' }));
@@ -27,15 +27,15 @@ beforeAll(() => {
 });
 afterAll(remove);
 
-function unpackNpy(archive: string, out: string, extra: string[] = []) {
-  const r = rf(['unpack', archive, '-o', out, ...extra], dir);
+async function unpackNpy(archive: string, out: string, extra: string[] = []): Promise<ReturnType<typeof parseNpy>> {
+  const r = await rfIn(['unpack', archive, '-o', out, ...extra], dir);
   expect(r.code, r.stderr).toBe(0);
   return parseNpy(readFileSync(join(dir, out)));
 }
 
 describe('pack', { timeout: CLI_TIMEOUT }, () => {
-  it('packs a float64 .npy under abs:0.5 and the values read back hold the bound', () => {
-    const r = rf(['pack', 'volcano.npy', '-o', 'v-abs.rfz', '--bound', 'abs:0.5'], dir);
+  it('packs a float64 .npy under abs:0.5 and the values read back hold the bound', async () => {
+    const r = await rfIn(['pack', 'volcano.npy', '-o', 'v-abs.rfz', '--bound', 'abs:0.5'], dir);
     expect(r.code, r.stderr).toBe(0);
     const size = readFileSync(join(dir, 'v-abs.rfz')).length;
     // One summary line: bytes in (61 x 87 x 8), bytes out, ratio, achieved error vs the bound, time;
@@ -46,7 +46,7 @@ describe('pack', { timeout: CLI_TIMEOUT }, () => {
     expect(details[0]).toMatch(/^  tile \d+ x \d+ \(chosen automatically: /);
     expect(r.stdout).toContain(`${ROWS * COLS * 8} bytes in, ${size} bytes out, ratio ${((ROWS * COLS * 8) / size).toFixed(2)}`);
     expect(r.stdout).toMatch(/abs:0\.5 \(pointwise limit E = 0\.5\): max error [0-9.e-]+ \([01]\.\d{3} E\), RMSE [0-9.e-]+; \d+(\.\d+)? m?s/);
-    const back = unpackNpy('v-abs.rfz', 'v-abs.npy');
+    const back = await unpackNpy('v-abs.rfz', 'v-abs.npy');
     expect(back.dtype).toBe('f64'); // output dtype = the field's dtype
     expect(back.shape).toEqual([ROWS, COLS]);
     // abs:E means |x - x'| <= E for every value (the definition of a pointwise absolute bound).
@@ -55,10 +55,10 @@ describe('pack', { timeout: CLI_TIMEOUT }, () => {
     expect(leftovers(dir)).toEqual([]);
   });
 
-  it('rel bound on float32 with fill and NaN: the bound holds and missing cells come back bit for bit', () => {
-    const r = rf(['pack', 'masked.npy', '-o', 'm-rel.rfz', '--bound', 'rel:1e-3', '--fill', String(FILL), '--tile', '16x24'], dir);
+  it('rel bound on float32 with fill and NaN: the bound holds and missing cells come back bit for bit', async () => {
+    const r = await rfIn(['pack', 'masked.npy', '-o', 'm-rel.rfz', '--bound', 'rel:1e-3', '--fill', String(FILL), '--tile', '16x24'], dir);
     expect(r.code, r.stderr).toBe(0);
-    const back = unpackNpy('m-rel.rfz', 'm-rel.npy');
+    const back = await unpackNpy('m-rel.rfz', 'm-rel.npy');
     expect(back.dtype).toBe('f32');
     const [lo, hi] = validRange(masked, FILL);
     // rel:R means |x - x'| <= R * (max - min) over the valid values (the bound as the pack help defines it).
@@ -68,23 +68,23 @@ describe('pack', { timeout: CLI_TIMEOUT }, () => {
     for (let i = 0; i < masked.length; i++) if (!Number.isFinite(masked[i]) || masked[i] === FILL) expect(b[i]).toBe(a[i]);
   });
 
-  it('rmse and psnr bounds hold on the values read back', () => {
-    expect(rf(['pack', 'volcano.npy', '-o', 'v-rmse.rfz', '--bound', 'rmse:0.25'], dir).code).toBe(0);
-    expect(rmsError(vol.values, unpackNpy('v-rmse.rfz', 'v-rmse.npy').data)).toBeLessThanOrEqual(0.25);
-    const r = rf(['pack', 'volcano.npy', '-o', 'v-psnr.rfz', '--bound', 'psnr:55'], dir);
+  it('rmse and psnr bounds hold on the values read back', async () => {
+    expect((await rfIn(['pack', 'volcano.npy', '-o', 'v-rmse.rfz', '--bound', 'rmse:0.25'], dir)).code).toBe(0);
+    expect(rmsError(vol.values, (await unpackNpy('v-rmse.rfz', 'v-rmse.npy')).data)).toBeLessThanOrEqual(0.25);
+    const r = await rfIn(['pack', 'volcano.npy', '-o', 'v-psnr.rfz', '--bound', 'psnr:55'], dir);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/psnr:55 \(RMSE limit E = [0-9.e-]+\): RMSE /);
     const [lo, hi] = validRange(vol.values);
     // PSNR = 20 log10(peak-to-peak range / RMSE) dB (common definition with the range as peak, from memory).
-    const psnr = 20 * Math.log10((hi - lo) / rmsError(vol.values, unpackNpy('v-psnr.rfz', 'v-psnr.npy').data));
+    const psnr = 20 * Math.log10((hi - lo) / rmsError(vol.values, (await unpackNpy('v-psnr.rfz', 'v-psnr.npy')).data));
     expect(psnr).toBeGreaterThanOrEqual(55);
   });
 
-  it('reads raw big-endian input with --shape/--dtype/--endian, and unpacks raw little-endian', () => {
-    const r = rf(['pack', 'masked-be.f32', '-o', 'm-raw.rfz', '--bound', 'abs:0.1', '--fill', '-999', '--shape', `${ROWS}x${COLS}`, '--dtype', 'f32', '--endian', 'big'], dir);
+  it('reads raw big-endian input with --shape/--dtype/--endian, and unpacks raw little-endian', async () => {
+    const r = await rfIn(['pack', 'masked-be.f32', '-o', 'm-raw.rfz', '--bound', 'abs:0.1', '--fill', '-999', '--shape', `${ROWS}x${COLS}`, '--dtype', 'f32', '--endian', 'big'], dir);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toContain("field 'masked-be'"); // default name: IN without its extension
-    const u = rf(['unpack', 'm-raw.rfz', '-o', 'm-raw.raw'], dir);
+    const u = await rfIn(['unpack', 'm-raw.rfz', '-o', 'm-raw.raw'], dir);
     expect(u.code, u.stderr).toBe(0);
     const bytes = readFileSync(join(dir, 'm-raw.raw'));
     expect(bytes.length).toBe(ROWS * COLS * 4);
@@ -92,26 +92,26 @@ describe('pack', { timeout: CLI_TIMEOUT }, () => {
     expect(maxAbsError(masked, back.data, FILL)).toBeLessThanOrEqual(0.1);
   });
 
-  it('--tile takes one number for square tiles, and --name names the field', () => {
-    const r = rf(['pack', 'volcano.npy', '-o', 'v-t20.rfz', '--bound', 'abs:1', '--tile', '20', '--name', 'height'], dir);
+  it('--tile takes one number for square tiles, and --name names the field', async () => {
+    const r = await rfIn(['pack', 'volcano.npy', '-o', 'v-t20.rfz', '--bound', 'abs:1', '--tile', '20', '--name', 'height'], dir);
     expect(r.code, r.stderr).toBe(0);
-    const s = rf(['show', 'v-t20.rfz', '--json'], dir);
+    const s = await rfIn(['show', 'v-t20.rfz', '--json'], dir);
     const f = JSON.parse(s.stdout).fields[0];
     expect([f.name, f.tile, f.tiles]).toEqual(['height', [20, 20], Math.ceil(61 / 20) * Math.ceil(87 / 20)]);
   });
 
-  it('refuses an existing output without --force and leaves it untouched; --force replaces it', () => {
+  it('refuses an existing output without --force and leaves it untouched; --force replaces it', async () => {
     writeFileSync(join(dir, 'taken.rfz'), 'precious');
-    const r = rf(['pack', 'volcano.npy', '-o', 'taken.rfz', '--bound', 'abs:1'], dir);
+    const r = await rfIn(['pack', 'volcano.npy', '-o', 'taken.rfz', '--bound', 'abs:1'], dir);
     expectCliError(r, /output 'taken\.rfz' already exists; use --force to overwrite it/);
     expect(readFileSync(join(dir, 'taken.rfz'), 'utf8')).toBe('precious');
-    const f = rf(['pack', 'volcano.npy', '-o', 'taken.rfz', '--bound', 'abs:1', '--force'], dir);
+    const f = await rfIn(['pack', 'volcano.npy', '-o', 'taken.rfz', '--bound', 'abs:1', '--force'], dir);
     expect(f.code, f.stderr).toBe(0);
-    expect(rf(['check', 'taken.rfz'], dir).code).toBe(0);
+    expect((await rfIn(['check', 'taken.rfz'], dir)).code).toBe(0);
   });
 
-  it('pack --help says that packing is lossy, to keep originals until check --against passes, and to follow retention rules', () => {
-    const r = rf(['pack', '--help'], dir);
+  it('pack --help says that packing is lossy, to keep originals until check --against passes, and to follow retention rules', async () => {
+    const r = await rfIn(['pack', '--help'], dir);
     expect(r.code).toBe(0);
     expect(r.stdout).toMatch(/LOSSY/);
     expect(r.stdout).toMatch(/discards\s+information/);
@@ -121,29 +121,29 @@ describe('pack', { timeout: CLI_TIMEOUT }, () => {
 });
 
 describe('unpack', { timeout: CLI_TIMEOUT }, () => {
-  beforeAll(() => {
-    expect(rf(['pack', 'volcano.npy', '-o', 'u.rfz', '--bound', 'abs:0.5'], dir).code).toBe(0);
+  beforeAll(async () => {
+    expect((await rfIn(['pack', 'volcano.npy', '-o', 'u.rfz', '--bound', 'abs:0.5'], dir)).code).toBe(0);
   });
 
-  it('prints a summary and writes the field', () => {
-    const r = rf(['unpack', 'u.rfz', '-o', 'u.npy'], dir);
+  it('prints a summary and writes the field', async () => {
+    const r = await rfIn(['unpack', 'u.rfz', '-o', 'u.npy'], dir);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/^unpacked field 'volcano' \(61x87 f64\) from 'u\.rfz' -> 'u\.npy' \(\.npy, \d+ bytes\)/);
   });
 
-  it('--field chooses a field; an unknown one is refused with the list of fields', () => {
-    expect(rf(['unpack', 'u.rfz', '-o', 'u2.npy', '--field', 'volcano'], dir).code).toBe(0);
-    expectCliError(rf(['unpack', 'u.rfz', '-o', 'u3.npy', '--field', 'nope'], dir), /no field 'nope' in u\.rfz \(fields: volcano\)/);
+  it('--field chooses a field; an unknown one is refused with the list of fields', async () => {
+    expect((await rfIn(['unpack', 'u.rfz', '-o', 'u2.npy', '--field', 'volcano'], dir)).code).toBe(0);
+    expectCliError(await rfIn(['unpack', 'u.rfz', '-o', 'u3.npy', '--field', 'nope'], dir), /no field 'nope' in u\.rfz \(fields: volcano\)/);
     expect(existsSync(join(dir, 'u3.npy'))).toBe(false);
   });
 
-  it('refuses an existing output without --force', () => {
+  it('refuses an existing output without --force', async () => {
     writeFileSync(join(dir, 'u4.npy'), 'keep');
-    expectCliError(rf(['unpack', 'u.rfz', '-o', 'u4.npy'], dir), /output 'u4\.npy' already exists; use --force/);
+    expectCliError(await rfIn(['unpack', 'u.rfz', '-o', 'u4.npy'], dir), /output 'u4\.npy' already exists; use --force/);
     expect(readFileSync(join(dir, 'u4.npy'), 'utf8')).toBe('keep');
   });
 
-  it('refuses --endian for .npy output', () => {
-    expectCliError(rf(['unpack', 'u.rfz', '-o', 'u5.npy', '--endian', 'big'], dir), /--endian applies to raw output/);
+  it('refuses --endian for .npy output', async () => {
+    expectCliError(await rfIn(['unpack', 'u.rfz', '-o', 'u5.npy', '--endian', 'big'], dir), /--endian applies to raw output/);
   });
 });

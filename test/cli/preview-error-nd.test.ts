@@ -17,14 +17,14 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { open } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { mapColour } from '../../src/picture/colormap.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, ROOT, rf, tempDir } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, ROOT, rfIn, tempDir } from './helpers.js';
 
 const FIXTURE = join(ROOT, 'test', 'fixtures', 'netcdf', 'corvane-run-classic.nc');
 const { dir, remove } = tempDir();
 /** sst as netcdfjs reads it: one array per record, flattened to C order. */
 const sst = Float32Array.from((new NetCDFReader(readFileSync(FIXTURE)).getDataVariable('sst') as number[][]).flat());
 
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   writeFileSync(join(dir, 'sst.npy'), formatNpy({ data: sst, shape: [6, 24, 32], dtype: 'f32' }));
   writeFileSync(join(dir, 'snap4.npy'), formatNpy({ data: sst.subarray(4 * 768, 5 * 768), shape: [24, 32], dtype: 'f32' }));
@@ -38,12 +38,12 @@ describe('preview --map error of N-D fields', { timeout: CLI_TIMEOUT }, () => {
     ['slices', ['--layout', 'slices'], [FIXTURE, 'snap4.npy']],
   ])('%s: against the NetCDF file, the N-D .npy or the snapshot alone', async (_, layout, originals) => {
     const rfz = `sst-${layout[0].slice(2)}.rfz`;
-    const p = rf(['pack', FIXTURE, '-o', rfz, '--var', 'sst', '--bound', 'abs:0.01', '--tile', '16', ...layout, '--quiet'], dir);
+    const p = await rfIn(['pack', FIXTURE, '-o', rfz, '--var', 'sst', '--bound', 'abs:0.01', '--tile', '16', ...layout, '--quiet'], dir);
     expect(p.code, p.stderr).toBe(0);
     const pictures: Buffer[] = [];
     let rep = { scale: 0 };
     for (const [k, against] of originals.entries()) {
-      const r = rf(['preview', rfz, '--var', 'sst', '--slice', '4', '--map', 'error', '--against', against, '-o', `e${k}.png`, '--force', '--json'], dir);
+      const r = await rfIn(['preview', rfz, '--var', 'sst', '--slice', '4', '--map', 'error', '--against', against, '-o', `e${k}.png`, '--force', '--json'], dir);
       expect(r.code, r.stderr).toBe(0);
       rep = JSON.parse(r.stdout);
       // abs:0.01: |decoded - original| <= E for every value, so the error scale is [0, 1].
@@ -66,6 +66,6 @@ describe('preview --map error of N-D fields', { timeout: CLI_TIMEOUT }, () => {
       expect(sst[4 * 768 + i * 32 + j]).toBeLessThan(1e19); // sea, not land
       expect(at(x0 + j * rep.scale + 1, y0 + i * rep.scale + 1)).toEqual(mapColour('inferno', err(i, j)));
     }
-    expectCliError(rf(['preview', rfz, '--var', 'sst', '--map', 'error', '--against', 'wrong.npy', '-o', 'x.png'], dir), /original 'wrong\.npy' is 24x30, but field 'sst' of '.*' is 6x24x32 \(one (snapshot|slice): 24x32\)/);
+    expectCliError(await rfIn(['preview', rfz, '--var', 'sst', '--map', 'error', '--against', 'wrong.npy', '-o', 'x.png'], dir), /original 'wrong\.npy' is 24x30, but field 'sst' of '.*' is 6x24x32 \(one (snapshot|slice): 24x32\)/);
   });
 });

@@ -12,16 +12,16 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { open, pack } from '../../src/index.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { mapColour } from '../../src/picture/colormap.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, ROOT, rf, tempDir, volcano } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, ROOT, rfIn, tempDir, volcano } from './helpers.js';
 
 const { dir, remove } = tempDir();
 const vol = volcano();
 const COLS = vol.shape[1];
 
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   writeFileSync(join(dir, 'volcano.npy'), formatNpy({ data: vol.values, shape: vol.shape, dtype: 'f64' }));
-  const r = rf(['pack', 'volcano.npy', '-o', 'v.rfz', '--bound', 'abs:0.5', '--tile', '16'], dir);
+  const r = await rfIn(['pack', 'volcano.npy', '-o', 'v.rfz', '--bound', 'abs:0.5', '--tile', '16'], dir);
   expect(r.code, r.stderr).toBe(0);
 });
 afterAll(remove);
@@ -42,7 +42,7 @@ function topLeft(p: ReturnType<typeof png>, first: number[]): [number, number] {
 
 describe('preview', { timeout: CLI_TIMEOUT }, () => {
   it('value map: each cell in the colour of its decoded value on the field\'s valid range', async () => {
-    const r = rf(['preview', 'v.rfz', '-o', 'value.png', '--json'], dir);
+    const r = await rfIn(['preview', 'v.rfz', '-o', 'value.png', '--json'], dir);
     expect(r.code, r.stderr).toBe(0);
     const rep = JSON.parse(r.stdout);
     const p = png('value.png');
@@ -59,15 +59,15 @@ describe('preview', { timeout: CLI_TIMEOUT }, () => {
     }
   });
 
-  it('error map: needs the original, and stays within 1 under an abs bound; rank map of a region', () => {
-    expectCliError(rf(['preview', 'v.rfz', '-o', 'e.png', '--map', 'error'], dir), /--map error needs --against ORIGINAL/);
-    const e = rf(['preview', 'v.rfz', '-o', 'e.png', '--map', 'error', '--against', 'volcano.npy', '--json'], dir);
+  it('error map: needs the original, and stays within 1 under an abs bound; rank map of a region', async () => {
+    expectCliError(await rfIn(['preview', 'v.rfz', '-o', 'e.png', '--map', 'error'], dir), /--map error needs --against ORIGINAL/);
+    const e = await rfIn(['preview', 'v.rfz', '-o', 'e.png', '--map', 'error', '--against', 'volcano.npy', '--json'], dir);
     expect(e.code, e.stderr).toBe(0);
     const rep = JSON.parse(e.stdout);
     expect(rep.colourMap).toBe('inferno');
     // abs:0.5 means |decoded - original| <= E = 0.5 for every value, so the error scale is [0, 1].
     expect(rep.scaleRange).toEqual([0, 1]);
-    const rank = rf(['preview', 'v.rfz', '-o', 'r.png', '--map', 'rank', '--region', '0:32,16:', '--json'], dir);
+    const rank = await rfIn(['preview', 'v.rfz', '-o', 'r.png', '--map', 'rank', '--region', '0:32,16:', '--json'], dir);
     expect(rank.code, rank.stderr).toBe(0);
     expect(JSON.parse(rank.stdout).window).toEqual({ slice: 0, rows: [0, 32], cols: [16, COLS] });
     expect(png('r.png').width).toBeGreaterThan(0);
@@ -75,8 +75,8 @@ describe('preview', { timeout: CLI_TIMEOUT }, () => {
 
   it('a field stored as a matrix (time x space) is drawn one snapshot at a time over its last two axes', async () => {
     const nc = join(ROOT, 'test', 'fixtures', 'netcdf', 'corvane-run-classic.nc');
-    expect(rf(['pack', nc, '-o', 'nc.rfz', '--bound', 'rel:1e-3', '--matrix', 'time:space'], dir).code).toBe(0);
-    const r = rf(['preview', 'nc.rfz', '--var', 'sst', '--slice', '2', '-o', 'snap.png', '--json'], dir);
+    expect((await rfIn(['pack', nc, '-o', 'nc.rfz', '--bound', 'rel:1e-3', '--matrix', 'time:space'], dir)).code).toBe(0);
+    const r = await rfIn(['preview', 'nc.rfz', '--var', 'sst', '--slice', '2', '-o', 'snap.png', '--json'], dir);
     expect(r.code, r.stderr).toBe(0);
     const rep = JSON.parse(r.stdout);
     expect(rep.window).toEqual({ slice: 2, rows: [0, 24], cols: [0, 32] }); // sst is (time 6, lat 24, lon 32) in the fixture
@@ -91,29 +91,29 @@ describe('preview', { timeout: CLI_TIMEOUT }, () => {
       expect(at(i, j)).toBeLessThan(1e30);
       expect(p.at(x0 + j * rep.scale + 1, y0 + i * rep.scale + 1)).toEqual(mapColour('viridis', (at(i, j) - lo) / (hi - lo)));
     }
-    expectCliError(rf(['preview', 'nc.rfz', '--var', 'sst', '--slice', '6', '-o', 'x.png'], dir), /field 'sst' has snapshots 0\.\.5, not 6/);
+    expectCliError(await rfIn(['preview', 'nc.rfz', '--var', 'sst', '--slice', '6', '-o', 'x.png'], dir), /field 'sst' has snapshots 0\.\.5, not 6/);
   });
 
-  it('large fields are drawn in blocks: --size 20 gives one picture cell per 5 x 5 cells', () => {
-    const r = rf(['preview', 'v.rfz', '-o', 'small.png', '--size', '20', '--json'], dir);
+  it('large fields are drawn in blocks: --size 20 gives one picture cell per 5 x 5 cells', async () => {
+    const r = await rfIn(['preview', 'v.rfz', '-o', 'small.png', '--size', '20', '--json'], dir);
     expect(r.code, r.stderr).toBe(0);
     expect(JSON.parse(r.stdout).block).toBe(5); // ceil(87 / 20)
   });
 
-  it('refuses bad requests with one line and exit 2, writing nothing', () => {
-    expectCliError(rf(['preview', 'v.rfz', '-o', 'x.jpg'], dir), /name it with \.png/);
-    expectCliError(rf(['preview', 'v.rfz', '-o', 'x.png', '--map', 'heat'], dir), /map must be value, error or rank, got 'heat'/);
-    expectCliError(rf(['preview', 'v.rfz', '-o', 'x.png', '--slice', '2'], dir), /plain 2-D field: it has no slices/);
-    expectCliError(rf(['preview', 'v.rfz', '-o', 'x.png', '--region', '0:10,80:99'], dir), /has 87 columns; the region's columns 80:99 lie outside it/);
-    expectCliError(rf(['preview', 'v.rfz', '-o', 'x.png', '--against', 'volcano.npy'], dir), /--against, --dtype and --endian apply to --map error/);
-    expectCliError(rf(['preview', 'v.rfz', '-o', 'value.png'], dir), /already exists/);
+  it('refuses bad requests with one line and exit 2, writing nothing', async () => {
+    expectCliError(await rfIn(['preview', 'v.rfz', '-o', 'x.jpg'], dir), /name it with \.png/);
+    expectCliError(await rfIn(['preview', 'v.rfz', '-o', 'x.png', '--map', 'heat'], dir), /map must be value, error or rank, got 'heat'/);
+    expectCliError(await rfIn(['preview', 'v.rfz', '-o', 'x.png', '--slice', '2'], dir), /plain 2-D field: it has no slices/);
+    expectCliError(await rfIn(['preview', 'v.rfz', '-o', 'x.png', '--region', '0:10,80:99'], dir), /has 87 columns; the region's columns 80:99 lie outside it/);
+    expectCliError(await rfIn(['preview', 'v.rfz', '-o', 'x.png', '--against', 'volcano.npy'], dir), /--against, --dtype and --endian apply to --map error/);
+    expectCliError(await rfIn(['preview', 'v.rfz', '-o', 'value.png'], dir), /already exists/);
     expect(existsSync(join(dir, 'x.png'))).toBe(false);
   });
 });
 
 describe('trial', { timeout: CLI_TIMEOUT }, () => {
   it('reports per bound the figures of a pack of the central sample, and writes error pictures', async () => {
-    const r = rf(['trial', 'volcano.npy', '--sample', '32', '--bounds', 'abs:1,rel:1e-2,psnr:45', '--tile', '16', '--pictures', '.', '--json'], dir);
+    const r = await rfIn(['trial', 'volcano.npy', '--sample', '32', '--bounds', 'abs:1,rel:1e-2,psnr:45', '--tile', '16', '--pictures', '.', '--json'], dir);
     expect(r.code, r.stderr).toBe(0);
     const t = JSON.parse(r.stdout);
     expect(t.sample).toEqual({ slice: null, rows: [14, 46], cols: [27, 59], shape: [32, 32], rawBytes: 32 * 32 * 8 }); // centred: (61 - 32) / 2, (87 - 32) / 2, rounded down
@@ -139,11 +139,11 @@ describe('trial', { timeout: CLI_TIMEOUT }, () => {
     expect(t.bounds.map((b: { picture: string }) => b.picture)).toEqual(['trial-abs-1.png', 'trial-rel-0.01.png', 'trial-psnr-45.png']);
   });
 
-  it('refuses bad bounds, a broken NetCDF file and tiny samples with one line and exit 2', () => {
-    expectCliError(rf(['trial', 'volcano.npy', '--bounds', 'abs:1,,rel:2'], dir), /comma-separated list/);
-    expectCliError(rf(['trial', 'volcano.npy', '--bounds', 'abs:inf'], dir), /got infinity/);
-    expectCliError(rf(['trial', 'volcano.npy', '--sample', '4'], dir), /sample must be an integer from 8 to 4096/);
+  it('refuses bad bounds, a broken NetCDF file and tiny samples with one line and exit 2', async () => {
+    expectCliError(await rfIn(['trial', 'volcano.npy', '--bounds', 'abs:1,,rel:2'], dir), /comma-separated list/);
+    expectCliError(await rfIn(['trial', 'volcano.npy', '--bounds', 'abs:inf'], dir), /got infinity/);
+    expectCliError(await rfIn(['trial', 'volcano.npy', '--sample', '4'], dir), /sample must be an integer from 8 to 4096/);
     writeFileSync(join(dir, 'x.nc'), new Uint8Array(8));
-    expectCliError(rf(['trial', 'x.nc'], dir), /x\.nc/); // named .nc, read as NetCDF, and refused as not one
+    expectCliError(await rfIn(['trial', 'x.nc'], dir), /x\.nc/); // named .nc, read as NetCDF, and refused as not one
   });
 });

@@ -3,9 +3,10 @@
  * from an http(s) URL, `show URL` and `check URL`, and the streaming `pack`
  * (band reader + file sink), whose archive must be byte-identical to the
  * library's in-memory pack of the same values. Data: the vega-datasets
- * annual-precip grid (data/annual-precip.json, 360 wide x 168 high).
+ * annual-precip grid (data/annual-precip.json, 360 wide x 168 high). The
+ * commands run in this process (rfIn), whose event loop keeps the test's HTTP
+ * server answering while they read from it.
  */
-import { spawn } from 'node:child_process';
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -15,24 +16,7 @@ import { formatRaw } from '../../src/io/raw.js';
 import { precip } from '../archive/datasets.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
 import { expectSameBytes } from '../same-bytes.js';
-import { BIN, CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, rf, tempDir, type RunResult } from './helpers.js';
-
-/** Run the CLI without blocking this process's event loop (the test's HTTP server must keep answering). */
-function rfAsync(args: string[], cwd: string): Promise<RunResult> {
-  return new Promise((resolve, reject) => {
-    const child = spawn(process.execPath, [BIN, ...args], { cwd });
-    let stdout = '';
-    let stderr = '';
-    child.stdout.on('data', (d: Buffer) => (stdout += d.toString()));
-    child.stderr.on('data', (d: Buffer) => (stderr += d.toString()));
-    const timer = setTimeout(() => child.kill('SIGKILL'), 60_000);
-    child.on('error', reject);
-    child.on('close', (code) => {
-      clearTimeout(timer);
-      resolve({ code, stdout, stderr });
-    });
-  });
-}
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, rfIn, tempDir } from './helpers.js';
 
 let tmp: ReturnType<typeof tempDir>;
 let server: RangeServer;
@@ -44,7 +28,7 @@ beforeAll(async () => {
   ensureBuilt();
   tmp = tempDir('rankfield-region-cli-');
   writeFileSync(join(tmp.dir, 'precip.npy'), formatNpy({ data, shape: g.shape, dtype: 'f32' }));
-  const r = rf(['pack', 'precip.npy', '-o', 'precip.rfz', '--bound', 'abs:2', '--tile', '32x48'], tmp.dir);
+  const r = await rfIn(['pack', 'precip.npy', '-o', 'precip.rfz', '--bound', 'abs:2', '--tile', '32x48'], tmp.dir);
   expect(r.code, r.stderr).toBe(0);
   whole = (await (await open(new Uint8Array(readFileSync(join(tmp.dir, 'precip.rfz'))))).read()).values as Float32Array;
   server = await startRangeServer();
@@ -62,25 +46,25 @@ function windowOf(rows: [number, number], cols: [number, number]): Float32Array 
 }
 
 describe('streaming pack', { timeout: CLI_TIMEOUT }, () => {
-  it('writes the same archive bytes as the library packing the values in memory, from .npy and raw input', () => {
+  it('writes the same archive bytes as the library packing the values in memory, from .npy and raw input', async () => {
     const want = pack(data, g.shape, { bound: 'abs:2', tile: [32, 48], name: 'precip' });
     expectSameBytes(new Uint8Array(readFileSync(join(tmp.dir, 'precip.rfz'))), want);
     // Raw input: the first 80 rows (two full bands of 32 and a partial one) keep it quick.
     const top = data.subarray(0, 80 * 360);
     writeFileSync(join(tmp.dir, 'precip.be'), formatRaw({ data: top, shape: [80, 360], dtype: 'f32' }, 'big'));
-    const r = rf(['pack', 'precip.be', '-o', 'raw.rfz', '--bound', 'abs:2', '--tile', '32x48', '--shape', '80x360', '--dtype', 'f32', '--endian', 'big', '--name', 'precip'], tmp.dir);
+    const r = await rfIn(['pack', 'precip.be', '-o', 'raw.rfz', '--bound', 'abs:2', '--tile', '32x48', '--shape', '80x360', '--dtype', 'f32', '--endian', 'big', '--name', 'precip'], tmp.dir);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/115200 bytes in, \d+ bytes out/);
     expectSameBytes(new Uint8Array(readFileSync(join(tmp.dir, 'raw.rfz'))), pack(top, [80, 360], { bound: 'abs:2', tile: [32, 48], name: 'precip' }));
     expect(leftovers(tmp.dir)).toEqual([]);
   });
 
-  it('still notes a fill value that does not occur, and leaves no file behind on a bad input', () => {
-    const r = rf(['pack', 'precip.npy', '-o', 'fill.rfz', '--bound', 'abs:2', '--fill', '-12345'], tmp.dir);
+  it('still notes a fill value that does not occur, and leaves no file behind on a bad input', async () => {
+    const r = await rfIn(['pack', 'precip.npy', '-o', 'fill.rfz', '--bound', 'abs:2', '--fill', '-12345'], tmp.dir);
     expect(r.code).toBe(0);
     expect(r.stderr).toMatch(/note: the fill value -12345 does not occur in 'precip.npy'/);
     writeFileSync(join(tmp.dir, 'short.raw'), new Uint8Array(100));
-    const bad = rf(['pack', 'short.raw', '-o', 'bad.rfz', '--bound', 'abs:2', '--shape', '168x360', '--dtype', 'f32'], tmp.dir);
+    const bad = await rfIn(['pack', 'short.raw', '-o', 'bad.rfz', '--bound', 'abs:2', '--shape', '168x360', '--dtype', 'f32'], tmp.dir);
     expectCliError(bad, /short\.raw: shape 168x360 of f32 needs 60480 values of 4 bytes = 241920 bytes but the file holds 100 bytes/);
     expect(leftovers(tmp.dir)).toEqual([]);
   });
@@ -93,9 +77,9 @@ describe('unpack --region from a file', () => {
     ['167:168,359:360', [167, 168], [359, 360]],
     [':40,300:', [0, 40], [300, 360]],
     ['31:33,47:49', [31, 33], [47, 49]],
-  ] as const)('%s gives that window of the whole decode, bit for bit', (region, rows, cols) => {
+  ] as const)('%s gives that window of the whole decode, bit for bit', async (region, rows, cols) => {
     const out = `w-${region.replace(/[:,]/g, '_')}.npy`;
-    const r = rf(['unpack', 'precip.rfz', '-o', out, '--region', region], tmp.dir);
+    const r = await rfIn(['unpack', 'precip.rfz', '-o', out, '--region', region], tmp.dir);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(new RegExp(`unpacked rows ${rows[0]}\\.\\.${rows[1] - 1}, columns ${cols[0]}\\.\\.${cols[1] - 1} \\(${rows[1] - rows[0]}x${cols[1] - cols[0]}\\) of field 'precip'`));
     const got = parseNpy(new Uint8Array(readFileSync(join(tmp.dir, out))));
@@ -110,8 +94,8 @@ describe('unpack --region from a file', () => {
     ['0:5,-1:3', /region must be R0:R1,C0:C1/],
     ['0:200,0:5', /field 'precip' has 168 rows; rows \[0, 200\) lies outside rows 0\.\.168/],
     ['0:5,360:', /cols \[360, 360\) is empty/],
-  ])('--region %s is refused with one error line and no output', (region, message) => {
-    const r = rf(['unpack', 'precip.rfz', '-o', 'bad.npy', '--region', region], tmp.dir);
+  ])('--region %s is refused with one error line and no output', async (region, message) => {
+    const r = await rfIn(['unpack', 'precip.rfz', '-o', 'bad.npy', '--region', region], tmp.dir);
     expectCliError(r, message);
     expect(leftovers(tmp.dir)).toEqual([]);
   });
@@ -130,7 +114,7 @@ function asked(s: RangeServer): number {
 describe('archives at an http URL', { timeout: CLI_TIMEOUT }, () => {
   it('unpack --region reads only what the window needs and gives the same window', async () => {
     server.reset();
-    const r = await rfAsync(['unpack', `${server.url}/precip.rfz`, '-o', 'url.npy', '--region', '100:130,200:260'], tmp.dir);
+    const r = await rfIn(['unpack', `${server.url}/precip.rfz`, '-o', 'url.npy', '--region', '100:130,200:260'], tmp.dir);
     expect(r.code, r.stderr).toBe(0);
     const got = parseNpy(new Uint8Array(readFileSync(join(tmp.dir, 'url.npy'))));
     expectSameBytes(got.data, windowOf([100, 130], [200, 260]));
@@ -155,9 +139,9 @@ describe('archives at an http URL', { timeout: CLI_TIMEOUT }, () => {
 
   it('show reads only the probe byte, prologue, tail, header and index, and says what a file show says', async () => {
     server.reset();
-    const r = await rfAsync(['show', `${server.url}/precip.rfz`, '--json'], tmp.dir);
+    const r = await rfIn(['show', `${server.url}/precip.rfz`, '--json'], tmp.dir);
     expect(r.code, r.stderr).toBe(0);
-    const local = rf(['show', 'precip.rfz', '--json'], tmp.dir);
+    const local = await rfIn(['show', 'precip.rfz', '--json'], tmp.dir);
     const a = JSON.parse(r.stdout) as Record<string, unknown>;
     const b = JSON.parse(local.stdout) as Record<string, unknown>;
     // The same facts, but for the bytes by role, which a file show counts from the payloads and a URL show does not fetch.
@@ -174,19 +158,19 @@ describe('archives at an http URL', { timeout: CLI_TIMEOUT }, () => {
   });
 
   it('check URL passes, against the original too', async () => {
-    const r = await rfAsync(['check', `${server.url}/precip.rfz`, '--against', 'precip.npy'], tmp.dir);
+    const r = await rfIn(['check', `${server.url}/precip.rfz`, '--against', 'precip.npy'], tmp.dir);
     expect(r.code, r.stderr).toBe(0);
     expect(r.stdout).toMatch(/check passed/);
   });
 
   it('a missing URL and a malformed URL give one error line (exit 2)', async () => {
-    expectCliError(await rfAsync(['show', `${server.url}/none.rfz`], tmp.dir), /cannot reach '.*none\.rfz': HTTP 404 Not Found/);
-    expectCliError(await rfAsync(['show', 'http://exa mple/x.rfz'], tmp.dir), /'http:\/\/exa mple\/x\.rfz' is not a URL/);
+    expectCliError(await rfIn(['show', `${server.url}/none.rfz`], tmp.dir), /cannot reach '.*none\.rfz': HTTP 404 Not Found/);
+    expectCliError(await rfIn(['show', 'http://exa mple/x.rfz'], tmp.dir), /'http:\/\/exa mple\/x\.rfz' is not a URL/);
     expect(leftovers(tmp.dir)).toEqual([]);
   });
 
   it('an unreachable server gives one error line (exit 2) after the retries', async () => {
-    expectCliError(await rfAsync(['unpack', 'http://127.0.0.1:1/x.rfz', '-o', 'x.npy'], tmp.dir), /cannot reach 'http:\/\/127\.0\.0\.1:1\/x\.rfz': .*gave up after 4 attempts/);
+    expectCliError(await rfIn(['unpack', 'http://127.0.0.1:1/x.rfz', '-o', 'x.npy'], tmp.dir), /cannot reach 'http:\/\/127\.0\.0\.1:1\/x\.rfz': .*gave up after 4 attempts/);
     // Over 2 s by design: the CLI waits out HttpSource's back-off between its 4 attempts
     // (250 + 500 + 1000 ms by default); the describe's explicit CLI_TIMEOUT covers it.
     expect(leftovers(tmp.dir)).toEqual([]);

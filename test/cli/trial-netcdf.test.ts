@@ -13,17 +13,17 @@ import { join } from 'node:path';
 import { NetCDFReader } from 'netcdfjs';
 import { afterAll, describe, expect, it } from 'vitest';
 import { formatNpy } from '../../src/io/npy.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, ROOT, rf, tempDir } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, ROOT, rfIn, tempDir } from './helpers.js';
 
 const FIXTURE = join(ROOT, 'test', 'fixtures', 'netcdf', 'corvane-run-classic.nc');
 const { dir, remove } = tempDir();
 afterAll(remove);
 
 describe('trial of NetCDF input', { timeout: CLI_TIMEOUT }, () => {
-  it('samples the middle slice of a variable of a file named anything, against the whole variable\'s range', () => {
+  it('samples the middle slice of a variable of a file named anything, against the whole variable\'s range', async () => {
     ensureBuilt();
     copyFileSync(FIXTURE, join(dir, 'run-output'));
-    const r = rf(['trial', 'run-output', '--var', 'sst', '--sample', '16', '--bounds', 'abs:0.01,rel:1e-3', '--json'], dir);
+    const r = await rfIn(['trial', 'run-output', '--var', 'sst', '--sample', '16', '--bounds', 'abs:0.01,rel:1e-3', '--json'], dir);
     expect(r.code, r.stderr).toBe(0);
     const t = JSON.parse(r.stdout);
     expect([t.variable, t.shape, t.dtype]).toEqual(['sst', [6, 24, 32], 'f32']);
@@ -39,15 +39,15 @@ describe('trial of NetCDF input', { timeout: CLI_TIMEOUT }, () => {
     expect(rel.maxErr).toBeLessThanOrEqual(rel.tolerance);
   });
 
-  it('takes the first variable of 2 or more dimensions by default, and refuses what does not fit', () => {
-    const r = rf(['trial', FIXTURE, '--sample', '16', '--bounds', 'abs:0.01', '--json'], dir);
+  it('takes the first variable of 2 or more dimensions by default, and refuses what does not fit', async () => {
+    const r = await rfIn(['trial', FIXTURE, '--sample', '16', '--bounds', 'abs:0.01', '--json'], dir);
     expect(r.code, r.stderr).toBe(0);
     expect(JSON.parse(r.stdout).variable).toBe('sst');
-    expectCliError(rf(['trial', FIXTURE, '--var', 'nothing'], dir), /no variable named 'nothing'/);
-    expectCliError(rf(['trial', FIXTURE, '--var', 'lat'], dir), /variable 'lat' has 1 dimension/);
-    expectCliError(rf(['trial', FIXTURE, '--shape', '2x3'], dir), /--shape describe raw input/);
+    expectCliError(await rfIn(['trial', FIXTURE, '--var', 'nothing'], dir), /no variable named 'nothing'/);
+    expectCliError(await rfIn(['trial', FIXTURE, '--var', 'lat'], dir), /variable 'lat' has 1 dimension/);
+    expectCliError(await rfIn(['trial', FIXTURE, '--shape', '2x3'], dir), /--shape describe raw input/);
     const slice = Float32Array.from((new NetCDFReader(readFileSync(FIXTURE)).getDataVariable('sst') as number[][])[0]);
     writeFileSync(join(dir, 'x.npy'), formatNpy({ data: slice, shape: [24, 32], dtype: 'f32' }));
-    expectCliError(rf(['trial', join(dir, 'x.npy'), '--var', 'sst'], dir), /--var applies to NetCDF input; '.*x\.npy' is not NetCDF/);
+    expectCliError(await rfIn(['trial', join(dir, 'x.npy'), '--var', 'sst'], dir), /--var applies to NetCDF input; '.*x\.npy' is not NetCDF/);
   });
 });

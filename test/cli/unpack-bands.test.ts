@@ -15,14 +15,14 @@ import { ArchiveBuilder, open, pack } from '../../src/index.js';
 import { FileSink } from '../../src/io/file-sink.js';
 import { MemorySink } from '../../src/format/container.js';
 import { formatNpy } from '../../src/io/npy.js';
-import { CLI_TIMEOUT, ensureBuilt, rf, tempDir } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, rfIn, tempDir } from './helpers.js';
 
 const { dir, remove } = tempDir();
 const ROWS = 300;
 const COLS = 260;
 const values = Float32Array.from({ length: ROWS * COLS }, (_, k) => Math.sin(k / 97) * 10 + Math.cos((k % COLS) / 7));
 
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   // 32 x 32 tiles: 10 tile rows, so two threads read at least four bands.
   writeFileSync(join(dir, 'f.rfz'), pack(values, [ROWS, COLS], { bound: 'abs:0.01', tile: 32 }));
@@ -33,7 +33,7 @@ afterAll(remove);
 
 describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
   it('writes CSV of a field over several bands as the text of the whole field', async () => {
-    const r = rf(['unpack', 'f.rfz', '-o', 'f.csv', '--threads', '2'], dir);
+    const r = await rfIn(['unpack', 'f.rfz', '-o', 'f.csv', '--threads', '2'], dir);
     expect(r.code, r.stderr).toBe(0);
     const a = await open(readFileSync(join(dir, 'f.rfz')));
     const whole = await a.read();
@@ -41,9 +41,9 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
   });
 
   it('writes CSV of a field of slices with running indexes across bands', async () => {
-    const p = rf(['pack', 's.npy', '-o', 's.rfz', '--bound', 'abs:0.01', '--tile', '32'], dir);
+    const p = await rfIn(['pack', 's.npy', '-o', 's.rfz', '--bound', 'abs:0.01', '--tile', '32'], dir);
     expect(p.code, p.stderr).toBe(0);
-    const r = rf(['unpack', 's.rfz', '-o', 's.csv', '--threads', '2'], dir);
+    const r = await rfIn(['unpack', 's.rfz', '-o', 's.csv', '--threads', '2'], dir);
     expect(r.code, r.stderr).toBe(0);
     const a = await open(readFileSync(join(dir, 's.rfz')));
     const whole = await a.read();
@@ -62,7 +62,7 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
     sink.close();
     mkdirSync(join(dir, 'out-ok'));
     mkdirSync(join(dir, 'out-bad'));
-    const r = rf(['unpack', 'two.rfz', '-o', 'out-ok/', '--threads', '2'], dir);
+    const r = await rfIn(['unpack', 'two.rfz', '-o', 'out-ok/', '--threads', '2'], dir);
     expect(r.code, r.stderr).toBe(0);
     expect(statSync(join(dir, 'out-ok', 'b.npy')).size).toBe(128 + ROWS * COLS * 4);
     // A flipped byte in the last tile of field b: its checksum fails after a.npy was written.
@@ -71,7 +71,7 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
     const e = await a.tileEntry('b', 80);
     bytes[e.offset + (e.length >> 1)] ^= 0x40;
     writeFileSync(join(dir, 'bad.rfz'), bytes);
-    const f = rf(['unpack', 'bad.rfz', '-o', 'out-bad/', '--threads', '2'], dir);
+    const f = await rfIn(['unpack', 'bad.rfz', '-o', 'out-bad/', '--threads', '2'], dir);
     expect(f.code).toBe(2);
     expect(f.stderr.trim().split('\n')).toHaveLength(1);
     expect(f.stderr).toMatch(/^rankfield: error: .*tile 80/);
@@ -80,7 +80,7 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
 
   // The note starts above ANNOUNCE_BYTES (64 MiB): a 4096 x 4096 field is packed in-process and unpacked
   // twice to 64 MiB files, which takes tens of seconds on a busy machine; hence its own limit.
-  it('says how many bytes a large output takes before writing it (a small archive of a constant field)', { timeout: 120_000 }, () => {
+  it('says how many bytes a large output takes before writing it (a small archive of a constant field)', { timeout: 120_000 }, async () => {
     const side = 4096;
     const sink = FileSink.create(join(dir, 'const.rfz'));
     const b = new ArchiveBuilder(sink);
@@ -88,7 +88,7 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
     b.finish();
     sink.close();
     expect(statSync(join(dir, 'const.rfz')).size).toBeLessThan(4096);
-    const r = rf(['unpack', 'const.rfz', '-o', 'const.npy', '--threads', '2'], dir);
+    const r = await rfIn(['unpack', 'const.rfz', '-o', 'const.npy', '--threads', '2'], dir);
     expect(r.code, r.stderr).toBe(0);
     const size = statSync(join(dir, 'const.npy')).size;
     expect(size).toBe(128 + side * side * 4);
@@ -100,7 +100,7 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
     expect(head.subarray(0, 6).toString('latin1')).toBe('\x93NUMPY');
     expect(head.toString('latin1', 10, 128)).toMatch(/'shape': \(4096, 4096\)/);
     expect(head.readFloatLE(128)).toBe(1.5);
-    const q = rf(['unpack', 'const.rfz', '-o', 'const2.npy', '--quiet', '--threads', '2'], dir);
+    const q = await rfIn(['unpack', 'const.rfz', '-o', 'const2.npy', '--quiet', '--threads', '2'], dir);
     expect(q.code, q.stderr).toBe(0);
     expect(q.stderr).toBe('');
   });
@@ -127,10 +127,10 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
     sink.close();
     expect(statSync(join(dir, 'huge.rfz')).size).toBeLessThan(8192);
     // The archive is valid: a window of it decodes.
-    const w = rf(['unpack', 'huge.rfz', '-o', 'corner.npy', '--region', '9000:9002,16000:16002', '--quiet'], dir);
+    const w = await rfIn(['unpack', 'huge.rfz', '-o', 'corner.npy', '--region', '9000:9002,16000:16002', '--quiet'], dir);
     expect(w.code, w.stderr).toBe(0);
     expect(readFileSync(join(dir, 'corner.npy')).readFloatLE(128)).toBe(1.5);
-    const r = rf(['unpack', 'huge.rfz', '-o', 'huge.nc'], dir);
+    const r = await rfIn(['unpack', 'huge.rfz', '-o', 'huge.nc'], dir);
     expect(r.code).toBe(2);
     expect(r.stderr).toBe(`rankfield: error: 'huge.nc' would hold 1 field whole (NetCDF is written from memory) in memory, ${rows * cols * 4} bytes of values, more than the 536870912 this output allows; write .npy or raw (band by band, any size), or a smaller window\n`);
     expect(existsSync(join(dir, 'huge.nc'))).toBe(false);

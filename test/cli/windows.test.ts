@@ -15,7 +15,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { parseNpy } from '../../src/io/npy.js';
 import { precip } from '../archive/datasets.js';
 import { cdlValues, haveNetcdfBin, ncgen } from '../cdl.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, rf, tempDir } from './helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, expectCliError, rfIn, tempDir } from './helpers.js';
 
 const RUN = haveNetcdfBin('the window tests');
 const T = 3;
@@ -30,7 +30,7 @@ const LON = Array.from({ length: NX }, (_, j) => -179 + 2 * j);
 const E = 1;
 
 let t: ReturnType<typeof tempDir>;
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   t = tempDir('rankfield-win-');
   if (!RUN) return;
@@ -55,7 +55,7 @@ data:
 }
 `;
   ncgen(cdl, join(t.dir, 'rain.nc'));
-  const r = rf(['pack', 'rain.nc', '-o', 'm.rfz', '--bound', `abs:${E}`, '--matrix', 'time:space'], t.dir);
+  const r = await rfIn(['pack', 'rain.nc', '-o', 'm.rfz', '--bound', `abs:${E}`, '--matrix', 'time:space'], t.dir);
   expect(r.code, r.stderr).toBe(0);
 }, CLI_TIMEOUT);
 afterAll(() => t?.remove());
@@ -70,13 +70,13 @@ function windowError(got: ArrayLike<number>, s0: number, s1: number, i0: number,
 }
 
 describe.skipIf(!RUN)('windows of a matrix-laid NetCDF variable', { timeout: CLI_TIMEOUT }, () => {
-  it('--matrix matched the dimension TIME in another case; a name that matches none lists the real ones', () => {
-    expect(rf(['show', 'm.rfz'], t.dir).stdout).toMatch(/layout matrix/);
-    expectCliError(rf(['pack', 'rain.nc', '-o', 'x.rfz', '--bound', 'abs:1', '--matrix', 'depth:space'], t.dir), /the variables are precip\(TIME, lat, lon\)/);
+  it('--matrix matched the dimension TIME in another case; a name that matches none lists the real ones', async () => {
+    expect((await rfIn(['show', 'm.rfz'], t.dir)).stdout).toMatch(/layout matrix/);
+    expectCliError(await rfIn(['pack', 'rain.nc', '-o', 'x.rfz', '--bound', 'abs:1', '--matrix', 'depth:space'], t.dir), /the variables are precip\(TIME, lat, lon\)/);
   });
 
-  it('--slices and --region count the variable\'s own axes on a matrix layout', () => {
-    const r = rf(['unpack', 'm.rfz', '--slices', '1:3', '--region', '10:20,100:130', '-o', 's.npy'], t.dir);
+  it('--slices and --region count the variable\'s own axes on a matrix layout', async () => {
+    const r = await rfIn(['unpack', 'm.rfz', '--slices', '1:3', '--region', '10:20,100:130', '-o', 's.npy'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     const a = parseNpy(new Uint8Array(readFileSync(join(t.dir, 's.npy'))), 's.npy');
     expect(a.shape).toEqual([2, 10, 30]);
@@ -84,8 +84,8 @@ describe.skipIf(!RUN)('windows of a matrix-laid NetCDF variable', { timeout: CLI
     expect(windowError(a.data, 1, 3, 10, 20, 100, 130)).toBeLessThanOrEqual(E);
   });
 
-  it('--where lat=-30:30,lon=100:180 to .nc: the window of those coordinates, the coordinate variables cut to match', () => {
-    const r = rf(['unpack', 'm.rfz', '--where', 'LAT=-30:30,lon=100:180', '-o', 'box.nc'], t.dir);
+  it('--where lat=-30:30,lon=100:180 to .nc: the window of those coordinates, the coordinate variables cut to match', async () => {
+    const r = await rfIn(['unpack', 'm.rfz', '--where', 'LAT=-30:30,lon=100:180', '-o', 'box.nc'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     const i0 = LAT.findIndex((y) => y <= 30);
     const i1 = LAT.findIndex((y) => y < -30);
@@ -100,16 +100,16 @@ describe.skipIf(!RUN)('windows of a matrix-laid NetCDF variable', { timeout: CLI
     expect(windowError((b.getDataVariable('precip') as number[][]).flat(), 0, T, i0, i1, j0, j1)).toBeLessThanOrEqual(E);
   });
 
-  it('--region to .nc cuts the dimensions and coordinates by index', () => {
-    expect(rf(['unpack', 'm.rfz', '--var', 'precip', '--region', '4:8,0:5', '-o', 'r.nc'], t.dir).code).toBe(0);
+  it('--region to .nc cuts the dimensions and coordinates by index', async () => {
+    expect((await rfIn(['unpack', 'm.rfz', '--var', 'precip', '--region', '4:8,0:5', '-o', 'r.nc'], t.dir)).code).toBe(0);
     const b = new NetCDFReader(readFileSync(join(t.dir, 'r.nc')));
     expect(b.getDataVariable('lat')).toEqual(LAT.slice(4, 8));
     expect(b.getDataVariable('lon')).toEqual(LON.slice(0, 5));
   });
 
-  it('--where names that match no dimension, and ranges that select nothing, are refused with what there is', () => {
-    expectCliError(rf(['unpack', 'm.rfz', '--where', 'depth=0:10', '-o', 'x.npy'], t.dir), /field 'precip' has no dimension 'depth'; its dimensions are TIME, lat, lon/);
-    expectCliError(rf(['unpack', 'm.rfz', '--where', 'lat=85:90', '-o', 'x.npy'], t.dir), /--where lat=85:90 selects nothing: coordinate 'lat' runs from -83 to 83/);
+  it('--where names that match no dimension, and ranges that select nothing, are refused with what there is', async () => {
+    expectCliError(await rfIn(['unpack', 'm.rfz', '--where', 'depth=0:10', '-o', 'x.npy'], t.dir), /field 'precip' has no dimension 'depth'; its dimensions are TIME, lat, lon/);
+    expectCliError(await rfIn(['unpack', 'm.rfz', '--where', 'lat=85:90', '-o', 'x.npy'], t.dir), /--where lat=85:90 selects nothing: coordinate 'lat' runs from -83 to 83/);
   });
 });
 
@@ -127,7 +127,7 @@ describe.skipIf(!RUN)('windows of a 4-D variable written to .nc, on both layouts
     expect(k).toBe(got.length);
     return m;
   };
-  beforeAll(() => {
+  beforeAll(async () => {
     const cdl = `netcdf deep {
 dimensions:
   time = UNLIMITED ;
@@ -150,13 +150,13 @@ data:
 `;
     ncgen(cdl, join(t.dir, 'deep.nc'));
     for (const [out, how] of [['d-slices.rfz', ['--layout', 'slices']], ['d-matrix.rfz', ['--matrix', 'time,depth:space']]] as const) {
-      const r = rf(['pack', 'deep.nc', '-o', out, '--bound', `abs:${E}`, '--tile', '8', ...how], t.dir);
+      const r = await rfIn(['pack', 'deep.nc', '-o', out, '--bound', `abs:${E}`, '--tile', '8', ...how], t.dir);
       expect(r.code, r.stderr).toBe(0);
     }
   }, CLI_TIMEOUT);
 
-  it.each(['d-slices.rfz', 'd-matrix.rfz'])('%s: --slices A:B,C:D (a range per leading axis) with --region gives that box, the coordinate variables cut to match', (archive) => {
-    const r = rf(['unpack', archive, '--slices', '0:2,1:3', '--region', '2:7,3:9', '-o', `box-${archive}.nc`], t.dir);
+  it.each(['d-slices.rfz', 'd-matrix.rfz'])('%s: --slices A:B,C:D (a range per leading axis) with --region gives that box, the coordinate variables cut to match', async (archive) => {
+    const r = await rfIn(['unpack', archive, '--slices', '0:2,1:3', '--region', '2:7,3:9', '-o', `box-${archive}.nc`], t.dir);
     expect(r.code, r.stderr).toBe(0);
     // netcdfjs 4.0.0, an independent reader of the classic format.
     const b = new NetCDFReader(readFileSync(join(t.dir, `box-${archive}.nc`)));
@@ -170,19 +170,19 @@ data:
     expect(boxError((b.getDataVariable('rain') as number[][]).flat(), [[0, 2], [1, 3], [2, 7], [3, 9]])).toBeLessThanOrEqual(E);
   });
 
-  it.each(['d-slices.rfz', 'd-matrix.rfz'])('%s: --slices A:B of the leading axes together is written when it is one box (time 1, all depths), refused with the remedy when not', (archive) => {
-    expect(rf(['unpack', archive, '--slices', '3:6', '-o', `t1-${archive}.nc`], t.dir).code).toBe(0);
+  it.each(['d-slices.rfz', 'd-matrix.rfz'])('%s: --slices A:B of the leading axes together is written when it is one box (time 1, all depths), refused with the remedy when not', async (archive) => {
+    expect((await rfIn(['unpack', archive, '--slices', '3:6', '-o', `t1-${archive}.nc`], t.dir)).code).toBe(0);
     const b = new NetCDFReader(readFileSync(join(t.dir, `t1-${archive}.nc`)));
     expect(b.dimensions.map((d) => [d.name, d.size])).toEqual([['time', 0], ['depth', 3], ['lat', 12], ['lon', 10]]);
     expect(b.getDataVariable('time')).toEqual([20]);
     expect(boxError((b.getDataVariable('rain') as number[][]).flat(), [[1, 2], [0, 3], [0, 12], [0, 10]])).toBeLessThanOrEqual(E);
     // Slices 2..4 are depth 2 of time 0 and depths 0, 1 of time 1: no box.
-    expectCliError(rf(['unpack', archive, '--slices', '2:5', '-o', 'x.nc'], t.dir), /slices 2\.\.4 are not one range of each.*give one range per leading axis \(--slices A:B,A:B\)/);
-    expectCliError(rf(['unpack', archive, '--slices', '0:1,0:1,0:1', '-o', 'x.nc'], t.dir), /--slices gives 3 ranges, but field 'rain' has 2 leading axes \(time, depth\)/);
+    expectCliError(await rfIn(['unpack', archive, '--slices', '2:5', '-o', 'x.nc'], t.dir), /slices 2\.\.4 are not one range of each.*give one range per leading axis \(--slices A:B,A:B\)/);
+    expectCliError(await rfIn(['unpack', archive, '--slices', '0:1,0:1,0:1', '-o', 'x.nc'], t.dir), /--slices gives 3 ranges, but field 'rain' has 2 leading axes \(time, depth\)/);
   });
 
-  it('--slices A:B,C:D to .npy gives the 4-D box', () => {
-    expect(rf(['unpack', 'd-slices.rfz', '--slices', '1:2,0:2', '-o', 'box4.npy'], t.dir).code).toBe(0);
+  it('--slices A:B,C:D to .npy gives the 4-D box', async () => {
+    expect((await rfIn(['unpack', 'd-slices.rfz', '--slices', '1:2,0:2', '-o', 'box4.npy'], t.dir)).code).toBe(0);
     const a = parseNpy(new Uint8Array(readFileSync(join(t.dir, 'box4.npy'))), 'box4.npy');
     expect(a.shape).toEqual([1, 2, 12, 10]);
     expect(boxError(Array.from(a.data), [[1, 2], [0, 2], [0, 12], [0, 10]])).toBeLessThanOrEqual(E);

@@ -22,7 +22,7 @@ import { fieldBands, netcdfFields } from '../../src/cli/netcdf.js';
 import { netcdfSample } from '../../src/cli/trial.js';
 import { readGrids, slicePlane } from '../../src/picture/sample.js';
 import { haveNetcdfBin, NCCOPY } from '../cdl.js';
-import { CLI_TIMEOUT, ensureBuilt, rf, tempDir } from '../cli/helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, rfIn, tempDir } from '../cli/helpers.js';
 
 const NC = haveNetcdfBin('the NetCDF-4 band-reading tests');
 const T = 5;
@@ -67,7 +67,7 @@ function model(): NcWriteFile {
 let t: ReturnType<typeof tempDir>;
 let classic: string;
 let bytes: Uint8Array;
-beforeAll(() => {
+beforeAll(async () => {
   ensureBuilt();
   t = tempDir('rankfield-ncbands-');
   bytes = writeNetcdf(model());
@@ -98,7 +98,7 @@ function counted(nc: NetcdfInput): { nc: NetcdfInput; reads: number[] } {
 }
 
 describe('classic files read by positioned reads', () => {
-  it('opening reads the header alone; a band of rows reads exactly its bytes, records interleaved or not', () => {
+  it('opening reads the header alone; a band of rows reads exactly its bytes, records interleaved or not', async () => {
     const nc = openClassicInput(classic);
     try {
       // The header is read from a prefix of at most 64 KiB (and the HDF5 signature probes, 8 bytes each).
@@ -126,7 +126,7 @@ describe('classic files read by positioned reads', () => {
     }
   });
 
-  it('flatPieces cuts a run of C-order positions into at most two hyperslabs per axis', () => {
+  it('flatPieces cuts a run of C-order positions into at most two hyperslabs per axis', async () => {
     const shape = [3, 4, 5];
     for (const [start, count] of [[0, 60], [7, 31], [20, 20], [3, 1], [19, 2], [0, 5], [55, 5]]) {
       const pieces = flatPieces(shape, start, count);
@@ -186,7 +186,7 @@ describe('NetCDF-4 variables that cannot be read in bounded memory', { timeout: 
     } finally {
       nc.close();
     }
-    const r = rf(['pack', path, '-o', 'bigchunk.rfz', '--bound', 'abs:0.1'], t.dir);
+    const r = await rfIn(['pack', path, '-o', 'bigchunk.rfz', '--bound', 'abs:0.1'], t.dir);
     expect(r.code).toBe(2);
     expect(r.stderr).toMatch(/^rankfield: error: .*bigchunk\.h5: variable '\/big' is stored in compressed chunks/);
   });
@@ -213,7 +213,7 @@ describe('pack reads NetCDF by bands into the same archive', { timeout: 240_000 
   it('classic: the archive is byte for byte the one packed from the variables read whole', async () => {
     for (const bound of ['rel:1e-3']) {
       const out = join(t.dir, `run-${bound.replace(':', '')}.rfz`);
-      const r = rf(['pack', classic, '-o', out, '--bound', bound, '--threads', '1', '--quiet'], t.dir);
+      const r = await rfIn(['pack', classic, '-o', out, '--bound', bound, '--threads', '1', '--quiet'], t.dir);
       expect(r.code, r.stderr).toBe(0);
       expect(Buffer.from(readFileSync(out)).equals(Buffer.from(await fromWholeVariables(out, bytes, bound)))).toBe(true);
     }
@@ -223,7 +223,7 @@ describe('pack reads NetCDF by bands into the same archive', { timeout: 240_000 
     const nc4 = join(t.dir, 'pack4.nc');
     execFileSync(NCCOPY, ['-k', 'nc4', '-d', '2', classic, nc4]);
     const out = join(t.dir, 'pack4.rfz');
-    const r = rf(['pack', nc4, '-o', out, '--bound', 'psnr:60', '--threads', '1', '--quiet'], t.dir);
+    const r = await rfIn(['pack', nc4, '-o', out, '--bound', 'psnr:60', '--threads', '1', '--quiet'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     expect(Buffer.from(readFileSync(out)).equals(Buffer.from(await fromWholeVariables(out, await netcdf4ToClassic(nc4), 'psnr:60')))).toBe(true);
   });
@@ -273,10 +273,10 @@ describe('check, trial and preview read originals by bands', { timeout: CLI_TIME
     expect(asked).toEqual(Array.from({ length: T }, (_, s) => [[s * Y, 16], [s * Y + 16, 16], [s * Y + 32, 8]]).flat());
   });
 
-  it('check --against a NetCDF and a .npy original compares band by band', () => {
+  it('check --against a NetCDF and a .npy original compares band by band', async () => {
     const out = join(t.dir, 'chk.rfz');
-    expect(rf(['pack', classic, '-o', out, '--bound', 'abs:0.01', '--var', 'deep', '--quiet'], t.dir).code).toBe(0);
-    const r = rf(['check', out, '--against', classic, '--json'], t.dir);
+    expect((await rfIn(['pack', classic, '-o', out, '--bound', 'abs:0.01', '--var', 'deep', '--quiet'], t.dir)).code).toBe(0);
+    const r = await rfIn(['check', out, '--against', classic, '--json'], t.dir);
     expect(r.code, r.stderr).toBe(0);
     const rep = JSON.parse(r.stdout) as { ok: boolean; fields: { measured: { maxErr: number; specialMismatches: number } }[] };
     expect(rep.ok).toBe(true);
@@ -286,12 +286,12 @@ describe('check, trial and preview read originals by bands', { timeout: CLI_TIME
     const deep = readNetcdfVariable(bytes, readNetcdfHeader(bytes), 'deep').values as Float64Array;
     const npy = join(t.dir, 'deep.npy');
     writeFileSync(npy, Buffer.concat([npyHeader([6, 20, 16], 'f64'), valueBytes(deep, 'little')]));
-    const n = rf(['check', out, '--against', npy, '--json'], t.dir);
+    const n = await rfIn(['check', out, '--against', npy, '--json'], t.dir);
     expect(n.code, n.stderr).toBe(0);
     expect((JSON.parse(n.stdout) as typeof rep).fields[0].measured).toEqual(rep.fields[0].measured);
   });
 
-  it('trial reads a NetCDF variable a band at a time, then the sample rows alone', () => {
+  it('trial reads a NetCDF variable a band at a time, then the sample rows alone', async () => {
     const { nc, reads } = counted(classicInput(bytes, 'run.nc'));
     const s = netcdfSample(nc, { var: 'temp', sample: 8 }, 200);
     expect(s.shape).toEqual([8, 8]);

@@ -18,7 +18,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ArchiveBuilder, HttpSource, MemorySink, open, pack } from '../../src/index.js';
 import { parseByteranges } from '../../src/io/http-source.js';
 import { parseRangeHeader } from '../../src/view/server.js';
-import { CLI_TIMEOUT, ensureBuilt, ensureBundled, expectCliError, rf, rfAsync, ROOT, tempDir, volcano } from '../cli/helpers.js';
+import { CLI_TIMEOUT, ensureBuilt, ensureBundled, expectCliError, rfAsync, rfIn, ROOT, tempDir, volcano } from '../cli/helpers.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
 import { startView, type RunningView } from './start.js';
 
@@ -78,17 +78,17 @@ describe('rankfield view (command and server)', () => {
   }
 
   it('refuses bad arguments with one line and exit code 2', async () => {
-    expectCliError(rf(['view', join(tmp.dir, 'nothing.rfz')], tmp.dir), /cannot read '.*nothing\.rfz': no such file or directory/);
-    expectCliError(rf(['view', file, '--port', 'eighty'], tmp.dir), /port must be an integer from 0 to 65535/);
-    expectCliError(rf(['view', file, '--port', '70000'], tmp.dir), /port must be an integer from 0 to 65535/);
+    expectCliError(await rfIn(['view', join(tmp.dir, 'nothing.rfz')], tmp.dir), /cannot read '.*nothing\.rfz': no such file or directory/);
+    expectCliError(await rfIn(['view', file, '--port', 'eighty'], tmp.dir), /port must be an integer from 0 to 65535/);
+    expectCliError(await rfIn(['view', file, '--port', '70000'], tmp.dir), /port must be an integer from 0 to 65535/);
     const notArchive = join(tmp.dir, 'text.rfz');
     writeFileSync(notArchive, 'not an archive at all, just some text\n'.repeat(4));
-    expectCliError(rf(['view', notArchive], tmp.dir), /text\.rfz/);
-    expectCliError(rf(['view'], tmp.dir), /missing required argument/);
+    expectCliError(await rfIn(['view', notArchive], tmp.dir), /text\.rfz/);
+    expectCliError(await rfIn(['view'], tmp.dir), /missing required argument/);
     const empty = new MemorySink();
     new ArchiveBuilder(empty).finish();
     writeFileSync(join(tmp.dir, 'empty.rfz'), empty.bytes());
-    expectCliError(rf(['view', 'empty.rfz'], tmp.dir), /'empty\.rfz' holds no fields to view/);
+    expectCliError(await rfIn(['view', 'empty.rfz'], tmp.dir), /'empty\.rfz' holds no fields to view/);
     // A port in use.
     const busy = createServer();
     await new Promise<void>((resolve) => busy.listen(0, '127.0.0.1', () => resolve()));
@@ -192,7 +192,8 @@ describe('rankfield view (command and server)', () => {
 
   it('offers the coordinate variables a NetCDF source carried', async () => {
     const rfz = join(tmp.dir, 'corvane.rfz');
-    expect(rf(['pack', FIXTURE, '-o', rfz, '--bound', 'rel:1e-3', '--var', 'sst', '--quiet'], tmp.dir).code).toBe(0);
+    // A fixed layout and tile: the point is the coordinates the viewer offers, not the trials.
+    expect((await rfIn(['pack', FIXTURE, '-o', rfz, '--bound', 'rel:1e-3', '--var', 'sst', '--layout', 'slices', '--tile', '24x32', '--quiet'], tmp.dir)).code).toBe(0);
     const v = await view([rfz]);
     const info = (await (await fetch(new URL('/info.json', v.url))).json()) as { coords: Record<string, number[]> };
     // The same values netcdfjs 4.0.0 reads from the source file.
