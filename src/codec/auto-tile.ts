@@ -15,7 +15,7 @@ const SQUARE = [64, 128, 256];
  * A larger square, tried on fields whose both sides reach
  * {@link LARGE_SIDE} (so that the trial's tiles are a small share of the
  * field). On smooth fields at loose
- * bounds a tile's fixed cost (its index entry and payload head, about 40
+ * bounds a tile's fixed cost (its index entry and payload head, about 34
  * bytes) is a large share of a 256 x 256 tile's few hundred bytes.
  */
 const LARGE_SQUARE = 512;
