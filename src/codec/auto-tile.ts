@@ -225,7 +225,8 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
     }
   }
   let bytes = 0;
-  const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES));
+  // The basis made above, not a second range pass over the small field.
+  const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES), { basis, done: new Map() });
   return { bytes, valid: done.valid, done: new Map() };
 }
 

@@ -48,11 +48,6 @@ export function lowRank(
   }
 }
 
-/** Residual: out[c] = out[c] + q[c] * step, for every cell. */
-export function addResidual(out: Float64Array, q: Int32Array, step: number): void {
-  for (let c = 0; c < q.length; c++) out[c] += q[c] * step;
-}
-
 /**
  * Predictors of residual codes from their causal neighbours a (left), b (up)
  * and c (up-left), all published:
@@ -341,7 +336,7 @@ export function reconstruct(acc: Float64Array, q: Int32Array | null, step: numbe
     roundTo(acc, out);
     return;
   }
-  // addResidual and roundTo in one pass: each sum is formed in binary64, then stored (rounded) in out;
+  // The residual added and the sum rounded in one pass: each sum acc[c] + q[c] x step is formed in binary64, then stored (rounded) in out;
   // acc is left as it was.
   for (let c = 0; c < q.length; c++) out[c] = acc[c] + q[c] * step;
 }
