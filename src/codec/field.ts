@@ -6,6 +6,7 @@
 import { isPointwise, resolveBound } from './bound.js';
 import { RangeWatch, suspectError } from './fill-guard.js';
 import { fillWords } from './mask.js';
+import { fieldStep } from './payload.js';
 import { ErrorTally } from './tally.js';
 import { measure, measurePrefixes, type TileStats } from './measure.js';
 import { planL2, type L2Plan } from './plan-l2.js';
@@ -113,6 +114,8 @@ export interface TileOutcome extends EncodedTile {
 
 /** Encode one prepared tile under the field's choices; depends on nothing but its arguments. */
 export function encodeTile(c: FieldChoices, t: PreparedTile, index: number): TileOutcome {
+  // A payload may name the field's residual step by a flag; the reader derives it from the stored tolerance.
+  if (t.fieldStep !== fieldStep(c.tol)) throw new Error(`internal: tile ${index} was prepared for another tolerance than the field's`);
   let payload: Uint8Array;
   let res: ReturnType<typeof measure>;
   if (c.plan) ({ payload, res } = c.plan.encode(t, index));

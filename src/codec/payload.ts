@@ -1,5 +1,6 @@
 /** Tile payload constants shared by the encoder and decoder (spec/FORMAT.md, "Tile payloads"). */
 import { LENGTH_BYTES } from '../format/bytes.js';
+import { binary32Below } from './steps.js';
 
 
 /** Payload methods: the first byte of every payload. */
@@ -19,6 +20,8 @@ export const Flag = {
   Mask: 1,
   Residual: 2,
   Exceptions: 4,
+  /** The residual step is the field's (see {@link fieldStep}) and is not stored; only with Residual. */
+  FieldStep: 8,
   /** Factor codes are stored as first differences along each factor vector. */
   FactorDelta: 16,
   /** The centre is stored as binary64 (else binary32). */
@@ -28,10 +31,23 @@ export const Flag = {
 } as const;
 
 /** All flag bits this version defines; any other bit set is refused. */
-export const KNOWN_FLAGS = 0x77;
+export const KNOWN_FLAGS = 0x7f;
 
-/** Largest byte length of the varints of a payload that are not byte lengths (rank, group sizes, step-code differences). */
+/** Largest byte length of the varints of a payload that are not byte lengths (rank, group sizes, step codes and their differences). */
 export const VARINT_BYTES = 3;
+
+/**
+ * The field's residual step, named by flag FieldStep instead of stored:
+ * the largest binary32 value not above twice the field's tolerance (the
+ * step of a pointwise bound's plain residual, which nearly every tile of
+ * such a field uses), or twice the tolerance itself outside binary32's
+ * normal range; 0 (none: the flag is refused) when that is not a positive
+ * finite number.
+ */
+export function fieldStep(tolerance: number): number {
+  const s = binary32Below(2 * tolerance);
+  return s > 0 && Number.isFinite(s) ? s : 0;
+}
 
 /**
  * Where the parts of a LowRank payload lie, from a lenient walk of its
@@ -89,11 +105,15 @@ function walkLowRank(p: Uint8Array): Walk | null {
     sizes.push(s[0]);
     at += s[1];
   }
+  // The right factor's step code, once.
+  const right = varintAt(p, at);
+  if (right === null) return null;
+  at += right[1];
   walk.groupsAt = at;
-  // A group is its step codes (two signed varints a rank), a length varint and its coded stream.
+  // A group is its left step codes (a signed varint a rank), a length varint and its coded stream.
   for (const size of sizes) {
     const start = at;
-    for (let k = 0; k < 2 * size && at <= p.length; k++) {
+    for (let k = 0; k < size && at <= p.length; k++) {
       const c = varintAt(p, at);
       at = c === null ? Infinity : at + c[1];
     }
@@ -169,8 +189,8 @@ export function payloadShares(payload: Uint8Array): PayloadShares | null {
   let residual = 0;
   let exceptions = 0;
   if (payload[1] & Flag.Residual) {
-    // Step (binary32 or binary64), predictor and a length varint.
-    const fixed = (payload[1] & Flag.WideStep ? 8 : 4) + 1;
+    // Step (binary32, binary64, or none for the field's), predictor and a length varint.
+    const fixed = (payload[1] & Flag.FieldStep ? 0 : payload[1] & Flag.WideStep ? 8 : 4) + 1;
     const [lb, stream] = lengthAt(payload, at + fixed);
     residual = fixed + lb + stream;
     framing += fixed + lb;

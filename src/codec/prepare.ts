@@ -11,6 +11,7 @@ import type { Dtype, FloatArray } from '../types.js';
 import { fillMissing } from './fill.js';
 import { Cell, classify, type Classes } from './mask.js';
 import { encodeClasses } from './code-encode.js';
+import { fieldStep } from './payload.js';
 import { binary32Near } from './steps.js';
 
 /** A tile made ready for encoding. */
@@ -38,6 +39,8 @@ export interface PreparedTile {
    * otherwise quantum is 0. See {@link integerLattice}.
    */
   lattice: { quantum: number; origin: number };
+  /** The field's residual step (`fieldStep` of its tolerance; 0 for none): a payload names it by a flag. */
+  fieldStep: number;
 }
 
 /** Classify, fill and centre a tile; the SVD is computed by {@link ensureSvd}. */
@@ -88,7 +91,7 @@ export function prepareTile(
     maskSection = w.finish();
   }
   const lattice = integerLattice(orig, classes.codes);
-  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null, grouping, lattice };
+  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null, grouping, lattice, fieldStep: fieldStep(tol) };
 }
 
 /** Largest integer magnitude the lattice test accepts: far below 2^53, so differences and gcds are exact. */

@@ -28,6 +28,11 @@ export interface TileContext {
   /** Largest rank accepted (a reader limit); default: any rank up to min(m, n). */
   maxRank?: number;
   /**
+   * The field's residual step (`fieldStep` of its tolerance), for payloads
+   * with flag FieldStep; 0 or absent: the field has none, and the flag is refused.
+   */
+  fieldStep?: number;
+  /**
    * Decode a payload prefix holding only the first `groups` factor groups
    * (progressive reading, spec/FORMAT.md "Progressive reading"): the bytes end
    * after that group, and residual and exceptions are not applied.
@@ -92,6 +97,9 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (!Number.isFinite(center)) throw malformed(where, `centre ${center} at ${r.unit} ${centreAt} is not finite`);
   if (flags & Flag.FactorDelta && rank === 0) throw malformed(where, 'factor difference flag on a payload of rank 0');
   if (flags & Flag.WideStep && !(flags & Flag.Residual)) throw malformed(where, 'wide residual step flag on a payload without a residual');
+  if (flags & Flag.FieldStep && !(flags & Flag.Residual)) throw malformed(where, 'field step flag on a payload without a residual');
+  if (flags & Flag.FieldStep && flags & Flag.WideStep) throw malformed(where, 'field step flag with the wide residual step flag');
+  if (flags & Flag.FieldStep && !((ctx.fieldStep ?? 0) > 0)) throw malformed(where, 'field step flag in a field whose tolerance gives no residual step');
 
   const mask = flags & Flag.Mask ? readMask(r, ctx) : null;
   const factors = rank > 0 ? readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0) : { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
@@ -157,7 +165,7 @@ function readMask(r: ByteReader, ctx: TileContext): { codes: Uint8Array; rawNaN:
 function readResidual(r: ByteReader, ctx: TileContext, flags: number, codes: Uint8Array | null): { step: number; q: Int32Array } {
   const { m, n, where } = ctx;
   const stepAt = r.offset;
-  const step = flags & Flag.WideStep ? r.f64('residual step') : r.f32('residual step');
+  const step = flags & Flag.FieldStep ? ctx.fieldStep! : flags & Flag.WideStep ? r.f64('residual step') : r.f32('residual step');
   if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${stepAt} is not a positive finite number`);
   const predictor = r.u8('residual predictor');
   if (predictor > MAX_PREDICTOR) throw malformed(where, `residual predictor ${predictor} at ${r.unit} ${r.offset - 1} is not one of 0..${MAX_PREDICTOR}`);
@@ -226,18 +234,15 @@ function readFactors(r: ByteReader, ctx: TileContext, declared: number, delta: b
   const l = new Float64Array(m * rank);
   const w = new Float64Array(rank * n);
   let k0 = 0;
-  // Step codes are stored as differences from the previous rank's (from 0 for rank 0), left and right apart.
+  // One step code for the right factor; the left ones as differences from the previous rank's (from 0 for rank 0).
+  const dw = stepValue(r.svarint('right step code', VARINT_BYTES), where);
   let cu = 0;
-  let cw = 0;
   for (let g = 0; g < used; g++) {
     const size = sizes[g];
     const du: number[] = [];
-    const dw: number[] = [];
     for (let k = 0; k < size; k++) {
       cu += r.svarint('left step code', VARINT_BYTES);
       du.push(stepValue(cu, where));
-      cw += r.svarint('right step code', VARINT_BYTES);
-      dw.push(stepValue(cw, where));
     }
     const row = new Int32Array(size * (m + n));
     readCoded(r, `factor group ${g}`, 1, row.length, null, row, where);
@@ -247,7 +252,7 @@ function readFactors(r: ByteReader, ctx: TileContext, declared: number, delta: b
       const rk = k0 + k;
       for (let i = 0; i < m; i++) l[i * rank + rk] = row[at + i] * du[k];
       at += m;
-      for (let j = 0; j < n; j++) w[rk * n + j] = row[at + j] * dw[k];
+      for (let j = 0; j < n; j++) w[rk * n + j] = row[at + j] * dw;
       at += n;
     }
     k0 += size;

@@ -39,7 +39,8 @@ export function exactPayload(t: PreparedTile): Uint8Array {
 export interface Factors {
   rank: number;
   codeU: Int16Array;
-  codeW: Int16Array;
+  /** The right factor's step code, one for every rank. */
+  codeW: number;
   /** Column k of the left factor: qu[k*m + i]. */
   qu: Int32Array;
   /** Row k of the right factor: qw[k*n + j]. */
@@ -105,7 +106,7 @@ export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget:
     qw[k] = q;
     w[k] = q * dw;
   }
-  return { rank: r, codeU, codeW: new Int16Array(r).fill(cw), qu, qw, l, w };
+  return { rank: r, codeU, codeW: cw, qu, qw, l, w };
 }
 
 /** Residual and exceptions of a pointwise candidate. */
@@ -126,8 +127,9 @@ interface Correction {
 
 /**
  * Write a LowRank payload: the fixed part, the mask section, the factor
- * groups (step codes, then one coded integer stream of the group's factor
- * codes), the residual (step, then one coded stream over the tile's valid
+ * block (the right factor's step code, then per group its left step codes
+ * and one coded integer stream of its factor codes), the residual (step
+ * unless it is the field's, then one coded stream over the tile's valid
  * cells) and the exceptions section (DEFLATE).
  */
 export function lowRankPayload(t: PreparedTile, f: Factors | null, given: Correction | null): Uint8Array {
@@ -173,7 +175,9 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
   const w = new ByteWriter(64 + t.maskSection.length + (hasResidual ? (m * n) / 2 : 0) + (f ? rank * (m + n) : 0));
   const center = corr !== null ? corr.center : t.center;
   if (Math.fround(center) !== center) flags |= Flag.WideCentre;
-  if (hasResidual && Math.fround(corr.step) !== corr.step) flags |= Flag.WideStep;
+  // The field's own step is named by a flag, any other step stored (binary32 when it is one).
+  if (hasResidual && corr.step === t.fieldStep) flags |= Flag.FieldStep;
+  else if (hasResidual && Math.fround(corr.step) !== corr.step) flags |= Flag.WideStep;
   w.u8(Method.LowRank);
   w.u8(flags);
   w.varint(rank);
@@ -184,12 +188,10 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
     const sizes = groupSizes(rank, t.grouping);
     w.u8(sizes.length);
     for (const size of sizes) w.varint(size);
+    w.svarint(f.codeW);
     let k0 = 0;
     for (const size of sizes) {
-      for (let k = k0; k < k0 + size; k++) {
-        w.svarint(f.codeU[k] - (k > 0 ? f.codeU[k - 1] : 0));
-        w.svarint(f.codeW[k] - (k > 0 ? f.codeW[k - 1] : 0));
-      }
+      for (let k = k0; k < k0 + size; k++) w.svarint(f.codeU[k] - (k > 0 ? f.codeU[k - 1] : 0));
       const row = factorRow(f, k0, size, m, n, delta);
       if (row === null) return null;
       const coded = encodeInts(row, 1, row.length, null);
@@ -200,7 +202,7 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
   }
   if (hasResidual && corr.q) {
     if (flags & Flag.WideStep) w.f64(corr.step);
-    else w.f32(corr.step);
+    else if (!(flags & Flag.FieldStep)) w.f32(corr.step);
     w.u8(corr.predictor);
     const coded = corr.coded ?? encodeInts(corr.q, m, n, t.classes.special > 0 ? t.classes.codes : null);
     w.varint(coded.length);

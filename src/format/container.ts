@@ -16,9 +16,9 @@ export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0
 /** Magic bytes that close every archive. */
 export const TAIL_MAGIC = Uint8Array.of(0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a);
 /** Format versions this reader understands. */
-export const VERSIONS = [6] as const;
+export const VERSIONS = [7] as const;
 /** Version written by this writer. */
-export const VERSION = 6;
+export const VERSION = 7;
 export const PROLOGUE_SIZE = 12;
 /** Required flag bit 0: some field stacks more than one slice (spec/FORMAT.md, "Required flags"). */
 export const FLAG_SLICES = 0x1;

@@ -14,7 +14,7 @@
  * declares and the memory it uses are held under fixed ceilings.
  */
 import { describe, expect, it } from 'vitest';
-import { Flag, payloadShares, prefixLengths } from '../../src/codec/payload.js';
+import { fieldStep, Flag, payloadShares, prefixLengths } from '../../src/codec/payload.js';
 import { corpus, makeCase, runOne, Tally } from './fuzz.js';
 import { cloneModel, getCentre, PayloadFlag, serialize, setCentre, tileDims, walk } from './model.js';
 import { runCase } from './harness.js';
@@ -57,8 +57,8 @@ describe('fuzzing', () => {
     });
     // Cell classes 0..5 of the mask (valid, fill, +Inf, -Inf, NaN, raw NaN): spec/FORMAT.md 10.6.3.
     const want = ['method 0', 'method 1', 'rank > 0 as values', 'rank > 0 as differences', 'several factor groups', 'factors and a residual'];
-    // WideCentre and WideStep: the tiny-f64 and huge-f64 seeds' centres and steps lie beyond binary32's normal range.
-    want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FactorDelta', 'flag WideCentre', 'flag WideStep', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
+    // WideCentre and WideStep: the tiny-f64, tiny-psnr-f64 and huge-f64 seeds' centres and steps lie beyond binary32's normal range.
+    want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FieldStep', 'flag FactorDelta', 'flag WideCentre', 'flag WideStep', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
     want.push('class 0', 'class 1', 'class 2', 'class 3', 'class 4', 'class 5', 'several fields', 'an N-D field', 'f32', 'f64');
     for (const x of want) expect(seen, `no seed has ${x}`).toContain(x);
   });
@@ -110,7 +110,7 @@ describe('fuzzing', () => {
         const p = field[t];
         const [rows, cols] = tileDims(h, t);
         const fill = h.fill instanceof Uint8Array ? new DataView(h.fill.buffer, h.fill.byteOffset, 8).getFloat64(0, true) : h.fill;
-        const ctx = { m: rows, n: cols, dtype: h.dtype, fill: fillWords(fill, h.dtype), where: `${h.name} tile ${t}` };
+        const ctx = { m: rows, n: cols, dtype: h.dtype, fill: fillWords(fill, h.dtype), where: `${h.name} tile ${t}`, fieldStep: fieldStep(h.bound.tolerance) };
         const seedValues = Buffer.from(decodeTile(p, ctx).buffer);
         for (const part of walk(p).parts) {
           if (part.kind !== 'coded') continue;

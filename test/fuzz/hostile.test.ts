@@ -279,8 +279,9 @@ describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
   it('reads an empty error column as zeros, and the writer writes one where every tile decodes exactly (spec 7.3, 7.5)', async () => {
     const zero = withColumn(5, () => new Uint8Array(0));
     expect((await (await open(zero)).loadIndex()).fields[0].rmse).toEqual([0, 0, 0, 0]);
-    // Integers within a bound of 0.1 are stored exactly (spec 19, the lattice candidate): both error columns are empty.
-    const exact = pack(Float64Array.from({ length: 36 }, (_, k) => (k * 7) % 11), [6, 6], { bound: 'abs:0.1', tile: 3 });
+    // Multiples of 1000 within a bound of 0.1 are stored exactly (spec 19, the lattice candidate, whose codes are far
+    // smaller than those of a step of 0.2): both error columns are empty.
+    const exact = pack(Float64Array.from({ length: 36 }, (_, k) => ((k * 7) % 11) * 1000), [6, 6], { bound: 'abs:0.1', tile: 3 });
     // The one index page lies between the payloads and the header (spec 3): decode the writer's own bytes.
     const end = 12 + parse(exact).payloads[0].reduce((sum, p) => sum + p.length, 0);
     const page = decode(exact.subarray(end, layout(exact).headerOffset)) as unknown[];
@@ -541,11 +542,28 @@ describe('tile payloads', () => {
     expect(long.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: rank at (payload|file) offset \\d+ is not in its shortest form$`));
   });
 
-  it('a binary32 centre and step are read exactly: the seed payloads that use them decode to the values check() verifies', async () => {
+  it('refuses the field step flag without a residual, with the wide step flag, or where the tolerance gives no step; and takes the step from the stored tolerance (spec/FORMAT.md 10.6.1, 10.6.5)', async () => {
+    const g = withPart('group 0', (w) => !(w.flags & PayloadFlag.Residual));
+    const e = await refusal(editPayload(g.bytes, g.f, g.t, (p) => void (p[1] |= PayloadFlag.FieldStep)));
+    expect(e.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: field step flag on a payload without a residual$`));
+    const r = withPart('residual', (w) => (w.flags & PayloadFlag.FieldStep) !== 0);
+    const wide = await refusal(editPayload(r.bytes, r.f, r.t, (p) => void (p[1] |= PayloadFlag.WideStep)));
+    expect(wide.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: field step flag with the wide residual step flag$`));
+    const none = await refusal(edit(r.bytes, (m) => (m.header.fields[r.f].bound.tolerance = 0)));
+    expect(none.message).toMatch(new RegExp(`^archive field '${r.field}' tile \\d+: field step flag in a field whose tolerance gives no residual step$`));
+    // A tolerance half as large names a step half as large: the payload still decodes, to other values, which the
+    // value checksum the encoder recorded (spec 12) then catches.
+    const halved = edit(r.bytes, (m) => (m.header.fields[r.f].bound.tolerance /= 2));
+    const report = await (await open(halved)).check();
+    expect(report.failures.map((x) => x.what)).toContainEqual(expect.stringMatching(/value CRC-32 mismatch/));
+  });
+
+  it('a binary32 centre and step, and the field step, are read exactly: the seed payloads that use them decode to the values check() verifies', async () => {
     // Every seed archive passes check() (values CRC-compared with what the encoder verified); here at least one payload
-    // of each kind must hold a binary32 centre and one a binary32 step, so both widths are exercised.
+    // of each kind must hold a binary32 centre, one a binary32 step and one name the field's step (flag FieldStep), so all are exercised.
     let narrowCentre = 0;
     let narrowStep = 0;
+    let fieldSteps = 0;
     for (const seed of buildSeeds()) {
       for (const ps of parse(seed.bytes).payloads) {
         for (const p of ps) {
@@ -553,12 +571,14 @@ describe('tile payloads', () => {
           if (w.method !== 1) continue;
           if (!(w.flags & PayloadFlag.WideCentre)) narrowCentre++;
           if (w.residualStepWidth === 4) narrowStep++;
+          if (w.flags & PayloadFlag.FieldStep) fieldSteps++;
         }
       }
       expect((await (await open(seed.bytes)).check()).failures).toEqual([]);
     }
     expect(narrowCentre).toBeGreaterThan(0);
     expect(narrowStep).toBeGreaterThan(0);
+    expect(fieldSteps).toBeGreaterThan(0);
   });
 
   it('refuses an exception holding the fill value, or a NaN', async () => {
@@ -584,7 +604,7 @@ describe('tile payloads', () => {
   });
 
   it('refuses a residual step of NaN and a centre of Infinity, naming the value and where the centre is', async () => {
-    const r = withPart('residual');
+    const r = withPart('residual', (w) => w.residualStepAt !== undefined);
     const e1 = await refusal(editPayload(r.bytes, r.f, r.t, (p) => setResidualStep(p, NaN)));
     expect(e1.message).toMatch(/residual step NaN at (payload|file) offset \d+ is not a positive finite number/);
     const e2 = await refusal(edit(r.bytes, (m) => setCentre(m.payloads[r.f][r.t], Infinity)));

@@ -2,7 +2,7 @@
  * An archive taken apart for mutation: prologue words, payloads, header and
  * index as decoded values; and put back together with every offset, length
  * and CRC recomputed (or, on request, left as the mutation set them). The
- * layout is the one spec/FORMAT.md documents for version 6 (12-byte
+ * layout is the one spec/FORMAT.md documents for version 7 (12-byte
  * prologue, payloads page by page, MessagePack index pages, header and index
  * directory, 24-byte tail). The index is held as one logical index (columns
  * over all tiles, test/format/paged.ts) and split into its pages when put
@@ -242,7 +242,7 @@ export interface PartRef {
   end: number;
 }
 
-/** A tile payload taken apart (the layout of spec/FORMAT.md section 10, format 6, written out here from the spec, not taken from the library). */
+/** A tile payload taken apart (the layout of spec/FORMAT.md section 10, format 7, written out here from the spec, not taken from the library). */
 export interface PayloadLayout {
   method: number;
   flags: number;
@@ -260,9 +260,9 @@ export interface PayloadLayout {
   groupCountAt: number;
   /** Where the group list ends: the first prefix boundary (for rank 0, where the factor block would be). */
   groupsEnd: number;
-  /** Factor groups: rank count and where their step codes (two signed varints per rank) begin. */
+  /** Factor groups: rank count and where their left step codes (one signed varint per rank) begin. */
   groups: { size: number; stepsAt: number }[];
-  /** The residual's step (binary32, or binary64 with flag WideStep; its u8 predictor follows). */
+  /** The residual's stored step (binary32, or binary64 with flag WideStep; its u8 predictor follows); absent with flag FieldStep (width 0). */
   residualStepAt?: number;
   residualStepWidth?: number;
   /** The residual's predictor (0 none, 1 Lorenzo, 2 left, 3 up, 4 average, 5 median, 6 blend). */
@@ -272,7 +272,7 @@ export interface PayloadLayout {
 }
 
 /** Payload flag bits (src/codec/payload.ts), restated so a change there shows up here as a failing test. */
-export const PayloadFlag = { Mask: 1, Residual: 2, Exceptions: 4, FactorDelta: 16, WideCentre: 32, WideStep: 64 } as const;
+export const PayloadFlag = { Mask: 1, Residual: 2, Exceptions: 4, FieldStep: 8, FactorDelta: 16, WideCentre: 32, WideStep: 64 } as const;
 
 /** An unsigned LEB128 varint at `at` (spec/FORMAT.md section 2): its value and byte length. Throws a RangeError past the end. */
 export function readVarint(p: Uint8Array, at: number): { value: number; bytes: number } {
@@ -354,9 +354,11 @@ export function walk(p: Uint8Array): PayloadLayout {
       sizes.push(v.value);
       at += v.bytes;
     }
+    // The right factor's step code, once; then each group's left step codes (one signed varint per rank).
+    at += readVarint(p, at).bytes;
     for (const [g, size] of sizes.entries()) {
       const stepsAt = at;
-      for (let k = 0; k < 2 * size; k++) at += readVarint(p, at).bytes;
+      for (let k = 0; k < size; k++) at += readVarint(p, at).bytes;
       groups.push({ size, stepsAt });
       at = coded(`group ${g}`, stepsAt, at);
     }
@@ -366,8 +368,8 @@ export function walk(p: Uint8Array): PayloadLayout {
   let residualStepWidth: number | undefined;
   let residualPredictor: number | undefined;
   if (flags & PayloadFlag.Residual) {
-    residualStepAt = at;
-    residualStepWidth = flags & PayloadFlag.WideStep ? 8 : 4;
+    residualStepWidth = flags & PayloadFlag.FieldStep ? 0 : flags & PayloadFlag.WideStep ? 8 : 4;
+    if (residualStepWidth > 0) residualStepAt = at;
     if (at + residualStepWidth + 1 > p.length) throw new RangeError('residual step and predictor cut short');
     residualPredictor = p[at + residualStepWidth];
     at = coded('residual', at, at + residualStepWidth + 1);
