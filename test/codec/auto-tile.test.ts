@@ -47,7 +47,15 @@ describe('tile candidates', () => {
       [3000, 100],
     ]);
     // Both sides at least the sample's 1024: 512 too (four of them fill the sample).
+    // Both sides at least 2048: 1024 too (tried only when 512 did best, chooseTile).
     expect(tileCandidates(4096, 4096)).toEqual([
+      [64, 64],
+      [128, 128],
+      [256, 256],
+      [512, 512],
+      [1024, 1024],
+    ]);
+    expect(tileCandidates(2047, 4096)).toEqual([
       [64, 64],
       [128, 128],
       [256, 256],
