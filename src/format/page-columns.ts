@@ -1,13 +1,14 @@
 /**
- * The binary columns of an index page (spec/FORMAT.md, section 7.3): each
- * per-tile column is one MessagePack `bin` value holding n_p entries,
- * little-endian: byte lengths, kinds and missing counts as unsigned LEB128
- * varints, CRCs as u32, recorded errors as binary32 (or binary64 for a
- * column holding a value that is not a binary32 value, or no byte at all
- * for a column of zeros). Writing here, reading
- * and checking too: a column that is not a bin, has the wrong length,
- * holds a varint that is not in its shortest form or runs over 5 bytes, or
- * has bytes left over is refused with a message naming the column.
+ * The binary columns of an index page (spec/FORMAT.md, section 7.3): one
+ * MessagePack `bin` value holding a widths byte and then every per-tile
+ * column of n_p entries, little-endian, back to back: byte lengths, kinds
+ * and missing counts as unsigned LEB128 varints, CRCs as u32, recorded
+ * errors as binary32 (or binary64 for a column holding a value that is not
+ * a binary32 value, or no byte at all for a column of zeros). Writing
+ * here, reading and checking too: columns that are not a bin, an entry
+ * past their end, a varint that is not in its shortest form or runs over
+ * 5 bytes, or bytes left over are refused with a message naming the column
+ * and entry.
  */
 import { FormatError } from '../errors.js';
 import { ByteReader, ByteWriter, LENGTH_BYTES } from './bytes.js';
@@ -37,48 +38,76 @@ export function kindParts(kind: number): { method: number; rank: number } {
   return kind === 0 ? { method: 0, rank: 0 } : { method: 1, rank: kind - 1 };
 }
 
+/** Width codes of the error columns in the columns' first byte: no entry (every figure 0), binary32, binary64. */
+const ERROR_WIDTHS = [0, 4, 8] as const;
+
+/** The width code of an error column: 0 when every value is 0, 1 when every value is a binary32 value, else 2. */
+function errorWidth(values: readonly number[]): 0 | 1 | 2 {
+  if (values.every((v) => v === 0)) return 0;
+  return values.every((v) => Math.fround(v) === v) ? 1 : 2;
+}
+
 /**
- * One column in its stored form. Varint columns hold integers in 0..2^32 - 1,
- * u32 columns likewise; an error column is empty when every value is 0
- * (tiles decoded exactly), binary32 when every value is a binary32 value
- * (the writer rounds errors up to one, spec/FORMAT.md 7.5), else binary64.
+ * The stored columns of a page (spec/FORMAT.md 7.3), one byte run: a widths
+ * byte (bits 0-1: the width code of `max_err`, bits 2-3: that of `rmse`),
+ * then each column of {@link PAGE_COLUMNS} in order, its entries back to
+ * back. Varint and u32 columns hold integers in 0..2^32 - 1; an error
+ * column takes no byte when every value is 0 (tiles decoded exactly),
+ * binary32 entries when every value is a binary32 value (the writer rounds
+ * errors up to one, spec/FORMAT.md 7.5), else binary64.
  */
-export function columnBytes(type: 'varint' | 'u32' | 'error', values: readonly number[]): Uint8Array {
-  const w = new ByteWriter(8 * values.length);
-  if (type === 'varint') for (const v of values) w.varint(v);
-  else if (type === 'u32') for (const v of values) w.u32(v);
-  else if (values.every((v) => v === 0)) return new Uint8Array(0);
-  else if (values.every((v) => Math.fround(v) === v)) for (const v of values) w.f32(v);
-  else for (const v of values) w.f64(v);
+export function columnsBytes(values: Record<PageColumn, readonly number[]>): Uint8Array {
+  const w = new ByteWriter(1 + 32 * values.length.length);
+  const we = errorWidth(values.max_err);
+  const wr = errorWidth(values.rmse);
+  w.u8(we | (wr << 2));
+  for (const c of PAGE_COLUMNS) {
+    const type = COLUMN_TYPES[c];
+    const width = c === 'max_err' ? we : wr;
+    for (const v of values[c]) {
+      if (type === 'varint') w.varint(v);
+      else if (type === 'u32') w.u32(v);
+      else if (width === 1) w.f32(v);
+      else if (width === 2) w.f64(v);
+    }
+  }
   return w.finish();
 }
 
 /**
- * Read column `name` of `n` entries from its stored value; `bad` throws the
- * caller's error with the message it is given.
+ * Read the stored columns of a page of `n` tiles; `bad` throws the caller's
+ * error with the message it is given. Refused: a value that is not a `bin`;
+ * a widths byte with bits 4-7 set or a width code of 3; an entry that runs
+ * past the end; a varint that is not in its shortest form, runs over 5
+ * bytes or holds 2^32 or more; bytes left after the last column.
  */
-export function readColumn(raw: unknown, name: PageColumn, n: number, bad: (what: string) => never): number[] {
-  if (!(raw instanceof Uint8Array)) return bad(`column '${name}' is not a binary value`);
-  const type = COLUMN_TYPES[name];
-  const width = type === 'u32' ? [4] : type === 'error' ? [0, 4, 8] : null;
-  if (width !== null && !width.some((w) => raw.length === w * n)) {
-    return bad(`column '${name}' holds ${raw.length} bytes, not ${width.map((w) => w * n).join(', ').replace(/, (\d+)$/, ' or $1')} for ${n} tiles`);
-  }
-  const out: number[] = new Array(n);
-  const view = new DataView(raw.buffer, raw.byteOffset, raw.byteLength);
-  if (type === 'u32') for (let k = 0; k < n; k++) out[k] = view.getUint32(4 * k, true);
-  else if (type === 'error' && raw.length === 0) out.fill(0);
-  else if (type === 'error' && raw.length === 4 * n) for (let k = 0; k < n; k++) out[k] = view.getFloat32(4 * k, true);
-  else if (type === 'error') for (let k = 0; k < n; k++) out[k] = view.getFloat64(8 * k, true);
-  else {
-    const r = new ByteReader(raw, `column '${name}'`, 0, 'column offset');
-    try {
-      for (let k = 0; k < n; k++) out[k] = r.varint(`varint ${k}`, LENGTH_BYTES);
-    } catch (e) {
-      if (!(e instanceof FormatError)) throw e;
-      return bad(e.message);
+export function readColumns(raw: unknown, n: number, bad: (what: string) => never): Record<PageColumn, number[]> {
+  if (!(raw instanceof Uint8Array)) return bad('columns are not a binary value');
+  const r = new ByteReader(raw, 'columns', 0, 'columns offset');
+  const out = {} as Record<PageColumn, number[]>;
+  try {
+    const widths = r.u8('widths byte');
+    if (widths > 0x0f) return bad(`widths byte 0x${widths.toString(16)} has bits above bit 3 set`);
+    const codes = { max_err: widths & 3, rmse: widths >> 2 };
+    for (const c of ['max_err', 'rmse'] as const) if (codes[c] === 3) return bad(`widths byte 0x${widths.toString(16)} gives column '${c}' the unknown width code 3`);
+    for (const c of PAGE_COLUMNS) {
+      const type = COLUMN_TYPES[c];
+      const col: number[] = new Array(n);
+      for (let k = 0; k < n; k++) {
+        const what = `column '${c}' entry ${k}`;
+        if (type === 'varint') col[k] = r.varint(what, LENGTH_BYTES);
+        else if (type === 'u32') col[k] = r.u32(what);
+        else {
+          const width = ERROR_WIDTHS[codes[c as 'max_err' | 'rmse']];
+          col[k] = width === 0 ? 0 : width === 4 ? r.f32(what) : r.f64(what);
+        }
+      }
+      out[c] = col;
     }
-    if (r.remaining !== 0) return bad(`column '${name}' has ${r.remaining} bytes left after its ${n} varints`);
+  } catch (e) {
+    if (!(e instanceof FormatError)) throw e;
+    return bad(e.message);
   }
+  if (r.remaining !== 0) return bad(`columns have ${r.remaining} bytes left after the ${n} tiles' entries`);
   return out;
 }

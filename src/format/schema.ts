@@ -5,7 +5,7 @@
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { tileGrid, tileShape, type Grid } from '../geometry.js';
 import type { BoundMode, Dtype } from '../types.js';
-import { COLUMN_TYPES, columnBytes, kindParts, PAGE_COLUMNS, type PageColumn, readColumn, tileKind } from './page-columns.js';
+import { columnsBytes, kindParts, PAGE_COLUMNS, type PageColumn, readColumns, tileKind } from './page-columns.js';
 
 /** Free-form attributes: strings, numbers, booleans, or arrays of them. */
 export type Attrs = Record<string, string | number | boolean | (string | number | boolean)[]>;
@@ -448,9 +448,9 @@ export function up32(x: number): number {
 }
 
 /**
- * The on-disk form of an index page (spec/FORMAT.md 7.3): the binary columns
- * of {@link PAGE_COLUMNS} (errors rounded up to binary32, R(x) of 7.5), then
- * the prefix column, a MessagePack array, if any.
+ * The on-disk form of an index page (spec/FORMAT.md 7.3): the columns of
+ * {@link PAGE_COLUMNS} in one binary value (errors rounded up to binary32,
+ * R(x) of 7.5), then the prefix column, a MessagePack array, if any.
  */
 export function pageForDisk(h: Grid, ix: TileColumns, tiles: readonly number[]): unknown[] {
   const values: Record<PageColumn, number[]> = {
@@ -465,7 +465,7 @@ export function pageForDisk(h: Grid, ix: TileColumns, tiles: readonly number[]):
     rmse: tiles.map((t) => up32(ix.rmse[t])),
     value_crc: tiles.map((t) => ix.value_crc[t]),
   };
-  const out: unknown[] = PAGE_COLUMNS.map((c) => columnBytes(COLUMN_TYPES[c], values[c]));
+  const out: unknown[] = [columnsBytes(values)];
   if (ix.prefix) out.push(tiles.map((t) => ix.prefix![t].map((x, q) => (q % 4 >= 2 ? up32(x) : x))));
   return out;
 }
@@ -620,8 +620,8 @@ export function pageTileCount(h: Grid, page: readonly number[], p: number): numb
 }
 
 /**
- * Validate a decoded index page (page p of field h): an array of the seven
- * binary columns of {@link PAGE_COLUMNS}, each of the page's tile count, then
+ * Validate a decoded index page (page p of field h): an array of the binary
+ * columns of {@link PAGE_COLUMNS}, each of the page's tile count, then
  * optionally the prefix column; each tile's figures possible for its
  * shape; the payload lengths filling exactly the page's payload run from
  * the directory, in page order (so no two tiles anywhere share a byte).
@@ -630,10 +630,10 @@ export function pageTileCount(h: Grid, page: readonly number[], p: number): numb
  */
 export function checkPage(raw: unknown, h: FieldHeader, d: FieldDirectory, p: number, limits: Limits, label: string): PageIndex {
   const where = `${label} index page ${p} of field ${quoteName(h.name)}`;
-  if (!Array.isArray(raw) || raw.length < PAGE_COLUMNS.length) fail(where, `is ${describeValue(raw)}, not an array of ${PAGE_COLUMNS.length} columns (${PAGE_COLUMNS.join(', ')})`);
+  if (!Array.isArray(raw) || raw.length < 1) fail(where, `is ${describeValue(raw)}, not an array holding the binary columns (${PAGE_COLUMNS.join(', ')})`);
   const tiles = pageTiles(h, d.page, p);
   const n = tiles.length;
-  const [length, crc, kind, missing, maxErr, rmse, valueCrc] = PAGE_COLUMNS.map((c, i) => readColumn(raw[i], c, n, (what) => fail(where, what)));
+  const { length, crc, kind, missing, max_err: maxErr, rmse, value_crc: valueCrc } = readColumns(raw[0], n, (what) => fail(where, what));
   const method = kind.map((x) => kindParts(x).method);
   const rank = kind.map((x) => kindParts(x).rank);
   const offset: number[] = [];
@@ -660,7 +660,7 @@ export function checkPage(raw: unknown, h: FieldHeader, d: FieldDirectory, p: nu
   }
   if (at !== d.data_offset[p] + d.data_length[p]) fail(where, `its payloads end at ${at}, the directory's payload run at ${d.data_offset[p] + d.data_length[p]}`);
   const out: PageIndex = { tiles, offset, length, crc, method, rank, valid, max_err: maxErr, rmse, value_crc: valueCrc };
-  if (raw.length > PAGE_COLUMNS.length) out.prefix = checkPrefixes(raw[PAGE_COLUMNS.length], out, tiles, where);
+  if (raw.length > 1) out.prefix = checkPrefixes(raw[1], out, tiles, where);
   return out;
 }
 

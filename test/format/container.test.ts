@@ -565,8 +565,9 @@ describe('index pages', () => {
 
   const cases: [string, Edit, RegExp][] = [
     ['a page with a byte after its value', { pageBytes: (_f, p, b) => (p === 2 ? Uint8Array.of(...b, 0xc0) : b) }, /index page 2 of field 'sample'.*bytes after the end/],
-    ['a page column too short', { pageBytes: (_f, p, b) => (p === 1 ? encode((decode(b) as Uint8Array[]).map((c, i) => (i === 1 ? c.subarray(0, 4) : c))) : b) }, /index page 1 of field 'sample'.*column 'crc' holds 4 bytes, not 8 for 2 tiles/],
-    ['a page that is not an array of columns', { pageBytes: (_f, p, b) => (p === 1 ? encode({ length: (decode(b) as Uint8Array[])[0] }) : b) }, /index page 1 of field 'sample'.*not an array of 7 columns/],
+    // The columns of the page's two tiles cut 4 bytes short: the last value_crc entry runs past their end (spec/FORMAT.md 7.3).
+    ['the page columns cut short', { pageBytes: (_f, p, b) => (p === 1 ? encode((decode(b) as Uint8Array[]).map((c, i) => (i === 0 ? c.subarray(0, c.length - 4) : c))) : b) }, /index page 1 of field 'sample'.*column 'value_crc' entry 1 needs 4 bytes/],
+    ['a page that is not an array of columns', { pageBytes: (_f, p, b) => (p === 1 ? encode({ length: (decode(b) as Uint8Array[])[0] }) : b) }, /index page 1 of field 'sample'.*not an array holding the binary columns/],
     ['a payload length changed', { index: (ix) => (ix.fields[0].length[15] -= 1) }, /index page 3 of field 'sample'.*payloads end at/],
   ];
   for (const [what, edit, message] of cases) {

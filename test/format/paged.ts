@@ -13,7 +13,7 @@
  */
 import { decode, encode } from '@msgpack/msgpack';
 import { crc32 } from '../../src/format/crc32.js';
-import { COLUMN_TYPES, columnBytes, kindParts, PAGE_COLUMNS, readColumn } from '../../src/format/page-columns.js';
+import { COLUMN_TYPES, columnsBytes, kindParts, PAGE_COLUMNS, readColumns } from '../../src/format/page-columns.js';
 
 /**
  * A decoded MessagePack block (header, index directory or page) that the
@@ -97,11 +97,11 @@ export function tileCells(g: Grid, t: number): number {
   return Math.min(g.tileRows, g.rows - i0) * Math.min(g.tileCols, g.cols - j0);
 }
 
-/** The stored columns of an index page, in their order (spec/FORMAT.md, section 7.3); then optionally `prefix`. */
+/** The columns of an index page, in their stored order inside its first element (spec/FORMAT.md, section 7.3); then optionally `prefix`. */
 export const DISK_PAGE = PAGE_COLUMNS;
 
 /**
- * A stored index page (an array of binary columns) as a map of the logical
+ * A stored index page (an array: the binary columns, then optionally `prefix`) as a map of the logical
  * columns, with each tile's offset (from the page's payload run), method and
  * rank (from `kind`) and valid count (from `missing`) worked out as a reader
  * does.
@@ -112,8 +112,8 @@ export function keyedPage(raw: Block, g: Grid, p: number, dataOffset: number): B
   const bad = (what: string): never => {
     throw new Error(`seed page ${p}: ${what}`);
   };
-  DISK_PAGE.forEach((c, i) => (out[c] = readColumn(raw[i], c, tiles.length, bad)));
-  if (raw.length > DISK_PAGE.length) out.prefix = raw[DISK_PAGE.length];
+  Object.assign(out, readColumns(raw[0], tiles.length, bad));
+  if (raw.length > 1) out.prefix = raw[1];
   let at = dataOffset;
   out.offset = out.length.map((l: number) => ((at += l), at - l));
   out.valid = tiles.map((t, k) => tileCells(g, t) - out.missing[k]);
@@ -124,21 +124,22 @@ export function keyedPage(raw: Block, g: Grid, p: number, dataOffset: number): B
   return out;
 }
 
-/** A column in its stored binary form when its values fit its type (spec/FORMAT.md 7.3); else, a value a test made hostile, as it is. */
-function diskColumn(c: (typeof DISK_PAGE)[number], values: Block): Block {
-  if (!Array.isArray(values)) return values;
+/** Whether a column's values fit its stored type (spec/FORMAT.md 7.3), one per tile of the page. */
+function fitsColumn(c: (typeof DISK_PAGE)[number], values: Block, tiles: number): boolean {
   const type = COLUMN_TYPES[c];
   const fits = (v: unknown) => typeof v === 'number' && (type === 'error' || (Number.isInteger(v) && v >= 0 && v < 2 ** 32));
-  return values.every(fits) ? columnBytes(type, values) : values;
+  return Array.isArray(values) && values.length === tiles && values.every(fits);
 }
 
 /**
- * A logical page map back to its stored form: the binary columns of
- * {@link DISK_PAGE} (`kind` from `method` and `rank`, `missing` from
- * `valid`, `offset` dropped: it is not stored), then `prefix` if present,
- * then any other keys' values (after an empty prefix column when there is
- * none). Values a test made hostile pass through as MessagePack arrays
- * (a method other than 0 and 1 too: no kind expresses it).
+ * A logical page map back to its stored form: the columns of
+ * {@link DISK_PAGE} in one binary value (`kind` from `method` and `rank`,
+ * `missing` from `valid`, `offset` dropped: it is not stored), then
+ * `prefix` if present, then any other keys' values (after an empty prefix
+ * column when there is none). When a test made a column hostile (values
+ * that its stored type cannot hold, a method other than 0 and 1: no kind
+ * expresses it), the columns pass through as seven MessagePack arrays
+ * instead, which a reader refuses.
  */
 export function diskPage(pg: Block, g: Grid, p: number): Block {
   if (typeof pg !== 'object' || pg === null || Array.isArray(pg)) return pg;
@@ -148,7 +149,9 @@ export function diskPage(pg: Block, g: Grid, p: number): Block {
   const { method, rank } = pg;
   const kindOf = (k: number): unknown => (method[k] === 0 && rank[k] === 0 ? 0 : method[k] === 1 && typeof rank[k] === 'number' ? rank[k] + 1 : `method ${method[k]} rank ${rank[k]}`);
   const kind = Array.isArray(method) && Array.isArray(rank) && method.length === rank.length ? method.map((_: unknown, k: number) => kindOf(k)) : method;
-  const out: Block[] = DISK_PAGE.map((c) => diskColumn(c, c === 'missing' ? missing : c === 'kind' ? kind : pg[c]));
+  const columns: Block = Object.fromEntries(DISK_PAGE.map((c) => [c, c === 'missing' ? missing : c === 'kind' ? kind : pg[c]]));
+  const stored = DISK_PAGE.every((c) => fitsColumn(c, columns[c], tiles.length)) ? columnsBytes(columns) : DISK_PAGE.map((c) => columns[c]);
+  const out: Block[] = [stored];
   const known = ['length', 'crc', 'method', 'rank', 'valid', 'offset', 'prefix', 'max_err', 'rmse', 'value_crc'];
   const extra = Object.keys(pg).filter((k) => !known.includes(k));
   if ('prefix' in pg || extra.length > 0) out.push(pg.prefix ?? tiles.map(() => []));

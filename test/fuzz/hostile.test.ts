@@ -15,7 +15,7 @@ import { DEFAULT_LIMITS, resolveLimits } from '../../src/format/schema.js';
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import { buildSeeds } from './corpus.js';
-import { cloneModel, layout, pageValues, parse, PayloadFlag, replaceStream, serialize, setCentre, setLength, setResidualStep, splice, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
+import { cloneModel, layout, pageValues, parse, PayloadFlag, readVarint, replaceStream, serialize, setCentre, setLength, setResidualStep, splice, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import { decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
 import { crc32 } from '../../src/format/crc32.js';
@@ -243,33 +243,58 @@ describe('the index', () => {
 });
 
 describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
-  // The masked archive has one page of four 3 x 4 tiles; its stored columns are
-  // length, crc, kind, missing, max_err, rmse, value_crc (positions 0 to 6).
-  const withColumn = (c: number, change: (bin: Uint8Array, m: Model) => unknown) =>
+  // The masked archive has one page of four 3 x 4 tiles. Its first element holds a widths byte, then the columns
+  // length, crc, kind, missing, max_err, rmse, value_crc (0 to 6) back to back; split here as the spec lays them out.
+  const TYPES = ['varint', 'u32', 'varint', 'varint', 'error', 'error', 'u32'] as const;
+  const split = (bin: Uint8Array, n: number): { widths: number; parts: Uint8Array[] } => {
+    const widths = bin[0];
+    const parts: Uint8Array[] = [];
+    let at = 1;
+    TYPES.forEach((type, c) => {
+      let len = 4 * n;
+      if (type === 'error') len = [0, 4, 8][c === 4 ? widths & 3 : widths >> 2] * n;
+      if (type === 'varint') for (let k = 0, e = at; k < n; k++) (e += readVarint(bin, e).bytes), (len = e - at);
+      parts.push(bin.subarray(at, at + len));
+      at += len;
+    });
+    return { widths, parts };
+  };
+  /** Rewrite column c of the page (the widths byte follows an error column's new length when it is 0, 4 or 8 bytes a tile). */
+  const withColumn = (c: number, change: (bin: Uint8Array, m: Model) => Uint8Array) =>
+    withColumns((bin, m) => {
+      const { widths, parts } = split(bin, 4);
+      parts[c] = change(parts[c], m);
+      const code = [0, 16, 32].indexOf(parts[c].length);
+      const w = c === 4 && code >= 0 ? (widths & 0xc) | code : c === 5 && code >= 0 ? (widths & 3) | (code << 2) : widths;
+      return Uint8Array.of(w, ...parts.flatMap((x) => [...x]));
+    });
+  /** Rewrite the page's first element, its binary columns. */
+  const withColumns = (change: (bin: Uint8Array, m: Model) => unknown) =>
     edit(masked(), (m) => {
       const page = [...pageValues(m)[0][0]];
-      page[c] = change(page[c], m);
+      page[0] = change(page[0], m);
       m.pageBytes = { '0/0': encodeValue(page) };
     });
   /** The four payload lengths of the masked archive, in page order. */
   const lengths = (m: Model): number[] => m.payloads[0].map((p) => p.length);
-  const cases: [string, number, (bin: Uint8Array, m: Model) => unknown, RegExp][] = [
-    ['a column stored as a MessagePack array (the version 5 form)', 0, (_b, m) => lengths(m), /column 'length' is not a binary value$/],
-    ['a u32 column one byte short', 1, (b) => b.subarray(0, b.length - 1), /column 'crc' holds 15 bytes, not 16 for 4 tiles$/],
-    ['an error column of neither 4 nor 8 bytes a tile', 4, (b) => Uint8Array.of(...b, 0, 0, 0, 0), /column 'max_err' holds 20 bytes, not 0, 16 or 32 for 4 tiles$/],
-    ['a length varint not in its shortest form', 0, (_b, m) => Uint8Array.of(...varintBytes(lengths(m)[0]).map((x) => x | 0x80), 0, ...lengths(m).slice(1).flatMap(varintBytes)), /column 'length': varint 0 at column offset 0 is not in its shortest form$/],
-    ['a varint of six bytes', 2, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x80, 0x00, ...b.subarray(1)), /column 'kind': varint 0 at column offset 0 runs over 5 bytes$/],
-    ['a varint of 2^32', 3, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x10, ...b.subarray(1)), /column 'missing': varint 0 at column offset 0 holds 4294967296, not a value below 2\^32$/],
-    ['bytes left after the varints', 3, (b) => Uint8Array.of(...b, 0), /column 'missing' has 1 bytes left after its 4 varints$/],
-    ['too few varints', 3, (b) => b.subarray(0, 3), /column 'missing': varint 3 needs 1 bytes at column offset 3 but only 0 remain$/],
-    ['a kind whose rank exceeds the tile', 2, (b) => Uint8Array.of(5, ...b.subarray(1)), /tile 0 kind 5 \(rank 4\) is impossible for a 3x4 tile$/],
-    ['a missing count above the tile', 3, (b) => Uint8Array.of(13, ...b.subarray(1)), /tile 0 missing count 13 is impossible for a 3x4 tile$/],
-    ['a negative error in binary32', 5, (b) => Uint8Array.of(0, 0, 0x80, 0xbf, ...b.subarray(4)), /tile 0 rmse -1 is not a finite number >= 0$/],
-    ['an infinite error in binary64', 4, (b) => Uint8Array.from([...new Uint8Array(new Float64Array([Infinity, ...new Float32Array(b.buffer.slice(b.byteOffset + 4, b.byteOffset + 16))]).buffer)]), /tile 0 max_err Infinity is not a finite number >= 0$/],
+  const cases: [string, () => Uint8Array, RegExp][] = [
+    ['columns stored as MessagePack arrays (the version 5 form)', () => withColumns((_b, m) => lengths(m)), /columns are not a binary value$/],
+    ['columns one byte short', () => withColumns((b) => b.subarray(0, b.length - 1)), /columns: column 'value_crc' entry 3 needs 4 bytes at columns offset \d+ but only 3 remain$/],
+    ['a byte left after the columns', () => withColumns((b) => Uint8Array.of(...b, 0)), /columns have 1 bytes left after the 4 tiles' entries$/],
+    ['an error column longer than its width gives', () => withColumn(4, (b) => Uint8Array.of(...b, 0, 0, 0, 0)), /columns have 4 bytes left after the 4 tiles' entries$/],
+    ['a widths byte with a bit above bit 3', () => withColumns((b) => Uint8Array.of(b[0] | 0x10, ...b.subarray(1))), /widths byte 0x1[0-9a-f] has bits above bit 3 set$/],
+    ['a width code of 3', () => withColumns((b) => Uint8Array.of(b[0] | 3, ...b.subarray(1))), /widths byte 0x[0-9a-f] gives column 'max_err' the unknown width code 3$/],
+    ['a length varint not in its shortest form', () => withColumn(0, (_b, m) => Uint8Array.of(...varintBytes(lengths(m)[0]).map((x) => x | 0x80), 0, ...lengths(m).slice(1).flatMap(varintBytes))), /columns: column 'length' entry 0 at columns offset 1 is not in its shortest form$/],
+    ['a varint of six bytes', () => withColumn(2, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x80, 0x00, ...b.subarray(1))), /columns: column 'kind' entry 0 at columns offset \d+ runs over 5 bytes$/],
+    ['a varint of 2^32', () => withColumn(3, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x10, ...b.subarray(1))), /columns: column 'missing' entry 0 at columns offset \d+ holds 4294967296, not a value below 2\^32$/],
+    ['a kind whose rank exceeds the tile', () => withColumn(2, (b) => Uint8Array.of(5, ...b.subarray(1))), /tile 0 kind 5 \(rank 4\) is impossible for a 3x4 tile$/],
+    ['a missing count above the tile', () => withColumn(3, (b) => Uint8Array.of(13, ...b.subarray(1))), /tile 0 missing count 13 is impossible for a 3x4 tile$/],
+    ['a negative error in binary32', () => withColumn(5, (b) => Uint8Array.of(0, 0, 0x80, 0xbf, ...b.subarray(4))), /tile 0 rmse -1 is not a finite number >= 0$/],
+    ['an infinite error in binary64', () => withColumn(4, (b) => Uint8Array.from([...new Uint8Array(new Float64Array([Infinity, ...new Float32Array(b.buffer.slice(b.byteOffset + 4, b.byteOffset + 16))]).buffer)])), /tile 0 max_err Infinity is not a finite number >= 0$/],
   ];
-  for (const [what, c, change, message] of cases) {
+  for (const [what, make, message] of cases) {
     it(`refuses ${what}, naming the page`, async () => {
-      const e = await refusal(withColumn(c, change));
+      const e = await refusal(make());
       expect(e.code).toBe(FormatCode.Malformed);
       expect(e.message).toMatch(/^archive index page 0 of field 'sample': /);
       expect(e.message).toMatch(message);
@@ -284,8 +309,10 @@ describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
     const exact = pack(Float64Array.from({ length: 36 }, (_, k) => ((k * 7) % 11) * 1000), [6, 6], { bound: 'abs:0.1', tile: 3 });
     // The one index page lies between the payloads and the header (spec 3): decode the writer's own bytes.
     const end = 12 + parse(exact).payloads[0].reduce((sum, p) => sum + p.length, 0);
-    const page = decode(exact.subarray(end, layout(exact).headerOffset)) as unknown[];
-    expect([page[4], page[5]]).toEqual([new Uint8Array(0), new Uint8Array(0)]);
+    const page = decode(exact.subarray(end, layout(exact).headerOffset)) as Uint8Array[];
+    const { widths, parts } = split(page[0], 4);
+    expect(widths).toBe(0);
+    expect([parts[4], parts[5]]).toEqual([new Uint8Array(0), new Uint8Array(0)]);
     expect((await (await open(exact)).loadIndex()).fields[0].max_err).toEqual([0, 0, 0, 0]);
   });
 
