@@ -14,9 +14,10 @@ const SQUARE = [64, 128, 256];
 /**
  * A larger square, tried on fields whose both sides reach
  * {@link LARGE_SIDE} (so that the trial's tiles are a small share of the
- * field). On smooth fields at loose
- * bounds a tile's fixed cost (its index entry and payload head, about 34
- * bytes) is a large share of a 256 x 256 tile's few hundred bytes.
+ * field). On smooth fields at loose bounds a tile's fixed cost (its index
+ * entry and payload head, 30 to 45 bytes with format version 7: 44.5 a
+ * tile on bench/'s smooth-front at rel:1e-3) is a large share of a
+ * 256 x 256 tile's few hundred bytes.
  */
 const LARGE_SQUARE = 512;
 /** Both sides at least this for {@link LARGE_SQUARE} to be tried. */
