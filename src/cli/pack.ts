@@ -112,7 +112,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .argument('<IN>', 'input: .npy (float32/float64, 2 or more axes), NetCDF, or raw binary with --shape and --dtype')
     .requiredOption('-o, --output <OUT>', 'archive to write (conventionally ending in .rfz)')
     .option('--bound <MODE:VALUE>', 'error bound: abs:E, rel:R, rmse:E or psnr:D (required, unless --plan gives it)', boundOption)
-    .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (default: 64, 128, 256, also 512 on fields of at least 1024 x 1024, and the whole field when small, each tried on tiles spread over the field, the smallest kept)', tileOption)
+    .option('--tile <RxC>', 'tile size: RxC, one number for square tiles, or auto (default: 64, 128, 256, also 512 on fields of at least 1024 x 1024 and 1024 on fields of at least 2048 x 2048, and the whole field when small, each tried on tiles spread over the field, the smallest kept)', tileOption)
     .option('--fill <V>', 'fill value marking missing cells (restored bit for bit, excluded from the bound); NetCDF input: for variables without _FillValue / missing_value', fillOption)
     .option('--no-fill', 'pack extreme values as data: turn off the refusal of a value that looks like an undeclared fill value (see below)')
     .option('--name <NAME>', 'field name stored in the archive (default: IN without its extension)', nameOption)
