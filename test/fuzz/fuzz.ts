@@ -4,7 +4,7 @@
  * seed archive with Rng(s, i), so any case is replayed from (s, i) alone.
  */
 import { buildSeeds, type Seed } from './corpus.js';
-import { LOOSE_BOUND, runCase, type Outcome } from './harness.js';
+import { caseMs, LOOSE_BOUND, runCase, type Outcome } from './harness.js';
 import type { FloatArray } from '../../src/types.js';
 import { parse, type Model } from './model.js';
 import { mutate, type Expectation } from './mutate.js';
@@ -81,11 +81,12 @@ export class Tally {
     this.expectations.set(r.expect, (this.expectations.get(r.expect) ?? 0) + 1);
     this.results.set(`${r.stage} ${r.result}`, (this.results.get(`${r.stage} ${r.result}`) ?? 0) + 1);
     for (const finding of r.findings) this.findings.push({ index: r.index, seed: r.seed, ops: r.ops, finding });
-    if (r.ms > this.slowest.ms) this.slowest = { index: r.index, ms: r.ms, seed: r.seed, ops: r.ops };
-    if (r.ms > 1000) this.over1s++;
+    const ms = caseMs(r);
+    if (ms > this.slowest.ms) this.slowest = { index: r.index, ms, seed: r.seed, ops: r.ops };
+    if (ms > 1000) this.over1s++;
     this.maxWork = Math.max(this.maxWork, r.work);
     this.peakMemory = Math.max(this.peakMemory, r.memory);
-    this.totalMs += r.ms;
+    this.totalMs += ms;
   }
 
   /** Share of cases that reached each stage/result, as lines. */

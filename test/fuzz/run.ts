@@ -11,8 +11,9 @@
 import { mkdirSync, writeFileSync } from 'node:fs';
 import { isMainThread, parentPort, Worker, workerData } from 'node:worker_threads';
 import { corpus, makeCase, runOne, Tally, type CaseResult } from './fuzz.js';
+import { caseMs } from './harness.js';
 
-/** A case slower than this is a finding (the promise: each case under 1 s). */
+/** A case slower than this ({@link caseMs}: the smaller of wall and CPU time) is a finding (the promise: each case under 1 s). */
 const SLOW_MS = 1000;
 /** A case that has not finished after this long is stopped as a hang. */
 const HANG_MS = 20_000;
@@ -77,7 +78,7 @@ async function main(): Promise<void> {
   if (o.replay !== null) {
     const r = await runOne(c, o.seed, o.replay);
     console.log(`case ${o.replay} (seed archive ${r.seed}): ${r.ops.join('; ')}`);
-    console.log(`  ${r.stage} ${r.result}, ${r.ms.toFixed(1)} ms, must ${{ any: 'only raise typed errors', same: 'read back unchanged', refuse: 'be refused', detect: 'have check() report changed values' }[r.expect]}`);
+    console.log(`  ${r.stage} ${r.result}, ${r.ms.toFixed(1)} ms (${r.cpuMs.toFixed(1)} ms of CPU), must ${{ any: 'only raise typed errors', same: 'read back unchanged', refuse: 'be refused', detect: 'have check() report changed values' }[r.expect]}`);
     for (const f of r.findings) console.log(`  FINDING ${f}`);
     console.log(`  saved as ${save(o.replay, r.findings.join('\n'))}.rfz`);
     return;
@@ -117,7 +118,7 @@ async function main(): Promise<void> {
         } else if (m.kind === 'done') {
           const r = m.report!;
           tally.add({ ...r, bytes: new Uint8Array(0) });
-          if (r.ms > SLOW_MS) extra.push(`case ${r.index}: ${r.ms.toFixed(0)} ms (${r.seed}: ${r.ops.join('; ')})`);
+          if (caseMs(r) > SLOW_MS) extra.push(`case ${r.index}: ${r.ms.toFixed(0)} ms, ${r.cpuMs.toFixed(0)} ms of CPU (${r.seed}: ${r.ops.join('; ')})`);
           if (r.memory > MEMORY_CEILING) extra.push(`case ${r.index}: ${(r.memory / 2 ** 20).toFixed(0)} MiB of heap and buffers`);
           if (r.findings.length > 0) save(r.index, r.findings.join('\n'));
           if (tally.cases % 20_000 === 0) {

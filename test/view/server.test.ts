@@ -20,7 +20,7 @@ import { parseByteranges } from '../../src/io/http-source.js';
 import { parseRangeHeader } from '../../src/view/server.js';
 import { CLI_TIMEOUT, ensureBuilt, ensureBundled, expectCliError, rfAsync, rfIn, ROOT, tempDir, volcano } from '../cli/helpers.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
-import { startView, type RunningView } from './start.js';
+import { fetchOnce, startView, type RunningView } from './start.js';
 
 const FIXTURE = join(ROOT, 'test', 'fixtures', 'netcdf', 'corvane-run-classic.nc');
 
@@ -103,7 +103,7 @@ describe('rankfield view (command and server)', () => {
 
   it('serves the page, its modules and the archive with byte ranges', async () => {
     const v = await view([file]);
-    const get = (path: string, headers: Record<string, string> = {}) => fetch(new URL(path, v.url), { headers });
+    const get = (path: string, headers: Record<string, string> = {}) => fetchOnce(new URL(path, v.url), { headers });
     const page = await get('/');
     expect(page.status).toBe(200);
     expect(await page.text()).toContain('rankfield-view.mjs');
@@ -135,7 +135,7 @@ describe('rankfield view (command and server)', () => {
     const beyond = await get('/archive', { Range: `bytes=${bytes.length}-` });
     expect(beyond.status).toBe(416);
     expect(beyond.headers.get('content-range')).toBe(`bytes */${bytes.length}`);
-    expect((await fetch(new URL('/archive', v.url), { method: 'POST' })).status).toBe(405);
+    expect((await fetchOnce(new URL('/archive', v.url), { method: 'POST' })).status).toBe(405);
     // The library reads the field through it, bit for bit as from the file.
     const remote = await open(new HttpSource(new URL('/archive', v.url).href));
     expect(Array.from((await remote.read('height')).values)).toEqual(Array.from((await (await open(bytes)).read('height')).values));
@@ -195,7 +195,7 @@ describe('rankfield view (command and server)', () => {
     // A fixed layout and tile: the point is the coordinates the viewer offers, not the trials.
     expect((await rfIn(['pack', FIXTURE, '-o', rfz, '--bound', 'rel:1e-3', '--var', 'sst', '--layout', 'slices', '--tile', '24x32', '--quiet'], tmp.dir)).code).toBe(0);
     const v = await view([rfz]);
-    const info = (await (await fetch(new URL('/info.json', v.url))).json()) as { coords: Record<string, number[]> };
+    const info = (await (await fetchOnce(new URL('/info.json', v.url))).json()) as { coords: Record<string, number[]> };
     // The same values netcdfjs 4.0.0 reads from the source file.
     const nc = new NetCDFReader(readFileSync(FIXTURE));
     for (const name of ['time', 'lat', 'lon']) {
