@@ -35,8 +35,9 @@ export function lowRankFill(x: Float64Array, codes: Uint8Array, m: number, n: nu
   for (let i = 0; i < m; i++) valid += rows.seen[i];
   const norm = 1 / (tol * tol * Math.max(1, valid));
   let budget = ALS_BUDGET;
+  // Every rank starts from the leading triplets of the smooth fill: one SVD serves them all.
+  const s = maxRank + 8 >= Math.min(m, n) ? svd(x, m, n) : truncatedSvd(x, m, n, maxRank);
   for (let r = 1; r <= maxRank && budget > 0; r++) {
-    const s = r + 8 >= Math.min(m, n) ? svd(x, m, n) : truncatedSvd(x, m, n, r);
     const rr = Math.min(r, s.k);
     const u = new Float64Array(m * rr);
     const v = new Float64Array(n * rr);
