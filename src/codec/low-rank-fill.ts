@@ -77,16 +77,14 @@ export function lowRankFill(x: Float64Array, codes: Uint8Array, m: number, n: nu
 }
 
 /**
- * The tile seen along one direction (its rows, or its columns as lines of a
- * transposed copy), laid out so that a line's cells are contiguous.
+ * The tile seen along one direction: its rows (the tile itself), or its
+ * columns (a transposed copy), so that a line's cells are contiguous.
  */
 interface Side {
   lines: number;
   len: number;
   /** All values, line after line (missing cells hold the smooth fill). */
   full: Float64Array;
-  /** The same with missing cells set to 0, so sums over valid cells run without a test. */
-  seenOnly: Float64Array;
   /** Cell classes, line after line. */
   codes: Uint8Array;
   /** Valid cells per line. */
@@ -96,31 +94,31 @@ interface Side {
   missIdx: Int32Array;
 }
 
-/** Build the {@link Side} of the rows (or, transposed, of the columns) of an m x n tile. */
+/** Build the {@link Side} of the rows of an m x n tile, or (transposing it) of its columns. */
 function side(x: Float64Array, codes: Uint8Array, m: number, n: number, byCol: boolean): Side {
   const lines = byCol ? n : m;
   const len = byCol ? m : n;
-  const full = new Float64Array(m * n);
-  const seenOnly = new Float64Array(m * n);
-  const lineCodes = new Uint8Array(m * n);
+  let full = x;
+  let lineCodes = codes;
+  if (byCol) {
+    full = new Float64Array(m * n);
+    lineCodes = new Uint8Array(m * n);
+    for (let i = 0; i < m; i++) {
+      for (let j = 0; j < n; j++) {
+        full[j * m + i] = x[i * n + j];
+        lineCodes[j * m + i] = codes[i * n + j];
+      }
+    }
+  }
   const seen = new Int32Array(lines);
   const missPtr = new Int32Array(lines + 1);
   for (let a = 0; a < lines; a++) {
-    for (let e = 0; e < len; e++) {
-      const c = byCol ? e * n + a : a * n + e;
-      const t = a * len + e;
-      full[t] = x[c];
-      lineCodes[t] = codes[c];
-      if (codes[c] === Cell.Valid) {
-        seenOnly[t] = x[c];
-        seen[a]++;
-      }
-    }
+    for (let e = 0; e < len; e++) if (lineCodes[a * len + e] === Cell.Valid) seen[a]++;
     missPtr[a + 1] = missPtr[a] + len - seen[a];
   }
   const missIdx = new Int32Array(missPtr[lines]);
   for (let a = 0, p = 0; a < lines; a++) for (let e = 0; e < len; e++) if (lineCodes[a * len + e] !== Cell.Valid) missIdx[p++] = e;
-  return { lines, len, full, seenOnly, codes: lineCodes, seen, missPtr, missIdx };
+  return { lines, len, full, codes: lineCodes, seen, missPtr, missIdx };
 }
 
 /**
@@ -136,7 +134,7 @@ function side(x: Float64Array, codes: Uint8Array, m: number, n: number, byCol: b
  * squared residuals over the valid cells after the update (else 0).
  */
 function alsHalf(s: Side, fixed: Float64Array, out: Float64Array, r: number, resid: boolean): number {
-  const { lines, len, full, seenOnly, codes, seen, missPtr, missIdx } = s;
+  const { lines, len, full, codes, seen, missPtr, missIdx } = s;
   const gram = new Float64Array(r * r);
   for (let e = 0; e < len; e++) addOuter(gram, fixed, e * r, r, 1);
   const g = new Float64Array(r * r);
@@ -144,11 +142,11 @@ function alsHalf(s: Side, fixed: Float64Array, out: Float64Array, r: number, res
   let sq = 0;
   for (let a = 0; a < lines; a++) {
     const all = seen[a] <= r;
-    const src = all ? full : seenOnly;
     const base = a * len;
     b.fill(0);
     for (let e = 0; e < len; e++) {
-      const xc = src[base + e];
+      if (!all && codes[base + e] !== Cell.Valid) continue;
+      const xc = full[base + e];
       const f = e * r;
       for (let k = 0; k < r; k++) b[k] += xc * fixed[f + k];
     }
