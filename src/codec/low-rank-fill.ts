@@ -14,14 +14,17 @@ import { Cell } from './mask.js';
  * to the valid cells alone by alternating least squares (each row of U, then
  * each row of V, solved from the cells it sees; the matrix-completion method
  * of Hastie, Mazumder, Lee and Zadeh, 2015, here without its ridge), started
- * from the truncated SVD of the smooth fill. The first rank whose fit of the
+ * from the leading r triplets of the smooth fill's SVD (one truncated SVD, of
+ * the largest rank tried, serves every r). The first rank whose fit of the
  * valid cells is within the tolerance (RMS misfit at most half of it) fills
  * the missing cells with U V^T; if none up to IMPUTE_MAX_RANK is, the smooth
  * fill stays. A rank is given up as soon as its misfit, shrinking at the
- * pace of its last sweeps, would not reach the target within ALS_PATIENCE
- * more sweeps. A row or column that sees no more cells than the rank is fitted
- * to the smooth fill along it instead (a column of land in a time x space
- * matrix becomes the projection of its smooth fill on the fitted factors).
+ * pace of its last two sweeps, would not reach the target within
+ * ALS_PATIENCE more sweeps (on the demo field nearly every rank of a large
+ * candidate tile plateaus far from it within a few sweeps). A row or
+ * column that sees no more cells than the rank is fitted to the smooth fill
+ * along it instead (a column of land in a time x space matrix becomes the
+ * projection of its smooth fill on the fitted factors).
  *
  * `x` is the m x n tile, row-major, centred, missing cells smoothly filled;
  * only its missing cells change.
