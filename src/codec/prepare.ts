@@ -4,11 +4,11 @@
  * its SVD on demand.
  */
 import { ByteWriter } from '../format/bytes.js';
-import { solveSpd } from '../linalg/spd.js';
 import { svd, type Svd } from '../linalg/svd.js';
 import { truncatedSvd } from '../linalg/truncated.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { fillMissing } from './fill.js';
+import { lowRankFill } from './low-rank-fill.js';
 import { Cell, classify, type Classes } from './mask.js';
 import { encodeClasses } from './code-encode.js';
 import { fieldStep } from './payload.js';
@@ -126,131 +126,6 @@ export function integerLattice(orig: FloatArray, codes: Uint8Array): { quantum: 
   }
   return g > 0 ? { quantum: g, origin } : { quantum: 0, origin: 0 };
 }
-
-/**
- * Refine the stand-in values of missing cells so they continue the tile's
- * low-rank structure. For r = 1, 2, ... a rank-r factorization U V^T is fitted
- * to the valid cells alone by alternating least squares (each row of U, then
- * each row of V, solved from the cells it sees; the matrix-completion method
- * of Hastie, Mazumder, Lee and Zadeh, 2015, here without its ridge), started
- * from the truncated SVD of the smooth fill. The first rank whose fit of the
- * valid cells is within the tolerance (RMS misfit at most half of it) fills
- * the missing cells with U V^T; if none up to IMPUTE_MAX_RANK is, the smooth
- * fill stays. A row or column that sees no more cells than the rank is fitted
- * to the smooth fill along it instead (a column of land in a time x space
- * matrix becomes the projection of its smooth fill on the fitted factors).
- */
-function lowRankFill(x: Float64Array, codes: Uint8Array, m: number, n: number, tol: number): void {
-  const maxRank = Math.min(IMPUTE_MAX_RANK, Math.floor(Math.min(m, n) / 2));
-  const rowSeen = new Int32Array(m);
-  const colSeen = new Int32Array(n);
-  let valid = 0;
-  for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      if (codes[i * n + j] !== Cell.Valid) continue;
-      rowSeen[i]++;
-      colSeen[j]++;
-      valid++;
-    }
-  }
-  let budget = ALS_BUDGET;
-  for (let r = 1; r <= maxRank && budget > 0; r++) {
-    const s = r + 8 >= Math.min(m, n) ? svd(x, m, n) : truncatedSvd(x, m, n, r);
-    const rr = Math.min(r, s.k);
-    const u = new Float64Array(m * rr);
-    const v = new Float64Array(n * rr);
-    for (let i = 0; i < m; i++) for (let k = 0; k < rr; k++) u[i * rr + k] = s.u[i * s.k + k] * s.s[k];
-    for (let j = 0; j < n; j++) for (let k = 0; k < rr; k++) v[j * rr + k] = s.v[j * s.k + k];
-    let fit = misfit(x, codes, u, v, m, n, rr, tol, valid);
-    for (let iter = 0; iter < ALS_ITERATIONS && fit > ALS_DONE && budget > 0; iter++, budget--) {
-      alsHalf(x, codes, v, u, m, n, rr, rowSeen, false);
-      alsHalf(x, codes, u, v, m, n, rr, colSeen, true);
-      const next = misfit(x, codes, u, v, m, n, rr, tol, valid);
-      const ratio = next / fit;
-      fit = next;
-      if (fit <= 0.5) {
-        // Within the tolerance: go on while the fill still moves (the hole converges with the fit).
-        if (ratio > 0.99) break;
-      } else if (!(ratio < 1) || (iter >= 10 && fit > 100) || (iter >= 60 && Math.log(0.5 / fit) / Math.log(ratio) > ALS_ITERATIONS - iter)) {
-        // No progress; still far off after 10 sweeps; or, past the early plateaus, too slow to get there.
-        break;
-      }
-    }
-    if (fit <= 0.5) {
-      for (let i = 0; i < m; i++) {
-        for (let j = 0; j < n; j++) {
-          const c = i * n + j;
-          if (codes[c] === Cell.Valid) continue;
-          let sum = 0;
-          for (let k = 0; k < rr; k++) sum += u[i * rr + k] * v[j * rr + k];
-          x[c] = sum;
-        }
-      }
-      return;
-    }
-  }
-}
-
-/**
- * One half-step of alternating least squares: each row of `out` (rows of x
- * when `byCol` is false, columns when true) is solved from the valid cells
- * of its line against the fixed factor `fixed`. A line that sees at most r
- * valid cells is solved from all its cells, the smooth fill included, so
- * that it stays close to that fill (a column of land stays smooth).
- */
-function alsHalf(x: Float64Array, codes: Uint8Array, fixed: Float64Array, out: Float64Array, m: number, n: number, r: number, seen: Int32Array, byCol: boolean): void {
-  const lines = byCol ? n : m;
-  const len = byCol ? m : n;
-  const g = new Float64Array(r * r);
-  const b = new Float64Array(r);
-  for (let a = 0; a < lines; a++) {
-    const all = seen[a] <= r;
-    g.fill(0);
-    b.fill(0);
-    for (let e = 0; e < len; e++) {
-      const c = byCol ? e * n + a : a * n + e;
-      if (!all && codes[c] !== Cell.Valid) continue;
-      const f = e * r;
-      const xc = x[c];
-      for (let k = 0; k < r; k++) {
-        const fk = fixed[f + k];
-        b[k] += xc * fk;
-        for (let l = 0; l <= k; l++) g[k * r + l] += fk * fixed[f + l];
-      }
-    }
-    for (let k = 0; k < r; k++) for (let l = 0; l < k; l++) g[l * r + k] = g[k * r + l];
-    solveSpd(g, r, b, 1);
-    if (!b.every(Number.isFinite)) continue;
-    out.set(b, a * r);
-  }
-}
-
-/** RMS of (x - U V^T) / tol over the valid cells. */
-function misfit(x: Float64Array, codes: Uint8Array, u: Float64Array, v: Float64Array, m: number, n: number, r: number, tol: number, valid: number): number {
-  let sq = 0;
-  for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      const c = i * n + j;
-      if (codes[c] !== Cell.Valid) continue;
-      let sum = 0;
-      for (let k = 0; k < r; k++) sum += u[i * r + k] * v[j * r + k];
-      const d = (x[c] - sum) / tol;
-      sq += d * d;
-    }
-  }
-  return Math.sqrt(sq / Math.max(1, valid));
-}
-
-/**
- * Alternating least squares sweeps: at most per trial rank, and over all
- * ranks of a tile (which bounds the work of a tile whose valid cells no low
- * rank fits); and the RMS misfit, in tolerances, below which a fit counts
- * as converged. Then the largest rank tried.
- */
-const ALS_ITERATIONS = 150;
-const ALS_BUDGET = 240;
-const ALS_DONE = 0.01;
-const IMPUTE_MAX_RANK = 6;
 
 /** The tile's SVD (computed once). */
 export function ensureSvd(t: PreparedTile, need = Infinity): Svd {

@@ -1,0 +1,215 @@
+/**
+ * Low-rank stand-in values for the missing cells of a tile: after the smooth
+ * fill (fill.ts), the missing cells are refitted so that they continue the
+ * tile's low-rank structure, which keeps a land mask from adding rank.
+ */
+import { solveSpd } from '../linalg/spd.js';
+import { svd } from '../linalg/svd.js';
+import { truncatedSvd } from '../linalg/truncated.js';
+import { Cell } from './mask.js';
+
+/**
+ * Refine the stand-in values of missing cells so they continue the tile's
+ * low-rank structure. For r = 1, 2, ... a rank-r factorization U V^T is fitted
+ * to the valid cells alone by alternating least squares (each row of U, then
+ * each row of V, solved from the cells it sees; the matrix-completion method
+ * of Hastie, Mazumder, Lee and Zadeh, 2015, here without its ridge), started
+ * from the leading r triplets of the smooth fill's SVD (one truncated SVD, of
+ * the largest rank tried, serves every r). The first rank whose fit of the
+ * valid cells is within the tolerance (RMS misfit at most half of it) fills
+ * the missing cells with U V^T; if none up to IMPUTE_MAX_RANK is, the smooth
+ * fill stays. A rank is given up as soon as its misfit, shrinking at the
+ * pace of its last two sweeps, would not reach the target within
+ * ALS_PATIENCE more sweeps (on the demo field nearly every rank of a large
+ * candidate tile plateaus far from it within a few sweeps). A row or
+ * column that sees no more cells than the rank is fitted to the smooth fill
+ * along it instead (a column of land in a time x space matrix becomes the
+ * projection of its smooth fill on the fitted factors).
+ *
+ * `x` is the m x n tile, row-major, centred, missing cells smoothly filled;
+ * only its missing cells change.
+ */
+export function lowRankFill(x: Float64Array, codes: Uint8Array, m: number, n: number, tol: number): void {
+  const maxRank = Math.min(IMPUTE_MAX_RANK, Math.floor(Math.min(m, n) / 2));
+  if (maxRank < 1) return;
+  const rows = side(x, codes, m, n, false);
+  const cols = side(x, codes, m, n, true);
+  let valid = 0;
+  for (let i = 0; i < m; i++) valid += rows.seen[i];
+  const norm = 1 / (tol * tol * Math.max(1, valid));
+  let budget = ALS_BUDGET;
+  // Every rank starts from the leading triplets of the smooth fill: one SVD serves them all.
+  const s = maxRank + 8 >= Math.min(m, n) ? svd(x, m, n) : truncatedSvd(x, m, n, maxRank);
+  for (let r = 1; r <= maxRank && budget > 0; r++) {
+    const rr = Math.min(r, s.k);
+    const u = new Float64Array(m * rr);
+    const v = new Float64Array(n * rr);
+    for (let i = 0; i < m; i++) for (let k = 0; k < rr; k++) u[i * rr + k] = s.u[i * s.k + k] * s.s[k];
+    for (let j = 0; j < n; j++) for (let k = 0; k < rr; k++) v[j * rr + k] = s.v[j * s.k + k];
+    let fit = Math.sqrt(misfit(cols, u, v, rr) * norm);
+    let before = fit;
+    for (let iter = 0; iter < ALS_ITERATIONS && fit > ALS_DONE && budget > 0; iter++, budget--) {
+      alsHalf(rows, v, u, rr, false);
+      const next = Math.sqrt(alsHalf(cols, u, v, rr, true) * norm);
+      const ratio = next / fit;
+      // Pace over the last two sweeps, which rides out a one-sweep stall.
+      const pace = Math.sqrt(next / before);
+      before = fit;
+      fit = next;
+      if (fit <= 0.5) {
+        // Within the tolerance: go on while the fill still moves (the hole converges with the fit).
+        if (ratio > 0.99) break;
+      } else if (!(ratio < 1) || (iter >= 1 && Math.log(0.5 / fit) / Math.log(pace) > ALS_PATIENCE)) {
+        // No progress, or too slow to get there.
+        break;
+      }
+    }
+    if (fit <= 0.5) {
+      for (let i = 0; i < m; i++) {
+        for (let j = 0; j < n; j++) {
+          const c = i * n + j;
+          if (codes[c] === Cell.Valid) continue;
+          let sum = 0;
+          for (let k = 0; k < rr; k++) sum += u[i * rr + k] * v[j * rr + k];
+          x[c] = sum;
+        }
+      }
+      return;
+    }
+  }
+}
+
+/**
+ * The tile seen along one direction: its rows (the tile itself), or its
+ * columns (a transposed copy), so that a line's cells are contiguous.
+ */
+interface Side {
+  lines: number;
+  len: number;
+  /** All values, line after line (missing cells hold the smooth fill). */
+  full: Float64Array;
+  /** Cell classes, line after line. */
+  codes: Uint8Array;
+  /** Valid cells per line. */
+  seen: Int32Array;
+  /** Positions of missing cells along each line: line a's are missIdx[missPtr[a] .. missPtr[a + 1]). */
+  missPtr: Int32Array;
+  missIdx: Int32Array;
+}
+
+/** Build the {@link Side} of the rows of an m x n tile, or (transposing it) of its columns. */
+function side(x: Float64Array, codes: Uint8Array, m: number, n: number, byCol: boolean): Side {
+  const lines = byCol ? n : m;
+  const len = byCol ? m : n;
+  let full = x;
+  let lineCodes = codes;
+  if (byCol) {
+    full = new Float64Array(m * n);
+    lineCodes = new Uint8Array(m * n);
+    for (let i = 0; i < m; i++) {
+      for (let j = 0; j < n; j++) {
+        full[j * m + i] = x[i * n + j];
+        lineCodes[j * m + i] = codes[i * n + j];
+      }
+    }
+  }
+  const seen = new Int32Array(lines);
+  const missPtr = new Int32Array(lines + 1);
+  for (let a = 0; a < lines; a++) {
+    for (let e = 0; e < len; e++) if (lineCodes[a * len + e] === Cell.Valid) seen[a]++;
+    missPtr[a + 1] = missPtr[a] + len - seen[a];
+  }
+  const missIdx = new Int32Array(missPtr[lines]);
+  for (let a = 0, p = 0; a < lines; a++) for (let e = 0; e < len; e++) if (lineCodes[a * len + e] !== Cell.Valid) missIdx[p++] = e;
+  return { lines, len, full, codes: lineCodes, seen, missPtr, missIdx };
+}
+
+/**
+ * One half-step of alternating least squares: each row of `out` (one per
+ * line of `s`) is solved from the valid cells of its line against the fixed
+ * factor `fixed` (one row per position along the line). A line that sees at
+ * most r valid cells is solved from all its cells, the smooth fill included,
+ * so that it stays close to that fill (a column of land stays smooth).
+ *
+ * The normal matrix of a line is the Gram matrix of all of `fixed`, computed
+ * once, less the rows at its missing cells (or, for a line missing most of
+ * its cells, summed over its valid cells). With `resid`, returns the sum of
+ * squared residuals over the valid cells after the update (else 0).
+ */
+function alsHalf(s: Side, fixed: Float64Array, out: Float64Array, r: number, resid: boolean): number {
+  const { lines, len, full, codes, seen, missPtr, missIdx } = s;
+  const gram = new Float64Array(r * r);
+  for (let e = 0; e < len; e++) addOuter(gram, fixed, e * r, r, 1);
+  const g = new Float64Array(r * r);
+  const b = new Float64Array(r);
+  let sq = 0;
+  for (let a = 0; a < lines; a++) {
+    const all = seen[a] <= r;
+    const base = a * len;
+    b.fill(0);
+    for (let e = 0; e < len; e++) {
+      if (!all && codes[base + e] !== Cell.Valid) continue;
+      const xc = full[base + e];
+      const f = e * r;
+      for (let k = 0; k < r; k++) b[k] += xc * fixed[f + k];
+    }
+    const missing = len - seen[a];
+    if (all || missing === 0) {
+      g.set(gram);
+    } else if (missing < seen[a]) {
+      g.set(gram);
+      for (let p = missPtr[a]; p < missPtr[a + 1]; p++) addOuter(g, fixed, missIdx[p] * r, r, -1);
+    } else {
+      g.fill(0);
+      for (let e = 0; e < len; e++) if (codes[base + e] === Cell.Valid) addOuter(g, fixed, e * r, r, 1);
+    }
+    for (let k = 0; k < r; k++) for (let l = 0; l < k; l++) g[l * r + k] = g[k * r + l];
+    solveSpd(g, r, b, 1);
+    if (b.every(Number.isFinite)) out.set(b, a * r);
+    if (resid) sq += lineResidual(s, a, fixed, out, r);
+  }
+  return sq;
+}
+
+/** Add sign x f f^T to the lower triangle of g, where f is fixed[at .. at + r). */
+function addOuter(g: Float64Array, fixed: Float64Array, at: number, r: number, sign: number): void {
+  for (let k = 0; k < r; k++) {
+    const fk = sign * fixed[at + k];
+    for (let l = 0; l <= k; l++) g[k * r + l] += fk * fixed[at + l];
+  }
+}
+
+/** Sum of squared residuals x - (out_a . fixed_e) over the valid cells of line a. */
+function lineResidual(s: Side, a: number, fixed: Float64Array, out: Float64Array, r: number): number {
+  const base = a * s.len;
+  const o = a * r;
+  let sq = 0;
+  for (let e = 0; e < s.len; e++) {
+    if (s.codes[base + e] !== Cell.Valid) continue;
+    let sum = 0;
+    for (let k = 0; k < r; k++) sum += out[o + k] * fixed[e * r + k];
+    const d = s.full[base + e] - sum;
+    sq += d * d;
+  }
+  return sq;
+}
+
+/** Sum of squared residuals of U V^T over the valid cells (by columns: `s` is the columns' side). */
+function misfit(s: Side, u: Float64Array, v: Float64Array, r: number): number {
+  let sq = 0;
+  for (let a = 0; a < s.lines; a++) sq += lineResidual(s, a, u, v, r);
+  return sq;
+}
+
+/**
+ * Alternating least squares sweeps: at most per trial rank, and over all
+ * ranks of a tile (which bounds the work of a tile whose valid cells no low
+ * rank fits); the most sweeps a rank may still need, at its current pace,
+ * to reach the target; and the RMS misfit, in tolerances, below which a fit
+ * counts as converged. Then the largest rank tried.
+ */
+const ALS_ITERATIONS = 150;
+const ALS_BUDGET = 240;
+const ALS_PATIENCE = 40;
+const ALS_DONE = 0.01;
+const IMPUTE_MAX_RANK = 6;
