@@ -2,7 +2,6 @@
 import { LENGTH_BYTES } from '../format/bytes.js';
 import { binary32Below } from './steps.js';
 
-
 /** Payload methods: the first byte of every payload. */
 export const Method = {
   /** Every value stored losslessly (byte-shuffled, DEFLATE). */
@@ -57,7 +56,7 @@ export function fieldStep(tolerance: number): number {
  */
 interface Walk {
   rank: number;
-  /** Where the factor block's group list ends (the first prefix boundary). */
+  /** Where the factor block's group list and right step code end (the first prefix boundary). */
   groupsAt: number;
   /** Per group present: its rank count, the bytes of its step codes and length varint, and where it ends. */
   groups: { size: number; framing: number; end: number }[];
