@@ -57,7 +57,9 @@ function errorWidth(values: readonly number[]): 0 | 1 | 2 {
  * errors up to one, spec/FORMAT.md 7.5), else binary64.
  */
 export function columnsBytes(values: Record<PageColumn, readonly number[]>): Uint8Array {
-  const w = new ByteWriter(1 + 32 * values.length.length);
+  const tiles = values.length.length;
+  // At most 5 + 4 + 5 + 5 + 8 + 8 + 4 bytes a tile, after the widths byte.
+  const w = new ByteWriter(1 + 39 * tiles);
   const we = errorWidth(values.max_err);
   const wr = errorWidth(values.rmse);
   w.u8(we | (wr << 2));
