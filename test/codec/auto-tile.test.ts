@@ -11,7 +11,7 @@ import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
-import { tileCandidates } from '../../src/codec/auto-tile.js';
+import { spreadTiles, tileCandidates } from '../../src/codec/auto-tile.js';
 import { pack } from '../../src/pack.js';
 
 function precip(): { values: Float32Array; shape: [number, number] } {
@@ -66,6 +66,34 @@ describe('tile candidates', () => {
       [128, 128],
       [256, 256],
     ]);
+  });
+});
+
+describe('the trial samples tiles spread over rows and columns', () => {
+  // A Latin-hypercube layout (McKay, Beckman and Conover, Technometrics 1979; from memory): with
+  // at least as many tile rows and columns as samples, each of `count` equal row strata and each of
+  // `count` equal column strata holds exactly one sample (a tile row or column belongs to the
+  // stratum its centre lies in).
+  it('one sample per row stratum and per column stratum, distinct and in row-major order', () => {
+    for (const [gr, gc] of [[16, 16], [8, 8], [32, 8], [8, 40], [9, 27]]) {
+      for (let count = 2; count <= 8; count++) {
+        if (gr < count || gc < count) continue;
+        const t = spreadTiles(gr, gc, count);
+        expect(t.length).toBe(count);
+        expect([...t].sort((a, b) => a - b)).toEqual(t);
+        const rowStrata = new Set(t.map((x) => Math.floor(((Math.floor(x / gc) + 0.5) * count) / gr)));
+        const colStrata = new Set(t.map((x) => Math.floor((((x % gc) + 0.5) * count) / gc)));
+        expect(rowStrata.size).toBe(count);
+        expect(colStrata.size).toBe(count);
+      }
+    }
+  });
+  it('grids smaller than the count both ways still give distinct tiles inside the grid', () => {
+    for (const [gr, gc, count] of [[3, 3, 8], [2, 3, 5], [2, 2, 3], [1, 9, 8], [9, 1, 8]]) {
+      const t = spreadTiles(gr, gc, count);
+      expect(new Set(t).size).toBe(count);
+      for (const x of t) expect(x >= 0 && x < gr * gc).toBe(true);
+    }
   });
 });
 
