@@ -1,5 +1,6 @@
 /** RESULTS.md: tables per field, summary lines, targets, and how the run was made. */
 import type { Errors } from './metrics.js';
+import { type SpeedRun, speedTable } from './speed.js';
 import type { Breakdown } from './rankfield.js';
 
 export type Status = 'ok' | 'failed' | 'skipped' | 'floor';
@@ -48,7 +49,11 @@ export interface RunInfo {
   bounds: string[];
   rows: Row[];
   notes: string[];
+  /** The speed issue's thread and whole-process measurements (bench/speed.ts); absent when the run skipped them. */
+  speed?: SpeedRun;
 }
+
+const mark = (ok: boolean): string => (ok ? '**met**' : '**not met**');
 
 const fmt = {
   ratio: (v: number): string => (v >= 100 ? v.toFixed(0) : v >= 10 ? v.toFixed(1) : v.toFixed(2)),
@@ -135,7 +140,6 @@ function targets(info: RunInfo, q: Quotient[]): string[] {
   const measured = q.filter((c) => c.value !== null);
   const below = measured.filter((c) => (c.value as number) < 1);
   const missing = q.filter((c) => c.value === null);
-  const mark = (ok: boolean): string => (ok ? '**met**' : '**not met**');
   out.push(
     `- rankfield's ratio >= the best baseline's at every field and bound: ${mark(below.length === 0 && missing.length === 0)}` +
       ` (${measured.length - below.length} of ${q.length} cells at or above 1.00x` +
@@ -188,6 +192,43 @@ function targets(info: RunInfo, q: Quotient[]): string[] {
   return out;
 }
 
+/**
+ * The speed issue's targets, from the thread measurements (encode and decode
+ * per thread against fflate in the same run, 2 threads against 1, the whole
+ * unpack process) and from the main table (encode MB/s of rankfield at each
+ * psnr bound against rel:1e-3 on the same field).
+ */
+function speedTargets(info: RunInfo): string[] {
+  const out: string[] = [];
+  const s = info.speed;
+  const x = (v: number) => `${v.toFixed(2)}x`;
+  if (s) {
+    const enc = s.rows.filter((r) => r.id !== 'volcano');
+    out.push(`- encode at ${s.bound} >= 1.0x fflate deflate-6 per thread (${enc.map((r) => r.id).join(', ')}; volcano, 21 kB of values, is in the table below but not counted, its times being mostly fixed costs): ${mark(enc.length > 0 && enc.every((r) => r.enc1 >= r.deflate))} (${enc.map((r) => `${r.id} ${x(r.enc1 / r.deflate)}`).join(', ')})`);
+    out.push(`- encode with 2 threads >= 1.7x 1 thread (same fields; threads started per call, as one command): ${mark(enc.length > 0 && enc.every((r) => r.enc2 >= 1.7 * r.enc1))} (${enc.map((r) => `${r.id} ${x(r.enc2 / r.enc1)}, warm pool ${x(r.enc2w / r.enc1)}`).join('; ')}; two CPU-bound threads got ${x(s.ceiling)} here)`);
+    out.push(`- decode >= 1.0x fflate inflate per thread in the library: ${mark(s.rows.length > 0 && s.rows.every((r) => r.dec1 >= r.inflate))} (${s.rows.map((r) => `${r.id} ${x(r.dec1 / r.inflate)}`).join(', ')})`);
+    if (s.unpack) {
+      const w = s.unpack.whole;
+      out.push(`- decode >= 1.0x inflate as a whole \`unpack\` process writing .npy (${s.unpack.field}, start-up included): ${mark(Math.max(w.mbs1, w.mbs2) >= s.unpack.inflate)} (--threads 1 ${x(w.mbs1 / s.unpack.inflate)}, --threads 2 ${x(w.mbs2 / s.unpack.inflate)})`);
+    }
+  } else out.push('- thread and whole-process speeds: not measured in this run (the quick run and runs of chosen fields skip them; `node bench/dist/bench/threads.js` measures them alone)');
+  // psnr bounds against rel:1e-3 on each field, from the main table's encode MB/s.
+  const cells: string[] = [];
+  let ok = true;
+  for (const f of info.fields) {
+    const ref = info.rows.find((r) => r.field === f.id && r.bound === 'rel:1e-3' && r.method === 'rankfield')?.encMBs;
+    if (!ref) continue;
+    const l2 = info.rows.filter((r) => r.field === f.id && r.method === 'rankfield' && r.bound.startsWith('psnr') && r.encMBs);
+    if (!l2.length) continue;
+    const worst = l2.reduce((a, b) => ((a.encMBs as number) <= (b.encMBs as number) ? a : b));
+    const v = (worst.encMBs as number) / ref;
+    if (v < 1) ok = false;
+    cells.push(`${f.id} ${x(v)} (${worst.bound})`);
+  }
+  out.push(`- psnr bounds no slower than pointwise ones (slowest psnr encode / rel:1e-3 encode, per field): ${mark(ok && cells.length > 0)} (${cells.join(', ') || 'no comparable cells'})`);
+  return out;
+}
+
 export function renderResults(info: RunInfo): string {
   const q = quotients(info);
   const lines: string[] = [];
@@ -214,6 +255,14 @@ export function renderResults(info: RunInfo): string {
   lines.push('## Targets (from issue 9)');
   lines.push('');
   lines.push(...targets(info, q));
+  lines.push('');
+  lines.push('## Speed (issue 10)');
+  lines.push('');
+  lines.push(...speedTargets(info));
+  if (info.speed) {
+    lines.push('');
+    lines.push(...speedTable(info.speed));
+  }
   lines.push('');
   lines.push('## How to read the tables');
   lines.push('');

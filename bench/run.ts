@@ -21,6 +21,7 @@ import { validRange, type Target } from './metrics.js';
 import { renderPlot, type Marker, type Rgb, type Series } from './plot.js';
 import { breakdown, rankfield, rankfield64, TILE } from './rankfield.js';
 import { renderReadmeBlock, renderResults, type FieldInfo, type Row, type RunInfo } from './report.js';
+import { runSpeed, type SpeedRun } from './speed.js';
 import { timeTask, type TimingOptions } from './timing.js';
 
 export const BOUNDS = ['rel:1e-2', 'rel:1e-3', 'rel:1e-4', 'psnr:40', 'psnr:60', 'psnr:80'];
@@ -189,6 +190,12 @@ async function main(): Promise<void> {
     rows.push(...fieldRows);
     log(`plot ${plotField(field, fieldRows, args.out)}`);
   }
+  // The speed issue's thread and whole-process figures, on the full run's large field and real grids.
+  let speed: SpeedRun | undefined;
+  if (!args.quick && fields.some((f) => f.large)) {
+    log('speed: 1 and 2 threads, whole unpack process');
+    speed = await runSpeed(fields, SPEED_BOUND, speedRuns, (id) => log(`speed ${id}: done`));
+  }
   machineFacts.push(`load average at end ${loadavg()}`);
   const command = `npm run bench${process.argv.length > 2 ? ' -- ' + process.argv.slice(2).join(' ') : ''}`;
   const runInfo: RunInfo = {
@@ -202,6 +209,7 @@ async function main(): Promise<void> {
     bounds: BOUNDS,
     rows,
     notes,
+    speed,
   };
   const md = renderResults(runInfo);
   const file = join(args.out, 'RESULTS.md');

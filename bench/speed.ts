@@ -1,0 +1,188 @@
+/**
+ * The speed issue's measurements, shared by `npm run bench` (its "Speed"
+ * section of RESULTS.md) and bench/threads.ts (the same table on its own):
+ * encode and decode MB/s of rankfield with 1 and 2 worker threads beside
+ * fflate DEFLATE level 6 and INFLATE of the same raw float32 bytes in the
+ * same process (medians), and the wall time of whole `node bin/rankfield
+ * unpack` processes writing .npy.
+ *
+ * Encoding with 1 thread is pack() (the calling thread); with 2, packAsync()
+ * (worker start-up included, as in one command), and again with a pool of two
+ * workers kept across calls (as in a long-running process); the archives are
+ * compared byte for byte. Decoding is readBands() over the whole field, values
+ * handed over band by band as unpack writes them. MB/s are raw float32 bytes
+ * per second.
+ */
+import { spawnSync } from 'node:child_process';
+import { mkdtempSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { dirname, join, resolve } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { Worker } from 'node:worker_threads';
+import { deflateSync, inflateSync } from 'fflate';
+import { open, pack, packAsync, readBands, WorkerPool } from '../src/index.js';
+import { timeTask } from './timing.js';
+
+/** The repository's root (this file runs from bench/dist/bench/). */
+const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '..', '..', '..');
+
+const mbps = (bytes: number, ms: number) => bytes / 1e6 / (ms / 1000);
+const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
+
+async function timed(fn: () => unknown, runs: number): Promise<number> {
+  return (await timeTask(fn, { iterations: runs, timeMs: 0, slowMs: 0, minRuns: runs })).medianMs;
+}
+
+/** One field's speeds, MB/s of raw float32 bytes. */
+export interface ThreadRow {
+  id: string;
+  shape: string;
+  runs: number;
+  deflate: number;
+  inflate: number;
+  enc1: number;
+  enc2: number;
+  enc2w: number;
+  dec1: number;
+  dec2: number;
+  dec2w: number;
+  /** The archives of 1 thread, 2 threads and the warm pool are byte-identical. */
+  same: boolean;
+}
+
+/** Encode and decode speeds of one field at `bound` with 1 and 2 threads, and its 1-thread archive. */
+export async function measureThreads(id: string, values: Float32Array, rows: number, cols: number, bound: string, runs: number): Promise<{ row: ThreadRow; archive: Uint8Array }> {
+  const raw = new Uint8Array(values.buffer, values.byteOffset, values.byteLength);
+  const deflated = deflateSync(raw, { level: 6 });
+  const deflate = await timed(() => deflateSync(raw, { level: 6 }), runs);
+  const inflate = await timed(() => inflateSync(deflated), runs);
+  let one: Uint8Array = new Uint8Array(0);
+  let two: Uint8Array = new Uint8Array(0);
+  const enc1 = await timed(() => (one = pack(values, [rows, cols], { bound })), runs);
+  const enc2 = await timed(async () => (two = await packAsync(values, [rows, cols], { bound, threads: 2 })), runs);
+  const archive = await open(one);
+  let cells = 0;
+  const count = (v: ArrayLike<number>) => void (cells += v.length);
+  const dec1 = await timed(() => readBands(archive, undefined, { threads: 1 }, count), runs);
+  const dec2 = await timed(() => readBands(archive, undefined, { threads: 2, location: one }, count), runs);
+  // With a pool kept across calls: its workers are started and their code warm, as in a long-running process.
+  const pool = new WorkerPool(2);
+  let warm: Uint8Array = new Uint8Array(0);
+  let enc2w: number;
+  let dec2w: number;
+  try {
+    await packAsync(values, [rows, cols], { bound, pool });
+    enc2w = await timed(async () => (warm = await packAsync(values, [rows, cols], { bound, pool })), runs);
+    await readBands(archive, undefined, { location: one, pool }, () => undefined);
+    dec2w = await timed(() => readBands(archive, undefined, { location: one, pool }, count), runs);
+  } finally {
+    await pool.close();
+  }
+  if (cells !== 3 * runs * rows * cols) throw new Error(`${id}: the reads handed over ${cells} values`);
+  const same = Buffer.from(one).equals(Buffer.from(two)) && Buffer.from(one).equals(Buffer.from(warm));
+  const r = (ms: number) => mbps(raw.length, ms);
+  const row = { id, shape: `${rows}x${cols}`, runs, deflate: r(deflate), inflate: r(inflate), enc1: r(enc1), enc2: r(enc2), enc2w: r(enc2w), dec1: r(dec1), dec2: r(dec2), dec2w: r(dec2w), same };
+  return { row, archive: one };
+}
+
+/** Wall time (ms) of one `node bin/rankfield ...` process. */
+function cli(args: string[]): number {
+  const t0 = performance.now();
+  const r = spawnSync(process.execPath, [join(ROOT, 'bin', 'rankfield'), ...args], { encoding: 'utf8' });
+  const ms = performance.now() - t0;
+  if (r.status !== 0) throw new Error(`rankfield ${args.join(' ')}: exit ${r.status}: ${r.stderr}`);
+  return ms;
+}
+
+/** Whole `unpack` processes (start-up included) writing a field to .npy. */
+export interface WholeUnpack {
+  archiveBytes: number;
+  npyBytes: number;
+  runs: number;
+  /** Median wall ms with --threads 1 and --threads 2. */
+  ms1: number;
+  ms2: number;
+  /** MB/s of raw float32 values with 1 and 2 threads. */
+  mbs1: number;
+  mbs2: number;
+}
+
+/** Median wall time of `node bin/rankfield unpack ARCHIVE -o out.npy --threads T` for T = 1 and 2. */
+export function wholeUnpack(archive: Uint8Array, rawBytes: number, runs: number): WholeUnpack {
+  const dir = mkdtempSync(join(tmpdir(), 'rankfield-speed-'));
+  try {
+    const file = join(dir, 'field.rfz');
+    writeFileSync(file, archive);
+    const ms = (t: number) => median(Array.from({ length: runs }, () => cli(['unpack', file, '-o', join(dir, 'out.npy'), '--force', '--threads', String(t)])));
+    const ms1 = ms(1);
+    const ms2 = ms(2);
+    return { archiveBytes: archive.length, npyBytes: statSync(join(dir, 'out.npy')).size, runs, ms1, ms2, mbs1: mbps(rawBytes, ms1), mbs2: mbps(rawBytes, ms2) };
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+}
+
+/**
+ * What two threads can gain here now: the same CPU-bound loop on one worker,
+ * then on two at once (each doing the whole loop); the ratio of throughputs
+ * is the ceiling of any 2-thread speed-up on this machine at this moment
+ * (other tenants' load included).
+ */
+export async function ceiling(): Promise<number> {
+  const code = "const { parentPort } = require('node:worker_threads'); let x = 0; for (let i = 0; i < 2e8; i++) x += Math.sqrt(i); parentPort.postMessage(x);";
+  const run = async (n: number) => {
+    const t0 = performance.now();
+    await Promise.all(Array.from({ length: n }, () => new Promise((r) => new Worker(code, { eval: true }).once('message', r))));
+    return performance.now() - t0;
+  };
+  const one = median([await run(1), await run(1), await run(1)]);
+  const two = median([await run(2), await run(2), await run(2)]);
+  return (2 * one) / two;
+}
+
+/** Everything the Speed section reports. */
+export interface SpeedRun {
+  bound: string;
+  ceiling: number;
+  rows: ThreadRow[];
+  /** On the large field; null when the run has none. */
+  unpack: { field: string; whole: WholeUnpack; inflate: number } | null;
+}
+
+const fmt = (x: number) => (x >= 100 ? x.toFixed(0) : x >= 10 ? x.toFixed(1) : x.toFixed(2));
+const x = (a: number, b: number) => `${(a / b).toFixed(2)}x`;
+
+/** The table of {@link SpeedRun.rows} and the whole-process lines, as Markdown lines. */
+export function speedTable(s: SpeedRun): string[] {
+  const out = [
+    `Bound ${s.bound}. Ceiling: two threads running the same CPU-bound loop got ${s.ceiling.toFixed(2)}x the throughput of one in this run (the most any 2-thread ratio below can show on a shared machine). "2t": this thread and one worker started per call (start-up and cold code included, as in one command); "2t warm": a pool of two workers kept across calls. MB/s of raw float32 bytes; medians.`,
+    '',
+    '| field | shape | runs | deflate-6 MB/s | inflate MB/s | encode 1t | encode 2t | encode 2t warm | 1t/deflate | 2t/1t | 2t warm/1t | decode 1t | decode 2t | decode 2t warm | 1t/inflate | 2t/1t | 2t warm/1t | same bytes |',
+    '|---|---|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|---|',
+  ];
+  for (const r of s.rows) {
+    out.push(`| ${r.id} | ${r.shape} | ${r.runs} | ${fmt(r.deflate)} | ${fmt(r.inflate)} | ${fmt(r.enc1)} | ${fmt(r.enc2)} | ${fmt(r.enc2w)} | ${x(r.enc1, r.deflate)} | ${x(r.enc2, r.enc1)} | ${x(r.enc2w, r.enc1)} | ${fmt(r.dec1)} | ${fmt(r.dec2)} | ${fmt(r.dec2w)} | ${x(r.dec1, r.inflate)} | ${x(r.dec2, r.dec1)} | ${x(r.dec2w, r.dec1)} | ${r.same ? 'yes' : 'NO'} |`);
+  }
+  if (s.unpack) {
+    const w = s.unpack.whole;
+    out.push('');
+    out.push(`Whole process: \`node bin/rankfield unpack\` of the ${s.unpack.field} field's archive (${w.archiveBytes} bytes) to .npy (${w.npyBytes} bytes), start-up included, median of ${w.runs}: --threads 1 ${w.ms1.toFixed(0)} ms = ${fmt(w.mbs1)} MB/s = ${x(w.mbs1, s.unpack.inflate)} fflate inflate in the same run; --threads 2 ${w.ms2.toFixed(0)} ms = ${fmt(w.mbs2)} MB/s = ${x(w.mbs2, s.unpack.inflate)} inflate, ${x(w.ms1, w.ms2)} one thread.`);
+  }
+  return out;
+}
+
+/**
+ * The speed measurements on the large field and the real grids (volcano,
+ * annual-precip) among `fields`: the small grids take more runs, as they run
+ * in milliseconds; the whole-process unpack on the large field.
+ */
+export async function runSpeed(fields: readonly { id: string; values: Float32Array; rows: number; cols: number; large: boolean }[], bound: string, runs: number, progress: (id: string) => void): Promise<SpeedRun> {
+  const run: SpeedRun = { bound, ceiling: await ceiling(), rows: [], unpack: null };
+  for (const f of fields.filter((g) => g.large || g.id === 'volcano' || g.id === 'annual-precip')) {
+    const { row, archive } = await measureThreads(f.id, f.values, f.rows, f.cols, bound, f.large ? runs : 5 * runs);
+    run.rows.push(row);
+    if (f.large) run.unpack = { field: f.id, whole: wholeUnpack(archive, f.values.byteLength, runs), inflate: row.inflate };
+    progress(f.id);
+  }
+  return run;
+}
