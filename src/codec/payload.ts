@@ -19,18 +19,88 @@ export const Flag = {
   Mask: 1,
   Residual: 2,
   Exceptions: 4,
-  /** The residual step is the field's (see {@link fieldStep}) and is not stored; only with Residual. */
-  FieldStep: 8,
   /** Factor codes are stored as first differences along each factor vector. */
   FactorDelta: 16,
-  /** The centre is stored as binary64 (else binary32). */
-  WideCentre: 32,
-  /** The residual step is stored as binary64 (else binary32); only with Residual. */
-  WideStep: 64,
 } as const;
 
-/** All flag bits this version defines; any other bit set is refused. */
-export const KNOWN_FLAGS = 0x7f;
+/** Bits 5-6 of the flags: how the centre is stored ({@link CentreForm}). */
+export const CENTRE_FORM_SHIFT = 5;
+
+/** How the centre is stored (flags bits 5-6). */
+export const CentreForm = {
+  /** binary32, 4 bytes. */
+  Binary32: 0,
+  /** binary64, 8 bytes. */
+  Binary64: 1,
+  /** An integer, as a signed varint of at most {@link NUMBER_BYTES} bytes. */
+  Integer: 2,
+} as const;
+
+/** All flag bits this version defines (Mask, Residual, Exceptions, FactorDelta and the centre form, whose code 3 is refused); any other bit set is refused. */
+export const KNOWN_FLAGS = 0x77;
+
+/** Bits 4-5 of the residual byte: how the residual step is stored ({@link StepForm}); bits 0-2 hold the predictor. */
+export const STEP_FORM_SHIFT = 4;
+
+/** How the residual step is stored (residual byte bits 4-5). */
+export const StepForm = {
+  /** Not stored: the field's step (see {@link fieldStep}). */
+  Field: 0,
+  /** binary32, 4 bytes. */
+  Binary32: 1,
+  /** binary64, 8 bytes. */
+  Binary64: 2,
+  /** A positive integer, as an unsigned varint of at most {@link NUMBER_BYTES} bytes. */
+  Integer: 3,
+} as const;
+
+/** Bits of the residual byte this version defines (predictor 0-2, step form 4-5). */
+export const KNOWN_RESIDUAL_BITS = 0x37;
+
+/** Largest byte length of an integer centre (a signed varint: magnitude below 2^31) or an integer step (an unsigned varint: below 2^32). */
+export const NUMBER_BYTES = 5;
+
+/** Varint bytes of a signed integer (its zigzag code), or Infinity if it is not an integer of magnitude below 2^31. */
+export function svarintBytes(k: number): number {
+  if (!Number.isInteger(k) || Math.abs(k) >= 2 ** 31) return Infinity;
+  return varintBytes(k < 0 ? -2 * k - 1 : 2 * k);
+}
+
+/** Varint bytes of a non-negative integer below 2^32 (else Infinity). */
+export function varintBytes(v: number): number {
+  if (!Number.isInteger(v) || v < 0 || v >= 2 ** 32) return Infinity;
+  let b = 1;
+  while (v >= 0x80) {
+    v = Math.floor(v / 128);
+    b++;
+  }
+  return b;
+}
+
+/**
+ * The cheapest form of a centre (flags bits 5-6) that holds it exactly: an
+ * integer of at most 4 varint bytes, else binary32 when the centre is a
+ * binary32 value, else binary64. Returns the form and, for the integer
+ * form, the integer stored.
+ */
+export function centreForm(center: number): { form: number; k: number } {
+  if (svarintBytes(center) <= 4) return { form: CentreForm.Integer, k: center };
+  return { form: Math.fround(center) === center ? CentreForm.Binary32 : CentreForm.Binary64, k: 0 };
+}
+
+/** The cheapest form of a residual step (residual byte bits 4-5): the field's, an integer varint shorter than 4 bytes, binary32, binary64. */
+export function stepForm(step: number, deltaF: number): number {
+  if (deltaF > 0 && step === deltaF) return StepForm.Field;
+  if (step >= 1 && varintBytes(step) < 4) return StepForm.Integer;
+  return Math.fround(step) === step ? StepForm.Binary32 : StepForm.Binary64;
+}
+
+/** Bytes of the centre in each form (the varint forms: at most). */
+export function centreBytes(form: number, p: Uint8Array, at: number): number {
+  if (form === CentreForm.Binary32) return 4;
+  if (form === CentreForm.Binary64) return 8;
+  return varintAt(p, at, NUMBER_BYTES)?.[1] ?? Infinity;
+}
 
 /** Largest byte length of the varints of a payload that are not byte lengths (rank, group sizes, step codes and their differences). */
 export const VARINT_BYTES = 3;
@@ -85,7 +155,8 @@ function walkLowRank(p: Uint8Array): Walk | null {
   const flags = p[1];
   const rank = varintAt(p, 2);
   if (rank === null) return null;
-  let at = 2 + rank[1] + (flags & Flag.WideCentre ? 8 : 4);
+  let at = 2 + rank[1];
+  at += centreBytes((flags >> CENTRE_FORM_SHIFT) & 3, p, at);
   if (flags & Flag.Mask) {
     // Two length varints (class map, raw NaN bits), then the bytes they announce.
     const [b1, classMap] = lengthAt(p, at);
@@ -188,8 +259,9 @@ export function payloadShares(payload: Uint8Array): PayloadShares | null {
   let residual = 0;
   let exceptions = 0;
   if (payload[1] & Flag.Residual) {
-    // Step (binary32, binary64, or none for the field's), predictor and a length varint.
-    const fixed = (payload[1] & Flag.FieldStep ? 0 : payload[1] & Flag.WideStep ? 8 : 4) + 1;
+    // The residual byte, the step (none for the field's, binary32, binary64 or an integer varint) and a length varint.
+    const form = (payload[at] >> STEP_FORM_SHIFT) & 3;
+    const fixed = 1 + (form === StepForm.Field ? 0 : form === StepForm.Binary32 ? 4 : form === StepForm.Binary64 ? 8 : (varintAt(payload, at + 1, NUMBER_BYTES)?.[1] ?? Infinity));
     const [lb, stream] = lengthAt(payload, at + fixed);
     residual = fixed + lb + stream;
     framing += fixed + lb;

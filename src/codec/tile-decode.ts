@@ -7,7 +7,7 @@ import { ByteReader } from '../format/bytes.js';
 import { printable } from '../format/schema.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
-import { Flag, KNOWN_FLAGS, Method, VARINT_BYTES } from './payload.js';
+import { CENTRE_FORM_SHIFT, CentreForm, Flag, KNOWN_FLAGS, KNOWN_RESIDUAL_BITS, Method, NUMBER_BYTES, STEP_FORM_SHIFT, StepForm, VARINT_BYTES } from './payload.js';
 import { lowRank, MAX_PREDICTOR, reconstruct, unpredict } from './reconstruct.js';
 import { CodeStreamError, decodeClasses, decodeInts } from './code-decode.js';
 import { MAX_INT, readSection } from './section.js';
@@ -92,14 +92,8 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (ctx.maxRank !== undefined && rank > ctx.maxRank) {
     throw new FormatError(FormatCode.Limit, `${where}: rank ${rank} exceeds the reader limit of ${ctx.maxRank}`);
   }
-  const centreAt = r.offset;
-  const center = flags & Flag.WideCentre ? r.f64('centre') : r.f32('centre');
-  if (!Number.isFinite(center)) throw malformed(where, `centre ${center} at ${r.unit} ${centreAt} is not finite`);
+  const center = readCentre(r, ctx, (flags >> CENTRE_FORM_SHIFT) & 3);
   if (flags & Flag.FactorDelta && rank === 0) throw malformed(where, 'factor difference flag on a payload of rank 0');
-  if (flags & Flag.WideStep && !(flags & Flag.Residual)) throw malformed(where, 'wide residual step flag on a payload without a residual');
-  if (flags & Flag.FieldStep && !(flags & Flag.Residual)) throw malformed(where, 'field step flag on a payload without a residual');
-  if (flags & Flag.FieldStep && flags & Flag.WideStep) throw malformed(where, 'field step flag with the wide residual step flag');
-  if (flags & Flag.FieldStep && !((ctx.fieldStep ?? 0) > 0)) throw malformed(where, 'field step flag in a field whose tolerance gives no residual step');
 
   const mask = flags & Flag.Mask ? readMask(r, ctx) : null;
   const factors = rank > 0 ? readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0) : { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
@@ -110,7 +104,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   }
   // Every section is read and checked before the arithmetic, so a malformed late part costs no multiply-adds.
   const codes = mask?.codes ?? null;
-  const residual = flags & Flag.Residual ? readResidual(r, ctx, flags, codes) : { step: 0, q: null };
+  const residual = flags & Flag.Residual ? readResidual(r, ctx, codes) : { step: 0, q: null };
   const exceptions = flags & Flag.Exceptions ? readExceptions(r, ctx, codes) : { cells: new Uint32Array(0), values: new Uint8Array(0) };
   if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
 
@@ -161,14 +155,41 @@ function readMask(r: ByteReader, ctx: TileContext): { codes: Uint8Array; rawNaN:
   return { codes, rawNaN };
 }
 
-/** Read and check the residual: its step, predictor and codes, the prediction undone. */
-function readResidual(r: ByteReader, ctx: TileContext, flags: number, codes: Uint8Array | null): { step: number; q: Int32Array } {
+/** The field's step, for the forms that name it; refused in a field that has none. */
+function fieldStepOf(ctx: TileContext, what: string): number {
+  const s = ctx.fieldStep ?? 0;
+  if (!(s > 0)) throw malformed(ctx.where, `${what} in a field whose tolerance gives no field step`);
+  return s;
+}
+
+/** Read and check the centre in its form (flags bits 5-6): binary32, binary64 or an integer; form 3 is refused. */
+function readCentre(r: ByteReader, ctx: TileContext, form: number): number {
+  const at = r.offset;
+  let center: number;
+  if (form === CentreForm.Binary32) center = r.f32('centre');
+  else if (form === CentreForm.Binary64) center = r.f64('centre');
+  else if (form === CentreForm.Integer) center = r.svarint('integer centre', NUMBER_BYTES);
+  else throw malformed(ctx.where, 'centre form 3 (flags bits 5-6) is not defined');
+  if (!Number.isFinite(center)) throw malformed(ctx.where, `centre ${center} at ${r.unit} ${at} is not finite`);
+  return center;
+}
+
+/** Read and check the residual: its residual byte (predictor, step form), step and codes, the prediction undone. */
+function readResidual(r: ByteReader, ctx: TileContext, codes: Uint8Array | null): { step: number; q: Int32Array } {
   const { m, n, where } = ctx;
+  const byteAt = r.offset;
+  const head = r.u8('residual byte');
+  if (head & ~KNOWN_RESIDUAL_BITS) throw malformed(where, `residual byte 0x${head.toString(16)} at ${r.unit} ${byteAt} has bits outside 0x${KNOWN_RESIDUAL_BITS.toString(16)} set`);
+  const predictor = head & 7;
+  if (predictor > MAX_PREDICTOR) throw malformed(where, `residual predictor ${predictor} at ${r.unit} ${byteAt} is not one of 0..${MAX_PREDICTOR}`);
+  const form = (head >> STEP_FORM_SHIFT) & 3;
   const stepAt = r.offset;
-  const step = flags & Flag.FieldStep ? ctx.fieldStep! : flags & Flag.WideStep ? r.f64('residual step') : r.f32('residual step');
+  let step: number;
+  if (form === StepForm.Field) step = fieldStepOf(ctx, 'a residual with the field step');
+  else if (form === StepForm.Binary32) step = r.f32('residual step');
+  else if (form === StepForm.Binary64) step = r.f64('residual step');
+  else step = r.varint('integer residual step', NUMBER_BYTES);
   if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${stepAt} is not a positive finite number`);
-  const predictor = r.u8('residual predictor');
-  if (predictor > MAX_PREDICTOR) throw malformed(where, `residual predictor ${predictor} at ${r.unit} ${r.offset - 1} is not one of 0..${MAX_PREDICTOR}`);
   const q = new Int32Array(m * n);
   readCoded(r, 'residual', m, n, codes, q, where);
   if (!unpredict(q, m, n, MAX_INT, predictor)) throw malformed(where, 'a residual code exceeds 2^30 after prediction');

@@ -7,7 +7,7 @@ import { ByteWriter } from '../format/bytes.js';
 import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
-import { Flag, Method } from './payload.js';
+import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
 import { lowRank, predict, predictorBits, predictedFill, Predictor, reconstruct, walkPredictor } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
@@ -174,15 +174,14 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
   if (delta) flags |= Flag.FactorDelta;
   const w = new ByteWriter(64 + t.maskSection.length + (hasResidual ? (m * n) / 2 : 0) + (f ? rank * (m + n) : 0));
   const center = corr !== null ? corr.center : t.center;
-  if (Math.fround(center) !== center) flags |= Flag.WideCentre;
-  // The field's own step is named by a flag, any other step stored (binary32 when it is one).
-  if (hasResidual && corr.step === t.fieldStep) flags |= Flag.FieldStep;
-  else if (hasResidual && Math.fround(corr.step) !== corr.step) flags |= Flag.WideStep;
+  const cf = centreForm(center);
+  flags |= cf.form << CENTRE_FORM_SHIFT;
   w.u8(Method.LowRank);
   w.u8(flags);
   w.varint(rank);
-  if (flags & Flag.WideCentre) w.f64(center);
-  else w.f32(center);
+  if (cf.form === CentreForm.Binary32) w.f32(center);
+  else if (cf.form === CentreForm.Binary64) w.f64(center);
+  else w.svarint(cf.k);
   if (flags & Flag.Mask) w.bytes(t.maskSection);
   if (f && rank > 0) {
     const sizes = groupSizes(rank, t.grouping);
@@ -201,9 +200,12 @@ function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null
     }
   }
   if (hasResidual && corr.q) {
-    if (flags & Flag.WideStep) w.f64(corr.step);
-    else if (!(flags & Flag.FieldStep)) w.f32(corr.step);
-    w.u8(corr.predictor);
+    // The residual byte (predictor, step form), then the step unless it is the field's.
+    const sf = stepForm(corr.step, t.fieldStep);
+    w.u8(corr.predictor | (sf << STEP_FORM_SHIFT));
+    if (sf === StepForm.Binary32) w.f32(corr.step);
+    else if (sf === StepForm.Binary64) w.f64(corr.step);
+    else if (sf === StepForm.Integer) w.varint(corr.step);
     const coded = corr.coded ?? encodeInts(corr.q, m, n, t.classes.special > 0 ? t.classes.codes : null);
     w.varint(coded.length);
     w.bytes(coded);

@@ -16,9 +16,9 @@ export const MAGIC = Uint8Array.of(0x8a, 0x52, 0x46, 0x5a, 0x0d, 0x0a, 0x1a, 0x0
 /** Magic bytes that close every archive. */
 export const TAIL_MAGIC = Uint8Array.of(0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a);
 /** Format versions this reader understands. */
-export const VERSIONS = [7] as const;
+export const VERSIONS = [8] as const;
 /** Version written by this writer. */
-export const VERSION = 7;
+export const VERSION = 8;
 export const PROLOGUE_SIZE = 12;
 /** Required flag bit 0: some field stacks more than one slice (spec/FORMAT.md, "Required flags"). */
 export const FLAG_SLICES = 0x1;
@@ -140,7 +140,7 @@ export class ContainerWriter {
     const fields = index.fields.map((ix, i) => {
       const fh = header.fields[i];
       const page: [number, number] = [pages[i][0], pages[i][1]];
-      const d: FieldDirectory = { page, page_offset: [], page_length: [], page_crc: [], data_offset: [], data_length: [], summary: ix.summary };
+      const d: FieldDirectory = { page, page_offset: [], page_length: [], page_crc: [], data_offset: [], data_length: [], summary: { ...ix.summary, max_err: 0 } };
       if (ix.offset.length !== tileCount(fh)) throw new Error(`field ${i} has ${ix.offset.length} tiles in its index, its header ${tileCount(fh)}`);
       for (let p = 0; p < pageCount(fh, page); p++) {
         const tiles = pageTiles(fh, page, p);
@@ -151,7 +151,10 @@ export class ContainerWriter {
           at += ix.length[t];
         }
         d.data_length.push(at - ix.offset[tiles[0]]);
-        const b = encodeCompact(pageForDisk(fh, ix, tiles));
+        const { page: onDisk, maxErr } = pageForDisk(fh, ix, tiles);
+        // The summary's max_err is the largest figure the pages record, rounded up to binary32 (spec/FORMAT.md 7.4).
+        for (const x of maxErr) if (x > d.summary.max_err) d.summary.max_err = x;
+        const b = encodeCompact(onDisk);
         d.page_offset.push(this.pos);
         d.page_length.push(b.length);
         d.page_crc.push(crc32(b));

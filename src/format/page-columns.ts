@@ -38,13 +38,44 @@ export function kindParts(kind: number): { method: number; rank: number } {
   return kind === 0 ? { method: 0, rank: 0 } : { method: 1, rank: kind - 1 };
 }
 
-/** Width codes of the error columns in the columns' first byte: no entry (every figure 0), binary32, binary64. */
-const ERROR_WIDTHS = [0, 4, 8] as const;
+/** Width codes of the error columns in the columns' first byte: no entry (every figure 0), binary32, binary64, a u16 share of the tolerance. */
+const ERROR_WIDTHS = [0, 4, 8, 2] as const;
 
-/** The width code of an error column: 0 when every value is 0, 1 when every value is a binary32 value, else 2. */
-function errorWidth(values: readonly number[]): 0 | 1 | 2 {
-  if (values.every((v) => v === 0)) return 0;
-  return values.every((v) => Math.fround(v) === v) ? 1 : 2;
+/** The denominator of a share of the tolerance (width code 3). */
+export const SHARE_ONE = 65535;
+
+/**
+ * The error a share code stands for (spec/FORMAT.md 7.3, width code 3):
+ * tol x (code / 65535), two binary64 operations each rounded to nearest, in
+ * that order, so that code 65535 gives tol itself and larger codes never
+ * give smaller errors.
+ */
+export function shareValue(code: number, tol: number): number {
+  return tol * (code / SHARE_ONE);
+}
+
+/** The smallest share code whose value is at least `x` (0 <= x <= tol, tol positive and finite). */
+export function shareCode(x: number, tol: number): number {
+  let c = Math.min(SHARE_ONE, Math.max(0, Math.ceil((x / tol) * SHARE_ONE)));
+  while (c > 0 && shareValue(c - 1, tol) >= x) c--;
+  while (shareValue(c, tol) < x) c++;
+  return c;
+}
+
+/**
+ * Recorded errors of a page's column (spec/FORMAT.md 7.3 and 7.5), from the
+ * errors measured: rounded up to a share of the field's tolerance `tol`
+ * (width code 3, 2 bytes an entry) when every value is at most `tol` and
+ * `tol` is positive and finite, else each value rounded up to binary32 by
+ * `up32` (binary64 where that leaves it unchanged: width codes 1 and 2);
+ * width code 0 when every value is 0. Returns the width code and the values
+ * a reader will read.
+ */
+export function recordErrors(measured: readonly number[], tol: number, up32: (x: number) => number): { code: 0 | 1 | 2 | 3; values: number[] } {
+  if (measured.every((v) => v === 0)) return { code: 0, values: measured.map(() => 0) };
+  if (tol > 0 && Number.isFinite(tol) && measured.every((v) => v <= tol)) return { code: 3, values: measured.map((v) => shareValue(shareCode(v, tol), tol)) };
+  const values = measured.map(up32);
+  return { code: values.every((v) => Math.fround(v) === v) ? 1 : 2, values };
 }
 
 /**
@@ -56,21 +87,20 @@ function errorWidth(values: readonly number[]): 0 | 1 | 2 {
  * binary32 entries when every value is a binary32 value (the writer rounds
  * errors up to one, spec/FORMAT.md 7.5), else binary64.
  */
-export function columnsBytes(values: Record<PageColumn, readonly number[]>): Uint8Array {
+export function columnsBytes(values: Record<PageColumn, readonly number[]>, widths: { max_err: number; rmse: number }, tol: number): Uint8Array {
   const tiles = values.length.length;
   // At most 5 + 4 + 5 + 5 + 8 + 8 + 4 bytes a tile, after the widths byte.
   const w = new ByteWriter(1 + 39 * tiles);
-  const we = errorWidth(values.max_err);
-  const wr = errorWidth(values.rmse);
-  w.u8(we | (wr << 2));
+  w.u8(widths.max_err | (widths.rmse << 2));
   for (const c of PAGE_COLUMNS) {
     const type = COLUMN_TYPES[c];
-    const width = c === 'max_err' ? we : wr;
+    const width = c === 'max_err' ? widths.max_err : widths.rmse;
     for (const v of values[c]) {
       if (type === 'varint') w.varint(v);
       else if (type === 'u32') w.u32(v);
       else if (width === 1) w.f32(v);
       else if (width === 2) w.f64(v);
+      else if (width === 3) w.u16(shareCode(v, tol));
     }
   }
   return w.finish();
@@ -83,7 +113,7 @@ export function columnsBytes(values: Record<PageColumn, readonly number[]>): Uin
  * past the end; a varint that is not in its shortest form, runs over 5
  * bytes or holds 2^32 or more; bytes left after the last column.
  */
-export function readColumns(raw: unknown, n: number, bad: (what: string) => never): Record<PageColumn, number[]> {
+export function readColumns(raw: unknown, n: number, tol: number, bad: (what: string) => never): Record<PageColumn, number[]> {
   if (!(raw instanceof Uint8Array)) return bad('columns are not a binary value');
   const r = new ByteReader(raw, 'columns', 0, 'columns offset');
   const out = {} as Record<PageColumn, number[]>;
@@ -91,7 +121,8 @@ export function readColumns(raw: unknown, n: number, bad: (what: string) => neve
     const widths = r.u8('widths byte');
     if (widths > 0x0f) return bad(`widths byte 0x${widths.toString(16)} has bits above bit 3 set`);
     const codes = { max_err: widths & 3, rmse: widths >> 2 };
-    for (const c of ['max_err', 'rmse'] as const) if (codes[c] === 3) return bad(`widths byte 0x${widths.toString(16)} gives column '${c}' the unknown width code 3`);
+    const shares = tol > 0 && Number.isFinite(tol);
+    for (const c of ['max_err', 'rmse'] as const) if (codes[c] === 3 && !shares) return bad(`widths byte 0x${widths.toString(16)} gives column '${c}' width code 3 (shares of the tolerance) in a field whose tolerance is ${tol}`);
     for (const c of PAGE_COLUMNS) {
       const type = COLUMN_TYPES[c];
       const col: number[] = new Array(n);
@@ -101,7 +132,7 @@ export function readColumns(raw: unknown, n: number, bad: (what: string) => neve
         else if (type === 'u32') col[k] = r.u32(what);
         else {
           const width = ERROR_WIDTHS[codes[c as 'max_err' | 'rmse']];
-          col[k] = width === 0 ? 0 : width === 4 ? r.f32(what) : r.f64(what);
+          col[k] = width === 0 ? 0 : width === 4 ? r.f32(what) : width === 8 ? r.f64(what) : shareValue(r.u16(what), tol);
         }
       }
       out[c] = col;

@@ -5,7 +5,7 @@
 import { FormatCode, FormatError, InputCode, InputError } from '../errors.js';
 import { tileGrid, tileShape, type Grid } from '../geometry.js';
 import type { BoundMode, Dtype } from '../types.js';
-import { columnsBytes, kindParts, PAGE_COLUMNS, type PageColumn, readColumns, tileKind } from './page-columns.js';
+import { columnsBytes, kindParts, PAGE_COLUMNS, type PageColumn, readColumns, recordErrors, tileKind } from './page-columns.js';
 
 /** Free-form attributes: strings, numbers, booleans, or arrays of them. */
 export type Attrs = Record<string, string | number | boolean | (string | number | boolean)[]>;
@@ -449,10 +449,16 @@ export function up32(x: number): number {
 
 /**
  * The on-disk form of an index page (spec/FORMAT.md 7.3): the columns of
- * {@link PAGE_COLUMNS} in one binary value (errors rounded up to binary32,
- * R(x) of 7.5), then the prefix column, a MessagePack array, if any.
+ * {@link PAGE_COLUMNS} in one binary value (errors rounded up, R(x) of 7.5:
+ * to shares of the field's tolerance where every tile's error is within it,
+ * else to binary32), then the prefix column, a MessagePack array, if any.
+ * Returns the page and the max_err figures a reader will read from it (the
+ * field's summary is the largest of them).
  */
-export function pageForDisk(h: Grid, ix: TileColumns, tiles: readonly number[]): unknown[] {
+export function pageForDisk(h: Grid & { bound: { tolerance: number } }, ix: TileColumns, tiles: readonly number[]): { page: unknown[]; maxErr: number[] } {
+  const tol = h.bound.tolerance;
+  const maxErr = recordErrors(tiles.map((t) => ix.max_err[t]), tol, up32);
+  const rmse = recordErrors(tiles.map((t) => ix.rmse[t]), tol, up32);
   const values: Record<PageColumn, number[]> = {
     length: tiles.map((t) => ix.length[t]),
     crc: tiles.map((t) => ix.crc[t]),
@@ -461,13 +467,13 @@ export function pageForDisk(h: Grid, ix: TileColumns, tiles: readonly number[]):
       const [m, n] = tileShape(h, t);
       return m * n - ix.valid[t];
     }),
-    max_err: tiles.map((t) => up32(ix.max_err[t])),
-    rmse: tiles.map((t) => up32(ix.rmse[t])),
+    max_err: maxErr.values,
+    rmse: rmse.values,
     value_crc: tiles.map((t) => ix.value_crc[t]),
   };
-  const out: unknown[] = [columnsBytes(values)];
+  const out: unknown[] = [columnsBytes(values, { max_err: maxErr.code, rmse: rmse.code }, tol)];
   if (ix.prefix) out.push(tiles.map((t) => ix.prefix![t].map((x, q) => (q % 4 >= 2 ? up32(x) : x))));
-  return out;
+  return { page: out, maxErr: maxErr.values };
 }
 
 /** Index pages of one slice of a field: [page rows, page columns], for pages of `page` = [tile rows, tile cols]. */
@@ -633,7 +639,7 @@ export function checkPage(raw: unknown, h: FieldHeader, d: FieldDirectory, p: nu
   if (!Array.isArray(raw) || raw.length < 1) fail(where, `is ${describeValue(raw)}, not an array holding the binary columns (${PAGE_COLUMNS.join(', ')})`);
   const tiles = pageTiles(h, d.page, p);
   const n = tiles.length;
-  const { length, crc, kind, missing, max_err: maxErr, rmse, value_crc: valueCrc } = readColumns(raw[0], n, (what) => fail(where, what));
+  const { length, crc, kind, missing, max_err: maxErr, rmse, value_crc: valueCrc } = readColumns(raw[0], n, h.bound.tolerance, (what) => fail(where, what));
   const method = kind.map((x) => kindParts(x).method);
   const rank = kind.map((x) => kindParts(x).rank);
   const offset: number[] = [];
@@ -677,7 +683,7 @@ export function checkSummary(d: FieldDirectory, valid: readonly number[], maxErr
   }
   const s = d.summary;
   if (s.valid !== validSum) fail(where, `summary valid count ${s.valid} is not the sum ${validSum} of the tiles' counts`);
-  if (s.max_err !== maxErrMax) fail(where, `summary max_err ${s.max_err} is not the largest tile max_err ${maxErrMax}`);
+  if (s.max_err !== up32(maxErrMax)) fail(where, `summary max_err ${s.max_err} is not the largest tile max_err ${maxErrMax} rounded up to binary32 (${up32(maxErrMax)})`);
 }
 
 /** Validate the optional prefix column: per tile, quads of (length, crc, max error, rmse), lengths rising and shorter than the payload. */
