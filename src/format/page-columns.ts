@@ -75,7 +75,7 @@ export function recordErrors(measured: readonly number[], tol: number, up32: (x:
   if (measured.every((v) => v === 0)) return { code: 0, values: measured.map(() => 0) };
   if (tol > 0 && Number.isFinite(tol) && measured.every((v) => v <= tol)) return { code: 3, values: measured.map((v) => shareValue(shareCode(v, tol), tol)) };
   const values = measured.map(up32);
-  return { code: values.every((v) => Math.fround(v) === v) ? 1 : 2, values };
+  return { code: exactWidth(values) === 1 ? 1 : 2, values };
 }
 
 /**
@@ -87,7 +87,13 @@ export function recordErrors(measured: readonly number[], tol: number, up32: (x:
  * binary32 entries when every value is a binary32 value (the writer rounds
  * errors up to one, spec/FORMAT.md 7.5), else binary64.
  */
-export function columnsBytes(values: Record<PageColumn, readonly number[]>, widths: { max_err: number; rmse: number }, tol: number): Uint8Array {
+/** The width code that stores every value of an error column exactly as a number: 0 (all zero), 1 (binary32) or 2 (binary64). */
+export function exactWidth(values: readonly number[]): 0 | 1 | 2 {
+  if (values.every((v) => v === 0)) return 0;
+  return values.every((v) => Math.fround(v) === v) ? 1 : 2;
+}
+
+export function columnsBytes(values: Record<PageColumn, readonly number[]>, widths: { max_err: number; rmse: number } = { max_err: exactWidth(values.max_err), rmse: exactWidth(values.rmse) }, tol = 0): Uint8Array {
   const tiles = values.length.length;
   // At most 5 + 4 + 5 + 5 + 8 + 8 + 4 bytes a tile, after the widths byte.
   const w = new ByteWriter(1 + 39 * tiles);

@@ -148,22 +148,25 @@ export function close(a: number, b: number, rel = 1e-12): boolean {
  * binary32 step (2^-23 relative) above it, each to `rel` for b's own
  * rounding.
  */
-export function closeUp32(a: number, b: number, rel = 1e-12): boolean {
+export function closeUp32(a: number, b: number, rel = 1e-12, tol = 0): boolean {
   if (a === b) return true;
-  return a >= b * (1 - rel) && a <= b * (1 + 2 ** -23) * (1 + rel);
+  // A recorded figure is the measured one rounded up: to binary32 (spec/FORMAT.md 7.5), or to a share of
+  // the tolerance, tol / 65535 apart (7.3, width code 3).
+  return a >= b * (1 - rel) && (a <= b * (1 + 2 ** -23) * (1 + rel) || a <= b + (tol / 65535) * (1 + 1e-9) + b * 2 ** -52);
 }
 
 /** Expect the index's recorded figures of field 0 to equal what `m` measured (tile errors rounded up to binary32). */
 export async function expectIndexMatches(archive: Archive, m: Measured, name?: string): Promise<void> {
   const ix = await archive.fieldIndex(name);
+  const tol = archive.header.fields.find((f) => name === undefined || f.name === name)?.bound.tolerance ?? 0;
   expect(ix.valid.length).toBe(m.tiles.length);
   m.tiles.forEach((t, i) => {
     expect(ix.valid[i], `tile ${i} valid`).toBe(t.valid);
-    expect(closeUp32(ix.max_err[i], t.maxErr), `tile ${i} max_err recorded ${ix.max_err[i]} measured ${t.maxErr}`).toBe(true);
-    expect(closeUp32(ix.rmse[i], t.rmse), `tile ${i} rmse recorded ${ix.rmse[i]} measured ${t.rmse}`).toBe(true);
+    expect(closeUp32(ix.max_err[i], t.maxErr, 1e-12, tol), `tile ${i} max_err recorded ${ix.max_err[i]} measured ${t.maxErr}`).toBe(true);
+    expect(closeUp32(ix.rmse[i], t.rmse, 1e-12, tol), `tile ${i} rmse recorded ${ix.rmse[i]} measured ${t.rmse}`).toBe(true);
   });
   expect(ix.summary.valid).toBe(m.summary.valid);
-  expect(closeUp32(ix.summary.max_err, m.summary.maxErr), `summary max_err recorded ${ix.summary.max_err} measured ${m.summary.maxErr}`).toBe(true);
+  expect(closeUp32(ix.summary.max_err, m.summary.maxErr, 1e-12, tol), `summary max_err recorded ${ix.summary.max_err} measured ${m.summary.maxErr}`).toBe(true);
   expect(closeUp32(ix.summary.rmse, m.summary.rmse), `summary rmse recorded ${ix.summary.rmse} measured ${m.summary.rmse}`).toBe(true);
 }
 

@@ -53,6 +53,8 @@ export interface Grid {
   tileCols: number;
   slices: number;
   page: [number, number];
+  /** The field's stored tolerance (for error columns stored as shares of it). */
+  tol: number;
 }
 
 /** The field tile numbers of page p, in page order (spec/FORMAT.md, section 7). */
@@ -112,7 +114,7 @@ export function keyedPage(raw: Block, g: Grid, p: number, dataOffset: number): B
   const bad = (what: string): never => {
     throw new Error(`seed page ${p}: ${what}`);
   };
-  Object.assign(out, readColumns(raw[0], tiles.length, bad));
+  Object.assign(out, readColumns(raw[0], tiles.length, g.tol, bad));
   if (raw.length > 1) out.prefix = raw[1];
   let at = dataOffset;
   out.offset = out.length.map((l: number) => ((at += l), at - l));
@@ -258,7 +260,7 @@ export function split(b: Uint8Array): Parts {
     return d;
   });
   const dir = { fields };
-  const grids = header.fields.map((h: Block, i: number): Grid => ({ rows: h.shape[0], cols: h.shape[1], tileRows: h.tile[0], tileCols: h.tile[1], slices: h.slices ?? 1, page: fields[i].page }));
+  const grids = header.fields.map((h: Block, i: number): Grid => ({ rows: h.shape[0], cols: h.shape[1], tileRows: h.tile[0], tileCols: h.tile[1], slices: h.slices ?? 1, page: fields[i].page, tol: h.bound.tolerance }));
   const pages = fields.map((f: Block, i: number) => f.page_offset.map((o: number, p: number) => keyedPage(decode(b.subarray(o, o + f.page_length[p])) as Block, grids[i], p, f.data_offset[p])));
   return { front: b.slice(0, payloadEnd), header, dir, pages, grids };
 }
