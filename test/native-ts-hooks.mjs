@@ -12,8 +12,9 @@
  * inner loops; the same tests take about half the CPU time under Node's
  * loader (vega.test.ts: 27.8 s of CPU with the module runner, 16.1 s here).
  *
- * Each test file runs in a process of its own, which would transform again
- * every source it imports (about 110 files for the command line). The
+ * Each test process (several, and one per file for the files vitest.config.ts
+ * isolates) would transform again every source it imports (about 110 files
+ * for the command line). The
  * JavaScript is therefore kept in node_modules/.cache/rankfield-native-ts/
  * under a hash of the esbuild version, the options, the file's path and its
  * text, so a changed file (or a new esbuild) is transformed anew and an
