@@ -14,7 +14,8 @@ import { gramSingularValues } from '../linalg/spectrum.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
 import { payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
-import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, rankZeroForMse, residualForMse } from './tile-encode.js';
+import { encodeL2, encodePointwise, exactPayload, pointwiseFactors } from './tile-encode.js';
+import { rankZeroForMse, residualForMse } from './rdo.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];

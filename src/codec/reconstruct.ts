@@ -163,7 +163,7 @@ function blendWeights(): Int32Array {
 }
 
 /** The prediction of an interior cell from a (left), b (up), c (up-left). */
-function interior(kind: number, a: number, b: number, c: number): number {
+export function interior(kind: number, a: number, b: number, c: number): number {
   switch (kind) {
     case Predictor.Lorenzo:
       return a + b - c;
