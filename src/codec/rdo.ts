@@ -78,12 +78,19 @@ class RdoWalk {
 
   /**
    * Walk the tile in raster order with predictor `kind` (q: scratch for the
-   * codes); false if a code leaves the code range. The predictors other than
-   * the blend are walked here with their predictions inline, the same ones
-   * {@link walkPredictor} gives, so that settle() is a direct call.
+   * codes); false if a code leaves the code range, or as soon as the squared
+   * error passes `seLimit` or the rough bits pass `bitsLimit` (both only
+   * grow, so such a walk could not end within them). The predictors other
+   * than the blend are walked here with their predictions inline, the same
+   * ones {@link walkPredictor} gives, so that settle() is a direct call.
    */
-  run(q: Int32Array, m: number, n: number, kind: number): boolean {
-    if (kind === Predictor.Blend) return walkPredictor(q, m, n, kind, (c, p) => this.settle(c, p));
+  run(q: Int32Array, m: number, n: number, kind: number, seLimit: number, bitsLimit: number): boolean {
+    if (kind === Predictor.Blend) {
+      return walkPredictor(q, m, n, kind, (c, p) => {
+        const v = this.settle(c, p);
+        return this.se > seLimit || this.bits > bitsLimit ? Number.NaN : v;
+      });
+    }
     for (let i = 0; i < m; i++) {
       for (let j = 0; j < n; j++) {
         const c = i * n + j;
@@ -92,6 +99,7 @@ class RdoWalk {
         if (v !== v) return false;
         q[c] = v;
       }
+      if (this.se > seLimit || this.bits > bitsLimit) return false;
     }
     return true;
   }
@@ -123,11 +131,16 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number):
   const unit = Math.sqrt(12 * mse);
   const plainKind = correct(t, f, unit / 2, unit).predictor;
   const q = new Int32Array(cells);
-  /** The codes of predictor `kind` at step a x unit and weight w (their differences in d), with their rough bits; null if they miss the allotment or leave the code range. */
-  const walk = (kind: number, a: number, w: number, d: Int32Array): { step: number; bits: number } | null => {
+  /**
+   * The codes of predictor `kind` at step a x unit and weight w (their differences in d), with their
+   * rough bits; null if they miss the allotment, leave the code range or (cut short) have more rough
+   * bits than `bitsLimit`.
+   */
+  const seLimit = 0.98 * mse * t.valid;
+  const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit = Infinity): { step: number; bits: number } | null => {
     d.fill(0);
     const run = new RdoWalk(t.orig, base, t.classes.codes, d, binary32Below(a * unit), w);
-    return run.run(q, m, n, kind) && run.se <= 0.98 * mse * t.valid ? { step: run.step, bits: run.bits } : null;
+    return run.run(q, m, n, kind, seLimit, bitsLimit) && run.se <= seLimit ? { step: run.step, bits: run.bits } : null;
   };
   let best: Uint8Array | null = null;
   let bestAt: [number, number] = [1, 0];
@@ -145,7 +158,8 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number):
   let spare: Int32Array = new Int32Array(cells);
   for (const a of RDO_STEPS) {
     for (const w of RDO_WEIGHTS) {
-      const walked = walk(plainKind, a, w, spare);
+      // A walk whose bits pass the third cheapest's could not rank among them (ties go to the earlier): cut short.
+      const walked = walk(plainKind, a, w, spare, ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity);
       if (walked === null) continue;
       let at = ranked.length;
       while (at > 0 && ranked[at - 1].bits > walked.bits) at--;
