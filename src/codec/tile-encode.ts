@@ -8,7 +8,7 @@ import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { Flag, Method } from './payload.js';
-import { lowRank, predict, predictorBits, predictedFill, Predictor, reconstruct } from './reconstruct.js';
+import { lowRank, predict, predictorBits, predictedFill, Predictor, withResidual } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -264,29 +264,37 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   const codes = t.classes.codes;
   let q: Int32Array | null = null;
   let predictor: number = Predictor.None;
-  let added: Int32Array | null = null;
   let coded: Uint8Array | undefined;
   let raw: Int32Array | undefined;
   let rawBits: number | undefined;
-  if (e > 0 && Number.isFinite(step)) {
+  const exceptions: number[] = [];
+  // The reconstruction of a valid cell is the decoder's withResidual() of its low-rank part and its own
+  // code, rounded to the dtype as reconstruct() stores it (the predictor changes only the coded
+  // differences, and missing cells are not checked): so each cell is checked as its code is chosen.
+  const f32 = t.dtype === 'f32';
+  const checked = e > 0 && Number.isFinite(step);
+  if (checked) {
     q = new Int32Array(cells);
     let any = false;
     for (let c = 0; c < cells; c++) {
       if (codes[c] !== Cell.Valid) continue;
-      const v = Math.round((t.orig[c] - base[c]) / step);
-      if (v !== 0 && Math.abs(v) <= MAX_INT) {
+      const o = t.orig[c];
+      const v = Math.round((o - base[c]) / step);
+      const kept = v !== 0 && Math.abs(v) <= MAX_INT;
+      if (kept) {
         q[c] = v;
         any = true;
       }
+      const sum = withResidual(base[c], kept ? v : 0, step);
+      if (!(Math.abs(o - (f32 ? Math.fround(sum) : sum)) <= e)) exceptions.push(c);
     }
     if (!any) q = null;
     else {
       // The predictor whose residual looks cheapest. Missing cells take the value the
       // predictor expects, so they cost nothing (the decoder overwrites them anyway).
       let best = q;
-      let bestFilled = q;
       let bestBits = roughBits(q);
-      let blend: { d: Int32Array; filled: Int32Array } | null = null;
+      let blend: Int32Array | null = null;
       // Without missing cells, the plain predictors' bits come from one pass over q, and only the
       // winner's differences are formed; with them, each predictor fills the missing cells its own way.
       const plain = t.classes.special > 0 ? null : predictorBits(q, m, n, MAX_INT);
@@ -304,10 +312,9 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
         if (!d) continue;
         const bits = roughBits(d);
         if (!(bits < bestBits)) continue;
-        if (kind === Predictor.Blend) blend = { d, filled: qp };
+        if (kind === Predictor.Blend) blend = d;
         else {
           best = d;
-          bestFilled = qp;
           bestBits = bits;
           predictor = kind;
         }
@@ -318,27 +325,24 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
         // bit lengths are only an estimate: both are coded, and the blend must save 1%.
         const mask = t.classes.special > 0 ? codes : null;
         const other = encodeInts(best, m, n, mask);
-        const mine = encodeInts(blend.d, m, n, mask);
+        const mine = encodeInts(blend, m, n, mask);
         if (mine.length < BLEND_MARGIN * other.length) {
-          best = blend.d;
-          bestFilled = blend.filled;
+          best = blend;
           predictor = Predictor.Blend;
           coded = mine;
         } else coded = other;
       }
-      added = bestFilled;
       raw = q;
       rawBits = bestBits;
       q = best;
     }
   }
-  const out = t.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  // The residual added and rounded to the dtype, as the decoder does it.
-  reconstruct(base, added, step, out);
-  const exceptions: number[] = [];
-  for (let c = 0; c < cells; c++) {
-    if (codes[c] !== Cell.Valid) continue;
-    if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
+  if (!checked) {
+    // No residual (e <= 0, or a step that is not finite): the low-rank part alone.
+    for (let c = 0; c < cells; c++) {
+      if (codes[c] !== Cell.Valid) continue;
+      if (!(Math.abs(t.orig[c] - (f32 ? Math.fround(base[c]) : base[c])) <= e)) exceptions.push(c);
+    }
   }
   return { center, step, q, predictor, exceptions, coded, raw, bits: rawBits };
 }
