@@ -113,3 +113,9 @@ export function report(e: unknown, debug: boolean, writeErr: (s: string) => void
   writeErr(`rankfield: error: ${oneLine(e)}\n`);
   if (debug && e instanceof Error && e.stack) writeErr(`${e.stack}\n`);
 }
+
+/** True when `--debug` appears among the arguments (before a `--`). */
+export function wantsDebug(argv: readonly string[]): boolean {
+  const end = argv.indexOf('--');
+  return (end < 0 ? argv : argv.slice(0, end)).includes('--debug');
+}

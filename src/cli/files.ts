@@ -12,11 +12,10 @@
  * by the next run that writes to the same folder from the same machine.
  */
 import { createHash, randomBytes } from 'node:crypto';
-import { constants as fsConstants, rmSync, unlinkSync, type Stats } from 'node:fs';
+import { constants as fsConstants, type Stats } from 'node:fs';
 import { link, lstat, open as openFile, opendir, readlink, rename, stat, unlink } from 'node:fs/promises';
 import { hostname } from 'node:os';
 import { basename, dirname, join, resolve } from 'node:path';
-import { parentPort, workerData } from 'node:worker_threads';
 import { HttpSource } from '../io/http-source.js';
 import { open, type Archive, type ByteSource, type Sink } from '../index.js';
 import { FileSink } from '../io/file-sink.js';
@@ -24,44 +23,10 @@ import { FileSource } from '../io/file-source.js';
 import { fileKind, openRegular } from '../io/regular-file.js';
 import { FileError, UsageError, fileError, isSystemError } from './errors.js';
 import { httpOptions } from './http.js';
+import { trackTempFile } from './temp-track.js';
 
-/** Temporary files being written, and temporary folders in use; removed on a signal (see {@link removeTempFilesSync}). */
-const pending = new Set<string>();
-const pendingDirs = new Set<string>();
+export { removeTempFilesSync, trackTempDir, trackTempFile } from './temp-track.js';
 
-/** Mark a temporary folder for removal should the process be interrupted (`false`: it is removed already). */
-export function trackTempDir(dir: string, active: boolean): void {
-  if (active) pendingDirs.add(dir);
-  else pendingDirs.delete(dir);
-  // In the command's worker (see worker.ts), the main thread handles signals: tell it too.
-  if (inCommandWorker()) parentPort?.postMessage({ dir, active });
-}
-
-/** Mark a temporary file for removal should the process be interrupted (`false`: renamed or removed already). */
-export function trackTempFile(path: string, active: boolean): void {
-  if (active) pending.add(path);
-  else pending.delete(path);
-  if (inCommandWorker()) parentPort?.postMessage({ tmp: path, active });
-}
-
-/** True inside the worker thread that bin/rankfield runs long commands in. */
-function inCommandWorker(): boolean {
-  return (workerData as { rankfieldWorker?: boolean } | null)?.rankfieldWorker === true;
-}
-
-/** Remove every temporary file still being written, and every tracked temporary folder (for signal handlers, and after a worker died). */
-export function removeTempFilesSync(): void {
-  for (const p of pending) {
-    try {
-      unlinkSync(p);
-    } catch {
-      // Already gone, or not removable: nothing more can be done while exiting.
-    }
-  }
-  pending.clear();
-  for (const d of pendingDirs) rmSync(d, { recursive: true, force: true });
-  pendingDirs.clear();
-}
 
 /** What temporary file names carry after `.NAME.`: `rankfield-tmp-HOST-PID-RANDOM`. */
 const TEMP_MARK = 'rankfield-tmp';

@@ -14,7 +14,8 @@ import { gramSingularValues } from '../linalg/spectrum.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
 import { payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
-import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, rankZeroForMse, residualForMse } from './tile-encode.js';
+import { encodeL2, encodePointwise, exactPayload, pointwiseFactors } from './tile-encode.js';
+import { rankZeroForMse, residualForMse } from './rdo.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
@@ -192,9 +193,14 @@ export function cheapestPlan(plans: L2PlanData[], sample: number[], tiles: Prepa
 export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): { plan: L2PlanData; bytes: number } {
   let best = plans[plans.length - 1];
   let bestBytes = Infinity;
-  for (const p of plans) {
+  for (const [at, p] of plans.entries()) {
     let bytes = 0;
-    sample.forEach((index, k) => (bytes += encodeWith(p, tiles[k], index).length));
+    for (let k = 0; k < sample.length; k++) {
+      // The last plan stops once it cannot be cheapest (ties go to the earlier plan): no plan after it
+      // would find the tiles' singular vectors left otherwise than now.
+      if (at === plans.length - 1 && bytes >= bestBytes) break;
+      bytes += encodeWith(p, tiles[k], sample[k]).length;
+    }
     if (bytes < bestBytes) {
       bestBytes = bytes;
       best = p;

@@ -163,7 +163,7 @@ function blendWeights(): Int32Array {
 }
 
 /** The prediction of an interior cell from a (left), b (up), c (up-left). */
-function interior(kind: number, a: number, b: number, c: number): number {
+export function interior(kind: number, a: number, b: number, c: number): number {
   switch (kind) {
     case Predictor.Lorenzo:
       return a + b - c;
@@ -338,7 +338,12 @@ export function reconstruct(acc: Float64Array, q: Int32Array | null, step: numbe
   }
   // The residual added and the sum rounded in one pass: each sum acc[c] + q[c] x step is formed in binary64, then stored (rounded) in out;
   // acc is left as it was.
-  for (let c = 0; c < q.length; c++) out[c] = acc[c] + q[c] * step;
+  for (let c = 0; c < q.length; c++) out[c] = withResidual(acc[c], q[c], step);
+}
+
+/** One cell of {@link reconstruct} before rounding to the dtype: the low-rank part plus its code times the step (the encoder checks a cell with it as it chooses its code). */
+export function withResidual(acc: number, code: number, step: number): number {
+  return acc + code * step;
 }
 
 /** Round binary64 values to the output dtype (binary32: round-to-nearest-even). */

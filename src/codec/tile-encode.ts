@@ -8,7 +8,7 @@ import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
-import { lowRank, predict, predictorBits, predictedFill, Predictor, reconstruct, walkPredictor } from './reconstruct.js';
+import { lowRank, predict, predictorBits, predictedFill, Predictor, withResidual } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -266,29 +266,37 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   const codes = t.classes.codes;
   let q: Int32Array | null = null;
   let predictor: number = Predictor.None;
-  let added: Int32Array | null = null;
   let coded: Uint8Array | undefined;
   let raw: Int32Array | undefined;
   let rawBits: number | undefined;
-  if (e > 0 && Number.isFinite(step)) {
+  const exceptions: number[] = [];
+  // The reconstruction of a valid cell is the decoder's withResidual() of its low-rank part and its own
+  // code, rounded to the dtype as reconstruct() stores it (the predictor changes only the coded
+  // differences, and missing cells are not checked): so each cell is checked as its code is chosen.
+  const f32 = t.dtype === 'f32';
+  const checked = e > 0 && Number.isFinite(step);
+  if (checked) {
     q = new Int32Array(cells);
     let any = false;
     for (let c = 0; c < cells; c++) {
       if (codes[c] !== Cell.Valid) continue;
-      const v = Math.round((t.orig[c] - base[c]) / step);
-      if (v !== 0 && Math.abs(v) <= MAX_INT) {
+      const o = t.orig[c];
+      const v = Math.round((o - base[c]) / step);
+      const kept = v !== 0 && Math.abs(v) <= MAX_INT;
+      if (kept) {
         q[c] = v;
         any = true;
       }
+      const sum = withResidual(base[c], kept ? v : 0, step);
+      if (!(Math.abs(o - (f32 ? Math.fround(sum) : sum)) <= e)) exceptions.push(c);
     }
     if (!any) q = null;
     else {
       // The predictor whose residual looks cheapest. Missing cells take the value the
       // predictor expects, so they cost nothing (the decoder overwrites them anyway).
       let best = q;
-      let bestFilled = q;
       let bestBits = roughBits(q);
-      let blend: { d: Int32Array; filled: Int32Array } | null = null;
+      let blend: Int32Array | null = null;
       // Without missing cells, the plain predictors' bits come from one pass over q, and only the
       // winner's differences are formed; with them, each predictor fills the missing cells its own way.
       const plain = t.classes.special > 0 ? null : predictorBits(q, m, n, MAX_INT);
@@ -306,10 +314,9 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
         if (!d) continue;
         const bits = roughBits(d);
         if (!(bits < bestBits)) continue;
-        if (kind === Predictor.Blend) blend = { d, filled: qp };
+        if (kind === Predictor.Blend) blend = d;
         else {
           best = d;
-          bestFilled = qp;
           bestBits = bits;
           predictor = kind;
         }
@@ -320,27 +327,24 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
         // bit lengths are only an estimate: both are coded, and the blend must save 1%.
         const mask = t.classes.special > 0 ? codes : null;
         const other = encodeInts(best, m, n, mask);
-        const mine = encodeInts(blend.d, m, n, mask);
+        const mine = encodeInts(blend, m, n, mask);
         if (mine.length < BLEND_MARGIN * other.length) {
-          best = blend.d;
-          bestFilled = blend.filled;
+          best = blend;
           predictor = Predictor.Blend;
           coded = mine;
         } else coded = other;
       }
-      added = bestFilled;
       raw = q;
       rawBits = bestBits;
       q = best;
     }
   }
-  const out = t.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  // The residual added and rounded to the dtype, as the decoder does it.
-  reconstruct(base, added, step, out);
-  const exceptions: number[] = [];
-  for (let c = 0; c < cells; c++) {
-    if (codes[c] !== Cell.Valid) continue;
-    if (!(Math.abs(t.orig[c] - out[c]) <= e)) exceptions.push(c);
+  if (!checked) {
+    // No residual (e <= 0, or a step that is not finite): the low-rank part alone.
+    for (let c = 0; c < cells; c++) {
+      if (codes[c] !== Cell.Valid) continue;
+      if (!(Math.abs(t.orig[c] - (f32 ? Math.fround(base[c]) : base[c])) <= e)) exceptions.push(c);
+    }
   }
   return { center, step, q, predictor, exceptions, coded, raw, bits: rawBits };
 }
@@ -368,103 +372,6 @@ function blendVariant(t: PreparedTile, f: Factors | null, corr: Correction): Uin
   const mine = encodeInts(d, m, n, mask);
   if (!(mine.length < BLEND_MARGIN * other.length)) return null;
   return lowRankPayload(t, f, { ...corr, q: d, predictor: Predictor.Blend, coded: mine });
-}
-
-/** Step multipliers and rate weights (in units of step^2) the rate-distortion search tries. */
-const RDO_STEPS = [0.6, 0.7, 0.85, 1];
-const RDO_WEIGHTS = [0.15, 0.3, 0.45, 0.6];
-
-/**
- * Of the steps and weights the rate-distortion search tries, how many (those
- * whose codes have the fewest rough bits) are coded for real: coding every
- * one cost most of an L2 pack's time (common practice, no source, for the
- * count).
- */
-const RDO_CODED = 3;
-
-/** Rough bits of a prediction difference, for the rate-distortion search. */
-function diffBits(d: number): number {
-  return d === 0 ? 1 : 3 + 2 * Math.log2(d < 0 ? -d : d);
-}
-
-/**
- * A payload for a mean squared error allotment (L2 bounds): the factors `f`
- * (none: rank 0) and a residual whose codes are chosen for rate as well as
- * distortion: in raster order each code is the nearest one, or the next
- * one towards its prediction when that lowers (error / step)^2 + w x bits
- * of the difference (greedy rate-distortion optimised quantization; the
- * usual Lagrangian trade, e.g. Sullivan and Wiegand, "Rate-distortion
- * optimization for video compression", IEEE Signal Processing Magazine
- * 15(6), 1998). Finer steps with such codes meet the same error in fewer
- * bytes than uniform rounding at low rates. Steps and weights are tried
- * with the predictor plain rounding picks, then Lorenzo, the median and the
- * blend at the best of them. Returns the smallest payload whose estimated
- * squared error stays within 98% of `mse` per valid cell, or null.
- */
-export function residualForMse(t: PreparedTile, f: Factors | null, mse: number): Uint8Array | null {
-  if (!t.finite || t.valid === 0 || !(mse > 0) || !Number.isFinite(mse)) return null;
-  const { m, n } = t;
-  const codes = t.classes.codes;
-  const center = t.center;
-  // What the residual corrects: the decoder's own low-rank part and centre.
-  const base = new Float64Array(m * n);
-  if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
-  else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
-  const unit = Math.sqrt(12 * mse);
-  const plainKind = correct(t, f, unit / 2, unit).predictor;
-  let best: Uint8Array | null = null;
-  let bestAt: [number, number] = [1, 0];
-  /** The codes of predictor `kind` at step a x unit and weight w (in d), with their rough bits; null if they miss the allotment or leave the code range. */
-  const walk = (kind: number, a: number, w: number, d: Int32Array): { step: number; bits: number } | null => {
-    const step = binary32Below(a * unit);
-    const q = new Int32Array(m * n);
-    d.fill(0);
-    let se = 0;
-    let bits = 0;
-    const ok = walkPredictor(q, m, n, kind, (c, p) => {
-      if (codes[c] !== Cell.Valid) return Math.abs(p) <= MAX_INT ? p : Number.NaN;
-      const x = (t.orig[c] - base[c]) / step;
-      let v = Math.round(x);
-      if (v !== p) {
-        const alt = v + (p > v ? 1 : -1);
-        if ((x - alt) * (x - alt) + w * diffBits(alt - p) < (x - v) * (x - v) + w * diffBits(v - p)) v = alt;
-      }
-      if (Math.abs(v) > MAX_INT || Math.abs(v - p) > MAX_INT) return Number.NaN;
-      d[c] = v - p;
-      bits += diffBits(v - p);
-      se += (x - v) * (x - v) * step * step;
-      return v;
-    });
-    return ok && se <= 0.98 * mse * t.valid ? { step, bits } : null;
-  };
-  const d = new Int32Array(m * n);
-  const one = (kind: number, a: number, w: number): void => {
-    const walked = walk(kind, a, w, d);
-    if (walked === null) return;
-    const payload = lowRankPayload(t, f, { center, step: walked.step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
-    if (best === null || payload.length < best.length) {
-      best = payload;
-      bestAt = [a, w];
-    }
-  };
-  // The steps and weights with the predictor plain rounding picks, ranked by the rough bits of their
-  // codes; the RDO_CODED cheapest are coded for real. Then the other predictors at the best of them.
-  const ranked: { a: number; w: number; bits: number }[] = [];
-  for (const a of RDO_STEPS) {
-    for (const w of RDO_WEIGHTS) {
-      const walked = walk(plainKind, a, w, d);
-      if (walked !== null) ranked.push({ a, w, bits: walked.bits });
-    }
-  }
-  ranked.sort((x, y) => x.bits - y.bits);
-  for (const { a, w } of ranked.slice(0, RDO_CODED)) one(plainKind, a, w);
-  for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) if (kind !== plainKind) one(kind, ...bestAt);
-  return best;
-}
-
-/** {@link residualForMse} at rank 0. */
-export function rankZeroForMse(t: PreparedTile, mse: number): Uint8Array | null {
-  return residualForMse(t, null, mse);
 }
 
 /**

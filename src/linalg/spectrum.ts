@@ -53,32 +53,77 @@ export function gramSingularValues(a: Float64Array, m: number, n: number): Float
   return out;
 }
 
-/** The k x k Gram matrix of `a` (k = min(m, n)): a^T a for a tall matrix, a a^T for a wide one, row-major. */
+/** Side of the square blocks of the Gram matrix accumulated at a time (a 64 x 64 block of doubles, 32 KiB, stays in the L1/L2 cache). */
+const GRAM_BLOCK = 64;
+
+/**
+ * The k x k Gram matrix of `a` (k = min(m, n)): a^T a for a tall matrix, a a^T
+ * for a wide one, row-major. Every entry is its sum of products in
+ * increasing order of the summed index (the blocking and the rows or
+ * pairs taken several at a time only reorder which entries are worked on, never the
+ * additions within one), so the result does not depend on the blocking.
+ */
 function gram(a: Float64Array, m: number, n: number): Float64Array {
   if (m >= n) {
-    // a^T a accumulated row by row of a: g[p][q] += a[i][p] a[i][q] for q >= p.
+    // a^T a: g[p][q] = sum over rows i of a[i][p] a[i][q], for q >= p, a block of g at a time over every
+    // row of a, four rows per pass (((g + x0 y0) + x1 y1) + ...: the additions of one row after the other).
     const g = new Float64Array(n * n);
-    for (let i = 0; i < m; i++) {
-      const o = i * n;
-      for (let p = 0; p < n; p++) {
-        const x = a[o + p];
-        if (x === 0) continue;
-        const gp = p * n;
-        for (let q = p; q < n; q++) g[gp + q] += x * a[o + q];
+    for (let p0 = 0; p0 < n; p0 += GRAM_BLOCK) {
+      const p1 = Math.min(n, p0 + GRAM_BLOCK);
+      for (let q0 = p0; q0 < n; q0 += GRAM_BLOCK) {
+        const q1 = Math.min(n, q0 + GRAM_BLOCK);
+        let i = 0;
+        for (; i + 3 < m; i += 4) {
+          const o = i * n;
+          const o1 = o + n;
+          const o2 = o1 + n;
+          const o3 = o2 + n;
+          for (let p = p0; p < p1; p++) {
+            const x0 = a[o + p];
+            const x1 = a[o1 + p];
+            const x2 = a[o2 + p];
+            const x3 = a[o3 + p];
+            const gp = p * n;
+            for (let q = q0 > p ? q0 : p; q < q1; q++) g[gp + q] = g[gp + q] + x0 * a[o + q] + x1 * a[o1 + q] + x2 * a[o2 + q] + x3 * a[o3 + q];
+          }
+        }
+        for (; i < m; i++) {
+          const o = i * n;
+          for (let p = p0; p < p1; p++) {
+            const x = a[o + p];
+            const gp = p * n;
+            for (let q = q0 > p ? q0 : p; q < q1; q++) g[gp + q] += x * a[o + q];
+          }
+        }
       }
     }
     for (let p = 0; p < n; p++) for (let q = 0; q < p; q++) g[p * n + q] = g[q * n + p];
     return g;
   }
-  // a a^T: dot products of the rows.
-  const s = a;
+  // a a^T: dot products of the rows, two at a time (each its own sum, in column order).
   const g = new Float64Array(m * m);
   for (let p = 0; p < m; p++) {
     const op = p * n;
-    for (let q = p; q < m; q++) {
+    let q = p;
+    for (; q + 1 < m; q += 2) {
+      const oq = q * n;
+      const or = oq + n;
+      let acc = 0;
+      let acc1 = 0;
+      for (let j = 0; j < n; j++) {
+        const x = a[op + j];
+        acc += x * a[oq + j];
+        acc1 += x * a[or + j];
+      }
+      g[p * m + q] = acc;
+      g[q * m + p] = acc;
+      g[p * m + q + 1] = acc1;
+      g[(q + 1) * m + p] = acc1;
+    }
+    if (q < m) {
       const oq = q * n;
       let acc = 0;
-      for (let j = 0; j < n; j++) acc += s[op + j] * s[oq + j];
+      for (let j = 0; j < n; j++) acc += a[op + j] * a[oq + j];
       g[p * m + q] = acc;
       g[q * m + p] = acc;
     }
@@ -87,50 +132,169 @@ function gram(a: Float64Array, m: number, n: number): Float64Array {
 }
 
 /**
+ * The Householder vector of step c of {@link tridiagonalize} from column c of
+ * the trailing block, x = col[c+1..k-1] (col[i] the entry of row i): v = x -
+ * alpha e1 into v[c+1..], with alpha = -sign(x0) ||x||; returns alpha and
+ * beta = 2 / (v^T v) = 1 / (norm2 - alpha x0), or null when x = 0.
+ */
+function reflector(col: (i: number) => number, c: number, k: number, v: Float64Array): { alpha: number; beta: number } | null {
+  let norm2 = 0;
+  for (let i = c + 1; i < k; i++) {
+    const x = col(i);
+    norm2 += x * x;
+  }
+  if (norm2 === 0) return null;
+  const x0 = col(c + 1);
+  const alpha = x0 >= 0 ? -Math.sqrt(norm2) : Math.sqrt(norm2);
+  for (let i = c + 1; i < k; i++) v[i] = col(i);
+  v[c + 1] = x0 - alpha;
+  return { alpha, beta: 1 / (norm2 - alpha * x0) };
+}
+
+/**
  * Householder reduction of the symmetric k x k row-major `g` (overwritten)
  * to tridiagonal form: diagonal into `d`, subdiagonal into `sub[0..k-2]`
- * (sub[i] couples rows i and i + 1; sub[k-1] = 0).
+ * (sub[i] couples rows i and i + 1; sub[k-1] = 0). Step c reflects column c
+ * below the diagonal onto a multiple of e1, with p = beta B v over the
+ * trailing block B = g[c+1.., c+1..], w = p - (beta p^T v / 2) v, and B -=
+ * v w^T + w v^T (Golub and Van Loan, algorithm 8.3.1).
+ *
+ * Only the lower triangle is read and updated (B stays exactly symmetric:
+ * entry (i, j) and (j, i) are updated by the same two products added in
+ * either order, and IEEE addition and multiplication are commutative), and
+ * the product B v of step c + 1 is formed in the same pass as step c's
+ * update, row by row as each row is updated (its reflector comes from
+ * column c + 1, updated first): a quarter of the memory traffic of two
+ * passes over the whole block. Every sum of B v still runs in increasing
+ * column order, as in the plain algorithm, so the result is the same bit
+ * for bit (see {@link lowerProduct}).
  */
 function tridiagonalize(g: Float64Array, k: number, d: Float64Array, sub: Float64Array): void {
-  const v = new Float64Array(k);
+  let v = new Float64Array(k);
+  let vNext = new Float64Array(k);
   const w = new Float64Array(k);
+  // acc[i]: row i of B v, when `ready` (formed by the previous step's pass).
+  const acc = new Float64Array(k);
+  const col = new Float64Array(k);
+  let ready = false;
+  let step = k >= 3 ? reflector((i) => g[i * k], 0, k, v) : null;
   for (let c = 0; c < k - 2; c++) {
-    // x = g[c+1.., c]; reflect it onto -sign(x0) ||x|| e1.
-    let norm2 = 0;
-    for (let i = c + 1; i < k; i++) norm2 += g[i * k + c] * g[i * k + c];
-    const x0 = g[(c + 1) * k + c];
-    if (norm2 === 0) {
+    if (step === null) {
       sub[c] = 0;
+      ready = false;
+      if (c + 1 < k - 2) step = reflector((i) => g[i * k + c + 1], c + 1, k, v);
       continue;
     }
-    const alpha = x0 >= 0 ? -Math.sqrt(norm2) : Math.sqrt(norm2);
-    // v = x - alpha e1, beta = 2 / (v^T v) = 1 / (norm2 - alpha x0).
-    for (let i = c + 1; i < k; i++) v[i] = g[i * k + c];
-    v[c + 1] = x0 - alpha;
-    const beta = 1 / (norm2 - alpha * x0);
-    // p = beta B v over the trailing block B = g[c+1.., c+1..]; w = p - (beta p^T v / 2) v.
+    const { alpha, beta } = step;
+    if (!ready) lowerProduct(g, k, c + 1, v, null, v, acc);
     let pv = 0;
     for (let i = c + 1; i < k; i++) {
-      const o = i * k;
-      let acc = 0;
-      for (let j = c + 1; j < k; j++) acc += g[o + j] * v[j];
-      w[i] = beta * acc;
+      w[i] = beta * acc[i];
       pv += w[i] * v[i];
     }
     const half = (beta * pv) / 2;
     for (let i = c + 1; i < k; i++) w[i] -= half * v[i];
-    // B -= v w^T + w v^T.
-    for (let i = c + 1; i < k; i++) {
-      const o = i * k;
-      const vi = v[i];
-      const wi = w[i];
-      for (let j = c + 1; j < k; j++) g[o + j] -= vi * w[j] + wi * v[j];
+    // The next step's reflector, from column c + 1 as this step's update leaves it.
+    let next: { alpha: number; beta: number } | null = null;
+    const c1 = c + 1;
+    if (c1 < k - 2) {
+      const vc1 = v[c1];
+      const wc1 = w[c1];
+      for (let i = c1 + 1; i < k; i++) col[i] = g[i * k + c1] - (v[i] * wc1 + w[i] * vc1);
+      next = reflector((i) => col[i], c1, k, vNext);
     }
+    // Row and column c + 1 have no part in the next step's product: updated on their own.
+    for (let i = c1; i < k; i++) g[i * k + c1] -= v[i] * w[c1] + w[i] * v[c1];
+    lowerProduct(g, k, c + 2, v, w, next === null ? null : vNext, acc);
     sub[c] = alpha;
+    step = next;
+    ready = next !== null;
+    const t = v;
+    v = vNext;
+    vNext = t;
   }
   for (let i = 0; i < k; i++) d[i] = g[i * k + i];
   if (k >= 2) sub[k - 2] = g[(k - 1) * k + k - 2];
   sub[k - 1] = 0;
+}
+
+/**
+ * Over the lower triangle of the block of rows and columns from..k-1 of the
+ * symmetric `g`: when `w` is given, first the update g[i][j] -= v[i] w[j] +
+ * w[i] v[j]; then, when `x` is given, acc = B x over the block. Row i gives the terms j <= i
+ * of its own sum and, through g[i][j] = g[j][i], term i of the sums of the
+ * rows j < i, which rows from..i-1 have already started: every sum runs in
+ * increasing order of j, as a product over whole rows does.
+ */
+function lowerProduct(g: Float64Array, k: number, from: number, v: Float64Array, w: Float64Array | null, x: Float64Array | null, acc: Float64Array): void {
+  let i = from;
+  // Update and product, two rows at a time (two sums side by side; each term of acc[j] still added in row order).
+  for (; w !== null && x !== null && i + 1 < k; i += 2) {
+    const o = i * k;
+    const o1 = o + k;
+    const vi = v[i];
+    const wi = w[i];
+    const vi1 = v[i + 1];
+    const wi1 = w[i + 1];
+    const xi = x[i];
+    const xi1 = x[i + 1];
+    let s = 0;
+    let s1 = 0;
+    for (let j = from; j < i; j++) {
+      const wj = w[j];
+      const vj = v[j];
+      const xj = x[j];
+      const y = g[o + j] - (vi * wj + wi * vj);
+      const z = g[o1 + j] - (vi1 * wj + wi1 * vj);
+      g[o + j] = y;
+      g[o1 + j] = z;
+      s += y * xj;
+      s1 += z * xj;
+      acc[j] = acc[j] + y * xi + z * xi1;
+    }
+    const y = g[o + i] - (vi * w[i] + wi * v[i]);
+    g[o + i] = y;
+    acc[i] = s + y * xi;
+    const z = g[o1 + i] - (vi1 * w[i] + wi1 * v[i]);
+    g[o1 + i] = z;
+    s1 += z * x[i];
+    acc[i] += z * xi1;
+    const zz = g[o1 + i + 1] - (vi1 * w[i + 1] + wi1 * v[i + 1]);
+    g[o1 + i + 1] = zz;
+    acc[i + 1] = s1 + zz * xi1;
+  }
+  for (; i < k; i++) {
+    const o = i * k;
+    if (w !== null) {
+      const vi = v[i];
+      const wi = w[i];
+      if (x === null) {
+        for (let j = from; j <= i; j++) g[o + j] -= vi * w[j] + wi * v[j];
+        continue;
+      }
+      const xi = x[i];
+      let s = 0;
+      for (let j = from; j < i; j++) {
+        const y = g[o + j] - (vi * w[j] + wi * v[j]);
+        g[o + j] = y;
+        s += y * x[j];
+        acc[j] += y * xi;
+      }
+      const y = g[o + i] - (vi * w[i] + wi * v[i]);
+      g[o + i] = y;
+      acc[i] = s + y * xi;
+      continue;
+    }
+    if (x === null) continue;
+    const xi = x[i];
+    let s = 0;
+    for (let j = from; j < i; j++) {
+      const y = g[o + j];
+      s += y * x[j];
+      acc[j] += y * xi;
+    }
+    acc[i] = s + g[o + i] * xi;
+  }
 }
 
 /**

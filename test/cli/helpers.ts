@@ -71,9 +71,9 @@ export function rf(args: string[], cwd: string, env: NodeJS.ProcessEnv = {}): Ru
  * stdin and stdout pipes, environment variables, several runs at once, the
  * bin script itself, and the once-per-process sweep of stale temporary files
  * (src/cli/files.ts). Runs are one at a time: the working folder is changed
- * for the run and restored after (vitest runs each test file in its own
- * forked process here, where process.chdir is allowed; tests within a file
- * run one after another).
+ * for the run and restored after (vitest runs the test files in forked
+ * processes here, where process.chdir is allowed, one file at a time per
+ * process; tests within a file run one after another).
  */
 export async function rfIn(args: string[], cwd: string): Promise<RunResult> {
   ensureBuilt();

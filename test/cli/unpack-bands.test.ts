@@ -9,6 +9,7 @@
  */
 import { closeSync, existsSync, mkdirSync, openSync, readdirSync, readFileSync, readSync, statSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatCsv } from '../../src/cli/unpack.js';
 import { ArchiveBuilder, open, pack } from '../../src/index.js';
@@ -18,16 +19,18 @@ import { formatNpy } from '../../src/io/npy.js';
 import { CLI_TIMEOUT, ensureBuilt, rfIn, tempDir } from './helpers.js';
 
 const { dir, remove } = tempDir();
-const ROWS = 300;
-const COLS = 260;
-const values = Float32Array.from({ length: ROWS * COLS }, (_, k) => Math.sin(k / 97) * 10 + Math.cos((k % COLS) / 7));
+// A real gridded field: vega-datasets 3.2.1's annual precipitation grid, 168 rows x 360 columns.
+const grid = JSON.parse(readFileSync(fileURLToPath(new URL('../../node_modules/vega-datasets/data/annual-precip.json', import.meta.url)), 'utf8')) as { width: number; height: number; values: number[] };
+const ROWS = grid.height;
+const COLS = grid.width;
+const values = Float32Array.from(grid.values);
 
 beforeAll(async () => {
   ensureBuilt();
-  // 32 x 32 tiles: 10 tile rows, so two threads read at least four bands.
+  // 32 x 32 tiles: 6 tile rows, so two threads read at least four bands.
   writeFileSync(join(dir, 'f.rfz'), pack(values, [ROWS, COLS], { bound: 'abs:0.01', tile: 32 }));
-  // Three slices of 100 x 260, packed from an N-D .npy.
-  writeFileSync(join(dir, 's.npy'), formatNpy({ data: values, shape: [3, 100, COLS], dtype: 'f32' }));
+  // Three slices of 56 x 360, packed from an N-D .npy.
+  writeFileSync(join(dir, 's.npy'), formatNpy({ data: values, shape: [3, ROWS / 3, COLS], dtype: 'f32' }));
 }, CLI_TIMEOUT);
 afterAll(remove);
 
@@ -49,7 +52,7 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
     const whole = await a.read();
     const text = readFileSync(join(dir, 's.csv'), 'utf8');
     expect(text).toBe(new TextDecoder().decode(formatCsv(whole.values, whole.shape, ['slice', 'row', 'col'])));
-    expect(text.split('\n').at(-2)).toBe(`2,99,259,${String(whole.values[whole.values.length - 1])}`);
+    expect(text.split('\n').at(-2)).toBe(`2,${ROWS / 3 - 1},${COLS - 1},${String(whole.values[whole.values.length - 1])}`);
   });
 
   it('writes one .npy per field, and leaves none when a later field fails', async () => {
@@ -68,13 +71,14 @@ describe('unpack writes band by band', { timeout: CLI_TIMEOUT }, () => {
     // A flipped byte in the last tile of field b: its checksum fails after a.npy was written.
     const bytes = readFileSync(good);
     const a = await open(bytes);
-    const e = await a.tileEntry('b', 80);
+    const last = Math.ceil(ROWS / 32) * Math.ceil(COLS / 32) - 1;
+    const e = await a.tileEntry('b', last);
     bytes[e.offset + (e.length >> 1)] ^= 0x40;
     writeFileSync(join(dir, 'bad.rfz'), bytes);
     const f = await rfIn(['unpack', 'bad.rfz', '-o', 'out-bad/', '--threads', '2'], dir);
     expect(f.code).toBe(2);
     expect(f.stderr.trim().split('\n')).toHaveLength(1);
-    expect(f.stderr).toMatch(/^rankfield: error: .*tile 80/);
+    expect(f.stderr).toMatch(new RegExp(`^rankfield: error: .*tile ${last}\\b`));
     expect(readdirSync(join(dir, 'out-bad'))).toEqual([]);
   });
 

@@ -12,7 +12,8 @@ import { describe, expect, it } from 'vitest';
 import { payloadHead } from '../../src/codec/payload.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
-import { pointwiseFactors, rankZeroForMse, residualForMse } from '../../src/codec/tile-encode.js';
+import { pointwiseFactors } from '../../src/codec/tile-encode.js';
+import { rankZeroForMse, residualForMse } from '../../src/codec/rdo.js';
 
 function precipTile(m: number, n: number): Float32Array {
   const path = fileURLToPath(new URL('../../node_modules/vega-datasets/data/annual-precip.json', import.meta.url));

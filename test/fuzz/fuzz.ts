@@ -7,7 +7,7 @@ import { buildSeeds, type Seed } from './corpus.js';
 import { caseMs, LOOSE_BOUND, runCase, type Outcome } from './harness.js';
 import type { FloatArray } from '../../src/types.js';
 import { parse, type Model } from './model.js';
-import { mutate, type Expectation } from './mutate.js';
+import { mutate, type Expectation, type MutationKind } from './mutate.js';
 import { open } from '../../src/archive.js';
 import { Rng } from './rng.js';
 
@@ -46,22 +46,23 @@ export interface CaseResult extends Outcome {
   expect: Expectation;
   seed: string;
   ops: string[];
+  kinds: MutationKind[];
   bytes: Uint8Array;
 }
 
 /** Make case `i` of run `seed` (no running). */
-export function makeCase(c: Corpus, seed: number, i: number): { rng: Rng; k: number; bytes: Uint8Array; ops: string[]; expect: Expectation } {
+export function makeCase(c: Corpus, seed: number, i: number): { rng: Rng; k: number; bytes: Uint8Array; ops: string[]; kinds: MutationKind[]; expect: Expectation } {
   const rng = new Rng(seed, i);
   const k = rng.int(c.seeds.length);
   const others = c.seeds.filter((_, j) => j !== k).map((s) => s.bytes);
-  const { bytes, ops, expect } = mutate(c.models[k], others, rng);
-  return { rng, k, bytes, ops, expect };
+  const { bytes, ops, kinds, expect } = mutate(c.models[k], others, rng);
+  return { rng, k, bytes, ops, kinds, expect };
 }
 
 export async function runOne(c: Corpus, seed: number, i: number): Promise<CaseResult> {
-  const { rng, k, bytes, ops, expect } = makeCase(c, seed, i);
+  const { rng, k, bytes, ops, kinds, expect } = makeCase(c, seed, i);
   const outcome = await runCase(bytes, rng, 'fuzz-case', { expect, values: c.values[k], loose: c.loose[k] });
-  return { ...outcome, index: i, seed: c.seeds[k].name, ops, bytes, expect };
+  return { ...outcome, index: i, seed: c.seeds[k].name, ops, kinds, bytes, expect };
 }
 
 /** Running totals of a fuzz run. */
@@ -69,6 +70,8 @@ export class Tally {
   cases = 0;
   results = new Map<string, number>();
   expectations = new Map<string, number>();
+  /** Cases each kind of mutation was applied to. */
+  kinds = new Map<string, number>();
   findings: { index: number; seed: string; ops: string[]; finding: string }[] = [];
   slowest: { index: number; ms: number; seed: string; ops: string[] } = { index: -1, ms: 0, seed: '', ops: [] };
   over1s = 0;
@@ -79,6 +82,7 @@ export class Tally {
   add(r: CaseResult): void {
     this.cases++;
     this.expectations.set(r.expect, (this.expectations.get(r.expect) ?? 0) + 1);
+    for (const kind of new Set(r.kinds)) this.kinds.set(kind, (this.kinds.get(kind) ?? 0) + 1);
     this.results.set(`${r.stage} ${r.result}`, (this.results.get(`${r.stage} ${r.result}`) ?? 0) + 1);
     for (const finding of r.findings) this.findings.push({ index: r.index, seed: r.seed, ops: r.ops, finding });
     const ms = caseMs(r);
@@ -97,6 +101,7 @@ export class Tally {
       `slowest case ${this.slowest.index} (${this.slowest.ms.toFixed(1)} ms, seed ${this.slowest.seed}: ${this.slowest.ops.join('; ')})`,
       `mean ${(this.totalMs / Math.max(1, this.cases)).toFixed(2)} ms per case, largest declared decode work ${this.maxWork}, peak heap+buffers ${(this.peakMemory / 2 ** 20).toFixed(0)} MiB`,
       `cases that must read back unchanged ${this.expectations.get('same') ?? 0}, that must be refused ${this.expectations.get('refuse') ?? 0}, whose changed values check() must catch ${this.expectations.get('detect') ?? 0}`,
+      `cases per kind of mutation: ${[...this.kinds.entries()].map(([k, n]) => `${k} ${n}`).join(', ')}`,
       'outcomes (stage result):',
       ...lines,
     ];

@@ -808,9 +808,28 @@ function fileBytes(b: Uint8Array, others: Uint8Array[], rng: Rng): { bytes: Uint
 }
 
 /** One fuzz case: a mutated archive and the list of what was done to it. */
+/** The kinds of mutation {@link mutate} draws from, with their weights (0 to 3 draws a case). */
+export const MUTATION_KINDS = [
+  [14, 'payload bytes'],
+  [18, 'part'],
+  [8, 'fixed part'],
+  [12, 'header value'],
+  [6, 'header consistent'],
+  [10, 'index value'],
+  [6, 'index structure'],
+  [8, 'msgpack'],
+  [4, 'container'],
+  [4, 'semantic'],
+  [1, 'prefix'],
+] as const satisfies readonly (readonly [number, string])[];
+
+export type MutationKind = (typeof MUTATION_KINDS)[number][1];
+
 export interface Mutated {
   bytes: Uint8Array;
   ops: string[];
+  /** The kinds of mutation applied to the case, in order (a kind applied twice is named twice). */
+  kinds: MutationKind[];
   expect: Expectation;
 }
 
@@ -865,6 +884,7 @@ export function combine(ops: string[]): Expectation {
 export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
   const m = cloneModel(seed);
   const ops: string[] = [];
+  const kinds: MutationKind[] = [];
   // Edits of offsets, lengths and CRCs must come after the layout pass that recomputes them.
   const late: (() => string)[] = [];
   const count = rng.weighted([
@@ -881,20 +901,9 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
   };
   const blocks: ('header' | 'index')[] = [];
   for (let k = 0; k < count; k++) {
-    const op = rng.weighted<string>([
-      [14, 'payload bytes'],
-      [18, 'part'],
-      [8, 'fixed part'],
-      [12, 'header value'],
-      [6, 'header consistent'],
-      [10, 'index value'],
-      [6, 'index structure'],
-      [8, 'msgpack'],
-      [4, 'container'],
-      [4, 'semantic'],
-      [1, 'prefix'],
-    ]);
+    const op = rng.weighted<MutationKind>(MUTATION_KINDS);
     const at = pickPayload(m, rng);
+    const before = [ops.length, late.length, blocks.length];
     try {
       if (op === 'payload bytes' && at) {
         const [f, t] = at;
@@ -947,6 +956,8 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
         if (payload) touch(payload);
         ops.push(what);
       }
+      // Applied (or, for the late and MessagePack kinds, scheduled): a payload kind finds no target in a field of no tiles.
+      if (ops.length > before[0] || late.length > before[1] || blocks.length > before[2]) kinds.push(op);
     } catch (e) {
       // A mutation whose target an earlier mutation already destroyed (e.g. an index that is no longer a map).
       ops.push(`${op} skipped (${(e as Error).message})`);
@@ -982,5 +993,5 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
     }
   }
   if (ops.length === 0) ops.push('unchanged');
-  return { bytes, ops, expect: combine(ops) };
+  return { bytes, ops, kinds, expect: combine(ops) };
 }

@@ -34,6 +34,10 @@ describe('gramSingularValues', () => {
       [1, 9, 1, 0],
       [9, 1, 1, 0],
       [96, 80, 4, 1e-9],
+      // Across the Gram matrix's 64-wide blocks, odd and even orders (the row pairs and the last row alone).
+      [150, 131, 131, 0],
+      [131, 150, 20, 1e-6],
+      [140, 130, 130, 0],
     ]) {
       const a = lowRank(rng, m, n, rank, noise);
       const got = gramSingularValues(a, m, n);
@@ -47,6 +51,28 @@ describe('gramSingularValues', () => {
         if (k > 0) expect(got[k]).toBeLessThanOrEqual(got[k - 1]);
         expect(got[k]).toBeGreaterThanOrEqual(0);
       }
+    }
+  });
+
+  it('matches ml-matrix when the Gram matrix is already (block) diagonal, so reflections are skipped', () => {
+    const rng = mulberry32(17);
+    // Orthogonal columns (disjoint supports): a diagonal Gram matrix; then two groups of columns on disjoint
+    // rows: a block-diagonal one, whose reflections vanish part of the way.
+    for (const [m, n, kind] of [
+      [40, 30, 'diagonal'],
+      [90, 70, 'blocks'],
+    ] as const) {
+      const a = new Float64Array(m * n);
+      for (let i = 0; i < m; i++) {
+        for (let j = 0; j < n; j++) {
+          if (kind === 'diagonal' ? i === j : i < m / 2 === j % 4 < 2) a[i * n + j] = rng() - 0.5;
+        }
+      }
+      const got = gramSingularValues(a, m, n);
+      const ref = reference(a, m, n);
+      // The same bound as above (Golub and Van Loan, section 8.1; from memory).
+      const slack = 64 * Math.max(m, n) * Number.EPSILON * ref[0] * ref[0];
+      for (let k = 0; k < got.length; k++) expect(Math.abs(got[k] * got[k] - ref[k] * ref[k]), `${kind}, value ${k}`).toBeLessThanOrEqual(slack);
     }
   });
 

@@ -1,0 +1,184 @@
+/**
+ * Residuals for a mean squared error allotment (L2 bounds): codes chosen
+ * for rate as well as distortion, and the search over steps, rate weights
+ * and predictors that picks the smallest payload.
+ */
+import type { FloatArray } from '../types.js';
+import { Cell } from './mask.js';
+import type { PreparedTile } from './prepare.js';
+import { interior, lowRank, Predictor, walkPredictor } from './reconstruct.js';
+import { MAX_INT } from './section.js';
+import { binary32Below } from './steps.js';
+import { correct, lowRankPayload, type Factors } from './tile-encode.js';
+
+/** Step multipliers and rate weights (in units of step^2) the rate-distortion search tries. */
+const RDO_STEPS = [0.6, 0.7, 0.85, 1];
+const RDO_WEIGHTS = [0.15, 0.3, 0.45, 0.6];
+
+/**
+ * Of the steps and weights the rate-distortion search tries, how many (those
+ * whose codes have the fewest rough bits) are coded for real: coding every
+ * one cost most of an L2 pack's time (common practice, no source, for the
+ * count).
+ */
+const RDO_CODED = 3;
+
+/** Differences whose rough bits are looked up rather than computed (a 32 KiB table). */
+const DIFF_TABLE = 1 << 12;
+let diffTable: Float64Array | null = null;
+
+/** Rough bits of a prediction difference, for the rate-distortion search: 1 for 0, else 3 + 2 log2 |d| (looked up below DIFF_TABLE: the same values). */
+function diffBits(d: number): number {
+  const a = d < 0 ? -d : d;
+  if (a < DIFF_TABLE) {
+    if (diffTable === null) {
+      diffTable = new Float64Array(DIFF_TABLE);
+      diffTable[0] = 1;
+      for (let k = 1; k < DIFF_TABLE; k++) diffTable[k] = 3 + 2 * Math.log2(k);
+    }
+    return diffTable[a];
+  }
+  return 3 + 2 * Math.log2(a);
+}
+
+/**
+ * One walk of the search: the codes of a predictor at one step and rate
+ * weight. settle() chooses a cell's code knowing its prediction p: the
+ * nearest code, or the next one towards p when that lowers (error /
+ * step)^2 + w x bits of the difference; it records the difference in `d`
+ * and sums the squared error and the rough bits.
+ */
+class RdoWalk {
+  se = 0;
+  bits = 0;
+  constructor(
+    private readonly orig: FloatArray,
+    private readonly base: Float64Array,
+    private readonly codes: Uint8Array,
+    private readonly d: Int32Array,
+    readonly step: number,
+    private readonly w: number,
+  ) {}
+
+  settle(c: number, p: number): number {
+    if (this.codes[c] !== Cell.Valid) return Math.abs(p) <= MAX_INT ? p : Number.NaN;
+    const x = (this.orig[c] - this.base[c]) / this.step;
+    let v = Math.round(x);
+    if (v !== p) {
+      const alt = v + (p > v ? 1 : -1);
+      const w = this.w;
+      if ((x - alt) * (x - alt) + w * diffBits(alt - p) < (x - v) * (x - v) + w * diffBits(v - p)) v = alt;
+    }
+    if (Math.abs(v) > MAX_INT || Math.abs(v - p) > MAX_INT) return Number.NaN;
+    this.d[c] = v - p;
+    this.bits += diffBits(v - p);
+    this.se += (x - v) * (x - v) * this.step * this.step;
+    return v;
+  }
+
+  /**
+   * Walk the tile in raster order with predictor `kind` (q: scratch for the
+   * codes); false if a code leaves the code range, or as soon as the squared
+   * error passes `seLimit` or the rough bits pass `bitsLimit` (both only
+   * grow, so such a walk could not end within them). The predictors other
+   * than the blend are walked here with their predictions inline, the same
+   * ones {@link walkPredictor} gives, so that settle() is a direct call.
+   */
+  run(q: Int32Array, m: number, n: number, kind: number, seLimit: number, bitsLimit: number): boolean {
+    if (kind === Predictor.Blend) {
+      return walkPredictor(q, m, n, kind, (c, p) => {
+        const v = this.settle(c, p);
+        return this.se > seLimit || this.bits > bitsLimit ? Number.NaN : v;
+      });
+    }
+    for (let i = 0; i < m; i++) {
+      for (let j = 0; j < n; j++) {
+        const c = i * n + j;
+        const p = kind === Predictor.None ? 0 : i === 0 ? (j === 0 ? 0 : q[c - 1]) : j === 0 ? q[c - n] : interior(kind, q[c - 1], q[c - n], q[c - n - 1]);
+        const v = this.settle(c, p);
+        if (v !== v) return false;
+        q[c] = v;
+      }
+      if (this.se > seLimit || this.bits > bitsLimit) return false;
+    }
+    return true;
+  }
+}
+
+/**
+ * A payload for a mean squared error allotment (L2 bounds): the factors `f`
+ * (none: rank 0) and a residual whose codes are chosen for rate as well as
+ * distortion: in raster order each code is the nearest one, or the next
+ * one towards its prediction when that lowers (error / step)^2 + w x bits
+ * of the difference (greedy rate-distortion optimised quantization; the
+ * usual Lagrangian trade, e.g. Sullivan and Wiegand, "Rate-distortion
+ * optimization for video compression", IEEE Signal Processing Magazine
+ * 15(6), 1998). Finer steps with such codes meet the same error in fewer
+ * bytes than uniform rounding at low rates. Steps and weights are tried
+ * with the predictor plain rounding picks, then Lorenzo, the median and the
+ * blend at the best of them. Returns the smallest payload whose estimated
+ * squared error stays within 98% of `mse` per valid cell, or null.
+ */
+export function residualForMse(t: PreparedTile, f: Factors | null, mse: number): Uint8Array | null {
+  if (!t.finite || t.valid === 0 || !(mse > 0) || !Number.isFinite(mse)) return null;
+  const { m, n } = t;
+  const cells = m * n;
+  const center = t.center;
+  // What the residual corrects: the decoder's own low-rank part and centre.
+  const base = new Float64Array(cells);
+  if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
+  else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
+  const unit = Math.sqrt(12 * mse);
+  const plainKind = correct(t, f, unit / 2, unit).predictor;
+  const q = new Int32Array(cells);
+  /**
+   * The codes of predictor `kind` at step a x unit and weight w (their differences in d), with their
+   * rough bits; null if they miss the allotment, leave the code range or (cut short) have more rough
+   * bits than `bitsLimit`.
+   */
+  const seLimit = 0.98 * mse * t.valid;
+  const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit = Infinity): { step: number; bits: number } | null => {
+    d.fill(0);
+    const run = new RdoWalk(t.orig, base, t.classes.codes, d, binary32Below(a * unit), w);
+    return run.run(q, m, n, kind, seLimit, bitsLimit) && run.se <= seLimit ? { step: run.step, bits: run.bits } : null;
+  };
+  let best: Uint8Array | null = null;
+  let bestAt: [number, number] = [1, 0];
+  const code = (kind: number, a: number, w: number, step: number, d: Int32Array): void => {
+    const payload = lowRankPayload(t, f, { center, step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
+    if (best === null || payload.length < best.length) {
+      best = payload;
+      bestAt = [a, w];
+    }
+  };
+  // The steps and weights with the predictor plain rounding picks, ranked by the rough bits of their
+  // codes (ties in the order tried); the RDO_CODED cheapest are coded for real, from the differences
+  // their walks left (kept as the ranking goes). Then the other predictors at the best of them.
+  const ranked: { a: number; w: number; bits: number; step: number; d: Int32Array }[] = [];
+  let spare: Int32Array = new Int32Array(cells);
+  for (const a of RDO_STEPS) {
+    for (const w of RDO_WEIGHTS) {
+      // A walk whose bits pass the third cheapest's could not rank among them (ties go to the earlier): cut short.
+      const walked = walk(plainKind, a, w, spare, ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity);
+      if (walked === null) continue;
+      let at = ranked.length;
+      while (at > 0 && ranked[at - 1].bits > walked.bits) at--;
+      if (at >= RDO_CODED) continue;
+      ranked.splice(at, 0, { a, w, bits: walked.bits, step: walked.step, d: spare });
+      spare = ranked.length > RDO_CODED ? ranked.pop()!.d : new Int32Array(cells);
+    }
+  }
+  for (const r of ranked) code(plainKind, r.a, r.w, r.step, r.d);
+  for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) {
+    if (kind === plainKind) continue;
+    const [a, w] = bestAt;
+    const walked = walk(kind, a, w, spare);
+    if (walked !== null) code(kind, a, w, walked.step, spare);
+  }
+  return best;
+}
+
+/** {@link residualForMse} at rank 0. */
+export function rankZeroForMse(t: PreparedTile, mse: number): Uint8Array | null {
+  return residualForMse(t, null, mse);
+}
