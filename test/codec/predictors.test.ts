@@ -111,12 +111,15 @@ describe('the blend predictor (6)', () => {
     const a = await open(bytes);
     const ix = (await a.loadIndex()).fields[0];
     const payload = bytes.subarray(ix.offset[0], ix.offset[0] + ix.length[0]);
-    // spec/FORMAT.md 10.6.1 and 10.6.5: method, flags (Residual only: centre and step in binary32), rank 0 (no factor
-    // block), the binary32 centre, then the residual's binary32 step and its predictor byte.
+    // spec/FORMAT.md 10.6.1 and 10.6.5: method, flags (Residual, centre form 2: an integer), rank 0 (no factor
+    // block), the centre's svarint (the lattice's integer centre, 94..195: two bytes), then the residual byte
+    // (predictor in bits 0-2, step form 3 in bits 4-5: an integer step) and the step's varint, 1.
     expect(payload[0]).toBe(1);
-    expect(payload[1]).toBe(0x02);
+    expect(payload[1]).toBe(0x02 | (2 << 5));
     expect(payload[2]).toBe(0);
-    expect(payload[3 + 4 + 4]).toBe(Predictor.Blend);
+    expect(payload[3] >= 0x80 && payload[4] < 0x80).toBe(true);
+    expect(payload[5]).toBe(Predictor.Blend | (3 << 4));
+    expect(payload[6]).toBe(1);
     expect(Array.from((await a.read()).values)).toEqual(Array.from(values));
   });
 });
