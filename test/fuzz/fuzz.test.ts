@@ -46,6 +46,8 @@ describe('fuzzing', () => {
           if (w.rank > 0 && w.flags & PayloadFlag.Residual) seen.add('factors and a residual');
           if (w.residualPredictor !== undefined) seen.add(w.residualPredictor === 0 ? 'residual not predicted' : 'residual predicted');
           for (const [bit, name] of Object.entries(Flag)) if (p[1] & name) seen.add(`flag ${bit}`);
+          seen.add(`centre form ${w.centreForm}`);
+          if (w.residualStepForm !== undefined) seen.add(`step form ${w.residualStepForm}`);
           if (w.mask && w.mask.rawEnd > w.mask.rawStart) seen.add(`raw NaN bits ${h.dtype}`);
           // The class map through the library's decoder: a wrong decoder would fail the seeds' own round trip first.
           const [rows, cols] = tileDims(h, t);
@@ -58,8 +60,10 @@ describe('fuzzing', () => {
     });
     // Cell classes 0..5 of the mask (valid, fill, +Inf, -Inf, NaN, raw NaN): spec/FORMAT.md 10.6.3.
     const want = ['method 0', 'method 1', 'rank > 0 as values', 'rank > 0 as differences', 'several factor groups', 'factors and a residual'];
-    // WideCentre and WideStep: the tiny-f64, tiny-psnr-f64 and huge-f64 seeds' centres and steps lie beyond binary32's normal range.
-    want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FieldStep', 'flag FactorDelta', 'flag WideCentre', 'flag WideStep', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
+    // Centre form 1 and step form 2 (binary64): the tiny-f64, tiny-psnr-f64 and huge-f64 seeds' centres and steps lie beyond
+    // binary32's normal range; centre form 2 and step form 3 (integers): seeds of integer-valued fields (their lattice).
+    want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FactorDelta', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
+    want.push('centre form 0', 'centre form 1', 'centre form 2', 'step form 0', 'step form 1', 'step form 2', 'step form 3');
     want.push('class 0', 'class 1', 'class 2', 'class 3', 'class 4', 'class 5', 'several fields', 'an N-D field', 'f32', 'f64');
     for (const x of want) expect(seen, `no seed has ${x}`).toContain(x);
   });
@@ -145,7 +149,7 @@ describe('fuzzing', () => {
     const k = c.seeds.findIndex((s) => s.name === 'residual-f64');
     const m = cloneModel(c.models[k]);
     const p = m.payloads[0][0];
-    setCentre(p, getCentre(p) + 1e-3); // the centre moved: other values, a valid payload
+    m.payloads[0][0] = setCentre(p, getCentre(p) + 1e-3); // the centre moved: other values, a valid payload
     const caught = await runCase(serialize(m), new Rng(1), 'fuzz-case', { expect: 'detect', values: c.values[k], loose: c.loose[k] });
     expect(caught.findings).toEqual([]);
     expect(caught.result).toBe('check-failed');

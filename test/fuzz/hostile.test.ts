@@ -560,24 +560,36 @@ describe('tile payloads', () => {
     expect(e.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: factor difference flag on a payload of rank 0$`));
   });
 
-  it('refuses a wide-step flag without a residual, and a rank varint longer than its shortest form (spec/FORMAT.md 2, 10.6.1)', async () => {
+  it('refuses the reserved flag bits and centre form 3, and a rank varint longer than its shortest form (spec/FORMAT.md 2, 10.6.1)', async () => {
     const g = withPart('group 0', (w) => !(w.flags & PayloadFlag.Residual));
-    const e = await refusal(editPayload(g.bytes, g.f, g.t, (p) => void (p[1] |= PayloadFlag.WideStep)));
-    expect(e.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: wide residual step flag on a payload without a residual$`));
+    for (const bit of [0x08, 0x80]) {
+      const e = await refusal(editPayload(g.bytes, g.f, g.t, (p) => void (p[1] |= bit)));
+      expect(e.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: unknown payload flags 0x[0-9a-f]+ at (payload|file) offset \\d+ \\(this reader knows 0x77\\)$`));
+    }
+    const form3 = await refusal(editPayload(g.bytes, g.f, g.t, (p) => void (p[1] |= 0x60)));
+    expect(form3.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: centre form 3 \\(flags bits 5-6\\) is not defined$`));
     // Rank r written as two bytes (r | 0x80, 0): the same number, not in its shortest form. The index copy still says r.
     const long = await refusal(editPayload(g.bytes, g.f, g.t, (p, w) => splice(p, 2, w.centreAt, Uint8Array.of(w.rank | 0x80, 0))));
     expect(long.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: rank at (payload|file) offset \\d+ is not in its shortest form$`));
   });
 
-  it('refuses the field step flag without a residual, with the wide step flag, or where the tolerance gives no step; and takes the step from the stored tolerance (spec/FORMAT.md 10.6.1, 10.6.5)', async () => {
-    const g = withPart('group 0', (w) => !(w.flags & PayloadFlag.Residual));
-    const e = await refusal(editPayload(g.bytes, g.f, g.t, (p) => void (p[1] |= PayloadFlag.FieldStep)));
-    expect(e.message).toMatch(new RegExp(`^archive field '${g.field}' tile ${g.t}: field step flag on a payload without a residual$`));
-    const r = withPart('residual', (w) => (w.flags & PayloadFlag.FieldStep) !== 0);
-    const wide = await refusal(editPayload(r.bytes, r.f, r.t, (p) => void (p[1] |= PayloadFlag.WideStep)));
-    expect(wide.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: field step flag with the wide residual step flag$`));
+  it('refuses a residual byte with reserved bits or predictor 7, an integer step of 0, and the field step where the tolerance gives none; takes the field step from the stored tolerance (spec/FORMAT.md 10.6.5)', async () => {
+    const r = withPart('residual', (w) => w.residualStepForm === 0);
+    for (const bits of [0x08, 0x40, 0x80]) {
+      const e = await refusal(editPayload(r.bytes, r.f, r.t, (p, w) => void (p[w.residualByteAt!] |= bits)));
+      expect(e.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: residual byte 0x[0-9a-f]+ at (payload|file) offset \\d+ has bits outside 0x37 set$`));
+    }
+    const seven = await refusal(editPayload(r.bytes, r.f, r.t, (p, w) => void (p[w.residualByteAt!] |= 7)));
+    expect(seven.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: residual predictor 7 at (payload|file) offset \\d+ is not one of 0..6$`));
+    // Step form 3 with the varint 0 inserted after the residual byte: an integer step must be positive.
+    const zero = await refusal(editPayload(r.bytes, r.f, r.t, (p, w) => {
+      const out = splice(p, w.residualByteAt! + 1, w.residualByteAt! + 1, Uint8Array.of(0));
+      out[w.residualByteAt!] |= 3 << 4;
+      return out;
+    }));
+    expect(zero.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: residual step 0 at (payload|file) offset \\d+ is not a positive finite number$`));
     const none = await refusal(edit(r.bytes, (m) => (m.header.fields[r.f].bound.tolerance = 0)));
-    expect(none.message).toMatch(new RegExp(`^archive field '${r.field}' tile \\d+: field step flag in a field whose tolerance gives no residual step$`));
+    expect(none.message).toMatch(new RegExp(`^archive field '${r.field}' tile \\d+: a residual with the field step in a field whose tolerance gives no field step$`));
     // A tolerance half as large names a step half as large: the payload still decodes, to other values, which the
     // value checksum the encoder recorded (spec 12) then catches.
     const halved = edit(r.bytes, (m) => (m.header.fields[r.f].bound.tolerance /= 2));
@@ -585,27 +597,24 @@ describe('tile payloads', () => {
     expect(report.failures.map((x) => x.what)).toContainEqual(expect.stringMatching(/value CRC-32 mismatch/));
   });
 
-  it('a binary32 centre and step, and the field step, are read exactly: the seed payloads that use them decode to the values check() verifies', async () => {
-    // Every seed archive passes check() (values CRC-compared with what the encoder verified); here at least one payload
-    // of each kind must hold a binary32 centre, one a binary32 step and one name the field's step (flag FieldStep), so all are exercised.
-    let narrowCentre = 0;
-    let narrowStep = 0;
-    let fieldSteps = 0;
+  it('every centre form and step form is read exactly: the seed payloads that use them decode to the values check() verifies', async () => {
+    // Every seed archive passes check() (values CRC-compared with what the encoder verified); here the seed payloads
+    // together must hold a binary32 and an integer centre, and a binary32, an integer and the field's step, so all are exercised.
+    const centres = new Set<number>();
+    const steps = new Set<number>();
     for (const seed of buildSeeds()) {
       for (const ps of parse(seed.bytes).payloads) {
         for (const p of ps) {
           const w = walk(p);
           if (w.method !== 1) continue;
-          if (!(w.flags & PayloadFlag.WideCentre)) narrowCentre++;
-          if (w.residualStepWidth === 4) narrowStep++;
-          if (w.flags & PayloadFlag.FieldStep) fieldSteps++;
+          centres.add(w.centreForm);
+          if (w.residualStepForm !== undefined) steps.add(w.residualStepForm);
         }
       }
       expect((await (await open(seed.bytes)).check()).failures).toEqual([]);
     }
-    expect(narrowCentre).toBeGreaterThan(0);
-    expect(narrowStep).toBeGreaterThan(0);
-    expect(fieldSteps).toBeGreaterThan(0);
+    expect([...centres].sort()).toEqual(expect.arrayContaining([0, 2]));
+    expect([...steps].sort()).toEqual(expect.arrayContaining([0, 1, 3]));
   });
 
   it('refuses an exception holding the fill value, or a NaN', async () => {

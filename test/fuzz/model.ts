@@ -242,7 +242,7 @@ export interface PartRef {
   end: number;
 }
 
-/** A tile payload taken apart (the layout of spec/FORMAT.md section 10, format 7, written out here from the spec, not taken from the library). */
+/** A tile payload taken apart (the layout of spec/FORMAT.md section 10, format 8, written out here from the spec, not taken from the library). */
 export interface PayloadLayout {
   method: number;
   flags: number;
@@ -250,8 +250,10 @@ export interface PayloadLayout {
   /** Where the rank varint begins (2) and where the centre begins (after the varint). */
   rankAt: number;
   centreAt: number;
-  /** End of the fixed part (method 0: 2 bytes; method 1: after the binary32 or binary64 centre). */
+  /** End of the fixed part (method 0: 2 bytes; method 1: after the centre in its form). */
   fixedEnd: number;
+  /** The centre's form (flags bits 5-6: 0 binary32, 1 binary64, 2 integer svarint). */
+  centreForm: number;
   /** Every length-prefixed part, in payload order. */
   parts: PartRef[];
   /** The raw NaN bits after a coded mask: the varint that counts them, and where they are. */
@@ -262,7 +264,9 @@ export interface PayloadLayout {
   groupsEnd: number;
   /** Factor groups: rank count and where their left step codes (one signed varint per rank) begin. */
   groups: { size: number; stepsAt: number }[];
-  /** The residual's stored step (binary32, or binary64 with flag WideStep; its u8 predictor follows); absent with flag FieldStep (width 0). */
+  /** The residual byte (predictor in bits 0-2, step form in bits 4-5), then the stored step (absent in step form 0: width 0). */
+  residualByteAt?: number;
+  residualStepForm?: number;
   residualStepAt?: number;
   residualStepWidth?: number;
   /** The residual's predictor (0 none, 1 Lorenzo, 2 left, 3 up, 4 average, 5 median, 6 blend). */
@@ -272,7 +276,11 @@ export interface PayloadLayout {
 }
 
 /** Payload flag bits (src/codec/payload.ts), restated so a change there shows up here as a failing test. */
-export const PayloadFlag = { Mask: 1, Residual: 2, Exceptions: 4, FieldStep: 8, FactorDelta: 16, WideCentre: 32, WideStep: 64 } as const;
+export const PayloadFlag = { Mask: 1, Residual: 2, Exceptions: 4, FactorDelta: 16 } as const;
+
+/** The centre's forms (flags bits 5-6) and the residual step's forms (residual byte bits 4-5), spec/FORMAT.md 10.6.1 and 10.6.5. */
+export const CentreForm = { Binary32: 0, Binary64: 1, Integer: 2 } as const;
+export const StepForm = { Field: 0, Binary32: 1, Binary64: 2, Integer: 3 } as const;
 
 /** An unsigned LEB128 varint at `at` (spec/FORMAT.md section 2): its value and byte length. Throws a RangeError past the end. */
 export function readVarint(p: Uint8Array, at: number): { value: number; bytes: number } {
@@ -321,14 +329,15 @@ export function walk(p: Uint8Array): PayloadLayout {
   const method = p[0];
   if (method === 0) {
     const end = deflate('values', 2);
-    return { method, flags: p[1], rank: 0, rankAt: -1, centreAt: -1, fixedEnd: 2, parts, groupCountAt: -1, groupsEnd: -1, groups: [], end };
+    return { method, flags: p[1], rank: 0, rankAt: -1, centreAt: -1, fixedEnd: 2, centreForm: -1, parts, groupCountAt: -1, groupsEnd: -1, groups: [], end };
   }
   if (method !== 1 || p.length < 3) throw new RangeError(`not a walkable payload (method ${method}, ${p.length} bytes)`);
   const flags = p[1];
   const rankV = readVarint(p, 2);
   const rank = rankV.value;
   const centreAt = 2 + rankV.bytes;
-  let at = centreAt + (flags & PayloadFlag.WideCentre ? 8 : 4);
+  const centreForm = (flags >> 5) & 3;
+  let at = centreAt + (centreForm === CentreForm.Binary32 ? 4 : centreForm === CentreForm.Binary64 ? 8 : readVarint(p, centreAt).bytes);
   const fixedEnd = at;
   if (at > p.length) throw new RangeError('centre cut short');
   let mask: PayloadLayout['mask'];
@@ -364,42 +373,85 @@ export function walk(p: Uint8Array): PayloadLayout {
     }
   }
   const groupsEnd = groups.length > 0 ? groups[0].stepsAt : at;
+  let residualByteAt: number | undefined;
+  let residualStepForm: number | undefined;
   let residualStepAt: number | undefined;
   let residualStepWidth: number | undefined;
   let residualPredictor: number | undefined;
   if (flags & PayloadFlag.Residual) {
-    residualStepWidth = flags & PayloadFlag.FieldStep ? 0 : flags & PayloadFlag.WideStep ? 8 : 4;
-    if (residualStepWidth > 0) residualStepAt = at;
-    if (at + residualStepWidth + 1 > p.length) throw new RangeError('residual step and predictor cut short');
-    residualPredictor = p[at + residualStepWidth];
-    at = coded('residual', at, at + residualStepWidth + 1);
+    if (at >= p.length) throw new RangeError('residual byte cut short');
+    residualByteAt = at;
+    residualPredictor = p[at] & 7;
+    residualStepForm = (p[at] >> 4) & 3;
+    const f = residualStepForm;
+    residualStepWidth = f === StepForm.Field ? 0 : f === StepForm.Binary32 ? 4 : f === StepForm.Binary64 ? 8 : readVarint(p, at + 1).bytes;
+    if (residualStepWidth > 0) residualStepAt = at + 1;
+    if (at + 1 + residualStepWidth > p.length) throw new RangeError('residual step cut short');
+    at = coded('residual', at, at + 1 + residualStepWidth);
   }
   if (flags & PayloadFlag.Exceptions) at = deflate('exceptions', at);
-  return { method, flags, rank, rankAt: 2, centreAt, fixedEnd, parts, mask, groupCountAt, groupsEnd, groups, residualStepAt, residualStepWidth, residualPredictor, end: at };
+  return { method, flags, rank, rankAt: 2, centreAt, fixedEnd, centreForm, parts, mask, groupCountAt, groupsEnd, groups, residualByteAt, residualStepForm, residualStepAt, residualStepWidth, residualPredictor, end: at };
 }
 
-/** Write the centre of a LowRank payload in place, in the width its flags give (binary32 rounds `v`). */
-export function setCentre(p: Uint8Array, v: number): void {
+/**
+ * The centre of a LowRank payload set to `v`, in the form its flags give
+ * (binary32 rounds `v`); an integer centre becomes the svarint of `v`
+ * rounded (any length: the payload may grow or shrink), or, for a value no
+ * svarint holds (NaN, an infinity, 2^31 and beyond), the centre form is
+ * switched to binary32 and `v` stored so. Returns the payload (a new array
+ * when its length changed).
+ */
+export function setCentre(p: Uint8Array, v: number): Uint8Array {
   const w = walk(p);
+  if (w.centreForm === CentreForm.Integer) {
+    const k = Math.round(v);
+    if (Number.isFinite(k) && Math.abs(k) < 2 ** 31) return splice(p, w.centreAt, w.fixedEnd, Uint8Array.from(varintBytes(k < 0 ? -2 * k - 1 : 2 * k)));
+    const out = splice(p, w.centreAt, w.fixedEnd, new Uint8Array(4));
+    out[1] &= ~0x60;
+    new DataView(out.buffer, out.byteOffset, out.byteLength).setFloat32(w.centreAt, v, true);
+    return out;
+  }
   const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
-  if (w.flags & PayloadFlag.WideCentre) d.setFloat64(w.centreAt, v, true);
+  if (w.centreForm === CentreForm.Binary64) d.setFloat64(w.centreAt, v, true);
   else d.setFloat32(w.centreAt, v, true);
+  return p;
 }
 
 /** The centre of a LowRank payload. */
 export function getCentre(p: Uint8Array): number {
   const w = walk(p);
   const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
-  return w.flags & PayloadFlag.WideCentre ? d.getFloat64(w.centreAt, true) : d.getFloat32(w.centreAt, true);
+  if (w.centreForm === CentreForm.Integer) {
+    const z = readVarint(p, w.centreAt).value;
+    return z % 2 === 0 ? z / 2 : -(z + 1) / 2;
+  }
+  return w.centreForm === CentreForm.Binary64 ? d.getFloat64(w.centreAt, true) : d.getFloat32(w.centreAt, true);
 }
 
-/** Write the residual step of a LowRank payload in place, in the width its flags give. */
-export function setResidualStep(p: Uint8Array, v: number): void {
+/**
+ * The residual step of a LowRank payload set to `v`, in the form its
+ * residual byte gives; an integer step becomes the varint of `v` rounded
+ * (the payload may grow or shrink), or, for a value no varint holds (NaN,
+ * an infinity, negative, 2^32 and beyond), the step form is switched to
+ * binary32 and `v` stored so. Returns the payload (a new array when its
+ * length changed).
+ */
+export function setResidualStep(p: Uint8Array, v: number): Uint8Array {
   const w = walk(p);
-  if (w.residualStepAt === undefined) throw new RangeError('no residual');
+  if (w.residualStepAt === undefined || w.residualByteAt === undefined) throw new RangeError('no stored residual step');
+  const end = w.residualStepAt + (w.residualStepWidth ?? 0);
+  if (w.residualStepForm === StepForm.Integer) {
+    const k = Math.round(v);
+    if (Number.isFinite(k) && k >= 0 && k < 2 ** 32) return splice(p, w.residualStepAt, end, Uint8Array.from(varintBytes(k)));
+    const out = splice(p, w.residualStepAt, end, new Uint8Array(4));
+    out[w.residualByteAt] = (out[w.residualByteAt] & ~0x30) | (StepForm.Binary32 << 4);
+    new DataView(out.buffer, out.byteOffset, out.byteLength).setFloat32(w.residualStepAt, v, true);
+    return out;
+  }
   const d = new DataView(p.buffer, p.byteOffset, p.byteLength);
-  if (w.residualStepWidth === 8) d.setFloat64(w.residualStepAt, v, true);
+  if (w.residualStepForm === StepForm.Binary64) d.setFloat64(w.residualStepAt, v, true);
   else d.setFloat32(w.residualStepAt, v, true);
+  return p;
 }
 
 /** Rows and columns of tile t of a field (header map as decoded): tiles are cut at the field's edges; slices repeat the grid. */

@@ -440,7 +440,10 @@ function mutateFixed(m: Model, f: number, t: number, rng: Rng): string {
     const bytes = rng.chance(0.2) ? [...varintBytes(l.rank).map((b) => b | 0x80), 0] : varintBytes(v);
     p = splice(p, 2, l.centreAt, Uint8Array.from(bytes));
     m.payloads[f][t] = p;
-  } else if (which === 'centre' && l !== null && l.method === 1) setCentre(p, rng.pick(BOUNDARY_NUMBERS));
+  } else if (which === 'centre' && l !== null && l.method === 1) {
+    p = setCentre(p, rng.pick(BOUNDARY_NUMBERS));
+    m.payloads[f][t] = p;
+  }
   else if (which === 'groups' && l !== null && l.groupCountAt >= 0) p[l.groupCountAt] = rng.pick([0, 1, 2, 255]);
   if (rng.chance(0.8) && p.length >= 1) {
     ix.method[t] = p[0];
@@ -586,7 +589,7 @@ function semantic(m: Model, seed: Model, rng: Rng): string {
       'a NaN residual step',
       () => {
         if (layout.residualStepAt === undefined) return false;
-        setResidualStep(p, NaN);
+        m.payloads[f][t] = setResidualStep(p, NaN);
         return true;
       },
     ],
@@ -594,7 +597,7 @@ function semantic(m: Model, seed: Model, rng: Rng): string {
       'a NaN centre',
       () => {
         if (p[0] !== 1) return false;
-        setCentre(p, NaN);
+        m.payloads[f][t] = setCentre(p, NaN);
         return true;
       },
     ],
