@@ -105,7 +105,7 @@ export function buildSeeds(): Seed[] {
   add('one-row-f64', pack(smooth(1, 50, 10), [1, 50], { bound: 'rel:1e-4', tile: [1, 16], name: 'row' }));
   add('all-nan-f64', pack(new Float64Array(8 * 8).fill(NaN), [8, 8], { bound: 'abs:1', tile: 4, name: 'void' }));
   add('tiny-f64', pack(smooth(12, 12, 11, 2, 1e-300), [12, 12], { bound: 'rel:1e-3', tile: 6, name: 'tiny' }));
-  // Under an L2 bound a tile's residual step is its own (rate-distortion search), beyond binary32 here: flag WideStep.
+  // Under an L2 bound a tile's residual step is its own (rate-distortion search), beyond binary32 here: step form 2 (binary64).
   add('tiny-psnr-f64', pack(smooth(12, 12, 13, 2, 1e-300), [12, 12], { bound: 'psnr:50', tile: 6, name: 'faint' }));
   add('huge-f64', pack(smooth(12, 12, 12, 2, 1e300, 1), [12, 12], { bound: 'rel:1e-6', tile: 6, name: 'huge', fill: null })); // 1e300 is data: fill-value guard off
   add('single-cell', pack([42.5], [1, 1], { bound: 'abs:0.1', name: 'one' }));

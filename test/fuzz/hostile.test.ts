@@ -643,7 +643,7 @@ describe('tile payloads', () => {
     const r = withPart('residual', (w) => w.residualStepAt !== undefined);
     const e1 = await refusal(editPayload(r.bytes, r.f, r.t, (p) => setResidualStep(p, NaN)));
     expect(e1.message).toMatch(/residual step NaN at (payload|file) offset \d+ is not a positive finite number/);
-    const e2 = await refusal(edit(r.bytes, (m) => setCentre(m.payloads[r.f][r.t], Infinity)));
+    const e2 = await refusal(edit(r.bytes, (m) => (m.payloads[r.f][r.t] = setCentre(m.payloads[r.f][r.t], Infinity))));
     // Offsets count in the payload, or in the file when the reader passes the payload's offset; the centre follows the rank's varint.
     const at = walk(parse(r.bytes).payloads[r.f][r.t]).centreAt;
     expect(e2.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: centre Infinity at (payload offset ${at}|file offset \\d+) is not finite$`));
@@ -651,7 +651,7 @@ describe('tile payloads', () => {
 
   it('payload errors name file offsets when the reader knows where the payload is', async () => {
     const r = withPart('residual');
-    const b = edit(r.bytes, (m) => setCentre(m.payloads[r.f][r.t], Infinity));
+    const b = edit(r.bytes, (m) => (m.payloads[r.f][r.t] = setCentre(m.payloads[r.f][r.t], Infinity)));
     const offset = (await (await open(b)).loadIndex()).fields[r.f].offset[r.t];
     const at = walk(parse(r.bytes).payloads[r.f][r.t]).centreAt;
     expect((await refusal(b)).message).toMatch(new RegExp(`centre Infinity at file offset ${offset + at} is not finite$`));
