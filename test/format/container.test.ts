@@ -218,7 +218,7 @@ describe('prologue and tail', () => {
     it(`format version ${version} is refused as unsupported, naming the versions known`, async () => {
       const b = smallLowRank();
       new DataView(b.buffer).setUint16(8, version, true);
-      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`version ${version} .*knows 7\\b`));
+      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`version ${version} .*knows 8\\b`));
       // The same with the tail agreeing and resealed: still refused for the version.
       const c = smallLowRank();
       new DataView(c.buffer).setUint16(8, version, true);

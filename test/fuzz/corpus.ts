@@ -109,6 +109,9 @@ export function buildSeeds(): Seed[] {
   add('tiny-psnr-f64', pack(smooth(12, 12, 13, 2, 1e-300), [12, 12], { bound: 'psnr:50', tile: 6, name: 'faint' }));
   add('huge-f64', pack(smooth(12, 12, 12, 2, 1e300, 1), [12, 12], { bound: 'rel:1e-6', tile: 6, name: 'huge', fill: null })); // 1e300 is data: fill-value guard off
   add('single-cell', pack([42.5], [1, 1], { bound: 'abs:0.1', name: 'one' }));
+  // Whole numbers within a bound below half their spacing: the lattice candidate (spec/FORMAT.md 19), an integer centre
+  // (centre form 2) and an integer step (step form 3).
+  add('integers-f32', pack(Float32Array.from(smooth(12, 12, 16, 2, 50), (v) => Math.round(v)), [12, 12], { bound: 'abs:0.3', tile: 6, name: 'counts' }));
   // An N-D field, (time, y, x) read as a matrix of time x (y, x): the header's nd map (spec/FORMAT.md 6.2.1).
   add('nd-matrix-f32', pack(Float32Array.from(smooth(4, 15, 16)), [4, 15], { bound: 'abs:1e-3', tile: [2, 8], name: 'series', ndShape: [4, 5, 3], dims: ['time', 'y', 'x'], layout: 'matrix:1', attrs: { units: 'm' } }));
 

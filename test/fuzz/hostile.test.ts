@@ -252,28 +252,29 @@ describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
     let at = 1;
     TYPES.forEach((type, c) => {
       let len = 4 * n;
-      if (type === 'error') len = [0, 4, 8][c === 4 ? widths & 3 : widths >> 2] * n;
+      if (type === 'error') len = [0, 4, 8, 2][c === 4 ? widths & 3 : widths >> 2] * n;
       if (type === 'varint') for (let k = 0, e = at; k < n; k++) (e += readVarint(bin, e).bytes), (len = e - at);
       parts.push(bin.subarray(at, at + len));
       at += len;
     });
     return { widths, parts };
   };
-  /** Rewrite column c of the page (the widths byte follows an error column's new length when it is 0, 4 or 8 bytes a tile). */
-  const withColumn = (c: number, change: (bin: Uint8Array, m: Model) => Uint8Array) =>
+  /** Rewrite column c of the page (the widths byte follows an error column's new length when it is 0, 4, 8 or 2 bytes a tile). */
+  const withColumn = (c: number, change: (bin: Uint8Array, m: Model) => Uint8Array, also?: (m: Model) => void) =>
     withColumns((bin, m) => {
       const { widths, parts } = split(bin, 4);
       parts[c] = change(parts[c], m);
-      const code = [0, 16, 32].indexOf(parts[c].length);
+      const code = [0, 16, 32, 8].indexOf(parts[c].length);
       const w = c === 4 && code >= 0 ? (widths & 0xc) | code : c === 5 && code >= 0 ? (widths & 3) | (code << 2) : widths;
       return Uint8Array.of(w, ...parts.flatMap((x) => [...x]));
-    });
-  /** Rewrite the page's first element, its binary columns. */
-  const withColumns = (change: (bin: Uint8Array, m: Model) => unknown) =>
+    }, also);
+  /** Rewrite the page's first element, its binary columns (and, with `also`, anything else of the model in the same edit). */
+  const withColumns = (change: (bin: Uint8Array, m: Model) => unknown, also?: (m: Model) => void) =>
     edit(masked(), (m) => {
       const page = [...pageValues(m)[0][0]];
       page[0] = change(page[0], m);
       m.pageBytes = { '0/0': encodeValue(page) };
+      also?.(m);
     });
   /** The four payload lengths of the masked archive, in page order. */
   const lengths = (m: Model): number[] => m.payloads[0].map((p) => p.length);
@@ -283,14 +284,14 @@ describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
     ['a byte left after the columns', () => withColumns((b) => Uint8Array.of(...b, 0)), /columns have 1 bytes left after the 4 tiles' entries$/],
     ['an error column longer than its width gives', () => withColumn(4, (b) => Uint8Array.of(...b, 0, 0, 0, 0)), /columns have 4 bytes left after the 4 tiles' entries$/],
     ['a widths byte with a bit above bit 3', () => withColumns((b) => Uint8Array.of(b[0] | 0x10, ...b.subarray(1))), /widths byte 0x1[0-9a-f] has bits above bit 3 set$/],
-    ['a width code of 3', () => withColumns((b) => Uint8Array.of(b[0] | 3, ...b.subarray(1))), /widths byte 0x[0-9a-f] gives column 'max_err' the unknown width code 3$/],
+    ['a width code of 3 (shares of the tolerance) in a field whose tolerance is 0', () => withColumn(4, () => Uint8Array.of(1, 0, 1, 0, 1, 0, 1, 0), (m) => (m.header.fields[0].bound.tolerance = 0)), /widths byte 0x[0-9a-f]+ gives column 'max_err' width code 3 \(shares of the tolerance\) in a field whose tolerance is 0$/],
     ['a length varint not in its shortest form', () => withColumn(0, (_b, m) => Uint8Array.of(...varintBytes(lengths(m)[0]).map((x) => x | 0x80), 0, ...lengths(m).slice(1).flatMap(varintBytes))), /columns: column 'length' entry 0 at columns offset 1 is not in its shortest form$/],
     ['a varint of six bytes', () => withColumn(2, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x80, 0x00, ...b.subarray(1))), /columns: column 'kind' entry 0 at columns offset \d+ runs over 5 bytes$/],
     ['a varint of 2^32', () => withColumn(3, (b) => Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x10, ...b.subarray(1))), /columns: column 'missing' entry 0 at columns offset \d+ holds 4294967296, not a value below 2\^32$/],
     ['a kind whose rank exceeds the tile', () => withColumn(2, (b) => Uint8Array.of(5, ...b.subarray(1))), /tile 0 kind 5 \(rank 4\) is impossible for a 3x4 tile$/],
     ['a missing count above the tile', () => withColumn(3, (b) => Uint8Array.of(13, ...b.subarray(1))), /tile 0 missing count 13 is impossible for a 3x4 tile$/],
-    ['a negative error in binary32', () => withColumn(5, (b) => Uint8Array.of(0, 0, 0x80, 0xbf, ...b.subarray(4))), /tile 0 rmse -1 is not a finite number >= 0$/],
-    ['an infinite error in binary64', () => withColumn(4, (b) => Uint8Array.from([...new Uint8Array(new Float64Array([Infinity, ...new Float32Array(b.buffer.slice(b.byteOffset + 4, b.byteOffset + 16))]).buffer)])), /tile 0 max_err Infinity is not a finite number >= 0$/],
+    ['a negative error in binary32', () => withColumn(5, () => new Uint8Array(new Float32Array([-1, 0, 0, 0]).buffer)), /tile 0 rmse -1 is not a finite number >= 0$/],
+    ['an infinite error in binary64', () => withColumn(4, () => new Uint8Array(new Float64Array([Infinity, 0, 0, 0]).buffer)), /tile 0 max_err Infinity is not a finite number >= 0$/],
   ];
   for (const [what, make, message] of cases) {
     it(`refuses ${what}, naming the page`, async () => {
@@ -317,7 +318,12 @@ describe('the binary columns of an index page (spec/FORMAT.md 7.3)', () => {
   });
 
   it('reads an error column written in binary64 as the same figures (a writer may; spec 7.3)', async () => {
-    const wide = withColumn(4, (b) => new Uint8Array(new Float64Array(new Float32Array(b.buffer.slice(b.byteOffset, b.byteOffset + b.length))).buffer));
+    // The writer records shares of the tolerance (width code 3) here; the same figures as binary64 entries (code 2).
+    const shares = (await (await open(masked())).loadIndex()).fields[0].max_err;
+    const bytes = masked();
+    const end = 12 + parse(bytes).payloads[0].reduce((sum, p) => sum + p.length, 0);
+    expect(split((decode(bytes.subarray(end, layout(bytes).headerOffset)) as Uint8Array[])[0], 4).widths & 3).toBe(3);
+    const wide = withColumn(4, () => new Uint8Array(new Float64Array(shares).buffer));
     const [a, b] = [await open(masked()), await open(wide)];
     expect((await b.loadIndex()).fields[0].max_err).toEqual((await a.loadIndex()).fields[0].max_err);
     expect(await values(wide)).toEqual(await values(masked()));
