@@ -376,9 +376,11 @@ export class ArchiveBuilder {
           ix.method[u] = e.stats.method;
           ix.rank[u] = e.stats.rank;
           ix.valid[u] = e.stats.valid;
-          // Recorded errors are kept as the archive stores them: rounded up to binary32.
-          ix.max_err[u] = up32(e.stats.maxErr);
-          ix.rmse[u] = up32(e.stats.rmse);
+          // The measured errors: the index page rounds them up as it records them (to shares of the
+          // tolerance or to binary32, spec/FORMAT.md 7.3, 7.5), once, so that a joined archive whose tiles
+          // carry their parts' recorded figures records the same ones.
+          ix.max_err[u] = e.stats.maxErr;
+          ix.rmse[u] = e.stats.rmse;
           ix.value_crc[u] = e.stats.valueCrc;
           if (ix.prefix) ix.prefix[u] = e.stats.prefix.map((x, q) => (q % 4 >= 2 ? up32(x) : x));
           onProgress?.(++written, n);

@@ -34,8 +34,10 @@ async function unpackNpy(archive: string, out: string, extra: string[] = []): Pr
 }
 
 describe('pack', { timeout: CLI_TIMEOUT }, () => {
-  it('packs a float64 .npy under abs:0.5 and the values read back hold the bound', async () => {
-    const r = await rfIn(['pack', 'volcano.npy', '-o', 'v-abs.rfz', '--bound', 'abs:0.5'], dir);
+  // abs:2, not below half the integer spacing of the volcano's heights: a bound that small is met exactly by their
+  // lattice (spec/FORMAT.md 19), and this test is about a lossy pack.
+  it('packs a float64 .npy under abs:2 and the values read back hold the bound', async () => {
+    const r = await rfIn(['pack', 'volcano.npy', '-o', 'v-abs.rfz', '--bound', 'abs:2'], dir);
     expect(r.code, r.stderr).toBe(0);
     const size = readFileSync(join(dir, 'v-abs.rfz')).length;
     // One summary line: bytes in (61 x 87 x 8), bytes out, ratio, achieved error vs the bound, time;
@@ -45,12 +47,12 @@ describe('pack', { timeout: CLI_TIMEOUT }, () => {
     expect(details.map((l) => l.split(' ')[2])).toEqual(['tile', 'threads', expect.any(String), 'bytes:']);
     expect(details[0]).toMatch(/^  tile \d+ x \d+ \(chosen automatically: /);
     expect(r.stdout).toContain(`${ROWS * COLS * 8} bytes in, ${size} bytes out, ratio ${((ROWS * COLS * 8) / size).toFixed(2)}`);
-    expect(r.stdout).toMatch(/abs:0\.5 \(pointwise limit E = 0\.5\): max error [0-9.e-]+ \([01]\.\d{3} E\), RMSE [0-9.e-]+; \d+(\.\d+)? m?s/);
+    expect(r.stdout).toMatch(/abs:2 \(pointwise limit E = 2\): max error [0-9.e-]+ \([01]\.\d{3} E\), RMSE [0-9.e-]+; \d+(\.\d+)? m?s/);
     const back = await unpackNpy('v-abs.rfz', 'v-abs.npy');
     expect(back.dtype).toBe('f64'); // output dtype = the field's dtype
     expect(back.shape).toEqual([ROWS, COLS]);
     // abs:E means |x - x'| <= E for every value (the definition of a pointwise absolute bound).
-    expect(maxAbsError(vol.values, back.data)).toBeLessThanOrEqual(0.5);
+    expect(maxAbsError(vol.values, back.data)).toBeLessThanOrEqual(2);
     expect(maxAbsError(vol.values, back.data)).toBeGreaterThan(0); // lossy: something was discarded
     expect(leftovers(dir)).toEqual([]);
   });

@@ -146,7 +146,7 @@ describe('check', () => {
     // Tail byte 10 is the required flags word (spec/FORMAT.md 3.5): it then disagrees with the prologue's.
     damaged('tail.rfz', -14);
     for (const cmd of [['check', 'tail.rfz'], ['show', 'tail.rfz'], ['unpack', 'tail.rfz', '-o', 'tail.npy']]) {
-      expectCliError(await rfIn(cmd, dir), /tail\.rfz: tail says version 7 flags 255, prologue says 7 flags 0/);
+      expectCliError(await rfIn(cmd, dir), /tail\.rfz: tail says version 8 flags 255, prologue says 8 flags 0/);
     }
     // A length word of the tail, and a header byte: the tail's CRC over header, directory and tail fails.
     damaged('length.rfz', -24);
