@@ -151,14 +151,14 @@ function trialSamples(spec: FieldSpec): [number, number, number[]][] {
  * row-major numbers in increasing order, spread over both the tile rows and
  * the tile columns: sample k lies in row stratum k and in column stratum
  * (3k mod count), a Latin-hypercube layout (each row stratum and each column
- * stratum holds one sample; 3 is prime to every count used, 2 to 8, except
+ * stratum holds one sample; 3 is coprime with every count used, 2 to 8, except
  * 3 and 6, where 5 is used). Spreading in row-major order alone put every
  * sample in one column whenever the count divided the grid's width (16
  * tiles across and 8 samples: column 0 of every other row), and on bench/'s
  * 4096 x 4096 large field at rel:1e-2 the trial then chose 256 x 256 tiles
  * (29480 bytes) over 1024 x 1024 (18349 bytes). Samples that fall on one
- * tile (a grid narrower than the count both ways) are replaced by the
- * nearest unused tiles in row-major order.
+ * tile (a grid narrower than the count both ways) move to the next
+ * unused tile in row-major order.
  */
 export function spreadTiles(gr: number, gc: number, count: number): number[] {
   const step = count % 3 === 0 ? 5 : 3;
