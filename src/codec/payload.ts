@@ -79,12 +79,13 @@ export function varintBytes(v: number): number {
 
 /**
  * The cheapest form of a centre (flags bits 5-6) that holds it exactly: an
- * integer of at most 4 varint bytes, else binary32 when the centre is a
- * binary32 value, else binary64. Returns the form and, for the integer
+ * integer of at most 4 varint bytes (not -0), else binary32 when the centre
+ * is a binary32 value, else binary64. Returns the form and, for the integer
  * form, the integer stored.
  */
 export function centreForm(center: number): { form: number; k: number } {
-  if (svarintBytes(center) <= 4) return { form: CentreForm.Integer, k: center };
+  // -0 stays binary32: a varint has no negative zero, and a constant tile of -0 keeps its sign through its centre.
+  if (svarintBytes(center) <= 4 && !Object.is(center, -0)) return { form: CentreForm.Integer, k: center };
   return { form: Math.fround(center) === center ? CentreForm.Binary32 : CentreForm.Binary64, k: 0 };
 }
 
