@@ -394,7 +394,7 @@ export class ArchiveBuilder {
   /** The field's header and index, once every tile is written. */
   private end(spec: FieldSpec, o: PackOptions, page: [number, number], ix: FieldIndex, result: FieldResult): FieldHeader {
     const slices = spec.slices ?? 1;
-    // The summary's max_err is the largest recorded (binary32, rounded up) tile max_err.
+    // The largest measured tile max_err; the container writes the summary's from the figures the pages record (spec/FORMAT.md 7.4).
     ix.summary = { valid: result.valid, max_err: ix.max_err.reduce((a, b) => Math.max(a, b), 0), rmse: result.rmse };
     const header: FieldHeader = {
       name: spec.name,

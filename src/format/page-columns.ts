@@ -3,8 +3,10 @@
  * MessagePack `bin` value holding a widths byte and then every per-tile
  * column of n_p entries, little-endian, back to back: byte lengths, kinds
  * and missing counts as unsigned LEB128 varints, CRCs as u32, recorded
- * errors as binary32 (or binary64 for a column holding a value that is not
- * a binary32 value, or no byte at all for a column of zeros). Writing
+ * errors as u16 shares of the field's tolerance where every error of the
+ * column is within it, else binary32 (or binary64 for a column holding a
+ * value that is not a binary32 value), or no byte at all for a column of
+ * zeros. Writing
  * here, reading and checking too: columns that are not a bin, an entry
  * past their end, a varint that is not in its shortest form or runs over
  * 5 bytes, or bytes left over are refused with a message naming the column
@@ -78,21 +80,22 @@ export function recordErrors(measured: readonly number[], tol: number, up32: (x:
   return { code: exactWidth(values) === 1 ? 1 : 2, values };
 }
 
-/**
- * The stored columns of a page (spec/FORMAT.md 7.3), one byte run: a widths
- * byte (bits 0-1: the width code of `max_err`, bits 2-3: that of `rmse`),
- * then each column of {@link PAGE_COLUMNS} in order, its entries back to
- * back. Varint and u32 columns hold integers in 0..2^32 - 1; an error
- * column takes no byte when every value is 0 (tiles decoded exactly),
- * binary32 entries when every value is a binary32 value (the writer rounds
- * errors up to one, spec/FORMAT.md 7.5), else binary64.
- */
 /** The width code that stores every value of an error column exactly as a number: 0 (all zero), 1 (binary32) or 2 (binary64). */
 export function exactWidth(values: readonly number[]): 0 | 1 | 2 {
   if (values.every((v) => v === 0)) return 0;
   return values.every((v) => Math.fround(v) === v) ? 1 : 2;
 }
 
+/**
+ * The stored columns of a page (spec/FORMAT.md 7.3), one byte run: a widths
+ * byte (bits 0-1: the width code of `max_err`, bits 2-3: that of `rmse`),
+ * then each column of {@link PAGE_COLUMNS} in order, its entries back to
+ * back. Varint and u32 columns hold integers in 0..2^32 - 1; each error
+ * column in the width `widths` gives it (default: {@link exactWidth}, which
+ * stores the values as they are): no byte, binary32, binary64, or (code 3)
+ * the u16 share code of each value in the field's tolerance `tol`, whose
+ * values must then be share values ({@link recordErrors} makes them).
+ */
 export function columnsBytes(values: Record<PageColumn, readonly number[]>, widths: { max_err: number; rmse: number } = { max_err: exactWidth(values.max_err), rmse: exactWidth(values.rmse) }, tol = 0): Uint8Array {
   const tiles = values.length.length;
   // At most 5 + 4 + 5 + 5 + 8 + 8 + 4 bytes a tile, after the widths byte.
@@ -115,7 +118,8 @@ export function columnsBytes(values: Record<PageColumn, readonly number[]>, widt
 /**
  * Read the stored columns of a page of `n` tiles; `bad` throws the caller's
  * error with the message it is given. Refused: a value that is not a `bin`;
- * a widths byte with bits 4-7 set or a width code of 3; an entry that runs
+ * a widths byte with bits 4-7 set, or width code 3 (shares) where the
+ * field's tolerance `tol` is 0; an entry that runs
  * past the end; a varint that is not in its shortest form, runs over 5
  * bytes or holds 2^32 or more; bytes left after the last column.
  */
