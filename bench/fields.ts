@@ -1,7 +1,8 @@
 /**
  * The benchmark fields: two open datasets shipped by vega-datasets, analytic
- * smooth fields, a synthetic turbulence-like field, a time x space stack of
- * the demo scenario, and one large smooth field for speed. All are float32,
+ * smooth fields, a synthetic turbulence-like field, two time x space stacks
+ * (one of the demo scenario, low rank in time, and one of evolving
+ * turbulence, which is not), and one large smooth field for speed. All are float32,
  * row-major, and deterministic.
  */
 import { existsSync, readFileSync } from 'node:fs';
@@ -91,31 +92,57 @@ export function front(x: number, y: number): number {
  * real part of the inverse transform, scaled to unit standard deviation.
  */
 export function turbulence(n: number, seed: number): Float32Array {
+  return turbulenceStack(1, n, seed, 0, 0);
+}
+
+/**
+ * `snapshots` n x n fields of evolving turbulence, laid out time x space
+ * (one row per snapshot, the grid flattened along the row): the spectrum
+ * of {@link turbulence}, each mode's phase advancing by `turnover` x
+ * 2 pi k^(2/3) / 8 a step (a mode of wavenumber k turns over in a time
+ * proportional to k^(-2/3) in Kolmogorov scaling, from memory), the whole
+ * field drifting `drift` cells a step along the row. Not low rank in time:
+ * the small scales decorrelate within a few steps. Each snapshot is scaled
+ * like {@link turbulence}'s field (the same mean and deviation for all).
+ */
+export function turbulenceStack(snapshots: number, n: number, seed: number, turnover: number, drift: number): Float32Array {
   const rand = xorshift32(seed);
-  const re = new Float64Array(n * n);
-  const im = new Float64Array(n * n);
+  const cells = n * n;
+  const amp = new Float64Array(cells);
+  const phase0 = new Float64Array(cells);
+  const speed = new Float64Array(cells);
   for (let a = 0; a < n; a++) {
     const ky = a <= n / 2 ? a : a - n;
     for (let b = 0; b < n; b++) {
       const kx = b <= n / 2 ? b : b - n;
       const k = Math.hypot(kx, ky);
-      const phase = 2 * Math.PI * rand();
+      phase0[a * n + b] = 2 * Math.PI * rand();
       if (k === 0) continue;
-      const amp = k ** (-4 / 3);
-      re[a * n + b] = amp * Math.cos(phase);
-      im[a * n + b] = amp * Math.sin(phase);
+      amp[a * n + b] = k ** (-4 / 3);
+      speed[a * n + b] = (turnover * 2 * Math.PI * k ** (2 / 3)) / 8 - (2 * Math.PI * kx * drift) / n;
     }
   }
-  fft2(re, im, n, true);
+  const raw = new Float64Array(snapshots * cells);
+  const re = new Float64Array(cells);
+  const im = new Float64Array(cells);
+  for (let t = 0; t < snapshots; t++) {
+    for (let c = 0; c < cells; c++) {
+      const p = phase0[c] + speed[c] * t;
+      re[c] = amp[c] * Math.cos(p);
+      im[c] = amp[c] * Math.sin(p);
+    }
+    fft2(re, im, n, true);
+    raw.set(re, t * cells);
+  }
   let sum = 0;
   let sq = 0;
-  for (let i = 0; i < re.length; i++) {
-    sum += re[i];
-    sq += re[i] * re[i];
+  for (let i = 0; i < raw.length; i++) {
+    sum += raw[i];
+    sq += raw[i] * raw[i];
   }
-  const mean = sum / re.length;
-  const sd = Math.sqrt(sq / re.length - mean * mean);
-  return Float32Array.from(re, (v) => (v - mean) / sd);
+  const mean = sum / raw.length;
+  const sd = Math.sqrt(sq / raw.length - mean * mean);
+  return Float32Array.from(raw, (v) => (v - mean) / sd);
 }
 
 /**
@@ -157,6 +184,7 @@ export function benchFields(quick: boolean): BenchField[] {
   const n = quick ? 256 : 512;
   const big = quick ? 1024 : 4096;
   const [sr, sc, st] = quick ? [32, 48, 48] : [64, 96, 128];
+  const [tn, tt] = quick ? [64, 16] : [128, 32];
   const volcano = vegaGrid('volcano');
   const precip = vegaGrid('annual-precip');
   const stack = basinStack(st, sr, sc);
@@ -168,7 +196,16 @@ export function benchFields(quick: boolean): BenchField[] {
     { id: 'smooth-ripple', ...plain, smooth: true, rows: n, cols: n, values: sample(n, ripple), source: `analytic: damped radial waves plus an oblique wave, ${n}x${n}` },
     { id: 'smooth-front', ...plain, smooth: true, rows: n, cols: n, values: sample(n, front), source: `analytic: a curved tanh front (width 0.04) over a gentle background, ${n}x${n}` },
     { id: 'turbulence', ...plain, rows: n, cols: n, values: turbulence(n, 1941), source: `random-phase spectral synthesis, E(k) ~ k^-5/3, seed 1941, ${n}x${n}` },
-    { id: 'basin-stack', ...plain, fill: stack.fill, rows: st, cols: sr * sc, values: stack.values, source: `${st} snapshots (rows) of the demo's ${sr}x${sc} Corvane Basin (columns), six seeds blended over time, seasonal cycle, noise; land = fill -999` },
+    { id: 'basin-stack', ...plain, fill: stack.fill, rows: st, cols: sr * sc, values: stack.values, stack: [sr, sc], source: `${st} snapshots (rows) of the demo's ${sr}x${sc} Corvane Basin (columns), six seeds blended over time, seasonal cycle, noise; land = fill -999` },
+    {
+      id: 'turbulence-stack',
+      ...plain,
+      rows: tt,
+      cols: tn * tn,
+      values: turbulenceStack(tt, tn, 1953, 0.05, 0.3),
+      stack: [tn, tn],
+      source: `${tt} snapshots (rows) of ${tn}x${tn} evolving turbulence (columns): the turbulence spectrum with seed 1953, each mode turning over at a rate ~ k^(2/3), drifting 0.3 cells a step; not low rank in time`,
+    },
     {
       id: 'large',
       ...plain,

@@ -11,6 +11,11 @@ export interface FieldData {
   rows: number;
   cols: number;
   fill: number | null;
+  /**
+   * For a time x space stack (one snapshot per row): the snapshot's grid
+   * [gridRows, gridCols], with gridRows x gridCols = cols.
+   */
+  stack?: readonly [number, number];
 }
 
 /** A bound resolved against a field. */

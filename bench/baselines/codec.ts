@@ -7,6 +7,8 @@ export interface Codec {
   id: string;
   /** One line for RESULTS.md: what the method stores. */
   describe: string;
+  /** Whether the method applies to this field at all (default: yes); fields it does not apply to get no row. */
+  appliesTo?(field: FieldData): boolean;
   /** A reason to skip this (field, bound) cell, or null to run it. */
   skip?(field: FieldData, target: Target): string | null;
   /** Compress; may throw BaselineFailure when the bound cannot be met. */
