@@ -84,7 +84,8 @@ class RdoWalk {
    * than the blend are walked here with their predictions inline, the same
    * ones {@link walkPredictor} gives, so that settle() is a direct call.
    */
-  run(q: Int32Array, m: number, n: number, kind: number, seLimit: number, bitsLimit: number): boolean {
+  run(q: Int32Array, m: number, n: number, kind: number, seLimit: number, bitsLimit: number, floor: RowFloor): boolean {
+    if (floor.cannotFit(0, 0, 0, seLimit, bitsLimit)) return false;
     if (kind === Predictor.Blend) {
       return walkPredictor(q, m, n, kind, (c, p) => {
         const v = this.settle(c, p);
@@ -99,9 +100,53 @@ class RdoWalk {
         if (v !== v) return false;
         q[c] = v;
       }
-      if (this.se > seLimit || this.bits > bitsLimit) return false;
+      if (this.se > seLimit || this.bits > bitsLimit || floor.cannotFit(i + 1, this.se, this.bits, seLimit, bitsLimit)) return false;
     }
     return true;
+  }
+}
+
+/** Relative slack of {@link RowFloor}'s test, far above the rounding of its sums (about cells x 2^-53). */
+const FLOOR_SLACK = 1e-6;
+
+/**
+ * What the rows from row i to the end add at least to a walk at one step:
+ * squared error, the nearest code's per cell (settle() only ever moves a
+ * code away from x, by one, which cannot lower |x - v|), and rough bits, 1
+ * per valid cell (diffBits is 1 for 0 and more otherwise). A walk whose sums
+ * plus these pass its limits could not end within them, so it stops there:
+ * the same walks end within their limits as without the test (the slack
+ * covers rounding in the sums), and most walks at too coarse a step stop
+ * before their first row.
+ */
+class RowFloor {
+  /** restSe[i], restValid[i]: over rows i .. m - 1 (entry m is 0). */
+  private readonly restSe: Float64Array;
+  private readonly restValid: Float64Array;
+
+  constructor(orig: FloatArray, base: Float64Array, codes: Uint8Array, m: number, n: number, step: number) {
+    this.restSe = new Float64Array(m + 1);
+    this.restValid = new Float64Array(m + 1);
+    for (let i = m - 1; i >= 0; i--) {
+      let se = 0;
+      let valid = 0;
+      for (let c = i * n; c < i * n + n; c++) {
+        if (codes[c] !== Cell.Valid) continue;
+        // The same arithmetic as settle()'s error of its nearest code.
+        const x = (orig[c] - base[c]) / step;
+        const v = Math.round(x);
+        se += (x - v) * (x - v) * step * step;
+        valid++;
+      }
+      this.restSe[i] = this.restSe[i + 1] + se;
+      this.restValid[i] = this.restValid[i + 1] + valid;
+    }
+  }
+
+  /** Whether a walk with sums se and bits after its first i rows must pass seLimit or bitsLimit by its end. */
+  cannotFit(i: number, se: number, bits: number, seLimit: number, bitsLimit: number): boolean {
+    const keep = 1 - FLOOR_SLACK;
+    return se + keep * this.restSe[i] > seLimit || bits + keep * this.restValid[i] > bitsLimit;
   }
 }
 
@@ -137,10 +182,14 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number):
    * bits than `bitsLimit`.
    */
   const seLimit = 0.98 * mse * t.valid;
+  const floors = new Map<number, RowFloor>();
   const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit = Infinity): { step: number; bits: number } | null => {
     d.fill(0);
-    const run = new RdoWalk(t.orig, base, t.classes.codes, d, binary32Below(a * unit), w);
-    return run.run(q, m, n, kind, seLimit, bitsLimit) && run.se <= seLimit ? { step: run.step, bits: run.bits } : null;
+    const step = binary32Below(a * unit);
+    let floor = floors.get(step);
+    if (floor === undefined) floors.set(step, (floor = new RowFloor(t.orig, base, t.classes.codes, m, n, step)));
+    const run = new RdoWalk(t.orig, base, t.classes.codes, d, step, w);
+    return run.run(q, m, n, kind, seLimit, bitsLimit, floor) && run.se <= seLimit ? { step: run.step, bits: run.bits } : null;
   };
   let best: Uint8Array | null = null;
   let bestAt: [number, number] = [1, 0];
@@ -152,19 +201,23 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number):
     }
   };
   // The steps and weights with the predictor plain rounding picks, ranked by the rough bits of their
-  // codes (ties in the order tried); the RDO_CODED cheapest are coded for real, from the differences
-  // their walks left (kept as the ranking goes). Then the other predictors at the best of them.
-  const ranked: { a: number; w: number; bits: number; step: number; d: Int32Array }[] = [];
+  // codes, ties by their order in RDO_STEPS x RDO_WEIGHTS; the RDO_CODED cheapest are coded for real,
+  // from the differences their walks left (kept as the ranking goes). Then the other predictors at the
+  // best of them. The walks run coarsest step and heaviest weight first (fewest bits, most of them
+  // within the allotment), so the finer ones, cut short by the third cheapest's bits, stop early; the
+  // ranking does not depend on the order the walks run in.
+  const ranked: { a: number; w: number; bits: number; order: number; step: number; d: Int32Array }[] = [];
   let spare: Int32Array = new Int32Array(cells);
-  for (const a of RDO_STEPS) {
-    for (const w of RDO_WEIGHTS) {
-      // A walk whose bits pass the third cheapest's could not rank among them (ties go to the earlier): cut short.
+  for (let ai = RDO_STEPS.length - 1; ai >= 0; ai--) {
+    for (let wi = RDO_WEIGHTS.length - 1; wi >= 0; wi--) {
+      const [a, w, order] = [RDO_STEPS[ai], RDO_WEIGHTS[wi], ai * RDO_WEIGHTS.length + wi];
+      // A walk whose bits pass the third cheapest's could not rank among them: cut short.
       const walked = walk(plainKind, a, w, spare, ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity);
       if (walked === null) continue;
       let at = ranked.length;
-      while (at > 0 && ranked[at - 1].bits > walked.bits) at--;
+      while (at > 0 && (ranked[at - 1].bits > walked.bits || (ranked[at - 1].bits === walked.bits && ranked[at - 1].order > order))) at--;
       if (at >= RDO_CODED) continue;
-      ranked.splice(at, 0, { a, w, bits: walked.bits, step: walked.step, d: spare });
+      ranked.splice(at, 0, { a, w, bits: walked.bits, order, step: walked.step, d: spare });
       spare = ranked.length > RDO_CODED ? ranked.pop()!.d : new Int32Array(cells);
     }
   }
