@@ -11,7 +11,7 @@ import { cutBlock } from '../geometry.js';
 import { forEachTile, tileGrid, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
-import { prepareTile, type PreparedTile } from './prepare.js';
+import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
 import { encodeL2, encodePointwise, exactPayload, pointwiseFactors } from './tile-encode.js';
@@ -196,9 +196,17 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
   for (const [at, p] of plans.entries()) {
     let bytes = 0;
     for (let k = 0; k < sample.length; k++) {
-      // The last plan stops once it cannot be cheapest (ties go to the earlier plan): no plan after it
-      // would find the tiles' singular vectors left otherwise than now.
-      if (at === plans.length - 1 && bytes >= bestBytes) break;
+      if (bytes >= bestBytes) {
+        // The plan cannot be cheapest (ties go to the earlier plan), so its payloads are not needed. The
+        // last plan stops here; a rank plan before it still leaves each tile's singular vectors as its
+        // encoding would (a later plan's payloads depend on them: see ensureSvd); a residual plan before
+        // the last is encoded whole.
+        if (at === plans.length - 1) break;
+        if (p.kind === 'rank') {
+          leaveSvd(tiles[k], p.ranks[sample[k]]);
+          continue;
+        }
+      }
       bytes += encodeWith(p, tiles[k], sample[k]).length;
     }
     if (bytes < bestBytes) {
@@ -210,6 +218,11 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
   // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
   for (const t of tiles) t.svd = null;
   return { plan: best, bytes: bestBytes };
+}
+
+/** What encoding a tile at rank r under a rank plan leaves on it: the singular vectors {@link encodeL2} asks for. */
+function leaveSvd(t: PreparedTile, r: number): void {
+  if (t.finite && r > 0 && t.valid > 0) ensureSvd(t, Math.min(r, t.m, t.n));
 }
 
 /**
