@@ -307,7 +307,9 @@ export class ArchiveBuilder {
   /** Fix the tile shape the trial chose; what the encoding pass takes over from the trial. */
   private settleTile(spec: FieldSpec, basis: FieldChoices, trial: TileTrial): FieldPrior {
     [spec.tileRows, spec.tileCols] = trial.shape;
-    return { basis, done: trial.done };
+    // The trial's plan is the field's only when the first slice is the whole field.
+    const plan = (spec.slices ?? 1) === 1 ? trial.plan : undefined;
+    return { basis, done: trial.done, ...(plan ? { plan } : {}) };
   }
 
   /** Refuse a field whose name is taken, or whose slices need a flag the sink cannot set any more. */

@@ -6,7 +6,7 @@
  */
 import type { FloatArray } from '../types.js';
 import { copyBlock } from '../geometry.js';
-import { candidatePlans, costPlans, firstPass, keepsTiles } from './plan-l2.js';
+import { candidatePlans, costPlans, firstPass, keepsTiles, l2Plan, type L2Plan } from './plan-l2.js';
 import { encodeField, encodeTile, fieldBasis, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
@@ -104,7 +104,7 @@ export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices
   const choice = new TrialChoice(spec);
   for (const [m, n, picked] of trialSamples(spec)) {
     if (!choice.worthTrying(m, n)) continue;
-    if (!basis.pointwise) choice.add(m, n, tryMosaic(src, spec, m, n, picked));
+    if (!basis.pointwise) choice.add(m, n, tryMosaic(src, spec, m, n, picked, basis));
     else {
       const tiles = pickedTiles(src, spec, m, n, picked);
       choice.add(m, n, tally(tiles.map((t) => t.index), tiles.map((t) => encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n), t.index))));
@@ -188,7 +188,7 @@ class TrialChoice {
     const rate = tried.bytes / Math.max(1, tried.valid);
     if (rate < this.rate) {
       this.rate = rate;
-      this.best = { shape: [m, n], done: tried.done };
+      this.best = { shape: [m, n], done: tried.done, ...(tried.plan ? { plan: tried.plan } : {}) };
     }
   }
 }
@@ -197,6 +197,8 @@ class TrialChoice {
 export interface TileTrial {
   shape: [number, number];
   done: Map<number, TileOutcome>;
+  /** Under an L2 bound, the plan of a trial whose small field was the first slice itself, as one tile (see FieldPrior). */
+  plan?: L2Plan;
 }
 
 /** What one candidate's sample cost. */
@@ -204,6 +206,7 @@ interface Tried {
   bytes: number;
   valid: number;
   done: Map<number, TileOutcome>;
+  plan?: L2Plan;
 }
 
 /** Tiles `picked` (row-major whole-tile numbers of an m x n grid) with their field tile index, read one band of tile rows at a time. */
@@ -257,9 +260,12 @@ function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tr
  * own basis and first pass, costed as the plan choice costs its candidate
  * plans (on every tile of the small field): the cheapest plan's bytes. A
  * small field whose first pass does not keep its tiles, or that has one
- * candidate plan, is packed whole instead.
+ * candidate plan, is packed whole instead. When the small field is the
+ * first slice itself as one tile (of the field's own tolerance, `field`),
+ * its plan is the one the field's planning pass would make from the same
+ * first pass and tiles, and is returned for it.
  */
-function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[]): Tried {
+function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices): Tried {
   const width = picked.length * n;
   const mosaic = spec.dtype === 'f32' ? new Float32Array(m * width) : new Float64Array(m * width);
   eachPicked(src, spec, m, n, picked, (k, band, j0) => copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n));
@@ -273,7 +279,10 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
     if (plans.length > 1) {
       const all = Array.from({ length: tiles }, (_, k) => k);
       const valid = first.spectra.valid.reduce((a, b) => a + b, 0);
-      return { bytes: costPlans(plans, all, first.kept).bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map() };
+      const costed = costPlans(plans, all, first.kept);
+      const whole = tiles === 1 && m === spec.rows && n === spec.cols && basis.tol === field.tol;
+      const plan = whole ? l2Plan(costed.plan, basis.fill, (index) => first.kept[index]) : undefined;
+      return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), ...(plan ? { plan } : {}) };
     }
   }
   let bytes = 0;

@@ -141,7 +141,7 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
  */
 export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool, prior?: FieldPrior): Promise<FieldResult> {
   const c = prior ? { ...prior.basis } : fieldBasis(src, spec);
-  if (!c.pointwise) c.plan = await planL2Parallel(src, spec, c, pool);
+  if (!c.pointwise) c.plan = prior?.plan ?? (await planL2Parallel(src, spec, c, pool));
   return encodeWithChoices(src, spec, c, pool, (index, o) => emit(index, { payload: o.payload, stats: o.stats }), false, prior?.done);
 }
 
