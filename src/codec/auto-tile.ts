@@ -35,7 +35,7 @@ const HUGE_SIDE = 2048;
 /** At most this many cells are sampled per candidate: fewer than {@link TRIAL_TILES} tiles of the largest squares. */
 const TRIAL_CELLS = 1 << 22;
 /** Largest whole-field tile tried (cells). */
-const WHOLE_CELLS = 1 << 18;
+export const WHOLE_CELLS = 1 << 18;
 /**
  * A field at most this thin (a time x space matrix, a few levels of a
  * long section) is also tried with tiles across its whole short side and
