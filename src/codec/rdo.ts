@@ -30,15 +30,17 @@ let diffTable: Float64Array | null = null;
 /** Rough bits of a prediction difference, for the rate-distortion search: 1 for 0, else 3 + 2 log2 |d| (looked up below DIFF_TABLE: the same values). */
 function diffBits(d: number): number {
   const a = d < 0 ? -d : d;
-  if (a < DIFF_TABLE) {
-    if (diffTable === null) {
-      diffTable = new Float64Array(DIFF_TABLE);
-      diffTable[0] = 1;
-      for (let k = 1; k < DIFF_TABLE; k++) diffTable[k] = 3 + 2 * Math.log2(k);
-    }
-    return diffTable[a];
+  return a < DIFF_TABLE ? bitsTable()[a] : 3 + 2 * Math.log2(a);
+}
+
+/** The table of {@link diffBits} below DIFF_TABLE (built once). */
+function bitsTable(): Float64Array {
+  if (diffTable === null) {
+    diffTable = new Float64Array(DIFF_TABLE);
+    diffTable[0] = 1;
+    for (let k = 1; k < DIFF_TABLE; k++) diffTable[k] = 3 + 2 * Math.log2(k);
   }
-  return 3 + 2 * Math.log2(a);
+  return diffTable;
 }
 
 /**
@@ -52,12 +54,12 @@ class RdoWalk {
   se = 0;
   bits = 0;
   constructor(
-    private readonly orig: FloatArray,
-    private readonly base: Float64Array,
-    private readonly codes: Uint8Array,
-    private readonly d: Int32Array,
+    readonly orig: FloatArray,
+    readonly base: Float64Array,
+    readonly codes: Uint8Array,
+    readonly d: Int32Array,
     readonly step: number,
-    private readonly w: number,
+    readonly w: number,
   ) {}
 
   settle(c: number, p: number): number {
@@ -92,16 +94,43 @@ class RdoWalk {
         return this.se > seLimit || this.bits > bitsLimit ? Number.NaN : v;
       });
     }
+    // settle() inline, with the sums in locals: the same operations in the same order.
+    const { orig, base, codes, d, step, w } = this;
+    const table = bitsTable();
+    let se = this.se;
+    let bits = this.bits;
     for (let i = 0; i < m; i++) {
       for (let j = 0; j < n; j++) {
         const c = i * n + j;
         const p = kind === Predictor.None ? 0 : i === 0 ? (j === 0 ? 0 : q[c - 1]) : j === 0 ? q[c - n] : interior(kind, q[c - 1], q[c - n], q[c - n - 1]);
-        const v = this.settle(c, p);
-        if (v !== v) return false;
+        if (codes[c] !== Cell.Valid) {
+          if (!(Math.abs(p) <= MAX_INT)) return false;
+          q[c] = p;
+          continue;
+        }
+        const x = (orig[c] - base[c]) / step;
+        let v = Math.round(x);
+        let dv = v - p;
+        if (dv !== 0) {
+          const alt = v + (p > v ? 1 : -1);
+          const da = alt - p;
+          const bitsAlt = (da < 0 ? -da : da) < DIFF_TABLE ? table[da < 0 ? -da : da] : diffBits(da);
+          const bitsV = (dv < 0 ? -dv : dv) < DIFF_TABLE ? table[dv < 0 ? -dv : dv] : diffBits(dv);
+          if ((x - alt) * (x - alt) + w * bitsAlt < (x - v) * (x - v) + w * bitsV) {
+            v = alt;
+            dv = da;
+          }
+        }
+        if (Math.abs(v) > MAX_INT || Math.abs(dv) > MAX_INT) return false;
+        d[c] = dv;
+        bits += (dv < 0 ? -dv : dv) < DIFF_TABLE ? table[dv < 0 ? -dv : dv] : diffBits(dv);
+        se += (x - v) * (x - v) * step * step;
         q[c] = v;
       }
-      if (this.se > seLimit || this.bits > bitsLimit || floor.cannotFit(i + 1, this.se, this.bits, seLimit, bitsLimit)) return false;
+      if (se > seLimit || bits > bitsLimit || floor.cannotFit(i + 1, se, bits, seLimit, bitsLimit)) return false;
     }
+    this.se = se;
+    this.bits = bits;
     return true;
   }
 }
