@@ -58,7 +58,7 @@ function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
   // rank 0 and at the rank the pointwise coder chose: the smallest.
   const mse = 0.97 * p.tol * p.tol;
   let best = encodePointwise(t, p.ePrime);
-  const rdo = rankZeroForMse(t, mse);
+  const rdo = rankZeroForMse(t, mse, best.length);
   if (rdo !== null && rdo.length < best.length) best = rdo;
   const r = payloadHead(best).rank;
   if (r > 0) {

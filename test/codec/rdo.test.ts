@@ -53,6 +53,23 @@ describe('residualForMse', () => {
     }
   });
 
+  it('gives up when plain rounding already points to a payload no smaller than the one the caller has', () => {
+    const [m, n] = [64, 96];
+    const values = precipTile(m, n);
+    const t = prepareTile(values, m, n, 'f32', null);
+    let lo = Infinity;
+    let hi = -Infinity;
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    const tol = (hi - lo) / 1000;
+    const mse = 0.97 * tol * tol;
+    const whole = rankZeroForMse(t, mse);
+    expect(whole).not.toBeNull();
+    // A one-byte payload is beyond any residual of this tile: no search.
+    expect(rankZeroForMse(t, mse, 1)).toBeNull();
+    // Far above what the search gives: the same payload as with no limit.
+    expect(Buffer.from(rankZeroForMse(t, mse, 100 * whole!.length)!).equals(Buffer.from(whole!))).toBe(true);
+  });
+
   it('refuses what it cannot code: no valid cell, or an allotment that is not a positive finite number', () => {
     const t = prepareTile(precipTile(8, 8), 8, 8, 'f32', null);
     expect(residualForMse(t, null, 0)).toBeNull();
