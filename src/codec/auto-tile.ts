@@ -188,7 +188,7 @@ class TrialChoice {
     const rate = tried.bytes / Math.max(1, tried.valid);
     if (rate < this.rate) {
       this.rate = rate;
-      this.best = { shape: [m, n], done: tried.done, ...(tried.plan ? { plan: tried.plan } : {}) };
+      this.best = { shape: [m, n], done: tried.done, ...(tried.plan ? { plan: tried.plan } : {}), ...(tried.spectra ? { spectra: tried.spectra } : {}) };
     }
   }
 }
@@ -199,6 +199,8 @@ export interface TileTrial {
   done: Map<number, TileOutcome>;
   /** Under an L2 bound, the plan of a trial whose small field was the first slice itself, as one tile (see FieldPrior). */
   plan?: L2Plan;
+  /** Under an L2 bound, the singular values of the sampled tiles, by the field's tile index (see FieldPrior). */
+  spectra?: ReadonlyMap<number, Float64Array>;
 }
 
 /** What one candidate's sample cost. */
@@ -207,6 +209,7 @@ interface Tried {
   valid: number;
   done: Map<number, TileOutcome>;
   plan?: L2Plan;
+  spectra?: ReadonlyMap<number, Float64Array>;
 }
 
 /** Tiles `picked` (row-major whole-tile numbers of an m x n grid) with their field tile index, read one band of tile rows at a time. */
@@ -268,13 +271,20 @@ function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tr
 function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices): Tried {
   const width = picked.length * n;
   const mosaic = spec.dtype === 'f32' ? new Float32Array(m * width) : new Float64Array(m * width);
-  eachPicked(src, spec, m, n, picked, (k, band, j0) => copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n));
+  // The field's tile index of each tile of the small field.
+  const fieldIndex: number[] = [];
+  eachPicked(src, spec, m, n, picked, (k, band, j0, index) => {
+    copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n);
+    fieldIndex[k] = index;
+  });
   const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
   const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false }; // the field's own pass guards
   const basis = fieldBasis(trialSrc, trial);
   const tiles = picked.length;
   if (!basis.pointwise && keepsTiles(trial)) {
-    const first = firstPass(trialSrc, trial, basis.tol, basis.fill);
+    // Each tile's singular values, by the field's tile index: the field's first pass takes them as they are (see tileSpectrum).
+    const spectra = new Map<number, Float64Array>();
+    const first = firstPass(trialSrc, trial, basis.tol, basis.fill, undefined, (k, s) => spectra.set(fieldIndex[k], s));
     const plans = candidatePlans(first.spectra, basis.tol);
     if (plans.length > 1) {
       const all = Array.from({ length: tiles }, (_, k) => k);
@@ -282,7 +292,7 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
       const costed = costPlans(plans, all, first.kept);
       const whole = tiles === 1 && m === spec.rows && n === spec.cols && basis.tol === field.tol;
       const plan = whole ? l2Plan(costed.plan, basis.fill, (index) => first.kept[index]) : undefined;
-      return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), ...(plan ? { plan } : {}) };
+      return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), spectra, ...(plan ? { plan } : {}) };
     }
   }
   let bytes = 0;

@@ -82,9 +82,9 @@ export function basisOf(spec: FieldSpec, range: [number, number] | null): FieldC
  * before), and for L2 bounds the planning pass (see plan-l2.ts), or `plan`
  * when the tile trial made it.
  */
-export function fieldChoices(src: BandSource, spec: FieldSpec, basis?: FieldChoices, plan?: L2Plan): FieldChoices {
+export function fieldChoices(src: BandSource, spec: FieldSpec, basis?: FieldChoices, plan?: L2Plan, known?: ReadonlyMap<number, Float64Array>): FieldChoices {
   const c = basis ? { ...basis } : fieldBasis(src, spec);
-  if (!c.pointwise) c.plan = plan ?? planL2(src, spec, c.tol, c.fill);
+  if (!c.pointwise) c.plan = plan ?? planL2(src, spec, c.tol, c.fill, undefined, known);
   return c;
 }
 
@@ -104,6 +104,8 @@ export interface FieldPrior {
    * is, not made again.
    */
   plan?: L2Plan;
+  /** The singular values of the tiles the trial sampled, by tile index: the planning pass takes them as they are (see tileSpectrum in plan-l2.ts). */
+  spectra?: ReadonlyMap<number, Float64Array>;
 }
 
 /** A tile as the encoder takes it: prepared in the planning pass (kept), or prepared now. */
@@ -163,7 +165,7 @@ export class FieldSummary {
  * and once more per encoding pass (L2 bounds make one extra pass).
  */
 export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, prior?: FieldPrior): FieldResult {
-  const c = fieldChoices(src, spec, prior?.basis, prior?.plan);
+  const c = fieldChoices(src, spec, prior?.basis, prior?.plan, prior?.spectra);
   const summary = new FieldSummary(c);
   forEachTile(src, spec, (index, tile, m, n) => {
     const o = prior?.done.get(index) ?? encodeTile(c, tileToEncode(c, index, tile, m, n), index);
