@@ -91,7 +91,9 @@ export interface ParallelPackOptions extends PackOptions {
    * Threads encoding tiles, the calling thread among them (default: the
    * core count, os.availableParallelism()): threads - 1 workers are started.
    * The archive is byte-identical for every count; 1 encodes in the calling
-   * thread alone, as {@link pack} does.
+   * thread alone, as {@link pack} does, and so does a field of at most 2^18
+   * cells with the tile trial (`tile` 'auto') when no `pool` is given:
+   * starting workers costs it more than they save.
    */
   threads?: number;
   /**
