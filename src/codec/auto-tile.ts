@@ -6,7 +6,7 @@
  */
 import type { FloatArray } from '../types.js';
 import { copyBlock } from '../geometry.js';
-import { candidatePlans, costPlans, firstPass, keepsTiles } from './plan-l2.js';
+import { candidatePlans, costPlans, firstPass, keepsTiles, l2Plan, type L2Plan } from './plan-l2.js';
 import { encodeField, encodeTile, fieldBasis, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
@@ -35,7 +35,7 @@ const HUGE_SIDE = 2048;
 /** At most this many cells are sampled per candidate: fewer than {@link TRIAL_TILES} tiles of the largest squares. */
 const TRIAL_CELLS = 1 << 22;
 /** Largest whole-field tile tried (cells). */
-const WHOLE_CELLS = 1 << 18;
+export const WHOLE_CELLS = 1 << 18;
 /**
  * A field at most this thin (a time x space matrix, a few levels of a
  * long section) is also tried with tiles across its whole short side and
@@ -104,7 +104,7 @@ export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices
   const choice = new TrialChoice(spec);
   for (const [m, n, picked] of trialSamples(spec)) {
     if (!choice.worthTrying(m, n)) continue;
-    if (!basis.pointwise) choice.add(m, n, tryMosaic(src, spec, m, n, picked));
+    if (!basis.pointwise) choice.add(m, n, tryMosaic(src, spec, m, n, picked, basis));
     else {
       const tiles = pickedTiles(src, spec, m, n, picked);
       choice.add(m, n, tally(tiles.map((t) => t.index), tiles.map((t) => encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n), t.index))));
@@ -188,7 +188,7 @@ class TrialChoice {
     const rate = tried.bytes / Math.max(1, tried.valid);
     if (rate < this.rate) {
       this.rate = rate;
-      this.best = { shape: [m, n], done: tried.done };
+      this.best = { shape: [m, n], done: tried.done, ...(tried.plan ? { plan: tried.plan } : {}), ...(tried.spectra ? { spectra: tried.spectra } : {}) };
     }
   }
 }
@@ -197,6 +197,10 @@ class TrialChoice {
 export interface TileTrial {
   shape: [number, number];
   done: Map<number, TileOutcome>;
+  /** Under an L2 bound, the plan of a trial whose small field was the first slice itself, as one tile (see FieldPrior). */
+  plan?: L2Plan;
+  /** Under an L2 bound, the singular values of the sampled tiles, by the field's tile index (see FieldPrior). */
+  spectra?: ReadonlyMap<number, Float64Array>;
 }
 
 /** What one candidate's sample cost. */
@@ -204,6 +208,8 @@ interface Tried {
   bytes: number;
   valid: number;
   done: Map<number, TileOutcome>;
+  plan?: L2Plan;
+  spectra?: ReadonlyMap<number, Float64Array>;
 }
 
 /** Tiles `picked` (row-major whole-tile numbers of an m x n grid) with their field tile index, read one band of tile rows at a time. */
@@ -257,23 +263,36 @@ function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tr
  * own basis and first pass, costed as the plan choice costs its candidate
  * plans (on every tile of the small field): the cheapest plan's bytes. A
  * small field whose first pass does not keep its tiles, or that has one
- * candidate plan, is packed whole instead.
+ * candidate plan, is packed whole instead. When the small field is the
+ * first slice itself as one tile (of the field's own tolerance, `field`),
+ * its plan is the one the field's planning pass would make from the same
+ * first pass and tiles, and is returned for it.
  */
-function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[]): Tried {
+function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices): Tried {
   const width = picked.length * n;
   const mosaic = spec.dtype === 'f32' ? new Float32Array(m * width) : new Float64Array(m * width);
-  eachPicked(src, spec, m, n, picked, (k, band, j0) => copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n));
+  // The field's tile index of each tile of the small field.
+  const fieldIndex: number[] = [];
+  eachPicked(src, spec, m, n, picked, (k, band, j0, index) => {
+    copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n);
+    fieldIndex[k] = index;
+  });
   const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
   const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false }; // the field's own pass guards
   const basis = fieldBasis(trialSrc, trial);
   const tiles = picked.length;
   if (!basis.pointwise && keepsTiles(trial)) {
-    const first = firstPass(trialSrc, trial, basis.tol, basis.fill);
+    // Each tile's singular values, by the field's tile index: the field's first pass takes them as they are (see tileSpectrum).
+    const spectra = new Map<number, Float64Array>();
+    const first = firstPass(trialSrc, trial, basis.tol, basis.fill, undefined, (k, s) => spectra.set(fieldIndex[k], s));
     const plans = candidatePlans(first.spectra, basis.tol);
     if (plans.length > 1) {
       const all = Array.from({ length: tiles }, (_, k) => k);
       const valid = first.spectra.valid.reduce((a, b) => a + b, 0);
-      return { bytes: costPlans(plans, all, first.kept).bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map() };
+      const costed = costPlans(plans, all, first.kept);
+      const whole = tiles === 1 && m === spec.rows && n === spec.cols && basis.tol === field.tol;
+      const plan = whole ? l2Plan(costed.plan, basis.fill, (index) => first.kept[index]) : undefined;
+      return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), spectra, ...(plan ? { plan } : {}) };
     }
   }
   let bytes = 0;

@@ -79,11 +79,12 @@ export function basisOf(spec: FieldSpec, range: [number, number] | null): FieldC
 
 /**
  * Make the field-level choices: {@link fieldBasis} (or `basis`, made
- * before), and for L2 bounds the planning pass (see plan-l2.ts).
+ * before), and for L2 bounds the planning pass (see plan-l2.ts), or `plan`
+ * when the tile trial made it.
  */
-export function fieldChoices(src: BandSource, spec: FieldSpec, basis?: FieldChoices): FieldChoices {
+export function fieldChoices(src: BandSource, spec: FieldSpec, basis?: FieldChoices, plan?: L2Plan, known?: ReadonlyMap<number, Float64Array>): FieldChoices {
   const c = basis ? { ...basis } : fieldBasis(src, spec);
-  if (!c.pointwise) c.plan = planL2(src, spec, c.tol, c.fill);
+  if (!c.pointwise) c.plan = plan ?? planL2(src, spec, c.tol, c.fill, undefined, known);
   return c;
 }
 
@@ -97,6 +98,14 @@ export function fieldChoices(src: BandSource, spec: FieldSpec, basis?: FieldChoi
 export interface FieldPrior {
   basis: FieldChoices;
   done: ReadonlyMap<number, TileOutcome>;
+  /**
+   * The L2 plan, when the trial made the field's own (a trial on the whole
+   * field as one tile plans exactly as the encoding pass would): used as it
+   * is, not made again.
+   */
+  plan?: L2Plan;
+  /** The singular values of the tiles the trial sampled, by tile index: the planning pass takes them as they are (see tileSpectrum in plan-l2.ts). */
+  spectra?: ReadonlyMap<number, Float64Array>;
 }
 
 /** A tile as the encoder takes it: prepared in the planning pass (kept), or prepared now. */
@@ -156,7 +165,7 @@ export class FieldSummary {
  * and once more per encoding pass (L2 bounds make one extra pass).
  */
 export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, prior?: FieldPrior): FieldResult {
-  const c = fieldChoices(src, spec, prior?.basis);
+  const c = fieldChoices(src, spec, prior?.basis, prior?.plan, prior?.spectra);
   const summary = new FieldSummary(c);
   forEachTile(src, spec, (index, tile, m, n) => {
     const o = prior?.done.get(index) ?? encodeTile(c, tileToEncode(c, index, tile, m, n), index);

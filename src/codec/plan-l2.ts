@@ -11,7 +11,7 @@ import { cutBlock } from '../geometry.js';
 import { forEachTile, tileGrid, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
-import { prepareTile, type PreparedTile } from './prepare.js';
+import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
 import { encodeL2, encodePointwise, exactPayload, pointwiseFactors } from './tile-encode.js';
@@ -58,7 +58,7 @@ function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
   // rank 0 and at the rank the pointwise coder chose: the smallest.
   const mse = 0.97 * p.tol * p.tol;
   let best = encodePointwise(t, p.ePrime);
-  const rdo = rankZeroForMse(t, mse);
+  const rdo = rankZeroForMse(t, mse, best.length);
   if (rdo !== null && rdo.length < best.length) best = rdo;
   const r = payloadHead(best).rank;
   if (r > 0) {
@@ -83,15 +83,43 @@ export function keepsTiles(spec: Pick<FieldSpec, 'rows' | 'cols' | 'slices'>): b
   return (spec.slices ?? 1) * spec.rows * spec.cols <= KEEP_CELLS;
 }
 
-/** The first pass over one tile: prepare it and take its whole spectrum. */
-export function firstPassTile(tile: FloatArray, m: number, n: number, spec: Pick<FieldSpec, 'dtype' | 'progressive'>, fill: Uint32Array | null, tol: number, keep: boolean): FirstPassTile {
+/**
+ * The first pass over one tile: prepare it and take its whole spectrum.
+ * `known`: the singular values the tile trial took of these same values
+ * (see {@link tileSpectrum}); `seen` is handed the singular values taken.
+ */
+export function firstPassTile(
+  tile: FloatArray,
+  m: number,
+  n: number,
+  spec: Pick<FieldSpec, 'dtype' | 'progressive'>,
+  fill: Uint32Array | null,
+  tol: number,
+  keep: boolean,
+  known?: Float64Array,
+  seen?: (s: Float64Array) => void,
+): FirstPassTile {
   const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
-  const usable = t.valid > 0 && t.finite;
-  // The full spectrum: cutting the field-wide smallest values needs every one of them, and only
-  // their squares to the budget's accuracy, so the Gram matrix's eigenvalues serve (src/linalg/spectrum.ts).
-  // The second pass computes singular vectors only up to the rank it codes.
-  const s = !usable ? new Float64Array(0) : gramSingularValues(t.centred, m, n);
+  const s = tileSpectrum(t, known);
+  seen?.(s);
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
+}
+
+/**
+ * A prepared tile's singular values (none when it has no valid cell or
+ * overflowed). The full spectrum: cutting the field-wide smallest values
+ * needs every one of them, and only their squares to the budget's accuracy,
+ * so the Gram matrix's eigenvalues serve (src/linalg/spectrum.ts); the
+ * second pass computes singular vectors only up to the rank it codes.
+ * `known`, when given, are the values computed before from the same tile
+ * values, prepared with another tolerance: they serve as they are for a
+ * tile without missing cells, whose prepared (centred) values do not
+ * depend on the tolerance (only the filling of missing cells does).
+ */
+export function tileSpectrum(t: PreparedTile, known?: Float64Array): Float64Array {
+  if (!(t.valid > 0 && t.finite)) return new Float64Array(0);
+  if (known !== undefined && t.classes.special === 0 && known.length === Math.min(t.m, t.n)) return known;
+  return gramSingularValues(t.centred, t.m, t.n);
 }
 
 /**
@@ -113,13 +141,25 @@ export function cuttable(sv2: Float64Array, cells: number): Float64Array {
   return sv2.subarray(j);
 }
 
-/** The first pass over every tile of a field, in this thread, into a {@link Spectra} store (and the prepared tiles, when kept). */
-export function firstPass(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null): { spectra: Spectra; kept: PreparedTile[] } {
+/**
+ * The first pass over every tile of a field, in this thread, into a
+ * {@link Spectra} store (and the prepared tiles, when kept). `known`: the
+ * singular values the tile trial took, by tile index; `seen` is handed each
+ * tile's singular values.
+ */
+export function firstPass(
+  src: BandSource,
+  spec: FieldSpec,
+  tol: number,
+  fill: Uint32Array | null,
+  known?: ReadonlyMap<number, Float64Array>,
+  seen?: (index: number, s: Float64Array) => void,
+): { spectra: Spectra; kept: PreparedTile[] } {
   const keep = keepsTiles(spec);
   const spectra = new Spectra(tileCount(spec));
   const kept: PreparedTile[] = [];
-  forEachTile(src, spec, (_index, tile, m, n) => {
-    const f = firstPassTile(tile, m, n, spec, fill, tol, keep);
+  forEachTile(src, spec, (index, tile, m, n) => {
+    const f = firstPassTile(tile, m, n, spec, fill, tol, keep, known?.get(index), seen && ((s) => seen(index, s)));
     spectra.add(f);
     if (keep) kept.push(f.tile!);
   });
@@ -136,11 +176,12 @@ function tileCount(spec: FieldSpec): number {
  * First pass and plan choice; the returned plan encodes one tile at a time.
  * `first` gives the first pass's results (spectra of every tile, in tile
  * order, and the prepared tiles when the field is small enough to keep them)
- * when it was made elsewhere (on worker threads); by default it is made here.
+ * when it was made elsewhere (on worker threads); by default it is made here
+ * (with the singular values the tile trial took, `known`, by tile index).
  */
-export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: { spectra: Spectra; kept: PreparedTile[] }): L2Plan {
+export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: { spectra: Spectra; kept: PreparedTile[] }, known?: ReadonlyMap<number, Float64Array>): L2Plan {
   const keep = keepsTiles(spec);
-  const { spectra, kept } = first ?? firstPass(src, spec, tol, fill);
+  const { spectra, kept } = first ?? firstPass(src, spec, tol, fill, known);
   // Internal assertion: the first pass covers every tile, in order.
   if (spectra.count !== spectra.tiles || (keep && kept.length !== spectra.tiles)) throw new Error(`the first pass planned ${spectra.count} of ${spectra.tiles} tiles`);
   const data = chooseL2(spectra, tol, (sample) => (keep ? sample.map((i) => kept[i]) : readTiles(src, spec, fill, sample, tol)));
@@ -196,9 +237,17 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
   for (const [at, p] of plans.entries()) {
     let bytes = 0;
     for (let k = 0; k < sample.length; k++) {
-      // The last plan stops once it cannot be cheapest (ties go to the earlier plan): no plan after it
-      // would find the tiles' singular vectors left otherwise than now.
-      if (at === plans.length - 1 && bytes >= bestBytes) break;
+      if (bytes >= bestBytes) {
+        // The plan cannot be cheapest (ties go to the earlier plan), so its payloads are not needed. The
+        // last plan stops here; a rank plan before it still leaves each tile's singular vectors as its
+        // encoding would (a later plan's payloads depend on them: see ensureSvd); a residual plan before
+        // the last is encoded whole.
+        if (at === plans.length - 1) break;
+        if (p.kind === 'rank') {
+          leaveSvd(tiles[k], p.ranks[sample[k]]);
+          continue;
+        }
+      }
       bytes += encodeWith(p, tiles[k], sample[k]).length;
     }
     if (bytes < bestBytes) {
@@ -210,6 +259,11 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
   // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
   for (const t of tiles) t.svd = null;
   return { plan: best, bytes: bestBytes };
+}
+
+/** What encoding a tile at rank r under a rank plan leaves on it: the singular vectors {@link encodeL2} asks for. */
+function leaveSvd(t: PreparedTile, r: number): void {
+  if (t.finite && r > 0 && t.valid > 0) ensureSvd(t, Math.min(r, t.m, t.n));
 }
 
 /**

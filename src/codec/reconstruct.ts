@@ -232,6 +232,21 @@ export function unpredict(d: Int32Array, m: number, n: number, limit: number, ki
  * predict()'s output, for the encoder's choice of predictor.
  */
 export function predictorBits(q: Int32Array, m: number, n: number, limit: number): Float64Array {
+  const sums = new Float64Array(PREDICTOR_SUMS);
+  for (let i = 0; i < m; i++) if (!predictorBitsRow(q, n, limit, i, sums)) return predictorBitsOf(null);
+  return predictorBitsOf(sums);
+}
+
+/** Length of the running sums of {@link predictorBitsRow}: five bit sums and the flags of the predictors whose differences exceeded the limit. */
+export const PREDICTOR_SUMS = 6;
+
+/**
+ * Row i's part of {@link predictorBits}, added into `sums`; it reads rows i
+ * and i - 1 of q only, so an encoder may add each row as soon as its codes
+ * are settled. False when a difference on the edge (the same for every
+ * predictor) exceeds `limit`: every entry is then Infinity.
+ */
+export function predictorBitsRow(q: Int32Array, n: number, limit: number, i: number, sums: Float64Array): boolean {
   let lorenzo = 0;
   let left = 0;
   let up = 0;
@@ -239,46 +254,57 @@ export function predictorBits(q: Int32Array, m: number, n: number, limit: number
   let median = 0;
   const bits = (v: number) => 32 - Math.clz32(v < 0 ? -v : v);
   let over = 0;
-  for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      const c = i * n + j;
-      if (i === 0 || j === 0) {
-        // The edge rule is the same for every predictor.
-        const v = q[c] - (i === 0 ? (j === 0 ? 0 : q[c - 1]) : q[c - n]);
-        if (v > limit || v < -limit) return Float64Array.of(Infinity, Infinity, Infinity, Infinity, Infinity);
-        const b = bits(v);
-        lorenzo += b;
-        left += b;
-        up += b;
-        average += b;
-        median += b;
-        continue;
-      }
-      const x = q[c];
-      const a = q[c - 1];
-      const b = q[c - n];
-      const d = q[c - n - 1];
-      const lo = a < b ? a : b;
-      const hi = a < b ? b : a;
-      const v1 = x - (a + b - d);
-      const v2 = x - a;
-      const v3 = x - b;
-      const v4 = x - Math.floor((a + b) / 2);
-      const v5 = x - (d >= hi ? lo : d <= lo ? hi : a + b - d);
-      lorenzo += bits(v1);
-      left += bits(v2);
-      up += bits(v3);
-      average += bits(v4);
-      median += bits(v5);
-      if (v1 > limit || v1 < -limit) over |= 1;
-      if (v2 > limit || v2 < -limit) over |= 2;
-      if (v3 > limit || v3 < -limit) over |= 4;
-      if (v4 > limit || v4 < -limit) over |= 8;
-      if (v5 > limit || v5 < -limit) over |= 16;
+  for (let j = 0; j < n; j++) {
+    const c = i * n + j;
+    if (i === 0 || j === 0) {
+      // The edge rule is the same for every predictor.
+      const v = q[c] - (i === 0 ? (j === 0 ? 0 : q[c - 1]) : q[c - n]);
+      if (v > limit || v < -limit) return false;
+      const b = bits(v);
+      lorenzo += b;
+      left += b;
+      up += b;
+      average += b;
+      median += b;
+      continue;
     }
+    const x = q[c];
+    const a = q[c - 1];
+    const b = q[c - n];
+    const d = q[c - n - 1];
+    const lo = a < b ? a : b;
+    const hi = a < b ? b : a;
+    const v1 = x - (a + b - d);
+    const v2 = x - a;
+    const v3 = x - b;
+    const v4 = x - Math.floor((a + b) / 2);
+    const v5 = x - (d >= hi ? lo : d <= lo ? hi : a + b - d);
+    lorenzo += bits(v1);
+    left += bits(v2);
+    up += bits(v3);
+    average += bits(v4);
+    median += bits(v5);
+    if (v1 > limit || v1 < -limit) over |= 1;
+    if (v2 > limit || v2 < -limit) over |= 2;
+    if (v3 > limit || v3 < -limit) over |= 4;
+    if (v4 > limit || v4 < -limit) over |= 8;
+    if (v5 > limit || v5 < -limit) over |= 16;
   }
-  const out = Float64Array.of(lorenzo, left, up, average, median);
-  for (let k = 0; k < 5; k++) if (over & (1 << k)) out[k] = Infinity;
+  // Sums of whole bit counts, exact in binary64: the same totals in any grouping.
+  sums[0] += lorenzo;
+  sums[1] += left;
+  sums[2] += up;
+  sums[3] += average;
+  sums[4] += median;
+  sums[5] = sums[5] | over;
+  return true;
+}
+
+/** The five figures of {@link predictorBits} from the sums of every row (null: an edge difference exceeded the limit). */
+export function predictorBitsOf(sums: Float64Array | null): Float64Array {
+  if (sums === null) return Float64Array.of(Infinity, Infinity, Infinity, Infinity, Infinity);
+  const out = sums.slice(0, 5);
+  for (let k = 0; k < 5; k++) if (sums[5] & (1 << k)) out[k] = Infinity;
   return out;
 }
 

@@ -8,7 +8,7 @@ import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
-import { lowRank, predict, predictorBits, predictedFill, Predictor, withResidual } from './reconstruct.js';
+import { lowRank, predict, predictorBitsOf, predictorBitsRow, predictedFill, Predictor, PREDICTOR_SUMS, withResidual } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -252,6 +252,41 @@ function roughBits(v: Int32Array): number {
 }
 
 /**
+ * Settle the codes of a checked candidate into q (0 where none is kept: a
+ * code of 0, or one beyond +-MAX_INT) and its failing cells into
+ * `exceptions`, cell by cell with the decoder's arithmetic (see
+ * {@link correct}). With `sums` (a tile without missing cells), each row's
+ * part of predictorBits is added as soon as the row is settled, while it is
+ * in cache. Returns whether a code is kept, the rough bits of q itself, and
+ * false in `sumsOk` when an edge difference passed the code limit.
+ */
+function settleCodes(t: PreparedTile, base: Float64Array, e: number, step: number, q: Int32Array, exceptions: number[], sums: Float64Array | null): { any: boolean; bits: number; sumsOk: boolean } {
+  const { m, n, orig } = t;
+  const codes = t.classes.codes;
+  const f32 = t.dtype === 'f32';
+  let any = false;
+  let bits = 0;
+  let sumsOk = sums !== null;
+  for (let i = 0; i < m; i++) {
+    for (let c = i * n; c < i * n + n; c++) {
+      if (codes[c] !== Cell.Valid) continue;
+      const o = orig[c];
+      const v = Math.round((o - base[c]) / step);
+      const kept = v !== 0 && Math.abs(v) <= MAX_INT;
+      if (kept) {
+        q[c] = v;
+        any = true;
+        bits += 32 - Math.clz32(v < 0 ? -v : v);
+      }
+      const sum = withResidual(base[c], kept ? v : 0, step);
+      if (!(Math.abs(o - (f32 ? Math.fround(sum) : sum)) <= e)) exceptions.push(c);
+    }
+    if (sumsOk) sumsOk = predictorBitsRow(q, n, MAX_INT, i, sums!);
+  }
+  return { any, bits, sumsOk };
+}
+
+/**
  * The residual of a candidate against the pointwise bound e, computed with the
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
  * The step is 2e, or `step` when given (with `center`, for lattice candidates).
@@ -277,29 +312,19 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   const checked = e > 0 && Number.isFinite(step);
   if (checked) {
     q = new Int32Array(cells);
-    let any = false;
-    for (let c = 0; c < cells; c++) {
-      if (codes[c] !== Cell.Valid) continue;
-      const o = t.orig[c];
-      const v = Math.round((o - base[c]) / step);
-      const kept = v !== 0 && Math.abs(v) <= MAX_INT;
-      if (kept) {
-        q[c] = v;
-        any = true;
-      }
-      const sum = withResidual(base[c], kept ? v : 0, step);
-      if (!(Math.abs(o - (f32 ? Math.fround(sum) : sum)) <= e)) exceptions.push(c);
-    }
-    if (!any) q = null;
+    // Without missing cells, the plain predictors' bits are summed row by row as the codes are settled.
+    const sums = t.classes.special > 0 ? null : new Float64Array(PREDICTOR_SUMS);
+    const settled = settleCodes(t, base, e, step, q, exceptions, sums);
+    if (!settled.any) q = null;
     else {
       // The predictor whose residual looks cheapest. Missing cells take the value the
       // predictor expects, so they cost nothing (the decoder overwrites them anyway).
       let best = q;
-      let bestBits = roughBits(q);
+      let bestBits = settled.bits;
       let blend: Int32Array | null = null;
-      // Without missing cells, the plain predictors' bits come from one pass over q, and only the
-      // winner's differences are formed; with them, each predictor fills the missing cells its own way.
-      const plain = t.classes.special > 0 ? null : predictorBits(q, m, n, MAX_INT);
+      // Without missing cells, only the winner's differences are formed; with them, each predictor
+      // fills the missing cells its own way.
+      const plain = sums === null ? null : predictorBitsOf(settled.sumsOk ? sums : null);
       for (const kind of PREDICTORS) {
         if (kind === Predictor.Blend && !blendToo) continue;
         if (plain !== null && kind !== Predictor.Blend) {

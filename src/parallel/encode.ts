@@ -61,8 +61,8 @@ export const encodeTasks = {
     const payload = own ? o.payload : o.payload.slice();
     return { result: { ...o, payload }, transfer: [payload.buffer as ArrayBuffer] };
   },
-  'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean }) {
-    const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep);
+  'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean; known?: Float64Array }) {
+    const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep, body.known);
     return { result: f, transfer: [f.sv2.buffer as ArrayBuffer] };
   },
   'encode-forget'(body: { key: number }) {
@@ -141,7 +141,7 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
  */
 export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool, prior?: FieldPrior): Promise<FieldResult> {
   const c = prior ? { ...prior.basis } : fieldBasis(src, spec);
-  if (!c.pointwise) c.plan = await planL2Parallel(src, spec, c, pool);
+  if (!c.pointwise) c.plan = prior?.plan ?? (await planL2Parallel(src, spec, c, pool, prior?.spectra));
   return encodeWithChoices(src, spec, c, pool, (index, o) => emit(index, { payload: o.payload, stats: o.stats }), false, prior?.done);
 }
 
@@ -201,15 +201,19 @@ export async function encodeTilesOn(pool: WorkerPool, c: FieldChoices, tiles: Pi
 /**
  * The L2 plan of a field whose basis `c` is made (pointwise false): the
  * first pass (every tile's spectrum) on `pool`, then the plan chosen here,
- * as {@link planL2} makes it in one thread.
+ * as {@link planL2} makes it in one thread (with the singular values the
+ * tile trial took, `known`, by tile index).
  */
-export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool): Promise<L2Plan> {
+export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool, known?: ReadonlyMap<number, Float64Array>): Promise<L2Plan> {
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   // Of each tile's first pass, the planner keeps its spectrum in a flat store (and the prepared tile only for small fields).
   const [gr, gc] = tileGrid(spec);
   const first = { spectra: new Spectra((spec.slices ?? 1) * gr * gc), kept: [] as PreparedTile[] };
   const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
-  const post = ({ tile, m, n }: { tile: FloatArray; m: number; n: number }) => pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n }, [tile.buffer as ArrayBuffer]);
+  const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
+    const values = known?.get(index);
+    return pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n, ...(values ? { known: values } : {}) }, [tile.buffer as ArrayBuffer]);
+  };
   const take = (f: FirstPassTile) => {
     first.spectra.add(f);
     if (body.keep) first.kept.push(f.tile!);

@@ -11,7 +11,8 @@
  * not fit) is common practice, no source.
  */
 import { describe, expect, it } from 'vitest';
-import { cuttable, eckartYoungPlans, firstPass, keepsTiles, planL2 } from '../../src/codec/plan-l2.js';
+import { cuttable, eckartYoungPlans, firstPass, keepsTiles, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
 import { memoryBands, type FieldSpec } from '../../src/codec/tiles.js';
 import { mulberry32 } from '../rng.js';
@@ -153,5 +154,23 @@ describe('Spectra (what the planner keeps of the first pass)', () => {
     // The plan keeps per tile one allotment (and, for a rank plan, one rank): nothing that grows with the tile.
     expect(plan.data.allot.length).toBe(16);
     expect(plan.data.ranks.length === 16 || plan.data.ranks.length === 0).toBe(true);
+  });
+});
+
+describe('tileSpectrum (singular values the tile trial took, used again)', () => {
+  it('takes known values for a tile without missing cells at any tolerance, and recomputes a tile whose filling depends on it', () => {
+    const rand = mulberry32(7);
+    const values = Float32Array.from({ length: 24 * 16 }, (_, c) => Math.sin(c / 7) + 0.1 * rand());
+    const own = tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.01));
+    const marker = Float64Array.from(own, (v) => v + 1);
+    // Centring does not depend on the tolerance: the values computed at one serve at another.
+    expect(tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.5), marker)).toBe(marker);
+    expect(Array.from(tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.5)))).toEqual(Array.from(own));
+    // A missing cell is filled by a low-rank fill that depends on the tolerance: computed afresh.
+    const holed = Float32Array.from(values);
+    holed[30] = Number.NaN;
+    const again = tileSpectrum(prepareTile(holed, 24, 16, 'f32', null, 0.5), marker);
+    expect(again).not.toBe(marker);
+    expect(again.length).toBe(16);
   });
 });

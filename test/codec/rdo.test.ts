@@ -30,18 +30,23 @@ function mseOf(a: ArrayLike<number>, b: ArrayLike<number>): number {
   return s / a.length;
 }
 
+/** The 64 x 96 block prepared, with the RMSE limit of PSNR 60 dB over its range and the allotment the L2 plan gives a residual (0.97 tol^2). */
+function precipCase() {
+  const [m, n] = [64, 96];
+  const values = precipTile(m, n);
+  const t = prepareTile(values, m, n, 'f32', null);
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+  // PSNR 60 dB over the block's range: RMSE limit range / 10^3 (PSNR = 20 log10(range / RMSE), common usage).
+  const tol = (hi - lo) / 1000;
+  return { m, n, values, t, tol, mse: 0.97 * tol * tol };
+}
+
 describe('residualForMse', () => {
   it('keeps the factors it is given and meets the squared-error allotment on the decoded values', () => {
-    const [m, n] = [64, 96];
-    const values = precipTile(m, n);
+    const { m, n, values, t, tol, mse } = precipCase();
     expect(values.every(Number.isFinite)).toBe(true);
-    const t = prepareTile(values, m, n, 'f32', null);
-    let lo = Infinity;
-    let hi = -Infinity;
-    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
-    // PSNR 60 dB over the block's range: RMSE limit range / 10^3 (PSNR = 20 log10(range / RMSE), common usage).
-    const tol = (hi - lo) / 1000;
-    const mse = 0.97 * tol * tol;
     for (const rank of [0, 2, 5]) {
       const f = rank > 0 ? pointwiseFactors(t, rank, Math.sqrt(3) * tol) : null;
       if (rank > 0) expect(f).not.toBeNull();
@@ -51,6 +56,16 @@ describe('residualForMse', () => {
       const back = decodeTile(payload!, { m, n, dtype: 'f32', fill: null, where: 'test' });
       expect(mseOf(back, values), `rank ${rank}`).toBeLessThanOrEqual(mse);
     }
+  });
+
+  it('gives up when plain rounding already points to a payload no smaller than the one the caller has', () => {
+    const { t, mse } = precipCase();
+    const whole = rankZeroForMse(t, mse);
+    expect(whole).not.toBeNull();
+    // A one-byte payload is beyond any residual of this tile: no search.
+    expect(rankZeroForMse(t, mse, 1)).toBeNull();
+    // Far above what the search gives: the same payload as with no limit.
+    expect(Buffer.from(rankZeroForMse(t, mse, 100 * whole!.length)!).equals(Buffer.from(whole!))).toBe(true);
   });
 
   it('refuses what it cannot code: no valid cell, or an allotment that is not a positive finite number', () => {

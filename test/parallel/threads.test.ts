@@ -81,18 +81,24 @@ describe('packAsync: the same archive for every thread count', () => {
     const one = Float32Array.from(g.values);
     const stack = new Float32Array(one.length * 3);
     for (let s = 0; s < 3; s++) stack.set(one.map((v) => v + 10 * s), s * one.length);
-    const build = async (threads: number | null) => {
+    // A field this small with the tile trial packs in the calling thread unless the caller gives a pool: given here, so the workers run.
+    const build = async (pool: InstanceType<typeof lib.WorkerPool> | null) => {
       const sink = new lib.MemorySink();
       const b = new lib.ArchiveBuilder(sink, {}, { slices: true });
       const o = { bound: 'psnr:50', name: 'stack', slices: 3, ndShape: [3, ...g.shape], tile: 'auto' as const };
-      if (threads === null) b.add(stack, g.shape, o);
-      else await b.addAsync(stack, g.shape, { ...o, threads });
+      if (pool === null) b.add(stack, g.shape, o);
+      else await b.addAsync(stack, g.shape, { ...o, pool });
       // A pointwise bound with the tile trial: the tiles it encoded are used as the field's own, on any thread count.
-      await b.addAsync(one, g.shape, { bound: 'rel:1e-4', name: 'plain', tile: 'auto', threads: threads ?? 1 });
+      await b.addAsync(one, g.shape, { bound: 'rel:1e-4', name: 'plain', tile: 'auto', ...(pool === null ? { threads: 1 } : { pool }) });
       b.finish();
       return sink.bytes();
     };
-    expect(same(await build(3), await build(null))).toBe(true);
+    const pool = new lib.WorkerPool(3);
+    try {
+      expect(same(await build(pool), await build(null))).toBe(true);
+    } finally {
+      await pool.close();
+    }
   }, 120_000);
 
   it('refuses a thread count that is not an integer from 1 to MAX_THREADS', async () => {
