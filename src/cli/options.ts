@@ -116,7 +116,14 @@ export function threadsOption(text: string): number {
 /** Fields of fewer values are packed in one thread unless --threads says otherwise: starting a worker costs about a tenth of a second. */
 const MIN_PARALLEL_CELLS = 1 << 18;
 
-/** The threads of one field: as given, or by default 1 for a small field and the core count otherwise. */
-export function defaultThreads(given: number | undefined, cells: number): number | undefined {
+/**
+ * The threads of one field: as given, or by default 1 for a small field and
+ * the core count otherwise; 1 in any case for a field of at most 2^18
+ * values whose tile is chosen by trial (`autoTile`), which the library packs
+ * in the calling thread (WHOLE_CELLS in src/codec/auto-tile.ts, the same
+ * 2^18, not imported here so that short commands load no encoder).
+ */
+export function defaultThreads(given: number | undefined, cells: number, autoTile = false): number | undefined {
+  if (autoTile && cells <= MIN_PARALLEL_CELLS) return 1;
   return given !== undefined ? given : cells < MIN_PARALLEL_CELLS ? 1 : undefined;
 }

@@ -29,8 +29,8 @@ export function packChoices(tile: unknown, layout: PackChoices['layout'], given:
   return {
     tile: tile === undefined || tile === 'auto' ? 'auto' : 'given',
     layout,
-    threads: given ?? resolved ?? availableParallelism(),
-    threadsAuto: given === undefined,
+    threads: resolved ?? given ?? availableParallelism(),
+    threadsAuto: given === undefined || resolved !== given,
   };
 }
 
@@ -59,7 +59,7 @@ export function packDetails(facts: ArchiveFacts, c: PackChoices, many: boolean):
     const how = c.layout === 'default' ? ' (the default for .npy and raw arrays of 3+ axes; --matrix lays them out as a matrix)' : auto(c.layout === 'auto', 'the layout that packed smallest on a sample; --layout slices or --matrix fixes it');
     lines.push(`  layout ${layouts}${how}`);
   }
-  lines.push(`  threads ${c.threads}${auto(c.threadsAuto, 'one for a field under 2^18 values, else the number of cores; --threads fixes it')}`);
+  lines.push(`  threads ${c.threads}${auto(c.threadsAuto, 'one for a field under 2^18 values or, with the tile chosen by trial, of at most 2^18; else the number of cores; --threads fixes it for the others')}`);
   for (const f of facts.fields) lines.push(...fieldLines(f, many));
   return lines.join('\n') + '\n';
 }

@@ -165,7 +165,7 @@ async function packArray(input: string, kind: InputKind, flags: PackFlags & { bo
     checkFill(fill, field.dtype);
     const name = flags.name ?? defaultName(input);
     const band = watchedBand(field, grid, input, fill, watch, (n) => (fills += n));
-    threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1]);
+    threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1], flags.tile === undefined || flags.tile === 'auto');
     await writeOutputWith(flags.output, io, async (sink) => {
       const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
       const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
@@ -267,7 +267,7 @@ async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, ou
       for (const f of fields) {
         const cells = f.slices * f.rows * f.cols;
         const bar = out.tileProgress(`packing '${printable(f.name)}'`, cells * (f.read.dtype === 'f32' ? 4 : 8));
-        const fieldThreads = defaultThreads(flags.threads, cells);
+        const fieldThreads = defaultThreads(flags.threads, cells, flags.tile === undefined || flags.tile === 'auto');
         if (threads === undefined || (fieldThreads ?? Infinity) > threads) threads = fieldThreads;
         const band = fieldBands(f);
         const read = (r0: number, count: number): FloatArray => {

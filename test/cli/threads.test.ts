@@ -42,6 +42,14 @@ describe('--threads', { timeout: CLI_TIMEOUT * 2 }, () => {
     }
   });
 
+  it('reports the threads a pack used: one for a small field whose tile is chosen by trial, whatever --threads says', async () => {
+    const r = await rfIn(['pack', 'masked.npy', '-o', 'auto3.rfz', '--bound', 'rel:1e-3', '--fill', '-999', '--threads', '3'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout).toMatch(/\n  threads 1 \(chosen automatically: /);
+    const fixed = await rfIn(['pack', 'masked.npy', '-o', 'fixed3.rfz', '--bound', 'rel:1e-3', '--fill', '-999', '--tile', '16x24', '--threads', '3'], dir);
+    expect(fixed.stdout).toMatch(/\n  threads 3\n/);
+  });
+
   it('unpack writes, band by band, the .npy and raw bytes of the values Archive.read returns, with 1 and 2 threads', async () => {
     expect((await rfIn(['pack', 'precip.npy', '-o', 'u.rfz', '--bound', 'rel:1e-3', '--tile', '24x40'], dir)).code).toBe(0);
     const archive = await open(new Uint8Array(bytesOf('u.rfz')));
