@@ -111,14 +111,23 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const acc = new Float64Array(cells);
   lowRank(factors.l, factors.w, m, n, factors.rank, center, acc);
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  reconstruct(acc, residual.q, residual.step, out);
+  const finite = reconstruct(acc, residual.q, residual.step, out);
   applyExceptions(out, exceptions, ctx);
-  // A valid cell must decode to a finite value; anything else is a damaged or hostile payload.
-  for (let c = 0; c < cells; c++) {
-    if ((codes === null || codes[c] === Cell.Valid) && !Number.isFinite(out[c])) throw malformed(where, `valid ${cellName(c, n)} decodes to ${out[c]}, not a finite value`);
-  }
+  // A valid cell must decode to a finite value; anything else is a damaged or hostile payload. With every
+  // reconstructed value finite, only the exceptions' values are left to look at (in cell order, as below).
+  if (finite) checkFinite(out, exceptions.cells, null, ctx);
+  else checkFinite(out, null, codes, ctx);
   if (mask !== null) applyClasses(out, mask.codes, mask.rawNaN, ctx.fill);
   return out;
+}
+
+/** Refuse the first valid cell (of `cells`, or of all when null; skipping missing cells of `codes`) whose value is not finite. */
+function checkFinite(out: FloatArray, cells: Uint32Array | null, codes: Uint8Array | null, ctx: TileContext): void {
+  const count = cells === null ? out.length : cells.length;
+  for (let k = 0; k < count; k++) {
+    const c = cells === null ? k : cells[k];
+    if ((codes === null || codes[c] === Cell.Valid) && !Number.isFinite(out[c])) throw malformed(ctx.where, `valid ${cellName(c, ctx.n)} decodes to ${out[c]}, not a finite value`);
+  }
 }
 
 /** Read and check the mask section: the cells' classes and the raw NaN bits of class-5 cells. */
