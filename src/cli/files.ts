@@ -17,7 +17,10 @@ import { link, lstat, open as openFile, opendir, readlink, rename, stat, unlink 
 import { hostname } from 'node:os';
 import { basename, dirname, join, resolve } from 'node:path';
 import { HttpSource } from '../io/http-source.js';
-import { open, type Archive, type ByteSource, type Sink } from '../index.js';
+import type { Archive } from '../archive.js';
+import type { Sink } from '../format/container.js';
+import type { ByteSource } from '../io/source.js';
+import { open } from '../open-file.js';
 import { FileSink } from '../io/file-sink.js';
 import { FileSource } from '../io/file-source.js';
 import { fileKind, openRegular } from '../io/regular-file.js';

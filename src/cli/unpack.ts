@@ -7,11 +7,11 @@ import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, trackTempDir, writeOutput, writeOutputWith } from './files.js';
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
-import { byPath, carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
+import { restoreMissing } from '../missing.js';
+import { byPath, isNetcdfPath } from './names.js';
 import { dimNames, notOneBox, type Region, type Span, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
 import type { Archive, FloatArray } from '../index.js';
-import { writeNetcdf, type NcWriteFile } from '../io/netcdf-write.js';
-import { writeNetcdf4 } from '../io/hdf5-write.js';
+import type { NcWriteFile } from '../io/netcdf-write.js';
 import { mkdtemp, readFile, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { printable } from '../format/schema.js';
@@ -376,6 +376,7 @@ async function unpackNetcdf({ archive, input, flags, io, start, out }: UnpackJob
     const f = await archive.read(name);
     fields.push({ h: archive.field(name).header, shape: f.shape, values: f.values });
   }
+  const { netcdfFromFields } = await netcdfCode();
   const bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, fields), flags.netcdf4 === true);
   await writeOutput(flags.output, bytes, io);
   const format = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
@@ -470,6 +471,9 @@ function tilesTouched(h: FieldHeader, request: { slices?: [number, number]; rows
   return (s1 - s0) * span(r0, r1, h.tile[0]) * span(c0, c1, h.tile[1]);
 }
 
+/** The NetCDF side of the command line, loaded only by the runs that write NetCDF or read coordinate variables. */
+const netcdfCode = () => import('./netcdf.js');
+
 /**
  * The bytes of a NetCDF file: classic (or 64-bit offset when the sizes need
  * it), or NetCDF-4 written by h5wasm into a temporary folder (removed
@@ -480,12 +484,12 @@ async function netcdfBytes(file: NcWriteFile, netcdf4: boolean): Promise<Uint8Ar
     const grouped = [...file.variables.map((v) => v.name), ...file.dims.map((d) => d.name), ...Object.keys(file.globalAttrs)].filter((n) => n.includes('/'));
     throw new UsageError(`the output holds variables, dimensions or attributes of NetCDF-4 groups (${grouped.slice(0, 3).map(printable).join(', ')}${grouped.length > 3 ? ', ...' : ''}), which NetCDF classic cannot hold: add --netcdf4, or write .npy`);
   }
-  if (!netcdf4) return writeNetcdf(file);
+  if (!netcdf4) return (await import('../io/netcdf-write.js')).writeNetcdf(file);
   const dir = await mkdtemp(join(tmpdir(), 'rankfield-nc4-'));
   trackTempDir(dir, true);
   try {
     const path = join(dir, 'out.nc');
-    await writeNetcdf4(path, file);
+    await (await import('../io/hdf5-write.js')).writeNetcdf4(path, file);
     return new Uint8Array(await readFile(path));
   } finally {
     await rm(dir, { recursive: true, force: true });
@@ -507,6 +511,7 @@ async function unpackAxes(
   out: Output,
 ): Promise<void> {
   const nd = ndShape(h);
+  const { carriedValues, netcdfFromFields } = await netcdfCode();
   let ranges: AxisRange[] | null;
   if (flags.where) {
     ranges = rangesWhere(h, flags.where, (dim) => {
