@@ -7,7 +7,7 @@
 import { describe, expect, it } from 'vitest';
 import { decodeInts } from '../../src/codec/code-decode.js';
 import { lowRank, reconstruct } from '../../src/codec/reconstruct.js';
-import { decodeTile } from '../../src/codec/tile-decode.js';
+import { DecodeScratch, decodeTile } from '../../src/codec/tile-decode.js';
 import { crc32 } from '../../src/format/crc32.js';
 import { mulberry32 } from '../rng.js';
 
@@ -43,6 +43,20 @@ describe('spec/FORMAT.md Appendix B, decoded', () => {
     expect(crc32(B2)).toBe(0xaa05ff8c);
     const out = decodeTile(B2, { m: 4, n: 4, dtype: 'f64', fill: null, where: 'B.2' });
     expect(Array.from(out)).toEqual([7, 9, 11, 13, 4, 8, 12, 16, 1, 7, 13, 19, -2, 6, 14, 22]);
+  });
+
+  it('B.1 and B.2 decode the same with working buffers left dirty by an earlier, larger tile', () => {
+    const scratch = new DecodeScratch();
+    scratch.sumsFor(64).fill(Number.NaN);
+    scratch.codesFor(64).fill(-12345);
+    const b2 = decodeTile(B2, { m: 4, n: 4, dtype: 'f64', fill: null, where: 'B.2', scratch });
+    expect(Array.from(b2)).toEqual([7, 9, 11, 13, 4, 8, 12, 16, 1, 7, 13, 19, -2, 6, 14, 22]);
+    const b1 = decodeTile(B1, { m: 5, n: 5, dtype: 'f64', fill: null, where: 'B.1', scratch });
+    // The value CRC of Appendix B.1's decoded tile.
+    expect(crc32(new Uint8Array(b1.buffer))).toBe(0x0c3b682b);
+    // What decodeTile returns is its own: a later decode does not change it.
+    decodeTile(B2, { m: 4, n: 4, dtype: 'f64', fill: null, where: 'B.2', scratch });
+    expect(crc32(new Uint8Array(b1.buffer))).toBe(0x0c3b682b);
   });
 });
 
