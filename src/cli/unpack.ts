@@ -351,9 +351,10 @@ async function unpackFolder({ archive, input, flags, io, start, out }: UnpackJob
       await beforeWriting(path, bytes, `${shape.join('x')} ${h.dtype}`, (t) => out.note(t));
       await writeOutputWith(path, io, async (sink) => {
         sink.write(head);
+        // Each band is written while the next is decoded (later(): the band's own buffer, not a copy).
         await readBands(archive, name, { threads: flags.threads, location: input }, (values) => {
           restoreMissing(h, values);
-          sink.write(valueBytes(values, 'little'));
+          return sink.later(valueBytes(values, 'little'));
         });
       });
       written.push({ path, bytes, fields: [name] });
@@ -420,12 +421,18 @@ async function unpackStream(job: UnpackJob, chosen: string | undefined): Promise
       const dims = h.dims && h.dims.length === shape.length ? h.dims : shape.length === 3 ? ['slice', 'row', 'col'] : shape.map((_, i) => `axis${i}`);
       const text = csv ? new CsvWriter(shape, dims, put) : null;
       if (npy) put(npyHeader(shape, h.dtype));
+      // .npy and raw: each band is written while the next is decoded (later(): the band's own buffer, or
+      // its byte-swapped copy, handed over as is).
       got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
         restoreMissing(h, values);
-        if (text) text.write(values);
-        else put(valueBytes(values, endian));
         done += values.length;
         bar.update(Math.round((tiles * done) / cells));
+        if (text) text.write(values);
+        else {
+          const bytes = valueBytes(values, endian);
+          written += bytes.length;
+          return sink.later(bytes);
+        }
       });
       text?.end();
     });
