@@ -6,7 +6,7 @@ import { Cell, classify, fillWords } from './codec/mask.js';
 import { checkBound, isPointwise, parseBound, resolveBound } from './codec/bound.js';
 import { fieldStep, payloadHead, prefixLengths } from './codec/payload.js';
 import { ErrorTally } from './codec/tally.js';
-import { decodeTile } from './codec/tile-decode.js';
+import { DecodeScratch, decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
 import { joinPages, readContainer, readPages, tilePage, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
@@ -167,6 +167,8 @@ export class Archive {
   readonly limits: Limits;
   private readonly pages: FieldPages[];
   private whole: ArchiveIndex | null = null;
+  /** Working buffers of tile decoding, shared by this archive's reads (decoding a tile is synchronous). */
+  private readonly scratch = new DecodeScratch();
 
   constructor(
     private readonly source: ByteSource,
@@ -284,7 +286,7 @@ export class Archive {
       throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${method} rank ${rank}, the index says method ${e.method} rank ${e.rank}`);
     }
     const [m, n] = tileShape(h, t);
-    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance) });
+    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), scratch: this.scratch });
     if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== e.value_crc) {
       throw new FormatError(FormatCode.Checksum, `${where}: decoded values differ from those verified at encode time (value CRC-32 mismatch)`);
     }
@@ -407,7 +409,7 @@ export class Archive {
     const groups = prefixLengths(bytes).indexOf(bytes.length);
     if (groups < 0) throw new FormatError(FormatCode.Malformed, `${where}: the index lists a prefix of ${bytes.length} bytes that does not end at a factor group`);
     const [m, n] = tileShape(h, t);
-    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), groups });
+    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), groups, scratch: this.scratch });
   }
 
   /**

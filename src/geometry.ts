@@ -8,6 +8,9 @@
  */
 import type { FloatArray } from './types.js';
 
+/** Largest tile side accepted (pack refuses larger tiles; src/pack.ts re-exports it). */
+export const MAX_TILE_SIDE = 4096;
+
 /**
  * A field's extent and tile shape, as the archive header spells them
  * (file keys, see FieldHeader): shape [rows, cols], tile [tileRows, tileCols].

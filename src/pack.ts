@@ -6,7 +6,7 @@ import { encodeFieldParallel, encodeTasks, encodeTilesOn } from './parallel/enco
 import { checkThreads, WorkerPool } from './parallel/pool.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, DEFAULT_PAGE, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
-import { tileCount, tileGrid } from './geometry.js';
+import { MAX_TILE_SIDE, tileCount, tileGrid } from './geometry.js';
 import { attrsProblem, holdsLoneSurrogate, ndProblem, quoteName, pageGrid, pageTiles, up32, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex } from './format/schema.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 import { VERSION_STRING } from './version.js';
@@ -113,8 +113,7 @@ export interface BuilderOptions {
   slices?: boolean;
 }
 
-/** Largest tile side accepted. */
-export const MAX_TILE_SIDE = 4096;
+export { MAX_TILE_SIDE };
 
 /** Largest side of an index page, in tiles. */
 export const MAX_PAGE_SIDE = 4096;

@@ -17,7 +17,10 @@ import { link, lstat, open as openFile, opendir, readlink, rename, stat, unlink 
 import { hostname } from 'node:os';
 import { basename, dirname, join, resolve } from 'node:path';
 import { HttpSource } from '../io/http-source.js';
-import { open, type Archive, type ByteSource, type Sink } from '../index.js';
+import type { Archive } from '../archive.js';
+import type { Sink } from '../format/container.js';
+import type { ByteSource } from '../io/source.js';
+import { open } from '../open-file.js';
 import { FileSink } from '../io/file-sink.js';
 import { FileSource } from '../io/file-source.js';
 import { fileKind, openRegular } from '../io/regular-file.js';
@@ -317,6 +320,19 @@ async function claimAndRename(tmp: string, out: string, o: OutputOptions): Promi
   }
 }
 
+/** The sink {@link writeOutputWith} hands its producer: synchronous writes, and writes that overlap with the producer's work. */
+export interface OutputSink extends Sink {
+  /**
+   * Write `bytes` after everything handed over before, in the background
+   * (libuv's thread pool), so that the producer goes on (decoding the next
+   * band) meanwhile. Resolves once the write queued before this one is done,
+   * and rejects if a write failed: a producer that awaits each call has at
+   * most two in the queue. The bytes must stay unchanged until the output is
+   * complete (fresh buffers, as decoded bands are).
+   */
+  later(bytes: Uint8Array): Promise<void>;
+}
+
 /**
  * Write `out` atomically from `produce`, which writes into a sink as it goes
  * (so the output need never be in memory): into a temporary file in the
@@ -327,7 +343,7 @@ async function claimAndRename(tmp: string, out: string, o: OutputOptions): Promi
  * Errors thrown by `produce` itself pass on unchanged; those of writing are
  * phrased with `out`.
  */
-export async function writeOutputWith(out: string, o: OutputOptions, produce: (sink: Sink) => void | Promise<void>): Promise<void> {
+export async function writeOutputWith(out: string, o: OutputOptions, produce: (sink: OutputSink) => void | Promise<void>): Promise<void> {
   await checkOutput(out, o);
   const folder = dirname(out);
   await removeStaleTemps(folder);
@@ -341,17 +357,46 @@ export async function writeOutputWith(out: string, o: OutputOptions, produce: (s
     trackTempFile(tmp, false);
     throw fileError(e, 'write', out);
   }
-  const writing: Sink = {
+  // Writes queued by later(), in order; a synchronous write that comes while some are queued joins the queue.
+  let queue: Promise<void> = Promise.resolve();
+  let queued = 0;
+  const enqueue = (op: () => void | Promise<void>): Promise<void> => {
+    const before = queue;
+    queued++;
+    queue = before.then(op).then(
+      () => void queued--,
+      (e: unknown) => {
+        queued--;
+        throw fileError(e, 'write', out);
+      },
+    );
+    // Awaited below (or by the producer); marked handled so that a failure waits for that instead of ending the process.
+    queue.catch(() => undefined);
+    return before;
+  };
+  const writing: OutputSink = {
     write(bytes) {
+      if (queued > 0) {
+        const copy = bytes.slice();
+        void enqueue(() => sink.write(copy));
+        return;
+      }
       try {
         sink.write(bytes);
       } catch (e) {
         throw fileError(e, 'write', out);
       }
     },
+    later: (bytes) => enqueue(() => sink.writeAsync(bytes)),
   };
   try {
-    await produce(writing);
+    try {
+      await produce(writing);
+    } finally {
+      // No write may be in flight when the file is closed (its descriptor could be reused meanwhile).
+      await queue.catch(() => undefined);
+    }
+    await queue;
     try {
       sink.close(true);
     } catch (e) {

@@ -1,5 +1,6 @@
 /** Number and table formatting for the command line's reports. */
-import { formatBound, isPointwise, type FieldHeader } from '../index.js';
+import { formatBound, isPointwise } from '../codec/bound.js';
+import type { FieldHeader } from '../format/schema.js';
 import { NC_TYPE_SIZE, type NcType } from '../io/netcdf-types.js';
 
 /** A number in 4 significant digits, exponent form when very large or small. */

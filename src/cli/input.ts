@@ -3,7 +3,8 @@
  * (its own header says shape and dtype), or else headerless raw binary whose
  * shape, dtype and byte order the user states.
  */
-import { InputError, type Dtype, type FloatArray } from '../index.js';
+import { InputError } from '../errors.js';
+import type { Dtype, FloatArray } from '../types.js';
 import { openNpyBands, openRawBands, type BandReader } from '../io/bands.js';
 import { openRegular } from '../io/regular-file.js';
 import { SNIFF_BYTES, sniffFormat } from '../io/sniff.js';

@@ -4,27 +4,17 @@
  * `rankfield: error: <message>` with exit code 2; `--debug` adds the stack.
  */
 import { Command, CommanderError } from 'commander';
-import { VERSION_STRING } from '../index.js';
-import { registerCheck } from './check.js';
-import { registerDemo } from './demo.js';
+import { VERSION_STRING } from '../version.js';
 import { Exit, report, wantsDebug } from './errors.js';
 import { HTTP_DEFAULTS } from './http.js';
 import { addOutputOptions } from './output.js';
-import { registerPack } from './pack.js';
-import { registerPlan } from './plan.js';
-import { registerJoin } from './join.js';
-import { registerPreview } from './preview.js';
-import { registerTrial } from './trial.js';
-import { registerShow } from './show.js';
-import { registerUnpack } from './unpack.js';
-import { registerView } from './view.js';
 
 import type { Context } from './context.js';
 
 // cli/plan.ts takes the type from here.
 
-/** Build the program with all commands; errors are thrown, never exit the process. */
-export function buildProgram(ctx: Context): Command {
+/** Build the program with the commands of `registers` (see {@link registersFor}); errors are thrown, never exit the process. */
+export function buildProgram(ctx: Context, registers: readonly Register[]): Command {
   const program = new Command('rankfield');
   program
     .description('Lossy archiving of 2-D floating-point fields under a stated error bound, by tiled truncated SVD.')
@@ -53,18 +43,41 @@ Packing is lossy: it discards information. Keep the originals until
 \`rankfield check ARCHIVE --against ORIGINAL\` passes, and follow your
 institution's data-retention rules.`,
     );
-  registerPack(program, ctx);
-  registerUnpack(program, ctx);
-  registerShow(program, ctx);
-  registerCheck(program, ctx);
-  registerDemo(program, ctx);
-  registerPreview(program, ctx);
-  registerTrial(program, ctx);
-  registerView(program, ctx);
-  registerPlan(program, ctx);
-  registerJoin(program, ctx);
+  for (const register of registers) register(program, ctx);
   addOutputOptions(program);
   return program;
+}
+
+type Register = (program: Command, ctx: Context) => void;
+
+/**
+ * Each command's module, in the order help lists them. A command's module
+ * imports what it runs (the encoder, the NetCDF and HDF5 writers, the
+ * picture code...), so only the module of the command being run is loaded:
+ * `unpack` and `show` start without the encoder.
+ */
+const COMMANDS: Record<string, () => Promise<Register>> = {
+  pack: async () => (await import('./pack.js')).registerPack,
+  unpack: async () => (await import('./unpack.js')).registerUnpack,
+  show: async () => (await import('./show.js')).registerShow,
+  check: async () => (await import('./check.js')).registerCheck,
+  demo: async () => (await import('./demo.js')).registerDemo,
+  preview: async () => (await import('./preview.js')).registerPreview,
+  trial: async () => (await import('./trial.js')).registerTrial,
+  view: async () => (await import('./view.js')).registerView,
+  plan: async () => (await import('./plan.js')).registerPlan,
+  join: async () => (await import('./join.js')).registerJoin,
+};
+
+/**
+ * The registrations `argv` needs: its command's alone when its first word
+ * that is not an option names one, else every command's (help, the
+ * version, a missing or misspelt command: commander lists or suggests them).
+ */
+async function registersFor(argv: readonly string[]): Promise<Register[]> {
+  const word = argv.find((a) => !a.startsWith('-'));
+  const load = word !== undefined && Object.hasOwn(COMMANDS, word) ? [COMMANDS[word]] : Object.values(COMMANDS);
+  return Promise.all(load.map((f) => f()));
 }
 
 /** Run the command line on `argv` (without the node and script paths); resolves to the exit code. */
@@ -77,15 +90,16 @@ export async function main(argv: string[], io?: Partial<Pick<Context, 'out' | 'e
     errColumns: io?.errColumns ?? process.stderr.columns,
   };
   const debug = wantsDebug(argv);
-  const program = buildProgram(ctx);
+  let program: Command | null = null;
   try {
+    program = buildProgram(ctx, await registersFor(argv));
     await program.parseAsync(argv, { from: 'user' });
     return ctx.exitCode;
   } catch (e) {
     if (e instanceof CommanderError) {
       if (e.exitCode === 0) return Exit.Ok; // --help, --version, `help`
       if (e.code === 'commander.help') {
-        const names = program.commands.map((c) => c.name()).filter((n) => n !== 'help');
+        const names = (program?.commands ?? []).map((c) => c.name()).filter((n) => n !== 'help');
         report(new CommanderError(2, e.code, `missing command (one of ${names.join(', ')}; see 'rankfield --help')`), false, ctx.err);
         return Exit.Usage;
       }

@@ -16,6 +16,9 @@ import { toStoredType } from './netcdf-stored.js';
 import type { NcWriteFile, NcWriteValues, NcWriteVariable } from '../io/netcdf-write.js';
 import { layoutGrid, MAX_ATTR_STRING, printable } from '../format/schema.js';
 import { UsageError } from './errors.js';
+import { byPath } from './names.js';
+
+export { byPath, isNetcdfPath } from './names.js';
 import { RangeWatch, suspectMessage } from './fill-guard.js';
 
 /** Attribute keys of the archive's own, beside the variable's attributes (prefix "rankfield:"). */
@@ -51,30 +54,11 @@ export const KEY = {
 /** Largest total of the carried variables' JSON in one archive: half the readers' default header limit of 16 MiB. */
 export const MAX_CARRIED_BYTES = 8 << 20;
 
-/**
- * A field or variable named as the user gave it: a NetCDF-4 path such as
- * '/ocean/temp' names the field 'ocean/temp' (and '/temp' the root group's
- * 'temp'), since names keep group paths without the leading '/' (spec/FORMAT.md,
- * section 6.4.1). A name that is one of `names` as given, or names none of
- * them either way, is kept (so a refusal quotes it as given).
- */
-export function byPath(names: readonly string[], name: string): string;
-export function byPath(names: readonly string[], name: string | undefined): string | undefined;
-export function byPath(names: readonly string[], name: string | undefined): string | undefined {
-  if (name === undefined || names.includes(name) || !name.startsWith('/')) return name;
-  const path = name.replace(/^\/+/, '');
-  return names.includes(path) ? path : name;
-}
-
 /** The last part of a group path ('ocean/depth' -> 'depth'). */
 export function baseName(name: string): string {
   return name.slice(name.lastIndexOf('/') + 1);
 }
 
-/** True when a path names a NetCDF file (case-insensitive extension .nc). */
-export function isNetcdfPath(path: string): boolean {
-  return /\.nc$/i.test(path);
-}
 
 /** `--matrix A,B:NAME`: the names of the leading axes that form the rows. */
 export function parseMatrix(text: string): string[] {

@@ -4,7 +4,10 @@
  * option by name ("option '--tile <RxC>' argument '0' is invalid. ...").
  */
 import { InvalidArgumentError } from 'commander';
-import { MAX_THREADS, MAX_TILE_SIDE, parseBound, type Bound, type Dtype } from '../index.js';
+import { parseBound } from '../codec/bound.js';
+import { MAX_TILE_SIDE } from '../geometry.js';
+import { MAX_THREADS } from '../parallel/pool.js';
+import type { Bound, Dtype } from '../types.js';
 import { parseDtype, parseShape } from '../io/raw.js';
 
 const DECIMAL = /^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$/;

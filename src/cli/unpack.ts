@@ -7,11 +7,11 @@ import { UsageError } from './errors.js';
 import { checkOutput, isUrl, openArchive, statInput, trackTempDir, writeOutput, writeOutputWith } from './files.js';
 import { num, seconds } from './format.js';
 import { isNpyPath } from './input.js';
-import { byPath, carriedValues, isNetcdfPath, netcdfFromFields, restoreMissing } from './netcdf.js';
+import { restoreMissing } from '../missing.js';
+import { byPath, isNetcdfPath } from './names.js';
 import { dimNames, notOneBox, type Region, type Span, rangesFrom, rangesWhere, readAxes, readSliceWindow, whereOption, type AxisRange, type WhereTerm } from './window.js';
 import type { Archive, FloatArray } from '../index.js';
-import { writeNetcdf, type NcWriteFile } from '../io/netcdf-write.js';
-import { writeNetcdf4 } from '../io/hdf5-write.js';
+import type { NcWriteFile } from '../io/netcdf-write.js';
 import { mkdtemp, readFile, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { printable } from '../format/schema.js';
@@ -351,9 +351,10 @@ async function unpackFolder({ archive, input, flags, io, start, out }: UnpackJob
       await beforeWriting(path, bytes, `${shape.join('x')} ${h.dtype}`, (t) => out.note(t));
       await writeOutputWith(path, io, async (sink) => {
         sink.write(head);
+        // Each band is written while the next is decoded (later(): the band's own buffer, not a copy).
         await readBands(archive, name, { threads: flags.threads, location: input }, (values) => {
           restoreMissing(h, values);
-          sink.write(valueBytes(values, 'little'));
+          return sink.later(valueBytes(values, 'little'));
         });
       });
       written.push({ path, bytes, fields: [name] });
@@ -376,6 +377,7 @@ async function unpackNetcdf({ archive, input, flags, io, start, out }: UnpackJob
     const f = await archive.read(name);
     fields.push({ h: archive.field(name).header, shape: f.shape, values: f.values });
   }
+  const { netcdfFromFields } = await netcdfCode();
   const bytes = await netcdfBytes(netcdfFromFields(archive.header.attrs, fields), flags.netcdf4 === true);
   await writeOutput(flags.output, bytes, io);
   const format = flags.netcdf4 ? 'NetCDF-4' : 'NetCDF classic';
@@ -419,12 +421,18 @@ async function unpackStream(job: UnpackJob, chosen: string | undefined): Promise
       const dims = h.dims && h.dims.length === shape.length ? h.dims : shape.length === 3 ? ['slice', 'row', 'col'] : shape.map((_, i) => `axis${i}`);
       const text = csv ? new CsvWriter(shape, dims, put) : null;
       if (npy) put(npyHeader(shape, h.dtype));
+      // .npy and raw: each band is written while the next is decoded (later(): the band's own buffer, or
+      // its byte-swapped copy, handed over as is).
       got = await readBands(archive, h.name, { ...request, threads: flags.threads, location: input }, (values) => {
         restoreMissing(h, values);
-        if (text) text.write(values);
-        else put(valueBytes(values, endian));
         done += values.length;
         bar.update(Math.round((tiles * done) / cells));
+        if (text) text.write(values);
+        else {
+          const bytes = valueBytes(values, endian);
+          written += bytes.length;
+          return sink.later(bytes);
+        }
       });
       text?.end();
     });
@@ -470,6 +478,9 @@ function tilesTouched(h: FieldHeader, request: { slices?: [number, number]; rows
   return (s1 - s0) * span(r0, r1, h.tile[0]) * span(c0, c1, h.tile[1]);
 }
 
+/** The NetCDF side of the command line, loaded only by the runs that write NetCDF or read coordinate variables. */
+const netcdfCode = () => import('./netcdf.js');
+
 /**
  * The bytes of a NetCDF file: classic (or 64-bit offset when the sizes need
  * it), or NetCDF-4 written by h5wasm into a temporary folder (removed
@@ -480,12 +491,12 @@ async function netcdfBytes(file: NcWriteFile, netcdf4: boolean): Promise<Uint8Ar
     const grouped = [...file.variables.map((v) => v.name), ...file.dims.map((d) => d.name), ...Object.keys(file.globalAttrs)].filter((n) => n.includes('/'));
     throw new UsageError(`the output holds variables, dimensions or attributes of NetCDF-4 groups (${grouped.slice(0, 3).map(printable).join(', ')}${grouped.length > 3 ? ', ...' : ''}), which NetCDF classic cannot hold: add --netcdf4, or write .npy`);
   }
-  if (!netcdf4) return writeNetcdf(file);
+  if (!netcdf4) return (await import('../io/netcdf-write.js')).writeNetcdf(file);
   const dir = await mkdtemp(join(tmpdir(), 'rankfield-nc4-'));
   trackTempDir(dir, true);
   try {
     const path = join(dir, 'out.nc');
-    await writeNetcdf4(path, file);
+    await (await import('../io/hdf5-write.js')).writeNetcdf4(path, file);
     return new Uint8Array(await readFile(path));
   } finally {
     await rm(dir, { recursive: true, force: true });
@@ -507,6 +518,7 @@ async function unpackAxes(
   out: Output,
 ): Promise<void> {
   const nd = ndShape(h);
+  const { carriedValues, netcdfFromFields } = await netcdfCode();
   let ranges: AxisRange[] | null;
   if (flags.where) {
     ranges = rangesWhere(h, flags.where, (dim) => {

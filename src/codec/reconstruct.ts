@@ -19,33 +19,51 @@ export function lowRank(
   center: number,
   out: Float64Array,
 ): void {
-  // The same operations in the same order as the formula, in one pass per rank: the first rank's
-  // products are added to +0 (so that a product of -0 gives +0, as 0 + x does), and the centre is
-  // added in the last rank's pass.
+  // The same operations in the same order as the formula: each row starts at +0 (so that a first
+  // product of -0 gives +0, as 0 + x does), then takes the ranks in increasing order, up to four per
+  // pass over the row (their partial sums kept in a register, added left to right as written), and the
+  // centre in the last pass. Four ranks a pass load and store the row a quarter as often as one.
   const cells = m * n;
   if (r === 0) {
     out.fill(0 + center, 0, cells);
     return;
   }
+  out.fill(0, 0, cells);
   for (let i = 0; i < m; i++) {
     const row = i * n;
     const li = i * r;
-    const l0 = l[li];
-    if (r === 1) {
-      for (let j = 0; j < n; j++) out[row + j] = 0 + l0 * w[j] + center;
-      continue;
+    let k = 0;
+    for (; r - k > 4; k += 4) {
+      const a = l[li + k];
+      const b = l[li + k + 1];
+      const c = l[li + k + 2];
+      const d = l[li + k + 3];
+      const w0 = k * n;
+      for (let j = 0; j < n; j++) out[row + j] = out[row + j] + a * w[w0 + j] + b * w[w0 + n + j] + c * w[w0 + 2 * n + j] + d * w[w0 + 3 * n + j];
     }
-    for (let j = 0; j < n; j++) out[row + j] = 0 + l0 * w[j];
-    for (let k = 1; k < r - 1; k++) {
-      const lik = l[li + k];
-      const wk = k * n;
-      // i, k, j loop order: per cell the additions still run in rank order.
-      for (let j = 0; j < n; j++) out[row + j] += lik * w[wk + j];
-    }
-    const last = l[li + r - 1];
-    const wl = (r - 1) * n;
-    for (let j = 0; j < n; j++) out[row + j] = out[row + j] + last * w[wl + j] + center;
+    lastRanks(l, li + k, w, k * n, n, r - k, center, out, row);
   }
+}
+
+/** The last 1 to 4 ranks of a row of {@link lowRank} and the centre, in one pass: out = (out + sum of products, in order) + center. */
+function lastRanks(l: Float64Array, lk: number, w: Float64Array, wk: number, n: number, left: number, center: number, out: Float64Array, row: number): void {
+  const a = l[lk];
+  if (left === 1) {
+    for (let j = 0; j < n; j++) out[row + j] = out[row + j] + a * w[wk + j] + center;
+    return;
+  }
+  const b = l[lk + 1];
+  if (left === 2) {
+    for (let j = 0; j < n; j++) out[row + j] = out[row + j] + a * w[wk + j] + b * w[wk + n + j] + center;
+    return;
+  }
+  const c = l[lk + 2];
+  if (left === 3) {
+    for (let j = 0; j < n; j++) out[row + j] = out[row + j] + a * w[wk + j] + b * w[wk + n + j] + c * w[wk + 2 * n + j] + center;
+    return;
+  }
+  const d = l[lk + 3];
+  for (let j = 0; j < n; j++) out[row + j] = out[row + j] + a * w[wk + j] + b * w[wk + n + j] + c * w[wk + 2 * n + j] + d * w[wk + 3 * n + j] + center;
 }
 
 /**
@@ -354,25 +372,62 @@ export function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: nu
 /**
  * The rest of a tile's reconstruction after {@link lowRank} has filled `acc`
  * (spec/FORMAT.md section 11): the residual q x step added when there is
- * one, then rounding to the output dtype. The decoder and the
- * encoder's candidate check both call this, so they cannot drift apart.
+ * one, then rounding to the output dtype. The decoder's only path to its
+ * values. Returns false when a stored value is not finite (a damaged or
+ * hostile payload, or a missing cell still to be overwritten: the caller
+ * then looks closer), true when every one is.
+ *
+ * One loop per dtype, so each indexes a single typed-array kind; binary32
+ * rounding is Math.fround, the same round-to-nearest-even as a store into a
+ * Float32Array (ECMA-262, Number::toFloat32 / NumericToRawBytes; from memory).
  */
-export function reconstruct(acc: Float64Array, q: Int32Array | null, step: number, out: Float32Array | Float64Array): void {
-  if (q === null) {
-    roundTo(acc, out);
-    return;
+export function reconstruct(acc: Float64Array, q: Int32Array | null, step: number, out: Float32Array | Float64Array): boolean {
+  if (out instanceof Float32Array) return q === null ? round32(acc, out) : residual32(acc, q, step, out);
+  return q === null ? round64(acc, out) : residual64(acc, q, step, out);
+}
+
+// x - x is 0 for a finite x and NaN for an infinity or NaN: `bad` stays 0 while every value is finite.
+function round32(acc: Float64Array, out: Float32Array): boolean {
+  let bad = 0;
+  for (let c = 0; c < out.length; c++) {
+    const x = Math.fround(acc[c]);
+    out[c] = x;
+    bad += x - x;
   }
-  // The residual added and the sum rounded in one pass: each sum acc[c] + q[c] x step is formed in binary64, then stored (rounded) in out;
-  // acc is left as it was.
-  for (let c = 0; c < q.length; c++) out[c] = withResidual(acc[c], q[c], step);
+  return bad === 0;
+}
+
+function residual32(acc: Float64Array, q: Int32Array, step: number, out: Float32Array): boolean {
+  let bad = 0;
+  for (let c = 0; c < out.length; c++) {
+    const x = Math.fround(withResidual(acc[c], q[c], step));
+    out[c] = x;
+    bad += x - x;
+  }
+  return bad === 0;
+}
+
+function round64(acc: Float64Array, out: Float64Array): boolean {
+  let bad = 0;
+  for (let c = 0; c < out.length; c++) {
+    const x = acc[c];
+    out[c] = x;
+    bad += x - x;
+  }
+  return bad === 0;
+}
+
+function residual64(acc: Float64Array, q: Int32Array, step: number, out: Float64Array): boolean {
+  let bad = 0;
+  for (let c = 0; c < out.length; c++) {
+    const x = withResidual(acc[c], q[c], step);
+    out[c] = x;
+    bad += x - x;
+  }
+  return bad === 0;
 }
 
 /** One cell of {@link reconstruct} before rounding to the dtype: the low-rank part plus its code times the step (the encoder checks a cell with it as it chooses its code). */
 export function withResidual(acc: number, code: number, step: number): number {
   return acc + code * step;
-}
-
-/** Round binary64 values to the output dtype (binary32: round-to-nearest-even). */
-export function roundTo(values: Float64Array, out: Float32Array | Float64Array): void {
-  out.set(values);
 }

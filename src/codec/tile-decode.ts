@@ -38,6 +38,30 @@ export interface TileContext {
    * after that group, and residual and exceptions are not applied.
    */
   groups?: number;
+  /** Working buffers to reuse (see {@link DecodeScratch}); fresh ones for this tile when absent. */
+  scratch?: DecodeScratch;
+}
+
+/**
+ * The working buffers of tile decoding (the low-rank sums and the residual
+ * codes, 12 bytes a cell), kept by a reader from tile to tile so that a
+ * large tile does not cost fresh zeroed memory each time. decodeTile is
+ * synchronous and uses them only while it runs, so the reads of one archive
+ * can share one; the values it returns are always its own.
+ */
+export class DecodeScratch {
+  private sums = new Float64Array(0);
+  private codes = new Int32Array(0);
+  /** Room for `cells` low-rank sums (contents left from earlier tiles). */
+  sumsFor(cells: number): Float64Array {
+    if (this.sums.length < cells) this.sums = new Float64Array(cells);
+    return this.sums.subarray(0, cells);
+  }
+  /** Room for `cells` residual codes (contents left from earlier tiles). */
+  codesFor(cells: number): Int32Array {
+    if (this.codes.length < cells) this.codes = new Int32Array(cells);
+    return this.codes.subarray(0, cells);
+  }
 }
 
 function malformed(where: string, what: string): FormatError {
@@ -108,17 +132,27 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const exceptions = flags & Flag.Exceptions ? readExceptions(r, ctx, codes) : { cells: new Uint32Array(0), values: new Uint8Array(0) };
   if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
 
-  const acc = new Float64Array(cells);
+  // lowRank sets every cell of acc, so left-over contents do not matter.
+  const acc = ctx.scratch ? ctx.scratch.sumsFor(cells) : new Float64Array(cells);
   lowRank(factors.l, factors.w, m, n, factors.rank, center, acc);
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  reconstruct(acc, residual.q, residual.step, out);
+  const finite = reconstruct(acc, residual.q, residual.step, out);
   applyExceptions(out, exceptions, ctx);
-  // A valid cell must decode to a finite value; anything else is a damaged or hostile payload.
-  for (let c = 0; c < cells; c++) {
-    if ((codes === null || codes[c] === Cell.Valid) && !Number.isFinite(out[c])) throw malformed(where, `valid ${cellName(c, n)} decodes to ${out[c]}, not a finite value`);
-  }
+  // A valid cell must decode to a finite value; anything else is a damaged or hostile payload. With every
+  // reconstructed value finite, only the exceptions' values are left to look at (in cell order, as below).
+  if (finite) checkFinite(out, exceptions.cells, null, ctx);
+  else checkFinite(out, null, codes, ctx);
   if (mask !== null) applyClasses(out, mask.codes, mask.rawNaN, ctx.fill);
   return out;
+}
+
+/** Refuse the first valid cell (of `cells`, or of all when null; skipping missing cells of `codes`) whose value is not finite. */
+function checkFinite(out: FloatArray, cells: Uint32Array | null, codes: Uint8Array | null, ctx: TileContext): void {
+  const count = cells === null ? out.length : cells.length;
+  for (let k = 0; k < count; k++) {
+    const c = cells === null ? k : cells[k];
+    if ((codes === null || codes[c] === Cell.Valid) && !Number.isFinite(out[c])) throw malformed(ctx.where, `valid ${cellName(c, ctx.n)} decodes to ${out[c]}, not a finite value`);
+  }
 }
 
 /** Read and check the mask section: the cells' classes and the raw NaN bits of class-5 cells. */
@@ -190,7 +224,8 @@ function readResidual(r: ByteReader, ctx: TileContext, codes: Uint8Array | null)
   else if (form === StepForm.Binary64) step = r.f64('residual step');
   else step = r.varint('integer residual step', NUMBER_BYTES);
   if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${stepAt} is not a positive finite number`);
-  const q = new Int32Array(m * n);
+  // decodeInts sets every cell of q (missing cells to 0), so left-over contents do not matter.
+  const q = ctx.scratch ? ctx.scratch.codesFor(m * n) : new Int32Array(m * n);
   readCoded(r, 'residual', m, n, codes, q, where);
   if (!unpredict(q, m, n, MAX_INT, predictor)) throw malformed(where, 'a residual code exceeds 2^30 after prediction');
   return { step, q };

@@ -4,7 +4,7 @@
  * cost one system call each. Writes are synchronous because the archive
  * writer emits payloads from inside the encoder's (synchronous) tile loop.
  */
-import { closeSync, fsyncSync, openSync, writeSync } from 'node:fs';
+import { closeSync, fsyncSync, openSync, write, writeSync } from 'node:fs';
 import type { Sink } from '../format/container.js';
 
 /** Default buffer: 1 MiB. */
@@ -54,6 +54,25 @@ export class FileSink implements Sink {
       this.buffer.set(bytes);
       this.used = bytes.length;
     }
+  }
+
+  /**
+   * Write `bytes` after everything handed over before, without blocking
+   * this thread (the write runs in libuv's thread pool); resolves once they
+   * are written. The caller leaves them unchanged until then, and neither
+   * writes nor closes meanwhile.
+   */
+  writeAsync(bytes: Uint8Array): Promise<void> {
+    this.flush();
+    const fd = this.handle();
+    this.bytesWritten += bytes.length;
+    return new Promise((resolve, reject) => {
+      const from = (at: number): void => {
+        if (at >= bytes.length) resolve();
+        else write(fd, bytes, at, bytes.length - at, null, (e, n) => (e ? reject(e) : from(at + n)));
+      };
+      from(0);
+    });
   }
 
   /** Write out what is buffered. */

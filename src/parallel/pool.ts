@@ -106,6 +106,14 @@ export interface PoolOptions {
    * returns the result. The calling thread is then busy while it runs one.
    */
   local?: (kind: string, body: unknown) => unknown;
+  /**
+   * Tasks posted to one worker at a time (default {@link DEPTH}: one running,
+   * the next waiting in its port, for many short tasks). 1 for few long
+   * tasks beside a `local` lane: the queue then hands each to whichever
+   * thread is free first, instead of a worker taking several while the
+   * calling thread, busy with its one, cannot take more.
+   */
+  depth?: number;
 }
 
 /** A fixed set of worker threads running the tasks of worker.ts. */
@@ -118,10 +126,13 @@ export class WorkerPool {
   private closed = false;
 
   private readonly local: PoolOptions['local'];
+  private readonly depth: number;
 
   constructor(threads: number, options: PoolOptions = {}) {
     this.threads = checkThreads(threads);
     this.local = options.local;
+    this.depth = options.depth ?? DEPTH;
+    if (!Number.isSafeInteger(this.depth) || this.depth < 1) throw new InputError(InputCode.Option, `depth must be a positive integer, got ${String(options.depth)}`);
     if (this.local) this.slots.push({ worker: null, posted: new Map() });
     for (let i = this.slots.length; i < this.threads; i++) {
       const worker = new Worker(new URL('./worker.js', import.meta.url), { resourceLimits: options.resourceLimits });
@@ -169,7 +180,7 @@ export class WorkerPool {
     while (this.queue.length > 0) {
       let best: Slot | null = null;
       // The calling thread's lane takes one task at a time: it runs it, and cannot take more meanwhile.
-      for (const s of this.slots) if (s.posted.size < (s.worker ? DEPTH : 1) && (best === null || s.posted.size < best.posted.size)) best = s;
+      for (const s of this.slots) if (s.posted.size < (s.worker ? this.depth : 1) && (best === null || s.posted.size < best.posted.size)) best = s;
       if (best === null) return;
       this.post(best, this.queue.shift()!);
     }

@@ -4,20 +4,29 @@
  * error, flattened so that it keeps its class and code (see pool.ts).
  */
 import { parentPort, type TransferListItem } from 'node:worker_threads';
-import { encodeTasks } from './encode.js';
 import { toWire, type ReplyMessage, type TaskMessage } from './pool.js';
-import { readTasks } from './read.js';
 
 type Handler = (body: never) => { result: unknown; transfer?: TransferListItem[] } | Promise<{ result: unknown; transfer?: TransferListItem[] }>;
 
-const tasks: Record<string, Handler> = { ...encodeTasks, ...readTasks };
+/**
+ * The tasks of a kind, loaded on the first task of that kind: a worker that
+ * only decodes ('read-' tasks) never loads the encoder, nor one that only
+ * encodes the reader's band code.
+ */
+let reading: Promise<Record<string, Handler>> | null = null;
+let encoding: Promise<Record<string, Handler>> | null = null;
+function tasksFor(kind: string): Promise<Record<string, Handler>> {
+  if (kind.startsWith('read-')) return (reading ??= import('./read.js').then((m) => m.readTasks));
+  return (encoding ??= import('./encode.js').then((m) => m.encodeTasks));
+}
 
 const port = parentPort;
 port?.on('message', async (m: TaskMessage) => {
   let reply: ReplyMessage;
   let transfer: TransferListItem[] = [];
   try {
-    const run = tasks[m.kind];
+    const tasks = await tasksFor(m.kind);
+    const run = Object.hasOwn(tasks, m.kind) ? tasks[m.kind] : undefined;
     // Internal assertion: the pool posts only the kinds registered here.
     if (run === undefined) throw new Error(`unknown worker task '${m.kind}'`);
     const done = await run(m.body as never);

@@ -6,43 +6,16 @@
  * specifier) and on any package other than the two browser-safe ones the
  * decoder needs.
  */
-import { existsSync, readFileSync } from 'node:fs';
+import { readFileSync } from 'node:fs';
 import { builtinModules } from 'node:module';
-import { dirname, join, relative, resolve } from 'node:path';
+import { join, relative } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { ensureBuilt, ensureBundled, ROOT } from '../cli/helpers.js';
+import { specifiers, walk } from '../import-walk.js';
 
 /** Packages the decoder may import: both ship ESM builds without Node built-ins. */
 const ALLOWED_PACKAGES = new Set(['fflate', '@msgpack/msgpack']);
 const BUILTINS = new Set(builtinModules.flatMap((m) => [m, m.split('/')[0]]));
-
-/** Specifiers of every import and re-export in a module's text (tsc output: one per statement). */
-export function specifiers(text: string): string[] {
-  const out: string[] = [];
-  const patterns = [/\b(?:import|export)\s[^'";]*?\bfrom\s*['"]([^'"]+)['"]/g, /\bimport\s*['"]([^'"]+)['"]/g, /\bimport\s*\(\s*['"]([^'"]+)['"]\s*\)/g];
-  for (const p of patterns) for (const m of text.matchAll(p)) out.push(m[1]);
-  return out;
-}
-
-/** Every module reachable from `entry`, and every bare specifier imported along the way (with who imports it). */
-function walk(entry: string): { files: string[]; bare: { spec: string; from: string }[] } {
-  const seen = new Set<string>();
-  const bare: { spec: string; from: string }[] = [];
-  const todo = [entry];
-  while (todo.length > 0) {
-    const file = todo.pop()!;
-    if (seen.has(file)) continue;
-    seen.add(file);
-    for (const spec of specifiers(readFileSync(file, 'utf8'))) {
-      if (spec.startsWith('.') || spec.startsWith('/')) {
-        const target = resolve(dirname(file), spec);
-        if (!existsSync(target)) throw new Error(`${relative(ROOT, file)} imports '${spec}', which does not exist`);
-        todo.push(target);
-      } else bare.push({ spec, from: relative(ROOT, file) });
-    }
-  }
-  return { files: [...seen], bare };
-}
 
 describe('the import graph of dist/decode.js', () => {
   beforeAll(() => ensureBuilt());

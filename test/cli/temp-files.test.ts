@@ -13,7 +13,9 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { tempPath } from '../../src/cli/files.js';
 import { formatNpy } from '../../src/io/npy.js';
 import { mirrored, precip, volcano } from '../archive/datasets.js';
-import { CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, rf, tempDir } from './helpers.js';
+import { pack } from '../../src/index.js';
+import { haveSystemTools } from '../system-tools.js';
+import { BIN, CLI_TIMEOUT, ensureBuilt, expectCliError, leftovers, rf, tempDir } from './helpers.js';
 
 const { dir, remove } = tempDir('rankfield-temps-');
 const g = volcano();
@@ -78,5 +80,21 @@ describe('a worker that dies', () => {
     expectCliError(r, /Worker terminated due to reaching memory limit/);
     expect(readdirSync(dir)).not.toContain('big.rfz');
     expect(leftovers(dir)).toEqual([]);
+  }, CLI_TIMEOUT);
+});
+
+// bash's `ulimit -f` caps the size of files a process writes (RLIMIT_FSIZE, in 1024-byte blocks), and with
+// SIGXFSZ ignored (an ignored signal stays ignored across exec, POSIX; from memory) a write past it fails
+// with EFBIG instead of killing the process: a real write failure, part-way through the output.
+describe.runIf(haveSystemTools('a write that fails part-way', 'bash', ['/bin/bash']))('a write that fails part-way through unpack', () => {
+  it('is one error line, exit 2, and leaves neither the output nor a temporary file, with 1 and 2 threads', () => {
+    const values = mirrored(precip(), 360, 0, 300);
+    writeFileSync(join(dir, 'wide.rfz'), pack(values, [300, 360], { bound: 'rel:1e-2', tile: 60 }));
+    for (const threads of ['1', '2']) {
+      const r = spawnSync('/bin/bash', ['-c', 'trap "" XFSZ; ulimit -f 100; exec "$0" "$@"', process.execPath, BIN, 'unpack', 'wide.rfz', '-o', 'wide.npy', '-q', '--threads', threads], { cwd: dir, encoding: 'utf8', timeout: 60_000 });
+      expectCliError({ code: r.status, stdout: r.stdout, stderr: r.stderr }, /cannot write 'wide\.npy': file too large/);
+      expect(readdirSync(dir)).not.toContain('wide.npy');
+      expect(leftovers(dir)).toEqual([]);
+    }
   }, CLI_TIMEOUT);
 });

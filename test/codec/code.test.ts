@@ -40,6 +40,19 @@ describe('coded integer streams', () => {
     );
   });
 
+  it('round-trip sparse grids (long runs of zeros: the run loop of the decoder) of any shape, bit for bit', () => {
+    // Mostly zeros with a few non-zero codes, so runs end on a non-zero code to the up-right, on a non-zero
+    // code itself, and at the end of rows; tiles of one row and one column too.
+    fc.assert(
+      fc.property(fc.integer({ min: 1, max: 40 }), fc.integer({ min: 1, max: 40 }), fc.integer({ min: 1, max: 1 << 20 }), fc.constantFrom(0.002, 0.02, 0.2), (m, n, seed, rate) => {
+        const rand = mulberry32(seed);
+        const v = Int32Array.from({ length: m * n }, () => (rand() < rate ? geometric(rand, 0.5) || 1 : 0));
+        expect(Array.from(roundTrip(v, m, n, null))).toEqual(Array.from(v));
+      }),
+      { numRuns: 300 },
+    );
+  });
+
   it('skip cells that are not valid: they decode as 0 and cost nothing', () => {
     const rand = mulberry32(7);
     const m = 40;

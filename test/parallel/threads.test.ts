@@ -109,6 +109,14 @@ describe('packAsync: the same archive for every thread count', () => {
   });
 });
 
+describe('WorkerPool options', () => {
+  it('refuses a depth that is not a positive integer, before starting any worker', () => {
+    for (const depth of [0, -1, 1.5, Number.NaN]) {
+      expect(() => new pool.WorkerPool(2, { depth })).toThrow(expect.objectContaining({ name: 'InputError', code: 'option' }));
+    }
+  });
+});
+
 describe('readBands: a field band by band, on worker threads', () => {
   it('gives the values of Archive.read, for the whole field and for windows, with 1 and 2 threads', async () => {
     const bytes = big.bytes;
