@@ -11,6 +11,7 @@ import { cutBlock } from '../geometry.js';
 import { forEachTile, tileGrid, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
+import { truncatedSvd } from '../linalg/truncated.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
@@ -100,26 +101,77 @@ export function firstPassTile(
   seen?: (s: Float64Array) => void,
 ): FirstPassTile {
   const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
-  const s = tileSpectrum(t, known);
+  const s = tileSpectrum(t, tol, known);
   seen?.(s);
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
 }
 
 /**
  * A prepared tile's singular values (none when it has no valid cell or
- * overflowed). The full spectrum: cutting the field-wide smallest values
- * needs every one of them, and only their squares to the budget's accuracy,
- * so the Gram matrix's eigenvalues serve (src/linalg/spectrum.ts); the
- * second pass computes singular vectors only up to the rank it codes.
- * `known`, when given, are the values computed before from the same tile
- * values, prepared with another tolerance: they serve as they are for a
- * tile without missing cells, whose prepared (centred) values do not
- * depend on the tolerance (only the filling of missing cells does).
+ * overflowed), as the L2 plans need them: every one of them, or the
+ * leading ones and a lumped tail ({@link leadingSpectrum}) where the tail
+ * is too small to matter to any plan. Cutting the field-wide smallest
+ * values needs their squares only to the budget's accuracy, so the Gram
+ * matrix's eigenvalues serve for the whole spectrum
+ * (src/linalg/spectrum.ts); the second pass computes singular vectors only
+ * up to the rank it codes. `known`, when given, are the values computed
+ * before from the same tile values, prepared with another tolerance: they
+ * serve as they are for a tile without missing cells, whose prepared
+ * (centred) values do not depend on the tolerance (only the filling of
+ * missing cells does). The tile trial's tolerance is at most the field's
+ * (its sample's range is within the field's), so a tail it lumped is
+ * within this tolerance's limit too.
  */
-export function tileSpectrum(t: PreparedTile, known?: Float64Array): Float64Array {
+export function tileSpectrum(t: PreparedTile, tol: number, known?: Float64Array): Float64Array {
   if (!(t.valid > 0 && t.finite)) return new Float64Array(0);
   if (known !== undefined && t.classes.special === 0 && known.length === Math.min(t.m, t.n)) return known;
-  return gramSingularValues(t.centred, t.m, t.n);
+  return leadingSpectrum(t, tol) ?? gramSingularValues(t.centred, t.m, t.n);
+}
+
+/** Tiles whose shorter side is below this take the whole spectrum (the Gram matrix is cheap there). */
+const LEADING_MIN_SIDE = 256;
+/** Leading values tried, in turn, before the whole spectrum is taken. */
+const LEADING_COUNTS = [16, 48];
+/**
+ * A lumped tail may hold at most this share of the tile's own part of the
+ * budget (valid x tol^2): a thousandth, so that every tile's tail together
+ * is a thousandth of the field's budget, far inside the smallest truncation
+ * share (common practice, no source, for the share).
+ */
+const LUMP_SHARE = 1e-3;
+
+/**
+ * The tile's spectrum as its k leading singular values (the randomized
+ * range finder of src/linalg/truncated.ts) and the rest as equal values
+ * whose squares add up to the energy left, frob2 - sum of the k squares
+ * (the Frobenius norm squared is the sum of all squared singular values):
+ * for the first k in {@link LEADING_COUNTS} whose tail energy is within
+ * {@link LUMP_SHARE} of the tile's part of the budget; null when none is, or
+ * when the tile is too small to gain. A cut from the smallest values up
+ * takes such a tail whole before any leading value (each lumped value is
+ * at most the last leading one, as the true tail's values are), and the
+ * plans see its total to within the rounding of frob2; the order in which
+ * the field's tails are cut, and so the exact rank where a cut stops
+ * inside a tail, may differ from the whole spectrum's, which is why the
+ * tail must be far below any share of the budget.
+ */
+export function leadingSpectrum(t: PreparedTile, tol: number): Float64Array | null {
+  const full = Math.min(t.m, t.n);
+  if (full < LEADING_MIN_SIDE || !(tol > 0)) return null;
+  const limit = LUMP_SHARE * t.valid * tol * tol;
+  for (const k of LEADING_COUNTS) {
+    if (k + 8 >= full) break;
+    const r = truncatedSvd(t.centred, t.m, t.n, k);
+    let lead = 0;
+    for (let j = 0; j < k; j++) lead += r.s[j] * r.s[j];
+    const tail = Math.max(0, r.frob2 - lead);
+    if (!(tail <= limit)) continue;
+    const out = new Float64Array(full);
+    out.set(r.s.subarray(0, k));
+    out.fill(Math.min(r.s[k - 1], Math.sqrt(tail / (full - k))), k);
+    return out;
+  }
+  return null;
 }
 
 /**
