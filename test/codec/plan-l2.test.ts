@@ -12,7 +12,9 @@
  */
 import { Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
-import { cuttable, eckartYoungPlans, firstPass, keepsTiles, leadingSpectrum, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { readFileSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
+import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, firstPass, keepsTiles, leadingSpectrum, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
 import { gramSingularValues } from '../../src/linalg/spectrum.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
@@ -230,5 +232,41 @@ describe('leadingSpectrum (leading singular values and a lumped tail)', () => {
     const noise = Float32Array.from({ length: m * n }, () => rnd());
     expect(leadingSpectrum(prepareTile(noise, m, n, 'f32', null, 1e-2), 1e-2)).toBeNull();
     expect(leadingSpectrum(prepareTile(smooth.subarray(0, 128 * n), 128, n, 'f32', null, 1e-3), 1e-3)).toBeNull();
+  });
+});
+
+describe('costPlans (candidate plans costed a tile at a time, losers dropped)', () => {
+  /** A block of vega-datasets 3.2.1 annual-precip.json (NOAA CFSv2 2016 annual precipitation, 360 x 168): rows 40.., columns 40.., no missing cells. */
+  function precipBlock(rows: number, cols: number): Float64Array {
+    const path = fileURLToPath(new URL('../../node_modules/vega-datasets/data/annual-precip.json', import.meta.url));
+    const g = JSON.parse(readFileSync(path, 'utf8')) as { width: number; values: (number | null)[] };
+    return Float64Array.from({ length: rows * cols }, (_, c) => g.values[(40 + Math.floor(c / cols)) * g.width + 40 + (c % cols)] ?? Number.NaN);
+  }
+
+  it.each([
+    ['psnr:70', 10 ** (-70 / 20)],
+    ['psnr:40', 10 ** (-40 / 20)],
+  ])('chooses the plan whose payloads of every tile, each plan coded in full, add up to the fewest bytes: %s', (_label, ratio) => {
+    const [rows, cols, side] = [96, 128, 32];
+    const values = precipBlock(rows, cols);
+    expect(values.every(Number.isFinite)).toBe(true);
+    let [lo, hi] = [Infinity, -Infinity];
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    // RMSE limit range x 10^(-PSNR / 20) (PSNR = 20 log10(range / RMSE), common usage).
+    const tol = (hi - lo) * ratio;
+    const spec: FieldSpec = { name: 'p', dtype: 'f64', rows, cols, tileRows: side, tileCols: side, bound: { mode: 'rmse', value: tol }, fill: null };
+    const src = memoryBands(values, cols);
+    const plans = candidatePlans(firstPass(src, spec, tol, null).spectra, tol);
+    expect(plans.length).toBeGreaterThan(1);
+    const sample = Array.from({ length: 12 }, (_, k) => k);
+    // The definition, stated directly on freshly prepared tiles: every plan on every tile, the plans of a tile in order
+    // (a later plan's payloads depend on the singular vectors an earlier one left), then the smallest total, the first on a tie.
+    const fresh = firstPass(src, spec, tol, null).kept;
+    const totals = plans.map(() => 0);
+    for (const k of sample) for (const [at, p] of plans.entries()) totals[at] += encodeWith(p, fresh[k], k).length;
+    const least = Math.min(...totals);
+    const costed = costPlans(plans, sample, firstPass(src, spec, tol, null).kept);
+    expect(costed.bytes).toBe(least);
+    expect(costed.plan).toBe(plans[totals.indexOf(least)]);
   });
 });
