@@ -259,6 +259,10 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     const plans = candidatePlans(firstPass(src, spec, tol, null).spectra, tol);
     expect(plans.length).toBeGreaterThan(1);
     const sample = Array.from({ length: 12 }, (_, k) => k);
+    // At psnr:70 every rank plan codes more factor values than the tiles have cells (32 x 32 tiles: r (m + n) / (m n) = r / 16),
+    // so it is not costed; at psnr:40 none does, and the losers drop out on their bytes.
+    const perCell = plans.filter((p) => p.kind === 'rank').map((p) => p.ranks.reduce((a, r) => a + r, 0) / 16 / 12);
+    expect(perCell.every((v) => (ratio > 1e-3 ? v < 1 : v > 1))).toBe(true);
     // The definition, stated directly on freshly prepared tiles: every plan on every tile, the plans of a tile in order
     // (a later plan's payloads depend on the singular vectors an earlier one left), then the smallest total, the first on a tie.
     const fresh = firstPass(src, spec, tol, null).kept;
