@@ -309,18 +309,21 @@ const DROP_MARGIN = 0.15;
  * steps as when each plan is costed on every tile in turn: a later plan's
  * payloads depend on the singular vectors an earlier one left, see
  * ensureSvd); once enough tiles are costed, a plan whose bytes pass the
- * cheapest's by DROP_MARGIN drops out (a rank plan that drops out still
- * leaves each later tile's singular vectors as its encoding would, while a
- * later plan is in the running); a rank plan that {@link outnumbers} the
- * cells is out from the start. The cheapest plan left wins; the first on
- * a tie.
+ * cheapest's by DROP_MARGIN drops out; a rank plan that {@link outnumbers}
+ * the cells is out from the start. A rank plan out of the running still
+ * leaves each later tile's singular vectors as its encoding would while a
+ * later rank plan is in the running; the residual plan alone needs none
+ * left, and then finds the tile as the second pass gives it to the plan
+ * (with none: see the end of this function). The cheapest plan left wins;
+ * the first on a tie.
  */
 export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): { plan: L2PlanData; bytes: number } {
   const bytes = new Float64Array(plans.length);
   const running = plans.map((p) => !outnumbers(p, sample, tiles));
   const dropAfter = Math.max(DROP_AFTER_TILES, Math.ceil(DROP_AFTER_SHARE * sample.length));
   for (let k = 0; k < sample.length; k++) {
-    const last = running.lastIndexOf(true);
+    let last = plans.length - 1;
+    while (last >= 0 && !(running[last] && plans[last].kind === 'rank')) last--;
     for (const [at, p] of plans.entries()) {
       if (running[at]) bytes[at] += encodeWith(p, tiles[k], sample[k]).length;
       else if (p.kind === 'rank' && at < last) leaveSvd(tiles[k], p.ranks[sample[k]]);
