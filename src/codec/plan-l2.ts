@@ -11,6 +11,7 @@ import { cutBlock } from '../geometry.js';
 import { forEachTile, tileGrid, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
+import { truncatedSvd } from '../linalg/truncated.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
@@ -52,7 +53,7 @@ export interface L2Plan {
 }
 
 /** A tile's payload under a plan, before its allotment is enforced. */
-function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
+export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
   if (p.kind === 'rank') return encodeL2(t, p.ranks[index], p.c, p.dw);
   // The pointwise coder at ePrime, or a residual whose codes are chosen for rate as well as error, at
   // rank 0 and at the rank the pointwise coder chose: the smallest.
@@ -100,26 +101,77 @@ export function firstPassTile(
   seen?: (s: Float64Array) => void,
 ): FirstPassTile {
   const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
-  const s = tileSpectrum(t, known);
+  const s = tileSpectrum(t, tol, known);
   seen?.(s);
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
 }
 
 /**
  * A prepared tile's singular values (none when it has no valid cell or
- * overflowed). The full spectrum: cutting the field-wide smallest values
- * needs every one of them, and only their squares to the budget's accuracy,
- * so the Gram matrix's eigenvalues serve (src/linalg/spectrum.ts); the
- * second pass computes singular vectors only up to the rank it codes.
- * `known`, when given, are the values computed before from the same tile
- * values, prepared with another tolerance: they serve as they are for a
- * tile without missing cells, whose prepared (centred) values do not
- * depend on the tolerance (only the filling of missing cells does).
+ * overflowed), as the L2 plans need them: every one of them, or the
+ * leading ones and a lumped tail ({@link leadingSpectrum}) where the tail
+ * is too small to matter to any plan. Cutting the field-wide smallest
+ * values needs their squares only to the budget's accuracy, so the Gram
+ * matrix's eigenvalues serve for the whole spectrum
+ * (src/linalg/spectrum.ts); the second pass computes singular vectors only
+ * up to the rank it codes. `known`, when given, are the values computed
+ * before from the same tile values, prepared with another tolerance: they
+ * serve as they are for a tile without missing cells, whose prepared
+ * (centred) values do not depend on the tolerance (only the filling of
+ * missing cells does). The tile trial's tolerance is at most the field's
+ * (its sample's range is within the field's), so a tail it lumped is
+ * within this tolerance's limit too.
  */
-export function tileSpectrum(t: PreparedTile, known?: Float64Array): Float64Array {
+export function tileSpectrum(t: PreparedTile, tol: number, known?: Float64Array): Float64Array {
   if (!(t.valid > 0 && t.finite)) return new Float64Array(0);
   if (known !== undefined && t.classes.special === 0 && known.length === Math.min(t.m, t.n)) return known;
-  return gramSingularValues(t.centred, t.m, t.n);
+  return leadingSpectrum(t, tol) ?? gramSingularValues(t.centred, t.m, t.n);
+}
+
+/** Tiles whose shorter side is below this take the whole spectrum (the Gram matrix is cheap there). */
+const LEADING_MIN_SIDE = 256;
+/** Leading values tried, in turn, before the whole spectrum is taken. */
+const LEADING_COUNTS = [16, 48];
+/**
+ * A lumped tail may hold at most this share of the tile's own part of the
+ * budget (valid x tol^2): a thousandth, so that every tile's tail together
+ * is a thousandth of the field's budget, far inside the smallest truncation
+ * share (common practice, no source, for the share).
+ */
+const LUMP_SHARE = 1e-3;
+
+/**
+ * The tile's spectrum as its k leading singular values (the randomized
+ * range finder of src/linalg/truncated.ts) and the rest as equal values
+ * whose squares add up to the energy left, frob2 - sum of the k squares
+ * (the Frobenius norm squared is the sum of all squared singular values):
+ * for the first k in {@link LEADING_COUNTS} whose tail energy is within
+ * {@link LUMP_SHARE} of the tile's part of the budget; null when none is, or
+ * when the tile is too small to gain. A cut from the smallest values up
+ * takes such a tail whole before any leading value (each lumped value is
+ * at most the last leading one, as the true tail's values are), and the
+ * plans see its total to within the rounding of frob2; the order in which
+ * the field's tails are cut, and so the exact rank where a cut stops
+ * inside a tail, may differ from the whole spectrum's, which is why the
+ * tail must be far below any share of the budget.
+ */
+export function leadingSpectrum(t: PreparedTile, tol: number): Float64Array | null {
+  const full = Math.min(t.m, t.n);
+  if (full < LEADING_MIN_SIDE || !(tol > 0)) return null;
+  const limit = LUMP_SHARE * t.valid * tol * tol;
+  for (const k of LEADING_COUNTS) {
+    if (k + 8 >= full) break;
+    const r = truncatedSvd(t.centred, t.m, t.n, k);
+    let lead = 0;
+    for (let j = 0; j < k; j++) lead += r.s[j] * r.s[j];
+    const tail = Math.max(0, r.frob2 - lead);
+    if (!(tail <= limit)) continue;
+    const out = new Float64Array(full);
+    out.set(r.s.subarray(0, k));
+    out.fill(Math.min(r.s[k - 1], Math.sqrt(tail / (full - k))), k);
+    return out;
+  }
+  return null;
 }
 
 /**
@@ -230,35 +282,83 @@ export function cheapestPlan(plans: L2PlanData[], sample: number[], tiles: Prepa
   return costPlans(plans, sample, tiles).plan;
 }
 
-/** {@link cheapestPlan}, with the bytes its payloads of the sampled tiles take. */
+/**
+ * Tiles every candidate plan is costed on before one may be dropped
+ * (DROP_AFTER_SHARE of the sample, at least DROP_AFTER_TILES), and how much
+ * more than the cheapest its bytes on them must take for it to be dropped
+ * (DROP_MARGIN). Candidates that lose usually lose by far (the rank plans
+ * took twice the residual plan's bytes on the noisy bench fields at
+ * psnr:80, the residual plan a fifth more than the rank plans on the
+ * smooth large field), and coding a losing plan on every sampled tile cost
+ * most of a large field's planning time. But a plan's lead over part of a
+ * field does not always hold over the rest: on the annual-precipitation
+ * block of test/codec/plan-l2.test.ts at psnr:40 the residual plan was 20%
+ * behind after 5 of 12 tiles and won by 10%. Measured on the 76 plan
+ * choices of `npm run digest` and that block (every plan's bytes on every
+ * sampled tile, logged, and the rule replayed): these figures change none
+ * of them; dropping after a quarter of the sample changed the block's.
+ */
+const DROP_AFTER_TILES = 2;
+const DROP_AFTER_SHARE = 0.5;
+const DROP_MARGIN = 0.15;
+
+/**
+ * {@link cheapestPlan}, with the bytes its payloads of the sampled tiles
+ * take. The plans are costed a tile at a time, each tile by every plan
+ * still in the running, in plan order (so each tile goes through the same
+ * steps as when each plan is costed on every tile in turn: a later plan's
+ * payloads depend on the singular vectors an earlier one left, see
+ * ensureSvd); once enough tiles are costed, a plan whose bytes pass the
+ * cheapest's by DROP_MARGIN drops out; a rank plan that {@link outnumbers}
+ * the cells is out from the start. A rank plan out of the running still
+ * leaves each later tile's singular vectors as its encoding would while a
+ * later rank plan is in the running; the residual plan alone needs none
+ * left, and then finds the tile as the second pass gives it to the plan
+ * (with none: see the end of this function). The cheapest plan left wins;
+ * the first on a tie.
+ */
 export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): { plan: L2PlanData; bytes: number } {
-  let best = plans[plans.length - 1];
-  let bestBytes = Infinity;
-  for (const [at, p] of plans.entries()) {
-    let bytes = 0;
-    for (let k = 0; k < sample.length; k++) {
-      if (bytes >= bestBytes) {
-        // The plan cannot be cheapest (ties go to the earlier plan), so its payloads are not needed. The
-        // last plan stops here; a rank plan before it still leaves each tile's singular vectors as its
-        // encoding would (a later plan's payloads depend on them: see ensureSvd); a residual plan before
-        // the last is encoded whole.
-        if (at === plans.length - 1) break;
-        if (p.kind === 'rank') {
-          leaveSvd(tiles[k], p.ranks[sample[k]]);
-          continue;
-        }
-      }
-      bytes += encodeWith(p, tiles[k], sample[k]).length;
+  const bytes = new Float64Array(plans.length);
+  const running = plans.map((p) => !outnumbers(p, sample, tiles));
+  const dropAfter = Math.max(DROP_AFTER_TILES, Math.ceil(DROP_AFTER_SHARE * sample.length));
+  for (let k = 0; k < sample.length; k++) {
+    let last = plans.length - 1;
+    while (last >= 0 && !(running[last] && plans[last].kind === 'rank')) last--;
+    for (const [at, p] of plans.entries()) {
+      if (running[at]) bytes[at] += encodeWith(p, tiles[k], sample[k]).length;
+      else if (p.kind === 'rank' && at < last) leaveSvd(tiles[k], p.ranks[sample[k]]);
     }
-    if (bytes < bestBytes) {
-      bestBytes = bytes;
-      best = p;
-    }
+    if (k + 1 < dropAfter) continue;
+    let least = Infinity;
+    for (let at = 0; at < plans.length; at++) if (running[at]) least = Math.min(least, bytes[at]);
+    for (let at = 0; at < plans.length; at++) if (bytes[at] > (1 + DROP_MARGIN) * least) running[at] = false;
   }
+  let best = -1;
+  for (let at = 0; at < plans.length; at++) if (running[at] && (best < 0 || bytes[at] < bytes[best])) best = at;
   // The trial left singular vectors (of whatever rank it needed) on the sampled tiles; the second
   // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
   for (const t of tiles) t.svd = null;
-  return { plan: best, bytes: bestBytes };
+  return { plan: plans[best], bytes: bytes[best] };
+}
+
+/**
+ * Whether a rank plan codes as many factor values on the sampled tiles as
+ * they have cells, r (m + n) against m n summed: such a plan is not costed
+ * (it drops out before its first tile). On the 76 plan choices of `npm run
+ * digest` every such plan lost, by 30% to 3 times the bytes of the
+ * residual plan, while plans with 0.6 to 0.85 factor values a cell won
+ * eight of them (time x space stacks); the residual plan codes one value a
+ * cell, at a step from the same budget.
+ */
+function outnumbers(p: L2PlanData, sample: number[], tiles: PreparedTile[]): boolean {
+  if (p.kind !== 'rank') return false;
+  let values = 0;
+  let cells = 0;
+  for (const [k, i] of sample.entries()) {
+    values += p.ranks[i] * (tiles[k].m + tiles[k].n);
+    cells += tiles[k].m * tiles[k].n;
+  }
+  return values >= cells;
 }
 
 /** What encoding a tile at rank r under a rank plan leaves on it: the singular vectors {@link encodeL2} asks for. */

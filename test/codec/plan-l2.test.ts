@@ -10,8 +10,12 @@
  * ascending order, cut while it fits, close a tile whose next value does
  * not fit) is common practice, no source.
  */
+import { Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
-import { cuttable, eckartYoungPlans, firstPass, keepsTiles, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { readFileSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
+import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, firstPass, keepsTiles, leadingSpectrum, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { gramSingularValues } from '../../src/linalg/spectrum.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
 import { memoryBands, type FieldSpec } from '../../src/codec/tiles.js';
@@ -161,16 +165,112 @@ describe('tileSpectrum (singular values the tile trial took, used again)', () =>
   it('takes known values for a tile without missing cells at any tolerance, and recomputes a tile whose filling depends on it', () => {
     const rand = mulberry32(7);
     const values = Float32Array.from({ length: 24 * 16 }, (_, c) => Math.sin(c / 7) + 0.1 * rand());
-    const own = tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.01));
+    const own = tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.01), 0.01);
     const marker = Float64Array.from(own, (v) => v + 1);
     // Centring does not depend on the tolerance: the values computed at one serve at another.
-    expect(tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.5), marker)).toBe(marker);
-    expect(Array.from(tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.5)))).toEqual(Array.from(own));
+    expect(tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.5), 0.5, marker)).toBe(marker);
+    expect(Array.from(tileSpectrum(prepareTile(values, 24, 16, 'f32', null, 0.5), 0.5))).toEqual(Array.from(own));
     // A missing cell is filled by a low-rank fill that depends on the tolerance: computed afresh.
     const holed = Float32Array.from(values);
     holed[30] = Number.NaN;
-    const again = tileSpectrum(prepareTile(holed, 24, 16, 'f32', null, 0.5), marker);
+    const again = tileSpectrum(prepareTile(holed, 24, 16, 'f32', null, 0.5), 0.5, marker);
     expect(again).not.toBe(marker);
     expect(again.length).toBe(16);
+  });
+});
+
+describe('leadingSpectrum (leading singular values and a lumped tail)', () => {
+  /** A smooth 256 x 288 tile: samples of 1 / (1 + x + y), whose singular values fall off geometrically. */
+  const [m, n] = [256, 288];
+  const smooth = Float32Array.from({ length: m * n }, (_, c) => 1 / (1 + Math.floor(c / n) / m + (c % n) / n) + 1e-3 * Math.sin(c));
+
+  // The smallest tile that takes this path (256 on its shorter side): ml-matrix's SVD of it takes about a second.
+  it('gives the leading values of ml-matrix\'s SVD and a tail whose squares make up the Frobenius norm', () => {
+    const tol = 1e-3;
+    const t = prepareTile(smooth, m, n, 'f32', null, tol);
+    const s = leadingSpectrum(t, tol);
+    expect(s).not.toBeNull();
+    // Reference library: ml-matrix's SVD (Golub-Kahan-Reinsch, after JAMA) of the same centred values.
+    const rows = Array.from({ length: m }, (_, i) => Array.from(t.centred.subarray(i * n, (i + 1) * n)));
+    const ref = new SingularValueDecomposition(new Matrix(rows), { autoTranspose: true }).diagonal;
+    expect(s!.length).toBe(m);
+    // The leading values, where they stand well above the tail, to 1e-9 relative.
+    for (let j = 0; j < 6; j++) expect(Math.abs(s![j] - ref[j])).toBeLessThanOrEqual(1e-9 * ref[j]);
+    // ||A||_F^2 = sum of squared singular values (Golub and Van Loan, "Matrix Computations", 2.5.3; from memory).
+    const frob2 = t.centred.reduce((a, x) => a + x * x, 0);
+    const sum2 = s!.reduce((a, x) => a + x * x, 0);
+    expect(Math.abs(sum2 - frob2)).toBeLessThanOrEqual(1e-9 * frob2);
+    // Descending, and the lumped tail within the share of the tile's budget it may hold.
+    for (let j = 1; j < s!.length; j++) expect(s![j]).toBeLessThanOrEqual(s![j - 1]);
+    const k = s!.findIndex((v, j) => j > 0 && v === s![s!.length - 1]);
+    const refTail = ref.slice(k).reduce((a, x) => a + x * x, 0);
+    expect((s!.length - k) * s![k] ** 2).toBeLessThanOrEqual(1e-3 * t.valid * tol * tol);
+    expect(Math.abs((s!.length - k) * s![k] ** 2 - refTail)).toBeLessThanOrEqual(1e-9 * frob2);
+  });
+
+  it('leaves the plans of a field of such tiles as the whole spectra make them', () => {
+    // Eckart-Young cut (see the head of this file) from the leading values and from every value (Gram eigenvalues, tested against ml-matrix in test/linalg).
+    const tol = 2e-4;
+    const tiles = [0, 1, 2].map((k) => prepareTile(Float32Array.from(smooth, (v, c) => v * (1 + 0.3 * k) + 1e-4 * k * Math.cos(c / 5)), m, n, 'f32', null, tol));
+    const plans = (spectrum: (t: (typeof tiles)[number]) => Float64Array) => {
+      const spectra = new Spectra(tiles.length);
+      for (const t of tiles) spectra.add({ sv2: spectrum(t).map((v) => (v / tol) ** 2), dims: [m, n, t.valid] });
+      return eckartYoungPlans(spectra, tiles.length * m * n, [0.3, 0.5, 0.8], tol);
+    };
+    const lead = plans((t) => leadingSpectrum(t, tol)!);
+    const whole = plans((t) => gramSingularValues(t.centred, m, n));
+    for (const [i, p] of lead.entries()) {
+      expect(Array.from(p!.ranks)).toEqual(Array.from(whole[i]!.ranks));
+      // The steps from the cut totals, equal to the rounding of the tails (about 1e-8 relative here).
+      expect(Math.abs(p!.dw - whole[i]!.dw)).toBeLessThanOrEqual(1e-6 * whole[i]!.dw);
+      expect(Math.abs(p!.c - whole[i]!.c)).toBeLessThanOrEqual(1e-6 * whole[i]!.c);
+    }
+  });
+
+  it('takes no lumped tail where the spectrum is flat (noise), nor for a tile below 256 on a side', () => {
+    const rnd = mulberry32(3);
+    const noise = Float32Array.from({ length: m * n }, () => rnd());
+    expect(leadingSpectrum(prepareTile(noise, m, n, 'f32', null, 1e-2), 1e-2)).toBeNull();
+    expect(leadingSpectrum(prepareTile(smooth.subarray(0, 128 * n), 128, n, 'f32', null, 1e-3), 1e-3)).toBeNull();
+  });
+});
+
+describe('costPlans (candidate plans costed a tile at a time, losers dropped)', () => {
+  /** A block of vega-datasets 3.2.1 annual-precip.json (NOAA CFSv2 2016 annual precipitation, 360 x 168): rows 40.., columns 40.., no missing cells. */
+  function precipBlock(rows: number, cols: number): Float64Array {
+    const path = fileURLToPath(new URL('../../node_modules/vega-datasets/data/annual-precip.json', import.meta.url));
+    const g = JSON.parse(readFileSync(path, 'utf8')) as { width: number; values: (number | null)[] };
+    return Float64Array.from({ length: rows * cols }, (_, c) => g.values[(40 + Math.floor(c / cols)) * g.width + 40 + (c % cols)] ?? Number.NaN);
+  }
+
+  it.each([
+    ['psnr:70', 10 ** (-70 / 20)],
+    ['psnr:40', 10 ** (-40 / 20)],
+  ])('chooses the plan whose payloads of every tile, each plan coded in full, add up to the fewest bytes: %s', (_label, ratio) => {
+    const [rows, cols, side] = [96, 128, 32];
+    const values = precipBlock(rows, cols);
+    expect(values.every(Number.isFinite)).toBe(true);
+    let [lo, hi] = [Infinity, -Infinity];
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    // RMSE limit range x 10^(-PSNR / 20) (PSNR = 20 log10(range / RMSE), common usage).
+    const tol = (hi - lo) * ratio;
+    const spec: FieldSpec = { name: 'p', dtype: 'f64', rows, cols, tileRows: side, tileCols: side, bound: { mode: 'rmse', value: tol }, fill: null };
+    const src = memoryBands(values, cols);
+    const plans = candidatePlans(firstPass(src, spec, tol, null).spectra, tol);
+    expect(plans.length).toBeGreaterThan(1);
+    const sample = Array.from({ length: 12 }, (_, k) => k);
+    // At psnr:70 every rank plan codes more factor values than the tiles have cells (32 x 32 tiles: r (m + n) / (m n) = r / 16),
+    // so it is not costed; at psnr:40 none does, and the losers drop out on their bytes.
+    const perCell = plans.filter((p) => p.kind === 'rank').map((p) => p.ranks.reduce((a, r) => a + r, 0) / 16 / 12);
+    expect(perCell.every((v) => (ratio > 1e-3 ? v < 1 : v > 1))).toBe(true);
+    // The definition, stated directly on freshly prepared tiles: every plan on every tile, the plans of a tile in order
+    // (a later plan's payloads depend on the singular vectors an earlier one left), then the smallest total, the first on a tie.
+    const fresh = firstPass(src, spec, tol, null).kept;
+    const totals = plans.map(() => 0);
+    for (const k of sample) for (const [at, p] of plans.entries()) totals[at] += encodeWith(p, fresh[k], k).length;
+    const least = Math.min(...totals);
+    const costed = costPlans(plans, sample, firstPass(src, spec, tol, null).kept);
+    expect(costed.bytes).toBe(least);
+    expect(costed.plan).toBe(plans[totals.indexOf(least)]);
   });
 });
