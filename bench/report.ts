@@ -324,6 +324,6 @@ export function renderReadmeBlock(info: RunInfo): string {
     lines.push(`| ${f.id} | ${cells.join(' | ')} |`);
   }
   lines.push('');
-  lines.push('Read it this way: where the bracket is near 0% the tile-local predictor and the range coder carry the load (real, noisy or integer-valued fields at pointwise bounds); where it is large the truncated SVD does (fields low-rank as a whole, such as smooth fields and stacks of slowly changing snapshots, above all at PSNR bounds). On a stack that is not low rank in time (turbulence-stack) the predictors work across snapshots: in the time x space layout the row above a cell is the same point one snapshot earlier.');
+  lines.push('Read it this way: where the bracket is near 0% the tile-local predictor and the range coder carry the load (real, noisy or integer-valued fields at pointwise bounds); where it is large the truncated SVD does (fields low-rank as a whole, such as smooth fields and stacks of slowly changing snapshots, above all at PSNR bounds). On a stack that is not low rank in time (turbulence-stack) the predictors carry the pointwise bounds, working across snapshots (in the time x space layout the row above a cell is the same point one snapshot earlier), while at PSNR bounds dropping the weakest of its few time modes (32 snapshots) is still the cheapest.');
   return lines.join('\n');
 }
