@@ -38,6 +38,11 @@ function dims(g: Grid): [number, number, number, number] {
   return 'shape' in g ? [g.shape[0], g.shape[1], g.tile[0], g.tile[1]] : [g.rows, g.cols, g.tileRows, g.tileCols];
 }
 
+/** Rows of one slice (either spelling). */
+export function sliceRows(g: Grid): number {
+  return dims(g)[0];
+}
+
 /** Tiles of one slice: [tile rows, tile columns]. */
 export function tileGrid(g: Grid): [number, number] {
   const [rows, cols, tr, tc] = dims(g);

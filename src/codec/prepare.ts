@@ -41,6 +41,12 @@ export interface PreparedTile {
   lattice: { quantum: number; origin: number };
   /** The field's residual step (`fieldStep` of its tolerance; 0 for none): a payload names it by a flag. */
   fieldStep: number;
+  /**
+   * The field layer's term for each cell (see layer.ts), or null: the tile's own
+   * low-rank part, centre and residual code `orig - layer`, and every
+   * reconstruction here adds the term as the decoder does.
+   */
+  layer: Float64Array | null;
 }
 
 /** Classify, fill and centre a tile; the SVD is computed by {@link ensureSvd}. */
@@ -52,6 +58,7 @@ export function prepareTile(
   fill: Uint32Array | null,
   tol = 0,
   grouping: 'one' | 'doubling' = 'one',
+  layer: Float64Array | null = null,
 ): PreparedTile {
   const cells = m * n;
   const classes = classify(orig, fill);
@@ -62,7 +69,8 @@ export function prepareTile(
   let constant = true;
   for (let c = 0; c < cells; c++) {
     if (classes.codes[c] !== Cell.Valid) continue;
-    const v = orig[c];
+    // Under a field layer the tile models what the layer leaves (binary64; the check is against orig).
+    const v = layer ? orig[c] - layer[c] : orig[c];
     x[c] = v;
     sum += v;
     if (first !== first) first = v;
@@ -90,8 +98,9 @@ export function prepareTile(
     w.bytes(classes.rawNaN);
     maskSection = w.finish();
   }
-  const lattice = integerLattice(orig, classes.codes);
-  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null, grouping, lattice, fieldStep: fieldStep(tol) };
+  // The layer's term is no lattice point: lattice candidates would only miss.
+  const lattice = layer ? { quantum: 0, origin: 0 } : integerLattice(orig, classes.codes);
+  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null, grouping, lattice, fieldStep: fieldStep(tol), layer };
 }
 
 /** Largest integer magnitude the lattice test accepts: far below 2^53, so differences and gcds are exact. */

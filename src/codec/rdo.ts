@@ -4,6 +4,7 @@
  * and predictors that picks the smallest payload.
  */
 import type { FloatArray } from '../types.js';
+import { addLayer } from './layer.js';
 import { Cell } from './mask.js';
 import type { PreparedTile } from './prepare.js';
 import { interior, lowRank, Predictor, walkPredictor } from './reconstruct.js';
@@ -218,6 +219,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   const base = new Float64Array(cells);
   if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
   else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
+  if (t.layer) addLayer(base, t.layer, cells);
   const unit = Math.sqrt(12 * mse);
   const plain = correct(t, f, unit / 2, unit);
   if (plain.bits !== undefined && (plain.bits / 8) * GIVE_UP >= atMost) return null;

@@ -8,6 +8,7 @@ import { printable } from '../format/schema.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
 import { CENTRE_FORM_SHIFT, CentreForm, Flag, KNOWN_FLAGS, KNOWN_RESIDUAL_BITS, Method, NUMBER_BYTES, STEP_FORM_SHIFT, StepForm, VARINT_BYTES } from './payload.js';
+import { addLayer } from './layer.js';
 import { lowRank, MAX_PREDICTOR, reconstruct, unpredict } from './reconstruct.js';
 import { CodeStreamError, decodeClasses, decodeInts } from './code-decode.js';
 import { MAX_INT, readSection } from './section.js';
@@ -40,6 +41,12 @@ export interface TileContext {
   groups?: number;
   /** Working buffers to reuse (see {@link DecodeScratch}); fresh ones for this tile when absent. */
   scratch?: DecodeScratch;
+  /**
+   * The field layer's term for each of the tile's m x n cells (see layerTerm in
+   * layer.ts), for a field with a layer; added to a LowRank payload's low-rank
+   * part and centre before the residual. An Exact payload ignores it.
+   */
+  layer?: Float64Array | null;
 }
 
 /**
@@ -135,6 +142,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   // lowRank sets every cell of acc, so left-over contents do not matter.
   const acc = ctx.scratch ? ctx.scratch.sumsFor(cells) : new Float64Array(cells);
   lowRank(factors.l, factors.w, m, n, factors.rank, center, acc);
+  if (ctx.layer) addLayer(acc, ctx.layer, cells);
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
   const finite = reconstruct(acc, residual.q, residual.step, out);
   applyExceptions(out, exceptions, ctx);

@@ -3,6 +3,7 @@
  * candidate payloads and keep the smallest that the decoder reproduces
  * within the bound.
  */
+import { addLayer } from './layer.js';
 import { ByteWriter } from '../format/bytes.js';
 import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
@@ -298,6 +299,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   const base = new Float64Array(cells);
   if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
   else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
+  if (t.layer) addLayer(base, t.layer, cells);
   const codes = t.classes.codes;
   let q: Int32Array | null = null;
   let predictor: number = Predictor.None;

@@ -22,8 +22,10 @@ export const VERSION = 8;
 export const PROLOGUE_SIZE = 12;
 /** Required flag bit 0: some field stacks more than one slice (spec/FORMAT.md, "Required flags"). */
 export const FLAG_SLICES = 0x1;
+/** Required flag bit 1: some field has a field layer (spec/FORMAT.md, "Required flags"). */
+export const FLAG_LAYER = 0x2;
 /** Required flags this reader understands. */
-export const KNOWN_FLAGS = FLAG_SLICES;
+export const KNOWN_FLAGS = FLAG_SLICES | FLAG_LAYER;
 export const TAIL_SIZE = 24;
 /** Tile rows and columns of one index page, unless a field asks for others: 64 tiles, about 1.6 KB of index. */
 export const DEFAULT_PAGE: readonly [number, number] = [8, 8];
@@ -456,6 +458,10 @@ export async function readContainer(src: ByteSource, given?: Partial<Limits>): P
   if (sliced && (flags & FLAG_SLICES) === 0) {
     throw new FormatError(FormatCode.Malformed, `${label}: field ${quoteName(sliced.name)} holds ${sliced.slices} slices but required flag bit 0 (slices) is not set`);
   }
+  const layered = header.fields.find((f) => f.layer !== undefined);
+  if (layered && (flags & FLAG_LAYER) === 0) {
+    throw new FormatError(FormatCode.Malformed, `${label}: field ${quoteName(layered.name)} has a field layer but required flag bit 1 (layer) is not set`);
+  }
   const db = block.subarray(headerLength);
   const bounds = { start: PROLOGUE_SIZE, end, header: { offset: headerOffset, length: headerLength }, directory: { offset: dirOffset, length: dirLength } };
   const { directory, payloadEnd } = checkDirectory(decodeBlock(db, `index directory (at offset ${dirOffset})`, label, limits), header, bounds, limits, label);
@@ -519,6 +525,6 @@ export function checkVersion(version: number, flags: number, label: string): voi
     throw new FormatError(FormatCode.Unsupported, `${label}: format version ${version} is not supported (this reader knows ${VERSIONS.join(', ')})`);
   }
   if ((flags & ~KNOWN_FLAGS) !== 0) {
-    throw new FormatError(FormatCode.Unsupported, `${label}: required flags 0x${(flags & ~KNOWN_FLAGS).toString(16)} are unknown to this reader (it knows 0x${KNOWN_FLAGS.toString(16)}: bit 0, slices)`);
+    throw new FormatError(FormatCode.Unsupported, `${label}: required flags 0x${(flags & ~KNOWN_FLAGS).toString(16)} are unknown to this reader (it knows 0x${KNOWN_FLAGS.toString(16)}: bit 0, slices; bit 1, layer)`);
   }
 }

@@ -40,6 +40,22 @@ export interface FieldHeader {
   dims?: string[];
   /** Optional: how nd_shape maps to slices x rows x cols: 'slices' or 'matrix:A'. */
   layout?: string;
+  /**
+   * Optional: the field layer (spec/FORMAT.md, "Field layer"): its rank and the
+   * positions, in the header's field list, of the fields holding its left
+   * factor (slices x rows rows, `rank` columns) and its right factor (cols
+   * rows, `rank` columns).
+   */
+  layer?: FieldLayerRef;
+  /** Not stored: set by the reader on a field that holds a factor of another field's layer. */
+  factorOf?: { field: number; side: 'left' | 'right' };
+}
+
+/** A field entry's `layer` element: [rank, left, right]. */
+export interface FieldLayerRef {
+  rank: number;
+  left: number;
+  right: number;
 }
 
 /** Slices, rows and columns an N-D shape gives under a layout ('slices' or 'matrix:A'). */
@@ -325,8 +341,8 @@ function checkFill(v: unknown, where: string): number | null {
  * array of {@link BOUND_ELEMENTS}. Elements after the known ones are ignored.
  */
 export const HEADER_ELEMENTS = ['writer', 'attrs', 'fields'] as const;
-export const FIELD_ELEMENTS = ['name', 'dtype', 'shape', 'tile', 'bound', 'fill', 'attrs', 'nd'] as const;
-/** Elements a field entry must have: the first five (fill, attrs and nd may be left out at the end). */
+export const FIELD_ELEMENTS = ['name', 'dtype', 'shape', 'tile', 'bound', 'fill', 'attrs', 'nd', 'layer'] as const;
+/** Elements a field entry must have: the first five (fill, attrs, nd and layer may be left out at the end). */
 export const FIELD_REQUIRED = 5;
 export const BOUND_ELEMENTS = ['mode', 'value', 'tolerance', 'range'] as const;
 /** The keys an `nd` map may hold (spec/FORMAT.md, section 6.2.1); others are ignored. */
@@ -346,7 +362,7 @@ export function checkHeader(raw: unknown, limits: Limits, label: string, version
   const fields = rawFields.map((f: unknown, i: number): FieldHeader => {
     const at = `${label} header field ${i}`;
     if (!Array.isArray(f) || f.length < FIELD_REQUIRED) fail(at, `is ${describeValue(f)}, not an array of ${FIELD_REQUIRED} to ${FIELD_ELEMENTS.length} elements ${listOf(FIELD_ELEMENTS)}`);
-    const [name, dtype, shape, tile, b, fillValue, attrs, ndValue] = f;
+    const [name, dtype, shape, tile, b, fillValue, attrs, ndValue, layerValue] = f;
     if (typeof name !== 'string' || name.length === 0 || name.length > 1024) fail(at, `name must be a string of 1 to 1024 characters, got ${describeValue(name)}`);
     if (names.has(name)) fail(at, `duplicate field name ${describeValue(name)}`);
     names.add(name);
@@ -394,10 +410,56 @@ export function checkHeader(raw: unknown, limits: Limits, label: string, version
     if (nd.nd_shape !== undefined) out.nd_shape = (nd.nd_shape as number[]).slice();
     if (nd.dims !== undefined) out.dims = (nd.dims as string[]).slice();
     if (nd.layout !== undefined) out.layout = nd.layout as string;
+    if (layerValue !== undefined && layerValue !== null) out.layer = checkLayerRef(layerValue, rawFields.length, i, where);
     return out;
   });
+  checkLayers(fields, limits, label);
   const writer = typeof rawWriter === 'string' ? rawWriter : 'unknown';
   return { format: 'rankfield', version, writer, attrs: checkAttrs(rawAttrs, `${label} header`), fields };
+}
+
+/** A field entry's `layer` element: an array of three integers [rank, left, right] naming two other fields. */
+function checkLayerRef(v: unknown, fieldCount: number, self: number, where: string): FieldLayerRef {
+  if (!Array.isArray(v) || v.length !== 3 || !v.every((x) => Number.isSafeInteger(x))) {
+    fail(where, `layer is ${describeValue(v)}, not nil or an array of three integers [rank, left, right]`);
+  }
+  const [rank, left, right] = v as number[];
+  if (rank < 1) fail(where, `layer rank ${rank} is below 1`);
+  for (const [what, x] of [['left', left], ['right', right]] as const) {
+    if (x < 0 || x >= fieldCount) fail(where, `layer ${what} factor names field ${x}, but the header has fields 0 to ${fieldCount - 1}`);
+    if (x === self) fail(where, `layer ${what} factor names the field itself`);
+  }
+  if (left === right) fail(where, `layer left and right factors name the same field ${left}`);
+  return { rank, left, right };
+}
+
+/**
+ * The checks between fields of spec/FORMAT.md "Field layer": each factor
+ * field is f64, of the shape the layer needs, without fill value, N-D keys
+ * or a layer of its own, and holds one factor of one layer only. Marks the
+ * factor fields (`factorOf`).
+ */
+function checkLayers(fields: FieldHeader[], limits: Limits, label: string): void {
+  fields.forEach((f, i) => {
+    if (!f.layer) return;
+    const where = `${label} field ${quoteName(f.name)}`;
+    const { rank, left, right } = f.layer;
+    const rows = (f.slices ?? 1) * f.shape[0];
+    const cols = f.shape[1];
+    if (rank > Math.min(rows, cols)) fail(where, `layer rank ${rank} exceeds the field's ${rows}x${cols}`);
+    if (rank > limits.maxRank) throw new FormatError(FormatCode.Limit, `${where}: layer rank ${rank} exceeds the reader limit of ${limits.maxRank}`);
+    for (const [side, at, want] of [['left', left, rows], ['right', right, cols]] as const) {
+      const g = fields[at];
+      const what = `layer ${side} factor (field ${at}, ${quoteName(g.name)})`;
+      if (g.layer) fail(where, `${what} has a layer of its own`);
+      if (g.factorOf) fail(where, `${what} already holds the ${g.factorOf.side} factor of field ${g.factorOf.field}`);
+      if (g.dtype !== 'f64') fail(where, `${what} is ${g.dtype}, not f64`);
+      if (g.shape[0] !== want || g.shape[1] !== rank) fail(where, `${what} has shape ${g.shape[0]}x${g.shape[1]}, not ${want}x${rank}`);
+      if (g.fill !== null) fail(where, `${what} has a fill value`);
+      if (g.slices !== undefined || g.nd_shape !== undefined || g.layout !== undefined) fail(where, `${what} has N-D keys`);
+      g.factorOf = { field: i, side };
+    }
+  });
 }
 
 /**
@@ -405,8 +467,9 @@ export function checkHeader(raw: unknown, limits: Limits, label: string, version
  * attrs, fields]`, attribute maps nil when empty; each field `[name, dtype,
  * shape, tile, [mode, value, tolerance, range], fill, attrs, nd]` with the
  * fill value as 8 bytes of binary64 (so -0 and every bit survive
- * MessagePack), `nd` a map of the N-D keys the field has, and the trailing
- * nils (no fill, no attributes, no N-D keys) left out.
+ * MessagePack), `nd` a map of the N-D keys the field has, `layer` its
+ * field layer's [rank, left, right], and the trailing nils (no fill, no
+ * attributes, no N-D keys, no layer) left out.
  */
 export function headerForDisk(header: Pick<ArchiveHeader, 'writer' | 'attrs' | 'fields'>): unknown[] {
   const fields = header.fields.map((f) => {
@@ -418,7 +481,8 @@ export function headerForDisk(header: Pick<ArchiveHeader, 'writer' | 'attrs' | '
     }
     const nd: Record<string, unknown> = {};
     for (const k of ND_KEYS) if (f[k] !== undefined) nd[k] = f[k];
-    const out: unknown[] = [f.name, f.dtype, [f.shape[0], f.shape[1]], [f.tile[0], f.tile[1]], [b.mode, b.value, b.tolerance, b.range], fill, nonEmpty(f.attrs), nonEmpty(nd)];
+    const layer = f.layer ? [f.layer.rank, f.layer.left, f.layer.right] : null;
+    const out: unknown[] = [f.name, f.dtype, [f.shape[0], f.shape[1]], [f.tile[0], f.tile[1]], [b.mode, b.value, b.tolerance, b.range], fill, nonEmpty(f.attrs), nonEmpty(nd), layer];
     while (out.length > FIELD_REQUIRED && out[out.length - 1] === null) out.pop();
     return out;
   });

@@ -228,14 +228,14 @@ describe('prologue and tail', () => {
     });
   }
 
-  // Bit 0 (slices) is known (spec/FORMAT.md, Section 4); the message names the unknown bits only.
-  for (const flags of [0x0002, 0x8000, 0xffff]) {
+  // Bits 0 (slices) and 1 (layer) are known (spec/FORMAT.md, Section 4); the message names the unknown bits only.
+  for (const flags of [0x0004, 0x8000, 0xffff]) {
     it(`unknown required flags 0x${flags.toString(16)} are refused as unsupported`, async () => {
       const b = smallLowRank();
       new DataView(b.buffer).setUint16(10, flags, true);
       new DataView(b.buffer).setUint16(b.length - TAIL + 10, flags, true);
       resealTail(b);
-      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`0x${(flags & ~1).toString(16)} are unknown`));
+      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`0x${(flags & ~3).toString(16)} are unknown`));
     });
   }
 
@@ -391,8 +391,8 @@ describe('header and index with valid CRCs but bad contents', () => {
     const cases: [Edit, RegExp][] = [
       [{ headerBytes: () => encode({ writer: 'x', fields: [] }) }, /^archive: header is a map, not an array of 3 elements \[writer, attrs, fields\]$/],
       [{ header: (h) => delete h.fields }, /^archive: header is an array of 1, not an array of 3 elements/],
-      [{ header: (h) => delete h.fields[0].bound && delete h.fields[0].fill }, /^archive header field 0: is an array of 4, not an array of 5 to 8 elements \[name, dtype, shape, tile, bound, fill, attrs, nd\]$/],
-      [{ headerBytes: (b) => encode(Object.assign(decode(b) as Block, { 2: [{ name: 'sample' }] })) }, /^archive header field 0: is a map, not an array of 5 to 8 elements/],
+      [{ header: (h) => delete h.fields[0].bound && delete h.fields[0].fill }, /^archive header field 0: is an array of 4, not an array of 5 to 9 elements \[name, dtype, shape, tile, bound, fill, attrs, nd, layer\]$/],
+      [{ headerBytes: (b) => encode(Object.assign(decode(b) as Block, { 2: [{ name: 'sample' }] })) }, /^archive header field 0: is a map, not an array of 5 to 9 elements/],
       [{ header: (h) => delete h.fields[0].bound }, /^archive field 'sample': bound is nil, not an array of 4 elements/],
       [{ header: (h) => delete h.fields[0].bound.range }, /^archive field 'sample': bound is an array of 3, not an array of 4 elements \[mode, value, tolerance, range\]$/],
       [{ header: (h) => (h.fields[0].nd = [2]) }, /^archive field 'sample': nd is an array of 1, not nil or a map of slices, nd_shape, dims, layout$/],

@@ -173,7 +173,7 @@ export function diskDirField(f: Block): Block {
 
 /** The stored elements of the header, of a field entry and of a bound, in their order (spec/FORMAT.md, section 6). */
 export const DISK_HEADER = ['writer', 'attrs', 'fields'] as const;
-export const DISK_FIELD = ['name', 'dtype', 'shape', 'tile', 'bound', 'fill', 'attrs', 'nd'] as const;
+export const DISK_FIELD = ['name', 'dtype', 'shape', 'tile', 'bound', 'fill', 'attrs', 'nd', 'layer'] as const;
 export const DISK_BOUND = ['mode', 'value', 'tolerance', 'range'] as const;
 /** The keys of a field entry's `nd` map, which the logical field holds as keys of its own (as version 2 stored them). */
 export const ND_KEYS = ['slices', 'nd_shape', 'dims', 'layout'] as const;
@@ -182,7 +182,7 @@ const isMap = (v: unknown): v is Record<string, Block> => typeof v === 'object' 
 
 /**
  * The stored header (an array `[writer, attrs, fields]`, each field an array
- * `[name, dtype, shape, tile, bound, fill?, attrs?, nd?]`, each bound
+ * `[name, dtype, shape, tile, bound, fill?, attrs?, nd?, layer?]`, each bound
  * `[mode, value, tolerance, range]`) as the keyed "logical" header the tests
  * edit: maps with those keys, the keys of a field's `nd` map among its own,
  * and a nil (or left out) fill, attrs or nd as no key at all.
