@@ -114,6 +114,12 @@ export interface PoolOptions {
    * calling thread, busy with its one, cannot take more.
    */
   depth?: number;
+  /**
+   * A task kind whose code each worker loads as soon as it starts (its first
+   * task of that kind then finds it loaded): a pool made for one job loads
+   * while the calling thread still prepares the work.
+   */
+  preload?: string;
 }
 
 /** A fixed set of worker threads running the tasks of worker.ts. */
@@ -135,7 +141,7 @@ export class WorkerPool {
     if (!Number.isSafeInteger(this.depth) || this.depth < 1) throw new InputError(InputCode.Option, `depth must be a positive integer, got ${String(options.depth)}`);
     if (this.local) this.slots.push({ worker: null, posted: new Map() });
     for (let i = this.slots.length; i < this.threads; i++) {
-      const worker = new Worker(new URL('./worker.js', import.meta.url), { resourceLimits: options.resourceLimits });
+      const worker = new Worker(new URL('./worker.js', import.meta.url), { resourceLimits: options.resourceLimits, workerData: { preload: options.preload ?? null } });
       const slot: Slot = { worker, posted: new Map() };
       worker.on('message', (m: ReplyMessage) => this.answer(slot, m));
       worker.on('error', (e) => this.fail(new Error(`a worker thread failed: ${e.message}`, { cause: e })));

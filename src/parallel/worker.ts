@@ -3,7 +3,7 @@
  * (encoding tiles, decoding bands) and answers each with its result or its
  * error, flattened so that it keeps its class and code (see pool.ts).
  */
-import { parentPort, type TransferListItem } from 'node:worker_threads';
+import { parentPort, workerData, type TransferListItem } from 'node:worker_threads';
 import { toWire, type ReplyMessage, type TaskMessage } from './pool.js';
 
 type Handler = (body: never) => { result: unknown; transfer?: TransferListItem[] } | Promise<{ result: unknown; transfer?: TransferListItem[] }>;
@@ -19,6 +19,10 @@ function tasksFor(kind: string): Promise<Record<string, Handler>> {
   if (kind.startsWith('read-')) return (reading ??= import('./read.js').then((m) => m.readTasks));
   return (encoding ??= import('./encode.js').then((m) => m.encodeTasks));
 }
+
+// The pool may name the kind of work it was made for: load its code now, before the first task arrives.
+const preload: unknown = (workerData as { preload?: unknown } | null)?.preload;
+if (typeof preload === 'string') void tasksFor(preload).catch(() => undefined);
 
 const port = parentPort;
 port?.on('message', async (m: TaskMessage) => {
