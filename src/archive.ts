@@ -285,7 +285,8 @@ export class Archive {
     const { header: h } = this.field(name);
     const e = await this.tileEntry(name, t);
     const payload = await this.source.read(e.offset, e.length);
-    const layer = this.layerRows(h, verifyValues);
+    // Exact tiles ignore a layer: only a LowRank tile needs its factor rows.
+    const layer = e.method === Method.LowRank ? this.layerRows(h, verifyValues) : null;
     await layer?.load([t]);
     return this.decodePayload(h, e, t, payload, verifyValues, layer);
   }
@@ -403,7 +404,7 @@ export class Archive {
       const a = Math.max(r0, i0);
       const lo = Math.max(c0, j0);
       copyBlock(tile, n, a - i0, lo - j0, Math.min(r1, i0 + m) - a, Math.min(c1, j0 + n) - lo, values, width, (s - s0) * (r1 - r0) + a - r0, lo - c0);
-    }, false, (t) => plan(t).length, layer ? (batch) => layer.load(batch) : undefined);
+    }, false, (t) => plan(t).length, layer ? (batch) => layer.load(batch.filter((t) => entry(t).method === Method.LowRank)) : undefined);
     const achieved = { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 };
     const whole = options.slices === undefined && options.rows === undefined && options.cols === undefined;
     const shape = whole && h.nd_shape ? ndShape(h) : hasSlices(h) ? [s1 - s0, r1 - r0, width] : [r1 - r0, width];
@@ -497,7 +498,7 @@ export class Archive {
       const loadLayer = async (batch: readonly number[]) => {
         layerFailed = null;
         try {
-          await layer!.load(batch);
+          await layer!.load(batch.filter((t) => entry(t).method === Method.LowRank));
         } catch (e) {
           if (!(e instanceof FormatError)) throw e;
           layerFailed = e.message;

@@ -200,6 +200,29 @@ describe('what a window of a layered field fetches', () => {
   });
 });
 
+describe('what a read of Exact tiles fetches', () => {
+  it('no factor row: Exact tiles ignore the layer (spec/FORMAT.md 11)', async () => {
+    // Noise at a bound far below its spacing: every tile stored exactly.
+    const rng = mulberry32(3);
+    const { left, right } = smoothFactors(12, 10, 2);
+    const made = layeredArchive({ values: Float64Array.from({ length: 120 }, () => rng()), shape: [12, 10], tile: [6, 5], tol: 1e-15, rank: 2, left, right });
+    const { src, reads } = counting(made.bytes);
+    const a = await open(src, { coalesce: { maxGap: 0 } });
+    for (let t = 0; t < 4; t++) expect((await a.tileEntry('field', t)).method).toBe(Method.Exact);
+    const factorTiles: [number, number][] = [];
+    for (const name of ['field.left', 'field.right']) {
+      for (let t = 0; t < tileCount(a.field(name).header); t++) {
+        const e = await a.tileEntry(name, t);
+        factorTiles.push([e.offset, e.length]);
+      }
+    }
+    reads.length = 0;
+    const got = await a.read('field');
+    expect(Array.from(got.values)).toEqual(Array.from(made.decoded));
+    expect(reads.some((r) => factorTiles.some(([o, l]) => r.offset < o + l && o < r.offset + r.length))).toBe(false);
+  });
+});
+
 describe('progressive prefixes of a layered field', () => {
   it('a looser bound reads prefixes, and their values include the layer term', async () => {
     // Tiles of their own rank on top of a rank-2 layer, fine noise: a residual worth skipping.
