@@ -118,6 +118,18 @@ describe('WorkerPool options', () => {
   });
 });
 
+/** The bands readBands handed over, joined in order; they must hold `length` values in all. */
+function joinBands(parts: Float32Array[], length: number): Float32Array {
+  const out = new Float32Array(length);
+  let at = 0;
+  for (const p of parts) {
+    out.set(p, at);
+    at += p.length;
+  }
+  expect(at).toBe(length);
+  return out;
+}
+
 describe('readBands: a field band by band, on worker threads', () => {
   it('reads a field with a layer (spec/FORMAT.md 6.2.2) on 2 threads as Archive.read does, each band with its factor rows', async () => {
     // 2 slices of 160 x 220 (70 400 values, above the size read on one thread), rank 3, the precip grid's values.
@@ -130,15 +142,8 @@ describe('readBands: a field band by band, on worker threads', () => {
     const parts: Float32Array[] = [];
     await lib.readBands(archive, undefined, { threads: 2, location: bytes, bandCells: 10_000 }, (v) => void parts.push(v as Float32Array));
     expect(parts.length).toBeGreaterThan(4);
-    const joined = new Float32Array(want.values.length);
-    let at = 0;
-    for (const p of parts) {
-      joined.set(p, at);
-      at += p.length;
-    }
-    expectSameBytes(joined, want.values, 'layered field on 2 threads');
+    expectSameBytes(joinBands(parts, want.values.length), want.values, 'layered field on 2 threads');
   }, 60_000);
-
 
   it('gives the values of Archive.read, for the whole field and for windows, with 1 and 2 threads', async () => {
     const bytes = big.bytes;
@@ -149,14 +154,7 @@ describe('readBands: a field band by band, on worker threads', () => {
         const parts: Float32Array[] = [];
         const got = await lib.readBands(archive, undefined, { ...window, threads, location: bytes, bandCells: 30_000 }, (v) => void parts.push(v as Float32Array));
         expect(parts.length).toBeGreaterThan(2);
-        const joined = new Float32Array(want.values.length);
-        let at = 0;
-        for (const p of parts) {
-          joined.set(p, at);
-          at += p.length;
-        }
-        expect(at).toBe(want.values.length);
-        expectSameBytes(joined, want.values, `threads ${threads}`);
+        expectSameBytes(joinBands(parts, want.values.length), want.values, `threads ${threads}`);
         expect(got.shape).toEqual(want.shape);
         expect(got.window).toEqual(want.window);
         expect(got.achieved.maxErr).toBe(want.achieved.maxErr);
