@@ -89,5 +89,18 @@ describe('a layered archive on the command line', () => {
     const nc = await rfIn(['unpack', 'l.rfz', '-o', 'sea.nc', '--json'], dir);
     expect(nc.code, nc.stderr).toBe(0);
     expect(JSON.parse(nc.stdout).files[0].fields).toEqual(['sea']);
+    // That NetCDF file holds the decoded field: check against it compares the one main field (its factor fields have no variable there).
+    const c = await rfIn(['check', 'l.rfz', '--against', 'sea.nc'], dir);
+    expect(c.code, c.stdout + c.stderr).toBe(0);
+    expect(c.stdout).toMatch(/against 'sea\.nc' \(field 'sea'\)/);
+    expect(c.stdout).toMatch(/measured +max error 0,/);
+  });
+
+  it('preview draws the field by default', async () => {
+    const r = await rfIn(['preview', 'l.rfz', '-o', 'sea.png', '--json'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    expect(JSON.stringify(JSON.parse(r.stdout))).toMatch(/"sea"/);
+    // PNG signature (ISO/IEC 15948, from memory).
+    expect(Array.from(readFileSync(path('sea.png')).subarray(0, 8))).toEqual([0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a]);
   });
 });
