@@ -100,7 +100,12 @@ export class LayerRows {
         next.push(kept);
         continue;
       }
-      const values = await this.window(side.position, a, b);
+      const values = await this.window(side.position, a, b).catch((e: unknown) => {
+        if (!(e instanceof FormatError)) throw e;
+        // The factor field's own refusal, said as a refusal of this field's read (same code).
+        const inner = e.message.startsWith(`${this.label} `) ? e.message.slice(this.label.length + 1) : e.message;
+        throw new FormatError(e.code, `${this.label} field ${quoteName(this.h.name)}: reading rows ${a} to ${b - 1} of its layer's ${side.name} factor: ${inner}`);
+      });
       this.checkFinite(side, values, a);
       next.push({ row0: a, rows: b - a, values });
     }
