@@ -231,7 +231,9 @@ export function registerShow(program: Command, ctx: Context): void {
         '(raw value bytes / payload bytes; for the whole archive, raw value bytes / file size), bits per value, ' +
         'the ranks chosen per tile (exact tiles counted apart), the max error and RMSE recorded at pack time, ' +
         'and in words how many tiles use a low-rank part and which share of the bytes is low-rank factors, residual, ' +
-        'exactly stored values and tile headers.\n\n' +
+        'exactly stored values and tile headers. A field with a layer (a rank-k product over the whole field, added to ' +
+        'every low-rank tile) names it and its two factor fields, which are listed as fields of their own and marked so; ' +
+        'its ratio counts the factor fields\' bytes.\n\n' +
         'For an archive file, the tile payloads are read to count their bytes by role; for a URL only the tail, header ' +
         'and index (directory and pages) are read, with HTTP Range requests. Use `rankfield check` to verify the tiles.',
     )
