@@ -15,6 +15,9 @@ import { tileOrigin, tileShape } from './geometry.js';
 /** Reads rows [r0, r1) of a factor field, all its columns (the factor field at `position` of the header's list). */
 export type FactorWindow = (position: number, r0: number, r1: number) => Promise<Float64Array>;
 
+/** Factor windows read at once (each a read of its own, with merged fetches): as many as a browser sends to one host (common practice, no source). */
+const WINDOWS_AT_ONCE = 6;
+
 /** A run of factor rows held: rows [row0, row0 + values.length / rank). */
 interface Run {
   row0: number;
@@ -94,22 +97,29 @@ export class LayerRows {
 
   private async hold(side: Side, spans: [number, number][]): Promise<void> {
     const next: Run[] = [];
+    const missing: [number, number][] = [];
     for (const [a, b] of spans) {
       const kept = covering(side.runs, a, b);
-      if (kept) {
-        next.push(kept);
-        continue;
-      }
-      const values = await this.window(side.position, a, b).catch((e: unknown) => {
-        if (!(e instanceof FormatError)) throw e;
-        // The factor field's own refusal, said as a refusal of this field's read (same code).
-        const inner = e.message.startsWith(`${this.label} `) ? e.message.slice(this.label.length + 1) : e.message;
-        throw new FormatError(e.code, `${this.label} field ${quoteName(this.h.name)}: reading rows ${a} to ${b - 1} of its layer's ${side.name} factor: ${inner}`);
-      });
-      this.checkFinite(side, values, a);
-      next.push({ row0: a, rows: b - a, values });
+      if (kept) next.push(kept);
+      else missing.push([a, b]);
+    }
+    // A window across many slices needs one run of rows per slice: a few windows are read at once.
+    for (let k = 0; k < missing.length; k += WINDOWS_AT_ONCE) {
+      next.push(...(await Promise.all(missing.slice(k, k + WINDOWS_AT_ONCE).map(([a, b]) => this.run(side, a, b)))));
     }
     side.runs = next;
+  }
+
+  /** Rows [a, b) of one factor, read and checked. */
+  private async run(side: Side, a: number, b: number): Promise<Run> {
+    const values = await this.window(side.position, a, b).catch((e: unknown) => {
+      if (!(e instanceof FormatError)) throw e;
+      // The factor field's own refusal, said as a refusal of this field's read (same code).
+      const inner = e.message.startsWith(`${this.label} `) ? e.message.slice(this.label.length + 1) : e.message;
+      throw new FormatError(e.code, `${this.label} field ${quoteName(this.h.name)}: reading rows ${a} to ${b - 1} of its layer's ${side.name} factor: ${inner}`);
+    });
+    this.checkFinite(side, values, a);
+    return { row0: a, rows: b - a, values };
   }
 
   /** A factor value that is not finite is refused (spec/FORMAT.md 6.2.2): the factor fields have no missing cells. */

@@ -98,6 +98,8 @@ describe('reading a layered field', () => {
       [0, 2, 0, 24, 39, 40],
       [0, 1, 23, 24, 0, 40],
       [1, 2, 3, 4, 5, 6],
+      // Two runs of left factor rows (one per slice), read at once.
+      [0, 2, 9, 15, 0, 40],
     ]) {
       const w = await a.read('field', { slices: [s0, s1], rows: [r0, r1], cols: [c0, c1] });
       const width = c1 - c0;
