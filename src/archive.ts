@@ -4,7 +4,7 @@
  */
 import { Cell, classify, fillWords } from './codec/mask.js';
 import { checkBound, isPointwise, parseBound, resolveBound } from './codec/bound.js';
-import { fieldStep, payloadHead, prefixLengths } from './codec/payload.js';
+import { fieldStep, Method, payloadHead, prefixLengths } from './codec/payload.js';
 import { ErrorTally } from './codec/tally.js';
 import { DecodeScratch, decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
@@ -14,6 +14,7 @@ import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type Archive
 import { copyBlock, cutTile, ndShape, tileCount, tileOrigin, tileShape, windowTiles } from './geometry.js';
 import { HttpSource } from './io/http-source.js';
 import { MemorySource, readRanges, type ByteRange, type ByteSource, type CoalesceOptions } from './io/source.js';
+import { LayerRows } from './layer-rows.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 
 /** A decoded field, or a window of one. */
@@ -182,9 +183,18 @@ export class Archive {
     this.pages = this.header.fields.map((h, i) => new FieldPages(h, this.directory.fields[i]));
   }
 
-  /** Names of the fields, in archive order. */
+  /** Names of the fields, in archive order (the factor fields of field layers among them). */
   get names(): string[] {
     return this.header.fields.map((f) => f.name);
+  }
+
+  /**
+   * Names of the fields a user reads, in archive order: every field but
+   * those holding a factor of another field's layer (spec/FORMAT.md 6.2.2),
+   * which are read as part of that field (and may still be read by name).
+   */
+  get mainNames(): string[] {
+    return this.header.fields.filter((f) => f.factorOf === undefined).map((f) => f.name);
   }
 
   /**
@@ -251,9 +261,10 @@ export class Archive {
     return (t) => fp.entry(this.container, position, t);
   }
 
-  /** Header, directory entry and summary of a field (the first when `name` is omitted). */
+  /** Header, directory entry and summary of a field (when `name` is omitted, the first that holds no layer factor). */
   field(name?: string): { header: FieldHeader; directory: FieldDirectory; summary: FieldDirectory['summary']; position: number } {
-    const position = name === undefined ? 0 : this.header.fields.findIndex((f) => f.name === name);
+    const fields = this.header.fields;
+    const position = name === undefined ? Math.max(0, fields.findIndex((f) => f.factorOf === undefined)) : fields.findIndex((f) => f.name === name);
     if (position < 0 || position >= this.header.fields.length) {
       throw new InputError(InputCode.Missing, `no field '${name}' in ${this.source.label} (fields: ${this.names.join(', ') || 'none'})`);
     }
@@ -274,11 +285,26 @@ export class Archive {
     const { header: h } = this.field(name);
     const e = await this.tileEntry(name, t);
     const payload = await this.source.read(e.offset, e.length);
-    return this.decodePayload(h, e, t, payload, verifyValues);
+    // Exact tiles ignore a layer: only a LowRank tile needs its factor rows.
+    const layer = e.method === Method.LowRank ? this.layerRows(h, verifyValues) : null;
+    await layer?.load([t]);
+    return this.decodePayload(h, e, t, payload, verifyValues, layer);
   }
 
-  /** Check a fetched payload against the index and decode it. */
-  private decodePayload(h: FieldHeader, e: TileEntry, t: number, payload: Uint8Array, verifyValues: boolean): FloatArray {
+  /**
+   * The factor rows of field h's layer for one read (null for a field
+   * without a layer): read as windows of the factor fields, with the read's
+   * `verify`, never from a prefix (spec/FORMAT.md 6.2.2).
+   */
+  private layerRows(h: FieldHeader, verify: boolean): LayerRows | null {
+    if (h.layer === undefined) return null;
+    const fields = this.header.fields;
+    const window = async (p: number, r0: number, r1: number) => (await this.read(fields[p].name, { rows: [r0, r1], verify })).values as Float64Array;
+    return new LayerRows(h, h.layer, fields, window, this.source.label);
+  }
+
+  /** Check a fetched payload against the index and decode it (with the layer's term of a LowRank tile of a layered field). */
+  private decodePayload(h: FieldHeader, e: TileEntry, t: number, payload: Uint8Array, verifyValues: boolean, layer: LayerRows | null = null): FloatArray {
     const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
     if (crc32(payload) !== e.crc) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${e.offset})`);
     const { method, rank } = payloadHead(payload);
@@ -286,7 +312,8 @@ export class Archive {
       throw new FormatError(FormatCode.Malformed, `${where}: payload holds method ${method} rank ${rank}, the index says method ${e.method} rank ${e.rank}`);
     }
     const [m, n] = tileShape(h, t);
-    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), scratch: this.scratch });
+    const term = layer !== null && e.method === Method.LowRank ? layer.term(t) : null;
+    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), scratch: this.scratch, layer: term });
     if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== e.value_crc) {
       throw new FormatError(FormatCode.Checksum, `${where}: decoded values differ from those verified at encode time (value CRC-32 mismatch)`);
     }
@@ -298,7 +325,9 @@ export class Archive {
    * {@link BATCH_BYTES}, each batch with merged reads, and hand each to
    * `use` in order. With `isolate`, a batch whose merged read fails is
    * fetched again tile by tile, and a tile that cannot be fetched is handed
-   * over as its error instead of failing the whole call.
+   * over as its error instead of failing the whole call. `prepare` is
+   * awaited with each batch's tiles before they are handed over (a layered
+   * field loads the factor rows they need).
    */
   private async eachPayload(
     entry: (t: number) => TileEntry,
@@ -306,6 +335,7 @@ export class Archive {
     use: (t: number, payload: Uint8Array | FormatError) => void,
     isolate = false,
     lengthOf: (t: number) => number = (t) => entry(t).length,
+    prepare?: (batch: readonly number[]) => Promise<void>,
   ): Promise<void> {
     for (let k = 0; k < tiles.length; ) {
       const batch: number[] = [];
@@ -323,6 +353,7 @@ export class Archive {
         payloads = [];
         for (const r of ranges) payloads.push(await this.source.read(r.offset, r.length).catch((err: unknown) => (err instanceof FormatError ? err : Promise.reject(err))));
       }
+      await prepare?.(batch);
       batch.forEach((t, i) => use(t, payloads[i]));
     }
   }
@@ -356,12 +387,13 @@ export class Archive {
     for (let s = s0; s < s1; s++) tiles.push(...windowTiles(h, s, r0, r1, c0, c1));
     const entry = await this.entries(position, tiles);
     const plan = this.progressivePlan(h, entry, bound);
+    const layer = this.layerRows(h, verify);
     const tally = { max: 0, sq: 0, valid: 0, prefixTiles: 0 };
     await this.eachPayload(entry, tiles, (t, payload) => {
       if (payload instanceof FormatError) throw payload;
       const choice = plan(t);
       const e = entry(t);
-      const tile = choice.prefix ? this.decodePrefix(h, e, t, payload, choice.crc) : this.decodePayload(h, e, t, payload, verify);
+      const tile = choice.prefix ? this.decodePrefix(h, e, t, payload, choice.crc, layer) : this.decodePayload(h, e, t, payload, verify, layer);
       if (!(choice.maxErr <= tally.max)) tally.max = choice.maxErr;
       tally.sq += e.valid * choice.rmse * choice.rmse;
       tally.valid += e.valid;
@@ -372,7 +404,7 @@ export class Archive {
       const a = Math.max(r0, i0);
       const lo = Math.max(c0, j0);
       copyBlock(tile, n, a - i0, lo - j0, Math.min(r1, i0 + m) - a, Math.min(c1, j0 + n) - lo, values, width, (s - s0) * (r1 - r0) + a - r0, lo - c0);
-    }, false, (t) => plan(t).length);
+    }, false, (t) => plan(t).length, layer ? (batch) => layer.load(batch.filter((t) => entry(t).method === Method.LowRank)) : undefined);
     const achieved = { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 };
     const whole = options.slices === undefined && options.rows === undefined && options.cols === undefined;
     const shape = whole && h.nd_shape ? ndShape(h) : hasSlices(h) ? [s1 - s0, r1 - r0, width] : [r1 - r0, width];
@@ -403,13 +435,15 @@ export class Archive {
   }
 
   /** Check a fetched prefix against its recorded CRC and decode its factor groups. */
-  private decodePrefix(h: FieldHeader, e: TileEntry, t: number, bytes: Uint8Array, crc: number): FloatArray {
+  private decodePrefix(h: FieldHeader, e: TileEntry, t: number, bytes: Uint8Array, crc: number, layer: LayerRows | null): FloatArray {
     const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
     if (crc32(bytes) !== crc) throw new FormatError(FormatCode.Checksum, `${where}: prefix of ${bytes.length} bytes fails its CRC-32 (payload at offset ${e.offset})`);
     const groups = prefixLengths(bytes).indexOf(bytes.length);
     if (groups < 0) throw new FormatError(FormatCode.Malformed, `${where}: the index lists a prefix of ${bytes.length} bytes that does not end at a factor group`);
     const [m, n] = tileShape(h, t);
-    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), groups, scratch: this.scratch });
+    // A prefix includes the layer's term (spec/FORMAT.md 18): only LowRank payloads have prefixes.
+    const term = layer !== null && e.method === Method.LowRank ? layer.term(t) : null;
+    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), groups, scratch: this.scratch, layer: term });
   }
 
   /**
@@ -425,14 +459,16 @@ export class Archive {
    */
   async check(against?: FloatArray | Record<string, FloatArray | BandOriginal>, onProgress?: (done: number, total: number) => void): Promise<CheckReport> {
     const report: CheckReport = { ok: true, fields: [], failures: [] };
-    if (against !== undefined && ArrayBuffer.isView(against) && this.header.fields.length !== 1) {
-      throw new InputError(InputCode.Option, `the archive holds ${this.header.fields.length} fields: give the originals by field name`);
+    // One array is the original of the one field a user reads (factor fields of a layer have none).
+    const main = this.mainNames;
+    if (against !== undefined && ArrayBuffer.isView(against) && main.length !== 1) {
+      throw new InputError(InputCode.Option, `the archive holds ${main.length} fields: give the originals by field name`);
     }
     const allTiles = this.header.fields.reduce((a, h) => a + tileCount(h), 0);
     let checked = 0;
     for (const h of this.header.fields) {
       const { position, summary } = this.field(h.name);
-      const given = against === undefined ? undefined : ArrayBuffer.isView(against) ? against : against[h.name];
+      const given = against === undefined ? undefined : ArrayBuffer.isView(against) ? (h.factorOf === undefined ? against : undefined) : against[h.name];
       const want = h.dtype === 'f32' ? Float32Array : Float64Array;
       const bands = given !== undefined && !ArrayBuffer.isView(given) ? given : undefined;
       if (bands !== undefined && typeof (bands as Partial<BandOriginal>).band !== 'function') {
@@ -455,6 +491,20 @@ export class Archive {
       const fp = this.pages[position];
       const all = await this.pagesForCheck(position, (what) => fail(-1, what));
       const entry = (t: number) => fp.entry(this.container, position, t);
+      // A layered field's tiles need the factor rows of each batch; factor rows that cannot be read fail the
+      // batch's LowRank tiles once, with the factor field's own failures reported under its name.
+      const layer = this.layerRows(h, true);
+      let layerFailed: string | null = null;
+      const loadLayer = async (batch: readonly number[]) => {
+        layerFailed = null;
+        try {
+          await layer!.load(batch.filter((t) => entry(t).method === Method.LowRank));
+        } catch (e) {
+          if (!(e instanceof FormatError)) throw e;
+          layerFailed = e.message;
+          fail(-1, `layer factors of tiles ${batch[0]} to ${batch[batch.length - 1]}: ${e.message}`);
+        }
+      };
       // A band original: the band of the tile row being checked, read once (tiles come in order).
       let held: { r0: number; r1: number; values: FloatArray } | null = null;
       const cut = (t: number): FloatArray => {
@@ -475,7 +525,8 @@ export class Archive {
         const ix = entry(t);
         try {
           if (payload instanceof FormatError) throw payload;
-          tile = this.decodePayload(h, ix, t, payload, true);
+          if (layerFailed !== null && ix.method === Method.LowRank) return;
+          tile = this.decodePayload(h, ix, t, payload, true, layer);
         } catch (e) {
           if (!(e instanceof FormatError)) throw e;
           fail(t, e.message);
@@ -490,7 +541,7 @@ export class Archive {
           total.merge(tally);
           if (pointwise && !(tally.max <= tol)) fail(t, `measured max error ${tally.max} exceeds the bound ${tol}`);
         }
-      }, true);
+      }, true, undefined, layer ? loadLayer : undefined);
       if (!pointwise && !(summary.rmse <= up32(tol))) fail(-1, `recorded RMSE ${summary.rmse} exceeds the bound ${tol} (rounded up to binary32 as recorded figures are)`);
       const report1: CheckReport['fields'][number] = {
         name: h.name,

@@ -11,7 +11,7 @@ export { MemorySource, readRanges, coalesce, DEFAULT_MAX_GAP, type ByteSource, t
 export { HttpSource, DEFAULT_MAX_WHOLE_FILE, type HttpSourceOptions } from './io/http-source.js';
 export { FormatError, InputError, FormatCode, InputCode } from './errors.js';
 export { parseBound, formatBound, isPointwise } from './codec/bound.js';
-export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type ArchiveDirectory, type FieldDirectory, type PageIndex, type FieldHeader, type FieldIndex, type Attrs } from './format/schema.js';
+export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type ArchiveDirectory, type FieldDirectory, type PageIndex, type FieldHeader, type FieldLayerRef, type FieldIndex, type Attrs } from './format/schema.js';
 export type { Bound, BoundMode, Dtype, FloatArray } from './types.js';
 export { VERSION_STRING } from './version.js';
 export { MISSING_VALUES_KEY, missingValues, restoreMissing } from './missing.js';

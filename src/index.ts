@@ -14,7 +14,7 @@ export { MemorySource, readRanges, coalesce, type ByteSource, type ByteRange, ty
 export { HttpSource, type HttpSourceOptions } from './io/http-source.js';
 export { FileSource } from './io/file-source.js';
 export { MemorySink, type Sink } from './format/container.js';
-export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type ArchiveDirectory, type FieldDirectory, type PageIndex, type FieldHeader, type FieldIndex, type Attrs } from './format/schema.js';
+export { DEFAULT_LIMITS, type Limits, type ArchiveHeader, type ArchiveIndex, type ArchiveDirectory, type FieldDirectory, type PageIndex, type FieldHeader, type FieldLayerRef, type FieldIndex, type Attrs } from './format/schema.js';
 export type { Bound, BoundMode, Dtype, FloatArray } from './types.js';
 export { VERSION_STRING } from './version.js';
 export { MISSING_VALUES_KEY, missingValues, restoreMissing } from './missing.js';

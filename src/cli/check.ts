@@ -73,7 +73,8 @@ export interface Originals {
 /**
  * The originals of an archive's fields from a NetCDF file, read as pack
  * reads them (CF missing values and packing applied), a run at a time:
- * every field of the archive, or those named by --var; each must be a
+ * every field of the archive but the factor fields of layers (checked
+ * through the field they belong to), or those named by --var; each must be a
  * variable of the file, of the field's shape and dtype. Only the header is
  * read here. The caller closes them.
  */
@@ -81,7 +82,7 @@ export async function netcdfOriginals(path: string, archive: Archive, names: str
   const nc = await openNetcdfInput(path, hdf5);
   try {
     const file = nc.file;
-    const chosen = names && names.length > 0 ? names.map((n) => archive.field(byPath(archive.names, n)).header.name) : archive.names;
+    const chosen = names && names.length > 0 ? names.map((n) => archive.field(byPath(archive.names, n)).header.name) : archive.mainNames;
     const out: Record<string, FlatRead> = {};
     for (const name of chosen) {
       const h = archive.field(name).header;
@@ -153,7 +154,8 @@ function reportText(r: CheckReport, headers: FieldHeader[], input: string, again
     const h = headers.find((x) => x.name === f.name)!;
     const pw = isPointwise(h.bound.mode);
     const share = (maxErr: number, rmse: number) => `${f.tolerance > 0 ? ((pw ? maxErr : rmse) / f.tolerance).toFixed(3) : '-'} E`;
-    lines.push(`field '${f.name}': ${f.tiles} tiles, bound ${boundText(h)}`);
+    const role = h.factorOf ? `; the ${h.factorOf.side} factor of the layer of field '${headers[h.factorOf.field].name}'` : h.layer ? `; a rank-${h.layer.rank} layer, its factors checked as fields and through every low-rank tile` : '';
+    lines.push(`field '${f.name}': ${f.tiles} tiles, bound ${boundText(h)}${role}`);
     lines.push(`  recorded  max error ${num(f.recorded.maxErr)}, RMSE ${num(f.recorded.rmse)} (${pw ? 'max error' : 'RMSE'} ${share(f.recorded.maxErr, f.recorded.rmse)})`);
     if (f.measured) {
       const m = f.measured;

@@ -48,6 +48,13 @@ export interface FieldFacts {
   layout?: string;
   /** True when the values are CF-unpacked physical values (scale_factor / add_offset applied at pack time). */
   unpacked: boolean;
+  /**
+   * The field's layer (spec/FORMAT.md 6.2.2): its rank, the names of its two
+   * factor fields, and their payload bytes (counted in this field's ratio).
+   */
+  layer?: { rank: number; left: string; right: string; bytes: number };
+  /** For a field holding a factor of another field's layer: that field and the side (its bytes count there). */
+  factorOf?: { field: string; side: 'left' | 'right' };
 }
 
 /** The facts `show` reports about an archive. */
@@ -72,9 +79,12 @@ export interface ArchiveFacts {
  * ({@link Archive.loadIndex}); `shares` are the byte shares per field, when counted.
  */
 export function archiveFacts(archive: Archive, file: string, shares: ByteShares[] | null = null): ArchiveFacts {
-  const fields = archive.header.fields.map((h, i): FieldFacts => {
+  const all = archive.header.fields;
+  const payloadOf = (i: number) => archive.index.fields[i].length.reduce((a, b) => a + b, 0);
+  const fields = all.map((h, i): FieldFacts => {
     const ix = archive.index.fields[i];
-    const payloadBytes = ix.length.reduce((a, b) => a + b, 0);
+    const payloadBytes = payloadOf(i);
+    const layer = h.layer ? { rank: h.layer.rank, left: all[h.layer.left].name, right: all[h.layer.right].name, bytes: payloadOf(h.layer.left) + payloadOf(h.layer.right) } : undefined;
     const cells = (h.slices ?? 1) * h.shape[0] * h.shape[1];
     const methods: Record<string, number> = {};
     const ranks = new Map<number, number>();
@@ -106,8 +116,8 @@ export function archiveFacts(archive: Archive, file: string, shares: ByteShares[
       validCells: ix.summary.valid,
       rawBytes: raw,
       payloadBytes,
-      ratio: raw / payloadBytes,
-      bitsPerValue: (payloadBytes * 8) / cells,
+      ratio: raw / (payloadBytes + (layer?.bytes ?? 0)),
+      bitsPerValue: ((payloadBytes + (layer?.bytes ?? 0)) * 8) / cells,
       achieved: { maxErr: ix.summary.max_err, rmse: ix.summary.rmse },
       methods,
       rankHistogram,
@@ -120,9 +130,12 @@ export function archiveFacts(archive: Archive, file: string, shares: ByteShares[
       ...(h.dims ? { dims: h.dims } : {}),
       ...(h.layout ? { layout: h.layout } : {}),
       unpacked: h.attrs['rankfield:unpacked'] === true,
+      ...(layer ? { layer } : {}),
+      ...(h.factorOf ? { factorOf: { field: all[h.factorOf.field].name, side: h.factorOf.side } } : {}),
     };
   });
-  const raw = fields.reduce((a, f) => a + f.rawBytes, 0);
+  // Factor fields are no values of the user's: the archive's raw bytes are those of the other fields.
+  const raw = fields.reduce((a, f) => a + (f.factorOf ? 0 : f.rawBytes), 0);
   const payloads = fields.reduce((a, f) => a + f.payloadBytes, 0);
   return {
     file,
@@ -149,12 +162,16 @@ function attrsText(attrs: Attrs): string {
 
 /** Render the facts as text. */
 export function factsText(a: ArchiveFacts): string {
+  const main = a.fields.filter((f) => f.factorOf === undefined);
   const lines = [
     `archive  ${a.file}: format version ${a.version}, written by ${a.writer}`,
-    `size     ${bytesText(a.fileBytes)} for ${a.fields.length} field${a.fields.length === 1 ? '' : 's'} (${bytesText(a.rawBytes)} of raw values): ratio ${a.ratio.toFixed(2)}; header, index and tail ${bytesText(a.containerBytes)}`,
+    `size     ${bytesText(a.fileBytes)} for ${main.length} field${main.length === 1 ? '' : 's'} (${bytesText(a.rawBytes)} of raw values): ratio ${a.ratio.toFixed(2)}; header, index and tail ${bytesText(a.containerBytes)}`,
   ];
   if (a.fields.length > 1) {
-    for (const f of a.fields) lines.push(`  ${printable(f.name)}: ${bytesText(f.payloadBytes)}, ratio ${f.ratio.toFixed(2)}`);
+    for (const f of a.fields) {
+      const what = f.factorOf ? ` (${f.factorOf.side} factor of the layer of '${printable(f.factorOf.field)}', counted there)` : f.layer ? ` with its layer's ${bytesText(f.layer.bytes)}, ratio ${f.ratio.toFixed(2)}` : `, ratio ${f.ratio.toFixed(2)}`;
+      lines.push(`  ${printable(f.name)}: ${bytesText(f.payloadBytes)}${what}`);
+    }
   }
   // The NetCDF source's dimensions, variable order and carried variables are bookkeeping (and can be large): named, not printed.
   const own = new Set<string>([KEY.dims, KEY.order, KEY.carried]);
@@ -175,13 +192,19 @@ export function factsText(a: ArchiveFacts): string {
       `  shape        ${f.slices > 1 ? `${f.slices} slices of ` : ''}${f.shape[0]} x ${f.shape[1]} ${f.dtype}; tiles ${f.tile[0]} x ${f.tile[1]} (${grid} = ${f.tiles} tiles)`,
       `  bound        ${f.bound.text} -> ${f.bound.limits === 'pointwise' ? 'pointwise limit' : 'RMSE limit'} E = ${num(f.bound.tolerance)} (${range})`,
       `  missing      ${f.cells - f.validCells} of ${f.cells} cells (NaN, infinities${f.fill === null ? '' : `, fill ${num(f.fill)}`}), kept exactly`,
-      `  payload      ${bytesText(f.payloadBytes)}; ratio ${f.ratio.toFixed(2)}; ${f.bitsPerValue.toFixed(3)} bits per value`,
+      `  payload      ${bytesText(f.payloadBytes)}${f.layer ? ` + ${bytesText(f.layer.bytes)} of layer factors` : ''}; ratio ${f.ratio.toFixed(2)}; ${f.bitsPerValue.toFixed(3)} bits per value`,
       `  holds        ${tileUseText(f.use)}`,
       `  bytes        ${f.bytes ? sharesText(f.bytes) : '(not counted for an archive read from a URL: that needs every payload)'}`,
       `  achieved     max error ${num(f.achieved.maxErr)}, RMSE ${num(f.achieved.rmse)} (E = ${num(f.bound.tolerance)})`,
       `  methods      ${Object.entries(f.methods).map(([m, n]) => `${m} ${n}`).join(', ')}`,
       `  ranks        ${ranks.length > 0 ? ranks.join('  ') : '(no low-rank tiles)'}${f.exactTiles > 0 ? `  | exact: ${f.exactTiles}` : ''}`,
     );
+    if (f.layer) {
+      lines.push(`  layer        rank ${f.layer.rank} over the whole field, added to every low-rank tile: left factor '${printable(f.layer.left)}', right factor '${printable(f.layer.right)}'`);
+    }
+    if (f.factorOf) {
+      lines.push(`  factor       the ${f.factorOf.side} factor of the layer of field '${printable(f.factorOf.field)}': read with that field, unpacked only when named`);
+    }
     if (f.ndShape) {
       const dims = f.dims ? ` (${f.dims.map((d) => printable(d)).join(', ')})` : '';
       const how = f.layout === undefined ? '' : f.layout === 'slices' ? '; layout slices: the last two axes are each slice' : `; layout ${printable(f.layout)}: the first ${f.layout.slice(7)} axes are the rows, the rest the columns`;
@@ -208,7 +231,9 @@ export function registerShow(program: Command, ctx: Context): void {
         '(raw value bytes / payload bytes; for the whole archive, raw value bytes / file size), bits per value, ' +
         'the ranks chosen per tile (exact tiles counted apart), the max error and RMSE recorded at pack time, ' +
         'and in words how many tiles use a low-rank part and which share of the bytes is low-rank factors, residual, ' +
-        'exactly stored values and tile headers.\n\n' +
+        'exactly stored values and tile headers. A field with a layer (a rank-k product over the whole field, added to ' +
+        'every low-rank tile) names it and its two factor fields, which are listed as fields of their own and marked so; ' +
+        'its ratio counts the factor fields\' bytes.\n\n' +
         'For an archive file, the tile payloads are read to count their bytes by role; for a URL only the tail, header ' +
         'and index (directory and pages) are read, with HTTP Range requests. Use `rankfield check` to verify the tiles.',
     )

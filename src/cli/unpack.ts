@@ -285,7 +285,7 @@ export function registerUnpack(program: Command, ctx: Context): void {
         const chosen = byPath(archive.names, flags.var ?? flags.field);
         const windowed = flags.where !== undefined || flags.region !== undefined || flags.slices !== undefined;
         if (!to.dirOut && windowed) {
-          if (to.nc && chosen === undefined && archive.names.length > 1) throw new UsageError(`a window written to .nc is of one field: name it with --var (fields: ${archive.names.map((n) => printable(n)).join(', ')})`);
+          if (to.nc && chosen === undefined && archive.mainNames.length > 1) throw new UsageError(`a window written to .nc is of one field: name it with --var (fields: ${archive.mainNames.map((n) => printable(n)).join(', ')})`);
           const h = archive.field(chosen).header;
           if (to.nc || flags.where !== undefined || h.layout?.startsWith('matrix:') || (flags.slices !== undefined && flags.slices.length > 1)) {
             await unpackAxes(archive, h, flags, { input, nc: to.nc, csv: to.csv, npy: to.npy, io, start }, out);
@@ -336,9 +336,9 @@ function outputKind(flags: UnpackFlags): OutputKind {
   return { npy, nc, csv, dirOut };
 }
 
-/** One .npy per field in the folder -o names, each decoded band by band and written as it comes. */
+/** One .npy per field in the folder -o names (the factor fields of layers are part of their field), each decoded band by band and written as it comes. */
 async function unpackFolder({ archive, input, flags, io, start, out }: UnpackJob): Promise<void> {
-  const names = archive.names;
+  const names = archive.mainNames;
   const files = fileNames(names);
   const written: { path: string; bytes: number; fields: string[] }[] = [];
   try {
@@ -368,9 +368,12 @@ async function unpackFolder({ archive, input, flags, io, start, out }: UnpackJob
   out.result({ command: 'unpack', input, output: flags.output, format: 'npy', files: written, seconds: (performance.now() - start) / 1000 });
 }
 
-/** Every field, or the one chosen, to a NetCDF file: written from fields in memory, so refused beyond HELD_BYTES rather than running out of memory. */
+/**
+ * Every field (but the factor fields of layers, part of their field), or the one chosen, to a NetCDF file:
+ * written from fields in memory, so refused beyond HELD_BYTES rather than running out of memory.
+ */
 async function unpackNetcdf({ archive, input, flags, io, start, out }: UnpackJob, chosen: string | undefined): Promise<void> {
-  const names = chosen !== undefined ? [archive.field(chosen).header.name] : archive.names;
+  const names = chosen !== undefined ? [archive.field(chosen).header.name] : archive.mainNames;
   checkHeld(fieldBytes(archive, names), `${names.length} field${names.length === 1 ? '' : 's'} whole (NetCDF is written from memory)`, flags.output);
   const fields = [];
   for (const name of names) {

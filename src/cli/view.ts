@@ -111,7 +111,7 @@ export function registerView(program: Command, ctx: Context): void {
         throw e;
       }
       out.text(`viewing '${printable(input)}' at ${server.url} (Ctrl-C stops the server)\n`);
-      out.result({ command: 'view', input, url: server.url, port: server.port, fields: archive.names });
+      out.result({ command: 'view', input, url: server.url, port: server.port, fields: archive.mainNames });
       const signal = await new Promise<NodeJS.Signals>((resolve) => {
         const names = ['SIGINT', 'SIGTERM', 'SIGHUP'] as const;
         const stop = (s: NodeJS.Signals) => {

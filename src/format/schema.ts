@@ -337,7 +337,7 @@ function checkFill(v: unknown, where: string): number | null {
 /**
  * The header as stored (spec/FORMAT.md, section 6) is positional, like the
  * index: an array `[writer, attrs, fields]`, each field an array of the
- * elements of {@link FIELD_ELEMENTS} (the last three optional), its bound an
+ * elements of {@link FIELD_ELEMENTS} (the last four optional), its bound an
  * array of {@link BOUND_ELEMENTS}. Elements after the known ones are ignored.
  */
 export const HEADER_ELEMENTS = ['writer', 'attrs', 'fields'] as const;

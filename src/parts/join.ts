@@ -54,6 +54,9 @@ async function readPart(src: ByteSource, limits?: Partial<Limits>): Promise<Part
   const bad = (why: string): never => {
     throw new FormatError(FormatCode.Malformed, `${label}: part ${kn[0]}/${kn[1]} of run '${run}': ${why}`);
   };
+  // Parts never carry a field layer (spec/FORMAT.md 6.2.2): its factors span every part's rows.
+  const layered = archive.header.fields.find((f) => f.layer !== undefined);
+  if (layered) bad(`field '${layered.name}' has a field layer, which a part never has: the parts of a run are packed without one`);
   if (archive.header.fields.length !== 1) bad(`it holds ${archive.header.fields.length} fields, a part holds one`);
   const rows = intPair(a[PART_KEYS.rows], 3) ?? bad(`${PART_KEYS.rows} is not [first row, end row, rows]`);
   const tally = a[PART_KEYS.tally];

@@ -73,9 +73,13 @@ class Viewer {
 
   start(): void {
     const select = $<HTMLSelectElement>('var');
-    for (const name of this.archive.names) select.add(new Option(name, name));
     const want = new URLSearchParams(location.hash.slice(1));
-    const field = this.archive.names.includes(want.get('var') ?? '') ? want.get('var')! : this.archive.names[0];
+    // The factor fields of a layer are part of their field: listed only when the address names one.
+    const asked = want.get('var') ?? '';
+    const listed = this.archive.mainNames;
+    const names = this.archive.names.includes(asked) && !listed.includes(asked) ? [...listed, asked] : listed;
+    for (const name of names) select.add(new Option(name, name));
+    const field = names.includes(asked) ? asked : names[0];
     this.resize();
     this.use(field, Number(want.get('plane') ?? 0));
     const n = (k: string) => (want.has(k) && Number.isFinite(Number(want.get(k))) ? Number(want.get(k)) : null);

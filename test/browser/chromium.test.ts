@@ -5,7 +5,8 @@
  * from a server on 127.0.0.1, opens an archive there with HTTP Range
  * requests, decodes windows with each, and hands back the bits of the
  * values, which must equal what Node decodes from the same bytes. Data: vega-datasets
- * data/annual-precip.json (360 wide x 168 high), with missing cells added.
+ * data/annual-precip.json (360 wide x 168 high), with missing cells added;
+ * also as a field with a layer (spec/FORMAT.md 6.2.2, test/format/layered.ts).
  */
 import { existsSync, mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -17,6 +18,7 @@ import { precip } from '../archive/datasets.js';
 import { ensureBuilt, ensureBundled, ROOT } from '../cli/helpers.js';
 import { startRangeServer, type RangeServer } from '../io/range-server.js';
 import { haveSystemTools } from '../system-tools.js';
+import { layeredArchive, smoothFactors } from '../format/layered.js';
 
 const CHROMIUM = '/usr/bin/chromium';
 /** .ci/run installs chromium and sets RANKFIELD_SYSTEM_TESTS=required, so that a missing browser fails CI instead of skipping. */
@@ -137,6 +139,23 @@ describe.skipIf(!RUN)('the decoder in headless Chromium', () => {
     expect(archiveRequests.length).toBeGreaterThan(4);
     expect(archiveRequests.every((a) => a.range !== null || a.ranges !== null)).toBe(true);
     expect(archiveRequests.some((a) => a.ranges !== null)).toBe(true);
+  }, 60_000);
+
+  it('decodes windows of a field with a layer, its factor fields read over HTTP too, bit for bit as Node does', async () => {
+    expect(context).not.toBeNull();
+    const { left, right } = smoothFactors(168, 360, 2);
+    const layered = layeredArchive({ values: field(), shape: [168, 360], tile: [32, 48], tol: 1, rank: 2, left, right, factors: 'before', name: 'precip' }).bytes;
+    server.put('/layered.rfz', layered);
+    const windows = WINDOWS.slice(0, 3);
+    const got = await page.evaluate(([url, w]) => (window as unknown as { decodeWindows: (u: string, x: unknown, w: string) => Promise<{ shape: number[]; words: number[] }[]> }).decodeWindows(url, w, 'bundle'), [`${server.url}/layered.rfz`, windows] as const);
+    expect(errors).toEqual([]);
+    const node = await open(layered);
+    expect(node.field().header.layer).toEqual({ rank: 2, left: 0, right: 1 });
+    for (const [k, [rows, cols]] of windows.entries()) {
+      const want = await node.read(undefined, { rows, cols });
+      expect(got[k].shape).toEqual(want.shape);
+      expect(got[k].words, `window ${k}`).toEqual(Array.from(new Uint32Array(want.values.buffer)));
+    }
   }, 60_000);
 
   it('reports a damaged archive with FormatError in the browser too', async () => {

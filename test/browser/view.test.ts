@@ -25,6 +25,7 @@ import { precip } from '../archive/datasets.js';
 import { ensureBuilt, ensureBundled, rf, ROOT, tempDir } from '../cli/helpers.js';
 import { haveSystemTools } from '../system-tools.js';
 import { startView, type RunningView } from '../view/start.js';
+import { layeredArchive, smoothFactors } from '../format/layered.js';
 
 const CHROMIUM = '/usr/bin/chromium';
 /** .ci/run installs chromium and sets RANKFIELD_SYSTEM_TESTS=required, so that a missing browser fails CI instead of skipping. */
@@ -351,6 +352,35 @@ describe.skipIf(!RUN)('rankfield view in headless Chromium', () => {
       expect(probe).toMatch(new RegExp(`lon\\s+${shown((nc.getDataVariable('lon') as number[])[c]).replace('.', '\\.')}`));
       expect(probe).toMatch(new RegExp(`time\\s+${shown((nc.getDataVariable('time') as number[])[0]).replace('.', '\\.')}`));
       await p.close();
+    } finally {
+      other.child.kill('SIGTERM');
+      await other.done;
+    }
+  }, 60_000);
+
+  it('lists a field with a layer without its factor fields, draws it through the layer, and shows a factor field the address names', async () => {
+    // spec/FORMAT.md 6.2.2: the factor fields, listed first here, are part of their field.
+    const { left, right } = smoothFactors(168, 360, 2);
+    const layered = layeredArchive({ values: field(), shape: [168, 360], tile: [32, 48], tol: 1, rank: 2, left, right, factors: 'before', name: 'precip' }).bytes;
+    const rfz = join(tmp.dir, 'layered.rfz');
+    writeFileSync(rfz, layered);
+    const other = await startView([rfz], tmp.dir);
+    try {
+      const options = (p: Page) => p.$$eval('#var option', (o) => o.map((x) => (x as HTMLOptionElement).value));
+      const p = await context!.newPage();
+      await p.goto(other.url);
+      const view = await settled(p);
+      expect(view.field).toBe('precip');
+      expect(await options(p)).toEqual(['precip']);
+      const a = await open(layered);
+      const want = await a.read('precip');
+      expect(compare(await pixels(p), view, want.values, 168, 360, a.field('precip').header).wrong).toEqual([]);
+      const q = await context!.newPage();
+      await q.goto(`${other.url}#var=precip.left`);
+      expect((await settled(q)).field).toBe('precip.left');
+      expect(await options(q)).toEqual(['precip', 'precip.left']);
+      await p.close();
+      await q.close();
     } finally {
       other.child.kill('SIGTERM');
       await other.done;

@@ -17,7 +17,7 @@ import { crc32 } from '../../src/format/crc32.js';
 import { ArchiveBuilder, pack, type PackOptions } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import { VERSION_STRING } from '../../src/version.js';
-import { assemble, diskHeader, diskPage, joinIndex, layout, split, splitIndex, type Block } from './paged.js';
+import { layout, rebuild, split, type Block, type Edit } from './paged.js';
 
 const CODES = new Set<string>(Object.values(FormatCode));
 const TAIL = 24;
@@ -49,37 +49,6 @@ function resealTail(b: Uint8Array): void {
   const d = new DataView(b.buffer, b.byteOffset);
   const from = t - d.getUint32(t, true) - d.getUint32(t + 4, true);
   d.setUint32(t + 12, crc32(b.subarray(from, t + 12)), true);
-}
-
-/**
- * Rebuild an archive with the same payload region and a changed header and/or
- * index, every CRC and offset recomputed, so that only the content is wrong.
- * The index is edited whole (columns over all tiles) and split into its
- * pages again (test/format/paged.ts).
- */
-interface Edit {
-  header?: (h: Block) => void;
-  index?: (ix: Block) => void;
-  payload?: (p: Uint8Array) => void;
-  /** Replace the encoded header, index directory, or one page. */
-  headerBytes?: (b: Uint8Array) => Uint8Array;
-  indexBytes?: (b: Uint8Array) => Uint8Array;
-  pageBytes?: (field: number, page: number, b: Uint8Array) => Uint8Array;
-}
-
-function rebuild(b: Uint8Array, edit: Edit): Uint8Array {
-  const parts = split(b);
-  const front = parts.front.slice();
-  edit.payload?.(front.subarray(12));
-  const index = joinIndex(parts);
-  edit.header?.(parts.header);
-  edit.index?.(index);
-  const header = encode(diskHeader(parts.header));
-  const hb = edit.headerBytes ? edit.headerBytes(header) : header;
-  const { pages, dirFields, dirExtra } = splitIndex(index, parts);
-  const grid = (i: number) => parts.grids[Math.min(i, parts.grids.length - 1)];
-  const pageBytes = pages.map((list, i) => list.map((pg, k) => (edit.pageBytes ? edit.pageBytes(i, k, encode(diskPage(pg, grid(i), k))) : encode(diskPage(pg, grid(i), k)))));
-  return assemble({ front, headerBytes: hb, pageBytes, dirFields, dirExtra, dirBytes: edit.indexBytes });
 }
 
 /** The error of a full open + read of every field, or null when all succeed. */

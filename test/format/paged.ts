@@ -365,3 +365,37 @@ export function assemble(a: Assembly, encodeValue: (v: unknown) => Uint8Array = 
   out.set([0x52, 0x46, 0x5a, 0x2d, 0x45, 0x4e, 0x44, 0x0a], t + 16);
   return out;
 }
+
+/**
+ * Rebuild an archive with the same payload region and a changed header and/or
+ * index, every CRC and offset recomputed, so that only the content is wrong.
+ * The index is edited whole (columns over all tiles) and split into its
+ * pages again.
+ */
+export interface Edit {
+  header?: (h: Block) => void;
+  index?: (ix: Block) => void;
+  payload?: (p: Uint8Array) => void;
+  /** Replace the encoded header, index directory, or one page. */
+  headerBytes?: (b: Uint8Array) => Uint8Array;
+  indexBytes?: (b: Uint8Array) => Uint8Array;
+  pageBytes?: (field: number, page: number, b: Uint8Array) => Uint8Array;
+  /** Required flags to write in the prologue and tail instead of the archive's. */
+  flags?: number;
+}
+
+export function rebuild(b: Uint8Array, edit: Edit): Uint8Array {
+  const parts = split(b);
+  const front = parts.front.slice();
+  edit.payload?.(front.subarray(12));
+  if (edit.flags !== undefined) new DataView(front.buffer, front.byteOffset).setUint16(10, edit.flags, true);
+  const index = joinIndex(parts);
+  edit.header?.(parts.header);
+  edit.index?.(index);
+  const header = encode(diskHeader(parts.header));
+  const hb = edit.headerBytes ? edit.headerBytes(header) : header;
+  const { pages, dirFields, dirExtra } = splitIndex(index, parts);
+  const grid = (i: number) => parts.grids[Math.min(i, parts.grids.length - 1)];
+  const pageBytes = pages.map((list, i) => list.map((pg, k) => (edit.pageBytes ? edit.pageBytes(i, k, encode(diskPage(pg, grid(i), k))) : encode(diskPage(pg, grid(i), k)))));
+  return assemble({ front, headerBytes: hb, pageBytes, dirFields, dirExtra, dirBytes: edit.indexBytes });
+}

@@ -9,13 +9,15 @@
  * with every cell class (fill, +-Inf, canonical and raw NaN, the raw bits
  * in f32 and f64), residuals with and without Lorenzo prediction, with and
  * without factors, and exceptions; and the header's optional parts (fill
- * values, attributes, an N-D field). The values are generated (sums of
- * separable cosines, spikes, holes): seeds only need to be valid archives.
+ * values, attributes, an N-D field, a field layer with its two factor
+ * fields). The values are generated (sums of separable cosines, spikes,
+ * holes): seeds only need to be valid archives.
  */
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import type { FloatArray } from '../../src/types.js';
 import { Rng } from './rng.js';
+import { layeredArchive, smoothFactors } from '../format/layered.js';
 
 /** A seed archive and what it was made from. */
 export interface Seed {
@@ -124,5 +126,12 @@ export function buildSeeds(): Seed[] {
   b.add(new Float64Array(6).fill(-0), [2, 3], { bound: 'abs:1', name: 'c', fill: 0 });
   b.finish();
   add('multi-field', sink.bytes());
+
+  // A field layer (spec/FORMAT.md 6.2.2): 2 slices of 12 x 14 f32 with a fill value, rank 2, factor fields listed first,
+  // progressive tiles (the prefix column) on top of it. Made by test/format/layered.ts from the library's tile encoder.
+  const { left, right } = smoothFactors(24, 14, 2, 4);
+  const lv = Float32Array.from(smooth(24, 14, 17, 2, 3), (v, c) => v + left[2 * Math.floor(c / 14)] * right[2 * (c % 14)]);
+  lv[30] = -5;
+  add('layered-f32', layeredArchive({ values: lv, shape: [12, 14], slices: 2, tile: [6, 7], tol: 1e-3, fill: -5, rank: 2, left, right, factors: 'before', progressive: true, factorTile: [8, 2] }).bytes);
   return seeds;
 }

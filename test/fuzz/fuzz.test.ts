@@ -56,6 +56,7 @@ describe('fuzzing', () => {
       });
       if (m.payloads.length > 1) seen.add('several fields');
       if (m.header.fields.some((h: { nd_shape?: number[] }) => h.nd_shape)) seen.add('an N-D field');
+      if (m.header.fields.some((h: { layer?: unknown }) => h.layer)) seen.add('a field layer');
       seen.add(m.header.fields[0].dtype);
     });
     // Cell classes 0..5 of the mask (valid, fill, +Inf, -Inf, NaN, raw NaN): spec/FORMAT.md 10.6.3.
@@ -64,7 +65,7 @@ describe('fuzzing', () => {
     // binary32's normal range; centre form 2 and step form 3 (integers): seeds of integer-valued fields (their lattice).
     want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FactorDelta', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
     want.push('centre form 0', 'centre form 1', 'centre form 2', 'step form 0', 'step form 1', 'step form 2', 'step form 3');
-    want.push('class 0', 'class 1', 'class 2', 'class 3', 'class 4', 'class 5', 'several fields', 'an N-D field', 'f32', 'f64');
+    want.push('class 0', 'class 1', 'class 2', 'class 3', 'class 4', 'class 5', 'several fields', 'an N-D field', 'a field layer', 'f32', 'f64');
     for (const x of want) expect(seen, `no seed has ${x}`).toContain(x);
   });
 

@@ -13,7 +13,7 @@ import { open, type Archive } from '../../src/archive.js';
 import { archiveFacts, factsText } from '../../src/cli/show.js';
 import { FormatCode, FormatError, InputCode, InputError } from '../../src/errors.js';
 import { MemorySource } from '../../src/io/source.js';
-import type { ArchiveIndex } from '../../src/format/schema.js';
+import { quoteName, type ArchiveIndex } from '../../src/format/schema.js';
 import { tileCount } from '../../src/geometry.js';
 import type { FloatArray } from '../../src/types.js';
 import type { Rng } from './rng.js';
@@ -88,41 +88,48 @@ function pickWindow(a: Archive, name: string, rng: Rng): { rows: [number, number
   return { rows: [r0, r0 + hh], cols: [c0, c0 + ww] };
 }
 
-/** The same window assembled from single tiles, through the tile API. */
+/** The same window assembled from single tiles, through the tile API (every slice of a field of slices, as read() gives them). */
 async function windowFromTiles(a: Archive, name: string, w: { rows: [number, number]; cols: [number, number] }): Promise<FloatArray> {
   const { header: h } = a.field(name);
   const [r0, r1] = w.rows;
   const [c0, c1] = w.cols;
   const ww = c1 - c0;
-  const out = h.dtype === 'f32' ? new Float32Array((r1 - r0) * ww) : new Float64Array((r1 - r0) * ww);
+  const slices = h.slices ?? 1;
+  const plane = (r1 - r0) * ww;
+  const out = h.dtype === 'f32' ? new Float32Array(slices * plane) : new Float64Array(slices * plane);
   const [tr, tc] = h.tile;
   const gc = Math.ceil(h.shape[1] / tc);
-  for (let ti = Math.floor(r0 / tr); ti * tr < r1; ti++) {
-    for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) {
-      const tile = await a.tile(name, ti * gc + tj);
-      const n = Math.min(tc, h.shape[1] - tj * tc);
-      const j0 = Math.max(c0, tj * tc);
-      const j1 = Math.min(c1, (tj + 1) * tc);
-      for (let i = Math.max(r0, ti * tr); i < Math.min(r1, (ti + 1) * tr); i++) {
-        // Row segments copied as typed arrays: element by element, a signalling NaN could be quieted.
-        const from = (i - ti * tr) * n + (j0 - tj * tc);
-        out.set(tile.subarray(from, from + (j1 - j0)), (i - r0) * ww + (j0 - c0));
+  const gr = Math.ceil(h.shape[0] / tr);
+  for (let s = 0; s < slices; s++) {
+    for (let ti = Math.floor(r0 / tr); ti * tr < r1; ti++) {
+      for (let tj = Math.floor(c0 / tc); tj * tc < c1; tj++) {
+        const tile = await a.tile(name, s * gr * gc + ti * gc + tj);
+        const n = Math.min(tc, h.shape[1] - tj * tc);
+        const j0 = Math.max(c0, tj * tc);
+        const j1 = Math.min(c1, (tj + 1) * tc);
+        for (let i = Math.max(r0, ti * tr); i < Math.min(r1, (ti + 1) * tr); i++) {
+          // Row segments copied as typed arrays: element by element, a signalling NaN could be quieted.
+          const from = (i - ti * tr) * n + (j0 - tj * tc);
+          out.set(tile.subarray(from, from + (j1 - j0)), s * plane + (i - r0) * ww + (j0 - c0));
+        }
       }
     }
   }
   return out;
 }
 
-/** Declared decode work of an opened archive: sum over tiles of m*n*(rank+1). */
+/** Declared decode work of an opened archive: sum over tiles of m*n*(rank+1), and m*n*k more for a tile of a field with a layer of rank k. */
 export function declaredWork(a: Archive, index: ArchiveIndex): number {
   let w = 0;
   a.header.fields.forEach((h, f) => {
     const ix = index.fields[f];
     const gc = Math.ceil(h.shape[1] / h.tile[1]);
+    const gr = Math.ceil(h.shape[0] / h.tile[0]);
     for (let t = 0; t < ix.offset.length; t++) {
-      const m = Math.min(h.tile[0], h.shape[0] - Math.floor(t / gc) * h.tile[0]);
-      const n = Math.min(h.tile[1], h.shape[1] - (t % gc) * h.tile[1]);
-      w += m * n * (ix.rank[t] + 1);
+      const local = t % (gr * gc);
+      const m = Math.min(h.tile[0], h.shape[0] - Math.floor(local / gc) * h.tile[0]);
+      const n = Math.min(h.tile[1], h.shape[1] - (local % gc) * h.tile[1]);
+      w += m * n * (ix.rank[t] + 1 + (h.layer?.rank ?? 0));
     }
   });
   return w;
@@ -139,6 +146,11 @@ export interface Obligation {
 
 /** A bound every recorded prefix meets: a read at it takes each tile's shortest prefix (spec/FORMAT.md 18.4). */
 export const LOOSE_BOUND = 'abs:1e300';
+
+/** `s` as a regular expression matching itself. */
+function escaped(s: string): string {
+  return s.replace(/[.*+?^${}()|[\]\\]/g, '\\$&');
+}
 
 function sameBytes(a: Uint8Array, b: Uint8Array): boolean {
   if (a.length !== b.length) return false;
@@ -195,8 +207,12 @@ export async function runCase(bytes: Uint8Array, rng: Rng, label = 'fuzz-case', 
   }
   const failedTiles = new Map<string, Set<number>>();
   const failedPages = new Map<string, Set<number>>();
-  const failed = (name: string, e: unknown): void => {
+  const failed = (read: string, e: unknown): void => {
     const text = e instanceof FormatError ? e.message.slice(label.length) : '';
+    // A read of a layered field fails with the error of a factor field's tile or page when one does:
+    // check() reports that tile or page under the factor field's name.
+    const name = a.names.find((n) => n !== read && new RegExp(`(field ${escaped(quoteName(n))} tile|index page \\d+ of field ${escaped(quoteName(n))})`).test(text)) ?? read;
+    if (!failedTiles.has(read)) failedTiles.set(read, new Set());
     // A failed index page is reported by check() as one failure naming the page (tile -1).
     const page = /index page (\d+) of field/.exec(text);
     const m = page ? null : /tile (\d+)/.exec(text);

@@ -633,7 +633,9 @@ function consistentHeader(m: Model, rng: Rng): string {
     [2, 'bound'],
     [1, 'transpose'],
     [1, 'rename'],
+    [2, 'layer'],
   ]);
+  if (which === 'layer') return layerEdit(m, f, rng);
   if (which === 'scale') {
     // Scaling shape and tile by the same integers keeps the tile grid; the payloads then meet larger tiles.
     const cells = h.tile[0] * h.tile[1];
@@ -659,6 +661,56 @@ function consistentHeader(m: Model, rng: Rng): string {
     h.tile = [h.tile[1], h.tile[0]];
   } else h.name = fields.length > 1 && rng.chance(0.5) ? fields[(f + 1) % fields.length].name : rng.pick(['', 'x'.repeat(1025), 'ok', '\u0000']);
   return `field ${f} ${which}`;
+}
+
+/**
+ * An edit of a field layer (element 8 of a field entry, spec/FORMAT.md
+ * 6.2.2): in an archive with a layer, a rule of Section 15 items 17b and
+ * 17c broken (refused), the layer's flag bit cleared (refused), or the
+ * layer removed (its field's low-rank tiles then decode to other values,
+ * which check() must report); in any archive, a layer that names the field
+ * itself, no field, or has rank 0 (refused).
+ */
+function layerEdit(m: Model, f: number, rng: Rng): string {
+  const fields = m.header.fields;
+  const at = fields.findIndex((g: Block) => Array.isArray(g.layer));
+  if (at < 0 || rng.chance(0.2)) {
+    const other = (f + 1) % fields.length;
+    fields[f].layer = rng.pick([
+      [1, f, other],
+      [1, other, fields.length],
+      [0, other, other === f ? f : other],
+      [1, -1, other],
+    ]);
+    return `field ${f} layer ${JSON.stringify(fields[f].layer)}${REFUSE}`;
+  }
+  const g = fields[at];
+  const [k, left, right] = g.layer as number[];
+  const rows = (g.slices ?? 1) * g.shape[0];
+  const cols = g.shape[1];
+  const which = rng.pick(['rank 0', 'rank too high', 'self', 'same', 'past the list', 'swapped', 'not an array', 'no flag', 'removed', 'rank + 1']);
+  if (which === 'removed') {
+    delete g.layer;
+    return `field ${at} layer removed${CAUGHT}`;
+  }
+  if (which === 'no flag') {
+    m.flags &= ~0x2;
+    return `flag bit 1 (layer) cleared${REFUSE}`;
+  }
+  const edits: Record<string, unknown> = {
+    'rank 0': [0, left, right],
+    'rank too high': [Math.min(rows, cols) + 1, left, right],
+    self: [k, at, right],
+    same: [k, left, left],
+    'past the list': [k, left, fields.length + rng.int(3)],
+    swapped: [k, right, left],
+    'not an array': rng.pick([k, 'layer', { rank: k }, [k, left], [k, left, right + 0.5]]),
+    // The factor fields' width is k: another rank no longer matches their shape.
+    'rank + 1': [k + 1, left, right],
+  };
+  g.layer = edits[which];
+  // Swapped factors match only when the field has as many stacked rows as columns.
+  return `field ${at} layer ${which}${which === 'swapped' && rows === cols ? '' : REFUSE}`;
 }
 
 /** MessagePack-level tricks on the header or index bytes (applied last, to the final header or index). */

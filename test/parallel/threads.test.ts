@@ -13,6 +13,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ensureBuilt, ROOT } from '../cli/helpers.js';
 import { mirrored, precip, volcano } from '../archive/datasets.js';
 import { expectSameBytes } from '../same-bytes.js';
+import { layeredArchive, smoothFactors } from '../format/layered.js';
 
 type Lib = typeof import('../../src/index.js');
 type Pool = typeof import('../../src/parallel/pool.js');
@@ -117,7 +118,33 @@ describe('WorkerPool options', () => {
   });
 });
 
+/** The bands readBands handed over, joined in order; they must hold `length` values in all. */
+function joinBands(parts: Float32Array[], length: number): Float32Array {
+  const out = new Float32Array(length);
+  let at = 0;
+  for (const p of parts) {
+    out.set(p, at);
+    at += p.length;
+  }
+  expect(at).toBe(length);
+  return out;
+}
+
 describe('readBands: a field band by band, on worker threads', () => {
+  it('reads a field with a layer (spec/FORMAT.md 6.2.2) on 2 threads as Archive.read does, each band with its factor rows', async () => {
+    // 2 slices of 160 x 220 (70 400 values, above the size read on one thread), rank 3, the precip grid's values.
+    const g = precip();
+    const values = Float32Array.from({ length: 320 * 220 }, (_, c) => g.values[((Math.floor(c / 220) % g.shape[0]) * g.shape[1] + (c % 220)) % g.values.length]);
+    const { left, right } = smoothFactors(320, 220, 3);
+    const bytes = layeredArchive({ values, shape: [160, 220], slices: 2, tile: [32, 44], tol: 0.5, rank: 3, left, right }).bytes;
+    const archive = await lib.open(bytes);
+    const want = await archive.read();
+    const parts: Float32Array[] = [];
+    await lib.readBands(archive, undefined, { threads: 2, location: bytes, bandCells: 10_000 }, (v) => void parts.push(v as Float32Array));
+    expect(parts.length).toBeGreaterThan(4);
+    expectSameBytes(joinBands(parts, want.values.length), want.values, 'layered field on 2 threads');
+  }, 60_000);
+
   it('gives the values of Archive.read, for the whole field and for windows, with 1 and 2 threads', async () => {
     const bytes = big.bytes;
     const archive = await lib.open(bytes);
@@ -127,14 +154,7 @@ describe('readBands: a field band by band, on worker threads', () => {
         const parts: Float32Array[] = [];
         const got = await lib.readBands(archive, undefined, { ...window, threads, location: bytes, bandCells: 30_000 }, (v) => void parts.push(v as Float32Array));
         expect(parts.length).toBeGreaterThan(2);
-        const joined = new Float32Array(want.values.length);
-        let at = 0;
-        for (const p of parts) {
-          joined.set(p, at);
-          at += p.length;
-        }
-        expect(at).toBe(want.values.length);
-        expectSameBytes(joined, want.values, `threads ${threads}`);
+        expectSameBytes(joinBands(parts, want.values.length), want.values, `threads ${threads}`);
         expect(got.shape).toEqual(want.shape);
         expect(got.window).toEqual(want.window);
         expect(got.achieved.maxErr).toBe(want.achieved.maxErr);

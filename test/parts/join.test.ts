@@ -10,10 +10,12 @@ import { createHash } from 'node:crypto';
 import { describe, expect, it } from 'vitest';
 import { ArchiveBuilder, FormatError, InputError, MemorySink, MemorySource, open, type PackOptions } from '../../src/index.js';
 import { makePlan, parsePlan, planText, partRange, type RunPlan } from '../../src/parts/plan.js';
-import { HEADER_ROOM, maxPartTiles, packPlanned, TALLY_BYTES } from '../../src/parts/part.js';
+import { HEADER_ROOM, maxPartTiles, packPlanned, PART_KEYS, TALLY_BYTES } from '../../src/parts/part.js';
 import { joinParts } from '../../src/parts/join.js';
 import { memoryBands } from '../../src/codec/tiles.js';
 import { mirrored, precip, volcano } from '../archive/datasets.js';
+import { layeredArchive, smoothFactors } from '../format/layered.js';
+import { rebuild } from '../format/paged.js';
 
 type Case = { values: Float32Array; shape: [number, number]; o: PackOptions & { indexPage?: [number, number] } };
 
@@ -110,6 +112,15 @@ describe('join refuses', () => {
     bad[20] ^= 0xff;
     await expect(joined([parts[0], bad, parts[2], parts[3]])).rejects.toBeInstanceOf(FormatError);
   }, 60_000);
+
+  it('an archive with a field layer is refused in one line, even with the attributes of a part', async () => {
+    const { left, right } = smoothFactors(12, 10, 2);
+    const made = layeredArchive({ values: new Float64Array(120).map((_, c) => Math.cos(c / 7)), shape: [12, 10], tile: [6, 5], tol: 1e-2, rank: 2, left, right });
+    const asPart = rebuild(made.bytes, { header: (h) => (h.attrs = { [PART_KEYS.run]: 'r', [PART_KEYS.plan]: 'p', [PART_KEYS.part]: [1, 1], [PART_KEYS.rows]: [0, 12, 12], [PART_KEYS.tally]: [] }) });
+    const e = await joinParts([new MemorySource(asPart, 'layered.rfz')], new MemorySink()).catch((x: unknown) => x);
+    expect(e).toBeInstanceOf(FormatError);
+    expect((e as Error).message).toBe("layered.rfz: part 1/1 of run 'r': field 'field' has a field layer, which a part never has: the parts of a run are packed without one");
+  });
 
   it('a part of more tiles than its readers\' header limit allows, before encoding; one at the limit is read', async () => {
     // Part 2 of 2 holds 128 rows in tiles of 16: 8 tile rows of 4 tiles, 32 tiles (4 bands of 8).
