@@ -34,13 +34,14 @@ export interface LayerFactors {
 
 /**
  * The field's leading `rank` singular triplets (see {@link LayerFactors}),
- * read band by band: one pass for the mean of the valid values, then the
- * range finder's passes (bandTruncatedSvd, one power iteration). Missing
+ * read band by band: one pass for the mean of the valid values (and one for
+ * the largest deviation from it, unless the value `range` is given), then
+ * the range finder's passes (bandTruncatedSvd, one power iteration: four). Missing
  * cells (fill value, NaN, infinities) count as the mean, for the SVD only;
  * the mean itself is left to the tiles' centres. Null when the field has no
  * valid value. Deterministic: the same factors for every thread count.
  */
-export function fieldFactors(src: BandSource, spec: FieldSpec, rank: number): LayerFactors | null {
+export function fieldFactors(src: BandSource, spec: FieldSpec, rank: number, range: [number, number] | null = null): LayerFactors | null {
   const missing = missingTest(spec);
   const rows = (spec.slices ?? 1) * spec.rows;
   let sum = 0;
@@ -54,11 +55,15 @@ export function fieldFactors(src: BandSource, spec: FieldSpec, rank: number): La
   });
   if (valid === 0) return null;
   const mean = sum / valid;
-  // Scale by a power of two near the largest deviation, so squares neither overflow nor underflow (as truncated.ts does).
+  // Scale by a power of two near the largest deviation, so squares neither overflow nor underflow (as truncated.ts
+  // does): from the value range when the range pass gave it, else from one more pass.
   let big = 0;
-  eachBand(src, spec, (_r0, values) => {
-    for (let c = 0; c < values.length; c++) if (!missing(values[c])) big = Math.max(big, Math.abs(values[c] - mean));
-  });
+  if (range) big = Math.max(Math.abs(range[1] - mean), Math.abs(range[0] - mean));
+  else {
+    eachBand(src, spec, (_r0, values) => {
+      for (let c = 0; c < values.length; c++) if (!missing(values[c])) big = Math.max(big, Math.abs(values[c] - mean));
+    });
+  }
   const e = big > 0 && Number.isFinite(big) ? exponentOf(big) : 0;
   const scale = 2 ** -e;
   let buf = new Float64Array(0);
@@ -177,7 +182,7 @@ export function codeLayer(f: LayerFactors, rank: number, spec: FieldSpec, tol: n
 const AUTO_RANKS = [1, 2, 4, 8];
 /** Shares `c` of the tolerance tried for the factors' bounds: 1 while ranks are compared, then the others for the rank kept. */
 const FACTOR_SHARES = [1, 0.5, 2];
-/** Tiles of the field sampled per candidate (whole tiles, spread over the first slice). */
+/** Tiles of the field sampled per candidate at most (whole tiles, spread over the first slice). */
 const SAMPLE_TILES = 16;
 /**
  * 'auto' is not tried on fields of fewer tiles than this: one tile's own SVD
@@ -207,11 +212,12 @@ export function chooseLayer(src: BandSource, spec: FieldSpec, basis: FieldChoice
   const ranks = want === 'auto' ? AUTO_RANKS.filter((r) => r <= most) : [want];
   const tried: [string, number][] = [];
   if (ranks.length === 0) return { coded: null, tried };
-  const f = fieldFactors(src, spec, Math.max(...ranks));
+  const f = fieldFactors(src, spec, Math.max(...ranks), basis.range);
   if (f === null) return { coded: null, tried };
   const m = Math.min(spec.tileRows, spec.rows);
   const n = Math.min(spec.tileCols, spec.cols);
-  const picked = spreadSample(spec, m, n, SAMPLE_TILES);
+  // At most a quarter of the first slice's whole tiles (at least 2): each candidate packs the sample again.
+  const picked = spreadSample(spec, m, n, Math.min(SAMPLE_TILES, Math.max(2, Math.floor((Math.floor(spec.rows / m) * Math.floor(spec.cols / n)) / 4))));
   // The first slice's tiles, as the tile trial samples them.
   const first: FieldSpec = { ...spec, slices: 1 };
   const remainder = (layer: FieldLayer | undefined) => {
@@ -228,8 +234,16 @@ export function chooseLayer(src: BandSource, spec: FieldSpec, basis: FieldChoice
     const bytes = coded.bytes + remainder(coded.layer);
     tried.push([`rank ${rank} share ${c}`, bytes]);
     if (bytes < best.bytes) best = { coded, bytes };
+    return bytes;
   };
-  for (const r of ranks) consider(r, FACTOR_SHARES[0]);
+  // Ranks in increasing order, until one packs larger than the rank before it (past rank 1, whose factors'
+  // fixed costs may outweigh what it saves while higher ranks still gain: sizes then fall, and rise again).
+  let previous = Infinity;
+  for (const r of ranks) {
+    const bytes = consider(r, FACTOR_SHARES[0]);
+    if (want === 'auto' && r > 1 && bytes > previous) break;
+    previous = bytes;
+  }
   const kept = best.coded?.layer.rank;
   if (kept !== undefined) for (const c of FACTOR_SHARES.slice(1)) consider(kept, c);
   return { coded: best.coded, tried };

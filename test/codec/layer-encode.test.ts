@@ -76,6 +76,19 @@ describe('layer round trips on annual-precip (168 x 360, 32 x 32 tiles)', () => 
     expect(limit(errors(values, g.values))).toBe(true);
   });
 
+  it('with the tile shape by trial and a progressive layout: the bound holds, the tile trial runs before the layer', async () => {
+    const bytes = pack(g.values, g.shape, { bound: 'psnr:45', tile: 'auto', progressive: true, layer: 2 });
+    const a = await open(bytes);
+    const h = a.header.fields[2];
+    await a.close();
+    expect(h.layer?.rank).toBe(2);
+    // The factor fields follow the shape the trial chose.
+    expect(a.header.fields[0].tile).toEqual([h.tile[0], 2]);
+    expect(a.header.fields[1].tile).toEqual([h.tile[1], 2]);
+    // PSNR = 20 log10(range / RMSE) (from memory).
+    expect(20 * Math.log10((hi - lo) / errors((await readLayered(bytes, 'field')).values, g.values).rmse)).toBeGreaterThanOrEqual(45);
+  });
+
   it("a window's factor rows are whole tiles of the factor fields: tile row t of the field is factor tile t", async () => {
     const bytes = pack(g.values, g.shape, { bound: 'rel:1e-3', tile: 32, layer: 2 });
     const a = await open(bytes);
