@@ -92,8 +92,10 @@ export interface PackOptions {
    * field is of low rank as a whole but its tiles are kept small for window
    * reads. A rank (an integer from 1 to the smaller of rows x slices and
    * cols, at most {@link MAX_LAYER_RANK}); 'auto': ranks 1, 2, 4 and 8 and no
-   * layer estimated on a sample of tiles packed for real, the smallest kept
-   * (not tried on fields of fewer than 4 tiles); 'off' (default): none.
+   * layer estimated on a sample of tiles packed for real, the smallest kept,
+   * a layer only when it estimates 10% smaller than none (not tried on
+   * fields of fewer than 4 tiles; it costs pack time: 1.6x to 1.9x on
+   * bench/'s 4096 x 4096 field); 'off' (default): none.
    * Archives with a layer carry required flag bit 1, which older readers
    * refuse. Not available to packs made in parts (`plan`).
    */
@@ -252,11 +254,15 @@ export class ArchiveBuilder {
   private finished = false;
   private readonly pages: [number, number][] = [];
 
+  /** Whether the sink can patch the prologue (set a required flag after payloads are written). */
+  private readonly patchable: boolean;
+
   constructor(sink: Sink, private attrs: Attrs = {}, options: BuilderOptions = {}) {
     const problem = attrsProblem(attrs);
     if (problem) throw new InputError(InputCode.Option, `archive ${problem}`);
     if (holdsLoneSurrogate(attrs)) throw new InputError(InputCode.Option, 'archive attributes hold a lone UTF-16 surrogate, which UTF-8 cannot store');
     this.writer = new ContainerWriter(sink, (options.slices === true ? FLAG_SLICES : 0) | (options.layer === true ? FLAG_LAYER : 0));
+    this.patchable = typeof sink.patch === 'function';
   }
 
   /** Encode and append one field held in memory (row-major). */
@@ -349,11 +355,13 @@ export class ArchiveBuilder {
     const basis = prior?.basis ?? fieldBasis(src, spec);
     const basePrior: FieldPrior = { basis, done: new Map() };
     if (want === 'auto' && !layerWorthTrying(spec, basis.tol)) return { prior: prior ?? basePrior };
-    if (!this.writer.requireFlags(FLAG_LAYER)) {
+    // Refused before any work when the flag cannot be set; set only once a layer is kept ('auto' may keep none).
+    if ((this.writer.flags & FLAG_LAYER) === 0 && !this.patchable) {
       throw new InputError(InputCode.Option, `field '${spec.name}' asks for a layer: create the ArchiveBuilder with { layer: true } (this sink cannot patch the prologue)`);
     }
     const { coded } = chooseLayer(src, spec, basis, want, this.factorNames(spec.name));
     if (coded === null) return { prior: prior ?? basePrior };
+    this.writer.requireFlags(FLAG_LAYER);
     const left = this.fields.length;
     for (const [f, rows] of [[coded.left, page[0]], [coded.right, page[1]]] as const) {
       // A factor's tiles are one column of tiles: pages of the field's page rows (left) or page columns (right).
