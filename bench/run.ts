@@ -3,7 +3,8 @@
  * on every field and bound, in one process, each output decoded and checked;
  * writes RESULTS.md and one rate-distortion plot per field.
  */
-import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { layerBlock, withBlock } from './layer-block.js';
 import os from 'node:os';
 import { join } from 'node:path';
 import { isPointwise, parseBound, resolveBound } from '../src/index.js';
@@ -216,8 +217,10 @@ async function main(): Promise<void> {
     notes,
     speed,
   };
-  const md = renderResults(runInfo);
   const file = join(args.out, 'RESULTS.md');
+  // The field layer block (bench/layer.ts, run on its own) is carried over from the file this run replaces.
+  const kept = existsSync(file) ? layerBlock(readFileSync(file, 'utf8')) : null;
+  const md = kept ? withBlock(renderResults(runInfo), kept) : renderResults(runInfo);
   writeFileSync(file, md);
   log(`wrote ${file}`);
   // A full run also rewrites the README's performance block, so README figures always come from a run.

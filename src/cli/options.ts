@@ -106,6 +106,15 @@ export function nameOption(text: string): string {
   return text;
 }
 
+/** `--layer auto|off|K`: a field layer chosen by bytes, none, or of rank K (1 to 64; the field's own sides are checked by the library). */
+export function layerOption(text: string): 'auto' | 'off' | number {
+  const t = text.trim();
+  if (t === 'auto' || t === 'off') return t;
+  const n = Number(t);
+  if (!/^[0-9]{1,9}$/.test(t) || n < 1 || n > 64) throw new InvalidArgumentError(`layer must be auto, off or a rank from 1 to 64, got '${text}'`);
+  return n;
+}
+
 /** `--threads N`: worker threads, an integer from 1 to {@link MAX_THREADS}. */
 export function threadsOption(text: string): number {
   const t = text.trim();

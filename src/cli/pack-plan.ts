@@ -29,6 +29,18 @@ export interface FieldFlags extends OutputFlags {
   threads?: number;
   progressive?: boolean;
   part?: [number, number];
+  /** --layer: a field layer (pack), refused by runs made in parts. */
+  layer?: 'auto' | 'off' | number;
+}
+
+/**
+ * Runs made in parts take no field layer (its factors are computed from the
+ * whole field, and parts are packed apart): a rank is refused; 'auto' is
+ * taken as 'off', with one line saying so.
+ */
+export function partsLayer(layer: FieldFlags['layer'], out: Output): void {
+  if (typeof layer === 'number') throw new UsageError(`--layer ${layer}: runs packed in parts (plan, --plan, --part) take no field layer; pack in one process for a layer, or drop --layer`);
+  if (layer === 'auto') out.note('--layer auto: runs packed in parts take no field layer; packing without one');
 }
 
 /** The flags of `pack` (cli/pack.ts), with and without --plan. */
@@ -53,6 +65,7 @@ export async function packPlannedCli(input: string, kind: InputKind, flags: Pack
     throw new UsageError(`--part needs --plan: the parts of a run share field-wide choices (the value range, the tile shape, the tolerance and for rmse and psnr bounds the L2 plan) made from the whole field; run 'rankfield plan ${input} -o PLAN --bound ...' first`);
   }
   if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`--plan and --part cover .npy and raw input; '${input}' is NetCDF, whose variables a plan does not describe: pack it in one process, without --plan and --part`);
+  partsLayer(flags.layer, out);
   const fixed = (['bound', 'tile', 'fill', 'name', 'matrix', 'layout', 'progressive', 'var'] as const).filter((k) => flags[k] !== undefined).map((k) => `--${k === 'fill' && flags.fill === false ? 'no-fill' : k}`);
   if (fixed.length > 0) throw new UsageError(`${fixed.join(', ')}: the plan '${flags.plan}' fixes ${fixed.length === 1 ? 'it' : 'them'}; drop ${fixed.length === 1 ? 'it' : 'them'} (or make another plan)`);
   const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };

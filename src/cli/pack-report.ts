@@ -4,7 +4,7 @@
  * its own (tile shape, layout, threads), as text and as one JSON object.
  */
 import { availableParallelism } from 'node:os';
-import { printable } from '../format/schema.js';
+import { printable, type FieldHeader } from '../format/schema.js';
 import { openArchiveSource } from './files.js';
 import { archiveFacts, type ArchiveFacts, type FieldFacts } from './show.js';
 import { byteShares, sharesText, tileUseText, type ByteShares } from './summary.js';
@@ -62,6 +62,18 @@ export function packDetails(facts: ArchiveFacts, c: PackChoices, many: boolean):
   lines.push(`  threads ${c.threads}${auto(c.threadsAuto, 'one for a field under 2^18 values or, with the tile chosen by trial, of at most 2^18; else the number of cores; --threads fixes it for the others')}`);
   for (const f of facts.fields) lines.push(...fieldLines(f, many));
   return lines.join('\n') + '\n';
+}
+
+/**
+ * One line per field with a layer (its rank and factor fields), or, when a
+ * layer was asked for ('auto') and none was kept, one line saying so; nothing
+ * when no layer was asked for.
+ */
+export function layerText(fields: readonly FieldHeader[], asked: 'auto' | 'off' | number | undefined): string {
+  if (asked === undefined || asked === 'off') return '';
+  const lines = fields.filter((f) => f.layer).map((f) => `  layer of ${printable(f.name)}: rank ${f.layer!.rank}, factors in fields ${printable(fields[f.layer!.left].name)} and ${printable(fields[f.layer!.right].name)}${asked === 'auto' ? ' (chosen automatically: the rank that packed smallest on a sample)' : ''}\n`);
+  if (lines.length === 0) return `  layer none${asked === 'auto' ? ' (chosen automatically: no rank packed smaller on a sample, or the field has fewer than 4 tiles)' : ''}\n`;
+  return lines.join('');
 }
 
 /** How one field is stored; with `many`, named (pack's line per variable has given its size and ratio). */

@@ -14,9 +14,9 @@ import type { BandReader } from '../io/bands.js';
 import type { Context } from './context.js';
 import { printable } from '../format/schema.js';
 import { Output } from './output.js';
-import { packChoices, packDetails, writtenFacts } from './pack-report.js';
+import { layerText, packChoices, packDetails, writtenFacts } from './pack-report.js';
 import { RangeWatch, suspectMessage } from './fill-guard.js';
-import { boundOption, defaultThreads, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
+import { boundOption, defaultThreads, dtypeOption, endianOption, fillOption, layerOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
 
 // cli/plan.ts takes it from here.
 
@@ -83,6 +83,11 @@ Example:
   rankfield pack sst.npy -o sst.rfz --bound abs:0.01 --fill -999
   rankfield pack run.nc -o run.rfz --bound rel:1e-3 --matrix time:space`;
 
+/** Whether required flag bit 1 is written in the prologue (the output file cannot be patched): when a layer is asked for, even if 'auto' keeps none. */
+function withLayer(layer: 'auto' | 'off' | number | undefined): boolean {
+  return layer !== undefined && layer !== 'off';
+}
+
 /** Default field name: the input file name without its extension. */
 export function defaultName(input: string): string {
   const base = basename(input, extname(input));
@@ -124,6 +129,7 @@ export function registerPack(program: Command, ctx: Context): void {
     .option('--layout <LAYOUT>', 'variables of 3+ dimensions: auto (default: NetCDF, the layout whose sample packs smallest; .npy and raw, slices) or slices', layoutOption)
     .option('--threads <N>', 'threads encoding tiles (default: the number of cores, and 1 for a --part; N - 1 worker threads beside the main one); the archive is the same for every N', threadsOption)
     .option('--progressive', 'lay each tile\'s factors out in rank groups with their recorded errors, so that `unpack --bound` with a looser bound reads only a prefix of each tile (costs some bytes)')
+    .option('--layer <auto|off|K>', 'a field layer: a truncated SVD of the whole field (rank K, or auto: ranks 1, 2, 4, 8 or none, the smallest on a sample) stored in pieces along tile rows and columns, under each tile\'s own coding; pays on fields of low rank as a whole packed with small tiles (default off; older readers refuse archives with a layer)', layerOption)
     .option('--plan <PLAN>', 'pack with the field-wide choices of a plan written by `rankfield plan` (bound, tile, fill, name come from it)')
     .option('--part <K/N>', 'with --plan: pack only part K of N (a band of rows; see plan --help), to be joined by `rankfield join`', partOption)
     .option('--force', 'overwrite OUT if it exists')
@@ -167,12 +173,12 @@ async function packArray(input: string, kind: InputKind, flags: PackFlags & { bo
     const band = watchedBand(field, grid, input, fill, watch, (n) => (fills += n));
     threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1], flags.tile === undefined || flags.tile === 'auto');
     await writeOutputWith(flags.output, io, async (sink) => {
-      const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
+      const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1, layer: withLayer(flags.layer) });
       const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
       const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
       try {
         // The guard ran (or --no-fill turned it off) in the band callback above, in the command line's words.
-        await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound, tile: flags.tile, fill: fill ?? null, fillGuard: false, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, ...nd });
+        await builder.addBandsAsync(band, [grid.rows, grid.cols], field.dtype, { bound, tile: flags.tile, fill: fill ?? null, fillGuard: false, name, progressive: flags.progressive === true, threads, onProgress: bar.onProgress, layer: flags.layer, ...nd });
       } finally {
         bar.stop();
       }
@@ -189,7 +195,9 @@ async function reportArray(input: string, flags: PackFlags, grid: ArrayGrid, run
   const { fill, fills, threads } = run;
   const facts = await writtenFacts(flags.output);
   const archive = await openArchive(flags.output);
-  const { header: h, summary } = archive.field();
+  // The field itself: the archive's only field, or the one that is not a factor of its layer.
+  const { header: h, summary } = archive.field(archive.header.fields.find((f) => f.factorOf === undefined)?.name);
+  const layer = layerText(archive.header.fields, flags.layer);
   const ix = { summary };
   const size = archive.size;
   await archive.close();
@@ -207,7 +215,8 @@ async function reportArray(input: string, flags: PackFlags, grid: ArrayGrid, run
     `packed '${input}' (${(h.nd_shape ?? h.shape).join('x')} ${h.dtype}, field '${h.name}'${h.layout ? `, layout ${h.layout}` : ''}) -> '${flags.output}': ` +
       `${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; ` +
       `bound ${boundText(h)}: ${e.what} ${num(e.value)} (${e.fraction.toFixed(3)} E), ${other}; ${seconds(elapsed)}\n` +
-      packDetails(facts, choices, false),
+      packDetails(facts, choices, facts.fields.length > 1) +
+      layer,
   );
   out.result({ command: 'pack', input, output: flags.output, choices, seconds: elapsed / 1000, archive: facts });
 }
@@ -263,7 +272,7 @@ async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, ou
     const { archiveAttrs } = chosen;
     if (hdf5) archiveAttrs[KEY.format] = 'netcdf4';
     await writeOutputWith(flags.output, io, async (sink) => {
-      const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
+      const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1), layer: withLayer(flags.layer) });
       for (const f of fields) {
         const cells = f.slices * f.rows * f.cols;
         const bar = out.tileProgress(`packing '${printable(f.name)}'`, cells * (f.read.dtype === 'f32' ? 4 : 8));
@@ -292,6 +301,7 @@ async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, ou
           dims: f.read.dims,
           layout: f.layout,
           progressive: flags.progressive === true,
+          layer: flags.layer,
         }).finally(() => bar.stop());
       }
       builder.finish();
@@ -305,6 +315,8 @@ async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, ou
   let raw = 0;
   const lines: string[] = [];
   for (const [i, h] of archive.header.fields.entries()) {
+    // A layer's factor fields are not variables of the input (their bytes count in the archive's size).
+    if (h.factorOf !== undefined) continue;
     const ix = archive.field(h.name);
     // Bytes in: the values as the source stores them (a short variable counts 2 bytes a value, not the 8 of its physical float64s).
     const stored = h.attrs[KEY.storedType];
@@ -321,7 +333,7 @@ async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, ou
   out.text(`packed ${fields.length} variable${fields.length === 1 ? '' : 's'} of '${input}' -> '${flags.output}': ${raw} bytes in, ${size} bytes out, ratio ${ratio(raw, size)}; bound ${flags.bound.mode}:${flags.bound.value}; ${seconds(elapsed)}\n`);
   for (const l of lines) out.text(l);
   if (carried.length > 0) out.text(`  carried losslessly (not packed as fields): ${carried.map(printable).join(', ')}\n`);
-  out.text(packDetails(facts, choices, fields.length > 1));
+  out.text(packDetails(facts, choices, facts.fields.length > 1) + layerText(archive.header.fields, flags.layer));
   out.result({ command: 'pack', input, output: flags.output, choices, seconds: elapsed / 1000, archive: facts });
 }
 

@@ -22,7 +22,8 @@ import { RangeWatch, suspectMessage, type Suspect } from './fill-guard.js';
 import { checkLayout, inputKind, openFieldBands } from './input.js';
 import type { Context } from './context.js';
 import { Output } from './output.js';
-import { defaultThreads } from './options.js';
+import { defaultThreads, layerOption } from './options.js';
+import { partsLayer } from './pack-plan.js';
 import { arrayGrid, checkFill, defaultName, watchedBand } from './pack.js';
 import { boundOption, dtypeOption, endianOption, fillOption, nameOption, ndShapeOption, threadsOption, tileOption } from './options.js';
 import { parseMatrix } from './netcdf.js';
@@ -107,6 +108,7 @@ export function registerPlan(program: Command, ctx: Context): void {
     .option('--endian <ORDER>', 'raw input: byte order, little (default) or big', endianOption)
     .option('--matrix <AXES:NAME>', 'arrays of 3+ axes: flatten the leading axes into rows (as pack --matrix)', parseMatrix)
     .option('--progressive', 'lay tile factors out in rank groups (as pack --progressive)')
+    .option('--layer <auto|off|K>', 'runs in parts take no field layer: K is refused, auto packs without one (see pack --layer)', layerOption)
     .option('--run <ID>', 'name of the run, carried by every part (default: the field name and the first 12 hex digits of the plan hash)', runOption)
     .option('--threads <N>', 'threads for the first pass of rmse and psnr bounds (default: the number of cores)', threadsOption)
     .option('--force', 'overwrite PLAN if it exists')
@@ -117,6 +119,7 @@ export function registerPlan(program: Command, ctx: Context): void {
       await statInput(input);
       const kind = await inputKind(input);
       if (kind === 'netcdf' || kind === 'hdf5') throw new UsageError(`plan and pack --part cover .npy and raw input; '${input}' is NetCDF, whose variables a plan does not describe: pack it in one process`);
+      partsLayer(flags.layer, out);
       const layout = { shape: flags.shape, dtype: flags.dtype, endian: flags.endian };
       checkLayout(input, layout, undefined, kind);
       if (flags.merge !== undefined && (flags.part !== undefined || flags.base !== undefined)) throw new UsageError('--merge takes the pieces of a pass and makes no piece itself: drop --part and --base');

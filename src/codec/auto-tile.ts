@@ -7,7 +7,7 @@
 import type { FloatArray } from '../types.js';
 import { copyBlock } from '../geometry.js';
 import { candidatePlans, costPlans, firstPass, keepsTiles, l2Plan, type L2Plan } from './plan-l2.js';
-import { encodeField, encodeTile, fieldBasis, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
+import { encodeField, encodeTile, fieldBasis, termFor, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
 const SQUARE = [64, 128, 256];
@@ -103,14 +103,29 @@ const TRIAL_TILES = 8;
 export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices): TileTrial {
   const choice = new TrialChoice(spec);
   for (const [m, n, picked] of trialSamples(spec)) {
-    if (!choice.worthTrying(m, n)) continue;
-    if (!basis.pointwise) choice.add(m, n, tryMosaic(src, spec, m, n, picked, basis));
-    else {
-      const tiles = pickedTiles(src, spec, m, n, picked);
-      choice.add(m, n, tally(tiles.map((t) => t.index), tiles.map((t) => encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n), t.index))));
-    }
+    if (choice.worthTrying(m, n)) choice.add(m, n, sampleCost(src, spec, basis, m, n, picked));
   }
   return choice.best;
+}
+
+/**
+ * What the whole tiles `picked` (row-major numbers of the m x n grid's whole
+ * tiles) of a field cost, packed for real: under a pointwise bound each
+ * tile encoded with the field's basis, under an L2 bound the tiles side by
+ * side as one small field with its own plan (see {@link chooseTile}). The
+ * field layer's term of each tile is taken off as the encoding pass takes it.
+ */
+export function sampleCost(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[]): Tried {
+  if (!basis.pointwise) return tryMosaic(src, spec, m, n, picked, basis);
+  const tiles = pickedTiles(src, spec, m, n, picked);
+  return tally(tiles.map((t) => t.index), tiles.map((t) => encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n, t.term), t.index)));
+}
+
+/** `count` whole tiles of a field's m x n grid spread over it (see {@link spreadTiles}), or every whole tile when there are no more. */
+export function spreadSample(spec: FieldSpec, m: number, n: number, count: number): number[] {
+  const gr = Math.floor(spec.rows / m);
+  const gc = Math.floor(spec.cols / n);
+  return gr * gc <= count ? Array.from({ length: gr * gc }, (_, k) => k) : spreadTiles(gr, gc, count);
 }
 
 /**
@@ -138,12 +153,7 @@ export async function chooseTileAsync(src: BandSource, spec: FieldSpec, basis: F
  * allows fewer, at least 2), in row-major order.
  */
 function trialSamples(spec: FieldSpec): [number, number, number[]][] {
-  return tileCandidates(spec.rows, spec.cols).map(([m, n]) => {
-    const gr = Math.floor(spec.rows / m);
-    const gc = Math.floor(spec.cols / n);
-    const count = Math.min(TRIAL_TILES, Math.max(2, Math.floor(TRIAL_CELLS / (m * n))));
-    return [m, n, gr * gc <= count ? Array.from({ length: gr * gc }, (_, k) => k) : spreadTiles(gr, gc, count)];
-  });
+  return tileCandidates(spec.rows, spec.cols).map(([m, n]) => [m, n, spreadSample(spec, m, n, Math.min(TRIAL_TILES, Math.max(2, Math.floor(TRIAL_CELLS / (m * n)))))]);
 }
 
 /**
@@ -204,7 +214,7 @@ export interface TileTrial {
 }
 
 /** What one candidate's sample cost. */
-interface Tried {
+export interface Tried {
   bytes: number;
   valid: number;
   done: Map<number, TileOutcome>;
@@ -228,21 +238,24 @@ function eachPicked(src: BandSource, spec: FieldSpec, m: number, n: number, pick
   }
 }
 
-/** A sampled tile: its field tile index and values (a copy of its own). */
+/** A sampled tile: its field tile index and values (a copy of its own), and the field layer's term for it (null without a layer). */
 export interface PickedTile {
   index: number;
   tile: FloatArray;
   m: number;
   n: number;
+  term: Float64Array | null;
 }
 
 /** The picked tiles of an m x n grid, copied out of their bands. */
 function pickedTiles(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[]): PickedTile[] {
   const out: PickedTile[] = [];
+  // The candidate's own grid, for the layer's term of each tile.
+  const grid: FieldSpec = { ...spec, tileRows: m, tileCols: n };
   eachPicked(src, spec, m, n, picked, (_k, band, j0, index) => {
     const tile = spec.dtype === 'f32' ? new Float32Array(m * n) : new Float64Array(m * n);
     copyBlock(band, spec.cols, 0, j0, m, n, tile, n, 0, 0);
-    out.push({ index, tile, m, n });
+    out.push({ index, tile, m, n, term: termFor(grid, index, m, n) });
   });
   return out;
 }
@@ -271,14 +284,18 @@ function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tr
 function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices): Tried {
   const width = picked.length * n;
   const mosaic = spec.dtype === 'f32' ? new Float32Array(m * width) : new Float64Array(m * width);
-  // The field's tile index of each tile of the small field.
+  // The field's tile index of each tile of the small field, and where its cells lie in the field (for the layer's term).
   const fieldIndex: number[] = [];
+  const origins = new Int32Array(2 * picked.length);
+  const gc = Math.ceil(spec.cols / n);
   eachPicked(src, spec, m, n, picked, (k, band, j0, index) => {
     copyBlock(band, spec.cols, 0, j0, m, n, mosaic, width, 0, k * n);
     fieldIndex[k] = index;
+    origins[2 * k] = Math.floor(index / gc) * m;
+    origins[2 * k + 1] = j0;
   });
   const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
-  const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false }; // the field's own pass guards
+  const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false, ...(spec.layer ? { layerOrigins: origins } : {}) }; // the field's own pass guards
   const basis = fieldBasis(trialSrc, trial);
   const tiles = picked.length;
   if (!basis.pointwise && keepsTiles(trial)) {

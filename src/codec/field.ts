@@ -13,9 +13,9 @@ import { planL2, type L2Plan } from './plan-l2.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
 import type { FloatArray } from '../types.js';
 import { encodePointwise, exactPayload } from './tile-encode.js';
-import { forEachTile, validRange, type BandSource, type FieldSpec } from './tiles.js';
+import { forEachTile, termFor, validRange, type BandSource, type FieldSpec } from './tiles.js';
 
-export { forEachTile, tilesOf, memoryBands, validRange, type BandSource, type FieldSpec } from './tiles.js';
+export { forEachTile, tilesOf, memoryBands, termFor, validRange, type BandSource, type FieldSpec } from './tiles.js';
 export { measure, measurePrefixes, type TileStats } from './measure.js';
 
 /** A finished tile. */
@@ -108,9 +108,13 @@ export interface FieldPrior {
   spectra?: ReadonlyMap<number, Float64Array>;
 }
 
-/** A tile as the encoder takes it: prepared in the planning pass (kept), or prepared now. */
-export function tileToEncode(c: FieldChoices, index: number, tile: FloatArray, m: number, n: number): PreparedTile {
-  return c.plan?.kept(index) ?? prepareTile(tile, m, n, c.dtype, c.fill, c.tol, c.progressive ? 'doubling' : 'one');
+/**
+ * A tile as the encoder takes it: prepared in the planning pass (kept), or
+ * prepared now, coding its values minus the field layer's `term` when the
+ * field has a layer (see termFor in tiles.ts).
+ */
+export function tileToEncode(c: FieldChoices, index: number, tile: FloatArray, m: number, n: number, term: Float64Array | null = null): PreparedTile {
+  return c.plan?.kept(index) ?? prepareTile(tile, m, n, c.dtype, c.fill, c.tol, c.progressive ? 'doubling' : 'one', term);
 }
 
 /** One encoded tile with what it adds to the field's summary. */
@@ -168,7 +172,7 @@ export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: numb
   const c = fieldChoices(src, spec, prior?.basis, prior?.plan, prior?.spectra);
   const summary = new FieldSummary(c);
   forEachTile(src, spec, (index, tile, m, n) => {
-    const o = prior?.done.get(index) ?? encodeTile(c, tileToEncode(c, index, tile, m, n), index);
+    const o = prior?.done.get(index) ?? encodeTile(c, tileToEncode(c, index, tile, m, n, termFor(spec, index, m, n)), index);
     summary.add(o);
     emit(index, { payload: o.payload, stats: o.stats });
   });

@@ -8,12 +8,12 @@
  */
 import { measure } from './measure.js';
 import { cutBlock } from '../geometry.js';
-import { forEachTile, tileGrid, type BandSource, type FieldSpec } from './tiles.js';
+import { forEachTile, termFor, tileGrid, type BandSource, type FieldSpec } from './tiles.js';
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
 import { truncatedSvd } from '../linalg/truncated.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
-import { payloadHead } from './payload.js';
+import { Method, payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
 import { encodeL2, encodePointwise, exactPayload, pointwiseFactors } from './tile-encode.js';
 import { rankZeroForMse, residualForMse } from './rdo.js';
@@ -87,7 +87,8 @@ export function keepsTiles(spec: Pick<FieldSpec, 'rows' | 'cols' | 'slices'>): b
 /**
  * The first pass over one tile: prepare it and take its whole spectrum.
  * `known`: the singular values the tile trial took of these same values
- * (see {@link tileSpectrum}); `seen` is handed the singular values taken.
+ * (see {@link tileSpectrum}); `seen` is handed the singular values taken;
+ * `term`: the field layer's term for the tile (see termFor in tiles.ts), or null.
  */
 export function firstPassTile(
   tile: FloatArray,
@@ -99,8 +100,9 @@ export function firstPassTile(
   keep: boolean,
   known?: Float64Array,
   seen?: (s: Float64Array) => void,
+  term: Float64Array | null = null,
 ): FirstPassTile {
-  const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one');
+  const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one', term);
   const s = tileSpectrum(t, tol, known);
   seen?.(s);
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
@@ -211,7 +213,7 @@ export function firstPass(
   const spectra = new Spectra(tileCount(spec));
   const kept: PreparedTile[] = [];
   forEachTile(src, spec, (index, tile, m, n) => {
-    const f = firstPassTile(tile, m, n, spec, fill, tol, keep, known?.get(index), seen && ((s) => seen(index, s)));
+    const f = firstPassTile(tile, m, n, spec, fill, tol, keep, known?.get(index), seen && ((s) => seen(index, s)), termFor(spec, index, m, n));
     spectra.add(f);
     if (keep) kept.push(f.tile!);
   });
@@ -380,6 +382,11 @@ export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index:
     encode(t, index) {
       const allotment = data.allot[index];
       let payload = encodeWith(data, t, index);
+      // Under a field layer a tile's own spectrum is what the layer left, often near the rounding
+      // of its factors: a rank plan's factors may then not come out, and the tile falls back to exact
+      // storage (three tiles of 192 took 48 kB of a 74 kB archive, bench/'s basin-stack at
+      // psnr:60 with a rank-8 layer and 64 x 64 tiles). The residual coder at the tile's allotment instead.
+      if (t.layer && data.kind === 'rank' && payload[0] === Method.Exact) payload = encodePointwise(t, Math.sqrt((3 * allotment) / Math.max(1, t.valid)) * tol * 0.97);
       let res = measure(payload, t, fill);
       // Enforce the tile's allotment: tighter residual coding, then exact storage.
       for (const f of [0.9, 0.7, 0.5]) {
@@ -428,7 +435,7 @@ export function readTiles(src: BandSource, spec: FieldSpec, fill: Uint32Array | 
     const n = Math.min(spec.tileCols, spec.cols - j0);
     const tile = cutBlock(band as FloatArray, spec.cols, 0, j0, m, n);
     check?.(index, tile);
-    out.push(prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one'));
+    out.push(prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one', termFor(spec, index, m, n)));
   }
   return out;
 }

@@ -4,6 +4,7 @@
  */
 import { cutBlock, tileGrid, tileIndex, type SpecGrid } from '../geometry.js';
 import type { Bound, Dtype, FloatArray } from '../types.js';
+import { layerTerm, tileLayerTerm, type FieldLayer } from './layer.js';
 import { fillWords } from './mask.js';
 
 // The tile grid is geometry.ts's; plan-l2.ts and parts/plan.ts take it from here.
@@ -31,6 +32,36 @@ export interface FieldSpec extends SpecGrid {
    * [s * rows, (s + 1) * rows) are slice s. Tiles never cross slices.
    */
   slices?: number;
+  /**
+   * The field layer (see layer.ts and layer-encode.ts), as the decoder will
+   * decode its factors: every tile codes its values minus the layer's term.
+   */
+  layer?: FieldLayer;
+  /**
+   * Where each tile's cells lie in the stacked field the layer covers, as
+   * [row, column] pairs by tile index, when the tiles are not the field's
+   * own grid (the tile trial's small field of sampled tiles); by default a
+   * tile's place in this grid.
+   */
+  layerOrigins?: Int32Array;
+}
+
+/** The layer's term for tile `index` (m x n) of a field, or null when the field has no layer. */
+export function termFor(spec: FieldSpec, index: number, m: number, n: number): Float64Array | null {
+  const layer = spec.layer;
+  if (!layer) return null;
+  if (spec.layerOrigins) return layerTerm(layer.rank, layer.left, 0, layer.right, 0, spec.layerOrigins[2 * index], spec.layerOrigins[2 * index + 1], m, n);
+  return tileLayerTerm(layer, spec, index, m, n);
+}
+
+/**
+ * Whether a value of the field is missing (NaN, an infinity, or the fill
+ * value in the field's dtype): the cells the bound and the value range leave out.
+ */
+export function missingTest(spec: Pick<FieldSpec, 'fill' | 'dtype'>): (v: number) => boolean {
+  const fw = fillWords(spec.fill, spec.dtype);
+  const f = fw === null ? NaN : spec.dtype === 'f32' ? Math.fround(spec.fill as number) : (spec.fill as number);
+  return (v) => !Number.isFinite(v) || (v === f && Object.is(v, f));
 }
 
 /**

@@ -156,7 +156,7 @@ export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): 
  * Fills `out` with standard normal deviates: mulberry32 uniforms seeded with
  * `seed`, turned into normals by the Box-Muller transform.
  */
-function gaussian(out: Float64Array, seed: number): void {
+export function gaussian(out: Float64Array, seed: number = SEED): void {
   let st = seed >>> 0;
   const len = out.length;
   for (let i = 0; i < len; i += 2) {
@@ -183,7 +183,7 @@ function gaussian(out: Float64Array, seed: number): void {
  * rows x l): every entry of y is a contiguous dot product. Blocks of four
  * columns of g by two rows of w, so each load feeds several products.
  */
-function mulA(w: Float64Array, rows: number, cols: number, g: Float64Array, l: number, y: Float64Array): void {
+export function mulA(w: Float64Array, rows: number, cols: number, g: Float64Array, l: number, y: Float64Array): void {
   let c = 0;
   for (; c + 3 < l; c += 4) {
     const g0 = c * cols;
@@ -272,7 +272,7 @@ function mulA(w: Float64Array, rows: number, cols: number, g: Float64Array, l: n
  * is already zero below the diagonal is the identity). `tau` is scratch of
  * length >= cols.
  */
-function orthonormalize(y: Float64Array, rows: number, cols: number, q: Float64Array, tau: Float64Array): void {
+export function orthonormalize(y: Float64Array, rows: number, cols: number, q: Float64Array, tau: Float64Array): void {
   for (let i = 0; i < cols; i++) {
     tau[i] = householder(y, rows, i);
     if (tau[i] !== 0) reflect(y, rows, i, tau[i], y, i + 1, cols);

@@ -11,7 +11,7 @@
  * are in flight (read and not yet written), which bounds the memory.
  */
 import { tileGrid } from '../geometry.js';
-import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
+import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, termFor, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
 import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
 import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
@@ -38,6 +38,14 @@ interface TileTask {
   prepared?: PreparedTile;
   /** Prepare `tile` as the L2 first pass does (see encodeWithChoices). */
   full?: boolean;
+  /** The field layer's term for the tile (see termFor in tiles.ts), computed in the calling thread; none without a layer. */
+  term?: Float64Array | null;
+}
+
+/** A task's transfer list, with the layer's term (a buffer of its own) handed over too. */
+function withTerm(transfer: ArrayBuffer[], term: Float64Array | null): ArrayBuffer[] {
+  if (term) transfer.push(term.buffer as ArrayBuffer);
+  return transfer;
 }
 
 /** Field choices by key, in each worker. */
@@ -55,14 +63,15 @@ export const encodeTasks = {
     const c = fields.get(body.key);
     // Internal assertion: the set-up message always precedes a field's tiles in the port.
     if (c === undefined) throw new Error(`tile ${body.index} of an unknown field (key ${body.key})`);
-    const t = body.prepared ?? (body.full ? firstPassTile(body.tile!, body.m, body.n, c, c.fill, c.tol, true).tile! : tileToEncode(c, body.index, body.tile!, body.m, body.n));
+    const term = body.term ?? null;
+    const t = body.prepared ?? (body.full ? firstPassTile(body.tile!, body.m, body.n, c, c.fill, c.tol, true, undefined, undefined, term).tile! : tileToEncode(c, body.index, body.tile!, body.m, body.n, term));
     const o = encodeTile(c, t, body.index);
     const own = o.payload.byteOffset === 0 && o.payload.byteLength === o.payload.buffer.byteLength;
     const payload = own ? o.payload : o.payload.slice();
     return { result: { ...o, payload }, transfer: [payload.buffer as ArrayBuffer] };
   },
-  'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean; known?: Float64Array }) {
-    const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep, body.known);
+  'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean; known?: Float64Array; term?: Float64Array | null }) {
+    const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep, body.known, undefined, body.term ?? null);
     return { result: f, transfer: [f.sv2.buffer as ArrayBuffer] };
   },
   'encode-forget'(body: { key: number }) {
@@ -163,8 +172,9 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
     const known = done?.get(index);
     if (known) return Promise.resolve(known);
     const prepared = c.plan?.kept(index);
-    const task: TileTask = prepared ? { key, index, m, n, prepared } : { key, index, m, n, tile, full };
-    return pool.run<TileOutcome>('encode-tile', task, prepared ? [] : [tile.buffer as ArrayBuffer]);
+    if (prepared) return pool.run<TileOutcome>('encode-tile', { key, index, m, n, prepared } satisfies TileTask, []);
+    const term = termFor(spec, index, m, n);
+    return pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, full, ...(term ? { term } : {}) } satisfies TileTask, withTerm([tile.buffer as ArrayBuffer], term));
   };
   const finished = (o: TileOutcome, index: number) => {
     // The tally crossed threads as plain fields; give it its class back.
@@ -190,7 +200,7 @@ export async function encodeTilesOn(pool: WorkerPool, c: FieldChoices, tiles: Pi
   const { plan: _, ...rest } = c;
   await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: null } satisfies WireChoices });
   try {
-    const runs = tiles.map(({ index, tile, m, n }) => pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile } satisfies TileTask, [tile.buffer as ArrayBuffer]));
+    const runs = tiles.map(({ index, tile, m, n, term }) => pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, ...(term ? { term } : {}) } satisfies TileTask, withTerm([tile.buffer as ArrayBuffer], term)));
     // The tallies crossed threads as plain fields; give them their class back.
     return (await Promise.all(runs)).map((o) => ({ ...o, tally: Object.assign(new ErrorTally(), o.tally) }));
   } finally {
@@ -212,7 +222,8 @@ export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldC
   const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
     const values = known?.get(index);
-    return pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n, ...(values ? { known: values } : {}) }, [tile.buffer as ArrayBuffer]);
+    const term = termFor(spec, index, m, n);
+    return pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n, ...(values ? { known: values } : {}), ...(term ? { term } : {}) }, withTerm([tile.buffer as ArrayBuffer], term));
   };
   const take = (f: FirstPassTile) => {
     first.spectra.add(f);

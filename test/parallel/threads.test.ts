@@ -77,6 +77,20 @@ describe('packAsync: the same archive for every thread count', () => {
     }, 120_000);
   }
 
+  // The field layer is chosen and computed in the calling thread; each tile's term travels to its worker.
+  it.each([
+    ['rel:1e-3', 2],
+    ['psnr:60', 3],
+  ] as const)('a field layer (%s, layer %s), fill cells and NaN, and its L2 first pass on the workers', async (bound, layer) => {
+    const { values, shape, fill } = volcanoWithFill();
+    const o = { bound, tile: 16, fill, layer };
+    const sync = lib.pack(values, shape, o);
+    // The layer is there, with its factor fields.
+    const h = (await lib.open(sync)).header.fields;
+    expect(h.some((f) => f.layer !== undefined)).toBe(true);
+    for (const threads of [2, 3]) expect(same(await lib.packAsync(values, shape, { ...o, threads }), sync), `threads ${threads}`).toBe(true);
+  }, 120_000);
+
   it('auto tile and a field of slices through ArchiveBuilder.addAsync', async () => {
     const g = volcano();
     const one = Float32Array.from(g.values);
