@@ -326,7 +326,7 @@ export class ArchiveBuilder {
     const workers = spec.autoTile ? (o.pool === undefined && fieldCells(spec) <= WHOLE_CELLS ? 1 : threads) : Math.min(threads, tileCount(spec));
     if (workers === 1) return this.encode(src, spec, o, page, layer);
     // The calling thread encodes tiles too, as one of the threads.
-    const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result });
+    const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result, preload: 'encode' });
     try {
       this.checkField(spec);
       let prior: FieldPrior | undefined;

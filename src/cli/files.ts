@@ -388,6 +388,19 @@ export async function writeOutputWith(out: string, o: OutputOptions, produce: (s
       }
     },
     later: (bytes) => enqueue(() => sink.writeAsync(bytes)),
+    // A required flag set once a field needs it (the prologue's bytes): after every write queued before it.
+    patch(offset, bytes) {
+      const copy = bytes.slice();
+      if (queued > 0) {
+        void enqueue(() => sink.patch(offset, copy));
+        return;
+      }
+      try {
+        sink.patch(offset, copy);
+      } catch (e) {
+        throw fileError(e, 'write', out);
+      }
+    },
   };
   try {
     try {

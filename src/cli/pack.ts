@@ -83,10 +83,6 @@ Example:
   rankfield pack sst.npy -o sst.rfz --bound abs:0.01 --fill -999
   rankfield pack run.nc -o run.rfz --bound rel:1e-3 --matrix time:space`;
 
-/** Whether required flag bit 1 is written in the prologue (the output file cannot be patched): when a layer is asked for, even if 'auto' keeps none. */
-function withLayer(layer: 'auto' | 'off' | number | undefined): boolean {
-  return layer !== undefined && layer !== 'off';
-}
 
 /** Default field name: the input file name without its extension. */
 export function defaultName(input: string): string {
@@ -173,7 +169,7 @@ async function packArray(input: string, kind: InputKind, flags: PackFlags & { bo
     const band = watchedBand(field, grid, input, fill, watch, (n) => (fills += n));
     threads = defaultThreads(flags.threads, field.shape[0] * field.shape[1], flags.tile === undefined || flags.tile === 'auto');
     await writeOutputWith(flags.output, io, async (sink) => {
-      const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1, layer: withLayer(flags.layer) });
+      const builder = new ArchiveBuilder(sink, {}, { slices: grid.slices > 1 });
       const nd = grid.layout === undefined ? {} : { slices: grid.slices, ndShape: field.ndShape, layout: grid.layout };
       const bar = out.tileProgress(`packing '${printable(name)}'`, field.shape[0] * field.shape[1] * (field.dtype === 'f32' ? 4 : 8));
       try {
@@ -272,7 +268,7 @@ async function packNetcdf(input: string, flags: PackFlags & { bound: Bound }, ou
     const { archiveAttrs } = chosen;
     if (hdf5) archiveAttrs[KEY.format] = 'netcdf4';
     await writeOutputWith(flags.output, io, async (sink) => {
-      const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1), layer: withLayer(flags.layer) });
+      const builder = new ArchiveBuilder(sink, archiveAttrs, { slices: fields.some((f) => f.slices > 1) });
       for (const f of fields) {
         const cells = f.slices * f.rows * f.cols;
         const bar = out.tileProgress(`packing '${printable(f.name)}'`, cells * (f.read.dtype === 'f32' ? 4 : 8));

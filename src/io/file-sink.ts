@@ -75,6 +75,21 @@ export class FileSink implements Sink {
     });
   }
 
+  /**
+   * Overwrite bytes handed over before, at `offset` (the archive writer sets
+   * a required flag in the prologue this way once it knows a field needs
+   * it): the part still buffered is changed in the buffer, the part already
+   * written by a positional write, which leaves the file position alone.
+   */
+  patch(offset: number, bytes: Uint8Array): void {
+    const fd = this.handle();
+    const flushed = this.bytesWritten - this.used;
+    if (!(offset >= 0 && offset + bytes.length <= this.bytesWritten)) throw new Error(`${this.path}: patch of bytes ${offset}..${offset + bytes.length} outside the ${this.bytesWritten} written`);
+    const head = Math.max(0, Math.min(bytes.length, flushed - offset));
+    for (let at = 0; at < head; ) at += writeSync(fd, bytes, at, head - at, offset + at);
+    if (head < bytes.length) this.buffer.set(bytes.subarray(head), offset + head - flushed);
+  }
+
   /** Write out what is buffered. */
   flush(): void {
     if (this.used > 0) {

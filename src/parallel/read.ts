@@ -217,7 +217,7 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
   const local = (kind: string, body: unknown) => (kind === 'read-band' ? decodeBand(archive, (body as { req: BandRequest }).req) : null);
   // Bands are few and long: each goes to whichever thread is free first (depth 1), so that a worker does not
   // take three while this thread decodes its one.
-  const pool = workers > 1 ? (kept ?? new WorkerPool(workers, { local, depth: 1 })) : null;
+  const pool = workers > 1 ? (kept ?? new WorkerPool(workers, { local, depth: 1, preload: 'read-' })) : null;
   const key = nextKey++;
   const decode = (req: BandRequest): Promise<BandResult> =>
     pool ? pool.run<BandResult>('read-band', { key, location: shared, size: archive.size, req }) : decodeBand(archive, req);

@@ -45,3 +45,24 @@ describe('pack --layer', () => {
     expectCliError(await rfIn(['pack', 'volcano.npy', '-o', 'part.rfz', '--plan', 'p.json', '--part', '1/2', '--layer', '3'], dir), /--layer 3: runs packed in parts/);
   });
 });
+
+describe('pack --layer auto keeping no layer', () => {
+  it('writes the same bytes as --layer off: required flag bit 1 only once a layer is kept (the output file is patched, spec/FORMAT.md section 4)', async () => {
+    // One 61 x 87 tile: auto tries nothing, so the archive must be the one without a layer, flags included.
+    const auto = await rfIn(['pack', 'volcano.npy', '-o', 'auto.rfz', '--bound', 'abs:0.5', '--layer', 'auto'], dir);
+    expect(auto.code, auto.stderr).toBe(0);
+    const off = await rfIn(['pack', 'volcano.npy', '-o', 'off.rfz', '--bound', 'abs:0.5', '--layer', 'off'], dir);
+    expect(off.code, off.stderr).toBe(0);
+    const a = readFileSync(join(dir, 'auto.rfz'));
+    expect(a.equals(readFileSync(join(dir, 'off.rfz')))).toBe(true);
+    expect(a.readUInt16LE(10) & 2).toBe(0);
+  });
+
+  it('a kept layer sets bit 1 in the prologue and the tail of the written file', async () => {
+    const r = await rfIn(['pack', 'volcano.npy', '-o', 'k.rfz', '--bound', 'abs:0.5', '--tile', '16', '--layer', '2'], dir);
+    expect(r.code, r.stderr).toBe(0);
+    const b = readFileSync(join(dir, 'k.rfz'));
+    expect(b.readUInt16LE(10) & 2).toBe(2);
+    expect(b.readUInt16LE(b.length - 24 + 10) & 2).toBe(2);
+  });
+});

@@ -1,9 +1,9 @@
 /**
- * Reading a layered field with the core's own decoding (decodeTile with the
- * layer's term), for the write side's tests while the library's reader does
- * not add the term yet: the factor fields are read as ordinary fields, each
- * tile of the layered field is decoded with its term and checked against
- * the value CRC-32 the encoder recorded.
+ * Reading a layered field two ways that must agree bit for bit: the core's
+ * own decoding (decodeTile with the layer's term of spec/FORMAT.md 6.2.2,
+ * the factor fields read as ordinary fields, each tile checked against the
+ * value CRC-32 the encoder recorded), and the library's reader (open() and
+ * read(), whole and by windows of a few tiles); `check` must pass too.
  */
 import { open } from '../../src/archive.js';
 import { fillWords } from '../../src/codec/mask.js';
@@ -37,6 +37,15 @@ export async function readLayered(bytes: Uint8Array, name: string): Promise<{ va
       const { s, i0, j0 } = tileOrigin(h, t);
       copyBlock(v, n, 0, 0, m, n, out, cols, s * h.shape[0] + i0, j0);
     }
+    // The library's reader adds the term itself: the whole field and windows of it give the same bits.
+    const whole = (await a.read(name)).values;
+    if (whole.length !== out.length || !whole.every((v, c) => Object.is(v, out[c]))) throw new Error(`${name}: the library's read differs from the core's decode`);
+    const r1 = Math.min(rows, h.tile[0] + 3);
+    const c0 = Math.min(cols - 1, Math.floor(h.tile[1] / 2));
+    const win = (await a.read(name, { rows: [1 % rows, r1], cols: [c0, cols] })).values;
+    for (let i = 1 % rows, k = 0; i < r1; i++) for (let j = c0; j < cols; j++, k++) if (!Object.is(win[k], out[i * cols + j])) throw new Error(`${name}: a window differs from the whole read at row ${i}, column ${j}`);
+    const report = await a.check();
+    if (!report.ok) throw new Error(`${name}: check failed: ${JSON.stringify(report.failures[0])}`);
     return { values: out, rank: layer?.rank ?? 0 };
   } finally {
     await a.close();
