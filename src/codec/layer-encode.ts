@@ -157,24 +157,45 @@ function rms(values: Float64Array): number {
 }
 
 /**
- * The factor fields of the layer of rank `rank` (at most `f.rank`), each
- * under an abs bound `c x tol / (rms x sqrt(rank))` where rms is the other
- * factor's RMS: an error e in every left entry moves a cell's term by about
- * e x rms x sqrt(rank) (from memory, the sum of `rank` products), so `c`
- * is the share of the field's tolerance the factors' rounding may spend
- * (within a few times; the tiles code what is left either way).
+ * Values a factor tile holds at least: its fixed costs (payload head, index
+ * entry: some 20 to 40 bytes) then weigh little beside its codes, and a
+ * window reads at most about this many values of each factor beyond the rows
+ * it needs (common practice, no source, for the figure). On bench/'s
+ * basin-stack (128 x 6144, 64 x 64 tiles, psnr:60, rank 4) factor tiles of
+ * 64 rows made a 24674-byte archive, of 256 rows 21630, of 1024 rows 20831.
+ */
+const FACTOR_TILE_VALUES = 1024;
+
+/** Rows of a factor tile: a power-of-two number of the field's tile rows (or columns), so that factor tiles stay aligned with the field's, holding at least {@link FACTOR_TILE_VALUES} values. */
+export function factorTileRows(side: number, rank: number, rows: number): number {
+  let g = 1;
+  while (g * side * rank < FACTOR_TILE_VALUES && g * side < rows) g *= 2;
+  return Math.min(g * side, rows);
+}
+
+/**
+ * The factor fields of the layer of rank `rank` (at most `f.rank`). An error
+ * e in every left entry moves a cell's term by about e x rms x sqrt(rank),
+ * rms the right factor's RMS (from memory, the sum of `rank` products), so
+ * `c` is the share of the field's tolerance the factors' rounding may spend
+ * (within a few times; the tiles code what is left either way). That share is
+ * split between the factors in proportion to the square root of their row
+ * counts, each factor's abs bound `c x tol x sqrt(2 n / (nL + nR)) / (rms x
+ * sqrt(rank))`: with bits about n log2(1 / step) per factor and the two
+ * errors adding in quadrature, a Lagrange multiplier gives step^2 in
+ * proportion to n (from memory); equal row counts give each factor `c x tol`.
  */
 export function codeLayer(f: LayerFactors, rank: number, spec: FieldSpec, tol: number, c: number, names: [string, string]): CodedLayer {
   const left = firstColumns(f.left, f.rank, rank);
   const right = firstColumns(f.right, f.rank, rank);
-  const factorTol = (other: Float64Array) => {
-    const e = (c * tol) / (rms(other) * Math.sqrt(rank));
+  const rows = (spec.slices ?? 1) * spec.rows;
+  const factorTol = (other: Float64Array, n: number) => {
+    const e = (c * tol * Math.sqrt((2 * n) / (rows + spec.cols))) / (rms(other) * Math.sqrt(rank));
     // A zero factor, or a zero tolerance, leaves no sensible share: the smallest or largest abs bound the format takes.
     return Math.min(Number.MAX_VALUE, Math.max(Number.MIN_VALUE, Number.isNaN(e) ? Number.MIN_VALUE : e));
   };
-  const rows = (spec.slices ?? 1) * spec.rows;
-  const l = packFactor(left, rows, rank, spec.tileRows, factorTol(right), names[0]);
-  const r = packFactor(right, spec.cols, rank, spec.tileCols, factorTol(left), names[1]);
+  const l = packFactor(left, rows, rank, factorTileRows(spec.tileRows, rank, rows), factorTol(right, rows), names[0]);
+  const r = packFactor(right, spec.cols, rank, factorTileRows(spec.tileCols, rank, spec.cols), factorTol(left, spec.cols), names[1]);
   return { left: l, right: r, layer: { rank, left: l.decoded, right: r.decoded }, bytes: l.bytes + r.bytes };
 }
 

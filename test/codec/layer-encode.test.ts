@@ -12,6 +12,7 @@
  * layer's term (test/codec/layered.ts), tile values checked against the
  * CRC-32 the encoder recorded.
  */
+import { factorTileRows } from '../../src/codec/layer-encode.js';
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { Matrix, SVD } from 'ml-matrix';
@@ -68,9 +69,9 @@ describe('layer round trips on annual-precip (168 x 360, 32 x 32 tiles)', () => 
     await a.close();
     expect(fields.map((f) => f.name)).toEqual(['field.layer-rows', 'field.layer-cols', 'field']);
     expect(fields[2].layer).toEqual({ rank: 3, left: 0, right: 1 });
-    // The factor fields: f64, [rows, rank] and [cols, rank], tiled along the field's tile rows and tile columns.
-    expect(fields[0]).toMatchObject({ dtype: 'f64', shape: [168, 3], tile: [32, 3], fill: null });
-    expect(fields[1]).toMatchObject({ dtype: 'f64', shape: [360, 3], tile: [32, 3], fill: null });
+    // The factor fields: f64, [rows, rank] and [cols, rank], each one tile here (at least 1024 values a factor tile, see factorTileRows).
+    expect(fields[0]).toMatchObject({ dtype: 'f64', shape: [168, 3], tile: [168, 3], fill: null });
+    expect(fields[1]).toMatchObject({ dtype: 'f64', shape: [360, 3], tile: [360, 3], fill: null });
     expect(requiredFlags(bytes) & 0x2).toBe(0x2);
     const { values, rank } = await readLayered(bytes, 'field');
     expect(rank).toBe(3);
@@ -90,16 +91,19 @@ describe('layer round trips on annual-precip (168 x 360, 32 x 32 tiles)', () => 
     expect(20 * Math.log10((hi - lo) / errors((await readLayered(bytes, 'field')).values, g.values).rmse)).toBeGreaterThanOrEqual(45);
   });
 
-  it("a window's factor rows are whole tiles of the factor fields: tile row t of the field is factor tile t", async () => {
-    const bytes = pack(g.values, g.shape, { bound: 'rel:1e-3', tile: 32, layer: 2 });
-    const a = await open(bytes);
-    const entries = [];
-    for (const t of [0, 1, 5]) entries.push(await a.tileEntry('field.layer-rows', t));
-    const cols = await a.tileEntry('field.layer-cols', 11);
+  it("a factor tile is a power-of-two number of the field's tile rows (or columns), the fewest that hold 1024 values, or the whole factor", async () => {
+    // The rule of spec/FORMAT.md section 19 (the figure is common practice, no source), worked by hand.
+    expect(factorTileRows(64, 4, 6144)).toBe(256);
+    expect(factorTileRows(64, 1, 6144)).toBe(1024);
+    expect(factorTileRows(16, 2, 10000)).toBe(512);
+    expect(factorTileRows(32, 3, 168)).toBe(168);
+    expect(factorTileRows(2048, 1, 6144)).toBe(2048);
+    // In an archive the factor fields are tiled so: annual-precip (168 x 360) in 4 x 4 tiles, rank 1: each factor whole.
+    const a = await open(pack(g.values, g.shape, { bound: 'rel:1e-3', tile: 4, layer: 1 }));
+    expect(a.header.fields[0].tile).toEqual([factorTileRows(4, 1, 168), 1]);
+    expect(a.header.fields[1].tile).toEqual([factorTileRows(4, 1, 360), 1]);
+    expect(a.header.fields.map((f) => f.tile[0])).toEqual([168, 360, 4]);
     await a.close();
-    // 168 rows in 32-row tiles: 6 factor tiles, the last of 8 rows; 360 columns: 12, the last of 8.
-    expect(entries.map((e) => e.valid)).toEqual([64, 64, 16]);
-    expect(cols.valid).toBe(16);
   });
 });
 
