@@ -324,4 +324,4 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
  * errors (8); measured 19.3 to 21.6 bytes a tile with 64 x 64 tiles on the
  * bench fields at rel:1e-3.
  */
-const TILE_INDEX_BYTES = 20;
+export const TILE_INDEX_BYTES = 20;

@@ -11,7 +11,7 @@ import { bandTruncatedSvd, type BandMatrix } from '../linalg/band-svd.js';
 import { exponentOf } from '../linalg/pow2.js';
 import { tileCount } from '../geometry.js';
 import type { FloatArray } from '../types.js';
-import { sampleCost, spreadSample } from './auto-tile.js';
+import { sampleCost, spreadSample, TILE_INDEX_BYTES } from './auto-tile.js';
 import { encodeField, memoryBands, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec } from './field.js';
 import type { FieldLayer } from './layer.js';
 import { fieldStep } from './payload.js';
@@ -124,9 +124,6 @@ export interface CodedLayer {
   /** Both factors' bytes. */
   bytes: number;
 }
-
-/** About what one tile adds to the index (auto-tile.ts counts the same). */
-const TILE_INDEX_BYTES = 20;
 
 /**
  * Pack one factor (rows x rank) as an f64 field under `abs:tol`, in tiles
