@@ -117,20 +117,45 @@ const BLEND_ERR_CAP = 8191;
  * all exact integers (every sum stays below 2^53).
  */
 function blendWalk(q: Int32Array, m: number, n: number, settle: ((c: number, p: number) => number) | null, limit = 0): boolean {
-  const cells = m * n;
-  // Errors per part, interleaved per cell: err[5 c + k].
-  const err = new Int32Array(BLEND_PARTS * cells);
   const weight = blendWeights();
+  // Errors on the first row and column are 0. An interior cell's activity for part k is its left
+  // error (carried in a local, eK) plus `above[5 j + k]`, the sum of the row above's errors at
+  // j - 1, j and j + 1 (j counted twice in the last column, where up-right is up); the walk writes
+  // those sums for the next row into `below` as each cell's errors become known, so a cell loads
+  // five sums instead of twenty errors, and two rows of sums are all it keeps.
+  let above = new Int32Array(BLEND_PARTS * n);
+  let below = new Int32Array(BLEND_PARTS * n);
   for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      const c = i * n + j;
-      if (i === 0 || j === 0) {
-        const p = i === 0 ? (j === 0 ? 0 : q[c - 1]) : q[c - n];
+    const row = i * n;
+    {
+      // The first cell of the row: the cell above (0 in the first row).
+      const p = i === 0 ? 0 : q[row - n];
+      const v = settle === null ? q[row] + p : settle(row, p);
+      if (settle === null ? v > limit || v < -limit : v !== v) return false;
+      q[row] = v;
+    }
+    if (i === 0) {
+      for (let c = 1; c < n; c++) {
+        const p = q[c - 1];
         const v = settle === null ? q[c] + p : settle(c, p);
         if (settle === null ? v > limit || v < -limit : v !== v) return false;
         q[c] = v;
-        continue;
       }
+      continue;
+    }
+    // The errors of the cell to the left (e) and two to the left (f), per part.
+    let e0 = 0;
+    let e1 = 0;
+    let e2 = 0;
+    let e3 = 0;
+    let e4 = 0;
+    let f0 = 0;
+    let f1 = 0;
+    let f2 = 0;
+    let f3 = 0;
+    let f4 = 0;
+    for (let j = 1; j < n; j++) {
+      const c = row + j;
       const w = q[c - 1];
       const nn = q[c - n];
       const last = j + 1 === n;
@@ -140,15 +165,12 @@ function blendWalk(q: Int32Array, m: number, n: number, settle: ((c: number, p: 
       const p2 = w + nn - q[c - n - 1];
       const p3 = nn + ne - (i >= 2 && !last ? q[c - 2 * n + 1] : ne);
       const p4 = 2 * w - (j >= 2 ? q[c - 2] : w);
-      const a = BLEND_PARTS * (c - 1);
-      const b = BLEND_PARTS * (c - n);
-      const d = b - BLEND_PARTS;
-      const e = last ? b : b + BLEND_PARTS;
-      const w0 = weight[err[a] + err[b] + err[d] + err[e]];
-      const w1 = weight[err[a + 1] + err[b + 1] + err[d + 1] + err[e + 1]];
-      const w2 = weight[err[a + 2] + err[b + 2] + err[d + 2] + err[e + 2]];
-      const w3 = weight[err[a + 3] + err[b + 3] + err[d + 3] + err[e + 3]];
-      const w4 = weight[err[a + 4] + err[b + 4] + err[d + 4] + err[e + 4]];
+      const u = BLEND_PARTS * j;
+      const w0 = weight[e0 + above[u]];
+      const w1 = weight[e1 + above[u + 1]];
+      const w2 = weight[e2 + above[u + 2]];
+      const w3 = weight[e3 + above[u + 3]];
+      const w4 = weight[e4 + above[u + 4]];
       const total = w0 + w1 + w2 + w3 + w4;
       const num = w0 * p0 + w1 * p1 + w2 * p2 + w3 * p3 + w4 * p4 + Math.floor(total / 2);
       let p = Math.floor(num / total);
@@ -158,13 +180,39 @@ function blendWalk(q: Int32Array, m: number, n: number, settle: ((c: number, p: 
       const v = settle === null ? q[c] + p : settle(c, p);
       if (settle === null ? v > limit || v < -limit : v !== v) return false;
       q[c] = v;
-      const at = BLEND_PARTS * c;
-      err[at] = capErr(v - p0);
-      err[at + 1] = capErr(v - p1);
-      err[at + 2] = capErr(v - p2);
-      err[at + 3] = capErr(v - p3);
-      err[at + 4] = capErr(v - p4);
+      const g0 = capErr(v - p0);
+      const g1 = capErr(v - p1);
+      const g2 = capErr(v - p2);
+      const g3 = capErr(v - p3);
+      const g4 = capErr(v - p4);
+      // The next row's sums at j - 1: errors at j - 2, j - 1 and j (column 0's are 0).
+      const t = u - BLEND_PARTS;
+      below[t] = f0 + e0 + g0;
+      below[t + 1] = f1 + e1 + g1;
+      below[t + 2] = f2 + e2 + g2;
+      below[t + 3] = f3 + e3 + g3;
+      below[t + 4] = f4 + e4 + g4;
+      f0 = e0;
+      f1 = e1;
+      f2 = e2;
+      f3 = e3;
+      f4 = e4;
+      e0 = g0;
+      e1 = g1;
+      e2 = g2;
+      e3 = g3;
+      e4 = g4;
     }
+    // The last column's sums: up-left, up and up-right = up.
+    const t = BLEND_PARTS * (n - 1);
+    below[t] = f0 + 2 * e0;
+    below[t + 1] = f1 + 2 * e1;
+    below[t + 2] = f2 + 2 * e2;
+    below[t + 3] = f3 + 2 * e3;
+    below[t + 4] = f4 + 2 * e4;
+    const swap = above;
+    above = below;
+    below = swap;
   }
   return true;
 }
