@@ -130,22 +130,43 @@ export function spreadSample(spec: FieldSpec, m: number, n: number, count: numbe
 
 /**
  * {@link chooseTile} with the sampled tiles of a pointwise trial encoded by
- * `encodeMany` (on worker threads: each candidate's tiles at once, the
- * candidates one after another, so a few tiles are held at a time); the
- * same choice and the same tiles.
+ * `encodeMany` (on worker threads); the same choice and the same tiles.
+ * When the candidates' samples together hold at most
+ * {@link CONCURRENT_TRIAL_CELLS}, every candidate's tiles are handed over
+ * at once, so the threads share out tiles of different shapes (a small
+ * field's trial has one or two tiles for each large shape: one at a time,
+ * a thread of two sat idle through them); otherwise one candidate at a
+ * time, so a few tiles are held at a time. The candidates are weighed in
+ * their order either way (the huge square after the others, see
+ * {@link TrialChoice.worthTrying}).
  */
 export async function chooseTileAsync(src: BandSource, spec: FieldSpec, basis: FieldChoices, encodeMany: (tiles: PickedTile[]) => Promise<TileOutcome[]>): Promise<TileTrial> {
   if (!basis.pointwise) return chooseTile(src, spec, basis);
   const choice = new TrialChoice(spec);
-  for (const [m, n, picked] of trialSamples(spec)) {
-    if (!choice.worthTrying(m, n)) continue;
+  const samples = trialSamples(spec);
+  const huge = (m: number, n: number) => m === HUGE_SQUARE && n === HUGE_SQUARE;
+  const cells = samples.reduce((sum, [m, n, picked]) => sum + (huge(m, n) ? 0 : m * n * picked.length), 0);
+  const tryOne = ([m, n, picked]: [number, number, number[]]): Promise<Tried> => {
     const tiles = pickedTiles(src, spec, m, n, picked);
     // The indices first: encodeMany may hand the tiles' buffers over to other threads.
     const indices = tiles.map((t) => t.index);
-    choice.add(m, n, tally(indices, await encodeMany(tiles)));
+    return encodeMany(tiles).then((outcomes) => tally(indices, outcomes));
+  };
+  const early = cells <= CONCURRENT_TRIAL_CELLS ? samples.filter(([m, n]) => !huge(m, n)) : [];
+  const started = early.map(tryOne);
+  // Awaited in order below; a failure of a later one must not go unhandled meanwhile.
+  for (const p of started) p.catch(() => undefined);
+  for (const sample of samples) {
+    const [m, n] = sample;
+    const at = early.indexOf(sample);
+    if (at >= 0) choice.add(m, n, await started[at]);
+    else if (choice.worthTrying(m, n)) choice.add(m, n, await tryOne(sample));
   }
   return choice.best;
 }
+
+/** Most cells of the candidates' samples that {@link chooseTileAsync} encodes at once: as many as one candidate's sample may hold. */
+const CONCURRENT_TRIAL_CELLS = TRIAL_CELLS;
 
 /**
  * Each candidate shape with the whole tiles its trial samples: every whole
