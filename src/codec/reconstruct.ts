@@ -172,7 +172,7 @@ function blendWalk(q: Int32Array, m: number, n: number, settle: ((c: number, p: 
       const w3 = weight[e3 + above[u + 3]];
       const w4 = weight[e4 + above[u + 4]];
       const total = w0 + w1 + w2 + w3 + w4;
-      const num = w0 * p0 + w1 * p1 + w2 * p2 + w3 * p3 + w4 * p4 + Math.floor(total / 2);
+      const num = w0 * p0 + w1 * p1 + w2 * p2 + w3 * p3 + w4 * p4 + (total >> 1);
       let p = Math.floor(num / total);
       // Exact floor division (the quotient of doubles may round across an integer).
       if (p * total > num) p--;
