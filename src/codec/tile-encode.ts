@@ -449,7 +449,9 @@ interface Candidate {
 }
 
 function candidate(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center): Candidate {
-  const corr = correct(t, f, e, step, center, false);
+  const chosen = correct(t, f, e, step, center, false);
+  // The residual coded once, here: the payload and, for the winner, the blend's comparison use it.
+  const corr = chosen.q && !chosen.coded ? { ...chosen, coded: encodeInts(chosen.q, t.m, t.n, t.classes.special > 0 ? t.classes.codes : null) } : chosen;
   const payload = lowRankPayload(t, f, corr);
   return { payload, withBlend: () => blendVariant(t, f, corr) ?? payload };
 }
