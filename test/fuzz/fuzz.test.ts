@@ -23,6 +23,7 @@ import { Rng } from './rng.js';
 import { open } from '../../src/archive.js';
 import { crc32 } from '../../src/format/crc32.js';
 import { classesOf, MUTATION_KINDS } from './mutate.js';
+import { FLAG_SYMBOLS } from '../../src/format/container.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
 import { fillWords } from '../../src/codec/mask.js';
 import { FormatError } from '../../src/errors.js';
@@ -116,7 +117,7 @@ describe('fuzzing', () => {
         const p = field[t];
         const [rows, cols] = tileDims(h, t);
         const fill = h.fill instanceof Uint8Array ? new DataView(h.fill.buffer, h.fill.byteOffset, 8).getFloat64(0, true) : h.fill;
-        const ctx = { m: rows, n: cols, dtype: h.dtype, fill: fillWords(fill, h.dtype), where: `${h.name} tile ${t}`, fieldStep: fieldStep(h.bound.tolerance) };
+        const ctx = { m: rows, n: cols, dtype: h.dtype, fill: fillWords(fill, h.dtype), where: `${h.name} tile ${t}`, fieldStep: fieldStep(h.bound.tolerance), symbols: (m.flags & FLAG_SYMBOLS) !== 0 };
         const seedValues = Buffer.from(decodeTile(p, ctx).buffer);
         for (const part of walk(p).parts) {
           if (part.kind !== 'coded') continue;
