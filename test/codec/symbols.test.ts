@@ -12,8 +12,8 @@ import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
 import { CodeStreamError, decodeInts } from '../../src/codec/code-decode.js';
-import { encodeInts } from '../../src/codec/code-encode.js';
-import { decodeSymbols, encodeSymbols } from '../../src/codec/code-symbols.js';
+import { encodeInts, RangeEncoder } from '../../src/codec/code-encode.js';
+import { decodeSymbols, encodeSymbols, SYMBOL_BINARY_CONTEXTS } from '../../src/codec/code-symbols.js';
 import { Cell } from '../../src/codec/mask.js';
 import { usesSymbolCoder } from '../../src/codec/payload.js';
 import { FormatCode, FormatError } from '../../src/errors.js';
@@ -21,6 +21,7 @@ import { FLAG_SYMBOLS } from '../../src/format/container.js';
 import { pack } from '../../src/pack.js';
 import { precip, ROOT, volcano } from '../archive/datasets.js';
 import { cloneModel, parse, readVarint, replaceStream, serialize, tileDims, walk, type Model } from '../fuzz/model.js';
+import { refusal } from '../refusal.js';
 import { mulberry32 } from '../rng.js';
 
 function roundTrip(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Int32Array {
@@ -43,16 +44,6 @@ function lorenzo(v: Float64Array, m: number, n: number): Int32Array {
     }
   }
   return d;
-}
-
-function refusal(f: () => void): CodeStreamError {
-  try {
-    f();
-  } catch (e) {
-    if (e instanceof CodeStreamError) return e;
-    throw e;
-  }
-  throw new Error('the stream was accepted');
 }
 
 async function archiveRefusal(bytes: Uint8Array): Promise<FormatError> {
@@ -161,7 +152,7 @@ describe('the worked example of spec/FORMAT.md 10.3.8', () => {
   });
 
   it('is refused when cut, lengthened, padded with a 1 bit, or framed wrongly (spec/FORMAT.md 10.3.6, 10.3.8)', () => {
-    const run = (b: Uint8Array) => refusal(() => decodeSymbols(b, 2, 4, null, new Int32Array(8))).message;
+    const run = (b: Uint8Array) => refusal(() => decodeSymbols(b, 2, 4, null, new Int32Array(8)), CodeStreamError).message;
     expect(run(bytes.subarray(0, 11))).toMatch(/^the raw bit section \(1 bytes\) ends before value 6 does$/);
     expect(run(Uint8Array.of(...bytes, 0))).toMatch(/^the raw bit section holds 3 bytes, its values take 2$/);
     const padded = bytes.slice();
@@ -182,6 +173,17 @@ describe('the worked example of spec/FORMAT.md 10.3.8', () => {
     expect(run(Uint8Array.of(0x80, 0x80, 0x80, 0x80, 0x80, 0x01))).toMatch(/more than 5 bytes/);
   });
 
+  it('refuses the zero symbol after a non-zero flag (buckets 0..3), which no encoder writes', () => {
+    // One cell, bucket 0, coded by hand from spec/FORMAT.md 10.3.8: the zero flag 1 in context ZERO + 0, then symbol 0,
+    // whose interval is [0, r E[0][1]) = [0, r) (F0[0][0] = 0, so E[0][1] = 1 + floor(0 * 32743 / T) = 1).
+    const enc = new RangeEncoder(16, { p: new Uint16Array(SYMBOL_BINARY_CONTEXTS).fill(32768), count: new Uint8Array(SYMBOL_BINARY_CONTEXTS) });
+    enc.bit(1, 0);
+    enc.interval(0, enc.width >>> 15);
+    const range = enc.finish();
+    const b = Uint8Array.of(range.length, ...range);
+    expect(refusal(() => decodeSymbols(b, 1, 1, null, new Int32Array(1)), CodeStreamError).message).toMatch(/^value 0: the zero symbol after a non-zero flag, which no encoder writes$/);
+  });
+
   it('refuses a value beyond 2^30 (class 30 with a mantissa bit set)', () => {
     const q = Int32Array.from([2 ** 30]);
     const b = encodeSymbols(q, 1, 1, null);
@@ -190,7 +192,7 @@ describe('the worked example of spec/FORMAT.md 10.3.8', () => {
     expect(b.length - raw).toBe(4);
     const bad = b.slice();
     bad[raw] |= 0x80;
-    expect(refusal(() => decodeSymbols(bad, 1, 1, null, new Int32Array(1))).message).toMatch(/^value 0 exceeds 2\^30 in magnitude$/);
+    expect(refusal(() => decodeSymbols(bad, 1, 1, null, new Int32Array(1)), CodeStreamError).message).toMatch(/^value 0 exceeds 2\^30 in magnitude$/);
   });
 });
 
