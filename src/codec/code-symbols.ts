@@ -11,24 +11,26 @@
  *
  * Stream: length(range stream) as a `length` varint, the range stream, then
  * the raw bits, most significant first, zero-padded to a byte.
+ *
+ * This module holds the model and the decoder (what a reader loads); the
+ * encoder is ./code-symbols-encode.ts.
  */
-import { RangeEncoder } from './code-encode.js';
 import { CodeStreamError } from './code-decode.js';
-import { bucketOf, PROB_BITS, PROB_HALF, PROB_ONE, SHIFTS, signContext } from './code-model.js';
+import { PROB_BITS, PROB_HALF, PROB_ONE, SHIFTS } from './code-model.js';
 import { Cell } from './mask.js';
 
 /** Symbols: 0 zero, 1 |v| = 1, 2k + t for classes k = 1..11 (t the bit below the leading one), 24 escape (k >= 12). */
 export const SYMBOLS = 25;
-const ESCAPE = SYMBOLS - 1;
+export const ESCAPE = SYMBOLS - 1;
 /** First class coded through the escape. */
-const ESC_K = 12;
+export const ESC_K = 12;
 /** Buckets below this code a binary zero flag first (their symbol never takes 0). */
 export const FLAG_BUCKETS = 4;
 /** The cumulative table spans 2^15. */
-const TOTAL_BITS = 15;
+export const TOTAL_BITS = 15;
 const TOTAL = 1 << TOTAL_BITS;
 /** A coded symbol adds this to its count. */
-const INC = 32;
+export const INC = 32;
 /** Rebuilds after 8, 16, 32, 64, 128 symbols of a context, then every 256. */
 const FIRST = 8;
 const EVERY = 256;
@@ -37,10 +39,10 @@ const LIMIT = 1 << 15;
 const BUCKETS = 16;
 
 /** Binary contexts: zero flag of buckets 0-3, sign (9), escape unary steps k = 12..29, top bit of k = 12..30. */
-const ZERO_AT = 0;
-const SIGN_AT = ZERO_AT + FLAG_BUCKETS;
-const ESC_AT = SIGN_AT + 9;
-const TOP_AT = ESC_AT + 30 - ESC_K;
+export const ZERO_AT = 0;
+export const SIGN_AT = ZERO_AT + FLAG_BUCKETS;
+export const ESC_AT = SIGN_AT + 9;
+export const TOP_AT = ESC_AT + 30 - ESC_K;
 export const SYMBOL_BINARY_CONTEXTS = TOP_AT + 31 - ESC_K;
 
 /** Starting counts per bucket (rows) and symbol (columns): spec/FORMAT.md 10.3.8, the same table. */
@@ -64,7 +66,7 @@ export const PRIOR: readonly number[] = [
 ];
 
 /** Counts F (16 x 25), cumulative tables E (16 x 26), symbols left before each context's next rebuild, rebuilds so far. */
-interface SymbolModel {
+export interface SymbolModel {
   F: Int32Array;
   E: Int32Array;
   left: Int32Array;
@@ -72,7 +74,7 @@ interface SymbolModel {
 }
 
 /** Rebuild context b's cumulative table from its counts (every symbol keeps at least 1 of 2^15), halve large counts, schedule the next. */
-function rebuild(md: SymbolModel, b: number): void {
+export function rebuild(md: SymbolModel, b: number): void {
   const { F, E } = md;
   const fb = b * SYMBOLS;
   const eb = b * (SYMBOLS + 1);
@@ -92,7 +94,7 @@ function rebuild(md: SymbolModel, b: number): void {
 }
 
 /** A fresh model: counts from {@link PRIOR}, tables built from them, first rebuild after 8 symbols. */
-function newSymbolModel(): SymbolModel {
+export function newSymbolModel(): SymbolModel {
   const md: SymbolModel = { F: Int32Array.from(PRIOR), E: new Int32Array(BUCKETS * (SYMBOLS + 1)), left: new Int32Array(BUCKETS), rebuilds: new Uint8Array(BUCKETS) };
   for (let b = 0; b < BUCKETS; b++) {
     rebuild(md, b);
@@ -103,109 +105,8 @@ function newSymbolModel(): SymbolModel {
 }
 
 /** Fresh binary contexts of the symbol coder: every probability 1/2, every count 0. */
-function newBinary(): { p: Uint16Array; count: Uint8Array } {
+export function newBinary(): { p: Uint16Array; count: Uint8Array } {
   return { p: new Uint16Array(SYMBOL_BINARY_CONTEXTS).fill(PROB_HALF), count: new Uint8Array(SYMBOL_BINARY_CONTEXTS) };
-}
-
-/** Raw bits, most significant first, into bytes. */
-class BitWriter {
-  private out: Uint8Array;
-  private length = 0;
-  private acc = 0;
-  private held = 0;
-  constructor(expected: number) {
-    this.out = new Uint8Array(Math.max(16, expected));
-  }
-  /** The low `bits` bits of v (bits <= 29). */
-  put(v: number, bits: number): void {
-    for (let b = bits - 1; b >= 0; b--) {
-      this.acc = (this.acc << 1) | ((v >>> b) & 1);
-      if (++this.held === 8) {
-        if (this.length === this.out.length) {
-          const next = new Uint8Array(this.out.length * 2);
-          next.set(this.out);
-          this.out = next;
-        }
-        this.out[this.length++] = this.acc;
-        this.acc = 0;
-        this.held = 0;
-      }
-    }
-  }
-  finish(): Uint8Array {
-    if (this.held > 0) this.put(0, 8 - this.held);
-    return this.out.slice(0, this.length);
-  }
-}
-
-/** Bytes of a `length` varint (LEB128, shortest form) of v. */
-function lengthBytes(v: number): number {
-  let k = 1;
-  while (v >= 128) {
-    v = Math.floor(v / 128);
-    k++;
-  }
-  return k;
-}
-
-/**
- * Code an m x n grid of integers (|v| <= 2^30) in raster order with the
- * symbol coder. Cells whose class in `codes` is not Valid are skipped, as
- * in encodeInts (they must hold 0).
- */
-export function encodeSymbols(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Uint8Array {
-  const md = newSymbolModel();
-  const { F, E, left } = md;
-  const enc = new RangeEncoder(values.length / 2 + 64, newBinary());
-  const raw = new BitWriter(values.length / 4 + 16);
-  for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      const c = i * n + j;
-      const v = values[c];
-      if (codes !== null && codes[c] !== Cell.Valid) {
-        if (v !== 0) throw new Error(`internal: skipped cell ${c} holds ${v}, not 0`);
-        continue;
-      }
-      const l = j > 0 ? values[c - 1] : 0;
-      const u = i > 0 ? values[c - n] : 0;
-      const b = bucketOf(l, u, i > 0 && j > 0 ? values[c - n - 1] : 0, i > 0 && j + 1 < n ? values[c - n + 1] : 0);
-      if (b < FLAG_BUCKETS) {
-        enc.bit(v === 0 ? 0 : 1, ZERO_AT + b);
-        if (v === 0) continue;
-      }
-      const mag = v < 0 ? -v : v;
-      if (mag > 0x40000000) throw new Error(`internal: value ${v} at cell ${c} exceeds 2^30`);
-      const k = mag === 0 ? -1 : 31 - Math.clz32(mag);
-      const top = k > 0 ? (mag >>> (k - 1)) & 1 : 0;
-      const s = v === 0 ? 0 : k === 0 ? 1 : k < ESC_K ? 2 * k + top : ESCAPE;
-      const eb = b * (SYMBOLS + 1);
-      const r = enc.width >>> TOTAL_BITS;
-      const lo = r * E[eb + s];
-      enc.interval(lo, s === ESCAPE ? enc.width - lo : r * E[eb + s + 1] - lo);
-      F[b * SYMBOLS + s] += INC;
-      if (--left[b] === 0) rebuild(md, b);
-      if (v === 0) continue;
-      if (s === ESCAPE) {
-        for (let e = ESC_K; e < k; e++) enc.bit(1, ESC_AT + e - ESC_K);
-        if (k < 30) enc.bit(0, ESC_AT + k - ESC_K);
-        enc.bit(top, TOP_AT + k - ESC_K);
-      }
-      enc.bit(v < 0 ? 1 : 0, SIGN_AT + signContext(l, u));
-      if (k > 1) raw.put(mag, k - 1);
-    }
-  }
-  const stream = enc.finish();
-  const bits = raw.finish();
-  const head = lengthBytes(stream.length);
-  const out = new Uint8Array(head + stream.length + bits.length);
-  let v = stream.length;
-  for (let x = 0; x < head; x++) {
-    out[x] = (v & 0x7f) | (x + 1 < head ? 0x80 : 0);
-    v = Math.floor(v / 128);
-  }
-  out.set(stream, head);
-  out.set(bits, head + stream.length);
-  return out;
 }
 
 const TOP = 0x1000000;

@@ -17,7 +17,7 @@ const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.A
 const BLEND_MARGIN = 0.99;
 import { encodeInts } from './code-encode.js';
 import { decodeInts } from './code-decode.js';
-import { encodeSymbols } from './code-symbols.js';
+import { encodeSymbols } from './code-symbols-encode.js';
 import { MAX_INT } from './section.js';
 import { writeSection } from './section-write.js';
 import { binary32Below, MIN_STEP, stepCode, stepValue } from './steps.js';
