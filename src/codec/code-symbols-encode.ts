@@ -5,7 +5,9 @@
  */
 import { RangeEncoder } from './code-encode.js';
 import { bucketOf, signContext } from './code-model.js';
-import { ESC_AT, ESC_K, ESCAPE, FLAG_BUCKETS, INC, newBinary, newSymbolModel, rebuild, SIGN_AT, SYMBOLS, TOP_AT, TOTAL_BITS, ZERO_AT } from './code-symbols.js';
+import { newBinary, newSymbolModel, rebuild, SYMBOL_LAYOUT } from './code-symbols.js';
+
+const { SYMBOLS, ESCAPE, ESC_K, FLAG_BUCKETS, TOTAL_BITS, INC, ZERO_AT, SIGN_AT, ESC_AT, TOP_AT } = SYMBOL_LAYOUT;
 import { Cell } from './mask.js';
 
 /** Raw bits, most significant first, into bytes. */
