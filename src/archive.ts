@@ -8,7 +8,7 @@ import { fieldStep, Method, payloadHead, prefixLengths } from './codec/payload.j
 import { ErrorTally } from './codec/tally.js';
 import { DecodeScratch, decodeTile } from './codec/tile-decode.js';
 import { FormatCode, FormatError, InputCode, InputError } from './errors.js';
-import { joinPages, readContainer, readPages, tilePage, type Container } from './format/container.js';
+import { FLAG_SYMBOLS, joinPages, readContainer, readPages, tilePage, type Container } from './format/container.js';
 import { crc32 } from './format/crc32.js';
 import { DEFAULT_LIMITS, type ArchiveDirectory, type ArchiveHeader, type ArchiveIndex, type FieldDirectory, type FieldHeader, type FieldIndex, type Limits, type PageIndex, checkReadCells, pageCount, quoteName, up32 } from './format/schema.js';
 import { copyBlock, cutTile, ndShape, tileCount, tileOrigin, tileShape, windowTiles } from './geometry.js';
@@ -170,6 +170,8 @@ export class Archive {
   private whole: ArchiveIndex | null = null;
   /** Working buffers of tile decoding, shared by this archive's reads (decoding a tile is synchronous). */
   private readonly scratch = new DecodeScratch();
+  /** Required flag bit 2: residuals coded with the symbol coder are allowed (and refused without it). */
+  private readonly symbols: boolean;
 
   constructor(
     private readonly source: ByteSource,
@@ -180,6 +182,7 @@ export class Archive {
     this.directory = container.directory;
     this.size = container.size;
     this.limits = container.limits;
+    this.symbols = (container.flags & FLAG_SYMBOLS) !== 0;
     this.pages = this.header.fields.map((h, i) => new FieldPages(h, this.directory.fields[i]));
   }
 
@@ -313,7 +316,7 @@ export class Archive {
     }
     const [m, n] = tileShape(h, t);
     const term = layer !== null && e.method === Method.LowRank ? layer.term(t) : null;
-    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), scratch: this.scratch, layer: term });
+    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), scratch: this.scratch, layer: term, symbols: this.symbols });
     if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== e.value_crc) {
       throw new FormatError(FormatCode.Checksum, `${where}: decoded values differ from those verified at encode time (value CRC-32 mismatch)`);
     }
@@ -443,7 +446,7 @@ export class Archive {
     const [m, n] = tileShape(h, t);
     // A prefix includes the layer's term (spec/FORMAT.md 18): only LowRank payloads have prefixes.
     const term = layer !== null && e.method === Method.LowRank ? layer.term(t) : null;
-    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), groups, scratch: this.scratch, layer: term });
+    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), groups, scratch: this.scratch, layer: term, symbols: this.symbols });
   }
 
   /**

@@ -5,10 +5,11 @@ import { encodeField, fieldBasis, memoryBands, type BandSource, type EncodedTile
 import { encodeFieldParallel, encodeTasks, encodeTilesOn } from './parallel/encode.js';
 import { checkThreads, WorkerPool } from './parallel/pool.js';
 import { InputCode, InputError } from './errors.js';
-import { ContainerWriter, DEFAULT_PAGE, FLAG_LAYER, FLAG_SLICES, MemorySink, VERSION, type Sink } from './format/container.js';
+import { ContainerWriter, DEFAULT_PAGE, FLAG_LAYER, FLAG_SLICES, FLAG_SYMBOLS, MemorySink, VERSION, type Sink } from './format/container.js';
 import { MAX_TILE_SIDE, tileCount, tileGrid } from './geometry.js';
 import { attrsProblem, holdsLoneSurrogate, ndProblem, quoteName, pageGrid, pageTiles, up32, type ArchiveHeader, type Attrs, type FieldHeader, type FieldIndex, type FieldLayerRef } from './format/schema.js';
 import { chooseLayer, layerWorthTrying } from './codec/layer-encode.js';
+import { usesSymbolCoder } from './codec/payload.js';
 import type { Bound, Dtype, FloatArray } from './types.js';
 import { VERSION_STRING } from './version.js';
 
@@ -261,8 +262,10 @@ export class ArchiveBuilder {
     const problem = attrsProblem(attrs);
     if (problem) throw new InputError(InputCode.Option, `archive ${problem}`);
     if (holdsLoneSurrogate(attrs)) throw new InputError(InputCode.Option, 'archive attributes hold a lone UTF-16 surrogate, which UTF-8 cannot store');
-    this.writer = new ContainerWriter(sink, (options.slices === true ? FLAG_SLICES : 0) | (options.layer === true ? FLAG_LAYER : 0));
     this.patchable = typeof sink.patch === 'function';
+    // Flag bit 2 (symbols) is set when the first tile coded with the symbol coder is written; a sink that
+    // cannot patch the prologue gets it from the start (a writer may set it without such a tile).
+    this.writer = new ContainerWriter(sink, (options.slices === true ? FLAG_SLICES : 0) | (options.layer === true ? FLAG_LAYER : 0) | (this.patchable ? 0 : FLAG_SYMBOLS));
   }
 
   /** Encode and append one field held in memory (row-major). */
@@ -452,6 +455,8 @@ export class ArchiveBuilder {
           const e = held.get(u);
           if (e === undefined) throw new Error(`tile ${u} was not encoded before the end of its band of pages`);
           held.delete(u);
+          // Internal assertion: the flag is set from the start when the sink cannot patch it in.
+          if (usesSymbolCoder(e.payload) && !this.writer.requireFlags(FLAG_SYMBOLS)) throw new Error('required flag bit 2 could not be set');
           const ref = this.writer.addPayload(e.payload);
           ix.offset[u] = ref.offset;
           ix.length[u] = ref.length;

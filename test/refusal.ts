@@ -1,12 +1,15 @@
 import { InputError } from '../src/errors.js';
 
-/** The InputError that `f` throws; any other error is rethrown, and no error at all fails the test. */
-export function refusal(f: () => unknown): InputError {
+/**
+ * The error of class `kind` (default InputError) that `f` throws; any other
+ * error is rethrown, and no error at all fails the test.
+ */
+export function refusal<E extends Error = InputError>(f: () => unknown, kind: new (...args: never[]) => E = InputError as unknown as new (...args: never[]) => E): E {
   try {
     f();
   } catch (e) {
-    if (e instanceof InputError) return e;
+    if (e instanceof kind) return e;
     throw e;
   }
-  throw new Error('expected an InputError, nothing was thrown');
+  throw new Error(`expected an ${kind.name}, nothing was thrown`);
 }

@@ -71,6 +71,21 @@ export class RangeEncoder {
     }
   }
 
+  /** Width of the current interval (for a multi-symbol decision: see {@link interval}). */
+  get width(): number {
+    return this.range;
+  }
+
+  /** Narrow the interval to [low + lo, low + lo + width) of the current one (a multi-symbol decision, ./code-symbols.ts). */
+  interval(lo: number, width: number): void {
+    this.low += lo;
+    this.range = width;
+    while (this.range < TOP) {
+      this.range = (this.range * 256) >>> 0;
+      this.shiftLow();
+    }
+  }
+
   /** Code the low `bits` bits of v (most significant first) at probability 1/2. */
   direct(v: number, bits: number): void {
     for (let b = bits - 1; b >= 0; b--) {

@@ -141,7 +141,7 @@ export function packFactor(values: Float64Array, rows: number, rank: number, til
     bytes += tile.payload.length + TILE_INDEX_BYTES;
     const r0 = t * spec.tileRows;
     const m = Math.min(spec.tileRows, rows - r0);
-    decoded.set(decodeTile(tile.payload, { m, n: rank, dtype: 'f64', fill: null, where: `factor field '${name}' tile ${t}`, fieldStep: step }), r0 * rank);
+    decoded.set(decodeTile(tile.payload, { m, n: rank, dtype: 'f64', fill: null, where: `factor field '${name}' tile ${t}`, fieldStep: step, symbols: true }), r0 * rank);
   });
   return { spec, tiles, result, decoded, bytes };
 }

@@ -38,7 +38,7 @@ export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array 
   const tally = new ErrorTally();
   let out: FloatArray;
   try {
-    out = decodeTile(payload, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check', fieldStep: t.fieldStep, layer: t.layer });
+    out = decodeTile(payload, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check', fieldStep: t.fieldStep, layer: t.layer, symbols: true });
   } catch (e) {
     // A candidate the decoder refuses (e.g. values rounding past the float32 maximum)
     // fails every bound, so the caller falls back to exact storage.
@@ -74,7 +74,7 @@ export function measurePrefixes(payload: Uint8Array, t: PreparedTile, fill: Uint
     const bytes = payload.subarray(0, len);
     let values: FloatArray;
     try {
-      values = decodeTile(bytes, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check', fieldStep: t.fieldStep, groups, layer: t.layer });
+      values = decodeTile(bytes, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check', fieldStep: t.fieldStep, groups, layer: t.layer, symbols: true });
     } catch (e) {
       if (e instanceof FormatError) return; // a prefix that does not decode (values past the float maximum) is not offered
       throw e;

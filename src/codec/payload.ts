@@ -54,8 +54,11 @@ export const StepForm = {
   Integer: 3,
 } as const;
 
-/** Bits of the residual byte this version defines (predictor 0-2, step form 4-5). */
-export const KNOWN_RESIDUAL_BITS = 0x37;
+/** Residual byte bit 3, "coder": the residual stream is coded with the symbol coder (./code-symbols.ts), not the binary one. */
+export const RESIDUAL_SYMBOLS = 0x08;
+
+/** Bits of the residual byte this version defines (predictor 0-2, coder 3, step form 4-5). */
+export const KNOWN_RESIDUAL_BITS = 0x3f;
 
 /** Largest byte length of an integer centre (a signed varint: magnitude below 2^31) or an integer step (an unsigned varint: below 2^32). */
 export const NUMBER_BYTES = 5;
@@ -224,6 +227,41 @@ export function prefixLengths(payload: Uint8Array): number[] {
   return [walk.groupsAt, ...walk.groups.map((g) => g.end)];
 }
 
+/** Where a payload's residual lies: its residual byte, the stream's length varint, and the stream. */
+export interface ResidualPlace {
+  byteAt: number;
+  lengthAt: number;
+  streamAt: number;
+  streamEnd: number;
+}
+
+/** The residual of a well-formed LowRank payload with flag Residual, or null (none, or a payload that does not walk). */
+export function residualPlace(payload: Uint8Array): ResidualPlace | null {
+  if (payload[0] !== Method.LowRank || (payload[1] & Flag.Residual) === 0) return null;
+  const walk = walkLowRank(payload);
+  if (walk === null || !walk.allGroups) return null;
+  const byteAt = walk.groups.length > 0 ? walk.groups[walk.groups.length - 1].end : walk.groupsAt;
+  if (!(byteAt < payload.length)) return null;
+  // The residual byte, the step (none for the field's, binary32, binary64 or an integer varint), a length varint.
+  const form = (payload[byteAt] >> STEP_FORM_SHIFT) & 3;
+  const fixed = 1 + (form === StepForm.Field ? 0 : form === StepForm.Binary32 ? 4 : form === StepForm.Binary64 ? 8 : (varintAt(payload, byteAt + 1, NUMBER_BYTES)?.[1] ?? Infinity));
+  const lenAt = byteAt + fixed;
+  const [lb, stream] = lenAt < payload.length ? lengthAt(payload, lenAt) : [Infinity, Infinity];
+  const streamEnd = lenAt + lb + stream;
+  if (!(streamEnd <= payload.length)) return null;
+  return { byteAt, lengthAt: lenAt, streamAt: lenAt + lb, streamEnd };
+}
+
+/**
+ * Whether a payload's residual is coded with the symbol coder (residual
+ * byte bit 3): what makes a writer set required flag bit 2. False for an
+ * exact payload, one without a residual, or one that does not walk.
+ */
+export function usesSymbolCoder(payload: Uint8Array): boolean {
+  const at = residualPlace(payload);
+  return at !== null && (payload[at.byteAt] & RESIDUAL_SYMBOLS) !== 0;
+}
+
 /** Bytes of a payload by role, for reports: factor streams (with their step codes), residual and exceptions. */
 export interface PayloadShares {
   factors: number;
@@ -260,12 +298,10 @@ export function payloadShares(payload: Uint8Array): PayloadShares | null {
   let residual = 0;
   let exceptions = 0;
   if (payload[1] & Flag.Residual) {
-    // The residual byte, the step (none for the field's, binary32, binary64 or an integer varint) and a length varint.
-    const form = (payload[at] >> STEP_FORM_SHIFT) & 3;
-    const fixed = 1 + (form === StepForm.Field ? 0 : form === StepForm.Binary32 ? 4 : form === StepForm.Binary64 ? 8 : (varintAt(payload, at + 1, NUMBER_BYTES)?.[1] ?? Infinity));
-    const [lb, stream] = lengthAt(payload, at + fixed);
-    residual = fixed + lb + stream;
-    framing += fixed + lb;
+    const place = residualPlace(payload);
+    if (place === null) return null;
+    residual = place.streamEnd - place.byteAt;
+    framing += place.streamAt - place.byteAt;
     at += residual;
   }
   if (payload[1] & Flag.Exceptions) {

@@ -15,7 +15,7 @@ import { truncatedSvd } from '../linalg/truncated.js';
 import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { Method, payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
-import { encodeL2, encodePointwise, exactPayload, pointwiseFactors } from './tile-encode.js';
+import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, withResidualCoder } from './tile-encode.js';
 import { rankZeroForMse, residualForMse } from './rdo.js';
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
@@ -67,7 +67,8 @@ export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8
     const withFactors = f && residualForMse(t, f, mse);
     if (withFactors && withFactors.length < best.length) best = withFactors;
   }
-  return best;
+  // encodePointwise chose its residual coder already; the residual of the others is coded now.
+  return withResidualCoder(t, best);
 }
 
 /** What the first pass learns of one tile (and the tile itself, prepared, while a field is small enough to keep it). */

@@ -7,10 +7,11 @@ import { ByteReader } from '../format/bytes.js';
 import { printable } from '../format/schema.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { applyClasses, Cell } from './mask.js';
-import { CENTRE_FORM_SHIFT, CentreForm, Flag, KNOWN_FLAGS, KNOWN_RESIDUAL_BITS, Method, NUMBER_BYTES, STEP_FORM_SHIFT, StepForm, VARINT_BYTES } from './payload.js';
+import { CENTRE_FORM_SHIFT, CentreForm, Flag, KNOWN_FLAGS, KNOWN_RESIDUAL_BITS, Method, NUMBER_BYTES, RESIDUAL_SYMBOLS, STEP_FORM_SHIFT, StepForm, VARINT_BYTES } from './payload.js';
 import { addLayer } from './layer.js';
 import { lowRank, MAX_PREDICTOR, reconstruct, unpredict } from './reconstruct.js';
 import { CodeStreamError, decodeClasses, decodeInts } from './code-decode.js';
+import { decodeSymbols } from './code-symbols.js';
 import { MAX_INT, readSection } from './section.js';
 import { stepValue } from './steps.js';
 
@@ -47,6 +48,12 @@ export interface TileContext {
    * part and centre before the residual. An Exact payload ignores it.
    */
   layer?: Float64Array | null;
+  /**
+   * The file's required flag bit 2 (symbols): true when it is set, and a
+   * residual may then be coded with the symbol coder (residual byte bit 3);
+   * otherwise such a residual is refused.
+   */
+  symbols?: boolean;
 }
 
 /**
@@ -232,9 +239,11 @@ function readResidual(r: ByteReader, ctx: TileContext, codes: Uint8Array | null)
   else if (form === StepForm.Binary64) step = r.f64('residual step');
   else step = r.varint('integer residual step', NUMBER_BYTES);
   if (!(step > 0 && Number.isFinite(step))) throw malformed(where, `residual step ${step} at ${r.unit} ${stepAt} is not a positive finite number`);
-  // decodeInts sets every cell of q (missing cells to 0), so left-over contents do not matter.
+  const symbols = (head & RESIDUAL_SYMBOLS) !== 0;
+  if (symbols && ctx.symbols !== true) throw malformed(where, `residual byte 0x${head.toString(16)} at ${r.unit} ${byteAt} names the symbol coder (bit 3), but the file's required flag bit 2 (symbols) is not set`);
+  // Both decoders set every cell of q (missing cells to 0), so left-over contents do not matter.
   const q = ctx.scratch ? ctx.scratch.codesFor(m * n) : new Int32Array(m * n);
-  readCoded(r, 'residual', m, n, codes, q, where);
+  readCoded(r, 'residual', m, n, codes, q, where, symbols ? decodeSymbols : decodeInts);
   if (!unpredict(q, m, n, MAX_INT, predictor)) throw malformed(where, 'a residual code exceeds 2^30 after prediction');
   return { step, q };
 }
@@ -326,15 +335,16 @@ function readFactors(r: ByteReader, ctx: TileContext, declared: number, delta: b
 
 /**
  * Read a coded integer stream (varint length, then the stream) of an m x n
- * grid into `out`. The length is checked against what is left of the
+ * grid into `out`, with the binary coder's decoder unless `decode` names the
+ * symbol coder's. The length is checked against what is left of the
  * payload before anything is decoded.
  */
-function readCoded(r: ByteReader, what: string, m: number, n: number, codes: Uint8Array | null, out: Int32Array, where: string): void {
+function readCoded(r: ByteReader, what: string, m: number, n: number, codes: Uint8Array | null, out: Int32Array, where: string, decode = decodeInts): void {
   const at = r.offset;
   const length = r.length(`${what} length`);
   const bytes = r.bytesView(length, `${what} stream`);
   try {
-    decodeInts(bytes, m, n, codes, out);
+    decode(bytes, m, n, codes, out);
   } catch (e) {
     if (!(e instanceof CodeStreamError)) throw e;
     throw malformed(where, `${what} (coded stream at ${r.unit} ${at}, ${length} bytes): ${e.message}`);

@@ -8,7 +8,7 @@ import { ByteWriter } from '../format/bytes.js';
 import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
-import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
+import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, RESIDUAL_SYMBOLS, residualPlace, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
 import { lowRank, predict, predictorBitsOf, predictorBitsRow, predictedFill, Predictor, PREDICTOR_SUMS, withResidual } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
@@ -16,6 +16,8 @@ const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.A
 /** The blend (tried last) is taken only when its coded stream is below this share of the best other predictor's. */
 const BLEND_MARGIN = 0.99;
 import { encodeInts } from './code-encode.js';
+import { decodeInts } from './code-decode.js';
+import { encodeSymbols } from './code-symbols-encode.js';
 import { MAX_INT } from './section.js';
 import { writeSection } from './section-write.js';
 import { binary32Below, MIN_STEP, stepCode, stepValue } from './steps.js';
@@ -456,6 +458,51 @@ function candidate(t: PreparedTile, f: Factors | null, e: number, step = binary3
   return { payload, withBlend: () => blendVariant(t, f, corr) ?? payload };
 }
 
+/**
+ * The symbol coder (./code-symbols.ts) is kept for a dense residual when
+ * its stream is at most this factor of the binary coder's: it decodes 2-3x
+ * faster there (scratch measurement on the bench fields' residuals, issue
+ * 9), which is worth a share of a byte in a hundred.
+ */
+const SYMBOLS_MARGIN = 1.01;
+
+/**
+ * A finished payload with its residual stream coded by the coder that suits
+ * it (spec/FORMAT.md 19): the symbol coder when at least half the coded
+ * values are non-zero and its stream is at most 1% longer than the binary
+ * coder's, otherwise the shorter of the two, the binary coder on a tie.
+ * Only the final payload of a tile is re-coded: the rank and predictor
+ * search costs its candidates with the binary coder. The payload is
+ * returned as it is when it has no residual or keeps the binary coder.
+ */
+export function withResidualCoder(t: PreparedTile, payload: Uint8Array): Uint8Array {
+  const place = residualPlace(payload);
+  if (place === null || (payload[place.byteAt] & RESIDUAL_SYMBOLS) !== 0) return payload;
+  const { m, n } = t;
+  const mask = t.classes.special > 0 ? t.classes.codes : null;
+  const binary = payload.subarray(place.streamAt, place.streamEnd);
+  const d = new Int32Array(m * n);
+  decodeInts(binary, m, n, mask, d);
+  let coded = 0;
+  let nonzero = 0;
+  for (let c = 0; c < d.length; c++) {
+    if (mask !== null && mask[c] !== Cell.Valid) continue;
+    coded++;
+    if (d[c] !== 0) nonzero++;
+  }
+  const symbols = encodeSymbols(d, m, n, mask);
+  const dense = 2 * nonzero >= coded;
+  if (!(symbols.length < binary.length || (dense && symbols.length <= SYMBOLS_MARGIN * binary.length))) return payload;
+  const w = new ByteWriter(payload.length + 16);
+  w.bytes(payload.subarray(0, place.lengthAt));
+  w.varint(symbols.length);
+  w.bytes(symbols);
+  w.bytes(payload.subarray(place.streamEnd));
+  const out = w.finish();
+  out[place.byteAt] |= RESIDUAL_SYMBOLS;
+  return out;
+}
+
 /** Candidate ranks tried by the pointwise search. */
 const RANKS = [0, 1, 2, 3, 4, 5, 6, 8, 10, 12, 14, 16, 20, 24, 28, 32, 40, 48, 56, 64, 80, 96, 112, 128, 160, 192, 224, 256];
 
@@ -474,7 +521,7 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   let best = rankZero(t, e);
   if (e > 0) best = searchRanks(t, e, best);
   const blended = best.withBlend();
-  return orExact(t, blended.length < best.payload.length ? blended : best.payload);
+  return orExact(t, withResidualCoder(t, blended.length < best.payload.length ? blended : best.payload));
 }
 
 /**

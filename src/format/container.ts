@@ -24,8 +24,10 @@ export const PROLOGUE_SIZE = 12;
 export const FLAG_SLICES = 0x1;
 /** Required flag bit 1: some field has a field layer (spec/FORMAT.md, "Required flags"). */
 export const FLAG_LAYER = 0x2;
+/** Required flag bit 2: some tile's residual is coded with the symbol coder (spec/FORMAT.md, "Required flags"). */
+export const FLAG_SYMBOLS = 0x4;
 /** Required flags this reader understands. */
-export const KNOWN_FLAGS = FLAG_SLICES | FLAG_LAYER;
+export const KNOWN_FLAGS = FLAG_SLICES | FLAG_LAYER | FLAG_SYMBOLS;
 export const TAIL_SIZE = 24;
 /** Tile rows and columns of one index page, unless a field asks for others: 64 tiles, about 1.6 KB of index. */
 export const DEFAULT_PAGE: readonly [number, number] = [8, 8];
@@ -263,6 +265,8 @@ export interface Container {
   payloadEnd: number;
   /** The limits the container was checked against (defaults merged with the caller's). */
   limits: Limits;
+  /** The required flags (prologue and tail agree). */
+  flags: number;
 }
 
 function same(a: Uint8Array, b: Uint8Array): boolean {
@@ -465,7 +469,7 @@ export async function readContainer(src: ByteSource, given?: Partial<Limits>): P
   const db = block.subarray(headerLength);
   const bounds = { start: PROLOGUE_SIZE, end, header: { offset: headerOffset, length: headerLength }, directory: { offset: dirOffset, length: dirLength } };
   const { directory, payloadEnd } = checkDirectory(decodeBlock(db, `index directory (at offset ${dirOffset})`, label, limits), header, bounds, limits, label);
-  return { size, version, header, directory, payloadEnd, limits };
+  return { size, version, header, directory, payloadEnd, limits, flags };
 }
 
 /**
@@ -525,6 +529,6 @@ export function checkVersion(version: number, flags: number, label: string): voi
     throw new FormatError(FormatCode.Unsupported, `${label}: format version ${version} is not supported (this reader knows ${VERSIONS.join(', ')})`);
   }
   if ((flags & ~KNOWN_FLAGS) !== 0) {
-    throw new FormatError(FormatCode.Unsupported, `${label}: required flags 0x${(flags & ~KNOWN_FLAGS).toString(16)} are unknown to this reader (it knows 0x${KNOWN_FLAGS.toString(16)}: bit 0, slices; bit 1, layer)`);
+    throw new FormatError(FormatCode.Unsupported, `${label}: required flags 0x${(flags & ~KNOWN_FLAGS).toString(16)} are unknown to this reader (it knows 0x${KNOWN_FLAGS.toString(16)}: bit 0, slices; bit 1, layer; bit 2, symbols)`);
   }
 }

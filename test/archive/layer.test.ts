@@ -17,7 +17,7 @@ import { tileCount, tileOrigin, tileShape, windowTiles } from '../../src/geometr
 import { MemorySource, type ByteRange, type ByteSource } from '../../src/io/source.js';
 import type { FloatArray } from '../../src/types.js';
 import { mulberry32 } from '../rng.js';
-import { layeredArchive, smoothFactors, type LayeredSpec } from '../format/layered.js';
+import { layeredArchive, smoothFactors, symbolsFlag, type LayeredSpec } from '../format/layered.js';
 
 /** A field of slices x rows x cols: the layer's product, plus a smaller local pattern and noise (so tiles keep work of their own). */
 function fieldOf(slices: number, rows: number, cols: number, k: number, noise: number, f32 = false): LayeredSpec {
@@ -56,7 +56,7 @@ async function independent(bytes: Uint8Array, name: string, left: Float64Array, 
     const term = new Float64Array(m * n);
     for (let i = 0; i < m; i++) for (let j = 0; j < n; j++) term[i * n + j] = termAt(left, right, k, s * rows + i0 + i, j0 + j);
     const payload = bytes.subarray(e.offset, e.offset + e.length);
-    const got = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where: 'test', fieldStep: fieldStep(h.bound.tolerance), layer: useLayer && e.method === Method.LowRank ? term : null });
+    const got = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where: 'test', fieldStep: fieldStep(h.bound.tolerance), layer: useLayer && e.method === Method.LowRank ? term : null, symbols: symbolsFlag(bytes) });
     for (let i = 0; i < m; i++) for (let j = 0; j < n; j++) out[(s * rows + i0 + i) * cols + j0 + j] = got[i * n + j];
   }
   return out;

@@ -13,6 +13,7 @@ import { decodeTile } from '../../src/codec/tile-decode.js';
 import { crc32 } from '../../src/format/crc32.js';
 import { copyBlock, tileCount, tileOrigin, tileShape } from '../../src/geometry.js';
 import type { FloatArray } from '../../src/types.js';
+import { symbolsFlag } from '../format/layered.js';
 
 /** The whole stacked field `name` of archive `bytes`, decoded tile by tile with its layer's term; throws on a value CRC mismatch. */
 export async function readLayered(bytes: Uint8Array, name: string): Promise<{ values: FloatArray; rank: number }> {
@@ -32,7 +33,7 @@ export async function readLayered(bytes: Uint8Array, name: string): Promise<{ va
       const [m, n] = tileShape(h, t);
       const payload = bytes.subarray(e.offset, e.offset + e.length);
       const term = factors ? tileLayerTerm(factors, h, t, m, n) : null;
-      const v = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where: `tile ${t}`, fieldStep: fieldStep(h.bound.tolerance), layer: term });
+      const v = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where: `tile ${t}`, fieldStep: fieldStep(h.bound.tolerance), layer: term, symbols: symbolsFlag(bytes) });
       if (crc32(new Uint8Array(v.buffer, v.byteOffset, v.byteLength)) !== e.value_crc) throw new Error(`tile ${t}: value CRC-32 mismatch`);
       const { s, i0, j0 } = tileOrigin(h, t);
       copyBlock(v, n, 0, 0, m, n, out, cols, s * h.shape[0] + i0, j0);

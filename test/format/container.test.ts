@@ -197,14 +197,14 @@ describe('prologue and tail', () => {
     });
   }
 
-  // Bits 0 (slices) and 1 (layer) are known (spec/FORMAT.md, Section 4); the message names the unknown bits only.
-  for (const flags of [0x0004, 0x8000, 0xffff]) {
+  // Bits 0 (slices), 1 (layer) and 2 (symbols) are known (spec/FORMAT.md, Section 4); the message names the unknown bits only.
+  for (const flags of [0x0008, 0x8000, 0xffff]) {
     it(`unknown required flags 0x${flags.toString(16)} are refused as unsupported`, async () => {
       const b = smallLowRank();
       new DataView(b.buffer).setUint16(10, flags, true);
       new DataView(b.buffer).setUint16(b.length - TAIL + 10, flags, true);
       resealTail(b);
-      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`0x${(flags & ~3).toString(16)} are unknown`));
+      expectFormatError(await readAll(b), FormatCode.Unsupported, new RegExp(`0x${(flags & ~7).toString(16)} are unknown`));
     });
   }
 

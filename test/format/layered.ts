@@ -16,7 +16,8 @@ import { ErrorTally } from '../../src/codec/tally.js';
 import { encodePointwise } from '../../src/codec/tile-encode.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
 import { fieldStep } from '../../src/codec/payload.js';
-import { ContainerWriter, FLAG_LAYER, FLAG_SLICES, MemorySink } from '../../src/format/container.js';
+import { ContainerWriter, FLAG_LAYER, FLAG_SLICES, FLAG_SYMBOLS, MemorySink } from '../../src/format/container.js';
+import { usesSymbolCoder } from '../../src/codec/payload.js';
 import { type FieldHeader, type FieldIndex, pageCount, pageTiles } from '../../src/format/schema.js';
 import { copyBlock, cutTile, tileCount, tileOrigin, tileShape } from '../../src/geometry.js';
 import type { FloatArray } from '../../src/types.js';
@@ -103,7 +104,7 @@ function encodeField(values: FloatArray, header: FieldHeader, termOf: (t: number
     index.prefix.push(progressive ? measurePrefixes(payload, prepared, fill) : []);
     total.merge(tally);
     index.summary.valid += stats.valid;
-    const out = decodeTile(payload, { m, n, dtype: header.dtype, fill, where: 'layered test archive', fieldStep: fieldStep(tol), layer: term });
+    const out = decodeTile(payload, { m, n, dtype: header.dtype, fill, where: 'layered test archive', fieldStep: fieldStep(tol), layer: term, symbols: true });
     const { s, i0, j0 } = tileOrigin(header, t);
     copyBlock(out, n, 0, 0, m, n, decoded, header.shape[1], s * header.shape[0] + i0, j0);
   }
@@ -111,6 +112,11 @@ function encodeField(values: FloatArray, header: FieldHeader, termOf: (t: number
   index.summary.rmse = total.rmse;
   if (!progressive) delete (index as Partial<typeof index>).prefix;
   return { header, payloads, index, decoded };
+}
+
+/** Whether an archive sets required flag bit 2 (symbols): its prologue's u16 at byte 10 (spec/FORMAT.md 3.1, 4). */
+export function symbolsFlag(archive: Uint8Array): boolean {
+  return (new DataView(archive.buffer, archive.byteOffset, archive.byteLength).getUint16(10, true) & FLAG_SYMBOLS) !== 0;
 }
 
 /** A plain header of a field with an absolute bound. */
@@ -156,7 +162,9 @@ export function layeredArchive(o: LayeredSpec): Layered {
   main.header.layer = { rank: k, left: at.left, right: at.right };
   const page = o.page ?? [8, 8];
   const sink = new MemorySink();
-  const w = new ContainerWriter(sink, FLAG_LAYER | (slices > 1 ? FLAG_SLICES : 0));
+  // Required flag bit 2 when a residual uses the symbol coder (spec/FORMAT.md 4), as the library's writer sets it.
+  const symbols = order.some((f) => f.payloads.some(usesSymbolCoder)) ? FLAG_SYMBOLS : 0;
+  const w = new ContainerWriter(sink, FLAG_LAYER | (slices > 1 ? FLAG_SLICES : 0) | symbols);
   const fields: FieldIndex[] = order.map((f) => {
     const offset: number[] = [];
     const length: number[] = [];

@@ -10,14 +10,16 @@
  * in f32 and f64), residuals with and without Lorenzo prediction, with and
  * without factors, and exceptions; and the header's optional parts (fill
  * values, attributes, an N-D field, a field layer with its two factor
- * fields). The values are generated (sums of separable cosines, spikes,
- * holes): seeds only need to be valid archives.
+ * fields), and residuals of both coders. The values are generated (sums of
+ * separable cosines, spikes, holes; one crop of a vega-datasets grid):
+ * seeds only need to be valid archives.
  */
 import { ArchiveBuilder, pack } from '../../src/pack.js';
 import { MemorySink } from '../../src/format/container.js';
 import type { FloatArray } from '../../src/types.js';
 import { Rng } from './rng.js';
 import { layeredArchive, smoothFactors } from '../format/layered.js';
+import { precip } from '../archive/datasets.js';
 
 /** A seed archive and what it was made from. */
 export interface Seed {
@@ -99,6 +101,12 @@ export function buildSeeds(): Seed[] {
     for (let i = 0; i < 24; i++) for (let j = 0; j < 24; j++) rough[i * 24 + j] += u[i] * w[j] * (3 - k);
   }
   add('rough-factors-f64', pack(rough, [24, 24], { bound: 'abs:1e-4', tile: 24, name: 'rough', progressive: true }));
+
+  // A dense residual (annual precipitation of vega-datasets' data/annual-precip.json, rows 60..83, columns 100..139, at a
+  // fine bound): its tiles take the symbol coder (spec/FORMAT.md 10.3.8), and the file required flag bit 2.
+  const pr = precip();
+  const crop = Float32Array.from({ length: 24 * 40 }, (_, c) => pr.values[(60 + Math.floor(c / 40)) * pr.shape[1] + 100 + (c % 40)]);
+  add('symbols-f32', pack(crop, [24, 40], { bound: 'rel:1e-4', tile: [12, 20], name: 'precip' }));
 
   add('rmse-f64', pack(smooth(24, 24, 8, 4), [24, 24], { bound: 'rmse:1e-3', tile: 8, name: 'l2' }));
   add('psnr-f32', pack(Float32Array.from(smooth(20, 30, 9, 3)), [20, 30], { bound: 'psnr:50', tile: 10, name: 'psnr' }));

@@ -23,6 +23,7 @@ import { Rng } from './rng.js';
 import { open } from '../../src/archive.js';
 import { crc32 } from '../../src/format/crc32.js';
 import { classesOf, MUTATION_KINDS } from './mutate.js';
+import { FLAG_SYMBOLS } from '../../src/format/container.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
 import { fillWords } from '../../src/codec/mask.js';
 import { FormatError } from '../../src/errors.js';
@@ -45,6 +46,8 @@ describe('fuzzing', () => {
           if (w.groups.length > 1) seen.add('several factor groups');
           if (w.rank > 0 && w.flags & PayloadFlag.Residual) seen.add('factors and a residual');
           if (w.residualPredictor !== undefined) seen.add(w.residualPredictor === 0 ? 'residual not predicted' : 'residual predicted');
+          // Residual byte bit 3: the binary coder or the symbol coder (spec/FORMAT.md 10.3.8, 10.6.5).
+          if (w.residualByteAt !== undefined) seen.add(p[w.residualByteAt] & 0x08 ? 'residual symbol-coded' : 'residual binary-coded');
           for (const [bit, name] of Object.entries(Flag)) if (p[1] & name) seen.add(`flag ${bit}`);
           seen.add(`centre form ${w.centreForm}`);
           if (w.residualStepForm !== undefined) seen.add(`step form ${w.residualStepForm}`);
@@ -63,6 +66,7 @@ describe('fuzzing', () => {
     const want = ['method 0', 'method 1', 'rank > 0 as values', 'rank > 0 as differences', 'several factor groups', 'factors and a residual'];
     // Centre form 1 and step form 2 (binary64): the tiny-f64, tiny-psnr-f64 and huge-f64 seeds' centres and steps lie beyond
     // binary32's normal range; centre form 2 and step form 3 (integers): seeds of integer-valued fields (their lattice).
+    want.push('residual symbol-coded', 'residual binary-coded');
     want.push('flag Mask', 'flag Residual', 'flag Exceptions', 'flag FactorDelta', 'residual predicted', 'residual not predicted', 'raw NaN bits f32', 'raw NaN bits f64');
     want.push('centre form 0', 'centre form 1', 'centre form 2', 'step form 0', 'step form 1', 'step form 2', 'step form 3');
     want.push('class 0', 'class 1', 'class 2', 'class 3', 'class 4', 'class 5', 'several fields', 'an N-D field', 'a field layer', 'f32', 'f64');
@@ -116,7 +120,7 @@ describe('fuzzing', () => {
         const p = field[t];
         const [rows, cols] = tileDims(h, t);
         const fill = h.fill instanceof Uint8Array ? new DataView(h.fill.buffer, h.fill.byteOffset, 8).getFloat64(0, true) : h.fill;
-        const ctx = { m: rows, n: cols, dtype: h.dtype, fill: fillWords(fill, h.dtype), where: `${h.name} tile ${t}`, fieldStep: fieldStep(h.bound.tolerance) };
+        const ctx = { m: rows, n: cols, dtype: h.dtype, fill: fillWords(fill, h.dtype), where: `${h.name} tile ${t}`, fieldStep: fieldStep(h.bound.tolerance), symbols: (m.flags & FLAG_SYMBOLS) !== 0 };
         const seedValues = Buffer.from(decodeTile(p, ctx).buffer);
         for (const part of walk(p).parts) {
           if (part.kind !== 'coded') continue;

@@ -581,10 +581,13 @@ describe('tile payloads', () => {
 
   it('refuses a residual byte with reserved bits or predictor 7, an integer step of 0, and the field step where the tolerance gives none; takes the field step from the stored tolerance (spec/FORMAT.md 10.6.5)', async () => {
     const r = withPart('residual', (w) => w.residualStepForm === 0);
-    for (const bits of [0x08, 0x40, 0x80]) {
+    for (const bits of [0x40, 0x80]) {
       const e = await refusal(editPayload(r.bytes, r.f, r.t, (p, w) => void (p[w.residualByteAt!] |= bits)));
-      expect(e.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: residual byte 0x[0-9a-f]+ at (payload|file) offset \\d+ has bits outside 0x37 set$`));
+      expect(e.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: residual byte 0x[0-9a-f]+ at (payload|file) offset \\d+ has bits outside 0x3f set$`));
     }
+    // Bit 3 names the symbol coder, which a file without required flag bit 2 may not use (spec/FORMAT.md 4, 10.6.5).
+    const coder = await refusal(editPayload(r.bytes, r.f, r.t, (p, w) => void (p[w.residualByteAt!] |= 0x08)));
+    expect(coder.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: residual byte 0x[0-9a-f]+ at (payload|file) offset \\d+ names the symbol coder \\(bit 3\\), but the file's required flag bit 2 \\(symbols\\) is not set$`));
     const seven = await refusal(editPayload(r.bytes, r.f, r.t, (p, w) => void (p[w.residualByteAt!] |= 7)));
     expect(seven.message).toMatch(new RegExp(`^archive field '${r.field}' tile ${r.t}: residual predictor 7 at (payload|file) offset \\d+ is not one of 0..6$`));
     // Step form 3 with the varint 0 inserted after the residual byte: an integer step must be positive.

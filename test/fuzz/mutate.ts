@@ -18,6 +18,8 @@ import { deflateSync, inflateSync } from 'fflate';
 import { Lying, Num, Raw, RawMap, encodeValue } from './msgpack.js';
 import { decodeClasses, decodeInts } from '../../src/codec/code-decode.js';
 import { encodeClasses, encodeInts } from '../../src/codec/code-encode.js';
+import { decodeSymbols } from '../../src/codec/code-symbols.js';
+import { encodeSymbols } from '../../src/codec/code-symbols-encode.js';
 import { crc32 } from '../../src/format/crc32.js';
 import { cloneModel, directoryValue, headerValue, layout, pageValues, PayloadFlag, readVarint, replaceStream, resealTail, serialize, setCentre, setLength, setResidualStep, splice, TAIL, tileDims, varintBytes, walk, type Block, type Model, type PartRef, type PayloadLayout } from './model.js';
 import type { Rng } from './rng.js';
@@ -301,10 +303,12 @@ export function recode(p: Uint8Array, layout: PayloadLayout, part: PartRef, m: n
     edit(classes, g);
     next = encodeClasses(classes, m, n);
   } else {
+    // A residual with coder bit 3 set is a symbol-coded stream (spec/FORMAT.md 10.3.8, 10.6.5).
+    const symbols = part.name === 'residual' && layout.residualByteAt !== undefined && (p[layout.residualByteAt] & 0x08) !== 0;
     const values = new Int32Array(g.m * g.n);
-    decodeInts(stream, g.m, g.n, g.codes, values);
+    (symbols ? decodeSymbols : decodeInts)(stream, g.m, g.n, g.codes, values);
     edit(values, g);
-    next = encodeInts(values, g.m, g.n, g.codes);
+    next = (symbols ? encodeSymbols : encodeInts)(values, g.m, g.n, g.codes);
   }
   return replaceStream(p, part, next);
 }
@@ -816,7 +820,9 @@ function prefixCut(m: Model, rng: Rng, touch: (key: string) => void): string {
 function containerWords(m: Model, rng: Rng): string {
   const which = rng.pick(['version', 'flags', 'order', 'gap', 'stale crc', 'tail version']);
   if (which === 'version') m.version = rng.pick([0, 1, 2, 3, 4, 5, 6, 7, 0xffff]);
-  else if (which === 'flags') m.flags = 1 << (1 + rng.int(15)); // bit 0 (slices) is known; every other bit must be refused
+  // Bits 0-2 (slices, layer, symbols) are known: an unknown one must be refused, and so must a file whose residuals use the
+  // symbol coder with bit 2 cleared (spec/FORMAT.md 4).
+  else if (which === 'flags') m.flags = (m.flags & 0x4) !== 0 && rng.chance(0.5) ? m.flags & ~0x4 : 1 << (3 + rng.int(13));
   else if (which === 'order') m.headerFirst = true;
   else if (which === 'gap') m.gap = new Uint8Array(rng.range(1, 64)).map(() => rng.int(256));
   else if (which === 'stale crc') m.fixCrcs = false;

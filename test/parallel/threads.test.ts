@@ -77,6 +77,18 @@ describe('packAsync: the same archive for every thread count', () => {
     }, 120_000);
   }
 
+  // Dense residuals take the symbol coder (spec/FORMAT.md 10.3.8, 19), chosen tile by tile on the workers; the
+  // required flag bit 2 is set as the first such tile is written, whichever thread coded it.
+  it('annual-precip rel:1e-4: residuals on the symbol coder, flag bit 2, the same bytes on 1 and 2 threads', async () => {
+    const g = precip();
+    const values = Float32Array.from(g.values);
+    const o = { bound: 'rel:1e-4', tile: 48 };
+    const sync = lib.pack(values, g.shape, o);
+    expect(new DataView(sync.buffer, sync.byteOffset).getUint16(10, true) & 4).toBe(4);
+    expect(same(await lib.packAsync(values, g.shape, { ...o, threads: 2 }), sync)).toBe(true);
+    expect((await (await lib.open(sync)).check(values)).failures).toEqual([]);
+  }, 120_000);
+
   // The field layer is chosen and computed in the calling thread; each tile's term travels to its worker.
   it.each([
     ['rel:1e-3', 2],
