@@ -389,7 +389,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
  * depend on the predictor: only valid cells' codes are checked, and they
  * are the same codes.
  */
-function blendVariant(t: PreparedTile, f: Factors | null, corr: Correction): Uint8Array | null {
+function blendVariant(t: PreparedTile, f: Factors | null, corr: Correction): Coded | null {
   if (!corr.raw || corr.q === null || corr.bits === undefined) return null;
   const { m, n } = t;
   const codes = t.classes.codes;
@@ -400,7 +400,7 @@ function blendVariant(t: PreparedTile, f: Factors | null, corr: Correction): Uin
   const other = corr.coded ?? encodeInts(corr.q, m, n, mask);
   const mine = encodeInts(d, m, n, mask);
   if (!(mine.length < BLEND_MARGIN * other.length)) return null;
-  return lowRankPayload(t, f, { ...corr, q: d, predictor: Predictor.Blend, coded: mine });
+  return { payload: lowRankPayload(t, f, { ...corr, q: d, predictor: Predictor.Blend, coded: mine }), codes: d };
 }
 
 /**
@@ -445,9 +445,14 @@ function rankZero(t: PreparedTile, e: number): Candidate {
  * parts and their error grids), so the search ranks its candidates
  * without it and tries it on the winner only.
  */
-interface Candidate {
+interface Candidate extends Coded {
+  withBlend(): Coded;
+}
+
+/** A payload and the grid its residual stream codes (null without a residual), for {@link withResidualCoder}. */
+interface Coded {
   payload: Uint8Array;
-  withBlend(): Uint8Array;
+  codes: Int32Array | null;
 }
 
 function candidate(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center): Candidate {
@@ -455,7 +460,8 @@ function candidate(t: PreparedTile, f: Factors | null, e: number, step = binary3
   // The residual coded once, here: the payload and, for the winner, the blend's comparison use it.
   const corr = chosen.q && !chosen.coded ? { ...chosen, coded: encodeInts(chosen.q, t.m, t.n, t.classes.special > 0 ? t.classes.codes : null) } : chosen;
   const payload = lowRankPayload(t, f, corr);
-  return { payload, withBlend: () => blendVariant(t, f, corr) ?? payload };
+  const codes = corr.q;
+  return { payload, codes, withBlend: () => blendVariant(t, f, corr) ?? { payload, codes } };
 }
 
 /**
@@ -474,15 +480,21 @@ const SYMBOLS_MARGIN = 1.01;
  * Only the final payload of a tile is re-coded: the rank and predictor
  * search costs its candidates with the binary coder. The payload is
  * returned as it is when it has no residual or keeps the binary coder.
+ * `given` is the grid the residual stream codes, when the caller has it
+ * (otherwise it is decoded from the stream).
  */
-export function withResidualCoder(t: PreparedTile, payload: Uint8Array): Uint8Array {
+export function withResidualCoder(t: PreparedTile, payload: Uint8Array, given: Int32Array | null = null): Uint8Array {
   const place = residualPlace(payload);
   if (place === null || (payload[place.byteAt] & RESIDUAL_SYMBOLS) !== 0) return payload;
   const { m, n } = t;
   const mask = t.classes.special > 0 ? t.classes.codes : null;
   const binary = payload.subarray(place.streamAt, place.streamEnd);
-  const d = new Int32Array(m * n);
-  decodeInts(binary, m, n, mask, d);
+  // The grid the binary stream codes: the encoder's own when it has it, else read back from the stream.
+  let d = given;
+  if (d === null) {
+    d = new Int32Array(m * n);
+    decodeInts(binary, m, n, mask, d);
+  }
   let coded = 0;
   let nonzero = 0;
   for (let c = 0; c < d.length; c++) {
@@ -521,7 +533,8 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   let best = rankZero(t, e);
   if (e > 0) best = searchRanks(t, e, best);
   const blended = best.withBlend();
-  return orExact(t, withResidualCoder(t, blended.length < best.payload.length ? blended : best.payload));
+  const pick = blended.payload.length < best.payload.length ? blended : best;
+  return orExact(t, withResidualCoder(t, pick.payload, pick.codes));
 }
 
 /**
