@@ -4,11 +4,23 @@
  * data/volcano.json (87 wide x 61 high, heights of Maunga Whau in metres) and
  * data/annual-precip.json (360 wide x 168 high), both row-major `values`.
  */
-import { readFileSync } from 'node:fs';
-import { dirname, join, resolve } from 'node:path';
+import { existsSync, readFileSync } from 'node:fs';
+import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 
-export const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '../..');
+/**
+ * The repository's root: the nearest directory above this module that holds
+ * node_modules/vega-datasets (two levels up when the tests run from test/;
+ * further when the long fuzz run runs from its build in bench/out/fuzz).
+ */
+export const ROOT = ((): string => {
+  for (let dir = dirname(fileURLToPath(import.meta.url)); ; ) {
+    if (existsSync(join(dir, 'node_modules', 'vega-datasets'))) return dir;
+    const up = dirname(dir);
+    if (up === dir) throw new Error('node_modules/vega-datasets not found above test/archive (run npm ci)');
+    dir = up;
+  }
+})();
 
 export interface Grid {
   values: Float64Array;
