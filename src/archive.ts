@@ -494,18 +494,36 @@ export class Archive {
       const fp = this.pages[position];
       const all = await this.pagesForCheck(position, (what) => fail(-1, what));
       const entry = (t: number) => fp.entry(this.container, position, t);
-      // A layered field's tiles need the factor rows of each batch; factor rows that cannot be read fail the
-      // batch's LowRank tiles once, with the factor field's own failures reported under its name.
+      // A layered field's tiles need the factor rows of each batch. When some cannot be read, the batch's
+      // failure is reported once (with the factor field's own failures under its name), and each LowRank tile
+      // of the batch is tried on its own: those whose rows fail are reported by tile, as a read of them fails,
+      // and the others are checked on the rows that do read.
       const layer = this.layerRows(h, true);
-      let layerFailed: string | null = null;
+      const layerFailed = new Map<number, string>();
       const loadLayer = async (batch: readonly number[]) => {
-        layerFailed = null;
+        layerFailed.clear();
+        const lowRank = batch.filter((t) => entry(t).method === Method.LowRank);
         try {
-          await layer!.load(batch.filter((t) => entry(t).method === Method.LowRank));
+          await layer!.load(lowRank);
+          return;
         } catch (e) {
           if (!(e instanceof FormatError)) throw e;
-          layerFailed = e.message;
           fail(-1, `layer factors of tiles ${batch[0]} to ${batch[batch.length - 1]}: ${e.message}`);
+        }
+        for (const t of lowRank) {
+          try {
+            await layer!.load([t]);
+          } catch (e) {
+            if (!(e instanceof FormatError)) throw e;
+            layerFailed.set(t, e.message);
+          }
+        }
+        const readable = lowRank.filter((t) => !layerFailed.has(t));
+        try {
+          await layer!.load(readable);
+        } catch (e) {
+          if (!(e instanceof FormatError)) throw e;
+          for (const t of readable) layerFailed.set(t, e.message);
         }
       };
       // A band original: the band of the tile row being checked, read once (tiles come in order).
@@ -528,7 +546,8 @@ export class Archive {
         const ix = entry(t);
         try {
           if (payload instanceof FormatError) throw payload;
-          if (layerFailed !== null && ix.method === Method.LowRank) return;
+          const rowsFailed = ix.method === Method.LowRank ? layerFailed.get(t) : undefined;
+          if (rowsFailed !== undefined) throw new FormatError(FormatCode.Malformed, `its layer's factor rows cannot be read: ${rowsFailed}`);
           tile = this.decodePayload(h, ix, t, payload, true, layer);
         } catch (e) {
           if (!(e instanceof FormatError)) throw e;

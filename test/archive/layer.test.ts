@@ -136,6 +136,29 @@ describe('reading a layered field', () => {
     expect(report.fields[0].measured!.maxErr).toBeLessThanOrEqual(spec.tol);
   });
 
+  it('with a factor tile damaged, check reports by tile exactly the tiles of the field that cannot be read', async () => {
+    // Found by the long fuzz run (npm run fuzz, seed 4242): check reported the batch once and no tile of it.
+    const a0 = await open(made.bytes);
+    const e = await a0.tileEntry('field.left', 1);
+    const bad = made.bytes.slice();
+    bad[e.offset + 2] ^= 0x55;
+    const a = await open(bad);
+    const h = a.field('field').header;
+    const unreadable: number[] = [];
+    for (let t = 0; t < tileCount(h); t++) {
+      const got = await a.tile('field', t, true).catch((x: unknown) => x);
+      if (got instanceof FormatError) unreadable.push(t);
+      else if (got instanceof Error) throw got;
+    }
+    // The damaged left factor tile holds some tile rows only: some tiles read, some do not.
+    expect(unreadable.length).toBeGreaterThan(0);
+    expect(unreadable.length).toBeLessThan(tileCount(h));
+    const report = await a.check();
+    const byTile = report.failures.filter((f) => f.field === 'field' && f.tile >= 0).map((f) => f.tile);
+    expect(byTile.sort((x, y) => x - y)).toEqual(unreadable);
+    expect(report.failures.some((f) => f.field === 'field.left' && f.tile === 1)).toBe(true);
+  });
+
   it('an f32 field of one slice with a fill value reads through its layer too', async () => {
     const f = fieldOf(1, 30, 23, 2, 0, true);
     f.values[7] = -999;
