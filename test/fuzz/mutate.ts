@@ -979,7 +979,13 @@ export function mutate(seed: Model, others: Uint8Array[], rng: Rng): Mutated {
         touch(`payload ${at[0]}/${at[1]}`);
         ops.push(mutateFixed(m, at[0], at[1], rng));
       } else if (op === 'header value') ops.push(editValue(m.header, rng, 'header'));
-      else if (op === 'header consistent') ops.push(consistentHeader(m, rng));
+      else if (op === 'header consistent') {
+        const what = consistentHeader(m, rng);
+        // A second edit of one field's layer may undo the first (a bad layer, then the layer removed): free the case.
+        const layer = /^field \d+ layer/.exec(what)?.[0];
+        if (layer) touch(layer);
+        ops.push(what);
+      }
       else if (op === 'index value') {
         // Index columns are long: aim at one field's columns directly, or anywhere in the index.
         const f = rng.int(m.index.fields.length);
