@@ -320,10 +320,12 @@ export function decodeSymbols(all: Uint8Array, m: number, n: number, codes: Uint
             mag = 2 + (s & 1);
           }
         } else {
-          // Decisions: the class above 11 in unary (at most 18 ones), then the bit below the leading one.
+          // Decisions: the class above 11 in unary (at most 18 ones), then the bit below the leading one
+          // (one loop for both: the escape is rare, and its decisions are written out once).
           k = ESC_K;
+          let top = false;
           for (;;) {
-            ctx = ESC_AT + k - ESC_K;
+            ctx = top ? TOP_AT + k - ESC_K : ESC_AT + k - ESC_K;
             pr = p[ctx];
             cnt = count[ctx];
             bound = Math.imul(range >>> PROB_BITS, pr) >>> 0;
@@ -343,29 +345,9 @@ export function decodeSymbols(all: Uint8Array, m: number, n: number, codes: Uint
               code = ((code << 8) | (pos < end ? bytes[pos] : 0)) >>> 0;
               pos++;
             }
-            if (bit === 0) break;
-            k++;
-            if (k === 30) break;
-          }
-          ctx = TOP_AT + k - ESC_K;
-          pr = p[ctx];
-          cnt = count[ctx];
-          bound = Math.imul(range >>> PROB_BITS, pr) >>> 0;
-          if (code < bound) {
-            range = bound;
-            p[ctx] = pr + ((PROB_ONE - pr) >> shifts[cnt]);
-            bit = 0;
-          } else {
-            code = (code - bound) >>> 0;
-            range = (range - bound) >>> 0;
-            p[ctx] = pr - (pr >> shifts[cnt]);
-            bit = 1;
-          }
-          if (cnt < 255) count[ctx] = cnt + 1;
-          while (range < TOP) {
-            range = (range << 8) >>> 0;
-            code = ((code << 8) | (pos < end ? bytes[pos] : 0)) >>> 0;
-            pos++;
+            if (top) break;
+            if (bit === 1 && ++k < 30) continue;
+            top = true;
           }
           mag = 2 + bit;
         }
