@@ -328,8 +328,8 @@ export class ArchiveBuilder {
     // With the tile trial, the number of tiles is known only after it; the trial's tiles are encoded on the pool too.
     const workers = spec.autoTile ? (o.pool === undefined && fieldCells(spec) <= WHOLE_CELLS ? 1 : threads) : Math.min(threads, tileCount(spec));
     if (workers === 1) return this.encode(src, spec, o, page, layer);
-    // The calling thread encodes tiles too, as one of the threads.
-    const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result, preload: 'encode' });
+    // The calling thread encodes tiles too, as one of the threads, and takes back tiles a worker has not started when it has none left.
+    const pool = o.pool ?? new WorkerPool(workers, { local: (kind, body) => encodeTasks[kind as keyof typeof encodeTasks](body as never).result, preload: 'encode', steal: true });
     try {
       this.checkField(spec);
       let prior: FieldPrior | undefined;

@@ -7,6 +7,12 @@
  * a time each, so a worker never waits for work while the queue holds some
  * and the queue, not the workers' message ports, holds the rest.
  *
+ * With `steal`, a task posted to a worker that has not started it yet may
+ * be taken back by the calling thread's lane when that lane is free and
+ * the queue is empty: few long tasks (a large field's coarse tiles) then
+ * end on both threads together, instead of the calling thread waiting
+ * for the tasks queued in a worker's port (see {@link PoolOptions.steal}).
+ *
  * Errors keep their type: a FormatError or InputError thrown in a worker
  * rejects its task with the same class, code and message; a system error
  * keeps its code and path. A worker that dies (an uncaught error, running
@@ -71,6 +77,13 @@ export interface TaskMessage {
   id: number;
   kind: string;
   body: unknown;
+  /**
+   * A stealable task's claim (see {@link PoolOptions.steal}): one Int32 in
+   * shared memory, 0 until a thread starts the task; the worker sets it to
+   * 1 before it runs the task, the calling thread to 2 when it takes the
+   * task back, each with Atomics.compareExchange, so exactly one runs it.
+   */
+  claim?: Int32Array;
 }
 
 /** A worker's answer to task `id`. */
@@ -87,6 +100,7 @@ interface Task {
   transfer: TransferListItem[];
   resolve: (v: unknown) => void;
   reject: (e: unknown) => void;
+  claim?: Int32Array;
 }
 
 interface Slot {
@@ -120,6 +134,15 @@ export interface PoolOptions {
    * while the calling thread still prepares the work.
    */
   preload?: string;
+  /**
+   * With `local`: tasks posted to a worker (by {@link WorkerPool.run}) may
+   * be taken back by the calling thread when its lane is free and the
+   * queue is empty, if the worker has not started them: the last posted
+   * first. Their bodies are copied to the worker instead of transferred
+   * (this thread keeps them until the task is done). For tasks whose
+   * result does not depend on the thread that runs it.
+   */
+  steal?: boolean;
 }
 
 /** A fixed set of worker threads running the tasks of worker.ts. */
@@ -133,11 +156,13 @@ export class WorkerPool {
 
   private readonly local: PoolOptions['local'];
   private readonly depth: number;
+  private readonly steal: boolean;
 
   constructor(threads: number, options: PoolOptions = {}) {
     this.threads = checkThreads(threads);
     this.local = options.local;
     this.depth = options.depth ?? DEPTH;
+    this.steal = options.steal === true && options.local !== undefined;
     if (!Number.isSafeInteger(this.depth) || this.depth < 1) throw new InputError(InputCode.Option, `depth must be a positive integer, got ${String(options.depth)}`);
     if (this.local) this.slots.push({ worker: null, posted: new Map() });
     for (let i = this.slots.length; i < this.threads; i++) {
@@ -162,7 +187,8 @@ export class WorkerPool {
     if (this.failure) return Promise.reject(this.failure);
     if (this.closed) return Promise.reject(new Error('the worker pool is closed'));
     return new Promise<T>((resolve, reject) => {
-      this.queue.push({ id: this.nextId++, kind, body, transfer, resolve: resolve as (v: unknown) => void, reject });
+      const claim = this.steal ? new Int32Array(new SharedArrayBuffer(4)) : undefined;
+      this.queue.push({ id: this.nextId++, kind, body, transfer, resolve: resolve as (v: unknown) => void, reject, ...(claim ? { claim } : {}) });
       this.pump();
     });
   }
@@ -190,13 +216,32 @@ export class WorkerPool {
       if (best === null) return;
       this.post(best, this.queue.shift()!);
     }
+    if (this.steal) this.takeBack();
+  }
+
+  /** With `steal`: when the calling thread's lane is free, take back the last task posted to a worker that has not started it. */
+  private takeBack(): void {
+    const lane = this.slots[0];
+    if (lane.worker !== null || lane.posted.size > 0 || this.failure !== null || this.closed) return;
+    // The worker with the most tasks posted; its last posted task is the one it would start last.
+    let from: Slot | null = null;
+    for (const s of this.slots) if (s.worker && (from === null || s.posted.size > from.posted.size)) from = s;
+    if (from === null) return;
+    for (const task of [...from.posted.values()].reverse()) {
+      // 0 -> 2: taken back; fails when the worker set 1 first (it runs the task, and so every task posted before it).
+      if (task.claim === undefined || Atomics.compareExchange(task.claim, 0, 0, 2) !== 0) return;
+      from.posted.delete(task.id);
+      this.post(lane, task);
+      return;
+    }
   }
 
   private post(slot: Slot, task: Task): void {
     slot.posted.set(task.id, task);
-    const m: TaskMessage = { id: task.id, kind: task.kind, body: task.body };
+    const m: TaskMessage = { id: task.id, kind: task.kind, body: task.body, ...(task.claim && slot.worker ? { claim: task.claim } : {}) };
     if (slot.worker) {
-      slot.worker.postMessage(m, task.transfer);
+      // A task this thread may take back keeps its body here: copied, not transferred.
+      slot.worker.postMessage(m, task.claim ? [] : task.transfer);
       return;
     }
     // In this thread, after the events already waiting (worker answers, reads) are handled.

@@ -26,6 +26,8 @@ if (typeof preload === 'string') void tasksFor(preload).catch(() => undefined);
 
 const port = parentPort;
 port?.on('message', async (m: TaskMessage) => {
+  // A task the calling thread took back (see PoolOptions.steal) is not run, and not answered.
+  if (m.claim !== undefined && Atomics.compareExchange(m.claim, 0, 0, 1) !== 0) return;
   let reply: ReplyMessage;
   let transfer: TransferListItem[] = [];
   try {

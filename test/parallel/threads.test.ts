@@ -142,6 +142,48 @@ describe('WorkerPool options', () => {
       expect(() => new pool.WorkerPool(2, { depth })).toThrow(expect.objectContaining({ name: 'InputError', code: 'option' }));
     }
   });
+
+  it('with steal, a task posted to a worker keeps its body in this thread (copied, not transferred); without, it is transferred', async () => {
+    const local = (kind: string, body: unknown) => encode.encodeTasks[kind as 'encode-forget'](body as never).result;
+    for (const steal of [true, false]) {
+      const p = new pool.WorkerPool(2, { local, steal });
+      try {
+        const bufs = Array.from({ length: 6 }, () => new Float64Array(1000));
+        const runs = bufs.map((b) => p.run('encode-forget', { key: -1, b }, [b.buffer]));
+        // Three to the worker (its depth) and one to this thread's lane at once: the rest wait in the queue.
+        const kept = bufs.filter((b) => b.length === 1000).length;
+        expect(await Promise.all(runs)).toEqual(Array(6).fill(null));
+        expect(kept).toBe(steal ? 6 : 3);
+      } finally {
+        await p.close();
+      }
+    }
+  });
+
+  it('a worker skips, unanswered, a task whose claim another thread took (Atomics on shared memory), and claims the others before running them', async () => {
+    const { Worker } = await import('node:worker_threads');
+    const w = new Worker(join(ROOT, 'dist', 'parallel', 'worker.js'));
+    try {
+      const taken = new Int32Array(new SharedArrayBuffer(4));
+      taken[0] = 2;
+      const free = new Int32Array(new SharedArrayBuffer(4));
+      const replies: number[] = [];
+      const second = new Promise<void>((resolve) =>
+        w.on('message', (m: { id: number }) => {
+          replies.push(m.id);
+          if (m.id === 2) resolve();
+        }),
+      );
+      w.postMessage({ id: 1, kind: 'encode-forget', body: { key: -1 }, claim: taken });
+      w.postMessage({ id: 2, kind: 'encode-forget', body: { key: -1 }, claim: free });
+      await second;
+      // Messages are handled in order and task 1 is dropped at once, so its answer would have come first.
+      expect(replies).toEqual([2]);
+      expect([taken[0], free[0]]).toEqual([2, 1]);
+    } finally {
+      await w.terminate();
+    }
+  });
 });
 
 /** The bands readBands handed over, joined in order; they must hold `length` values in all. */
