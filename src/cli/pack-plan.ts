@@ -94,7 +94,7 @@ export async function packPlannedCli(input: string, kind: InputKind, flags: Pack
     const bar = out.tileProgress(`packing ${flags.part ? `part ${flags.part.join('/')}` : 'the field'} of '${printable(f.name)}'`, cells * (f.dtype === 'f32' ? 4 : 8));
     // A part runs on one thread unless told otherwise (parts are usually run many at once); a whole field as pack does.
     const threads = flags.threads ?? (flags.part ? 1 : (defaultThreads(undefined, cells) ?? checkThreads(undefined)));
-    const pool = threads > 1 ? new WorkerPool(threads, { local: (k, body) => encodeTasks[k as keyof typeof encodeTasks](body as never).result, preload: 'encode' }) : undefined;
+    const pool = threads > 1 ? new WorkerPool(threads, { local: (k, body) => encodeTasks[k as keyof typeof encodeTasks](body as never).result, preload: 'encode', steal: true }) : undefined;
     try {
       range = await writeOutputWith(flags.output, io, (sink) => packPlanned(sink, { band }, plan, { part: flags.part, onProgress: bar.onProgress, input, pool }).then(() => undefined)).then(() => total ?? partRange(plan, 1, 1));
     } finally {

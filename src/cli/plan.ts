@@ -184,7 +184,7 @@ async function planCli(input: string, field: BandReader, flags: PlanFlags & { bo
   const watch = flags.fill === false ? null : new RangeWatch(fill ?? null);
   const band = watchedBand(field, grid, input, fill, watch, () => undefined);
   const threads = defaultThreads(flags.threads, grid.rows * grid.cols) ?? checkThreads(undefined);
-  const pool = threads > 1 ? new WorkerPool(threads, { local: (k, body) => encodeTasks[k as keyof typeof encodeTasks](body as never).result, preload: 'encode' }) : null;
+  const pool = threads > 1 ? new WorkerPool(threads, { local: (k, body) => encodeTasks[k as keyof typeof encodeTasks](body as never).result, preload: 'encode', steal: true }) : null;
   let plan: RunPlan;
   try {
     plan = await makePlan({ band }, { spec, page, nd, file: basename(input), run: flags.run, planL2: pool ? async (src, s, c) => (await planL2Parallel(src, s, c, pool)).data : undefined });
