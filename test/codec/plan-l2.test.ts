@@ -263,11 +263,11 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     // so it is not costed; at psnr:40 none does, and the losers drop out on their bytes.
     const perCell = plans.filter((p) => p.kind === 'rank').map((p) => p.ranks.reduce((a, r) => a + r, 0) / 16 / 12);
     expect(perCell.every((v) => (ratio > 1e-3 ? v < 1 : v > 1))).toBe(true);
-    // The definition, stated directly on freshly prepared tiles: every plan on every tile, the plans of a tile in order
-    // (a later plan's payloads depend on the singular vectors an earlier one left), then the smallest total, the first on a tie.
+    // The definition, stated directly on freshly prepared tiles: every plan on every tile, then the smallest total, the
+    // first on a tie. The plans of a tile go in reverse order here: a payload does not depend on the SVDs an earlier plan left.
     const fresh = firstPass(src, spec, tol, null).kept;
     const totals = plans.map(() => 0);
-    for (const k of sample) for (const [at, p] of plans.entries()) totals[at] += encodeWith(p, fresh[k], k).length;
+    for (const k of sample) for (const [at, p] of [...plans.entries()].reverse()) totals[at] += encodeWith(p, fresh[k], k).length;
     const least = Math.min(...totals);
     const costed = costPlans(plans, sample, firstPass(src, spec, tol, null).kept);
     expect(costed.bytes).toBe(least);
