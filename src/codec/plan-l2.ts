@@ -71,6 +71,27 @@ export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8
   return withResidualCoder(t, best);
 }
 
+/**
+ * What a tile's payload under plan p depends on besides the tile: the
+ * plan's kind and its rank and steps for the tile, or its residual
+ * bounds (see {@link encodeWith}). Numbers print exactly as they are
+ * (the shortest string that reads back the same).
+ */
+function planKey(p: L2PlanData, index: number): string {
+  return p.kind === 'rank' ? `rank ${p.ranks[index]} ${p.c} ${p.dw}` : `residual ${p.ePrime} ${p.tol}`;
+}
+
+/** {@link encodeWith}, the payload kept on the tile for the second pass (see PreparedTile.costed). */
+function costedWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
+  const key = planKey(p, index);
+  let payload = t.costed.get(key);
+  if (payload === undefined) {
+    payload = encodeWith(p, t, index);
+    t.costed.set(key, payload);
+  }
+  return payload;
+}
+
 /** What the first pass learns of one tile (and the tile itself, prepared, while a field is small enough to keep it). */
 export interface FirstPassTile {
   /** Squared singular values in units of tol^2, so nothing overflows; descending, as the SVD gives them. */
@@ -315,14 +336,15 @@ const DROP_MARGIN = 0.15;
  * plan that {@link outnumbers} the cells is out from the start. The plans
  * share each tile's SVDs (see ensureSvd: what a candidate of rank r sees
  * does not depend on what was computed before), and the tiles keep them
- * for the second pass. The cheapest plan left wins; the first on a tie.
+ * for the second pass, with their payloads (see PreparedTile.costed). The
+ * cheapest plan left wins; the first on a tie.
  */
 export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): { plan: L2PlanData; bytes: number } {
   const bytes = new Float64Array(plans.length);
   const running = plans.map((p) => !outnumbers(p, sample, tiles));
   const dropAfter = Math.max(DROP_AFTER_TILES, Math.ceil(DROP_AFTER_SHARE * sample.length));
   for (let k = 0; k < sample.length; k++) {
-    for (const [at, p] of plans.entries()) if (running[at]) bytes[at] += encodeWith(p, tiles[k], sample[k]).length;
+    for (const [at, p] of plans.entries()) if (running[at]) bytes[at] += costedWith(p, tiles[k], sample[k]).length;
     if (k + 1 < dropAfter) continue;
     let least = Infinity;
     for (let at = 0; at < plans.length; at++) if (running[at]) least = Math.min(least, bytes[at]);
@@ -366,7 +388,8 @@ export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index:
     kept,
     encode(t, index) {
       const allotment = data.allot[index];
-      let payload = encodeWith(data, t, index);
+      // Of a tile the costing sampled, its payload under this plan is made already.
+      let payload = t.costed.get(planKey(data, index)) ?? encodeWith(data, t, index);
       // Under a field layer a tile's own spectrum is what the layer left, often near the rounding
       // of its factors: a rank plan's factors may then not come out, and the tile falls back to exact
       // storage (three tiles of 192 took 48 kB of a 74 kB archive, bench/'s basin-stack at
@@ -384,8 +407,9 @@ export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index:
         payload = exactPayload(t);
         res = measure(payload, t, fill);
       }
-      // The tile is done: a kept tile's SVDs need not outlive it (computed again, they would be the same).
+      // The tile is done: a kept tile's SVDs and payloads need not outlive it (made again, they would be the same).
       t.svds.clear();
+      t.costed.clear();
       return { payload, res };
     },
   };

@@ -35,6 +35,12 @@ export interface PreparedTile {
    * so every candidate of every search on this tile shares them.
    */
   svds: Map<number, Svd>;
+  /**
+   * Payloads the L2 plans' costing made of this tile, by plan and rank (see
+   * planKey in plan-l2.ts), so that the second pass takes the chosen plan's
+   * as they are instead of encoding the tile again.
+   */
+  costed: Map<string, Uint8Array>;
   /** How factor ranks are grouped in the payload (see groupSizes in tile-encode.ts). */
   grouping: 'one' | 'doubling';
   /**
@@ -104,7 +110,7 @@ export function prepareTile(
   }
   // The layer's term is no lattice point: lattice candidates would only miss.
   const lattice = layer ? { quantum: 0, origin: 0 } : integerLattice(orig, classes.codes);
-  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svds: new Map(), grouping, lattice, fieldStep: fieldStep(tol), layer };
+  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svds: new Map(), costed: new Map(), grouping, lattice, fieldStep: fieldStep(tol), layer };
 }
 
 /** Largest integer magnitude the lattice test accepts: far below 2^53, so differences and gcds are exact. */

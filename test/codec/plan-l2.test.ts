@@ -14,7 +14,7 @@ import { Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, firstPass, keepsTiles, leadingSpectrum, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, firstPass, keepsTiles, l2Plan, leadingSpectrum, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
 import { gramSingularValues } from '../../src/linalg/spectrum.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
@@ -272,5 +272,29 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     const costed = costPlans(plans, sample, firstPass(src, spec, tol, null).kept);
     expect(costed.bytes).toBe(least);
     expect(costed.plan).toBe(plans[totals.indexOf(least)]);
+  });
+
+  it('the second pass takes the payloads the costing made of a sampled tile: the same bytes as encoding a fresh tile', () => {
+    const [rows, cols, side] = [64, 96, 32];
+    const values = precipBlock(rows, cols);
+    let [lo, hi] = [Infinity, -Infinity];
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    // psnr:40 as above: RMSE limit range x 10^(-40 / 20) (common usage).
+    const tol = (hi - lo) * 0.01;
+    const spec: FieldSpec = { name: 'p', dtype: 'f64', rows, cols, tileRows: side, tileCols: side, bound: { mode: 'rmse', value: tol }, fill: null };
+    const src = memoryBands(values, cols);
+    const first = firstPass(src, spec, tol, null);
+    const plans = candidatePlans(first.spectra, tol);
+    const sample = [0, 2, 5];
+    const costed = costPlans(plans, sample, sample.map((k) => first.kept[k]));
+    const plan = l2Plan(costed.plan, null, (i) => first.kept[i]);
+    const fresh = firstPass(src, spec, tol, null).kept;
+    for (const k of [0, 1, 2, 5]) {
+      const t = first.kept[k];
+      expect(t.costed.size > 0).toBe(sample.includes(k));
+      expect(plan.encode(t, k).payload).toEqual(plan.encode(fresh[k], k).payload);
+      // Done with: the tile keeps neither payloads nor SVDs.
+      expect(t.costed.size + t.svds.size).toBe(0);
+    }
   });
 });
