@@ -56,17 +56,18 @@ export interface L2Plan {
 export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
   if (p.kind === 'rank') return encodeL2(t, p.ranks[index], p.c, p.dw);
   // The pointwise coder at ePrime, or a residual whose codes are chosen for rate as well as error, at
-  // rank 0 and at the rank the pointwise coder chose: the smallest.
+  // rank 0 and at the rank the pointwise coder chose: the smallest (on a tie, the first of these).
   const mse = 0.97 * p.tol * p.tol;
   let best = encodePointwise(t, p.ePrime);
-  const rdo = rankZeroForMse(t, mse, best.length);
-  if (rdo !== null && rdo.length < best.length) best = rdo;
   const r = payloadHead(best).rank;
-  if (r > 0) {
-    const f = pointwiseFactors(t, r, p.ePrime);
-    const withFactors = f && residualForMse(t, f, mse);
-    if (withFactors && withFactors.length < best.length) best = withFactors;
-  }
+  const f = r > 0 ? pointwiseFactors(t, r, p.ePrime) : null;
+  const withFactors = f && residualForMse(t, f, mse);
+  // The factors are those of the rank the pointwise coder chose, even when the rank-0 search wins over it.
+  // That search is made last, so that it can give up against the smaller of the others (on a smooth tile
+  // the factors' payload is often a fraction of the pointwise one).
+  const rdo = rankZeroForMse(t, mse, withFactors ? Math.min(best.length, withFactors.length) : best.length);
+  if (rdo !== null && rdo.length < best.length) best = rdo;
+  if (withFactors && withFactors.length < best.length) best = withFactors;
   // encodePointwise chose its residual coder already; the residual of the others is coded now.
   return withResidualCoder(t, best);
 }
