@@ -13,7 +13,8 @@ import { describe, expect, it } from 'vitest';
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { ensureSvd, PARTIAL_RANK, prepareTile, svdRung } from '../../src/codec/prepare.js';
-import { encodeL2, encodePointwise } from '../../src/codec/tile-encode.js';
+import { decodeTile } from '../../src/codec/tile-decode.js';
+import { correct, encodeL2, encodePointwise, lowRankPayload, pointwiseFactors } from '../../src/codec/tile-encode.js';
 
 /** A block of vega-datasets 3.2.1 annual-precip.json (NOAA CFSv2 2016 annual precipitation, 360 x 168): rows 20.., columns 30.., no missing cells. */
 function precipBlock(rows: number, cols: number): Float64Array {
@@ -95,5 +96,30 @@ describe('ensureSvd', () => {
     const l2Fresh = encodeL2(prepared(), 20, 0.5, 0.5);
     encodePointwise(used, 0.5);
     expect(encodeL2(used, 20, 0.5, 0.5)).toEqual(l2Fresh);
+  });
+});
+
+describe('the pointwise rank search (candidates ranked by estimated size, the best few coded)', () => {
+  const [m, n] = [48, 48];
+  // Blocks of annual-precip (see precipBlock) at a pointwise bound of rel 1e-3 and 1e-4 of the block's range.
+  it.each([1e-3, 1e-4])('codes no more than 1% above the smallest payload of every candidate rank coded for real (rel %s)', (rel) => {
+    const values = precipBlock(m, n);
+    let [lo, hi] = [Infinity, -Infinity];
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    const e = rel * (hi - lo);
+    // Every candidate stated directly: rank 0 and ranks 1..16 (the search goes no further on this block), each
+    // with its residual as correct() chooses it without the blend, coded by lowRankPayload.
+    const t = prepareTile(values, m, n, 'f64', null);
+    let least = lowRankPayload(t, null, correct(t, null, e, undefined, undefined, false)).length;
+    for (let r = 1; r <= 16; r++) {
+      const f = pointwiseFactors(t, r, e);
+      if (f) least = Math.min(least, lowRankPayload(t, f, correct(t, f, e, undefined, undefined, false)).length);
+    }
+    const got = encodePointwise(prepareTile(values, m, n, 'f64', null), e);
+    // The chosen payload may then take the blend (only if shorter) and the symbol coder (at most 1% longer).
+    expect(got.length).toBeLessThanOrEqual(1.01 * least);
+    // And it decodes within the bound.
+    const back = decodeTile(got, { m, n, dtype: 'f64', fill: null, where: 'test', symbols: true });
+    for (let c = 0; c < m * n; c++) expect(Math.abs(back[c] - values[c])).toBeLessThanOrEqual(e);
   });
 });
