@@ -12,7 +12,7 @@ import { forEachTile, termFor, tileGrid, type BandSource, type FieldSpec } from 
 import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
 import { truncatedSvd } from '../linalg/truncated.js';
-import { ensureSvd, prepareTile, type PreparedTile } from './prepare.js';
+import { keepSvd, prepareTile, type PreparedTile } from './prepare.js';
 import { Method, payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
 import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, withResidualCoder } from './tile-encode.js';
@@ -56,19 +56,41 @@ export interface L2Plan {
 export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
   if (p.kind === 'rank') return encodeL2(t, p.ranks[index], p.c, p.dw);
   // The pointwise coder at ePrime, or a residual whose codes are chosen for rate as well as error, at
-  // rank 0 and at the rank the pointwise coder chose: the smallest.
+  // rank 0 and at the rank the pointwise coder chose: the smallest (on a tie, the first of these).
   const mse = 0.97 * p.tol * p.tol;
   let best = encodePointwise(t, p.ePrime);
-  const rdo = rankZeroForMse(t, mse, best.length);
-  if (rdo !== null && rdo.length < best.length) best = rdo;
   const r = payloadHead(best).rank;
-  if (r > 0) {
-    const f = pointwiseFactors(t, r, p.ePrime);
-    const withFactors = f && residualForMse(t, f, mse);
-    if (withFactors && withFactors.length < best.length) best = withFactors;
-  }
+  const f = r > 0 ? pointwiseFactors(t, r, p.ePrime) : null;
+  const withFactors = f && residualForMse(t, f, mse);
+  // The factors are those of the rank the pointwise coder chose, even when the rank-0 search wins over it.
+  // That search is made last, so that it can give up against the smaller of the others (on a smooth tile
+  // the factors' payload is often a fraction of the pointwise one).
+  const rdo = rankZeroForMse(t, mse, withFactors ? Math.min(best.length, withFactors.length) : best.length);
+  if (rdo !== null && rdo.length < best.length) best = rdo;
+  if (withFactors && withFactors.length < best.length) best = withFactors;
   // encodePointwise chose its residual coder already; the residual of the others is coded now.
   return withResidualCoder(t, best);
+}
+
+/**
+ * What a tile's payload under plan p depends on besides the tile: the
+ * plan's kind and its rank and steps for the tile, or its residual
+ * bounds (see {@link encodeWith}). Numbers print exactly as they are
+ * (the shortest string that reads back the same).
+ */
+function planKey(p: L2PlanData, index: number): string {
+  return p.kind === 'rank' ? `rank ${p.ranks[index]} ${p.c} ${p.dw}` : `residual ${p.ePrime} ${p.tol}`;
+}
+
+/** {@link encodeWith}, the payload kept on the tile for the second pass (see PreparedTile.costed). */
+function costedWith(p: L2PlanData, t: PreparedTile, index: number): Uint8Array {
+  const key = planKey(p, index);
+  let payload = t.costed.get(key);
+  if (payload === undefined) {
+    payload = encodeWith(p, t, index);
+    t.costed.set(key, payload);
+  }
+  return payload;
 }
 
 /** What the first pass learns of one tile (and the tile itself, prepared, while a field is small enough to keep it). */
@@ -165,6 +187,8 @@ export function leadingSpectrum(t: PreparedTile, tol: number): Float64Array | nu
   for (const k of LEADING_COUNTS) {
     if (k + 8 >= full) break;
     const r = truncatedSvd(t.centred, t.m, t.n, k);
+    // The same SVD the encoder computes for its candidates of rank up to k, when k is one of its rungs.
+    keepSvd(t, k, r);
     let lead = 0;
     for (let j = 0; j < k; j++) lead += r.s[j] * r.s[j];
     const tail = Math.max(0, r.frob2 - lead);
@@ -308,29 +332,20 @@ const DROP_MARGIN = 0.15;
 /**
  * {@link cheapestPlan}, with the bytes its payloads of the sampled tiles
  * take. The plans are costed a tile at a time, each tile by every plan
- * still in the running, in plan order (so each tile goes through the same
- * steps as when each plan is costed on every tile in turn: a later plan's
- * payloads depend on the singular vectors an earlier one left, see
- * ensureSvd); once enough tiles are costed, a plan whose bytes pass the
- * cheapest's by DROP_MARGIN drops out; a rank plan that {@link outnumbers}
- * the cells is out from the start. A rank plan out of the running still
- * leaves each later tile's singular vectors as its encoding would while a
- * later rank plan is in the running; the residual plan alone needs none
- * left, and then finds the tile as the second pass gives it to the plan
- * (with none: see the end of this function). The cheapest plan left wins;
- * the first on a tie.
+ * still in the running, in plan order; once enough tiles are costed, a
+ * plan whose bytes pass the cheapest's by DROP_MARGIN drops out; a rank
+ * plan that {@link outnumbers} the cells is out from the start. The plans
+ * share each tile's SVDs (see ensureSvd: what a candidate of rank r sees
+ * does not depend on what was computed before), and the tiles keep them
+ * for the second pass, with their payloads (see PreparedTile.costed). The
+ * cheapest plan left wins; the first on a tie.
  */
 export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): { plan: L2PlanData; bytes: number } {
   const bytes = new Float64Array(plans.length);
   const running = plans.map((p) => !outnumbers(p, sample, tiles));
   const dropAfter = Math.max(DROP_AFTER_TILES, Math.ceil(DROP_AFTER_SHARE * sample.length));
   for (let k = 0; k < sample.length; k++) {
-    let last = plans.length - 1;
-    while (last >= 0 && !(running[last] && plans[last].kind === 'rank')) last--;
-    for (const [at, p] of plans.entries()) {
-      if (running[at]) bytes[at] += encodeWith(p, tiles[k], sample[k]).length;
-      else if (p.kind === 'rank' && at < last) leaveSvd(tiles[k], p.ranks[sample[k]]);
-    }
+    for (const [at, p] of plans.entries()) if (running[at]) bytes[at] += costedWith(p, tiles[k], sample[k]).length;
     if (k + 1 < dropAfter) continue;
     let least = Infinity;
     for (let at = 0; at < plans.length; at++) if (running[at]) least = Math.min(least, bytes[at]);
@@ -338,9 +353,6 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
   }
   let best = -1;
   for (let at = 0; at < plans.length; at++) if (running[at] && (best < 0 || bytes[at] < bytes[best])) best = at;
-  // The trial left singular vectors (of whatever rank it needed) on the sampled tiles; the second
-  // pass must find every kept tile as the first pass left it, as a part of a run prepares it afresh.
-  for (const t of tiles) t.svd = null;
   return { plan: plans[best], bytes: bytes[best] };
 }
 
@@ -364,11 +376,6 @@ function outnumbers(p: L2PlanData, sample: number[], tiles: PreparedTile[]): boo
   return values >= cells;
 }
 
-/** What encoding a tile at rank r under a rank plan leaves on it: the singular vectors {@link encodeL2} asks for. */
-function leaveSvd(t: PreparedTile, r: number): void {
-  if (t.finite && r > 0 && t.valid > 0) ensureSvd(t, Math.min(r, t.m, t.n));
-}
-
 /**
  * A plan from its data: each tile encoded as the plan says, then held to its
  * allotment by tighter residual coding, then exact storage. `kept` serves
@@ -382,7 +389,8 @@ export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index:
     kept,
     encode(t, index) {
       const allotment = data.allot[index];
-      let payload = encodeWith(data, t, index);
+      // Of a tile the costing sampled, its payload under this plan is made already.
+      let payload = t.costed.get(planKey(data, index)) ?? encodeWith(data, t, index);
       // Under a field layer a tile's own spectrum is what the layer left, often near the rounding
       // of its factors: a rank plan's factors may then not come out, and the tile falls back to exact
       // storage (three tiles of 192 took 48 kB of a 74 kB archive, bench/'s basin-stack at
@@ -400,6 +408,9 @@ export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index:
         payload = exactPayload(t);
         res = measure(payload, t, fill);
       }
+      // The tile is done: a kept tile's SVDs and payloads need not outlive it (made again, they would be the same).
+      t.svds.clear();
+      t.costed.clear();
       return { payload, res };
     },
   };

@@ -5,7 +5,7 @@
  */
 import { ByteWriter } from '../format/bytes.js';
 import { svd, type Svd } from '../linalg/svd.js';
-import { truncatedSvd } from '../linalg/truncated.js';
+import { OVERSAMPLE, truncatedSvd } from '../linalg/truncated.js';
 import type { Dtype, FloatArray } from '../types.js';
 import { fillMissing } from './fill.js';
 import { lowRankFill } from './low-rank-fill.js';
@@ -30,7 +30,17 @@ export interface PreparedTile {
   maskSection: Uint8Array;
   /** False when centring overflowed (values near the float64 maximum). */
   finite: boolean;
-  svd: Svd | null;
+  /**
+   * The tile's SVDs computed so far, by rung (see {@link svdRung}): a cache,
+   * so every candidate of every search on this tile shares them.
+   */
+  svds: Map<number, Svd>;
+  /**
+   * Payloads the L2 plans' costing made of this tile, by plan and rank (see
+   * planKey in plan-l2.ts), so that the second pass takes the chosen plan's
+   * as they are instead of encoding the tile again.
+   */
+  costed: Map<string, Uint8Array>;
   /** How factor ranks are grouped in the payload (see groupSizes in tile-encode.ts). */
   grouping: 'one' | 'doubling';
   /**
@@ -100,7 +110,7 @@ export function prepareTile(
   }
   // The layer's term is no lattice point: lattice candidates would only miss.
   const lattice = layer ? { quantum: 0, origin: 0 } : integerLattice(orig, classes.codes);
-  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svd: null, grouping, lattice, fieldStep: fieldStep(tol), layer };
+  return { m, n, dtype, orig, centred: x, center, classes, valid, maskSection, finite, svds: new Map(), costed: new Map(), grouping, lattice, fieldStep: fieldStep(tol), layer };
 }
 
 /** Largest integer magnitude the lattice test accepts: far below 2^53, so differences and gcds are exact. */
@@ -136,18 +146,47 @@ export function integerLattice(orig: FloatArray, codes: Uint8Array): { quantum: 
   return g > 0 ? { quantum: g, origin } : { quantum: 0, origin: 0 };
 }
 
-/** The tile's SVD (computed once). */
+/**
+ * The SVD whose leading `need` triplets the encoder uses for a rank-`need`
+ * candidate: the rung {@link svdRung} of `need`, computed once per tile and
+ * kept on it. What a candidate of rank r sees is so a function of the tile
+ * and r alone, whatever was asked before: every L2 plan's costing, the
+ * pointwise rank search and the final encode share the same vectors (a
+ * randomized SVD's leading vectors depend a little on how many it computes).
+ */
 export function ensureSvd(t: PreparedTile, need = Infinity): Svd {
-  const full = Math.min(t.m, t.n);
-  const want = Math.min(full, need);
-  if (t.svd && t.svd.k >= want) return t.svd;
-  // At least PARTIAL_RANK triplets (so a search can grow), never more than the tile has; the randomized
-  // range finder pays off while its sketch (k + 8 columns) is well below full rank.
-  const k = Math.min(full, Math.max(want, PARTIAL_RANK));
-  t.svd = k + 8 >= full ? svd(t.centred, t.m, t.n) : truncatedSvd(t.centred, t.m, t.n, k);
-  return t.svd;
+  const k = svdRung(t.m, t.n, need);
+  let s = t.svds.get(k);
+  if (s === undefined) {
+    s = k === Math.min(t.m, t.n) ? svd(t.centred, t.m, t.n) : truncatedSvd(t.centred, t.m, t.n, k);
+    t.svds.set(k, s);
+  }
+  return s;
 }
 
-/** Singular triplets computed first; more are computed when a search needs them. */
-export const PARTIAL_RANK = 16;
+/**
+ * Keep an SVD computed elsewhere of the tile's own centred values with
+ * {@link truncatedSvd} at rank k, when k is a rung: it is then what
+ * {@link ensureSvd} would compute (the same call on the same values).
+ */
+export function keepSvd(t: PreparedTile, k: number, s: Svd): void {
+  if (svdRung(t.m, t.n, k) === k && k < Math.min(t.m, t.n) && !t.svds.has(k)) t.svds.set(k, s);
+}
 
+/**
+ * The rank of the SVD computed for a candidate of rank `need` in an m x n
+ * tile: PARTIAL_RANK, doubled until it covers `need`; the whole SVD once
+ * that rank and the range finder's oversampling (8) reach the tile's
+ * shorter side, where the randomized range finder no longer pays off. A
+ * search growing its rank so computes a few SVDs (16, 32, 64, ...), not
+ * one per candidate rank.
+ */
+export function svdRung(m: number, n: number, need: number): number {
+  const full = Math.min(m, n);
+  let k = PARTIAL_RANK;
+  while (k < need && k + OVERSAMPLE < full) k *= 2;
+  return k + OVERSAMPLE >= full ? full : k;
+}
+
+/** Rank of the first SVD computed for a tile. */
+export const PARTIAL_RANK = 16;

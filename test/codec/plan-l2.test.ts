@@ -14,7 +14,7 @@ import { Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, firstPass, keepsTiles, leadingSpectrum, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, firstPass, keepsTiles, l2Plan, leadingSpectrum, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
 import { gramSingularValues } from '../../src/linalg/spectrum.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
@@ -263,14 +263,38 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     // so it is not costed; at psnr:40 none does, and the losers drop out on their bytes.
     const perCell = plans.filter((p) => p.kind === 'rank').map((p) => p.ranks.reduce((a, r) => a + r, 0) / 16 / 12);
     expect(perCell.every((v) => (ratio > 1e-3 ? v < 1 : v > 1))).toBe(true);
-    // The definition, stated directly on freshly prepared tiles: every plan on every tile, the plans of a tile in order
-    // (a later plan's payloads depend on the singular vectors an earlier one left), then the smallest total, the first on a tie.
+    // The definition, stated directly on freshly prepared tiles: every plan on every tile, then the smallest total, the
+    // first on a tie. The plans of a tile go in reverse order here: a payload does not depend on the SVDs an earlier plan left.
     const fresh = firstPass(src, spec, tol, null).kept;
     const totals = plans.map(() => 0);
-    for (const k of sample) for (const [at, p] of plans.entries()) totals[at] += encodeWith(p, fresh[k], k).length;
+    for (const k of sample) for (const [at, p] of [...plans.entries()].reverse()) totals[at] += encodeWith(p, fresh[k], k).length;
     const least = Math.min(...totals);
     const costed = costPlans(plans, sample, firstPass(src, spec, tol, null).kept);
     expect(costed.bytes).toBe(least);
     expect(costed.plan).toBe(plans[totals.indexOf(least)]);
+  });
+
+  it('the second pass takes the payloads the costing made of a sampled tile: the same bytes as encoding a fresh tile', () => {
+    const [rows, cols, side] = [64, 96, 32];
+    const values = precipBlock(rows, cols);
+    let [lo, hi] = [Infinity, -Infinity];
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    // psnr:40 as above: RMSE limit range x 10^(-40 / 20) (common usage).
+    const tol = (hi - lo) * 0.01;
+    const spec: FieldSpec = { name: 'p', dtype: 'f64', rows, cols, tileRows: side, tileCols: side, bound: { mode: 'rmse', value: tol }, fill: null };
+    const src = memoryBands(values, cols);
+    const first = firstPass(src, spec, tol, null);
+    const plans = candidatePlans(first.spectra, tol);
+    const sample = [0, 2, 5];
+    const costed = costPlans(plans, sample, sample.map((k) => first.kept[k]));
+    const plan = l2Plan(costed.plan, null, (i) => first.kept[i]);
+    const fresh = firstPass(src, spec, tol, null).kept;
+    for (const k of [0, 1, 2, 5]) {
+      const t = first.kept[k];
+      expect(t.costed.size > 0).toBe(sample.includes(k));
+      expect(plan.encode(t, k).payload).toEqual(plan.encode(fresh[k], k).payload);
+      // Done with: the tile keeps neither payloads nor SVDs.
+      expect(t.costed.size + t.svds.size).toBe(0);
+    }
   });
 });

@@ -9,10 +9,10 @@
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
-import { payloadHead } from '../../src/codec/payload.js';
+import { payloadHead, residualPlace } from '../../src/codec/payload.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
-import { pointwiseFactors } from '../../src/codec/tile-encode.js';
+import { lowRankPayload, pointwiseFactors } from '../../src/codec/tile-encode.js';
 import { rankZeroForMse, residualForMse } from '../../src/codec/rdo.js';
 
 function precipTile(m: number, n: number): Float32Array {
@@ -66,6 +66,26 @@ describe('residualForMse', () => {
     expect(rankZeroForMse(t, mse, 1)).toBeNull();
     // Far above what the search gives: the same payload as with no limit.
     expect(Buffer.from(rankZeroForMse(t, mse, 100 * whole!.length)!).equals(Buffer.from(whole!))).toBe(true);
+  });
+
+  it('takes the factors with no residual when they alone meet the allotment, and codes a residual when they do not', () => {
+    const { m, n, values, t, tol } = precipCase();
+    const f = pointwiseFactors(t, 5, Math.sqrt(3) * tol);
+    expect(f).not.toBeNull();
+    const alone = lowRankPayload(t, f, null);
+    // The mean squared error of the decoded factors alone (definition of the MSE, common usage).
+    const own = mseOf(decodeTile(alone, { m, n, dtype: 'f32', fill: null, where: 'test' }), values);
+    expect(own).toBeGreaterThan(0);
+    // An allotment well above it (the search keeps within 98% of it): the factors alone, byte for byte.
+    const loose = residualForMse(t, f, (1.5 * own) / 0.98);
+    expect(loose).not.toBeNull();
+    expect(residualPlace(loose!)).toBeNull();
+    expect(Buffer.from(loose!).equals(Buffer.from(alone))).toBe(true);
+    // Well below it: a residual is needed, and the decoded error meets the allotment.
+    const tight = residualForMse(t, f, 0.5 * own);
+    expect(tight).not.toBeNull();
+    expect(residualPlace(tight!)).not.toBeNull();
+    expect(mseOf(decodeTile(tight!, { m, n, dtype: 'f32', fill: null, where: 'test' }), values)).toBeLessThanOrEqual(0.5 * own);
   });
 
   it('refuses what it cannot code: no valid cell, or an allotment that is not a positive finite number', () => {
