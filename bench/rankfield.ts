@@ -13,7 +13,7 @@ export const TILE = 64;
 /** rankfield with its defaults: the tile shape chosen by trial on a sample (`tile: 'auto'`). */
 export const rankfield: Codec = {
   id: 'rankfield',
-  describe: "this library with its defaults: pack(values, shape, { bound, fill }), read back with open(bytes).read(); the tile shape is chosen by trial (64, 128, 256, 512 on fields of at least 1024 x 1024, 1024 on fields of at least 2048 x 2048 when 512 did best, and for fields of at most 2^18 cells the whole field, each tried on eight tiles spread over the field).",
+  describe: "this library with its defaults: pack(values, shape, { bound, fill }), read back with open(bytes).read(); the tile shape is chosen by trial (64, 128, 256, 512 on fields of at least 1024 x 1024, 1024 on fields of at least 2048 x 2048 when 512 did best, each tried on eight tiles spread over the field; fields of at most 2^18 cells try the whole field first, then smaller squares, and stop at the first that does worse).",
   encode: (field, target) => pack(field.values, [field.rows, field.cols], { bound: target.text, fill: field.fill }),
   async decode(bytes) {
     const archive = await open(bytes);
