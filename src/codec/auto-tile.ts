@@ -367,7 +367,7 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
     if (plans.length > 1) {
       const all = Array.from({ length: tiles }, (_, k) => k);
       const valid = first.spectra.valid.reduce((a, b) => a + b, 0);
-      const costed = costPlans(plans, all, first.kept);
+      const costed = costPlans(plans, all, first.kept, first.spectra);
       const whole = tiles === 1 && m === spec.rows && n === spec.cols && basis.tol === field.tol;
       const plan = whole ? l2Plan(costed.plan, basis.fill, (index) => first.kept[index]) : undefined;
       return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), spectra, ...(plan ? { plan } : {}) };
