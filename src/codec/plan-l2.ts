@@ -385,11 +385,13 @@ function leastOf(bytes: Float64Array, running: boolean[], picked: (at: number) =
 const HEAVY_SHARE = 0.5;
 /**
  * How far a heavy plan's estimate must pass the cheapest plan's bytes for
- * it to be dropped. Every heavy plan costed in `npm run digest` and at
- * psnr:40 to 80 with tile trials on bench/'s quick fields (22 plans, 0.53
- * to 0.91 values a cell) took 0.82 to 1.22 times its estimate, so a plan
- * dropped here takes at least 1.23 times the bytes of the cheapest (most
- * lost by 1.6 to 1.9 times: turbulence at psnr:40).
+ * it to be dropped. Every heavy plan costed in the L2 runs of `npm run
+ * digest` and in the tile trials at psnr:40, 60 and 80 on bench/'s quick
+ * fields (40 plans, 0.5 to 0.91 values a cell, each costed on its whole
+ * sample) took 0.82 to 1.22 times its estimate, so a plan dropped here
+ * would have taken at least 1.23 times the bytes of the cheapest (those
+ * dropped there lost by 1.5 to 1.9 times: turbulence and annual-precip at
+ * psnr:40).
  */
 const HOPELESS = 1.5;
 
