@@ -389,9 +389,9 @@ const HEAVY_SHARE = 0.5;
  * digest` and in the tile trials at psnr:40, 60 and 80 on bench/'s quick
  * fields (40 plans, 0.5 to 0.91 values a cell, each costed on its whole
  * sample) took 0.82 to 1.22 times its estimate, so a plan dropped here
- * would have taken at least 1.23 times the bytes of the cheapest (those
- * dropped there lost by 1.5 to 1.9 times: turbulence and annual-precip at
- * psnr:40).
+ * would have taken at least 1.23 times the bytes of the cheapest (the
+ * five dropped there would have lost by 1.53 to 1.64 times: turbulence and
+ * annual-precip at psnr:40).
  */
 const HOPELESS = 1.5;
 
