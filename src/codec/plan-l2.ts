@@ -348,9 +348,12 @@ const DROP_MARGIN = 0.15;
  * depend on what was computed before, so the plans may be costed in any
  * order), and the tiles keep them for the second pass, with their
  * payloads (see PreparedTile.costed). The cheapest plan left wins; the
- * first on a tie.
+ * first on a tie. `loses`, when given, tells bytes of no use to the caller
+ * (a tile trial's candidate that cannot beat the best so far): once the
+ * cheapest plan's bytes so far are such, the costing stops there and
+ * returns them (the chosen plan would take at least as many).
  */
-export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[], spectra?: Spectra): { plan: L2PlanData; bytes: number } {
+export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[], spectra?: Spectra, loses?: (bytes: number) => boolean): { plan: L2PlanData; bytes: number } {
   const bytes = new Float64Array(plans.length);
   const running = plans.map((p) => !outnumbers(p, sample, tiles));
   // The heavy plans' estimates, summed over the tiles costed so far; they are costed after the others on each tile.
@@ -372,6 +375,8 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
     const least = leastOf(bytes, running, () => true);
     const margin = k + 1 < dropAfter ? HOPELESS : 1 + DROP_MARGIN;
     for (let at = 0; at < plans.length; at++) if (bytes[at] > margin * least) running[at] = false;
+    // Bytes only grow: when the cheapest so far already loses, so does the plan chosen.
+    if (loses?.(leastOf(bytes, running, () => true))) break;
   }
   let best = -1;
   for (let at = 0; at < plans.length; at++) if (running[at] && (best < 0 || bytes[at] < bytes[best])) best = at;
