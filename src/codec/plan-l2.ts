@@ -319,14 +319,13 @@ export function sampleTiles(count: number): number[] {
  * choices of `npm run digest` and that block (every plan's bytes on every
  * sampled tile, logged, and the rule replayed): these figures change none
  * of them; dropping after a quarter of the sample changed the block's.
- * A plan that far behind ({@link HOPELESS}) drops after DROP_AFTER_TILES:
- * no plan that won, among the 93 plan choices of the L2 runs of `npm run
- * digest` and the tile trials at psnr:40, 60 and 80 on bench/'s quick
- * fields and 25 of annual-precipitation blocks (five sizes and tile sides,
- * psnr:40 to 80), was ever more than 1.25 times the cheapest after any
- * number of tiles (the block above). The residual plan is the costliest
- * to cost on smooth fields, where it loses: on bench/'s 4096 x 4096 field
- * at psnr:40 it took 3.2 of its 6.8 s of costing, behind by half.
+ * Dropping earlier on a wider margin does not pay: on bench/'s
+ * smooth-front at psnr:40 with 64 x 64 tiles (payloads of 7 to 30 bytes)
+ * the plan that won was 1.375 times the cheapest after 2 tiles, and a
+ * margin of 1.35 from 2 tiles changed two archives of `npm run digest`
+ * (4% and 8% larger), while on bench/'s 4096 x 4096 field at psnr:40,
+ * where the residual plan took 3.2 of the 6.8 s of costing and lost, it
+ * was 1.38 to 1.47 times the cheapest from 2 tiles on.
  */
 const DROP_AFTER_TILES = 2;
 const DROP_AFTER_SHARE = 0.5;
@@ -335,10 +334,9 @@ const DROP_MARGIN = 0.15;
 /**
  * The plan whose payloads of the sampled tiles (at indexes `sample`) take
  * the fewest bytes, and those bytes. The plans are costed a tile at a
- * time, each tile by every plan still in the running; once DROP_AFTER_TILES
- * are costed, a plan whose bytes pass the cheapest's by {@link HOPELESS}
- * drops out, and once DROP_AFTER_SHARE of the sample is, one that passes
- * it by DROP_MARGIN. A rank plan that {@link outnumbers} the cells is out
+ * time, each tile by every plan still in the running; once enough tiles
+ * are costed, a plan whose bytes pass the cheapest's by DROP_MARGIN drops
+ * out. A rank plan that {@link outnumbers} the cells is out
  * from the start, and one that codes many factor values
  * ({@link HEAVY_SHARE}) drops out before a tile when the estimate of its
  * bytes from the spectrum alone ({@link factorBytes}, `spectra` given)
@@ -371,10 +369,10 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
       if (estimate[at] > HOPELESS * light) running[at] = false;
       else bytes[at] += costedWith(p, tiles[k], sample[k]).length;
     }
-    if (k + 1 < DROP_AFTER_TILES) continue;
-    const least = leastOf(bytes, running, () => true);
-    const margin = k + 1 < dropAfter ? HOPELESS : 1 + DROP_MARGIN;
-    for (let at = 0; at < plans.length; at++) if (bytes[at] > margin * least) running[at] = false;
+    if (k + 1 >= dropAfter) {
+      const least = leastOf(bytes, running, () => true);
+      for (let at = 0; at < plans.length; at++) if (bytes[at] > (1 + DROP_MARGIN) * least) running[at] = false;
+    }
     // Bytes only grow: when the cheapest so far already loses, so does the plan chosen.
     if (loses?.(leastOf(bytes, running, () => true))) break;
   }
