@@ -243,6 +243,18 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     return Float64Array.from({ length: rows * cols }, (_, c) => g.values[(40 + Math.floor(c / cols)) * g.width + 40 + (c % cols)] ?? Number.NaN);
   }
 
+  /**
+   * The block of rows x cols in tiles of tileRows x tileCols, under an RMSE limit of range x 10^(-db / 20)
+   * (PSNR = 20 log10(range / RMSE), common usage).
+   */
+  function precipCase(rows: number, cols: number, tileRows: number, tileCols: number, db: number): { tol: number; spec: FieldSpec; src: ReturnType<typeof memoryBands> } {
+    const values = precipBlock(rows, cols);
+    let [lo, hi] = [Infinity, -Infinity];
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    const tol = (hi - lo) * 10 ** (-db / 20);
+    return { tol, spec: { name: 'p', dtype: 'f64', rows, cols, tileRows, tileCols, bound: { mode: 'rmse', value: tol }, fill: null }, src: memoryBands(values, cols) };
+  }
+
   it.each([
     ['psnr:70', 10 ** (-70 / 20)],
     ['psnr:40', 10 ** (-40 / 20)],
@@ -278,13 +290,7 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     // One 96 x 128 tile of the block at psnr:40: the residual plan takes about 1550 bytes, the rank plans of 0.3 and 0.5
     // (0.75 and 0.62 factor values a cell) about 2460 and 2280, estimated 2750 and 2600: more than 1.5 times 1550.
     const [rows, cols] = [96, 128];
-    const values = precipBlock(rows, cols);
-    let [lo, hi] = [Infinity, -Infinity];
-    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
-    // RMSE limit range x 10^(-40 / 20) (PSNR = 20 log10(range / RMSE), common usage).
-    const tol = (hi - lo) * 0.01;
-    const spec: FieldSpec = { name: 'p', dtype: 'f64', rows, cols, tileRows: rows, tileCols: cols, bound: { mode: 'rmse', value: tol }, fill: null };
-    const src = memoryBands(values, cols);
+    const { tol, spec, src } = precipCase(rows, cols, rows, cols, 40);
     const first = firstPass(src, spec, tol, null);
     const plans = candidatePlans(first.spectra, tol);
     const fresh = firstPass(src, spec, tol, null).kept[0];
@@ -329,14 +335,7 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
   });
 
   it('the second pass takes the payloads the costing made of a sampled tile: the same bytes as encoding a fresh tile', () => {
-    const [rows, cols, side] = [64, 96, 32];
-    const values = precipBlock(rows, cols);
-    let [lo, hi] = [Infinity, -Infinity];
-    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
-    // psnr:40 as above: RMSE limit range x 10^(-40 / 20) (common usage).
-    const tol = (hi - lo) * 0.01;
-    const spec: FieldSpec = { name: 'p', dtype: 'f64', rows, cols, tileRows: side, tileCols: side, bound: { mode: 'rmse', value: tol }, fill: null };
-    const src = memoryBands(values, cols);
+    const { tol, spec, src } = precipCase(64, 96, 32, 32, 40);
     const first = firstPass(src, spec, tol, null);
     const plans = candidatePlans(first.spectra, tol);
     const sample = [0, 2, 5];
