@@ -103,7 +103,7 @@ const TRIAL_TILES = 8;
 export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices): TileTrial {
   const choice = new TrialChoice(spec, largestFirst(spec));
   for (const [m, n, picked] of trialSamples(spec)) {
-    if (choice.worthTrying(m, n)) choice.add(m, n, sampleCost(src, spec, basis, m, n, picked));
+    if (choice.worthTrying(m, n)) choice.add(m, n, sampleCost(src, spec, basis, m, n, picked, choice.rate));
   }
   return choice.best;
 }
@@ -114,9 +114,12 @@ export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices
  * tile encoded with the field's basis, under an L2 bound the tiles side by
  * side as one small field with its own plan (see {@link chooseTile}). The
  * field layer's term of each tile is taken off as the encoding pass takes it.
+ * `beat`: the fewest bytes per valid cell of a candidate tried before; an
+ * L2 trial that cannot beat it stops early, its bytes then only as many as
+ * it took to know (more than `beat` per valid cell).
  */
-export function sampleCost(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[]): Tried {
-  if (!basis.pointwise) return tryMosaic(src, spec, m, n, picked, basis);
+export function sampleCost(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[], beat = Infinity): Tried {
+  if (!basis.pointwise) return tryMosaic(src, spec, m, n, picked, basis, beat);
   const tiles = pickedTiles(src, spec, m, n, picked);
   return tally(tiles.map((t) => t.index), tiles.map((t) => encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n, t.term), t.index)));
 }
@@ -243,7 +246,8 @@ export function spreadTiles(gr: number, gc: number, count: number): number[] {
 /** The best candidate so far: fewest bytes per valid cell (candidates sample different tiles, and missing cells cost next to nothing). */
 class TrialChoice {
   best: TileTrial;
-  private rate = Infinity;
+  /** The best candidate's bytes per valid cell (Infinity before the first). */
+  rate = Infinity;
   private stopped = false;
   /** @param stops the candidates come largest first, and the trial stops at the first that does clearly worse (see {@link largestFirst}). */
   constructor(spec: FieldSpec, readonly stops: boolean) {
@@ -342,7 +346,7 @@ function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tr
  * its plan is the one the field's planning pass would make from the same
  * first pass and tiles, and is returned for it.
  */
-function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices): Tried {
+function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices, beat: number): Tried {
   const width = picked.length * n;
   const mosaic = spec.dtype === 'f32' ? new Float32Array(m * width) : new Float64Array(m * width);
   // The field's tile index of each tile of the small field, and where its cells lie in the field (for the layer's term).
@@ -367,7 +371,8 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
     if (plans.length > 1) {
       const all = Array.from({ length: tiles }, (_, k) => k);
       const valid = first.spectra.valid.reduce((a, b) => a + b, 0);
-      const costed = costPlans(plans, all, first.kept);
+      // Bytes that could not beat the best candidate so far end the costing (the same comparison as TrialChoice.add).
+      const costed = costPlans(plans, all, first.kept, first.spectra, (bytes) => (bytes + tiles * TILE_INDEX_BYTES) / Math.max(1, valid) > beat);
       const whole = tiles === 1 && m === spec.rows && n === spec.cols && basis.tol === field.tol;
       const plan = whole ? l2Plan(costed.plan, basis.fill, (index) => first.kept[index]) : undefined;
       return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), spectra, ...(plan ? { plan } : {}) };

@@ -276,7 +276,7 @@ export function chooseL2(spectra: Spectra, tol: number, tilesAt: (indexes: numbe
   const plans = candidatePlans(spectra, tol);
   if (plans.length === 1) return plans[0];
   const sample = sampleTiles(spectra.tiles);
-  return cheapestPlan(plans, sample, tilesAt(sample));
+  return costPlans(plans, sample, tilesAt(sample), spectra).plan;
 }
 
 /** The field's squared-error budget, N x tol^2 over its N valid values, in units of tol^2. */
@@ -304,11 +304,6 @@ export function sampleTiles(count: number): number[] {
   return Array.from({ length: k }, (_, i) => Math.floor(((i + 0.5) * count) / k));
 }
 
-/** The plan whose payloads of the sampled tiles (at indexes `sample`) take the fewest bytes; the first on a tie. */
-export function cheapestPlan(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): L2PlanData {
-  return costPlans(plans, sample, tiles).plan;
-}
-
 /**
  * Tiles every candidate plan is costed on before one may be dropped
  * (DROP_AFTER_SHARE of the sample, at least DROP_AFTER_TILES), and how much
@@ -324,36 +319,150 @@ export function cheapestPlan(plans: L2PlanData[], sample: number[], tiles: Prepa
  * choices of `npm run digest` and that block (every plan's bytes on every
  * sampled tile, logged, and the rule replayed): these figures change none
  * of them; dropping after a quarter of the sample changed the block's.
+ * Dropping earlier on a wider margin does not pay: on bench/'s
+ * smooth-front at psnr:40 with 64 x 64 tiles (payloads of 7 to 30 bytes)
+ * the plan that won was 1.375 times the cheapest after 2 tiles, and a
+ * margin of 1.35 from 2 tiles changed two archives of `npm run digest`
+ * (4% and 8% larger), while on bench/'s 4096 x 4096 field at psnr:40,
+ * where the residual plan took 3.2 of the 6.8 s of costing and lost, it
+ * was 1.38 to 1.47 times the cheapest from 2 tiles on.
  */
 const DROP_AFTER_TILES = 2;
 const DROP_AFTER_SHARE = 0.5;
 const DROP_MARGIN = 0.15;
 
 /**
- * {@link cheapestPlan}, with the bytes its payloads of the sampled tiles
- * take. The plans are costed a tile at a time, each tile by every plan
- * still in the running, in plan order; once enough tiles are costed, a
- * plan whose bytes pass the cheapest's by DROP_MARGIN drops out; a rank
- * plan that {@link outnumbers} the cells is out from the start. The plans
- * share each tile's SVDs (see ensureSvd: what a candidate of rank r sees
- * does not depend on what was computed before), and the tiles keep them
- * for the second pass, with their payloads (see PreparedTile.costed). The
- * cheapest plan left wins; the first on a tie.
+ * The plan whose payloads of the sampled tiles (at indexes `sample`) take
+ * the fewest bytes, and those bytes. The plans are costed a tile at a
+ * time, each tile by every plan still in the running; once enough tiles
+ * are costed, a plan whose bytes pass the cheapest's by DROP_MARGIN drops
+ * out. A rank plan that {@link outnumbers} the cells is out
+ * from the start, and one that codes many factor values
+ * ({@link HEAVY_SHARE}) drops out before a tile when the estimate of its
+ * bytes from the spectrum alone ({@link factorBytes}, `spectra` given)
+ * passes the cheapest plan's bytes by {@link HOPELESS}: its SVDs, the
+ * costliest of the costing, are then not computed. The plans share each
+ * tile's SVDs (see ensureSvd: what a candidate of rank r sees does not
+ * depend on what was computed before, so the plans may be costed in any
+ * order), and the tiles keep them for the second pass, with their
+ * payloads (see PreparedTile.costed). The cheapest plan left wins; the
+ * first on a tie. `loses`, when given, tells bytes of no use to the caller
+ * (a tile trial's candidate that cannot beat the best so far): once the
+ * cheapest plan's bytes so far are such, the costing stops there and
+ * returns them (the chosen plan would take at least as many).
  */
-export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): { plan: L2PlanData; bytes: number } {
+export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[], spectra?: Spectra, loses?: (bytes: number) => boolean): { plan: L2PlanData; bytes: number } {
   const bytes = new Float64Array(plans.length);
   const running = plans.map((p) => !outnumbers(p, sample, tiles));
+  // The heavy plans' estimates, summed over the tiles costed so far; they are costed after the others on each tile.
+  const heavy = plans.map((p, at) => running[at] && spectra !== undefined && isHeavy(p, sample, tiles));
+  const estimate = new Float64Array(plans.length);
   const dropAfter = Math.max(DROP_AFTER_TILES, Math.ceil(DROP_AFTER_SHARE * sample.length));
   for (let k = 0; k < sample.length; k++) {
-    for (const [at, p] of plans.entries()) if (running[at]) bytes[at] += costedWith(p, tiles[k], sample[k]).length;
-    if (k + 1 < dropAfter) continue;
-    let least = Infinity;
-    for (let at = 0; at < plans.length; at++) if (running[at]) least = Math.min(least, bytes[at]);
-    for (let at = 0; at < plans.length; at++) if (bytes[at] > (1 + DROP_MARGIN) * least) running[at] = false;
+    for (const [at, p] of plans.entries()) if (running[at] && !heavy[at]) bytes[at] += costedWith(p, tiles[k], sample[k]).length;
+    const light = leastOf(bytes, running, (at) => !heavy[at]);
+    let sv2: Float64Array | undefined;
+    for (const [at, p] of plans.entries()) {
+      if (!(running[at] && heavy[at])) continue;
+      sv2 ??= wholeSpectrum(spectra!, sample[k], tiles[k], p.tol);
+      estimate[at] += factorBytes(p, sv2, sample[k], tiles[k].m, tiles[k].n);
+      if (estimate[at] > HOPELESS * light) running[at] = false;
+      else bytes[at] += costedWith(p, tiles[k], sample[k]).length;
+    }
+    if (k + 1 >= dropAfter) {
+      const least = leastOf(bytes, running, () => true);
+      for (let at = 0; at < plans.length; at++) if (bytes[at] > (1 + DROP_MARGIN) * least) running[at] = false;
+    }
+    // Bytes only grow: when the cheapest so far already loses, so does the plan chosen.
+    if (loses?.(leastOf(bytes, running, () => true))) break;
   }
   let best = -1;
   for (let at = 0; at < plans.length; at++) if (running[at] && (best < 0 || bytes[at] < bytes[best])) best = at;
   return { plan: plans[best], bytes: bytes[best] };
+}
+
+/** The fewest bytes of the plans running and picked (Infinity for none). */
+function leastOf(bytes: Float64Array, running: boolean[], picked: (at: number) => boolean): number {
+  let least = Infinity;
+  for (let at = 0; at < bytes.length; at++) if (running[at] && picked(at)) least = Math.min(least, bytes[at]);
+  return least;
+}
+
+/**
+ * A rank plan codes at least this many factor values a cell, r (m + n)
+ * against m n over the sampled tiles, for it to be dropped on an estimate
+ * ({@link costPlans}). Below it the estimate is too rough to go by (the
+ * factors of smooth tiles are smooth, and their prediction codes them in
+ * a third to a half of the estimate: measured on bench/'s smooth fields),
+ * and the plan is cheap to cost anyway (a few low-rank SVDs).
+ */
+const HEAVY_SHARE = 0.5;
+/**
+ * How far a heavy plan's estimate must pass the cheapest plan's bytes for
+ * it to be dropped. Every heavy plan costed in the L2 runs of `npm run
+ * digest` and in the tile trials at psnr:40, 60 and 80 on bench/'s quick
+ * fields (40 plans, 0.5 to 0.91 values a cell, each costed on its whole
+ * sample) took 0.82 to 1.22 times its estimate, so a plan dropped here
+ * would have taken at least 1.23 times the bytes of the cheapest (the
+ * five dropped there would have lost by 1.53 to 1.64 times: turbulence and
+ * annual-precip at psnr:40).
+ */
+const HOPELESS = 1.5;
+
+/** Whether a rank plan codes at least {@link HEAVY_SHARE} factor values a cell of the sampled tiles. */
+function isHeavy(p: L2PlanData, sample: number[], tiles: PreparedTile[]): boolean {
+  return p.kind === 'rank' && factorShare(p, sample, tiles) >= HEAVY_SHARE;
+}
+
+/**
+ * An estimate of the bytes of a rank plan's factors on tile `index`, from
+ * its squared singular values (`sv2`, in units of tol^2, descending) and
+ * the plan's steps alone (no SVD vectors): left vector k has m values of
+ * RMS 1/sqrt(m) at step c / s_k, the right factor's row k n values of RMS
+ * s_k / sqrt(n) at step dw, and a Gaussian of deviation sigma quantized
+ * with a step d much below it takes log2(sigma / d) + 2.047 bits a value
+ * (its differential entropy, log2(sigma sqrt(2 pi e)), less log2 d: Cover
+ * and Thomas, Elements of Information Theory, theorem 8.3.1; from memory),
+ * taken as 0 where that is negative.
+ */
+export function factorBytes(p: L2PlanData, sv2: Float64Array, index: number, m: number, n: number): number {
+  const r = Math.min(p.ranks[index], sv2.length);
+  let bits = 0;
+  for (let k = 0; k < r; k++) {
+    const s = Math.sqrt(Math.max(0, sv2[k])) * p.tol;
+    bits += m * gaussianBits(s / (p.c * Math.sqrt(m))) + n * gaussianBits(s / (p.dw * Math.sqrt(n)));
+  }
+  return bits / 8;
+}
+
+/**
+ * A sampled tile's whole spectrum for {@link factorBytes}: as the store
+ * holds it, or, where the store holds only the values a cut could reach
+ * (CLI parts, src/parts/plan-pieces.ts), as the first pass took it
+ * ({@link tileSpectrum} of the same prepared tile).
+ */
+function wholeSpectrum(spectra: Spectra, index: number, t: PreparedTile, tol: number): Float64Array {
+  if (spectra.length[index] === spectra.full[index]) return spectra.values(index);
+  return tileSpectrum(t, tol).map((v) => (v / tol) * (v / tol));
+}
+
+/** Bits a value of a Gaussian whose deviation is `ratio` quantization steps (see {@link factorBytes}). */
+function gaussianBits(ratio: number): number {
+  return ratio > 0 ? Math.max(0, Math.log2(ratio) + GAUSSIAN_BITS) : 0;
+}
+
+/** log2 sqrt(2 pi e): the differential entropy of a unit Gaussian, in bits. */
+const GAUSSIAN_BITS = 0.5 * Math.log2(2 * Math.PI * Math.E);
+
+/** Factor values a rank plan codes on the sampled tiles a cell, r (m + n) against m n summed. */
+function factorShare(p: L2PlanData, sample: number[], tiles: PreparedTile[]): number {
+  let values = 0;
+  let cells = 0;
+  for (const [k, i] of sample.entries()) {
+    values += p.ranks[i] * (tiles[k].m + tiles[k].n);
+    cells += tiles[k].m * tiles[k].n;
+  }
+  return values / Math.max(1, cells);
 }
 
 /**
@@ -366,14 +475,7 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
  * cell, at a step from the same budget.
  */
 function outnumbers(p: L2PlanData, sample: number[], tiles: PreparedTile[]): boolean {
-  if (p.kind !== 'rank') return false;
-  let values = 0;
-  let cells = 0;
-  for (const [k, i] of sample.entries()) {
-    values += p.ranks[i] * (tiles[k].m + tiles[k].n);
-    cells += tiles[k].m * tiles[k].n;
-  }
-  return values >= cells;
+  return p.kind === 'rank' && factorShare(p, sample, tiles) >= 1;
 }
 
 /**
