@@ -312,9 +312,16 @@ export const PREDICTOR_SUMS = 6;
  * Row i's part of {@link predictorBits}, added into `sums`; it reads rows i
  * and i - 1 of q only, so an encoder may add each row as soon as its codes
  * are settled. False when a difference on the edge (the same for every
- * predictor) exceeds `limit`: every entry is then Infinity.
+ * predictor) exceeds `limit`: every entry is then Infinity. `small`: the
+ * caller knows every |q| in rows i - 1 and i is at most limit / 4, so no
+ * difference (at most four codes' magnitudes) can exceed the limit, and
+ * the row is summed without checking.
  */
-export function predictorBitsRow(q: Int32Array, n: number, limit: number, i: number, sums: Float64Array): boolean {
+export function predictorBitsRow(q: Int32Array, n: number, limit: number, i: number, sums: Float64Array, small = false): boolean {
+  if (small) {
+    smallBitsRow(q, n, i, sums);
+    return true;
+  }
   let lorenzo = 0;
   let left = 0;
   let up = 0;
@@ -366,6 +373,70 @@ export function predictorBitsRow(q: Int32Array, n: number, limit: number, i: num
   sums[4] += median;
   sums[5] = sums[5] | over;
   return true;
+}
+
+/**
+ * {@link predictorBitsRow} of a row whose differences are known to be
+ * within the limit (every |q| of rows i - 1 and i at most limit / 4, so
+ * each fits an int32): the same sums, with the left, up and up-left codes
+ * carried along the row, floor((a + b) / 2) as (a + b) >> 1 (an arithmetic
+ * shift floors), and each predictor's bit lengths summed as 32 per cell
+ * less the leading zeros.
+ */
+function smallBitsRow(q: Int32Array, n: number, i: number, sums: Float64Array): void {
+  const row = i * n;
+  if (i === 0) {
+    // The first row: every cell is an edge cell, the difference from the left (0 before the first).
+    let zeros = 0;
+    let a = 0;
+    for (let j = 0; j < n; j++) {
+      const x = q[j];
+      const v = x - a;
+      zeros += Math.clz32(v < 0 ? -v : v);
+      a = x;
+    }
+    const b = 32 * n - zeros;
+    sums[0] += b;
+    sums[1] += b;
+    sums[2] += b;
+    sums[3] += b;
+    sums[4] += b;
+    return;
+  }
+  // The first column: the difference from the cell above, for every predictor.
+  let a = q[row];
+  let d = q[row - n];
+  const e = a - d;
+  const edge = 32 - Math.clz32(e < 0 ? -e : e);
+  let z1 = 0;
+  let z2 = 0;
+  let z3 = 0;
+  let z4 = 0;
+  let z5 = 0;
+  for (let j = 1; j < n; j++) {
+    const x = q[row + j];
+    const b = q[row - n + j];
+    const lo = a < b ? a : b;
+    const hi = a < b ? b : a;
+    const v1 = x - (a + b - d);
+    const v2 = x - a;
+    const v3 = x - b;
+    const v4 = x - ((a + b) >> 1);
+    const v5 = x - (d >= hi ? lo : d <= lo ? hi : a + b - d);
+    z1 += Math.clz32(v1 < 0 ? -v1 : v1);
+    z2 += Math.clz32(v2 < 0 ? -v2 : v2);
+    z3 += Math.clz32(v3 < 0 ? -v3 : v3);
+    z4 += Math.clz32(v4 < 0 ? -v4 : v4);
+    z5 += Math.clz32(v5 < 0 ? -v5 : v5);
+    a = x;
+    d = b;
+  }
+  const full = 32 * (n - 1) + edge;
+  sums[0] += full - z1;
+  sums[1] += full - z2;
+  sums[2] += full - z3;
+  sums[3] += full - z4;
+  sums[4] += full - z5;
 }
 
 /** The five figures of {@link predictorBits} from the sums of every row (null: an edge difference exceeded the limit). */

@@ -9,7 +9,7 @@ import { fileURLToPath } from 'node:url';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
-import { MAX_PREDICTOR, predict, predictedFill, Predictor, predictorBits, unpredict } from '../../src/codec/reconstruct.js';
+import { MAX_PREDICTOR, PREDICTOR_SUMS, predict, predictedFill, Predictor, predictorBits, predictorBitsOf, predictorBitsRow, unpredict } from '../../src/codec/reconstruct.js';
 import { pack } from '../../src/pack.js';
 
 const LIMIT = 2 ** 30;
@@ -70,6 +70,27 @@ describe("the encoder's one-pass bit count of the plain predictors", () => {
             const d = predict(q, m, n, LIMIT, kind);
             expect(bits[kind - 1], `predictor ${kind}`).toBe(d === null ? Number.POSITIVE_INFINITY : bitLength(d));
           }
+        },
+      ),
+      { numRuns: 300 },
+    );
+  });
+
+  it("predictorBitsRow's unchecked path (codes within 2^28) gives the bit lengths of predict() too (fast-check)", () => {
+    const bitLength = (d: Int32Array) => d.reduce((s, v) => s + 32 - Math.clz32(Math.abs(v)), 0);
+    fc.assert(
+      fc.property(
+        fc.integer({ min: 1, max: 12 }),
+        fc.integer({ min: 1, max: 12 }),
+        fc.integer({ min: 0, max: 2 ** 28 }),
+        fc.infiniteStream(fc.double({ min: -1, max: 1, noNaN: true })),
+        (m, n, scale, noise) => {
+          const it = noise[Symbol.iterator]();
+          const q = Int32Array.from({ length: m * n }, () => Math.round(it.next().value * scale));
+          const sums = new Float64Array(PREDICTOR_SUMS);
+          for (let i = 0; i < m; i++) expect(predictorBitsRow(q, n, LIMIT, i, sums, true)).toBe(true);
+          const bits = predictorBitsOf(sums);
+          for (let kind = 1; kind <= 5; kind++) expect(bits[kind - 1], `predictor ${kind}`).toBe(bitLength(predict(q, m, n, LIMIT, kind)!));
         },
       ),
       { numRuns: 300 },
