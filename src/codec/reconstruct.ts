@@ -460,16 +460,87 @@ export function predict(q: Int32Array, m: number, n: number, limit: number, kind
     });
     return ok ? d : null;
   }
-  for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      const c = i * n + j;
-      const p = kind === Predictor.None ? 0 : i === 0 ? (j === 0 ? 0 : q[c - 1]) : j === 0 ? q[c - n] : interior(kind, q[c - 1], q[c - n], q[c - n - 1]);
-      const v = q[c] - p;
-      if (v > limit || v < -limit) return null;
-      d[c] = v;
-    }
+  if (kind !== Predictor.None) return predictPlain(q, d, m, n, limit, kind) ? d : null;
+  for (let c = 0; c < q.length; c++) {
+    const v = q[c];
+    if (v > limit || v < -limit) return null;
+    d[c] = v;
   }
   return d;
+}
+
+/**
+ * {@link predict} with predictors 1 to 5 into d: the edge rule on the first
+ * row and column, then one loop a predictor over each row's interior with
+ * the left and up-left codes carried (the encoder forms its chosen
+ * predictor's differences for every candidate it codes). False if a
+ * difference leaves +-limit.
+ */
+function predictPlain(q: Int32Array, d: Int32Array, m: number, n: number, limit: number, kind: number): boolean {
+  for (let i = 0; i < m; i++) {
+    const row = i * n;
+    // Edge: the left code on the first row (0 in the first cell), the code above in the first column.
+    const first = q[row] - (i === 0 ? 0 : q[row - n]);
+    if (first > limit || first < -limit) return false;
+    d[row] = first;
+    if (i === 0) {
+      for (let j = 1; j < n; j++) {
+        const v = q[j] - q[j - 1];
+        if (v > limit || v < -limit) return false;
+        d[j] = v;
+      }
+      continue;
+    }
+    let a = q[row];
+    let c = q[row - n];
+    let over = false;
+    if (kind === Predictor.Lorenzo) {
+      for (let j = 1; j < n; j++) {
+        const x = q[row + j];
+        const b = q[row - n + j];
+        const v = x - (a + b - c);
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+        a = x;
+        c = b;
+      }
+    } else if (kind === Predictor.Left) {
+      for (let j = 1; j < n; j++) {
+        const x = q[row + j];
+        const v = x - a;
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+        a = x;
+      }
+    } else if (kind === Predictor.Up) {
+      for (let j = 1; j < n; j++) {
+        const v = q[row + j] - q[row - n + j];
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+      }
+    } else if (kind === Predictor.Average) {
+      for (let j = 1; j < n; j++) {
+        const x = q[row + j];
+        const b = q[row - n + j];
+        const v = x - Math.floor((a + b) / 2);
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+        a = x;
+      }
+    } else {
+      for (let j = 1; j < n; j++) {
+        const x = q[row + j];
+        const b = q[row - n + j];
+        const v = x - interior(kind, a, b, c);
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+        a = x;
+        c = b;
+      }
+    }
+    if (over) return false;
+  }
+  return true;
 }
 
 /** A copy of q whose cells not Valid (class code non-zero) hold their prediction, so their residual is 0. */
