@@ -138,7 +138,8 @@ export class RangeEncoder {
  * (spec/FORMAT.md). The coder's range and low live in locals, in the
  * manner of the decoder (./code-decode.ts): each value's adaptive
  * decisions are listed (context and bit) and coded in one loop, then its
- * direct bits; the neighbours are carried along the row.
+ * direct bits; the neighbours are carried along the row, and a run of
+ * zeros in a zero neighbourhood takes a loop of its own.
  */
 export function encodeInts(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Uint8Array {
   // The model's layout in locals (a read of an imported binding goes through a cell in V8).
@@ -164,6 +165,28 @@ export function encodeInts(values: Int32Array, m: number, n: number, codes: Uint
     let up = i > 0 ? values[row - n] : 0;
     let upLeft = 0;
     for (let j = 0; j < n; j++) {
+      if (!masked && (left | up | upLeft) === 0) {
+        // A run of zeros in a zero neighbourhood (most cells of a smooth field's residual): bucket 0
+        // while the up-right code is 0, so each cell is one zero-flag decision of context ZERO_AT,
+        // its probability and count held in locals, as the decoder reads it.
+        let pr0 = p[kZeroAt];
+        let cnt0 = count[kZeroAt];
+        for (; j < n; j++) {
+          const c = row + j;
+          if (values[c] !== 0 || (i > 0 && j + 1 < n && values[c - n + 1] !== 0)) break;
+          range = (range >>> kProbBits) * pr0;
+          pr0 = pr0 + ((kProbOne - pr0) >> shifts[cnt0]);
+          if (cnt0 < 255) cnt0++;
+          while (range < TOP) {
+            range = (range * 256) >>> 0;
+            low = sink.shiftLow(low);
+          }
+        }
+        p[kZeroAt] = pr0;
+        count[kZeroAt] = cnt0;
+        // The carried neighbours are all still 0 here.
+        if (j === n) break;
+      }
       const c = row + j;
       const upRight = i > 0 && j + 1 < n ? values[c - n + 1] : 0;
       const v = values[c];
