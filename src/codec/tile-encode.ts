@@ -88,13 +88,39 @@ export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget:
   const g = new Float64Array(r * r);
   const b = new Float64Array(r * n);
   const a = t.centred;
+  // Row i's non-zero left factor entries: B takes them four at a time, one load of the tile's row
+  // feeding four rows of B (each entry of B still sums its terms in increasing i).
+  const nz = new Int32Array(r);
   for (let i = 0; i < m; i++) {
+    let count = 0;
     for (let k = 0; k < r; k++) {
       const lik = l[i * r + k];
       if (lik === 0) continue;
       for (let k2 = 0; k2 < r; k2++) g[k * r + k2] += lik * l[i * r + k2];
-      const row = i * n;
-      const bk = k * n;
+      nz[count++] = k;
+    }
+    const row = i * n;
+    let z = 0;
+    for (; z + 3 < count; z += 4) {
+      const b0 = nz[z] * n;
+      const b1 = nz[z + 1] * n;
+      const b2 = nz[z + 2] * n;
+      const b3 = nz[z + 3] * n;
+      const l0 = l[i * r + nz[z]];
+      const l1 = l[i * r + nz[z + 1]];
+      const l2 = l[i * r + nz[z + 2]];
+      const l3 = l[i * r + nz[z + 3]];
+      for (let j = 0; j < n; j++) {
+        const x = a[row + j];
+        b[b0 + j] += l0 * x;
+        b[b1 + j] += l1 * x;
+        b[b2 + j] += l2 * x;
+        b[b3 + j] += l3 * x;
+      }
+    }
+    for (; z < count; z++) {
+      const bk = nz[z] * n;
+      const lik = l[i * r + nz[z]];
       for (let j = 0; j < n; j++) b[bk + j] += lik * a[row + j];
     }
   }
@@ -320,6 +346,18 @@ function settleCodes(t: PreparedTile, base: Float64Array, e: number, step: numbe
   return { any, bits: 32 * kept - zeros, sumsOk };
 }
 
+/** Each tile's scratch grid for {@link correct}'s low-rank part (overwritten whole by every candidate, kept by none). */
+const bases = new WeakMap<PreparedTile, Float64Array>();
+
+function baseScratch(t: PreparedTile): Float64Array {
+  let b = bases.get(t);
+  if (b === undefined) {
+    b = new Float64Array(t.m * t.n);
+    bases.set(t, b);
+  }
+  return b;
+}
+
 /**
  * The residual of a candidate against the pointwise bound e, computed with the
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
@@ -329,7 +367,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   const { m, n } = t;
   const cells = m * n;
   // The decoder's own arithmetic: the low-rank part and centre here, the rest in reconstruct().
-  const base = new Float64Array(cells);
+  const base = baseScratch(t);
   if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
   else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
   if (t.layer) addLayer(base, t.layer, cells);
