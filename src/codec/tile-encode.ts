@@ -662,18 +662,9 @@ function estimateBytes(t: PreparedTile, f: Factors | null, corr: Correction): nu
   let bits = corr.bits ?? 0;
   if (corr.q !== null) bits += nonZeros(corr.q);
   if (f) {
-    let plain = 0;
-    let delta = 0;
-    for (const v of [f.qu, f.qw]) {
-      const len = v === f.qu ? t.m : t.n;
-      for (let i = 0; i < v.length; i++) {
-        const a = v[i] < 0 ? -v[i] : v[i];
-        const d = i % len === 0 ? v[i] : v[i] - v[i - 1];
-        plain += 32 - Math.clz32(a);
-        delta += 32 - Math.clz32(d < 0 ? -d : d);
-      }
-    }
-    bits += Math.min(plain, delta) + nonZeros(f.qu) + nonZeros(f.qw);
+    const u = factorBits(f.qu, t.m);
+    const w = factorBits(f.qw, t.n);
+    bits += Math.min(u.plain + w.plain, u.delta + w.delta) + u.nonzero + w.nonzero;
   }
   return bits / 8 + corr.exceptions.length * (4 + (t.dtype === 'f32' ? 4 : 8));
 }
@@ -682,6 +673,26 @@ function nonZeros(v: Int32Array): number {
   let k = 0;
   for (let i = 0; i < v.length; i++) if (v[i] !== 0) k++;
   return k;
+}
+
+/** Rough bits of factor codes (vectors of `len` codes) as they are and differenced along each vector, and the non-zero count, in one pass. */
+function factorBits(v: Int32Array, len: number): { plain: number; delta: number; nonzero: number } {
+  // Sums of 32 per code less the leading zeros.
+  let plain = 0;
+  let delta = 0;
+  let zero = 0;
+  for (let at = 0; at < v.length; at += len) {
+    let prev = 0;
+    for (let i = at; i < at + len; i++) {
+      const x = v[i];
+      const d = x - prev;
+      prev = x;
+      if (x === 0) zero++;
+      plain += Math.clz32(x < 0 ? -x : x);
+      delta += Math.clz32(d < 0 ? -d : d);
+    }
+  }
+  return { plain: 32 * v.length - plain, delta: 32 * v.length - delta, nonzero: v.length - zero };
 }
 
 /**
