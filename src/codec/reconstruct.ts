@@ -380,8 +380,9 @@ export function predictorBitsRow(q: Int32Array, n: number, limit: number, i: num
  * within the limit (every |q| of rows i - 1 and i at most limit / 4, so
  * each fits an int32): the same sums, with the left, up and up-left codes
  * carried along the row, floor((a + b) / 2) as (a + b) >> 1 (an arithmetic
- * shift floors), and each predictor's bit lengths summed as 32 per cell
- * less the leading zeros.
+ * shift floors), |v| as (v ^ s) - s with s = v >> 31 (no branch on the
+ * sign, which goes either way on a residual), and each predictor's bit
+ * lengths summed as 32 per cell less the leading zeros.
  */
 function smallBitsRow(q: Int32Array, n: number, i: number, sums: Float64Array): void {
   const row = i * n;
@@ -392,7 +393,7 @@ function smallBitsRow(q: Int32Array, n: number, i: number, sums: Float64Array): 
     for (let j = 0; j < n; j++) {
       const x = q[j];
       const v = x - a;
-      zeros += Math.clz32(v < 0 ? -v : v);
+      zeros += Math.clz32((v ^ (v >> 31)) - (v >> 31));
       a = x;
     }
     const b = 32 * n - zeros;
@@ -423,11 +424,11 @@ function smallBitsRow(q: Int32Array, n: number, i: number, sums: Float64Array): 
     const v3 = x - b;
     const v4 = x - ((a + b) >> 1);
     const v5 = x - (d >= hi ? lo : d <= lo ? hi : a + b - d);
-    z1 += Math.clz32(v1 < 0 ? -v1 : v1);
-    z2 += Math.clz32(v2 < 0 ? -v2 : v2);
-    z3 += Math.clz32(v3 < 0 ? -v3 : v3);
-    z4 += Math.clz32(v4 < 0 ? -v4 : v4);
-    z5 += Math.clz32(v5 < 0 ? -v5 : v5);
+    z1 += Math.clz32((v1 ^ (v1 >> 31)) - (v1 >> 31));
+    z2 += Math.clz32((v2 ^ (v2 >> 31)) - (v2 >> 31));
+    z3 += Math.clz32((v3 ^ (v3 >> 31)) - (v3 >> 31));
+    z4 += Math.clz32((v4 ^ (v4 >> 31)) - (v4 >> 31));
+    z5 += Math.clz32((v5 ^ (v5 >> 31)) - (v5 >> 31));
     a = x;
     d = b;
   }

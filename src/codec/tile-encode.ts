@@ -314,12 +314,15 @@ function settleCodes(t: PreparedTile, base: Float64Array, e: number, step: numbe
   const f32 = t.dtype === 'f32';
   const valid = Cell.Valid;
   const limit = MAX_INT;
-  let any = false;
-  // Bits of the kept codes: 32 for each, less their leading zeros.
+  // Kept codes, their bits and the OR of their magnitudes, without a branch on the code (its sign
+  // and whether it is 0 go either way on a residual, a mispredicted branch a cell): every code fits
+  // an int32 once the rare one beyond the limit is 0, |v| is (v ^ s) - s with s = v >> 31, and
+  // (|v| + 2^31 - 1) >>> 31 is 1 for |v| >= 1, 0 for 0. A 0 is written where q already holds one.
   let kept = 0;
-  let zeros = 0;
+  let bits = 0;
   let sumsOk = sums !== null;
-  // The largest |code| of the row above: a row pair within limit / 4 takes predictorBitsRow's unchecked path.
+  // The OR of |code| over the row above: a row pair below 2^28 (so at most limit / 4) takes
+  // predictorBitsRow's unchecked path.
   let above = 0;
   for (let i = 0; i < m; i++) {
     let most = 0;
@@ -329,21 +332,21 @@ function settleCodes(t: PreparedTile, base: Float64Array, e: number, step: numbe
       const o = orig[c];
       const b = base[c];
       let v = roundHalfUp((o - b) / step);
-      if (v !== 0 && v <= limit && v >= -limit) {
-        q[c] = v;
-        kept++;
-        const a = v < 0 ? -v : v;
-        zeros += Math.clz32(a);
-        if (a > most) most = a;
-      } else v = 0;
+      if (!(v <= limit && v >= -limit)) v = 0;
+      v |= 0;
+      q[c] = v;
+      const sign = v >> 31;
+      const a = (v ^ sign) - sign;
+      kept += (a + 0x7fffffff) >>> 31;
+      bits += 32 - Math.clz32(a);
+      most |= a;
       const sum = withResidual(b, v, step);
       if (!(Math.abs(o - (f32 ? Math.fround(sum) : sum)) <= e)) exceptions.push(c);
     }
-    if (sumsOk) sumsOk = predictorBitsRow(q, n, limit, i, sums!, (most > above ? most : above) <= limit / 4);
+    if (sumsOk) sumsOk = predictorBitsRow(q, n, limit, i, sums!, (most | above) < 2 ** 28);
     above = most;
   }
-  if (kept > 0) any = true;
-  return { any, bits: 32 * kept - zeros, sumsOk };
+  return { any: kept > 0, bits, sumsOk };
 }
 
 /** Each tile's scratch grid for {@link correct}'s low-rank part (overwritten whole by every candidate, kept by none). */
