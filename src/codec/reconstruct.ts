@@ -312,9 +312,16 @@ export const PREDICTOR_SUMS = 6;
  * Row i's part of {@link predictorBits}, added into `sums`; it reads rows i
  * and i - 1 of q only, so an encoder may add each row as soon as its codes
  * are settled. False when a difference on the edge (the same for every
- * predictor) exceeds `limit`: every entry is then Infinity.
+ * predictor) exceeds `limit`: every entry is then Infinity. `small`: the
+ * caller knows every |q| in rows i - 1 and i is at most limit / 4, so no
+ * difference (at most four codes' magnitudes) can exceed the limit, and
+ * the row is summed without checking.
  */
-export function predictorBitsRow(q: Int32Array, n: number, limit: number, i: number, sums: Float64Array): boolean {
+export function predictorBitsRow(q: Int32Array, n: number, limit: number, i: number, sums: Float64Array, small = false): boolean {
+  if (small) {
+    smallBitsRow(q, n, i, sums);
+    return true;
+  }
   let lorenzo = 0;
   let left = 0;
   let up = 0;
@@ -368,6 +375,71 @@ export function predictorBitsRow(q: Int32Array, n: number, limit: number, i: num
   return true;
 }
 
+/**
+ * {@link predictorBitsRow} of a row whose differences are known to be
+ * within the limit (every |q| of rows i - 1 and i at most limit / 4, so
+ * each fits an int32): the same sums, with the left, up and up-left codes
+ * carried along the row, floor((a + b) / 2) as (a + b) >> 1 (an arithmetic
+ * shift floors), |v| as (v ^ s) - s with s = v >> 31 (no branch on the
+ * sign, which goes either way on a residual), and each predictor's bit
+ * lengths summed as 32 per cell less the leading zeros.
+ */
+function smallBitsRow(q: Int32Array, n: number, i: number, sums: Float64Array): void {
+  const row = i * n;
+  if (i === 0) {
+    // The first row: every cell is an edge cell, the difference from the left (0 before the first).
+    let zeros = 0;
+    let a = 0;
+    for (let j = 0; j < n; j++) {
+      const x = q[j];
+      const v = x - a;
+      zeros += Math.clz32((v ^ (v >> 31)) - (v >> 31));
+      a = x;
+    }
+    const b = 32 * n - zeros;
+    sums[0] += b;
+    sums[1] += b;
+    sums[2] += b;
+    sums[3] += b;
+    sums[4] += b;
+    return;
+  }
+  // The first column: the difference from the cell above, for every predictor.
+  let a = q[row];
+  let d = q[row - n];
+  const e = a - d;
+  const edge = 32 - Math.clz32(e < 0 ? -e : e);
+  let z1 = 0;
+  let z2 = 0;
+  let z3 = 0;
+  let z4 = 0;
+  let z5 = 0;
+  for (let j = 1; j < n; j++) {
+    const x = q[row + j];
+    const b = q[row - n + j];
+    const lo = a < b ? a : b;
+    const hi = a < b ? b : a;
+    const v1 = x - (a + b - d);
+    const v2 = x - a;
+    const v3 = x - b;
+    const v4 = x - ((a + b) >> 1);
+    const v5 = x - (d >= hi ? lo : d <= lo ? hi : a + b - d);
+    z1 += Math.clz32((v1 ^ (v1 >> 31)) - (v1 >> 31));
+    z2 += Math.clz32((v2 ^ (v2 >> 31)) - (v2 >> 31));
+    z3 += Math.clz32((v3 ^ (v3 >> 31)) - (v3 >> 31));
+    z4 += Math.clz32((v4 ^ (v4 >> 31)) - (v4 >> 31));
+    z5 += Math.clz32((v5 ^ (v5 >> 31)) - (v5 >> 31));
+    a = x;
+    d = b;
+  }
+  const full = 32 * (n - 1) + edge;
+  sums[0] += full - z1;
+  sums[1] += full - z2;
+  sums[2] += full - z3;
+  sums[3] += full - z4;
+  sums[4] += full - z5;
+}
+
 /** The five figures of {@link predictorBits} from the sums of every row (null: an edge difference exceeded the limit). */
 export function predictorBitsOf(sums: Float64Array | null): Float64Array {
   if (sums === null) return Float64Array.of(Infinity, Infinity, Infinity, Infinity, Infinity);
@@ -389,16 +461,87 @@ export function predict(q: Int32Array, m: number, n: number, limit: number, kind
     });
     return ok ? d : null;
   }
-  for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      const c = i * n + j;
-      const p = kind === Predictor.None ? 0 : i === 0 ? (j === 0 ? 0 : q[c - 1]) : j === 0 ? q[c - n] : interior(kind, q[c - 1], q[c - n], q[c - n - 1]);
-      const v = q[c] - p;
-      if (v > limit || v < -limit) return null;
-      d[c] = v;
-    }
+  if (kind !== Predictor.None) return predictPlain(q, d, m, n, limit, kind) ? d : null;
+  for (let c = 0; c < q.length; c++) {
+    const v = q[c];
+    if (v > limit || v < -limit) return null;
+    d[c] = v;
   }
   return d;
+}
+
+/**
+ * {@link predict} with predictors 1 to 5 into d: the edge rule on the first
+ * row and column, then one loop a predictor over each row's interior with
+ * the left and up-left codes carried (the encoder forms its chosen
+ * predictor's differences for every candidate it codes). False if a
+ * difference leaves +-limit.
+ */
+function predictPlain(q: Int32Array, d: Int32Array, m: number, n: number, limit: number, kind: number): boolean {
+  for (let i = 0; i < m; i++) {
+    const row = i * n;
+    // Edge: the left code on the first row (0 in the first cell), the code above in the first column.
+    const first = q[row] - (i === 0 ? 0 : q[row - n]);
+    if (first > limit || first < -limit) return false;
+    d[row] = first;
+    if (i === 0) {
+      for (let j = 1; j < n; j++) {
+        const v = q[j] - q[j - 1];
+        if (v > limit || v < -limit) return false;
+        d[j] = v;
+      }
+      continue;
+    }
+    let a = q[row];
+    let c = q[row - n];
+    let over = false;
+    if (kind === Predictor.Lorenzo) {
+      for (let j = 1; j < n; j++) {
+        const x = q[row + j];
+        const b = q[row - n + j];
+        const v = x - (a + b - c);
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+        a = x;
+        c = b;
+      }
+    } else if (kind === Predictor.Left) {
+      for (let j = 1; j < n; j++) {
+        const x = q[row + j];
+        const v = x - a;
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+        a = x;
+      }
+    } else if (kind === Predictor.Up) {
+      for (let j = 1; j < n; j++) {
+        const v = q[row + j] - q[row - n + j];
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+      }
+    } else if (kind === Predictor.Average) {
+      for (let j = 1; j < n; j++) {
+        const x = q[row + j];
+        const b = q[row - n + j];
+        const v = x - Math.floor((a + b) / 2);
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+        a = x;
+      }
+    } else {
+      for (let j = 1; j < n; j++) {
+        const x = q[row + j];
+        const b = q[row - n + j];
+        const v = x - interior(kind, a, b, c);
+        if (v > limit || v < -limit) over = true;
+        d[row + j] = v;
+        a = x;
+        c = b;
+      }
+    }
+    if (over) return false;
+  }
+  return true;
 }
 
 /** A copy of q whose cells not Valid (class code non-zero) hold their prediction, so their residual is 0. */

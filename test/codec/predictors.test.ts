@@ -9,7 +9,7 @@ import { fileURLToPath } from 'node:url';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
-import { MAX_PREDICTOR, predict, predictedFill, Predictor, predictorBits, unpredict } from '../../src/codec/reconstruct.js';
+import { MAX_PREDICTOR, PREDICTOR_SUMS, predict, predictedFill, Predictor, predictorBits, predictorBitsOf, predictorBitsRow, unpredict } from '../../src/codec/reconstruct.js';
 import { pack } from '../../src/pack.js';
 
 const LIMIT = 2 ** 30;
@@ -54,18 +54,20 @@ describe('every predictor is inverted exactly by the decoder', () => {
 });
 
 describe("the encoder's one-pass bit count of the plain predictors", () => {
-  it('predictorBits gives the bit lengths of predict() for predictors 1 to 5, and Infinity where predict() gives null (fast-check)', () => {
-    const bitLength = (d: Int32Array) => d.reduce((s, v) => s + 32 - Math.clz32(Math.abs(v)), 0);
+  const bitLength = (d: Int32Array) => d.reduce((s, v) => s + 32 - Math.clz32(Math.abs(v)), 0);
+
+  /** For random m x n grids of codes within +-maxCode, `bitsOf(q)` against the bit lengths of predict() (Infinity where it gives null), predictors 1 to 5. */
+  function matchesPredict(maxCode: number, bitsOf: (q: Int32Array, m: number, n: number) => Float64Array): void {
     fc.assert(
       fc.property(
         fc.integer({ min: 1, max: 12 }),
         fc.integer({ min: 1, max: 12 }),
-        fc.integer({ min: 0, max: 2 ** 30 }),
+        fc.integer({ min: 0, max: maxCode }),
         fc.infiniteStream(fc.double({ min: -1, max: 1, noNaN: true })),
         (m, n, scale, noise) => {
           const it = noise[Symbol.iterator]();
           const q = Int32Array.from({ length: m * n }, () => Math.round(it.next().value * scale));
-          const bits = predictorBits(q, m, n, LIMIT);
+          const bits = bitsOf(q, m, n);
           for (let kind = 1; kind <= 5; kind++) {
             const d = predict(q, m, n, LIMIT, kind);
             expect(bits[kind - 1], `predictor ${kind}`).toBe(d === null ? Number.POSITIVE_INFINITY : bitLength(d));
@@ -74,6 +76,18 @@ describe("the encoder's one-pass bit count of the plain predictors", () => {
       ),
       { numRuns: 300 },
     );
+  }
+
+  it('predictorBits gives the bit lengths of predict() for predictors 1 to 5, and Infinity where predict() gives null (fast-check)', () => {
+    matchesPredict(2 ** 30, (q, m, n) => predictorBits(q, m, n, LIMIT));
+  });
+
+  it("predictorBitsRow's unchecked path (codes within 2^28) gives the bit lengths of predict() too (fast-check)", () => {
+    matchesPredict(2 ** 28, (q, m, n) => {
+      const sums = new Float64Array(PREDICTOR_SUMS);
+      for (let i = 0; i < m; i++) expect(predictorBitsRow(q, n, LIMIT, i, sums, true)).toBe(true);
+      return predictorBitsOf(sums);
+    });
   });
 });
 
