@@ -644,6 +644,16 @@ function orExact(t: PreparedTile, best: Uint8Array): Uint8Array {
 const MIN_RANKS_TRIED = 4;
 
 /**
+ * The rank search stops once the estimated size has not fallen this many
+ * candidates running. On the demo's basin field (512 x 768, land as fill,
+ * rel:1e-3) sizes fall, rise and fall again as the rank grows: stopping
+ * after 2 gave 54592 bytes, after 3 47956, after 4 40397, and never
+ * stopping 36787 (scratch measurement, issue 10; with 2 before the
+ * estimates, 47533).
+ */
+const PATIENCE = 4;
+
+/**
  * Candidates of the rank search coded for real: those with the smallest
  * {@link estimateBytes}. On 141 tiles of bench/'s large, smooth-bumps,
  * smooth-front (256 x 256 tiles), turbulence, annual-precip, volcano and
@@ -701,7 +711,7 @@ function factorBits(v: Int32Array, len: number): { plain: number; delta: number;
 /**
  * The candidates to code for real: the rank-0 ones (`rank0`, see
  * rankZero), then ranks 1, 2, ... tried until the estimated size
- * ({@link estimateBytes}) has not fallen twice running (after rank
+ * ({@link estimateBytes}) has not fallen PATIENCE times running (after rank
  * MIN_RANKS_TRIED); of all these, the CODED_RANKS with the smallest
  * estimates, in the order tried (the first on a tie).
  */
@@ -739,7 +749,7 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
     keep(c, rank0.length + r);
     worse = c.estimate >= prev ? worse + 1 : 0;
     prev = c.estimate;
-    if (worse >= 2 && r >= MIN_RANKS_TRIED) break;
+    if (worse >= PATIENCE && r >= MIN_RANKS_TRIED) break;
   }
   return kept.sort((a, b) => a.order - b.order);
 }
