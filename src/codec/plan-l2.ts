@@ -13,6 +13,7 @@ import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
 import { truncatedSvd } from '../linalg/truncated.js';
 import { keepSvd, prepareTile, type PreparedTile } from './prepare.js';
+import type { Svd } from '../linalg/svd.js';
 import { Method, payloadHead } from './payload.js';
 import { Spectra } from './spectra.js';
 import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, withResidualCoder } from './tile-encode.js';
@@ -24,6 +25,34 @@ const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
 const SAMPLE_TILES = 48;
 /** Prepared tiles are kept between passes for fields up to this many cells. */
 const KEEP_CELLS = 4 << 20;
+/**
+ * Of a larger field, the SVDs the first pass computed of the tiles the
+ * costing samples are handed to it, up to this many bytes of vectors
+ * (32 MiB: 48 rank-16 SVDs of 4096 x 2730 tiles), so that it does not
+ * compute them again (see {@link TileSvds}).
+ */
+const HANDOFF_BYTES = 32 << 20;
+
+/**
+ * SVDs computed of tiles, by tile index, then by rung (as PreparedTile.svds
+ * holds them): handed from one pass to a later one that prepares the same
+ * tiles again. A rung's SVD is a function of the tile's centred values
+ * alone (see ensureSvd), so a tile prepared again from the same values, or
+ * one without missing cells prepared with another tolerance (its centred
+ * values do not depend on it, see {@link tileSpectrum}), takes them as
+ * they are.
+ */
+export type TileSvds = ReadonlyMap<number, ReadonlyMap<number, Svd>>;
+
+/** Take the SVDs handed over for a tile prepared again (the rungs it has not computed). */
+export function adoptSvds(t: PreparedTile, svds: ReadonlyMap<number, Svd> | undefined): void {
+  if (svds !== undefined) for (const [k, s] of svds) if (!t.svds.has(k)) t.svds.set(k, s);
+}
+
+/** Bytes of an SVD's vectors and values. */
+function svdBytes(s: Svd): number {
+  return s.u.byteLength + s.v.byteLength + s.s.byteLength;
+}
 
 /**
  * One way to encode every tile, as plain data (so a plan can be handed to
@@ -124,8 +153,10 @@ export function firstPassTile(
   known?: Float64Array,
   seen?: (s: Float64Array) => void,
   term: Float64Array | null = null,
+  svds?: ReadonlyMap<number, Svd>,
 ): FirstPassTile {
   const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one', term);
+  adoptSvds(t, svds);
   const s = tileSpectrum(t, tol, known);
   seen?.(s);
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
@@ -224,7 +255,9 @@ export function cuttable(sv2: Float64Array, cells: number): Float64Array {
  * The first pass over every tile of a field, in this thread, into a
  * {@link Spectra} store (and the prepared tiles, when kept). `known`: the
  * singular values the tile trial took, by tile index; `seen` is handed each
- * tile's singular values.
+ * tile's singular values; `svds`: the SVDs the tile trial computed, by tile
+ * index (see {@link TileSvds}); `keep`: whether the prepared tiles are kept
+ * (by default, for fields up to KEEP_CELLS cells; see {@link keepsTiles}).
  */
 export function firstPass(
   src: BandSource,
@@ -233,16 +266,39 @@ export function firstPass(
   fill: Uint32Array | null,
   known?: ReadonlyMap<number, Float64Array>,
   seen?: (index: number, s: Float64Array) => void,
-): { spectra: Spectra; kept: PreparedTile[] } {
-  const keep = keepsTiles(spec);
+  { svds, keep = keepsTiles(spec) }: { svds?: TileSvds; keep?: boolean } = {},
+): FirstPass {
   const spectra = new Spectra(tileCount(spec));
   const kept: PreparedTile[] = [];
+  // Of a field whose tiles are not kept, the sampled tiles' SVDs are handed to the costing (up to HANDOFF_BYTES).
+  const sampled = keep ? new Set<number>() : new Set(sampleTiles(spectra.tiles));
+  const handed = new Map<number, Map<number, Svd>>();
+  let bytes = 0;
   forEachTile(src, spec, (index, tile, m, n) => {
-    const f = firstPassTile(tile, m, n, spec, fill, tol, keep, known?.get(index), seen && ((s) => seen(index, s)), termFor(spec, index, m, n));
+    const f = firstPassTile(tile, m, n, spec, fill, tol, keep || sampled.has(index), known?.get(index), seen && ((s) => seen(index, s)), termFor(spec, index, m, n), svds?.get(index));
     spectra.add(f);
     if (keep) kept.push(f.tile!);
+    else if (f.tile !== undefined && f.tile.svds.size > 0) {
+      let b = 0;
+      for (const s of f.tile.svds.values()) b += svdBytes(s);
+      if (bytes + b <= HANDOFF_BYTES) {
+        handed.set(index, f.tile.svds);
+        bytes += b;
+      }
+    }
   });
-  return { spectra, kept };
+  return { spectra, kept, svds: handed };
+}
+
+/**
+ * What the first pass hands to the plan choice: every tile's spectrum, the
+ * prepared tiles when the field is small enough to keep them, and
+ * otherwise the SVDs it computed of the tiles the costing samples.
+ */
+export interface FirstPass {
+  spectra: Spectra;
+  kept: PreparedTile[];
+  svds?: TileSvds;
 }
 
 /** Tiles of a field, over all its slices. */
@@ -257,14 +313,34 @@ function tileCount(spec: FieldSpec): number {
  * order, and the prepared tiles when the field is small enough to keep them)
  * when it was made elsewhere (on worker threads); by default it is made here
  * (with the singular values the tile trial took, `known`, by tile index).
+ * `svds`: the SVDs the tile trial computed, by tile index (see
+ * {@link TileSvds}). Of a field whose tiles are not kept, the payloads the
+ * costing made of its sampled tiles under the chosen plan are kept for the
+ * second pass (only those: a few dozen tiles' payloads).
  */
-export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: { spectra: Spectra; kept: PreparedTile[] }, known?: ReadonlyMap<number, Float64Array>): L2Plan {
-  const keep = keepsTiles(spec);
-  const { spectra, kept } = first ?? firstPass(src, spec, tol, fill, known);
+export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: FirstPass, known?: ReadonlyMap<number, Float64Array>, svds?: TileSvds): L2Plan {
+  const { spectra, kept, svds: handed } = first ?? firstPass(src, spec, tol, fill, known, undefined, { svds });
+  // Whether the first pass kept its tiles (see keepsTiles).
+  const keep = first ? kept.length > 0 : keepsTiles(spec);
   // Internal assertion: the first pass covers every tile, in order.
   if (spectra.count !== spectra.tiles || (keep && kept.length !== spectra.tiles)) throw new Error(`the first pass planned ${spectra.count} of ${spectra.tiles} tiles`);
-  const data = chooseL2(spectra, tol, (sample) => (keep ? sample.map((i) => kept[i]) : readTiles(src, spec, fill, sample, tol)));
-  return l2Plan(data, fill, (index) => (keep ? kept[index] : undefined));
+  let costed: { index: number; tile: PreparedTile }[] = [];
+  const data = chooseL2(spectra, tol, (sample) => {
+    if (keep) {
+      for (const i of sample) adoptSvds(kept[i], svds?.get(i));
+      return sample.map((i) => kept[i]);
+    }
+    const tiles = readTiles(src, spec, fill, sample, tol, undefined, (i) => handed?.get(i) ?? svds?.get(i));
+    costed = tiles.map((tile, k) => ({ index: sample[k], tile }));
+    return tiles;
+  });
+  // Of a field whose tiles are not kept, the payloads the costing made of its sampled tiles under the chosen plan.
+  const made = new Map<number, Uint8Array>();
+  for (const { index, tile } of costed) {
+    const payload = tile.costed.get(planKey(data, index));
+    if (payload !== undefined) made.set(index, payload);
+  }
+  return l2Plan(data, fill, (index) => (keep ? kept[index] : undefined), made);
 }
 
 /**
@@ -483,7 +559,7 @@ function outnumbers(p: L2PlanData, sample: number[], tiles: PreparedTile[]): boo
  * allotment by tighter residual coding, then exact storage. `kept` serves
  * tiles prepared in the first pass (none by default).
  */
-export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index: number) => PreparedTile | undefined = () => undefined): L2Plan {
+export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index: number) => PreparedTile | undefined = () => undefined, made: Map<number, Uint8Array> = new Map()): L2Plan {
   const tol = data.tol;
   return {
     name: data.name,
@@ -491,8 +567,10 @@ export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index:
     kept,
     encode(t, index) {
       const allotment = data.allot[index];
-      // Of a tile the costing sampled, its payload under this plan is made already.
-      let payload = t.costed.get(planKey(data, index)) ?? encodeWith(data, t, index);
+      // Of a tile the costing sampled, its payload under this plan is made already (on the tile, or
+      // `made` by the costing of a tile prepared from the same values when tiles are not kept).
+      let payload = t.costed.get(planKey(data, index)) ?? made.get(index) ?? encodeWith(data, t, index);
+      made.delete(index);
       // Under a field layer a tile's own spectrum is what the layer left, often near the rounding
       // of its factors: a rank plan's factors may then not come out, and the tile falls back to exact
       // storage (three tiles of 192 took 48 kB of a 74 kB archive, bench/'s basin-stack at
@@ -528,9 +606,18 @@ function fits(rmse: number, valid: number, allotment: number, tol: number): bool
 /**
  * Prepared tiles at the given indexes (ascending), reading only the bands
  * of rows that hold them, as {@link tilesOf} reads them; `check` sees each
- * tile's values first.
+ * tile's values first; `svds` gives the SVDs computed before of a tile
+ * prepared from the same values (see {@link TileSvds}).
  */
-export function readTiles(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, indexes: number[], tol: number, check?: (index: number, tile: FloatArray) => void): PreparedTile[] {
+export function readTiles(
+  src: BandSource,
+  spec: FieldSpec,
+  fill: Uint32Array | null,
+  indexes: number[],
+  tol: number,
+  check?: (index: number, tile: FloatArray) => void,
+  svds?: (index: number) => ReadonlyMap<number, Svd> | undefined,
+): PreparedTile[] {
   const [gr, gc] = tileGrid(spec);
   const out: PreparedTile[] = [];
   let at = -1;
@@ -549,7 +636,9 @@ export function readTiles(src: BandSource, spec: FieldSpec, fill: Uint32Array | 
     const n = Math.min(spec.tileCols, spec.cols - j0);
     const tile = cutBlock(band as FloatArray, spec.cols, 0, j0, m, n);
     check?.(index, tile);
-    out.push(prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one', termFor(spec, index, m, n)));
+    const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one', termFor(spec, index, m, n));
+    adoptSvds(t, svds?.(index));
+    out.push(t);
   }
   return out;
 }
