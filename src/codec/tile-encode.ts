@@ -609,12 +609,23 @@ export const FACTOR_NOISE = 0.25;
  * estimated size ranks among the best few (see searchRanks).
  */
 export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
-  if (!t.finite) return exactPayload(t);
-  if (t.valid === 0) return orExact(t, lowRankPayload(t, null, null));
-  const best = smallest(t, e > 0 ? searchRanks(t, e, rankZero(t, e)) : rankZero(t, e));
+  return pointwiseSearch(t, e).payload;
+}
+
+/**
+ * {@link encodePointwise}'s payload, and the estimated size
+ * ({@link estimateBytes}) of its plain rank-0 candidate (step 2e around the
+ * tile's centre): Infinity for a tile it stores without a search (not
+ * finite, or no valid cell).
+ */
+export function pointwiseSearch(t: PreparedTile, e: number): { payload: Uint8Array; zeroEstimate: number } {
+  if (!t.finite) return { payload: exactPayload(t), zeroEstimate: Infinity };
+  if (t.valid === 0) return { payload: orExact(t, lowRankPayload(t, null, null)), zeroEstimate: Infinity };
+  const rank0 = rankZero(t, e);
+  const best = smallest(t, e > 0 ? searchRanks(t, e, rank0) : rank0);
   const blended = best.withBlend();
   const pick = blended.payload.length < best.payload.length ? blended : best;
-  return orExact(t, withResidualCoder(t, pick.payload, pick.codes));
+  return { payload: orExact(t, withResidualCoder(t, pick.payload, pick.codes)), zeroEstimate: rank0[0].estimate };
 }
 
 /**
