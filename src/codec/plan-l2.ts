@@ -14,7 +14,7 @@ import { gramSingularValues } from '../linalg/spectrum.js';
 import { truncatedSvd } from '../linalg/truncated.js';
 import { keepSvd, prepareTile, type PreparedTile } from './prepare.js';
 import type { Svd } from '../linalg/svd.js';
-import { Method, payloadHead } from './payload.js';
+import { Method } from './payload.js';
 import { Spectra } from './spectra.js';
 import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, pointwiseSearch, withResidualCoder } from './tile-encode.js';
 import { rankZeroForMse, residualForMse } from './rdo.js';
@@ -35,6 +35,19 @@ import { rankZeroForMse, residualForMse } from './rdo.js';
  * 15.8 s of rank-0 search).
  */
 const ZERO_HOPELESS = 1;
+
+/**
+ * The residual plan's pointwise payload is finished (its blend and
+ * residual coders tried, see pointwiseSearch in tile-encode.ts) only where
+ * its bytes before are at most this times those of the payload with
+ * rate-distortion optimised codes over the same factors: finishing made
+ * no payload smaller by more than 8.7% (1.087 times) on the 2596
+ * pointwise searches of `npm run digest` (measured, issue 10), and the
+ * pointwise payload never beat the other on its 378 tiles with factors;
+ * on a 1024 x 1024 tile of bench/'s large field at psnr:60 it took 8
+ * times the bytes, and finishing it a quarter of its search's time.
+ */
+const FINISH_MARGIN = 1.25;
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
@@ -105,20 +118,23 @@ export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8
   // rank 0 and at the rank the pointwise coder chose: the smallest (on a tie, the first of these).
   const mse = 0.97 * p.tol * p.tol;
   const pointwise = pointwiseSearch(t, p.ePrime);
-  let best = pointwise.payload;
-  const r = payloadHead(best).rank;
+  const r = pointwise.rank;
   const f = r > 0 ? pointwiseFactors(t, r, p.ePrime) : null;
   const withFactors = f && residualForMse(t, f, mse);
+  // The pointwise payload is finished (the blend and the residual coders tried) only where it may be the smallest.
+  const factorsBytes = withFactors ? withFactors.length : Infinity;
+  const finished = pointwise.bytes <= FINISH_MARGIN * factorsBytes ? pointwise.finish() : null;
   // The factors are those of the rank the pointwise coder chose, even when the rank-0 search wins over it.
   // That search is made last, so that it can give up against the smaller of the others (on a smooth tile
   // the factors' payload is often a fraction of the pointwise one), and is not made at all where the
   // pointwise coder's own rank-0 candidate points to a payload it cannot beat (see ZERO_HOPELESS).
-  const atMost = withFactors ? Math.min(best.length, withFactors.length) : best.length;
+  const atMost = Math.min(finished?.length ?? Infinity, factorsBytes);
   const rdo = atMost <= ZERO_HOPELESS * pointwise.zeroEstimate ? null : rankZeroForMse(t, mse, atMost);
-  if (rdo !== null && rdo.length < best.length) best = rdo;
-  if (withFactors && withFactors.length < best.length) best = withFactors;
+  let best = finished;
+  if (rdo !== null && (best === null || rdo.length < best.length)) best = rdo;
+  if (withFactors && (best === null || withFactors.length < best.length)) best = withFactors;
   // encodePointwise chose its residual coder already; the residual of the others is coded now.
-  return withResidualCoder(t, best);
+  return withResidualCoder(t, best ?? pointwise.finish());
 }
 
 /**
