@@ -261,8 +261,9 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   let bestAt: [number, number] = [1, 0];
   // Bytes a rough bit of the first candidate coded took (see PREDICTED_MARGIN).
   let perBit = 0;
+  const beat = () => Math.min(atMost, best === null ? Infinity : (best as Uint8Array).length);
   const code = (kind: number, a: number, w: number, step: number, d: Int32Array, bits: number): void => {
-    if (perBit > 0 && perBit * bits > PREDICTED_MARGIN * Math.min(atMost, best === null ? Infinity : (best as Uint8Array).length)) return;
+    if (perBit > 0 && perBit * bits > PREDICTED_MARGIN * beat()) return;
     const payload = lowRankPayload(t, f, { center, step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
     if (perBit === 0 && bits > 0) perBit = payload.length / bits;
     if (best === null || payload.length < best.length) {
@@ -295,7 +296,8 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) {
     if (kind === plainKind) continue;
     const [a, w] = bestAt;
-    const walked = walk(kind, a, w, spare);
+    // A walk whose rough bits pass what code() would take is cut short (a hair over, against rounding).
+    const walked = walk(kind, a, w, spare, perBit > 0 ? ((PREDICTED_MARGIN * beat()) / perBit) * (1 + 1e-9) : Infinity);
     if (walked !== null) code(kind, a, w, walked.step, spare, walked.bits);
   }
   return best;
