@@ -393,7 +393,7 @@ export class ArchiveBuilder {
     [spec.tileRows, spec.tileCols] = trial.shape;
     // The trial's plan is the field's only when the first slice is the whole field.
     const plan = (spec.slices ?? 1) === 1 ? trial.plan : undefined;
-    return { basis, done: trial.done, ...(plan ? { plan } : {}), ...(trial.spectra ? { spectra: trial.spectra } : {}) };
+    return { basis, done: trial.done, ...(plan ? { plan } : {}), ...(trial.spectra ? { spectra: trial.spectra } : {}), ...(trial.svds ? { svds: trial.svds } : {}) };
   }
 
   /** Refuse a field whose name is taken, or whose slices need a flag the sink cannot set any more. */

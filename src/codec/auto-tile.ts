@@ -5,8 +5,9 @@
  * the clearest case); smaller tiles cost less to read through a window.
  */
 import type { FloatArray } from '../types.js';
+import type { Svd } from '../linalg/svd.js';
 import { copyBlock } from '../geometry.js';
-import { candidatePlans, costPlans, firstPass, keepsTiles, l2Plan, type L2Plan } from './plan-l2.js';
+import { candidatePlans, costPlans, firstPass, keepsTiles, l2Plan, type L2Plan, type TileSvds } from './plan-l2.js';
 import { encodeField, encodeTile, fieldBasis, termFor, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
@@ -263,7 +264,7 @@ class TrialChoice {
     if (this.stops && rate > this.rate) this.stopped = true;
     if (rate < this.rate) {
       this.rate = rate;
-      this.best = { shape: [m, n], done: tried.done, ...(tried.plan ? { plan: tried.plan } : {}), ...(tried.spectra ? { spectra: tried.spectra } : {}) };
+      this.best = { shape: [m, n], done: tried.done, ...(tried.plan ? { plan: tried.plan } : {}), ...(tried.spectra ? { spectra: tried.spectra } : {}), ...(tried.svds ? { svds: tried.svds } : {}) };
     }
   }
 }
@@ -276,6 +277,8 @@ export interface TileTrial {
   plan?: L2Plan;
   /** Under an L2 bound, the singular values of the sampled tiles, by the field's tile index (see FieldPrior). */
   spectra?: ReadonlyMap<number, Float64Array>;
+  /** Under an L2 bound, the SVDs computed of the sampled tiles without missing cells, by the field's tile index (see FieldPrior). */
+  svds?: TileSvds;
 }
 
 /** What one candidate's sample cost. */
@@ -285,6 +288,7 @@ export interface Tried {
   done: Map<number, TileOutcome>;
   plan?: L2Plan;
   spectra?: ReadonlyMap<number, Float64Array>;
+  svds?: TileSvds;
 }
 
 /** Tiles `picked` (row-major whole-tile numbers of an m x n grid) with their field tile index, read one band of tile rows at a time. */
@@ -375,7 +379,13 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
       const costed = costPlans(plans, all, first.kept, first.spectra, (bytes) => (bytes + tiles * TILE_INDEX_BYTES) / Math.max(1, valid) > beat);
       const whole = tiles === 1 && m === spec.rows && n === spec.cols && basis.tol === field.tol;
       const plan = whole ? l2Plan(costed.plan, basis.fill, (index) => first.kept[index]) : undefined;
-      return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), spectra, ...(plan ? { plan } : {}) };
+      // The SVDs the costing computed, for the field's passes to take: of tiles without missing cells (and no layer), whose
+      // centred values do not depend on the tolerance, which the small field's range may set otherwise than the field's.
+      const svds = new Map<number, Map<number, Svd>>();
+      first.kept.forEach((t, k) => {
+        if (t.classes.special === 0 && t.layer === null && t.svds.size > 0) svds.set(fieldIndex[k], t.svds);
+      });
+      return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), spectra, svds, ...(plan ? { plan } : {}) };
     }
   }
   let bytes = 0;

@@ -9,7 +9,7 @@ import { fillWords } from './mask.js';
 import { fieldStep } from './payload.js';
 import { ErrorTally } from './tally.js';
 import { measure, measurePrefixes, type TileStats } from './measure.js';
-import { planL2, type L2Plan } from './plan-l2.js';
+import { planL2, type L2Plan, type TileSvds } from './plan-l2.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
 import type { FloatArray } from '../types.js';
 import { encodePointwise, exactPayload } from './tile-encode.js';
@@ -82,9 +82,9 @@ export function basisOf(spec: FieldSpec, range: [number, number] | null): FieldC
  * before), and for L2 bounds the planning pass (see plan-l2.ts), or `plan`
  * when the tile trial made it.
  */
-export function fieldChoices(src: BandSource, spec: FieldSpec, basis?: FieldChoices, plan?: L2Plan, known?: ReadonlyMap<number, Float64Array>): FieldChoices {
+export function fieldChoices(src: BandSource, spec: FieldSpec, basis?: FieldChoices, plan?: L2Plan, known?: ReadonlyMap<number, Float64Array>, svds?: TileSvds): FieldChoices {
   const c = basis ? { ...basis } : fieldBasis(src, spec);
-  if (!c.pointwise) c.plan = plan ?? planL2(src, spec, c.tol, c.fill, undefined, known);
+  if (!c.pointwise) c.plan = plan ?? planL2(src, spec, c.tol, c.fill, undefined, known, svds);
   return c;
 }
 
@@ -106,6 +106,8 @@ export interface FieldPrior {
   plan?: L2Plan;
   /** The singular values of the tiles the trial sampled, by tile index: the planning pass takes them as they are (see tileSpectrum in plan-l2.ts). */
   spectra?: ReadonlyMap<number, Float64Array>;
+  /** The SVDs the trial computed of those tiles without missing cells, by tile index: the planning pass takes them as they are (see TileSvds in plan-l2.ts). */
+  svds?: TileSvds;
 }
 
 /**
@@ -169,7 +171,7 @@ export class FieldSummary {
  * and once more per encoding pass (L2 bounds make one extra pass).
  */
 export function encodeField(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, prior?: FieldPrior): FieldResult {
-  const c = fieldChoices(src, spec, prior?.basis, prior?.plan, prior?.spectra);
+  const c = fieldChoices(src, spec, prior?.basis, prior?.plan, prior?.spectra, prior?.svds);
   const summary = new FieldSummary(c);
   forEachTile(src, spec, (index, tile, m, n) => {
     const o = prior?.done.get(index) ?? encodeTile(c, tileToEncode(c, index, tile, m, n, termFor(spec, index, m, n)), index);

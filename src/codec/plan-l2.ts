@@ -13,10 +13,41 @@ import type { FloatArray } from '../types.js';
 import { gramSingularValues } from '../linalg/spectrum.js';
 import { truncatedSvd } from '../linalg/truncated.js';
 import { keepSvd, prepareTile, type PreparedTile } from './prepare.js';
-import { Method, payloadHead } from './payload.js';
+import type { Svd } from '../linalg/svd.js';
+import { Method } from './payload.js';
 import { Spectra } from './spectra.js';
-import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, withResidualCoder } from './tile-encode.js';
+import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, pointwiseSearch, withResidualCoder } from './tile-encode.js';
 import { rankZeroForMse, residualForMse } from './rdo.js';
+
+/**
+ * The residual plan's rank-0 rate-distortion search is not made for a tile
+ * when the payload it must beat is at most this times the estimated size
+ * of the pointwise coder's plain rank-0 candidate (its rough bits and a
+ * sign bit per non-zero code, see estimateBytes in tile-encode.ts): the
+ * factors' payload is then small against what any rank-0 coding of the
+ * tile takes. Measured (issue 10): of the 1035 tiles the residual plan
+ * costed in `npm run digest`, the search's payload won on 75, each time
+ * against a payload at least 1.24 times that estimate; on the full-size
+ * bench fields at psnr:40, 60 and 80 (249 searches, the estimate taken of
+ * plain rounding at the search's own unit step) it won on tiles whose
+ * payload to beat was at least 1.25 times it. At 1.0, 301 searches of the
+ * digest's are not made, and 75 of 249 on the full fields (6.7 of their
+ * 15.8 s of rank-0 search).
+ */
+const ZERO_HOPELESS = 1;
+
+/**
+ * The residual plan's pointwise payload is finished (its blend and
+ * residual coders tried, see pointwiseSearch in tile-encode.ts) only where
+ * its bytes before are at most this times those of the payload with
+ * rate-distortion optimised codes over the same factors: finishing made
+ * no payload smaller by more than 8.7% (1.087 times) on the 2596
+ * pointwise searches of `npm run digest` (measured, issue 10), and the
+ * pointwise payload never beat the other on its 378 tiles with factors;
+ * on a 1024 x 1024 tile of bench/'s large field at psnr:60 it took 8
+ * times the bytes, and finishing it a quarter of its search's time.
+ */
+const FINISH_MARGIN = 1.25;
 
 /** Shares of the budget given to rank truncation in the Eckart-Young plans. */
 const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
@@ -24,6 +55,34 @@ const TRUNCATION_SHARES = [0.3, 0.5, 0.8];
 const SAMPLE_TILES = 48;
 /** Prepared tiles are kept between passes for fields up to this many cells. */
 const KEEP_CELLS = 4 << 20;
+/**
+ * Of a larger field, the SVDs the first pass computed of the tiles the
+ * costing samples are handed to it, up to this many bytes of vectors
+ * (32 MiB: 48 rank-16 SVDs of 4096 x 2730 tiles), so that it does not
+ * compute them again (see {@link TileSvds}).
+ */
+const HANDOFF_BYTES = 32 << 20;
+
+/**
+ * SVDs computed of tiles, by tile index, then by rung (as PreparedTile.svds
+ * holds them): handed from one pass to a later one that prepares the same
+ * tiles again. A rung's SVD is a function of the tile's centred values
+ * alone (see ensureSvd), so a tile prepared again from the same values, or
+ * one without missing cells prepared with another tolerance (its centred
+ * values do not depend on it, see {@link tileSpectrum}), takes them as
+ * they are.
+ */
+export type TileSvds = ReadonlyMap<number, ReadonlyMap<number, Svd>>;
+
+/** Take the SVDs handed over for a tile prepared again (the rungs it has not computed). */
+export function adoptSvds(t: PreparedTile, svds: ReadonlyMap<number, Svd> | undefined): void {
+  if (svds !== undefined) for (const [k, s] of svds) if (!t.svds.has(k)) t.svds.set(k, s);
+}
+
+/** Bytes of an SVD's vectors and values. */
+function svdBytes(s: Svd): number {
+  return s.u.byteLength + s.v.byteLength + s.s.byteLength;
+}
 
 /**
  * One way to encode every tile, as plain data (so a plan can be handed to
@@ -58,18 +117,24 @@ export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8
   // The pointwise coder at ePrime, or a residual whose codes are chosen for rate as well as error, at
   // rank 0 and at the rank the pointwise coder chose: the smallest (on a tie, the first of these).
   const mse = 0.97 * p.tol * p.tol;
-  let best = encodePointwise(t, p.ePrime);
-  const r = payloadHead(best).rank;
+  const pointwise = pointwiseSearch(t, p.ePrime);
+  const r = pointwise.rank;
   const f = r > 0 ? pointwiseFactors(t, r, p.ePrime) : null;
   const withFactors = f && residualForMse(t, f, mse);
+  // The pointwise payload is finished (the blend and the residual coders tried) only where it may be the smallest.
+  const factorsBytes = withFactors ? withFactors.length : Infinity;
+  const finished = pointwise.bytes <= FINISH_MARGIN * factorsBytes ? pointwise.finish() : null;
   // The factors are those of the rank the pointwise coder chose, even when the rank-0 search wins over it.
   // That search is made last, so that it can give up against the smaller of the others (on a smooth tile
-  // the factors' payload is often a fraction of the pointwise one).
-  const rdo = rankZeroForMse(t, mse, withFactors ? Math.min(best.length, withFactors.length) : best.length);
-  if (rdo !== null && rdo.length < best.length) best = rdo;
-  if (withFactors && withFactors.length < best.length) best = withFactors;
+  // the factors' payload is often a fraction of the pointwise one), and is not made at all where the
+  // pointwise coder's own rank-0 candidate points to a payload it cannot beat (see ZERO_HOPELESS).
+  const atMost = Math.min(finished?.length ?? Infinity, factorsBytes);
+  const rdo = atMost <= ZERO_HOPELESS * pointwise.zeroEstimate ? null : rankZeroForMse(t, mse, atMost);
+  let best = finished;
+  if (rdo !== null && (best === null || rdo.length < best.length)) best = rdo;
+  if (withFactors && (best === null || withFactors.length < best.length)) best = withFactors;
   // encodePointwise chose its residual coder already; the residual of the others is coded now.
-  return withResidualCoder(t, best);
+  return withResidualCoder(t, best ?? pointwise.finish());
 }
 
 /**
@@ -124,8 +189,10 @@ export function firstPassTile(
   known?: Float64Array,
   seen?: (s: Float64Array) => void,
   term: Float64Array | null = null,
+  svds?: ReadonlyMap<number, Svd>,
 ): FirstPassTile {
   const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one', term);
+  adoptSvds(t, svds);
   const s = tileSpectrum(t, tol, known);
   seen?.(s);
   return { sv2: s.map((v) => (v / tol) * (v / tol)), dims: [m, n, t.valid], ...(keep ? { tile: t } : {}) };
@@ -158,6 +225,17 @@ const LEADING_MIN_SIDE = 256;
 /** Leading values tried, in turn, before the whole spectrum is taken. */
 const LEADING_COUNTS = [16, 48];
 /**
+ * Where the rank-16 spectrum leaves a tail over the limit that more than
+ * this share of 32 values as large as its 16th would be needed to carry,
+ * the rank-48 try is not made (it would fail: the spectrum is flat).
+ * Measured (issue 10) on bench/'s quick and full fields at psnr:40, 60, 80
+ * and rmse:1e-2, every tile whose rank-16 try failed: the rank-48 try
+ * succeeded on the 6 tiles (smooth-front) where that share was 0.010 to
+ * 0.033, and failed on the 26 (turbulence among them) where it was 0.45 to
+ * 0.56 (a rank-48 randomized SVD thrown away: 45 ms on a 256 x 256 tile).
+ */
+const FLAT_REACH = 0.25;
+/**
  * A lumped tail may hold at most this share of the tile's own part of the
  * budget (valid x tol^2): a thousandth, so that every tile's tail together
  * is a thousandth of the field's budget, far inside the smallest truncation
@@ -184,7 +262,7 @@ export function leadingSpectrum(t: PreparedTile, tol: number): Float64Array | nu
   const full = Math.min(t.m, t.n);
   if (full < LEADING_MIN_SIDE || !(tol > 0)) return null;
   const limit = LUMP_SHARE * t.valid * tol * tol;
-  for (const k of LEADING_COUNTS) {
+  for (const [at, k] of LEADING_COUNTS.entries()) {
     if (k + 8 >= full) break;
     const r = truncatedSvd(t.centred, t.m, t.n, k);
     // The same SVD the encoder computes for its candidates of rank up to k, when k is one of its rungs.
@@ -192,7 +270,13 @@ export function leadingSpectrum(t: PreparedTile, tol: number): Float64Array | nu
     let lead = 0;
     for (let j = 0; j < k; j++) lead += r.s[j] * r.s[j];
     const tail = Math.max(0, r.frob2 - lead);
-    if (!(tail <= limit)) continue;
+    if (!(tail <= limit)) {
+      // The next count's values would have to carry what is left over the limit: not tried where even
+      // FLAT_REACH times as many values as it adds, each as large as this count's last, fall short.
+      const more = (LEADING_COUNTS[at + 1] ?? k) - k;
+      if (tail - limit > FLAT_REACH * more * r.s[k - 1] * r.s[k - 1]) return null;
+      continue;
+    }
     const out = new Float64Array(full);
     out.set(r.s.subarray(0, k));
     out.fill(Math.min(r.s[k - 1], Math.sqrt(tail / (full - k))), k);
@@ -224,7 +308,9 @@ export function cuttable(sv2: Float64Array, cells: number): Float64Array {
  * The first pass over every tile of a field, in this thread, into a
  * {@link Spectra} store (and the prepared tiles, when kept). `known`: the
  * singular values the tile trial took, by tile index; `seen` is handed each
- * tile's singular values.
+ * tile's singular values; `svds`: the SVDs the tile trial computed, by tile
+ * index (see {@link TileSvds}); `keep`: whether the prepared tiles are kept
+ * (by default, for fields up to KEEP_CELLS cells; see {@link keepsTiles}).
  */
 export function firstPass(
   src: BandSource,
@@ -233,16 +319,39 @@ export function firstPass(
   fill: Uint32Array | null,
   known?: ReadonlyMap<number, Float64Array>,
   seen?: (index: number, s: Float64Array) => void,
-): { spectra: Spectra; kept: PreparedTile[] } {
-  const keep = keepsTiles(spec);
+  { svds, keep = keepsTiles(spec) }: { svds?: TileSvds; keep?: boolean } = {},
+): FirstPass {
   const spectra = new Spectra(tileCount(spec));
   const kept: PreparedTile[] = [];
+  // Of a field whose tiles are not kept, the sampled tiles' SVDs are handed to the costing (up to HANDOFF_BYTES).
+  const sampled = keep ? new Set<number>() : new Set(sampleTiles(spectra.tiles));
+  const handed = new Map<number, Map<number, Svd>>();
+  let bytes = 0;
   forEachTile(src, spec, (index, tile, m, n) => {
-    const f = firstPassTile(tile, m, n, spec, fill, tol, keep, known?.get(index), seen && ((s) => seen(index, s)), termFor(spec, index, m, n));
+    const f = firstPassTile(tile, m, n, spec, fill, tol, keep || sampled.has(index), known?.get(index), seen && ((s) => seen(index, s)), termFor(spec, index, m, n), svds?.get(index));
     spectra.add(f);
     if (keep) kept.push(f.tile!);
+    else if (f.tile !== undefined && f.tile.svds.size > 0) {
+      let b = 0;
+      for (const s of f.tile.svds.values()) b += svdBytes(s);
+      if (bytes + b <= HANDOFF_BYTES) {
+        handed.set(index, f.tile.svds);
+        bytes += b;
+      }
+    }
   });
-  return { spectra, kept };
+  return { spectra, kept, svds: handed };
+}
+
+/**
+ * What the first pass hands to the plan choice: every tile's spectrum, the
+ * prepared tiles when the field is small enough to keep them, and
+ * otherwise the SVDs it computed of the tiles the costing samples.
+ */
+export interface FirstPass {
+  spectra: Spectra;
+  kept: PreparedTile[];
+  svds?: TileSvds;
 }
 
 /** Tiles of a field, over all its slices. */
@@ -257,14 +366,34 @@ function tileCount(spec: FieldSpec): number {
  * order, and the prepared tiles when the field is small enough to keep them)
  * when it was made elsewhere (on worker threads); by default it is made here
  * (with the singular values the tile trial took, `known`, by tile index).
+ * `svds`: the SVDs the tile trial computed, by tile index (see
+ * {@link TileSvds}). Of a field whose tiles are not kept, the payloads the
+ * costing made of its sampled tiles under the chosen plan are kept for the
+ * second pass (only those: a few dozen tiles' payloads).
  */
-export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: { spectra: Spectra; kept: PreparedTile[] }, known?: ReadonlyMap<number, Float64Array>): L2Plan {
-  const keep = keepsTiles(spec);
-  const { spectra, kept } = first ?? firstPass(src, spec, tol, fill, known);
+export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: FirstPass, known?: ReadonlyMap<number, Float64Array>, svds?: TileSvds): L2Plan {
+  const { spectra, kept, svds: handed } = first ?? firstPass(src, spec, tol, fill, known, undefined, { svds });
+  // Whether the first pass kept its tiles (see keepsTiles).
+  const keep = first ? kept.length > 0 : keepsTiles(spec);
   // Internal assertion: the first pass covers every tile, in order.
   if (spectra.count !== spectra.tiles || (keep && kept.length !== spectra.tiles)) throw new Error(`the first pass planned ${spectra.count} of ${spectra.tiles} tiles`);
-  const data = chooseL2(spectra, tol, (sample) => (keep ? sample.map((i) => kept[i]) : readTiles(src, spec, fill, sample, tol)));
-  return l2Plan(data, fill, (index) => (keep ? kept[index] : undefined));
+  let costed: { index: number; tile: PreparedTile }[] = [];
+  const data = chooseL2(spectra, tol, (sample) => {
+    if (keep) {
+      for (const i of sample) adoptSvds(kept[i], svds?.get(i));
+      return sample.map((i) => kept[i]);
+    }
+    const tiles = readTiles(src, spec, fill, sample, tol, undefined, (i) => handed?.get(i) ?? svds?.get(i));
+    costed = tiles.map((tile, k) => ({ index: sample[k], tile }));
+    return tiles;
+  });
+  // Of a field whose tiles are not kept, the payloads the costing made of its sampled tiles under the chosen plan.
+  const made = new Map<number, Uint8Array>();
+  for (const { index, tile } of costed) {
+    const payload = tile.costed.get(planKey(data, index));
+    if (payload !== undefined) made.set(index, payload);
+  }
+  return l2Plan(data, fill, (index) => (keep ? kept[index] : undefined), made);
 }
 
 /**
@@ -483,7 +612,7 @@ function outnumbers(p: L2PlanData, sample: number[], tiles: PreparedTile[]): boo
  * allotment by tighter residual coding, then exact storage. `kept` serves
  * tiles prepared in the first pass (none by default).
  */
-export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index: number) => PreparedTile | undefined = () => undefined): L2Plan {
+export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index: number) => PreparedTile | undefined = () => undefined, made: Map<number, Uint8Array> = new Map()): L2Plan {
   const tol = data.tol;
   return {
     name: data.name,
@@ -491,8 +620,10 @@ export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index:
     kept,
     encode(t, index) {
       const allotment = data.allot[index];
-      // Of a tile the costing sampled, its payload under this plan is made already.
-      let payload = t.costed.get(planKey(data, index)) ?? encodeWith(data, t, index);
+      // Of a tile the costing sampled, its payload under this plan is made already (on the tile, or
+      // `made` by the costing of a tile prepared from the same values when tiles are not kept).
+      let payload = t.costed.get(planKey(data, index)) ?? made.get(index) ?? encodeWith(data, t, index);
+      made.delete(index);
       // Under a field layer a tile's own spectrum is what the layer left, often near the rounding
       // of its factors: a rank plan's factors may then not come out, and the tile falls back to exact
       // storage (three tiles of 192 took 48 kB of a 74 kB archive, bench/'s basin-stack at
@@ -528,9 +659,18 @@ function fits(rmse: number, valid: number, allotment: number, tol: number): bool
 /**
  * Prepared tiles at the given indexes (ascending), reading only the bands
  * of rows that hold them, as {@link tilesOf} reads them; `check` sees each
- * tile's values first.
+ * tile's values first; `svds` gives the SVDs computed before of a tile
+ * prepared from the same values (see {@link TileSvds}).
  */
-export function readTiles(src: BandSource, spec: FieldSpec, fill: Uint32Array | null, indexes: number[], tol: number, check?: (index: number, tile: FloatArray) => void): PreparedTile[] {
+export function readTiles(
+  src: BandSource,
+  spec: FieldSpec,
+  fill: Uint32Array | null,
+  indexes: number[],
+  tol: number,
+  check?: (index: number, tile: FloatArray) => void,
+  svds?: (index: number) => ReadonlyMap<number, Svd> | undefined,
+): PreparedTile[] {
   const [gr, gc] = tileGrid(spec);
   const out: PreparedTile[] = [];
   let at = -1;
@@ -549,7 +689,9 @@ export function readTiles(src: BandSource, spec: FieldSpec, fill: Uint32Array | 
     const n = Math.min(spec.tileCols, spec.cols - j0);
     const tile = cutBlock(band as FloatArray, spec.cols, 0, j0, m, n);
     check?.(index, tile);
-    out.push(prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one', termFor(spec, index, m, n)));
+    const t = prepareTile(tile, m, n, spec.dtype, fill, tol, spec.progressive ? 'doubling' : 'one', termFor(spec, index, m, n));
+    adoptSvds(t, svds?.(index));
+    out.push(t);
   }
   return out;
 }

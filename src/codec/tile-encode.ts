@@ -8,7 +8,7 @@ import { ByteWriter } from '../format/bytes.js';
 import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
-import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, RESIDUAL_SYMBOLS, residualPlace, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
+import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, payloadHead, RESIDUAL_SYMBOLS, residualPlace, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
 import { lowRank, predict, predictorBitsOf, predictorBitsRow, predictedFill, Predictor, PREDICTOR_SUMS, withResidual } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
@@ -609,12 +609,57 @@ export const FACTOR_NOISE = 0.25;
  * estimated size ranks among the best few (see searchRanks).
  */
 export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
-  if (!t.finite) return exactPayload(t);
-  if (t.valid === 0) return orExact(t, lowRankPayload(t, null, null));
-  const best = smallest(t, e > 0 ? searchRanks(t, e, rankZero(t, e)) : rankZero(t, e));
-  const blended = best.withBlend();
-  const pick = blended.payload.length < best.payload.length ? blended : best;
-  return orExact(t, withResidualCoder(t, pick.payload, pick.codes));
+  return pointwiseSearch(t, e).finish();
+}
+
+/** {@link encodePointwise} in two steps: the search, then its payload finished (see {@link pointwiseSearch}). */
+export interface PointwiseSearch {
+  /** The rank of the payload finish() gives. */
+  rank: number;
+  /** Bytes of the smallest candidate before finish() tries the blend and the residual coders on it. */
+  bytes: number;
+  /** The estimated size ({@link estimateBytes}) of the plain rank-0 candidate (step 2e around the tile's centre); Infinity when there was no search. */
+  zeroEstimate: number;
+  /** The payload of {@link encodePointwise} (made once). */
+  finish(): Uint8Array;
+}
+
+/**
+ * {@link encodePointwise} up to its smallest candidate: the payload's rank
+ * and its bytes so far are known before the blend and the residual coders
+ * are tried on it (which leave the rank as it is), so that a caller with a
+ * smaller payload in hand need not finish it. Where the exact payload may
+ * still win (see EXACT_GATE), which sets the rank, the payload is finished
+ * at once.
+ */
+export function pointwiseSearch(t: PreparedTile, e: number): PointwiseSearch {
+  if (!t.finite) return finished(exactPayload(t), Infinity);
+  if (t.valid === 0) return finished(orExact(t, lowRankPayload(t, null, null)), Infinity);
+  const rank0 = rankZero(t, e);
+  const best = smallest(t, e > 0 ? searchRanks(t, e, rank0) : rank0);
+  const zeroEstimate = rank0[0].estimate;
+  let payload: Uint8Array | null = null;
+  const finish = () => {
+    if (payload === null) {
+      const blended = best.withBlend();
+      const pick = blended.payload.length < best.payload.length ? blended : best;
+      payload = orExact(t, withResidualCoder(t, pick.payload, pick.codes));
+    }
+    return payload;
+  };
+  // The residual coder may lengthen the payload by a hundredth of its stream and a byte (SYMBOLS_MARGIN, its length's varint).
+  if (!(SYMBOLS_MARGIN * best.payload.length + 1 < EXACT_GATE * rawBytes(t))) return finished(finish(), zeroEstimate);
+  return { rank: payloadHead(best.payload).rank, bytes: best.payload.length, zeroEstimate, finish };
+}
+
+/** A search whose payload is finished. */
+function finished(payload: Uint8Array, zeroEstimate: number): PointwiseSearch {
+  return { rank: payloadHead(payload).rank, bytes: payload.length, zeroEstimate, finish: () => payload };
+}
+
+/** The tile's values as stored raw. */
+function rawBytes(t: PreparedTile): number {
+  return t.m * t.n * (t.dtype === 'f32' ? 4 : 8);
 }
 
 /**
@@ -628,8 +673,7 @@ const EXACT_GATE = 0.5;
 
 /** `best`, or the exact payload when `best` is large enough that exact storage may be smaller, and it is. */
 function orExact(t: PreparedTile, best: Uint8Array): Uint8Array {
-  const raw = t.m * t.n * (t.dtype === 'f32' ? 4 : 8);
-  if (best.length < EXACT_GATE * raw) return best;
+  if (best.length < EXACT_GATE * rawBytes(t)) return best;
   const exact = exactPayload(t);
   return exact.length < best.length ? exact : best;
 }

@@ -12,7 +12,7 @@
  */
 import { tileGrid } from '../geometry.js';
 import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, termFor, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
+import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData, type TileSvds } from '../codec/plan-l2.js';
 import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
 import type { PickedTile } from '../codec/auto-tile.js';
@@ -150,7 +150,7 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
  */
 export async function encodeFieldParallel(src: BandSource, spec: FieldSpec, emit: (index: number, tile: EncodedTile) => void, pool: WorkerPool, prior?: FieldPrior): Promise<FieldResult> {
   const c = prior ? { ...prior.basis } : fieldBasis(src, spec);
-  if (!c.pointwise) c.plan = prior?.plan ?? (await planL2Parallel(src, spec, c, pool, prior?.spectra));
+  if (!c.pointwise) c.plan = prior?.plan ?? (await planL2Parallel(src, spec, c, pool, prior?.spectra, prior?.svds));
   return encodeWithChoices(src, spec, c, pool, (index, o) => emit(index, { payload: o.payload, stats: o.stats }), false, prior?.done);
 }
 
@@ -212,9 +212,9 @@ export async function encodeTilesOn(pool: WorkerPool, c: FieldChoices, tiles: Pi
  * The L2 plan of a field whose basis `c` is made (pointwise false): the
  * first pass (every tile's spectrum) on `pool`, then the plan chosen here,
  * as {@link planL2} makes it in one thread (with the singular values the
- * tile trial took, `known`, by tile index).
+ * tile trial took, `known`, and the SVDs it computed, `svds`, by tile index).
  */
-export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool, known?: ReadonlyMap<number, Float64Array>): Promise<L2Plan> {
+export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool, known?: ReadonlyMap<number, Float64Array>, svds?: TileSvds): Promise<L2Plan> {
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   // Of each tile's first pass, the planner keeps its spectrum in a flat store (and the prepared tile only for small fields).
   const [gr, gc] = tileGrid(spec);
@@ -230,5 +230,5 @@ export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldC
     if (body.keep) first.kept.push(f.tile!);
   };
   await inOrder(pool, tilesOf(src, spec), post, take, limit);
-  return planL2(src, spec, c.tol, c.fill, first);
+  return planL2(src, spec, c.tol, c.fill, first, undefined, svds);
 }

@@ -14,7 +14,7 @@ import { Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, factorBytes, firstPass, keepsTiles, l2Plan, leadingSpectrum, planL2, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, factorBytes, firstPass, keepsTiles, l2Plan, leadingSpectrum, planL2, readTiles, tileSpectrum } from '../../src/codec/plan-l2.js';
 import { gramSingularValues } from '../../src/linalg/spectrum.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
@@ -349,5 +349,48 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
       // Done with: the tile keeps neither payloads nor SVDs.
       expect(t.costed.size + t.svds.size).toBe(0);
     }
+  });
+
+  it('a field whose tiles are not kept: the second pass takes the costing\'s payloads of the sampled tiles, the same bytes as with kept tiles', () => {
+    const { tol, spec, src } = precipCase(64, 96, 32, 32, 40);
+    const ref = planL2(src, spec, tol, null);
+    const refPayloads = [0, 1, 2, 3, 4, 5].map((k) => ref.encode(ref.kept(k)!, k).payload);
+    const plan = () => {
+      const first = firstPass(src, spec, tol, null, undefined, undefined, { keep: false });
+      expect(first.kept.length).toBe(0);
+      return planL2(src, spec, tol, null, first);
+    };
+    const unkept = plan();
+    expect(unkept.data).toEqual(ref.data);
+    for (let k = 0; k < 6; k++) expect(unkept.encode(readTiles(src, spec, null, [k], tol)[0], k).payload).toEqual(refPayloads[k]);
+    // The payload is the costing's, not made again: a tile whose centre is moved gets it, once (then its payload names that centre).
+    const moved = () => {
+      const t = readTiles(src, spec, null, [2], tol)[0];
+      t.center += tol;
+      return t;
+    };
+    const again = plan();
+    expect(again.encode(moved(), 2).payload).toEqual(refPayloads[2]);
+    expect(again.encode(moved(), 2).payload).not.toEqual(refPayloads[2]);
+  });
+
+  it('takes the SVDs computed before of tiles prepared again (the tile trial\'s): the same objects, the same payloads', () => {
+    const { tol, spec, src } = precipCase(64, 96, 32, 32, 40);
+    // SVDs as a trial's costing leaves them on its tiles.
+    const before = firstPass(src, spec, tol, null);
+    costPlans(candidatePlans(before.spectra, tol), [0, 1, 2, 3, 4, 5], before.kept);
+    const svds = new Map(before.kept.map((t, k) => [k, t.svds] as const));
+    expect(svds.get(3)!.size).toBeGreaterThan(0);
+    const ref = planL2(src, spec, tol, null);
+    const refPayloads = [0, 1, 2, 3, 4, 5].map((k) => ref.encode(ref.kept(k)!, k).payload);
+    // Kept tiles take them before their costing.
+    const plan = planL2(src, spec, tol, null, undefined, undefined, svds);
+    for (const [rung, s] of svds.get(3)!) expect(plan.kept(3)!.svds.get(rung)).toBe(s);
+    expect([0, 1, 2, 3, 4, 5].map((k) => plan.encode(plan.kept(k)!, k).payload)).toEqual(refPayloads);
+    // Not kept: the first pass hands the sampled tiles' SVDs on to the costing.
+    const first = firstPass(src, spec, tol, null, undefined, undefined, { svds, keep: false });
+    for (const [rung, s] of svds.get(3)!) expect(first.svds!.get(3)!.get(rung)).toBe(s);
+    const unkept = planL2(src, spec, tol, null, first);
+    expect([0, 1, 2, 3, 4, 5].map((k) => unkept.encode(readTiles(src, spec, null, [k], tol)[0], k).payload)).toEqual(refPayloads);
   });
 });

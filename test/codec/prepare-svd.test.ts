@@ -14,7 +14,8 @@ import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { ensureSvd, PARTIAL_RANK, prepareTile, svdRung } from '../../src/codec/prepare.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
-import { correct, encodeL2, encodePointwise, lowRankPayload, pointwiseFactors } from '../../src/codec/tile-encode.js';
+import { correct, encodeL2, encodePointwise, lowRankPayload, pointwiseFactors, pointwiseSearch } from '../../src/codec/tile-encode.js';
+import { payloadHead } from '../../src/codec/payload.js';
 
 /** A block of vega-datasets 3.2.1 annual-precip.json (NOAA CFSv2 2016 annual precipitation, 360 x 168): rows 20.., columns 30.., no missing cells. */
 function precipBlock(rows: number, cols: number): Float64Array {
@@ -121,5 +122,32 @@ describe('the pointwise rank search (candidates ranked by estimated size, the be
     // And it decodes within the bound.
     const back = decodeTile(got, { m, n, dtype: 'f64', fill: null, where: 'test', symbols: true });
     for (let c = 0; c < m * n; c++) expect(Math.abs(back[c] - values[c])).toBeLessThanOrEqual(e);
+  });
+
+  it.each([1e-3, 1e-2, 0.2])('in two steps: the rank and bytes of its smallest candidate, then the same payload finished (rel %s)', (rel) => {
+    const values = precipBlock(m, n);
+    let [lo, hi] = [Infinity, -Infinity];
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    const e = rel * (hi - lo);
+    const search = pointwiseSearch(prepareTile(values, m, n, 'f64', null), e);
+    const payload = search.finish();
+    expect(payload).toEqual(encodePointwise(prepareTile(values, m, n, 'f64', null), e));
+    expect(search.finish()).toBe(payload);
+    expect(payloadHead(payload).rank).toBe(search.rank);
+    // Finishing takes the blend only if shorter, and the symbol coder at most 1% longer (and its length's varint a byte).
+    expect(payload.length).toBeLessThanOrEqual(1.01 * search.bytes + 1);
+  });
+
+  it.each([1e-3, 1e-2])('estimates its plain rank-0 candidate within 2x of that candidate coded (rel %s)', (rel) => {
+    const values = precipBlock(m, n);
+    let [lo, hi] = [Infinity, -Infinity];
+    for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
+    const e = rel * (hi - lo);
+    const search = pointwiseSearch(prepareTile(values, m, n, 'f64', null), e);
+    // Rough bits and a sign bit per non-zero code (common practice, no source, for the 2x).
+    const t = prepareTile(values, m, n, 'f64', null);
+    const zero = lowRankPayload(t, null, correct(t, null, e, undefined, undefined, false)).length;
+    expect(search.zeroEstimate).toBeGreaterThan(zero / 2);
+    expect(search.zeroEstimate).toBeLessThan(2 * zero);
   });
 });
