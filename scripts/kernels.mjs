@@ -16,9 +16,10 @@ const root = resolve(dirname(fileURLToPath(import.meta.url)), '..');
 const target = join(root, 'src', 'wasm', 'kernels-bytes.ts');
 /**
  * Optimized for speed, the stub runtime (no allocator or collector: the loader lays out the memory),
- * no assertions and no abort import (the module imports nothing), 128-bit SIMD on.
+ * no assertions and no abort import, 128-bit SIMD on, the memory imported and not exported (the loader
+ * makes each memory and keeps it: src/wasm/kernels.ts says why it never grows one).
  */
-const FLAGS = ['kernels/index.ts', '-O3', '--runtime', 'stub', '--noAssert', '--use', 'abort=', '--enable', 'simd', '--outFile', 'kernels.wasm'];
+const FLAGS = ['kernels/index.ts', '-O3', '--runtime', 'stub', '--noAssert', '--use', 'abort=', '--enable', 'simd', '--importMemory', '--noExportMemory', '--outFile', 'kernels.wasm'];
 const LINE = 100;
 
 async function compile() {

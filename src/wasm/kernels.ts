@@ -12,19 +12,26 @@
  * `process` global exists) forces the JavaScript everywhere, and
  * {@link setKernelMode} does so for tests.
  *
- * Memory: the module's own linear memory, which starts empty and grows as
- * the largest input needs. The first {@link WEIGHTS_BYTES} bytes hold the
- * blend predictor's weight table once it is loaded; callers lay out their
- * arrays from {@link SCRATCH_AT}, under a lease ({@link Kernels.lease}):
- * one user at a time, a nested user gets none and runs the JavaScript.
- * When a lease ends with the memory above {@link KEEP_BYTES}, the instance
- * is dropped (its memory with it) and the next use makes a small one.
+ * Memory: each instance imports a memory the loader made for it, sized
+ * for the largest use so far. When a use needs more, the loader makes a new,
+ * larger memory (at least twice the size) and a new instance over it, and
+ * never grows a memory in place: growing detaches the memory's old
+ * ArrayBuffer, and once any ArrayBuffer has been detached V8 checks every
+ * typed-array access of optimized code for detachment (its "array buffer
+ * detaching protector", from memory): measured here, truncatedSvd of a
+ * 64 x 64 matrix in JavaScript went from 1326 to 1860 us a call after one
+ * 8-byte buffer was detached (scratch measurement, Node 20). The first
+ * {@link WEIGHTS_BYTES} bytes hold the blend predictor's weight table once
+ * it is loaded; callers lay out their arrays from {@link SCRATCH_AT}, under
+ * a lease ({@link Kernels.lease}): one user at a time, a nested user gets
+ * none and runs the JavaScript. When a lease ends with the memory above
+ * {@link KEEP_BYTES}, the memory is dropped and the next use makes a small
+ * one.
  */
 import { KERNELS_BASE64 } from './kernels-bytes.js';
 
-/** The kernels' exports (kernels/index.ts): addresses are byte offsets into `memory`. */
+/** The kernels' exports (kernels/index.ts): addresses are byte offsets into the memory the instance imports. */
 interface KernelExports {
-  memory: WebAssembly.Memory;
   mulPairs(w: number, rows: number, cols: number, g: number, pairs: number, y: number): void;
   blendDecode(q: number, m: number, n: number, limit: number, weight: number, above: number, below: number): number;
 }
@@ -37,45 +44,63 @@ export const SCRATCH_AT = WEIGHTS_BYTES;
 export const KEEP_BYTES = 16 * 1024 * 1024;
 const PAGE = 65536;
 
-/** One instance of the kernels and views of its memory (renewed when the memory grows). */
+/** This thread's kernels: an instance over a memory, both replaced when a use needs more memory. */
 export class Kernels {
-  f64: Float64Array;
-  i32: Int32Array;
+  /** The instance's functions. */
+  fn!: KernelExports;
+  /** Views of the memory (renewed with it). */
+  f64 = new Float64Array(0);
+  i32 = new Int32Array(0);
   /** Whether the blend weight table is in memory (at 0). */
   weightsLoaded = false;
   private leased = false;
 
-  constructor(readonly fn: KernelExports) {
-    this.f64 = new Float64Array(fn.memory.buffer);
-    this.i32 = new Int32Array(fn.memory.buffer);
+  constructor(private readonly module: WebAssembly.Module) {
+    this.renew(WEIGHTS_BYTES);
+  }
+
+  /** Bytes of memory the instance has now. */
+  get memoryBytes(): number {
+    return this.f64.byteLength;
+  }
+
+  /** A new memory of `bytes` (whole pages) and an instance over it; throws when either cannot be had. */
+  private renew(bytes: number): void {
+    const memory = new WebAssembly.Memory({ initial: Math.ceil(bytes / PAGE) });
+    this.fn = new WebAssembly.Instance(this.module, { env: { memory } }).exports as unknown as KernelExports;
+    this.f64 = new Float64Array(memory.buffer);
+    this.i32 = new Int32Array(memory.buffer);
+    this.weightsLoaded = false;
   }
 
   /**
    * Take the memory for one use of `bytes` bytes from {@link SCRATCH_AT}:
-   * false (run the JavaScript) when another use holds it or it cannot grow
-   * that far. Views taken before may be stale after this: use `f64`, `i32`.
+   * false (run the JavaScript) when another use holds it or no memory that
+   * large can be had. Views taken before may be stale after this: use `f64`, `i32`.
    */
   lease(bytes: number): boolean {
     if (this.leased) return false;
     const need = SCRATCH_AT + bytes;
-    const have = this.fn.memory.buffer.byteLength;
-    if (need > have) {
+    if (need > this.memoryBytes) {
       try {
-        this.fn.memory.grow(Math.ceil((need - have) / PAGE));
+        this.renew(Math.max(need, 2 * this.memoryBytes));
       } catch {
         return false;
       }
-      this.f64 = new Float64Array(this.fn.memory.buffer);
-      this.i32 = new Int32Array(this.fn.memory.buffer);
     }
     this.leased = true;
     return true;
   }
 
-  /** End a use; a memory grown past {@link KEEP_BYTES} goes with this instance. */
+  /** End a use; a memory larger than {@link KEEP_BYTES} is dropped for a small one. */
   release(): void {
     this.leased = false;
-    if (this.fn.memory.buffer.byteLength > KEEP_BYTES && current === this) current = undefined;
+    if (this.memoryBytes <= KEEP_BYTES) return;
+    try {
+      this.renew(WEIGHTS_BYTES);
+    } catch {
+      // Keep the large one: it still works.
+    }
   }
 }
 
@@ -109,7 +134,7 @@ function instantiate(): Kernels | null {
   }
   if (compiled === null) return null;
   try {
-    return new Kernels(new WebAssembly.Instance(compiled, {}).exports as unknown as KernelExports);
+    return new Kernels(compiled);
   } catch {
     return null;
   }
