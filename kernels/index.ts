@@ -6,3 +6,4 @@
  */
 export { mulPairs } from './product';
 export { blendDecode } from './blend';
+export { pairUp, transpose } from './layout';

@@ -50,40 +50,29 @@ export function matrixProducts(w: Float64Array, rows: number, cols: number, l: n
 
 /**
  * The kernel's version: memory from SCRATCH_AT holds w, w^T (when asked
- * for), a sketch in column pairs and a product, all binary64; null when the
- * memory cannot be had.
+ * for), a sketch as given, the same in column pairs, and a product, all
+ * binary64; null when the memory cannot be had.
  */
 function kernelProducts(k: Kernels, w: Float64Array, rows: number, cols: number, l: number, transposed: boolean): MatrixProducts | null {
   const cells = rows * cols;
   const pairs = (l + 1) >> 1;
   const side = Math.max(rows, cols);
-  // In doubles from SCRATCH_AT: w, w^T, the sketch (pairs x side x 2), the product (side x 2 pairs).
+  // In doubles from SCRATCH_AT: w, w^T, the sketch (side x l), in pairs (pairs x side x 2), the product (side x 2 pairs).
   const wAt = SCRATCH_AT / 8;
   const wtAt = wAt + cells;
   const gAt = wtAt + (transposed ? cells : 0);
-  const yAt = gAt + 2 * pairs * side;
+  const pairsAt = gAt + side * l;
+  const yAt = pairsAt + 2 * pairs * side;
   if (!k.lease(8 * (yAt + 2 * pairs * side) - SCRATCH_AT)) return null;
   const heap = k.f64;
+  const fn = k.fn;
   heap.set(w, wAt);
-  if (transposed) {
-    for (let i = 0; i < rows; i++) {
-      const ro = i * cols;
-      for (let j = 0; j < cols; j++) heap[wtAt + j * rows + i] = w[ro + j];
-    }
-  }
+  if (transposed) fn.transpose(8 * wAt, rows, cols, 8 * wtAt);
   /** out = (the matrix at `at`, r x c) x g, g column-major c x l. */
   const product = (at: number, r: number, c: number, g: Float64Array, out: Float64Array): void => {
-    // Column t of g into lane t & 1 of pair t >> 1; an odd l's last pair has a zero second lane.
-    for (let t = 0; t < l; t++) {
-      const src = t * c;
-      const dst = gAt + 2 * c * (t >> 1) + (t & 1);
-      for (let j = 0; j < c; j++) heap[dst + 2 * j] = g[src + j];
-    }
-    if (l & 1) {
-      const dst = gAt + 2 * c * (l >> 1) + 1;
-      for (let j = 0; j < c; j++) heap[dst + 2 * j] = 0;
-    }
-    k.fn.mulPairs(8 * at, r, c, 8 * gAt, pairs, 8 * yAt);
+    heap.set(g.subarray(0, c * l), gAt);
+    fn.pairUp(8 * gAt, c, l, 8 * pairsAt);
+    fn.mulPairs(8 * at, r, c, 8 * pairsAt, pairs, 8 * yAt);
     out.set(heap.subarray(yAt, yAt + r * l));
   };
   return {

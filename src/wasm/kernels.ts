@@ -1,8 +1,8 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts):
- * the range finder's matrix product and the blend predictor's decoding walk,
- * each bit for bit the same as its JavaScript version, which stays the
- * fallback. Instantiated synchronously, lazily, once per thread (module
+ * the range finder's matrix product (with the copies that lay out its
+ * operands) and the blend predictor's decoding walk, each bit for bit the
+ * same as its JavaScript version, which stays the fallback. Instantiated synchronously, lazily, once per thread (module
  * state, and every worker thread has its own): the module is under 4 KiB,
  * below the size browsers allow to compile synchronously on the main thread
  * (4 KiB in Chromium: from memory). Where WebAssembly or its 128-bit SIMD
@@ -34,6 +34,8 @@ import { KERNELS_BASE64 } from './kernels-bytes.js';
 interface KernelExports {
   mulPairs(w: number, rows: number, cols: number, g: number, pairs: number, y: number): void;
   blendDecode(q: number, m: number, n: number, limit: number, weight: number, above: number, below: number): number;
+  transpose(src: number, rows: number, cols: number, dst: number): void;
+  pairUp(src: number, len: number, count: number, dst: number): void;
 }
 
 /** Bytes kept for the blend weight table (4 x 8191 + 1 entries of 4 bytes, rounded up to 64 KiB pages). */
