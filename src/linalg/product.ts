@@ -5,8 +5,16 @@
  * and reused by every product) and by {@link mulA} otherwise: the same bits
  * either way (kernels/product.ts says why).
  */
-import { Kernels, kernels, SCRATCH_AT } from '../wasm/kernels.js';
+import { LINALG_KERNELS } from '../wasm/kernels-bytes.js';
+import { type Kernels, kernels, SCRATCH_AT } from '../wasm/kernels.js';
 import { mulA } from './mul.js';
+
+/** The exports of kernels/linalg.ts: addresses are byte offsets into the kernels' memory. */
+interface LinalgKernels {
+  mulPairs(w: number, rows: number, cols: number, g: number, pairs: number, y: number): void;
+  transpose(src: number, rows: number, cols: number, dst: number): void;
+  pairUp(src: number, len: number, count: number, dst: number): void;
+}
 
 /** Products with one matrix for sketches of l columns; {@link MatrixProducts.done} ends them. */
 export interface MatrixProducts {
@@ -51,7 +59,7 @@ export function matrixProducts(w: Float64Array, rows: number, cols: number, l: n
 /**
  * The kernel's version: memory from SCRATCH_AT holds w, w^T (when asked
  * for), a sketch as given, the same in column pairs, and a product, all
- * binary64; null when the memory cannot be had.
+ * binary64; null when the memory or the module cannot be had.
  */
 function kernelProducts(k: Kernels, w: Float64Array, rows: number, cols: number, l: number, transposed: boolean): MatrixProducts | null {
   const cells = rows * cols;
@@ -64,8 +72,12 @@ function kernelProducts(k: Kernels, w: Float64Array, rows: number, cols: number,
   const pairsAt = gAt + side * l;
   const yAt = pairsAt + 2 * pairs * side;
   if (!k.lease(8 * (yAt + 2 * pairs * side) - SCRATCH_AT)) return null;
+  const fn = k.module<LinalgKernels>(LINALG_KERNELS);
+  if (fn === null) {
+    k.release();
+    return null;
+  }
   const heap = k.f64;
-  const fn = k.fn;
   heap.set(w, wAt);
   if (transposed) fn.transpose(8 * wAt, rows, cols, 8 * wtAt);
   /** out = (the matrix at `at`, r x c) x g, g column-major c x l. */

@@ -3,7 +3,13 @@
  * (kernels/blend.ts): the same codes, and the same stop, as blendWalk in
  * src/codec/reconstruct.ts with no settle function, which calls this first.
  */
+import { DECODE_KERNELS } from './kernels-bytes.js';
 import { kernels, SCRATCH_AT, WEIGHTS_BYTES } from './kernels.js';
+
+/** The blend walk of kernels/decode.ts: addresses are byte offsets into the kernels' memory. */
+interface BlendKernel {
+  blendDecode(q: number, m: number, n: number, limit: number, weight: number, above: number, below: number): number;
+}
 
 /** The largest limit the kernel takes (it holds the limit in an i32; the decoder passes 2^30). */
 const MAX_LIMIT = 0x7fffffff;
@@ -27,6 +33,8 @@ export function blendDecodeKernel(q: Int32Array, m: number, n: number, limit: nu
   const belowAt = aboveAt + 5 * n;
   if (!k.lease(4 * (belowAt + 5 * n) - SCRATCH_AT)) return null;
   try {
+    const fn = k.module<BlendKernel>(DECODE_KERNELS);
+    if (fn === null) return null;
     const heap = k.i32;
     if (!k.weightsLoaded) {
       if (4 * weights.length > WEIGHTS_BYTES) return null;
@@ -34,7 +42,7 @@ export function blendDecodeKernel(q: Int32Array, m: number, n: number, limit: nu
       k.weightsLoaded = true;
     }
     heap.set(q, qAt);
-    const ok = k.fn.blendDecode(4 * qAt, m, n, limit, 0, 4 * aboveAt, 4 * belowAt) !== 0;
+    const ok = fn.blendDecode(4 * qAt, m, n, limit, 0, 4 * aboveAt, 4 * belowAt) !== 0;
     q.set(heap.subarray(qAt, qAt + cells));
     return ok;
   } finally {

@@ -12,9 +12,9 @@
  * `process` global exists) forces the JavaScript everywhere, and
  * {@link setKernelMode} does so for tests.
  *
- * Memory: each instance imports a memory the loader made for it, sized
- * for the largest use so far. When a use needs more, the loader makes a new,
- * larger memory (at least twice the size) and a new instance over it, and
+ * Memory: the instances of both modules import one memory the loader made,
+ * sized for the largest use so far. When a use needs more, the loader makes
+ * a new, larger memory (at least twice the size) and new instances over it, and
  * never grows a memory in place: growing detaches the memory's old
  * ArrayBuffer, and once any ArrayBuffer has been detached V8 checks every
  * typed-array access of optimized code for detachment (its "array buffer
@@ -28,15 +28,6 @@
  * {@link KEEP_BYTES}, the memory is dropped and the next use makes a small
  * one.
  */
-import { KERNELS_BASE64 } from './kernels-bytes.js';
-
-/** The kernels' exports (kernels/index.ts): addresses are byte offsets into the memory the instance imports. */
-interface KernelExports {
-  mulPairs(w: number, rows: number, cols: number, g: number, pairs: number, y: number): void;
-  blendDecode(q: number, m: number, n: number, limit: number, weight: number, above: number, below: number): number;
-  transpose(src: number, rows: number, cols: number, dst: number): void;
-  pairUp(src: number, len: number, count: number, dst: number): void;
-}
 
 /** Bytes kept for the blend weight table (4 x 8191 + 1 entries of 4 bytes, rounded up to 64 KiB pages). */
 export const WEIGHTS_BYTES = 131072;
@@ -46,39 +37,76 @@ export const SCRATCH_AT = WEIGHTS_BYTES;
 export const KEEP_BYTES = 16 * 1024 * 1024;
 const PAGE = 65536;
 
-/** This thread's kernels: an instance over a memory, both replaced when a use needs more memory. */
+/** Compiled modules by their base64 text (kept for the thread's life: a new instance of one is cheap); null where one does not compile. */
+const compiled = new Map<string, WebAssembly.Module | null>();
+
+/** This thread's kernels: a memory and the instances over it, all replaced when a use needs more memory. */
 export class Kernels {
-  /** The instance's functions. */
-  fn!: KernelExports;
   /** Views of the memory (renewed with it). */
   f64 = new Float64Array(0);
   i32 = new Int32Array(0);
+  u8 = new Uint8Array(0);
   /** Whether the blend weight table is in memory (at 0). */
   weightsLoaded = false;
+  private memory!: WebAssembly.Memory;
+  /** Instances over this memory, by module; null where one cannot be had. */
+  private instances = new Map<string, unknown>();
   private leased = false;
 
-  constructor(private readonly module: WebAssembly.Module) {
+  constructor() {
     this.renew(WEIGHTS_BYTES);
   }
 
-  /** Bytes of memory the instance has now. */
+  /** Bytes of memory there are now. */
   get memoryBytes(): number {
-    return this.f64.byteLength;
+    return this.u8.byteLength;
   }
 
-  /** A new memory of `bytes` (whole pages) and an instance over it; throws when either cannot be had. */
+  /** A new memory of `bytes` (whole pages); instances are made anew over it when asked for. Throws when it cannot be had. */
   private renew(bytes: number): void {
-    const memory = new WebAssembly.Memory({ initial: Math.ceil(bytes / PAGE) });
-    this.fn = new WebAssembly.Instance(this.module, { env: { memory } }).exports as unknown as KernelExports;
-    this.f64 = new Float64Array(memory.buffer);
-    this.i32 = new Int32Array(memory.buffer);
+    this.memory = new WebAssembly.Memory({ initial: Math.ceil(bytes / PAGE) });
+    this.f64 = new Float64Array(this.memory.buffer);
+    this.i32 = new Int32Array(this.memory.buffer);
+    this.u8 = new Uint8Array(this.memory.buffer);
+    this.instances.clear();
     this.weightsLoaded = false;
+  }
+
+  /**
+   * The exports of the module `base64` (one of ./kernels-bytes.ts) over
+   * this memory, typed as `T` by the caller; null when it does not compile
+   * or instantiate here. Take it after {@link Kernels.lease}, which may
+   * renew the memory and so the instances.
+   */
+  module<T>(base64: string): T | null {
+    let inst = this.instances.get(base64);
+    if (inst === undefined) {
+      let mod = compiled.get(base64);
+      if (mod === undefined) {
+        try {
+          mod = new WebAssembly.Module(decodeBase64(base64));
+        } catch {
+          mod = null; // no SIMD, or compilation refused
+        }
+        compiled.set(base64, mod);
+      }
+      inst = null;
+      if (mod !== null) {
+        try {
+          inst = new WebAssembly.Instance(mod, { env: { memory: this.memory } }).exports;
+        } catch {
+          inst = null;
+        }
+      }
+      this.instances.set(base64, inst);
+    }
+    return inst as T | null;
   }
 
   /**
    * Take the memory for one use of `bytes` bytes from {@link SCRATCH_AT}:
    * false (run the JavaScript) when another use holds it or no memory that
-   * large can be had. Views taken before may be stale after this: use `f64`, `i32`.
+   * large can be had. Views taken before may be stale after this: use `f64`, `i32`, `u8`.
    */
   lease(bytes: number): boolean {
     if (this.leased) return false;
@@ -106,11 +134,9 @@ export class Kernels {
   }
 }
 
-/** The compiled module (kept: a new instance of it is cheap), null when it cannot be had; undefined before the first try. */
-let compiled: WebAssembly.Module | null | undefined;
-/** This thread's instance; undefined when none is made yet. */
+/** This thread's kernels; null when there is no WebAssembly; undefined before the first try. */
 let current: Kernels | null | undefined;
-/** 'js' forces the JavaScript; 'auto' uses the kernels when they instantiate. */
+/** 'js' forces the JavaScript; 'auto' uses the kernels where they instantiate. */
 let mode: 'auto' | 'js' | undefined;
 
 /** The environment's choice: RANKFIELD_KERNELS=js forces the JavaScript (any other value, or none, leaves it to the machine). */
@@ -126,27 +152,17 @@ function decodeBase64(s: string): Uint8Array<ArrayBuffer> {
   return out;
 }
 
-function instantiate(): Kernels | null {
-  if (compiled === undefined) {
-    try {
-      compiled = typeof WebAssembly === 'object' ? new WebAssembly.Module(decodeBase64(KERNELS_BASE64)) : null;
-    } catch {
-      compiled = null; // no SIMD, or compilation refused
-    }
-  }
-  if (compiled === null) return null;
-  try {
-    return new Kernels(compiled);
-  } catch {
-    return null;
-  }
-}
-
-/** This thread's kernels, instantiated on first use; null when the JavaScript is to run. */
+/** This thread's kernels, made on first use; null when the JavaScript is to run. */
 export function kernels(): Kernels | null {
   if (mode === undefined) mode = envMode();
   if (mode === 'js') return null;
-  if (current === undefined) current = instantiate();
+  if (current === undefined) {
+    try {
+      current = typeof WebAssembly === 'object' ? new Kernels() : null;
+    } catch {
+      current = null;
+    }
+  }
   return current;
 }
 

@@ -7,7 +7,7 @@
 import { execFileSync } from 'node:child_process';
 import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
-import { KERNELS_BASE64 } from '../../src/wasm/kernels-bytes.js';
+import { DECODE_KERNELS, LINALG_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels, setKernelMode } from '../../src/wasm/kernels.js';
 import { ensureBuilt, ROOT } from '../cli/helpers.js';
 import { useKernelMode } from '../kernel-mode.js';
@@ -35,18 +35,23 @@ describe('the kernels module', () => {
     expect(out).toMatch(/up to date/);
   });
 
-  it('is under 4 KiB, so browsers compile it synchronously on the main thread (Chromium\'s limit for new WebAssembly.Module: from memory)', () => {
-    const bytes = atob(KERNELS_BASE64).length;
-    expect(bytes).toBeGreaterThan(8);
-    expect(bytes).toBeLessThan(4096);
-    // The binary format's magic and version 1 (WebAssembly core specification, 5.5.16 Modules).
-    expect(Array.from(atob(KERNELS_BASE64).slice(0, 8), (ch) => ch.charCodeAt(0))).toEqual([0, 0x61, 0x73, 0x6d, 1, 0, 0, 0]);
+  it('is two modules, each under 4 KiB, so browsers compile them synchronously on the main thread (Chromium\'s limit for new WebAssembly.Module: from memory)', () => {
+    for (const base64 of [DECODE_KERNELS, LINALG_KERNELS]) {
+      const bytes = Array.from(atob(base64), (ch) => ch.charCodeAt(0));
+      expect(bytes.length).toBeLessThan(4096);
+      // The binary format's magic and version 1 (WebAssembly core specification, 5.5.16 Modules).
+      expect(bytes.slice(0, 8)).toEqual([0, 0x61, 0x73, 0x6d, 1, 0, 0, 0]);
+    }
   });
 
   it('is instantiated once per thread and switched off by setKernelMode', () => {
     const k = kernels();
     expect(k).not.toBeNull();
     expect(kernels()).toBe(k);
+    const linalg = k?.module(LINALG_KERNELS);
+    expect(linalg).not.toBeNull();
+    expect(k?.module(LINALG_KERNELS)).toBe(linalg);
+    expect(k?.module(DECODE_KERNELS)).not.toBe(linalg);
     setKernelMode('js');
     expect(kernels()).toBeNull();
     setKernelMode('auto');
