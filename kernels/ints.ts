@@ -6,7 +6,11 @@
  * count + 1)), the same range arithmetic on u32 (range >> 16 times a
  * probability is below 2^32, so nothing wraps that the JavaScript does not
  * wrap the same way), the same contexts from the carried neighbours, and
- * the same run loop for zeros in a zero neighbourhood.
+ * the same run loop for zeros in a zero neighbourhood. As in the
+ * JavaScript, each decision is written out where it is taken: a function
+ * cannot change the caller's locals (AssemblyScript has no closures over
+ * them), and range, code and position in module globals would put memory
+ * accesses on the decoder's critical path.
  *
  * The model's layout (src/codec/code-model.ts): contexts ZERO_AT = 0
  * (16 buckets), SIGN_AT = 16 (9), CLASS_AT = 25 (16 buckets x 31 classes),
