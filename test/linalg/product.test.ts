@@ -132,6 +132,7 @@ describe('the WebAssembly product', () => {
   it('makes a larger memory for a large matrix and gives it back after: the next use has a small one', () => {
     const k = kernels();
     const small = k?.memoryBytes ?? 0;
+    const oldView = k?.f64 ?? new Float64Array(0);
     const rows = 1100;
     const cols = 1100; // w and w^T: 19.4 MB, above the 16 MiB kept
     const w = new Float64Array(rows * cols).fill(1);
@@ -143,6 +144,9 @@ describe('the WebAssembly product', () => {
     p.done();
     expect(kernels()).toBe(k);
     expect(k?.memoryBytes).toBeLessThanOrEqual(Math.max(small, 131072));
+    // No memory was grown in place: the old memory's buffer is not detached (a detached one has length 0),
+    // since a detached buffer anywhere slows V8's typed-array code (src/wasm/kernels.ts).
+    expect(oldView.byteLength).toBe(small);
     // And the small memory works: the same product as mulA's.
     const q = matrixProducts(w.subarray(0, 12), 3, 4, 1, false);
     const out = new Float64Array(3);
