@@ -12,3 +12,15 @@ export function useKernelMode(mode: 'auto' | 'js'): void {
     setKernelMode(was);
   });
 }
+
+/** `run` on the JavaScript path, then with the kernels ('auto', which stays in force after): both results. */
+export function onBothPaths<T>(run: () => T): { js: T; wasm: T } {
+  try {
+    setKernelMode('js');
+    const js = run();
+    setKernelMode('auto');
+    return { js, wasm: run() };
+  } finally {
+    setKernelMode('auto');
+  }
+}

@@ -10,20 +10,17 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { predict, Predictor, unpredict } from '../../src/codec/reconstruct.js';
-import { kernels, setKernelMode } from '../../src/wasm/kernels.js';
-import { useKernelMode } from '../kernel-mode.js';
+import { kernels } from '../../src/wasm/kernels.js';
+import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 
 const LIMIT = 2 ** 30;
 
 /** unpredict with the blend on both paths: each path's answer and decoded grid. */
 function bothPaths(d: Int32Array, m: number, n: number, limit: number): { js: [boolean, number[]]; wasm: [boolean, number[]] } {
-  setKernelMode('js');
-  const a = d.slice();
-  const okJs = unpredict(a, m, n, limit, Predictor.Blend);
-  setKernelMode('auto');
-  const b = d.slice();
-  const okWasm = unpredict(b, m, n, limit, Predictor.Blend);
-  return { js: [okJs, Array.from(a)], wasm: [okWasm, Array.from(b)] };
+  return onBothPaths((): [boolean, number[]] => {
+    const a = d.slice();
+    return [unpredict(a, m, n, limit, Predictor.Blend), Array.from(a)];
+  });
 }
 
 useKernelMode('auto');

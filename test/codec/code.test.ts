@@ -8,8 +8,8 @@ import { describe, expect, it } from 'vitest';
 import { CodeStreamError, decodeInts } from '../../src/codec/code-decode.js';
 import { encodeInts } from '../../src/codec/code-encode.js';
 import { Cell } from '../../src/codec/mask.js';
-import { kernels, setKernelMode } from '../../src/wasm/kernels.js';
-import { useKernelMode } from '../kernel-mode.js';
+import { kernels } from '../../src/wasm/kernels.js';
+import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
 
 function roundTrip(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Int32Array {
@@ -151,19 +151,18 @@ describe.each(['auto', 'js'] as const)('coded integer streams (kernels %s)', (mo
 describe('the WebAssembly integer decoder', () => {
   useKernelMode('auto');
 
-  /** decodeInts on one path: the values, or the error's message. */
-  function decodeOn(mode: 'auto' | 'js', bytes: Uint8Array, m: number, n: number, codes: Uint8Array | null): { out?: number[]; error?: string } {
-    setKernelMode(mode);
-    const out = new Int32Array(m * n).fill(7);
-    try {
-      decodeInts(bytes, m, n, codes, out);
-      return { out: Array.from(out) };
-    } catch (e) {
-      expect(e).toBeInstanceOf(CodeStreamError);
-      return { error: (e as Error).message };
-    } finally {
-      setKernelMode('auto');
-    }
+  /** decodeInts on the JavaScript path and with the kernel: each one's values, or its error's message. */
+  function decodeBoth(bytes: Uint8Array, m: number, n: number, codes: Uint8Array | null): { js: { out?: number[]; error?: string }; wasm: { out?: number[]; error?: string } } {
+    return onBothPaths(() => {
+      const out = new Int32Array(m * n).fill(7);
+      try {
+        decodeInts(bytes, m, n, codes, out);
+        return { out: Array.from(out) };
+      } catch (e) {
+        expect(e).toBeInstanceOf(CodeStreamError);
+        return { error: (e as Error).message };
+      }
+    });
   }
 
   it('is there in Node 20', () => {
@@ -191,8 +190,8 @@ describe('the WebAssembly integer decoder', () => {
             bytes = bytes.slice();
             bytes[Math.floor(rand() * bytes.length)] ^= 1 << Math.floor(rand() * 8);
           }
-          const js = decodeOn('js', bytes, m, n, codes);
-          expect(decodeOn('auto', bytes, m, n, codes)).toEqual(js);
+          const { js, wasm } = decodeBoth(bytes, m, n, codes);
+          expect(wasm).toEqual(js);
           if (damage === 'whole') expect(js.out).toEqual(Array.from(v));
         },
       ),
@@ -203,7 +202,8 @@ describe('the WebAssembly integer decoder', () => {
   it('gives the JavaScript\'s values or its error message on arbitrary bytes (fast-check)', () => {
     fc.assert(
       fc.property(fc.uint8Array({ minLength: 4, maxLength: 80 }), fc.integer({ min: 1, max: 12 }), fc.integer({ min: 1, max: 12 }), (bytes, m, n) => {
-        expect(decodeOn('auto', bytes, m, n, null)).toEqual(decodeOn('js', bytes, m, n, null));
+        const { js, wasm } = decodeBoth(bytes, m, n, null);
+        expect(wasm).toEqual(js);
       }),
       { numRuns: 1000 },
     );
@@ -214,9 +214,9 @@ describe('the WebAssembly integer decoder', () => {
     for (const last of [0xfe, 0xfd, 0xf0, 0x80]) {
       const top = new Uint8Array(64).fill(0xff);
       top[3] = last;
-      const js = decodeOn('js', top, 1, 1, null);
+      const { js, wasm } = decodeBoth(top, 1, 1, null);
       if (last === 0xfe) expect(js.error).toMatch(/exceeds 2\^30|outside both halves/);
-      expect(decodeOn('auto', top, 1, 1, null)).toEqual(js);
+      expect(wasm).toEqual(js);
     }
   });
 });
