@@ -8,8 +8,10 @@
  * range, code and position through an object (as RangeDecoder below does
  * for the mask's few decisions, where speed matters less).
  */
+import { DECODE_KERNELS } from '../wasm/kernels-bytes.js';
+import { kernels, SCRATCH_AT } from '../wasm/kernels.js';
 import { Cell } from './mask.js';
-import { CLASS_AT, CLASSES, MANT_AT, MASK_CLASS_AT, MASK_SPECIAL_AT, newMaskModel, newModel, PROB_BITS, PROB_ONE, SHIFTS, SIGN_AT, ZERO_AT } from './code-model.js';
+import { CLASS_AT, CLASSES, CONTEXTS, MANT_AT, MASK_CLASS_AT, MASK_SPECIAL_AT, newMaskModel, newModel, PROB_BITS, PROB_ONE, SHIFTS, SIGN_AT, ZERO_AT } from './code-model.js';
 
 const TOP = 0x1000000;
 
@@ -123,6 +125,7 @@ export function decodeInts(bytes: Uint8Array, m: number, n: number, codes: Uint8
   let code = ((bytes[0] << 24) | (bytes[1] << 16) | (bytes[2] << 8) | bytes[3]) >>> 0;
   let range = 0xffffffff;
   if (code >= range) throw new CodeStreamError('the stream starts with FF FF FF FF, which no encoder writes');
+  if (decodedByKernel(bytes, code, m, n, codes, out)) return;
   let pos = 4;
   let ctx = 0;
   let pr = 0;
@@ -315,6 +318,51 @@ export function decodeInts(bytes: Uint8Array, m: number, n: number, codes: Uint8
   }
   if (pos > end) throw new CodeStreamError(`the stream ends ${pos - end} byte(s) before its values do`);
   if (pos !== end) throw new CodeStreamError(`${end - pos} byte(s) follow the end of the stream`);
+}
+
+/** The integer decoder of kernels/decode.ts (kernels/ints.ts): addresses are byte offsets into the kernels' memory. */
+interface IntsKernel {
+  decodeInts(bytes: number, end: number, code0: number, m: number, n: number, codes: number, out: number, p: number, count: number): number;
+  finalPos: WebAssembly.Global;
+  failedAt: WebAssembly.Global;
+}
+
+/**
+ * {@link decodeInts} after its first four bytes (`code`, checked), in the
+ * WebAssembly kernel: the same values, and the same errors at the same
+ * places. False when the kernel is not to be had (the caller decodes).
+ */
+function decodedByKernel(bytes: Uint8Array, code: number, m: number, n: number, codes: Uint8Array | null, out: Int32Array): boolean {
+  const k = kernels();
+  if (k === null || CONTEXTS !== 614 || Cell.Valid !== 0) return false; // the layout the kernel is written for
+  const cells = m * n;
+  const end = bytes.length;
+  // Bytes from SCRATCH_AT: out (i32), the model's probabilities (u16) and counts (u8), the class map, the stream.
+  const outAt = SCRATCH_AT;
+  const pAt = outAt + 4 * cells;
+  const countAt = pAt + 2 * CONTEXTS;
+  const codesAt = countAt + CONTEXTS;
+  const bytesAt = codesAt + (codes === null ? 0 : cells);
+  if (!k.lease(bytesAt + end - SCRATCH_AT)) return false;
+  let status: number;
+  let fn: IntsKernel | null;
+  try {
+    fn = k.module<IntsKernel>(DECODE_KERNELS);
+    if (fn === null) return false;
+    const heap = k.u8;
+    if (codes !== null) heap.set(codes.subarray(0, cells), codesAt);
+    heap.set(bytes, bytesAt);
+    status = fn.decodeInts(bytesAt, end, code, m, n, codes === null ? 0 : codesAt, outAt, pAt, countAt);
+    out.set(k.i32.subarray(outAt / 4, outAt / 4 + cells));
+  } finally {
+    k.release();
+  }
+  if (status === 1) throw new CodeStreamError('a direct bit falls outside both halves of the range');
+  if (status === 2) throw new CodeStreamError(`value ${fn.failedAt.value} exceeds 2^30 in magnitude`);
+  const pos = fn.finalPos.value as number;
+  if (pos > end) throw new CodeStreamError(`the stream ends ${pos - end} byte(s) before its values do`);
+  if (pos !== end) throw new CodeStreamError(`${end - pos} byte(s) follow the end of the stream`);
+  return true;
 }
 
 /**

@@ -4,6 +4,7 @@
  * IEEE 754 binary64 operation with round-to-nearest-even, in the order
  * written here; JavaScript has no fused multiply-add, so none is used.
  */
+import { blendDecodeKernel } from '../wasm/blend.js';
 
 /**
  * Low-rank part: out[i,j] = ((+0 + l[i,0]*w[0,j]) + l[i,1]*w[1,j] + ...) + center,
@@ -118,6 +119,11 @@ const BLEND_ERR_CAP = 8191;
  */
 function blendWalk(q: Int32Array, m: number, n: number, settle: ((c: number, p: number) => number) | null, limit = 0): boolean {
   const weight = blendWeights();
+  if (settle === null) {
+    // Decoding: the WebAssembly kernel where there is one (the same codes; src/wasm/blend.ts).
+    const done = blendDecodeKernel(q, m, n, limit, weight);
+    if (done !== null) return done;
+  }
   // Errors on the first row and column are 0. An interior cell's activity for part k is its left
   // error (carried in a local, eK) plus `above[5 j + k]`, the sum of the row above's errors at
   // j - 1, j and j + 1 (j counted twice in the last column, where up-right is up); the walk writes

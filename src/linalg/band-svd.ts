@@ -10,7 +10,8 @@
  */
 import { InputCode, InputError } from '../errors.js';
 import { svd } from './svd.js';
-import { gaussian, mulA, orthonormalize, OVERSAMPLE } from './truncated.js';
+import { matrixProducts } from './product.js';
+import { gaussian, orthonormalize, OVERSAMPLE } from './truncated.js';
 
 /** A rows x cols matrix served in bands of whole rows (row-major binary64), visited in increasing row order. */
 export interface BandMatrix {
@@ -79,7 +80,9 @@ function timesA(a: BandMatrix, g: Float64Array, l: number, y: Float64Array): voi
   let part = new Float64Array(0);
   a.bands((r0, count, values) => {
     if (part.length < count * l) part = new Float64Array(count * l);
-    mulA(values, count, a.cols, g, l, part);
+    const prod = matrixProducts(values, count, a.cols, l, false);
+    prod.times(g, part);
+    prod.done();
     for (let c = 0; c < l; c++) y.set(part.subarray(c * count, (c + 1) * count), c * m + r0);
   });
 }

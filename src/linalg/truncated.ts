@@ -11,6 +11,7 @@ import { InputCode, InputError } from '../errors.js';
 import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { householder, reflect, sumSquares } from './householder.js';
 import { checkShape } from './shape.js';
+import { matrixProducts } from './product.js';
 import { svd, type Svd } from './svd.js';
 
 /** Oversampling p: the sketch has k + p columns. */
@@ -111,12 +112,6 @@ export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): 
     return { m, n, k, u, s, v, frob2 };
   }
 
-  // wt = w^T (n x m row-major), so that A^T x is also made of dot products.
-  const wt = new Float64Array(n * m);
-  for (let i = 0; i < m; i++) {
-    const ro = i * n;
-    for (let j = 0; j < n; j++) wt[j * m + i] = w[ro + j];
-  }
   // Column-major sketch buffers: g (n x l), y and q (m x l), z (n x l).
   const g = new Float64Array(n * l);
   const y = new Float64Array(m * l);
@@ -125,17 +120,23 @@ export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): 
   const tau = new Float64Array(l);
   gaussian(g, SEED);
 
-  mulA(w, m, n, g, l, y);
-  orthonormalize(y, m, l, q, tau);
-  for (let it = 0; it < POWER_ITERATIONS; it++) {
-    mulA(wt, n, m, q, l, z);
-    orthonormalize(z, n, l, g, tau);
-    mulA(w, m, n, g, l, y);
+  // Products with w and w^T (kept in the WebAssembly kernel's memory where there is one).
+  const prod = matrixProducts(w, m, n, l, true);
+  try {
+    prod.times(g, y);
     orthonormalize(y, m, l, q, tau);
-  }
+    for (let it = 0; it < POWER_ITERATIONS; it++) {
+      prod.timesT(q, z);
+      orthonormalize(z, n, l, g, tau);
+      prod.times(g, y);
+      orthonormalize(y, m, l, q, tau);
+    }
 
-  // z = A^T Q is n x l column-major, i.e. B = Q^T A as l x n row-major.
-  mulA(wt, n, m, q, l, z);
+    // z = A^T Q is n x l column-major, i.e. B = Q^T A as l x n row-major.
+    prod.timesT(q, z);
+  } finally {
+    prod.done();
+  }
   const fb = svd(z, l, n); // fb.k === l since l < n
   const ub = fb.u;
   for (let i = 0; i < m; i++) {
@@ -175,90 +176,6 @@ export function gaussian(out: Float64Array, seed: number = SEED): void {
     const th = 2 * Math.PI * u2;
     out[i] = r * Math.cos(th);
     if (i + 1 < len) out[i + 1] = r * Math.sin(th);
-  }
-}
-
-/**
- * y = w g, with w row-major rows x cols and g, y column-major (cols x l,
- * rows x l): every entry of y is a contiguous dot product. Blocks of four
- * columns of g by two rows of w, so each load feeds several products.
- */
-export function mulA(w: Float64Array, rows: number, cols: number, g: Float64Array, l: number, y: Float64Array): void {
-  let c = 0;
-  for (; c + 3 < l; c += 4) {
-    const g0 = c * cols;
-    const g1 = g0 + cols;
-    const g2 = g1 + cols;
-    const g3 = g2 + cols;
-    const y0 = c * rows;
-    const y1 = y0 + rows;
-    const y2 = y1 + rows;
-    const y3 = y2 + rows;
-    let i = 0;
-    for (; i + 1 < rows; i += 2) {
-      const ro = i * cols;
-      const rp = ro + cols;
-      let s0 = 0;
-      let s1 = 0;
-      let s2 = 0;
-      let s3 = 0;
-      let t0 = 0;
-      let t1 = 0;
-      let t2 = 0;
-      let t3 = 0;
-      for (let j = 0; j < cols; j++) {
-        const x = w[ro + j];
-        const z = w[rp + j];
-        const a0 = g[g0 + j];
-        const a1 = g[g1 + j];
-        const a2 = g[g2 + j];
-        const a3 = g[g3 + j];
-        s0 += x * a0;
-        s1 += x * a1;
-        s2 += x * a2;
-        s3 += x * a3;
-        t0 += z * a0;
-        t1 += z * a1;
-        t2 += z * a2;
-        t3 += z * a3;
-      }
-      y[y0 + i] = s0;
-      y[y1 + i] = s1;
-      y[y2 + i] = s2;
-      y[y3 + i] = s3;
-      y[y0 + i + 1] = t0;
-      y[y1 + i + 1] = t1;
-      y[y2 + i + 1] = t2;
-      y[y3 + i + 1] = t3;
-    }
-    if (i < rows) {
-      const ro = i * cols;
-      let s0 = 0;
-      let s1 = 0;
-      let s2 = 0;
-      let s3 = 0;
-      for (let j = 0; j < cols; j++) {
-        const x = w[ro + j];
-        s0 += x * g[g0 + j];
-        s1 += x * g[g1 + j];
-        s2 += x * g[g2 + j];
-        s3 += x * g[g3 + j];
-      }
-      y[y0 + i] = s0;
-      y[y1 + i] = s1;
-      y[y2 + i] = s2;
-      y[y3 + i] = s3;
-    }
-  }
-  for (; c < l; c++) {
-    const g0 = c * cols;
-    const y0 = c * rows;
-    for (let i = 0; i < rows; i++) {
-      const ro = i * cols;
-      let s0 = 0;
-      for (let j = 0; j < cols; j++) s0 += w[ro + j] * g[g0 + j];
-      y[y0 + i] = s0;
-    }
   }
 }
 

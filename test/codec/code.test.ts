@@ -8,6 +8,8 @@ import { describe, expect, it } from 'vitest';
 import { CodeStreamError, decodeInts } from '../../src/codec/code-decode.js';
 import { encodeInts } from '../../src/codec/code-encode.js';
 import { Cell } from '../../src/codec/mask.js';
+import { kernels } from '../../src/wasm/kernels.js';
+import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
 
 function roundTrip(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Int32Array {
@@ -23,7 +25,10 @@ function geometric(rand: () => number, theta: number): number {
   return k === 0 ? 0 : rand() < 0.5 ? -k : k;
 }
 
-describe('coded integer streams', () => {
+// Every test twice: with the WebAssembly decoder (kernels/ints.ts) and with the JavaScript one.
+describe.each(['auto', 'js'] as const)('coded integer streams (kernels %s)', (mode) => {
+  useKernelMode(mode);
+
   it('round-trip any grid of integers with |v| <= 2^30, bit for bit', () => {
     const limit = 0x40000000;
     fc.assert(
@@ -142,3 +147,77 @@ describe('coded integer streams', () => {
     );
   });
 });
+
+describe('the WebAssembly integer decoder', () => {
+  useKernelMode('auto');
+
+  /** decodeInts on the JavaScript path and with the kernel: each one's values, or its error's message. */
+  function decodeBoth(bytes: Uint8Array, m: number, n: number, codes: Uint8Array | null): { js: { out?: number[]; error?: string }; wasm: { out?: number[]; error?: string } } {
+    return onBothPaths(() => {
+      const out = new Int32Array(m * n).fill(7);
+      try {
+        decodeInts(bytes, m, n, codes, out);
+        return { out: Array.from(out) };
+      } catch (e) {
+        expect(e).toBeInstanceOf(CodeStreamError);
+        return { error: (e as Error).message };
+      }
+    });
+  }
+
+  it('is there in Node 20', () => {
+    expect(kernels()).not.toBeNull();
+  });
+
+  it('gives the JavaScript\'s values or its error message on streams made by the encoder, cut, lengthened or damaged, with and without a mask (fast-check)', () => {
+    fc.assert(
+      fc.property(
+        fc.integer({ min: 1, max: 14 }),
+        fc.integer({ min: 1, max: 14 }),
+        fc.constantFrom(0.3, 0.8, 0.97),
+        fc.boolean(),
+        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        fc.constantFrom('whole', 'cut', 'longer', 'flip'),
+        (m, n, theta, masked, seed, damage) => {
+          const rand = mulberry32(seed);
+          const v = Int32Array.from({ length: m * n }, () => Math.max(-(2 ** 30), Math.min(2 ** 30, geometric(rand, theta) * (rand() < 0.1 ? 2 ** 24 : 1))));
+          const codes = masked ? Uint8Array.from({ length: m * n }, () => (rand() < 0.3 ? Cell.Fill : Cell.Valid)) : null;
+          if (codes) for (let c = 0; c < v.length; c++) if (codes[c] !== Cell.Valid) v[c] = 0;
+          let bytes = encodeInts(v, m, n, codes);
+          if (damage === 'cut') bytes = bytes.subarray(0, Math.max(4, bytes.length - 1 - Math.floor(rand() * 3)));
+          if (damage === 'longer') bytes = Uint8Array.from([...bytes, 0, 0x5a]);
+          if (damage === 'flip') {
+            bytes = bytes.slice();
+            bytes[Math.floor(rand() * bytes.length)] ^= 1 << Math.floor(rand() * 8);
+          }
+          const { js, wasm } = decodeBoth(bytes, m, n, codes);
+          expect(wasm).toEqual(js);
+          if (damage === 'whole') expect(js.out).toEqual(Array.from(v));
+        },
+      ),
+      { numRuns: 400 },
+    );
+  });
+
+  it('gives the JavaScript\'s values or its error message on arbitrary bytes (fast-check)', () => {
+    fc.assert(
+      fc.property(fc.uint8Array({ minLength: 4, maxLength: 80 }), fc.integer({ min: 1, max: 12 }), fc.integer({ min: 1, max: 12 }), (bytes, m, n) => {
+        const { js, wasm } = decodeBoth(bytes, m, n, null);
+        expect(wasm).toEqual(js);
+      }),
+      { numRuns: 1000 },
+    );
+  });
+
+  it('stops on a value beyond 2^30 and on a direct bit off the range with the JavaScript\'s message', () => {
+    // As in the test of the refusals above: just below the top of the range every adaptive decision is 1.
+    for (const last of [0xfe, 0xfd, 0xf0, 0x80]) {
+      const top = new Uint8Array(64).fill(0xff);
+      top[3] = last;
+      const { js, wasm } = decodeBoth(top, 1, 1, null);
+      if (last === 0xfe) expect(js.error).toMatch(/exceeds 2\^30|outside both halves/);
+      expect(wasm).toEqual(js);
+    }
+  });
+});
+

@@ -4,6 +4,8 @@ import { InputError } from '../../src/errors.js';
 import { svd, type Svd } from '../../src/linalg/svd.js';
 import { truncatedSvd } from '../../src/linalg/truncated.js';
 import { OVERSAMPLE, POWER_ITERATIONS } from '../../src/linalg/truncated.js';
+import { kernels } from '../../src/wasm/kernels.js';
+import { useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
 
 
@@ -187,7 +189,15 @@ function decayingCases(): { name: string; a: Float64Array; m: number; n: number;
   ];
 }
 
-describe('truncatedSvd', () => {
+// Every test twice: with the WebAssembly product (kernels/product.ts) and with the JavaScript one.
+describe.each(['auto', 'js'] as const)('truncatedSvd (kernels %s)', (mode) => {
+  useKernelMode(mode);
+
+  it('runs on the path it names', () => {
+    // Node 20 has WebAssembly with 128-bit SIMD (V8 since 9.1: from memory), so 'auto' is the kernel.
+    expect(kernels() !== null).toBe(mode === 'auto');
+  });
+
   // Seven matrices up to 160 x 128, each through the full svd, ml-matrix's SVD and two to four truncated
   // SVDs: a few seconds idle, several times that on a busy machine; hence its own limit.
   it('matches the full svd and ml-matrix on fast-decaying spectra', { timeout: 60_000 }, () => {
