@@ -42,11 +42,17 @@ interface TileTask {
   term?: Float64Array | null;
 }
 
-/** A task's transfer list, with the layer's term (a buffer of its own) handed over too. */
-function withTerm(transfer: ArrayBuffer[], term: Float64Array | null): ArrayBuffer[] {
-  if (term) transfer.push(term.buffer as ArrayBuffer);
-  return transfer;
-}
+/*
+ * Encoding tasks and their answers are copied between threads, never
+ * transferred. A transfer detaches the sender's buffer, and once a thread
+ * has detached any buffer, V8 checks for detached buffers in all of that
+ * thread's typed-array code from then on: detaching one 8-byte buffer
+ * before a one-thread pack of bench/'s quick large field at rel:1e-3 made
+ * it 0.99 -> 1.15 s of CPU (best of 5), and packAsync of the full 4096 x
+ * 4096 large field at rel:1e-3 on 2 threads took 6.1 s with transfers
+ * against 4.8 s with copies (medians of 6, issue 10 measurements). A copy
+ * of a tile costs a memcpy, little beside encoding it.
+ */
 
 /** Field choices by key, in each worker. */
 const fields = new Map<number, FieldChoices>();
@@ -66,13 +72,14 @@ export const encodeTasks = {
     const term = body.term ?? null;
     const t = body.prepared ?? (body.full ? firstPassTile(body.tile!, body.m, body.n, c, c.fill, c.tol, true, undefined, undefined, term).tile! : tileToEncode(c, body.index, body.tile!, body.m, body.n, term));
     const o = encodeTile(c, t, body.index);
+    // A view copies its whole buffer across threads: a payload that is part of a larger one is cut out first.
     const own = o.payload.byteOffset === 0 && o.payload.byteLength === o.payload.buffer.byteLength;
     const payload = own ? o.payload : o.payload.slice();
-    return { result: { ...o, payload }, transfer: [payload.buffer as ArrayBuffer] };
+    return { result: { ...o, payload } };
   },
   'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean; known?: Float64Array; term?: Float64Array | null }) {
     const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep, body.known, undefined, body.term ?? null);
-    return { result: f, transfer: [f.sv2.buffer as ArrayBuffer] };
+    return { result: f };
   },
   'encode-forget'(body: { key: number }) {
     fields.delete(body.key);
@@ -174,7 +181,7 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
     const prepared = c.plan?.kept(index);
     if (prepared) return pool.run<TileOutcome>('encode-tile', { key, index, m, n, prepared } satisfies TileTask, []);
     const term = termFor(spec, index, m, n);
-    return pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, full, ...(term ? { term } : {}) } satisfies TileTask, withTerm([tile.buffer as ArrayBuffer], term));
+    return pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, full, ...(term ? { term } : {}) } satisfies TileTask);
   };
   const finished = (o: TileOutcome, index: number) => {
     // The tally crossed threads as plain fields; give it its class back.
@@ -200,7 +207,7 @@ export async function encodeTilesOn(pool: WorkerPool, c: FieldChoices, tiles: Pi
   const { plan: _, ...rest } = c;
   await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: null } satisfies WireChoices });
   try {
-    const runs = tiles.map(({ index, tile, m, n, term }) => pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, ...(term ? { term } : {}) } satisfies TileTask, withTerm([tile.buffer as ArrayBuffer], term)));
+    const runs = tiles.map(({ index, tile, m, n, term }) => pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, ...(term ? { term } : {}) } satisfies TileTask));
     // The tallies crossed threads as plain fields; give them their class back.
     return (await Promise.all(runs)).map((o) => ({ ...o, tally: Object.assign(new ErrorTally(), o.tally) }));
   } finally {
@@ -223,7 +230,7 @@ export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldC
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
     const values = known?.get(index);
     const term = termFor(spec, index, m, n);
-    return pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n, ...(values ? { known: values } : {}), ...(term ? { term } : {}) }, withTerm([tile.buffer as ArrayBuffer], term));
+    return pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n, ...(values ? { known: values } : {}), ...(term ? { term } : {}) });
   };
   const take = (f: FirstPassTile) => {
     first.spectra.add(f);
