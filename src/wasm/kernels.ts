@@ -1,9 +1,11 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts):
  * the range finder's matrix product (with the copies that lay out its
- * operands) and the blend predictor's decoding walk, each bit for bit the
- * same as its JavaScript version, which stays the fallback. Instantiated synchronously, lazily, once per thread (module
- * state, and every worker thread has its own): the module is under 4 KiB,
+ * operands) in the encoder's module; the blend predictor's decoding walk
+ * and the binary coder's decoder in the decoder's module; each bit for bit
+ * the same as its JavaScript version, which stays the fallback.
+ * Instantiated synchronously, lazily, once per thread (module state, and
+ * every worker thread has its own): each module is under 4 KiB,
  * below the size browsers allow to compile synchronously on the main thread
  * (4 KiB in Chromium: from memory). Where WebAssembly or its 128-bit SIMD
  * is missing, or compiling or instantiating fails (a page's content
