@@ -155,7 +155,7 @@ const x = (a: number, b: number) => `${(a / b).toFixed(2)}x`;
 /** The table of {@link SpeedRun.rows} and the whole-process lines, as Markdown lines. */
 export function speedTable(s: SpeedRun): string[] {
   const out = [
-    `Bound ${s.bound}. Ceiling: two threads running the same CPU-bound loop got ${s.ceiling.toFixed(2)}x the throughput of one in this run (the most any 2-thread ratio below can show on a shared machine). "2t": this thread and one worker started per call (start-up and cold code included, as in one command); "2t warm": a pool of two workers kept across calls. MB/s of raw float32 bytes; medians.`,
+    `Bound ${s.bound}. Measured by bench/threads.ts in a process of its own (\`npm run bench\` starts it after the compression tables), as one \`rankfield\` command runs. Ceiling: two threads running the same CPU-bound loop got ${s.ceiling.toFixed(2)}x the throughput of one in this run (the most any 2-thread ratio below can show on a shared machine). "2t": this thread and one worker started per call (start-up and cold code included, as in one command); "2t warm": a pool of two workers kept across calls. MB/s of raw float32 bytes; medians.`,
     '',
     '| field | shape | runs | deflate-6 MB/s | inflate MB/s | encode 1t | encode 2t | encode 2t warm | 1t/deflate | 2t/1t | 2t warm/1t | decode 1t | decode 2t | decode 2t warm | 1t/inflate | 2t/1t | 2t warm/1t | same bytes |',
     '|---|---|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|---|',

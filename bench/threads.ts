@@ -8,7 +8,10 @@
  * `node bin/rankfield unpack` processes writing the large field to .npy with
  * 1 and 2 threads. What is measured and how: bench/speed.ts.
  *
- *   npx tsc -p . && npx tsc -p tsconfig.bench.json && node bench/dist/bench/threads.js [--runs N] [--bound B] [--quick]
+ *   npx tsc -p . && npx tsc -p tsconfig.bench.json && node bench/dist/bench/threads.js [--runs N] [--bound B] [--quick] [--json]
+ *
+ * --json prints the run as JSON on stdout instead of the table: `npm run
+ * bench` runs its Speed section so, in a fresh process (see run.ts).
  */
 import { availableParallelism, cpus } from 'node:os';
 import { benchFields } from './fields.js';
@@ -24,6 +27,9 @@ const RUNS = Number(arg('runs', '3'));
 /** --quick: the large field shrunk to 1024 x 1024 (a check that the script runs, not a measurement). */
 const QUICK = process.argv.includes('--quick');
 
-console.log(`node ${process.version}, ${cpus().length} cores (${availableParallelism()} available) of ${cpus()[0]?.model ?? 'unknown'}; bound ${BOUND}; medians of ${RUNS} runs\n`);
+const JSON_OUT = process.argv.includes('--json');
+
+if (!JSON_OUT) console.log(`node ${process.version}, ${cpus().length} cores (${availableParallelism()} available) of ${cpus()[0]?.model ?? 'unknown'}; bound ${BOUND}; medians of ${RUNS} runs\n`);
 const run = await runSpeed(benchFields(QUICK), BOUND, RUNS, (id) => console.error(`${id}: done`));
-for (const line of speedTable(run)) console.log(line);
+if (JSON_OUT) console.log(JSON.stringify(run));
+else for (const line of speedTable(run)) console.log(line);
