@@ -109,6 +109,14 @@ export interface L2Plan {
   /** The tile prepared in the first pass, when the field was small enough to keep it. */
   kept(index: number): PreparedTile | undefined;
   encode(t: PreparedTile, index: number): { payload: Uint8Array; res: ReturnType<typeof measure> };
+  /**
+   * The payload the costing made of tile `index` under this plan, when the
+   * field's tiles are not kept (see {@link planL2}), taken out of the plan:
+   * for a plan on another thread, which is handed it with {@link L2Plan.give}.
+   */
+  take(index: number): Uint8Array | undefined;
+  /** Hand the plan a payload {@link L2Plan.take} took out of the same plan on another thread; {@link L2Plan.encode} starts from it. */
+  give(index: number, payload: Uint8Array): void;
 }
 
 /** A tile's payload under a plan, before its allotment is enforced. */
@@ -645,6 +653,14 @@ export function l2Plan(data: L2PlanData, fill: Uint32Array | null, kept: (index:
       t.svds.clear();
       t.costed.clear();
       return { payload, res };
+    },
+    take(index) {
+      const payload = made.get(index);
+      made.delete(index);
+      return payload;
+    },
+    give(index, payload) {
+      made.set(index, payload);
     },
   };
 }

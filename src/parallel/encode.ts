@@ -40,6 +40,8 @@ interface TileTask {
   full?: boolean;
   /** The field layer's term for the tile (see termFor in tiles.ts), computed in the calling thread; none without a layer. */
   term?: Float64Array | null;
+  /** The tile's payload under the field's L2 plan as the plan's costing made it in the calling thread (see L2Plan.take). */
+  costed?: Uint8Array;
 }
 
 /*
@@ -70,6 +72,7 @@ export const encodeTasks = {
     // Internal assertion: the set-up message always precedes a field's tiles in the port.
     if (c === undefined) throw new Error(`tile ${body.index} of an unknown field (key ${body.key})`);
     const term = body.term ?? null;
+    if (body.costed) c.plan!.give(body.index, body.costed);
     const t = body.prepared ?? (body.full ? firstPassTile(body.tile!, body.m, body.n, c, c.fill, c.tol, true, undefined, undefined, term).tile! : tileToEncode(c, body.index, body.tile!, body.m, body.n, term));
     const o = encodeTile(c, t, body.index);
     // A view copies its whole buffer across threads: a payload that is part of a larger one is cut out first.
@@ -181,7 +184,9 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
     const prepared = c.plan?.kept(index);
     if (prepared) return pool.run<TileOutcome>('encode-tile', { key, index, m, n, prepared } satisfies TileTask, []);
     const term = termFor(spec, index, m, n);
-    return pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, full, ...(term ? { term } : {}) } satisfies TileTask);
+    // A tile the plan's costing encoded already (of a field whose tiles are not kept): its payload goes with it, as encodeField uses it.
+    const costed = c.plan?.take(index);
+    return pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, full, ...(term ? { term } : {}), ...(costed ? { costed } : {}) } satisfies TileTask);
   };
   const finished = (o: TileOutcome, index: number) => {
     // The tally crossed threads as plain fields; give it its class back.

@@ -19,6 +19,9 @@ import { gramSingularValues } from '../../src/linalg/spectrum.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
 import { memoryBands, type FieldSpec } from '../../src/codec/tiles.js';
+import { encodeField, fieldBasis } from '../../src/codec/field.js';
+import { encodeTasks, encodeWithChoices } from '../../src/parallel/encode.js';
+import { WorkerPool } from '../../src/parallel/pool.js';
 import { mulberry32 } from '../rng.js';
 
 /** The cut for one share, stated directly: every value of every tile in one sorted list. */
@@ -372,6 +375,58 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     const again = plan();
     expect(again.encode(moved(), 2).payload).toEqual(refPayloads[2]);
     expect(again.encode(moved(), 2).payload).not.toEqual(refPayloads[2]);
+  });
+
+  it('a plan on another thread: take hands out the costing\'s payload of a sampled tile once, and a plan given it encodes from it', () => {
+    const { tol, spec, src } = precipCase(64, 96, 32, 32, 40);
+    const ref = planL2(src, spec, tol, null);
+    const first = firstPass(src, spec, tol, null, undefined, undefined, { keep: false });
+    const here = planL2(src, spec, tol, null, first);
+    const payload = here.take(2);
+    expect(payload).toEqual(ref.encode(ref.kept(2)!, 2).payload);
+    // Taken once; and here then encodes tile 2 afresh, to the same bytes.
+    expect(here.take(2)).toBeUndefined();
+    expect(here.encode(readTiles(src, spec, null, [2], tol)[0], 2).payload).toEqual(payload);
+    // The plan made from the same data elsewhere (a worker's) starts from the payload it is given: a tile whose centre is
+    // moved gets that payload, where encoding it would name the moved centre.
+    const there = l2Plan(here.data, null);
+    const moved = () => {
+      const t = readTiles(src, spec, null, [2], tol)[0];
+      t.center += tol;
+      return t;
+    };
+    there.give(2, payload!);
+    expect(there.encode(moved(), 2).payload).toEqual(payload);
+    expect(there.encode(moved(), 2).payload).not.toEqual(payload);
+  });
+
+  it('encoding on a pool, a field whose tiles are not kept: each sampled tile\'s task carries the costing\'s payload, the others none; the same payloads as encodeField', async () => {
+    const { spec, src } = precipCase(64, 96, 32, 32, 40);
+    const basis = fieldBasis(src, spec);
+    const plan = () => planL2(src, spec, basis.tol, null, firstPass(src, spec, basis.tol, null, undefined, undefined, { keep: false }));
+    // The tiles the costing sampled (every tile of a field of 6: see sampleTiles).
+    const costing = plan();
+    const sampled = [0, 1, 2, 3, 4, 5].filter((k) => costing.take(k) !== undefined);
+    expect(sampled.length).toBeGreaterThan(0);
+    const carried = new Map<number, Uint8Array>();
+    // The calling thread's lane only (one thread, no worker): the tasks it runs are those a worker would be posted.
+    const pool = new WorkerPool(1, {
+      local: (kind, body) => {
+        const b = body as { index?: number; costed?: Uint8Array };
+        if (kind === 'encode-tile' && b.costed) carried.set(b.index!, b.costed);
+        return encodeTasks[kind as keyof typeof encodeTasks](body as never).result;
+      },
+    });
+    const payloads: Uint8Array[] = [];
+    try {
+      await encodeWithChoices(src, spec, { ...basis, plan: plan() }, pool, (index, o) => (payloads[index] = o.payload));
+    } finally {
+      await pool.close();
+    }
+    expect([...carried.keys()].sort()).toEqual(sampled);
+    const ref: Uint8Array[] = [];
+    encodeField(src, spec, (index, t) => (ref[index] = t.payload));
+    expect(payloads).toEqual(ref);
   });
 
   it('takes the SVDs computed before of tiles prepared again (the tile trial\'s): the same objects, the same payloads', () => {
