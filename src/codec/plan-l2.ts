@@ -380,13 +380,39 @@ function tileCount(spec: FieldSpec): number {
  * second pass (only those: a few dozen tiles' payloads).
  */
 export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: FirstPass, known?: ReadonlyMap<number, Float64Array>, svds?: TileSvds): L2Plan {
-  const { spectra, kept, svds: handed } = first ?? firstPass(src, spec, tol, fill, known, undefined, { svds });
+  const f = first ?? firstPass(src, spec, tol, fill, known, undefined, { svds });
+  const setup = planSetup(src, spec, tol, fill, f, first !== undefined, svds);
+  return setup.finish(chooseL2(f.spectra, tol, setup.tilesAt));
+}
+
+/**
+ * {@link planL2} from a first pass made elsewhere (on worker threads), with
+ * the candidate plans costed by `cost` (see {@link costPlansAsync}, whose
+ * `cost` and `ahead` it is): the same plan.
+ */
+export async function planL2Async(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first: FirstPass, cost: (plans: L2PlanData[], sample: number[], tiles: PreparedTile[]) => (k: number, ats: number[]) => Promise<number[]>, ahead: number, svds?: TileSvds): Promise<L2Plan> {
+  const setup = planSetup(src, spec, tol, fill, first, true, svds);
+  const plans = candidatePlans(first.spectra, tol);
+  if (plans.length === 1) return setup.finish(plans[0]);
+  const sample = sampleTiles(first.spectra.tiles);
+  const tiles = setup.tilesAt(sample);
+  return setup.finish((await costPlansAsync(plans, sample, tiles, cost(plans, sample, tiles), ahead, first.spectra)).plan);
+}
+
+/**
+ * What {@link planL2} and {@link planL2Async} share: the sampled tiles the
+ * costing takes (kept by the first pass, or prepared again from `src`, with
+ * the SVDs handed over), and the plan made from the chosen data, taking the
+ * costing's payloads of a field whose tiles are not kept.
+ */
+function planSetup(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first: FirstPass, given: boolean, svds?: TileSvds): { tilesAt: (sample: number[]) => PreparedTile[]; finish: (data: L2PlanData) => L2Plan } {
+  const { spectra, kept, svds: handed } = first;
   // Whether the first pass kept its tiles (see keepsTiles).
-  const keep = first ? kept.length > 0 : keepsTiles(spec);
+  const keep = given ? kept.length > 0 : keepsTiles(spec);
   // Internal assertion: the first pass covers every tile, in order.
   if (spectra.count !== spectra.tiles || (keep && kept.length !== spectra.tiles)) throw new Error(`the first pass planned ${spectra.count} of ${spectra.tiles} tiles`);
   let costed: { index: number; tile: PreparedTile }[] = [];
-  const data = chooseL2(spectra, tol, (sample) => {
+  const tilesAt = (sample: number[]): PreparedTile[] => {
     if (keep) {
       for (const i of sample) adoptSvds(kept[i], svds?.get(i));
       return sample.map((i) => kept[i]);
@@ -394,14 +420,27 @@ export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint
     const tiles = readTiles(src, spec, fill, sample, tol, undefined, (i) => handed?.get(i) ?? svds?.get(i));
     costed = tiles.map((tile, k) => ({ index: sample[k], tile }));
     return tiles;
-  });
-  // Of a field whose tiles are not kept, the payloads the costing made of its sampled tiles under the chosen plan.
-  const made = new Map<number, Uint8Array>();
-  for (const { index, tile } of costed) {
-    const payload = tile.costed.get(planKey(data, index));
-    if (payload !== undefined) made.set(index, payload);
-  }
-  return l2Plan(data, fill, (index) => (keep ? kept[index] : undefined), made);
+  };
+  const finish = (data: L2PlanData): L2Plan => {
+    // Of a field whose tiles are not kept, the payloads the costing made of its sampled tiles under the chosen plan.
+    const made = new Map<number, Uint8Array>();
+    for (const { index, tile } of costed) {
+      const payload = tile.costed.get(planKey(data, index));
+      if (payload !== undefined) made.set(index, payload);
+    }
+    return l2Plan(data, fill, (index) => (keep ? kept[index] : undefined), made);
+  };
+  return { tilesAt, finish };
+}
+
+/** The byte lengths of tile t's payloads under plans `ats` (its sampled tile `index`), each made once and kept on the tile (PreparedTile.costed). */
+export function costTile(plans: L2PlanData[], ats: number[], t: PreparedTile, index: number): Uint8Array[] {
+  return ats.map((at) => costedWith(plans[at], t, index));
+}
+
+/** Keep on tile t the payload another thread made of it under plan p (see {@link costTile}). */
+export function keepCosted(p: L2PlanData, t: PreparedTile, index: number, payload: Uint8Array): void {
+  t.costed.set(planKey(p, index), payload);
 }
 
 /**
@@ -489,6 +528,74 @@ const DROP_MARGIN = 0.15;
  * returns them (the chosen plan would take at least as many).
  */
 export function costPlans(plans: L2PlanData[], sample: number[], tiles: PreparedTile[], spectra?: Spectra, loses?: (bytes: number) => boolean): { plan: L2PlanData; bytes: number } {
+  const steps = costing(plans, sample, tiles, spectra, loses);
+  for (let step = steps.next(); ; ) {
+    if (step.done) return step.value;
+    const { k, ats } = step.value;
+    step = steps.next(ats.map((at) => costedWith(plans[at], tiles[k], sample[k]).length));
+  }
+}
+
+/**
+ * {@link costPlans} with each sampled tile's payloads made by `cost` (on
+ * other threads): `cost(k, ats)` gives the byte lengths of sampled tile k's
+ * payloads under plans `ats`, in their order, and keeps the payloads where
+ * the tile keeps them (PreparedTile.costed). The same plan and bytes: the
+ * decisions are {@link costPlans}'s, from the same lengths. While tile k is
+ * costed, the next `ahead` tiles are costed under the plans not costed
+ * against an estimate that are running then (a plan dropped after tile k
+ * has then been costed on a tile more than it needed).
+ */
+export async function costPlansAsync(
+  plans: L2PlanData[],
+  sample: number[],
+  tiles: PreparedTile[],
+  cost: (k: number, ats: number[]) => Promise<number[]>,
+  ahead: number,
+  spectra?: Spectra,
+  loses?: (bytes: number) => boolean,
+): Promise<{ plan: L2PlanData; bytes: number }> {
+  // Lengths asked for, by tile, then plan; and every request made, so that none outlives the costing.
+  const started = new Map<number, Map<number, Promise<number>>>();
+  const requests: Promise<number[]>[] = [];
+  const ask = (k: number, ats: number[]): Promise<number>[] => {
+    let byPlan = started.get(k);
+    if (byPlan === undefined) started.set(k, (byPlan = new Map()));
+    const missing = ats.filter((at) => !byPlan.has(at));
+    if (missing.length > 0) {
+      const lengths = cost(k, missing);
+      requests.push(lengths);
+      missing.forEach((at, j) => {
+        const length = lengths.then((l) => l[j]);
+        // Awaited below, or never (a tile costed ahead for a plan dropped meanwhile): a failure must not go unhandled then.
+        length.catch(() => undefined);
+        byPlan.set(at, length);
+      });
+    }
+    return ats.map((at) => byPlan.get(at)!);
+  };
+  try {
+    const steps = costing(plans, sample, tiles, spectra, loses);
+    for (let step = steps.next(); ; ) {
+      if (step.done) return step.value;
+      const { k, ats, light } = step.value;
+      const lengths = ask(k, ats);
+      if (light) for (let j = k + 1; j <= Math.min(k + ahead, sample.length - 1); j++) ask(j, ats);
+      step = steps.next(await Promise.all(lengths));
+    }
+  } finally {
+    await Promise.allSettled(requests);
+  }
+}
+
+/**
+ * The decisions of {@link costPlans}, one sampled tile at a time: it
+ * yields the plans (`ats`, indexes into `plans`) whose payloads of sampled
+ * tile `k` it needs next (`light`: the plans costed on every tile while
+ * they run, not against an estimate first) and is handed their byte
+ * lengths, in that order; it returns the plan chosen and its bytes.
+ */
+function* costing(plans: L2PlanData[], sample: number[], tiles: PreparedTile[], spectra?: Spectra, loses?: (bytes: number) => boolean): Generator<{ k: number; ats: number[]; light: boolean }, { plan: L2PlanData; bytes: number }, number[]> {
   const bytes = new Float64Array(plans.length);
   const running = plans.map((p) => !outnumbers(p, sample, tiles));
   // The heavy plans' estimates, summed over the tiles costed so far; they are costed after the others on each tile.
@@ -496,7 +603,11 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
   const estimate = new Float64Array(plans.length);
   const dropAfter = Math.max(DROP_AFTER_TILES, Math.ceil(DROP_AFTER_SHARE * sample.length));
   for (let k = 0; k < sample.length; k++) {
-    for (const [at, p] of plans.entries()) if (running[at] && !heavy[at]) bytes[at] += costedWith(p, tiles[k], sample[k]).length;
+    const lights = plans.flatMap((_p, at) => (running[at] && !heavy[at] ? [at] : []));
+    if (lights.length > 0) {
+      const lengths = yield { k, ats: lights, light: true };
+      lights.forEach((at, j) => (bytes[at] += lengths[j]));
+    }
     const light = leastOf(bytes, running, (at) => !heavy[at]);
     let sv2: Float64Array | undefined;
     for (const [at, p] of plans.entries()) {
@@ -504,7 +615,7 @@ export function costPlans(plans: L2PlanData[], sample: number[], tiles: Prepared
       sv2 ??= wholeSpectrum(spectra!, sample[k], tiles[k], p.tol);
       estimate[at] += factorBytes(p, sv2, sample[k], tiles[k].m, tiles[k].n);
       if (estimate[at] > HOPELESS * light) running[at] = false;
-      else bytes[at] += costedWith(p, tiles[k], sample[k]).length;
+      else bytes[at] += (yield { k, ats: [at], light: false })[0];
     }
     if (k + 1 >= dropAfter) {
       const least = leastOf(bytes, running, () => true);

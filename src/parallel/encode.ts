@@ -12,7 +12,7 @@
  */
 import { tileGrid } from '../geometry.js';
 import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, termFor, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { firstPassTile, keepsTiles, l2Plan, planL2, type FirstPassTile, type L2Plan, type L2PlanData, type TileSvds } from '../codec/plan-l2.js';
+import { costTile, firstPassTile, keepCosted, keepsTiles, l2Plan, planL2Async, type FirstPassTile, type L2Plan, type L2PlanData, type TileSvds } from '../codec/plan-l2.js';
 import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
 import type { PickedTile } from '../codec/auto-tile.js';
@@ -58,7 +58,14 @@ interface TileTask {
 
 /** Field choices by key, in each worker. */
 const fields = new Map<number, FieldChoices>();
+/** Candidate plans being costed, by key, in each worker. */
+const costings = new Map<number, L2PlanData[]>();
 let nextKey = 1;
+
+/** A payload as its own buffer: a view would copy the whole buffer it is part of across threads. */
+function owned(payload: Uint8Array): Uint8Array {
+  return payload.byteOffset === 0 && payload.byteLength === payload.buffer.byteLength ? payload : payload.slice();
+}
 
 /** The tasks a worker runs for encoding (see worker.ts). */
 export const encodeTasks = {
@@ -75,10 +82,21 @@ export const encodeTasks = {
     if (body.costed) c.plan!.give(body.index, body.costed);
     const t = body.prepared ?? (body.full ? firstPassTile(body.tile!, body.m, body.n, c, c.fill, c.tol, true, undefined, undefined, term).tile! : tileToEncode(c, body.index, body.tile!, body.m, body.n, term));
     const o = encodeTile(c, t, body.index);
-    // A view copies its whole buffer across threads: a payload that is part of a larger one is cut out first.
-    const own = o.payload.byteOffset === 0 && o.payload.byteLength === o.payload.buffer.byteLength;
-    const payload = own ? o.payload : o.payload.slice();
-    return { result: { ...o, payload } };
+    return { result: { ...o, payload: owned(o.payload) } };
+  },
+  'cost-setup'(body: { key: number; plans: L2PlanData[] }) {
+    costings.set(body.key, body.plans);
+    return { result: null };
+  },
+  'cost-tile'(body: { key: number; index: number; ats: number[]; tile: PreparedTile }) {
+    const plans = costings.get(body.key);
+    // Internal assertion: the set-up message always precedes a costing's tiles in the port.
+    if (plans === undefined) throw new Error(`costing of tile ${body.index} of an unknown plan choice (key ${body.key})`);
+    return { result: costTile(plans, body.ats, body.tile, body.index).map(owned) };
+  },
+  'cost-forget'(body: { key: number }) {
+    costings.delete(body.key);
+    return { result: null };
   },
   'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean; known?: Float64Array; term?: Float64Array | null }) {
     const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep, body.known, undefined, body.term ?? null);
@@ -242,5 +260,22 @@ export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldC
     if (body.keep) first.kept.push(f.tile!);
   };
   await inOrder(pool, tilesOf(src, spec), post, take, limit);
-  return planL2(src, spec, c.tol, c.fill, first, undefined, svds);
+  // The candidate plans costed on the pool, a sampled tile a task (the tile's plans share its SVDs), the next tiles
+  // started while one is costed; each payload kept on the tile, for the encoding pass.
+  const key = nextKey++;
+  let setup: Promise<void> | null = null;
+  const cost = (plans: L2PlanData[], sample: number[], tiles: PreparedTile[]) => {
+    setup = pool.broadcast('cost-setup', { key, plans });
+    return async (k: number, ats: number[]): Promise<number[]> => {
+      await setup;
+      const payloads = await pool.run<Uint8Array[]>('cost-tile', { key, index: sample[k], ats, tile: tiles[k] });
+      payloads.forEach((payload, j) => keepCosted(plans[ats[j]], tiles[k], sample[k], payload));
+      return payloads.map((payload) => payload.length);
+    };
+  };
+  try {
+    return await planL2Async(src, spec, c.tol, c.fill, first, cost, pool.threads - 1, svds);
+  } finally {
+    if (setup !== null && !pool.failed) await pool.broadcast('cost-forget', { key });
+  }
 }

@@ -14,7 +14,7 @@ import { Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { candidatePlans, costPlans, cuttable, eckartYoungPlans, encodeWith, factorBytes, firstPass, keepsTiles, l2Plan, leadingSpectrum, planL2, readTiles, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { candidatePlans, costPlans, costPlansAsync, costTile, cuttable, eckartYoungPlans, encodeWith, factorBytes, firstPass, keepCosted, keepsTiles, l2Plan, leadingSpectrum, planL2, readTiles, tileSpectrum } from '../../src/codec/plan-l2.js';
 import { gramSingularValues } from '../../src/linalg/spectrum.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
@@ -314,6 +314,60 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     // Dropped before its first tile: no payload of a heavy plan was made, nor the SVD of its rank (rungs 16, 32, 64, ...; see svdRung).
     expect(first.kept[0].costed.size).toBe(plans.length - heavy.length);
     expect(Math.max(...first.kept[0].svds.keys())).toBeLessThan(Math.max(...heavy.map((p) => p.ranks[0])));
+  });
+
+  it.each([0, 1, 3])('costPlansAsync, payloads made on copies of the tiles (as on other threads), %i tiles ahead: the same plan and bytes as costPlans, each plan asked once a tile, the tiles keep the payloads', async (ahead) => {
+    for (const db of [40, 70]) {
+      const { tol, spec, src } = precipCase(96, 128, 32, 32, db);
+      const first = firstPass(src, spec, tol, null);
+      const plans = candidatePlans(first.spectra, tol);
+      const sample = Array.from({ length: 12 }, (_, k) => k);
+      const ref = costPlans(plans, sample, firstPass(src, spec, tol, null).kept, first.spectra);
+      const tiles = first.kept;
+      const asked: string[] = [];
+      const got = await costPlansAsync(
+        plans,
+        sample,
+        tiles,
+        async (k, ats) => {
+          for (const at of ats) asked.push(`${k} ${at}`);
+          const payloads = costTile(plans, ats, structuredClone(tiles[k]), sample[k]);
+          payloads.forEach((payload, j) => keepCosted(plans[ats[j]], tiles[k], sample[k], payload));
+          return payloads.map((payload) => payload.length);
+        },
+        ahead,
+        first.spectra,
+      );
+      expect(got.bytes).toBe(ref.bytes);
+      expect(plans.indexOf(got.plan)).toBe(plans.indexOf(ref.plan));
+      expect(new Set(asked).size).toBe(asked.length);
+      for (const k of sample) expect(tiles[k].costed.size).toBeGreaterThan(0);
+    }
+  });
+
+  it('costPlansAsync: a heavy plan dropped on its estimate is never asked for; a failed request fails the costing', async () => {
+    const [rows, cols] = [96, 128];
+    const { tol, spec, src } = precipCase(rows, cols, rows, cols, 40);
+    const first = firstPass(src, spec, tol, null);
+    const plans = candidatePlans(first.spectra, tol);
+    const heavy = plans.flatMap((p, at) => (p.kind === 'rank' && (p.ranks[0] * (rows + cols)) / (rows * cols) >= 0.5 ? [at] : []));
+    expect(heavy.length).toBeGreaterThan(0);
+    const asked: number[] = [];
+    const cost = async (k: number, ats: number[]) => {
+      asked.push(...ats);
+      return costTile(plans, ats, first.kept[k], k).map((payload) => payload.length);
+    };
+    const got = await costPlansAsync(plans, [0], first.kept, cost, 1, first.spectra);
+    expect(got.bytes).toBe(costPlans(plans, [0], firstPass(src, spec, tol, null).kept, first.spectra).bytes);
+    expect(asked.some((at) => heavy.includes(at))).toBe(false);
+    // A request that fails (a worker that died) fails the costing with its error, tiles asked ahead included.
+    const twelve = precipCase(96, 128, 32, 32, 40);
+    const many = firstPass(twelve.src, twelve.spec, twelve.tol, null);
+    const broken = async (k: number) => {
+      if (k === 3) throw new Error('worker gone');
+      return candidatePlans(many.spectra, twelve.tol).map(() => 100);
+    };
+    await expect(costPlansAsync(candidatePlans(many.spectra, twelve.tol), Array.from({ length: 12 }, (_, k) => k), many.kept, broken, 2, many.spectra)).rejects.toThrow('worker gone');
   });
 
   it('estimates the bits of a quantized Gaussian as its differential entropy less log2 of the step', () => {
