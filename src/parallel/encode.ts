@@ -2,7 +2,8 @@
  * Encoding a field's tiles on a {@link WorkerPool}. The field-level choices
  * (value range, tolerance, L2 plan) are made first, as the synchronous
  * encoder makes them (the per-tile work of the L2 planning pass on the
- * pool); each worker is handed them once, then tiles one by one. Results
+ * pool: each tile's first pass, then the candidate plans' costing on the
+ * sampled tiles); each worker is handed them once, then tiles one by one. Results
  * come back in any order and are emitted in tile order, so the archive is
  * byte-identical for every thread count.
  *
