@@ -2,7 +2,7 @@
 import { checkBound, parseBound } from './codec/bound.js';
 import { chooseTile, chooseTileAsync, WHOLE_CELLS, type TileTrial } from './codec/auto-tile.js';
 import { encodeField, fieldBasis, memoryBands, type BandSource, type EncodedTile, type FieldChoices, type FieldPrior, type FieldResult, type FieldSpec } from './codec/field.js';
-import { encodeFieldParallel, encodeTasks, encodeTilesOn } from './parallel/encode.js';
+import { encodeFieldParallel, encodeTasks, encodeTilesOn, mosaicWorkOn } from './parallel/encode.js';
 import { checkThreads, WorkerPool } from './parallel/pool.js';
 import { InputCode, InputError } from './errors.js';
 import { ContainerWriter, DEFAULT_PAGE, FLAG_LAYER, FLAG_SLICES, FLAG_SYMBOLS, MemorySink, VERSION, type Sink } from './format/container.js';
@@ -335,7 +335,7 @@ export class ArchiveBuilder {
       let prior: FieldPrior | undefined;
       if (spec.autoTile) {
         const basis = fieldBasis(src, spec);
-        prior = this.settleTile(spec, basis, await chooseTileAsync(src, { ...spec, slices: 1 }, basis, (tiles) => encodeTilesOn(pool, basis, tiles)));
+        prior = this.settleTile(spec, basis, await chooseTileAsync(src, { ...spec, slices: 1 }, basis, (tiles) => encodeTilesOn(pool, basis, tiles), mosaicWorkOn(pool)));
       }
       // The layer is chosen and computed in this thread (the same for every thread count); the tiles' terms travel with them.
       const laid = this.layerFor(src, spec, page, layer, prior);

@@ -7,7 +7,8 @@
 import type { FloatArray } from '../types.js';
 import type { Svd } from '../linalg/svd.js';
 import { copyBlock } from '../geometry.js';
-import { candidatePlans, costPlans, firstPass, keepsTiles, l2Plan, type L2Plan, type TileSvds } from './plan-l2.js';
+import { candidatePlans, costPlans, costPlansAsync, firstPass, keepsTiles, l2Plan, type FirstPass, type L2Plan, type L2PlanData, type TileSvds } from './plan-l2.js';
+import type { PreparedTile } from './prepare.js';
 import { encodeField, encodeTile, fieldBasis, termFor, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
@@ -146,8 +147,8 @@ export function spreadSample(spec: FieldSpec, m: number, n: number, count: numbe
  * time. The candidates are weighed in their order either way (the huge
  * square after the others, see {@link TrialChoice.worthTrying}).
  */
-export async function chooseTileAsync(src: BandSource, spec: FieldSpec, basis: FieldChoices, encodeMany: (tiles: PickedTile[]) => Promise<TileOutcome[]>): Promise<TileTrial> {
-  if (!basis.pointwise) return chooseTile(src, spec, basis);
+export async function chooseTileAsync(src: BandSource, spec: FieldSpec, basis: FieldChoices, encodeMany: (tiles: PickedTile[]) => Promise<TileOutcome[]>, l2?: MosaicWork): Promise<TileTrial> {
+  if (!basis.pointwise) return l2 ? chooseTileL2(src, spec, basis, l2) : chooseTile(src, spec, basis);
   const choice = new TrialChoice(spec, largestFirst(spec));
   const samples = trialSamples(spec);
   const huge = (m: number, n: number) => m === HUGE_SQUARE && n === HUGE_SQUARE;
@@ -351,10 +352,77 @@ function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tr
  * first pass and tiles, and is returned for it.
  */
 function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices, beat: number): Tried {
+  const mo = mosaicOf(src, spec, m, n, picked);
+  if (mo.planned) {
+    const spectra = new Map<number, Float64Array>();
+    const first = firstPass(mo.src, mo.spec, mo.basis.tol, mo.basis.fill, undefined, (k, s) => spectra.set(mo.fieldIndex[k], s));
+    const plans = candidatePlans(first.spectra, mo.basis.tol);
+    if (plans.length > 1) return mosaicCost(mo, first, spectra, field, costPlans(plans, mo.all, first.kept, first.spectra, mosaicLoses(mo, first, beat)));
+  }
+  return mosaicPacked(mo);
+}
+
+/**
+ * What an L2 trial's first pass and costing need from other threads: a
+ * first pass over a small field on them (each tile's singular values
+ * handed to `seen`, by the small field's tile index), and the costing of
+ * candidate plans on them (the `cost` of costPlansAsync, `ahead` tiles
+ * ahead; `done` when the costing is over).
+ */
+export interface MosaicWork {
+  firstPass(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, seen: (k: number, s: Float64Array) => void): Promise<FirstPass>;
+  costing(plans: L2PlanData[], sample: number[], tiles: PreparedTile[]): { cost: (k: number, ats: number[]) => Promise<number[]>; done: () => Promise<void> };
+  ahead: number;
+}
+
+/** {@link chooseTile} under an L2 bound with each mosaic's first pass and costing on other threads (`work`): the same choice. */
+async function chooseTileL2(src: BandSource, spec: FieldSpec, basis: FieldChoices, work: MosaicWork): Promise<TileTrial> {
+  const choice = new TrialChoice(spec, largestFirst(spec));
+  for (const [m, n, picked] of trialSamples(spec)) {
+    if (choice.worthTrying(m, n)) choice.add(m, n, await tryMosaicAsync(src, spec, m, n, picked, basis, choice.rate, work));
+  }
+  return choice.best;
+}
+
+/** {@link tryMosaic} with the first pass and the costing on other threads: the same result. */
+async function tryMosaicAsync(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices, beat: number, work: MosaicWork): Promise<Tried> {
+  const mo = mosaicOf(src, spec, m, n, picked);
+  if (mo.planned) {
+    const spectra = new Map<number, Float64Array>();
+    const first = await work.firstPass(mo.src, mo.spec, mo.basis.tol, mo.basis.fill, (k, s) => spectra.set(mo.fieldIndex[k], s));
+    const plans = candidatePlans(first.spectra, mo.basis.tol);
+    if (plans.length > 1) {
+      const c = work.costing(plans, mo.all, first.kept);
+      try {
+        return mosaicCost(mo, first, spectra, field, await costPlansAsync(plans, mo.all, first.kept, c.cost, work.ahead, first.spectra, mosaicLoses(mo, first, beat)));
+      } finally {
+        await c.done();
+      }
+    }
+  }
+  return mosaicPacked(mo);
+}
+
+/** An L2 trial's small field: the picked tiles side by side, its basis, and where each tile lies in the field. */
+interface Mosaic {
+  src: BandSource;
+  spec: FieldSpec;
+  basis: FieldChoices;
+  /** The field's tile index of each tile of the small field. */
+  fieldIndex: number[];
+  /** Every tile of the small field, in order (the costing's sample). */
+  all: number[];
+  /** Whether it is planned (an L2 basis, tiles kept): else packed whole. */
+  planned: boolean;
+  /** Whether the small field is the field's first slice itself, as one tile. */
+  whole: boolean;
+}
+
+function mosaicOf(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[]): Mosaic {
   const width = picked.length * n;
   const mosaic = spec.dtype === 'f32' ? new Float32Array(m * width) : new Float64Array(m * width);
-  // The field's tile index of each tile of the small field, and where its cells lie in the field (for the layer's term).
   const fieldIndex: number[] = [];
+  // Where each tile's cells lie in the field (for the layer's term).
   const origins = new Int32Array(2 * picked.length);
   const gc = Math.ceil(spec.cols / n);
   eachPicked(src, spec, m, n, picked, (k, band, j0, index) => {
@@ -366,31 +434,35 @@ function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picke
   const trialSrc: BandSource = { band: (r0, count) => mosaic.subarray(r0 * width, (r0 + count) * width) };
   const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false, ...(spec.layer ? { layerOrigins: origins } : {}) }; // the field's own pass guards
   const basis = fieldBasis(trialSrc, trial);
-  const tiles = picked.length;
-  if (!basis.pointwise && keepsTiles(trial)) {
-    // Each tile's singular values, by the field's tile index: the field's first pass takes them as they are (see tileSpectrum).
-    const spectra = new Map<number, Float64Array>();
-    const first = firstPass(trialSrc, trial, basis.tol, basis.fill, undefined, (k, s) => spectra.set(fieldIndex[k], s));
-    const plans = candidatePlans(first.spectra, basis.tol);
-    if (plans.length > 1) {
-      const all = Array.from({ length: tiles }, (_, k) => k);
-      const valid = first.spectra.valid.reduce((a, b) => a + b, 0);
-      // Bytes that could not beat the best candidate so far end the costing (the same comparison as TrialChoice.add).
-      const costed = costPlans(plans, all, first.kept, first.spectra, (bytes) => (bytes + tiles * TILE_INDEX_BYTES) / Math.max(1, valid) > beat);
-      const whole = tiles === 1 && m === spec.rows && n === spec.cols && basis.tol === field.tol;
-      const plan = whole ? l2Plan(costed.plan, basis.fill, (index) => first.kept[index]) : undefined;
-      // The SVDs the costing computed, for the field's passes to take: of tiles without missing cells (and no layer), whose
-      // centred values do not depend on the tolerance, which the small field's range may set otherwise than the field's.
-      const svds = new Map<number, Map<number, Svd>>();
-      first.kept.forEach((t, k) => {
-        if (t.classes.special === 0 && t.layer === null && t.svds.size > 0) svds.set(fieldIndex[k], t.svds);
-      });
-      return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), spectra, svds, ...(plan ? { plan } : {}) };
-    }
-  }
+  const all = Array.from({ length: picked.length }, (_, k) => k);
+  return { src: trialSrc, spec: trial, basis, fieldIndex, all, planned: !basis.pointwise && keepsTiles(trial), whole: picked.length === 1 && m === spec.rows && n === spec.cols };
+}
+
+/** Bytes that could not beat the best candidate so far end the costing (the same comparison as TrialChoice.add). */
+function mosaicLoses(mo: Mosaic, first: FirstPass, beat: number): (bytes: number) => boolean {
+  const valid = first.spectra.valid.reduce((a, b) => a + b, 0);
+  return (bytes) => (bytes + mo.all.length * TILE_INDEX_BYTES) / Math.max(1, valid) > beat;
+}
+
+/** A planned trial's cost from its costing, with the spectra and SVDs (and plan) the field's passes take. */
+function mosaicCost(mo: Mosaic, first: FirstPass, spectra: Map<number, Float64Array>, field: FieldChoices, costed: { plan: L2PlanData; bytes: number }): Tried {
+  const tiles = mo.all.length;
+  const valid = first.spectra.valid.reduce((a, b) => a + b, 0);
+  const plan = mo.whole && mo.basis.tol === field.tol ? l2Plan(costed.plan, mo.basis.fill, (index) => first.kept[index]) : undefined;
+  // The SVDs the costing computed, for the field's passes to take: of tiles without missing cells (and no layer), whose
+  // centred values do not depend on the tolerance, which the small field's range may set otherwise than the field's.
+  const svds = new Map<number, Map<number, Svd>>();
+  first.kept.forEach((t, k) => {
+    if (t.classes.special === 0 && t.layer === null && t.svds.size > 0) svds.set(mo.fieldIndex[k], t.svds);
+  });
+  return { bytes: costed.bytes + tiles * TILE_INDEX_BYTES, valid, done: new Map(), spectra, svds, ...(plan ? { plan } : {}) };
+}
+
+/** A trial's small field packed whole (a pointwise basis, tiles not kept, or one candidate plan). */
+function mosaicPacked(mo: Mosaic): Tried {
   let bytes = 0;
   // The basis made above, not a second range pass over the small field.
-  const done = encodeField(trialSrc, trial, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES), { basis, done: new Map() });
+  const done = encodeField(mo.src, mo.spec, (_t, tile) => (bytes += tile.payload.length + TILE_INDEX_BYTES), { basis: mo.basis, done: new Map() });
   return { bytes, valid: done.valid, done: new Map() };
 }
 

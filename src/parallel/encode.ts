@@ -13,10 +13,10 @@
  */
 import { tileGrid } from '../geometry.js';
 import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, termFor, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { costTile, firstPassTile, keepCosted, keepsTiles, l2Plan, planL2Async, type FirstPassTile, type L2Plan, type L2PlanData, type TileSvds } from '../codec/plan-l2.js';
+import { costTile, firstPassTile, keepCosted, keepsTiles, l2Plan, planL2Async, type FirstPass, type FirstPassTile, type L2Plan, type L2PlanData, type TileSvds } from '../codec/plan-l2.js';
 import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
-import type { PickedTile } from '../codec/auto-tile.js';
+import type { MosaicWork, PickedTile } from '../codec/auto-tile.js';
 import { ErrorTally } from '../codec/tally.js';
 import type { FloatArray } from '../types.js';
 import type { WorkerPool } from './pool.js';
@@ -99,9 +99,11 @@ export const encodeTasks = {
     costings.delete(body.key);
     return { result: null };
   },
-  'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean; known?: Float64Array; term?: Float64Array | null }) {
-    const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep, body.known, undefined, body.term ?? null);
-    return { result: f };
+  'plan-tile'(body: { tile: FloatArray; m: number; n: number; spec: Pick<FieldSpec, 'dtype' | 'progressive'>; fill: Uint32Array | null; tol: number; keep: boolean; known?: Float64Array; term?: Float64Array | null; seen?: boolean }) {
+    // With `seen`, the singular values themselves go back too (a tile trial hands them to the field's first pass as they are).
+    let s: Float64Array | undefined;
+    const f = firstPassTile(body.tile, body.m, body.n, body.spec, body.fill, body.tol, body.keep, body.known, body.seen ? (values) => (s = values) : undefined, body.term ?? null);
+    return { result: s ? { ...f, s } : f };
   },
   'encode-forget'(body: { key: number }) {
     fields.delete(body.key);
@@ -246,37 +248,71 @@ export async function encodeTilesOn(pool: WorkerPool, c: FieldChoices, tiles: Pi
  * tile trial took, `known`, and the SVDs it computed, `svds`, by tile index).
  */
 export async function planL2Parallel(src: BandSource, spec: FieldSpec, c: FieldChoices, pool: WorkerPool, known?: ReadonlyMap<number, Float64Array>, svds?: TileSvds): Promise<L2Plan> {
+  const first = await firstPassOn(pool, src, spec, c.tol, c.fill, known);
+  const work = costingOn(pool);
+  let costing: ReturnType<typeof work> | null = null;
+  try {
+    return await planL2Async(src, spec, c.tol, c.fill, first, (plans, sample, tiles) => (costing = work(plans, sample, tiles)).cost, pool.threads - 1, svds);
+  } finally {
+    await (costing as ReturnType<typeof work> | null)?.done();
+  }
+}
+
+/**
+ * The L2 planning's first pass over every tile of a field on `pool`, as
+ * firstPass makes it in one thread (with the singular values the tile
+ * trial took, `known`, by tile index; each tile's handed to `seen`).
+ */
+async function firstPassOn(pool: WorkerPool, src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, known?: ReadonlyMap<number, Float64Array>, seen?: (index: number, s: Float64Array) => void): Promise<FirstPass> {
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   // Of each tile's first pass, the planner keeps its spectrum in a flat store (and the prepared tile only for small fields).
   const [gr, gc] = tileGrid(spec);
-  const first = { spectra: new Spectra((spec.slices ?? 1) * gr * gc), kept: [] as PreparedTile[] };
-  const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill: c.fill, tol: c.tol, keep: keepsTiles(spec) };
+  const first: FirstPass = { spectra: new Spectra((spec.slices ?? 1) * gr * gc), kept: [] };
+  const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill, tol, keep: keepsTiles(spec), ...(seen ? { seen: true } : {}) };
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
     const values = known?.get(index);
     const term = termFor(spec, index, m, n);
-    return pool.run<FirstPassTile>('plan-tile', { ...body, tile, m, n, ...(values ? { known: values } : {}), ...(term ? { term } : {}) });
+    return pool.run<FirstPassTile & { s?: Float64Array }>('plan-tile', { ...body, tile, m, n, ...(values ? { known: values } : {}), ...(term ? { term } : {}) });
   };
-  const take = (f: FirstPassTile) => {
+  const take = (f: FirstPassTile & { s?: Float64Array }, index: number) => {
     first.spectra.add(f);
     if (body.keep) first.kept.push(f.tile!);
+    if (seen) seen(index, f.s!);
   };
   await inOrder(pool, tilesOf(src, spec), post, take, limit);
-  // The candidate plans costed on the pool, a sampled tile a task (the tile's plans share its SVDs), the next tiles
-  // started while one is costed; each payload kept on the tile, for the encoding pass.
-  const key = nextKey++;
-  let setup: Promise<void> | null = null;
-  const cost = (plans: L2PlanData[], sample: number[], tiles: PreparedTile[]) => {
-    setup = pool.broadcast('cost-setup', { key, plans });
-    return async (k: number, ats: number[]): Promise<number[]> => {
+  return first;
+}
+
+/**
+ * Candidate plans costed on `pool`, a sampled tile a task (the tile's plans
+ * share its SVDs), each payload kept on the tile (see costPlansAsync):
+ * `done` when the costing is over.
+ */
+function costingOn(pool: WorkerPool): (plans: L2PlanData[], sample: number[], tiles: PreparedTile[]) => { cost: (k: number, ats: number[]) => Promise<number[]>; done: () => Promise<void> } {
+  return (plans, sample, tiles) => {
+    const key = nextKey++;
+    const setup = pool.broadcast('cost-setup', { key, plans });
+    // Awaited by every request, or by done: a failure meanwhile must not go unhandled.
+    setup.catch(() => undefined);
+    const cost = async (k: number, ats: number[]): Promise<number[]> => {
       await setup;
       const payloads = await pool.run<Uint8Array[]>('cost-tile', { key, index: sample[k], ats, tile: tiles[k] });
       payloads.forEach((payload, j) => keepCosted(plans[ats[j]], tiles[k], sample[k], payload));
       return payloads.map((payload) => payload.length);
     };
+    const done = async () => {
+      await setup.catch(() => undefined);
+      if (!pool.failed) await pool.broadcast('cost-forget', { key });
+    };
+    return { cost, done };
   };
-  try {
-    return await planL2Async(src, spec, c.tol, c.fill, first, cost, pool.threads - 1, svds);
-  } finally {
-    if (setup !== null && !pool.failed) await pool.broadcast('cost-forget', { key });
-  }
+}
+
+/** An L2 tile trial's first passes and costings on `pool` (see MosaicWork in auto-tile.ts). */
+export function mosaicWorkOn(pool: WorkerPool): MosaicWork {
+  return {
+    firstPass: (src, spec, tol, fill, seen) => firstPassOn(pool, src, spec, tol, fill, undefined, seen),
+    costing: costingOn(pool),
+    ahead: pool.threads - 1,
+  };
 }

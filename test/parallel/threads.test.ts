@@ -103,6 +103,19 @@ describe('packAsync: the same archive for every thread count', () => {
     for (const threads of [2, 3]) expect(same(await lib.packAsync(values, shape, { ...o, threads }), sync), `threads ${threads}`).toBe(true);
   }, 120_000);
 
+  // Under an L2 bound the tile trial packs each candidate's tiles side by side as a small field with its own plan: with a
+  // pool, each small field's first pass and its plans' costing run on the workers (MosaicWork in auto-tile.ts).
+  it.each(['psnr:40', 'psnr:70'])('annual-precip %s, tile auto, on a pool of 2: the L2 trial on the workers, the same archive as pack()', async (bound) => {
+    const g = precip();
+    const values = Float32Array.from(g.values);
+    const pool = new lib.WorkerPool(2);
+    try {
+      expect(same(await lib.packAsync(values, g.shape, { bound, pool }), lib.pack(values, g.shape, { bound }))).toBe(true);
+    } finally {
+      await pool.close();
+    }
+  }, 120_000);
+
   it('auto tile and a field of slices through ArchiveBuilder.addAsync', async () => {
     const g = volcano();
     const one = Float32Array.from(g.values);
