@@ -7,6 +7,7 @@
 import type { FloatArray } from '../types.js';
 import type { Svd } from '../linalg/svd.js';
 import { copyBlock } from '../geometry.js';
+import { classify } from './mask.js';
 import { candidatePlans, costPlans, firstPass, keepsTiles, l2Plan, type L2Plan, type TileSvds } from './plan-l2.js';
 import { encodeField, encodeTile, fieldBasis, termFor, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
 
@@ -122,7 +123,19 @@ export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices
 export function sampleCost(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[], beat = Infinity): Tried {
   if (!basis.pointwise) return tryMosaic(src, spec, m, n, picked, basis, beat);
   const tiles = pickedTiles(src, spec, m, n, picked);
-  return tally(tiles.map((t) => t.index), tiles.map((t) => encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n, t.term), t.index)));
+  // The valid cells of all the tiles, known before any is encoded (a pass over each), when a candidate may lose part way.
+  const valid = beat < Infinity && tiles.length > 1 ? tiles.reduce((sum, t) => sum + t.m * t.n - classify(t.tile, basis.fill).special, 0) : -1;
+  const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
+  for (let k = 0; k < tiles.length; k++) {
+    const t = tiles[k];
+    addOutcome(tried, t.index, encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n, t.term), t.index));
+    // Bytes only grow, and every tile left adds at least its index entry: once that passes the best rate
+    // for all the tiles' valid cells, the candidate has lost (its rate is more than `beat` whatever the rest
+    // take), and it stops with those bytes (see TrialChoice.add: a loser's tiles are not used).
+    const least = tried.bytes + (tiles.length - 1 - k) * TILE_INDEX_BYTES;
+    if (valid >= 0 && k + 1 < tiles.length && least / Math.max(1, valid) > beat) return { bytes: least, valid, done: tried.done };
+  }
+  return tried;
 }
 
 /** `count` whole tiles of a field's m x n grid spread over it (see {@link spreadTiles}), or every whole tile when there are no more. */
@@ -332,12 +345,15 @@ function pickedTiles(src: BandSource, spec: FieldSpec, m: number, n: number, pic
 /** A pointwise trial's cost: its tiles' payloads and index entries, and the tiles by index. */
 function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tried {
   const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
-  outcomes.forEach((o, k) => {
-    tried.bytes += o.payload.length + TILE_INDEX_BYTES;
-    tried.valid += o.valid;
-    tried.done.set(indices[k], o);
-  });
+  outcomes.forEach((o, k) => addOutcome(tried, indices[k], o));
   return tried;
+}
+
+/** Count one encoded tile into a pointwise trial's cost. */
+function addOutcome(tried: Tried, index: number, o: TileOutcome): void {
+  tried.bytes += o.payload.length + TILE_INDEX_BYTES;
+  tried.valid += o.valid;
+  tried.done.set(index, o);
 }
 
 /**
