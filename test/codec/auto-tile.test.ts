@@ -159,6 +159,25 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     expect(sampleCost(src, spec, basis, m, n, picked, rate * 1.001).bytes).toBe(whole.bytes);
   }, 30_000);
 
+  it('a pointwise candidate of several tiles that cannot beat the best so far stops early, with bytes per cell above it; one that can is costed in full (annual-precip rel:1e-3)', () => {
+    const { values, shape } = precip();
+    const { spec } = fieldSpecOf(shape, 'f32', { bound: 'rel:1e-3' });
+    const src = memoryBands(values, shape[1]);
+    const basis = fieldBasis(src, spec);
+    expect(basis.pointwise).toBe(true);
+    const [m, n] = [64, 64];
+    const picked = spreadSample(spec, m, n, 8);
+    const whole = sampleCost(src, spec, basis, m, n, picked);
+    const rate = whole.bytes / whole.valid;
+    // A best so far of half this candidate's rate: it stops before its last tile, yet its bytes per cell pass the best.
+    const lost = sampleCost(src, spec, basis, m, n, picked, rate / 2);
+    expect(lost.done.size).toBeLessThan(picked.length);
+    expect(lost.valid).toBe(whole.valid);
+    expect(lost.bytes / lost.valid).toBeGreaterThan(rate / 2);
+    // A best so far just above its rate: costed in full, the same bytes.
+    expect(sampleCost(src, spec, basis, m, n, picked, rate * 1.001).bytes).toBe(whole.bytes);
+  }, 30_000);
+
   it('a rank-2 time x space matrix gets a strip across all its rows', async () => {
     const rows = 96;
     const cols = 3000;
