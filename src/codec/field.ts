@@ -173,6 +173,7 @@ export function searchTile(c: FieldChoices, t: PreparedTile, index: number): Til
   return { bytes: search.bytes, finish };
 }
 
+/** A tile's outcome from its final payload and that payload's measurement. */
 function outcome(c: FieldChoices, t: PreparedTile, payload: Uint8Array, res: ReturnType<typeof measure>, searched: number): TileOutcome {
   // Prefixes are measured (and recorded) for progressive layouts only.
   res.stats.prefix = c.progressive ? measurePrefixes(payload, t, c.fill) : [];
