@@ -7,9 +7,10 @@
 import type { FloatArray } from '../types.js';
 import type { Svd } from '../linalg/svd.js';
 import { copyBlock } from '../geometry.js';
+import { classify } from './mask.js';
 import { candidatePlans, costPlans, costPlansAsync, firstPass, keepsTiles, l2Plan, type FirstPass, type L2Plan, type L2PlanData, type TileSvds } from './plan-l2.js';
 import type { PreparedTile } from './prepare.js';
-import { encodeField, encodeTile, fieldBasis, termFor, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome } from './field.js';
+import { encodeField, encodeTile, fieldBasis, searchTile, termFor, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome, type TileSearch } from './field.js';
 
 /** Square candidates, besides the whole sample when it fits in one tile. */
 const SQUARE = [64, 128, 256];
@@ -105,9 +106,9 @@ const TRIAL_TILES = 8;
 export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices): TileTrial {
   const choice = new TrialChoice(spec, largestFirst(spec));
   for (const [m, n, picked] of trialSamples(spec)) {
-    if (choice.worthTrying(m, n)) choice.add(m, n, sampleCost(src, spec, basis, m, n, picked, choice.rate));
+    if (choice.worthTrying(m, n)) choice.add(m, n, sampleCost(src, spec, basis, m, n, picked, choice.rate, choice.stops));
   }
-  return choice.best;
+  return choice.result();
 }
 
 /**
@@ -116,14 +117,37 @@ export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices
  * tile encoded with the field's basis, under an L2 bound the tiles side by
  * side as one small field with its own plan (see {@link chooseTile}). The
  * field layer's term of each tile is taken off as the encoding pass takes it.
- * `beat`: the fewest bytes per valid cell of a candidate tried before; an
- * L2 trial that cannot beat it stops early, its bytes then only as many as
- * it took to know (more than `beat` per valid cell).
+ * `beat`: the fewest bytes per valid cell of a candidate tried before; a
+ * trial that cannot beat it stops early, its bytes then only as many as
+ * it took to know (more than `beat` per valid cell). `searched`: a
+ * pointwise tile counts the bytes of its search (see TileSearch in
+ * field.ts), and is finished only by {@link Tried.finish} (the trial of a
+ * small field: see {@link largestFirst}).
  */
-export function sampleCost(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[], beat = Infinity): Tried {
+export function sampleCost(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[], beat = Infinity, searched = false): Tried {
   if (!basis.pointwise) return tryMosaic(src, spec, m, n, picked, basis, beat);
   const tiles = pickedTiles(src, spec, m, n, picked);
-  return tally(tiles.map((t) => t.index), tiles.map((t) => encodeTile(basis, tileToEncode(basis, t.index, t.tile, m, n, t.term), t.index)));
+  // The valid cells of all the tiles, known before any is encoded (a pass over each), when a candidate may lose part way.
+  const valid = beat < Infinity && tiles.length > 1 ? tiles.reduce((sum, t) => sum + t.m * t.n - classify(t.tile, basis.fill).special, 0) : -1;
+  const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
+  const searches: [number, TileSearch][] = [];
+  if (searched) tried.finish = () => searches.forEach(([index, s]) => tried.done.set(index, s.finish()));
+  for (let k = 0; k < tiles.length; k++) {
+    const t = tiles[k];
+    const prepared = tileToEncode(basis, t.index, t.tile, m, n, t.term);
+    if (searched) {
+      const s = searchTile(basis, prepared, t.index);
+      searches.push([t.index, s]);
+      tried.bytes += s.bytes + TILE_INDEX_BYTES;
+      tried.valid += prepared.valid;
+    } else addOutcome(tried, t.index, encodeTile(basis, prepared, t.index), false);
+    // Bytes only grow, and every tile left adds at least its index entry: once that passes the best rate
+    // for all the tiles' valid cells, the candidate has lost (its rate is more than `beat` whatever the rest
+    // take), and it stops with those bytes (see TrialChoice.add: a loser's tiles are not used).
+    const least = tried.bytes + (tiles.length - 1 - k) * TILE_INDEX_BYTES;
+    if (valid >= 0 && k + 1 < tiles.length && least / Math.max(1, valid) > beat) return { bytes: least, valid, done: tried.done };
+  }
+  return tried;
 }
 
 /** `count` whole tiles of a field's m x n grid spread over it (see {@link spreadTiles}), or every whole tile when there are no more. */
@@ -163,7 +187,7 @@ export async function chooseTileAsync(src: BandSource, spec: FieldSpec, basis: F
       const tiles = pickedTiles(src, spec, m, n, picked);
       // The indices first: encodeMany may hand the tiles' buffers over to other threads.
       const indices = tiles.map((t) => t.index);
-      started[k] = encodeMany(tiles).then((outcomes) => tally(indices, outcomes));
+      started[k] = encodeMany(tiles).then((outcomes) => tally(indices, outcomes, choice.stops));
       // Awaited in order below, or never; a failure meanwhile must not go unhandled.
       started[k].catch(() => undefined);
     }
@@ -177,7 +201,7 @@ export async function chooseTileAsync(src: BandSource, spec: FieldSpec, basis: F
     for (let j = k + 1; j <= Math.min(k + ahead(k), samples.length - 1); j++) if (!huge(samples[j][0], samples[j][1])) start(j);
     choice.add(m, n, await current);
   }
-  return choice.best;
+  return choice.result();
 }
 
 /** Most cells of the candidates' samples that {@link chooseTileAsync} encodes at once: as many as one candidate's sample may hold. */
@@ -266,8 +290,15 @@ class TrialChoice {
     if (rate < this.rate) {
       this.rate = rate;
       this.best = { shape: [m, n], done: tried.done, ...(tried.plan ? { plan: tried.plan } : {}), ...(tried.spectra ? { spectra: tried.spectra } : {}), ...(tried.svds ? { svds: tried.svds } : {}) };
+      this.finishBest = tried.finish;
     }
   }
+  /** The choice, with the best candidate's tiles finished. */
+  result(): TileTrial {
+    this.finishBest?.();
+    return this.best;
+  }
+  private finishBest: (() => void) | undefined;
 }
 
 /** The tile shape a trial chose, and the tiles of that shape it encoded as the field's own (by tile index). */
@@ -287,6 +318,8 @@ export interface Tried {
   bytes: number;
   valid: number;
   done: Map<number, TileOutcome>;
+  /** Fills `done` with the tiles, when they were searched but not finished (see {@link sampleCost}). */
+  finish?: () => void;
   plan?: L2Plan;
   spectra?: ReadonlyMap<number, Float64Array>;
   svds?: TileSvds;
@@ -330,15 +363,18 @@ function pickedTiles(src: BandSource, spec: FieldSpec, m: number, n: number, pic
   return out;
 }
 
-/** A pointwise trial's cost: its tiles' payloads and index entries, and the tiles by index. */
-function tally(indices: readonly number[], outcomes: readonly TileOutcome[]): Tried {
+/** A pointwise trial's cost: its tiles' payloads (or their searches' bytes, `searched`: see {@link sampleCost}) and index entries, and the tiles by index. */
+function tally(indices: readonly number[], outcomes: readonly TileOutcome[], searched: boolean): Tried {
   const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
-  outcomes.forEach((o, k) => {
-    tried.bytes += o.payload.length + TILE_INDEX_BYTES;
-    tried.valid += o.valid;
-    tried.done.set(indices[k], o);
-  });
+  outcomes.forEach((o, k) => addOutcome(tried, indices[k], o, searched));
   return tried;
+}
+
+/** Count one encoded tile into a pointwise trial's cost. */
+function addOutcome(tried: Tried, index: number, o: TileOutcome, searched: boolean): void {
+  tried.bytes += (searched ? o.searched : o.payload.length) + TILE_INDEX_BYTES;
+  tried.valid += o.valid;
+  tried.done.set(index, o);
 }
 
 /**
@@ -381,7 +417,7 @@ async function chooseTileL2(src: BandSource, spec: FieldSpec, basis: FieldChoice
   for (const [m, n, picked] of trialSamples(spec)) {
     if (choice.worthTrying(m, n)) choice.add(m, n, await tryMosaicAsync(src, spec, m, n, picked, basis, choice.rate, work));
   }
-  return choice.best;
+  return choice.result();
 }
 
 /** {@link tryMosaic} with the first pass and the costing on other threads: the same result. */

@@ -25,6 +25,11 @@ class ByteSink {
     this.out = new Uint8Array(Math.max(64, expected));
   }
 
+  /** Bytes written so far: the finished stream is at least this long. */
+  get written(): number {
+    return this.length;
+  }
+
   private put(byte: number): void {
     if (this.length === this.out.length) {
       const next = new Uint8Array(this.out.length * 2);
@@ -94,6 +99,11 @@ export class RangeEncoder {
     }
   }
 
+  /** Bytes written so far: the finished stream is at least this long (bytes only add). */
+  get written(): number {
+    return this.sink.written;
+  }
+
   /** Width of the current interval (for a multi-symbol decision: see {@link interval}). */
   get width(): number {
     return this.range;
@@ -142,6 +152,15 @@ export class RangeEncoder {
  * zeros in a zero neighbourhood takes a loop of its own.
  */
 export function encodeInts(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Uint8Array {
+  return encodeIntsWithin(values, m, n, codes, Infinity)!;
+}
+
+/**
+ * {@link encodeInts}, or null once the stream is known to be longer than
+ * `atMost` bytes: the bytes written only add up (the flush adds more), so a
+ * caller that needs a shorter stream stops there (checked after each row).
+ */
+export function encodeIntsWithin(values: Int32Array, m: number, n: number, codes: Uint8Array | null, atMost: number): Uint8Array | null {
   // The model's layout in locals (a read of an imported binding goes through a cell in V8).
   const kZeroAt = ZERO_AT;
   const kSignAt = SIGN_AT;
@@ -262,6 +281,7 @@ export function encodeInts(values: Int32Array, m: number, n: number, codes: Uint
       up = upRight;
       left = v;
     }
+    if (sink.written > atMost) return null;
   }
   return sink.finish(low);
 }

@@ -19,6 +19,10 @@ class BitWriter {
   constructor(expected: number) {
     this.out = new Uint8Array(Math.max(16, expected));
   }
+  /** Whole bytes written so far. */
+  get written(): number {
+    return this.length;
+  }
   /** The low `bits` bits of v (bits <= 29). */
   put(v: number, bits: number): void {
     for (let b = bits - 1; b >= 0; b--) {
@@ -57,6 +61,15 @@ function lengthBytes(v: number): number {
  * in encodeInts (they must hold 0).
  */
 export function encodeSymbols(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Uint8Array {
+  return encodeSymbolsWithin(values, m, n, codes, Infinity)!;
+}
+
+/**
+ * {@link encodeSymbols}, or null once the result is known to be longer than
+ * `atMost` bytes (checked after each row: its length varint, at least one
+ * byte, and the bytes of both parts written so far only add up).
+ */
+export function encodeSymbolsWithin(values: Int32Array, m: number, n: number, codes: Uint8Array | null, atMost: number): Uint8Array | null {
   const md = newSymbolModel();
   const { F, E, left } = md;
   const enc = new RangeEncoder(values.length / 2 + 64, newBinary());
@@ -96,6 +109,7 @@ export function encodeSymbols(values: Int32Array, m: number, n: number, codes: U
       enc.bit(v < 0 ? 1 : 0, SIGN_AT + signContext(l, u));
       if (k > 1) raw.put(mag, k - 1);
     }
+    if (1 + enc.written + raw.written > atMost) return null;
   }
   const stream = enc.finish();
   const bits = raw.finish();

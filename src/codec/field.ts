@@ -12,7 +12,7 @@ import { measure, measurePrefixes, type TileStats } from './measure.js';
 import { planL2, type L2Plan, type TileSvds } from './plan-l2.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
 import type { FloatArray } from '../types.js';
-import { encodePointwise, exactPayload } from './tile-encode.js';
+import { exactPayload, pointwiseSearch } from './tile-encode.js';
 import { forEachTile, termFor, validRange, type BandSource, type FieldSpec } from './tiles.js';
 
 export { forEachTile, tilesOf, memoryBands, termFor, validRange, type BandSource, type FieldSpec } from './tiles.js';
@@ -125,27 +125,59 @@ export interface TileOutcome extends EncodedTile {
   valid: number;
   /** The tile's errors, merged into the field's in tile order. */
   tally: ErrorTally;
+  /** The bytes of {@link TileSearch} (what a tile trial of a small field weighs). */
+  searched: number;
+}
+
+/**
+ * A tile's encoding in two steps: `bytes`, known first, are those of the
+ * pointwise search's smallest candidate before its payload is finished
+ * (see pointwiseSearch: the blend predictor, the residual coder, the
+ * exact payload, then the decoder's check), or an L2 plan's payload's
+ * own; finish() makes the outcome (once).
+ */
+export interface TileSearch {
+  bytes: number;
+  finish(): TileOutcome;
 }
 
 /** Encode one prepared tile under the field's choices; depends on nothing but its arguments. */
 export function encodeTile(c: FieldChoices, t: PreparedTile, index: number): TileOutcome {
+  return searchTile(c, t, index).finish();
+}
+
+/** {@link encodeTile} in two steps (see {@link TileSearch}). */
+export function searchTile(c: FieldChoices, t: PreparedTile, index: number): TileSearch {
   // A payload may name the field's residual step by a flag; the reader derives it from the stored tolerance.
   if (t.fieldStep !== fieldStep(c.tol)) throw new Error(`internal: tile ${index} was prepared for another tolerance than the field's`);
-  let payload: Uint8Array;
-  let res: ReturnType<typeof measure>;
-  if (c.plan) ({ payload, res } = c.plan.encode(t, index));
-  else {
-    payload = encodePointwise(t, c.tol);
-    res = measure(payload, t, c.fill);
-    // The safety net: a tile that fails its own check is stored exactly.
-    if (!(res.stats.maxErr <= c.tol)) {
-      payload = exactPayload(t);
-      res = measure(payload, t, c.fill);
-    }
+  if (c.plan) {
+    const { payload, res } = c.plan.encode(t, index);
+    const o = outcome(c, t, payload, res, payload.length);
+    return { bytes: payload.length, finish: () => o };
   }
+  const search = pointwiseSearch(t, c.tol);
+  let o: TileOutcome | undefined;
+  const finish = () => {
+    if (o === undefined) {
+      let payload = search.finish();
+      let res = measure(payload, t, c.fill);
+      // The safety net: a tile that fails its own check is stored exactly.
+      if (!(res.stats.maxErr <= c.tol)) {
+        payload = exactPayload(t);
+        res = measure(payload, t, c.fill);
+      }
+      o = outcome(c, t, payload, res, search.bytes);
+    }
+    return o;
+  };
+  return { bytes: search.bytes, finish };
+}
+
+/** A tile's outcome from its final payload and that payload's measurement. */
+function outcome(c: FieldChoices, t: PreparedTile, payload: Uint8Array, res: ReturnType<typeof measure>, searched: number): TileOutcome {
   // Prefixes are measured (and recorded) for progressive layouts only.
   res.stats.prefix = c.progressive ? measurePrefixes(payload, t, c.fill) : [];
-  return { payload, stats: res.stats, valid: t.valid, tally: res.tally };
+  return { payload, stats: res.stats, valid: t.valid, tally: res.tally, searched };
 }
 
 /** Folds tile outcomes, in tile order, into a field's summary. */

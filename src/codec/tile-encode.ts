@@ -15,9 +15,9 @@ import { lowRank, predict, predictorBitsOf, predictorBitsRow, predictedFill, Pre
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
 /** The blend (tried last) is taken only when its coded stream is below this share of the best other predictor's. */
 const BLEND_MARGIN = 0.99;
-import { encodeInts } from './code-encode.js';
+import { encodeInts, encodeIntsWithin } from './code-encode.js';
 import { decodeInts } from './code-decode.js';
-import { encodeSymbols } from './code-symbols-encode.js';
+import { encodeSymbolsWithin } from './code-symbols-encode.js';
 import { MAX_INT } from './section.js';
 import { writeSection } from './section-write.js';
 import { binary32Below, MIN_STEP, stepCode, stepValue } from './steps.js';
@@ -428,8 +428,8 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
         // bit lengths are only an estimate: both are coded, and the blend must save 1%.
         const mask = t.classes.special > 0 ? codes : null;
         const other = encodeInts(best, m, n, mask);
-        const mine = encodeInts(blend, m, n, mask);
-        if (mine.length < BLEND_MARGIN * other.length) {
+        const mine = encodeIntsWithin(blend, m, n, mask, blendAtMost(other));
+        if (mine !== null && mine.length < BLEND_MARGIN * other.length) {
           best = blend;
           predictor = Predictor.Blend;
           coded = mine;
@@ -470,9 +470,18 @@ function blendVariant(t: PreparedTile, f: Factors | null, corr: Correction): Cod
   if (!d || !(roughBits(d) < corr.bits)) return null;
   const mask = t.classes.special > 0 ? codes : null;
   const other = corr.coded ?? encodeInts(corr.q, m, n, mask);
-  const mine = encodeInts(d, m, n, mask);
-  if (!(mine.length < BLEND_MARGIN * other.length)) return null;
+  const mine = encodeIntsWithin(d, m, n, mask, blendAtMost(other));
+  if (mine === null || !(mine.length < BLEND_MARGIN * other.length)) return null;
   return { payload: lowRankPayload(t, f, { ...corr, q: d, predictor: Predictor.Blend, coded: mine }), codes: d };
+}
+
+/**
+ * The longest blend stream that is below BLEND_MARGIN times the other
+ * predictor's stream `other` (whole bytes: a stream of ceil(BLEND_MARGIN x
+ * other.length) bytes or more is not), for {@link encodeIntsWithin}.
+ */
+function blendAtMost(other: Uint8Array): number {
+  return Math.ceil(BLEND_MARGIN * other.length) - 1;
 }
 
 /**
@@ -536,10 +545,18 @@ function checked(t: PreparedTile, f: Factors | null, e: number, step = binary32B
   return { f, corr, estimate: estimateBytes(t, f, corr) };
 }
 
-/** A checked candidate coded for real. */
-function codedCandidate(t: PreparedTile, { f, corr: chosen }: Checked): Candidate {
+/**
+ * A checked candidate coded for real, or null when its residual stream
+ * alone is longer than `atMost` bytes (see {@link smallest}).
+ */
+function codedCandidate(t: PreparedTile, { f, corr: chosen }: Checked, atMost = Infinity): Candidate | null {
   // The residual coded once, here: the payload and, for the winner, the blend's comparison use it.
-  const corr = chosen.q && !chosen.coded ? { ...chosen, coded: encodeInts(chosen.q, t.m, t.n, t.classes.special > 0 ? t.classes.codes : null) } : chosen;
+  let corr = chosen;
+  if (chosen.q && !chosen.coded) {
+    const coded = encodeIntsWithin(chosen.q, t.m, t.n, t.classes.special > 0 ? t.classes.codes : null, atMost);
+    if (coded === null) return null;
+    corr = { ...chosen, coded };
+  }
   const payload = lowRankPayload(t, f, corr);
   const codes = corr.q;
   return { payload, codes, withBlend: () => blendVariant(t, f, corr) ?? { payload, codes } };
@@ -583,9 +600,10 @@ export function withResidualCoder(t: PreparedTile, payload: Uint8Array, given: I
     coded++;
     if (d[c] !== 0) nonzero++;
   }
-  const symbols = encodeSymbols(d, m, n, mask);
   const dense = 2 * nonzero >= coded;
-  if (!(symbols.length < binary.length || (dense && symbols.length <= SYMBOLS_MARGIN * binary.length))) return payload;
+  // Kept when shorter than the binary stream, or when dense and at most SYMBOLS_MARGIN times as long: beyond that, its coding stops.
+  const symbols = encodeSymbolsWithin(d, m, n, mask, dense ? SYMBOLS_MARGIN * binary.length : binary.length - 1);
+  if (symbols === null || !(symbols.length < binary.length || (dense && symbols.length <= SYMBOLS_MARGIN * binary.length))) return payload;
   const w = new ByteWriter(payload.length + 16);
   w.bytes(payload.subarray(0, place.lengthAt));
   w.varint(symbols.length);
@@ -798,12 +816,26 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
   return kept.sort((a, b) => a.order - b.order);
 }
 
-/** The smallest of the candidates coded for real; the first on a tie. */
+/**
+ * The smallest of the candidates coded for real; the first on a tie. They
+ * are coded in ascending order of estimate, so that a short payload comes
+ * early: a later one stops coding its residual once that stream is longer
+ * than the shortest payload so far less 4 bytes (a payload holds its
+ * stream, the stream's length and at least 3 bytes more: method, flags,
+ * rank), as it would then be longer.
+ */
 function smallest(t: PreparedTile, candidates: Checked[]): Candidate {
+  const order = candidates.map((_c, k) => k).sort((a, b) => candidates[a].estimate - candidates[b].estimate || a - b);
   let best: Candidate | null = null;
-  for (const c of candidates) {
-    const coded = codedCandidate(t, c);
-    if (best === null || coded.payload.length < best.payload.length) best = coded;
+  let bestAt = -1;
+  for (const k of order) {
+    const coded = codedCandidate(t, candidates[k], best === null ? Infinity : best.payload.length - 4);
+    if (coded === null) continue;
+    const shorter = best === null || coded.payload.length < best.payload.length || (coded.payload.length === best.payload.length && k < bestAt);
+    if (shorter) {
+      best = coded;
+      bestAt = k;
+    }
   }
   return best!;
 }

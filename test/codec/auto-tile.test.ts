@@ -11,7 +11,7 @@ import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
-import { chooseTileAsync, sampleCost, spreadSample, spreadTiles, tileCandidates, type PickedTile } from '../../src/codec/auto-tile.js';
+import { chooseTile, chooseTileAsync, sampleCost, spreadSample, spreadTiles, tileCandidates, type PickedTile } from '../../src/codec/auto-tile.js';
 import { encodeTile, fieldBasis, memoryBands, tileToEncode } from '../../src/codec/field.js';
 import { fieldSpecOf, pack } from '../../src/pack.js';
 
@@ -123,9 +123,10 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     const { spec } = fieldSpecOf(shape, 'f32', { bound: 'rel:1e-3' });
     const src = memoryBands(values, shape[1]);
     const basis = fieldBasis(src, spec);
-    // Every candidate weighed on its 8 spread tiles (all of them when it has fewer): the exhaustive trial's choice.
+    // Every candidate weighed on its 8 spread tiles (all of them when it has fewer) by its tiles' search bytes (a small
+    // field's measure: see sampleCost): the exhaustive trial's choice.
     const rates = tileCandidates(...shape).map(([m, n]) => {
-      const t = sampleCost(src, spec, basis, m, n, spreadSample(spec, m, n, 8));
+      const t = sampleCost(src, spec, basis, m, n, spreadSample(spec, m, n, 8), Infinity, true);
       return { shape: [m, n], rate: t.bytes / t.valid };
     });
     const best = rates.reduce((a, b) => (b.rate < a.rate ? b : a)).shape;
@@ -137,16 +138,24 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     };
     const trial = await chooseTileAsync(src, spec, basis, encodeMany);
     expect(trial.shape).toEqual(best);
-    // Measured here: 168 x 360 0.405 bytes a cell, 168 x 256 0.393, 128 x 128 0.433 (worse: the trial stops), 64 x 64 0.467.
+    // Measured here (finished payloads): 168 x 360 0.405 bytes a cell, 168 x 256 0.393, 128 x 128 0.433 (worse: the trial stops), 64 x 64 0.467.
     expect(handed).toEqual(['168x360', '168x256', '128x128']);
+    // In one thread the same choice, whose tiles (searched, then finished as the only ones) are those encodeTile makes.
+    const sync = chooseTile(src, spec, basis);
+    expect(sync.shape).toEqual(best);
+    expect([...sync.done.keys()]).toEqual([...trial.done.keys()]);
+    for (const [index, o] of sync.done) expect(Buffer.from(o.payload).equals(Buffer.from(trial.done.get(index)!.payload))).toBe(true);
   }, 60_000);
 
-  it('an L2 candidate that cannot beat the best so far stops early, with bytes per cell above it; one that can is costed in full (annual-precip psnr:50)', () => {
+  it.each([
+    ['an L2 candidate (its costing)', 'psnr:50', false],
+    ['a pointwise candidate of several tiles (its tiles)', 'rel:1e-3', true],
+  ] as const)('%s that cannot beat the best so far stops early, with bytes per cell above it; one that can is costed in full (annual-precip %s)', (_what, bound, pointwise) => {
     const { values, shape } = precip();
-    const { spec } = fieldSpecOf(shape, 'f32', { bound: 'psnr:50' });
+    const { spec } = fieldSpecOf(shape, 'f32', { bound });
     const src = memoryBands(values, shape[1]);
     const basis = fieldBasis(src, spec);
-    expect(basis.pointwise).toBe(false);
+    expect(basis.pointwise).toBe(pointwise);
     const [m, n] = [64, 64];
     const picked = spreadSample(spec, m, n, 8);
     const whole = sampleCost(src, spec, basis, m, n, picked);
@@ -155,6 +164,8 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     const lost = sampleCost(src, spec, basis, m, n, picked, rate / 2);
     expect(lost.bytes).toBeLessThan(whole.bytes);
     expect(lost.bytes / lost.valid).toBeGreaterThan(rate / 2);
+    // A pointwise one stops before its last tile, counting the valid cells of all of them.
+    if (pointwise) expect([lost.done.size < picked.length, lost.valid]).toEqual([true, whole.valid]);
     // A best so far just above its rate: costed in full, the same bytes.
     expect(sampleCost(src, spec, basis, m, n, picked, rate * 1.001).bytes).toBe(whole.bytes);
   }, 30_000);

@@ -6,10 +6,11 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { CodeStreamError, decodeInts } from '../../src/codec/code-decode.js';
-import { encodeInts } from '../../src/codec/code-encode.js';
+import { encodeInts, encodeIntsWithin } from '../../src/codec/code-encode.js';
 import { Cell } from '../../src/codec/mask.js';
 import { kernels } from '../../src/wasm/kernels.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
+import { checkWithin } from './within.js';
 import { mulberry32 } from '../rng.js';
 
 function roundTrip(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Int32Array {
@@ -145,6 +146,16 @@ describe.each(['auto', 'js'] as const)('coded integer streams (kernels %s)', (mo
       }),
       { numRuns: 2000 },
     );
+  });
+});
+
+describe('a coded stream with a length limit (encodeIntsWithin)', () => {
+  it('is the stream itself when it fits, and null only when the stream is longer than the limit; and it stops', () => {
+    // Sparse to dense grids of geometric magnitudes: stopping must never change what is kept (the callers keep a stream under a limit).
+    checkWithin(encodeInts, encodeIntsWithin, (rand, cells) => {
+      const rate = [0.05, 0.5, 1][Math.floor(rand() * 3)];
+      return Int32Array.from({ length: cells }, () => (rand() < rate ? (rand() < 0.5 ? -1 : 1) * (geometric(rand, 0.2) + 1) : 0));
+    });
   });
 });
 

@@ -14,7 +14,7 @@ import { open } from '../../src/archive.js';
 import { CodeStreamError, decodeInts } from '../../src/codec/code-decode.js';
 import { encodeInts, RangeEncoder } from '../../src/codec/code-encode.js';
 import { decodeSymbols, SYMBOL_BINARY_CONTEXTS } from '../../src/codec/code-symbols.js';
-import { encodeSymbols } from '../../src/codec/code-symbols-encode.js';
+import { encodeSymbols, encodeSymbolsWithin } from '../../src/codec/code-symbols-encode.js';
 import { Cell } from '../../src/codec/mask.js';
 import { usesSymbolCoder } from '../../src/codec/payload.js';
 import { FormatCode, FormatError } from '../../src/errors.js';
@@ -24,6 +24,7 @@ import { precip, ROOT, volcano } from '../archive/datasets.js';
 import { cloneModel, parse, readVarint, replaceStream, serialize, tileDims, walk, type Model } from '../fuzz/model.js';
 import { refusal } from '../refusal.js';
 import { mulberry32 } from '../rng.js';
+import { checkWithin } from './within.js';
 
 function roundTrip(values: Int32Array, m: number, n: number, codes: Uint8Array | null): Int32Array {
   const bytes = encodeSymbols(values, m, n, codes);
@@ -106,6 +107,10 @@ describe('the symbol coder round-trips', () => {
       ),
       { numRuns: 200 },
     );
+  });
+
+  it('with a length limit: the stream itself when it fits, null only when the stream is longer, and it stops (property)', () => {
+    checkWithin(encodeSymbols, encodeSymbolsWithin, (rand, cells) => Int32Array.from({ length: cells }, () => Math.round((rand() - 0.5) * 2 ** Math.floor(rand() * 14))));
   });
 
   it('long runs in every context: more than 256 symbols a bucket (rebuilds, halved counts) and zero runs', () => {
