@@ -292,13 +292,16 @@ describe('readBands: a field band by band, on worker threads', () => {
 });
 
 describe('a worker thread that dies', () => {
-  it('fails the encoding with one error, and the output file is not left behind', async () => {
+  it.each([
+    ['rel', 1e-4],
+    ['rmse', 0.5],
+  ] as const)('fails the encoding with one error, and the output file is not left behind (%s bound)', async (mode, value) => {
     // Workers with a heap far too small for a 256 x 256 tile: they run out of memory
     // (ERR_WORKER_OUT_OF_MEMORY), which the pool reports as a failed worker.
     const p = new pool.WorkerPool(2, { resourceLimits: { maxOldGenerationSizeMb: 4, maxYoungGenerationSizeMb: 1 } });
     const values = mirrored(precip(), 512, 0, 512);
-    const spec = { name: 'f', dtype: 'f32' as const, rows: 512, cols: 512, tileRows: 256, tileCols: 256, bound: { mode: 'rel' as const, value: 1e-4 }, fill: null };
-    const out = join(dir, 'dead.rfz');
+    const spec = { name: 'f', dtype: 'f32' as const, rows: 512, cols: 512, tileRows: 256, tileCols: 256, bound: { mode, value }, fill: null };
+    const out = join(dir, `dead-${mode}.rfz`);
     try {
       const run = files.writeOutputWith(out, { force: false, inputs: [] }, async (sink) => {
         await encode.encodeFieldParallel(field.memoryBands(values, 512), spec, (_t, tile) => sink.write(tile.payload), p);
