@@ -1,0 +1,115 @@
+/**
+ * The low-rank product in WebAssembly (kernels/lowrank.ts through
+ * src/wasm/lowrank.ts) against lowRank in JavaScript
+ * (src/codec/reconstruct.ts): the same bits for every output, on shapes
+ * that are and are not multiples of the kernel's blocks (eight and two
+ * outputs), ranks 1 to 33, with signed zeros, subnormals, huge values and
+ * infinities in the factors and the centre; NaN outputs compared for
+ * NaN-ness only (WebAssembly leaves a NaN's sign and payload open: the
+ * WebAssembly core specification, "NaN propagation", from memory; a
+ * reader refuses a valid cell that is not finite either way).
+ */
+import { describe, expect, it } from 'vitest';
+import { lowRank } from '../../src/codec/reconstruct.js';
+import { kernels, setKernelMode } from '../../src/wasm/kernels.js';
+import { lowRankKernel } from '../../src/wasm/lowrank.js';
+import { useKernelMode } from '../kernel-mode.js';
+import { mulberry32 } from '../rng.js';
+
+/** Entries from `rnd`: mostly ordinary values, and with `specials` some -0, +0, subnormals, huge values and infinities. */
+function entries(len: number, rnd: () => number, specials: boolean): Float64Array {
+  const pool = [-0, 0, 5e-324, -2.5e-310, 1.7e308, -1.3e308, 1e-300, Infinity, -Infinity];
+  const a = new Float64Array(len);
+  for (let i = 0; i < len; i++) a[i] = specials && rnd() < 0.15 ? pool[Math.floor(rnd() * pool.length)] : (rnd() - 0.5) * 8;
+  return a;
+}
+
+/** The first index where a and b differ as bit patterns (NaN: NaN-ness only), or -1. */
+function firstDifference(a: Float64Array, b: Float64Array): number {
+  for (let i = 0; i < a.length; i++) {
+    const x = a[i];
+    const y = b[i];
+    if (x !== x || y !== y) {
+      if ((x !== x) !== (y !== y)) return i;
+    } else if (!Object.is(x, y)) return i;
+  }
+  return -1;
+}
+
+/** lowRank on the JavaScript path. */
+function reference(l: Float64Array, w: Float64Array, m: number, n: number, r: number, center: number): Float64Array {
+  const out = new Float64Array(m * n).fill(7);
+  const was = setKernelMode('js');
+  try {
+    lowRank(l, w, m, n, r, center, out);
+  } finally {
+    setKernelMode(was);
+  }
+  return out;
+}
+
+useKernelMode('auto');
+
+describe('the WebAssembly low-rank product', () => {
+  it('is there in Node 20 (WebAssembly with 128-bit SIMD since V8 9.1: from memory)', () => {
+    expect(kernels()).not.toBeNull();
+  });
+
+  it('gives lowRank\'s bits for every output, with and without special values in the factors and the centre', () => {
+    const rnd = mulberry32(51);
+    const shapes: [number, number, number][] = [
+      [1, 1, 1],
+      [1, 7, 3],
+      [9, 1, 2],
+      [1, 9, 1],
+      [2, 2, 8],
+      [3, 8, 1],
+      [5, 9, 4],
+      [4, 16, 5],
+      [17, 13, 7],
+      [13, 17, 33],
+      [6, 31, 11],
+      [64, 48, 24],
+    ];
+    const centres = [0, -0, 1.5, -3e300, 5e-324, Infinity];
+    for (const [m, n, r] of shapes) {
+      for (const specials of [false, true]) {
+        for (const center of centres) {
+          const l = entries(m * r, rnd, specials);
+          const w = entries(r * n, rnd, specials);
+          const out = new Float64Array(m * n + 3).fill(7);
+          expect(lowRankKernel(l, w, m, n, r, center, out)).toBe(true);
+          const where = `${m} x ${n}, rank ${r}, specials ${specials}, centre ${center}`;
+          expect(firstDifference(out.subarray(0, m * n), reference(l, w, m, n, r, center)), where).toBe(-1);
+          // Past m n the output is left as it was.
+          expect(Array.from(out.subarray(m * n)), where).toEqual([7, 7, 7]);
+        }
+      }
+    }
+  });
+
+  it('gives +0 where every product is a zero of either sign, whatever the centre\'s sign (IEEE 754-2019 6.3: (+0) + (-0) is +0 in round to nearest; from memory)', () => {
+    const l = Float64Array.of(-0, 1, -1);
+    const w = Float64Array.of(-0, 0, -0, 0);
+    // l (3 x 1) times w (1 x 4): products +0 and -0, each summed from +0 (+0), then the centre added (+0 either way).
+    for (const center of [-0, 0]) {
+      const out = new Float64Array(12);
+      expect(lowRankKernel(l, w, 3, 4, 1, center, out)).toBe(true);
+      for (const x of out) expect(Object.is(x, 0)).toBe(true);
+      expect(firstDifference(out, reference(l, w, 3, 4, 1, center))).toBe(-1);
+    }
+  });
+
+  it('is what lowRank runs in the default mode, with the same bits', () => {
+    const rnd = mulberry32(7);
+    for (const r of [1, 2, 3, 4, 5, 8, 16]) {
+      const m = 20;
+      const n = 27;
+      const l = entries(m * r, rnd, true);
+      const w = entries(r * n, rnd, true);
+      const out = new Float64Array(m * n);
+      lowRank(l, w, m, n, r, 0.25, out);
+      expect(firstDifference(out, reference(l, w, m, n, r, 0.25)), `rank ${r}`).toBe(-1);
+    }
+  });
+});
