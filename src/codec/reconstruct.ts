@@ -7,9 +7,6 @@
 import { blendDecodeKernel } from '../wasm/blend.js';
 import { lowRankKernel } from '../wasm/lowrank.js';
 
-/** The smallest rank lowRank hands to the WebAssembly kernel (below it the copies in and out cost more than the kernel saves: measured, see the note on LOW_RANK_KERNEL_FROM's commit). */
-const LOW_RANK_KERNEL_FROM = 1;
-
 /**
  * Low-rank part: out[i,j] = ((+0 + l[i,0]*w[0,j]) + l[i,1]*w[1,j] + ...) + center,
  * with the sum taken in increasing rank order.
@@ -33,7 +30,8 @@ export function lowRank(
     out.fill(0 + center, 0, cells);
     return;
   }
-  if (r >= LOW_RANK_KERNEL_FROM && lowRankKernel(l, w, m, n, r, center, out)) return;
+  // The WebAssembly kernel where there is one (the same bits; faster at every rank, copies in and out included: bench/kernels.ts).
+  if (lowRankKernel(l, w, m, n, r, center, out)) return;
   out.fill(0, 0, cells);
   for (let i = 0; i < m; i++) {
     const row = i * n;

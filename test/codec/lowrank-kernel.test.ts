@@ -100,6 +100,20 @@ describe('the WebAssembly low-rank product', () => {
     }
   });
 
+  it('gives lowRank\'s bits on tiles larger than one of its bands of rows (2^17 outputs), and on rows longer than a band', () => {
+    const rnd = mulberry32(17);
+    for (const [m, n, r] of [
+      [1000, 301, 3],
+      [3, 140001, 2],
+    ]) {
+      const l = entries(m * r, rnd, true);
+      const w = entries(r * n, rnd, true);
+      const out = new Float64Array(m * n);
+      expect(lowRankKernel(l, w, m, n, r, -1.25, out)).toBe(true);
+      expect(firstDifference(out, reference(l, w, m, n, r, -1.25)), `${m} x ${n}`).toBe(-1);
+    }
+  });
+
   it('is what lowRank runs in the default mode, with the same bits', () => {
     const rnd = mulberry32(7);
     for (const r of [1, 2, 3, 4, 5, 8, 16]) {
