@@ -59,3 +59,32 @@ export function lowRank(l: usize, w: usize, m: i32, n: i32, r: i32, center: f64,
     }
   }
 }
+
+/**
+ * The rest of a tile's reconstruction (src/codec/reconstruct.ts,
+ * reconstruct) on `cells` outputs of {@link lowRank} at `acc`: x = acc + q
+ * step when `q` is not 0 (the code converted exactly, a multiply then an
+ * add), then rounded to binary32 (f32.demote_f64: round to nearest, ties
+ * to even, as Math.fround) when `f32` is not 0, stored at `out`. Result: 1
+ * when every stored value is finite, 0 when one is not.
+ */
+export function finishBand(acc: usize, cells: i32, q: usize, step: f64, out: usize, f32: i32): i32 {
+  let bad = false;
+  if (f32 !== 0) {
+    for (let c = 0; c < cells; c++) {
+      let x = load<f64>(acc + (<usize>c << 3));
+      if (q !== 0) x = x + <f64>load<i32>(q + (<usize>c << 2)) * step;
+      const y = <f32>x;
+      store<f32>(out + (<usize>c << 2), y);
+      bad = bad || y - y !== 0;
+    }
+  } else {
+    for (let c = 0; c < cells; c++) {
+      let x = load<f64>(acc + (<usize>c << 3));
+      if (q !== 0) x = x + <f64>load<i32>(q + (<usize>c << 2)) * step;
+      store<f64>(out + (<usize>c << 3), x);
+      bad = bad || x - x !== 0;
+    }
+  }
+  return bad ? 0 : 1;
+}
