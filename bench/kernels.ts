@@ -1,8 +1,9 @@
 /**
  * The WebAssembly kernels against their JavaScript versions, in one
  * process: the range finder's product (G multiply-adds a second, sketch
- * copies included), the blend predictor's decoding walk and the binary
- * coder's decoder (ns a cell). Medians of tinybench runs; each kernel's
+ * copies included), the blend predictor's decoding walk, the binary
+ * coder's and the symbol coder's decoders, and the low-rank product of a
+ * tile's reconstruction (ns a cell, copies in and out included). Medians of tinybench runs; each kernel's
  * speed-up is the ratio of the two medians. Prints a table; writes
  * nothing. `npm run build && npx tsc -p tsconfig.bench.json && node
  * bench/dist/bench/kernels.js`.
@@ -10,7 +11,9 @@
 import { Bench } from 'tinybench';
 import { decodeInts } from '../src/codec/code-decode.js';
 import { encodeInts } from '../src/codec/code-encode.js';
-import { predict, Predictor, unpredict } from '../src/codec/reconstruct.js';
+import { decodeSymbols } from '../src/codec/code-symbols.js';
+import { encodeSymbols } from '../src/codec/code-symbols-encode.js';
+import { lowRank, predict, Predictor, unpredict } from '../src/codec/reconstruct.js';
 import { matrixProducts } from '../src/linalg/product.js';
 import { setKernelMode } from '../src/wasm/kernels.js';
 import { xorshift32 } from './rng.js';
@@ -73,6 +76,22 @@ for (const [m, n] of [
   const jsInts = await median('js', () => decodeInts(bytes, m, n, null, out));
   const wasmInts = await median('auto', () => decodeInts(bytes, m, n, null, out));
   rows.push(`| integer decoder | ${m} x ${n}, Lorenzo residual, ${bytes.length} bytes | ${ns(jsInts)} | ${ns(wasmInts)} | ${(jsInts / wasmInts).toFixed(2)}x |`);
+  // The symbol coder's domain: dense residuals (the same surface with more noise, few zeros).
+  const dense = predict(surface(m, n, m + 1).map((x, c) => x + Math.round(40 * Math.sin(c * 1.7))), m, n, 2 ** 30, Predictor.Lorenzo);
+  if (dense === null) throw new Error('prediction failed');
+  const sym = encodeSymbols(dense, m, n, null);
+  const jsSym = await median('js', () => decodeSymbols(sym, m, n, null, out));
+  const wasmSym = await median('auto', () => decodeSymbols(sym, m, n, null, out));
+  rows.push(`| symbol decoder | ${m} x ${n}, dense Lorenzo residual, ${sym.length} bytes | ${ns(jsSym)} | ${ns(wasmSym)} | ${(jsSym / wasmSym).toFixed(2)}x |`);
+  for (const r of [1, 2, 4, 8, 16]) {
+    const rnd = xorshift32(r * m);
+    const l = Float64Array.from({ length: m * r }, () => rnd() - 0.5);
+    const w = Float64Array.from({ length: r * n }, () => rnd() - 0.5);
+    const acc = new Float64Array(m * n);
+    const jsLow = await median('js', () => lowRank(l, w, m, n, r, 0.5, acc));
+    const wasmLow = await median('auto', () => lowRank(l, w, m, n, r, 0.5, acc));
+    rows.push(`| low-rank product | ${m} x ${n}, rank ${r} | ${ns(jsLow)} | ${ns(wasmLow)} | ${(jsLow / wasmLow).toFixed(2)}x |`);
+  }
 }
 setKernelMode(undefined);
 console.log(rows.join('\n'));

@@ -17,6 +17,7 @@
  */
 import { CodeStreamError } from './code-decode.js';
 import { PROB_BITS, PROB_HALF, PROB_ONE, SHIFTS } from './code-model.js';
+import { symbolModelImage, symbolsKernel } from '../wasm/symbols.js';
 import { Cell } from './mask.js';
 
 /** Symbols: 0 zero, 1 |v| = 1, 2k + t for classes k = 1..11 (t the bit below the leading one), 24 escape (k >= 12). */
@@ -163,10 +164,61 @@ export function decodeSymbols(all: Uint8Array, m: number, n: number, codes: Uint
   if (rlen < 4) throw new CodeStreamError(`a range stream is at least 4 bytes, this one ${rlen}`);
   if (rlen > all.length - at) throw new CodeStreamError(`the range stream's length ${rlen} reaches beyond the ${all.length - at} bytes after it`);
   const bytes = all.subarray(at, at + rlen);
+  const code = ((bytes[0] << 24) | (bytes[1] << 16) | (bytes[2] << 8) | bytes[3]) >>> 0;
+  if (code >= 0xffffffff) throw new CodeStreamError('the range stream starts with FF FF FF FF, which no encoder writes');
+  const image = symbolKernelImage();
+  const k = image === null ? null : symbolsKernel(all, at, rlen, code, m, n, codes, out, image);
+  if (k === null) {
+    decodeRanges(bytes, all.subarray(at + rlen), code, m, n, codes, out);
+    return;
+  }
   const rawLength = all.length - at - rlen;
+  if (k.status === 1) throw rawEnds(rawLength, k.failedAt);
+  if (k.status === 2) throw beyondLimit(k.failedAt);
+  refuseEnds(k.zeroAfterFlag, k.pos, rlen, k.bits, rawLength, k.lastByte);
+}
+
+let image: Uint8Array | null | undefined;
+/** The kernel's image of a fresh model (src/wasm/symbols.ts), made once; null where the kernel cannot take this model. Library-internal. */
+export function symbolKernelImage(): Uint8Array | null {
+  if (image === undefined) {
+    const md = newSymbolModel();
+    const lut = new Uint8Array(BUCKETS * 64);
+    for (let b = 0; b < BUCKETS; b++) fillLut(lut, md.E, b);
+    image = symbolModelImage({ ...md, lut, ...newBinary() });
+  }
+  return image;
+}
+
+function rawEnds(rawLength: number, c: number): CodeStreamError {
+  return new CodeStreamError(`the raw bit section (${rawLength} bytes) ends before value ${c} does`);
+}
+
+function beyondLimit(c: number): CodeStreamError {
+  return new CodeStreamError(`value ${c} exceeds 2^30 in magnitude`);
+}
+
+/**
+ * The refusals after the last value, in this order: a zero symbol after a
+ * non-zero flag at cell `zeroAfterFlag` (-1: none), a range stream that ran
+ * short (`pos` past `end`) or has bytes left, a raw section of another
+ * length than its `bits` take, or whose last byte (`lastByte`) pads with 1s.
+ */
+function refuseEnds(zeroAfterFlag: number, pos: number, end: number, bits: number, rawLength: number, lastByte: number): void {
+  if (zeroAfterFlag >= 0) throw new CodeStreamError(`value ${zeroAfterFlag}: the zero symbol after a non-zero flag, which no encoder writes`);
+  if (pos > end) throw new CodeStreamError(`the range stream ends ${pos - end} byte(s) before its values do`);
+  if (pos !== end) throw new CodeStreamError(`${end - pos} byte(s) follow the end of the range stream`);
+  const used = (bits + 7) >>> 3;
+  if (used !== rawLength) throw new CodeStreamError(`the raw bit section holds ${rawLength} bytes, its values take ${used}`);
+  if ((bits & 7) !== 0 && (lastByte & (0xff >>> (bits & 7))) !== 0) throw new CodeStreamError('the raw bit section pads its last byte with bits other than 0');
+}
+
+/** The decoding loop of {@link decodeSymbols} in JavaScript: `bytes` the range stream (first four bytes `code0`, checked), `raw` the raw bit section. */
+function decodeRanges(bytes: Uint8Array, raw: Uint8Array, code0: number, m: number, n: number, codes: Uint8Array | null, out: Int32Array): void {
+  const rawLength = raw.length;
   // The raw section with 4 zero bytes after it, so a read of 4 bytes at any bit position stays inside.
   const rawB = new Uint8Array(rawLength + 4);
-  rawB.set(all.subarray(at + rlen));
+  rawB.set(raw);
   let bp = 0;
   const md = newSymbolModel();
   const E = md.E;
@@ -178,9 +230,8 @@ export function decodeSymbols(all: Uint8Array, m: number, n: number, codes: Uint
   const { p, count } = newBinary();
   const shifts = SHIFTS;
   const end = bytes.length;
-  let code = ((bytes[0] << 24) | (bytes[1] << 16) | (bytes[2] << 8) | bytes[3]) >>> 0;
+  let code = code0;
   let range = 0xffffffff;
-  if (code >= range) throw new CodeStreamError('the range stream starts with FF FF FF FF, which no encoder writes');
   let pos = 4;
   let ctx = 0;
   let pr = 0;
@@ -386,10 +437,10 @@ export function decodeSymbols(all: Uint8Array, m: number, n: number, codes: Uint
               bp++;
             }
           }
-          if (bp > 8 * rawLength) throw new CodeStreamError(`the raw bit section (${rawLength} bytes) ends before value ${c} does`);
+          if (bp > 8 * rawLength) throw rawEnds(rawLength, c);
           // Integer arithmetic throughout (mag < 4, nb <= 29: below 2^31), so the values stay small integers for V8.
           mag = (mag << nb) | w;
-          if (mag > 0x40000000) throw new CodeStreamError(`value ${c} exceeds 2^30 in magnitude`);
+          if (mag > 0x40000000) throw beyondLimit(c);
         }
         v = bit !== 0 ? -mag : mag;
       } else if (b < FLAG_BUCKETS && zeroAfterFlag < 0) {
@@ -404,10 +455,5 @@ export function decodeSymbols(all: Uint8Array, m: number, n: number, codes: Uint
       aUp = aUpRight;
     }
   }
-  if (zeroAfterFlag >= 0) throw new CodeStreamError(`value ${zeroAfterFlag}: the zero symbol after a non-zero flag, which no encoder writes`);
-  if (pos > end) throw new CodeStreamError(`the range stream ends ${pos - end} byte(s) before its values do`);
-  if (pos !== end) throw new CodeStreamError(`${end - pos} byte(s) follow the end of the range stream`);
-  const used = (bp + 7) >>> 3;
-  if (used !== rawLength) throw new CodeStreamError(`the raw bit section holds ${rawLength} bytes, its values take ${used}`);
-  if ((bp & 7) !== 0 && (rawB[bp >>> 3] & (0xff >>> (bp & 7))) !== 0) throw new CodeStreamError('the raw bit section pads its last byte with bits other than 0');
+  refuseEnds(zeroAfterFlag, pos, end, bp, rawLength, rawB[bp >>> 3]);
 }

@@ -5,6 +5,7 @@
  * written here; JavaScript has no fused multiply-add, so none is used.
  */
 import { blendDecodeKernel } from '../wasm/blend.js';
+import { lowRankKernel } from '../wasm/lowrank.js';
 
 /**
  * Low-rank part: out[i,j] = ((+0 + l[i,0]*w[0,j]) + l[i,1]*w[1,j] + ...) + center,
@@ -29,6 +30,8 @@ export function lowRank(
     out.fill(0 + center, 0, cells);
     return;
   }
+  // The WebAssembly kernel where there is one (the same bits; faster at every rank, copies in and out included: bench/kernels.ts).
+  if (lowRankKernel(l, w, m, n, r, center, out)) return;
   out.fill(0, 0, cells);
   for (let i = 0; i < m; i++) {
     const row = i * n;
@@ -285,16 +288,62 @@ export function unpredict(d: Int32Array, m: number, n: number, limit: number, ki
     // No settle: the walk adds each prediction to d in place (the decoder's case, without a call a cell).
     return blendWalk(d, m, n, null, limit);
   }
-  for (let i = 0; i < m; i++) {
-    for (let j = 0; j < n; j++) {
-      const c = i * n + j;
-      const p = i === 0 ? (j === 0 ? 0 : d[c - 1]) : j === 0 ? d[c - n] : interior(kind, d[c - 1], d[c - n], d[c - n - 1]);
-      const q = d[c] + p;
-      if (q > limit || q < -limit) return false;
-      d[c] = q;
-    }
+  if (m === 0 || n === 0) return true;
+  // The edge rule: the first row predicts from the left (0 in the first cell), the first column from above.
+  let a = 0;
+  for (let j = 0; j < n; j++) {
+    a = d[j] + a;
+    if (a > limit || a < -limit) return false;
+    d[j] = a;
+  }
+  for (let i = 1; i < m; i++) {
+    const row = i * n;
+    const q = d[row] + d[row - n];
+    if (q > limit || q < -limit) return false;
+    d[row] = q;
+    if (!unpredictInterior(d, row, n, limit, kind)) return false;
   }
   return true;
+}
+
+/**
+ * Cells 1 .. n-1 of the row starting at `row` (not the first) for {@link
+ * unpredict}: one loop per predictor, with the left value carried, the
+ * same sums as {@link interior} gives (exact: every value is within 2^30).
+ */
+function unpredictInterior(d: Int32Array, row: number, n: number, limit: number, kind: number): boolean {
+  const end = row + n;
+  let a = d[row];
+  switch (kind) {
+    case Predictor.Lorenzo:
+      for (let c = row + 1; c < end; c++) {
+        a = d[c] + (a + d[c - n] - d[c - n - 1]);
+        if (a > limit || a < -limit) return false;
+        d[c] = a;
+      }
+      return true;
+    case Predictor.Left:
+      for (let c = row + 1; c < end; c++) {
+        a = d[c] + a;
+        if (a > limit || a < -limit) return false;
+        d[c] = a;
+      }
+      return true;
+    case Predictor.Up:
+      for (let c = row + 1; c < end; c++) {
+        a = d[c] + d[c - n];
+        if (a > limit || a < -limit) return false;
+        d[c] = a;
+      }
+      return true;
+    default:
+      for (let c = row + 1; c < end; c++) {
+        a = d[c] + interior(kind, a, d[c - n], d[c - n - 1]);
+        if (a > limit || a < -limit) return false;
+        d[c] = a;
+      }
+      return true;
+  }
 }
 
 /**

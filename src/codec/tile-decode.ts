@@ -6,6 +6,7 @@ import { FormatCode, FormatError } from '../errors.js';
 import { ByteReader } from '../format/bytes.js';
 import { printable } from '../format/schema.js';
 import type { Dtype, FloatArray } from '../types.js';
+import { reconstructKernel } from '../wasm/lowrank.js';
 import { applyClasses, Cell } from './mask.js';
 import { CENTRE_FORM_SHIFT, CentreForm, Flag, KNOWN_FLAGS, KNOWN_RESIDUAL_BITS, Method, NUMBER_BYTES, RESIDUAL_SYMBOLS, STEP_FORM_SHIFT, StepForm, VARINT_BYTES } from './payload.js';
 import { addLayer } from './layer.js';
@@ -146,12 +147,16 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const exceptions = flags & Flag.Exceptions ? readExceptions(r, ctx, codes) : { cells: new Uint32Array(0), values: new Uint8Array(0) };
   if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
 
-  // lowRank sets every cell of acc, so left-over contents do not matter.
-  const acc = ctx.scratch ? ctx.scratch.sumsFor(cells) : new Float64Array(cells);
-  lowRank(factors.l, factors.w, m, n, factors.rank, center, acc);
-  if (ctx.layer) addLayer(acc, ctx.layer, cells);
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);
-  const finite = reconstruct(acc, residual.q, residual.step, out);
+  // Without a field layer, the WebAssembly kernels do lowRank and reconstruct in one go, band by band (the same bits).
+  let finite = ctx.layer ? null : reconstructKernel(factors.l, factors.w, m, n, factors.rank, center, residual.q, residual.step, out);
+  if (finite === null) {
+    // lowRank sets every cell of acc, so left-over contents do not matter.
+    const acc = ctx.scratch ? ctx.scratch.sumsFor(cells) : new Float64Array(cells);
+    lowRank(factors.l, factors.w, m, n, factors.rank, center, acc);
+    if (ctx.layer) addLayer(acc, ctx.layer, cells);
+    finite = reconstruct(acc, residual.q, residual.step, out);
+  }
   applyExceptions(out, exceptions, ctx);
   // A valid cell must decode to a finite value; anything else is a damaged or hostile payload. With every
   // reconstructed value finite, only the exceptions' values are left to look at (in cell order, as below).

@@ -1,9 +1,13 @@
 /**
- * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts):
- * the range finder's matrix product (with the copies that lay out its
- * operands) in the encoder's module; the blend predictor's decoding walk
- * and the binary coder's decoder in the decoder's module; each bit for bit
- * the same as its JavaScript version, which stays the fallback.
+ * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
+ * in three modules: the linear-algebra module, with the range finder's
+ * matrix product (and the copies that lay out its operands) and the
+ * low-rank product of every tile's reconstruction, with the rest of the
+ * decoder's reconstruction (which readers load too);
+ * the decoder's module, with the blend predictor's decoding walk and the
+ * binary coder's decoder; the symbol coder's decoder in a module of its
+ * own (the decoder's module is near the size limit below). Each kernel is
+ * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,
  * below the size browsers allow to compile synchronously on the main thread
@@ -14,7 +18,7 @@
  * `process` global exists) forces the JavaScript everywhere, and
  * {@link setKernelMode} does so for tests.
  *
- * Memory: the instances of both modules import one memory the loader made,
+ * Memory: the instances of every module import one memory the loader made,
  * sized for the largest use so far. When a use needs more, the loader makes
  * a new, larger memory (at least twice the size) and new instances over it, and
  * never grows a memory in place: growing detaches the memory's old

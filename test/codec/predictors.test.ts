@@ -9,7 +9,7 @@ import { fileURLToPath } from 'node:url';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
-import { MAX_PREDICTOR, PREDICTOR_SUMS, predict, predictedFill, Predictor, predictorBits, predictorBitsOf, predictorBitsRow, unpredict } from '../../src/codec/reconstruct.js';
+import { MAX_PREDICTOR, PREDICTOR_SUMS, predict, predictedFill, Predictor, predictorBits, predictorBitsOf, predictorBitsRow, unpredict, walkPredictor } from '../../src/codec/reconstruct.js';
 import { pack } from '../../src/pack.js';
 
 const LIMIT = 2 ** 30;
@@ -34,6 +34,33 @@ describe('every predictor is inverted exactly by the decoder', () => {
         },
       ),
       { numRuns: 300 },
+    );
+  });
+
+  it('unpredict stops where the generic walk (walkPredictor: the edge rule, then interior) leaves the limit, and otherwise gives its codes (fast-check)', () => {
+    fc.assert(
+      fc.property(
+        fc.integer({ min: 1, max: 9 }),
+        fc.integer({ min: 1, max: 9 }),
+        fc.integer({ min: 1, max: 5 }),
+        fc.integer({ min: 1, max: LIMIT }),
+        fc.integer({ min: 0, max: 12 }),
+        fc.array(fc.integer({ min: -LIMIT, max: LIMIT }), { minLength: 81, maxLength: 81 }),
+        (m, n, kind, limit, shift, pool) => {
+          // Differences up to 2 limit / 2^shift: large ones stop the walk, small ones let it finish.
+          const span = Math.max(1, Math.floor((2 * limit) / 2 ** shift));
+          const d = Int32Array.from({ length: m * n }, (_, c) => pool[c] % span);
+          const walked = new Int32Array(m * n);
+          const ok = walkPredictor(walked, m, n, kind, (c, p) => {
+            const q = d[c] + p;
+            return q > limit || q < -limit ? Number.NaN : q;
+          });
+          const back = d.slice();
+          expect(unpredict(back, m, n, limit, kind)).toBe(ok);
+          if (ok) expect(Array.from(back)).toEqual(Array.from(walked));
+        },
+      ),
+      { numRuns: 500 },
     );
   });
 

@@ -4,7 +4,9 @@
  * (test/archive/datasets.ts names them), every class up to 2^30, skipped
  * cells, the spec's worked example, streams a decoder must refuse (alone,
  * and through open/read of an archive), required flag bit 2 and the
- * encoder's choice of coder (spec/FORMAT.md 19).
+ * encoder's choice of coder (spec/FORMAT.md 19). The round trips and the
+ * worked example run with the WebAssembly decoder and with the JavaScript
+ * one; ./symbols-kernel.test.ts compares the two on random streams.
  */
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
@@ -22,6 +24,7 @@ import { FLAG_SYMBOLS } from '../../src/format/container.js';
 import { pack } from '../../src/pack.js';
 import { precip, ROOT, volcano } from '../archive/datasets.js';
 import { cloneModel, parse, readVarint, replaceStream, serialize, tileDims, walk, type Model } from '../fuzz/model.js';
+import { useKernelMode } from '../kernel-mode.js';
 import { refusal } from '../refusal.js';
 import { mulberry32 } from '../rng.js';
 import { checkWithin } from './within.js';
@@ -59,7 +62,10 @@ async function archiveRefusal(bytes: Uint8Array): Promise<FormatError> {
   throw new Error('the archive was accepted');
 }
 
-describe('the symbol coder round-trips', () => {
+// The decoder's tests twice: with the WebAssembly decoder (kernels/symbols.ts) and with the JavaScript one.
+describe.each(['auto', 'js'] as const)('the symbol coder round-trips (kernels %s)', (mode) => {
+  useKernelMode(mode);
+
   it('the vega-datasets grids: annual-precip values (0..20195, escape classes) and both grids Lorenzo-differenced, as the binary coder does', () => {
     for (const g of [precip(), volcano()]) {
       const [m, n] = g.shape;
@@ -141,7 +147,8 @@ describe('the symbol coder round-trips', () => {
   });
 });
 
-describe('the worked example of spec/FORMAT.md 10.3.8', () => {
+describe.each(['auto', 'js'] as const)('the worked example of spec/FORMAT.md 10.3.8 (kernels %s)', (mode) => {
+  useKernelMode(mode);
   // The bytes are read from the spec's text (the line "symbol-example: ..."), so the spec and the coder cannot drift apart.
   const spec = readFileSync(join(ROOT, 'spec', 'FORMAT.md'), 'utf8');
   const line = /^symbol-example: ([0-9a-f ]+)$/m.exec(spec);
