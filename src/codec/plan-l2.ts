@@ -331,24 +331,43 @@ export function firstPass(
 ): FirstPass {
   const spectra = new Spectra(tileCount(spec));
   const kept: PreparedTile[] = [];
-  // Of a field whose tiles are not kept, the sampled tiles' SVDs are handed to the costing (up to HANDOFF_BYTES).
-  const sampled = keep ? new Set<number>() : new Set(sampleTiles(spectra.tiles));
-  const handed = new Map<number, Map<number, Svd>>();
-  let bytes = 0;
+  const handoff = new SvdHandoff(spectra.tiles, keep);
   forEachTile(src, spec, (index, tile, m, n) => {
-    const f = firstPassTile(tile, m, n, spec, fill, tol, keep || sampled.has(index), known?.get(index), seen && ((s) => seen(index, s)), termFor(spec, index, m, n), svds?.get(index));
+    const f = firstPassTile(tile, m, n, spec, fill, tol, keep || handoff.wants(index), known?.get(index), seen && ((s) => seen(index, s)), termFor(spec, index, m, n), svds?.get(index));
     spectra.add(f);
     if (keep) kept.push(f.tile!);
-    else if (f.tile !== undefined && f.tile.svds.size > 0) {
-      let b = 0;
-      for (const s of f.tile.svds.values()) b += svdBytes(s);
-      if (bytes + b <= HANDOFF_BYTES) {
-        handed.set(index, f.tile.svds);
-        bytes += b;
-      }
-    }
+    else handoff.add(index, f.tile);
   });
-  return { spectra, kept, svds: handed };
+  return { spectra, kept, svds: handoff.handed };
+}
+
+/**
+ * Of a field whose tiles are not kept, the SVDs the first pass computed of
+ * the tiles the costing samples, handed to it (up to HANDOFF_BYTES), so
+ * that it does not compute them again (see {@link TileSvds}).
+ */
+export class SvdHandoff {
+  readonly handed = new Map<number, Map<number, Svd>>();
+  private readonly sampled: Set<number>;
+  private bytes = 0;
+  /** @param tiles the field's tile count; @param keep whether the first pass keeps its tiles (then nothing is handed: the tiles are). */
+  constructor(tiles: number, keep: boolean) {
+    this.sampled = keep ? new Set() : new Set(sampleTiles(tiles));
+  }
+  /** Whether tile `index`'s first pass should return the prepared tile (with its SVDs) for the handoff. */
+  wants(index: number): boolean {
+    return this.sampled.has(index);
+  }
+  /** The tile's SVDs, while the handoff holds at most HANDOFF_BYTES. */
+  add(index: number, t: PreparedTile | undefined): void {
+    if (t === undefined || t.svds.size === 0 || !this.sampled.has(index)) return;
+    let b = 0;
+    for (const s of t.svds.values()) b += svdBytes(s);
+    if (this.bytes + b <= HANDOFF_BYTES) {
+      this.handed.set(index, t.svds);
+      this.bytes += b;
+    }
+  }
 }
 
 /**

@@ -13,9 +13,10 @@
  */
 import { tileGrid } from '../geometry.js';
 import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, termFor, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { costTile, firstPassTile, keepCosted, keepsTiles, l2Plan, planL2Async, type FirstPass, type FirstPassTile, type L2Plan, type L2PlanData, type TileSvds } from '../codec/plan-l2.js';
+import { costTile, firstPassTile, keepCosted, keepsTiles, l2Plan, planL2Async, SvdHandoff, type FirstPass, type FirstPassTile, type L2Plan, type L2PlanData, type TileSvds } from '../codec/plan-l2.js';
 import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
+import type { Svd } from '../linalg/svd.js';
 import type { MosaicWork, PickedTile } from '../codec/auto-tile.js';
 import { ErrorTally } from '../codec/tally.js';
 import type { FloatArray } from '../types.js';
@@ -93,7 +94,11 @@ export const encodeTasks = {
     const plans = costings.get(body.key);
     // Internal assertion: the set-up message always precedes a costing's tiles in the port.
     if (plans === undefined) throw new Error(`costing of tile ${body.index} of an unknown plan choice (key ${body.key})`);
-    return { result: costTile(plans, body.ats, body.tile, body.index).map(owned) };
+    const before = new Set(body.tile.svds.keys());
+    const payloads = costTile(plans, body.ats, body.tile, body.index).map(owned);
+    // The SVDs computed here go back too: the calling thread's tile keeps them, as it would have costed in one thread (for the later passes).
+    const svds = [...body.tile.svds].filter(([rung]) => !before.has(rung));
+    return { result: { payloads, svds } };
   },
   'cost-forget'(body: { key: number }) {
     costings.delete(body.key);
@@ -267,20 +272,25 @@ async function firstPassOn(pool: WorkerPool, src: BandSource, spec: FieldSpec, t
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   // Of each tile's first pass, the planner keeps its spectrum in a flat store (and the prepared tile only for small fields).
   const [gr, gc] = tileGrid(spec);
-  const first: FirstPass = { spectra: new Spectra((spec.slices ?? 1) * gr * gc), kept: [] };
-  const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill, tol, keep: keepsTiles(spec), ...(seen ? { seen: true } : {}) };
+  const keep = keepsTiles(spec);
+  const spectra = new Spectra((spec.slices ?? 1) * gr * gc);
+  const first: FirstPass = { spectra, kept: [] };
+  // Of a field whose tiles are not kept, the sampled tiles come back with their SVDs, for the costing (as firstPass hands them).
+  const handoff = new SvdHandoff(spectra.tiles, keep);
+  const body = { spec: { dtype: spec.dtype, progressive: spec.progressive }, fill, tol, ...(seen ? { seen: true } : {}) };
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
     const values = known?.get(index);
     const term = termFor(spec, index, m, n);
-    return pool.run<FirstPassTile & { s?: Float64Array }>('plan-tile', { ...body, tile, m, n, ...(values ? { known: values } : {}), ...(term ? { term } : {}) });
+    return pool.run<FirstPassTile & { s?: Float64Array }>('plan-tile', { ...body, keep: keep || handoff.wants(index), tile, m, n, ...(values ? { known: values } : {}), ...(term ? { term } : {}) });
   };
   const take = (f: FirstPassTile & { s?: Float64Array }, index: number) => {
-    first.spectra.add(f);
-    if (body.keep) first.kept.push(f.tile!);
+    spectra.add(f);
+    if (keep) first.kept.push(f.tile!);
+    else handoff.add(index, f.tile);
     if (seen) seen(index, f.s!);
   };
   await inOrder(pool, tilesOf(src, spec), post, take, limit);
-  return first;
+  return { ...first, svds: handoff.handed };
 }
 
 /**
@@ -296,8 +306,9 @@ function costingOn(pool: WorkerPool): (plans: L2PlanData[], sample: number[], ti
     setup.catch(() => undefined);
     const cost = async (k: number, ats: number[]): Promise<number[]> => {
       await setup;
-      const payloads = await pool.run<Uint8Array[]>('cost-tile', { key, index: sample[k], ats, tile: tiles[k] });
+      const { payloads, svds } = await pool.run<{ payloads: Uint8Array[]; svds: [number, Svd][] }>('cost-tile', { key, index: sample[k], ats, tile: tiles[k] });
       payloads.forEach((payload, j) => keepCosted(plans[ats[j]], tiles[k], sample[k], payload));
+      for (const [rung, svd] of svds) if (!tiles[k].svds.has(rung)) tiles[k].svds.set(rung, svd);
       return payloads.map((payload) => payload.length);
     };
     const done = async () => {

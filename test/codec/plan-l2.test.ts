@@ -14,7 +14,7 @@ import { Matrix, SingularValueDecomposition } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { candidatePlans, costPlans, costPlansAsync, costTile, cuttable, eckartYoungPlans, encodeWith, factorBytes, firstPass, keepCosted, keepsTiles, l2Plan, leadingSpectrum, planL2, readTiles, tileSpectrum } from '../../src/codec/plan-l2.js';
+import { candidatePlans, costPlans, costPlansAsync, costTile, cuttable, eckartYoungPlans, encodeWith, factorBytes, firstPass, keepCosted, keepsTiles, l2Plan, leadingSpectrum, planL2, readTiles, sampleTiles, SvdHandoff, tileSpectrum } from '../../src/codec/plan-l2.js';
 import { gramSingularValues } from '../../src/linalg/spectrum.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { Spectra } from '../../src/codec/spectra.js';
@@ -481,6 +481,47 @@ describe('costPlans (candidate plans costed a tile at a time, losers dropped)', 
     const ref: Uint8Array[] = [];
     encodeField(src, spec, (index, t) => (ref[index] = t.payload));
     expect(payloads).toEqual(ref);
+  });
+
+  it('a costing task on another thread sends back the payloads and the SVDs it computed of a copy of the tile: the same as costing the tile here', () => {
+    const { tol, spec, src } = precipCase(64, 96, 32, 32, 40);
+    const first = firstPass(src, spec, tol, null);
+    const plans = candidatePlans(first.spectra, tol);
+    const ats = plans.map((_p, at) => at);
+    const here = firstPass(src, spec, tol, null).kept[3];
+    const payloads = costTile(plans, ats, here, 3);
+    const copy = structuredClone(first.kept[3]);
+    const rungs = new Set(copy.svds.keys());
+    encodeTasks['cost-setup']({ key: 9001, plans });
+    try {
+      const r = encodeTasks['cost-tile']({ key: 9001, index: 3, ats, tile: copy }).result;
+      expect(r.payloads).toEqual(payloads);
+      // Only the rungs computed by the task; each the same numbers as computed here.
+      expect(r.svds.length).toBeGreaterThan(0);
+      for (const [rung, svd] of r.svds) {
+        expect(rungs.has(rung)).toBe(false);
+        expect(svd).toEqual(here.svds.get(rung));
+      }
+    } finally {
+      encodeTasks['cost-forget']({ key: 9001 });
+    }
+  });
+
+  it('SvdHandoff: of a field whose tiles are not kept, the sampled tiles\' SVDs only; nothing when the tiles are kept', () => {
+    const { tol, spec, src } = precipCase(64, 96, 32, 32, 40);
+    const tiles = firstPass(src, spec, tol, null).kept;
+    for (const t of tiles) costTile(candidatePlans(firstPass(src, spec, tol, null).spectra, tol), [0], t, 0);
+    const sample = sampleTiles(200);
+    const off = new SvdHandoff(200, false);
+    for (let i = 0; i < 200; i++) expect(off.wants(i)).toBe(sample.includes(i));
+    off.add(sample[1], tiles[0]);
+    off.add(sample[1] + 1, tiles[1]);
+    expect([...off.handed.keys()]).toEqual([sample[1]]);
+    expect(off.handed.get(sample[1])).toBe(tiles[0].svds);
+    const kept = new SvdHandoff(200, true);
+    expect(kept.wants(sample[1])).toBe(false);
+    kept.add(sample[1], tiles[0]);
+    expect(kept.handed.size).toBe(0);
   });
 
   it('takes the SVDs computed before of tiles prepared again (the tile trial\'s): the same objects, the same payloads', () => {
