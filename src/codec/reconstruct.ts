@@ -5,6 +5,7 @@
  * written here; JavaScript has no fused multiply-add, so none is used.
  */
 import { blendDecodeKernel } from '../wasm/blend.js';
+import { blendEncodeKernel } from '../wasm/finish.js';
 import { lowRankKernel } from '../wasm/lowrank.js';
 
 /**
@@ -507,6 +508,9 @@ export function predictorBitsOf(sums: Float64Array | null): Float64Array {
 export function predict(q: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo): Int32Array | null {
   const d = new Int32Array(q.length);
   if (kind === Predictor.Blend) {
+    // The encoder's WebAssembly kernel where there is one (the same differences; src/wasm/finish.ts).
+    const done = blendEncodeKernel(q, null, m, n, limit, true, blendWeights(), d, null);
+    if (done !== null) return done ? d : null;
     const work = q.slice();
     const ok = blendWalk(work, m, n, (c, p) => {
       const v = q[c] - p;
@@ -603,6 +607,7 @@ function predictPlain(q: Int32Array, d: Int32Array, m: number, n: number, limit:
 export function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: number, limit: number, kind: number): Int32Array {
   const out = q.slice();
   if (kind === Predictor.Blend) {
+    if (blendEncodeKernel(q, codes, m, n, limit, false, blendWeights(), null, out) !== null) return out;
     blendWalk(out, m, n, (c, p) => (codes[c] === 0 ? q[c] : Math.abs(p) <= limit ? p : 0));
     return out;
   }

@@ -1,0 +1,104 @@
+/**
+ * The encoder's finishing kernels (kernels/finish.ts, the module
+ * FINISH_KERNELS): the blend predictor's walk over known codes, as
+ * predict() and predictedFill() in src/codec/reconstruct.ts take it, and
+ * the binary coder's encoder, as encodeIntsWithin in
+ * src/codec/code-encode.ts, which call these first. The same codes and the
+ * same bytes as the JavaScript; null (or undefined) where the kernels are
+ * not to be had, and the caller runs the JavaScript.
+ */
+import { FINISH_KERNELS } from './kernels-bytes.js';
+import { kernels, SCRATCH_AT, WEIGHTS_BYTES } from './kernels.js';
+
+/** The exports of kernels/finish.ts: addresses are byte offsets into the kernels' memory. */
+interface FinishKernels {
+  blendEncode(q: number, d: number, m: number, n: number, limit: number, check: number, weight: number, above: number, below: number, codes: number, nums: number, totals: number, errs: number): number;
+  encodeInts(values: number, m: number, n: number, codes: number, p: number, count: number, out: number, cap: number, atMost: number): number;
+  written: WebAssembly.Global;
+}
+
+/** The largest limit the blend kernel takes (it holds the limit in an i32; the encoder passes 2^30). */
+const MAX_LIMIT = 0x7fffffff;
+
+/**
+ * The encoder's blend walk over the m x n codes `q` (left as they are):
+ * each cell's prediction p from the cells before it, its difference v - p
+ * into `d` (when given), where v is its code, or for a cell whose class in
+ * `codes` is not Valid (0) its prediction (0 beyond +-limit), and the codes
+ * so filled into `filled` (when given). With `check`, a difference beyond
+ * +-limit stops the walk: false (d and filled then unspecified). True when
+ * every cell is walked; null when the kernel is not to be had. `weights` is
+ * the blend weight table.
+ */
+export function blendEncodeKernel(q: Int32Array, codes: Uint8Array | null, m: number, n: number, limit: number, check: boolean, weights: Int32Array, d: Int32Array | null, filled: Int32Array | null): boolean | null {
+  if (!(limit >= 0 && limit <= MAX_LIMIT)) return null;
+  const k = kernels();
+  if (k === null) return null;
+  const cells = m * n;
+  // From SCRATCH_AT, in i32: q, d, the two rows of activity sums (5 n each), then the class map (u8).
+  const qAt = SCRATCH_AT / 4;
+  const dAt = qAt + cells;
+  const aboveAt = dAt + cells;
+  const belowAt = aboveAt + 5 * n;
+  // Then, in bytes: a row's weighted sums (binary64, 8-byte aligned), totals (i32) and errors (5 n i32 after 5 more), and the class map.
+  const numsAt = 8 * Math.ceil((belowAt + 5 * n) / 2);
+  const totalsAt = numsAt + 8 * n;
+  const errsAt = totalsAt + 4 * n + 20;
+  const codesAt = errsAt + 20 * n;
+  if (!k.lease(codesAt + (codes === null ? 0 : cells) - SCRATCH_AT)) return null;
+  try {
+    const fn = k.module<FinishKernels>(FINISH_KERNELS);
+    if (fn === null) return null;
+    const heap = k.i32;
+    if (!k.weightsLoaded) {
+      if (4 * weights.length > WEIGHTS_BYTES) return null;
+      heap.set(weights, 0);
+      k.weightsLoaded = true;
+    }
+    heap.set(q.subarray(0, cells), qAt);
+    if (codes !== null) k.u8.set(codes.subarray(0, cells), codesAt);
+    const ok = fn.blendEncode(4 * qAt, 4 * dAt, m, n, limit, check ? 1 : 0, 0, 4 * aboveAt, 4 * belowAt, codes === null ? 0 : codesAt, numsAt, totalsAt, errsAt) !== 0;
+    if (ok && d !== null) d.set(heap.subarray(dAt, dAt + cells));
+    if (ok && filled !== null) filled.set(heap.subarray(qAt, qAt + cells));
+    return ok;
+  } finally {
+    k.release();
+  }
+}
+
+/** Contexts of the binary coder's model as kernels/ints-encode.ts lays it out (CONTEXTS in src/codec/code-model.ts). */
+const CONTEXTS = 614;
+
+/**
+ * encodeIntsWithin(values, m, n, codes, atMost) by the kernel: the stream,
+ * or null once it is longer than `atMost` bytes; undefined when the
+ * JavaScript is to code it (no kernel, or a case the kernel leaves to it:
+ * a skipped cell holding a value, a value beyond 2^30, a stream longer than
+ * four bytes a value).
+ */
+export function encodeIntsKernel(values: Int32Array, m: number, n: number, codes: Uint8Array | null, atMost: number): Uint8Array | null | undefined {
+  const k = kernels();
+  if (k === null) return undefined;
+  const cells = m * n;
+  // Bytes from SCRATCH_AT: values (i32), the model's probabilities (u16) and counts (u8), the class map, the stream.
+  const cap = 4 * cells + 64;
+  const valuesAt = SCRATCH_AT;
+  const pAt = valuesAt + 4 * cells;
+  const countAt = pAt + 2 * CONTEXTS;
+  const codesAt = countAt + CONTEXTS;
+  const outAt = codesAt + (codes === null ? 0 : cells);
+  if (!k.lease(outAt + cap - SCRATCH_AT)) return undefined;
+  try {
+    const fn = k.module<FinishKernels>(FINISH_KERNELS);
+    if (fn === null) return undefined;
+    k.i32.set(values.subarray(0, cells), valuesAt / 4);
+    if (codes !== null) k.u8.set(codes.subarray(0, cells), codesAt);
+    const status = fn.encodeInts(valuesAt, m, n, codes === null ? 0 : codesAt, pAt, countAt, outAt, cap, atMost);
+    if (status === 1) return null;
+    if (status !== 0) return undefined;
+    const length = fn.written.value as number;
+    return k.u8.slice(outAt, outAt + length);
+  } finally {
+    k.release();
+  }
+}
