@@ -7,4 +7,5 @@
  * the module imports, laid out and copied in and out by src/wasm/finish.ts.
  */
 export { blendEncode } from './blend-encode';
-export { encodeInts, written } from './ints-encode';
+export { encodeInts } from './ints-encode';
+export { written } from './range-sink';

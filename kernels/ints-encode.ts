@@ -8,8 +8,7 @@
  * last byte held back for a carry, and a count of 0xff bytes after it).
  * The range is u32 as in the JavaScript ((range >> 16) times a probability
  * is below 2^32), the low end u64 (below 2^32 plus a carry, as the
- * JavaScript's double holds it). The output's state is in module globals:
- * it is touched once per byte written, the range and low once per decision.
+ * JavaScript's double holds it); the output is kernels/range-sink.ts.
  *
  * The model's layout (src/codec/code-model.ts): contexts ZERO_AT = 0
  * (16 buckets), SIGN_AT = 16 (9), CLASS_AT = 25 (16 buckets x 31 classes),
@@ -33,14 +32,7 @@ const MANT_AT: i32 = 521;
 const CONTEXTS: i32 = 614;
 const TOP: u32 = 0x1000000;
 
-/** Bytes written at out. */
-export let written: i32 = 0;
-let outAt: usize = 0;
-let cap: i32 = 0;
-let cache: u32 = 0;
-let pending: i32 = 0;
-let started = false;
-let overflow = false;
+import { finishSink, overflow, shiftLow, startSink, written } from './range-sink';
 
 /** The adaptation shift for a context seen `cnt` times (SHIFTS in code-model.ts). */
 @inline
@@ -49,40 +41,12 @@ function shiftOf(cnt: u32): u32 {
   return s > 5 ? 5 : s;
 }
 
-function put(byte: u32): void {
-  if (written >= cap) {
-    overflow = true;
-    return;
-  }
-  store<u8>(outAt + <usize>written, <u8>byte);
-  written++;
-}
-
-/** Move the top byte of low out, a carry going into the bytes held back (ByteSink.shiftLow); the new low. */
-function shiftLow(low: u64): u64 {
-  if (low < 0xff000000 || low >= 0x100000000) {
-    const carry = <u32>(low >> 32);
-    // The very first byte is always 0 (the interval starts inside [0, 1)): it is not written.
-    if (started) put((cache + carry) & 0xff);
-    started = true;
-    for (; pending > 0; pending--) put((0xff + carry) & 0xff);
-    cache = <u32>(low >> 24) & 0xff;
-  } else pending++;
-  return (low & 0xffffff) << 8;
-}
-
 export function encodeInts(values: usize, m: i32, n: i32, codes: usize, p: usize, count: usize, out: usize, outCap: i32, atMost: f64): i32 {
   for (let c = 0; c < CONTEXTS; c++) {
     store<u16>(p + (<usize>c << 1), 32768);
     store<u8>(count + <usize>c, 0);
   }
-  written = 0;
-  outAt = out;
-  cap = outCap;
-  cache = 0;
-  pending = 0;
-  started = false;
-  overflow = false;
+  startSink(out, outCap);
   let low: u64 = 0;
   let range: u32 = 0xffffffff;
   const masked = codes !== 0;
@@ -185,6 +149,6 @@ export function encodeInts(values: usize, m: i32, n: i32, codes: usize, p: usize
     if (overflow) return 2;
     if (<f64>written > atMost) return 1;
   }
-  for (let x = 0; x < 5; x++) low = shiftLow(low);
+  finishSink(low);
   return overflow ? 2 : 0;
 }

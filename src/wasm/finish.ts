@@ -3,11 +3,13 @@
  * FINISH_KERNELS): the blend predictor's walk over known codes, as
  * predict() and predictedFill() in src/codec/reconstruct.ts take it, and
  * the binary coder's encoder, as encodeIntsWithin in
- * src/codec/code-encode.ts, which call these first. The same codes and the
+ * src/codec/code-encode.ts, and (kernels/finish-symbols.ts, the module
+ * FINISH_SYMBOL_KERNELS) the symbol coder's encoder, as encodeSymbolsWithin
+ * in src/codec/code-symbols-encode.ts, which call these first. The same codes and the
  * same bytes as the JavaScript; null (or undefined) where the kernels are
  * not to be had, and the caller runs the JavaScript.
  */
-import { FINISH_KERNELS } from './kernels-bytes.js';
+import { FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from './kernels-bytes.js';
 import { kernels, SCRATCH_AT, WEIGHTS_BYTES } from './kernels.js';
 
 /** The exports of kernels/finish.ts: addresses are byte offsets into the kernels' memory. */
@@ -98,6 +100,53 @@ export function encodeIntsKernel(values: Int32Array, m: number, n: number, codes
     if (status !== 0) return undefined;
     const length = fn.written.value as number;
     return k.u8.slice(outAt, outAt + length);
+  } finally {
+    k.release();
+  }
+}
+
+/** The exports of kernels/finish-symbols.ts: addresses are byte offsets into the kernels' memory. */
+interface SymbolEncoder {
+  encodeSymbols(values: number, m: number, n: number, codes: number, md: number, out: number, cap: number, raw: number, rawCap: number, atMost: number): number;
+  written: WebAssembly.Global;
+  rawWritten: WebAssembly.Global;
+}
+
+/**
+ * The two parts of encodeSymbolsWithin(values, m, n, codes, atMost) by the
+ * kernel, the range stream and the raw bits (the caller frames them), or
+ * null once they are longer than `atMost` bytes with the least length
+ * word; undefined when the JavaScript is to code it (no kernel, or a case
+ * the kernel leaves to it: a skipped cell holding a value, a value beyond
+ * 2^30, a part longer than two bytes a value). `image` is a fresh symbol
+ * model in the kernels' layout (symbolKernelImage in
+ * src/codec/code-symbols.ts).
+ */
+export function encodeSymbolsKernel(values: Int32Array, m: number, n: number, codes: Uint8Array | null, atMost: number, image: Uint8Array): { range: Uint8Array; raw: Uint8Array } | null | undefined {
+  const k = kernels();
+  if (k === null) return undefined;
+  const cells = m * n;
+  // Bytes from SCRATCH_AT: values (i32), the model, the class map, the range stream, the raw bits.
+  const cap = 2 * cells + 64;
+  const valuesAt = SCRATCH_AT;
+  const modelAt = valuesAt + 4 * cells;
+  const codesAt = modelAt + 4 * Math.ceil(image.length / 4);
+  const outAt = codesAt + (codes === null ? 0 : cells);
+  const rawAt = outAt + cap;
+  if (!k.lease(rawAt + cap - SCRATCH_AT)) return undefined;
+  try {
+    const fn = k.module<SymbolEncoder>(FINISH_SYMBOL_KERNELS);
+    if (fn === null) return undefined;
+    k.i32.set(values.subarray(0, cells), valuesAt / 4);
+    const heap = k.u8;
+    heap.set(image, modelAt);
+    if (codes !== null) heap.set(codes.subarray(0, cells), codesAt);
+    const status = fn.encodeSymbols(valuesAt, m, n, codes === null ? 0 : codesAt, modelAt, outAt, cap, rawAt, cap, atMost);
+    if (status === 1) return null;
+    if (status !== 0) return undefined;
+    const length = fn.written.value as number;
+    const rawLength = fn.rawWritten.value as number;
+    return { range: heap.slice(outAt, outAt + length), raw: heap.slice(rawAt, rawAt + rawLength) };
   } finally {
     k.release();
   }

@@ -1,14 +1,15 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in four modules: the linear-algebra module, with the range finder's
+ * in five modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
  * the decoder's module, with the blend predictor's decoding walk and the
  * binary coder's decoder; the symbol coder's decoder in a module of its
  * own (the decoder's module is near the size limit below); the encoder's
- * finishing module (src/wasm/finish.ts), with the blend predictor's walk
- * over known codes and the binary coder's encoder. Each kernel is
+ * finishing modules (src/wasm/finish.ts), one with the blend predictor's
+ * walk over known codes and the binary coder's encoder, one with the
+ * symbol coder's encoder. Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,

@@ -2,8 +2,9 @@
  * The encoder's finishing kernels (kernels/finish.ts, loaded by
  * src/wasm/finish.ts) against their JavaScript versions: the blend
  * predictor's walk as predict() and predictedFill() take it
- * (src/codec/reconstruct.ts), and the binary coder's encoder
- * (encodeIntsWithin, src/codec/code-encode.ts), bit for bit: the same
+ * (src/codec/reconstruct.ts), the binary coder's encoder
+ * (encodeIntsWithin, src/codec/code-encode.ts) and the symbol coder's
+ * (encodeSymbolsWithin, src/codec/code-symbols-encode.ts), bit for bit: the same
  * differences, filled codes and stream bytes, the same null where a
  * difference leaves the limit or a stream passes its length cap, and the
  * same error, on grids of every shape class (1 x n, m x 1, 2 x 2, larger),
@@ -16,9 +17,11 @@ import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { decodeInts } from '../../src/codec/code-decode.js';
 import { encodeIntsWithin } from '../../src/codec/code-encode.js';
+import { decodeSymbols } from '../../src/codec/code-symbols.js';
+import { encodeSymbolsWithin } from '../../src/codec/code-symbols-encode.js';
 import { Cell } from '../../src/codec/mask.js';
 import { predict, predictedFill, Predictor, unpredict } from '../../src/codec/reconstruct.js';
-import { FINISH_KERNELS } from '../../src/wasm/kernels-bytes.js';
+import { FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels } from '../../src/wasm/kernels.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
@@ -63,6 +66,18 @@ function codeBoth(v: Int32Array, m: number, n: number, codes: Uint8Array | null,
   });
 }
 
+/** encodeSymbolsWithin on both paths: each one's bytes, null, or error message. */
+function symbolsBoth(v: Int32Array, m: number, n: number, codes: Uint8Array | null, atMost: number) {
+  return onBothPaths(() => {
+    try {
+      const out = encodeSymbolsWithin(v, m, n, codes, atMost);
+      return out === null ? null : Array.from(out);
+    } catch (e) {
+      return (e as Error).message;
+    }
+  });
+}
+
 /**
  * A vega-datasets grid (npm package vega-datasets 3.2.1,
  * node_modules/vega-datasets/data/): volcano.json, elevations of Maunga
@@ -80,6 +95,7 @@ describe('the finishing kernels module', () => {
     const k = kernels();
     expect(k).not.toBeNull();
     expect(k?.module(FINISH_KERNELS)).not.toBeNull();
+    expect(k?.module(FINISH_SYMBOL_KERNELS)).not.toBeNull();
   });
 });
 
@@ -254,6 +270,84 @@ describe('the binary coder\'s encoder in WebAssembly', () => {
       const length = (whole.js as number[]).length;
       for (const atMost of [length, length - 1, Math.floor(length / 2)]) {
         const capped = codeBoth(d, g.m, g.n, null, atMost);
+        expect(capped.wasm).toEqual(capped.js);
+      }
+    }
+  });
+});
+
+describe('the symbol coder\'s encoder in WebAssembly', () => {
+  it('writes the JavaScript\'s bytes, and stops where it stops, on random grids with and without masks (fast-check)', () => {
+    fc.assert(
+      fc.property(
+        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
+        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
+        fc.constantFrom(0, 0.5, 0.95),
+        fc.constantFrom(3, 4096, LIMIT),
+        fc.boolean(),
+        fc.constantFrom(Infinity, 0, 3, 20, 100),
+        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        (m, n, zeros, scale, mask, atMost, seed) => {
+          const rand = mulberry32(seed);
+          const v = grid(rand, m * n, zeros, scale);
+          const codes = mask ? masked(rand, v, 0.3) : null;
+          const { js, wasm } = symbolsBoth(v, m, n, codes, atMost);
+          expect(wasm).toEqual(js);
+          if (atMost === Infinity) {
+            // The stream decodes to the values (the symbol coder of spec/FORMAT.md 10.3.8).
+            const out = new Int32Array(m * n);
+            decodeSymbols(Uint8Array.from(js as number[]), m, n, codes, out);
+            expect(Array.from(out)).toEqual(Array.from(v));
+          }
+        },
+      ),
+      { numRuns: 600 },
+    );
+  });
+
+  it('codes escapes up to 2^30 as the JavaScript does, and leaves a value beyond it, and a skipped cell that is not 0, to it', () => {
+    const m = 3;
+    const n = 7;
+    // Escape classes k = 12 .. 30 (the unary steps, the step that ends below 30, the top bit), signs both ways.
+    const v = Int32Array.from({ length: m * n }, (_, c) => (c % 2 === 0 ? 1 : -1) * Math.min(LIMIT, 2 ** (12 + c) + (c % 3)));
+    const at = symbolsBoth(v, m, n, null, Infinity);
+    expect(Array.isArray(at.js)).toBe(true);
+    expect(at.wasm).toEqual(at.js);
+    v[5] = LIMIT + 1;
+    const beyond = symbolsBoth(v, m, n, null, Infinity);
+    expect(beyond.js).toMatch(/exceeds 2\^30/);
+    expect(beyond.wasm).toEqual(beyond.js);
+    const codes = new Uint8Array(m * n);
+    codes[2] = Cell.Fill;
+    const skipped = symbolsBoth(v, m, n, codes, Infinity);
+    expect(skipped.js).toMatch(/skipped cell 2 holds/);
+    expect(skipped.wasm).toEqual(skipped.js);
+  });
+
+  it('writes the JavaScript\'s bytes for long grids (every rebuild, halved counts, long raw sections) and where a part outgrows two bytes a value', () => {
+    const rand = mulberry32(77);
+    for (const [m, n, scale] of [
+      [90, 110, 300],
+      [40, 50, LIMIT],
+    ] as const) {
+      const v = grid(rand, m * n, 0.1, scale);
+      const { js, wasm } = symbolsBoth(v, m, n, null, Infinity);
+      expect(wasm).toEqual(js);
+    }
+  });
+
+  it('writes the JavaScript\'s bytes for the blend differences of the quantized vega-datasets grids, whole and with a length cap', () => {
+    for (const [file, step] of [
+      ['volcano.json', 0.5],
+      ['annual-precip.json', 2],
+    ] as const) {
+      const g = vega(file);
+      const d = predict(Int32Array.from(g.values, (v) => Math.round(v / step)), g.m, g.n, LIMIT, Predictor.Blend)!;
+      const whole = symbolsBoth(d, g.m, g.n, null, Infinity);
+      expect(whole.wasm).toEqual(whole.js);
+      const length = (whole.js as number[]).length;
+      for (const atMost of [length, length - 1, Math.floor(length / 2)]) {
+        const capped = symbolsBoth(d, g.m, g.n, null, atMost);
         expect(capped.wasm).toEqual(capped.js);
       }
     }

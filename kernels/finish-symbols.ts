@@ -1,0 +1,9 @@
+/**
+ * The encoder's module for the symbol coder (entry file): its encoder of
+ * residual streams, in a module of its own so that each stays under the
+ * size src/wasm/kernels.ts gives. Encoder-side only. Compiled by `npm run
+ * kernels` (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts; laid out
+ * and copied in and out by src/wasm/finish.ts.
+ */
+export { encodeSymbols, rawWritten } from './symbols-encode';
+export { written } from './range-sink';
