@@ -5,7 +5,7 @@
  * written here; JavaScript has no fused multiply-add, so none is used.
  */
 import { blendDecodeKernel } from '../wasm/blend.js';
-import { blendEncodeKernel } from '../wasm/finish.js';
+import { blendEncodeKernel, predictPlainKernel } from '../wasm/finish.js';
 import { lowRankKernel } from '../wasm/lowrank.js';
 
 /**
@@ -520,7 +520,11 @@ export function predict(q: Int32Array, m: number, n: number, limit: number, kind
     });
     return ok ? d : null;
   }
-  if (kind !== Predictor.None) return predictPlain(q, d, m, n, limit, kind) ? d : null;
+  if (kind !== Predictor.None) {
+    // The encoder's WebAssembly kernel where it applies (the same differences; src/wasm/finish.ts).
+    if (limit >= 2 ** 30 && predictPlainKernel(q, d, m, n, kind)) return d;
+    return predictPlain(q, d, m, n, limit, kind) ? d : null;
+  }
   for (let c = 0; c < q.length; c++) {
     const v = q[c];
     if (v > limit || v < -limit) return null;

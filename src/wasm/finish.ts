@@ -1,7 +1,8 @@
 /**
  * The encoder's finishing kernels (kernels/finish.ts, the module
  * FINISH_KERNELS): the blend predictor's walk over known codes, as
- * predict() and predictedFill() in src/codec/reconstruct.ts take it, and
+ * predict() and predictedFill() in src/codec/reconstruct.ts take it, the
+ * plain predictors' differences, as predict() forms them, and
  * the binary coder's encoder, as encodeIntsWithin in
  * src/codec/code-encode.ts, and (kernels/finish-symbols.ts, the module
  * FINISH_SYMBOL_KERNELS) the symbol coder's encoder, as encodeSymbolsWithin
@@ -14,6 +15,7 @@ import { kernels, SCRATCH_AT, WEIGHTS_BYTES } from './kernels.js';
 
 /** The exports of kernels/finish.ts: addresses are byte offsets into the kernels' memory. */
 interface FinishKernels {
+  predictPlain(q: number, d: number, m: number, n: number, kind: number): number;
   blendEncode(q: number, d: number, m: number, n: number, limit: number, check: number, weight: number, above: number, below: number, codes: number, nums: number, totals: number, errs: number): number;
   encodeInts(values: number, m: number, n: number, codes: number, p: number, count: number, out: number, cap: number, atMost: number): number;
   written: WebAssembly.Global;
@@ -63,6 +65,35 @@ export function blendEncodeKernel(q: Int32Array, codes: Uint8Array | null, m: nu
     if (ok && d !== null) d.set(heap.subarray(dAt, dAt + cells));
     if (ok && filled !== null) filled.set(heap.subarray(qAt, qAt + cells));
     return ok;
+  } finally {
+    k.release();
+  }
+}
+
+/**
+ * predict(q, m, n, limit, kind) with a plain predictor (kind 1 to 5:
+ * Lorenzo, Left, Up, Average, Median) and a limit of at least 2^30, by
+ * the kernel, into `d`: true when done, false when the JavaScript is to do
+ * it (no kernel, or a code beyond 2^28 in magnitude, where the kernel's
+ * 32-bit sums could wrap or a difference pass the limit).
+ */
+export function predictPlainKernel(q: Int32Array, d: Int32Array, m: number, n: number, kind: number): boolean {
+  if (!(kind >= 1 && kind <= 5)) return false;
+  const k = kernels();
+  if (k === null) return false;
+  const cells = m * n;
+  // From SCRATCH_AT, in i32: q, then d.
+  const qAt = SCRATCH_AT / 4;
+  const dAt = qAt + cells;
+  if (!k.lease(8 * cells)) return false;
+  try {
+    const fn = k.module<FinishKernels>(FINISH_KERNELS);
+    if (fn === null) return false;
+    const heap = k.i32;
+    heap.set(q.subarray(0, cells), qAt);
+    if (fn.predictPlain(4 * qAt, 4 * dAt, m, n, kind) === 0) return false;
+    d.set(heap.subarray(dAt, dAt + cells));
+    return true;
   } finally {
     k.release();
   }

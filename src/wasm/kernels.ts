@@ -7,9 +7,9 @@
  * the decoder's module, with the blend predictor's decoding walk and the
  * binary coder's decoder; the symbol coder's decoder in a module of its
  * own (the decoder's module is near the size limit below); the encoder's
- * finishing modules (src/wasm/finish.ts), one with the blend predictor's
- * walk over known codes and the binary coder's encoder, one with the
- * symbol coder's encoder. Each kernel is
+ * finishing modules (src/wasm/finish.ts), one with the predictors'
+ * differences (the blend's walk over known codes, the plain predictors) and
+ * the binary coder's encoder, one with the symbol coder's encoder. Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,

@@ -2,7 +2,8 @@
  * The encoder's finishing kernels (kernels/finish.ts, loaded by
  * src/wasm/finish.ts) against their JavaScript versions: the blend
  * predictor's walk as predict() and predictedFill() take it
- * (src/codec/reconstruct.ts), the binary coder's encoder
+ * (src/codec/reconstruct.ts), the plain predictors' differences as
+ * predict() forms them, the binary coder's encoder
  * (encodeIntsWithin, src/codec/code-encode.ts) and the symbol coder's
  * (encodeSymbolsWithin, src/codec/code-symbols-encode.ts), bit for bit: the same
  * differences, filled codes and stream bytes, the same null where a
@@ -191,6 +192,74 @@ describe('the encoder\'s blend walk in WebAssembly', () => {
       expect(codes.some((c) => c !== Cell.Valid)).toBe(true);
       const filled = onBothPaths(() => Array.from(predictedFill(q, codes, g.m, g.n, LIMIT, Predictor.Blend)));
       expect(filled.wasm).toEqual(filled.js);
+    }
+  });
+});
+
+const PLAIN = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median];
+
+/** predict() with a plain predictor on both paths: each one's differences, or null. */
+function plainBoth(q: Int32Array, m: number, n: number, limit: number, kind: number) {
+  return onBothPaths(() => {
+    const d = predict(q, m, n, limit, kind);
+    return d === null ? null : Array.from(d);
+  });
+}
+
+describe('the plain predictors\' differences in WebAssembly', () => {
+  it('give predict()\'s differences, or its null, for every plain predictor, shape, limit and scale (fast-check)', () => {
+    fc.assert(
+      fc.property(
+        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 19 })),
+        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 19 })),
+        fc.constantFrom(...PLAIN),
+        fc.constantFrom(LIMIT, 1000, 0x7fffffff),
+        fc.constantFrom(3, 300, 2 ** 28, 2 ** 28 + 1, 2 ** 30, 2 ** 31 - 1),
+        fc.constantFrom(0, 0.5),
+        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        (m, n, kind, limit, scale, zeros, seed) => {
+          const q = grid(mulberry32(seed), m * n, zeros, scale);
+          const { js, wasm } = plainBoth(q, m, n, limit, kind);
+          expect(wasm).toEqual(js);
+        },
+      ),
+      { numRuns: 800 },
+    );
+  });
+
+  it('give the extreme differences of codes at +-2^28 (every sum at its largest), as the JavaScript does, and undo to the codes', () => {
+    const B = 2 ** 28;
+    for (const kind of PLAIN) {
+      for (const [m, n] of [
+        [2, 9],
+        [7, 5],
+        [1, 13],
+        [13, 1],
+      ]) {
+        // A checkerboard of +-2^28: Lorenzo's a + b - c reaches 3 x 2^28, its difference 2^30, the limit.
+        const q = Int32Array.from({ length: m * n }, (_, c) => ((Math.floor(c / n) + (c % n)) % 2 === 0 ? B : -B));
+        const { js, wasm } = plainBoth(q, m, n, LIMIT, kind);
+        expect(js).not.toBeNull();
+        expect(wasm).toEqual(js);
+        const back = Int32Array.from(js!);
+        expect(unpredict(back, m, n, LIMIT, kind)).toBe(true);
+        expect(Array.from(back)).toEqual(Array.from(q));
+      }
+    }
+  });
+
+  it('give the JavaScript\'s differences on the quantized vega-datasets grids', () => {
+    for (const [file, step] of [
+      ['volcano.json', 0.5],
+      ['annual-precip.json', 1],
+    ] as const) {
+      const g = vega(file);
+      const q = Int32Array.from(g.values, (v) => Math.round(v / step));
+      for (const kind of PLAIN) {
+        const { js, wasm } = plainBoth(q, g.m, g.n, LIMIT, kind);
+        expect(js).not.toBeNull();
+        expect(wasm).toEqual(js);
+      }
     }
   });
 });
