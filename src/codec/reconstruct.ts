@@ -607,6 +607,23 @@ function predictPlain(q: Int32Array, d: Int32Array, m: number, n: number, limit:
   return true;
 }
 
+/**
+ * The blend's differences of q, with the cells whose class in `codes` is
+ * not Valid (when `codes` is given) taken as {@link predictedFill} fills
+ * them, into `out` (q's length): predict(predictedFill(q, codes, ...),
+ * ..., Predictor.Blend), or predict(q, ..., Predictor.Blend) without
+ * `codes`, in one walk where the kernel is to be had, written into the
+ * caller's array rather than a new one. False where predict() gives null.
+ */
+export function blendDifferences(q: Int32Array, codes: Uint8Array | null, m: number, n: number, limit: number, out: Int32Array): boolean {
+  const done = blendEncodeKernel(q, codes, m, n, limit, true, blendWeights(), out, null);
+  if (done !== null) return done;
+  const d = predict(codes === null ? q : predictedFill(q, codes, m, n, limit, Predictor.Blend), m, n, limit, Predictor.Blend);
+  if (d === null) return false;
+  out.set(d);
+  return true;
+}
+
 /** A copy of q whose cells not Valid (class code non-zero) hold their prediction, so their residual is 0. */
 export function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: number, limit: number, kind: number): Int32Array {
   const out = q.slice();

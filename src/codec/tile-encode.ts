@@ -9,7 +9,7 @@ import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, payloadHead, RESIDUAL_SYMBOLS, residualPlace, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
-import { lowRank, predict, predictorBitsOf, predictorBitsRow, predictedFill, Predictor, PREDICTOR_SUMS, withResidual } from './reconstruct.js';
+import { blendDifferences, lowRank, predict, predictorBitsOf, predictorBitsRow, predictedFill, Predictor, PREDICTOR_SUMS, withResidual } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -464,15 +464,27 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
 function blendVariant(t: PreparedTile, f: Factors | null, corr: Correction): Coded | null {
   if (!corr.raw || corr.q === null || corr.bits === undefined) return null;
   const { m, n } = t;
-  const codes = t.classes.codes;
-  const filled = t.classes.special > 0 ? predictedFill(corr.raw, codes, m, n, MAX_INT, Predictor.Blend) : corr.raw;
-  const d = predict(filled, m, n, MAX_INT, Predictor.Blend);
-  if (!d || !(roughBits(d) < corr.bits)) return null;
-  const mask = t.classes.special > 0 ? codes : null;
+  const mask = t.classes.special > 0 ? t.classes.codes : null;
+  // The differences in the tile's scratch grid (most tiles keep the other predictor), copied out when kept.
+  const d = blendScratch(t);
+  if (!blendDifferences(corr.raw, mask, m, n, MAX_INT, d) || !(roughBits(d) < corr.bits)) return null;
   const other = corr.coded ?? encodeInts(corr.q, m, n, mask);
   const mine = encodeIntsWithin(d, m, n, mask, blendAtMost(other));
   if (mine === null || !(mine.length < BLEND_MARGIN * other.length)) return null;
-  return { payload: lowRankPayload(t, f, { ...corr, q: d, predictor: Predictor.Blend, coded: mine }), codes: d };
+  const kept = d.slice();
+  return { payload: lowRankPayload(t, f, { ...corr, q: kept, predictor: Predictor.Blend, coded: mine }), codes: kept };
+}
+
+/** Each tile's scratch grid for {@link blendVariant}'s differences (overwritten by each use, kept by none). */
+const blendGrids = new WeakMap<PreparedTile, Int32Array>();
+
+function blendScratch(t: PreparedTile): Int32Array {
+  let d = blendGrids.get(t);
+  if (d === undefined) {
+    d = new Int32Array(t.m * t.n);
+    blendGrids.set(t, d);
+  }
+  return d;
 }
 
 /**

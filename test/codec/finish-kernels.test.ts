@@ -21,7 +21,7 @@ import { encodeIntsWithin } from '../../src/codec/code-encode.js';
 import { decodeSymbols } from '../../src/codec/code-symbols.js';
 import { encodeSymbolsWithin } from '../../src/codec/code-symbols-encode.js';
 import { Cell } from '../../src/codec/mask.js';
-import { predict, predictedFill, Predictor, unpredict } from '../../src/codec/reconstruct.js';
+import { blendDifferences, predict, predictedFill, Predictor, unpredict } from '../../src/codec/reconstruct.js';
 import { FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels } from '../../src/wasm/kernels.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
@@ -138,6 +138,36 @@ describe('the encoder\'s blend walk in WebAssembly', () => {
           // And the differences of the filled grid: 0 at every missing cell whose prediction is within the limit.
           const both = blendBoth(Int32Array.from(js), m, n, limit);
           expect(both.wasm).toEqual(both.js);
+        },
+      ),
+      { numRuns: 400 },
+    );
+  });
+
+  it('gives, in one walk, predict()\'s differences of predictedFill()\'s grid (blendDifferences), on both paths (fast-check)', () => {
+    fc.assert(
+      fc.property(
+        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
+        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
+        fc.constantFrom(LIMIT, 1000, 0),
+        fc.constantFrom(300, 2 ** 30, 2 ** 31 - 1),
+        fc.constantFrom(0, 0.1, 0.5, 1),
+        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        (m, n, limit, scale, share, seed) => {
+          const rand = mulberry32(seed);
+          const q = grid(rand, m * n, 0.2, scale);
+          const codes = share > 0 ? masked(rand, q, share) : null;
+          const both = onBothPaths(() => {
+            const out = new Int32Array(m * n).fill(7);
+            return blendDifferences(q, codes, m, n, limit, out) ? Array.from(out) : null;
+          });
+          // The two steps the encoder took before, on the JavaScript path.
+          const { js } = onBothPaths(() => {
+            const d = predict(codes === null ? q : predictedFill(q, codes, m, n, limit, Predictor.Blend), m, n, limit, Predictor.Blend);
+            return d === null ? null : Array.from(d);
+          });
+          expect(both.js).toEqual(js);
+          expect(both.wasm).toEqual(js);
         },
       ),
       { numRuns: 400 },
