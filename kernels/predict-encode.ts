@@ -15,7 +15,7 @@
  */
 
 /** 1 when every |q| is at most 2^28 (|-2^31| wraps to itself, negative: caught by the unsigned compare). */
-function small(q: usize, cells: i32): bool {
+export function small(q: usize, cells: i32): bool {
   let most = i32x4.splat(0);
   let c = 0;
   for (; c + 4 <= cells; c += 4) most = v128.or(most, i32x4.abs(v128.load(q + (<usize>c << 2))));

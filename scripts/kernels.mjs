@@ -1,11 +1,11 @@
 #!/usr/bin/env node
 /**
  * Compiles the WebAssembly kernels (kernels/*.ts, AssemblyScript, the exact
- * version pinned in package.json's devDependencies), five modules from
- * five entry files (kernels/decode.ts and kernels/symbols.ts for the
+ * version pinned in package.json's devDependencies), six modules from
+ * six entry files (kernels/decode.ts and kernels/symbols.ts for the
  * decoder, kernels/linalg.ts for the linear algebra of both sides,
- * kernels/finish.ts and kernels/finish-symbols.ts for the encoder's
- * finishing of a tile, each
+ * kernels/finish.ts, kernels/finish-symbols.ts and kernels/finish-blend.ts
+ * for the encoder's finishing of a tile, each
  * under 4 KiB: src/wasm/kernels.ts says why), and writes
  * their bytes, base64, into src/wasm/kernels-bytes.ts, which is committed:
  * installing and building rankfield need no compiler. `npm run kernels` after a change
@@ -34,6 +34,7 @@ const MODULES = [
   ['SYMBOL_KERNELS', 'kernels/symbols.ts'],
   ['FINISH_KERNELS', 'kernels/finish.ts'],
   ['FINISH_SYMBOL_KERNELS', 'kernels/finish-symbols.ts'],
+  ['FINISH_BLEND_KERNELS', 'kernels/finish-blend.ts'],
 ];
 
 async function compile(entry) {

@@ -1,7 +1,9 @@
 /**
  * The encoder's finishing kernels (kernels/finish.ts, the module
  * FINISH_KERNELS): the blend predictor's walk over known codes, as
- * predict() and predictedFill() in src/codec/reconstruct.ts take it, the
+ * predict() and predictedFill() in src/codec/reconstruct.ts take it (four
+ * cells at a time for small codes without a class map: kernels/blend-small.ts,
+ * the module FINISH_BLEND_KERNELS), the
  * plain predictors' differences, as predict() forms them, and
  * the binary coder's encoder, as encodeIntsWithin in
  * src/codec/code-encode.ts, and (kernels/finish-symbols.ts, the module
@@ -10,7 +12,7 @@
  * same bytes as the JavaScript; null (or undefined) where the kernels are
  * not to be had, and the caller runs the JavaScript.
  */
-import { FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from './kernels-bytes.js';
+import { FINISH_BLEND_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from './kernels-bytes.js';
 import { kernels, SCRATCH_AT, WEIGHTS_BYTES } from './kernels.js';
 
 /** The exports of kernels/finish.ts: addresses are byte offsets into the kernels' memory. */
@@ -19,6 +21,11 @@ interface FinishKernels {
   blendEncode(q: number, d: number, m: number, n: number, limit: number, check: number, weight: number, above: number, below: number, codes: number, nums: number, totals: number, errs: number): number;
   encodeInts(values: number, m: number, n: number, codes: number, p: number, count: number, out: number, cap: number, atMost: number): number;
   written: WebAssembly.Global;
+}
+
+/** The export of kernels/finish-blend.ts. */
+interface BlendSmall {
+  blendEncodeSmall(q: number, d: number, m: number, n: number, limit: number, weight: number, scratch: number): number;
 }
 
 /** The largest limit the blend kernel takes (it holds the limit in an i32; the encoder passes 2^30). */
@@ -49,7 +56,9 @@ export function blendEncodeKernel(q: Int32Array, codes: Uint8Array | null, m: nu
   const totalsAt = numsAt + 8 * n;
   const errsAt = totalsAt + 4 * n + 20;
   const codesAt = errsAt + 20 * n;
-  if (!k.lease(codesAt + (codes === null ? 0 : cells) - SCRATCH_AT)) return null;
+  // Without a class map, the four-at-a-time walk's scratch (25 rows of n + 8 i32) where the class map would be.
+  const end = codes === null ? codesAt + 100 * (n + 8) : codesAt + cells;
+  if (!k.lease(end - SCRATCH_AT)) return null;
   try {
     const fn = k.module<FinishKernels>(FINISH_KERNELS);
     if (fn === null) return null;
@@ -60,7 +69,16 @@ export function blendEncodeKernel(q: Int32Array, codes: Uint8Array | null, m: nu
       k.weightsLoaded = true;
     }
     heap.set(q.subarray(0, cells), qAt);
-    if (codes !== null) k.u8.set(codes.subarray(0, cells), codesAt);
+    if (codes === null) {
+      // Small codes (within 2^28) take the four-at-a-time walk (2: they are not, walk below).
+      const small = k.module<BlendSmall>(FINISH_BLEND_KERNELS);
+      const status = small === null ? 2 : small.blendEncodeSmall(4 * qAt, 4 * dAt, m, n, limit, 0, codesAt);
+      if (status !== 2) {
+        if (status === 1 && d !== null) d.set(heap.subarray(dAt, dAt + cells));
+        if (status === 1 && filled !== null) filled.set(q.subarray(0, cells));
+        return status === 1;
+      }
+    } else k.u8.set(codes.subarray(0, cells), codesAt);
     const ok = fn.blendEncode(4 * qAt, 4 * dAt, m, n, limit, check ? 1 : 0, 0, 4 * aboveAt, 4 * belowAt, codes === null ? 0 : codesAt, numsAt, totalsAt, errsAt) !== 0;
     if (ok && d !== null) d.set(heap.subarray(dAt, dAt + cells));
     if (ok && filled !== null) filled.set(heap.subarray(qAt, qAt + cells));

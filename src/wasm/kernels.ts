@@ -1,6 +1,6 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in five modules: the linear-algebra module, with the range finder's
+ * in six modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
@@ -9,7 +9,8 @@
  * own (the decoder's module is near the size limit below); the encoder's
  * finishing modules (src/wasm/finish.ts), one with the predictors'
  * differences (the blend's walk over known codes, the plain predictors) and
- * the binary coder's encoder, one with the symbol coder's encoder. Each kernel is
+ * the binary coder's encoder, one with the blend's walk four cells at a
+ * time, one with the symbol coder's encoder. Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,

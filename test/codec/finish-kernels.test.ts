@@ -22,7 +22,7 @@ import { decodeSymbols } from '../../src/codec/code-symbols.js';
 import { encodeSymbolsWithin } from '../../src/codec/code-symbols-encode.js';
 import { Cell } from '../../src/codec/mask.js';
 import { blendDifferences, predict, predictedFill, Predictor, unpredict } from '../../src/codec/reconstruct.js';
-import { FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
+import { FINISH_BLEND_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels } from '../../src/wasm/kernels.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
@@ -97,6 +97,7 @@ describe('the finishing kernels module', () => {
     expect(k).not.toBeNull();
     expect(k?.module(FINISH_KERNELS)).not.toBeNull();
     expect(k?.module(FINISH_SYMBOL_KERNELS)).not.toBeNull();
+    expect(k?.module(FINISH_BLEND_KERNELS)).not.toBeNull();
   });
 });
 
@@ -107,7 +108,8 @@ describe('the encoder\'s blend walk in WebAssembly', () => {
         fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
         fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
         fc.constantFrom(LIMIT, 1000, 0x7fffffff, 0),
-        fc.constantFrom(3, 300, 2 ** 20, 2 ** 30, 2 ** 31 - 1),
+        // Up to 2^28 the walk goes four cells at a time (kernels/blend-small.ts), beyond it cell by cell.
+        fc.constantFrom(3, 300, 2 ** 20, 2 ** 28, 2 ** 28 + 1, 2 ** 30, 2 ** 31 - 1),
         fc.constantFrom(0, 0.5, 0.9),
         fc.integer({ min: 0, max: 2 ** 31 - 1 }),
         (m, n, limit, scale, zeros, seed) => {
@@ -185,6 +187,23 @@ describe('the encoder\'s blend walk in WebAssembly', () => {
           q[cell] = sign * (LIMIT + over);
           const { js, wasm } = blendBoth(q, m, n, LIMIT);
           expect(js === null, `cell ${cell}, over ${over}`).toBe(over === 1);
+          expect(wasm).toEqual(js);
+        }
+      }
+    }
+  });
+
+  it('gives the JavaScript\'s differences for codes of +-2^28, the largest the four-at-a-time walk takes (parts at 3 x 2^28, differences at 2^30)', () => {
+    const B = 2 ** 28;
+    for (const [m, n] of [
+      [6, 13],
+      [9, 8],
+      [3, 2],
+    ]) {
+      for (const pattern of [(i: number, j: number) => (i + j) % 2, (i: number, j: number) => (i * 7 + j * j) % 3 === 0 ? 1 : 0]) {
+        const q = Int32Array.from({ length: m * n }, (_, c) => (pattern(Math.floor(c / n), c % n) ? B : -B));
+        for (const limit of [LIMIT, 2 ** 29]) {
+          const { js, wasm } = blendBoth(q, m, n, limit);
           expect(wasm).toEqual(js);
         }
       }
