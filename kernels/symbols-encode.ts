@@ -118,17 +118,24 @@ export function encodeSymbols(values: usize, m: i32, n: i32, codes: usize, md: u
   const E = md + <usize>E_AT;
   const left = md + <usize>LEFT_AT;
   for (let i = 0; i < m; i++) {
+    // The left, up and up-left values carried along the row (a skipped cell holds 0, as the JavaScript reads it).
+    let nextL: i32 = 0;
+    let nextU: i32 = i > 0 ? load<i32>(values + (<usize>((i - 1) * n) << 2)) : 0;
+    let nextUl: i32 = 0;
     for (let j = 0; j < n; j++) {
       const c = i * n + j;
       const v = load<i32>(values + (<usize>c << 2));
+      const l = nextL;
+      const u = nextU;
+      const ul = nextUl;
+      const ur = i > 0 && j + 1 < n ? load<i32>(values + (<usize>(c - n + 1) << 2)) : 0;
+      nextL = v;
+      nextUl = u;
+      nextU = ur;
       if (codes !== 0 && load<u8>(codes + <usize>c) !== 0) {
         if (v !== 0) return 2;
         continue;
       }
-      const l = j > 0 ? load<i32>(values + (<usize>(c - 1) << 2)) : 0;
-      const u = i > 0 ? load<i32>(values + (<usize>(c - n) << 2)) : 0;
-      const ul = i > 0 && j > 0 ? load<i32>(values + (<usize>(c - n - 1) << 2)) : 0;
-      const ur = i > 0 && j + 1 < n ? load<i32>(values + (<usize>(c - n + 1) << 2)) : 0;
       // bucketOf (code-model.ts), in i64: magnitudes up to 2^31 make it reach 6 x 2^31 before the cap.
       const a: i64 = 2 * abs<i64>(<i64>l) + 2 * abs<i64>(<i64>u) + abs<i64>(<i64>ul) + abs<i64>(<i64>ur);
       const b: i32 = 32 - clz<i32>(a > 0x7fff ? 0x7fff : <i32>a);
