@@ -120,14 +120,12 @@ export function encodeInts(values: usize, m: i32, n: i32, codes: usize, p: usize
         const bound: u32 = (range >> 16) * pr;
         const shift = shiftOf(cnt);
         if (cnt < 255) store<u8>(count + <usize>ctx, <u8>(cnt + 1));
-        if (bit === 0) {
-          range = bound;
-          store<u16>(p + (<usize>ctx << 1), <u16>(pr + ((65536 - pr) >> shift)));
-        } else {
-          low += bound;
-          range -= bound;
-          store<u16>(p + (<usize>ctx << 1), <u16>(pr - (pr >> shift)));
-        }
+        // Either half of the range, without a branch on the bit (the class bits go either way: a
+        // mispredicted branch would cost more than both halves' arithmetic).
+        const one = bit !== 0;
+        low += select<u64>(<u64>bound, 0, one);
+        range = select<u32>(range - bound, bound, one);
+        store<u16>(p + (<usize>ctx << 1), <u16>select<u32>(pr - (pr >> shift), pr + ((65536 - pr) >> shift), one));
         while (range < TOP) {
           range = range << 8;
           low = shiftLow(low);
