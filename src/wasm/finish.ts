@@ -8,7 +8,9 @@
  * the binary coder's encoder, as encodeIntsWithin in
  * src/codec/code-encode.ts, and (kernels/finish-symbols.ts, the module
  * FINISH_SYMBOL_KERNELS) the symbol coder's encoder, as encodeSymbolsWithin
- * in src/codec/code-symbols-encode.ts, which call these first. The same codes and the
+ * in src/codec/code-symbols-encode.ts, with the error tally of the
+ * encoder's check of a finished tile (src/codec/measure.ts), which call
+ * these first. The same codes and the
  * same bytes as the JavaScript; null (or undefined) where the kernels are
  * not to be had, and the caller runs the JavaScript.
  */
@@ -156,6 +158,7 @@ export function encodeIntsKernel(values: Int32Array, m: number, n: number, codes
 
 /** The exports of kernels/finish-symbols.ts: addresses are byte offsets into the kernels' memory. */
 interface SymbolEncoder {
+  tallyCells(orig: number, out: number, codes: number, cells: number, f32: number, state: number): void;
   encodeSymbols(values: number, m: number, n: number, codes: number, md: number, out: number, cap: number, raw: number, rawCap: number, atMost: number): number;
   written: WebAssembly.Global;
   rawWritten: WebAssembly.Global;
@@ -196,6 +199,41 @@ export function encodeSymbolsKernel(values: Int32Array, m: number, n: number, co
     const length = fn.written.value as number;
     const rawLength = fn.rawWritten.value as number;
     return { range: heap.slice(outAt, outAt + length), raw: heap.slice(rawAt, rawAt + rawLength) };
+  } finally {
+    k.release();
+  }
+}
+
+/**
+ * The state ([count, max, scale, ssq], ErrorTally.state) of a fresh
+ * ErrorTally after add(|orig[c] - out[c]|) for every cell c whose class in
+ * `codes` is Valid (0), in cell order, by the kernel (kernels/tally.ts):
+ * the same state to the bit; null when the kernel is not to be had.
+ * `orig` and `out` are of one kind, with at least codes.length values.
+ */
+export function tallyKernel(orig: Float32Array | Float64Array, out: Float32Array | Float64Array, codes: Uint8Array): [number, number, number, number] | null {
+  const k = kernels();
+  if (k === null) return null;
+  const cells = codes.length;
+  const f32 = orig instanceof Float32Array;
+  const width = f32 ? 4 : 8;
+  // Bytes from SCRATCH_AT: the state (four binary64), orig, out, the class map.
+  const stateAt = SCRATCH_AT;
+  const origAt = stateAt + 32;
+  const outAt = origAt + width * cells;
+  const codesAt = outAt + width * cells;
+  if (!k.lease(codesAt + cells - SCRATCH_AT)) return null;
+  try {
+    const fn = k.module<SymbolEncoder>(FINISH_SYMBOL_KERNELS);
+    if (fn === null) return null;
+    const view = f32 ? new Float32Array(k.u8.buffer) : k.f64;
+    view.set(orig.subarray(0, cells), origAt / width);
+    view.set(out.subarray(0, cells), outAt / width);
+    k.u8.set(codes, codesAt);
+    const state = k.f64;
+    state.set([0, 0, 0, 1], stateAt / 8);
+    fn.tallyCells(origAt, outAt, codesAt, cells, f32 ? 1 : 0, stateAt);
+    return [state[stateAt / 8], state[stateAt / 8 + 1], state[stateAt / 8 + 2], state[stateAt / 8 + 3]];
   } finally {
     k.release();
   }

@@ -5,7 +5,8 @@
  * (src/codec/reconstruct.ts), the plain predictors' differences as
  * predict() forms them, the binary coder's encoder
  * (encodeIntsWithin, src/codec/code-encode.ts) and the symbol coder's
- * (encodeSymbolsWithin, src/codec/code-symbols-encode.ts), bit for bit: the same
+ * (encodeSymbolsWithin, src/codec/code-symbols-encode.ts), and the error
+ * tally of the encoder's check (tallyValid, src/codec/measure.ts), bit for bit: the same
  * differences, filled codes and stream bytes, the same null where a
  * difference leaves the limit or a stream passes its length cap, and the
  * same error, on grids of every shape class (1 x n, m x 1, 2 x 2, larger),
@@ -21,6 +22,7 @@ import { encodeIntsWithin } from '../../src/codec/code-encode.js';
 import { decodeSymbols } from '../../src/codec/code-symbols.js';
 import { encodeSymbolsWithin } from '../../src/codec/code-symbols-encode.js';
 import { Cell } from '../../src/codec/mask.js';
+import { tallyValid } from '../../src/codec/measure.js';
 import { blendDifferences, predict, predictedFill, Predictor, unpredict } from '../../src/codec/reconstruct.js';
 import { FINISH_BLEND_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels } from '../../src/wasm/kernels.js';
@@ -468,6 +470,58 @@ describe('the symbol coder\'s encoder in WebAssembly', () => {
         const capped = symbolsBoth(d, g.m, g.n, null, atMost);
         expect(capped.wasm).toEqual(capped.js);
       }
+    }
+  });
+});
+
+describe('the encoder check\'s error tally in WebAssembly', () => {
+  /** tallyValid on both paths: each one's state (count, max, scale, scaled sum of squares). */
+  function tallyBoth(orig: Float32Array | Float64Array, out: Float32Array | Float64Array, codes: Uint8Array) {
+    return onBothPaths(() => tallyValid(orig, out, codes).state());
+  }
+
+  it('gives the JavaScript\'s state to the bit, binary32 and binary64, with masks, zeros, a NaN and infinities (fast-check)', () => {
+    fc.assert(
+      fc.property(
+        fc.integer({ min: 0, max: 200 }),
+        fc.boolean(),
+        fc.constantFrom(0, 0.3),
+        fc.constantFrom('none', 'nan', 'inf', 'zero'),
+        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        (cells, f32, share, odd, seed) => {
+          const rand = mulberry32(seed);
+          const make = (values: number[]) => (f32 ? Float32Array.from(values) : Float64Array.from(values));
+          const base = Array.from({ length: cells }, () => (rand() - 0.5) * 10 ** Math.floor(rand() * 12 - 4));
+          const orig = make(base);
+          const out = make(Array.from(orig, (v) => v + (rand() - 0.5) * 10 ** Math.floor(rand() * 8 - 6)));
+          const codes = Uint8Array.from({ length: cells }, () => (rand() < share ? Cell.Fill : Cell.Valid));
+          if (cells > 0) {
+            const at = Math.floor(rand() * cells);
+            if (odd === 'nan') out[at] = Number.NaN;
+            if (odd === 'inf') out[at] = Number.POSITIVE_INFINITY;
+            if (odd === 'zero') out.set(orig);
+          }
+          const { js, wasm } = tallyBoth(orig, out, codes);
+          expect(wasm).toEqual(js);
+        },
+      ),
+      { numRuns: 500 },
+    );
+  });
+
+  it('gives the JavaScript\'s state for the vega-datasets grids against their values rounded to a step', () => {
+    for (const [file, step] of [
+      ['volcano.json', 0.7],
+      ['annual-precip.json', 3.3],
+    ] as const) {
+      const g = vega(file);
+      const orig = Float32Array.from(g.values);
+      const out = Float32Array.from(g.values, (v) => Math.round(v / step) * step);
+      const codes = Uint8Array.from(g.values, (v, c) => (c % 11 === 0 && v > 100 ? Cell.Fill : Cell.Valid));
+      const { js, wasm } = tallyBoth(orig, out, codes);
+      // The largest error of rounding to a step is at most half the step (common practice, no source).
+      expect(js[1]).toBeLessThanOrEqual(step / 2 + 1e-3);
+      expect(wasm).toEqual(js);
     }
   });
 });
