@@ -12,7 +12,7 @@ import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
 import { chooseTile, chooseTileAsync, sampleCost, spreadSample, spreadTiles, tileCandidates, type PickedTile } from '../../src/codec/auto-tile.js';
-import { encodeTile, fieldBasis, memoryBands, tileToEncode } from '../../src/codec/field.js';
+import { encodeField, encodeTile, fieldBasis, memoryBands, tileToEncode } from '../../src/codec/field.js';
 import { fieldSpecOf, pack } from '../../src/pack.js';
 
 function precip(): { values: Float32Array; shape: [number, number] } {
@@ -169,6 +169,27 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     // A best so far just above its rate: costed in full, the same bytes.
     expect(sampleCost(src, spec, basis, m, n, picked, rate * 1.001).bytes).toBe(whole.bytes);
   }, 30_000);
+
+  it('an L2 candidate whose tiles are every tile of a field one tile high hands its plan to the field: the payloads the field would make itself (annual-precip psnr:50)', () => {
+    const { values, shape } = precip();
+    const { spec } = fieldSpecOf(shape, 'f32', { bound: 'psnr:50' });
+    const src = memoryBands(values, shape[1]);
+    const basis = fieldBasis(src, spec);
+    // 168 x 120 tiles: the field is one tile high and three wide, all of them sampled; 84 x 120 tiles: two high, and no plan.
+    const tried = sampleCost(src, spec, basis, 168, 120, [0, 1, 2]);
+    expect(tried.plan).toBeDefined();
+    expect(sampleCost(src, spec, basis, 84, 120, [0, 1, 2, 3, 4, 5]).plan).toBeUndefined();
+    const grid = { ...spec, tileRows: 168, tileCols: 120, autoTile: false };
+    const payloads = (prior?: Parameters<typeof encodeField>[3]): Buffer[] => {
+      const out: Buffer[] = [];
+      encodeField(src, grid, (_i, t) => out.push(Buffer.from(t.payload)), prior);
+      return out;
+    };
+    const own = payloads();
+    const handed = payloads({ basis, done: new Map(), plan: tried.plan, ...(tried.spectra ? { spectra: tried.spectra } : {}) });
+    expect(handed.length).toBe(3);
+    handed.forEach((p, k) => expect(p.equals(own[k]), `tile ${k}`).toBe(true));
+  }, 60_000);
 
   it('a rank-2 time x space matrix gets a strip across all its rows', async () => {
     const rows = 96;
