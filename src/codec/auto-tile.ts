@@ -235,11 +235,19 @@ function trialSamples(spec: FieldSpec): [number, number, number[]][] {
  * stopping only at a candidate 2% worse than the best, 0.82 on the quick
  * fields (turbulence's 128 x 128 tiles did 0.6% worse than 256 x 256 at
  * rel:1e-3, and 64 x 64 worse still).
- * Larger fields keep the ascending order (the huge square is tried only
- * after the large one did best).
+ * Thin fields (a side of at most {@link THIN_SIDE}: time x space
+ * matrices, long sections) are weighed the same way, longest strip first:
+ * measured on bench/'s basin-stack (128 x 6144) and turbulence-stack
+ * (32 x 16384) at the six bench bounds (scratch measurement, issue 10:
+ * every candidate's sample cost, finished and searched), the rule chose
+ * the shape the exhaustive trial chooses in all 12 cases, for 0.46 to 0.70
+ * of its time (the long strips' samples cover the whole field, and they
+ * won or came within a few per cent of winning everywhere).
+ * Other large fields keep the ascending order (the huge square is tried
+ * only after the large one did best).
  */
 function largestFirst(spec: FieldSpec): boolean {
-  return spec.rows * spec.cols <= WHOLE_CELLS;
+  return spec.rows * spec.cols <= WHOLE_CELLS || Math.min(spec.rows, spec.cols) <= THIN_SIDE;
 }
 
 /**
