@@ -3,13 +3,12 @@
  * candidate payloads and keep the smallest that the decoder reproduces
  * within the bound.
  */
-import { addLayer } from './layer.js';
 import { ByteWriter } from '../format/bytes.js';
 import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, payloadHead, RESIDUAL_SYMBOLS, residualPlace, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
-import { lowRank, predict, predictorBitsOf, predictorBitsRow, predictedFill, Predictor, PREDICTOR_SUMS, withResidual } from './reconstruct.js';
+import { predict, predictorBitsOf, predictedFill, Predictor, PREDICTOR_SUMS } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -19,6 +18,7 @@ import { encodeInts, encodeIntsWithin } from './code-encode.js';
 import { decodeInts } from './code-decode.js';
 import { encodeSymbolsWithin } from './code-symbols-encode.js';
 import { MAX_INT } from './section.js';
+import { settleCodes, unsettledCells } from './settle.js';
 import { writeSection } from './section-write.js';
 import { binary32Below, MIN_STEP, stepCode, stepValue } from './steps.js';
 
@@ -280,100 +280,16 @@ function roughBits(v: Int32Array): number {
   return s;
 }
 
-/**
- * Math.round(x) (the integer nearest x, a tie going up; ECMA-262
- * Math.round, from memory), except that it gives +0 where Math.round gives
- * -0 (x in [-0.5, -0]). floor(x + 0.5) is it unless x + 0.5 rounds up to
- * the next integer (x just below a half, or an odd integer at 2^52 and
- * above), which r - 0.5 > x detects: r - 0.5 is exact for the integers
- * where it matters, and for r = round(x) it is at most x. V8 compiles
- * Math.round to a ceiling and a test that goes either way about half the
- * time on residuals, a mispredicted branch a cell; this test almost never
- * holds (a 512 x 512 grid of random values rounded 4.4x faster, scratch
- * measurement, issue 10).
- */
-export function roundHalfUp(x: number): number {
-  let r = Math.floor(x + 0.5);
-  if (r - 0.5 > x) r -= 1;
-  return r;
-}
-
-/**
- * Settle the codes of a checked candidate into q (0 where none is kept: a
- * code of 0, or one beyond +-MAX_INT) and its failing cells into
- * `exceptions`, cell by cell with the decoder's arithmetic (see
- * {@link correct}). With `sums` (a tile without missing cells), each row's
- * part of predictorBits is added as soon as the row is settled, while it is
- * in cache. Returns whether a code is kept, the rough bits of q itself, and
- * false in `sumsOk` when an edge difference passed the code limit.
- */
-function settleCodes(t: PreparedTile, base: Float64Array, e: number, step: number, q: Int32Array, exceptions: number[], sums: Float64Array | null): { any: boolean; bits: number; sumsOk: boolean } {
-  const { m, n, orig } = t;
-  const codes = t.classes.codes;
-  const masked = t.classes.special > 0;
-  const f32 = t.dtype === 'f32';
-  const valid = Cell.Valid;
-  const limit = MAX_INT;
-  // Kept codes, their bits and the OR of their magnitudes, without a branch on the code (its sign
-  // and whether it is 0 go either way on a residual, a mispredicted branch a cell): every code fits
-  // an int32 once the rare one beyond the limit is 0, |v| is (v ^ s) - s with s = v >> 31, and
-  // (|v| + 2^31 - 1) >>> 31 is 1 for |v| >= 1, 0 for 0. A 0 is written where q already holds one.
-  let kept = 0;
-  let bits = 0;
-  let sumsOk = sums !== null;
-  // The OR of |code| over the row above: a row pair below 2^28 (so at most limit / 4) takes
-  // predictorBitsRow's unchecked path.
-  let above = 0;
-  for (let i = 0; i < m; i++) {
-    let most = 0;
-    const end = i * n + n;
-    for (let c = i * n; c < end; c++) {
-      if (masked && codes[c] !== valid) continue;
-      const o = orig[c];
-      const b = base[c];
-      let v = roundHalfUp((o - b) / step);
-      if (!(v <= limit && v >= -limit)) v = 0;
-      v |= 0;
-      q[c] = v;
-      const sign = v >> 31;
-      const a = (v ^ sign) - sign;
-      kept += (a + 0x7fffffff) >>> 31;
-      bits += 32 - Math.clz32(a);
-      most |= a;
-      const sum = withResidual(b, v, step);
-      if (!(Math.abs(o - (f32 ? Math.fround(sum) : sum)) <= e)) exceptions.push(c);
-    }
-    if (sumsOk) sumsOk = predictorBitsRow(q, n, limit, i, sums!, (most | above) < 2 ** 28);
-    above = most;
-  }
-  return { any: kept > 0, bits, sumsOk };
-}
-
-/** Each tile's scratch grid for {@link correct}'s low-rank part (overwritten whole by every candidate, kept by none). */
-const bases = new WeakMap<PreparedTile, Float64Array>();
-
-function baseScratch(t: PreparedTile): Float64Array {
-  let b = bases.get(t);
-  if (b === undefined) {
-    b = new Float64Array(t.m * t.n);
-    bases.set(t, b);
-  }
-  return b;
-}
+export { roundHalfUp } from './settle.js';
 
 /**
  * The residual of a candidate against the pointwise bound e, computed with the
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
  * The step is 2e, or `step` when given (with `center`, for lattice candidates).
  */
-export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, blendToo = true): Correction {
+export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, blendToo = true, spare: Int32Array[] | null = null): Correction {
   const { m, n } = t;
   const cells = m * n;
-  // The decoder's own arithmetic: the low-rank part and centre here, the rest in reconstruct().
-  const base = baseScratch(t);
-  if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
-  else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
-  if (t.layer) addLayer(base, t.layer, cells);
   const codes = t.classes.codes;
   let q: Int32Array | null = null;
   let predictor: number = Predictor.None;
@@ -383,16 +299,19 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   const exceptions: number[] = [];
   // The reconstruction of a valid cell is the decoder's withResidual() of its low-rank part and its own
   // code, rounded to the dtype as reconstruct() stores it (the predictor changes only the coded
-  // differences, and missing cells are not checked): so each cell is checked as its code is chosen.
-  const f32 = t.dtype === 'f32';
+  // differences, and missing cells are not checked): so each cell is checked as its code is chosen
+  // (./settle.ts).
   const checked = e > 0 && Number.isFinite(step);
   if (checked) {
-    q = new Int32Array(cells);
+    // Every cell of q is written: a grid a candidate gave back will do.
+    q = spare?.pop() ?? new Int32Array(cells);
     // Without missing cells, the plain predictors' bits are summed row by row as the codes are settled.
     const sums = t.classes.special > 0 ? null : new Float64Array(PREDICTOR_SUMS);
-    const settled = settleCodes(t, base, e, step, q, exceptions, sums);
-    if (!settled.any) q = null;
-    else {
+    const settled = settleCodes(t, f, center, e, step, q, exceptions, sums);
+    if (!settled.any) {
+      spare?.push(q);
+      q = null;
+    } else {
       // The predictor whose residual looks cheapest. Missing cells take the value the
       // predictor expects, so they cost nothing (the decoder overwrites them anyway).
       let best = q;
@@ -440,14 +359,8 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
       q = best;
     }
   }
-  if (!checked) {
-    // No residual (e <= 0, or a step that is not finite): the low-rank part alone.
-    for (let c = 0; c < cells; c++) {
-      if (codes[c] !== Cell.Valid) continue;
-      if (!(Math.abs(t.orig[c] - (f32 ? Math.fround(base[c]) : base[c])) <= e)) exceptions.push(c);
-    }
-  }
-  return { center, step, q, predictor, exceptions, coded, raw, bits: rawBits };
+  // No residual (e <= 0, or a step that is not finite): the low-rank part alone.
+  return { center, step, q, predictor, exceptions: checked ? exceptions : unsettledCells(t, f, center, e), coded, raw, bits: rawBits };
 }
 
 /**
