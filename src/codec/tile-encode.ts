@@ -286,6 +286,8 @@ export { roundHalfUp } from './settle.js';
  * The residual of a candidate against the pointwise bound e, computed with the
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
  * The step is 2e, or `step` when given (with `center`, for lattice candidates).
+ * `spare`: code grids of the tile's size no one holds any more, taken for
+ * the codes instead of a new one (and given one back when no code is kept).
  */
 export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, blendToo = true, spare: Int32Array[] | null = null): Correction {
   const { m, n } = t;
@@ -453,8 +455,8 @@ interface Checked {
   estimate: number;
 }
 
-function checked(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center): Checked {
-  const corr = correct(t, f, e, step, center, false);
+function checked(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, spare: Int32Array[] | null = null): Checked {
+  const corr = correct(t, f, e, step, center, false, spare);
   return { f, corr, estimate: estimateBytes(t, f, corr) };
 }
 
@@ -703,12 +705,23 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
   let prev = Math.min(...rank0.map((c) => c.estimate));
   // The best CODED_RANKS so far by estimate, ascending (the one tried first on a tie), with the order tried.
   const kept: (Checked & { order: number })[] = [];
+  // The code grids of candidates that are not kept, for the next candidates' codes (correct() writes
+  // every cell): a 1024 x 1024 tile's grid is 4 MiB, and new ones cost the collector and page faults.
+  // Nothing else holds a dropped candidate's grids (of the rank-0 ones, the caller reads the estimate only).
+  const spare: Int32Array[] = [];
+  const giveBack = ({ corr }: Checked) => {
+    if (corr.q !== null) spare.push(corr.q);
+    if (corr.raw !== undefined && corr.raw !== corr.q) spare.push(corr.raw);
+  };
   const keep = (c: Checked, order: number) => {
     let at = kept.length;
     while (at > 0 && kept[at - 1].estimate > c.estimate) at--;
-    if (at >= CODED_RANKS) return;
+    if (at >= CODED_RANKS) {
+      giveBack(c);
+      return;
+    }
     kept.splice(at, 0, { ...c, order });
-    if (kept.length > CODED_RANKS) kept.pop();
+    if (kept.length > CODED_RANKS) giveBack(kept.pop()!);
   };
   rank0.forEach(keep);
   for (const r of RANKS) {
@@ -720,7 +733,7 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
     if (r > numRank) break;
     const f = pointwiseFactors(t, r, e);
     if (!f) break;
-    const c = checked(t, f, e);
+    const c = checked(t, f, e, undefined, undefined, spare);
     keep(c, rank0.length + r);
     worse = c.estimate >= prev ? worse + 1 : 0;
     prev = c.estimate;
