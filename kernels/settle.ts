@@ -31,6 +31,9 @@ const SUMS_ON = 52;
 const ABOVE = 56;
 /** i32: the OR of |code| over every row so far (not 0: a code is kept). */
 const ANY = 60;
+/** Binary64: the non-zero differences of the five predictors (as the sums), then the non-zero codes. */
+const NONZERO = 64;
+const NONZERO_CODES = 104;
 
 /** The codes' limit (src/codec/section.ts, MAX_INT). */
 const LIMIT: i32 = 0x40000000;
@@ -46,6 +49,7 @@ export function settleBand(l: usize, w: usize, r: i32, n: i32, rows: i32, i0: i3
   let above = load<i32>(state, ABOVE);
   let any = load<i32>(state, ANY);
   let bits = load<f64>(state, BITS);
+  let nonzero = load<f64>(state, NONZERO_CODES);
   const rowBytes = <usize>n << 2;
   for (let i = 0; i < rows; i++) {
     const at = <usize>(i * n);
@@ -61,11 +65,12 @@ export function settleBand(l: usize, w: usize, r: i32, n: i32, rows: i32, i0: i3
     const done = settleRow(row, orig, f32, codes, at, n, step, e, qr, exc + (<usize>count << 2), (i0 + i) * n);
     count += rowExceptions;
     bits += <f64>(done & 0xffffffff);
+    nonzero += <f64>rowNonzero;
     const most = <i32>(done >>> 32);
     any |= most;
     if (load<i32>(state, SUMS_ON) !== 0) {
       if (i0 + i > 0 && (most | above) < SMALL) smallRow(qr, n, state);
-      else if (!plainRow(qr, n, i0 + i === 0, state)) store<i32>(state, 0, SUMS_ON);
+      else if (!plainRow(qr, n, i0 + i === 0, state, 0)) store<i32>(state, 0, SUMS_ON);
     }
     above = most;
   }
@@ -73,11 +78,13 @@ export function settleBand(l: usize, w: usize, r: i32, n: i32, rows: i32, i0: i3
   store<i32>(state, above, ABOVE);
   store<i32>(state, any, ANY);
   store<f64>(state, bits, BITS);
+  store<f64>(state, nonzero, NONZERO_CODES);
   return count;
 }
 
-/** The exceptions {@link settleRow} found (its result holds its bits and OR). */
+/** The exceptions and the non-zero codes {@link settleRow} found (its result holds its bits and OR). */
 let rowExceptions: i32 = 0;
+let rowNonzero: i32 = 0;
 
 /**
  * One row: codes into qr, failing cells (index base + j) into exc; returns
@@ -92,6 +99,7 @@ function settleRow(row: usize, orig: usize, f32: i32, codes: usize, at: usize, n
   const nlim = f64x2.splat(-<f64>LIMIT);
   let bitsV = i32x4.splat(0);
   let mostV = i32x4.splat(0);
+  let nonzeroV = i32x4.splat(0);
   let count = 0;
   let j = 0;
   const iota = i32x4(0, 1, 2, 3);
@@ -127,6 +135,7 @@ function settleRow(row: usize, orig: usize, f32: i32, codes: usize, at: usize, n
     v128.store(qr + (<usize>j << 2), v);
     const a = i32x4.abs(v);
     mostV = v128.or(mostV, a);
+    nonzeroV = i32x4.sub(nonzeroV, i32x4.ne(a, i32x4.splat(0)));
     bitsV = i32x4.add(bitsV, bitLength(v128.andnot(a, i32x4.shr_u(a, 1))));
     // The check: b + v step, rounded to binary32 for an f32 tile, within e of o.
     let s0 = f64x2.add(b0, f64x2.mul(f64x2.convert_low_i32x4_s(v), sv));
@@ -148,6 +157,7 @@ function settleRow(row: usize, orig: usize, f32: i32, codes: usize, at: usize, n
   const bits = lanes(bitsV);
   const most = i32x4.extract_lane(mostV, 0) | i32x4.extract_lane(mostV, 1) | i32x4.extract_lane(mostV, 2) | i32x4.extract_lane(mostV, 3);
   rowExceptions = count;
+  rowNonzero = lanes(nonzeroV);
   return (<u64>(<u32>most) << 32) | <u64>(<u32>bits);
 }
 
@@ -171,13 +181,13 @@ function bitLength(a: v128): v128 {
   return i16x8.sub_sat_u(i32x4.shr_u(f32x4.convert_i32x4_s(a), 23), i32x4.splat(126));
 }
 
-/** Adds a row's five predictor totals into `state`'s sums. */
-function addSums(state: usize, t1: i32, t2: i32, t3: i32, t4: i32, t5: i32): void {
-  store<f64>(state, load<f64>(state) + <f64>t1);
-  store<f64>(state, load<f64>(state, 8) + <f64>t2, 8);
-  store<f64>(state, load<f64>(state, 16) + <f64>t3, 16);
-  store<f64>(state, load<f64>(state, 24) + <f64>t4, 24);
-  store<f64>(state, load<f64>(state, 32) + <f64>t5, 32);
+/** Adds a row's five predictor totals into the five binary64 sums at `at`. */
+function addSums(at: usize, t1: i32, t2: i32, t3: i32, t4: i32, t5: i32): void {
+  store<f64>(at, load<f64>(at) + <f64>t1);
+  store<f64>(at, load<f64>(at, 8) + <f64>t2, 8);
+  store<f64>(at, load<f64>(at, 16) + <f64>t3, 16);
+  store<f64>(at, load<f64>(at, 24) + <f64>t4, 24);
+  store<f64>(at, load<f64>(at, 32) + <f64>t5, 32);
 }
 
 // @ts-ignore: decorator
@@ -190,7 +200,8 @@ function lanes(v: v128): i32 {
  * predictorBitsRow of a row that is not the tile's first, whose codes and
  * the row above's are all below {@link SMALL} in magnitude (so no
  * difference passes the limit): four cells at a time, the same
- * differences as smallBitsRow, each sum's total the same integer.
+ * differences as smallBitsRow, each sum's total the same integer; and the
+ * count of each predictor's non-zero differences.
  */
 function smallRow(qr: usize, n: i32, state: usize): void {
   const up = qr - (<usize>n << 2);
@@ -201,6 +212,12 @@ function smallRow(qr: usize, n: i32, state: usize): void {
   let k3 = i32x4.splat(0);
   let k4 = i32x4.splat(0);
   let k5 = i32x4.splat(0);
+  let z1 = i32x4.splat(0);
+  let z2 = i32x4.splat(0);
+  let z3 = i32x4.splat(0);
+  let z4 = i32x4.splat(0);
+  let z5 = i32x4.splat(0);
+  const zero = i32x4.splat(0);
   let j = 1;
   for (; j + 4 <= n; j += 4) {
     const o = <usize>j << 2;
@@ -213,38 +230,34 @@ function smallRow(qr: usize, n: i32, state: usize): void {
     const hi = i32x4.max_s(a, b);
     const lorenzo = i32x4.sub(s, d);
     const median = v128.bitselect(lo, v128.bitselect(hi, lorenzo, i32x4.le_s(d, lo)), i32x4.ge_s(d, hi));
-    k1 = i32x4.add(k1, bitLength(i32x4.abs(i32x4.sub(x, lorenzo))));
-    k2 = i32x4.add(k2, bitLength(i32x4.abs(i32x4.sub(x, a))));
-    k3 = i32x4.add(k3, bitLength(i32x4.abs(i32x4.sub(x, b))));
-    k4 = i32x4.add(k4, bitLength(i32x4.abs(i32x4.sub(x, i32x4.shr_s(s, 1)))));
-    k5 = i32x4.add(k5, bitLength(i32x4.abs(i32x4.sub(x, median))));
+    // Each difference's bit length added, and its lane's count less 1 (an all-ones mask) where it is not 0.
+    const v1 = i32x4.sub(x, lorenzo);
+    const v2 = i32x4.sub(x, a);
+    const v3 = i32x4.sub(x, b);
+    const v4 = i32x4.sub(x, i32x4.shr_s(s, 1));
+    const v5 = i32x4.sub(x, median);
+    k1 = i32x4.add(k1, bitLength(i32x4.abs(v1)));
+    k2 = i32x4.add(k2, bitLength(i32x4.abs(v2)));
+    k3 = i32x4.add(k3, bitLength(i32x4.abs(v3)));
+    k4 = i32x4.add(k4, bitLength(i32x4.abs(v4)));
+    k5 = i32x4.add(k5, bitLength(i32x4.abs(v5)));
+    z1 = i32x4.sub(z1, i32x4.ne(v1, zero));
+    z2 = i32x4.sub(z2, i32x4.ne(v2, zero));
+    z3 = i32x4.sub(z3, i32x4.ne(v3, zero));
+    z4 = i32x4.sub(z4, i32x4.ne(v4, zero));
+    z5 = i32x4.sub(z5, i32x4.ne(v5, zero));
   }
-  let t1 = edge + lanes(k1);
-  let t2 = edge + lanes(k2);
-  let t3 = edge + lanes(k3);
-  let t4 = edge + lanes(k4);
-  let t5 = edge + lanes(k5);
-  for (; j < n; j++) {
-    const o = <usize>j << 2;
-    const x = load<i32>(qr + o);
-    const a = load<i32>(qr + o - 4);
-    const b = load<i32>(up + o);
-    const d = load<i32>(up + o - 4);
-    const lo = a < b ? a : b;
-    const hi = a < b ? b : a;
-    t1 += bitsOf(x - (a + b - d));
-    t2 += bitsOf(x - a);
-    t3 += bitsOf(x - b);
-    t4 += bitsOf(x - ((a + b) >> 1));
-    t5 += bitsOf(x - (d >= hi ? lo : d <= lo ? hi : a + b - d));
-  }
-  addSums(state, t1, t2, t3, t4, t5);
-}
-
-// @ts-ignore: decorator
-@inline
-function bitsOf(v: i32): i32 {
-  return 32 - clz(v < 0 ? -v : v);
+  // The first column's difference, the same for every predictor.
+  const ez = e0 !== 0 ? 1 : 0;
+  const n1 = ez + lanes(z1);
+  const n2 = ez + lanes(z2);
+  const n3 = ez + lanes(z3);
+  const n4 = ez + lanes(z4);
+  const n5 = ez + lanes(z5);
+  addSums(state, edge + lanes(k1), edge + lanes(k2), edge + lanes(k3), edge + lanes(k4), edge + lanes(k5));
+  addSums(state + NONZERO, n1, n2, n3, n4, n5);
+  // The last cells (fewer than four).
+  plainRow(qr, n, false, state, j);
 }
 
 /** 32 less the leading zeros of |v| taken modulo 2^32, as Math.clz32 (ECMA-262 ToUint32, from memory) of a difference predictorBitsRow forms exactly in binary64. */
@@ -256,29 +269,42 @@ function bits64(v: i64): i32 {
 
 /**
  * predictorBitsRow's checked path for any row (the tile's first when
- * `first`): differences in 64-bit integers, exact as the JavaScript's
- * binary64 ones are; false when an edge difference passes the limit.
+ * `first`) from column `from`: differences in 64-bit integers, exact as
+ * the JavaScript's binary64 ones are; false when an edge difference passes
+ * the limit. The bit sums, the non-zero counts and the flags are added
+ * into `state`'s.
  */
-function plainRow(qr: usize, n: i32, first: bool, state: usize): bool {
+function plainRow(qr: usize, n: i32, first: bool, state: usize, from: i32): bool {
   const up = qr - (<usize>n << 2);
   let t1 = 0;
   let t2 = 0;
   let t3 = 0;
   let t4 = 0;
   let t5 = 0;
+  let n1 = 0;
+  let n2 = 0;
+  let n3 = 0;
+  let n4 = 0;
+  let n5 = 0;
   let over = 0;
-  for (let j = 0; j < n; j++) {
+  for (let j = from; j < n; j++) {
     const o = <usize>j << 2;
     const x = <i64>load<i32>(qr + o);
     if (first || j === 0) {
       const v = x - (first ? (j === 0 ? 0 : <i64>load<i32>(qr + o - 4)) : <i64>load<i32>(up + o));
       if (v > LIMIT || v < -LIMIT) return false;
       const b = bits64(v);
+      const z = <i32>(v !== 0);
       t1 += b;
       t2 += b;
       t3 += b;
       t4 += b;
       t5 += b;
+      n1 += z;
+      n2 += z;
+      n3 += z;
+      n4 += z;
+      n5 += z;
       continue;
     }
     const a = <i64>load<i32>(qr + o - 4);
@@ -296,6 +322,11 @@ function plainRow(qr: usize, n: i32, first: bool, state: usize): bool {
     t3 += bits64(v3);
     t4 += bits64(v4);
     t5 += bits64(v5);
+    n1 += <i32>(v1 !== 0);
+    n2 += <i32>(v2 !== 0);
+    n3 += <i32>(v3 !== 0);
+    n4 += <i32>(v4 !== 0);
+    n5 += <i32>(v5 !== 0);
     if (v1 > LIMIT || v1 < -LIMIT) over |= 1;
     if (v2 > LIMIT || v2 < -LIMIT) over |= 2;
     if (v3 > LIMIT || v3 < -LIMIT) over |= 4;
@@ -303,6 +334,7 @@ function plainRow(qr: usize, n: i32, first: bool, state: usize): bool {
     if (v5 > LIMIT || v5 < -LIMIT) over |= 16;
   }
   addSums(state, t1, t2, t3, t4, t5);
+  addSums(state + NONZERO, n1, n2, n3, n4, n5);
   store<i32>(state, load<i32>(state, OVER) | over, OVER);
   return true;
 }

@@ -132,7 +132,7 @@ export function settleCodes(t: PreparedTile, f: LowRankPart | null, center: numb
       any |= most;
     }
   }
-  return { any: any !== 0, bits, sumsOk };
+  return { any: any !== 0, bits, sumsOk, nonzero: null };
 }
 
 /** The valid cells whose low-rank part alone (rounded to the dtype) is not within e of the value, in increasing order: the check of a candidate without a residual. */

@@ -138,6 +138,11 @@ export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget:
   return { rank: r, codeU, codeW: cw, qu, qw, l, w };
 }
 
+/** What the pointwise search lends correct(): code grids of the tile's size that no candidate holds any more. */
+interface SearchScratch {
+  spare: Int32Array[];
+}
+
 /** Residual and exceptions of a pointwise candidate. */
 interface Correction {
   /** The centre the candidate reconstructs around (the tile's, or one on its lattice). */
@@ -152,6 +157,20 @@ interface Correction {
   /** The residual codes before prediction (missing cells 0), and the rough bits of the chosen prediction's differences: for {@link blendVariant}. */
   raw?: Int32Array;
   bits?: number;
+  /** The non-zero entries of q, where the check counted them (otherwise they are counted in q). */
+  nonzero?: number;
+  /**
+   * True while q holds the codes before prediction (raw) rather than the
+   * predictor's differences: the search forms them ({@link formed}) only
+   * for the candidates it codes.
+   */
+  deferred?: boolean;
+}
+
+/** `corr` with its predictor's differences formed where they were deferred. */
+function formed(t: PreparedTile, corr: Correction): Correction {
+  if (!corr.deferred || !corr.raw) return corr;
+  return { ...corr, q: predict(corr.raw, t.m, t.n, MAX_INT, corr.predictor)!, deferred: false };
 }
 
 /**
@@ -286,10 +305,12 @@ export { roundHalfUp } from './settle.js';
  * The residual of a candidate against the pointwise bound e, computed with the
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
  * The step is 2e, or `step` when given (with `center`, for lattice candidates).
- * `spare`: code grids of the tile's size no one holds any more, taken for
- * the codes instead of a new one (and given one back when no code is kept).
+ * With `search` (the pointwise search's), its spare code grids are taken
+ * for the codes instead of a new one, and, without the blend, the chosen
+ * predictor's differences are left to {@link formed} where the check
+ * counted their non-zero entries.
  */
-export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, blendToo = true, spare: Int32Array[] | null = null): Correction {
+export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, blendToo = true, search: SearchScratch | null = null): Correction {
   const { m, n } = t;
   const cells = m * n;
   const codes = t.classes.codes;
@@ -298,6 +319,8 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   let coded: Uint8Array | undefined;
   let raw: Int32Array | undefined;
   let rawBits: number | undefined;
+  let nonzero: number | undefined;
+  let deferred: boolean | undefined;
   const exceptions: number[] = [];
   // The reconstruction of a valid cell is the decoder's withResidual() of its low-rank part and its own
   // code, rounded to the dtype as reconstruct() stores it (the predictor changes only the coded
@@ -306,12 +329,12 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   const checked = e > 0 && Number.isFinite(step);
   if (checked) {
     // Every cell of q is written: a grid a candidate gave back will do.
-    q = spare?.pop() ?? new Int32Array(cells);
+    q = search?.spare.pop() ?? new Int32Array(cells);
     // Without missing cells, the plain predictors' bits are summed row by row as the codes are settled.
     const sums = t.classes.special > 0 ? null : new Float64Array(PREDICTOR_SUMS);
     const settled = settleCodes(t, f, center, e, step, q, exceptions, sums);
     if (!settled.any) {
-      spare?.push(q);
+      search?.spare.push(q);
       q = null;
     } else {
       // The predictor whose residual looks cheapest. Missing cells take the value the
@@ -343,7 +366,11 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
           predictor = kind;
         }
       }
-      if (plain !== null && predictor !== Predictor.None) best = predict(q, m, n, MAX_INT, predictor)!;
+      if (plain !== null && settled.nonzero !== null) nonzero = settled.nonzero[predictor === Predictor.None ? 5 : predictor - 1];
+      if (plain !== null && predictor !== Predictor.None) {
+        if (search !== null && !blendToo && nonzero !== undefined) deferred = true;
+        else best = predict(q, m, n, MAX_INT, predictor)!;
+      }
       if (blend !== null) {
         // The blend looks cheaper, but it decodes several times slower than the others and
         // bit lengths are only an estimate: both are coded, and the blend must save 1%.
@@ -362,7 +389,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
     }
   }
   // No residual (e <= 0, or a step that is not finite): the low-rank part alone.
-  return { center, step, q, predictor, exceptions: checked ? exceptions : unsettledCells(t, f, center, e), coded, raw, bits: rawBits };
+  return { center, step, q, predictor, exceptions: checked ? exceptions : unsettledCells(t, f, center, e), coded, raw, bits: rawBits, nonzero, deferred };
 }
 
 /**
@@ -455,8 +482,8 @@ interface Checked {
   estimate: number;
 }
 
-function checked(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, spare: Int32Array[] | null = null): Checked {
-  const corr = correct(t, f, e, step, center, false, spare);
+function checked(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, search: SearchScratch | null = null): Checked {
+  const corr = correct(t, f, e, step, center, false, search);
   return { f, corr, estimate: estimateBytes(t, f, corr) };
 }
 
@@ -650,7 +677,7 @@ const CODED_RANKS = 3;
  */
 function estimateBytes(t: PreparedTile, f: Factors | null, corr: Correction): number {
   let bits = corr.bits ?? 0;
-  if (corr.q !== null) bits += nonZeros(corr.q);
+  if (corr.q !== null) bits += corr.nonzero ?? nonZeros(corr.q);
   if (f) {
     const u = factorBits(f.qu, t.m);
     const w = factorBits(f.qw, t.n);
@@ -708,10 +735,10 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
   // The code grids of candidates that are not kept, for the next candidates' codes (correct() writes
   // every cell): a 1024 x 1024 tile's grid is 4 MiB, and new ones cost the collector and page faults.
   // Nothing else holds a dropped candidate's grids (of the rank-0 ones, the caller reads the estimate only).
-  const spare: Int32Array[] = [];
+  const search: SearchScratch = { spare: [] };
   const giveBack = ({ corr }: Checked) => {
-    if (corr.q !== null) spare.push(corr.q);
-    if (corr.raw !== undefined && corr.raw !== corr.q) spare.push(corr.raw);
+    if (corr.q !== null) search.spare.push(corr.q);
+    if (corr.raw !== undefined && corr.raw !== corr.q) search.spare.push(corr.raw);
   };
   const keep = (c: Checked, order: number) => {
     let at = kept.length;
@@ -733,13 +760,14 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
     if (r > numRank) break;
     const f = pointwiseFactors(t, r, e);
     if (!f) break;
-    const c = checked(t, f, e, undefined, undefined, spare);
+    const c = checked(t, f, e, undefined, undefined, search);
     keep(c, rank0.length + r);
     worse = c.estimate >= prev ? worse + 1 : 0;
     prev = c.estimate;
     if (worse >= PATIENCE && r >= MIN_RANKS_TRIED) break;
   }
-  return kept.sort((a, b) => a.order - b.order);
+  // The differences of the candidates to be coded (the others' were never formed).
+  return kept.sort((a, b) => a.order - b.order).map((c) => ({ ...c, corr: formed(t, c.corr) }));
 }
 
 /**

@@ -29,6 +29,12 @@ export interface Settled {
   bits: number;
   /** False when the predictor sums are not to be used (an edge difference passed the limit). */
   sumsOk: boolean;
+  /**
+   * Where the kernel counted them: the non-zero differences of the five
+   * predictors (entries 0-4, as the sums; NaN without sumsOk) and the
+   * non-zero codes (entry 5); null otherwise.
+   */
+  nonzero: Float64Array | null;
 }
 
 /** A candidate's inputs: its factors (`l` m x r, `w` r x n, row-major), centre, the field layer's term (or null), the tile's values and class codes (null: every cell valid). */
@@ -72,7 +78,7 @@ export function settleKernel(x: SettleInput, step: number, e: number, limit: num
   // term, values, class codes, codes (after the row above) and exceptions; past each row's end the kernel's
   // last four cells read and write up to three cells more, hence the padding.
   const stateAt = SCRATCH_AT;
-  const wAt = stateAt + 64;
+  const wAt = stateAt + 128;
   const lAt = up16(wAt + 8 * r * n);
   const rowAt = up16(lAt + 8 * rows * r);
   const layerAt = up16(rowAt + 8 * (n + 4));
@@ -89,8 +95,8 @@ export function settleKernel(x: SettleInput, step: number, e: number, limit: num
     const i32 = k.i32;
     const u8 = k.u8;
     const values = f32 ? new Float32Array(heap.buffer) : heap;
-    heap.fill(0, stateAt / 8, stateAt / 8 + 6);
-    i32.fill(0, stateAt / 4 + 12, stateAt / 4 + 16);
+    // The state (kernels/settle.ts): binary64 sums at 0, bits at 40, i32 flags at 48-60, binary64 counts at 64-104.
+    heap.fill(0, stateAt / 8, stateAt / 8 + 16);
     i32[stateAt / 4 + 13] = sums !== null ? 1 : 0;
     heap.set(w.subarray(0, r * n), wAt / 8);
     for (let i = 0; i < m; i += rows) {
@@ -110,7 +116,9 @@ export function settleKernel(x: SettleInput, step: number, e: number, limit: num
       for (let s = 0; s < 5; s++) sums[s] += heap[stateAt / 8 + s];
       sums[5] = sums[5] | i32[stateAt / 4 + 12];
     }
-    return { any: i32[stateAt / 4 + 15] !== 0, bits: heap[stateAt / 8 + 5], sumsOk };
+    const nonzero = heap.slice(stateAt / 8 + 8, stateAt / 8 + 14);
+    if (!sumsOk) nonzero.fill(Number.NaN, 0, 5);
+    return { any: i32[stateAt / 4 + 15] !== 0, bits: heap[stateAt / 8 + 5], sumsOk, nonzero };
   } finally {
     k.release();
   }

@@ -13,7 +13,7 @@ import { Matrix } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { fillWords } from '../../src/codec/mask.js';
 import { ensureSvd, type PreparedTile, prepareTile } from '../../src/codec/prepare.js';
-import { PREDICTOR_SUMS, predictorBits, predictorBitsOf } from '../../src/codec/reconstruct.js';
+import { PREDICTOR_SUMS, predict, predictorBits, predictorBitsOf } from '../../src/codec/reconstruct.js';
 import { MAX_INT } from '../../src/codec/section.js';
 import { type LowRankPart, settleCodes, unsettledCells } from '../../src/codec/settle.js';
 import { correct, pointwiseFactors } from '../../src/codec/tile-encode.js';
@@ -43,10 +43,27 @@ function settle(t: PreparedTile, f: LowRankPart | null, center: number, e: numbe
   return { q: Array.from(q), exceptions, settled, sums: sums && Array.from(sums) };
 }
 
-/** Both paths give the same outcome; the kernel's. */
+/**
+ * Both paths give the same outcome; the kernel's. Only the kernel counts
+ * the non-zero differences: they are checked against predict()'s
+ * differences (tested against the published predictors in
+ * predictors.test.ts) and the codes themselves.
+ */
 function same(t: PreparedTile, f: LowRankPart | null, center: number, e: number, step: number, where: string): Outcome {
   const { js, wasm } = onBothPaths(() => settle(t, f, center, e, step));
-  expect(wasm.settled, where).toEqual(js.settled);
+  expect(js.settled.nonzero, where).toBeNull();
+  const counts = wasm.settled.nonzero;
+  expect(counts, where).not.toBeNull();
+  const q = Int32Array.from(wasm.q);
+  const nonZeros = (v: ArrayLike<number>) => Array.from(v).filter((x) => x !== 0).length;
+  expect(counts![5], where).toBe(nonZeros(q));
+  for (let kind = 1; kind <= 5; kind++) {
+    const d = wasm.settled.sumsOk ? predict(q, t.m, t.n, MAX_INT, kind) : null;
+    // Counted wherever the sums are kept (NaN otherwise); where a predictor's differences pass the limit its count is of no use.
+    if (t.classes.special === 0 && d !== null) expect(counts![kind - 1], `${where}, predictor ${kind}`).toBe(nonZeros(d));
+    if (!wasm.settled.sumsOk) expect(counts![kind - 1], where).toBeNaN();
+  }
+  expect({ ...wasm.settled, nonzero: null }, where).toEqual(js.settled);
   expect(wasm.exceptions, where).toEqual(js.exceptions);
   expect(wasm.sums, where).toEqual(js.sums);
   // Arrays of a million entries compare slowly with toEqual: the first cell that differs.
@@ -223,14 +240,18 @@ describe('correct', () => {
       ensureSvd(t, 4);
       const f = pointwiseFactors(t, 3, e);
       const fresh = correct(t, f, e, undefined, undefined, false);
-      const spare = [new Int32Array(m * n).fill(12345)];
-      const reused = correct(t, f, e, undefined, undefined, false, spare);
-      expect(spare).toHaveLength(0);
+      const search = { spare: [new Int32Array(m * n).fill(12345)] };
+      const reused = correct(t, f, e, undefined, undefined, false, search);
+      expect(search.spare).toHaveLength(0);
       expect(reused.exceptions).toEqual(fresh.exceptions);
       expect(reused.predictor).toBe(fresh.predictor);
       expect(reused.bits).toBe(fresh.bits);
-      expect(Array.from(reused.q!)).toEqual(Array.from(fresh.q!));
       expect(Array.from(reused.raw!)).toEqual(Array.from(fresh.raw!));
+      // For the search, a plain predictor's differences are formed later (q is then the codes) where the kernel counted their non-zero entries.
+      const deferred = reused.deferred === true;
+      expect(deferred).toBe(fill === null && fresh.predictor !== 0);
+      expect(Array.from(deferred ? reused.raw! : reused.q!)).toEqual(Array.from(deferred ? fresh.raw! : fresh.q!));
+      expect(reused.nonzero ?? Array.from(reused.q!).filter((v) => v !== 0).length).toBe(Array.from(fresh.q!).filter((v) => v !== 0).length);
     }
   });
 
