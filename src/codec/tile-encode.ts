@@ -138,9 +138,33 @@ export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget:
   return { rank: r, codeU, codeW: cw, qu, qw, l, w };
 }
 
-/** What the pointwise search lends correct(): code grids of the tile's size that no candidate holds any more. */
+/** What the pointwise search lends correct(): code grids that no candidate holds any more (correct() takes one of the tile's size). */
 interface SearchScratch {
   spare: Int32Array[];
+}
+
+/**
+ * This thread's code grids that no candidate holds any more, kept from tile
+ * to tile: the pointwise search settles its candidates' codes into them
+ * (correct() writes every cell) rather than into new ones, which cost the
+ * collector and page faults (a 1024 x 1024 tile's grid is 4 MiB). The
+ * grids of the candidates a search drops or does not pick are given back;
+ * at most {@link SPARE_BYTES} are kept.
+ */
+const searchGrids: SearchScratch = { spare: [] };
+/** Common practice, no source: a few large tiles' grids. */
+const SPARE_BYTES = 32 * 1024 * 1024;
+
+/** Give back the code grids of a candidate no one holds any more (none of `keep`'s). */
+function giveBack(corr: Correction, keep: Correction | null = null): void {
+  const spare = searchGrids.spare;
+  for (const g of [corr.q, corr.raw]) {
+    if (!g || g === keep?.q || g === keep?.raw || spare.includes(g)) continue;
+    spare.push(g);
+  }
+  let bytes = 0;
+  for (const g of spare) bytes += g.byteLength;
+  while (bytes > SPARE_BYTES) bytes -= spare.shift()!.byteLength;
 }
 
 /** Residual and exceptions of a pointwise candidate. */
@@ -165,6 +189,13 @@ interface Correction {
    * for the candidates it codes.
    */
   deferred?: boolean;
+}
+
+/** A grid of `cells` codes from `search`'s spare ones (the last given back first), or a new one. */
+function spareGrid(search: SearchScratch | null, cells: number): Int32Array {
+  const spare = search?.spare ?? [];
+  for (let k = spare.length - 1; k >= 0; k--) if (spare[k].length === cells) return spare.splice(k, 1)[0];
+  return new Int32Array(cells);
 }
 
 /** `corr` with its predictor's differences formed where they were deferred. */
@@ -329,7 +360,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
   const checked = e > 0 && Number.isFinite(step);
   if (checked) {
     // Every cell of q is written: a grid a candidate gave back will do.
-    q = search?.spare.pop() ?? new Int32Array(cells);
+    q = spareGrid(search, cells);
     // Without missing cells, the plain predictors' bits are summed row by row as the codes are settled.
     const sums = t.classes.special > 0 ? null : new Float64Array(PREDICTOR_SUMS);
     const settled = settleCodes(t, f, center, e, step, q, exceptions, sums);
@@ -447,13 +478,13 @@ export function pointwiseFactors(t: PreparedTile, r: number, e: number): Factors
  * lattice point within e (exact when e is below half the lattice step).
  */
 function rankZero(t: PreparedTile, e: number): Checked[] {
-  const out: Checked[] = [checked(t, null, e)];
+  const out: Checked[] = [checked(t, null, e, undefined, undefined, searchGrids)];
   const { quantum, origin } = t.lattice;
   if (quantum > 0 && e >= 0) {
     const k = 2 * Math.floor(e / quantum) + 1;
     const step = k * quantum;
     const center = origin + Math.round((t.center - origin) / quantum) * quantum;
-    if (step <= 2 ** 52 && Number.isFinite(center)) out.push(checked(t, null, Math.max(e, Number.MIN_VALUE), step, center));
+    if (step <= 2 ** 52 && Number.isFinite(center)) out.push(checked(t, null, Math.max(e, Number.MIN_VALUE), step, center, searchGrids));
   }
   return out;
 }
@@ -732,23 +763,17 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
   let prev = Math.min(...rank0.map((c) => c.estimate));
   // The best CODED_RANKS so far by estimate, ascending (the one tried first on a tie), with the order tried.
   const kept: (Checked & { order: number })[] = [];
-  // The code grids of candidates that are not kept, for the next candidates' codes (correct() writes
-  // every cell): a 1024 x 1024 tile's grid is 4 MiB, and new ones cost the collector and page faults.
-  // Nothing else holds a dropped candidate's grids (of the rank-0 ones, the caller reads the estimate only).
-  const search: SearchScratch = { spare: [] };
-  const giveBack = ({ corr }: Checked) => {
-    if (corr.q !== null) search.spare.push(corr.q);
-    if (corr.raw !== undefined && corr.raw !== corr.q) search.spare.push(corr.raw);
-  };
+  // The grids of candidates that are not kept go to the next candidates' codes: nothing else holds
+  // them (of the rank-0 ones, the caller reads the estimate only).
   const keep = (c: Checked, order: number) => {
     let at = kept.length;
     while (at > 0 && kept[at - 1].estimate > c.estimate) at--;
     if (at >= CODED_RANKS) {
-      giveBack(c);
+      giveBack(c.corr);
       return;
     }
     kept.splice(at, 0, { ...c, order });
-    if (kept.length > CODED_RANKS) giveBack(kept.pop()!);
+    if (kept.length > CODED_RANKS) giveBack(kept.pop()!.corr);
   };
   rank0.forEach(keep);
   for (const r of RANKS) {
@@ -760,14 +785,13 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
     if (r > numRank) break;
     const f = pointwiseFactors(t, r, e);
     if (!f) break;
-    const c = checked(t, f, e, undefined, undefined, search);
+    const c = checked(t, f, e, undefined, undefined, searchGrids);
     keep(c, rank0.length + r);
     worse = c.estimate >= prev ? worse + 1 : 0;
     prev = c.estimate;
     if (worse >= PATIENCE && r >= MIN_RANKS_TRIED) break;
   }
-  // The differences of the candidates to be coded (the others' were never formed).
-  return kept.sort((a, b) => a.order - b.order).map((c) => ({ ...c, corr: formed(t, c.corr) }));
+  return kept.sort((a, b) => a.order - b.order);
 }
 
 /**
@@ -778,7 +802,9 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
  * stream, the stream's length and at least 3 bytes more: method, flags,
  * rank), as it would then be longer.
  */
-function smallest(t: PreparedTile, candidates: Checked[]): Candidate {
+function smallest(t: PreparedTile, checkedOnes: Checked[]): Candidate {
+  // The differences of the candidates to be coded (the others' were never formed).
+  const candidates = checkedOnes.map((c) => ({ ...c, corr: formed(t, c.corr) }));
   const order = candidates.map((_c, k) => k).sort((a, b) => candidates[a].estimate - candidates[b].estimate || a - b);
   let best: Candidate | null = null;
   let bestAt = -1;
@@ -791,6 +817,11 @@ function smallest(t: PreparedTile, candidates: Checked[]): Candidate {
       bestAt = k;
     }
   }
+  // The others' grids are no one's now (a coded candidate's payload holds bytes, not its grids).
+  const kept = bestAt >= 0 ? candidates[bestAt].corr : null;
+  candidates.forEach((c, k) => {
+    if (k !== bestAt) giveBack(c.corr, kept);
+  });
   return best!;
 }
 
