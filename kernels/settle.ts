@@ -97,6 +97,7 @@ function settleRow(row: usize, orig: usize, f32: i32, codes: usize, at: usize, n
   const one = f64x2.splat(1.0);
   const lim = f64x2.splat(<f64>LIMIT);
   const nlim = f64x2.splat(-<f64>LIMIT);
+  const magic = f64x2.splat(6755399441055744.0);
   let bitsV = i32x4.splat(0);
   let mostV = i32x4.splat(0);
   let nonzeroV = i32x4.splat(0);
@@ -127,7 +128,9 @@ function settleRow(row: usize, orig: usize, f32: i32, codes: usize, at: usize, n
     r1 = v128.bitselect(f64x2.sub(r1, one), r1, f64x2.gt(f64x2.sub(r1, half), x1));
     r0 = v128.and(r0, v128.and(f64x2.le(r0, lim), f64x2.ge(r0, nlim)));
     r1 = v128.and(r1, v128.and(f64x2.le(r1, lim), f64x2.ge(r1, nlim)));
-    let v = i32x4.shuffle(i32x4.trunc_sat_f64x2_s_zero(r0), i32x4.trunc_sat_f64x2_s_zero(r1), 0, 1, 4, 5);
+    // The codes as i32: an integer within +-2^30 plus 1.5 x 2^52 is exact, and the low 32 bits of its
+    // significand are the integer's two's complement.
+    let v = i32x4.shuffle(f64x2.add(r0, magic), f64x2.add(r1, magic), 0, 2, 4, 6);
     // Valid cells (in the row, and of class 0 where there are class codes); the others get code 0 and no check.
     let valid = i32x4.lt_s(i32x4.add(iota, i32x4.splat(j)), nv);
     if (codes !== 0) valid = v128.and(valid, i32x4.eq(i32x4.extend_low_i16x8_u(i16x8.extend_low_i8x16_u(v128.load32_zero(codes + c))), i32x4.splat(0)));
@@ -137,9 +140,10 @@ function settleRow(row: usize, orig: usize, f32: i32, codes: usize, at: usize, n
     mostV = v128.or(mostV, a);
     nonzeroV = i32x4.sub(nonzeroV, i32x4.ne(a, i32x4.splat(0)));
     bitsV = i32x4.add(bitsV, bitLength(v128.andnot(a, i32x4.shr_u(a, 1))));
-    // The check: b + v step, rounded to binary32 for an f32 tile, within e of o.
-    let s0 = f64x2.add(b0, f64x2.mul(f64x2.convert_low_i32x4_s(v), sv));
-    let s1 = f64x2.add(b1, f64x2.mul(f64x2.convert_low_i32x4_s(i32x4.shuffle(v, v, 2, 3, 2, 3)), sv));
+    // The check: b + v step, rounded to binary32 for an f32 tile, within e of o (r is v as binary64, +0 for 0;
+    // a cell that is not valid has code 0 whatever r is, and no check).
+    let s0 = f64x2.add(b0, f64x2.mul(r0, sv));
+    let s1 = f64x2.add(b1, f64x2.mul(r1, sv));
     if (f32 !== 0) {
       s0 = f64x2.promote_low_f32x4(f32x4.demote_f64x2_zero(s0));
       s1 = f64x2.promote_low_f32x4(f32x4.demote_f64x2_zero(s1));
