@@ -152,8 +152,8 @@ interface SearchScratch {
  * at most {@link SPARE_BYTES} are kept.
  */
 const searchGrids: SearchScratch = { spare: [] };
-/** Common practice, no source: a few large tiles' grids. */
-const SPARE_BYTES = 32 * 1024 * 1024;
+/** As the kernels' memory kept between uses (src/wasm/kernels.ts, KEEP_BYTES): four grids of a 1024 x 1024 tile, more than a search holds spare at once. */
+const SPARE_BYTES = 16 * 1024 * 1024;
 
 /** Give back the code grids of a candidate no one holds any more (none of `keep`'s). */
 function giveBack(corr: Correction, keep: Correction | null = null): void {
