@@ -96,7 +96,6 @@ function settleRow(row: usize, orig: usize, f32: i32, codes: usize, at: usize, n
   const half = f64x2.splat(0.5);
   const one = f64x2.splat(1.0);
   const lim = f64x2.splat(<f64>LIMIT);
-  const nlim = f64x2.splat(-<f64>LIMIT);
   const magic = f64x2.splat(6755399441055744.0);
   let bitsV = i32x4.splat(0);
   let mostV = i32x4.splat(0);
@@ -119,15 +118,16 @@ function settleRow(row: usize, orig: usize, f32: i32, codes: usize, at: usize, n
     }
     const b0 = v128.load(row + (<usize>j << 3));
     const b1 = v128.load(row + (<usize>j << 3), 16);
-    // roundHalfUp: floor(x + 0.5), less 1 where that minus 0.5 is above x; 0 outside +-LIMIT (and for NaN).
+    // roundHalfUp: floor(x + 0.5), less 1 where that minus 0.5 is above x (r - 1 there, elsewhere r - (+0),
+    // which is r itself, -0 and NaN included); 0 where |r| passes LIMIT (and for NaN).
     const x0 = f64x2.div(f64x2.sub(o0, b0), sv);
     const x1 = f64x2.div(f64x2.sub(o1, b1), sv);
     let r0 = f64x2.floor(f64x2.add(x0, half));
     let r1 = f64x2.floor(f64x2.add(x1, half));
-    r0 = v128.bitselect(f64x2.sub(r0, one), r0, f64x2.gt(f64x2.sub(r0, half), x0));
-    r1 = v128.bitselect(f64x2.sub(r1, one), r1, f64x2.gt(f64x2.sub(r1, half), x1));
-    r0 = v128.and(r0, v128.and(f64x2.le(r0, lim), f64x2.ge(r0, nlim)));
-    r1 = v128.and(r1, v128.and(f64x2.le(r1, lim), f64x2.ge(r1, nlim)));
+    r0 = f64x2.sub(r0, v128.and(f64x2.gt(f64x2.sub(r0, half), x0), one));
+    r1 = f64x2.sub(r1, v128.and(f64x2.gt(f64x2.sub(r1, half), x1), one));
+    r0 = v128.and(r0, f64x2.le(f64x2.abs(r0), lim));
+    r1 = v128.and(r1, f64x2.le(f64x2.abs(r1), lim));
     // The codes as i32: an integer within +-2^30 plus 1.5 x 2^52 is exact, and the low 32 bits of its
     // significand are the integer's two's complement.
     let v = i32x4.shuffle(f64x2.add(r0, magic), f64x2.add(r1, magic), 0, 2, 4, 6);
