@@ -4,7 +4,11 @@
  * and sums as the JavaScript in src/codec/settle.ts (settleCodes over
  * the low-rank part of lowRank and addLayer), band by band of rows, so that
  * neither the product nor the tile's values leave the cache between its
- * steps.
+ * steps. bench/kernels.ts, "candidate check" (two runs on a shared host):
+ * 2.5x the JavaScript's speed on a 61 x 87 tile, 3.6-4.2x on 256 x 256;
+ * correct() on a 1024 x 1024 tile of bench/'s large field at rank 4 took
+ * 4.5-4.7 ns a cell against 10.2-11.9 before (scratch measurement, three
+ * alternating runs).
  */
 import { ENCODE_KERNELS } from './kernels-bytes.js';
 import { kernels, SCRATCH_AT } from './kernels.js';
