@@ -182,7 +182,14 @@ function push(exc: usize, count: i32, cell: i32): i32 {
 // @ts-ignore: decorator
 @inline
 function bitLength(a: v128): v128 {
-  return i16x8.sub_sat_u(i32x4.shr_u(f32x4.convert_i32x4_s(a), 23), i32x4.splat(126));
+  return i16x8.sub_sat_u(exponentField(a), i32x4.splat(126));
+}
+
+/** The binary32 exponent fields of four magnitudes as {@link bitLength} takes them: 0 for 0, else 126 + the bit length. */
+// @ts-ignore: decorator
+@inline
+function exponentField(a: v128): v128 {
+  return i32x4.shr_u(f32x4.convert_i32x4_s(a), 23);
 }
 
 /** Adds a row's five predictor totals into the five binary64 sums at `at`. */
@@ -234,17 +241,18 @@ function smallRow(qr: usize, n: i32, state: usize): void {
     const hi = i32x4.max_s(a, b);
     const lorenzo = i32x4.sub(s, d);
     const median = v128.bitselect(lo, v128.bitselect(hi, lorenzo, i32x4.le_s(d, lo)), i32x4.ge_s(d, hi));
-    // Each difference's bit length added, and its lane's count less 1 (an all-ones mask) where it is not 0.
+    // Each difference's binary32 exponent field added (0 for 0, else 126 + its bit length), and its
+    // lane's count less 1 (an all-ones mask) where it is not 0: the bits are the fields less 126 a count.
     const v1 = i32x4.sub(x, lorenzo);
     const v2 = i32x4.sub(x, a);
     const v3 = i32x4.sub(x, b);
     const v4 = i32x4.sub(x, i32x4.shr_s(s, 1));
     const v5 = i32x4.sub(x, median);
-    k1 = i32x4.add(k1, bitLength(i32x4.abs(v1)));
-    k2 = i32x4.add(k2, bitLength(i32x4.abs(v2)));
-    k3 = i32x4.add(k3, bitLength(i32x4.abs(v3)));
-    k4 = i32x4.add(k4, bitLength(i32x4.abs(v4)));
-    k5 = i32x4.add(k5, bitLength(i32x4.abs(v5)));
+    k1 = i32x4.add(k1, exponentField(i32x4.abs(v1)));
+    k2 = i32x4.add(k2, exponentField(i32x4.abs(v2)));
+    k3 = i32x4.add(k3, exponentField(i32x4.abs(v3)));
+    k4 = i32x4.add(k4, exponentField(i32x4.abs(v4)));
+    k5 = i32x4.add(k5, exponentField(i32x4.abs(v5)));
     z1 = i32x4.sub(z1, i32x4.ne(v1, zero));
     z2 = i32x4.sub(z2, i32x4.ne(v2, zero));
     z3 = i32x4.sub(z3, i32x4.ne(v3, zero));
@@ -253,13 +261,13 @@ function smallRow(qr: usize, n: i32, state: usize): void {
   }
   // The first column's difference, the same for every predictor.
   const ez = e0 !== 0 ? 1 : 0;
-  const n1 = ez + lanes(z1);
-  const n2 = ez + lanes(z2);
-  const n3 = ez + lanes(z3);
-  const n4 = ez + lanes(z4);
-  const n5 = ez + lanes(z5);
-  addSums(state, edge + lanes(k1), edge + lanes(k2), edge + lanes(k3), edge + lanes(k4), edge + lanes(k5));
-  addSums(state + NONZERO, n1, n2, n3, n4, n5);
+  const n1 = lanes(z1);
+  const n2 = lanes(z2);
+  const n3 = lanes(z3);
+  const n4 = lanes(z4);
+  const n5 = lanes(z5);
+  addSums(state, edge + lanes(k1) - 126 * n1, edge + lanes(k2) - 126 * n2, edge + lanes(k3) - 126 * n3, edge + lanes(k4) - 126 * n4, edge + lanes(k5) - 126 * n5);
+  addSums(state + NONZERO, ez + n1, ez + n2, ez + n3, ez + n4, ez + n5);
   // The last cells (fewer than four).
   plainRow(qr, n, false, state, j);
 }
