@@ -1,9 +1,10 @@
 #!/usr/bin/env node
 /**
  * Compiles the WebAssembly kernels (kernels/*.ts, AssemblyScript, the exact
- * version pinned in package.json's devDependencies), three modules from
- * three entry files (kernels/decode.ts and kernels/symbols.ts for the
- * decoder, kernels/linalg.ts for the linear algebra of both sides, each
+ * version pinned in package.json's devDependencies), four modules from
+ * four entry files (kernels/decode.ts and kernels/symbols.ts for the
+ * decoder, kernels/linalg.ts for the linear algebra of both sides,
+ * kernels/encode.ts for the encoder's check of a candidate, each
  * under 4 KiB: src/wasm/kernels.ts says why), and writes
  * their bytes, base64, into src/wasm/kernels-bytes.ts, which is committed:
  * installing and building rankfield need no compiler. `npm run kernels` after a change
@@ -30,6 +31,7 @@ const MODULES = [
   ['DECODE_KERNELS', 'kernels/decode.ts'],
   ['LINALG_KERNELS', 'kernels/linalg.ts'],
   ['SYMBOL_KERNELS', 'kernels/symbols.ts'],
+  ['ENCODE_KERNELS', 'kernels/encode.ts'],
 ];
 
 async function compile(entry) {

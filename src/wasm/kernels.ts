@@ -1,12 +1,13 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in three modules: the linear-algebra module, with the range finder's
+ * in four modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
  * the decoder's module, with the blend predictor's decoding walk and the
  * binary coder's decoder; the symbol coder's decoder in a module of its
- * own (the decoder's module is near the size limit below). Each kernel is
+ * own (the decoder's module is near the size limit below); the encoder's
+ * module, with the pointwise check of a candidate (readers never load it). Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,
