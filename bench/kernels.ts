@@ -2,8 +2,10 @@
  * The WebAssembly kernels against their JavaScript versions, in one
  * process: the range finder's product (G multiply-adds a second, sketch
  * copies included), the blend predictor's decoding walk, the binary
- * coder's and the symbol coder's decoders, and the low-rank product of a
- * tile's reconstruction (ns a cell, copies in and out included). Medians of tinybench runs; each kernel's
+ * coder's and the symbol coder's decoders, the low-rank product of a
+ * tile's reconstruction, and the pointwise encoder's check of a candidate
+ * (settleCodes: its low-rank part, codes, exceptions and predictor sums)
+ * (ns a cell, copies in and out included). Medians of tinybench runs; each kernel's
  * speed-up is the ratio of the two medians. Prints a table; writes
  * nothing. `npm run build && npx tsc -p tsconfig.bench.json && node
  * bench/dist/bench/kernels.js`.
@@ -13,7 +15,11 @@ import { decodeInts } from '../src/codec/code-decode.js';
 import { encodeInts } from '../src/codec/code-encode.js';
 import { decodeSymbols } from '../src/codec/code-symbols.js';
 import { encodeSymbols } from '../src/codec/code-symbols-encode.js';
-import { lowRank, predict, Predictor, unpredict } from '../src/codec/reconstruct.js';
+import { ensureSvd, prepareTile } from '../src/codec/prepare.js';
+import { lowRank, predict, Predictor, PREDICTOR_SUMS, unpredict } from '../src/codec/reconstruct.js';
+import { settleCodes } from '../src/codec/settle.js';
+import { binary32Below } from '../src/codec/steps.js';
+import { pointwiseFactors } from '../src/codec/tile-encode.js';
 import { matrixProducts } from '../src/linalg/product.js';
 import { setKernelMode } from '../src/wasm/kernels.js';
 import { xorshift32 } from './rng.js';
@@ -92,6 +98,18 @@ for (const [m, n] of [
     const wasmLow = await median('auto', () => lowRank(l, w, m, n, r, 0.5, acc));
     rows.push(`| low-rank product | ${m} x ${n}, rank ${r} | ${ns(jsLow)} | ${ns(wasmLow)} | ${(jsLow / wasmLow).toFixed(2)}x |`);
   }
+  // A binary32 tile of the surface, checked at a bound of 1/20 of a unit with its own rank-4 factors, as the pointwise search does.
+  const tile = prepareTile(Float32Array.from(surface(m, n, m + 2)), m, n, 'f32', null, 0.05);
+  ensureSvd(tile, 4);
+  const factors = pointwiseFactors(tile, 4, 0.05);
+  if (factors === null) throw new Error('no rank-4 factors');
+  const codes = new Int32Array(m * n);
+  const check = (): void => {
+    settleCodes(tile, factors, tile.center, 0.05, binary32Below(0.1), codes, [], new Float64Array(PREDICTOR_SUMS));
+  };
+  const jsCheck = await median('js', check);
+  const wasmCheck = await median('auto', check);
+  rows.push(`| candidate check | ${m} x ${n}, f32, rank 4 | ${ns(jsCheck)} | ${ns(wasmCheck)} | ${(jsCheck / wasmCheck).toFixed(2)}x |`);
 }
 setKernelMode(undefined);
 console.log(rows.join('\n'));

@@ -235,11 +235,19 @@ function trialSamples(spec: FieldSpec): [number, number, number[]][] {
  * stopping only at a candidate 2% worse than the best, 0.82 on the quick
  * fields (turbulence's 128 x 128 tiles did 0.6% worse than 256 x 256 at
  * rel:1e-3, and 64 x 64 worse still).
- * Larger fields keep the ascending order (the huge square is tried only
- * after the large one did best).
+ * Thin fields (a side of at most {@link THIN_SIDE}: time x space
+ * matrices, long sections) are weighed the same way, longest strip first:
+ * measured on bench/'s basin-stack (128 x 6144) and turbulence-stack
+ * (32 x 16384) at the six bench bounds (scratch measurement, issue 10:
+ * every candidate's sample cost, finished and searched), the rule chose
+ * the shape the exhaustive trial chooses in all 12 cases, for 0.46 to 0.70
+ * of its time (the long strips' samples cover the whole field, and they
+ * won or came within a few per cent of winning everywhere).
+ * Other large fields keep the ascending order (the huge square is tried
+ * only after the large one did best).
  */
 function largestFirst(spec: FieldSpec): boolean {
-  return spec.rows * spec.cols <= WHOLE_CELLS;
+  return spec.rows * spec.cols <= WHOLE_CELLS || Math.min(spec.rows, spec.cols) <= THIN_SIDE;
 }
 
 /**
@@ -305,7 +313,7 @@ class TrialChoice {
 export interface TileTrial {
   shape: [number, number];
   done: Map<number, TileOutcome>;
-  /** Under an L2 bound, the plan of a trial whose small field was the first slice itself, as one tile (see FieldPrior). */
+  /** Under an L2 bound, the plan of a trial whose small field was the first slice itself (see tryMosaic and FieldPrior). */
   plan?: L2Plan;
   /** Under an L2 bound, the singular values of the sampled tiles, by the field's tile index (see FieldPrior). */
   spectra?: ReadonlyMap<number, Float64Array>;
@@ -383,9 +391,14 @@ function addOutcome(tried: Tried, index: number, o: TileOutcome, searched: boole
  * plans (on every tile of the small field): the cheapest plan's bytes. A
  * small field whose first pass does not keep its tiles, or that has one
  * candidate plan, is packed whole instead. When the small field is the
- * first slice itself as one tile (of the field's own tolerance, `field`),
+ * first slice itself (of the field's own tolerance, `field`): one tile, or
+ * every tile of a field one tile high, each whole and in its place,
  * its plan is the one the field's planning pass would make from the same
- * first pass and tiles, and is returned for it.
+ * first pass and tiles (the costing's sample is every tile either way:
+ * a trial samples at most {@link TRIAL_TILES}), and is returned for it,
+ * with the tiles and the payloads the costing made of them. On bench/'s
+ * basin-stack at psnr:80 (128 x 6144, 128 x 3072 tiles chosen), the field's
+ * own plan made again cost about a quarter of the pack.
  */
 function tryMosaic(src: BandSource, spec: FieldSpec, m: number, n: number, picked: readonly number[], field: FieldChoices, beat: number): Tried {
   const mo = mosaicOf(src, spec, m, n, picked);
@@ -450,7 +463,7 @@ interface Mosaic {
   all: number[];
   /** Whether it is planned (an L2 basis, tiles kept): else packed whole. */
   planned: boolean;
-  /** Whether the small field is the field's first slice itself, as one tile. */
+  /** Whether the small field is the field's first slice itself, laid out as it (see {@link tryMosaic}). */
   whole: boolean;
 }
 
@@ -471,7 +484,7 @@ function mosaicOf(src: BandSource, spec: FieldSpec, m: number, n: number, picked
   const trial: FieldSpec = { ...spec, rows: m, cols: width, tileRows: m, tileCols: n, autoTile: false, guardFill: false, ...(spec.layer ? { layerOrigins: origins } : {}) }; // the field's own pass guards
   const basis = fieldBasis(trialSrc, trial);
   const all = Array.from({ length: picked.length }, (_, k) => k);
-  return { src: trialSrc, spec: trial, basis, fieldIndex, all, planned: !basis.pointwise && keepsTiles(trial), whole: picked.length === 1 && m === spec.rows && n === spec.cols };
+  return { src: trialSrc, spec: trial, basis, fieldIndex, all, planned: !basis.pointwise && keepsTiles(trial), whole: m === spec.rows && picked.length * n === spec.cols };
 }
 
 /** Bytes that could not beat the best candidate so far end the costing (the same comparison as TrialChoice.add). */

@@ -100,8 +100,8 @@ export interface FieldPrior {
   done: ReadonlyMap<number, TileOutcome>;
   /**
    * The L2 plan, when the trial made the field's own (a trial on the whole
-   * field as one tile plans exactly as the encoding pass would): used as it
-   * is, not made again.
+   * field, as one tile or as every tile of a field one tile high, plans
+   * exactly as the encoding pass would): used as it is, not made again.
    */
   plan?: L2Plan;
   /** The singular values of the tiles the trial sampled, by tile index: the planning pass takes them as they are (see tileSpectrum in plan-l2.ts). */

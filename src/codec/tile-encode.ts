@@ -3,13 +3,12 @@
  * candidate payloads and keep the smallest that the decoder reproduces
  * within the bound.
  */
-import { addLayer } from './layer.js';
 import { ByteWriter } from '../format/bytes.js';
 import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, payloadHead, RESIDUAL_SYMBOLS, residualPlace, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
-import { blendDifferences, lowRank, predict, predictorBitsOf, predictorBitsRow, predictedFill, Predictor, PREDICTOR_SUMS, withResidual } from './reconstruct.js';
+import { blendDifferences, predict, predictorBitsOf, predictedFill, Predictor, PREDICTOR_SUMS } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -19,6 +18,7 @@ import { encodeInts, encodeIntsWithin } from './code-encode.js';
 import { decodeInts } from './code-decode.js';
 import { encodeSymbolsWithin } from './code-symbols-encode.js';
 import { MAX_INT } from './section.js';
+import { settleCodes, unsettledCells } from './settle.js';
 import { writeSection } from './section-write.js';
 import { binary32Below, MIN_STEP, stepCode, stepValue } from './steps.js';
 
@@ -138,6 +138,35 @@ export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget:
   return { rank: r, codeU, codeW: cw, qu, qw, l, w };
 }
 
+/** What the pointwise search lends correct(): code grids that no candidate holds any more (correct() takes one of the tile's size). */
+interface SearchScratch {
+  spare: Int32Array[];
+}
+
+/**
+ * This thread's code grids that no candidate holds any more, kept from tile
+ * to tile: the pointwise search settles its candidates' codes into them
+ * (correct() writes every cell) rather than into new ones, which cost the
+ * collector and page faults (a 1024 x 1024 tile's grid is 4 MiB). The
+ * grids of the candidates a search drops or does not pick are given back;
+ * at most {@link SPARE_BYTES} are kept.
+ */
+const searchGrids: SearchScratch = { spare: [] };
+/** Four grids of a 1024 x 1024 tile, more than a search holds spare at once (half the kernels' memory kept between uses, src/wasm/kernels.ts KEEP_BYTES). */
+const SPARE_BYTES = 16 * 1024 * 1024;
+
+/** Give back the code grids of a candidate no one holds any more (none of `keep`'s). */
+function giveBack(corr: Correction, keep: Correction | null = null): void {
+  const spare = searchGrids.spare;
+  for (const g of [corr.q, corr.raw]) {
+    if (!g || g === keep?.q || g === keep?.raw || spare.includes(g)) continue;
+    spare.push(g);
+  }
+  let bytes = 0;
+  for (const g of spare) bytes += g.byteLength;
+  while (bytes > SPARE_BYTES) bytes -= spare.shift()!.byteLength;
+}
+
 /** Residual and exceptions of a pointwise candidate. */
 interface Correction {
   /** The centre the candidate reconstructs around (the tile's, or one on its lattice). */
@@ -152,6 +181,27 @@ interface Correction {
   /** The residual codes before prediction (missing cells 0), and the rough bits of the chosen prediction's differences: for {@link blendVariant}. */
   raw?: Int32Array;
   bits?: number;
+  /** The non-zero entries of q, where the check counted them (otherwise they are counted in q). */
+  nonzero?: number;
+  /**
+   * True while q holds the codes before prediction (raw) rather than the
+   * predictor's differences: the search forms them ({@link formed}) only
+   * for the candidates it codes.
+   */
+  deferred?: boolean;
+}
+
+/** A grid of `cells` codes from `search`'s spare ones (the last given back first), or a new one. */
+function spareGrid(search: SearchScratch | null, cells: number): Int32Array {
+  const spare = search?.spare ?? [];
+  for (let k = spare.length - 1; k >= 0; k--) if (spare[k].length === cells) return spare.splice(k, 1)[0];
+  return new Int32Array(cells);
+}
+
+/** `corr` with its predictor's differences formed where they were deferred. */
+function formed(t: PreparedTile, corr: Correction): Correction {
+  if (!corr.deferred || !corr.raw) return corr;
+  return { ...corr, q: predict(corr.raw, t.m, t.n, MAX_INT, corr.predictor)!, deferred: false };
 }
 
 /**
@@ -289,119 +339,44 @@ function roughBits(v: Int32Array): number {
   return s;
 }
 
-/**
- * Math.round(x) (the integer nearest x, a tie going up; ECMA-262
- * Math.round, from memory), except that it gives +0 where Math.round gives
- * -0 (x in [-0.5, -0]). floor(x + 0.5) is it unless x + 0.5 rounds up to
- * the next integer (x just below a half, or an odd integer at 2^52 and
- * above), which r - 0.5 > x detects: r - 0.5 is exact for the integers
- * where it matters, and for r = round(x) it is at most x. V8 compiles
- * Math.round to a ceiling and a test that goes either way about half the
- * time on residuals, a mispredicted branch a cell; this test almost never
- * holds (a 512 x 512 grid of random values rounded 4.4x faster, scratch
- * measurement, issue 10).
- */
-export function roundHalfUp(x: number): number {
-  let r = Math.floor(x + 0.5);
-  if (r - 0.5 > x) r -= 1;
-  return r;
-}
-
-/**
- * Settle the codes of a checked candidate into q (0 where none is kept: a
- * code of 0, or one beyond +-MAX_INT) and its failing cells into
- * `exceptions`, cell by cell with the decoder's arithmetic (see
- * {@link correct}). With `sums` (a tile without missing cells), each row's
- * part of predictorBits is added as soon as the row is settled, while it is
- * in cache. Returns whether a code is kept, the rough bits of q itself, and
- * false in `sumsOk` when an edge difference passed the code limit.
- */
-function settleCodes(t: PreparedTile, base: Float64Array, e: number, step: number, q: Int32Array, exceptions: number[], sums: Float64Array | null): { any: boolean; bits: number; sumsOk: boolean } {
-  const { m, n, orig } = t;
-  const codes = t.classes.codes;
-  const masked = t.classes.special > 0;
-  const f32 = t.dtype === 'f32';
-  const valid = Cell.Valid;
-  const limit = MAX_INT;
-  // Kept codes, their bits and the OR of their magnitudes, without a branch on the code (its sign
-  // and whether it is 0 go either way on a residual, a mispredicted branch a cell): every code fits
-  // an int32 once the rare one beyond the limit is 0, |v| is (v ^ s) - s with s = v >> 31, and
-  // (|v| + 2^31 - 1) >>> 31 is 1 for |v| >= 1, 0 for 0. A 0 is written where q already holds one.
-  let kept = 0;
-  let bits = 0;
-  let sumsOk = sums !== null;
-  // The OR of |code| over the row above: a row pair below 2^28 (so at most limit / 4) takes
-  // predictorBitsRow's unchecked path.
-  let above = 0;
-  for (let i = 0; i < m; i++) {
-    let most = 0;
-    const end = i * n + n;
-    for (let c = i * n; c < end; c++) {
-      if (masked && codes[c] !== valid) continue;
-      const o = orig[c];
-      const b = base[c];
-      let v = roundHalfUp((o - b) / step);
-      if (!(v <= limit && v >= -limit)) v = 0;
-      v |= 0;
-      q[c] = v;
-      const sign = v >> 31;
-      const a = (v ^ sign) - sign;
-      kept += (a + 0x7fffffff) >>> 31;
-      bits += 32 - Math.clz32(a);
-      most |= a;
-      const sum = withResidual(b, v, step);
-      if (!(Math.abs(o - (f32 ? Math.fround(sum) : sum)) <= e)) exceptions.push(c);
-    }
-    if (sumsOk) sumsOk = predictorBitsRow(q, n, limit, i, sums!, (most | above) < 2 ** 28);
-    above = most;
-  }
-  return { any: kept > 0, bits, sumsOk };
-}
-
-/** Each tile's scratch grid for {@link correct}'s low-rank part (overwritten whole by every candidate, kept by none). */
-const bases = new WeakMap<PreparedTile, Float64Array>();
-
-function baseScratch(t: PreparedTile): Float64Array {
-  let b = bases.get(t);
-  if (b === undefined) {
-    b = new Float64Array(t.m * t.n);
-    bases.set(t, b);
-  }
-  return b;
-}
+export { roundHalfUp } from './settle.js';
 
 /**
  * The residual of a candidate against the pointwise bound e, computed with the
  * decoder's own arithmetic, and the cells that still fail (stored exactly).
  * The step is 2e, or `step` when given (with `center`, for lattice candidates).
+ * With `search` (the pointwise search's), its spare code grids are taken
+ * for the codes instead of a new one, and, without the blend, the chosen
+ * predictor's differences are left to {@link formed} where the check
+ * counted their non-zero entries.
  */
-export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, blendToo = true): Correction {
+export function correct(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, blendToo = true, search: SearchScratch | null = null): Correction {
   const { m, n } = t;
   const cells = m * n;
-  // The decoder's own arithmetic: the low-rank part and centre here, the rest in reconstruct().
-  const base = baseScratch(t);
-  if (f) lowRank(f.l, f.w, m, n, f.rank, center, base);
-  else lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, center, base);
-  if (t.layer) addLayer(base, t.layer, cells);
   const codes = t.classes.codes;
   let q: Int32Array | null = null;
   let predictor: number = Predictor.None;
   let coded: Uint8Array | undefined;
   let raw: Int32Array | undefined;
   let rawBits: number | undefined;
+  let nonzero: number | undefined;
+  let deferred: boolean | undefined;
   const exceptions: number[] = [];
   // The reconstruction of a valid cell is the decoder's withResidual() of its low-rank part and its own
   // code, rounded to the dtype as reconstruct() stores it (the predictor changes only the coded
-  // differences, and missing cells are not checked): so each cell is checked as its code is chosen.
-  const f32 = t.dtype === 'f32';
+  // differences, and missing cells are not checked): so each cell is checked as its code is chosen
+  // (./settle.ts).
   const checked = e > 0 && Number.isFinite(step);
   if (checked) {
-    q = new Int32Array(cells);
+    // Every cell of q is written: a grid a candidate gave back will do.
+    q = spareGrid(search, cells);
     // Without missing cells, the plain predictors' bits are summed row by row as the codes are settled.
     const sums = t.classes.special > 0 ? null : new Float64Array(PREDICTOR_SUMS);
-    const settled = settleCodes(t, base, e, step, q, exceptions, sums);
-    if (!settled.any) q = null;
-    else {
+    const settled = settleCodes(t, f, center, e, step, q, exceptions, sums);
+    if (!settled.any) {
+      search?.spare.push(q);
+      q = null;
+    } else {
       // The predictor whose residual looks cheapest. Missing cells take the value the
       // predictor expects, so they cost nothing (the decoder overwrites them anyway).
       let best = q;
@@ -431,7 +406,11 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
           predictor = kind;
         }
       }
-      if (plain !== null && predictor !== Predictor.None) best = predict(q, m, n, MAX_INT, predictor)!;
+      if (plain !== null && settled.nonzero !== null) nonzero = settled.nonzero[predictor === Predictor.None ? 5 : predictor - 1];
+      if (plain !== null && predictor !== Predictor.None) {
+        if (search !== null && !blendToo && nonzero !== undefined) deferred = true;
+        else best = predict(q, m, n, MAX_INT, predictor)!;
+      }
       if (blend !== null) {
         // The blend looks cheaper, but it decodes several times slower than the others and
         // bit lengths are only an estimate: both are coded, and the blend must save 1%.
@@ -449,14 +428,8 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
       q = best;
     }
   }
-  if (!checked) {
-    // No residual (e <= 0, or a step that is not finite): the low-rank part alone.
-    for (let c = 0; c < cells; c++) {
-      if (codes[c] !== Cell.Valid) continue;
-      if (!(Math.abs(t.orig[c] - (f32 ? Math.fround(base[c]) : base[c])) <= e)) exceptions.push(c);
-    }
-  }
-  return { center, step, q, predictor, exceptions, coded, raw, bits: rawBits };
+  // No residual (e <= 0, or a step that is not finite): the low-rank part alone.
+  return { center, step, q, predictor, exceptions: checked ? exceptions : unsettledCells(t, f, center, e), coded, raw, bits: rawBits, nonzero, deferred };
 }
 
 /**
@@ -526,13 +499,13 @@ export function pointwiseFactors(t: PreparedTile, r: number, e: number): Factors
  * lattice point within e (exact when e is below half the lattice step).
  */
 function rankZero(t: PreparedTile, e: number): Checked[] {
-  const out: Checked[] = [checked(t, null, e)];
+  const out: Checked[] = [checked(t, null, e, undefined, undefined, searchGrids)];
   const { quantum, origin } = t.lattice;
   if (quantum > 0 && e >= 0) {
     const k = 2 * Math.floor(e / quantum) + 1;
     const step = k * quantum;
     const center = origin + Math.round((t.center - origin) / quantum) * quantum;
-    if (step <= 2 ** 52 && Number.isFinite(center)) out.push(checked(t, null, Math.max(e, Number.MIN_VALUE), step, center));
+    if (step <= 2 ** 52 && Number.isFinite(center)) out.push(checked(t, null, Math.max(e, Number.MIN_VALUE), step, center, searchGrids));
   }
   return out;
 }
@@ -561,8 +534,8 @@ interface Checked {
   estimate: number;
 }
 
-function checked(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center): Checked {
-  const corr = correct(t, f, e, step, center, false);
+function checked(t: PreparedTile, f: Factors | null, e: number, step = binary32Below(2 * e), center = t.center, search: SearchScratch | null = null): Checked {
+  const corr = correct(t, f, e, step, center, false, search);
   return { f, corr, estimate: estimateBytes(t, f, corr) };
 }
 
@@ -756,7 +729,7 @@ const CODED_RANKS = 3;
  */
 function estimateBytes(t: PreparedTile, f: Factors | null, corr: Correction): number {
   let bits = corr.bits ?? 0;
-  if (corr.q !== null) bits += nonZeros(corr.q);
+  if (corr.q !== null) bits += corr.nonzero ?? nonZeros(corr.q);
   if (f) {
     const u = factorBits(f.qu, t.m);
     const w = factorBits(f.qw, t.n);
@@ -811,12 +784,17 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
   let prev = Math.min(...rank0.map((c) => c.estimate));
   // The best CODED_RANKS so far by estimate, ascending (the one tried first on a tie), with the order tried.
   const kept: (Checked & { order: number })[] = [];
+  // The grids of candidates that are not kept go to the next candidates' codes: nothing else holds
+  // them (of the rank-0 ones, the caller reads the estimate only).
   const keep = (c: Checked, order: number) => {
     let at = kept.length;
     while (at > 0 && kept[at - 1].estimate > c.estimate) at--;
-    if (at >= CODED_RANKS) return;
+    if (at >= CODED_RANKS) {
+      giveBack(c.corr);
+      return;
+    }
     kept.splice(at, 0, { ...c, order });
-    if (kept.length > CODED_RANKS) kept.pop();
+    if (kept.length > CODED_RANKS) giveBack(kept.pop()!.corr);
   };
   rank0.forEach(keep);
   for (const r of RANKS) {
@@ -828,7 +806,7 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
     if (r > numRank) break;
     const f = pointwiseFactors(t, r, e);
     if (!f) break;
-    const c = checked(t, f, e);
+    const c = checked(t, f, e, undefined, undefined, searchGrids);
     keep(c, rank0.length + r);
     worse = c.estimate >= prev ? worse + 1 : 0;
     prev = c.estimate;
@@ -845,7 +823,9 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
  * stream, the stream's length and at least 3 bytes more: method, flags,
  * rank), as it would then be longer.
  */
-function smallest(t: PreparedTile, candidates: Checked[]): Candidate {
+function smallest(t: PreparedTile, checkedOnes: Checked[]): Candidate {
+  // The differences of the candidates to be coded (the others' were never formed).
+  const candidates = checkedOnes.map((c) => ({ ...c, corr: formed(t, c.corr) }));
   const order = candidates.map((_c, k) => k).sort((a, b) => candidates[a].estimate - candidates[b].estimate || a - b);
   let best: Candidate | null = null;
   let bestAt = -1;
@@ -858,6 +838,11 @@ function smallest(t: PreparedTile, candidates: Checked[]): Candidate {
       bestAt = k;
     }
   }
+  // The others' grids are no one's now (a coded candidate's payload holds bytes, not its grids).
+  const kept = bestAt >= 0 ? candidates[bestAt].corr : null;
+  candidates.forEach((c, k) => {
+    if (k !== bestAt) giveBack(c.corr, kept);
+  });
   return best!;
 }
 

@@ -1,16 +1,18 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in six modules: the linear-algebra module, with the range finder's
+ * in seven modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
  * the decoder's module, with the blend predictor's decoding walk and the
  * binary coder's decoder; the symbol coder's decoder in a module of its
  * own (the decoder's module is near the size limit below); the encoder's
- * finishing modules (src/wasm/finish.ts), one with the predictors'
- * differences (the blend's walk over known codes, the plain predictors) and
- * the binary coder's encoder, one with the blend's walk four cells at a
- * time, one with the symbol coder's encoder. Each kernel is
+ * module, with the pointwise check of a candidate (readers never load it);
+ * the encoder's finishing modules (src/wasm/finish.ts), one with the
+ * predictors' differences (the blend's walk over known codes, the plain
+ * predictors) and the binary coder's encoder, one with the blend's walk
+ * four cells at a time, one with the symbol coder's encoder and the
+ * check's error tally. Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,
