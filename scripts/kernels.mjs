@@ -1,10 +1,12 @@
 #!/usr/bin/env node
 /**
  * Compiles the WebAssembly kernels (kernels/*.ts, AssemblyScript, the exact
- * version pinned in package.json's devDependencies), four modules from
- * four entry files (kernels/decode.ts and kernels/symbols.ts for the
+ * version pinned in package.json's devDependencies), seven modules from
+ * seven entry files (kernels/decode.ts and kernels/symbols.ts for the
  * decoder, kernels/linalg.ts for the linear algebra of both sides,
- * kernels/encode.ts for the encoder's check of a candidate, each
+ * kernels/encode.ts for the encoder's check of a candidate,
+ * kernels/finish.ts, kernels/finish-symbols.ts and kernels/finish-blend.ts
+ * for the encoder's finishing of a tile, each
  * under 4 KiB: src/wasm/kernels.ts says why), and writes
  * their bytes, base64, into src/wasm/kernels-bytes.ts, which is committed:
  * installing and building rankfield need no compiler. `npm run kernels` after a change
@@ -32,6 +34,9 @@ const MODULES = [
   ['LINALG_KERNELS', 'kernels/linalg.ts'],
   ['SYMBOL_KERNELS', 'kernels/symbols.ts'],
   ['ENCODE_KERNELS', 'kernels/encode.ts'],
+  ['FINISH_KERNELS', 'kernels/finish.ts'],
+  ['FINISH_SYMBOL_KERNELS', 'kernels/finish-symbols.ts'],
+  ['FINISH_BLEND_KERNELS', 'kernels/finish-blend.ts'],
 ];
 
 async function compile(entry) {

@@ -4,7 +4,8 @@
  * spec/FORMAT.md, "Coded integer streams", states every step.
  */
 import { Cell } from './mask.js';
-import { CLASS_AT, MANT_AT, MASK_CLASS_AT, MASK_SPECIAL_AT, newMaskModel, newModel, PROB_BITS, PROB_ONE, SHIFTS, SIGN_AT, ZERO_AT } from './code-model.js';
+import { encodeIntsKernel } from '../wasm/finish.js';
+import { CLASS_AT, CONTEXTS, MANT_AT, MASK_CLASS_AT, MASK_SPECIAL_AT, newMaskModel, newModel, PROB_BITS, PROB_ONE, SHIFTS, SIGN_AT, ZERO_AT } from './code-model.js';
 
 const TOP = 0x1000000; // 2^24: the range is renormalised to stay at or above it
 
@@ -161,6 +162,11 @@ export function encodeInts(values: Int32Array, m: number, n: number, codes: Uint
  * caller that needs a shorter stream stops there (checked after each row).
  */
 export function encodeIntsWithin(values: Int32Array, m: number, n: number, codes: Uint8Array | null, atMost: number): Uint8Array | null {
+  // The WebAssembly kernel where there is one (the same bytes; src/wasm/finish.ts), for the layout it is written for.
+  if (CONTEXTS === 614 && Cell.Valid === 0) {
+    const coded = encodeIntsKernel(values, m, n, codes, atMost);
+    if (coded !== undefined) return coded;
+  }
   // The model's layout in locals (a read of an imported binding goes through a cell in V8).
   const kZeroAt = ZERO_AT;
   const kSignAt = SIGN_AT;

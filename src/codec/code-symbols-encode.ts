@@ -5,7 +5,8 @@
  */
 import { RangeEncoder } from './code-encode.js';
 import { bucketOf, signContext } from './code-model.js';
-import { newBinary, newSymbolModel, rebuild, SYMBOL_LAYOUT } from './code-symbols.js';
+import { newBinary, newSymbolModel, rebuild, SYMBOL_LAYOUT, symbolKernelImage } from './code-symbols.js';
+import { encodeSymbolsKernel } from '../wasm/finish.js';
 
 const { SYMBOLS, ESCAPE, ESC_K, FLAG_BUCKETS, TOTAL_BITS, INC, ZERO_AT, SIGN_AT, ESC_AT, TOP_AT } = SYMBOL_LAYOUT;
 import { Cell } from './mask.js';
@@ -70,6 +71,13 @@ export function encodeSymbols(values: Int32Array, m: number, n: number, codes: U
  * byte, and the bytes of both parts written so far only add up).
  */
 export function encodeSymbolsWithin(values: Int32Array, m: number, n: number, codes: Uint8Array | null, atMost: number): Uint8Array | null {
+  // The WebAssembly kernel where there is one (the same bytes; src/wasm/finish.ts), for the model it is written for.
+  const image = Cell.Valid === 0 ? symbolKernelImage() : null;
+  if (image !== null) {
+    const parts = encodeSymbolsKernel(values, m, n, codes, atMost, image);
+    if (parts === null) return null;
+    if (parts !== undefined) return framed(parts.range, parts.raw);
+  }
   const md = newSymbolModel();
   const { F, E, left } = md;
   const enc = new RangeEncoder(values.length / 2 + 64, newBinary());
@@ -111,8 +119,11 @@ export function encodeSymbolsWithin(values: Int32Array, m: number, n: number, co
     }
     if (1 + enc.written + raw.written > atMost) return null;
   }
-  const stream = enc.finish();
-  const bits = raw.finish();
+  return framed(enc.finish(), raw.finish());
+}
+
+/** The stream: the range stream's length as a `length` varint, the range stream, the raw bits. */
+function framed(stream: Uint8Array, bits: Uint8Array): Uint8Array {
   const head = lengthBytes(stream.length);
   const out = new Uint8Array(head + stream.length + bits.length);
   let v = stream.length;

@@ -11,6 +11,7 @@ import { payloadHead, prefixLengths } from './payload.js';
 import type { PreparedTile } from './prepare.js';
 import { ErrorTally } from './tally.js';
 import { decodeTile } from './tile-decode.js';
+import { tallyKernel } from '../wasm/finish.js';
 
 /**
  * Per-tile facts recorded in the index, as the encoder measured them (library
@@ -35,7 +36,6 @@ export interface TileStats {
 /** Decode a payload and measure it against the original tile. */
 export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array | null): { stats: TileStats; tally: ErrorTally } {
   const codes = t.classes.codes;
-  const tally = new ErrorTally();
   let out: FloatArray;
   try {
     out = decodeTile(payload, { m: t.m, n: t.n, dtype: t.dtype, fill, where: 'encoder check', fieldStep: t.fieldStep, layer: t.layer, symbols: true });
@@ -43,15 +43,28 @@ export function measure(payload: Uint8Array, t: PreparedTile, fill: Uint32Array 
     // A candidate the decoder refuses (e.g. values rounding past the float32 maximum)
     // fails every bound, so the caller falls back to exact storage.
     if (!(e instanceof FormatError)) throw e;
+    const tally = new ErrorTally();
     tally.add(NaN);
     return { stats: { method: payload[0], rank: 0, valid: t.valid, maxErr: NaN, rmse: NaN, valueCrc: 0, prefix: [] }, tally };
   }
-  for (let c = 0; c < codes.length; c++) {
-    if (codes[c] === Cell.Valid) tally.add(Math.abs(t.orig[c] - out[c]));
-  }
+  const tally = tallyValid(t.orig, out, codes);
   const { rank } = payloadHead(payload);
   const valueCrc = crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength));
   return { stats: { method: payload[0], rank, valid: t.valid, maxErr: tally.max, rmse: tally.rmse, valueCrc, prefix: [] }, tally };
+}
+
+/**
+ * The tally of |orig - out| over the cells whose class in `codes` is
+ * Valid, in cell order: by the kernel where there is one (the same state
+ * to the bit: src/wasm/finish.ts), else add() a cell at a time. Every
+ * cell is compared either way.
+ */
+export function tallyValid(orig: FloatArray, out: FloatArray, codes: Uint8Array): ErrorTally {
+  const state = Cell.Valid === 0 && orig.constructor === out.constructor && orig.length >= codes.length && out.length >= codes.length ? tallyKernel(orig, out, codes) : null;
+  if (state !== null) return ErrorTally.fromState(state);
+  const tally = new ErrorTally();
+  for (let c = 0; c < codes.length; c++) if (codes[c] === Cell.Valid) tally.add(Math.abs(orig[c] - out[c]));
+  return tally;
 }
 
 /** A prefix is recorded only if it is at most this share of its payload ... */
@@ -79,9 +92,7 @@ export function measurePrefixes(payload: Uint8Array, t: PreparedTile, fill: Uint
       if (e instanceof FormatError) return; // a prefix that does not decode (values past the float maximum) is not offered
       throw e;
     }
-    const tally = new ErrorTally();
-    const codes = t.classes.codes;
-    for (let c = 0; c < codes.length; c++) if (codes[c] === Cell.Valid) tally.add(Math.abs(t.orig[c] - values[c]));
+    const tally = tallyValid(t.orig, values, t.classes.codes);
     if (Number.isFinite(tally.max)) out.push(len, crc32(bytes), tally.max, tally.rmse);
   });
   return out;

@@ -5,6 +5,7 @@
  * written here; JavaScript has no fused multiply-add, so none is used.
  */
 import { blendDecodeKernel } from '../wasm/blend.js';
+import { blendEncodeKernel, predictPlainKernel } from '../wasm/finish.js';
 import { lowRankKernel } from '../wasm/lowrank.js';
 
 /**
@@ -507,6 +508,9 @@ export function predictorBitsOf(sums: Float64Array | null): Float64Array {
 export function predict(q: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo): Int32Array | null {
   const d = new Int32Array(q.length);
   if (kind === Predictor.Blend) {
+    // The encoder's WebAssembly kernel where there is one (the same differences; src/wasm/finish.ts).
+    const done = blendEncodeKernel(q, null, m, n, limit, true, blendWeights(), d, null);
+    if (done !== null) return done ? d : null;
     const work = q.slice();
     const ok = blendWalk(work, m, n, (c, p) => {
       const v = q[c] - p;
@@ -516,7 +520,11 @@ export function predict(q: Int32Array, m: number, n: number, limit: number, kind
     });
     return ok ? d : null;
   }
-  if (kind !== Predictor.None) return predictPlain(q, d, m, n, limit, kind) ? d : null;
+  if (kind !== Predictor.None) {
+    // The encoder's WebAssembly kernel where it applies (the same differences; src/wasm/finish.ts).
+    if (limit >= 2 ** 30 && predictPlainKernel(q, d, m, n, kind)) return d;
+    return predictPlain(q, d, m, n, limit, kind) ? d : null;
+  }
   for (let c = 0; c < q.length; c++) {
     const v = q[c];
     if (v > limit || v < -limit) return null;
@@ -599,10 +607,28 @@ function predictPlain(q: Int32Array, d: Int32Array, m: number, n: number, limit:
   return true;
 }
 
+/**
+ * The blend's differences of q, with the cells whose class in `codes` is
+ * not Valid (when `codes` is given) taken as {@link predictedFill} fills
+ * them, into `out` (q's length): predict(predictedFill(q, codes, ...),
+ * ..., Predictor.Blend), or predict(q, ..., Predictor.Blend) without
+ * `codes`, in one walk where the kernel is to be had, written into the
+ * caller's array rather than a new one. False where predict() gives null.
+ */
+export function blendDifferences(q: Int32Array, codes: Uint8Array | null, m: number, n: number, limit: number, out: Int32Array): boolean {
+  const done = blendEncodeKernel(q, codes, m, n, limit, true, blendWeights(), out, null);
+  if (done !== null) return done;
+  const d = predict(codes === null ? q : predictedFill(q, codes, m, n, limit, Predictor.Blend), m, n, limit, Predictor.Blend);
+  if (d === null) return false;
+  out.set(d);
+  return true;
+}
+
 /** A copy of q whose cells not Valid (class code non-zero) hold their prediction, so their residual is 0. */
 export function predictedFill(q: Int32Array, codes: Uint8Array, m: number, n: number, limit: number, kind: number): Int32Array {
   const out = q.slice();
   if (kind === Predictor.Blend) {
+    if (blendEncodeKernel(q, codes, m, n, limit, false, blendWeights(), null, out) !== null) return out;
     blendWalk(out, m, n, (c, p) => (codes[c] === 0 ? q[c] : Math.abs(p) <= limit ? p : 0));
     return out;
   }

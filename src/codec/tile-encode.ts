@@ -8,7 +8,7 @@ import { solveSpd } from '../linalg/spd.js';
 import { Cell } from './mask.js';
 import { ensureSvd, PARTIAL_RANK, type PreparedTile } from './prepare.js';
 import { CENTRE_FORM_SHIFT, CentreForm, centreForm, Flag, Method, payloadHead, RESIDUAL_SYMBOLS, residualPlace, STEP_FORM_SHIFT, StepForm, stepForm } from './payload.js';
-import { predict, predictorBitsOf, predictedFill, Predictor, PREDICTOR_SUMS } from './reconstruct.js';
+import { blendDifferences, predict, predictorBitsOf, predictedFill, Predictor, PREDICTOR_SUMS } from './reconstruct.js';
 
 /** Predictors tried for the residual, besides none. */
 const PREDICTORS = [Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
@@ -152,7 +152,7 @@ interface SearchScratch {
  * at most {@link SPARE_BYTES} are kept.
  */
 const searchGrids: SearchScratch = { spare: [] };
-/** As the kernels' memory kept between uses (src/wasm/kernels.ts, KEEP_BYTES): four grids of a 1024 x 1024 tile, more than a search holds spare at once. */
+/** Four grids of a 1024 x 1024 tile, more than a search holds spare at once (half the kernels' memory kept between uses, src/wasm/kernels.ts KEEP_BYTES). */
 const SPARE_BYTES = 16 * 1024 * 1024;
 
 /** Give back the code grids of a candidate no one holds any more (none of `keep`'s). */
@@ -226,20 +226,29 @@ export function lowRankPayload(t: PreparedTile, f: Factors | null, given: Correc
 function factorRow(f: Factors, k0: number, size: number, m: number, n: number, delta: boolean): Int32Array | null {
   const row = new Int32Array(size * (m + n));
   let at = 0;
-  const put = (v: Int32Array): boolean => {
-    let prev = 0;
-    for (let i = 0; i < v.length; i++) {
-      const d = delta ? v[i] - prev : v[i];
-      if (d > MAX_INT || d < -MAX_INT) return false;
-      row[at++] = d;
-      prev = v[i];
-    }
-    return true;
-  };
   for (let k = k0; k < k0 + size; k++) {
-    if (!put(f.qu.subarray(k * m, k * m + m)) || !put(f.qw.subarray(k * n, k * n + n))) return null;
+    at = putFactor(row, at, f.qu, k * m, m, delta);
+    if (at >= 0) at = putFactor(row, at, f.qw, k * n, n, delta);
+    if (at < 0) return null;
   }
   return row;
+}
+
+/**
+ * Codes v[from .. from + len) into row from `at`, differenced if asked:
+ * the next position, or -1 if a difference leaves +-2^30 (a module
+ * function over the arrays, not a closure made per row: the profile of a
+ * pack of bench/'s large field put 62 ms in the closure's version).
+ */
+function putFactor(row: Int32Array, at: number, v: Int32Array, from: number, len: number, delta: boolean): number {
+  let prev = 0;
+  for (let i = from; i < from + len; i++) {
+    const d = delta ? v[i] - prev : v[i];
+    if (d > MAX_INT || d < -MAX_INT) return -1;
+    row[at++] = d;
+    prev = v[i];
+  }
+  return at;
 }
 
 function lowRankWith(t: PreparedTile, f: Factors | null, corr: Correction | null, delta: boolean): Uint8Array | null {
@@ -437,15 +446,27 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
 function blendVariant(t: PreparedTile, f: Factors | null, corr: Correction): Coded | null {
   if (!corr.raw || corr.q === null || corr.bits === undefined) return null;
   const { m, n } = t;
-  const codes = t.classes.codes;
-  const filled = t.classes.special > 0 ? predictedFill(corr.raw, codes, m, n, MAX_INT, Predictor.Blend) : corr.raw;
-  const d = predict(filled, m, n, MAX_INT, Predictor.Blend);
-  if (!d || !(roughBits(d) < corr.bits)) return null;
-  const mask = t.classes.special > 0 ? codes : null;
+  const mask = t.classes.special > 0 ? t.classes.codes : null;
+  // The differences in the tile's scratch grid (most tiles keep the other predictor), copied out when kept.
+  const d = blendScratch(t);
+  if (!blendDifferences(corr.raw, mask, m, n, MAX_INT, d) || !(roughBits(d) < corr.bits)) return null;
   const other = corr.coded ?? encodeInts(corr.q, m, n, mask);
   const mine = encodeIntsWithin(d, m, n, mask, blendAtMost(other));
   if (mine === null || !(mine.length < BLEND_MARGIN * other.length)) return null;
-  return { payload: lowRankPayload(t, f, { ...corr, q: d, predictor: Predictor.Blend, coded: mine }), codes: d };
+  const kept = d.slice();
+  return { payload: lowRankPayload(t, f, { ...corr, q: kept, predictor: Predictor.Blend, coded: mine }), codes: kept };
+}
+
+/** Each tile's scratch grid for {@link blendVariant}'s differences (overwritten by each use, kept by none). */
+const blendGrids = new WeakMap<PreparedTile, Int32Array>();
+
+function blendScratch(t: PreparedTile): Int32Array {
+  let d = blendGrids.get(t);
+  if (d === undefined) {
+    d = new Int32Array(t.m * t.n);
+    blendGrids.set(t, d);
+  }
+  return d;
 }
 
 /**

@@ -1,13 +1,18 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in four modules: the linear-algebra module, with the range finder's
+ * in seven modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
  * the decoder's module, with the blend predictor's decoding walk and the
  * binary coder's decoder; the symbol coder's decoder in a module of its
  * own (the decoder's module is near the size limit below); the encoder's
- * module, with the pointwise check of a candidate (readers never load it). Each kernel is
+ * module, with the pointwise check of a candidate (readers never load it);
+ * the encoder's finishing modules (src/wasm/finish.ts), one with the
+ * predictors' differences (the blend's walk over known codes, the plain
+ * predictors) and the binary coder's encoder, one with the blend's walk
+ * four cells at a time, one with the symbol coder's encoder and the
+ * check's error tally. Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,
@@ -21,7 +26,8 @@
  *
  * Memory: the instances of every module import one memory the loader made,
  * sized for the largest use so far. When a use needs more, the loader makes
- * a new, larger memory (at least twice the size) and new instances over it, and
+ * a new, larger memory (twice the size, or what the use needs, but not
+ * past {@link KEEP_BYTES} by doubling) and new instances over it, and
  * never grows a memory in place: growing detaches the memory's old
  * ArrayBuffer, and once any ArrayBuffer has been detached V8 checks every
  * typed-array access of optimized code for detachment (its "array buffer
@@ -40,8 +46,16 @@
 export const WEIGHTS_BYTES = 131072;
 /** Where callers' arrays start. */
 export const SCRATCH_AT = WEIGHTS_BYTES;
-/** Memory above this is given back when a lease ends (common practice, no source: a few large tiles' worth). */
-export const KEEP_BYTES = 16 * 1024 * 1024;
+/**
+ * Memory above this is given back when a lease ends (common practice, no
+ * source: a few large tiles' worth). 32 MiB holds a 1024 x 1024 tile's
+ * range-finder product (16.7 MiB) and the encoder's kernels: at 16 MiB
+ * that product's memory was given back every tile and made anew (with
+ * every use after it, 88 new memories in one pack of bench/'s large field
+ * at rel:1e-3, 9 at 32 MiB; the pack 3258 -> 2996 ms, medians of 6
+ * alternating, scratch/one-pack.mjs, one thread).
+ */
+export const KEEP_BYTES = 32 * 1024 * 1024;
 const PAGE = 65536;
 
 /** Compiled modules by their base64 text (kept for the thread's life: a new instance of one is cheap); null where one does not compile. */
@@ -120,7 +134,12 @@ export class Kernels {
     const need = SCRATCH_AT + bytes;
     if (need > this.memoryBytes) {
       try {
-        this.renew(Math.max(need, 2 * this.memoryBytes));
+        // Doubled, but not past KEEP_BYTES unless the use needs more: a memory doubled past it is dropped
+        // at the lease's end, so a run of uses of half of it would make a new memory (and new instances,
+        // and new pages to touch) each time. Measured with the encoder's kernels on bench/'s large field
+        // at rel:1e-3 (one pack, one thread): 184 new memories, 0.1 -> 1.6 -> 8.1 -> 16.3 MiB for every
+        // tile, before this cap.
+        this.renew(Math.max(need, Math.min(2 * this.memoryBytes, KEEP_BYTES)));
       } catch {
         return false;
       }

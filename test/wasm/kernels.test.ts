@@ -7,8 +7,8 @@
 import { execFileSync } from 'node:child_process';
 import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
-import { DECODE_KERNELS, ENCODE_KERNELS, LINALG_KERNELS, SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
-import { kernels, setKernelMode } from '../../src/wasm/kernels.js';
+import { DECODE_KERNELS, ENCODE_KERNELS, FINISH_BLEND_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS, LINALG_KERNELS, SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
+import { KEEP_BYTES, kernels, SCRATCH_AT, setKernelMode } from '../../src/wasm/kernels.js';
 import { ensureBuilt, ROOT } from '../cli/helpers.js';
 import { useKernelMode } from '../kernel-mode.js';
 
@@ -35,8 +35,8 @@ describe('the kernels module', () => {
     expect(out).toMatch(/up to date/);
   });
 
-  it('is four modules, each under 4 KiB, so browsers compile them synchronously on the main thread (Chromium\'s limit for new WebAssembly.Module: from memory)', () => {
-    for (const base64 of [DECODE_KERNELS, LINALG_KERNELS, SYMBOL_KERNELS, ENCODE_KERNELS]) {
+  it('is seven modules, each under 4 KiB, so browsers compile them synchronously on the main thread (Chromium\'s limit for new WebAssembly.Module: from memory)', () => {
+    for (const base64 of [DECODE_KERNELS, LINALG_KERNELS, SYMBOL_KERNELS, ENCODE_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS, FINISH_BLEND_KERNELS]) {
       const bytes = Array.from(atob(base64), (ch) => ch.charCodeAt(0));
       expect(bytes.length).toBeLessThan(4096);
       // The binary format's magic and version 1 (WebAssembly core specification, 5.5.16 Modules).
@@ -56,6 +56,23 @@ describe('the kernels module', () => {
     expect(kernels()).toBeNull();
     setKernelMode('auto');
     expect(kernels()).toBe(k);
+  });
+
+  it('keeps a memory made for uses of up to KEEP_BYTES: doubling stops there, so the next such use finds it', () => {
+    const k = kernels()!;
+    // A use of a little more than half the kept size, from a memory smaller than that.
+    const bytes = KEEP_BYTES / 2 + 65536;
+    expect(k.lease(bytes)).toBe(true);
+    const made = k.memoryBytes;
+    expect(made).toBeGreaterThanOrEqual(SCRATCH_AT + bytes);
+    expect(made).toBeLessThanOrEqual(KEEP_BYTES);
+    const view = k.u8;
+    k.release();
+    // Kept, not given back and made anew: the same memory (its view still attached) for the next use.
+    expect(k.lease(bytes)).toBe(true);
+    expect(k.memoryBytes).toBe(made);
+    expect(k.u8).toBe(view);
+    k.release();
   });
 
   it('is switched off by RANKFIELD_KERNELS=js and missing without WebAssembly, with the same singular values', () => {
