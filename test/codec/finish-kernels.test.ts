@@ -315,33 +315,41 @@ describe('the plain predictors\' differences in WebAssembly', () => {
   });
 });
 
+/**
+ * A coder's encoder, kernel against JavaScript (`both`), on random grids with and without masks (fast-check): the
+ * same bytes, or the same stop, and a whole stream decodes (`decode`) to the values.
+ */
+function sameStreams(both: typeof codeBoth, decode: (s: Uint8Array, m: number, n: number, codes: Uint8Array | null, out: Int32Array) => void): void {
+  fc.assert(
+    fc.property(
+      fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
+      fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
+      fc.constantFrom(0, 0.5, 0.95),
+      fc.constantFrom(3, 4096, LIMIT),
+      fc.boolean(),
+      fc.constantFrom(Infinity, 0, 3, 20, 100),
+      fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+      (m, n, zeros, scale, mask, atMost, seed) => {
+        const rand = mulberry32(seed);
+        const v = grid(rand, m * n, zeros, scale);
+        const codes = mask ? masked(rand, v, 0.3) : null;
+        const { js, wasm } = both(v, m, n, codes, atMost);
+        expect(wasm).toEqual(js);
+        if (atMost === Infinity) {
+          const out = new Int32Array(m * n);
+          decode(Uint8Array.from(js as number[]), m, n, codes, out);
+          expect(Array.from(out)).toEqual(Array.from(v));
+        }
+      },
+    ),
+    { numRuns: 600 },
+  );
+}
+
 describe('the binary coder\'s encoder in WebAssembly', () => {
   it('writes the JavaScript\'s bytes, and stops where it stops, on random grids with and without masks (fast-check)', () => {
-    fc.assert(
-      fc.property(
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
-        fc.constantFrom(0, 0.5, 0.95),
-        fc.constantFrom(3, 4096, LIMIT),
-        fc.boolean(),
-        fc.constantFrom(Infinity, 0, 3, 20, 100),
-        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
-        (m, n, zeros, scale, mask, atMost, seed) => {
-          const rand = mulberry32(seed);
-          const v = grid(rand, m * n, zeros, scale);
-          const codes = mask ? masked(rand, v, 0.3) : null;
-          const { js, wasm } = codeBoth(v, m, n, codes, atMost);
-          expect(wasm).toEqual(js);
-          if (atMost === Infinity) {
-            // The stream decodes to the values (the decoder of spec/FORMAT.md, "Coded integer streams").
-            const out = new Int32Array(m * n);
-            decodeInts(Uint8Array.from(js as number[]), m, n, codes, out);
-            expect(Array.from(out)).toEqual(Array.from(v));
-          }
-        },
-      ),
-      { numRuns: 600 },
-    );
+    // A whole stream decodes to the values (the decoder of spec/FORMAT.md, "Coded integer streams").
+    sameStreams(codeBoth, decodeInts);
   });
 
   it('codes values at 2^30 as the JavaScript does, and leaves those beyond, and a skipped cell that is not 0, to it', () => {
@@ -398,31 +406,8 @@ describe('the binary coder\'s encoder in WebAssembly', () => {
 
 describe('the symbol coder\'s encoder in WebAssembly', () => {
   it('writes the JavaScript\'s bytes, and stops where it stops, on random grids with and without masks (fast-check)', () => {
-    fc.assert(
-      fc.property(
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
-        fc.constantFrom(0, 0.5, 0.95),
-        fc.constantFrom(3, 4096, LIMIT),
-        fc.boolean(),
-        fc.constantFrom(Infinity, 0, 3, 20, 100),
-        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
-        (m, n, zeros, scale, mask, atMost, seed) => {
-          const rand = mulberry32(seed);
-          const v = grid(rand, m * n, zeros, scale);
-          const codes = mask ? masked(rand, v, 0.3) : null;
-          const { js, wasm } = symbolsBoth(v, m, n, codes, atMost);
-          expect(wasm).toEqual(js);
-          if (atMost === Infinity) {
-            // The stream decodes to the values (the symbol coder of spec/FORMAT.md 10.3.8).
-            const out = new Int32Array(m * n);
-            decodeSymbols(Uint8Array.from(js as number[]), m, n, codes, out);
-            expect(Array.from(out)).toEqual(Array.from(v));
-          }
-        },
-      ),
-      { numRuns: 600 },
-    );
+    // A whole stream decodes to the values (the symbol coder of spec/FORMAT.md 10.3.8).
+    sameStreams(symbolsBoth, decodeSymbols);
   });
 
   it('codes escapes up to 2^30 as the JavaScript does, and leaves a value beyond it, and a skipped cell that is not 0, to it', () => {
