@@ -17,9 +17,9 @@ export function fillMissing(x: Float64Array, codes: Uint8Array, m: number, n: nu
     }
   }
   if (count === 0 || count === cells) return;
-  // The missing cells in raster order, those with four neighbours (inside the tile) apart from the
-  // others, each kept with its place in that order: a sweep visits them in raster order as before, and
-  // an inner cell's mean is taken without a test a neighbour.
+  // The missing cells in raster order, each marked when its four neighbours are all inside the tile:
+  // a sweep visits them in raster order as before, and takes an inner cell's mean without testing
+  // for each neighbour.
   const missing = new Int32Array(count);
   const inner = new Uint8Array(count);
   let k = 0;
