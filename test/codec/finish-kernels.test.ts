@@ -346,6 +346,28 @@ function sameStreams(both: typeof codeBoth, decode: (s: Uint8Array, m: number, n
   );
 }
 
+/**
+ * A coder's encoder, kernel against JavaScript (`both`), on the blend differences of the vega-datasets volcano and
+ * annual-precip grids (vega-datasets 3.2.1, real gridded fields) quantized: the same bytes whole, and the same
+ * stop or bytes with length caps at, just below and half the whole stream's length.
+ */
+function sameOnVega(both: typeof codeBoth): void {
+  for (const [file, step] of [
+    ['volcano.json', 0.5],
+    ['annual-precip.json', 2],
+  ] as const) {
+    const g = vega(file);
+    const d = predict(Int32Array.from(g.values, (v) => Math.round(v / step)), g.m, g.n, LIMIT, Predictor.Blend)!;
+    const whole = both(d, g.m, g.n, null, Infinity);
+    expect(whole.wasm).toEqual(whole.js);
+    const length = (whole.js as number[]).length;
+    for (const atMost of [length, length - 1, Math.floor(length / 2)]) {
+      const capped = both(d, g.m, g.n, null, atMost);
+      expect(capped.wasm).toEqual(capped.js);
+    }
+  }
+}
+
 describe('the binary coder\'s encoder in WebAssembly', () => {
   it('writes the JavaScript\'s bytes, and stops where it stops, on random grids with and without masks (fast-check)', () => {
     // A whole stream decodes to the values (the decoder of spec/FORMAT.md, "Coded integer streams").
@@ -387,20 +409,7 @@ describe('the binary coder\'s encoder in WebAssembly', () => {
   });
 
   it('writes the JavaScript\'s bytes for the blend differences of the quantized vega-datasets grids, whole and with a length cap', () => {
-    for (const [file, step] of [
-      ['volcano.json', 0.5],
-      ['annual-precip.json', 2],
-    ] as const) {
-      const g = vega(file);
-      const d = predict(Int32Array.from(g.values, (v) => Math.round(v / step)), g.m, g.n, LIMIT, Predictor.Blend)!;
-      const whole = codeBoth(d, g.m, g.n, null, Infinity);
-      expect(whole.wasm).toEqual(whole.js);
-      const length = (whole.js as number[]).length;
-      for (const atMost of [length, length - 1, Math.floor(length / 2)]) {
-        const capped = codeBoth(d, g.m, g.n, null, atMost);
-        expect(capped.wasm).toEqual(capped.js);
-      }
-    }
+    sameOnVega(codeBoth);
   });
 });
 
@@ -442,20 +451,7 @@ describe('the symbol coder\'s encoder in WebAssembly', () => {
   });
 
   it('writes the JavaScript\'s bytes for the blend differences of the quantized vega-datasets grids, whole and with a length cap', () => {
-    for (const [file, step] of [
-      ['volcano.json', 0.5],
-      ['annual-precip.json', 2],
-    ] as const) {
-      const g = vega(file);
-      const d = predict(Int32Array.from(g.values, (v) => Math.round(v / step)), g.m, g.n, LIMIT, Predictor.Blend)!;
-      const whole = symbolsBoth(d, g.m, g.n, null, Infinity);
-      expect(whole.wasm).toEqual(whole.js);
-      const length = (whole.js as number[]).length;
-      for (const atMost of [length, length - 1, Math.floor(length / 2)]) {
-        const capped = symbolsBoth(d, g.m, g.n, null, atMost);
-        expect(capped.wasm).toEqual(capped.js);
-      }
-    }
+    sameOnVega(symbolsBoth);
   });
 });
 
