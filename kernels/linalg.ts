@@ -7,6 +7,6 @@
  * plain functions over addresses in the memory the module imports, laid out
  * and copied in and out by src/linalg/product.ts and src/wasm/lowrank.ts.
  */
-export { mulPairs } from './product';
-export { pairUp, transpose } from './layout';
+export { mulPairs, mulTPairs } from './product';
+export { pairUp, unpair } from './layout';
 export { finishBand, lowRank } from './lowrank';

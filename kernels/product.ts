@@ -113,3 +113,73 @@ export function mulPairs(w: usize, rows: i32, cols: i32, g: usize, pairs: i32, y
     }
   }
 }
+
+/**
+ * z = w^T q without a transposed copy of w: q in column pairs as g above,
+ * pair p holding q's columns 2p and 2p + 1 for every row i at
+ * q[((p * rows) + i) * 2 + lane]; z in the same pairs over w's columns,
+ * z[((p * cols) + j) * 2 + lane]. Row by row of w, each output adds its
+ * terms in increasing i from +0, a product rounded then added: the sums
+ * {@link mulPairs} forms over the transpose, bit for bit. Blocks of two rows
+ * of w by four pairs: the eight vectors of q stay in registers while the
+ * two rows stream once past the block's outputs.
+ */
+export function mulTPairs(w: usize, rows: i32, cols: i32, q: usize, pairs: i32, z: usize): void {
+  const rowBytes = <usize>cols << 3;
+  const zPairBytes = <usize>cols << 4;
+  const qPairBytes = <usize>rows << 4;
+  memory.fill(z, 0, <usize>pairs * zPairBytes);
+  let i = 0;
+  for (; i + 1 < rows; i += 2) {
+    const ra = w + <usize>i * rowBytes;
+    const rb = ra + rowBytes;
+    const qi = q + (<usize>i << 4);
+    let p = 0;
+    for (; p + 3 < pairs; p += 4) {
+      const qp = qi + <usize>p * qPairBytes;
+      const a0 = v128.load(qp);
+      const b0 = v128.load(qp + 16);
+      const a1 = v128.load(qp + qPairBytes);
+      const b1 = v128.load(qp + qPairBytes + 16);
+      const a2 = v128.load(qp + 2 * qPairBytes);
+      const b2 = v128.load(qp + 2 * qPairBytes + 16);
+      const a3 = v128.load(qp + 3 * qPairBytes);
+      const b3 = v128.load(qp + 3 * qPairBytes + 16);
+      const zp = z + <usize>p * zPairBytes;
+      for (let j: usize = 0; j < rowBytes; j += 8) {
+        const x = v128.load64_splat(ra + j);
+        const y = v128.load64_splat(rb + j);
+        const o = zp + (j << 1);
+        v128.store(o, f64x2.add(f64x2.add(v128.load(o), f64x2.mul(x, a0)), f64x2.mul(y, b0)));
+        const o1 = o + zPairBytes;
+        v128.store(o1, f64x2.add(f64x2.add(v128.load(o1), f64x2.mul(x, a1)), f64x2.mul(y, b1)));
+        const o2 = o1 + zPairBytes;
+        v128.store(o2, f64x2.add(f64x2.add(v128.load(o2), f64x2.mul(x, a2)), f64x2.mul(y, b2)));
+        const o3 = o2 + zPairBytes;
+        v128.store(o3, f64x2.add(f64x2.add(v128.load(o3), f64x2.mul(x, a3)), f64x2.mul(y, b3)));
+      }
+    }
+    for (; p < pairs; p++) {
+      const qp = qi + <usize>p * qPairBytes;
+      const a0 = v128.load(qp);
+      const b0 = v128.load(qp + 16);
+      const zp = z + <usize>p * zPairBytes;
+      for (let j: usize = 0; j < rowBytes; j += 8) {
+        const o = zp + (j << 1);
+        v128.store(o, f64x2.add(f64x2.add(v128.load(o), f64x2.mul(v128.load64_splat(ra + j), a0)), f64x2.mul(v128.load64_splat(rb + j), b0)));
+      }
+    }
+  }
+  if (i < rows) {
+    const ra = w + <usize>i * rowBytes;
+    const qi = q + (<usize>i << 4);
+    for (let p = 0; p < pairs; p++) {
+      const a0 = v128.load(qi + <usize>p * qPairBytes);
+      const zp = z + <usize>p * zPairBytes;
+      for (let j: usize = 0; j < rowBytes; j += 8) {
+        const o = zp + (j << 1);
+        v128.store(o, f64x2.add(v128.load(o), f64x2.mul(v128.load64_splat(ra + j), a0)));
+      }
+    }
+  }
+}

@@ -2,8 +2,9 @@
  * Products of a fixed matrix with the range finder's sketches, y = w g and
  * z = w^T q (src/linalg/truncated.ts), in the WebAssembly kernel when this
  * thread has it (src/wasm/kernels.ts; the matrix copied into its memory once
- * and reused by every product) and by {@link mulA} otherwise: the same bits
- * either way (kernels/product.ts says why).
+ * and reused by every product, w^T q formed row by row of w, without a
+ * transposed copy) and by {@link mulA} otherwise: the same bits either way
+ * (kernels/product.ts says why).
  */
 import { LINALG_KERNELS } from '../wasm/kernels-bytes.js';
 import { type Kernels, kernels, SCRATCH_AT } from '../wasm/kernels.js';
@@ -12,8 +13,9 @@ import { mulA } from './mul.js';
 /** The exports of kernels/linalg.ts: addresses are byte offsets into the kernels' memory. */
 interface LinalgKernels {
   mulPairs(w: number, rows: number, cols: number, g: number, pairs: number, y: number): void;
-  transpose(src: number, rows: number, cols: number, dst: number): void;
+  mulTPairs(w: number, rows: number, cols: number, q: number, pairs: number, z: number): void;
   pairUp(src: number, len: number, count: number, dst: number): void;
+  unpair(src: number, len: number, count: number, dst: number): void;
 }
 
 /** Products with one matrix for sketches of l columns; {@link MatrixProducts.done} ends them. */
@@ -26,17 +28,28 @@ export interface MatrixProducts {
   done(): void;
 }
 
+/** Writes a matrix, row-major, into the rows x cols array it is given (every entry). */
+export type MatrixFill = (dst: Float64Array) => void;
+
 /**
  * Products with `w` (row-major rows x cols) and, when `transposed`, with its
  * transpose, for sketches of `l` columns. `w` must not change while they
- * are in use; no other kernel runs until {@link MatrixProducts.done}.
+ * are in use; no other kernel runs until {@link MatrixProducts.done}. Given
+ * as a {@link MatrixFill}, w is written where the products read it (the
+ * kernels' memory: no copy of 8 MiB made and copied again for a 1024 x 1024
+ * tile), called once before this returns.
  */
-export function matrixProducts(w: Float64Array, rows: number, cols: number, l: number, transposed: boolean): MatrixProducts {
+export function matrixProducts(given: Float64Array | MatrixFill, rows: number, cols: number, l: number, transposed: boolean): MatrixProducts {
   const k = kernels();
   if (k !== null) {
-    const p = kernelProducts(k, w, rows, cols, l, transposed);
+    const p = kernelProducts(k, given, rows, cols, l, transposed);
     if (p !== null) return p;
   }
+  let w: Float64Array;
+  if (typeof given === 'function') {
+    w = new Float64Array(rows * cols);
+    given(w);
+  } else w = given;
   let wt: Float64Array | null = null;
   if (transposed) {
     // wt = w^T (cols x rows row-major), so that w^T x is also made of dot products.
@@ -57,18 +70,20 @@ export function matrixProducts(w: Float64Array, rows: number, cols: number, l: n
 }
 
 /**
- * The kernel's version: memory from SCRATCH_AT holds w, w^T (when asked
- * for), a sketch as given, the same in column pairs, and a product, all
- * binary64; null when the memory or the module cannot be had.
+ * The kernel's version: memory from SCRATCH_AT holds w, a sketch as given,
+ * the same in column pairs, and a product in column pairs, all binary64;
+ * null when the memory or the module cannot be had. w^T q is formed from
+ * the rows of w as they lie (kernels/product.ts, mulTPairs): a transposed
+ * copy took 4.4 ms of a 1024 x 1024 tile's 30 ms range finder, and 8 MiB
+ * more of the memory (scratch/prodt.mjs, medians of 15).
  */
-function kernelProducts(k: Kernels, w: Float64Array, rows: number, cols: number, l: number, transposed: boolean): MatrixProducts | null {
+function kernelProducts(k: Kernels, w: Float64Array | MatrixFill, rows: number, cols: number, l: number, transposed: boolean): MatrixProducts | null {
   const cells = rows * cols;
   const pairs = (l + 1) >> 1;
   const side = Math.max(rows, cols);
-  // In doubles from SCRATCH_AT: w, w^T, the sketch (side x l), in pairs (pairs x side x 2), the product (side x 2 pairs).
+  // In doubles from SCRATCH_AT: w, the sketch (side x l), in pairs (pairs x side x 2), the product in pairs (pairs x side x 2).
   const wAt = SCRATCH_AT / 8;
-  const wtAt = wAt + cells;
-  const gAt = wtAt + (transposed ? cells : 0);
+  const gAt = wAt + cells;
   const pairsAt = gAt + side * l;
   const yAt = pairsAt + 2 * pairs * side;
   if (!k.lease(8 * (yAt + 2 * pairs * side) - SCRATCH_AT)) return null;
@@ -78,20 +93,23 @@ function kernelProducts(k: Kernels, w: Float64Array, rows: number, cols: number,
     return null;
   }
   const heap = k.f64;
-  heap.set(w, wAt);
-  if (transposed) fn.transpose(8 * wAt, rows, cols, 8 * wtAt);
-  /** out = (the matrix at `at`, r x c) x g, g column-major c x l. */
-  const product = (at: number, r: number, c: number, g: Float64Array, out: Float64Array): void => {
-    heap.set(g.subarray(0, c * l), gAt);
-    fn.pairUp(8 * gAt, c, l, 8 * pairsAt);
-    fn.mulPairs(8 * at, r, c, 8 * pairsAt, pairs, 8 * yAt);
-    out.set(heap.subarray(yAt, yAt + r * l));
-  };
+  if (typeof w === 'function') w(heap.subarray(wAt, wAt + cells));
+  else heap.set(w.subarray(0, cells), wAt);
   return {
-    times: (g, y) => product(wAt, rows, cols, g, y),
+    times: (g, y) => {
+      heap.set(g.subarray(0, cols * l), gAt);
+      fn.pairUp(8 * gAt, cols, l, 8 * pairsAt);
+      fn.mulPairs(8 * wAt, rows, cols, 8 * pairsAt, pairs, 8 * yAt);
+      y.set(heap.subarray(yAt, yAt + rows * l));
+    },
     timesT: (q, z) => {
       if (!transposed) throw new Error('matrixProducts: made without the transpose');
-      product(wtAt, cols, rows, q, z);
+      heap.set(q.subarray(0, rows * l), gAt);
+      fn.pairUp(8 * gAt, rows, l, 8 * pairsAt);
+      fn.mulTPairs(8 * wAt, rows, cols, 8 * pairsAt, pairs, 8 * yAt);
+      // The pairs back into columns, where the sketch was (it is in pairs now).
+      fn.unpair(8 * yAt, cols, l, 8 * gAt);
+      z.set(heap.subarray(gAt, gAt + cols * l));
     },
     done: () => k.release(),
   };

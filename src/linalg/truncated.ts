@@ -97,13 +97,16 @@ export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): 
   if (amax === 0) return { m, n, k, u, s, v, frob2: 0 };
   const e = exponentOf(amax);
 
-  // Row-major working copy of a, scaled by 2^-e (entries O(1)).
-  const w = new Float64Array(m * n);
-  scaleByPow2(a, w, -e);
-  const frob2 = mulPow2(sumSquares(w, 0, m * n), 2 * e);
+  // Row-major working copy of a, scaled by 2^-e (entries O(1)), and the sum of squares from it.
+  let frob2 = NaN;
+  const scaled = (w: Float64Array): void => {
+    scaleByPow2(a, w, -e);
+    frob2 = mulPow2(sumSquares(w, 0, m * n), 2 * e);
+  };
 
   const l = k + OVERSAMPLE;
   if (l >= kmax) {
+    scaled(new Float64Array(m * n));
     const full = svd(a, m, n);
     const fk = full.k;
     for (let i = 0; i < m; i++) for (let c = 0; c < k; c++) u[i * k + c] = full.u[i * fk + c];
@@ -120,8 +123,8 @@ export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): 
   const tau = new Float64Array(l);
   gaussian(g, SEED);
 
-  // Products with w and w^T (kept in the WebAssembly kernel's memory where there is one).
-  const prod = matrixProducts(w, m, n, l, true);
+  // Products with w and w^T; w is scaled straight into the WebAssembly kernel's memory where there is one.
+  const prod = matrixProducts(scaled, m, n, l, true);
   try {
     prod.times(g, y);
     orthonormalize(y, m, l, q, tau);

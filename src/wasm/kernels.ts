@@ -49,7 +49,8 @@ export const SCRATCH_AT = WEIGHTS_BYTES;
 /**
  * Memory above this is given back when a lease ends (common practice, no
  * source: a few large tiles' worth). 32 MiB holds a 1024 x 1024 tile's
- * range-finder product (16.7 MiB) and the encoder's kernels: at 16 MiB
+ * range-finder product (16.7 MiB while it kept a transposed copy of the
+ * tile, 8.6 MiB since) and the encoder's kernels: at 16 MiB
  * that product's memory was given back every tile and made anew (with
  * every use after it, 88 new memories in one pack of bench/'s large field
  * at rel:1e-3, 9 at 32 MiB; the pack 3258 -> 2996 ms, medians of 6
