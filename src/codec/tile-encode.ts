@@ -19,6 +19,7 @@ import { decodeInts } from './code-decode.js';
 import { encodeSymbolsWithin } from './code-symbols-encode.js';
 import { MAX_INT } from './section.js';
 import { settleCodes, unsettledCells } from './settle.js';
+import { refitKernel } from '../wasm/refit.js';
 import { writeSection } from './section-write.js';
 import { binary32Below, MIN_STEP, stepCode, stepValue } from './steps.js';
 
@@ -84,21 +85,44 @@ export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget:
       l[i * r + k] = q * du;
     }
   }
-  // Normal equations of the refit: G = Lq^T Lq (r x r), B = Lq^T A (r x n).
+  // Normal equations of the refit: G = Lq^T Lq (r x r), B = Lq^T A (r x n), each entry summed in increasing
+  // row i over the rows whose left factor entry is not zero. B, r multiply-adds a cell of the tile, in the
+  // WebAssembly kernel where there is one (src/wasm/refit.ts): the same bits.
   const g = new Float64Array(r * r);
   const b = new Float64Array(r * n);
   const a = t.centred;
-  // Row i's non-zero left factor entries: B takes them four at a time, one load of the tile's row
-  // feeding four rows of B (each entry of B still sums its terms in increasing i).
-  const nz = new Int32Array(r);
   for (let i = 0; i < m; i++) {
-    let count = 0;
     for (let k = 0; k < r; k++) {
       const lik = l[i * r + k];
       if (lik === 0) continue;
       for (let k2 = 0; k2 < r; k2++) g[k * r + k2] += lik * l[i * r + k2];
-      nz[count++] = k;
     }
+  }
+  // A left vector quantized to all zeros leaves G singular: such a rank adds nothing.
+  for (let k = 0; k < r; k++) if (g[k * r + k] === 0) return null;
+  if (!refitKernel(l, r, a, m, n, b)) refitRows(l, r, a, m, n, b);
+  solveSpd(g, r, b, n);
+  const qw = new Int32Array(r * n);
+  const w = new Float64Array(r * n);
+  for (let k = 0; k < r * n; k++) {
+    const q = Math.round(b[k] / dw);
+    if (!(Math.abs(q) <= MAX_INT)) return null;
+    qw[k] = q;
+    w[k] = q * dw;
+  }
+  return { rank: r, codeU, codeW: cw, qu, qw, l, w };
+}
+
+/**
+ * b (r x n, zeros) = l^T a (l m x r, a m x n, row-major), as {@link refitKernel}
+ * sums it: row by row, four of b's rows at a time over a row's non-zero
+ * entries of l, each load of a's row feeding four of them.
+ */
+function refitRows(l: Float64Array, r: number, a: Float64Array, m: number, n: number, b: Float64Array): void {
+  const nz = new Int32Array(r);
+  for (let i = 0; i < m; i++) {
+    let count = 0;
+    for (let k = 0; k < r; k++) if (l[i * r + k] !== 0) nz[count++] = k;
     const row = i * n;
     let z = 0;
     for (; z + 3 < count; z += 4) {
@@ -124,18 +148,6 @@ export function quantizeFactors(t: PreparedTile, r: number, c: number, dwTarget:
       for (let j = 0; j < n; j++) b[bk + j] += lik * a[row + j];
     }
   }
-  // A left vector quantized to all zeros leaves G singular: such a rank adds nothing.
-  for (let k = 0; k < r; k++) if (g[k * r + k] === 0) return null;
-  solveSpd(g, r, b, n);
-  const qw = new Int32Array(r * n);
-  const w = new Float64Array(r * n);
-  for (let k = 0; k < r * n; k++) {
-    const q = Math.round(b[k] / dw);
-    if (!(Math.abs(q) <= MAX_INT)) return null;
-    qw[k] = q;
-    w[k] = q * dw;
-  }
-  return { rank: r, codeU, codeW: cw, qu, qw, l, w };
 }
 
 /** What the pointwise search lends correct(): code grids that no candidate holds any more (correct() takes one of the tile's size). */
