@@ -53,6 +53,9 @@ export function classify(values: Float32Array | Float64Array, fill: Uint32Array 
   let special = 0;
   for (let i = 0; i < n; i++) {
     const x = values[i];
+    // A finite value that cannot be the fill value is valid, and its code is already 0 (Valid): one test a cell
+    // (x - x is 0 for a finite x, NaN for an infinity or a NaN).
+    if (fill === null && x - x === 0) continue;
     let c: number = Cell.Valid;
     if (fill !== null && words[wide ? 2 * i : i] === fill[0] && (!wide || words[2 * i + 1] === fill[1])) c = Cell.Fill;
     else if (x === Infinity) c = Cell.PosInf;

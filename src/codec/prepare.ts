@@ -77,25 +77,39 @@ export function prepareTile(
   let sum = 0;
   let first = NaN;
   let constant = true;
-  for (let c = 0; c < cells; c++) {
-    if (classes.codes[c] !== Cell.Valid) continue;
-    // Under a field layer the tile models what the layer leaves (binary64; the check is against orig).
-    const v = layer ? orig[c] - layer[c] : orig[c];
-    x[c] = v;
-    sum += v;
-    if (first !== first) first = v;
-    else if (v !== first) constant = false;
+  if (classes.special === 0 && layer === null && cells > 0) {
+    // Every cell valid, no layer: the same sum in the same order, with no test but the constant one.
+    first = orig[0];
+    for (let c = 0; c < cells; c++) {
+      const v = orig[c];
+      x[c] = v;
+      sum += v;
+      if (v !== first) constant = false;
+    }
+  } else {
+    for (let c = 0; c < cells; c++) {
+      if (classes.codes[c] !== Cell.Valid) continue;
+      // Under a field layer the tile models what the layer leaves (binary64; the check is against orig).
+      const v = layer ? orig[c] - layer[c] : orig[c];
+      x[c] = v;
+      sum += v;
+      if (first !== first) first = v;
+      else if (v !== first) constant = false;
+    }
   }
   // A constant tile keeps its value exactly as centre; otherwise the mean.
   // The mean is rounded to binary32, which a payload stores in 4 bytes (any centre decodes the same way).
   let center = valid === 0 ? 0 : constant ? first : binary32Near(sum / valid);
   if (!Number.isFinite(center)) center = 0;
   fillMissing(x, classes.codes, m, n, center);
-  let finite = true;
+  // x - x is 0 for every finite x, NaN otherwise: one sum tells whether centring overflowed anywhere.
+  let overflow = 0;
   for (let c = 0; c < cells; c++) {
-    x[c] -= center;
-    if (!Number.isFinite(x[c])) finite = false;
+    const d = x[c] - center;
+    x[c] = d;
+    overflow += d - d;
   }
+  const finite = overflow === 0;
   if (finite && classes.special > 0 && valid > 0 && tol > 0) lowRankFill(x, classes.codes, m, n, tol);
   let maskSection: Uint8Array = new Uint8Array(0);
   if (classes.special > 0) {
