@@ -6,6 +6,7 @@
 import { open, pack } from '../src/index.js';
 import { payloadShares } from '../src/codec/payload.js';
 import type { Codec } from './baselines/codec.js';
+import type { BenchField } from './fields.js';
 
 /** Tile side of the fixed-tile row. */
 export const TILE = 64;
@@ -95,4 +96,36 @@ export async function breakdown(bytes: Uint8Array): Promise<Breakdown> {
   const meanRank = tiles > 0 ? ix.rank.reduce((a, b) => a + b, 0) / tiles : 0;
   const metadata = bytes.length - factors - residual;
   return { tiles, meanRank, exactTiles, factorValues, factors, residual, metadata, tileMetadata: metadata - container + framing, container, total: bytes.length };
+}
+
+/** A tiling tried besides the chosen one, for the metadata target: its tile, bytes and per-tile metadata share. */
+export interface Tiling {
+  tile: [number, number];
+  bytes: number;
+  /** Per-tile metadata over total bytes (see {@link Breakdown.tileMetadata}). */
+  share: number;
+}
+
+/**
+ * Where an archive's per-tile metadata passes `limit` of its bytes: the
+ * chosen tile and the coarser ones (each side doubled, then both, within
+ * the field), packed with the same options, so a reader sees what a
+ * smaller share of metadata would cost in bytes. Empty when the share is
+ * within the limit.
+ */
+export async function coarserTilings(field: BenchField, bound: string, bytes: Uint8Array, limit: number): Promise<Tiling[]> {
+  const b = await breakdown(bytes);
+  if (b.tileMetadata <= limit * b.total) return [];
+  const [tr, tc] = (await open(bytes)).header.fields[0].tile;
+  const out: Tiling[] = [{ tile: [tr, tc], bytes: b.total, share: b.tileMetadata / b.total }];
+  const seen = new Set([`${tr}x${tc}`]);
+  for (const [r, c] of [[2 * tr, tc], [tr, 2 * tc], [2 * tr, 2 * tc]]) {
+    const tile: [number, number] = [Math.min(r, field.rows), Math.min(c, field.cols)];
+    if (seen.has(`${tile[0]}x${tile[1]}`)) continue;
+    seen.add(`${tile[0]}x${tile[1]}`);
+    const other = pack(field.values, [field.rows, field.cols], { bound, fill: field.fill, tile });
+    const ob = await breakdown(other);
+    out.push({ tile, bytes: ob.total, share: ob.tileMetadata / ob.total });
+  }
+  return out;
 }

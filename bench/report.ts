@@ -1,7 +1,7 @@
 /** RESULTS.md: tables per field, summary lines, targets, and how the run was made. */
 import type { Errors } from './metrics.js';
 import { type SpeedRun, speedTable } from './speed.js';
-import type { Breakdown } from './rankfield.js';
+import type { Breakdown, Tiling } from './rankfield.js';
 
 export type Status = 'ok' | 'failed' | 'skipped' | 'floor';
 
@@ -23,6 +23,8 @@ export interface Row {
   encRuns?: number;
   decRuns?: number;
   breakdown?: Breakdown;
+  /** For the metadata target (rankfield at rel:1e-3): where its share passes 2%, the chosen tiling and coarser ones (bench/rankfield.ts). */
+  coarser?: Tiling[];
   /** Eckart-Young floor, in factor values. */
   floorValues?: number;
 }
@@ -175,6 +177,14 @@ function targets(info: RunInfo, q: Quotient[]): string[] {
       meta.map((r) => `${r.field} ${((100 * r.breakdown!.tileMetadata) / r.breakdown!.total).toFixed(1)}% of ${r.breakdown!.total} bytes, frame ${r.breakdown!.container} B more`).join(', ') +
       ')',
   );
+  for (const r of meta.filter((x) => x.coarser && x.coarser.length > 1)) {
+    const [chosen, ...others] = r.coarser!;
+    const tiling = (t: Tiling) => `${t.tile[0]}x${t.tile[1]} ${t.bytes} bytes (${(100 * t.share).toFixed(2)}%)`;
+    out.push(
+      `  - ${r.field}: the tile chosen by bytes, ${tiling(chosen)}, against coarser tiles (same bound, tile given): ${others.map(tiling).join(', ')}; ` +
+        `each tile carries its index entry (a length, two CRC-32s, rank, missing count, two error shares) and its payload head, so fewer tiles mean less metadata but here a larger archive.`,
+    );
+  }
   const large = info.fields.find((f) => f.large);
   if (large) {
     const rf = info.rows.find((r) => r.field === large.id && r.bound === 'rel:1e-3' && r.method === 'rankfield');
