@@ -298,7 +298,9 @@ describe('HttpSource deadlines (a server that drips bytes)', () => {
 
   it('ends one request at its deadline however steadily the bytes come, and retries it', async () => {
     server.misbehave = dripping;
-    const src = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 200, requestDeadline: 300, retries: 1 });
+    // The idle limit far above the deadline: on a loaded machine the drip's 20 ms can stretch past a few hundred
+    // (a run of the suite with a load average of 6 saw a 200 ms limit fire first), and the deadline is what is tested.
+    const src = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 2000, requestDeadline: 300, retries: 1 });
     const e = await failure(src.read(0, 1000));
     expect(e).toBeInstanceOf(InputError);
     expect((e as InputError).code).toBe(InputCode.File);
