@@ -282,13 +282,14 @@ describe('HttpSource time limits', () => {
       return true;
     };
     server.misbehave = slow(Infinity);
-    const src = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 150, retries: 0 });
-    // 8 chunks 60 ms apart: about 420 ms in all, more than the 150 ms limit, but never a 150 ms pause.
+    const src = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 300, retries: 0 });
+    // 8 chunks 60 ms apart: about 420 ms in all, more than the 300 ms limit, but never a 300 ms pause (five times
+    // the spacing, so a loaded machine's late timer does not make one).
     expect(await src.read(0, 8000)).toEqual(bytes.subarray(0, 8000));
     server.misbehave = slow(3);
-    const stalled = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 150, retries: 0 });
+    const stalled = new HttpSource(`${server.url}/data.bin`, { retryDelay: 1, timeout: 300, retries: 0 });
     const e = await failure(stalled.read(0, 8000));
-    expect(e.message).toMatch(/no answer for 150 ms \(gave up after 1 attempt\)/);
+    expect(e.message).toMatch(/no answer for 300 ms \(gave up after 1 attempt\)/);
   });
 });
 
