@@ -3,6 +3,8 @@
  * 0xEDB88320, reflected, initial value and final XOR 0xFFFFFFFF).
  */
 
+import { crc32Kernel } from '../wasm/crc.js';
+
 // Eight lookup tables (slicing-by-8), built once: 8 bytes per step instead of 1.
 const TABLES: Uint32Array = (() => {
   const t = new Uint32Array(256 * 8);
@@ -21,11 +23,18 @@ const TABLES: Uint32Array = (() => {
   return t;
 })();
 
+/** Inputs at least this long go to the WebAssembly kernel where there is one (src/wasm/crc.ts): below it, the copy and the tables cost more than they save. */
+const KERNEL_BYTES = 1 << 18;
+
 /**
  * CRC-32 of `bytes`, continuing from `crc` (the value returned for the bytes
  * before; 0 to start).
  */
 export function crc32(bytes: Uint8Array, crc = 0): number {
+  if (bytes.length >= KERNEL_BYTES) {
+    const c = crc32Kernel(bytes, crc);
+    if (c !== null) return c;
+  }
   const t = TABLES;
   let c = ~crc >>> 0;
   let i = 0;
