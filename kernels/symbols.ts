@@ -58,7 +58,6 @@ const ZERO_AT: i32 = 0;
 const SIGN_AT: i32 = 4;
 const ESC_AT: i32 = 13;
 const TOP_AT: i32 = 31;
-const TOP: u32 = 0x1000000;
 
 /** The model's parts, byte offsets from `model`: counts F (16 x 25 i32), tables E (16 x 26 i32), symbols left (16 i32), rebuilds (16 i32), lookup (16 x 64 u8), probabilities (50 u16), counts of the binary contexts (50 u8). */
 const F_AT: i32 = 0;
