@@ -118,7 +118,6 @@ export function decodeInts(bytes: Uint8Array, m: number, n: number, codes: Uint8
   const kMantAt = MANT_AT;
   const kProbBits = PROB_BITS;
   const kProbOne = PROB_ONE;
-  const { p, count } = newModel();
   const shifts = SHIFTS;
   const end = bytes.length;
   if (end < 4) throw new CodeStreamError(`a coded stream is at least 4 bytes, this one ${end}`);
@@ -126,6 +125,8 @@ export function decodeInts(bytes: Uint8Array, m: number, n: number, codes: Uint8
   let range = 0xffffffff;
   if (code >= range) throw new CodeStreamError('the stream starts with FF FF FF FF, which no encoder writes');
   if (decodedByKernel(bytes, code, m, n, codes, out)) return;
+  // The model only here: the kernel sets up its own (two arrays less a call on a read of a small field).
+  const { p, count } = newModel();
   let pos = 4;
   let ctx = 0;
   let pr = 0;

@@ -68,6 +68,7 @@ const compiled = new Map<string, WebAssembly.Module | null>();
 export class Kernels {
   /** Views of the memory (renewed with it). */
   f64 = new Float64Array(0);
+  f32 = new Float32Array(0);
   i32 = new Int32Array(0);
   u8 = new Uint8Array(0);
   /** Whether the blend weight table is in memory (at 0). */
@@ -90,6 +91,7 @@ export class Kernels {
   private renew(bytes: number): void {
     this.memory = new WebAssembly.Memory({ initial: Math.ceil(bytes / PAGE) });
     this.f64 = new Float64Array(this.memory.buffer);
+    this.f32 = new Float32Array(this.memory.buffer);
     this.i32 = new Int32Array(this.memory.buffer);
     this.u8 = new Uint8Array(this.memory.buffer);
     this.instances.clear();

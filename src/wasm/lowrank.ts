@@ -56,7 +56,7 @@ function inBands(l: Float64Array, w: Float64Array, m: number, n: number, r: numb
     const fn = k.module<LowRankKernels>(LINALG_KERNELS);
     if (fn === null) return null;
     const heap = k.f64;
-    const view = f32 ? new Float32Array(heap.buffer) : heap;
+    const view = f32 ? k.f32 : heap;
     const unit = f32 ? 2 : 1;
     heap.set(w.subarray(0, r * n), wAt);
     let finite = true;

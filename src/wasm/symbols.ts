@@ -26,6 +26,8 @@ const LUT_AT = REBUILDS_AT + 16 * 4;
 const P_AT = LUT_AT + 16 * 64;
 const COUNT_AT = P_AT + 50 * 2;
 const MODEL_BYTES = COUNT_AT + 56;
+/** The kernel's own working memory after the model, for n columns and a range stream of rlen bytes (kernels/symbols.ts: the shifts by count, the row above's words, four zero bytes and the range stream reversed), rounded up to 4. */
+const workBytes = (n: number, rlen: number): number => 256 + 4 * (n + 4) + 4 + 4 * Math.ceil(rlen / 4);
 
 /** A fresh symbol model, as code-symbols.ts makes one: counts, tables, symbols left, rebuilds, lookup tables, binary probabilities and counts. */
 export interface FreshSymbolModel {
@@ -79,10 +81,10 @@ export function symbolsKernel(all: Uint8Array, from: number, rlen: number, code:
   if (all.length > MAX_BYTES || cells > MAX_CELLS || out.length < cells || (codes !== null && codes.length < cells)) return null;
   const k = kernels();
   if (k === null) return null;
-  // Bytes from SCRATCH_AT: out (i32), the model, the class map, the range stream and raw section (as in `all`), four zero bytes.
+  // Bytes from SCRATCH_AT: out (i32), the model and the kernel's working memory, the class map, the range stream, the raw section, four zero bytes.
   const outAt = SCRATCH_AT;
   const modelAt = outAt + 4 * cells;
-  const codesAt = modelAt + MODEL_BYTES;
+  const codesAt = modelAt + MODEL_BYTES + workBytes(n, rlen);
   const rangeAt = codesAt + (codes === null ? 0 : cells);
   const rawAt = rangeAt + rlen;
   const rawLength = all.length - from - rlen;

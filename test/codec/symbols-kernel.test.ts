@@ -16,6 +16,7 @@ import { Cell } from '../../src/codec/mask.js';
 import { SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels } from '../../src/wasm/kernels.js';
 import { symbolsKernel } from '../../src/wasm/symbols.js';
+import { precip, volcano } from '../archive/datasets.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
 
@@ -134,6 +135,46 @@ describe('the WebAssembly symbol decoder', () => {
       const { js, wasm } = decodeBoth(bytes, m, n, null);
       expect(js.out).toEqual(Array.from(v));
       expect(wasm).toEqual(js);
+    }
+  });
+
+  it('gives the JavaScript\'s values on the vega-datasets grids\' Lorenzo differences, quantized coarser and finer, whole, with missing cells, and in windows of every width mod 4', () => {
+    // Source: vega-datasets data/annual-precip.json (168 x 360) and data/volcano.json (61 x 87) hold integers
+    // (test/archive/datasets.ts); quantized with steps 1, 8 and 64 their differences range from dense to mostly zero
+    // (zero runs, every bucket, rebuilds at row ends).
+    for (const g of [precip(), volcano()]) {
+      const [m, n] = g.shape;
+      for (const step of [1, 8, 64]) {
+        const q = Int32Array.from(g.values, (x) => Math.round(x / step));
+        const d = new Int32Array(m * n);
+        for (let i = 0; i < m; i++) {
+          for (let j = 0; j < n; j++) {
+            const c = i * n + j;
+            const a = j > 0 ? q[c - 1] : 0;
+            const b = i > 0 ? q[c - n] : 0;
+            d[c] = q[c] - (i === 0 ? a : j === 0 ? b : a + b - (j > 0 ? q[c - n - 1] : 0));
+          }
+        }
+        const whole = decodeBoth(encodeSymbols(d, m, n, null), m, n, null);
+        expect(whole.js.out).toEqual(Array.from(d));
+        expect(whole.wasm).toEqual(whole.js);
+        // The cells below the grid's median value missing (classes Fill), as a mask makes them.
+        const sorted = Float64Array.from(g.values).sort();
+        const codes = Uint8Array.from(g.values, (x) => (x < sorted[sorted.length >> 1] ? Cell.Fill : Cell.Valid));
+        const dm = d.map((x, c) => (codes[c] === Cell.Valid ? x : 0));
+        const masked = decodeBoth(encodeSymbols(dm, m, n, codes), m, n, codes);
+        expect(masked.js.out).toEqual(Array.from(dm));
+        expect(masked.wasm).toEqual(masked.js);
+      }
+      // Windows of 1 to 9 columns (the kernel reads the row above four cells at a time) and 1 to 3 rows.
+      for (let w = 1; w <= 9; w++) {
+        for (const h of [1, 2, 3, 17]) {
+          const win = Int32Array.from({ length: h * w }, (_, c) => Math.round(g.values[Math.floor(c / w) * n + (c % w) + 5] / 4) - 20);
+          const r = decodeBoth(encodeSymbols(win, h, w, null), h, w, null);
+          expect(r.js.out).toEqual(Array.from(win));
+          expect(r.wasm).toEqual(r.js);
+        }
+      }
     }
   });
 
