@@ -1,11 +1,12 @@
 /**
- * The encoder's rate-distortion module (entry file): the walks of the
- * residual search for a mean squared error allotment (src/codec/rdo.ts,
- * RdoWalk.run and RowFloor) with the predictors other than the blend.
- * Encoder-side only: readers and the browser's decoding bundle never load
- * it. Compiled by `npm run kernels` (scripts/kernels.mjs) into
+ * The L2 encoder's module (entry file): the walks of the residual search
+ * for a mean squared error allotment (src/codec/rdo.ts, RdoWalk.run and
+ * RowFloor) with the predictors other than the blend, here, and the Gram
+ * matrix of the spectra the L2 plan takes (kernels/gram.ts, exported
+ * below). Encoder-side only: readers and the browser's decoding bundle
+ * never load it. Compiled by `npm run kernels` (scripts/kernels.mjs) into
  * src/wasm/kernels-bytes.ts; laid out and copied in and out by
- * src/wasm/rdo.ts. Every code, difference and sum is the JavaScript's (see
+ * src/wasm/rdo.ts and src/wasm/gram.ts. Every code, difference and sum is the JavaScript's (see
  * {@link rdoWalk} for how).
  *
  * Memory (byte addresses): orig (m x n values, binary32 when `f32` is 1,
@@ -16,6 +17,8 @@
  * restValid (m + 1 binary64 each: RowFloor's sums from each row to the
  * end), out (the walk's squared error and rough bits, two binary64).
  */
+
+export { gramTall, gramWide } from './gram';
 
 /** Math.log2 of the JavaScript that loads the module (the rough bits of a difference of TABLE or more: the same function, so the same value). */
 @external('env', 'log2')

@@ -17,6 +17,7 @@
 import { checkShape } from './shape.js';
 import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { singularValues } from './svd.js';
+import { gramKernel } from '../wasm/gram.js';
 
 /** Most QL iterations per eigenvalue before giving up (they converge in 2 or 3 as a rule). */
 const MAX_ITERATIONS = 60;
@@ -41,7 +42,8 @@ export function gramSingularValues(a: Float64Array, m: number, n: number): Float
   const e = exponentOf(amax);
   const scaled = new Float64Array(a.length);
   scaleByPow2(a, scaled, -e);
-  const g = gram(scaled, m, n);
+  // The WebAssembly kernel where there is one (the same matrix; src/wasm/gram.ts).
+  const g = gramKernel(scaled, m, n) ?? gram(scaled, m, n);
   const d = new Float64Array(k);
   const sub = new Float64Array(k);
   tridiagonalize(g, k, d, sub);
@@ -63,7 +65,7 @@ const GRAM_BLOCK = 64;
  * pairs taken several at a time only reorder which entries are worked on, never the
  * additions within one), so the result does not depend on the blocking.
  */
-function gram(a: Float64Array, m: number, n: number): Float64Array {
+export function gram(a: Float64Array, m: number, n: number): Float64Array {
   if (m >= n) {
     // a^T a: g[p][q] = sum over rows i of a[i][p] a[i][q], for q >= p, a block of g at a time over every
     // row of a, four rows per pass (((g + x0 y0) + x1 y1) + ...: the additions of one row after the other).

@@ -1,0 +1,39 @@
+/**
+ * The Gram matrix of src/linalg/spectrum.ts (gram: a^T a of a tall matrix,
+ * a a^T of a wide one) in the WebAssembly kernels (kernels/gram.ts, in the
+ * module RDO_KERNELS, the L2 encoder's): the same matrix bit for bit, two
+ * entries a vector. Null where the kernels are not to be had (the caller
+ * computes it).
+ */
+import { RDO_KERNELS } from './kernels-bytes.js';
+import { kernels, SCRATCH_AT } from './kernels.js';
+
+/** The exports of kernels/gram.ts: addresses are byte offsets into the kernels' memory. */
+interface GramKernels {
+  gramTall(a: number, m: number, n: number, g: number): void;
+  gramWide(a: number, m: number, n: number, t: number, g: number): void;
+}
+
+/** The k x k Gram matrix of the row-major m x n `a` (k = min(m, n)), as gram() in src/linalg/spectrum.ts forms it; null without the kernels. */
+export function gramKernel(a: Float64Array, m: number, n: number): Float64Array | null {
+  const cells = m * n;
+  if (cells === 0 || a.length < cells) return null;
+  const k = kernels();
+  if (k === null) return null;
+  const side = Math.min(m, n);
+  // From SCRATCH_AT (16-byte aligned): a, then g, then (wide) a transposed.
+  const aAt = SCRATCH_AT;
+  const gAt = aAt + 8 * cells + 16;
+  const tAt = gAt + 8 * side * side + 16;
+  if (!k.lease(tAt + (m < n ? 8 * cells : 0) - SCRATCH_AT)) return null;
+  try {
+    const fn = k.module<GramKernels>(RDO_KERNELS);
+    if (fn === null) return null;
+    k.f64.set(a.subarray(0, cells), aAt / 8);
+    if (m >= n) fn.gramTall(aAt, m, n, gAt);
+    else fn.gramWide(aAt, m, n, tAt, gAt);
+    return k.f64.slice(gAt / 8, gAt / 8 + side * side);
+  } finally {
+    k.release();
+  }
+}
