@@ -1,5 +1,6 @@
 /**
- * The Gram matrix of src/linalg/spectrum.ts (gram), with 128-bit SIMD
+ * The Gram module (entry file): the Gram matrix of src/linalg/spectrum.ts
+ * (gram), for the L2 plan's spectra, with 128-bit SIMD
  * across two entries: each lane of a vector is one entry of the Gram
  * matrix, summed exactly as the JavaScript sums it (from +0, a product
  * rounded then added, no fused multiply-add in WebAssembly's SIMD, the
@@ -7,7 +8,9 @@
  *
  * Layouts (byte addresses, binary64, row-major): a (m x n), g (k x k for
  * k = min(m, n), written whole), and for a wide matrix t (n x m: a
- * transposed, scratch).
+ * transposed, scratch). Encoder-side only; compiled by `npm run kernels`
+ * (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts, laid out and
+ * copied in and out by src/wasm/gram.ts.
  */
 
 /** Rows and columns of the blocks of g worked on at a time (a 64 x 64 block of binary64 is 32 KiB). */

@@ -1,13 +1,12 @@
 /**
- * The L2 encoder's module (entry file): the walks of the residual search
- * for a mean squared error allotment (src/codec/rdo.ts, RdoWalk.run and
- * RowFloor) with the predictors other than the blend, here, and the Gram
- * matrix of the spectra the L2 plan takes (kernels/gram.ts, exported
- * below). Encoder-side only: readers and the browser's decoding bundle
- * never load it. Compiled by `npm run kernels` (scripts/kernels.mjs) into
- * src/wasm/kernels-bytes.ts; laid out and copied in and out by
- * src/wasm/rdo.ts and src/wasm/gram.ts. Every code, difference and sum is the JavaScript's (see
- * {@link rdoWalk} for how).
+ * The rate-distortion module (entry file): the walks of the residual
+ * search for a mean squared error allotment (src/codec/rdo.ts, RdoWalk.run
+ * and RowFloor), here with the predictors other than the blend, and with
+ * the blend in kernels/rdo-blend.ts (exported below). Encoder-side only:
+ * readers and the browser's decoding bundle never load it. Compiled by
+ * `npm run kernels` (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts;
+ * laid out and copied in and out by src/wasm/rdo.ts. Every code,
+ * difference and sum is the JavaScript's (see {@link rdoWalk} for how).
  *
  * Memory (byte addresses): orig (m x n values, binary32 when `f32` is 1,
  * else binary64), base (m x n binary64: the low-rank part and centre),
@@ -18,38 +17,9 @@
  * end), out (the walk's squared error and rough bits, two binary64).
  */
 
-export { gramTall, gramWide } from './gram';
+export { rdoBlendWalk } from './rdo-blend';
 
-/** Math.log2 of the JavaScript that loads the module (the rough bits of a difference of TABLE or more: the same function, so the same value). */
-@external('env', 'log2')
-declare function jsLog2(x: f64): f64;
-
-/** The codes' limit (src/codec/section.ts, MAX_INT). */
-const LIMIT: f64 = 1073741824;
-/** Differences whose rough bits are in the table (src/codec/rdo.ts, DIFF_TABLE). */
-const TABLE: i64 = 4096;
-
-/** Math.round of the JavaScript: the integer nearest x, halves up (x - floor(x) is exact; infinities and NaN as they are; -0 for [-0.5, 0) becomes +0, which no caller can tell apart). */
-@inline
-function roundJs(x: f64): f64 {
-  const r = Math.floor(x);
-  return select<f64>(r + 1, r, x - r >= 0.5);
-}
-
-/** LIMIT as an integer. */
-const LIMIT_I: i64 = 1073741824;
-
-/** src/codec/rdo.ts diffBits of an integer difference: 1 for 0, else 3 + 2 log2 |d| (looked up below TABLE). */
-@inline
-function bitsOf(table: usize, d: i64): f64 {
-  const a = d < 0 ? -d : d;
-  return a < TABLE ? load<f64>(table + (<usize>a << 3)) : 3 + 2 * jsLog2(<f64>a);
-}
-
-@inline
-function value(orig: usize, f32: i32, c: i32): f64 {
-  return f32 !== 0 ? <f64>load<f32>(orig + (<usize>c << 2)) : load<f64>(orig + (<usize>c << 3));
-}
+import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
 
 /** RowFloor's sums (src/codec/rdo.ts) at step `step`, from each row to the end, into restSe and restValid. */
 export function rowFloor(orig: usize, f32: i32, base: usize, codes: usize, m: i32, n: i32, step: f64, restSe: usize, restValid: usize): void {

@@ -7,7 +7,7 @@ import type { FloatArray } from '../types.js';
 import { addLayer } from './layer.js';
 import { Cell } from './mask.js';
 import type { PreparedTile } from './prepare.js';
-import { interior, lowRank, Predictor, walkPredictor } from './reconstruct.js';
+import { blendWeights, interior, lowRank, Predictor, walkPredictor } from './reconstruct.js';
 import { MAX_INT } from './section.js';
 import { binary32Below } from './steps.js';
 import { RdoWalks } from '../wasm/rdo.js';
@@ -256,8 +256,8 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
    * bits than `bitsLimit`.
    */
   const floors = new Map<number, RowFloor>();
-  // With `walks` (the tile laid out in the kernels), a walk of a predictor other than the blend runs there: its
-  // differences are then left there (`kernel` true) for the caller to take where it keeps them.
+  // With `walks` (the tile laid out in the kernels), a walk runs there: its differences are then left there
+  // (`kernel` true) for the caller to take where it keeps them.
   const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit: number, walks: RdoWalks | null): { step: number; bits: number; kernel: boolean } | null => {
     const step = binary32Below(a * unit);
     let floor = floors.get(step);
@@ -265,7 +265,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
       const sums = walks?.floor(step);
       floors.set(step, (floor = sums ? new RowFloor(sums.restSe, sums.restValid) : RowFloor.of(t.orig, base, t.classes.codes, m, n, step)));
     }
-    if (walks !== null && kind !== Predictor.Blend) {
+    if (walks !== null) {
       const r = walks.walk(kind, step, w, seLimit, bitsLimit, FLOOR_KEEP, floor);
       // null: a value the kernel does not take (NaN), walked below.
       if (r !== null) return r !== false && r.se <= seLimit ? { step, bits: r.bits, kernel: true } : null;
@@ -297,7 +297,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   const ranked: { a: number; w: number; bits: number; order: number; step: number; d: Int32Array }[] = [];
   let spare: Int32Array = new Int32Array(cells);
   // The walks of the plain predictor, in the kernels where they are to be had (nothing else uses them meanwhile).
-  const plainWalks = plainKind === Predictor.Blend ? null : RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable());
+  const plainWalks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
   try {
     for (let ai = RDO_STEPS.length - 1; ai >= 0; ai--) {
       for (let wi = RDO_WEIGHTS.length - 1; wi >= 0; wi--) {
@@ -322,7 +322,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
     const [a, w] = bestAt;
     // A walk whose rough bits pass what code() would take is cut short (a hair over, against rounding). In the
     // kernels, laid out for this walk alone: code() takes the kernels' memory after it.
-    const walks = kind === Predictor.Blend ? null : RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable());
+    const walks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
     let walked: ReturnType<typeof walk> = null;
     try {
       walked = walk(kind, a, w, spare, perBit > 0 ? ((PREDICTED_MARGIN * beat()) / perBit) * (1 + 1e-9) : Infinity, walks);

@@ -1,11 +1,11 @@
 /**
  * The Gram matrix of src/linalg/spectrum.ts (gram: a^T a of a tall matrix,
- * a a^T of a wide one) in the WebAssembly kernels (kernels/gram.ts, in the
- * module RDO_KERNELS, the L2 encoder's): the same matrix bit for bit, two
+ * a a^T of a wide one) in the WebAssembly kernels (kernels/gram.ts, the
+ * module GRAM_KERNELS, encoder-side only): the same matrix bit for bit, two
  * entries a vector. Null where the kernels are not to be had (the caller
  * computes it).
  */
-import { RDO_KERNELS } from './kernels-bytes.js';
+import { GRAM_KERNELS } from './kernels-bytes.js';
 import { kernels, SCRATCH_AT } from './kernels.js';
 
 /** The exports of kernels/gram.ts: addresses are byte offsets into the kernels' memory. */
@@ -27,7 +27,7 @@ export function gramKernel(a: Float64Array, m: number, n: number): Float64Array 
   const tAt = gAt + 8 * side * side + 16;
   if (!k.lease(tAt + (m < n ? 8 * cells : 0) - SCRATCH_AT)) return null;
   try {
-    const fn = k.module<GramKernels>(RDO_KERNELS);
+    const fn = k.module<GramKernels>(GRAM_KERNELS);
     if (fn === null) return null;
     k.f64.set(a.subarray(0, cells), aAt / 8);
     if (m >= n) fn.gramTall(aAt, m, n, gAt);

@@ -1,7 +1,8 @@
 /**
  * The walks of the residual search under L2 bounds in the WebAssembly
- * kernels (kernels/rdo.ts, loaded by src/wasm/rdo.ts) against their
- * JavaScript versions (RdoWalk.run and RowFloor in src/codec/rdo.ts), bit
+ * kernels (kernels/rdo.ts and kernels/rdo-blend.ts, loaded by
+ * src/wasm/rdo.ts) against their JavaScript versions (RdoWalk.run, with
+ * every predictor, and RowFloor in src/codec/rdo.ts), bit
  * for bit: residualForMse and rankZeroForMse give the same payload bytes
  * (or the same null) on both paths, on two open datasets and on tiles of
  * every shape class (1 x n, m x 1, 1 x 1), with missing cells, binary64
@@ -15,7 +16,7 @@ import { describe, expect, it } from 'vitest';
 import { fillWords } from '../../src/codec/mask.js';
 import { prepareTile, type PreparedTile } from '../../src/codec/prepare.js';
 import { bitsTable, FLOOR_KEEP, RdoWalk, RowFloor, rankZeroForMse, residualForMse } from '../../src/codec/rdo.js';
-import { Predictor } from '../../src/codec/reconstruct.js';
+import { blendWeights, Predictor } from '../../src/codec/reconstruct.js';
 import { pointwiseFactors } from '../../src/codec/tile-encode.js';
 import { RDO_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels } from '../../src/wasm/kernels.js';
@@ -71,7 +72,7 @@ describe('the rate-distortion kernels module', () => {
     const k = kernels();
     expect(k).not.toBeNull();
     expect(k?.module(RDO_KERNELS)).not.toBeNull();
-    const walks = RdoWalks.open(new Float32Array(6), new Float64Array(6), new Uint8Array(6), 2, 3, new Float64Array(4096));
+    const walks = RdoWalks.open(new Float32Array(6), new Float64Array(6), new Uint8Array(6), 2, 3, new Float64Array(4096), blendWeights());
     expect(walks).not.toBeNull();
     walks?.close();
   });
@@ -90,7 +91,7 @@ function walkBoth(t: PreparedTile, kind: number, step: number, w: number, seLimi
   const run = new RdoWalk(t.orig, base, t.classes.codes, dJs, step, w);
   const ok = run.run(new Int32Array(cells), t.m, t.n, kind, seLimit, bitsLimit, floor);
   const js = ok ? { se: run.se, bits: run.bits, d: Array.from(dJs) } : false;
-  const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable());
+  const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights());
   expect(walks).not.toBeNull();
   try {
     const sums = walks!.floor(step);
@@ -105,15 +106,16 @@ function walkBoth(t: PreparedTile, kind: number, step: number, w: number, seLimi
   }
 }
 
-const PLAIN = [Predictor.None, Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median];
+/** Every predictor: the plain ones (kernels/rdo.ts) and the blend (kernels/rdo-blend.ts). */
+const KINDS = [Predictor.None, Predictor.Lorenzo, Predictor.Left, Predictor.Up, Predictor.Average, Predictor.Median, Predictor.Blend];
 
 describe('a walk in the kernels', () => {
-  it('gives the JavaScript\'s sums and differences for every predictor but the blend, on vega-datasets volcano.json and annual-precip.json', () => {
+  it('gives the JavaScript\'s sums and differences for every predictor, on vega-datasets volcano.json and annual-precip.json', () => {
     const g = vega('volcano.json');
     const volcano = prepareTile(Float32Array.from(g.values as number[]), g.m, g.n, 'f32', null, 1);
     const precip = prepareTile(block('annual-precip.json', 0, 0, 48, 80), 48, 80, 'f32', null, 5);
     for (const t of [volcano, precip]) {
-      for (const kind of PLAIN) {
+      for (const kind of KINDS) {
         for (const [step, w] of [
           [0.7, 0.15],
           [3, 0.6],
@@ -129,37 +131,44 @@ describe('a walk in the kernels', () => {
   it('stops where the JavaScript stops: at the squared-error limit, at the rough-bits limit, and on codes past the limit', () => {
     const g = vega('volcano.json');
     const t = prepareTile(Float32Array.from(g.values as number[]), g.m, g.n, 'f32', null, 1);
-    const whole = walkBoth(t, Predictor.Lorenzo, 1, 0.3, Infinity, Infinity);
-    expect(whole.js).not.toBe(false);
-    const { se, bits } = whole.js as { se: number; bits: number };
-    // Just above and just below each sum (the walk ends within a limit it meets exactly).
-    for (const [seLimit, bitsLimit] of [
-      [se, bits],
-      [se * (1 - 1e-12), Infinity],
-      [Infinity, bits * (1 - 1e-12)],
-      [0.5 * se, Infinity],
-      [Infinity, 0.5 * bits],
-    ]) {
-      const r = walkBoth(t, Predictor.Lorenzo, 1, 0.3, seLimit, bitsLimit);
-      expect(r.wasm, `limits ${seLimit} ${bitsLimit}`).toEqual(r.js);
+    // The plain predictors' walk checks its limits row by row, the blend's cell by cell.
+    for (const kind of [Predictor.Lorenzo, Predictor.Blend]) {
+      const whole = walkBoth(t, kind, 1, 0.3, Infinity, Infinity);
+      expect(whole.js).not.toBe(false);
+      const { se, bits } = whole.js as { se: number; bits: number };
+      // Just above and just below each sum (the walk ends within a limit it meets exactly).
+      for (const [seLimit, bitsLimit] of [
+        [se, bits],
+        [se * (1 - 1e-12), Infinity],
+        [Infinity, bits * (1 - 1e-12)],
+        [0.5 * se, Infinity],
+        [Infinity, 0.5 * bits],
+      ]) {
+        const r = walkBoth(t, kind, 1, 0.3, seLimit, bitsLimit);
+        expect(r.wasm, `kind ${kind} limits ${seLimit} ${bitsLimit}`).toEqual(r.js);
+      }
     }
     // A step of 3 x 10^-8 m: codes of up to about 2 x 10^9 from the centre, past 2^30 (section.ts MAX_INT) on the higher ground.
-    for (const kind of PLAIN) {
+    for (const kind of KINDS) {
       const r = walkBoth(t, kind, 3e-8, 0.3, Infinity, Infinity);
       expect(r.js).toBe(false);
       expect(r.wasm).toBe(false);
     }
-    // At the limit itself, with Left, step 1 and a base of 0: codes 0 and 2^30 are kept, then 2^30 + 1 is the nearest and
-    // cheaper than 2^30 (an error of 1 + 0.3 x 1 rough bit against 0.3 x 3), and is past the limit though its difference is 1.
+    // At the limit itself, with Left (and the blend), step 1 and a base of 0: codes 0 and 2^30 are kept, then 2^30 + 1 is
+    // the nearest and cheaper than 2^30 (an error of 1 + 0.3 x 1 rough bit against 0.3 x 3), and is past the limit though
+    // its difference is 1.
     const edge = prepareTile(Float64Array.from([0, 2 ** 30, 2 ** 30 + 1]), 1, 3, 'f64', null, 1);
-    const atEdge = walkBoth(edge, Predictor.Left, 1, 0.3, Infinity, Infinity, new Float64Array(3));
-    expect(atEdge.js).toBe(false);
-    expect(atEdge.wasm).toBe(false);
-    // One below: 2^30 - 1 and 2^30 are within it.
     const inside = prepareTile(Float64Array.from([0, 2 ** 30 - 1, 2 ** 30]), 1, 3, 'f64', null, 1);
-    const within = walkBoth(inside, Predictor.Left, 1, 0.3, Infinity, Infinity, new Float64Array(3));
-    expect(within.js).not.toBe(false);
-    expect(within.wasm).toEqual(within.js);
+    // On a first row the blend predicts as Left does.
+    for (const kind of [Predictor.Left, Predictor.Blend]) {
+      const atEdge = walkBoth(edge, kind, 1, 0.3, Infinity, Infinity, new Float64Array(3));
+      expect(atEdge.js).toBe(false);
+      expect(atEdge.wasm).toBe(false);
+      // One below: 2^30 - 1 and 2^30 are within it.
+      const within = walkBoth(inside, kind, 1, 0.3, Infinity, Infinity, new Float64Array(3));
+      expect(within.js).not.toBe(false);
+      expect(within.wasm).toEqual(within.js);
+    }
   });
 
   it('gives the JavaScript\'s rough bits for differences past the table (Math.log2, imported)', () => {
@@ -169,7 +178,7 @@ describe('a walk in the kernels', () => {
     const rand = mulberry32(11);
     const noisy = Float64Array.from({ length: m * n }, (_v, c) => Math.floor(c / n) * 5e5 + rand() * 1e6);
     const t = prepareTile(noisy, m, n, 'f64', null, 1);
-    for (const kind of PLAIN) {
+    for (const kind of KINDS) {
       const { js, wasm } = walkBoth(t, kind, 1.1, 0.45, Infinity, Infinity);
       expect(js).not.toBe(false);
       expect((js as { bits: number }).bits / (m * n)).toBeGreaterThan(3 + 2 * Math.log2(4096) - 8);
@@ -185,7 +194,7 @@ describe('a walk in the kernels', () => {
     expect(masked.classes.special).toBeGreaterThan(0);
     const shapes = [prepareTile(values.subarray(0, 40), 1, 40, 'f32', null, 5), prepareTile(Float32Array.from({ length: 24 }, (_v, i) => values[i * 40 + 7]), 24, 1, 'f32', null, 5), prepareTile(values.subarray(5, 6), 1, 1, 'f32', null, 5)];
     for (const t of [masked, ...shapes]) {
-      for (const kind of PLAIN) {
+      for (const kind of KINDS) {
         const { js, wasm } = walkBoth(t, kind, 2.5, 0.3, Infinity, Infinity);
         expect(wasm, `${t.m} x ${t.n} kind ${kind}`).toEqual(js);
       }
