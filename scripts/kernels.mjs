@@ -1,14 +1,15 @@
 #!/usr/bin/env node
 /**
  * Compiles the WebAssembly kernels (kernels/*.ts, AssemblyScript, the exact
- * version pinned in package.json's devDependencies), nine modules from
- * nine entry files (kernels/decode.ts and kernels/symbols.ts for the
+ * version pinned in package.json's devDependencies), ten modules from
+ * ten entry files (kernels/decode.ts and kernels/symbols.ts for the
  * decoder, kernels/linalg.ts for the linear algebra of both sides,
  * kernels/encode.ts for the encoder's check of a candidate,
  * kernels/finish.ts, kernels/finish-symbols.ts and kernels/finish-blend.ts
  * for the encoder's finishing of a tile, kernels/rdo.ts for the walks of
  * the residual search under L2 bounds and kernels/gram.ts for the Gram
- * matrix of the L2 plan's spectra, each
+ * matrix of the L2 plan's spectra, kernels/masked.ts for the pointwise
+ * check's choice of predictor on tiles with missing cells, each
  * under 4 KiB: src/wasm/kernels.ts says why), and writes
  * their bytes, base64, into src/wasm/kernels-bytes.ts, which is committed:
  * installing and building rankfield need no compiler. `npm run kernels` after a change
@@ -41,6 +42,7 @@ const MODULES = [
   ['FINISH_BLEND_KERNELS', 'kernels/finish-blend.ts'],
   ['RDO_KERNELS', 'kernels/rdo.ts'],
   ['GRAM_KERNELS', 'kernels/gram.ts'],
+  ['MASKED_KERNELS', 'kernels/masked.ts'],
 ];
 
 async function compile(entry) {
