@@ -1,6 +1,8 @@
 /**
- * The pointwise check's choice of predictor on a tile with missing cells
- * (src/codec/tile-encode.ts, correct), entry file: for each plain
+ * The encoder's module for tiles with missing cells (entry file): the
+ * harmonic fill's sweeps (kernels/fill.ts, exported below), and here the
+ * pointwise check's choice of predictor (src/codec/tile-encode.ts,
+ * correct): for each plain
  * predictor (Lorenzo, Left, Up, Average, Median: 1 to 5), the rough bits
  * of roughBits(predict(predictedFill(q, codes, ...), ...)) (src/codec/
  * reconstruct.ts), in one walk a predictor that fills the missing cells
@@ -12,12 +14,15 @@
  * limit (predict() gives null). Integers throughout, in i64: the same
  * values as the JavaScript's binary64 (all below 2^53). Encoder-side only;
  * compiled by `npm run kernels` (scripts/kernels.mjs) into
- * src/wasm/kernels-bytes.ts, laid out by src/wasm/masked.ts.
+ * src/wasm/kernels-bytes.ts, laid out by src/wasm/masked.ts (and the fill
+ * by src/wasm/fill.ts).
  *
  * Memory (byte addresses): q (m x n i32 codes), codes (m x n class codes,
  * u8: 0 is Valid), work (m x n i32 scratch: the filled codes), out (five
  * binary64, the rough bits of predictors 1 to 5).
  */
+
+export { fillSweeps } from './fill';
 
 /** The codes' limit (src/codec/section.ts, MAX_INT). */
 const LIMIT: i64 = 1073741824;

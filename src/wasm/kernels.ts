@@ -1,6 +1,6 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in nine modules: the linear-algebra module, with the range finder's
+ * in ten modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
@@ -12,10 +12,12 @@
  * predictors' differences (the blend's walk over known codes, the plain
  * predictors) and the binary coder's encoder, one with the blend's walk
  * four cells at a time, one with the symbol coder's encoder and the
- * check's error tally; and the encoder's modules for L2 bounds, one with
- * the residual search's walks (src/wasm/rdo.ts), which imports the
+ * check's error tally; the encoder's modules for L2 bounds, one with the
+ * residual search's walks (src/wasm/rdo.ts), which imports the
  * JavaScript's Math.log2 (so that its values are the JavaScript's), one
- * with the Gram matrix of the plan's spectra (src/wasm/gram.ts). Each kernel is
+ * with the Gram matrix of the plan's spectra (src/wasm/gram.ts); and the
+ * encoder's module with the check's choice of predictor on tiles with
+ * missing cells (src/wasm/masked.ts). Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,
