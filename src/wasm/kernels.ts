@@ -1,6 +1,6 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in ten modules: the linear-algebra module, with the range finder's
+ * in eleven modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
@@ -16,8 +16,10 @@
  * residual search's walks (src/wasm/rdo.ts), which imports the
  * JavaScript's Math.log2 (so that its values are the JavaScript's), one
  * with the Gram matrix of the plan's spectra (src/wasm/gram.ts); and the
- * encoder's module with the check's choice of predictor on tiles with
- * missing cells (src/wasm/masked.ts). Each kernel is
+ * encoder's module for tiles with missing cells (the check's choice of
+ * predictor, src/wasm/masked.ts, and the harmonic fill, src/wasm/fill.ts);
+ * and the encoder's module with the range finder's orthonormalization
+ * (src/linalg/product.ts runs it in the memory its products hold). Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,
