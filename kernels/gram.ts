@@ -8,10 +8,13 @@
  *
  * Layouts (byte addresses, binary64, row-major): a (m x n), g (k x k for
  * k = min(m, n), written whole), and for a wide matrix t (n x m: a
- * transposed, scratch). Encoder-side only; compiled by `npm run kernels`
- * (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts, laid out and
- * copied in and out by src/wasm/gram.ts.
+ * transposed, scratch). Its reduction to tridiagonal form is in
+ * kernels/tridiag.ts (exported below). Encoder-side only; compiled by `npm
+ * run kernels` (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts, laid
+ * out and copied in and out by src/wasm/gram.ts.
  */
+
+export { tridiagonalize } from './tridiag';
 
 /** Rows and columns of the blocks of g worked on at a time (a 64 x 64 block of binary64 is 32 KiB). */
 const BLOCK = 64;

@@ -17,7 +17,7 @@
 import { checkShape } from './shape.js';
 import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { singularValues } from './svd.js';
-import { gramKernel } from '../wasm/gram.js';
+import { gramTridiagonalKernel } from '../wasm/gram.js';
 
 /** Most QL iterations per eigenvalue before giving up (they converge in 2 or 3 as a rule). */
 const MAX_ITERATIONS = 60;
@@ -42,11 +42,10 @@ export function gramSingularValues(a: Float64Array, m: number, n: number): Float
   const e = exponentOf(amax);
   const scaled = new Float64Array(a.length);
   scaleByPow2(a, scaled, -e);
-  // The WebAssembly kernel where there is one (the same matrix; src/wasm/gram.ts).
-  const g = gramKernel(scaled, m, n) ?? gram(scaled, m, n);
   const d = new Float64Array(k);
   const sub = new Float64Array(k);
-  tridiagonalize(g, k, d, sub);
+  // The WebAssembly kernels where they are to be had (the same values; src/wasm/gram.ts).
+  if (!gramTridiagonalKernel(scaled, m, n, d, sub)) tridiagonalize(gram(scaled, m, n), k, d, sub);
   // Should the iteration not converge, the Jacobi SVD's values (slower, never wrong).
   if (!symmetricTridiagonalEigenvalues(d, sub)) return singularValues(a, m, n);
   const sorted = Array.from(d, (x) => Math.max(0, x)).sort((p, q) => q - p);
@@ -171,7 +170,7 @@ function reflector(col: (i: number) => number, c: number, k: number, v: Float64A
  * column order, as in the plain algorithm, so the result is the same bit
  * for bit (see {@link lowerProduct}).
  */
-function tridiagonalize(g: Float64Array, k: number, d: Float64Array, sub: Float64Array): void {
+export function tridiagonalize(g: Float64Array, k: number, d: Float64Array, sub: Float64Array): void {
   let v = new Float64Array(k);
   let vNext = new Float64Array(k);
   const w = new Float64Array(k);

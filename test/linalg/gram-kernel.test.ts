@@ -4,14 +4,16 @@
  * (Object.is on every entry, so a -0 counts): tall and wide, shapes across
  * the 64-wide blocks and the four-row and eight-row strides (1 x n, m x 1,
  * 1 x 1, odd sides), values of every sign with zeros, and two open
- * datasets; and gramSingularValues on both paths. Its agreement with a
+ * datasets; its tridiagonal form in the kernels (kernels/tridiag.ts)
+ * against tridiagonalize, including columns whose reflector is none; and
+ * gramSingularValues on both paths. Its agreement with a
  * reference library is test/linalg/spectrum.test.ts's (ml-matrix).
  */
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
-import { gram, gramSingularValues } from '../../src/linalg/spectrum.js';
-import { gramKernel } from '../../src/wasm/gram.js';
+import { gram, gramSingularValues, tridiagonalize } from '../../src/linalg/spectrum.js';
+import { gramKernel, gramTridiagonalKernel } from '../../src/wasm/gram.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
 
@@ -36,6 +38,58 @@ function vega(name: string): { m: number; n: number; values: Float64Array } {
   const g = JSON.parse(readFileSync(path, 'utf8')) as { width: number; height: number; values: (number | null)[] };
   return { m: g.height, n: g.width, values: Float64Array.from(g.values, (v) => v ?? 0) };
 }
+
+/** The tridiagonal form of a's Gram matrix, in JavaScript and in the kernels: diagonal and subdiagonal, -0 as '-0'. */
+function tridiagonalBoth(a: Float64Array, m: number, n: number) {
+  const k = Math.min(m, n);
+  const show = (x: Float64Array) => Array.from(x, (v) => (Object.is(v, -0) ? '-0' : v));
+  const d = new Float64Array(k);
+  const sub = new Float64Array(k);
+  tridiagonalize(gram(a, m, n), k, d, sub);
+  const dk = new Float64Array(k);
+  const subk = new Float64Array(k);
+  expect(gramTridiagonalKernel(a, m, n, dk, subk)).toBe(true);
+  return { js: { d: show(d), sub: show(sub) }, wasm: { d: show(dk), sub: show(subk) } };
+}
+
+describe('the tridiagonal form in the kernels', () => {
+  it('is the JavaScript\'s on random matrices of every size class, and where a column needs no reflector', () => {
+    const rand = mulberry32(9);
+    for (const [m, n] of [
+      [1, 1],
+      [2, 5],
+      [3, 3],
+      [4, 9],
+      [12, 7],
+      [40, 40],
+      [67, 130],
+      [129, 64],
+    ]) {
+      const a = Float64Array.from({ length: m * n }, () => rand() - 0.5);
+      const { js, wasm } = tridiagonalBoth(a, m, n);
+      expect(wasm, `${m} x ${n}`).toEqual(js);
+    }
+    // Columns 0 and 3 of a tall matrix zero: rows and columns of the Gram matrix that are zero below the diagonal.
+    const [m, n] = [30, 8];
+    const a = Float64Array.from({ length: m * n }, (_v, c) => (c % n === 0 || c % n === 3 ? 0 : rand() - 0.5));
+    const zero = tridiagonalBoth(a, m, n);
+    expect(zero.js.sub.filter((v) => v === 0).length).toBeGreaterThan(1);
+    expect(zero.wasm).toEqual(zero.js);
+  });
+
+  it('is the JavaScript\'s on vega-datasets volcano.json and annual-precip.json, tall and wide', () => {
+    for (const name of ['volcano.json', 'annual-precip.json']) {
+      const g = vega(name);
+      const t = new Float64Array(g.m * g.n);
+      for (let i = 0; i < g.m; i++) for (let j = 0; j < g.n; j++) t[j * g.m + i] = g.values[i * g.n + j] / 1000;
+      const scaled = g.values.map((v) => v / 1000);
+      const wide = tridiagonalBoth(scaled, g.m, g.n);
+      expect(wide.wasm).toEqual(wide.js);
+      const tall = tridiagonalBoth(t, g.n, g.m);
+      expect(tall.wasm).toEqual(tall.js);
+    }
+  });
+});
 
 describe('the Gram matrix in the kernels', () => {
   it('is the JavaScript\'s, bit for bit, on random matrices of every shape class', () => {
