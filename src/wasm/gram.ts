@@ -17,7 +17,7 @@ interface GramKernels {
   tridiagonalize(g: number, k: number, d: number, sub: number, work: number): void;
 }
 
-/** The k x k Gram matrix of the row-major m x n `a` (k = min(m, n)), as gram() in src/linalg/spectrum.ts forms it; null without the kernels. */
+/** The k x k Gram matrix of the row-major m x n `a` (k = min(m, n)), as gram() in src/linalg/spectrum.ts forms it; null without the kernels (the encoder takes {@link gramTridiagonalKernel}; this one is the Gram matrix alone, for tests). */
 export function gramKernel(a: Float64Array, m: number, n: number): Float64Array | null {
   const cells = m * n;
   if (cells === 0 || a.length < cells) return null;
