@@ -1,14 +1,18 @@
 #!/usr/bin/env node
 /**
  * Compiles the WebAssembly kernels (kernels/*.ts, AssemblyScript, the exact
- * version pinned in package.json's devDependencies), nine modules from
- * nine entry files (kernels/decode.ts and kernels/symbols.ts for the
+ * version pinned in package.json's devDependencies), thirteen modules from
+ * thirteen entry files (kernels/decode.ts and kernels/symbols.ts for the
  * decoder, kernels/linalg.ts for the linear algebra of both sides,
  * kernels/encode.ts for the encoder's check of a candidate,
  * kernels/finish.ts, kernels/finish-symbols.ts and kernels/finish-blend.ts
- * for the encoder's finishing of a tile, kernels/refit.ts for the refit
- * of a candidate's right factor, kernels/crc.ts for the CRC-32 of long
- * inputs, each
+ * for the encoder's finishing of a tile, kernels/rdo.ts for the walks of
+ * the residual search under L2 bounds and kernels/gram.ts for the Gram
+ * matrix of the L2 plan's spectra, kernels/masked.ts for the pointwise
+ * check's choice of predictor on tiles with missing cells and the harmonic
+ * fill, kernels/qr.ts for the range finder's orthonormalization,
+ * kernels/refit.ts for the refit of a candidate's right factor,
+ * kernels/crc.ts for the CRC-32 of long inputs (both sides), each
  * under 4 KiB: src/wasm/kernels.ts says why), and writes
  * their bytes, base64, into src/wasm/kernels-bytes.ts, which is committed:
  * installing and building rankfield need no compiler. `npm run kernels` after a change
@@ -39,6 +43,10 @@ const MODULES = [
   ['FINISH_KERNELS', 'kernels/finish.ts'],
   ['FINISH_SYMBOL_KERNELS', 'kernels/finish-symbols.ts'],
   ['FINISH_BLEND_KERNELS', 'kernels/finish-blend.ts'],
+  ['RDO_KERNELS', 'kernels/rdo.ts'],
+  ['GRAM_KERNELS', 'kernels/gram.ts'],
+  ['MASKED_KERNELS', 'kernels/masked.ts'],
+  ['QR_KERNELS', 'kernels/qr.ts'],
   ['REFIT_KERNELS', 'kernels/refit.ts'],
   ['CRC_KERNELS', 'kernels/crc.ts'],
 ];

@@ -5,6 +5,7 @@
  * from the mean of the tile's valid values.
  */
 import { Cell } from './mask.js';
+import { fillSweepsKernel } from '../wasm/fill.js';
 
 /** Replace missing cells of `x` (m x n, in place) by a harmonic fill. */
 export function fillMissing(x: Float64Array, codes: Uint8Array, m: number, n: number, mean: number): void {
@@ -32,6 +33,8 @@ export function fillMissing(x: Float64Array, codes: Uint8Array, m: number, n: nu
     k++;
   }
   const sweeps = Math.min(400, 2 * (m + n));
+  // The WebAssembly kernel where there is one (the same values; src/wasm/fill.ts).
+  if (fillSweepsKernel(x, missing, inner, m, n, sweeps)) return;
   for (let s = 0; s < sweeps; s++) {
     let change = 0;
     for (let t = 0; t < count; t++) {

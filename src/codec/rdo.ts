@@ -7,9 +7,10 @@ import type { FloatArray } from '../types.js';
 import { addLayer } from './layer.js';
 import { Cell } from './mask.js';
 import type { PreparedTile } from './prepare.js';
-import { interior, lowRank, Predictor, walkPredictor } from './reconstruct.js';
+import { blendWeights, interior, lowRank, Predictor, walkPredictor } from './reconstruct.js';
 import { MAX_INT } from './section.js';
 import { binary32Below } from './steps.js';
+import { RdoWalks } from '../wasm/rdo.js';
 import { correct, lowRankPayload, type Factors } from './tile-encode.js';
 
 /** Step multipliers and rate weights (in units of step^2) the rate-distortion search tries. */
@@ -61,7 +62,7 @@ function diffBits(d: number): number {
 }
 
 /** The table of {@link diffBits} below DIFF_TABLE (built once). */
-function bitsTable(): Float64Array {
+export function bitsTable(): Float64Array {
   if (diffTable === null) {
     diffTable = new Float64Array(DIFF_TABLE);
     diffTable[0] = 1;
@@ -77,7 +78,7 @@ function bitsTable(): Float64Array {
  * step)^2 + w x bits of the difference; it records the difference in `d`
  * and sums the squared error and the rough bits.
  */
-class RdoWalk {
+export class RdoWalk {
   se = 0;
   bits = 0;
   constructor(
@@ -164,6 +165,8 @@ class RdoWalk {
 
 /** Relative slack of {@link RowFloor}'s test, far above the rounding of its sums (about cells x 2^-53). */
 const FLOOR_SLACK = 1e-6;
+/** What RowFloor's sums are taken at (the kernels are handed the same value). */
+export const FLOOR_KEEP = 1 - FLOOR_SLACK;
 
 /**
  * What the rows from row i to the end add at least to a walk at one step:
@@ -175,14 +178,17 @@ const FLOOR_SLACK = 1e-6;
  * covers rounding in the sums), and most walks at too coarse a step stop
  * before their first row.
  */
-class RowFloor {
-  /** restSe[i], restValid[i]: over rows i .. m - 1 (entry m is 0). */
-  private readonly restSe: Float64Array;
-  private readonly restValid: Float64Array;
+export class RowFloor {
+  /** restSe[i], restValid[i]: over rows i .. m - 1 (entry m is 0); computed by the kernels (src/wasm/rdo.ts) or by {@link RowFloor.of}. */
+  constructor(
+    readonly restSe: Float64Array,
+    readonly restValid: Float64Array,
+  ) {}
 
-  constructor(orig: FloatArray, base: Float64Array, codes: Uint8Array, m: number, n: number, step: number) {
-    this.restSe = new Float64Array(m + 1);
-    this.restValid = new Float64Array(m + 1);
+  /** The sums at `step`, computed here. */
+  static of(orig: FloatArray, base: Float64Array, codes: Uint8Array, m: number, n: number, step: number): RowFloor {
+    const restSe = new Float64Array(m + 1);
+    const restValid = new Float64Array(m + 1);
     for (let i = m - 1; i >= 0; i--) {
       let se = 0;
       let valid = 0;
@@ -194,14 +200,15 @@ class RowFloor {
         se += (x - v) * (x - v) * step * step;
         valid++;
       }
-      this.restSe[i] = this.restSe[i + 1] + se;
-      this.restValid[i] = this.restValid[i + 1] + valid;
+      restSe[i] = restSe[i + 1] + se;
+      restValid[i] = restValid[i + 1] + valid;
     }
+    return new RowFloor(restSe, restValid);
   }
 
   /** Whether a walk with sums se and bits after its first i rows must pass seLimit or bitsLimit by its end. */
   cannotFit(i: number, se: number, bits: number, seLimit: number, bitsLimit: number): boolean {
-    const keep = 1 - FLOOR_SLACK;
+    const keep = FLOOR_KEEP;
     return se + keep * this.restSe[i] > seLimit || bits + keep * this.restValid[i] > bitsLimit;
   }
 }
@@ -249,13 +256,23 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
    * bits than `bitsLimit`.
    */
   const floors = new Map<number, RowFloor>();
-  const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit = Infinity): { step: number; bits: number } | null => {
-    d.fill(0);
+  // With `walks` (the tile laid out in the kernels), a walk runs there: its differences are then left there
+  // (`kernel` true) for the caller to take where it keeps them.
+  const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit: number, walks: RdoWalks | null): { step: number; bits: number; kernel: boolean } | null => {
     const step = binary32Below(a * unit);
     let floor = floors.get(step);
-    if (floor === undefined) floors.set(step, (floor = new RowFloor(t.orig, base, t.classes.codes, m, n, step)));
+    if (floor === undefined) {
+      const sums = walks?.floor(step);
+      floors.set(step, (floor = sums ? new RowFloor(sums.restSe, sums.restValid) : RowFloor.of(t.orig, base, t.classes.codes, m, n, step)));
+    }
+    if (walks !== null) {
+      const r = walks.walk(kind, step, w, seLimit, bitsLimit, FLOOR_KEEP, floor);
+      // null: a value the kernel does not take (NaN), walked below.
+      if (r !== null) return r !== false && r.se <= seLimit ? { step, bits: r.bits, kernel: true } : null;
+    }
+    d.fill(0);
     const run = new RdoWalk(t.orig, base, t.classes.codes, d, step, w);
-    return run.run(q, m, n, kind, seLimit, bitsLimit, floor) && run.se <= seLimit ? { step: run.step, bits: run.bits } : null;
+    return run.run(q, m, n, kind, seLimit, bitsLimit, floor) && run.se <= seLimit ? { step: run.step, bits: run.bits, kernel: false } : null;
   };
   let best: Uint8Array | null = null;
   let bestAt: [number, number] = [1, 0];
@@ -279,25 +296,40 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   // ranking does not depend on the order the walks run in.
   const ranked: { a: number; w: number; bits: number; order: number; step: number; d: Int32Array }[] = [];
   let spare: Int32Array = new Int32Array(cells);
-  for (let ai = RDO_STEPS.length - 1; ai >= 0; ai--) {
-    for (let wi = RDO_WEIGHTS.length - 1; wi >= 0; wi--) {
-      const [a, w, order] = [RDO_STEPS[ai], RDO_WEIGHTS[wi], ai * RDO_WEIGHTS.length + wi];
-      // A walk whose bits pass the third cheapest's could not rank among them: cut short.
-      const walked = walk(plainKind, a, w, spare, ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity);
-      if (walked === null) continue;
-      let at = ranked.length;
-      while (at > 0 && (ranked[at - 1].bits > walked.bits || (ranked[at - 1].bits === walked.bits && ranked[at - 1].order > order))) at--;
-      if (at >= RDO_CODED) continue;
-      ranked.splice(at, 0, { a, w, bits: walked.bits, order, step: walked.step, d: spare });
-      spare = ranked.length > RDO_CODED ? ranked.pop()!.d : new Int32Array(cells);
+  // The walks of the plain predictor, in the kernels where they are to be had (nothing else uses them meanwhile).
+  const plainWalks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
+  try {
+    for (let ai = RDO_STEPS.length - 1; ai >= 0; ai--) {
+      for (let wi = RDO_WEIGHTS.length - 1; wi >= 0; wi--) {
+        const [a, w, order] = [RDO_STEPS[ai], RDO_WEIGHTS[wi], ai * RDO_WEIGHTS.length + wi];
+        // A walk whose bits pass the third cheapest's could not rank among them: cut short.
+        const walked = walk(plainKind, a, w, spare, ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity, plainWalks);
+        if (walked === null) continue;
+        let at = ranked.length;
+        while (at > 0 && (ranked[at - 1].bits > walked.bits || (ranked[at - 1].bits === walked.bits && ranked[at - 1].order > order))) at--;
+        if (at >= RDO_CODED) continue;
+        if (walked.kernel) plainWalks!.differences(spare);
+        ranked.splice(at, 0, { a, w, bits: walked.bits, order, step: walked.step, d: spare });
+        spare = ranked.length > RDO_CODED ? ranked.pop()!.d : new Int32Array(cells);
+      }
     }
+  } finally {
+    plainWalks?.close();
   }
   for (const r of ranked) code(plainKind, r.a, r.w, r.step, r.d, r.bits);
   for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) {
     if (kind === plainKind) continue;
     const [a, w] = bestAt;
-    // A walk whose rough bits pass what code() would take is cut short (a hair over, against rounding).
-    const walked = walk(kind, a, w, spare, perBit > 0 ? ((PREDICTED_MARGIN * beat()) / perBit) * (1 + 1e-9) : Infinity);
+    // A walk whose rough bits pass what code() would take is cut short (a hair over, against rounding). In the
+    // kernels, laid out for this walk alone: code() takes the kernels' memory after it.
+    const walks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
+    let walked: ReturnType<typeof walk> = null;
+    try {
+      walked = walk(kind, a, w, spare, perBit > 0 ? ((PREDICTED_MARGIN * beat()) / perBit) * (1 + 1e-9) : Infinity, walks);
+      if (walked?.kernel) walks!.differences(spare);
+    } finally {
+      walks?.close();
+    }
     if (walked !== null) code(kind, a, w, walked.step, spare, walked.bits);
   }
   return best;

@@ -234,7 +234,7 @@ function capErr(d: number): number {
 
 let weights: Int32Array | null = null;
 /** floor(65536 / (1 + e)) for every activity e a blend can have (0 .. 4 x the error cap). */
-function blendWeights(): Int32Array {
+export function blendWeights(): Int32Array {
   if (weights === null) {
     weights = new Int32Array(4 * BLEND_ERR_CAP + 1);
     for (let e = 0; e < weights.length; e++) weights[e] = Math.floor(65536 / (1 + e));

@@ -21,6 +21,7 @@ import { MAX_INT } from './section.js';
 import { settleCodes, unsettledCells } from './settle.js';
 import { refitKernel } from '../wasm/refit.js';
 import { writeSection } from './section-write.js';
+import { maskedPredictorBits } from '../wasm/masked.js';
 import { binary32Below, MIN_STEP, stepCode, stepValue } from './steps.js';
 
 /** The exact payload: byte-shuffled values, DEFLATE. */
@@ -397,12 +398,26 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
       // Without missing cells, only the winner's differences are formed; with them, each predictor
       // fills the missing cells its own way.
       const plain = sums === null ? null : predictorBitsOf(settled.sumsOk ? sums : null);
+      // With missing cells, the plain predictors' rough bits from the kernels where they are to be had (each
+      // predictor's filled codes and differences walked, not kept): the chosen one's differences are formed after.
+      const masked = plain === null ? maskedPredictorBits(q, codes, m, n) : null;
+      let unformed = false;
       for (const kind of PREDICTORS) {
         if (kind === Predictor.Blend && !blendToo) continue;
         if (plain !== null && kind !== Predictor.Blend) {
           if (plain[kind - 1] < bestBits) {
             bestBits = plain[kind - 1];
             predictor = kind;
+          }
+          continue;
+        }
+        if (masked !== null && kind !== Predictor.Blend) {
+          // -1: a difference passes the limit (predict() gives null).
+          const bits = masked[kind - 1];
+          if (bits >= 0 && bits < bestBits) {
+            bestBits = bits;
+            predictor = kind;
+            unformed = true;
           }
           continue;
         }
@@ -418,6 +433,7 @@ export function correct(t: PreparedTile, f: Factors | null, e: number, step = bi
           predictor = kind;
         }
       }
+      if (unformed) best = predict(predictedFill(q, codes, m, n, MAX_INT, predictor), m, n, MAX_INT, predictor)!;
       if (plain !== null && settled.nonzero !== null) nonzero = settled.nonzero[predictor === Predictor.None ? 5 : predictor - 1];
       if (plain !== null && predictor !== Predictor.None) {
         if (search !== null && !blendToo && nonzero !== undefined) deferred = true;

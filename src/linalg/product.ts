@@ -6,7 +6,7 @@
  * transposed copy) and by {@link mulA} otherwise: the same bits either way
  * (kernels/product.ts says why).
  */
-import { LINALG_KERNELS } from '../wasm/kernels-bytes.js';
+import { LINALG_KERNELS, QR_KERNELS } from '../wasm/kernels-bytes.js';
 import { type Kernels, kernels, SCRATCH_AT } from '../wasm/kernels.js';
 import { mulA } from './mul.js';
 
@@ -18,12 +18,24 @@ interface LinalgKernels {
   unpair(src: number, len: number, count: number, dst: number): void;
 }
 
+/** The export of kernels/qr.ts (encoder-side: the range finder's orthonormalization). */
+interface QrKernels {
+  orthonormalize(y: number, rows: number, cols: number, q: number, tau: number): void;
+}
+
 /** Products with one matrix for sketches of l columns; {@link MatrixProducts.done} ends them. */
 export interface MatrixProducts {
   /** y = w g: g column-major cols x l, y column-major rows x l. */
   times(g: Float64Array, y: Float64Array): void;
   /** z = w^T q: q column-major rows x l, z column-major cols x l (only when made with `transposed`). */
   timesT(q: Float64Array, z: Float64Array): void;
+  /**
+   * orthonormalize(y, rows, l, q, tau) of src/linalg/truncated.ts in the
+   * kernels' memory these products hold (kernels/qr.ts: the same q and tau
+   * bit for bit); false where it is not to be had (nothing is written: the
+   * caller runs the JavaScript).
+   */
+  orthonormalize(y: Float64Array, rows: number, q: Float64Array, tau: Float64Array): boolean;
   /** Give the kernels' memory back (the JavaScript version has nothing to give). */
   done(): void;
 }
@@ -65,6 +77,7 @@ export function matrixProducts(given: Float64Array | MatrixFill, rows: number, c
       if (wt === null) throw new Error('matrixProducts: made without the transpose');
       mulA(wt, cols, rows, q, l, z);
     },
+    orthonormalize: () => false,
     done: () => {},
   };
 }
@@ -81,12 +94,16 @@ function kernelProducts(k: Kernels, w: Float64Array | MatrixFill, rows: number, 
   const cells = rows * cols;
   const pairs = (l + 1) >> 1;
   const side = Math.max(rows, cols);
-  // In doubles from SCRATCH_AT: w, the sketch (side x l), in pairs (pairs x side x 2), the product in pairs (pairs x side x 2).
+  // In doubles from SCRATCH_AT: w, the sketch (side x l), in pairs (pairs x side x 2), the product in pairs (pairs x side x 2),
+  // and for the orthonormalization a sketch, its Q (side x l each) and tau (l).
   const wAt = SCRATCH_AT / 8;
   const gAt = wAt + cells;
   const pairsAt = gAt + side * l;
   const yAt = pairsAt + 2 * pairs * side;
-  if (!k.lease(8 * (yAt + 2 * pairs * side) - SCRATCH_AT)) return null;
+  const orthAt = yAt + 2 * pairs * side;
+  const orthQAt = orthAt + side * l;
+  const tauAt = orthQAt + side * l;
+  if (!k.lease(8 * (tauAt + l) - SCRATCH_AT)) return null;
   const fn = k.module<LinalgKernels>(LINALG_KERNELS);
   if (fn === null) {
     k.release();
@@ -110,6 +127,17 @@ function kernelProducts(k: Kernels, w: Float64Array | MatrixFill, rows: number, 
       // The pairs back into columns, where the sketch was (it is in pairs now).
       fn.unpair(8 * yAt, cols, l, 8 * gAt);
       z.set(heap.subarray(gAt, gAt + cols * l));
+    },
+    orthonormalize: (y, r, q, tau) => {
+      const qr = k.module<QrKernels>(QR_KERNELS);
+      if (qr === null || r > side || y.length < r * l || q.length < r * l || tau.length < l) return false;
+      heap.set(y.subarray(0, r * l), orthAt);
+      qr.orthonormalize(8 * orthAt, r, l, 8 * orthQAt, 8 * tauAt);
+      q.set(heap.subarray(orthQAt, orthQAt + r * l));
+      tau.set(heap.subarray(tauAt, tauAt + l));
+      // orthonormalize destroys y (its reflectors): left as the JavaScript leaves it.
+      y.set(heap.subarray(orthAt, orthAt + r * l));
+      return true;
     },
     done: () => k.release(),
   };

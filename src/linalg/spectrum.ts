@@ -17,6 +17,7 @@
 import { checkShape } from './shape.js';
 import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { singularValues } from './svd.js';
+import { gramTridiagonalKernel } from '../wasm/gram.js';
 
 /** Most QL iterations per eigenvalue before giving up (they converge in 2 or 3 as a rule). */
 const MAX_ITERATIONS = 60;
@@ -41,10 +42,10 @@ export function gramSingularValues(a: Float64Array, m: number, n: number): Float
   const e = exponentOf(amax);
   const scaled = new Float64Array(a.length);
   scaleByPow2(a, scaled, -e);
-  const g = gram(scaled, m, n);
   const d = new Float64Array(k);
   const sub = new Float64Array(k);
-  tridiagonalize(g, k, d, sub);
+  // The WebAssembly kernels where they are to be had (the same values; src/wasm/gram.ts).
+  if (!gramTridiagonalKernel(scaled, m, n, d, sub)) tridiagonalize(gram(scaled, m, n), k, d, sub);
   // Should the iteration not converge, the Jacobi SVD's values (slower, never wrong).
   if (!symmetricTridiagonalEigenvalues(d, sub)) return singularValues(a, m, n);
   const sorted = Array.from(d, (x) => Math.max(0, x)).sort((p, q) => q - p);
@@ -63,7 +64,7 @@ const GRAM_BLOCK = 64;
  * pairs taken several at a time only reorder which entries are worked on, never the
  * additions within one), so the result does not depend on the blocking.
  */
-function gram(a: Float64Array, m: number, n: number): Float64Array {
+export function gram(a: Float64Array, m: number, n: number): Float64Array {
   if (m >= n) {
     // a^T a: g[p][q] = sum over rows i of a[i][p] a[i][q], for q >= p, a block of g at a time over every
     // row of a, four rows per pass (((g + x0 y0) + x1 y1) + ...: the additions of one row after the other).
@@ -169,7 +170,7 @@ function reflector(col: (i: number) => number, c: number, k: number, v: Float64A
  * column order, as in the plain algorithm, so the result is the same bit
  * for bit (see {@link lowerProduct}).
  */
-function tridiagonalize(g: Float64Array, k: number, d: Float64Array, sub: Float64Array): void {
+export function tridiagonalize(g: Float64Array, k: number, d: Float64Array, sub: Float64Array): void {
   let v = new Float64Array(k);
   let vNext = new Float64Array(k);
   const w = new Float64Array(k);

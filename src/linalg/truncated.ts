@@ -126,13 +126,15 @@ export function truncatedSvd(a: Float64Array, m: number, n: number, k: number): 
   // Products with w and w^T; w is scaled straight into the WebAssembly kernel's memory where there is one.
   const prod = matrixProducts(scaled, m, n, l, true);
   try {
+    // The orthonormalizations in the kernels' memory the products hold where they can be (the same bits).
+    const orth = (x: Float64Array, rows: number, out: Float64Array) => prod.orthonormalize(x, rows, out, tau) || orthonormalize(x, rows, l, out, tau);
     prod.times(g, y);
-    orthonormalize(y, m, l, q, tau);
+    orth(y, m, q);
     for (let it = 0; it < POWER_ITERATIONS; it++) {
       prod.timesT(q, z);
-      orthonormalize(z, n, l, g, tau);
+      orth(z, n, g);
       prod.times(g, y);
-      orthonormalize(y, m, l, q, tau);
+      orth(y, m, q);
     }
 
     // z = A^T Q is n x l column-major, i.e. B = Q^T A as l x n row-major.

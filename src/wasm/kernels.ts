@@ -1,6 +1,6 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in nine modules: the linear-algebra module, with the range finder's
+ * in thirteen modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
@@ -12,9 +12,16 @@
  * predictors' differences (the blend's walk over known codes, the plain
  * predictors) and the binary coder's encoder, one with the blend's walk
  * four cells at a time, one with the symbol coder's encoder and the
- * check's error tally; the encoder's refit of a candidate's right
- * factor (src/wasm/refit.ts); and the CRC-32 of long inputs, both sides'
- * (src/wasm/crc.ts). Each kernel is
+ * check's error tally; the encoder's modules for L2 bounds, one with the
+ * residual search's walks (src/wasm/rdo.ts), which imports the
+ * JavaScript's Math.log2 (so that its values are the JavaScript's), one
+ * with the Gram matrix of the plan's spectra (src/wasm/gram.ts); the
+ * encoder's module for tiles with missing cells (the check's choice of
+ * predictor, src/wasm/masked.ts, and the harmonic fill, src/wasm/fill.ts);
+ * the encoder's module with the range finder's orthonormalization
+ * (src/linalg/product.ts runs it in the memory its products hold); the
+ * encoder's refit of a candidate's right factor (src/wasm/refit.ts); and
+ * the CRC-32 of long inputs, both sides' (src/wasm/crc.ts). Each kernel is
  * bit for bit the same as its JavaScript version, which stays the fallback.
  * Instantiated synchronously, lazily, once per thread (module state, and
  * every worker thread has its own): each module is under 4 KiB,
@@ -119,7 +126,7 @@ export class Kernels {
       inst = null;
       if (mod !== null) {
         try {
-          inst = new WebAssembly.Instance(mod, { env: { memory: this.memory } }).exports;
+          inst = new WebAssembly.Instance(mod, { env: { memory: this.memory, log2: Math.log2 } }).exports;
         } catch {
           inst = null;
         }

@@ -144,6 +144,19 @@ describe('Spectra (what the planner keeps of the first pass)', () => {
     expect(() => s.add({ sv2, dims: [64, 64, 4096] })).toThrow(/more than the 5000 tiles/);
   });
 
+  it('holds a small field in a store of its size, and keeps every tile\'s values when later tiles are longer than the first', () => {
+    // One tile of 61 values (vega-datasets volcano.json is 61 x 87): 8 bytes a value and 28 for the tile, not a chunk of 8 MiB.
+    const one = new Spectra(1);
+    one.add({ sv2: Float64Array.from({ length: 61 }, (_, k) => 61 - k), dims: [61, 87, 61 * 87] });
+    expect(one.bytes).toBe(8 * 61 + 28);
+    // Three tiles: 10 values, then 40 (past the room the first left for three of 10), then 5.
+    const s = new Spectra(3);
+    const spectra = [10, 40, 5].map((len, t) => Float64Array.from({ length: len }, (_, k) => 100 * (t + 1) - k));
+    spectra.forEach((sv2, t) => s.add({ sv2, dims: [sv2.length, 64, 64 * sv2.length - t] }));
+    spectra.forEach((sv2, t) => expect(Array.from(s.values(t))).toEqual(Array.from(sv2)));
+    expect(Array.from(s.valid)).toEqual([640, 2559, 318]);
+  });
+
   it('keeps prepared tiles only for small fields; a larger field is planned from spectra and sampled tiles alone', () => {
     const rows = 2050;
     const cols = 2050; // 4.2 M cells: past the 4 M cells whose prepared tiles are kept
