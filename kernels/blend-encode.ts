@@ -23,25 +23,7 @@
  * (5 n i32 at `errs`, after 5 more that are cleared here).
  */
 
-/** The cap on a part's recorded error (BLEND_ERR_CAP in reconstruct.ts). */
-const CAP: i64 = 8191;
-
-@inline
-function ld(p: usize, i: i32): i32 {
-  return load<i32>(p + (<usize>i << 2));
-}
-
-@inline
-function st(p: usize, i: i32, v: i32): void {
-  store<i32>(p + (<usize>i << 2), v);
-}
-
-/** min(|d|, CAP). */
-@inline
-function cap(d: i64): i32 {
-  const a = d < 0 ? -d : d;
-  return <i32>(a > CAP ? CAP : a);
-}
+import { cap, ld, st } from './blend-parts';
 
 /** Cell c's code given its prediction p: its own, or (a cell not Valid) p, 0 beyond the limit. */
 @inline

@@ -18,19 +18,10 @@
  * sums, the next row's, the row's errors, its parts and its weights, part
  * by part; cleared here.
  */
+import { CAP, ld, st } from './blend-parts';
 import { small } from './predict-encode';
 
-@inline
-function ld(p: usize, i: i32): i32 {
-  return load<i32>(p + (<usize>i << 2));
-}
-
-@inline
-function st(p: usize, i: i32, v: i32): void {
-  store<i32>(p + (<usize>i << 2), v);
-}
-
-const CAP: i32 = 8191;
+const CAP32: i32 = <i32>CAP;
 
 /** Part k's row of `kind` (0 above, 1 below, 2 errors, 3 parts, 4 weights). */
 @inline
@@ -57,11 +48,11 @@ function cellParts(row: usize, up: usize, up2: usize, i: i32, j: i32, n: i32, E:
   st(P + 2 * s, j, p2);
   st(P + 3 * s, j, p3);
   st(P + 4 * s, j, p4);
-  st(E, j, min(abs(x - p0), CAP));
-  st(E + s, j, min(abs(x - p1), CAP));
-  st(E + 2 * s, j, min(abs(x - p2), CAP));
-  st(E + 3 * s, j, min(abs(x - p3), CAP));
-  st(E + 4 * s, j, min(abs(x - p4), CAP));
+  st(E, j, min(abs(x - p0), CAP32));
+  st(E + s, j, min(abs(x - p1), CAP32));
+  st(E + 2 * s, j, min(abs(x - p2), CAP32));
+  st(E + 3 * s, j, min(abs(x - p3), CAP32));
+  st(E + 4 * s, j, min(abs(x - p4), CAP32));
 }
 
 export function blendEncodeSmall(q: usize, d: usize, m: i32, n: i32, limit: i32, weight: usize, scratch: usize): i32 {
@@ -76,7 +67,7 @@ export function blendEncodeSmall(q: usize, d: usize, m: i32, n: i32, limit: i32,
   const Wt = rowOf(scratch, stride, 4, 0);
   const limF = <f64>limit;
   const limV = f64x2.splat(limF);
-  const cap = i32x4.splat(CAP);
+  const cap = i32x4.splat(CAP32);
   // The first row: differences from the left (0 before the first cell); its errors are 0.
   let prev = 0;
   for (let j = 0; j < n; j++) {

@@ -11,32 +11,13 @@
  * q, d, table, out), and weight (the blend weight table, i32), above and
  * below (5 n i32 each), errs (5 n i32, after 5 more cleared here).
  */
+import { cap, ld, st } from './blend-parts';
 import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
-
-/** The cap on a part's recorded error (BLEND_ERR_CAP in reconstruct.ts). */
-const CAP: i64 = 8191;
 
 /** The walk's sums and the last code settled (a settle gives a status). */
 let se: f64 = 0;
 let bits: f64 = 0;
 let code: i64 = 0;
-
-@inline
-function ld(p: usize, i: i32): i32 {
-  return load<i32>(p + (<usize>i << 2));
-}
-
-@inline
-function st(p: usize, i: i32, v: i32): void {
-  store<i32>(p + (<usize>i << 2), v);
-}
-
-/** min(|d|, CAP). */
-@inline
-function cap(d: i64): i32 {
-  const a = d < 0 ? -d : d;
-  return <i32>(a > CAP ? CAP : a);
-}
 
 /**
  * RdoWalk.settle of cell c given its prediction p, and the walk's limits
