@@ -118,34 +118,13 @@ export function validRange(src: BandSource, spec: FieldSpec, watch?: { add(value
     end = Math.min(total, r0 + step, (Math.floor(r0 / spec.rows) + 1) * spec.rows);
     const values = src.band(r0, end - r0);
     watch?.add(values);
-    bandRange(values, f, lo, hi);
-    lo = widened[0];
-    hi = widened[1];
+    for (let i = 0; i < values.length; i++) {
+      const v = values[i];
+      if (!Number.isFinite(v)) continue;
+      if (v === f && Object.is(v, f)) continue;
+      if (v < lo) lo = v;
+      if (v > hi) hi = v;
+    }
   }
   return lo <= hi ? [lo, hi] : null;
-}
-
-/** {@link bandRange}'s result: [lo, hi]. */
-const widened = [Infinity, -Infinity];
-
-/**
- * lo and hi widened by the values that are finite and not the fill value f
- * (NaN: none), into {@link widened}. A function of its own rather than a
- * loop in validRange, whose optimized code was thrown away at every band's
- * end and at every field (each band source's closure was a call target
- * it had not seen: node --trace-deopt), so that much of each pass ran
- * unoptimized: in profiles of three packs of bench/'s 4096 x 4096 field
- * at rel:1e-3 on a loaded host, the pass took 4.6% of the time in the
- * loop, 2.6% so (scratch/large-pack.mjs, one profile each).
- */
-function bandRange(values: FloatArray, f: number, lo: number, hi: number): void {
-  for (let i = 0; i < values.length; i++) {
-    const v = values[i];
-    if (!Number.isFinite(v)) continue;
-    if (v === f && Object.is(v, f)) continue;
-    if (v < lo) lo = v;
-    if (v > hi) hi = v;
-  }
-  widened[0] = lo;
-  widened[1] = hi;
 }
