@@ -31,6 +31,11 @@ import { mulberry32 } from '../rng.js';
 
 const LIMIT = 2 ** 30;
 
+/** A grid side for the properties below: 1 often (a single row or column), else up to `max`. */
+const side = (max: number) => fc.oneof(fc.constant(1), fc.integer({ min: 1, max }));
+/** A generator's seed. */
+const seeds = fc.integer({ min: 0, max: 2 ** 31 - 1 });
+
 useKernelMode('auto');
 
 /** A random grid of one of the regimes the coders see: mostly zeros, small codes, large ones, up to `scale` in magnitude. */
@@ -107,13 +112,13 @@ describe('the encoder\'s blend walk in WebAssembly', () => {
   it('gives predict()\'s differences, or its null, on random grids of every shape, limit and scale (fast-check)', () => {
     fc.assert(
       fc.property(
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
+        side(16),
+        side(16),
         fc.constantFrom(LIMIT, 1000, 0x7fffffff, 0),
         // Up to 2^28 the walk goes four cells at a time (kernels/blend-small.ts), beyond it cell by cell.
         fc.constantFrom(3, 300, 2 ** 20, 2 ** 28, 2 ** 28 + 1, 2 ** 30, 2 ** 31 - 1),
         fc.constantFrom(0, 0.5, 0.9),
-        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        seeds,
         (m, n, limit, scale, zeros, seed) => {
           const q = grid(mulberry32(seed), m * n, zeros, scale);
           const { js, wasm } = blendBoth(q, m, n, limit);
@@ -127,12 +132,12 @@ describe('the encoder\'s blend walk in WebAssembly', () => {
   it('fills missing cells as predictedFill() does, on random grids and masks (fast-check)', () => {
     fc.assert(
       fc.property(
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
+        side(16),
+        side(16),
         fc.constantFrom(LIMIT, 1000, 0),
         fc.constantFrom(300, 2 ** 30, 2 ** 31 - 1),
         fc.constantFrom(0.1, 0.5, 1),
-        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        seeds,
         (m, n, limit, scale, share, seed) => {
           const rand = mulberry32(seed);
           const q = grid(rand, m * n, 0.2, scale);
@@ -151,12 +156,12 @@ describe('the encoder\'s blend walk in WebAssembly', () => {
   it('gives, in one walk, predict()\'s differences of predictedFill()\'s grid (blendDifferences), on both paths (fast-check)', () => {
     fc.assert(
       fc.property(
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 16 })),
+        side(16),
+        side(16),
         fc.constantFrom(LIMIT, 1000, 0),
         fc.constantFrom(300, 2 ** 30, 2 ** 31 - 1),
         fc.constantFrom(0, 0.1, 0.5, 1),
-        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        seeds,
         (m, n, limit, scale, share, seed) => {
           const rand = mulberry32(seed);
           const q = grid(rand, m * n, 0.2, scale);
@@ -261,13 +266,13 @@ describe('the plain predictors\' differences in WebAssembly', () => {
   it('give predict()\'s differences, or its null, for every plain predictor, shape, limit and scale (fast-check)', () => {
     fc.assert(
       fc.property(
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 19 })),
-        fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 19 })),
+        side(19),
+        side(19),
         fc.constantFrom(...PLAIN),
         fc.constantFrom(LIMIT, 1000, 0x7fffffff),
         fc.constantFrom(3, 300, 2 ** 28, 2 ** 28 + 1, 2 ** 30, 2 ** 31 - 1),
         fc.constantFrom(0, 0.5),
-        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        seeds,
         (m, n, kind, limit, scale, zeros, seed) => {
           const q = grid(mulberry32(seed), m * n, zeros, scale);
           const { js, wasm } = plainBoth(q, m, n, limit, kind);
@@ -322,13 +327,13 @@ describe('the plain predictors\' differences in WebAssembly', () => {
 function sameStreams(both: typeof codeBoth, decode: (s: Uint8Array, m: number, n: number, codes: Uint8Array | null, out: Int32Array) => void): void {
   fc.assert(
     fc.property(
-      fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
-      fc.oneof(fc.constant(1), fc.integer({ min: 1, max: 24 })),
+      side(24),
+      side(24),
       fc.constantFrom(0, 0.5, 0.95),
       fc.constantFrom(3, 4096, LIMIT),
       fc.boolean(),
       fc.constantFrom(Infinity, 0, 3, 20, 100),
-      fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+      seeds,
       (m, n, zeros, scale, mask, atMost, seed) => {
         const rand = mulberry32(seed);
         const v = grid(rand, m * n, zeros, scale);
@@ -468,7 +473,7 @@ describe('the encoder check\'s error tally in WebAssembly', () => {
         fc.boolean(),
         fc.constantFrom(0, 0.3),
         fc.constantFrom('none', 'nan', 'inf', 'zero'),
-        fc.integer({ min: 0, max: 2 ** 31 - 1 }),
+        seeds,
         (cells, f32, share, odd, seed) => {
           const rand = mulberry32(seed);
           const make = (values: number[]) => (f32 ? Float32Array.from(values) : Float64Array.from(values));
