@@ -120,6 +120,11 @@ export function validRange(src: BandSource, spec: FieldSpec, watch?: { add(value
     watch?.add(values);
     for (let i = 0; i < values.length; i++) {
       const v = values[i];
+      // Most values lie within the range so far, and one inside changes nothing (a fill value or a zero of
+      // either sign too): one test of two compares for them. NaN and the infinities fail it (lo and hi are
+      // finite once set). On bench/'s 4096 x 4096 field the pass took 36-58 ms against 66-113 without it
+      // (scratch measurement, five passes each, alternated).
+      if (v >= lo && v <= hi) continue;
       if (!Number.isFinite(v)) continue;
       if (v === f && Object.is(v, f)) continue;
       if (v < lo) lo = v;
