@@ -101,7 +101,8 @@ export function prepareTile(
   // The mean is rounded to binary32, which a payload stores in 4 bytes (any centre decodes the same way).
   let center = valid === 0 ? 0 : constant ? first : binary32Near(sum / valid);
   if (!Number.isFinite(center)) center = 0;
-  fillMissing(x, classes.codes, m, n, center);
+  // Nothing to fill in a tile with every cell valid (fillMissing would find so in a pass over its codes).
+  if (classes.special > 0) fillMissing(x, classes.codes, m, n, center);
   // x - x is 0 for every finite x, NaN otherwise: one sum tells whether centring overflowed anywhere.
   let overflow = 0;
   for (let c = 0; c < cells; c++) {
