@@ -72,8 +72,7 @@ interface BandResult {
 /** Decode one band with Archive.read, and count the valid values of its tiles (none when its tiles are counted in an earlier band). */
 async function decodeBand(archive: Archive, req: BandRequest): Promise<BandResult> {
   const f = await archive.read(req.name, req.options);
-  let valid = 0;
-  for (const t of req.tiles) valid += (await archive.tileEntry(req.name, t)).valid;
+  const valid = req.tiles.length > 0 ? await archive.validCells(req.name, req.tiles) : 0;
   return { values: f.values, achieved: f.achieved, prefixTiles: req.tiles.length > 0 ? f.prefixTiles : 0, valid };
 }
 
