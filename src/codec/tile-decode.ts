@@ -72,10 +72,14 @@ export class DecodeScratch {
     if (this.sums.length < cells) this.sums = new Float64Array(cells);
     return this.sums.subarray(0, cells);
   }
+  /** The last view codesFor gave (a read of one tile asks for the same one every time). */
+  private codesView = new Int32Array(0);
   /** Room for `cells` residual codes (contents left from earlier tiles). */
   codesFor(cells: number): Int32Array {
+    if (this.codesView.length === cells) return this.codesView;
     if (this.codes.length < cells) this.codes = new Int32Array(cells);
-    return this.codes.subarray(0, cells);
+    this.codesView = this.codes.subarray(0, cells);
+    return this.codesView;
   }
 }
 

@@ -201,7 +201,8 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
   const read: ReadOptions = { ...rest };
   if (typeof read.bound === 'string') read.bound = parseBound(read.bound);
   else if (read.bound !== undefined) read.bound = checkBound(read.bound as Bound);
-  const { shape } = readShape(archive, h.name, read);
+  const known = readShape(archive, h.name, read);
+  const { shape } = known;
   const cells = shape.reduce((a, b) => a * b, 1);
   // Below MIN_PARALLEL_CELLS starting workers costs more than decoding here. Tiles of more than
   // ONE_THREAD_TILE_CELLS are decoded in one thread: each thread decoding them carries about 100 MB
@@ -247,7 +248,7 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
     }
     if (pool !== kept) await pool?.close();
   }
-  return { ...readShape(archive, h.name, o), achieved: { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 }, prefixTiles: tally.prefixTiles };
+  return { ...known, achieved: { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 }, prefixTiles: tally.prefixTiles };
 }
 
 /**
