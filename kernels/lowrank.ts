@@ -74,8 +74,8 @@ export function lowRank(l: usize, w: usize, m: i32, n: i32, r: i32, center: f64,
  * finite x and NaN otherwise, and NaN stays NaN through the running sum of
  * them, so one test at the end finds a value that is not finite. Measured
  * on the volcano grid's tile at rel:1e-3 (rank 0, 5307 cells, the whole
- * reconstruction through src/wasm/lowrank.ts, scratch/read-parts.mjs):
- * see the commit that made it.
+ * reconstruction through src/wasm/lowrank.ts, scratch/read-parts.mjs, Node
+ * 20, two alternating runs, medians of 5 batches): 8.1-8.7 -> 3.9-4.1 us.
  */
 export function finishBand(acc: usize, cells: i32, q: usize, step: f64, out: usize, f32: i32): i32 {
   const sv = f64x2.splat(step);
