@@ -140,14 +140,35 @@ export interface TileEntry {
   prefix: number[];
 }
 
+/** What decoding any tile of a field takes from its header, worked out once (see {@link FieldPages.decoding}). */
+interface FieldDecoding {
+  /** The fill value as words of the dtype, or null. */
+  fill: Uint32Array | null;
+  /** The field's residual step (fieldStep of its tolerance). */
+  step: number;
+  /** "LABEL field 'NAME'", for messages. */
+  where: string;
+}
+
 /** Index pages of one field, fetched on demand and kept. */
 class FieldPages {
   readonly loaded = new Map<number, PageIndex>();
   readonly pending = new Map<number, Promise<void>>();
+  private decode: FieldDecoding | null = null;
   constructor(
     readonly h: FieldHeader,
     readonly d: FieldDirectory,
   ) {}
+  /** The field's decoding constants, made on first use (each costs allocations, which a read of one small tile would pay again every time). */
+  decoding(label: string): FieldDecoding {
+    if (this.decode === null) this.decode = { fill: fillWords(this.h.fill, this.h.dtype), step: fieldStep(this.h.bound.tolerance), where: `${label} field ${quoteName(this.h.name)}` };
+    return this.decode;
+  }
+  /** Whether every page of `pages` is held. */
+  holds(pages: readonly number[]): boolean {
+    for (const p of pages) if (!this.loaded.has(p)) return false;
+    return true;
+  }
   /** The entry of tile t; its page must have been loaded. */
   entry(c: Container, position: number, t: number): TileEntry {
     const { p, k } = tilePage(c, position, t);
@@ -167,6 +188,8 @@ export class Archive {
   /** The reader limits this archive was checked against. */
   readonly limits: Limits;
   private readonly pages: FieldPages[];
+  /** The same, by field header. */
+  private readonly pageOf: Map<FieldHeader, FieldPages>;
   private whole: ArchiveIndex | null = null;
   /** Working buffers of tile decoding, shared by this archive's reads (decoding a tile is synchronous). */
   private readonly scratch = new DecodeScratch();
@@ -184,6 +207,7 @@ export class Archive {
     this.limits = container.limits;
     this.symbols = (container.flags & FLAG_SYMBOLS) !== 0;
     this.pages = this.header.fields.map((h, i) => new FieldPages(h, this.directory.fields[i]));
+    this.pageOf = new Map(this.pages.map((fp) => [fp.h, fp]));
   }
 
   /** Names of the fields, in archive order (the factor fields of field layers among them). */
@@ -259,9 +283,30 @@ export class Archive {
 
   /** The index entries of `tiles` of field `position`, fetching their pages first. */
   private async entries(position: number, tiles: readonly number[]): Promise<(t: number) => TileEntry> {
-    await this.loadPages(position, this.pagesOf(position, tiles));
     const fp = this.pages[position];
+    const pages = this.pagesOf(position, tiles);
+    if (!fp.holds(pages)) await this.loadPages(position, pages);
     return (t) => fp.entry(this.container, position, t);
+  }
+
+  /**
+   * Library-internal, for the band reader (src/parallel/read.ts): the
+   * valid cells of `tiles` of a field, from their index entries (one fetch
+   * of the pages not yet held, none when a read of them fetched those).
+   */
+  async validCells(name: string | undefined, tiles: readonly number[]): Promise<number> {
+    const { position } = this.field(name);
+    const entry = await this.entries(position, tiles);
+    let valid = 0;
+    for (const t of tiles) valid += entry(t).valid;
+    return valid;
+  }
+
+  /** The decoding constants of field h (one of this archive's headers). */
+  private decodingOf(h: FieldHeader): FieldDecoding {
+    const fp = this.pageOf.get(h);
+    if (fp === undefined) throw new Error(`field ${quoteName(h.name)} is not one of this archive's`);
+    return fp.decoding(this.source.label);
   }
 
   /** Header, directory entry and summary of a field (when `name` is omitted, the first that holds no layer factor). */
@@ -308,7 +353,8 @@ export class Archive {
 
   /** Check a fetched payload against the index and decode it (with the layer's term of a LowRank tile of a layered field). */
   private decodePayload(h: FieldHeader, e: TileEntry, t: number, payload: Uint8Array, verifyValues: boolean, layer: LayerRows | null = null): FloatArray {
-    const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
+    const d = this.decodingOf(h);
+    const where = `${d.where} tile ${t}`;
     if (crc32(payload) !== e.crc) throw new FormatError(FormatCode.Checksum, `${where}: payload CRC-32 mismatch (payload at offset ${e.offset})`);
     const { method, rank } = payloadHead(payload);
     if (method !== e.method || rank !== e.rank) {
@@ -316,7 +362,7 @@ export class Archive {
     }
     const [m, n] = tileShape(h, t);
     const term = layer !== null && e.method === Method.LowRank ? layer.term(t) : null;
-    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), scratch: this.scratch, layer: term, symbols: this.symbols });
+    const out = decodeTile(payload, { m, n, dtype: h.dtype, fill: d.fill, where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: d.step, scratch: this.scratch, layer: term, symbols: this.symbols });
     if (verifyValues && crc32(new Uint8Array(out.buffer, out.byteOffset, out.byteLength)) !== e.value_crc) {
       throw new FormatError(FormatCode.Checksum, `${where}: decoded values differ from those verified at encode time (value CRC-32 mismatch)`);
     }
@@ -385,9 +431,12 @@ export class Archive {
     const width = c1 - c0;
     const plane = (r1 - r0) * width;
     checkReadCells((s1 - s0) * plane, this.limits, `${this.source.label} field ${quoteName(h.name)}`);
-    const values = allocate(h.dtype, (s1 - s0) * plane, h.name);
     const tiles: number[] = [];
     for (let s = s0; s < s1; s++) tiles.push(...windowTiles(h, s, r0, r1, c0, c1));
+    // A window that is one whole tile is that tile's decoded values (which are the decoder's own): no output to
+    // fill and no copy (a read of a small field in one tile, as bench/'s volcano grid is).
+    const one = tiles.length === 1 && sameBox(h, tiles[0], r0, r1, c0, c1);
+    let values = one ? null : allocate(h.dtype, (s1 - s0) * plane, h.name);
     const entry = await this.entries(position, tiles);
     const plan = this.progressivePlan(h, entry, bound);
     const layer = this.layerRows(h, verify);
@@ -401,6 +450,10 @@ export class Archive {
       tally.sq += e.valid * choice.rmse * choice.rmse;
       tally.valid += e.valid;
       if (choice.prefix) tally.prefixTiles++;
+      if (values === null) {
+        values = tile;
+        return;
+      }
       // The part of the tile inside the window, to its place in the output (slice s at row (s - s0) * window rows).
       const { s, i0, j0 } = tileOrigin(h, t);
       const [m, n] = tileShape(h, t);
@@ -411,6 +464,7 @@ export class Archive {
     const achieved = { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 };
     const whole = options.slices === undefined && options.rows === undefined && options.cols === undefined;
     const shape = whole && h.nd_shape ? ndShape(h) : hasSlices(h) ? [s1 - s0, r1 - r0, width] : [r1 - r0, width];
+    if (values === null) throw new Error(`the read of field ${quoteName(h.name)} decoded no tile`);
     return { name: h.name, dtype: h.dtype, shape, values, window: { ...(hasSlices(h) ? { slices: [s0, s1] as [number, number] } : {}), rows: [r0, r1], cols: [c0, c1] }, achieved, prefixTiles: tally.prefixTiles };
   }
 
@@ -439,14 +493,15 @@ export class Archive {
 
   /** Check a fetched prefix against its recorded CRC and decode its factor groups. */
   private decodePrefix(h: FieldHeader, e: TileEntry, t: number, bytes: Uint8Array, crc: number, layer: LayerRows | null): FloatArray {
-    const where = `${this.source.label} field ${quoteName(h.name)} tile ${t}`;
+    const d = this.decodingOf(h);
+    const where = `${d.where} tile ${t}`;
     if (crc32(bytes) !== crc) throw new FormatError(FormatCode.Checksum, `${where}: prefix of ${bytes.length} bytes fails its CRC-32 (payload at offset ${e.offset})`);
     const groups = prefixLengths(bytes).indexOf(bytes.length);
     if (groups < 0) throw new FormatError(FormatCode.Malformed, `${where}: the index lists a prefix of ${bytes.length} bytes that does not end at a factor group`);
     const [m, n] = tileShape(h, t);
     // A prefix includes the layer's term (spec/FORMAT.md 18): only LowRank payloads have prefixes.
     const term = layer !== null && e.method === Method.LowRank ? layer.term(t) : null;
-    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: fillWords(h.fill, h.dtype), where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: fieldStep(h.bound.tolerance), groups, scratch: this.scratch, layer: term, symbols: this.symbols });
+    return decodeTile(bytes, { m, n, dtype: h.dtype, fill: d.fill, where, offset: e.offset, maxRank: this.limits.maxRank, fieldStep: d.step, groups, scratch: this.scratch, layer: term, symbols: this.symbols });
   }
 
   /**
@@ -650,6 +705,13 @@ function compareTile(part: FloatArray, tile: FloatArray, fw: Uint32Array | null)
     tally.add(Math.abs(part[c] - tile[c]));
   }
   return { tally, differ };
+}
+
+/** Whether tile t of field h is exactly the window rows [r0, r1) x cols [c0, c1) (of its slice). */
+function sameBox(h: FieldHeader, t: number, r0: number, r1: number, c0: number, c1: number): boolean {
+  const { i0, j0 } = tileOrigin(h, t);
+  const [m, n] = tileShape(h, t);
+  return i0 === r0 && j0 === c0 && i0 + m === r1 && j0 + n === c1;
 }
 
 /** Output values for a whole field, refusing sizes this runtime cannot hold. */

@@ -92,6 +92,11 @@ export function windowTiles(g: Grid, s: number, r0: number, r1: number, c0: numb
  * NaN payloads survive.
  */
 export function copyBlock(from: FloatArray, fromCols: number, r0: number, c0: number, m: number, n: number, to: FloatArray, toCols: number, dr: number, dc: number): void {
+  // Whole rows of both: one copy (a row at a time costs a subarray each).
+  if (n === fromCols && n === toCols) {
+    to.set(from.subarray(r0 * n, (r0 + m) * n), dr * n);
+    return;
+  }
   for (let i = 0; i < m; i++) to.set(from.subarray((r0 + i) * fromCols + c0, (r0 + i) * fromCols + c0 + n), (dr + i) * toCols + dc);
 }
 

@@ -72,10 +72,14 @@ export class DecodeScratch {
     if (this.sums.length < cells) this.sums = new Float64Array(cells);
     return this.sums.subarray(0, cells);
   }
+  /** The last view codesFor gave (a read of one tile asks for the same one every time). */
+  private codesView = new Int32Array(0);
   /** Room for `cells` residual codes (contents left from earlier tiles). */
   codesFor(cells: number): Int32Array {
+    if (this.codesView.length === cells) return this.codesView;
     if (this.codes.length < cells) this.codes = new Int32Array(cells);
-    return this.codes.subarray(0, cells);
+    this.codesView = this.codes.subarray(0, cells);
+    return this.codesView;
   }
 }
 
@@ -118,6 +122,10 @@ function decodeExact(r: ByteReader, ctx: TileContext): FloatArray {
   return out;
 }
 
+/** Rank 0's factors and a payload's missing exceptions: empty arrays, never written, so one of each serves every tile. */
+const NO_FACTORS = { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
+const NO_EXCEPTIONS = { cells: new Uint32Array(0), values: new Uint8Array(0) };
+
 function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   const { m, n, where } = ctx;
   const cells = m * n;
@@ -135,7 +143,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   if (flags & Flag.FactorDelta && rank === 0) throw malformed(where, 'factor difference flag on a payload of rank 0');
 
   const mask = flags & Flag.Mask ? readMask(r, ctx) : null;
-  const factors = rank > 0 ? readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0) : { l: new Float64Array(0), w: new Float64Array(0), rank: 0 };
+  const factors = rank > 0 ? readFactors(r, ctx, rank, (flags & Flag.FactorDelta) !== 0) : NO_FACTORS;
   if (ctx.groups !== undefined) {
     // A prefix ends after its last factor group: no residual, no exceptions.
     if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the prefix's factor groups, from ${r.unit} ${r.offset}`);
@@ -144,7 +152,7 @@ function decodeLowRank(r: ByteReader, ctx: TileContext): FloatArray {
   // Every section is read and checked before the arithmetic, so a malformed late part costs no multiply-adds.
   const codes = mask?.codes ?? null;
   const residual = flags & Flag.Residual ? readResidual(r, ctx, codes) : { step: 0, q: null };
-  const exceptions = flags & Flag.Exceptions ? readExceptions(r, ctx, codes) : { cells: new Uint32Array(0), values: new Uint8Array(0) };
+  const exceptions = flags & Flag.Exceptions ? readExceptions(r, ctx, codes) : NO_EXCEPTIONS;
   if (r.remaining !== 0) throw malformed(where, `${r.remaining} unexpected bytes after the payload, from ${r.unit} ${r.offset}`);
 
   const out = ctx.dtype === 'f32' ? new Float32Array(cells) : new Float64Array(cells);

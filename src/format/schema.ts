@@ -266,6 +266,14 @@ export function describeValue(v: unknown): string {
  * \uXXXX, so no name can break a line or send escape sequences to a terminal.
  */
 export function printable(s: string): string {
+  // Most text has none of those characters: a scan of the char codes finds that without the regular
+  // expression (a read decodes each tile under a label passed through here).
+  let k = 0;
+  for (; k < s.length; k++) {
+    const c = s.charCodeAt(k);
+    if (c < 0x20 || (c >= 0x7f && c <= 0x9f) || c === 0x2028 || c === 0x2029 || (c >= 0xd800 && c <= 0xdfff)) break;
+  }
+  if (k === s.length) return s;
   return s.replace(/[\u0000-\u001f\u007f-\u009f\u2028\u2029]|[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/g, (c) => `\\u${c.charCodeAt(0).toString(16).padStart(4, '0')}`);
 }
 

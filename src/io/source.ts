@@ -149,6 +149,14 @@ export async function readRanges(src: ByteSource, ranges: readonly ByteRange[], 
   if (!Number.isInteger(concurrency) || concurrency < 1) throw new InputError(InputCode.Option, `concurrency must be an integer >= 1, got ${String(concurrency)}`);
   const perRequest = options.rangesPerRequest ?? DEFAULT_RANGES_PER_REQUEST;
   if (!Number.isInteger(perRequest) || perRequest < 1) throw new InputError(InputCode.Option, `rangesPerRequest must be an integer >= 1, got ${String(perRequest)}`);
+  // One range (a read of a field in one tile): the read itself, without the jobs and workers below.
+  if (ranges.length === 1 && plan.length === 1) {
+    const bytes = await src.read(plan[0].offset, plan[0].length);
+    if (bytes.length !== plan[0].length) {
+      throw new FormatError(FormatCode.Truncated, `${src.label}: read of bytes ${plan[0].offset}..${plan[0].offset + plan[0].length} returned ${bytes.length} bytes`);
+    }
+    return [bytes];
+  }
   // Jobs: groups of merged reads, one readMany call each when the source has it, else one read each.
   const many = src.readMany?.bind(src);
   const jobs: MergedRead[][] = [];

@@ -72,8 +72,7 @@ interface BandResult {
 /** Decode one band with Archive.read, and count the valid values of its tiles (none when its tiles are counted in an earlier band). */
 async function decodeBand(archive: Archive, req: BandRequest): Promise<BandResult> {
   const f = await archive.read(req.name, req.options);
-  let valid = 0;
-  for (const t of req.tiles) valid += (await archive.tileEntry(req.name, t)).valid;
+  const valid = req.tiles.length > 0 ? await archive.validCells(req.name, req.tiles) : 0;
   return { values: f.values, achieved: f.achieved, prefixTiles: req.tiles.length > 0 ? f.prefixTiles : 0, valid };
 }
 
@@ -202,7 +201,8 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
   const read: ReadOptions = { ...rest };
   if (typeof read.bound === 'string') read.bound = parseBound(read.bound);
   else if (read.bound !== undefined) read.bound = checkBound(read.bound as Bound);
-  const { shape } = readShape(archive, h.name, read);
+  const known = readShape(archive, h.name, read);
+  const { shape } = known;
   const cells = shape.reduce((a, b) => a * b, 1);
   // Below MIN_PARALLEL_CELLS starting workers costs more than decoding here. Tiles of more than
   // ONE_THREAD_TILE_CELLS are decoded in one thread: each thread decoding them carries about 100 MB
@@ -248,7 +248,7 @@ export async function readBands(archive: Archive, name: string | undefined, o: B
     }
     if (pool !== kept) await pool?.close();
   }
-  return { ...readShape(archive, h.name, o), achieved: { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 }, prefixTiles: tally.prefixTiles };
+  return { ...known, achieved: { maxErr: tally.max, rmse: tally.valid > 0 ? Math.sqrt(tally.sq / tally.valid) : 0 }, prefixTiles: tally.prefixTiles };
 }
 
 /**

@@ -58,14 +58,15 @@ function inBands(l: Float64Array, w: Float64Array, m: number, n: number, r: numb
     const heap = k.f64;
     const view = f32 ? k.f32 : heap;
     const unit = f32 ? 2 : 1;
-    heap.set(w.subarray(0, r * n), wAt);
+    // Whole arrays go in as they are, without a view made of each (rank 0 has no factors to copy).
+    if (r > 0) heap.set(w.length === r * n ? w : w.subarray(0, r * n), wAt);
     let finite = true;
     for (let i = 0; i < m; i += rows) {
       const band = Math.min(rows, m - i);
-      heap.set(l.subarray(i * r, (i + band) * r), lAt);
+      if (r > 0) heap.set(band === m && l.length === m * r ? l : l.subarray(i * r, (i + band) * r), lAt);
       fn.lowRank(8 * lAt, 8 * wAt, band, n, r, center, 8 * accAt);
       if (finish) {
-        if (q !== null) k.i32.set(q.subarray(i * n, (i + band) * n), 2 * qAt);
+        if (q !== null) k.i32.set(band === m && q.length === cells ? q : q.subarray(i * n, (i + band) * n), 2 * qAt);
         if (fn.finishBand(8 * accAt, band * n, q === null ? 0 : 8 * qAt, step, 8 * outAt, f32 ? 1 : 0) === 0) finite = false;
       }
       out.set(view.subarray(unit * outAt, unit * outAt + band * n), i * n);

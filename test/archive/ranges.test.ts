@@ -126,6 +126,31 @@ describe('readRanges', () => {
     expect(src.maxInFlight).toBe(3);
   });
 
+  it('refuses a short read with FormatError Truncated, one range or several; an empty range is read from nothing', async () => {
+    // A source that gives one byte less than asked: the check readRanges makes of every read.
+    const short: ByteSource = { label: 'short', size: async () => bytes.length, read: async (offset, length) => bytes.subarray(offset, offset + length - 1) };
+    for (const ranges of [[{ offset: 100, length: 50 }], [{ offset: 100, length: 50 }, { offset: 40000, length: 10 }]]) {
+      const e = await readRanges(short, ranges).then(
+        () => null,
+        (err: unknown) => err,
+      );
+      expect(e, `${ranges.length} range(s)`).toBeInstanceOf(FormatError);
+      expect((e as FormatError).message).toBe('short: read of bytes 100..150 returned 49 bytes');
+    }
+    const none: ByteSource = { label: 'none', size: async () => 0, read: async () => Promise.reject(new Error('no read expected')) };
+    const got = await readRanges(none, [{ offset: 5, length: 0 }]);
+    expect(got.length).toBe(1);
+    expect(got[0].length).toBe(0);
+  });
+
+  it('checks its options with one range as with several', async () => {
+    for (const bad of [{ concurrency: 0 }, { rangesPerRequest: 1.5 }, { maxGap: -1 }]) {
+      for (const ranges of [[{ offset: 0, length: 10 }], [{ offset: 0, length: 10 }, { offset: 500, length: 10 }]]) {
+        await expect(readRanges(new MemorySource(bytes), ranges, bad), JSON.stringify(bad)).rejects.toBeInstanceOf(InputError);
+      }
+    }
+  });
+
   it('passes on the failure of a read', async () => {
     const e = await readRanges(new MemorySource(bytes), [{ offset: bytes.length - 10, length: 20 }]).then(
       () => null,

@@ -137,6 +137,9 @@ describe.each(CASES)('windows of $label', ({ label, grid, dtype, tile, bound }) 
     ['one column', [0, rows], [cols - 2, cols - 1]],
     ['the last rows and columns (edge tiles)', [rows - 5, rows], [cols - 20, cols]],
     ['a window straddling tile corners', [Math.min(tile[0], rows - 1) - 1, Math.min(rows, 2 * tile[0] + 1)], [Math.min(tile[1], cols - 1) - 1, Math.min(cols, tile[1] + 2)]],
+    // A window that is one whole tile is read as that tile's decoded values, without an output of its own to fill.
+    ['exactly the first tile', [0, Math.min(tile[0], rows)], [0, Math.min(tile[1], cols)]],
+    ['exactly the last tile (an edge tile)', [Math.floor((rows - 1) / tile[0]) * tile[0], rows], [Math.floor((cols - 1) / tile[1]) * tile[1], cols]],
   ];
 
   it.each(fixed)('%s equals the whole decode, from each source', async (_what, r, c) => {
@@ -148,6 +151,18 @@ describe.each(CASES)('windows of $label', ({ label, grid, dtype, tile, bound }) 
       expect(got.dtype).toBe(dtype);
       expectSameBytes(got.values, want, `${k} window ${r} x ${c}`);
     }
+  });
+
+  it('gives each read values of its own, also where the window is one whole tile', async () => {
+    const r: [number, number] = [0, Math.min(tile[0], rows)];
+    const c: [number, number] = [0, Math.min(tile[1], cols)];
+    const a = archives.memory;
+    const first = await a.read('g', { rows: r, cols: c });
+    const second = await a.read('g', { rows: r, cols: c });
+    expect(first.values).not.toBe(second.values);
+    first.values.fill(12345);
+    expectSameBytes((await a.read('g', { rows: r, cols: c })).values, crop(whole, r, c));
+    expectSameBytes(second.values, crop(whole, r, c));
   });
 
   it('random windows equal the whole decode, from each source', async () => {

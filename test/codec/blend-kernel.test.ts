@@ -7,13 +7,26 @@
  * larger), with differences up to the whole Int32 range, where the
  * JavaScript's binary64 sums leave 32 bits.
  */
+import { readFileSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
+import { open } from '../../src/archive.js';
+import { decodeInts } from '../../src/codec/code-decode.js';
+import { residualPlace } from '../../src/codec/payload.js';
 import { predict, Predictor, unpredict } from '../../src/codec/reconstruct.js';
+import { pack } from '../../src/pack.js';
 import { kernels } from '../../src/wasm/kernels.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 
 const LIMIT = 2 ** 30;
+
+/** A vega-datasets 3.2.1 grid (node_modules/vega-datasets/data), as bench/fields.ts loads it: nulls as NaN. */
+function vegaGrid(name: string): { rows: number; cols: number; values: Float32Array } {
+  const path = fileURLToPath(new URL(`../../node_modules/vega-datasets/data/${name}.json`, import.meta.url));
+  const g = JSON.parse(readFileSync(path, 'utf8')) as { width: number; height: number; values: (number | null)[] };
+  return { rows: g.height, cols: g.width, values: Float32Array.from(g.values, (v) => (v === null ? NaN : v)) };
+}
 
 /** unpredict with the blend on both paths: each path's answer and decoded grid. */
 function bothPaths(d: Int32Array, m: number, n: number, limit: number): { js: [boolean, number[]]; wasm: [boolean, number[]] } {
@@ -98,5 +111,23 @@ describe('the blend walk in WebAssembly', () => {
     const { js, wasm } = bothPaths(d, m, n, LIMIT);
     expect(js[0]).toBe(false);
     expect(wasm).toEqual(js);
+  });
+
+  it('decodes the residual of the volcano grid (vega-datasets) at rel:1e-3 as the JavaScript does, to the original integers', async () => {
+    // vega-datasets data/volcano.json: integer heights 94..195, one 61 x 87 tile, stored with the blend
+    // and a step of 1 (test/codec/predictors.test.ts), so the read gives the heights back exactly.
+    const g = vegaGrid('volcano');
+    const bytes = pack(g.values, [g.rows, g.cols], { bound: 'rel:1e-3' });
+    const a = await open(bytes);
+    const e = await a.tileEntry(undefined, 0);
+    const payload = bytes.subarray(e.offset, e.offset + e.length);
+    const at = residualPlace(payload)!;
+    expect(payload[at.byteAt] & 7).toBe(Predictor.Blend);
+    const d = new Int32Array(g.rows * g.cols);
+    decodeInts(payload.subarray(at.streamAt, at.streamEnd), g.rows, g.cols, null, d);
+    const { js, wasm } = bothPaths(d, g.rows, g.cols, LIMIT);
+    expect(js[0]).toBe(true);
+    expect(wasm).toEqual(js);
+    expect(Array.from((await a.read()).values)).toEqual(Array.from(g.values));
   });
 });

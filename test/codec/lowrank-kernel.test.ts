@@ -156,6 +156,34 @@ describe('the WebAssembly low-rank product', () => {
     }
   });
 
+  it('finds the one value that is not finite wherever it lies: among the cells done four (binary32) or two (binary64) at a time, and in the rest', () => {
+    // 3 x 5 = 15 cells: twelve in steps of four and three left; 15 = 7 steps of two and one left.
+    const [m, n] = [3, 5];
+    for (const f32 of [true, false]) {
+      // 2^30 steps of 1e30 pass binary32's largest finite value, 3.4e38, and of 1e300 binary64's, 1.8e308 (IEEE 754-2019 3.6: from memory).
+      const step = f32 ? 1e30 : 1e300;
+      for (let c = 0; c < m * n; c++) {
+        const q = new Int32Array(m * n).fill(1);
+        q[c] = 2 ** 30;
+        const got = f32 ? new Float32Array(m * n) : new Float64Array(m * n);
+        const want = f32 ? new Float32Array(m * n) : new Float64Array(m * n);
+        const finite = reconstructKernel(new Float64Array(0), new Float64Array(0), m, n, 0, 0.5, q, step, got);
+        const acc = new Float64Array(m * n);
+        const was = setKernelMode('js');
+        let wantFinite: boolean;
+        try {
+          lowRank(new Float64Array(0), new Float64Array(0), m, n, 0, 0.5, acc);
+          wantFinite = reconstruct(acc, q, step, want);
+        } finally {
+          setKernelMode(was);
+        }
+        expect(wantFinite, `cell ${c}`).toBe(false);
+        expect(finite, `cell ${c}, f32 ${f32}`).toBe(false);
+        expect(firstDifference(Float64Array.from(got), Float64Array.from(want)), `cell ${c}, f32 ${f32}`).toBe(-1);
+      }
+    }
+  });
+
   it('reads an archive to the same bits with the kernels and without (annual-precip of vega-datasets at rel:1e-4 in 64 x 64 tiles, binary32 and binary64)', async () => {
     const g = precip();
     for (const dtype of ['f32', 'f64'] as const) {
