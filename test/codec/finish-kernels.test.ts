@@ -1,5 +1,5 @@
 /**
- * The encoder's finishing kernels (kernels/finish.ts, loaded by
+ * The encoder's finishing kernels (kernels/finish.ts, finish-ints.ts, finish-symbols.ts and finish-blend.ts, loaded by
  * src/wasm/finish.ts) against their JavaScript versions: the blend
  * predictor's walk as predict() and predictedFill() take it
  * (src/codec/reconstruct.ts), the plain predictors' differences as
@@ -24,7 +24,7 @@ import { encodeSymbolsWithin } from '../../src/codec/code-symbols-encode.js';
 import { Cell } from '../../src/codec/mask.js';
 import { tallyValid } from '../../src/codec/measure.js';
 import { blendDifferences, predict, predictedFill, Predictor, unpredict } from '../../src/codec/reconstruct.js';
-import { FINISH_BLEND_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
+import { FINISH_BLEND_KERNELS, FINISH_INTS_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels } from '../../src/wasm/kernels.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
@@ -103,6 +103,7 @@ describe('the finishing kernels module', () => {
     const k = kernels();
     expect(k).not.toBeNull();
     expect(k?.module(FINISH_KERNELS)).not.toBeNull();
+    expect(k?.module(FINISH_INTS_KERNELS)).not.toBeNull();
     expect(k?.module(FINISH_SYMBOL_KERNELS)).not.toBeNull();
     expect(k?.module(FINISH_BLEND_KERNELS)).not.toBeNull();
   });
