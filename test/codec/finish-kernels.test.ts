@@ -418,7 +418,7 @@ describe('the binary coder\'s encoder in WebAssembly', () => {
     sameOnVega(codeBoth);
   });
 
-  it('writes the JavaScript\'s bytes for every 2 x 3, 1 x 6 and 6 x 1 grid of three codes, with and without missing cells (runs of zeros ending a row or broken by the up-right code, values at 2^30)', () => {
+  it('writes the JavaScript\'s bytes for every 2 x 3, 1 x 6 and 6 x 1 grid of three codes, with and without missing cells (runs of zeros ending a row or broken by the up-right code, values at 2^30), which both decoders give back', () => {
     for (const three of [
       [0, 1, -2],
       [0, LIMIT, -LIMIT],
@@ -437,6 +437,19 @@ describe('the binary coder\'s encoder in WebAssembly', () => {
           const q = v.map((x, c) => (codes[c] === Cell.Valid ? x : 0));
           const skipped = codeBoth(q, m, n, codes, Infinity);
           expect(skipped.wasm, `${m} x ${n}, grid ${g}, masked`).toEqual(skipped.js);
+          // And the decoder, kernel (kernels/ints.ts) and JavaScript, gives the codes back.
+          for (const [stream, mask, want] of [
+            [whole.js, null, v],
+            [skipped.js, codes, q],
+          ] as const) {
+            const back = onBothPaths(() => {
+              const out = new Int32Array(6);
+              decodeInts(Uint8Array.from(stream as number[]), m, n, mask, out);
+              return Array.from(out);
+            });
+            expect(back.js).toEqual(Array.from(want));
+            expect(back.wasm).toEqual(back.js);
+          }
         }
       }
     }
