@@ -16,7 +16,16 @@
  * number: on the residual grids the encoder codes (scratch/ints-bench.mjs,
  * the grids of packs of bench/'s annual-precip, turbulence, volcano and
  * large fields at rel:1e-3 and psnr:60), 1.35-1.5x faster with the
- * model's state below.
+ * model's state below. Tried there and left (new against this, same runs):
+ * each row's decisions listed first and coded in one flat loop, 0.25-0.76x;
+ * a switch on the class with k <= 2 written out, 1.00-1.03x at 5.9 KB; the
+ * byte output written out at each decision, 0.86-0.99x (the function is
+ * kept); magnitudes clamped to 2^15 - 1 and carried along the row in i32,
+ * 0.95-0.98x; range - bound as (range & 0xffff) + (range >> 16)(65536 - p),
+ * 0.94-0.97x. What is left is a decision's dependent chain (2.7 ns a
+ * decision on grids of all 5s, no branch mispredicted) and the branches on
+ * a value's class and zero flag (a random 0 or 1 a cell costs 9.2-9.6 ns,
+ * two decisions on average; scratch/ints-synth.mjs).
  *
  * The model's state, one u32 a context (this kernel's own layout: the
  * JavaScript's Uint16Array and Uint8Array are not read back): the

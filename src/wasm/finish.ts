@@ -6,7 +6,8 @@
  * the module FINISH_BLEND_KERNELS), the
  * plain predictors' differences, as predict() forms them;
  * (kernels/finish-ints.ts, the module FINISH_INTS_KERNELS) the binary
- * coder's encoder, as encodeIntsWithin in src/codec/code-encode.ts; and (kernels/finish-symbols.ts, the module
+ * coder's encoder, as encodeIntsWithin in src/codec/code-encode.ts; and
+ * (kernels/finish-symbols.ts, the module
  * FINISH_SYMBOL_KERNELS) the symbol coder's encoder, as encodeSymbolsWithin
  * in src/codec/code-symbols-encode.ts, with the error tally of the
  * encoder's check of a finished tile (src/codec/measure.ts), which call
