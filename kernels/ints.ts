@@ -2,7 +2,7 @@
  * The binary coder's decoder of coded integer streams
  * (src/codec/code-decode.ts, decodeInts; spec/FORMAT.md, "Coded integer
  * streams"), decision for decision: the same adaptive model (a 16-bit
- * probability and a count per context, the shift min(5, bit length of
+ * probability per context, adapted by the shift min(5, bit length of its
  * count + 1)), the same range arithmetic on u32 (range >> 16 times a
  * probability is below 2^32, so nothing wraps that the JavaScript does not
  * wrap the same way), the same contexts from the carried neighbours, and
@@ -12,14 +12,26 @@
  * them), and range, code and position in module globals would put memory
  * accesses on the decoder's critical path.
  *
- * The model's layout (src/codec/code-model.ts): contexts ZERO_AT = 0
- * (16 buckets), SIGN_AT = 16 (9), CLASS_AT = 25 (16 buckets x 31 classes),
+ * The model's state, as in the encoder (kernels/ints-encode.ts), one u32 a
+ * context: the probability in the low 16 bits and x = min(count + 1, 16)
+ * above, whose bit length is the shift: one load and one store a decision
+ * and no branch on the count; and each decision takes either half of the
+ * range without a branch (the unary class's loop and the zero flag still
+ * branch on the bit decoded). On the whole streams of the residual grids
+ * the encoder codes in packs of bench/'s annual-precip, turbulence,
+ * volcano and large fields at rel:1e-3 and psnr:60
+ * (scratch/ints-dec-bench.mjs, the old module and this one alternated per
+ * grid, least of 9 runs), 1.0-1.27x faster than a u16 probability and a u8
+ * count with a branch on each bit. In a run of zeros the probability and
+ * x are locals of their own (packed in one, the large field's grids,
+ * mostly runs, decoded 11% slower than before). Contexts (src/codec/code-model.ts): ZERO_AT = 0 (16
+ * buckets), SIGN_AT = 16 (9), CLASS_AT = 25 (16 buckets x 31 classes),
  * MANT_AT = 521 (31 classes x 3), 614 in all. Cell class Valid = 0
  * (src/codec/mask.ts).
  *
  * Memory (byte addresses): bytes (the stream, `end` bytes; the first four
  * already read by the caller into `code0`), codes (m x n u8, or 0 for no
- * mask), out (m x n i32), p (614 u16) and count (614 u8), set here. Result:
+ * mask), out (m x n i32), model (614 u32, set here). Result:
  * 0 when every value is decoded; 1 when a direct bit falls outside both
  * halves of the range; 2 when a value exceeds 2^30 in magnitude (its cell
  * in `failedAt`); either way `finalPos` holds the position in the stream
@@ -39,18 +51,9 @@ export let finalPos: i32 = 0;
 /** The cell of a value beyond 2^30. */
 export let failedAt: i32 = 0;
 
-/** The adaptation shift for a context seen `cnt` times (SHIFTS in code-model.ts). */
-@inline
-function shiftOf(cnt: u32): u32 {
-  const s = 32 - clz<u32>(cnt + 1);
-  return s > 5 ? 5 : s;
-}
-
-export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, codes: usize, out: usize, p: usize, count: usize): i32 {
-  for (let c = 0; c < CONTEXTS; c++) {
-    store<u16>(p + (<usize>c << 1), 32768);
-    store<u8>(count + <usize>c, 0);
-  }
+export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, codes: usize, out: usize, model: usize): i32 {
+  // A fresh context: probability 1/2, x = 1 (count 0).
+  for (let c = 0; c < CONTEXTS; c++) store<u32>(model + (<usize>c << 2), 0x18000);
   let code: u32 = code0;
   let range: u32 = 0xffffffff;
   let pos: i32 = 4;
@@ -58,7 +61,9 @@ export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, c
   let bit: i32 = 0;
   let ctx: i32 = 0;
   let pr: u32 = 0;
-  let cnt: u32 = 0;
+  let st: u32 = 0;
+  let x: u32 = 0;
+  let sh: u32 = 0;
   const masked = codes !== 0;
   for (let i = 0; i < m; i++) {
     const row = i * n;
@@ -71,14 +76,15 @@ export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, c
       let nonzero = false;
       if (!masked && (aLeft | aUp | aUpLeft) === 0) {
         // A run of zeros while every neighbour so far is 0 (bucket 0), until a 1 or a non-zero up-right code.
-        let pr0: u32 = load<u16>(p + (<usize>ZERO_AT << 1));
-        let cnt0: u32 = load<u8>(count + <usize>ZERO_AT);
+        // The state unpacked for the run: probability and x in locals of their own.
+        let pr0: u32 = load<u32>(model + (<usize>ZERO_AT << 2)) & 0xffff;
+        let x0: u32 = load<u32>(model + (<usize>ZERO_AT << 2)) >> 16;
         for (; j < n; j++) {
           const c = row + j;
           if (i > 0 && j + 1 < n && load<i32>(out + (<usize>(c - n + 1) << 2)) !== 0) break;
+          const shift = 32 - clz<u32>(x0);
+          x0 = x0 + 1 - (x0 >> 4);
           bound = (range >> 16) * pr0;
-          const shift = shiftOf(cnt0);
-          if (cnt0 < 255) cnt0++;
           if (code < bound) {
             range = bound;
             pr0 = pr0 + ((65536 - pr0) >> shift);
@@ -96,8 +102,7 @@ export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, c
           if (nonzero) break;
           store<i32>(out + (<usize>c << 2), 0);
         }
-        store<u16>(p + (<usize>ZERO_AT << 1), <u16>pr0);
-        store<u8>(count + <usize>ZERO_AT, <u8>cnt0);
+        store<u32>(model + (<usize>ZERO_AT << 2), pr0 | (x0 << 16));
         if (j === n) break;
       }
       const c = row + j;
@@ -119,20 +124,15 @@ export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, c
       else {
         // Decision: zero flag.
         ctx = ZERO_AT + bucket;
-        pr = load<u16>(p + (<usize>ctx << 1));
-        cnt = load<u8>(count + <usize>ctx);
+        st = load<u32>(model + (<usize>ctx << 2));
+        pr = st & 0xffff;
+        x = st >> 16;
+        sh = 32 - clz<u32>(x);
         bound = (range >> 16) * pr;
-        if (code < bound) {
-          range = bound;
-          store<u16>(p + (<usize>ctx << 1), <u16>(pr + ((65536 - pr) >> shiftOf(cnt))));
-          bit = 0;
-        } else {
-          code -= bound;
-          range -= bound;
-          store<u16>(p + (<usize>ctx << 1), <u16>(pr - (pr >> shiftOf(cnt))));
-          bit = 1;
-        }
-        if (cnt < 255) store<u8>(count + <usize>ctx, <u8>(cnt + 1));
+        bit = code >= bound ? 1 : 0;
+        code -= select<u32>(bound, 0, bit !== 0);
+        range = select<u32>(range - bound, bound, bit !== 0);
+        store<u32>(model + (<usize>ctx << 2), select<u32>(pr - (pr >> sh), pr + ((65536 - pr) >> sh), bit !== 0) | ((x + 1 - (x >> 4)) << 16));
         while (range < TOP) {
           range = range << 8;
           code = (code << 8) | (pos < end ? <u32>load<u8>(bytes + <usize>pos) : 0);
@@ -143,20 +143,15 @@ export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, c
       if (bit !== 0) {
         // Decision: sign.
         ctx = SIGN_AT + 3 * (left > 0 ? 2 : left < 0 ? 0 : 1) + (up > 0 ? 2 : up < 0 ? 0 : 1);
-        pr = load<u16>(p + (<usize>ctx << 1));
-        cnt = load<u8>(count + <usize>ctx);
+        st = load<u32>(model + (<usize>ctx << 2));
+        pr = st & 0xffff;
+        x = st >> 16;
+        sh = 32 - clz<u32>(x);
         bound = (range >> 16) * pr;
-        if (code < bound) {
-          range = bound;
-          store<u16>(p + (<usize>ctx << 1), <u16>(pr + ((65536 - pr) >> shiftOf(cnt))));
-          bit = 0;
-        } else {
-          code -= bound;
-          range -= bound;
-          store<u16>(p + (<usize>ctx << 1), <u16>(pr - (pr >> shiftOf(cnt))));
-          bit = 1;
-        }
-        if (cnt < 255) store<u8>(count + <usize>ctx, <u8>(cnt + 1));
+        bit = code >= bound ? 1 : 0;
+        code -= select<u32>(bound, 0, bit !== 0);
+        range = select<u32>(range - bound, bound, bit !== 0);
+        store<u32>(model + (<usize>ctx << 2), select<u32>(pr - (pr >> sh), pr + ((65536 - pr) >> sh), bit !== 0) | ((x + 1 - (x >> 4)) << 16));
         while (range < TOP) {
           range = range << 8;
           code = (code << 8) | (pos < end ? <u32>load<u8>(bytes + <usize>pos) : 0);
@@ -168,20 +163,15 @@ export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, c
         let k = 0;
         for (;;) {
           ctx = cls + k;
-          pr = load<u16>(p + (<usize>ctx << 1));
-          cnt = load<u8>(count + <usize>ctx);
+          st = load<u32>(model + (<usize>ctx << 2));
+          pr = st & 0xffff;
+          x = st >> 16;
+          sh = 32 - clz<u32>(x);
           bound = (range >> 16) * pr;
-          if (code < bound) {
-            range = bound;
-            store<u16>(p + (<usize>ctx << 1), <u16>(pr + ((65536 - pr) >> shiftOf(cnt))));
-            bit = 0;
-          } else {
-            code -= bound;
-            range -= bound;
-            store<u16>(p + (<usize>ctx << 1), <u16>(pr - (pr >> shiftOf(cnt))));
-            bit = 1;
-          }
-          if (cnt < 255) store<u8>(count + <usize>ctx, <u8>(cnt + 1));
+          bit = code >= bound ? 1 : 0;
+          code -= select<u32>(bound, 0, bit !== 0);
+          range = select<u32>(range - bound, bound, bit !== 0);
+          store<u32>(model + (<usize>ctx << 2), select<u32>(pr - (pr >> sh), pr + ((65536 - pr) >> sh), bit !== 0) | ((x + 1 - (x >> 4)) << 16));
           while (range < TOP) {
             range = range << 8;
             code = (code << 8) | (pos < end ? <u32>load<u8>(bytes + <usize>pos) : 0);
@@ -196,20 +186,15 @@ export function decodeInts(bytes: usize, end: i32, code0: u32, m: i32, n: i32, c
         for (let b = 0; b < k; b++) {
           if (b < 2) {
             ctx = MANT_AT + 3 * k + (b === 0 ? 0 : 1 + (mag & 1));
-            pr = load<u16>(p + (<usize>ctx << 1));
-            cnt = load<u8>(count + <usize>ctx);
+            st = load<u32>(model + (<usize>ctx << 2));
+            pr = st & 0xffff;
+            x = st >> 16;
+            sh = 32 - clz<u32>(x);
             bound = (range >> 16) * pr;
-            if (code < bound) {
-              range = bound;
-              store<u16>(p + (<usize>ctx << 1), <u16>(pr + ((65536 - pr) >> shiftOf(cnt))));
-              bit = 0;
-            } else {
-              code -= bound;
-              range -= bound;
-              store<u16>(p + (<usize>ctx << 1), <u16>(pr - (pr >> shiftOf(cnt))));
-              bit = 1;
-            }
-            if (cnt < 255) store<u8>(count + <usize>ctx, <u8>(cnt + 1));
+            bit = code >= bound ? 1 : 0;
+            code -= select<u32>(bound, 0, bit !== 0);
+            range = select<u32>(range - bound, bound, bit !== 0);
+            store<u32>(model + (<usize>ctx << 2), select<u32>(pr - (pr >> sh), pr + ((65536 - pr) >> sh), bit !== 0) | ((x + 1 - (x >> 4)) << 16));
             while (range < TOP) {
               range = range << 8;
               code = (code << 8) | (pos < end ? <u32>load<u8>(bytes + <usize>pos) : 0);

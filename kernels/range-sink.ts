@@ -1,6 +1,6 @@
 /**
- * The output side of the range encoders of kernels/ints-encode.ts and
- * kernels/symbols-encode.ts (ByteSink in src/codec/code-encode.ts): the
+ * The output side of the range encoder of kernels/symbols-encode.ts
+ * (ByteSink in src/codec/code-encode.ts): the
  * bytes written so far, the last byte held back (it may still take a
  * carry) and how many 0xff bytes follow it. The coder's low end (below
  * 2^32 plus a carry) is passed in and out, so a hot loop keeps it in a

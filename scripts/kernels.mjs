@@ -1,12 +1,12 @@
 #!/usr/bin/env node
 /**
  * Compiles the WebAssembly kernels (kernels/*.ts, AssemblyScript, the exact
- * version pinned in package.json's devDependencies), thirteen modules from
- * thirteen entry files (kernels/decode.ts and kernels/symbols.ts for the
+ * version pinned in package.json's devDependencies), fourteen modules from
+ * fourteen entry files (kernels/decode.ts and kernels/symbols.ts for the
  * decoder, kernels/linalg.ts for the linear algebra of both sides,
  * kernels/encode.ts for the encoder's check of a candidate,
- * kernels/finish.ts, kernels/finish-symbols.ts and kernels/finish-blend.ts
- * for the encoder's finishing of a tile, kernels/rdo.ts for the walks of
+ * kernels/finish.ts, kernels/finish-ints.ts, kernels/finish-symbols.ts and
+ * kernels/finish-blend.ts for the encoder's finishing of a tile, kernels/rdo.ts for the walks of
  * the residual search under L2 bounds and kernels/gram.ts for the Gram
  * matrix of the L2 plan's spectra, kernels/masked.ts for the pointwise
  * check's choice of predictor on tiles with missing cells and the harmonic
@@ -41,6 +41,7 @@ const MODULES = [
   ['SYMBOL_KERNELS', 'kernels/symbols.ts'],
   ['ENCODE_KERNELS', 'kernels/encode.ts'],
   ['FINISH_KERNELS', 'kernels/finish.ts'],
+  ['FINISH_INTS_KERNELS', 'kernels/finish-ints.ts'],
   ['FINISH_SYMBOL_KERNELS', 'kernels/finish-symbols.ts'],
   ['FINISH_BLEND_KERNELS', 'kernels/finish-blend.ts'],
   ['RDO_KERNELS', 'kernels/rdo.ts'],

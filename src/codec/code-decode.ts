@@ -323,7 +323,7 @@ export function decodeInts(bytes: Uint8Array, m: number, n: number, codes: Uint8
 
 /** The integer decoder of kernels/decode.ts (kernels/ints.ts): addresses are byte offsets into the kernels' memory. */
 interface IntsKernel {
-  decodeInts(bytes: number, end: number, code0: number, m: number, n: number, codes: number, out: number, p: number, count: number): number;
+  decodeInts(bytes: number, end: number, code0: number, m: number, n: number, codes: number, out: number, model: number): number;
   finalPos: WebAssembly.Global;
   failedAt: WebAssembly.Global;
 }
@@ -338,11 +338,10 @@ function decodedByKernel(bytes: Uint8Array, code: number, m: number, n: number, 
   if (k === null || CONTEXTS !== 614 || Cell.Valid !== 0) return false; // the layout the kernel is written for
   const cells = m * n;
   const end = bytes.length;
-  // Bytes from SCRATCH_AT: out (i32), the model's probabilities (u16) and counts (u8), the class map, the stream.
+  // Bytes from SCRATCH_AT: out (i32), the model (u32 a context), the class map, the stream.
   const outAt = SCRATCH_AT;
-  const pAt = outAt + 4 * cells;
-  const countAt = pAt + 2 * CONTEXTS;
-  const codesAt = countAt + CONTEXTS;
+  const modelAt = outAt + 4 * cells;
+  const codesAt = modelAt + 4 * CONTEXTS;
   const bytesAt = codesAt + (codes === null ? 0 : cells);
   if (!k.lease(bytesAt + end - SCRATCH_AT)) return false;
   let status: number;
@@ -353,7 +352,7 @@ function decodedByKernel(bytes: Uint8Array, code: number, m: number, n: number, 
     const heap = k.u8;
     if (codes !== null) heap.set(codes.subarray(0, cells), codesAt);
     heap.set(bytes, bytesAt);
-    status = fn.decodeInts(bytesAt, end, code, m, n, codes === null ? 0 : codesAt, outAt, pAt, countAt);
+    status = fn.decodeInts(bytesAt, end, code, m, n, codes === null ? 0 : codesAt, outAt, modelAt);
     out.set(k.i32.subarray(outAt / 4, outAt / 4 + cells));
   } finally {
     k.release();

@@ -4,9 +4,10 @@
  * predict() and predictedFill() in src/codec/reconstruct.ts take it (four
  * cells at a time for small codes without a class map: kernels/blend-small.ts,
  * the module FINISH_BLEND_KERNELS), the
- * plain predictors' differences, as predict() forms them, and
- * the binary coder's encoder, as encodeIntsWithin in
- * src/codec/code-encode.ts, and (kernels/finish-symbols.ts, the module
+ * plain predictors' differences, as predict() forms them;
+ * (kernels/finish-ints.ts, the module FINISH_INTS_KERNELS) the binary
+ * coder's encoder, as encodeIntsWithin in src/codec/code-encode.ts; and
+ * (kernels/finish-symbols.ts, the module
  * FINISH_SYMBOL_KERNELS) the symbol coder's encoder, as encodeSymbolsWithin
  * in src/codec/code-symbols-encode.ts, with the error tally of the
  * encoder's check of a finished tile (src/codec/measure.ts), which call
@@ -14,14 +15,18 @@
  * same bytes as the JavaScript; null (or undefined) where the kernels are
  * not to be had, and the caller runs the JavaScript.
  */
-import { FINISH_BLEND_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from './kernels-bytes.js';
+import { FINISH_BLEND_KERNELS, FINISH_INTS_KERNELS, FINISH_KERNELS, FINISH_SYMBOL_KERNELS } from './kernels-bytes.js';
 import { kernels, SCRATCH_AT, WEIGHTS_BYTES } from './kernels.js';
 
 /** The exports of kernels/finish.ts: addresses are byte offsets into the kernels' memory. */
 interface FinishKernels {
   predictPlain(q: number, d: number, m: number, n: number, kind: number): number;
   blendEncode(q: number, d: number, m: number, n: number, limit: number, check: number, weight: number, above: number, below: number, codes: number, nums: number, totals: number, errs: number): number;
-  encodeInts(values: number, m: number, n: number, codes: number, p: number, count: number, out: number, cap: number, atMost: number): number;
+}
+
+/** The exports of kernels/finish-ints.ts. */
+interface IntsEncoder {
+  encodeInts(values: number, m: number, n: number, codes: number, model: number, out: number, cap: number, atMost: number): number;
   written: WebAssembly.Global;
 }
 
@@ -119,7 +124,7 @@ export function predictPlainKernel(q: Int32Array, d: Int32Array, m: number, n: n
   }
 }
 
-/** Contexts of the binary coder's model as kernels/ints-encode.ts lays it out (CONTEXTS in src/codec/code-model.ts). */
+/** Contexts of the binary coder's model (CONTEXTS in src/codec/code-model.ts), a u32 each in kernels/ints-encode.ts. */
 const CONTEXTS = 614;
 
 /**
@@ -133,20 +138,19 @@ export function encodeIntsKernel(values: Int32Array, m: number, n: number, codes
   const k = kernels();
   if (k === null) return undefined;
   const cells = m * n;
-  // Bytes from SCRATCH_AT: values (i32), the model's probabilities (u16) and counts (u8), the class map, the stream.
+  // Bytes from SCRATCH_AT: values (i32), the model (u32 a context), the class map, the stream.
   const cap = 4 * cells + 64;
   const valuesAt = SCRATCH_AT;
-  const pAt = valuesAt + 4 * cells;
-  const countAt = pAt + 2 * CONTEXTS;
-  const codesAt = countAt + CONTEXTS;
+  const modelAt = valuesAt + 4 * cells;
+  const codesAt = modelAt + 4 * CONTEXTS;
   const outAt = codesAt + (codes === null ? 0 : cells);
   if (!k.lease(outAt + cap - SCRATCH_AT)) return undefined;
   try {
-    const fn = k.module<FinishKernels>(FINISH_KERNELS);
+    const fn = k.module<IntsEncoder>(FINISH_INTS_KERNELS);
     if (fn === null) return undefined;
     k.i32.set(values.subarray(0, cells), valuesAt / 4);
     if (codes !== null) k.u8.set(codes.subarray(0, cells), codesAt);
-    const status = fn.encodeInts(valuesAt, m, n, codes === null ? 0 : codesAt, pAt, countAt, outAt, cap, atMost);
+    const status = fn.encodeInts(valuesAt, m, n, codes === null ? 0 : codesAt, modelAt, outAt, cap, atMost);
     if (status === 1) return null;
     if (status !== 0) return undefined;
     const length = fn.written.value as number;

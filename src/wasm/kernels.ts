@@ -1,6 +1,6 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in thirteen modules: the linear-algebra module, with the range finder's
+ * in fourteen modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
@@ -10,7 +10,7 @@
  * module, with the pointwise check of a candidate (readers never load it);
  * the encoder's finishing modules (src/wasm/finish.ts), one with the
  * predictors' differences (the blend's walk over known codes, the plain
- * predictors) and the binary coder's encoder, one with the blend's walk
+ * predictors), one with the binary coder's encoder, one with the blend's walk
  * four cells at a time, one with the symbol coder's encoder and the
  * check's error tally; the encoder's modules for L2 bounds, one with the
  * residual search's walks (src/wasm/rdo.ts), which imports the
