@@ -79,8 +79,8 @@ function floorDiv(num: i64, total: i32): i64 {
 }
 
 /** One walk with the blend (see the module's comment): 1 when every cell is walked within the limits (the sums in `out`), 0 where the JavaScript returns false, -1 where a cell's scaled value is NaN. */
-export function rdoBlendWalk(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: usize, table: usize, m: i32, n: i32, step: f64, w: f64, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restValid: usize, out: usize, weight: usize, above0: usize, below0: usize, errs: usize): i32 {
-  if (keep * load<f64>(restSe) > seLimit || keep * load<f64>(restValid) > bitsLimit) return 0;
+export function rdoBlendWalk(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: usize, table: usize, m: i32, n: i32, step: f64, w: f64, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restBits: usize, out: usize, weight: usize, above0: usize, below0: usize, errs: usize): i32 {
+  if (keep * load<f64>(restSe) > seLimit || keep * load<f64>(restBits) > bitsLimit) return 0;
   se = 0;
   bits = 0;
   memory.fill(errs - 20, 0, 20);

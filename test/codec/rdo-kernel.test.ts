@@ -86,7 +86,7 @@ describe('the rate-distortion kernels module', () => {
  */
 function walkBoth(t: PreparedTile, kind: number, step: number, w: number, seLimit: number, bitsLimit: number, base = new Float64Array(t.m * t.n).fill(t.center)) {
   const cells = t.m * t.n;
-  const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step);
+  const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step, kind);
   const dJs = new Int32Array(cells);
   const run = new RdoWalk(t.orig, base, t.classes.codes, dJs, step, w);
   const ok = run.run(new Int32Array(cells), t.m, t.n, kind, seLimit, bitsLimit, floor);
@@ -94,8 +94,9 @@ function walkBoth(t: PreparedTile, kind: number, step: number, w: number, seLimi
   const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights());
   expect(walks).not.toBeNull();
   try {
-    const sums = walks!.floor(step);
+    const sums = walks!.floor(step, kind);
     expect(Array.from(sums.restSe)).toEqual(Array.from(floor.restSe));
+    expect(Array.from(sums.restBits)).toEqual(Array.from(floor.restBits));
     expect(Array.from(sums.restValid)).toEqual(Array.from(floor.restValid));
     const r = walks!.walk(kind, step, w, seLimit, bitsLimit, FLOOR_KEEP, sums);
     const dK = new Int32Array(cells);

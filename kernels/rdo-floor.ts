@@ -1,0 +1,106 @@
+/**
+ * The floor of the residual search's walks (src/codec/rdo.ts, RowFloor.of),
+ * in a module of its own (kernels/rdo.ts, with the walks, stays under 4
+ * KiB: src/wasm/kernels.ts says why). Encoder-side only. Compiled by `npm
+ * run kernels` (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts; laid
+ * out by src/wasm/rdo.ts, in the memory of kernels/rdo.ts's walks. Every
+ * sum is the JavaScript's: the same operations in the same order; the
+ * codes' and predictions' intervals are integers within 4 x 2^30, held in
+ * i64 here and in binary64 there, so the same values.
+ *
+ * Memory (byte addresses): orig, base, codes and table as kernels/rdo.ts's
+ * walk, lo and hi (n i32 each, scratch: the codes' intervals of a row),
+ * restSe, restBits and restValid (m + 1 binary64 each, out).
+ */
+import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
+
+/** The blend predictor's id (src/codec/reconstruct.ts, Predictor.Blend): its prediction is not bounded. */
+const BLEND = 6;
+
+/** Entry j of the i32 array at p, widened. */
+@inline
+function ld(p: usize, j: i32): i64 {
+  return <i64>load<i32>(p + (<usize>j << 2));
+}
+
+/** src/codec/reconstruct.ts interior() for the plain predictors (Lorenzo 1 to the median 5) of a (left), b (up), u (up-left). */
+@inline
+function interior(kind: i32, a: i64, b: i64, u: i64): i64 {
+  if (kind === 1) return a + b - u;
+  if (kind === 2) return a;
+  if (kind === 3) return b;
+  if (kind === 4) return (a + b) >> 1;
+  const lo = a < b ? a : b;
+  const hi = a < b ? b : a;
+  return u >= hi ? lo : u <= lo ? hi : a + b - u;
+}
+
+/** x within +-LIMIT. */
+@inline
+function clip(x: i64): i64 {
+  return x < -LIMIT_I ? -LIMIT_I : x > LIMIT_I ? LIMIT_I : x;
+}
+
+/** RowFloor.of at step `step` for predictor `kind`: from each row to the end, the least squared error and rough bits a walk adds and the valid cells, into restSe, restBits and restValid. */
+export function rowFloor(orig: usize, f32: i32, base: usize, codes: usize, table: usize, m: i32, n: i32, step: f64, kind: i32, lo: usize, hi: usize, restSe: usize, restBits: usize, restValid: usize): void {
+  const bounded = kind !== BLEND;
+  for (let i = 0; i < m; i++) {
+    let se: f64 = 0;
+    let bits: f64 = 0;
+    let valid: f64 = 0;
+    let ulLo: i64 = 0;
+    let ulHi: i64 = 0;
+    for (let j = 0; j < n; j++) {
+      const c = i * n + j;
+      const upLo = ld(lo, j);
+      const upHi = ld(hi, j);
+      let pLo: i64 = 0;
+      let pHi: i64 = 0;
+      if (bounded && kind !== 0 && c !== 0) {
+        if (i === 0) {
+          pLo = ld(lo, j - 1);
+          pHi = ld(hi, j - 1);
+        } else if (j === 0) {
+          pLo = upLo;
+          pHi = upHi;
+        } else {
+          pLo = interior(kind, ld(lo, j - 1), upLo, ulHi);
+          pHi = interior(kind, ld(hi, j - 1), upHi, ulLo);
+        }
+      }
+      ulLo = upLo;
+      ulHi = upHi;
+      let cLo = clip(pLo);
+      let cHi = clip(pHi);
+      if (load<u8>(codes + <usize>c) === 0) {
+        const x = (value(orig, f32, c) - load<f64>(base + (<usize>c << 3))) / step;
+        const v = roundJs(x);
+        se += (x - v) * (x - v) * step * step;
+        valid++;
+        if (!bounded || !(Math.abs(v) <= LIMIT + 1)) {
+          bits += 1;
+          cLo = -LIMIT_I;
+          cHi = LIMIT_I;
+        } else {
+          cLo = clip(<i64>v - 1);
+          cHi = clip(<i64>v + 1);
+          bits += bitsOf(table, cLo > pHi ? cLo - pHi : pLo > cHi ? pLo - cHi : 0);
+        }
+      }
+      store<i32>(lo + (<usize>j << 2), <i32>cLo);
+      store<i32>(hi + (<usize>j << 2), <i32>cHi);
+    }
+    store<f64>(restSe + (<usize>i << 3), se);
+    store<f64>(restBits + (<usize>i << 3), bits);
+    store<f64>(restValid + (<usize>i << 3), valid);
+  }
+  suffix(restSe, m);
+  suffix(restBits, m);
+  suffix(restValid, m);
+}
+
+/** The m row sums at a (binary64) made sums from each row to the end, entry m 0 (in the JavaScript's order: the later rows' sum plus the row's). */
+function suffix(a: usize, m: i32): void {
+  store<f64>(a + (<usize>m << 3), 0);
+  for (let i = m - 1; i >= 0; i--) store<f64>(a + (<usize>i << 3), load<f64>(a + (<usize>(i + 1) << 3)) + load<f64>(a + (<usize>i << 3)));
+}
