@@ -1,16 +1,23 @@
 /**
- * The floor of the residual search's walks (src/codec/rdo.ts, RowFloor.of),
- * in a module of its own (kernels/rdo.ts, with the walks, stays under 4
- * KiB: src/wasm/kernels.ts says why). Encoder-side only. Compiled by `npm
- * run kernels` (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts; laid
- * out by src/wasm/rdo.ts, in the memory of kernels/rdo.ts's walks. Every
- * sum is the JavaScript's: the same operations in the same order; the
- * codes' and predictions' intervals are integers within 4 x 2^30, held in
- * i64 here and in binary64 there, so the same values.
+ * What the residual search's walks (kernels/rdo.ts, kernels/rdo-blend.ts)
+ * read, in a module of its own (kernels/rdo.ts stays under 4 KiB:
+ * src/wasm/kernels.ts says why): each cell's difference from the low-rank
+ * part, once a tile ({@link residuals}); its scaled value at a step, once
+ * a step ({@link scaled}, or {@link rowFloor} with the walks' floor,
+ * src/codec/rdo.ts RowFloor.of). Encoder-side only. Compiled by `npm run
+ * kernels` (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts; laid out
+ * by src/wasm/rdo.ts, in the memory of the walks. Every value and sum is
+ * the JavaScript's: the same operations in the same order (the scaled
+ * value (orig - base) / step of RdoWalk.settle: the difference rounded
+ * once, then the quotient); the codes' and predictions' intervals are
+ * integers within 4 x 2^30, held in i64 here and in binary64 there, so
+ * the same values.
  *
- * Memory (byte addresses): orig, base, codes and table as kernels/rdo.ts's
- * walk, lo and hi (n i32 each, scratch: the codes' intervals of a row),
- * restSe, restBits and restValid (m + 1 binary64 each, out).
+ * Memory (byte addresses): r (m x n binary64: orig - base), grid (m x n
+ * binary64, out: the scaled values at a step, of the Valid cells), codes
+ * and table as kernels/rdo.ts's walk, lo and hi (n i32 each, scratch: the
+ * codes' intervals of a row), restSe, restBits and restValid (m + 1
+ * binary64 each, out).
  */
 import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
 
@@ -41,8 +48,8 @@ function clip(x: i64): i64 {
   return x < -LIMIT_I ? -LIMIT_I : x > LIMIT_I ? LIMIT_I : x;
 }
 
-/** RowFloor.of at step `step` for predictor `kind`: from each row to the end, the least squared error and rough bits a walk adds and the valid cells, into restSe, restBits and restValid. */
-export function rowFloor(orig: usize, f32: i32, base: usize, codes: usize, table: usize, m: i32, n: i32, step: f64, kind: i32, lo: usize, hi: usize, restSe: usize, restBits: usize, restValid: usize): void {
+/** RowFloor.of at step `step` for predictor `kind`: from each row to the end, the least squared error and rough bits a walk adds and the valid cells, into restSe, restBits and restValid; the scaled values into grid, as {@link scaled}. */
+export function rowFloor(r: usize, grid: usize, codes: usize, table: usize, m: i32, n: i32, step: f64, kind: i32, lo: usize, hi: usize, restSe: usize, restBits: usize, restValid: usize): void {
   const bounded = kind !== BLEND;
   for (let i = 0; i < m; i++) {
     let se: f64 = 0;
@@ -73,7 +80,8 @@ export function rowFloor(orig: usize, f32: i32, base: usize, codes: usize, table
       let cLo = clip(pLo);
       let cHi = clip(pHi);
       if (load<u8>(codes + <usize>c) === 0) {
-        const x = (value(orig, f32, c) - load<f64>(base + (<usize>c << 3))) / step;
+        const x = load<f64>(r + (<usize>c << 3)) / step;
+        store<f64>(grid + (<usize>c << 3), x);
         const v = roundJs(x);
         se += (x - v) * (x - v) * step * step;
         valid++;
@@ -103,4 +111,14 @@ export function rowFloor(orig: usize, f32: i32, base: usize, codes: usize, table
 function suffix(a: usize, m: i32): void {
   store<f64>(a + (<usize>m << 3), 0);
   for (let i = m - 1; i >= 0; i--) store<f64>(a + (<usize>i << 3), load<f64>(a + (<usize>(i + 1) << 3)) + load<f64>(a + (<usize>i << 3)));
+}
+
+/** base (m x n binary64) made orig - base (the values binary32 when `f32` is 1, else binary64), at every cell. */
+export function residuals(orig: usize, f32: i32, base: usize, cells: i32): void {
+  for (let c = 0; c < cells; c++) store<f64>(base + (<usize>c << 3), value(orig, f32, c) - load<f64>(base + (<usize>c << 3)));
+}
+
+/** The scaled values r / step of the Valid cells into grid. */
+export function scaled(r: usize, grid: usize, codes: usize, cells: i32, step: f64): void {
+  for (let c = 0; c < cells; c++) if (load<u8>(codes + <usize>c) === 0) store<f64>(grid + (<usize>c << 3), load<f64>(r + (<usize>c << 3)) / step);
 }

@@ -9,9 +9,13 @@
  * laid out and copied in and out by src/wasm/rdo.ts. Every code,
  * difference and sum is the JavaScript's (see {@link rdoWalk} for how).
  *
- * Memory (byte addresses): orig (m x n values, binary32 when `f32` is 1,
- * else binary64), base (m x n binary64: the low-rank part and centre),
- * codes (m x n class codes, u8: 0 is Valid), q (m x n i32 scratch), d
+ * Memory (byte addresses): grid (m x n binary64: the Valid cells' scaled
+ * values (orig - base) / step at the walk's step, which kernels/rdo-floor.ts
+ * computes once a step for the walks at every weight: read instead of
+ * divided, the walk of the plain predictor took 0.8 times the time, 17.8
+ * against 21.9 ns a cell, minima of 21 alternated on a 512 x 512 tile of
+ * bench/'s turbulence, scratch/walk-bench.mjs, issue 10), codes (m x n
+ * class codes, u8: 0 is Valid), q (m x n i32 scratch), d
  * (m x n i32 out: the differences, 0 at cells that are not Valid), table
  * (the rough bits of differences 0 .. TABLE - 1, binary64), restSe and
  * restBits (m + 1 binary64 each: RowFloor's sums from each row to the
@@ -20,7 +24,7 @@
 
 export { rdoBlendWalk } from './rdo-blend';
 
-import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
+import { bitsOf, LIMIT, LIMIT_I, roundJs } from './rdo-cell';
 
 /**
  * One walk (RdoWalk.run with its sums starting at 0, predictor `kind`
@@ -35,7 +39,7 @@ import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
  * builds alternated on bench/'s turbulence at psnr:40, scratch
  * measurement, issue 72): fewer conversions a cell.
  */
-export function rdoWalk(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: usize, table: usize, m: i32, n: i32, kind: i32, step: f64, w: f64, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restBits: usize, out: usize): i32 {
+export function rdoWalk(grid: usize, codes: usize, q: usize, d: usize, table: usize, m: i32, n: i32, kind: i32, step: f64, w: f64, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restBits: usize, out: usize): i32 {
   if (keep * load<f64>(restSe) > seLimit || keep * load<f64>(restBits) > bitsLimit) return 0;
   let se: f64 = 0;
   let bits: f64 = 0;
@@ -69,7 +73,7 @@ export function rdoWalk(orig: usize, f32: i32, base: usize, codes: usize, q: usi
         left = p;
         continue;
       }
-      const x = (value(orig, f32, c) - load<f64>(base + (<usize>c << 3))) / step;
+      const x = load<f64>(grid + (<usize>c << 3));
       if (x !== x) return -1;
       const nearF = roundJs(x);
       // Beyond LIMIT + 1 both the nearest code and the next one towards p are beyond LIMIT: the JavaScript returns false.

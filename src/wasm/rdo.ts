@@ -13,13 +13,15 @@ import { kernels, SCRATCH_AT, WEIGHTS_BYTES, type Kernels } from './kernels.js';
 
 /** The exports of kernels/rdo.ts: addresses are byte offsets into the kernels' memory. */
 interface RdoKernels {
-  rdoWalk(orig: number, f32: number, base: number, codes: number, q: number, d: number, table: number, m: number, n: number, kind: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, out: number): number;
-  rdoBlendWalk(orig: number, f32: number, base: number, codes: number, q: number, d: number, table: number, m: number, n: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, out: number, weight: number, above: number, below: number, errs: number): number;
+  rdoWalk(grid: number, codes: number, q: number, d: number, table: number, m: number, n: number, kind: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, out: number): number;
+  rdoBlendWalk(grid: number, codes: number, q: number, d: number, table: number, m: number, n: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, out: number, weight: number, above: number, below: number, errs: number): number;
 }
 
 /** The exports of kernels/rdo-floor.ts. */
 interface RdoFloorKernels {
-  rowFloor(orig: number, f32: number, base: number, codes: number, table: number, m: number, n: number, step: number, kind: number, lo: number, hi: number, restSe: number, restBits: number, restValid: number): void;
+  residuals(orig: number, f32: number, base: number, cells: number): void;
+  scaled(r: number, grid: number, codes: number, cells: number, step: number): void;
+  rowFloor(r: number, grid: number, codes: number, table: number, m: number, n: number, step: number, kind: number, lo: number, hi: number, restSe: number, restBits: number, restValid: number): void;
 }
 
 /** The blend predictor's id (src/codec/reconstruct.ts, Predictor.Blend). */
@@ -41,9 +43,11 @@ export class RdoWalks {
     private readonly floorFn: RdoFloorKernels,
     private readonly m: number,
     private readonly n: number,
-    private readonly f32: number,
-    private readonly at: { orig: number; base: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; above: number; below: number; errs: number; lo: number; hi: number },
+    private readonly at: { r: number; grid: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; above: number; below: number; errs: number; lo: number; hi: number },
   ) {}
+
+  /** The step whose scaled values the grid holds (NaN: none yet). */
+  private gridStep = Number.NaN;
 
   /**
    * Lay out a tile (its values `orig`, the low-rank part `base` and class
@@ -58,18 +62,18 @@ export class RdoWalks {
     const k = kernels();
     if (k === null) return null;
     const f32 = orig instanceof Float32Array;
-    const width = f32 ? 4 : 8;
     if (4 * weights.length > WEIGHTS_BYTES) return null;
-    // Byte addresses from SCRATCH_AT: the sums, the table, RowFloor's three arrays, base, values, q, d, the blend's
-    // sums of the row above and this one and its errors (after 5 more), the floor's intervals, class codes.
+    // Byte addresses from SCRATCH_AT: the sums, the table, RowFloor's three arrays, the values less base (r: base is
+    // copied there), the scaled values (the grid: the values are copied there, for residuals() to read), q, d, the
+    // blend's sums of the row above and this one and its errors (after 5 more), the floor's intervals, class codes.
     const out = SCRATCH_AT;
     const tableAt = out + 16;
     const restSe = up16(tableAt + 8 * table.length);
     const restBits = up16(restSe + 8 * (m + 1));
     const restValid = up16(restBits + 8 * (m + 1));
-    const baseAt = up16(restValid + 8 * (m + 1));
-    const origAt = up16(baseAt + 8 * cells);
-    const q = up16(origAt + width * cells);
+    const r = up16(restValid + 8 * (m + 1));
+    const grid = up16(r + 8 * cells);
+    const q = up16(grid + 8 * cells);
     const d = up16(q + 4 * cells);
     const above = up16(d + 4 * cells);
     const below = up16(above + 20 * n);
@@ -89,17 +93,19 @@ export class RdoWalks {
       k.weightsLoaded = true;
     }
     k.f64.set(table, tableAt / 8);
-    k.f64.set(base.subarray(0, cells), baseAt / 8);
-    if (f32) new Float32Array(k.f64.buffer).set(orig.subarray(0, cells), origAt / 4);
-    else k.f64.set(orig.subarray(0, cells), origAt / 8);
+    k.f64.set(base.subarray(0, cells), r / 8);
+    if (f32) k.f32.set(orig.subarray(0, cells), grid / 4);
+    else k.f64.set(orig.subarray(0, cells), grid / 8);
     k.u8.set(codes.subarray(0, cells), codesAt);
-    return new RdoWalks(k, fn, floorFn, m, n, f32 ? 1 : 0, { orig: origAt, base: baseAt, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, above, below, errs, lo, hi });
+    floorFn.residuals(grid, f32 ? 1 : 0, r, cells);
+    return new RdoWalks(k, fn, floorFn, m, n, { r, grid, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, above, below, errs, lo, hi });
   }
 
-  /** RowFloor's sums at `step` for predictor `kind` (from each row to the end: the least squared error and rough bits a walk adds, the valid cells), m + 1 each. */
+  /** RowFloor's sums at `step` for predictor `kind` (from each row to the end: the least squared error and rough bits a walk adds, the valid cells), m + 1 each; the grid then holds the scaled values at `step`. */
   floor(step: number, kind: number): { restSe: Float64Array; restBits: Float64Array; restValid: Float64Array } {
     const { at, m } = this;
-    this.floorFn.rowFloor(at.orig, this.f32, at.base, at.codes, at.table, m, this.n, step, kind, at.lo, at.hi, at.restSe, at.restBits, at.restValid);
+    this.floorFn.rowFloor(at.r, at.grid, at.codes, at.table, m, this.n, step, kind, at.lo, at.hi, at.restSe, at.restBits, at.restValid);
+    this.gridStep = step;
     const heap = this.k.f64;
     const take = (a: number) => heap.slice(a / 8, a / 8 + m + 1);
     return { restSe: take(at.restSe), restBits: take(at.restBits), restValid: take(at.restValid) };
@@ -111,10 +117,14 @@ export class RdoWalks {
     const heap = this.k.f64;
     heap.set(floor.restSe.subarray(0, m + 1), at.restSe / 8);
     heap.set(floor.restBits.subarray(0, m + 1), at.restBits / 8);
+    if (this.gridStep !== step) {
+      this.floorFn.scaled(at.r, at.grid, at.codes, m * this.n, step);
+      this.gridStep = step;
+    }
     const r =
       kind === BLEND
-        ? this.fn.rdoBlendWalk(at.orig, this.f32, at.base, at.codes, at.q, at.d, at.table, m, this.n, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out, 0, at.above, at.below, at.errs)
-        : this.fn.rdoWalk(at.orig, this.f32, at.base, at.codes, at.q, at.d, at.table, m, this.n, kind, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out);
+        ? this.fn.rdoBlendWalk(at.grid, at.codes, at.q, at.d, at.table, m, this.n, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out, 0, at.above, at.below, at.errs)
+        : this.fn.rdoWalk(at.grid, at.codes, at.q, at.d, at.table, m, this.n, kind, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out);
     if (r < 0) return null;
     if (r === 0) return false;
     return { se: heap[at.out / 8], bits: heap[at.out / 8 + 1] };

@@ -175,6 +175,35 @@ describe('a walk in the kernels', () => {
     }
   });
 
+  it('gives the JavaScript\'s walk whichever step the kernels\' grid of scaled values was last made at (by a floor, or by the walk itself)', () => {
+    const values = block('annual-precip.json', 40, 100, 24, 40);
+    const holed = values.map((v, c) => (c % 7 === 3 ? -999 : v));
+    for (const t of [prepareTile(holed, 24, 40, 'f32', fillWords(-999, 'f32'), 5), prepareTile(Float64Array.from(values), 24, 40, 'f64', null, 5)]) {
+      const base = new Float64Array(t.m * t.n).fill(t.center);
+      const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights());
+      expect(walks).not.toBeNull();
+      try {
+        for (const kind of KINDS) {
+          const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, 2.5, kind);
+          const dJs = new Int32Array(t.m * t.n);
+          const run = new RdoWalk(t.orig, base, t.classes.codes, dJs, 2.5, 0.3);
+          expect(run.run(new Int32Array(t.m * t.n), t.m, t.n, kind, Infinity, Infinity, floor)).toBe(true);
+          // The grid made by a floor at another step, then by the walk at 2.5 (no floor), then kept for a second walk.
+          walks!.floor(0.7, kind);
+          for (let again = 0; again < 2; again++) {
+            const r = walks!.walk(kind, 2.5, 0.3, Infinity, Infinity, FLOOR_KEEP, floor);
+            const dK = new Int32Array(t.m * t.n);
+            if (r) walks!.differences(dK);
+            expect(r, `kind ${kind} ${t.dtype}`).toEqual({ se: run.se, bits: run.bits });
+            expect(Array.from(dK)).toEqual(Array.from(dJs));
+          }
+        }
+      } finally {
+        walks!.close();
+      }
+    }
+  });
+
   it('gives the JavaScript\'s rough bits for differences past the table (Math.log2, imported)', () => {
     // Rows rising by 5 x 10^5 plus noise of up to 10^6, at steps of about 1: differences of about 10^5.
     const m = 12;
