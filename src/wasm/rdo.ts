@@ -20,7 +20,7 @@ interface RdoKernels {
 /** The exports of kernels/rdo-floor.ts. */
 interface RdoFloorKernels {
   residuals(orig: number, f32: number, base: number, cells: number): void;
-  scaled(r: number, grid: number, codes: number, cells: number, step: number): void;
+  scaled(r: number, grid: number, cells: number, step: number): void;
   rowFloor(r: number, grid: number, codes: number, table: number, m: number, n: number, step: number, kind: number, lo: number, hi: number, restSe: number, restBits: number, restValid: number): void;
 }
 
@@ -118,7 +118,7 @@ export class RdoWalks {
     heap.set(floor.restSe.subarray(0, m + 1), at.restSe / 8);
     heap.set(floor.restBits.subarray(0, m + 1), at.restBits / 8);
     if (this.gridStep !== step) {
-      this.floorFn.scaled(at.r, at.grid, at.codes, m * this.n, step);
+      this.floorFn.scaled(at.r, at.grid, m * this.n, step);
       this.gridStep = step;
     }
     const r =
