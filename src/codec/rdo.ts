@@ -190,7 +190,13 @@ export const FLOOR_KEEP = 1 - FLOOR_SLACK;
  * bits' floor let the 50 walks of the plain predictor that the rough bits
  * cut short in a pack of bench/'s turbulence field at psnr:80 stop after
  * 2930 rows instead of 14664 of their 15360 (scratch/lb-proto.mjs,
- * measured for issue 10).
+ * measured for issue 10): the 40 at steps finer than the second-ranked
+ * candidate's stop before their first row (their floor alone, 98% of the
+ * bits of a walk that runs to its end there, passes the limit), the 10 at
+ * its step still run most of the way. The blend as the plain predictor
+ * (vega-datasets annual-precip at psnr:80) gains little: a floor from the
+ * hull of its five parts' intervals would have cut its 18 such walks after
+ * 2610 rows instead of 2657 of 3024 (the same scratch), and is not made.
  */
 export class RowFloor {
   /**
