@@ -7,12 +7,12 @@
  * the same floor division); each cell's code is chosen as kernels/rdo.ts
  * chooses it, so every code, difference and sum is the JavaScript's.
  *
- * Memory (byte addresses): as kernels/rdo.ts's walk (orig, base, codes,
- * q, d, table, out), and weight (the blend weight table, i32), above and
+ * Memory (byte addresses): as kernels/rdo.ts's walk (grid, codes, q, d,
+ * table, out), and weight (the blend weight table, i32), above and
  * below (5 n i32 each), errs (5 n i32, after 5 more cleared here).
  */
 import { cap, ld, st } from './blend-parts';
-import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
+import { bitsOf, LIMIT, LIMIT_I, roundJs } from './rdo-cell';
 
 /** The walk's sums and the last code settled (a settle gives a status). */
 let se: f64 = 0;
@@ -26,7 +26,7 @@ let code: i64 = 0;
  * walks in JavaScript).
  */
 @inline
-function settle(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: usize, table: usize, c: i32, p: i64, step: f64, w: f64, seLimit: f64, bitsLimit: f64): i32 {
+function settle(grid: usize, codes: usize, q: usize, d: usize, table: usize, c: i32, p: i64, step: f64, w: f64, seLimit: f64, bitsLimit: f64): i32 {
   if (load<u8>(codes + <usize>c) !== 0) {
     if (p > LIMIT_I || p < -LIMIT_I) return 0;
     st(q, c, <i32>p);
@@ -34,7 +34,7 @@ function settle(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: u
     code = p;
     return 1;
   }
-  const x = (value(orig, f32, c) - load<f64>(base + (<usize>c << 3))) / step;
+  const x = load<f64>(grid + (<usize>c << 3));
   if (x !== x) return -1;
   const nearF = roundJs(x);
   if (!(Math.abs(nearF) <= LIMIT + 1)) return 0;
@@ -65,8 +65,8 @@ function settle(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: u
 }
 
 /** {@link settle} not inlined, for the first row and column (the module stays under 4 KiB: src/wasm/kernels.ts says why). */
-function settleEdge(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: usize, table: usize, c: i32, p: i64, step: f64, w: f64, seLimit: f64, bitsLimit: f64): i32 {
-  return settle(orig, f32, base, codes, q, d, table, c, p, step, w, seLimit, bitsLimit);
+function settleEdge(grid: usize, codes: usize, q: usize, d: usize, table: usize, c: i32, p: i64, step: f64, w: f64, seLimit: f64, bitsLimit: f64): i32 {
+  return settle(grid, codes, q, d, table, c, p, step, w, seLimit, bitsLimit);
 }
 
 /** floor(num / total) for total > 0, exactly (see kernels/blend-encode.ts, floorDiv). */
@@ -79,8 +79,8 @@ function floorDiv(num: i64, total: i32): i64 {
 }
 
 /** One walk with the blend (see the module's comment): 1 when every cell is walked within the limits (the sums in `out`), 0 where the JavaScript returns false, -1 where a cell's scaled value is NaN. */
-export function rdoBlendWalk(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: usize, table: usize, m: i32, n: i32, step: f64, w: f64, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restValid: usize, out: usize, weight: usize, above0: usize, below0: usize, errs: usize): i32 {
-  if (keep * load<f64>(restSe) > seLimit || keep * load<f64>(restValid) > bitsLimit) return 0;
+export function rdoBlendWalk(grid: usize, codes: usize, q: usize, d: usize, table: usize, m: i32, n: i32, step: f64, w: f64, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restBits: usize, out: usize, weight: usize, above0: usize, below0: usize, errs: usize): i32 {
+  if (keep * load<f64>(restSe) > seLimit || keep * load<f64>(restBits) > bitsLimit) return 0;
   se = 0;
   bits = 0;
   memory.fill(errs - 20, 0, 20);
@@ -89,11 +89,11 @@ export function rdoBlendWalk(orig: usize, f32: i32, base: usize, codes: usize, q
   memory.fill(above, 0, <usize>(5 * n) << 2);
   for (let i = 0; i < m; i++) {
     const row = i * n;
-    let s = settleEdge(orig, f32, base, codes, q, d, table, row, i === 0 ? 0 : <i64>ld(q, row - n), step, w, seLimit, bitsLimit);
+    let s = settleEdge(grid, codes, q, d, table, row, i === 0 ? 0 : <i64>ld(q, row - n), step, w, seLimit, bitsLimit);
     if (s <= 0) return s;
     if (i === 0) {
       for (let c = 1; c < n; c++) {
-        s = settleEdge(orig, f32, base, codes, q, d, table, c, <i64>ld(q, c - 1), step, w, seLimit, bitsLimit);
+        s = settleEdge(grid, codes, q, d, table, c, <i64>ld(q, c - 1), step, w, seLimit, bitsLimit);
         if (s <= 0) return s;
       }
       continue;
@@ -120,7 +120,7 @@ export function rdoBlendWalk(orig: usize, f32: i32, base: usize, codes: usize, q
       const w4 = ld(weight, ld(errs, u - 1) + ld(above, u + 4));
       const total = w0 + w1 + w2 + w3 + w4;
       const num = <i64>w0 * p0 + <i64>w1 * p1 + <i64>w2 * p2 + <i64>w3 * p3 + <i64>w4 * p4 + <i64>(total >> 1);
-      s = settle(orig, f32, base, codes, q, d, table, c, floorDiv(num, total), step, w, seLimit, bitsLimit);
+      s = settle(grid, codes, q, d, table, c, floorDiv(num, total), step, w, seLimit, bitsLimit);
       if (s <= 0) return s;
       const v = code;
       st(errs, u, cap(v - p0));

@@ -1,44 +1,30 @@
 /**
  * The rate-distortion module (entry file): the walks of the residual
  * search for a mean squared error allotment (src/codec/rdo.ts, RdoWalk.run
- * and RowFloor), here with the predictors other than the blend, and with
- * the blend in kernels/rdo-blend.ts (exported below). Encoder-side only:
+ * and the walk over RowFloor's sums, which kernels/rdo-floor.ts computes),
+ * here with the predictors other than the blend, and with the blend in
+ * kernels/rdo-blend.ts (exported below). Encoder-side only:
  * readers and the browser's decoding bundle never load it. Compiled by
  * `npm run kernels` (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts;
  * laid out and copied in and out by src/wasm/rdo.ts. Every code,
  * difference and sum is the JavaScript's (see {@link rdoWalk} for how).
  *
- * Memory (byte addresses): orig (m x n values, binary32 when `f32` is 1,
- * else binary64), base (m x n binary64: the low-rank part and centre),
- * codes (m x n class codes, u8: 0 is Valid), q (m x n i32 scratch), d
+ * Memory (byte addresses): grid (m x n binary64: the Valid cells' scaled
+ * values (orig - base) / step at the walk's step, which kernels/rdo-floor.ts
+ * computes once a step for the walks at every weight: read instead of
+ * divided, the walk of the plain predictor took 0.8 times the time, 17.8
+ * against 21.9 ns a cell, minima of 21 alternated on a 512 x 512 tile of
+ * bench/'s turbulence, scratch/walk-bench.mjs, issue 10), codes (m x n
+ * class codes, u8: 0 is Valid), q (m x n i32 scratch), d
  * (m x n i32 out: the differences, 0 at cells that are not Valid), table
  * (the rough bits of differences 0 .. TABLE - 1, binary64), restSe and
- * restValid (m + 1 binary64 each: RowFloor's sums from each row to the
+ * restBits (m + 1 binary64 each: RowFloor's sums from each row to the
  * end), out (the walk's squared error and rough bits, two binary64).
  */
 
 export { rdoBlendWalk } from './rdo-blend';
 
-import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
-
-/** RowFloor's sums (src/codec/rdo.ts) at step `step`, from each row to the end, into restSe and restValid. */
-export function rowFloor(orig: usize, f32: i32, base: usize, codes: usize, m: i32, n: i32, step: f64, restSe: usize, restValid: usize): void {
-  store<f64>(restSe + (<usize>m << 3), 0);
-  store<f64>(restValid + (<usize>m << 3), 0);
-  for (let i = m - 1; i >= 0; i--) {
-    let se: f64 = 0;
-    let valid: f64 = 0;
-    for (let c = i * n; c < i * n + n; c++) {
-      if (load<u8>(codes + <usize>c) !== 0) continue;
-      const x = (value(orig, f32, c) - load<f64>(base + (<usize>c << 3))) / step;
-      const v = roundJs(x);
-      se += (x - v) * (x - v) * step * step;
-      valid++;
-    }
-    store<f64>(restSe + (<usize>i << 3), load<f64>(restSe + (<usize>(i + 1) << 3)) + se);
-    store<f64>(restValid + (<usize>i << 3), load<f64>(restValid + (<usize>(i + 1) << 3)) + valid);
-  }
-}
+import { bitsOf, LIMIT, LIMIT_I, roundJs } from './rdo-cell';
 
 /**
  * One walk (RdoWalk.run with its sums starting at 0, predictor `kind`
@@ -53,8 +39,8 @@ export function rowFloor(orig: usize, f32: i32, base: usize, codes: usize, m: i3
  * builds alternated on bench/'s turbulence at psnr:40, scratch
  * measurement, issue 72): fewer conversions a cell.
  */
-export function rdoWalk(orig: usize, f32: i32, base: usize, codes: usize, q: usize, d: usize, table: usize, m: i32, n: i32, kind: i32, step: f64, w: f64, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restValid: usize, out: usize): i32 {
-  if (keep * load<f64>(restSe) > seLimit || keep * load<f64>(restValid) > bitsLimit) return 0;
+export function rdoWalk(grid: usize, codes: usize, q: usize, d: usize, table: usize, m: i32, n: i32, kind: i32, step: f64, w: f64, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restBits: usize, out: usize): i32 {
+  if (keep * load<f64>(restSe) > seLimit || keep * load<f64>(restBits) > bitsLimit) return 0;
   let se: f64 = 0;
   let bits: f64 = 0;
   for (let i = 0; i < m; i++) {
@@ -87,7 +73,7 @@ export function rdoWalk(orig: usize, f32: i32, base: usize, codes: usize, q: usi
         left = p;
         continue;
       }
-      const x = (value(orig, f32, c) - load<f64>(base + (<usize>c << 3))) / step;
+      const x = load<f64>(grid + (<usize>c << 3));
       if (x !== x) return -1;
       const nearF = roundJs(x);
       // Beyond LIMIT + 1 both the nearest code and the next one towards p are beyond LIMIT: the JavaScript returns false.
@@ -115,7 +101,7 @@ export function rdoWalk(orig: usize, f32: i32, base: usize, codes: usize, q: usi
       store<i32>(q + (<usize>c << 2), <i32>v);
       left = v;
     }
-    if (se > seLimit || bits > bitsLimit || se + keep * load<f64>(restSe + (<usize>(i + 1) << 3)) > seLimit || bits + keep * load<f64>(restValid + (<usize>(i + 1) << 3)) > bitsLimit) return 0;
+    if (se > seLimit || bits > bitsLimit || se + keep * load<f64>(restSe + (<usize>(i + 1) << 3)) > seLimit || bits + keep * load<f64>(restBits + (<usize>(i + 1) << 3)) > bitsLimit) return 0;
   }
   store<f64>(out, se);
   store<f64>(out + 8, bits);

@@ -1,14 +1,15 @@
 #!/usr/bin/env node
 /**
  * Compiles the WebAssembly kernels (kernels/*.ts, AssemblyScript, the exact
- * version pinned in package.json's devDependencies), fourteen modules from
- * fourteen entry files (kernels/decode.ts and kernels/symbols.ts for the
+ * version pinned in package.json's devDependencies), fifteen modules from
+ * fifteen entry files (kernels/decode.ts and kernels/symbols.ts for the
  * decoder, kernels/linalg.ts for the linear algebra of both sides,
  * kernels/encode.ts for the encoder's check of a candidate,
  * kernels/finish.ts, kernels/finish-ints.ts, kernels/finish-symbols.ts and
  * kernels/finish-blend.ts for the encoder's finishing of a tile, kernels/rdo.ts for the walks of
- * the residual search under L2 bounds and kernels/gram.ts for the Gram
- * matrix of the L2 plan's spectra, kernels/masked.ts for the pointwise
+ * the residual search under L2 bounds, kernels/rdo-floor.ts for their
+ * floor and kernels/gram.ts for the Gram matrix of the L2 plan's spectra,
+ * kernels/masked.ts for the pointwise
  * check's choice of predictor on tiles with missing cells and the harmonic
  * fill, kernels/qr.ts for the range finder's orthonormalization,
  * kernels/refit.ts for the refit of a candidate's right factor,
@@ -45,6 +46,7 @@ const MODULES = [
   ['FINISH_SYMBOL_KERNELS', 'kernels/finish-symbols.ts'],
   ['FINISH_BLEND_KERNELS', 'kernels/finish-blend.ts'],
   ['RDO_KERNELS', 'kernels/rdo.ts'],
+  ['RDO_FLOOR_KERNELS', 'kernels/rdo-floor.ts'],
   ['GRAM_KERNELS', 'kernels/gram.ts'],
   ['MASKED_KERNELS', 'kernels/masked.ts'],
   ['QR_KERNELS', 'kernels/qr.ts'],

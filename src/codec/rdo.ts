@@ -169,47 +169,129 @@ const FLOOR_SLACK = 1e-6;
 export const FLOOR_KEEP = 1 - FLOOR_SLACK;
 
 /**
- * What the rows from row i to the end add at least to a walk at one step:
- * squared error, the nearest code's per cell (settle() only ever moves a
- * code away from x, by one, which cannot lower |x - v|), and rough bits, 1
- * per valid cell (diffBits is 1 for 0 and more otherwise). A walk whose sums
- * plus these pass its limits could not end within them, so it stops there:
- * the same walks end within their limits as without the test (the slack
- * covers rounding in the sums), and most walks at too coarse a step stop
- * before their first row.
+ * What the rows from row i to the end add at least to a walk of predictor
+ * `kind` at one step: squared error, the nearest code's per cell (settle()
+ * only ever moves a code away from x, by one, which cannot lower |x - v|),
+ * and rough bits. settle() gives a valid cell the nearest code v0 or the
+ * next one towards its prediction, so a walk that passes a cell (every code
+ * within MAX_INT, or it returns false) has its code in [v0 - 1, v0 + 1]
+ * clipped to +-MAX_INT, and a cell that is not Valid the code of its
+ * prediction; the plain predictors are non-decreasing in the left and up
+ * codes and, where they use it (Lorenzo, the median), non-increasing in the
+ * up-left one, so row by row these intervals give each prediction's
+ * interval, and a cell's rough bits are at least diffBits of the distance
+ * between its code's interval and its prediction's (diffBits grows with
+ * |d|). The blend's prediction is not bounded here: 1 a valid cell
+ * (diffBits(0), the least). A walk whose sums plus these pass its limits
+ * could not end within them, so it stops there: the same walks end within
+ * their limits as without the test (the slack covers rounding in the sums,
+ * at least 1e-6 of a bit a cell), and most walks at too coarse a step stop
+ * before their first row. Against 1 a valid cell for every predictor, the
+ * bits' floor let the 50 walks of the plain predictor that the rough bits
+ * cut short in a pack of bench/'s turbulence field at psnr:80 stop after
+ * 2930 rows instead of 14664 of their 15360 (scratch/lb-proto.mjs,
+ * measured for issue 10): the 40 at steps finer than the second-ranked
+ * candidate's stop before their first row (their floor alone, 98% of the
+ * bits of a walk that runs to its end there, passes the limit), the 10 at
+ * its step still run most of the way. The blend as the plain predictor
+ * (vega-datasets annual-precip at psnr:80) gains little: a floor from the
+ * hull of its five parts' intervals would have cut its 18 such walks after
+ * 2610 rows instead of 2657 of 3024 (the same scratch), and is not made.
  */
 export class RowFloor {
-  /** restSe[i], restValid[i]: over rows i .. m - 1 (entry m is 0); computed by the kernels (src/wasm/rdo.ts) or by {@link RowFloor.of}. */
+  /**
+   * restSe[i], restBits[i], restValid[i]: over rows i .. m - 1 (entry m is
+   * 0), restValid the valid cells (the rough bits' floor for any
+   * predictor); computed by the kernels (src/wasm/rdo.ts) or by
+   * {@link RowFloor.of}.
+   */
   constructor(
     readonly restSe: Float64Array,
+    readonly restBits: Float64Array,
     readonly restValid: Float64Array,
   ) {}
 
-  /** The sums at `step`, computed here. */
-  static of(orig: FloatArray, base: Float64Array, codes: Uint8Array, m: number, n: number, step: number): RowFloor {
+  /**
+   * These sums with 1 rough bit a valid cell: the floor of a walk of any
+   * predictor at this step. The search walks the predictors other than the
+   * plain one once a tile each, and most of those walks end within their
+   * limits (all 15 in a pack of bench/'s turbulence field at psnr:80), so
+   * a pass for their own bits' floor would mostly be lost.
+   */
+  anyPredictor(): RowFloor {
+    return new RowFloor(this.restSe, this.restValid, this.restValid);
+  }
+
+  /** The sums at `step` for predictor `kind`, computed here (the kernels' rowFloor computes the same, in the same order). */
+  static of(orig: FloatArray, base: Float64Array, codes: Uint8Array, m: number, n: number, step: number, kind: number): RowFloor {
     const restSe = new Float64Array(m + 1);
+    const restBits = new Float64Array(m + 1);
     const restValid = new Float64Array(m + 1);
-    for (let i = m - 1; i >= 0; i--) {
+    const table = bitsTable();
+    const bounded = kind !== Predictor.Blend;
+    // The codes' intervals of the row above, replaced cell by cell with this row's (lo[j - 1] is this row's left neighbour).
+    const lo = new Float64Array(n);
+    const hi = new Float64Array(n);
+    for (let i = 0; i < m; i++) {
       let se = 0;
+      let bits = 0;
       let valid = 0;
-      for (let c = i * n; c < i * n + n; c++) {
-        if (codes[c] !== Cell.Valid) continue;
+      // Up-left's interval (row i - 1, column j - 1), kept as lo[j - 1] is replaced.
+      let ulLo = 0;
+      let ulHi = 0;
+      for (let j = 0; j < n; j++) {
+        const c = i * n + j;
+        const upLo = lo[j];
+        const upHi = hi[j];
+        let pLo = 0;
+        let pHi = 0;
+        if (bounded && kind !== Predictor.None && c !== 0) {
+          if (i === 0) [pLo, pHi] = [lo[j - 1], hi[j - 1]];
+          else if (j === 0) [pLo, pHi] = [upLo, upHi];
+          else [pLo, pHi] = [interior(kind, lo[j - 1], upLo, ulHi), interior(kind, hi[j - 1], upHi, ulLo)];
+        }
+        ulLo = upLo;
+        ulHi = upHi;
+        if (codes[c] !== Cell.Valid) {
+          lo[j] = pLo < -MAX_INT ? -MAX_INT : pLo > MAX_INT ? MAX_INT : pLo;
+          hi[j] = pHi > MAX_INT ? MAX_INT : pHi < -MAX_INT ? -MAX_INT : pHi;
+          continue;
+        }
         // The same arithmetic as settle()'s error of its nearest code.
         const x = (orig[c] - base[c]) / step;
         const v = Math.round(x);
         se += (x - v) * (x - v) * step * step;
         valid++;
+        if (!bounded || !(Math.abs(v) <= MAX_INT + 1)) {
+          // A walk through a code beyond MAX_INT + 1 returns false there: any interval will do.
+          bits += 1;
+          lo[j] = -MAX_INT;
+          hi[j] = MAX_INT;
+          continue;
+        }
+        const vLo = v - 1 < -MAX_INT ? -MAX_INT : v - 1;
+        const vHi = v + 1 > MAX_INT ? MAX_INT : v + 1;
+        const dist = vLo > pHi ? vLo - pHi : pLo > vHi ? pLo - vHi : 0;
+        bits += dist < DIFF_TABLE ? table[dist] : diffBits(dist);
+        lo[j] = vLo;
+        hi[j] = vHi;
       }
-      restSe[i] = restSe[i + 1] + se;
-      restValid[i] = restValid[i + 1] + valid;
+      restSe[i] = se;
+      restBits[i] = bits;
+      restValid[i] = valid;
     }
-    return new RowFloor(restSe, restValid);
+    for (let i = m - 1; i >= 0; i--) {
+      restSe[i] = restSe[i + 1] + restSe[i];
+      restBits[i] = restBits[i + 1] + restBits[i];
+      restValid[i] = restValid[i + 1] + restValid[i];
+    }
+    return new RowFloor(restSe, restBits, restValid);
   }
 
   /** Whether a walk with sums se and bits after its first i rows must pass seLimit or bitsLimit by its end. */
   cannotFit(i: number, se: number, bits: number, seLimit: number, bitsLimit: number): boolean {
     const keep = FLOOR_KEEP;
-    return se + keep * this.restSe[i] > seLimit || bits + keep * this.restValid[i] > bitsLimit;
+    return se + keep * this.restSe[i] > seLimit || bits + keep * this.restBits[i] > bitsLimit;
   }
 }
 
@@ -255,6 +337,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
    * rough bits; null if they miss the allotment, leave the code range or (cut short) have more rough
    * bits than `bitsLimit`.
    */
+  // RowFloor's sums by step, for the plain predictor.
   const floors = new Map<number, RowFloor>();
   // With `walks` (the tile laid out in the kernels), a walk runs there: its differences are then left there
   // (`kernel` true) for the caller to take where it keeps them.
@@ -262,9 +345,10 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
     const step = binary32Below(a * unit);
     let floor = floors.get(step);
     if (floor === undefined) {
-      const sums = walks?.floor(step);
-      floors.set(step, (floor = sums ? new RowFloor(sums.restSe, sums.restValid) : RowFloor.of(t.orig, base, t.classes.codes, m, n, step)));
+      const sums = walks?.floor(step, plainKind);
+      floors.set(step, (floor = sums ? new RowFloor(sums.restSe, sums.restBits, sums.restValid) : RowFloor.of(t.orig, base, t.classes.codes, m, n, step, plainKind)));
     }
+    if (kind !== plainKind) floor = floor.anyPredictor();
     if (walks !== null) {
       const r = walks.walk(kind, step, w, seLimit, bitsLimit, FLOOR_KEEP, floor);
       // null: a value the kernel does not take (NaN), walked below.

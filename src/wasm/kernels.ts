@@ -1,6 +1,6 @@
 /**
  * The WebAssembly kernels (kernels/*.ts, compiled into ./kernels-bytes.ts),
- * in fourteen modules: the linear-algebra module, with the range finder's
+ * in fifteen modules: the linear-algebra module, with the range finder's
  * matrix product (and the copies that lay out its operands) and the
  * low-rank product of every tile's reconstruction, with the rest of the
  * decoder's reconstruction (which readers load too);
@@ -15,9 +15,10 @@
  * check's error tally; the encoder's modules for L2 bounds, one with the
  * residual search's walks (src/wasm/rdo.ts), which imports the
  * JavaScript's Math.log2 (so that its values are the JavaScript's), one
- * with the Gram matrix of the plan's spectra (src/wasm/gram.ts); the
- * encoder's module for tiles with missing cells (the check's choice of
- * predictor, src/wasm/masked.ts, and the harmonic fill, src/wasm/fill.ts);
+ * with those walks' floor (the same import), one with the Gram matrix of
+ * the plan's spectra (src/wasm/gram.ts); the encoder's module for tiles
+ * with missing cells (the check's choice of predictor, src/wasm/masked.ts,
+ * and the harmonic fill, src/wasm/fill.ts);
  * the encoder's module with the range finder's orthonormalization
  * (src/linalg/product.ts runs it in the memory its products hold); the
  * encoder's refit of a candidate's right factor (src/wasm/refit.ts); and

@@ -1,20 +1,27 @@
 /**
  * The walks of the residual search under L2 bounds (src/codec/rdo.ts,
  * RdoWalk.run and RowFloor, every predictor) in the WebAssembly kernels
- * (kernels/rdo.ts and kernels/rdo-blend.ts, the module RDO_KERNELS): the same
+ * (kernels/rdo.ts and kernels/rdo-blend.ts, the module RDO_KERNELS, and
+ * kernels/rdo-floor.ts, the module RDO_FLOOR_KERNELS): the same
  * codes, differences and sums as the JavaScript. A {@link RdoWalks} holds
  * the kernels' memory with one tile's values laid out in it, for a run of
  * walks; it must be closed before any other kernel is used (a nested use
  * of the memory runs the JavaScript, see Kernels.lease).
  */
-import { RDO_KERNELS } from './kernels-bytes.js';
+import { RDO_FLOOR_KERNELS, RDO_KERNELS } from './kernels-bytes.js';
 import { kernels, SCRATCH_AT, WEIGHTS_BYTES, type Kernels } from './kernels.js';
 
 /** The exports of kernels/rdo.ts: addresses are byte offsets into the kernels' memory. */
 interface RdoKernels {
-  rowFloor(orig: number, f32: number, base: number, codes: number, m: number, n: number, step: number, restSe: number, restValid: number): void;
-  rdoWalk(orig: number, f32: number, base: number, codes: number, q: number, d: number, table: number, m: number, n: number, kind: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restValid: number, out: number): number;
-  rdoBlendWalk(orig: number, f32: number, base: number, codes: number, q: number, d: number, table: number, m: number, n: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restValid: number, out: number, weight: number, above: number, below: number, errs: number): number;
+  rdoWalk(grid: number, codes: number, q: number, d: number, table: number, m: number, n: number, kind: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, out: number): number;
+  rdoBlendWalk(grid: number, codes: number, q: number, d: number, table: number, m: number, n: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, out: number, weight: number, above: number, below: number, errs: number): number;
+}
+
+/** The exports of kernels/rdo-floor.ts. */
+interface RdoFloorKernels {
+  residuals(orig: number, f32: number, base: number, cells: number): void;
+  scaled(r: number, grid: number, cells: number, step: number): void;
+  rowFloor(r: number, grid: number, codes: number, table: number, m: number, n: number, step: number, kind: number, lo: number, hi: number, restSe: number, restBits: number, restValid: number): void;
 }
 
 /** The blend predictor's id (src/codec/reconstruct.ts, Predictor.Blend). */
@@ -33,11 +40,14 @@ export class RdoWalks {
   private constructor(
     private readonly k: Kernels,
     private readonly fn: RdoKernels,
+    private readonly floorFn: RdoFloorKernels,
     private readonly m: number,
     private readonly n: number,
-    private readonly f32: number,
-    private readonly at: { orig: number; base: number; codes: number; q: number; d: number; table: number; restSe: number; restValid: number; out: number; above: number; below: number; errs: number },
+    private readonly at: { r: number; grid: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; above: number; below: number; errs: number; lo: number; hi: number },
   ) {}
+
+  /** The step whose scaled values the grid holds (NaN: none yet). */
+  private gridStep = Number.NaN;
 
   /**
    * Lay out a tile (its values `orig`, the low-rank part `base` and class
@@ -52,25 +62,29 @@ export class RdoWalks {
     const k = kernels();
     if (k === null) return null;
     const f32 = orig instanceof Float32Array;
-    const width = f32 ? 4 : 8;
     if (4 * weights.length > WEIGHTS_BYTES) return null;
-    // Byte addresses from SCRATCH_AT: the sums, the table, RowFloor's two arrays, base, values, q, d, the blend's
-    // sums of the row above and this one and its errors (after 5 more), class codes.
+    // Byte addresses from SCRATCH_AT: the sums, the table, RowFloor's three arrays, the values less base (r: base is
+    // copied there), the scaled values (the grid: the values are copied there, for residuals() to read), q, d, the
+    // blend's sums of the row above and this one and its errors (after 5 more), the floor's intervals, class codes.
     const out = SCRATCH_AT;
     const tableAt = out + 16;
     const restSe = up16(tableAt + 8 * table.length);
-    const restValid = up16(restSe + 8 * (m + 1));
-    const baseAt = up16(restValid + 8 * (m + 1));
-    const origAt = up16(baseAt + 8 * cells);
-    const q = up16(origAt + width * cells);
+    const restBits = up16(restSe + 8 * (m + 1));
+    const restValid = up16(restBits + 8 * (m + 1));
+    const r = up16(restValid + 8 * (m + 1));
+    const grid = up16(r + 8 * cells);
+    const q = up16(grid + 8 * cells);
     const d = up16(q + 4 * cells);
     const above = up16(d + 4 * cells);
     const below = up16(above + 20 * n);
     const errs = up16(below + 20 * n) + 32;
-    const codesAt = up16(errs + 20 * n);
+    const lo = up16(errs + 20 * n);
+    const hi = up16(lo + 4 * n);
+    const codesAt = up16(hi + 4 * n);
     if (!k.lease(codesAt + cells - SCRATCH_AT)) return null;
     const fn = k.module<RdoKernels>(RDO_KERNELS);
-    if (fn === null) {
+    const floorFn = k.module<RdoFloorKernels>(RDO_FLOOR_KERNELS);
+    if (fn === null || floorFn === null) {
       k.release();
       return null;
     }
@@ -79,31 +93,38 @@ export class RdoWalks {
       k.weightsLoaded = true;
     }
     k.f64.set(table, tableAt / 8);
-    k.f64.set(base.subarray(0, cells), baseAt / 8);
-    if (f32) new Float32Array(k.f64.buffer).set(orig.subarray(0, cells), origAt / 4);
-    else k.f64.set(orig.subarray(0, cells), origAt / 8);
+    k.f64.set(base.subarray(0, cells), r / 8);
+    if (f32) k.f32.set(orig.subarray(0, cells), grid / 4);
+    else k.f64.set(orig.subarray(0, cells), grid / 8);
     k.u8.set(codes.subarray(0, cells), codesAt);
-    return new RdoWalks(k, fn, m, n, f32 ? 1 : 0, { orig: origAt, base: baseAt, codes: codesAt, q, d, table: tableAt, restSe, restValid, out, above, below, errs });
+    floorFn.residuals(grid, f32 ? 1 : 0, r, cells);
+    return new RdoWalks(k, fn, floorFn, m, n, { r, grid, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, above, below, errs, lo, hi });
   }
 
-  /** RowFloor's sums at `step` (from each row to the end: squared error of the nearest codes, valid cells), m + 1 each. */
-  floor(step: number): { restSe: Float64Array; restValid: Float64Array } {
+  /** RowFloor's sums at `step` for predictor `kind` (from each row to the end: the least squared error and rough bits a walk adds, the valid cells), m + 1 each; the grid then holds the scaled values at `step`. */
+  floor(step: number, kind: number): { restSe: Float64Array; restBits: Float64Array; restValid: Float64Array } {
     const { at, m } = this;
-    this.fn.rowFloor(at.orig, this.f32, at.base, at.codes, m, this.n, step, at.restSe, at.restValid);
+    this.floorFn.rowFloor(at.r, at.grid, at.codes, at.table, m, this.n, step, kind, at.lo, at.hi, at.restSe, at.restBits, at.restValid);
+    this.gridStep = step;
     const heap = this.k.f64;
-    return { restSe: heap.slice(at.restSe / 8, at.restSe / 8 + m + 1), restValid: heap.slice(at.restValid / 8, at.restValid / 8 + m + 1) };
+    const take = (a: number) => heap.slice(a / 8, a / 8 + m + 1);
+    return { restSe: take(at.restSe), restBits: take(at.restBits), restValid: take(at.restValid) };
   }
 
   /** A walk of predictor `kind` (None to the blend) with RowFloor's sums `floor` (see {@link KernelWalk}); its differences are read with {@link RdoWalks.differences}. */
-  walk(kind: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, floor: { restSe: Float64Array; restValid: Float64Array }): KernelWalk {
+  walk(kind: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, floor: { restSe: Float64Array; restBits: Float64Array }): KernelWalk {
     const { at, m } = this;
     const heap = this.k.f64;
     heap.set(floor.restSe.subarray(0, m + 1), at.restSe / 8);
-    heap.set(floor.restValid.subarray(0, m + 1), at.restValid / 8);
+    heap.set(floor.restBits.subarray(0, m + 1), at.restBits / 8);
+    if (this.gridStep !== step) {
+      this.floorFn.scaled(at.r, at.grid, m * this.n, step);
+      this.gridStep = step;
+    }
     const r =
       kind === BLEND
-        ? this.fn.rdoBlendWalk(at.orig, this.f32, at.base, at.codes, at.q, at.d, at.table, m, this.n, step, w, seLimit, bitsLimit, keep, at.restSe, at.restValid, at.out, 0, at.above, at.below, at.errs)
-        : this.fn.rdoWalk(at.orig, this.f32, at.base, at.codes, at.q, at.d, at.table, m, this.n, kind, step, w, seLimit, bitsLimit, keep, at.restSe, at.restValid, at.out);
+        ? this.fn.rdoBlendWalk(at.grid, at.codes, at.q, at.d, at.table, m, this.n, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out, 0, at.above, at.below, at.errs)
+        : this.fn.rdoWalk(at.grid, at.codes, at.q, at.d, at.table, m, this.n, kind, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out);
     if (r < 0) return null;
     if (r === 0) return false;
     return { se: heap[at.out / 8], bits: heap[at.out / 8 + 1] };

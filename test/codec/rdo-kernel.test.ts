@@ -7,7 +7,10 @@
  * (or the same null) on both paths, on two open datasets and on tiles of
  * every shape class (1 x n, m x 1, 1 x 1), with missing cells, binary64
  * values, a field layer's term, differences past the rough-bits table
- * (the JavaScript's Math.log2, imported) and codes past the limit.
+ * (the JavaScript's Math.log2, imported) and codes past the limit. And
+ * the walks' floor (RowFloor, kernels/rdo-floor.ts) against what a walk
+ * adds, by its definition: never more, for every predictor, so the walks it
+ * cuts short end as they would have.
  */
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
@@ -16,7 +19,7 @@ import { describe, expect, it } from 'vitest';
 import { fillWords } from '../../src/codec/mask.js';
 import { prepareTile, type PreparedTile } from '../../src/codec/prepare.js';
 import { bitsTable, FLOOR_KEEP, RdoWalk, RowFloor, rankZeroForMse, residualForMse } from '../../src/codec/rdo.js';
-import { blendWeights, Predictor } from '../../src/codec/reconstruct.js';
+import { blendWeights, Predictor, walkPredictor } from '../../src/codec/reconstruct.js';
 import { pointwiseFactors } from '../../src/codec/tile-encode.js';
 import { RDO_KERNELS } from '../../src/wasm/kernels-bytes.js';
 import { kernels } from '../../src/wasm/kernels.js';
@@ -86,7 +89,7 @@ describe('the rate-distortion kernels module', () => {
  */
 function walkBoth(t: PreparedTile, kind: number, step: number, w: number, seLimit: number, bitsLimit: number, base = new Float64Array(t.m * t.n).fill(t.center)) {
   const cells = t.m * t.n;
-  const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step);
+  const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step, kind);
   const dJs = new Int32Array(cells);
   const run = new RdoWalk(t.orig, base, t.classes.codes, dJs, step, w);
   const ok = run.run(new Int32Array(cells), t.m, t.n, kind, seLimit, bitsLimit, floor);
@@ -94,8 +97,9 @@ function walkBoth(t: PreparedTile, kind: number, step: number, w: number, seLimi
   const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights());
   expect(walks).not.toBeNull();
   try {
-    const sums = walks!.floor(step);
+    const sums = walks!.floor(step, kind);
     expect(Array.from(sums.restSe)).toEqual(Array.from(floor.restSe));
+    expect(Array.from(sums.restBits)).toEqual(Array.from(floor.restBits));
     expect(Array.from(sums.restValid)).toEqual(Array.from(floor.restValid));
     const r = walks!.walk(kind, step, w, seLimit, bitsLimit, FLOOR_KEEP, sums);
     const dK = new Int32Array(cells);
@@ -171,6 +175,35 @@ describe('a walk in the kernels', () => {
     }
   });
 
+  it('gives the JavaScript\'s walk whichever step the kernels\' grid of scaled values was last made at (by a floor, or by the walk itself)', () => {
+    const values = block('annual-precip.json', 40, 100, 24, 40);
+    const holed = values.map((v, c) => (c % 7 === 3 ? -999 : v));
+    for (const t of [prepareTile(holed, 24, 40, 'f32', fillWords(-999, 'f32'), 5), prepareTile(Float64Array.from(values), 24, 40, 'f64', null, 5)]) {
+      const base = new Float64Array(t.m * t.n).fill(t.center);
+      const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights());
+      expect(walks).not.toBeNull();
+      try {
+        for (const kind of KINDS) {
+          const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, 2.5, kind);
+          const dJs = new Int32Array(t.m * t.n);
+          const run = new RdoWalk(t.orig, base, t.classes.codes, dJs, 2.5, 0.3);
+          expect(run.run(new Int32Array(t.m * t.n), t.m, t.n, kind, Infinity, Infinity, floor)).toBe(true);
+          // The grid made by a floor at another step, then by the walk at 2.5 (no floor), then kept for a second walk.
+          walks!.floor(0.7, kind);
+          for (let again = 0; again < 2; again++) {
+            const r = walks!.walk(kind, 2.5, 0.3, Infinity, Infinity, FLOOR_KEEP, floor);
+            const dK = new Int32Array(t.m * t.n);
+            if (r) walks!.differences(dK);
+            expect(r, `kind ${kind} ${t.dtype}`).toEqual({ se: run.se, bits: run.bits });
+            expect(Array.from(dK)).toEqual(Array.from(dJs));
+          }
+        }
+      } finally {
+        walks!.close();
+      }
+    }
+  });
+
   it('gives the JavaScript\'s rough bits for differences past the table (Math.log2, imported)', () => {
     // Rows rising by 5 x 10^5 plus noise of up to 10^6, at steps of about 1: differences of about 10^5.
     const m = 12;
@@ -198,6 +231,122 @@ describe('a walk in the kernels', () => {
         const { js, wasm } = walkBoth(t, kind, 2.5, 0.3, Infinity, Infinity);
         expect(wasm, `${t.m} x ${t.n} kind ${kind}`).toEqual(js);
       }
+    }
+  });
+});
+
+/**
+ * The squared error and rough bits a walk of predictor `kind` adds from each
+ * row to its end (entry m 0), by RdoWalk.settle (the JavaScript's choice of
+ * each code) over walkPredictor, with no limits; null where the walk leaves
+ * the code range.
+ */
+function walkedRows(t: PreparedTile, kind: number, step: number, w: number, base: Float64Array) {
+  const { m, n } = t;
+  const run = new RdoWalk(t.orig, base, t.classes.codes, new Int32Array(m * n), step, w);
+  const se = new Float64Array(m + 1);
+  const bits = new Float64Array(m + 1);
+  const ok = walkPredictor(new Int32Array(m * n), m, n, kind, (c, p) => {
+    const v = run.settle(c, p);
+    if (c % n === n - 1) [se[(c + 1) / n], bits[(c + 1) / n]] = [run.se, run.bits];
+    return v;
+  });
+  if (!ok) return null;
+  // After row i - 1, then from row i to the end.
+  return { se: Array.from(se, (v) => run.se - v), bits: Array.from(bits, (v) => run.bits - v) };
+}
+
+describe('the walks\' floor (RowFloor)', () => {
+  /** Blocks of vega-datasets volcano.json and annual-precip.json: whole, with missing cells, binary64, one row, one column. */
+  function tiles(): PreparedTile[] {
+    const g = vega('volcano.json');
+    const values = block('annual-precip.json', 40, 100, 24, 40);
+    const holed = values.map((v, c) => (c % 5 === 2 || (c >= 200 && c < 260) ? -999 : v));
+    return [
+      prepareTile(Float32Array.from(g.values as number[]), g.m, g.n, 'f32', null, 1),
+      prepareTile(holed, 24, 40, 'f32', fillWords(-999, 'f32'), 5),
+      prepareTile(Float64Array.from(values), 24, 40, 'f64', null, 5),
+      prepareTile(values.subarray(0, 40), 1, 40, 'f32', null, 5),
+      prepareTile(Float32Array.from({ length: 24 }, (_v, i) => values[i * 40 + 7]), 24, 1, 'f32', null, 5),
+    ];
+  }
+
+  it('is at most what a walk adds from each row to its end, for every predictor and weight (the search\'s cuts are then the same)', () => {
+    for (const t of tiles()) {
+      const base = new Float64Array(t.m * t.n).fill(t.center);
+      for (const step of [0.3, 2.5]) {
+        for (const kind of KINDS) {
+          const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step, kind);
+          for (const w of [0.15, 0.6]) {
+            const rows = walkedRows(t, kind, step, w, base);
+            expect(rows).not.toBeNull();
+            for (let i = 0; i <= t.m; i++) {
+              const at = `${t.m} x ${t.n} kind ${kind} step ${step} w ${w} row ${i}`;
+              // Within rounding of the sums (about 2^-53 of them a term; FLOOR_KEEP takes 10^-6 off).
+              expect(floor.restSe[i], at).toBeLessThanOrEqual(rows!.se[i] * (1 + 1e-12) + 1e-300);
+              expect(floor.restBits[i], at).toBeLessThanOrEqual(rows!.bits[i] * (1 + 1e-12));
+              expect(floor.restBits[i], at).toBeGreaterThanOrEqual(floor.restValid[i]);
+            }
+          }
+        }
+      }
+    }
+  });
+
+  it('is at most what a walk adds on small random tiles, cell by cell in effect (a property: a few cells leave a wrong interval no slack to hide in)', () => {
+    fc.assert(
+      fc.property(fc.integer({ min: 1, max: 4 }), fc.integer({ min: 1, max: 4 }), fc.integer({ min: 1, max: 2 ** 31 }), fc.constantFrom(0.15, 0.3, 0.45, 0.6), (m, n, seed, w) => {
+        const rand = mulberry32(seed);
+        // Codes of up to 1, 4 or 40 either way at step 1 (the nearest code is left most often where differences are
+        // small), a third of the cells missing in some tiles.
+        const holes = rand() < 0.5;
+        const span = [2, 8, 80][Math.floor(rand() * 3)];
+        const values = Float64Array.from({ length: m * n }, () => (holes && rand() < 0.3 ? -999 : Math.round((rand() - 0.5) * span) + (rand() - 0.5)));
+        const t = prepareTile(values, m, n, 'f64', fillWords(-999, 'f64'), 1);
+        const base = new Float64Array(m * n);
+        for (const kind of KINDS) {
+          const floor = RowFloor.of(t.orig, base, t.classes.codes, m, n, 1, kind);
+          const rows = walkedRows(t, kind, 1, w, base);
+          for (let i = 0; i <= m; i++) expect(floor.restBits[i]).toBeLessThanOrEqual(rows!.bits[i] * (1 + 1e-12));
+          // The kernel's floor is the JavaScript's.
+          const walks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
+          try {
+            const sums = walks!.floor(1, kind);
+            expect([sums.restSe, sums.restBits, sums.restValid].map((a) => Array.from(a))).toEqual([floor.restSe, floor.restBits, floor.restValid].map((a) => Array.from(a)));
+          } finally {
+            walks!.close();
+          }
+        }
+      }),
+      { numRuns: 400, seed: 10 },
+    );
+  });
+
+  it('cuts a walk of a plain predictor short at its first row where the bits cannot fit, and lets a walk end that meets its limit exactly, on both paths', () => {
+    const g = vega('volcano.json');
+    const t = prepareTile(Float32Array.from(g.values as number[]), g.m, g.n, 'f32', null, 1);
+    const base = new Float64Array(t.m * t.n).fill(t.center);
+    for (const kind of KINDS.filter((k) => k !== Predictor.Blend && k !== Predictor.None)) {
+      const whole = walkBoth(t, kind, 0.2, 0.3, Infinity, Infinity);
+      const { bits } = whole.js as { bits: number };
+      const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, 0.2, kind);
+      // At a fine step (differences of tens of codes) the floor is well above 1 bit a cell.
+      expect(floor.restBits[0]).toBeGreaterThan(2 * floor.restValid[0]);
+      // A limit between 1 bit a valid cell and the floor: the walk stops before its first row; one between the floor
+      // and the bits: it stops later; both false on both paths.
+      const below = 0.5 * (floor.restValid[0] + floor.restBits[0]);
+      expect(floor.cannotFit(0, 0, 0, Infinity, below)).toBe(true);
+      expect(floor.anyPredictor().cannotFit(0, 0, 0, Infinity, below)).toBe(false);
+      const above = 0.5 * (floor.restBits[0] + bits);
+      expect(floor.cannotFit(0, 0, 0, Infinity, above)).toBe(false);
+      for (const limit of [below, above]) {
+        const cut = walkBoth(t, kind, 0.2, 0.3, Infinity, limit);
+        expect(cut.js).toBe(false);
+        expect(cut.wasm).toBe(false);
+      }
+      const exact = walkBoth(t, kind, 0.2, 0.3, Infinity, bits);
+      expect(exact.js).toEqual(whole.js);
+      expect(exact.wasm).toEqual(whole.js);
     }
   });
 });
