@@ -21,7 +21,6 @@ import { fileURLToPath } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { deflateSync, inflateSync } from 'fflate';
 import { open, pack, packAsync, readBands, WorkerPool } from '../src/index.js';
-import { timeTask } from './timing.js';
 
 /** The repository's root (this file runs from bench/dist/bench/). */
 const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '..', '..', '..');
@@ -32,22 +31,7 @@ const L2_BOUND = 'psnr:60';
 const mbps = (bytes: number, ms: number) => bytes / 1e6 / (ms / 1000);
 const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
 
-/**
- * Median wall ms of `runs` runs of fn, after untimed runs for `warmMs`
- * milliseconds (at least one when warmMs > 0). The section runs in a
- * process of its own (see run.ts), where every codec, fflate's included,
- * starts with cold code: in one run the small grids' fflate inflate, timed
- * cold, measured 9.7 MB/s against 98-115 in the long bench process, and
- * inflating volcano's 3920 bytes took about 2 ms a call for its first 14
- * calls, 0.55 ms until about the 35th, then 0.3-0.5 ms (scratch probe).
- */
-async function timed(fn: () => unknown, runs: number, warmMs: number): Promise<number> {
-  const t0 = performance.now();
-  if (warmMs > 0) do await fn(); while (performance.now() - t0 < warmMs);
-  return (await timeTask(fn, { iterations: runs, timeMs: 0, slowMs: 0, minRuns: runs })).medianMs;
-}
-
-/** The untimed warm-up of each codec on the small grids (see {@link timed}); none on the large field, whose median of 3 leaves out its cold first run. */
+/** The untimed warm-up of each codec on the small grids (see {@link timedRounds}); none on the large field, whose median of 3 leaves out its cold first run. */
 const SMALL_WARM_MS = 1000;
 
 /** One field's speeds, MB/s of raw float32 bytes. */
@@ -67,34 +51,71 @@ export interface ThreadRow {
   same: boolean;
 }
 
+/**
+ * Median wall ms of each of `fns` over `runs` rounds, each round running
+ * every fn once in turn, after untimed runs of each for `warmMs`
+ * milliseconds (at least one when warmMs > 0). The section runs in a
+ * process of its own (see run.ts), where every codec, fflate's included,
+ * starts with cold code: in one run the small grids' fflate inflate, timed
+ * cold, measured 9.7 MB/s against 98-115 in the long bench process, and
+ * inflating volcano's 3920 bytes took about 2 ms a call for its first 14
+ * calls, 0.55 ms until about the 35th, then 0.3-0.5 ms (scratch probe). Ratios between them (rankfield against
+ * fflate) are then measured over the same minutes: this host's speed
+ * drifts from minute to minute (the same pack of the large field took 2.5 s
+ * and 1.7 s four minutes apart, scratch/ab-pack.mjs), and timing each
+ * codec's runs one after the other put that drift into the ratios.
+ */
+async function timedRounds(fns: (() => unknown)[], runs: number, warmMs: number): Promise<number[]> {
+  for (const fn of fns) {
+    const t0 = performance.now();
+    if (warmMs > 0) do await fn(); while (performance.now() - t0 < warmMs);
+  }
+  const times = fns.map((): number[] => []);
+  for (let r = 0; r < runs; r++) {
+    for (let k = 0; k < fns.length; k++) {
+      const t0 = performance.now();
+      await fns[k]();
+      times[k].push(performance.now() - t0);
+    }
+  }
+  return times.map(median);
+}
+
 /** Encode and decode speeds of one field at `bound` with 1 and 2 threads, and its 1-thread archive. */
 export async function measureThreads(id: string, values: Float32Array, rows: number, cols: number, bound: string, runs: number, warmMs = 0): Promise<{ row: ThreadRow; archive: Uint8Array }> {
   const raw = new Uint8Array(values.buffer, values.byteOffset, values.byteLength);
   const deflated = deflateSync(raw, { level: 6 });
-  const deflate = await timed(() => deflateSync(raw, { level: 6 }), runs, warmMs);
-  const inflate = await timed(() => inflateSync(deflated), runs, warmMs);
-  let one: Uint8Array = new Uint8Array(0);
+  // The archive the reads decode, made first (untimed); every timed pack below must give the same bytes.
+  let one = pack(values, [rows, cols], { bound });
   let two: Uint8Array = new Uint8Array(0);
-  const enc1 = await timed(() => (one = pack(values, [rows, cols], { bound })), runs, warmMs);
-  const enc2 = await timed(async () => (two = await packAsync(values, [rows, cols], { bound, threads: 2 })), runs, warmMs);
+  let kept: Uint8Array = new Uint8Array(0);
   const archive = await open(one);
   let cells = 0;
   const count = (v: ArrayLike<number>) => void (cells += v.length);
-  const dec1 = await timed(() => readBands(archive, undefined, { threads: 1 }, count), runs, warmMs);
-  const dec2 = await timed(() => readBands(archive, undefined, { threads: 2, location: one }, count), runs, warmMs);
   // With a pool kept across calls: its workers are started and their code warm, as in a long-running process.
   const pool = new WorkerPool(2);
-  let kept: Uint8Array = new Uint8Array(0);
-  let enc2w: number;
-  let dec2w: number;
+  let times: number[];
   try {
     await packAsync(values, [rows, cols], { bound, pool });
-    enc2w = await timed(async () => (kept = await packAsync(values, [rows, cols], { bound, pool })), runs, 0);
     await readBands(archive, undefined, { location: one, pool }, () => undefined);
-    dec2w = await timed(() => readBands(archive, undefined, { location: one, pool }, count), runs, 0);
+    times = await timedRounds(
+      [
+        () => deflateSync(raw, { level: 6 }),
+        () => inflateSync(deflated),
+        () => (one = pack(values, [rows, cols], { bound })),
+        async () => (two = await packAsync(values, [rows, cols], { bound, threads: 2 })),
+        async () => (kept = await packAsync(values, [rows, cols], { bound, pool })),
+        () => readBands(archive, undefined, { threads: 1 }, count),
+        () => readBands(archive, undefined, { threads: 2, location: one }, count),
+        () => readBands(archive, undefined, { location: one, pool }, count),
+      ],
+      runs,
+      warmMs,
+    );
   } finally {
     await pool.close();
   }
+  const [deflate, inflate, enc1, enc2, enc2w, dec1, dec2, dec2w] = times;
   if (cells % (rows * cols) !== 0 || cells < 3 * runs * rows * cols) throw new Error(`${id}: the reads handed over ${cells} values`);
   const same = Buffer.from(one).equals(Buffer.from(two)) && Buffer.from(one).equals(Buffer.from(kept));
   const r = (ms: number) => mbps(raw.length, ms);
@@ -178,7 +199,7 @@ const x = (a: number, b: number) => `${(a / b).toFixed(2)}x`;
 /** The table of {@link SpeedRun.rows} and the whole-process lines, as Markdown lines. */
 export function speedTable(s: SpeedRun): string[] {
   const out = [
-    `Bound ${s.bound}. Measured by bench/threads.ts in a process of its own (\`npm run bench\` starts it after the compression tables), as one \`rankfield\` command runs; on the small grids every codec (fflate's too) runs untimed for a second first, so that none is timed with cold code. Ceiling: two threads running the same CPU-bound loop got ${s.ceiling.toFixed(2)}x the throughput of one in this run (the most any 2-thread ratio below can show on a shared machine). "2t": this thread and one worker started per call (start-up and cold code included, as in one command); "2t warm": a pool of two workers kept across calls. MB/s of raw float32 bytes; medians.`,
+    `Bound ${s.bound}. Measured by bench/threads.ts in a process of its own (\`npm run bench\` starts it after the compression tables), as one \`rankfield\` command runs; on the small grids every codec (fflate's too) runs untimed for a second first, so that none is timed with cold code. Ceiling: two threads running the same CPU-bound loop got ${s.ceiling.toFixed(2)}x the throughput of one in this run (the most any 2-thread ratio below can show on a shared machine). "2t": this thread and one worker started per call (start-up and cold code included, as in one command); "2t warm": a pool of two workers kept across calls. MB/s of raw float32 bytes; medians over rounds that time every codec of a row once in turn (fflate's too), so that the host's drift from minute to minute moves all of them alike.`,
     '',
     '| field | shape | runs | deflate-6 MB/s | inflate MB/s | encode 1t | encode 2t | encode 2t warm | 1t/deflate | 2t/1t | 2t warm/1t | decode 1t | decode 2t | decode 2t warm | 1t/inflate | 2t/1t | 2t warm/1t | same bytes |',
     '|---|---|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|---|',
