@@ -12,7 +12,7 @@
  * below (5 n i32 each), errs (5 n i32, after 5 more cleared here).
  */
 import { cap, ld, st } from './blend-parts';
-import { bitsOf, LIMIT, LIMIT_I, roundJs } from './rdo-cell';
+import { LIMIT, LIMIT_I, roundJs, settleCode, settledBits } from './rdo-cell';
 
 /** The walk's sums and the last code settled (a settle gives a status). */
 let se: f64 = 0;
@@ -38,22 +38,11 @@ function settle(grid: usize, codes: usize, q: usize, d: usize, table: usize, c: 
   if (x !== x) return -1;
   const nearF = roundJs(x);
   if (!(Math.abs(nearF) <= LIMIT + 1)) return 0;
-  let v: i64 = <i64>nearF;
-  let dv: i64 = v - p;
-  let vF = nearF;
-  let cellBits = bitsOf(table, dv);
-  if (dv !== 0) {
-    const altF = nearF + (<f64>p > nearF ? 1 : -1);
-    const alt: i64 = v + (p > v ? 1 : -1);
-    const da = alt - p;
-    const bitsAlt = bitsOf(table, da);
-    if ((x - altF) * (x - altF) + w * bitsAlt < (x - nearF) * (x - nearF) + w * cellBits) {
-      v = alt;
-      dv = da;
-      vF = altF;
-      cellBits = bitsAlt;
-    }
-  }
+  const v = settleCode(table, x, nearF, p, w);
+  const dv = v - p;
+  // The code is an integer within LIMIT + 2: exact in binary64.
+  const vF = <f64>v;
+  const cellBits = settledBits;
   if (v > LIMIT_I || v < -LIMIT_I || dv > LIMIT_I || dv < -LIMIT_I) return 0;
   st(d, c, <i32>dv);
   bits += cellBits;

@@ -1,7 +1,8 @@
 /**
  * What the residual search's walks in kernels/rdo.ts and kernels/rdo-blend.ts
- * share: a cell's value, Math.round of the JavaScript, and the rough bits
- * of a difference (src/codec/rdo.ts, diffBits).
+ * share: a cell's value, Math.round of the JavaScript, the rough bits
+ * of a difference (src/codec/rdo.ts, diffBits), and the choice of a valid
+ * cell's code.
  */
 
 /** Math.log2 of the JavaScript that loads the module (the rough bits of a difference of TABLE or more: the same function, so the same value). */
@@ -35,3 +36,30 @@ export function value(orig: usize, f32: i32, c: i32): f64 {
   return f32 !== 0 ? <f64>load<f32>(orig + (<usize>c << 2)) : load<f64>(orig + (<usize>c << 3));
 }
 
+
+/** The rough bits of the code {@link settleCode} chose last (a second result, so that the walks need not look them up again). */
+export let settledBits: f64 = 0;
+
+/**
+ * The code a walk settles at a valid cell (RdoWalk.run in src/codec/rdo.ts):
+ * the nearest code `nearF` (Math.round of the scaled value x, within LIMIT
+ * + 1), or the next one towards the prediction p when its squared error
+ * plus w times its rough bits is smaller; its rough bits in
+ * {@link settledBits}. The code and p are integers held in i64 (exactly
+ * the JavaScript's binary64 values).
+ */
+@inline
+export function settleCode(table: usize, x: f64, nearF: f64, p: i64, w: f64): i64 {
+  const v: i64 = <i64>nearF;
+  const dv: i64 = v - p;
+  const bitsNear = bitsOf(table, dv);
+  settledBits = bitsNear;
+  if (dv === 0) return v;
+  const altF = nearF + (<f64>p > nearF ? 1 : -1);
+  const bitsAlt = bitsOf(table, v + (p > v ? 1 : -1) - p);
+  if ((x - altF) * (x - altF) + w * bitsAlt < (x - nearF) * (x - nearF) + w * bitsNear) {
+    settledBits = bitsAlt;
+    return v + (p > v ? 1 : -1);
+  }
+  return v;
+}

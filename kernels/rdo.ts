@@ -24,7 +24,7 @@
 
 export { rdoBlendWalk } from './rdo-blend';
 
-import { bitsOf, LIMIT, LIMIT_I, roundJs } from './rdo-cell';
+import { LIMIT, LIMIT_I, roundJs, settleCode, settledBits } from './rdo-cell';
 
 /**
  * One walk (RdoWalk.run with its sums starting at 0, predictor `kind`
@@ -78,22 +78,11 @@ export function rdoWalk(grid: usize, codes: usize, q: usize, d: usize, table: us
       const nearF = roundJs(x);
       // Beyond LIMIT + 1 both the nearest code and the next one towards p are beyond LIMIT: the JavaScript returns false.
       if (!(Math.abs(nearF) <= LIMIT + 1)) return 0;
-      let v: i64 = <i64>nearF;
-      let dv: i64 = v - p;
-      let vF = nearF;
-      let cellBits = bitsOf(table, dv);
-      if (dv !== 0) {
-        const altF = nearF + (<f64>p > nearF ? 1 : -1);
-        const alt: i64 = v + (p > v ? 1 : -1);
-        const da = alt - p;
-        const bitsAlt = bitsOf(table, da);
-        if ((x - altF) * (x - altF) + w * bitsAlt < (x - nearF) * (x - nearF) + w * cellBits) {
-          v = alt;
-          dv = da;
-          vF = altF;
-          cellBits = bitsAlt;
-        }
-      }
+      const v = settleCode(table, x, nearF, p, w);
+      const dv = v - p;
+      // The code is an integer within LIMIT + 2: exact in binary64.
+      const vF = <f64>v;
+      const cellBits = settledBits;
       if (v > LIMIT_I || v < -LIMIT_I || dv > LIMIT_I || dv < -LIMIT_I) return 0;
       store<i32>(d + (<usize>c << 2), <i32>dv);
       bits += cellBits;
