@@ -52,8 +52,14 @@ export interface ThreadRow {
 }
 
 /**
- * Median wall ms of each of `fns` over `runs` rounds, each round running
- * every fn once in turn, after untimed runs of each for `warmMs`
+ * On the small grids, each codec runs this long in a row within a round (as
+ * many calls as its warm-up says fit), timed together: see {@link timedRounds}.
+ */
+const BATCH_MS = 25;
+
+/**
+ * Median wall ms of one call of each of `fns` over `runs` rounds, each
+ * round running every fn in turn, after untimed runs of each for `warmMs`
  * milliseconds (at least one when warmMs > 0). The section runs in a
  * process of its own (see run.ts), where every codec, fflate's included,
  * starts with cold code: in one run the small grids' fflate inflate, timed
@@ -64,18 +70,37 @@ export interface ThreadRow {
  * drifts from minute to minute (the same pack of the large field took 2.5 s
  * and 1.7 s four minutes apart, scratch/ab-pack.mjs), and timing each
  * codec's runs one after the other put that drift into the ratios.
+ *
+ * With a warm-up, a round runs each fn as many times in a row as fit in
+ * about {@link BATCH_MS} (from its warm-up's time a call) untimed, then as
+ * many again timed, and takes the mean of the timed batch: each codec is
+ * timed in its own steady state and pays for collecting its own garbage,
+ * not the codec's before it. Timed one call a turn, or in batches without
+ * the untimed one, fflate's inflate of volcano took 0.25-0.8 ms a call
+ * after fflate's deflate and rankfield's pack and read left their garbage,
+ * against 0.09-0.14 ms with the untimed batch and 0.1 ms in a loop of its
+ * own (scratch probe, issue 10).
  */
 async function timedRounds(fns: (() => unknown)[], runs: number, warmMs: number): Promise<number[]> {
-  for (const fn of fns) {
+  const batch = fns.map(() => 1);
+  for (let k = 0; k < fns.length; k++) {
+    if (warmMs <= 0) continue;
     const t0 = performance.now();
-    if (warmMs > 0) do await fn(); while (performance.now() - t0 < warmMs);
+    let calls = 0;
+    do {
+      await fns[k]();
+      calls++;
+    } while (performance.now() - t0 < warmMs);
+    batch[k] = Math.max(1, Math.round((BATCH_MS * calls) / (performance.now() - t0)));
   }
   const times = fns.map((): number[] => []);
   for (let r = 0; r < runs; r++) {
     for (let k = 0; k < fns.length; k++) {
+      // Untimed first, with a warm-up: these calls pay for collecting the garbage the fn before left.
+      if (warmMs > 0) for (let b = 0; b < batch[k]; b++) await fns[k]();
       const t0 = performance.now();
-      await fns[k]();
-      times[k].push(performance.now() - t0);
+      for (let b = 0; b < batch[k]; b++) await fns[k]();
+      times[k].push((performance.now() - t0) / batch[k]);
     }
   }
   return times.map(median);
@@ -199,7 +224,7 @@ const x = (a: number, b: number) => `${(a / b).toFixed(2)}x`;
 /** The table of {@link SpeedRun.rows} and the whole-process lines, as Markdown lines. */
 export function speedTable(s: SpeedRun): string[] {
   const out = [
-    `Bound ${s.bound}. Measured by bench/threads.ts in a process of its own (\`npm run bench\` starts it after the compression tables), as one \`rankfield\` command runs; on the small grids every codec (fflate's too) runs untimed for a second first, so that none is timed with cold code. Ceiling: two threads running the same CPU-bound loop got ${s.ceiling.toFixed(2)}x the throughput of one in this run (the most any 2-thread ratio below can show on a shared machine). "2t": this thread and one worker started per call (start-up and cold code included, as in one command); "2t warm": a pool of two workers kept across calls. MB/s of raw float32 bytes; medians over rounds that time every codec of a row once in turn (fflate's too), so that the host's drift from minute to minute moves all of them alike.`,
+    `Bound ${s.bound}. Measured by bench/threads.ts in a process of its own (\`npm run bench\` starts it after the compression tables), as one \`rankfield\` command runs; on the small grids every codec (fflate's too) runs untimed for a second first, so that none is timed with cold code. Ceiling: two threads running the same CPU-bound loop got ${s.ceiling.toFixed(2)}x the throughput of one in this run (the most any 2-thread ratio below can show on a shared machine). "2t": this thread and one worker started per call (start-up and cold code included, as in one command); "2t warm": a pool of two workers kept across calls. MB/s of raw float32 bytes; medians over rounds that time every codec of a row in turn (fflate's too), so that the host's drift from minute to minute moves all of them alike; on the small grids a codec runs about 25 ms of calls in a row untimed within a round, then as many timed (their mean is its time for the round), so that each is timed in its own steady state and pays for its own garbage collections, not the codec's before it.`,
     '',
     '| field | shape | runs | deflate-6 MB/s | inflate MB/s | encode 1t | encode 2t | encode 2t warm | 1t/deflate | 2t/1t | 2t warm/1t | decode 1t | decode 2t | decode 2t warm | 1t/inflate | 2t/1t | 2t warm/1t | same bytes |',
     '|---|---|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|---|',
