@@ -1,6 +1,7 @@
 /** RESULTS.md: tables per field, summary lines, targets, and how the run was made. */
 import type { Errors } from './metrics.js';
 import { type SpeedRun, speedTable } from './speed.js';
+import { L2_BOUNDS, POINTWISE_BOUND } from './bound-speed.js';
 import type { Breakdown, Tiling } from './rankfield.js';
 
 export type Status = 'ok' | 'failed' | 'skipped' | 'floor';
@@ -222,6 +223,15 @@ function speedTargets(info: RunInfo): string[] {
       out.push(`- decode >= 1.0x inflate as a whole \`unpack\` process writing .npy (${s.unpack.field}, start-up included): ${mark(Math.max(w.mbs1, w.mbs2) >= s.unpack.inflate)} (--threads 1 ${x(w.mbs1 / s.unpack.inflate)}, --threads 2 ${x(w.mbs2 / s.unpack.inflate)})`);
     }
   } else out.push('- thread and whole-process speeds: not measured in this run (the quick run and runs of chosen fields skip them; `node bench/dist/bench/threads.js` measures them alone)');
+  if (s?.bounds?.length) {
+    // psnr bounds against rel:1e-3 on each field, packs alternated in rounds (bench/bound-speed.ts).
+    const cells = s.bounds.map((r) => {
+      const worst = r.l2.reduce((k, t, j) => (t > r.l2[k] ? j : k), 0);
+      return { text: `${r.id} ${x(r.pointwise / r.l2[worst])} (${L2_BOUNDS[worst]})`, ok: r.pointwise >= r.l2[worst] };
+    });
+    out.push(`- psnr bounds no slower than pointwise ones (${POINTWISE_BOUND} pack time / slowest psnr pack time, per field, alternated in one process: see the Speed section): ${mark(cells.every((c) => c.ok))} (${cells.map((c) => c.text).join(', ')})`);
+    return out;
+  }
   // psnr bounds against rel:1e-3 on each field, from the main table's encode MB/s.
   const cells: string[] = [];
   let ok = true;

@@ -21,6 +21,9 @@ import { fileURLToPath } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { deflateSync, inflateSync } from 'fflate';
 import { open, pack, packAsync, readBands, WorkerPool } from '../src/index.js';
+import { median, timedRounds } from './timing.js';
+import { boundSpeeds, boundSpeedTable, type BoundSpeedRow } from './bound-speed.js';
+import type { BenchField } from './fields.js';
 
 /** The repository's root (this file runs from bench/dist/bench/). */
 const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '..', '..', '..');
@@ -29,7 +32,6 @@ const ROOT = resolve(dirname(fileURLToPath(import.meta.url)), '..', '..', '..');
 const L2_BOUND = 'psnr:60';
 
 const mbps = (bytes: number, ms: number) => bytes / 1e6 / (ms / 1000);
-const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
 
 /** The untimed warm-up of each codec on the small grids (see {@link timedRounds}); none on the large field, whose median of 3 leaves out its cold first run. */
 const SMALL_WARM_MS = 1000;
@@ -51,60 +53,6 @@ export interface ThreadRow {
   same: boolean;
 }
 
-/**
- * On the small grids, each codec runs this long in a row within a round (as
- * many calls as its warm-up says fit), timed together: see {@link timedRounds}.
- */
-const BATCH_MS = 25;
-
-/**
- * Median wall ms of one call of each of `fns` over `runs` rounds, each
- * round running every fn in turn, after untimed runs of each for `warmMs`
- * milliseconds (at least one when warmMs > 0). The section runs in a
- * process of its own (see run.ts), where every codec, fflate's included,
- * starts with cold code: in one run the small grids' fflate inflate, timed
- * cold, measured 9.7 MB/s against 98-115 in the long bench process, and
- * inflating volcano's 3920 bytes took about 2 ms a call for its first 14
- * calls, 0.55 ms until about the 35th, then 0.3-0.5 ms (scratch probe). Ratios between them (rankfield against
- * fflate) are then measured over the same minutes: this host's speed
- * drifts from minute to minute (the same pack of the large field took 2.5 s
- * and 1.7 s four minutes apart, scratch/ab-pack.mjs), and timing each
- * codec's runs one after the other put that drift into the ratios.
- *
- * With a warm-up, a round runs each fn as many times in a row as fit in
- * about {@link BATCH_MS} (from its warm-up's time a call) untimed, then as
- * many again timed, and takes the mean of the timed batch: each codec is
- * timed in its own steady state and pays for collecting its own garbage,
- * not the codec's before it. Timed one call a turn, or in batches without
- * the untimed one, fflate's inflate of volcano took 0.25-0.8 ms a call
- * after fflate's deflate and rankfield's pack and read left their garbage,
- * against 0.09-0.14 ms with the untimed batch and 0.1 ms in a loop of its
- * own (scratch probe, issue 10).
- */
-async function timedRounds(fns: (() => unknown)[], runs: number, warmMs: number): Promise<number[]> {
-  const batch = fns.map(() => 1);
-  for (let k = 0; k < fns.length; k++) {
-    if (warmMs <= 0) continue;
-    const t0 = performance.now();
-    let calls = 0;
-    do {
-      await fns[k]();
-      calls++;
-    } while (performance.now() - t0 < warmMs);
-    batch[k] = Math.max(1, Math.round((BATCH_MS * calls) / (performance.now() - t0)));
-  }
-  const times = fns.map((): number[] => []);
-  for (let r = 0; r < runs; r++) {
-    for (let k = 0; k < fns.length; k++) {
-      // Untimed first, with a warm-up: these calls pay for collecting the garbage the fn before left.
-      if (warmMs > 0) for (let b = 0; b < batch[k]; b++) await fns[k]();
-      const t0 = performance.now();
-      for (let b = 0; b < batch[k]; b++) await fns[k]();
-      times[k].push((performance.now() - t0) / batch[k]);
-    }
-  }
-  return times.map(median);
-}
 
 /** Encode and decode speeds of one field at `bound` with 1 and 2 threads, and its 1-thread archive. */
 export async function measureThreads(id: string, values: Float32Array, rows: number, cols: number, bound: string, runs: number, warmMs = 0): Promise<{ row: ThreadRow; archive: Uint8Array }> {
@@ -216,6 +164,8 @@ export interface SpeedRun {
   l2?: ThreadRow[];
   /** On the large field; null when the run has none. */
   unpack: { field: string; whole: WholeUnpack; inflate: number } | null;
+  /** Every field's one-thread packs at the pointwise and the L2 bounds (bench/bound-speed.ts); absent in runs made before it. */
+  bounds?: BoundSpeedRow[];
 }
 
 const fmt = (x: number) => (x >= 100 ? x.toFixed(0) : x >= 10 ? x.toFixed(1) : x.toFixed(2));
@@ -233,6 +183,7 @@ export function speedTable(s: SpeedRun): string[] {
     out.push(`| ${r.id} | ${r.shape} | ${r.runs} | ${fmt(r.deflate)} | ${fmt(r.inflate)} | ${fmt(r.enc1)} | ${fmt(r.enc2)} | ${fmt(r.enc2w)} | ${x(r.enc1, r.deflate)} | ${x(r.enc2, r.enc1)} | ${x(r.enc2w, r.enc1)} | ${fmt(r.dec1)} | ${fmt(r.dec2)} | ${fmt(r.dec2w)} | ${x(r.dec1, r.inflate)} | ${x(r.dec2, r.dec1)} | ${x(r.dec2w, r.dec1)} | ${r.same ? 'yes' : 'NO'} |`);
   }
   if (s.l2?.length) out.push('', `The rows "at ${L2_BOUND}" are the large field under that bound, for what the threads do under L2 bounds (the L2 plan's per-tile work on them too); the targets above count only the rows at ${s.bound}.`);
+  if (s.bounds?.length) out.push('', ...boundSpeedTable(s.bounds));
   if (s.unpack) {
     const w = s.unpack.whole;
     out.push('');
@@ -246,7 +197,7 @@ export function speedTable(s: SpeedRun): string[] {
  * annual-precip) among `fields`: the small grids take more runs, as they run
  * in milliseconds; the whole-process unpack on the large field.
  */
-export async function runSpeed(fields: readonly { id: string; values: Float32Array; rows: number; cols: number; large: boolean }[], bound: string, runs: number, progress: (id: string) => void): Promise<SpeedRun> {
+export async function runSpeed(fields: readonly BenchField[], bound: string, runs: number, progress: (id: string) => void): Promise<SpeedRun> {
   const run: SpeedRun = { bound, ceiling: await ceiling(), rows: [], l2: [], unpack: null };
   for (const f of fields.filter((g) => g.large || g.id === 'volcano' || g.id === 'annual-precip')) {
     // The small grids run in milliseconds: 5 times the runs, after a warm-up.
@@ -258,5 +209,6 @@ export async function runSpeed(fields: readonly { id: string; values: Float32Arr
     }
     progress(f.id);
   }
+  run.bounds = await boundSpeeds(fields, 5 * runs, progress);
   return run;
 }
