@@ -72,14 +72,9 @@ describe('reads of blend-predicted archives of vega-datasets grids', () => {
         const read = await bothModes(async () => (await (await open(bytes)).read()).values);
         expect(Buffer.from(read.wasm.buffer).equals(Buffer.from(read.js.buffer))).toBe(true);
         // The bound: rel:x is x times the range of the valid values, abs:x is x (src/codec/bound.ts, resolveBound).
-        let lo = Infinity;
-        let hi = -Infinity;
-        for (const v of g.values) {
-          if (v === v) {
-            lo = Math.min(lo, v);
-            hi = Math.max(hi, v);
-          }
-        }
+        const valid = g.values.filter((v) => v === v);
+        const lo = valid.reduce((a, v) => Math.min(a, v), Infinity);
+        const hi = valid.reduce((a, v) => Math.max(a, v), -Infinity);
         const [mode, x] = bound.split(':');
         const tol = mode === 'rel' ? Number(x) * (hi - lo) : Number(x);
         let worst = 0;
