@@ -8,7 +8,7 @@ import { kernels, SCRATCH_AT, WEIGHTS_BYTES } from './kernels.js';
 
 /** The blend walk of kernels/decode.ts: addresses are byte offsets into the kernels' memory. */
 interface BlendKernel {
-  blendDecode(q: number, m: number, n: number, limit: number, weight: number, above: number, below: number): number;
+  blendDecode(q: number, m: number, n: number, limit: number, weight: number, work: number): number;
 }
 
 /** The largest limit the kernel takes (it holds the limit in an i32; the decoder passes 2^30). */
@@ -27,11 +27,10 @@ export function blendDecodeKernel(q: Int32Array, m: number, n: number, limit: nu
   const k = kernels();
   if (k === null) return null;
   const cells = m * n;
-  // From SCRATCH_AT, in i32: q, then the two rows of activity sums (5 n each).
+  // From SCRATCH_AT, in i32: q, then the kernel's work (the row above's activity sums and the row's errors, 10 n + 18).
   const qAt = SCRATCH_AT / 4;
-  const aboveAt = qAt + cells;
-  const belowAt = aboveAt + 5 * n;
-  if (!k.lease(4 * (belowAt + 5 * n) - SCRATCH_AT)) return null;
+  const workAt = qAt + cells;
+  if (!k.lease(4 * (workAt + 10 * n + 18) - SCRATCH_AT)) return null;
   try {
     const fn = k.module<BlendKernel>(DECODE_KERNELS);
     if (fn === null) return null;
@@ -42,7 +41,7 @@ export function blendDecodeKernel(q: Int32Array, m: number, n: number, limit: nu
       k.weightsLoaded = true;
     }
     heap.set(q, qAt);
-    const ok = fn.blendDecode(4 * qAt, m, n, limit, 0, 4 * aboveAt, 4 * belowAt) !== 0;
+    const ok = fn.blendDecode(4 * qAt, m, n, limit, 0, 4 * workAt) !== 0;
     q.set(heap.subarray(qAt, qAt + cells));
     return ok;
   } finally {
