@@ -884,6 +884,18 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
 const DENSE_BITS = 1;
 
 /**
+ * Most cells of a tile whose other candidates may wait (see DENSE_BITS):
+ * until they are coded, each holds its codes (4 bytes a cell), and a trial
+ * holds up to 8 such tiles per candidate shape. On a dense 256 x 32768
+ * field at rel:1e-3 (smooth waves and seeded noise; its trial tried eight
+ * 256 x 4096 tiles first) the peak resident set of a pack was 372 to 418
+ * MB in three runs with no limit, 305 to 351 MB with this one, and 305 to
+ * 357 MB before any wait (scratch measurement, /usr/bin/time -v); a
+ * trial's tiles of at most this many cells hold at most 16 MiB more.
+ */
+const WAITING_CELLS = 1 << 18;
+
+/**
  * The smallest of the candidates coded for real; the first on a tie. They
  * are coded in ascending order of estimate, so that a short payload comes
  * early: a later one stops coding its residual once that stream is longer
@@ -891,7 +903,8 @@ const DENSE_BITS = 1;
  * stream, the stream's length and at least 3 bytes more: method, flags,
  * rank), as it would then be longer. The first is coded at once
  * (`first`), the others by rest() (once; it gives the smallest), at once
- * too unless the first's stream is dense (`dense`, see {@link DENSE_BITS}).
+ * too unless the first's stream is dense (`dense`, see {@link DENSE_BITS})
+ * and the tile at most {@link WAITING_CELLS} cells.
  */
 function smallest(t: PreparedTile, checkedOnes: Checked[]): { first: Candidate; rest(): Candidate; dense: boolean } {
   // The differences of a candidate to be coded, formed when it is (the others' were never formed).
@@ -920,7 +933,7 @@ function smallest(t: PreparedTile, checkedOnes: Checked[]): { first: Candidate; 
     return best;
   };
   const first = best;
-  const dense = 8 * first.payload.length >= DENSE_BITS * t.valid;
+  const dense = 8 * first.payload.length >= DENSE_BITS * t.valid && t.m * t.n <= WAITING_CELLS;
   if (!dense) rest();
   return { first, rest, dense };
 }
