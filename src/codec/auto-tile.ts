@@ -104,9 +104,9 @@ const TRIAL_TILES = 8;
  * smaller (measured at rel:1e-3).
  */
 export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices): TileTrial {
-  const choice = new TrialChoice(spec, largestFirst(spec));
+  const choice = new TrialChoice(spec, largestFirst(spec), basis.pointwise && largestFirst(spec));
   for (const [m, n, picked] of trialSamples(spec)) {
-    if (choice.worthTrying(m, n)) choice.add(m, n, sampleCost(src, spec, basis, m, n, picked, choice.rate, choice.stops));
+    if (choice.worthTrying(m, n)) choice.add(m, n, sampleCost(src, spec, basis, m, n, picked, choice.beat, choice.stops));
   }
   return choice.result();
 }
@@ -117,12 +117,14 @@ export function chooseTile(src: BandSource, spec: FieldSpec, basis: FieldChoices
  * tile encoded with the field's basis, under an L2 bound the tiles side by
  * side as one small field with its own plan (see {@link chooseTile}). The
  * field layer's term of each tile is taken off as the encoding pass takes it.
- * `beat`: the fewest bytes per valid cell of a candidate tried before; a
- * trial that cannot beat it stops early, its bytes then only as many as
- * it took to know (more than `beat` per valid cell). `searched`: a
- * pointwise tile counts the bytes of its search (see TileSearch in
- * field.ts), and is finished only by {@link Tried.finish} (the trial of a
- * small field: see {@link largestFirst}).
+ * `beat`: the most bytes per valid cell that leave a candidate in the
+ * running (see TrialChoice.beat); a trial that passes it stops early, its
+ * bytes then only as many as it took to know (more than `beat` per valid
+ * cell). `searched`: a pointwise tile counts what its search weighs (see
+ * TileSearch in field.ts: its first candidate's bytes where its stream is
+ * dense), weighed again by {@link Tried.settle} in a close call, and is
+ * finished only by {@link Tried.finish} (the trial of a small field: see
+ * {@link largestFirst}).
  */
 export function sampleCost(src: BandSource, spec: FieldSpec, basis: FieldChoices, m: number, n: number, picked: readonly number[], beat = Infinity, searched = false): Tried {
   if (!basis.pointwise) return tryMosaic(src, spec, m, n, picked, basis, beat);
@@ -131,7 +133,10 @@ export function sampleCost(src: BandSource, spec: FieldSpec, basis: FieldChoices
   const valid = beat < Infinity && tiles.length > 1 ? tiles.reduce((sum, t) => sum + t.m * t.n - classify(t.tile, basis.fill).special, 0) : -1;
   const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
   const searches: [number, TileSearch][] = [];
-  if (searched) tried.finish = () => searches.forEach(([index, s]) => tried.done.set(index, s.finish()));
+  if (searched) {
+    tried.finish = () => searches.forEach(([index, s]) => tried.done.set(index, s.finish()));
+    tried.settle = () => searches.reduce((sum, [, s]) => sum + s.settled() + TILE_INDEX_BYTES, 0);
+  }
   for (let k = 0; k < tiles.length; k++) {
     const t = tiles[k];
     const prepared = tileToEncode(basis, t.index, t.tile, m, n, t.term);
@@ -173,7 +178,7 @@ export function spreadSample(spec: FieldSpec, m: number, n: number, count: numbe
  */
 export async function chooseTileAsync(src: BandSource, spec: FieldSpec, basis: FieldChoices, encodeMany: (tiles: PickedTile[]) => Promise<TileOutcome[]>, l2?: MosaicWork): Promise<TileTrial> {
   if (!basis.pointwise) return l2 ? chooseTileL2(src, spec, basis, l2) : chooseTile(src, spec, basis);
-  const choice = new TrialChoice(spec, largestFirst(spec));
+  const choice = new TrialChoice(spec, largestFirst(spec), largestFirst(spec));
   const samples = trialSamples(spec);
   const huge = (m: number, n: number) => m === HUGE_SQUARE && n === HUGE_SQUARE;
   const cells = samples.reduce((sum, [m, n, picked]) => sum + (huge(m, n) ? 0 : m * n * picked.length), 0);
@@ -277,15 +282,39 @@ export function spreadTiles(gr: number, gc: number, count: number): number[] {
   return [...picked].sort((a, b) => a - b);
 }
 
+/**
+ * Two candidates whose weights are within this share of each other are
+ * weighed again by their tiles' smallest candidates (see
+ * {@link Tried.settle}): a weight that counts a tile's first candidate
+ * alone stood up to 3.9% above the smallest's (see DENSE_BITS in
+ * tile-encode.ts). On bench/'s turbulence-stack at rel:1e-2 the trial's
+ * 32 x 4096 and 32 x 2048 tiles weighed 264.7 and 266.2 bytes a thousand
+ * cells by their smallest candidates, 269.9 and 269.7 by their first; the
+ * first weights alone chose 32 x 2048, 140112 bytes against 138863
+ * (scratch measurement).
+ */
+const CLOSE_CALL = 0.02;
+
 /** The best candidate so far: fewest bytes per valid cell (candidates sample different tiles, and missing cells cost next to nothing). */
 class TrialChoice {
   best: TileTrial;
   /** The best candidate's bytes per valid cell (Infinity before the first). */
   rate = Infinity;
   private stopped = false;
-  /** @param stops the candidates come largest first, and the trial stops at the first that does clearly worse (see {@link largestFirst}). */
-  constructor(spec: FieldSpec, readonly stops: boolean) {
+  private finishBest: (() => void) | undefined;
+  /** The best candidate's {@link Tried.settle}, until called; and its valid cells. */
+  private settleBest: (() => number) | undefined;
+  private bestValid = 0;
+  /**
+   * @param stops the candidates come largest first, and the trial stops at the first that does clearly worse (see {@link largestFirst}).
+   * @param settles the candidates' weights may count more than their tiles' smallest candidates (see {@link Tried.settle}): close calls are weighed again.
+   */
+  constructor(spec: FieldSpec, readonly stops: boolean, private readonly settles = false) {
     this.best = { shape: [spec.tileRows, spec.tileCols], done: new Map() };
+  }
+  /** The bytes per valid cell that a candidate must reach to be weighed in full (a close call included): more, and it has lost. */
+  get beat(): number {
+    return this.settles ? this.rate * (1 + CLOSE_CALL) : this.rate;
   }
   /** Whether candidate m x n is tried: none once the trial stopped; the huge square only after the large one did best so far. */
   worthTrying(m: number, n: number): boolean {
@@ -293,12 +322,23 @@ class TrialChoice {
     return !(m === HUGE_SQUARE && n === HUGE_SQUARE) || (this.best.shape[0] === LARGE_SQUARE && this.best.shape[1] === LARGE_SQUARE);
   }
   add(m: number, n: number, tried: Tried): void {
-    const rate = tried.bytes / Math.max(1, tried.valid);
+    const valid = Math.max(1, tried.valid);
+    let rate = tried.bytes / valid;
+    let settle = tried.settle;
+    // A close call is weighed again by the smallest candidates, where a weight may stand above them.
+    if (this.settles && rate <= this.beat && this.rate <= rate * (1 + CLOSE_CALL)) {
+      if (settle) rate = settle() / valid;
+      settle = undefined;
+      if (this.settleBest) this.rate = this.settleBest() / this.bestValid;
+      this.settleBest = undefined;
+    }
     if (this.stops && rate > this.rate) this.stopped = true;
     if (rate < this.rate) {
       this.rate = rate;
       this.best = { shape: [m, n], done: tried.done, ...(tried.plan ? { plan: tried.plan } : {}), ...(tried.spectra ? { spectra: tried.spectra } : {}), ...(tried.svds ? { svds: tried.svds } : {}) };
       this.finishBest = tried.finish;
+      this.settleBest = settle;
+      this.bestValid = valid;
     }
   }
   /** The choice, with the best candidate's tiles finished. */
@@ -306,7 +346,6 @@ class TrialChoice {
     this.finishBest?.();
     return this.best;
   }
-  private finishBest: (() => void) | undefined;
 }
 
 /** The tile shape a trial chose, and the tiles of that shape it encoded as the field's own (by tile index). */
@@ -328,6 +367,12 @@ export interface Tried {
   done: Map<number, TileOutcome>;
   /** Fills `done` with the tiles, when they were searched but not finished (see {@link sampleCost}). */
   finish?: () => void;
+  /**
+   * The bytes as the tiles' smallest candidates count them, where `bytes`
+   * may count more (see TileSearch: a searched tile's first candidate):
+   * the others coded now.
+   */
+  settle?: () => number;
   plan?: L2Plan;
   spectra?: ReadonlyMap<number, Float64Array>;
   svds?: TileSvds;
@@ -375,6 +420,7 @@ function pickedTiles(src: BandSource, spec: FieldSpec, m: number, n: number, pic
 function tally(indices: readonly number[], outcomes: readonly TileOutcome[], searched: boolean): Tried {
   const tried: Tried = { bytes: 0, valid: 0, done: new Map() };
   outcomes.forEach((o, k) => addOutcome(tried, indices[k], o, searched));
+  if (searched) tried.settle = () => outcomes.reduce((sum, o) => sum + o.settled + TILE_INDEX_BYTES, 0);
   return tried;
 }
 

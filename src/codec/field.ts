@@ -127,17 +127,22 @@ export interface TileOutcome extends EncodedTile {
   tally: ErrorTally;
   /** The bytes of {@link TileSearch} (what a tile trial of a small field weighs). */
   searched: number;
+  /** {@link TileSearch.settled}'s bytes. */
+  settled: number;
 }
 
 /**
- * A tile's encoding in two steps: `bytes`, known first, are those of the
- * pointwise search's smallest candidate before its payload is finished
- * (see pointwiseSearch: the blend predictor, the residual coder, the
- * exact payload, then the decoder's check), or an L2 plan's payload's
- * own; finish() makes the outcome (once).
+ * A tile's encoding in steps: `bytes`, known first, are what a tile trial
+ * weighs (see PointwiseSearch.trialBytes: the pointwise search's smallest
+ * candidate's, or its first candidate's where that one's stream is
+ * dense); settled(), the smallest candidate's (the others coded), before
+ * it is finished with the blend predictor, the residual coder, the exact
+ * payload, then the decoder's check. An L2 plan's payload's own, both.
+ * finish() makes the outcome (once).
  */
 export interface TileSearch {
   bytes: number;
+  settled(): number;
   finish(): TileOutcome;
 }
 
@@ -152,10 +157,12 @@ export function searchTile(c: FieldChoices, t: PreparedTile, index: number): Til
   if (t.fieldStep !== fieldStep(c.tol)) throw new Error(`internal: tile ${index} was prepared for another tolerance than the field's`);
   if (c.plan) {
     const { payload, res } = c.plan.encode(t, index);
-    const o = outcome(c, t, payload, res, payload.length);
-    return { bytes: payload.length, finish: () => o };
+    const o = outcome(c, t, payload, res, payload.length, payload.length);
+    return { bytes: payload.length, settled: () => payload.length, finish: () => o };
   }
   const search = pointwiseSearch(t, c.tol);
+  const bytes = search.trialBytes;
+  const settled = () => search.best().bytes;
   let o: TileOutcome | undefined;
   const finish = () => {
     if (o === undefined) {
@@ -166,18 +173,18 @@ export function searchTile(c: FieldChoices, t: PreparedTile, index: number): Til
         payload = exactPayload(t);
         res = measure(payload, t, c.fill);
       }
-      o = outcome(c, t, payload, res, search.bytes);
+      o = outcome(c, t, payload, res, bytes, settled());
     }
     return o;
   };
-  return { bytes: search.bytes, finish };
+  return { bytes, settled, finish };
 }
 
 /** A tile's outcome from its final payload and that payload's measurement. */
-function outcome(c: FieldChoices, t: PreparedTile, payload: Uint8Array, res: ReturnType<typeof measure>, searched: number): TileOutcome {
+function outcome(c: FieldChoices, t: PreparedTile, payload: Uint8Array, res: ReturnType<typeof measure>, searched: number, settled: number): TileOutcome {
   // Prefixes are measured (and recorded) for progressive layouts only.
   res.stats.prefix = c.progressive ? measurePrefixes(payload, t, c.fill) : [];
-  return { payload, stats: res.stats, valid: t.valid, tally: res.tally, searched };
+  return { payload, stats: res.stats, valid: t.valid, tally: res.tally, searched, settled };
 }
 
 /** Folds tile outcomes, in tile order, into a field's summary. */

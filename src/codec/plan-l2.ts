@@ -126,12 +126,12 @@ export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8
   // rank 0 and at the rank the pointwise coder chose: the smallest (on a tie, the first of these).
   const mse = 0.97 * p.tol * p.tol;
   const pointwise = pointwiseSearch(t, p.ePrime);
-  const r = pointwise.rank;
+  const { rank: r, bytes } = pointwise.best();
   const f = r > 0 ? pointwiseFactors(t, r, p.ePrime) : null;
   const withFactors = f && residualForMse(t, f, mse);
   // The pointwise payload is finished (the blend and the residual coders tried) only where it may be the smallest.
   const factorsBytes = withFactors ? withFactors.length : Infinity;
-  const finished = pointwise.bytes <= FINISH_MARGIN * factorsBytes ? pointwise.finish() : null;
+  const finished = bytes <= FINISH_MARGIN * factorsBytes ? pointwise.finish() : null;
   // The factors are those of the rank the pointwise coder chose, even when the rank-0 search wins over it.
   // That search is made last, so that it can give up against the smaller of the others (on a smooth tile
   // the factors' payload is often a fraction of the pointwise one), and is not made at all where the

@@ -652,49 +652,73 @@ export function encodePointwise(t: PreparedTile, e: number): Uint8Array {
   return pointwiseSearch(t, e).finish();
 }
 
-/** {@link encodePointwise} in two steps: the search, then its payload finished (see {@link pointwiseSearch}). */
+/** {@link encodePointwise} in steps: the search, its smallest candidate, then its payload finished (see {@link pointwiseSearch}). */
 export interface PointwiseSearch {
-  /** The rank of the payload finish() gives. */
-  rank: number;
-  /** Bytes of the smallest candidate before finish() tries the blend and the residual coders on it. */
-  bytes: number;
+  /**
+   * What a tile trial weighs the tile by: best()'s bytes, or, where the
+   * first candidate's stream is dense (see DENSE_BITS), the bytes of the
+   * first alone (no fewer), the others then coded only by best().
+   */
+  trialBytes: number;
   /** The estimated size ({@link estimateBytes}) of the plain rank-0 candidate (step 2e around the tile's centre); Infinity when there was no search. */
   zeroEstimate: number;
+  /** The rank of the payload finish() gives, and the bytes of the smallest candidate before finish() tries the blend and the residual coders on it (computed once). */
+  best(): { rank: number; bytes: number };
   /** The payload of {@link encodePointwise} (made once). */
   finish(): Uint8Array;
 }
 
 /**
- * {@link encodePointwise} up to its smallest candidate: the payload's rank
- * and its bytes so far are known before the blend and the residual coders
- * are tried on it (which leave the rank as it is), so that a caller with a
- * smaller payload in hand need not finish it. Where the exact payload may
- * still win (see EXACT_GATE), which sets the rank, the payload is finished
- * at once.
+ * {@link encodePointwise} in steps. At once: the candidates checked and
+ * the one with the smallest estimate coded (see {@link smallest}); the
+ * others too unless its stream is dense, in which case a tile trial
+ * weighs the first ({@link PointwiseSearch.trialBytes}) and best() codes
+ * them. best(): the payload's rank and its bytes so far,
+ * known before the blend and the residual coders are tried on it (which
+ * leave the rank as it is), so that a caller with a smaller payload in
+ * hand need not finish it. Where the exact payload may still win (see
+ * EXACT_GATE), which sets the rank, the payload is finished at once.
  */
 export function pointwiseSearch(t: PreparedTile, e: number): PointwiseSearch {
   if (!t.finite) return finished(exactPayload(t), Infinity);
   if (t.valid === 0) return finished(orExact(t, lowRankPayload(t, null, null)), Infinity);
   const rank0 = rankZero(t, e);
-  const best = smallest(t, e > 0 ? searchRanks(t, e, rank0) : rank0);
+  const coding = smallest(t, e > 0 ? searchRanks(t, e, rank0) : rank0);
   const zeroEstimate = rank0[0].estimate;
   let payload: Uint8Array | null = null;
   const finish = () => {
     if (payload === null) {
+      const best = coding.rest();
       const blended = best.withBlend();
       const pick = blended.payload.length < best.payload.length ? blended : best;
       payload = orExact(t, withResidualCoder(t, pick.payload, pick.codes));
     }
     return payload;
   };
+  let settled: { rank: number; bytes: number } | null = null;
+  const best = () => {
+    if (settled === null) {
+      const b = coding.rest().payload;
+      const p = mayGoExact(t, b) ? finish() : b;
+      settled = { rank: payloadHead(p).rank, bytes: p.length };
+    }
+    return settled;
+  };
+  // Where the first may go exact, so may the smallest: settled now. Else the smallest, no longer than the first, does not either.
+  const first = coding.first.payload;
+  return { trialBytes: coding.dense && !mayGoExact(t, first) ? first.length : best().bytes, zeroEstimate, best, finish };
+}
+
+/** Whether a candidate's payload is large enough that the tile's exact payload may be smaller once it is finished (see EXACT_GATE). */
+function mayGoExact(t: PreparedTile, payload: Uint8Array): boolean {
   // The residual coder may lengthen the payload by a hundredth of its stream and a byte (SYMBOLS_MARGIN, its length's varint).
-  if (!(SYMBOLS_MARGIN * best.payload.length + 1 < EXACT_GATE * rawBytes(t))) return finished(finish(), zeroEstimate);
-  return { rank: payloadHead(best.payload).rank, bytes: best.payload.length, zeroEstimate, finish };
+  return !(SYMBOLS_MARGIN * payload.length + 1 < EXACT_GATE * rawBytes(t));
 }
 
 /** A search whose payload is finished. */
 function finished(payload: Uint8Array, zeroEstimate: number): PointwiseSearch {
-  return { rank: payloadHead(payload).rank, bytes: payload.length, zeroEstimate, finish: () => payload };
+  const settled = { rank: payloadHead(payload).rank, bytes: payload.length };
+  return { trialBytes: payload.length, zeroEstimate, best: () => settled, finish: () => payload };
 }
 
 /** The tile's values as stored raw. */
@@ -844,34 +868,74 @@ function searchRanks(t: PreparedTile, e: number, rank0: Checked[]): Checked[] {
 }
 
 /**
+ * Where a tile's first candidate (smallest estimate) codes in at least this
+ * many bits a valid cell, a tile trial weighs the tile by that candidate
+ * alone (see PointwiseSearch.trialBytes), and the others are coded only
+ * for the tiles it keeps: there they take long to code (dense streams, a
+ * few per cent apart, so that the early stop comes late). Sparser streams
+ * are coded fast, and there the estimates rank the candidates worst. The
+ * rank searches that packs of bench/'s fields ran at rel:1e-2, 1e-3 and
+ * 1e-4 (the large field aside; 187 tiles, trials and encoding passes;
+ * scratch measurement): of 83 tiles at or above this, the first candidate
+ * was the smallest on 62, and 0.8% to 3.9% longer than it on 21 (all of
+ * turbulence-stack, whose ranks 0 to 3 were within 4.2% by estimate); of
+ * 104 below, 1.05 to 6.4 times as long on 14 of smooth-front's.
+ */
+const DENSE_BITS = 1;
+
+/**
+ * Most cells of a tile whose other candidates may wait (see DENSE_BITS):
+ * until they are coded, each holds its codes (4 bytes a cell), and a trial
+ * holds up to 8 such tiles per candidate shape. On a dense 256 x 32768
+ * field at rel:1e-3 (smooth waves and seeded noise; its trial tried eight
+ * 256 x 4096 tiles first) the peak resident set of a pack was 372 to 418
+ * MB in three runs with no limit, 305 to 351 MB with this one, and 305 to
+ * 357 MB before any wait (scratch measurement, /usr/bin/time -v); a
+ * trial's tiles of at most this many cells hold at most 16 MiB more.
+ */
+const WAITING_CELLS = 1 << 18;
+
+/**
  * The smallest of the candidates coded for real; the first on a tie. They
  * are coded in ascending order of estimate, so that a short payload comes
  * early: a later one stops coding its residual once that stream is longer
  * than the shortest payload so far less 4 bytes (a payload holds its
  * stream, the stream's length and at least 3 bytes more: method, flags,
- * rank), as it would then be longer.
+ * rank), as it would then be longer. The first is coded at once
+ * (`first`), the others by rest() (once; it gives the smallest), at once
+ * too unless the first's stream is dense (`dense`, see {@link DENSE_BITS})
+ * and the tile at most {@link WAITING_CELLS} cells.
  */
-function smallest(t: PreparedTile, checkedOnes: Checked[]): Candidate {
-  // The differences of the candidates to be coded (the others' were never formed).
-  const candidates = checkedOnes.map((c) => ({ ...c, corr: formed(t, c.corr) }));
+function smallest(t: PreparedTile, checkedOnes: Checked[]): { first: Candidate; rest(): Candidate; dense: boolean } {
+  // The differences of a candidate to be coded, formed when it is (the others' were never formed).
+  const candidates = checkedOnes.slice();
+  const form = (k: number) => (candidates[k] = { ...candidates[k], corr: formed(t, candidates[k].corr) });
   const order = candidates.map((_c, k) => k).sort((a, b) => candidates[a].estimate - candidates[b].estimate || a - b);
-  let best: Candidate | null = null;
-  let bestAt = -1;
-  for (const k of order) {
-    const coded = codedCandidate(t, candidates[k], best === null ? Infinity : best.payload.length - 4);
-    if (coded === null) continue;
-    const shorter = best === null || coded.payload.length < best.payload.length || (coded.payload.length === best.payload.length && k < bestAt);
-    if (shorter) {
-      best = coded;
-      bestAt = k;
+  let best = codedCandidate(t, form(order[0]))!;
+  let bestAt = order[0];
+  let done = false;
+  const rest = () => {
+    if (done) return best;
+    done = true;
+    for (const k of order.slice(1)) {
+      const coded = codedCandidate(t, form(k), best.payload.length - 4);
+      if (coded === null) continue;
+      if (coded.payload.length < best.payload.length || (coded.payload.length === best.payload.length && k < bestAt)) {
+        best = coded;
+        bestAt = k;
+      }
     }
-  }
-  // The others' grids are no one's now (a coded candidate's payload holds bytes, not its grids).
-  const kept = bestAt >= 0 ? candidates[bestAt].corr : null;
-  candidates.forEach((c, k) => {
-    if (k !== bestAt) giveBack(c.corr, kept);
-  });
-  return best!;
+    // The others' grids are no one's now (a coded candidate's payload holds bytes, not its grids).
+    const kept = candidates[bestAt].corr;
+    candidates.forEach((c, k) => {
+      if (k !== bestAt) giveBack(c.corr, kept);
+    });
+    return best;
+  };
+  const first = best;
+  const dense = 8 * first.payload.length >= DENSE_BITS * t.valid && t.m * t.n <= WAITING_CELLS;
+  if (!dense) rest();
+  return { first, rest, dense };
 }
 
 /** A rank-r payload with no residual (L2 modes), or the exact one if smaller. */

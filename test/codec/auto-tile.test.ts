@@ -12,7 +12,7 @@ import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { open } from '../../src/archive.js';
 import { chooseTile, chooseTileAsync, sampleCost, spreadSample, spreadTiles, tileCandidates, type PickedTile } from '../../src/codec/auto-tile.js';
-import { encodeField, encodeTile, fieldBasis, memoryBands, tileToEncode } from '../../src/codec/field.js';
+import { encodeField, encodeTile, fieldBasis, memoryBands, termFor, tileToEncode } from '../../src/codec/field.js';
 import { fieldSpecOf, pack } from '../../src/pack.js';
 
 function precip(): { values: Float32Array; shape: [number, number] } {
@@ -123,11 +123,11 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     const { spec } = fieldSpecOf(shape, 'f32', { bound: 'rel:1e-3' });
     const src = memoryBands(values, shape[1]);
     const basis = fieldBasis(src, spec);
-    // Every candidate weighed on its 8 spread tiles (all of them when it has fewer) by its tiles' search bytes (a small
-    // field's measure: see sampleCost): the exhaustive trial's choice.
+    // Every candidate weighed on its 8 spread tiles (all of them when it has fewer) by its tiles' smallest candidates (a
+    // small field's measure, settled: see sampleCost): the exhaustive trial's choice.
     const rates = tileCandidates(...shape).map(([m, n]) => {
       const t = sampleCost(src, spec, basis, m, n, spreadSample(spec, m, n, 8), Infinity, true);
-      return { shape: [m, n], rate: t.bytes / t.valid };
+      return { shape: [m, n], rate: t.settle!() / t.valid };
     });
     const best = rates.reduce((a, b) => (b.rate < a.rate ? b : a)).shape;
     // The tiles the trial hands over for encoding, by shape (encoded here, in this thread, as a worker would).
@@ -145,6 +145,17 @@ describe('the trial picks a candidate close to the smallest archive', () => {
     expect(sync.shape).toEqual(best);
     expect([...sync.done.keys()]).toEqual([...trial.done.keys()]);
     for (const [index, o] of sync.done) expect(Buffer.from(o.payload).equals(Buffer.from(trial.done.get(index)!.payload))).toBe(true);
+    // And the payloads encodeTile makes of the same tiles, each alone (the trial codes the others of a tile's candidates only for the tiles it keeps).
+    const grid = { ...spec, tileRows: sync.shape[0], tileCols: sync.shape[1] };
+    const cols = Math.ceil(shape[1] / sync.shape[1]);
+    expect(sync.done.size).toBeGreaterThan(0);
+    for (const [index, o] of sync.done) {
+      const [ti, tj] = [Math.floor(index / cols), index % cols];
+      const [m, n] = sync.shape;
+      const tile = Float32Array.from({ length: m * n }, (_, c) => values[(ti * m + Math.floor(c / n)) * shape[1] + tj * n + (c % n)]);
+      const alone = encodeTile(basis, tileToEncode(basis, index, tile, m, n, termFor(grid, index, m, n)), index);
+      expect(Buffer.from(o.payload).equals(Buffer.from(alone.payload)), `tile ${index}`).toBe(true);
+    }
   }, 60_000);
 
   it('a thin field: longest strip first, stopping at the first that does worse; the choice of weighing every candidate (a rank-2 time x space matrix, rel:1e-3)', async () => {

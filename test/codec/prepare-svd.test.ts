@@ -124,18 +124,22 @@ describe('the pointwise rank search (candidates ranked by estimated size, the be
     for (let c = 0; c < m * n; c++) expect(Math.abs(back[c] - values[c])).toBeLessThanOrEqual(e);
   });
 
-  it.each([1e-3, 1e-2, 0.2])('in two steps: the rank and bytes of its smallest candidate, then the same payload finished (rel %s)', (rel) => {
+  it.each([1e-3, 1e-2, 0.2])('in steps: what a trial weighs, the rank and bytes of its smallest candidate, then the same payload finished (rel %s)', (rel) => {
     const values = precipBlock(m, n);
     let [lo, hi] = [Infinity, -Infinity];
     for (const v of values) [lo, hi] = [Math.min(lo, v), Math.max(hi, v)];
     const e = rel * (hi - lo);
     const search = pointwiseSearch(prepareTile(values, m, n, 'f64', null), e);
+    const best = search.best();
+    // A trial weighs the smallest candidate, or the first one coded: never fewer bytes.
+    expect(search.trialBytes).toBeGreaterThanOrEqual(best.bytes);
     const payload = search.finish();
     expect(payload).toEqual(encodePointwise(prepareTile(values, m, n, 'f64', null), e));
     expect(search.finish()).toBe(payload);
-    expect(payloadHead(payload).rank).toBe(search.rank);
+    expect(search.best()).toBe(best);
+    expect(payloadHead(payload).rank).toBe(best.rank);
     // Finishing takes the blend only if shorter, and the symbol coder at most 1% longer (and its length's varint a byte).
-    expect(payload.length).toBeLessThanOrEqual(1.01 * search.bytes + 1);
+    expect(payload.length).toBeLessThanOrEqual(1.01 * best.bytes + 1);
   });
 
   it.each([1e-3, 1e-2])('estimates its plain rank-0 candidate within 2x of that candidate coded (rel %s)', (rel) => {

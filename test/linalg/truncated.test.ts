@@ -3,7 +3,7 @@ import { describe, expect, it } from 'vitest';
 import { InputError } from '../../src/errors.js';
 import { svd, type Svd } from '../../src/linalg/svd.js';
 import { truncatedSvd } from '../../src/linalg/truncated.js';
-import { OVERSAMPLE, POWER_ITERATIONS } from '../../src/linalg/truncated.js';
+import { gaussian, OVERSAMPLE, POWER_ITERATIONS } from '../../src/linalg/truncated.js';
 import { kernels } from '../../src/wasm/kernels.js';
 import { useKernelMode } from '../kernel-mode.js';
 import { mulberry32 } from '../rng.js';
@@ -188,6 +188,32 @@ function decayingCases(): { name: string; a: Float64Array; m: number; n: number;
     { name: 'rotated bumps 64 x 96', a: bumps(64, 96), m: 64, n: 96, ks: [4, 8, 16] },
   ];
 }
+
+describe('gaussian', () => {
+  it('draws Box-Muller normals of mulberry32 uniforms, the same entries whatever the length asked for', () => {
+    // Box-Muller: sqrt(-2 ln u1) cos(2 pi u2), then the same with sin (from memory), u1 = 1 - a draw so that it is in (0, 1].
+    const next = mulberry32(77);
+    const want: number[] = [];
+    while (want.length < 9) {
+      const r = Math.sqrt(-2 * Math.log(1 - next()));
+      const th = 2 * Math.PI * next();
+      want.push(r * Math.cos(th), r * Math.sin(th));
+    }
+    const out = new Float64Array(9);
+    gaussian(out, 77);
+    expect(Array.from(out)).toEqual(want.slice(0, 9));
+    // The default seed: a shorter draw after a longer one (kept, copied), then a longer one (drawn), agree entry by entry.
+    const long = new Float64Array(11);
+    gaussian(long);
+    const short = new Float64Array(6);
+    gaussian(short);
+    expect(Array.from(short)).toEqual(Array.from(long.subarray(0, 6)));
+    const longer = new Float64Array(15);
+    gaussian(longer);
+    expect(Array.from(longer.subarray(0, 11))).toEqual(Array.from(long));
+    expect(new Set(longer).size).toBe(15);
+  });
+});
 
 // Every test twice: with the WebAssembly product (kernels/product.ts) and with the JavaScript one.
 describe.each(['auto', 'js'] as const)('truncatedSvd (kernels %s)', (mode) => {
