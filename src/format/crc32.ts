@@ -23,8 +23,16 @@ const TABLES: Uint32Array = (() => {
   return t;
 })();
 
-/** Inputs at least this long go to the WebAssembly kernel where there is one (src/wasm/crc.ts): below it, the copy and the tables cost more than they save. */
-const KERNEL_BYTES = 1 << 18;
+/**
+ * Inputs at least this long go to the WebAssembly kernel where there is one
+ * (src/wasm/crc.ts): below it, the copy and the tables cost more than they
+ * save. Measured (scratch/crcbench.mjs, Node 20, loops of 300 ms a size):
+ * JavaScript against the kernel, 4.8 / 5.9 us at 4 KiB, 8.7 / 8.3 at 8 KiB,
+ * 17.3 / 12.6 at 16 KiB, 254 / 148 at 241920 bytes (the values of the
+ * vega-datasets annual-precip grid, whose check was 17% of its read with
+ * the threshold at 256 KiB).
+ */
+export const KERNEL_BYTES = 1 << 14;
 
 /**
  * CRC-32 of `bytes`, continuing from `crc` (the value returned for the bytes

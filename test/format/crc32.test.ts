@@ -6,7 +6,7 @@
 import zlib from 'node:zlib';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { crc32 } from '../../src/format/crc32.js';
+import { crc32, KERNEL_BYTES } from '../../src/format/crc32.js';
 import { crc32Kernel } from '../../src/wasm/crc.js';
 import { onBothPaths, useKernelMode } from '../kernel-mode.js';
 
@@ -118,14 +118,14 @@ describe('crc32', () => {
   });
 
   it('gives the same CRCs on long inputs in the WebAssembly kernel and in JavaScript: the bitwise reference\'s, and zlib\'s where Node has it', () => {
-    // Lengths around the kernel's threshold (2^18) and its 1 MiB chunks, odd tails, unaligned views, continued CRCs.
+    // Lengths around the kernel's threshold (KERNEL_BYTES) and its 1 MiB chunks, odd tails, unaligned views, continued CRCs.
     const z = (zlib as unknown as { crc32?(b: Uint8Array, v?: number): number }).crc32;
     const rnd = (() => {
       let s = 0x9e3779b9;
       return () => ((s = (Math.imul(s, 1664525) + 1013904223) >>> 0) >>> 24);
     })();
     const big = Uint8Array.from({ length: (1 << 21) + 40 }, rnd);
-    for (const [from, len, start] of [[0, (1 << 18) - 1, 0], [0, 1 << 18, 0], [3, (1 << 18) + 5, 0], [1, (1 << 20) + 3, 0x1234abcd], [7, (1 << 21) + 1, 0], [0, 1 << 20, 0xffffffff]] as const) {
+    for (const [from, len, start] of [[0, KERNEL_BYTES - 1, 0], [0, KERNEL_BYTES, 0], [3, KERNEL_BYTES + 5, 0], [0, (1 << 18) + 1, 0], [1, (1 << 20) + 3, 0x1234abcd], [7, (1 << 21) + 1, 0], [0, 1 << 20, 0xffffffff]] as const) {
       const bytes = big.subarray(from, from + len);
       const { js, wasm } = onBothPaths(() => crc32(bytes, start));
       expect(wasm, `${len} bytes from ${from}`).toBe(js);
