@@ -32,33 +32,48 @@ function ld(p: usize, c: i32): i64 {
   return <i64>load<i32>(p + (<usize>c << 2));
 }
 
-/** The rough bits of predictor `kind`'s differences of the filled codes, or -1 (see the module's comment). */
+/**
+ * The rough bits of predictor `kind`'s differences of the filled codes, or
+ * -1 (see the module's comment). Inlined into maskedBits once for each
+ * kind, a constant there, so that each copy's loop holds its own
+ * predictor's arithmetic and no test of the kind.
+ */
+@inline
 function kindBits(q: usize, codes: usize, work: usize, m: i32, n: i32, kind: i32): f64 {
   let bits: i64 = 0;
   for (let i = 0; i < m; i++) {
+    const row = i * n;
+    // The left and up-left neighbours' filled codes carried along the row in locals (the cells written just
+    // before), the one above read from the row above; the first row and column take the edge rule.
+    let left: i64 = 0;
+    let upLeft: i64 = 0;
     for (let j = 0; j < n; j++) {
-      const c = i * n + j;
+      const c = row + j;
       let p: i64 = 0;
-      if (i === 0) p = j === 0 ? 0 : ld(work, c - 1);
-      else if (j === 0) p = ld(work, c - n);
+      if (i === 0) p = j === 0 ? 0 : left;
       else {
-        const a = ld(work, c - 1);
         const b = ld(work, c - n);
-        const u = ld(work, c - n - 1);
-        if (kind === 1) p = a + b - u;
-        else if (kind === 2) p = a;
-        else if (kind === 3) p = b;
-        else if (kind === 4) p = (a + b) >> 1;
+        if (j === 0) p = b;
         else {
-          const lo = a < b ? a : b;
-          const hi = a < b ? b : a;
-          p = u >= hi ? lo : u <= lo ? hi : a + b - u;
+          const a = left;
+          const u = upLeft;
+          if (kind === 1) p = a + b - u;
+          else if (kind === 2) p = a;
+          else if (kind === 3) p = b;
+          else if (kind === 4) p = (a + b) >> 1;
+          else {
+            const lo = a < b ? a : b;
+            const hi = a < b ? b : a;
+            p = u >= hi ? lo : u <= lo ? hi : a + b - u;
+          }
         }
+        upLeft = b;
       }
       let v: i64;
       if (load<u8>(codes + <usize>c) !== 0) v = p > LIMIT || p < -LIMIT ? 0 : p;
       else v = ld(q, c);
       store<i32>(work + (<usize>c << 2), <i32>v);
+      left = v;
       const d = v - p;
       if (d > LIMIT || d < -LIMIT) return -1;
       bits += 64 - i64.clz(d < 0 ? -d : d);
@@ -68,5 +83,9 @@ function kindBits(q: usize, codes: usize, work: usize, m: i32, n: i32, kind: i32
 }
 
 export function maskedBits(q: usize, codes: usize, work: usize, m: i32, n: i32, out: usize): void {
-  for (let kind = 1; kind <= 5; kind++) store<f64>(out + (<usize>(kind - 1) << 3), kindBits(q, codes, work, m, n, kind));
+  store<f64>(out, kindBits(q, codes, work, m, n, 1));
+  store<f64>(out + 8, kindBits(q, codes, work, m, n, 2));
+  store<f64>(out + 16, kindBits(q, codes, work, m, n, 3));
+  store<f64>(out + 24, kindBits(q, codes, work, m, n, 4));
+  store<f64>(out + 32, kindBits(q, codes, work, m, n, 5));
 }

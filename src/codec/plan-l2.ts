@@ -318,7 +318,10 @@ export function cuttable(sv2: Float64Array, cells: number): Float64Array {
  * singular values the tile trial took, by tile index; `seen` is handed each
  * tile's singular values; `svds`: the SVDs the tile trial computed, by tile
  * index (see {@link TileSvds}); `keep`: whether the prepared tiles are kept
- * (by default, for fields up to KEEP_CELLS cells; see {@link keepsTiles}).
+ * (by default, for fields up to KEEP_CELLS cells; see {@link keepsTiles});
+ * `hold`: of a field whose tiles are not kept, whether the tiles the
+ * costing samples are held, prepared, for the plan choice in this thread
+ * (see {@link FirstPass.sampled}).
  */
 export function firstPass(
   src: BandSource,
@@ -327,18 +330,18 @@ export function firstPass(
   fill: Uint32Array | null,
   known?: ReadonlyMap<number, Float64Array>,
   seen?: (index: number, s: Float64Array) => void,
-  { svds, keep = keepsTiles(spec) }: { svds?: TileSvds; keep?: boolean } = {},
+  { svds, keep = keepsTiles(spec), hold = false }: { svds?: TileSvds; keep?: boolean; hold?: boolean } = {},
 ): FirstPass {
   const spectra = new Spectra(tileCount(spec));
   const kept: PreparedTile[] = [];
-  const handoff = new SvdHandoff(spectra.tiles, keep);
+  const handoff = new SvdHandoff(spectra.tiles, keep, hold);
   forEachTile(src, spec, (index, tile, m, n) => {
     const f = firstPassTile(tile, m, n, spec, fill, tol, keep || handoff.wants(index), known?.get(index), seen && ((s) => seen(index, s)), termFor(spec, index, m, n), svds?.get(index));
     spectra.add(f);
     if (keep) kept.push(f.tile!);
     else handoff.add(index, f.tile);
   });
-  return { spectra, kept, svds: handoff.handed };
+  return { spectra, kept, svds: handoff.handed, ...(hold && !keep ? { sampled: handoff.held } : {}) };
 }
 
 /**
@@ -348,10 +351,19 @@ export function firstPass(
  */
 export class SvdHandoff {
   readonly handed = new Map<number, Map<number, Svd>>();
+  /** With `hold`, the sampled tiles themselves, prepared (see {@link FirstPass.sampled}). */
+  readonly held = new Map<number, PreparedTile>();
   private readonly sampled: Set<number>;
   private bytes = 0;
-  /** @param tiles the field's tile count; @param keep whether the first pass keeps its tiles (then nothing is handed: the tiles are). */
-  constructor(tiles: number, keep: boolean) {
+  /**
+   * @param tiles the field's tile count; @param keep whether the first pass keeps its tiles (then nothing is
+   * handed: the tiles are); @param hold whether the sampled tiles are held whole as well.
+   */
+  constructor(
+    tiles: number,
+    keep: boolean,
+    private readonly hold = false,
+  ) {
     this.sampled = keep ? new Set() : new Set(sampleTiles(tiles));
   }
   /** Whether tile `index`'s first pass should return the prepared tile (with its SVDs) for the handoff. */
@@ -360,6 +372,7 @@ export class SvdHandoff {
   }
   /** The tile's SVDs, while the handoff holds at most HANDOFF_BYTES. */
   add(index: number, t: PreparedTile | undefined): void {
+    if (t !== undefined && this.hold && this.sampled.has(index)) this.held.set(index, t);
     if (t === undefined || t.svds.size === 0 || !this.sampled.has(index)) return;
     let b = 0;
     for (const s of t.svds.values()) b += svdBytes(s);
@@ -379,6 +392,17 @@ export interface FirstPass {
   spectra: Spectra;
   kept: PreparedTile[];
   svds?: TileSvds;
+  /**
+   * Of a field whose tiles are not kept, the tiles the costing samples as
+   * the first pass prepared them, by tile index, when it was asked to hold
+   * them (a pass in the plan choice's own thread, see {@link planL2}): the
+   * costing takes them rather than preparing them again, and the encoding
+   * pass takes each from the plan ({@link L2Plan.kept}). The costing holds
+   * every sampled tile at once either way; a tile prepared again from the
+   * same values with the same tolerance is the same (and with the same
+   * SVDs, see {@link TileSvds}).
+   */
+  sampled?: ReadonlyMap<number, PreparedTile>;
 }
 
 /** Tiles of a field, over all its slices. */
@@ -399,7 +423,7 @@ function tileCount(spec: FieldSpec): number {
  * second pass (only those: a few dozen tiles' payloads).
  */
 export function planL2(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first?: FirstPass, known?: ReadonlyMap<number, Float64Array>, svds?: TileSvds): L2Plan {
-  const f = first ?? firstPass(src, spec, tol, fill, known, undefined, { svds });
+  const f = first ?? firstPass(src, spec, tol, fill, known, undefined, { svds, hold: true });
   const setup = planSetup(src, spec, tol, fill, f, first !== undefined, svds);
   return setup.finish(chooseL2(f.spectra, tol, setup.tilesAt));
 }
@@ -425,7 +449,7 @@ export async function planL2Async(src: BandSource, spec: FieldSpec, tol: number,
  * costing's payloads of a field whose tiles are not kept.
  */
 function planSetup(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Array | null, first: FirstPass, given: boolean, svds?: TileSvds): { tilesAt: (sample: number[]) => PreparedTile[]; finish: (data: L2PlanData) => L2Plan } {
-  const { spectra, kept, svds: handed } = first;
+  const { spectra, kept, svds: handed, sampled } = first;
   // Whether the first pass kept its tiles (see keepsTiles).
   const keep = given ? kept.length > 0 : keepsTiles(spec);
   // Internal assertion: the first pass covers every tile, in order.
@@ -436,7 +460,8 @@ function planSetup(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Ar
       for (const i of sample) adoptSvds(kept[i], svds?.get(i));
       return sample.map((i) => kept[i]);
     }
-    const tiles = readTiles(src, spec, fill, sample, tol, undefined, (i) => handed?.get(i) ?? svds?.get(i));
+    // The first pass's own, where it held them (see FirstPass.sampled).
+    const tiles = sampled !== undefined && sample.every((i) => sampled.has(i)) ? sample.map((i) => sampled.get(i)!) : readTiles(src, spec, fill, sample, tol, undefined, (i) => handed?.get(i) ?? svds?.get(i));
     costed = tiles.map((tile, k) => ({ index: sample[k], tile }));
     return tiles;
   };
@@ -447,7 +472,14 @@ function planSetup(src: BandSource, spec: FieldSpec, tol: number, fill: Uint32Ar
       const payload = tile.costed.get(planKey(data, index));
       if (payload !== undefined) made.set(index, payload);
     }
-    return l2Plan(data, fill, (index) => (keep ? kept[index] : undefined), made);
+    // Of a field whose tiles are not kept, the costing's tiles where the first pass held them: each handed once to the encoding pass.
+    const held = new Map(sampled === undefined ? [] : costed.map(({ index, tile }) => [index, tile] as const));
+    const heldTile = (index: number): PreparedTile | undefined => {
+      const t = held.get(index);
+      held.delete(index);
+      return t;
+    };
+    return l2Plan(data, fill, (index) => (keep ? kept[index] : heldTile(index)), made);
   };
   return { tilesAt, finish };
 }

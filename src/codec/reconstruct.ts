@@ -504,9 +504,8 @@ export function predictorBitsOf(sums: Float64Array | null): Float64Array {
   return out;
 }
 
-/** The prediction residual of q with predictor `kind`, or null if one exceeds `limit`. */
-export function predict(q: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo): Int32Array | null {
-  const d = new Int32Array(q.length);
+/** The prediction residual of q with predictor `kind` (into `d`, of q's length: a new grid by default), or null if one exceeds `limit`. */
+export function predict(q: Int32Array, m: number, n: number, limit: number, kind: number = Predictor.Lorenzo, d: Int32Array = new Int32Array(q.length)): Int32Array | null {
   if (kind === Predictor.Blend) {
     // The encoder's WebAssembly kernel where there is one (the same differences; src/wasm/finish.ts).
     const done = blendEncodeKernel(q, null, m, n, limit, true, blendWeights(), d, null);

@@ -211,10 +211,15 @@ function spareGrid(search: SearchScratch | null, cells: number): Int32Array {
   return new Int32Array(cells);
 }
 
-/** `corr` with its predictor's differences formed where they were deferred. */
+/**
+ * `corr` with its predictor's differences formed where they were deferred,
+ * into one of the search's spare code grids (every cell is written) rather
+ * than a new one: of a 1024 x 1024 tile of bench/'s large field, a new grid
+ * took as long as the predictor's kernel.
+ */
 function formed(t: PreparedTile, corr: Correction): Correction {
   if (!corr.deferred || !corr.raw) return corr;
-  return { ...corr, q: predict(corr.raw, t.m, t.n, MAX_INT, corr.predictor)!, deferred: false };
+  return { ...corr, q: predict(corr.raw, t.m, t.n, MAX_INT, corr.predictor, spareGrid(searchGrids, t.m * t.n))!, deferred: false };
 }
 
 /**
