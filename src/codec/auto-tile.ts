@@ -287,7 +287,7 @@ export function spreadTiles(gr: number, gc: number, count: number): number[] {
  * weighed again by their tiles' smallest candidates (see
  * {@link Tried.settle}): a weight that counts a tile's first candidate
  * alone stood up to 3.9% above the smallest's (see DENSE_BITS in
- * tile-encode.ts). On bench/'s turbulence-stack at rel:1e-2 the trial's
+ * pointwise-search.ts). On bench/'s turbulence-stack at rel:1e-2 the trial's
  * 32 x 4096 and 32 x 2048 tiles weighed 264.7 and 266.2 bytes a thousand
  * cells by their smallest candidates, 269.9 and 269.7 by their first; the
  * first weights alone chose 32 x 2048, 140112 bytes against 138863

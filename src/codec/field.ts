@@ -12,7 +12,8 @@ import { measure, measurePrefixes, type TileStats } from './measure.js';
 import { planL2, type L2Plan, type TileSvds } from './plan-l2.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
 import type { FloatArray } from '../types.js';
-import { exactPayload, pointwiseSearch } from './tile-encode.js';
+import { exactPayload } from './tile-encode.js';
+import { pointwiseSearch } from './pointwise-search.js';
 import { forEachTile, termFor, validRange, type BandSource, type FieldSpec } from './tiles.js';
 
 export { forEachTile, tilesOf, memoryBands, termFor, validRange, type BandSource, type FieldSpec } from './tiles.js';

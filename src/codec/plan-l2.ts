@@ -16,14 +16,15 @@ import { keepSvd, prepareTile, type PreparedTile } from './prepare.js';
 import type { Svd } from '../linalg/svd.js';
 import { Method } from './payload.js';
 import { Spectra } from './spectra.js';
-import { encodeL2, encodePointwise, exactPayload, pointwiseFactors, pointwiseSearch, withResidualCoder } from './tile-encode.js';
+import { encodeL2, exactPayload, pointwiseFactors, withResidualCoder } from './tile-encode.js';
+import { encodePointwise, pointwiseSearch } from './pointwise-search.js';
 import { rankZeroForMse, residualForMse } from './rdo.js';
 
 /**
  * The residual plan's rank-0 rate-distortion search is not made for a tile
  * when the payload it must beat is at most this times the estimated size
  * of the pointwise coder's plain rank-0 candidate (its rough bits and a
- * sign bit per non-zero code, see estimateBytes in tile-encode.ts): the
+ * sign bit per non-zero code, see estimateBytes in pointwise-search.ts): the
  * factors' payload is then small against what any rank-0 coding of the
  * tile takes. Measured (issue 10): of the 1035 tiles the residual plan
  * costed in `npm run digest`, the search's payload won on 75, each time
@@ -38,7 +39,7 @@ const ZERO_HOPELESS = 1;
 
 /**
  * The residual plan's pointwise payload is finished (its blend and
- * residual coders tried, see pointwiseSearch in tile-encode.ts) only where
+ * residual coders tried, see pointwiseSearch in pointwise-search.ts) only where
  * its bytes before are at most this times those of the payload with
  * rate-distortion optimised codes over the same factors: finishing made
  * no payload smaller by more than 8.7% (1.087 times) on the 2596

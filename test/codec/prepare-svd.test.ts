@@ -14,7 +14,8 @@ import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { ensureSvd, PARTIAL_RANK, prepareTile, svdRung } from '../../src/codec/prepare.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
-import { correct, encodeL2, encodePointwise, lowRankPayload, pointwiseFactors, pointwiseSearch } from '../../src/codec/tile-encode.js';
+import { correct, encodeL2, lowRankPayload, pointwiseFactors } from '../../src/codec/tile-encode.js';
+import { encodePointwise, pointwiseSearch } from '../../src/codec/pointwise-search.js';
 import { payloadHead } from '../../src/codec/payload.js';
 
 /** A block of vega-datasets 3.2.1 annual-precip.json (NOAA CFSv2 2016 annual precipitation, 360 x 168): rows 20.., columns 30.., no missing cells. */

@@ -16,7 +16,8 @@ import { ensureSvd, type PreparedTile, prepareTile } from '../../src/codec/prepa
 import { PREDICTOR_SUMS, predict, predictorBits, predictorBitsOf } from '../../src/codec/reconstruct.js';
 import { MAX_INT } from '../../src/codec/section.js';
 import { type LowRankPart, settleCodes, unsettledCells } from '../../src/codec/settle.js';
-import { correct, pointwiseFactors, pointwiseSearch } from '../../src/codec/tile-encode.js';
+import { correct, pointwiseFactors } from '../../src/codec/tile-encode.js';
+import { pointwiseSearch } from '../../src/codec/pointwise-search.js';
 import { binary32Below } from '../../src/codec/steps.js';
 import type { Settled } from '../../src/wasm/settle.js';
 import { precip, volcano } from '../archive/datasets.js';

@@ -13,7 +13,7 @@ import { classify, fillWords } from '../../src/codec/mask.js';
 import { measure, measurePrefixes } from '../../src/codec/measure.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { ErrorTally } from '../../src/codec/tally.js';
-import { encodePointwise } from '../../src/codec/tile-encode.js';
+import { encodePointwise } from '../../src/codec/pointwise-search.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
 import { fieldStep } from '../../src/codec/payload.js';
 import { ContainerWriter, FLAG_LAYER, FLAG_SLICES, FLAG_SYMBOLS, MemorySink } from '../../src/format/container.js';
