@@ -8,7 +8,8 @@ import type { FloatArray } from '../types.js';
 import type { Svd } from '../linalg/svd.js';
 import { copyBlock } from '../geometry.js';
 import { classify } from './mask.js';
-import { candidatePlans, costPlans, costPlansAsync, firstPass, keepsTiles, l2Plan, type FirstPass, type L2Plan, type L2PlanData, type TileSvds } from './plan-l2.js';
+import { candidatePlans, costPlans, costPlansAsync, l2Plan, type L2Plan, type L2PlanData } from './plan-l2.js';
+import { firstPass, keepsTiles, type FirstPass, type TileSvds } from './first-pass.js';
 import type { PreparedTile } from './prepare.js';
 import { encodeField, encodeTile, fieldBasis, searchTile, termFor, tileToEncode, type BandSource, type FieldChoices, type FieldSpec, type TileOutcome, type TileSearch } from './field.js';
 

@@ -9,7 +9,8 @@ import { fillWords } from './mask.js';
 import { fieldStep } from './payload.js';
 import { ErrorTally } from './tally.js';
 import { measure, measurePrefixes, type TileStats } from './measure.js';
-import { planL2, type L2Plan, type TileSvds } from './plan-l2.js';
+import { planL2, type L2Plan } from './plan-l2.js';
+import { type TileSvds } from './first-pass.js';
 import { prepareTile, type PreparedTile } from './prepare.js';
 import type { FloatArray } from '../types.js';
 import { exactPayload } from './tile-encode.js';
@@ -105,7 +106,7 @@ export interface FieldPrior {
    * exactly as the encoding pass would): used as it is, not made again.
    */
   plan?: L2Plan;
-  /** The singular values of the tiles the trial sampled, by tile index: the planning pass takes them as they are (see tileSpectrum in plan-l2.ts). */
+  /** The singular values of the tiles the trial sampled, by tile index: the planning pass takes them as they are (see tileSpectrum in first-pass.ts). */
   spectra?: ReadonlyMap<number, Float64Array>;
   /** The SVDs the trial computed of those tiles without missing cells, by tile index: the planning pass takes them as they are (see TileSvds in plan-l2.ts). */
   svds?: TileSvds;

@@ -13,7 +13,7 @@ const SPECTRA_CHUNK = 1 << 20;
  * tiles go first), so every value that a cut could reach is needed, at 8
  * bytes each: at most min(m, n) per tile, 1/32 of a float32 field's bytes
  * at 64 x 64 tiles. A tile may be added with only its smallest values (see
- * `cuttable` in plan-l2.ts); `full` keeps its whole count, the rank no cut has
+ * `cuttable` in first-pass.ts); `full` keeps its whole count, the rank no cut has
  * touched. Tiles are added in tile order, each as soon as its first pass is
  * done.
  */

@@ -13,7 +13,8 @@
  */
 import { tileGrid } from '../geometry.js';
 import { encodeTile, fieldBasis, FieldSummary, type FieldPrior, termFor, tilesOf, tileToEncode, type BandSource, type EncodedTile, type FieldChoices, type FieldResult, type FieldSpec, type TileOutcome } from '../codec/field.js';
-import { costTile, firstPassTile, keepCosted, keepsTiles, l2Plan, planL2Async, SvdHandoff, type FirstPass, type FirstPassTile, type L2Plan, type L2PlanData, type TileSvds } from '../codec/plan-l2.js';
+import { costTile, keepCosted, l2Plan, planL2Async, type L2Plan, type L2PlanData } from '../codec/plan-l2.js';
+import { firstPassTile, keepsTiles, SvdHandoff, type FirstPass, type FirstPassTile, type TileSvds } from '../codec/first-pass.js';
 import { Spectra } from '../codec/spectra.js';
 import type { PreparedTile } from '../codec/prepare.js';
 import type { Svd } from '../linalg/svd.js';

@@ -7,7 +7,7 @@
  * and hold what its join needs (spec/FORMAT.md, "Parts of a run").
  */
 import { encodeTile, FieldSummary, tileToEncode, type BandSource, type EncodedTile, type FieldResult, type FieldSpec } from '../codec/field.js';
-import { firstPassTile } from '../codec/plan-l2.js';
+import { firstPassTile } from '../codec/first-pass.js';
 import { tilesOf } from '../codec/tiles.js';
 import { InputCode, InputError } from '../errors.js';
 import type { Sink } from '../format/container.js';

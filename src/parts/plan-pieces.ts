@@ -31,7 +31,8 @@
 import { basisOf, type BandSource, type FieldSpec } from '../codec/field.js';
 import { RangeWatch, suspectError, type Suspect } from '../codec/fill-guard.js';
 import { fillWords } from '../codec/mask.js';
-import { chooseL2, cuttable, firstPassTile, readTiles, sampleTiles } from '../codec/plan-l2.js';
+import { chooseL2, readTiles } from '../codec/plan-l2.js';
+import { cuttable, firstPassTile, sampleTiles } from '../codec/first-pass.js';
 import { Spectra } from '../codec/spectra.js';
 import { tilesOf, validRange, tileGrid } from '../codec/tiles.js';
 import { InputCode, InputError } from '../errors.js';

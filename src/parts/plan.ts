@@ -19,7 +19,8 @@ import { createHash } from 'node:crypto';
 import { chooseTile } from '../codec/auto-tile.js';
 import { fieldBasis, type BandSource, type FieldChoices, type FieldSpec } from '../codec/field.js';
 import { fillWords } from '../codec/mask.js';
-import { keepsTiles, l2Plan, planL2, type L2PlanData } from '../codec/plan-l2.js';
+import { l2Plan, planL2, type L2PlanData } from '../codec/plan-l2.js';
+import { keepsTiles } from '../codec/first-pass.js';
 import { isPointwise } from '../codec/bound.js';
 import { tileGrid } from '../codec/tiles.js';
 import { crc32, crc32Combiner } from '../format/crc32.js';
@@ -76,7 +77,7 @@ export interface RunPlan {
   field: PlanField;
   /** The L2 plan (rmse, psnr bounds), or null. */
   l2: L2PlanData | null;
-  /** Whether the encoder prepares each tile as the L2 first pass does (fields up to plan-l2's size for keeping tiles), as a single pack does. */
+  /** Whether the encoder prepares each tile as the L2 first pass does (fields up to first-pass.ts's size for keeping tiles), as a single pack does. */
   keep: boolean;
 }
 

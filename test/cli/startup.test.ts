@@ -15,7 +15,7 @@ const dist = (f: string) => join(ROOT, 'dist', f);
 /** Modules of the static graph of `entry` among `modules`, as paths within dist/. */
 const reached = (entry: string, modules: string[]) => walk(dist(entry), false).files.filter((f) => modules.map(dist).includes(f)).map((f) => relative(dist(''), f));
 
-const ENCODER = ['pack.js', 'layout.js', 'codec/tile-encode.js', 'codec/pointwise-search.js', 'codec/code-encode.js', 'codec/plan-l2.js', 'linalg/svd.js', 'parallel/encode.js'];
+const ENCODER = ['pack.js', 'layout.js', 'codec/tile-encode.js', 'codec/pointwise-search.js', 'codec/code-encode.js', 'codec/plan-l2.js', 'codec/first-pass.js', 'linalg/svd.js', 'parallel/encode.js'];
 const COMMANDS = ['pack', 'unpack', 'show', 'check', 'demo', 'preview', 'trial', 'view', 'plan', 'join'].map((c) => `cli/${c}.js`);
 
 describe('start-up of the command line', () => {
