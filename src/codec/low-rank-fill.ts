@@ -200,8 +200,13 @@ function lineProducts(full: Float64Array, codes: Uint8Array | null, base: number
     if (r > 4) b4 += xc * fixed[f + 4];
     if (r > 5) b5 += xc * fixed[f + 5];
   }
-  const sums = [b0, b1, b2, b3, b4, b5];
-  for (let k = 0; k < r; k++) b[k] = sums[k];
+  // Stored without an array of the six: this runs once a line, every sweep.
+  if (r > 0) b[0] = b0;
+  if (r > 1) b[1] = b1;
+  if (r > 2) b[2] = b2;
+  if (r > 3) b[3] = b3;
+  if (r > 4) b[4] = b4;
+  if (r > 5) b[5] = b5;
 }
 
 /** Add sign x f f^T to the lower triangle of g, where f is fixed[at .. at + r). */
