@@ -285,7 +285,9 @@ export class ArchiveBuilder {
   /**
    * Encode and append one field read band by band (rows [r0, r0 + count) at
    * a time), so its whole values never need to be in memory. `band` may be
-   * called more than once for the same rows (range pass, L2 planning).
+   * called more than once for the same rows (range pass, L2 planning). It
+   * may return a view of one buffer that it fills again at every call: the
+   * encoder is done with a band before it asks for the next.
    */
   addBands(band: (r0: number, count: number) => FloatArray, shape: readonly number[], dtype: Dtype, o: PackOptions): FieldHeader {
     this.refuseAfterFinish(checkOptions(o).name);

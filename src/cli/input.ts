@@ -5,7 +5,7 @@
  */
 import { InputError } from '../errors.js';
 import type { Dtype, FloatArray } from '../types.js';
-import { openNpyBands, openRawBands, type BandReader } from '../io/bands.js';
+import { openNpyBands, openRawBands, type BandOptions, type BandReader } from '../io/bands.js';
 import { openRegular } from '../io/regular-file.js';
 import { SNIFF_BYTES, sniffFormat } from '../io/sniff.js';
 import { fileError, UsageError } from './errors.js';
@@ -85,12 +85,12 @@ export function checkLayout(
  * with the raw reader's message noting a file that starts like .npy. The
  * caller closes the reader. File system errors are phrased with the path.
  */
-export async function openFieldBands(path: string, given: RawLayout, kind?: InputKind, defaults?: { shape: number[]; dtype: Dtype }): Promise<BandReader> {
+export async function openFieldBands(path: string, given: RawLayout, kind?: InputKind, defaults?: { shape: number[]; dtype: Dtype }, options: BandOptions = {}): Promise<BandReader> {
   const layout = checkLayout(path, given, defaults, kind);
   try {
-    if (layout === null) return openNpyBands(path);
+    if (layout === null) return openNpyBands(path, options);
     try {
-      return openRawBands(path, layout.shape, layout.dtype, layout.endian);
+      return openRawBands(path, layout.shape, layout.dtype, layout.endian, options);
     } catch (e) {
       if (e instanceof InputError) {
         const head = await readHead(path, NPY_MAGIC.length);

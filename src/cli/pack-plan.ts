@@ -74,7 +74,8 @@ export async function packPlannedCli(input: string, kind: InputKind, flags: Pack
   const plan = parsePlan(new TextDecoder().decode(await readInput(flags.plan)), flags.plan);
   const io = { force: flags.force === true, inputs: [input, flags.plan] };
   await checkOutput(flags.output, io);
-  const field = await openFieldBands(input, layout, kind);
+  // The encoder uses each band before it asks for the next (BandSource), so one buffer serves them all.
+  const field = await openFieldBands(input, layout, kind, undefined, { reuse: true });
   const f = plan.field;
   let range: PartRange;
   try {

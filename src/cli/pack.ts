@@ -151,7 +151,8 @@ async function packArray(input: string, kind: InputKind, flags: PackFlags & { bo
   checkLayout(input, layout, undefined, kind);
   const io = { force: flags.force === true, inputs: [input] };
   await checkOutput(flags.output, io);
-  const field = await openFieldBands(input, layout, kind);
+  // The encoder uses each band before it asks for the next (BandSource), so one buffer serves them all.
+  const field = await openFieldBands(input, layout, kind, undefined, { reuse: true });
   let grid: ArrayGrid;
   try {
     grid = arrayGrid(field.ndShape, flags.matrix, flags.layout, input);

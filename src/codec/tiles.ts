@@ -69,7 +69,12 @@ export function missingTest(spec: Pick<FieldSpec, 'fill' | 'dtype'>): (v: number
  * larger than memory can be packed one band of tiles at a time.
  */
 export interface BandSource {
-  /** Rows [r0, r0 + count) as row-major values of the field's dtype. */
+  /**
+   * Rows [r0, r0 + count) as row-major values of the field's dtype. The
+   * encoder is done with a band (its tiles copied out, its values counted)
+   * before it asks for the next, so a source may hand out views of one
+   * buffer that it fills again at every call.
+   */
   band(r0: number, count: number): FloatArray;
 }
 

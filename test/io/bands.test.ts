@@ -8,12 +8,12 @@ import { appendFileSync, mkdtempSync, readFileSync, rmSync, truncateSync, utimes
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
-import { ArchiveBuilder, InputCode, InputError, MemorySink, open, pack } from '../../src/index.js';
+import { ArchiveBuilder, InputCode, InputError, MemorySink, open, pack, packAsync } from '../../src/index.js';
 import { NpyBandWriter, openNpyBands, openRawBands } from '../../src/io/bands.js';
 import { FileSink } from '../../src/io/file-sink.js';
 import { formatNpy, parseNpy } from '../../src/io/npy.js';
 import { formatRaw, parseRaw } from '../../src/io/raw.js';
-import { volcano } from '../archive/datasets.js';
+import { precip, volcano } from '../archive/datasets.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'rankfield-bands-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
@@ -118,6 +118,57 @@ describe('band readers', () => {
       expect(() => r.band(0, 1)).toThrow(InputError);
     }
   });
+
+  it.each([
+    ['<f4', false],
+    ['>f8', false],
+    ['<f8', true],
+  ] as const)('.npy %s fortran=%s with reuse: every band equals the same rows, read into one buffer', (descr, fortran) => {
+    const file = join(dir, `reuse-${descr.replace(/[<>]/, (c) => (c === '<' ? 'le' : 'be'))}-${fortran}.npy`);
+    const bytes = handNpy(g.values, g.shape, descr, fortran);
+    writeFileSync(file, bytes);
+    const whole = parseNpy(bytes, file);
+    const r = openNpyBands(file, { reuse: true });
+    try {
+      // The largest band first: the later ones fit in its buffer.
+      const first = r.band(0, 61);
+      expect(bits(first)).toEqual(bits(whole.data));
+      for (const [r0, count] of [[0, 1], [60, 1], [16, 16], [48, 13], [5, 0], [3, 58]]) {
+        const b = r.band(r0, count);
+        expect(b.buffer, `rows ${r0}+${count}: the same buffer`).toBe(first.buffer);
+        expect(bits(b), `rows ${r0}+${count}`).toEqual(bits(rowsOf(whole.data, 87, r0, count)));
+      }
+    } finally {
+      r.close();
+    }
+    expect(() => r.band(0, 1)).toThrow(InputError);
+  });
+
+  it('an archive packed from a reader with reuse is the one packed from the values in memory', async () => {
+    // vega-datasets annual-precip (168 x 360, see ../archive/datasets.ts): the tile trial reads bands of
+    // several heights, the L2 plan reads bands again; the encoder must be done with each band before the next.
+    const p = precip();
+    const file = join(dir, 'precip.npy');
+    const values = Float32Array.from(p.values);
+    writeFileSync(file, formatNpy({ data: values, shape: p.shape, dtype: 'f32' }));
+    for (const o of [{ bound: 'rel:1e-3' }, { bound: 'psnr:60' }, { bound: 'abs:0.5', tile: 32 }]) {
+      const want = pack(values, p.shape, o);
+      for (const threads of [1, 2]) {
+        const r = openNpyBands(file, { reuse: true });
+        try {
+          const sink = new MemorySink();
+          const b = new ArchiveBuilder(sink);
+          if (threads === 1) b.addBands((r0, count) => r.band(r0, count), p.shape, 'f32', o);
+          else await b.addBandsAsync((r0, count) => r.band(r0, count), p.shape, 'f32', { ...o, threads });
+          b.finish();
+          expect(sink.bytes(), `${o.bound} threads ${threads}`).toEqual(want);
+        } finally {
+          r.close();
+        }
+      }
+    }
+    expect(await packAsync(values, p.shape, { bound: 'rel:1e-3', threads: 2 })).toEqual(pack(values, p.shape, { bound: 'rel:1e-3' }));
+  }, 30_000);
 
   it('reads only the header and the rows asked for (C order)', () => {
     const file = join(dir, 'count.npy');
