@@ -216,7 +216,8 @@ function speedTargets(info: RunInfo): string[] {
   if (s) {
     const enc = s.rows.filter((r) => r.id !== 'volcano');
     out.push(`- encode at ${s.bound} >= 1.0x fflate deflate-6 per thread (${enc.map((r) => r.id).join(', ')}; volcano, 21 kB of values, is in the table below but not counted, its times being mostly fixed costs): ${mark(enc.length > 0 && enc.every((r) => r.enc1 >= r.deflate))} (${enc.map((r) => `${r.id} ${x(r.enc1 / r.deflate)}`).join(', ')})`);
-    out.push(`- encode with 2 threads >= 1.7x 1 thread (same fields; threads started per call, as one command): ${mark(enc.length > 0 && enc.every((r) => r.enc2 >= 1.7 * r.enc1))} (${enc.map((r) => `${r.id} ${x(r.enc2 / r.enc1)}, warm pool ${x(r.enc2w / r.enc1)}`).join('; ')}; two CPU-bound threads got ${x(s.ceiling)} here)`);
+    const whole = s.pack ? `; as whole \`pack\` processes of the ${s.pack.field} field's .npy, --threads 2 / --threads 1 ${x(s.pack.whole.ms1 / s.pack.whole.ms2)}` : '';
+    out.push(`- encode with 2 threads >= 1.7x 1 thread (same fields; threads started per call, as one command): ${mark(enc.length > 0 && enc.every((r) => r.enc2 >= 1.7 * r.enc1))} (${enc.map((r) => `${r.id} ${x(r.enc2 / r.enc1)}, warm pool ${x(r.enc2w / r.enc1)}`).join('; ')}${whole}; two CPU-bound threads got ${x(s.ceiling)} here)`);
     out.push(`- decode >= 1.0x fflate inflate per thread in the library: ${mark(s.rows.length > 0 && s.rows.every((r) => r.dec1 >= r.inflate))} (${s.rows.map((r) => `${r.id} ${x(r.dec1 / r.inflate)}`).join(', ')})`);
     if (s.unpack) {
       const w = s.unpack.whole;

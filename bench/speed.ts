@@ -4,7 +4,7 @@
  * encode and decode MB/s of rankfield with 1 and 2 worker threads beside
  * fflate DEFLATE level 6 and INFLATE of the same raw float32 bytes in the
  * same process (medians), and the wall time of whole `node bin/rankfield
- * unpack` processes writing .npy.
+ * unpack` processes writing .npy and of whole `pack` processes reading it.
  *
  * Encoding with 1 thread is pack() (the calling thread); with 2, packAsync()
  * (worker start-up included, as in one command), and again with a pool of two
@@ -14,13 +14,14 @@
  * per second.
  */
 import { spawnSync } from 'node:child_process';
-import { mkdtempSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { deflateSync, inflateSync } from 'fflate';
 import { open, pack, packAsync, readBands, WorkerPool } from '../src/index.js';
+import { formatNpy } from '../src/io/npy.js';
 import { median, timedRounds } from './timing.js';
 import { boundSpeeds, boundSpeedTable, type BoundSpeedRow } from './bound-speed.js';
 import type { BenchField } from './fields.js';
@@ -133,6 +134,46 @@ export function wholeUnpack(archive: Uint8Array, rawBytes: number, runs: number)
   }
 }
 
+/** Whole `pack` processes (start-up, reading the .npy band by band and writing the archive included). */
+export interface WholePack {
+  npyBytes: number;
+  archiveBytes: number;
+  runs: number;
+  /** Median wall ms with --threads 1 and --threads 2. */
+  ms1: number;
+  ms2: number;
+  /** MB/s of raw float32 values with 1 and 2 threads. */
+  mbs1: number;
+  mbs2: number;
+  /** The two thread counts wrote the same archive. */
+  same: boolean;
+}
+
+/**
+ * Median wall time of `node bin/rankfield pack FIELD.npy -o OUT --bound B --threads T`
+ * for T = 1 and 2, alternated run by run (so that the host's drift moves both alike).
+ */
+export function wholePack(values: Float32Array, rows: number, cols: number, bound: string, runs: number): WholePack {
+  const dir = mkdtempSync(join(tmpdir(), 'rankfield-speed-'));
+  try {
+    const npy = join(dir, 'field.npy');
+    writeFileSync(npy, formatNpy({ data: values, shape: [rows, cols], dtype: 'f32' }));
+    const out = (t: number) => join(dir, `out-${t}.rfz`);
+    const t1: number[] = [];
+    const t2: number[] = [];
+    for (let i = 0; i < runs; i++) {
+      for (const [t, times] of [[1, t1], [2, t2]] as const) times.push(cli(['pack', npy, '-o', out(t), '--bound', bound, '--threads', String(t), '--force']));
+    }
+    const a = readFileSync(out(1));
+    const same = a.equals(readFileSync(out(2)));
+    const ms1 = median(t1);
+    const ms2 = median(t2);
+    return { npyBytes: statSync(npy).size, archiveBytes: a.length, runs, ms1, ms2, mbs1: mbps(values.byteLength, ms1), mbs2: mbps(values.byteLength, ms2), same };
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+}
+
 /**
  * What two threads can gain here now: the same CPU-bound loop on one worker,
  * then on two at once (each doing the whole loop); the ratio of throughputs
@@ -164,6 +205,8 @@ export interface SpeedRun {
   l2?: ThreadRow[];
   /** On the large field; null when the run has none. */
   unpack: { field: string; whole: WholeUnpack; inflate: number } | null;
+  /** On the large field, against fflate deflate in the same run; absent in runs made before it. */
+  pack?: { field: string; whole: WholePack; deflate: number } | null;
   /** Every field's one-thread packs at the pointwise and the L2 bounds (bench/bound-speed.ts); absent in runs made before it. */
   bounds?: BoundSpeedRow[];
 }
@@ -189,22 +232,28 @@ export function speedTable(s: SpeedRun): string[] {
     out.push('');
     out.push(`Whole process: \`node bin/rankfield unpack\` of the ${s.unpack.field} field's archive (${w.archiveBytes} bytes) to .npy (${w.npyBytes} bytes), start-up included, median of ${w.runs}: --threads 1 ${w.ms1.toFixed(0)} ms = ${fmt(w.mbs1)} MB/s = ${x(w.mbs1, s.unpack.inflate)} fflate inflate in the same run; --threads 2 ${w.ms2.toFixed(0)} ms = ${fmt(w.mbs2)} MB/s = ${x(w.mbs2, s.unpack.inflate)} inflate, ${x(w.ms1, w.ms2)} one thread.`);
   }
+  if (s.pack) {
+    const w = s.pack.whole;
+    out.push('');
+    out.push(`Whole process: \`node bin/rankfield pack\` of the ${s.pack.field} field as .npy (${w.npyBytes} bytes) at ${s.bound}, start-up, reading and writing the archive (${w.archiveBytes} bytes) included, 1 and 2 threads alternated, median of ${w.runs}: --threads 1 ${w.ms1.toFixed(0)} ms = ${fmt(w.mbs1)} MB/s = ${x(w.mbs1, s.pack.deflate)} fflate deflate-6 in this thread in the same run; --threads 2 ${w.ms2.toFixed(0)} ms = ${fmt(w.mbs2)} MB/s, ${x(w.ms1, w.ms2)} one thread; the same archive with both: ${w.same ? 'yes' : 'NO'}.`);
+  }
   return out;
 }
 
 /**
  * The speed measurements on the large field and the real grids (volcano,
  * annual-precip) among `fields`: the small grids take more runs, as they run
- * in milliseconds; the whole-process unpack on the large field.
+ * in milliseconds; the whole-process unpack and pack on the large field.
  */
 export async function runSpeed(fields: readonly BenchField[], bound: string, runs: number, progress: (id: string) => void): Promise<SpeedRun> {
-  const run: SpeedRun = { bound, ceiling: await ceiling(), rows: [], l2: [], unpack: null };
+  const run: SpeedRun = { bound, ceiling: await ceiling(), rows: [], l2: [], unpack: null, pack: null };
   for (const f of fields.filter((g) => g.large || g.id === 'volcano' || g.id === 'annual-precip')) {
     // The small grids run in milliseconds: 5 times the runs, after a warm-up.
     const { row, archive } = await measureThreads(f.id, f.values, f.rows, f.cols, bound, f.large ? runs : 5 * runs, f.large ? 0 : SMALL_WARM_MS);
     run.rows.push(row);
     if (f.large) {
       run.unpack = { field: f.id, whole: wholeUnpack(archive, f.values.byteLength, runs), inflate: row.inflate };
+      run.pack = { field: f.id, whole: wholePack(f.values, f.rows, f.cols, bound, runs), deflate: row.deflate };
       if (bound !== L2_BOUND) run.l2!.push((await measureThreads(`${f.id} at ${L2_BOUND}`, f.values, f.rows, f.cols, L2_BOUND, runs)).row);
     }
     progress(f.id);

@@ -5,7 +5,8 @@
  * and INFLATE of the same raw float32 bytes in the same process (medians of
  * several runs), on the large 4096 x 4096 bench field and the vega-datasets
  * volcano and annual-precip grids; then the wall time of whole
- * `node bin/rankfield unpack` processes writing the large field to .npy with
+ * `node bin/rankfield unpack` processes writing the large field to .npy, and
+ * of whole `node bin/rankfield pack` processes reading it from .npy, with
  * 1 and 2 threads. What is measured and how: bench/speed.ts.
  *
  *   npx tsc -p . && npx tsc -p tsconfig.bench.json && node bench/dist/bench/threads.js [--runs N] [--bound B] [--quick] [--json]
