@@ -3,7 +3,7 @@
  * fill (fill.ts), the missing cells are refitted so that they continue the
  * tile's low-rank structure, which keeps a land mask from adding rank.
  */
-import { solveSpd } from '../linalg/spd.js';
+import { factorSpd, solveFactored } from '../linalg/spd.js';
 import { svd } from '../linalg/svd.js';
 import { truncatedSvd } from '../linalg/truncated.js';
 import { Cell } from './mask.js';
@@ -133,14 +133,23 @@ function side(x: Float64Array, codes: Uint8Array, m: number, n: number, byCol: b
  *
  * The normal matrix of a line is the Gram matrix of all of `fixed`, computed
  * once, less the rows at its missing cells (or, for a line missing most of
- * its cells, summed over its valid cells). With `resid`, returns the sum of
- * squared residuals over the valid cells after the update (else 0).
+ * its cells, summed over its valid cells). Each normal matrix is factored
+ * once (solveSpd's factorization, the same bits): the Gram matrix's for
+ * every line it serves, and a line's own for the lines after it with the
+ * same missing cells (in a time x space stack whose mask does not change in
+ * time, every snapshot's). With `resid`, returns the sum of squared
+ * residuals over the valid cells after the update (else 0).
  */
 function alsHalf(s: Side, fixed: Float64Array, out: Float64Array, r: number, resid: boolean): number {
   const { lines, len, full, codes, seen, missPtr, missIdx } = s;
   const gram = new Float64Array(r * r);
   for (let e = 0; e < len; e++) addOuter(gram, fixed, e * r, r, 1);
+  symmetrize(gram, r);
+  const whole = factorSpd(gram, r);
   const g = new Float64Array(r * r);
+  const own = factorSpd(g, r);
+  // The line whose missing cells `own` was factored for (none yet).
+  let ownOf = -1;
   const b = new Float64Array(r);
   let sq = 0;
   for (let a = 0; a < lines; a++) {
@@ -149,20 +158,42 @@ function alsHalf(s: Side, fixed: Float64Array, out: Float64Array, r: number, res
     lineProducts(full, all ? null : codes, base, len, fixed, r, b);
     const missing = len - seen[a];
     if (all || missing === 0) {
-      g.set(gram);
-    } else if (missing < seen[a]) {
-      g.set(gram);
-      for (let p = missPtr[a]; p < missPtr[a + 1]; p++) addOuter(g, fixed, missIdx[p] * r, r, -1);
+      solveFactored(whole, b, 1);
     } else {
-      g.fill(0);
-      for (let e = 0; e < len; e++) if (codes[base + e] === Cell.Valid) addOuter(g, fixed, e * r, r, 1);
+      if (ownOf < 0 || !sameMissing(s, ownOf, a)) {
+        if (missing < seen[a]) {
+          g.set(gram);
+          for (let p = missPtr[a]; p < missPtr[a + 1]; p++) addOuter(g, fixed, missIdx[p] * r, r, -1);
+        } else {
+          g.fill(0);
+          for (let e = 0; e < len; e++) if (codes[base + e] === Cell.Valid) addOuter(g, fixed, e * r, r, 1);
+        }
+        symmetrize(g, r);
+        factorSpd(g, r, own);
+        ownOf = a;
+      }
+      solveFactored(own, b, 1);
     }
-    for (let k = 0; k < r; k++) for (let l = 0; l < k; l++) g[l * r + k] = g[k * r + l];
-    solveSpd(g, r, b, 1);
     if (b.every(Number.isFinite)) out.set(b, a * r);
     if (resid) sq += lineResidual(s, a, fixed, out, r);
   }
   return sq;
+}
+
+/** Copy the lower triangle of the r x r matrix g onto its upper one. */
+function symmetrize(g: Float64Array, r: number): void {
+  for (let k = 0; k < r; k++) for (let l = 0; l < k; l++) g[l * r + k] = g[k * r + l];
+}
+
+/** Whether lines a0 and a of `s` miss the same cells (and so have the same normal matrix in {@link alsHalf}). */
+function sameMissing(s: Side, a0: number, a: number): boolean {
+  const { missPtr, missIdx } = s;
+  const count = missPtr[a + 1] - missPtr[a];
+  if (missPtr[a0 + 1] - missPtr[a0] !== count) return false;
+  const p0 = missPtr[a0];
+  const p = missPtr[a];
+  for (let k = 0; k < count; k++) if (missIdx[p0 + k] !== missIdx[p + k]) return false;
+  return true;
 }
 
 /**
