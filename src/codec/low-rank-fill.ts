@@ -212,6 +212,7 @@ function alsHalf(s: Side, fixed: Float64Array, out: Float64Array, r: number, res
   for (let e = 0; e < len; e++) addOuter(gram, fixed, e * r, r, 1);
   symmetrize(gram, r);
   const whole = factorSpd(gram, r);
+  const lanes = wide(fixed, len, r);
   const g = new Float64Array(r * r);
   const own = factorSpd(g, r);
   // The line whose missing cells `own` was factored for (none yet).
@@ -221,7 +222,7 @@ function alsHalf(s: Side, fixed: Float64Array, out: Float64Array, r: number, res
   for (let a = 0; a < lines; a++) {
     const all = seen[a] <= r;
     const base = a * len;
-    lineProducts(full, all ? null : codes, base, len, fixed, r, b);
+    lineProducts(full, all ? null : codes, base, len, lanes, r, b);
     const missing = len - seen[a];
     if (all || missing === 0) {
       solveFactored(whole, b, 1);
@@ -241,7 +242,7 @@ function alsHalf(s: Side, fixed: Float64Array, out: Float64Array, r: number, res
       solveFactored(own, b, 1);
     }
     if (b.every(Number.isFinite)) out.set(b, a * r);
-    if (resid) sq += lineResidual(s, a, fixed, out, r);
+    if (resid) sq += lineResidual(s, a, lanes, out, r);
   }
   return sq;
 }
@@ -263,42 +264,46 @@ function sameMissing(s: Side, a0: number, a: number): boolean {
 }
 
 /**
- * b[k] = the sum over the line's cells e (its valid ones, or all with
- * `codes` null) of x_e fixed[e r + k], in ascending e from 0. Up to rank 6
- * (IMPUTE_MAX_RANK) the sums are kept in locals: the same products added in
- * the same order, and the same values, as summing into b; b is written
- * once at the end (summed into b cell by cell, this loop took a quarter of
- * a psnr:60 pack of bench/'s basin-stack).
+ * A factor (len rows of r values) laid out LANES values a row, its values
+ * first and zeros after: the line loops below then take six products a cell
+ * without a test of the rank for each. A product with a zero adds +0 to a
+ * sum that started from +0 (never -0) and so leaves it as it is, and the
+ * sums past the rank are not used: the same values as r products a cell.
  */
-function lineProducts(full: Float64Array, codes: Uint8Array | null, base: number, len: number, fixed: Float64Array, r: number, b: Float64Array): void {
-  if (r > 6) {
-    b.fill(0);
-    for (let e = 0; e < len; e++) {
-      if (codes !== null && codes[base + e] !== Cell.Valid) continue;
-      const xc = full[base + e];
-      for (let k = 0; k < r; k++) b[k] += xc * fixed[e * r + k];
-    }
-    return;
-  }
+function wide(fixed: Float64Array, len: number, r: number): Float64Array {
+  // Internal assertion: ranks stop at IMPUTE_MAX_RANK.
+  if (r > LANES) throw new Error(`low-rank fill at rank ${r}, above ${LANES}`);
+  const w = new Float64Array(len * LANES);
+  for (let e = 0; e < len; e++) for (let k = 0; k < r; k++) w[e * LANES + k] = fixed[e * r + k];
+  return w;
+}
+
+/**
+ * b[k] = the sum over the line's cells e (its valid ones, or all with
+ * `codes` null) of x_e fixed_e,k, in ascending e from 0, for k < r (`w`:
+ * the fixed factor laid out by {@link wide}). The sums are kept in locals
+ * and b is written once at the end (summed into b cell by cell, this loop
+ * took a quarter of a psnr:60 pack of bench/'s basin-stack).
+ */
+function lineProducts(full: Float64Array, codes: Uint8Array | null, base: number, len: number, w: Float64Array, r: number, b: Float64Array): void {
   let b0 = 0;
   let b1 = 0;
   let b2 = 0;
   let b3 = 0;
   let b4 = 0;
   let b5 = 0;
-  for (let e = 0; e < len; e++) {
+  for (let e = 0, f = 0; e < len; e++, f += LANES) {
     if (codes !== null && codes[base + e] !== Cell.Valid) continue;
     const xc = full[base + e];
-    const f = e * r;
-    if (r > 0) b0 += xc * fixed[f];
-    if (r > 1) b1 += xc * fixed[f + 1];
-    if (r > 2) b2 += xc * fixed[f + 2];
-    if (r > 3) b3 += xc * fixed[f + 3];
-    if (r > 4) b4 += xc * fixed[f + 4];
-    if (r > 5) b5 += xc * fixed[f + 5];
+    b0 += xc * w[f];
+    b1 += xc * w[f + 1];
+    b2 += xc * w[f + 2];
+    b3 += xc * w[f + 3];
+    b4 += xc * w[f + 4];
+    b5 += xc * w[f + 5];
   }
   // Stored without an array of the six: this runs once a line, every sweep.
-  if (r > 0) b[0] = b0;
+  b[0] = b0;
   if (r > 1) b[1] = b1;
   if (r > 2) b[2] = b2;
   if (r > 3) b[3] = b3;
@@ -314,39 +319,26 @@ function addOuter(g: Float64Array, fixed: Float64Array, at: number, r: number, s
   }
 }
 
-/** Sum of squared residuals x - (out_a . fixed_e) over the valid cells of line a. */
-function lineResidual(s: Side, a: number, fixed: Float64Array, out: Float64Array, r: number): number {
+/**
+ * Sum of squared residuals x - (out_a . fixed_e) over the valid cells of
+ * line a (`w`: the fixed factor laid out by {@link wide}; the line's factor
+ * in locals, zeros past the rank): each dot product summed from +0 in
+ * ascending k.
+ */
+function lineResidual(s: Side, a: number, w: Float64Array, out: Float64Array, r: number): number {
   const { len, codes, full } = s;
   const base = a * len;
   const o = a * r;
   let sq = 0;
-  if (r > 6) {
-    for (let e = 0; e < len; e++) {
-      if (codes[base + e] !== Cell.Valid) continue;
-      let sum = 0;
-      for (let k = 0; k < r; k++) sum += out[o + k] * fixed[e * r + k];
-      const d = full[base + e] - sum;
-      sq += d * d;
-    }
-    return sq;
-  }
-  // Up to rank 6 (IMPUTE_MAX_RANK) the line's factor in locals: the same products summed in the same order.
   const o0 = out[o];
   const o1 = r > 1 ? out[o + 1] : 0;
   const o2 = r > 2 ? out[o + 2] : 0;
   const o3 = r > 3 ? out[o + 3] : 0;
   const o4 = r > 4 ? out[o + 4] : 0;
   const o5 = r > 5 ? out[o + 5] : 0;
-  for (let e = 0; e < len; e++) {
+  for (let e = 0, f = 0; e < len; e++, f += LANES) {
     if (codes[base + e] !== Cell.Valid) continue;
-    const f = e * r;
-    let sum = 0;
-    if (r > 0) sum += o0 * fixed[f];
-    if (r > 1) sum += o1 * fixed[f + 1];
-    if (r > 2) sum += o2 * fixed[f + 2];
-    if (r > 3) sum += o3 * fixed[f + 3];
-    if (r > 4) sum += o4 * fixed[f + 4];
-    if (r > 5) sum += o5 * fixed[f + 5];
+    const sum = 0 + o0 * w[f] + o1 * w[f + 1] + o2 * w[f + 2] + o3 * w[f + 3] + o4 * w[f + 4] + o5 * w[f + 5];
     const d = full[base + e] - sum;
     sq += d * d;
   }
@@ -355,8 +347,9 @@ function lineResidual(s: Side, a: number, fixed: Float64Array, out: Float64Array
 
 /** Sum of squared residuals of U V^T over the valid cells (by columns: `s` is the columns' side). */
 function misfit(s: Side, u: Float64Array, v: Float64Array, r: number): number {
+  const w = wide(u, s.len, r);
   let sq = 0;
-  for (let a = 0; a < s.lines; a++) sq += lineResidual(s, a, u, v, r);
+  for (let a = 0; a < s.lines; a++) sq += lineResidual(s, a, w, v, r);
   return sq;
 }
 
@@ -372,6 +365,8 @@ const ALS_BUDGET = 240;
 const ALS_PATIENCE = 40;
 const ALS_DONE = 0.01;
 const IMPUTE_MAX_RANK = 6;
+/** Values a row of a factor laid out by {@link wide}: IMPUTE_MAX_RANK. */
+const LANES = 6;
 /** The RMS misfit over the valid cells, in tolerances, that a fit must reach for its rank to fill the missing cells. */
 const FIT_TARGET = 0.5;
 /**
