@@ -172,10 +172,17 @@ function side(x: Float64Array, codes: Uint8Array, m: number, n: number, byCol: b
   if (byCol) {
     full = new Float64Array(m * n);
     lineCodes = new Uint8Array(m * n);
-    for (let i = 0; i < m; i++) {
-      for (let j = 0; j < n; j++) {
-        full[j * m + i] = x[i * n + j];
-        lineCodes[j * m + i] = codes[i * n + j];
+    // Transposed a block of TRANSPOSE_BLOCK x TRANSPOSE_BLOCK cells at a time, so that the writes of a block stay in the cache.
+    for (let i0 = 0; i0 < m; i0 += TRANSPOSE_BLOCK) {
+      const i1 = Math.min(m, i0 + TRANSPOSE_BLOCK);
+      for (let j0 = 0; j0 < n; j0 += TRANSPOSE_BLOCK) {
+        const j1 = Math.min(n, j0 + TRANSPOSE_BLOCK);
+        for (let i = i0; i < i1; i++) {
+          for (let j = j0; j < j1; j++) {
+            full[j * m + i] = x[i * n + j];
+            lineCodes[j * m + i] = codes[i * n + j];
+          }
+        }
       }
     }
   }
@@ -365,6 +372,8 @@ const ALS_BUDGET = 240;
 const ALS_PATIENCE = 40;
 const ALS_DONE = 0.01;
 const IMPUTE_MAX_RANK = 6;
+/** Side of the blocks of cells {@link side} transposes at a time. */
+const TRANSPOSE_BLOCK = 32;
 /** Values a row of a factor laid out by {@link wide}: IMPUTE_MAX_RANK. */
 const LANES = 6;
 /** The RMS misfit over the valid cells, in tolerances, that a fit must reach for its rank to fill the missing cells. */
