@@ -78,72 +78,9 @@ export function qrcp(w: Float64Array, rows: number, cols: number, drop2: number)
 /**
  * Overwrites the column-major rows x ncols matrix y (rows >= rank) with
  * Q * y, where Q = H_0 ... H_{rank-1} is stored in w and tau as left by
- * {@link qrcp}. Each column's dot product with a reflector is summed in
- * ascending row from its entry at row i, and a column whose sum is 0 is
- * left as it is; four columns per pass share the loads of the reflector
- * (four independent sums: a column at a time, each sum waited on the one
- * before it).
+ * {@link qrcp}: each reflector applied by reflect, four columns a pass,
+ * a column whose dot product with it is 0 left as it is.
  */
 export function applyQ(w: Float64Array, rows: number, f: Qrcp, y: Float64Array, ncols: number): void {
-  for (let i = f.rank - 1; i >= 0; i--) {
-    const ti = f.tau[i];
-    if (ti === 0) continue;
-    const ci = i * rows;
-    let c = 0;
-    for (; c + 3 < ncols; c += 4) {
-      const y0 = c * rows;
-      const y1 = y0 + rows;
-      const y2 = y1 + rows;
-      const y3 = y2 + rows;
-      let s0 = y[y0 + i];
-      let s1 = y[y1 + i];
-      let s2 = y[y2 + i];
-      let s3 = y[y3 + i];
-      for (let t = i + 1; t < rows; t++) {
-        const wt = w[ci + t];
-        s0 += wt * y[y0 + t];
-        s1 += wt * y[y1 + t];
-        s2 += wt * y[y2 + t];
-        s3 += wt * y[y3 + t];
-      }
-      if (s0 === 0 || s1 === 0 || s2 === 0 || s3 === 0) {
-        // A zero sum leaves its column alone (an update by 0 could turn a -0 entry into +0).
-        reflectColumn(w, rows, i, ti, y, y0, s0);
-        reflectColumn(w, rows, i, ti, y, y1, s1);
-        reflectColumn(w, rows, i, ti, y, y2, s2);
-        reflectColumn(w, rows, i, ti, y, y3, s3);
-        continue;
-      }
-      s0 *= ti;
-      s1 *= ti;
-      s2 *= ti;
-      s3 *= ti;
-      y[y0 + i] -= s0;
-      y[y1 + i] -= s1;
-      y[y2 + i] -= s2;
-      y[y3 + i] -= s3;
-      for (let t = i + 1; t < rows; t++) {
-        const wt = w[ci + t];
-        y[y0 + t] -= s0 * wt;
-        y[y1 + t] -= s1 * wt;
-        y[y2 + t] -= s2 * wt;
-        y[y3 + t] -= s3 * wt;
-      }
-    }
-    for (; c < ncols; c++) {
-      const yc = c * rows;
-      let s = y[yc + i];
-      for (let t = i + 1; t < rows; t++) s += w[ci + t] * y[yc + t];
-      reflectColumn(w, rows, i, ti, y, yc, s);
-    }
-  }
-}
-
-/** The update of {@link applyQ} of the column of y at `yc` whose dot product with reflector i is `s` (none when s is 0). */
-function reflectColumn(w: Float64Array, rows: number, i: number, ti: number, y: Float64Array, yc: number, s: number): void {
-  if (s === 0) return;
-  const ci = i * rows;
-  const st = s * ti;
-  y[yc + i] -= st;
-  for (let t = i + 1; t < rows; t++) y[yc + t] -= st * w[ci + t];
+  for (let i = f.rank - 1; i >= 0; i--) if (f.tau[i] !== 0) reflect(w, rows, i, f.tau[i], y, 0, ncols, true);
 }
