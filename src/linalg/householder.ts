@@ -30,9 +30,10 @@ export function householder(w: Float64Array, rows: number, i: number): number {
  * Applies H_i = I - ti v v^T to columns from..to-1 of the column-major
  * matrix x (rows per column), where v is 1 at row i and h[i * rows + t] at
  * rows t > i (rows above i are zero). Four columns per pass share the loads
- * of v.
+ * of v. With `skipZero`, a column whose dot product with v is 0 is left as
+ * it is (an update by 0 could turn a -0 entry into +0).
  */
-export function reflect(h: Float64Array, rows: number, i: number, ti: number, x: Float64Array, from: number, to: number): void {
+export function reflect(h: Float64Array, rows: number, i: number, ti: number, x: Float64Array, from: number, to: number, skipZero = false): void {
   const ci = i * rows;
   let c = from;
   for (; c + 3 < to; c += 4) {
@@ -50,6 +51,17 @@ export function reflect(h: Float64Array, rows: number, i: number, ti: number, x:
       s1 += vt * x[x1 + t];
       s2 += vt * x[x2 + t];
       s3 += vt * x[x3 + t];
+    }
+    if (skipZero && (s0 === 0 || s1 === 0 || s2 === 0 || s3 === 0)) {
+      for (const [xc, sc] of [
+        [x0, s0],
+        [x1, s1],
+        [x2, s2],
+        [x3, s3],
+      ]) {
+        if (sc !== 0) updateColumn(h, ci, i, rows, x, xc, sc * ti);
+      }
+      continue;
     }
     s0 *= ti;
     s1 *= ti;
@@ -71,10 +83,14 @@ export function reflect(h: Float64Array, rows: number, i: number, ti: number, x:
     const x0 = c * rows;
     let s0 = x[x0 + i];
     for (let t = i + 1; t < rows; t++) s0 += h[ci + t] * x[x0 + t];
-    s0 *= ti;
-    x[x0 + i] -= s0;
-    for (let t = i + 1; t < rows; t++) x[x0 + t] -= s0 * h[ci + t];
+    if (!(skipZero && s0 === 0)) updateColumn(h, ci, i, rows, x, x0, s0 * ti);
   }
+}
+
+/** x[x0 + i] -= s and x[x0 + t] -= s v[t] for the rows t > i (v at h[ci + t]): one column's update by {@link reflect}. */
+function updateColumn(h: Float64Array, ci: number, i: number, rows: number, x: Float64Array, x0: number, s: number): void {
+  x[x0 + i] -= s;
+  for (let t = i + 1; t < rows; t++) x[x0 + t] -= s * h[ci + t];
 }
 
 /** Sum of squares of x[off], ..., x[off + len - 1]. */

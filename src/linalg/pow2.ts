@@ -12,6 +12,15 @@ export function exponentOf(x: number): number {
   return Math.round(Math.log2(x));
 }
 
+/** Powers of two 2^k for |k| <= POW2_REACH, by k + POW2_REACH: each as `2 ** k` gives it (exact), looked up rather than computed. */
+const POW2_REACH = 1100;
+const POW2 = Float64Array.from({ length: 2 * POW2_REACH + 1 }, (_v, i) => 2 ** (i - POW2_REACH));
+
+/** 2^k for an integer k: from the table within its reach, else as `2 ** k` (the same value). */
+function pow2(k: number): number {
+  return k >= -POW2_REACH && k <= POW2_REACH ? POW2[k + POW2_REACH] : 2 ** k;
+}
+
 /**
  * Multiplies every entry of `dst` by 2^e (|e| <= 2200) using three factors of
  * the same sign, so no factor overflows, no 0 * Infinity can occur, and the
@@ -20,9 +29,9 @@ export function exponentOf(x: number): number {
 export function scaleByPow2(src: Float64Array, dst: Float64Array, e: number): void {
   const e1 = Math.trunc(e / 3);
   const e2 = Math.trunc((e - e1) / 2);
-  const f1 = 2 ** e1;
-  const f2 = 2 ** e2;
-  const f3 = 2 ** (e - e1 - e2);
+  const f1 = pow2(e1);
+  const f2 = pow2(e2);
+  const f3 = pow2(e - e1 - e2);
   const len = src.length;
   for (let i = 0; i < len; i++) dst[i] = src[i] * f1 * f2 * f3;
 }
@@ -31,7 +40,7 @@ export function scaleByPow2(src: Float64Array, dst: Float64Array, e: number): vo
 export function mulPow2(x: number, e: number): number {
   const e1 = Math.trunc(e / 3);
   const e2 = Math.trunc((e - e1) / 2);
-  return x * 2 ** e1 * 2 ** e2 * 2 ** (e - e1 - e2);
+  return x * pow2(e1) * pow2(e2) * pow2(e - e1 - e2);
 }
 
 /** Largest |x| over the entries, or NaN when some entry is not finite (NaN or an infinity). */

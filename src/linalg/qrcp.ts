@@ -78,21 +78,9 @@ export function qrcp(w: Float64Array, rows: number, cols: number, drop2: number)
 /**
  * Overwrites the column-major rows x ncols matrix y (rows >= rank) with
  * Q * y, where Q = H_0 ... H_{rank-1} is stored in w and tau as left by
- * {@link qrcp}.
+ * {@link qrcp}: each reflector applied by reflect, four columns a pass,
+ * a column whose dot product with it is 0 left as it is.
  */
 export function applyQ(w: Float64Array, rows: number, f: Qrcp, y: Float64Array, ncols: number): void {
-  for (let i = f.rank - 1; i >= 0; i--) {
-    const ti = f.tau[i];
-    if (ti === 0) continue;
-    const ci = i * rows;
-    for (let c = 0; c < ncols; c++) {
-      const yc = c * rows;
-      let s = y[yc + i];
-      for (let t = i + 1; t < rows; t++) s += w[ci + t] * y[yc + t];
-      if (s === 0) continue;
-      s *= ti;
-      y[yc + i] -= s;
-      for (let t = i + 1; t < rows; t++) y[yc + t] -= s * w[ci + t];
-    }
-  }
+  for (let i = f.rank - 1; i >= 0; i--) if (f.tau[i] !== 0) reflect(w, rows, i, f.tau[i], y, 0, ncols, true);
 }

@@ -5,8 +5,21 @@
 import { exponentOf, maxAbs, mulPow2, scaleByPow2 } from './pow2.js';
 import { checkShape } from './shape.js';
 
-/** Scratch for the Cholesky factor, grown on demand (the solver is not reentrant). */
-let cholScratch = new Float64Array(0);
+/**
+ * A factorization of a symmetric positive (semi)definite r x r matrix g
+ * for {@link solveFactored}: the lower Cholesky factor `l` of g scaled by
+ * 2^-eg (a ridge added where needed, see {@link solveSpd}), or the kind of
+ * g that has none (an entry not finite, or g all zeros).
+ */
+export interface SpdFactor {
+  r: number;
+  kind: 'cholesky' | 'nan' | 'zero';
+  eg: number;
+  l: Float64Array;
+}
+
+/** The factor {@link solveSpd} makes and uses at once (the solver is not reentrant). */
+const scratch: SpdFactor = { r: 0, kind: 'zero', eg: 0, l: new Float64Array(0) };
 
 /**
  * Solves the symmetric positive (semi)definite system g x = b for `nrhs`
@@ -23,27 +36,42 @@ let cholScratch = new Float64Array(0);
  * contains no NaN; a component is +-Infinity only if its value exceeds the
  * float64 range. NaN or +-Infinity in g or b gives an all-NaN x.
  *
+ * The same as {@link factorSpd} then {@link solveFactored}: a caller that
+ * solves with one g many times may factor it once, for the same bits.
+ *
  * @throws InputError (code `shape`) if r or nrhs is not a positive integer
  *   or an array length does not match.
  */
 export function solveSpd(g: Float64Array, r: number, b: Float64Array, nrhs: number): void {
+  solveFactored(factorSpd(g, r, scratch), b, nrhs);
+}
+
+/**
+ * The factorization of g (r x r, row-major, its lower triangle used) that
+ * {@link solveSpd} solves with, into `into` (its `l` grown on demand) or a
+ * new one. g is not modified.
+ *
+ * @throws InputError (code `shape`) if r is not a positive integer or g is not r x r.
+ */
+export function factorSpd(g: Float64Array, r: number, into?: SpdFactor): SpdFactor {
   checkShape(g.length, r, r, 'solveSpd g');
-  checkShape(b.length, r, nrhs, 'solveSpd b');
+  const f = into ?? { r, kind: 'zero', eg: 0, l: new Float64Array(r * r) };
+  f.r = r;
   // maxAbs is NaN when an entry is not finite.
   const gmax = maxAbs(g);
-  const bmax = maxAbs(b);
-  if (gmax !== gmax || bmax !== bmax) {
-    b.fill(NaN);
-    return;
+  if (gmax !== gmax) {
+    f.kind = 'nan';
+    return f;
   }
-  if (gmax === 0 || bmax === 0) {
-    b.fill(0);
-    return;
+  if (gmax === 0) {
+    f.kind = 'zero';
+    return f;
   }
   const eg = exponentOf(gmax);
-  const eb = exponentOf(bmax);
-  if (cholScratch.length < r * r) cholScratch = new Float64Array(r * r);
-  const l = cholScratch;
+  if (f.l.length < r * r) f.l = new Float64Array(r * r);
+  const l = f.l;
+  f.kind = 'cholesky';
+  f.eg = eg;
 
   let trace = 0;
   for (let i = 0; i < r; i++) trace += mulPow2(g[i * r + i], -eg);
@@ -60,7 +88,29 @@ export function solveSpd(g: Float64Array, r: number, b: Float64Array, nrhs: numb
       break;
     }
   }
+  return f;
+}
 
+/**
+ * Overwrites `b` (r x nrhs, row-major) by the solution x of g x = b, with g
+ * factored by {@link factorSpd}: what {@link solveSpd} gives, bit for bit.
+ *
+ * @throws InputError (code `shape`) if nrhs is not a positive integer or b is not r x nrhs.
+ */
+export function solveFactored(fac: SpdFactor, b: Float64Array, nrhs: number): void {
+  const r = fac.r;
+  checkShape(b.length, r, nrhs, 'solveSpd b');
+  const bmax = maxAbs(b);
+  if (fac.kind === 'nan' || bmax !== bmax) {
+    b.fill(NaN);
+    return;
+  }
+  if (fac.kind === 'zero' || bmax === 0) {
+    b.fill(0);
+    return;
+  }
+  const eb = exponentOf(bmax);
+  const l = fac.l;
   scaleByPow2(b, b, -eb);
   // Forward: L y = b.
   for (let i = 0; i < r; i++) {
@@ -87,7 +137,7 @@ export function solveSpd(g: Float64Array, r: number, b: Float64Array, nrhs: numb
     const inv = 1 / l[i * r + i];
     for (let c = 0; c < nrhs; c++) b[bi + c] *= inv;
   }
-  scaleByPow2(b, b, eb - eg);
+  scaleByPow2(b, b, eb - fac.eg);
 }
 
 /**

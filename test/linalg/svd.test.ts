@@ -1,7 +1,7 @@
 import { Matrix, SingularValueDecomposition, solve } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { InputError } from '../../src/errors.js';
-import { solveSpd } from '../../src/linalg/spd.js';
+import { factorSpd, solveFactored, solveSpd } from '../../src/linalg/spd.js';
 import { singularValues, svd, type Svd } from '../../src/linalg/svd.js';
 import { mulberry32 } from '../rng.js';
 
@@ -371,6 +371,32 @@ describe('solveSpd', () => {
         for (let i = 0; i < x.length; i++) expect(Math.abs(x[i] - ref[i])).toBeLessThan(1e-10 * scale);
       }
     }
+  });
+
+  it('solves many right-hand sides with one factor, as ml-matrix solve and as solveSpd', () => {
+    // Reference: ml-matrix solve (reference library); solveSpd is the same factorization made for each b.
+    let seed = 650;
+    for (const r of [1, 3, 6]) {
+      const g = randomSpd(r, seed++);
+      const f = factorSpd(g, r);
+      for (let k = 0; k < 4; k++) {
+        const b = randomMatrix(r, 1, seed++);
+        const ref = solve(toMl(g, r, r), toMl(b, r, 1)).to1DArray();
+        const x = b.slice();
+        solveFactored(f, x, 1);
+        for (let i = 0; i < r; i++) expect(Math.abs(x[i] - ref[i])).toBeLessThan(1e-10 * maxAbs(ref));
+        const once = b.slice();
+        solveSpd(g, r, once, 1);
+        expect(Array.from(x)).toEqual(Array.from(once));
+      }
+    }
+    // A factor of a zero or non-finite g: x = 0 and x = NaN, as solveSpd gives.
+    const zero = Float64Array.of(3, 4);
+    solveFactored(factorSpd(new Float64Array(4), 2), zero, 1);
+    expect(Array.from(zero)).toEqual([0, 0]);
+    const nan = Float64Array.of(3, 4);
+    solveFactored(factorSpd(Float64Array.of(1, NaN, NaN, 1), 2), nan, 1);
+    for (const v of nan) expect(v).toBeNaN();
   });
 
   it('solves 1 x 1 and is scale-equivariant', () => {
