@@ -339,15 +339,19 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
    */
   // RowFloor's sums by step, for the plain predictor.
   const floors = new Map<number, RowFloor>();
-  // With `walks` (the tile laid out in the kernels), a walk runs there: its differences are then left there
-  // (`kernel` true) for the caller to take where it keeps them.
-  const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit: number, walks: RdoWalks | null): { step: number; bits: number; kernel: boolean } | null => {
-    const step = binary32Below(a * unit);
+  const floorAt = (step: number, walks: RdoWalks | null): RowFloor => {
     let floor = floors.get(step);
     if (floor === undefined) {
       const sums = walks?.floor(step, plainKind);
       floors.set(step, (floor = sums ? new RowFloor(sums.restSe, sums.restBits, sums.restValid) : RowFloor.of(t.orig, base, t.classes.codes, m, n, step, plainKind)));
     }
+    return floor;
+  };
+  // With `walks` (the tile laid out in the kernels), a walk runs there: its differences are then left there
+  // (`kernel` true) for the caller to take where it keeps them.
+  const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit: number, walks: RdoWalks | null): { step: number; bits: number; kernel: boolean } | null => {
+    const step = binary32Below(a * unit);
+    let floor = floorAt(step, walks);
     if (kind !== plainKind) floor = floor.anyPredictor();
     if (walks !== null) {
       const r = walks.walk(kind, step, w, seLimit, bitsLimit, FLOOR_KEEP, floor);
@@ -380,21 +384,40 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   // ranking does not depend on the order the walks run in.
   const ranked: { a: number; w: number; bits: number; order: number; step: number; d: Int32Array }[] = [];
   let spare: Int32Array = new Int32Array(cells);
-  // The walks of the plain predictor, in the kernels where they are to be had (nothing else uses them meanwhile).
-  const plainWalks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
+  // The walks of the plain predictor, in the kernels where they are to be had (nothing else uses them meanwhile),
+  // several weights of a step in one pass (RdoWalks.walkLanes).
+  const plainWalks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights(), RDO_WEIGHTS.length);
+  // A walk whose bits pass the third cheapest's could not rank among them: cut short.
+  const limit = () => (ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity);
+  // Walks in one pass: of the plain predictors, in the kernels (the blend's walk a weight at a time).
+  const perPass = plainWalks !== null && plainKind !== Predictor.Blend ? plainWalks.lanes : 1;
   try {
     for (let ai = RDO_STEPS.length - 1; ai >= 0; ai--) {
-      for (let wi = RDO_WEIGHTS.length - 1; wi >= 0; wi--) {
-        const [a, w, order] = [RDO_STEPS[ai], RDO_WEIGHTS[wi], ai * RDO_WEIGHTS.length + wi];
-        // A walk whose bits pass the third cheapest's could not rank among them: cut short.
-        const walked = walk(plainKind, a, w, spare, ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity, plainWalks);
-        if (walked === null) continue;
-        let at = ranked.length;
-        while (at > 0 && (ranked[at - 1].bits > walked.bits || (ranked[at - 1].bits === walked.bits && ranked[at - 1].order > order))) at--;
-        if (at >= RDO_CODED) continue;
-        if (walked.kernel) plainWalks!.differences(spare);
-        ranked.splice(at, 0, { a, w, bits: walked.bits, order, step: walked.step, d: spare });
-        spare = ranked.length > RDO_CODED ? ranked.pop()!.d : new Int32Array(cells);
+      const a = RDO_STEPS[ai];
+      const step = binary32Below(a * unit);
+      for (let top = RDO_WEIGHTS.length - 1; top >= 0; top -= perPass) {
+        // The weights of one pass, heaviest first, walked under the limit before the pass (see LaneWalk).
+        const wis = Array.from({ length: Math.min(top + 1, perPass) }, (_, k) => top - k);
+        const lanes = perPass > 1 ? plainWalks!.walkLanes(plainKind, step, wis.map((wi) => RDO_WEIGHTS[wi]), seLimit, limit(), FLOOR_KEEP, floorAt(step, plainWalks)) : undefined;
+        wis.forEach((wi, l) => {
+          const [w, order] = [RDO_WEIGHTS[wi], ai * RDO_WEIGHTS.length + wi];
+          const bitsLimit = limit();
+          const lane = lanes?.[l];
+          // Where the pass walked it (not null: a NaN value, walked in JavaScript), as the walk under its own limit would have ended.
+          const walked =
+            lane === undefined || lane === null
+              ? walk(plainKind, a, w, spare, bitsLimit, lane === null ? null : plainWalks)
+              : lane !== false && lane.seFloor <= seLimit && lane.bitsFloor <= bitsLimit && lane.se <= seLimit
+                ? { step, bits: lane.bits, kernel: true }
+                : null;
+          if (walked === null) return;
+          let at = ranked.length;
+          while (at > 0 && (ranked[at - 1].bits > walked.bits || (ranked[at - 1].bits === walked.bits && ranked[at - 1].order > order))) at--;
+          if (at >= RDO_CODED) return;
+          if (walked.kernel) plainWalks!.differences(spare, l);
+          ranked.splice(at, 0, { a, w, bits: walked.bits, order, step: walked.step, d: spare });
+          spare = ranked.length > RDO_CODED ? ranked.pop()!.d : new Int32Array(cells);
+        });
       }
     }
   } finally {

@@ -2,14 +2,15 @@
  * The walks of the residual search under L2 bounds (src/codec/rdo.ts,
  * RdoWalk.run and RowFloor, every predictor) in the WebAssembly kernels
  * (kernels/rdo.ts and kernels/rdo-blend.ts, the module RDO_KERNELS, and
- * kernels/rdo-floor.ts, the module RDO_FLOOR_KERNELS): the same
- * codes, differences and sums as the JavaScript. A {@link RdoWalks} holds
+ * kernels/rdo-floor.ts with kernels/rdo-lanes.ts, the module
+ * RDO_FLOOR_KERNELS): the same codes, differences and sums as the
+ * JavaScript. A {@link RdoWalks} holds
  * the kernels' memory with one tile's values laid out in it, for a run of
  * walks; it must be closed before any other kernel is used (a nested use
  * of the memory runs the JavaScript, see Kernels.lease).
  */
 import { RDO_FLOOR_KERNELS, RDO_KERNELS } from './kernels-bytes.js';
-import { kernels, SCRATCH_AT, WEIGHTS_BYTES, type Kernels } from './kernels.js';
+import { KEEP_BYTES, kernels, SCRATCH_AT, WEIGHTS_BYTES, type Kernels } from './kernels.js';
 
 /** The exports of kernels/rdo.ts: addresses are byte offsets into the kernels' memory. */
 interface RdoKernels {
@@ -22,7 +23,12 @@ interface RdoFloorKernels {
   residuals(orig: number, f32: number, base: number, cells: number): void;
   scaled(r: number, grid: number, cells: number, step: number): void;
   rowFloor(r: number, grid: number, codes: number, table: number, m: number, n: number, step: number, kind: number, lo: number, hi: number, restSe: number, restBits: number, restValid: number): void;
+  rdoLanes(grid: number, codes: number, rows: number, d: number, table: number, m: number, n: number, kind: number, step: number, weights: number, lanes: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, state: number): void;
 }
+
+/** The most walks {@link RdoWalks.walkLanes} runs in one pass (kernels/rdo-lanes.ts), and the bytes of a lane's state there. */
+const MAX_LANES = 4;
+const LANE_STATE = 48;
 
 /** The blend predictor's id (src/codec/reconstruct.ts, Predictor.Blend). */
 const BLEND = 6;
@@ -35,6 +41,16 @@ function up16(bytes: number): number {
 /** What a walk in the kernels gave: its sums, false (the JavaScript's false), or null (a NaN value: walk in JavaScript). */
 export type KernelWalk = { se: number; bits: number } | false | null;
 
+/**
+ * What one lane of {@link RdoWalks.walkLanes} gave: its walk as
+ * {@link KernelWalk} under the pass's limits, and with its sums (where it
+ * walked every cell) the largest squared error and rough bits its sums
+ * plus the floor's reached after a row (from before the first): under a
+ * tighter rough-bits limit L, the walk would have given false exactly when
+ * `bitsFloor` passes L (see kernels/rdo-lanes.ts).
+ */
+export type LaneWalk = { se: number; bits: number; seFloor: number; bitsFloor: number } | false | null;
+
 /** One tile's values in the kernels' memory, for a run of walks (see the module's comment). */
 export class RdoWalks {
   private constructor(
@@ -43,7 +59,9 @@ export class RdoWalks {
     private readonly floorFn: RdoFloorKernels,
     private readonly m: number,
     private readonly n: number,
-    private readonly at: { r: number; grid: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; above: number; below: number; errs: number; lo: number; hi: number },
+    private readonly at: { r: number; grid: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; above: number; below: number; errs: number; lo: number; hi: number; rows: number; weights: number; state: number },
+    /** The walks {@link RdoWalks.walkLanes} can run in one pass. */
+    readonly lanes: number,
   ) {}
 
   /** The step whose scaled values the grid holds (NaN: none yet). */
@@ -54,9 +72,12 @@ export class RdoWalks {
    * codes, m x n), the rough-bits table and the blend's weight table
    * (`weights`, where the kernels' memory does not hold it yet) in the
    * kernels' memory; null where the kernels are not to be had (nothing is
-   * held then).
+   * held then). With room for the differences of up to `lanes` walks of one
+   * pass ({@link RdoWalks.walkLanes}), as many as keep the memory within
+   * KEEP_BYTES (src/wasm/kernels.ts: a larger one is made anew for each
+   * use): 4 on a 512 x 512 tile, 2 on a 1024 x 1024 one.
    */
-  static open(orig: Float32Array | Float64Array, base: Float64Array, codes: Uint8Array, m: number, n: number, table: Float64Array, weights: Int32Array): RdoWalks | null {
+  static open(orig: Float32Array | Float64Array, base: Float64Array, codes: Uint8Array, m: number, n: number, table: Float64Array, weights: Int32Array, lanes = 1): RdoWalks | null {
     const cells = m * n;
     if (cells === 0 || orig.length < cells || base.length < cells || codes.length < cells) return null;
     const k = kernels();
@@ -64,8 +85,12 @@ export class RdoWalks {
     const f32 = orig instanceof Float32Array;
     if (4 * weights.length > WEIGHTS_BYTES) return null;
     // Byte addresses from SCRATCH_AT: the sums, the table, RowFloor's three arrays, the values less base (r: base is
-    // copied there), the scaled values (the grid: the values are copied there, for residuals() to read), q, d, the
-    // blend's sums of the row above and this one and its errors (after 5 more), the floor's intervals, class codes.
+    // copied there), the scaled values (the grid: the values are copied there, for residuals() to read), q, the
+    // lanes' state, weights and two rows of codes each, d (a grid a lane), the blend's sums of the row above and this
+    // one and its errors (after 5 more), the floor's intervals, class codes.
+    const fixed = 64 + 8 * table.length + 24 * (m + 1) + 128 * n + MAX_LANES * (LANE_STATE + 8 + 8 * n) + 256;
+    let count = Math.max(1, Math.min(MAX_LANES, lanes));
+    while (count > 1 && fixed + (21 + 4 * count) * cells > KEEP_BYTES - SCRATCH_AT) count--;
     const out = SCRATCH_AT;
     const tableAt = out + 16;
     const restSe = up16(tableAt + 8 * table.length);
@@ -74,8 +99,11 @@ export class RdoWalks {
     const r = up16(restValid + 8 * (m + 1));
     const grid = up16(r + 8 * cells);
     const q = up16(grid + 8 * cells);
-    const d = up16(q + 4 * cells);
-    const above = up16(d + 4 * cells);
+    const state = up16(q + 4 * cells);
+    const laneWeights = up16(state + LANE_STATE * count);
+    const rows = up16(laneWeights + 8 * count);
+    const d = up16(rows + 8 * n * count);
+    const above = up16(d + 4 * cells * count);
     const below = up16(above + 20 * n);
     const errs = up16(below + 20 * n) + 32;
     const lo = up16(errs + 20 * n);
@@ -98,7 +126,7 @@ export class RdoWalks {
     else k.f64.set(orig.subarray(0, cells), grid / 8);
     k.u8.set(codes.subarray(0, cells), codesAt);
     floorFn.residuals(grid, f32 ? 1 : 0, r, cells);
-    return new RdoWalks(k, fn, floorFn, m, n, { r, grid, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, above, below, errs, lo, hi });
+    return new RdoWalks(k, fn, floorFn, m, n, { r, grid, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, above, below, errs, lo, hi, rows, weights: laneWeights, state }, count);
   }
 
   /** RowFloor's sums at `step` for predictor `kind` (from each row to the end: the least squared error and rough bits a walk adds, the valid cells), m + 1 each; the grid then holds the scaled values at `step`. */
@@ -130,10 +158,40 @@ export class RdoWalks {
     return { se: heap[at.out / 8], bits: heap[at.out / 8 + 1] };
   }
 
-  /** The differences of the last walk that returned its sums, into `d` (m x n). */
-  differences(d: Int32Array): void {
+  /**
+   * Walks of the plain predictor `kind` (None to the median) at one step and
+   * the weights `ws` (at most {@link RdoWalks.lanes}), all in one pass
+   * under the same limits (see {@link LaneWalk}); lane l's differences are
+   * read with {@link RdoWalks.differences}(d, l).
+   */
+  walkLanes(kind: number, step: number, ws: readonly number[], seLimit: number, bitsLimit: number, keep: number, floor: { restSe: Float64Array; restBits: Float64Array }): LaneWalk[] {
+    const { at, m, n } = this;
+    // Internal assertion: the lanes were laid out, and the blend is not a plain predictor.
+    if (ws.length > this.lanes || kind === BLEND) throw new Error(`internal: ${ws.length} walks of predictor ${kind} in ${this.lanes} lanes`);
+    const heap = this.k.f64;
+    heap.set(floor.restSe.subarray(0, m + 1), at.restSe / 8);
+    heap.set(floor.restBits.subarray(0, m + 1), at.restBits / 8);
+    heap.set(ws, at.weights / 8);
+    if (this.gridStep !== step) {
+      this.floorFn.scaled(at.r, at.grid, m * n, step);
+      this.gridStep = step;
+    }
+    this.floorFn.rdoLanes(at.grid, at.codes, at.rows, at.d, at.table, m, n, kind, step, at.weights, ws.length, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.state);
+    const status = this.k.i32;
+    return ws.map((_w, l) => {
+      const s = at.state + LANE_STATE * l;
+      const r = status[s / 4];
+      if (r < 0) return null;
+      if (r === 0) return false;
+      return { se: heap[s / 8 + 2], bits: heap[s / 8 + 3], seFloor: heap[s / 8 + 4], bitsFloor: heap[s / 8 + 5] };
+    });
+  }
+
+  /** The differences of the last walk that returned its sums (of lane `lane` of the last {@link RdoWalks.walkLanes}), into `d` (m x n). */
+  differences(d: Int32Array, lane = 0): void {
     const cells = this.m * this.n;
-    d.set(this.k.i32.subarray(this.at.d / 4, this.at.d / 4 + cells));
+    const from = this.at.d / 4 + lane * cells;
+    d.set(this.k.i32.subarray(from, from + cells));
   }
 
   /** Give the kernels' memory back. */
