@@ -11,7 +11,7 @@ import { blendWeights, interior, lowRank, Predictor, walkPredictor } from './rec
 import { MAX_INT } from './section.js';
 import { binary32Below } from './steps.js';
 import { RdoWalks } from '../wasm/rdo.js';
-import { correct, lowRankPayload, type Factors } from './tile-encode.js';
+import { correct, lowRankPayload, type Coded, type Factors } from './tile-encode.js';
 
 /** Step multipliers and rate weights (in units of step^2) the rate-distortion search tries. */
 const RDO_STEPS = [0.6, 0.7, 0.85, 1];
@@ -315,6 +315,11 @@ export class RowFloor {
  * {@link PREDICTED_MARGIN}).
  */
 export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, atMost = Infinity): Uint8Array | null {
+  return residualForMseCoded(t, f, mse, atMost)?.payload ?? null;
+}
+
+/** {@link residualForMse} with the grid its residual stream codes (for withResidualCoder in ./tile-encode.ts: not decoded again). */
+export function residualForMseCoded(t: PreparedTile, f: Factors | null, mse: number, atMost = Infinity): Coded | null {
   if (!t.finite || t.valid === 0 || !(mse > 0) || !Number.isFinite(mse)) return null;
   const { m, n } = t;
   const cells = m * n;
@@ -326,7 +331,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   if (t.layer) addLayer(base, t.layer, cells);
   const seLimit = 0.98 * mse * t.valid;
   // No residual at all is the smallest payload these factors can make: taken as it is when it fits.
-  if (zeroResidualFits(t, base, seLimit)) return lowRankPayload(t, f, { center, step: 0, q: null, predictor: Predictor.None, exceptions: [] });
+  if (zeroResidualFits(t, base, seLimit)) return { payload: lowRankPayload(t, f, { center, step: 0, q: null, predictor: Predictor.None, exceptions: [] }), codes: null };
   const unit = Math.sqrt(12 * mse);
   const plain = correct(t, f, unit / 2, unit);
   if (plain.bits !== undefined && (plain.bits / 8) * GIVE_UP >= atMost) return null;
@@ -363,16 +368,20 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
     return run.run(q, m, n, kind, seLimit, bitsLimit, floor) && run.se <= seLimit ? { step: run.step, bits: run.bits, kernel: false } : null;
   };
   let best: Uint8Array | null = null;
+  // The grid best's residual stream codes (null: it has none).
+  let bestCodes: Int32Array | null = null;
   let bestAt: [number, number] = [1, 0];
   // Bytes a rough bit of the first candidate coded took (see PREDICTED_MARGIN).
   let perBit = 0;
   const beat = () => Math.min(atMost, best === null ? Infinity : (best as Uint8Array).length);
   const code = (kind: number, a: number, w: number, step: number, d: Int32Array, bits: number): void => {
     if (perBit > 0 && perBit * bits > PREDICTED_MARGIN * beat()) return;
-    const payload = lowRankPayload(t, f, { center, step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
+    const q = d.some((v) => v !== 0) ? d : null;
+    const payload = lowRankPayload(t, f, { center, step, q, predictor: kind, exceptions: [] });
     if (perBit === 0 && bits > 0) perBit = payload.length / bits;
     if (best === null || payload.length < best.length) {
       best = payload;
+      bestCodes = q;
       bestAt = [a, w];
     }
   };
@@ -427,6 +436,8 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) {
     if (kind === plainKind) continue;
     const [a, w] = bestAt;
+    // The best's grid is kept: the walk writes elsewhere.
+    if (bestCodes === spare) spare = new Int32Array(cells);
     // A walk whose rough bits pass what code() would take is cut short (a hair over, against rounding). In the
     // kernels, laid out for this walk alone: code() takes the kernels' memory after it.
     const walks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
@@ -439,7 +450,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
     }
     if (walked !== null) code(kind, a, w, walked.step, spare, walked.bits);
   }
-  return best;
+  return best === null ? null : { payload: best, codes: bestCodes };
 }
 
 /**
