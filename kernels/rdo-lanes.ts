@@ -1,8 +1,9 @@
 /**
- * Walks of the residual search's plain predictor at one step and up to
- * four rate weights in one pass over the tile (src/codec/rdo.ts, the walks
- * of the plain predictor; exported by kernels/rdo-floor.ts, whose module
- * has the room). Each lane is one weight's walk, with its own codes,
+ * Walks of the residual search's plain predictors at one step in one pass
+ * over the tile, up to four (src/codec/rdo.ts: the predictor plain
+ * rounding picks at four rate weights, or Lorenzo and the median at one;
+ * exported by kernels/rdo-floor.ts, whose module has the room). Each lane
+ * is one walk (a predictor and a weight), with its own codes,
  * differences and sums, every one the JavaScript's (RdoWalk.run: the same
  * operations in the same order as kernels/rdo.ts's rdoWalk). A walk's
  * chain through its codes (the left code, its prediction, the settled
@@ -24,7 +25,8 @@
  * Memory (byte addresses): grid, codes and table as kernels/rdo.ts's
  * walk; rows (2 n i32 a lane: the lane's codes of the row above and this
  * one); d (m x n i32 a lane, out: the lane's differences, 0 at cells that
- * are not Valid); weights (a binary64 a lane); restSe and restBits
+ * are not Valid); weights (a binary64 a lane); kinds (the predictor, None
+ * 0 to the median 5, an i32 a lane); restSe and restBits
  * (RowFloor's sums, m + 1 binary64 each); state (48 bytes a lane, out):
  * status (i32 at 0: 1 when every cell was walked within the limits, 0
  * where the JavaScript returns false under these limits, -1 where a cell's
@@ -85,8 +87,8 @@ function cell(s: usize, l: usize, kind: i32, i: i32, j: i32, c: i32, valid: bool
   return 0;
 }
 
-/** The walks of `lanes` weights (see the module's comment), under the limits seLimit and bitsLimit. */
-export function rdoLanes(grid: usize, codes: usize, rows: usize, d: usize, table: usize, m: i32, n: i32, kind: i32, step: f64, weights: usize, lanes: i32, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restBits: usize, state: usize): void {
+/** The walks of `lanes` predictors and weights (see the module's comment), under the limits seLimit and bitsLimit. */
+export function rdoLanes(grid: usize, codes: usize, rows: usize, d: usize, table: usize, m: i32, n: i32, kinds: usize, step: f64, weights: usize, lanes: i32, seLimit: f64, bitsLimit: f64, keep: f64, restSe: usize, restBits: usize, state: usize): void {
   const seAt = keep * load<f64>(restSe);
   const bitsAt = keep * load<f64>(restBits);
   const start = seAt > seLimit || bitsAt > bitsLimit ? 0 : 1;
@@ -110,7 +112,7 @@ export function rdoLanes(grid: usize, codes: usize, rows: usize, d: usize, table
       const nearF = roundJs(x);
       for (let l = 0; l < lanes; l++) {
         const s = state + <usize>l * STATE;
-        if (load<i32>(s) > 0) walking -= cell(s, <usize>l, kind, i, j, c, valid, x, nearF, rows, rowBytes, d, cellBytes, table, weights, step);
+        if (load<i32>(s) > 0) walking -= cell(s, <usize>l, load<i32>(kinds + (<usize>l << 2)), i, j, c, valid, x, nearF, rows, rowBytes, d, cellBytes, table, weights, step);
       }
     }
     // RdoWalk.run's test after the row, with the floor of the rows left; the largest sums with it kept.

@@ -10,7 +10,7 @@ import type { PreparedTile } from './prepare.js';
 import { blendWeights, interior, lowRank, Predictor, walkPredictor } from './reconstruct.js';
 import { MAX_INT } from './section.js';
 import { binary32Below } from './steps.js';
-import { RdoWalks } from '../wasm/rdo.js';
+import { RdoWalks, type LaneWalk } from '../wasm/rdo.js';
 import { correct, lowRankPayload, type Coded, type Factors } from './tile-encode.js';
 
 /** Step multipliers and rate weights (in units of step^2) the rate-distortion search tries. */
@@ -407,7 +407,7 @@ export function residualForMseCoded(t: PreparedTile, f: Factors | null, mse: num
       for (let top = RDO_WEIGHTS.length - 1; top >= 0; top -= perPass) {
         // The weights of one pass, heaviest first, walked under the limit before the pass (see LaneWalk).
         const wis = Array.from({ length: Math.min(top + 1, perPass) }, (_, k) => top - k);
-        const lanes = perPass > 1 ? plainWalks!.walkLanes(plainKind, step, wis.map((wi) => RDO_WEIGHTS[wi]), seLimit, limit(), FLOOR_KEEP, floorAt(step, plainWalks)) : undefined;
+        const lanes = perPass > 1 ? plainWalks!.walkLanes(wis.map(() => plainKind), step, wis.map((wi) => RDO_WEIGHTS[wi]), seLimit, limit(), FLOOR_KEEP, floorAt(step, plainWalks)) : undefined;
         wis.forEach((wi, l) => {
           const [w, order] = [RDO_WEIGHTS[wi], ai * RDO_WEIGHTS.length + wi];
           const bitsLimit = limit();
@@ -433,17 +433,28 @@ export function residualForMseCoded(t: PreparedTile, f: Factors | null, mse: num
     plainWalks?.close();
   }
   for (const r of ranked) code(plainKind, r.a, r.w, r.step, r.d, r.bits);
-  for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) {
-    if (kind === plainKind) continue;
-    const [a, w] = bestAt;
-    // The best's grid is kept: the walk writes elsewhere.
+  // The other predictors at the best step and weight (code() sets bestAt to the same); a walk whose rough bits pass
+  // what code() would take is cut short (a hair over, against rounding).
+  const [a, w] = bestAt;
+  const codeLimit = () => (perBit > 0 ? ((PREDICTED_MARGIN * beat()) / perBit) * (1 + 1e-9) : Infinity);
+  const others = [Predictor.Lorenzo, Predictor.Median, Predictor.Blend].filter((kind) => kind !== plainKind);
+  const early = walkOthers(t, base, others, binary32Below(a * unit), w, seLimit, codeLimit(), (step, walks) => floorAt(step, walks).anyPredictor());
+  for (const kind of others) {
+    const bitsLimit = codeLimit();
+    const got = early.get(kind);
+    if (got !== undefined && got.walk !== null) {
+      // Walked above under the limit before the first was coded: read as its walk under this limit would have ended.
+      const lane = got.walk;
+      if (lane !== false && lane.seFloor <= seLimit && lane.bitsFloor <= bitsLimit && lane.se <= seLimit) code(kind, a, w, binary32Below(a * unit), got.d!, lane.bits);
+      continue;
+    }
+    // Not walked above (no kernels, or a NaN value: in JavaScript), walked now. The best's grid is kept: the walk writes elsewhere.
     if (bestCodes === spare) spare = new Int32Array(cells);
-    // A walk whose rough bits pass what code() would take is cut short (a hair over, against rounding). In the
-    // kernels, laid out for this walk alone: code() takes the kernels' memory after it.
-    const walks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
+    // In the kernels, laid out for this walk alone: code() takes the kernels' memory after it.
+    const walks = got === undefined ? RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights()) : null;
     let walked: ReturnType<typeof walk> = null;
     try {
-      walked = walk(kind, a, w, spare, perBit > 0 ? ((PREDICTED_MARGIN * beat()) / perBit) * (1 + 1e-9) : Infinity, walks);
+      walked = walk(kind, a, w, spare, bitsLimit, walks);
       if (walked?.kernel) walks!.differences(spare);
     } finally {
       walks?.close();
@@ -451,6 +462,43 @@ export function residualForMseCoded(t: PreparedTile, f: Factors | null, mse: num
     if (walked !== null) code(kind, a, w, walked.step, spare, walked.bits);
   }
   return best === null ? null : { payload: best, codes: bestCodes };
+}
+
+/**
+ * The walks of the predictors `kinds` (other than the one plain rounding
+ * picks) at one step and weight, in the kernels, before any of them is
+ * coded: under the rough-bits limit `bitsLimit` (the one before the first
+ * is coded, which later ones only tighten), the plain ones in one pass
+ * (RdoWalks.walkLanes), the blend after them. By predictor, each one's
+ * walk as a {@link LaneWalk} (the blend's too: its walk stops on its sums
+ * cell by cell, so under a tighter limit L it would have given false
+ * exactly when its floor before the first row or its bits pass L) and its
+ * differences; empty without the kernels (the caller walks them in turn).
+ * `floorOf` gives the floor at a step (computed in the kernels held).
+ */
+function walkOthers(t: PreparedTile, base: Float64Array, kinds: number[], step: number, w: number, seLimit: number, bitsLimit: number, floorOf: (step: number, walks: RdoWalks) => RowFloor): Map<number, { walk: LaneWalk; d: Int32Array | null }> {
+  const out = new Map<number, { walk: LaneWalk; d: Int32Array | null }>();
+  const { m, n } = t;
+  const plain = kinds.filter((kind) => kind !== Predictor.Blend);
+  const walks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights(), plain.length);
+  if (walks === null) return out;
+  // A walk's differences, out of lane `lane` (the blend's walk leaves them where lane 0's were).
+  const keep = (kind: number, walk: LaneWalk, lane: number): void => {
+    const d = walk ? new Int32Array(m * n) : null;
+    if (d !== null) walks.differences(d, lane);
+    out.set(kind, { walk, d });
+  };
+  try {
+    const floor = floorOf(step, walks);
+    if (plain.length > 0 && plain.length <= walks.lanes) walks.walkLanes(plain, step, plain.map(() => w), seLimit, bitsLimit, FLOOR_KEEP, floor).forEach((walk, l) => keep(plain[l], walk, l));
+    if (kinds.includes(Predictor.Blend)) {
+      const r = walks.walk(Predictor.Blend, step, w, seLimit, bitsLimit, FLOOR_KEEP, floor);
+      keep(Predictor.Blend, r ? { ...r, seFloor: r.se, bitsFloor: Math.max(FLOOR_KEEP * floor.restBits[0], r.bits) } : r, 0);
+    }
+  } finally {
+    walks.close();
+  }
+  return out;
 }
 
 /**

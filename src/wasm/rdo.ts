@@ -23,7 +23,7 @@ interface RdoFloorKernels {
   residuals(orig: number, f32: number, base: number, cells: number): void;
   scaled(r: number, grid: number, cells: number, step: number): void;
   rowFloor(r: number, grid: number, codes: number, table: number, m: number, n: number, step: number, kind: number, lo: number, hi: number, restSe: number, restBits: number, restValid: number): void;
-  rdoLanes(grid: number, codes: number, rows: number, d: number, table: number, m: number, n: number, kind: number, step: number, weights: number, lanes: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, state: number): void;
+  rdoLanes(grid: number, codes: number, rows: number, d: number, table: number, m: number, n: number, kinds: number, step: number, weights: number, lanes: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, state: number): void;
 }
 
 /** The most walks {@link RdoWalks.walkLanes} runs in one pass (kernels/rdo-lanes.ts), and the bytes of a lane's state there. */
@@ -59,7 +59,7 @@ export class RdoWalks {
     private readonly floorFn: RdoFloorKernels,
     private readonly m: number,
     private readonly n: number,
-    private readonly at: { r: number; grid: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; above: number; below: number; errs: number; lo: number; hi: number; rows: number; weights: number; state: number },
+    private readonly at: { r: number; grid: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; above: number; below: number; errs: number; lo: number; hi: number; rows: number; weights: number; kinds: number; state: number },
     /** The walks {@link RdoWalks.walkLanes} can run in one pass. */
     readonly lanes: number,
   ) {}
@@ -101,7 +101,8 @@ export class RdoWalks {
     const q = up16(grid + 8 * cells);
     const state = up16(q + 4 * cells);
     const laneWeights = up16(state + LANE_STATE * count);
-    const rows = up16(laneWeights + 8 * count);
+    const kinds = up16(laneWeights + 8 * count);
+    const rows = up16(kinds + 4 * count);
     const d = up16(rows + 8 * n * count);
     const above = up16(d + 4 * cells * count);
     const below = up16(above + 20 * n);
@@ -126,7 +127,7 @@ export class RdoWalks {
     else k.f64.set(orig.subarray(0, cells), grid / 8);
     k.u8.set(codes.subarray(0, cells), codesAt);
     floorFn.residuals(grid, f32 ? 1 : 0, r, cells);
-    return new RdoWalks(k, fn, floorFn, m, n, { r, grid, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, above, below, errs, lo, hi, rows, weights: laneWeights, state }, count);
+    return new RdoWalks(k, fn, floorFn, m, n, { r, grid, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, above, below, errs, lo, hi, rows, weights: laneWeights, kinds, state }, count);
   }
 
   /** RowFloor's sums at `step` for predictor `kind` (from each row to the end: the least squared error and rough bits a walk adds, the valid cells), m + 1 each; the grid then holds the scaled values at `step`. */
@@ -159,24 +160,26 @@ export class RdoWalks {
   }
 
   /**
-   * Walks of the plain predictor `kind` (None to the median) at one step and
-   * the weights `ws` (at most {@link RdoWalks.lanes}), all in one pass
-   * under the same limits (see {@link LaneWalk}); lane l's differences are
-   * read with {@link RdoWalks.differences}(d, l).
+   * Walks of the plain predictors `kinds` (None to the median) at one step
+   * and the weights `ws` (lane l: kinds[l] at ws[l], at most
+   * {@link RdoWalks.lanes}), all in one pass under the same limits (see
+   * {@link LaneWalk}); lane l's differences are read with
+   * {@link RdoWalks.differences}(d, l).
    */
-  walkLanes(kind: number, step: number, ws: readonly number[], seLimit: number, bitsLimit: number, keep: number, floor: { restSe: Float64Array; restBits: Float64Array }): LaneWalk[] {
+  walkLanes(kinds: readonly number[], step: number, ws: readonly number[], seLimit: number, bitsLimit: number, keep: number, floor: { restSe: Float64Array; restBits: Float64Array }): LaneWalk[] {
     const { at, m, n } = this;
     // Internal assertion: the lanes were laid out, and the blend is not a plain predictor.
-    if (ws.length > this.lanes || kind === BLEND) throw new Error(`internal: ${ws.length} walks of predictor ${kind} in ${this.lanes} lanes`);
+    if (ws.length > this.lanes || kinds.length !== ws.length || kinds.includes(BLEND)) throw new Error(`internal: ${ws.length} walks of predictors ${kinds} in ${this.lanes} lanes`);
     const heap = this.k.f64;
     heap.set(floor.restSe.subarray(0, m + 1), at.restSe / 8);
     heap.set(floor.restBits.subarray(0, m + 1), at.restBits / 8);
     heap.set(ws, at.weights / 8);
+    this.k.i32.set(kinds, at.kinds / 4);
     if (this.gridStep !== step) {
       this.floorFn.scaled(at.r, at.grid, m * n, step);
       this.gridStep = step;
     }
-    this.floorFn.rdoLanes(at.grid, at.codes, at.rows, at.d, at.table, m, n, kind, step, at.weights, ws.length, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.state);
+    this.floorFn.rdoLanes(at.grid, at.codes, at.rows, at.d, at.table, m, n, at.kinds, step, at.weights, ws.length, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.state);
     const status = this.k.i32;
     return ws.map((_w, l) => {
       const s = at.state + LANE_STATE * l;

@@ -243,14 +243,17 @@ describe('walks of several weights in one pass (RdoWalks.walkLanes, kernels/rdo-
    * exactly when the lane's largest sums with the floor's stay within the
    * limits, as the search reads them (src/codec/rdo.ts).
    */
-  function lanesAgainstJs(t: PreparedTile, kind: number, step: number, ws: number[], seLimit: number, passLimit: number, limits: number[]) {
+  function lanesAgainstJs(t: PreparedTile, kind: number | number[], step: number, ws: number[], seLimit: number, passLimit: number, limits: number[]) {
     const cells = t.m * t.n;
     const base = new Float64Array(cells).fill(t.center);
-    const floor = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step, kind);
+    const kinds = typeof kind === 'number' ? ws.map(() => kind) : kind;
+    // Predictors that differ share the floor of any predictor (as the search's walks of the other predictors do).
+    const own = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step, kinds[0]);
+    const floor = kinds.every((k) => k === kinds[0]) ? own : own.anyPredictor();
     const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights(), ws.length);
     expect(walks?.lanes).toBe(ws.length);
     try {
-      const lanes = walks!.walkLanes(kind, step, ws, seLimit, passLimit, FLOOR_KEEP, floor);
+      const lanes = walks!.walkLanes(kinds, step, ws, seLimit, passLimit, FLOOR_KEEP, floor);
       ws.forEach((w, l) => {
         const lane = lanes[l];
         const dK = new Int32Array(cells);
@@ -258,7 +261,7 @@ describe('walks of several weights in one pass (RdoWalks.walkLanes, kernels/rdo-
         for (const bitsLimit of limits.filter((l) => l <= passLimit)) {
           const dJs = new Int32Array(cells);
           const run = new RdoWalk(t.orig, base, t.classes.codes, dJs, step, w);
-          const ok = run.run(new Int32Array(cells), t.m, t.n, kind, seLimit, bitsLimit, floor);
+          const ok = run.run(new Int32Array(cells), t.m, t.n, kinds[l], seLimit, bitsLimit, floor);
           const read = lane !== null && lane !== false && lane.seFloor <= seLimit && lane.bitsFloor <= bitsLimit;
           expect(read, `kind ${kind} weight ${w} limit ${bitsLimit}`).toBe(ok);
           if (!ok || !lane) continue;
@@ -288,6 +291,11 @@ describe('walks of several weights in one pass (RdoWalks.walkLanes, kernels/rdo-
         lanesAgainstJs(t, kind, 0.7, ws, Infinity, Math.max(...bits) * (1 - 1e-9), around);
         lanesAgainstJs(t, kind, 0.7, ws, (se[1] + se[2]) / 2, Infinity, around);
       }
+      // Lanes of different predictors at one weight (the search's Lorenzo and median), under limits around their bits.
+      const mixed = lanesAgainstJs(t, [Predictor.Lorenzo, Predictor.Median, Predictor.None], 0.7, [0.3, 0.3, 0.3], Infinity, Infinity, [Infinity]);
+      const around = mixed.flatMap((lane) => (lane ? [lane.bits, lane.bits * (1 - 1e-12)] : []));
+      expect(around.length).toBe(6);
+      lanesAgainstJs(t, [Predictor.Lorenzo, Predictor.Median, Predictor.None], 0.7, [0.3, 0.3, 0.3], Infinity, Infinity, around);
     }
   });
 
