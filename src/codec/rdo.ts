@@ -395,11 +395,11 @@ export function residualForMseCoded(t: PreparedTile, f: Factors | null, mse: num
   let spare: Int32Array = new Int32Array(cells);
   // The walks of the plain predictor, in the kernels where they are to be had (nothing else uses them meanwhile),
   // several weights of a step in one pass (RdoWalks.walkLanes).
-  const plainWalks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights(), RDO_WEIGHTS.length);
+  const plainWalks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights(), RDO_WEIGHTS.length, plainKind === Predictor.Blend);
   // A walk whose bits pass the third cheapest's could not rank among them: cut short.
   const limit = () => (ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity);
-  // Walks in one pass: of the plain predictors, in the kernels (the blend's walk a weight at a time).
-  const perPass = plainWalks !== null && plainKind !== Predictor.Blend ? plainWalks.lanes : 1;
+  // Walks in one pass, in the kernels.
+  const perPass = plainWalks?.lanes ?? 1;
   try {
     for (let ai = RDO_STEPS.length - 1; ai >= 0; ai--) {
       const a = RDO_STEPS[ai];
@@ -470,10 +470,8 @@ export function residualForMseCoded(t: PreparedTile, f: Factors | null, mse: num
  * coded: under the rough-bits limit `bitsLimit` (the one before the first
  * is coded, which later ones only tighten), the plain ones in one pass
  * (RdoWalks.walkLanes), the blend after them. By predictor, each one's
- * walk as a {@link LaneWalk} (the blend's too: its walk stops on its sums
- * cell by cell, so under a tighter limit L it would have given false
- * exactly when its floor before the first row or its bits pass L) and its
- * differences; empty without the kernels (the caller walks them in turn).
+ * walk as a {@link LaneWalk} and its differences; empty without the
+ * kernels (the caller walks them in turn).
  * `floorOf` gives the floor at a step (computed in the kernels held).
  */
 function walkOthers(t: PreparedTile, base: Float64Array, kinds: number[], step: number, w: number, seLimit: number, bitsLimit: number, floorOf: (step: number, walks: RdoWalks) => RowFloor): Map<number, { walk: LaneWalk; d: Int32Array | null }> {
@@ -491,10 +489,7 @@ function walkOthers(t: PreparedTile, base: Float64Array, kinds: number[], step: 
   try {
     const floor = floorOf(step, walks);
     if (plain.length > 0 && plain.length <= walks.lanes) walks.walkLanes(plain, step, plain.map(() => w), seLimit, bitsLimit, FLOOR_KEEP, floor).forEach((walk, l) => keep(plain[l], walk, l));
-    if (kinds.includes(Predictor.Blend)) {
-      const r = walks.walk(Predictor.Blend, step, w, seLimit, bitsLimit, FLOOR_KEEP, floor);
-      keep(Predictor.Blend, r ? { ...r, seFloor: r.se, bitsFloor: Math.max(FLOOR_KEEP * floor.restBits[0], r.bits) } : r, 0);
-    }
+    if (kinds.includes(Predictor.Blend)) keep(Predictor.Blend, walks.walkLanes([Predictor.Blend], step, [w], seLimit, bitsLimit, FLOOR_KEEP, floor)[0], 0);
   } finally {
     walks.close();
   }

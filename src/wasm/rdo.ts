@@ -15,7 +15,7 @@ import { KEEP_BYTES, kernels, SCRATCH_AT, WEIGHTS_BYTES, type Kernels } from './
 /** The exports of kernels/rdo.ts: addresses are byte offsets into the kernels' memory. */
 interface RdoKernels {
   rdoWalk(grid: number, codes: number, q: number, d: number, table: number, m: number, n: number, kind: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, out: number): number;
-  rdoBlendWalk(grid: number, codes: number, q: number, d: number, table: number, m: number, n: number, step: number, w: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, out: number, weight: number, above: number, below: number, errs: number): number;
+  rdoBlendLanes(grid: number, codes: number, q: number, d: number, table: number, m: number, n: number, step: number, weights: number, lanes: number, seLimit: number, bitsLimit: number, keep: number, restSe: number, restBits: number, weight: number, parts: number, partBytes: number, state: number): void;
 }
 
 /** The exports of kernels/rdo-floor.ts. */
@@ -59,7 +59,7 @@ export class RdoWalks {
     private readonly floorFn: RdoFloorKernels,
     private readonly m: number,
     private readonly n: number,
-    private readonly at: { r: number; grid: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; above: number; below: number; errs: number; lo: number; hi: number; rows: number; weights: number; kinds: number; state: number },
+    private readonly at: { r: number; grid: number; codes: number; q: number; d: number; table: number; restSe: number; restBits: number; restValid: number; out: number; lo: number; hi: number; rows: number; weights: number; kinds: number; state: number; parts: number; partBytes: number },
     /** The walks {@link RdoWalks.walkLanes} can run in one pass. */
     readonly lanes: number,
   ) {}
@@ -72,12 +72,14 @@ export class RdoWalks {
    * codes, m x n), the rough-bits table and the blend's weight table
    * (`weights`, where the kernels' memory does not hold it yet) in the
    * kernels' memory; null where the kernels are not to be had (nothing is
-   * held then). With room for the differences of up to `lanes` walks of one
-   * pass ({@link RdoWalks.walkLanes}), as many as keep the memory within
-   * KEEP_BYTES (src/wasm/kernels.ts: a larger one is made anew for each
-   * use): 4 on a 512 x 512 tile, 2 on a 1024 x 1024 one.
+   * held then). With room for up to `lanes` walks of one pass
+   * ({@link RdoWalks.walkLanes}; of the blend where `blend`, each with a
+   * grid of its codes), as many as keep the memory within KEEP_BYTES
+   * (src/wasm/kernels.ts: a larger one is made anew for each use): 4 on a
+   * 512 x 512 tile, on a 1024 x 1024 one 2 of the plain predictors and 1
+   * of the blend.
    */
-  static open(orig: Float32Array | Float64Array, base: Float64Array, codes: Uint8Array, m: number, n: number, table: Float64Array, weights: Int32Array, lanes = 1): RdoWalks | null {
+  static open(orig: Float32Array | Float64Array, base: Float64Array, codes: Uint8Array, m: number, n: number, table: Float64Array, weights: Int32Array, lanes = 1, blend = false): RdoWalks | null {
     const cells = m * n;
     if (cells === 0 || orig.length < cells || base.length < cells || codes.length < cells) return null;
     const k = kernels();
@@ -85,12 +87,14 @@ export class RdoWalks {
     const f32 = orig instanceof Float32Array;
     if (4 * weights.length > WEIGHTS_BYTES) return null;
     // Byte addresses from SCRATCH_AT: the sums, the table, RowFloor's three arrays, the values less base (r: base is
-    // copied there), the scaled values (the grid: the values are copied there, for residuals() to read), q, the
-    // lanes' state, weights and two rows of codes each, d (a grid a lane), the blend's sums of the row above and this
-    // one and its errors (after 5 more), the floor's intervals, class codes.
-    const fixed = 64 + 8 * table.length + 24 * (m + 1) + 128 * n + MAX_LANES * (LANE_STATE + 8 + 8 * n) + 256;
+    // copied there), the scaled values (the grid: the values are copied there, for residuals() to read), q (a grid a
+    // lane of the blend, else one), the lanes' state, weights, predictors and two rows of codes each, d (a grid a
+    // lane), the blend's parts a lane (its errors, after 8 more, and the sums of the row above and this one), the
+    // floor's intervals, class codes.
+    const partBytes = up16(32 + 60 * n);
+    const fixed = 64 + 8 * table.length + 24 * (m + 1) + 8 * n + MAX_LANES * (LANE_STATE + 12 + 8 * n + partBytes) + 256;
     let count = Math.max(1, Math.min(MAX_LANES, lanes));
-    while (count > 1 && fixed + (21 + 4 * count) * cells > KEEP_BYTES - SCRATCH_AT) count--;
+    while (count > 1 && fixed + (17 + 4 * count + 4 * (blend ? count : 1)) * cells > KEEP_BYTES - SCRATCH_AT) count--;
     const out = SCRATCH_AT;
     const tableAt = out + 16;
     const restSe = up16(tableAt + 8 * table.length);
@@ -99,15 +103,13 @@ export class RdoWalks {
     const r = up16(restValid + 8 * (m + 1));
     const grid = up16(r + 8 * cells);
     const q = up16(grid + 8 * cells);
-    const state = up16(q + 4 * cells);
+    const state = up16(q + 4 * cells * (blend ? count : 1));
     const laneWeights = up16(state + LANE_STATE * count);
     const kinds = up16(laneWeights + 8 * count);
     const rows = up16(kinds + 4 * count);
     const d = up16(rows + 8 * n * count);
-    const above = up16(d + 4 * cells * count);
-    const below = up16(above + 20 * n);
-    const errs = up16(below + 20 * n) + 32;
-    const lo = up16(errs + 20 * n);
+    const parts = up16(d + 4 * cells * count);
+    const lo = up16(parts + partBytes * count);
     const hi = up16(lo + 4 * n);
     const codesAt = up16(hi + 4 * n);
     if (!k.lease(codesAt + cells - SCRATCH_AT)) return null;
@@ -127,7 +129,7 @@ export class RdoWalks {
     else k.f64.set(orig.subarray(0, cells), grid / 8);
     k.u8.set(codes.subarray(0, cells), codesAt);
     floorFn.residuals(grid, f32 ? 1 : 0, r, cells);
-    return new RdoWalks(k, fn, floorFn, m, n, { r, grid, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, above, below, errs, lo, hi, rows, weights: laneWeights, kinds, state }, count);
+    return new RdoWalks(k, fn, floorFn, m, n, { r, grid, codes: codesAt, q, d, table: tableAt, restSe, restBits, restValid, out, lo, hi, rows, weights: laneWeights, kinds, state, parts, partBytes }, count);
   }
 
   /** RowFloor's sums at `step` for predictor `kind` (from each row to the end: the least squared error and rough bits a walk adds, the valid cells), m + 1 each; the grid then holds the scaled values at `step`. */
@@ -150,26 +152,40 @@ export class RdoWalks {
       this.floorFn.scaled(at.r, at.grid, m * this.n, step);
       this.gridStep = step;
     }
-    const r =
-      kind === BLEND
-        ? this.fn.rdoBlendWalk(at.grid, at.codes, at.q, at.d, at.table, m, this.n, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out, 0, at.above, at.below, at.errs)
-        : this.fn.rdoWalk(at.grid, at.codes, at.q, at.d, at.table, m, this.n, kind, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out);
+    if (kind === BLEND) {
+      // The blend's lanes kernel with one lane (its state where the other walk's sums go).
+      heap[at.weights / 8] = w;
+      this.fn.rdoBlendLanes(at.grid, at.codes, at.q, at.d, at.table, m, this.n, step, at.weights, 1, seLimit, bitsLimit, keep, at.restSe, at.restBits, 0, at.parts, at.partBytes, at.state);
+      return this.laneWalk(0);
+    }
+    const r = this.fn.rdoWalk(at.grid, at.codes, at.q, at.d, at.table, m, this.n, kind, step, w, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.out);
     if (r < 0) return null;
     if (r === 0) return false;
     return { se: heap[at.out / 8], bits: heap[at.out / 8 + 1] };
   }
 
+  /** Lane l's walk from the kernels' state (status, squared error and rough bits; see {@link KernelWalk}). */
+  private laneWalk(l: number): { se: number; bits: number } | false | null {
+    const s = this.at.state + LANE_STATE * l;
+    const r = this.k.i32[s / 4];
+    if (r < 0) return null;
+    if (r === 0) return false;
+    return { se: this.k.f64[s / 8 + 2], bits: this.k.f64[s / 8 + 3] };
+  }
+
   /**
-   * Walks of the plain predictors `kinds` (None to the median) at one step
-   * and the weights `ws` (lane l: kinds[l] at ws[l], at most
-   * {@link RdoWalks.lanes}), all in one pass under the same limits (see
-   * {@link LaneWalk}); lane l's differences are read with
-   * {@link RdoWalks.differences}(d, l).
+   * Walks of the predictors `kinds` at one step and the weights `ws` (lane
+   * l: kinds[l] at ws[l], at most {@link RdoWalks.lanes}): plain ones (None
+   * to the median, kernels/rdo-lanes.ts), or all the blend
+   * (kernels/rdo-blend.ts, laid out for it: see {@link RdoWalks.open}), all
+   * in one pass under the same limits (see {@link LaneWalk}); lane l's
+   * differences are read with {@link RdoWalks.differences}(d, l).
    */
   walkLanes(kinds: readonly number[], step: number, ws: readonly number[], seLimit: number, bitsLimit: number, keep: number, floor: { restSe: Float64Array; restBits: Float64Array }): LaneWalk[] {
     const { at, m, n } = this;
-    // Internal assertion: the lanes were laid out, and the blend is not a plain predictor.
-    if (ws.length > this.lanes || kinds.length !== ws.length || kinds.includes(BLEND)) throw new Error(`internal: ${ws.length} walks of predictors ${kinds} in ${this.lanes} lanes`);
+    const blend = kinds.includes(BLEND);
+    // Internal assertion: the lanes were laid out, and the blend's walks are not among the plain ones.
+    if (ws.length > this.lanes || kinds.length !== ws.length || (blend && !kinds.every((k) => k === BLEND))) throw new Error(`internal: ${ws.length} walks of predictors ${kinds} in ${this.lanes} lanes`);
     const heap = this.k.f64;
     heap.set(floor.restSe.subarray(0, m + 1), at.restSe / 8);
     heap.set(floor.restBits.subarray(0, m + 1), at.restBits / 8);
@@ -179,14 +195,20 @@ export class RdoWalks {
       this.floorFn.scaled(at.r, at.grid, m * n, step);
       this.gridStep = step;
     }
+    if (blend) {
+      this.fn.rdoBlendLanes(at.grid, at.codes, at.q, at.d, at.table, m, n, step, at.weights, ws.length, seLimit, bitsLimit, keep, at.restSe, at.restBits, 0, at.parts, at.partBytes, at.state);
+      // Its sums stop a walk cell by cell: under a tighter limit L the walk would have given false exactly when its floor before the first row, or its bits, pass L.
+      const before = keep * floor.restBits[0];
+      return ws.map((_w, l) => {
+        const r = this.laneWalk(l);
+        return r ? { ...r, seFloor: r.se, bitsFloor: Math.max(before, r.bits) } : r;
+      });
+    }
     this.floorFn.rdoLanes(at.grid, at.codes, at.rows, at.d, at.table, m, n, at.kinds, step, at.weights, ws.length, seLimit, bitsLimit, keep, at.restSe, at.restBits, at.state);
-    const status = this.k.i32;
     return ws.map((_w, l) => {
-      const s = at.state + LANE_STATE * l;
-      const r = status[s / 4];
-      if (r < 0) return null;
-      if (r === 0) return false;
-      return { se: heap[s / 8 + 2], bits: heap[s / 8 + 3], seFloor: heap[s / 8 + 4], bitsFloor: heap[s / 8 + 5] };
+      const r = this.laneWalk(l);
+      const s = (at.state + LANE_STATE * l) / 8;
+      return r ? { ...r, seFloor: heap[s + 4], bitsFloor: heap[s + 5] } : r;
     });
   }
 

@@ -235,7 +235,7 @@ describe('a walk in the kernels', () => {
   });
 });
 
-describe('walks of several weights in one pass (RdoWalks.walkLanes, kernels/rdo-lanes.ts)', () => {
+describe('walks of several weights in one pass (RdoWalks.walkLanes: kernels/rdo-lanes.ts, and kernels/rdo-blend.ts for the blend)', () => {
   /**
    * Each lane against the JavaScript's walk of its weight alone (RdoWalk.run
    * over RowFloor.of's sums): its sums and differences, and under a limit L
@@ -250,7 +250,7 @@ describe('walks of several weights in one pass (RdoWalks.walkLanes, kernels/rdo-
     // Predictors that differ share the floor of any predictor (as the search's walks of the other predictors do).
     const own = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step, kinds[0]);
     const floor = kinds.every((k) => k === kinds[0]) ? own : own.anyPredictor();
-    const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights(), ws.length);
+    const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights(), ws.length, kinds[0] === Predictor.Blend);
     expect(walks?.lanes).toBe(ws.length);
     try {
       const lanes = walks!.walkLanes(kinds, step, ws, seLimit, passLimit, FLOOR_KEEP, floor);
@@ -281,7 +281,7 @@ describe('walks of several weights in one pass (RdoWalks.walkLanes, kernels/rdo-
     const precip = prepareTile(block('annual-precip.json', 0, 0, 48, 80), 48, 80, 'f32', null, 5);
     const ws = [0.6, 0.45, 0.3, 0.15];
     for (const t of [volcano, precip]) {
-      for (const kind of KINDS.filter((k) => k !== Predictor.Blend)) {
+      for (const kind of KINDS) {
         const free = lanesAgainstJs(t, kind, 0.7, ws, Infinity, Infinity, [Infinity]);
         const bits = free.map((lane) => (lane ? lane.bits : 0));
         const se = free.map((lane) => (lane ? lane.se : 0));
@@ -306,7 +306,7 @@ describe('walks of several weights in one pass (RdoWalks.walkLanes, kernels/rdo-
     expect(masked.classes.special).toBeGreaterThan(0);
     const shapes = [prepareTile(values.subarray(0, 40), 1, 40, 'f32', null, 5), prepareTile(Float32Array.from({ length: 24 }, (_v, i) => values[i * 40 + 7]), 24, 1, 'f32', null, 5), prepareTile(values.subarray(5, 6), 1, 1, 'f32', null, 5)];
     for (const t of [masked, ...shapes]) {
-      for (const kind of [Predictor.None, Predictor.Lorenzo, Predictor.Median]) {
+      for (const kind of [Predictor.None, Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) {
         for (const ws of [[0.6, 0.45, 0.3], [0.3, 0.15], [0.45]]) lanesAgainstJs(t, kind, 2.5, ws, Infinity, Infinity, [Infinity]);
       }
     }
@@ -320,6 +320,13 @@ describe('walks of several weights in one pass (RdoWalks.walkLanes, kernels/rdo-
       expect(walks?.lanes).toBe(2);
     } finally {
       walks?.close();
+    }
+    // The blend's lanes each with a grid of codes, (17 + 8 x lanes) bytes a cell: one lane.
+    const blend = RdoWalks.open(new Float32Array(cells), new Float64Array(cells), new Uint8Array(cells), 1024, 1024, bitsTable(), blendWeights(), 4, true);
+    try {
+      expect(blend?.lanes).toBe(1);
+    } finally {
+      blend?.close();
     }
   });
 });
