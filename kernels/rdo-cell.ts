@@ -63,3 +63,15 @@ export function settleCode(table: usize, x: f64, nearF: f64, p: i64, w: f64): i6
   }
   return v;
 }
+
+/** src/codec/reconstruct.ts interior() for the plain predictors (Lorenzo 1 to the median 5) of a (left), b (up), u (up-left). */
+@inline
+export function interior(kind: i32, a: i64, b: i64, u: i64): i64 {
+  if (kind === 1) return a + b - u;
+  if (kind === 2) return a;
+  if (kind === 3) return b;
+  if (kind === 4) return (a + b) >> 1;
+  const lo = a < b ? a : b;
+  const hi = a < b ? b : a;
+  return u >= hi ? lo : u <= lo ? hi : a + b - u;
+}

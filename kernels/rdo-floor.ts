@@ -4,7 +4,9 @@
  * src/wasm/kernels.ts says why): each cell's difference from the low-rank
  * part, once a tile ({@link residuals}); its scaled value at a step, once
  * a step ({@link scaled}, or {@link rowFloor} with the walks' floor,
- * src/codec/rdo.ts RowFloor.of). Encoder-side only. Compiled by `npm run
+ * src/codec/rdo.ts RowFloor.of); and, as the module has the room, the
+ * plain predictor's walks of several weights in one pass
+ * (kernels/rdo-lanes.ts). Encoder-side only. Compiled by `npm run
  * kernels` (scripts/kernels.mjs) into src/wasm/kernels-bytes.ts; laid out
  * by src/wasm/rdo.ts, in the memory of the walks. Every value and sum is
  * the JavaScript's: the same operations in the same order (the scaled
@@ -19,7 +21,9 @@
  * codes' intervals of a row), restSe, restBits and restValid (m + 1
  * binary64 each, out).
  */
-import { bitsOf, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
+import { bitsOf, interior, LIMIT, LIMIT_I, roundJs, value } from './rdo-cell';
+
+export { rdoLanes } from './rdo-lanes';
 
 /** The blend predictor's id (src/codec/reconstruct.ts, Predictor.Blend): its prediction is not bounded. */
 const BLEND = 6;
@@ -28,18 +32,6 @@ const BLEND = 6;
 @inline
 function ld(p: usize, j: i32): i64 {
   return <i64>load<i32>(p + (<usize>j << 2));
-}
-
-/** src/codec/reconstruct.ts interior() for the plain predictors (Lorenzo 1 to the median 5) of a (left), b (up), u (up-left). */
-@inline
-function interior(kind: i32, a: i64, b: i64, u: i64): i64 {
-  if (kind === 1) return a + b - u;
-  if (kind === 2) return a;
-  if (kind === 3) return b;
-  if (kind === 4) return (a + b) >> 1;
-  const lo = a < b ? a : b;
-  const hi = a < b ? b : a;
-  return u >= hi ? lo : u <= lo ? hi : a + b - u;
 }
 
 /** x within +-LIMIT. */

@@ -22,7 +22,7 @@
  * end), out (the walk's squared error and rough bits, two binary64).
  */
 
-export { rdoBlendWalk } from './rdo-blend';
+export { rdoBlendLanes } from './rdo-blend';
 
 import { LIMIT, LIMIT_I, roundJs, settleCode, settledBits } from './rdo-cell';
 

@@ -8,7 +8,7 @@
  * kernels/finish.ts, kernels/finish-ints.ts, kernels/finish-symbols.ts and
  * kernels/finish-blend.ts for the encoder's finishing of a tile, kernels/rdo.ts for the walks of
  * the residual search under L2 bounds, kernels/rdo-floor.ts for their
- * floor and kernels/gram.ts for the Gram matrix of the L2 plan's spectra,
+ * floor and the plain predictor's walks of several weights in one pass, and kernels/gram.ts for the Gram matrix of the L2 plan's spectra,
  * kernels/masked.ts for the pointwise
  * check's choice of predictor on tiles with missing cells and the harmonic
  * fill, kernels/qr.ts for the range finder's orthonormalization,

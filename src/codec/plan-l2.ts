@@ -14,9 +14,9 @@ import { prepareTile, type PreparedTile } from './prepare.js';
 import type { Svd } from '../linalg/svd.js';
 import { Method } from './payload.js';
 import { Spectra } from './spectra.js';
-import { encodeL2, exactPayload, pointwiseFactors, withResidualCoder } from './tile-encode.js';
+import { encodeL2, exactPayload, pointwiseFactors, withResidualCoder, type Coded } from './tile-encode.js';
 import { encodePointwise, pointwiseSearch } from './pointwise-search.js';
-import { rankZeroForMse, residualForMse } from './rdo.js';
+import { residualForMseCoded } from './rdo.js';
 import { adoptSvds, firstPass, keepsTiles, sampleTiles, tileSpectrum, TRUNCATION_SHARES, type FirstPass, type TileSvds } from './first-pass.js';
 
 /**
@@ -93,21 +93,21 @@ export function encodeWith(p: L2PlanData, t: PreparedTile, index: number): Uint8
   const pointwise = pointwiseSearch(t, p.ePrime);
   const { rank: r, bytes } = pointwise.best();
   const f = r > 0 ? pointwiseFactors(t, r, p.ePrime) : null;
-  const withFactors = f && residualForMse(t, f, mse);
+  const withFactors = f && residualForMseCoded(t, f, mse);
   // The pointwise payload is finished (the blend and the residual coders tried) only where it may be the smallest.
-  const factorsBytes = withFactors ? withFactors.length : Infinity;
+  const factorsBytes = withFactors ? withFactors.payload.length : Infinity;
   const finished = bytes <= FINISH_MARGIN * factorsBytes ? pointwise.finish() : null;
   // The factors are those of the rank the pointwise coder chose, even when the rank-0 search wins over it.
   // That search is made last, so that it can give up against the smaller of the others (on a smooth tile
   // the factors' payload is often a fraction of the pointwise one), and is not made at all where the
   // pointwise coder's own rank-0 candidate points to a payload it cannot beat (see ZERO_HOPELESS).
   const atMost = Math.min(finished?.length ?? Infinity, factorsBytes);
-  const rdo = atMost <= ZERO_HOPELESS * pointwise.zeroEstimate ? null : rankZeroForMse(t, mse, atMost);
-  let best = finished;
-  if (rdo !== null && (best === null || rdo.length < best.length)) best = rdo;
-  if (withFactors && (best === null || withFactors.length < best.length)) best = withFactors;
-  // encodePointwise chose its residual coder already; the residual of the others is coded now.
-  return withResidualCoder(t, best ?? pointwise.finish());
+  const rdo = atMost <= ZERO_HOPELESS * pointwise.zeroEstimate ? null : residualForMseCoded(t, null, mse, atMost);
+  let best: Coded | null = finished === null ? null : { payload: finished, codes: null };
+  if (rdo !== null && (best === null || rdo.payload.length < best.payload.length)) best = rdo;
+  if (withFactors && (best === null || withFactors.payload.length < best.payload.length)) best = withFactors;
+  // encodePointwise chose its residual coder already (finish()); the residual of the others is coded now, from its grid.
+  return best === null || best.payload === finished ? pointwise.finish() : withResidualCoder(t, best.payload, best.codes);
 }
 
 /**

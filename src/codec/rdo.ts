@@ -10,8 +10,8 @@ import type { PreparedTile } from './prepare.js';
 import { blendWeights, interior, lowRank, Predictor, walkPredictor } from './reconstruct.js';
 import { MAX_INT } from './section.js';
 import { binary32Below } from './steps.js';
-import { RdoWalks } from '../wasm/rdo.js';
-import { correct, lowRankPayload, type Factors } from './tile-encode.js';
+import { RdoWalks, type LaneWalk } from '../wasm/rdo.js';
+import { correct, lowRankPayload, type Coded, type Factors } from './tile-encode.js';
 
 /** Step multipliers and rate weights (in units of step^2) the rate-distortion search tries. */
 const RDO_STEPS = [0.6, 0.7, 0.85, 1];
@@ -315,6 +315,11 @@ export class RowFloor {
  * {@link PREDICTED_MARGIN}).
  */
 export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, atMost = Infinity): Uint8Array | null {
+  return residualForMseCoded(t, f, mse, atMost)?.payload ?? null;
+}
+
+/** {@link residualForMse} with the grid its residual stream codes (for withResidualCoder in ./tile-encode.ts: not decoded again). */
+export function residualForMseCoded(t: PreparedTile, f: Factors | null, mse: number, atMost = Infinity): Coded | null {
   if (!t.finite || t.valid === 0 || !(mse > 0) || !Number.isFinite(mse)) return null;
   const { m, n } = t;
   const cells = m * n;
@@ -326,7 +331,7 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   if (t.layer) addLayer(base, t.layer, cells);
   const seLimit = 0.98 * mse * t.valid;
   // No residual at all is the smallest payload these factors can make: taken as it is when it fits.
-  if (zeroResidualFits(t, base, seLimit)) return lowRankPayload(t, f, { center, step: 0, q: null, predictor: Predictor.None, exceptions: [] });
+  if (zeroResidualFits(t, base, seLimit)) return { payload: lowRankPayload(t, f, { center, step: 0, q: null, predictor: Predictor.None, exceptions: [] }), codes: null };
   const unit = Math.sqrt(12 * mse);
   const plain = correct(t, f, unit / 2, unit);
   if (plain.bits !== undefined && (plain.bits / 8) * GIVE_UP >= atMost) return null;
@@ -339,15 +344,19 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
    */
   // RowFloor's sums by step, for the plain predictor.
   const floors = new Map<number, RowFloor>();
-  // With `walks` (the tile laid out in the kernels), a walk runs there: its differences are then left there
-  // (`kernel` true) for the caller to take where it keeps them.
-  const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit: number, walks: RdoWalks | null): { step: number; bits: number; kernel: boolean } | null => {
-    const step = binary32Below(a * unit);
+  const floorAt = (step: number, walks: RdoWalks | null): RowFloor => {
     let floor = floors.get(step);
     if (floor === undefined) {
       const sums = walks?.floor(step, plainKind);
       floors.set(step, (floor = sums ? new RowFloor(sums.restSe, sums.restBits, sums.restValid) : RowFloor.of(t.orig, base, t.classes.codes, m, n, step, plainKind)));
     }
+    return floor;
+  };
+  // With `walks` (the tile laid out in the kernels), a walk runs there: its differences are then left there
+  // (`kernel` true) for the caller to take where it keeps them.
+  const walk = (kind: number, a: number, w: number, d: Int32Array, bitsLimit: number, walks: RdoWalks | null): { step: number; bits: number; kernel: boolean } | null => {
+    const step = binary32Below(a * unit);
+    let floor = floorAt(step, walks);
     if (kind !== plainKind) floor = floor.anyPredictor();
     if (walks !== null) {
       const r = walks.walk(kind, step, w, seLimit, bitsLimit, FLOOR_KEEP, floor);
@@ -359,16 +368,20 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
     return run.run(q, m, n, kind, seLimit, bitsLimit, floor) && run.se <= seLimit ? { step: run.step, bits: run.bits, kernel: false } : null;
   };
   let best: Uint8Array | null = null;
+  // The grid best's residual stream codes (null: it has none).
+  let bestCodes: Int32Array | null = null;
   let bestAt: [number, number] = [1, 0];
   // Bytes a rough bit of the first candidate coded took (see PREDICTED_MARGIN).
   let perBit = 0;
   const beat = () => Math.min(atMost, best === null ? Infinity : (best as Uint8Array).length);
   const code = (kind: number, a: number, w: number, step: number, d: Int32Array, bits: number): void => {
     if (perBit > 0 && perBit * bits > PREDICTED_MARGIN * beat()) return;
-    const payload = lowRankPayload(t, f, { center, step, q: d.some((v) => v !== 0) ? d : null, predictor: kind, exceptions: [] });
+    const q = d.some((v) => v !== 0) ? d : null;
+    const payload = lowRankPayload(t, f, { center, step, q, predictor: kind, exceptions: [] });
     if (perBit === 0 && bits > 0) perBit = payload.length / bits;
     if (best === null || payload.length < best.length) {
       best = payload;
+      bestCodes = q;
       bestAt = [a, w];
     }
   };
@@ -380,43 +393,107 @@ export function residualForMse(t: PreparedTile, f: Factors | null, mse: number, 
   // ranking does not depend on the order the walks run in.
   const ranked: { a: number; w: number; bits: number; order: number; step: number; d: Int32Array }[] = [];
   let spare: Int32Array = new Int32Array(cells);
-  // The walks of the plain predictor, in the kernels where they are to be had (nothing else uses them meanwhile).
-  const plainWalks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
+  // The walks of the plain predictor, in the kernels where they are to be had (nothing else uses them meanwhile),
+  // several weights of a step in one pass (RdoWalks.walkLanes).
+  const plainWalks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights(), RDO_WEIGHTS.length, plainKind === Predictor.Blend);
+  // A walk whose bits pass the third cheapest's could not rank among them: cut short.
+  const limit = () => (ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity);
+  // Walks in one pass, in the kernels.
+  const perPass = plainWalks?.lanes ?? 1;
   try {
     for (let ai = RDO_STEPS.length - 1; ai >= 0; ai--) {
-      for (let wi = RDO_WEIGHTS.length - 1; wi >= 0; wi--) {
-        const [a, w, order] = [RDO_STEPS[ai], RDO_WEIGHTS[wi], ai * RDO_WEIGHTS.length + wi];
-        // A walk whose bits pass the third cheapest's could not rank among them: cut short.
-        const walked = walk(plainKind, a, w, spare, ranked.length === RDO_CODED ? ranked[RDO_CODED - 1].bits : Infinity, plainWalks);
-        if (walked === null) continue;
-        let at = ranked.length;
-        while (at > 0 && (ranked[at - 1].bits > walked.bits || (ranked[at - 1].bits === walked.bits && ranked[at - 1].order > order))) at--;
-        if (at >= RDO_CODED) continue;
-        if (walked.kernel) plainWalks!.differences(spare);
-        ranked.splice(at, 0, { a, w, bits: walked.bits, order, step: walked.step, d: spare });
-        spare = ranked.length > RDO_CODED ? ranked.pop()!.d : new Int32Array(cells);
+      const a = RDO_STEPS[ai];
+      const step = binary32Below(a * unit);
+      for (let top = RDO_WEIGHTS.length - 1; top >= 0; top -= perPass) {
+        // The weights of one pass, heaviest first, walked under the limit before the pass (see LaneWalk).
+        const wis = Array.from({ length: Math.min(top + 1, perPass) }, (_, k) => top - k);
+        const lanes = perPass > 1 ? plainWalks!.walkLanes(wis.map(() => plainKind), step, wis.map((wi) => RDO_WEIGHTS[wi]), seLimit, limit(), FLOOR_KEEP, floorAt(step, plainWalks)) : undefined;
+        wis.forEach((wi, l) => {
+          const [w, order] = [RDO_WEIGHTS[wi], ai * RDO_WEIGHTS.length + wi];
+          const bitsLimit = limit();
+          const lane = lanes?.[l];
+          // Where the pass walked it (not null: a NaN value, walked in JavaScript), as the walk under its own limit would have ended.
+          const walked =
+            lane === undefined || lane === null
+              ? walk(plainKind, a, w, spare, bitsLimit, lane === null ? null : plainWalks)
+              : lane !== false && lane.seFloor <= seLimit && lane.bitsFloor <= bitsLimit && lane.se <= seLimit
+                ? { step, bits: lane.bits, kernel: true }
+                : null;
+          if (walked === null) return;
+          let at = ranked.length;
+          while (at > 0 && (ranked[at - 1].bits > walked.bits || (ranked[at - 1].bits === walked.bits && ranked[at - 1].order > order))) at--;
+          if (at >= RDO_CODED) return;
+          if (walked.kernel) plainWalks!.differences(spare, l);
+          ranked.splice(at, 0, { a, w, bits: walked.bits, order, step: walked.step, d: spare });
+          spare = ranked.length > RDO_CODED ? ranked.pop()!.d : new Int32Array(cells);
+        });
       }
     }
   } finally {
     plainWalks?.close();
   }
   for (const r of ranked) code(plainKind, r.a, r.w, r.step, r.d, r.bits);
-  for (const kind of [Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) {
-    if (kind === plainKind) continue;
-    const [a, w] = bestAt;
-    // A walk whose rough bits pass what code() would take is cut short (a hair over, against rounding). In the
-    // kernels, laid out for this walk alone: code() takes the kernels' memory after it.
-    const walks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights());
+  // The other predictors at the best step and weight (code() sets bestAt to the same); a walk whose rough bits pass
+  // what code() would take is cut short (a hair over, against rounding).
+  const [a, w] = bestAt;
+  const codeLimit = () => (perBit > 0 ? ((PREDICTED_MARGIN * beat()) / perBit) * (1 + 1e-9) : Infinity);
+  const others = [Predictor.Lorenzo, Predictor.Median, Predictor.Blend].filter((kind) => kind !== plainKind);
+  const early = walkOthers(t, base, others, binary32Below(a * unit), w, seLimit, codeLimit(), (step, walks) => floorAt(step, walks).anyPredictor());
+  for (const kind of others) {
+    const bitsLimit = codeLimit();
+    const got = early.get(kind);
+    if (got !== undefined && got.walk !== null) {
+      // Walked above under the limit before the first was coded: read as its walk under this limit would have ended.
+      const lane = got.walk;
+      if (lane !== false && lane.seFloor <= seLimit && lane.bitsFloor <= bitsLimit && lane.se <= seLimit) code(kind, a, w, binary32Below(a * unit), got.d!, lane.bits);
+      continue;
+    }
+    // Not walked above (no kernels, or a NaN value: in JavaScript), walked now. The best's grid is kept: the walk writes elsewhere.
+    if (bestCodes === spare) spare = new Int32Array(cells);
+    // In the kernels, laid out for this walk alone: code() takes the kernels' memory after it.
+    const walks = got === undefined ? RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights()) : null;
     let walked: ReturnType<typeof walk> = null;
     try {
-      walked = walk(kind, a, w, spare, perBit > 0 ? ((PREDICTED_MARGIN * beat()) / perBit) * (1 + 1e-9) : Infinity, walks);
+      walked = walk(kind, a, w, spare, bitsLimit, walks);
       if (walked?.kernel) walks!.differences(spare);
     } finally {
       walks?.close();
     }
     if (walked !== null) code(kind, a, w, walked.step, spare, walked.bits);
   }
-  return best;
+  return best === null ? null : { payload: best, codes: bestCodes };
+}
+
+/**
+ * The walks of the predictors `kinds` (other than the one plain rounding
+ * picks) at one step and weight, in the kernels, before any of them is
+ * coded: under the rough-bits limit `bitsLimit` (the one before the first
+ * is coded, which later ones only tighten), the plain ones in one pass
+ * (RdoWalks.walkLanes), the blend after them. By predictor, each one's
+ * walk as a {@link LaneWalk} and its differences; empty without the
+ * kernels (the caller walks them in turn).
+ * `floorOf` gives the floor at a step (computed in the kernels held).
+ */
+function walkOthers(t: PreparedTile, base: Float64Array, kinds: number[], step: number, w: number, seLimit: number, bitsLimit: number, floorOf: (step: number, walks: RdoWalks) => RowFloor): Map<number, { walk: LaneWalk; d: Int32Array | null }> {
+  const out = new Map<number, { walk: LaneWalk; d: Int32Array | null }>();
+  const { m, n } = t;
+  const plain = kinds.filter((kind) => kind !== Predictor.Blend);
+  const walks = RdoWalks.open(t.orig, base, t.classes.codes, m, n, bitsTable(), blendWeights(), plain.length);
+  if (walks === null) return out;
+  // A walk's differences, out of lane `lane` (the blend's walk leaves them where lane 0's were).
+  const keep = (kind: number, walk: LaneWalk, lane: number): void => {
+    const d = walk ? new Int32Array(m * n) : null;
+    if (d !== null) walks.differences(d, lane);
+    out.set(kind, { walk, d });
+  };
+  try {
+    const floor = floorOf(step, walks);
+    if (plain.length > 0 && plain.length <= walks.lanes) walks.walkLanes(plain, step, plain.map(() => w), seLimit, bitsLimit, FLOOR_KEEP, floor).forEach((walk, l) => keep(plain[l], walk, l));
+    if (kinds.includes(Predictor.Blend)) keep(Predictor.Blend, walks.walkLanes([Predictor.Blend], step, [w], seLimit, bitsLimit, FLOOR_KEEP, floor)[0], 0);
+  } finally {
+    walks.close();
+  }
+  return out;
 }
 
 /**

@@ -15,7 +15,8 @@
  * check's error tally; the encoder's modules for L2 bounds, one with the
  * residual search's walks (src/wasm/rdo.ts), which imports the
  * JavaScript's Math.log2 (so that its values are the JavaScript's), one
- * with those walks' floor (the same import), one with the Gram matrix of
+ * with those walks' floor and the plain predictor's walks of several
+ * weights in one pass (the same import), one with the Gram matrix of
  * the plan's spectra (src/wasm/gram.ts); the encoder's module for tiles
  * with missing cells (the check's choice of predictor, src/wasm/masked.ts,
  * and the harmonic fill, src/wasm/fill.ts);

@@ -235,6 +235,102 @@ describe('a walk in the kernels', () => {
   });
 });
 
+describe('walks of several weights in one pass (RdoWalks.walkLanes: kernels/rdo-lanes.ts, and kernels/rdo-blend.ts for the blend)', () => {
+  /**
+   * Each lane against the JavaScript's walk of its weight alone (RdoWalk.run
+   * over RowFloor.of's sums): its sums and differences, and under a limit L
+   * on the rough bits (the pass's own at most) the walk ends within L
+   * exactly when the lane's largest sums with the floor's stay within the
+   * limits, as the search reads them (src/codec/rdo.ts).
+   */
+  function lanesAgainstJs(t: PreparedTile, kind: number | number[], step: number, ws: number[], seLimit: number, passLimit: number, limits: number[]) {
+    const cells = t.m * t.n;
+    const base = new Float64Array(cells).fill(t.center);
+    const kinds = typeof kind === 'number' ? ws.map(() => kind) : kind;
+    // Predictors that differ share the floor of any predictor (as the search's walks of the other predictors do).
+    const own = RowFloor.of(t.orig, base, t.classes.codes, t.m, t.n, step, kinds[0]);
+    const floor = kinds.every((k) => k === kinds[0]) ? own : own.anyPredictor();
+    const walks = RdoWalks.open(t.orig, base, t.classes.codes, t.m, t.n, bitsTable(), blendWeights(), ws.length, kinds[0] === Predictor.Blend);
+    expect(walks?.lanes).toBe(ws.length);
+    try {
+      const lanes = walks!.walkLanes(kinds, step, ws, seLimit, passLimit, FLOOR_KEEP, floor);
+      ws.forEach((w, l) => {
+        const lane = lanes[l];
+        const dK = new Int32Array(cells);
+        if (lane) walks!.differences(dK, l);
+        for (const bitsLimit of limits.filter((l) => l <= passLimit)) {
+          const dJs = new Int32Array(cells);
+          const run = new RdoWalk(t.orig, base, t.classes.codes, dJs, step, w);
+          const ok = run.run(new Int32Array(cells), t.m, t.n, kinds[l], seLimit, bitsLimit, floor);
+          const read = lane !== null && lane !== false && lane.seFloor <= seLimit && lane.bitsFloor <= bitsLimit;
+          expect(read, `kind ${kind} weight ${w} limit ${bitsLimit}`).toBe(ok);
+          if (!ok || !lane) continue;
+          expect({ se: lane.se, bits: lane.bits }).toEqual({ se: run.se, bits: run.bits });
+          expect(Array.from(dK)).toEqual(Array.from(dJs));
+        }
+      });
+      return lanes;
+    } finally {
+      walks!.close();
+    }
+  }
+
+  it('gives each weight\'s walk, and where it would have stopped under a tighter limit, on vega-datasets volcano.json and annual-precip.json', () => {
+    const g = vega('volcano.json');
+    const volcano = prepareTile(Float32Array.from(g.values as number[]), g.m, g.n, 'f32', null, 1);
+    const precip = prepareTile(block('annual-precip.json', 0, 0, 48, 80), 48, 80, 'f32', null, 5);
+    const ws = [0.6, 0.45, 0.3, 0.15];
+    for (const t of [volcano, precip]) {
+      for (const kind of KINDS) {
+        const free = lanesAgainstJs(t, kind, 0.7, ws, Infinity, Infinity, [Infinity]);
+        const bits = free.map((lane) => (lane ? lane.bits : 0));
+        const se = free.map((lane) => (lane ? lane.se : 0));
+        expect(bits.every((b) => b > 0)).toBe(true);
+        // Limits around each lane's bits (and a pass limit between them), and a squared-error limit that stops some lanes.
+        const around = bits.flatMap((b) => [b, b * (1 - 1e-12), 0.5 * b]);
+        lanesAgainstJs(t, kind, 0.7, ws, Infinity, Math.max(...bits) * (1 - 1e-9), around);
+        lanesAgainstJs(t, kind, 0.7, ws, (se[1] + se[2]) / 2, Infinity, around);
+      }
+      // Lanes of different predictors at one weight (the search's Lorenzo and median), under limits around their bits.
+      const mixed = lanesAgainstJs(t, [Predictor.Lorenzo, Predictor.Median, Predictor.None], 0.7, [0.3, 0.3, 0.3], Infinity, Infinity, [Infinity]);
+      const around = mixed.flatMap((lane) => (lane ? [lane.bits, lane.bits * (1 - 1e-12)] : []));
+      expect(around.length).toBe(6);
+      lanesAgainstJs(t, [Predictor.Lorenzo, Predictor.Median, Predictor.None], 0.7, [0.3, 0.3, 0.3], Infinity, Infinity, around);
+    }
+  });
+
+  it('gives each weight\'s walk with missing cells, with two lanes and one, and on 1 x n, m x 1 and 1 x 1 tiles', () => {
+    const values = block('annual-precip.json', 40, 100, 24, 40);
+    const holed = values.map((v, c) => (c % 5 === 2 ? -999 : v));
+    const masked = prepareTile(holed, 24, 40, 'f32', fillWords(-999, 'f32'), 5);
+    expect(masked.classes.special).toBeGreaterThan(0);
+    const shapes = [prepareTile(values.subarray(0, 40), 1, 40, 'f32', null, 5), prepareTile(Float32Array.from({ length: 24 }, (_v, i) => values[i * 40 + 7]), 24, 1, 'f32', null, 5), prepareTile(values.subarray(5, 6), 1, 1, 'f32', null, 5)];
+    for (const t of [masked, ...shapes]) {
+      for (const kind of [Predictor.None, Predictor.Lorenzo, Predictor.Median, Predictor.Blend]) {
+        for (const ws of [[0.6, 0.45, 0.3], [0.3, 0.15], [0.45]]) lanesAgainstJs(t, kind, 2.5, ws, Infinity, Infinity, [Infinity]);
+      }
+    }
+  });
+
+  it('lays out as many lanes as keep the kernels\' memory within KEEP_BYTES', () => {
+    const cells = 1024 * 1024;
+    const walks = RdoWalks.open(new Float32Array(cells), new Float64Array(cells), new Uint8Array(cells), 1024, 1024, bitsTable(), blendWeights(), 4);
+    try {
+      // (21 + 4 x lanes) bytes a cell: 3 lanes would take 34.6 MB, past 32 MiB.
+      expect(walks?.lanes).toBe(2);
+    } finally {
+      walks?.close();
+    }
+    // The blend's lanes each with a grid of codes, (17 + 8 x lanes) bytes a cell: one lane.
+    const blend = RdoWalks.open(new Float32Array(cells), new Float64Array(cells), new Uint8Array(cells), 1024, 1024, bitsTable(), blendWeights(), 4, true);
+    try {
+      expect(blend?.lanes).toBe(1);
+    } finally {
+      blend?.close();
+    }
+  });
+});
+
 /**
  * The squared error and rough bits a walk of predictor `kind` adds from each
  * row to its end (entry m 0), by RdoWalk.settle (the JavaScript's choice of

@@ -13,7 +13,8 @@ import { payloadHead, residualPlace } from '../../src/codec/payload.js';
 import { prepareTile } from '../../src/codec/prepare.js';
 import { decodeTile } from '../../src/codec/tile-decode.js';
 import { lowRankPayload, pointwiseFactors } from '../../src/codec/tile-encode.js';
-import { rankZeroForMse, residualForMse } from '../../src/codec/rdo.js';
+import { decodeInts } from '../../src/codec/code-decode.js';
+import { rankZeroForMse, residualForMse, residualForMseCoded } from '../../src/codec/rdo.js';
 
 function precipTile(m: number, n: number): Float32Array {
   const path = fileURLToPath(new URL('../../node_modules/vega-datasets/data/annual-precip.json', import.meta.url));
@@ -44,6 +45,26 @@ function precipCase() {
 }
 
 describe('residualForMse', () => {
+  it('hands over the grid its residual stream codes: the grid the library\'s decoder reads back from the payload', () => {
+    const { m, n, t, tol, mse } = precipCase();
+    for (const rank of [0, 2]) {
+      const f = rank > 0 ? pointwiseFactors(t, rank, Math.sqrt(3) * tol) : null;
+      const coded = residualForMseCoded(t, f, mse);
+      expect(coded).not.toBeNull();
+      expect(Array.from(coded!.payload)).toEqual(Array.from(residualForMse(t, f, mse)!));
+      const place = residualPlace(coded!.payload);
+      expect(place).not.toBeNull();
+      const back = new Int32Array(m * n);
+      decodeInts(coded!.payload.subarray(place!.streamAt, place!.streamEnd), m, n, null, back);
+      expect(coded!.codes).not.toBeNull();
+      expect(Array.from(coded!.codes!)).toEqual(Array.from(back));
+    }
+    // A loose allotment: the low-rank part alone meets it, and there is no residual (nor grid).
+    const loose = residualForMseCoded(t, null, 1e6 * mse);
+    expect(residualPlace(loose!.payload)).toBeNull();
+    expect(loose!.codes).toBeNull();
+  });
+
   it('keeps the factors it is given and meets the squared-error allotment on the decoded values', () => {
     const { m, n, values, t, tol, mse } = precipCase();
     expect(values.every(Number.isFinite)).toBe(true);
