@@ -118,6 +118,20 @@ export const encodeTasks = {
 };
 
 /**
+ * Post a set-up task to every thread of `pool` without waiting for the
+ * answers: each thread runs its tasks in the order they were posted, so the
+ * tasks posted after it find it done, and the calling thread starts on them
+ * while a worker still starts up (a worker started for the call takes
+ * 100-250 ms to load its code). The promise settles when all have answered;
+ * it is handled here, so a failure waits for the caller's await.
+ */
+function announce(pool: WorkerPool, kind: string, body: unknown): Promise<void> {
+  const answered = pool.broadcast(kind, body);
+  answered.catch(() => undefined);
+  return answered;
+}
+
+/**
  * Run `post` for every item, at most `limit` at a time, and hand each result
  * to `use` in item order as soon as the ones before it are used. At the
  * first failure (of a task or of `use`) no more items are taken; tasks still
@@ -202,7 +216,7 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   const key = nextKey++;
   const { plan, ...rest } = c;
-  await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
+  const setup = announce(pool, 'encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
   const summary = new FieldSummary(c);
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
     // A tile the tile trial encoded already (see FieldPrior).
@@ -223,6 +237,7 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
   };
   try {
     await inOrder(pool, tilesOf(src, spec), post, finished, limit);
+    await setup;
   } finally {
     if (!pool.failed) await pool.broadcast('encode-forget', { key });
   }
@@ -237,9 +252,10 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
 export async function encodeTilesOn(pool: WorkerPool, c: FieldChoices, tiles: PickedTile[]): Promise<TileOutcome[]> {
   const key = nextKey++;
   const { plan: _, ...rest } = c;
-  await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: null } satisfies WireChoices });
+  const setup = announce(pool, 'encode-setup', { key, choices: { ...rest, plan: null } satisfies WireChoices });
   try {
     const runs = tiles.map(({ index, tile, m, n, term }) => pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, ...(term ? { term } : {}) } satisfies TileTask));
+    await setup;
     // The tallies crossed threads as plain fields; give them their class back.
     return (await Promise.all(runs)).map((o) => ({ ...o, tally: Object.assign(new ErrorTally(), o.tally) }));
   } finally {
@@ -302,12 +318,10 @@ async function firstPassOn(pool: WorkerPool, src: BandSource, spec: FieldSpec, t
 function costingOn(pool: WorkerPool): (plans: L2PlanData[], sample: number[], tiles: PreparedTile[]) => { cost: (k: number, ats: number[]) => Promise<number[]>; done: () => Promise<void> } {
   return (plans, sample, tiles) => {
     const key = nextKey++;
-    const setup = pool.broadcast('cost-setup', { key, plans });
-    // Awaited by every request, or by done: a failure meanwhile must not go unhandled.
-    setup.catch(() => undefined);
+    // Awaited by every request, or by done.
+    const setup = announce(pool, 'cost-setup', { key, plans });
     const cost = async (k: number, ats: number[]): Promise<number[]> => {
-      await setup;
-      const { payloads, svds } = await pool.run<{ payloads: Uint8Array[]; svds: [number, Svd][] }>('cost-tile', { key, index: sample[k], ats, tile: tiles[k] });
+      const [, { payloads, svds }] = await Promise.all([setup, pool.run<{ payloads: Uint8Array[]; svds: [number, Svd][] }>('cost-tile', { key, index: sample[k], ats, tile: tiles[k] })]);
       payloads.forEach((payload, j) => keepCosted(plans[ats[j]], tiles[k], sample[k], payload));
       for (const [rung, svd] of svds) if (!tiles[k].svds.has(rung)) tiles[k].svds.set(rung, svd);
       return payloads.map((payload) => payload.length);
