@@ -139,8 +139,8 @@ function announce(pool: WorkerPool, kind: string, body: unknown): Promise<void> 
  * calling thread's own tasks, instead of every tile within the limit at
  * once before the calling thread starts on one (48 MiB of new tiles for
  * bench/'s 4096 x 4096 field, about 150 ms in which the calling thread
- * encoded nothing). At the first failure (of a task or of `use`) no more items are taken; tasks still
- * running are let finish (their results dropped, so a caller's pool is left
+ * encoded nothing). At the first failure (of a task or of `use`) no more
+ * items are taken; tasks still running are let finish (their results dropped, so a caller's pool is left
  * idle) unless the pool itself failed; then the failure is thrown.
  */
 async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: T) => Promise<R>, use: (r: R, k: number) => void, limit: number): Promise<void> {
@@ -174,7 +174,8 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
   };
   try {
     for (const item of items) {
-      await waitFor(() => failure !== null || (submitted - next < limit && pool.queued === 0));
+      // The queue may hold another call's tasks (a caller's pool): with none of this call's in flight, nothing would wake this one.
+      await waitFor(() => failure !== null || (submitted - next < limit && (pool.queued === 0 || answered === submitted)));
       if (failure !== null) break;
       const k = submitted++;
       post(item).then(
