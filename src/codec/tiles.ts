@@ -83,12 +83,16 @@ export function memoryBands(values: FloatArray, cols: number): BandSource {
   return { band: (r0, count) => values.subarray(r0 * cols, (r0 + count) * cols) };
 }
 
+/** The values of a tile {@link tilesOf} was told to skip. */
+const SKIPPED = new Float64Array(0);
+
 /**
  * Every tile in index order (slice by slice, row-major within a slice:
  * t = s * gr * gc + ti * gc + tj), reading one band of rows per tile row
- * when the first tile of that row is asked for.
+ * when the first tile of that row is asked for. A tile `skip` names (one
+ * encoded already) is not cut out: its `tile` is empty.
  */
-export function* tilesOf(src: BandSource, spec: FieldSpec): Generator<{ index: number; tile: FloatArray; m: number; n: number }> {
+export function* tilesOf(src: BandSource, spec: FieldSpec, skip?: (index: number) => boolean): Generator<{ index: number; tile: FloatArray; m: number; n: number }> {
   const [gr, gc] = tileGrid(spec);
   const slices = spec.slices ?? 1;
   for (let s = 0; s < slices; s++) {
@@ -99,7 +103,8 @@ export function* tilesOf(src: BandSource, spec: FieldSpec): Generator<{ index: n
       for (let tj = 0; tj < gc; tj++) {
         const j0 = tj * spec.tileCols;
         const n = Math.min(spec.tileCols, spec.cols - j0);
-        yield { index: tileIndex(spec, s, ti, tj), tile: cutBlock(band, spec.cols, 0, j0, rows, n), m: rows, n };
+        const index = tileIndex(spec, s, ti, tj);
+        yield { index, tile: skip?.(index) ? SKIPPED : cutBlock(band, spec.cols, 0, j0, rows, n), m: rows, n };
       }
     }
   }

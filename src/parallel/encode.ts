@@ -118,10 +118,29 @@ export const encodeTasks = {
 };
 
 /**
+ * Post a set-up task to every thread of `pool` without waiting for the
+ * answers: each thread runs its tasks in the order they were posted, so the
+ * tasks posted after it find it done, and the calling thread starts on them
+ * while a worker still starts up (a worker started for the call takes
+ * 100-250 ms to load its code). The promise settles when all have answered;
+ * it is handled here, so a failure waits for the caller's await.
+ */
+function announce(pool: WorkerPool, kind: string, body: unknown): Promise<void> {
+  const answered = pool.broadcast(kind, body);
+  answered.catch(() => undefined);
+  return answered;
+}
+
+/**
  * Run `post` for every item, at most `limit` at a time, and hand each result
- * to `use` in item order as soon as the ones before it are used. At the
- * first failure (of a task or of `use`) no more items are taken; tasks still
- * running are let finish (their results dropped, so a caller's pool is left
+ * to `use` in item order as soon as the ones before it are used. The next
+ * item is taken (a tile cut out of its band) only when no task waits in the
+ * pool's queue: a tile is cut as a thread is about to need it, between the
+ * calling thread's own tasks, instead of every tile within the limit at
+ * once before the calling thread starts on one (48 MiB of new tiles for
+ * bench/'s 4096 x 4096 field, about 150 ms in which the calling thread
+ * encoded nothing). At the first failure (of a task or of `use`) no more
+ * items are taken; tasks still running are let finish (their results dropped, so a caller's pool is left
  * idle) unless the pool itself failed; then the failure is thrown.
  */
 async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: T) => Promise<R>, use: (r: R, k: number) => void, limit: number): Promise<void> {
@@ -155,7 +174,8 @@ async function inOrder<T, R>(pool: WorkerPool, items: Iterable<T>, post: (item: 
   };
   try {
     for (const item of items) {
-      await waitFor(() => failure !== null || submitted - next < limit);
+      // The queue may hold another call's tasks (a caller's pool): with none of this call's in flight, nothing would wake this one.
+      await waitFor(() => failure !== null || (submitted - next < limit && (pool.queued === 0 || answered === submitted)));
       if (failure !== null) break;
       const k = submitted++;
       post(item).then(
@@ -202,7 +222,7 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
   const limit = BANDS_PER_THREAD * pool.threads * tileGrid(spec)[1];
   const key = nextKey++;
   const { plan, ...rest } = c;
-  await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
+  const setup = announce(pool, 'encode-setup', { key, choices: { ...rest, plan: plan?.data ?? null } satisfies WireChoices });
   const summary = new FieldSummary(c);
   const post = ({ index, tile, m, n }: { index: number; tile: FloatArray; m: number; n: number }) => {
     // A tile the tile trial encoded already (see FieldPrior).
@@ -222,7 +242,10 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
     use(index, outcome);
   };
   try {
-    await inOrder(pool, tilesOf(src, spec), post, finished, limit);
+    // Tiles encoded already are not cut out again.
+    const skip = (index: number) => done?.has(index) === true || c.plan?.kept(index) !== undefined;
+    await inOrder(pool, tilesOf(src, spec, skip), post, finished, limit);
+    await setup;
   } finally {
     if (!pool.failed) await pool.broadcast('encode-forget', { key });
   }
@@ -237,9 +260,10 @@ export async function encodeWithChoices(src: BandSource, spec: FieldSpec, c: Fie
 export async function encodeTilesOn(pool: WorkerPool, c: FieldChoices, tiles: PickedTile[]): Promise<TileOutcome[]> {
   const key = nextKey++;
   const { plan: _, ...rest } = c;
-  await pool.broadcast('encode-setup', { key, choices: { ...rest, plan: null } satisfies WireChoices });
+  const setup = announce(pool, 'encode-setup', { key, choices: { ...rest, plan: null } satisfies WireChoices });
   try {
     const runs = tiles.map(({ index, tile, m, n, term }) => pool.run<TileOutcome>('encode-tile', { key, index, m, n, tile, ...(term ? { term } : {}) } satisfies TileTask));
+    await setup;
     // The tallies crossed threads as plain fields; give them their class back.
     return (await Promise.all(runs)).map((o) => ({ ...o, tally: Object.assign(new ErrorTally(), o.tally) }));
   } finally {
@@ -302,12 +326,10 @@ async function firstPassOn(pool: WorkerPool, src: BandSource, spec: FieldSpec, t
 function costingOn(pool: WorkerPool): (plans: L2PlanData[], sample: number[], tiles: PreparedTile[]) => { cost: (k: number, ats: number[]) => Promise<number[]>; done: () => Promise<void> } {
   return (plans, sample, tiles) => {
     const key = nextKey++;
-    const setup = pool.broadcast('cost-setup', { key, plans });
-    // Awaited by every request, or by done: a failure meanwhile must not go unhandled.
-    setup.catch(() => undefined);
+    // Awaited by every request, or by done.
+    const setup = announce(pool, 'cost-setup', { key, plans });
     const cost = async (k: number, ats: number[]): Promise<number[]> => {
-      await setup;
-      const { payloads, svds } = await pool.run<{ payloads: Uint8Array[]; svds: [number, Svd][] }>('cost-tile', { key, index: sample[k], ats, tile: tiles[k] });
+      const [, { payloads, svds }] = await Promise.all([setup, pool.run<{ payloads: Uint8Array[]; svds: [number, Svd][] }>('cost-tile', { key, index: sample[k], ats, tile: tiles[k] })]);
       payloads.forEach((payload, j) => keepCosted(plans[ats[j]], tiles[k], sample[k], payload));
       for (const [rung, svd] of svds) if (!tiles[k].svds.has(rung)) tiles[k].svds.set(rung, svd);
       return payloads.map((payload) => payload.length);

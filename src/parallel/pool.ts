@@ -177,6 +177,11 @@ export class WorkerPool {
     }
   }
 
+  /** Tasks waiting in the queue: run and not yet posted to any thread. */
+  get queued(): number {
+    return this.queue.length;
+  }
+
   /** True once a worker died (every call then fails) or the pool was closed. */
   get failed(): boolean {
     return this.failure !== null || this.closed;

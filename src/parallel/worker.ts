@@ -26,12 +26,13 @@ if (typeof preload === 'string') void tasksFor(preload).catch(() => undefined);
 
 const port = parentPort;
 port?.on('message', async (m: TaskMessage) => {
-  // A task the calling thread took back (see PoolOptions.steal) is not run, and not answered.
-  if (m.claim !== undefined && Atomics.compareExchange(m.claim, 0, 0, 1) !== 0) return;
   let reply: ReplyMessage;
   let transfer: TransferListItem[] = [];
   try {
     const tasks = await tasksFor(m.kind);
+    // A task the calling thread took back (see PoolOptions.steal) is not run, and not answered. Claimed only
+    // now, as it starts: the tasks posted to a worker still loading its code stay free to take back until then.
+    if (m.claim !== undefined && Atomics.compareExchange(m.claim, 0, 0, 1) !== 0) return;
     const run = Object.hasOwn(tasks, m.kind) ? tasks[m.kind] : undefined;
     // Internal assertion: the pool posts only the kinds registered here.
     if (run === undefined) throw new Error(`unknown worker task '${m.kind}'`);

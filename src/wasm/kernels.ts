@@ -37,9 +37,8 @@
  *
  * Memory: the instances of every module import one memory the loader made,
  * sized for the largest use so far. When a use needs more, the loader makes
- * a new, larger memory (twice the size, or what the use needs, but not
- * past {@link KEEP_BYTES} by doubling) and new instances over it, and
- * never grows a memory in place: growing detaches the memory's old
+ * a new, larger memory ({@link KEEP_BYTES}, or what the use needs when
+ * that is more) and new instances over it, and never grows a memory in place: growing detaches the memory's old
  * ArrayBuffer, and once any ArrayBuffer has been detached V8 checks every
  * typed-array access of optimized code for detachment (its "array buffer
  * detaching protector", from memory): measured here, truncatedSvd of a
@@ -49,8 +48,8 @@
  * it is loaded; callers lay out their arrays from {@link SCRATCH_AT}, under
  * a lease ({@link Kernels.lease}): one user at a time, a nested user gets
  * none and runs the JavaScript. When a lease ends with the memory above
- * {@link KEEP_BYTES}, the memory is dropped and the next use makes a small
- * one.
+ * {@link KEEP_BYTES}, the memory is dropped for a small one (the next use
+ * that needs more makes one of KEEP_BYTES again).
  */
 
 /** Bytes kept for the blend weight table (4 x 8191 + 1 entries of 4 bytes, rounded up to 64 KiB pages). */
@@ -58,8 +57,9 @@ export const WEIGHTS_BYTES = 131072;
 /** Where callers' arrays start. */
 export const SCRATCH_AT = WEIGHTS_BYTES;
 /**
- * Memory above this is given back when a lease ends (common practice, no
- * source: a few large tiles' worth). 32 MiB holds a 1024 x 1024 tile's
+ * The memory a use that needs more than there is gets at once, and memory
+ * above this is given back when a lease ends (common practice, no source:
+ * a few large tiles' worth). 32 MiB holds a 1024 x 1024 tile's
  * range-finder product (16.7 MiB while it kept a transposed copy of the
  * tile, 8.6 MiB since) and the encoder's kernels: at 16 MiB
  * that product's memory was given back every tile and made anew (with
@@ -147,19 +147,27 @@ export class Kernels {
     if (this.leased) return false;
     const need = SCRATCH_AT + bytes;
     if (need > this.memoryBytes) {
-      try {
-        // Doubled, but not past KEEP_BYTES unless the use needs more: a memory doubled past it is dropped
-        // at the lease's end, so a run of uses of half of it would make a new memory (and new instances,
-        // and new pages to touch) each time. Measured with the encoder's kernels on bench/'s large field
-        // at rel:1e-3 (one pack, one thread): 184 new memories, 0.1 -> 1.6 -> 8.1 -> 16.3 MiB for every
-        // tile, before this cap.
-        this.renew(Math.max(need, Math.min(2 * this.memoryBytes, KEEP_BYTES)));
-      } catch {
-        return false;
-      }
+      // KEEP_BYTES at once (or what the use needs, when more): pages of a memory cost nothing until they are
+      // touched, while each new memory's pages are touched anew (page faults, slow on some virtual machines).
+      // Growing by doubling made a new memory at each step, 128 KiB to 32 MiB, in every thread: a worker
+      // thread started for a pack touched each step's pages. packAsync on 2 threads of bench/'s 4096 x 4096
+      // field at rel:1e-3: 40456 -> 27916 page faults, 301 -> 234 ms of system time (medians of 5, alternated
+      // with the doubling build, scratch/ab.mjs). Past KEEP_BYTES a memory is dropped at the lease's end (see
+      // release), so only a use that needs more gets more.
+      if (!this.renewTo(Math.max(need, KEEP_BYTES)) && !this.renewTo(need)) return false;
     }
     this.leased = true;
     return true;
+  }
+
+  /** {@link renew}, false when the memory cannot be had. */
+  private renewTo(bytes: number): boolean {
+    try {
+      this.renew(bytes);
+      return true;
+    } catch {
+      return false;
+    }
   }
 
   /** End a use; a memory larger than {@link KEEP_BYTES} is dropped for a small one. */

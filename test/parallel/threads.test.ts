@@ -141,6 +141,19 @@ describe('packAsync: the same archive for every thread count', () => {
     }
   }, 120_000);
 
+  it('two calls at once on one pool each give pack\'s archive: the tile trial\'s tasks waiting in the queue do not stall the other call', async () => {
+    const p = new pool.WorkerPool(2);
+    try {
+      const shape: [number, number] = [400, 500];
+      // The second call's tile trial (tile 'auto', the default) queues all its candidates' tiles at once.
+      const options = [{ bound: 'rel:1e-3', tile: 16 }, { bound: 'rel:1e-3' }];
+      const outs = await Promise.all(options.map((o) => lib.packAsync(big.values, shape, { ...o, pool: p })));
+      for (const [k, o] of options.entries()) expect(same(outs[k], lib.pack(big.values, shape, o)), `call ${k}`).toBe(true);
+    } finally {
+      await p.close();
+    }
+  }, 120_000);
+
   it('refuses a thread count that is not an integer from 1 to MAX_THREADS', async () => {
     const { values, shape } = volcanoWithFill();
     for (const threads of [0, -2, 1.5, Number.NaN, lib.MAX_THREADS + 1]) {
